@@ -1,0 +1,129 @@
+# millrace - fit generalized linear models to files far larger than memory.
+#
+#   make            build the library and the command (build/millrace)
+#   make demo       install missing Debian packages (as root) and fit the bundled sample
+#   make check      the whole test suite: unit, command line, references, sanitizers, valgrind
+#   make asan       the library and unit tests built with ASan+UBSan (build/asan/)
+#   make bench      benchmarks (not tests; timings go to bench/results/)
+#   make V=1        show the commands
+
+# ---- settings ---------------------------------------------------------------
+CC       ?= cc
+OPT      ?= -O2 -g
+WARN     := -Wall -Wextra -Werror
+STD      := -std=c11
+PKGS     := openblas lapacke jansson libzstd
+PKG_CFLAGS := $(shell pkg-config --cflags $(PKGS) 2>/dev/null)
+PKG_LIBS   := $(shell pkg-config --libs $(PKGS) 2>/dev/null)
+CHECK_CFLAGS := $(shell pkg-config --cflags check 2>/dev/null)
+CHECK_LIBS   := $(shell pkg-config --libs check 2>/dev/null)
+CPPFLAGS := -Iinclude -Isrc -DMR_BUILDING_LIBRARY $(PKG_CFLAGS)
+CFLAGS   := $(STD) $(OPT) $(WARN) -fvisibility=hidden -pthread -MMD -MP
+LIBS     := -lcsv $(PKG_LIBS) -pthread -lm
+SAN      := -fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize-recover=all
+
+# Debian packages the build and the tests need.
+DEBIAN_PACKAGES := build-essential pkg-config libzstd-dev zstd libopenblas-dev liblapacke-dev libcsv-dev \
+                   libjansson-dev check libsubunit-dev python3 python3-numpy python3-scipy \
+                   python3-statsmodels r-base-core valgrind time
+
+ifeq ($(V),1)
+Q :=
+else
+Q := @
+endif
+
+B := build
+LIB_SRC  := $(wildcard src/common/*.c src/input/*.c src/model/*.c src/family/*.c \
+                       src/accum/*.c src/solve/*.c src/fit/*.c src/output/*.c)
+LIB_OBJ  := $(LIB_SRC:%.c=$(B)/%.o)
+ASAN_OBJ := $(LIB_SRC:%.c=$(B)/asan/%.o)
+UNIT_SRC := $(wildcard tests/check_*.c)
+UNIT_BIN := $(UNIT_SRC:tests/%.c=$(B)/tests/%)
+ASAN_UNIT_BIN := $(UNIT_SRC:tests/%.c=$(B)/asan/tests/%)
+
+.PHONY: all deps demo check unit asan asan-check valgrind-check cli-check ref-check lint bench clean
+
+all: $(B)/millrace $(B)/synth
+
+# ---- the library and the command ------------------------------------------
+$(B)/%.o: %.c
+	@mkdir -p $(dir $@)
+	@$(if $(Q),echo "  CC      $<")
+	$(Q)$(CC) $(CPPFLAGS) $(CFLAGS) -c $< -o $@
+
+$(B)/asan/%.o: %.c
+	@mkdir -p $(dir $@)
+	@$(if $(Q),echo "  CC asan $<")
+	$(Q)$(CC) $(CPPFLAGS) $(CFLAGS) $(SAN) -c $< -o $@
+
+$(B)/libmillrace.a: $(LIB_OBJ)
+	$(Q)rm -f $@ && ar rcs $@ $^
+
+$(B)/asan/libmillrace.a: $(ASAN_OBJ)
+	$(Q)rm -f $@ && ar rcs $@ $^
+
+$(B)/millrace: $(B)/src/cli/main.o $(B)/libmillrace.a
+	$(Q)$(CC) $(CFLAGS) -o $@ $^ $(LIBS)
+
+$(B)/asan/millrace: $(B)/asan/src/cli/main.o $(B)/asan/libmillrace.a
+	$(Q)$(CC) $(CFLAGS) $(SAN) -o $@ $^ $(LIBS)
+
+$(B)/synth: tools/synth.c
+	@mkdir -p $(B)
+	$(Q)$(CC) $(STD) -O2 $(WARN) -o $@ $< -lzstd -lm
+
+# ---- dependencies and the demo ----------------------------------------------
+deps:
+	@sh tools/install-deps.sh $(DEBIAN_PACKAGES)
+
+demo: deps
+	@$(MAKE) --no-print-directory all
+	./$(B)/millrace fit --model samples/falls.model --json $(B)/falls-fit.json samples/falls.csv.zst
+	@echo "(the same fit as JSON: $(B)/falls-fit.json)"
+
+# ---- tests --------------------------------------------------------------------
+$(B)/tests/%: tests/%.c $(B)/libmillrace.a
+	@mkdir -p $(dir $@)
+	$(Q)$(CC) $(CPPFLAGS) $(CHECK_CFLAGS) $(CFLAGS) -o $@ $< $(B)/libmillrace.a $(CHECK_LIBS) $(LIBS)
+
+$(B)/asan/tests/%: tests/%.c $(B)/asan/libmillrace.a
+	@mkdir -p $(dir $@)
+	$(Q)$(CC) $(CPPFLAGS) $(CHECK_CFLAGS) $(CFLAGS) $(SAN) -o $@ $< $(B)/asan/libmillrace.a $(CHECK_LIBS) $(LIBS)
+
+unit: $(UNIT_BIN)
+	@for t in $(UNIT_BIN); do echo "== $$t"; ./$$t || exit 1; done
+
+asan: $(ASAN_UNIT_BIN) $(B)/asan/millrace
+
+asan-check: asan
+	@for t in $(ASAN_UNIT_BIN); do echo "== $$t (ASan+UBSan)"; MR_TEST_QUICK=1 ./$$t || exit 1; done
+	MILLRACE=$(B)/asan/millrace bash tests/cli/smoke.sh
+
+valgrind-check: all
+	MILLRACE="valgrind --quiet --error-exitcode=99 --leak-check=full --errors-for-leak-kinds=definite $(B)/millrace" \
+	  bash tests/cli/smoke.sh
+
+cli-check: all
+	@for t in tests/cli/*.sh; do echo "== $$t"; bash $$t || exit 1; done
+
+ref-check: all
+	@for t in tests/ref/*.py; do echo "== $$t"; /usr/bin/python3 $$t || exit 1; done
+
+# The library must never print or exit: only the command talks to the terminal.
+lint:
+	@if grep -nE '\b(printf|fprintf|puts|fputs|perror|exit|abort|_Exit)\s*\(' $(LIB_SRC) | grep -v 'snprintf\|vsnprintf' ; then \
+	  echo "lint: the library must not print or exit (see above)"; exit 1; fi
+	@echo "lint: the library neither prints nor exits"
+
+check: lint unit cli-check ref-check asan-check valgrind-check
+	@echo "make check: all test groups passed"
+
+# ---- benchmarks (never a test) ------------------------------------------------
+bench: all
+	bash bench/run.sh
+
+clean:
+	rm -rf $(B)
+
+-include $(LIB_OBJ:.o=.d) $(ASAN_OBJ:.o=.d) $(B)/src/cli/main.d

@@ -1,0 +1,259 @@
+/*
+ * millrace.h - the whole public API of millrace, a library that fits
+ * generalized linear models to delimited text files far larger than memory.
+ *
+ * Everything a program needs is declared here; nothing else under src/ is
+ * public.  The model:
+ *
+ *   mr_fitter   a description of one model plus the options of one run.
+ *               Created by mr_fitter_new(), configured with model lines
+ *               (mr_fitter_model_line, mr_fitter_model_file) and options
+ *               (mr_fitter_set_*), then run on a file with mr_fitter_run().
+ *               Freed with mr_fitter_free().  Owns the message of its last
+ *               error (mr_fitter_errmsg).
+ *   mr_fit      the result of a successful run: coefficients, covariance,
+ *               fit statistics and everything needed to report them.
+ *               Read-only once returned: any number of threads may read one
+ *               fit at the same time.  Freed with mr_fit_free().
+ *
+ * Threads: a handle is used by one thread at a time; different handles are
+ * independent.  The library keeps no mutable global state of its own.  It
+ * does set OpenBLAS to one thread per call site (openblas_set_num_threads)
+ * while a run is going, because its own workers already use every core and
+ * nested BLAS threads would oversubscribe them.
+ *
+ * Errors: every fallible call returns an mr_status.  MR_OK is 0; the other
+ * values are fixed and never renumbered (the command-line tool uses them as
+ * its exit codes).  mr_strerror() names a status; the handle's message says
+ * what went wrong where (file, line, column, value).
+ *
+ * The library never prints, never exits and never aborts on bad input.
+ * Memory it returns is freed with the matching _free function or mr_free().
+ */
+#ifndef MILLRACE_H
+#define MILLRACE_H
+
+#include <stddef.h>
+#include <stdint.h>
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+#if defined(MR_BUILDING_LIBRARY) && defined(__GNUC__)
+#define MR_API __attribute__((visibility("default")))
+#else
+#define MR_API
+#endif
+
+#define MR_VERSION_MAJOR 0
+#define MR_VERSION_MINOR 1
+#define MR_VERSION_PATCH 0
+#define MR_VERSION_STRING "0.1.0"
+
+/* Version of the library actually linked, e.g. "0.1.0". */
+MR_API const char *mr_version(void);
+
+/* ------------------------------------------------------------------ */
+/* Status codes.  Values are permanent.                                */
+
+typedef enum mr_status {
+    MR_OK = 0,
+    MR_ERR_USAGE = 2,        /* bad option, model line or model file       */
+    MR_ERR_IO = 3,           /* a file could not be opened, read or written */
+    MR_ERR_FORMAT = 4,       /* malformed input: CSV, number, zstd stream   */
+    MR_ERR_DOMAIN = 5,       /* a value the model cannot take (y < 0 for
+                                poisson, exposure <= 0, weight < 0, ...)    */
+    MR_ERR_NO_DATA = 6,      /* empty file, header only, no usable rows     */
+    MR_ERR_NOT_CONVERGED = 7,/* only from mr_fit_status(): the fit stopped
+                                at the pass limit; results are flagged      */
+    MR_ERR_NO_MEMORY = 8,    /* an allocation failed                        */
+    MR_ERR_INTERNAL = 9,     /* a bug: please report it                     */
+    MR_ERR_NUMERIC = 10      /* the fit broke down (no finite deviance even
+                                after step halving)                         */
+} mr_status;
+
+/* A static, human-readable name for a status ("bad input format", ...). */
+MR_API const char *mr_strerror(mr_status status);
+
+/* ------------------------------------------------------------------ */
+/* Families and links.  Supported pairs (first is the canonical link,
+ * the default when a model names no link):
+ *   gaussian          identity, log, inverse
+ *   binomial          logit, probit, cloglog, log
+ *   poisson           log, identity, sqrt
+ *   gamma             inverse, identity, log
+ *   inverse-gaussian  inverse-squared, inverse, identity, log          */
+
+typedef enum mr_family {
+    MR_GAUSSIAN = 0,
+    MR_BINOMIAL = 1,
+    MR_POISSON = 2,
+    MR_GAMMA = 3,
+    MR_INVERSE_GAUSSIAN = 4
+} mr_family;
+
+typedef enum mr_link {
+    MR_IDENTITY = 0,
+    MR_LOG = 1,
+    MR_INVERSE = 2,
+    MR_LOGIT = 3,
+    MR_PROBIT = 4,
+    MR_CLOGLOG = 5,
+    MR_SQRT = 6,
+    MR_INVERSE_SQUARED = 7
+} mr_link;
+
+/* ------------------------------------------------------------------ */
+/* The fitter.                                                          */
+
+typedef struct mr_fitter mr_fitter;
+typedef struct mr_fit mr_fit;
+
+/* A new fitter with default options and an empty model.  NULL only when
+ * out of memory.  Free with mr_fitter_free (NULL is fine). */
+MR_API mr_fitter *mr_fitter_new(void);
+MR_API void mr_fitter_free(mr_fitter *f);
+
+/* The message of the last failed call on this fitter, or "" if none.
+ * Owned by the fitter; valid until its next call or until it is freed. */
+MR_API const char *mr_fitter_errmsg(const mr_fitter *f);
+
+/* Adds one line of the model language (see README, "The model file"):
+ *   outcome COL | trials COL | family NAME | link NAME |
+ *   numeric COL | factor COL [ref=LEVEL] | interact A B [C] |
+ *   offset COL | exposure COL | weight COL | intercept yes|no |
+ *   dispersion estimate|fixed
+ * '#' starts a comment; blank lines are ignored.  A later line overrides an
+ * earlier one for single-valued directives (outcome, family, ...) and for
+ * the role of a column (a column declared numeric then factor is a factor).
+ * `origin` names the line in error messages (e.g. "falls.model:3" or
+ * "--factor"); it may be NULL.  Returns MR_OK or MR_ERR_USAGE. */
+MR_API mr_status mr_fitter_model_line(mr_fitter *f, const char *line, const char *origin);
+
+/* Reads a model file: mr_fitter_model_line for each of its lines. */
+MR_API mr_status mr_fitter_model_file(mr_fitter *f, const char *path);
+
+/* Integer options. */
+typedef enum mr_int_option {
+    MR_OPT_THREADS = 0,      /* worker threads; 0 = online CPUs (default)   */
+    MR_OPT_MAX_PASSES = 1,   /* IRLS iterations at most (default 50)        */
+    MR_OPT_BUFFER_SIZE = 2,  /* bytes per read from the file (default 1 MiB,
+                                at least 16); results never depend on it    */
+    MR_OPT_IN_MEMORY = 3,    /* 1: keep parsed columns in memory after the
+                                first read and iterate on them (default 0)  */
+    MR_OPT_SKIP_BAD_ROWS = 4,/* 1: count and skip malformed rows instead of
+                                failing on the first one (default 0)        */
+    MR_OPT_DELIMITER = 5     /* ',' '\t' ';' or 0 = detect from the header
+                                line (default 0)                            */
+} mr_int_option;
+
+/* Real-valued options. */
+typedef enum mr_real_option {
+    MR_OPT_TOLERANCE = 0,    /* converged when |D_k - D_k-1| / (|D_k| + 0.1)
+                                is below this (default 1e-10)              */
+    MR_OPT_LEVEL = 1         /* confidence level of intervals (default 0.95) */
+} mr_real_option;
+
+/* Return MR_OK, or MR_ERR_USAGE for an unknown option or a value out of
+ * range (the message says which). */
+MR_API mr_status mr_fitter_set_int(mr_fitter *f, mr_int_option opt, long long value);
+MR_API mr_status mr_fitter_set_real(mr_fitter *f, mr_real_option opt, double value);
+
+/* Missing-value tokens.  By default an empty cell and "NA" are missing.
+ * mr_fitter_clear_missing removes all tokens (empty cells then are errors
+ * in numeric columns and a level of their own in factors);
+ * mr_fitter_add_missing adds one (copied; "" means the empty cell). */
+MR_API void mr_fitter_clear_missing(mr_fitter *f);
+MR_API mr_status mr_fitter_add_missing(mr_fitter *f, const char *token);
+
+/* Progress: called from the thread that called mr_fitter_run, at most a few
+ * times a second and once at the end of each pass.  `bytes_total` is 0
+ * when unknown (standard input).  Must not call back into the fitter. */
+typedef struct mr_progress {
+    int pass;                  /* 1 = the scan of the data, 2.. = IRLS      */
+    uint64_t bytes_done;       /* input bytes consumed in this pass         */
+    uint64_t bytes_total;      /* size of the input, 0 if unknown           */
+    uint64_t rows_done;        /* data rows seen in this pass               */
+    double seconds;            /* since this pass started                   */
+} mr_progress;
+typedef void (*mr_progress_fn)(const mr_progress *p, void *user);
+MR_API void mr_fitter_set_progress(mr_fitter *f, mr_progress_fn fn, void *user);
+
+/* Fits the model to the CSV (optionally zstd-compressed) at `path`, or to
+ * standard input when path is "-".  The input is only read.
+ * On MR_OK, *out receives a new fit that the caller frees with mr_fit_free;
+ * a fit that stopped at the pass limit is still returned with MR_OK and
+ * flagged (mr_fit_status() gives MR_ERR_NOT_CONVERGED).  On any other
+ * status *out is NULL and mr_fitter_errmsg says why.  The fitter may be run
+ * again, on the same or another file. */
+MR_API mr_status mr_fitter_run(mr_fitter *f, const char *path, mr_fit **out);
+
+/* ------------------------------------------------------------------ */
+/* The fit.  All accessors take a non-NULL fit; indices are 0-based and
+ * must be below mr_fit_ncoef().                                        */
+
+MR_API void mr_fit_free(mr_fit *fit);
+
+/* MR_OK, or MR_ERR_NOT_CONVERGED when the pass limit was reached. */
+MR_API mr_status mr_fit_status(const mr_fit *fit);
+
+MR_API size_t mr_fit_ncoef(const mr_fit *fit);
+/* Coefficient names: "(intercept)", "year", "sex=M", "age_band=45-49 & sex=M".
+ * Owned by the fit. */
+MR_API const char *mr_fit_coef_name(const mr_fit *fit, size_t j);
+/* 1 when the column is a linear combination of earlier ones: its estimate
+ * and standard error are then NaN and it takes no part in the fit. */
+MR_API int mr_fit_coef_aliased(const mr_fit *fit, size_t j);
+MR_API double mr_fit_coef(const mr_fit *fit, size_t j);
+MR_API double mr_fit_std_error(const mr_fit *fit, size_t j);
+/* Covariance of coefficients i and j (dispersion included); NaN if either
+ * is aliased. */
+MR_API double mr_fit_covariance(const mr_fit *fit, size_t i, size_t j);
+
+typedef enum mr_stat {
+    MR_STAT_DEVIANCE = 0,
+    MR_STAT_NULL_DEVIANCE = 1,
+    MR_STAT_DF_RESIDUAL = 2,
+    MR_STAT_DF_NULL = 3,
+    MR_STAT_PEARSON_CHI2 = 4,
+    MR_STAT_DISPERSION = 5,
+    MR_STAT_LOG_LIKELIHOOD = 6,
+    MR_STAT_AIC = 7,
+    MR_STAT_BIC = 8,
+    MR_STAT_ROWS_READ = 9,
+    MR_STAT_ROWS_USED = 10,
+    MR_STAT_ITERATIONS = 11,
+    MR_STAT_PASSES = 12,
+    MR_STAT_RELATIVE_CHANGE = 13,
+    MR_STAT_SECONDS = 14,
+    MR_STAT_RANK = 15
+} mr_stat;
+/* A fit statistic; NaN for an unknown `which`. */
+MR_API double mr_fit_stat(const mr_fit *fit, mr_stat which);
+
+/* The plain-text report (data read, model, convergence, coefficient table,
+ * fit statistics, warnings), at the confidence level the fitter had.
+ * Coefficients print with `digits` significant digits (0 = a readable
+ * default of 6).  Returns a NUL-terminated string the caller frees with
+ * mr_free, or NULL when out of memory. */
+MR_API char *mr_fit_report(const mr_fit *fit, int digits);
+
+/* Writes everything in the fit as JSON (schema in README, "JSON output") to
+ * `path`, atomically: a temporary file in the same directory, renamed over
+ * `path` only when complete.  Returns MR_OK or MR_ERR_IO / MR_ERR_NO_MEMORY
+ * with a message in `msg` (capacity `msgcap`, may be 0). */
+MR_API mr_status mr_fit_write_json(const mr_fit *fit, const char *path, char *msg, size_t msgcap);
+
+/* Number of warnings and the i-th one (owned by the fit): possible
+ * separation, aliased columns, non-convergence, ... */
+MR_API size_t mr_fit_nwarnings(const mr_fit *fit);
+MR_API const char *mr_fit_warning(const mr_fit *fit, size_t i);
+
+/* Frees memory the library returned (mr_fit_report). NULL is fine. */
+MR_API void mr_free(void *p);
+
+#ifdef __cplusplus
+}
+#endif
+#endif /* MILLRACE_H */

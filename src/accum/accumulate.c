@@ -1,0 +1,177 @@
+#include <cblas.h>
+#include <float.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "accum/accumulate.h"
+#include "common/alloc.h"
+#include "family/family.h"
+
+/* 64-byte alignment keeps the BLAS kernels on one code path whatever the
+ * allocator returns, so results cannot depend on where a buffer landed. */
+static double *aligned_doubles(size_t n)
+{
+    size_t bytes = n * sizeof(double);
+    bytes = (bytes + 63) / 64 * 64;
+    return aligned_alloc(64, bytes ? bytes : 64);
+}
+
+mr_status mr__workspace_init(mr__workspace *ws, size_t p, mr__error *err)
+{
+    const size_t R = MR__BLOCK_ROWS;
+    memset(ws, 0, sizeof *ws);
+    ws->p = p;
+    ws->Z = aligned_doubles(R * p);
+    ws->eta = aligned_doubles(R);
+    ws->mu = aligned_doubles(R);
+    ws->mu_eta = aligned_doubles(R);
+    ws->var = aligned_doubles(R);
+    ws->dev = aligned_doubles(R);
+    ws->w = aligned_doubles(R);
+    ws->z = aligned_doubles(R);
+    if (!ws->Z || !ws->eta || !ws->mu || !ws->mu_eta || !ws->var || !ws->dev || !ws->w || !ws->z) {
+        mr__workspace_release(ws);
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    }
+    return MR_OK;
+}
+
+void mr__workspace_release(mr__workspace *ws)
+{
+    free(ws->Z);
+    free(ws->eta);
+    free(ws->mu);
+    free(ws->mu_eta);
+    free(ws->var);
+    free(ws->dev);
+    free(ws->w);
+    free(ws->z);
+    memset(ws, 0, sizeof *ws);
+}
+
+mr_status mr__sums_init(mr__block_sums *s, size_t p, mr__error *err)
+{
+    memset(s, 0, sizeof *s);
+    s->xtwx = aligned_doubles(p * p);
+    s->xtwz = aligned_doubles(p);
+    if (!s->xtwx || !s->xtwz) {
+        mr__sums_release(s);
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    }
+    mr__sums_zero(s, p);
+    return MR_OK;
+}
+
+void mr__sums_release(mr__block_sums *s)
+{
+    free(s->xtwx);
+    free(s->xtwz);
+    memset(s, 0, sizeof *s);
+}
+
+void mr__sums_zero(mr__block_sums *s, size_t p)
+{
+    double *a = s->xtwx, *b = s->xtwz;
+    memset(s, 0, sizeof *s);
+    s->xtwx = a;
+    s->xtwz = b;
+    memset(a, 0, p * p * sizeof *a);
+    memset(b, 0, p * sizeof *b);
+}
+
+void mr__sums_add(mr__block_sums *into, const mr__block_sums *from, size_t p)
+{
+    size_t i, j;
+    for (j = 0; j < p; j++)
+        for (i = 0; i <= j; i++) into->xtwx[j * p + i] += from->xtwx[j * p + i];
+    for (j = 0; j < p; j++) into->xtwz[j] += from->xtwz[j];
+    into->dev += from->dev;
+    into->pearson += from->pearson;
+    into->null_dev += from->null_dev;
+    into->null_sw += from->null_sw;
+    into->null_swz += from->null_swz;
+    into->invalid += from->invalid;
+    into->boundary += from->boundary;
+}
+
+static int at_boundary(int family, double mu)
+{
+    const double edge = 10 * DBL_EPSILON; /* common practice: where fitted values stop being informative */
+    if (family == MR_BINOMIAL) return mu <= edge || mu >= 1 - edge;
+    if (family == MR_POISSON) return mu <= edge;
+    return 0;
+}
+
+/* eta, mu, dmu/deta for each row: from the coefficients, or on the first
+ * pass from the family's starting means. */
+static void linear_predictor(const mr__irls_point *pt, const mr__block *blk, mr__workspace *ws, size_t n)
+{
+    size_t i;
+    const size_t p = pt->design->p;
+    if (pt->beta == NULL) {
+        for (i = 0; i < n; i++) {
+            double w = blk->prior ? blk->prior[i] : 1.0;
+            ws->mu[i] = mr__family_mustart(pt->family, blk->y[i], w);
+            ws->eta[i] = mr__link_fun(pt->link, ws->mu[i]);
+            ws->mu_eta[i] = mr__link_mu_eta(pt->link, ws->eta[i]);
+        }
+        return;
+    }
+    for (i = 0; i < n; i++) ws->eta[i] = blk->off ? blk->off[i] : 0.0;
+    cblas_dgemv(CblasColMajor, CblasNoTrans, (int)n, (int)p, 1.0, ws->Z, (int)n, pt->beta, 1, 1.0, ws->eta, 1);
+    mr__link_inv_n(pt->link, ws->eta, n, ws->mu, ws->mu_eta);
+}
+
+static void null_model_rows(const mr__irls_point *pt, const mr__block *blk, mr__block_sums *out)
+{
+    uint32_t i;
+    for (i = 0; i < blk->n; i++) {
+        double off = blk->off ? blk->off[i] : 0.0, prior = blk->prior ? blk->prior[i] : 1.0;
+        double eta = (pt->null_intercept ? pt->null_b0 : 0.0) + off;
+        double mu = mr__link_inv(pt->link, eta), me = mr__link_mu_eta(pt->link, eta);
+        double var = mr__family_variance(pt->family, mu), w = prior * me * me / var;
+        out->null_dev += prior * mr__family_unit_deviance(pt->family, blk->y[i], mu);
+        out->null_sw += w;
+        out->null_swz += w * ((eta - off) + (blk->y[i] - mu) / me);
+    }
+}
+
+void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__workspace *ws,
+                          mr__block_sums *out)
+{
+    const size_t n = blk->n, p = pt->design->p;
+    size_t i, j;
+    double dev = 0, pearson = 0;
+    mr__sums_zero(out, p);
+    if (n == 0) return;
+    mr__design_fill(pt->design, blk->num, blk->lev, MR__BLOCK_ROWS, n, ws->Z, n);
+    linear_predictor(pt, blk, ws, n);
+    mr__family_variance_n(pt->family, ws->mu, n, ws->var);
+    mr__family_unit_deviance_n(pt->family, blk->y, ws->mu, n, ws->dev);
+    for (i = 0; i < n; i++) {
+        double prior = blk->prior ? blk->prior[i] : 1.0, r = blk->y[i] - ws->mu[i];
+        double off = blk->off ? blk->off[i] : 0.0;
+        if (!mr__link_eta_valid(pt->link, ws->eta[i]) || !mr__family_mu_valid(pt->family, ws->mu[i])) out->invalid++;
+        out->boundary += at_boundary(pt->family, ws->mu[i]);
+        dev += prior * ws->dev[i];
+        pearson += prior * r * r / ws->var[i];
+        ws->w[i] = prior * ws->mu_eta[i] * ws->mu_eta[i] / ws->var[i];
+        ws->z[i] = (ws->eta[i] - off) + r / ws->mu_eta[i];
+    }
+    out->dev = dev;
+    out->pearson = pearson;
+    if (out->invalid) return; /* the caller halves the step; sums are not used */
+    for (i = 0; i < n; i++) {
+        double s = sqrt(ws->w[i]);
+        ws->w[i] = s;
+        ws->z[i] *= s;
+    }
+    for (j = 0; j < p; j++) {
+        double *col = ws->Z + j * n;
+        for (i = 0; i < n; i++) col[i] *= ws->w[i];
+    }
+    cblas_dsyrk(CblasColMajor, CblasUpper, CblasTrans, (int)p, (int)n, 1.0, ws->Z, (int)n, 0.0, out->xtwx, (int)p);
+    cblas_dgemv(CblasColMajor, CblasTrans, (int)n, (int)p, 1.0, ws->Z, (int)n, ws->z, 1, 0.0, out->xtwz, 1);
+    null_model_rows(pt, blk, out);
+}

@@ -1,0 +1,48 @@
+/* accumulate.h - one IRLS pass over one block: the block's share of X'WX,
+ * X'Wz, the deviance and the Pearson statistic at the current coefficients.
+ *
+ * Blocks are summed in block order by the caller, so the totals do not
+ * depend on which worker did which block. */
+#ifndef MR_ACCUMULATE_H
+#define MR_ACCUMULATE_H
+
+#include <stdint.h>
+#include "input/decode.h"
+#include "model/design.h"
+
+typedef struct mr__irls_point {
+    const mr__design *design;
+    int family, link;
+    const double *beta; /* internal-scale coefficients; NULL = start from mustart */
+    int null_intercept; /* the null model has an intercept */
+    double null_b0;     /* its current value */
+} mr__irls_point;
+
+typedef struct mr__block_sums {
+    double *xtwx; /* p x p, upper triangle, column-major */
+    double *xtwz; /* p */
+    double dev, pearson, null_dev, null_sw, null_swz;
+    uint64_t invalid;  /* rows whose eta or mu left the family's domain */
+    uint64_t boundary; /* rows fitted at the edge of the domain */
+} mr__block_sums;
+
+/* Scratch space a worker owns: one block of the design and per-row
+ * vectors. */
+typedef struct mr__workspace {
+    size_t p;
+    double *Z, *eta, *mu, *mu_eta, *var, *dev, *w, *z;
+} mr__workspace;
+
+mr_status mr__workspace_init(mr__workspace *ws, size_t p, mr__error *err);
+void mr__workspace_release(mr__workspace *ws);
+
+mr_status mr__sums_init(mr__block_sums *s, size_t p, mr__error *err);
+void mr__sums_release(mr__block_sums *s);
+void mr__sums_zero(mr__block_sums *s, size_t p);
+void mr__sums_add(mr__block_sums *into, const mr__block_sums *from, size_t p);
+
+/* Computes the block's sums into out (overwritten). */
+void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__workspace *ws,
+                          mr__block_sums *out);
+
+#endif

@@ -1,0 +1,486 @@
+#define _POSIX_C_SOURCE 200809L
+#include <pthread.h>
+#include <string.h>
+#include <time.h>
+
+#include "accum/pass.h"
+#include "common/alloc.h"
+#include "input/rowsplit.h"
+#include "input/source.h"
+
+enum { SLOT_FREE, SLOT_FILLING, SLOT_FILLED, SLOT_BUSY, SLOT_DONE };
+
+typedef struct slot {
+    int state;
+    uint64_t index;
+    mr__chunk *chunk;
+    mr__block block;         /* decoded here when streaming */
+    const mr__block *use;    /* the block the sums come from */
+    mr__scan_sums scan;
+    mr__block_sums sums;
+    uint64_t raw_bytes;      /* input consumed when the chunk was complete */
+    mr_status st;
+    mr__error err;
+} slot;
+
+typedef struct worker {
+    struct engine *e;
+    pthread_t thread;
+    int started;
+    mr__decoder dec;
+    mr__workspace ws;
+} worker;
+
+typedef struct engine {
+    const mr__pass_cfg *cfg;
+    pthread_mutex_t mu;
+    pthread_cond_t cv;
+    slot *slots;
+    size_t W;
+    uint64_t next_take;     /* next block a worker may take */
+    uint64_t next_combine;  /* next block to add */
+    uint64_t emitted;       /* blocks handed over by the reader */
+    int reader_done, abort;
+    mr_status reader_st;
+    mr__error reader_err;
+    mr__source *src;
+    mr__splitter sp;
+    worker *workers;
+    size_t nworkers;
+    pthread_t reader;
+    int reader_started;
+    char *buf;
+    size_t buf_cap, pending_off, pending_len;
+} engine;
+
+static double now_seconds(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (double)ts.tv_sec + ts.tv_nsec * 1e-9;
+}
+
+void mr__store_release(mr__store *s)
+{
+    size_t i;
+    for (i = 0; i < s->n; i++) mr__block_release(&s->block[i]);
+    mr__free(s->block);
+    memset(s, 0, sizeof *s);
+}
+
+/* ---- the reader ------------------------------------------------------ */
+
+/* Waits until block `index` may be filled; returns its slot or NULL when
+ * the pass is being abandoned.  Called with the lock held. */
+static slot *claim_slot(engine *e, uint64_t index)
+{
+    slot *s = &e->slots[index % e->W];
+    while (!e->abort && (s->state != SLOT_FREE || index >= e->next_combine + e->W)) pthread_cond_wait(&e->cv, &e->mu);
+    if (e->abort) return NULL;
+    s->state = SLOT_FILLING;
+    s->index = index;
+    return s;
+}
+
+static void publish(engine *e, slot *s)
+{
+    pthread_mutex_lock(&e->mu);
+    s->state = SLOT_FILLED;
+    e->emitted = s->index + 1;
+    pthread_cond_broadcast(&e->cv);
+    pthread_mutex_unlock(&e->mu);
+}
+
+static mr__chunk *on_full_chunk(void *user, mr__chunk *full, mr__error *err)
+{
+    engine *e = user;
+    slot *s = &e->slots[full->index % e->W], *next;
+    s->raw_bytes = mr__source_raw_bytes(e->src);
+    publish(e, s);
+    pthread_mutex_lock(&e->mu);
+    next = claim_slot(e, full->index + 1);
+    pthread_mutex_unlock(&e->mu);
+    if (next == NULL) {
+        mr__fail(err, MR_ERR_INTERNAL, "pass abandoned");
+        return NULL;
+    }
+    return next->chunk;
+}
+
+static mr_status read_stream(engine *e, mr__error *err)
+{
+    if (e->pending_len > 0) {
+        size_t used;
+        MR__TRY(mr__splitter_feed(&e->sp, e->buf + e->pending_off, e->pending_len, &used, on_full_chunk, e, err));
+    }
+    for (;;) {
+        size_t got, used;
+        MR__TRY(mr__source_read(e->src, e->buf, e->buf_cap, &got, err));
+        if (got == 0) break;
+        MR__TRY(mr__splitter_feed(&e->sp, e->buf, got, &used, on_full_chunk, e, err));
+    }
+    return mr__splitter_finish(&e->sp, on_full_chunk, e, err);
+}
+
+static mr_status replay_store(engine *e)
+{
+    size_t i;
+    for (i = 0; i < e->cfg->store->n; i++) {
+        slot *s;
+        pthread_mutex_lock(&e->mu);
+        s = claim_slot(e, i);
+        pthread_mutex_unlock(&e->mu);
+        if (s == NULL) return MR_ERR_INTERNAL;
+        s->use = &e->cfg->store->block[i];
+        s->raw_bytes = 0;
+        publish(e, s);
+    }
+    return MR_OK;
+}
+
+static void *reader_main(void *arg)
+{
+    engine *e = arg;
+    mr__error err;
+    mr_status st;
+    mr__error_clear(&err);
+    st = e->cfg->store && !e->cfg->store_fill ? replay_store(e) : read_stream(e, &err);
+    pthread_mutex_lock(&e->mu);
+    e->reader_done = 1;
+    e->reader_st = st;
+    e->reader_err = err;
+    pthread_cond_broadcast(&e->cv);
+    pthread_mutex_unlock(&e->mu);
+    return NULL;
+}
+
+/* ---- the workers ----------------------------------------------------- */
+
+static void compute(worker *w, slot *s)
+{
+    const mr__pass_cfg *cfg = w->e->cfg;
+    s->st = MR_OK;
+    mr__error_clear(&s->err);
+    if (s->use == NULL) {
+        s->st = mr__decode_chunk(&w->dec, s->chunk, &s->block, &s->err);
+        s->use = &s->block;
+        if (s->st != MR_OK || s->block.failed) return;
+    }
+    if (cfg->kind == MR__PASS_SCAN) mr__scan_block(s->use, cfg->dcfg->bind->ncol, cfg->dcfg->bind->nnum, &s->scan);
+    else mr__accumulate_block(cfg->point, s->use, &w->ws, &s->sums);
+}
+
+static void *worker_main(void *arg)
+{
+    worker *w = arg;
+    engine *e = w->e;
+    for (;;) {
+        slot *s;
+        pthread_mutex_lock(&e->mu);
+        for (;;) {
+            s = &e->slots[e->next_take % e->W];
+            if (e->abort) break;
+            if (e->next_take < e->emitted && s->state == SLOT_FILLED && s->index == e->next_take) break;
+            if (e->reader_done && e->next_take >= e->emitted) break;
+            pthread_cond_wait(&e->cv, &e->mu);
+        }
+        if (e->abort || (e->reader_done && e->next_take >= e->emitted)) {
+            pthread_mutex_unlock(&e->mu);
+            return NULL;
+        }
+        s->state = SLOT_BUSY;
+        e->next_take++;
+        pthread_mutex_unlock(&e->mu);
+        compute(w, s);
+        pthread_mutex_lock(&e->mu);
+        s->state = SLOT_DONE;
+        pthread_cond_broadcast(&e->cv);
+        pthread_mutex_unlock(&e->mu);
+    }
+}
+
+/* ---- set-up and tear-down -------------------------------------------- */
+
+static mr_status init_slots(engine *e, mr__error *err)
+{
+    const mr__pass_cfg *cfg = e->cfg;
+    const mr__binding *b = cfg->dcfg->bind;
+    size_t i;
+    e->slots = mr__calloc(e->W, sizeof *e->slots);
+    if (e->slots == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (i = 0; i < e->W; i++) {
+        slot *s = &e->slots[i];
+        s->chunk = mr__calloc(1, sizeof *s->chunk);
+        if (s->chunk == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        MR__TRY(mr__block_init(&s->block, b, err));
+        if (cfg->kind == MR__PASS_SCAN) MR__TRY(mr__scan_init(&s->scan, b->ncol, b->nnum, err));
+        else MR__TRY(mr__sums_init(&s->sums, cfg->p, err));
+    }
+    return MR_OK;
+}
+
+static void release_slots(engine *e)
+{
+    size_t i;
+    for (i = 0; e->slots && i < e->W; i++) {
+        slot *s = &e->slots[i];
+        if (s->chunk) mr__free(s->chunk->data);
+        mr__free(s->chunk);
+        mr__block_release(&s->block);
+        mr__scan_release(&s->scan);
+        mr__sums_release(&s->sums);
+    }
+    mr__free(e->slots);
+    e->slots = NULL;
+}
+
+static mr_status start_workers(engine *e, mr__error *err)
+{
+    size_t i;
+    e->workers = mr__calloc(e->nworkers, sizeof *e->workers);
+    if (e->workers == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (i = 0; i < e->nworkers; i++) {
+        worker *w = &e->workers[i];
+        w->e = e;
+        MR__TRY(mr__decoder_init(&w->dec, e->cfg->dcfg, err));
+        if (e->cfg->kind == MR__PASS_IRLS) MR__TRY(mr__workspace_init(&w->ws, e->cfg->p, err));
+    }
+    for (i = 0; i < e->nworkers; i++) {
+        if (pthread_create(&e->workers[i].thread, NULL, worker_main, &e->workers[i]) != 0)
+            return mr__fail(err, MR_ERR_INTERNAL, "cannot start a worker thread");
+        e->workers[i].started = 1;
+    }
+    return MR_OK;
+}
+
+static void stop_threads(engine *e)
+{
+    size_t i;
+    pthread_mutex_lock(&e->mu);
+    if (!e->reader_done || e->next_combine < e->emitted) e->abort = 1;
+    pthread_cond_broadcast(&e->cv);
+    pthread_mutex_unlock(&e->mu);
+    if (e->reader_started) pthread_join(e->reader, NULL);
+    e->reader_started = 0;
+    pthread_mutex_lock(&e->mu);
+    e->abort = 1;
+    pthread_cond_broadcast(&e->cv);
+    pthread_mutex_unlock(&e->mu);
+    for (i = 0; e->workers && i < e->nworkers; i++)
+        if (e->workers[i].started) pthread_join(e->workers[i].thread, NULL);
+}
+
+/* Reads up to the end of the header row on this thread, so the caller can
+ * bind columns before any worker starts.  What follows the header in the
+ * same read is left in buf[pending_off, +pending_len) for the reader. */
+static mr_status read_header(engine *e, mr__error *err)
+{
+    const mr__pass_cfg *cfg = e->cfg;
+    size_t got = 0, used = 0;
+    while (e->sp.want_header) {
+        MR__TRY(mr__source_read(e->src, e->buf, e->buf_cap, &got, err));
+        if (got == 0) {
+            MR__TRY(mr__splitter_finish(&e->sp, on_full_chunk, e, err));
+            if (e->sp.want_header) return mr__fail(err, MR_ERR_NO_DATA, "%s: the file is empty", cfg->display);
+            used = 0;
+            break;
+        }
+        MR__TRY(mr__splitter_feed(&e->sp, e->buf, got, &used, on_full_chunk, e, err));
+    }
+    e->pending_off = used;
+    e->pending_len = got - used;
+    return cfg->on_header(cfg->header_user, e->sp.header, e->sp.header_len, err);
+}
+
+static mr_status begin_stream(engine *e, mr__error *err)
+{
+    const mr__pass_cfg *cfg = e->cfg;
+    slot *first;
+    MR__TRY(mr__source_open(&e->src, cfg->path, cfg->display, cfg->read_size, cfg->tee_fd, err));
+    e->buf_cap = cfg->read_size < 16 ? 16 : cfg->read_size;
+    e->buf = mr__malloc(e->buf_cap);
+    if (e->buf == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    mr__splitter_init(&e->sp, cfg->display, 1);
+    MR__TRY(read_header(e, err));
+    MR__TRY(init_slots(e, err));
+    first = &e->slots[0];
+    first->state = SLOT_FILLING;
+    first->index = 0;
+    mr__splitter_start_chunk(&e->sp, first->chunk);
+    return MR_OK;
+}
+
+static void keep_block(engine *e, slot *s, mr__error *err, mr_status *st)
+{
+    mr__store *store = e->cfg->store;
+    if (store->n == store->cap) {
+        size_t cap = store->cap ? 2 * store->cap : 64;
+        mr__block *p = mr__realloc(store->block, cap * sizeof *p);
+        if (p == NULL) {
+            *st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory keeping the data in memory");
+            return;
+        }
+        store->block = p;
+        store->cap = cap;
+    }
+    store->block[store->n++] = s->block;
+    *st = mr__block_init(&s->block, e->cfg->dcfg->bind, err);
+}
+
+static void report_progress(engine *e, const slot *s, double t0, double *last, int final)
+{
+    const mr__pass_cfg *cfg = e->cfg;
+    mr_progress pr;
+    double t = now_seconds();
+    if (cfg->progress == NULL || (!final && t - *last < 0.25)) return;
+    *last = t;
+    pr.pass = cfg->pass_number;
+    pr.bytes_done = s ? s->raw_bytes : (e->src ? mr__source_raw_bytes(e->src) : 0);
+    pr.bytes_total = e->src ? mr__source_size(e->src) : 0;
+    pr.rows_done = e->next_combine * (uint64_t)MR__BLOCK_ROWS;
+    pr.seconds = t - t0;
+    cfg->progress(&pr, cfg->progress_user);
+}
+
+static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *err)
+{
+    const mr__pass_cfg *cfg = e->cfg;
+    mr_status st = MR_OK;
+    if (s->st != MR_OK) {
+        *err = s->err;
+        return s->st;
+    }
+    if (s->use == &s->block && s->block.failed) {
+        *err = s->block.err;
+        return s->block.err.status;
+    }
+    if (cfg->kind == MR__PASS_SCAN) mr__scan_add(&res->scan, &s->scan, cfg->dcfg->bind->ncol, cfg->dcfg->bind->nnum);
+    else mr__sums_add(&res->sums, &s->sums, cfg->p);
+    if (cfg->store && cfg->store_fill) keep_block(e, s, err, &st);
+    return st;
+}
+
+static mr_status combine_all(engine *e, mr__pass_result *res, double t0, mr__error *err)
+{
+    double last = t0;
+    for (;;) {
+        slot *s;
+        mr_status st;
+        pthread_mutex_lock(&e->mu);
+        for (;;) {
+            s = &e->slots[e->next_combine % e->W];
+            if (s->state == SLOT_DONE && s->index == e->next_combine) break;
+            if (e->reader_done && e->next_combine >= e->emitted) break;
+            pthread_cond_wait(&e->cv, &e->mu);
+        }
+        if (!(s->state == SLOT_DONE && s->index == e->next_combine)) {
+            pthread_mutex_unlock(&e->mu);
+            break;
+        }
+        pthread_mutex_unlock(&e->mu);
+        st = add_block(e, s, res, err);
+        if (st != MR_OK) return st;
+        pthread_mutex_lock(&e->mu);
+        s->state = SLOT_FREE;
+        s->use = NULL;
+        e->next_combine++;
+        pthread_cond_broadcast(&e->cv);
+        pthread_mutex_unlock(&e->mu);
+        report_progress(e, s, t0, &last, 0);
+    }
+    if (e->reader_st != MR_OK) {
+        *err = e->reader_err;
+        return e->reader_st;
+    }
+    report_progress(e, NULL, t0, &last, 1);
+    return MR_OK;
+}
+
+static mr_status init_result(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error *err)
+{
+    memset(res, 0, sizeof *res);
+    if (cfg->kind == MR__PASS_SCAN) return MR_OK; /* sizes known only after the header */
+    return mr__sums_init(&res->sums, cfg->p, err);
+}
+
+static void take_levels(engine *e, mr__pass_result *res)
+{
+    size_t i;
+    res->worker_levels = mr__calloc(e->nworkers, sizeof *res->worker_levels);
+    if (res->worker_levels == NULL) return;
+    res->nworkers = e->nworkers;
+    for (i = 0; i < e->nworkers; i++) {
+        res->worker_levels[i] = e->workers[i].dec.local;
+        e->workers[i].dec.local = NULL;
+    }
+}
+
+static void finish_source(engine *e, mr__pass_result *res)
+{
+    if (e->src == NULL) return;
+    res->raw_bytes = mr__source_raw_bytes(e->src);
+    res->out_bytes = mr__source_out_bytes(e->src);
+    res->checksum = mr__source_checksum(e->src);
+    res->zstd = mr__source_is_zstd(e->src);
+    mr__source_identity(e->src, &res->size, &res->mtime_ns);
+}
+
+static void release_engine(engine *e)
+{
+    size_t i;
+    for (i = 0; e->workers && i < e->nworkers; i++) {
+        mr__decoder_release(&e->workers[i].dec);
+        mr__workspace_release(&e->workers[i].ws);
+    }
+    mr__free(e->workers);
+    release_slots(e);
+    mr__splitter_release(&e->sp);
+    mr__source_close(e->src);
+    mr__free(e->buf);
+    pthread_mutex_destroy(&e->mu);
+    pthread_cond_destroy(&e->cv);
+}
+
+mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error *err)
+{
+    engine e;
+    mr_status st;
+    double t0 = now_seconds();
+    memset(&e, 0, sizeof e);
+    e.cfg = cfg;
+    e.nworkers = cfg->nthreads > 0 ? (size_t)cfg->nthreads : 1;
+    e.W = 2 * e.nworkers + 2;
+    pthread_mutex_init(&e.mu, NULL);
+    pthread_cond_init(&e.cv, NULL);
+    st = init_result(cfg, res, err);
+    if (st == MR_OK) st = (cfg->store && !cfg->store_fill) ? init_slots(&e, err) : begin_stream(&e, err);
+    if (st == MR_OK && cfg->kind == MR__PASS_SCAN)
+        st = mr__scan_init(&res->scan, cfg->dcfg->bind->ncol, cfg->dcfg->bind->nnum, err);
+    if (st == MR_OK) st = start_workers(&e, err);
+    if (st == MR_OK) {
+        if (pthread_create(&e.reader, NULL, reader_main, &e) != 0)
+            st = mr__fail(err, MR_ERR_INTERNAL, "cannot start the reader thread");
+        else e.reader_started = 1;
+    }
+    if (st == MR_OK) st = combine_all(&e, res, t0, err);
+    stop_threads(&e);
+    finish_source(&e, res);
+    if (st == MR_OK && cfg->kind == MR__PASS_SCAN) take_levels(&e, res);
+    release_engine(&e);
+    res->seconds = now_seconds() - t0;
+    return st;
+}
+
+void mr__pass_result_release(mr__pass_result *res, size_t nfac)
+{
+    size_t i, f;
+    for (i = 0; i < res->nworkers; i++) {
+        if (res->worker_levels[i] == NULL) continue;
+        for (f = 0; f < nfac; f++) mr__levelset_release(&res->worker_levels[i][f]);
+        mr__free(res->worker_levels[i]);
+    }
+    mr__free(res->worker_levels);
+    mr__scan_release(&res->scan);
+    mr__sums_release(&res->sums);
+    memset(res, 0, sizeof *res);
+}

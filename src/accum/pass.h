@@ -1,0 +1,71 @@
+/* pass.h - one read of the data, spread over threads.
+ *
+ * DESIGN.  A reader thread decompresses and cuts the stream into chunks of
+ * MR__BLOCK_ROWS rows; N workers decode chunks and compute each block's
+ * partial sums; the calling thread adds the partial sums in block order.
+ * Block i lives in slot i % W of a ring of W slots, and the reader may
+ * start block i only once block i - W has been added, so memory is bounded
+ * by W blocks whatever the file size, and the order of additions (hence
+ * every bit of the result) is independent of thread timing, thread count
+ * and read size.
+ *
+ * In memory mode the first IRLS pass keeps each decoded block, and later
+ * passes hand the kept blocks to the workers instead of reading the file:
+ * the same per-block arithmetic, so the same bits. */
+#ifndef MR_PASS_H
+#define MR_PASS_H
+
+#include <stdint.h>
+#include "accum/accumulate.h"
+#include "accum/scan.h"
+#include "input/decode.h"
+#include "millrace.h"
+
+typedef enum mr__pass_kind { MR__PASS_SCAN, MR__PASS_IRLS } mr__pass_kind;
+
+typedef struct mr__store {
+    mr__block *block;
+    size_t n, cap;
+} mr__store;
+
+void mr__store_release(mr__store *s);
+
+/* Called on the calling thread once the header row is read. */
+typedef mr_status (*mr__header_fn)(void *user, const char *line, size_t len, mr__error *err);
+
+typedef struct mr__pass_cfg {
+    mr__pass_kind kind;
+    const char *path;     /* what to open ("-" = standard input) */
+    const char *display;  /* the name in messages */
+    size_t read_size;
+    int tee_fd;           /* -1, or where to copy raw input (standard input) */
+    int nthreads;
+    mr__header_fn on_header;
+    void *header_user;
+    mr__decode_cfg *dcfg; /* completed by on_header on the first pass */
+    const mr__irls_point *point;
+    size_t p;
+    mr__store *store;     /* NULL, or in-memory blocks */
+    int store_fill;       /* 1: keep decoded blocks in store; 0 with store: replay it */
+    int pass_number;
+    mr_progress_fn progress;
+    void *progress_user;
+} mr__pass_cfg;
+
+typedef struct mr__pass_result {
+    mr__scan_sums scan;    /* MR__PASS_SCAN */
+    mr__block_sums sums;   /* MR__PASS_IRLS */
+    uint64_t raw_bytes, out_bytes, size, checksum;
+    int64_t mtime_ns;
+    int zstd;
+    /* First pass: each worker's factor levels (nthreads decoders' sets),
+     * valid until mr__pass_result_release. */
+    mr__levelset **worker_levels;
+    size_t nworkers;
+    double seconds;
+} mr__pass_result;
+
+mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error *err);
+void mr__pass_result_release(mr__pass_result *res, size_t nfac);
+
+#endif

@@ -1,0 +1,123 @@
+#define _DEFAULT_SOURCE /* lgamma_r: lgamma writes the global signgam */
+#include <math.h>
+#include <string.h>
+
+#include "accum/scan.h"
+#include "common/alloc.h"
+#include "millrace.h"
+
+mr_status mr__scan_init(mr__scan_sums *s, size_t ncol, size_t nnum, mr__error *err)
+{
+    memset(s, 0, sizeof *s);
+    s->missing = mr__calloc(ncol ? ncol : 1, sizeof *s->missing);
+    s->sx = mr__calloc(nnum ? nnum : 1, sizeof *s->sx);
+    s->sxx = mr__calloc(nnum ? nnum : 1, sizeof *s->sxx);
+    if (!s->missing || !s->sx || !s->sxx) {
+        mr__scan_release(s);
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    }
+    return MR_OK;
+}
+
+void mr__scan_release(mr__scan_sums *s)
+{
+    mr__free(s->missing);
+    mr__free(s->sx);
+    mr__free(s->sxx);
+    memset(s, 0, sizeof *s);
+}
+
+void mr__scan_reset(mr__scan_sums *s, size_t ncol, size_t nnum)
+{
+    uint64_t *m = s->missing;
+    double *sx = s->sx, *sxx = s->sxx;
+    memset(s, 0, sizeof *s);
+    s->missing = m;
+    s->sx = sx;
+    s->sxx = sxx;
+    memset(m, 0, ncol * sizeof *m);
+    memset(sx, 0, nnum * sizeof *sx);
+    memset(sxx, 0, nnum * sizeof *sxx);
+}
+
+void mr__scan_block(const mr__block *blk, size_t ncol, size_t nnum, mr__scan_sums *s)
+{
+    uint32_t i;
+    size_t k;
+    mr__scan_reset(s, ncol, nnum);
+    s->nread = blk->nread;
+    s->nused = blk->n;
+    s->incomplete = blk->incomplete;
+    s->nbad = blk->nbad;
+    s->nbad_shown = blk->nbad_shown;
+    memcpy(s->bad, blk->bad, blk->nbad_shown * sizeof blk->bad[0]);
+    for (k = 0; k < ncol; k++) s->missing[k] = blk->missing[k];
+    for (k = 0; k < nnum; k++) {
+        const double *x = blk->num + k * MR__BLOCK_ROWS;
+        double a = 0, b = 0;
+        for (i = 0; i < blk->n; i++) {
+            a += x[i];
+            b += x[i] * x[i];
+        }
+        s->sx[k] = a;
+        s->sxx[k] = b;
+    }
+    for (i = 0; i < blk->n; i++) {
+        double w = blk->prior ? blk->prior[i] : 1.0, off = blk->off ? blk->off[i] : 0.0;
+        s->sw += w;
+        s->swy += w * blk->y[i];
+        s->swe += w * exp(off);
+        s->swoff += w * off;
+        s->llc += blk->llc[i];
+        s->npos += w > 0;
+    }
+}
+
+void mr__scan_add(mr__scan_sums *into, const mr__scan_sums *from, size_t ncol, size_t nnum)
+{
+    size_t k;
+    uint32_t i;
+    into->nread += from->nread;
+    into->nused += from->nused;
+    into->incomplete += from->incomplete;
+    into->nbad += from->nbad;
+    into->npos += from->npos;
+    for (k = 0; k < ncol; k++) into->missing[k] += from->missing[k];
+    for (k = 0; k < nnum; k++) {
+        into->sx[k] += from->sx[k];
+        into->sxx[k] += from->sxx[k];
+    }
+    into->sw += from->sw;
+    into->swy += from->swy;
+    into->swe += from->swe;
+    into->swoff += from->swoff;
+    into->llc += from->llc;
+    for (i = 0; i < from->nbad_shown && into->nbad_shown < MR__BAD_SHOWN; i++)
+        into->bad[into->nbad_shown++] = from->bad[i];
+}
+
+static double xlogy(double x, double y) { return x == 0 ? 0.0 : x * log(y); }
+
+static double log_gamma(double x)
+{
+    int sign;
+    return lgamma_r(x, &sign);
+}
+
+double mr__loglik_constant(int family, double y, double w, double t, int has_trials)
+{
+    double prior = w * t, m, c, k;
+    switch (family) {
+    case MR_GAUSSIAN: return prior > 0 ? log(prior) : 0.0;
+    case MR_POISSON: return prior * (xlogy(y, y) - y - log_gamma(y + 1));
+    case MR_GAMMA:
+    case MR_INVERSE_GAUSSIAN: return prior * log(y);
+    case MR_BINOMIAL:
+        m = has_trials ? t : w;
+        c = has_trials ? w : 1.0;
+        if (m <= 0) return 0.0;
+        k = m * y;
+        return c * (log_gamma(m + 1) - log_gamma(k + 1) - log_gamma(m - k + 1) + xlogy(k, y) + xlogy(m - k, 1 - y));
+    }
+    return 0.0;
+}

@@ -1,0 +1,315 @@
+/* main.c - the millrace command: a thin client of the library.  It turns
+ * options into model lines and fitter options, shows progress, prints the
+ * report and writes the JSON.  Exit codes are the library's status values
+ * (see millrace.h and the README). */
+#define _POSIX_C_SOURCE 200809L
+#include <getopt.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#include "millrace.h"
+
+enum {
+    OPT_OUTCOME = 256, OPT_TRIALS, OPT_FAMILY, OPT_LINK, OPT_NUMERIC, OPT_FACTOR, OPT_INTERACT, OPT_OFFSET,
+    OPT_EXPOSURE, OPT_WEIGHT, OPT_NO_INTERCEPT, OPT_DISPERSION, OPT_THREADS, OPT_BUFFER, OPT_TOLERANCE,
+    OPT_MAX_PASSES, OPT_LEVEL, OPT_DELIMITER, OPT_MISSING, OPT_IN_MEMORY, OPT_ON_BAD_ROW, OPT_JSON, OPT_QUIET,
+    OPT_DIGITS, OPT_HELP
+};
+
+static const struct option long_options[] = {
+    {"model", required_argument, NULL, 'm'},
+    {"outcome", required_argument, NULL, OPT_OUTCOME},
+    {"trials", required_argument, NULL, OPT_TRIALS},
+    {"family", required_argument, NULL, OPT_FAMILY},
+    {"link", required_argument, NULL, OPT_LINK},
+    {"numeric", required_argument, NULL, OPT_NUMERIC},
+    {"factor", required_argument, NULL, OPT_FACTOR},
+    {"interact", required_argument, NULL, OPT_INTERACT},
+    {"offset", required_argument, NULL, OPT_OFFSET},
+    {"exposure", required_argument, NULL, OPT_EXPOSURE},
+    {"weight", required_argument, NULL, OPT_WEIGHT},
+    {"no-intercept", no_argument, NULL, OPT_NO_INTERCEPT},
+    {"dispersion", required_argument, NULL, OPT_DISPERSION},
+    {"threads", required_argument, NULL, OPT_THREADS},
+    {"buffer-size", required_argument, NULL, OPT_BUFFER},
+    {"tolerance", required_argument, NULL, OPT_TOLERANCE},
+    {"max-passes", required_argument, NULL, OPT_MAX_PASSES},
+    {"level", required_argument, NULL, OPT_LEVEL},
+    {"delimiter", required_argument, NULL, OPT_DELIMITER},
+    {"missing", required_argument, NULL, OPT_MISSING},
+    {"in-memory", no_argument, NULL, OPT_IN_MEMORY},
+    {"on-bad-row", required_argument, NULL, OPT_ON_BAD_ROW},
+    {"json", required_argument, NULL, OPT_JSON},
+    {"quiet", no_argument, NULL, OPT_QUIET},
+    {"digits", required_argument, NULL, OPT_DIGITS},
+    {"help", no_argument, NULL, OPT_HELP},
+    {NULL, 0, NULL, 0},
+};
+
+static const char usage_text[] =
+    "usage: millrace fit [options] DATA     fit a GLM to DATA (CSV, TSV, zstd-compressed, or - for stdin)\n"
+    "       millrace version | help\n"
+    "\n"
+    "model (each option takes the words of the model-file line of the same name):\n"
+    "  -m, --model FILE        model file\n"
+    "  --outcome COL  --trials COL  --family NAME  --link NAME\n"
+    "  --numeric COL  --factor 'COL [ref=LEVEL]'  --interact 'A B [C]'\n"
+    "  --offset COL  --exposure COL  --weight COL  --no-intercept  --dispersion estimate|fixed\n"
+    "run:\n"
+    "  --threads N  --buffer-size BYTES  --tolerance X  --max-passes N  --level P\n"
+    "  --delimiter ,|tab|;  --missing TOKEN (repeatable)  --in-memory  --on-bad-row fail|skip\n"
+    "output:\n"
+    "  --json PATH  --quiet  --digits N\n"
+    "exit codes: 0 ok, 2 usage, 3 I/O, 4 malformed input, 5 value outside the model, 6 no data,\n"
+    "            7 not converged, 8 out of memory, 9 internal error, 10 numerical breakdown\n";
+
+typedef struct cli {
+    mr_fitter *fitter;
+    const char *json_path;
+    int quiet, digits, missing_given, progress_shown;
+    char **model_lines; /* options as model lines, applied after the model file */
+    const char **model_origin;
+    size_t nlines;
+    const char *model_file;
+} cli;
+
+static int fail(mr_status st, const char *msg)
+{
+    fprintf(stderr, "millrace: %s\n", msg);
+    return (int)st;
+}
+
+static int usage_error(const char *msg)
+{
+    fprintf(stderr, "millrace: %s\n(see 'millrace help')\n", msg);
+    return (int)MR_ERR_USAGE;
+}
+
+static int add_line(cli *c, const char *directive, const char *value, const char *origin)
+{
+    size_t n = strlen(directive) + (value ? strlen(value) : 0) + 2;
+    char *line = malloc(n), **lines;
+    const char **origins;
+    if (line == NULL) return -1;
+    snprintf(line, n, "%s %s", directive, value ? value : "");
+    lines = realloc(c->model_lines, (c->nlines + 1) * sizeof *lines);
+    if (lines == NULL) {
+        free(line);
+        return -1;
+    }
+    c->model_lines = lines;
+    origins = realloc(c->model_origin, (c->nlines + 1) * sizeof *origins);
+    if (origins == NULL) {
+        free(line);
+        return -1;
+    }
+    c->model_origin = origins;
+    c->model_lines[c->nlines] = line;
+    c->model_origin[c->nlines++] = origin;
+    return 0;
+}
+
+static int parse_count(const char *s, long long *out)
+{
+    char *end;
+    long long v = strtoll(s, &end, 10);
+    if (*s == '\0' || *end != '\0') return -1;
+    *out = v;
+    return 0;
+}
+
+static int parse_real(const char *s, double *out)
+{
+    char *end;
+    double v = strtod(s, &end);
+    if (*s == '\0' || *end != '\0') return -1;
+    *out = v;
+    return 0;
+}
+
+static int set_int(cli *c, mr_int_option opt, const char *arg, const char *name)
+{
+    long long v;
+    char msg[256];
+    if (parse_count(arg, &v) != 0) {
+        snprintf(msg, sizeof msg, "%s takes a whole number, got '%s'", name, arg);
+        return usage_error(msg);
+    }
+    if (mr_fitter_set_int(c->fitter, opt, v) != MR_OK) return usage_error(mr_fitter_errmsg(c->fitter));
+    return 0;
+}
+
+static int set_real(cli *c, mr_real_option opt, const char *arg, const char *name)
+{
+    double v;
+    char msg[256];
+    if (parse_real(arg, &v) != 0) {
+        snprintf(msg, sizeof msg, "%s takes a number, got '%s'", name, arg);
+        return usage_error(msg);
+    }
+    if (mr_fitter_set_real(c->fitter, opt, v) != MR_OK) return usage_error(mr_fitter_errmsg(c->fitter));
+    return 0;
+}
+
+static int set_delimiter(cli *c, const char *arg)
+{
+    int d = strcmp(arg, "tab") == 0 || strcmp(arg, "\\t") == 0 ? '\t' : (strlen(arg) == 1 ? arg[0] : -1);
+    if (d != ',' && d != ';' && d != '\t') return usage_error("--delimiter takes ',', ';' or tab");
+    mr_fitter_set_int(c->fitter, MR_OPT_DELIMITER, d);
+    return 0;
+}
+
+static int set_missing(cli *c, const char *arg)
+{
+    if (!c->missing_given) mr_fitter_clear_missing(c->fitter);
+    c->missing_given = 1;
+    if (mr_fitter_add_missing(c->fitter, arg) != MR_OK) return fail(MR_ERR_NO_MEMORY, "out of memory");
+    return 0;
+}
+
+static int set_bad_rows(cli *c, const char *arg)
+{
+    if (strcmp(arg, "fail") != 0 && strcmp(arg, "skip") != 0) return usage_error("--on-bad-row takes fail or skip");
+    mr_fitter_set_int(c->fitter, MR_OPT_SKIP_BAD_ROWS, strcmp(arg, "skip") == 0);
+    return 0;
+}
+
+static const char *directive_of(int opt)
+{
+    switch (opt) {
+    case OPT_OUTCOME: return "outcome";
+    case OPT_TRIALS: return "trials";
+    case OPT_FAMILY: return "family";
+    case OPT_LINK: return "link";
+    case OPT_NUMERIC: return "numeric";
+    case OPT_FACTOR: return "factor";
+    case OPT_INTERACT: return "interact";
+    case OPT_OFFSET: return "offset";
+    case OPT_EXPOSURE: return "exposure";
+    case OPT_WEIGHT: return "weight";
+    case OPT_DISPERSION: return "dispersion";
+    default: return NULL;
+    }
+}
+
+static int handled(int rc) { return rc ? rc : -1; }
+
+/* Returns -1 when the option was handled, else an exit code. */
+static int handle_option(cli *c, int opt, const char *arg)
+{
+    const char *d = directive_of(opt);
+    if (d != NULL) return add_line(c, d, arg, d) == 0 ? -1 : fail(MR_ERR_NO_MEMORY, "out of memory");
+    switch (opt) {
+    case 'm': c->model_file = arg; return -1;
+    case OPT_NO_INTERCEPT: return add_line(c, "intercept", "no", "--no-intercept") == 0 ? -1 : 8;
+    case OPT_THREADS: return handled(set_int(c, MR_OPT_THREADS, arg, "--threads"));
+    case OPT_BUFFER: return handled(set_int(c, MR_OPT_BUFFER_SIZE, arg, "--buffer-size"));
+    case OPT_MAX_PASSES: return handled(set_int(c, MR_OPT_MAX_PASSES, arg, "--max-passes"));
+    case OPT_TOLERANCE: return handled(set_real(c, MR_OPT_TOLERANCE, arg, "--tolerance"));
+    case OPT_LEVEL: return handled(set_real(c, MR_OPT_LEVEL, arg, "--level"));
+    case OPT_DELIMITER: return handled(set_delimiter(c, arg));
+    case OPT_MISSING: return handled(set_missing(c, arg));
+    case OPT_IN_MEMORY: mr_fitter_set_int(c->fitter, MR_OPT_IN_MEMORY, 1); return -1;
+    case OPT_ON_BAD_ROW: return handled(set_bad_rows(c, arg));
+    case OPT_JSON: c->json_path = arg; return -1;
+    case OPT_QUIET: c->quiet = 1; return -1;
+    case OPT_DIGITS: {
+        long long v;
+        if (parse_count(arg, &v) != 0 || v < 1 || v > 17) return usage_error("--digits takes 1 to 17");
+        c->digits = (int)v;
+        return -1;
+    }
+    case OPT_HELP: fputs(usage_text, stdout); return 0;
+    default: return usage_error("unknown option");
+    }
+}
+
+static void show_progress(const mr_progress *p, void *user)
+{
+    cli *c = user;
+    double rate = p->seconds > 0 ? p->rows_done / p->seconds : 0;
+    if (p->bytes_total > 0) {
+        double frac = (double)p->bytes_done / (double)p->bytes_total;
+        double eta = frac > 0 ? p->seconds * (1 - frac) / frac : 0;
+        fprintf(stderr, "\rpass %d: %5.1f%%  %.0f rows/s  eta %.0f s   ", p->pass, 100 * frac, rate, eta);
+    } else {
+        fprintf(stderr, "\rpass %d: %llu bytes  %.0f rows/s   ", p->pass, (unsigned long long)p->bytes_done, rate);
+    }
+    c->progress_shown = 1;
+}
+
+static int apply_model(cli *c)
+{
+    size_t i;
+    if (c->model_file && mr_fitter_model_file(c->fitter, c->model_file) != MR_OK)
+        return usage_error(mr_fitter_errmsg(c->fitter));
+    for (i = 0; i < c->nlines; i++) {
+        char origin[64];
+        snprintf(origin, sizeof origin, "--%s", c->model_origin[i]);
+        if (mr_fitter_model_line(c->fitter, c->model_lines[i], origin) != MR_OK)
+            return usage_error(mr_fitter_errmsg(c->fitter));
+    }
+    return 0;
+}
+
+static int publish(cli *c, mr_fit *fit)
+{
+    char msg[1024];
+    char *report = mr_fit_report(fit, c->digits);
+    mr_status st;
+    if (report == NULL) return fail(MR_ERR_NO_MEMORY, "out of memory writing the report");
+    fputs(report, stdout);
+    mr_free(report);
+    if (fflush(stdout) != 0) return fail(MR_ERR_IO, "cannot write the report to standard output");
+    if (c->json_path && (st = mr_fit_write_json(fit, c->json_path, msg, sizeof msg)) != MR_OK) return fail(st, msg);
+    return (int)mr_fit_status(fit);
+}
+
+static int run_fit(cli *c, int argc, char **argv)
+{
+    int opt, rc;
+    mr_fit *fit = NULL;
+    mr_status st;
+    optind = 1;
+    while ((opt = getopt_long(argc, argv, "m:", long_options, NULL)) != -1) {
+        if (opt == '?') return usage_error("bad option");
+        if ((rc = handle_option(c, opt, optarg)) >= 0) return rc;
+    }
+    if (optind != argc - 1) return usage_error("fit takes exactly one data file (or - for standard input)");
+    if ((rc = apply_model(c)) != 0) return rc;
+    if (!c->quiet && isatty(STDERR_FILENO)) mr_fitter_set_progress(c->fitter, show_progress, c);
+    st = mr_fitter_run(c->fitter, argv[optind], &fit);
+    if (c->progress_shown) fputs("\r\033[K", stderr);
+    if (st != MR_OK) return fail(st, mr_fitter_errmsg(c->fitter));
+    rc = publish(c, fit);
+    if (rc == MR_ERR_NOT_CONVERGED) fprintf(stderr, "millrace: the fit did not converge (see the report)\n");
+    mr_fit_free(fit);
+    return rc;
+}
+
+int main(int argc, char **argv)
+{
+    cli c;
+    int rc;
+    size_t i;
+    if (argc < 2 || strcmp(argv[1], "help") == 0 || strcmp(argv[1], "--help") == 0) {
+        fputs(usage_text, argc < 2 ? stderr : stdout);
+        return argc < 2 ? (int)MR_ERR_USAGE : 0;
+    }
+    if (strcmp(argv[1], "version") == 0 || strcmp(argv[1], "--version") == 0) {
+        printf("millrace %s\n", mr_version());
+        return 0;
+    }
+    if (strcmp(argv[1], "fit") != 0) return usage_error("unknown command (try 'millrace fit')");
+    memset(&c, 0, sizeof c);
+    c.fitter = mr_fitter_new();
+    if (c.fitter == NULL) return fail(MR_ERR_NO_MEMORY, "out of memory");
+    rc = run_fit(&c, argc - 1, argv + 1);
+    for (i = 0; i < c.nlines; i++) free(c.model_lines[i]);
+    free(c.model_lines);
+    free(c.model_origin);
+    mr_fitter_free(c.fitter);
+    return rc;
+}

@@ -1,0 +1,30 @@
+#include <stdint.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "alloc.h"
+#include "millrace.h"
+
+void *mr__malloc(size_t size) { return malloc(size ? size : 1); }
+void *mr__calloc(size_t count, size_t size) { return calloc(count ? count : 1, size ? size : 1); }
+void *mr__realloc(void *p, size_t size) { return realloc(p, size ? size : 1); }
+void mr__free(void *p) { free(p); }
+
+void *mr__malloc_array(size_t count, size_t size)
+{
+    if (size != 0 && count > SIZE_MAX / size) return NULL;
+    return mr__malloc(count * size);
+}
+
+char *mr__strndup(const char *s, size_t n)
+{
+    char *d = mr__malloc(n + 1);
+    if (d == NULL) return NULL;
+    memcpy(d, s, n);
+    d[n] = '\0';
+    return d;
+}
+
+char *mr__strdup(const char *s) { return mr__strndup(s, strlen(s)); }
+
+void mr_free(void *p) { mr__free(p); }

@@ -1,0 +1,17 @@
+/* alloc.h - the one allocation pair the library uses, so that a test can
+ * make any allocation fail and every failure path is one kind of path. */
+#ifndef MR_ALLOC_H
+#define MR_ALLOC_H
+
+#include <stddef.h>
+
+void *mr__malloc(size_t size);
+void *mr__calloc(size_t count, size_t size);
+void *mr__realloc(void *p, size_t size);
+void mr__free(void *p);
+char *mr__strdup(const char *s);
+char *mr__strndup(const char *s, size_t n);
+/* Overflow-checked count * size for array allocations; NULL on overflow. */
+void *mr__malloc_array(size_t count, size_t size);
+
+#endif

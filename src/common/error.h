@@ -1,0 +1,36 @@
+/* error.h - the status + message pair every internal call reports through.
+ *
+ * A message names where the problem is (file, line, column, value) so the
+ * analyst can find the cell; callers fill it once, at the point that knows
+ * the most, and pass the status up unchanged. */
+#ifndef MR_ERROR_H
+#define MR_ERROR_H
+
+#include <stddef.h>
+#include "millrace.h"
+
+#define MR__MSG_CAP 1024
+
+typedef struct mr__error {
+    mr_status status;
+    char msg[MR__MSG_CAP];
+} mr__error;
+
+/* Records status and a printf-style message; returns status, so callers
+ * can write `return mr__fail(err, MR_ERR_IO, "...")`.  err may be NULL. */
+mr_status mr__fail(mr__error *err, mr_status status, const char *fmt, ...)
+    __attribute__((format(printf, 3, 4)));
+
+void mr__error_clear(mr__error *err);
+
+/* Copies at most `cap` bytes of a cell into `out` for quoting it in a
+ * message, replacing control characters; always NUL terminates. */
+void mr__quote_value(char *out, size_t cap, const char *s, size_t len);
+
+#define MR__TRY(expr)                          \
+    do {                                       \
+        mr_status mr__st_ = (expr);            \
+        if (mr__st_ != MR_OK) return mr__st_;  \
+    } while (0)
+
+#endif

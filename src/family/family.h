@@ -1,0 +1,55 @@
+/* family.h - GLM error families and link functions.
+ *
+ * Everything the IRLS loop needs per row: g, g^-1, dmu/deta, V(mu), the unit
+ * deviance, domain checks and starting values.  Hot-path functions work on
+ * arrays so the switch on family/link happens once per block, not per row.
+ */
+#ifndef MR_FAMILY_H
+#define MR_FAMILY_H
+
+#include <stddef.h>
+#include "millrace.h" /* mr_family, mr_link enums */
+
+/* Names as written in model files: "gaussian", "binomial", "poisson",
+ * "gamma", "inverse-gaussian"; links "identity", "log", "inverse", "logit",
+ * "probit", "cloglog", "sqrt", "inverse-squared".  Return -1 if unknown. */
+int mr__family_from_name(const char *name);
+int mr__link_from_name(const char *name);
+const char *mr__family_name(mr_family f);
+const char *mr__link_name(mr_link l);
+
+mr_link mr__canonical_link(mr_family f);
+/* 1 if the pair is supported (see the table in millrace.h), else 0. */
+int mr__link_allowed(mr_family f, mr_link l);
+
+/* Valid outcome value for the family (y on the response scale, i.e. a
+ * proportion for binomial): gaussian any finite; binomial 0<=y<=1;
+ * poisson y>=0; gamma y>0; inverse-gaussian y>0. */
+int mr__family_y_valid(mr_family f, double y);
+
+/* Valid fitted mean: gaussian any finite; binomial 0<mu<1; poisson mu>0;
+ * gamma, inverse-gaussian mu>0. */
+int mr__family_mu_valid(mr_family f, double mu);
+/* Valid linear predictor for the link where the link restricts it
+ * (inverse, inverse-squared: eta>0 ... see family.c), else finite. */
+int mr__link_eta_valid(mr_link l, double eta);
+
+/* Starting mean for IRLS from the outcome (proportion for binomial) and the
+ * prior weight (trials times weight for binomial). */
+double mr__family_mustart(mr_family f, double y, double w);
+
+/* Scalar versions (tests, rare paths). */
+double mr__link_fun(mr_link l, double mu);      /* eta = g(mu) */
+double mr__link_inv(mr_link l, double eta);     /* mu = g^-1(eta) */
+double mr__link_mu_eta(mr_link l, double eta);  /* dmu/deta at eta */
+double mr__family_variance(mr_family f, double mu);
+/* Unit deviance d(y, mu) for prior weight 1 (limits taken at y=0 etc). */
+double mr__family_unit_deviance(mr_family f, double y, double mu);
+
+/* Array versions for the hot path: mu[i] = g^-1(eta[i]),
+ * mu_eta[i] = dmu/deta(eta[i]); var[i] = V(mu[i]); dev[i] = d(y[i], mu[i]). */
+void mr__link_inv_n(mr_link l, const double *eta, size_t n, double *mu, double *mu_eta);
+void mr__family_variance_n(mr_family f, const double *mu, size_t n, double *var);
+void mr__family_unit_deviance_n(mr_family f, const double *y, const double *mu, size_t n, double *dev);
+
+#endif

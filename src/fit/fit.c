@@ -1,0 +1,114 @@
+#include <math.h>
+#include <stdarg.h>
+#include <stdio.h>
+
+#include "common/alloc.h"
+#include "common/strbuf.h"
+#include "fit/fit.h"
+
+static void free_strings(char **s, size_t n)
+{
+    size_t i;
+    if (s == NULL) return;
+    for (i = 0; i < n; i++) mr__free(s[i]);
+    mr__free(s);
+}
+
+void mr_fit_free(mr_fit *fit)
+{
+    size_t i;
+    if (fit == NULL) return;
+    free_strings(fit->name, fit->p);
+    mr__free(fit->aliased);
+    mr__free(fit->beta);
+    mr__free(fit->se);
+    mr__free(fit->cov);
+    mr__free(fit->stat);
+    mr__free(fit->pval);
+    mr__free(fit->lo);
+    mr__free(fit->hi);
+    mr__free(fit->outcome);
+    mr__free(fit->trials);
+    mr__free(fit->offset);
+    mr__free(fit->exposure);
+    mr__free(fit->weight);
+    free_strings(fit->terms, fit->nterms);
+    for (i = 0; i < fit->nfactors; i++) {
+        mr__free(fit->factor[i].name);
+        mr__free(fit->factor[i].reference);
+        free_strings(fit->factor[i].level, fit->factor[i].nlevels);
+    }
+    mr__free(fit->factor);
+    free_strings(fit->missing_name, fit->nmissing);
+    mr__free(fit->missing_count);
+    free_strings(fit->bad_example, fit->nbad_examples);
+    mr__free(fit->pass_seconds);
+    mr__free(fit->path);
+    free_strings(fit->warning, fit->nwarnings);
+    mr__free(fit);
+}
+
+void mr__fit_warn(mr_fit *fit, const char *fmt, ...)
+{
+    char buf[1024], *copy, **grown;
+    va_list ap;
+    va_start(ap, fmt);
+    vsnprintf(buf, sizeof buf, fmt, ap);
+    va_end(ap);
+    grown = mr__realloc(fit->warning, (fit->nwarnings + 1) * sizeof *grown);
+    if (grown == NULL) return;
+    fit->warning = grown;
+    copy = mr__strdup(buf);
+    if (copy == NULL) return;
+    fit->warning[fit->nwarnings++] = copy;
+}
+
+const char *mr__fit_ratio_label(const mr_fit *fit)
+{
+    if (fit->link == MR_LOGIT) return fit->family == MR_BINOMIAL ? "odds ratio" : NULL;
+    if (fit->link != MR_LOG) return NULL;
+    if (fit->family == MR_POISSON) return "rate ratio";
+    if (fit->family == MR_BINOMIAL) return "risk ratio";
+    return "mean ratio";
+}
+
+const char *mr__fit_statistic_name(const mr_fit *fit) { return fit->dispersion_estimated ? "t" : "z"; }
+
+mr_status mr_fit_status(const mr_fit *fit) { return fit->status; }
+size_t mr_fit_ncoef(const mr_fit *fit) { return fit->p; }
+const char *mr_fit_coef_name(const mr_fit *fit, size_t j) { return j < fit->p ? fit->name[j] : NULL; }
+int mr_fit_coef_aliased(const mr_fit *fit, size_t j) { return j < fit->p ? fit->aliased[j] : 0; }
+double mr_fit_coef(const mr_fit *fit, size_t j) { return j < fit->p ? fit->beta[j] : NAN; }
+double mr_fit_std_error(const mr_fit *fit, size_t j) { return j < fit->p ? fit->se[j] : NAN; }
+
+double mr_fit_covariance(const mr_fit *fit, size_t i, size_t j)
+{
+    if (i >= fit->p || j >= fit->p) return NAN;
+    return fit->cov[j * fit->p + i];
+}
+
+double mr_fit_stat(const mr_fit *fit, mr_stat which)
+{
+    switch (which) {
+    case MR_STAT_DEVIANCE: return fit->deviance;
+    case MR_STAT_NULL_DEVIANCE: return fit->null_deviance;
+    case MR_STAT_DF_RESIDUAL: return fit->df_residual;
+    case MR_STAT_DF_NULL: return fit->df_null;
+    case MR_STAT_PEARSON_CHI2: return fit->pearson;
+    case MR_STAT_DISPERSION: return fit->dispersion;
+    case MR_STAT_LOG_LIKELIHOOD: return fit->loglik;
+    case MR_STAT_AIC: return fit->aic;
+    case MR_STAT_BIC: return fit->bic;
+    case MR_STAT_ROWS_READ: return (double)fit->rows_read;
+    case MR_STAT_ROWS_USED: return (double)fit->rows_used;
+    case MR_STAT_ITERATIONS: return fit->iterations;
+    case MR_STAT_PASSES: return fit->passes;
+    case MR_STAT_RELATIVE_CHANGE: return fit->rel_change;
+    case MR_STAT_SECONDS: return fit->seconds;
+    case MR_STAT_RANK: return (double)fit->rank;
+    }
+    return NAN;
+}
+
+size_t mr_fit_nwarnings(const mr_fit *fit) { return fit->nwarnings; }
+const char *mr_fit_warning(const mr_fit *fit, size_t i) { return i < fit->nwarnings ? fit->warning[i] : NULL; }

@@ -1,0 +1,65 @@
+/* fit.h - what a finished fit holds (the struct behind mr_fit). */
+#ifndef MR_FIT_H
+#define MR_FIT_H
+
+#include <stddef.h>
+#include <stdint.h>
+#include "millrace.h"
+
+typedef struct mr__fit_factor {
+    char *name, *reference;
+    char **level;
+    size_t nlevels;
+} mr__fit_factor;
+
+struct mr_fit {
+    mr_status status;
+    /* coefficients, on the scale of the raw columns */
+    size_t p, rank;
+    char **name;
+    int *aliased;
+    double *beta, *se, *cov, *stat, *pval, *lo, *hi;
+    /* model */
+    int family, link, intercept, dispersion_estimated;
+    char *outcome, *trials, *offset, *exposure, *weight;
+    char **terms;
+    size_t nterms;
+    mr__fit_factor *factor;
+    size_t nfactors;
+    /* fit statistics */
+    double dispersion, deviance, null_deviance, df_residual, df_null, pearson, loglik, aic, bic;
+    /* data */
+    uint64_t rows_read, rows_used, rows_bad, rows_incomplete, n, zero_weight;
+    char **missing_name;
+    uint64_t *missing_count;
+    size_t nmissing;
+    char **bad_example;
+    size_t nbad_examples;
+    /* convergence */
+    int iterations, passes, halvings, converged;
+    double rel_change, seconds, rows_per_second;
+    double *pass_seconds;
+    size_t npass_seconds;
+    /* input and options */
+    char *path;
+    uint64_t bytes, decompressed_bytes, checksum;
+    int zstd;
+    char delimiter;
+    int delimiter_detected;
+    int threads, max_passes, in_memory, skip_bad;
+    size_t buffer_size;
+    double tolerance, level;
+    char **warning;
+    size_t nwarnings;
+};
+
+/* Adds a warning (copied); silently drops it when out of memory. */
+void mr__fit_warn(mr_fit *fit, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
+
+/* "rate ratio", "odds ratio", ... for links where exp(estimate) is a
+ * ratio; NULL otherwise. */
+const char *mr__fit_ratio_label(const mr_fit *fit);
+/* "z" when the dispersion is fixed, "t" when it is estimated. */
+const char *mr__fit_statistic_name(const mr_fit *fit);
+
+#endif

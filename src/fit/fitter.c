@@ -1,0 +1,132 @@
+#include <string.h>
+
+#include "common/alloc.h"
+#include "fit/fitter.h"
+
+#define DEFAULT_MAX_PASSES 50
+#define DEFAULT_BUFFER (1u << 20)
+#define DEFAULT_TOLERANCE 1e-10
+
+const char *mr_version(void) { return MR_VERSION_STRING; }
+
+mr_fitter *mr_fitter_new(void)
+{
+    mr_fitter *f = mr__calloc(1, sizeof *f);
+    if (f == NULL) return NULL;
+    mr__spec_init(&f->spec);
+    f->max_passes = DEFAULT_MAX_PASSES;
+    f->buffer_size = DEFAULT_BUFFER;
+    f->tolerance = DEFAULT_TOLERANCE;
+    f->level = 0.95;
+    if (mr_fitter_add_missing(f, "") != MR_OK || mr_fitter_add_missing(f, "NA") != MR_OK) {
+        mr_fitter_free(f);
+        return NULL;
+    }
+    return f;
+}
+
+void mr_fitter_free(mr_fitter *f)
+{
+    if (f == NULL) return;
+    mr__spec_release(&f->spec);
+    mr_fitter_clear_missing(f);
+    mr__free(f);
+}
+
+const char *mr_fitter_errmsg(const mr_fitter *f) { return f->err.msg; }
+
+mr_status mr_fitter_model_line(mr_fitter *f, const char *line, const char *origin)
+{
+    mr__error_clear(&f->err);
+    return mr__spec_line(&f->spec, line, origin, &f->err);
+}
+
+mr_status mr_fitter_model_file(mr_fitter *f, const char *path)
+{
+    mr__error_clear(&f->err);
+    return mr__spec_file(&f->spec, path, &f->err);
+}
+
+static mr_status out_of_range(mr_fitter *f, const char *what)
+{
+    return mr__fail(&f->err, MR_ERR_USAGE, "%s is out of range", what);
+}
+
+mr_status mr_fitter_set_int(mr_fitter *f, mr_int_option opt, long long v)
+{
+    mr__error_clear(&f->err);
+    switch (opt) {
+    case MR_OPT_THREADS:
+        if (v < 0 || v > 256) return out_of_range(f, "threads (0 to 256)");
+        f->threads = (int)v;
+        return MR_OK;
+    case MR_OPT_MAX_PASSES:
+        if (v < 2 || v > 100000) return out_of_range(f, "max passes (2 to 100000)");
+        f->max_passes = (int)v;
+        return MR_OK;
+    case MR_OPT_BUFFER_SIZE:
+        if (v < 16 || v > (1LL << 30)) return out_of_range(f, "buffer size (16 bytes to 1 GiB)");
+        f->buffer_size = (size_t)v;
+        return MR_OK;
+    case MR_OPT_IN_MEMORY:
+        f->in_memory = v != 0;
+        return MR_OK;
+    case MR_OPT_SKIP_BAD_ROWS:
+        f->skip_bad = v != 0;
+        return MR_OK;
+    case MR_OPT_DELIMITER:
+        if (v != 0 && v != ',' && v != '\t' && v != ';') return out_of_range(f, "delimiter (comma, tab or semicolon)");
+        f->delimiter = (int)v;
+        return MR_OK;
+    }
+    return mr__fail(&f->err, MR_ERR_USAGE, "unknown integer option %d", (int)opt);
+}
+
+mr_status mr_fitter_set_real(mr_fitter *f, mr_real_option opt, double v)
+{
+    mr__error_clear(&f->err);
+    switch (opt) {
+    case MR_OPT_TOLERANCE:
+        if (!(v > 0 && v < 1)) return out_of_range(f, "tolerance (between 0 and 1)");
+        f->tolerance = v;
+        return MR_OK;
+    case MR_OPT_LEVEL:
+        if (!(v > 0 && v < 1)) return out_of_range(f, "confidence level (between 0 and 1)");
+        f->level = v;
+        return MR_OK;
+    }
+    return mr__fail(&f->err, MR_ERR_USAGE, "unknown real option %d", (int)opt);
+}
+
+void mr_fitter_clear_missing(mr_fitter *f)
+{
+    size_t i;
+    for (i = 0; i < f->nmissing; i++) mr__free(f->missing[i]);
+    mr__free(f->missing);
+    f->missing = NULL;
+    f->nmissing = 0;
+}
+
+mr_status mr_fitter_add_missing(mr_fitter *f, const char *token)
+{
+    char **grown = mr__realloc(f->missing, (f->nmissing + 1) * sizeof *grown);
+    if (grown == NULL) return mr__fail(&f->err, MR_ERR_NO_MEMORY, "out of memory");
+    f->missing = grown;
+    if ((f->missing[f->nmissing] = mr__strdup(token)) == NULL)
+        return mr__fail(&f->err, MR_ERR_NO_MEMORY, "out of memory");
+    f->nmissing++;
+    return MR_OK;
+}
+
+void mr_fitter_set_progress(mr_fitter *f, mr_progress_fn fn, void *user)
+{
+    f->progress = fn;
+    f->progress_user = user;
+}
+
+mr_status mr_fitter_run(mr_fitter *f, const char *path, mr_fit **out)
+{
+    *out = NULL;
+    mr__error_clear(&f->err);
+    return mr__fit_file(f, path, out);
+}

@@ -1,0 +1,23 @@
+/* fitter.h - the struct behind mr_fitter: a model and the options of a run. */
+#ifndef MR_FITTER_H
+#define MR_FITTER_H
+
+#include "common/error.h"
+#include "model/spec.h"
+
+struct mr_fitter {
+    mr__spec spec;
+    mr__error err;
+    int threads, max_passes, in_memory, skip_bad, delimiter;
+    size_t buffer_size;
+    double tolerance, level;
+    char **missing;
+    size_t nmissing;
+    mr_progress_fn progress;
+    void *progress_user;
+};
+
+/* The fit itself (run.c). */
+mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out);
+
+#endif

@@ -1,0 +1,329 @@
+/* result.c - from the final IRLS state to the published fit: the map back
+ * from internal (centred, scaled) coefficients to those of the raw
+ * columns, the dispersion, Wald statistics and intervals, likelihood-based
+ * summaries and the warnings an analyst must see. */
+#define _DEFAULT_SOURCE /* lgamma_r */
+#include <cblas.h>
+#include <math.h>
+#include <string.h>
+#include <time.h>
+
+#include "common/alloc.h"
+#include "common/strbuf.h"
+#include "family/family.h"
+#include "fit/fit.h"
+#include "fit/run.h"
+#include "output/probability.h"
+#include "solve/normal_eq.h"
+
+double mr__seconds_now(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (double)ts.tv_sec + ts.tv_nsec * 1e-9;
+}
+
+static char *dup_or_null(const char *s) { return s ? mr__strdup(s) : NULL; }
+
+/* cov_raw = A cov_internal A', beta_raw = A beta_internal. */
+static mr_status map_to_raw(const mr__design *d, const double *beta_s, const double *cov_s, double *beta, double *cov,
+                            mr__error *err)
+{
+    size_t p = d->p;
+    double *T = mr__malloc_array(p * p, sizeof *T);
+    if (T == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    cblas_dgemv(CblasColMajor, CblasNoTrans, (int)p, (int)p, 1.0, d->A, (int)p, beta_s, 1, 0.0, beta, 1);
+    cblas_dgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, (int)p, (int)p, (int)p, 1.0, d->A, (int)p, cov_s, (int)p,
+                0.0, T, (int)p);
+    cblas_dgemm(CblasColMajor, CblasNoTrans, CblasTrans, (int)p, (int)p, (int)p, 1.0, T, (int)p, d->A, (int)p, 0.0,
+                cov, (int)p);
+    mr__free(T);
+    return MR_OK;
+}
+
+static double log_gamma(double x)
+{
+    int sign;
+    return lgamma_r(x, &sign);
+}
+
+/* The log-likelihood from the deviance and the data-only constant of the
+ * first pass (see accum/scan.h); for gaussian, gamma and inverse-gaussian
+ * the dispersion in the density is the deviance-based estimate, as is
+ * usual for these summaries. */
+static double log_likelihood(const mr_fit *fit, double llc, double sw)
+{
+    double dev = fit->deviance, n = (double)fit->n, a;
+    switch (fit->family) {
+    case MR_POISSON:
+    case MR_BINOMIAL: return llc - dev / 2;
+    case MR_GAUSSIAN: return -0.5 * (n * (log(2 * M_PI * dev / n) + 1) - llc);
+    case MR_GAMMA:
+        a = sw / dev;
+        return -sw * log_gamma(a) + a * sw * log(a) - a * dev / 2 - a * sw - llc;
+    case MR_INVERSE_GAUSSIAN: return -0.5 * (sw * (1 + log(2 * M_PI * dev / sw)) + 3 * llc);
+    }
+    return NAN;
+}
+
+static void set_fit_statistics(mr_fit *fit, const mr__run *r)
+{
+    const mr__scan_sums *s = &r->first.scan;
+    const mr__block_sums *last = &r->last.sums;
+    double k;
+    fit->deviance = last->dev;
+    fit->pearson = last->pearson;
+    fit->null_deviance = last->null_dev;
+    fit->n = s->npos;
+    fit->df_residual = (double)fit->n - (double)fit->rank;
+    fit->df_null = (double)fit->n - (r->f->spec.intercept ? 1 : 0);
+    fit->dispersion = fit->dispersion_estimated ? (fit->df_residual > 0 ? fit->pearson / fit->df_residual : NAN) : 1.0;
+    fit->loglik = log_likelihood(fit, s->llc, s->sw);
+    k = (double)fit->rank + (fit->family == MR_GAUSSIAN || fit->family == MR_GAMMA || fit->family == MR_INVERSE_GAUSSIAN);
+    fit->aic = -2 * fit->loglik + 2 * k;
+    fit->bic = -2 * fit->loglik + log((double)fit->n) * k;
+}
+
+static void set_inference(mr_fit *fit)
+{
+    size_t j, p = fit->p;
+    double tail = (1 - fit->level) / 2, q;
+    int use_t = fit->dispersion_estimated;
+    q = use_t ? -mr__t_quantile(tail, fit->df_residual) : -mr__normal_quantile(tail);
+    for (j = 0; j < p; j++) {
+        double se, z;
+        if (fit->aliased[j]) {
+            fit->beta[j] = fit->se[j] = fit->stat[j] = fit->pval[j] = fit->lo[j] = fit->hi[j] = NAN;
+            continue;
+        }
+        se = sqrt(fit->cov[j * p + j]);
+        z = fit->beta[j] / se;
+        fit->se[j] = se;
+        fit->stat[j] = z;
+        fit->pval[j] = use_t ? 2 * mr__t_sf(fabs(z), fit->df_residual) : 2 * mr__normal_sf(fabs(z));
+        fit->lo[j] = fit->beta[j] - q * se;
+        fit->hi[j] = fit->beta[j] + q * se;
+    }
+    for (j = 0; j < p * p; j++)
+        if (fit->aliased[j % p] || fit->aliased[j / p]) fit->cov[j] = NAN;
+}
+
+static mr_status alloc_coefficients(mr_fit *fit, size_t p, mr__error *err)
+{
+    fit->p = p;
+    fit->name = mr__calloc(p + 1, sizeof *fit->name);
+    fit->aliased = mr__calloc(p + 1, sizeof *fit->aliased);
+    fit->beta = mr__calloc(p + 1, sizeof(double));
+    fit->se = mr__calloc(p + 1, sizeof(double));
+    fit->cov = mr__calloc(p * p + 1, sizeof(double));
+    fit->stat = mr__calloc(p + 1, sizeof(double));
+    fit->pval = mr__calloc(p + 1, sizeof(double));
+    fit->lo = mr__calloc(p + 1, sizeof(double));
+    fit->hi = mr__calloc(p + 1, sizeof(double));
+    if (!fit->name || !fit->aliased || !fit->beta || !fit->se || !fit->cov || !fit->stat || !fit->pval || !fit->lo ||
+        !fit->hi)
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    return MR_OK;
+}
+
+/* Centring folds lower-order columns into higher ones; if a column that
+ * turned out aliased was folded into a kept one, its raw coefficient is not
+ * zero and the published table would misstate the fit. */
+static void check_alias_folding(mr_fit *fit, const mr__design *d, const double *beta_s)
+{
+    size_t j, k, p = d->p;
+    for (j = 0; j < p; j++) {
+        double s = 0;
+        if (!fit->aliased[j]) continue;
+        for (k = 0; k < p; k++)
+            if (k != j && !fit->aliased[k]) s += d->A[k * p + j] * beta_s[k];
+        if (s != 0)
+            mr__fit_warn(fit,
+                         "aliased column '%s' is part of a centred interaction; refit with that interaction or "
+                         "the collinear column removed before using the interaction's estimates",
+                         fit->name[j]);
+    }
+}
+
+static mr_status set_coefficients(mr_fit *fit, mr__run *r, mr__error *err)
+{
+    const mr__design *d = &r->design;
+    size_t p = d->p, j;
+    double *scratch = mr__malloc_array(p + 1, sizeof *scratch), *cov_s = mr__malloc_array(p * p + 1, sizeof *cov_s);
+    mr_status st;
+    if (scratch == NULL || cov_s == NULL) {
+        mr__free(scratch);
+        mr__free(cov_s);
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    }
+    st = mr__solve_normal(r->last.sums.xtwx, r->last.sums.xtwz, p, scratch, fit->aliased, &fit->rank, cov_s, err);
+    if (st == MR_OK) st = map_to_raw(d, r->beta_final, cov_s, fit->beta, fit->cov, err);
+    mr__free(scratch);
+    mr__free(cov_s);
+    if (st != MR_OK) return st;
+    for (j = 0; j < p; j++)
+        if ((fit->name[j] = mr__strdup(d->name[j])) == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    check_alias_folding(fit, d, r->beta_final);
+    set_fit_statistics(fit, r);
+    for (j = 0; j < p * p; j++) fit->cov[j] *= fit->dispersion;
+    set_inference(fit);
+    return MR_OK;
+}
+
+static char *term_label(const mr__spec *s, size_t i)
+{
+    mr__strbuf sb;
+    int k;
+    mr__strbuf_init(&sb);
+    if (i < s->ncov) {
+        mr__strbuf_printf(&sb, "%s", s->cov[i].name);
+    } else {
+        const mr__interaction *it = &s->inter[i - s->ncov];
+        for (k = 0; k < it->n; k++) mr__strbuf_printf(&sb, "%s%s", k ? " & " : "", it->name[k]);
+    }
+    return mr__strbuf_take(&sb);
+}
+
+static mr_status copy_model(mr_fit *fit, const mr__run *r, mr__error *err)
+{
+    const mr__spec *s = &r->f->spec;
+    size_t i, l;
+    fit->family = s->family;
+    fit->link = mr__spec_link(s);
+    fit->intercept = s->intercept;
+    fit->dispersion_estimated = mr__spec_dispersion_estimated(s);
+    fit->outcome = dup_or_null(s->outcome);
+    fit->trials = dup_or_null(s->trials);
+    fit->offset = dup_or_null(s->offset);
+    fit->exposure = dup_or_null(s->exposure);
+    fit->weight = dup_or_null(s->weight);
+    fit->nterms = s->ncov + s->ninter;
+    fit->terms = mr__calloc(fit->nterms + 1, sizeof *fit->terms);
+    fit->nfactors = r->bind.nfac;
+    fit->factor = mr__calloc(fit->nfactors + 1, sizeof *fit->factor);
+    if (!fit->terms || !fit->factor) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (i = 0; i < fit->nterms; i++)
+        if ((fit->terms[i] = term_label(s, i)) == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (i = 0; i < fit->nfactors; i++) {
+        const mr__factor *f = &r->fac[i];
+        mr__fit_factor *o = &fit->factor[i];
+        o->name = mr__strdup(f->name);
+        o->reference = f->nlevels ? mr__strdup(f->level[f->ref]) : mr__strdup("");
+        o->level = mr__calloc(f->nlevels + 1, sizeof *o->level);
+        if (!o->name || !o->reference || !o->level) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        for (l = 0; l < f->nlevels; l++, o->nlevels++)
+            if ((o->level[l] = mr__strdup(f->level[l])) == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    }
+    return MR_OK;
+}
+
+static mr_status copy_data_summary(mr_fit *fit, const mr__run *r, mr__error *err)
+{
+    const mr__scan_sums *s = &r->first.scan;
+    size_t c, i;
+    fit->rows_read = s->nread;
+    fit->rows_used = s->nused;
+    fit->rows_bad = s->nbad;
+    fit->rows_incomplete = s->incomplete;
+    fit->zero_weight = s->nused - s->npos;
+    fit->missing_name = mr__calloc(r->bind.ncol + 1, sizeof *fit->missing_name);
+    fit->missing_count = mr__calloc(r->bind.ncol + 1, sizeof *fit->missing_count);
+    fit->bad_example = mr__calloc(s->nbad_shown + 1, sizeof *fit->bad_example);
+    if (!fit->missing_name || !fit->missing_count || !fit->bad_example)
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (c = 0; c < r->bind.ncol; c++) {
+        if (s->missing[c] == 0) continue;
+        fit->missing_name[fit->nmissing] = mr__strdup(r->bind.col[c].name);
+        if (fit->missing_name[fit->nmissing] == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        fit->missing_count[fit->nmissing++] = s->missing[c];
+    }
+    for (i = 0; i < s->nbad_shown; i++) {
+        mr__strbuf sb;
+        mr__strbuf_init(&sb);
+        mr__strbuf_printf(&sb, "%s:%llu:%s", r->display, (unsigned long long)s->bad[i].line, s->bad[i].msg);
+        if ((fit->bad_example[i] = mr__strbuf_take(&sb)) == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        fit->nbad_examples++;
+    }
+    return MR_OK;
+}
+
+static mr_status copy_run_info(mr_fit *fit, const mr__run *r, mr__error *err)
+{
+    const mr_fitter *f = r->f;
+    fit->iterations = r->iterations;
+    fit->passes = r->npasses;
+    fit->halvings = r->halvings;
+    fit->converged = r->converged;
+    fit->status = r->converged ? MR_OK : MR_ERR_NOT_CONVERGED;
+    fit->rel_change = r->rel_change;
+    fit->seconds = mr__seconds_now() - r->t0;
+    fit->rows_per_second = fit->seconds > 0 ? (double)r->first.scan.nread * r->npasses / fit->seconds : 0;
+    fit->pass_seconds = mr__malloc_array((size_t)r->npasses + 1, sizeof *fit->pass_seconds);
+    fit->path = mr__strdup(r->display);
+    if (!fit->pass_seconds || !fit->path) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    memcpy(fit->pass_seconds, r->pass_seconds, (size_t)r->npasses * sizeof *fit->pass_seconds);
+    fit->npass_seconds = (size_t)r->npasses;
+    fit->bytes = r->first.raw_bytes;
+    fit->decompressed_bytes = r->first.out_bytes;
+    fit->checksum = r->first.checksum;
+    fit->zstd = r->first.zstd;
+    fit->delimiter = r->delim;
+    fit->delimiter_detected = r->delim_detected;
+    fit->threads = r->nthreads;
+    fit->max_passes = f->max_passes;
+    fit->in_memory = f->in_memory;
+    fit->skip_bad = f->skip_bad;
+    fit->buffer_size = f->buffer_size;
+    fit->tolerance = f->tolerance;
+    fit->level = f->level;
+    return MR_OK;
+}
+
+static void collect_warnings(mr_fit *fit, const mr__run *r)
+{
+    size_t j, n = 0;
+    mr__strbuf sb;
+    if (!fit->converged)
+        mr__fit_warn(fit, "NOT CONVERGED after %d IRLS passes (relative deviance change %.3g, tolerance %.3g): "
+                          "the estimates are not a maximum-likelihood fit",
+                     fit->iterations, fit->rel_change, fit->tolerance);
+    mr__strbuf_init(&sb);
+    for (j = 0; j < fit->p; j++)
+        if (fit->aliased[j]) mr__strbuf_printf(&sb, "%s'%s'", n++ ? ", " : "", fit->name[j]);
+    if (n)
+        mr__fit_warn(fit, "%zu coefficient%s aliased (a linear combination of earlier columns, not estimated): %s", n,
+                     n == 1 ? "" : "s", sb.data ? sb.data : "");
+    mr__strbuf_release(&sb);
+    if (r->last.sums.boundary && fit->family == MR_BINOMIAL)
+        mr__fit_warn(fit, "fitted probabilities are numerically 0 or 1 for %llu rows: possible separation; the "
+                          "estimates and standard errors of the terms involved are unreliable",
+                     (unsigned long long)r->last.sums.boundary);
+    if (r->last.sums.boundary && fit->family == MR_POISSON)
+        mr__fit_warn(fit, "fitted rates are numerically 0 for %llu rows: a level or cell with no events drives a "
+                          "coefficient towards minus infinity",
+                     (unsigned long long)r->last.sums.boundary);
+    if (fit->rows_bad)
+        mr__fit_warn(fit, "%llu malformed rows were skipped (--on-bad-row skip)", (unsigned long long)fit->rows_bad);
+    for (j = 0; j < fit->nfactors; j++)
+        if (fit->factor[j].nlevels < 2)
+            mr__fit_warn(fit, "factor '%s' has a single level in the rows used: it adds no column", fit->factor[j].name);
+}
+
+mr_status mr__build_fit(mr__run *r, mr_fit **out, mr__error *err)
+{
+    mr_fit *fit = mr__calloc(1, sizeof *fit);
+    mr_status st;
+    if (fit == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    st = copy_model(fit, r, err);
+    if (st == MR_OK) st = copy_run_info(fit, r, err);
+    if (st == MR_OK) st = copy_data_summary(fit, r, err);
+    if (st == MR_OK) st = alloc_coefficients(fit, r->design.p, err);
+    if (st == MR_OK) st = set_coefficients(fit, r, err);
+    if (st != MR_OK) {
+        mr_fit_free(fit);
+        return st;
+    }
+    collect_warnings(fit, r);
+    *out = fit;
+    return MR_OK;
+}

@@ -1,0 +1,410 @@
+/* run.c - one fit from start to end.
+ *
+ * Pass 1 reads the data once to learn what it holds (header, factor
+ * levels, row counts, missing cells, numeric spreads) and to validate
+ * every row.  Then IRLS: each pass evaluates the model at the current
+ * coefficients, accumulating X'WX, X'Wz, the deviance and the Pearson
+ * statistic, and the small p x p system gives the next coefficients.  The
+ * loop stops when the relative change in deviance is below the tolerance;
+ * the reported coefficients are those at which the last pass evaluated
+ * the deviance and the information matrix, so every statistic refers to
+ * the same point.  The null model (intercept and offset only) is fitted
+ * alongside in the same passes. */
+#define _POSIX_C_SOURCE 200809L
+#include <cblas.h>
+
+/* OpenBLAS's own entry point; declared here so any CBLAS header will do. */
+void openblas_set_num_threads(int num_threads);
+#include <errno.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#include "accum/pass.h"
+#include "common/alloc.h"
+#include "family/family.h"
+#include "fit/fit.h"
+#include "fit/fitter.h"
+#include "fit/run.h"
+#include "input/fields.h"
+#include "model/design.h"
+#include "output/probability.h"
+#include "solve/normal_eq.h"
+
+#define MAX_HALVINGS 30
+
+static int online_cpus(void)
+{
+    long n = sysconf(_SC_NPROCESSORS_ONLN);
+    return n > 0 ? (int)(n > 64 ? 64 : n) : 1;
+}
+
+/* ---- header and columns ------------------------------------------------ */
+
+static mr_status bind_header(mr__run *r, const char *line, size_t len, mr__error *err)
+{
+    char **names = NULL;
+    size_t n = 0;
+    r->delim = r->f->delimiter ? (char)r->f->delimiter : mr__detect_delimiter(line, len);
+    r->delim_detected = r->f->delimiter == 0;
+    MR__TRY(mr__parse_header(line, len, r->delim, &names, &n, r->display, err));
+    MR__TRY(mr__bind(&r->bind, &r->f->spec, names, n, r->display, err));
+    r->bound = 1;
+    r->dcfg.bind = &r->bind;
+    r->dcfg.family = r->f->spec.family;
+    r->dcfg.skip_bad = r->f->skip_bad;
+    r->dcfg.delim = r->delim;
+    r->dcfg.display = r->display;
+    r->dcfg.missing = r->f->missing;
+    r->dcfg.nmissing = r->f->nmissing;
+    r->dcfg.levels = NULL;
+    r->header = mr__strndup(line, len);
+    r->header_len = len;
+    return r->header ? MR_OK : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+}
+
+static mr_status on_header(void *user, const char *line, size_t len, mr__error *err)
+{
+    mr__run *r = user;
+    if (!r->bound) return bind_header(r, line, len, err);
+    if (len != r->header_len || memcmp(line, r->header, len) != 0)
+        return mr__fail(err, MR_ERR_IO, "%s: the header changed during the fit", r->display);
+    return MR_OK;
+}
+
+/* ---- passes ------------------------------------------------------------ */
+
+static mr__pass_cfg pass_config(mr__run *r, mr__pass_kind kind)
+{
+    mr__pass_cfg c;
+    memset(&c, 0, sizeof c);
+    c.kind = kind;
+    c.path = r->read_path;
+    c.display = r->display;
+    c.read_size = r->f->buffer_size;
+    c.tee_fd = -1;
+    c.nthreads = r->nthreads;
+    c.on_header = on_header;
+    c.header_user = r;
+    c.dcfg = &r->dcfg;
+    c.p = r->design.p;
+    c.pass_number = r->npasses + 1;
+    c.progress = r->f->progress;
+    c.progress_user = r->f->progress_user;
+    if (r->f->in_memory && kind == MR__PASS_IRLS) {
+        c.store = &r->store;
+        c.store_fill = r->store.n == 0;
+    }
+    return c;
+}
+
+static mr_status note_pass(mr__run *r, const mr__pass_result *res, mr__error *err)
+{
+    double *grown = mr__realloc(r->pass_seconds, (size_t)(r->npasses + 1) * sizeof *grown);
+    if (grown == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    r->pass_seconds = grown;
+    r->pass_seconds[r->npasses++] = res->seconds;
+    return MR_OK;
+}
+
+/* Later passes must see the very file the first pass saw. */
+static mr_status check_same_input(mr__run *r, const mr__pass_result *res, mr__error *err)
+{
+    if (res->raw_bytes == 0 && r->f->in_memory) return MR_OK;
+    if (res->size != r->size || res->mtime_ns != r->mtime_ns || res->raw_bytes != r->raw_bytes)
+        return mr__fail(err, MR_ERR_IO, "%s: the file changed during the fit", r->display);
+    return MR_OK;
+}
+
+static mr_status open_spool(mr__run *r, mr__error *err)
+{
+    const char *dir = getenv("TMPDIR");
+    if (dir == NULL || *dir == '\0') dir = "/tmp";
+    snprintf(r->spool, sizeof r->spool, "%s/millrace-stdin-XXXXXX", dir);
+    r->spool_fd = mkstemp(r->spool);
+    if (r->spool_fd < 0)
+        return mr__fail(err, MR_ERR_IO, "cannot create a temporary file in %s to keep standard input: %s", dir,
+                        strerror(errno));
+    return MR_OK;
+}
+
+static mr_status scan_pass(mr__run *r, mr__error *err)
+{
+    mr__pass_cfg c = pass_config(r, MR__PASS_SCAN);
+    mr_status st;
+    if (strcmp(r->path, "-") == 0) {
+        MR__TRY(open_spool(r, err));
+        c.tee_fd = r->spool_fd;
+    }
+    st = mr__pass_run(&c, &r->first, err);
+    if (r->spool_fd >= 0) {
+        close(r->spool_fd);
+        r->spool_fd = -1;
+        r->read_path = r->spool;
+    }
+    if (st != MR_OK) return st;
+    r->size = r->first.size;
+    r->mtime_ns = r->first.mtime_ns;
+    r->raw_bytes = r->first.raw_bytes;
+    return note_pass(r, &r->first, err);
+}
+
+/* ---- what the first pass learned --------------------------------------- */
+
+static mr_status no_usable_rows(mr__run *r, mr__error *err)
+{
+    const mr__scan_sums *s = &r->first.scan;
+    char detail[600] = "";
+    size_t c, o = 0;
+    for (c = 0; c < r->bind.ncol && o < sizeof detail - 80; c++)
+        if (s->missing[c])
+            o += (size_t)snprintf(detail + o, sizeof detail - o, "%s'%s' missing in %llu", o ? ", " : "",
+                                  r->bind.col[c].name, (unsigned long long)s->missing[c]);
+    if (s->nbad) snprintf(detail + o, sizeof detail - o, "%s%llu bad rows", o ? ", " : "", (unsigned long long)s->nbad);
+    return mr__fail(err, MR_ERR_NO_DATA, "%s: no usable rows: all %llu data rows were left out (%s)", r->display,
+                    (unsigned long long)s->nread, detail);
+}
+
+static mr_status settle_factor(mr__run *r, size_t f, mr__error *err)
+{
+    const mr__levelset **sets = mr__calloc(r->first.nworkers ? r->first.nworkers : 1, sizeof *sets);
+    const mr__covariate *cov;
+    mr__factor *fac = &r->fac[f];
+    size_t w, i;
+    int rc;
+    if (sets == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (w = 0; w < r->first.nworkers; w++) sets[w] = &r->first.worker_levels[w][f];
+    rc = mr__levelset_merge_sorted(sets, r->first.nworkers, &r->levels[f], &r->level_names[f]);
+    mr__free(sets);
+    if (rc != 0) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    fac->name = r->bind.col[r->bind.fac_col[f]].name;
+    fac->level = r->level_names[f];
+    fac->nlevels = r->levels[f].n;
+    fac->ref = 0;
+    cov = mr__spec_find(&r->f->spec, fac->name);
+    if (cov == NULL || cov->ref == NULL) return MR_OK;
+    for (i = 0; i < fac->nlevels; i++)
+        if (strcmp(fac->level[i], cov->ref) == 0) {
+            fac->ref = (int32_t)i;
+            return MR_OK;
+        }
+    return mr__fail(err, MR_ERR_USAGE, "model: reference level '%s' of factor '%s' does not occur in the data%s",
+                    cov->ref, fac->name, fac->nlevels ? "" : " (the factor has no levels)");
+}
+
+static mr_status settle_scan(mr__run *r, mr__error *err)
+{
+    const mr__scan_sums *s = &r->first.scan;
+    size_t f, k, nfac = r->bind.nfac, nnum = r->bind.nnum;
+    if (s->nread == 0) return mr__fail(err, MR_ERR_NO_DATA, "%s: the file has a header but no data rows", r->display);
+    if (s->nused == 0) return no_usable_rows(r, err);
+    r->levels = mr__calloc(nfac + 1, sizeof *r->levels);
+    r->level_names = mr__calloc(nfac + 1, sizeof *r->level_names);
+    r->fac = mr__calloc(nfac + 1, sizeof *r->fac);
+    r->mean = mr__calloc(nnum + 1, sizeof *r->mean);
+    r->spread = mr__calloc(nnum + 1, sizeof *r->spread);
+    if (!r->levels || !r->level_names || !r->fac || !r->mean || !r->spread)
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (f = 0; f < nfac; f++) MR__TRY(settle_factor(r, f, err));
+    for (k = 0; k < nnum; k++) {
+        double n = (double)s->nused, m = s->sx[k] / n, v = s->sxx[k] / n - m * m;
+        r->mean[k] = m;
+        r->spread[k] = v > 0 ? sqrt(v) : 0.0;
+    }
+    r->dcfg.levels = r->levels;
+    return mr__design_build(&r->design, &r->f->spec, &r->bind, r->fac, r->mean, r->spread, err);
+}
+
+/* ---- IRLS -------------------------------------------------------------- */
+
+/* The null model's starting intercept; exact when there is no offset, and
+ * for poisson with an exposure. */
+static double null_start(const mr__run *r)
+{
+    const mr__scan_sums *s = &r->first.scan;
+    int link = mr__spec_link(&r->f->spec), fam = r->f->spec.family;
+    double ybar = s->swy / s->sw;
+    if (fam == MR_BINOMIAL && !(ybar > 0 && ybar < 1)) ybar = ybar <= 0 ? 1e-8 : 1 - 1e-8;
+    if ((fam == MR_POISSON || fam == MR_GAMMA || fam == MR_INVERSE_GAUSSIAN) && !(ybar > 0)) ybar = 1e-8;
+    if (!r->dcfg.bind->has_offset && !r->dcfg.bind->has_exposure) return mr__link_fun(link, ybar);
+    if (link == MR_LOG) return log(s->swy / s->swe);
+    return mr__link_fun(link, ybar) - s->swoff / s->sw;
+}
+
+static double relative_change(double now, double before) { return fabs(now - before) / (fabs(now) + 0.1); }
+
+static mr_status irls_pass(mr__run *r, const double *beta, double null_b0, mr__pass_result *res, mr__error *err)
+{
+    mr__irls_point pt;
+    mr__pass_cfg c;
+    mr_status st;
+    pt.design = &r->design;
+    pt.family = r->f->spec.family;
+    pt.link = mr__spec_link(&r->f->spec);
+    pt.beta = beta;
+    pt.null_intercept = r->f->spec.intercept;
+    pt.null_b0 = null_b0;
+    c = pass_config(r, MR__PASS_IRLS);
+    c.point = &pt;
+    mr__pass_result_release(res, 0);
+    st = mr__pass_run(&c, res, err);
+    if (st != MR_OK) return st;
+    MR__TRY(check_same_input(r, res, err));
+    return note_pass(r, res, err);
+}
+
+typedef struct irls_state {
+    double *beta, *prev, *next;
+    int have_beta, have_prev;
+    double dev_prev, null_b0, null_dev_prev;
+    int null_done;
+} irls_state;
+
+static int bad_point(const mr__pass_result *res, const irls_state *s)
+{
+    if (res->sums.invalid > 0 || !isfinite(res->sums.dev)) return 1;
+    /* A rise beyond rounding noise means the Newton step overshot. */
+    return s->have_prev && res->sums.dev > s->dev_prev + 1e-9 * (fabs(s->dev_prev) + 0.1);
+}
+
+static void halve_step(irls_state *s, size_t p)
+{
+    size_t j;
+    for (j = 0; j < p; j++) s->beta[j] = 0.5 * (s->beta[j] + s->prev[j]);
+}
+
+static mr_status next_point(mr__run *r, irls_state *s, const mr__pass_result *res, mr__error *err)
+{
+    size_t p = r->design.p, rank;
+    double *t;
+    MR__TRY(mr__solve_normal(res->sums.xtwx, res->sums.xtwz, p, s->next, r->aliased, &rank, NULL, err));
+    t = s->prev;
+    s->prev = s->beta;
+    s->beta = s->next;
+    s->next = t;
+    s->have_prev = s->have_beta;
+    s->have_beta = 1;
+    s->dev_prev = res->sums.dev;
+    if (r->f->spec.intercept && res->sums.null_sw > 0) {
+        double b0 = res->sums.null_swz / res->sums.null_sw;
+        s->null_done = s->null_done || relative_change(res->sums.null_dev, s->null_dev_prev) < r->f->tolerance;
+        s->null_dev_prev = res->sums.null_dev;
+        if (!s->null_done) s->null_b0 = b0;
+    }
+    return MR_OK;
+}
+
+static mr_status iterate(mr__run *r, mr__pass_result *res, mr__error *err)
+{
+    irls_state s;
+    size_t p = r->design.p;
+    int halvings = 0;
+    memset(&s, 0, sizeof s);
+    s.beta = r->beta_a;
+    s.prev = r->beta_b;
+    s.next = r->beta_c;
+    s.null_b0 = null_start(r);
+    s.null_dev_prev = INFINITY;
+    s.null_done = !r->f->spec.intercept || (!r->bind.has_offset && !r->bind.has_exposure);
+    for (;;) {
+        MR__TRY(irls_pass(r, s.have_beta ? s.beta : NULL, s.null_b0, res, err));
+        if (s.have_beta && bad_point(res, &s)) {
+            if (!s.have_prev || ++halvings > MAX_HALVINGS)
+                return mr__fail(err, MR_ERR_NUMERIC,
+                                "%s: IRLS found no valid coefficients (fitted means outside the %s family's range "
+                                "even after step halving); check the link and the data",
+                                r->display, mr__family_name((mr_family)r->f->spec.family));
+            halve_step(&s, p);
+            r->halvings++;
+            continue;
+        }
+        if (!s.have_beta && res->sums.invalid > 0)
+            return mr__fail(err, MR_ERR_NUMERIC, "%s: the starting values are outside the model's range", r->display);
+        halvings = 0;
+        r->iterations++;
+        if (s.have_beta) {
+            r->rel_change = relative_change(res->sums.dev, s.dev_prev);
+            if (r->rel_change < r->f->tolerance && s.null_done) {
+                r->converged = 1;
+                break;
+            }
+        }
+        if (r->iterations >= r->f->max_passes) break;
+        MR__TRY(next_point(r, &s, res, err));
+    }
+    memcpy(r->beta_final, s.have_beta ? s.beta : s.next, p * sizeof *r->beta_final);
+    if (!s.have_beta) memset(r->beta_final, 0, p * sizeof *r->beta_final);
+    r->null_b0 = s.null_b0;
+    return MR_OK;
+}
+
+/* ---- the run ------------------------------------------------------------ */
+
+static void release_run(mr__run *r)
+{
+    size_t f;
+    mr__pass_result_release(&r->first, r->bind.nfac);
+    mr__pass_result_release(&r->last, 0);
+    mr__design_release(&r->design);
+    for (f = 0; r->levels && f < r->bind.nfac; f++) mr__levelset_release(&r->levels[f]);
+    for (f = 0; r->level_names && f < r->bind.nfac; f++) mr__free(r->level_names[f]);
+    mr__free(r->levels);
+    mr__free(r->level_names);
+    mr__free(r->fac);
+    mr__free(r->mean);
+    mr__free(r->spread);
+    mr__free(r->header);
+    mr__free(r->pass_seconds);
+    mr__free(r->aliased);
+    mr__free(r->beta_a);
+    mr__free(r->beta_b);
+    mr__free(r->beta_c);
+    mr__free(r->beta_final);
+    mr__store_release(&r->store);
+    if (r->bound) mr__binding_release(&r->bind);
+    if (r->spool_fd >= 0) close(r->spool_fd);
+    if (r->spool[0]) unlink(r->spool);
+}
+
+static mr_status allocate_coefficients(mr__run *r, mr__error *err)
+{
+    size_t p = r->design.p + 1;
+    r->aliased = mr__calloc(p, sizeof *r->aliased);
+    r->beta_a = mr__calloc(p, sizeof(double));
+    r->beta_b = mr__calloc(p, sizeof(double));
+    r->beta_c = mr__calloc(p, sizeof(double));
+    r->beta_final = mr__calloc(p, sizeof(double));
+    if (!r->aliased || !r->beta_a || !r->beta_b || !r->beta_c || !r->beta_final)
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    return MR_OK;
+}
+
+mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
+{
+    mr__run r;
+    mr__error *err = &f->err;
+    mr_status st;
+    memset(&r, 0, sizeof r);
+    r.f = f;
+    r.path = path;
+    r.read_path = path;
+    r.spool_fd = -1;
+    r.t0 = mr__seconds_now();
+    snprintf(r.display, sizeof r.display, "%s", strcmp(path, "-") == 0 ? "<stdin>" : path);
+    r.nthreads = f->threads > 0 ? f->threads : online_cpus();
+    st = mr__spec_validate(&f->spec, err);
+    if (st == MR_OK) {
+        /* Our workers use every core; BLAS threads inside them would only
+         * oversubscribe. */
+        openblas_set_num_threads(1);
+        st = scan_pass(&r, err);
+    }
+    if (st == MR_OK) st = settle_scan(&r, err);
+    if (st == MR_OK) st = allocate_coefficients(&r, err);
+    if (st == MR_OK) st = iterate(&r, &r.last, err);
+    if (st == MR_OK) st = mr__build_fit(&r, out, err);
+    release_run(&r);
+    return st;
+}

@@ -1,0 +1,50 @@
+/* run.h - the state of one fit while it runs (run.c), and the step that
+ * turns it into an mr_fit (result.c). */
+#ifndef MR_RUN_H
+#define MR_RUN_H
+
+#include <limits.h>
+#include "accum/pass.h"
+#include "fit/fitter.h"
+#include "model/design.h"
+
+typedef struct mr__run {
+    mr_fitter *f;
+    const char *path, *read_path;
+    char display[1024];
+    char spool[4096];
+    int spool_fd;
+    int nthreads;
+    double t0;
+    /* columns */
+    mr__binding bind;
+    int bound;
+    mr__decode_cfg dcfg;
+    char delim;
+    int delim_detected;
+    char *header;
+    size_t header_len;
+    /* what pass 1 learned */
+    mr__pass_result first;
+    uint64_t size, raw_bytes;
+    int64_t mtime_ns;
+    mr__levelset *levels;
+    const char ***level_names;
+    mr__factor *fac;
+    double *mean, *spread;
+    mr__design design;
+    mr__store store;
+    /* IRLS */
+    mr__pass_result last; /* sums at the reported coefficients */
+    double *beta_a, *beta_b, *beta_c, *beta_final;
+    int *aliased;
+    double null_b0, rel_change;
+    int iterations, halvings, converged;
+    double *pass_seconds;
+    int npasses;
+} mr__run;
+
+double mr__seconds_now(void);
+mr_status mr__build_fit(mr__run *r, mr_fit **out, mr__error *err);
+
+#endif

@@ -1,0 +1,26 @@
+/* chunk.h - a run of whole rows cut from the decompressed stream.
+ *
+ * Chunks are cut at fixed row counts (MR__BLOCK_ROWS), counted from the
+ * first data row, never at buffer boundaries.  That makes a chunk the unit
+ * of every partial sum: results then depend only on the data, not on read
+ * sizes or thread counts. */
+#ifndef MR_CHUNK_H
+#define MR_CHUNK_H
+
+#include <stddef.h>
+#include <stdint.h>
+
+#define MR__BLOCK_ROWS 4096
+
+typedef struct mr__chunk {
+    uint64_t index;      /* block number */
+    uint64_t first_line; /* physical line (1-based) of the first row */
+    uint32_t nrows;
+    int has_quote;       /* a '"' somewhere: the full CSV parser is needed */
+    char *data;
+    size_t len, cap;
+    size_t row_start[MR__BLOCK_ROWS + 1]; /* row r is data[row_start[r] .. row_start[r+1]) */
+    uint32_t row_line[MR__BLOCK_ROWS];    /* line of row r minus first_line */
+} mr__chunk;
+
+#endif

@@ -1,0 +1,269 @@
+#include <math.h>
+#include <stdio.h>
+#include <string.h>
+
+#include "common/alloc.h"
+#include "family/family.h"
+#include "input/decode.h"
+#include "accum/scan.h"
+
+mr_status mr__block_init(mr__block *b, const mr__binding *bind, mr__error *err)
+{
+    const size_t R = MR__BLOCK_ROWS;
+    memset(b, 0, sizeof *b);
+    b->y = mr__malloc_array(R, sizeof *b->y);
+    if (bind->has_weight || bind->has_trials) b->prior = mr__malloc_array(R, sizeof *b->prior);
+    if (bind->has_offset || bind->has_exposure) b->off = mr__malloc_array(R, sizeof *b->off);
+    b->num = mr__malloc_array(R * (bind->nnum ? bind->nnum : 1), sizeof *b->num);
+    b->lev = mr__malloc_array(R * (bind->nfac ? bind->nfac : 1), sizeof *b->lev);
+    b->missing = mr__calloc(bind->ncol, sizeof *b->missing);
+    b->llc = mr__malloc_array(R, sizeof *b->llc);
+    if (!b->y || !b->llc || !b->num || !b->lev || !b->missing || ((bind->has_weight || bind->has_trials) && !b->prior) ||
+        ((bind->has_offset || bind->has_exposure) && !b->off)) {
+        mr__block_release(b);
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    }
+    return MR_OK;
+}
+
+void mr__block_release(mr__block *b)
+{
+    mr__free(b->y);
+    mr__free(b->prior);
+    mr__free(b->off);
+    mr__free(b->num);
+    mr__free(b->lev);
+    mr__free(b->missing);
+    mr__free(b->llc);
+    memset(b, 0, sizeof *b);
+}
+
+mr_status mr__decoder_init(mr__decoder *d, const mr__decode_cfg *cfg, mr__error *err)
+{
+    const mr__binding *b = cfg->bind;
+    size_t f;
+    memset(d, 0, sizeof *d);
+    d->cfg = cfg;
+    d->np = mr__numparser_new();
+    d->val = mr__calloc(b->ncol, sizeof *d->val);
+    d->lev = mr__calloc(b->ncol, sizeof *d->lev);
+    d->miss = mr__calloc(b->ncol, 1);
+    if (cfg->levels == NULL) d->local = mr__calloc(b->nfac ? b->nfac : 1, sizeof *d->local);
+    if (!d->np || !d->val || !d->lev || !d->miss || (cfg->levels == NULL && !d->local)) {
+        mr__decoder_release(d);
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    }
+    for (f = 0; d->local && f < b->nfac; f++) mr__levelset_init(&d->local[f]);
+    return mr__tokenizer_init(&d->tok, cfg->delim, err);
+}
+
+void mr__decoder_release(mr__decoder *d)
+{
+    size_t f;
+    if (d->cfg == NULL) return;
+    mr__tokenizer_release(&d->tok);
+    mr__numparser_free(d->np);
+    if (d->local)
+        for (f = 0; f < d->cfg->bind->nfac; f++) mr__levelset_release(&d->local[f]);
+    mr__free(d->local);
+    mr__free(d->val);
+    mr__free(d->lev);
+    mr__free(d->miss);
+    memset(d, 0, sizeof *d);
+}
+
+static int is_missing(const mr__decode_cfg *cfg, const char *p, size_t len)
+{
+    size_t i;
+    for (i = 0; i < cfg->nmissing; i++)
+        if (strlen(cfg->missing[i]) == len && memcmp(cfg->missing[i], p, len) == 0) return 1;
+    return 0;
+}
+
+/* Only the first problem of a row is kept: it is the one to fix first. */
+static void row_problem(mr__decoder *d, size_t col, mr_status kind, const char *what, const char *p, size_t len)
+{
+    char v[64];
+    const mr__column *c = &d->cfg->bind->col[col];
+    if (d->row_bad) return;
+    d->row_bad = 1;
+    d->row_status = kind;
+    d->bad_field = c->field;
+    mr__quote_value(v, sizeof v, p, len);
+    snprintf(d->row_msg, sizeof d->row_msg, "%zu: column '%s': %s (value '%s')", c->field + 1, c->name, what, v);
+}
+
+static void decode_level(mr__decoder *d, int col, const char *p, size_t len)
+{
+    const mr__column *c = &d->cfg->bind->col[col];
+    if (d->cfg->levels == NULL) {
+        int rc = mr__levelset_add(&d->local[c->var], p, len);
+        if (rc == -2) row_problem(d, (size_t)col, MR_ERR_DOMAIN, "more distinct levels than a factor may have (is it an identifier?)", p, len);
+        else if (rc != 0) d->stop = 1;
+        return;
+    }
+    d->lev[col] = mr__levelset_find(&d->cfg->levels[c->var], p, len);
+    if (d->lev[col] < 0) row_problem(d, (size_t)col, MR_ERR_FORMAT, "level not seen in the first pass: the input changed during the fit", p, len);
+}
+
+static void on_field(void *user, size_t k, const char *p, size_t len)
+{
+    mr__decoder *d = user;
+    int col;
+    if (k >= d->cfg->bind->nfields || d->stop) return;
+    col = d->cfg->bind->col_of_field[k];
+    if (col < 0) return;
+    if (is_missing(d->cfg, p, len)) {
+        d->miss[col] = 1;
+        return;
+    }
+    if (d->cfg->bind->col[col].use == MR__USE_FACTOR) {
+        decode_level(d, col, p, len);
+        return;
+    }
+    if (!mr__parse_double(d->np, p, len, &d->val[col])) row_problem(d, (size_t)col, MR_ERR_FORMAT, "not a number", p, len);
+}
+
+static void domain_problem(mr__decoder *d, mr__use use, const char *what)
+{
+    char v[40];
+    size_t c;
+    for (c = 0; c < d->cfg->bind->ncol; c++)
+        if (d->cfg->bind->col[c].use == use) break;
+    snprintf(v, sizeof v, "%.17g", d->val[c]);
+    row_problem(d, c, MR_ERR_DOMAIN, what, v, strlen(v));
+}
+
+static double column_value(const mr__decoder *d, mr__use use, int present, double dflt)
+{
+    size_t c;
+    if (!present) return dflt;
+    for (c = 0; c < d->cfg->bind->ncol; c++)
+        if (d->cfg->bind->col[c].use == use) return d->val[c];
+    return dflt;
+}
+
+static const char *outcome_domain_problem(int family, double y)
+{
+    switch (family) {
+    case MR_POISSON: return y < 0 ? "a count cannot be negative" : NULL;
+    case MR_BINOMIAL: return (y < 0 || y > 1) ? "a binary outcome or proportion must lie in [0, 1]" : NULL;
+    case MR_GAMMA: return y <= 0 ? "the gamma family needs an outcome > 0" : NULL;
+    case MR_INVERSE_GAUSSIAN: return y <= 0 ? "the inverse-gaussian family needs an outcome > 0" : NULL;
+    default: return NULL;
+    }
+}
+
+/* Turns the row's raw values into y, prior weight and offset, checking
+ * that the model can take them. */
+static void finish_row_values(mr__decoder *d, double *y, double *prior, double *off)
+{
+    const mr__binding *b = d->cfg->bind;
+    double w = column_value(d, MR__USE_WEIGHT, b->has_weight, 1.0);
+    double t = column_value(d, MR__USE_TRIALS, b->has_trials, 1.0);
+    double e = column_value(d, MR__USE_EXPOSURE, b->has_exposure, 1.0);
+    const char *why;
+    *y = column_value(d, MR__USE_OUTCOME, 1, 0.0);
+    *off = column_value(d, MR__USE_OFFSET, b->has_offset, 0.0);
+    if (w < 0) domain_problem(d, MR__USE_WEIGHT, "a weight cannot be negative");
+    if (b->has_exposure && !(e > 0)) domain_problem(d, MR__USE_EXPOSURE, "exposure must be > 0");
+    if (b->has_trials) {
+        if (t < 0) domain_problem(d, MR__USE_TRIALS, "trials cannot be negative");
+        else if (*y < 0) domain_problem(d, MR__USE_OUTCOME, "successes cannot be negative");
+        else if (*y > t) domain_problem(d, MR__USE_OUTCOME, "successes exceed trials");
+        *y = t > 0 ? *y / t : 0.0;
+    } else if ((why = outcome_domain_problem(d->cfg->family, *y)) != NULL) {
+        domain_problem(d, MR__USE_OUTCOME, why);
+    }
+    *prior = w * t;
+    if (b->has_exposure) *off += log(e);
+    if (d->cfg->levels == NULL) d->row_llc = mr__loglik_constant(d->cfg->family, *y, w, t, b->has_trials);
+}
+
+static void record_bad(mr__decoder *d, uint32_t r, const char *msg)
+{
+    mr__block *blk = d->blk;
+    uint64_t line = d->chunk->first_line + d->chunk->row_line[r];
+    if (!d->cfg->skip_bad) {
+        blk->failed = 1;
+        mr__fail(&blk->err, d->row_status, "%s:%llu:%s", d->cfg->display, (unsigned long long)line, msg);
+        d->stop = 1;
+        return;
+    }
+    if (blk->nbad_shown < MR__BAD_SHOWN) {
+        blk->bad[blk->nbad_shown].line = line;
+        snprintf(blk->bad[blk->nbad_shown].msg, sizeof blk->bad[0].msg, "%s", msg);
+        blk->nbad_shown++;
+    }
+    blk->nbad++;
+}
+
+static int any_missing(mr__decoder *d)
+{
+    size_t c;
+    int any = 0;
+    for (c = 0; c < d->cfg->bind->ncol; c++)
+        if (d->miss[c]) {
+            d->blk->missing[c]++;
+            any = 1;
+        }
+    return any;
+}
+
+static void store_row(mr__decoder *d, double y, double prior, double off)
+{
+    mr__block *blk = d->blk;
+    const mr__binding *b = d->cfg->bind;
+    uint32_t i = blk->n++;
+    size_t k;
+    blk->y[i] = y;
+    blk->llc[i] = d->row_llc;
+    if (blk->prior) blk->prior[i] = prior;
+    if (blk->off) blk->off[i] = off;
+    for (k = 0; k < b->nnum; k++) blk->num[k * MR__BLOCK_ROWS + i] = d->val[b->num_col[k]];
+    for (k = 0; k < b->nfac; k++) blk->lev[k * MR__BLOCK_ROWS + i] = d->lev[b->fac_col[k]];
+}
+
+static void on_row_end(void *user, uint32_t r, size_t nfields)
+{
+    mr__decoder *d = user;
+    const mr__binding *b = d->cfg->bind;
+    double y, prior, off;
+    if (d->stop) return;
+    d->blk->nread++;
+    if (nfields != b->nfields && !d->row_bad) {
+        d->row_bad = 1;
+        d->row_status = MR_ERR_FORMAT;
+        snprintf(d->row_msg, sizeof d->row_msg, "%zu: expected %zu fields as in the header, found %zu",
+                 nfields < b->nfields ? nfields : b->nfields + 1, b->nfields, nfields);
+    }
+    if (!d->row_bad && !any_missing(d)) {
+        finish_row_values(d, &y, &prior, &off);
+        if (!d->row_bad) store_row(d, y, prior, off);
+    } else if (!d->row_bad) {
+        d->blk->incomplete++;
+    }
+    if (d->row_bad) record_bad(d, r, d->row_msg);
+    d->row_bad = 0;
+    memset(d->miss, 0, b->ncol);
+}
+
+mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, mr__error *err)
+{
+    mr__field_sink sink = {d, on_field, on_row_end};
+    mr_status st;
+    size_t k;
+    blk->index = c->index;
+    blk->nread = blk->n = blk->incomplete = blk->nbad = blk->nbad_shown = 0;
+    blk->failed = 0;
+    mr__error_clear(&blk->err);
+    for (k = 0; k < d->cfg->bind->ncol; k++) blk->missing[k] = 0;
+    d->blk = blk;
+    d->chunk = c;
+    d->stop = 0;
+    d->row_bad = 0;
+    memset(d->miss, 0, d->cfg->bind->ncol);
+    st = mr__tokenize_chunk(&d->tok, c, &sink, d->cfg->display, err);
+    if (st == MR_OK && d->stop && !blk->failed) st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    return st;
+}

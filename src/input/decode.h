@@ -1,0 +1,92 @@
+/* decode.h - from the fields of a chunk to typed model columns.
+ *
+ * Each row's used cells become numbers or factor levels; missing cells
+ * (the configured tokens) drop the row as an incomplete case, counted per
+ * column; cells the model cannot take (a negative count, a zero exposure,
+ * ...) are errors that name file, line, column and value.  Only complete,
+ * valid rows reach the block, in file order. */
+#ifndef MR_DECODE_H
+#define MR_DECODE_H
+
+#include <stdint.h>
+#include "common/error.h"
+#include "input/chunk.h"
+#include "input/fields.h"
+#include "input/numparse.h"
+#include "model/columns.h"
+#include "model/levels.h"
+
+#define MR__BAD_SHOWN 5
+
+typedef struct mr__bad_row {
+    uint64_t line;
+    char msg[320];
+} mr__bad_row;
+
+/* The typed rows of one chunk.  Arrays hold MR__BLOCK_ROWS entries; only
+ * the first n are filled.  num and lev are variable-major:
+ * num[k * MR__BLOCK_ROWS + i] is numeric variable k on kept row i. */
+typedef struct mr__block {
+    uint64_t index;
+    uint32_t nread, n;
+    double *y;     /* outcome; a proportion for binomial */
+    double *prior; /* prior weight (weight x trials); NULL = all 1 */
+    double *off;   /* offset + log(exposure); NULL = none */
+    double *num;
+    int32_t *lev;
+    /* First pass only: each kept row's share of the log-likelihood terms
+     * that depend on the data alone (see accum/scan.c). */
+    double *llc;
+    uint64_t *missing; /* per bound column: rows left out for a missing cell */
+    uint32_t incomplete;
+    uint32_t nbad, nbad_shown;
+    mr__bad_row bad[MR__BAD_SHOWN];
+    int failed;        /* err holds the first row error (fail mode) */
+    mr__error err;
+} mr__block;
+
+mr_status mr__block_init(mr__block *b, const mr__binding *bind, mr__error *err);
+void mr__block_release(mr__block *b);
+
+typedef struct mr__decode_cfg {
+    const mr__binding *bind;
+    int family;
+    int skip_bad;
+    char delim;
+    const char *display;
+    char **missing;   /* tokens; "" is the empty cell */
+    size_t nmissing;
+    /* Shared sorted levels per factor, or NULL in the first pass, when each
+     * decoder collects the levels it meets in `local` instead. */
+    const mr__levelset *levels;
+} mr__decode_cfg;
+
+typedef struct mr__decoder {
+    const mr__decode_cfg *cfg;
+    mr__tokenizer tok;
+    mr__numparser *np;
+    mr__levelset *local; /* nfac sets, first pass only */
+    double *val;         /* per bound column, current row */
+    int32_t *lev;
+    unsigned char *miss;
+    int row_bad;
+    mr_status row_status;
+    size_t bad_field;
+    char row_msg[300];
+    double row_llc;
+    mr__block *blk;
+    const mr__chunk *chunk;
+    int stop;
+    mr__error *err;      /* out of memory inside a callback */
+} mr__decoder;
+
+mr_status mr__decoder_init(mr__decoder *d, const mr__decode_cfg *cfg, mr__error *err);
+void mr__decoder_release(mr__decoder *d);
+
+/* Decodes a chunk into blk (which is reset first).  A row error in fail
+ * mode is not a failure of this call: it is recorded in blk->failed/err so
+ * that errors are reported in file order.  Returns non-OK only for errors
+ * that are not about a row (malformed quoting, out of memory). */
+mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, mr__error *err);
+
+#endif

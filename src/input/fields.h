@@ -1,0 +1,47 @@
+/* fields.h - cuts rows into fields.
+ *
+ * Two tokenizers give the same fields: a plain splitter for chunks with no
+ * quote character (the common case, and much faster), and libcsv for
+ * everything else (RFC 4180 quoting, embedded delimiters and newlines).
+ * Unquoted fields lose leading and trailing blanks in both. */
+#ifndef MR_FIELDS_H
+#define MR_FIELDS_H
+
+#include <csv.h>
+#include <stddef.h>
+#include "common/error.h"
+#include "input/chunk.h"
+
+typedef struct mr__field_sink {
+    void *user;
+    /* Field k (0-based) of the current row. */
+    void (*field)(void *user, size_t k, const char *p, size_t len);
+    /* Row r (0-based within the chunk) is complete, with nfields fields. */
+    void (*row_end)(void *user, uint32_t r, size_t nfields);
+} mr__field_sink;
+
+/* A tokenizer a worker owns; wraps a libcsv parser. */
+typedef struct mr__tokenizer {
+    struct csv_parser csv;
+    char delim;
+    int ready;
+} mr__tokenizer;
+
+mr_status mr__tokenizer_init(mr__tokenizer *t, char delim, mr__error *err);
+void mr__tokenizer_release(mr__tokenizer *t);
+
+/* Calls the sink for every field and row of the chunk, in order.
+ * `display` names the input in messages. */
+mr_status mr__tokenize_chunk(mr__tokenizer *t, const mr__chunk *c, const mr__field_sink *sink,
+                             const char *display, mr__error *err);
+
+/* The delimiter a header line uses: whichever of ',', '\t', ';' occurs most
+ * outside quotes (',' on a tie or when none occurs). */
+char mr__detect_delimiter(const char *line, size_t len);
+
+/* Splits the header row into names (copied; free with mr__free_names). */
+mr_status mr__parse_header(const char *line, size_t len, char delim, char ***names, size_t *n,
+                           const char *display, mr__error *err);
+void mr__free_names(char **names, size_t n);
+
+#endif

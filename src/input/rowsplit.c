@@ -1,0 +1,185 @@
+#include <string.h>
+
+#include "common/alloc.h"
+#include "input/rowsplit.h"
+
+void mr__splitter_init(mr__splitter *sp, const char *display, int want_header)
+{
+    memset(sp, 0, sizeof *sp);
+    sp->display = display;
+    sp->want_header = want_header;
+    sp->line = 1;
+    sp->row_line = 1;
+}
+
+void mr__splitter_release(mr__splitter *sp)
+{
+    mr__free(sp->header);
+    sp->header = NULL;
+}
+
+void mr__splitter_start_chunk(mr__splitter *sp, mr__chunk *c)
+{
+    c->index = sp->rows / MR__BLOCK_ROWS;
+    c->first_line = sp->line;
+    c->nrows = 0;
+    c->len = 0;
+    c->has_quote = 0;
+    c->row_start[0] = 0;
+    sp->cur = c;
+}
+
+/* The row being built lives at the end of the chunk (or in the header
+ * buffer before the header is complete). */
+static mr_status append(mr__splitter *sp, const char *p, size_t n, mr__error *err)
+{
+    char **buf;
+    size_t *len, *cap, start;
+    if (sp->want_header) {
+        buf = &sp->header;
+        len = &sp->header_len;
+        cap = &sp->header_cap;
+        start = 0;
+    } else {
+        buf = &sp->cur->data;
+        len = &sp->cur->len;
+        cap = &sp->cur->cap;
+        start = sp->cur->row_start[sp->cur->nrows];
+    }
+    if (*len - start + n > MR__MAX_ROW_BYTES)
+        return mr__fail(err, MR_ERR_FORMAT, "%s:%llu: row longer than %u MiB (is this a text file?)",
+                        sp->display, (unsigned long long)sp->row_line, MR__MAX_ROW_BYTES >> 20);
+    if (*len + n > *cap) {
+        size_t nc = *cap ? *cap : 65536;
+        char *q;
+        while (nc < *len + n) nc *= 2;
+        q = mr__realloc(*buf, nc);
+        if (q == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        *buf = q;
+        *cap = nc;
+    }
+    memcpy(*buf + *len, p, n);
+    *len += n;
+    return MR_OK;
+}
+
+static int is_blank_row(const char *p, size_t n)
+{
+    size_t i;
+    for (i = 0; i < n; i++)
+        if (p[i] != '\r' && p[i] != '\n') return 0;
+    return 1;
+}
+
+static mr_status end_row(mr__splitter *sp, mr__chunk_sink sink, void *user, mr__error *err)
+{
+    mr__chunk *c = sp->cur;
+    if (sp->want_header) {
+        if (is_blank_row(sp->header, sp->header_len)) {
+            sp->header_len = 0;
+        } else {
+            sp->want_header = 0;
+        }
+        sp->row_line = sp->line;
+        return MR_OK;
+    }
+    if (is_blank_row(c->data + c->row_start[c->nrows], c->len - c->row_start[c->nrows])) {
+        c->len = c->row_start[c->nrows];
+        sp->row_line = sp->line;
+        return MR_OK;
+    }
+    c->row_line[c->nrows] = (uint32_t)(sp->row_line - c->first_line);
+    c->nrows++;
+    c->row_start[c->nrows] = c->len;
+    sp->rows++;
+    sp->row_line = sp->line;
+    if (c->nrows == MR__BLOCK_ROWS) {
+        mr__chunk *next = sink(user, c, err);
+        if (next == NULL) return err->status != MR_OK ? err->status : MR_ERR_INTERNAL;
+        mr__splitter_start_chunk(sp, next);
+    }
+    return MR_OK;
+}
+
+static uint64_t count_newlines(const char *p, size_t n)
+{
+    uint64_t k = 0;
+    const char *end = p + n;
+    while ((p = memchr(p, '\n', (size_t)(end - p))) != NULL) {
+        k++;
+        p++;
+    }
+    return k;
+}
+
+/* Inside quotes: everything up to and including the closing quote belongs
+ * to the row.  A doubled quote closes and reopens, which is the same. */
+static mr_status feed_quoted(mr__splitter *sp, const char **pp, const char *end, mr__error *err)
+{
+    const char *p = *pp, *q = memchr(p, '"', (size_t)(end - p));
+    size_t n = q ? (size_t)(q - p) + 1 : (size_t)(end - p);
+    sp->line += count_newlines(p, n);
+    MR__TRY(append(sp, p, n, err));
+    if (q) sp->in_quote = 0;
+    *pp = p + n;
+    return MR_OK;
+}
+
+mr_status mr__splitter_feed(mr__splitter *sp, const char *p, size_t n, size_t *used, mr__chunk_sink sink,
+                            void *user, mr__error *err)
+{
+    const char *start = p, *end = p + n;
+    int header_pending = sp->want_header;
+    *used = n;
+    while (p < end) {
+        const char *nl, *q;
+        size_t span;
+        if (sp->in_quote) {
+            MR__TRY(feed_quoted(sp, &p, end, err));
+            continue;
+        }
+        nl = memchr(p, '\n', (size_t)(end - p));
+        span = nl ? (size_t)(nl - p) : (size_t)(end - p);
+        q = memchr(p, '"', span);
+        if (q != NULL) {
+            MR__TRY(append(sp, p, (size_t)(q - p) + 1, err));
+            if (!sp->want_header) sp->cur->has_quote = 1;
+            sp->in_quote = 1;
+            sp->quote_line = sp->line;
+            p = q + 1;
+            continue;
+        }
+        if (nl == NULL) {
+            MR__TRY(append(sp, p, span, err));
+            break;
+        }
+        MR__TRY(append(sp, p, span + 1, err));
+        sp->line++;
+        p = nl + 1;
+        MR__TRY(end_row(sp, sink, user, err));
+        if (header_pending && !sp->want_header) {
+            *used = (size_t)(p - start);
+            return MR_OK;
+        }
+    }
+    return MR_OK;
+}
+
+mr_status mr__splitter_finish(mr__splitter *sp, mr__chunk_sink sink, void *user, mr__error *err)
+{
+    mr__chunk *c = sp->cur;
+    if (sp->in_quote)
+        return mr__fail(err, MR_ERR_FORMAT, "%s:%llu: unterminated quote (the file ends inside a quoted field)",
+                        sp->display, (unsigned long long)sp->quote_line);
+    if (sp->want_header) {
+        if (sp->header_len > 0 && !is_blank_row(sp->header, sp->header_len)) sp->want_header = 0;
+        return MR_OK;
+    }
+    if (c != NULL && c->len > c->row_start[c->nrows]) MR__TRY(end_row(sp, sink, user, err));
+    c = sp->cur;
+    if (c != NULL && c->nrows > 0 && c->nrows < MR__BLOCK_ROWS) {
+        if (sink(user, c, err) == NULL && err->status != MR_OK) return err->status;
+        sp->cur = NULL;
+    }
+    return MR_OK;
+}

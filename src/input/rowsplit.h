@@ -1,0 +1,45 @@
+/* rowsplit.h - cuts a byte stream into the header row and chunks of whole
+ * rows.  Quote aware: a newline inside a quoted field does not end a row.
+ * Blank lines are skipped (but counted, so line numbers stay true). */
+#ifndef MR_ROWSPLIT_H
+#define MR_ROWSPLIT_H
+
+#include "common/error.h"
+#include "input/chunk.h"
+
+#define MR__MAX_ROW_BYTES (64u << 20)
+
+typedef struct mr__splitter {
+    const char *display;  /* input name for messages */
+    int in_quote;
+    int want_header;      /* the next row is the header */
+    uint64_t line;        /* physical line of the next byte */
+    uint64_t row_line;    /* line where the current row started */
+    uint64_t quote_line;  /* line where the open quote started */
+    uint64_t rows;        /* data rows completed */
+    mr__chunk *cur;       /* chunk being filled (NULL before the first) */
+    char *header;         /* the header row once complete */
+    size_t header_len, header_cap;
+} mr__splitter;
+
+/* Called with each full chunk; must take it and return a fresh empty chunk
+ * to fill next (or NULL with an error set to stop). */
+typedef mr__chunk *(*mr__chunk_sink)(void *user, mr__chunk *full, mr__error *err);
+
+void mr__splitter_init(mr__splitter *sp, const char *display, int want_header);
+void mr__splitter_release(mr__splitter *sp);
+
+/* Feeds bytes.  While the header is wanted, stops right after it and
+ * reports in *used how many bytes it took (so the caller can bind columns
+ * before any data row is cut); otherwise takes all n.  `cur` must be set
+ * before data rows arrive. */
+mr_status mr__splitter_feed(mr__splitter *sp, const char *p, size_t n, size_t *used, mr__chunk_sink sink,
+                            void *user, mr__error *err);
+/* End of input: completes a last row without a newline and hands the last
+ * partial chunk to the sink (if it has rows).  An open quote is an error. */
+mr_status mr__splitter_finish(mr__splitter *sp, mr__chunk_sink sink, void *user, mr__error *err);
+
+/* Starts a chunk: sets its index (from the rows so far) and first line. */
+void mr__splitter_start_chunk(mr__splitter *sp, mr__chunk *c);
+
+#endif

@@ -1,0 +1,214 @@
+#define _POSIX_C_SOURCE 200809L
+#include <errno.h>
+#include <fcntl.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <unistd.h>
+#include <zstd.h>
+
+#include "common/alloc.h"
+#include "input/source.h"
+
+#define FNV_OFFSET 0xcbf29ce484222325ULL
+#define FNV_PRIME 0x100000001b3ULL
+
+struct mr__source {
+    int fd, owns_fd, tee_fd;
+    const char *display;
+    char *raw;            /* raw read buffer */
+    size_t raw_cap, raw_len, raw_pos;
+    int eof, zstd, sniffed;
+    size_t frame_left;    /* ZSTD_decompressStream's last hint: 0 = frame ended */
+    ZSTD_DStream *ds;
+    uint64_t raw_bytes, out_bytes, size, checksum;
+    int64_t mtime_ns;
+};
+
+mr_status mr__source_open(mr__source **out, const char *path, const char *display, size_t read_size,
+                          int tee_fd, mr__error *err)
+{
+    struct stat st;
+    mr__source *s = mr__calloc(1, sizeof *s);
+    *out = NULL;
+    if (s == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    s->display = display;
+    s->tee_fd = tee_fd;
+    s->checksum = FNV_OFFSET;
+    s->raw_cap = read_size < 16 ? 16 : read_size;
+    s->raw = mr__malloc(s->raw_cap);
+    if (s->raw == NULL) {
+        mr__free(s);
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    }
+    if (strcmp(path, "-") == 0) {
+        s->fd = STDIN_FILENO;
+    } else {
+        s->fd = open(path, O_RDONLY);
+        if (s->fd < 0) {
+            int e = errno;
+            mr__source_close(s);
+            return mr__fail(err, MR_ERR_IO, "%s: cannot open: %s", display, strerror(e));
+        }
+        s->owns_fd = 1;
+    }
+    if (fstat(s->fd, &st) == 0) {
+        if (S_ISDIR(st.st_mode)) {
+            mr__source_close(s);
+            return mr__fail(err, MR_ERR_IO, "%s: is a directory", display);
+        }
+        if (S_ISREG(st.st_mode)) {
+            s->size = (uint64_t)st.st_size;
+            s->mtime_ns = (int64_t)st.st_mtim.tv_sec * 1000000000 + st.st_mtim.tv_nsec;
+        }
+    }
+    *out = s;
+    return MR_OK;
+}
+
+void mr__source_close(mr__source *s)
+{
+    if (s == NULL) return;
+    if (s->owns_fd) close(s->fd);
+    ZSTD_freeDStream(s->ds);
+    mr__free(s->raw);
+    mr__free(s);
+}
+
+static void absorb(mr__source *s, const char *p, size_t n)
+{
+    uint64_t h = s->checksum;
+    size_t i;
+    for (i = 0; i < n; i++) h = (h ^ (unsigned char)p[i]) * FNV_PRIME;
+    s->checksum = h;
+    s->raw_bytes += n;
+}
+
+static mr_status tee(mr__source *s, const char *p, size_t n, mr__error *err)
+{
+    while (n > 0) {
+        ssize_t w = write(s->tee_fd, p, n);
+        if (w < 0) {
+            if (errno == EINTR) continue;
+            return mr__fail(err, MR_ERR_IO, "cannot keep a copy of standard input: %s", strerror(errno));
+        }
+        p += w;
+        n -= (size_t)w;
+    }
+    return MR_OK;
+}
+
+/* Refills the raw buffer; sets eof at the end of the input. */
+static mr_status fill_raw(mr__source *s, mr__error *err)
+{
+    ssize_t n;
+    if (s->raw_pos < s->raw_len || s->eof) return MR_OK;
+    do {
+        n = read(s->fd, s->raw, s->raw_cap);
+    } while (n < 0 && errno == EINTR);
+    if (n < 0) return mr__fail(err, MR_ERR_IO, "%s: read error: %s", s->display, strerror(errno));
+    s->raw_pos = 0;
+    s->raw_len = (size_t)n;
+    if (n == 0) {
+        s->eof = 1;
+        return MR_OK;
+    }
+    absorb(s, s->raw, (size_t)n);
+    if (s->tee_fd >= 0) return tee(s, s->raw, (size_t)n, err);
+    return MR_OK;
+}
+
+/* A zstd frame or a skippable frame starts the stream: the input is
+ * compressed.  Needs the first 4 bytes, which may take several reads. */
+static mr_status sniff(mr__source *s, mr__error *err)
+{
+    unsigned char m[4];
+    uint32_t magic;
+    while (s->raw_len - s->raw_pos < 4 && !s->eof) {
+        /* Keep what we have and append: the first reads may be tiny. */
+        size_t have = s->raw_len - s->raw_pos;
+        ssize_t n;
+        memmove(s->raw, s->raw + s->raw_pos, have);
+        s->raw_pos = 0;
+        s->raw_len = have;
+        do {
+            n = read(s->fd, s->raw + have, s->raw_cap - have);
+        } while (n < 0 && errno == EINTR);
+        if (n < 0) return mr__fail(err, MR_ERR_IO, "%s: read error: %s", s->display, strerror(errno));
+        if (n == 0) s->eof = 1;
+        absorb(s, s->raw + have, (size_t)n);
+        if (s->tee_fd >= 0) MR__TRY(tee(s, s->raw + have, (size_t)n, err));
+        s->raw_len += (size_t)n;
+    }
+    s->sniffed = 1;
+    if (s->raw_len - s->raw_pos < 4) return MR_OK;
+    memcpy(m, s->raw + s->raw_pos, 4);
+    magic = (uint32_t)m[0] | (uint32_t)m[1] << 8 | (uint32_t)m[2] << 16 | (uint32_t)m[3] << 24;
+    if (magic == ZSTD_MAGICNUMBER || (magic & ZSTD_MAGIC_SKIPPABLE_MASK) == ZSTD_MAGIC_SKIPPABLE_START) {
+        s->zstd = 1;
+        s->ds = ZSTD_createDStream();
+        if (s->ds == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        ZSTD_initDStream(s->ds);
+    }
+    return MR_OK;
+}
+
+static mr_status read_plain(mr__source *s, char *buf, size_t cap, size_t *got, mr__error *err)
+{
+    size_t n;
+    MR__TRY(fill_raw(s, err));
+    n = s->raw_len - s->raw_pos;
+    if (n > cap) n = cap;
+    memcpy(buf, s->raw + s->raw_pos, n);
+    s->raw_pos += n;
+    *got = n;
+    return MR_OK;
+}
+
+static mr_status read_zstd(mr__source *s, char *buf, size_t cap, size_t *got, mr__error *err)
+{
+    ZSTD_outBuffer ob = {buf, cap, 0};
+    while (ob.pos == 0) {
+        ZSTD_inBuffer ib;
+        size_t r;
+        MR__TRY(fill_raw(s, err));
+        if (s->raw_pos == s->raw_len && s->eof) {
+            if (s->frame_left != 0)
+                return mr__fail(err, MR_ERR_FORMAT,
+                                "%s: truncated zstd stream (ends inside a frame after %llu bytes)", s->display,
+                                (unsigned long long)s->raw_bytes);
+            break;
+        }
+        ib.src = s->raw;
+        ib.size = s->raw_len;
+        ib.pos = s->raw_pos;
+        r = ZSTD_decompressStream(s->ds, &ob, &ib);
+        if (ZSTD_isError(r))
+            return mr__fail(err, MR_ERR_FORMAT, "%s: corrupt zstd stream near byte %llu: %s", s->display,
+                            (unsigned long long)(s->raw_bytes - (s->raw_len - ib.pos)), ZSTD_getErrorName(r));
+        s->raw_pos = ib.pos;
+        s->frame_left = r;
+    }
+    *got = ob.pos;
+    return MR_OK;
+}
+
+mr_status mr__source_read(mr__source *s, char *buf, size_t cap, size_t *got, mr__error *err)
+{
+    *got = 0;
+    if (!s->sniffed) MR__TRY(sniff(s, err));
+    MR__TRY(s->zstd ? read_zstd(s, buf, cap, got, err) : read_plain(s, buf, cap, got, err));
+    s->out_bytes += *got;
+    return MR_OK;
+}
+
+uint64_t mr__source_raw_bytes(const mr__source *s) { return s->raw_bytes; }
+uint64_t mr__source_size(const mr__source *s) { return s->size; }
+uint64_t mr__source_out_bytes(const mr__source *s) { return s->out_bytes; }
+int mr__source_is_zstd(const mr__source *s) { return s->zstd; }
+uint64_t mr__source_checksum(const mr__source *s) { return s->checksum; }
+
+void mr__source_identity(const mr__source *s, uint64_t *size, int64_t *mtime_ns)
+{
+    *size = s->size;
+    *mtime_ns = s->mtime_ns;
+}

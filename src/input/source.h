@@ -1,0 +1,38 @@
+/* source.h - bytes in: a file or standard input, plain or zstd-compressed.
+ *
+ * Compression is recognised by the zstd frame magic (or a skippable frame),
+ * never by the file name, and a stream of several concatenated frames reads
+ * as one.  The source also counts and checksums the raw bytes so a report
+ * can say exactly which input it describes. */
+#ifndef MR_SOURCE_H
+#define MR_SOURCE_H
+
+#include <stddef.h>
+#include <stdint.h>
+#include "common/error.h"
+
+typedef struct mr__source mr__source;
+
+/* Opens `path` ("-" = standard input).  `read_size` is the size of each
+ * raw read.  When tee_fd >= 0 every raw byte read is also written to it
+ * (how standard input is kept for the later passes).  `display` names the
+ * input in messages. */
+mr_status mr__source_open(mr__source **out, const char *path, const char *display, size_t read_size,
+                          int tee_fd, mr__error *err);
+void mr__source_close(mr__source *s);
+
+/* Fills buf with up to cap decompressed bytes; *got = 0 only at the end of
+ * the input.  Truncated or corrupt zstd input is MR_ERR_FORMAT. */
+mr_status mr__source_read(mr__source *s, char *buf, size_t cap, size_t *got, mr__error *err);
+
+uint64_t mr__source_raw_bytes(const mr__source *s);  /* raw bytes consumed */
+uint64_t mr__source_size(const mr__source *s);       /* file size, 0 if unknown */
+uint64_t mr__source_out_bytes(const mr__source *s);  /* decompressed bytes */
+int mr__source_is_zstd(const mr__source *s);
+/* FNV-1a 64 of the raw bytes read so far. */
+uint64_t mr__source_checksum(const mr__source *s);
+/* Identity of the opened file (size and modification time) so a later
+ * pass can tell that the file changed under the fit. */
+void mr__source_identity(const mr__source *s, uint64_t *size, int64_t *mtime_ns);
+
+#endif

@@ -1,0 +1,46 @@
+/* columns.h - the model's columns found in the file header.
+ *
+ * Binding turns names into field positions once, so that per row the
+ * decoder only asks "is field k used, and as what?". */
+#ifndef MR_COLUMNS_H
+#define MR_COLUMNS_H
+
+#include <stddef.h>
+#include "model/spec.h"
+
+typedef enum mr__use {
+    MR__USE_OUTCOME,
+    MR__USE_TRIALS,
+    MR__USE_WEIGHT,
+    MR__USE_OFFSET,
+    MR__USE_EXPOSURE,
+    MR__USE_NUMERIC,
+    MR__USE_FACTOR
+} mr__use;
+
+typedef struct mr__column {
+    const char *name; /* points into the spec */
+    size_t field;     /* 0-based position in the row */
+    mr__use use;
+    int var;          /* index among numerics or factors; -1 otherwise */
+} mr__column;
+
+typedef struct mr__binding {
+    char **header;
+    size_t nfields;
+    mr__column *col;
+    size_t ncol;
+    int *col_of_field; /* nfields entries, -1 = not used */
+    size_t nnum, nfac;
+    /* Column index of each numeric / factor variable, in declaration order. */
+    size_t *num_col, *fac_col;
+    int has_outcome_col, has_trials, has_weight, has_offset, has_exposure;
+} mr__binding;
+
+/* Takes ownership of `header` (nfields names).  Errors: a model column not
+ * in the header, a duplicate header name, a column used twice. */
+mr_status mr__bind(mr__binding *b, const mr__spec *spec, char **header, size_t nfields, const char *display,
+                   mr__error *err);
+void mr__binding_release(mr__binding *b);
+
+#endif

@@ -1,0 +1,324 @@
+#include <math.h>
+#include <stdio.h>
+#include <string.h>
+
+#include "common/alloc.h"
+#include "common/strbuf.h"
+#include "model/design.h"
+
+/* Code of a level within a term: its column offset, or -1 for the
+ * reference level (which has no column). */
+static int32_t level_code(const mr__term *t, const mr__factor *f, int32_t lev)
+{
+    if (t->full) return lev;
+    if (lev == f->ref) return -1;
+    return lev < f->ref ? lev : lev - 1;
+}
+
+static size_t factor_columns(const mr__term *t, const mr__factor *f)
+{
+    return t->full ? f->nlevels : f->nlevels - 1;
+}
+
+static int covariate_var(const mr__binding *b, const char *name, int *is_factor)
+{
+    size_t c;
+    for (c = 0; c < b->ncol; c++) {
+        if (strcmp(b->col[c].name, name) != 0) continue;
+        if (b->col[c].use == MR__USE_FACTOR) {
+            *is_factor = 1;
+            return b->col[c].var;
+        }
+        if (b->col[c].use == MR__USE_NUMERIC) {
+            *is_factor = 0;
+            return b->col[c].var;
+        }
+    }
+    return -1;
+}
+
+static void add_part(mr__term *t, int var, int is_factor)
+{
+    if (is_factor) t->fac[t->nfac++] = var;
+    else t->num[t->nnum++] = var;
+}
+
+/* Terms in column order: each covariate, then each interaction. */
+static mr_status collect_terms(mr__design *d, const mr__spec *s, const mr__binding *b, mr__error *err)
+{
+    size_t i;
+    int k, isf, v;
+    d->term = mr__calloc(s->ncov + s->ninter + 1, sizeof *d->term);
+    if (d->term == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (i = 0; i < s->ncov; i++) {
+        v = covariate_var(b, s->cov[i].name, &isf);
+        add_part(&d->term[d->nterms++], v, isf);
+    }
+    for (i = 0; i < s->ninter; i++) {
+        mr__term *t = &d->term[d->nterms++];
+        for (k = 0; k < s->inter[i].n; k++) {
+            v = covariate_var(b, s->inter[i].name[k], &isf);
+            add_part(t, v, isf);
+        }
+    }
+    /* Without an intercept the first factor takes every level, so the
+     * model can still express a level-specific baseline. */
+    if (!d->intercept)
+        for (i = 0; i < d->nterms; i++)
+            if (d->term[i].nfac == 1 && d->term[i].nnum == 0) {
+                d->term[i].full = 1;
+                break;
+            }
+    return MR_OK;
+}
+
+static mr_status lay_out_columns(mr__design *d, mr__error *err)
+{
+    size_t i, p = d->intercept ? 1 : 0;
+    int k;
+    for (i = 0; i < d->nterms; i++) {
+        mr__term *t = &d->term[i];
+        size_t n = 1;
+        for (k = t->nfac - 1; k >= 0; k--) {
+            t->stride[k] = n;
+            n *= factor_columns(t, &d->fac[t->fac[k]]);
+        }
+        t->col0 = p;
+        t->ncols = n;
+        p += n;
+        if (p > MR__MAX_COLUMNS)
+            return mr__fail(err, MR_ERR_USAGE,
+                            "model: the design has more than %d columns (a factor with very many levels?)",
+                            MR__MAX_COLUMNS);
+    }
+    d->p = p;
+    return MR_OK;
+}
+
+/* The factor level of each factor in column j of term t. */
+static void column_levels(const mr__design *d, const mr__term *t, size_t j, int32_t *code)
+{
+    int k;
+    size_t r = j - t->col0;
+    (void)d;
+    for (k = 0; k < t->nfac; k++) {
+        code[k] = (int32_t)(r / t->stride[k]);
+        r %= t->stride[k];
+    }
+}
+
+static void append_level_name(mr__strbuf *sb, const mr__design *d, const mr__term *t, int k, int32_t code)
+{
+    const mr__factor *f = &d->fac[t->fac[k]];
+    int32_t lev = t->full ? code : (code < f->ref ? code : code + 1);
+    mr__strbuf_printf(sb, "%s=%s", f->name, f->level[lev]);
+}
+
+/* Parts are named in the order the analyst wrote them. */
+static char *column_name(const mr__design *d, const mr__spec *s, size_t ti, size_t j, const char *const *num_name)
+{
+    const mr__term *t = &d->term[ti];
+    mr__strbuf sb;
+    int32_t code[MR__MAX_INTERACT];
+    int k, fi = 0, ni = 0, nparts = t->nfac + t->nnum;
+    mr__strbuf_init(&sb);
+    column_levels(d, t, j, code);
+    for (k = 0; k < nparts; k++) {
+        const char *part = ti < s->ncov ? s->cov[ti].name : s->inter[ti - s->ncov].name[k];
+        int is_fac = fi < t->nfac && strcmp(d->fac[t->fac[fi]].name, part) == 0;
+        if (k) mr__strbuf_append(&sb, " & ", 3);
+        if (is_fac) append_level_name(&sb, d, t, fi, code[fi]), fi++;
+        else mr__strbuf_printf(&sb, "%s", num_name[t->num[ni++]]);
+    }
+    return mr__strbuf_take(&sb);
+}
+
+static mr_status name_columns(mr__design *d, const mr__spec *s, const mr__binding *b, mr__error *err)
+{
+    const char *num_name[64];
+    size_t i, j, k;
+    for (k = 0; k < b->nnum && k < 64; k++) num_name[k] = b->col[b->num_col[k]].name;
+    if (b->nnum > 64) return mr__fail(err, MR_ERR_USAGE, "model: more than 64 numeric covariates");
+    d->name = mr__calloc(d->p, sizeof *d->name);
+    if (d->name == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    if (d->intercept && (d->name[0] = mr__strdup("(intercept)")) == NULL)
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (i = 0; i < d->nterms; i++)
+        for (j = d->term[i].col0; j < d->term[i].col0 + d->term[i].ncols; j++)
+            if ((d->name[j] = column_name(d, s, i, j, num_name)) == NULL)
+                return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    return MR_OK;
+}
+
+/* Is there an earlier term with the same factors (same coding) and
+ * exactly the numerics in `mask` (bits over t's numerics)? */
+static const mr__term *find_subterm(const mr__design *d, size_t ti, unsigned mask)
+{
+    const mr__term *t = &d->term[ti];
+    size_t u;
+    int k, m;
+    for (u = 0; u < ti; u++) {
+        const mr__term *c = &d->term[u];
+        int nn = 0, ok = c->nfac == t->nfac && !c->full && !t->full;
+        for (k = 0; ok && k < t->nfac; k++) {
+            int found = 0;
+            for (m = 0; m < c->nfac; m++) found |= c->fac[m] == t->fac[k];
+            ok = found;
+        }
+        for (k = 0; ok && k < t->nnum; k++) {
+            int in = 0;
+            for (m = 0; m < c->nnum; m++) in |= c->num[m] == t->num[k];
+            if ((mask >> k & 1u) != (unsigned)in) ok = 0;
+            nn += in;
+        }
+        if (ok && nn == c->nnum) return c;
+    }
+    return NULL;
+}
+
+/* The column of term c holding the same factor levels as column j of t. */
+static size_t matching_column(const mr__design *d, const mr__term *t, size_t j, const mr__term *c)
+{
+    int32_t code[MR__MAX_INTERACT];
+    size_t col = c->col0;
+    int k, m;
+    column_levels(d, t, j, code);
+    for (m = 0; m < c->nfac; m++)
+        for (k = 0; k < t->nfac; k++)
+            if (c->fac[m] == t->fac[k]) col += (size_t)code[k] * c->stride[m];
+    return col;
+}
+
+/* Subsets S of the numerics that the expansion of prod (x_k - c_k) needs:
+ * those that keep every numeric with no centre. */
+static int needs_subset(const mr__term *t, unsigned mask)
+{
+    int k;
+    for (k = 0; k < t->nnum; k++)
+        if (t->centre[k] == 0.0 && !(mask >> k & 1u)) return 0;
+    return 1;
+}
+
+static int subterm_exists(const mr__design *d, size_t ti, unsigned mask)
+{
+    const mr__term *t = &d->term[ti];
+    if (mask == 0 && t->nfac == 0) return d->intercept;
+    return find_subterm(d, ti, mask) != NULL;
+}
+
+static void choose_centring(mr__design *d, size_t ti, const double *mean, const double *spread)
+{
+    mr__term *t = &d->term[ti];
+    unsigned full = (1u << t->nnum) - 1, mask;
+    int k, ok = 1;
+    for (k = 0; k < t->nnum; k++) {
+        double m = mean[t->num[k]], s = spread[t->num[k]];
+        int usable = isfinite(s) && s > 0 && isfinite(m);
+        t->scale[k] = usable ? s : 1.0;
+        t->centre[k] = usable ? m : 0.0;
+    }
+    for (mask = 0; mask < full && ok; mask++)
+        if (needs_subset(t, mask)) ok = subterm_exists(d, ti, mask);
+    t->centred = ok && t->nnum > 0;
+    if (!t->centred)
+        for (k = 0; k < t->nnum; k++) t->centre[k] = 0.0;
+}
+
+static void fill_transform_column(mr__design *d, size_t ti, size_t j)
+{
+    const mr__term *t = &d->term[ti];
+    unsigned full = (1u << t->nnum) - 1, mask;
+    double inv_scale = 1.0;
+    int k;
+    for (k = 0; k < t->nnum; k++) inv_scale /= t->scale[k];
+    for (mask = 0; mask <= full; mask++) {
+        double coef = inv_scale;
+        size_t raw;
+        if (!needs_subset(t, mask)) continue;
+        for (k = 0; k < t->nnum; k++)
+            if (!(mask >> k & 1u)) coef *= -t->centre[k];
+        if (mask == full) raw = j;
+        else if (mask == 0 && t->nfac == 0) raw = 0;
+        else raw = matching_column(d, t, j, find_subterm(d, ti, mask));
+        d->A[j * d->p + raw] += coef;
+    }
+}
+
+static mr_status build_transform(mr__design *d, const double *mean, const double *spread, mr__error *err)
+{
+    size_t i, j;
+    d->A = mr__calloc(d->p * d->p, sizeof *d->A);
+    if (d->A == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    if (d->intercept) d->A[0] = 1.0;
+    for (i = 0; i < d->nterms; i++) {
+        choose_centring(d, i, mean, spread);
+        for (j = d->term[i].col0; j < d->term[i].col0 + d->term[i].ncols; j++) {
+            if (d->term[i].centred) {
+                fill_transform_column(d, i, j);
+            } else {
+                double inv = 1.0;
+                int k;
+                for (k = 0; k < d->term[i].nnum; k++) inv /= d->term[i].scale[k];
+                d->A[j * d->p + j] = inv;
+            }
+        }
+    }
+    return MR_OK;
+}
+
+mr_status mr__design_build(mr__design *d, const mr__spec *s, const mr__binding *b, const mr__factor *fac,
+                           const double *mean, const double *spread, mr__error *err)
+{
+    memset(d, 0, sizeof *d);
+    d->intercept = s->intercept;
+    d->fac = fac;
+    d->nfac = b->nfac;
+    d->nnum = b->nnum;
+    MR__TRY(collect_terms(d, s, b, err));
+    MR__TRY(lay_out_columns(d, err));
+    MR__TRY(name_columns(d, s, b, err));
+    return build_transform(d, mean, spread, err);
+}
+
+void mr__design_release(mr__design *d)
+{
+    size_t j;
+    for (j = 0; d->name && j < d->p; j++) mr__free(d->name[j]);
+    mr__free(d->name);
+    mr__free(d->term);
+    mr__free(d->A);
+    memset(d, 0, sizeof *d);
+}
+
+static void fill_term(const mr__term *t, const mr__factor *fac, const double *num, const int32_t *lev,
+                      size_t stride_rows, size_t n, double *Z, size_t ldz)
+{
+    size_t i;
+    int k;
+    for (i = 0; i < n; i++) {
+        size_t col = t->col0;
+        double v = 1.0;
+        int skip = 0;
+        for (k = 0; k < t->nfac; k++) {
+            int32_t c = level_code(t, &fac[t->fac[k]], lev[(size_t)t->fac[k] * stride_rows + i]);
+            if (c < 0) {
+                skip = 1;
+                break;
+            }
+            col += (size_t)c * t->stride[k];
+        }
+        if (skip) continue;
+        for (k = 0; k < t->nnum; k++) v *= (num[(size_t)t->num[k] * stride_rows + i] - t->centre[k]) / t->scale[k];
+        Z[col * ldz + i] = v;
+    }
+}
+
+void mr__design_fill(const mr__design *d, const double *num, const int32_t *lev, size_t stride_rows, size_t n,
+                     double *Z, size_t ldz)
+{
+    size_t i, j;
+    for (j = 0; j < d->p; j++) memset(Z + j * ldz, 0, n * sizeof *Z);
+    if (d->intercept)
+        for (i = 0; i < n; i++) Z[i] = 1.0;
+    for (j = 0; j < d->nterms; j++) fill_term(&d->term[j], d->fac, num, lev, stride_rows, n, Z, ldz);
+}

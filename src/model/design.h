@@ -1,0 +1,67 @@
+/* design.h - from model terms to the columns of the design matrix.
+ *
+ * Columns: "(intercept)", then each declared covariate in order (a numeric
+ * is one column, a factor one column per non-reference level: treatment
+ * coding), then each interaction (the product of its parts' columns).
+ *
+ * Internally every numeric enters as (x - centre) / scale.  A raw calendar
+ * year makes X'WX so ill-conditioned (about 1e11 here) that Cholesky would
+ * lose five digits; centred and scaled it is about 1e4.  The map back to
+ * the coefficients of the raw columns is exact algebra: each internal
+ * column is a linear combination of raw columns, z = X A, so
+ * beta_raw = A beta_internal and cov_raw = A cov A'.  A term is centred
+ * only when every lower-order column that its expansion needs is in the
+ * model and comes earlier (else it is only scaled), so both sets of columns
+ * span the same space column by column and aliasing is unaffected. */
+#ifndef MR_DESIGN_H
+#define MR_DESIGN_H
+
+#include <stddef.h>
+#include <stdint.h>
+#include "common/error.h"
+#include "model/columns.h"
+#include "model/spec.h"
+
+#define MR__MAX_COLUMNS 4000
+
+typedef struct mr__factor {
+    const char *name;
+    const char **level; /* sorted; strings owned by the level set */
+    size_t nlevels;
+    int32_t ref;
+} mr__factor;
+
+typedef struct mr__term {
+    int nfac, nnum;
+    int fac[MR__MAX_INTERACT]; /* factor variable indices, in the term's order */
+    int num[MR__MAX_INTERACT]; /* numeric variable indices */
+    int full;                  /* every level gets a column (no intercept) */
+    size_t col0, ncols;
+    size_t stride[MR__MAX_INTERACT];
+    int centred;
+    double centre[MR__MAX_INTERACT], scale[MR__MAX_INTERACT];
+} mr__term;
+
+typedef struct mr__design {
+    size_t p;
+    char **name;
+    int intercept;
+    mr__term *term;
+    size_t nterms;
+    const mr__factor *fac;
+    size_t nfac, nnum;
+    double *A; /* p x p, column-major: raw column k's share of internal column j */
+} mr__design;
+
+/* Builds the design.  `mean` and `spread` (nnum each) come from the first
+ * pass; a zero or non-finite spread leaves that numeric raw. */
+mr_status mr__design_build(mr__design *d, const mr__spec *s, const mr__binding *b, const mr__factor *fac,
+                           const double *mean, const double *spread, mr__error *err);
+void mr__design_release(mr__design *d);
+
+/* Fills the n x p internal design block Z (column-major, leading
+ * dimension ldz >= n) from a block's variable-major values. */
+void mr__design_fill(const mr__design *d, const double *num, const int32_t *lev, size_t stride_rows, size_t n,
+                     double *Z, size_t ldz);
+
+#endif

@@ -1,0 +1,123 @@
+#include <stdlib.h>
+#include <string.h>
+
+#include "common/alloc.h"
+#include "model/levels.h"
+
+static uint64_t hash_bytes(const char *p, size_t len)
+{
+    uint64_t h = 0xcbf29ce484222325ULL;
+    size_t i;
+    for (i = 0; i < len; i++) h = (h ^ (unsigned char)p[i]) * 0x100000001b3ULL;
+    return h ^ (h >> 29);
+}
+
+void mr__levelset_init(mr__levelset *s)
+{
+    s->slot = NULL;
+    s->cap = s->n = 0;
+}
+
+void mr__levelset_release(mr__levelset *s)
+{
+    size_t i;
+    for (i = 0; i < s->cap; i++) mr__free(s->slot[i].str);
+    mr__free(s->slot);
+    mr__levelset_init(s);
+}
+
+static mr__level_entry *probe(const mr__levelset *s, uint64_t h, const char *p, size_t len)
+{
+    size_t mask = s->cap - 1, i = (size_t)h & mask;
+    for (;;) {
+        mr__level_entry *e = &s->slot[i];
+        if (e->str == NULL) return e;
+        if (e->hash == h && e->len == len && memcmp(e->str, p, len) == 0) return e;
+        i = (i + 1) & mask;
+    }
+}
+
+static int grow(mr__levelset *s)
+{
+    size_t cap = s->cap ? 2 * s->cap : 64, i;
+    mr__levelset bigger;
+    bigger.slot = mr__calloc(cap, sizeof *bigger.slot);
+    if (bigger.slot == NULL) return -1;
+    bigger.cap = cap;
+    bigger.n = s->n;
+    for (i = 0; i < s->cap; i++)
+        if (s->slot[i].str != NULL) *probe(&bigger, s->slot[i].hash, s->slot[i].str, s->slot[i].len) = s->slot[i];
+    mr__free(s->slot);
+    *s = bigger;
+    return 0;
+}
+
+static int insert_hashed(mr__levelset *s, uint64_t h, const char *p, size_t len, int32_t id)
+{
+    mr__level_entry *e;
+    if (s->n + 1 > s->cap / 2 && grow(s) != 0) return -1;
+    e = probe(s, h, p, len);
+    if (e->str != NULL) return 0;
+    if (s->n >= MR__MAX_LEVELS) return -2;
+    e->str = mr__strndup(p, len);
+    if (e->str == NULL) return -1;
+    e->hash = h;
+    e->len = (uint32_t)len;
+    e->id = id;
+    s->n++;
+    return 0;
+}
+
+int mr__levelset_add(mr__levelset *s, const char *p, size_t len)
+{
+    return insert_hashed(s, hash_bytes(p, len), p, len, (int32_t)s->n);
+}
+
+int32_t mr__levelset_find(const mr__levelset *s, const char *p, size_t len)
+{
+    const mr__level_entry *e;
+    if (s->cap == 0) return -1;
+    e = probe(s, hash_bytes(p, len), p, len);
+    return e->str ? e->id : -1;
+}
+
+static int cmp_entry(const void *a, const void *b)
+{
+    const mr__level_entry *x = *(const mr__level_entry *const *)a, *y = *(const mr__level_entry *const *)b;
+    size_t n = x->len < y->len ? x->len : y->len;
+    int c = memcmp(x->str, y->str, n);
+    if (c != 0) return c;
+    return (x->len > y->len) - (x->len < y->len);
+}
+
+int mr__levelset_merge_sorted(const mr__levelset *const *sets, size_t n, mr__levelset *out,
+                              const char ***sorted)
+{
+    size_t i, j, k = 0;
+    mr__level_entry **all;
+    const char **names;
+    int rc = 0;
+    mr__levelset_init(out);
+    for (i = 0; i < n; i++)
+        for (j = 0; j < sets[i]->cap; j++)
+            if (sets[i]->slot[j].str != NULL &&
+                (rc = insert_hashed(out, sets[i]->slot[j].hash, sets[i]->slot[j].str, sets[i]->slot[j].len, 0)) != 0)
+                return rc;
+    all = mr__malloc_array(out->n ? out->n : 1, sizeof *all);
+    names = mr__malloc_array(out->n ? out->n : 1, sizeof *names);
+    if (all == NULL || names == NULL) {
+        mr__free(all);
+        mr__free(names);
+        return -1;
+    }
+    for (j = 0; j < out->cap; j++)
+        if (out->slot[j].str != NULL) all[k++] = &out->slot[j];
+    qsort(all, k, sizeof *all, cmp_entry);
+    for (i = 0; i < k; i++) {
+        all[i]->id = (int32_t)i;
+        names[i] = all[i]->str;
+    }
+    mr__free(all);
+    *sorted = names;
+    return 0;
+}

@@ -1,0 +1,312 @@
+/* spec.c - the model language.  One directive a line, words separated by
+ * blanks, double quotes around a word that holds blanks, '#' to the end of
+ * the line is a comment. */
+#include <ctype.h>
+#include <errno.h>
+#include <stdio.h>
+#include <string.h>
+
+#include "common/alloc.h"
+#include "family/family.h"
+#include "model/spec.h"
+
+#define MAX_WORDS 8
+#define MAX_LINE 4096
+
+typedef struct words {
+    int n;
+    char *w[MAX_WORDS];
+    char buf[MAX_LINE];
+} words;
+
+void mr__spec_init(mr__spec *s)
+{
+    memset(s, 0, sizeof *s);
+    s->family = MR_GAUSSIAN;
+    s->link = -1;
+    s->intercept = 1;
+    s->dispersion = -1;
+}
+
+static void release_covariate(mr__covariate *c)
+{
+    mr__free(c->name);
+    mr__free(c->ref);
+}
+
+void mr__spec_release(mr__spec *s)
+{
+    size_t i;
+    int k;
+    mr__free(s->outcome);
+    mr__free(s->trials);
+    mr__free(s->offset);
+    mr__free(s->exposure);
+    mr__free(s->weight);
+    for (i = 0; i < s->ncov; i++) release_covariate(&s->cov[i]);
+    mr__free(s->cov);
+    for (i = 0; i < s->ninter; i++)
+        for (k = 0; k < s->inter[i].n; k++) mr__free(s->inter[i].name[k]);
+    mr__free(s->inter);
+    mr__spec_init(s);
+}
+
+/* Splits a line into words in place; quotes group, '#' ends the line. */
+static mr_status split_words(const char *line, words *ws, const char *origin, mr__error *err)
+{
+    size_t len = strlen(line), o = 0;
+    const char *p = line;
+    if (len >= MAX_LINE) return mr__fail(err, MR_ERR_USAGE, "%s: line too long", origin);
+    ws->n = 0;
+    while (*p) {
+        while (*p == ' ' || *p == '\t' || *p == '\r' || *p == '\n') p++;
+        if (*p == '\0' || *p == '#') break;
+        if (ws->n == MAX_WORDS) return mr__fail(err, MR_ERR_USAGE, "%s: too many words", origin);
+        ws->w[ws->n++] = ws->buf + o;
+        while (*p && *p != ' ' && *p != '\t' && *p != '\r' && *p != '\n' && *p != '#') {
+            if (*p == '"') {
+                p++;
+                while (*p && *p != '"') ws->buf[o++] = *p++;
+                if (*p != '"') return mr__fail(err, MR_ERR_USAGE, "%s: unterminated quote", origin);
+                p++;
+            } else {
+                ws->buf[o++] = *p++;
+            }
+        }
+        ws->buf[o++] = '\0';
+    }
+    return MR_OK;
+}
+
+static mr_status set_string(char **slot, const char *value, mr__error *err)
+{
+    char *copy = mr__strdup(value);
+    if (copy == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    mr__free(*slot);
+    *slot = copy;
+    return MR_OK;
+}
+
+const mr__covariate *mr__spec_find(const mr__spec *s, const char *name)
+{
+    size_t i;
+    for (i = 0; i < s->ncov; i++)
+        if (strcmp(s->cov[i].name, name) == 0) return &s->cov[i];
+    return NULL;
+}
+
+/* A later declaration of the same column replaces its role and reference
+ * but keeps its place in the term order. */
+static mr_status declare_covariate(mr__spec *s, const char *name, mr__role role, const char *ref,
+                                   mr__error *err)
+{
+    mr__covariate *c = (mr__covariate *)mr__spec_find(s, name);
+    if (c == NULL) {
+        if (s->ncov == s->capcov) {
+            size_t cap = s->capcov ? 2 * s->capcov : 8;
+            mr__covariate *p = mr__realloc(s->cov, cap * sizeof *p);
+            if (p == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+            s->cov = p;
+            s->capcov = cap;
+        }
+        c = &s->cov[s->ncov];
+        memset(c, 0, sizeof *c);
+        MR__TRY(set_string(&c->name, name, err));
+        s->ncov++;
+    }
+    c->role = role;
+    mr__free(c->ref);
+    c->ref = NULL;
+    if (ref != NULL) MR__TRY(set_string(&c->ref, ref, err));
+    return MR_OK;
+}
+
+static mr_status add_interaction(mr__spec *s, const words *ws, const char *origin, mr__error *err)
+{
+    mr__interaction *it;
+    int k, j;
+    if (ws->n < 3 || ws->n > 1 + MR__MAX_INTERACT)
+        return mr__fail(err, MR_ERR_USAGE, "%s: interact takes 2 or 3 column names", origin);
+    for (k = 1; k < ws->n; k++)
+        for (j = 1; j < k; j++)
+            if (strcmp(ws->w[k], ws->w[j]) == 0)
+                return mr__fail(err, MR_ERR_USAGE, "%s: interact names '%s' twice", origin, ws->w[k]);
+    if (s->ninter == s->capinter) {
+        size_t cap = s->capinter ? 2 * s->capinter : 4;
+        mr__interaction *p = mr__realloc(s->inter, cap * sizeof *p);
+        if (p == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        s->inter = p;
+        s->capinter = cap;
+    }
+    it = &s->inter[s->ninter];
+    memset(it, 0, sizeof *it);
+    for (k = 1; k < ws->n; k++) {
+        it->name[k - 1] = mr__strdup(ws->w[k]);
+        if (it->name[k - 1] == NULL) {
+            for (j = 0; j < k - 1; j++) mr__free(it->name[j]);
+            return mr__fail(err, MR_ERR_USAGE, "out of memory");
+        }
+    }
+    it->n = ws->n - 1;
+    s->ninter++;
+    return MR_OK;
+}
+
+static mr_status expect_args(const words *ws, int n, const char *origin, mr__error *err)
+{
+    if (ws->n - 1 != n)
+        return mr__fail(err, MR_ERR_USAGE, "%s: '%s' takes %d value%s, got %d", origin, ws->w[0], n,
+                        n == 1 ? "" : "s", ws->n - 1);
+    return MR_OK;
+}
+
+static mr_status parse_factor(mr__spec *s, const words *ws, const char *origin, mr__error *err)
+{
+    const char *ref = NULL;
+    if (ws->n != 2 && ws->n != 3)
+        return mr__fail(err, MR_ERR_USAGE, "%s: factor takes a column name and optionally ref=LEVEL", origin);
+    if (ws->n == 3) {
+        if (strncmp(ws->w[2], "ref=", 4) != 0)
+            return mr__fail(err, MR_ERR_USAGE, "%s: expected ref=LEVEL after the factor name, got '%s'",
+                            origin, ws->w[2]);
+        ref = ws->w[2] + 4;
+    }
+    return declare_covariate(s, ws->w[1], MR__ROLE_FACTOR, ref, err);
+}
+
+static mr_status parse_choice(const words *ws, const char *a, const char *b, int *out, const char *origin,
+                              mr__error *err)
+{
+    MR__TRY(expect_args(ws, 1, origin, err));
+    if (strcmp(ws->w[1], a) == 0) *out = 1;
+    else if (strcmp(ws->w[1], b) == 0) *out = 0;
+    else
+        return mr__fail(err, MR_ERR_USAGE, "%s: '%s' takes %s or %s, got '%s'", origin, ws->w[0], a, b, ws->w[1]);
+    return MR_OK;
+}
+
+static mr_status apply_words(mr__spec *s, const words *ws, const char *origin, mr__error *err)
+{
+    const char *d = ws->w[0];
+    int v;
+    static const struct {
+        const char *name;
+        size_t off;
+    } columns[] = {
+        {"outcome", offsetof(mr__spec, outcome)}, {"trials", offsetof(mr__spec, trials)},
+        {"offset", offsetof(mr__spec, offset)},   {"exposure", offsetof(mr__spec, exposure)},
+        {"weight", offsetof(mr__spec, weight)},
+    };
+    size_t i;
+    for (i = 0; i < sizeof columns / sizeof columns[0]; i++) {
+        if (strcmp(d, columns[i].name) == 0) {
+            MR__TRY(expect_args(ws, 1, origin, err));
+            return set_string((char **)((char *)s + columns[i].off), ws->w[1], err);
+        }
+    }
+    if (strcmp(d, "family") == 0) {
+        MR__TRY(expect_args(ws, 1, origin, err));
+        v = mr__family_from_name(ws->w[1]);
+        if (v < 0)
+            return mr__fail(err, MR_ERR_USAGE,
+                            "%s: unknown family '%s' (gaussian, binomial, poisson, gamma, inverse-gaussian)",
+                            origin, ws->w[1]);
+        s->family = v;
+        return MR_OK;
+    }
+    if (strcmp(d, "link") == 0) {
+        MR__TRY(expect_args(ws, 1, origin, err));
+        v = mr__link_from_name(ws->w[1]);
+        if (v < 0)
+            return mr__fail(err, MR_ERR_USAGE,
+                            "%s: unknown link '%s' (identity, log, inverse, logit, probit, cloglog, sqrt, "
+                            "inverse-squared)",
+                            origin, ws->w[1]);
+        s->link = v;
+        return MR_OK;
+    }
+    if (strcmp(d, "numeric") == 0) {
+        MR__TRY(expect_args(ws, 1, origin, err));
+        return declare_covariate(s, ws->w[1], MR__ROLE_NUMERIC, NULL, err);
+    }
+    if (strcmp(d, "factor") == 0) return parse_factor(s, ws, origin, err);
+    if (strcmp(d, "interact") == 0) return add_interaction(s, ws, origin, err);
+    if (strcmp(d, "intercept") == 0) return parse_choice(ws, "yes", "no", &s->intercept, origin, err);
+    if (strcmp(d, "dispersion") == 0) return parse_choice(ws, "estimate", "fixed", &s->dispersion, origin, err);
+    return mr__fail(err, MR_ERR_USAGE, "%s: unknown directive '%s'", origin, d);
+}
+
+mr_status mr__spec_line(mr__spec *s, const char *line, const char *origin, mr__error *err)
+{
+    words ws;
+    if (origin == NULL) origin = "model";
+    MR__TRY(split_words(line, &ws, origin, err));
+    if (ws.n == 0) return MR_OK;
+    return apply_words(s, &ws, origin, err);
+}
+
+mr_status mr__spec_file(mr__spec *s, const char *path, mr__error *err)
+{
+    char line[MAX_LINE + 2], origin[512];
+    unsigned long lineno = 0;
+    mr_status st = MR_OK;
+    FILE *fp = fopen(path, "r");
+    if (fp == NULL) return mr__fail(err, MR_ERR_IO, "%s: cannot open model file: %s", path, strerror(errno));
+    while (st == MR_OK && fgets(line, sizeof line, fp) != NULL) {
+        lineno++;
+        snprintf(origin, sizeof origin, "%s:%lu", path, lineno);
+        if (strlen(line) > MAX_LINE) {
+            st = mr__fail(err, MR_ERR_USAGE, "%s: line too long", origin);
+            break;
+        }
+        st = mr__spec_line(s, line, origin, err);
+    }
+    if (st == MR_OK && ferror(fp)) st = mr__fail(err, MR_ERR_IO, "%s: read error", path);
+    fclose(fp);
+    return st;
+}
+
+int mr__spec_link(const mr__spec *s)
+{
+    return s->link >= 0 ? s->link : (int)mr__canonical_link((mr_family)s->family);
+}
+
+int mr__spec_dispersion_estimated(const mr__spec *s)
+{
+    if (s->dispersion >= 0) return s->dispersion;
+    return !(s->family == MR_BINOMIAL || s->family == MR_POISSON);
+}
+
+static mr_status validate_interactions(const mr__spec *s, mr__error *err)
+{
+    size_t i;
+    int k;
+    for (i = 0; i < s->ninter; i++)
+        for (k = 0; k < s->inter[i].n; k++)
+            if (mr__spec_find(s, s->inter[i].name[k]) == NULL)
+                return mr__fail(err, MR_ERR_USAGE,
+                                "model: interact names '%s', which is not declared with numeric or factor",
+                                s->inter[i].name[k]);
+    return MR_OK;
+}
+
+mr_status mr__spec_validate(const mr__spec *s, mr__error *err)
+{
+    int link = mr__spec_link(s);
+    if (s->outcome == NULL) return mr__fail(err, MR_ERR_USAGE, "model: no outcome column (outcome COL)");
+    if (!mr__link_allowed((mr_family)s->family, (mr_link)link))
+        return mr__fail(err, MR_ERR_USAGE, "model: the %s family does not take the %s link",
+                        mr__family_name((mr_family)s->family), mr__link_name((mr_link)link));
+    if (s->trials != NULL && s->family != MR_BINOMIAL)
+        return mr__fail(err, MR_ERR_USAGE, "model: trials is for the binomial family only");
+    if (s->offset != NULL && s->exposure != NULL && strcmp(s->offset, s->exposure) == 0)
+        return mr__fail(err, MR_ERR_USAGE, "model: '%s' is both offset and exposure", s->offset);
+    if (s->exposure != NULL && link != MR_LOG)
+        return mr__fail(err, MR_ERR_USAGE,
+                        "model: exposure adds log(%s) to the linear predictor, which is a rate only under "
+                        "the log link (use offset for other links)",
+                        s->exposure);
+    if (!s->intercept && s->ncov == 0)
+        return mr__fail(err, MR_ERR_USAGE, "model: no intercept and no covariates: nothing to fit");
+    return validate_interactions(s, err);
+}

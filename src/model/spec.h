@@ -1,0 +1,56 @@
+/* spec.h - a model as the analyst wrote it: directives from the model file
+ * and the command line, before any data is seen.  Column names are checked
+ * against the file header later (see columns.h). */
+#ifndef MR_SPEC_H
+#define MR_SPEC_H
+
+#include <stddef.h>
+#include "common/error.h"
+
+#define MR__MAX_INTERACT 3
+
+typedef enum mr__role { MR__ROLE_NUMERIC = 1, MR__ROLE_FACTOR = 2 } mr__role;
+
+typedef struct mr__covariate {
+    char *name;
+    mr__role role;
+    char *ref; /* reference level of a factor, NULL = first in sorted order */
+} mr__covariate;
+
+typedef struct mr__interaction {
+    int n;
+    char *name[MR__MAX_INTERACT];
+} mr__interaction;
+
+typedef struct mr__spec {
+    char *outcome, *trials, *offset, *exposure, *weight;
+    int family;     /* mr_family */
+    int link;       /* mr_link, or -1 for the family's canonical link */
+    int intercept;  /* 1 unless "intercept no" */
+    int dispersion; /* -1 = family default, 0 = fixed at 1, 1 = estimate */
+    mr__covariate *cov;
+    size_t ncov, capcov;
+    mr__interaction *inter;
+    size_t ninter, capinter;
+} mr__spec;
+
+void mr__spec_init(mr__spec *s);
+void mr__spec_release(mr__spec *s);
+
+/* Applies one directive line (comments and blank lines are accepted and do
+ * nothing).  `origin` prefixes error messages ("falls.model:3"). */
+mr_status mr__spec_line(mr__spec *s, const char *line, const char *origin, mr__error *err);
+mr_status mr__spec_file(mr__spec *s, const char *path, mr__error *err);
+
+/* Checks the whole model once every line is in: an outcome, a supported
+ * family/link pair, interactions naming declared covariates, and so on. */
+mr_status mr__spec_validate(const mr__spec *s, mr__error *err);
+
+/* The link in force (resolves -1 to the canonical link). */
+int mr__spec_link(const mr__spec *s);
+/* 1 if the dispersion is estimated (Pearson), 0 if fixed at 1. */
+int mr__spec_dispersion_estimated(const mr__spec *s);
+
+const mr__covariate *mr__spec_find(const mr__spec *s, const char *name);
+
+#endif

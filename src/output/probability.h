@@ -1,0 +1,19 @@
+/* probability.h - the few distribution functions a coefficient table needs:
+ * normal and Student t tail areas and quantiles (Wald tests and intervals),
+ * and the chi-square upper tail (deviance goodness of fit). */
+#ifndef MR_PROBABILITY_H
+#define MR_PROBABILITY_H
+
+double mr__normal_cdf(double x);            /* P(Z <= x) */
+double mr__normal_sf(double x);             /* P(Z > x), accurate far in the tail */
+double mr__normal_quantile(double p);       /* inverse cdf, 0<p<1; NaN outside */
+double mr__t_sf(double t, double df);       /* P(T > t), df > 0 (may be non-integer) */
+double mr__t_quantile(double p, double df); /* inverse cdf of T, 0<p<1 */
+double mr__chisq_sf(double x, double df);   /* P(X > x) */
+
+/* Regularized incomplete beta I_x(a, b) and regularized upper incomplete
+ * gamma Q(a, x), exposed for tests. */
+double mr__incbeta(double a, double b, double x);
+double mr__gamma_q(double a, double x);
+
+#endif

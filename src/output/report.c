@@ -1,0 +1,154 @@
+/* report.c - the plain-text fit report.  The layout is millrace's own:
+ * what was read, what was fitted, how it converged, one line per
+ * coefficient, then the fit statistics and every warning. */
+#include <math.h>
+#include <stdio.h>
+#include <string.h>
+
+#include "common/strbuf.h"
+#include "family/family.h"
+#include "fit/fit.h"
+
+#define DEFAULT_DIGITS 6
+
+static const char *delimiter_name(char d)
+{
+    switch (d) {
+    case '\t': return "tab";
+    case ';': return "';'";
+    default: return "','";
+    }
+}
+
+static void put_number(mr__strbuf *b, double x, int digits, int width)
+{
+    if (isnan(x)) mr__strbuf_printf(b, " %*s", width, "-");
+    else mr__strbuf_printf(b, " %*.*g", width, digits, x);
+}
+
+static void put_pvalue(mr__strbuf *b, double p, int width)
+{
+    if (isnan(p)) mr__strbuf_printf(b, " %*s", width, "-");
+    else if (p < 1e-16) mr__strbuf_printf(b, " %*s", width, "<1e-16");
+    else mr__strbuf_printf(b, " %*.3g", width, p);
+}
+
+static void section_data(mr__strbuf *b, const mr_fit *f)
+{
+    size_t i;
+    mr__strbuf_printf(b, "data       %s (%s, %llu bytes read", f->path, f->zstd ? "zstd" : "plain text",
+                      (unsigned long long)f->bytes);
+    if (f->zstd) mr__strbuf_printf(b, ", %llu bytes of text", (unsigned long long)f->decompressed_bytes);
+    mr__strbuf_printf(b, ")\n           checksum fnv1a64:%016llx, delimiter %s (%s)\n", (unsigned long long)f->checksum,
+                      delimiter_name(f->delimiter), f->delimiter_detected ? "detected from the header" : "as given");
+    mr__strbuf_printf(b, "rows       %llu read, %llu used, %llu left out\n", (unsigned long long)f->rows_read,
+                      (unsigned long long)f->rows_used, (unsigned long long)(f->rows_read - f->rows_used));
+    for (i = 0; i < f->nmissing; i++)
+        mr__strbuf_printf(b, "           %llu with '%s' missing\n", (unsigned long long)f->missing_count[i],
+                          f->missing_name[i]);
+    if (f->rows_bad) mr__strbuf_printf(b, "           %llu malformed, skipped; the first:\n", (unsigned long long)f->rows_bad);
+    for (i = 0; i < f->nbad_examples; i++) mr__strbuf_printf(b, "             %s\n", f->bad_example[i]);
+    if (f->zero_weight) mr__strbuf_printf(b, "           %llu used rows have weight 0\n", (unsigned long long)f->zero_weight);
+}
+
+static void section_model(mr__strbuf *b, const mr_fit *f)
+{
+    size_t i;
+    mr__strbuf_printf(b, "model      %s family, %s link, %zu coefficients (rank %zu)%s\n",
+                      mr__family_name((mr_family)f->family), mr__link_name((mr_link)f->link), f->p, f->rank,
+                      f->intercept ? "" : ", no intercept");
+    mr__strbuf_printf(b, "           outcome %s", f->outcome);
+    if (f->trials) mr__strbuf_printf(b, " out of %s trials", f->trials);
+    if (f->exposure) mr__strbuf_printf(b, ", exposure log(%s)", f->exposure);
+    if (f->offset) mr__strbuf_printf(b, ", offset %s", f->offset);
+    if (f->weight) mr__strbuf_printf(b, ", prior weight %s", f->weight);
+    mr__strbuf_printf(b, "\n           terms:");
+    for (i = 0; i < f->nterms; i++) mr__strbuf_printf(b, "%s %s", i ? "," : "", f->terms[i]);
+    if (f->nterms == 0) mr__strbuf_printf(b, " intercept only");
+    mr__strbuf_printf(b, "\n");
+    for (i = 0; i < f->nfactors; i++)
+        mr__strbuf_printf(b, "           factor %s: %zu levels, reference %s\n", f->factor[i].name,
+                          f->factor[i].nlevels, f->factor[i].reference);
+}
+
+static void section_convergence(mr__strbuf *b, const mr_fit *f)
+{
+    mr__strbuf_printf(b, "fit        %s after %d IRLS passes (%d reads of the data%s)\n",
+                      f->converged ? "converged" : "NOT CONVERGED", f->iterations, f->passes,
+                      f->in_memory ? ", later passes from memory" : "");
+    mr__strbuf_printf(b, "           last relative deviance change %.3g (tolerance %.3g)", f->rel_change, f->tolerance);
+    if (f->halvings) mr__strbuf_printf(b, ", %d step halvings", f->halvings);
+    mr__strbuf_printf(b, "\n           %.3f s, %.3f s per pass, %.0f rows/s, %d threads\n", f->seconds,
+                      f->passes ? f->seconds / f->passes : 0.0, f->rows_per_second, f->threads);
+}
+
+static size_t name_width(const mr_fit *f)
+{
+    size_t j, w = 11;
+    for (j = 0; j < f->p; j++)
+        if (strlen(f->name[j]) > w) w = strlen(f->name[j]);
+    return w > 48 ? 48 : w;
+}
+
+static void section_coefficients(mr__strbuf *b, const mr_fit *f, int digits)
+{
+    const char *ratio = mr__fit_ratio_label(f), *stat = mr__fit_statistic_name(f);
+    int w = (int)name_width(f), nw = digits + 7;
+    size_t j;
+    mr__strbuf_printf(b, "\ncoefficients: Wald %s tests and %g%% intervals%s%s%s\n", stat, 100 * f->level,
+                      ratio ? "; " : "", ratio ? ratio : "", ratio ? " = exp(estimate)" : "");
+    mr__strbuf_printf(b, "  %-*s %*s %*s %8s %9s %*s %*s", w, "coefficient", nw, "estimate", nw, "std.error", stat,
+                      "p", nw, "low", nw, "high");
+    if (ratio) mr__strbuf_printf(b, " %*s %*s %*s", nw, "ratio", nw, "low", nw, "high");
+    mr__strbuf_printf(b, "\n");
+    for (j = 0; j < f->p; j++) {
+        mr__strbuf_printf(b, "  %-*s", w, f->name[j]);
+        if (f->aliased[j]) {
+            mr__strbuf_printf(b, " %*s\n", nw, "aliased");
+            continue;
+        }
+        put_number(b, f->beta[j], digits, nw);
+        put_number(b, f->se[j], digits, nw);
+        mr__strbuf_printf(b, " %8.3f", f->stat[j]);
+        put_pvalue(b, f->pval[j], 9);
+        put_number(b, f->lo[j], digits, nw);
+        put_number(b, f->hi[j], digits, nw);
+        if (ratio) {
+            put_number(b, exp(f->beta[j]), digits, nw);
+            put_number(b, exp(f->lo[j]), digits, nw);
+            put_number(b, exp(f->hi[j]), digits, nw);
+        }
+        mr__strbuf_printf(b, "\n");
+    }
+}
+
+static void section_statistics(mr__strbuf *b, const mr_fit *f, int digits)
+{
+    mr__strbuf_printf(b, "\nstatistics\n");
+    mr__strbuf_printf(b, "  deviance            %.*g on %.0f df\n", digits + 2, f->deviance, f->df_residual);
+    mr__strbuf_printf(b, "  null deviance       %.*g on %.0f df\n", digits + 2, f->null_deviance, f->df_null);
+    mr__strbuf_printf(b, "  pearson chi-square  %.*g\n", digits + 2, f->pearson);
+    mr__strbuf_printf(b, "  dispersion          %.*g (%s)\n", digits + 2, f->dispersion,
+                      f->dispersion_estimated ? "estimated: pearson chi-square / residual df" : "fixed");
+    mr__strbuf_printf(b, "  log-likelihood      %.*g\n", digits + 2, f->loglik);
+    mr__strbuf_printf(b, "  AIC                 %.*g\n", digits + 2, f->aic);
+    mr__strbuf_printf(b, "  BIC                 %.*g\n", digits + 2, f->bic);
+}
+
+char *mr_fit_report(const mr_fit *f, int digits)
+{
+    mr__strbuf b;
+    size_t i;
+    if (digits <= 0) digits = DEFAULT_DIGITS;
+    if (digits > 17) digits = 17;
+    mr__strbuf_init(&b);
+    mr__strbuf_printf(&b, "millrace %s fit report\n\n", MR_VERSION_STRING);
+    section_data(&b, f);
+    section_model(&b, f);
+    section_convergence(&b, f);
+    section_coefficients(&b, f, digits);
+    section_statistics(&b, f, digits);
+    if (f->nwarnings) mr__strbuf_printf(&b, "\nwarnings\n");
+    for (i = 0; i < f->nwarnings; i++) mr__strbuf_printf(&b, "  ! %s\n", f->warning[i]);
+    return mr__strbuf_take(&b);
+}

@@ -1,0 +1,101 @@
+#include <lapacke.h>
+#include <math.h>
+#include <string.h>
+
+#include "common/alloc.h"
+#include "solve/normal_eq.h"
+
+static double upper(const double *G, size_t p, size_t i, size_t j)
+{
+    return i <= j ? G[j * p + i] : G[i * p + j];
+}
+
+/* Left-looking Cholesky that skips aliased columns; L is scratch p x p. */
+static size_t find_aliased(const double *G, size_t p, int *aliased, double *L)
+{
+    size_t i, j, k, rank = 0;
+    memset(L, 0, p * p * sizeof *L);
+    for (j = 0; j < p; j++) {
+        double gjj = upper(G, p, j, j), d = gjj;
+        for (k = 0; k < j; k++)
+            if (!aliased[k]) d -= L[k * p + j] * L[k * p + j];
+        aliased[j] = !(gjj > 0) || !(d > MR__ALIAS_TOLERANCE * gjj);
+        if (aliased[j]) continue;
+        rank++;
+        L[j * p + j] = sqrt(d);
+        for (i = j + 1; i < p; i++) {
+            double s = upper(G, p, j, i);
+            for (k = 0; k < j; k++)
+                if (!aliased[k]) s -= L[k * p + i] * L[k * p + j];
+            L[j * p + i] = s / L[j * p + j];
+        }
+    }
+    return rank;
+}
+
+static void residual(const double *G, const double *v, size_t p, const size_t *keep, size_t r, const double *b,
+                     double *res)
+{
+    size_t a, c;
+    for (a = 0; a < r; a++) {
+        long double s = v[keep[a]];
+        for (c = 0; c < r; c++) s -= (long double)upper(G, p, keep[a], keep[c]) * b[c];
+        res[a] = (double)s;
+    }
+}
+
+mr_status mr__solve_normal(const double *G, const double *v, size_t p, double *beta, int *aliased, size_t *rank,
+                           double *inv, mr__error *err)
+{
+    double *L = mr__malloc_array(p * p, sizeof *L), *Gs = NULL, *b = NULL, *res = NULL;
+    size_t *keep = NULL, r, a, c;
+    mr_status st = MR_OK;
+    if (L == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    r = find_aliased(G, p, aliased, L);
+    *rank = r;
+    Gs = mr__malloc_array(r * r + 1, sizeof *Gs);
+    b = mr__malloc_array(r + 1, sizeof *b);
+    res = mr__malloc_array(r + 1, sizeof *res);
+    keep = mr__malloc_array(r + 1, sizeof *keep);
+    if (!Gs || !b || !res || !keep) {
+        st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        goto done;
+    }
+    for (a = 0, c = 0; c < p; c++)
+        if (!aliased[c]) keep[a++] = c;
+    for (c = 0; c < r; c++) {
+        for (a = 0; a < r; a++) Gs[c * r + a] = upper(G, p, keep[a], keep[c]);
+        b[c] = v[keep[c]];
+    }
+    memset(beta, 0, p * sizeof *beta);
+    if (r > 0) {
+        if (LAPACKE_dpotrf(LAPACK_COL_MAJOR, 'U', (lapack_int)r, Gs, (lapack_int)r) != 0 ||
+            LAPACKE_dpotrs(LAPACK_COL_MAJOR, 'U', (lapack_int)r, 1, Gs, (lapack_int)r, b, (lapack_int)r) != 0) {
+            st = mr__fail(err, MR_ERR_NUMERIC, "the weighted normal equations are not positive definite");
+            goto done;
+        }
+        /* One refinement step recovers the digits the factorisation lost. */
+        residual(G, v, p, keep, r, b, res);
+        LAPACKE_dpotrs(LAPACK_COL_MAJOR, 'U', (lapack_int)r, 1, Gs, (lapack_int)r, res, (lapack_int)r);
+        for (a = 0; a < r; a++) beta[keep[a]] = b[a] + res[a];
+    }
+    if (inv != NULL) {
+        memset(inv, 0, p * p * sizeof *inv);
+        if (r > 0 && LAPACKE_dpotri(LAPACK_COL_MAJOR, 'U', (lapack_int)r, Gs, (lapack_int)r) != 0) {
+            st = mr__fail(err, MR_ERR_NUMERIC, "the weighted normal equations could not be inverted");
+            goto done;
+        }
+        for (c = 0; c < r; c++)
+            for (a = 0; a <= c; a++) {
+                inv[keep[c] * p + keep[a]] = Gs[c * r + a];
+                inv[keep[a] * p + keep[c]] = Gs[c * r + a];
+            }
+    }
+done:
+    mr__free(L);
+    mr__free(Gs);
+    mr__free(b);
+    mr__free(res);
+    mr__free(keep);
+    return st;
+}

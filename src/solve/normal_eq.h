@@ -1,0 +1,28 @@
+/* normal_eq.h - solving the p x p weighted normal equations X'WX b = X'Wz.
+ *
+ * Columns are taken in order; a column whose part not explained by the
+ * earlier kept columns is below a relative tolerance is aliased (a linear
+ * combination of earlier ones): it gets no coefficient and the rest is
+ * solved without it, never a garbage number.  The kept system is solved by
+ * LAPACK's Cholesky (dpotrf/dpotrs) with one step of iterative refinement,
+ * and inverted with dpotri for the covariance. */
+#ifndef MR_NORMAL_EQ_H
+#define MR_NORMAL_EQ_H
+
+#include <stddef.h>
+#include "common/error.h"
+
+/* Relative size of the unexplained part of a column, in squared terms,
+ * below which it counts as aliased: 1e-10 corresponds to a column whose
+ * residual norm is below 1e-5 of its norm once the model is centred and
+ * scaled. */
+#define MR__ALIAS_TOLERANCE 1e-10
+
+/* G: p x p, upper triangle used, column-major; v: p.  On MR_OK: beta (p)
+ * with 0 for aliased columns, aliased[j] (0/1), *rank, and when inv is not
+ * NULL the inverse of the kept part of G scattered into a full p x p
+ * matrix (zero rows/columns for aliased ones). */
+mr_status mr__solve_normal(const double *G, const double *v, size_t p, double *beta, int *aliased, size_t *rank,
+                           double *inv, mr__error *err);
+
+#endif
