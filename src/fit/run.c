@@ -20,6 +20,7 @@ void openblas_set_num_threads(int num_threads);
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include "accum/pass.h"
@@ -47,11 +48,13 @@ static mr_status bind_header(mr__run *r, const char *line, size_t len, mr__error
 {
     char **names = NULL;
     size_t n = 0;
+    mr_status st;
     r->delim = r->f->delimiter ? (char)r->f->delimiter : mr__detect_delimiter(line, len);
     r->delim_detected = r->f->delimiter == 0;
     MR__TRY(mr__parse_header(line, len, r->delim, &names, &n, r->display, err));
-    MR__TRY(mr__bind(&r->bind, &r->f->spec, names, n, r->display, err));
-    r->bound = 1;
+    st = mr__bind(&r->bind, &r->f->spec, names, n, r->display, err);
+    r->bound = 1; /* the binding owns the names now, even when it failed */
+    if (st != MR_OK) return st;
     r->dcfg.bind = &r->bind;
     r->dcfg.family = r->f->spec.family;
     r->dcfg.skip_bad = r->f->skip_bad;
@@ -127,6 +130,10 @@ static mr_status open_spool(mr__run *r, mr__error *err)
     if (r->spool_fd < 0)
         return mr__fail(err, MR_ERR_IO, "cannot create a temporary file in %s to keep standard input: %s", dir,
                         strerror(errno));
+    /* Unlinked at once, so that nothing is left behind however the process
+     * ends; later passes reopen it through the descriptor. */
+    unlink(r->spool);
+    snprintf(r->spool, sizeof r->spool, "/proc/self/fd/%d", r->spool_fd);
     return MR_OK;
 }
 
@@ -139,15 +146,18 @@ static mr_status scan_pass(mr__run *r, mr__error *err)
         c.tee_fd = r->spool_fd;
     }
     st = mr__pass_run(&c, &r->first, err);
-    if (r->spool_fd >= 0) {
-        close(r->spool_fd);
-        r->spool_fd = -1;
-        r->read_path = r->spool;
-    }
+    if (r->spool_fd >= 0) r->read_path = r->spool;
     if (st != MR_OK) return st;
     r->size = r->first.size;
     r->mtime_ns = r->first.mtime_ns;
     r->raw_bytes = r->first.raw_bytes;
+    if (r->read_path == r->spool) {
+        struct stat sb;
+        if (stat(r->spool, &sb) != 0)
+            return mr__fail(err, MR_ERR_IO, "cannot reread the copy of standard input: %s", strerror(errno));
+        r->size = (uint64_t)sb.st_size;
+        r->mtime_ns = (int64_t)sb.st_mtim.tv_sec * 1000000000 + sb.st_mtim.tv_nsec;
+    }
     return note_pass(r, &r->first, err);
 }
 
@@ -365,7 +375,6 @@ static void release_run(mr__run *r)
     mr__store_release(&r->store);
     if (r->bound) mr__binding_release(&r->bind);
     if (r->spool_fd >= 0) close(r->spool_fd);
-    if (r->spool[0]) unlink(r->spool);
 }
 
 static mr_status allocate_coefficients(mr__run *r, mr__error *err)
