@@ -16,8 +16,9 @@ enum { N_FAMILIES = 5, N_LINKS = 8 };
 
 static const char *const FAMILY_NAMES[N_FAMILIES] = {"gaussian", "binomial", "poisson", "gamma",
                                                      "inverse-gaussian"};
-static const char *const LINK_NAMES[N_LINKS] = {"identity", "log",     "inverse", "logit",
-                                                "probit",   "cloglog", "sqrt",    "inverse-squared"};
+static const char *const LINK_NAMES[N_LINKS] = {"identity", "log",    "inverse",
+                                                "logit",    "probit", "cloglog",
+                                                "sqrt",     "inverse-squared"};
 
 /* The supported pairs, as listed in millrace.h; rows are families, columns
  * links in enum order: identity log inverse logit probit cloglog sqrt inv^2. */
@@ -123,9 +124,9 @@ int mr__family_mu_valid(mr_family f, double mu)
     }
 }
 
-/* Only what the link itself needs for g^-1(eta) to exist and be finite:
- * inverse needs eta != 0, sqrt and inverse-squared eta > 0 (sqrt because
- * mu = eta^2 would otherwise map two predictors to one mean).  Whether the
+/* Only what the link itself needs: eta must lie in the range of g.  Hence
+ * inverse needs eta != 0, inverse-squared eta > 0, and sqrt eta > 0 (for
+ * eta < 0, eta^2 is a mean whose g is -eta, not eta).  Whether the
  * family needs mu > 0 (gamma or inverse-gaussian with the inverse link,
  * poisson or gamma with identity) depends on the family, which this
  * signature does not carry: check mr__family_mu_valid on g^-1(eta) too. */

@@ -1,10 +1,13 @@
 /* probability.c - normal, Student t and chi-square tail areas and quantiles.
  *
- * Accuracy goal: about 1e-15 relative for the normal functions and 1e-13 or
- * better for t and chi-square, including far tails, so that a p-value such
- * as 1e-200 is printed correctly rather than as 0 or as noise.
+ * Accuracy: a few ulp for the normal functions; about 1e-14 relative for t
+ * and chi-square, growing like |log p| * DBL_EPSILON in far tails (the
+ * exponent of the density cannot be held more exactly in a double).  Far
+ * tails matter: a p-value of 1e-200 should print as that, not as 0.
  */
+#ifndef _DEFAULT_SOURCE
 #define _DEFAULT_SOURCE /* lgamma_r: plain lgamma writes the global signgam */
+#endif
 
 #include "probability.h"
 
@@ -27,7 +30,7 @@ static const double LN_SQRT_2PI = 0.918938533204672741780329736405617640;
 static const double LARGE_SHAPE = 100.0;
 
 /* Continued fractions and series below LARGE_SHAPE converge in a few
- * hundred terms; this only bounds the work on NaN-like input. */
+ * hundred terms; this only bounds the work for extreme parameters. */
 enum { MAX_TERMS = 100000 };
 
 /* ------------------------------------------------------------------ */
@@ -85,10 +88,11 @@ static double acklam_lower(double q)
     return polyval(ACKLAM_A, 6, s) * r / (polyval(ACKLAM_B, 5, s) * s + 1.0);
 }
 
-/* One Halley step for Phi(z) = q, z <= 0.  Near the centre the residual is
- * formed from erf and q - 0.5 (exact for q >= 0.25) so that it keeps its
- * relative accuracy when z is tiny.  In the tail the ratio q / phi(z) is
- * taken through logarithms because phi(z) underflows before q does. */
+/* One Halley step for Phi(z) = q, z <= 0.  Away from the tail the residual
+ * is formed from erf and q - 0.5 (exact for q >= 0.25, which covers the
+ * tiny z) so that it keeps its relative accuracy as z goes to 0.  In the
+ * tail the ratio q / phi(z) is taken through logarithms because phi(z)
+ * underflows before q does. */
 static double halley_lower(double z, double q)
 {
     double u;
@@ -201,8 +205,10 @@ static double exp_sinh_node(exponent_fn phi, const void *ctx, double scale, doub
     return h * 0.5 * PI * cosh(tau) * exp(-phi(h, ctx));
 }
 
-/* Integral over (0, inf) of exp(-phi(h)), for phi(0) = 0 and phi growing
- * at least linearly; `scale` is the width of the integrand near h = 0.
+/* Integral over (0, inf) of exp(-phi(h)) for increasing phi with
+ * phi(0) = 0 and exp(-phi) decaying at least like a high power of h (as in
+ * both uses, shapes > LARGE_SHAPE); `scale` is the width of the integrand
+ * near h = 0.
  * Steps are halved until two estimates agree to 1e-10, after which the next
  * one is accurate to rounding (the error squares with each halving). */
 static double exp_sinh_integral(exponent_fn phi, const void *ctx, double scale)

@@ -1,0 +1,498 @@
+/* check_family.c - tests of src/family/family.c.
+ *
+ * Everything here is checked against something the library does not
+ * compute itself: analytic identities (g^-1(g(mu)) = mu, dmu/deta against a
+ * finite difference, deviance against the log density written out below),
+ * the definitions of the variance functions, and the table of supported
+ * pairs in include/millrace.h.
+ */
+#include <check.h>
+#include <float.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "family/family.h"
+
+#define N_OF(a) (sizeof(a) / sizeof((a)[0]))
+
+static const double PI = 3.14159265358979323846264338327950288;
+
+static const mr_family FAMILIES[] = {MR_GAUSSIAN, MR_BINOMIAL, MR_POISSON, MR_GAMMA,
+                                     MR_INVERSE_GAUSSIAN};
+static const mr_link LINKS[] = {MR_IDENTITY, MR_LOGIT,   MR_PROBIT, MR_CLOGLOG,
+                                MR_LOG,      MR_INVERSE, MR_SQRT,   MR_INVERSE_SQUARED};
+
+/* The pairs listed in include/millrace.h, canonical link first. */
+typedef struct pair_spec {
+    mr_family family;
+    mr_link links[5];
+    int nlinks;
+} pair_spec;
+
+static const pair_spec PAIRS[] = {
+    {MR_GAUSSIAN, {MR_IDENTITY, MR_LOG, MR_INVERSE}, 3},
+    {MR_BINOMIAL, {MR_LOGIT, MR_PROBIT, MR_CLOGLOG, MR_LOG}, 4},
+    {MR_POISSON, {MR_LOG, MR_IDENTITY, MR_SQRT}, 3},
+    {MR_GAMMA, {MR_INVERSE, MR_IDENTITY, MR_LOG}, 3},
+    {MR_INVERSE_GAUSSIAN, {MR_INVERSE_SQUARED, MR_INVERSE, MR_IDENTITY, MR_LOG}, 4},
+};
+
+/* Means spread over the whole range, including 1e-12 and 1 - 1e-10 for the
+ * probability links (still inside the [eps, 1-eps] clamp). */
+static const double MU_GRID[] = {-1e4, -3.5, -1.0, -0.2, 0.0,  1e-12,       1e-6,
+                                 0.01, 0.2,  0.5,  0.77, 0.99, 1.0 - 1e-6,  1.0 - 1e-10,
+                                 1.0,  2.5,  40.0, 1e4,  1e8};
+
+/* Where g is defined and invertible, written from the link definitions. */
+static int in_link_domain(mr_link l, double mu)
+{
+    switch (l) {
+    case MR_IDENTITY: return 1;
+    case MR_INVERSE: return mu != 0.0;
+    case MR_LOG:
+    case MR_SQRT:
+    case MR_INVERSE_SQUARED: return mu > 0.0;
+    case MR_LOGIT:
+    case MR_PROBIT:
+    case MR_CLOGLOG: return mu > 0.0 && mu < 1.0;
+    }
+    return 0;
+}
+
+/* The family's own mean space, from the definitions of the families. */
+static int in_family_range(mr_family f, double mu)
+{
+    switch (f) {
+    case MR_GAUSSIAN: return 1;
+    case MR_BINOMIAL: return mu > 0.0 && mu < 1.0;
+    case MR_POISSON:
+    case MR_GAMMA:
+    case MR_INVERSE_GAUSSIAN: return mu > 0.0;
+    }
+    return 0;
+}
+
+static int usable_mu(mr_family f, mr_link l, double mu)
+{
+    return in_family_range(f, mu) && in_link_domain(l, mu);
+}
+
+/* ------------------------------------------------------------------ */
+/* (a) g^-1(g(mu)) = mu                                                 */
+
+START_TEST(link_round_trip)
+{
+    for (size_t p = 0; p < N_OF(PAIRS); p++)
+        for (int k = 0; k < PAIRS[p].nlinks; k++) {
+            mr_family f = PAIRS[p].family;
+            mr_link l = PAIRS[p].links[k];
+            for (size_t i = 0; i < N_OF(MU_GRID); i++) {
+                double mu = MU_GRID[i];
+                if (!usable_mu(f, l, mu))
+                    continue;
+                double back = mr__link_inv(l, mr__link_fun(l, mu));
+                /* Analytic identity: g^-1 is the inverse of g. */
+                ck_assert_msg(fabs(back - mu) <= 1e-12 * fabs(mu), "%s/%s: g^-1(g(%.17g)) = %.17g",
+                              mr__family_name(f), mr__link_name(l), mu, back);
+            }
+        }
+}
+END_TEST
+
+/* ------------------------------------------------------------------ */
+/* (b) dmu/deta against a central difference of g^-1                    */
+
+/* Step for the central difference, whose truncation error is
+ * h^2 f'''/(6 f').  For the exponential-type links f'''/f' stays below
+ * ~eta^2 ~ 40 on this grid, so an absolute 1e-5 suffices; for the power
+ * links it scales as 1/eta^2, so the step is relative. */
+static double fd_step(mr_link l, double eta)
+{
+    switch (l) {
+    case MR_LOG:
+    case MR_LOGIT:
+    case MR_PROBIT:
+    case MR_CLOGLOG: return 1e-5;
+    default: return eta != 0.0 ? 1e-5 * fabs(eta) : 1e-5;
+    }
+}
+
+START_TEST(mu_eta_matches_finite_difference)
+{
+    for (size_t j = 0; j < N_OF(LINKS); j++) {
+        mr_link l = LINKS[j];
+        for (size_t i = 0; i < N_OF(MU_GRID); i++) {
+            double mu0 = MU_GRID[i];
+            if (!in_link_domain(l, mu0))
+                continue;
+            double eta = mr__link_fun(l, mu0);
+            double h = fd_step(l, eta);
+            double up = mr__link_inv(l, eta + h), down = mr__link_inv(l, eta - h);
+            double fd = (up - down) / (2.0 * h);
+            double analytic = mr__link_mu_eta(l, eta);
+            /* 1e-8 relative for truncation (the h^2 term is below 1e-9),
+             * plus the rounding of the two means (a few ulp) over the step. */
+            double tol = 1e-8 * fabs(analytic) + 8.0 * DBL_EPSILON * fmax(fabs(up), fabs(down)) / h;
+            ck_assert_msg(fabs(fd - analytic) <= tol, "%s at eta=%.17g: mu_eta %.17g, fd %.17g",
+                          mr__link_name(l), eta, analytic, fd);
+        }
+    }
+}
+END_TEST
+
+START_TEST(extreme_eta_stays_finite)
+{
+    /* Far past separation: no overflow, probabilities within [eps, 1-eps],
+     * derivatives floored at eps (the documented safeguard). */
+    static const mr_link prob_links[] = {MR_LOGIT, MR_PROBIT, MR_CLOGLOG};
+    static const double etas[] = {-1e308, -1000.0, -40.0, 40.0, 1000.0, 1e308};
+    for (size_t j = 0; j < N_OF(prob_links); j++)
+        for (size_t i = 0; i < N_OF(etas); i++) {
+            double mu = mr__link_inv(prob_links[j], etas[i]);
+            double d = mr__link_mu_eta(prob_links[j], etas[i]);
+            ck_assert_msg(mu >= DBL_EPSILON && mu <= 1.0 - DBL_EPSILON, "%s mu(%g) = %g",
+                          mr__link_name(prob_links[j]), etas[i], mu);
+            ck_assert_msg(d >= DBL_EPSILON && isfinite(d), "%s mu_eta(%g) = %g",
+                          mr__link_name(prob_links[j]), etas[i], d);
+        }
+    ck_assert(mr__link_inv(MR_LOG, -1000.0) == DBL_EPSILON);
+    ck_assert(mr__link_mu_eta(MR_LOG, -1000.0) == DBL_EPSILON);
+    /* logistic(0) = 1/2 and its slope 1/4; Phi(0) = 1/2, phi(0) = 1/sqrt(2 pi);
+     * cloglog: 1 - exp(-1) at eta = 0 with slope exp(-1). */
+    ck_assert(mr__link_inv(MR_LOGIT, 0.0) == 0.5);
+    ck_assert(mr__link_mu_eta(MR_LOGIT, 0.0) == 0.25);
+    ck_assert(mr__link_inv(MR_PROBIT, 0.0) == 0.5);
+    ck_assert(fabs(mr__link_mu_eta(MR_PROBIT, 0.0) - 1.0 / sqrt(2.0 * PI)) < 1e-16);
+    ck_assert(fabs(mr__link_inv(MR_CLOGLOG, 0.0) - (1.0 - exp(-1.0))) < 1e-16);
+    ck_assert(fabs(mr__link_mu_eta(MR_CLOGLOG, 0.0) - exp(-1.0)) < 1e-16);
+}
+END_TEST
+
+/* ------------------------------------------------------------------ */
+/* (c) variance functions                                               */
+
+START_TEST(variance_known_points)
+{
+    /* V(mu) = 1, mu(1-mu), mu, mu^2, mu^3 by definition of the families. */
+    ck_assert(mr__family_variance(MR_GAUSSIAN, 7.5) == 1.0);
+    ck_assert(mr__family_variance(MR_BINOMIAL, 0.25) == 0.1875);
+    ck_assert(mr__family_variance(MR_BINOMIAL, 0.5) == 0.25);
+    ck_assert(mr__family_variance(MR_POISSON, 3.0) == 3.0);
+    ck_assert(mr__family_variance(MR_GAMMA, 3.0) == 9.0);
+    ck_assert(mr__family_variance(MR_INVERSE_GAUSSIAN, 3.0) == 27.0);
+    ck_assert(mr__family_variance(MR_INVERSE_GAUSSIAN, 0.5) == 0.125);
+}
+END_TEST
+
+/* ------------------------------------------------------------------ */
+/* (d) deviance = 2 (l(y; y) - l(y; mu)) from the log densities         */
+
+static double xlogy(double x, double y)
+{
+    return x == 0.0 ? 0.0 : x * log(y);
+}
+
+/* x log(1 + y): log(1 - mu) without rounding 1 - mu first. */
+static double xlog1py(double x, double y)
+{
+    return x == 0.0 ? 0.0 : x * log1p(y);
+}
+
+/* Log density (or mass) of one observation with prior weight 1 and unit
+ * dispersion, written from the distributions' textbook forms:
+ * normal(mu, 1); Bernoulli/binomial proportion with one trial; Poisson(mu);
+ * gamma with shape 1 (exponential with mean mu); inverse Gaussian with
+ * mean mu and shape 1. */
+static double log_density(mr_family f, double y, double mu)
+{
+    switch (f) {
+    case MR_GAUSSIAN: return -0.5 * log(2.0 * PI) - 0.5 * (y - mu) * (y - mu);
+    case MR_BINOMIAL: return xlogy(y, mu) + xlog1py(1.0 - y, -mu);
+    case MR_POISSON: return xlogy(y, mu) - mu - lgamma(y + 1.0);
+    case MR_GAMMA: return -log(mu) - y / mu;
+    case MR_INVERSE_GAUSSIAN:
+        return -0.5 * log(2.0 * PI * y * y * y) - (y - mu) * (y - mu) / (2.0 * mu * mu * y);
+    }
+    return NAN;
+}
+
+static const double Y_GRID[] = {-4.0, 0.0, 1e-9, 0.03, 0.3, 0.5, 0.9, 1.0, 2.0, 5.0, 60.0};
+static const double DEV_MU_GRID[] = {-2.0, 1e-6, 0.02, 0.25, 0.5, 0.6, 0.97, 1.5, 4.0, 100.0};
+
+static int y_in_support(mr_family f, double y)
+{
+    switch (f) {
+    case MR_GAUSSIAN: return 1;
+    case MR_BINOMIAL: return y >= 0.0 && y <= 1.0;
+    case MR_POISSON: return y >= 0.0;
+    case MR_GAMMA:
+    case MR_INVERSE_GAUSSIAN: return y > 0.0;
+    }
+    return 0;
+}
+
+START_TEST(deviance_is_twice_loglik_difference)
+{
+    for (size_t k = 0; k < N_OF(FAMILIES); k++) {
+        mr_family f = FAMILIES[k];
+        for (size_t i = 0; i < N_OF(Y_GRID); i++)
+            for (size_t j = 0; j < N_OF(DEV_MU_GRID); j++) {
+                double y = Y_GRID[i], mu = DEV_MU_GRID[j];
+                if (!y_in_support(f, y) || !in_family_range(f, mu))
+                    continue;
+                double lyy = log_density(f, y, y), lym = log_density(f, y, mu);
+                double want = 2.0 * (lyy - lym);
+                double got = mr__family_unit_deviance(f, y, mu);
+                /* The reference subtracts two log densities: allow their
+                 * rounding (a few ulp of each) besides 1e-12 relative. */
+                double tol = 1e-12 * fabs(want) + 16.0 * DBL_EPSILON * (fabs(lyy) + fabs(lym));
+                ck_assert_msg(fabs(got - want) <= tol, "%s d(%g, %g) = %.17g, 2(l-l) = %.17g",
+                              mr__family_name(f), y, mu, got, want);
+            }
+    }
+}
+END_TEST
+
+START_TEST(deviance_zero_at_y_and_nonnegative)
+{
+    for (size_t k = 0; k < N_OF(FAMILIES); k++) {
+        mr_family f = FAMILIES[k];
+        for (size_t i = 0; i < N_OF(Y_GRID); i++) {
+            double y = Y_GRID[i];
+            /* d(y, y) = 0 (saturated model); the mean y must be valid too. */
+            if (y_in_support(f, y) && in_family_range(f, y))
+                ck_assert_msg(mr__family_unit_deviance(f, y, y) == 0.0, "%s d(%g,%g)",
+                              mr__family_name(f), y, y);
+        }
+        /* d >= 0 (the saturated likelihood is the maximum), on a dense grid
+         * that includes near-coincident y and mu. */
+        for (double y = 0.0; y <= 1.0; y += 1.0 / 64)
+            for (double mu = 1.0 / 128; mu < 1.0; mu += 1.0 / 97) {
+                if (!y_in_support(f, y))
+                    continue;
+                double d = mr__family_unit_deviance(f, y, mu);
+                ck_assert_msg(d >= 0.0, "%s d(%g, %g) = %g", mr__family_name(f), y, mu, d);
+                double near = y == 0.0 ? 1e-12 : y * (1.0 - 1e-9);
+                if (in_family_range(f, near))
+                    ck_assert_msg(mr__family_unit_deviance(f, y, near) >= 0.0, "%s near y=%g",
+                                  mr__family_name(f), y);
+            }
+    }
+}
+END_TEST
+
+START_TEST(deviance_near_mean_is_quadratic)
+{
+    /* Taylor expansion of the unit deviance about y = mu:
+     * d(y, mu) = (y - mu)^2 / V(mu) (1 + O(y - mu)).  Checks the regime
+     * where a naive difference of logarithms would cancel. */
+    static const double mus[] = {0.07, 0.5, 0.93, 3.0, 250.0};
+    for (size_t k = 0; k < N_OF(FAMILIES); k++) {
+        mr_family f = FAMILIES[k];
+        for (size_t i = 0; i < N_OF(mus); i++) {
+            double mu = mus[i];
+            if (!in_family_range(f, mu))
+                continue;
+            double y = mu * (1.0 + 1e-7);
+            double v = mr__family_variance(f, mu);
+            double quad = (y - mu) * (y - mu) / v;
+            double d = mr__family_unit_deviance(f, y, mu);
+            ck_assert_msg(fabs(d - quad) <= 1e-6 * quad, "%s at mu=%g: d=%.17g quad=%.17g",
+                          mr__family_name(f), mu, d, quad);
+        }
+    }
+}
+END_TEST
+
+/* ------------------------------------------------------------------ */
+/* (e) deviance residuals                                               */
+
+START_TEST(deviance_residual_squares_back)
+{
+    for (size_t k = 0; k < N_OF(FAMILIES); k++) {
+        mr_family f = FAMILIES[k];
+        for (size_t i = 0; i < N_OF(Y_GRID); i++)
+            for (size_t j = 0; j < N_OF(DEV_MU_GRID); j++) {
+                double y = Y_GRID[i], mu = DEV_MU_GRID[j];
+                if (!y_in_support(f, y) || !in_family_range(f, mu))
+                    continue;
+                double d = mr__family_unit_deviance(f, y, mu);
+                double r = copysign(sqrt(d), y - mu);
+                /* sqrt is correctly rounded, so r^2 is within 2 ulp of d. */
+                ck_assert_msg(fabs(r * r - d) <= 2.0 * DBL_EPSILON * d, "%s r^2 != d",
+                              mr__family_name(f));
+                ck_assert(y == mu || (r > 0.0) == (y > mu) || d == 0.0);
+            }
+    }
+}
+END_TEST
+
+/* ------------------------------------------------------------------ */
+/* (f) pair table, names, array versions                                */
+
+START_TEST(allowed_pairs_match_table)
+{
+    for (size_t k = 0; k < N_OF(FAMILIES); k++)
+        for (size_t j = 0; j < N_OF(LINKS); j++) {
+            int listed = 0;
+            for (size_t p = 0; p < N_OF(PAIRS); p++)
+                for (int m = 0; m < PAIRS[p].nlinks; m++)
+                    listed |= PAIRS[p].family == FAMILIES[k] && PAIRS[p].links[m] == LINKS[j];
+            ck_assert_msg(mr__link_allowed(FAMILIES[k], LINKS[j]) == listed, "%s/%s",
+                          mr__family_name(FAMILIES[k]), mr__link_name(LINKS[j]));
+        }
+    for (size_t p = 0; p < N_OF(PAIRS); p++)
+        ck_assert(mr__canonical_link(PAIRS[p].family) == PAIRS[p].links[0]);
+    ck_assert(!mr__link_allowed((mr_family)5, MR_LOG));
+    ck_assert(!mr__link_allowed(MR_GAUSSIAN, (mr_link)8));
+    ck_assert(!mr__link_allowed((mr_family)-1, MR_LOG));
+}
+END_TEST
+
+START_TEST(names_round_trip)
+{
+    /* Spellings from the model-file language in family.h. */
+    static const char *const fam[] = {"gaussian", "binomial", "poisson", "gamma",
+                                      "inverse-gaussian"};
+    static const char *const lnk[] = {"identity", "log",     "inverse", "logit",
+                                      "probit",   "cloglog", "sqrt",    "inverse-squared"};
+    for (int i = 0; i < 5; i++) {
+        ck_assert_int_eq(mr__family_from_name(fam[i]), i);
+        ck_assert_str_eq(mr__family_name((mr_family)i), fam[i]);
+    }
+    for (int i = 0; i < 8; i++) {
+        ck_assert_int_eq(mr__link_from_name(lnk[i]), i);
+        ck_assert_str_eq(mr__link_name((mr_link)i), lnk[i]);
+    }
+    ck_assert_int_eq(mr__family_from_name("normal"), -1);
+    ck_assert_int_eq(mr__family_from_name(""), -1);
+    ck_assert_int_eq(mr__family_from_name(NULL), -1);
+    ck_assert_int_eq(mr__link_from_name("Logit"), -1);
+    ck_assert_int_eq(mr__link_from_name("inverse-squared "), -1);
+    ck_assert_int_eq(mr__link_from_name(NULL), -1);
+}
+END_TEST
+
+static int same_bits(double a, double b)
+{
+    return memcmp(&a, &b, sizeof a) == 0;
+}
+
+START_TEST(arrays_equal_scalars_bitwise)
+{
+    enum { N = 257 };
+    double eta[N], mu[N], dmu[N], y[N], out[N];
+    for (int i = 0; i < N; i++) {
+        eta[i] = -40.0 + 80.0 * i / (N - 1) + 1e-3 * sin(i); /* includes near 0 */
+        y[i] = 0.01 + 0.98 * fabs(cos(0.37 * i));
+    }
+    eta[0] = -800.0;
+    eta[N - 1] = 800.0;
+    for (size_t j = 0; j < N_OF(LINKS); j++) {
+        mr_link l = LINKS[j];
+        mr__link_inv_n(l, eta, N, mu, dmu);
+        for (int i = 0; i < N; i++) {
+            ck_assert_msg(same_bits(mu[i], mr__link_inv(l, eta[i])), "%s mu[%d]",
+                          mr__link_name(l), i);
+            ck_assert_msg(same_bits(dmu[i], mr__link_mu_eta(l, eta[i])), "%s mu_eta[%d]",
+                          mr__link_name(l), i);
+        }
+    }
+    for (size_t k = 0; k < N_OF(FAMILIES); k++) {
+        mr_family f = FAMILIES[k];
+        mr__link_inv_n(MR_LOGIT, eta, N, mu, dmu); /* means in (0, 1) */
+        mr__family_variance_n(f, mu, N, out);
+        for (int i = 0; i < N; i++)
+            ck_assert(same_bits(out[i], mr__family_variance(f, mu[i])));
+        mr__family_unit_deviance_n(f, y, mu, N, out);
+        for (int i = 0; i < N; i++)
+            ck_assert_msg(same_bits(out[i], mr__family_unit_deviance(f, y[i], mu[i])), "%s dev[%d]",
+                          mr__family_name(f), i);
+    }
+}
+END_TEST
+
+/* ------------------------------------------------------------------ */
+/* Domains and starting values                                          */
+
+START_TEST(domains)
+{
+    ck_assert(mr__family_y_valid(MR_GAUSSIAN, -3.0));
+    ck_assert(!mr__family_y_valid(MR_GAUSSIAN, NAN));
+    ck_assert(mr__family_y_valid(MR_BINOMIAL, 0.0) && mr__family_y_valid(MR_BINOMIAL, 1.0));
+    ck_assert(!mr__family_y_valid(MR_BINOMIAL, 1.0000001));
+    ck_assert(mr__family_y_valid(MR_POISSON, 0.0) && !mr__family_y_valid(MR_POISSON, -1e-300));
+    ck_assert(!mr__family_y_valid(MR_GAMMA, 0.0) && mr__family_y_valid(MR_GAMMA, 1e-300));
+    ck_assert(!mr__family_y_valid(MR_INVERSE_GAUSSIAN, 0.0));
+    ck_assert(!mr__family_y_valid(MR_POISSON, INFINITY));
+
+    ck_assert(!mr__family_mu_valid(MR_BINOMIAL, 0.0) && !mr__family_mu_valid(MR_BINOMIAL, 1.0));
+    ck_assert(mr__family_mu_valid(MR_BINOMIAL, 0.5));
+    ck_assert(!mr__family_mu_valid(MR_POISSON, 0.0) && mr__family_mu_valid(MR_POISSON, 2.0));
+    ck_assert(!mr__family_mu_valid(MR_GAMMA, -1.0));
+    ck_assert(mr__family_mu_valid(MR_GAUSSIAN, -1.0));
+
+    ck_assert(mr__link_eta_valid(MR_LOGIT, -700.0) && !mr__link_eta_valid(MR_LOGIT, INFINITY));
+    ck_assert(!mr__link_eta_valid(MR_INVERSE, 0.0) && mr__link_eta_valid(MR_INVERSE, -2.0));
+    ck_assert(!mr__link_eta_valid(MR_INVERSE_SQUARED, -1.0));
+    ck_assert(!mr__link_eta_valid(MR_INVERSE_SQUARED, 0.0));
+    ck_assert(!mr__link_eta_valid(MR_SQRT, 0.0) && mr__link_eta_valid(MR_SQRT, 0.1));
+    ck_assert(!mr__link_eta_valid(MR_IDENTITY, NAN));
+}
+END_TEST
+
+START_TEST(starting_values)
+{
+    /* The customary starts: y; (w y + 1/2) / (w + 1); y + 0.1; y; y. */
+    ck_assert(mr__family_mustart(MR_GAUSSIAN, -2.5, 1.0) == -2.5);
+    ck_assert(mr__family_mustart(MR_BINOMIAL, 0.0, 1.0) == 0.25);
+    ck_assert(mr__family_mustart(MR_BINOMIAL, 1.0, 3.0) == 0.875);
+    ck_assert(mr__family_mustart(MR_POISSON, 0.0, 1.0) == 0.1);
+    ck_assert(mr__family_mustart(MR_GAMMA, 4.0, 2.0) == 4.0);
+    ck_assert(mr__family_mustart(MR_INVERSE_GAUSSIAN, 0.3, 2.0) == 0.3);
+    /* Every start is a valid mean whose canonical eta is valid. */
+    for (size_t k = 0; k < N_OF(FAMILIES); k++) {
+        mr_family f = FAMILIES[k];
+        double y = f == MR_BINOMIAL ? 1.0 : (f == MR_POISSON ? 0.0 : 2.0);
+        double m = mr__family_mustart(f, y, 5.0);
+        ck_assert(in_family_range(f, m));
+        mr_link l = mr__canonical_link(f);
+        ck_assert(mr__link_eta_valid(l, mr__link_fun(l, m)));
+    }
+}
+END_TEST
+
+static Suite *family_suite(void)
+{
+    Suite *s = suite_create("family");
+    TCase *links = tcase_create("links");
+    tcase_add_test(links, link_round_trip);
+    tcase_add_test(links, mu_eta_matches_finite_difference);
+    tcase_add_test(links, extreme_eta_stays_finite);
+    suite_add_tcase(s, links);
+    TCase *fam = tcase_create("families");
+    tcase_add_test(fam, variance_known_points);
+    tcase_add_test(fam, deviance_is_twice_loglik_difference);
+    tcase_add_test(fam, deviance_zero_at_y_and_nonnegative);
+    tcase_add_test(fam, deviance_near_mean_is_quadratic);
+    tcase_add_test(fam, deviance_residual_squares_back);
+    suite_add_tcase(s, fam);
+    TCase *tables = tcase_create("tables");
+    tcase_add_test(tables, allowed_pairs_match_table);
+    tcase_add_test(tables, names_round_trip);
+    tcase_add_test(tables, arrays_equal_scalars_bitwise);
+    tcase_add_test(tables, domains);
+    tcase_add_test(tables, starting_values);
+    suite_add_tcase(s, tables);
+    return s;
+}
+
+int main(void)
+{
+    SRunner *sr = srunner_create(family_suite());
+    srunner_run_all(sr, CK_NORMAL);
+    int failed = srunner_ntests_failed(sr);
+    srunner_free(sr);
+    return failed == 0 ? EXIT_SUCCESS : EXIT_FAILURE;
+}
