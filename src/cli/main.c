@@ -83,7 +83,7 @@ static int fail(mr_status st, const char *msg)
 
 static int usage_error(const char *msg)
 {
-    fprintf(stderr, "millrace: %s\n(see 'millrace help')\n", msg);
+    fprintf(stderr, "millrace: %s (see 'millrace help')\n", msg);
     return (int)MR_ERR_USAGE;
 }
 

@@ -47,7 +47,7 @@ static int online_cpus(void)
 static mr_status bind_header(mr__run *r, const char *line, size_t len, mr__error *err)
 {
     char **names = NULL;
-    size_t n = 0;
+    size_t n = 0, i;
     mr_status st;
     r->delim = r->f->delimiter ? (char)r->f->delimiter : mr__detect_delimiter(line, len);
     r->delim_detected = r->f->delimiter == 0;
@@ -62,6 +62,10 @@ static mr_status bind_header(mr__run *r, const char *line, size_t len, mr__error
     r->dcfg.display = r->display;
     r->dcfg.missing = r->f->missing;
     r->dcfg.nmissing = r->f->nmissing;
+    r->dcfg.missing_len = r->missing_len;
+    if (r->f->nmissing > MR__MAX_MISSING_TOKENS)
+        return mr__fail(err, MR_ERR_USAGE, "more than %d missing-value tokens", MR__MAX_MISSING_TOKENS);
+    for (i = 0; i < r->f->nmissing; i++) r->missing_len[i] = strlen(r->f->missing[i]);
     r->dcfg.levels = NULL;
     r->header = mr__strndup(line, len);
     r->header_len = len;

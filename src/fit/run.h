@@ -8,6 +8,8 @@
 #include "fit/fitter.h"
 #include "model/design.h"
 
+#define MR__MAX_MISSING_TOKENS 64
+
 typedef struct mr__run {
     mr_fitter *f;
     const char *path, *read_path;
@@ -20,6 +22,7 @@ typedef struct mr__run {
     mr__binding bind;
     int bound;
     mr__decode_cfg dcfg;
+    size_t missing_len[MR__MAX_MISSING_TOKENS];
     char delim;
     int delim_detected;
     char *header;

@@ -76,7 +76,7 @@ static int is_missing(const mr__decode_cfg *cfg, const char *p, size_t len)
 {
     size_t i;
     for (i = 0; i < cfg->nmissing; i++)
-        if (strlen(cfg->missing[i]) == len && memcmp(cfg->missing[i], p, len) == 0) return 1;
+        if (cfg->missing_len[i] == len && memcmp(cfg->missing[i], p, len) == 0) return 1;
     return 0;
 }
 

@@ -55,6 +55,7 @@ typedef struct mr__decode_cfg {
     char delim;
     const char *display;
     char **missing;   /* tokens; "" is the empty cell */
+    size_t *missing_len;
     size_t nmissing;
     /* Shared sorted levels per factor, or NULL in the first pass, when each
      * decoder collects the levels it meets in `local` instead. */

@@ -27,6 +27,16 @@
 #include <stdlib.h>
 #include <string.h>
 
+/* Inlining decisions matter for the hot path: the scanner must be inlined
+ * into it (twice), the rare tiers must not be. */
+#if defined(__GNUC__)
+#define MR__NOINLINE __attribute__((noinline))
+#define MR__ALWAYS_INLINE inline __attribute__((always_inline))
+#else
+#define MR__NOINLINE
+#define MR__ALWAYS_INLINE inline
+#endif
+
 struct mr__numparser {
     locale_t c_locale; /* created once: newlocale per call would cost more
                           than the whole parse */
@@ -57,11 +67,12 @@ void mr__numparser_free(mr__numparser *np)
 /* Syntax                                                              */
 
 /* A field that passed validation.  Its magnitude is D * 10^(exp10 - n_frac),
- * D being the integer spelled by the integer and fraction digits together. */
+ * D being the integer spelled by the integer and fraction digits together.
+ * The mantissa is n_int digits, then a '.' if n_frac > 0, then n_frac digits
+ * (a trailing '.' with no fraction digits needs no mention). */
 typedef struct {
-    const char *int_digits;
+    const char *mantissa;
     size_t n_int;
-    const char *frac_digits;
     size_t n_frac;
     uint64_t digits_mod_2_64; /* D mod 2^64: exactly D when D < 10^19 */
     int64_t exp10;            /* the explicit exponent, saturated */
@@ -78,54 +89,31 @@ static bool is_blank(char c)
     return c == ' ' || c == '\t';
 }
 
+/* One compare that every blank passes (and few other bytes do). */
+static bool may_be_blank(char c)
+{
+    return (unsigned char)c <= ' ';
+}
+
 static bool is_digit(char c)
 {
     return (unsigned char)(c - '0') < 10;
 }
 
-static const uint64_t int_pow10[16] = {
-    UINT64_C(1),
-    UINT64_C(10),
-    UINT64_C(100),
-    UINT64_C(1000),
-    UINT64_C(10000),
-    UINT64_C(100000),
-    UINT64_C(1000000),
-    UINT64_C(10000000),
-    UINT64_C(100000000),
-    UINT64_C(1000000000),
-    UINT64_C(10000000000),
-    UINT64_C(100000000000),
-    UINT64_C(1000000000000),
-    UINT64_C(10000000000000),
-    UINT64_C(100000000000000),
-    UINT64_C(1000000000000000),
-};
-
-/* Digit runs are read eight bytes at a time: the run length comes from a
- * bit trick instead of a loop whose exit branch mispredicts whenever field
- * lengths vary, which in a CSV column they do. */
-
 #define ONES_8 UINT64_C(0x0101010101010101)
 
-/* The bytes [p, p+n), n <= 8, first byte lowest; missing bytes are 0. */
-static uint64_t load_bytes(const char *p, size_t n)
+/* Eight bytes with p[0] in the lowest byte whatever the byte order. */
+static uint64_t load_8_bytes(const char *p)
 {
-#if defined(__BYTE_ORDER__) && __BYTE_ORDER__ == __ORDER_LITTLE_ENDIAN__
-    if (n >= 4) { /* two overlapping loads cover 4..8 bytes */
-        uint32_t head, tail;
-        memcpy(&head, p, 4);
-        memcpy(&tail, p + n - 4, 4);
-        return head | (uint64_t)tail << (8 * (n - 4));
-    }
+    uint64_t x;
+    memcpy(&x, p, sizeof x);
+#if defined(__BYTE_ORDER__) && __BYTE_ORDER__ == __ORDER_BIG_ENDIAN__
+    x = __builtin_bswap64(x);
 #endif
-    uint64_t x = 0;
-    for (size_t i = 0; i < n; i++)
-        x |= (uint64_t)(unsigned char)p[i] << (8 * i);
     return x;
 }
 
-/* 8 digit values (0..9), the first in the lowest byte, as one integer. */
+/* t holds 8 digit values (0..9), the first in the lowest byte. */
 static uint64_t eight_digits_value(uint64_t t)
 {
     t = (t * 10 + (t >> 8)) & UINT64_C(0x00FF00FF00FF00FF);
@@ -133,24 +121,23 @@ static uint64_t eight_digits_value(uint64_t t)
     return (t * 10000 + (t >> 32)) & UINT64_C(0xFFFFFFFF);
 }
 
-static const char *scan_digits(const char *p, const char *end, uint64_t *acc)
+/* Long runs (full-precision output of other programs) go eight digits per
+ * step; short ones, the usual case, never pay for the wide test. */
+static MR__ALWAYS_INLINE const char *scan_digits(const char *p, const char *end, uint64_t *acc)
 {
     uint64_t w = *acc;
-    for (;;) {
-        size_t avail = (size_t)(end - p);
-        uint64_t t = load_bytes(p, avail < 8 ? avail : 8) ^ (0x30 * ONES_8);
-        /* High bit set in each byte that is not 0..9, i.e. not a digit
-         * (absent bytes became 0x30).  Carries out of such a byte only
-         * disturb the bytes after it, which are not counted. */
-        uint64_t non_digit = ((t + 0x76 * ONES_8) | t) & (0x80 * ONES_8);
-        unsigned run = non_digit ? (unsigned)__builtin_ctzll(non_digit) / 8 : 8;
-        if (run == 0)
+    while (end - p >= 8) {
+        uint64_t t = load_8_bytes(p) ^ (0x30 * ONES_8); /* digits become 0..9 */
+        if (((t + 0x76 * ONES_8) | t) & (0x80 * ONES_8))
+            break; /* some byte is above 9: not all digits */
+        w = w * 100000000 + eight_digits_value(t);
+        p += 8;
+    }
+    for (; p < end; p++) {
+        unsigned digit = (unsigned)(unsigned char)*p - '0';
+        if (digit > 9)
             break;
-        uint64_t digits = t << (8 * (8 - run)); /* drop the rest; zeros lead */
-        w = w * int_pow10[run] + eight_digits_value(digits);
-        p += run;
-        if (run < 8)
-            break;
+        w = w * 10 + digit;
     }
     *acc = w; /* wraps harmlessly past 19 digits */
     return p;
@@ -175,10 +162,11 @@ static const char *scan_exponent(const char *p, const char *end, int64_t *exp10)
     return p;
 }
 
+/* len > 0. */
 static bool scan_field(const char *s, size_t len, decimal *d)
 {
     const char *p = s, *end = s + len;
-    if (is_blank(*p) || is_blank(end[-1])) { /* rare: test before looping */
+    if (may_be_blank(*p) || may_be_blank(end[-1])) { /* rare: test before looping */
         while (p < end && is_blank(*p))
             p++;
         while (end > p && is_blank(end[-1]))
@@ -192,15 +180,14 @@ static bool scan_field(const char *s, size_t len, decimal *d)
         p++;
 
     uint64_t w = 0;
-    d->int_digits = p;
+    d->mantissa = p;
     p = scan_digits(p, end, &w);
-    d->n_int = (size_t)(p - d->int_digits);
-    d->frac_digits = p;
+    d->n_int = (size_t)(p - d->mantissa);
     d->n_frac = 0;
     if (p < end && *p == '.') {
-        d->frac_digits = ++p;
+        const char *frac = ++p;
         p = scan_digits(p, end, &w);
-        d->n_frac = (size_t)(p - d->frac_digits);
+        d->n_frac = (size_t)(p - frac);
     }
     if (d->n_int + d->n_frac == 0)
         return false;
@@ -226,6 +213,24 @@ static const double exact_pow10[23] = {
     1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22,
 };
 
+static const uint64_t int_pow10[16] = {
+    UINT64_C(1),
+    UINT64_C(10),
+    UINT64_C(100),
+    UINT64_C(1000),
+    UINT64_C(10000),
+    UINT64_C(100000),
+    UINT64_C(1000000),
+    UINT64_C(10000000),
+    UINT64_C(100000000),
+    UINT64_C(1000000000),
+    UINT64_C(10000000000),
+    UINT64_C(100000000000),
+    UINT64_C(1000000000000),
+    UINT64_C(10000000000000),
+    UINT64_C(100000000000000),
+    UINT64_C(1000000000000000),
+};
 
 /* Powers of ten outside this range make every 19-digit mantissa round to
  * zero (w * 10^q < 10^19 * 10^-343 < 2^-1075) or overflow (>= 10^309). */
@@ -1018,7 +1023,7 @@ static bool exact_magnitude(uint64_t w, int64_t q, double *v)
 
 static char mantissa_digit(const decimal *d, size_t i)
 {
-    return i < d->n_int ? d->int_digits[i] : d->frac_digits[i - d->n_int];
+    return d->mantissa[i < d->n_int ? i : i + 1]; /* skip the '.' */
 }
 
 static size_t count_leading_zeros(const decimal *d)
@@ -1135,34 +1140,50 @@ static double slow_magnitude(const mr__numparser *np, const decimal *d)
 
 /* ------------------------------------------------------------------ */
 
-#if defined(__GNUC__)
-#define MR__NOINLINE __attribute__((noinline))
-#else
-#define MR__NOINLINE
-#endif
-
 /* Tier 1 alone, small enough to inline: most fields end here, and keeping
  * the other tiers out of line lets this path run without stack traffic. */
 static bool clinger_magnitude(const decimal *d, double *v)
 {
+    /* Multiplying by 1 or dividing by 1 is exact, so one table entry of
+     * each kind gives w * 10^q with a single rounding and no branch on the
+     * sign of q, which real columns flip between unpredictably. */
+    static const double times[45] = {
+        1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1,
+        1e0,  1e1,  1e2,  1e3,  1e4,  1e5,  1e6,  1e7,  1e8,  1e9,  1e10, 1e11,
+        1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22,
+    };
+    static const double divided_by[45] = {
+        1e22, 1e21, 1e20, 1e19, 1e18, 1e17, 1e16, 1e15, 1e14, 1e13, 1e12,
+        1e11, 1e10, 1e9,  1e8,  1e7,  1e6,  1e5,  1e4,  1e3,  1e2,  1e1,
+        1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1,
+    };
     uint64_t w = d->digits_mod_2_64;
     int64_t q = d->exp10 - (int64_t)d->n_frac;
     if (d->n_int + d->n_frac > MAX_SIGNIFICANT || w > TWO_POW_53 || q < -22 || q > 22)
         return false;
-    *v = q < 0 ? (double)w / exact_pow10[-q] : (double)w * exact_pow10[q];
+    *v = (double)w * times[q + 22] / divided_by[q + 22];
     return true;
 }
 
-/* Returns false on overflow. */
-static MR__NOINLINE bool general_magnitude(const mr__numparser *np, const decimal *d, double *v)
+/* Rounding to nearest is symmetric, so the sign can be applied last; this
+ * also gives "-0" the negative zero strtod gives. */
+static void store_signed(double *out, double magnitude, bool negative)
 {
-    double m;
-    if (!fast_magnitude(d, &m))
-        m = slow_magnitude(np, d);
-    if (isinf(m))
-        return false;
-    *v = m;
-    return true;
+    uint64_t bits;
+    memcpy(&bits, &magnitude, sizeof bits);
+    bits |= (uint64_t)negative << 63;
+    memcpy(out, &bits, sizeof bits);
+}
+
+static MR__NOINLINE int parse_general(const mr__numparser *np, const decimal *d, double *out)
+{
+    double v;
+    if (!fast_magnitude(d, &v))
+        v = slow_magnitude(np, d);
+    if (isinf(v))
+        return 0;
+    store_signed(out, v, d->negative);
+    return 1;
 }
 
 int mr__parse_double(mr__numparser *np, const char *s, size_t len, double *out)
@@ -1175,11 +1196,8 @@ int mr__parse_double(mr__numparser *np, const char *s, size_t len, double *out)
         /* Only this copy has its address taken, so d itself can stay in
          * registers on the fast path. */
         decimal escaped = d;
-        if (!general_magnitude(np, &escaped, &v))
-            return 0;
+        return parse_general(np, &escaped, out);
     }
-    /* Rounding to nearest is symmetric, so the sign can be applied last;
-     * this also gives "-0" the negative zero strtod gives. */
-    *out = d.negative ? -v : v;
+    store_signed(out, v, d.negative);
     return 1;
 }

@@ -183,8 +183,8 @@ static mr_status read_zstd(mr__source *s, char *buf, size_t cap, size_t *got, mr
         ib.pos = s->raw_pos;
         r = ZSTD_decompressStream(s->ds, &ob, &ib);
         if (ZSTD_isError(r))
-            return mr__fail(err, MR_ERR_FORMAT, "%s: corrupt zstd stream near byte %llu: %s", s->display,
-                            (unsigned long long)(s->raw_bytes - (s->raw_len - ib.pos)), ZSTD_getErrorName(r));
+            return mr__fail(err, MR_ERR_FORMAT, "%s: corrupt zstd stream (within the first %llu bytes): %s",
+                            s->display, (unsigned long long)s->raw_bytes, ZSTD_getErrorName(r));
         s->raw_pos = ib.pos;
         s->frame_left = r;
     }

@@ -1,0 +1,193 @@
+#!/usr/bin/env bash
+# Bad input for `millrace fit`: exit codes, the one-line error message
+# (file, line, column, value), no JSON left behind, input never modified.
+# Expected exit codes and the message format are those of the command-line
+# contract: 2 usage, 3 I/O, 4 malformed input, 5 value outside the model's
+# domain, 6 no data; "millrace: FILE:LINE:COLUMN: message (value 'V')".
+# LINE counts the header as line 1; COLUMN is the 1-based field number.
+set -u
+
+here=$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)
+root=$(cd "$here/../.." && pwd)
+bin="$root/build/millrace"
+tmp=$(mktemp -d)
+trap 'rm -rf "$tmp"' EXIT
+
+passed=0
+failed=0
+ok() { echo "ok $1"; passed=$((passed + 1)); }
+fail() { echo "FAIL $1: $2"; failed=$((failed + 1)); }
+
+if [ ! -x "$bin" ]; then
+    fail setup "$bin not found (run make first)"
+    echo "$passed passed, $failed failed"
+    exit 1
+fi
+
+# A small valid data set: y count, g factor, x numeric, plus columns used by
+# some families (s/t binomial, e exposure, w weight, z positive outcome).
+good_rows() {
+    local i
+    for i in $(seq 1 40); do
+        printf '%d,%s,%d.5,%d,%d,%d.25,%d.5,%d.75\n' $((i % 7)) \
+            "$([ $((i % 3)) -eq 0 ] && echo B || echo A)" $((i % 5)) \
+            $((i % 4)) $((i % 4 + 2)) $((i % 6 + 1)) $((i % 3 + 1)) $((i % 9 + 1))
+    done
+}
+header='y,g,x,s,t,e,w,z'
+poisson_model=(--outcome y --family poisson --factor g --numeric x)
+
+# expect NAME CODE DATA 'fixed strings to find in stderr' -- fit options...
+# Runs one failing fit and checks everything a failure must guarantee.
+expect() {
+    local name=$1 code=$2 data=$3
+    shift 3
+    local needles=()
+    while [ $# -gt 0 ] && [ "$1" != "--" ]; do needles+=("$1"); shift; done
+    shift
+    local outdir="$tmp/out.$name"
+    mkdir -p "$outdir"
+    local json="$outdir/fit.json" err="$tmp/$name.err" before="" after=""
+    [ -f "$data" ] && before=$(sha256sum < "$data")
+    "$bin" fit --quiet --json "$json" "$@" "$data" > "$tmp/$name.out" 2> "$err"
+    local rc=$?
+    [ -f "$data" ] && after=$(sha256sum < "$data")
+    local problems=""
+    [ "$rc" -eq "$code" ] || problems+="exit $rc, expected $code; "
+    local nlines
+    nlines=$(wc -l < "$err")
+    if [ "$nlines" -ne 1 ] || [ -n "$(tail -c1 "$err")" ]; then
+        problems+="stderr has $nlines lines, expected exactly one; "
+    fi
+    head -n1 "$err" | grep -q '^millrace: ' || problems+="stderr does not start with 'millrace: '; "
+    local needle
+    for needle in "${needles[@]}"; do
+        grep -qF -- "$needle" "$err" || problems+="stderr lacks \"$needle\"; "
+    done
+    [ -z "$(ls -A "$outdir")" ] || problems+="left files behind: $(ls -A "$outdir" | tr '\n' ' '); "
+    [ "$before" = "$after" ] || problems+="input file changed; "
+    if [ -n "$problems" ]; then
+        fail "$name" "${problems}stderr: $(head -c 400 "$err" | tr '\n' '|')"
+    else
+        ok "$name"
+    fi
+}
+
+# ---- model / usage errors (exit 2)
+f="$tmp/good.csv"
+{ echo "$header"; good_rows; } > "$f"
+expect unknown_column 2 "$f" "'nosuch'" -- "${poisson_model[@]}" --numeric nosuch
+expect unseen_reference_level 2 "$f" "ZZZ" -- --outcome y --family poisson --factor "g ref=ZZZ"
+expect unknown_family 2 "$f" "frobnicate" -- --outcome y --family frobnicate --numeric x
+expect link_not_allowed 2 "$f" "logit" -- --outcome y --family poisson --link logit --numeric x
+expect bad_option_value 2 "$f" "--threads" -- "${poisson_model[@]}" --threads many
+
+# ---- I/O (exit 3)
+expect missing_input 3 "$tmp/does-not-exist.csv" "$tmp/does-not-exist.csv" -- "${poisson_model[@]}"
+
+# ---- malformed input (exit 4)
+f="$tmp/duplicate_header.csv"
+{ echo 'y,g,x,g'; echo '1,A,2,B'; echo '2,B,3,A'; } > "$f"
+expect duplicate_column 4 "$f" "$f:1:4:" "'g'" -- "${poisson_model[@]}"
+
+f="$tmp/field_count.csv"
+{ echo "$header"; good_rows | head -n 2; echo '3,A,1.5'; good_rows | tail -n 5; } > "$f"
+expect wrong_field_count 4 "$f" "$f:4:" -- "${poisson_model[@]}"
+
+f="$tmp/bad_number.csv"
+{ echo "$header"; good_rows | head -n 1; echo '2,B,12x,1,2,1.5,1.5,1.5'; good_rows | tail -n 5; } > "$f"
+expect unparsable_number 4 "$f" "$f:3:3:" "'12x'" -- "${poisson_model[@]}"
+
+f="$tmp/unterminated_quote.csv"
+{ echo "$header"; good_rows | head -n 3; echo '1,"A,2.5,1,2,1.5,1.5,1.5'; echo '2,B,1.5,1,2,1.5,1.5,1.5'; } > "$f"
+expect unterminated_quote 4 "$f" "$f:5" -- "${poisson_model[@]}"
+
+big="$tmp/big.csv"
+{ echo "$header"; for _ in $(seq 1 500); do good_rows; done; } > "$big"
+zstd -q -f "$big" -o "$tmp/big.csv.zst"
+f="$tmp/truncated.csv.zst"
+size=$(stat -c %s "$tmp/big.csv.zst")
+head -c $((size / 2)) "$tmp/big.csv.zst" > "$f"
+expect truncated_zstd 4 "$f" "$f" -- "${poisson_model[@]}"
+
+f="$tmp/corrupt.csv.zst"
+cp "$tmp/big.csv.zst" "$f"
+printf '\xde\xad\xbe\xef\x00\xff\x13\x37\xde\xad\xbe\xef\x00\xff\x13\x37' |
+    dd of="$f" bs=1 seek=$((size / 2)) conv=notrunc status=none
+expect corrupt_zstd 4 "$f" "$f" -- "${poisson_model[@]}"
+
+# ---- no data (exit 6)
+f="$tmp/empty.csv"
+: > "$f"
+expect empty_file 6 "$f" "$f" -- "${poisson_model[@]}"
+
+f="$tmp/header_only.csv"
+echo "$header" > "$f"
+expect header_only 6 "$f" "$f" -- "${poisson_model[@]}"
+
+f="$tmp/all_missing.csv"
+{ echo "$header"; good_rows | sed 's/^[0-9]*,/NA,/'; } > "$f"
+expect no_usable_rows 6 "$f" "$f" -- "${poisson_model[@]}"
+
+# ---- values outside the model's domain (exit 5)
+f="$tmp/negative_count.csv"
+{ echo "$header"; good_rows | head -n 1; echo '-1,A,1.5,1,2,1.5,1.5,1.5'; good_rows | tail -n 3; } > "$f"
+expect negative_poisson_count 5 "$f" "$f:3:1:" "'-1'" -- "${poisson_model[@]}"
+
+f="$tmp/successes_over_trials.csv"
+{ echo "$header"; good_rows | head -n 2; echo '1,A,1.5,5,3,1.5,1.5,1.5'; good_rows | tail -n 3; } > "$f"
+expect successes_exceed_trials 5 "$f" "$f:4:" -- --outcome s --trials t --family binomial --numeric x
+
+f="$tmp/gamma_zero.csv"
+{ echo "$header"; echo '1,A,1.5,1,2,1.5,1.5,0'; good_rows | tail -n 3; } > "$f"
+expect gamma_nonpositive_y 5 "$f" "$f:2:8:" "'0'" -- --outcome z --family gamma --numeric x
+
+f="$tmp/exposure_zero.csv"
+{ echo "$header"; good_rows | head -n 4; echo '1,A,1.5,1,2,0,1.5,1.5'; good_rows | tail -n 3; } > "$f"
+expect nonpositive_exposure 5 "$f" "$f:6:6:" "'0'" -- "${poisson_model[@]}" --exposure e
+
+f="$tmp/negative_weight.csv"
+{ echo "$header"; good_rows | head -n 2; echo '1,A,1.5,1,2,1.5,-2,1.5'; good_rows | tail -n 3; } > "$f"
+expect negative_weight 5 "$f" "$f:4:7:" "'-2'" -- "${poisson_model[@]}" --weight w
+
+# ---- an existing JSON at the --json path survives a failed run
+f="$tmp/field_count.csv"
+json="$tmp/existing.json"
+echo '{"previous": true}' > "$json"
+sum_before=$(sha256sum < "$json")
+"$bin" fit --quiet --json "$json" "${poisson_model[@]}" "$f" > /dev/null 2>&1
+rc=$?
+if [ "$rc" -eq 4 ] && [ "$(sha256sum < "$json")" = "$sum_before" ] &&
+   [ "$(ls -A "$tmp" | grep -c '^existing\.json')" -eq 1 ]; then
+    ok existing_json_kept_on_failure
+else
+    fail existing_json_kept_on_failure "exit $rc; json now: $(head -c 200 "$json"); files: $(ls -A "$tmp" | grep '^existing' | tr '\n' ' ')"
+fi
+
+# ---- --on-bad-row skip turns the wrong-field-count file into a fit
+f="$tmp/two_bad_rows.csv"
+{ echo "$header"; good_rows | head -n 10; echo '3,A,1.5'; good_rows | tail -n 20; echo '1,B,2.5,1,2,1.5,1.5,1.5,9'; } > "$f"
+json="$tmp/skip.json"
+before=$(sha256sum < "$f")
+"$bin" fit --quiet --json "$json" --on-bad-row skip "${poisson_model[@]}" "$f" > /dev/null 2> "$tmp/skip.err"
+rc=$?
+if [ "$rc" -ne 0 ]; then
+    fail on_bad_row_skip "exit $rc, expected 0; stderr: $(head -c 300 "$tmp/skip.err")"
+elif ! /usr/bin/python3 - "$json" <<'EOF'
+import json, sys
+rows = json.load(open(sys.argv[1]))["rows"]
+ok = rows.get("bad") == 2 and rows.get("used") == 30 and rows.get("read") in (30, 32)
+if not ok:
+    print("rows section", rows)
+sys.exit(0 if ok else 1)
+EOF
+then
+    fail on_bad_row_skip "JSON rows do not report 2 bad rows and 30 used"
+elif [ "$(sha256sum < "$f")" != "$before" ]; then
+    fail on_bad_row_skip "input file changed"
+else
+    ok on_bad_row_skip
+fi
+
+echo "$passed passed, $failed failed"
+[ "$failed" -eq 0 ]

@@ -1,0 +1,94 @@
+#!/usr/bin/env bash
+# Streaming means memory does not grow with the number of rows: the peak
+# resident set of a fit on 2,000,000 rows must stay within 1.5x of the same
+# fit on 100,000 rows.  Data are generated here (zstd-compressed) and removed.
+set -u
+
+here=$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)
+root=$(cd "$here/../.." && pwd)
+bin="$root/build/millrace"
+tmp=$(mktemp -d)
+trap 'rm -rf "$tmp"' EXIT
+
+passed=0
+failed=0
+ok() { echo "ok $1"; passed=$((passed + 1)); }
+fail() { echo "FAIL $1: $2"; failed=$((failed + 1)); }
+
+if [ ! -x "$bin" ]; then
+    fail setup "$bin not found (run make first)"
+    echo "$passed passed, $failed failed"
+    exit 1
+fi
+
+# generate ROWS FILE: Poisson counts with two factors and two numerics.
+generate() {
+    /usr/bin/python3 - "$1" <<'EOF' | zstd -q -f -o "$2"
+import sys
+import numpy as np
+rows = int(sys.argv[1])
+rng = np.random.default_rng(11)
+out = sys.stdout
+out.write("count,area,band,x,year\n")
+areas = np.array(["A%02d" % i for i in range(12)])
+bands = np.array(["low", "mid", "high"])
+for start in range(0, rows, 200000):
+    n = min(200000, rows - start)
+    area = rng.integers(0, 12, n)
+    band = rng.integers(0, 3, n)
+    x = np.round(rng.normal(0, 1, n), 4)
+    year = rng.integers(2000, 2025, n)
+    y = rng.poisson(np.exp(0.5 + 0.05 * area - 0.2 * band + 0.1 * x + 0.01 * (year - 2012)))
+    out.writelines("%d,%s,%s,%.4f,%d\n" % r for r in zip(y, areas[area], bands[band], x, year))
+EOF
+}
+
+# peak_rss_kb NAME DATA: runs the fit, prints its peak resident set in kB.
+peak_rss_kb() {
+    local name=$1 data=$2
+    local cmd=("$bin" fit --quiet --json "$tmp/$name.json" --outcome count --family poisson
+               --factor area --factor band --numeric x --numeric year "$data")
+    if [ -x /usr/bin/time ]; then
+        /usr/bin/time -v -o "$tmp/$name.time" "${cmd[@]}" > /dev/null 2> "$tmp/$name.err" || return 1
+        awk -F': *' '/Maximum resident set size/ { print $2 }' "$tmp/$name.time"
+    else
+        # no /usr/bin/time: the children's peak RSS from getrusage instead
+        /usr/bin/python3 -c '
+import resource, subprocess, sys
+with open(sys.argv[1], "w") as err:
+    rc = subprocess.call(sys.argv[2:], stdout=subprocess.DEVNULL, stderr=err)
+print(resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss)
+sys.exit(rc)' "$tmp/$name.err" "${cmd[@]}" || return 1
+    fi
+}
+
+rows_used() {
+    /usr/bin/python3 -c 'import json, sys; print(json.load(open(sys.argv[1]))["rows"]["used"])' "$1"
+}
+
+generate 100000 "$tmp/small.csv.zst"
+generate 2000000 "$tmp/large.csv.zst"
+
+small=$(peak_rss_kb small "$tmp/small.csv.zst") || small=""
+large=$(peak_rss_kb large "$tmp/large.csv.zst") || large=""
+
+if [ -z "$small" ] || [ "$(rows_used "$tmp/small.json" 2> /dev/null)" != 100000 ]; then
+    fail fit_100k "fit failed or wrong row count: $(head -c 300 "$tmp/small.err")"
+else
+    ok "fit_100k (peak RSS ${small} kB)"
+fi
+if [ -z "$large" ] || [ "$(rows_used "$tmp/large.json" 2> /dev/null)" != 2000000 ]; then
+    fail fit_2m "fit failed or wrong row count: $(head -c 300 "$tmp/large.err")"
+else
+    ok "fit_2m (peak RSS ${large} kB)"
+fi
+if [ -n "$small" ] && [ -n "$large" ]; then
+    if [ $((large * 2)) -le $((small * 3)) ]; then
+        ok "peak RSS 2M rows <= 1.5 x 100k rows ($large kB vs $small kB)"
+    else
+        fail rss_ratio "2M rows used $large kB, 100k rows $small kB (limit 1.5x)"
+    fi
+fi
+
+echo "$passed passed, $failed failed"
+[ "$failed" -eq 0 ]
