@@ -144,8 +144,14 @@ typedef enum mr_int_option {
                                 first read and iterate on them (default 0)  */
     MR_OPT_SKIP_BAD_ROWS = 4,/* 1: count and skip malformed rows instead of
                                 failing on the first one (default 0)        */
-    MR_OPT_DELIMITER = 5     /* ',' '\t' ';' or 0 = detect from the header
+    MR_OPT_DELIMITER = 5,    /* ',' '\t' ';' or 0 = detect from the header
                                 line (default 0)                            */
+    MR_OPT_NO_CACHE = 6      /* 1: reread and reparse the file on every pass
+                                instead of replaying the decoded columns
+                                from a temporary cache file (default 0).
+                                The cache lives in $TMPDIR (default /tmp),
+                                is unlinked at once, and is skipped when it
+                                would take more than half the free space. */
 } mr_int_option;
 
 /* Real-valued options. */

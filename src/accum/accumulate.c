@@ -17,12 +17,16 @@ static double *aligned_doubles(size_t n)
     return aligned_alloc(64, bytes ? bytes : 64);
 }
 
-mr_status mr__workspace_init(mr__workspace *ws, size_t p, mr__error *err)
+mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *err)
 {
     const size_t R = MR__BLOCK_ROWS;
     memset(ws, 0, sizeof *ws);
-    ws->p = p;
-    ws->Z = aligned_doubles(R * p);
+    ws->p = d->p;
+    ws->D = aligned_doubles(R * (d->ndense + 1));
+    ws->sval = aligned_doubles(R * (d->nsparse + 1));
+    ws->scol = aligned_alloc(64, R * (d->nsparse + 1) * sizeof(int32_t));
+    ws->dd = aligned_doubles((d->ndense + 1) * (d->ndense + 1));
+    ws->bd = aligned_doubles(d->ndense + 1);
     ws->eta = aligned_doubles(R);
     ws->mu = aligned_doubles(R);
     ws->mu_eta = aligned_doubles(R);
@@ -30,7 +34,7 @@ mr_status mr__workspace_init(mr__workspace *ws, size_t p, mr__error *err)
     ws->dev = aligned_doubles(R);
     ws->w = aligned_doubles(R);
     ws->z = aligned_doubles(R);
-    if (!ws->Z || !ws->eta || !ws->mu || !ws->mu_eta || !ws->var || !ws->dev || !ws->w || !ws->z) {
+    if (!ws->D || !ws->sval || !ws->scol || !ws->dd || !ws->bd || !ws->eta || !ws->mu || !ws->mu_eta || !ws->var || !ws->dev || !ws->w || !ws->z) {
         mr__workspace_release(ws);
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }
@@ -39,7 +43,11 @@ mr_status mr__workspace_init(mr__workspace *ws, size_t p, mr__error *err)
 
 void mr__workspace_release(mr__workspace *ws)
 {
-    free(ws->Z);
+    free(ws->D);
+    free(ws->sval);
+    free(ws->scol);
+    free(ws->dd);
+    free(ws->bd);
     free(ws->eta);
     free(ws->mu);
     free(ws->mu_eta);
@@ -107,8 +115,8 @@ static int at_boundary(int family, double mu)
  * pass from the family's starting means. */
 static void linear_predictor(const mr__irls_point *pt, const mr__block *blk, mr__workspace *ws, size_t n)
 {
-    size_t i;
-    const size_t p = pt->design->p;
+    const mr__design *d = pt->design;
+    size_t i, j, s;
     if (pt->beta == NULL) {
         for (i = 0; i < n; i++) {
             double w = blk->prior ? blk->prior[i] : 1.0;
@@ -119,7 +127,15 @@ static void linear_predictor(const mr__irls_point *pt, const mr__block *blk, mr_
         return;
     }
     for (i = 0; i < n; i++) ws->eta[i] = blk->off ? blk->off[i] : 0.0;
-    cblas_dgemv(CblasColMajor, CblasNoTrans, (int)n, (int)p, 1.0, ws->Z, (int)n, pt->beta, 1, 1.0, ws->eta, 1);
+    for (j = 0; j < d->ndense; j++) ws->bd[j] = pt->beta[d->dense_col[j]];
+    if (d->ndense)
+        cblas_dgemv(CblasColMajor, CblasNoTrans, (int)n, (int)d->ndense, 1.0, ws->D, (int)n, ws->bd, 1, 1.0, ws->eta, 1);
+    for (s = 0; s < d->nsparse; s++) {
+        const int32_t *col = ws->scol + s * n;
+        const double *val = ws->sval + s * n;
+        for (i = 0; i < n; i++)
+            if (col[i] >= 0) ws->eta[i] += val[i] * pt->beta[col[i]];
+    }
     mr__link_inv_n(pt->link, ws->eta, n, ws->mu, ws->mu_eta);
 }
 
@@ -137,15 +153,56 @@ static void null_model_rows(const mr__irls_point *pt, const mr__block *blk, mr__
     }
 }
 
+static size_t upper_index(size_t a, size_t b, size_t p) { return a <= b ? b * p + a : a * p + b; }
+
+/* The dense columns' block of X'WX by dsyrk, scattered into place. */
+static void dense_cross_products(const mr__design *d, mr__workspace *ws, size_t n, mr__block_sums *out)
+{
+    const size_t p = d->p, m = d->ndense;
+    size_t a, b;
+    if (m == 0) return;
+    cblas_dsyrk(CblasColMajor, CblasUpper, CblasTrans, (int)m, (int)n, 1.0, ws->D, (int)n, 0.0, ws->dd, (int)m);
+    for (b = 0; b < m; b++)
+        for (a = 0; a <= b; a++) out->xtwx[upper_index(d->dense_col[a], d->dense_col[b], p)] += ws->dd[b * m + a];
+    cblas_dgemv(CblasColMajor, CblasTrans, (int)n, (int)m, 1.0, ws->D, (int)n, ws->z, 1, 0.0, ws->bd, 1);
+    for (a = 0; a < m; a++) out->xtwz[d->dense_col[a]] += ws->bd[a];
+}
+
+/* A factor term's column meets, in row i, one column of every other
+ * factor term and every dense column: index accumulation, so the cost
+ * grows with the number of terms, never with the number of levels. */
+static void sparse_cross_products(const mr__design *d, mr__workspace *ws, size_t n, mr__block_sums *out)
+{
+    const size_t p = d->p, m = d->ndense, ns = d->nsparse;
+    double *G = out->xtwx;
+    size_t i, s, t, j;
+    for (i = 0; i < n; i++) {
+        for (s = 0; s < ns; s++) {
+            int32_t c = ws->scol[s * n + i];
+            double v;
+            if (c < 0) continue;
+            v = ws->sval[s * n + i] * ws->w[i];
+            G[(size_t)c * p + (size_t)c] += v * v;
+            out->xtwz[c] += v * ws->z[i];
+            for (t = s + 1; t < ns; t++) {
+                int32_t c2 = ws->scol[t * n + i];
+                if (c2 >= 0) G[upper_index((size_t)c, (size_t)c2, p)] += v * ws->sval[t * n + i] * ws->w[i];
+            }
+            for (j = 0; j < m; j++) G[upper_index((size_t)c, d->dense_col[j], p)] += v * ws->D[j * n + i];
+        }
+    }
+}
+
 void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__workspace *ws,
                           mr__block_sums *out)
 {
-    const size_t n = blk->n, p = pt->design->p;
+    const mr__design *d = pt->design;
+    const size_t n = blk->n;
     size_t i, j;
     double dev = 0, pearson = 0;
-    mr__sums_zero(out, p);
+    mr__sums_zero(out, d->p);
     if (n == 0) return;
-    mr__design_fill(pt->design, blk->num, blk->lev, MR__BLOCK_ROWS, n, ws->Z, n);
+    mr__design_fill_split(d, blk->num, blk->lev, MR__BLOCK_ROWS, n, ws->D, ws->scol, ws->sval);
     linear_predictor(pt, blk, ws, n);
     mr__family_variance_n(pt->family, ws->mu, n, ws->var);
     mr__family_unit_deviance_n(pt->family, blk->y, ws->mu, n, ws->dev);
@@ -162,16 +219,18 @@ void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__wo
     out->dev = dev;
     out->pearson = pearson;
     if (out->invalid) return; /* the caller halves the step; sums are not used */
+    /* From here w holds sqrt(w) and z holds sqrt(w) z: the rows of the
+     * weighted least-squares problem. */
     for (i = 0; i < n; i++) {
         double s = sqrt(ws->w[i]);
         ws->w[i] = s;
         ws->z[i] *= s;
     }
-    for (j = 0; j < p; j++) {
-        double *col = ws->Z + j * n;
+    for (j = 0; j < d->ndense; j++) {
+        double *col = ws->D + j * n;
         for (i = 0; i < n; i++) col[i] *= ws->w[i];
     }
-    cblas_dsyrk(CblasColMajor, CblasUpper, CblasTrans, (int)p, (int)n, 1.0, ws->Z, (int)n, 0.0, out->xtwx, (int)p);
-    cblas_dgemv(CblasColMajor, CblasTrans, (int)n, (int)p, 1.0, ws->Z, (int)n, ws->z, 1, 0.0, out->xtwz, 1);
+    dense_cross_products(d, ws, n, out);
+    sparse_cross_products(d, ws, n, out);
     null_model_rows(pt, blk, out);
 }

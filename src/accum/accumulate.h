@@ -30,10 +30,12 @@ typedef struct mr__block_sums {
  * vectors. */
 typedef struct mr__workspace {
     size_t p;
-    double *Z, *eta, *mu, *mu_eta, *var, *dev, *w, *z;
+    double *D, *sval, *dd, *bd;
+    int32_t *scol;
+    double *eta, *mu, *mu_eta, *var, *dev, *w, *z;
 } mr__workspace;
 
-mr_status mr__workspace_init(mr__workspace *ws, size_t p, mr__error *err);
+mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *err);
 void mr__workspace_release(mr__workspace *ws);
 
 mr_status mr__sums_init(mr__block_sums *s, size_t p, mr__error *err);

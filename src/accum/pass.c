@@ -60,14 +60,6 @@ static double now_seconds(void)
     return (double)ts.tv_sec + ts.tv_nsec * 1e-9;
 }
 
-void mr__store_release(mr__store *s)
-{
-    size_t i;
-    for (i = 0; i < s->n; i++) mr__block_release(&s->block[i]);
-    mr__free(s->block);
-    memset(s, 0, sizeof *s);
-}
-
 /* ---- the reader ------------------------------------------------------ */
 
 /* Waits until block `index` may be filled; returns its slot or NULL when
@@ -122,7 +114,7 @@ static mr_status read_stream(engine *e, mr__error *err)
     return mr__splitter_finish(&e->sp, on_full_chunk, e, err);
 }
 
-static mr_status replay_store(engine *e)
+static mr_status replay_store(engine *e, mr__error *err)
 {
     size_t i;
     for (i = 0; i < e->cfg->store->n; i++) {
@@ -130,8 +122,8 @@ static mr_status replay_store(engine *e)
         pthread_mutex_lock(&e->mu);
         s = claim_slot(e, i);
         pthread_mutex_unlock(&e->mu);
-        if (s == NULL) return MR_ERR_INTERNAL;
-        s->use = &e->cfg->store->block[i];
+        if (s == NULL) return mr__fail(err, MR_ERR_INTERNAL, "pass abandoned");
+        MR__TRY(mr__store_load(e->cfg->store, i, e->cfg->dcfg->bind, &s->block, &s->use, err));
         s->raw_bytes = 0;
         publish(e, s);
     }
@@ -144,7 +136,7 @@ static void *reader_main(void *arg)
     mr__error err;
     mr_status st;
     mr__error_clear(&err);
-    st = e->cfg->store && !e->cfg->store_fill ? replay_store(e) : read_stream(e, &err);
+    st = e->cfg->store && !e->cfg->store_fill ? replay_store(e, &err) : read_stream(e, &err);
     pthread_mutex_lock(&e->mu);
     e->reader_done = 1;
     e->reader_st = st;
@@ -243,7 +235,7 @@ static mr_status start_workers(engine *e, mr__error *err)
         worker *w = &e->workers[i];
         w->e = e;
         MR__TRY(mr__decoder_init(&w->dec, e->cfg->dcfg, err));
-        if (e->cfg->kind == MR__PASS_IRLS) MR__TRY(mr__workspace_init(&w->ws, e->cfg->p, err));
+        if (e->cfg->kind == MR__PASS_IRLS) MR__TRY(mr__workspace_init(&w->ws, e->cfg->point->design, err));
     }
     for (i = 0; i < e->nworkers; i++) {
         if (pthread_create(&e->workers[i].thread, NULL, worker_main, &e->workers[i]) != 0)
@@ -310,23 +302,6 @@ static mr_status begin_stream(engine *e, mr__error *err)
     return MR_OK;
 }
 
-static void keep_block(engine *e, slot *s, mr__error *err, mr_status *st)
-{
-    mr__store *store = e->cfg->store;
-    if (store->n == store->cap) {
-        size_t cap = store->cap ? 2 * store->cap : 64;
-        mr__block *p = mr__realloc(store->block, cap * sizeof *p);
-        if (p == NULL) {
-            *st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory keeping the data in memory");
-            return;
-        }
-        store->block = p;
-        store->cap = cap;
-    }
-    store->block[store->n++] = s->block;
-    *st = mr__block_init(&s->block, e->cfg->dcfg->bind, err);
-}
-
 static void report_progress(engine *e, const slot *s, double t0, double *last, int final)
 {
     const mr__pass_cfg *cfg = e->cfg;
@@ -356,7 +331,7 @@ static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *
     }
     if (cfg->kind == MR__PASS_SCAN) mr__scan_add(&res->scan, &s->scan, cfg->dcfg->bind->ncol, cfg->dcfg->bind->nnum);
     else mr__sums_add(&res->sums, &s->sums, cfg->p);
-    if (cfg->store && cfg->store_fill) keep_block(e, s, err, &st);
+    if (cfg->store && cfg->store_fill) st = mr__store_keep(cfg->store, &s->block, cfg->dcfg->bind, err);
     return st;
 }
 

@@ -18,17 +18,12 @@
 #include <stdint.h>
 #include "accum/accumulate.h"
 #include "accum/scan.h"
+#include "accum/store.h"
 #include "input/decode.h"
 #include "millrace.h"
 
 typedef enum mr__pass_kind { MR__PASS_SCAN, MR__PASS_IRLS } mr__pass_kind;
 
-typedef struct mr__store {
-    mr__block *block;
-    size_t n, cap;
-} mr__store;
-
-void mr__store_release(mr__store *s);
 
 /* Called on the calling thread once the header row is read. */
 typedef mr_status (*mr__header_fn)(void *user, const char *line, size_t len, mr__error *err);
@@ -45,7 +40,7 @@ typedef struct mr__pass_cfg {
     mr__decode_cfg *dcfg; /* completed by on_header on the first pass */
     const mr__irls_point *point;
     size_t p;
-    mr__store *store;     /* NULL, or in-memory blocks */
+    mr__store *store;     /* NULL, or kept blocks (memory or cache file) */
     int store_fill;       /* 1: keep decoded blocks in store; 0 with store: replay it */
     int pass_number;
     mr_progress_fn progress;

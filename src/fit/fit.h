@@ -46,7 +46,7 @@ struct mr_fit {
     int zstd;
     char delimiter;
     int delimiter_detected;
-    int threads, max_passes, in_memory, skip_bad;
+    int threads, max_passes, in_memory, skip_bad, cached;
     size_t buffer_size;
     double tolerance, level;
     char **warning;

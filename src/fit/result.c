@@ -272,6 +272,7 @@ static mr_status copy_run_info(mr_fit *fit, const mr__run *r, mr__error *err)
     fit->threads = r->nthreads;
     fit->max_passes = f->max_passes;
     fit->in_memory = f->in_memory;
+    fit->cached = r->cached;
     fit->skip_bad = f->skip_bad;
     fit->buffer_size = f->buffer_size;
     fit->tolerance = f->tolerance;
@@ -302,6 +303,7 @@ static void collect_warnings(mr_fit *fit, const mr__run *r)
         mr__fit_warn(fit, "fitted rates are numerically 0 for %llu rows: a level or cell with no events drives a "
                           "coefficient towards minus infinity",
                      (unsigned long long)r->last.sums.boundary);
+    if (r->cache_note[0]) mr__fit_warn(fit, "%s", r->cache_note);
     if (fit->rows_bad)
         mr__fit_warn(fit, "%llu malformed rows were skipped (--on-bad-row skip)", (unsigned long long)fit->rows_bad);
     for (j = 0; j < fit->nfactors; j++)

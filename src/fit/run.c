@@ -21,6 +21,7 @@ void openblas_set_num_threads(int num_threads);
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <sys/statvfs.h>
 #include <unistd.h>
 
 #include "accum/pass.h"
@@ -100,9 +101,9 @@ static mr__pass_cfg pass_config(mr__run *r, mr__pass_kind kind)
     c.pass_number = r->npasses + 1;
     c.progress = r->f->progress;
     c.progress_user = r->f->progress_user;
-    if (r->f->in_memory && kind == MR__PASS_IRLS) {
+    if (r->use_store && kind == MR__PASS_IRLS) {
         c.store = &r->store;
-        c.store_fill = r->store.n == 0;
+        c.store_fill = !r->store_filled;
     }
     return c;
 }
@@ -119,7 +120,7 @@ static mr_status note_pass(mr__run *r, const mr__pass_result *res, mr__error *er
 /* Later passes must see the very file the first pass saw. */
 static mr_status check_same_input(mr__run *r, const mr__pass_result *res, mr__error *err)
 {
-    if (res->raw_bytes == 0 && r->f->in_memory) return MR_OK;
+    if (res->raw_bytes == 0 && r->use_store) return MR_OK;
     if (res->size != r->size || res->mtime_ns != r->mtime_ns || res->raw_bytes != r->raw_bytes)
         return mr__fail(err, MR_ERR_IO, "%s: the file changed during the fit", r->display);
     return MR_OK;
@@ -231,6 +232,35 @@ static mr_status settle_scan(mr__run *r, mr__error *err)
     return mr__design_build(&r->design, &r->f->spec, &r->bind, r->fac, r->mean, r->spread, err);
 }
 
+/* Where later passes get their rows: memory (asked for), a cache file
+ * (default, when the disk has room), or the input again. */
+static mr_status choose_store(mr__run *r, mr__error *err)
+{
+    const char *dir = getenv("TMPDIR");
+    struct statvfs fs;
+    double need = (double)r->first.scan.nused * (double)mr__store_row_bytes(&r->bind), room;
+    if (r->f->in_memory) {
+        mr__store_init_memory(&r->store);
+        r->use_store = 1;
+        return MR_OK;
+    }
+    mr__store_init_memory(&r->store);
+    if (r->f->no_cache) return MR_OK;
+    if (dir == NULL || *dir == '\0') dir = "/tmp";
+    if (statvfs(dir, &fs) != 0) return MR_OK;
+    room = (double)fs.f_bavail * (double)fs.f_frsize;
+    if (need > room / 2) {
+        snprintf(r->cache_note, sizeof r->cache_note,
+                 "no cache: it would need %.0f MB and %s has %.0f MB free; every pass rereads the input",
+                 need / 1e6, dir, room / 1e6);
+        return MR_OK;
+    }
+    MR__TRY(mr__store_init_file(&r->store, dir, err));
+    r->use_store = 1;
+    r->cached = 1;
+    return MR_OK;
+}
+
 /* ---- IRLS -------------------------------------------------------------- */
 
 /* The null model's starting intercept; exact when there is no offset, and
@@ -265,6 +295,7 @@ static mr_status irls_pass(mr__run *r, const double *beta, double null_b0, mr__p
     mr__pass_result_release(res, 0);
     st = mr__pass_run(&c, res, err);
     if (st != MR_OK) return st;
+    if (c.store) r->store_filled = 1;
     MR__TRY(check_same_input(r, res, err));
     return note_pass(r, res, err);
 }
@@ -400,6 +431,7 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
     mr__error *err = &f->err;
     mr_status st;
     memset(&r, 0, sizeof r);
+    mr__store_init_memory(&r.store);
     r.f = f;
     r.path = path;
     r.read_path = path;
@@ -416,6 +448,7 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
     }
     if (st == MR_OK) st = settle_scan(&r, err);
     if (st == MR_OK) st = allocate_coefficients(&r, err);
+    if (st == MR_OK) st = choose_store(&r, err);
     if (st == MR_OK) st = iterate(&r, &r.last, err);
     if (st == MR_OK) st = mr__build_fit(&r, out, err);
     release_run(&r);

@@ -37,6 +37,8 @@ typedef struct mr__run {
     double *mean, *spread;
     mr__design design;
     mr__store store;
+    int use_store, store_filled, cached;
+    char cache_note[256];
     /* IRLS */
     mr__pass_result last; /* sums at the reported coefficients */
     double *beta_a, *beta_b, *beta_c, *beta_final;

@@ -206,6 +206,7 @@ static bool scan_field(const char *s, size_t len, decimal *d)
 /* Exact tiers                                                         */
 
 #define TWO_POW_53 (UINT64_C(1) << 53)
+#define STORED_MANTISSA_MASK ((UINT64_C(1) << 52) - 1) /* implicit bit dropped */
 #define MAX_SIGNIFICANT 19 /* 10^19 - 1 < 2^64 */
 
 static const double exact_pow10[23] = {
@@ -982,7 +983,7 @@ static bool eisel_lemire(uint64_t w, int64_t q, double *v)
     if (biased_exp <= 0 || biased_exp >= 0x7FF)
         return false; /* subnormal or overflow: the 53-bit rounding is wrong */
 
-    uint64_t bits = ((uint64_t)biased_exp << 52) | (mantissa & (TWO_POW_53 / 2 - 1));
+    uint64_t bits = ((uint64_t)biased_exp << 52) | (mantissa & STORED_MANTISSA_MASK);
     memcpy(v, &bits, sizeof bits);
     return true;
 }
@@ -1085,7 +1086,8 @@ static bool fast_magnitude(const decimal *d, double *v)
  * 768 significant decimal digits (an odd multiple of 2^-1075 below 2^-1021
  * is the worst case).  Keeping 800 digits and replacing a nonzero tail by a
  * single '1' one place further moves the value without crossing any
- * midpoint, so strtod still rounds it the same way. */
+ * midpoint, so strtod still rounds it the same way.  Fields of any length
+ * are therefore parsed exactly without a heap buffer. */
 #define SLOW_DIGITS 800
 
 static size_t format_int(char *buf, int64_t v)
@@ -1140,8 +1142,8 @@ static double slow_magnitude(const mr__numparser *np, const decimal *d)
 
 /* ------------------------------------------------------------------ */
 
-/* Tier 1 alone, small enough to inline: most fields end here, and keeping
- * the other tiers out of line lets this path run without stack traffic. */
+/* Tier 1 alone, inlined into the entry point: most fields end here, and the
+ * other tiers stay out of line so they do not bloat the hot path. */
 static bool clinger_magnitude(const decimal *d, double *v)
 {
     /* Multiplying by 1 or dividing by 1 is exact, so one table entry of
@@ -1192,12 +1194,8 @@ int mr__parse_double(mr__numparser *np, const char *s, size_t len, double *out)
     if (len == 0 || !scan_field(s, len, &d))
         return 0;
     double v;
-    if (!clinger_magnitude(&d, &v)) {
-        /* Only this copy has its address taken, so d itself can stay in
-         * registers on the fast path. */
-        decimal escaped = d;
-        return parse_general(np, &escaped, out);
-    }
+    if (!clinger_magnitude(&d, &v))
+        return parse_general(np, &d, out);
     store_signed(out, v, d.negative);
     return 1;
 }

@@ -266,6 +266,20 @@ static mr_status build_transform(mr__design *d, const double *mean, const double
     return MR_OK;
 }
 
+static mr_status split_layout(mr__design *d, mr__error *err)
+{
+    size_t i;
+    d->dense_col = mr__calloc(d->p + 1, sizeof *d->dense_col);
+    d->sparse_term = mr__calloc(d->nterms + 1, sizeof *d->sparse_term);
+    if (d->dense_col == NULL || d->sparse_term == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    if (d->intercept) d->dense_col[d->ndense++] = 0;
+    for (i = 0; i < d->nterms; i++) {
+        if (d->term[i].nfac == 0) d->dense_col[d->ndense++] = d->term[i].col0;
+        else d->sparse_term[d->nsparse++] = i;
+    }
+    return MR_OK;
+}
+
 mr_status mr__design_build(mr__design *d, const mr__spec *s, const mr__binding *b, const mr__factor *fac,
                            const double *mean, const double *spread, mr__error *err)
 {
@@ -277,6 +291,7 @@ mr_status mr__design_build(mr__design *d, const mr__spec *s, const mr__binding *
     MR__TRY(collect_terms(d, s, b, err));
     MR__TRY(lay_out_columns(d, err));
     MR__TRY(name_columns(d, s, b, err));
+    MR__TRY(split_layout(d, err));
     return build_transform(d, mean, spread, err);
 }
 
@@ -287,29 +302,36 @@ void mr__design_release(mr__design *d)
     mr__free(d->name);
     mr__free(d->term);
     mr__free(d->A);
+    mr__free(d->dense_col);
+    mr__free(d->sparse_term);
     memset(d, 0, sizeof *d);
+}
+
+/* Row i's column in term t (-1 if none) and, through *v, its value. */
+static int32_t term_entry(const mr__term *t, const mr__factor *fac, const double *num, const int32_t *lev,
+                          size_t stride_rows, size_t i, double *v)
+{
+    size_t col = t->col0;
+    double x = 1.0;
+    int k;
+    for (k = 0; k < t->nfac; k++) {
+        int32_t c = level_code(t, &fac[t->fac[k]], lev[(size_t)t->fac[k] * stride_rows + i]);
+        if (c < 0) return -1;
+        col += (size_t)c * t->stride[k];
+    }
+    for (k = 0; k < t->nnum; k++) x *= (num[(size_t)t->num[k] * stride_rows + i] - t->centre[k]) / t->scale[k];
+    *v = x;
+    return (int32_t)col;
 }
 
 static void fill_term(const mr__term *t, const mr__factor *fac, const double *num, const int32_t *lev,
                       size_t stride_rows, size_t n, double *Z, size_t ldz)
 {
     size_t i;
-    int k;
     for (i = 0; i < n; i++) {
-        size_t col = t->col0;
-        double v = 1.0;
-        int skip = 0;
-        for (k = 0; k < t->nfac; k++) {
-            int32_t c = level_code(t, &fac[t->fac[k]], lev[(size_t)t->fac[k] * stride_rows + i]);
-            if (c < 0) {
-                skip = 1;
-                break;
-            }
-            col += (size_t)c * t->stride[k];
-        }
-        if (skip) continue;
-        for (k = 0; k < t->nnum; k++) v *= (num[(size_t)t->num[k] * stride_rows + i] - t->centre[k]) / t->scale[k];
-        Z[col * ldz + i] = v;
+        double v;
+        int32_t col = term_entry(t, fac, num, lev, stride_rows, i, &v);
+        if (col >= 0) Z[(size_t)col * ldz + i] = v;
     }
 }
 
@@ -321,4 +343,24 @@ void mr__design_fill(const mr__design *d, const double *num, const int32_t *lev,
     if (d->intercept)
         for (i = 0; i < n; i++) Z[i] = 1.0;
     for (j = 0; j < d->nterms; j++) fill_term(&d->term[j], d->fac, num, lev, stride_rows, n, Z, ldz);
+}
+
+void mr__design_fill_split(const mr__design *d, const double *num, const int32_t *lev, size_t stride_rows,
+                           size_t n, double *D, int32_t *col, double *val)
+{
+    size_t i, j = 0, s;
+    if (d->intercept) {
+        for (i = 0; i < n; i++) D[i] = 1.0;
+        j = 1;
+    }
+    for (s = 0; s < d->nterms; s++) {
+        const mr__term *t = &d->term[s];
+        if (t->nfac != 0) continue;
+        for (i = 0; i < n; i++) term_entry(t, d->fac, num, lev, stride_rows, i, &D[j * n + i]);
+        j++;
+    }
+    for (s = 0; s < d->nsparse; s++) {
+        const mr__term *t = &d->term[d->sparse_term[s]];
+        for (i = 0; i < n; i++) col[s * n + i] = term_entry(t, d->fac, num, lev, stride_rows, i, &val[s * n + i]);
+    }
 }

@@ -51,6 +51,13 @@ typedef struct mr__design {
     const mr__factor *fac;
     size_t nfac, nnum;
     double *A; /* p x p, column-major: raw column k's share of internal column j */
+    /* The accumulation layout.  Terms without a factor are dense (every row
+     * has a value in their column); a term with a factor puts at most one
+     * non-zero in a row, so it is carried as (column, value) per row and
+     * costs the same whatever its number of levels. */
+    size_t ndense, nsparse;
+    size_t *dense_col;   /* ndense design columns */
+    size_t *sparse_term; /* nsparse term indices */
 } mr__design;
 
 /* Builds the design.  `mean` and `spread` (nnum each) come from the first
@@ -63,5 +70,12 @@ void mr__design_release(mr__design *d);
  * dimension ldz >= n) from a block's variable-major values. */
 void mr__design_fill(const mr__design *d, const double *num, const int32_t *lev, size_t stride_rows, size_t n,
                      double *Z, size_t ldz);
+
+/* The same rows in the accumulation layout: D is n x ndense (column-major,
+ * leading dimension n); for sparse term s and row i, col[s * n + i] is the
+ * design column (-1 when the row has none, e.g. at a reference level) and
+ * val[s * n + i] its value. */
+void mr__design_fill_split(const mr__design *d, const double *num, const int32_t *lev, size_t stride_rows,
+                           size_t n, double *D, int32_t *col, double *val);
 
 #endif

@@ -70,9 +70,10 @@ static json_t *model_object(const mr_fit *f)
 
 static json_t *options_object(const mr_fit *f)
 {
-    return json_pack("{s:i, s:I, s:o, s:i, s:o, s:b, s:s}", "threads", f->threads, "buffer_size",
+    return json_pack("{s:i, s:I, s:o, s:i, s:o, s:b, s:b, s:s}", "threads", f->threads, "buffer_size",
                      (json_int_t)f->buffer_size, "tolerance", num(f->tolerance), "max_passes", f->max_passes, "level",
-                     num(f->level), "in_memory", f->in_memory, "on_bad_row", f->skip_bad ? "skip" : "fail");
+                     num(f->level), "in_memory", f->in_memory, "cache", f->cached, "on_bad_row",
+                     f->skip_bad ? "skip" : "fail");
 }
 
 static json_t *convergence_object(const mr_fit *f)

@@ -75,7 +75,7 @@ static void section_convergence(mr__strbuf *b, const mr_fit *f)
 {
     mr__strbuf_printf(b, "fit        %s after %d IRLS passes (%d reads of the data%s)\n",
                       f->converged ? "converged" : "NOT CONVERGED", f->iterations, f->passes,
-                      f->in_memory ? ", later passes from memory" : "");
+                      f->in_memory ? ", later passes from memory" : f->cached ? ", later passes from the cache" : "");
     mr__strbuf_printf(b, "           last relative deviance change %.3g (tolerance %.3g)", f->rel_change, f->tolerance);
     if (f->halvings) mr__strbuf_printf(b, ", %d step halvings", f->halvings);
     mr__strbuf_printf(b, "\n           %.3f s, %.3f s per pass, %.0f rows/s, %d threads\n", f->seconds,

@@ -1,0 +1,43 @@
+/* store.h - decoded blocks kept for the later passes.
+ *
+ * Decompressing and parsing cost far more than one IRLS step, so the first
+ * IRLS pass keeps each decoded block and the later passes replay them:
+ * in memory (--in-memory, the in-memory reference fit), or by default in
+ * a temporary file that is unlinked as soon as it is created, so that it
+ * vanishes however the process ends and memory stays flat.  Replayed
+ * blocks hold the same numbers as decoded ones, so results are the same
+ * bits either way. */
+#ifndef MR_STORE_H
+#define MR_STORE_H
+
+#include <stdint.h>
+#include "input/decode.h"
+
+typedef struct mr__store {
+    int fd;              /* file backend, or -1 for memory */
+    mr__block *block;    /* memory backend */
+    uint64_t *offset;    /* file backend: start of block i; offset[n] = end */
+    size_t n, cap;
+    char *pack;          /* staging buffer for one block */
+    size_t pack_cap;
+    uint64_t bytes;
+} mr__store;
+
+void mr__store_init_memory(mr__store *s);
+/* A file store in `dir`; MR_ERR_IO if it cannot be created. */
+mr_status mr__store_init_file(mr__store *s, const char *dir, mr__error *err);
+void mr__store_release(mr__store *s);
+
+/* Bytes one kept row takes, for the free-space check. */
+size_t mr__store_row_bytes(const mr__binding *b);
+
+/* Keeps block `*blk` as the next one.  The memory backend takes the block
+ * itself and gives the caller a fresh one in its place. */
+mr_status mr__store_keep(mr__store *s, mr__block *blk, const mr__binding *b, mr__error *err);
+
+/* Block i for a worker: *use points at the kept block (memory) or at dst,
+ * loaded from the file.  Called from one thread at a time. */
+mr_status mr__store_load(const mr__store *s, size_t i, const mr__binding *b, mr__block *dst,
+                         const mr__block **use, mr__error *err);
+
+#endif
