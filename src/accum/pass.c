@@ -317,6 +317,41 @@ static void report_progress(engine *e, const slot *s, double t0, double *last, i
     cfg->progress(&pr, cfg->progress_user);
 }
 
+/* Keeps every stride-th block; when the sample is full, every other kept
+ * block goes and the stride doubles.  Only block numbers decide, so the
+ * sample is the same whatever the threads or read size. */
+static mr_status keep_sample(mr__pass_result *res, const mr__chunk *c, mr__error *err)
+{
+    mr__chunk *copy;
+    size_t i, k;
+    if (c->index % res->sample_stride != 0) return MR_OK;
+    if (res->nsample == MR__SAMPLE_BLOCKS) {
+        for (i = k = 0; i < res->nsample; i++) {
+            if (res->sample[i]->index % (2 * res->sample_stride) == 0) {
+                res->sample[k++] = res->sample[i];
+            } else {
+                mr__free(res->sample[i]->data);
+                mr__free(res->sample[i]);
+            }
+        }
+        res->nsample = k;
+        res->sample_stride *= 2;
+        if (c->index % res->sample_stride != 0) return MR_OK;
+    }
+    copy = mr__malloc(sizeof *copy);
+    if (copy == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    *copy = *c;
+    copy->data = mr__malloc(c->len ? c->len : 1);
+    if (copy->data == NULL) {
+        mr__free(copy);
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    }
+    memcpy(copy->data, c->data, c->len);
+    copy->cap = c->len;
+    res->sample[res->nsample++] = copy;
+    return MR_OK;
+}
+
 static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *err)
 {
     const mr__pass_cfg *cfg = e->cfg;
@@ -329,8 +364,11 @@ static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *
         *err = s->block.err;
         return s->block.err.status;
     }
-    if (cfg->kind == MR__PASS_SCAN) mr__scan_add(&res->scan, &s->scan, cfg->dcfg->bind->ncol, cfg->dcfg->bind->nnum);
-    else mr__sums_add(&res->sums, &s->sums, cfg->p);
+    if (cfg->kind == MR__PASS_SCAN) {
+        mr__scan_add(&res->scan, &s->scan, cfg->dcfg->bind->ncol, cfg->dcfg->bind->nnum);
+        return keep_sample(res, s->chunk, err);
+    }
+    mr__sums_add(&res->sums, &s->sums, cfg->p);
     if (cfg->store && cfg->store_fill) st = mr__store_keep(cfg->store, &s->block, cfg->dcfg->bind, err);
     return st;
 }
@@ -374,7 +412,11 @@ static mr_status combine_all(engine *e, mr__pass_result *res, double t0, mr__err
 static mr_status init_result(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error *err)
 {
     memset(res, 0, sizeof *res);
-    if (cfg->kind == MR__PASS_SCAN) return MR_OK; /* sizes known only after the header */
+    res->sample_stride = 1;
+    if (cfg->kind == MR__PASS_SCAN) {
+        res->sample = mr__calloc(MR__SAMPLE_BLOCKS, sizeof *res->sample);
+        return res->sample ? MR_OK : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    }
     return mr__sums_init(&res->sums, cfg->p, err);
 }
 
@@ -455,6 +497,11 @@ void mr__pass_result_release(mr__pass_result *res, size_t nfac)
         mr__free(res->worker_levels[i]);
     }
     mr__free(res->worker_levels);
+    for (i = 0; i < res->nsample; i++) {
+        mr__free(res->sample[i]->data);
+        mr__free(res->sample[i]);
+    }
+    mr__free(res->sample);
     mr__scan_release(&res->scan);
     mr__sums_release(&res->sums);
     memset(res, 0, sizeof *res);

@@ -58,7 +58,15 @@ typedef struct mr__pass_result {
     mr__levelset **worker_levels;
     size_t nworkers;
     double seconds;
+    /* First pass: raw chunks of an evenly spread sample of blocks (every
+     * sample_stride-th block, at most MR__SAMPLE_BLOCKS), for a cheap fit
+     * whose coefficients start the full IRLS. */
+    mr__chunk **sample;
+    size_t nsample;
+    uint64_t sample_stride;
 } mr__pass_result;
+
+#define MR__SAMPLE_BLOCKS 48
 
 mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error *err);
 void mr__pass_result_release(mr__pass_result *res, size_t nfac);

@@ -36,7 +36,7 @@ struct mr_fit {
     char **bad_example;
     size_t nbad_examples;
     /* convergence */
-    int iterations, passes, halvings, converged;
+    int iterations, passes, halvings, converged, warm_start, warm_iterations;
     double rel_change, seconds, rows_per_second;
     double *pass_seconds;
     size_t npass_seconds;

@@ -279,7 +279,19 @@ static double null_start(const mr__run *r)
 
 static double relative_change(double now, double before) { return fabs(now - before) / (fabs(now) + 0.1); }
 
-static mr_status irls_pass(mr__run *r, const double *beta, double null_b0, mr__pass_result *res, mr__error *err)
+/* One IRLS run: on the data, or on the kept sample for a warm start. */
+typedef struct irls_job {
+    mr__store *replay;   /* NULL: the data (stream or cache); else these blocks */
+    const double *start; /* NULL: from the family's starting means */
+    double tolerance;
+    int max_iterations;
+    double *beta_out;    /* the coefficients reached */
+    int iterations, halvings, converged;
+    double rel_change, null_b0;
+} irls_job;
+
+static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, double null_b0,
+                           mr__pass_result *res, mr__error *err)
 {
     mr__irls_point pt;
     mr__pass_cfg c;
@@ -292,9 +304,14 @@ static mr_status irls_pass(mr__run *r, const double *beta, double null_b0, mr__p
     pt.null_b0 = null_b0;
     c = pass_config(r, MR__PASS_IRLS);
     c.point = &pt;
+    if (job->replay) {
+        c.store = job->replay;
+        c.store_fill = 0;
+        c.progress = NULL;
+    }
     mr__pass_result_release(res, 0);
     st = mr__pass_run(&c, res, err);
-    if (st != MR_OK) return st;
+    if (st != MR_OK || job->replay) return st;
     if (c.store) r->store_filled = 1;
     MR__TRY(check_same_input(r, res, err));
     return note_pass(r, res, err);
@@ -302,7 +319,7 @@ static mr_status irls_pass(mr__run *r, const double *beta, double null_b0, mr__p
 
 typedef struct irls_state {
     double *beta, *prev, *next;
-    int have_beta, have_prev;
+    int have_beta, have_prev, have_dev, cold_restart;
     double dev_prev, null_b0, null_dev_prev;
     int null_done;
 } irls_state;
@@ -320,7 +337,7 @@ static void halve_step(irls_state *s, size_t p)
     for (j = 0; j < p; j++) s->beta[j] = 0.5 * (s->beta[j] + s->prev[j]);
 }
 
-static mr_status next_point(mr__run *r, irls_state *s, const mr__pass_result *res, mr__error *err)
+static mr_status next_point(mr__run *r, irls_state *s, const mr__pass_result *res, double tol, mr__error *err)
 {
     size_t p = r->design.p, rank;
     double *t;
@@ -331,57 +348,146 @@ static mr_status next_point(mr__run *r, irls_state *s, const mr__pass_result *re
     s->next = t;
     s->have_prev = s->have_beta;
     s->have_beta = 1;
+    s->have_dev = 1;
     s->dev_prev = res->sums.dev;
     if (r->f->spec.intercept && res->sums.null_sw > 0) {
         double b0 = res->sums.null_swz / res->sums.null_sw;
-        s->null_done = s->null_done || relative_change(res->sums.null_dev, s->null_dev_prev) < r->f->tolerance;
+        s->null_done = s->null_done || relative_change(res->sums.null_dev, s->null_dev_prev) < tol;
         s->null_dev_prev = res->sums.null_dev;
         if (!s->null_done) s->null_b0 = b0;
     }
     return MR_OK;
 }
 
-static mr_status iterate(mr__run *r, mr__pass_result *res, mr__error *err)
+static void start_state(mr__run *r, const irls_job *job, irls_state *s)
+{
+    memset(s, 0, sizeof *s);
+    s->beta = r->beta_a;
+    s->prev = r->beta_b;
+    s->next = r->beta_c;
+    s->null_b0 = null_start(r);
+    s->null_dev_prev = INFINITY;
+    s->null_done = !r->f->spec.intercept || (!r->bind.has_offset && !r->bind.has_exposure);
+    if (job->start) {
+        memcpy(s->beta, job->start, r->design.p * sizeof *s->beta);
+        s->have_beta = 1;
+    }
+}
+
+/* Returns 1 to go on with the pass just made, 0 to redo the pass at a
+ * halved step (or, from a warm start outside the range, from scratch). */
+static mr_status accept_point(mr__run *r, irls_job *job, irls_state *s, const mr__pass_result *res, int *halvings,
+                              int *accepted, mr__error *err)
+{
+    *accepted = 0;
+    if (s->have_beta && bad_point(res, s)) {
+        if (!s->have_prev && job->start && !s->cold_restart) {
+            s->have_beta = 0;
+            s->cold_restart = 1;
+            return MR_OK;
+        }
+        if (!s->have_prev || ++*halvings > MAX_HALVINGS)
+            return mr__fail(err, MR_ERR_NUMERIC,
+                            "%s: IRLS found no valid coefficients (fitted means outside the %s family's range even "
+                            "after step halving); check the link and the data",
+                            r->display, mr__family_name((mr_family)r->f->spec.family));
+        halve_step(s, r->design.p);
+        job->halvings++;
+        return MR_OK;
+    }
+    if (!s->have_beta && res->sums.invalid > 0)
+        return mr__fail(err, MR_ERR_NUMERIC, "%s: the starting values are outside the model's range", r->display);
+    *accepted = 1;
+    return MR_OK;
+}
+
+static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__error *err)
 {
     irls_state s;
-    size_t p = r->design.p;
-    int halvings = 0;
-    memset(&s, 0, sizeof s);
-    s.beta = r->beta_a;
-    s.prev = r->beta_b;
-    s.next = r->beta_c;
-    s.null_b0 = null_start(r);
-    s.null_dev_prev = INFINITY;
-    s.null_done = !r->f->spec.intercept || (!r->bind.has_offset && !r->bind.has_exposure);
+    int halvings = 0, accepted;
+    start_state(r, job, &s);
     for (;;) {
-        MR__TRY(irls_pass(r, s.have_beta ? s.beta : NULL, s.null_b0, res, err));
-        if (s.have_beta && bad_point(res, &s)) {
-            if (!s.have_prev || ++halvings > MAX_HALVINGS)
-                return mr__fail(err, MR_ERR_NUMERIC,
-                                "%s: IRLS found no valid coefficients (fitted means outside the %s family's range "
-                                "even after step halving); check the link and the data",
-                                r->display, mr__family_name((mr_family)r->f->spec.family));
-            halve_step(&s, p);
-            r->halvings++;
-            continue;
-        }
-        if (!s.have_beta && res->sums.invalid > 0)
-            return mr__fail(err, MR_ERR_NUMERIC, "%s: the starting values are outside the model's range", r->display);
+        MR__TRY(irls_pass(r, job, s.have_beta ? s.beta : NULL, s.null_b0, res, err));
+        MR__TRY(accept_point(r, job, &s, res, &halvings, &accepted, err));
+        if (!accepted) continue;
         halvings = 0;
-        r->iterations++;
-        if (s.have_beta) {
-            r->rel_change = relative_change(res->sums.dev, s.dev_prev);
-            if (r->rel_change < r->f->tolerance && s.null_done) {
-                r->converged = 1;
+        job->iterations++;
+        if (s.have_dev) {
+            job->rel_change = relative_change(res->sums.dev, s.dev_prev);
+            if (job->rel_change < job->tolerance && s.null_done) {
+                job->converged = 1;
                 break;
             }
         }
-        if (r->iterations >= r->f->max_passes) break;
-        MR__TRY(next_point(r, &s, res, err));
+        if (job->iterations >= job->max_iterations) break;
+        MR__TRY(next_point(r, &s, res, job->tolerance, err));
     }
-    memcpy(r->beta_final, s.have_beta ? s.beta : s.next, p * sizeof *r->beta_final);
-    if (!s.have_beta) memset(r->beta_final, 0, p * sizeof *r->beta_final);
-    r->null_b0 = s.null_b0;
+    if (s.have_beta) memcpy(job->beta_out, s.beta, r->design.p * sizeof *job->beta_out);
+    else memset(job->beta_out, 0, r->design.p * sizeof *job->beta_out);
+    job->null_b0 = s.null_b0;
+    return MR_OK;
+}
+
+/* ---- the warm start ---------------------------------------------------- */
+
+static mr_status decode_sample(mr__run *r, mr__store *sample, mr__error *err)
+{
+    mr__decoder dec;
+    mr__block blk;
+    size_t i;
+    mr_status st = mr__decoder_init(&dec, &r->dcfg, err);
+    for (i = 0; st == MR_OK && i < r->first.nsample; i++) {
+        st = mr__block_init(&blk, &r->bind, err);
+        if (st != MR_OK) break;
+        st = mr__decode_chunk(&dec, r->first.sample[i], &blk, err);
+        if (st == MR_OK && blk.failed) st = mr__fail(err, MR_ERR_INTERNAL, "sample block did not decode");
+        if (st == MR_OK) st = mr__store_keep(sample, &blk, &r->bind, err);
+        mr__block_release(&blk);
+    }
+    mr__decoder_release(&dec);
+    return st;
+}
+
+/* Most IRLS passes only walk towards the answer; taking those steps on a
+ * sample spread over the whole file (about MR__SAMPLE_BLOCKS blocks) costs
+ * next to nothing, and the full passes then only polish.  Any trouble on
+ * the sample just means a cold start. */
+static void warm_start(mr__run *r)
+{
+    mr__store sample;
+    mr__pass_result res;
+    mr__error scratch;
+    irls_job job;
+    int whole_file = r->first.sample_stride == 1;
+    mr__store_init_memory(&sample);
+    memset(&res, 0, sizeof res);
+    memset(&job, 0, sizeof job);
+    job.replay = &sample;
+    job.tolerance = 1e-8;
+    job.max_iterations = 25;
+    job.beta_out = r->beta_warm;
+    if (!whole_file && r->first.nsample >= 4 && decode_sample(r, &sample, &scratch) == MR_OK &&
+        iterate(r, &job, &res, &scratch) == MR_OK && job.converged)
+        r->warm = 1;
+    r->warm_iterations = job.iterations;
+    mr__pass_result_release(&res, 0);
+    mr__store_release(&sample);
+}
+
+static mr_status fit_data(mr__run *r, mr__error *err)
+{
+    irls_job job;
+    memset(&job, 0, sizeof job);
+    job.start = r->warm ? r->beta_warm : NULL;
+    job.tolerance = r->f->tolerance;
+    job.max_iterations = r->f->max_passes;
+    job.beta_out = r->beta_final;
+    MR__TRY(iterate(r, &job, &r->last, err));
+    r->iterations = job.iterations;
+    r->halvings = job.halvings;
+    r->converged = job.converged;
+    r->rel_change = job.rel_change;
+    r->null_b0 = job.null_b0;
     return MR_OK;
 }
 
@@ -407,6 +513,7 @@ static void release_run(mr__run *r)
     mr__free(r->beta_b);
     mr__free(r->beta_c);
     mr__free(r->beta_final);
+    mr__free(r->beta_warm);
     mr__store_release(&r->store);
     if (r->bound) mr__binding_release(&r->bind);
     if (r->spool_fd >= 0) close(r->spool_fd);
@@ -420,7 +527,8 @@ static mr_status allocate_coefficients(mr__run *r, mr__error *err)
     r->beta_b = mr__calloc(p, sizeof(double));
     r->beta_c = mr__calloc(p, sizeof(double));
     r->beta_final = mr__calloc(p, sizeof(double));
-    if (!r->aliased || !r->beta_a || !r->beta_b || !r->beta_c || !r->beta_final)
+    r->beta_warm = mr__calloc(p, sizeof(double));
+    if (!r->aliased || !r->beta_a || !r->beta_b || !r->beta_c || !r->beta_final || !r->beta_warm)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     return MR_OK;
 }
@@ -449,7 +557,8 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
     if (st == MR_OK) st = settle_scan(&r, err);
     if (st == MR_OK) st = allocate_coefficients(&r, err);
     if (st == MR_OK) st = choose_store(&r, err);
-    if (st == MR_OK) st = iterate(&r, &r.last, err);
+    if (st == MR_OK) warm_start(&r);
+    if (st == MR_OK) st = fit_data(&r, err);
     if (st == MR_OK) st = mr__build_fit(&r, out, err);
     release_run(&r);
     return st;

@@ -41,7 +41,8 @@ typedef struct mr__run {
     char cache_note[256];
     /* IRLS */
     mr__pass_result last; /* sums at the reported coefficients */
-    double *beta_a, *beta_b, *beta_c, *beta_final;
+    double *beta_a, *beta_b, *beta_c, *beta_final, *beta_warm;
+    int warm, warm_iterations;
     int *aliased;
     double null_b0, rel_change;
     int iterations, halvings, converged;

@@ -78,6 +78,9 @@ static void section_convergence(mr__strbuf *b, const mr_fit *f)
                       f->in_memory ? ", later passes from memory" : f->cached ? ", later passes from the cache" : "");
     mr__strbuf_printf(b, "           last relative deviance change %.3g (tolerance %.3g)", f->rel_change, f->tolerance);
     if (f->halvings) mr__strbuf_printf(b, ", %d step halvings", f->halvings);
+    if (f->warm_start)
+        mr__strbuf_printf(b, "\n           started from a fit to a sample of the file (%d IRLS steps in memory)",
+                          f->warm_iterations);
     mr__strbuf_printf(b, "\n           %.3f s, %.3f s per pass, %.0f rows/s, %d threads\n", f->seconds,
                       f->passes ? f->seconds / f->passes : 0.0, f->rows_per_second, f->threads);
 }
