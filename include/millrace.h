@@ -146,12 +146,18 @@ typedef enum mr_int_option {
                                 failing on the first one (default 0)        */
     MR_OPT_DELIMITER = 5,    /* ',' '\t' ';' or 0 = detect from the header
                                 line (default 0)                            */
-    MR_OPT_NO_CACHE = 6      /* 1: reread and reparse the file on every pass
+    MR_OPT_NO_CACHE = 6,     /* 1: reread and reparse the file on every pass
                                 instead of replaying the decoded columns
                                 from a temporary cache file (default 0).
                                 The cache lives in $TMPDIR (default /tmp),
                                 is unlinked at once, and is skipped when it
                                 would take more than half the free space. */
+    MR_OPT_NO_COLLAPSE = 7   /* 1: never collapse rows into covariate
+                                patterns (default 0: collapse when every
+                                term is a factor or a numeric with few
+                                values and there is no offset, or poisson
+                                with a log link; the fit then reads the
+                                file once) */
 } mr_int_option;
 
 /* Real-valued options. */

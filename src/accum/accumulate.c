@@ -212,7 +212,7 @@ void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__wo
         if (!mr__link_eta_valid(pt->link, ws->eta[i]) || !mr__family_mu_valid(pt->family, ws->mu[i])) out->invalid++;
         out->boundary += at_boundary(pt->family, ws->mu[i]);
         dev += prior * ws->dev[i];
-        pearson += prior * r * r / ws->var[i];
+        pearson += (prior * r * r + (blk->extra ? blk->extra[i] : 0.0)) / ws->var[i];
         ws->w[i] = prior * ws->mu_eta[i] * ws->mu_eta[i] / ws->var[i];
         ws->z[i] = (ws->eta[i] - off) + r / ws->mu_eta[i];
     }

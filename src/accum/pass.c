@@ -205,6 +205,10 @@ static mr_status init_slots(engine *e, mr__error *err)
         s->chunk = mr__calloc(1, sizeof *s->chunk);
         if (s->chunk == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
         MR__TRY(mr__block_init(&s->block, b, err));
+        if (cfg->kind == MR__PASS_SCAN && cfg->dcfg->collapse) {
+            s->block.patterns = mr__calloc(1, sizeof *s->block.patterns);
+            if (s->block.patterns == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        }
         if (cfg->kind == MR__PASS_SCAN) MR__TRY(mr__scan_init(&s->scan, b->ncol, b->nnum, err));
         else MR__TRY(mr__sums_init(&s->sums, cfg->p, err));
     }
@@ -352,6 +356,18 @@ static mr_status keep_sample(mr__pass_result *res, const mr__chunk *c, mr__error
     return MR_OK;
 }
 
+/* Too many patterns, or no memory for them: fall back to passes over the
+ * rows (the fit is the same, only slower). */
+static void merge_patterns(const mr__pass_cfg *cfg, mr__pass_result *res, const mr__pattern_table *blk)
+{
+    if (blk != NULL && !atomic_load(cfg->dcfg->collapse_abandoned) && mr__patterns_merge(&res->patterns, blk) == 0 &&
+        res->patterns.n <= MR__MAX_PATTERNS)
+        return;
+    atomic_store(cfg->dcfg->collapse_abandoned, 1);
+    res->collapsed = 0;
+    mr__patterns_release(&res->patterns);
+}
+
 static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *err)
 {
     const mr__pass_cfg *cfg = e->cfg;
@@ -366,6 +382,7 @@ static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *
     }
     if (cfg->kind == MR__PASS_SCAN) {
         mr__scan_add(&res->scan, &s->scan, cfg->dcfg->bind->ncol, cfg->dcfg->bind->nnum);
+        if (res->collapsed) merge_patterns(cfg, res, s->block.patterns);
         return keep_sample(res, s->chunk, err);
     }
     mr__sums_add(&res->sums, &s->sums, cfg->p);
@@ -414,6 +431,7 @@ static mr_status init_result(const mr__pass_cfg *cfg, mr__pass_result *res, mr__
     memset(res, 0, sizeof *res);
     res->sample_stride = 1;
     if (cfg->kind == MR__PASS_SCAN) {
+        res->collapsed = cfg->dcfg->collapse != 0;
         res->sample = mr__calloc(MR__SAMPLE_BLOCKS, sizeof *res->sample);
         return res->sample ? MR_OK : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }
@@ -483,6 +501,8 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     stop_threads(&e);
     finish_source(&e, res);
     if (st == MR_OK && cfg->kind == MR__PASS_SCAN) take_levels(&e, res);
+    /* A worker may give up collapsing after its block was merged. */
+    if (res->collapsed && atomic_load(cfg->dcfg->collapse_abandoned)) merge_patterns(cfg, res, NULL);
     release_engine(&e);
     res->seconds = now_seconds() - t0;
     return st;
@@ -502,6 +522,7 @@ void mr__pass_result_release(mr__pass_result *res, size_t nfac)
         mr__free(res->sample[i]);
     }
     mr__free(res->sample);
+    mr__patterns_release(&res->patterns);
     mr__scan_release(&res->scan);
     mr__sums_release(&res->sums);
     memset(res, 0, sizeof *res);

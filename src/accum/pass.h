@@ -64,6 +64,10 @@ typedef struct mr__pass_result {
     mr__chunk **sample;
     size_t nsample;
     uint64_t sample_stride;
+    /* First pass with collapsing: the file's covariate patterns, merged in
+     * block order; `collapsed` is 0 when collapsing was given up. */
+    mr__pattern_table patterns;
+    int collapsed;
 } mr__pass_result;
 
 #define MR__SAMPLE_BLOCKS 48

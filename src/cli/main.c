@@ -15,7 +15,7 @@ enum {
     OPT_OUTCOME = 256, OPT_TRIALS, OPT_FAMILY, OPT_LINK, OPT_NUMERIC, OPT_FACTOR, OPT_INTERACT, OPT_OFFSET,
     OPT_EXPOSURE, OPT_WEIGHT, OPT_NO_INTERCEPT, OPT_DISPERSION, OPT_THREADS, OPT_BUFFER, OPT_TOLERANCE,
     OPT_MAX_PASSES, OPT_LEVEL, OPT_DELIMITER, OPT_MISSING, OPT_IN_MEMORY, OPT_ON_BAD_ROW, OPT_JSON, OPT_QUIET,
-    OPT_DIGITS, OPT_NO_CACHE, OPT_HELP
+    OPT_DIGITS, OPT_NO_CACHE, OPT_NO_COLLAPSE, OPT_HELP
 };
 
 static const struct option long_options[] = {
@@ -41,6 +41,7 @@ static const struct option long_options[] = {
     {"missing", required_argument, NULL, OPT_MISSING},
     {"in-memory", no_argument, NULL, OPT_IN_MEMORY},
     {"no-cache", no_argument, NULL, OPT_NO_CACHE},
+    {"no-collapse", no_argument, NULL, OPT_NO_COLLAPSE},
     {"on-bad-row", required_argument, NULL, OPT_ON_BAD_ROW},
     {"json", required_argument, NULL, OPT_JSON},
     {"quiet", no_argument, NULL, OPT_QUIET},
@@ -60,7 +61,8 @@ static const char usage_text[] =
     "  --offset COL  --exposure COL  --weight COL  --no-intercept  --dispersion estimate|fixed\n"
     "run:\n"
     "  --threads N  --buffer-size BYTES  --tolerance X  --max-passes N  --level P\n"
-    "  --delimiter ,|tab|;  --missing TOKEN (repeatable)  --in-memory  --no-cache  --on-bad-row fail|skip\n"
+    "  --delimiter ,|tab|;  --missing TOKEN (repeatable)  --in-memory  --no-cache  --no-collapse\n"
+    "  --on-bad-row fail|skip\n"
     "output:\n"
     "  --json PATH  --quiet  --digits N\n"
     "exit codes: 0 ok, 2 usage, 3 I/O, 4 malformed input, 5 value outside the model, 6 no data,\n"
@@ -214,6 +216,7 @@ static int handle_option(cli *c, int opt, const char *arg)
     case OPT_MISSING: return handled(set_missing(c, arg));
     case OPT_IN_MEMORY: mr_fitter_set_int(c->fitter, MR_OPT_IN_MEMORY, 1); return -1;
     case OPT_NO_CACHE: mr_fitter_set_int(c->fitter, MR_OPT_NO_CACHE, 1); return -1;
+    case OPT_NO_COLLAPSE: mr_fitter_set_int(c->fitter, MR_OPT_NO_COLLAPSE, 1); return -1;
     case OPT_ON_BAD_ROW: return handled(set_bad_rows(c, arg));
     case OPT_JSON: c->json_path = arg; return -1;
     case OPT_QUIET: c->quiet = 1; return -1;

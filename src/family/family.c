@@ -448,6 +448,20 @@ static inline double dev_nan(double y, double mu)
     return NAN;
 }
 
+static double xlogx(double x) { return x > 0 ? x * log(x) : 0.0; }
+
+double mr__family_saturated_term(mr_family f, double y)
+{
+    switch (f) {
+    case MR_GAUSSIAN: return 0.5 * y * y;
+    case MR_BINOMIAL: return xlogx(y) + xlogx(1 - y);
+    case MR_POISSON: return xlogx(y) - y;
+    case MR_GAMMA: return -1 - log(y);
+    case MR_INVERSE_GAUSSIAN: return 0.5 / y;
+    default: return NAN;
+    }
+}
+
 double mr__family_unit_deviance(mr_family f, double y, double mu)
 {
     switch (f) {

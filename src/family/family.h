@@ -46,6 +46,12 @@ double mr__family_variance(mr_family f, double mu);
 /* Unit deviance d(y, mu) for prior weight 1 (limits taken at y=0 etc). */
 double mr__family_unit_deviance(mr_family f, double y, double mu);
 
+/* h(y) = y theta(y) - b(theta(y)), the part of the unit deviance that
+ * depends on y alone: d(y, mu) = 2 [h(y) - y theta(mu) + b(theta(mu))].
+ * Collapsed covariate patterns use it to recover the deviance within a
+ * pattern from sums. */
+double mr__family_saturated_term(mr_family f, double y);
+
 /* Array versions for the hot path: mu[i] = g^-1(eta[i]),
  * mu_eta[i] = dmu/deta(eta[i]); var[i] = V(mu[i]); dev[i] = d(y[i], mu[i]). */
 void mr__link_inv_n(mr_link l, const double *eta, size_t n, double *mu, double *mu_eta);

@@ -74,6 +74,9 @@ mr_status mr_fitter_set_int(mr_fitter *f, mr_int_option opt, long long v)
     case MR_OPT_SKIP_BAD_ROWS:
         f->skip_bad = v != 0;
         return MR_OK;
+    case MR_OPT_NO_COLLAPSE:
+        f->no_collapse = v != 0;
+        return MR_OK;
     case MR_OPT_NO_CACHE:
         f->no_cache = v != 0;
         return MR_OK;

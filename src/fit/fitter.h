@@ -8,7 +8,7 @@
 struct mr_fitter {
     mr__spec spec;
     mr__error err;
-    int threads, max_passes, in_memory, skip_bad, delimiter, no_cache;
+    int threads, max_passes, in_memory, skip_bad, delimiter, no_cache, no_collapse;
     size_t buffer_size;
     double tolerance, level;
     char **missing;

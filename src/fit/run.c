@@ -261,6 +261,89 @@ static mr_status choose_store(mr__run *r, mr__error *err)
     return MR_OK;
 }
 
+/* ---- collapsed covariate patterns ---------------------------------------- */
+
+static int collapse_mode(const mr__run *r)
+{
+    const mr__spec *s = &r->f->spec;
+    if (r->f->no_collapse) return 0;
+    if (s->offset == NULL && s->exposure == NULL) return 1;
+    return s->family == MR_POISSON && mr__spec_link(s) == MR_LOG ? 2 : 0;
+}
+
+static mr_status new_pattern_block(mr__run *r, mr__block *blk, mr__error *err)
+{
+    MR__TRY(mr__block_init(blk, &r->bind, err));
+    if (blk->prior == NULL) blk->prior = mr__malloc_array(MR__BLOCK_ROWS, sizeof *blk->prior);
+    blk->extra = mr__malloc_array(MR__BLOCK_ROWS, sizeof *blk->extra);
+    if (blk->prior == NULL || blk->extra == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    return MR_OK;
+}
+
+/* The covariates of a pattern from its key (decode.c, pattern_key). */
+static mr_status pattern_covariates(mr__run *r, const char *key, mr__block *blk, uint32_t i, mr__error *err)
+{
+    size_t k, o = 0;
+    for (k = 0; k < r->bind.nfac; k++) {
+        uint32_t n;
+        int32_t id;
+        memcpy(&n, key + o, sizeof n);
+        id = mr__levelset_find(&r->levels[k], key + o + sizeof n, n);
+        if (id < 0) return mr__fail(err, MR_ERR_INTERNAL, "a pattern names an unknown level");
+        blk->lev[k * MR__BLOCK_ROWS + i] = id;
+        o += sizeof n + n;
+    }
+    for (k = 0; k < r->bind.nnum; k++, o += sizeof(double))
+        memcpy(&blk->num[k * MR__BLOCK_ROWS + i], key + o, sizeof(double));
+    return MR_OK;
+}
+
+/* One pattern as one row, and what the rows add beyond it. */
+static void pattern_row(mr__run *r, const mr__pattern *pt, mr__block *blk, uint32_t i)
+{
+    if (r->dcfg.collapse == 1) {
+        double ybar = pt->b / pt->a;
+        blk->y[i] = ybar;
+        blk->prior[i] = pt->a;
+        blk->extra[i] = pt->c - pt->b * ybar;
+        r->within_deviance += 2 * (pt->d - pt->a * mr__family_saturated_term(r->f->spec.family, ybar));
+    } else {
+        blk->y[i] = pt->b;
+        blk->prior[i] = 1.0;
+        blk->off[i] = log(pt->a);
+        blk->extra[i] = pt->c * pt->a - pt->b * pt->b;
+        r->within_deviance += 2 * (pt->d - (pt->b > 0 ? pt->b * log(pt->b / pt->a) : 0.0));
+    }
+}
+
+static mr_status build_patterns(mr__run *r, mr__error *err)
+{
+    const mr__pattern_table *t = &r->first.patterns;
+    mr__block blk;
+    size_t e;
+    mr_status st = MR_OK;
+    memset(&blk, 0, sizeof blk);
+    mr__store_init_memory(&r->patterns);
+    for (e = 0; e < t->n && st == MR_OK; e++) {
+        const mr__pattern *pt = &t->ent[e];
+        if (!(pt->a > 0)) continue; /* only rows of weight 0 */
+        if (blk.y == NULL) st = new_pattern_block(r, &blk, err);
+        if (st == MR_OK) st = pattern_covariates(r, t->keys + pt->key_off, &blk, blk.n, err);
+        if (st != MR_OK) break;
+        pattern_row(r, pt, &blk, blk.n);
+        blk.index = r->patterns.n;
+        if (++blk.n == MR__BLOCK_ROWS) st = mr__store_keep(&r->patterns, &blk, &r->bind, err);
+        if (st == MR_OK && blk.n == 0) {
+            mr__block_release(&blk);
+        }
+    }
+    if (st == MR_OK && blk.y != NULL && blk.n > 0) st = mr__store_keep(&r->patterns, &blk, &r->bind, err);
+    mr__block_release(&blk);
+    r->npatterns = t->n;
+    r->collapsed = st == MR_OK;
+    return st;
+}
+
 /* ---- IRLS -------------------------------------------------------------- */
 
 /* The null model's starting intercept; exact when there is no offset, and
@@ -286,6 +369,7 @@ typedef struct irls_job {
     double tolerance;
     int max_iterations;
     double *beta_out;    /* the coefficients reached */
+    double deviance_shift; /* collapsed patterns: the deviance within patterns */
     int iterations, halvings, converged;
     double rel_change, null_b0;
 } irls_job;
@@ -311,6 +395,8 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
     }
     mr__pass_result_release(res, 0);
     st = mr__pass_run(&c, res, err);
+    res->sums.dev += job->deviance_shift;
+    res->sums.null_dev += job->deviance_shift;
     if (st != MR_OK || job->replay) return st;
     if (c.store) r->store_filled = 1;
     MR__TRY(check_same_input(r, res, err));
@@ -428,6 +514,8 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
     return MR_OK;
 }
 
+static void warm_start_from_sample(mr__run *r);
+
 /* ---- the warm start ---------------------------------------------------- */
 
 static mr_status decode_sample(mr__run *r, mr__store *sample, mr__error *err)
@@ -454,6 +542,12 @@ static mr_status decode_sample(mr__run *r, mr__store *sample, mr__error *err)
  * the sample just means a cold start. */
 static void warm_start(mr__run *r)
 {
+    if (r->collapsed) return;
+    warm_start_from_sample(r);
+}
+
+static void warm_start_from_sample(mr__run *r)
+{
     mr__store sample;
     mr__pass_result res;
     mr__error scratch;
@@ -478,6 +572,10 @@ static mr_status fit_data(mr__run *r, mr__error *err)
 {
     irls_job job;
     memset(&job, 0, sizeof job);
+    if (r->collapsed) {
+        job.replay = &r->patterns;
+        job.deviance_shift = r->within_deviance;
+    }
     job.start = r->warm ? r->beta_warm : NULL;
     job.tolerance = r->f->tolerance;
     job.max_iterations = r->f->max_passes;
@@ -515,6 +613,7 @@ static void release_run(mr__run *r)
     mr__free(r->beta_final);
     mr__free(r->beta_warm);
     mr__store_release(&r->store);
+    mr__store_release(&r->patterns);
     if (r->bound) mr__binding_release(&r->bind);
     if (r->spool_fd >= 0) close(r->spool_fd);
 }
@@ -540,6 +639,8 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
     mr_status st;
     memset(&r, 0, sizeof r);
     mr__store_init_memory(&r.store);
+    mr__store_init_memory(&r.patterns);
+    atomic_init(&r.collapse_abandoned, 0);
     r.f = f;
     r.path = path;
     r.read_path = path;
@@ -547,6 +648,8 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
     r.t0 = mr__seconds_now();
     snprintf(r.display, sizeof r.display, "%s", strcmp(path, "-") == 0 ? "<stdin>" : path);
     r.nthreads = f->threads > 0 ? f->threads : online_cpus();
+    r.dcfg.collapse = collapse_mode(&r);
+    r.dcfg.collapse_abandoned = &r.collapse_abandoned;
     st = mr__spec_validate(&f->spec, err);
     if (st == MR_OK) {
         /* Our workers use every core; BLAS threads inside them would only
@@ -556,7 +659,8 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
     }
     if (st == MR_OK) st = settle_scan(&r, err);
     if (st == MR_OK) st = allocate_coefficients(&r, err);
-    if (st == MR_OK) st = choose_store(&r, err);
+    if (st == MR_OK && r.first.collapsed) st = build_patterns(&r, err);
+    if (st == MR_OK && !r.collapsed) st = choose_store(&r, err);
     if (st == MR_OK) warm_start(&r);
     if (st == MR_OK) st = fit_data(&r, err);
     if (st == MR_OK) st = mr__build_fit(&r, out, err);

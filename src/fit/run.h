@@ -4,6 +4,7 @@
 #define MR_RUN_H
 
 #include <limits.h>
+#include <stdatomic.h>
 #include "accum/pass.h"
 #include "fit/fitter.h"
 #include "model/design.h"
@@ -38,6 +39,12 @@ typedef struct mr__run {
     mr__design design;
     mr__store store;
     int use_store, store_filled, cached;
+    /* collapsed covariate patterns */
+    atomic_int collapse_abandoned;
+    int collapsed;
+    size_t npatterns;
+    mr__store patterns;
+    double within_deviance;
     char cache_note[256];
     /* IRLS */
     mr__pass_result last; /* sums at the reported coefficients */

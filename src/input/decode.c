@@ -35,6 +35,9 @@ void mr__block_release(mr__block *b)
     mr__free(b->lev);
     mr__free(b->missing);
     mr__free(b->llc);
+    mr__free(b->extra);
+    if (b->patterns) mr__patterns_release(b->patterns);
+    mr__free(b->patterns);
     memset(b, 0, sizeof *b);
 }
 
@@ -49,6 +52,12 @@ mr_status mr__decoder_init(mr__decoder *d, const mr__decode_cfg *cfg, mr__error 
     d->lev = mr__calloc(b->ncol, sizeof *d->lev);
     d->miss = mr__calloc(b->ncol, 1);
     if (cfg->levels == NULL) d->local = mr__calloc(b->nfac ? b->nfac : 1, sizeof *d->local);
+    d->ftext = mr__calloc(b->ncol, sizeof *d->ftext);
+    d->flen = mr__calloc(b->ncol, sizeof *d->flen);
+    if (!d->ftext || !d->flen) {
+        mr__decoder_release(d);
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    }
     if (!d->np || !d->val || !d->lev || !d->miss || (cfg->levels == NULL && !d->local)) {
         mr__decoder_release(d);
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
@@ -69,6 +78,10 @@ void mr__decoder_release(mr__decoder *d)
     mr__free(d->val);
     mr__free(d->lev);
     mr__free(d->miss);
+    mr__free(d->ftext);
+    mr__free(d->flen);
+    mr__free(d->key);
+    mr__free(d->rowtext);
     memset(d, 0, sizeof *d);
 }
 
@@ -93,11 +106,34 @@ static void row_problem(mr__decoder *d, size_t col, mr_status kind, const char *
     snprintf(d->row_msg, sizeof d->row_msg, "%zu: column '%s': %s (value '%s')", c->field + 1, c->name, what, v);
 }
 
+/* libcsv reuses its field buffer, so the row's factor cells are copied
+ * for the pattern key. */
+static void keep_factor_text(mr__decoder *d, int col, const char *p, size_t len)
+{
+    if (d->rowtext_len + len > d->rowtext_cap) {
+        size_t cap = d->rowtext_cap ? d->rowtext_cap : 256;
+        char *q;
+        while (cap < d->rowtext_len + len) cap *= 2;
+        q = mr__realloc(d->rowtext, cap);
+        if (q == NULL) {
+            d->stop = 1;
+            return;
+        }
+        d->rowtext = q;
+        d->rowtext_cap = cap;
+    }
+    memcpy(d->rowtext + d->rowtext_len, p, len);
+    d->ftext[col] = d->rowtext_len;
+    d->flen[col] = len;
+    d->rowtext_len += len;
+}
+
 static void decode_level(mr__decoder *d, int col, const char *p, size_t len)
 {
     const mr__column *c = &d->cfg->bind->col[col];
     if (d->cfg->levels == NULL) {
         int rc = mr__levelset_add(&d->local[c->var], p, len);
+        if (d->blk->patterns) keep_factor_text(d, col, p, len);
         if (rc == -2) row_problem(d, (size_t)col, MR_ERR_DOMAIN, "more distinct levels than a factor may have (is it an identifier?)", p, len);
         else if (rc != 0) d->stop = 1;
         return;
@@ -224,6 +260,62 @@ static void store_row(mr__decoder *d, double y, double prior, double off)
     for (k = 0; k < b->nfac; k++) blk->lev[k * MR__BLOCK_ROWS + i] = d->lev[b->fac_col[k]];
 }
 
+static int grow_key(mr__decoder *d, size_t need)
+{
+    char *k;
+    size_t cap = d->key_cap ? d->key_cap : 256;
+    if (need <= d->key_cap) return 0;
+    while (cap < need) cap *= 2;
+    k = mr__realloc(d->key, cap);
+    if (k == NULL) return -1;
+    d->key = k;
+    d->key_cap = cap;
+    return 0;
+}
+
+/* The row's covariate values as bytes: each factor cell (length, text),
+ * then each numeric as its 8 bytes. */
+static size_t pattern_key(mr__decoder *d)
+{
+    const mr__binding *b = d->cfg->bind;
+    size_t k, o = 0, need = b->nnum * sizeof(double);
+    for (k = 0; k < b->nfac; k++) need += sizeof(uint32_t) + d->flen[b->fac_col[k]];
+    if (grow_key(d, need) != 0) return 0;
+    for (k = 0; k < b->nfac; k++) {
+        uint32_t n = (uint32_t)d->flen[b->fac_col[k]];
+        memcpy(d->key + o, &n, sizeof n);
+        memcpy(d->key + o + sizeof n, d->rowtext + d->ftext[b->fac_col[k]], n);
+        o += sizeof n + n;
+    }
+    for (k = 0; k < b->nnum; k++, o += sizeof(double)) memcpy(d->key + o, &d->val[b->num_col[k]], sizeof(double));
+    return o;
+}
+
+static void add_pattern(mr__decoder *d, double y, double prior, double off)
+{
+    size_t len;
+    double a, b, c, s;
+    if (atomic_load_explicit(d->cfg->collapse_abandoned, memory_order_relaxed)) return;
+    len = pattern_key(d);
+    if (len == 0 && (d->cfg->bind->nfac || d->cfg->bind->nnum)) {
+        d->stop = 1;
+        return;
+    }
+    if (d->cfg->collapse == 1) {
+        a = prior;
+        b = prior * y;
+        c = prior * y * y;
+        s = prior * mr__family_saturated_term(d->cfg->family, y);
+    } else {
+        double e = exp(off);
+        a = prior * e;
+        b = prior * y;
+        c = prior * y * y / e;
+        s = prior * ((y > 0 ? y * log(y) : 0.0) - y * off);
+    }
+    if (mr__patterns_add(d->blk->patterns, d->key, len, mr__patterns_hash(d->key, len), a, b, c, s) != 0) d->stop = 1;
+}
+
 static void on_row_end(void *user, uint32_t r, size_t nfields)
 {
     mr__decoder *d = user;
@@ -240,12 +332,22 @@ static void on_row_end(void *user, uint32_t r, size_t nfields)
     if (!d->row_bad && !any_missing(d)) {
         finish_row_values(d, &y, &prior, &off);
         if (!d->row_bad) store_row(d, y, prior, off);
+        if (!d->row_bad && d->blk->patterns) add_pattern(d, y, prior, off);
     } else if (!d->row_bad) {
         d->blk->incomplete++;
     }
     if (d->row_bad) record_bad(d, r, d->row_msg);
     d->row_bad = 0;
+    d->rowtext_len = 0;
     memset(d->miss, 0, b->ncol);
+}
+
+static void check_collapsible(mr__decoder *d, const mr__block *blk)
+{
+    size_t k;
+    for (k = 0; k < d->cfg->bind->nnum; k++)
+        if (!mr__few_distinct(blk->num + k * MR__BLOCK_ROWS, blk->n, MR__COLLAPSE_MAX_DISTINCT))
+            atomic_store(d->cfg->collapse_abandoned, 1);
 }
 
 mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, mr__error *err)
@@ -258,12 +360,15 @@ mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, m
     blk->failed = 0;
     mr__error_clear(&blk->err);
     for (k = 0; k < d->cfg->bind->ncol; k++) blk->missing[k] = 0;
+    if (blk->patterns) mr__patterns_clear(blk->patterns);
     d->blk = blk;
     d->chunk = c;
     d->stop = 0;
     d->row_bad = 0;
     memset(d->miss, 0, d->cfg->bind->ncol);
+    d->rowtext_len = 0;
     st = mr__tokenize_chunk(&d->tok, c, &sink, d->cfg->display, err);
     if (st == MR_OK && d->stop && !blk->failed) st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    if (st == MR_OK && blk->patterns) check_collapsible(d, blk);
     return st;
 }

@@ -15,6 +15,8 @@
 #include "input/numparse.h"
 #include "model/columns.h"
 #include "model/levels.h"
+#include "accum/patterns.h"
+#include <stdatomic.h>
 
 #define MR__BAD_SHOWN 5
 
@@ -37,6 +39,11 @@ typedef struct mr__block {
     /* First pass only: each kept row's share of the log-likelihood terms
      * that depend on the data alone (see accum/scan.c). */
     double *llc;
+    /* Collapsed patterns only: per-pattern Pearson correction (see
+     * accum/patterns.h); NULL otherwise. */
+    double *extra;
+    /* First pass with collapsing: this block's covariate patterns. */
+    mr__pattern_table *patterns;
     uint64_t *missing; /* per bound column: rows left out for a missing cell */
     uint32_t incomplete;
     uint32_t nbad, nbad_shown;
@@ -60,6 +67,11 @@ typedef struct mr__decode_cfg {
     /* Shared sorted levels per factor, or NULL in the first pass, when each
      * decoder collects the levels it meets in `local` instead. */
     const mr__levelset *levels;
+    /* First pass: 0 = no collapsing, 1 = patterns without offset, 2 = poisson
+     * log-link patterns with offset (accum/patterns.h).  Workers stop
+     * building patterns once *collapse_abandoned is set. */
+    int collapse;
+    atomic_int *collapse_abandoned;
 } mr__decode_cfg;
 
 typedef struct mr__decoder {
@@ -75,6 +87,12 @@ typedef struct mr__decoder {
     size_t bad_field;
     char row_msg[300];
     double row_llc;
+    size_t *ftext;      /* first pass with collapsing: factor cells of the row, */
+    size_t *flen;       /* as offsets into rowtext */
+    char *rowtext;
+    size_t rowtext_len, rowtext_cap;
+    char *key;
+    size_t key_cap;
     mr__block *blk;
     const mr__chunk *chunk;
     int stop;

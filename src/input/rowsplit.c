@@ -63,11 +63,13 @@ static mr_status append(mr__splitter *sp, const char *p, size_t n, mr__error *er
     return MR_OK;
 }
 
+/* Only line ends and blanks: skipped, as libcsv would skip it, so that
+ * both tokenizers see the same rows. */
 static int is_blank_row(const char *p, size_t n)
 {
     size_t i;
     for (i = 0; i < n; i++)
-        if (p[i] != '\r' && p[i] != '\n') return 0;
+        if (p[i] != '\r' && p[i] != '\n' && p[i] != ' ' && p[i] != '\t') return 0;
     return 1;
 }
 

@@ -1,6 +1,11 @@
 /* rowsplit.h - cuts a byte stream into the header row and chunks of whole
  * rows.  Quote aware: a newline inside a quoted field does not end a row.
- * Blank lines are skipped (but counted, so line numbers stay true). */
+ * Blank lines (nothing but spaces, tabs and line ends) are skipped, but
+ * counted, so line numbers stay true.
+ *
+ * The sink decides which chunk is filled next; the last chunk handed to
+ * mr__splitter_finish's sink is not replaced, so the caller keeps track of
+ * the chunks it gave out. */
 #ifndef MR_ROWSPLIT_H
 #define MR_ROWSPLIT_H
 

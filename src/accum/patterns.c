@@ -1,0 +1,137 @@
+#include <string.h>
+
+#include "accum/patterns.h"
+#include "common/alloc.h"
+
+void mr__patterns_init(mr__pattern_table *t) { memset(t, 0, sizeof *t); }
+
+void mr__patterns_release(mr__pattern_table *t)
+{
+    mr__free(t->slot);
+    mr__free(t->ent);
+    mr__free(t->keys);
+    mr__patterns_init(t);
+}
+
+void mr__patterns_clear(mr__pattern_table *t)
+{
+    if (t->slot) memset(t->slot, 0, t->cap * sizeof *t->slot);
+    t->n = 0;
+    t->keys_len = 0;
+}
+
+uint64_t mr__patterns_hash(const char *key, size_t len)
+{
+    uint64_t h = 0x9e3779b97f4a7c15ULL;
+    size_t i;
+    for (i = 0; i < len; i++) h = (h ^ (unsigned char)key[i]) * 0x100000001b3ULL;
+    return h ^ (h >> 31);
+}
+
+static uint32_t *find_slot(const mr__pattern_table *t, uint64_t hash, const char *key, size_t len)
+{
+    size_t mask = t->cap - 1, i = (size_t)hash & mask;
+    for (;;) {
+        uint32_t *s = &t->slot[i];
+        const mr__pattern *e;
+        if (*s == 0) return s;
+        e = &t->ent[*s - 1];
+        if (e->hash == hash && e->key_len == len && memcmp(t->keys + e->key_off, key, len) == 0) return s;
+        i = (i + 1) & mask;
+    }
+}
+
+static int rehash(mr__pattern_table *t)
+{
+    size_t cap = t->cap ? 2 * t->cap : 1024, i;
+    uint32_t *old = t->slot;
+    size_t old_cap = t->cap;
+    t->slot = mr__calloc(cap, sizeof *t->slot);
+    if (t->slot == NULL) {
+        t->slot = old;
+        return -1;
+    }
+    t->cap = cap;
+    for (i = 0; i < old_cap; i++)
+        if (old[i]) {
+            const mr__pattern *e = &t->ent[old[i] - 1];
+            *find_slot(t, e->hash, t->keys + e->key_off, e->key_len) = old[i];
+        }
+    mr__free(old);
+    return 0;
+}
+
+static int reserve(void **p, size_t *cap, size_t need, size_t unit)
+{
+    size_t nc;
+    void *q;
+    if (need <= *cap) return 0;
+    nc = *cap ? *cap : 256;
+    while (nc < need) nc *= 2;
+    q = mr__realloc(*p, nc * unit);
+    if (q == NULL) return -1;
+    *p = q;
+    *cap = nc;
+    return 0;
+}
+
+int mr__patterns_add(mr__pattern_table *t, const char *key, size_t len, uint64_t hash, double a, double b,
+                     double c, double d)
+{
+    uint32_t *s;
+    mr__pattern *e;
+    if ((t->n + 1) * 2 > t->cap && rehash(t) != 0) return -1;
+    s = find_slot(t, hash, key, len);
+    if (*s == 0) {
+        if (reserve((void **)&t->ent, &t->ent_cap, t->n + 1, sizeof *t->ent) != 0 ||
+            reserve((void **)&t->keys, &t->keys_cap, t->keys_len + len + 1, 1) != 0)
+            return -1;
+        e = &t->ent[t->n];
+        e->hash = hash;
+        e->key_off = (uint32_t)t->keys_len;
+        e->key_len = (uint32_t)len;
+        e->a = e->b = e->c = e->d = 0;
+        memcpy(t->keys + t->keys_len, key, len);
+        t->keys_len += len;
+        *s = (uint32_t)++t->n;
+    }
+    e = &t->ent[*s - 1];
+    e->a += a;
+    e->b += b;
+    e->c += c;
+    e->d += d;
+    return 0;
+}
+
+int mr__patterns_merge(mr__pattern_table *into, const mr__pattern_table *from)
+{
+    size_t i;
+    for (i = 0; i < from->n; i++) {
+        const mr__pattern *e = &from->ent[i];
+        if (mr__patterns_add(into, from->keys + e->key_off, e->key_len, e->hash, e->a, e->b, e->c, e->d) != 0)
+            return -1;
+    }
+    return 0;
+}
+
+int mr__few_distinct(const double *x, size_t n, size_t limit)
+{
+    enum { CAP = 2048 };
+    uint64_t seen[CAP];
+    unsigned char used[CAP];
+    size_t i, count = 0;
+    memset(used, 0, sizeof used);
+    for (i = 0; i < n; i++) {
+        uint64_t bits, h;
+        size_t s;
+        memcpy(&bits, &x[i], sizeof bits);
+        h = bits * 0x9e3779b97f4a7c15ULL;
+        s = (size_t)(h >> 53) & (CAP - 1);
+        while (used[s] && seen[s] != bits) s = (s + 1) & (CAP - 1);
+        if (used[s]) continue;
+        if (++count > limit) return 0;
+        used[s] = 1;
+        seen[s] = bits;
+    }
+    return 1;
+}
