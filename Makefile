@@ -122,7 +122,7 @@ check: lint unit cli-check ref-check asan-check valgrind-check
 
 # ---- benchmarks (never a test) ------------------------------------------------
 bench: all
-	bash bench/run.sh
+	/usr/bin/python3 bench/run.py
 
 clean:
 	rm -rf $(B)

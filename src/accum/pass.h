@@ -70,7 +70,7 @@ typedef struct mr__pass_result {
     int collapsed;
 } mr__pass_result;
 
-#define MR__SAMPLE_BLOCKS 48
+#define MR__SAMPLE_BLOCKS 16
 
 mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error *err);
 void mr__pass_result_release(mr__pass_result *res, size_t nfac);

@@ -10,7 +10,7 @@
 #include <stddef.h>
 #include <stdint.h>
 
-#define MR__BLOCK_ROWS 4096
+#define MR__BLOCK_ROWS 16384
 
 typedef struct mr__chunk {
     uint64_t index;      /* block number */
