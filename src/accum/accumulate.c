@@ -27,6 +27,7 @@ mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *
     ws->scol = aligned_alloc(64, R * (d->nsparse + 1) * sizeof(int32_t));
     ws->dd = aligned_doubles((d->ndense + 1) * (d->ndense + 1));
     ws->bd = aligned_doubles(d->ndense + 1);
+    ws->sd = aligned_doubles(d->p * (d->ndense + 1));
     ws->eta = aligned_doubles(R);
     ws->mu = aligned_doubles(R);
     ws->mu_eta = aligned_doubles(R);
@@ -34,7 +35,7 @@ mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *
     ws->dev = aligned_doubles(R);
     ws->w = aligned_doubles(R);
     ws->z = aligned_doubles(R);
-    if (!ws->D || !ws->sval || !ws->scol || !ws->dd || !ws->bd || !ws->eta || !ws->mu || !ws->mu_eta || !ws->var || !ws->dev || !ws->w || !ws->z) {
+    if (!ws->sd || !ws->D || !ws->sval || !ws->scol || !ws->dd || !ws->bd || !ws->eta || !ws->mu || !ws->mu_eta || !ws->var || !ws->dev || !ws->w || !ws->z) {
         mr__workspace_release(ws);
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }
@@ -48,6 +49,7 @@ void mr__workspace_release(mr__workspace *ws)
     free(ws->scol);
     free(ws->dd);
     free(ws->bd);
+    free(ws->sd);
     free(ws->eta);
     free(ws->mu);
     free(ws->mu_eta);
@@ -174,23 +176,32 @@ static void dense_cross_products(const mr__design *d, mr__workspace *ws, size_t 
 static void sparse_cross_products(const mr__design *d, mr__workspace *ws, size_t n, mr__block_sums *out)
 {
     const size_t p = d->p, m = d->ndense, ns = d->nsparse;
-    double *G = out->xtwx;
-    size_t i, s, t, j;
+    double *G = out->xtwx, *SD = ws->sd;
+    size_t i, s, t, j, c;
+    /* Sparse-by-dense products go to a p x m buffer first (contiguous in
+     * the dense index, so the inner loop is a plain axpy). */
+    memset(SD, 0, p * m * sizeof *SD);
     for (i = 0; i < n; i++) {
+        double dense_row[MR__MAX_DENSE];
+        for (j = 0; j < m; j++) dense_row[j] = ws->D[j * n + i];
         for (s = 0; s < ns; s++) {
-            int32_t c = ws->scol[s * n + i];
-            double v;
-            if (c < 0) continue;
+            int32_t cs = ws->scol[s * n + i];
+            double v, *sd;
+            if (cs < 0) continue;
             v = ws->sval[s * n + i] * ws->w[i];
-            G[(size_t)c * p + (size_t)c] += v * v;
-            out->xtwz[c] += v * ws->z[i];
+            G[(size_t)cs * p + (size_t)cs] += v * v;
+            out->xtwz[cs] += v * ws->z[i];
             for (t = s + 1; t < ns; t++) {
                 int32_t c2 = ws->scol[t * n + i];
-                if (c2 >= 0) G[upper_index((size_t)c, (size_t)c2, p)] += v * ws->sval[t * n + i] * ws->w[i];
+                if (c2 >= 0) G[upper_index((size_t)cs, (size_t)c2, p)] += v * ws->sval[t * n + i] * ws->w[i];
             }
-            for (j = 0; j < m; j++) G[upper_index((size_t)c, d->dense_col[j], p)] += v * ws->D[j * n + i];
+            sd = SD + (size_t)cs * m;
+            for (j = 0; j < m; j++) sd[j] += v * dense_row[j];
         }
     }
+    for (c = 0; c < p; c++)
+        for (j = 0; j < m; j++)
+            if (SD[c * m + j] != 0.0) G[upper_index(c, d->dense_col[j], p)] += SD[c * m + j];
 }
 
 void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__workspace *ws,

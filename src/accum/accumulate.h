@@ -30,7 +30,7 @@ typedef struct mr__block_sums {
  * vectors. */
 typedef struct mr__workspace {
     size_t p;
-    double *D, *sval, *dd, *bd;
+    double *D, *sval, *dd, *bd, *sd;
     int32_t *scol;
     double *eta, *mu, *mu_eta, *var, *dev, *w, *z;
 } mr__workspace;

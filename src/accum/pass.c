@@ -239,6 +239,8 @@ static mr_status start_workers(engine *e, mr__error *err)
         worker *w = &e->workers[i];
         w->e = e;
         MR__TRY(mr__decoder_init(&w->dec, e->cfg->dcfg, err));
+        /* Decoders of the first pass number levels their own way. */
+        w->dec.worker = e->cfg->kind == MR__PASS_SCAN ? (int32_t)i : -1;
         if (e->cfg->kind == MR__PASS_IRLS) MR__TRY(mr__workspace_init(&w->ws, e->cfg->point->design, err));
     }
     for (i = 0; i < e->nworkers; i++) {
@@ -368,6 +370,24 @@ static void merge_patterns(const mr__pass_cfg *cfg, mr__pass_result *res, const 
     mr__patterns_release(&res->patterns);
 }
 
+/* The first pass keeps its decoded blocks for the IRLS passes unless the
+ * rows may still collapse into patterns (then the patterns replace them).
+ * If collapsing is given up after some blocks went unkept, the store is
+ * incomplete and the first IRLS pass decodes the file again. */
+static mr_status keep_scanned(const mr__pass_cfg *cfg, mr__pass_result *res, mr__block *blk, mr__error *err)
+{
+    mr__pattern_table *patterns = blk->patterns;
+    mr_status st;
+    if (res->collapsed || res->store_incomplete) {
+        res->store_incomplete = 1;
+        return MR_OK;
+    }
+    blk->patterns = NULL; /* the slot keeps its pattern table */
+    st = mr__store_keep(cfg->store, blk, cfg->dcfg->bind, err);
+    blk->patterns = patterns;
+    return st;
+}
+
 static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *err)
 {
     const mr__pass_cfg *cfg = e->cfg;
@@ -383,6 +403,7 @@ static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *
     if (cfg->kind == MR__PASS_SCAN) {
         mr__scan_add(&res->scan, &s->scan, cfg->dcfg->bind->ncol, cfg->dcfg->bind->nnum);
         if (res->collapsed) merge_patterns(cfg, res, s->block.patterns);
+        if (cfg->store) MR__TRY(keep_scanned(cfg, res, &s->block, err));
         return keep_sample(res, s->chunk, err);
     }
     mr__sums_add(&res->sums, &s->sums, cfg->p);

@@ -41,7 +41,8 @@ typedef struct mr__pass_cfg {
     const mr__irls_point *point;
     size_t p;
     mr__store *store;     /* NULL, or kept blocks (memory or cache file) */
-    int store_fill;       /* 1: keep decoded blocks in store; 0 with store: replay it */
+    int store_fill;       /* 1: keep decoded blocks in store; 0 with store: replay it.
+                             The first pass keeps its blocks when given a store. */
     int pass_number;
     mr_progress_fn progress;
     void *progress_user;
@@ -68,6 +69,8 @@ typedef struct mr__pass_result {
      * block order; `collapsed` is 0 when collapsing was given up. */
     mr__pattern_table patterns;
     int collapsed;
+    /* First pass with a store: 1 when some blocks were not kept. */
+    int store_incomplete;
 } mr__pass_result;
 
 #define MR__SAMPLE_BLOCKS 16

@@ -20,12 +20,20 @@ void mr__patterns_clear(mr__pattern_table *t)
     t->keys_len = 0;
 }
 
+/* Eight bytes a step: keys are a few dozen bytes and hashed once a row. */
 uint64_t mr__patterns_hash(const char *key, size_t len)
 {
-    uint64_t h = 0x9e3779b97f4a7c15ULL;
-    size_t i;
-    for (i = 0; i < len; i++) h = (h ^ (unsigned char)key[i]) * 0x100000001b3ULL;
-    return h ^ (h >> 31);
+    uint64_t h = 0x9e3779b97f4a7c15ULL ^ len, w;
+    size_t i = 0;
+    for (; i + 8 <= len; i += 8) {
+        memcpy(&w, key + i, 8);
+        h = (h ^ w) * 0xff51afd7ed558ccdULL;
+        h ^= h >> 32;
+    }
+    w = 0;
+    memcpy(&w, key + i, len - i);
+    h = (h ^ w) * 0xc4ceb9fe1a85ec53ULL;
+    return h ^ (h >> 29);
 }
 
 static uint32_t *find_slot(const mr__pattern_table *t, uint64_t hash, const char *key, size_t len)

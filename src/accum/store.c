@@ -8,6 +8,10 @@
 #include "accum/store.h"
 #include "common/alloc.h"
 
+/* A kept block starts with its row count and the worker whose level
+ * numbers it holds. */
+#define HEADER (sizeof(uint32_t) + sizeof(int32_t))
+
 void mr__store_init_memory(mr__store *s)
 {
     memset(s, 0, sizeof *s);
@@ -108,17 +112,30 @@ mr_status mr__store_keep(mr__store *s, mr__block *blk, const mr__binding *b, mr_
         return mr__block_init(blk, b, err);
     }
     if (s->pack == NULL) {
-        s->pack_cap = sizeof(uint32_t) + MR__BLOCK_ROWS * mr__store_row_bytes(b);
+        s->pack_cap = HEADER + MR__BLOCK_ROWS * mr__store_row_bytes(b);
         s->pack = mr__malloc(s->pack_cap);
         if (s->pack == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }
     memcpy(s->pack, &blk->n, sizeof(uint32_t));
-    bytes = sizeof(uint32_t) + pack_block(blk, b, s->pack + sizeof(uint32_t));
+    memcpy(s->pack + sizeof(uint32_t), &blk->worker, sizeof(int32_t));
+    bytes = HEADER + pack_block(blk, b, s->pack + HEADER);
     MR__TRY(write_all(s->fd, s->pack, bytes, s->offset[s->n], err));
     s->offset[s->n + 1] = s->offset[s->n] + bytes;
     s->n++;
     s->bytes += bytes;
     return MR_OK;
+}
+
+static void map_levels(const mr__store *s, mr__block *blk)
+{
+    size_t f, i;
+    if (blk->worker < 0) return;
+    for (f = 0; f < s->nfac; f++) {
+        const int32_t *map = s->remap[(size_t)blk->worker * s->nfac + f];
+        int32_t *lev = blk->lev + f * MR__BLOCK_ROWS;
+        for (i = 0; i < blk->n; i++) lev[i] = map[lev[i]];
+    }
+    blk->worker = -1;
 }
 
 static mr_status read_all(int fd, char *p, size_t n, uint64_t at, mr__error *err)
@@ -145,10 +162,22 @@ mr_status mr__store_load(const mr__store *s, size_t i, const mr__binding *b, mr_
     bytes = (size_t)(s->offset[i + 1] - s->offset[i]);
     MR__TRY(read_all(s->fd, s->pack, bytes, s->offset[i], err));
     memcpy(&dst->n, s->pack, sizeof(uint32_t));
+    memcpy(&dst->worker, s->pack + sizeof(uint32_t), sizeof(int32_t));
     dst->index = i;
     dst->nread = dst->n;
     dst->failed = 0;
-    unpack_block(s->pack + sizeof(uint32_t), b, dst);
+    unpack_block(s->pack + HEADER, b, dst);
+    if (s->remap) map_levels(s, dst);
     *use = dst;
     return MR_OK;
+}
+
+void mr__store_remap(mr__store *s, int32_t **remap, size_t nfac)
+{
+    size_t i;
+    s->remap = remap;
+    s->nfac = nfac;
+    if (s->fd >= 0 || remap == NULL) return;
+    for (i = 0; i < s->n; i++) map_levels(s, &s->block[i]);
+    s->remap = NULL;
 }

@@ -21,6 +21,10 @@ typedef struct mr__store {
     char *pack;          /* staging buffer for one block */
     size_t pack_cap;
     uint64_t bytes;
+    /* Blocks kept by the first pass carry their decoder's own level
+     * numbers; remap[worker * nfac + f][local] is the shared number. */
+    int32_t **remap;
+    size_t nfac;
 } mr__store;
 
 void mr__store_init_memory(mr__store *s);
@@ -39,5 +43,10 @@ mr_status mr__store_keep(mr__store *s, mr__block *blk, const mr__binding *b, mr_
  * loaded from the file.  Called from one thread at a time. */
 mr_status mr__store_load(const mr__store *s, size_t i, const mr__binding *b, mr__block *dst,
                          const mr__block **use, mr__error *err);
+
+/* Installs the level maps of the first pass (the store does not own them;
+ * they must outlive it).  A memory store is rewritten at once; a file
+ * store maps each block as it is loaded. */
+void mr__store_remap(mr__store *s, int32_t **remap, size_t nfac);
 
 #endif

@@ -39,6 +39,8 @@ typedef struct mr__run {
     mr__design design;
     mr__store store;
     int use_store, store_filled, cached;
+    int32_t **remap; /* first-pass level numbers -> shared ones */
+    size_t nremap;
     /* collapsed covariate patterns */
     atomic_int collapse_abandoned;
     int collapsed;

@@ -89,7 +89,8 @@ static int is_missing(const mr__decode_cfg *cfg, const char *p, size_t len)
 {
     size_t i;
     for (i = 0; i < cfg->nmissing; i++)
-        if (cfg->missing_len[i] == len && memcmp(cfg->missing[i], p, len) == 0) return 1;
+        if (cfg->missing_len[i] == len && (len == 0 || (cfg->missing[i][0] == p[0] && memcmp(cfg->missing[i], p, len) == 0)))
+            return 1;
     return 0;
 }
 
@@ -132,7 +133,7 @@ static void decode_level(mr__decoder *d, int col, const char *p, size_t len)
 {
     const mr__column *c = &d->cfg->bind->col[col];
     if (d->cfg->levels == NULL) {
-        int rc = mr__levelset_add(&d->local[c->var], p, len);
+        int rc = mr__levelset_add(&d->local[c->var], p, len, &d->lev[col]);
         if (d->blk->patterns) keep_factor_text(d, col, p, len);
         if (rc == -2) row_problem(d, (size_t)col, MR_ERR_DOMAIN, "more distinct levels than a factor may have (is it an identifier?)", p, len);
         else if (rc != 0) d->stop = 1;
@@ -163,20 +164,15 @@ static void on_field(void *user, size_t k, const char *p, size_t len)
 static void domain_problem(mr__decoder *d, mr__use use, const char *what)
 {
     char v[40];
-    size_t c;
-    for (c = 0; c < d->cfg->bind->ncol; c++)
-        if (d->cfg->bind->col[c].use == use) break;
+    size_t c = (size_t)d->cfg->bind->role_col[use];
     snprintf(v, sizeof v, "%.17g", d->val[c]);
     row_problem(d, c, MR_ERR_DOMAIN, what, v, strlen(v));
 }
 
 static double column_value(const mr__decoder *d, mr__use use, int present, double dflt)
 {
-    size_t c;
-    if (!present) return dflt;
-    for (c = 0; c < d->cfg->bind->ncol; c++)
-        if (d->cfg->bind->col[c].use == use) return d->val[c];
-    return dflt;
+    int c = d->cfg->bind->role_col[use];
+    return present && c >= 0 ? d->val[c] : dflt;
 }
 
 static const char *outcome_domain_problem(int family, double y)
@@ -356,6 +352,7 @@ mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, m
     mr_status st;
     size_t k;
     blk->index = c->index;
+    blk->worker = d->worker;
     blk->nread = blk->n = blk->incomplete = blk->nbad = blk->nbad_shown = 0;
     blk->failed = 0;
     mr__error_clear(&blk->err);

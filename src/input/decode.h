@@ -30,6 +30,9 @@ typedef struct mr__bad_row {
  * num[k * MR__BLOCK_ROWS + i] is numeric variable k on kept row i. */
 typedef struct mr__block {
     uint64_t index;
+    /* First pass: the decoder whose own level numbers `lev` holds (they are
+     * mapped to the shared sorted numbers before use). */
+    int32_t worker;
     uint32_t nread, n;
     double *y;     /* outcome; a proportion for binomial */
     double *prior; /* prior weight (weight x trials); NULL = all 1 */
@@ -76,6 +79,7 @@ typedef struct mr__decode_cfg {
 
 typedef struct mr__decoder {
     const mr__decode_cfg *cfg;
+    int32_t worker;
     mr__tokenizer tok;
     mr__numparser *np;
     mr__levelset *local; /* nfac sets, first pass only */

@@ -44,6 +44,7 @@ static mr_status add_column(mr__binding *b, const char *name, mr__use use, int v
     b->col[b->ncol].use = use;
     b->col[b->ncol].var = var;
     b->col_of_field[f] = (int)b->ncol;
+    if (use <= MR__USE_EXPOSURE) b->role_col[use] = (int)b->ncol;
     b->ncol++;
     return MR_OK;
 }
@@ -86,6 +87,7 @@ mr_status mr__bind(mr__binding *b, const mr__spec *s, char **header, size_t nfie
     if (!b->col || !b->col_of_field || !b->num_col || !b->fac_col)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     for (i = 0; i < nfields; i++) b->col_of_field[i] = -1;
+    for (i = 0; i <= MR__USE_EXPOSURE; i++) b->role_col[i] = -1;
     MR__TRY(check_duplicates(header, nfields, display, err));
     st = bind_roles(b, s, display, err);
     b->has_trials = s->trials != NULL;

@@ -34,7 +34,9 @@ typedef struct mr__binding {
     size_t nnum, nfac;
     /* Column index of each numeric / factor variable, in declaration order. */
     size_t *num_col, *fac_col;
-    int has_outcome_col, has_trials, has_weight, has_offset, has_exposure;
+    int has_trials, has_weight, has_offset, has_exposure;
+    /* Bound column of each role (mr__use up to MR__USE_EXPOSURE), -1 if absent. */
+    int role_col[MR__USE_EXPOSURE + 1];
 } mr__binding;
 
 /* Takes ownership of `header` (nfields names).  Errors: a model column not

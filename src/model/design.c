@@ -220,8 +220,10 @@ static void choose_centring(mr__design *d, size_t ti, const double *mean, const 
     for (mask = 0; mask < full && ok; mask++)
         if (needs_subset(t, mask)) ok = subterm_exists(d, ti, mask);
     t->centred = ok && t->nnum > 0;
-    if (!t->centred)
-        for (k = 0; k < t->nnum; k++) t->centre[k] = 0.0;
+    for (k = 0; k < t->nnum; k++) {
+        if (!t->centred) t->centre[k] = 0.0;
+        t->inv_scale[k] = 1.0 / t->scale[k];
+    }
 }
 
 static void fill_transform_column(mr__design *d, size_t ti, size_t j)
@@ -266,9 +268,31 @@ static mr_status build_transform(mr__design *d, const double *mean, const double
     return MR_OK;
 }
 
+/* A one-factor term's column for every level, so that coding a row is a
+ * single lookup. */
+static mr_status build_colmaps(mr__design *d, mr__error *err)
+{
+    size_t i;
+    int32_t l;
+    for (i = 0; i < d->nterms; i++) {
+        mr__term *t = &d->term[i];
+        const mr__factor *f;
+        if (t->nfac != 1) continue;
+        f = &d->fac[t->fac[0]];
+        t->colmap = mr__malloc_array(f->nlevels + 1, sizeof *t->colmap);
+        if (t->colmap == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        for (l = 0; l < (int32_t)f->nlevels; l++) {
+            int32_t code = level_code(t, f, l);
+            t->colmap[l] = code < 0 ? -1 : (int32_t)t->col0 + code;
+        }
+    }
+    return MR_OK;
+}
+
 static mr_status split_layout(mr__design *d, mr__error *err)
 {
     size_t i;
+    MR__TRY(build_colmaps(d, err));
     d->dense_col = mr__calloc(d->p + 1, sizeof *d->dense_col);
     d->sparse_term = mr__calloc(d->nterms + 1, sizeof *d->sparse_term);
     if (d->dense_col == NULL || d->sparse_term == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
@@ -277,6 +301,9 @@ static mr_status split_layout(mr__design *d, mr__error *err)
         if (d->term[i].nfac == 0) d->dense_col[d->ndense++] = d->term[i].col0;
         else d->sparse_term[d->nsparse++] = i;
     }
+    if (d->ndense > MR__MAX_DENSE)
+        return mr__fail(err, MR_ERR_USAGE, "model: more than %d columns without a factor (numerics and their "
+                                           "interactions)", MR__MAX_DENSE);
     return MR_OK;
 }
 
@@ -300,6 +327,7 @@ void mr__design_release(mr__design *d)
     size_t j;
     for (j = 0; d->name && j < d->p; j++) mr__free(d->name[j]);
     mr__free(d->name);
+    for (j = 0; d->term && j < d->nterms; j++) mr__free(d->term[j].colmap);
     mr__free(d->term);
     mr__free(d->A);
     mr__free(d->dense_col);
@@ -319,7 +347,7 @@ static int32_t term_entry(const mr__term *t, const mr__factor *fac, const double
         if (c < 0) return -1;
         col += (size_t)c * t->stride[k];
     }
-    for (k = 0; k < t->nnum; k++) x *= (num[(size_t)t->num[k] * stride_rows + i] - t->centre[k]) / t->scale[k];
+    for (k = 0; k < t->nnum; k++) x *= (num[(size_t)t->num[k] * stride_rows + i] - t->centre[k]) * t->inv_scale[k];
     *v = x;
     return (int32_t)col;
 }
@@ -345,6 +373,25 @@ void mr__design_fill(const mr__design *d, const double *num, const int32_t *lev,
     for (j = 0; j < d->nterms; j++) fill_term(&d->term[j], d->fac, num, lev, stride_rows, n, Z, ldz);
 }
 
+/* The numeric part of a term for rows [0, n): v[i] = prod (x - c) / s. */
+static void numeric_part(const mr__term *t, const double *num, size_t stride_rows, size_t n, double *v)
+{
+    size_t i;
+    int k;
+    if (t->nnum == 0) {
+        for (i = 0; i < n; i++) v[i] = 1.0;
+        return;
+    }
+    {
+        const double *x = num + (size_t)t->num[0] * stride_rows, c = t->centre[0], s = t->inv_scale[0];
+        for (i = 0; i < n; i++) v[i] = (x[i] - c) * s;
+    }
+    for (k = 1; k < t->nnum; k++) {
+        const double *x = num + (size_t)t->num[k] * stride_rows, c = t->centre[k], s = t->inv_scale[k];
+        for (i = 0; i < n; i++) v[i] *= (x[i] - c) * s;
+    }
+}
+
 void mr__design_fill_split(const mr__design *d, const double *num, const int32_t *lev, size_t stride_rows,
                            size_t n, double *D, int32_t *col, double *val)
 {
@@ -356,11 +403,20 @@ void mr__design_fill_split(const mr__design *d, const double *num, const int32_t
     for (s = 0; s < d->nterms; s++) {
         const mr__term *t = &d->term[s];
         if (t->nfac != 0) continue;
-        for (i = 0; i < n; i++) term_entry(t, d->fac, num, lev, stride_rows, i, &D[j * n + i]);
+        numeric_part(t, num, stride_rows, n, D + j * n);
         j++;
     }
     for (s = 0; s < d->nsparse; s++) {
         const mr__term *t = &d->term[d->sparse_term[s]];
-        for (i = 0; i < n; i++) col[s * n + i] = term_entry(t, d->fac, num, lev, stride_rows, i, &val[s * n + i]);
+        int32_t *c = col + s * n;
+        if (t->colmap == NULL) {
+            for (i = 0; i < n; i++) c[i] = term_entry(t, d->fac, num, lev, stride_rows, i, &val[s * n + i]);
+            continue;
+        }
+        numeric_part(t, num, stride_rows, n, val + s * n);
+        {
+            const int32_t *l = lev + (size_t)t->fac[0] * stride_rows;
+            for (i = 0; i < n; i++) c[i] = t->colmap[l[i]];
+        }
     }
 }

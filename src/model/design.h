@@ -23,6 +23,8 @@
 #include "model/spec.h"
 
 #define MR__MAX_COLUMNS 4000
+/* Dense columns: the intercept and terms without a factor. */
+#define MR__MAX_DENSE 64
 
 typedef struct mr__factor {
     const char *name;
@@ -39,7 +41,8 @@ typedef struct mr__term {
     size_t col0, ncols;
     size_t stride[MR__MAX_INTERACT];
     int centred;
-    double centre[MR__MAX_INTERACT], scale[MR__MAX_INTERACT];
+    double centre[MR__MAX_INTERACT], scale[MR__MAX_INTERACT], inv_scale[MR__MAX_INTERACT];
+    int32_t *colmap; /* one-factor terms: level -> design column, -1 for none */
 } mr__term;
 
 typedef struct mr__design {

@@ -52,25 +52,29 @@ static int grow(mr__levelset *s)
     return 0;
 }
 
-static int insert_hashed(mr__levelset *s, uint64_t h, const char *p, size_t len, int32_t id)
+static int insert_hashed(mr__levelset *s, uint64_t h, const char *p, size_t len, int32_t id, int32_t *out)
 {
     mr__level_entry *e;
     if (s->n + 1 > s->cap / 2 && grow(s) != 0) return -1;
     e = probe(s, h, p, len);
-    if (e->str != NULL) return 0;
+    if (e->str != NULL) {
+        *out = e->id;
+        return 0;
+    }
     if (s->n >= MR__MAX_LEVELS) return -2;
     e->str = mr__strndup(p, len);
     if (e->str == NULL) return -1;
     e->hash = h;
     e->len = (uint32_t)len;
     e->id = id;
+    *out = id;
     s->n++;
     return 0;
 }
 
-int mr__levelset_add(mr__levelset *s, const char *p, size_t len)
+int mr__levelset_add(mr__levelset *s, const char *p, size_t len, int32_t *id)
 {
-    return insert_hashed(s, hash_bytes(p, len), p, len, (int32_t)s->n);
+    return insert_hashed(s, hash_bytes(p, len), p, len, (int32_t)s->n, id);
 }
 
 int32_t mr__levelset_find(const mr__levelset *s, const char *p, size_t len)
@@ -97,11 +101,12 @@ int mr__levelset_merge_sorted(const mr__levelset *const *sets, size_t n, mr__lev
     mr__level_entry **all;
     const char **names;
     int rc = 0;
+    int32_t id;
     mr__levelset_init(out);
     for (i = 0; i < n; i++)
         for (j = 0; j < sets[i]->cap; j++)
             if (sets[i]->slot[j].str != NULL &&
-                (rc = insert_hashed(out, sets[i]->slot[j].hash, sets[i]->slot[j].str, sets[i]->slot[j].len, 0)) != 0)
+                (rc = insert_hashed(out, sets[i]->slot[j].hash, sets[i]->slot[j].str, sets[i]->slot[j].len, 0, &id)) != 0)
                 return rc;
     all = mr__malloc_array(out->n ? out->n : 1, sizeof *all);
     names = mr__malloc_array(out->n ? out->n : 1, sizeof *names);

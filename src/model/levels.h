@@ -27,9 +27,10 @@ typedef struct mr__levelset {
 void mr__levelset_init(mr__levelset *s);
 void mr__levelset_release(mr__levelset *s);
 
-/* Adds the string if new (id = order of arrival).  Returns 0, or -1 when
- * out of memory, or -2 when the set already holds MR__MAX_LEVELS. */
-int mr__levelset_add(mr__levelset *s, const char *p, size_t len);
+/* Adds the string if new (id = order of arrival) and stores its id in
+ * *id.  Returns 0, or -1 when out of memory, or -2 when the set already
+ * holds MR__MAX_LEVELS. */
+int mr__levelset_add(mr__levelset *s, const char *p, size_t len, int32_t *id);
 /* The id of a string, or -1. */
 int32_t mr__levelset_find(const mr__levelset *s, const char *p, size_t len);
 
