@@ -254,6 +254,7 @@ static mr_status copy_run_info(mr_fit *fit, const mr__run *r, mr__error *err)
     fit->passes = r->npasses;
     fit->halvings = r->halvings;
     fit->warm_start = r->warm;
+    fit->patterns = r->collapsed ? r->npatterns : 0;
     fit->warm_iterations = r->warm_iterations;
     fit->converged = r->converged;
     fit->status = r->converged ? MR_OK : MR_ERR_NOT_CONVERGED;

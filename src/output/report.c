@@ -73,11 +73,14 @@ static void section_model(mr__strbuf *b, const mr_fit *f)
 
 static void section_convergence(mr__strbuf *b, const mr_fit *f)
 {
-    mr__strbuf_printf(b, "fit        %s after %d IRLS passes (%d reads of the data%s)\n",
-                      f->converged ? "converged" : "NOT CONVERGED", f->iterations, f->passes,
+    mr__strbuf_printf(b, "fit        %s after %d IRLS passes (%d pass%s over the data%s)\n",
+                      f->converged ? "converged" : "NOT CONVERGED", f->iterations, f->passes, f->passes == 1 ? "" : "es",
                       f->in_memory ? ", later passes from memory" : f->cached ? ", later passes from the cache" : "");
     mr__strbuf_printf(b, "           last relative deviance change %.3g (tolerance %.3g)", f->rel_change, f->tolerance);
     if (f->halvings) mr__strbuf_printf(b, ", %d step halvings", f->halvings);
+    if (f->patterns)
+        mr__strbuf_printf(b, "\n           rows collapsed into %zu covariate patterns: one read of the file, IRLS in memory",
+                          f->patterns);
     if (f->warm_start)
         mr__strbuf_printf(b, "\n           started from a fit to a sample of the file (%d IRLS steps in memory)",
                           f->warm_iterations);
