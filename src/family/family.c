@@ -4,6 +4,7 @@
  * array versions (hot path) and the scalar ones (tests, rare paths) share
  * the same arithmetic and agree bit for bit.
  */
+#include "common/mathx.h"
 #include "family.h"
 
 #include <float.h>
@@ -380,19 +381,6 @@ void mr__family_variance_n(mr_family f, const double *mu, size_t n, double *var)
 /* ------------------------------------------------------------------ */
 /* Unit deviance                                                        */
 
-/* log1p(u) - u for |u| <= 0.25 without cancellation: with s = u / (2 + u),
- * log1p(u) = 2 atanh(s) and u - 2s = u s, so the result is
- * -u s + 2 s^3 (1/3 + s^2/5 + ...); s^2 <= 0.021 and the terms through
- * s^20/23 reach full precision. */
-static inline double log1pmx_small(double u)
-{
-    double s = u / (2.0 + u);
-    double w = s * s;
-    double poly = 1.0 / 23.0;
-    for (int k = 10; k >= 1; k--)
-        poly = poly * w + 1.0 / (2 * k + 1);
-    return s * (2.0 * w * poly - u);
-}
 
 /* y log(y/mu) - (y - mu) >= 0, with 0 log 0 = 0.  Written in this form the
  * deviances below are sums of non-negative terms, so they cannot come out
@@ -404,7 +392,7 @@ static inline double half_poisson(double y, double mu)
         return mu;
     double d = mu - y;
     if (fabs(d) <= 0.25 * y)
-        return -y * log1pmx_small(d / y);
+        return -y * mr__log1pmx_small(d / y);
     return y * log(y / mu) + d;
 }
 
@@ -431,7 +419,7 @@ static inline double dev_gamma(double y, double mu)
 {
     double u = (y - mu) / mu;
     if (fabs(u) <= 0.25)
-        return -2.0 * log1pmx_small(u);
+        return -2.0 * mr__log1pmx_small(u);
     return 2.0 * (u - log(y / mu));
 }
 

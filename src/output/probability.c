@@ -9,6 +9,7 @@
 #define _DEFAULT_SOURCE /* lgamma_r: plain lgamma writes the global signgam */
 #endif
 
+#include "common/mathx.h"
 #include "probability.h"
 
 #include <float.h>
@@ -165,19 +166,6 @@ static double log_beta(double a, double b)
     return log_gamma(p) + log_gamma(q) - log_gamma(pq);
 }
 
-/* log1p(u) - u for |u| <= 0.25 without cancellation: with s = u / (2 + u),
- * log1p(u) = 2 atanh(s) and u - 2s = u s, so the result is
- * -u s + 2 s^3 (1/3 + s^2/5 + ...); s^2 <= 0.021 and the terms through
- * s^20/23 reach full precision. */
-static double log1pmx_small(double u)
-{
-    double s = u / (2.0 + u);
-    double w = s * s;
-    double poly = 1.0 / 23.0;
-    for (int k = 10; k >= 1; k--)
-        poly = poly * w + 1.0 / (2 * k + 1);
-    return s * (2.0 * w * poly - u);
-}
 
 /* a * (log(x/a) - (x - a)/a), the exponent of x^a e^-x relative to its
  * maximum at x = a. */
@@ -185,7 +173,7 @@ static double a_log_ratio_minus(double a, double x)
 {
     double d = x - a;
     if (fabs(d) <= 0.25 * a)
-        return a * log1pmx_small(d / a);
+        return a * mr__log1pmx_small(d / a);
     return a * log(x / a) - d;
 }
 

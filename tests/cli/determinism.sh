@@ -3,24 +3,7 @@
 # whatever the thread count, read size, in-memory mode, compression, line
 # endings or whether the data come from a file or standard input.  The raw
 # JSON text of the numbers is compared, so even a last-bit difference fails.
-set -u
-
-here=$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)
-root=$(cd "$here/../.." && pwd)
-bin="$root/build/millrace"
-tmp=$(mktemp -d)
-trap 'rm -rf "$tmp"' EXIT
-
-passed=0
-failed=0
-ok() { echo "ok $1"; passed=$((passed + 1)); }
-fail() { echo "FAIL $1: $2"; failed=$((failed + 1)); }
-
-if [ ! -x "$bin" ]; then
-    fail setup "$bin not found (run make first)"
-    echo "$passed passed, $failed failed"
-    exit 1
-fi
+source "$(dirname "${BASH_SOURCE[0]}")/lib.sh"
 
 # About 50,000 rows of Poisson counts with two factors, a numeric and exposure.
 /usr/bin/python3 - "$tmp/data.csv" <<'EOF'
@@ -103,5 +86,4 @@ check stdin_buffer_16 --threads 1 --buffer-size 16 - < <(cat "$tmp/data.csv")
 check stdin_in_memory --in-memory - < <(cat "$tmp/data.csv")
 check stdin_zstd --threads 2 - < <(cat "$tmp/data.csv.zst")
 
-echo "$passed passed, $failed failed"
-[ "$failed" -eq 0 ]
+finish

@@ -5,24 +5,7 @@
 # contract: 2 usage, 3 I/O, 4 malformed input, 5 value outside the model's
 # domain, 6 no data; "millrace: FILE:LINE:COLUMN: message (value 'V')".
 # LINE counts the header as line 1; COLUMN is the 1-based field number.
-set -u
-
-here=$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)
-root=$(cd "$here/../.." && pwd)
-bin="$root/build/millrace"
-tmp=$(mktemp -d)
-trap 'rm -rf "$tmp"' EXIT
-
-passed=0
-failed=0
-ok() { echo "ok $1"; passed=$((passed + 1)); }
-fail() { echo "FAIL $1: $2"; failed=$((failed + 1)); }
-
-if [ ! -x "$bin" ]; then
-    fail setup "$bin not found (run make first)"
-    echo "$passed passed, $failed failed"
-    exit 1
-fi
+source "$(dirname "${BASH_SOURCE[0]}")/lib.sh"
 
 # A small valid data set: y count, g factor, x numeric, plus columns used by
 # some families (s/t binomial, e exposure, w weight, z positive outcome).
@@ -189,5 +172,4 @@ else
     ok on_bad_row_skip
 fi
 
-echo "$passed passed, $failed failed"
-[ "$failed" -eq 0 ]
+finish

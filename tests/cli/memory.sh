@@ -2,24 +2,7 @@
 # Streaming means memory does not grow with the number of rows: the peak
 # resident set of a fit on 2,000,000 rows must stay within 1.5x of the same
 # fit on 100,000 rows.  Data are generated here (zstd-compressed) and removed.
-set -u
-
-here=$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)
-root=$(cd "$here/../.." && pwd)
-bin="$root/build/millrace"
-tmp=$(mktemp -d)
-trap 'rm -rf "$tmp"' EXIT
-
-passed=0
-failed=0
-ok() { echo "ok $1"; passed=$((passed + 1)); }
-fail() { echo "FAIL $1: $2"; failed=$((failed + 1)); }
-
-if [ ! -x "$bin" ]; then
-    fail setup "$bin not found (run make first)"
-    echo "$passed passed, $failed failed"
-    exit 1
-fi
+source "$(dirname "${BASH_SOURCE[0]}")/lib.sh"
 
 # generate ROWS FILE: Poisson counts with two factors and two numerics.
 generate() {
@@ -90,5 +73,4 @@ if [ -n "$small" ] && [ -n "$large" ]; then
     fi
 fi
 
-echo "$passed passed, $failed failed"
-[ "$failed" -eq 0 ]
+finish
