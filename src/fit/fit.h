@@ -36,7 +36,7 @@ struct mr_fit {
     char **bad_example;
     size_t nbad_examples;
     /* convergence */
-    int iterations, passes, halvings, converged, warm_start, warm_iterations;
+    int iterations, passes, halvings, converged, warm_start, warm_iterations, by_decrement;
     size_t patterns; /* covariate patterns the rows collapsed into; 0 = not collapsed */
     double rel_change, seconds, rows_per_second;
     double *pass_seconds;

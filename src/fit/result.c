@@ -254,6 +254,7 @@ static mr_status copy_run_info(mr_fit *fit, const mr__run *r, mr__error *err)
     fit->passes = r->npasses;
     fit->halvings = r->halvings;
     fit->warm_start = r->warm;
+    fit->by_decrement = r->by_decrement;
     fit->patterns = r->collapsed ? r->npatterns : 0;
     fit->warm_iterations = r->warm_iterations;
     fit->converged = r->converged;

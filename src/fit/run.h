@@ -54,7 +54,7 @@ typedef struct mr__run {
     int warm, warm_iterations;
     int *aliased;
     double null_b0, rel_change;
-    int iterations, halvings, converged;
+    int iterations, halvings, converged, by_decrement;
     double *pass_seconds;
     int npasses;
 } mr__run;

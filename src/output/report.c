@@ -76,7 +76,9 @@ static void section_convergence(mr__strbuf *b, const mr_fit *f)
     mr__strbuf_printf(b, "fit        %s after %d IRLS passes (%d pass%s over the data%s)\n",
                       f->converged ? "converged" : "NOT CONVERGED", f->iterations, f->passes, f->passes == 1 ? "" : "es",
                       f->in_memory ? ", later passes from memory" : f->cached ? ", later passes from the cache" : "");
-    mr__strbuf_printf(b, "           last relative deviance change %.3g (tolerance %.3g)", f->rel_change, f->tolerance);
+    mr__strbuf_printf(b, "           %s %.3g (tolerance %.3g)",
+                      f->by_decrement ? "relative deviance change the last step predicts" : "last relative deviance change",
+                      f->rel_change, f->tolerance);
     if (f->halvings) mr__strbuf_printf(b, ", %d step halvings", f->halvings);
     if (f->patterns)
         mr__strbuf_printf(b, "\n           rows collapsed into %zu covariate patterns: one read of the file, IRLS in memory",
