@@ -6,9 +6,9 @@
  * coefficients, accumulating X'WX, X'Wz, the deviance and the Pearson
  * statistic, and the small p x p system gives the next coefficients.  The
  * loop stops when the relative change in deviance is below the tolerance;
- * the reported coefficients are those at which the last pass evaluated
- * the deviance and the information matrix, so every statistic refers to
- * the same point.  The null model (intercept and offset only) is fitted
+ * the reported statistics are those of the last pass (and so are the
+ * coefficients, unless the last Newton step was taken without a pass to
+ * check it; see iterate()).  The null model (intercept and offset only) is fitted
  * alongside in the same passes. */
 #define _POSIX_C_SOURCE 200809L
 #include <cblas.h>
