@@ -52,9 +52,11 @@ mr_status mr__decoder_init(mr__decoder *d, const mr__decode_cfg *cfg, mr__error 
     d->lev = mr__calloc(b->ncol, sizeof *d->lev);
     d->miss = mr__calloc(b->ncol, 1);
     if (cfg->levels == NULL) d->local = mr__calloc(b->nfac ? b->nfac : 1, sizeof *d->local);
+    d->wanted = mr__calloc(b->nfields + 1, 1);
+    for (f = 0; d->wanted && f < b->nfields; f++) d->wanted[f] = b->col_of_field[f] >= 0;
     d->ftext = mr__calloc(b->ncol, sizeof *d->ftext);
     d->flen = mr__calloc(b->ncol, sizeof *d->flen);
-    if (!d->ftext || !d->flen) {
+    if (!d->ftext || !d->flen || !d->wanted) {
         mr__decoder_release(d);
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }
@@ -80,6 +82,7 @@ void mr__decoder_release(mr__decoder *d)
     mr__free(d->miss);
     mr__free(d->ftext);
     mr__free(d->flen);
+    mr__free(d->wanted);
     mr__free(d->key);
     mr__free(d->rowtext);
     memset(d, 0, sizeof *d);
@@ -348,7 +351,7 @@ static void check_collapsible(mr__decoder *d, const mr__block *blk)
 
 mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, mr__error *err)
 {
-    mr__field_sink sink = {d, on_field, on_row_end};
+    mr__field_sink sink = {d, on_field, on_row_end, d->wanted, d->cfg->bind->nfields};
     mr_status st;
     size_t k;
     blk->index = c->index;

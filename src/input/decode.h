@@ -86,6 +86,7 @@ typedef struct mr__decoder {
     double *val;         /* per bound column, current row */
     int32_t *lev;
     unsigned char *miss;
+    unsigned char *wanted; /* per field: does the model use it */
     int row_bad;
     mr_status row_status;
     size_t bad_field;

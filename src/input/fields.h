@@ -18,6 +18,10 @@ typedef struct mr__field_sink {
     void (*field)(void *user, size_t k, const char *p, size_t len);
     /* Row r (0-based within the chunk) is complete, with nfields fields. */
     void (*row_end)(void *user, uint32_t r, size_t nfields);
+    /* Optional: wanted[k] = 0 lets the plain splitter skip field k (it is
+     * still counted); NULL, or k >= nwanted, means not wanted. */
+    const unsigned char *wanted;
+    size_t nwanted;
 } mr__field_sink;
 
 /* A tokenizer a worker owns; wraps a libcsv parser. */

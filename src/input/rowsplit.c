@@ -132,6 +132,9 @@ mr_status mr__splitter_feed(mr__splitter *sp, const char *p, size_t n, size_t *u
 {
     const char *start = p, *end = p + n;
     int header_pending = sp->want_header;
+    /* Most inputs hold no quote at all: one look per buffer spares a
+     * search per row. */
+    int quotes = memchr(p, '"', n) != NULL;
     *used = n;
     while (p < end) {
         const char *nl, *q;
@@ -142,7 +145,7 @@ mr_status mr__splitter_feed(mr__splitter *sp, const char *p, size_t n, size_t *u
         }
         nl = memchr(p, '\n', (size_t)(end - p));
         span = nl ? (size_t)(nl - p) : (size_t)(end - p);
-        q = memchr(p, '"', span);
+        q = quotes ? memchr(p, '"', span) : NULL;
         if (q != NULL) {
             MR__TRY(append(sp, p, (size_t)(q - p) + 1, err));
             if (!sp->want_header) sp->cur->has_quote = 1;

@@ -22,6 +22,8 @@ struct mr__source {
     ZSTD_DStream *ds;
     uint64_t raw_bytes, out_bytes, size, checksum;
     int64_t mtime_ns;
+    char carry[8]; /* bytes of a checksum word not yet complete */
+    size_t carry_len;
 };
 
 mr_status mr__source_open(mr__source **out, const char *path, const char *display, size_t read_size,
@@ -74,13 +76,29 @@ void mr__source_close(mr__source *s)
     mr__free(s);
 }
 
+/* FNV-1a over the stream taken as little-endian 64-bit words (a final
+ * partial word zero-padded): eight times fewer multiplications than the
+ * bytewise form, which would cost the reader thread a tenth of its time.
+ * Reads may end anywhere, so a partial word is carried to the next read. */
 static void absorb(mr__source *s, const char *p, size_t n)
 {
     uint64_t h = s->checksum;
-    size_t i;
-    for (i = 0; i < n; i++) h = (h ^ (unsigned char)p[i]) * FNV_PRIME;
-    s->checksum = h;
+    size_t i = 0;
     s->raw_bytes += n;
+    while (s->carry_len > 0 && s->carry_len < 8 && i < n) s->carry[s->carry_len++] = p[i++];
+    if (s->carry_len == 8) {
+        uint64_t w;
+        memcpy(&w, s->carry, 8);
+        h = (h ^ w) * FNV_PRIME;
+        s->carry_len = 0;
+    }
+    for (; i + 8 <= n; i += 8) {
+        uint64_t w;
+        memcpy(&w, p + i, 8);
+        h = (h ^ w) * FNV_PRIME;
+    }
+    while (i < n) s->carry[s->carry_len++] = p[i++];
+    s->checksum = h;
 }
 
 static mr_status tee(mr__source *s, const char *p, size_t n, mr__error *err)
@@ -205,7 +223,13 @@ uint64_t mr__source_raw_bytes(const mr__source *s) { return s->raw_bytes; }
 uint64_t mr__source_size(const mr__source *s) { return s->size; }
 uint64_t mr__source_out_bytes(const mr__source *s) { return s->out_bytes; }
 int mr__source_is_zstd(const mr__source *s) { return s->zstd; }
-uint64_t mr__source_checksum(const mr__source *s) { return s->checksum; }
+uint64_t mr__source_checksum(const mr__source *s)
+{
+    uint64_t w = 0, h = s->checksum;
+    if (s->carry_len == 0) return h;
+    memcpy(&w, s->carry, s->carry_len);
+    return (h ^ w) * FNV_PRIME;
+}
 
 void mr__source_identity(const mr__source *s, uint64_t *size, int64_t *mtime_ns)
 {

@@ -29,7 +29,8 @@ uint64_t mr__source_raw_bytes(const mr__source *s);  /* raw bytes consumed */
 uint64_t mr__source_size(const mr__source *s);       /* file size, 0 if unknown */
 uint64_t mr__source_out_bytes(const mr__source *s);  /* decompressed bytes */
 int mr__source_is_zstd(const mr__source *s);
-/* FNV-1a 64 of the raw bytes read so far. */
+/* FNV-1a 64 of the raw bytes read so far, taken as little-endian 64-bit
+ * words (the last partial word zero-padded). */
 uint64_t mr__source_checksum(const mr__source *s);
 /* Identity of the opened file (size and modification time) so a later
  * pass can tell that the file changed under the fit. */

@@ -35,7 +35,7 @@ static json_t *string_array(char *const *s, size_t n)
 static json_t *input_object(const mr_fit *f)
 {
     char sum[40], delim[2] = {f->delimiter, 0};
-    snprintf(sum, sizeof sum, "fnv1a64:%016llx", (unsigned long long)f->checksum);
+    snprintf(sum, sizeof sum, "fnv1a64w:%016llx", (unsigned long long)f->checksum);
     return json_pack("{s:s, s:I, s:I, s:s, s:s, s:s, s:s}", "path", f->path, "bytes", (json_int_t)f->bytes,
                      "decompressed_bytes", (json_int_t)f->decompressed_bytes, "compression", f->zstd ? "zstd" : "none",
                      "checksum", sum, "delimiter", delim, "delimiter_source", f->delimiter_detected ? "detected" : "option");

@@ -39,7 +39,7 @@ static void section_data(mr__strbuf *b, const mr_fit *f)
     mr__strbuf_printf(b, "data       %s (%s, %llu bytes read", f->path, f->zstd ? "zstd" : "plain text",
                       (unsigned long long)f->bytes);
     if (f->zstd) mr__strbuf_printf(b, ", %llu bytes of text", (unsigned long long)f->decompressed_bytes);
-    mr__strbuf_printf(b, ")\n           checksum fnv1a64:%016llx, delimiter %s (%s)\n", (unsigned long long)f->checksum,
+    mr__strbuf_printf(b, ")\n           checksum fnv1a64w:%016llx, delimiter %s (%s)\n", (unsigned long long)f->checksum,
                       delimiter_name(f->delimiter), f->delimiter_detected ? "detected from the header" : "as given");
     mr__strbuf_printf(b, "rows       %llu read, %llu used, %llu left out\n", (unsigned long long)f->rows_read,
                       (unsigned long long)f->rows_used, (unsigned long long)(f->rows_read - f->rows_used));
