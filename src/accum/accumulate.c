@@ -243,5 +243,5 @@ void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__wo
     }
     dense_cross_products(d, ws, n, out);
     sparse_cross_products(d, ws, n, out);
-    null_model_rows(pt, blk, out);
+    if (!pt->null_skip) null_model_rows(pt, blk, out);
 }

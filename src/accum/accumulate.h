@@ -15,6 +15,7 @@ typedef struct mr__irls_point {
     int family, link;
     const double *beta; /* internal-scale coefficients; NULL = start from mustart */
     int null_intercept; /* the null model has an intercept */
+    int null_skip;      /* its sums are known already: leave them out */
     double null_b0;     /* its current value */
 } mr__irls_point;
 

@@ -427,8 +427,10 @@ typedef struct irls_job {
     double rel_change, null_b0;
 } irls_job;
 
+/* Once the null model has converged its deviance no longer changes, and
+ * its per-row work (a mean, a variance and a log each) is left out. */
 static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, double null_b0,
-                           mr__pass_result *res, mr__error *err)
+                           const double *null_dev_known, mr__pass_result *res, mr__error *err)
 {
     mr__irls_point pt;
     mr__pass_cfg c;
@@ -439,6 +441,7 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
     pt.beta = beta;
     pt.null_intercept = r->f->spec.intercept;
     pt.null_b0 = null_b0;
+    pt.null_skip = null_dev_known != NULL;
     c = pass_config(r, MR__PASS_IRLS);
     c.point = &pt;
     if (job->replay) {
@@ -449,7 +452,7 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
     mr__pass_result_release(res, 0);
     st = mr__pass_run(&c, res, err);
     res->sums.dev += job->deviance_shift;
-    res->sums.null_dev += job->deviance_shift;
+    res->sums.null_dev = null_dev_known ? *null_dev_known : res->sums.null_dev + job->deviance_shift;
     if (st != MR_OK || job->replay) return st;
     if (c.store) r->store_filled = 1;
     MR__TRY(check_same_input(r, res, err));
@@ -458,8 +461,8 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
 
 typedef struct irls_state {
     double *beta, *prev, *next;
-    double decrement;
-    int have_beta, have_prev, have_dev, cold_restart;
+    double decrement, null_dev;
+    int have_beta, have_prev, have_dev, cold_restart, null_known;
     double dev_prev, null_b0, null_dev_prev;
     int null_done;
 } irls_state;
@@ -564,7 +567,13 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
     int halvings = 0, accepted;
     start_state(r, job, &s);
     for (;;) {
-        MR__TRY(irls_pass(r, job, s.have_beta ? s.beta : NULL, s.null_b0, res, err));
+        MR__TRY(irls_pass(r, job, s.have_beta ? s.beta : NULL, s.null_b0, s.null_known ? &s.null_dev : NULL, res,
+                          err));
+        if (s.null_done && !s.null_known && res->sums.invalid == 0) {
+            /* The pass just made evaluated the null model at its final b0. */
+            s.null_dev = res->sums.null_dev;
+            s.null_known = 1;
+        }
         MR__TRY(accept_point(r, job, &s, res, &halvings, &accepted, err));
         if (!accepted) continue;
         halvings = 0;

@@ -3,7 +3,7 @@
 # whatever the thread count, read size, in-memory mode, compression, line
 # endings or whether the data come from a file or standard input.  The raw
 # JSON text of the numbers is compared, so even a last-bit difference fails.
-source "$(dirname "${BASH_SOURCE[0]}")/lib.sh"
+source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
 
 # About 50,000 rows of Poisson counts with two factors, a numeric and exposure.
 /usr/bin/python3 - "$tmp/data.csv" <<'EOF'

@@ -5,7 +5,7 @@
 # contract: 2 usage, 3 I/O, 4 malformed input, 5 value outside the model's
 # domain, 6 no data; "millrace: FILE:LINE:COLUMN: message (value 'V')".
 # LINE counts the header as line 1; COLUMN is the 1-based field number.
-source "$(dirname "${BASH_SOURCE[0]}")/lib.sh"
+source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
 
 # A small valid data set: y count, g factor, x numeric, plus columns used by
 # some families (s/t binomial, e exposure, w weight, z positive outcome).

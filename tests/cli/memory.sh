@@ -2,7 +2,7 @@
 # Streaming means memory does not grow with the number of rows: the peak
 # resident set of a fit on 2,000,000 rows must stay within 1.5x of the same
 # fit on 100,000 rows.  Data are generated here (zstd-compressed) and removed.
-source "$(dirname "${BASH_SOURCE[0]}")/lib.sh"
+source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
 
 # generate ROWS FILE: Poisson counts with two factors and two numerics.
 generate() {

@@ -1,4 +1,4 @@
-# lib.sh - what every command-line test needs: the repository root, the
+# common.bash - what every command-line test needs: the repository root, the
 # binary, a temporary directory removed on exit, and ok/fail counting
 # that ends in the "N passed, M failed" line CI reads.  Source it.
 set -u
