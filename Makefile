@@ -4,6 +4,7 @@
 #   make demo       install missing Debian packages (as root) and fit the bundled sample
 #   make check      the whole test suite: unit, command line, references, sanitizers, valgrind
 #   make asan       the library and unit tests built with ASan+UBSan (build/asan/)
+#   make tsan-check the command tour under ThreadSanitizer
 #   make bench      benchmarks (not tests; timings go to bench/results/)
 #   make V=1        show the commands
 
@@ -38,11 +39,12 @@ LIB_SRC  := $(wildcard src/common/*.c src/input/*.c src/model/*.c src/family/*.c
                        src/accum/*.c src/solve/*.c src/fit/*.c src/output/*.c)
 LIB_OBJ  := $(LIB_SRC:%.c=$(B)/%.o)
 ASAN_OBJ := $(LIB_SRC:%.c=$(B)/asan/%.o)
+TSAN_OBJ := $(LIB_SRC:%.c=$(B)/tsan/%.o)
 UNIT_SRC := $(wildcard tests/check_*.c)
 UNIT_BIN := $(UNIT_SRC:tests/%.c=$(B)/tests/%)
 ASAN_UNIT_BIN := $(UNIT_SRC:tests/%.c=$(B)/asan/tests/%)
 
-.PHONY: all deps demo check unit asan asan-check valgrind-check cli-check ref-check lint bench clean
+.PHONY: all deps demo check unit asan asan-check tsan-check valgrind-check cli-check ref-check lint bench clean
 
 all: $(B)/millrace $(B)/synth
 
@@ -56,6 +58,17 @@ $(B)/asan/%.o: %.c
 	@mkdir -p $(dir $@)
 	@$(if $(Q),echo "  CC asan $<")
 	$(Q)$(CC) $(CPPFLAGS) $(CFLAGS) $(SAN) -c $< -o $@
+
+$(B)/tsan/%.o: %.c
+	@mkdir -p $(dir $@)
+	@$(if $(Q),echo "  CC tsan $<")
+	$(Q)$(CC) $(CPPFLAGS) $(CFLAGS) -fsanitize=thread -c $< -o $@
+
+$(B)/tsan/libmillrace.a: $(TSAN_OBJ)
+	$(Q)rm -f $@ && ar rcs $@ $^
+
+$(B)/tsan/millrace: $(B)/tsan/src/cli/main.o $(B)/tsan/libmillrace.a
+	$(Q)$(CC) $(CFLAGS) -fsanitize=thread -o $@ $^ $(LIBS)
 
 $(B)/libmillrace.a: $(LIB_OBJ)
 	$(Q)rm -f $@ && ar rcs $@ $^
@@ -96,9 +109,16 @@ unit: $(UNIT_BIN)
 
 asan: $(ASAN_UNIT_BIN) $(B)/asan/millrace
 
-asan-check: asan
+asan-check: asan $(B)/synth
 	@for t in $(ASAN_UNIT_BIN); do echo "== $$t (ASan+UBSan)"; MR_TEST_QUICK=1 ./$$t || exit 1; done
 	MILLRACE=$(B)/asan/millrace bash tests/cli/smoke.sh
+	MILLRACE=$(B)/asan/millrace bash tests/cli/threads.sh
+
+# The threaded paths under ThreadSanitizer (OpenBLAS is not instrumented:
+# its internal races are not ours and are suppressed).
+tsan-check: $(B)/tsan/millrace $(B)/synth
+	TSAN_OPTIONS="halt_on_error=1 suppressions=$(CURDIR)/tests/tsan.supp" MILLRACE=$(B)/tsan/millrace \
+	  bash tests/cli/threads.sh
 
 valgrind-check: all
 	MILLRACE="valgrind --quiet --error-exitcode=99 --leak-check=full --errors-for-leak-kinds=definite $(B)/millrace" \
@@ -116,9 +136,9 @@ lint:
 	  echo "lint: the library must not print or exit (see above)"; exit 1; fi
 	@echo "lint: the library neither prints nor exits"
 
-check: lint unit cli-check ref-check asan-check valgrind-check
-	@echo "test groups: lint, unit, cli, reference, asan+ubsan, valgrind"
-	@echo "check: 6 passed, 0 failed"
+check: lint unit cli-check ref-check asan-check tsan-check valgrind-check
+	@echo "test groups: lint, unit, cli, reference, asan+ubsan, tsan, valgrind"
+	@echo "check: 7 passed, 0 failed"
 
 # ---- benchmarks (never a test) ------------------------------------------------
 bench: all
@@ -127,4 +147,4 @@ bench: all
 clean:
 	rm -rf $(B)
 
--include $(LIB_OBJ:.o=.d) $(ASAN_OBJ:.o=.d) $(B)/src/cli/main.d
+-include $(LIB_OBJ:.o=.d) $(ASAN_OBJ:.o=.d) $(TSAN_OBJ:.o=.d) $(B)/src/cli/main.d

@@ -1,0 +1,42 @@
+#!/usr/bin/env bash
+# Every threaded path on data of many blocks, for ThreadSanitizer (make
+# tsan-check runs it with the TSan build as $MILLRACE; with the normal
+# build it is a quick functional run).  The reference for each fit is the
+# same fit with one thread: the results must be the same bits.
+source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
+bin=${MILLRACE:-$bin}
+synth="$root/build/synth"
+"$synth" --rows 120000 --seed 5 --out "$tmp/d.csv.zst" || { fail synth "cannot generate data"; finish; exit 1; }
+cat > "$tmp/a.model" <<'M'
+outcome events
+family poisson
+exposure followup
+factor age_band
+factor sex
+factor region
+numeric deprivation
+numeric year
+M
+cp "$tmp/a.model" "$tmp/b.model"
+printf 'numeric age\nnumeric bmi\n' >> "$tmp/b.model"
+
+estimates() { /usr/bin/python3 -c 'import json,sys; j=json.load(open(sys.argv[1])); print([c["estimate"] for c in j["coefficients"]], j["fit"]["deviance"])' "$1"; }
+
+run() { # run NAME MODEL OPTIONS...: fit with 1 and 3 threads, compare
+    local name=$1 model=$2
+    shift 2
+    if ! $bin fit --quiet -m "$model" --threads 1 "$@" --json "$tmp/1.json" "$tmp/d.csv.zst" > /dev/null ||
+       ! $bin fit --quiet -m "$model" --threads 3 "$@" --json "$tmp/3.json" "$tmp/d.csv.zst" > /dev/null; then
+        fail "$name" "a fit failed"
+        return
+    fi
+    [ "$(estimates "$tmp/1.json")" = "$(estimates "$tmp/3.json")" ] && ok "$name" || fail "$name" "1 and 3 threads differ"
+}
+
+run collapsed "$tmp/a.model"
+run cached "$tmp/b.model"
+run streaming "$tmp/b.model" --no-cache --buffer-size 4096
+run in_memory "$tmp/b.model" --in-memory
+run rows_no_collapse "$tmp/a.model" --no-collapse
+cat "$tmp/d.csv.zst" | $bin fit --quiet -m "$tmp/b.model" --threads 3 - > /dev/null && ok stdin || fail stdin "fit from standard input failed"
+finish
