@@ -81,6 +81,31 @@ static int usable_mu(mr_family f, mr_link l, double mu)
 /* ------------------------------------------------------------------ */
 /* (a) g^-1(g(mu)) = mu                                                 */
 
+START_TEST(test_count_invalid_matches_scalar_checks)
+{
+    /* Source of truth: mr__family_mu_valid and mr__link_eta_valid, the
+     * scalar definitions the array count must agree with, on ordinary and
+     * special values (0, 1, negatives, infinities, NaN). */
+    static const double vals[] = {-INFINITY, -2.0, -1e-300, -0.0, 0.0, 1e-300, 0.5, 1.0, 1.5, 3.0, INFINITY, NAN};
+    enum { K = sizeof vals / sizeof vals[0] };
+    double eta[K * K], mu[K * K];
+    int f, l;
+    size_t a, b;
+    for (a = 0; a < K; a++)
+        for (b = 0; b < K; b++) {
+            eta[a * K + b] = vals[a];
+            mu[a * K + b] = vals[b];
+        }
+    for (f = MR_GAUSSIAN; f <= MR_INVERSE_GAUSSIAN; f++)
+        for (l = MR_IDENTITY; l <= MR_INVERSE_SQUARED; l++) {
+            size_t want = 0, i;
+            for (i = 0; i < K * K; i++)
+                want += !(mr__link_eta_valid((mr_link)l, eta[i]) && mr__family_mu_valid((mr_family)f, mu[i]));
+            ck_assert_uint_eq(mr__count_invalid_n((mr_family)f, (mr_link)l, eta, mu, K * K), want);
+        }
+}
+END_TEST
+
 START_TEST(link_round_trip)
 {
     for (size_t p = 0; p < N_OF(PAIRS); p++)
@@ -467,6 +492,7 @@ static Suite *family_suite(void)
 {
     Suite *s = suite_create("family");
     TCase *links = tcase_create("links");
+    tcase_add_test(links, test_count_invalid_matches_scalar_checks);
     tcase_add_test(links, link_round_trip);
     tcase_add_test(links, mu_eta_matches_finite_difference);
     tcase_add_test(links, extreme_eta_stays_finite);

@@ -217,11 +217,12 @@ void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__wo
     linear_predictor(pt, blk, ws, n);
     mr__family_variance_n(pt->family, ws->mu, n, ws->var);
     mr__family_unit_deviance_n(pt->family, blk->y, ws->mu, n, ws->dev);
+    out->invalid = mr__count_invalid_n(pt->family, pt->link, ws->eta, ws->mu, n);
+    if (pt->family == MR_BINOMIAL || pt->family == MR_POISSON)
+        for (i = 0; i < n; i++) out->boundary += at_boundary(pt->family, ws->mu[i]);
     for (i = 0; i < n; i++) {
         double prior = blk->prior ? blk->prior[i] : 1.0, r = blk->y[i] - ws->mu[i];
         double off = blk->off ? blk->off[i] : 0.0;
-        if (!mr__link_eta_valid(pt->link, ws->eta[i]) || !mr__family_mu_valid(pt->family, ws->mu[i])) out->invalid++;
-        out->boundary += at_boundary(pt->family, ws->mu[i]);
         dev += prior * ws->dev[i];
         pearson += (prior * r * r + (blk->extra ? blk->extra[i] : 0.0)) / ws->var[i];
         ws->w[i] = prior * ws->mu_eta[i] * ws->mu_eta[i] / ws->var[i];

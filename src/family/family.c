@@ -125,6 +125,23 @@ int mr__family_mu_valid(mr_family f, double mu)
     }
 }
 
+/* The two checks above over arrays: the family's range as an open
+ * interval (lo, hi), the link's needs as two flags, so the loop carries no
+ * switch. */
+size_t mr__count_invalid_n(mr_family f, mr_link l, const double *eta, const double *mu, size_t n)
+{
+    const double lo = f == MR_GAUSSIAN ? -INFINITY : 0.0, hi = f == MR_BINOMIAL ? 1.0 : INFINITY;
+    const int positive_eta = l == MR_SQRT || l == MR_INVERSE_SQUARED, nonzero_eta = l == MR_INVERSE;
+    size_t i, bad = 0;
+    for (i = 0; i < n; i++) {
+        int ok = isfinite(mu[i]) && mu[i] > lo && mu[i] < hi && isfinite(eta[i]);
+        if (positive_eta) ok = ok && eta[i] > 0.0;
+        if (nonzero_eta) ok = ok && eta[i] != 0.0;
+        bad += !ok;
+    }
+    return bad;
+}
+
 /* Only what the link itself needs: eta must lie in the range of g.  Hence
  * inverse needs eta != 0, inverse-squared eta > 0, and sqrt eta > 0 (for
  * eta < 0, eta^2 is a mean whose g is -eta, not eta).  Whether the

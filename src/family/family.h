@@ -52,6 +52,10 @@ double mr__family_unit_deviance(mr_family f, double y, double mu);
  * pattern from sums. */
 double mr__family_saturated_term(mr_family f, double y);
 
+/* How many rows have an eta or a mu outside the link's or the family's
+ * range (the array form of the two checks above). */
+size_t mr__count_invalid_n(mr_family f, mr_link l, const double *eta, const double *mu, size_t n);
+
 /* Array versions for the hot path: mu[i] = g^-1(eta[i]),
  * mu_eta[i] = dmu/deta(eta[i]); var[i] = V(mu[i]); dev[i] = d(y[i], mu[i]). */
 void mr__link_inv_n(mr_link l, const double *eta, size_t n, double *mu, double *mu_eta);
