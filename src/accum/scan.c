@@ -63,13 +63,17 @@ void mr__scan_block(const mr__block *blk, size_t ncol, size_t nnum, mr__scan_sum
         s->sxx[k] = b;
     }
     for (i = 0; i < blk->n; i++) {
-        double w = blk->prior ? blk->prior[i] : 1.0, off = blk->off ? blk->off[i] : 0.0;
+        double w = blk->prior ? blk->prior[i] : 1.0;
         s->sw += w;
         s->swy += w * blk->y[i];
-        s->swe += w * exp(off);
-        s->swoff += w * off;
         s->llc += blk->llc[i];
         s->npos += w > 0;
+    }
+    /* Only the null model's start with an offset needs these. */
+    for (i = 0; blk->off && i < blk->n; i++) {
+        double w = blk->prior ? blk->prior[i] : 1.0;
+        s->swe += w * exp(blk->off[i]);
+        s->swoff += w * blk->off[i];
     }
 }
 

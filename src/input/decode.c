@@ -369,6 +369,7 @@ mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, m
     d->rowtext_len = 0;
     st = mr__tokenize_chunk(&d->tok, c, &sink, d->cfg->display, err);
     if (st == MR_OK && d->stop && !blk->failed) st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    if (st == MR_OK && blk->patterns) check_collapsible(d, blk);
+    if (st == MR_OK && blk->patterns && !atomic_load_explicit(d->cfg->collapse_abandoned, memory_order_relaxed))
+        check_collapsible(d, blk);
     return st;
 }
