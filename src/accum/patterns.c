@@ -69,20 +69,6 @@ static int rehash(mr__pattern_table *t)
     return 0;
 }
 
-static int reserve(void **p, size_t *cap, size_t need, size_t unit)
-{
-    size_t nc;
-    void *q;
-    if (need <= *cap) return 0;
-    nc = *cap ? *cap : 256;
-    while (nc < need) nc *= 2;
-    q = mr__realloc(*p, nc * unit);
-    if (q == NULL) return -1;
-    *p = q;
-    *cap = nc;
-    return 0;
-}
-
 int mr__patterns_add(mr__pattern_table *t, const char *key, size_t len, uint64_t hash, double a, double b,
                      double c, double d)
 {
@@ -91,8 +77,8 @@ int mr__patterns_add(mr__pattern_table *t, const char *key, size_t len, uint64_t
     if ((t->n + 1) * 2 > t->cap && rehash(t) != 0) return -1;
     s = find_slot(t, hash, key, len);
     if (*s == 0) {
-        if (reserve((void **)&t->ent, &t->ent_cap, t->n + 1, sizeof *t->ent) != 0 ||
-            reserve((void **)&t->keys, &t->keys_cap, t->keys_len + len + 1, 1) != 0)
+        if (mr__reserve((void **)&t->ent, &t->ent_cap, t->n + 1, sizeof *t->ent) != 0 ||
+            mr__reserve((void **)&t->keys, &t->keys_cap, t->keys_len + len + 1, 1) != 0)
             return -1;
         e = &t->ent[t->n];
         e->hash = hash;

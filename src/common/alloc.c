@@ -16,6 +16,23 @@ void *mr__malloc_array(size_t count, size_t size)
     return mr__malloc(count * size);
 }
 
+int mr__reserve(void **p, size_t *cap, size_t need, size_t unit)
+{
+    size_t nc;
+    void *q;
+    if (need <= *cap) return 0;
+    nc = *cap ? *cap : 8;
+    while (nc < need) {
+        if (nc > SIZE_MAX / 2 / unit) return -1;
+        nc *= 2;
+    }
+    q = mr__realloc(*p, nc * unit);
+    if (q == NULL) return -1;
+    *p = q;
+    *cap = nc;
+    return 0;
+}
+
 char *mr__strndup(const char *s, size_t n)
 {
     char *d = mr__malloc(n + 1);

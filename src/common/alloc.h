@@ -11,6 +11,10 @@ void *mr__realloc(void *p, size_t size);
 void mr__free(void *p);
 char *mr__strdup(const char *s);
 char *mr__strndup(const char *s, size_t n);
+/* Grows the array *p (of *cap elements of `unit` bytes) to hold at least
+ * `need` elements, doubling; returns 0, or -1 when out of memory (the
+ * array is then unchanged). */
+int mr__reserve(void **p, size_t *cap, size_t need, size_t unit);
 /* Overflow-checked count * size for array allocations; NULL on overflow. */
 void *mr__malloc_array(size_t count, size_t size);
 

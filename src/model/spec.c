@@ -102,13 +102,8 @@ static mr_status declare_covariate(mr__spec *s, const char *name, mr__role role,
 {
     mr__covariate *c = (mr__covariate *)mr__spec_find(s, name);
     if (c == NULL) {
-        if (s->ncov == s->capcov) {
-            size_t cap = s->capcov ? 2 * s->capcov : 8;
-            mr__covariate *p = mr__realloc(s->cov, cap * sizeof *p);
-            if (p == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-            s->cov = p;
-            s->capcov = cap;
-        }
+        if (mr__reserve((void **)&s->cov, &s->capcov, s->ncov + 1, sizeof *s->cov) != 0)
+            return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
         c = &s->cov[s->ncov];
         memset(c, 0, sizeof *c);
         MR__TRY(set_string(&c->name, name, err));
@@ -131,20 +126,15 @@ static mr_status add_interaction(mr__spec *s, const words *ws, const char *origi
         for (j = 1; j < k; j++)
             if (strcmp(ws->w[k], ws->w[j]) == 0)
                 return mr__fail(err, MR_ERR_USAGE, "%s: interact names '%s' twice", origin, ws->w[k]);
-    if (s->ninter == s->capinter) {
-        size_t cap = s->capinter ? 2 * s->capinter : 4;
-        mr__interaction *p = mr__realloc(s->inter, cap * sizeof *p);
-        if (p == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-        s->inter = p;
-        s->capinter = cap;
-    }
+    if (mr__reserve((void **)&s->inter, &s->capinter, s->ninter + 1, sizeof *s->inter) != 0)
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     it = &s->inter[s->ninter];
     memset(it, 0, sizeof *it);
     for (k = 1; k < ws->n; k++) {
         it->name[k - 1] = mr__strdup(ws->w[k]);
         if (it->name[k - 1] == NULL) {
             for (j = 0; j < k - 1; j++) mr__free(it->name[j]);
-            return mr__fail(err, MR_ERR_USAGE, "out of memory");
+            return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
         }
     }
     it->n = ws->n - 1;
@@ -170,6 +160,9 @@ static mr_status parse_factor(mr__spec *s, const words *ws, const char *origin, 
             return mr__fail(err, MR_ERR_USAGE, "%s: expected ref=LEVEL after the factor name, got '%s'",
                             origin, ws->w[2]);
         ref = ws->w[2] + 4;
+        if (*ref == '\0')
+            return mr__fail(err, MR_ERR_USAGE, "%s: ref= needs a level name (quote one with blanks: ref=\"a b\")",
+                            origin);
     }
     return declare_covariate(s, ws->w[1], MR__ROLE_FACTOR, ref, err);
 }
