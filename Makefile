@@ -40,11 +40,12 @@ LIB_SRC  := $(wildcard src/common/*.c src/input/*.c src/model/*.c src/family/*.c
 LIB_OBJ  := $(LIB_SRC:%.c=$(B)/%.o)
 ASAN_OBJ := $(LIB_SRC:%.c=$(B)/asan/%.o)
 TSAN_OBJ := $(LIB_SRC:%.c=$(B)/tsan/%.o)
-UNIT_SRC := $(wildcard tests/check_*.c)
+ALLOC_OBJ := $(LIB_SRC:%.c=$(B)/allocfail/%.o)
+UNIT_SRC := $(filter-out tests/check_alloc.c,$(wildcard tests/check_*.c))
 UNIT_BIN := $(UNIT_SRC:tests/%.c=$(B)/tests/%)
 ASAN_UNIT_BIN := $(UNIT_SRC:tests/%.c=$(B)/asan/tests/%)
 
-.PHONY: all deps demo check unit asan asan-check tsan-check valgrind-check cli-check ref-check lint bench clean
+.PHONY: all deps demo check unit asan asan-check tsan-check alloc-check valgrind-check cli-check ref-check lint bench clean
 
 all: $(B)/millrace $(B)/synth
 
@@ -69,6 +70,22 @@ $(B)/tsan/libmillrace.a: $(TSAN_OBJ)
 
 $(B)/tsan/millrace: $(B)/tsan/src/cli/main.o $(B)/tsan/libmillrace.a
 	$(Q)$(CC) $(CFLAGS) -fsanitize=thread -o $@ $^ $(LIBS)
+
+$(B)/allocfail/%.o: %.c
+	@mkdir -p $(dir $@)
+	@$(if $(Q),echo "  CC fail $<")
+	$(Q)$(CC) $(CPPFLAGS) -DMR_ALLOC_FAILURE_TESTS $(CFLAGS) $(SAN) -c $< -o $@
+
+$(B)/allocfail/libmillrace.a: $(ALLOC_OBJ)
+	$(Q)rm -f $@ && ar rcs $@ $^
+
+$(B)/allocfail/check_alloc: tests/check_alloc.c $(B)/allocfail/libmillrace.a
+	$(Q)$(CC) $(CPPFLAGS) -DMR_ALLOC_FAILURE_TESTS $(CHECK_CFLAGS) $(CFLAGS) $(SAN) -o $@ $< \
+	  $(B)/allocfail/libmillrace.a $(CHECK_LIBS) $(LIBS)
+
+# Every allocation of a fit made to fail in turn (ASan watches for leaks).
+alloc-check: $(B)/allocfail/check_alloc
+	./$(B)/allocfail/check_alloc
 
 $(B)/libmillrace.a: $(LIB_OBJ)
 	$(Q)rm -f $@ && ar rcs $@ $^
@@ -136,9 +153,9 @@ lint:
 	  echo "lint: the library must not print or exit (see above)"; exit 1; fi
 	@echo "lint: the library neither prints nor exits"
 
-check: lint unit cli-check ref-check asan-check tsan-check valgrind-check
-	@echo "test groups: lint, unit, cli, reference, asan+ubsan, tsan, valgrind"
-	@echo "check: 7 passed, 0 failed"
+check: lint unit cli-check ref-check asan-check tsan-check alloc-check valgrind-check
+	@echo "test groups: lint, unit, cli, reference, asan+ubsan, tsan, allocation failures, valgrind"
+	@echo "check: 8 passed, 0 failed"
 
 # ---- benchmarks (never a test) ------------------------------------------------
 bench: all
@@ -147,4 +164,4 @@ bench: all
 clean:
 	rm -rf $(B)
 
--include $(LIB_OBJ:.o=.d) $(ASAN_OBJ:.o=.d) $(TSAN_OBJ:.o=.d) $(B)/src/cli/main.d
+-include $(LIB_OBJ:.o=.d) $(ASAN_OBJ:.o=.d) $(TSAN_OBJ:.o=.d) $(ALLOC_OBJ:.o=.d) $(B)/src/cli/main.d

@@ -1,7 +1,6 @@
 #include <cblas.h>
 #include <float.h>
 #include <math.h>
-#include <stdlib.h>
 #include <string.h>
 
 #include "accum/accumulate.h"
@@ -10,12 +9,7 @@
 
 /* 64-byte alignment keeps the BLAS kernels on one code path whatever the
  * allocator returns, so results cannot depend on where a buffer landed. */
-static double *aligned_doubles(size_t n)
-{
-    size_t bytes = n * sizeof(double);
-    bytes = (bytes + 63) / 64 * 64;
-    return aligned_alloc(64, bytes ? bytes : 64);
-}
+static double *aligned_doubles(size_t n) { return mr__aligned_alloc(n * sizeof(double)); }
 
 mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *err)
 {
@@ -24,7 +18,7 @@ mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *
     ws->p = d->p;
     ws->D = aligned_doubles(R * (d->ndense + 1));
     ws->sval = aligned_doubles(R * (d->nsparse + 1));
-    ws->scol = aligned_alloc(64, R * (d->nsparse + 1) * sizeof(int32_t));
+    ws->scol = mr__aligned_alloc(R * (d->nsparse + 1) * sizeof(int32_t));
     ws->dd = aligned_doubles((d->ndense + 1) * (d->ndense + 1));
     ws->bd = aligned_doubles(d->ndense + 1);
     ws->sd = aligned_doubles(d->p * (d->ndense + 1));
@@ -44,19 +38,19 @@ mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *
 
 void mr__workspace_release(mr__workspace *ws)
 {
-    free(ws->D);
-    free(ws->sval);
-    free(ws->scol);
-    free(ws->dd);
-    free(ws->bd);
-    free(ws->sd);
-    free(ws->eta);
-    free(ws->mu);
-    free(ws->mu_eta);
-    free(ws->var);
-    free(ws->dev);
-    free(ws->w);
-    free(ws->z);
+    mr__free(ws->D);
+    mr__free(ws->sval);
+    mr__free(ws->scol);
+    mr__free(ws->dd);
+    mr__free(ws->bd);
+    mr__free(ws->sd);
+    mr__free(ws->eta);
+    mr__free(ws->mu);
+    mr__free(ws->mu_eta);
+    mr__free(ws->var);
+    mr__free(ws->dev);
+    mr__free(ws->w);
+    mr__free(ws->z);
     memset(ws, 0, sizeof *ws);
 }
 
@@ -75,8 +69,8 @@ mr_status mr__sums_init(mr__block_sums *s, size_t p, mr__error *err)
 
 void mr__sums_release(mr__block_sums *s)
 {
-    free(s->xtwx);
-    free(s->xtwz);
+    mr__free(s->xtwx);
+    mr__free(s->xtwz);
     memset(s, 0, sizeof *s);
 }
 

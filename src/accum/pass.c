@@ -459,16 +459,17 @@ static mr_status init_result(const mr__pass_cfg *cfg, mr__pass_result *res, mr__
     return mr__sums_init(&res->sums, cfg->p, err);
 }
 
-static void take_levels(engine *e, mr__pass_result *res)
+static mr_status take_levels(engine *e, mr__pass_result *res, mr__error *err)
 {
     size_t i;
     res->worker_levels = mr__calloc(e->nworkers, sizeof *res->worker_levels);
-    if (res->worker_levels == NULL) return;
+    if (res->worker_levels == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     res->nworkers = e->nworkers;
     for (i = 0; i < e->nworkers; i++) {
         res->worker_levels[i] = e->workers[i].dec.local;
         e->workers[i].dec.local = NULL;
     }
+    return MR_OK;
 }
 
 static void finish_source(engine *e, mr__pass_result *res)
@@ -521,7 +522,7 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     if (st == MR_OK) st = combine_all(&e, res, t0, err);
     stop_threads(&e);
     finish_source(&e, res);
-    if (st == MR_OK && cfg->kind == MR__PASS_SCAN) take_levels(&e, res);
+    if (st == MR_OK && cfg->kind == MR__PASS_SCAN) st = take_levels(&e, res, err);
     /* A worker may give up collapsing after its block was merged. */
     if (res->collapsed && atomic_load(cfg->dcfg->collapse_abandoned)) merge_patterns(cfg, res, NULL);
     release_engine(&e);

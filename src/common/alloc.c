@@ -5,10 +5,38 @@
 #include "alloc.h"
 #include "millrace.h"
 
-void *mr__malloc(size_t size) { return malloc(size ? size : 1); }
-void *mr__calloc(size_t count, size_t size) { return calloc(count ? count : 1, size ? size : 1); }
-void *mr__realloc(void *p, size_t size) { return realloc(p, size ? size : 1); }
+#ifdef MR_ALLOC_FAILURE_TESTS
+#include <stdatomic.h>
+/* The one piece of global state, and only in test builds: which
+ * allocation is to fail (see tests/check_alloc.c). */
+static atomic_long fail_countdown = -1;
+void mr__alloc_fail_after(long n) { atomic_store(&fail_countdown, n); }
+long mr__alloc_failures_left(void);
+long mr__alloc_failures_left(void) { return atomic_load(&fail_countdown); }
+static int should_fail(void)
+{
+    long left = atomic_load(&fail_countdown);
+    while (left >= 0 && !atomic_compare_exchange_weak(&fail_countdown, &left, left - 1)) {
+    }
+    return left == 0;
+}
+#else
+static int should_fail(void) { return 0; }
+#endif
+
+void *mr__malloc(size_t size) { return should_fail() ? NULL : malloc(size ? size : 1); }
+void *mr__calloc(size_t count, size_t size)
+{
+    return should_fail() ? NULL : calloc(count ? count : 1, size ? size : 1);
+}
+void *mr__realloc(void *p, size_t size) { return should_fail() ? NULL : realloc(p, size ? size : 1); }
 void mr__free(void *p) { free(p); }
+
+void *mr__aligned_alloc(size_t size)
+{
+    size_t bytes = (size + 63) / 64 * 64;
+    return should_fail() ? NULL : aligned_alloc(64, bytes ? bytes : 64);
+}
 
 void *mr__malloc_array(size_t count, size_t size)
 {

@@ -10,6 +10,14 @@ void *mr__calloc(size_t count, size_t size);
 void *mr__realloc(void *p, size_t size);
 void mr__free(void *p);
 char *mr__strdup(const char *s);
+/* 64-byte aligned memory (size rounded up), freed with mr__free. */
+void *mr__aligned_alloc(size_t size);
+
+#ifdef MR_ALLOC_FAILURE_TESTS
+/* Test builds only: the allocation after the next n fails (n < 0: none
+ * fails).  Process-wide, so that worker threads' allocations count too. */
+void mr__alloc_fail_after(long n);
+#endif
 char *mr__strndup(const char *s, size_t n);
 /* Grows the array *p (of *cap elements of `unit` bytes) to hold at least
  * `need` elements, doubling; returns 0, or -1 when out of memory (the

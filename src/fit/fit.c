@@ -33,7 +33,7 @@ void mr_fit_free(mr_fit *fit)
     mr__free(fit->exposure);
     mr__free(fit->weight);
     free_strings(fit->terms, fit->nterms);
-    for (i = 0; i < fit->nfactors; i++) {
+    for (i = 0; fit->factor && i < fit->nfactors; i++) {
         mr__free(fit->factor[i].name);
         mr__free(fit->factor[i].reference);
         free_strings(fit->factor[i].level, fit->factor[i].nlevels);

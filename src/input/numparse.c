@@ -18,7 +18,8 @@
  */
 #define _GNU_SOURCE /* strtod_l and newlocale are GNU/POSIX 2008 */
 
-#include "numparse.h"
+#include "input/numparse.h"
+#include "common/alloc.h"
 
 #include <locale.h>
 #include <math.h>
@@ -44,12 +45,12 @@ struct mr__numparser {
 
 mr__numparser *mr__numparser_new(void)
 {
-    mr__numparser *np = malloc(sizeof *np);
+    mr__numparser *np = mr__malloc(sizeof *np);
     if (!np)
         return NULL;
     np->c_locale = newlocale(LC_NUMERIC_MASK, "C", (locale_t)0);
     if (np->c_locale == (locale_t)0) {
-        free(np);
+        mr__free(np);
         return NULL;
     }
     return np;
@@ -60,7 +61,7 @@ void mr__numparser_free(mr__numparser *np)
     if (!np)
         return;
     freelocale(np->c_locale);
-    free(np);
+    mr__free(np);
 }
 
 /* ------------------------------------------------------------------ */

@@ -1,0 +1,93 @@
+/* check_alloc.c - every allocation failure ends in a clean error.
+ *
+ * Built against a library compiled with MR_ALLOC_FAILURE_TESTS (make
+ * alloc-check, under ASan, whose leak checker runs when this process
+ * exits).  For n = 0, 1, 2, ... the n-th allocation of a whole fit fails;
+ * the fit must then return MR_ERR_NO_MEMORY (or succeed, where the failed
+ * allocation only cost an optional speed-up such as the warm start), never
+ * crash, never leak.  Source of truth: the API contract in millrace.h. */
+#include <check.h>
+#include <stdio.h>
+#include <stdlib.h>
+
+#include "common/alloc.h"
+#include "millrace.h"
+
+long mr__alloc_failures_left(void);
+
+static const char *const falls_model[] = {"outcome admissions", "family poisson", "exposure person_years",
+                                          "factor age_band ref=40-44", "factor sex", "numeric year",
+                                          "interact age_band sex", NULL};
+static const char *const screening_model[] = {"outcome attended", "family binomial", "numeric age", "factor sex",
+                                              "numeric bmi", NULL};
+
+/* One fit with the n-th allocation failing; returns 1 once n is past the
+ * last allocation the fit makes. */
+static int fit_failing_at(long n, const char *path, const char *const *model, int extra)
+{
+    mr_fitter *f;
+    mr_fit *fit = NULL;
+    mr_status st;
+    int i;
+    mr__alloc_fail_after(n);
+    f = mr_fitter_new();
+    if (f == NULL) return 0;
+    for (i = 0; model[i]; i++) {
+        st = mr_fitter_model_line(f, model[i], "test");
+        if (st != MR_OK) {
+            mr_fitter_free(f);
+            ck_assert_int_eq(st, MR_ERR_NO_MEMORY);
+            return 0;
+        }
+    }
+    mr_fitter_set_int(f, MR_OPT_THREADS, 2);
+    if (extra == 1) mr_fitter_set_int(f, MR_OPT_NO_COLLAPSE, 1);
+    if (extra == 2) mr_fitter_set_int(f, MR_OPT_IN_MEMORY, 1);
+    st = mr_fitter_run(f, path, &fit);
+    ck_assert_msg(st == MR_OK || st == MR_ERR_NO_MEMORY, "allocation %ld: status %d (%s)", n, (int)st,
+                  mr_fitter_errmsg(f));
+    if (st == MR_OK) {
+        char *report = mr_fit_report(fit, 6);
+        mr_free(report);
+        mr_fit_free(fit);
+    } else {
+        ck_assert_ptr_null(fit);
+    }
+    mr_fitter_free(f);
+    return st == MR_OK && mr__alloc_failures_left() >= 0;
+}
+
+static void every_allocation(const char *path, const char *const *model, int extra)
+{
+    long n;
+    for (n = 0; n < 200000; n++)
+        if (fit_failing_at(n, path, model, extra)) break;
+    mr__alloc_fail_after(-1);
+    ck_assert_msg(n < 200000, "the fit never finished");
+}
+
+START_TEST(test_falls_collapsed) { every_allocation("samples/falls.csv.zst", falls_model, 0); }
+END_TEST
+START_TEST(test_falls_rows_cached) { every_allocation("samples/falls.csv", falls_model, 1); }
+END_TEST
+START_TEST(test_screening_in_memory) { every_allocation("samples/screening.csv", screening_model, 2); }
+END_TEST
+
+int main(void)
+{
+    Suite *s = suite_create("alloc");
+    TCase *tc = tcase_create("failures");
+    SRunner *sr;
+    int failed;
+    tcase_set_timeout(tc, 600);
+    tcase_add_test(tc, test_falls_collapsed);
+    tcase_add_test(tc, test_falls_rows_cached);
+    tcase_add_test(tc, test_screening_in_memory);
+    suite_add_tcase(s, tc);
+    sr = srunner_create(s);
+    srunner_set_fork_status(sr, CK_NOFORK); /* the leak checker sees the whole run */
+    srunner_run_all(sr, CK_NORMAL);
+    failed = srunner_ntests_failed(sr);
+    srunner_free(sr);
+    return failed == 0 ? EXIT_SUCCESS : EXIT_FAILURE;
+}
