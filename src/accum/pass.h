@@ -9,9 +9,10 @@
  * every bit of the result) is independent of thread timing, thread count
  * and read size.
  *
- * In memory mode the first IRLS pass keeps each decoded block, and later
- * passes hand the kept blocks to the workers instead of reading the file:
- * the same per-block arithmetic, so the same bits. */
+ * Given a store (accum/store.h), the first pass keeps each decoded block
+ * (or, if that pass could not keep them all, the first IRLS pass does), and
+ * later passes hand the kept blocks to the workers instead of reading the
+ * file: the same per-block arithmetic, so the same bits. */
 #ifndef MR_PASS_H
 #define MR_PASS_H
 

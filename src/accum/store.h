@@ -1,7 +1,7 @@
 /* store.h - decoded blocks kept for the later passes.
  *
  * Decompressing and parsing cost far more than one IRLS step, so the first
- * IRLS pass keeps each decoded block and the later passes replay them:
+ * pass keeps each decoded block and the IRLS passes replay them:
  * in memory (--in-memory, the in-memory reference fit), or by default in
  * a temporary file that is unlinked as soon as it is created, so that it
  * vanishes however the process ends and memory stays flat.  Replayed
