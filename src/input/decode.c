@@ -367,7 +367,16 @@ mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, m
     d->row_bad = 0;
     memset(d->miss, 0, d->cfg->bind->ncol);
     d->rowtext_len = 0;
-    st = mr__tokenize_chunk(&d->tok, c, &sink, d->cfg->display, err);
+    if (c->has_quote) {
+        st = mr__tokenize_chunk(&d->tok, c, &sink, d->cfg->display, err);
+    } else {
+        /* The same splitter as mr__tokenize_chunk, with this file's
+         * callbacks inlined into it. */
+        uint32_t r;
+        for (r = 0; r < c->nrows; r++)
+            mr__plain_row(c->data + c->row_start[r], c->data + c->row_start[r + 1], d->cfg->delim, &sink, r);
+        st = MR_OK;
+    }
     if (st == MR_OK && d->stop && !blk->failed) st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     if (st == MR_OK && blk->patterns && !atomic_load_explicit(d->cfg->collapse_abandoned, memory_order_relaxed))
         check_collapsible(d, blk);

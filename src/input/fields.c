@@ -23,32 +23,6 @@ void mr__tokenizer_release(mr__tokenizer *t)
     t->ready = 0;
 }
 
-static int is_blank(char c, char delim) { return c == ' ' || (c == '\t' && delim != '\t'); }
-
-/* Cells are short, so a byte loop beats memchr's call; cells nobody
- * wants are only counted. */
-static void plain_row(const char *s, const char *e, char delim, const mr__field_sink *sink, uint32_t r)
-{
-    size_t k = 0;
-    if (e > s && e[-1] == '\n') e--;
-    if (e > s && e[-1] == '\r') e--;
-    for (;;) {
-        const char *d = s, *fs = s, *fe;
-        int want = sink->wanted == NULL || (k < sink->nwanted && sink->wanted[k]);
-        while (d < e && *d != delim) d++;
-        if (want) {
-            fe = d;
-            while (fs < fe && is_blank(*fs, delim)) fs++;
-            while (fe > fs && is_blank(fe[-1], delim)) fe--;
-            sink->field(sink->user, k, fs, (size_t)(fe - fs));
-        }
-        k++;
-        if (d == e) break;
-        s = d + 1;
-    }
-    sink->row_end(sink->user, r, k);
-}
-
 typedef struct csv_state {
     const mr__field_sink *sink;
     size_t k;
@@ -94,7 +68,7 @@ mr_status mr__tokenize_chunk(mr__tokenizer *t, const mr__chunk *c, const mr__fie
     uint32_t r;
     if (c->has_quote) return csv_chunk(t, c, sink, display, err);
     for (r = 0; r < c->nrows; r++)
-        plain_row(c->data + c->row_start[r], c->data + c->row_start[r + 1], t->delim, sink, r);
+        mr__plain_row(c->data + c->row_start[r], c->data + c->row_start[r + 1], t->delim, sink, r);
     return MR_OK;
 }
 
