@@ -73,7 +73,7 @@ static void section_model(mr__strbuf *b, const mr_fit *f)
 
 static void section_convergence(mr__strbuf *b, const mr_fit *f)
 {
-    mr__strbuf_printf(b, "fit        %s after %d IRLS passes (%d pass%s over the data%s)\n",
+    mr__strbuf_printf(b, "fit        %s after %d IRLS iterations (%d pass%s over the data%s)\n",
                       f->converged ? "converged" : "NOT CONVERGED", f->iterations, f->passes, f->passes == 1 ? "" : "es",
                       f->in_memory ? ", later passes from memory" : f->cached ? ", later passes from the cache" : "");
     mr__strbuf_printf(b, "           %s %.3g (tolerance %.3g)",
