@@ -239,8 +239,11 @@ static void show_progress(const mr_progress *p, void *user)
         double frac = (double)p->bytes_done / (double)p->bytes_total;
         double eta = frac > 0 ? p->seconds * (1 - frac) / frac : 0;
         fprintf(stderr, "\rpass %d: %5.1f%%  %.0f rows/s  eta %.0f s   ", p->pass, 100 * frac, rate, eta);
-    } else {
+    } else if (p->bytes_done > 0) {
         fprintf(stderr, "\rpass %d: %llu bytes  %.0f rows/s   ", p->pass, (unsigned long long)p->bytes_done, rate);
+    } else {
+        /* A pass over kept columns reads no input bytes. */
+        fprintf(stderr, "\rpass %d: %llu rows  %.0f rows/s   ", p->pass, (unsigned long long)p->rows_done, rate);
     }
     c->progress_shown = 1;
 }
