@@ -40,6 +40,7 @@ typedef struct engine {
     uint64_t next_take;     /* next block a worker may take */
     uint64_t next_combine;  /* next block to add */
     uint64_t emitted;       /* blocks handed over by the reader */
+    uint64_t rows_done;     /* rows in the blocks added so far */
     int reader_done, abort;
     mr_status reader_st;
     mr__error reader_err;
@@ -318,7 +319,7 @@ static void report_progress(engine *e, const slot *s, double t0, double *last, i
     pr.pass = cfg->pass_number;
     pr.bytes_done = s ? s->raw_bytes : (e->src ? mr__source_raw_bytes(e->src) : 0);
     pr.bytes_total = e->src ? mr__source_size(e->src) : 0;
-    pr.rows_done = e->next_combine * (uint64_t)MR__BLOCK_ROWS;
+    pr.rows_done = e->rows_done;
     pr.seconds = t - t0;
     cfg->progress(&pr, cfg->progress_user);
 }
@@ -429,6 +430,7 @@ static mr_status combine_all(engine *e, mr__pass_result *res, double t0, mr__err
             break;
         }
         pthread_mutex_unlock(&e->mu);
+        if (s->use != NULL) e->rows_done += s->use->nread;
         st = add_block(e, s, res, err);
         if (st != MR_OK) return st;
         pthread_mutex_lock(&e->mu);
