@@ -36,15 +36,23 @@ uint64_t mr__patterns_hash(const char *key, size_t len)
     return h ^ (h >> 29);
 }
 
-static uint32_t *find_slot(const mr__pattern_table *t, uint64_t hash, const char *key, size_t len)
+/* A slot holds the entry number + 1 in its low half and the top half of
+ * the hash in its high half, so that probing past other patterns does not
+ * touch their entries (the table is larger than the caches). */
+#define SLOT_ENTRY(s) ((uint32_t)(s))
+#define SLOT_TAG(h) ((h) & 0xffffffff00000000ULL)
+
+static uint64_t *find_slot(const mr__pattern_table *t, uint64_t hash, const char *key, size_t len)
 {
     size_t mask = t->cap - 1, i = (size_t)hash & mask;
     for (;;) {
-        uint32_t *s = &t->slot[i];
+        uint64_t *s = &t->slot[i];
         const mr__pattern *e;
         if (*s == 0) return s;
-        e = &t->ent[*s - 1];
-        if (e->hash == hash && e->key_len == len && memcmp(t->keys + e->key_off, key, len) == 0) return s;
+        if (SLOT_TAG(*s) == SLOT_TAG(hash)) {
+            e = &t->ent[SLOT_ENTRY(*s) - 1];
+            if (e->hash == hash && e->key_len == len && memcmp(t->keys + e->key_off, key, len) == 0) return s;
+        }
         i = (i + 1) & mask;
     }
 }
@@ -52,7 +60,7 @@ static uint32_t *find_slot(const mr__pattern_table *t, uint64_t hash, const char
 static int rehash(mr__pattern_table *t)
 {
     size_t cap = t->cap ? 2 * t->cap : 1024, i;
-    uint32_t *old = t->slot;
+    uint64_t *old = t->slot;
     size_t old_cap = t->cap;
     t->slot = mr__calloc(cap, sizeof *t->slot);
     if (t->slot == NULL) {
@@ -62,7 +70,7 @@ static int rehash(mr__pattern_table *t)
     t->cap = cap;
     for (i = 0; i < old_cap; i++)
         if (old[i]) {
-            const mr__pattern *e = &t->ent[old[i] - 1];
+            const mr__pattern *e = &t->ent[SLOT_ENTRY(old[i]) - 1];
             *find_slot(t, e->hash, t->keys + e->key_off, e->key_len) = old[i];
         }
     mr__free(old);
@@ -72,7 +80,7 @@ static int rehash(mr__pattern_table *t)
 int mr__patterns_add(mr__pattern_table *t, const char *key, size_t len, uint64_t hash, double a, double b,
                      double c, double d)
 {
-    uint32_t *s;
+    uint64_t *s;
     mr__pattern *e;
     if ((t->n + 1) * 2 > t->cap && rehash(t) != 0) return -1;
     s = find_slot(t, hash, key, len);
@@ -87,9 +95,9 @@ int mr__patterns_add(mr__pattern_table *t, const char *key, size_t len, uint64_t
         e->a = e->b = e->c = e->d = 0;
         memcpy(t->keys + t->keys_len, key, len);
         t->keys_len += len;
-        *s = (uint32_t)++t->n;
+        *s = SLOT_TAG(hash) | (uint64_t)(uint32_t)++t->n;
     }
-    e = &t->ent[*s - 1];
+    e = &t->ent[SLOT_ENTRY(*s) - 1];
     e->a += a;
     e->b += b;
     e->c += c;

@@ -38,7 +38,7 @@ typedef struct mr__pattern {
 } mr__pattern;
 
 typedef struct mr__pattern_table {
-    uint32_t *slot; /* entry index + 1; 0 = empty */
+    uint64_t *slot; /* entry index + 1 and a hash tag (patterns.c); 0 = empty */
     size_t cap, n;
     mr__pattern *ent;
     size_t ent_cap;
