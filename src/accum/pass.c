@@ -209,6 +209,7 @@ static mr_status init_slots(engine *e, mr__error *err)
         if (cfg->kind == MR__PASS_SCAN && cfg->dcfg->collapse) {
             s->block.patterns = mr__calloc(1, sizeof *s->block.patterns);
             if (s->block.patterns == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+            s->block.patterns->rows_only = 1;
         }
         if (cfg->kind == MR__PASS_SCAN) MR__TRY(mr__scan_init(&s->scan, b->ncol, b->nnum, err));
         else MR__TRY(mr__sums_init(&s->sums, cfg->p, err));

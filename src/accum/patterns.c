@@ -80,11 +80,13 @@ static int rehash(mr__pattern_table *t)
 int mr__patterns_add(mr__pattern_table *t, const char *key, size_t len, uint64_t hash, double a, double b,
                      double c, double d)
 {
-    uint64_t *s;
+    uint64_t *s = NULL;
     mr__pattern *e;
-    if ((t->n + 1) * 2 > t->cap && rehash(t) != 0) return -1;
-    s = find_slot(t, hash, key, len);
-    if (*s == 0) {
+    if (!t->rows_only) {
+        if ((t->n + 1) * 2 > t->cap && rehash(t) != 0) return -1;
+        s = find_slot(t, hash, key, len);
+    }
+    if (t->rows_only || *s == 0) {
         if (mr__reserve((void **)&t->ent, &t->ent_cap, t->n + 1, sizeof *t->ent) != 0 ||
             mr__reserve((void **)&t->keys, &t->keys_cap, t->keys_len + len + 1, 1) != 0)
             return -1;
@@ -95,7 +97,15 @@ int mr__patterns_add(mr__pattern_table *t, const char *key, size_t len, uint64_t
         e->a = e->b = e->c = e->d = 0;
         memcpy(t->keys + t->keys_len, key, len);
         t->keys_len += len;
-        *s = SLOT_TAG(hash) | (uint64_t)(uint32_t)++t->n;
+        ++t->n;
+        if (t->rows_only) {
+            e->a = a;
+            e->b = b;
+            e->c = c;
+            e->d = d;
+            return 0;
+        }
+        *s = SLOT_TAG(hash) | (uint64_t)(uint32_t)t->n;
     }
     e = &t->ent[SLOT_ENTRY(*s) - 1];
     e->a += a;

@@ -44,6 +44,10 @@ typedef struct mr__pattern_table {
     size_t ent_cap;
     char *keys;
     size_t keys_len, keys_cap;
+    /* 1: a list of rows in order, not a table (a block's rows rarely share
+     * a pattern, so adding them up per block first would only double the
+     * lookups; the merge adds them in order all the same). */
+    int rows_only;
 } mr__pattern_table;
 
 void mr__patterns_init(mr__pattern_table *t);
