@@ -151,7 +151,7 @@ typedef enum mr_int_option {
                                 from a temporary cache file (default 0).
                                 The cache lives in $TMPDIR (default /tmp),
                                 is unlinked at once, and is skipped when it
-                                would take more than half the free space. */
+                                could take more than half the free space. */
     MR_OPT_NO_COLLAPSE = 7   /* 1: never collapse rows into covariate
                                 patterns (default 0: collapse when every
                                 term is a factor or a numeric with few
@@ -163,7 +163,9 @@ typedef enum mr_int_option {
 /* Real-valued options. */
 typedef enum mr_real_option {
     MR_OPT_TOLERANCE = 0,    /* converged when |D_k - D_k-1| / (|D_k| + 0.1)
-                                is below this (default 1e-10)              */
+                                is below this, or when the next Newton step
+                                is predicted to change the deviance by less
+                                than a hundredth of it (default 1e-10)     */
     MR_OPT_LEVEL = 1         /* confidence level of intervals (default 0.95) */
 } mr_real_option;
 
@@ -184,9 +186,10 @@ MR_API mr_status mr_fitter_add_missing(mr_fitter *f, const char *token);
  * when unknown (standard input).  Must not call back into the fitter. */
 typedef struct mr_progress {
     int pass;                  /* 1 = the scan of the data, 2.. = IRLS      */
-    uint64_t bytes_done;       /* input bytes consumed in this pass         */
+    uint64_t bytes_done;       /* input bytes consumed in this pass (0 for a
+                                  pass over kept columns)                   */
     uint64_t bytes_total;      /* size of the input, 0 if unknown           */
-    uint64_t rows_done;        /* data rows seen in this pass               */
+    uint64_t rows_done;        /* rows added up so far in this pass         */
     double seconds;            /* since this pass started                   */
 } mr_progress;
 typedef void (*mr_progress_fn)(const mr_progress *p, void *user);
