@@ -6,7 +6,7 @@ and bench/results/latest.md (the table the README shows).
 
   bench/run.py                   cases A, B, C at 1e6 and 1e7 rows
   BENCH_ROWS=1e5 bench/run.py    a quick smoke (what CI may run)
-  BENCH_ROWS=1e6,1e7,1e8 ...     add 1e8 (about 4 GB of zstd input in $BENCH_DIR)
+  BENCH_ROWS=1e6,1e7,1e8 ...     add 1e8 (about 1.1 GB of zstd input in $BENCH_DIR)
 
 Data come from tools/synth.c (invented, seeded) in $BENCH_DIR (default
 /tmp/millrace-bench); they are never committed.
