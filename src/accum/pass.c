@@ -106,11 +106,20 @@ static mr_status read_stream(engine *e, mr__error *err)
         size_t used;
         MR__TRY(mr__splitter_feed(&e->sp, e->buf + e->pending_off, e->pending_len, &used, on_full_chunk, e, err));
     }
+    /* Decompressed bytes go straight into the chunk being cut, saving a
+     * copy on the thread every other thread waits for.  A read that
+     * completes the chunk leaves its rest in that chunk's buffer, to be
+     * copied into the next chunks; since a row takes at least two bytes,
+     * IN_PLACE_READ bytes complete at most one more chunk, so the buffer
+     * being read from is never claimed again meanwhile (W >= 4 slots). */
+    enum { IN_PLACE_READ = 2 * MR__BLOCK_ROWS };
     for (;;) {
-        size_t got, used;
-        MR__TRY(mr__source_read(e->src, e->buf, e->buf_cap, &got, err));
+        size_t got, used, want = e->buf_cap < IN_PLACE_READ ? e->buf_cap : IN_PLACE_READ;
+        char *at = mr__splitter_reserve(&e->sp, want, err);
+        if (at == NULL) return MR_ERR_NO_MEMORY;
+        MR__TRY(mr__source_read(e->src, at, want, &got, err));
         if (got == 0) break;
-        MR__TRY(mr__splitter_feed(&e->sp, e->buf, got, &used, on_full_chunk, e, err));
+        MR__TRY(mr__splitter_feed(&e->sp, at, got, &used, on_full_chunk, e, err));
     }
     return mr__splitter_finish(&e->sp, on_full_chunk, e, err);
 }

@@ -49,6 +49,12 @@ static mr_status append(mr__splitter *sp, const char *p, size_t n, mr__error *er
     if (*len - start + n > MR__MAX_ROW_BYTES)
         return mr__fail(err, MR_ERR_FORMAT, "%s:%llu: row longer than %u MiB (is this a text file?)",
                         sp->display, (unsigned long long)sp->row_line, MR__MAX_ROW_BYTES >> 20);
+    /* Bytes read straight into the chunk (mr__splitter_reserve) are in
+     * place already; the caller made room for them. */
+    if (*buf != NULL && p == *buf + *len) {
+        *len += n;
+        return MR_OK;
+    }
     if (*len + n > *cap) {
         size_t nc = *cap ? *cap : 65536;
         char *q;
@@ -61,6 +67,24 @@ static mr_status append(mr__splitter *sp, const char *p, size_t n, mr__error *er
     memcpy(*buf + *len, p, n);
     *len += n;
     return MR_OK;
+}
+
+char *mr__splitter_reserve(mr__splitter *sp, size_t n, mr__error *err)
+{
+    mr__chunk *c = sp->cur;
+    if (c->len + n > c->cap) {
+        size_t nc = c->cap ? c->cap : 65536;
+        char *q;
+        while (nc < c->len + n) nc *= 2;
+        q = mr__realloc(c->data, nc);
+        if (q == NULL) {
+            mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+            return NULL;
+        }
+        c->data = q;
+        c->cap = nc;
+    }
+    return c->data + c->len;
 }
 
 /* Only line ends and blanks: skipped, as libcsv would skip it, so that

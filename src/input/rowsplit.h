@@ -40,6 +40,12 @@ void mr__splitter_release(mr__splitter *sp);
  * before data rows arrive. */
 mr_status mr__splitter_feed(mr__splitter *sp, const char *p, size_t n, size_t *used, mr__chunk_sink sink,
                             void *user, mr__error *err);
+/* Room for n more bytes at the end of the current chunk, so that the
+ * caller can read input straight into it and then feed that very range
+ * (which mr__splitter_feed then takes in place, without a copy).  NULL
+ * when out of memory. */
+char *mr__splitter_reserve(mr__splitter *sp, size_t n, mr__error *err);
+
 /* End of input: completes a last row without a newline and hands the last
  * partial chunk to the sink (if it has rows).  An open quote is an error. */
 mr_status mr__splitter_finish(mr__splitter *sp, mr__chunk_sink sink, void *user, mr__error *err);
