@@ -31,7 +31,7 @@ uint64_t mr__patterns_hash(const char *key, size_t len)
         h ^= h >> 32;
     }
     w = 0;
-    memcpy(&w, key + i, len - i);
+    if (len > i) memcpy(&w, key + i, len - i);
     h = (h ^ w) * 0xc4ceb9fe1a85ec53ULL;
     return h ^ (h >> 29);
 }

@@ -263,6 +263,7 @@ static int grow_key(mr__decoder *d, size_t need)
 {
     char *k;
     size_t cap = d->key_cap ? d->key_cap : 256;
+    if (need == 0) need = 1; /* an intercept-only model's key is empty, but never NULL */
     if (need <= d->key_cap) return 0;
     while (cap < need) cap *= 2;
     k = mr__realloc(d->key, cap);
