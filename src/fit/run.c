@@ -127,10 +127,16 @@ static mr_status check_same_input(mr__run *r, const mr__pass_result *res, mr__er
     return MR_OK;
 }
 
-static mr_status open_spool(mr__run *r, mr__error *err)
+/* Where temporary files go: $TMPDIR, else /tmp. */
+static const char *temp_dir(void)
 {
     const char *dir = getenv("TMPDIR");
-    if (dir == NULL || *dir == '\0') dir = "/tmp";
+    return dir != NULL && *dir != '\0' ? dir : "/tmp";
+}
+
+static mr_status open_spool(mr__run *r, mr__error *err)
+{
+    const char *dir = temp_dir();
     snprintf(r->spool, sizeof r->spool, "%s/millrace-stdin-XXXXXX", dir);
     r->spool_fd = mkstemp(r->spool);
     if (r->spool_fd < 0)
@@ -241,7 +247,7 @@ static mr_status settle_scan(mr__run *r, mr__error *err)
  * (default, when the disk has room), or the input again. */
 static mr_status choose_store(mr__run *r, mr__error *err)
 {
-    const char *dir = getenv("TMPDIR");
+    const char *dir = temp_dir();
     struct statvfs fs;
     struct stat in;
     double need = 0, room;
@@ -256,7 +262,6 @@ static mr_status choose_store(mr__run *r, mr__error *err)
     }
     mr__store_init_memory(&r->store);
     if (r->f->no_cache) return MR_OK;
-    if (dir == NULL || *dir == '\0') dir = "/tmp";
     if (statvfs(dir, &fs) != 0) return MR_OK;
     room = (double)fs.f_bavail * (double)fs.f_frsize;
     if (need > room / 2) {
@@ -304,7 +309,7 @@ static mr_status settle_store(mr__run *r, mr__error *err)
             r->use_store = r->cached = 0;
             return MR_OK;
         }
-        if (file) return mr__store_init_file(&r->store, getenv("TMPDIR") && *getenv("TMPDIR") ? getenv("TMPDIR") : "/tmp", err);
+        if (file) return mr__store_init_file(&r->store, temp_dir(), err);
         mr__store_init_memory(&r->store);
         return MR_OK;
     }
@@ -607,8 +612,6 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
     return MR_OK;
 }
 
-static void warm_start_from_sample(mr__run *r);
-
 /* ---- the warm start ---------------------------------------------------- */
 
 static mr_status decode_sample(mr__run *r, mr__store *sample, mr__error *err)
@@ -635,12 +638,6 @@ static mr_status decode_sample(mr__run *r, mr__store *sample, mr__error *err)
  * the sample just means a cold start. */
 static void warm_start(mr__run *r)
 {
-    if (r->collapsed) return;
-    warm_start_from_sample(r);
-}
-
-static void warm_start_from_sample(mr__run *r)
-{
     mr__store sample;
     mr__pass_result res;
     mr__error scratch;
@@ -653,7 +650,7 @@ static void warm_start_from_sample(mr__run *r)
     job.tolerance = 1e-8;
     job.max_iterations = 25;
     job.beta_out = r->beta_warm;
-    if (!whole_file && r->first.nsample >= 4 && decode_sample(r, &sample, &scratch) == MR_OK &&
+    if (!r->collapsed && !whole_file && r->first.nsample >= 4 && decode_sample(r, &sample, &scratch) == MR_OK &&
         iterate(r, &job, &res, &scratch) == MR_OK && job.converged)
         r->warm = 1;
     r->warm_iterations = job.iterations;
