@@ -334,6 +334,19 @@ static void report_progress(engine *e, const slot *s, double t0, double *last, i
     cfg->progress(&pr, cfg->progress_user);
 }
 
+static void free_sample_chunk(mr__chunk *c)
+{
+    if (c == NULL) return;
+    mr__free(c->data);
+    mr__free(c);
+}
+
+void mr__pass_result_drop_sample(mr__pass_result *res, size_t i)
+{
+    free_sample_chunk(res->sample[i]);
+    res->sample[i] = NULL;
+}
+
 /* Keeps every stride-th block; when the sample is full, every other kept
  * block goes and the stride doubles.  Only block numbers decide, so the
  * sample is the same whatever the threads or read size. */
@@ -347,8 +360,7 @@ static mr_status keep_sample(mr__pass_result *res, const mr__chunk *c, mr__error
             if (res->sample[i]->index % (2 * res->sample_stride) == 0) {
                 res->sample[k++] = res->sample[i];
             } else {
-                mr__free(res->sample[i]->data);
-                mr__free(res->sample[i]);
+                free_sample_chunk(res->sample[i]);
             }
         }
         res->nsample = k;
@@ -551,10 +563,7 @@ void mr__pass_result_release(mr__pass_result *res, size_t nfac)
         mr__free(res->worker_levels[i]);
     }
     mr__free(res->worker_levels);
-    for (i = 0; i < res->nsample; i++) {
-        mr__free(res->sample[i]->data);
-        mr__free(res->sample[i]);
-    }
+    for (i = 0; i < res->nsample; i++) free_sample_chunk(res->sample[i]);
     mr__free(res->sample);
     mr__patterns_release(&res->patterns);
     mr__scan_release(&res->scan);

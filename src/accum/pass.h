@@ -78,5 +78,7 @@ typedef struct mr__pass_result {
 
 mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error *err);
 void mr__pass_result_release(mr__pass_result *res, size_t nfac);
+/* Frees sample block I early (once decoded, its text is not needed). */
+void mr__pass_result_drop_sample(mr__pass_result *res, size_t i);
 
 #endif

@@ -627,6 +627,9 @@ static mr_status decode_sample(mr__run *r, mr__store *sample, mr__error *err)
         if (st == MR_OK && blk.failed) st = mr__fail(err, MR_ERR_INTERNAL, "sample block did not decode");
         if (st == MR_OK) st = mr__store_keep(sample, &blk, &r->bind, err);
         mr__block_release(&blk);
+        /* the text goes as its rows arrive, so text and rows are never
+         * both held whole: memory stays near that of one form */
+        mr__pass_result_drop_sample(&r->first, i);
     }
     mr__decoder_release(&dec);
     return st;
@@ -642,6 +645,7 @@ static void warm_start(mr__run *r)
     mr__pass_result res;
     mr__error scratch;
     irls_job job;
+    size_t i;
     int whole_file = r->first.sample_stride == 1;
     mr__store_init_memory(&sample);
     memset(&res, 0, sizeof res);
@@ -656,6 +660,7 @@ static void warm_start(mr__run *r)
     r->warm_iterations = job.iterations;
     mr__pass_result_release(&res, 0);
     mr__store_release(&sample);
+    for (i = 0; i < r->first.nsample; i++) mr__pass_result_drop_sample(&r->first, i);
 }
 
 static mr_status fit_data(mr__run *r, mr__error *err)
