@@ -217,8 +217,8 @@ static mr_status init_slots(engine *e, mr__error *err)
         MR__TRY(mr__block_init(&s->block, b, err));
         if (cfg->kind == MR__PASS_SCAN && cfg->dcfg->collapse) {
             s->block.patterns = mr__calloc(1, sizeof *s->block.patterns);
-            if (s->block.patterns == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-            s->block.patterns->rows_only = 1;
+            if (s->block.patterns == NULL || mr__pattern_rows_init(s->block.patterns, b->nfac + b->nnum) != 0)
+                return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
         }
         if (cfg->kind == MR__PASS_SCAN) MR__TRY(mr__scan_init(&s->scan, b->ncol, b->nnum, err));
         else MR__TRY(mr__sums_init(&s->sums, cfg->p, err));
@@ -383,14 +383,15 @@ static mr_status keep_sample(mr__pass_result *res, const mr__chunk *c, mr__error
 
 /* Too many patterns, or no memory for them: fall back to passes over the
  * rows (the fit is the same, only slower). */
-static void merge_patterns(const mr__pass_cfg *cfg, mr__pass_result *res, const mr__pattern_table *blk)
+static void merge_patterns(const mr__pass_cfg *cfg, mr__pass_result *res, const mr__block *blk)
 {
-    if (blk != NULL && !atomic_load(cfg->dcfg->collapse_abandoned) && mr__patterns_merge(&res->patterns, blk) == 0 &&
-        res->patterns.n <= MR__MAX_PATTERNS)
+    if (blk != NULL && !atomic_load(cfg->dcfg->collapse_abandoned) &&
+        mr__pattern_merge_add(&res->patterns, blk->worker, blk->patterns) == 0 &&
+        res->patterns.table.n <= MR__MAX_PATTERNS)
         return;
     atomic_store(cfg->dcfg->collapse_abandoned, 1);
     res->collapsed = 0;
-    mr__patterns_release(&res->patterns);
+    mr__pattern_merge_release(&res->patterns);
 }
 
 /* The first pass keeps its decoded blocks for the IRLS passes unless the
@@ -399,7 +400,7 @@ static void merge_patterns(const mr__pass_cfg *cfg, mr__pass_result *res, const 
  * incomplete and the first IRLS pass decodes the file again. */
 static mr_status keep_scanned(const mr__pass_cfg *cfg, mr__pass_result *res, mr__block *blk, mr__error *err)
 {
-    mr__pattern_table *patterns = blk->patterns;
+    mr__pattern_rows *patterns = blk->patterns;
     mr_status st;
     if (res->collapsed || res->store_incomplete) {
         res->store_incomplete = 1;
@@ -425,7 +426,7 @@ static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *
     }
     if (cfg->kind == MR__PASS_SCAN) {
         mr__scan_add(&res->scan, &s->scan, cfg->dcfg->bind->ncol, cfg->dcfg->bind->nnum);
-        if (res->collapsed) merge_patterns(cfg, res, s->block.patterns);
+        if (res->collapsed) merge_patterns(cfg, res, &s->block);
         if (cfg->store) MR__TRY(keep_scanned(cfg, res, &s->block, err));
         return keep_sample(res, s->chunk, err);
     }
@@ -537,6 +538,10 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     if (st == MR_OK) st = (cfg->store && !cfg->store_fill) ? init_slots(&e, err) : begin_stream(&e, err);
     if (st == MR_OK && cfg->kind == MR__PASS_SCAN)
         st = mr__scan_init(&res->scan, cfg->dcfg->bind->ncol, cfg->dcfg->bind->nnum, err);
+    /* the columns are bound now that the header is read */
+    if (st == MR_OK && res->collapsed &&
+        mr__pattern_merge_init(&res->patterns, cfg->dcfg->bind->nfac + cfg->dcfg->bind->nnum, e.nworkers) != 0)
+        st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     if (st == MR_OK) st = start_workers(&e, err);
     if (st == MR_OK) {
         if (pthread_create(&e.reader, NULL, reader_main, &e) != 0)
@@ -565,7 +570,7 @@ void mr__pass_result_release(mr__pass_result *res, size_t nfac)
     mr__free(res->worker_levels);
     for (i = 0; i < res->nsample; i++) free_sample_chunk(res->sample[i]);
     mr__free(res->sample);
-    mr__patterns_release(&res->patterns);
+    mr__pattern_merge_release(&res->patterns);
     mr__scan_release(&res->scan);
     mr__sums_release(&res->sums);
     memset(res, 0, sizeof *res);

@@ -68,7 +68,7 @@ typedef struct mr__pass_result {
     uint64_t sample_stride;
     /* First pass with collapsing: the file's covariate patterns, merged in
      * block order; `collapsed` is 0 when collapsing was given up. */
-    mr__pattern_table patterns;
+    mr__pattern_merge patterns;
     int collapsed;
     /* First pass with a store: 1 when some blocks were not kept. */
     int store_incomplete;

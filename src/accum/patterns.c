@@ -2,56 +2,115 @@
 
 #include "accum/patterns.h"
 #include "common/alloc.h"
+#include "input/chunk.h"
 
-void mr__patterns_init(mr__pattern_table *t) { memset(t, 0, sizeof *t); }
+/* ---- a block's rows (workers) ------------------------------------------ */
 
-void mr__patterns_release(mr__pattern_table *t)
+int mr__pattern_rows_init(mr__pattern_rows *r, size_t nkey)
+{
+    memset(r, 0, sizeof *r);
+    r->nkey = nkey;
+    r->ids = mr__malloc_array((size_t)MR__BLOCK_ROWS * (nkey ? nkey : 1), sizeof *r->ids);
+    r->sums = mr__malloc_array((size_t)MR__BLOCK_ROWS * MR__PATTERN_SUMS, sizeof *r->sums);
+    r->from = mr__calloc(nkey + 1, sizeof *r->from);
+    r->to = mr__calloc(nkey + 1, sizeof *r->to);
+    if (r->ids && r->sums && r->from && r->to) return 0;
+    mr__pattern_rows_release(r);
+    return -1;
+}
+
+void mr__pattern_rows_release(mr__pattern_rows *r)
+{
+    mr__free(r->ids);
+    mr__free(r->sums);
+    mr__free(r->from);
+    mr__free(r->to);
+    mr__free(r->text);
+    memset(r, 0, sizeof *r);
+}
+
+void mr__pattern_rows_begin(mr__pattern_rows *r, const mr__levelset *const *sets)
+{
+    size_t k;
+    r->n = 0;
+    r->text_len = 0;
+    for (k = 0; k < r->nkey; k++) r->from[k] = r->to[k] = (uint32_t)sets[k]->n;
+}
+
+int mr__pattern_rows_end(mr__pattern_rows *r, const mr__levelset *const *sets)
+{
+    size_t k, id;
+    for (k = 0; k < r->nkey; k++) {
+        r->to[k] = (uint32_t)sets[k]->n;
+        for (id = r->from[k]; id < r->to[k]; id++) {
+            const mr__level_name *v = &sets[k]->name[id];
+            if (mr__reserve((void **)&r->text, &r->text_cap, r->text_len + sizeof v->len + v->len, 1) != 0) return -1;
+            memcpy(r->text + r->text_len, &v->len, sizeof v->len);
+            memcpy(r->text + r->text_len + sizeof v->len, v->str, v->len);
+            r->text_len += sizeof v->len + v->len;
+        }
+    }
+    return 0;
+}
+
+/* ---- the table of distinct patterns ------------------------------------- */
+
+static void table_init(mr__pattern_table *t, size_t nkey)
+{
+    memset(t, 0, sizeof *t);
+    t->nkey = nkey;
+    t->kwords = (nkey + 1) / 2;
+    t->stride = MR__PATTERN_SUMS + t->kwords;
+}
+
+static void table_release(mr__pattern_table *t)
 {
     mr__free(t->slot);
-    mr__free(t->ent);
-    mr__free(t->keys);
-    mr__patterns_init(t);
+    mr__free(t->rec);
+    table_init(t, t->nkey);
 }
 
-void mr__patterns_clear(mr__pattern_table *t)
+static uint64_t *record(const mr__pattern_table *t, size_t i) { return t->rec + i * t->stride; }
+
+void mr__pattern_sums(const mr__pattern_table *t, size_t i, double out[MR__PATTERN_SUMS])
 {
-    if (t->slot) memset(t->slot, 0, t->cap * sizeof *t->slot);
-    t->n = 0;
-    t->keys_len = 0;
+    memcpy(out, record(t, i), MR__PATTERN_SUMS * sizeof *out);
 }
 
-/* Eight bytes a step: keys are a few dozen bytes and hashed once a row. */
-uint64_t mr__patterns_hash(const char *key, size_t len)
+uint32_t mr__pattern_id(const mr__pattern_table *t, size_t i, size_t k)
 {
-    uint64_t h = 0x9e3779b97f4a7c15ULL ^ len, w;
-    size_t i = 0;
-    for (; i + 8 <= len; i += 8) {
-        memcpy(&w, key + i, 8);
-        h = (h ^ w) * 0xff51afd7ed558ccdULL;
+    return (uint32_t)(record(t, i)[MR__PATTERN_SUMS + k / 2] >> (32 * (k & 1)));
+}
+
+static uint64_t hash_key(const uint64_t *key, size_t n)
+{
+    uint64_t h = 0x9e3779b97f4a7c15ULL;
+    size_t i;
+    for (i = 0; i < n; i++) {
+        h = (h ^ key[i]) * 0xff51afd7ed558ccdULL;
         h ^= h >> 32;
     }
-    w = 0;
-    if (len > i) memcpy(&w, key + i, len - i);
-    h = (h ^ w) * 0xc4ceb9fe1a85ec53ULL;
-    return h ^ (h >> 29);
+    /* keys are small numbers: mix every bit into the low ones the table uses */
+    h = (h ^ (h >> 33)) * 0xc4ceb9fe1a85ec53ULL;
+    return h ^ (h >> 33);
 }
 
-/* A slot holds the entry number + 1 in its low half and the top half of
- * the hash in its high half, so that probing past other patterns does not
- * touch their entries (the table is larger than the caches). */
-#define SLOT_ENTRY(s) ((uint32_t)(s))
+/* A slot holds the record number + 1 in its low half and the top half of
+ * the hash in its high half, so that probing past other patterns seldom
+ * touches their records (the table is larger than the caches). */
+#define SLOT_RECORD(s) ((uint32_t)(s))
 #define SLOT_TAG(h) ((h) & 0xffffffff00000000ULL)
 
-static uint64_t *find_slot(const mr__pattern_table *t, uint64_t hash, const char *key, size_t len)
+static uint64_t *find_slot(const mr__pattern_table *t, uint64_t hash, const uint64_t *key)
 {
-    size_t mask = t->cap - 1, i = (size_t)hash & mask;
+    size_t mask = t->cap - 1, i = (size_t)hash & mask, w;
     for (;;) {
         uint64_t *s = &t->slot[i];
-        const mr__pattern *e;
         if (*s == 0) return s;
         if (SLOT_TAG(*s) == SLOT_TAG(hash)) {
-            e = &t->ent[SLOT_ENTRY(*s) - 1];
-            if (e->hash == hash && e->key_len == len && memcmp(t->keys + e->key_off, key, len) == 0) return s;
+            const uint64_t *k = record(t, SLOT_RECORD(*s) - 1) + MR__PATTERN_SUMS;
+            for (w = 0; w < t->kwords && k[w] == key[w]; w++) continue;
+            if (w == t->kwords) return s;
         }
         i = (i + 1) & mask;
     }
@@ -70,58 +129,119 @@ static int rehash(mr__pattern_table *t)
     t->cap = cap;
     for (i = 0; i < old_cap; i++)
         if (old[i]) {
-            const mr__pattern *e = &t->ent[SLOT_ENTRY(old[i]) - 1];
-            *find_slot(t, e->hash, t->keys + e->key_off, e->key_len) = old[i];
+            const uint64_t *k = record(t, SLOT_RECORD(old[i]) - 1) + MR__PATTERN_SUMS;
+            *find_slot(t, hash_key(k, t->kwords), k) = old[i];
         }
     mr__free(old);
     return 0;
 }
 
-int mr__patterns_add(mr__pattern_table *t, const char *key, size_t len, uint64_t hash, double a, double b,
-                     double c, double d)
+static int table_add(mr__pattern_table *t, const uint64_t *key, uint64_t hash, const double *sums)
 {
-    uint64_t *s = NULL;
-    mr__pattern *e;
-    if (!t->rows_only) {
-        if ((t->n + 1) * 2 > t->cap && rehash(t) != 0) return -1;
-        s = find_slot(t, hash, key, len);
+    uint64_t *s, *rec;
+    double acc[MR__PATTERN_SUMS];
+    size_t j;
+    if ((t->n + 1) * 2 > t->cap && rehash(t) != 0) return -1;
+    s = find_slot(t, hash, key);
+    if (*s == 0) {
+        if (mr__reserve((void **)&t->rec, &t->rec_cap, (t->n + 1) * t->stride, sizeof *t->rec) != 0) return -1;
+        rec = record(t, t->n);
+        memset(rec, 0, MR__PATTERN_SUMS * sizeof *rec); /* all bits zero is +0.0 */
+        memcpy(rec + MR__PATTERN_SUMS, key, t->kwords * sizeof *key);
+        *s = SLOT_TAG(hash) | (uint64_t)(uint32_t)++t->n;
     }
-    if (t->rows_only || *s == 0) {
-        if (mr__reserve((void **)&t->ent, &t->ent_cap, t->n + 1, sizeof *t->ent) != 0 ||
-            mr__reserve((void **)&t->keys, &t->keys_cap, t->keys_len + len + 1, 1) != 0)
-            return -1;
-        e = &t->ent[t->n];
-        e->hash = hash;
-        e->key_off = (uint32_t)t->keys_len;
-        e->key_len = (uint32_t)len;
-        e->a = e->b = e->c = e->d = 0;
-        memcpy(t->keys + t->keys_len, key, len);
-        t->keys_len += len;
-        ++t->n;
-        if (t->rows_only) {
-            e->a = a;
-            e->b = b;
-            e->c = c;
-            e->d = d;
-            return 0;
-        }
-        *s = SLOT_TAG(hash) | (uint64_t)(uint32_t)t->n;
-    }
-    e = &t->ent[SLOT_ENTRY(*s) - 1];
-    e->a += a;
-    e->b += b;
-    e->c += c;
-    e->d += d;
+    rec = record(t, SLOT_RECORD(*s) - 1);
+    memcpy(acc, rec, sizeof acc);
+    for (j = 0; j < MR__PATTERN_SUMS; j++) acc[j] += sums[j];
+    memcpy(rec, acc, sizeof acc);
     return 0;
 }
 
-int mr__patterns_merge(mr__pattern_table *into, const mr__pattern_table *from)
+/* ---- the merge (calling thread) ---------------------------------------- */
+
+int mr__pattern_merge_init(mr__pattern_merge *m, size_t nkey, size_t nworkers)
+{
+    size_t k;
+    memset(m, 0, sizeof *m);
+    m->nkey = nkey;
+    m->nworkers = nworkers;
+    table_init(&m->table, nkey);
+    m->values = mr__calloc(nkey + 1, sizeof *m->values);
+    m->map = mr__calloc(nworkers * nkey + 1, sizeof *m->map);
+    m->map_cap = mr__calloc(nworkers * nkey + 1, sizeof *m->map_cap);
+    m->key = mr__calloc((size_t)MR__BLOCK_ROWS * m->table.kwords + 1, sizeof *m->key);
+    m->hash = mr__calloc(MR__BLOCK_ROWS, sizeof *m->hash);
+    if (!m->values || !m->map || !m->map_cap || !m->key || !m->hash) {
+        mr__pattern_merge_release(m);
+        return -1;
+    }
+    for (k = 0; k < nkey; k++) mr__levelset_init(&m->values[k]);
+    return 0;
+}
+
+void mr__pattern_merge_release(mr__pattern_merge *m)
 {
     size_t i;
-    for (i = 0; i < from->n; i++) {
-        const mr__pattern *e = &from->ent[i];
-        if (mr__patterns_add(into, from->keys + e->key_off, e->key_len, e->hash, e->a, e->b, e->c, e->d) != 0)
+    for (i = 0; m->values && i < m->nkey; i++) mr__levelset_release(&m->values[i]);
+    for (i = 0; m->map && i < m->nworkers * m->nkey; i++) mr__free(m->map[i]);
+    mr__free(m->values);
+    mr__free(m->map);
+    mr__free(m->map_cap);
+    mr__free(m->key);
+    mr__free(m->hash);
+    table_release(&m->table);
+    memset(m, 0, sizeof *m);
+}
+
+/* Gives the worker's newly met values their global numbers. */
+static int learn_values(mr__pattern_merge *m, int32_t worker, const mr__pattern_rows *rows)
+{
+    size_t k, o = 0, id;
+    for (k = 0; k < m->nkey; k++) {
+        size_t at = (size_t)worker * m->nkey + k;
+        if (rows->to[k] > rows->from[k] &&
+            mr__reserve((void **)&m->map[at], &m->map_cap[at], rows->to[k], sizeof *m->map[at]) != 0)
             return -1;
+        for (id = rows->from[k]; id < rows->to[k]; id++) {
+            uint32_t len;
+            memcpy(&len, rows->text + o, sizeof len);
+            if (mr__levelset_add(&m->values[k], rows->text + o + sizeof len, len, &m->map[at][id]) != 0) return -1;
+            o += sizeof len + len;
+        }
+    }
+    return 0;
+}
+
+/* The table is larger than the caches, so a row's slot and record are
+ * fetched well before the row is added. */
+enum { SLOT_AHEAD = 16, RECORD_AHEAD = 8 };
+
+static void prefetch_ahead(const mr__pattern_table *t, const uint64_t *hash, size_t i, size_t n)
+{
+    size_t mask = t->cap - 1;
+    if (i + SLOT_AHEAD < n) __builtin_prefetch(&t->slot[hash[i + SLOT_AHEAD] & mask]);
+    if (i + RECORD_AHEAD < n) {
+        uint64_t s = t->slot[hash[i + RECORD_AHEAD] & mask];
+        if (s != 0) __builtin_prefetch(record(t, SLOT_RECORD(s) - 1) + MR__PATTERN_SUMS);
+    }
+}
+
+int mr__pattern_merge_add(mr__pattern_merge *m, int32_t worker, const mr__pattern_rows *rows)
+{
+    int32_t *const *map = m->map + (size_t)worker * m->nkey;
+    size_t i, k, kw = m->table.kwords;
+    if (learn_values(m, worker, rows) != 0) return -1;
+    for (i = 0; i < rows->n; i++) {
+        const uint32_t *own = rows->ids + i * m->nkey;
+        uint64_t *key = m->key + i * kw;
+        memset(key, 0, kw * sizeof *key);
+        for (k = 0; k < m->nkey; k++) key[k / 2] |= (uint64_t)(uint32_t)map[k][own[k]] << (32 * (k & 1));
+        m->hash[i] = hash_key(key, kw);
+    }
+    if (m->table.cap == 0 && rehash(&m->table) != 0) return -1;
+    for (i = 0; i < rows->n; i++) {
+        prefetch_ahead(&m->table, m->hash, i, rows->n);
+        if (table_add(&m->table, m->key + i * kw, m->hash[i], rows->sums + i * MR__PATTERN_SUMS) != 0) return -1;
     }
     return 0;
 }

@@ -3,10 +3,16 @@
  * When every term is a factor or a numeric with few distinct values, rows
  * with the same covariate values share one fitted mean, and the IRLS sums
  * depend on their outcomes only through a few totals.  The first pass then
- * reduces the file to its distinct patterns (built per block and merged in
- * block order, so the totals are the same bits for any thread count), and
- * IRLS runs in memory on the patterns: one read of the file for the whole
- * fit.
+ * reduces the file to its distinct patterns, and IRLS runs in memory on the
+ * patterns: one read of the file for the whole fit.
+ *
+ * A pattern's key is one small number per key column (each factor, then
+ * each numeric), not its text: hashing and comparing a few words is what
+ * keeps the merge cheap.  A worker numbers the values it meets its own way
+ * and lists, with each block, the values it met first in that block; the
+ * calling thread merges blocks in block order and renumbers every value by
+ * its first appearance in that order.  So pattern order, the global
+ * numbers and every sum are the same bits for any thread count.
  *
  * Two forms, chosen before the read:
  *  - no offset, any family: a pattern is one row with prior weight
@@ -15,52 +21,75 @@
  *    Y = sum w y, exposure E = sum w exp(offset), prior weight 1.
  * Either way the deviance of the rows differs from that of the patterns by
  * a constant (the deviance within patterns), and the Pearson statistic by
- * a term per pattern divided by V(mu); both are kept (see mr__pattern). */
+ * a term per pattern divided by V(mu); both are kept (see MR__PATTERN_*). */
 #ifndef MR_PATTERNS_H
 #define MR_PATTERNS_H
 
 #include <stddef.h>
 #include <stdint.h>
-#include "common/error.h"
+#include "model/levels.h"
 
 #define MR__MAX_PATTERNS 250000
 /* A numeric with more distinct values than this in one block is taken
  * as continuous: collapsing would only make a copy of the file. */
 #define MR__COLLAPSE_MAX_DISTINCT 256
 
-typedef struct mr__pattern {
-    uint64_t hash;
-    uint32_t key_off, key_len;
-    /* no offset: a = sum w, b = sum w y, c = sum w y^2, d = sum w h(y)
-     * offset:    a = sum w e^o, b = sum w y, c = sum w y^2 e^-o,
-     *            d = sum w (y log y - y o) */
-    double a, b, c, d;
-} mr__pattern;
+/* The four sums of a pattern (or of one row):
+ *   no offset: a = sum w, b = sum w y, c = sum w y^2, d = sum w h(y)
+ *   offset:    a = sum w e^o, b = sum w y, c = sum w y^2 e^-o,
+ *              d = sum w (y log y - y o) */
+enum { MR__PATTERN_A, MR__PATTERN_B, MR__PATTERN_C, MR__PATTERN_D, MR__PATTERN_SUMS };
 
+/* One block's rows as a worker leaves them for the merge. */
+typedef struct mr__pattern_rows {
+    size_t nkey, n;
+    uint32_t *ids; /* row i, key column k: ids[i * nkey + k], the worker's numbers */
+    double *sums;  /* row i: sums[i * MR__PATTERN_SUMS + ...] */
+    /* Key column k's values first met in this block have the worker's
+     * numbers from[k] .. to[k] - 1; their bytes follow one another in
+     * text, each as a uint32_t length and the bytes. */
+    uint32_t *from, *to;
+    char *text;
+    size_t text_len, text_cap;
+} mr__pattern_rows;
+
+/* Rows for one block of MR__BLOCK_ROWS rows.  -1 when out of memory. */
+int mr__pattern_rows_init(mr__pattern_rows *r, size_t nkey);
+void mr__pattern_rows_release(mr__pattern_rows *r);
+/* Starts a block: notes where each worker set stands (sets[k] numbers key
+ * column k). */
+void mr__pattern_rows_begin(mr__pattern_rows *r, const mr__levelset *const *sets);
+/* Ends a block: lists the values the sets gained.  -1 when out of memory. */
+int mr__pattern_rows_end(mr__pattern_rows *r, const mr__levelset *const *sets);
+
+/* The distinct patterns, in order of first appearance.  A record is the
+ * four sums and the key's global numbers packed two to a 64-bit word. */
 typedef struct mr__pattern_table {
-    uint64_t *slot; /* entry index + 1 and a hash tag (patterns.c); 0 = empty */
+    size_t nkey, kwords, stride; /* stride = MR__PATTERN_SUMS + kwords words */
+    uint64_t *slot;              /* hash tag | record + 1; 0 = empty */
     size_t cap, n;
-    mr__pattern *ent;
-    size_t ent_cap;
-    char *keys;
-    size_t keys_len, keys_cap;
-    /* 1: a list of rows in order, not a table (a block's rows rarely share
-     * a pattern, so adding them up per block first would only double the
-     * lookups; the merge adds them in order all the same). */
-    int rows_only;
+    uint64_t *rec;
+    size_t rec_cap;              /* in words */
 } mr__pattern_table;
 
-void mr__patterns_init(mr__pattern_table *t);
-void mr__patterns_release(mr__pattern_table *t);
-void mr__patterns_clear(mr__pattern_table *t);
+/* Pattern i's sums, and the global number of its key column k. */
+void mr__pattern_sums(const mr__pattern_table *t, size_t i, double out[MR__PATTERN_SUMS]);
+uint32_t mr__pattern_id(const mr__pattern_table *t, size_t i, size_t k);
 
-uint64_t mr__patterns_hash(const char *key, size_t len);
-/* Adds the statistics to the pattern `key`, creating it after the others
- * if new.  Returns 0, or -1 when out of memory. */
-int mr__patterns_add(mr__pattern_table *t, const char *key, size_t len, uint64_t hash, double a, double b,
-                     double c, double d);
-/* into += from, entry by entry in from's order.  -1 when out of memory. */
-int mr__patterns_merge(mr__pattern_table *into, const mr__pattern_table *from);
+/* The merge on the calling thread. */
+typedef struct mr__pattern_merge {
+    size_t nkey, nworkers;
+    mr__levelset *values; /* per key column, numbered by first appearance */
+    int32_t **map;        /* [worker * nkey + k]: worker's number -> global */
+    size_t *map_cap;
+    uint64_t *key, *hash; /* scratch: a block's packed keys and their hashes */
+    mr__pattern_table table;
+} mr__pattern_merge;
+
+int mr__pattern_merge_init(mr__pattern_merge *m, size_t nkey, size_t nworkers);
+void mr__pattern_merge_release(mr__pattern_merge *m);
+/* Adds a block's rows from `worker`, in row order.  -1 when out of memory. */
+int mr__pattern_merge_add(mr__pattern_merge *m, int32_t worker, const mr__pattern_rows *rows);
 
 /* 1 if x[0..n) holds at most `limit` distinct values (limit < 1024). */
 int mr__few_distinct(const double *x, size_t n, size_t limit);

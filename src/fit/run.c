@@ -338,56 +338,93 @@ static mr_status new_pattern_block(mr__run *r, mr__block *blk, mr__error *err)
     return MR_OK;
 }
 
-/* The covariates of a pattern from its key (decode.c, pattern_key). */
-static mr_status pattern_covariates(mr__run *r, const char *key, mr__block *blk, uint32_t i, mr__error *err)
+/* For each key column, global value number -> what a row holds: the
+ * shared sorted level number of a factor, the value of a numeric. */
+typedef struct pattern_values {
+    int32_t **level;
+    double **value;
+} pattern_values;
+
+static void release_pattern_values(pattern_values *v, size_t nfac, size_t nnum)
 {
-    size_t k, o = 0;
-    for (k = 0; k < r->bind.nfac; k++) {
-        uint32_t n;
-        int32_t id;
-        memcpy(&n, key + o, sizeof n);
-        id = mr__levelset_find(&r->levels[k], key + o + sizeof n, n);
-        if (id < 0) return mr__fail(err, MR_ERR_INTERNAL, "a pattern names an unknown level");
-        blk->lev[k * MR__BLOCK_ROWS + i] = id;
-        o += sizeof n + n;
+    size_t k;
+    for (k = 0; v->level && k < nfac; k++) mr__free(v->level[k]);
+    for (k = 0; v->value && k < nnum; k++) mr__free(v->value[k]);
+    mr__free(v->level);
+    mr__free(v->value);
+}
+
+static mr_status resolve_pattern_values(const mr__run *r, pattern_values *v, mr__error *err)
+{
+    const mr__pattern_merge *m = &r->first.patterns;
+    size_t k, j, nfac = r->bind.nfac;
+    v->level = mr__calloc(nfac + 1, sizeof *v->level);
+    v->value = mr__calloc(r->bind.nnum + 1, sizeof *v->value);
+    if (v->level == NULL || v->value == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (k = 0; k < m->nkey; k++) {
+        const mr__levelset *set = &m->values[k];
+        if (k < nfac) v->level[k] = mr__malloc_array(set->n + 1, sizeof **v->level);
+        else v->value[k - nfac] = mr__malloc_array(set->n + 1, sizeof **v->value);
+        if (k < nfac ? v->level[k] == NULL : v->value[k - nfac] == NULL)
+            return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        for (j = 0; j < set->n; j++) {
+            const mr__level_name *name = &set->name[j];
+            if (k >= nfac) {
+                memcpy(&v->value[k - nfac][j], name->str, sizeof(double));
+                continue;
+            }
+            v->level[k][j] = mr__levelset_find(&r->levels[k], name->str, name->len);
+            if (v->level[k][j] < 0) return mr__fail(err, MR_ERR_INTERNAL, "a pattern names an unknown level");
+        }
     }
-    for (k = 0; k < r->bind.nnum; k++, o += sizeof(double))
-        memcpy(&blk->num[k * MR__BLOCK_ROWS + i], key + o, sizeof(double));
     return MR_OK;
 }
 
-/* One pattern as one row, and what the rows add beyond it. */
-static void pattern_row(mr__run *r, const mr__pattern *pt, mr__block *blk, uint32_t i)
+static void pattern_covariates(const mr__run *r, const pattern_values *v, size_t e, mr__block *blk, uint32_t i)
 {
+    const mr__pattern_table *t = &r->first.patterns.table;
+    size_t k, nfac = r->bind.nfac;
+    for (k = 0; k < nfac; k++) blk->lev[k * MR__BLOCK_ROWS + i] = v->level[k][mr__pattern_id(t, e, k)];
+    for (k = 0; k < r->bind.nnum; k++) blk->num[k * MR__BLOCK_ROWS + i] = v->value[k][mr__pattern_id(t, e, nfac + k)];
+}
+
+/* One pattern as one row, and what the rows add beyond it. */
+static void pattern_row(mr__run *r, const double *pt, mr__block *blk, uint32_t i)
+{
+    double a = pt[MR__PATTERN_A], b = pt[MR__PATTERN_B], c = pt[MR__PATTERN_C], d = pt[MR__PATTERN_D];
     if (r->dcfg.collapse == 1) {
-        double ybar = pt->b / pt->a;
+        double ybar = b / a;
         blk->y[i] = ybar;
-        blk->prior[i] = pt->a;
-        blk->extra[i] = pt->c - pt->b * ybar;
-        r->within_deviance += 2 * (pt->d - pt->a * mr__family_saturated_term(r->f->spec.family, ybar));
+        blk->prior[i] = a;
+        blk->extra[i] = c - b * ybar;
+        r->within_deviance += 2 * (d - a * mr__family_saturated_term(r->f->spec.family, ybar));
     } else {
-        blk->y[i] = pt->b;
+        blk->y[i] = b;
         blk->prior[i] = 1.0;
-        blk->off[i] = log(pt->a);
-        blk->extra[i] = pt->c * pt->a - pt->b * pt->b;
-        r->within_deviance += 2 * (pt->d - (pt->b > 0 ? pt->b * log(pt->b / pt->a) : 0.0));
+        blk->off[i] = log(a);
+        blk->extra[i] = c * a - b * b;
+        r->within_deviance += 2 * (d - (b > 0 ? b * log(b / a) : 0.0));
     }
 }
 
 static mr_status build_patterns(mr__run *r, mr__error *err)
 {
-    const mr__pattern_table *t = &r->first.patterns;
+    const mr__pattern_table *t = &r->first.patterns.table;
+    pattern_values v;
     mr__block blk;
     size_t e;
-    mr_status st = MR_OK;
+    mr_status st;
     memset(&blk, 0, sizeof blk);
+    memset(&v, 0, sizeof v);
     mr__store_init_memory(&r->patterns);
+    st = resolve_pattern_values(r, &v, err);
     for (e = 0; e < t->n && st == MR_OK; e++) {
-        const mr__pattern *pt = &t->ent[e];
-        if (!(pt->a > 0)) continue; /* only rows of weight 0 */
+        double pt[MR__PATTERN_SUMS];
+        mr__pattern_sums(t, e, pt);
+        if (!(pt[MR__PATTERN_A] > 0)) continue; /* only rows of weight 0 */
         if (blk.y == NULL) st = new_pattern_block(r, &blk, err);
-        if (st == MR_OK) st = pattern_covariates(r, t->keys + pt->key_off, &blk, blk.n, err);
         if (st != MR_OK) break;
+        pattern_covariates(r, &v, e, &blk, blk.n);
         pattern_row(r, pt, &blk, blk.n);
         blk.index = r->patterns.n;
         if (++blk.n == MR__BLOCK_ROWS) st = mr__store_keep(&r->patterns, &blk, &r->bind, err);
@@ -397,6 +434,7 @@ static mr_status build_patterns(mr__run *r, mr__error *err)
     }
     if (st == MR_OK && blk.y != NULL && blk.n > 0) st = mr__store_keep(&r->patterns, &blk, &r->bind, err);
     mr__block_release(&blk);
+    release_pattern_values(&v, r->bind.nfac, r->bind.nnum);
     r->npatterns = t->n;
     r->collapsed = st == MR_OK;
     return st;

@@ -36,7 +36,7 @@ void mr__block_release(mr__block *b)
     mr__free(b->missing);
     mr__free(b->llc);
     mr__free(b->extra);
-    if (b->patterns) mr__patterns_release(b->patterns);
+    if (b->patterns) mr__pattern_rows_release(b->patterns);
     mr__free(b->patterns);
     memset(b, 0, sizeof *b);
 }
@@ -52,19 +52,21 @@ mr_status mr__decoder_init(mr__decoder *d, const mr__decode_cfg *cfg, mr__error 
     d->lev = mr__calloc(b->ncol, sizeof *d->lev);
     d->miss = mr__calloc(b->ncol, 1);
     if (cfg->levels == NULL) d->local = mr__calloc(b->nfac ? b->nfac : 1, sizeof *d->local);
+    if (cfg->levels == NULL && cfg->collapse) {
+        d->numvals = mr__calloc(b->nnum ? b->nnum : 1, sizeof *d->numvals);
+        d->keysets = mr__calloc(b->nfac + b->nnum + 1, sizeof *d->keysets);
+    }
     d->wanted = mr__calloc(b->nfields + 1, 1);
     for (f = 0; d->wanted && f < b->nfields; f++) d->wanted[f] = b->col_of_field[f] >= 0;
-    d->ftext = mr__calloc(b->ncol, sizeof *d->ftext);
-    d->flen = mr__calloc(b->ncol, sizeof *d->flen);
-    if (!d->ftext || !d->flen || !d->wanted) {
-        mr__decoder_release(d);
-        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    }
-    if (!d->np || !d->val || !d->lev || !d->miss || (cfg->levels == NULL && !d->local)) {
+    if (!d->np || !d->val || !d->lev || !d->miss || !d->wanted || (cfg->levels == NULL && !d->local) ||
+        (cfg->levels == NULL && cfg->collapse && (!d->numvals || !d->keysets))) {
         mr__decoder_release(d);
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }
     for (f = 0; d->local && f < b->nfac; f++) mr__levelset_init(&d->local[f]);
+    for (f = 0; d->numvals && f < b->nnum; f++) mr__levelset_init(&d->numvals[f]);
+    for (f = 0; d->keysets && f < b->nfac + b->nnum; f++)
+        d->keysets[f] = f < b->nfac ? &d->local[f] : &d->numvals[f - b->nfac];
     return mr__tokenizer_init(&d->tok, cfg->delim, err);
 }
 
@@ -76,15 +78,15 @@ void mr__decoder_release(mr__decoder *d)
     mr__numparser_free(d->np);
     if (d->local)
         for (f = 0; f < d->cfg->bind->nfac; f++) mr__levelset_release(&d->local[f]);
+    if (d->numvals)
+        for (f = 0; f < d->cfg->bind->nnum; f++) mr__levelset_release(&d->numvals[f]);
     mr__free(d->local);
+    mr__free(d->numvals);
+    mr__free(d->keysets);
     mr__free(d->val);
     mr__free(d->lev);
     mr__free(d->miss);
-    mr__free(d->ftext);
-    mr__free(d->flen);
     mr__free(d->wanted);
-    mr__free(d->key);
-    mr__free(d->rowtext);
     memset(d, 0, sizeof *d);
 }
 
@@ -110,34 +112,11 @@ static void row_problem(mr__decoder *d, size_t col, mr_status kind, const char *
     snprintf(d->row_msg, sizeof d->row_msg, "%zu: column '%s': %s (value '%s')", c->field + 1, c->name, what, v);
 }
 
-/* libcsv reuses its field buffer, so the row's factor cells are copied
- * for the pattern key. */
-static void keep_factor_text(mr__decoder *d, int col, const char *p, size_t len)
-{
-    if (d->rowtext_len + len > d->rowtext_cap) {
-        size_t cap = d->rowtext_cap ? d->rowtext_cap : 256;
-        char *q;
-        while (cap < d->rowtext_len + len) cap *= 2;
-        q = mr__realloc(d->rowtext, cap);
-        if (q == NULL) {
-            d->stop = 1;
-            return;
-        }
-        d->rowtext = q;
-        d->rowtext_cap = cap;
-    }
-    memcpy(d->rowtext + d->rowtext_len, p, len);
-    d->ftext[col] = d->rowtext_len;
-    d->flen[col] = len;
-    d->rowtext_len += len;
-}
-
 static void decode_level(mr__decoder *d, int col, const char *p, size_t len)
 {
     const mr__column *c = &d->cfg->bind->col[col];
     if (d->cfg->levels == NULL) {
         int rc = mr__levelset_add(&d->local[c->var], p, len, &d->lev[col]);
-        if (d->blk->patterns) keep_factor_text(d, col, p, len);
         if (rc == -2) row_problem(d, (size_t)col, MR_ERR_DOMAIN, "more distinct levels than a factor may have (is it an identifier?)", p, len);
         else if (rc != 0) d->stop = 1;
         return;
@@ -259,61 +238,41 @@ static void store_row(mr__decoder *d, double y, double prior, double off)
     for (k = 0; k < b->nfac; k++) blk->lev[k * MR__BLOCK_ROWS + i] = d->lev[b->fac_col[k]];
 }
 
-static int grow_key(mr__decoder *d, size_t need)
-{
-    char *k;
-    size_t cap = d->key_cap ? d->key_cap : 256;
-    if (need == 0) need = 1; /* an intercept-only model's key is empty, but never NULL */
-    if (need <= d->key_cap) return 0;
-    while (cap < need) cap *= 2;
-    k = mr__realloc(d->key, cap);
-    if (k == NULL) return -1;
-    d->key = k;
-    d->key_cap = cap;
-    return 0;
-}
+static void abandon_collapse(const mr__decode_cfg *cfg) { atomic_store(cfg->collapse_abandoned, 1); }
 
-/* The row's covariate values as bytes: each factor cell (length, text),
- * then each numeric as its 8 bytes. */
-static size_t pattern_key(mr__decoder *d)
-{
-    const mr__binding *b = d->cfg->bind;
-    size_t k, o = 0, need = b->nnum * sizeof(double);
-    for (k = 0; k < b->nfac; k++) need += sizeof(uint32_t) + d->flen[b->fac_col[k]];
-    if (grow_key(d, need) != 0) return 0;
-    for (k = 0; k < b->nfac; k++) {
-        uint32_t n = (uint32_t)d->flen[b->fac_col[k]];
-        memcpy(d->key + o, &n, sizeof n);
-        memcpy(d->key + o + sizeof n, d->rowtext + d->ftext[b->fac_col[k]], n);
-        o += sizeof n + n;
-    }
-    for (k = 0; k < b->nnum; k++, o += sizeof(double)) memcpy(d->key + o, &d->val[b->num_col[k]], sizeof(double));
-    return o;
-}
-
+/* The row's key (each factor's level number, then each numeric's value
+ * number, both the worker's own) and its four sums. */
 static void add_pattern(mr__decoder *d, double y, double prior, double off)
 {
-    size_t len;
-    double a, b, c, s;
+    mr__pattern_rows *rows = d->blk->patterns;
+    const mr__binding *b = d->cfg->bind;
+    uint32_t *ids = rows->ids + rows->n * rows->nkey;
+    double *sum = rows->sums + rows->n * MR__PATTERN_SUMS;
+    size_t k;
     if (atomic_load_explicit(d->cfg->collapse_abandoned, memory_order_relaxed)) return;
-    len = pattern_key(d);
-    if (len == 0 && (d->cfg->bind->nfac || d->cfg->bind->nnum)) {
-        d->stop = 1;
-        return;
+    for (k = 0; k < b->nfac; k++) ids[k] = (uint32_t)d->lev[b->fac_col[k]];
+    for (k = 0; k < b->nnum; k++) {
+        int32_t id;
+        /* too many values (or no memory) only means no collapsing */
+        if (mr__levelset_add(&d->numvals[k], (const char *)&d->val[b->num_col[k]], sizeof(double), &id) != 0) {
+            abandon_collapse(d->cfg);
+            return;
+        }
+        ids[b->nfac + k] = (uint32_t)id;
     }
     if (d->cfg->collapse == 1) {
-        a = prior;
-        b = prior * y;
-        c = prior * y * y;
-        s = prior * mr__family_saturated_term(d->cfg->family, y);
+        sum[MR__PATTERN_A] = prior;
+        sum[MR__PATTERN_B] = prior * y;
+        sum[MR__PATTERN_C] = prior * y * y;
+        sum[MR__PATTERN_D] = prior * mr__family_saturated_term(d->cfg->family, y);
     } else {
         double e = exp(off);
-        a = prior * e;
-        b = prior * y;
-        c = prior * y * y / e;
-        s = prior * ((y > 0 ? y * log(y) : 0.0) - y * off);
+        sum[MR__PATTERN_A] = prior * e;
+        sum[MR__PATTERN_B] = prior * y;
+        sum[MR__PATTERN_C] = prior * y * y / e;
+        sum[MR__PATTERN_D] = prior * ((y > 0 ? y * log(y) : 0.0) - y * off);
     }
-    if (mr__patterns_add(d->blk->patterns, d->key, len, mr__patterns_hash(d->key, len), a, b, c, s) != 0) d->stop = 1;
+    rows->n++;
 }
 
 static void on_row_end(void *user, uint32_t r, size_t nfields)
@@ -338,7 +297,6 @@ static void on_row_end(void *user, uint32_t r, size_t nfields)
     }
     if (d->row_bad) record_bad(d, r, d->row_msg);
     d->row_bad = 0;
-    d->rowtext_len = 0;
     memset(d->miss, 0, b->ncol);
 }
 
@@ -347,7 +305,7 @@ static void check_collapsible(mr__decoder *d, const mr__block *blk)
     size_t k;
     for (k = 0; k < d->cfg->bind->nnum; k++)
         if (!mr__few_distinct(blk->num + k * MR__BLOCK_ROWS, blk->n, MR__COLLAPSE_MAX_DISTINCT))
-            atomic_store(d->cfg->collapse_abandoned, 1);
+            abandon_collapse(d->cfg);
 }
 
 mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, mr__error *err)
@@ -361,13 +319,12 @@ mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, m
     blk->failed = 0;
     mr__error_clear(&blk->err);
     for (k = 0; k < d->cfg->bind->ncol; k++) blk->missing[k] = 0;
-    if (blk->patterns) mr__patterns_clear(blk->patterns);
+    if (blk->patterns) mr__pattern_rows_begin(blk->patterns, d->keysets);
     d->blk = blk;
     d->chunk = c;
     d->stop = 0;
     d->row_bad = 0;
     memset(d->miss, 0, d->cfg->bind->ncol);
-    d->rowtext_len = 0;
     if (c->has_quote) {
         st = mr__tokenize_chunk(&d->tok, c, &sink, d->cfg->display, err);
     } else {
@@ -379,7 +336,9 @@ mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, m
         st = MR_OK;
     }
     if (st == MR_OK && d->stop && !blk->failed) st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    if (st == MR_OK && blk->patterns && !atomic_load_explicit(d->cfg->collapse_abandoned, memory_order_relaxed))
+    if (st == MR_OK && blk->patterns && !atomic_load_explicit(d->cfg->collapse_abandoned, memory_order_relaxed)) {
         check_collapsible(d, blk);
+        if (mr__pattern_rows_end(blk->patterns, d->keysets) != 0) abandon_collapse(d->cfg);
+    }
     return st;
 }

@@ -45,8 +45,8 @@ typedef struct mr__block {
     /* Collapsed patterns only: per-pattern Pearson correction (see
      * accum/patterns.h); NULL otherwise. */
     double *extra;
-    /* First pass with collapsing: this block's covariate patterns. */
-    mr__pattern_table *patterns;
+    /* First pass with collapsing: this block's rows as pattern keys. */
+    mr__pattern_rows *patterns;
     uint64_t *missing; /* per bound column: rows left out for a missing cell */
     uint32_t incomplete;
     uint32_t nbad, nbad_shown;
@@ -92,12 +92,10 @@ typedef struct mr__decoder {
     size_t bad_field;
     char row_msg[300];
     double row_llc;
-    size_t *ftext;      /* first pass with collapsing: factor cells of the row, */
-    size_t *flen;       /* as offsets into rowtext */
-    char *rowtext;
-    size_t rowtext_len, rowtext_cap;
-    char *key;
-    size_t key_cap;
+    /* First pass with collapsing: the numbering of each key column's
+     * values (the factors' `local` sets, then one per numeric). */
+    mr__levelset *numvals;
+    const mr__levelset **keysets;
     mr__block *blk;
     const mr__chunk *chunk;
     int stop;

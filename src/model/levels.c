@@ -4,35 +4,46 @@
 #include "common/alloc.h"
 #include "model/levels.h"
 
-static uint64_t hash_bytes(const char *p, size_t len)
+/* Levels are met once a cell, so the common short ones are compared as
+ * one word and hashed from it, with no call to memcmp. */
+static uint64_t head_of(const char *p, size_t len)
 {
-    uint64_t h = 0xcbf29ce484222325ULL;
-    size_t i;
-    for (i = 0; i < len; i++) h = (h ^ (unsigned char)p[i]) * 0x100000001b3ULL;
-    return h ^ (h >> 29);
+    uint64_t w = 0;
+    size_t i, n = len < 8 ? len : 8;
+    for (i = 0; i < n; i++) w |= (uint64_t)(unsigned char)p[i] << (8 * i);
+    return w;
 }
 
-void mr__levelset_init(mr__levelset *s)
+/* Every input bit reaches the low bits the table uses (numeric values,
+ * kept as their 8 bytes, differ only in their high bits). */
+static uint64_t hash_of(uint64_t head, const char *p, size_t len)
 {
-    s->slot = NULL;
-    s->cap = s->n = 0;
+    uint64_t h = head ^ ((uint64_t)len << 59);
+    size_t i;
+    for (i = 8; i < len; i++) h = (h ^ (unsigned char)p[i]) * 0x100000001b3ULL;
+    h = (h ^ (h >> 33)) * 0xff51afd7ed558ccdULL;
+    h = (h ^ (h >> 33)) * 0xc4ceb9fe1a85ec53ULL;
+    return h ^ (h >> 33);
 }
+
+void mr__levelset_init(mr__levelset *s) { memset(s, 0, sizeof *s); }
 
 void mr__levelset_release(mr__levelset *s)
 {
     size_t i;
     for (i = 0; i < s->cap; i++) mr__free(s->slot[i].str);
     mr__free(s->slot);
+    mr__free(s->name);
     mr__levelset_init(s);
 }
 
-static mr__level_entry *probe(const mr__levelset *s, uint64_t h, const char *p, size_t len)
+static inline mr__level_entry *probe(const mr__levelset *s, uint64_t h, uint64_t head, const char *p, size_t len)
 {
     size_t mask = s->cap - 1, i = (size_t)h & mask;
     for (;;) {
         mr__level_entry *e = &s->slot[i];
         if (e->str == NULL) return e;
-        if (e->hash == h && e->len == len && memcmp(e->str, p, len) == 0) return e;
+        if (e->head == head && e->len == len && (len <= 8 || memcmp(e->str + 8, p + 8, len - 8) == 0)) return e;
         i = (i + 1) & mask;
     }
 }
@@ -46,17 +57,20 @@ static int grow(mr__levelset *s)
     bigger.cap = cap;
     bigger.n = s->n;
     for (i = 0; i < s->cap; i++)
-        if (s->slot[i].str != NULL) *probe(&bigger, s->slot[i].hash, s->slot[i].str, s->slot[i].len) = s->slot[i];
+        if (s->slot[i].str != NULL) *probe(&bigger, s->slot[i].hash, s->slot[i].head, s->slot[i].str, s->slot[i].len) = s->slot[i];
     mr__free(s->slot);
-    *s = bigger;
+    s->slot = bigger.slot;
+    s->cap = cap;
     return 0;
 }
 
-static int insert_hashed(mr__levelset *s, uint64_t h, const char *p, size_t len, int32_t id, int32_t *out)
+static int insert_hashed(mr__levelset *s, uint64_t h, uint64_t head, const char *p, size_t len, int32_t id,
+                         int32_t *out, mr__level_entry **made)
 {
     mr__level_entry *e;
+    *made = NULL;
     if (s->n + 1 > s->cap / 2 && grow(s) != 0) return -1;
-    e = probe(s, h, p, len);
+    e = probe(s, h, head, p, len);
     if (e->str != NULL) {
         *out = e->id;
         return 0;
@@ -65,23 +79,42 @@ static int insert_hashed(mr__levelset *s, uint64_t h, const char *p, size_t len,
     e->str = mr__strndup(p, len);
     if (e->str == NULL) return -1;
     e->hash = h;
+    e->head = head;
     e->len = (uint32_t)len;
     e->id = id;
     *out = id;
+    *made = e;
     s->n++;
     return 0;
 }
 
 int mr__levelset_add(mr__levelset *s, const char *p, size_t len, int32_t *id)
 {
-    return insert_hashed(s, hash_bytes(p, len), p, len, (int32_t)s->n, id);
+    uint64_t head = head_of(p, len), h = hash_of(head, p, len);
+    mr__level_entry *made;
+    int rc;
+    if (s->cap > 0) { /* met before: the case of nearly every cell */
+        const mr__level_entry *e = probe(s, h, head, p, len);
+        if (e->str != NULL) {
+            *id = e->id;
+            return 0;
+        }
+    }
+    if (mr__reserve((void **)&s->name, &s->name_cap, s->n + 1, sizeof *s->name) != 0) return -1;
+    rc = insert_hashed(s, h, head, p, len, (int32_t)s->n, id, &made);
+    if (made != NULL) {
+        s->name[made->id].str = made->str;
+        s->name[made->id].len = made->len;
+    }
+    return rc;
 }
 
 int32_t mr__levelset_find(const mr__levelset *s, const char *p, size_t len)
 {
     const mr__level_entry *e;
+    uint64_t head = head_of(p, len);
     if (s->cap == 0) return -1;
-    e = probe(s, hash_bytes(p, len), p, len);
+    e = probe(s, hash_of(head, p, len), head, p, len);
     return e->str ? e->id : -1;
 }
 
@@ -102,11 +135,13 @@ int mr__levelset_merge_sorted(const mr__levelset *const *sets, size_t n, mr__lev
     const char **names;
     int rc = 0;
     int32_t id;
+    mr__level_entry *made;
     mr__levelset_init(out);
     for (i = 0; i < n; i++)
         for (j = 0; j < sets[i]->cap; j++)
             if (sets[i]->slot[j].str != NULL &&
-                (rc = insert_hashed(out, sets[i]->slot[j].hash, sets[i]->slot[j].str, sets[i]->slot[j].len, 0, &id)) != 0)
+                (rc = insert_hashed(out, sets[i]->slot[j].hash, sets[i]->slot[j].head, sets[i]->slot[j].str,
+                                    sets[i]->slot[j].len, 0, &id, &made)) != 0)
                 return rc;
     all = mr__malloc_array(out->n ? out->n : 1, sizeof *all);
     names = mr__malloc_array(out->n ? out->n : 1, sizeof *names);

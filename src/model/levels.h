@@ -14,14 +14,23 @@
 
 typedef struct mr__level_entry {
     uint64_t hash;
+    uint64_t head; /* the first 8 bytes, zero-padded: most levels are that short */
     char *str;
     uint32_t len;
     int32_t id;
 } mr__level_entry;
 
+typedef struct mr__level_name {
+    const char *str; /* owned by the set's entry */
+    uint32_t len;
+} mr__level_name;
+
 typedef struct mr__levelset {
     mr__level_entry *slot;
     size_t cap, n;
+    /* Sets filled by mr__levelset_add: each id's string, in id order. */
+    mr__level_name *name;
+    size_t name_cap;
 } mr__levelset;
 
 void mr__levelset_init(mr__levelset *s);
