@@ -19,6 +19,9 @@ typedef struct slot {
     mr__scan_sums scan;
     mr__block_sums sums;
     uint64_t raw_bytes;      /* input consumed when the chunk was complete */
+    char *packed;            /* file store: the block in its packed form */
+    size_t packed_len;       /* 0: nothing packed */
+    int from_store;          /* packed holds a block read back from the store */
     mr_status st;
     mr__error err;
 } slot;
@@ -133,7 +136,13 @@ static mr_status replay_store(engine *e, mr__error *err)
         s = claim_slot(e, i);
         pthread_mutex_unlock(&e->mu);
         if (s == NULL) return mr__fail(err, MR_ERR_INTERNAL, "pass abandoned");
-        MR__TRY(mr__store_load(e->cfg->store, i, e->cfg->dcfg->bind, &s->block, &s->use, err));
+        const mr__store *store = e->cfg->store;
+        if (store->fd < 0) {
+            s->use = &store->block[i];
+        } else {
+            MR__TRY(mr__store_read(store, i, s->packed, err));
+            s->from_store = 1; /* the worker unpacks it */
+        }
         s->raw_bytes = 0;
         publish(e, s);
     }
@@ -158,17 +167,33 @@ static void *reader_main(void *arg)
 
 /* ---- the workers ----------------------------------------------------- */
 
+/* Whether a worker should pack its decoded block for the file store: the
+ * first pass keeps blocks only while the rows cannot collapse (the
+ * combiner packs the odd block itself when collapsing is given up). */
+static int worth_packing(const mr__pass_cfg *cfg)
+{
+    if (cfg->store == NULL || cfg->store->fd < 0 || !cfg->store_fill) return 0;
+    return cfg->kind == MR__PASS_IRLS || !cfg->dcfg->collapse || atomic_load(cfg->dcfg->collapse_abandoned);
+}
+
 static void compute(worker *w, slot *s)
 {
     const mr__pass_cfg *cfg = w->e->cfg;
+    const mr__binding *b = cfg->dcfg->bind;
     s->st = MR_OK;
+    s->packed_len = 0;
     mr__error_clear(&s->err);
-    if (s->use == NULL) {
+    if (s->from_store) {
+        mr__store_unpack(cfg->store, s->packed, s->index, b, &s->block);
+        s->use = &s->block;
+        s->from_store = 0;
+    } else if (s->use == NULL) {
         s->st = mr__decode_chunk(&w->dec, s->chunk, &s->block, &s->err);
         s->use = &s->block;
         if (s->st != MR_OK || s->block.failed) return;
+        if (worth_packing(cfg)) s->packed_len = mr__store_pack(&s->block, b, s->packed);
     }
-    if (cfg->kind == MR__PASS_SCAN) mr__scan_block(s->use, cfg->dcfg->bind->ncol, cfg->dcfg->bind->nnum, &s->scan);
+    if (cfg->kind == MR__PASS_SCAN) mr__scan_block(s->use, b->ncol, b->nnum, &s->scan);
     else mr__accumulate_block(cfg->point, s->use, &w->ws, &s->sums);
 }
 
@@ -215,6 +240,8 @@ static mr_status init_slots(engine *e, mr__error *err)
         s->chunk = mr__calloc(1, sizeof *s->chunk);
         if (s->chunk == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
         MR__TRY(mr__block_init(&s->block, b, err));
+        if (cfg->store && cfg->store->fd >= 0 && (s->packed = mr__malloc(mr__store_pack_bound(b))) == NULL)
+            return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
         if (cfg->kind == MR__PASS_SCAN && cfg->dcfg->collapse) {
             s->block.patterns = mr__calloc(1, sizeof *s->block.patterns);
             if (s->block.patterns == NULL || mr__pattern_rows_init(s->block.patterns, b->nfac + b->nnum) != 0)
@@ -233,6 +260,7 @@ static void release_slots(engine *e)
         slot *s = &e->slots[i];
         if (s->chunk) mr__free(s->chunk->data);
         mr__free(s->chunk);
+        mr__free(s->packed);
         mr__block_release(&s->block);
         mr__scan_release(&s->scan);
         mr__sums_release(&s->sums);
@@ -398,18 +426,24 @@ static void merge_patterns(const mr__pass_cfg *cfg, mr__pass_result *res, const 
  * rows may still collapse into patterns (then the patterns replace them).
  * If collapsing is given up after some blocks went unkept, the store is
  * incomplete and the first IRLS pass decodes the file again. */
-static mr_status keep_scanned(const mr__pass_cfg *cfg, mr__pass_result *res, mr__block *blk, mr__error *err)
+static mr_status keep_block(const mr__pass_cfg *cfg, slot *s, mr__error *err)
 {
-    mr__pattern_rows *patterns = blk->patterns;
+    mr__pattern_rows *patterns = s->block.patterns;
     mr_status st;
+    if (s->packed_len > 0) return mr__store_append(cfg->store, s->packed, s->packed_len, err);
+    s->block.patterns = NULL; /* the slot keeps its pattern rows */
+    st = mr__store_keep(cfg->store, &s->block, cfg->dcfg->bind, err);
+    s->block.patterns = patterns;
+    return st;
+}
+
+static mr_status keep_scanned(const mr__pass_cfg *cfg, mr__pass_result *res, slot *s, mr__error *err)
+{
     if (res->collapsed || res->store_incomplete) {
         res->store_incomplete = 1;
         return MR_OK;
     }
-    blk->patterns = NULL; /* the slot keeps its pattern table */
-    st = mr__store_keep(cfg->store, blk, cfg->dcfg->bind, err);
-    blk->patterns = patterns;
-    return st;
+    return keep_block(cfg, s, err);
 }
 
 static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *err)
@@ -427,11 +461,11 @@ static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *
     if (cfg->kind == MR__PASS_SCAN) {
         mr__scan_add(&res->scan, &s->scan, cfg->dcfg->bind->ncol, cfg->dcfg->bind->nnum);
         if (res->collapsed) merge_patterns(cfg, res, &s->block);
-        if (cfg->store) MR__TRY(keep_scanned(cfg, res, &s->block, err));
+        if (cfg->store) MR__TRY(keep_scanned(cfg, res, s, err));
         return keep_sample(res, s->chunk, err);
     }
     mr__sums_add(&res->sums, &s->sums, cfg->p);
-    if (cfg->store && cfg->store_fill) st = mr__store_keep(cfg->store, &s->block, cfg->dcfg->bind, err);
+    if (cfg->store && cfg->store_fill) st = keep_block(cfg, s, err);
     return st;
 }
 

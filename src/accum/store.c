@@ -1,5 +1,6 @@
 #define _POSIX_C_SOURCE 200809L
 #include <errno.h>
+#include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -63,31 +64,155 @@ static mr_status grow(mr__store *s, mr__error *err)
     return MR_OK;
 }
 
-/* The layout of a kept block: y, prior, offset, each numeric, each factor,
- * n entries each. */
-static size_t pack_block(const mr__block *blk, const mr__binding *b, char *out)
+/* ---- the packed form of a block (file backend) -------------------------
+ *
+ * The cache is written once and read every pass, and registry columns are
+ * mostly small integers and short decimals, so each column of each block is
+ * stored in the narrowest form that gives back the same bits: as integers
+ * m of 1, 2 or 4 bytes standing for m / 10^s (s = 0..3), or as raw doubles.
+ * A column is written as one tag byte (width | scale << 4) and its values. */
+
+enum { RAW = 0, W1 = 1, W2 = 2, W4 = 4 };
+static const double scale_of[4] = {1, 10, 100, 1000};
+
+static double from_int(int32_t m, int si) { return si ? (double)m / scale_of[si] : (double)m; }
+
+static int same_bits(double a, double b) { return memcmp(&a, &b, sizeof a) == 0; }
+
+static unsigned width_for(int64_t lo, int64_t hi)
 {
-    size_t o = 0, k, n = blk->n;
-#define PUT(src, bytes) (memcpy(out + o, (src), (bytes)), o += (bytes))
-    PUT(blk->y, n * sizeof(double));
-    if (blk->prior) PUT(blk->prior, n * sizeof(double));
-    if (blk->off) PUT(blk->off, n * sizeof(double));
-    for (k = 0; k < b->nnum; k++) PUT(blk->num + k * MR__BLOCK_ROWS, n * sizeof(double));
-    for (k = 0; k < b->nfac; k++) PUT(blk->lev + k * MR__BLOCK_ROWS, n * sizeof(int32_t));
-#undef PUT
+    if (lo >= INT8_MIN && hi <= INT8_MAX) return W1;
+    if (lo >= INT16_MIN && hi <= INT16_MAX) return W2;
+    return W4;
+}
+
+/* The tag of the narrowest exact form of x[0..n); the first value that
+ * does not fit ends a try, so raw columns cost a few values per scale. */
+static unsigned choose_form(const double *x, size_t n)
+{
+    int si;
+    for (si = 0; si < 4; si++) {
+        int64_t lo = 0, hi = 0;
+        size_t i;
+        for (i = 0; i < n; i++) {
+            double m = nearbyint(x[i] * scale_of[si]);
+            if (!(fabs(m) <= 2147483647.0) || !same_bits(from_int((int32_t)m, si), x[i])) break;
+            if ((int64_t)m < lo) lo = (int64_t)m;
+            if ((int64_t)m > hi) hi = (int64_t)m;
+        }
+        if (i == n) return width_for(lo, hi) | (unsigned)si << 4;
+    }
+    return RAW;
+}
+
+static void put_int(char *p, unsigned w, int32_t v)
+{
+    int8_t b = (int8_t)v;
+    int16_t h = (int16_t)v;
+    if (w == W1) memcpy(p, &b, 1);
+    else if (w == W2) memcpy(p, &h, 2);
+    else memcpy(p, &v, 4);
+}
+
+static int32_t get_int(const char *p, unsigned w)
+{
+    int8_t b;
+    int16_t h;
+    int32_t v;
+    if (w == W1) return memcpy(&b, p, 1), b;
+    if (w == W2) return memcpy(&h, p, 2), h;
+    return memcpy(&v, p, 4), v;
+}
+
+static size_t pack_doubles(const double *x, size_t n, char *out)
+{
+    unsigned tag = choose_form(x, n), w = tag & 15;
+    int si = (int)(tag >> 4);
+    size_t i;
+    out[0] = (char)tag;
+    if (w == RAW) {
+        memcpy(out + 1, x, n * sizeof *x);
+        return 1 + n * sizeof *x;
+    }
+    for (i = 0; i < n; i++) put_int(out + 1 + i * w, w, (int32_t)nearbyint(x[i] * scale_of[si]));
+    return 1 + n * w;
+}
+
+static size_t unpack_doubles(const char *in, size_t n, double *x)
+{
+    unsigned tag = (unsigned char)in[0], w = tag & 15;
+    int si = (int)(tag >> 4);
+    size_t i;
+    if (w == RAW) {
+        memcpy(x, in + 1, n * sizeof *x);
+        return 1 + n * sizeof *x;
+    }
+    for (i = 0; i < n; i++) x[i] = from_int(get_int(in + 1 + i * w, w), si);
+    return 1 + n * w;
+}
+
+static size_t pack_levels(const int32_t *lev, size_t n, char *out)
+{
+    int32_t lo = 0, hi = 0;
+    unsigned w;
+    size_t i;
+    for (i = 0; i < n; i++) {
+        if (lev[i] < lo) lo = lev[i];
+        if (lev[i] > hi) hi = lev[i];
+    }
+    w = width_for(lo, hi);
+    out[0] = (char)w;
+    for (i = 0; i < n; i++) put_int(out + 1 + i * w, w, lev[i]);
+    return 1 + n * w;
+}
+
+static size_t unpack_levels(const char *in, size_t n, int32_t *lev)
+{
+    unsigned w = (unsigned char)in[0];
+    size_t i;
+    for (i = 0; i < n; i++) lev[i] = get_int(in + 1 + i * w, w);
+    return 1 + n * w;
+}
+
+size_t mr__store_pack_bound(const mr__binding *b)
+{
+    size_t ncol = 1 + (b->has_weight || b->has_trials) + (b->has_offset || b->has_exposure) + b->nnum + b->nfac;
+    return HEADER + ncol + MR__BLOCK_ROWS * mr__store_row_bytes(b);
+}
+
+/* Column order: y, prior, offset, each numeric, each factor. */
+size_t mr__store_pack(const mr__block *blk, const mr__binding *b, char *out)
+{
+    size_t o = HEADER, k, n = blk->n;
+    memcpy(out, &blk->n, sizeof(uint32_t));
+    memcpy(out + sizeof(uint32_t), &blk->worker, sizeof(int32_t));
+    o += pack_doubles(blk->y, n, out + o);
+    if (blk->prior) o += pack_doubles(blk->prior, n, out + o);
+    if (blk->off) o += pack_doubles(blk->off, n, out + o);
+    for (k = 0; k < b->nnum; k++) o += pack_doubles(blk->num + k * MR__BLOCK_ROWS, n, out + o);
+    for (k = 0; k < b->nfac; k++) o += pack_levels(blk->lev + k * MR__BLOCK_ROWS, n, out + o);
     return o;
 }
 
 static void unpack_block(const char *in, const mr__binding *b, mr__block *blk)
 {
-    size_t o = 0, k, n = blk->n;
-#define GET(dst, bytes) (memcpy((dst), in + o, (bytes)), o += (bytes))
-    GET(blk->y, n * sizeof(double));
-    if (blk->prior) GET(blk->prior, n * sizeof(double));
-    if (blk->off) GET(blk->off, n * sizeof(double));
-    for (k = 0; k < b->nnum; k++) GET(blk->num + k * MR__BLOCK_ROWS, n * sizeof(double));
-    for (k = 0; k < b->nfac; k++) GET(blk->lev + k * MR__BLOCK_ROWS, n * sizeof(int32_t));
-#undef GET
+    size_t o = HEADER, k, n;
+    memcpy(&blk->n, in, sizeof(uint32_t));
+    memcpy(&blk->worker, in + sizeof(uint32_t), sizeof(int32_t));
+    n = blk->n;
+    o += unpack_doubles(in + o, n, blk->y);
+    if (blk->prior) o += unpack_doubles(in + o, n, blk->prior);
+    if (blk->off) o += unpack_doubles(in + o, n, blk->off);
+    for (k = 0; k < b->nnum; k++) o += unpack_doubles(in + o, n, blk->num + k * MR__BLOCK_ROWS);
+    for (k = 0; k < b->nfac; k++) o += unpack_levels(in + o, n, blk->lev + k * MR__BLOCK_ROWS);
+}
+
+static mr_status stage(mr__store *s, const mr__binding *b, mr__error *err)
+{
+    if (s->pack != NULL) return MR_OK;
+    s->pack_cap = mr__store_pack_bound(b);
+    s->pack = mr__malloc(s->pack_cap);
+    return s->pack ? MR_OK : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
 }
 
 static mr_status write_all(int fd, const char *p, size_t n, uint64_t at, mr__error *err)
@@ -103,27 +228,25 @@ static mr_status write_all(int fd, const char *p, size_t n, uint64_t at, mr__err
     return MR_OK;
 }
 
-mr_status mr__store_keep(mr__store *s, mr__block *blk, const mr__binding *b, mr__error *err)
+mr_status mr__store_append(mr__store *s, const char *packed, size_t bytes, mr__error *err)
 {
-    size_t bytes;
     if (s->n == s->cap) MR__TRY(grow(s, err));
-    if (s->fd < 0) {
-        s->block[s->n++] = *blk;
-        return mr__block_init(blk, b, err);
-    }
-    if (s->pack == NULL) {
-        s->pack_cap = HEADER + MR__BLOCK_ROWS * mr__store_row_bytes(b);
-        s->pack = mr__malloc(s->pack_cap);
-        if (s->pack == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    }
-    memcpy(s->pack, &blk->n, sizeof(uint32_t));
-    memcpy(s->pack + sizeof(uint32_t), &blk->worker, sizeof(int32_t));
-    bytes = HEADER + pack_block(blk, b, s->pack + HEADER);
-    MR__TRY(write_all(s->fd, s->pack, bytes, s->offset[s->n], err));
+    MR__TRY(write_all(s->fd, packed, bytes, s->offset[s->n], err));
     s->offset[s->n + 1] = s->offset[s->n] + bytes;
     s->n++;
     s->bytes += bytes;
     return MR_OK;
+}
+
+mr_status mr__store_keep(mr__store *s, mr__block *blk, const mr__binding *b, mr__error *err)
+{
+    if (s->fd < 0) {
+        if (s->n == s->cap) MR__TRY(grow(s, err));
+        s->block[s->n++] = *blk;
+        return mr__block_init(blk, b, err);
+    }
+    MR__TRY(stage(s, b, err));
+    return mr__store_append(s, s->pack, mr__store_pack(blk, b, s->pack), err);
 }
 
 static void map_levels(const mr__store *s, mr__block *blk)
@@ -151,25 +274,18 @@ static mr_status read_all(int fd, char *p, size_t n, uint64_t at, mr__error *err
     return MR_OK;
 }
 
-mr_status mr__store_load(const mr__store *s, size_t i, const mr__binding *b, mr__block *dst,
-                         const mr__block **use, mr__error *err)
+mr_status mr__store_read(const mr__store *s, size_t i, char *buf, mr__error *err)
 {
-    size_t bytes;
-    if (s->fd < 0) {
-        *use = &s->block[i];
-        return MR_OK;
-    }
-    bytes = (size_t)(s->offset[i + 1] - s->offset[i]);
-    MR__TRY(read_all(s->fd, s->pack, bytes, s->offset[i], err));
-    memcpy(&dst->n, s->pack, sizeof(uint32_t));
-    memcpy(&dst->worker, s->pack + sizeof(uint32_t), sizeof(int32_t));
+    return read_all(s->fd, buf, (size_t)(s->offset[i + 1] - s->offset[i]), s->offset[i], err);
+}
+
+void mr__store_unpack(const mr__store *s, const char *packed, size_t i, const mr__binding *b, mr__block *dst)
+{
+    unpack_block(packed, b, dst);
     dst->index = i;
     dst->nread = dst->n;
     dst->failed = 0;
-    unpack_block(s->pack + HEADER, b, dst);
     if (s->remap) map_levels(s, dst);
-    *use = dst;
-    return MR_OK;
 }
 
 void mr__store_remap(mr__store *s, int32_t **remap, size_t nfac)

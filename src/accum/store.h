@@ -18,7 +18,7 @@ typedef struct mr__store {
     mr__block *block;    /* memory backend */
     uint64_t *offset;    /* file backend: start of block i; offset[n] = end */
     size_t n, cap;
-    char *pack;          /* staging buffer for one block */
+    char *pack;          /* staging buffer for one packed block */
     size_t pack_cap;
     uint64_t bytes;
     /* Blocks kept by the first pass carry their decoder's own level
@@ -36,13 +36,22 @@ void mr__store_release(mr__store *s);
 size_t mr__store_row_bytes(const mr__binding *b);
 
 /* Keeps block `*blk` as the next one.  The memory backend takes the block
- * itself and gives the caller a fresh one in its place. */
+ * itself and gives the caller a fresh one in its place; the file backend
+ * packs and writes it. */
 mr_status mr__store_keep(mr__store *s, mr__block *blk, const mr__binding *b, mr__error *err);
 
-/* Block i for a worker: *use points at the kept block (memory) or at dst,
- * loaded from the file.  Called from one thread at a time. */
-mr_status mr__store_load(const mr__store *s, size_t i, const mr__binding *b, mr__block *dst,
-                         const mr__block **use, mr__error *err);
+/* The file backend's packed form of a block (store.c says why it is
+ * compact), so that workers pack and unpack in parallel and the threads
+ * that keep the order only write and read bytes.  A packed block takes at
+ * most mr__store_pack_bound bytes; mr__store_pack returns its size. */
+size_t mr__store_pack_bound(const mr__binding *b);
+size_t mr__store_pack(const mr__block *blk, const mr__binding *b, char *out);
+/* Writes a packed block as the next one (file backend). */
+mr_status mr__store_append(mr__store *s, const char *packed, size_t bytes, mr__error *err);
+/* Reads packed block i into buf (file backend; at most the bound). */
+mr_status mr__store_read(const mr__store *s, size_t i, char *buf, mr__error *err);
+/* Unpacks block i into dst and maps its level numbers. */
+void mr__store_unpack(const mr__store *s, const char *packed, size_t i, const mr__binding *b, mr__block *dst);
 
 /* Installs the level maps of the first pass (the store does not own them;
  * they must outlive it).  A memory store is rewritten at once; a file

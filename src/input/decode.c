@@ -41,6 +41,19 @@ void mr__block_release(mr__block *b)
     memset(b, 0, sizeof *b);
 }
 
+/* A missing token that reads as a number ("-1", "999") must be tested for
+ * before a cell is parsed, which the quick path does not do. */
+static int numeric_missing_token(const mr__decode_cfg *cfg)
+{
+    size_t i;
+    for (i = 0; i < cfg->nmissing; i++) {
+        double v;
+        const char *m = cfg->missing[i], *e = m + cfg->missing_len[i];
+        if (cfg->missing_len[i] > 0 && mr__parse_short_decimal(m, e, cfg->delim, &v) == e) return 1;
+    }
+    return 0;
+}
+
 mr_status mr__decoder_init(mr__decoder *d, const mr__decode_cfg *cfg, mr__error *err)
 {
     const mr__binding *b = cfg->bind;
@@ -58,6 +71,7 @@ mr_status mr__decoder_init(mr__decoder *d, const mr__decode_cfg *cfg, mr__error 
     }
     d->wanted = mr__calloc(b->nfields + 1, 1);
     for (f = 0; d->wanted && f < b->nfields; f++) d->wanted[f] = b->col_of_field[f] >= 0;
+    d->quick_numbers = !numeric_missing_token(cfg);
     if (!d->np || !d->val || !d->lev || !d->miss || !d->wanted || (cfg->levels == NULL && !d->local) ||
         (cfg->levels == NULL && cfg->collapse && (!d->numvals || !d->keysets))) {
         mr__decoder_release(d);
@@ -300,6 +314,42 @@ static void on_row_end(void *user, uint32_t r, size_t nfields)
     memset(d->miss, 0, b->ncol);
 }
 
+/* A cell the quick path does not take: trimmed and decoded as the general
+ * splitter would. */
+static void slow_cell(mr__decoder *d, size_t k, const char *s, const char *e)
+{
+    while (s < e && mr__is_blank(*s, d->cfg->delim)) s++;
+    while (e > s && mr__is_blank(e[-1], d->cfg->delim)) e--;
+    on_field(d, k, s, (size_t)(e - s));
+}
+
+/* mr__plain_row and on_field fused for the common cells: a numeric cell
+ * is parsed as it is scanned for the delimiter, and anything unusual
+ * (blanks, missing tokens, exponents, bad numbers) takes the general path,
+ * so both give the same rows. */
+static void plain_row_quick(mr__decoder *d, const char *s, const char *e, uint32_t r)
+{
+    const mr__binding *b = d->cfg->bind;
+    const char delim = d->cfg->delim;
+    size_t k = 0;
+    if (e > s && e[-1] == '\n') e--;
+    if (e > s && e[-1] == '\r') e--;
+    for (;; k++) {
+        const char *q = s;
+        int col = k < b->nfields ? b->col_of_field[k] : -1;
+        if (col >= 0 && !d->stop && b->col[col].use != MR__USE_FACTOR && d->quick_numbers &&
+            (q = mr__parse_short_decimal(s, e, delim, &d->val[col])) != NULL) {
+            /* parsed */
+        } else {
+            for (q = s; q < e && *q != delim; q++) continue;
+            if (col >= 0) slow_cell(d, k, s, q);
+        }
+        if (q == e) break;
+        s = q + 1;
+    }
+    on_row_end(d, r, k + 1);
+}
+
 static void check_collapsible(mr__decoder *d, const mr__block *blk)
 {
     size_t k;
@@ -331,8 +381,7 @@ mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, m
         /* The same splitter as mr__tokenize_chunk, with this file's
          * callbacks inlined into it. */
         uint32_t r;
-        for (r = 0; r < c->nrows; r++)
-            mr__plain_row(c->data + c->row_start[r], c->data + c->row_start[r + 1], d->cfg->delim, &sink, r);
+        for (r = 0; r < c->nrows; r++) plain_row_quick(d, c->data + c->row_start[r], c->data + c->row_start[r + 1], r);
         st = MR_OK;
     }
     if (st == MR_OK && d->stop && !blk->failed) st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");

@@ -87,6 +87,7 @@ typedef struct mr__decoder {
     int32_t *lev;
     unsigned char *miss;
     unsigned char *wanted; /* per field: does the model use it */
+    int quick_numbers;     /* numeric cells may take the inline parser */
     int row_bad;
     mr_status row_status;
     size_t bad_field;

@@ -11,6 +11,7 @@
 #define MR_NUMPARSE_H
 
 #include <stddef.h>
+#include <stdint.h>
 
 /* Per-thread parsing context (holds the C locale used by the fallback).
  * One context is used by one thread at a time. */
@@ -29,5 +30,39 @@ void mr__numparser_free(mr__numparser *np);
  * (*out untouched).  Values that overflow give 0 as well (not a usable
  * number); underflow to subnormal/zero is accepted as strtod rounds it. */
 int mr__parse_double(mr__numparser *np, const char *s, size_t len, double *out);
+
+/* The commonest case of mr__parse_double, inline for the decoder's loop:
+ * from p, an optional '-' and at most 15 digits with at most one '.', up to
+ * `stop` or e.  The digits then make an integer m < 2^53 and the value is
+ * m or m / 10^f (f <= 15), both exact operands, so one IEEE division gives
+ * the correctly rounded result, the same bits as mr__parse_double.  Returns
+ * where the number ends (at `stop` or e), or NULL for anything else (blanks,
+ * exponents, more digits, not a number), which the caller hands to
+ * mr__parse_double. */
+static inline const char *mr__parse_short_decimal(const char *p, const char *e, char stop, double *out)
+{
+    static const double pow10[16] = {1e0, 1e1, 1e2,  1e3,  1e4,  1e5,  1e6,  1e7,
+                                     1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15};
+    uint64_t m = 0;
+    int negative = p < e && *p == '-', digits = 0, frac = -1;
+    double v;
+    for (p += negative; p < e && *p != stop; p++) {
+        unsigned dgt = (unsigned)(unsigned char)*p - '0';
+        if (dgt < 10) {
+            m = m * 10 + dgt;
+            digits++;
+            frac += frac >= 0;
+        } else if (*p == '.' && frac < 0) {
+            frac = 0;
+        } else {
+            return NULL;
+        }
+    }
+    if (digits == 0 || digits > 15) return NULL;
+    v = (double)m;
+    if (frac > 0) v /= pow10[frac];
+    *out = negative ? -v : v;
+    return p;
+}
 
 #endif

@@ -9,8 +9,12 @@
 static uint64_t head_of(const char *p, size_t len)
 {
     uint64_t w = 0;
-    size_t i, n = len < 8 ? len : 8;
-    for (i = 0; i < n; i++) w |= (uint64_t)(unsigned char)p[i] << (8 * i);
+    size_t i;
+    if (len >= 8) { /* numeric values are kept as their 8 bytes */
+        memcpy(&w, p, 8);
+        return w;
+    }
+    for (i = 0; i < len; i++) w |= (uint64_t)(unsigned char)p[i] << (8 * i);
     return w;
 }
 
