@@ -21,6 +21,7 @@ mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *
     ws->scol = mr__aligned_alloc(R * (d->nsparse + 1) * sizeof(int32_t));
     ws->dd = aligned_doubles((d->ndense + 1) * (d->ndense + 1));
     ws->bd = aligned_doubles(d->ndense + 1);
+    ws->bs = aligned_doubles(d->p + 1);
     ws->sd = aligned_doubles(d->p * (d->ndense + 1));
     ws->eta = aligned_doubles(R);
     ws->mu = aligned_doubles(R);
@@ -29,7 +30,7 @@ mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *
     ws->dev = aligned_doubles(R);
     ws->w = aligned_doubles(R);
     ws->z = aligned_doubles(R);
-    if (!ws->sd || !ws->D || !ws->sval || !ws->scol || !ws->dd || !ws->bd || !ws->eta || !ws->mu || !ws->mu_eta || !ws->var || !ws->dev || !ws->w || !ws->z) {
+    if (!ws->sd || !ws->D || !ws->sval || !ws->scol || !ws->dd || !ws->bd || !ws->bs || !ws->eta || !ws->mu || !ws->mu_eta || !ws->var || !ws->dev || !ws->w || !ws->z) {
         mr__workspace_release(ws);
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }
@@ -43,6 +44,7 @@ void mr__workspace_release(mr__workspace *ws)
     mr__free(ws->scol);
     mr__free(ws->dd);
     mr__free(ws->bd);
+    mr__free(ws->bs);
     mr__free(ws->sd);
     mr__free(ws->eta);
     mr__free(ws->mu);
@@ -126,11 +128,16 @@ static void linear_predictor(const mr__irls_point *pt, const mr__block *blk, mr_
     for (j = 0; j < d->ndense; j++) ws->bd[j] = pt->beta[d->dense_col[j]];
     if (d->ndense)
         cblas_dgemv(CblasColMajor, CblasNoTrans, (int)n, (int)d->ndense, 1.0, ws->D, (int)n, ws->bd, 1, 1.0, ws->eta, 1);
+    /* Reference rows (column -1) pick the 0 in front of the shifted
+     * coefficients: no branch, whose outcome would be a coin toss for a
+     * two-level factor. */
+    ws->bs[0] = 0.0;
+    memcpy(ws->bs + 1, pt->beta, d->p * sizeof *ws->bs);
     for (s = 0; s < d->nsparse; s++) {
         const int32_t *col = ws->scol + s * n;
-        const double *val = ws->sval + s * n;
-        for (i = 0; i < n; i++)
-            if (col[i] >= 0) ws->eta[i] += val[i] * pt->beta[col[i]];
+        const double *val = ws->sval + s * n, *bs = ws->bs + 1;
+        double *eta = ws->eta;
+        for (i = 0; i < n; i++) eta[i] += val[i] * bs[col[i]];
     }
     mr__link_inv_n(pt->link, ws->eta, n, ws->mu, ws->mu_eta);
 }

@@ -32,6 +32,7 @@ typedef struct mr__block_sums {
 typedef struct mr__workspace {
     size_t p;
     double *D, *sval, *dd, *bd, *sd;
+    double *bs; /* 0, then the coefficients (linear_predictor) */
     int32_t *scol;
     double *eta, *mu, *mu_eta, *var, *dev, *w, *z;
 } mr__workspace;

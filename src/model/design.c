@@ -410,13 +410,20 @@ void mr__design_fill_split(const mr__design *d, const double *num, const int32_t
         const mr__term *t = &d->term[d->sparse_term[s]];
         int32_t *c = col + s * n;
         if (t->colmap == NULL) {
-            for (i = 0; i < n; i++) c[i] = term_entry(t, d->fac, num, lev, stride_rows, i, &val[s * n + i]);
+            for (i = 0; i < n; i++) {
+                c[i] = term_entry(t, d->fac, num, lev, stride_rows, i, &val[s * n + i]);
+                if (c[i] < 0) val[s * n + i] = 0.0;
+            }
             continue;
         }
         numeric_part(t, num, stride_rows, n, val + s * n);
         {
             const int32_t *l = lev + (size_t)t->fac[0] * stride_rows;
-            for (i = 0; i < n; i++) c[i] = t->colmap[l[i]];
+            double *v = val + s * n;
+            for (i = 0; i < n; i++) {
+                c[i] = t->colmap[l[i]];
+                v[i] = c[i] < 0 ? 0.0 : v[i];
+            }
         }
     }
 }

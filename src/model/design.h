@@ -77,7 +77,8 @@ void mr__design_fill(const mr__design *d, const double *num, const int32_t *lev,
 /* The same rows in the accumulation layout: D is n x ndense (column-major,
  * leading dimension n); for sparse term s and row i, col[s * n + i] is the
  * design column (-1 when the row has none, e.g. at a reference level) and
- * val[s * n + i] its value. */
+ * val[s * n + i] its value (0 where the column is -1, so sums need no
+ * branch). */
 void mr__design_fill_split(const mr__design *d, const double *num, const int32_t *lev, size_t stride_rows,
                            size_t n, double *D, int32_t *col, double *val);
 
