@@ -280,7 +280,8 @@ static void add_pattern(mr__decoder *d, double y, double prior, double off)
         sum[MR__PATTERN_C] = prior * y * y;
         sum[MR__PATTERN_D] = prior * mr__family_saturated_term(d->cfg->family, y);
     } else {
-        double e = exp(off);
+        /* an exposure alone is e itself: no exp(log(e)) per row */
+        double e = b->has_offset ? exp(off) : column_value(d, MR__USE_EXPOSURE, b->has_exposure, 1.0);
         sum[MR__PATTERN_A] = prior * e;
         sum[MR__PATTERN_B] = prior * y;
         sum[MR__PATTERN_C] = prior * y * y / e;
