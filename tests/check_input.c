@@ -512,7 +512,7 @@ static void log_row_end(void *user, uint32_t r, size_t nfields)
 static mr_status tokenize_logged(const mr__chunk *c, char delim, field_log *f, mr__error *err)
 {
     mr__tokenizer t;
-    mr__field_sink sink = {f, log_field, log_row_end, NULL, 0};
+    mr__field_sink sink = {f, log_field, log_row_end, NULL, 0, NULL};
     mr_status st;
     memset(f, 0, sizeof *f);
     f->order_ok = 1;
@@ -688,7 +688,7 @@ typedef struct {
 static mr__chunk *tokenize_full(void *user, mr__chunk *full, mr__error *err)
 {
     chunk_fields *cf = user;
-    mr__field_sink sink = {&cf->log, log_field, log_row_end, NULL, 0};
+    mr__field_sink sink = {&cf->log, log_field, log_row_end, NULL, 0, NULL};
     (void)err;
     cf->log.r = 0; /* row numbers restart in every chunk */
     if (cf->st == MR_OK) cf->st = mr__tokenize_chunk(&cf->tok, full, &sink, "corpus.csv", &cf->err);

@@ -315,40 +315,16 @@ static void on_row_end(void *user, uint32_t r, size_t nfields)
     memset(d->miss, 0, b->ncol);
 }
 
-/* A cell the quick path does not take: trimmed and decoded as the general
- * splitter would. */
-static void slow_cell(mr__decoder *d, size_t k, const char *s, const char *e)
+/* The plain splitter's quick path for numeric cells: parsed as they are
+ * scanned for the delimiter; anything unusual (blanks, missing tokens,
+ * exponents, bad numbers) is left to on_field, so both give the same rows. */
+static const char *quick_number(void *user, size_t k, const char *s, const char *e)
 {
-    while (s < e && mr__is_blank(*s, d->cfg->delim)) s++;
-    while (e > s && mr__is_blank(e[-1], d->cfg->delim)) e--;
-    on_field(d, k, s, (size_t)(e - s));
-}
-
-/* mr__plain_row and on_field fused for the common cells: a numeric cell
- * is parsed as it is scanned for the delimiter, and anything unusual
- * (blanks, missing tokens, exponents, bad numbers) takes the general path,
- * so both give the same rows. */
-static void plain_row_quick(mr__decoder *d, const char *s, const char *e, uint32_t r)
-{
+    mr__decoder *d = user;
     const mr__binding *b = d->cfg->bind;
-    const char delim = d->cfg->delim;
-    size_t k = 0;
-    if (e > s && e[-1] == '\n') e--;
-    if (e > s && e[-1] == '\r') e--;
-    for (;; k++) {
-        const char *q = s;
-        int col = k < b->nfields ? b->col_of_field[k] : -1;
-        if (col >= 0 && !d->stop && b->col[col].use != MR__USE_FACTOR && d->quick_numbers &&
-            (q = mr__parse_short_decimal(s, e, delim, &d->val[col])) != NULL) {
-            /* parsed */
-        } else {
-            for (q = s; q < e && *q != delim; q++) continue;
-            if (col >= 0) slow_cell(d, k, s, q);
-        }
-        if (q == e) break;
-        s = q + 1;
-    }
-    on_row_end(d, r, k + 1);
+    int col = k < b->nfields ? b->col_of_field[k] : -1;
+    if (col < 0 || d->stop || !d->quick_numbers || b->col[col].use == MR__USE_FACTOR) return NULL;
+    return mr__parse_short_decimal(s, e, d->cfg->delim, &d->val[col]);
 }
 
 static void check_collapsible(mr__decoder *d, const mr__block *blk)
@@ -361,7 +337,7 @@ static void check_collapsible(mr__decoder *d, const mr__block *blk)
 
 mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, mr__error *err)
 {
-    mr__field_sink sink = {d, on_field, on_row_end, d->wanted, d->cfg->bind->nfields};
+    mr__field_sink sink = {d, on_field, on_row_end, d->wanted, d->cfg->bind->nfields, quick_number};
     mr_status st;
     size_t k;
     blk->index = c->index;
@@ -382,7 +358,8 @@ mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, m
         /* The same splitter as mr__tokenize_chunk, with this file's
          * callbacks inlined into it. */
         uint32_t r;
-        for (r = 0; r < c->nrows; r++) plain_row_quick(d, c->data + c->row_start[r], c->data + c->row_start[r + 1], r);
+        for (r = 0; r < c->nrows; r++)
+            mr__plain_row(c->data + c->row_start[r], c->data + c->row_start[r + 1], d->cfg->delim, &sink, r);
         st = MR_OK;
     }
     if (st == MR_OK && d->stop && !blk->failed) st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");

@@ -127,7 +127,7 @@ mr_status mr__parse_header(const char *line, size_t len, char delim, char ***nam
     mr__chunk *c;
     mr__tokenizer t;
     header_state h = {NULL, 0, 0, 0};
-    mr__field_sink sink = {&h, on_header_field, on_header_end, NULL, 0};
+    mr__field_sink sink = {&h, on_header_field, on_header_end, NULL, 0, NULL};
     mr_status st;
     /* A UTF-8 byte order mark is not part of the first name. */
     if (len >= 3 && memcmp(line, "\xEF\xBB\xBF", 3) == 0) {

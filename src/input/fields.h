@@ -22,6 +22,12 @@ typedef struct mr__field_sink {
      * still counted); NULL, or k >= nwanted, means not wanted. */
     const unsigned char *wanted;
     size_t nwanted;
+    /* Optional, plain splitter only: offered wanted field k as the raw
+     * [s, e) of the rest of the row, it may take the cell whole and return
+     * where the cell ends (at the delimiter or e); or it returns NULL, and
+     * the cell goes to `field` trimmed.  A cell it takes must give what
+     * `field` would have made of it. */
+    const char *(*quick)(void *user, size_t k, const char *s, const char *e);
 } mr__field_sink;
 
 /* A tokenizer a worker owns; wraps a libcsv parser. */
@@ -46,14 +52,16 @@ static inline void mr__plain_row(const char *s, const char *e, char delim, const
     if (e > s && e[-1] == '\n') e--;
     if (e > s && e[-1] == '\r') e--;
     for (;;) {
-        const char *d = s, *fs = s, *fe;
+        const char *d, *fs = s, *fe;
         int want = sink->wanted == NULL || (k < sink->nwanted && sink->wanted[k]);
-        while (d < e && *d != delim) d++;
-        if (want) {
-            fe = d;
-            while (fs < fe && mr__is_blank(*fs, delim)) fs++;
-            while (fe > fs && mr__is_blank(fe[-1], delim)) fe--;
-            sink->field(sink->user, k, fs, (size_t)(fe - fs));
+        if (!want || sink->quick == NULL || (d = sink->quick(sink->user, k, s, e)) == NULL) {
+            for (d = s; d < e && *d != delim; d++) continue;
+            if (want) {
+                fe = d;
+                while (fs < fe && mr__is_blank(*fs, delim)) fs++;
+                while (fe > fs && mr__is_blank(fe[-1], delim)) fe--;
+                sink->field(sink->user, k, fs, (size_t)(fe - fs));
+            }
         }
         k++;
         if (d == e) break;
