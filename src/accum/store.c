@@ -86,25 +86,6 @@ static unsigned width_for(int64_t lo, int64_t hi)
     return W4;
 }
 
-/* The tag of the narrowest exact form of x[0..n); the first value that
- * does not fit ends a try, so raw columns cost a few values per scale. */
-static unsigned choose_form(const double *x, size_t n)
-{
-    int si;
-    for (si = 0; si < 4; si++) {
-        int64_t lo = 0, hi = 0;
-        size_t i;
-        for (i = 0; i < n; i++) {
-            double m = nearbyint(x[i] * scale_of[si]);
-            if (!(fabs(m) <= 2147483647.0) || !same_bits(from_int((int32_t)m, si), x[i])) break;
-            if ((int64_t)m < lo) lo = (int64_t)m;
-            if ((int64_t)m > hi) hi = (int64_t)m;
-        }
-        if (i == n) return width_for(lo, hi) | (unsigned)si << 4;
-    }
-    return RAW;
-}
-
 static void put_int(char *p, unsigned w, int32_t v)
 {
     int8_t b = (int8_t)v;
@@ -124,18 +105,40 @@ static int32_t get_int(const char *p, unsigned w)
     return memcpy(&v, p, 4), v;
 }
 
+/* Values 4 bytes apart at p become w bytes apart, in place (w <= 4, so no
+ * value is overwritten before it is read). */
+static void narrow(char *p, size_t n, unsigned w)
+{
+    size_t i;
+    for (i = 0; w != W4 && i < n; i++) put_int(p + i * w, w, get_int(p + i * W4, W4));
+}
+
+/* Tries each scale in turn, writing the integers as 4-byte values while it
+ * checks them; the first value that does not fit ends a try, so a raw
+ * column costs a few values per scale. */
 static size_t pack_doubles(const double *x, size_t n, char *out)
 {
-    unsigned tag = choose_form(x, n), w = tag & 15;
-    int si = (int)(tag >> 4);
-    size_t i;
-    out[0] = (char)tag;
-    if (w == RAW) {
-        memcpy(out + 1, x, n * sizeof *x);
-        return 1 + n * sizeof *x;
+    int si;
+    for (si = 0; si < 4; si++) {
+        int64_t lo = 0, hi = 0;
+        size_t i;
+        unsigned w;
+        for (i = 0; i < n; i++) {
+            double m = nearbyint(x[i] * scale_of[si]);
+            if (!(fabs(m) <= 2147483647.0) || !same_bits(from_int((int32_t)m, si), x[i])) break;
+            put_int(out + 1 + i * W4, W4, (int32_t)m);
+            if ((int64_t)m < lo) lo = (int64_t)m;
+            if ((int64_t)m > hi) hi = (int64_t)m;
+        }
+        if (i < n) continue;
+        w = width_for(lo, hi);
+        narrow(out + 1, n, w);
+        out[0] = (char)(w | (unsigned)si << 4);
+        return 1 + n * w;
     }
-    for (i = 0; i < n; i++) put_int(out + 1 + i * w, w, (int32_t)nearbyint(x[i] * scale_of[si]));
-    return 1 + n * w;
+    out[0] = RAW;
+    memcpy(out + 1, x, n * sizeof *x);
+    return 1 + n * sizeof *x;
 }
 
 static size_t unpack_doubles(const char *in, size_t n, double *x)
