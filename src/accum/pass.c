@@ -422,10 +422,8 @@ static void merge_patterns(const mr__pass_cfg *cfg, mr__pass_result *res, const 
     mr__pattern_merge_release(&res->patterns);
 }
 
-/* The first pass keeps its decoded blocks for the IRLS passes unless the
- * rows may still collapse into patterns (then the patterns replace them).
- * If collapsing is given up after some blocks went unkept, the store is
- * incomplete and the first IRLS pass decodes the file again. */
+/* The block as the store's next one: the bytes the worker packed, or the
+ * block itself (memory store, or a block packed by nobody). */
 static mr_status keep_block(const mr__pass_cfg *cfg, slot *s, mr__error *err)
 {
     mr__pattern_rows *patterns = s->block.patterns;
@@ -437,6 +435,10 @@ static mr_status keep_block(const mr__pass_cfg *cfg, slot *s, mr__error *err)
     return st;
 }
 
+/* The first pass keeps its decoded blocks for the IRLS passes unless the
+ * rows may still collapse into patterns (then the patterns replace them).
+ * If collapsing is given up after some blocks went unkept, the store is
+ * incomplete and the first IRLS pass decodes the file again. */
 static mr_status keep_scanned(const mr__pass_cfg *cfg, mr__pass_result *res, slot *s, mr__error *err)
 {
     if (res->collapsed || res->store_incomplete) {

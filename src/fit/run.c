@@ -356,26 +356,24 @@ static void release_pattern_values(pattern_values *v, size_t nfac, size_t nnum)
 
 static mr_status resolve_pattern_values(const mr__run *r, pattern_values *v, mr__error *err)
 {
-    const mr__pattern_merge *m = &r->first.patterns;
-    size_t k, j, nfac = r->bind.nfac;
+    const mr__levelset *set = r->first.patterns.values;
+    size_t k, j, nfac = r->bind.nfac, nnum = r->bind.nnum;
     v->level = mr__calloc(nfac + 1, sizeof *v->level);
-    v->value = mr__calloc(r->bind.nnum + 1, sizeof *v->value);
+    v->value = mr__calloc(nnum + 1, sizeof *v->value);
     if (v->level == NULL || v->value == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    for (k = 0; k < m->nkey; k++) {
-        const mr__levelset *set = &m->values[k];
-        if (k < nfac) v->level[k] = mr__malloc_array(set->n + 1, sizeof **v->level);
-        else v->value[k - nfac] = mr__malloc_array(set->n + 1, sizeof **v->value);
-        if (k < nfac ? v->level[k] == NULL : v->value[k - nfac] == NULL)
-            return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-        for (j = 0; j < set->n; j++) {
-            const mr__level_name *name = &set->name[j];
-            if (k >= nfac) {
-                memcpy(&v->value[k - nfac][j], name->str, sizeof(double));
-                continue;
-            }
-            v->level[k][j] = mr__levelset_find(&r->levels[k], name->str, name->len);
+    for (k = 0; k < nfac; k++) {
+        v->level[k] = mr__malloc_array(set[k].n + 1, sizeof **v->level);
+        if (v->level[k] == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        for (j = 0; j < set[k].n; j++) {
+            v->level[k][j] = mr__levelset_find(&r->levels[k], set[k].name[j].str, set[k].name[j].len);
             if (v->level[k][j] < 0) return mr__fail(err, MR_ERR_INTERNAL, "a pattern names an unknown level");
         }
+    }
+    for (k = 0; k < nnum; k++) { /* a numeric's values are kept as their 8 bytes */
+        const mr__levelset *nv = &set[nfac + k];
+        v->value[k] = mr__malloc_array(nv->n + 1, sizeof **v->value);
+        if (v->value[k] == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        for (j = 0; j < nv->n; j++) memcpy(&v->value[k][j], nv->name[j].str, sizeof(double));
     }
     return MR_OK;
 }
