@@ -116,44 +116,64 @@ static uint64_t *find_slot(const mr__pattern_table *t, uint64_t hash, const uint
     }
 }
 
-static int rehash(mr__pattern_table *t)
+/* Slots are rebuilt from the records, whose order alone matters. */
+static int rebuild_slots(mr__pattern_table *t, size_t cap)
 {
-    size_t cap = t->cap ? 2 * t->cap : 1024, i;
-    uint64_t *old = t->slot;
-    size_t old_cap = t->cap;
-    t->slot = mr__calloc(cap, sizeof *t->slot);
-    if (t->slot == NULL) {
-        t->slot = old;
-        return -1;
-    }
+    uint64_t *slot = mr__calloc(cap, sizeof *slot);
+    size_t i;
+    if (slot == NULL) return -1;
+    mr__free(t->slot);
+    t->slot = slot;
     t->cap = cap;
-    for (i = 0; i < old_cap; i++)
-        if (old[i]) {
-            const uint64_t *k = record(t, SLOT_RECORD(old[i]) - 1) + MR__PATTERN_SUMS;
-            *find_slot(t, hash_key(k, t->kwords), k) = old[i];
-        }
-    mr__free(old);
+    for (i = 0; i < t->n; i++) {
+        const uint64_t *k = record(t, i) + MR__PATTERN_SUMS;
+        uint64_t h = hash_key(k, t->kwords);
+        *find_slot(t, h, k) = SLOT_TAG(h) | (uint64_t)(uint32_t)(i + 1);
+    }
     return 0;
+}
+
+/* Slots for n patterns and the next one, at most half full. */
+static size_t slots_for(size_t n)
+{
+    size_t cap = 1024;
+    while (cap < 2 * (n + 1)) cap *= 2;
+    return cap;
+}
+
+/* A new pattern with zero sums: its record number, or -1 when out of
+ * memory. */
+static int64_t new_record(mr__pattern_table *t, const uint64_t *key)
+{
+    uint64_t *rec;
+    if (mr__reserve((void **)&t->rec, &t->rec_cap, (t->n + 1) * t->stride, sizeof *t->rec) != 0) return -1;
+    rec = record(t, t->n);
+    memset(rec, 0, MR__PATTERN_SUMS * sizeof *rec); /* all bits zero is +0.0 */
+    memcpy(rec + MR__PATTERN_SUMS, key, t->kwords * sizeof *key);
+    return (int64_t)t->n++;
+}
+
+static void add_sums(mr__pattern_table *t, size_t i, const double *sums)
+{
+    uint64_t *rec = record(t, i);
+    double acc[MR__PATTERN_SUMS];
+    size_t j;
+    memcpy(acc, rec, sizeof acc);
+    for (j = 0; j < MR__PATTERN_SUMS; j++) acc[j] += sums[j];
+    memcpy(rec, acc, sizeof acc);
 }
 
 static int table_add(mr__pattern_table *t, const uint64_t *key, uint64_t hash, const double *sums)
 {
-    uint64_t *s, *rec;
-    double acc[MR__PATTERN_SUMS];
-    size_t j;
-    if ((t->n + 1) * 2 > t->cap && rehash(t) != 0) return -1;
+    uint64_t *s;
+    if ((t->n + 1) * 2 > t->cap && rebuild_slots(t, slots_for(t->n)) != 0) return -1;
     s = find_slot(t, hash, key);
     if (*s == 0) {
-        if (mr__reserve((void **)&t->rec, &t->rec_cap, (t->n + 1) * t->stride, sizeof *t->rec) != 0) return -1;
-        rec = record(t, t->n);
-        memset(rec, 0, MR__PATTERN_SUMS * sizeof *rec); /* all bits zero is +0.0 */
-        memcpy(rec + MR__PATTERN_SUMS, key, t->kwords * sizeof *key);
-        *s = SLOT_TAG(hash) | (uint64_t)(uint32_t)++t->n;
+        int64_t i = new_record(t, key);
+        if (i < 0) return -1;
+        *s = SLOT_TAG(hash) | (uint64_t)(uint32_t)(i + 1);
     }
-    rec = record(t, SLOT_RECORD(*s) - 1);
-    memcpy(acc, rec, sizeof acc);
-    for (j = 0; j < MR__PATTERN_SUMS; j++) acc[j] += sums[j];
-    memcpy(rec, acc, sizeof acc);
+    add_sums(t, SLOT_RECORD(*s) - 1, sums);
     return 0;
 }
 
@@ -171,7 +191,9 @@ int mr__pattern_merge_init(mr__pattern_merge *m, size_t nkey, size_t nworkers)
     m->map_cap = mr__calloc(nworkers * nkey + 1, sizeof *m->map_cap);
     m->key = mr__calloc((size_t)MR__BLOCK_ROWS * m->table.kwords + 1, sizeof *m->key);
     m->hash = mr__calloc(MR__BLOCK_ROWS, sizeof *m->hash);
-    if (!m->values || !m->map || !m->map_cap || !m->key || !m->hash) {
+    m->bits = mr__calloc(nkey + 1, 1);
+    m->shift = mr__calloc(nkey + 1, 1);
+    if (!m->values || !m->map || !m->map_cap || !m->key || !m->hash || !m->bits || !m->shift) {
         mr__pattern_merge_release(m);
         return -1;
     }
@@ -189,6 +211,9 @@ void mr__pattern_merge_release(mr__pattern_merge *m)
     mr__free(m->map_cap);
     mr__free(m->key);
     mr__free(m->hash);
+    mr__free(m->dense);
+    mr__free(m->bits);
+    mr__free(m->shift);
     table_release(&m->table);
     memset(m, 0, sizeof *m);
 }
@@ -212,8 +237,58 @@ static int learn_values(mr__pattern_merge *m, int32_t worker, const mr__pattern_
     return 0;
 }
 
-/* The table is larger than the caches, so a row's slot and record are
- * fetched well before the row is added. */
+static unsigned bits_for(size_t count)
+{
+    unsigned b = 0;
+    while (((size_t)1 << b) < count) b++;
+    return b;
+}
+
+/* Lays the direct index out afresh when a key column has outgrown its
+ * bits, or hands over to the hash table for good when the cells would be
+ * too many.  Either way the records, hence every result, are untouched. */
+static int fit_dense(mr__pattern_merge *m)
+{
+    const mr__pattern_table *t = &m->table;
+    size_t k, i, total = 0;
+    int grown = 0;
+    for (k = 0; k < m->nkey; k++) {
+        unsigned b = bits_for(m->values[k].n);
+        if (b > m->bits[k]) {
+            m->bits[k] = (unsigned char)b;
+            grown = 1;
+        }
+        total += m->bits[k];
+    }
+    if (!grown && m->dense != NULL) return 0;
+    mr__free(m->dense);
+    m->dense = NULL;
+    if (total > MR__DENSE_MAX_BITS) {
+        m->hashed = 1;
+        return rebuild_slots(&m->table, slots_for(t->n));
+    }
+    if ((m->dense = mr__calloc((size_t)1 << total, sizeof *m->dense)) == NULL) return -1;
+    for (k = 0, total = 0; k < m->nkey; k++) {
+        m->shift[k] = (unsigned char)total;
+        total += m->bits[k];
+    }
+    for (i = 0; i < t->n; i++) {
+        size_t cell = 0;
+        for (k = 0; k < m->nkey; k++) cell |= (size_t)mr__pattern_id(t, i, k) << m->shift[k];
+        m->dense[cell] = (uint32_t)(i + 1);
+    }
+    return 0;
+}
+
+static void pack_key(const mr__pattern_merge *m, int32_t *const *map, const uint32_t *own, uint64_t *key)
+{
+    size_t k;
+    memset(key, 0, m->table.kwords * sizeof *key);
+    for (k = 0; k < m->nkey; k++) key[k / 2] |= (uint64_t)(uint32_t)map[k][own[k]] << (32 * (k & 1));
+}
+
+/* The pattern tables are larger than the caches, so a row's slot (or cell)
+ * and record are fetched well before the row is added. */
 enum { SLOT_AHEAD = 16, RECORD_AHEAD = 8 };
 
 static void prefetch_ahead(const mr__pattern_table *t, const uint64_t *hash, size_t i, size_t n)
@@ -226,24 +301,59 @@ static void prefetch_ahead(const mr__pattern_table *t, const uint64_t *hash, siz
     }
 }
 
-int mr__pattern_merge_add(mr__pattern_merge *m, int32_t worker, const mr__pattern_rows *rows)
+static int add_hashed(mr__pattern_merge *m, int32_t *const *map, const mr__pattern_rows *rows)
 {
-    int32_t *const *map = m->map + (size_t)worker * m->nkey;
-    size_t i, k, kw = m->table.kwords;
-    if (learn_values(m, worker, rows) != 0) return -1;
+    size_t i, kw = m->table.kwords;
     for (i = 0; i < rows->n; i++) {
-        const uint32_t *own = rows->ids + i * m->nkey;
-        uint64_t *key = m->key + i * kw;
-        memset(key, 0, kw * sizeof *key);
-        for (k = 0; k < m->nkey; k++) key[k / 2] |= (uint64_t)(uint32_t)map[k][own[k]] << (32 * (k & 1));
-        m->hash[i] = hash_key(key, kw);
+        pack_key(m, map, rows->ids + i * m->nkey, m->key + i * kw);
+        m->hash[i] = hash_key(m->key + i * kw, kw);
     }
-    if (m->table.cap == 0 && rehash(&m->table) != 0) return -1;
     for (i = 0; i < rows->n; i++) {
         prefetch_ahead(&m->table, m->hash, i, rows->n);
         if (table_add(&m->table, m->key + i * kw, m->hash[i], rows->sums + i * MR__PATTERN_SUMS) != 0) return -1;
     }
     return 0;
+}
+
+static void prefetch_cell(const mr__pattern_merge *m, const uint64_t *cell, size_t i, size_t n)
+{
+    if (i + SLOT_AHEAD < n) __builtin_prefetch(&m->dense[cell[i + SLOT_AHEAD]]);
+    if (i + RECORD_AHEAD < n) {
+        uint32_t r = m->dense[cell[i + RECORD_AHEAD]];
+        if (r != 0) __builtin_prefetch(record(&m->table, r - 1));
+    }
+}
+
+static int add_dense(mr__pattern_merge *m, int32_t *const *map, const mr__pattern_rows *rows)
+{
+    uint64_t *cell = m->hash;
+    size_t i, k;
+    for (i = 0; i < rows->n; i++) {
+        const uint32_t *own = rows->ids + i * m->nkey;
+        uint64_t c = 0;
+        for (k = 0; k < m->nkey; k++) c |= (uint64_t)(uint32_t)map[k][own[k]] << m->shift[k];
+        cell[i] = c;
+    }
+    for (i = 0; i < rows->n; i++) {
+        uint32_t *at = &m->dense[cell[i]];
+        prefetch_cell(m, cell, i, rows->n);
+        if (*at == 0) {
+            int64_t r;
+            pack_key(m, map, rows->ids + i * m->nkey, m->key);
+            if ((r = new_record(&m->table, m->key)) < 0) return -1;
+            *at = (uint32_t)(r + 1);
+        }
+        add_sums(&m->table, *at - 1, rows->sums + i * MR__PATTERN_SUMS);
+    }
+    return 0;
+}
+
+int mr__pattern_merge_add(mr__pattern_merge *m, int32_t worker, const mr__pattern_rows *rows)
+{
+    int32_t *const *map = m->map + (size_t)worker * m->nkey;
+    if (learn_values(m, worker, rows) != 0) return -1;
+    if (!m->hashed && fit_dense(m) != 0) return -1;
+    return m->hashed ? add_hashed(m, map, rows) : add_dense(m, map, rows);
 }
 
 int mr__few_distinct(const double *x, size_t n, size_t limit)

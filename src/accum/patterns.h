@@ -76,13 +76,25 @@ typedef struct mr__pattern_table {
 void mr__pattern_sums(const mr__pattern_table *t, size_t i, double out[MR__PATTERN_SUMS]);
 uint32_t mr__pattern_id(const mr__pattern_table *t, size_t i, size_t k);
 
+/* A direct index of up to 2^21 cells (8 MiB) replaces the hash table
+ * while the key columns' value counts, each rounded up to a power of two,
+ * multiply to no more than that. */
+#define MR__DENSE_MAX_BITS 21
+
 /* The merge on the calling thread. */
 typedef struct mr__pattern_merge {
     size_t nkey, nworkers;
     mr__levelset *values; /* per key column, numbered by first appearance */
     int32_t **map;        /* [worker * nkey + k]: worker's number -> global */
     size_t *map_cap;
-    uint64_t *key, *hash; /* scratch: a block's packed keys and their hashes */
+    uint64_t *key, *hash; /* scratch: a block's packed keys and their hashes
+                             (with the direct index: its cells) */
+    /* The direct index: cell = sum of global number k << shift[k], holding
+     * record number + 1 (0 = no such pattern yet).  NULL once the hash
+     * table has taken over for good. */
+    uint32_t *dense;
+    unsigned char *bits, *shift;
+    int hashed;
     mr__pattern_table table;
 } mr__pattern_merge;
 
