@@ -27,7 +27,7 @@ typedef struct slot {
 } slot;
 
 typedef struct worker {
-    struct engine *e;
+    _Alignas(64) struct engine *e; /* a worker's state starts a cache line */
     pthread_t thread;
     int started;
     mr__decoder dec;
@@ -37,7 +37,12 @@ typedef struct worker {
 typedef struct engine {
     const mr__pass_cfg *cfg;
     pthread_mutex_t mu;
-    pthread_cond_t cv;
+    /* One condition per kind of waiter, each signalled only when that
+     * waiter can go on: a wake-up costs more than the work of many rows on
+     * a virtual machine. */
+    pthread_cond_t slot_free;   /* the reader */
+    pthread_cond_t slot_filled; /* the workers */
+    pthread_cond_t slot_done;   /* the calling thread */
     slot *slots;
     size_t W;
     uint64_t next_take;     /* next block a worker may take */
@@ -71,7 +76,7 @@ static double now_seconds(void)
 static slot *claim_slot(engine *e, uint64_t index)
 {
     slot *s = &e->slots[index % e->W];
-    while (!e->abort && (s->state != SLOT_FREE || index >= e->next_combine + e->W)) pthread_cond_wait(&e->cv, &e->mu);
+    while (!e->abort && (s->state != SLOT_FREE || index >= e->next_combine + e->W)) pthread_cond_wait(&e->slot_free, &e->mu);
     if (e->abort) return NULL;
     s->state = SLOT_FILLING;
     s->index = index;
@@ -83,7 +88,7 @@ static void publish(engine *e, slot *s)
     pthread_mutex_lock(&e->mu);
     s->state = SLOT_FILLED;
     e->emitted = s->index + 1;
-    pthread_cond_broadcast(&e->cv);
+    pthread_cond_signal(&e->slot_filled);
     pthread_mutex_unlock(&e->mu);
 }
 
@@ -160,7 +165,8 @@ static void *reader_main(void *arg)
     e->reader_done = 1;
     e->reader_st = st;
     e->reader_err = err;
-    pthread_cond_broadcast(&e->cv);
+    pthread_cond_broadcast(&e->slot_filled);
+    pthread_cond_signal(&e->slot_done);
     pthread_mutex_unlock(&e->mu);
     return NULL;
 }
@@ -209,7 +215,7 @@ static void *worker_main(void *arg)
             if (e->abort) break;
             if (e->next_take < e->emitted && s->state == SLOT_FILLED && s->index == e->next_take) break;
             if (e->reader_done && e->next_take >= e->emitted) break;
-            pthread_cond_wait(&e->cv, &e->mu);
+            pthread_cond_wait(&e->slot_filled, &e->mu);
         }
         if (e->abort || (e->reader_done && e->next_take >= e->emitted)) {
             pthread_mutex_unlock(&e->mu);
@@ -221,7 +227,7 @@ static void *worker_main(void *arg)
         compute(w, s);
         pthread_mutex_lock(&e->mu);
         s->state = SLOT_DONE;
-        pthread_cond_broadcast(&e->cv);
+        if (s->index == e->next_combine) pthread_cond_signal(&e->slot_done);
         pthread_mutex_unlock(&e->mu);
     }
 }
@@ -272,7 +278,8 @@ static void release_slots(engine *e)
 static mr_status start_workers(engine *e, mr__error *err)
 {
     size_t i;
-    e->workers = mr__calloc(e->nworkers, sizeof *e->workers);
+    /* each worker's decoder state is written for every row */
+    e->workers = mr__calloc_lines(e->nworkers, sizeof *e->workers);
     if (e->workers == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     for (i = 0; i < e->nworkers; i++) {
         worker *w = &e->workers[i];
@@ -290,18 +297,25 @@ static mr_status start_workers(engine *e, mr__error *err)
     return MR_OK;
 }
 
+static void wake_everyone(engine *e)
+{
+    pthread_cond_broadcast(&e->slot_free);
+    pthread_cond_broadcast(&e->slot_filled);
+    pthread_cond_broadcast(&e->slot_done);
+}
+
 static void stop_threads(engine *e)
 {
     size_t i;
     pthread_mutex_lock(&e->mu);
     if (!e->reader_done || e->next_combine < e->emitted) e->abort = 1;
-    pthread_cond_broadcast(&e->cv);
+    wake_everyone(e);
     pthread_mutex_unlock(&e->mu);
     if (e->reader_started) pthread_join(e->reader, NULL);
     e->reader_started = 0;
     pthread_mutex_lock(&e->mu);
     e->abort = 1;
-    pthread_cond_broadcast(&e->cv);
+    wake_everyone(e);
     pthread_mutex_unlock(&e->mu);
     for (i = 0; e->workers && i < e->nworkers; i++)
         if (e->workers[i].started) pthread_join(e->workers[i].thread, NULL);
@@ -482,7 +496,7 @@ static mr_status combine_all(engine *e, mr__pass_result *res, double t0, mr__err
             s = &e->slots[e->next_combine % e->W];
             if (s->state == SLOT_DONE && s->index == e->next_combine) break;
             if (e->reader_done && e->next_combine >= e->emitted) break;
-            pthread_cond_wait(&e->cv, &e->mu);
+            pthread_cond_wait(&e->slot_done, &e->mu);
         }
         if (!(s->state == SLOT_DONE && s->index == e->next_combine)) {
             pthread_mutex_unlock(&e->mu);
@@ -496,7 +510,7 @@ static mr_status combine_all(engine *e, mr__pass_result *res, double t0, mr__err
         s->state = SLOT_FREE;
         s->use = NULL;
         e->next_combine++;
-        pthread_cond_broadcast(&e->cv);
+        pthread_cond_signal(&e->slot_free);
         pthread_mutex_unlock(&e->mu);
         report_progress(e, s, t0, &last, 0);
     }
@@ -556,7 +570,9 @@ static void release_engine(engine *e)
     mr__source_close(e->src);
     mr__free(e->buf);
     pthread_mutex_destroy(&e->mu);
-    pthread_cond_destroy(&e->cv);
+    pthread_cond_destroy(&e->slot_free);
+    pthread_cond_destroy(&e->slot_filled);
+    pthread_cond_destroy(&e->slot_done);
 }
 
 mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error *err)
@@ -569,7 +585,9 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     e.nworkers = cfg->nthreads > 0 ? (size_t)cfg->nthreads : 1;
     e.W = 2 * e.nworkers + 2;
     pthread_mutex_init(&e.mu, NULL);
-    pthread_cond_init(&e.cv, NULL);
+    pthread_cond_init(&e.slot_free, NULL);
+    pthread_cond_init(&e.slot_filled, NULL);
+    pthread_cond_init(&e.slot_done, NULL);
     st = init_result(cfg, res, err);
     if (st == MR_OK) st = (cfg->store && !cfg->store_fill) ? init_slots(&e, err) : begin_stream(&e, err);
     if (st == MR_OK && cfg->kind == MR__PASS_SCAN)

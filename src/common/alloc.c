@@ -38,6 +38,15 @@ void *mr__aligned_alloc(size_t size)
     return should_fail() ? NULL : aligned_alloc(64, bytes ? bytes : 64);
 }
 
+void *mr__calloc_lines(size_t count, size_t size)
+{
+    void *p;
+    if (size != 0 && count > SIZE_MAX / size - 64) return NULL;
+    p = mr__aligned_alloc(count * size);
+    if (p != NULL) memset(p, 0, (count * size + 63) / 64 * 64);
+    return p;
+}
+
 void *mr__malloc_array(size_t count, size_t size)
 {
     if (size != 0 && count > SIZE_MAX / size) return NULL;

@@ -12,6 +12,9 @@ void mr__free(void *p);
 char *mr__strdup(const char *s);
 /* 64-byte aligned memory (size rounded up), freed with mr__free. */
 void *mr__aligned_alloc(size_t size);
+/* Zeroed, and on cache lines of its own: for what one thread writes
+ * often, so that no other thread's data shares its lines. */
+void *mr__calloc_lines(size_t count, size_t size);
 
 #ifdef MR_ALLOC_FAILURE_TESTS
 /* Test builds only: the allocation after the next n fails (n < 0: none

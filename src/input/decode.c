@@ -61,12 +61,13 @@ mr_status mr__decoder_init(mr__decoder *d, const mr__decode_cfg *cfg, mr__error 
     memset(d, 0, sizeof *d);
     d->cfg = cfg;
     d->np = mr__numparser_new();
-    d->val = mr__calloc(b->ncol, sizeof *d->val);
-    d->lev = mr__calloc(b->ncol, sizeof *d->lev);
-    d->miss = mr__calloc(b->ncol, 1);
-    if (cfg->levels == NULL) d->local = mr__calloc(b->nfac ? b->nfac : 1, sizeof *d->local);
+    /* A worker writes these for every cell: lines of their own. */
+    d->val = mr__calloc_lines(b->ncol, sizeof *d->val);
+    d->lev = mr__calloc_lines(b->ncol, sizeof *d->lev);
+    d->miss = mr__calloc_lines(b->ncol, 1);
+    if (cfg->levels == NULL) d->local = mr__calloc_lines(b->nfac ? b->nfac : 1, sizeof *d->local);
     if (cfg->levels == NULL && cfg->collapse) {
-        d->numvals = mr__calloc(b->nnum ? b->nnum : 1, sizeof *d->numvals);
+        d->numvals = mr__calloc_lines(b->nnum ? b->nnum : 1, sizeof *d->numvals);
         d->keysets = mr__calloc(b->nfac + b->nnum + 1, sizeof *d->keysets);
     }
     d->wanted = mr__calloc(b->nfields + 1, 1);

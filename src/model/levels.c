@@ -5,30 +5,44 @@
 #include "model/levels.h"
 
 /* Levels are met once a cell, so the common short ones are compared as
- * one word and hashed from it, with no call to memcmp. */
+ * one word and hashed from it, with no call to memcmp.  The word must be
+ * the same for the same bytes and differ for other bytes of the same
+ * length; two overlapping loads give that on a little-endian machine. */
 static uint64_t head_of(const char *p, size_t len)
 {
     uint64_t w = 0;
-    size_t i;
     if (len >= 8) { /* numeric values are kept as their 8 bytes */
         memcpy(&w, p, 8);
         return w;
     }
-    for (i = 0; i < len; i++) w |= (uint64_t)(unsigned char)p[i] << (8 * i);
+#if defined(__BYTE_ORDER__) && __BYTE_ORDER__ == __ORDER_LITTLE_ENDIAN__
+    if (len >= 4) {
+        uint32_t lo, hi;
+        memcpy(&lo, p, 4);
+        memcpy(&hi, p + len - 4, 4);
+        return (uint64_t)lo | (uint64_t)hi << (8 * (len - 4));
+    }
+    if (len == 0) return 0;
+    return (uint64_t)(unsigned char)p[0] | (uint64_t)(unsigned char)p[len / 2] << (8 * (len / 2)) |
+           (uint64_t)(unsigned char)p[len - 1] << (8 * (len - 1));
+#else
+    for (size_t i = 0; i < len; i++) w |= (uint64_t)(unsigned char)p[i] << (8 * i);
     return w;
+#endif
 }
 
-/* Every input bit reaches the low bits the table uses (numeric values,
- * kept as their 8 bytes, differ only in their high bits). */
+/* One multiplication; the table takes its slot from the top bits, which
+ * every input bit reaches (numeric values, kept as their 8 bytes, differ
+ * only in their high bits). */
 static uint64_t hash_of(uint64_t head, const char *p, size_t len)
 {
     uint64_t h = head ^ ((uint64_t)len << 59);
     size_t i;
     for (i = 8; i < len; i++) h = (h ^ (unsigned char)p[i]) * 0x100000001b3ULL;
-    h = (h ^ (h >> 33)) * 0xff51afd7ed558ccdULL;
-    h = (h ^ (h >> 33)) * 0xc4ceb9fe1a85ec53ULL;
-    return h ^ (h >> 33);
+    return h * 0x9e3779b97f4a7c15ULL;
 }
+
+static size_t home_slot(const mr__levelset *s, uint64_t h) { return (size_t)(h >> (64 - __builtin_ctzll(s->cap))); }
 
 void mr__levelset_init(mr__levelset *s) { memset(s, 0, sizeof *s); }
 
@@ -43,7 +57,7 @@ void mr__levelset_release(mr__levelset *s)
 
 static inline mr__level_entry *probe(const mr__levelset *s, uint64_t h, uint64_t head, const char *p, size_t len)
 {
-    size_t mask = s->cap - 1, i = (size_t)h & mask;
+    size_t mask = s->cap - 1, i = home_slot(s, h);
     for (;;) {
         mr__level_entry *e = &s->slot[i];
         if (e->str == NULL) return e;
