@@ -291,10 +291,24 @@ static mr__chunk *collect(void *user, mr__chunk *full, mr__error *err)
     return next;
 }
 
+/* Feeds a piece of data rows.  in_place: copies it first into the room
+ * mr__splitter_reserve gives at the end of the chunk, as the reader does
+ * (the splitter then takes whole rows without a copy). */
+static mr_status feed_rows(mr__splitter *sp, const char *p, size_t k, int in_place, size_t *used, collector *col,
+                           mr__error *err)
+{
+    char *at;
+    if (!in_place) return mr__splitter_feed(sp, p, k, used, collect, col, err);
+    if ((at = mr__splitter_reserve(sp, k, err)) == NULL) return MR_ERR_NO_MEMORY;
+    memcpy(at, p, k);
+    return mr__splitter_feed(sp, at, k, used, collect, col, err);
+}
+
 /* piece > 0: pieces of that size; piece == 0: random sizes in 1..maxrand.
  * Check's assertions write to a pipe each time they run, so the loop only
  * tests and aborts on a failure. */
-static void split_corpus(const corpus *cp, size_t piece, size_t maxrand, uint64_t seed, collector *col)
+static void split_corpus_as(const corpus *cp, size_t piece, size_t maxrand, uint64_t seed, int in_place,
+                            collector *col)
 {
     mr__splitter sp;
     mr__chunk *a = new_chunk(), *b = new_chunk();
@@ -309,14 +323,15 @@ static void split_corpus(const corpus *cp, size_t piece, size_t maxrand, uint64_
     while (pos < n) {
         size_t k = piece ? piece : 1 + rng_below(&r, maxrand), used;
         if (k > n - pos) k = n - pos;
-        if (mr__splitter_feed(&sp, cp->text.p + pos, k, &used, collect, col, &err) != MR_OK)
-            ck_abort_msg("feed at byte %zu: %s", pos, err.msg);
+        mr_status st = sp.cur == NULL ? mr__splitter_feed(&sp, cp->text.p + pos, k, &used, collect, col, &err)
+                                      : feed_rows(&sp, cp->text.p + pos, k, in_place, &used, col, &err);
+        if (st != MR_OK) ck_abort_msg("feed at byte %zu: %s", pos, err.msg);
         if (!sp.want_header && sp.cur == NULL) {
             /* rowsplit.h: the feed stops right after the header. */
             mr__splitter_start_chunk(&sp, a);
             if (used < k) {
                 size_t rest;
-                if (mr__splitter_feed(&sp, cp->text.p + pos + used, k - used, &rest, collect, col, &err) != MR_OK)
+                if (feed_rows(&sp, cp->text.p + pos + used, k - used, in_place, &rest, col, &err) != MR_OK)
                     ck_abort_msg("feed after the header: %s", err.msg);
                 if (rest != k - used) ck_abort_msg("data feed took %zu of %zu bytes", rest, k - used);
             }
@@ -332,6 +347,11 @@ static void split_corpus(const corpus *cp, size_t piece, size_t maxrand, uint64_
     mr__splitter_release(&sp);
     free_chunk(a);
     free_chunk(b);
+}
+
+static void split_corpus(const corpus *cp, size_t piece, size_t maxrand, uint64_t seed, collector *col)
+{
+    split_corpus_as(cp, piece, maxrand, seed, 0, col);
 }
 
 static void expect_all_rows(const collector *col, const corpus *cp, const char *how, size_t piece)
@@ -353,6 +373,8 @@ START_TEST(test_split_every_piece_size)
     for (piece = 1; piece <= 64; piece++) {
         split_corpus(&cp, piece, 0, 0, &col);
         expect_all_rows(&col, &cp, "piece size", piece);
+        split_corpus_as(&cp, piece, 0, 0, 1, &col);
+        expect_all_rows(&col, &cp, "piece size, read in place", piece);
     }
     free_corpus(&cp);
 }
@@ -369,9 +391,11 @@ START_TEST(test_split_large_and_random_pieces)
     for (i = 0; i < sizeof fixed / sizeof fixed[0]; i++) {
         split_corpus(&cp, fixed[i], 0, 0, &col);
         expect_all_rows(&col, &cp, "piece size", fixed[i]);
+        split_corpus_as(&cp, fixed[i], 0, 0, 1, &col);
+        expect_all_rows(&col, &cp, "piece size, read in place", fixed[i]);
     }
     for (i = 0; i < runs; i++) {
-        split_corpus(&cp, 0, i % 2 ? 300 : 20000, 1000 + i, &col);
+        split_corpus_as(&cp, 0, i % 2 ? 300 : 20000, 1000 + i, (int)(i / 2 % 2), &col);
         expect_all_rows(&col, &cp, "random pieces, seed", 1000 + i);
     }
     free_corpus(&cp);

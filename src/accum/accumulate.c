@@ -142,9 +142,30 @@ static void linear_predictor(const mr__irls_point *pt, const mr__block *blk, mr_
     mr__link_inv_n(pt->link, ws->eta, n, ws->mu, ws->mu_eta);
 }
 
+/* Without an offset the null model's eta is one number: its mean, weight
+ * and variance are worked out once (the same expressions, so the same
+ * bits as row by row). */
+static void null_model_constant(const mr__irls_point *pt, const mr__block *blk, mr__block_sums *out)
+{
+    double eta = pt->null_intercept ? pt->null_b0 : 0.0;
+    double mu = mr__link_inv(pt->link, eta), me = mr__link_mu_eta(pt->link, eta);
+    double var = mr__family_variance(pt->family, mu);
+    uint32_t i;
+    for (i = 0; i < blk->n; i++) {
+        double prior = blk->prior ? blk->prior[i] : 1.0, w = prior * me * me / var;
+        out->null_dev += prior * mr__family_unit_deviance(pt->family, blk->y[i], mu);
+        out->null_sw += w;
+        out->null_swz += w * (eta + (blk->y[i] - mu) / me);
+    }
+}
+
 static void null_model_rows(const mr__irls_point *pt, const mr__block *blk, mr__block_sums *out)
 {
     uint32_t i;
+    if (blk->off == NULL) {
+        null_model_constant(pt, blk, out);
+        return;
+    }
     for (i = 0; i < blk->n; i++) {
         double off = blk->off ? blk->off[i] : 0.0, prior = blk->prior ? blk->prior[i] : 1.0;
         double eta = (pt->null_intercept ? pt->null_b0 : 0.0) + off;

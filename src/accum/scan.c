@@ -126,6 +126,8 @@ double mr__loglik_constant(int family, double y, double w, double t, int has_tri
         m = has_trials ? t : w;
         c = has_trials ? w : 1.0;
         if (m <= 0) return 0.0;
+        /* one binary trial: every term is an exact zero */
+        if (m == 1 && c == 1 && (y == 0 || y == 1)) return 0.0;
         k = m * y;
         return c * (log_gamma(m + 1) - log_gamma(k + 1) - log_gamma(m - k + 1) + xlogy(k, y) + xlogy(m - k, 1 - y));
     }

@@ -1,4 +1,7 @@
 #include <string.h>
+#if defined(__SSE2__)
+#include <emmintrin.h>
+#endif
 
 #include "common/alloc.h"
 #include "input/rowsplit.h"
@@ -151,6 +154,45 @@ static mr_status feed_quoted(mr__splitter *sp, const char **pp, const char *end,
     return MR_OK;
 }
 
+/* Rows are short: a call to memchr per row costs more than the search. */
+static const char *find_newline(const char *p, const char *end)
+{
+#if defined(__SSE2__)
+    const __m128i nl = _mm_set1_epi8('\n');
+    while (end - p >= 16) {
+        int hits = _mm_movemask_epi8(_mm_cmpeq_epi8(_mm_loadu_si128((const __m128i *)(const void *)p), nl));
+        if (hits != 0) return p + __builtin_ctz((unsigned)hits);
+        p += 16;
+    }
+#endif
+    return memchr(p, '\n', (size_t)(end - p));
+}
+
+static int may_be_blank(char c) { return c == '\r' || c == '\n' || c == ' ' || c == '\t'; }
+
+/* The common case: rows read straight into the chunk, and no quote in the
+ * buffer, so only their ends need finding.  Everything else is left to
+ * the general loop in mr__splitter_feed: the row that completes the
+ * chunk, a row that may be blank or is too long, bytes not in place. */
+static const char *take_rows_in_place(mr__splitter *sp, const char *p, const char *end)
+{
+    mr__chunk *c = sp->cur;
+    if (sp->want_header || sp->in_quote || c == NULL || p != c->data + c->len) return p;
+    while (c->nrows + 1 < MR__BLOCK_ROWS) {
+        const char *nl = find_newline(p, end), *row = c->data + c->row_start[c->nrows];
+        if (nl == NULL || may_be_blank(*row) || (size_t)(nl + 1 - row) > MR__MAX_ROW_BYTES) break;
+        c->row_line[c->nrows] = (uint32_t)(sp->row_line - c->first_line);
+        c->nrows++;
+        c->len = (size_t)(nl + 1 - c->data);
+        c->row_start[c->nrows] = c->len;
+        sp->rows++;
+        sp->line++;
+        sp->row_line = sp->line;
+        p = nl + 1;
+    }
+    return p;
+}
+
 mr_status mr__splitter_feed(mr__splitter *sp, const char *p, size_t n, size_t *used, mr__chunk_sink sink,
                             void *user, mr__error *err)
 {
@@ -163,6 +205,7 @@ mr_status mr__splitter_feed(mr__splitter *sp, const char *p, size_t n, size_t *u
     while (p < end) {
         const char *nl, *q;
         size_t span;
+        if (!quotes && (p = take_rows_in_place(sp, p, end)) == end) break;
         if (sp->in_quote) {
             MR__TRY(feed_quoted(sp, &p, end, err));
             continue;
