@@ -60,26 +60,27 @@ static void table_init(mr__pattern_table *t, size_t nkey)
     memset(t, 0, sizeof *t);
     t->nkey = nkey;
     t->kwords = (nkey + 1) / 2;
-    t->stride = MR__PATTERN_SUMS + t->kwords;
 }
 
 static void table_release(mr__pattern_table *t)
 {
     mr__free(t->slot);
-    mr__free(t->rec);
+    mr__free(t->sums);
+    mr__free(t->keys);
     table_init(t, t->nkey);
 }
 
-static uint64_t *record(const mr__pattern_table *t, size_t i) { return t->rec + i * t->stride; }
+static double *sums_of(const mr__pattern_table *t, size_t i) { return t->sums + i * MR__PATTERN_SUMS; }
+static const uint64_t *key_of(const mr__pattern_table *t, size_t i) { return t->keys + i * t->kwords; }
 
 void mr__pattern_sums(const mr__pattern_table *t, size_t i, double out[MR__PATTERN_SUMS])
 {
-    memcpy(out, record(t, i), MR__PATTERN_SUMS * sizeof *out);
+    memcpy(out, sums_of(t, i), MR__PATTERN_SUMS * sizeof *out);
 }
 
 uint32_t mr__pattern_id(const mr__pattern_table *t, size_t i, size_t k)
 {
-    return (uint32_t)(record(t, i)[MR__PATTERN_SUMS + k / 2] >> (32 * (k & 1)));
+    return (uint32_t)(key_of(t, i)[k / 2] >> (32 * (k & 1)));
 }
 
 static uint64_t hash_key(const uint64_t *key, size_t n)
@@ -108,7 +109,7 @@ static uint64_t *find_slot(const mr__pattern_table *t, uint64_t hash, const uint
         uint64_t *s = &t->slot[i];
         if (*s == 0) return s;
         if (SLOT_TAG(*s) == SLOT_TAG(hash)) {
-            const uint64_t *k = record(t, SLOT_RECORD(*s) - 1) + MR__PATTERN_SUMS;
+            const uint64_t *k = key_of(t, SLOT_RECORD(*s) - 1);
             for (w = 0; w < t->kwords && k[w] == key[w]; w++) continue;
             if (w == t->kwords) return s;
         }
@@ -126,7 +127,7 @@ static int rebuild_slots(mr__pattern_table *t, size_t cap)
     t->slot = slot;
     t->cap = cap;
     for (i = 0; i < t->n; i++) {
-        const uint64_t *k = record(t, i) + MR__PATTERN_SUMS;
+        const uint64_t *k = key_of(t, i);
         uint64_t h = hash_key(k, t->kwords);
         *find_slot(t, h, k) = SLOT_TAG(h) | (uint64_t)(uint32_t)(i + 1);
     }
@@ -143,24 +144,42 @@ static size_t slots_for(size_t n)
 
 /* A new pattern with zero sums: its record number, or -1 when out of
  * memory. */
+/* Doubles the room of both arrays; the sums stay 64-byte aligned. */
+static int grow_records(mr__pattern_table *t)
+{
+    size_t room = t->room ? 2 * t->room : 4096;
+    double *sums = mr__aligned_alloc(room * MR__PATTERN_SUMS * sizeof *sums);
+    uint64_t *keys = mr__malloc_array(room * (t->kwords ? t->kwords : 1), sizeof *keys);
+    if (sums == NULL || keys == NULL) {
+        mr__free(sums);
+        mr__free(keys);
+        return -1;
+    }
+    if (t->n > 0) {
+        memcpy(sums, t->sums, t->n * MR__PATTERN_SUMS * sizeof *sums);
+        memcpy(keys, t->keys, t->n * t->kwords * sizeof *keys);
+    }
+    mr__free(t->sums);
+    mr__free(t->keys);
+    t->sums = sums;
+    t->keys = keys;
+    t->room = room;
+    return 0;
+}
+
 static int64_t new_record(mr__pattern_table *t, const uint64_t *key)
 {
-    uint64_t *rec;
-    if (mr__reserve((void **)&t->rec, &t->rec_cap, (t->n + 1) * t->stride, sizeof *t->rec) != 0) return -1;
-    rec = record(t, t->n);
-    memset(rec, 0, MR__PATTERN_SUMS * sizeof *rec); /* all bits zero is +0.0 */
-    memcpy(rec + MR__PATTERN_SUMS, key, t->kwords * sizeof *key);
+    if (t->n == t->room && grow_records(t) != 0) return -1;
+    memset(sums_of(t, t->n), 0, MR__PATTERN_SUMS * sizeof(double)); /* all bits zero is +0.0 */
+    memcpy(t->keys + t->n * t->kwords, key, t->kwords * sizeof *key);
     return (int64_t)t->n++;
 }
 
 static void add_sums(mr__pattern_table *t, size_t i, const double *sums)
 {
-    uint64_t *rec = record(t, i);
-    double acc[MR__PATTERN_SUMS];
+    double *acc = sums_of(t, i);
     size_t j;
-    memcpy(acc, rec, sizeof acc);
     for (j = 0; j < MR__PATTERN_SUMS; j++) acc[j] += sums[j];
-    memcpy(rec, acc, sizeof acc);
 }
 
 static int table_add(mr__pattern_table *t, const uint64_t *key, uint64_t hash, const double *sums)
@@ -297,7 +316,7 @@ static void prefetch_ahead(const mr__pattern_table *t, const uint64_t *hash, siz
     if (i + SLOT_AHEAD < n) __builtin_prefetch(&t->slot[hash[i + SLOT_AHEAD] & mask]);
     if (i + RECORD_AHEAD < n) {
         uint64_t s = t->slot[hash[i + RECORD_AHEAD] & mask];
-        if (s != 0) __builtin_prefetch(record(t, SLOT_RECORD(s) - 1) + MR__PATTERN_SUMS);
+        if (s != 0) __builtin_prefetch(key_of(t, SLOT_RECORD(s) - 1));
     }
 }
 
@@ -320,7 +339,7 @@ static void prefetch_cell(const mr__pattern_merge *m, const uint64_t *cell, size
     if (i + SLOT_AHEAD < n) __builtin_prefetch(&m->dense[cell[i + SLOT_AHEAD]]);
     if (i + RECORD_AHEAD < n) {
         uint32_t r = m->dense[cell[i + RECORD_AHEAD]];
-        if (r != 0) __builtin_prefetch(record(&m->table, r - 1));
+        if (r != 0) __builtin_prefetch(sums_of(&m->table, r - 1), 1);
     }
 }
 

@@ -62,14 +62,17 @@ void mr__pattern_rows_begin(mr__pattern_rows *r, const mr__levelset *const *sets
 /* Ends a block: lists the values the sets gained.  -1 when out of memory. */
 int mr__pattern_rows_end(mr__pattern_rows *r, const mr__levelset *const *sets);
 
-/* The distinct patterns, in order of first appearance.  A record is the
- * four sums and the key's global numbers packed two to a 64-bit word. */
+/* The distinct patterns, in order of first appearance: each one's four
+ * sums (32 bytes, on a 64-byte boundary every other pattern, so never
+ * across two cache lines), and apart from them its key, the global
+ * numbers packed two to a 64-bit word. */
 typedef struct mr__pattern_table {
-    size_t nkey, kwords, stride; /* stride = MR__PATTERN_SUMS + kwords words */
-    uint64_t *slot;              /* hash tag | record + 1; 0 = empty */
+    size_t nkey, kwords;
+    uint64_t *slot;              /* hash tag | pattern + 1; 0 = empty */
     size_t cap, n;
-    uint64_t *rec;
-    size_t rec_cap;              /* in words */
+    double *sums;                /* MR__PATTERN_SUMS per pattern */
+    uint64_t *keys;              /* kwords per pattern */
+    size_t room;                 /* patterns the two arrays hold */
 } mr__pattern_table;
 
 /* Pattern i's sums, and the global number of its key column k. */
