@@ -197,7 +197,10 @@ static void compute(worker *w, slot *s)
         s->st = mr__decode_chunk(&w->dec, s->chunk, &s->block, &s->err);
         s->use = &s->block;
         if (s->st != MR_OK || s->block.failed) return;
-        if (worth_packing(cfg)) s->packed_len = mr__store_pack(&s->block, b, s->packed);
+        if (worth_packing(cfg)) {
+            mr__block_settle_offsets(&s->block);
+            s->packed_len = mr__store_pack(&s->block, b, s->packed);
+        }
     }
     if (cfg->kind == MR__PASS_SCAN) mr__scan_block(s->use, b->ncol, b->nnum, &s->scan);
     else mr__accumulate_block(cfg->point, s->use, &w->ws, &s->sums);
@@ -443,6 +446,7 @@ static mr_status keep_block(const mr__pass_cfg *cfg, slot *s, mr__error *err)
     mr__pattern_rows *patterns = s->block.patterns;
     mr_status st;
     if (s->packed_len > 0) return mr__store_append(cfg->store, s->packed, s->packed_len, err);
+    mr__block_settle_offsets(&s->block);
     s->block.patterns = NULL; /* the slot keeps its pattern rows */
     st = mr__store_keep(cfg->store, &s->block, cfg->dcfg->bind, err);
     s->block.patterns = patterns;

@@ -69,12 +69,8 @@ void mr__scan_block(const mr__block *blk, size_t ncol, size_t nnum, mr__scan_sum
         s->llc += blk->llc[i];
         s->npos += w > 0;
     }
-    /* Only the null model's start with an offset needs these. */
-    for (i = 0; blk->off && i < blk->n; i++) {
-        double w = blk->prior ? blk->prior[i] : 1.0;
-        s->swe += w * exp(blk->off[i]);
-        s->swoff += w * blk->off[i];
-    }
+    s->swe = blk->swe;
+    s->swoff = blk->swoff;
 }
 
 void mr__scan_add(mr__scan_sums *into, const mr__scan_sums *from, size_t ncol, size_t nnum)

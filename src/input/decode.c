@@ -41,6 +41,14 @@ void mr__block_release(mr__block *b)
     memset(b, 0, sizeof *b);
 }
 
+void mr__block_settle_offsets(mr__block *b)
+{
+    uint32_t i;
+    if (!b->off_is_exposure) return;
+    for (i = 0; i < b->n; i++) b->off[i] = log(b->off[i]);
+    b->off_is_exposure = 0;
+}
+
 /* A missing token that reads as a number ("-1", "999") must be tested for
  * before a cell is parsed, which the quick path does not do. */
 static int numeric_missing_token(const mr__decode_cfg *cfg)
@@ -73,6 +81,7 @@ mr_status mr__decoder_init(mr__decoder *d, const mr__decode_cfg *cfg, mr__error 
     d->wanted = mr__calloc(b->nfields + 1, 1);
     for (f = 0; d->wanted && f < b->nfields; f++) d->wanted[f] = b->col_of_field[f] >= 0;
     d->quick_numbers = !numeric_missing_token(cfg);
+    d->defer_offset = cfg->levels == NULL && cfg->collapse == 2 && b->has_exposure && !b->has_offset;
     if (!d->np || !d->val || !d->lev || !d->miss || !d->wanted || (cfg->levels == NULL && !d->local) ||
         (cfg->levels == NULL && cfg->collapse && (!d->numvals || !d->keysets))) {
         mr__decoder_release(d);
@@ -205,7 +214,8 @@ static void finish_row_values(mr__decoder *d, double *y, double *prior, double *
         domain_problem(d, MR__USE_OUTCOME, why);
     }
     *prior = w * t;
-    if (b->has_exposure) *off += log(e);
+    d->row_exposure = e;
+    if (b->has_exposure) *off = d->defer_offset ? e : *off + log(e);
     if (d->cfg->levels == NULL) d->row_llc = mr__loglik_constant(d->cfg->family, *y, w, t, b->has_trials);
 }
 
@@ -247,6 +257,13 @@ static void store_row(mr__decoder *d, double y, double prior, double off)
     size_t k;
     blk->y[i] = y;
     blk->llc[i] = d->row_llc;
+    if (b->has_exposure || b->has_offset) {
+        /* an exposure alone is e^offset itself: no exp(log(e)) per row;
+         * a deferred offset is only ever wanted with a log link, which
+         * starts from swe alone */
+        blk->swe += prior * (b->has_offset ? exp(off) : d->row_exposure);
+        if (!d->defer_offset) blk->swoff += prior * off;
+    }
     if (blk->prior) blk->prior[i] = prior;
     if (blk->off) blk->off[i] = off;
     for (k = 0; k < b->nnum; k++) blk->num[k * MR__BLOCK_ROWS + i] = d->val[b->num_col[k]];
@@ -281,8 +298,9 @@ static void add_pattern(mr__decoder *d, double y, double prior, double off)
         sum[MR__PATTERN_C] = prior * y * y;
         sum[MR__PATTERN_D] = prior * mr__family_saturated_term(d->cfg->family, y);
     } else {
-        /* an exposure alone is e itself: no exp(log(e)) per row */
-        double e = b->has_offset ? exp(off) : column_value(d, MR__USE_EXPOSURE, b->has_exposure, 1.0);
+        double e = b->has_offset ? exp(off) : d->row_exposure;
+        /* a deferred offset matters only where y > 0 (y * off is +0) */
+        if (d->defer_offset) off = y != 0 ? log(e) : 0.0;
         sum[MR__PATTERN_A] = prior * e;
         sum[MR__PATTERN_B] = prior * y;
         sum[MR__PATTERN_C] = prior * y * y / e;
@@ -344,6 +362,8 @@ mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, m
     blk->index = c->index;
     blk->worker = d->worker;
     blk->nread = blk->n = blk->incomplete = blk->nbad = blk->nbad_shown = 0;
+    blk->swe = blk->swoff = 0;
+    blk->off_is_exposure = d->defer_offset;
     blk->failed = 0;
     mr__error_clear(&blk->err);
     for (k = 0; k < d->cfg->bind->ncol; k++) blk->missing[k] = 0;

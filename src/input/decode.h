@@ -37,11 +37,17 @@ typedef struct mr__block {
     double *y;     /* outcome; a proportion for binomial */
     double *prior; /* prior weight (weight x trials); NULL = all 1 */
     double *off;   /* offset + log(exposure); NULL = none */
+    /* off holds the exposure itself (its log deferred, see mr__decoder)
+     * until mr__block_settle_offsets. */
+    int off_is_exposure;
     double *num;
     int32_t *lev;
     /* First pass only: each kept row's share of the log-likelihood terms
-     * that depend on the data alone (see accum/scan.c). */
+     * that depend on the data alone (see accum/scan.c), and the block's
+     * sums of w e^offset and w offset for the null model's start (the
+     * latter left at 0 when the offset is deferred, see mr__decoder). */
     double *llc;
+    double swe, swoff;
     /* Collapsed patterns only: per-pattern Pearson correction (see
      * accum/patterns.h); NULL otherwise. */
     double *extra;
@@ -57,6 +63,8 @@ typedef struct mr__block {
 
 mr_status mr__block_init(mr__block *b, const mr__binding *bind, mr__error *err);
 void mr__block_release(mr__block *b);
+/* Takes the deferred logs, if any: for a block about to be kept. */
+void mr__block_settle_offsets(mr__block *b);
 
 typedef struct mr__decode_cfg {
     const mr__binding *bind;
@@ -88,6 +96,12 @@ typedef struct mr__decoder {
     unsigned char *miss;
     unsigned char *wanted; /* per field: does the model use it */
     int quick_numbers;     /* numeric cells may take the inline parser */
+    /* First pass, poisson log-link patterns with an exposure alone: the
+     * patterns need log(exposure) only for rows with events, and a block
+     * is kept for later passes only when collapsing was given up early, so
+     * the block keeps the exposure and the log is taken only when needed. */
+    int defer_offset;
+    double row_exposure;
     int row_bad;
     mr_status row_status;
     size_t bad_field;

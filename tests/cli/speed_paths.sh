@@ -343,4 +343,33 @@ fit bin_rows binomial "${strict[@]}" --no-collapse "$zst"
 compare collapse_binomial close bin_rows bin_collapsed 1e-11 \
     --expect "other:convergence.passes==1" --expect "ref:convergence.passes>1"
 
+# ---- (7) collapsing given up after the first block -------------------------
+# Source of truth: --no-cache, where every IRLS pass decodes the file
+# afresh.  Age is whole years in the first 20,000 rows, so the first block
+# may still collapse and defers its rows' log(exposure); the second block
+# gives collapsing up, and whichever blocks the cache then keeps must carry
+# the same offsets as a fresh decode.
+"$py" - "$tmp/data.csv" "$tmp/late.csv" <<'EOF'
+import csv, sys
+with open(sys.argv[1], newline="") as src, open(sys.argv[2], "w", newline="") as dst:
+    rows = csv.reader(src)
+    out = csv.writer(dst, lineterminator="\n")
+    header = next(rows)
+    out.writerow(header)
+    age = header.index("age")
+    for i, row in enumerate(rows):
+        if i < 20000:
+            row[age] = str(int(float(row[age])))
+        out.writerow(row)
+EOF
+cp "$tmp/case_a.model" "$tmp/late.model"
+echo 'numeric age' >> "$tmp/late.model"
+fit late_nocache late --no-cache "$tmp/late.csv"
+for t in 1 2 3; do
+    fit "late_t$t" late --threads "$t" "$tmp/late.csv"
+    compare "late_give_up_t$t" exact late_nocache "late_t$t" --expect "other:convergence.passes>1"
+done
+fit late_memory late --in-memory "$tmp/late.csv"
+compare late_give_up_in_memory exact late_nocache late_memory --expect "other:options.in_memory==true"
+
 finish
