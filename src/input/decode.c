@@ -79,10 +79,14 @@ mr_status mr__decoder_init(mr__decoder *d, const mr__decode_cfg *cfg, mr__error 
         d->keysets = mr__calloc(b->nfac + b->nnum + 1, sizeof *d->keysets);
     }
     d->wanted = mr__calloc(b->nfields + 1, 1);
-    for (f = 0; d->wanted && f < b->nfields; f++) d->wanted[f] = b->col_of_field[f] >= 0;
-    d->quick_numbers = !numeric_missing_token(cfg);
+    d->quick = mr__calloc(b->nfields + 1, 1);
+    for (f = 0; d->wanted && d->quick && f < b->nfields; f++) {
+        int col = b->col_of_field[f];
+        d->wanted[f] = col >= 0;
+        d->quick[f] = col >= 0 && b->col[col].use != MR__USE_FACTOR && !numeric_missing_token(cfg);
+    }
     d->defer_offset = cfg->levels == NULL && cfg->collapse == 2 && b->has_exposure && !b->has_offset;
-    if (!d->np || !d->val || !d->lev || !d->miss || !d->wanted || (cfg->levels == NULL && !d->local) ||
+    if (!d->np || !d->val || !d->lev || !d->miss || !d->wanted || !d->quick || (cfg->levels == NULL && !d->local) ||
         (cfg->levels == NULL && cfg->collapse && (!d->numvals || !d->keysets))) {
         mr__decoder_release(d);
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
@@ -111,6 +115,7 @@ void mr__decoder_release(mr__decoder *d)
     mr__free(d->lev);
     mr__free(d->miss);
     mr__free(d->wanted);
+    mr__free(d->quick);
     memset(d, 0, sizeof *d);
 }
 
@@ -158,6 +163,7 @@ static void on_field(void *user, size_t k, const char *p, size_t len)
     if (col < 0) return;
     if (is_missing(d->cfg, p, len)) {
         d->miss[col] = 1;
+        d->row_missing = 1;
         return;
     }
     if (d->cfg->bind->col[col].use == MR__USE_FACTOR) {
@@ -322,7 +328,7 @@ static void on_row_end(void *user, uint32_t r, size_t nfields)
         snprintf(d->row_msg, sizeof d->row_msg, "%zu: expected %zu fields as in the header, found %zu",
                  nfields < b->nfields ? nfields : b->nfields + 1, b->nfields, nfields);
     }
-    if (!d->row_bad && !any_missing(d)) {
+    if (!d->row_bad && !(d->row_missing && any_missing(d))) {
         finish_row_values(d, &y, &prior, &off);
         if (!d->row_bad) store_row(d, y, prior, off);
         if (!d->row_bad && d->blk->patterns) add_pattern(d, y, prior, off);
@@ -331,7 +337,8 @@ static void on_row_end(void *user, uint32_t r, size_t nfields)
     }
     if (d->row_bad) record_bad(d, r, d->row_msg);
     d->row_bad = 0;
-    memset(d->miss, 0, b->ncol);
+    if (d->row_missing) memset(d->miss, 0, b->ncol);
+    d->row_missing = 0;
 }
 
 /* The plain splitter's quick path for numeric cells: parsed as they are
@@ -341,9 +348,8 @@ static const char *quick_number(void *user, size_t k, const char *s, const char 
 {
     mr__decoder *d = user;
     const mr__binding *b = d->cfg->bind;
-    int col = k < b->nfields ? b->col_of_field[k] : -1;
-    if (col < 0 || d->stop || !d->quick_numbers || b->col[col].use == MR__USE_FACTOR) return NULL;
-    return mr__parse_short_decimal(s, e, d->cfg->delim, &d->val[col]);
+    if (k >= b->nfields || !d->quick[k] || d->stop) return NULL;
+    return mr__parse_short_decimal(s, e, d->cfg->delim, &d->val[b->col_of_field[k]]);
 }
 
 static void check_collapsible(mr__decoder *d, const mr__block *blk)
@@ -372,6 +378,7 @@ mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, m
     d->chunk = c;
     d->stop = 0;
     d->row_bad = 0;
+    d->row_missing = 0;
     memset(d->miss, 0, d->cfg->bind->ncol);
     if (c->has_quote) {
         st = mr__tokenize_chunk(&d->tok, c, &sink, d->cfg->display, err);

@@ -95,7 +95,8 @@ typedef struct mr__decoder {
     int32_t *lev;
     unsigned char *miss;
     unsigned char *wanted; /* per field: does the model use it */
-    int quick_numbers;     /* numeric cells may take the inline parser */
+    unsigned char *quick;  /* per field: a numeric cell the inline parser may take */
+    int row_missing;       /* some miss[] is set for the current row */
     /* First pass, poisson log-link patterns with an exposure alone: the
      * patterns need log(exposure) only for rows with events, and a block
      * is kept for later passes only when collapsing was given up early, so
