@@ -132,26 +132,20 @@ static mr_status read_stream(engine *e, mr__error *err)
     return mr__splitter_finish(&e->sp, on_full_chunk, e, err);
 }
 
-static mr_status replay_store(engine *e, mr__error *err)
+/* Replaying kept blocks needs no reader: each worker takes the next block
+ * number itself and loads that block, so a block changes hands once (to
+ * the calling thread) instead of three times. */
+static int replaying(const mr__pass_cfg *cfg) { return cfg->store != NULL && !cfg->store_fill; }
+
+static void load_kept_block(const mr__store *store, slot *s)
 {
-    size_t i;
-    for (i = 0; i < e->cfg->store->n; i++) {
-        slot *s;
-        pthread_mutex_lock(&e->mu);
-        s = claim_slot(e, i);
-        pthread_mutex_unlock(&e->mu);
-        if (s == NULL) return mr__fail(err, MR_ERR_INTERNAL, "pass abandoned");
-        const mr__store *store = e->cfg->store;
-        if (store->fd < 0) {
-            s->use = &store->block[i];
-        } else {
-            MR__TRY(mr__store_read(store, i, s->packed, err));
-            s->from_store = 1; /* the worker unpacks it */
-        }
-        s->raw_bytes = 0;
-        publish(e, s);
+    s->raw_bytes = 0;
+    if (store->fd < 0) {
+        s->use = &store->block[s->index];
+        return;
     }
-    return MR_OK;
+    s->st = mr__store_read(store, s->index, s->packed, &s->err);
+    s->from_store = s->st == MR_OK; /* compute() unpacks it */
 }
 
 static void *reader_main(void *arg)
@@ -160,7 +154,7 @@ static void *reader_main(void *arg)
     mr__error err;
     mr_status st;
     mr__error_clear(&err);
-    st = e->cfg->store && !e->cfg->store_fill ? replay_store(e, &err) : read_stream(e, &err);
+    st = read_stream(e, &err);
     pthread_mutex_lock(&e->mu);
     e->reader_done = 1;
     e->reader_st = st;
@@ -206,6 +200,22 @@ static void compute(worker *w, slot *s)
     else mr__accumulate_block(cfg->point, s->use, &w->ws, &s->sums);
 }
 
+/* The next kept block for this worker: its slot, claimed, or NULL when
+ * there is none left.  Called with the lock held. */
+static slot *take_kept_block(engine *e)
+{
+    for (;;) {
+        slot *s = &e->slots[e->next_take % e->W];
+        if (e->abort || e->next_take >= e->emitted) return NULL;
+        if (s->state == SLOT_FREE && e->next_take < e->next_combine + e->W) {
+            s->state = SLOT_BUSY;
+            s->index = e->next_take++;
+            return s;
+        }
+        pthread_cond_wait(&e->slot_free, &e->mu);
+    }
+}
+
 static void *worker_main(void *arg)
 {
     worker *w = arg;
@@ -213,6 +223,19 @@ static void *worker_main(void *arg)
     for (;;) {
         slot *s;
         pthread_mutex_lock(&e->mu);
+        if (replaying(e->cfg)) {
+            s = take_kept_block(e);
+            pthread_mutex_unlock(&e->mu);
+            if (s == NULL) return NULL;
+            s->st = MR_OK;
+            load_kept_block(e->cfg->store, s);
+            if (s->st == MR_OK) compute(w, s);
+            pthread_mutex_lock(&e->mu);
+            s->state = SLOT_DONE;
+            if (s->index == e->next_combine) pthread_cond_signal(&e->slot_done);
+            pthread_mutex_unlock(&e->mu);
+            continue;
+        }
         for (;;) {
             s = &e->slots[e->next_take % e->W];
             if (e->abort) break;
@@ -514,7 +537,8 @@ static mr_status combine_all(engine *e, mr__pass_result *res, double t0, mr__err
         s->state = SLOT_FREE;
         s->use = NULL;
         e->next_combine++;
-        pthread_cond_signal(&e->slot_free);
+        if (replaying(e->cfg)) pthread_cond_broadcast(&e->slot_free);
+        else pthread_cond_signal(&e->slot_free);
         pthread_mutex_unlock(&e->mu);
         report_progress(e, s, t0, &last, 0);
     }
@@ -593,15 +617,19 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     pthread_cond_init(&e.slot_filled, NULL);
     pthread_cond_init(&e.slot_done, NULL);
     st = init_result(cfg, res, err);
-    if (st == MR_OK) st = (cfg->store && !cfg->store_fill) ? init_slots(&e, err) : begin_stream(&e, err);
+    if (st == MR_OK) st = replaying(cfg) ? init_slots(&e, err) : begin_stream(&e, err);
     if (st == MR_OK && cfg->kind == MR__PASS_SCAN)
         st = mr__scan_init(&res->scan, cfg->dcfg->bind->ncol, cfg->dcfg->bind->nnum, err);
     /* the columns are bound now that the header is read */
     if (st == MR_OK && res->collapsed &&
         mr__pattern_merge_init(&res->patterns, cfg->dcfg->bind->nfac + cfg->dcfg->bind->nnum, e.nworkers) != 0)
         st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    if (st == MR_OK && replaying(cfg)) {
+        e.emitted = cfg->store->n;
+        e.reader_done = 1;
+    }
     if (st == MR_OK) st = start_workers(&e, err);
-    if (st == MR_OK) {
+    if (st == MR_OK && !replaying(cfg)) {
         if (pthread_create(&e.reader, NULL, reader_main, &e) != 0)
             st = mr__fail(err, MR_ERR_INTERNAL, "cannot start the reader thread");
         else e.reader_started = 1;
