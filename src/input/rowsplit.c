@@ -67,7 +67,10 @@ static mr_status append(mr__splitter *sp, const char *p, size_t n, mr__error *er
         *buf = q;
         *cap = nc;
     }
-    memcpy(*buf + *len, p, n);
+    /* After a blank row is dropped, bytes read in place lie further on in
+     * this very buffer: the ranges may overlap (and the buffer is not
+     * reallocated, those bytes being within its size already). */
+    memmove(*buf + *len, p, n);
     *len += n;
     return MR_OK;
 }
