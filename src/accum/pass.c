@@ -19,9 +19,10 @@ typedef struct slot {
     mr__scan_sums scan;
     mr__block_sums sums;
     uint64_t raw_bytes;      /* input consumed when the chunk was complete */
-    char *packed;            /* file store: the block in its packed form */
+    char *packed;            /* the block in its packed form (file store, sample) */
     size_t packed_len;       /* 0: nothing packed */
-    int from_store;          /* packed holds a block read back from the store */
+    const char *kept;        /* a kept block to unpack (in packed or in the store) */
+    size_t kept_index;       /* its number in the store */
     mr_status st;
     mr__error err;
 } slot;
@@ -49,6 +50,7 @@ typedef struct engine {
     uint64_t next_combine;  /* next block to add */
     uint64_t emitted;       /* blocks handed over by the reader */
     uint64_t rows_done;     /* rows in the blocks added so far */
+    atomic_uint_fast64_t sample_stride; /* first pass: blocks it divides are packed for the sample */
     int reader_done, abort;
     mr_status reader_st;
     mr__error reader_err;
@@ -137,15 +139,21 @@ static mr_status read_stream(engine *e, mr__error *err)
  * the calling thread) instead of three times. */
 static int replaying(const mr__pass_cfg *cfg) { return cfg->store != NULL && !cfg->store_fill; }
 
-static void load_kept_block(const mr__store *store, slot *s)
+static size_t replay_stride(const mr__pass_cfg *cfg) { return cfg->replay_stride > 1 ? cfg->replay_stride : 1; }
+
+static void load_kept_block(const mr__pass_cfg *cfg, slot *s)
 {
+    const mr__store *store = cfg->store;
     s->raw_bytes = 0;
-    if (store->fd < 0) {
-        s->use = &store->block[s->index];
-        return;
+    s->kept_index = (size_t)s->index * replay_stride(cfg);
+    if (store->packed) {
+        s->kept = mr__store_packed(store, s->kept_index); /* compute() unpacks it */
+    } else if (store->fd < 0) {
+        s->use = &store->block[s->kept_index];
+    } else {
+        s->st = mr__store_read(store, s->kept_index, s->packed, &s->err);
+        if (s->st == MR_OK) s->kept = s->packed;
     }
-    s->st = mr__store_read(store, s->index, s->packed, &s->err);
-    s->from_store = s->st == MR_OK; /* compute() unpacks it */
 }
 
 static void *reader_main(void *arg)
@@ -176,6 +184,13 @@ static int worth_packing(const mr__pass_cfg *cfg)
     return cfg->kind == MR__PASS_IRLS || !cfg->dcfg->collapse || atomic_load(cfg->dcfg->collapse_abandoned);
 }
 
+/* Whether the first pass's block may go into the sample.  The stride only
+ * doubles, so a block the calling thread will want was packed. */
+static int sample_candidate(engine *e, const slot *s)
+{
+    return e->cfg->kind == MR__PASS_SCAN && s->index % atomic_load(&e->sample_stride) == 0;
+}
+
 static void compute(worker *w, slot *s)
 {
     const mr__pass_cfg *cfg = w->e->cfg;
@@ -183,15 +198,15 @@ static void compute(worker *w, slot *s)
     s->st = MR_OK;
     s->packed_len = 0;
     mr__error_clear(&s->err);
-    if (s->from_store) {
-        mr__store_unpack(cfg->store, s->packed, s->index, b, &s->block);
+    if (s->kept) {
+        mr__store_unpack(cfg->store, s->kept, s->kept_index, b, &s->block);
         s->use = &s->block;
-        s->from_store = 0;
+        s->kept = NULL;
     } else if (s->use == NULL) {
         s->st = mr__decode_chunk(&w->dec, s->chunk, &s->block, &s->err);
         s->use = &s->block;
         if (s->st != MR_OK || s->block.failed) return;
-        if (worth_packing(cfg)) {
+        if (worth_packing(cfg) || sample_candidate(w->e, s)) {
             mr__block_settle_offsets(&s->block);
             s->packed_len = mr__store_pack(&s->block, b, s->packed);
         }
@@ -228,7 +243,7 @@ static void *worker_main(void *arg)
             pthread_mutex_unlock(&e->mu);
             if (s == NULL) return NULL;
             s->st = MR_OK;
-            load_kept_block(e->cfg->store, s);
+            load_kept_block(e->cfg, s);
             if (s->st == MR_OK) compute(w, s);
             pthread_mutex_lock(&e->mu);
             s->state = SLOT_DONE;
@@ -272,7 +287,8 @@ static mr_status init_slots(engine *e, mr__error *err)
         s->chunk = mr__calloc(1, sizeof *s->chunk);
         if (s->chunk == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
         MR__TRY(mr__block_init(&s->block, b, err));
-        if (cfg->store && cfg->store->fd >= 0 && (s->packed = mr__malloc(mr__store_pack_bound(b))) == NULL)
+        if (((cfg->store && cfg->store->fd >= 0) || cfg->kind == MR__PASS_SCAN) &&
+            (s->packed = mr__malloc(mr__store_pack_bound(b))) == NULL)
             return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
         if (cfg->kind == MR__PASS_SCAN && cfg->dcfg->collapse) {
             s->block.patterns = mr__calloc(1, sizeof *s->block.patterns);
@@ -402,51 +418,20 @@ static void report_progress(engine *e, const slot *s, double t0, double *last, i
     cfg->progress(&pr, cfg->progress_user);
 }
 
-static void free_sample_chunk(mr__chunk *c)
-{
-    if (c == NULL) return;
-    mr__free(c->data);
-    mr__free(c);
-}
-
-void mr__pass_result_drop_sample(mr__pass_result *res, size_t i)
-{
-    free_sample_chunk(res->sample[i]);
-    res->sample[i] = NULL;
-}
-
 /* Keeps every stride-th block; when the sample is full, every other kept
  * block goes and the stride doubles.  Only block numbers decide, so the
  * sample is the same whatever the threads or read size. */
-static mr_status keep_sample(mr__pass_result *res, const mr__chunk *c, mr__error *err)
+static mr_status keep_sample(engine *e, mr__pass_result *res, const slot *s, mr__error *err)
 {
-    mr__chunk *copy;
-    size_t i, k;
-    if (c->index % res->sample_stride != 0) return MR_OK;
-    if (res->nsample == MR__SAMPLE_BLOCKS) {
-        for (i = k = 0; i < res->nsample; i++) {
-            if (res->sample[i]->index % (2 * res->sample_stride) == 0) {
-                res->sample[k++] = res->sample[i];
-            } else {
-                free_sample_chunk(res->sample[i]);
-            }
-        }
-        res->nsample = k;
+    if (s->index % res->sample_stride != 0) return MR_OK;
+    if (res->sample.n == MR__SAMPLE_BLOCKS) {
+        mr__store_drop_odd(&res->sample);
         res->sample_stride *= 2;
-        if (c->index % res->sample_stride != 0) return MR_OK;
+        atomic_store(&e->sample_stride, res->sample_stride);
+        if (s->index % res->sample_stride != 0) return MR_OK;
     }
-    copy = mr__malloc(sizeof *copy);
-    if (copy == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    *copy = *c;
-    copy->data = mr__malloc(c->len ? c->len : 1);
-    if (copy->data == NULL) {
-        mr__free(copy);
-        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    }
-    memcpy(copy->data, c->data, c->len);
-    copy->cap = c->len;
-    res->sample[res->nsample++] = copy;
-    return MR_OK;
+    if (s->packed_len == 0) return mr__fail(err, MR_ERR_INTERNAL, "a sample block was not packed");
+    return mr__store_add_packed(&res->sample, s->packed, s->packed_len, err);
 }
 
 /* Too many patterns, or no memory for them: fall back to passes over the
@@ -468,7 +453,7 @@ static mr_status keep_block(const mr__pass_cfg *cfg, slot *s, mr__error *err)
 {
     mr__pattern_rows *patterns = s->block.patterns;
     mr_status st;
-    if (s->packed_len > 0) return mr__store_append(cfg->store, s->packed, s->packed_len, err);
+    if (s->packed_len > 0 && cfg->store->fd >= 0) return mr__store_append(cfg->store, s->packed, s->packed_len, err);
     mr__block_settle_offsets(&s->block);
     s->block.patterns = NULL; /* the slot keeps its pattern rows */
     st = mr__store_keep(cfg->store, &s->block, cfg->dcfg->bind, err);
@@ -505,7 +490,7 @@ static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *
         mr__scan_add(&res->scan, &s->scan, cfg->dcfg->bind->ncol, cfg->dcfg->bind->nnum);
         if (res->collapsed) merge_patterns(cfg, res, &s->block);
         if (cfg->store) MR__TRY(keep_scanned(cfg, res, s, err));
-        return keep_sample(res, s->chunk, err);
+        return keep_sample(e, res, s, err);
     }
     mr__sums_add(&res->sums, &s->sums, cfg->p);
     if (cfg->store && cfg->store_fill) st = keep_block(cfg, s, err);
@@ -554,10 +539,10 @@ static mr_status init_result(const mr__pass_cfg *cfg, mr__pass_result *res, mr__
 {
     memset(res, 0, sizeof *res);
     res->sample_stride = 1;
+    mr__store_init_packed(&res->sample);
     if (cfg->kind == MR__PASS_SCAN) {
         res->collapsed = cfg->dcfg->collapse != 0;
-        res->sample = mr__calloc(MR__SAMPLE_BLOCKS, sizeof *res->sample);
-        return res->sample ? MR_OK : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        return MR_OK;
     }
     return mr__sums_init(&res->sums, cfg->p, err);
 }
@@ -624,8 +609,9 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     if (st == MR_OK && res->collapsed &&
         mr__pattern_merge_init(&res->patterns, cfg->dcfg->bind->nfac + cfg->dcfg->bind->nnum, e.nworkers) != 0)
         st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    atomic_init(&e.sample_stride, 1);
     if (st == MR_OK && replaying(cfg)) {
-        e.emitted = cfg->store->n;
+        e.emitted = (cfg->store->n + replay_stride(cfg) - 1) / replay_stride(cfg);
         e.reader_done = 1;
     }
     if (st == MR_OK) st = start_workers(&e, err);
@@ -654,8 +640,8 @@ void mr__pass_result_release(mr__pass_result *res, size_t nfac)
         mr__free(res->worker_levels[i]);
     }
     mr__free(res->worker_levels);
-    for (i = 0; i < res->nsample; i++) free_sample_chunk(res->sample[i]);
-    mr__free(res->sample);
+    /* a result zeroed and never run has no sample (and fd 0 is not ours) */
+    if (res->sample.packed) mr__store_release(&res->sample);
     mr__pattern_merge_release(&res->patterns);
     mr__scan_release(&res->scan);
     mr__sums_release(&res->sums);

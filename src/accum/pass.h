@@ -44,6 +44,7 @@ typedef struct mr__pass_cfg {
     mr__store *store;     /* NULL, or kept blocks (memory or cache file) */
     int store_fill;       /* 1: keep decoded blocks in store; 0 with store: replay it.
                              The first pass keeps its blocks when given a store. */
+    size_t replay_stride; /* with a store to replay: every stride-th block (0, 1: all) */
     int pass_number;
     mr_progress_fn progress;
     void *progress_user;
@@ -60,11 +61,10 @@ typedef struct mr__pass_result {
     mr__levelset **worker_levels;
     size_t nworkers;
     double seconds;
-    /* First pass: raw chunks of an evenly spread sample of blocks (every
-     * sample_stride-th block, at most MR__SAMPLE_BLOCKS), for a cheap fit
-     * whose coefficients start the full IRLS. */
-    mr__chunk **sample;
-    size_t nsample;
+    /* First pass: an evenly spread sample of the blocks (every
+     * sample_stride-th, at most MR__SAMPLE_BLOCKS), packed in memory, for
+     * cheap fits whose coefficients start the full IRLS. */
+    mr__store sample;
     uint64_t sample_stride;
     /* First pass with collapsing: the file's covariate patterns, merged in
      * block order; `collapsed` is 0 when collapsing was given up. */
@@ -74,11 +74,9 @@ typedef struct mr__pass_result {
     int store_incomplete;
 } mr__pass_result;
 
-#define MR__SAMPLE_BLOCKS 16
+#define MR__SAMPLE_BLOCKS 32
 
 mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error *err);
 void mr__pass_result_release(mr__pass_result *res, size_t nfac);
-/* Frees sample block I early (once decoded, its text is not needed). */
-void mr__pass_result_drop_sample(mr__pass_result *res, size_t i);
 
 #endif

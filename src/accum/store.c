@@ -19,6 +19,12 @@ void mr__store_init_memory(mr__store *s)
     s->fd = -1;
 }
 
+void mr__store_init_packed(mr__store *s)
+{
+    mr__store_init_memory(s);
+    s->packed = 1;
+}
+
 mr_status mr__store_init_file(mr__store *s, const char *dir, mr__error *err)
 {
     char path[4096];
@@ -34,6 +40,8 @@ void mr__store_release(mr__store *s)
 {
     size_t i;
     for (i = 0; s->block && i < s->n; i++) mr__block_release(&s->block[i]);
+    for (i = 0; s->packs && i < s->n; i++) mr__free(s->packs[i]);
+    mr__free(s->packs);
     mr__free(s->block);
     mr__free(s->offset);
     mr__free(s->pack);
@@ -277,6 +285,35 @@ static mr_status read_all(int fd, char *p, size_t n, uint64_t at, mr__error *err
     return MR_OK;
 }
 
+mr_status mr__store_add_packed(mr__store *s, const char *packed, size_t bytes, mr__error *err)
+{
+    char *copy;
+    if (s->n + 1 >= s->cap) {
+        size_t cap = s->cap ? 2 * s->cap : 64;
+        char **p = mr__realloc(s->packs, cap * sizeof *p);
+        if (p == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        s->packs = p;
+        s->cap = cap;
+    }
+    if ((copy = mr__malloc(bytes)) == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    memcpy(copy, packed, bytes);
+    s->packs[s->n++] = copy;
+    s->bytes += bytes;
+    return MR_OK;
+}
+
+const char *mr__store_packed(const mr__store *s, size_t i) { return s->packs[i]; }
+
+void mr__store_drop_odd(mr__store *s)
+{
+    size_t i, k = 0;
+    for (i = 0; i < s->n; i++) {
+        if (i % 2 == 0) s->packs[k++] = s->packs[i];
+        else mr__free(s->packs[i]);
+    }
+    s->n = k;
+}
+
 mr_status mr__store_read(const mr__store *s, size_t i, char *buf, mr__error *err)
 {
     return read_all(s->fd, buf, (size_t)(s->offset[i + 1] - s->offset[i]), s->offset[i], err);
@@ -296,7 +333,7 @@ void mr__store_remap(mr__store *s, int32_t **remap, size_t nfac)
     size_t i;
     s->remap = remap;
     s->nfac = nfac;
-    if (s->fd >= 0 || remap == NULL) return;
+    if (s->fd >= 0 || s->packed || remap == NULL) return;
     for (i = 0; i < s->n; i++) map_levels(s, &s->block[i]);
     s->remap = NULL;
 }

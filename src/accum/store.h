@@ -16,6 +16,8 @@
 typedef struct mr__store {
     int fd;              /* file backend, or -1 for memory */
     mr__block *block;    /* memory backend */
+    int packed;          /* the packed memory backend (fd -1) */
+    char **packs;        /* its block i's bytes */
     uint64_t *offset;    /* file backend: start of block i; offset[n] = end */
     size_t n, cap;
     char *pack;          /* staging buffer for one packed block */
@@ -28,6 +30,9 @@ typedef struct mr__store {
 } mr__store;
 
 void mr__store_init_memory(mr__store *s);
+/* Blocks kept in their packed form in memory (a sample of the file: a
+ * fifth of the bytes of decoded rows).  Filled with mr__store_add_packed. */
+void mr__store_init_packed(mr__store *s);
 /* A file store in `dir`; MR_ERR_IO if it cannot be created. */
 mr_status mr__store_init_file(mr__store *s, const char *dir, mr__error *err);
 void mr__store_release(mr__store *s);
@@ -50,12 +55,17 @@ size_t mr__store_pack(const mr__block *blk, const mr__binding *b, char *out);
 mr_status mr__store_append(mr__store *s, const char *packed, size_t bytes, mr__error *err);
 /* Reads packed block i into buf (file backend; at most the bound). */
 mr_status mr__store_read(const mr__store *s, size_t i, char *buf, mr__error *err);
+/* Packed memory backend: keeps a copy of a packed block as the next one;
+ * block i's bytes; drops every other block (those at odd positions). */
+mr_status mr__store_add_packed(mr__store *s, const char *packed, size_t bytes, mr__error *err);
+const char *mr__store_packed(const mr__store *s, size_t i);
+void mr__store_drop_odd(mr__store *s);
 /* Unpacks block i into dst and maps its level numbers. */
 void mr__store_unpack(const mr__store *s, const char *packed, size_t i, const mr__binding *b, mr__block *dst);
 
 /* Installs the level maps of the first pass (the store does not own them;
- * they must outlive it).  A memory store is rewritten at once; a file
- * store maps each block as it is loaded. */
+ * they must outlive it).  A memory store is rewritten at once; a file or
+ * packed store maps each block as it is loaded. */
 void mr__store_remap(mr__store *s, int32_t **remap, size_t nfac);
 
 #endif

@@ -37,6 +37,7 @@ struct mr_fit {
     size_t nbad_examples;
     /* convergence */
     int iterations, passes, halvings, converged, warm_start, warm_iterations, by_decrement;
+    int warm_blocks, warm_polish_blocks; /* sample blocks the warm start used (0: none) */
     size_t patterns; /* covariate patterns the rows collapsed into; 0 = not collapsed */
     double rel_change, seconds, rows_per_second;
     double *pass_seconds;

@@ -257,6 +257,8 @@ static mr_status copy_run_info(mr_fit *fit, const mr__run *r, mr__error *err)
     fit->by_decrement = r->by_decrement;
     fit->patterns = r->collapsed ? r->npatterns : 0;
     fit->warm_iterations = r->warm_iterations;
+    fit->warm_blocks = r->warm ? r->warm_blocks : 0;
+    fit->warm_polish_blocks = r->warm ? r->warm_polish_blocks : 0;
     fit->converged = r->converged;
     fit->status = r->converged ? MR_OK : MR_ERR_NOT_CONVERGED;
     fit->rel_change = r->rel_change;

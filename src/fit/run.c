@@ -459,6 +459,9 @@ static double relative_change(double now, double before) { return fabs(now - bef
 /* One IRLS run: on the data, or on the kept sample for a warm start. */
 typedef struct irls_job {
     mr__store *replay;   /* NULL: the data (stream or cache); else these blocks */
+    size_t replay_stride; /* of those, every stride-th (0, 1: all) */
+    int step_at_end;     /* after the last pass allowed, still take its step */
+    int restarted;       /* the start was given up for the family's own */
     const double *start; /* NULL: from the family's starting means */
     double tolerance;
     int max_iterations;
@@ -488,6 +491,7 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
     if (job->replay) {
         c.store = job->replay;
         c.store_fill = 0;
+        c.replay_stride = job->replay_stride;
         c.progress = NULL;
     }
     mr__pass_result_release(res, 0);
@@ -585,6 +589,7 @@ static mr_status accept_point(mr__run *r, irls_job *job, irls_state *s, const mr
         if (!s->have_prev && job->start && !s->cold_restart) {
             s->have_beta = 0;
             s->cold_restart = 1;
+            job->restarted = 1;
             return MR_OK;
         }
         if (!s->have_prev || ++*halvings > MAX_HALVINGS)
@@ -626,8 +631,9 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
                 break;
             }
         }
-        if (job->iterations >= job->max_iterations) break;
+        if (job->iterations >= job->max_iterations && !job->step_at_end) break;
         MR__TRY(next_point(r, &s, res, job->tolerance, err));
+        if (job->iterations >= job->max_iterations) break;
         /* When the step just solved would remove a hundredth of the
          * tolerance or less, this pass was the last one needed: the step is
          * taken without a pass to check it (as the usual IRLS codes do,
@@ -650,53 +656,70 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
 
 /* ---- the warm start ---------------------------------------------------- */
 
-static mr_status decode_sample(mr__run *r, mr__store *sample, mr__error *err)
-{
-    mr__decoder dec;
-    mr__block blk;
-    size_t i;
-    mr_status st = mr__decoder_init(&dec, &r->dcfg, err);
-    for (i = 0; st == MR_OK && i < r->first.nsample; i++) {
-        st = mr__block_init(&blk, &r->bind, err);
-        if (st != MR_OK) break;
-        st = mr__decode_chunk(&dec, r->first.sample[i], &blk, err);
-        if (st == MR_OK && blk.failed) st = mr__fail(err, MR_ERR_INTERNAL, "sample block did not decode");
-        if (st == MR_OK) st = mr__store_keep(sample, &blk, &r->bind, err);
-        mr__block_release(&blk);
-        /* the text goes as its rows arrive, so text and rows are never
-         * both held whole: memory stays near that of one form */
-        mr__pass_result_drop_sample(&r->first, i);
-    }
-    mr__decoder_release(&dec);
-    return st;
-}
-
 /* Most IRLS passes only walk towards the answer; taking those steps on a
- * sample spread over the whole file (about MR__SAMPLE_BLOCKS blocks) costs
- * next to nothing, and the full passes then only polish.  Any trouble on
- * the sample just means a cold start. */
-static void warm_start(mr__run *r)
+ * sample spread over the whole file costs next to nothing, and the full
+ * passes then only polish.  The steps are taken on about a quarter of the
+ * sample's blocks, and one more on all of them: from a start that close,
+ * one Newton step lands about where the whole sample's fit would, for a
+ * fraction of the cost, and the better start saves full passes.  Any
+ * trouble on the sample just means a cold start, or the first stage's
+ * point. */
+static int sample_fit(mr__run *r, size_t stride, const double *start, int max_iterations, double *out,
+                      int *iterations)
 {
-    mr__store sample;
     mr__pass_result res;
     mr__error scratch;
     irls_job job;
-    size_t i;
-    int whole_file = r->first.sample_stride == 1;
-    mr__store_init_memory(&sample);
+    int ok;
+    size_t j;
     memset(&res, 0, sizeof res);
     memset(&job, 0, sizeof job);
-    job.replay = &sample;
+    job.replay = &r->first.sample;
+    job.replay_stride = stride;
+    job.start = start;
     job.tolerance = 1e-8;
-    job.max_iterations = 25;
-    job.beta_out = r->beta_warm;
-    if (!r->collapsed && !whole_file && r->first.nsample >= 4 && decode_sample(r, &sample, &scratch) == MR_OK &&
-        iterate(r, &job, &res, &scratch) == MR_OK && job.converged)
-        r->warm = 1;
-    r->warm_iterations = job.iterations;
+    job.max_iterations = max_iterations;
+    job.step_at_end = start != NULL;
+    job.beta_out = out;
+    ok = iterate(r, &job, &res, &scratch) == MR_OK && !job.restarted && (job.converged || job.step_at_end);
+    for (j = 0; ok && j < r->design.p; j++) ok = isfinite(out[j]);
+    *iterations = job.iterations;
     mr__pass_result_release(&res, 0);
-    mr__store_release(&sample);
-    for (i = 0; i < r->first.nsample; i++) mr__pass_result_drop_sample(&r->first, i);
+    return ok;
+}
+
+/* One step on the whole sample from the quarter's fit. */
+static void polish_start(mr__run *r, const mr__store *sample)
+{
+    double *polished = mr__malloc_array(r->design.p, sizeof *polished);
+    int steps;
+    if (polished != NULL && sample_fit(r, 1, r->beta_warm, 1, polished, &steps)) {
+        memcpy(r->beta_warm, polished, r->design.p * sizeof *polished);
+        r->warm_polish_blocks = (int)sample->n;
+    }
+    mr__free(polished);
+}
+
+static void warm_start(mr__run *r)
+{
+    mr__store *sample = &r->first.sample;
+    /* the first stage takes a quarter to a half of the sample's blocks; a
+     * file of fewer than MR__SAMPLE_BLOCKS / 2 blocks gains little from
+     * any of this */
+    size_t stride = sample->n / (MR__SAMPLE_BLOCKS / 4);
+    int whole_file = r->first.sample_stride == 1;
+    mr__error scratch;
+    /* the sample holds first-pass level numbers, as the cache does; with
+     * no cache, or a cache started afresh, the maps are not made yet */
+    if (!r->collapsed && stride >= 2 && (r->remap != NULL || build_remap(r, &scratch) == MR_OK)) {
+        mr__store_remap(sample, r->remap, r->bind.nfac);
+        r->warm = sample_fit(r, stride, NULL, 25, r->beta_warm, &r->warm_iterations);
+        r->warm_blocks = (int)((sample->n + stride - 1) / stride);
+        /* on a whole small file, a step on all of it is a full pass */
+        if (r->warm && !whole_file) polish_start(r, sample);
+    }
+    mr__store_release(sample);
+    mr__store_init_packed(sample);
 }
 
 static mr_status fit_data(mr__run *r, mr__error *err)

@@ -81,11 +81,12 @@ static json_t *convergence_object(const mr_fit *f)
     json_t *ps = json_array();
     size_t i;
     for (i = 0; i < f->npass_seconds; i++) json_array_append_new(ps, num(f->pass_seconds[i]));
-    return json_pack("{s:b, s:s, s:i, s:i, s:o, s:i, s:b, s:i, s:o, s:o, s:o, s:o}", "converged", f->converged,
+    return json_pack("{s:b, s:s, s:i, s:i, s:o, s:i, s:b, s:i, s:i, s:i, s:o, s:o, s:o, s:o}", "converged", f->converged,
                      "criterion", f->by_decrement ? "newton decrement" : "deviance change", "iterations",
                      f->iterations, "passes", f->passes, "relative_change", num(f->rel_change),
                      "step_halvings", f->halvings, "warm_start", f->warm_start, "warm_start_iterations",
-                     f->warm_iterations, "collapsed_patterns",
+                     f->warm_iterations, "warm_start_blocks", f->warm_blocks, "warm_start_polish_blocks",
+                     f->warm_polish_blocks, "collapsed_patterns",
                      f->patterns ? json_integer((json_int_t)f->patterns) : json_null(), "seconds", num(f->seconds),
                      "pass_seconds", ps, "rows_per_second", num(f->rows_per_second));
 }

@@ -8,6 +8,7 @@
 #include "common/strbuf.h"
 #include "family/family.h"
 #include "fit/fit.h"
+#include "input/chunk.h"
 
 #define DEFAULT_DIGITS 6
 
@@ -84,8 +85,11 @@ static void section_convergence(mr__strbuf *b, const mr_fit *f)
         mr__strbuf_printf(b, "\n           rows collapsed into %zu covariate patterns: one read of the file, IRLS in memory",
                           f->patterns);
     if (f->warm_start)
-        mr__strbuf_printf(b, "\n           started from a fit to a sample of the file (%d IRLS steps in memory)",
-                          f->warm_iterations);
+        mr__strbuf_printf(b, "\n           started from a fit to a sample of the file (%d IRLS steps on %d blocks of %d rows spread over it",
+                          f->warm_iterations, f->warm_blocks, MR__BLOCK_ROWS);
+    if (f->warm_start && f->warm_polish_blocks)
+        mr__strbuf_printf(b, ", then one on %d blocks", f->warm_polish_blocks);
+    if (f->warm_start) mr__strbuf_printf(b, ")");
     mr__strbuf_printf(b, "\n           %.3f s, %.3f s per pass, %.0f rows/s, %d threads\n", f->seconds,
                       f->passes ? f->seconds / f->passes : 0.0, f->rows_per_second, f->threads);
 }
