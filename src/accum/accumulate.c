@@ -167,7 +167,7 @@ static void null_model_rows(const mr__irls_point *pt, const mr__block *blk, mr__
         return;
     }
     for (i = 0; i < blk->n; i++) {
-        double off = blk->off ? blk->off[i] : 0.0, prior = blk->prior ? blk->prior[i] : 1.0;
+        double off = blk->off[i], prior = blk->prior ? blk->prior[i] : 1.0;
         double eta = (pt->null_intercept ? pt->null_b0 : 0.0) + off;
         double mu = mr__link_inv(pt->link, eta), me = mr__link_mu_eta(pt->link, eta);
         double var = mr__family_variance(pt->family, mu), w = prior * me * me / var;

@@ -142,8 +142,6 @@ static size_t slots_for(size_t n)
     return cap;
 }
 
-/* A new pattern with zero sums: its record number, or -1 when out of
- * memory. */
 /* Doubles the room of both arrays; the sums stay 64-byte aligned. */
 static int grow_records(mr__pattern_table *t)
 {
@@ -167,6 +165,8 @@ static int grow_records(mr__pattern_table *t)
     return 0;
 }
 
+/* A new pattern with zero sums: its record number, or -1 when out of
+ * memory. */
 static int64_t new_record(mr__pattern_table *t, const uint64_t *key)
 {
     if (t->n == t->room && grow_records(t) != 0) return -1;

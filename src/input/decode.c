@@ -66,6 +66,7 @@ mr_status mr__decoder_init(mr__decoder *d, const mr__decode_cfg *cfg, mr__error 
 {
     const mr__binding *b = cfg->bind;
     size_t f;
+    int quick;
     memset(d, 0, sizeof *d);
     d->cfg = cfg;
     d->np = mr__numparser_new();
@@ -80,10 +81,11 @@ mr_status mr__decoder_init(mr__decoder *d, const mr__decode_cfg *cfg, mr__error 
     }
     d->wanted = mr__calloc(b->nfields + 1, 1);
     d->quick = mr__calloc(b->nfields + 1, 1);
+    quick = !numeric_missing_token(cfg);
     for (f = 0; d->wanted && d->quick && f < b->nfields; f++) {
         int col = b->col_of_field[f];
         d->wanted[f] = col >= 0;
-        d->quick[f] = col >= 0 && b->col[col].use != MR__USE_FACTOR && !numeric_missing_token(cfg);
+        d->quick[f] = quick && col >= 0 && b->col[col].use != MR__USE_FACTOR;
     }
     d->defer_offset = cfg->levels == NULL && cfg->collapse == 2 && b->has_exposure && !b->has_offset;
     if (!d->np || !d->val || !d->lev || !d->miss || !d->wanted || !d->quick || (cfg->levels == NULL && !d->local) ||
@@ -220,9 +222,12 @@ static void finish_row_values(mr__decoder *d, double *y, double *prior, double *
         domain_problem(d, MR__USE_OUTCOME, why);
     }
     *prior = w * t;
-    d->row_exposure = e;
     if (b->has_exposure) *off = d->defer_offset ? e : *off + log(e);
-    if (d->cfg->levels == NULL) d->row_llc = mr__loglik_constant(d->cfg->family, *y, w, t, b->has_trials);
+    if (d->cfg->levels != NULL) return;
+    /* first pass: the null start's and the patterns' e^offset, which for
+     * an exposure alone is e itself (no exp(log(e)) per row) */
+    d->row_eoff = b->has_offset ? exp(*off) : e;
+    d->row_llc = mr__loglik_constant(d->cfg->family, *y, w, t, b->has_trials);
 }
 
 static void record_bad(mr__decoder *d, uint32_t r, const char *msg)
@@ -263,11 +268,10 @@ static void store_row(mr__decoder *d, double y, double prior, double off)
     size_t k;
     blk->y[i] = y;
     blk->llc[i] = d->row_llc;
-    if (b->has_exposure || b->has_offset) {
-        /* an exposure alone is e^offset itself: no exp(log(e)) per row;
-         * a deferred offset is only ever wanted with a log link, which
+    if (d->cfg->levels == NULL && (b->has_exposure || b->has_offset)) {
+        /* a deferred offset is only ever wanted with a log link, which
          * starts from swe alone */
-        blk->swe += prior * (b->has_offset ? exp(off) : d->row_exposure);
+        blk->swe += prior * d->row_eoff;
         if (!d->defer_offset) blk->swoff += prior * off;
     }
     if (blk->prior) blk->prior[i] = prior;
@@ -304,7 +308,7 @@ static void add_pattern(mr__decoder *d, double y, double prior, double off)
         sum[MR__PATTERN_C] = prior * y * y;
         sum[MR__PATTERN_D] = prior * mr__family_saturated_term(d->cfg->family, y);
     } else {
-        double e = b->has_offset ? exp(off) : d->row_exposure;
+        double e = d->row_eoff;
         /* a deferred offset matters only where y > 0 (y * off is +0) */
         if (d->defer_offset) off = y != 0 ? log(e) : 0.0;
         sum[MR__PATTERN_A] = prior * e;

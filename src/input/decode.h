@@ -102,7 +102,7 @@ typedef struct mr__decoder {
      * is kept for later passes only when collapsing was given up early, so
      * the block keeps the exposure and the log is taken only when needed. */
     int defer_offset;
-    double row_exposure;
+    double row_eoff;       /* the row's e^offset (the exposure alone: e itself) */
     int row_bad;
     mr_status row_status;
     size_t bad_field;

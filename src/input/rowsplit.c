@@ -93,13 +93,15 @@ char *mr__splitter_reserve(mr__splitter *sp, size_t n, mr__error *err)
     return c->data + c->len;
 }
 
+static int may_be_blank(char c) { return c == '\r' || c == '\n' || c == ' ' || c == '\t'; }
+
 /* Only line ends and blanks: skipped, as libcsv would skip it, so that
  * both tokenizers see the same rows. */
 static int is_blank_row(const char *p, size_t n)
 {
     size_t i;
     for (i = 0; i < n; i++)
-        if (p[i] != '\r' && p[i] != '\n' && p[i] != ' ' && p[i] != '\t') return 0;
+        if (!may_be_blank(p[i])) return 0;
     return 1;
 }
 
@@ -170,8 +172,6 @@ static const char *find_newline(const char *p, const char *end)
 #endif
     return memchr(p, '\n', (size_t)(end - p));
 }
-
-static int may_be_blank(char c) { return c == '\r' || c == '\n' || c == ' ' || c == '\t'; }
 
 /* The common case: rows read straight into the chunk, and no quote in the
  * buffer, so only their ends need finding.  Everything else is left to
