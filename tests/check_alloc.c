@@ -12,6 +12,7 @@
 
 #include "common/alloc.h"
 #include "millrace.h"
+#include "check_common.h"
 
 long mr__alloc_failures_left(void);
 
@@ -77,17 +78,10 @@ int main(void)
 {
     Suite *s = suite_create("alloc");
     TCase *tc = tcase_create("failures");
-    SRunner *sr;
-    int failed;
     tcase_set_timeout(tc, 600);
     tcase_add_test(tc, test_falls_collapsed);
     tcase_add_test(tc, test_falls_rows_cached);
     tcase_add_test(tc, test_screening_in_memory);
     suite_add_tcase(s, tc);
-    sr = srunner_create(s);
-    srunner_set_fork_status(sr, CK_NOFORK); /* the leak checker sees the whole run */
-    srunner_run_all(sr, CK_NORMAL);
-    failed = srunner_ntests_failed(sr);
-    srunner_free(sr);
-    return failed == 0 ? EXIT_SUCCESS : EXIT_FAILURE;
+    return mr_check_run(s, 1); /* no fork: the leak checker sees the whole run */
 }

@@ -23,6 +23,7 @@
 #include "model/design.h"
 #include "model/levels.h"
 #include "model/spec.h"
+#include "check_common.h"
 
 #define N_OF(a) (sizeof(a) / sizeof((a)[0]))
 
@@ -375,11 +376,4 @@ static Suite *design_suite(void)
     return s;
 }
 
-int main(void)
-{
-    SRunner *sr = srunner_create(design_suite());
-    srunner_run_all(sr, CK_NORMAL);
-    int failed = srunner_ntests_failed(sr);
-    srunner_free(sr);
-    return failed == 0 ? EXIT_SUCCESS : EXIT_FAILURE;
-}
+int main(void) { return mr_check_run(design_suite(), 0); }

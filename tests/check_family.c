@@ -13,6 +13,7 @@
 #include <string.h>
 
 #include "family/family.h"
+#include "check_common.h"
 
 #define N_OF(a) (sizeof(a) / sizeof((a)[0]))
 
@@ -399,11 +400,6 @@ START_TEST(names_round_trip)
 }
 END_TEST
 
-static int same_bits(double a, double b)
-{
-    return memcmp(&a, &b, sizeof a) == 0;
-}
-
 START_TEST(arrays_equal_scalars_bitwise)
 {
     enum { N = 257 };
@@ -514,11 +510,4 @@ static Suite *family_suite(void)
     return s;
 }
 
-int main(void)
-{
-    SRunner *sr = srunner_create(family_suite());
-    srunner_run_all(sr, CK_NORMAL);
-    int failed = srunner_ntests_failed(sr);
-    srunner_free(sr);
-    return failed == 0 ? EXIT_SUCCESS : EXIT_FAILURE;
-}
+int main(void) { return mr_check_run(family_suite(), 0); }

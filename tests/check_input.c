@@ -30,6 +30,7 @@
 #include "input/fields.h"
 #include "input/rowsplit.h"
 #include "input/source.h"
+#include "check_common.h"
 
 /* ------------------------------------------------------------------ */
 /* Small helpers                                                        */
@@ -1149,11 +1150,4 @@ static Suite *input_suite(void)
     return s;
 }
 
-int main(void)
-{
-    SRunner *sr = srunner_create(input_suite());
-    srunner_run_all(sr, CK_NORMAL);
-    int failed = srunner_ntests_failed(sr);
-    srunner_free(sr);
-    return failed == 0 ? EXIT_SUCCESS : EXIT_FAILURE;
-}
+int main(void) { return mr_check_run(input_suite(), 0); }

@@ -18,6 +18,7 @@
 #include <string.h>
 
 #include "input/numparse.h"
+#include "check_common.h"
 
 /* ------------------------------------------------------------------ */
 /* Deterministic randomness                                            */
@@ -681,11 +682,4 @@ static Suite *numparse_suite(void)
     return s;
 }
 
-int main(void)
-{
-    SRunner *sr = srunner_create(numparse_suite());
-    srunner_run_all(sr, CK_NORMAL);
-    int failed = srunner_ntests_failed(sr);
-    srunner_free(sr);
-    return failed == 0 ? EXIT_SUCCESS : EXIT_FAILURE;
-}
+int main(void) { return mr_check_run(numparse_suite(), 0); }

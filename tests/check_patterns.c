@@ -19,16 +19,9 @@
 
 #include "accum/patterns.h"
 #include "input/chunk.h"
+#include "check_common.h"
 
 enum { NKEY = 4, NWORKERS = 2, NBLOCKS = 24, ROWS_PER_BLOCK = 3000, REF_CAP = 1 << 18 };
-
-static uint64_t next_random(uint64_t *state) /* splitmix64 */
-{
-    uint64_t z = (*state += UINT64_C(0x9E3779B97F4A7C15));
-    z = (z ^ (z >> 30)) * UINT64_C(0xBF58476D1CE4E5B9);
-    z = (z ^ (z >> 27)) * UINT64_C(0x94D049BB133111EB);
-    return z ^ (z >> 31);
-}
 
 /* The plain grouping: key values (not ids) -> pattern number. */
 typedef struct reference {
@@ -53,8 +46,6 @@ static void reference_add(reference *r, uint64_t key, const double *sums)
     }
     for (j = 0; j < MR__PATTERN_SUMS; j++) r->sums[r->pattern[i]][j] += sums[j];
 }
-
-static int same_bits(double a, double b) { return memcmp(&a, &b, sizeof a) == 0; }
 
 /* Key column k's value in block b is below limit(k, b): the ranges widen
  * as the blocks go, more for later columns.  `wide` makes them reach 2^7
@@ -145,11 +136,4 @@ static Suite *patterns_suite(void)
     return s;
 }
 
-int main(void)
-{
-    SRunner *sr = srunner_create(patterns_suite());
-    srunner_run_all(sr, CK_NORMAL);
-    int failed = srunner_ntests_failed(sr);
-    srunner_free(sr);
-    return failed ? EXIT_FAILURE : EXIT_SUCCESS;
-}
+int main(void) { return mr_check_run(patterns_suite(), 0); }

@@ -15,6 +15,7 @@
 #include <stdlib.h>
 
 #include "output/probability.h"
+#include "check_common.h"
 
 /* Relative agreement; an expected 0 needs an exact 0. */
 static int close_rel(double got, double want, double tol)
@@ -502,11 +503,4 @@ static Suite *probability_suite(void)
     return s;
 }
 
-int main(void)
-{
-    SRunner *sr = srunner_create(probability_suite());
-    srunner_run_all(sr, CK_NORMAL);
-    int failed = srunner_ntests_failed(sr);
-    srunner_free(sr);
-    return failed == 0 ? EXIT_SUCCESS : EXIT_FAILURE;
-}
+int main(void) { return mr_check_run(probability_suite(), 0); }

@@ -21,6 +21,7 @@
 #include <string.h>
 
 #include "solve/normal_eq.h"
+#include "check_common.h"
 
 /* ------------------------------------------------------------------ */
 /* Deterministic randomness                                            */
@@ -476,11 +477,4 @@ static Suite *solver_suite(void)
     return s;
 }
 
-int main(void)
-{
-    SRunner *sr = srunner_create(solver_suite());
-    srunner_run_all(sr, CK_NORMAL);
-    int failed = srunner_ntests_failed(sr);
-    srunner_free(sr);
-    return failed == 0 ? EXIT_SUCCESS : EXIT_FAILURE;
-}
+int main(void) { return mr_check_run(solver_suite(), 0); }

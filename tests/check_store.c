@@ -14,16 +14,7 @@
 
 #include "accum/store.h"
 #include "input/numparse.h"
-
-static uint64_t next_random(uint64_t *state) /* splitmix64 */
-{
-    uint64_t z = (*state += UINT64_C(0x9E3779B97F4A7C15));
-    z = (z ^ (z >> 30)) * UINT64_C(0xBF58476D1CE4E5B9);
-    z = (z ^ (z >> 27)) * UINT64_C(0x94D049BB133111EB);
-    return z ^ (z >> 31);
-}
-
-static int same_bits(double a, double b) { return memcmp(&a, &b, sizeof a) == 0; }
+#include "check_common.h"
 
 /* A binding with an outcome, an offset, `nnum` numerics and two factors:
  * all the packer looks at. */
@@ -139,11 +130,4 @@ static Suite *store_suite(void)
     return s;
 }
 
-int main(void)
-{
-    SRunner *sr = srunner_create(store_suite());
-    srunner_run_all(sr, CK_NORMAL);
-    int failed = srunner_ntests_failed(sr);
-    srunner_free(sr);
-    return failed ? EXIT_FAILURE : EXIT_SUCCESS;
-}
+int main(void) { return mr_check_run(store_suite(), 0); }
