@@ -115,24 +115,32 @@ static mr_status tee(mr__source *s, const char *p, size_t n, mr__error *err)
     return MR_OK;
 }
 
-/* Refills the raw buffer; sets eof at the end of the input. */
-static mr_status fill_raw(mr__source *s, mr__error *err)
+/* One read(2) into buf, checksummed (and copied to the tee); sets eof at
+ * the end of the input. */
+static mr_status read_into(mr__source *s, char *buf, size_t cap, size_t *got, mr__error *err)
 {
     ssize_t n;
-    if (s->raw_pos < s->raw_len || s->eof) return MR_OK;
     do {
-        n = read(s->fd, s->raw, s->raw_cap);
+        n = read(s->fd, buf, cap);
     } while (n < 0 && errno == EINTR);
     if (n < 0) return mr__fail(err, MR_ERR_IO, "%s: read error: %s", s->display, strerror(errno));
-    s->raw_pos = 0;
-    s->raw_len = (size_t)n;
+    *got = (size_t)n;
     if (n == 0) {
         s->eof = 1;
         return MR_OK;
     }
-    absorb(s, s->raw, (size_t)n);
-    if (s->tee_fd >= 0) return tee(s, s->raw, (size_t)n, err);
+    absorb(s, buf, (size_t)n);
+    if (s->tee_fd >= 0) return tee(s, buf, (size_t)n, err);
     return MR_OK;
+}
+
+/* Refills the raw buffer once it is used up. */
+static mr_status fill_raw(mr__source *s, mr__error *err)
+{
+    if (s->raw_pos < s->raw_len || s->eof) return MR_OK;
+    s->raw_pos = 0;
+    s->raw_len = 0;
+    return read_into(s, s->raw, s->raw_cap, &s->raw_len, err);
 }
 
 /* A zstd frame or a skippable frame starts the stream: the input is
@@ -143,19 +151,12 @@ static mr_status sniff(mr__source *s, mr__error *err)
     uint32_t magic;
     while (s->raw_len - s->raw_pos < 4 && !s->eof) {
         /* Keep what we have and append: the first reads may be tiny. */
-        size_t have = s->raw_len - s->raw_pos;
-        ssize_t n;
+        size_t have = s->raw_len - s->raw_pos, got;
         memmove(s->raw, s->raw + s->raw_pos, have);
         s->raw_pos = 0;
         s->raw_len = have;
-        do {
-            n = read(s->fd, s->raw + have, s->raw_cap - have);
-        } while (n < 0 && errno == EINTR);
-        if (n < 0) return mr__fail(err, MR_ERR_IO, "%s: read error: %s", s->display, strerror(errno));
-        if (n == 0) s->eof = 1;
-        absorb(s, s->raw + have, (size_t)n);
-        if (s->tee_fd >= 0) MR__TRY(tee(s, s->raw + have, (size_t)n, err));
-        s->raw_len += (size_t)n;
+        MR__TRY(read_into(s, s->raw + have, s->raw_cap - have, &got, err));
+        s->raw_len += got;
     }
     s->sniffed = 1;
     if (s->raw_len - s->raw_pos < 4) return MR_OK;
@@ -170,10 +171,13 @@ static mr_status sniff(mr__source *s, mr__error *err)
     return MR_OK;
 }
 
+/* Once the bytes read to sniff the format are used up, plain text is read
+ * straight into the caller's buffer: a copy of the whole file less on the
+ * reader thread, which every worker waits for. */
 static mr_status read_plain(mr__source *s, char *buf, size_t cap, size_t *got, mr__error *err)
 {
     size_t n;
-    MR__TRY(fill_raw(s, err));
+    if (s->raw_pos == s->raw_len) return s->eof ? MR_OK : read_into(s, buf, cap, got, err);
     n = s->raw_len - s->raw_pos;
     if (n > cap) n = cap;
     memcpy(buf, s->raw + s->raw_pos, n);
