@@ -242,24 +242,20 @@ void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__wo
     out->invalid = mr__count_invalid_n(pt->family, pt->link, ws->eta, ws->mu, n);
     if (pt->family == MR_BINOMIAL || pt->family == MR_POISSON)
         for (i = 0; i < n; i++) out->boundary += at_boundary(pt->family, ws->mu[i]);
+    /* w holds sqrt(w) and z holds sqrt(w) z: the rows of the weighted
+     * least-squares problem. */
     for (i = 0; i < n; i++) {
         double prior = blk->prior ? blk->prior[i] : 1.0, r = blk->y[i] - ws->mu[i];
         double off = blk->off ? blk->off[i] : 0.0;
+        double s = sqrt(prior * ws->mu_eta[i] * ws->mu_eta[i] / ws->var[i]);
         dev += prior * ws->dev[i];
         pearson += (prior * r * r + (blk->extra ? blk->extra[i] : 0.0)) / ws->var[i];
-        ws->w[i] = prior * ws->mu_eta[i] * ws->mu_eta[i] / ws->var[i];
-        ws->z[i] = (ws->eta[i] - off) + r / ws->mu_eta[i];
+        ws->w[i] = s;
+        ws->z[i] = ((ws->eta[i] - off) + r / ws->mu_eta[i]) * s;
     }
     out->dev = dev;
     out->pearson = pearson;
     if (out->invalid) return; /* the caller halves the step; sums are not used */
-    /* From here w holds sqrt(w) and z holds sqrt(w) z: the rows of the
-     * weighted least-squares problem. */
-    for (i = 0; i < n; i++) {
-        double s = sqrt(ws->w[i]);
-        ws->w[i] = s;
-        ws->z[i] *= s;
-    }
     for (j = 0; j < d->ndense; j++) {
         double *col = ws->D + j * n;
         for (i = 0; i < n; i++) col[i] *= ws->w[i];
