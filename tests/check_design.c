@@ -160,6 +160,46 @@ START_TEST(test_factor_numeric_interaction)
 }
 END_TEST
 
+/* Source of truth: design.h states that the accumulation layout (dense
+ * columns plus one (column, value) pair per sparse term and row) holds the
+ * same matrix as mr__design_fill; a two-level factor, alone or times a
+ * numeric, is one of the dense columns, a three-level one stays sparse. */
+START_TEST(test_split_layout_is_the_same_matrix)
+{
+    static const char *const lines[] = {"outcome y", "factor g ref=b", "factor h ref=n", "numeric x",
+                                        "interact h x"};
+    static const char *const header[] = {"y", "g", "h", "x"};
+    static const char *const LEVELS_MN[] = {"m", "n"};
+    static const int32_t H_OF_ROW[] = {1, 0, 0, 1, 0, 1, 1};
+    const mr__factor fac[2] = {{"g", (const char **)LEVELS_ABC, 3, 1}, {"h", (const char **)LEVELS_MN, 2, 1}};
+    const double mean[] = {2.5}, spread[] = {1.7};
+    double num[STRIDE], Z[NROWS * 6], D[NROWS * 6], val[NROWS * 2];
+    int32_t lev[2 * STRIDE], col[NROWS * 2];
+    mr__spec s;
+    mr__binding b;
+    mr__design d;
+    size_t i, j, t;
+    build(&d, &s, &b, lines, N_OF(lines), header, N_OF(header), fac, mean, spread);
+    ck_assert_uint_eq(d.p, 6); /* (intercept), g=a, g=c, h=m, x, h=m & x */
+    ck_assert_uint_eq(d.nsparse, 1);
+    ck_assert_uint_eq(d.ndense, 4);
+    rows_g_x(num, lev);
+    for (i = 0; i < NROWS; i++) lev[STRIDE + i] = H_OF_ROW[i];
+    mr__design_fill(&d, num, lev, STRIDE, NROWS, Z, NROWS);
+    mr__design_fill_split(&d, num, lev, STRIDE, NROWS, D, col, val);
+    for (i = 0; i < NROWS; i++) {
+        double row[6] = {0};
+        for (j = 0; j < d.ndense; j++) row[d.dense_col[j]] = D[j * NROWS + i];
+        for (t = 0; t < d.nsparse; t++)
+            if (col[t * NROWS + i] >= 0) row[col[t * NROWS + i]] = val[t * NROWS + i];
+        for (j = 0; j < d.p; j++)
+            ck_assert_msg(row[j] == Z[j * NROWS + i], "row %zu column %s: split %.17g, full %.17g", i, d.name[j],
+                          row[j], Z[j * NROWS + i]);
+    }
+    release(&d, &s, &b);
+}
+END_TEST
+
 START_TEST(test_internal_columns_centred_and_scaled)
 {
     /* Source of truth: design.h ("every numeric enters as (x - centre) /
@@ -365,6 +405,7 @@ static Suite *design_suite(void)
     TCase *design = tcase_create("design");
     TCase *spec = tcase_create("spec");
     tcase_add_test(design, test_factor_numeric_interaction);
+    tcase_add_test(design, test_split_layout_is_the_same_matrix);
     tcase_add_test(design, test_internal_columns_centred_and_scaled);
     tcase_add_test(design, test_no_intercept_first_factor_full);
     tcase_add_test(design, test_numeric_products_and_three_way);

@@ -289,21 +289,33 @@ static mr_status build_colmaps(mr__design *d, mr__error *err)
     return MR_OK;
 }
 
+static int narrow_factor(const mr__term *t) { return t->colmap != NULL && t->ncols <= MR__NARROW_FACTOR_COLS; }
+
 static mr_status split_layout(mr__design *d, mr__error *err)
 {
-    size_t i;
+    size_t i, k;
     MR__TRY(build_colmaps(d, err));
     d->dense_col = mr__calloc(d->p + 1, sizeof *d->dense_col);
     d->sparse_term = mr__calloc(d->nterms + 1, sizeof *d->sparse_term);
     if (d->dense_col == NULL || d->sparse_term == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    if (d->intercept) d->dense_col[d->ndense++] = 0;
-    for (i = 0; i < d->nterms; i++) {
-        if (d->term[i].nfac == 0) d->dense_col[d->ndense++] = d->term[i].col0;
-        else d->sparse_term[d->nsparse++] = i;
-    }
+    d->ndense = d->intercept != 0;
+    for (i = 0; i < d->nterms; i++) d->ndense += d->term[i].nfac == 0;
     if (d->ndense > MR__MAX_DENSE)
         return mr__fail(err, MR_ERR_USAGE, "model: more than %d columns without a factor (numerics and their "
                                            "interactions)", MR__MAX_DENSE);
+    /* narrow factors take what room is left, in model order */
+    for (i = 0; i < d->nterms; i++) {
+        mr__term *t = &d->term[i];
+        t->dense = t->nfac == 0 || (narrow_factor(t) && d->ndense + t->ncols <= MR__MAX_DENSE);
+        if (t->dense && t->nfac != 0) d->ndense += t->ncols;
+    }
+    d->ndense = 0;
+    if (d->intercept) d->dense_col[d->ndense++] = 0;
+    for (i = 0; i < d->nterms; i++) {
+        const mr__term *t = &d->term[i];
+        if (!t->dense) d->sparse_term[d->nsparse++] = i;
+        for (k = 0; t->dense && k < t->ncols; k++) d->dense_col[d->ndense++] = t->col0 + k;
+    }
     return MR_OK;
 }
 
@@ -395,16 +407,24 @@ static void numeric_part(const mr__term *t, const double *num, size_t stride_row
 void mr__design_fill_split(const mr__design *d, const double *num, const int32_t *lev, size_t stride_rows,
                            size_t n, double *D, int32_t *col, double *val)
 {
-    size_t i, j = 0, s;
+    size_t i, j = 0, s, k;
     if (d->intercept) {
         for (i = 0; i < n; i++) D[i] = 1.0;
         j = 1;
     }
     for (s = 0; s < d->nterms; s++) {
         const mr__term *t = &d->term[s];
-        if (t->nfac != 0) continue;
-        numeric_part(t, num, stride_rows, n, D + j * n);
-        j++;
+        if (!t->dense) continue;
+        if (t->nfac == 0) {
+            numeric_part(t, num, stride_rows, n, D + j++ * n);
+            continue;
+        }
+        for (k = 0; k < t->ncols; k++, j++) {
+            const int32_t *l = lev + (size_t)t->fac[0] * stride_rows, want = (int32_t)(t->col0 + k);
+            double *v = D + j * n;
+            numeric_part(t, num, stride_rows, n, v);
+            for (i = 0; i < n; i++) v[i] = t->colmap[l[i]] == want ? v[i] : 0.0;
+        }
     }
     for (s = 0; s < d->nsparse; s++) {
         const mr__term *t = &d->term[d->sparse_term[s]];

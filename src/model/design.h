@@ -23,8 +23,14 @@
 #include "model/spec.h"
 
 #define MR__MAX_COLUMNS 4000
-/* Dense columns: the intercept and terms without a factor. */
+/* Dense columns: the intercept, terms without a factor and narrow
+ * one-factor terms (see mr__design). */
 #define MR__MAX_DENSE 64
+/* A one-factor term with at most this many columns (a two-level factor,
+ * or a numeric times one) is carried dense: a row then takes no branch on
+ * whether it sits at the reference level, which for two levels is a coin
+ * toss, and dsyrk does the products. */
+#define MR__NARROW_FACTOR_COLS 1
 
 typedef struct mr__factor {
     const char *name;
@@ -43,6 +49,7 @@ typedef struct mr__term {
     int centred;
     double centre[MR__MAX_INTERACT], scale[MR__MAX_INTERACT], inv_scale[MR__MAX_INTERACT];
     int32_t *colmap; /* one-factor terms: level -> design column, -1 for none */
+    int dense;       /* carried as dense columns (see mr__design) */
 } mr__term;
 
 typedef struct mr__design {
@@ -57,7 +64,8 @@ typedef struct mr__design {
     /* The accumulation layout.  Terms without a factor are dense (every row
      * has a value in their column); a term with a factor puts at most one
      * non-zero in a row, so it is carried as (column, value) per row and
-     * costs the same whatever its number of levels. */
+     * costs the same whatever its number of levels, unless it is narrow
+     * (MR__NARROW_FACTOR_COLS) and the dense columns have room for it. */
     size_t ndense, nsparse;
     size_t *dense_col;   /* ndense design columns */
     size_t *sparse_term; /* nsparse term indices */
