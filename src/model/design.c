@@ -289,32 +289,30 @@ static mr_status build_colmaps(mr__design *d, mr__error *err)
     return MR_OK;
 }
 
-static int narrow_factor(const mr__term *t) { return t->colmap != NULL && t->ncols <= MR__NARROW_FACTOR_COLS; }
+static int one_column_factor(const mr__term *t) { return t->colmap != NULL && t->ncols == 1; }
 
 static mr_status split_layout(mr__design *d, mr__error *err)
 {
-    size_t i, k;
+    size_t i, room = MR__MAX_DENSE - (d->intercept != 0);
     MR__TRY(build_colmaps(d, err));
     d->dense_col = mr__calloc(d->p + 1, sizeof *d->dense_col);
     d->sparse_term = mr__calloc(d->nterms + 1, sizeof *d->sparse_term);
     if (d->dense_col == NULL || d->sparse_term == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    d->ndense = d->intercept != 0;
-    for (i = 0; i < d->nterms; i++) d->ndense += d->term[i].nfac == 0;
-    if (d->ndense > MR__MAX_DENSE)
-        return mr__fail(err, MR_ERR_USAGE, "model: more than %d columns without a factor (numerics and their "
-                                           "interactions)", MR__MAX_DENSE);
-    /* narrow factors take what room is left, in model order */
     for (i = 0; i < d->nterms; i++) {
-        mr__term *t = &d->term[i];
-        t->dense = t->nfac == 0 || (narrow_factor(t) && d->ndense + t->ncols <= MR__MAX_DENSE);
-        if (t->dense && t->nfac != 0) d->ndense += t->ncols;
+        if (d->term[i].nfac != 0) continue;
+        if (room == 0)
+            return mr__fail(err, MR_ERR_USAGE, "model: more than %d columns without a factor (numerics and their "
+                                               "interactions)", MR__MAX_DENSE);
+        room--;
     }
-    d->ndense = 0;
+    /* one-column factor terms take what room is left, in model order */
     if (d->intercept) d->dense_col[d->ndense++] = 0;
     for (i = 0; i < d->nterms; i++) {
-        const mr__term *t = &d->term[i];
-        if (!t->dense) d->sparse_term[d->nsparse++] = i;
-        for (k = 0; t->dense && k < t->ncols; k++) d->dense_col[d->ndense++] = t->col0 + k;
+        mr__term *t = &d->term[i];
+        t->dense = t->nfac == 0 || (one_column_factor(t) && room > 0);
+        if (t->dense && t->nfac != 0) room--;
+        if (t->dense) d->dense_col[d->ndense++] = t->col0;
+        else d->sparse_term[d->nsparse++] = i;
     }
     return MR_OK;
 }
@@ -404,10 +402,25 @@ static void numeric_part(const mr__term *t, const double *num, size_t stride_row
     }
 }
 
+/* A one-factor term's value in each row, 0 where the row has no column
+ * (its reference level); col, if not NULL, gets that column or -1. */
+static void one_factor_part(const mr__term *t, const double *num, const int32_t *lev, size_t stride_rows, size_t n,
+                            double *v, int32_t *col)
+{
+    const int32_t *l = lev + (size_t)t->fac[0] * stride_rows;
+    size_t i;
+    numeric_part(t, num, stride_rows, n, v);
+    for (i = 0; i < n; i++) {
+        int32_t c = t->colmap[l[i]];
+        if (col) col[i] = c;
+        v[i] = c < 0 ? 0.0 : v[i];
+    }
+}
+
 void mr__design_fill_split(const mr__design *d, const double *num, const int32_t *lev, size_t stride_rows,
                            size_t n, double *D, int32_t *col, double *val)
 {
-    size_t i, j = 0, s, k;
+    size_t i, j = 0, s;
     if (d->intercept) {
         for (i = 0; i < n; i++) D[i] = 1.0;
         j = 1;
@@ -415,16 +428,9 @@ void mr__design_fill_split(const mr__design *d, const double *num, const int32_t
     for (s = 0; s < d->nterms; s++) {
         const mr__term *t = &d->term[s];
         if (!t->dense) continue;
-        if (t->nfac == 0) {
-            numeric_part(t, num, stride_rows, n, D + j++ * n);
-            continue;
-        }
-        for (k = 0; k < t->ncols; k++, j++) {
-            const int32_t *l = lev + (size_t)t->fac[0] * stride_rows, want = (int32_t)(t->col0 + k);
-            double *v = D + j * n;
-            numeric_part(t, num, stride_rows, n, v);
-            for (i = 0; i < n; i++) v[i] = t->colmap[l[i]] == want ? v[i] : 0.0;
-        }
+        if (t->nfac == 0) numeric_part(t, num, stride_rows, n, D + j * n);
+        else one_factor_part(t, num, lev, stride_rows, n, D + j * n, NULL);
+        j++;
     }
     for (s = 0; s < d->nsparse; s++) {
         const mr__term *t = &d->term[d->sparse_term[s]];
@@ -436,14 +442,6 @@ void mr__design_fill_split(const mr__design *d, const double *num, const int32_t
             }
             continue;
         }
-        numeric_part(t, num, stride_rows, n, val + s * n);
-        {
-            const int32_t *l = lev + (size_t)t->fac[0] * stride_rows;
-            double *v = val + s * n;
-            for (i = 0; i < n; i++) {
-                c[i] = t->colmap[l[i]];
-                v[i] = c[i] < 0 ? 0.0 : v[i];
-            }
-        }
+        one_factor_part(t, num, lev, stride_rows, n, val + s * n, c);
     }
 }

@@ -23,14 +23,9 @@
 #include "model/spec.h"
 
 #define MR__MAX_COLUMNS 4000
-/* Dense columns: the intercept, terms without a factor and narrow
- * one-factor terms (see mr__design). */
+/* Dense columns: the intercept, terms without a factor and, while there
+ * is room, one-factor terms of one column (see mr__design). */
 #define MR__MAX_DENSE 64
-/* A one-factor term with at most this many columns (a two-level factor,
- * or a numeric times one) is carried dense: a row then takes no branch on
- * whether it sits at the reference level, which for two levels is a coin
- * toss, and dsyrk does the products. */
-#define MR__NARROW_FACTOR_COLS 1
 
 typedef struct mr__factor {
     const char *name;
@@ -64,8 +59,12 @@ typedef struct mr__design {
     /* The accumulation layout.  Terms without a factor are dense (every row
      * has a value in their column); a term with a factor puts at most one
      * non-zero in a row, so it is carried as (column, value) per row and
-     * costs the same whatever its number of levels, unless it is narrow
-     * (MR__NARROW_FACTOR_COLS) and the dense columns have room for it. */
+     * costs the same whatever its number of levels.  A one-factor term of
+     * one column (a two-level factor, alone or times numerics) is dense
+     * while the dense columns have room: a row then takes no branch on
+     * whether it sits at the reference level, which for two levels is a
+     * coin toss, and dsyrk does the products.  Every dense term is one
+     * column. */
     size_t ndense, nsparse;
     size_t *dense_col;   /* ndense design columns */
     size_t *sparse_term; /* nsparse term indices */
