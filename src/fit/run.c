@@ -440,8 +440,18 @@ static mr_status build_patterns(mr__run *r, mr__error *err)
 
 /* ---- IRLS -------------------------------------------------------------- */
 
-/* The null model's starting intercept; exact when there is no offset, and
- * for poisson with an exposure. */
+/* Whether null_start is the null model's maximum-likelihood intercept:
+ * with no offset the fitted mean is the weighted mean of y under every
+ * family and link; with an offset, poisson's log-link score equation
+ * sum w (y - exp(b0 + offset)) = 0 solves in closed form. */
+static int null_start_exact(const mr__run *r)
+{
+    if (!r->dcfg.bind->has_offset && !r->dcfg.bind->has_exposure) return 1;
+    return r->f->spec.family == MR_POISSON && mr__spec_link(&r->f->spec) == MR_LOG && r->first.scan.swy > 0 &&
+           isfinite(log(r->first.scan.swy / r->first.scan.swe));
+}
+
+/* The null model's starting intercept; exact where null_start_exact says. */
 static double null_start(const mr__run *r)
 {
     const mr__scan_sums *s = &r->first.scan;
@@ -572,7 +582,7 @@ static void start_state(mr__run *r, const irls_job *job, irls_state *s)
     s->next = r->beta_c;
     s->null_b0 = null_start(r);
     s->null_dev_prev = INFINITY;
-    s->null_done = !r->f->spec.intercept || (!r->bind.has_offset && !r->bind.has_exposure);
+    s->null_done = !r->f->spec.intercept || null_start_exact(r);
     if (job->start) {
         memcpy(s->beta, job->start, r->design.p * sizeof *s->beta);
         s->have_beta = 1;
@@ -615,11 +625,6 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
     for (;;) {
         MR__TRY(irls_pass(r, job, s.have_beta ? s.beta : NULL, s.null_b0, s.null_known ? &s.null_dev : NULL, res,
                           err));
-        if (s.null_done && !s.null_known && res->sums.invalid == 0) {
-            /* The pass just made evaluated the null model at its final b0. */
-            s.null_dev = res->sums.null_dev;
-            s.null_known = 1;
-        }
         MR__TRY(accept_point(r, job, &s, res, &halvings, &accepted, err));
         if (!accepted) continue;
         halvings = 0;
@@ -633,6 +638,12 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
         }
         if (job->iterations >= job->max_iterations && !job->step_at_end) break;
         MR__TRY(next_point(r, &s, res, job->tolerance, err));
+        if (s.null_done && !s.null_known) {
+            /* This pass evaluated the null model at its final b0: later
+             * passes leave its per-row work out. */
+            s.null_dev = res->sums.null_dev;
+            s.null_known = 1;
+        }
         if (job->iterations >= job->max_iterations) break;
         /* When the step just solved would remove a hundredth of the
          * tolerance or less, this pass was the last one needed: the step is
