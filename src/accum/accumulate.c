@@ -159,21 +159,28 @@ static void null_model_constant(const mr__irls_point *pt, const mr__block *blk, 
     }
 }
 
-static void null_model_rows(const mr__irls_point *pt, const mr__block *blk, mr__block_sums *out)
+/* With an offset, row by row through the family's vector functions (the
+ * same expressions as one row at a time, so the same bits), in the
+ * workspace's per-row vectors, which the model's sums are done with. */
+static void null_model_rows(const mr__irls_point *pt, const mr__block *blk, mr__workspace *ws, mr__block_sums *out)
 {
-    uint32_t i;
+    const size_t n = blk->n;
+    const double b0 = pt->null_intercept ? pt->null_b0 : 0.0;
+    size_t i;
     if (blk->off == NULL) {
         null_model_constant(pt, blk, out);
         return;
     }
-    for (i = 0; i < blk->n; i++) {
-        double off = blk->off[i], prior = blk->prior ? blk->prior[i] : 1.0;
-        double eta = (pt->null_intercept ? pt->null_b0 : 0.0) + off;
-        double mu = mr__link_inv(pt->link, eta), me = mr__link_mu_eta(pt->link, eta);
-        double var = mr__family_variance(pt->family, mu), w = prior * me * me / var;
-        out->null_dev += prior * mr__family_unit_deviance(pt->family, blk->y[i], mu);
+    for (i = 0; i < n; i++) ws->eta[i] = b0 + blk->off[i];
+    mr__link_inv_n(pt->link, ws->eta, n, ws->mu, ws->mu_eta);
+    mr__family_variance_n(pt->family, ws->mu, n, ws->var);
+    mr__family_unit_deviance_n(pt->family, blk->y, ws->mu, n, ws->dev);
+    for (i = 0; i < n; i++) {
+        double prior = blk->prior ? blk->prior[i] : 1.0, me = ws->mu_eta[i];
+        double w = prior * me * me / ws->var[i];
+        out->null_dev += prior * ws->dev[i];
         out->null_sw += w;
-        out->null_swz += w * ((eta - off) + (blk->y[i] - mu) / me);
+        out->null_swz += w * ((ws->eta[i] - blk->off[i]) + (blk->y[i] - ws->mu[i]) / me);
     }
 }
 
@@ -262,5 +269,5 @@ void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__wo
     }
     dense_cross_products(d, ws, n, out);
     sparse_cross_products(d, ws, n, out);
-    if (!pt->null_skip) null_model_rows(pt, blk, out);
+    if (!pt->null_skip) null_model_rows(pt, blk, ws, out);
 }
