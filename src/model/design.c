@@ -402,6 +402,17 @@ static void numeric_part(const mr__term *t, const double *num, size_t stride_row
     }
 }
 
+/* x if keep, else +0.0, by a mask: the compiler would branch, and for a
+ * two-level factor that branch is a coin toss every row. */
+static double zero_unless(double x, int keep)
+{
+    uint64_t bits;
+    memcpy(&bits, &x, sizeof bits);
+    bits &= (uint64_t)0 - (uint64_t)(keep != 0);
+    memcpy(&x, &bits, sizeof x);
+    return x;
+}
+
 /* A one-factor term's value in each row, 0 where the row has no column
  * (its reference level); col, if not NULL, gets that column or -1. */
 static void one_factor_part(const mr__term *t, const double *num, const int32_t *lev, size_t stride_rows, size_t n,
@@ -413,7 +424,7 @@ static void one_factor_part(const mr__term *t, const double *num, const int32_t 
     for (i = 0; i < n; i++) {
         int32_t c = t->colmap[l[i]];
         if (col) col[i] = c;
-        v[i] = c < 0 ? 0.0 : v[i];
+        v[i] = zero_unless(v[i], c >= 0);
     }
 }
 
