@@ -47,7 +47,7 @@ static void add_part(mr__term *t, int var, int is_factor)
 static mr_status collect_terms(mr__design *d, const mr__spec *s, const mr__binding *b, mr__error *err)
 {
     size_t i;
-    int k, isf, v;
+    int k, isf = 0, v;
     d->term = mr__calloc(s->ncov + s->ninter + 1, sizeof *d->term);
     if (d->term == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     for (i = 0; i < s->ncov; i++) {
