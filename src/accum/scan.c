@@ -62,13 +62,10 @@ void mr__scan_block(const mr__block *blk, size_t ncol, size_t nnum, mr__scan_sum
         s->sx[k] = a;
         s->sxx[k] = b;
     }
-    for (i = 0; i < blk->n; i++) {
-        double w = blk->prior ? blk->prior[i] : 1.0;
-        s->sw += w;
-        s->swy += w * blk->y[i];
-        s->llc += blk->llc[i];
-        s->npos += w > 0;
-    }
+    s->sw = blk->sw;
+    s->swy = blk->swy;
+    s->llc = blk->llc;
+    s->npos = blk->npos;
     s->swe = blk->swe;
     s->swoff = blk->swoff;
 }

@@ -17,8 +17,7 @@ mr_status mr__block_init(mr__block *b, const mr__binding *bind, mr__error *err)
     b->num = mr__malloc_array(R * (bind->nnum ? bind->nnum : 1), sizeof *b->num);
     b->lev = mr__malloc_array(R * (bind->nfac ? bind->nfac : 1), sizeof *b->lev);
     b->missing = mr__calloc(bind->ncol, sizeof *b->missing);
-    b->llc = mr__malloc_array(R, sizeof *b->llc);
-    if (!b->y || !b->llc || !b->num || !b->lev || !b->missing || ((bind->has_weight || bind->has_trials) && !b->prior) ||
+    if (!b->y || !b->num || !b->lev || !b->missing || ((bind->has_weight || bind->has_trials) && !b->prior) ||
         ((bind->has_offset || bind->has_exposure) && !b->off)) {
         mr__block_release(b);
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
@@ -34,7 +33,6 @@ void mr__block_release(mr__block *b)
     mr__free(b->num);
     mr__free(b->lev);
     mr__free(b->missing);
-    mr__free(b->llc);
     mr__free(b->extra);
     if (b->patterns) mr__pattern_rows_release(b->patterns);
     mr__free(b->patterns);
@@ -267,7 +265,12 @@ static void store_row(mr__decoder *d, double y, double prior, double off)
     uint32_t i = blk->n++;
     size_t k;
     blk->y[i] = y;
-    blk->llc[i] = d->row_llc;
+    if (d->cfg->levels == NULL) {
+        blk->sw += prior;
+        blk->swy += prior * y;
+        blk->llc += d->row_llc;
+        blk->npos += prior > 0;
+    }
     if (d->cfg->levels == NULL && (b->has_exposure || b->has_offset)) {
         /* a deferred offset is only ever wanted with a log link, which
          * starts from swe alone */
@@ -372,7 +375,8 @@ mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, m
     blk->index = c->index;
     blk->worker = d->worker;
     blk->nread = blk->n = blk->incomplete = blk->nbad = blk->nbad_shown = 0;
-    blk->swe = blk->swoff = 0;
+    blk->sw = blk->swy = blk->llc = blk->swe = blk->swoff = 0;
+    blk->npos = 0;
     blk->off_is_exposure = d->defer_offset;
     blk->failed = 0;
     mr__error_clear(&blk->err);

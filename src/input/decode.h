@@ -42,12 +42,13 @@ typedef struct mr__block {
     int off_is_exposure;
     double *num;
     int32_t *lev;
-    /* First pass only: each kept row's share of the log-likelihood terms
-     * that depend on the data alone (see accum/scan.c), and the block's
-     * sums of w e^offset and w offset for the null model's start (the
-     * latter left at 0 when the offset is deferred, see mr__decoder). */
-    double *llc;
-    double swe, swoff;
+    /* First pass only, summed row by row as rows are kept: the prior
+     * weights, w y, the rows with w > 0, the log-likelihood terms that
+     * depend on the data alone (see accum/scan.c), and w e^offset and
+     * w offset for the null model's start (the latter left at 0 when the
+     * offset is deferred, see mr__decoder). */
+    double sw, swy, llc, swe, swoff;
+    uint64_t npos;
     /* Collapsed patterns only: per-pattern Pearson correction (see
      * accum/patterns.h); NULL otherwise. */
     double *extra;
