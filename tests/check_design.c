@@ -200,6 +200,54 @@ START_TEST(test_split_layout_is_the_same_matrix)
 }
 END_TEST
 
+/* Source of truth: an analytic identity of treatment coding -- the
+ * columns of one factor term are indicators of disjoint sets of rows, so
+ * their products vanish in every row.  The design's runs must cover every
+ * other entry of the upper triangle (checked on the full design's X'X
+ * here) and leave out exactly those. */
+START_TEST(test_runs_cover_every_non_zero_cross_product)
+{
+    static const char *const lines[] = {"outcome y", "factor g ref=b", "factor k ref=a", "numeric x",
+                                        "interact g x"};
+    static const char *const header[] = {"y", "g", "k", "x"};
+    static const int32_t K_OF_ROW[] = {0, 1, 2, 2, 1, 0, 2};
+    const mr__factor fac[2] = {{"g", (const char **)LEVELS_ABC, 3, 1}, {"k", (const char **)LEVELS_ABC, 3, 0}};
+    const double mean[] = {2.5}, spread[] = {1.7};
+    double num[STRIDE], Z[NROWS * 8];
+    int32_t lev[2 * STRIDE];
+    unsigned char in_run[8 * 8] = {0};
+    mr__spec s;
+    mr__binding b;
+    mr__design d;
+    size_t i, a, c, r, k;
+    build(&d, &s, &b, lines, N_OF(lines), header, N_OF(header), fac, mean, spread);
+    /* (intercept), g=a, g=c, k=b, k=c, x, g=a & x, g=c & x */
+    ck_assert_uint_eq(d.p, 8);
+    ck_assert_uint_eq(d.nsparse, 3);
+    rows_g_x(num, lev);
+    for (i = 0; i < NROWS; i++) lev[STRIDE + i] = K_OF_ROW[i];
+    mr__design_fill(&d, num, lev, STRIDE, NROWS, Z, NROWS);
+    for (r = 0; r < d.nruns; r++)
+        for (k = 0; k < d.run_len[r]; k++) in_run[d.run_at[r] + k] = 1;
+    for (c = 0; c < d.p; c++)
+        for (a = 0; a < d.p; a++) {
+            double zz = 0;
+            int same_term = (a >= 1 && a <= 2 && c >= 1 && c <= 2) || (a >= 3 && a <= 4 && c >= 3 && c <= 4) ||
+                            (a >= 6 && c >= 6);
+            for (i = 0; i < NROWS; i++) zz += Z[a * NROWS + i] * Z[c * NROWS + i];
+            if (a > c) {
+                ck_assert_msg(!in_run[c * d.p + a], "run below the diagonal at %zu, %zu", a, c);
+                continue;
+            }
+            ck_assert_msg(in_run[c * d.p + a] == !(same_term && a != c), "%s x %s: in a run %d", d.name[a],
+                          d.name[c], in_run[c * d.p + a]);
+            if (!in_run[c * d.p + a])
+                ck_assert_msg(zz == 0.0, "%s x %s = %g outside the runs", d.name[a], d.name[c], zz);
+        }
+    release(&d, &s, &b);
+}
+END_TEST
+
 START_TEST(test_internal_columns_centred_and_scaled)
 {
     /* Source of truth: design.h ("every numeric enters as (x - centre) /
@@ -406,6 +454,7 @@ static Suite *design_suite(void)
     TCase *spec = tcase_create("spec");
     tcase_add_test(design, test_factor_numeric_interaction);
     tcase_add_test(design, test_split_layout_is_the_same_matrix);
+    tcase_add_test(design, test_runs_cover_every_non_zero_cross_product);
     tcase_add_test(design, test_internal_columns_centred_and_scaled);
     tcase_add_test(design, test_no_intercept_first_factor_full);
     tcase_add_test(design, test_numeric_products_and_three_way);

@@ -65,7 +65,10 @@ mr_status mr__sums_init(mr__block_sums *s, size_t p, mr__error *err)
         mr__sums_release(s);
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }
-    mr__sums_zero(s, p);
+    /* all of it: entries off the design's runs are never written, and
+     * the totals are read whole */
+    memset(s->xtwx, 0, p * p * sizeof *s->xtwx);
+    memset(s->xtwz, 0, p * sizeof *s->xtwz);
     return MR_OK;
 }
 
@@ -76,22 +79,26 @@ void mr__sums_release(mr__block_sums *s)
     memset(s, 0, sizeof *s);
 }
 
-void mr__sums_zero(mr__block_sums *s, size_t p)
+void mr__sums_zero(mr__block_sums *s, const mr__design *d)
 {
     double *a = s->xtwx, *b = s->xtwz;
+    size_t r;
     memset(s, 0, sizeof *s);
     s->xtwx = a;
     s->xtwz = b;
-    memset(a, 0, p * p * sizeof *a);
-    memset(b, 0, p * sizeof *b);
+    for (r = 0; r < d->nruns; r++) memset(a + d->run_at[r], 0, d->run_len[r] * sizeof *a);
+    memset(b, 0, d->p * sizeof *b);
 }
 
-void mr__sums_add(mr__block_sums *into, const mr__block_sums *from, size_t p)
+void mr__sums_add(mr__block_sums *into, const mr__block_sums *from, const mr__design *d)
 {
-    size_t i, j;
-    for (j = 0; j < p; j++)
-        for (i = 0; i <= j; i++) into->xtwx[j * p + i] += from->xtwx[j * p + i];
-    for (j = 0; j < p; j++) into->xtwz[j] += from->xtwz[j];
+    size_t r, k, j;
+    for (r = 0; r < d->nruns; r++) {
+        double *to = into->xtwx + d->run_at[r];
+        const double *add = from->xtwx + d->run_at[r];
+        for (k = 0; k < d->run_len[r]; k++) to[k] += add[k];
+    }
+    for (j = 0; j < d->p; j++) into->xtwz[j] += from->xtwz[j];
     into->dev += from->dev;
     into->pearson += from->pearson;
     into->null_dev += from->null_dev;
@@ -240,7 +247,7 @@ void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__wo
     const size_t n = blk->n;
     size_t i, j;
     double dev = 0, pearson = 0;
-    mr__sums_zero(out, d->p);
+    mr__sums_zero(out, d);
     if (n == 0) return;
     mr__design_fill_split(d, blk->num, blk->lev, MR__BLOCK_ROWS, n, ws->D, ws->scol, ws->sval);
     linear_predictor(pt, blk, ws, n);

@@ -40,10 +40,13 @@ typedef struct mr__workspace {
 mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *err);
 void mr__workspace_release(mr__workspace *ws);
 
+/* Zeroed whole. */
 mr_status mr__sums_init(mr__block_sums *s, size_t p, mr__error *err);
 void mr__sums_release(mr__block_sums *s);
-void mr__sums_zero(mr__block_sums *s, size_t p);
-void mr__sums_add(mr__block_sums *into, const mr__block_sums *from, size_t p);
+/* Zero and add only where the design's X'WX can be non-zero (its runs):
+ * everything else stays as mr__sums_init left it. */
+void mr__sums_zero(mr__block_sums *s, const mr__design *d);
+void mr__sums_add(mr__block_sums *into, const mr__block_sums *from, const mr__design *d);
 
 /* Computes the block's sums into out (overwritten). */
 void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__workspace *ws,

@@ -492,7 +492,7 @@ static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *
         if (cfg->store) MR__TRY(keep_scanned(cfg, res, s, err));
         return keep_sample(e, res, s, err);
     }
-    mr__sums_add(&res->sums, &s->sums, cfg->p);
+    mr__sums_add(&res->sums, &s->sums, cfg->point->design);
     if (cfg->store && cfg->store_fill) st = keep_block(cfg, s, err);
     return st;
 }

@@ -317,6 +317,44 @@ static mr_status split_layout(mr__design *d, mr__error *err)
     return MR_OK;
 }
 
+static void add_run(mr__design *d, size_t at, size_t len)
+{
+    if (d->nruns > 0 && d->run_at[d->nruns - 1] + d->run_len[d->nruns - 1] == at) {
+        d->run_len[d->nruns - 1] += len;
+        return;
+    }
+    d->run_at[d->nruns] = at;
+    d->run_len[d->nruns++] = len;
+}
+
+/* The runs of mr__design: column b's rows a <= b, less the other columns
+ * of b's own sparse term (at most two runs a column). */
+static mr_status build_skeleton(mr__design *d, mr__error *err)
+{
+    const size_t p = d->p;
+    size_t *owner = mr__calloc(p + 1, sizeof *owner), a, b, s;
+    d->run_at = mr__calloc(2 * p + 1, sizeof *d->run_at);
+    d->run_len = mr__calloc(2 * p + 1, sizeof *d->run_len);
+    if (owner == NULL || d->run_at == NULL || d->run_len == NULL) {
+        mr__free(owner);
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    }
+    for (s = 0; s < d->nsparse; s++) {
+        const mr__term *t = &d->term[d->sparse_term[s]];
+        for (a = t->col0; a < t->col0 + t->ncols; a++) owner[a] = s + 1;
+    }
+    for (b = 0; b < p; b++) {
+        for (a = 0; a <= b;) {
+            size_t start = a;
+            while (a <= b && (a == b || owner[a] == 0 || owner[a] != owner[b])) a++;
+            if (a > start) add_run(d, b * p + start, a - start);
+            while (a < b && owner[a] != 0 && owner[a] == owner[b]) a++;
+        }
+    }
+    mr__free(owner);
+    return MR_OK;
+}
+
 mr_status mr__design_build(mr__design *d, const mr__spec *s, const mr__binding *b, const mr__factor *fac,
                            const double *mean, const double *spread, mr__error *err)
 {
@@ -329,6 +367,7 @@ mr_status mr__design_build(mr__design *d, const mr__spec *s, const mr__binding *
     MR__TRY(lay_out_columns(d, err));
     MR__TRY(name_columns(d, s, b, err));
     MR__TRY(split_layout(d, err));
+    MR__TRY(build_skeleton(d, err));
     return build_transform(d, mean, spread, err);
 }
 
@@ -342,6 +381,8 @@ void mr__design_release(mr__design *d)
     mr__free(d->A);
     mr__free(d->dense_col);
     mr__free(d->sparse_term);
+    mr__free(d->run_at);
+    mr__free(d->run_len);
     memset(d, 0, sizeof *d);
 }
 

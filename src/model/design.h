@@ -68,6 +68,13 @@ typedef struct mr__design {
     size_t ndense, nsparse;
     size_t *dense_col;   /* ndense design columns */
     size_t *sparse_term; /* nsparse term indices */
+    /* Where X'WX can be non-zero: two columns of one sparse term never
+     * meet in a row, so that block of the upper triangle is zero off its
+     * diagonal (for a 1000-level factor, all but a thousandth of the
+     * matrix).  Runs of the column-major p x p array, in order: a block's
+     * sums are cleared and added over these alone. */
+    size_t *run_at, *run_len;
+    size_t nruns;
 } mr__design;
 
 /* Builds the design.  `mean` and `spread` (nnum each) come from the first
