@@ -10,24 +10,29 @@ static double upper(const double *G, size_t p, size_t i, size_t j)
     return i <= j ? G[j * p + i] : G[i * p + j];
 }
 
-/* Left-looking Cholesky that skips aliased columns; L is scratch p x p. */
+/* Left-looking Cholesky that skips aliased columns; L is scratch p x p,
+ * held by rows (L[i * p + k] is row i, column k), so that every inner
+ * product runs over contiguous memory: held by columns, each step of it
+ * was a cache miss once p passed a few hundred. */
 static size_t find_aliased(const double *G, size_t p, int *aliased, double *L)
 {
     size_t i, j, k, rank = 0;
     memset(L, 0, p * p * sizeof *L);
     for (j = 0; j < p; j++) {
+        const double *lj = L + j * p;
         double gjj = upper(G, p, j, j), d = gjj;
         for (k = 0; k < j; k++)
-            if (!aliased[k]) d -= L[k * p + j] * L[k * p + j];
+            if (!aliased[k]) d -= lj[k] * lj[k];
         aliased[j] = !(gjj > 0) || !(d > MR__ALIAS_TOLERANCE * gjj);
         if (aliased[j]) continue;
         rank++;
         L[j * p + j] = sqrt(d);
         for (i = j + 1; i < p; i++) {
+            const double *li = L + i * p;
             double s = upper(G, p, j, i);
             for (k = 0; k < j; k++)
-                if (!aliased[k]) s -= L[k * p + i] * L[k * p + j];
-            L[j * p + i] = s / L[j * p + j];
+                if (!aliased[k]) s -= li[k] * lj[k];
+            L[i * p + j] = s / L[j * p + j];
         }
     }
     return rank;
