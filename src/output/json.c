@@ -138,22 +138,72 @@ static void set_msg(char *msg, size_t cap, const char *fmt, const char *path, co
     if (cap > 0) snprintf(msg, cap, fmt, path, why);
 }
 
+/* jansson hands its output over a few bytes at a time; written straight
+ * to the descriptor that was one system call per token (about a million
+ * for the covariance of a 1000-column fit), so it is gathered here. */
+typedef struct out_buffer {
+    int fd, failed;
+    size_t len;
+    char data[1 << 16];
+} out_buffer;
+
+static int flush_out(out_buffer *o)
+{
+    size_t done = 0;
+    while (done < o->len && !o->failed) {
+        ssize_t w = write(o->fd, o->data + done, o->len - done);
+        if (w < 0 && errno == EINTR) continue;
+        if (w < 0) o->failed = 1;
+        else done += (size_t)w;
+    }
+    o->len = 0;
+    return o->failed ? -1 : 0;
+}
+
+static int gather(const char *buf, size_t size, void *data)
+{
+    out_buffer *o = data;
+    while (size > 0) {
+        size_t n = sizeof o->data - o->len < size ? sizeof o->data - o->len : size;
+        memcpy(o->data + o->len, buf, n);
+        o->len += n;
+        buf += n;
+        size -= n;
+        if (o->len == sizeof o->data && flush_out(o) != 0) return -1;
+    }
+    return 0;
+}
+
+static int dump_to_fd(json_t *root, int fd, out_buffer *o)
+{
+    o->fd = fd;
+    o->failed = 0;
+    o->len = 0;
+    return json_dump_callback(root, gather, o, JSON_INDENT(1) | JSON_REAL_PRECISION(17) | JSON_PRESERVE_ORDER) == 0 &&
+           gather("\n", 1, o) == 0 && flush_out(o) == 0;
+}
+
 static mr_status write_atomically(json_t *root, const char *path, char *msg, size_t cap)
 {
     size_t n = strlen(path);
     char *tmp = mr__malloc(n + 16);
+    out_buffer *o = mr__malloc(sizeof *o);
     int fd, ok;
-    if (tmp == NULL) return MR_ERR_NO_MEMORY;
+    if (tmp == NULL || o == NULL) {
+        mr__free(tmp);
+        mr__free(o);
+        return MR_ERR_NO_MEMORY;
+    }
     memcpy(tmp, path, n);
     memcpy(tmp + n, ".tmp-XXXXXX", 12);
     fd = mkstemp(tmp);
     if (fd < 0) {
         set_msg(msg, cap, "%s: cannot create a temporary file beside it: %s", path, strerror(errno));
         mr__free(tmp);
+        mr__free(o);
         return MR_ERR_IO;
     }
-    ok = json_dumpfd(root, fd, JSON_INDENT(1) | JSON_REAL_PRECISION(17) | JSON_PRESERVE_ORDER) == 0;
-    ok = ok && write(fd, "\n", 1) == 1 && fsync(fd) == 0;
+    ok = dump_to_fd(root, fd, o) && fsync(fd) == 0;
     ok = close(fd) == 0 && ok;
     if (ok && rename(tmp, path) != 0) ok = 0;
     if (!ok) {
@@ -161,6 +211,7 @@ static mr_status write_atomically(json_t *root, const char *path, char *msg, siz
         unlink(tmp);
     }
     mr__free(tmp);
+    mr__free(o);
     return ok ? MR_OK : MR_ERR_IO;
 }
 
