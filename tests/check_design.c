@@ -204,7 +204,8 @@ END_TEST
  * columns of one factor term are indicators of disjoint sets of rows, so
  * their products vanish in every row.  The design's runs must cover every
  * other entry of the upper triangle (checked on the full design's X'X
- * here) and leave out exactly those. */
+ * here) and leave out exactly those, and the packed index must number
+ * them in run order. */
 START_TEST(test_runs_cover_every_non_zero_cross_product)
 {
     static const char *const lines[] = {"outcome y", "factor g ref=b", "factor k ref=a", "numeric x",
@@ -227,8 +228,16 @@ START_TEST(test_runs_cover_every_non_zero_cross_product)
     rows_g_x(num, lev);
     for (i = 0; i < NROWS; i++) lev[STRIDE + i] = K_OF_ROW[i];
     mr__design_fill(&d, num, lev, STRIDE, NROWS, Z, NROWS);
-    for (r = 0; r < d.nruns; r++)
-        for (k = 0; k < d.run_len[r]; k++) in_run[d.run_at[r] + k] = 1;
+    /* and a block's packed sums hold those entries in run order */
+    for (r = 0, i = 0; r < d.nruns; r++) {
+        ck_assert_uint_eq(d.run_off[r], i);
+        for (k = 0; k < d.run_len[r]; k++, i++) {
+            size_t full = d.run_at[r] + k;
+            in_run[full] = 1;
+            ck_assert_uint_eq(mr__design_packed_index(&d, full % d.p, full / d.p), d.run_off[r] + k);
+        }
+    }
+    ck_assert_uint_eq(d.nnz, i);
     for (c = 0; c < d.p; c++)
         for (a = 0; a < d.p; a++) {
             double zz = 0;

@@ -56,20 +56,25 @@ void mr__workspace_release(mr__workspace *ws)
     memset(ws, 0, sizeof *ws);
 }
 
-mr_status mr__sums_init(mr__block_sums *s, size_t p, mr__error *err)
+static mr_status sums_alloc(mr__block_sums *s, size_t entries, size_t p, mr__error *err)
 {
     memset(s, 0, sizeof *s);
-    s->xtwx = aligned_doubles(p * p);
+    s->xtwx = aligned_doubles(entries);
     s->xtwz = aligned_doubles(p);
     if (!s->xtwx || !s->xtwz) {
         mr__sums_release(s);
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }
-    /* all of it: entries off the design's runs are never written, and
-     * the totals are read whole */
-    memset(s->xtwx, 0, p * p * sizeof *s->xtwx);
+    memset(s->xtwx, 0, entries * sizeof *s->xtwx);
     memset(s->xtwz, 0, p * sizeof *s->xtwz);
     return MR_OK;
+}
+
+mr_status mr__sums_init(mr__block_sums *s, size_t p, mr__error *err) { return sums_alloc(s, p * p, p, err); }
+
+mr_status mr__sums_init_block(mr__block_sums *s, const mr__design *d, mr__error *err)
+{
+    return sums_alloc(s, d->nnz, d->p, err);
 }
 
 void mr__sums_release(mr__block_sums *s)
@@ -82,11 +87,10 @@ void mr__sums_release(mr__block_sums *s)
 void mr__sums_zero(mr__block_sums *s, const mr__design *d)
 {
     double *a = s->xtwx, *b = s->xtwz;
-    size_t r;
     memset(s, 0, sizeof *s);
     s->xtwx = a;
     s->xtwz = b;
-    for (r = 0; r < d->nruns; r++) memset(a + d->run_at[r], 0, d->run_len[r] * sizeof *a);
+    memset(a, 0, d->nnz * sizeof *a);
     memset(b, 0, d->p * sizeof *b);
 }
 
@@ -95,7 +99,7 @@ void mr__sums_add(mr__block_sums *into, const mr__block_sums *from, const mr__de
     size_t r, k, j;
     for (r = 0; r < d->nruns; r++) {
         double *to = into->xtwx + d->run_at[r];
-        const double *add = from->xtwx + d->run_at[r];
+        const double *add = from->xtwx + d->run_off[r];
         for (k = 0; k < d->run_len[r]; k++) to[k] += add[k];
     }
     for (j = 0; j < d->p; j++) into->xtwz[j] += from->xtwz[j];
@@ -191,17 +195,21 @@ static void null_model_rows(const mr__irls_point *pt, const mr__block *blk, mr__
     }
 }
 
-static size_t upper_index(size_t a, size_t b, size_t p) { return a <= b ? b * p + a : a * p + b; }
+/* Entry (a, b) or (b, a) of the block's packed X'WX. */
+static size_t packed_index(const mr__design *d, size_t a, size_t b)
+{
+    return a <= b ? mr__design_packed_index(d, a, b) : mr__design_packed_index(d, b, a);
+}
 
 /* The dense columns' block of X'WX by dsyrk, scattered into place. */
 static void dense_cross_products(const mr__design *d, mr__workspace *ws, size_t n, mr__block_sums *out)
 {
-    const size_t p = d->p, m = d->ndense;
+    const size_t m = d->ndense;
     size_t a, b;
     if (m == 0) return;
     cblas_dsyrk(CblasColMajor, CblasUpper, CblasTrans, (int)m, (int)n, 1.0, ws->D, (int)n, 0.0, ws->dd, (int)m);
     for (b = 0; b < m; b++)
-        for (a = 0; a <= b; a++) out->xtwx[upper_index(d->dense_col[a], d->dense_col[b], p)] += ws->dd[b * m + a];
+        for (a = 0; a <= b; a++) out->xtwx[packed_index(d, d->dense_col[a], d->dense_col[b])] += ws->dd[b * m + a];
     cblas_dgemv(CblasColMajor, CblasTrans, (int)n, (int)m, 1.0, ws->D, (int)n, ws->z, 1, 0.0, ws->bd, 1);
     for (a = 0; a < m; a++) out->xtwz[d->dense_col[a]] += ws->bd[a];
 }
@@ -225,11 +233,11 @@ static void sparse_cross_products(const mr__design *d, mr__workspace *ws, size_t
             double v, *sd;
             if (cs < 0) continue;
             v = ws->sval[s * n + i] * ws->w[i];
-            G[(size_t)cs * p + (size_t)cs] += v * v;
+            G[mr__design_packed_index(d, (size_t)cs, (size_t)cs)] += v * v;
             out->xtwz[cs] += v * ws->z[i];
             for (t = s + 1; t < ns; t++) {
                 int32_t c2 = ws->scol[t * n + i];
-                if (c2 >= 0) G[upper_index((size_t)cs, (size_t)c2, p)] += v * ws->sval[t * n + i] * ws->w[i];
+                if (c2 >= 0) G[packed_index(d, (size_t)cs, (size_t)c2)] += v * ws->sval[t * n + i] * ws->w[i];
             }
             sd = SD + (size_t)cs * m;
             for (j = 0; j < m; j++) sd[j] += v * dense_row[j];
@@ -237,7 +245,7 @@ static void sparse_cross_products(const mr__design *d, mr__workspace *ws, size_t
     }
     for (c = 0; c < p; c++)
         for (j = 0; j < m; j++)
-            if (SD[c * m + j] != 0.0) G[upper_index(c, d->dense_col[j], p)] += SD[c * m + j];
+            if (SD[c * m + j] != 0.0) G[packed_index(d, c, d->dense_col[j])] += SD[c * m + j];
 }
 
 void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__workspace *ws,

@@ -20,7 +20,10 @@ typedef struct mr__irls_point {
 } mr__irls_point;
 
 typedef struct mr__block_sums {
-    double *xtwx; /* p x p, upper triangle, column-major */
+    /* A pass's totals: p x p, upper triangle, column-major.  A block's:
+     * the design's nnz entries that can be non-zero, packed
+     * (mr__design_packed_index). */
+    double *xtwx;
     double *xtwz; /* p */
     double dev, pearson, null_dev, null_sw, null_swz;
     uint64_t invalid;  /* rows whose eta or mu left the family's domain */
@@ -40,12 +43,13 @@ typedef struct mr__workspace {
 mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *err);
 void mr__workspace_release(mr__workspace *ws);
 
-/* Zeroed whole. */
+/* Totals (p x p) and a block's packed sums, zeroed. */
 mr_status mr__sums_init(mr__block_sums *s, size_t p, mr__error *err);
+mr_status mr__sums_init_block(mr__block_sums *s, const mr__design *d, mr__error *err);
 void mr__sums_release(mr__block_sums *s);
-/* Zero and add only where the design's X'WX can be non-zero (its runs):
- * everything else stays as mr__sums_init left it. */
+/* A block's sums back to zero. */
 void mr__sums_zero(mr__block_sums *s, const mr__design *d);
+/* Totals += a block's sums, in place in the p x p upper triangle. */
 void mr__sums_add(mr__block_sums *into, const mr__block_sums *from, const mr__design *d);
 
 /* Computes the block's sums into out (overwritten). */

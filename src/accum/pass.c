@@ -296,7 +296,7 @@ static mr_status init_slots(engine *e, mr__error *err)
                 return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
         }
         if (cfg->kind == MR__PASS_SCAN) MR__TRY(mr__scan_init(&s->scan, b->ncol, b->nnum, err));
-        else MR__TRY(mr__sums_init(&s->sums, cfg->p, err));
+        else MR__TRY(mr__sums_init_block(&s->sums, cfg->point->design, err));
     }
     return MR_OK;
 }

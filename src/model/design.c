@@ -321,37 +321,37 @@ static void add_run(mr__design *d, size_t at, size_t len)
 {
     if (d->nruns > 0 && d->run_at[d->nruns - 1] + d->run_len[d->nruns - 1] == at) {
         d->run_len[d->nruns - 1] += len;
-        return;
+    } else {
+        d->run_at[d->nruns] = at;
+        d->run_off[d->nruns] = d->nnz;
+        d->run_len[d->nruns++] = len;
     }
-    d->run_at[d->nruns] = at;
-    d->run_len[d->nruns++] = len;
+    d->nnz += len;
 }
 
-/* The runs of mr__design: column b's rows a <= b, less the other columns
- * of b's own sparse term (at most two runs a column). */
+/* Column b's rows a <= b, less the other columns of b's own sparse term,
+ * which come just before it: rows [0, col0 of the term), then b. */
 static mr_status build_skeleton(mr__design *d, mr__error *err)
 {
     const size_t p = d->p;
-    size_t *owner = mr__calloc(p + 1, sizeof *owner), a, b, s;
+    size_t b, s;
+    d->col_base = mr__calloc(p + 1, sizeof *d->col_base);
+    d->col_lo = mr__calloc(p + 1, sizeof *d->col_lo);
     d->run_at = mr__calloc(2 * p + 1, sizeof *d->run_at);
     d->run_len = mr__calloc(2 * p + 1, sizeof *d->run_len);
-    if (owner == NULL || d->run_at == NULL || d->run_len == NULL) {
-        mr__free(owner);
+    d->run_off = mr__calloc(2 * p + 1, sizeof *d->run_off);
+    if (!d->col_base || !d->col_lo || !d->run_at || !d->run_len || !d->run_off)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    }
+    for (b = 0; b < p; b++) d->col_lo[b] = b + 1;
     for (s = 0; s < d->nsparse; s++) {
         const mr__term *t = &d->term[d->sparse_term[s]];
-        for (a = t->col0; a < t->col0 + t->ncols; a++) owner[a] = s + 1;
+        for (b = t->col0; b < t->col0 + t->ncols; b++) d->col_lo[b] = t->col0;
     }
     for (b = 0; b < p; b++) {
-        for (a = 0; a <= b;) {
-            size_t start = a;
-            while (a <= b && (a == b || owner[a] == 0 || owner[a] != owner[b])) a++;
-            if (a > start) add_run(d, b * p + start, a - start);
-            while (a < b && owner[a] != 0 && owner[a] == owner[b]) a++;
-        }
+        d->col_base[b] = d->nnz;
+        if (d->col_lo[b] > 0) add_run(d, b * p, d->col_lo[b]);
+        if (d->col_lo[b] <= b) add_run(d, b * p + b, 1);
     }
-    mr__free(owner);
     return MR_OK;
 }
 
@@ -381,8 +381,11 @@ void mr__design_release(mr__design *d)
     mr__free(d->A);
     mr__free(d->dense_col);
     mr__free(d->sparse_term);
+    mr__free(d->col_base);
+    mr__free(d->col_lo);
     mr__free(d->run_at);
     mr__free(d->run_len);
+    mr__free(d->run_off);
     memset(d, 0, sizeof *d);
 }
 

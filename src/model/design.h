@@ -71,11 +71,22 @@ typedef struct mr__design {
     /* Where X'WX can be non-zero: two columns of one sparse term never
      * meet in a row, so that block of the upper triangle is zero off its
      * diagonal (for a 1000-level factor, all but a thousandth of the
-     * matrix).  Runs of the column-major p x p array, in order: a block's
-     * sums are cleared and added over these alone. */
-    size_t *run_at, *run_len;
-    size_t nruns;
+     * matrix).  Column b holds rows [0, col_lo[b]) and, for a sparse
+     * column, its diagonal; a block's sums keep just these, nnz of them,
+     * column after column from col_base[b] (mr__design_packed_index).
+     * The same entries as runs of the column-major p x p array: run r is
+     * run_len[r] entries from run_at[r] there, from run_off[r] packed. */
+    size_t *col_base, *col_lo;
+    size_t *run_at, *run_len, *run_off;
+    size_t nruns, nnz;
 } mr__design;
+
+/* Where entry (a, b) of the upper triangle, a <= b, non-zero in some row,
+ * sits in a block's packed sums. */
+static inline size_t mr__design_packed_index(const mr__design *d, size_t a, size_t b)
+{
+    return d->col_base[b] + (a < d->col_lo[b] ? a : d->col_lo[b]);
+}
 
 /* Builds the design.  `mean` and `spread` (nnum each) come from the first
  * pass; a zero or non-finite spread leaves that numeric raw. */
