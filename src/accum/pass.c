@@ -544,7 +544,7 @@ static mr_status init_result(const mr__pass_cfg *cfg, mr__pass_result *res, mr__
         res->collapsed = cfg->dcfg->collapse != 0;
         return MR_OK;
     }
-    return mr__sums_init(&res->sums, cfg->p, err);
+    return mr__sums_init(&res->sums, cfg->point->design->p, err);
 }
 
 static mr_status take_levels(engine *e, mr__pass_result *res, mr__error *err)

@@ -39,8 +39,7 @@ typedef struct mr__pass_cfg {
     mr__header_fn on_header;
     void *header_user;
     mr__decode_cfg *dcfg; /* completed by on_header on the first pass */
-    const mr__irls_point *point;
-    size_t p;
+    const mr__irls_point *point; /* MR__PASS_IRLS: its design gives p */
     mr__store *store;     /* NULL, or kept blocks (memory or cache file) */
     int store_fill;       /* 1: keep decoded blocks in store; 0 with store: replay it.
                              The first pass keeps its blocks when given a store. */

@@ -98,7 +98,6 @@ static mr__pass_cfg pass_config(mr__run *r, mr__pass_kind kind)
     c.on_header = on_header;
     c.header_user = r;
     c.dcfg = &r->dcfg;
-    c.p = r->design.p;
     c.pass_number = r->npasses + 1;
     c.progress = r->f->progress;
     c.progress_user = r->f->progress_user;

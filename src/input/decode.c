@@ -265,17 +265,17 @@ static void store_row(mr__decoder *d, double y, double prior, double off)
     uint32_t i = blk->n++;
     size_t k;
     blk->y[i] = y;
-    if (d->cfg->levels == NULL) {
+    if (d->cfg->levels == NULL) { /* the first pass's totals */
         blk->sw += prior;
         blk->swy += prior * y;
         blk->llc += d->row_llc;
         blk->npos += prior > 0;
-    }
-    if (d->cfg->levels == NULL && (b->has_exposure || b->has_offset)) {
-        /* a deferred offset is only ever wanted with a log link, which
-         * starts from swe alone */
-        blk->swe += prior * d->row_eoff;
-        if (!d->defer_offset) blk->swoff += prior * off;
+        if (b->has_exposure || b->has_offset) {
+            /* a deferred offset is only ever wanted with a log link, which
+             * starts from swe alone */
+            blk->swe += prior * d->row_eoff;
+            if (!d->defer_offset) blk->swoff += prior * off;
+        }
     }
     if (blk->prior) blk->prior[i] = prior;
     if (blk->off) blk->off[i] = off;
