@@ -1,7 +1,13 @@
-#define _POSIX_C_SOURCE 200809L
+#define _DEFAULT_SOURCE /* syscall(SYS_gettid): Linux keeps a nice value per thread */
+#include <errno.h>
 #include <pthread.h>
 #include <string.h>
 #include <time.h>
+#ifdef __linux__
+#include <sys/resource.h>
+#include <sys/syscall.h>
+#include <unistd.h>
+#endif
 
 #include "accum/pass.h"
 #include "common/alloc.h"
@@ -231,10 +237,30 @@ static slot *take_kept_block(engine *e)
     }
 }
 
+/* The reader is a pass's one serial stage.  Where threads outnumber
+ * cores, a fair share of a core for it is a loss for all, as workers then
+ * wait for its blocks; so the workers of a pass over the file run a few
+ * nice levels below the thread that started them (a collapsed 10^7-row
+ * fit on 2 cores: 1.15 -> 1.0 s).  Only a hint: failure changes nothing,
+ * and neither does it where there are cores to spare. */
+enum { WORKER_NICE_STEP = 5, NICE_MAX = 19 };
+
+static void yield_cores_to_reader(void)
+{
+#ifdef __linux__
+    id_t tid = (id_t)syscall(SYS_gettid);
+    int nice;
+    errno = 0;
+    nice = getpriority(PRIO_PROCESS, tid);
+    if (errno == 0) (void)setpriority(PRIO_PROCESS, tid, nice + WORKER_NICE_STEP > NICE_MAX ? NICE_MAX : nice + WORKER_NICE_STEP);
+#endif
+}
+
 static void *worker_main(void *arg)
 {
     worker *w = arg;
     engine *e = w->e;
+    if (!replaying(e->cfg)) yield_cores_to_reader();
     for (;;) {
         slot *s;
         pthread_mutex_lock(&e->mu);
