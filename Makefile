@@ -24,12 +24,16 @@ PKG_LIBS   := $(shell pkg-config --libs $(PKGS) 2>/dev/null)
 CHECK_CFLAGS := $(shell pkg-config --cflags check 2>/dev/null)
 CHECK_LIBS   := $(shell pkg-config --libs check 2>/dev/null)
 CPPFLAGS := -Iinclude -Isrc -DMR_BUILDING_LIBRARY $(PKG_CFLAGS)
-CFLAGS   := $(STD) $(OPT) $(MATH) $(WARN) -fvisibility=hidden -pthread -MMD -MP
+# No contraction into fused multiply-adds, whatever -std says: every code
+# path of a sum (src/accum/crossprod.c) must round the same way.
+CFLAGS   := $(STD) $(OPT) $(MATH) $(WARN) -ffp-contract=off -fvisibility=hidden -pthread -MMD -MP
 # OpenBLAS's serial build where Debian's libopenblas0-serial is installed:
-# the library calls BLAS on small matrices from its own worker threads, and
-# the pthread build's pool thread spins for about 0.1 s of CPU after start-up
-# for work it is never given (4% of a 10^7-row fit on 2 cores).  Same
-# kernels, same bits; LD_LIBRARY_PATH can still choose another BLAS.
+# the library calls BLAS and LAPACK only on small matrices, from the thread
+# that runs the fit, one call at a time (the serial build has no lock for
+# concurrent calls; `make lint` keeps BLAS out of the workers), and the
+# pthread build's pool thread spins for about 0.1 s of CPU after start-up
+# for work it is never given (4% of a 10^7-row fit on 2 cores).
+# LD_LIBRARY_PATH can still choose another BLAS.
 MULTIARCH := $(shell $(CC) -print-multiarch 2>/dev/null)
 # LAPACKE's own BLAS and LAPACK are named too, so that they come from the
 # same directory (the pthread build's libblas needs its libopenblas).
@@ -140,8 +144,15 @@ $(B)/asan/tests/%: tests/%.c $(B)/asan/libmillrace.a
 	@mkdir -p $(dir $@)
 	$(Q)$(CC) $(CPPFLAGS) $(CHECK_CFLAGS) $(CFLAGS) $(SAN) -o $@ $< $(B)/asan/libmillrace.a $(CHECK_LIBS) $(LIBS)
 
-unit: $(UNIT_BIN)
-	@for t in $(UNIT_BIN); do echo "== $$t"; ./$$t || exit 1; done
+# The cross products once more on their portable path (no AVX2 clone): both
+# paths must give the same bits.
+$(B)/tests/check_crossprod_portable: tests/check_crossprod.c src/accum/crossprod.c
+	@mkdir -p $(dir $@)
+	$(Q)$(CC) $(CPPFLAGS) -DMR_CROSSPROD_PORTABLE $(CHECK_CFLAGS) $(filter-out -MMD -MP,$(CFLAGS)) -o $@ $^ \
+	  $(CHECK_LIBS) $(LIBS)
+
+unit: $(UNIT_BIN) $(B)/tests/check_crossprod_portable
+	@for t in $(UNIT_BIN) $(B)/tests/check_crossprod_portable; do echo "== $$t"; ./$$t || exit 1; done
 
 asan: $(ASAN_UNIT_BIN) $(B)/asan/millrace
 
@@ -167,10 +178,15 @@ ref-check: all
 	@for t in tests/ref/*.py; do echo "== $$t"; /usr/bin/python3 $$t || exit 1; done
 
 # The library must never print or exit: only the command talks to the terminal.
+# BLAS and LAPACK stay on the thread that runs the fit (solver and results):
+# Debian's serial OpenBLAS is not safe to call from two threads at once.
 lint:
 	@if grep -nE '\b(printf|fprintf|puts|fputs|perror|exit|abort|_Exit)\s*\(' $(LIB_SRC) | grep -v 'snprintf\|vsnprintf' ; then \
 	  echo "lint: the library must not print or exit (see above)"; exit 1; fi
 	@echo "lint: the library neither prints nor exits"
+	@if grep -nE '\b(cblas_|LAPACKE_)[a-z_]+\s*\(' $(filter-out src/solve/% src/fit/%,$(LIB_SRC)); then \
+	  echo "lint: BLAS or LAPACK called outside src/solve and src/fit (see above)"; exit 1; fi
+	@echo "lint: BLAS and LAPACK only in src/solve and src/fit"
 
 check: lint unit cli-check ref-check asan-check tsan-check alloc-check valgrind-check
 	@echo "test groups: lint, unit, cli, reference, asan+ubsan, tsan, allocation failures, valgrind"

@@ -1,14 +1,14 @@
-#include <cblas.h>
 #include <float.h>
 #include <math.h>
 #include <string.h>
 
 #include "accum/accumulate.h"
+#include "accum/crossprod.h"
 #include "common/alloc.h"
 #include "family/family.h"
 
-/* 64-byte alignment keeps the BLAS kernels on one code path whatever the
- * allocator returns, so results cannot depend on where a buffer landed. */
+/* 64-byte alignment: whole cache lines per column start, and the lane
+ * vectors of the cross products never straddle two. */
 static double *aligned_doubles(size_t n) { return mr__aligned_alloc(n * sizeof(double)); }
 
 mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *err)
@@ -16,7 +16,10 @@ mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *
     const size_t R = MR__BLOCK_ROWS;
     memset(ws, 0, sizeof *ws);
     ws->p = d->p;
+    /* The dense columns, then sqrt(w) z as one more column: its products
+     * with them are X'Wz, formed in the same sweep as X'WX. */
     ws->D = aligned_doubles(R * (d->ndense + 1));
+    ws->lanes = aligned_doubles(MR__CROSSPROD_SCRATCH(d->ndense + 1));
     ws->sval = aligned_doubles(R * (d->nsparse + 1));
     ws->scol = mr__aligned_alloc(R * (d->nsparse + 1) * sizeof(int32_t));
     ws->dd = aligned_doubles((d->ndense + 1) * (d->ndense + 1));
@@ -29,8 +32,8 @@ mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *
     ws->var = aligned_doubles(R);
     ws->dev = aligned_doubles(R);
     ws->w = aligned_doubles(R);
-    ws->z = aligned_doubles(R);
-    if (!ws->sd || !ws->D || !ws->sval || !ws->scol || !ws->dd || !ws->bd || !ws->bs || !ws->eta || !ws->mu || !ws->mu_eta || !ws->var || !ws->dev || !ws->w || !ws->z) {
+    if (!ws->sd || !ws->D || !ws->lanes || !ws->sval || !ws->scol || !ws->dd || !ws->bd || !ws->bs || !ws->eta ||
+        !ws->mu || !ws->mu_eta || !ws->var || !ws->dev || !ws->w) {
         mr__workspace_release(ws);
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }
@@ -40,6 +43,7 @@ mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *
 void mr__workspace_release(mr__workspace *ws)
 {
     mr__free(ws->D);
+    mr__free(ws->lanes);
     mr__free(ws->sval);
     mr__free(ws->scol);
     mr__free(ws->dd);
@@ -52,7 +56,6 @@ void mr__workspace_release(mr__workspace *ws)
     mr__free(ws->var);
     mr__free(ws->dev);
     mr__free(ws->w);
-    mr__free(ws->z);
     memset(ws, 0, sizeof *ws);
 }
 
@@ -137,8 +140,7 @@ static void linear_predictor(const mr__irls_point *pt, const mr__block *blk, mr_
     }
     for (i = 0; i < n; i++) ws->eta[i] = blk->off ? blk->off[i] : 0.0;
     for (j = 0; j < d->ndense; j++) ws->bd[j] = pt->beta[d->dense_col[j]];
-    if (d->ndense)
-        cblas_dgemv(CblasColMajor, CblasNoTrans, (int)n, (int)d->ndense, 1.0, ws->D, (int)n, ws->bd, 1, 1.0, ws->eta, 1);
+    mr__matvec_add(ws->D, n, n, d->ndense, ws->bd, ws->eta);
     /* Reference rows (column -1) pick the 0 in front of the shifted
      * coefficients: no branch, whose outcome would be a coin toss for a
      * two-level factor. */
@@ -201,23 +203,24 @@ static size_t packed_index(const mr__design *d, size_t a, size_t b)
     return a <= b ? mr__design_packed_index(d, a, b) : mr__design_packed_index(d, b, a);
 }
 
-/* The dense columns' block of X'WX by dsyrk, scattered into place. */
+/* The dense columns' block of X'WX and their share of X'Wz: the cross
+ * products of D with the sqrt(w) z column after it, scattered into place. */
 static void dense_cross_products(const mr__design *d, mr__workspace *ws, size_t n, mr__block_sums *out)
 {
-    const size_t m = d->ndense;
+    const size_t m = d->ndense, mz = m + 1;
     size_t a, b;
     if (m == 0) return;
-    cblas_dsyrk(CblasColMajor, CblasUpper, CblasTrans, (int)m, (int)n, 1.0, ws->D, (int)n, 0.0, ws->dd, (int)m);
+    mr__crossprod_upper(ws->D, n, n, mz, ws->dd, ws->lanes);
     for (b = 0; b < m; b++)
-        for (a = 0; a <= b; a++) out->xtwx[packed_index(d, d->dense_col[a], d->dense_col[b])] += ws->dd[b * m + a];
-    cblas_dgemv(CblasColMajor, CblasTrans, (int)n, (int)m, 1.0, ws->D, (int)n, ws->z, 1, 0.0, ws->bd, 1);
-    for (a = 0; a < m; a++) out->xtwz[d->dense_col[a]] += ws->bd[a];
+        for (a = 0; a <= b; a++) out->xtwx[packed_index(d, d->dense_col[a], d->dense_col[b])] += ws->dd[b * mz + a];
+    for (a = 0; a < m; a++) out->xtwz[d->dense_col[a]] += ws->dd[m * mz + a];
 }
 
 /* A factor term's column meets, in row i, one column of every other
  * factor term and every dense column: index accumulation, so the cost
  * grows with the number of terms, never with the number of levels. */
-static void sparse_cross_products(const mr__design *d, mr__workspace *ws, size_t n, mr__block_sums *out)
+static void sparse_cross_products(const mr__design *d, mr__workspace *ws, const double *z, size_t n,
+                                  mr__block_sums *out)
 {
     const size_t p = d->p, m = d->ndense, ns = d->nsparse;
     double *G = out->xtwx, *SD = ws->sd;
@@ -234,7 +237,7 @@ static void sparse_cross_products(const mr__design *d, mr__workspace *ws, size_t
             if (cs < 0) continue;
             v = ws->sval[s * n + i] * ws->w[i];
             G[mr__design_packed_index(d, (size_t)cs, (size_t)cs)] += v * v;
-            out->xtwz[cs] += v * ws->z[i];
+            out->xtwz[cs] += v * z[i];
             for (t = s + 1; t < ns; t++) {
                 int32_t c2 = ws->scol[t * n + i];
                 if (c2 >= 0) G[packed_index(d, (size_t)cs, (size_t)c2)] += v * ws->sval[t * n + i] * ws->w[i];
@@ -254,7 +257,7 @@ void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__wo
     const mr__design *d = pt->design;
     const size_t n = blk->n;
     size_t i, j;
-    double dev = 0, pearson = 0;
+    double dev = 0, pearson = 0, *z;
     mr__sums_zero(out, d);
     if (n == 0) return;
     mr__design_fill_split(d, blk->num, blk->lev, MR__BLOCK_ROWS, n, ws->D, ws->scol, ws->sval);
@@ -264,8 +267,9 @@ void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__wo
     out->invalid = mr__count_invalid_n(pt->family, pt->link, ws->eta, ws->mu, n);
     if (pt->family == MR_BINOMIAL || pt->family == MR_POISSON)
         for (i = 0; i < n; i++) out->boundary += at_boundary(pt->family, ws->mu[i]);
-    /* w holds sqrt(w) and z holds sqrt(w) z: the rows of the weighted
-     * least-squares problem. */
+    /* w holds sqrt(w) and z, the column after the dense ones, sqrt(w) z:
+     * the rows of the weighted least-squares problem. */
+    z = ws->D + d->ndense * n;
     for (i = 0; i < n; i++) {
         double prior = blk->prior ? blk->prior[i] : 1.0, r = blk->y[i] - ws->mu[i];
         double off = blk->off ? blk->off[i] : 0.0;
@@ -273,7 +277,7 @@ void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__wo
         dev += prior * ws->dev[i];
         pearson += (prior * r * r + (blk->extra ? blk->extra[i] : 0.0)) / ws->var[i];
         ws->w[i] = s;
-        ws->z[i] = ((ws->eta[i] - off) + r / ws->mu_eta[i]) * s;
+        z[i] = ((ws->eta[i] - off) + r / ws->mu_eta[i]) * s;
     }
     out->dev = dev;
     out->pearson = pearson;
@@ -283,6 +287,6 @@ void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__wo
         for (i = 0; i < n; i++) col[i] *= ws->w[i];
     }
     dense_cross_products(d, ws, n, out);
-    sparse_cross_products(d, ws, n, out);
+    sparse_cross_products(d, ws, z, n, out);
     if (!pt->null_skip) null_model_rows(pt, blk, ws, out);
 }

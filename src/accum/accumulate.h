@@ -35,9 +35,10 @@ typedef struct mr__block_sums {
 typedef struct mr__workspace {
     size_t p;
     double *D, *sval, *dd, *bd, *sd;
-    double *bs; /* 0, then the coefficients (linear_predictor) */
+    double *lanes; /* scratch of the dense cross products */
+    double *bs;    /* 0, then the coefficients (linear_predictor) */
     int32_t *scol;
-    double *eta, *mu, *mu_eta, *var, *dev, *w, *z;
+    double *eta, *mu, *mu_eta, *var, *dev, *w;
 } mr__workspace;
 
 mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *err);
