@@ -78,15 +78,19 @@ mr_status mr__decoder_init(mr__decoder *d, const mr__decode_cfg *cfg, mr__error 
         d->keysets = mr__calloc(b->nfac + b->nnum + 1, sizeof *d->keysets);
     }
     d->wanted = mr__calloc(b->nfields + 1, 1);
-    d->quick = mr__calloc(b->nfields + 1, 1);
     quick = !numeric_missing_token(cfg);
-    for (f = 0; d->wanted && d->quick && f < b->nfields; f++) {
+    for (f = 0; d->wanted && f < b->nfields; f++) {
         int col = b->col_of_field[f];
-        d->wanted[f] = col >= 0;
-        d->quick[f] = quick && col >= 0 && b->col[col].use != MR__USE_FACTOR;
+        d->wanted[f] = col < 0 ? MR__FIELD_SKIP
+                       : quick && b->col[col].use != MR__USE_FACTOR ? MR__FIELD_QUICK
+                                                                    : MR__FIELD_WANTED;
+    }
+    for (f = 0; f < cfg->nmissing; f++) {
+        if (cfg->missing_len[f] == 0) d->missing_empty = 1;
+        else d->missing_first[(unsigned char)cfg->missing[f][0]] = 1;
     }
     d->defer_offset = cfg->levels == NULL && cfg->collapse == 2 && b->has_exposure && !b->has_offset;
-    if (!d->np || !d->val || !d->lev || !d->miss || !d->wanted || !d->quick || (cfg->levels == NULL && !d->local) ||
+    if (!d->np || !d->val || !d->lev || !d->miss || !d->wanted || (cfg->levels == NULL && !d->local) ||
         (cfg->levels == NULL && cfg->collapse && (!d->numvals || !d->keysets))) {
         mr__decoder_release(d);
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
@@ -115,15 +119,17 @@ void mr__decoder_release(mr__decoder *d)
     mr__free(d->lev);
     mr__free(d->miss);
     mr__free(d->wanted);
-    mr__free(d->quick);
     memset(d, 0, sizeof *d);
 }
 
-static int is_missing(const mr__decode_cfg *cfg, const char *p, size_t len)
+static int is_missing(const mr__decoder *d, const char *p, size_t len)
 {
+    const mr__decode_cfg *cfg = d->cfg;
     size_t i;
+    if (len == 0) return d->missing_empty;
+    if (!d->missing_first[(unsigned char)p[0]]) return 0;
     for (i = 0; i < cfg->nmissing; i++)
-        if (cfg->missing_len[i] == len && (len == 0 || (cfg->missing[i][0] == p[0] && memcmp(cfg->missing[i], p, len) == 0)))
+        if (cfg->missing_len[i] == len && memcmp(cfg->missing[i], p, len) == 0)
             return 1;
     return 0;
 }
@@ -145,7 +151,9 @@ static void decode_level(mr__decoder *d, int col, const char *p, size_t len)
 {
     const mr__column *c = &d->cfg->bind->col[col];
     if (d->cfg->levels == NULL) {
-        int rc = mr__levelset_add(&d->local[c->var], p, len, &d->lev[col]);
+        int rc = mr__levelset_lookup(&d->local[c->var], p, len, &d->lev[col])
+                     ? 0
+                     : mr__levelset_add(&d->local[c->var], p, len, &d->lev[col]);
         if (rc == -2) row_problem(d, (size_t)col, MR_ERR_DOMAIN, "more distinct levels than a factor may have (is it an identifier?)", p, len);
         else if (rc != 0) d->stop = 1;
         return;
@@ -161,7 +169,7 @@ static void on_field(void *user, size_t k, const char *p, size_t len)
     if (k >= d->cfg->bind->nfields || d->stop) return;
     col = d->cfg->bind->col_of_field[k];
     if (col < 0) return;
-    if (is_missing(d->cfg, p, len)) {
+    if (is_missing(d, p, len)) {
         d->miss[col] = 1;
         d->row_missing = 1;
         return;
@@ -299,7 +307,9 @@ static void add_pattern(mr__decoder *d, double y, double prior, double off)
     for (k = 0; k < b->nnum; k++) {
         int32_t id;
         /* too many values (or no memory) only means no collapsing */
-        if (mr__levelset_add(&d->numvals[k], (const char *)&d->val[b->num_col[k]], sizeof(double), &id) != 0) {
+        const char *v = (const char *)&d->val[b->num_col[k]];
+        if (!mr__levelset_lookup(&d->numvals[k], v, sizeof(double), &id) &&
+            mr__levelset_add(&d->numvals[k], v, sizeof(double), &id) != 0) {
             abandon_collapse(d->cfg);
             return;
         }
@@ -355,7 +365,7 @@ static const char *quick_number(void *user, size_t k, const char *s, const char 
 {
     mr__decoder *d = user;
     const mr__binding *b = d->cfg->bind;
-    if (k >= b->nfields || !d->quick[k] || d->stop) return NULL;
+    if (d->stop) return NULL;
     return mr__parse_short_decimal(s, e, d->cfg->delim, &d->val[b->col_of_field[k]]);
 }
 
@@ -392,10 +402,12 @@ mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, m
         st = mr__tokenize_chunk(&d->tok, c, &sink, d->cfg->display, err);
     } else {
         /* The same splitter as mr__tokenize_chunk, with this file's
-         * callbacks inlined into it. */
+         * callbacks inlined into it: a sink of its own, whose address goes
+         * nowhere else, so the compiler knows them. */
+        const mr__field_sink plain = {d, on_field, on_row_end, d->wanted, d->cfg->bind->nfields, quick_number};
         uint32_t r;
         for (r = 0; r < c->nrows; r++)
-            mr__plain_row(c->data + c->row_start[r], c->data + c->row_start[r + 1], d->cfg->delim, &sink, r);
+            mr__plain_row(c->data + c->row_start[r], c->data + c->row_start[r + 1], d->cfg->delim, &plain, r);
         st = MR_OK;
     }
     if (st == MR_OK && d->stop && !blk->failed) st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");

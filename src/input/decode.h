@@ -95,8 +95,13 @@ typedef struct mr__decoder {
     double *val;         /* per bound column, current row */
     int32_t *lev;
     unsigned char *miss;
-    unsigned char *wanted; /* per field: does the model use it */
-    unsigned char *quick;  /* per field: a numeric cell the inline parser may take */
+    unsigned char *wanted; /* per field: an mr__field_use (QUICK: a numeric cell
+                              the inline parser may take) */
+    /* The first bytes of the non-empty missing tokens, and whether the
+     * empty cell is one: most cells are told apart from every token by
+     * their first byte. */
+    unsigned char missing_first[256];
+    int missing_empty;
     int row_missing;       /* some miss[] is set for the current row */
     /* First pass, poisson log-link patterns with an exposure alone: the
      * patterns need log(exposure) only for rows with events, and a block

@@ -18,17 +18,20 @@ typedef struct mr__field_sink {
     void (*field)(void *user, size_t k, const char *p, size_t len);
     /* Row r (0-based within the chunk) is complete, with nfields fields. */
     void (*row_end)(void *user, uint32_t r, size_t nfields);
-    /* Optional: wanted[k] = 0 lets the plain splitter skip field k (it is
-     * still counted); NULL, or k >= nwanted, means not wanted. */
+    /* Optional: wanted[k] (an mr__field_use) lets the plain splitter skip
+     * field k (it is still counted) or offer it to `quick` first; NULL
+     * means every field goes to `field`, and k >= nwanted is skipped. */
     const unsigned char *wanted;
     size_t nwanted;
-    /* Optional, plain splitter only: offered wanted field k as the raw
-     * [s, e) of the rest of the row, it may take the cell whole and return
-     * where the cell ends (at the delimiter or e); or it returns NULL, and
-     * the cell goes to `field` trimmed.  A cell it takes must give what
-     * `field` would have made of it. */
+    /* Plain splitter only, for fields marked MR__FIELD_QUICK: offered the
+     * raw [s, e) of the rest of the row, it may take the cell whole and
+     * return where the cell ends (at the delimiter or e); or it returns
+     * NULL, and the cell goes to `field` trimmed.  A cell it takes must give
+     * what `field` would have made of it. */
     const char *(*quick)(void *user, size_t k, const char *s, const char *e);
 } mr__field_sink;
+
+typedef enum mr__field_use { MR__FIELD_SKIP = 0, MR__FIELD_WANTED = 1, MR__FIELD_QUICK = 2 } mr__field_use;
 
 /* A tokenizer a worker owns; wraps a libcsv parser. */
 typedef struct mr__tokenizer {
@@ -53,8 +56,8 @@ static inline void mr__plain_row(const char *s, const char *e, char delim, const
     if (e > s && e[-1] == '\r') e--;
     for (;;) {
         const char *d, *fs = s, *fe;
-        int want = sink->wanted == NULL || (k < sink->nwanted && sink->wanted[k]);
-        if (!want || sink->quick == NULL || (d = sink->quick(sink->user, k, s, e)) == NULL) {
+        int want = sink->wanted == NULL ? MR__FIELD_WANTED : k < sink->nwanted ? sink->wanted[k] : MR__FIELD_SKIP;
+        if (want != MR__FIELD_QUICK || (d = sink->quick(sink->user, k, s, e)) == NULL) {
             for (d = s; d < e && *d != delim; d++) continue;
             if (want) {
                 fe = d;

@@ -4,46 +4,6 @@
 #include "common/alloc.h"
 #include "model/levels.h"
 
-/* Levels are met once a cell, so the common short ones are compared as
- * one word and hashed from it, with no call to memcmp.  The word must be
- * the same for the same bytes and differ for other bytes of the same
- * length; two overlapping loads give that on a little-endian machine. */
-static uint64_t head_of(const char *p, size_t len)
-{
-    uint64_t w = 0;
-    if (len >= 8) { /* numeric values are kept as their 8 bytes */
-        memcpy(&w, p, 8);
-        return w;
-    }
-#if defined(__BYTE_ORDER__) && __BYTE_ORDER__ == __ORDER_LITTLE_ENDIAN__
-    if (len >= 4) {
-        uint32_t lo, hi;
-        memcpy(&lo, p, 4);
-        memcpy(&hi, p + len - 4, 4);
-        return (uint64_t)lo | (uint64_t)hi << (8 * (len - 4));
-    }
-    if (len == 0) return 0;
-    return (uint64_t)(unsigned char)p[0] | (uint64_t)(unsigned char)p[len / 2] << (8 * (len / 2)) |
-           (uint64_t)(unsigned char)p[len - 1] << (8 * (len - 1));
-#else
-    for (size_t i = 0; i < len; i++) w |= (uint64_t)(unsigned char)p[i] << (8 * i);
-    return w;
-#endif
-}
-
-/* One multiplication; the table takes its slot from the top bits, which
- * every input bit reaches (numeric values, kept as their 8 bytes, differ
- * only in their high bits). */
-static uint64_t hash_of(uint64_t head, const char *p, size_t len)
-{
-    uint64_t h = head ^ ((uint64_t)len << 59);
-    size_t i;
-    for (i = 8; i < len; i++) h = (h ^ (unsigned char)p[i]) * 0x100000001b3ULL;
-    return h * 0x9e3779b97f4a7c15ULL;
-}
-
-static size_t home_slot(const mr__levelset *s, uint64_t h) { return (size_t)(h >> (64 - __builtin_ctzll(s->cap))); }
-
 void mr__levelset_init(mr__levelset *s) { memset(s, 0, sizeof *s); }
 
 void mr__levelset_release(mr__levelset *s)
@@ -55,17 +15,6 @@ void mr__levelset_release(mr__levelset *s)
     mr__levelset_init(s);
 }
 
-static inline mr__level_entry *probe(const mr__levelset *s, uint64_t h, uint64_t head, const char *p, size_t len)
-{
-    size_t mask = s->cap - 1, i = home_slot(s, h);
-    for (;;) {
-        mr__level_entry *e = &s->slot[i];
-        if (e->str == NULL) return e;
-        if (e->head == head && e->len == len && (len <= 8 || memcmp(e->str + 8, p + 8, len - 8) == 0)) return e;
-        i = (i + 1) & mask;
-    }
-}
-
 static int grow(mr__levelset *s)
 {
     size_t cap = s->cap ? 2 * s->cap : 64, i;
@@ -75,7 +24,7 @@ static int grow(mr__levelset *s)
     bigger.cap = cap;
     bigger.n = s->n;
     for (i = 0; i < s->cap; i++)
-        if (s->slot[i].str != NULL) *probe(&bigger, s->slot[i].hash, s->slot[i].head, s->slot[i].str, s->slot[i].len) = s->slot[i];
+        if (s->slot[i].str != NULL) *mr__level_probe(&bigger, s->slot[i].hash, s->slot[i].head, s->slot[i].str, s->slot[i].len) = s->slot[i];
     mr__free(s->slot);
     s->slot = bigger.slot;
     s->cap = cap;
@@ -88,7 +37,7 @@ static int insert_hashed(mr__levelset *s, uint64_t h, uint64_t head, const char 
     mr__level_entry *e;
     *made = NULL;
     if (s->n + 1 > s->cap / 2 && grow(s) != 0) return -1;
-    e = probe(s, h, head, p, len);
+    e = mr__level_probe(s, h, head, p, len);
     if (e->str != NULL) {
         *out = e->id;
         return 0;
@@ -108,16 +57,12 @@ static int insert_hashed(mr__levelset *s, uint64_t h, uint64_t head, const char 
 
 int mr__levelset_add(mr__levelset *s, const char *p, size_t len, int32_t *id)
 {
-    uint64_t head = head_of(p, len), h = hash_of(head, p, len);
+    uint64_t head, h;
     mr__level_entry *made;
     int rc;
-    if (s->cap > 0) { /* met before: the case of nearly every cell */
-        const mr__level_entry *e = probe(s, h, head, p, len);
-        if (e->str != NULL) {
-            *id = e->id;
-            return 0;
-        }
-    }
+    if (mr__levelset_lookup(s, p, len, id)) return 0; /* nearly every cell */
+    head = mr__level_head(p, len);
+    h = mr__level_hash(head, p, len);
     if (mr__reserve((void **)&s->name, &s->name_cap, s->n + 1, sizeof *s->name) != 0) return -1;
     rc = insert_hashed(s, h, head, p, len, (int32_t)s->n, id, &made);
     if (made != NULL) {
@@ -129,11 +74,8 @@ int mr__levelset_add(mr__levelset *s, const char *p, size_t len, int32_t *id)
 
 int32_t mr__levelset_find(const mr__levelset *s, const char *p, size_t len)
 {
-    const mr__level_entry *e;
-    uint64_t head = head_of(p, len);
-    if (s->cap == 0) return -1;
-    e = probe(s, hash_of(head, p, len), head, p, len);
-    return e->str ? e->id : -1;
+    int32_t id;
+    return mr__levelset_lookup(s, p, len, &id) ? id : -1;
 }
 
 static int cmp_entry(const void *a, const void *b)
