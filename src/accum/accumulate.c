@@ -11,6 +11,20 @@
  * vectors of the cross products never straddle two. */
 static double *aligned_doubles(size_t n) { return mr__aligned_alloc(n * sizeof(double)); }
 
+/* A factor term's column meets, in row i, one column of every other
+ * factor term and every dense column: index accumulation, so the cost
+ * grows with the number of terms, never with the number of levels.
+ *
+ * Its products with the dense columns and with sqrt(w) z (its share of
+ * X'Wz) go to a p x dense_width buffer first, row c holding column c's
+ * sums: a row of the block adds v times its dense values to one such row,
+ * a plain vector loop.  For that the dense values of ROW_TILE rows at a
+ * time are copied into rows of their own, padded with zeros to a multiple
+ * of four.  Every sum still takes its terms in row order. */
+enum { ROW_TILE = 64 };
+
+static size_t dense_width(const mr__design *d) { return (d->ndense + 1 + 3) / 4 * 4; }
+
 mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *err)
 {
     const size_t R = MR__BLOCK_ROWS;
@@ -25,14 +39,15 @@ mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *
     ws->dd = aligned_doubles((d->ndense + 1) * (d->ndense + 1));
     ws->bd = aligned_doubles(d->ndense + 1);
     ws->bs = aligned_doubles(d->p + 1);
-    ws->sd = aligned_doubles(d->p * (d->ndense + 1));
+    ws->sd = aligned_doubles(d->p * dense_width(d));
+    ws->tile = aligned_doubles(ROW_TILE * dense_width(d));
     ws->eta = aligned_doubles(R);
     ws->mu = aligned_doubles(R);
     ws->mu_eta = aligned_doubles(R);
     ws->var = aligned_doubles(R);
     ws->dev = aligned_doubles(R);
     ws->w = aligned_doubles(R);
-    if (!ws->sd || !ws->D || !ws->lanes || !ws->sval || !ws->scol || !ws->dd || !ws->bd || !ws->bs || !ws->eta ||
+    if (!ws->sd || !ws->tile || !ws->D || !ws->lanes || !ws->sval || !ws->scol || !ws->dd || !ws->bd || !ws->bs || !ws->eta ||
         !ws->mu || !ws->mu_eta || !ws->var || !ws->dev || !ws->w) {
         mr__workspace_release(ws);
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
@@ -50,6 +65,7 @@ void mr__workspace_release(mr__workspace *ws)
     mr__free(ws->bd);
     mr__free(ws->bs);
     mr__free(ws->sd);
+    mr__free(ws->tile);
     mr__free(ws->eta);
     mr__free(ws->mu);
     mr__free(ws->mu_eta);
@@ -216,39 +232,62 @@ static void dense_cross_products(const mr__design *d, mr__workspace *ws, size_t 
     for (a = 0; a < m; a++) out->xtwz[d->dense_col[a]] += ws->dd[m * mz + a];
 }
 
-/* A factor term's column meets, in row i, one column of every other
- * factor term and every dense column: index accumulation, so the cost
- * grows with the number of terms, never with the number of levels. */
-static void sparse_cross_products(const mr__design *d, mr__workspace *ws, const double *z, size_t n,
-                                  mr__block_sums *out)
+static void tile_rows(const double *D, size_t n, size_t m, size_t width, size_t i0, size_t rows, double *out)
 {
-    const size_t p = d->p, m = d->ndense, ns = d->nsparse;
-    double *G = out->xtwx, *SD = ws->sd;
-    size_t i, s, t, j, c;
-    /* Sparse-by-dense products go to a p x m buffer first (contiguous in
-     * the dense index, so the inner loop is a plain axpy). */
-    memset(SD, 0, p * m * sizeof *SD);
-    for (i = 0; i < n; i++) {
-        double dense_row[MR__MAX_DENSE];
-        for (j = 0; j < m; j++) dense_row[j] = ws->D[j * n + i];
-        for (s = 0; s < ns; s++) {
-            int32_t cs = ws->scol[s * n + i];
-            double v, *sd;
-            if (cs < 0) continue;
-            v = ws->sval[s * n + i] * ws->w[i];
-            G[mr__design_packed_index(d, (size_t)cs, (size_t)cs)] += v * v;
-            out->xtwz[cs] += v * z[i];
-            for (t = s + 1; t < ns; t++) {
-                int32_t c2 = ws->scol[t * n + i];
-                if (c2 >= 0) G[packed_index(d, (size_t)cs, (size_t)c2)] += v * ws->sval[t * n + i] * ws->w[i];
+    size_t j, r;
+    for (j = 0; j <= m; j++) { /* column m is sqrt(w) z */
+        const double *col = D + j * n + i0;
+        for (r = 0; r < rows; r++) out[r * width + j] = col[r];
+    }
+}
+
+/* to[j] += v x[j], j < width (a multiple of 4): fours the compiler turns
+ * into vector operations without a scalar tail or a test for overlap. */
+static void add_scaled(double *restrict to, double v, const double *restrict x, size_t width)
+{
+    size_t j;
+    for (j = 0; j < width; j += 4) {
+        to[j] += v * x[j];
+        to[j + 1] += v * x[j + 1];
+        to[j + 2] += v * x[j + 2];
+        to[j + 3] += v * x[j + 3];
+    }
+}
+
+static void sparse_cross_products(const mr__design *d, mr__workspace *ws, size_t n, mr__block_sums *out)
+{
+    const size_t p = d->p, m = d->ndense, ns = d->nsparse, width = dense_width(d);
+    const double *w = ws->w;
+    double *G = out->xtwx, *SD = ws->sd, *tile = ws->tile;
+    size_t i0, r, s, t, j, c;
+    memset(SD, 0, p * width * sizeof *SD);
+    memset(tile, 0, ROW_TILE * width * sizeof *tile);
+    for (i0 = 0; i0 < n; i0 += ROW_TILE) {
+        const size_t rows = n - i0 < ROW_TILE ? n - i0 : ROW_TILE;
+        tile_rows(ws->D, n, m, width, i0, rows, tile);
+        for (r = 0; r < rows; r++) {
+            const size_t i = i0 + r;
+            const double *dense = tile + r * width;
+            for (s = 0; s < ns; s++) {
+                int32_t cs = ws->scol[s * n + i];
+                double v;
+                if (cs < 0) continue;
+                v = ws->sval[s * n + i] * w[i];
+                G[mr__design_packed_index(d, (size_t)cs, (size_t)cs)] += v * v;
+                for (t = s + 1; t < ns; t++) {
+                    int32_t c2 = ws->scol[t * n + i];
+                    if (c2 >= 0) G[packed_index(d, (size_t)cs, (size_t)c2)] += v * ws->sval[t * n + i] * w[i];
+                }
+                add_scaled(SD + (size_t)cs * width, v, dense, width);
             }
-            sd = SD + (size_t)cs * m;
-            for (j = 0; j < m; j++) sd[j] += v * dense_row[j];
         }
     }
-    for (c = 0; c < p; c++)
+    for (c = 0; c < p; c++) {
+        const double *sd = SD + c * width;
         for (j = 0; j < m; j++)
-            if (SD[c * m + j] != 0.0) G[packed_index(d, c, d->dense_col[j])] += SD[c * m + j];
+            if (sd[j] != 0.0) G[packed_index(d, c, d->dense_col[j])] += sd[j];
+        out->xtwz[c] += sd[m];
+    }
 }
 
 void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__workspace *ws,
@@ -287,6 +326,6 @@ void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__wo
         for (i = 0; i < n; i++) col[i] *= ws->w[i];
     }
     dense_cross_products(d, ws, n, out);
-    sparse_cross_products(d, ws, z, n, out);
+    sparse_cross_products(d, ws, n, out);
     if (!pt->null_skip) null_model_rows(pt, blk, ws, out);
 }

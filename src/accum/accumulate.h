@@ -36,6 +36,7 @@ typedef struct mr__workspace {
     size_t p;
     double *D, *sval, *dd, *bd, *sd;
     double *lanes; /* scratch of the dense cross products */
+    double *tile;  /* rows of dense values (sparse_cross_products) */
     double *bs;    /* 0, then the coefficients (linear_predictor) */
     int32_t *scol;
     double *eta, *mu, *mu_eta, *var, *dev, *w;
