@@ -149,6 +149,18 @@ static size_t pack_doubles(const double *x, size_t n, char *out)
     return 1 + n * sizeof *x;
 }
 
+/* One loop per width, so that each is a plain conversion the compiler
+ * vectorises (later passes unpack every block). */
+#define WIDEN(T, p, n, out)                                                                                           \
+    do {                                                                                                              \
+        size_t i_;                                                                                                    \
+        for (i_ = 0; i_ < (n); i_++) {                                                                                \
+            T v_;                                                                                                     \
+            memcpy(&v_, (p) + i_ * sizeof v_, sizeof v_);                                                             \
+            (out)[i_] = v_;                                                                                           \
+        }                                                                                                             \
+    } while (0)
+
 static size_t unpack_doubles(const char *in, size_t n, double *x)
 {
     unsigned tag = (unsigned char)in[0], w = tag & 15;
@@ -158,7 +170,13 @@ static size_t unpack_doubles(const char *in, size_t n, double *x)
         memcpy(x, in + 1, n * sizeof *x);
         return 1 + n * sizeof *x;
     }
-    for (i = 0; i < n; i++) x[i] = from_int(get_int(in + 1 + i * w, w), si);
+    if (w == W1) WIDEN(int8_t, in + 1, n, x);
+    else if (w == W2) WIDEN(int16_t, in + 1, n, x);
+    else WIDEN(int32_t, in + 1, n, x);
+    if (si) { /* from_int's division, one IEEE operation per value */
+        const double scale = scale_of[si];
+        for (i = 0; i < n; i++) x[i] /= scale;
+    }
     return 1 + n * w;
 }
 
@@ -180,8 +198,9 @@ static size_t pack_levels(const int32_t *lev, size_t n, char *out)
 static size_t unpack_levels(const char *in, size_t n, int32_t *lev)
 {
     unsigned w = (unsigned char)in[0];
-    size_t i;
-    for (i = 0; i < n; i++) lev[i] = get_int(in + 1 + i * w, w);
+    if (w == W1) WIDEN(int8_t, in + 1, n, lev);
+    else if (w == W2) WIDEN(int16_t, in + 1, n, lev);
+    else WIDEN(int32_t, in + 1, n, lev);
     return 1 + n * w;
 }
 
