@@ -43,24 +43,23 @@ static inline const char *mr__parse_short_decimal(const char *p, const char *e, 
 {
     static const double pow10[16] = {1e0, 1e1, 1e2,  1e3,  1e4,  1e5,  1e6,  1e7,
                                      1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15};
-    uint64_t m = 0;
-    int negative = p < e && *p == '-', digits = 0, frac = -1;
+    uint64_t m = 0; /* wraps past 19 digits, but then more than 15 were read */
+    const char *digits;
+    int negative = p < e && *p == '-', nfrac = 0;
+    size_t ndigits;
     double v;
-    for (p += negative; p < e && *p != stop; p++) {
-        unsigned dgt = (unsigned)(unsigned char)*p - '0';
-        if (dgt < 10) {
-            m = m * 10 + dgt;
-            digits++;
-            frac += frac >= 0;
-        } else if (*p == '.' && frac < 0) {
-            frac = 0;
-        } else {
-            return NULL;
-        }
+    digits = p += negative;
+    while (p < e && (unsigned)(*p - '0') < 10) m = m * 10 + (unsigned)(*p++ - '0');
+    ndigits = (size_t)(p - digits);
+    if (p < e && *p == '.') {
+        const char *frac = ++p;
+        while (p < e && (unsigned)(*p - '0') < 10) m = m * 10 + (unsigned)(*p++ - '0');
+        nfrac = (int)(p - frac);
+        ndigits += (size_t)nfrac;
     }
-    if (digits == 0 || digits > 15) return NULL;
+    if ((p < e && *p != stop) || ndigits == 0 || ndigits > 15) return NULL;
     v = (double)m;
-    if (frac > 0) v /= pow10[frac];
+    if (nfrac > 0) v /= pow10[nfrac];
     *out = negative ? -v : v;
     return p;
 }
