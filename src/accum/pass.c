@@ -416,6 +416,9 @@ static mr_status begin_stream(engine *e, mr__error *err)
     const mr__pass_cfg *cfg = e->cfg;
     slot *first;
     MR__TRY(mr__source_open(&e->src, cfg->path, cfg->display, cfg->read_size, cfg->tee_fd, err));
+    /* the first pass's checksum is the one reported; later reads of the
+     * file are checked against its size and time */
+    if (cfg->kind != MR__PASS_SCAN) mr__source_skip_checksum(e->src);
     e->buf_cap = cfg->read_size < 16 ? 16 : cfg->read_size;
     e->buf = mr__malloc(e->buf_cap);
     if (e->buf == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");

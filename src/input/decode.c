@@ -158,8 +158,10 @@ static void decode_level(mr__decoder *d, int col, const char *p, size_t len)
         else if (rc != 0) d->stop = 1;
         return;
     }
-    d->lev[col] = mr__levelset_find(&d->cfg->levels[c->var], p, len);
-    if (d->lev[col] < 0) row_problem(d, (size_t)col, MR_ERR_FORMAT, "level not seen in the first pass: the input changed during the fit", p, len);
+    if (!mr__levelset_lookup(&d->cfg->levels[c->var], p, len, &d->lev[col])) {
+        d->lev[col] = -1;
+        row_problem(d, (size_t)col, MR_ERR_FORMAT, "level not seen in the first pass: the input changed during the fit", p, len);
+    }
 }
 
 static void on_field(void *user, size_t k, const char *p, size_t len)

@@ -24,6 +24,7 @@ struct mr__source {
     int64_t mtime_ns;
     char carry[8]; /* bytes of a checksum word not yet complete */
     size_t carry_len;
+    int no_checksum;
 };
 
 mr_status mr__source_open(mr__source **out, const char *path, const char *display, size_t read_size,
@@ -85,6 +86,7 @@ static void absorb(mr__source *s, const char *p, size_t n)
     uint64_t h = s->checksum;
     size_t i = 0;
     s->raw_bytes += n;
+    if (s->no_checksum) return;
     while (s->carry_len > 0 && s->carry_len < 8 && i < n) s->carry[s->carry_len++] = p[i++];
     if (s->carry_len == 8) {
         uint64_t w;
@@ -227,8 +229,15 @@ uint64_t mr__source_raw_bytes(const mr__source *s) { return s->raw_bytes; }
 uint64_t mr__source_size(const mr__source *s) { return s->size; }
 uint64_t mr__source_out_bytes(const mr__source *s) { return s->out_bytes; }
 int mr__source_is_zstd(const mr__source *s) { return s->zstd; }
+void mr__source_skip_checksum(mr__source *s)
+{
+    s->no_checksum = 1;
+    s->checksum = 0;
+}
+
 uint64_t mr__source_checksum(const mr__source *s)
 {
+    if (s->no_checksum) return 0;
     uint64_t w = 0, h = s->checksum;
     if (s->carry_len == 0) return h;
     memcpy(&w, s->carry, s->carry_len);

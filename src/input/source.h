@@ -32,6 +32,9 @@ int mr__source_is_zstd(const mr__source *s);
 /* FNV-1a 64 of the raw bytes read so far, taken as little-endian 64-bit
  * words (the last partial word zero-padded). */
 uint64_t mr__source_checksum(const mr__source *s);
+/* From now on bytes are only counted, not checksummed: a pass that reads
+ * the file again needs its size, not a second checksum (0 from then on). */
+void mr__source_skip_checksum(mr__source *s);
 /* Identity of the opened file (size and modification time) so a later
  * pass can tell that the file changed under the fit. */
 void mr__source_identity(const mr__source *s, uint64_t *size, int64_t *mtime_ns);
