@@ -270,6 +270,10 @@ mr_status mr__store_append(mr__store *s, const char *packed, size_t bytes, mr__e
 
 mr_status mr__store_keep(mr__store *s, mr__block *blk, const mr__binding *b, mr__error *err)
 {
+    if (s->packed) {
+        MR__TRY(stage(s, b, err));
+        return mr__store_add_packed(s, s->pack, mr__store_pack(blk, b, s->pack), err);
+    }
     if (s->fd < 0) {
         if (s->n == s->cap) MR__TRY(grow(s, err));
         s->block[s->n++] = *blk;

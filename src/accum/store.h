@@ -30,8 +30,10 @@ typedef struct mr__store {
 } mr__store;
 
 void mr__store_init_memory(mr__store *s);
-/* Blocks kept in their packed form in memory (a sample of the file: a
- * fifth of the bytes of decoded rows).  Filled with mr__store_add_packed. */
+/* Blocks kept in their packed form in memory (a sample of the file, or
+ * every block with --in-memory: a fifth of the bytes of decoded rows, and
+ * as many fewer pages to fault in).  Filled with mr__store_add_packed or
+ * mr__store_keep. */
 void mr__store_init_packed(mr__store *s);
 /* A file store in `dir`; MR_ERR_IO if it cannot be created. */
 mr_status mr__store_init_file(mr__store *s, const char *dir, mr__error *err);
@@ -41,8 +43,8 @@ void mr__store_release(mr__store *s);
 size_t mr__store_row_bytes(const mr__binding *b);
 
 /* Keeps block `*blk` as the next one.  The memory backend takes the block
- * itself and gives the caller a fresh one in its place; the file backend
- * packs and writes it. */
+ * itself and gives the caller a fresh one in its place; the file and the
+ * packed memory backends pack it and write or copy the bytes. */
 mr_status mr__store_keep(mr__store *s, mr__block *blk, const mr__binding *b, mr__error *err);
 
 /* The file backend's packed form of a block (store.c says why it is

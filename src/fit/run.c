@@ -255,7 +255,7 @@ static mr_status choose_store(mr__run *r, mr__error *err)
      * less than that (generous on both counts). */
     if (strcmp(r->path, "-") != 0 && stat(r->path, &in) == 0) need = 8.0 * (double)in.st_size;
     if (r->f->in_memory) {
-        mr__store_init_memory(&r->store);
+        mr__store_init_packed(&r->store);
         r->use_store = 1;
         return MR_OK;
     }
@@ -309,7 +309,7 @@ static mr_status settle_store(mr__run *r, mr__error *err)
             return MR_OK;
         }
         if (file) return mr__store_init_file(&r->store, temp_dir(), err);
-        mr__store_init_memory(&r->store);
+        mr__store_init_packed(&r->store);
         return MR_OK;
     }
     MR__TRY(build_remap(r, err));
