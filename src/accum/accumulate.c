@@ -23,6 +23,8 @@ static double *aligned_doubles(size_t n) { return mr__aligned_alloc(n * sizeof(d
  * of four.  Every sum still takes its terms in row order. */
 enum { ROW_TILE = 64 };
 
+_Static_assert(MR__MAX_DENSE + 1 <= MR__CROSSPROD_MAX_COLS, "the dense columns and sqrt(w) z fit the kernels");
+
 static size_t dense_width(const mr__design *d) { return (d->ndense + 1 + 3) / 4 * 4; }
 
 mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *err)
@@ -286,7 +288,7 @@ static void sparse_cross_products(const mr__design *d, mr__workspace *ws, size_t
         const double *sd = SD + c * width;
         for (j = 0; j < m; j++)
             if (sd[j] != 0.0) G[packed_index(d, c, d->dense_col[j])] += sd[j];
-        out->xtwz[c] += sd[m];
+        if (sd[m] != 0.0) out->xtwz[c] += sd[m]; /* dense columns' rows stay zero */
     }
 }
 
