@@ -151,17 +151,13 @@ static void decode_level(mr__decoder *d, int col, const char *p, size_t len)
 {
     const mr__column *c = &d->cfg->bind->col[col];
     if (d->cfg->levels == NULL) {
-        int rc = mr__levelset_lookup(&d->local[c->var], p, len, &d->lev[col])
-                     ? 0
-                     : mr__levelset_add(&d->local[c->var], p, len, &d->lev[col]);
+        int rc = mr__levelset_add(&d->local[c->var], p, len, &d->lev[col]);
         if (rc == -2) row_problem(d, (size_t)col, MR_ERR_DOMAIN, "more distinct levels than a factor may have (is it an identifier?)", p, len);
         else if (rc != 0) d->stop = 1;
         return;
     }
-    if (!mr__levelset_lookup(&d->cfg->levels[c->var], p, len, &d->lev[col])) {
-        d->lev[col] = -1;
-        row_problem(d, (size_t)col, MR_ERR_FORMAT, "level not seen in the first pass: the input changed during the fit", p, len);
-    }
+    d->lev[col] = mr__levelset_find(&d->cfg->levels[c->var], p, len);
+    if (d->lev[col] < 0) row_problem(d, (size_t)col, MR_ERR_FORMAT, "level not seen in the first pass: the input changed during the fit", p, len);
 }
 
 static void on_field(void *user, size_t k, const char *p, size_t len)
@@ -309,9 +305,7 @@ static void add_pattern(mr__decoder *d, double y, double prior, double off)
     for (k = 0; k < b->nnum; k++) {
         int32_t id;
         /* too many values (or no memory) only means no collapsing */
-        const char *v = (const char *)&d->val[b->num_col[k]];
-        if (!mr__levelset_lookup(&d->numvals[k], v, sizeof(double), &id) &&
-            mr__levelset_add(&d->numvals[k], v, sizeof(double), &id) != 0) {
+        if (mr__levelset_add(&d->numvals[k], (const char *)&d->val[b->num_col[k]], sizeof(double), &id) != 0) {
             abandon_collapse(d->cfg);
             return;
         }

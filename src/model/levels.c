@@ -55,14 +55,11 @@ static int insert_hashed(mr__levelset *s, uint64_t h, uint64_t head, const char 
     return 0;
 }
 
-int mr__levelset_add(mr__levelset *s, const char *p, size_t len, int32_t *id)
+int mr__levelset_insert(mr__levelset *s, const char *p, size_t len, int32_t *id)
 {
-    uint64_t head, h;
+    uint64_t head = mr__level_head(p, len), h = mr__level_hash(head, p, len);
     mr__level_entry *made;
     int rc;
-    if (mr__levelset_lookup(s, p, len, id)) return 0; /* nearly every cell */
-    head = mr__level_head(p, len);
-    h = mr__level_hash(head, p, len);
     if (mr__reserve((void **)&s->name, &s->name_cap, s->n + 1, sizeof *s->name) != 0) return -1;
     rc = insert_hashed(s, h, head, p, len, (int32_t)s->n, id, &made);
     if (made != NULL) {
@@ -72,11 +69,6 @@ int mr__levelset_add(mr__levelset *s, const char *p, size_t len, int32_t *id)
     return rc;
 }
 
-int32_t mr__levelset_find(const mr__levelset *s, const char *p, size_t len)
-{
-    int32_t id;
-    return mr__levelset_lookup(s, p, len, &id) ? id : -1;
-}
 
 static int cmp_entry(const void *a, const void *b)
 {

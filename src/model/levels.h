@@ -103,12 +103,22 @@ static inline int mr__levelset_lookup(const mr__levelset *s, const char *p, size
 void mr__levelset_init(mr__levelset *s);
 void mr__levelset_release(mr__levelset *s);
 
+/* mr__levelset_add's rare case, out of line: the string is not in the set. */
+int mr__levelset_insert(mr__levelset *s, const char *p, size_t len, int32_t *id);
+
 /* Adds the string if new (id = order of arrival) and stores its id in
  * *id.  Returns 0, or -1 when out of memory, or -2 when the set already
- * holds MR__MAX_LEVELS. */
-int mr__levelset_add(mr__levelset *s, const char *p, size_t len, int32_t *id);
+ * holds MR__MAX_LEVELS.  Inline: nearly every cell is met before. */
+static inline int mr__levelset_add(mr__levelset *s, const char *p, size_t len, int32_t *id)
+{
+    return mr__levelset_lookup(s, p, len, id) ? 0 : mr__levelset_insert(s, p, len, id);
+}
 /* The id of a string, or -1. */
-int32_t mr__levelset_find(const mr__levelset *s, const char *p, size_t len);
+static inline int32_t mr__levelset_find(const mr__levelset *s, const char *p, size_t len)
+{
+    int32_t id;
+    return mr__levelset_lookup(s, p, len, &id) ? id : -1;
+}
 
 /* Merges `n` sets into a new set whose ids follow byte-wise sorted order,
  * and lists the strings in that order (*sorted[i] points into *out). */
