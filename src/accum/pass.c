@@ -181,15 +181,12 @@ static void *reader_main(void *arg)
 
 /* ---- the workers ----------------------------------------------------- */
 
-/* The file store and the packed memory store keep blocks as bytes. */
-static int packs_blocks(const mr__store *store) { return store->fd >= 0 || store->packed; }
-
 /* Whether a worker should pack its decoded block for the store: the
  * first pass keeps blocks only while the rows cannot collapse (the
  * combiner packs the odd block itself when collapsing is given up). */
 static int worth_packing(const mr__pass_cfg *cfg)
 {
-    if (cfg->store == NULL || !packs_blocks(cfg->store) || !cfg->store_fill) return 0;
+    if (cfg->store == NULL || !mr__store_keeps_bytes(cfg->store) || !cfg->store_fill) return 0;
     return cfg->kind == MR__PASS_IRLS || !cfg->dcfg->collapse || atomic_load(cfg->dcfg->collapse_abandoned);
 }
 
@@ -316,7 +313,7 @@ static mr_status init_slots(engine *e, mr__error *err)
         s->chunk = mr__calloc(1, sizeof *s->chunk);
         if (s->chunk == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
         MR__TRY(mr__block_init(&s->block, b, err));
-        if (((cfg->store && packs_blocks(cfg->store)) || cfg->kind == MR__PASS_SCAN) &&
+        if (((cfg->store && mr__store_keeps_bytes(cfg->store)) || cfg->kind == MR__PASS_SCAN) &&
             (s->packed = mr__malloc(mr__store_pack_bound(b))) == NULL)
             return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
         if (cfg->kind == MR__PASS_SCAN && cfg->dcfg->collapse) {
@@ -485,8 +482,8 @@ static mr_status keep_block(const mr__pass_cfg *cfg, slot *s, mr__error *err)
 {
     mr__pattern_rows *patterns = s->block.patterns;
     mr_status st;
-    if (s->packed_len > 0 && cfg->store->fd >= 0) return mr__store_append(cfg->store, s->packed, s->packed_len, err);
-    if (s->packed_len > 0 && cfg->store->packed) return mr__store_add_packed(cfg->store, s->packed, s->packed_len, err);
+    if (s->packed_len > 0 && mr__store_keeps_bytes(cfg->store))
+        return mr__store_put_packed(cfg->store, s->packed, s->packed_len, err);
     mr__block_settle_offsets(&s->block);
     s->block.patterns = NULL; /* the slot keeps its pattern rows */
     st = mr__store_keep(cfg->store, &s->block, cfg->dcfg->bind, err);

@@ -268,19 +268,22 @@ mr_status mr__store_append(mr__store *s, const char *packed, size_t bytes, mr__e
     return MR_OK;
 }
 
+int mr__store_keeps_bytes(const mr__store *s) { return s->fd >= 0 || s->packed; }
+
+mr_status mr__store_put_packed(mr__store *s, const char *packed, size_t bytes, mr__error *err)
+{
+    return s->packed ? mr__store_add_packed(s, packed, bytes, err) : mr__store_append(s, packed, bytes, err);
+}
+
 mr_status mr__store_keep(mr__store *s, mr__block *blk, const mr__binding *b, mr__error *err)
 {
-    if (s->packed) {
-        MR__TRY(stage(s, b, err));
-        return mr__store_add_packed(s, s->pack, mr__store_pack(blk, b, s->pack), err);
-    }
-    if (s->fd < 0) {
+    if (!mr__store_keeps_bytes(s)) {
         if (s->n == s->cap) MR__TRY(grow(s, err));
         s->block[s->n++] = *blk;
         return mr__block_init(blk, b, err);
     }
     MR__TRY(stage(s, b, err));
-    return mr__store_append(s, s->pack, mr__store_pack(blk, b, s->pack), err);
+    return mr__store_put_packed(s, s->pack, mr__store_pack(blk, b, s->pack), err);
 }
 
 static void map_levels(const mr__store *s, mr__block *blk)

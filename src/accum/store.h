@@ -55,6 +55,10 @@ size_t mr__store_pack_bound(const mr__binding *b);
 size_t mr__store_pack(const mr__block *blk, const mr__binding *b, char *out);
 /* Writes a packed block as the next one (file backend). */
 mr_status mr__store_append(mr__store *s, const char *packed, size_t bytes, mr__error *err);
+/* 1 when the store keeps blocks as packed bytes (file, packed memory). */
+int mr__store_keeps_bytes(const mr__store *s);
+/* A packed block as the next one: written to the file or copied. */
+mr_status mr__store_put_packed(mr__store *s, const char *packed, size_t bytes, mr__error *err);
 /* Reads packed block i into buf (file backend; at most the bound). */
 mr_status mr__store_read(const mr__store *s, size_t i, char *buf, mr__error *err);
 /* Packed memory backend: keeps a copy of a packed block as the next one;
