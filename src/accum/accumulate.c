@@ -42,7 +42,8 @@ mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *
     ws->bd = aligned_doubles(d->ndense + 1);
     ws->bs = aligned_doubles(d->p + 1);
     ws->sd = aligned_doubles(d->p * dense_width(d));
-    ws->tile = aligned_doubles(ROW_TILE * dense_width(d));
+    /* zeroed once: rows are padded with zeros that no block overwrites */
+    ws->tile = mr__calloc_lines(ROW_TILE * dense_width(d), sizeof(double));
     ws->eta = aligned_doubles(R);
     ws->mu = aligned_doubles(R);
     ws->mu_eta = aligned_doubles(R);
@@ -263,7 +264,6 @@ static void sparse_cross_products(const mr__design *d, mr__workspace *ws, size_t
     double *G = out->xtwx, *SD = ws->sd, *tile = ws->tile;
     size_t i0, r, s, t, j, c;
     memset(SD, 0, p * width * sizeof *SD);
-    memset(tile, 0, ROW_TILE * width * sizeof *tile);
     for (i0 = 0; i0 < n; i0 += ROW_TILE) {
         const size_t rows = n - i0 < ROW_TILE ? n - i0 : ROW_TILE;
         tile_rows(ws->D, n, m, width, i0, rows, tile);

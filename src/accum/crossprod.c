@@ -112,7 +112,6 @@ void mr__crossprod_upper(const double *D, size_t ld, size_t n, size_t m, double 
         }
 }
 
-
 int mr__crossprod_wide(void)
 {
 #if WIDE_PATH
