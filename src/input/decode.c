@@ -373,9 +373,15 @@ static void check_collapsible(mr__decoder *d, const mr__block *blk)
             abandon_collapse(d->cfg);
 }
 
-mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, mr__error *err)
+static mr__field_sink decoder_sink(mr__decoder *d)
 {
     mr__field_sink sink = {d, on_field, on_row_end, d->wanted, d->cfg->bind->nfields, quick_number};
+    return sink;
+}
+
+mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, mr__error *err)
+{
+    const mr__field_sink sink = decoder_sink(d);
     mr_status st;
     size_t k;
     blk->index = c->index;
@@ -400,7 +406,7 @@ mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, m
         /* The same splitter as mr__tokenize_chunk, with this file's
          * callbacks inlined into it: a sink of its own, whose address goes
          * nowhere else, so the compiler knows them. */
-        const mr__field_sink plain = {d, on_field, on_row_end, d->wanted, d->cfg->bind->nfields, quick_number};
+        const mr__field_sink plain = decoder_sink(d);
         uint32_t r;
         for (r = 0; r < c->nrows; r++)
             mr__plain_row(c->data + c->row_start[r], c->data + c->row_start[r + 1], d->cfg->delim, &plain, r);
