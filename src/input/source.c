@@ -233,11 +233,11 @@ void mr__source_skip_checksum(mr__source *s)
 {
     s->no_checksum = 1;
     s->checksum = 0;
+    s->carry_len = 0;
 }
 
 uint64_t mr__source_checksum(const mr__source *s)
 {
-    if (s->no_checksum) return 0;
     uint64_t w = 0, h = s->checksum;
     if (s->carry_len == 0) return h;
     memcpy(&w, s->carry, s->carry_len);
