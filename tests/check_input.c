@@ -250,6 +250,34 @@ static void note(collector *col, const char *fmt, ...)
     va_end(ap);
 }
 
+/* A chunk recut from the corpus bytes at the offsets the stream gave it
+ * (as a later pass reads a plain file's blocks, blockmap.h) must be the
+ * streamed chunk itself, which check_chunk holds to the corpus. */
+static void check_recut(collector *col, const mr__chunk *c)
+{
+    const corpus *cp = col->cp;
+    mr__chunk *r = new_chunk();
+    size_t len = (size_t)(c->end - c->offset);
+    int last = col->next_row + c->nrows == cp->nrows;
+    mr__error err;
+    mr__error_clear(&err);
+    if (c->end < c->offset || c->end > cp->text.n || mr__chunk_room(r, len, &err) == NULL) {
+        note(col, "chunk %llu: bytes [%llu, %llu) out of range", (unsigned long long)c->index,
+             (unsigned long long)c->offset, (unsigned long long)c->end);
+        free_chunk(r);
+        return;
+    }
+    memcpy(r->data, cp->text.p + c->offset, len);
+    if (mr__splitter_recut(r, len, "corpus.csv", c->index * MR__BLOCK_ROWS, c->first_line, c->nrows, last, &err) != MR_OK)
+        note(col, "chunk %llu recut: %s", (unsigned long long)c->index, err.msg);
+    else if (r->index != c->index || r->nrows != c->nrows || r->first_line != c->first_line ||
+             r->has_quote != c->has_quote || r->len != c->len || memcmp(r->data, c->data, c->len) != 0 ||
+             memcmp(r->row_start, c->row_start, (c->nrows + 1) * sizeof *c->row_start) != 0 ||
+             memcmp(r->row_line, c->row_line, c->nrows * sizeof *c->row_line) != 0)
+        note(col, "chunk %llu recut differs from the streamed chunk", (unsigned long long)c->index);
+    free_chunk(r);
+}
+
 /* Source of truth: the corpus as written (RFC 4180 records) and chunk.h
  * (MR__BLOCK_ROWS rows a chunk, index counted from the first data row). */
 static void check_chunk(collector *col, const mr__chunk *c)
@@ -276,6 +304,7 @@ static void check_chunk(collector *col, const mr__chunk *c)
     if (c->len != c->row_start[c->nrows])
         note(col, "chunk %llu: len %zu != end of last row %zu", (unsigned long long)col->nchunks, c->len,
              c->row_start[c->nrows]);
+    check_recut(col, c);
     col->next_row += c->nrows;
     col->nchunks++;
 }
@@ -436,6 +465,93 @@ static void expect_row(const mr__chunk *c, uint32_t r, const char *bytes_, uint6
     ck_assert(memcmp(c->data + c->row_start[r], bytes_, len) == 0);
     ck_assert_uint_eq(c->first_line + c->row_line[r], line);
 }
+
+START_TEST(test_split_many_chunks_recut)
+{
+    /* Source of truth: the corpus rows as written; several chunks, so
+     * that chunk offsets after the first (and a last partial chunk, with
+     * or without a final newline) are recut too (check_recut). */
+    corpus cp;
+    collector col;
+    make_corpus(&cp, 2 * MR__BLOCK_ROWS + 777, 31, _i);
+    split_corpus_as(&cp, 4093, 0, 0, 1, &col);
+    expect_all_rows(&col, &cp, "piece size, read in place", 4093);
+    split_corpus(&cp, 0, 20000, 77, &col);
+    expect_all_rows(&col, &cp, "random pieces, seed", 77);
+    free_corpus(&cp);
+}
+END_TEST
+
+/* Alternates two chunks, as the reader alternates slots. */
+static mr__chunk *swap_chunks(void *user, mr__chunk *full, mr__error *err)
+{
+    mr__chunk **pair = user;
+    (void)err;
+    return full == pair[0] ? pair[1] : pair[0];
+}
+
+/* Recuts [from, to) of text as chunk `index` (first line `line`). */
+static mr_status recut_text(const char *text, size_t from, size_t to, uint64_t index, uint64_t line, uint32_t nrows,
+                            int last, mr__error *err)
+{
+    mr__chunk *c = new_chunk();
+    mr_status st;
+    mr__error_clear(err);
+    ck_assert_ptr_nonnull(mr__chunk_room(c, to - from, err));
+    memcpy(c->data, text + from, to - from);
+    st = mr__splitter_recut(c, to - from, "t.csv", index * MR__BLOCK_ROWS, line, nrows, last, err);
+    free_chunk(c);
+    return st;
+}
+
+START_TEST(test_recut_notices_changed_bytes)
+{
+    /* Source of truth: rowsplit.h (a recut of other bytes than the stream
+     * held fails as a changed file).  MR__BLOCK_ROWS + 3 rows "1,2\n" cut
+     * by the streaming splitter: a full chunk, then one of 3 rows. */
+    size_t nrows = MR__BLOCK_ROWS + 3, n = 4 + 4 * nrows, i, used, row100 = 4 + 4 * 100;
+    char *text = malloc(n), *copy = malloc(n);
+    mr__splitter sp;
+    mr__chunk *a = new_chunk(), *b = new_chunk(), *pair[2] = {a, b};
+    mr__error err;
+    ck_assert_ptr_nonnull(text);
+    ck_assert_ptr_nonnull(copy);
+    memcpy(text, "h,k\n", 4);
+    for (i = 0; i < nrows; i++) memcpy(text + 4 + 4 * i, "1,2\n", 4);
+    mr__error_clear(&err);
+    mr__splitter_init(&sp, "t.csv", 1);
+    ck_assert_int_eq(mr__splitter_feed(&sp, text, n, &used, keep_last, NULL, &err), MR_OK);
+    ck_assert_uint_eq(used, 4);
+    mr__splitter_start_chunk(&sp, a);
+    ck_assert_int_eq(mr__splitter_feed(&sp, text + 4, n - 4, &used, swap_chunks, pair, &err), MR_OK);
+    ck_assert_int_eq(mr__splitter_finish(&sp, swap_chunks, pair, &err), MR_OK);
+    ck_assert_uint_eq(a->offset, 4);
+    ck_assert_uint_eq(a->end, 4 + 4 * MR__BLOCK_ROWS);
+    ck_assert_uint_eq(b->offset, a->end);
+    ck_assert_uint_eq(b->end, n);
+    ck_assert_int_eq(recut_text(text, a->offset, a->end, 0, 2, MR__BLOCK_ROWS, 0, &err), MR_OK);
+    ck_assert_int_eq(recut_text(text, b->offset, b->end, 1, 2 + MR__BLOCK_ROWS, 3, 1, &err), MR_OK);
+    /* a row joined to the next: the chunk is a row short */
+    memcpy(copy, text, n);
+    copy[row100 + 3] = ',';
+    ck_assert_int_eq(recut_text(copy, a->offset, a->end, 0, 2, MR__BLOCK_ROWS, 0, &err), MR_ERR_IO);
+    ck_assert_msg(strstr(err.msg, "changed") != NULL, "%s", err.msg);
+    /* a row split in two: the chunk is full before its bytes end */
+    copy[row100 + 3] = '\n';
+    copy[row100 + 1] = '\n';
+    ck_assert_int_eq(recut_text(copy, a->offset, a->end, 0, 2, MR__BLOCK_ROWS, 0, &err), MR_ERR_IO);
+    /* a quote opened and never closed */
+    copy[row100 + 1] = '"';
+    ck_assert_int_eq(recut_text(copy, a->offset, a->end, 0, 2, MR__BLOCK_ROWS, 0, &err), MR_ERR_IO);
+    /* the last chunk cut short by a row */
+    ck_assert_int_eq(recut_text(text, b->offset, b->end - 4, 1, 2 + MR__BLOCK_ROWS, 3, 1, &err), MR_ERR_IO);
+    mr__splitter_release(&sp);
+    free_chunk(a);
+    free_chunk(b);
+    free(text);
+    free(copy);
+}
+END_TEST
 
 START_TEST(test_split_line_numbers_after_embedded_newlines)
 {
@@ -1120,6 +1236,8 @@ static Suite *input_suite(void)
 
     tcase_add_loop_test(split, test_split_every_piece_size, 0, 2); /* last row without / with newline */
     tcase_add_test(split, test_split_large_and_random_pieces);
+    tcase_add_loop_test(split, test_split_many_chunks_recut, 0, 2);
+    tcase_add_test(split, test_recut_notices_changed_bytes);
     tcase_add_test(split, test_split_line_numbers_after_embedded_newlines);
     tcase_add_test(split, test_split_blank_lines_before_header);
     tcase_add_test(split, test_split_unterminated_quote);

@@ -58,6 +58,7 @@ typedef struct engine {
     uint64_t rows_done;     /* rows in the blocks added so far */
     atomic_uint_fast64_t sample_stride; /* first pass: blocks it divides are packed for the sample */
     int reader_done, abort;
+    int by_map;             /* workers read the file's blocks by the first pass's map */
     mr_status reader_st;
     mr__error reader_err;
     mr__source *src;
@@ -145,6 +146,9 @@ static mr_status read_stream(engine *e, mr__error *err)
  * the calling thread) instead of three times. */
 static int replaying(const mr__pass_cfg *cfg) { return cfg->store != NULL && !cfg->store_fill; }
 
+/* Replaying, or reading a mapped file: each worker fetches its own block. */
+static int workers_fetch(const engine *e) { return replaying(e->cfg) || e->by_map; }
+
 static size_t replay_stride(const mr__pass_cfg *cfg) { return cfg->replay_stride > 1 ? cfg->replay_stride : 1; }
 
 static void load_kept_block(const mr__pass_cfg *cfg, slot *s)
@@ -160,6 +164,33 @@ static void load_kept_block(const mr__pass_cfg *cfg, slot *s)
         s->st = mr__store_read(store, s->kept_index, s->packed, &s->err);
         if (s->st == MR_OK) s->kept = s->packed;
     }
+}
+
+/* The block's bytes straight from the file into the slot's chunk, and its
+ * rows cut here: the reader's work for this block, done by a worker. */
+static void read_mapped_block(const engine *e, slot *s)
+{
+    const mr__block_map *m = e->cfg->map;
+    const mr__block_span *b = &m->span[s->index];
+    size_t len = (size_t)(b->end - b->offset);
+    mr__chunk *c = s->chunk;
+    s->raw_bytes = b->end;
+    c->len = 0;
+    if (mr__chunk_room(c, len, &s->err) == NULL) {
+        s->st = MR_ERR_NO_MEMORY;
+        return;
+    }
+    s->st = mr__source_pread(e->src, c->data, len, b->offset, &s->err);
+    if (s->st == MR_OK)
+        s->st = mr__splitter_recut(c, len, e->cfg->display, s->index * (uint64_t)MR__BLOCK_ROWS, b->first_line,
+                                   b->nrows, s->index + 1 == m->n, &s->err);
+}
+
+static void fetch_block(const engine *e, slot *s)
+{
+    s->st = MR_OK;
+    if (e->by_map) read_mapped_block(e, s);
+    else load_kept_block(e->cfg, s);
 }
 
 static void *reader_main(void *arg)
@@ -221,9 +252,9 @@ static void compute(worker *w, slot *s)
     else mr__accumulate_block(cfg->point, s->use, &w->ws, &s->sums);
 }
 
-/* The next kept block for this worker: its slot, claimed, or NULL when
- * there is none left.  Called with the lock held. */
-static slot *take_kept_block(engine *e)
+/* The next block for this worker to fetch: its slot, claimed, or NULL
+ * when there is none left.  Called with the lock held. */
+static slot *take_next_block(engine *e)
 {
     for (;;) {
         slot *s = &e->slots[e->next_take % e->W];
@@ -260,16 +291,15 @@ static void *worker_main(void *arg)
 {
     worker *w = arg;
     engine *e = w->e;
-    if (!replaying(e->cfg)) yield_cores_to_reader();
+    if (!workers_fetch(e)) yield_cores_to_reader();
     for (;;) {
         slot *s;
         pthread_mutex_lock(&e->mu);
-        if (replaying(e->cfg)) {
-            s = take_kept_block(e);
+        if (workers_fetch(e)) {
+            s = take_next_block(e);
             pthread_mutex_unlock(&e->mu);
             if (s == NULL) return NULL;
-            s->st = MR_OK;
-            load_kept_block(e->cfg, s);
+            fetch_block(e, s);
             if (s->st == MR_OK) compute(w, s);
             pthread_mutex_lock(&e->mu);
             s->state = SLOT_DONE;
@@ -411,6 +441,16 @@ static mr_status read_header(engine *e, mr__error *err)
     return cfg->on_header(cfg->header_user, e->sp.header, e->sp.header_len, err);
 }
 
+/* A later pass over a plain file whose header ends where the map's first
+ * block starts goes by the map; anything else is streamed (which checks
+ * the file its own way). */
+static int reads_by_map(const engine *e)
+{
+    const mr__block_map *m = e->cfg->map;
+    return e->cfg->kind == MR__PASS_IRLS && m != NULL && m->usable && mr__source_is_file(e->src) &&
+           !mr__source_is_zstd(e->src) && (m->n == 0 || m->span[0].offset == e->sp.pos);
+}
+
 static mr_status begin_stream(engine *e, mr__error *err)
 {
     const mr__pass_cfg *cfg = e->cfg;
@@ -425,6 +465,12 @@ static mr_status begin_stream(engine *e, mr__error *err)
     mr__splitter_init(&e->sp, cfg->display, 1);
     MR__TRY(read_header(e, err));
     MR__TRY(init_slots(e, err));
+    e->by_map = reads_by_map(e);
+    if (e->by_map) {
+        e->emitted = cfg->map->n;
+        e->reader_done = 1;
+        return MR_OK;
+    }
     first = &e->slots[0];
     first->state = SLOT_FILLING;
     first->index = 0;
@@ -517,6 +563,8 @@ static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *
         return s->block.err.status;
     }
     if (cfg->kind == MR__PASS_SCAN) {
+        const mr__chunk *c = s->chunk;
+        MR__TRY(mr__block_map_add(&res->map, c->offset, c->end, c->first_line, c->nrows, err));
         mr__scan_add(&res->scan, &s->scan, cfg->dcfg->bind->ncol, cfg->dcfg->bind->nnum);
         if (res->collapsed) merge_patterns(cfg, res, &s->block);
         if (cfg->store) MR__TRY(keep_scanned(cfg, res, s, err));
@@ -552,7 +600,7 @@ static mr_status combine_all(engine *e, mr__pass_result *res, double t0, mr__err
         s->state = SLOT_FREE;
         s->use = NULL;
         e->next_combine++;
-        if (replaying(e->cfg)) pthread_cond_broadcast(&e->slot_free);
+        if (workers_fetch(e)) pthread_cond_broadcast(&e->slot_free);
         else pthread_cond_signal(&e->slot_free);
         pthread_mutex_unlock(&e->mu);
         report_progress(e, s, t0, &last, 0);
@@ -597,6 +645,7 @@ static void finish_source(engine *e, mr__pass_result *res)
     res->out_bytes = mr__source_out_bytes(e->src);
     res->checksum = mr__source_checksum(e->src);
     res->zstd = mr__source_is_zstd(e->src);
+    res->by_map = e->by_map;
     mr__source_identity(e->src, &res->size, &res->mtime_ns);
 }
 
@@ -653,7 +702,7 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
         e.reader_done = 1;
     }
     if (st == MR_OK) st = start_workers(&e, err);
-    if (st == MR_OK && !replaying(cfg)) {
+    if (st == MR_OK && !workers_fetch(&e)) {
         if (pthread_create(&e.reader, NULL, reader_main, &e) != 0)
             st = mr__fail(err, MR_ERR_INTERNAL, "cannot start the reader thread");
         else e.reader_started = 1;
@@ -661,6 +710,8 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     if (st == MR_OK) st = combine_all(&e, res, t0, err);
     stop_threads(&e);
     finish_source(&e, res);
+    /* offsets in the stream are offsets in the file only when it is plain */
+    res->map.usable = st == MR_OK && cfg->kind == MR__PASS_SCAN && !res->zstd;
     if (st == MR_OK && cfg->kind == MR__PASS_SCAN) st = take_levels(&e, res, err);
     /* A worker may give up collapsing after its block was merged. */
     if (res->collapsed && atomic_load(cfg->dcfg->collapse_abandoned)) merge_patterns(cfg, res, NULL);
@@ -681,6 +732,7 @@ void mr__pass_result_release(mr__pass_result *res, size_t nfac)
     /* a result zeroed and never run has no sample (and fd 0 is not ours) */
     if (res->sample.packed) mr__store_release(&res->sample);
     mr__pattern_merge_release(&res->patterns);
+    mr__block_map_release(&res->map);
     mr__scan_release(&res->scan);
     mr__sums_release(&res->sums);
     memset(res, 0, sizeof *res);

@@ -12,7 +12,12 @@
  * Given a store (accum/store.h), the first pass keeps each decoded block
  * (or, if that pass could not keep them all, the first IRLS pass does), and
  * later passes hand the kept blocks to the workers instead of reading the
- * file: the same per-block arithmetic, so the same bits. */
+ * file: the same per-block arithmetic, so the same bits.
+ *
+ * The first pass also maps where each block lies in the stream
+ * (input/blockmap.h).  Given that map of a plain file, a later pass has no
+ * reader: each worker reads the next block from the file itself and cuts
+ * its rows, and a pass over the rows no longer waits on one thread. */
 #ifndef MR_PASS_H
 #define MR_PASS_H
 
@@ -20,6 +25,7 @@
 #include "accum/accumulate.h"
 #include "accum/scan.h"
 #include "accum/store.h"
+#include "input/blockmap.h"
 #include "input/decode.h"
 #include "millrace.h"
 
@@ -44,6 +50,7 @@ typedef struct mr__pass_cfg {
     int store_fill;       /* 1: keep decoded blocks in store; 0 with store: replay it.
                              The first pass keeps its blocks when given a store. */
     size_t replay_stride; /* with a store to replay: every stride-th block (0, 1: all) */
+    const mr__block_map *map; /* MR__PASS_IRLS reading the file: the first pass's map */
     int pass_number;
     mr_progress_fn progress;
     void *progress_user;
@@ -71,6 +78,11 @@ typedef struct mr__pass_result {
     int collapsed;
     /* First pass with a store: 1 when some blocks were not kept. */
     int store_incomplete;
+    /* First pass: where its blocks lay (usable when the file is plain). */
+    mr__block_map map;
+    /* The workers read the blocks by the map: raw_bytes counts the header
+     * only, and the blocks were checked one by one instead. */
+    int by_map;
 } mr__pass_result;
 
 #define MR__SAMPLE_BLOCKS 32

@@ -101,6 +101,7 @@ static mr__pass_cfg pass_config(mr__run *r, mr__pass_kind kind)
     c.pass_number = r->npasses + 1;
     c.progress = r->f->progress;
     c.progress_user = r->f->progress_user;
+    c.map = &r->first.map;
     if (r->use_store && kind == MR__PASS_IRLS) {
         c.store = &r->store;
         c.store_fill = !r->store_filled;
@@ -121,7 +122,8 @@ static mr_status note_pass(mr__run *r, const mr__pass_result *res, mr__error *er
 static mr_status check_same_input(mr__run *r, const mr__pass_result *res, mr__error *err)
 {
     if (res->raw_bytes == 0 && r->use_store) return MR_OK;
-    if (res->size != r->size || res->mtime_ns != r->mtime_ns || res->raw_bytes != r->raw_bytes)
+    /* a pass by the map checked each block's bytes and rows itself */
+    if (res->size != r->size || res->mtime_ns != r->mtime_ns || (!res->by_map && res->raw_bytes != r->raw_bytes))
         return mr__fail(err, MR_ERR_IO, "%s: the file changed during the fit", r->display);
     return MR_OK;
 }

@@ -15,6 +15,8 @@
 typedef struct mr__chunk {
     uint64_t index;      /* block number */
     uint64_t first_line; /* physical line (1-based) of the first row */
+    uint64_t offset;     /* stream byte where the chunk starts (after the row before) */
+    uint64_t end;        /* and where it ends, once handed over */
     uint32_t nrows;
     int has_quote;       /* a '"' somewhere: the full CSV parser is needed */
     char *data;

@@ -25,6 +25,7 @@ void mr__splitter_start_chunk(mr__splitter *sp, mr__chunk *c)
 {
     c->index = sp->rows / MR__BLOCK_ROWS;
     c->first_line = sp->line;
+    c->offset = sp->pos;
     c->nrows = 0;
     c->len = 0;
     c->has_quote = 0;
@@ -75,9 +76,8 @@ static mr_status append(mr__splitter *sp, const char *p, size_t n, mr__error *er
     return MR_OK;
 }
 
-char *mr__splitter_reserve(mr__splitter *sp, size_t n, mr__error *err)
+char *mr__chunk_room(mr__chunk *c, size_t n, mr__error *err)
 {
-    mr__chunk *c = sp->cur;
     if (c->len + n > c->cap) {
         size_t nc = c->cap ? c->cap : 65536;
         char *q;
@@ -92,6 +92,8 @@ char *mr__splitter_reserve(mr__splitter *sp, size_t n, mr__error *err)
     }
     return c->data + c->len;
 }
+
+char *mr__splitter_reserve(mr__splitter *sp, size_t n, mr__error *err) { return mr__chunk_room(sp->cur, n, err); }
 
 static int may_be_blank(char c) { return c == '\r' || c == '\n' || c == ' ' || c == '\t'; }
 
@@ -128,7 +130,13 @@ static mr_status end_row(mr__splitter *sp, mr__chunk_sink sink, void *user, mr__
     sp->rows++;
     sp->row_line = sp->line;
     if (c->nrows == MR__BLOCK_ROWS) {
-        mr__chunk *next = sink(user, c, err);
+        mr__chunk *next;
+        c->end = sp->pos;
+        if (sink == NULL) {
+            sp->cur = NULL;
+            return MR_OK;
+        }
+        next = sink(user, c, err);
         if (next == NULL) return err->status != MR_OK ? err->status : MR_ERR_INTERNAL;
         mr__splitter_start_chunk(sp, next);
     }
@@ -200,11 +208,13 @@ mr_status mr__splitter_feed(mr__splitter *sp, const char *p, size_t n, size_t *u
                             void *user, mr__error *err)
 {
     const char *start = p, *end = p + n;
+    uint64_t base = sp->pos;
     int header_pending = sp->want_header;
     /* Most inputs hold no quote at all: one look per buffer spares a
      * search per row. */
     int quotes = memchr(p, '"', n) != NULL;
     *used = n;
+    sp->pos = base + n;
     while (p < end) {
         const char *nl, *q;
         size_t span;
@@ -231,11 +241,13 @@ mr_status mr__splitter_feed(mr__splitter *sp, const char *p, size_t n, size_t *u
         MR__TRY(append(sp, p, span + 1, err));
         sp->line++;
         p = nl + 1;
+        sp->pos = base + (uint64_t)(p - start);
         MR__TRY(end_row(sp, sink, user, err));
-        if (header_pending && !sp->want_header) {
+        if ((header_pending && !sp->want_header) || (!sp->want_header && sp->cur == NULL)) {
             *used = (size_t)(p - start);
             return MR_OK;
         }
+        sp->pos = base + n;
     }
     return MR_OK;
 }
@@ -253,8 +265,29 @@ mr_status mr__splitter_finish(mr__splitter *sp, mr__chunk_sink sink, void *user,
     if (c != NULL && c->len > c->row_start[c->nrows]) MR__TRY(end_row(sp, sink, user, err));
     c = sp->cur;
     if (c != NULL && c->nrows > 0 && c->nrows < MR__BLOCK_ROWS) {
+        c->end = sp->pos;
+        if (sink == NULL) return MR_OK;
         if (sink(user, c, err) == NULL && err->status != MR_OK) return err->status;
         sp->cur = NULL;
     }
+    return MR_OK;
+}
+
+mr_status mr__splitter_recut(mr__chunk *c, size_t len, const char *display, uint64_t first_row, uint64_t first_line,
+                             uint32_t nrows, int at_end, mr__error *err)
+{
+    mr__splitter sp;
+    size_t used = 0;
+    mr_status st;
+    mr__splitter_init(&sp, display, 0);
+    sp.line = sp.row_line = first_line;
+    sp.rows = first_row;
+    mr__splitter_start_chunk(&sp, c);
+    st = mr__splitter_feed(&sp, c->data, len, &used, NULL, NULL, err);
+    if (st == MR_OK && at_end) st = mr__splitter_finish(&sp, NULL, NULL, err);
+    if (st != MR_OK) return st;
+    if (used != len || c->nrows != nrows || sp.in_quote)
+        return mr__fail(err, MR_ERR_IO, "%s: the file changed during the fit (the rows from line %llu on are not those first read)",
+                        display, (unsigned long long)first_line);
     return MR_OK;
 }

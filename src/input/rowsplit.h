@@ -22,6 +22,7 @@ typedef struct mr__splitter {
     uint64_t row_line;    /* line where the current row started */
     uint64_t quote_line;  /* line where the open quote started */
     uint64_t rows;        /* data rows completed */
+    uint64_t pos;         /* stream bytes taken so far (a chunk's offset) */
     mr__chunk *cur;       /* chunk being filled (NULL before the first) */
     char *header;         /* the header row once complete */
     size_t header_len, header_cap;
@@ -37,7 +38,8 @@ void mr__splitter_release(mr__splitter *sp);
 /* Feeds bytes.  While the header is wanted, stops right after it and
  * reports in *used how many bytes it took (so the caller can bind columns
  * before any data row is cut); otherwise takes all n.  `cur` must be set
- * before data rows arrive. */
+ * before data rows arrive.  A NULL sink cuts one chunk only: the feed stops
+ * once `cur` is full, *used saying where, and `cur` stays as it is. */
 mr_status mr__splitter_feed(mr__splitter *sp, const char *p, size_t n, size_t *used, mr__chunk_sink sink,
                             void *user, mr__error *err);
 /* Room for n more bytes at the end of the current chunk, so that the
@@ -45,12 +47,24 @@ mr_status mr__splitter_feed(mr__splitter *sp, const char *p, size_t n, size_t *u
  * (which mr__splitter_feed then takes in place, without a copy).  NULL
  * when out of memory. */
 char *mr__splitter_reserve(mr__splitter *sp, size_t n, mr__error *err);
+/* The same for any chunk: room for n more bytes after c->len. */
+char *mr__chunk_room(mr__chunk *c, size_t n, mr__error *err);
 
 /* End of input: completes a last row without a newline and hands the last
  * partial chunk to the sink (if it has rows).  An open quote is an error. */
 mr_status mr__splitter_finish(mr__splitter *sp, mr__chunk_sink sink, void *user, mr__error *err);
 
-/* Starts a chunk: sets its index (from the rows so far) and first line. */
+/* Starts a chunk: sets its index (from the rows so far), first line and
+ * offset. */
 void mr__splitter_start_chunk(mr__splitter *sp, mr__chunk *c);
+
+/* Cuts the rows of one chunk already read into c->data[0, len): the bytes
+ * a chunk of an earlier cut of the same stream held, from its offset on
+ * (`first_row`: the rows before it; `first_line`: its line).  Fails unless
+ * they make exactly `nrows` rows, the last ending at len (or, for the
+ * stream's last chunk, `at_end`, at the end of the stream): the file has
+ * changed since that cut. */
+mr_status mr__splitter_recut(mr__chunk *c, size_t len, const char *display, uint64_t first_row, uint64_t first_line,
+                             uint32_t nrows, int at_end, mr__error *err);
 
 #endif

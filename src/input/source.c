@@ -17,7 +17,7 @@ struct mr__source {
     const char *display;
     char *raw;            /* raw read buffer */
     size_t raw_cap, raw_len, raw_pos;
-    int eof, zstd, sniffed;
+    int eof, zstd, sniffed, is_file;
     size_t frame_left;    /* ZSTD_decompressStream's last hint: 0 = frame ended */
     ZSTD_DStream *ds;
     uint64_t raw_bytes, out_bytes, size, checksum;
@@ -60,6 +60,7 @@ mr_status mr__source_open(mr__source **out, const char *path, const char *displa
             return mr__fail(err, MR_ERR_IO, "%s: is a directory", display);
         }
         if (S_ISREG(st.st_mode)) {
+            s->is_file = 1;
             s->size = (uint64_t)st.st_size;
             s->mtime_ns = (int64_t)st.st_mtim.tv_sec * 1000000000 + st.st_mtim.tv_nsec;
         }
@@ -229,6 +230,23 @@ uint64_t mr__source_raw_bytes(const mr__source *s) { return s->raw_bytes; }
 uint64_t mr__source_size(const mr__source *s) { return s->size; }
 uint64_t mr__source_out_bytes(const mr__source *s) { return s->out_bytes; }
 int mr__source_is_zstd(const mr__source *s) { return s->zstd; }
+int mr__source_is_file(const mr__source *s) { return s->is_file; }
+
+mr_status mr__source_pread(const mr__source *s, char *buf, size_t n, uint64_t offset, mr__error *err)
+{
+    while (n > 0) {
+        ssize_t got = pread(s->fd, buf, n, (off_t)offset);
+        if (got < 0 && errno == EINTR) continue;
+        if (got < 0) return mr__fail(err, MR_ERR_IO, "%s: read error: %s", s->display, strerror(errno));
+        if (got == 0)
+            return mr__fail(err, MR_ERR_IO, "%s: the file changed during the fit (it ends before byte %llu)",
+                            s->display, (unsigned long long)(offset + n));
+        buf += got;
+        n -= (size_t)got;
+        offset += (uint64_t)got;
+    }
+    return MR_OK;
+}
 void mr__source_skip_checksum(mr__source *s)
 {
     s->no_checksum = 1;

@@ -80,6 +80,9 @@ check in_memory_threads_4 --in-memory --threads 4 "$tmp/data.csv"
 check zstd --threads 2 "$tmp/data.csv.zst"
 check zstd_buffer_16 --threads 4 --buffer-size 16 "$tmp/data.csv.zst"
 check crlf --threads 2 "$tmp/data_crlf.csv"
+check no_cache --threads 2 --no-cache "$tmp/data.csv"
+check no_cache_crlf_threads_4 --threads 4 --no-cache "$tmp/data_crlf.csv"
+check no_cache_zstd --threads 2 --no-cache "$tmp/data.csv.zst"
 check crlf_buffer_4096 --threads 4 --buffer-size 4096 "$tmp/data_crlf.csv"
 check stdin --threads 2 - < <(cat "$tmp/data.csv")
 check stdin_buffer_16 --threads 1 --buffer-size 16 - < <(cat "$tmp/data.csv")

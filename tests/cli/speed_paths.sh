@@ -9,6 +9,7 @@
 #     (standard errors and Pearson statistic of a fit stopped on the Newton
 #     decrement: within 10 x the square root of its predicted change)
 #   decoded-column cache vs rereading vs in memory     bit-identical
+#   rereads by the block map vs the zstd stream        bit-identical
 #   1, 2 and 3 threads                                 bit-identical
 #   plain CSV vs quoted (libcsv) CSV vs CRLF           bit-identical
 #   16-byte reads vs the default read size             bit-identical
@@ -69,6 +70,24 @@ with open(sys.argv[1], newline="") as src, open(sys.argv[2], "w", newline="") as
         out.writerow(row)
 EOF
 sed 's/$/\r/' "$tmp/data.csv" > "$tmp/crlf.csv"
+# The same rows with what a later pass reading blocks by the first pass's
+# map must cut exactly as the stream was cut: blank and whitespace-only
+# lines (also right after a block boundary and at the end), some rows
+# quoted, some with CRLF ends.
+"$py" - "$tmp/data.csv" "$tmp/ragged.csv" <<'EOF'
+import csv, sys
+block = 16384  # MR__BLOCK_ROWS (src/input/chunk.h)
+with open(sys.argv[1], newline="") as src, open(sys.argv[2], "w", newline="") as dst:
+    rows = csv.reader(src)
+    dst.write(",".join(next(rows)) + "\n")
+    for i, row in enumerate(rows):
+        if i % 997 == 0 or i % block == 0:
+            dst.write(" \t\r\n" if i % 2 else "\n")
+        quoting = csv.QUOTE_ALL if i % 5 == 0 else csv.QUOTE_MINIMAL
+        end = "\r\n" if i % 7 == 0 else "\n"
+        csv.writer(dst, quoting=quoting, lineterminator=end).writerow(row)
+    dst.write("\n\n")
+EOF
 
 # Case A: factors and numerics with few distinct values, so the default is
 # to collapse rows into covariate patterns (one read of the data).
@@ -315,6 +334,15 @@ fit a_rows_memory case_a --no-collapse --in-memory "$zst"
 compare cache_a_rows exact a_rows_nocache a_rows_cache \
     --expect "other:options.cache==true" --expect "ref:options.cache==false" --expect "ref:convergence.passes>1"
 compare in_memory_a_rows exact a_rows_nocache a_rows_memory --expect "other:options.in_memory==true"
+# Rereads of a plain file: workers read and cut the blocks themselves by
+# the first pass's map (src/input/blockmap.h).  Source of truth: the same
+# rereads of the zstd file, which one reader thread decompresses and cuts.
+for t in 1 3; do
+    fit "b_nocache_plain_t$t" case_b --no-cache --threads "$t" "$tmp/data.csv"
+    compare "reread_by_map_t$t" exact b_nocache "b_nocache_plain_t$t" --expect "other:convergence.passes>1"
+    fit "b_nocache_ragged_t$t" case_b --no-cache --threads "$t" "$tmp/ragged.csv"
+    compare "reread_by_map_ragged_t$t" exact b_nocache "b_nocache_ragged_t$t" --expect "other:convergence.passes>1"
+done
 
 # ---- (3) threads ----------------------------------------------------------
 # Source of truth: --threads 1, where blocks are decoded and summed one

@@ -22,11 +22,11 @@ printf 'numeric age\nnumeric bmi\n' >> "$tmp/b.model"
 
 estimates() { /usr/bin/python3 -c 'import json,sys; j=json.load(open(sys.argv[1])); print([c["estimate"] for c in j["coefficients"]], j["fit"]["deviance"])' "$1"; }
 
-run() { # run NAME MODEL OPTIONS...: fit with 1 and 3 threads, compare
-    local name=$1 model=$2
+run() { # [data=FILE] run NAME MODEL OPTIONS...: fit with 1 and 3 threads, compare
+    local name=$1 model=$2 in=${data:-$tmp/d.csv.zst}
     shift 2
-    if ! $bin fit --quiet -m "$model" --threads 1 "$@" --json "$tmp/1.json" "$tmp/d.csv.zst" > /dev/null ||
-       ! $bin fit --quiet -m "$model" --threads 3 "$@" --json "$tmp/3.json" "$tmp/d.csv.zst" > /dev/null; then
+    if ! $bin fit --quiet -m "$model" --threads 1 "$@" --json "$tmp/1.json" "$in" > /dev/null ||
+       ! $bin fit --quiet -m "$model" --threads 3 "$@" --json "$tmp/3.json" "$in" > /dev/null; then
         fail "$name" "a fit failed"
         return
     fi
@@ -38,13 +38,16 @@ run cached "$tmp/b.model"
 run streaming "$tmp/b.model" --no-cache --buffer-size 4096
 run in_memory "$tmp/b.model" --in-memory
 run rows_no_collapse "$tmp/a.model" --no-collapse
+# Rereads of a plain file: workers read their blocks by the block map.
+zstd -q -d -c "$tmp/d.csv.zst" > "$tmp/d.csv"
+data=$tmp/d.csv run rereads_by_map "$tmp/b.model" --no-cache
 # Two-byte rows: a read into a chunk's buffer completes a chunk and runs
 # on into the next (pass.c, read_stream).  Reference: the mean of the
 # outcome, known by construction (0..9 repeated: 4.5).
 { echo y; for i in $(seq 1 12000); do printf '0\n1\n2\n3\n4\n5\n6\n7\n8\n9\n'; done; } > "$tmp/tiny.csv"
 zstd -q -f "$tmp/tiny.csv" -o "$tmp/tiny.csv.zst"
 for input in "$tmp/tiny.csv" "$tmp/tiny.csv.zst"; do
-    for opts in "--threads 1" "--threads 3" "--threads 2 --buffer-size 16" "--threads 3 --no-cache"; do
+    for opts in "--threads 1" "--threads 3" "--threads 2 --buffer-size 16" "--threads 3 --no-cache" "--threads 3 --no-cache --no-collapse"; do
         # shellcheck disable=SC2086
         $bin fit --quiet --outcome y $opts --json "$tmp/t.json" "$input" > /dev/null &&
             /usr/bin/python3 -c 'import json,sys; j=json.load(open(sys.argv[1])); assert j["rows"]["read"] == 120000 and j["coefficients"][0]["estimate"] == 4.5, j["coefficients"][0]' "$tmp/t.json" &&

@@ -1,0 +1,148 @@
+/* check_reread.c - later passes over a plain file read its blocks by the
+ * first pass's map (src/input/blockmap.h), each worker on its own.  A file
+ * changed under the fit must still end it with an error, never with
+ * numbers from a mixture of two files, even where the change keeps the
+ * file's size and its modification time is put back.
+ *
+ * Source of truth: the API contract in millrace.h (MR_ERR_IO for a file
+ * that changed during the fit) and the file's own rows, which this test
+ * writes. */
+#define _POSIX_C_SOURCE 200809L
+#include <fcntl.h>
+#include <stdio.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+#include "millrace.h"
+#include "check_common.h"
+
+enum { ROWS = 40000 }; /* three blocks of rows (src/input/chunk.h) */
+
+typedef struct {
+    char path[64];
+    long join_at;       /* >= 0: the byte that becomes ',' once pass 1 ends */
+    long cut_to;        /* >= 0: the length the file is cut to then */
+    int done;
+} tamper;
+
+/* Counts per row vary with the row number only, so any row order would do;
+ * what matters is that the file has ROWS rows of fixed width. */
+static void write_rows(const char *path)
+{
+    FILE *f = fopen(path, "w");
+    long i;
+    ck_assert_ptr_nonnull(f);
+    fputs("count,group,years\n", f);
+    for (i = 0; i < ROWS; i++) fprintf(f, "%ld,%c,%ld.5\n", i % 7, "abc"[i % 3], 1 + i % 4);
+    ck_assert_int_eq(fclose(f), 0);
+}
+
+/* Changes the file once the first pass is over, then puts its times back. */
+static void on_progress(const mr_progress *p, void *user)
+{
+    tamper *t = user;
+    struct stat st;
+    int fd;
+    if (t->done || p->pass != 1 || p->rows_done != ROWS) return;
+    t->done = 1;
+    fd = open(t->path, O_WRONLY);
+    if (fd < 0 || fstat(fd, &st) != 0) return;
+    if (t->join_at >= 0) (void)!pwrite(fd, ",", 1, t->join_at);
+    if (t->cut_to >= 0) (void)!ftruncate(fd, t->cut_to);
+    if (t->join_at >= 0) {
+        struct timespec times[2] = {st.st_atim, st.st_mtim};
+        (void)futimens(fd, times);
+    }
+    close(fd);
+}
+
+static mr_status fit_tampered(tamper *t, int threads, char *msg, size_t cap)
+{
+    static const char *const model[] = {"outcome count", "family poisson", "factor group", "exposure years", NULL};
+    mr_fitter *f = mr_fitter_new();
+    mr_fit *fit = NULL;
+    mr_status st;
+    int i;
+    ck_assert_ptr_nonnull(f);
+    for (i = 0; model[i]; i++) ck_assert_int_eq(mr_fitter_model_line(f, model[i], "test"), MR_OK);
+    mr_fitter_set_int(f, MR_OPT_THREADS, threads);
+    mr_fitter_set_int(f, MR_OPT_NO_CACHE, 1);
+    mr_fitter_set_int(f, MR_OPT_NO_COLLAPSE, 1);
+    mr_fitter_set_progress(f, on_progress, t);
+    st = mr_fitter_run(f, t->path, &fit);
+    snprintf(msg, cap, "%s", st == MR_OK ? "" : mr_fitter_errmsg(f));
+    if (st == MR_OK) ck_assert_int_eq(mr_fit_status(fit), MR_OK);
+    mr_fit_free(fit);
+    mr_fitter_free(f);
+    return st;
+}
+
+static void make_file(tamper *t)
+{
+    strcpy(t->path, "/tmp/millrace-reread-XXXXXX");
+    ck_assert_int_ge(mkstemp(t->path), 0);
+    write_rows(t->path);
+    t->join_at = t->cut_to = -1;
+    t->done = 0;
+}
+
+START_TEST(test_unchanged_file_fits)
+{
+    tamper t;
+    char msg[512];
+    make_file(&t);
+    ck_assert_int_eq(fit_tampered(&t, 1 + _i, msg, sizeof msg), MR_OK);
+    ck_assert_int_eq(t.done, 1);
+    unlink(t.path);
+}
+END_TEST
+
+START_TEST(test_rows_joined_same_size_and_time)
+{
+    /* The newline ending the 20000th data row (in the second block) becomes
+     * a comma: same size, same time, one row fewer in that block. */
+    tamper t;
+    char msg[512];
+    FILE *f;
+    long i, at = 0, line = 0;
+    make_file(&t);
+    f = fopen(t.path, "r");
+    ck_assert_ptr_nonnull(f);
+    while ((i = fgetc(f)) != EOF) {
+        if (i == '\n' && ++line == 1 + 20000) break;
+        at++;
+    }
+    fclose(f);
+    t.join_at = at;
+    ck_assert_int_eq(fit_tampered(&t, 1 + _i, msg, sizeof msg), MR_ERR_IO);
+    ck_assert_msg(strstr(msg, "changed") != NULL, "%s", msg);
+    unlink(t.path);
+}
+END_TEST
+
+START_TEST(test_file_cut_short)
+{
+    tamper t;
+    char msg[512];
+    make_file(&t);
+    t.cut_to = 1000;
+    ck_assert_int_eq(fit_tampered(&t, 1 + _i, msg, sizeof msg), MR_ERR_IO);
+    ck_assert_msg(strstr(msg, "changed") != NULL, "%s", msg);
+    unlink(t.path);
+}
+END_TEST
+
+static Suite *reread_suite(void)
+{
+    Suite *s = suite_create("reread");
+    TCase *tc = tcase_create("by map");
+    tcase_add_loop_test(tc, test_unchanged_file_fits, 0, 2); /* 1 and 2 workers */
+    tcase_add_loop_test(tc, test_rows_joined_same_size_and_time, 0, 2);
+    tcase_add_loop_test(tc, test_file_cut_short, 0, 2);
+    tcase_set_timeout(tc, 120);
+    suite_add_tcase(s, tc);
+    return s;
+}
+
+int main(void) { return mr_check_run(reread_suite(), 0); }
