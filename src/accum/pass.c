@@ -331,6 +331,83 @@ static void *worker_main(void *arg)
 
 /* ---- set-up and tear-down -------------------------------------------- */
 
+struct mr__pool_slot {
+    mr__chunk *chunk; /* NULL: nothing kept here */
+    mr__block block;
+    char *packed;
+};
+
+/* Slot i's buffers from the pool, when it kept some for this binding. */
+static int take_pooled_slot(mr__pass_pool *pool, const mr__binding *b, size_t i, slot *s)
+{
+    struct mr__pool_slot *k;
+    if (pool == NULL || pool->bind != b || i >= pool->nslot || pool->slot[i].chunk == NULL) return 0;
+    k = &pool->slot[i];
+    s->chunk = k->chunk;
+    s->block = k->block;
+    s->packed = k->packed;
+    memset(k, 0, sizeof *k);
+    return 1;
+}
+
+/* Leaves slot i's buffers to the pool; 0 when it has no room for them. */
+static int pool_slot(mr__pass_pool *pool, const mr__binding *b, size_t W, size_t i, slot *s)
+{
+    struct mr__pool_slot *k;
+    if (pool == NULL || s->chunk == NULL || (pool->bind != NULL && pool->bind != b)) return 0;
+    if (pool->slot == NULL) {
+        if ((pool->slot = mr__calloc(W, sizeof *pool->slot)) == NULL) return 0;
+        pool->nslot = W;
+        pool->bind = b;
+    }
+    if (i >= pool->nslot || pool->slot[i].chunk != NULL) return 0;
+    k = &pool->slot[i];
+    k->chunk = s->chunk;
+    k->block = s->block;
+    k->packed = s->packed;
+    s->chunk = NULL;
+    s->packed = NULL;
+    memset(&s->block, 0, sizeof s->block);
+    return 1;
+}
+
+static int take_pooled_workspace(mr__pass_pool *pool, const mr__design *d, size_t i, mr__workspace *ws)
+{
+    if (pool == NULL || pool->design != d || i >= pool->nws || pool->ws[i].D == NULL) return 0;
+    *ws = pool->ws[i];
+    memset(&pool->ws[i], 0, sizeof *ws);
+    return 1;
+}
+
+static void pool_workspace(mr__pass_pool *pool, const mr__design *d, size_t nworkers, size_t i, mr__workspace *ws)
+{
+    if (pool == NULL || ws->D == NULL || (pool->design != NULL && pool->design != d)) return;
+    if (pool->ws == NULL) {
+        if ((pool->ws = mr__calloc(nworkers, sizeof *pool->ws)) == NULL) return;
+        pool->nws = nworkers;
+        pool->design = d;
+    }
+    if (i >= pool->nws || pool->ws[i].D != NULL) return;
+    pool->ws[i] = *ws;
+    memset(ws, 0, sizeof *ws);
+}
+
+void mr__pass_pool_release(mr__pass_pool *pool)
+{
+    size_t i;
+    for (i = 0; i < pool->nslot; i++) {
+        struct mr__pool_slot *k = &pool->slot[i];
+        if (k->chunk) mr__free(k->chunk->data);
+        mr__free(k->chunk);
+        mr__free(k->packed);
+        mr__block_release(&k->block);
+    }
+    for (i = 0; i < pool->nws; i++) mr__workspace_release(&pool->ws[i]);
+    mr__free(pool->slot);
+    mr__free(pool->ws);
+    memset(pool, 0, sizeof *pool);
+}
+
 static mr_status init_slots(engine *e, mr__error *err)
 {
     const mr__pass_cfg *cfg = e->cfg;
@@ -340,10 +417,12 @@ static mr_status init_slots(engine *e, mr__error *err)
     if (e->slots == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     for (i = 0; i < e->W; i++) {
         slot *s = &e->slots[i];
-        s->chunk = mr__calloc(1, sizeof *s->chunk);
-        if (s->chunk == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-        MR__TRY(mr__block_init(&s->block, b, err));
-        if (((cfg->store && mr__store_keeps_bytes(cfg->store)) || cfg->kind == MR__PASS_SCAN) &&
+        if (!take_pooled_slot(cfg->pool, b, i, s)) {
+            s->chunk = mr__calloc(1, sizeof *s->chunk);
+            if (s->chunk == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+            MR__TRY(mr__block_init(&s->block, b, err));
+        }
+        if (((cfg->store && mr__store_keeps_bytes(cfg->store)) || cfg->kind == MR__PASS_SCAN) && s->packed == NULL &&
             (s->packed = mr__malloc(mr__store_pack_bound(b))) == NULL)
             return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
         if (cfg->kind == MR__PASS_SCAN && cfg->dcfg->collapse) {
@@ -362,6 +441,12 @@ static void release_slots(engine *e)
     size_t i;
     for (i = 0; e->slots && i < e->W; i++) {
         slot *s = &e->slots[i];
+        if (s->block.patterns) {
+            mr__pattern_rows_release(s->block.patterns);
+            mr__free(s->block.patterns);
+            s->block.patterns = NULL;
+        }
+        (void)pool_slot(e->cfg->pool, e->cfg->dcfg->bind, e->W, i, s);
         if (s->chunk) mr__free(s->chunk->data);
         mr__free(s->chunk);
         mr__free(s->packed);
@@ -385,7 +470,8 @@ static mr_status start_workers(engine *e, mr__error *err)
         MR__TRY(mr__decoder_init(&w->dec, e->cfg->dcfg, err));
         /* Decoders of the first pass number levels their own way. */
         w->dec.worker = e->cfg->kind == MR__PASS_SCAN ? (int32_t)i : -1;
-        if (e->cfg->kind == MR__PASS_IRLS) MR__TRY(mr__workspace_init(&w->ws, e->cfg->point->design, err));
+        if (e->cfg->kind == MR__PASS_IRLS && !take_pooled_workspace(e->cfg->pool, e->cfg->point->design, i, &w->ws))
+            MR__TRY(mr__workspace_init(&w->ws, e->cfg->point->design, err));
     }
     for (i = 0; i < e->nworkers; i++) {
         if (pthread_create(&e->workers[i].thread, NULL, worker_main, &e->workers[i]) != 0)
@@ -654,6 +740,8 @@ static void release_engine(engine *e)
     size_t i;
     for (i = 0; e->workers && i < e->nworkers; i++) {
         mr__decoder_release(&e->workers[i].dec);
+        if (e->cfg->kind == MR__PASS_IRLS)
+            pool_workspace(e->cfg->pool, e->cfg->point->design, e->nworkers, i, &e->workers[i].ws);
         mr__workspace_release(&e->workers[i].ws);
     }
     mr__free(e->workers);

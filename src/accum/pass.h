@@ -31,6 +31,25 @@
 
 typedef enum mr__pass_kind { MR__PASS_SCAN, MR__PASS_IRLS } mr__pass_kind;
 
+/* Memory one pass leaves to the next pass of the same fit: its slots'
+ * buffers (a chunk, a decoded block, a packed block: about 3 MiB each) and
+ * its workers' scratch (a block of the design each).  Taken fresh from the
+ * kernel for every pass, and handed back after it, they cost a 2-worker
+ * pass over 2e6 rows a third of its time in page faults and in the
+ * interrupts that unmapping sends to every core.  A zeroed pool is empty;
+ * whoever runs the passes owns it and empties it with
+ * mr__pass_pool_release once the last pass is over.  Private to pass.c. */
+typedef struct mr__pass_pool {
+    const mr__binding *bind;    /* what the kept blocks were made for */
+    struct mr__pool_slot *slot; /* nslot of them */
+    size_t nslot;
+    const mr__design *design;   /* what the kept workspaces were made for */
+    mr__workspace *ws;          /* nws of them, a zeroed one empty */
+    size_t nws;
+} mr__pass_pool;
+
+void mr__pass_pool_release(mr__pass_pool *pool);
+
 
 /* Called on the calling thread once the header row is read. */
 typedef mr_status (*mr__header_fn)(void *user, const char *line, size_t len, mr__error *err);
@@ -51,6 +70,7 @@ typedef struct mr__pass_cfg {
                              The first pass keeps its blocks when given a store. */
     size_t replay_stride; /* with a store to replay: every stride-th block (0, 1: all) */
     const mr__block_map *map; /* MR__PASS_IRLS reading the file: the first pass's map */
+    mr__pass_pool *pool;  /* NULL, or memory to take from and leave to the next pass */
     int pass_number;
     mr_progress_fn progress;
     void *progress_user;

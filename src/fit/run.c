@@ -102,6 +102,7 @@ static mr__pass_cfg pass_config(mr__run *r, mr__pass_kind kind)
     c.progress = r->f->progress;
     c.progress_user = r->f->progress_user;
     c.map = &r->first.map;
+    c.pool = &r->pool;
     if (r->use_store && kind == MR__PASS_IRLS) {
         c.store = &r->store;
         c.store_fill = !r->store_filled;
@@ -781,6 +782,7 @@ static void release_run(mr__run *r)
     mr__free(r->beta_warm);
     mr__store_release(&r->store);
     mr__store_release(&r->patterns);
+    mr__pass_pool_release(&r->pool);
     for (f = 0; r->remap && f < r->nremap; f++) mr__free(r->remap[f]);
     mr__free(r->remap);
     if (r->bound) mr__binding_release(&r->bind);

@@ -38,6 +38,7 @@ typedef struct mr__run {
     double *mean, *spread;
     mr__design design;
     mr__store store;
+    mr__pass_pool pool; /* buffers passed from pass to pass */
     int use_store, store_filled, cached;
     int32_t **remap; /* first-pass level numbers -> shared ones */
     size_t nremap;
