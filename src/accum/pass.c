@@ -766,12 +766,14 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     /* Two blocks per worker (one being computed, one waiting), one being
      * read, one being added, and slack for blocks that finish out of
      * order: the calling thread adds them in order, so one slow block
-     * holds up the ring, and with too little slack the reader stalls and
-     * a core idles (first pass at 10^7 rows, 2 workers: the reader waited
-     * 0.20 s with no slack and 0.05 s with this; case A's fit 4% and case
-     * B's first pass 7% less wall time).  The slack is a constant, not per
-     * worker: what it absorbs is one block's delay. */
-    e.W = 2 * e.nworkers + 8;
+     * holds up the ring, and with no slack the reader stalls and a core
+     * idles (first pass at 10^7 rows, 2 workers: the reader waited 0.20 s
+     * with none, 0.05 s with 8).  The slack is a constant, not per worker:
+     * what it absorbs is one block's delay.  It is no larger because each
+     * slot's 2 MiB are pages the first pass faults in: with 4 instead of
+     * 8, that pass over 2e6 plain rows took 0.19 s instead of 0.23 s (1
+     * worker: 0.21 s, 0.26 s), and fits at 10^7 rows were no slower. */
+    e.W = 2 * e.nworkers + 4;
     pthread_mutex_init(&e.mu, NULL);
     pthread_cond_init(&e.slot_free, NULL);
     pthread_cond_init(&e.slot_filled, NULL);
