@@ -244,6 +244,11 @@ static void compute(worker *w, slot *s)
         s->use = &s->block;
         if (s->st != MR_OK || s->block.failed) return;
         if (worth_packing(cfg) || sample_candidate(w->e, s)) {
+            /* the sample took the last buffer, and had none to give back */
+            if (s->packed == NULL && (s->packed = mr__malloc(mr__store_pack_bound(b))) == NULL) {
+                s->st = mr__fail(&s->err, MR_ERR_NO_MEMORY, "out of memory");
+                return;
+            }
             mr__block_settle_offsets(&s->block);
             s->packed_len = mr__store_pack(&s->block, b, s->packed);
         }
@@ -598,7 +603,7 @@ static void report_progress(engine *e, const slot *s, double t0, double *last, i
 /* Keeps every stride-th block; when the sample is full, every other kept
  * block goes and the stride doubles.  Only block numbers decide, so the
  * sample is the same whatever the threads or read size. */
-static mr_status keep_sample(engine *e, mr__pass_result *res, const slot *s, mr__error *err)
+static mr_status keep_sample(engine *e, mr__pass_result *res, slot *s, mr__error *err)
 {
     if (s->index % res->sample_stride != 0) return MR_OK;
     if (res->sample.n == MR__SAMPLE_BLOCKS) {
@@ -608,7 +613,7 @@ static mr_status keep_sample(engine *e, mr__pass_result *res, const slot *s, mr_
         if (s->index % res->sample_stride != 0) return MR_OK;
     }
     if (s->packed_len == 0) return mr__fail(err, MR_ERR_INTERNAL, "a sample block was not packed");
-    return mr__store_add_packed(&res->sample, s->packed, s->packed_len, err);
+    return mr__store_adopt_packed(&res->sample, &s->packed, s->packed_len, err);
 }
 
 /* Too many patterns, or no memory for them: fall back to passes over the

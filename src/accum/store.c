@@ -41,7 +41,9 @@ void mr__store_release(mr__store *s)
     size_t i;
     for (i = 0; s->block && i < s->n; i++) mr__block_release(&s->block[i]);
     for (i = 0; s->packs && i < s->n; i++) mr__free(s->packs[i]);
+    for (i = 0; i < s->nspare; i++) mr__free(s->spare[i]);
     mr__free(s->packs);
+    mr__free(s->spare);
     mr__free(s->block);
     mr__free(s->offset);
     mr__free(s->pack);
@@ -311,20 +313,37 @@ static mr_status read_all(int fd, char *p, size_t n, uint64_t at, mr__error *err
     return MR_OK;
 }
 
+/* Room for one more block (and, should it be dropped, one more spare). */
+static mr_status grow_packs(mr__store *s, mr__error *err)
+{
+    size_t cap = s->cap ? 2 * s->cap : 64;
+    char **p, **q;
+    if (s->n + 1 < s->cap) return MR_OK;
+    if ((p = mr__realloc(s->packs, cap * sizeof *p)) == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    s->packs = p;
+    if ((q = mr__realloc(s->spare, cap * sizeof *q)) == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    s->spare = q;
+    s->cap = cap;
+    return MR_OK;
+}
+
 mr_status mr__store_add_packed(mr__store *s, const char *packed, size_t bytes, mr__error *err)
 {
     char *copy;
-    if (s->n + 1 >= s->cap) {
-        size_t cap = s->cap ? 2 * s->cap : 64;
-        char **p = mr__realloc(s->packs, cap * sizeof *p);
-        if (p == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-        s->packs = p;
-        s->cap = cap;
-    }
+    MR__TRY(grow_packs(s, err));
     if ((copy = mr__malloc(bytes)) == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     memcpy(copy, packed, bytes);
     s->packs[s->n++] = copy;
     s->bytes += bytes;
+    return MR_OK;
+}
+
+mr_status mr__store_adopt_packed(mr__store *s, char **buf, size_t bytes, mr__error *err)
+{
+    MR__TRY(grow_packs(s, err));
+    s->packs[s->n++] = *buf;
+    s->bytes += bytes;
+    *buf = s->nspare > 0 ? s->spare[--s->nspare] : NULL;
     return MR_OK;
 }
 
@@ -335,6 +354,7 @@ void mr__store_drop_odd(mr__store *s)
     size_t i, k = 0;
     for (i = 0; i < s->n; i++) {
         if (i % 2 == 0) s->packs[k++] = s->packs[i];
+        else if (s->nspare < s->cap) s->spare[s->nspare++] = s->packs[i];
         else mr__free(s->packs[i]);
     }
     s->n = k;
