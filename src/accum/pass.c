@@ -542,31 +542,20 @@ static int reads_by_map(const engine *e)
            !mr__source_is_zstd(e->src) && (m->n == 0 || m->span[0].offset == e->sp.pos);
 }
 
-/* A pass that may go by the map reads little more than the header from
- * the stream: a read of the default size (1 MiB, into two fresh buffers)
- * would cost it more than the header.  Should it stream after all (the
- * file changed), reads of this size are slower, not wrong. */
-enum { MAP_HEADER_READ = 64u << 10 };
-
-static size_t stream_read_size(const mr__pass_cfg *cfg)
-{
-    const mr__block_map *m = cfg->map;
-    size_t want;
-    if (cfg->kind != MR__PASS_IRLS || m == NULL || !m->usable || m->n == 0) return cfg->read_size;
-    want = m->span[0].offset > MAP_HEADER_READ ? (size_t)m->span[0].offset : MAP_HEADER_READ;
-    return want < cfg->read_size ? want : cfg->read_size;
-}
+/* The header is read with reads of at most this size: data rows go
+ * straight into chunks, so a larger first read would only be copied
+ * again, into two buffers faulted in for it. */
+enum { HEADER_READ = 64u << 10 };
 
 static mr_status begin_stream(engine *e, mr__error *err)
 {
     const mr__pass_cfg *cfg = e->cfg;
-    size_t read_size = stream_read_size(cfg);
     slot *first;
-    MR__TRY(mr__source_open(&e->src, cfg->path, cfg->display, read_size, cfg->tee_fd, err));
+    MR__TRY(mr__source_open(&e->src, cfg->path, cfg->display, cfg->read_size, cfg->tee_fd, err));
     /* the first pass's checksum is the one reported; later reads of the
      * file are checked against its size and time */
     if (cfg->kind != MR__PASS_SCAN) mr__source_skip_checksum(e->src);
-    e->buf_cap = read_size < 16 ? 16 : read_size;
+    e->buf_cap = cfg->read_size < 16 ? 16 : cfg->read_size < HEADER_READ ? cfg->read_size : HEADER_READ;
     e->buf = mr__malloc(e->buf_cap);
     if (e->buf == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     mr__splitter_init(&e->sp, cfg->display, 1);

@@ -147,7 +147,11 @@ static mr_status fill_raw(mr__source *s, mr__error *err)
 }
 
 /* A zstd frame or a skippable frame starts the stream: the input is
- * compressed.  Needs the first 4 bytes, which may take several reads. */
+ * compressed.  Needs the first 4 bytes, which may take several reads, of
+ * at most SNIFF_READ bytes: plain text is then read straight into the
+ * caller's buffers, and what the first read took is copied there again. */
+enum { SNIFF_READ = 64u << 10 };
+
 static mr_status sniff(mr__source *s, mr__error *err)
 {
     unsigned char m[4];
@@ -158,7 +162,8 @@ static mr_status sniff(mr__source *s, mr__error *err)
         memmove(s->raw, s->raw + s->raw_pos, have);
         s->raw_pos = 0;
         s->raw_len = have;
-        MR__TRY(read_into(s, s->raw + have, s->raw_cap - have, &got, err));
+        size_t room = s->raw_cap - have;
+        MR__TRY(read_into(s, s->raw + have, room < SNIFF_READ ? room : SNIFF_READ, &got, err));
         s->raw_len += got;
     }
     s->sniffed = 1;
