@@ -188,17 +188,26 @@ def plain_file(rows):
 
 def threads_ratio(rows):
     """Passes that read and parse every row (no cache, no collapsing), case
-    B: 1 worker against 2, on the plain CSV (parse-bound: the reader only
-    splits rows) and on the zstd file (one core also decompresses)."""
+    B: 1 worker against 2, on the plain CSV (parse-bound: later passes have
+    no reader thread) and on the zstd file (one core also decompresses).
+    Runs alternate between 1 and 2 workers, three of each, and each keeps
+    its best: this machine's two cores are not always equally fast, and
+    which one a single worker lands on is chance."""
     model = model_file("B", CASES["B"][1])
     out = {"rows": rows}
     for label, data in (("plain", plain_file(rows)), ("zstd", data_file(rows))):
-        t = {}
-        for n in (1, 2):
-            _, _, j = fit(model, data, "--no-cache", "--no-collapse", "--threads", str(n), repeats=2)
-            ps = j["convergence"]["pass_seconds"]
-            t[n] = sum(ps) / len(ps)
-        out[label] = {"pass_seconds_1": t[1], "pass_seconds_2": t[2], "speedup": t[1] / t[2]}
+        best = {}
+        for _ in range(3):
+            for n in (1, 2):
+                _, _, j = fit(model, data, "--no-cache", "--no-collapse", "--threads", str(n))
+                ps = j["convergence"]["pass_seconds"]
+                t = (sum(ps) / len(ps), ps[0], sum(ps[1:]) / max(len(ps) - 1, 1))
+                if n not in best or t[0] < best[n][0]:
+                    best[n] = t
+        out[label] = {"pass_seconds_1": best[1][0], "pass_seconds_2": best[2][0],
+                      "speedup": best[1][0] / best[2][0],
+                      "first_pass_speedup": best[1][1] / best[2][1],
+                      "later_passes_speedup": best[1][2] / best[2][2]}
     return out
 
 
@@ -251,9 +260,11 @@ def markdown(report):
             r["zstd_seconds"], r["ratio_to_zstd"], r["ratio_to_in_memory"], rcols))
     t = report["threads"]
     f = report["factor_cost"]
-    out += ["", "Threads (case B, passes that parse every row, %.0e rows): plain CSV (parse-bound) 1 worker "
-            "%.3f s/pass, 2 workers %.3f s/pass, speed-up %.2fx; zstd input %.3f, %.3f, %.2fx (one decompressor)." % (
+    out += ["", "Threads (case B, passes that parse every row, %.0e rows, best of 3 alternated runs): plain CSV "
+            "(parse-bound) 1 worker %.3f s/pass, 2 workers %.3f s/pass, speed-up %.2fx (first pass %.2fx, later "
+            "passes %.2fx); zstd input %.3f, %.3f, %.2fx (one decompressor)." % (
                 t["rows"], t["plain"]["pass_seconds_1"], t["plain"]["pass_seconds_2"], t["plain"]["speedup"],
+                t["plain"]["first_pass_speedup"], t["plain"]["later_passes_speedup"],
                 t["zstd"]["pass_seconds_1"], t["zstd"]["pass_seconds_2"], t["zstd"]["speedup"]),
             "Factor cost (cached passes, %.0e rows, seconds per pass per 10^6 rows used): 5-level factor %.4f, "
             "~390-level %.4f (ratio %.2f), ~900-level %.4f (ratio %.2f)." % (
