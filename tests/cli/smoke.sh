@@ -3,6 +3,7 @@
 # $MILLRACE says (the ASan build, or the normal build under valgrind), so
 # that every main path of the library runs at least once with a checker
 # watching: zstd and plain input, standard input, threads, in-memory mode,
+# rereads of a plain file by the block map,
 # both sample models, JSON output, and an error path.
 set -u
 root=$(cd "$(dirname "$0")/../.." && pwd)
@@ -26,6 +27,7 @@ expect() { # expect NAME CODE command...
 cd "$root"
 expect "poisson zstd sample" 0 $MILLRACE fit -m samples/falls.model --quiet --json "$tmp/f.json" samples/falls.csv.zst
 expect "logistic sample, 1 thread, in memory" 0 $MILLRACE fit -m samples/screening.model --threads 1 --in-memory --quiet samples/screening.csv
+expect "plain file reread by the block map" 0 $MILLRACE fit -m samples/screening.model --threads 2 --no-cache --no-collapse --quiet samples/screening.csv
 expect "standard input, tiny reads" 0 sh -c "cat samples/falls.csv | $MILLRACE fit -m samples/falls.model --buffer-size 4096 --quiet -"
 expect "options override the model file" 0 $MILLRACE fit -m samples/falls.model --family poisson --link log --dispersion estimate --quiet samples/falls.csv
 expect "unknown column is a usage error" 2 $MILLRACE fit --outcome nosuch --family poisson --quiet samples/falls.csv
