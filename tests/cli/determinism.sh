@@ -87,6 +87,7 @@ check crlf_buffer_4096 --threads 4 --buffer-size 4096 "$tmp/data_crlf.csv"
 check stdin --threads 2 - < <(cat "$tmp/data.csv")
 check stdin_buffer_16 --threads 1 --buffer-size 16 - < <(cat "$tmp/data.csv")
 check stdin_in_memory --in-memory - < <(cat "$tmp/data.csv")
+check stdin_no_cache --threads 2 --no-cache --buffer-size 16 - < <(cat "$tmp/data.csv")
 check stdin_zstd --threads 2 - < <(cat "$tmp/data.csv.zst")
 
 finish
