@@ -200,8 +200,10 @@ typedef void (*mr_progress_fn)(const mr_progress *p, void *user);
 MR_API void mr_fitter_set_progress(mr_fitter *f, mr_progress_fn fn, void *user);
 
 /* Fits the model to the CSV (optionally zstd-compressed) at `path`, or to
- * standard input when path is "-".  The input is only read.
- * On MR_OK, *out receives a new fit that the caller frees with mr_fit_free;
+ * standard input when path is "-".  The input is only read, once or more
+ * (standard input is kept in an unlinked temporary file for that); a file
+ * that changes between reads (its size, time, header or rows not as first
+ * read) ends the fit with MR_ERR_IO.  On MR_OK, *out receives a new fit that the caller frees with mr_fit_free;
  * a fit that stopped at the pass limit is still returned with MR_OK and
  * flagged (mr_fit_status() gives MR_ERR_NOT_CONVERGED).  On any other
  * status *out is NULL and mr_fitter_errmsg says why.  The fitter may be run
