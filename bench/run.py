@@ -190,14 +190,14 @@ def threads_ratio(rows):
     """Passes that read and parse every row (no cache, no collapsing), case
     B: 1 worker against 2, on the plain CSV (parse-bound: later passes have
     no reader thread) and on the zstd file (one core also decompresses).
-    Runs alternate between 1 and 2 workers, three of each, and each keeps
+    Runs alternate between 1 and 2 workers, five of each, and each keeps
     its best: this machine's two cores are not always equally fast, and
     which one a single worker lands on is chance."""
     model = model_file("B", CASES["B"][1])
     out = {"rows": rows}
     for label, data in (("plain", plain_file(rows)), ("zstd", data_file(rows))):
         best = {}
-        for _ in range(3):
+        for _ in range(5):
             for n in (1, 2):
                 _, _, j = fit(model, data, "--no-cache", "--no-collapse", "--threads", str(n))
                 ps = j["convergence"]["pass_seconds"]
@@ -260,7 +260,7 @@ def markdown(report):
             r["zstd_seconds"], r["ratio_to_zstd"], r["ratio_to_in_memory"], rcols))
     t = report["threads"]
     f = report["factor_cost"]
-    out += ["", "Threads (case B, passes that parse every row, %.0e rows, best of 3 alternated runs): plain CSV "
+    out += ["", "Threads (case B, passes that parse every row, %.0e rows, best of 5 alternated runs): plain CSV "
             "(parse-bound) 1 worker %.3f s/pass, 2 workers %.3f s/pass, speed-up %.2fx (first pass %.2fx, later "
             "passes %.2fx); zstd input %.3f, %.3f, %.2fx (one decompressor)." % (
                 t["rows"], t["plain"]["pass_seconds_1"], t["plain"]["pass_seconds_2"], t["plain"]["speedup"],
