@@ -214,6 +214,9 @@ mr_status mr__splitter_feed(mr__splitter *sp, const char *p, size_t n, size_t *u
      * search per row. */
     int quotes = memchr(p, '"', n) != NULL;
     *used = n;
+    /* pos is where the stream stands for a chunk started now: after the row
+     * end_row completes (the sink starts the next chunk there), else after
+     * all n bytes. */
     sp->pos = base + n;
     while (p < end) {
         const char *nl, *q;
@@ -287,7 +290,8 @@ mr_status mr__splitter_recut(mr__chunk *c, size_t len, const char *display, uint
     if (st == MR_OK && at_end) st = mr__splitter_finish(&sp, NULL, NULL, err);
     if (st != MR_OK) return st;
     if (used != len || c->nrows != nrows || sp.in_quote)
-        return mr__fail(err, MR_ERR_IO, "%s: the file changed during the fit (the rows from line %llu on are not those first read)",
+        return mr__fail(err, MR_ERR_IO,
+                        "%s: the file changed during the fit (the rows from line %llu on are not those first read)",
                         display, (unsigned long long)first_line);
     return MR_OK;
 }

@@ -158,11 +158,10 @@ static mr_status sniff(mr__source *s, mr__error *err)
     uint32_t magic;
     while (s->raw_len - s->raw_pos < 4 && !s->eof) {
         /* Keep what we have and append: the first reads may be tiny. */
-        size_t have = s->raw_len - s->raw_pos, got;
+        size_t have = s->raw_len - s->raw_pos, room = s->raw_cap - have, got;
         memmove(s->raw, s->raw + s->raw_pos, have);
         s->raw_pos = 0;
         s->raw_len = have;
-        size_t room = s->raw_cap - have;
         MR__TRY(read_into(s, s->raw + have, room < SNIFF_READ ? room : SNIFF_READ, &got, err));
         s->raw_len += got;
     }
@@ -252,6 +251,7 @@ mr_status mr__source_pread(const mr__source *s, char *buf, size_t n, uint64_t of
     }
     return MR_OK;
 }
+
 void mr__source_skip_checksum(mr__source *s)
 {
     s->no_checksum = 1;
