@@ -33,6 +33,26 @@ void mr__splitter_start_chunk(mr__splitter *sp, mr__chunk *c)
     sp->cur = c;
 }
 
+/* Room for n more bytes after len in *buf (*cap of them), doubling from
+ * 64 KiB: the header's buffer and every chunk's grow alike.  NULL when out
+ * of memory. */
+static char *room_after(char **buf, size_t *cap, size_t len, size_t n, mr__error *err)
+{
+    if (len + n > *cap) {
+        size_t nc = *cap ? *cap : 65536;
+        char *q;
+        while (nc < len + n) nc *= 2;
+        q = mr__realloc(*buf, nc);
+        if (q == NULL) {
+            mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+            return NULL;
+        }
+        *buf = q;
+        *cap = nc;
+    }
+    return *buf + len;
+}
+
 /* The row being built lives at the end of the chunk (or in the header
  * buffer before the header is complete). */
 static mr_status append(mr__splitter *sp, const char *p, size_t n, mr__error *err)
@@ -59,15 +79,7 @@ static mr_status append(mr__splitter *sp, const char *p, size_t n, mr__error *er
         *len += n;
         return MR_OK;
     }
-    if (*len + n > *cap) {
-        size_t nc = *cap ? *cap : 65536;
-        char *q;
-        while (nc < *len + n) nc *= 2;
-        q = mr__realloc(*buf, nc);
-        if (q == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-        *buf = q;
-        *cap = nc;
-    }
+    if (room_after(buf, cap, *len, n, err) == NULL) return MR_ERR_NO_MEMORY;
     /* After a blank row is dropped, bytes read in place lie further on in
      * this very buffer: the ranges may overlap (and the buffer is not
      * reallocated, those bytes being within its size already). */
@@ -76,22 +88,7 @@ static mr_status append(mr__splitter *sp, const char *p, size_t n, mr__error *er
     return MR_OK;
 }
 
-char *mr__chunk_room(mr__chunk *c, size_t n, mr__error *err)
-{
-    if (c->len + n > c->cap) {
-        size_t nc = c->cap ? c->cap : 65536;
-        char *q;
-        while (nc < c->len + n) nc *= 2;
-        q = mr__realloc(c->data, nc);
-        if (q == NULL) {
-            mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-            return NULL;
-        }
-        c->data = q;
-        c->cap = nc;
-    }
-    return c->data + c->len;
-}
+char *mr__chunk_room(mr__chunk *c, size_t n, mr__error *err) { return room_after(&c->data, &c->cap, c->len, n, err); }
 
 char *mr__splitter_reserve(mr__splitter *sp, size_t n, mr__error *err) { return mr__chunk_room(sp->cur, n, err); }
 
