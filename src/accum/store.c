@@ -8,6 +8,7 @@
 
 #include "accum/store.h"
 #include "common/alloc.h"
+#include "common/fileio.h"
 
 /* A kept block starts with its row count and the worker whose level
  * numbers it holds. */
@@ -302,14 +303,8 @@ static void map_levels(const mr__store *s, mr__block *blk)
 
 static mr_status read_all(int fd, char *p, size_t n, uint64_t at, mr__error *err)
 {
-    while (n > 0) {
-        ssize_t r = pread(fd, p, n, (off_t)at);
-        if (r < 0 && errno == EINTR) continue;
-        if (r <= 0) return mr__fail(err, MR_ERR_IO, "cannot read the cache file: %s", r ? strerror(errno) : "short");
-        p += r;
-        n -= (size_t)r;
-        at += (uint64_t)r;
-    }
+    int rc = mr__pread_full(fd, p, n, at);
+    if (rc != 0) return mr__fail(err, MR_ERR_IO, "cannot read the cache file: %s", rc < 0 ? strerror(errno) : "short");
     return MR_OK;
 }
 

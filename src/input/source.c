@@ -7,6 +7,7 @@
 #include <zstd.h>
 
 #include "common/alloc.h"
+#include "common/fileio.h"
 #include "input/source.h"
 
 #define FNV_OFFSET 0xcbf29ce484222325ULL
@@ -238,17 +239,11 @@ int mr__source_is_file(const mr__source *s) { return s->is_file; }
 
 mr_status mr__source_pread(const mr__source *s, char *buf, size_t n, uint64_t offset, mr__error *err)
 {
-    while (n > 0) {
-        ssize_t got = pread(s->fd, buf, n, (off_t)offset);
-        if (got < 0 && errno == EINTR) continue;
-        if (got < 0) return mr__fail(err, MR_ERR_IO, "%s: read error: %s", s->display, strerror(errno));
-        if (got == 0)
-            return mr__fail(err, MR_ERR_IO, "%s: the file changed during the fit (it ends before byte %llu)",
-                            s->display, (unsigned long long)(offset + n));
-        buf += got;
-        n -= (size_t)got;
-        offset += (uint64_t)got;
-    }
+    int rc = mr__pread_full(s->fd, buf, n, offset);
+    if (rc < 0) return mr__fail(err, MR_ERR_IO, "%s: read error: %s", s->display, strerror(errno));
+    if (rc > 0)
+        return mr__fail(err, MR_ERR_IO, "%s: the file changed during the fit (it ends before byte %llu)", s->display,
+                        (unsigned long long)(offset + n));
     return MR_OK;
 }
 
