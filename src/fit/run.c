@@ -101,8 +101,8 @@ static mr__pass_cfg pass_config(mr__run *r, mr__pass_kind kind)
     c.pass_number = r->npasses + 1;
     c.progress = r->f->progress;
     c.progress_user = r->f->progress_user;
-    c.map = &r->first.map;
     c.pool = &r->pool;
+    if (kind == MR__PASS_IRLS) c.map = &r->first.map; /* the first pass makes it */
     if (r->use_store && kind == MR__PASS_IRLS) {
         c.store = &r->store;
         c.store_fill = !r->store_filled;
