@@ -14,7 +14,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 
-#include "output/probability.h"
+#include "common/probability.h"
 #include "check_common.h"
 
 /* Relative agreement; an expected 0 needs an exact 0. */

@@ -26,7 +26,7 @@
 #include "accum/scan.h"
 #include "accum/store.h"
 #include "input/blockmap.h"
-#include "input/decode.h"
+#include "accum/decode.h"
 #include "millrace.h"
 
 typedef enum mr__pass_kind { MR__PASS_SCAN, MR__PASS_IRLS } mr__pass_kind;

@@ -27,7 +27,7 @@
 
 #include <stddef.h>
 #include <stdint.h>
-#include "model/levels.h"
+#include "common/levels.h"
 
 #define MR__MAX_PATTERNS 250000
 /* A numeric with more distinct values than this in one block is taken

@@ -8,7 +8,7 @@
 #define MR_SCAN_H
 
 #include <stdint.h>
-#include "input/decode.h"
+#include "accum/decode.h"
 
 typedef struct mr__scan_sums {
     uint64_t nread, nused, incomplete, nbad, npos;

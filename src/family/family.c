@@ -11,7 +11,7 @@
 #include <math.h>
 #include <string.h>
 
-#include "output/probability.h"
+#include "common/probability.h"
 
 enum { N_FAMILIES = 5, N_LINKS = 8 };
 

@@ -13,7 +13,7 @@
 #include "family/family.h"
 #include "fit/fit.h"
 #include "fit/run.h"
-#include "output/probability.h"
+#include "common/probability.h"
 #include "solve/normal_eq.h"
 
 double mr__seconds_now(void)

@@ -32,7 +32,7 @@ void openblas_set_num_threads(int num_threads);
 #include "fit/run.h"
 #include "input/fields.h"
 #include "model/design.h"
-#include "output/probability.h"
+#include "common/probability.h"
 #include "solve/normal_eq.h"
 
 #define MAX_HALVINGS 30

@@ -10,7 +10,7 @@
 #endif
 
 #include "common/mathx.h"
-#include "probability.h"
+#include "common/probability.h"
 
 #include <float.h>
 #include <math.h>

@@ -14,7 +14,7 @@
 #include "input/fields.h"
 #include "input/numparse.h"
 #include "model/columns.h"
-#include "model/levels.h"
+#include "common/levels.h"
 #include "accum/patterns.h"
 #include <stdatomic.h>
 

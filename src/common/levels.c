@@ -2,7 +2,7 @@
 #include <string.h>
 
 #include "common/alloc.h"
-#include "model/levels.h"
+#include "common/levels.h"
 
 void mr__levelset_init(mr__levelset *s) { memset(s, 0, sizeof *s); }
 
