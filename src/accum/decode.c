@@ -5,7 +5,6 @@
 #include "common/alloc.h"
 #include "family/family.h"
 #include "accum/decode.h"
-#include "accum/scan.h"
 
 mr_status mr__block_init(mr__block *b, const mr__binding *bind, mr__error *err)
 {

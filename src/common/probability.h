@@ -10,6 +10,7 @@ double mr__normal_quantile(double p);       /* inverse cdf, 0<p<1; NaN outside *
 double mr__t_sf(double t, double df);       /* P(T > t), df > 0 (may be non-integer) */
 double mr__t_quantile(double p, double df); /* inverse cdf of T, 0<p<1 */
 double mr__chisq_sf(double x, double df);   /* P(X > x) */
+double mr__log_gamma(double x);             /* log |Gamma(x)|, thread safe */
 
 /* Regularized incomplete beta I_x(a, b) and regularized upper incomplete
  * gamma Q(a, x), exposed for tests. */

@@ -52,6 +52,11 @@ double mr__family_unit_deviance(mr_family f, double y, double mu);
  * pattern from sums. */
 double mr__family_saturated_term(mr_family f, double y);
 
+/* One row's data-only log-likelihood term (family/loglik.c): outcome y (a
+ * proportion for binomial), weight w and trials t as read.  The first pass
+ * sums it; see accum/scan.h. */
+double mr__loglik_constant(mr_family family, double y, double w, double t, int has_trials);
+
 /* How many rows have an eta or a mu outside the link's or the family's
  * range (the array form of the two checks above). */
 size_t mr__count_invalid_n(mr_family f, mr_link l, const double *eta, const double *mu, size_t n);

@@ -2,7 +2,7 @@
  * from internal (centred, scaled) coefficients to those of the raw
  * columns, the dispersion, Wald statistics and intervals, likelihood-based
  * summaries and the warnings an analyst must see. */
-#define _DEFAULT_SOURCE /* lgamma_r */
+#define _DEFAULT_SOURCE /* M_PI */
 #include <cblas.h>
 #include <math.h>
 #include <string.h>
@@ -41,12 +41,6 @@ static mr_status map_to_raw(const mr__design *d, const double *beta_s, const dou
     return MR_OK;
 }
 
-static double log_gamma(double x)
-{
-    int sign;
-    return lgamma_r(x, &sign);
-}
-
 /* The log-likelihood from the deviance and the data-only constant of the
  * first pass (see accum/scan.h); for gaussian, gamma and inverse-gaussian
  * the dispersion in the density is the deviance-based estimate, as is
@@ -60,7 +54,7 @@ static double log_likelihood(const mr_fit *fit, double llc, double sw)
     case MR_GAUSSIAN: return -0.5 * (n * (log(2 * M_PI * dev / n) + 1) - llc);
     case MR_GAMMA:
         a = sw / dev;
-        return -sw * log_gamma(a) + a * sw * log(a) - a * dev / 2 - a * sw - llc;
+        return -sw * mr__log_gamma(a) + a * sw * log(a) - a * dev / 2 - a * sw - llc;
     case MR_INVERSE_GAUSSIAN: return -0.5 * (sw * (1 + log(2 * M_PI * dev / sw)) + 3 * llc);
     }
     return NAN;
