@@ -88,6 +88,7 @@ mr_status mr__decoder_init(mr__decoder *d, const mr__decode_cfg *cfg, mr__error 
         if (cfg->missing_len[f] == 0) d->missing_empty = 1;
         else d->missing_first[(unsigned char)cfg->missing[f][0]] = 1;
     }
+    d->outcome = mr__family_outcome_range(cfg->family);
     d->defer_offset = cfg->levels == NULL && cfg->collapse == 2 && b->has_exposure && !b->has_offset;
     if (!d->np || !d->val || !d->lev || !d->miss || !d->wanted || (cfg->levels == NULL && !d->local) ||
         (cfg->levels == NULL && cfg->collapse && (!d->numvals || !d->keysets))) {
@@ -192,17 +193,6 @@ static double column_value(const mr__decoder *d, mr__use use, int present, doubl
     return present && c >= 0 ? d->val[c] : dflt;
 }
 
-static const char *outcome_domain_problem(int family, double y)
-{
-    switch (family) {
-    case MR_POISSON: return y < 0 ? "a count cannot be negative" : NULL;
-    case MR_BINOMIAL: return (y < 0 || y > 1) ? "a binary outcome or proportion must lie in [0, 1]" : NULL;
-    case MR_GAMMA: return y <= 0 ? "the gamma family needs an outcome > 0" : NULL;
-    case MR_INVERSE_GAUSSIAN: return y <= 0 ? "the inverse-gaussian family needs an outcome > 0" : NULL;
-    default: return NULL;
-    }
-}
-
 /* Turns the row's raw values into y, prior weight and offset, checking
  * that the model can take them. */
 static void finish_row_values(mr__decoder *d, double *y, double *prior, double *off)
@@ -221,7 +211,7 @@ static void finish_row_values(mr__decoder *d, double *y, double *prior, double *
         else if (*y < 0) domain_problem(d, MR__USE_OUTCOME, "successes cannot be negative");
         else if (*y > t) domain_problem(d, MR__USE_OUTCOME, "successes exceed trials");
         *y = t > 0 ? *y / t : 0.0;
-    } else if ((why = outcome_domain_problem(d->cfg->family, *y)) != NULL) {
+    } else if ((why = mr__outcome_problem(&d->outcome, *y)) != NULL) {
         domain_problem(d, MR__USE_OUTCOME, why);
     }
     *prior = w * t;
