@@ -11,6 +11,7 @@
 
 #include "accum/pass.h"
 #include "common/alloc.h"
+#include "common/clock.h"
 #include "input/rowsplit.h"
 #include "input/source.h"
 
@@ -70,13 +71,6 @@ typedef struct engine {
     char *buf;
     size_t buf_cap, pending_off, pending_len;
 } engine;
-
-static double now_seconds(void)
-{
-    struct timespec ts;
-    clock_gettime(CLOCK_MONOTONIC, &ts);
-    return (double)ts.tv_sec + ts.tv_nsec * 1e-9;
-}
 
 /* ---- the reader ------------------------------------------------------ */
 
@@ -578,7 +572,7 @@ static void report_progress(engine *e, const slot *s, double t0, double *last, i
 {
     const mr__pass_cfg *cfg = e->cfg;
     mr_progress pr;
-    double t = now_seconds();
+    double t = mr__seconds_now();
     if (cfg->progress == NULL || (!final && t - *last < 0.25)) return;
     *last = t;
     pr.pass = cfg->pass_number;
@@ -769,7 +763,7 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
 {
     engine e;
     mr_status st;
-    double t0 = now_seconds();
+    double t0 = mr__seconds_now();
     memset(&e, 0, sizeof e);
     e.cfg = cfg;
     e.nworkers = cfg->nthreads > 0 ? (size_t)cfg->nthreads : 1;
@@ -816,7 +810,7 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     /* A worker may give up collapsing after its block was merged. */
     if (res->collapsed && atomic_load(cfg->dcfg->collapse_abandoned)) merge_patterns(cfg, res, NULL);
     release_engine(&e);
-    res->seconds = now_seconds() - t0;
+    res->seconds = mr__seconds_now() - t0;
     return st;
 }
 

@@ -6,22 +6,15 @@
 #include <cblas.h>
 #include <math.h>
 #include <string.h>
-#include <time.h>
 
 #include "common/alloc.h"
+#include "common/clock.h"
 #include "common/strbuf.h"
 #include "family/family.h"
 #include "fit/fit.h"
 #include "fit/run.h"
 #include "common/probability.h"
 #include "solve/normal_eq.h"
-
-double mr__seconds_now(void)
-{
-    struct timespec ts;
-    clock_gettime(CLOCK_MONOTONIC, &ts);
-    return (double)ts.tv_sec + ts.tv_nsec * 1e-9;
-}
 
 static char *dup_or_null(const char *s) { return s ? mr__strdup(s) : NULL; }
 

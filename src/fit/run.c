@@ -26,6 +26,7 @@ void openblas_set_num_threads(int num_threads);
 
 #include "accum/pass.h"
 #include "common/alloc.h"
+#include "common/clock.h"
 #include "family/family.h"
 #include "fit/fit.h"
 #include "fit/fitter.h"
