@@ -151,9 +151,9 @@ static void decode_level(mr__decoder *d, int col, const char *p, size_t len)
 {
     const mr__column *c = &d->cfg->bind->col[col];
     if (d->cfg->levels == NULL) {
-        int rc = mr__levelset_add(&d->local[c->var], p, len, &d->lev[col]);
-        if (rc == -2) row_problem(d, (size_t)col, MR_ERR_DOMAIN, "more distinct levels than a factor may have (is it an identifier?)", p, len);
-        else if (rc != 0) d->stop = 1;
+        mr_status rc = mr__levelset_add(&d->local[c->var], p, len, &d->lev[col]);
+        if (rc == MR_ERR_DOMAIN) row_problem(d, (size_t)col, MR_ERR_DOMAIN, "more distinct levels than a factor may have (is it an identifier?)", p, len);
+        else if (rc != MR_OK) d->stop = 1;
         return;
     }
     d->lev[col] = mr__levelset_find(&d->cfg->levels[c->var], p, len);
