@@ -73,6 +73,7 @@ typedef struct mr__pass_cfg {
     mr__pass_pool *pool;  /* NULL, or memory to take from and leave to the next pass */
     int pass_number;
     mr_progress_fn progress;
+    mr_progress_stop_fn progress_stop; /* nonzero: the pass fails with MR_ERR_STOPPED */
     void *progress_user;
 } mr__pass_cfg;
 
