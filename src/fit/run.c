@@ -13,7 +13,7 @@
 #define _POSIX_C_SOURCE 200809L
 #include <cblas.h>
 
-/* OpenBLAS's own entry point; declared here so any CBLAS header will do. */
+/* OpenBLAS's own entry points; declared here so any CBLAS header will do. */
 void openblas_set_num_threads(int num_threads);
 int openblas_get_num_threads(void);
 #include <errno.h>
