@@ -127,19 +127,12 @@ double mr__normal_quantile(double p)
 /* ------------------------------------------------------------------ */
 /* Log-gamma helpers                                                    */
 
-/* The one log-gamma of the library (the families' data-only
- * log-likelihood, the gamma fit's log-likelihood, the t and beta
- * functions here).  The small whole numbers that make up most registry
- * counts come from a table that holds glibc's own lgamma(1..21), so the
- * table changes no bit, only the time per row (tests/check_probability.c
- * compares it with lgamma_r). */
-double mr__log_gamma(double x)
+/* glibc's own lgamma(1..21), bit for bit (tests/check_probability.c). */
+const double mr__log_factorial[21] = {0, 0, 0.69314718055994529, 1.791759469228055, 3.1780538303479458, 4.7874917427820458, 6.5792512120101012, 8.5251613610654129, 10.604602902745251, 12.801827480081471, 15.104412573075518, 17.502307845873887, 19.987214495661888, 22.552163853123421, 25.19122118273868, 27.89927138384089, 30.671860106080675, 33.505073450136891, 36.395445208033053, 39.339884187199495, 42.335616460753485};
+
+double mr__log_gamma_libm(double x)
 {
     int sign;
-    if (x >= 1 && x <= 21 && x == (double)(int)x) {
-        static const double log_factorial[21] = {0, 0, 0.69314718055994529, 1.791759469228055, 3.1780538303479458, 4.7874917427820458, 6.5792512120101012, 8.5251613610654129, 10.604602902745251, 12.801827480081471, 15.104412573075518, 17.502307845873887, 19.987214495661888, 22.552163853123421, 25.19122118273868, 27.89927138384089, 30.671860106080675, 33.505073450136891, 36.395445208033053, 39.339884187199495, 42.335616460753485};
-        return log_factorial[(int)x - 1];
-    }
     return lgamma_r(x, &sign);
 }
 
