@@ -180,6 +180,7 @@ ref-check: all
 # The library must never print or exit: only the command talks to the terminal.
 # BLAS and LAPACK stay on the thread that runs the fit (solver and results):
 # Debian's serial OpenBLAS is not safe to call from two threads at once.
+# A folder includes only folders below it (tools/check-layers.sh).
 lint:
 	@if grep -nE '\b(printf|fprintf|puts|fputs|perror|exit|abort|_Exit)\s*\(' $(LIB_SRC) | grep -v 'snprintf\|vsnprintf' ; then \
 	  echo "lint: the library must not print or exit (see above)"; exit 1; fi
@@ -187,6 +188,7 @@ lint:
 	@if grep -nE '\b(cblas_|LAPACKE_)[a-z_]+\s*\(' $(filter-out src/solve/% src/fit/%,$(LIB_SRC)); then \
 	  echo "lint: BLAS or LAPACK called outside src/solve and src/fit (see above)"; exit 1; fi
 	@echo "lint: BLAS and LAPACK only in src/solve and src/fit"
+	@sh tools/check-layers.sh src
 
 check: lint unit cli-check ref-check asan-check tsan-check alloc-check valgrind-check
 	@echo "test groups: lint, unit, cli, reference, asan+ubsan, tsan, allocation failures, valgrind"

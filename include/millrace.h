@@ -18,9 +18,12 @@
  *
  * Threads: a handle is used by one thread at a time; different handles are
  * independent.  The library keeps no mutable global state of its own.  It
- * does set OpenBLAS to one thread per call site (openblas_set_num_threads)
- * while a run is going, because its own workers already use every core and
- * nested BLAS threads would oversubscribe them.  Its worker threads never
+ * does set OpenBLAS to one thread (openblas_set_num_threads) while a run is
+ * going, because its own workers already use every core and nested BLAS
+ * threads would oversubscribe them: mr_fitter_run reads the count
+ * (openblas_get_num_threads) before it sets 1, and sets that count back
+ * when it returns, whatever the outcome.  The count is the process's, so
+ * a program that calls BLAS on another thread during a run sees 1.  Its worker threads never
  * call BLAS; the thread that calls mr_fitter_run does (LAPACK's Cholesky).
  * A program that runs fitters on several threads at once must link a BLAS
  * that allows concurrent calls: Debian's default OpenBLAS does, its serial
@@ -73,8 +76,11 @@ typedef enum mr_status {
                                 at the pass limit; results are flagged      */
     MR_ERR_NO_MEMORY = 8,    /* an allocation failed                        */
     MR_ERR_INTERNAL = 9,     /* a bug: please report it                     */
-    MR_ERR_NUMERIC = 10      /* the fit broke down (no finite deviance even
+    MR_ERR_NUMERIC = 10,     /* the fit broke down (no finite deviance even
                                 after step halving)                         */
+    MR_ERR_STOPPED = 11      /* the progress callback set with
+                                mr_fitter_set_progress_stop asked the run
+                                to stop (never returned by the command)     */
 } mr_status;
 
 /* A static, human-readable name for a status ("bad input format", ...). */
@@ -199,6 +205,16 @@ typedef struct mr_progress {
 typedef void (*mr_progress_fn)(const mr_progress *p, void *user);
 MR_API void mr_fitter_set_progress(mr_fitter *f, mr_progress_fn fn, void *user);
 
+/* The same calls, from the same thread, but the return value is read:
+ * nonzero stops the run.  Its workers and reader finish the block at hand
+ * and end, every temporary file is removed, mr_fitter_run returns
+ * MR_ERR_STOPPED with *out NULL, and the fitter may be run again.  The
+ * last call of a pass comes after its rows are all read: a stop there
+ * still stops the run.  A fitter has one progress callback: this setter
+ * and mr_fitter_set_progress each replace the other's (NULL: none). */
+typedef int (*mr_progress_stop_fn)(const mr_progress *p, void *user);
+MR_API void mr_fitter_set_progress_stop(mr_fitter *f, mr_progress_stop_fn fn, void *user);
+
 /* Fits the model to the CSV (optionally zstd-compressed) at `path`, or to
  * standard input when path is "-".  The input is only read, once or more
  * (standard input is kept in an unlinked temporary file for that); a file
@@ -232,6 +248,19 @@ MR_API double mr_fit_std_error(const mr_fit *fit, size_t j);
  * is aliased. */
 MR_API double mr_fit_covariance(const mr_fit *fit, size_t i, size_t j);
 
+/* The Wald test of coefficient j against 0, as in the report: the two-sided
+ * p-value of estimate / standard error, from Student's t with
+ * MR_STAT_DF_RESIDUAL degrees of freedom when the dispersion is estimated,
+ * else from the standard normal.  NaN when aliased (or j out of range). */
+MR_API double mr_fit_p_value(const mr_fit *fit, size_t j);
+/* The Wald interval of coefficient j at the fit's confidence level
+ * (MR_OPT_LEVEL when it ran; mr_fit_stat(fit, MR_STAT_LEVEL)): estimate -+
+ * the same t or normal quantile times the standard error, on the scale of
+ * the coefficient (exp() of both bounds gives the ratio's interval for a
+ * log or logit link).  NaN when aliased (or j out of range). */
+MR_API double mr_fit_conf_low(const mr_fit *fit, size_t j);
+MR_API double mr_fit_conf_high(const mr_fit *fit, size_t j);
+
 typedef enum mr_stat {
     MR_STAT_DEVIANCE = 0,
     MR_STAT_NULL_DEVIANCE = 1,
@@ -248,7 +277,8 @@ typedef enum mr_stat {
     MR_STAT_PASSES = 12,
     MR_STAT_RELATIVE_CHANGE = 13,
     MR_STAT_SECONDS = 14,
-    MR_STAT_RANK = 15
+    MR_STAT_RANK = 15,
+    MR_STAT_LEVEL = 16       /* confidence level of the intervals            */
 } mr_stat;
 /* A fit statistic; NaN for an unknown `which`. */
 MR_API double mr_fit_stat(const mr_fit *fit, mr_stat which);

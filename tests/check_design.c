@@ -21,7 +21,7 @@
 #include "common/alloc.h"
 #include "model/columns.h"
 #include "model/design.h"
-#include "model/levels.h"
+#include "common/levels.h"
 #include "model/spec.h"
 #include "check_common.h"
 

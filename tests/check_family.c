@@ -437,6 +437,27 @@ END_TEST
 /* ------------------------------------------------------------------ */
 /* Domains and starting values                                          */
 
+/* The decoder's row check and mr__family_y_valid read one range: each
+ * family's boundary value goes the same way in both, and the decoder's
+ * messages are the family's. */
+START_TEST(outcome_range_is_the_domain)
+{
+    static const double ys[] = {-1.0, -1e-300, 0.0, 1e-300, 0.5, 1.0, 1.0000001, 7.0};
+    for (int f = MR_GAUSSIAN; f <= MR_INVERSE_GAUSSIAN; f++) {
+        mr__outcome_range r = mr__family_outcome_range((mr_family)f);
+        for (size_t i = 0; i < sizeof ys / sizeof ys[0]; i++)
+            ck_assert_msg((mr__outcome_problem(&r, ys[i]) == NULL) == mr__family_y_valid((mr_family)f, ys[i]),
+                          "%s at %g", mr__family_name((mr_family)f), ys[i]);
+    }
+    mr__outcome_range pois = mr__family_outcome_range(MR_POISSON), gam = mr__family_outcome_range(MR_GAMMA);
+    ck_assert_str_eq(mr__outcome_problem(&pois, -1.0), "a count cannot be negative");
+    ck_assert_ptr_null(mr__outcome_problem(&pois, 0.0));
+    ck_assert_str_eq(mr__outcome_problem(&gam, 0.0), "the gamma family needs an outcome > 0");
+    mr__outcome_range gauss = mr__family_outcome_range(MR_GAUSSIAN);
+    ck_assert_ptr_null(mr__outcome_problem(&gauss, -INFINITY));
+}
+END_TEST
+
 START_TEST(domains)
 {
     ck_assert(mr__family_y_valid(MR_GAUSSIAN, -3.0));
@@ -505,6 +526,7 @@ static Suite *family_suite(void)
     tcase_add_test(tables, names_round_trip);
     tcase_add_test(tables, arrays_equal_scalars_bitwise);
     tcase_add_test(tables, domains);
+    tcase_add_test(tables, outcome_range_is_the_domain);
     tcase_add_test(tables, starting_values);
     suite_add_tcase(s, tables);
     return s;

@@ -7,7 +7,7 @@
 #define MR_ACCUMULATE_H
 
 #include <stdint.h>
-#include "input/decode.h"
+#include "accum/decode.h"
 #include "model/design.h"
 
 typedef struct mr__irls_point {

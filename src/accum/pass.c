@@ -11,6 +11,7 @@
 
 #include "accum/pass.h"
 #include "common/alloc.h"
+#include "common/clock.h"
 #include "input/rowsplit.h"
 #include "input/source.h"
 
@@ -70,13 +71,6 @@ typedef struct engine {
     char *buf;
     size_t buf_cap, pending_off, pending_len;
 } engine;
-
-static double now_seconds(void)
-{
-    struct timespec ts;
-    clock_gettime(CLOCK_MONOTONIC, &ts);
-    return (double)ts.tv_sec + ts.tv_nsec * 1e-9;
-}
 
 /* ---- the reader ------------------------------------------------------ */
 
@@ -574,19 +568,23 @@ static mr_status begin_stream(engine *e, mr__error *err)
     return MR_OK;
 }
 
-static void report_progress(engine *e, const slot *s, double t0, double *last, int final)
+static mr_status report_progress(engine *e, const slot *s, double t0, double *last, int final, mr__error *err)
 {
     const mr__pass_cfg *cfg = e->cfg;
     mr_progress pr;
-    double t = now_seconds();
-    if (cfg->progress == NULL || (!final && t - *last < 0.25)) return;
+    double t = mr__seconds_now();
+    if ((cfg->progress == NULL && cfg->progress_stop == NULL) || (!final && t - *last < 0.25)) return MR_OK;
     *last = t;
     pr.pass = cfg->pass_number;
     pr.bytes_done = s ? s->raw_bytes : (e->src ? mr__source_raw_bytes(e->src) : 0);
     pr.bytes_total = e->src ? mr__source_size(e->src) : 0;
     pr.rows_done = e->rows_done;
     pr.seconds = t - t0;
-    cfg->progress(&pr, cfg->progress_user);
+    if (cfg->progress) cfg->progress(&pr, cfg->progress_user);
+    else if (cfg->progress_stop(&pr, cfg->progress_user) != 0)
+        return mr__fail(err, MR_ERR_STOPPED, "%s: stopped by the progress callback in pass %d", cfg->display,
+                        cfg->pass_number);
+    return MR_OK;
 }
 
 /* Keeps every stride-th block; when the sample is full, every other kept
@@ -699,14 +697,14 @@ static mr_status combine_all(engine *e, mr__pass_result *res, double t0, mr__err
         if (workers_fetch(e)) pthread_cond_broadcast(&e->slot_free);
         else pthread_cond_signal(&e->slot_free);
         pthread_mutex_unlock(&e->mu);
-        report_progress(e, s, t0, &last, 0);
+        st = report_progress(e, s, t0, &last, 0, err);
+        if (st != MR_OK) return st;
     }
     if (e->reader_st != MR_OK) {
         *err = e->reader_err;
         return e->reader_st;
     }
-    report_progress(e, NULL, t0, &last, 1);
-    return MR_OK;
+    return report_progress(e, NULL, t0, &last, 1, err);
 }
 
 static mr_status init_result(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error *err)
@@ -769,7 +767,7 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
 {
     engine e;
     mr_status st;
-    double t0 = now_seconds();
+    double t0 = mr__seconds_now();
     memset(&e, 0, sizeof e);
     e.cfg = cfg;
     e.nworkers = cfg->nthreads > 0 ? (size_t)cfg->nthreads : 1;
@@ -816,7 +814,7 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     /* A worker may give up collapsing after its block was merged. */
     if (res->collapsed && atomic_load(cfg->dcfg->collapse_abandoned)) merge_patterns(cfg, res, NULL);
     release_engine(&e);
-    res->seconds = now_seconds() - t0;
+    res->seconds = mr__seconds_now() - t0;
     return st;
 }
 

@@ -26,7 +26,7 @@
 #include "accum/scan.h"
 #include "accum/store.h"
 #include "input/blockmap.h"
-#include "input/decode.h"
+#include "accum/decode.h"
 #include "millrace.h"
 
 typedef enum mr__pass_kind { MR__PASS_SCAN, MR__PASS_IRLS } mr__pass_kind;
@@ -73,6 +73,7 @@ typedef struct mr__pass_cfg {
     mr__pass_pool *pool;  /* NULL, or memory to take from and leave to the next pass */
     int pass_number;
     mr_progress_fn progress;
+    mr_progress_stop_fn progress_stop; /* nonzero: the pass fails with MR_ERR_STOPPED */
     void *progress_user;
 } mr__pass_cfg;
 

@@ -6,7 +6,7 @@
 
 /* ---- a block's rows (workers) ------------------------------------------ */
 
-int mr__pattern_rows_init(mr__pattern_rows *r, size_t nkey)
+mr_status mr__pattern_rows_init(mr__pattern_rows *r, size_t nkey)
 {
     memset(r, 0, sizeof *r);
     r->nkey = nkey;
@@ -14,9 +14,9 @@ int mr__pattern_rows_init(mr__pattern_rows *r, size_t nkey)
     r->sums = mr__malloc_array((size_t)MR__BLOCK_ROWS * MR__PATTERN_SUMS, sizeof *r->sums);
     r->from = mr__calloc(nkey + 1, sizeof *r->from);
     r->to = mr__calloc(nkey + 1, sizeof *r->to);
-    if (r->ids && r->sums && r->from && r->to) return 0;
+    if (r->ids && r->sums && r->from && r->to) return MR_OK;
     mr__pattern_rows_release(r);
-    return -1;
+    return MR_ERR_NO_MEMORY;
 }
 
 void mr__pattern_rows_release(mr__pattern_rows *r)
@@ -37,20 +37,20 @@ void mr__pattern_rows_begin(mr__pattern_rows *r, const mr__levelset *const *sets
     for (k = 0; k < r->nkey; k++) r->from[k] = r->to[k] = (uint32_t)sets[k]->n;
 }
 
-int mr__pattern_rows_end(mr__pattern_rows *r, const mr__levelset *const *sets)
+mr_status mr__pattern_rows_end(mr__pattern_rows *r, const mr__levelset *const *sets)
 {
     size_t k, id;
     for (k = 0; k < r->nkey; k++) {
         r->to[k] = (uint32_t)sets[k]->n;
         for (id = r->from[k]; id < r->to[k]; id++) {
             const mr__level_name *v = &sets[k]->name[id];
-            if (mr__reserve((void **)&r->text, &r->text_cap, r->text_len + sizeof v->len + v->len, 1) != 0) return -1;
+            if (mr__reserve((void **)&r->text, &r->text_cap, r->text_len + sizeof v->len + v->len, 1) != 0) return MR_ERR_NO_MEMORY;
             memcpy(r->text + r->text_len, &v->len, sizeof v->len);
             memcpy(r->text + r->text_len + sizeof v->len, v->str, v->len);
             r->text_len += sizeof v->len + v->len;
         }
     }
-    return 0;
+    return MR_OK;
 }
 
 /* ---- the table of distinct patterns ------------------------------------- */
@@ -118,11 +118,11 @@ static uint64_t *find_slot(const mr__pattern_table *t, uint64_t hash, const uint
 }
 
 /* Slots are rebuilt from the records, whose order alone matters. */
-static int rebuild_slots(mr__pattern_table *t, size_t cap)
+static mr_status rebuild_slots(mr__pattern_table *t, size_t cap)
 {
     uint64_t *slot = mr__calloc(cap, sizeof *slot);
     size_t i;
-    if (slot == NULL) return -1;
+    if (slot == NULL) return MR_ERR_NO_MEMORY;
     mr__free(t->slot);
     t->slot = slot;
     t->cap = cap;
@@ -131,7 +131,7 @@ static int rebuild_slots(mr__pattern_table *t, size_t cap)
         uint64_t h = hash_key(k, t->kwords);
         *find_slot(t, h, k) = SLOT_TAG(h) | (uint64_t)(uint32_t)(i + 1);
     }
-    return 0;
+    return MR_OK;
 }
 
 /* Slots for n patterns and the next one, at most half full. */
@@ -143,7 +143,7 @@ static size_t slots_for(size_t n)
 }
 
 /* Doubles the room of both arrays; the sums stay 64-byte aligned. */
-static int grow_records(mr__pattern_table *t)
+static mr_status grow_records(mr__pattern_table *t)
 {
     size_t room = t->room ? 2 * t->room : 4096;
     double *sums = mr__aligned_alloc(room * MR__PATTERN_SUMS * sizeof *sums);
@@ -151,7 +151,7 @@ static int grow_records(mr__pattern_table *t)
     if (sums == NULL || keys == NULL) {
         mr__free(sums);
         mr__free(keys);
-        return -1;
+        return MR_ERR_NO_MEMORY;
     }
     if (t->n > 0) {
         memcpy(sums, t->sums, t->n * MR__PATTERN_SUMS * sizeof *sums);
@@ -162,7 +162,7 @@ static int grow_records(mr__pattern_table *t)
     t->sums = sums;
     t->keys = keys;
     t->room = room;
-    return 0;
+    return MR_OK;
 }
 
 /* A new pattern with zero sums: its record number, or -1 when out of
@@ -182,23 +182,23 @@ static void add_sums(mr__pattern_table *t, size_t i, const double *sums)
     for (j = 0; j < MR__PATTERN_SUMS; j++) acc[j] += sums[j];
 }
 
-static int table_add(mr__pattern_table *t, const uint64_t *key, uint64_t hash, const double *sums)
+static mr_status table_add(mr__pattern_table *t, const uint64_t *key, uint64_t hash, const double *sums)
 {
     uint64_t *s;
-    if ((t->n + 1) * 2 > t->cap && rebuild_slots(t, slots_for(t->n)) != 0) return -1;
+    if ((t->n + 1) * 2 > t->cap && rebuild_slots(t, slots_for(t->n)) != 0) return MR_ERR_NO_MEMORY;
     s = find_slot(t, hash, key);
     if (*s == 0) {
         int64_t i = new_record(t, key);
-        if (i < 0) return -1;
+        if (i < 0) return MR_ERR_NO_MEMORY;
         *s = SLOT_TAG(hash) | (uint64_t)(uint32_t)(i + 1);
     }
     add_sums(t, SLOT_RECORD(*s) - 1, sums);
-    return 0;
+    return MR_OK;
 }
 
 /* ---- the merge (calling thread) ---------------------------------------- */
 
-int mr__pattern_merge_init(mr__pattern_merge *m, size_t nkey, size_t nworkers)
+mr_status mr__pattern_merge_init(mr__pattern_merge *m, size_t nkey, size_t nworkers)
 {
     size_t k;
     memset(m, 0, sizeof *m);
@@ -214,10 +214,10 @@ int mr__pattern_merge_init(mr__pattern_merge *m, size_t nkey, size_t nworkers)
     m->shift = mr__calloc(nkey + 1, 1);
     if (!m->values || !m->map || !m->map_cap || !m->key || !m->hash || !m->bits || !m->shift) {
         mr__pattern_merge_release(m);
-        return -1;
+        return MR_ERR_NO_MEMORY;
     }
     for (k = 0; k < nkey; k++) mr__levelset_init(&m->values[k]);
-    return 0;
+    return MR_OK;
 }
 
 void mr__pattern_merge_release(mr__pattern_merge *m)
@@ -238,22 +238,22 @@ void mr__pattern_merge_release(mr__pattern_merge *m)
 }
 
 /* Gives the worker's newly met values their global numbers. */
-static int learn_values(mr__pattern_merge *m, int32_t worker, const mr__pattern_rows *rows)
+static mr_status learn_values(mr__pattern_merge *m, int32_t worker, const mr__pattern_rows *rows)
 {
     size_t k, o = 0, id;
     for (k = 0; k < m->nkey; k++) {
         size_t at = (size_t)worker * m->nkey + k;
         if (rows->to[k] > rows->from[k] &&
             mr__reserve((void **)&m->map[at], &m->map_cap[at], rows->to[k], sizeof *m->map[at]) != 0)
-            return -1;
+            return MR_ERR_NO_MEMORY;
         for (id = rows->from[k]; id < rows->to[k]; id++) {
             uint32_t len;
             memcpy(&len, rows->text + o, sizeof len);
-            if (mr__levelset_add(&m->values[k], rows->text + o + sizeof len, len, &m->map[at][id]) != 0) return -1;
+            if (mr__levelset_add(&m->values[k], rows->text + o + sizeof len, len, &m->map[at][id]) != 0) return MR_ERR_NO_MEMORY;
             o += sizeof len + len;
         }
     }
-    return 0;
+    return MR_OK;
 }
 
 static unsigned bits_for(size_t count)
@@ -266,7 +266,7 @@ static unsigned bits_for(size_t count)
 /* Lays the direct index out afresh when a key column has outgrown its
  * bits, or hands over to the hash table for good when the cells would be
  * too many.  Either way the records, hence every result, are untouched. */
-static int fit_dense(mr__pattern_merge *m)
+static mr_status fit_dense(mr__pattern_merge *m)
 {
     const mr__pattern_table *t = &m->table;
     size_t k, i, total = 0;
@@ -279,14 +279,14 @@ static int fit_dense(mr__pattern_merge *m)
         }
         total += m->bits[k];
     }
-    if (!grown && m->dense != NULL) return 0;
+    if (!grown && m->dense != NULL) return MR_OK;
     mr__free(m->dense);
     m->dense = NULL;
     if (total > MR__DENSE_MAX_BITS) {
         m->hashed = 1;
         return rebuild_slots(&m->table, slots_for(t->n));
     }
-    if ((m->dense = mr__calloc((size_t)1 << total, sizeof *m->dense)) == NULL) return -1;
+    if ((m->dense = mr__calloc((size_t)1 << total, sizeof *m->dense)) == NULL) return MR_ERR_NO_MEMORY;
     for (k = 0, total = 0; k < m->nkey; k++) {
         m->shift[k] = (unsigned char)total;
         total += m->bits[k];
@@ -296,7 +296,7 @@ static int fit_dense(mr__pattern_merge *m)
         for (k = 0; k < m->nkey; k++) cell |= (size_t)mr__pattern_id(t, i, k) << m->shift[k];
         m->dense[cell] = (uint32_t)(i + 1);
     }
-    return 0;
+    return MR_OK;
 }
 
 static void pack_key(const mr__pattern_merge *m, int32_t *const *map, const uint32_t *own, uint64_t *key)
@@ -320,7 +320,7 @@ static void prefetch_ahead(const mr__pattern_table *t, const uint64_t *hash, siz
     }
 }
 
-static int add_hashed(mr__pattern_merge *m, int32_t *const *map, const mr__pattern_rows *rows)
+static mr_status add_hashed(mr__pattern_merge *m, int32_t *const *map, const mr__pattern_rows *rows)
 {
     size_t i, kw = m->table.kwords;
     for (i = 0; i < rows->n; i++) {
@@ -329,9 +329,9 @@ static int add_hashed(mr__pattern_merge *m, int32_t *const *map, const mr__patte
     }
     for (i = 0; i < rows->n; i++) {
         prefetch_ahead(&m->table, m->hash, i, rows->n);
-        if (table_add(&m->table, m->key + i * kw, m->hash[i], rows->sums + i * MR__PATTERN_SUMS) != 0) return -1;
+        if (table_add(&m->table, m->key + i * kw, m->hash[i], rows->sums + i * MR__PATTERN_SUMS) != 0) return MR_ERR_NO_MEMORY;
     }
-    return 0;
+    return MR_OK;
 }
 
 static void prefetch_cell(const mr__pattern_merge *m, const uint64_t *cell, size_t i, size_t n)
@@ -343,7 +343,7 @@ static void prefetch_cell(const mr__pattern_merge *m, const uint64_t *cell, size
     }
 }
 
-static int add_dense(mr__pattern_merge *m, int32_t *const *map, const mr__pattern_rows *rows)
+static mr_status add_dense(mr__pattern_merge *m, int32_t *const *map, const mr__pattern_rows *rows)
 {
     uint64_t *cell = m->hash;
     size_t i, k;
@@ -359,19 +359,19 @@ static int add_dense(mr__pattern_merge *m, int32_t *const *map, const mr__patter
         if (*at == 0) {
             int64_t r;
             pack_key(m, map, rows->ids + i * m->nkey, m->key);
-            if ((r = new_record(&m->table, m->key)) < 0) return -1;
+            if ((r = new_record(&m->table, m->key)) < 0) return MR_ERR_NO_MEMORY;
             *at = (uint32_t)(r + 1);
         }
         add_sums(&m->table, *at - 1, rows->sums + i * MR__PATTERN_SUMS);
     }
-    return 0;
+    return MR_OK;
 }
 
-int mr__pattern_merge_add(mr__pattern_merge *m, int32_t worker, const mr__pattern_rows *rows)
+mr_status mr__pattern_merge_add(mr__pattern_merge *m, int32_t worker, const mr__pattern_rows *rows)
 {
     int32_t *const *map = m->map + (size_t)worker * m->nkey;
-    if (learn_values(m, worker, rows) != 0) return -1;
-    if (!m->hashed && fit_dense(m) != 0) return -1;
+    if (learn_values(m, worker, rows) != 0) return MR_ERR_NO_MEMORY;
+    if (!m->hashed && fit_dense(m) != 0) return MR_ERR_NO_MEMORY;
     return m->hashed ? add_hashed(m, map, rows) : add_dense(m, map, rows);
 }
 

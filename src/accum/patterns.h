@@ -27,7 +27,7 @@
 
 #include <stddef.h>
 #include <stdint.h>
-#include "model/levels.h"
+#include "common/levels.h"
 
 #define MR__MAX_PATTERNS 250000
 /* A numeric with more distinct values than this in one block is taken
@@ -53,14 +53,14 @@ typedef struct mr__pattern_rows {
     size_t text_len, text_cap;
 } mr__pattern_rows;
 
-/* Rows for one block of MR__BLOCK_ROWS rows.  -1 when out of memory. */
-int mr__pattern_rows_init(mr__pattern_rows *r, size_t nkey);
+/* Rows for one block of MR__BLOCK_ROWS rows.  MR_ERR_NO_MEMORY when out of memory. */
+mr_status mr__pattern_rows_init(mr__pattern_rows *r, size_t nkey);
 void mr__pattern_rows_release(mr__pattern_rows *r);
 /* Starts a block: notes where each worker set stands (sets[k] numbers key
  * column k). */
 void mr__pattern_rows_begin(mr__pattern_rows *r, const mr__levelset *const *sets);
-/* Ends a block: lists the values the sets gained.  -1 when out of memory. */
-int mr__pattern_rows_end(mr__pattern_rows *r, const mr__levelset *const *sets);
+/* Ends a block: lists the values the sets gained.  MR_ERR_NO_MEMORY when out of memory. */
+mr_status mr__pattern_rows_end(mr__pattern_rows *r, const mr__levelset *const *sets);
 
 /* The distinct patterns, in order of first appearance: each one's four
  * sums (32 bytes, on a 64-byte boundary every other pattern, so never
@@ -101,10 +101,10 @@ typedef struct mr__pattern_merge {
     mr__pattern_table table;
 } mr__pattern_merge;
 
-int mr__pattern_merge_init(mr__pattern_merge *m, size_t nkey, size_t nworkers);
+mr_status mr__pattern_merge_init(mr__pattern_merge *m, size_t nkey, size_t nworkers);
 void mr__pattern_merge_release(mr__pattern_merge *m);
-/* Adds a block's rows from `worker`, in row order.  -1 when out of memory. */
-int mr__pattern_merge_add(mr__pattern_merge *m, int32_t worker, const mr__pattern_rows *rows);
+/* Adds a block's rows from `worker`, in row order.  MR_ERR_NO_MEMORY when out of memory. */
+mr_status mr__pattern_merge_add(mr__pattern_merge *m, int32_t worker, const mr__pattern_rows *rows);
 
 /* 1 if x[0..n) holds at most `limit` distinct values (limit < 1024). */
 int mr__few_distinct(const double *x, size_t n, size_t limit);

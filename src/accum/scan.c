@@ -1,10 +1,8 @@
-#define _DEFAULT_SOURCE /* lgamma_r: lgamma writes the global signgam */
 #include <math.h>
 #include <string.h>
 
 #include "accum/scan.h"
 #include "common/alloc.h"
-#include "millrace.h"
 
 mr_status mr__scan_init(mr__scan_sums *s, size_t ncol, size_t nnum, mr__error *err)
 {
@@ -91,38 +89,4 @@ void mr__scan_add(mr__scan_sums *into, const mr__scan_sums *from, size_t ncol, s
     into->llc += from->llc;
     for (i = 0; i < from->nbad_shown && into->nbad_shown < MR__BAD_SHOWN; i++)
         into->bad[into->nbad_shown++] = from->bad[i];
-}
-
-static double xlogy(double x, double y) { return x == 0 ? 0.0 : x * log(y); }
-
-/* lgamma(x) for the small counts that make up most registry outcomes:
- * the table holds glibc's own lgamma(1..21), so results are unchanged. */
-static double log_gamma(double x)
-{
-    int sign;
-    if (x >= 1 && x <= 21 && x == (double)(int)x) {
-        static const double log_factorial[21] = {0, 0, 0.69314718055994529, 1.791759469228055, 3.1780538303479458, 4.7874917427820458, 6.5792512120101012, 8.5251613610654129, 10.604602902745251, 12.801827480081471, 15.104412573075518, 17.502307845873887, 19.987214495661888, 22.552163853123421, 25.19122118273868, 27.89927138384089, 30.671860106080675, 33.505073450136891, 36.395445208033053, 39.339884187199495, 42.335616460753485};
-        return log_factorial[(int)x - 1];
-    }
-    return lgamma_r(x, &sign);
-}
-
-double mr__loglik_constant(int family, double y, double w, double t, int has_trials)
-{
-    double prior = w * t, m, c, k;
-    switch (family) {
-    case MR_GAUSSIAN: return prior > 0 ? log(prior) : 0.0;
-    case MR_POISSON: return prior * (xlogy(y, y) - y - log_gamma(y + 1));
-    case MR_GAMMA:
-    case MR_INVERSE_GAUSSIAN: return prior * log(y);
-    case MR_BINOMIAL:
-        m = has_trials ? t : w;
-        c = has_trials ? w : 1.0;
-        if (m <= 0) return 0.0;
-        /* one binary trial: every term is an exact zero */
-        if (m == 1 && c == 1 && (y == 0 || y == 1)) return 0.0;
-        k = m * y;
-        return c * (log_gamma(m + 1) - log_gamma(k + 1) - log_gamma(m - k + 1) + xlogy(k, y) + xlogy(m - k, 1 - y));
-    }
-    return 0.0;
 }

@@ -3,12 +3,13 @@
  * internal centring), the pieces of the null model's starting value, and
  * the part of the log-likelihood that depends on the data alone (so that
  * the log-likelihood of any fit is that constant minus deviance / 2, with
- * no per-row special functions in later passes). */
+ * no per-row special functions in later passes; each row's term is the
+ * family's, mr__loglik_constant). */
 #ifndef MR_SCAN_H
 #define MR_SCAN_H
 
 #include <stdint.h>
-#include "input/decode.h"
+#include "accum/decode.h"
 
 typedef struct mr__scan_sums {
     uint64_t nread, nused, incomplete, nbad, npos;
@@ -27,9 +28,5 @@ void mr__scan_reset(mr__scan_sums *s, size_t ncol, size_t nnum);
 void mr__scan_block(const mr__block *blk, size_t ncol, size_t nnum, mr__scan_sums *s);
 /* into += from, in the caller's (block) order. */
 void mr__scan_add(mr__scan_sums *into, const mr__scan_sums *from, size_t ncol, size_t nnum);
-
-/* One row's data-only log-likelihood term: outcome y (a proportion for
- * binomial), weight w and trials t as read. */
-double mr__loglik_constant(int family, double y, double w, double t, int has_trials);
 
 #endif

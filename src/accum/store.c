@@ -303,8 +303,8 @@ static void map_levels(const mr__store *s, mr__block *blk)
 
 static mr_status read_all(int fd, char *p, size_t n, uint64_t at, mr__error *err)
 {
-    int rc = mr__pread_full(fd, p, n, at);
-    if (rc != 0) return mr__fail(err, MR_ERR_IO, "cannot read the cache file: %s", rc < 0 ? strerror(errno) : "short");
+    mr_status rc = mr__pread_full(fd, p, n, at);
+    if (rc != MR_OK) return mr__fail(err, MR_ERR_IO, "cannot read the cache file: %s", rc == MR_ERR_IO ? strerror(errno) : "short");
     return MR_OK;
 }
 

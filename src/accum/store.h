@@ -11,7 +11,7 @@
 #define MR_STORE_H
 
 #include <stdint.h>
-#include "input/decode.h"
+#include "accum/decode.h"
 
 typedef struct mr__store {
     int fd;              /* file backend, or -1 for memory */

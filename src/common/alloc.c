@@ -53,21 +53,21 @@ void *mr__malloc_array(size_t count, size_t size)
     return mr__malloc(count * size);
 }
 
-int mr__reserve(void **p, size_t *cap, size_t need, size_t unit)
+mr_status mr__reserve(void **p, size_t *cap, size_t need, size_t unit)
 {
     size_t nc;
     void *q;
-    if (need <= *cap) return 0;
+    if (need <= *cap) return MR_OK;
     nc = *cap ? *cap : 8;
     while (nc < need) {
-        if (nc > SIZE_MAX / 2 / unit) return -1;
+        if (nc > SIZE_MAX / 2 / unit) return MR_ERR_NO_MEMORY;
         nc *= 2;
     }
     q = mr__realloc(*p, nc * unit);
-    if (q == NULL) return -1;
+    if (q == NULL) return MR_ERR_NO_MEMORY;
     *p = q;
     *cap = nc;
-    return 0;
+    return MR_OK;
 }
 
 char *mr__strndup(const char *s, size_t n)

@@ -4,6 +4,7 @@
 #define MR_ALLOC_H
 
 #include <stddef.h>
+#include "millrace.h"
 
 void *mr__malloc(size_t size);
 void *mr__calloc(size_t count, size_t size);
@@ -23,9 +24,9 @@ void mr__alloc_fail_after(long n);
 #endif
 char *mr__strndup(const char *s, size_t n);
 /* Grows the array *p (of *cap elements of `unit` bytes) to hold at least
- * `need` elements, doubling; returns 0, or -1 when out of memory (the
+ * `need` elements, doubling; returns MR_OK, or MR_ERR_NO_MEMORY (the
  * array is then unchanged). */
-int mr__reserve(void **p, size_t *cap, size_t need, size_t unit);
+mr_status mr__reserve(void **p, size_t *cap, size_t need, size_t unit);
 /* Overflow-checked count * size for array allocations; NULL on overflow. */
 void *mr__malloc_array(size_t count, size_t size);
 

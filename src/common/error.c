@@ -50,6 +50,7 @@ const char *mr_strerror(mr_status status)
     case MR_ERR_NO_MEMORY: return "out of memory";
     case MR_ERR_INTERNAL: return "internal error";
     case MR_ERR_NUMERIC: return "numerical breakdown";
+    case MR_ERR_STOPPED: return "stopped by the progress callback";
     }
     return "unknown status";
 }

@@ -5,10 +5,12 @@
 
 #include <stddef.h>
 #include <stdint.h>
+#include "millrace.h"
 
 /* Reads n bytes at offset `at` of fd into buf (any thread, any time: the
- * file position is untouched).  0 when all were read; -1 on a read error
- * (errno says which); 1 when the file ends first. */
-int mr__pread_full(int fd, char *buf, size_t n, uint64_t at);
+ * file position is untouched).  MR_OK when all were read; MR_ERR_IO on a
+ * read error (errno says which); MR_ERR_NO_DATA when the file ends first.
+ * The caller words the message. */
+mr_status mr__pread_full(int fd, char *buf, size_t n, uint64_t at);
 
 #endif

@@ -11,7 +11,7 @@
 #include <math.h>
 #include <string.h>
 
-#include "output/probability.h"
+#include "common/probability.h"
 
 enum { N_FAMILIES = 5, N_LINKS = 8 };
 
@@ -97,18 +97,23 @@ int mr__link_allowed(mr_family f, mr_link l)
 /* ------------------------------------------------------------------ */
 /* Domains and starting values                                          */
 
+static const mr__outcome_range OUTCOME_RANGE[N_FAMILIES] = {
+    [MR_GAUSSIAN] = {-INFINITY, INFINITY, 0, NULL},
+    [MR_BINOMIAL] = {0.0, 1.0, 0, "a binary outcome or proportion must lie in [0, 1]"},
+    [MR_POISSON] = {0.0, INFINITY, 0, "a count cannot be negative"},
+    [MR_GAMMA] = {0.0, INFINITY, 1, "the gamma family needs an outcome > 0"},
+    [MR_INVERSE_GAUSSIAN] = {0.0, INFINITY, 1, "the inverse-gaussian family needs an outcome > 0"},
+};
+
+/* Any value for an unknown family: callers validate the family first. */
+mr__outcome_range mr__family_outcome_range(mr_family f)
+{
+    return family_ok(f) ? OUTCOME_RANGE[f] : OUTCOME_RANGE[MR_GAUSSIAN];
+}
+
 int mr__family_y_valid(mr_family f, double y)
 {
-    if (!isfinite(y))
-        return 0;
-    switch (f) {
-    case MR_GAUSSIAN: return 1;
-    case MR_BINOMIAL: return y >= 0.0 && y <= 1.0;
-    case MR_POISSON: return y >= 0.0;
-    case MR_GAMMA:
-    case MR_INVERSE_GAUSSIAN: return y > 0.0;
-    default: return 0;
-    }
+    return isfinite(y) && family_ok(f) && mr__outcome_problem(&OUTCOME_RANGE[f], y) == NULL;
 }
 
 int mr__family_mu_valid(mr_family f, double mu)

@@ -22,9 +22,27 @@ mr_link mr__canonical_link(mr_family f);
 /* 1 if the pair is supported (see the table in millrace.h), else 0. */
 int mr__link_allowed(mr_family f, mr_link l);
 
-/* Valid outcome value for the family (y on the response scale, i.e. a
- * proportion for binomial): gaussian any finite; binomial 0<=y<=1;
- * poisson y>=0; gamma y>0; inverse-gaussian y>0. */
+/* The outcome values a family can take (y on the response scale, i.e. a
+ * proportion for binomial): gaussian any; binomial 0<=y<=1; poisson y>=0;
+ * gamma and inverse-gaussian y>0.  One range per family, read by the
+ * decoder for every row (mr__outcome_problem, inline: no call per row)
+ * and by mr__family_y_valid. */
+typedef struct mr__outcome_range {
+    double lo, hi;       /* y < lo or y > hi is outside */
+    int lo_open;         /* y == lo is outside too */
+    const char *problem; /* the message for a value outside; NULL = none */
+} mr__outcome_range;
+
+mr__outcome_range mr__family_outcome_range(mr_family f);
+
+/* The range's message when y lies outside it, else NULL (NaN lies inside:
+ * the number parser never gives one). */
+static inline const char *mr__outcome_problem(const mr__outcome_range *r, double y)
+{
+    return y < r->lo || (r->lo_open && y == r->lo) || y > r->hi ? r->problem : NULL;
+}
+
+/* A finite y inside the family's range; 0 for an unknown family. */
 int mr__family_y_valid(mr_family f, double y);
 
 /* Valid fitted mean: gaussian any finite; binomial 0<mu<1; poisson mu>0;
@@ -51,6 +69,11 @@ double mr__family_unit_deviance(mr_family f, double y, double mu);
  * Collapsed covariate patterns use it to recover the deviance within a
  * pattern from sums. */
 double mr__family_saturated_term(mr_family f, double y);
+
+/* One row's data-only log-likelihood term (family/loglik.c): outcome y (a
+ * proportion for binomial), weight w and trials t as read.  The first pass
+ * sums it; see accum/scan.h. */
+double mr__loglik_constant(mr_family family, double y, double w, double t, int has_trials);
 
 /* How many rows have an eta or a mu outside the link's or the family's
  * range (the array form of the two checks above). */

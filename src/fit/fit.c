@@ -81,6 +81,10 @@ int mr_fit_coef_aliased(const mr_fit *fit, size_t j) { return j < fit->p ? fit->
 double mr_fit_coef(const mr_fit *fit, size_t j) { return j < fit->p ? fit->beta[j] : NAN; }
 double mr_fit_std_error(const mr_fit *fit, size_t j) { return j < fit->p ? fit->se[j] : NAN; }
 
+double mr_fit_p_value(const mr_fit *fit, size_t j) { return j < fit->p ? fit->pval[j] : NAN; }
+double mr_fit_conf_low(const mr_fit *fit, size_t j) { return j < fit->p ? fit->lo[j] : NAN; }
+double mr_fit_conf_high(const mr_fit *fit, size_t j) { return j < fit->p ? fit->hi[j] : NAN; }
+
 double mr_fit_covariance(const mr_fit *fit, size_t i, size_t j)
 {
     if (i >= fit->p || j >= fit->p) return NAN;
@@ -106,6 +110,7 @@ double mr_fit_stat(const mr_fit *fit, mr_stat which)
     case MR_STAT_RELATIVE_CHANGE: return fit->rel_change;
     case MR_STAT_SECONDS: return fit->seconds;
     case MR_STAT_RANK: return (double)fit->rank;
+    case MR_STAT_LEVEL: return fit->level;
     }
     return NAN;
 }

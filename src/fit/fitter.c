@@ -127,6 +127,7 @@ mr_status mr_fitter_add_missing(mr_fitter *f, const char *token)
 void mr_fitter_set_progress(mr_fitter *f, mr_progress_fn fn, void *user)
 {
     f->progress = fn;
+    f->progress_stop = NULL;
     f->progress_user = user;
 }
 
@@ -135,4 +136,11 @@ mr_status mr_fitter_run(mr_fitter *f, const char *path, mr_fit **out)
     *out = NULL;
     mr__error_clear(&f->err);
     return mr__fit_file(f, path, out);
+}
+
+void mr_fitter_set_progress_stop(mr_fitter *f, mr_progress_stop_fn fn, void *user)
+{
+    f->progress = NULL;
+    f->progress_stop = fn;
+    f->progress_user = user;
 }

@@ -14,6 +14,7 @@ struct mr_fitter {
     char **missing;
     size_t nmissing;
     mr_progress_fn progress;
+    mr_progress_stop_fn progress_stop; /* at most one of the two is set */
     void *progress_user;
 };
 

@@ -2,26 +2,19 @@
  * from internal (centred, scaled) coefficients to those of the raw
  * columns, the dispersion, Wald statistics and intervals, likelihood-based
  * summaries and the warnings an analyst must see. */
-#define _DEFAULT_SOURCE /* lgamma_r */
+#define _DEFAULT_SOURCE /* M_PI */
 #include <cblas.h>
 #include <math.h>
 #include <string.h>
-#include <time.h>
 
 #include "common/alloc.h"
+#include "common/clock.h"
 #include "common/strbuf.h"
 #include "family/family.h"
 #include "fit/fit.h"
 #include "fit/run.h"
-#include "output/probability.h"
+#include "common/probability.h"
 #include "solve/normal_eq.h"
-
-double mr__seconds_now(void)
-{
-    struct timespec ts;
-    clock_gettime(CLOCK_MONOTONIC, &ts);
-    return (double)ts.tv_sec + ts.tv_nsec * 1e-9;
-}
 
 static char *dup_or_null(const char *s) { return s ? mr__strdup(s) : NULL; }
 
@@ -41,12 +34,6 @@ static mr_status map_to_raw(const mr__design *d, const double *beta_s, const dou
     return MR_OK;
 }
 
-static double log_gamma(double x)
-{
-    int sign;
-    return lgamma_r(x, &sign);
-}
-
 /* The log-likelihood from the deviance and the data-only constant of the
  * first pass (see accum/scan.h); for gaussian, gamma and inverse-gaussian
  * the dispersion in the density is the deviance-based estimate, as is
@@ -60,7 +47,7 @@ static double log_likelihood(const mr_fit *fit, double llc, double sw)
     case MR_GAUSSIAN: return -0.5 * (n * (log(2 * M_PI * dev / n) + 1) - llc);
     case MR_GAMMA:
         a = sw / dev;
-        return -sw * log_gamma(a) + a * sw * log(a) - a * dev / 2 - a * sw - llc;
+        return -sw * mr__log_gamma(a) + a * sw * log(a) - a * dev / 2 - a * sw - llc;
     case MR_INVERSE_GAUSSIAN: return -0.5 * (sw * (1 + log(2 * M_PI * dev / sw)) + 3 * llc);
     }
     return NAN;

@@ -13,8 +13,9 @@
 #define _POSIX_C_SOURCE 200809L
 #include <cblas.h>
 
-/* OpenBLAS's own entry point; declared here so any CBLAS header will do. */
+/* OpenBLAS's own entry points; declared here so any CBLAS header will do. */
 void openblas_set_num_threads(int num_threads);
+int openblas_get_num_threads(void);
 #include <errno.h>
 #include <math.h>
 #include <stdio.h>
@@ -26,13 +27,14 @@ void openblas_set_num_threads(int num_threads);
 
 #include "accum/pass.h"
 #include "common/alloc.h"
+#include "common/clock.h"
 #include "family/family.h"
 #include "fit/fit.h"
 #include "fit/fitter.h"
 #include "fit/run.h"
 #include "input/fields.h"
 #include "model/design.h"
-#include "output/probability.h"
+#include "common/probability.h"
 #include "solve/normal_eq.h"
 
 #define MAX_HALVINGS 30
@@ -100,6 +102,7 @@ static mr__pass_cfg pass_config(mr__run *r, mr__pass_kind kind)
     c.dcfg = &r->dcfg;
     c.pass_number = r->npasses + 1;
     c.progress = r->f->progress;
+    c.progress_stop = r->f->progress_stop;
     c.progress_user = r->f->progress_user;
     c.pool = &r->pool;
     if (kind == MR__PASS_IRLS) c.map = &r->first.map; /* the first pass makes it */
@@ -505,6 +508,7 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
         c.store_fill = 0;
         c.replay_stride = job->replay_stride;
         c.progress = NULL;
+        c.progress_stop = NULL;
     }
     mr__pass_result_release(res, 0);
     st = mr__pass_run(&c, res, err);
@@ -808,6 +812,7 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
     mr__run r;
     mr__error *err = &f->err;
     mr_status st;
+    int blas_threads = 0; /* the count to set back; 0: never changed */
     memset(&r, 0, sizeof r);
     mr__store_init_memory(&r.store);
     mr__store_init_memory(&r.patterns);
@@ -825,7 +830,9 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
     if (st == MR_OK) st = choose_store(&r, err);
     if (st == MR_OK) {
         /* Our workers use every core; BLAS threads inside them would only
-         * oversubscribe. */
+         * oversubscribe.  The caller's count comes back at the end, as
+         * millrace.h promises. */
+        blas_threads = openblas_get_num_threads();
         openblas_set_num_threads(1);
         st = scan_pass(&r, err);
     }
@@ -837,5 +844,6 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
     if (st == MR_OK) st = fit_data(&r, err);
     if (st == MR_OK) st = mr__build_fit(&r, out, err);
     release_run(&r);
+    if (blas_threads > 0) openblas_set_num_threads(blas_threads);
     return st;
 }

@@ -61,7 +61,6 @@ typedef struct mr__run {
     int npasses;
 } mr__run;
 
-double mr__seconds_now(void);
 mr_status mr__build_fit(mr__run *r, mr_fit **out, mr__error *err);
 
 #endif

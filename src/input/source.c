@@ -239,9 +239,9 @@ int mr__source_is_file(const mr__source *s) { return s->is_file; }
 
 mr_status mr__source_pread(const mr__source *s, char *buf, size_t n, uint64_t offset, mr__error *err)
 {
-    int rc = mr__pread_full(s->fd, buf, n, offset);
-    if (rc < 0) return mr__fail(err, MR_ERR_IO, "%s: read error: %s", s->display, strerror(errno));
-    if (rc > 0)
+    mr_status rc = mr__pread_full(s->fd, buf, n, offset);
+    if (rc == MR_ERR_IO) return mr__fail(err, MR_ERR_IO, "%s: read error: %s", s->display, strerror(errno));
+    if (rc != MR_OK)
         return mr__fail(err, MR_ERR_IO, "%s: the file changed during the fit (it ends before byte %llu)", s->display,
                         (unsigned long long)(offset + n));
     return MR_OK;

@@ -4,8 +4,7 @@
 
 #include "common/alloc.h"
 #include "family/family.h"
-#include "input/decode.h"
-#include "accum/scan.h"
+#include "accum/decode.h"
 
 mr_status mr__block_init(mr__block *b, const mr__binding *bind, mr__error *err)
 {
@@ -89,6 +88,7 @@ mr_status mr__decoder_init(mr__decoder *d, const mr__decode_cfg *cfg, mr__error 
         if (cfg->missing_len[f] == 0) d->missing_empty = 1;
         else d->missing_first[(unsigned char)cfg->missing[f][0]] = 1;
     }
+    d->outcome = mr__family_outcome_range(cfg->family);
     d->defer_offset = cfg->levels == NULL && cfg->collapse == 2 && b->has_exposure && !b->has_offset;
     if (!d->np || !d->val || !d->lev || !d->miss || !d->wanted || (cfg->levels == NULL && !d->local) ||
         (cfg->levels == NULL && cfg->collapse && (!d->numvals || !d->keysets))) {
@@ -151,9 +151,9 @@ static void decode_level(mr__decoder *d, int col, const char *p, size_t len)
 {
     const mr__column *c = &d->cfg->bind->col[col];
     if (d->cfg->levels == NULL) {
-        int rc = mr__levelset_add(&d->local[c->var], p, len, &d->lev[col]);
-        if (rc == -2) row_problem(d, (size_t)col, MR_ERR_DOMAIN, "more distinct levels than a factor may have (is it an identifier?)", p, len);
-        else if (rc != 0) d->stop = 1;
+        mr_status rc = mr__levelset_add(&d->local[c->var], p, len, &d->lev[col]);
+        if (rc == MR_ERR_DOMAIN) row_problem(d, (size_t)col, MR_ERR_DOMAIN, "more distinct levels than a factor may have (is it an identifier?)", p, len);
+        else if (rc != MR_OK) d->stop = 1;
         return;
     }
     d->lev[col] = mr__levelset_find(&d->cfg->levels[c->var], p, len);
@@ -193,17 +193,6 @@ static double column_value(const mr__decoder *d, mr__use use, int present, doubl
     return present && c >= 0 ? d->val[c] : dflt;
 }
 
-static const char *outcome_domain_problem(int family, double y)
-{
-    switch (family) {
-    case MR_POISSON: return y < 0 ? "a count cannot be negative" : NULL;
-    case MR_BINOMIAL: return (y < 0 || y > 1) ? "a binary outcome or proportion must lie in [0, 1]" : NULL;
-    case MR_GAMMA: return y <= 0 ? "the gamma family needs an outcome > 0" : NULL;
-    case MR_INVERSE_GAUSSIAN: return y <= 0 ? "the inverse-gaussian family needs an outcome > 0" : NULL;
-    default: return NULL;
-    }
-}
-
 /* Turns the row's raw values into y, prior weight and offset, checking
  * that the model can take them. */
 static void finish_row_values(mr__decoder *d, double *y, double *prior, double *off)
@@ -222,7 +211,7 @@ static void finish_row_values(mr__decoder *d, double *y, double *prior, double *
         else if (*y < 0) domain_problem(d, MR__USE_OUTCOME, "successes cannot be negative");
         else if (*y > t) domain_problem(d, MR__USE_OUTCOME, "successes exceed trials");
         *y = t > 0 ? *y / t : 0.0;
-    } else if ((why = outcome_domain_problem(d->cfg->family, *y)) != NULL) {
+    } else if ((why = mr__outcome_problem(&d->outcome, *y)) != NULL) {
         domain_problem(d, MR__USE_OUTCOME, why);
     }
     *prior = w * t;

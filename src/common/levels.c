@@ -2,7 +2,7 @@
 #include <string.h>
 
 #include "common/alloc.h"
-#include "model/levels.h"
+#include "common/levels.h"
 
 void mr__levelset_init(mr__levelset *s) { memset(s, 0, sizeof *s); }
 
@@ -15,12 +15,12 @@ void mr__levelset_release(mr__levelset *s)
     mr__levelset_init(s);
 }
 
-static int grow(mr__levelset *s)
+static mr_status grow(mr__levelset *s)
 {
     size_t cap = s->cap ? 2 * s->cap : 64, i;
     mr__levelset bigger;
     bigger.slot = mr__calloc(cap, sizeof *bigger.slot);
-    if (bigger.slot == NULL) return -1;
+    if (bigger.slot == NULL) return MR_ERR_NO_MEMORY;
     bigger.cap = cap;
     bigger.n = s->n;
     for (i = 0; i < s->cap; i++)
@@ -28,23 +28,23 @@ static int grow(mr__levelset *s)
     mr__free(s->slot);
     s->slot = bigger.slot;
     s->cap = cap;
-    return 0;
+    return MR_OK;
 }
 
-static int insert_hashed(mr__levelset *s, uint64_t h, uint64_t head, const char *p, size_t len, int32_t id,
+static mr_status insert_hashed(mr__levelset *s, uint64_t h, uint64_t head, const char *p, size_t len, int32_t id,
                          int32_t *out, mr__level_entry **made)
 {
     mr__level_entry *e;
     *made = NULL;
-    if (s->n + 1 > s->cap / 2 && grow(s) != 0) return -1;
+    if (s->n + 1 > s->cap / 2 && grow(s) != 0) return MR_ERR_NO_MEMORY;
     e = mr__level_probe(s, h, head, p, len);
     if (e->str != NULL) {
         *out = e->id;
-        return 0;
+        return MR_OK;
     }
-    if (s->n >= MR__MAX_LEVELS) return -2;
+    if (s->n >= MR__MAX_LEVELS) return MR_ERR_DOMAIN;
     e->str = mr__strndup(p, len);
-    if (e->str == NULL) return -1;
+    if (e->str == NULL) return MR_ERR_NO_MEMORY;
     e->hash = h;
     e->head = head;
     e->len = (uint32_t)len;
@@ -52,15 +52,15 @@ static int insert_hashed(mr__levelset *s, uint64_t h, uint64_t head, const char 
     *out = id;
     *made = e;
     s->n++;
-    return 0;
+    return MR_OK;
 }
 
-int mr__levelset_insert(mr__levelset *s, const char *p, size_t len, int32_t *id)
+mr_status mr__levelset_insert(mr__levelset *s, const char *p, size_t len, int32_t *id)
 {
     uint64_t head = mr__level_head(p, len), h = mr__level_hash(head, p, len);
     mr__level_entry *made;
-    int rc;
-    if (mr__reserve((void **)&s->name, &s->name_cap, s->n + 1, sizeof *s->name) != 0) return -1;
+    mr_status rc;
+    if (mr__reserve((void **)&s->name, &s->name_cap, s->n + 1, sizeof *s->name) != 0) return MR_ERR_NO_MEMORY;
     rc = insert_hashed(s, h, head, p, len, (int32_t)s->n, id, &made);
     if (made != NULL) {
         s->name[made->id].str = made->str;
@@ -79,13 +79,13 @@ static int cmp_entry(const void *a, const void *b)
     return (x->len > y->len) - (x->len < y->len);
 }
 
-int mr__levelset_merge_sorted(const mr__levelset *const *sets, size_t n, mr__levelset *out,
+mr_status mr__levelset_merge_sorted(const mr__levelset *const *sets, size_t n, mr__levelset *out,
                               const char ***sorted)
 {
     size_t i, j, k = 0;
     mr__level_entry **all;
     const char **names;
-    int rc = 0;
+    mr_status rc = MR_OK;
     int32_t id;
     mr__level_entry *made;
     mr__levelset_init(out);
@@ -100,7 +100,7 @@ int mr__levelset_merge_sorted(const mr__levelset *const *sets, size_t n, mr__lev
     if (all == NULL || names == NULL) {
         mr__free(all);
         mr__free(names);
-        return -1;
+        return MR_ERR_NO_MEMORY;
     }
     for (j = 0; j < out->cap; j++)
         if (out->slot[j].str != NULL) all[k++] = &out->slot[j];
@@ -111,5 +111,5 @@ int mr__levelset_merge_sorted(const mr__levelset *const *sets, size_t n, mr__lev
     }
     mr__free(all);
     *sorted = names;
-    return 0;
+    return MR_OK;
 }

@@ -10,6 +10,7 @@
 #include <stddef.h>
 #include <stdint.h>
 #include <string.h>
+#include "millrace.h"
 
 #define MR__MAX_LEVELS 100000
 
@@ -104,14 +105,14 @@ void mr__levelset_init(mr__levelset *s);
 void mr__levelset_release(mr__levelset *s);
 
 /* mr__levelset_add's rare case, out of line: the string is not in the set. */
-int mr__levelset_insert(mr__levelset *s, const char *p, size_t len, int32_t *id);
+mr_status mr__levelset_insert(mr__levelset *s, const char *p, size_t len, int32_t *id);
 
 /* Adds the string if new (id = order of arrival) and stores its id in
- * *id.  Returns 0, or -1 when out of memory, or -2 when the set already
- * holds MR__MAX_LEVELS.  Inline: nearly every cell is met before. */
-static inline int mr__levelset_add(mr__levelset *s, const char *p, size_t len, int32_t *id)
+ * *id.  Returns MR_OK, or MR_ERR_NO_MEMORY, or MR_ERR_DOMAIN when the set
+ * already holds MR__MAX_LEVELS.  Inline: nearly every cell is met before. */
+static inline mr_status mr__levelset_add(mr__levelset *s, const char *p, size_t len, int32_t *id)
 {
-    return mr__levelset_lookup(s, p, len, id) ? 0 : mr__levelset_insert(s, p, len, id);
+    return mr__levelset_lookup(s, p, len, id) ? MR_OK : mr__levelset_insert(s, p, len, id);
 }
 /* The id of a string, or -1. */
 static inline int32_t mr__levelset_find(const mr__levelset *s, const char *p, size_t len)
@@ -121,8 +122,10 @@ static inline int32_t mr__levelset_find(const mr__levelset *s, const char *p, si
 }
 
 /* Merges `n` sets into a new set whose ids follow byte-wise sorted order,
- * and lists the strings in that order (*sorted[i] points into *out). */
-int mr__levelset_merge_sorted(const mr__levelset *const *sets, size_t n, mr__levelset *out,
+ * and lists the strings in that order (*sorted[i] points into *out).
+ * MR_OK, or MR_ERR_NO_MEMORY (or MR_ERR_DOMAIN: more than MR__MAX_LEVELS
+ * strings in all). */
+mr_status mr__levelset_merge_sorted(const mr__levelset *const *sets, size_t n, mr__levelset *out,
                               const char ***sorted);
 
 #endif

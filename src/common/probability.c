@@ -10,7 +10,7 @@
 #endif
 
 #include "common/mathx.h"
-#include "probability.h"
+#include "common/probability.h"
 
 #include <float.h>
 #include <math.h>
@@ -127,7 +127,10 @@ double mr__normal_quantile(double p)
 /* ------------------------------------------------------------------ */
 /* Log-gamma helpers                                                    */
 
-static double log_gamma(double x)
+/* glibc's own lgamma(1..21), bit for bit (tests/check_probability.c). */
+const double mr__log_factorial[21] = {0, 0, 0.69314718055994529, 1.791759469228055, 3.1780538303479458, 4.7874917427820458, 6.5792512120101012, 8.5251613610654129, 10.604602902745251, 12.801827480081471, 15.104412573075518, 17.502307845873887, 19.987214495661888, 22.552163853123421, 25.19122118273868, 27.89927138384089, 30.671860106080675, 33.505073450136891, 36.395445208033053, 39.339884187199495, 42.335616460753485};
+
+double mr__log_gamma_libm(double x)
 {
     int sign;
     return lgamma_r(x, &sign);
@@ -161,9 +164,9 @@ static double log_beta(double a, double b)
     if (q >= 10.0) {
         /* lgamma(q) - lgamma(p + q) expanded so that no large terms cancel. */
         double corr = stirling_corr(q) - stirling_corr(pq);
-        return log_gamma(p) + (q - 0.5) * log1p(-p / pq) - p * log(pq) + p + corr;
+        return mr__log_gamma(p) + (q - 0.5) * log1p(-p / pq) - p * log(pq) + p + corr;
     }
-    return log_gamma(p) + log_gamma(q) - log_gamma(pq);
+    return mr__log_gamma(p) + mr__log_gamma(q) - mr__log_gamma(pq);
 }
 
 
@@ -313,7 +316,7 @@ static double t_log_norm(double df)
     if (a < 10.0)
         return 0.5 * log(df) + log_beta(a, 0.5);
     double corr = stirling_corr(a) - stirling_corr(a + 0.5);
-    return log_gamma(0.5) + (a - 0.5) * log1p(-0.5 / (a + 0.5)) - 0.5 * log1p(0.5 / a) +
+    return mr__log_gamma(0.5) + (a - 0.5) * log1p(-0.5 / (a + 0.5)) - 0.5 * log1p(0.5 / a) +
            0.5 + 0.5 * log(2.0) + corr;
 }
 
@@ -492,7 +495,7 @@ static double log_gamma_front(double a, double x)
 {
     if (a >= 10.0)
         return a_log_ratio_minus(a, x) + 0.5 * log(a) - LN_SQRT_2PI - stirling_corr(a);
-    return a * log(x) - x - log_gamma(a);
+    return a * log(x) - x - mr__log_gamma(a);
 }
 
 /* P(a, x) = front / a * sum_n x^n / ((a+1)...(a+n)), for x < a + 1. */

@@ -11,6 +11,20 @@ double mr__t_sf(double t, double df);       /* P(T > t), df > 0 (may be non-inte
 double mr__t_quantile(double p, double df); /* inverse cdf of T, 0<p<1 */
 double mr__chisq_sf(double x, double df);   /* P(X > x) */
 
+/* log |Gamma(x)|, thread safe: the one log-gamma of the library (each
+ * family's data-only log-likelihood, the gamma fit's, the t and beta
+ * functions here).  Inline because the first pass takes it for every row:
+ * the small whole numbers that make up most registry counts come from a
+ * table of glibc's own lgamma(1..21) (the same bits, so the table changes
+ * no result), the rest from lgamma_r. */
+extern const double mr__log_factorial[21];
+double mr__log_gamma_libm(double x);
+static inline double mr__log_gamma(double x)
+{
+    if (x >= 1 && x <= 21 && x == (double)(int)x) return mr__log_factorial[(int)x - 1];
+    return mr__log_gamma_libm(x);
+}
+
 /* Regularized incomplete beta I_x(a, b) and regularized upper incomplete
  * gamma Q(a, x), exposed for tests. */
 double mr__incbeta(double a, double b, double x);

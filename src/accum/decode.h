@@ -14,7 +14,8 @@
 #include "input/fields.h"
 #include "input/numparse.h"
 #include "model/columns.h"
-#include "model/levels.h"
+#include "common/levels.h"
+#include "family/family.h"
 #include "accum/patterns.h"
 #include <stdatomic.h>
 
@@ -103,6 +104,7 @@ typedef struct mr__decoder {
     unsigned char missing_first[256];
     int missing_empty;
     int row_missing;       /* some miss[] is set for the current row */
+    mr__outcome_range outcome; /* the family's, checked on every row */
     /* First pass, poisson log-link patterns with an exposure alone: the
      * patterns need log(exposure) only for rows with events, and a block
      * is kept for later passes only when collapsing was given up early, so
