@@ -3,6 +3,7 @@
 #   make            build the library and the command (build/millrace)
 #   make demo       install missing Debian packages (as root) and fit the bundled sample
 #   make check      the whole test suite: unit, command line, references, sanitizers, valgrind
+#   make install    the command, libraries, header, millrace.pc, man page (mk/install.mk)
 #   make asan       the library and unit tests built with ASan+UBSan (build/asan/)
 #   make tsan-check the command tour under ThreadSanitizer
 #   make bench      benchmarks (not tests; timings go to bench/results/)
@@ -198,5 +199,7 @@ bench: all
 
 clean:
 	rm -rf $(B)
+
+include mk/install.mk
 
 -include $(LIB_OBJ:.o=.d) $(ASAN_OBJ:.o=.d) $(TSAN_OBJ:.o=.d) $(ALLOC_OBJ:.o=.d) $(B)/src/cli/main.d
