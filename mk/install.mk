@@ -60,41 +60,39 @@ $(B)/$(SONAME) $(B)/libmillrace.so: $(B)/$(SHLIB)
 EXAMPLES := README.md falls.csv.zst falls.model screening.csv.zst screening.model
 
 # Every installed file, as the pairs source:destination; uninstall removes
-# the destinations of this same list, and the links made beside it.
+# the destinations of this same list, and the links and the .pc file
+# (below) made beside it.
 INSTALL_BIN  := $(B)/millrace:$(BINDIR)/millrace
 INSTALL_DATA := $(B)/libmillrace.a:$(LIBDIR)/libmillrace.a \
                 $(B)/$(SHLIB):$(LIBDIR)/$(SHLIB) \
                 include/millrace.h:$(INCLUDEDIR)/millrace.h \
-                $(B)/millrace.pc:$(PKGCONFIGDIR)/millrace.pc \
                 doc/millrace.1:$(MANDIR)/man1/millrace.1 \
                 doc/millrace.bash-completion:$(COMPLETIONDIR)/millrace \
                 $(foreach f,$(EXAMPLES),samples/$(f):$(EXAMPLESDIR)/$(f))
 INSTALL_LINKS := $(LIBDIR)/$(SONAME) $(LIBDIR)/libmillrace.so
+PC_FILE := $(PKGCONFIGDIR)/millrace.pc
+
+# The .pc file says where the files went, so it is written straight into
+# place (nothing in the build tree, which `sudo make install` would leave
+# owned by root).  libdir and includedir are given relative to ${prefix}
+# when they lie under it.
+write_pc = sed -e 's|@PREFIX@|$(PREFIX)|' -e 's|@VERSION@|$(MR_VERSION)|' \
+  -e 's|@LIBDIR@|$(patsubst $(PREFIX)/%,$${prefix}/%,$(LIBDIR))|' \
+  -e 's|@INCLUDEDIR@|$(patsubst $(PREFIX)/%,$${prefix}/%,$(INCLUDEDIR))|' mk/millrace.pc.in
 
 src_of = $(word 1,$(subst :, ,$(1)))
 dest_of = $(DESTDIR)$(word 2,$(subst :, ,$(1)))
-
-# The .pc file says where the files went, so it is written at install time
-# (PREFIX and LIBDIR may differ from one install to the next).  libdir and
-# includedir are given relative to ${prefix} when they lie under it.
-$(B)/millrace.pc: FORCE
-	@mkdir -p $(B)
-	$(Q)sed -e 's|@PREFIX@|$(PREFIX)|' -e 's|@VERSION@|$(MR_VERSION)|' \
-	  -e 's|@LIBDIR@|$(patsubst $(PREFIX)/%,$${prefix}/%,$(LIBDIR))|' \
-	  -e 's|@INCLUDEDIR@|$(patsubst $(PREFIX)/%,$${prefix}/%,$(INCLUDEDIR))|' mk/millrace.pc.in >$@
-
-.PHONY: FORCE
-FORCE:
 
 install: $(foreach f,$(INSTALL_BIN) $(INSTALL_DATA),$(call src_of,$(f)))
 	$(Q)$(foreach f,$(INSTALL_BIN),$(INSTALL) -D -m 755 $(call src_of,$(f)) $(call dest_of,$(f)) &&) \
 	  $(foreach f,$(INSTALL_DATA),$(INSTALL) -D -m 644 $(call src_of,$(f)) $(call dest_of,$(f)) &&) \
 	  $(foreach l,$(INSTALL_LINKS),ln -sf $(SHLIB) $(DESTDIR)$(l) &&) true
+	$(Q)$(INSTALL) -d $(DESTDIR)$(PKGCONFIGDIR) && $(write_pc) >$(DESTDIR)$(PC_FILE) && chmod 644 $(DESTDIR)$(PC_FILE)
 	$(Q)$(refresh_loader)
 	@echo "installed millrace $(MR_VERSION) under $(DESTDIR)$(PREFIX)"
 
 uninstall:
-	$(Q)rm -f $(foreach f,$(INSTALL_BIN) $(INSTALL_DATA),$(call dest_of,$(f))) $(addprefix $(DESTDIR),$(INSTALL_LINKS))
+	$(Q)rm -f $(foreach f,$(INSTALL_BIN) $(INSTALL_DATA),$(call dest_of,$(f))) $(addprefix $(DESTDIR),$(INSTALL_LINKS) $(PC_FILE))
 	$(Q)$(refresh_loader)
 	@echo "removed millrace from $(DESTDIR)$(PREFIX)"
 
