@@ -2,7 +2,7 @@
 # The man page (doc/millrace.1) and the bash completion
 # (doc/millrace.bash-completion) against the command itself:
 # - the man page's OPTIONS describe every option src/cli/main.c accepts
-#   and no other; so does the completion; --help names each one;
+#   and no other; so does the completion; --help and the README name each;
 # - its EXIT STATUS lists exactly the status values of millrace.h;
 # - its version is the library's, groff renders it without a warning;
 # - every command of its EXAMPLES runs on the bundled samples;
@@ -33,6 +33,9 @@ check "man page OPTIONS: every accepted option and no other" diff "$tmp/accepted
 source "$completion"
 tr -s ' \n' '\n' <<<"$_millrace_options" | grep . | sort -u >"$tmp/completion_options"
 check "completion: every accepted option and no other" diff "$tmp/accepted" "$tmp/completion_options"
+
+missing=$(while read -r option; do grep -qE -- "$option([^a-z-]|\$)" README.md || echo "$option"; done <"$tmp/accepted")
+if [ -z "$missing" ]; then ok "README names every accepted option"; else fail "README" "no ${missing//$'\n'/ }"; fi
 
 "$bin" help | options_in >"$tmp/help_options"
 echo --help >>"$tmp/help_options" # the help text does not list itself
