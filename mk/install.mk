@@ -91,8 +91,11 @@ install: $(foreach f,$(INSTALL_BIN) $(INSTALL_DATA),$(call src_of,$(f)))
 	$(Q)$(refresh_loader)
 	@echo "installed millrace $(MR_VERSION) under $(DESTDIR)$(PREFIX)"
 
+# Of the folders, only the examples' and share/doc/millrace are ours alone
+# (rmdir leaves them if something else was put there).
 uninstall:
 	$(Q)rm -f $(foreach f,$(INSTALL_BIN) $(INSTALL_DATA),$(call dest_of,$(f))) $(addprefix $(DESTDIR),$(INSTALL_LINKS) $(PC_FILE))
+	$(Q)rmdir $(DESTDIR)$(EXAMPLESDIR) $(DESTDIR)$(patsubst %/,%,$(dir $(EXAMPLESDIR))) 2>/dev/null || true
 	$(Q)$(refresh_loader)
 	@echo "removed millrace from $(DESTDIR)$(PREFIX)"
 

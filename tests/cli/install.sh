@@ -72,6 +72,7 @@ check "make uninstall DESTDIR" make -s uninstall DESTDIR="$stage" PREFIX=/usr/lo
 printf '%s\n' usr/local/lib/libother.so.1 usr/local/share/man/man1/other.1 >"$tmp/want"
 files_under "$stage" >"$tmp/got"
 check "uninstall leaves only what it did not install" diff "$tmp/want" "$tmp/got"
+check "uninstall removes share/doc/millrace" test ! -e "$stage/usr/local/share/doc/millrace"
 
 # ---- an install into a temporary prefix, used through pkg-config -------------
 prefix=$tmp/prefix
