@@ -3,6 +3,7 @@
 #   make            build the library and the command (build/millrace)
 #   make demo       install missing Debian packages (as root) and fit the bundled sample
 #   make check      the whole test suite: unit, command line, references, sanitizers, valgrind
+#   make install    the command, libraries, header, millrace.pc, man page (mk/install.mk)
 #   make asan       the library and unit tests built with ASan+UBSan (build/asan/)
 #   make tsan-check the command tour under ThreadSanitizer
 #   make bench      benchmarks (not tests; timings go to bench/results/)
@@ -46,10 +47,14 @@ endif
 LIBS     := -lcsv $(PKG_LIBS) -pthread -lm
 SAN      := -fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize-recover=all
 
-# Debian packages the build and the tests need.
-DEBIAN_PACKAGES := build-essential pkg-config libzstd-dev zstd libopenblas-dev libopenblas0-serial liblapacke-dev libcsv-dev \
-                   libjansson-dev check libsubunit-dev python3 python3-numpy python3-scipy \
-                   python3-statsmodels r-base-core valgrind time
+# Debian packages building and running need (make deps, make demo).
+DEBIAN_PACKAGES := build-essential pkg-config libzstd-dev libopenblas-dev libopenblas0-serial liblapacke-dev libcsv-dev \
+                   libjansson-dev
+# What only the tests add (make test-deps, make check): oracles, checkers,
+# tools; groff-base renders the man page, gfortran gives the -lgfortran that
+# openblas.pc names for a static link (tests/cli/install.sh).
+TEST_PACKAGES := zstd check libsubunit-dev python3 python3-numpy python3-scipy \
+                 python3-statsmodels r-base-core valgrind time groff-base gfortran
 
 ifeq ($(V),1)
 Q :=
@@ -68,7 +73,7 @@ UNIT_SRC := $(filter-out tests/check_alloc.c,$(wildcard tests/check_*.c))
 UNIT_BIN := $(UNIT_SRC:tests/%.c=$(B)/tests/%)
 ASAN_UNIT_BIN := $(UNIT_SRC:tests/%.c=$(B)/asan/tests/%)
 
-.PHONY: all deps demo check unit asan asan-check tsan-check alloc-check valgrind-check cli-check ref-check lint bench clean
+.PHONY: all deps test-deps demo check check-groups unit asan asan-check tsan-check alloc-check valgrind-check cli-check ref-check lint bench clean
 
 all: $(B)/millrace $(B)/synth
 
@@ -130,8 +135,11 @@ $(B)/synth: tools/synth.c
 deps:
 	@sh tools/install-deps.sh $(DEBIAN_PACKAGES)
 
+test-deps:
+	@sh tools/install-deps.sh $(DEBIAN_PACKAGES) $(TEST_PACKAGES)
+
 demo: deps
-	@$(MAKE) --no-print-directory all
+	@$(MAKE) --no-print-directory $(B)/millrace
 	./$(B)/millrace fit --model samples/falls.model --json $(B)/falls-fit.json samples/falls.csv.zst
 	@echo "(the same fit as JSON: $(B)/falls-fit.json)"
 
@@ -190,7 +198,11 @@ lint:
 	@echo "lint: BLAS and LAPACK only in src/solve and src/fit"
 	@sh tools/check-layers.sh src
 
-check: lint unit cli-check ref-check asan-check tsan-check alloc-check valgrind-check
+# The test packages first, then every group in a make that sees them.
+check: test-deps
+	@$(MAKE) --no-print-directory check-groups
+
+check-groups: lint unit cli-check ref-check asan-check tsan-check alloc-check valgrind-check
 	@echo "test groups: lint, unit, cli, reference, asan+ubsan, tsan, allocation failures, valgrind"
 	@echo "check: 8 passed, 0 failed"
 
@@ -200,5 +212,7 @@ bench: all
 
 clean:
 	rm -rf $(B)
+
+include mk/install.mk
 
 -include $(LIB_OBJ:.o=.d) $(ASAN_OBJ:.o=.d) $(TSAN_OBJ:.o=.d) $(ALLOC_OBJ:.o=.d) $(B)/src/cli/main.d

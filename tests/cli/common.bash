@@ -19,3 +19,11 @@ if [ ! -x "$bin" ]; then
     finish
     exit 1
 fi
+
+# check NAME command...: ok when the command succeeds, else a failure showing
+# the start of its output.
+check() {
+    local name=$1
+    shift
+    if "$@" >"$tmp/check.out" 2>&1; then ok "$name"; else fail "$name" "$(head -5 "$tmp/check.out")"; fi
+}
