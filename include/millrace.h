@@ -263,7 +263,13 @@ MR_API char *mr_fit_report(const mr_fit *fit, int digits);
 /* Writes everything in the fit as JSON (schema in README, "JSON output") to
  * `path`, atomically: a temporary file in the same directory, renamed over
  * `path` only when complete.  Returns MR_OK or MR_ERR_IO / MR_ERR_NO_MEMORY
- * with a message in `msg` (capacity `msgcap`, may be 0). */
+ * (MR_ERR_INTERNAL should the JSON library refuse what it is given) with a
+ * message in `msg` (capacity `msgcap`, may be 0).
+ * Text is written losslessly whatever its encoding: a byte that is not part
+ * of well-formed UTF-8 becomes the characters \xHH (two upper-case hex
+ * digits) and a backslash becomes two; all other text is unchanged.
+ * Messages the library cuts to a length (mr_fitter_errmsg, warnings, the
+ * examples of bad rows) are cut between UTF-8 characters. */
 MR_API mr_status mr_fit_write_json(const mr_fit *fit, const char *path, char *msg, size_t msgcap);
 
 /* Number of warnings and the i-th one (owned by the fit): possible

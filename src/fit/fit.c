@@ -4,6 +4,7 @@
 
 #include "common/alloc.h"
 #include "common/strbuf.h"
+#include "common/utf8.h"
 #include "fit/fit.h"
 
 static void free_strings(char **s, size_t n)
@@ -53,7 +54,7 @@ void mr__fit_warn(mr_fit *fit, const char *fmt, ...)
     char buf[1024], *copy, **grown;
     va_list ap;
     va_start(ap, fmt);
-    vsnprintf(buf, sizeof buf, fmt, ap);
+    mr__utf8_mend_cut(buf, sizeof buf, vsnprintf(buf, sizeof buf, fmt, ap));
     va_end(ap);
     grown = mr__realloc(fit->warning, (fit->nwarnings + 1) * sizeof *grown);
     if (grown == NULL) return;

@@ -7,6 +7,7 @@
 #include <string.h>
 
 #include "common/alloc.h"
+#include "common/utf8.h"
 #include "family/family.h"
 #include "model/spec.h"
 
@@ -247,7 +248,7 @@ mr_status mr__spec_file(mr__spec *s, const char *path, mr__error *err)
     if (fp == NULL) return mr__fail(err, MR_ERR_IO, "%s: cannot open model file: %s", path, strerror(errno));
     while (st == MR_OK && fgets(line, sizeof line, fp) != NULL) {
         lineno++;
-        snprintf(origin, sizeof origin, "%s:%lu", path, lineno);
+        mr__utf8_mend_cut(origin, sizeof origin, snprintf(origin, sizeof origin, "%s:%lu", path, lineno));
         if (strlen(line) > MAX_LINE) {
             st = mr__fail(err, MR_ERR_USAGE, "%s: line too long", origin);
             break;

@@ -9,133 +9,189 @@
 #include <errno.h>
 #include <jansson.h>
 #include <math.h>
+#include <stdarg.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <unistd.h>
 
 #include "common/alloc.h"
+#include "common/utf8.h"
 #include "family/family.h"
 #include "fit/fit.h"
+#include "output/json_text.h"
 
-#define FORMAT_VERSION 1
+/* jansson's constructors return NULL only when out of memory (text() never
+ * hands it malformed UTF-8), and a NULL given to json_pack's "o" fails the
+ * pack, so a failure anywhere comes up to the root.  The one other failure
+ * is json_pack refusing its format: kept here, so it is not taken for a
+ * lack of memory. */
+typedef struct builder {
+    int refused;
+    char why[JSON_ERROR_TEXT_LENGTH];
+} builder;
+
+static json_t *pack(builder *b, const char *fmt, ...)
+{
+    json_error_t e;
+    json_t *v;
+    va_list ap;
+    va_start(ap, fmt);
+    v = json_vpack_ex(&e, 0, fmt, ap);
+    va_end(ap);
+    if (v == NULL && !b->refused && json_error_code(&e) != json_error_out_of_memory &&
+        json_error_code(&e) != json_error_null_value) {
+        b->refused = 1;
+        snprintf(b->why, sizeof b->why, "%s", e.text);
+    }
+    return v;
+}
+
+/* Appends v (stolen) to a; NULL, with a freed, when either is missing or
+ * the append fails. */
+static json_t *append(json_t *a, json_t *v)
+{
+    if (a != NULL && json_array_append_new(a, v) == 0) return a;
+    if (a == NULL) json_decref(v);
+    json_decref(a);
+    return NULL;
+}
+
+/* Sets o[text] = v (stolen), the key escaped as every text is. */
+static json_t *put(json_t *o, const char *key, json_t *v)
+{
+    char *k = o != NULL && v != NULL ? mr__json_escape(key) : NULL;
+    int ok = k != NULL && json_object_set_new(o, k, v) == 0;
+    if (k == NULL) json_decref(v);
+    mr__free(k);
+    if (ok) return o;
+    json_decref(o);
+    return NULL;
+}
 
 /* NaN and infinities have no JSON spelling: they become null. */
 static json_t *num(double x) { return isfinite(x) ? json_real(x) : json_null(); }
-static json_t *str_or_null(const char *s) { return s ? json_string(s) : json_null(); }
+static json_t *text(const char *s) { return mr__json_text(s); }
 
-static json_t *string_array(char *const *s, size_t n)
+static json_t *text_array(char *const *s, size_t n)
 {
     json_t *a = json_array();
     size_t i;
-    for (i = 0; i < n; i++) json_array_append_new(a, json_string(s[i]));
+    for (i = 0; a != NULL && i < n; i++) a = append(a, text(s[i]));
     return a;
 }
 
-static json_t *input_object(const mr_fit *f)
+static json_t *input_object(builder *b, const mr_fit *f)
 {
     char sum[40], delim[2] = {f->delimiter, 0};
     snprintf(sum, sizeof sum, "fnv1a64w:%016llx", (unsigned long long)f->checksum);
-    return json_pack("{s:s, s:I, s:I, s:s, s:s, s:s, s:s}", "path", f->path, "bytes", (json_int_t)f->bytes,
-                     "decompressed_bytes", (json_int_t)f->decompressed_bytes, "compression", f->zstd ? "zstd" : "none",
-                     "checksum", sum, "delimiter", delim, "delimiter_source", f->delimiter_detected ? "detected" : "option");
+    return pack(b, "{s:o, s:I, s:I, s:s, s:s, s:s, s:s}", "path", text(f->path), "bytes", (json_int_t)f->bytes,
+                "decompressed_bytes", (json_int_t)f->decompressed_bytes, "compression", f->zstd ? "zstd" : "none",
+                "checksum", sum, "delimiter", delim, "delimiter_source", f->delimiter_detected ? "detected" : "option");
 }
 
-static json_t *rows_object(const mr_fit *f)
+static json_t *rows_object(builder *b, const mr_fit *f)
 {
     json_t *missing = json_object();
     size_t i;
-    for (i = 0; i < f->nmissing; i++) json_object_set_new(missing, f->missing_name[i], json_integer((json_int_t)f->missing_count[i]));
-    return json_pack("{s:I, s:I, s:I, s:I, s:I, s:o, s:o}", "read", (json_int_t)f->rows_read, "used",
-                     (json_int_t)f->rows_used, "left_out", (json_int_t)(f->rows_read - f->rows_used), "bad",
-                     (json_int_t)f->rows_bad, "zero_weight", (json_int_t)f->zero_weight, "missing_by_column", missing,
-                     "bad_examples", string_array(f->bad_example, f->nbad_examples));
+    for (i = 0; missing != NULL && i < f->nmissing; i++)
+        missing = put(missing, f->missing_name[i], json_integer((json_int_t)f->missing_count[i]));
+    return pack(b, "{s:I, s:I, s:I, s:I, s:I, s:o, s:o}", "read", (json_int_t)f->rows_read, "used",
+                (json_int_t)f->rows_used, "left_out", (json_int_t)(f->rows_read - f->rows_used), "bad",
+                (json_int_t)f->rows_bad, "zero_weight", (json_int_t)f->zero_weight, "missing_by_column", missing,
+                "bad_examples", text_array(f->bad_example, f->nbad_examples));
 }
 
-static json_t *model_object(const mr_fit *f)
+static json_t *model_object(builder *b, const mr_fit *f)
 {
     json_t *factors = json_object();
     size_t i;
-    for (i = 0; i < f->nfactors; i++)
-        json_object_set_new(factors, f->factor[i].name,
-                            json_pack("{s:s, s:o}", "reference", f->factor[i].reference, "levels",
-                                      string_array(f->factor[i].level, f->factor[i].nlevels)));
-    return json_pack("{s:s, s:o, s:s, s:s, s:o, s:o, s:o, s:b, s:s, s:o, s:o}", "outcome", f->outcome, "trials",
-                     str_or_null(f->trials), "family", mr__family_name((mr_family)f->family), "link",
-                     mr__link_name((mr_link)f->link), "offset", str_or_null(f->offset), "exposure",
-                     str_or_null(f->exposure), "weight", str_or_null(f->weight), "intercept", f->intercept,
-                     "dispersion", f->dispersion_estimated ? "estimate" : "fixed", "terms",
-                     string_array(f->terms, f->nterms), "factors", factors);
+    for (i = 0; factors != NULL && i < f->nfactors; i++)
+        factors = put(factors, f->factor[i].name,
+                      pack(b, "{s:o, s:o}", "reference", text(f->factor[i].reference), "levels",
+                           text_array(f->factor[i].level, f->factor[i].nlevels)));
+    return pack(b, "{s:o, s:o, s:s, s:s, s:o, s:o, s:o, s:b, s:s, s:o, s:o}", "outcome", text(f->outcome), "trials",
+                text(f->trials), "family", mr__family_name((mr_family)f->family), "link",
+                mr__link_name((mr_link)f->link), "offset", text(f->offset), "exposure", text(f->exposure), "weight",
+                text(f->weight), "intercept", f->intercept, "dispersion",
+                f->dispersion_estimated ? "estimate" : "fixed", "terms", text_array(f->terms, f->nterms), "factors",
+                factors);
 }
 
-static json_t *options_object(const mr_fit *f)
+static json_t *options_object(builder *b, const mr_fit *f)
 {
-    return json_pack("{s:i, s:I, s:o, s:i, s:o, s:b, s:b, s:s}", "threads", f->threads, "buffer_size",
-                     (json_int_t)f->buffer_size, "tolerance", num(f->tolerance), "max_passes", f->max_passes, "level",
-                     num(f->level), "in_memory", f->in_memory, "cache", f->cached, "on_bad_row",
-                     f->skip_bad ? "skip" : "fail");
+    return pack(b, "{s:i, s:I, s:o, s:i, s:o, s:b, s:b, s:s}", "threads", f->threads, "buffer_size",
+                (json_int_t)f->buffer_size, "tolerance", num(f->tolerance), "max_passes", f->max_passes, "level",
+                num(f->level), "in_memory", f->in_memory, "cache", f->cached, "on_bad_row",
+                f->skip_bad ? "skip" : "fail");
 }
 
-static json_t *convergence_object(const mr_fit *f)
+static json_t *convergence_object(builder *b, const mr_fit *f)
 {
     json_t *ps = json_array();
     size_t i;
-    for (i = 0; i < f->npass_seconds; i++) json_array_append_new(ps, num(f->pass_seconds[i]));
-    return json_pack("{s:b, s:s, s:i, s:i, s:o, s:i, s:b, s:i, s:i, s:i, s:o, s:o, s:o, s:o}", "converged", f->converged,
-                     "criterion", f->by_decrement ? "newton decrement" : "deviance change", "iterations",
-                     f->iterations, "passes", f->passes, "relative_change", num(f->rel_change),
-                     "step_halvings", f->halvings, "warm_start", f->warm_start, "warm_start_iterations",
-                     f->warm_iterations, "warm_start_blocks", f->warm_blocks, "warm_start_polish_blocks",
-                     f->warm_polish_blocks, "collapsed_patterns",
-                     f->patterns ? json_integer((json_int_t)f->patterns) : json_null(), "seconds", num(f->seconds),
-                     "pass_seconds", ps, "rows_per_second", num(f->rows_per_second));
+    for (i = 0; ps != NULL && i < f->npass_seconds; i++) ps = append(ps, num(f->pass_seconds[i]));
+    return pack(b, "{s:b, s:s, s:i, s:i, s:o, s:i, s:b, s:i, s:i, s:i, s:o, s:o, s:o, s:o}", "converged",
+                f->converged, "criterion", f->by_decrement ? "newton decrement" : "deviance change", "iterations",
+                f->iterations, "passes", f->passes, "relative_change", num(f->rel_change), "step_halvings",
+                f->halvings, "warm_start", f->warm_start, "warm_start_iterations", f->warm_iterations,
+                "warm_start_blocks", f->warm_blocks, "warm_start_polish_blocks", f->warm_polish_blocks,
+                "collapsed_patterns", f->patterns ? json_integer((json_int_t)f->patterns) : json_null(), "seconds",
+                num(f->seconds), "pass_seconds", ps, "rows_per_second", num(f->rows_per_second));
 }
 
-static json_t *coefficient_object(const mr_fit *f, size_t j, int ratio)
+static json_t *coefficient_object(builder *b, const mr_fit *f, size_t j, int ratio)
 {
-    json_t *c = json_pack("{s:s, s:b, s:o, s:o, s:o, s:o, s:o, s:o}", "name", f->name[j], "aliased", f->aliased[j],
-                          "estimate", num(f->beta[j]), "std_error", num(f->se[j]), "statistic", num(f->stat[j]),
-                          "p_value", num(f->pval[j]), "ci_low", num(f->lo[j]), "ci_high", num(f->hi[j]));
+    json_t *c = pack(b, "{s:o, s:b, s:o, s:o, s:o, s:o, s:o, s:o}", "name", text(f->name[j]), "aliased",
+                     f->aliased[j], "estimate", num(f->beta[j]), "std_error", num(f->se[j]), "statistic",
+                     num(f->stat[j]), "p_value", num(f->pval[j]), "ci_low", num(f->lo[j]), "ci_high", num(f->hi[j]));
     if (ratio) {
-        json_object_set_new(c, "ratio", num(exp(f->beta[j])));
-        json_object_set_new(c, "ratio_ci_low", num(exp(f->lo[j])));
-        json_object_set_new(c, "ratio_ci_high", num(exp(f->hi[j])));
+        c = put(c, "ratio", num(exp(f->beta[j])));
+        c = put(c, "ratio_ci_low", num(exp(f->lo[j])));
+        c = put(c, "ratio_ci_high", num(exp(f->hi[j])));
     }
     return c;
 }
 
-static json_t *fit_object(const mr_fit *f)
+static json_t *fit_object(builder *b, const mr_fit *f)
 {
-    return json_pack("{s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:I, s:I}", "deviance", num(f->deviance),
-                     "df_residual", num(f->df_residual), "null_deviance", num(f->null_deviance), "df_null",
-                     num(f->df_null), "pearson_chi2", num(f->pearson), "dispersion", num(f->dispersion),
-                     "log_likelihood", num(f->loglik), "aic", num(f->aic), "bic", num(f->bic), "rank",
-                     (json_int_t)f->rank, "n", (json_int_t)f->n);
+    return pack(b, "{s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:I, s:I}", "deviance", num(f->deviance),
+                "df_residual", num(f->df_residual), "null_deviance", num(f->null_deviance), "df_null",
+                num(f->df_null), "pearson_chi2", num(f->pearson), "dispersion", num(f->dispersion),
+                "log_likelihood", num(f->loglik), "aic", num(f->aic), "bic", num(f->bic), "rank",
+                (json_int_t)f->rank, "n", (json_int_t)f->n);
 }
 
-static json_t *fit_to_json(const mr_fit *f)
+static json_t *covariance_array(const mr_fit *f)
+{
+    json_t *cov = json_array();
+    size_t i, j;
+    for (i = 0; cov != NULL && i < f->p; i++) {
+        json_t *row = json_array();
+        for (j = 0; row != NULL && j < f->p; j++) row = append(row, num(f->cov[j * f->p + i]));
+        cov = append(cov, row);
+    }
+    return cov;
+}
+
+static json_t *fit_to_json(builder *b, const mr_fit *f)
 {
     const char *ratio = mr__fit_ratio_label(f);
-    json_t *coefs = json_array(), *cov = json_array(), *root;
-    size_t i, j;
-    for (j = 0; j < f->p; j++) json_array_append_new(coefs, coefficient_object(f, j, ratio != NULL));
-    for (i = 0; i < f->p; i++) {
-        json_t *row = json_array();
-        for (j = 0; j < f->p; j++) json_array_append_new(row, num(f->cov[j * f->p + i]));
-        json_array_append_new(cov, row);
-    }
-    root = json_pack("{s:s, s:i, s:s, s:o, s:o, s:o, s:o, s:o, s:s, s:o, s:o, s:o, s:o, s:o}", "format",
-                     "millrace-fit", "format_version", FORMAT_VERSION, "millrace_version", MR_VERSION_STRING, "input",
-                     input_object(f), "rows", rows_object(f), "model", model_object(f), "options", options_object(f),
-                     "convergence", convergence_object(f), "statistic", mr__fit_statistic_name(f), "ratio_label",
-                     str_or_null(ratio), "coefficients", coefs, "fit", fit_object(f), "covariance", cov, "warnings",
-                     string_array(f->warning, f->nwarnings));
-    return root;
+    json_t *coefs = json_array();
+    size_t j;
+    for (j = 0; coefs != NULL && j < f->p; j++) coefs = append(coefs, coefficient_object(b, f, j, ratio != NULL));
+    return pack(b, "{s:s, s:i, s:s, s:o, s:o, s:o, s:o, s:o, s:s, s:o, s:o, s:o, s:o, s:o}", "format",
+                MR__JSON_FORMAT, "format_version", MR__JSON_FORMAT_VERSION, "millrace_version", MR_VERSION_STRING,
+                "input", input_object(b, f), "rows", rows_object(b, f), "model", model_object(b, f), "options",
+                options_object(b, f), "convergence", convergence_object(b, f), "statistic",
+                mr__fit_statistic_name(f), "ratio_label", ratio ? json_string(ratio) : json_null(), "coefficients",
+                coefs, "fit", fit_object(b, f), "covariance", covariance_array(f), "warnings",
+                text_array(f->warning, f->nwarnings));
 }
 
 static void set_msg(char *msg, size_t cap, const char *fmt, const char *path, const char *why)
 {
-    if (cap > 0) snprintf(msg, cap, fmt, path, why);
+    if (cap > 0) mr__utf8_mend_cut(msg, cap, snprintf(msg, cap, fmt, path, why));
 }
 
 /* jansson hands its output over a few bytes at a time; written straight
@@ -217,9 +273,14 @@ static mr_status write_atomically(json_t *root, const char *path, char *msg, siz
 
 mr_status mr_fit_write_json(const mr_fit *fit, const char *path, char *msg, size_t msgcap)
 {
-    json_t *root = fit_to_json(fit);
+    builder b = {0, ""};
+    json_t *root = fit_to_json(&b, fit);
     mr_status st;
     if (msgcap > 0) msg[0] = '\0';
+    if (root == NULL && b.refused) {
+        set_msg(msg, msgcap, "%s: cannot build the JSON (an internal error): %s", path, b.why);
+        return MR_ERR_INTERNAL;
+    }
     if (root == NULL) {
         set_msg(msg, msgcap, "%s: %s", path, "out of memory building the JSON");
         return MR_ERR_NO_MEMORY;
