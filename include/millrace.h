@@ -11,7 +11,8 @@
  *               (mr_fitter_set_*), then run on a file with mr_fitter_run().
  *               Freed with mr_fitter_free().  Owns the message of its last
  *               error (mr_fitter_errmsg).
- *   mr_fit      the result of a successful run: coefficients, covariance,
+ *   mr_fit      the result of a successful run (or one read back from its
+ *               JSON with mr_fit_read_json): coefficients, covariance,
  *               fit statistics and everything needed to report them.
  *               Read-only once returned: any number of threads may read one
  *               fit at the same time.  Freed with mr_fit_free().
