@@ -11,7 +11,8 @@
  *               (mr_fitter_set_*), then run on a file with mr_fitter_run().
  *               Freed with mr_fitter_free().  Owns the message of its last
  *               error (mr_fitter_errmsg).
- *   mr_fit      the result of a successful run: coefficients, covariance,
+ *   mr_fit      the result of a successful run (or one read back from its
+ *               JSON with mr_fit_read_json): coefficients, covariance,
  *               fit statistics and everything needed to report them.
  *               Read-only once returned: any number of threads may read one
  *               fit at the same time.  Freed with mr_fit_free().
@@ -293,8 +294,29 @@ MR_API char *mr_fit_report(const mr_fit *fit, int digits);
 /* Writes everything in the fit as JSON (schema in README, "JSON output") to
  * `path`, atomically: a temporary file in the same directory, renamed over
  * `path` only when complete.  Returns MR_OK or MR_ERR_IO / MR_ERR_NO_MEMORY
- * with a message in `msg` (capacity `msgcap`, may be 0). */
+ * with a message in `msg` (capacity `msgcap`, may be 0).
+ * Text is written losslessly whatever its encoding: a byte that is not part
+ * of well-formed UTF-8 becomes the characters \xHH (two upper-case hex
+ * digits) and a backslash becomes two; all other text is unchanged.
+ * Messages the library cuts to a length (mr_fitter_errmsg, warnings, the
+ * examples of bad rows) are cut between UTF-8 characters. */
 MR_API mr_status mr_fit_write_json(const mr_fit *fit, const char *path, char *msg, size_t msgcap);
+
+/* Reads back a fit that mr_fit_write_json wrote (format "millrace-fit",
+ * format_version 2): the same coefficients, covariance, statistics,
+ * warnings and report, and what rebuilding the model needs (the model's
+ * lines as given, its terms, factor levels and references, and the input's
+ * path, size, modification time and checksum).  Writing the fit read gives
+ * the same bytes as the file read, and NaN and infinities, written as null,
+ * read back as NaN.  On MR_OK, *out receives a new fit the caller frees
+ * with mr_fit_free; it is read-only like any other, and mr_fit_status
+ * gives what it gave when written.  Otherwise *out is NULL and `msg`
+ * (capacity `msgcap`, may be 0) says why: MR_ERR_IO when the file cannot
+ * be opened or read; MR_ERR_FORMAT when it is not JSON (with jansson's
+ * line and column), not a millrace fit, of another format_version, or
+ * lacks a field or has one of the wrong type (the field is named, e.g.
+ * 'model.terms[2].label'); MR_ERR_NO_MEMORY. */
+MR_API mr_status mr_fit_read_json(const char *path, mr_fit **out, char *msg, size_t msgcap);
 
 /* Number of warnings and the i-th one (owned by the fit): possible
  * separation, aliased columns, non-convergence, ... */

@@ -6,9 +6,11 @@
  * the fit must then return MR_ERR_NO_MEMORY (or succeed, where the failed
  * allocation only cost an optional speed-up such as the warm start), never
  * crash, never leak.  Source of truth: the API contract in millrace.h. */
+#define _POSIX_C_SOURCE 200809L
 #include <check.h>
 #include <stdio.h>
 #include <stdlib.h>
+#include <unistd.h>
 
 #include "common/alloc.h"
 #include "millrace.h"
@@ -67,6 +69,51 @@ static void every_allocation(const char *path, const char *const *model, int ext
     ck_assert_msg(n < 200000, "the fit never finished");
 }
 
+/* Writing a fit as JSON and reading it back with the n-th allocation
+ * failing: MR_ERR_NO_MEMORY or success, never a half-read fit.  Returns 1
+ * once both got through. */
+static int json_failing_at(long n, const mr_fit *fit, const char *a, const char *b)
+{
+    char msg[256];
+    mr_fit *back = (mr_fit *)1;
+    mr_status st;
+    mr__alloc_fail_after(n);
+    st = mr_fit_write_json(fit, a, msg, sizeof msg);
+    ck_assert_msg(st == MR_OK || st == MR_ERR_NO_MEMORY, "allocation %ld: write status %d (%s)", n, (int)st, msg);
+    if (st != MR_OK) return 0;
+    st = mr_fit_read_json(b, &back, msg, sizeof msg);
+    ck_assert_msg(st == MR_OK || st == MR_ERR_NO_MEMORY, "allocation %ld: read status %d (%s)", n, (int)st, msg);
+    if (st != MR_OK) {
+        ck_assert_ptr_null(back);
+        return 0;
+    }
+    mr_fit_free(back);
+    return mr__alloc_failures_left() >= 0;
+}
+
+START_TEST(test_json_write_and_read)
+{
+    char dir[] = "/tmp/check_alloc-XXXXXX", a[64], b[64], msg[256];
+    mr_fitter *f = mr_fitter_new();
+    mr_fit *fit = NULL;
+    long n;
+    int i;
+    ck_assert_ptr_nonnull(mkdtemp(dir));
+    snprintf(a, sizeof a, "%s/a.json", dir);
+    snprintf(b, sizeof b, "%s/b.json", dir);
+    for (i = 0; falls_model[i]; i++) ck_assert_int_eq(mr_fitter_model_line(f, falls_model[i], "test"), MR_OK);
+    ck_assert_int_eq(mr_fitter_run(f, "samples/falls.csv.zst", &fit), MR_OK);
+    mr_fitter_free(f);
+    ck_assert_int_eq(mr_fit_write_json(fit, b, msg, sizeof msg), MR_OK);
+    for (n = 0; n < 200000; n++)
+        if (json_failing_at(n, fit, a, b)) break;
+    mr__alloc_fail_after(-1);
+    ck_assert_msg(n < 200000, "writing and reading never finished");
+    mr_fit_free(fit);
+    ck_assert_int_eq(unlink(a) | unlink(b) | rmdir(dir), 0);
+}
+END_TEST
+
 START_TEST(test_falls_collapsed) { every_allocation("samples/falls.csv.zst", falls_model, 0); }
 END_TEST
 START_TEST(test_falls_rows_cached) { every_allocation("samples/falls.csv", falls_model, 1); }
@@ -82,6 +129,7 @@ int main(void)
     tcase_add_test(tc, test_falls_collapsed);
     tcase_add_test(tc, test_falls_rows_cached);
     tcase_add_test(tc, test_screening_in_memory);
+    tcase_add_test(tc, test_json_write_and_read);
     suite_add_tcase(s, tc);
     return mr_check_run(s, 1); /* no fork: the leak checker sees the whole run */
 }

@@ -3,6 +3,7 @@
 #include <string.h>
 
 #include "common/alloc.h"
+#include "common/utf8.h"
 #include "family/family.h"
 #include "accum/decode.h"
 
@@ -144,7 +145,9 @@ static void row_problem(mr__decoder *d, size_t col, mr_status kind, const char *
     d->row_status = kind;
     d->bad_field = c->field;
     mr__quote_value(v, sizeof v, p, len);
-    snprintf(d->row_msg, sizeof d->row_msg, "%zu: column '%s': %s (value '%s')", c->field + 1, c->name, what, v);
+    mr__utf8_mend_cut(d->row_msg, sizeof d->row_msg,
+                      snprintf(d->row_msg, sizeof d->row_msg, "%zu: column '%s': %s (value '%s')", c->field + 1,
+                               c->name, what, v));
 }
 
 static void decode_level(mr__decoder *d, int col, const char *p, size_t len)

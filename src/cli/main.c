@@ -52,6 +52,7 @@ static const struct option long_options[] = {
 
 static const char usage_text[] =
     "usage: millrace fit [options] DATA     fit a GLM to DATA (CSV, TSV, zstd-compressed, or - for stdin)\n"
+    "       millrace show [--digits N] FIT.json   the report of a fit saved with --json\n"
     "       millrace version | help\n"
     "\n"
     "model (each option takes the words of the model-file line of the same name):\n"
@@ -297,6 +298,28 @@ static int run_fit(cli *c, int argc, char **argv)
     return rc;
 }
 
+/* The report of a saved fit, as the fit printed it. */
+static int show_fit(int argc, char **argv)
+{
+    char msg[1024], *report;
+    long long digits = 0;
+    mr_fit *fit = NULL;
+    mr_status st;
+    if (argc == 4 && strcmp(argv[1], "--digits") == 0) {
+        if (parse_count(argv[2], &digits) != 0 || digits < 1 || digits > 17) return usage_error("--digits takes 1 to 17");
+        argv += 2;
+        argc -= 2;
+    }
+    if (argc != 2) return usage_error("show takes one fit saved with --json");
+    if ((st = mr_fit_read_json(argv[1], &fit, msg, sizeof msg)) != MR_OK) return fail(st, msg);
+    report = mr_fit_report(fit, (int)digits);
+    mr_fit_free(fit);
+    if (report == NULL) return fail(MR_ERR_NO_MEMORY, "out of memory writing the report");
+    fputs(report, stdout);
+    mr_free(report);
+    return fflush(stdout) == 0 ? 0 : fail(MR_ERR_IO, "cannot write the report to standard output");
+}
+
 int main(int argc, char **argv)
 {
     cli c;
@@ -310,6 +333,7 @@ int main(int argc, char **argv)
         printf("millrace %s\n", mr_version());
         return 0;
     }
+    if (strcmp(argv[1], "show") == 0) return show_fit(argc - 1, argv + 1);
     if (strcmp(argv[1], "fit") != 0) return usage_error("unknown command (try 'millrace fit')");
     memset(&c, 0, sizeof c);
     c.fitter = mr_fitter_new();

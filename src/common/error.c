@@ -3,14 +3,17 @@
 #include <string.h>
 
 #include "error.h"
+#include "utf8.h"
 
 mr_status mr__fail(mr__error *err, mr_status status, const char *fmt, ...)
 {
     if (err != NULL) {
         va_list ap;
+        int written;
         va_start(ap, fmt);
-        vsnprintf(err->msg, sizeof err->msg, fmt, ap);
+        written = vsnprintf(err->msg, sizeof err->msg, fmt, ap);
         va_end(ap);
+        mr__utf8_mend_cut(err->msg, sizeof err->msg, written);
         err->status = status;
     }
     return status;
@@ -24,13 +27,16 @@ void mr__error_clear(mr__error *err)
 
 void mr__quote_value(char *out, size_t cap, const char *s, size_t len)
 {
-    size_t i, o = 0;
+    size_t i, o = 0, keep = len;
     if (cap == 0) return;
-    for (i = 0; i < len && o + 4 < cap; i++) {
+    /* a cell cut short is cut between characters, never inside one */
+    if (cap < 5) keep = 0;
+    else if (len > cap - 4) keep = mr__utf8_cut(s, cap - 4);
+    for (i = 0; i < keep; i++) {
         unsigned char c = (unsigned char)s[i];
         out[o++] = (c < 0x20 || c == 0x7f) ? '?' : (char)c;
     }
-    if (i < len && o + 4 <= cap) {
+    if (keep < len && o + 4 <= cap) {
         memcpy(out + o, "...", 3);
         o += 3;
     }

@@ -1,9 +1,11 @@
 #include <math.h>
 #include <stdarg.h>
 #include <stdio.h>
+#include <string.h>
 
 #include "common/alloc.h"
 #include "common/strbuf.h"
+#include "common/utf8.h"
 #include "fit/fit.h"
 
 static void free_strings(char **s, size_t n)
@@ -32,7 +34,14 @@ void mr_fit_free(mr_fit *fit)
     mr__free(fit->offset);
     mr__free(fit->exposure);
     mr__free(fit->weight);
-    free_strings(fit->terms, fit->nterms);
+    for (i = 0; fit->term && i < fit->nterms; i++) {
+        size_t k;
+        mr__free(fit->term[i].label);
+        for (k = 0; k < MR__MAX_INTERACT; k++) mr__free(fit->term[i].part[k]);
+    }
+    mr__free(fit->term);
+    free_strings(fit->model_line, fit->nmodel_lines);
+    free_strings(fit->model_origin, fit->nmodel_lines);
     for (i = 0; fit->factor && i < fit->nfactors; i++) {
         mr__free(fit->factor[i].name);
         mr__free(fit->factor[i].reference);
@@ -44,8 +53,35 @@ void mr_fit_free(mr_fit *fit)
     free_strings(fit->bad_example, fit->nbad_examples);
     mr__free(fit->pass_seconds);
     mr__free(fit->path);
+    mr__free(fit->version);
     free_strings(fit->warning, fit->nwarnings);
     mr__free(fit);
+}
+
+mr_status mr__fit_alloc_coefficients(mr_fit *fit, size_t p)
+{
+    fit->p = p;
+    fit->name = mr__calloc(p + 1, sizeof *fit->name);
+    fit->aliased = mr__calloc(p + 1, sizeof *fit->aliased);
+    fit->beta = mr__calloc(p + 1, sizeof(double));
+    fit->se = mr__calloc(p + 1, sizeof(double));
+    fit->cov = mr__calloc(p * p + 1, sizeof(double));
+    fit->stat = mr__calloc(p + 1, sizeof(double));
+    fit->pval = mr__calloc(p + 1, sizeof(double));
+    fit->lo = mr__calloc(p + 1, sizeof(double));
+    fit->hi = mr__calloc(p + 1, sizeof(double));
+    if (!fit->name || !fit->aliased || !fit->beta || !fit->se || !fit->cov || !fit->stat || !fit->pval || !fit->lo ||
+        !fit->hi)
+        return MR_ERR_NO_MEMORY;
+    return MR_OK;
+}
+
+long mr__fit_find_factor(const mr_fit *fit, const char *name)
+{
+    size_t i;
+    for (i = 0; i < fit->nfactors; i++)
+        if (strcmp(fit->factor[i].name, name) == 0) return (long)i;
+    return -1;
 }
 
 void mr__fit_warn(mr_fit *fit, const char *fmt, ...)
@@ -53,7 +89,7 @@ void mr__fit_warn(mr_fit *fit, const char *fmt, ...)
     char buf[1024], *copy, **grown;
     va_list ap;
     va_start(ap, fmt);
-    vsnprintf(buf, sizeof buf, fmt, ap);
+    mr__utf8_mend_cut(buf, sizeof buf, vsnprintf(buf, sizeof buf, fmt, ap));
     va_end(ap);
     grown = mr__realloc(fit->warning, (fit->nwarnings + 1) * sizeof *grown);
     if (grown == NULL) return;

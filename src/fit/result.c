@@ -95,24 +95,6 @@ static void set_inference(mr_fit *fit)
         if (fit->aliased[j % p] || fit->aliased[j / p]) fit->cov[j] = NAN;
 }
 
-static mr_status alloc_coefficients(mr_fit *fit, size_t p, mr__error *err)
-{
-    fit->p = p;
-    fit->name = mr__calloc(p + 1, sizeof *fit->name);
-    fit->aliased = mr__calloc(p + 1, sizeof *fit->aliased);
-    fit->beta = mr__calloc(p + 1, sizeof(double));
-    fit->se = mr__calloc(p + 1, sizeof(double));
-    fit->cov = mr__calloc(p * p + 1, sizeof(double));
-    fit->stat = mr__calloc(p + 1, sizeof(double));
-    fit->pval = mr__calloc(p + 1, sizeof(double));
-    fit->lo = mr__calloc(p + 1, sizeof(double));
-    fit->hi = mr__calloc(p + 1, sizeof(double));
-    if (!fit->name || !fit->aliased || !fit->beta || !fit->se || !fit->cov || !fit->stat || !fit->pval || !fit->lo ||
-        !fit->hi)
-        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    return MR_OK;
-}
-
 /* Centring folds lower-order columns into higher ones; if a column that
  * turned out aliased was folded into a kept one, its raw coefficient is not
  * zero and the published table would misstate the fit. */
@@ -171,6 +153,47 @@ static char *term_label(const mr__spec *s, size_t i)
     return mr__strbuf_take(&sb);
 }
 
+/* Each term's label, parts, coding and coefficients, from the design
+ * (whose terms are the spec's covariates, then its interactions). */
+static mr_status copy_terms(mr_fit *fit, const mr__run *r)
+{
+    const mr__spec *s = &r->f->spec;
+    size_t i;
+    int k;
+    fit->term = mr__calloc(fit->nterms + 1, sizeof *fit->term);
+    if (fit->term == NULL) return MR_ERR_NO_MEMORY;
+    for (i = 0; i < fit->nterms; i++) {
+        mr__fit_term *t = &fit->term[i];
+        const mr__term *dt = &r->design.term[i];
+        int nparts = i < s->ncov ? 1 : s->inter[i - s->ncov].n;
+        t->full = dt->full;
+        t->first = dt->col0;
+        t->ncoef = dt->ncols;
+        if ((t->label = term_label(s, i)) == NULL) return MR_ERR_NO_MEMORY;
+        for (k = 0; k < nparts; k++, t->nparts++)
+            if ((t->part[k] = mr__strdup(i < s->ncov ? s->cov[i].name : s->inter[i - s->ncov].name[k])) == NULL)
+                return MR_ERR_NO_MEMORY;
+    }
+    return MR_OK;
+}
+
+static mr_status copy_lines(mr_fit *fit, const mr__spec *s)
+{
+    size_t i;
+    fit->model_line = mr__calloc(s->nlines + 1, sizeof *fit->model_line);
+    fit->model_origin = mr__calloc(s->nlines + 1, sizeof *fit->model_origin);
+    if (fit->model_line == NULL || fit->model_origin == NULL) return MR_ERR_NO_MEMORY;
+    for (i = 0; i < s->nlines; i++, fit->nmodel_lines++) {
+        fit->model_line[i] = mr__strdup(s->line[i]);
+        fit->model_origin[i] = dup_or_null(s->line_origin[i]);
+        if (fit->model_line[i] == NULL || (s->line_origin[i] != NULL && fit->model_origin[i] == NULL)) {
+            fit->nmodel_lines++; /* so that mr_fit_free frees this one too */
+            return MR_ERR_NO_MEMORY;
+        }
+    }
+    return MR_OK;
+}
+
 static mr_status copy_model(mr_fit *fit, const mr__run *r, mr__error *err)
 {
     const mr__spec *s = &r->f->spec;
@@ -185,12 +208,10 @@ static mr_status copy_model(mr_fit *fit, const mr__run *r, mr__error *err)
     fit->exposure = dup_or_null(s->exposure);
     fit->weight = dup_or_null(s->weight);
     fit->nterms = s->ncov + s->ninter;
-    fit->terms = mr__calloc(fit->nterms + 1, sizeof *fit->terms);
     fit->nfactors = r->bind.nfac;
     fit->factor = mr__calloc(fit->nfactors + 1, sizeof *fit->factor);
-    if (!fit->terms || !fit->factor) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    for (i = 0; i < fit->nterms; i++)
-        if ((fit->terms[i] = term_label(s, i)) == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    if (!fit->factor || copy_terms(fit, r) != MR_OK || copy_lines(fit, s) != MR_OK)
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     for (i = 0; i < fit->nfactors; i++) {
         const mr__factor *f = &r->fac[i];
         mr__fit_factor *o = &fit->factor[i];
@@ -253,7 +274,12 @@ static mr_status copy_run_info(mr_fit *fit, const mr__run *r, mr__error *err)
     fit->rows_per_second = fit->seconds > 0 ? (double)r->first.scan.nread * r->npasses / fit->seconds : 0;
     fit->pass_seconds = mr__malloc_array((size_t)r->npasses + 1, sizeof *fit->pass_seconds);
     fit->path = mr__strdup(r->display);
-    if (!fit->pass_seconds || !fit->path) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    fit->version = mr__strdup(MR_VERSION_STRING);
+    if (!fit->pass_seconds || !fit->path || !fit->version) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    /* standard input is kept in a file of our own: it has no identity */
+    fit->file_known = strcmp(r->path, "-") != 0;
+    fit->file_size = fit->file_known ? r->first.size : 0;
+    fit->file_mtime_ns = fit->file_known ? r->first.mtime_ns : 0;
     memcpy(fit->pass_seconds, r->pass_seconds, (size_t)r->npasses * sizeof *fit->pass_seconds);
     fit->npass_seconds = (size_t)r->npasses;
     fit->bytes = r->first.raw_bytes;
@@ -312,7 +338,8 @@ mr_status mr__build_fit(mr__run *r, mr_fit **out, mr__error *err)
     st = copy_model(fit, r, err);
     if (st == MR_OK) st = copy_run_info(fit, r, err);
     if (st == MR_OK) st = copy_data_summary(fit, r, err);
-    if (st == MR_OK) st = alloc_coefficients(fit, r->design.p, err);
+    if (st == MR_OK && mr__fit_alloc_coefficients(fit, r->design.p) != MR_OK)
+        st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     if (st == MR_OK) st = set_coefficients(fit, r, err);
     if (st != MR_OK) {
         mr_fit_free(fit);

@@ -28,6 +28,7 @@ int openblas_get_num_threads(void);
 #include "accum/pass.h"
 #include "common/alloc.h"
 #include "common/clock.h"
+#include "common/utf8.h"
 #include "family/family.h"
 #include "fit/fit.h"
 #include "fit/fitter.h"
@@ -822,7 +823,8 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
     r.read_path = path;
     r.spool_fd = -1;
     r.t0 = mr__seconds_now();
-    snprintf(r.display, sizeof r.display, "%s", strcmp(path, "-") == 0 ? "<stdin>" : path);
+    mr__utf8_mend_cut(r.display, sizeof r.display,
+                      snprintf(r.display, sizeof r.display, "%s", strcmp(path, "-") == 0 ? "<stdin>" : path));
     r.nthreads = f->threads > 0 ? f->threads : online_cpus();
     r.dcfg.collapse = collapse_mode(&r);
     r.dcfg.collapse_abandoned = &r.collapse_abandoned;

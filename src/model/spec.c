@@ -7,6 +7,7 @@
 #include <string.h>
 
 #include "common/alloc.h"
+#include "common/utf8.h"
 #include "family/family.h"
 #include "model/spec.h"
 
@@ -48,6 +49,12 @@ void mr__spec_release(mr__spec *s)
     for (i = 0; i < s->ninter; i++)
         for (k = 0; k < s->inter[i].n; k++) mr__free(s->inter[i].name[k]);
     mr__free(s->inter);
+    for (i = 0; i < s->nlines; i++) {
+        mr__free(s->line[i]);
+        mr__free(s->line_origin[i]);
+    }
+    mr__free(s->line);
+    mr__free(s->line_origin);
     mr__spec_init(s);
 }
 
@@ -229,13 +236,36 @@ static mr_status apply_words(mr__spec *s, const words *ws, const char *origin, m
     return mr__fail(err, MR_ERR_USAGE, "%s: unknown directive '%s'", origin, d);
 }
 
+/* Keeps the line as given, less its line end; the two arrays grow
+ * together (caplines counts both). */
+static mr_status keep_line(mr__spec *s, const char *line, const char *origin, mr__error *err)
+{
+    size_t n = strlen(line), cap = s->caplines;
+    char *text, *from = NULL;
+    if (n > 0 && line[n - 1] == '\n') n--;
+    if (n > 0 && line[n - 1] == '\r') n--;
+    if (mr__reserve((void **)&s->line, &cap, s->nlines + 1, sizeof *s->line) != 0 ||
+        mr__reserve((void **)&s->line_origin, &s->caplines, s->nlines + 1, sizeof *s->line_origin) != 0)
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    text = mr__strndup(line, n);
+    if (origin != NULL) from = mr__strdup(origin);
+    if (text == NULL || (origin != NULL && from == NULL)) {
+        mr__free(text);
+        mr__free(from);
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    }
+    s->line[s->nlines] = text;
+    s->line_origin[s->nlines++] = from;
+    return MR_OK;
+}
+
 mr_status mr__spec_line(mr__spec *s, const char *line, const char *origin, mr__error *err)
 {
     words ws;
-    if (origin == NULL) origin = "model";
-    MR__TRY(split_words(line, &ws, origin, err));
-    if (ws.n == 0) return MR_OK;
-    return apply_words(s, &ws, origin, err);
+    const char *where = origin != NULL ? origin : "model";
+    MR__TRY(split_words(line, &ws, where, err));
+    if (ws.n > 0) MR__TRY(apply_words(s, &ws, where, err));
+    return keep_line(s, line, origin, err);
 }
 
 mr_status mr__spec_file(mr__spec *s, const char *path, mr__error *err)
@@ -247,7 +277,7 @@ mr_status mr__spec_file(mr__spec *s, const char *path, mr__error *err)
     if (fp == NULL) return mr__fail(err, MR_ERR_IO, "%s: cannot open model file: %s", path, strerror(errno));
     while (st == MR_OK && fgets(line, sizeof line, fp) != NULL) {
         lineno++;
-        snprintf(origin, sizeof origin, "%s:%lu", path, lineno);
+        mr__utf8_mend_cut(origin, sizeof origin, snprintf(origin, sizeof origin, "%s:%lu", path, lineno));
         if (strlen(line) > MAX_LINE) {
             st = mr__fail(err, MR_ERR_USAGE, "%s: line too long", origin);
             break;

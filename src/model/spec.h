@@ -32,6 +32,11 @@ typedef struct mr__spec {
     size_t ncov, capcov;
     mr__interaction *inter;
     size_t ninter, capinter;
+    /* Every line applied, in order and as given (without its line end),
+     * with its origin (NULL if none): what a saved fit needs to rebuild
+     * the model. */
+    char **line, **line_origin;
+    size_t nlines, caplines;
 } mr__spec;
 
 void mr__spec_init(mr__spec *s);

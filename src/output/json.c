@@ -12,130 +12,230 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <time.h>
 #include <unistd.h>
 
 #include "common/alloc.h"
+#include "common/utf8.h"
 #include "family/family.h"
 #include "fit/fit.h"
+#include "output/json_schema.h"
+#include "output/json_text.h"
 
-#define FORMAT_VERSION 1
+/* The walk over json_schema.c's tables.  jansson's constructors return
+ * NULL only when out of memory (text never reaches them other than as
+ * well-formed UTF-8, numbers only finite): a NULL anywhere comes up to
+ * the root, and means exactly that. */
+
+static json_t *append(json_t *a, json_t *v)
+{
+    if (a != NULL && json_array_append_new(a, v) == 0) return a;
+    if (a == NULL) json_decref(v);
+    json_decref(a);
+    return NULL;
+}
+
+/* Sets o[key] = v (stolen); the key is text, escaped as every text is. */
+static json_t *put(json_t *o, const char *key, json_t *v)
+{
+    char *k = o != NULL && v != NULL ? mr__json_escape(key) : NULL;
+    int ok = k != NULL && json_object_set_new(o, k, v) == 0;
+    if (k == NULL) json_decref(v);
+    mr__free(k);
+    if (ok) return o;
+    json_decref(o);
+    return NULL;
+}
 
 /* NaN and infinities have no JSON spelling: they become null. */
 static json_t *num(double x) { return isfinite(x) ? json_real(x) : json_null(); }
-static json_t *str_or_null(const char *s) { return s ? json_string(s) : json_null(); }
 
-static json_t *string_array(char *const *s, size_t n)
+static json_t *text_array(char *const *s, size_t n)
 {
     json_t *a = json_array();
     size_t i;
-    for (i = 0; i < n; i++) json_array_append_new(a, json_string(s[i]));
+    for (i = 0; a != NULL && i < n; i++) a = append(a, mr__json_text(s[i]));
     return a;
 }
 
-static json_t *input_object(const mr_fit *f)
+/* "2026-12-04T21:46:04.000000000Z" */
+static json_t *utc_time(int64_t ns)
 {
-    char sum[40], delim[2] = {f->delimiter, 0};
-    snprintf(sum, sizeof sum, "fnv1a64w:%016llx", (unsigned long long)f->checksum);
-    return json_pack("{s:s, s:I, s:I, s:s, s:s, s:s, s:s}", "path", f->path, "bytes", (json_int_t)f->bytes,
-                     "decompressed_bytes", (json_int_t)f->decompressed_bytes, "compression", f->zstd ? "zstd" : "none",
-                     "checksum", sum, "delimiter", delim, "delimiter_source", f->delimiter_detected ? "detected" : "option");
+    char buf[64];
+    int64_t sec = ns / 1000000000, frac = ns % 1000000000;
+    time_t t;
+    struct tm tm;
+    if (frac < 0) sec--, frac += 1000000000;
+    t = (time_t)sec;
+    if (gmtime_r(&t, &tm) == NULL || strftime(buf, sizeof buf - 12, "%Y-%m-%dT%H:%M:%S", &tm) == 0)
+        return json_null();
+    snprintf(buf + strlen(buf), 12, ".%09dZ", (int)frac);
+    return json_string(buf);
 }
 
-static json_t *rows_object(const mr_fit *f)
+static const char *term_kind(const mr_fit *f, const mr__fit_term *t)
 {
-    json_t *missing = json_object();
-    size_t i;
-    for (i = 0; i < f->nmissing; i++) json_object_set_new(missing, f->missing_name[i], json_integer((json_int_t)f->missing_count[i]));
-    return json_pack("{s:I, s:I, s:I, s:I, s:I, s:o, s:o}", "read", (json_int_t)f->rows_read, "used",
-                     (json_int_t)f->rows_used, "left_out", (json_int_t)(f->rows_read - f->rows_used), "bad",
-                     (json_int_t)f->rows_bad, "zero_weight", (json_int_t)f->zero_weight, "missing_by_column", missing,
-                     "bad_examples", string_array(f->bad_example, f->nbad_examples));
+    if (t->nparts > 1) return "interaction";
+    return mr__fit_find_factor(f, t->part[0]) >= 0 ? "factor" : "numeric";
 }
 
-static json_t *model_object(const mr_fit *f)
-{
-    json_t *factors = json_object();
-    size_t i;
-    for (i = 0; i < f->nfactors; i++)
-        json_object_set_new(factors, f->factor[i].name,
-                            json_pack("{s:s, s:o}", "reference", f->factor[i].reference, "levels",
-                                      string_array(f->factor[i].level, f->factor[i].nlevels)));
-    return json_pack("{s:s, s:o, s:s, s:s, s:o, s:o, s:o, s:b, s:s, s:o, s:o}", "outcome", f->outcome, "trials",
-                     str_or_null(f->trials), "family", mr__family_name((mr_family)f->family), "link",
-                     mr__link_name((mr_link)f->link), "offset", str_or_null(f->offset), "exposure",
-                     str_or_null(f->exposure), "weight", str_or_null(f->weight), "intercept", f->intercept,
-                     "dispersion", f->dispersion_estimated ? "estimate" : "fixed", "terms",
-                     string_array(f->terms, f->nterms), "factors", factors);
-}
-
-static json_t *options_object(const mr_fit *f)
-{
-    return json_pack("{s:i, s:I, s:o, s:i, s:o, s:b, s:b, s:s}", "threads", f->threads, "buffer_size",
-                     (json_int_t)f->buffer_size, "tolerance", num(f->tolerance), "max_passes", f->max_passes, "level",
-                     num(f->level), "in_memory", f->in_memory, "cache", f->cached, "on_bad_row",
-                     f->skip_bad ? "skip" : "fail");
-}
-
-static json_t *convergence_object(const mr_fit *f)
-{
-    json_t *ps = json_array();
-    size_t i;
-    for (i = 0; i < f->npass_seconds; i++) json_array_append_new(ps, num(f->pass_seconds[i]));
-    return json_pack("{s:b, s:s, s:i, s:i, s:o, s:i, s:b, s:i, s:i, s:i, s:o, s:o, s:o, s:o}", "converged", f->converged,
-                     "criterion", f->by_decrement ? "newton decrement" : "deviance change", "iterations",
-                     f->iterations, "passes", f->passes, "relative_change", num(f->rel_change),
-                     "step_halvings", f->halvings, "warm_start", f->warm_start, "warm_start_iterations",
-                     f->warm_iterations, "warm_start_blocks", f->warm_blocks, "warm_start_polish_blocks",
-                     f->warm_polish_blocks, "collapsed_patterns",
-                     f->patterns ? json_integer((json_int_t)f->patterns) : json_null(), "seconds", num(f->seconds),
-                     "pass_seconds", ps, "rows_per_second", num(f->rows_per_second));
-}
-
-static json_t *coefficient_object(const mr_fit *f, size_t j, int ratio)
-{
-    json_t *c = json_pack("{s:s, s:b, s:o, s:o, s:o, s:o, s:o, s:o}", "name", f->name[j], "aliased", f->aliased[j],
-                          "estimate", num(f->beta[j]), "std_error", num(f->se[j]), "statistic", num(f->stat[j]),
-                          "p_value", num(f->pval[j]), "ci_low", num(f->lo[j]), "ci_high", num(f->hi[j]));
-    if (ratio) {
-        json_object_set_new(c, "ratio", num(exp(f->beta[j])));
-        json_object_set_new(c, "ratio_ci_low", num(exp(f->lo[j])));
-        json_object_set_new(c, "ratio_ci_high", num(exp(f->hi[j])));
-    }
-    return c;
-}
-
-static json_t *fit_object(const mr_fit *f)
-{
-    return json_pack("{s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:I, s:I}", "deviance", num(f->deviance),
-                     "df_residual", num(f->df_residual), "null_deviance", num(f->null_deviance), "df_null",
-                     num(f->df_null), "pearson_chi2", num(f->pearson), "dispersion", num(f->dispersion),
-                     "log_likelihood", num(f->loglik), "aic", num(f->aic), "bic", num(f->bic), "rank",
-                     (json_int_t)f->rank, "n", (json_int_t)f->n);
-}
-
-static json_t *fit_to_json(const mr_fit *f)
+/* A derived field, or NULL with *skip set when it is not written. */
+static json_t *derived(const mr_fit *f, int which, const void *base, size_t j, int *skip)
 {
     const char *ratio = mr__fit_ratio_label(f);
-    json_t *coefs = json_array(), *cov = json_array(), *root;
-    size_t i, j;
-    for (j = 0; j < f->p; j++) json_array_append_new(coefs, coefficient_object(f, j, ratio != NULL));
-    for (i = 0; i < f->p; i++) {
-        json_t *row = json_array();
-        for (j = 0; j < f->p; j++) json_array_append_new(row, num(f->cov[j * f->p + i]));
-        json_array_append_new(cov, row);
+    *skip = 0;
+    switch (which) {
+    case MR__JD_FORMAT: return json_string(MR__JSON_FORMAT);
+    case MR__JD_FORMAT_VERSION: return json_integer(MR__JSON_FORMAT_VERSION);
+    case MR__JD_LEFT_OUT: return json_integer((json_int_t)(f->rows_read - f->rows_used));
+    case MR__JD_STATISTIC: return json_string(mr__fit_statistic_name(f));
+    case MR__JD_RATIO_LABEL: return ratio ? json_string(ratio) : json_null();
+    case MR__JD_MODIFIED: return utc_time(f->file_mtime_ns);
+    case MR__JD_TERM_KIND: return json_string(term_kind(f, base));
     }
-    root = json_pack("{s:s, s:i, s:s, s:o, s:o, s:o, s:o, s:o, s:s, s:o, s:o, s:o, s:o, s:o}", "format",
-                     "millrace-fit", "format_version", FORMAT_VERSION, "millrace_version", MR_VERSION_STRING, "input",
-                     input_object(f), "rows", rows_object(f), "model", model_object(f), "options", options_object(f),
-                     "convergence", convergence_object(f), "statistic", mr__fit_statistic_name(f), "ratio_label",
-                     str_or_null(ratio), "coefficients", coefs, "fit", fit_object(f), "covariance", cov, "warnings",
-                     string_array(f->warning, f->nwarnings));
-    return root;
+    *skip = ratio == NULL;
+    if (*skip) return NULL;
+    switch (which) {
+    case MR__JD_RATIO: return num(exp(f->beta[j]));
+    case MR__JD_RATIO_LOW: return num(exp(f->lo[j]));
+    default: return num(exp(f->hi[j]));
+    }
+}
+
+/* The levels of factor `fac` that have columns in term t. */
+static json_t *levels_used(const mr__fit_factor *fac, const mr__fit_term *t)
+{
+    json_t *a = json_array();
+    size_t l;
+    for (l = 0; a != NULL && l < fac->nlevels; l++)
+        if (t->full || strcmp(fac->level[l], fac->reference) != 0) a = append(a, mr__json_text(fac->level[l]));
+    return a;
+}
+
+static json_t *term_columns(const mr_fit *f, const mr__fit_term *t)
+{
+    json_t *a = json_array();
+    size_t k;
+    for (k = 0; a != NULL && k < t->nparts; k++) {
+        long fi = mr__fit_find_factor(f, t->part[k]);
+        json_t *c = json_object();
+        c = put(c, "name", mr__json_text(t->part[k]));
+        c = put(c, "type", json_string(fi >= 0 ? "factor" : "numeric"));
+        if (fi >= 0) {
+            c = put(c, "reference", mr__json_text(f->factor[fi].reference));
+            c = put(c, "levels", levels_used(&f->factor[fi], t));
+        }
+        a = append(a, c);
+    }
+    return a;
+}
+
+static json_t *covariance(const mr_fit *f)
+{
+    json_t *cov = json_array();
+    size_t i, j;
+    for (i = 0; cov != NULL && i < f->p; i++) {
+        json_t *row = json_array();
+        for (j = 0; row != NULL && j < f->p; j++) row = append(row, num(f->cov[j * f->p + i]));
+        cov = append(cov, row);
+    }
+    return cov;
+}
+
+static json_t *special(const mr_fit *f, int which, const void *base)
+{
+    json_t *o;
+    size_t i;
+    if (which == MR__JS_COVARIANCE) return covariance(f);
+    if (which == MR__JS_TERM_COLUMNS) return term_columns(f, base);
+    o = json_object();
+    for (i = 0; o != NULL && i < f->nmissing; i++)
+        o = put(o, f->missing_name[i], json_integer((json_int_t)f->missing_count[i]));
+    return o;
+}
+
+static json_t *scalar(const mr__jfield *fl, const void *v)
+{
+    char buf[40];
+    switch (fl->kind) {
+    case MR__J_INT: return json_integer(*(const int *)v);
+    case MR__J_SIZE:
+    case MR__J_COUNT_OR_NULL:
+        if (fl->kind == MR__J_COUNT_OR_NULL && *(const size_t *)v == 0) return json_null();
+        return json_integer((json_int_t) * (const size_t *)v);
+    case MR__J_U64: return json_integer((json_int_t) * (const uint64_t *)v);
+    case MR__J_I64: return json_integer((json_int_t) * (const int64_t *)v);
+    case MR__J_REAL: return num(*(const double *)v);
+    case MR__J_BOOL: return json_boolean(*(const int *)v);
+    case MR__J_TEXT:
+    case MR__J_TEXT_OR_NULL: return mr__json_text(*(char *const *)v);
+    case MR__J_CHOICE: return json_string(*(const int *)v ? fl->yes : fl->no);
+    case MR__J_FAMILY: return json_string(mr__family_name((mr_family) * (const int *)v));
+    case MR__J_LINK: return json_string(mr__link_name((mr_link) * (const int *)v));
+    case MR__J_CHECKSUM:
+        snprintf(buf, sizeof buf, "fnv1a64w:%016llx", (unsigned long long)*(const uint64_t *)v);
+        return json_string(buf);
+    default: /* MR__J_CHAR */
+        buf[0] = *(const char *)v;
+        buf[1] = '\0';
+        return mr__json_text(buf);
+    }
+}
+
+static json_t *object(const mr_fit *f, const mr__jfield *fields, const void *base, size_t index);
+
+static json_t *array_of(const mr_fit *f, const mr__jfield *fl, const void *base)
+{
+    size_t n = *(const size_t *)((const char *)base + fl->count), i;
+    const char *elems = *(char *const *)((const char *)base + fl->at);
+    json_t *a = fl->kind == MR__J_KEYED ? json_object() : json_array();
+    for (i = 0; a != NULL && i < n; i++) {
+        if (fl->kind == MR__J_RECORDS) a = append(a, object(f, fl->sub, base, i));
+        else if (fl->kind == MR__J_STRUCTS) a = append(a, object(f, fl->sub, elems + i * fl->size, 0));
+        else if (fl->kind == MR__J_KEYED)
+            a = put(a, *(char *const *)(elems + i * fl->size + fl->key_at), object(f, fl->sub, elems + i * fl->size, 0));
+        else if (fl->kind == MR__J_REALS) a = append(a, num(((const double *)elems)[i]));
+    }
+    return a;
+}
+
+static json_t *value(const mr_fit *f, const mr__jfield *fl, const void *base, size_t index, int *skip)
+{
+    const char *b = base;
+    *skip = 0;
+    switch (fl->kind) {
+    case MR__J_DERIVED: return derived(f, fl->which, base, index, skip);
+    case MR__J_SPECIAL: return special(f, fl->which, base);
+    case MR__J_OBJECT: return object(f, fl->sub, base, index);
+    case MR__J_OBJECT_OR_NULL: return *(const int *)(b + fl->count) ? object(f, fl->sub, base, index) : json_null();
+    case MR__J_TEXTS: return text_array(*(char *const *const *)(b + fl->at), *(const size_t *)(b + fl->count));
+    case MR__J_REALS:
+    case MR__J_RECORDS:
+    case MR__J_STRUCTS:
+    case MR__J_KEYED: return array_of(f, fl, base);
+    default: return scalar(fl, mr__jfield_slot(fl, base, index));
+    }
+}
+
+static json_t *object(const mr_fit *f, const mr__jfield *fields, const void *base, size_t index)
+{
+    json_t *o = json_object();
+    const mr__jfield *fl;
+    for (fl = fields; o != NULL && fl->key != NULL; fl++) {
+        int skip;
+        json_t *v = value(f, fl, base, index, &skip);
+        if (skip) continue;
+        if (v == NULL || json_object_set_new(o, fl->key, v) != 0) {
+            json_decref(o);
+            o = NULL;
+        }
+    }
+    return o;
 }
 
 static void set_msg(char *msg, size_t cap, const char *fmt, const char *path, const char *why)
 {
-    if (cap > 0) snprintf(msg, cap, fmt, path, why);
+    if (cap > 0) mr__utf8_mend_cut(msg, cap, snprintf(msg, cap, fmt, path, why));
 }
 
 /* jansson hands its output over a few bytes at a time; written straight
@@ -217,7 +317,7 @@ static mr_status write_atomically(json_t *root, const char *path, char *msg, siz
 
 mr_status mr_fit_write_json(const mr_fit *fit, const char *path, char *msg, size_t msgcap)
 {
-    json_t *root = fit_to_json(fit);
+    json_t *root = object(fit, mr__json_fit_fields, fit, 0);
     mr_status st;
     if (msgcap > 0) msg[0] = '\0';
     if (root == NULL) {

@@ -64,7 +64,7 @@ static void section_model(mr__strbuf *b, const mr_fit *f)
     if (f->offset) mr__strbuf_printf(b, ", offset %s", f->offset);
     if (f->weight) mr__strbuf_printf(b, ", prior weight %s", f->weight);
     mr__strbuf_printf(b, "\n           terms:");
-    for (i = 0; i < f->nterms; i++) mr__strbuf_printf(b, "%s %s", i ? "," : "", f->terms[i]);
+    for (i = 0; i < f->nterms; i++) mr__strbuf_printf(b, "%s %s", i ? "," : "", f->term[i].label);
     if (f->nterms == 0) mr__strbuf_printf(b, " intercept only");
     mr__strbuf_printf(b, "\n");
     for (i = 0; i < f->nfactors; i++)

@@ -4,7 +4,7 @@
 # that every main path of the library runs at least once with a checker
 # watching: zstd and plain input, standard input, threads, in-memory mode,
 # rereads of a plain file by the block map,
-# both sample models, JSON output, and an error path.
+# both sample models, JSON output and reading it back, and an error path.
 set -u
 root=$(cd "$(dirname "$0")/../.." && pwd)
 MILLRACE=${MILLRACE:-$root/build/millrace}
@@ -35,6 +35,7 @@ printf 'y,x\n1,2\n3,zz\n' >"$tmp/bad.csv"
 expect "unparsable number is a format error" 4 $MILLRACE fit --outcome y --numeric x --quiet "$tmp/bad.csv"
 [ -s "$tmp/f.json" ] && grep -q '"format": "millrace-fit"' "$tmp/f.json" && { pass=$((pass + 1)); echo "ok json written"; } ||
     { fail=$((fail + 1)); echo "FAIL json written"; }
+expect "the saved fit read back" 0 $MILLRACE show "$tmp/f.json"
 # The checksum, recomputed from its documented definition (README, JSON
 # output) by an independent implementation.
 want=$(/usr/bin/python3 -c '

@@ -1,0 +1,181 @@
+#include <stddef.h>
+#include <stdint.h>
+
+#include "fit/fit.h"
+#include "output/json_schema.h"
+
+#define AT(m) offsetof(mr_fit, m)
+#define F(key, kind, m) {key, kind, AT(m), 0, 0, 0, 0, 0, NULL, NULL, NULL}
+#define CHOICE(key, m, yes, no) {key, MR__J_CHOICE, AT(m), 0, 0, 0, 0, 0, yes, no, NULL}
+#define LIST(key, kind, m, n) {key, kind, AT(m), AT(n), 0, 0, 0, 0, NULL, NULL, NULL}
+#define OBJECT(key, sub) {key, MR__J_OBJECT, 0, 0, 0, 0, 0, 0, NULL, NULL, sub}
+#define DERIVED(key, which) {key, MR__J_DERIVED, 0, 0, 0, 0, 0, which, NULL, NULL, NULL}
+#define SPECIAL(key, which) {key, MR__J_SPECIAL, 0, 0, 0, 0, 0, which, NULL, NULL, NULL}
+#define EACH(key, kind, m) {key, kind, AT(m), 0, 0, 0, 1, 0, NULL, NULL, NULL}
+#define END {NULL, MR__J_INT, 0, 0, 0, 0, 0, 0, NULL, NULL, NULL}
+
+static const mr__jfield file_fields[] = {
+    F("size", MR__J_U64, file_size),
+    F("mtime_ns", MR__J_I64, file_mtime_ns),
+    DERIVED("modified", MR__JD_MODIFIED),
+    END,
+};
+
+static const mr__jfield input_fields[] = {
+    F("path", MR__J_TEXT, path),
+    F("bytes", MR__J_U64, bytes),
+    F("decompressed_bytes", MR__J_U64, decompressed_bytes),
+    CHOICE("compression", zstd, "zstd", "none"),
+    F("checksum", MR__J_CHECKSUM, checksum),
+    F("delimiter", MR__J_CHAR, delimiter),
+    CHOICE("delimiter_source", delimiter_detected, "detected", "option"),
+    {"file", MR__J_OBJECT_OR_NULL, 0, AT(file_known), 0, 0, 0, 0, NULL, NULL, file_fields},
+    END,
+};
+
+static const mr__jfield rows_fields[] = {
+    F("read", MR__J_U64, rows_read),
+    F("used", MR__J_U64, rows_used),
+    DERIVED("left_out", MR__JD_LEFT_OUT),
+    F("bad", MR__J_U64, rows_bad),
+    F("incomplete", MR__J_U64, rows_incomplete),
+    F("zero_weight", MR__J_U64, zero_weight),
+    SPECIAL("missing_by_column", MR__JS_MISSING),
+    LIST("bad_examples", MR__J_TEXTS, bad_example, nbad_examples),
+    END,
+};
+
+static const mr__jfield factor_fields[] = {
+    {"reference", MR__J_TEXT, offsetof(mr__fit_factor, reference), 0, 0, 0, 0, 0, NULL, NULL, NULL},
+    {"levels", MR__J_TEXTS, offsetof(mr__fit_factor, level), offsetof(mr__fit_factor, nlevels), 0, 0, 0, 0, NULL,
+     NULL, NULL},
+    END,
+};
+
+static const mr__jfield term_fields[] = {
+    {"label", MR__J_TEXT, offsetof(mr__fit_term, label), 0, 0, 0, 0, 0, NULL, NULL, NULL},
+    DERIVED("kind", MR__JD_TERM_KIND),
+    {"coding", MR__J_CHOICE, offsetof(mr__fit_term, full), 0, 0, 0, 0, 0, "full", "treatment", NULL},
+    {"first_coefficient", MR__J_SIZE, offsetof(mr__fit_term, first), 0, 0, 0, 0, 0, NULL, NULL, NULL},
+    {"coefficients", MR__J_SIZE, offsetof(mr__fit_term, ncoef), 0, 0, 0, 0, 0, NULL, NULL, NULL},
+    SPECIAL("columns", MR__JS_TERM_COLUMNS),
+    END,
+};
+
+static const mr__jfield line_fields[] = {
+    EACH("origin", MR__J_TEXT_OR_NULL, model_origin),
+    EACH("text", MR__J_TEXT, model_line),
+    END,
+};
+
+static const mr__jfield model_fields[] = {
+    F("outcome", MR__J_TEXT, outcome),
+    F("trials", MR__J_TEXT_OR_NULL, trials),
+    F("family", MR__J_FAMILY, family),
+    F("link", MR__J_LINK, link),
+    F("offset", MR__J_TEXT_OR_NULL, offset),
+    F("exposure", MR__J_TEXT_OR_NULL, exposure),
+    F("weight", MR__J_TEXT_OR_NULL, weight),
+    F("intercept", MR__J_BOOL, intercept),
+    CHOICE("dispersion", dispersion_estimated, "estimate", "fixed"),
+    {"factors", MR__J_KEYED, AT(factor), AT(nfactors), sizeof(mr__fit_factor), offsetof(mr__fit_factor, name), 0, 0,
+     NULL, NULL, factor_fields},
+    {"terms", MR__J_STRUCTS, AT(term), AT(nterms), sizeof(mr__fit_term), 0, 0, 0, NULL, NULL, term_fields},
+    {"lines", MR__J_RECORDS, 0, AT(nmodel_lines), 0, 0, 0, 0, NULL, NULL, line_fields},
+    END,
+};
+
+static const mr__jfield options_fields[] = {
+    F("threads", MR__J_INT, threads),
+    F("buffer_size", MR__J_SIZE, buffer_size),
+    F("tolerance", MR__J_REAL, tolerance),
+    F("max_passes", MR__J_INT, max_passes),
+    F("level", MR__J_REAL, level),
+    F("in_memory", MR__J_BOOL, in_memory),
+    F("cache", MR__J_BOOL, cached),
+    CHOICE("on_bad_row", skip_bad, "skip", "fail"),
+    END,
+};
+
+static const mr__jfield convergence_fields[] = {
+    F("converged", MR__J_BOOL, converged),
+    CHOICE("criterion", by_decrement, "newton decrement", "deviance change"),
+    F("iterations", MR__J_INT, iterations),
+    F("passes", MR__J_INT, passes),
+    F("relative_change", MR__J_REAL, rel_change),
+    F("step_halvings", MR__J_INT, halvings),
+    F("warm_start", MR__J_BOOL, warm_start),
+    F("warm_start_iterations", MR__J_INT, warm_iterations),
+    F("warm_start_blocks", MR__J_INT, warm_blocks),
+    F("warm_start_polish_blocks", MR__J_INT, warm_polish_blocks),
+    F("collapsed_patterns", MR__J_COUNT_OR_NULL, patterns),
+    F("seconds", MR__J_REAL, seconds),
+    LIST("pass_seconds", MR__J_REALS, pass_seconds, npass_seconds),
+    F("rows_per_second", MR__J_REAL, rows_per_second),
+    END,
+};
+
+static const mr__jfield coefficient_fields[] = {
+    EACH("name", MR__J_TEXT, name),
+    EACH("aliased", MR__J_BOOL, aliased),
+    EACH("estimate", MR__J_REAL, beta),
+    EACH("std_error", MR__J_REAL, se),
+    EACH("statistic", MR__J_REAL, stat),
+    EACH("p_value", MR__J_REAL, pval),
+    EACH("ci_low", MR__J_REAL, lo),
+    EACH("ci_high", MR__J_REAL, hi),
+    DERIVED("ratio", MR__JD_RATIO),
+    DERIVED("ratio_ci_low", MR__JD_RATIO_LOW),
+    DERIVED("ratio_ci_high", MR__JD_RATIO_HIGH),
+    END,
+};
+
+static const mr__jfield statistics_fields[] = {
+    F("deviance", MR__J_REAL, deviance),
+    F("df_residual", MR__J_REAL, df_residual),
+    F("null_deviance", MR__J_REAL, null_deviance),
+    F("df_null", MR__J_REAL, df_null),
+    F("pearson_chi2", MR__J_REAL, pearson),
+    F("dispersion", MR__J_REAL, dispersion),
+    F("log_likelihood", MR__J_REAL, loglik),
+    F("aic", MR__J_REAL, aic),
+    F("bic", MR__J_REAL, bic),
+    F("rank", MR__J_SIZE, rank),
+    F("n", MR__J_U64, n),
+    END,
+};
+
+const mr__jfield mr__json_fit_fields[] = {
+    DERIVED("format", MR__JD_FORMAT),
+    DERIVED("format_version", MR__JD_FORMAT_VERSION),
+    F("millrace_version", MR__J_TEXT, version),
+    OBJECT("input", input_fields),
+    OBJECT("rows", rows_fields),
+    OBJECT("model", model_fields),
+    OBJECT("options", options_fields),
+    OBJECT("convergence", convergence_fields),
+    DERIVED("statistic", MR__JD_STATISTIC),
+    DERIVED("ratio_label", MR__JD_RATIO_LABEL),
+    {"coefficients", MR__J_RECORDS, 0, AT(p), 0, 0, 0, 0, NULL, NULL, coefficient_fields},
+    OBJECT("fit", statistics_fields),
+    SPECIAL("covariance", MR__JS_COVARIANCE),
+    LIST("warnings", MR__J_TEXTS, warning, nwarnings),
+    END,
+};
+
+size_t mr__jfield_unit(mr__jkind kind)
+{
+    switch (kind) {
+    case MR__J_TEXT:
+    case MR__J_TEXT_OR_NULL: return sizeof(char *);
+    case MR__J_REAL: return sizeof(double);
+    default: return sizeof(int); /* BOOL, INT: the only other indexed kinds */
+    }
+}
+
+void *mr__jfield_slot(const mr__jfield *fl, const void *base, size_t index)
+{
+    char *p = (char *)base + fl->at;
+    if (!fl->indexed) return p;
+    return *(char **)p + index * mr__jfield_unit(fl->kind);
+}

@@ -1,0 +1,66 @@
+/* json_schema.h - the layout of the fit's JSON as data, so that the writer
+ * (json.c) and the reader (json_read.c) walk the same tables and a fit
+ * written, read and written again comes out byte for byte the same.
+ *
+ * A table is an array of fields ending with a NULL key, in the order they
+ * are written.  A field's value sits at offset `at` of a base struct (the
+ * fit, a factor or a term); for an `indexed` field `at` holds a pointer to
+ * an array and the value is its element [index] (the coefficients' columns,
+ * the model lines).  Derived fields are written from others and never
+ * read; special ones have code of their own in each file. */
+#ifndef MR_JSON_SCHEMA_H
+#define MR_JSON_SCHEMA_H
+
+#include <stddef.h>
+
+typedef enum mr__jkind {
+    MR__J_INT,           /* int */
+    MR__J_SIZE,          /* size_t, >= 0 */
+    MR__J_U64,           /* uint64_t, >= 0 */
+    MR__J_I64,           /* int64_t */
+    MR__J_REAL,          /* double; null stands for NaN (and infinities) */
+    MR__J_BOOL,          /* int, 0 or 1 */
+    MR__J_TEXT,          /* char *, never NULL (see json_text.h) */
+    MR__J_TEXT_OR_NULL,  /* char *, null when NULL */
+    MR__J_CHOICE,        /* int: 1 is the word `yes`, 0 the word `no` */
+    MR__J_FAMILY,        /* int, an mr_family by name */
+    MR__J_LINK,          /* int, an mr_link by name */
+    MR__J_CHECKSUM,      /* uint64_t as "fnv1a64w:" and 16 hex digits */
+    MR__J_CHAR,          /* char as a string of one byte */
+    MR__J_COUNT_OR_NULL, /* size_t; 0 is null */
+    MR__J_TEXTS,         /* char ** of `count` strings */
+    MR__J_REALS,         /* double * of `count` numbers */
+    MR__J_OBJECT,        /* the fields `sub`, on the same base */
+    MR__J_OBJECT_OR_NULL,/* as OBJECT, or null when the int at `count` is 0 */
+    MR__J_RECORDS,       /* an array of `count` objects of the indexed fields `sub` */
+    MR__J_STRUCTS,       /* an array of `count` structs of `size` bytes at `at`, each the fields `sub` */
+    MR__J_KEYED,         /* as STRUCTS, as an object keyed by each struct's text at `key_at` */
+    MR__J_DERIVED,       /* written from other fields (`which`), never read */
+    MR__J_SPECIAL        /* a layout of its own (`which`) */
+} mr__jkind;
+
+/* What derived and special fields are. */
+enum {
+    MR__JD_FORMAT, MR__JD_FORMAT_VERSION, MR__JD_LEFT_OUT, MR__JD_STATISTIC, MR__JD_RATIO_LABEL, MR__JD_RATIO,
+    MR__JD_RATIO_LOW, MR__JD_RATIO_HIGH, MR__JD_MODIFIED, MR__JD_TERM_KIND,
+    MR__JS_MISSING, MR__JS_COVARIANCE, MR__JS_TERM_COLUMNS
+};
+
+typedef struct mr__jfield {
+    const char *key;
+    mr__jkind kind;
+    size_t at, count, size, key_at;
+    int indexed, which;
+    const char *yes, *no;
+    const struct mr__jfield *sub;
+} mr__jfield;
+
+/* The whole fit, from "format" to "warnings". */
+extern const mr__jfield mr__json_fit_fields[];
+
+/* Bytes of one element of an indexed field of this kind. */
+size_t mr__jfield_unit(mr__jkind kind);
+/* Where a field's value is in `base` (element `index` when indexed). */
+void *mr__jfield_slot(const mr__jfield *fl, const void *base, size_t index);
+
+#endif
