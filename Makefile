@@ -64,11 +64,12 @@ LIB_OBJ  := $(LIB_SRC:%.c=$(B)/%.o)
 ASAN_OBJ := $(LIB_SRC:%.c=$(B)/asan/%.o)
 TSAN_OBJ := $(LIB_SRC:%.c=$(B)/tsan/%.o)
 ALLOC_OBJ := $(LIB_SRC:%.c=$(B)/allocfail/%.o)
-UNIT_SRC := $(filter-out tests/check_alloc.c,$(wildcard tests/check_*.c))
+IOFAIL_OBJ := $(LIB_SRC:%.c=$(B)/iofail/%.o)
+UNIT_SRC := $(filter-out tests/check_alloc.c tests/check_io.c,$(wildcard tests/check_*.c))
 UNIT_BIN := $(UNIT_SRC:tests/%.c=$(B)/tests/%)
 ASAN_UNIT_BIN := $(UNIT_SRC:tests/%.c=$(B)/asan/tests/%)
 
-.PHONY: all deps demo check unit asan asan-check tsan-check alloc-check valgrind-check cli-check ref-check lint bench clean
+.PHONY: all deps demo check unit asan asan-check tsan-check alloc-check io-fault-check valgrind-check cli-check ref-check lint bench clean
 
 all: $(B)/millrace $(B)/synth
 
@@ -109,6 +110,23 @@ $(B)/allocfail/check_alloc: tests/check_alloc.c $(B)/allocfail/libmillrace.a
 # Every allocation of a fit made to fail in turn (ASan watches for leaks).
 alloc-check: $(B)/allocfail/check_alloc
 	./$(B)/allocfail/check_alloc
+
+$(B)/iofail/%.o: %.c
+	@mkdir -p $(dir $@)
+	@$(if $(Q),echo "  CC iofail $<")
+	$(Q)$(CC) $(CPPFLAGS) -DMR_IO_FAILURE_TESTS $(CFLAGS) $(SAN) -c $< -o $@
+
+$(B)/iofail/libmillrace.a: $(IOFAIL_OBJ)
+	$(Q)rm -f $@ && ar rcs $@ $^
+
+$(B)/iofail/check_io: tests/check_io.c $(B)/iofail/libmillrace.a
+	$(Q)$(CC) $(CPPFLAGS) -DMR_IO_FAILURE_TESTS $(CHECK_CFLAGS) $(CFLAGS) $(SAN) -o $@ $< \
+	  $(B)/iofail/libmillrace.a $(CHECK_LIBS) $(LIBS)
+
+# Each read, write, sync, close and rename of a fit and its JSON made to
+# fail in turn, then each read and write made short (ASan watches for leaks).
+io-fault-check: $(B)/iofail/check_io
+	./$(B)/iofail/check_io
 
 $(B)/libmillrace.a: $(LIB_OBJ)
 	$(Q)rm -f $@ && ar rcs $@ $^
@@ -188,9 +206,9 @@ lint:
 	  echo "lint: BLAS or LAPACK called outside src/solve and src/fit (see above)"; exit 1; fi
 	@echo "lint: BLAS and LAPACK only in src/solve and src/fit"
 
-check: lint unit cli-check ref-check asan-check tsan-check alloc-check valgrind-check
-	@echo "test groups: lint, unit, cli, reference, asan+ubsan, tsan, allocation failures, valgrind"
-	@echo "check: 8 passed, 0 failed"
+check: lint unit cli-check ref-check asan-check tsan-check alloc-check io-fault-check valgrind-check
+	@echo "test groups: lint, unit, cli, reference, asan+ubsan, tsan, allocation failures, I/O failures, valgrind"
+	@echo "check: 9 passed, 0 failed"
 
 # ---- benchmarks (never a test) ------------------------------------------------
 bench: all
@@ -199,4 +217,4 @@ bench: all
 clean:
 	rm -rf $(B)
 
--include $(LIB_OBJ:.o=.d) $(ASAN_OBJ:.o=.d) $(TSAN_OBJ:.o=.d) $(ALLOC_OBJ:.o=.d) $(B)/src/cli/main.d
+-include $(LIB_OBJ:.o=.d) $(ASAN_OBJ:.o=.d) $(TSAN_OBJ:.o=.d) $(ALLOC_OBJ:.o=.d) $(IOFAIL_OBJ:.o=.d) $(B)/src/cli/main.d
