@@ -95,33 +95,27 @@ $(B)/tsan/libmillrace.a: $(TSAN_OBJ)
 $(B)/tsan/millrace: $(B)/tsan/src/cli/main.o $(B)/tsan/libmillrace.a
 	$(Q)$(CC) $(CFLAGS) -fsanitize=thread -o $@ $^ $(LIBS)
 
-$(B)/allocfail/%.o: %.c
-	@mkdir -p $(dir $@)
-	@$(if $(Q),echo "  CC fail $<")
-	$(Q)$(CC) $(CPPFLAGS) -DMR_ALLOC_FAILURE_TESTS $(CFLAGS) $(SAN) -c $< -o $@
+# A library built with one failure-test flag, under ASan, and the Check
+# suite that drives it: $(1) build folder, $(2) flag, $(3) suite.
+define failure_build
+$(B)/$(1)/%.o: %.c
+	@mkdir -p $$(dir $$@)
+	@$$(if $$(Q),echo "  CC $(1) $$<")
+	$$(Q)$$(CC) $$(CPPFLAGS) $(2) $$(CFLAGS) $$(SAN) -c $$< -o $$@
 
-$(B)/allocfail/libmillrace.a: $(ALLOC_OBJ)
-	$(Q)rm -f $@ && ar rcs $@ $^
+$(B)/$(1)/libmillrace.a: $$(LIB_SRC:%.c=$(B)/$(1)/%.o)
+	$$(Q)rm -f $$@ && ar rcs $$@ $$^
 
-$(B)/allocfail/check_alloc: tests/check_alloc.c $(B)/allocfail/libmillrace.a
-	$(Q)$(CC) $(CPPFLAGS) -DMR_ALLOC_FAILURE_TESTS $(CHECK_CFLAGS) $(CFLAGS) $(SAN) -o $@ $< \
-	  $(B)/allocfail/libmillrace.a $(CHECK_LIBS) $(LIBS)
+$(B)/$(1)/$(3): tests/$(3).c $(B)/$(1)/libmillrace.a
+	$$(Q)$$(CC) $$(CPPFLAGS) $(2) $$(CHECK_CFLAGS) $$(CFLAGS) $$(SAN) -o $$@ $$< \
+	  $(B)/$(1)/libmillrace.a $$(CHECK_LIBS) $$(LIBS)
+endef
+$(eval $(call failure_build,allocfail,-DMR_ALLOC_FAILURE_TESTS,check_alloc))
+$(eval $(call failure_build,iofail,-DMR_IO_FAILURE_TESTS,check_io))
 
 # Every allocation of a fit made to fail in turn (ASan watches for leaks).
 alloc-check: $(B)/allocfail/check_alloc
 	./$(B)/allocfail/check_alloc
-
-$(B)/iofail/%.o: %.c
-	@mkdir -p $(dir $@)
-	@$(if $(Q),echo "  CC iofail $<")
-	$(Q)$(CC) $(CPPFLAGS) -DMR_IO_FAILURE_TESTS $(CFLAGS) $(SAN) -c $< -o $@
-
-$(B)/iofail/libmillrace.a: $(IOFAIL_OBJ)
-	$(Q)rm -f $@ && ar rcs $@ $^
-
-$(B)/iofail/check_io: tests/check_io.c $(B)/iofail/libmillrace.a
-	$(Q)$(CC) $(CPPFLAGS) -DMR_IO_FAILURE_TESTS $(CHECK_CFLAGS) $(CFLAGS) $(SAN) -o $@ $< \
-	  $(B)/iofail/libmillrace.a $(CHECK_LIBS) $(LIBS)
 
 # Each read, write, sync, close and rename of a fit and its JSON made to
 # fail in turn, then each read and write made short (ASan watches for leaks).

@@ -302,7 +302,8 @@ MR_API mr_status mr_fit_write_json(const mr_fit *fit, const char *path, char *ms
 /* Checks, before a long run, that `path` can take an output by the rules
  * above, given the run's input files (`inputs`, `ninputs` of them; "-" is
  * standard input).  Creates nothing.  MR_OK, MR_ERR_USAGE (it is an
- * input), MR_ERR_IO (not a regular file, or cannot be examined) or
+ * input), MR_ERR_IO (not a regular file, a directory that does not exist
+ * or cannot take a new file, or it cannot be examined) or
  * MR_ERR_NO_MEMORY, with a message in `msg` (capacity `msgcap`, may be 0).
  * mr_fit_write_json checks again when it writes. */
 MR_API mr_status mr_output_check(const char *path, const char *const *inputs, size_t ninputs, char *msg,

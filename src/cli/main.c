@@ -267,7 +267,7 @@ static int apply_model(cli *c)
 static int stdout_failed(const char *what)
 {
     char msg[256];
-    snprintf(msg, sizeof msg, "cannot write %s to standard output: %s", what, strerror(errno));
+    snprintf(msg, sizeof msg, "cannot write %sto standard output: %s", what, strerror(errno));
     return fail(MR_ERR_IO, msg);
 }
 
@@ -282,7 +282,7 @@ static int publish(cli *c, mr_fit *fit)
      * each step's result counts. */
     written = fputs(report, stdout) != EOF && fflush(stdout) == 0 && !ferror(stdout);
     mr_free(report);
-    if (!written) return stdout_failed("the report");
+    if (!written) return stdout_failed("the report ");
     if (c->json_path && (st = mr_fit_write_json(fit, c->json_path, msg, sizeof msg)) != MR_OK) return fail(st, msg);
     return (int)mr_fit_status(fit);
 }
@@ -354,7 +354,7 @@ static int close_stdout(int rc)
 {
     int bad = ferror(stdout);
     if (fclose(stdout) != 0) bad = 1;
-    if (bad && (rc == 0 || rc == MR_ERR_NOT_CONVERGED)) return stdout_failed("the output");
+    if (bad && (rc == 0 || rc == MR_ERR_NOT_CONVERGED)) return stdout_failed("");
     return rc;
 }
 

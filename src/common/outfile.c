@@ -45,6 +45,7 @@ struct mr__outfile {
  * the rest counts how often it was freed, so that a handler can tell that
  * the name it copied was not rewritten meanwhile. */
 enum { SLOT_FREE = 0, SLOT_FILLING = 1, SLOT_ARMED = 2 };
+_Static_assert(ATOMIC_INT_LOCK_FREE == 2, "a signal handler reads the slots' state");
 #define TEMP_SLOTS 16
 static struct temp_slot {
     atomic_uint state;
@@ -184,6 +185,23 @@ static mr_status not_an_input(const char *path, const struct stat *out, const ch
     return MR_OK;
 }
 
+/* The directory must take a new file: found out before a long run rather
+ * than when its result is to be written. */
+static mr_status directory_writable(const char *path, const char *target, mr__error *err)
+{
+    size_t dirlen = dir_length(target);
+    char *dir = dirlen ? mr__strndup(target, dirlen) : mr__strdup(".");
+    struct stat st;
+    int e = 0;
+    if (dir == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    if (stat(dir, &st) != 0) e = errno;
+    else if (!S_ISDIR(st.st_mode)) e = ENOTDIR;
+    else if (faccessat(AT_FDCWD, dir, W_OK | X_OK, AT_EACCESS) != 0) e = errno;
+    if (e != 0) mr__fail(err, MR_ERR_IO, "%s: cannot create a file in %s: %s", path, dir, strerror(e));
+    mr__free(dir);
+    return e ? MR_ERR_IO : MR_OK;
+}
+
 /* Resolves and checks; on MR_OK *target is the file to replace. */
 static mr_status examine(const char *path, const char *const *inputs, size_t n, char **target, struct stat *st,
                          int *exists, mr__error *err)
@@ -195,6 +213,7 @@ static mr_status examine(const char *path, const char *const *inputs, size_t n, 
     MR__TRY(resolve_target(path, target, st, exists, err));
     s = *exists ? regular_or_absent(path, *target, st, err) : MR_OK;
     if (s == MR_OK && *exists) s = not_an_input(path, st, inputs, n, err);
+    if (s == MR_OK) s = directory_writable(path, *target, err);
     if (s != MR_OK) {
         mr__free(*target);
         *target = NULL;

@@ -30,8 +30,8 @@ typedef struct mr__outfile mr__outfile;
 
 /* Whether `path` may take an output, given the run's input files
  * (`inputs`, "-" for standard input): MR_OK, MR_ERR_USAGE (it is one of
- * the inputs) or MR_ERR_IO (it is not a regular file, or cannot be
- * examined).  Creates nothing. */
+ * the inputs) or MR_ERR_IO (it is not a regular file, its directory
+ * cannot take a new file, or it cannot be examined).  Creates nothing. */
 mr_status mr__outfile_check(const char *path, const char *const *inputs, size_t ninputs, mr__error *err);
 
 /* Checks as mr__outfile_check, sweeps stale temporary files and creates

@@ -52,6 +52,7 @@ mkdir adir
 refuse json_onto_directory 3 "is a directory" adir -- --json adir falls.csv
 ln -s fifo link-to-fifo
 refuse json_onto_link_to_fifo 3 "a FIFO" fifo -- --json link-to-fifo falls.csv
+refuse json_into_missing_directory 3 "cannot create a file in" falls.csv -- --json nodir/fit.json falls.csv
 if [ "$(id -u)" -eq 0 ]; then
     # a copy of /dev/null's node, so that a failure cannot harm the real one
     mknod nulldev c 1 3
