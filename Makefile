@@ -172,6 +172,7 @@ asan-check: asan $(B)/synth
 	@for t in $(ASAN_UNIT_BIN); do echo "== $$t (ASan+UBSan)"; MR_TEST_QUICK=1 ./$$t || exit 1; done
 	MILLRACE=$(B)/asan/millrace bash tests/cli/smoke.sh
 	MILLRACE=$(B)/asan/millrace bash tests/cli/threads.sh
+	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/outputs.sh
 
 # The threaded paths under ThreadSanitizer (OpenBLAS is not instrumented:
 # its internal races are not ours and are suppressed).

@@ -6,6 +6,7 @@
 # run left are swept.  The rules are those of millrace.h ("Output files")
 # and README ("Output files"); exit codes 2 (usage) and 3 (I/O).
 source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
+bin=${MILLRACE:-$bin} # make asan-check runs it on the ASan build
 
 cd "$tmp"
 cp "$root/samples/falls.csv" "$root/samples/falls.model" .
