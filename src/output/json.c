@@ -146,11 +146,10 @@ static int to_outfile(const char *buf, size_t size, void *data)
 
 static mr_status write_json(json_t *root, const char *path, const char *input, mr__error *err)
 {
+    const size_t flags = JSON_INDENT(1) | JSON_REAL_PRECISION(17) | JSON_PRESERVE_ORDER;
     json_sink sink = {NULL, err};
     MR__TRY(mr__outfile_open(&sink.out, path, &input, 1, err));
-    if (json_dump_callback(root, to_outfile, &sink, JSON_INDENT(1) | JSON_REAL_PRECISION(17) | JSON_PRESERVE_ORDER) !=
-            0 ||
-        to_outfile("\n", 1, &sink) != 0) {
+    if (json_dump_callback(root, to_outfile, &sink, flags) != 0 || to_outfile("\n", 1, &sink) != 0) {
         /* jansson fails on its own only for want of memory */
         if (err->status == MR_OK) mr__fail(err, MR_ERR_NO_MEMORY, "%s: out of memory writing the JSON", path);
         mr__outfile_abort(sink.out);
