@@ -93,6 +93,22 @@ if [ "$(id -u)" -eq 0 ] && getent passwd nobody > /dev/null; then
     [ "$owner" = nobody ] && ok existing_owner_kept || fail existing_owner_kept "owner $owner"
 fi
 
+# ---- a disk that fills up during the write (a 32 KiB file system; root only)
+mkdir small
+if [ "$(id -u)" -eq 0 ] && mount -t tmpfs -o size=32k tmpfs small 2> /dev/null; then
+    echo old > small/fit.json
+    "${fit[@]}" --json small/fit.json falls.csv > /dev/null 2> small.err
+    rc=$?
+    left=$(ls small | tr '\n' ' ')
+    content=$(cat small/fit.json)
+    umount small
+    if [ "$rc" -eq 3 ] && [ "$content" = old ] && [ "$left" = "fit.json " ] && grep -q 'No space' small.err; then
+        ok full_disk_keeps_old_output
+    else
+        fail full_disk_keeps_old_output "exit $rc, files: $left, content: ${content:0:20}, $(head -c 200 small.err)"
+    fi
+fi
+
 # ---- the report's write errors (larger than the stdio buffer)
 "${fit[@]}" falls.csv > /dev/full 2> full.err
 rc=$?
