@@ -69,11 +69,12 @@ LIB_OBJ  := $(LIB_SRC:%.c=$(B)/%.o)
 ASAN_OBJ := $(LIB_SRC:%.c=$(B)/asan/%.o)
 TSAN_OBJ := $(LIB_SRC:%.c=$(B)/tsan/%.o)
 ALLOC_OBJ := $(LIB_SRC:%.c=$(B)/allocfail/%.o)
-UNIT_SRC := $(filter-out tests/check_alloc.c,$(wildcard tests/check_*.c))
+IOFAIL_OBJ := $(LIB_SRC:%.c=$(B)/iofail/%.o)
+UNIT_SRC := $(filter-out tests/check_alloc.c tests/check_io.c,$(wildcard tests/check_*.c))
 UNIT_BIN := $(UNIT_SRC:tests/%.c=$(B)/tests/%)
 ASAN_UNIT_BIN := $(UNIT_SRC:tests/%.c=$(B)/asan/tests/%)
 
-.PHONY: all deps test-deps demo check check-groups unit asan asan-check tsan-check alloc-check valgrind-check cli-check ref-check lint bench clean
+.PHONY: all deps test-deps demo check check-groups unit asan asan-check tsan-check alloc-check io-fault-check valgrind-check cli-check ref-check lint bench clean
 
 all: $(B)/millrace $(B)/synth
 
@@ -99,21 +100,32 @@ $(B)/tsan/libmillrace.a: $(TSAN_OBJ)
 $(B)/tsan/millrace: $(B)/tsan/src/cli/main.o $(B)/tsan/libmillrace.a
 	$(Q)$(CC) $(CFLAGS) -fsanitize=thread -o $@ $^ $(LIBS)
 
-$(B)/allocfail/%.o: %.c
-	@mkdir -p $(dir $@)
-	@$(if $(Q),echo "  CC fail $<")
-	$(Q)$(CC) $(CPPFLAGS) -DMR_ALLOC_FAILURE_TESTS $(CFLAGS) $(SAN) -c $< -o $@
+# A library built with one failure-test flag, under ASan, and the Check
+# suite that drives it: $(1) build folder, $(2) flag, $(3) suite.
+define failure_build
+$(B)/$(1)/%.o: %.c
+	@mkdir -p $$(dir $$@)
+	@$$(if $$(Q),echo "  CC $(1) $$<")
+	$$(Q)$$(CC) $$(CPPFLAGS) $(2) $$(CFLAGS) $$(SAN) -c $$< -o $$@
 
-$(B)/allocfail/libmillrace.a: $(ALLOC_OBJ)
-	$(Q)rm -f $@ && ar rcs $@ $^
+$(B)/$(1)/libmillrace.a: $$(LIB_SRC:%.c=$(B)/$(1)/%.o)
+	$$(Q)rm -f $$@ && ar rcs $$@ $$^
 
-$(B)/allocfail/check_alloc: tests/check_alloc.c $(B)/allocfail/libmillrace.a
-	$(Q)$(CC) $(CPPFLAGS) -DMR_ALLOC_FAILURE_TESTS $(CHECK_CFLAGS) $(CFLAGS) $(SAN) -o $@ $< \
-	  $(B)/allocfail/libmillrace.a $(CHECK_LIBS) $(LIBS)
+$(B)/$(1)/$(3): tests/$(3).c $(B)/$(1)/libmillrace.a
+	$$(Q)$$(CC) $$(CPPFLAGS) $(2) $$(CHECK_CFLAGS) $$(CFLAGS) $$(SAN) -o $$@ $$< \
+	  $(B)/$(1)/libmillrace.a $$(CHECK_LIBS) $$(LIBS)
+endef
+$(eval $(call failure_build,allocfail,-DMR_ALLOC_FAILURE_TESTS,check_alloc))
+$(eval $(call failure_build,iofail,-DMR_IO_FAILURE_TESTS,check_io))
 
 # Every allocation of a fit made to fail in turn (ASan watches for leaks).
 alloc-check: $(B)/allocfail/check_alloc
 	./$(B)/allocfail/check_alloc
+
+# Each read, write, sync, close and rename of a fit and its JSON made to
+# fail in turn, then each read and write made short (ASan watches for leaks).
+io-fault-check: $(B)/iofail/check_io
+	./$(B)/iofail/check_io
 
 $(B)/libmillrace.a: $(LIB_OBJ)
 	$(Q)rm -f $@ && ar rcs $@ $^
@@ -168,6 +180,7 @@ asan-check: asan $(B)/synth
 	@for t in $(ASAN_UNIT_BIN); do echo "== $$t (ASan+UBSan)"; MR_TEST_QUICK=1 ./$$t || exit 1; done
 	MILLRACE=$(B)/asan/millrace bash tests/cli/smoke.sh
 	MILLRACE=$(B)/asan/millrace bash tests/cli/threads.sh
+	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/outputs.sh
 
 # The threaded paths under ThreadSanitizer (OpenBLAS is not instrumented:
 # its internal races are not ours and are suppressed).
@@ -202,9 +215,9 @@ lint:
 check: test-deps
 	@$(MAKE) --no-print-directory check-groups
 
-check-groups: lint unit cli-check ref-check asan-check tsan-check alloc-check valgrind-check
-	@echo "test groups: lint, unit, cli, reference, asan+ubsan, tsan, allocation failures, valgrind"
-	@echo "check: 8 passed, 0 failed"
+check-groups: lint unit cli-check ref-check asan-check tsan-check alloc-check io-fault-check valgrind-check
+	@echo "test groups: lint, unit, cli, reference, asan+ubsan, tsan, allocation failures, I/O failures, valgrind"
+	@echo "check: 9 passed, 0 failed"
 
 # ---- benchmarks (never a test) ------------------------------------------------
 bench: all
@@ -215,4 +228,4 @@ clean:
 
 include mk/install.mk
 
--include $(LIB_OBJ:.o=.d) $(ASAN_OBJ:.o=.d) $(TSAN_OBJ:.o=.d) $(ALLOC_OBJ:.o=.d) $(B)/src/cli/main.d
+-include $(LIB_OBJ:.o=.d) $(ASAN_OBJ:.o=.d) $(TSAN_OBJ:.o=.d) $(ALLOC_OBJ:.o=.d) $(IOFAIL_OBJ:.o=.d) $(B)/src/cli/main.d

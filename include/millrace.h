@@ -18,7 +18,8 @@
  *               fit at the same time.  Freed with mr_fit_free().
  *
  * Threads: a handle is used by one thread at a time; different handles are
- * independent.  The library keeps no mutable global state of its own.  It
+ * independent.  The library keeps no mutable global state of its own but
+ * the table of temporary output files ("Output files" below).  It
  * does set OpenBLAS to one thread (openblas_set_num_threads) while a run is
  * going, because its own workers already use every core and nested BLAS
  * threads would oversubscribe them: mr_fitter_run reads the count
@@ -292,9 +293,9 @@ MR_API double mr_fit_stat(const mr_fit *fit, mr_stat which);
 MR_API char *mr_fit_report(const mr_fit *fit, int digits);
 
 /* Writes everything in the fit as JSON (schema in README, "JSON output") to
- * `path`, atomically: a temporary file in the same directory, renamed over
- * `path` only when complete.  Returns MR_OK or MR_ERR_IO / MR_ERR_NO_MEMORY
- * with a message in `msg` (capacity `msgcap`, may be 0).
+ * `path` by the rules of "Output files" below.  The fit's own input file
+ * counts as an input.  Returns MR_OK, or MR_ERR_USAGE / MR_ERR_IO /
+ * MR_ERR_NO_MEMORY with a message in `msg` (capacity `msgcap`, may be 0).
  * Text is written losslessly whatever its encoding: a byte that is not part
  * of well-formed UTF-8 becomes the characters \xHH (two upper-case hex
  * digits) and a backslash becomes two; all other text is unchanged.
@@ -317,6 +318,55 @@ MR_API mr_status mr_fit_write_json(const mr_fit *fit, const char *path, char *ms
  * lacks a field or has one of the wrong type (the field is named, e.g.
  * 'model.terms[2].label'); MR_ERR_NO_MEMORY. */
 MR_API mr_status mr_fit_read_json(const char *path, mr_fit **out, char *msg, size_t msgcap);
+
+/* ------------------------------------------------------------------ */
+/* Output files.  Every file the library writes (mr_fit_write_json) obeys:
+ *
+ *  - A symbolic link at `path` is followed (to the end of a chain); its
+ *    target is what gets written, and the link is kept.
+ *  - An existing target that is not a regular file (a directory, a
+ *    device, a FIFO, a socket) is refused with MR_ERR_IO, never replaced.
+ *  - A target that is one of the run's inputs (the same device and inode,
+ *    however named; "-" stands for whatever standard input is) is refused
+ *    with MR_ERR_USAGE.
+ *  - The bytes go to a temporary file beside the target, named
+ *    TARGET.tmp-PID-XXXXXX (PID the writing process, XXXXXX random), which
+ *    is synced, renamed over the target, and the directory synced.  On any
+ *    failure before the rename (a full disk included) the temporary file
+ *    is removed and an earlier target is left as it was.  A failure to
+ *    sync the directory after the rename is MR_ERR_IO with the new,
+ *    complete file in place.
+ *  - A new file gets mode 0666 less the umask; a replaced file keeps its
+ *    mode, and its owner and group where the process may set them.
+ *  - Before a temporary file is created, older ones of the same target
+ *    (that exact pattern, that directory, regular files owned by this
+ *    user) whose PID names no running process are removed: what a killed
+ *    run left.  PIDs are those of this machine: a directory shared with
+ *    other machines or PID namespaces may see another host's temporary
+ *    file taken for a stale one (that run then fails with MR_ERR_IO; no
+ *    output is damaged).
+ *
+ * The library installs no signal handlers.  While a temporary file
+ * exists its name sits in a small fixed table (16 entries, process-wide;
+ * a write beyond that many at once still works but is not in it): the
+ * library's one piece of global state.                                  */
+
+/* Checks, before a long run, that `path` can take an output by the rules
+ * above, given the run's input files (`inputs`, `ninputs` of them; "-" is
+ * standard input).  Creates nothing.  MR_OK, MR_ERR_USAGE (it is an
+ * input), MR_ERR_IO (not a regular file, a directory that does not exist
+ * or cannot take a new file, or it cannot be examined) or
+ * MR_ERR_NO_MEMORY, with a message in `msg` (capacity `msgcap`, may be 0).
+ * mr_fit_write_json checks again when it writes. */
+MR_API mr_status mr_output_check(const char *path, const char *const *inputs, size_t ninputs, char *msg,
+                                 size_t msgcap);
+
+/* Unlinks every temporary file that outputs are being written to right
+ * now, by any thread.  Async-signal-safe: meant for a SIGINT/SIGTERM
+ * handler that then ends the process (a write it interrupts would fail
+ * with MR_ERR_IO at its rename, leaving no output).  Touches nothing
+ * else. */
+MR_API void mr_output_unlink_temps(void);
 
 /* Number of warnings and the i-th one (owned by the fit): possible
  * separation, aliased columns, non-convergence, ... */

@@ -21,6 +21,8 @@ long mr__alloc_failures_left(void);
 static const char *const falls_model[] = {"outcome admissions", "family poisson", "exposure person_years",
                                           "factor age_band ref=40-44", "factor sex", "numeric year",
                                           "interact age_band sex", NULL};
+static char json_path[64];
+
 static const char *const screening_model[] = {"outcome attended", "family binomial", "numeric age", "factor sex",
                                               "numeric bmi", NULL};
 
@@ -50,7 +52,10 @@ static int fit_failing_at(long n, const char *path, const char *const *model, in
     ck_assert_msg(st == MR_OK || st == MR_ERR_NO_MEMORY, "allocation %ld: status %d (%s)", n, (int)st,
                   mr_fitter_errmsg(f));
     if (st == MR_OK) {
-        char *report = mr_fit_report(fit, 6);
+        char *report = mr_fit_report(fit, 6), msg[256];
+        /* the JSON's own allocations (its writer's and the output file's) */
+        mr_status js = mr_fit_write_json(fit, json_path, msg, sizeof msg);
+        ck_assert_msg(js == MR_OK || js == MR_ERR_NO_MEMORY, "allocation %ld: JSON status %d (%s)", n, (int)js, msg);
         mr_free(report);
         mr_fit_free(fit);
     } else {
@@ -125,11 +130,18 @@ int main(void)
 {
     Suite *s = suite_create("alloc");
     TCase *tc = tcase_create("failures");
+    int fd, rc;
+    snprintf(json_path, sizeof json_path, "/tmp/millrace-alloc-XXXXXX");
+    fd = mkstemp(json_path); /* written over by each fit that succeeds */
+    if (fd < 0) return EXIT_FAILURE;
+    close(fd);
     tcase_set_timeout(tc, 600);
     tcase_add_test(tc, test_falls_collapsed);
     tcase_add_test(tc, test_falls_rows_cached);
     tcase_add_test(tc, test_screening_in_memory);
     tcase_add_test(tc, test_json_write_and_read);
     suite_add_tcase(s, tc);
-    return mr_check_run(s, 1); /* no fork: the leak checker sees the whole run */
+    rc = mr_check_run(s, 1); /* no fork: the leak checker sees the whole run */
+    unlink(json_path);
+    return rc;
 }

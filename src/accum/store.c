@@ -9,6 +9,7 @@
 #include "accum/store.h"
 #include "common/alloc.h"
 #include "common/fileio.h"
+#include "common/sysio.h"
 
 /* A kept block starts with its row count and the worker whose level
  * numbers it holds. */
@@ -251,7 +252,7 @@ static mr_status stage(mr__store *s, const mr__binding *b, mr__error *err)
 static mr_status write_all(int fd, const char *p, size_t n, uint64_t at, mr__error *err)
 {
     while (n > 0) {
-        ssize_t w = pwrite(fd, p, n, (off_t)at);
+        ssize_t w = mr__pwrite(fd, p, n, (off_t)at);
         if (w < 0 && errno == EINTR) continue;
         if (w <= 0) return mr__fail(err, MR_ERR_IO, "cannot write the cache file: %s", strerror(errno));
         p += w;

@@ -3,7 +3,9 @@
  * report and writes the JSON.  Exit codes are the library's status values
  * (see millrace.h and the README). */
 #define _POSIX_C_SOURCE 200809L
+#include <errno.h>
 #include <getopt.h>
+#include <signal.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -263,17 +265,72 @@ static int apply_model(cli *c)
     return 0;
 }
 
+static int stdout_failed(const char *what)
+{
+    char msg[256];
+    snprintf(msg, sizeof msg, "cannot write %sto standard output: %s", what, strerror(errno));
+    return fail(MR_ERR_IO, msg);
+}
+
+/* The report on standard output; 0 or the exit code of the failure. */
+static int print_report(const mr_fit *fit, int digits)
+{
+    char *report = mr_fit_report(fit, digits);
+    int written;
+    if (report == NULL) return fail(MR_ERR_NO_MEMORY, "out of memory writing the report");
+    /* A failed write past the stdio buffer is not remembered by fflush:
+     * each step's result counts. */
+    written = fputs(report, stdout) != EOF && fflush(stdout) == 0 && !ferror(stdout);
+    mr_free(report);
+    return written ? 0 : stdout_failed("the report ");
+}
+
 static int publish(cli *c, mr_fit *fit)
 {
     char msg[1024];
-    char *report = mr_fit_report(fit, c->digits);
     mr_status st;
-    if (report == NULL) return fail(MR_ERR_NO_MEMORY, "out of memory writing the report");
-    fputs(report, stdout);
-    mr_free(report);
-    if (fflush(stdout) != 0) return fail(MR_ERR_IO, "cannot write the report to standard output");
+    int rc = print_report(fit, c->digits);
+    if (rc != 0) return rc;
     if (c->json_path && (st = mr_fit_write_json(fit, c->json_path, msg, sizeof msg)) != MR_OK) return fail(st, msg);
     return (int)mr_fit_status(fit);
+}
+
+/* Refuses, before the fit, a JSON path that is the data or the model
+ * file or cannot take an output (the library checks again as it writes). */
+static int check_outputs(const cli *c, const char *data)
+{
+    const char *inputs[2] = {data, c->model_file};
+    char msg[1024];
+    mr_status st;
+    if (c->json_path == NULL) return 0;
+    st = mr_output_check(c->json_path, inputs, c->model_file ? 2 : 1, msg, sizeof msg);
+    return st == MR_OK ? 0 : fail(st, msg);
+}
+
+/* An interrupted run leaves no temporary output behind; the signal then
+ * ends the process as it would have. */
+static void on_fatal_signal(int sig)
+{
+    mr_output_unlink_temps();
+    signal(sig, SIG_DFL);
+    raise(sig);
+}
+
+static void clean_up_on_signals(void)
+{
+    static const int sigs[] = {SIGINT, SIGTERM, SIGHUP};
+    struct sigaction sa;
+    size_t i;
+    memset(&sa, 0, sizeof sa);
+    sa.sa_handler = on_fatal_signal;
+    sigemptyset(&sa.sa_mask);
+    for (i = 0; i < sizeof sigs / sizeof sigs[0]; i++) sigaddset(&sa.sa_mask, sigs[i]);
+    for (i = 0; i < sizeof sigs / sizeof sigs[0]; i++) {
+        struct sigaction old;
+        /* a signal the caller chose to ignore stays ignored (nohup) */
+        if (sigaction(sigs[i], NULL, &old) == 0 && old.sa_handler == SIG_IGN) continue;
+        sigaction(sigs[i], &sa, NULL);
+    }
 }
 
 static int run_fit(cli *c, int argc, char **argv)
@@ -288,6 +345,7 @@ static int run_fit(cli *c, int argc, char **argv)
     }
     if (optind != argc - 1) return usage_error("fit takes exactly one data file (or - for standard input)");
     if ((rc = apply_model(c)) != 0) return rc;
+    if ((rc = check_outputs(c, argv[optind])) != 0) return rc;
     if (!c->quiet && isatty(STDERR_FILENO)) mr_fitter_set_progress(c->fitter, show_progress, c);
     st = mr_fitter_run(c->fitter, argv[optind], &fit);
     if (c->progress_shown) fputs("\r\033[K", stderr);
@@ -301,10 +359,11 @@ static int run_fit(cli *c, int argc, char **argv)
 /* The report of a saved fit, as the fit printed it. */
 static int show_fit(int argc, char **argv)
 {
-    char msg[1024], *report;
+    char msg[1024];
     long long digits = 0;
     mr_fit *fit = NULL;
     mr_status st;
+    int rc;
     if (argc == 4 && strcmp(argv[1], "--digits") == 0) {
         if (parse_count(argv[2], &digits) != 0 || digits < 1 || digits > 17) return usage_error("--digits takes 1 to 17");
         argv += 2;
@@ -312,15 +371,22 @@ static int show_fit(int argc, char **argv)
     }
     if (argc != 2) return usage_error("show takes one fit saved with --json");
     if ((st = mr_fit_read_json(argv[1], &fit, msg, sizeof msg)) != MR_OK) return fail(st, msg);
-    report = mr_fit_report(fit, (int)digits);
+    rc = print_report(fit, (int)digits);
     mr_fit_free(fit);
-    if (report == NULL) return fail(MR_ERR_NO_MEMORY, "out of memory writing the report");
-    fputs(report, stdout);
-    mr_free(report);
-    return fflush(stdout) == 0 ? 0 : fail(MR_ERR_IO, "cannot write the report to standard output");
+    return rc;
 }
 
-int main(int argc, char **argv)
+/* What went to standard output counts only once it is out: a write that
+ * failed earlier or the last flush failing turns success into MR_ERR_IO. */
+static int close_stdout(int rc)
+{
+    int bad = ferror(stdout);
+    if (fclose(stdout) != 0) bad = 1;
+    if (bad && (rc == 0 || rc == MR_ERR_NOT_CONVERGED)) return stdout_failed("");
+    return rc;
+}
+
+static int dispatch(int argc, char **argv)
 {
     cli c;
     int rc;
@@ -344,4 +410,10 @@ int main(int argc, char **argv)
     free(c.model_origin);
     mr_fitter_free(c.fitter);
     return rc;
+}
+
+int main(int argc, char **argv)
+{
+    clean_up_on_signals();
+    return close_stdout(dispatch(argc, argv));
 }

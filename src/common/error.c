@@ -25,6 +25,11 @@ void mr__error_clear(mr__error *err)
     err->msg[0] = '\0';
 }
 
+void mr__error_export(const mr__error *err, char *msg, size_t cap)
+{
+    if (cap > 0) mr__utf8_mend_cut(msg, cap, snprintf(msg, cap, "%s", err->msg));
+}
+
 void mr__quote_value(char *out, size_t cap, const char *s, size_t len)
 {
     size_t i, o = 0, keep = len;

@@ -23,6 +23,10 @@ mr_status mr__fail(mr__error *err, mr_status status, const char *fmt, ...)
 
 void mr__error_clear(mr__error *err);
 
+/* Copies the message into a caller's buffer of `cap` bytes (the public
+ * calls that take msg, msgcap); cap may be 0. */
+void mr__error_export(const mr__error *err, char *msg, size_t cap);
+
 /* Copies at most `cap` bytes of a cell into `out` for quoting it in a
  * message, replacing control characters; always NUL terminates. */
 void mr__quote_value(char *out, size_t cap, const char *s, size_t len);

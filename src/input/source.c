@@ -8,6 +8,7 @@
 
 #include "common/alloc.h"
 #include "common/fileio.h"
+#include "common/sysio.h"
 #include "input/source.h"
 
 #define FNV_OFFSET 0xcbf29ce484222325ULL
@@ -108,7 +109,7 @@ static void absorb(mr__source *s, const char *p, size_t n)
 static mr_status tee(mr__source *s, const char *p, size_t n, mr__error *err)
 {
     while (n > 0) {
-        ssize_t w = write(s->tee_fd, p, n);
+        ssize_t w = mr__write(s->tee_fd, p, n);
         if (w < 0) {
             if (errno == EINTR) continue;
             return mr__fail(err, MR_ERR_IO, "cannot keep a copy of standard input: %s", strerror(errno));
@@ -125,7 +126,7 @@ static mr_status read_into(mr__source *s, char *buf, size_t cap, size_t *got, mr
 {
     ssize_t n;
     do {
-        n = read(s->fd, buf, cap);
+        n = mr__read(s->fd, buf, cap);
     } while (n < 0 && errno == EINTR);
     if (n < 0) return mr__fail(err, MR_ERR_IO, "%s: read error: %s", s->display, strerror(errno));
     *got = (size_t)n;

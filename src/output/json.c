@@ -2,21 +2,20 @@
  *
  * Built with jansson rather than by hand: later commands (scoring, run
  * comparison) read this file back, so quoting and number formatting must
- * be exactly right.  Written to a temporary file beside the target and
- * renamed over it only when complete, so a reader never sees half a file
- * and a failed run leaves any earlier file untouched. */
+ * be exactly right.  Written through common/outfile.c: a temporary file
+ * beside the target, renamed over it only when complete, so a reader never
+ * sees half a file and a failed run leaves any earlier file untouched. */
 #define _POSIX_C_SOURCE 200809L
-#include <errno.h>
 #include <jansson.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
-#include <unistd.h>
 
 #include "common/alloc.h"
-#include "common/utf8.h"
+#include "common/error.h"
+#include "common/outfile.h"
 #include "family/family.h"
 #include "fit/fit.h"
 #include "output/json_schema.h"
@@ -233,98 +232,41 @@ static json_t *object(const mr_fit *f, const mr__jfield *fields, const void *bas
     return o;
 }
 
-static void set_msg(char *msg, size_t cap, const char *fmt, const char *path, const char *why)
+typedef struct json_sink {
+    mr__outfile *out;
+    mr__error *err;
+} json_sink;
+
+static int to_outfile(const char *buf, size_t size, void *data)
 {
-    if (cap > 0) mr__utf8_mend_cut(msg, cap, snprintf(msg, cap, fmt, path, why));
+    json_sink *s = data;
+    return mr__outfile_write(s->out, buf, size, s->err) == MR_OK ? 0 : -1;
 }
 
-/* jansson hands its output over a few bytes at a time; written straight
- * to the descriptor that was one system call per token (about a million
- * for the covariance of a 1000-column fit), so it is gathered here. */
-typedef struct out_buffer {
-    int fd, failed;
-    size_t len;
-    char data[1 << 16];
-} out_buffer;
-
-static int flush_out(out_buffer *o)
+static mr_status write_json(json_t *root, const char *path, const char *input, mr__error *err)
 {
-    size_t done = 0;
-    while (done < o->len && !o->failed) {
-        ssize_t w = write(o->fd, o->data + done, o->len - done);
-        if (w < 0 && errno == EINTR) continue;
-        if (w < 0) o->failed = 1;
-        else done += (size_t)w;
+    const size_t flags = JSON_INDENT(1) | JSON_REAL_PRECISION(17) | JSON_PRESERVE_ORDER;
+    json_sink sink = {NULL, err};
+    MR__TRY(mr__outfile_open(&sink.out, path, &input, 1, err));
+    if (json_dump_callback(root, to_outfile, &sink, flags) != 0 || to_outfile("\n", 1, &sink) != 0) {
+        /* jansson fails on its own only for want of memory */
+        if (err->status == MR_OK) mr__fail(err, MR_ERR_NO_MEMORY, "%s: out of memory writing the JSON", path);
+        mr__outfile_abort(sink.out);
+        return err->status;
     }
-    o->len = 0;
-    return o->failed ? -1 : 0;
-}
-
-static int gather(const char *buf, size_t size, void *data)
-{
-    out_buffer *o = data;
-    while (size > 0) {
-        size_t n = sizeof o->data - o->len < size ? sizeof o->data - o->len : size;
-        memcpy(o->data + o->len, buf, n);
-        o->len += n;
-        buf += n;
-        size -= n;
-        if (o->len == sizeof o->data && flush_out(o) != 0) return -1;
-    }
-    return 0;
-}
-
-static int dump_to_fd(json_t *root, int fd, out_buffer *o)
-{
-    o->fd = fd;
-    o->failed = 0;
-    o->len = 0;
-    return json_dump_callback(root, gather, o, JSON_INDENT(1) | JSON_REAL_PRECISION(17) | JSON_PRESERVE_ORDER) == 0 &&
-           gather("\n", 1, o) == 0 && flush_out(o) == 0;
-}
-
-static mr_status write_atomically(json_t *root, const char *path, char *msg, size_t cap)
-{
-    size_t n = strlen(path);
-    char *tmp = mr__malloc(n + 16);
-    out_buffer *o = mr__malloc(sizeof *o);
-    int fd, ok;
-    if (tmp == NULL || o == NULL) {
-        mr__free(tmp);
-        mr__free(o);
-        return MR_ERR_NO_MEMORY;
-    }
-    memcpy(tmp, path, n);
-    memcpy(tmp + n, ".tmp-XXXXXX", 12);
-    fd = mkstemp(tmp);
-    if (fd < 0) {
-        set_msg(msg, cap, "%s: cannot create a temporary file beside it: %s", path, strerror(errno));
-        mr__free(tmp);
-        mr__free(o);
-        return MR_ERR_IO;
-    }
-    ok = dump_to_fd(root, fd, o) && fsync(fd) == 0;
-    ok = close(fd) == 0 && ok;
-    if (ok && rename(tmp, path) != 0) ok = 0;
-    if (!ok) {
-        set_msg(msg, cap, "%s: cannot write: %s", path, strerror(errno));
-        unlink(tmp);
-    }
-    mr__free(tmp);
-    mr__free(o);
-    return ok ? MR_OK : MR_ERR_IO;
+    return mr__outfile_commit(sink.out, err);
 }
 
 mr_status mr_fit_write_json(const mr_fit *fit, const char *path, char *msg, size_t msgcap)
 {
     json_t *root = object(fit, mr__json_fit_fields, fit, 0);
-    mr_status st;
-    if (msgcap > 0) msg[0] = '\0';
-    if (root == NULL) {
-        set_msg(msg, msgcap, "%s: %s", path, "out of memory building the JSON");
-        return MR_ERR_NO_MEMORY;
-    }
-    st = write_atomically(root, path, msg, msgcap);
+    mr__error err;
+    mr__error_clear(&err);
+    if (root == NULL)
+        mr__fail(&err, MR_ERR_NO_MEMORY, "%s: out of memory building the JSON", path);
+    else
+        write_json(root, path, strcmp(fit->path, "<stdin>") == 0 ? "-" : fit->path, &err);
     json_decref(root);
-    return st;
+    mr__error_export(&err, msg, msgcap);
+    return err.status;
 }

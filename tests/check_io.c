@@ -1,0 +1,188 @@
+/* check_io.c - every failing read, write, sync, close or rename ends cleanly.
+ *
+ * Built against a library compiled with MR_IO_FAILURE_TESTS (make
+ * io-fault-check, under ASan, whose leak checker runs when this process
+ * exits).  For n = 0, 1, 2, ... the n-th I/O call of a whole fit and its
+ * JSON output fails; the run must then end with MR_ERR_IO and a message,
+ * the JSON path must hold its earlier content or a whole new file (a
+ * failed sync of the directory comes after the rename), and no temporary
+ * file may be left.  Then the n-th read or write comes up short instead,
+ * as the kernel may do: the results must be the same bits as a run without
+ * any.  Source of truth: the API contract in millrace.h ("Output files",
+ * mr_fitter_run). */
+#define _POSIX_C_SOURCE 200809L
+#include <check.h>
+#include <dirent.h>
+#include <fcntl.h>
+#include <jansson.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#include "common/sysio.h"
+#include "millrace.h"
+#include "check_common.h"
+
+#define MAX_COEF 64
+
+static const char *const falls_model[] = {"outcome admissions", "family poisson", "exposure person_years",
+                                          "factor age_band ref=40-44", "factor sex", "numeric year",
+                                          "interact age_band sex", NULL};
+
+typedef struct scenario {
+    const char *path; /* "-": samples/falls.csv as standard input */
+    int no_cache, no_collapse;
+} scenario;
+
+static char dir[64], json_path[128];
+
+static void put_old_output(void)
+{
+    FILE *fp = fopen(json_path, "w");
+    ck_assert_ptr_nonnull(fp);
+    fputs("old\n", fp);
+    ck_assert_int_eq(fclose(fp), 0);
+}
+
+/* The earlier content, or a whole JSON fit: never anything in between. */
+static void assert_output_whole(long n)
+{
+    json_error_t e;
+    json_t *j = json_load_file(json_path, 0, &e);
+    if (j == NULL) {
+        char buf[8] = {0};
+        FILE *fp = fopen(json_path, "r");
+        ck_assert_ptr_nonnull(fp);
+        ck_assert_uint_le(fread(buf, 1, sizeof buf - 1, fp), 4);
+        fclose(fp);
+        ck_assert_msg(strcmp(buf, "old\n") == 0, "call %ld: the output is neither old nor whole", n);
+    } else {
+        ck_assert_str_eq(json_string_value(json_object_get(j, "format")), "millrace-fit");
+        json_decref(j);
+    }
+}
+
+static void assert_no_temporary(long n)
+{
+    DIR *d = opendir(dir);
+    struct dirent *e;
+    ck_assert_ptr_nonnull(d);
+    while ((e = readdir(d)) != NULL)
+        ck_assert_msg(strstr(e->d_name, ".tmp-") == NULL, "call %ld: %s left behind", n, e->d_name);
+    closedir(d);
+}
+
+static void use_sample_as_stdin(void)
+{
+    int fd = open("samples/falls.csv", O_RDONLY);
+    ck_assert_int_ge(fd, 0);
+    ck_assert_int_eq(dup2(fd, STDIN_FILENO), STDIN_FILENO);
+    close(fd);
+}
+
+/* One fit and its JSON with the plan (n, mode) armed; the status of the
+ * first step that failed, and the coefficients when none did. */
+static mr_status fit_and_write(const scenario *sc, long n, int mode, double *coef, char *msg, size_t cap)
+{
+    mr_fitter *f = mr_fitter_new();
+    mr_fit *fit = NULL;
+    mr_status st = MR_OK;
+    size_t i;
+    ck_assert_ptr_nonnull(f);
+    for (i = 0; falls_model[i]; i++) ck_assert_int_eq(mr_fitter_model_line(f, falls_model[i], "test"), MR_OK);
+    mr_fitter_set_int(f, MR_OPT_THREADS, 2);
+    mr_fitter_set_int(f, MR_OPT_BUFFER_SIZE, 16384); /* several reads a pass */
+    mr_fitter_set_int(f, MR_OPT_NO_CACHE, sc->no_cache);
+    mr_fitter_set_int(f, MR_OPT_NO_COLLAPSE, sc->no_collapse);
+    if (strcmp(sc->path, "-") == 0) use_sample_as_stdin();
+    mr__io_fail_after(n, mode);
+    st = mr_fitter_run(f, sc->path, &fit);
+    if (st != MR_OK) snprintf(msg, cap, "%s", mr_fitter_errmsg(f));
+    if (st == MR_OK) {
+        for (i = 0; i < mr_fit_ncoef(fit) && i < MAX_COEF; i++) coef[i] = mr_fit_coef(fit, i);
+        st = mr_fit_write_json(fit, json_path, msg, cap);
+    }
+    mr_fit_free(fit);
+    mr_fitter_free(f);
+    return st;
+}
+
+/* Returns 1 once n is past the last I/O call of the run. */
+static int run_failing_at(const scenario *sc, long n, int mode, const double *want)
+{
+    double coef[MAX_COEF];
+    char msg[1024] = "";
+    mr_status st;
+    int happened;
+    size_t i;
+    memset(coef, 0, sizeof coef);
+    put_old_output();
+    st = fit_and_write(sc, n, mode, coef, msg, sizeof msg);
+    happened = mr__io_failures_left() < 0;
+    mr__io_fail_after(-1, MR__IO_FAIL);
+    assert_no_temporary(n);
+    assert_output_whole(n);
+    if (mode == MR__IO_FAIL && happened) {
+        ck_assert_msg(st == MR_ERR_IO, "%s, call %ld failing: status %d (%s)", sc->path, n, (int)st, msg);
+        ck_assert_msg(msg[0] != '\0', "call %ld: no message", n);
+        return 0;
+    }
+    ck_assert_msg(st == MR_OK, "%s, call %ld %s: status %d (%s)", sc->path, n,
+                  happened ? "short" : "untouched", (int)st, msg);
+    for (i = 0; i < MAX_COEF && want != NULL; i++)
+        ck_assert_msg(same_bits(coef[i], want[i]), "call %ld short: coefficient %zu differs", n, i);
+    return !happened;
+}
+
+static void every_call(const scenario *sc)
+{
+    double want[MAX_COEF];
+    char msg[1024];
+    long n;
+    int mode;
+    memset(want, 0, sizeof want);
+    ck_assert_int_eq(fit_and_write(sc, -1, MR__IO_FAIL, want, msg, sizeof msg), MR_OK);
+    for (mode = MR__IO_FAIL; mode <= MR__IO_SHORT; mode++) {
+        for (n = 0; n < 100000; n++)
+            if (run_failing_at(sc, n, mode, mode == MR__IO_SHORT ? want : NULL)) break;
+        ck_assert_msg(n > 0 && n < 100000, "%s: %ld calls", sc->path, n);
+        printf("%s%s: %ld calls %s in turn\n", sc->path, sc->no_cache ? " (no cache)" : "", n,
+               mode == MR__IO_FAIL ? "failed" : "made short");
+    }
+}
+
+static const scenario cached = {"samples/falls.csv", 0, 1};
+static const scenario uncached = {"samples/falls.csv", 1, 1};
+static const scenario compressed = {"samples/falls.csv.zst", 0, 0};
+static const scenario standard_input = {"-", 0, 1};
+
+START_TEST(test_cached_rows) { every_call(&cached); }
+END_TEST
+START_TEST(test_rereads) { every_call(&uncached); }
+END_TEST
+START_TEST(test_compressed_patterns) { every_call(&compressed); }
+END_TEST
+START_TEST(test_standard_input) { every_call(&standard_input); }
+END_TEST
+
+int main(void)
+{
+    Suite *s = suite_create("io");
+    TCase *tc = tcase_create("failures");
+    snprintf(dir, sizeof dir, "/tmp/millrace-io-XXXXXX");
+    if (mkdtemp(dir) == NULL) return EXIT_FAILURE;
+    snprintf(json_path, sizeof json_path, "%s/fit.json", dir);
+    tcase_set_timeout(tc, 600);
+    tcase_add_test(tc, test_cached_rows);
+    tcase_add_test(tc, test_rereads);
+    tcase_add_test(tc, test_compressed_patterns);
+    tcase_add_test(tc, test_standard_input);
+    suite_add_tcase(s, tc);
+    {
+        int rc = mr_check_run(s, 1); /* no fork: the leak checker sees the whole run */
+        unlink(json_path);
+        rmdir(dir);
+        return rc;
+    }
+}
