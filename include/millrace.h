@@ -20,11 +20,11 @@
  * independent.  The library keeps no mutable global state of its own.  It
  * does set OpenBLAS to one thread per call site (openblas_set_num_threads)
  * while a run is going, because its own workers already use every core and
- * nested BLAS threads would oversubscribe them.  Its worker threads never
- * call BLAS; the thread that calls mr_fitter_run does (LAPACK's Cholesky).
- * A program that runs fitters on several threads at once must link a BLAS
- * that allows concurrent calls: Debian's default OpenBLAS does, its serial
- * build (libopenblas0-serial) does not.
+ * nested BLAS threads would oversubscribe them.  The library itself calls
+ * no BLAS or LAPACK routine (its solver and the map back to raw
+ * coefficients are its own loops, which take no working buffer), so any
+ * BLAS build may be linked, and fitters may run on several threads at
+ * once.
  *
  * Errors: every fallible call returns an mr_status.  MR_OK is 0; the other
  * values are fixed and never renumbered (the command-line tool uses them as

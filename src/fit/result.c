@@ -3,7 +3,6 @@
  * columns, the dispersion, Wald statistics and intervals, likelihood-based
  * summaries and the warnings an analyst must see. */
 #define _DEFAULT_SOURCE /* lgamma_r */
-#include <cblas.h>
 #include <math.h>
 #include <string.h>
 #include <time.h>
@@ -25,20 +24,67 @@ double mr__seconds_now(void)
 
 static char *dup_or_null(const char *s) { return s ? mr__strdup(s) : NULL; }
 
-/* cov_raw = A cov_internal A', beta_raw = A beta_internal. */
+/* A's non-zeros, column by column: column k's are row[start[k] ..
+ * start[k + 1]) with their values.  Centring makes A the identity plus a
+ * few entries per column, so the map back costs p times those. */
+typedef struct sparse_columns {
+    size_t *start, *row;
+    double *value;
+} sparse_columns;
+
+static void release_sparse(sparse_columns *a)
+{
+    mr__free(a->start);
+    mr__free(a->row);
+    mr__free(a->value);
+}
+
+static mr_status sparse_from(const double *A, size_t p, sparse_columns *a, mr__error *err)
+{
+    size_t i, k, n = 0;
+    for (i = 0; i < p * p; i++) n += A[i] != 0;
+    a->start = mr__malloc_array(p + 1, sizeof *a->start);
+    a->row = mr__malloc_array(n + 1, sizeof *a->row);
+    a->value = mr__malloc_array(n + 1, sizeof *a->value);
+    if (!a->start || !a->row || !a->value) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (k = 0, n = 0; k < p; k++) {
+        a->start[k] = n;
+        for (i = 0; i < p; i++)
+            if (A[k * p + i] != 0) {
+                a->row[n] = i;
+                a->value[n++] = A[k * p + i];
+            }
+    }
+    a->start[p] = n;
+    return MR_OK;
+}
+
+/* cov_raw = A cov_internal A', beta_raw = A beta_internal, every sum in
+ * increasing k.  Own loops rather than BLAS: OpenBLAS's dgemv and dgemm
+ * take a 128 MiB buffer from an allocator that spins for ever when an
+ * address-space limit refuses it. */
 static mr_status map_to_raw(const mr__design *d, const double *beta_s, const double *cov_s, double *beta, double *cov,
                             mr__error *err)
 {
-    size_t p = d->p;
-    double *T = mr__malloc_array(p * p, sizeof *T);
-    if (T == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    cblas_dgemv(CblasColMajor, CblasNoTrans, (int)p, (int)p, 1.0, d->A, (int)p, beta_s, 1, 0.0, beta, 1);
-    cblas_dgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, (int)p, (int)p, (int)p, 1.0, d->A, (int)p, cov_s, (int)p,
-                0.0, T, (int)p);
-    cblas_dgemm(CblasColMajor, CblasNoTrans, CblasTrans, (int)p, (int)p, (int)p, 1.0, T, (int)p, d->A, (int)p, 0.0,
-                cov, (int)p);
+    size_t p = d->p, i, j, k, e;
+    double *T = mr__calloc(p * p + 1, sizeof *T);
+    sparse_columns a = {NULL, NULL, NULL};
+    mr_status st = T ? sparse_from(d->A, p, &a, err) : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    if (st == MR_OK) {
+        memset(beta, 0, p * sizeof *beta);
+        memset(cov, 0, p * p * sizeof *cov);
+        for (k = 0; k < p; k++)
+            for (e = a.start[k]; e < a.start[k + 1]; e++) beta[a.row[e]] += a.value[e] * beta_s[k];
+        for (j = 0; j < p; j++) /* T = A cov_internal, column j */
+            for (k = 0; k < p; k++)
+                for (e = a.start[k]; e < a.start[k + 1]; e++) T[j * p + a.row[e]] += a.value[e] * cov_s[j * p + k];
+        for (k = 0; k < p; k++) /* cov = T A': column j gains T's column k times A(j, k) */
+            for (e = a.start[k]; e < a.start[k + 1]; e++)
+                for (i = 0, j = a.row[e]; i < p; i++) cov[j * p + i] += T[k * p + i] * a.value[e];
+    }
+    release_sparse(&a);
     mr__free(T);
-    return MR_OK;
+    return st;
 }
 
 static double log_gamma(double x)
