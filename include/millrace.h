@@ -68,7 +68,9 @@ typedef enum mr_status {
     MR_ERR_FORMAT = 4,       /* malformed input: CSV, number, zstd stream   */
     MR_ERR_DOMAIN = 5,       /* a value the model cannot take (y < 0 for
                                 poisson, exposure <= 0, weight < 0, ...)    */
-    MR_ERR_NO_DATA = 6,      /* empty file, header only, no usable rows     */
+    MR_ERR_NO_DATA = 6,      /* empty file, header only, no usable rows
+                                (every row left out, or every prior weight
+                                0)                                          */
     MR_ERR_NOT_CONVERGED = 7,/* only from mr_fit_status(): the fit stopped
                                 at the pass limit; results are flagged      */
     MR_ERR_NO_MEMORY = 8,    /* an allocation failed                        */

@@ -195,6 +195,18 @@ static mr_status no_usable_rows(mr__run *r, mr__error *err)
                     (unsigned long long)s->nread, detail);
 }
 
+/* Rows of prior weight 0 are read and checked but carry nothing: with no
+ * other row there is no fit (rank 0, a null deviance on -1 df). */
+static mr_status no_weighted_rows(mr__run *r, mr__error *err)
+{
+    const mr__spec *s = &r->f->spec;
+    char what[300];
+    if (s->weight && s->trials) snprintf(what, sizeof what, "weight '%s' times trials '%s'", s->weight, s->trials);
+    else snprintf(what, sizeof what, "%s '%s'", s->weight ? "weight" : "trials", s->weight ? s->weight : s->trials);
+    return mr__fail(err, MR_ERR_NO_DATA, "%s: no usable rows: the prior weight (%s) is 0 in all %llu complete rows",
+                    r->display, what, (unsigned long long)r->first.scan.nused);
+}
+
 static mr_status settle_factor(mr__run *r, size_t f, mr__error *err)
 {
     const mr__levelset **sets = mr__calloc(r->first.nworkers ? r->first.nworkers : 1, sizeof *sets);
@@ -228,6 +240,7 @@ static mr_status settle_scan(mr__run *r, mr__error *err)
     size_t f, k, nfac = r->bind.nfac, nnum = r->bind.nnum;
     if (s->nread == 0) return mr__fail(err, MR_ERR_NO_DATA, "%s: the file has a header but no data rows", r->display);
     if (s->nused == 0) return no_usable_rows(r, err);
+    if (s->npos == 0) return no_weighted_rows(r, err);
     r->levels = mr__calloc(nfac + 1, sizeof *r->levels);
     r->level_names = mr__calloc(nfac + 1, sizeof *r->level_names);
     r->fac = mr__calloc(nfac + 1, sizeof *r->fac);
