@@ -142,7 +142,12 @@ MR_API mr_status mr_fitter_model_file(mr_fitter *f, const char *path);
 
 /* Integer options. */
 typedef enum mr_int_option {
-    MR_OPT_THREADS = 0,      /* worker threads; 0 = online CPUs (default)   */
+    MR_OPT_THREADS = 0,      /* worker threads; 0 = online CPUs (default).
+                                0 to 256 accepted, but a run uses at most 4
+                                per online CPU and 64 in all (a warning in
+                                the fit says so): each worker costs about
+                                6 MB of memory (two 2 MiB ring slots, its
+                                decoder and scratch)                        */
     MR_OPT_MAX_PASSES = 1,   /* IRLS iterations at most (default 50)        */
     MR_OPT_BUFFER_SIZE = 2,  /* bytes per read from the file (default 1 MiB,
                                 at least 16); results never depend on it    */

@@ -356,6 +356,7 @@ static void collect_warnings(mr_fit *fit, const mr__run *r)
                           "coefficient towards minus infinity",
                      (unsigned long long)r->last.sums.boundary);
     if (r->cache_note[0]) mr__fit_warn(fit, "%s", r->cache_note);
+    if (r->threads_note[0]) mr__fit_warn(fit, "%s", r->threads_note);
     if (fit->rows_bad)
         mr__fit_warn(fit, "%llu malformed rows were skipped (--on-bad-row skip)", (unsigned long long)fit->rows_bad);
     for (j = 0; j < fit->nfactors; j++)

@@ -38,10 +38,28 @@ void openblas_set_num_threads(int num_threads);
 #define MAX_HALVINGS 30
 #define DECREMENT_SHARE 1e-2
 
+/* Each worker costs about 6 MB (its two ring slots of 2 MiB, its
+ * decoder and scratch), and past the cores more workers only queue: the
+ * count is capped, so that --threads 256 is not 1.6 GB for nothing. */
+#define THREADS_PER_CPU 4
+#define MAX_THREADS 64
+
 static int online_cpus(void)
 {
     long n = sysconf(_SC_NPROCESSORS_ONLN);
-    return n > 0 ? (int)(n > 64 ? 64 : n) : 1;
+    return n > 0 ? (int)(n > MAX_THREADS ? MAX_THREADS : n) : 1;
+}
+
+static void choose_threads(mr__run *r)
+{
+    int cpus = online_cpus(), cap = cpus * THREADS_PER_CPU > MAX_THREADS ? MAX_THREADS : cpus * THREADS_PER_CPU;
+    r->nthreads = r->f->threads > 0 ? r->f->threads : cpus;
+    if (r->nthreads <= cap) return;
+    snprintf(r->threads_note, sizeof r->threads_note,
+             "%d worker threads asked for, %d used: at most %d per online CPU (%d here) and %d in all, as each costs "
+             "about 6 MB and more than the cores only wait; results do not depend on the count",
+             r->nthreads, cap, THREADS_PER_CPU, cpus, MAX_THREADS);
+    r->nthreads = cap;
 }
 
 /* ---- header and columns ------------------------------------------------ */
@@ -831,7 +849,7 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
     r.spool_fd = -1;
     r.t0 = mr__seconds_now();
     snprintf(r.display, sizeof r.display, "%s", strcmp(path, "-") == 0 ? "<stdin>" : path);
-    r.nthreads = f->threads > 0 ? f->threads : online_cpus();
+    choose_threads(&r);
     r.dcfg.collapse = collapse_mode(&r);
     r.dcfg.collapse_abandoned = &r.collapse_abandoned;
     st = mr__spec_validate(&f->spec, err);
