@@ -268,9 +268,8 @@ static mr_status settle_scan(mr__run *r, mr__error *err)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     for (f = 0; f < nfac; f++) MR__TRY(settle_factor(r, f, err));
     for (k = 0; k < nnum; k++) {
-        double n = (double)s->nused, m = s->sx[k] / n, v = s->sxx[k] / n - m * m;
-        r->mean[k] = m;
-        r->spread[k] = v > 0 ? sqrt(v) : 0.0;
+        r->mean[k] = s->sx[k] / (double)s->nused;
+        r->spread[k] = mr__scan_spread(s, k);
     }
     r->dcfg.levels = r->levels;
     return mr__design_build(&r->design, &r->f->spec, &r->bind, r->fac, r->mean, r->spread, err);
