@@ -26,12 +26,16 @@ Prints "ok <case>" / "FAIL <case>: ..." and "N passed, M failed".
 """
 import json
 import os
+import shutil
 import subprocess
 import sys
 import tempfile
 
 import numpy as np
 import statsmodels.api as sm
+
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from compare_reference import run_checks  # noqa: E402
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 MILLRACE = os.environ.get("MILLRACE", os.path.join(ROOT, "build", "millrace"))
@@ -135,20 +139,8 @@ def main():
         ("gaussian_x_1e10_plus_k_mod_50", lambda: shifted_case(tmp, "g50", "gaussian", 1e10, k % 50, rng)),
         ("gaussian_one_cell_1e200", lambda: huge_cell_case(tmp, rng)),
     ]
-    passed = failed = 0
-    for name, fn in checks:
-        try:
-            problems = fn()
-        except Exception as exc:  # one broken case must not hide the others
-            problems = ["%s: %s" % (type(exc).__name__, exc)]
-        if problems:
-            failed += 1
-            print("FAIL %s: %s" % (name, "; ".join(problems)))
-        else:
-            passed += 1
-            print("ok %s" % name)
-        sys.stdout.flush()
-    subprocess.run(["rm", "-rf", tmp])
+    passed, failed = run_checks(checks)
+    shutil.rmtree(tmp, ignore_errors=True)
     print("%d passed, %d failed" % (passed, failed))
     return 1 if failed else 0
 
