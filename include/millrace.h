@@ -73,7 +73,8 @@ typedef enum mr_status {
                                 0)                                          */
     MR_ERR_NOT_CONVERGED = 7,/* only from mr_fit_status(): the fit stopped
                                 at the pass limit; results are flagged      */
-    MR_ERR_NO_MEMORY = 8,    /* an allocation failed                        */
+    MR_ERR_NO_MEMORY = 8,    /* an allocation failed, or the system refused
+                                a thread (EAGAIN)                           */
     MR_ERR_INTERNAL = 9,     /* a bug: please report it                     */
     MR_ERR_NUMERIC = 10      /* the fit broke down (no finite deviance even
                                 after step halving)                         */
