@@ -96,11 +96,7 @@ static void invert_factored(const double *K, size_t r, double *M, double *inv, s
     for (j = 0; j < r; j++) {
         double *m = M + j * r;
         m[j] = 1.0 / K[j * r + j];
-        for (i = j + 1; i < r; i++) {
-            double s = 0;
-            for (k = j; k < i; k++) s -= K[i * r + k] * m[k];
-            m[i] = s / K[i * r + i];
-        }
+        for (i = j + 1; i < r; i++) m[i] = minus_dot(0.0, K + i * r + j, m + j, i - j) / K[i * r + i];
     }
     for (c = 0; c < r; c++)
         for (a = 0; a <= c; a++) {
