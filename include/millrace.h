@@ -25,11 +25,11 @@
  * threads would oversubscribe them: mr_fitter_run reads the count
  * (openblas_get_num_threads) before it sets 1, and sets that count back
  * when it returns, whatever the outcome.  The count is the process's, so
- * a program that calls BLAS on another thread during a run sees 1.  Its worker threads never
- * call BLAS; the thread that calls mr_fitter_run does (LAPACK's Cholesky).
- * A program that runs fitters on several threads at once must link a BLAS
- * that allows concurrent calls: Debian's default OpenBLAS does, its serial
- * build (libopenblas0-serial) does not.
+ * a program that calls BLAS on another thread during a run sees 1.  The
+ * library itself calls no BLAS or LAPACK routine (its solver and the map
+ * back to raw coefficients are its own loops, which take no working
+ * buffer), so any BLAS build may be linked, and fitters may run on several
+ * threads at once.
  *
  * Errors: every fallible call returns an mr_status.  MR_OK is 0; the other
  * values are fixed and never renumbered (the command-line tool uses them as
@@ -73,10 +73,13 @@ typedef enum mr_status {
     MR_ERR_FORMAT = 4,       /* malformed input: CSV, number, zstd stream   */
     MR_ERR_DOMAIN = 5,       /* a value the model cannot take (y < 0 for
                                 poisson, exposure <= 0, weight < 0, ...)    */
-    MR_ERR_NO_DATA = 6,      /* empty file, header only, no usable rows     */
+    MR_ERR_NO_DATA = 6,      /* empty file, header only, no usable rows
+                                (every row left out, or every prior weight
+                                0)                                          */
     MR_ERR_NOT_CONVERGED = 7,/* only from mr_fit_status(): the fit stopped
                                 at the pass limit; results are flagged      */
-    MR_ERR_NO_MEMORY = 8,    /* an allocation failed                        */
+    MR_ERR_NO_MEMORY = 8,    /* an allocation failed, or the system refused
+                                a thread (EAGAIN)                           */
     MR_ERR_INTERNAL = 9,     /* a bug: please report it                     */
     MR_ERR_NUMERIC = 10,     /* the fit broke down (no finite deviance even
                                 after step halving)                         */
@@ -148,7 +151,12 @@ MR_API mr_status mr_fitter_model_file(mr_fitter *f, const char *path);
 
 /* Integer options. */
 typedef enum mr_int_option {
-    MR_OPT_THREADS = 0,      /* worker threads; 0 = online CPUs (default)   */
+    MR_OPT_THREADS = 0,      /* worker threads; 0 = online CPUs (default).
+                                0 to 256 accepted, but a run uses at most 4
+                                per online CPU and 64 in all (a warning in
+                                the fit says so): each worker costs about
+                                6 MB of memory (two 2 MiB ring slots, its
+                                decoder and scratch)                        */
     MR_OPT_MAX_PASSES = 1,   /* IRLS iterations at most (default 50)        */
     MR_OPT_BUFFER_SIZE = 2,  /* bytes per read from the file (default 1 MiB,
                                 at least 16); results never depend on it    */

@@ -457,6 +457,16 @@ static void release_slots(engine *e)
     e->slots = NULL;
 }
 
+/* EAGAIN is the system refusing a thread's stack or its slot in the
+ * process's limits: out of memory, as far as the user can act on it. */
+static mr_status thread_failure(int rc, const char *what, mr__error *err)
+{
+    if (rc == EAGAIN || rc == ENOMEM)
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory: cannot start %s (%s); try fewer --threads or more memory",
+                        what, strerror(rc));
+    return mr__fail(err, MR_ERR_INTERNAL, "cannot start %s: %s", what, strerror(rc));
+}
+
 static mr_status start_workers(engine *e, mr__error *err)
 {
     size_t i;
@@ -473,8 +483,8 @@ static mr_status start_workers(engine *e, mr__error *err)
             MR__TRY(mr__workspace_init(&w->ws, e->cfg->point->design, err));
     }
     for (i = 0; i < e->nworkers; i++) {
-        if (pthread_create(&e->workers[i].thread, NULL, worker_main, &e->workers[i]) != 0)
-            return mr__fail(err, MR_ERR_INTERNAL, "cannot start a worker thread");
+        int rc = pthread_create(&e->workers[i].thread, NULL, worker_main, &e->workers[i]);
+        if (rc != 0) return thread_failure(rc, "a worker thread", err);
         e->workers[i].started = 1;
     }
     return MR_OK;
@@ -801,8 +811,8 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     }
     if (st == MR_OK) st = start_workers(&e, err);
     if (st == MR_OK && !workers_fetch(&e)) {
-        if (pthread_create(&e.reader, NULL, reader_main, &e) != 0)
-            st = mr__fail(err, MR_ERR_INTERNAL, "cannot start the reader thread");
+        int rc = pthread_create(&e.reader, NULL, reader_main, &e);
+        if (rc != 0) st = thread_failure(rc, "the reader thread", err);
         else e.reader_started = 1;
     }
     if (st == MR_OK) st = combine_all(&e, res, t0, err);

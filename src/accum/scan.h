@@ -14,7 +14,14 @@
 typedef struct mr__scan_sums {
     uint64_t nread, nused, incomplete, nbad, npos;
     uint64_t *missing; /* per bound column */
-    double *sx, *sxx;  /* per numeric */
+    /* Per numeric: the sum, and the sum of squared deviations from the
+     * mean as dev_scale^2 * dev_ssq (scaled, so that a cell of 1e200
+     * does not overflow it).  A block takes the deviations from its own
+     * mean (exact for x = 1e10 + i, where the mean of squares minus the
+     * squared mean cancelled to nothing); blocks are merged in block
+     * order with Chan's update, so the spread is the same bits for any
+     * thread count. */
+    double *sx, *dev_scale, *dev_ssq;
     double sw, swy, swe, swoff, llc;
     uint32_t nbad_shown;
     mr__bad_row bad[MR__BAD_SHOWN];
@@ -28,5 +35,8 @@ void mr__scan_reset(mr__scan_sums *s, size_t ncol, size_t nnum);
 void mr__scan_block(const mr__block *blk, size_t ncol, size_t nnum, mr__scan_sums *s);
 /* into += from, in the caller's (block) order. */
 void mr__scan_add(mr__scan_sums *into, const mr__scan_sums *from, size_t ncol, size_t nnum);
+/* Numeric k's standard deviation over the rows used (divisor n): 0 for a
+ * constant column. */
+double mr__scan_spread(const mr__scan_sums *s, size_t k);
 
 #endif

@@ -3,7 +3,7 @@
  * columns, the dispersion, Wald statistics and intervals, likelihood-based
  * summaries and the warnings an analyst must see. */
 #define _DEFAULT_SOURCE /* M_PI */
-#include <cblas.h>
+#include <float.h>
 #include <math.h>
 #include <string.h>
 
@@ -18,20 +18,112 @@
 
 static char *dup_or_null(const char *s) { return s ? mr__strdup(s) : NULL; }
 
-/* cov_raw = A cov_internal A', beta_raw = A beta_internal. */
-static mr_status map_to_raw(const mr__design *d, const double *beta_s, const double *cov_s, double *beta, double *cov,
-                            mr__error *err)
+/* A's non-zeros, column by column: column k's are row[start[k] ..
+ * start[k + 1]) with their values.  Centring makes A the identity plus a
+ * few entries per column, so the map back costs p times those. */
+typedef struct sparse_columns {
+    size_t *start, *row;
+    double *value;
+} sparse_columns;
+
+static void release_sparse(sparse_columns *a)
 {
-    size_t p = d->p;
-    double *T = mr__malloc_array(p * p, sizeof *T);
-    if (T == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    cblas_dgemv(CblasColMajor, CblasNoTrans, (int)p, (int)p, 1.0, d->A, (int)p, beta_s, 1, 0.0, beta, 1);
-    cblas_dgemm(CblasColMajor, CblasNoTrans, CblasNoTrans, (int)p, (int)p, (int)p, 1.0, d->A, (int)p, cov_s, (int)p,
-                0.0, T, (int)p);
-    cblas_dgemm(CblasColMajor, CblasNoTrans, CblasTrans, (int)p, (int)p, (int)p, 1.0, T, (int)p, d->A, (int)p, 0.0,
-                cov, (int)p);
-    mr__free(T);
+    mr__free(a->start);
+    mr__free(a->row);
+    mr__free(a->value);
+}
+
+static mr_status sparse_from(const double *A, size_t p, sparse_columns *a, mr__error *err)
+{
+    size_t i, k, n = 0;
+    for (i = 0; i < p * p; i++) n += A[i] != 0;
+    a->start = mr__malloc_array(p + 1, sizeof *a->start);
+    a->row = mr__malloc_array(n + 1, sizeof *a->row);
+    a->value = mr__malloc_array(n + 1, sizeof *a->value);
+    if (!a->start || !a->row || !a->value) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (k = 0, n = 0; k < p; k++) {
+        a->start[k] = n;
+        for (i = 0; i < p; i++)
+            if (A[k * p + i] != 0) {
+                a->row[n] = i;
+                a->value[n++] = A[k * p + i];
+            }
+    }
+    a->start[p] = n;
     return MR_OK;
+}
+
+/* Row j of A over its largest entry a (returned), then the quadratic form
+ * of that row with cov_internal: the variance of raw coefficient j is
+ * a^2 times it.  For a column that spans 1e200 a is about 1e-198 and the
+ * variance is below the range of a double, though its square root is
+ * not. */
+static double scaled_variance(const sparse_columns *a, const double *cov_s, size_t p, size_t j, double *u,
+                              double *amax)
+{
+    size_t k, l, e;
+    double q = 0;
+    *amax = 0;
+    memset(u, 0, p * sizeof *u);
+    for (k = 0; k < p; k++)
+        for (e = a->start[k]; e < a->start[k + 1]; e++)
+            if (a->row[e] == j) {
+                u[k] = a->value[e];
+                *amax = fmax(*amax, fabs(u[k]));
+            }
+    if (!(*amax > 0)) return 0;
+    for (k = 0; k < p; k++) u[k] /= *amax;
+    for (l = 0; l < p; l++) {
+        double s = 0;
+        for (k = 0; k < p; k++) s += u[k] * cov_s[l * p + k];
+        q += u[l] * s;
+    }
+    return q;
+}
+
+/* Where a variance underflowed (below DBL_MIN, digits lost), the standard
+ * error without dispersion goes to se_small[j], computed apart; elsewhere
+ * se_small[j] stays 0 and the standard error is the square root of the
+ * covariance, as always. */
+static void small_variances(const sparse_columns *a, const double *cov_s, const double *cov, size_t p, double *u,
+                            double *se_small)
+{
+    size_t j;
+    for (j = 0; j < p; j++) {
+        double amax, q;
+        if (!(cov[j * p + j] < DBL_MIN)) continue;
+        q = scaled_variance(a, cov_s, p, j, u, &amax);
+        if (q > 0) se_small[j] = amax * sqrt(q);
+    }
+}
+
+/* cov_raw = A cov_internal A', beta_raw = A beta_internal, every sum in
+ * increasing k.  Own loops rather than BLAS: OpenBLAS's dgemv and dgemm
+ * take a 128 MiB buffer from an allocator that spins for ever when an
+ * address-space limit refuses it. */
+static mr_status map_to_raw(const mr__design *d, const double *beta_s, const double *cov_s, double *beta, double *cov,
+                            double *se_small, mr__error *err)
+{
+    size_t p = d->p, i, j, k, e;
+    double *T = mr__calloc(p * p + 1, sizeof *T);
+    sparse_columns a = {NULL, NULL, NULL};
+    mr_status st = T ? sparse_from(d->A, p, &a, err) : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    if (st == MR_OK) {
+        memset(beta, 0, p * sizeof *beta);
+        memset(cov, 0, p * p * sizeof *cov);
+        for (k = 0; k < p; k++)
+            for (e = a.start[k]; e < a.start[k + 1]; e++) beta[a.row[e]] += a.value[e] * beta_s[k];
+        for (j = 0; j < p; j++) /* T = A cov_internal, column j */
+            for (k = 0; k < p; k++)
+                for (e = a.start[k]; e < a.start[k + 1]; e++) T[j * p + a.row[e]] += a.value[e] * cov_s[j * p + k];
+        for (k = 0; k < p; k++) /* cov = T A': column j gains T's column k times A(j, k) */
+            for (e = a.start[k]; e < a.start[k + 1]; e++)
+                for (i = 0, j = a.row[e]; i < p; i++) cov[j * p + i] += T[k * p + i] * a.value[e];
+        small_variances(&a, cov_s, cov, p, T, se_small);
+    }
+    release_sparse(&a);
+    mr__free(T);
+    return st;
 }
 
 /* The log-likelihood from the deviance and the data-only constant of the
@@ -83,7 +175,8 @@ static void set_inference(mr_fit *fit)
             fit->beta[j] = fit->se[j] = fit->stat[j] = fit->pval[j] = fit->lo[j] = fit->hi[j] = NAN;
             continue;
         }
-        se = sqrt(fit->cov[j * p + j]);
+        /* a variance below the range of a double: computed apart */
+        se = fit->se[j] > 0 ? fit->se[j] * sqrt(fit->dispersion) : sqrt(fit->cov[j * p + j]);
         z = fit->beta[j] / se;
         fit->se[j] = se;
         fit->stat[j] = z;
@@ -126,7 +219,7 @@ static mr_status set_coefficients(mr_fit *fit, mr__run *r, mr__error *err)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }
     st = mr__solve_normal(r->last.sums.xtwx, r->last.sums.xtwz, p, scratch, fit->aliased, &fit->rank, cov_s, err);
-    if (st == MR_OK) st = map_to_raw(d, r->beta_final, cov_s, fit->beta, fit->cov, err);
+    if (st == MR_OK) st = map_to_raw(d, r->beta_final, cov_s, fit->beta, fit->cov, fit->se, err);
     mr__free(scratch);
     mr__free(cov_s);
     if (st != MR_OK) return st;
@@ -323,8 +416,14 @@ static void collect_warnings(mr_fit *fit, const mr__run *r)
                           "coefficient towards minus infinity",
                      (unsigned long long)r->last.sums.boundary);
     if (r->cache_note[0]) mr__fit_warn(fit, "%s", r->cache_note);
+    if (r->threads_note[0]) mr__fit_warn(fit, "%s", r->threads_note);
     if (fit->rows_bad)
         mr__fit_warn(fit, "%llu malformed rows were skipped (--on-bad-row skip)", (unsigned long long)fit->rows_bad);
+    for (j = 0; j < fit->p; j++)
+        if (!fit->aliased[j] && fit->se[j] > 0 && !(fit->cov[j * fit->p + j] >= DBL_MIN))
+            mr__fit_warn(fit, "the variance of '%s' is below the range of a double (its values are huge): its "
+                              "standard error is computed apart, but its covariances read 0; rescale the column",
+                         fit->name[j]);
     for (j = 0; j < fit->nfactors; j++)
         if (fit->factor[j].nlevels < 2)
             mr__fit_warn(fit, "factor '%s' has a single level in the rows used: it adds no column", fit->factor[j].name);

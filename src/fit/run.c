@@ -41,10 +41,28 @@ int openblas_get_num_threads(void);
 #define MAX_HALVINGS 30
 #define DECREMENT_SHARE 1e-2
 
+/* Each worker costs about 6 MB (its two ring slots of 2 MiB, its
+ * decoder and scratch), and past the cores more workers only queue: the
+ * count is capped, so that --threads 256 is not 1.6 GB for nothing. */
+#define THREADS_PER_CPU 4
+#define MAX_THREADS 64
+
 static int online_cpus(void)
 {
     long n = sysconf(_SC_NPROCESSORS_ONLN);
-    return n > 0 ? (int)(n > 64 ? 64 : n) : 1;
+    return n > 0 ? (int)(n > MAX_THREADS ? MAX_THREADS : n) : 1;
+}
+
+static void choose_threads(mr__run *r)
+{
+    int cpus = online_cpus(), cap = cpus * THREADS_PER_CPU > MAX_THREADS ? MAX_THREADS : cpus * THREADS_PER_CPU;
+    r->nthreads = r->f->threads > 0 ? r->f->threads : cpus;
+    if (r->nthreads <= cap) return;
+    snprintf(r->threads_note, sizeof r->threads_note,
+             "%d worker threads asked for, %d used: at most %d per online CPU (%d here) and %d in all, as each costs "
+             "about 6 MB and more than the cores only wait; results do not depend on the count",
+             r->nthreads, cap, THREADS_PER_CPU, cpus, MAX_THREADS);
+    r->nthreads = cap;
 }
 
 /* ---- header and columns ------------------------------------------------ */
@@ -199,6 +217,18 @@ static mr_status no_usable_rows(mr__run *r, mr__error *err)
                     (unsigned long long)s->nread, detail);
 }
 
+/* Rows of prior weight 0 are read and checked but carry nothing: with no
+ * other row there is no fit (rank 0, a null deviance on -1 df). */
+static mr_status no_weighted_rows(mr__run *r, mr__error *err)
+{
+    const mr__spec *s = &r->f->spec;
+    char what[300];
+    if (s->weight && s->trials) snprintf(what, sizeof what, "weight '%s' times trials '%s'", s->weight, s->trials);
+    else snprintf(what, sizeof what, "%s '%s'", s->weight ? "weight" : "trials", s->weight ? s->weight : s->trials);
+    return mr__fail(err, MR_ERR_NO_DATA, "%s: no usable rows: the prior weight (%s) is 0 in all %llu complete rows",
+                    r->display, what, (unsigned long long)r->first.scan.nused);
+}
+
 static mr_status settle_factor(mr__run *r, size_t f, mr__error *err)
 {
     const mr__levelset **sets = mr__calloc(r->first.nworkers ? r->first.nworkers : 1, sizeof *sets);
@@ -232,6 +262,7 @@ static mr_status settle_scan(mr__run *r, mr__error *err)
     size_t f, k, nfac = r->bind.nfac, nnum = r->bind.nnum;
     if (s->nread == 0) return mr__fail(err, MR_ERR_NO_DATA, "%s: the file has a header but no data rows", r->display);
     if (s->nused == 0) return no_usable_rows(r, err);
+    if (s->npos == 0) return no_weighted_rows(r, err);
     r->levels = mr__calloc(nfac + 1, sizeof *r->levels);
     r->level_names = mr__calloc(nfac + 1, sizeof *r->level_names);
     r->fac = mr__calloc(nfac + 1, sizeof *r->fac);
@@ -241,9 +272,8 @@ static mr_status settle_scan(mr__run *r, mr__error *err)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     for (f = 0; f < nfac; f++) MR__TRY(settle_factor(r, f, err));
     for (k = 0; k < nnum; k++) {
-        double n = (double)s->nused, m = s->sx[k] / n, v = s->sxx[k] / n - m * m;
-        r->mean[k] = m;
-        r->spread[k] = v > 0 ? sqrt(v) : 0.0;
+        r->mean[k] = s->sx[k] / (double)s->nused;
+        r->spread[k] = mr__scan_spread(s, k);
     }
     r->dcfg.levels = r->levels;
     return mr__design_build(&r->design, &r->f->spec, &r->bind, r->fac, r->mean, r->spread, err);
@@ -825,7 +855,7 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
     r.t0 = mr__seconds_now();
     mr__utf8_mend_cut(r.display, sizeof r.display,
                       snprintf(r.display, sizeof r.display, "%s", strcmp(path, "-") == 0 ? "<stdin>" : path));
-    r.nthreads = f->threads > 0 ? f->threads : online_cpus();
+    choose_threads(&r);
     r.dcfg.collapse = collapse_mode(&r);
     r.dcfg.collapse_abandoned = &r.collapse_abandoned;
     st = mr__spec_validate(&f->spec, err);

@@ -49,6 +49,7 @@ typedef struct mr__run {
     mr__store patterns;
     double within_deviance;
     char cache_note[256];
+    char threads_note[256];
     /* IRLS */
     mr__pass_result last; /* sums at the reported coefficients */
     double *beta_a, *beta_b, *beta_c, *beta_final, *beta_warm;

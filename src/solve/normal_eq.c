@@ -1,4 +1,3 @@
-#include <lapacke.h>
 #include <math.h>
 #include <string.h>
 
@@ -70,56 +69,84 @@ static void residual(const double *G, const double *v, size_t p, const size_t *k
     }
 }
 
+/* x := (L L')^-1 x for the kept factor K (r x r, lower, by rows): forward
+ * substitution by rows, then back substitution by columns, so that both
+ * walk contiguous memory. */
+static void solve_factored(const double *K, size_t r, double *x)
+{
+    size_t a, c;
+    for (a = 0; a < r; a++) x[a] = minus_dot(x[a], K + a * r, x, a) / K[a * r + a];
+    for (c = r; c-- > 0;) {
+        x[c] /= K[c * r + c];
+        for (a = 0; a < c; a++) x[a] -= K[c * r + a] * x[c];
+    }
+}
+
+/* (L L')^-1 = M' M with M = L^-1, lower triangular.  M is built a column
+ * at a time (held by columns: column j at M + j * r), each entry a dot
+ * product of a row of L and a column of M over contiguous memory; then
+ * entry (a, c) of the inverse is the dot product of columns a and c of M.
+ * Own loops rather than LAPACK's dpotri: OpenBLAS's takes a 128 MiB
+ * working buffer from its allocator, which spins for ever when an address
+ * space limit refuses it. */
+static void invert_factored(const double *K, size_t r, double *M, double *inv, size_t p, const size_t *keep)
+{
+    size_t i, j, a, c, k;
+    memset(M, 0, r * r * sizeof *M);
+    for (j = 0; j < r; j++) {
+        double *m = M + j * r;
+        m[j] = 1.0 / K[j * r + j];
+        for (i = j + 1; i < r; i++) m[i] = minus_dot(0.0, K + i * r + j, m + j, i - j) / K[i * r + i];
+    }
+    for (c = 0; c < r; c++)
+        for (a = 0; a <= c; a++) {
+            const double *ma = M + a * r, *mc = M + c * r;
+            double s = 0;
+            for (k = c; k < r; k++) s += ma[k] * mc[k];
+            inv[keep[c] * p + keep[a]] = s;
+            inv[keep[a] * p + keep[c]] = s;
+        }
+}
+
 mr_status mr__solve_normal(const double *G, const double *v, size_t p, double *beta, int *aliased, size_t *rank,
                            double *inv, mr__error *err)
 {
-    double *L = mr__malloc_array(p * p, sizeof *L), *Gs = NULL, *b = NULL, *res = NULL;
+    double *L = mr__malloc_array(p * p, sizeof *L), *K = NULL, *b = NULL, *res = NULL;
     size_t *keep = NULL, r, a, c;
     mr_status st = MR_OK;
     if (L == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     r = find_aliased(G, p, aliased, L);
     *rank = r;
-    Gs = mr__malloc_array(r * r + 1, sizeof *Gs);
+    K = mr__malloc_array(r * r + 1, sizeof *K);
     b = mr__malloc_array(r + 1, sizeof *b);
     res = mr__malloc_array(r + 1, sizeof *res);
     keep = mr__malloc_array(r + 1, sizeof *keep);
-    if (!Gs || !b || !res || !keep) {
+    if (!K || !b || !res || !keep) {
         st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
         goto done;
     }
     for (a = 0, c = 0; c < p; c++)
         if (!aliased[c]) keep[a++] = c;
-    for (c = 0; c < r; c++) {
-        for (a = 0; a < r; a++) Gs[c * r + a] = upper(G, p, keep[a], keep[c]);
-        b[c] = v[keep[c]];
+    /* the kept rows of the aliasing scan's factor: G's kept part is K K' */
+    for (a = 0; a < r; a++) {
+        memcpy(K + a * r, L + keep[a] * p, (a + 1) * sizeof *K);
+        memset(K + a * r + a + 1, 0, (r - a - 1) * sizeof *K);
+        b[a] = v[keep[a]];
     }
     memset(beta, 0, p * sizeof *beta);
-    if (r > 0) {
-        if (LAPACKE_dpotrf(LAPACK_COL_MAJOR, 'U', (lapack_int)r, Gs, (lapack_int)r) != 0 ||
-            LAPACKE_dpotrs(LAPACK_COL_MAJOR, 'U', (lapack_int)r, 1, Gs, (lapack_int)r, b, (lapack_int)r) != 0) {
-            st = mr__fail(err, MR_ERR_NUMERIC, "the weighted normal equations are not positive definite");
-            goto done;
-        }
-        /* One refinement step recovers the digits the factorisation lost. */
-        residual(G, v, p, keep, r, b, res);
-        LAPACKE_dpotrs(LAPACK_COL_MAJOR, 'U', (lapack_int)r, 1, Gs, (lapack_int)r, res, (lapack_int)r);
-        for (a = 0; a < r; a++) beta[keep[a]] = b[a] + res[a];
-    }
+    solve_factored(K, r, b);
+    /* One refinement step recovers the digits the factorisation lost. */
+    residual(G, v, p, keep, r, b, res);
+    solve_factored(K, r, res);
+    for (a = 0; a < r; a++) beta[keep[a]] = b[a] + res[a];
     if (inv != NULL) {
         memset(inv, 0, p * p * sizeof *inv);
-        if (r > 0 && LAPACKE_dpotri(LAPACK_COL_MAJOR, 'U', (lapack_int)r, Gs, (lapack_int)r) != 0) {
-            st = mr__fail(err, MR_ERR_NUMERIC, "the weighted normal equations could not be inverted");
-            goto done;
-        }
-        for (c = 0; c < r; c++)
-            for (a = 0; a <= c; a++) {
-                inv[keep[c] * p + keep[a]] = Gs[c * r + a];
-                inv[keep[a] * p + keep[c]] = Gs[c * r + a];
-            }
+        /* L is free now: p x p holds M's r x r */
+        invert_factored(K, r, L, inv, p, keep);
     }
 done:
     mr__free(L);
-    mr__free(Gs);
+    mr__free(K);
     mr__free(b);
     mr__free(res);
     mr__free(keep);

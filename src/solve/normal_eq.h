@@ -3,9 +3,13 @@
  * Columns are taken in order; a column whose part not explained by the
  * earlier kept columns is below a relative tolerance is aliased (a linear
  * combination of earlier ones): it gets no coefficient and the rest is
- * solved without it, never a garbage number.  The kept system is solved by
- * LAPACK's Cholesky (dpotrf/dpotrs) with one step of iterative refinement,
- * and inverted with dpotri for the covariance. */
+ * solved without it, never a garbage number.  The kept system is solved
+ * with the Cholesky factor that aliasing scan leaves (column order, no
+ * pivoting) and one step of iterative refinement, and inverted through
+ * that factor's own inverse for the covariance.  No LAPACK: OpenBLAS's
+ * dpotrf and dpotri take a 128 MiB buffer from an allocator that spins
+ * for ever when an address-space limit refuses it, and the factor was
+ * computed twice. */
 #ifndef MR_NORMAL_EQ_H
 #define MR_NORMAL_EQ_H
 

@@ -112,6 +112,14 @@ f="$tmp/all_missing.csv"
 { echo "$header"; good_rows | sed 's/^[0-9]*,/NA,/'; } > "$f"
 expect no_usable_rows 6 "$f" "$f" -- "${poisson_model[@]}"
 
+# rows of weight 0 carry nothing: all of them is no data, collapsed or not
+f="$tmp/all_zero_weight.csv"
+{ echo "$header"; good_rows | awk -F, -v OFS=, '{ $7 = 0; print }'; } > "$f"
+expect zero_weights_collapsed 6 "$f" "$f" "weight 'w'" -- "${poisson_model[@]}" --weight w
+expect zero_weights_rows 6 "$f" "$f" "weight 'w'" -- "${poisson_model[@]}" --weight w --no-collapse
+expect zero_weights_exposure 6 "$f" "$f" "weight 'w'" -- "${poisson_model[@]}" --weight w --exposure e
+expect zero_weights_gaussian 6 "$f" "$f" "weight 'w'" -- --outcome z --numeric x --weight w --in-memory
+
 # ---- values outside the model's domain (exit 5)
 f="$tmp/negative_count.csv"
 { echo "$header"; good_rows | head -n 1; echo '-1,A,1.5,1,2,1.5,1.5,1.5'; good_rows | tail -n 3; } > "$f"

@@ -29,10 +29,11 @@ for start in range(0, rows, 200000):
 EOF
 }
 
-# peak_rss_kb NAME DATA: runs the fit, prints its peak resident set in kB.
+# peak_rss_kb NAME DATA [THREADS]: runs the fit (2 threads by default),
+# prints its peak resident set in kB.
 peak_rss_kb() {
-    local name=$1 data=$2
-    local cmd=("$bin" fit --quiet --threads 2 --json "$tmp/$name.json" --outcome count --family poisson
+    local name=$1 data=$2 threads=${3:-2}
+    local cmd=("$bin" fit --quiet --threads "$threads" --json "$tmp/$name.json" --outcome count --family poisson
                --factor area --factor band --numeric x --numeric year "$data")
     if [ -x /usr/bin/time ]; then
         /usr/bin/time -v -o "$tmp/$name.time" "${cmd[@]}" > /dev/null 2> "$tmp/$name.err" || return 1
@@ -73,6 +74,28 @@ if [ -n "$small" ] && [ -n "$large" ]; then
         ok "peak RSS 2M rows <= 1.5 x 400k rows ($large kB vs $small kB)"
     else
         fail rss_ratio "2M rows used $large kB, 400k rows $small kB (limit 1.5x)"
+    fi
+fi
+
+# Each worker thread costs about 6 MB, so the count is capped at 4 per
+# online CPU and 64 in all (src/fit/run.c), with a warning: 256 asked for
+# was 1.6 GB.  The bound allows 8 MB a thread beyond the 2-thread fit.
+cpus=$(getconf _NPROCESSORS_ONLN)
+cap=$((4 * cpus > 64 ? 64 : 4 * cpus))
+many=$(peak_rss_kb many "$tmp/small.csv.zst" 256) || many=""
+used=$(/usr/bin/python3 -c 'import json, sys; print(json.load(open(sys.argv[1]))["options"]["threads"])' "$tmp/many.json" 2> /dev/null)
+if [ -z "$many" ] || [ "$used" != "$cap" ]; then
+    fail threads_capped "--threads 256: $used threads used, expected $cap: $(head -c 300 "$tmp/many.err")"
+elif ! grep -q "256 worker threads asked for, $cap used" "$tmp/many.json"; then
+    fail threads_cap_warning "no warning that 256 threads were capped at $cap"
+else
+    ok "threads_capped (256 asked, $cap used, with a warning)"
+fi
+if [ -n "$many" ] && [ -n "$small" ]; then
+    if [ "$many" -le $((small + cap * 8192)) ]; then
+        ok "peak RSS with 256 threads asked: $many kB (2 threads: $small kB)"
+    else
+        fail rss_threads "256 threads asked: $many kB, 2 threads $small kB (limit + $cap x 8 MB)"
     fi
 fi
 

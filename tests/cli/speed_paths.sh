@@ -6,6 +6,8 @@
 # in a comment at each group as the source of truth.
 #
 #   collapsed covariate patterns vs row-level passes   within 1e-11 relative
+#     at tolerance 1e-14, 1e-7 at the default 1e-10 (each path stops at its
+#     own distance from the maximum; README, "Covariate patterns")
 #     (standard errors and Pearson statistic of a fit stopped on the Newton
 #     decrement: within 10 x the square root of its predicted change)
 #   decoded-column cache vs rereading vs in memory     bit-identical
@@ -357,6 +359,11 @@ for t in 2 3; do
     compare "threads_${t}_rows" exact b_t1 "b_t$t" \
         --expect "ref:convergence.passes>1" --expect "other:convergence.passes>1"
 done
+# At the default tolerance the two ways of case A agree only as far as the
+# stopping rule lets them: coefficients about 1e-8 relative (README,
+# "Covariate patterns"); the bound checked leaves a factor of ten.
+compare collapse_default_tolerance close a_rows_cache a_t1 1e-7 \
+    --expect "other:convergence.passes==1" --expect "ref:convergence.passes>1"
 
 # ---- (4) quoting and line ends -------------------------------------------
 # Source of truth: the unquoted LF file read by the plain CSV fast path;

@@ -875,6 +875,25 @@ def published_doll_hill(tmp):
 
 # ---------------------------------------------------------------- main
 
+def run_checks(checks):
+    """Runs (name, function returning a list of problems) pairs, printing
+    ok/FAIL lines; returns (passed, failed)."""
+    passed = failed = 0
+    for name, fn in checks:
+        try:
+            problems = fn()
+        except Exception as exc:  # one broken case must not hide the others
+            problems = ["%s: %s" % (type(exc).__name__, exc)]
+        if problems:
+            failed += 1
+            print("FAIL %s: %s" % (name, "; ".join(problems)))
+        else:
+            passed += 1
+            print("ok %s" % name)
+        sys.stdout.flush()
+    return passed, failed
+
+
 def main():
     if not os.access(MILLRACE, os.X_OK):
         print("FAIL setup: %s not found (run make first)" % MILLRACE)
@@ -891,18 +910,7 @@ def main():
             ("identity_least_squares", lambda: identity_least_squares(rng, tmp)),
             ("published_doll_hill", lambda: published_doll_hill(tmp)),
         ]
-        for name, fn in checks:
-            try:
-                problems = fn()
-            except Exception as exc:  # one broken case must not hide the others
-                problems = ["%s: %s" % (type(exc).__name__, exc)]
-            if problems:
-                failed += 1
-                print("FAIL %s: %s" % (name, "; ".join(problems)))
-            else:
-                passed += 1
-                print("ok %s" % name)
-            sys.stdout.flush()
+        passed, failed = run_checks(checks)
     finally:
         shutil.rmtree(tmp, ignore_errors=True)
     print("%d passed, %d failed" % (passed, failed))
