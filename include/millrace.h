@@ -201,7 +201,9 @@ MR_API void mr_fitter_set_progress(mr_fitter *f, mr_progress_fn fn, void *user);
 
 /* Fits the model to the CSV (optionally zstd-compressed) at `path`, or to
  * standard input when path is "-".  The input is only read, once or more
- * (standard input is kept in an unlinked temporary file for that); a file
+ * (input that is not a regular file - standard input, a pipe such as
+ * /dev/fd/N, a FIFO, a device - is copied during the first pass to an
+ * unlinked temporary file in $TMPDIR, and later passes read the copy); a file
  * that changes between reads (its size, time, header or rows not as first
  * read) ends the fit with MR_ERR_IO.  On MR_OK, *out receives a new fit that the caller frees with mr_fit_free;
  * a fit that stopped at the pass limit is still returned with MR_OK and

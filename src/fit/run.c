@@ -136,14 +136,29 @@ static const char *temp_dir(void)
     return dir != NULL && *dir != '\0' ? dir : "/tmp";
 }
 
+/* Input that may not be there to read again - standard input, a pipe (a
+ * /dev/fd/N name, as a shell's process substitution gives), a FIFO, a
+ * character device, a socket - is copied as the first pass reads it, and
+ * later passes read the copy: reopening a FIFO would wait for ever for a
+ * writer, and a pipe read again is empty.  Only a regular file (or a
+ * directory, which the source refuses) is read where it is. */
+static int read_only_once(const char *path)
+{
+    struct stat st;
+    if (strcmp(path, "-") == 0) return 1;
+    return stat(path, &st) == 0 && !S_ISREG(st.st_mode) && !S_ISDIR(st.st_mode);
+}
+
 static mr_status open_spool(mr__run *r, mr__error *err)
 {
     const char *dir = temp_dir();
-    snprintf(r->spool, sizeof r->spool, "%s/millrace-stdin-XXXXXX", dir);
+    snprintf(r->spool, sizeof r->spool, "%s/millrace-input-XXXXXX", dir);
     r->spool_fd = mkstemp(r->spool);
     if (r->spool_fd < 0)
-        return mr__fail(err, MR_ERR_IO, "cannot create a temporary file in %s to keep standard input: %s", dir,
-                        strerror(errno));
+        return mr__fail(err, MR_ERR_IO,
+                        "%s can be read only once, and its copy for the later passes cannot be created in %s: %s "
+                        "(set TMPDIR to a writable directory with room for the whole input)",
+                        r->display, dir, strerror(errno));
     /* Unlinked at once, so that nothing is left behind however the process
      * ends; later passes reopen it through the descriptor. */
     unlink(r->spool);
@@ -155,7 +170,7 @@ static mr_status scan_pass(mr__run *r, mr__error *err)
 {
     mr__pass_cfg c = pass_config(r, MR__PASS_SCAN);
     mr_status st;
-    if (strcmp(r->path, "-") == 0) {
+    if (read_only_once(r->path)) {
         MR__TRY(open_spool(r, err));
         c.tee_fd = r->spool_fd;
     }
@@ -172,7 +187,7 @@ static mr_status scan_pass(mr__run *r, mr__error *err)
     if (r->read_path == r->spool) {
         struct stat sb;
         if (stat(r->spool, &sb) != 0)
-            return mr__fail(err, MR_ERR_IO, "cannot reread the copy of standard input: %s", strerror(errno));
+            return mr__fail(err, MR_ERR_IO, "%s: cannot reread its copy: %s", r->display, strerror(errno));
         r->size = (uint64_t)sb.st_size;
         r->mtime_ns = (int64_t)sb.st_mtim.tv_sec * 1000000000 + sb.st_mtim.tv_nsec;
     }

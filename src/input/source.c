@@ -111,7 +111,10 @@ static mr_status tee(mr__source *s, const char *p, size_t n, mr__error *err)
         ssize_t w = write(s->tee_fd, p, n);
         if (w < 0) {
             if (errno == EINTR) continue;
-            return mr__fail(err, MR_ERR_IO, "cannot keep a copy of standard input: %s", strerror(errno));
+            return mr__fail(err, MR_ERR_IO,
+                            "%s can be read only once, and its copy for the later passes cannot be written: %s "
+                            "(set TMPDIR to a directory with room for the whole input)",
+                            s->display, strerror(errno));
         }
         p += w;
         n -= (size_t)w;
