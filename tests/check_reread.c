@@ -15,6 +15,7 @@
 #include <unistd.h>
 
 #include "millrace.h"
+#include "input/source.h"
 #include "check_common.h"
 
 enum { ROWS = 40000 }; /* three blocks of rows (src/input/chunk.h) */
@@ -23,6 +24,7 @@ typedef struct {
     char path[64];
     long join_at;       /* >= 0: the byte that becomes ',' once pass 1 ends */
     long cut_to;        /* >= 0: the length the file is cut to then */
+    int collapse;       /* 1: let the rows collapse (a fit that reads the file once) */
     int done;
 } tamper;
 
@@ -68,7 +70,7 @@ static mr_status fit_tampered(tamper *t, int threads, char *msg, size_t cap)
     for (i = 0; model[i]; i++) ck_assert_int_eq(mr_fitter_model_line(f, model[i], "test"), MR_OK);
     mr_fitter_set_int(f, MR_OPT_THREADS, threads);
     mr_fitter_set_int(f, MR_OPT_NO_CACHE, 1);
-    mr_fitter_set_int(f, MR_OPT_NO_COLLAPSE, 1);
+    mr_fitter_set_int(f, MR_OPT_NO_COLLAPSE, !t->collapse);
     mr_fitter_set_progress(f, on_progress, t);
     st = mr_fitter_run(f, t->path, &fit);
     snprintf(msg, cap, "%s", st == MR_OK ? "" : mr_fitter_errmsg(f));
@@ -84,7 +86,7 @@ static void make_file(tamper *t)
     ck_assert_int_ge(mkstemp(t->path), 0);
     write_rows(t->path);
     t->join_at = t->cut_to = -1;
-    t->done = 0;
+    t->done = t->collapse = 0;
 }
 
 START_TEST(test_unchanged_file_fits)
@@ -133,6 +135,70 @@ START_TEST(test_file_cut_short)
 }
 END_TEST
 
+START_TEST(test_one_read_fit_cut_short)
+{
+    /* The rows collapse into covariate patterns, so the file is read once:
+     * cut as that read ends, it must not be fitted as if it were whole. */
+    tamper t;
+    char msg[512];
+    make_file(&t);
+    t.collapse = 1;
+    t.cut_to = 1000;
+    ck_assert_int_eq(fit_tampered(&t, 1 + _i, msg, sizeof msg), MR_ERR_IO);
+    ck_assert_msg(strstr(msg, "changed") != NULL, "%s", msg);
+    unlink(t.path);
+}
+END_TEST
+
+START_TEST(test_one_read_fit_unchanged)
+{
+    tamper t;
+    char msg[512];
+    make_file(&t);
+    t.collapse = 1;
+    ck_assert_int_eq(fit_tampered(&t, 1 + _i, msg, sizeof msg), MR_OK);
+    unlink(t.path);
+}
+END_TEST
+
+/* A file cut while it is read ends early: the bytes read fall short of its
+ * size at open (reads of 16 bytes, so the cut lands mid-file), even when
+ * its size and time are put back before the read is checked. */
+START_TEST(test_source_ends_early)
+{
+    tamper t;
+    mr__source *src;
+    mr__error err;
+    struct stat st;
+    struct timespec times[2];
+    char buf[64];
+    size_t got, total = 0;
+    int fd;
+    make_file(&t);
+    mr__error_clear(&err);
+    ck_assert_int_eq(mr__source_open(&src, t.path, t.path, 16, -1, &err), MR_OK);
+    ck_assert_int_eq(mr__source_read(src, buf, sizeof buf, &got, &err), MR_OK);
+    fd = open(t.path, O_WRONLY);
+    ck_assert_int_ge(fd, 0);
+    ck_assert_int_eq(fstat(fd, &st), 0);
+    ck_assert_int_eq(ftruncate(fd, 200), 0);
+    do {
+        ck_assert_int_eq(mr__source_read(src, buf, sizeof buf, &got, &err), MR_OK);
+        total += got;
+    } while (got > 0);
+    ck_assert_uint_lt(total, 200);
+    ck_assert_int_eq(ftruncate(fd, st.st_size), 0);
+    times[0] = st.st_atim;
+    times[1] = st.st_mtim;
+    ck_assert_int_eq(futimens(fd, times), 0);
+    close(fd);
+    ck_assert_int_eq(mr__source_check_unchanged(src, 1, &err), MR_ERR_IO);
+    ck_assert_msg(strstr(err.msg, "changed") != NULL, "%s", err.msg);
+    mr__source_close(src);
+    unlink(t.path);
+}
+END_TEST
+
 static Suite *reread_suite(void)
 {
     Suite *s = suite_create("reread");
@@ -140,6 +206,9 @@ static Suite *reread_suite(void)
     tcase_add_loop_test(tc, test_unchanged_file_fits, 0, 2); /* 1 and 2 workers */
     tcase_add_loop_test(tc, test_rows_joined_same_size_and_time, 0, 2);
     tcase_add_loop_test(tc, test_file_cut_short, 0, 2);
+    tcase_add_loop_test(tc, test_one_read_fit_cut_short, 0, 2);
+    tcase_add_loop_test(tc, test_one_read_fit_unchanged, 0, 2);
+    tcase_add_test(tc, test_source_ends_early);
     tcase_set_timeout(tc, 120);
     suite_add_tcase(s, tc);
     return s;

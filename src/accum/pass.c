@@ -808,6 +808,8 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
         else e.reader_started = 1;
     }
     if (st == MR_OK) st = combine_all(&e, res, t0, err);
+    /* a pass by the map read the header only through the stream */
+    if (st == MR_OK && e.src != NULL) st = mr__source_check_unchanged(e.src, !e.by_map, err);
     stop_threads(&e);
     finish_source(&e, res);
     /* offsets in the stream are offsets in the file only when it is plain */

@@ -28,6 +28,11 @@ struct mr__source {
     int no_checksum;
 };
 
+static int64_t mtime_of(const struct stat *st)
+{
+    return (int64_t)st->st_mtim.tv_sec * 1000000000 + st->st_mtim.tv_nsec;
+}
+
 mr_status mr__source_open(mr__source **out, const char *path, const char *display, size_t read_size,
                           int tee_fd, mr__error *err)
 {
@@ -63,7 +68,7 @@ mr_status mr__source_open(mr__source **out, const char *path, const char *displa
         if (S_ISREG(st.st_mode)) {
             s->is_file = 1;
             s->size = (uint64_t)st.st_size;
-            s->mtime_ns = (int64_t)st.st_mtim.tv_sec * 1000000000 + st.st_mtim.tv_nsec;
+            s->mtime_ns = mtime_of(&st);
         }
     }
     *out = s;
@@ -263,6 +268,20 @@ uint64_t mr__source_checksum(const mr__source *s)
     if (s->carry_len == 0) return h;
     memcpy(&w, s->carry, s->carry_len);
     return (h ^ w) * FNV_PRIME;
+}
+
+mr_status mr__source_check_unchanged(const mr__source *s, int read_to_end, mr__error *err)
+{
+    struct stat st;
+    if (!s->is_file) return MR_OK;
+    if (fstat(s->fd, &st) != 0) return mr__fail(err, MR_ERR_IO, "%s: cannot stat: %s", s->display, strerror(errno));
+    if ((uint64_t)st.st_size != s->size || mtime_of(&st) != s->mtime_ns)
+        return mr__fail(err, MR_ERR_IO, "%s: the file changed during the fit (%llu bytes when opened, %llu now)",
+                        s->display, (unsigned long long)s->size, (unsigned long long)st.st_size);
+    if (read_to_end && s->raw_bytes != s->size)
+        return mr__fail(err, MR_ERR_IO, "%s: the file changed during the fit (%llu bytes when opened, it ended after %llu)",
+                        s->display, (unsigned long long)s->size, (unsigned long long)s->raw_bytes);
+    return MR_OK;
 }
 
 void mr__source_identity(const mr__source *s, uint64_t *size, int64_t *mtime_ns)
