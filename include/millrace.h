@@ -155,7 +155,11 @@ typedef enum mr_int_option {
                                 from a temporary cache file (default 0).
                                 The cache lives in $TMPDIR (default /tmp),
                                 is unlinked at once, and is skipped when it
-                                could take more than half the free space. */
+                                could take more than half the free space.
+                                When it cannot be created or written (a
+                                full or read-only TMPDIR) the fit goes on
+                                rereading the file, with the same results,
+                                and says so in a warning. */
     MR_OPT_NO_COLLAPSE = 7   /* 1: never collapse rows into covariate
                                 patterns (default 0: collapse when every
                                 term is a factor or a numeric with few

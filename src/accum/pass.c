@@ -620,7 +620,7 @@ static void merge_patterns(const mr__pass_cfg *cfg, mr__pass_result *res, const 
 
 /* The block as the store's next one: the bytes the worker packed, or the
  * block itself (memory store, or a block packed by nobody). */
-static mr_status keep_block(const mr__pass_cfg *cfg, slot *s, mr__error *err)
+static mr_status put_block(const mr__pass_cfg *cfg, slot *s, mr__error *err)
 {
     mr__pattern_rows *patterns = s->block.patterns;
     mr_status st;
@@ -633,6 +633,22 @@ static mr_status keep_block(const mr__pass_cfg *cfg, slot *s, mr__error *err)
     return st;
 }
 
+/* The cache file only saves time: a write to it that fails (a full disk,
+ * a file size limit) gives it up for the rest of the pass, which goes on
+ * without it, and the caller learns why from store_failed.  The store is
+ * left as it is: workers still look at it while the pass runs. */
+static mr_status keep_block(const mr__pass_cfg *cfg, mr__pass_result *res, slot *s, mr__error *err)
+{
+    mr_status st;
+    if (res->store_failed) return MR_OK;
+    st = put_block(cfg, s, err);
+    if (st != MR_ERR_IO || cfg->store->fd < 0) return st;
+    res->store_failed = 1;
+    res->store_err = *err;
+    mr__error_clear(err);
+    return MR_OK;
+}
+
 /* The first pass keeps its decoded blocks for the IRLS passes unless the
  * rows may still collapse into patterns (then the patterns replace them).
  * If collapsing is given up after some blocks went unkept, the store is
@@ -643,7 +659,7 @@ static mr_status keep_scanned(const mr__pass_cfg *cfg, mr__pass_result *res, slo
         res->store_incomplete = 1;
         return MR_OK;
     }
-    return keep_block(cfg, s, err);
+    return keep_block(cfg, res, s, err);
 }
 
 static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *err)
@@ -667,7 +683,7 @@ static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *
         return keep_sample(e, res, s, err);
     }
     mr__sums_add(&res->sums, &s->sums, cfg->point->design);
-    if (cfg->store && cfg->store_fill) st = keep_block(cfg, s, err);
+    if (cfg->store && cfg->store_fill) st = keep_block(cfg, res, s, err);
     return st;
 }
 

@@ -260,9 +260,33 @@ static mr_status settle_scan(mr__run *r, mr__error *err)
     return mr__design_build(&r->design, &r->f->spec, &r->bind, r->fac, r->mean, r->spread, err);
 }
 
+/* The cache only saves time: when it cannot be had (no file can be made in
+ * TMPDIR, or a write to it failed), every pass rereads the input, which
+ * gives the same bits, and the fit's warnings say why, once. */
+static void go_without_cache(mr__run *r, const char *why)
+{
+    mr__store_release(&r->store);
+    r->use_store = r->cached = r->store_filled = 0;
+    if (r->cache_note[0] == '\0')
+        snprintf(r->cache_note, sizeof r->cache_note, "no cache: %s; every pass rereads the input", why);
+}
+
+/* A cache file in TMPDIR, or none (and the reason noted). */
+static void open_cache(mr__run *r)
+{
+    mr__error scratch;
+    mr__error_clear(&scratch);
+    if (mr__store_init_file(&r->store, temp_dir(), &scratch) != MR_OK) {
+        go_without_cache(r, scratch.msg);
+        return;
+    }
+    r->use_store = 1;
+    r->cached = 1;
+}
+
 /* Where later passes get their rows: memory (asked for), a cache file
  * (default, when the disk has room), or the input again. */
-static mr_status choose_store(mr__run *r, mr__error *err)
+static void choose_store(mr__run *r)
 {
     const char *dir = temp_dir();
     struct statvfs fs;
@@ -270,27 +294,27 @@ static mr_status choose_store(mr__run *r, mr__error *err)
     double need = 0, room;
     /* Before the first pass only the input's size is known: decoded
      * columns take about 1.5 times the text, and zstd text about 4 times
-     * less than that (generous on both counts). */
+     * less than that (generous on both counts, but a zstd file of blank
+     * lines or repeated rows can expand far more: then a write fails and
+     * the cache is given up). */
     if (strcmp(r->path, "-") != 0 && stat(r->path, &in) == 0) need = 8.0 * (double)in.st_size;
     if (r->f->in_memory) {
         mr__store_init_packed(&r->store);
         r->use_store = 1;
-        return MR_OK;
+        return;
     }
     mr__store_init_memory(&r->store);
-    if (r->f->no_cache) return MR_OK;
-    if (statvfs(dir, &fs) != 0) return MR_OK;
-    room = (double)fs.f_bavail * (double)fs.f_frsize;
-    if (need > room / 2) {
-        snprintf(r->cache_note, sizeof r->cache_note,
-                 "no cache: it could need %.0f MB and %s has %.0f MB free; every pass rereads the input",
-                 need / 1e6, dir, room / 1e6);
-        return MR_OK;
+    if (r->f->no_cache) return;
+    if (statvfs(dir, &fs) == 0) {
+        room = (double)fs.f_bavail * (double)fs.f_frsize;
+        if (need > room / 2) {
+            snprintf(r->cache_note, sizeof r->cache_note,
+                     "no cache: it could need %.0f MB and %s has %.0f MB free; every pass rereads the input",
+                     need / 1e6, dir, room / 1e6);
+            return;
+        }
     }
-    MR__TRY(mr__store_init_file(&r->store, dir, err));
-    r->use_store = 1;
-    r->cached = 1;
-    return MR_OK;
+    open_cache(r);
 }
 
 /* Maps each first-pass decoder's level numbers to the shared ones. */
@@ -320,14 +344,18 @@ static mr_status settle_store(mr__run *r, mr__error *err)
 {
     int file = r->store.fd >= 0;
     if (!r->use_store) return MR_OK;
+    if (r->first.store_failed) {
+        go_without_cache(r, r->first.store_err.msg);
+        return MR_OK;
+    }
     if (r->collapsed || r->first.store_incomplete) {
         mr__store_release(&r->store);
         if (r->collapsed) {
             r->use_store = r->cached = 0;
             return MR_OK;
         }
-        if (file) return mr__store_init_file(&r->store, temp_dir(), err);
-        mr__store_init_packed(&r->store);
+        if (file) open_cache(r);
+        else mr__store_init_packed(&r->store);
         return MR_OK;
     }
     MR__TRY(build_remap(r, err));
@@ -526,7 +554,8 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
     res->sums.dev += job->deviance_shift;
     res->sums.null_dev = null_dev_known ? *null_dev_known : res->sums.null_dev + job->deviance_shift;
     if (st != MR_OK || job->replay) return st;
-    if (c.store) r->store_filled = 1;
+    if (res->store_failed) go_without_cache(r, res->store_err.msg);
+    else if (c.store) r->store_filled = 1;
     MR__TRY(check_same_input(r, res, err));
     return note_pass(r, res, err);
 }
@@ -837,8 +866,8 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
     r.dcfg.collapse = collapse_mode(&r);
     r.dcfg.collapse_abandoned = &r.collapse_abandoned;
     st = mr__spec_validate(&f->spec, err);
-    if (st == MR_OK) st = choose_store(&r, err);
     if (st == MR_OK) {
+        choose_store(&r);
         /* Our workers use every core; BLAS threads inside them would only
          * oversubscribe. */
         openblas_set_num_threads(1);

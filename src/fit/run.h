@@ -48,7 +48,7 @@ typedef struct mr__run {
     size_t npatterns;
     mr__store patterns;
     double within_deviance;
-    char cache_note[256];
+    char cache_note[MR__MSG_CAP + 64]; /* why there is no cache (a warning) */
     /* IRLS */
     mr__pass_result last; /* sums at the reported coefficients */
     double *beta_a, *beta_b, *beta_c, *beta_final, *beta_warm;
