@@ -676,7 +676,7 @@ static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *
     }
     if (cfg->kind == MR__PASS_SCAN) {
         const mr__chunk *c = s->chunk;
-        MR__TRY(mr__block_map_add(&res->map, c->offset, c->end, c->first_line, c->nrows, err));
+        MR__TRY(mr__block_map_add(&res->map, c->offset, c->end, c->first_line, c->nrows, c->len, err));
         mr__scan_add(&res->scan, &s->scan, cfg->dcfg->bind->ncol, cfg->dcfg->bind->nnum);
         if (res->collapsed) merge_patterns(cfg, res, &s->block);
         if (cfg->store) MR__TRY(keep_scanned(cfg, res, s, err));
@@ -829,7 +829,7 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     stop_threads(&e);
     finish_source(&e, res);
     /* offsets in the stream are offsets in the file only when it is plain */
-    res->map.usable = st == MR_OK && cfg->kind == MR__PASS_SCAN && !res->zstd;
+    res->map.usable = st == MR_OK && cfg->kind == MR__PASS_SCAN && !res->zstd && !res->map.mostly_blank;
     if (st == MR_OK && cfg->kind == MR__PASS_SCAN) st = take_levels(&e, res, err);
     /* A worker may give up collapsing after its block was merged. */
     if (res->collapsed && atomic_load(cfg->dcfg->collapse_abandoned)) merge_patterns(cfg, res, NULL);

@@ -23,11 +23,17 @@ typedef struct mr__block_map {
     mr__block_span *span; /* block i at span[i] */
     size_t n, cap;
     int usable;           /* set once complete and the stream is the file's bytes */
+    int mostly_blank;     /* some block's bytes are mostly blank lines: see below */
 } mr__block_map;
 
-/* Appends the next block; a zeroed map is empty. */
+/* Appends the next block, whose rows (blank lines left out) took `kept`
+ * bytes; a zeroed map is empty.  A worker reads a block whole, blank lines
+ * and all, where the stream skips them as they come: a block holding a
+ * long run of them (gigabytes, in a file of blank lines) would take that
+ * much memory.  Such a block marks the map mostly_blank, and later passes
+ * then stream the file. */
 mr_status mr__block_map_add(mr__block_map *m, uint64_t offset, uint64_t end, uint64_t first_line, uint32_t nrows,
-                            mr__error *err);
+                            uint64_t kept, mr__error *err);
 void mr__block_map_release(mr__block_map *m);
 
 #endif

@@ -75,6 +75,27 @@ fi
 same blank_runs_zstd "$tmp/runs.csv.zst" --threads 2
 same blank_runs_zstd_small_reads "$tmp/runs.csv.zst" --threads 1 --buffer-size 4096 --in-memory
 
+# A plain file with a 128 MiB run inside a block, reread on every pass: the
+# same numbers, and the passes stream the file instead of reading that block
+# whole into memory (peak resident set within 48 MB of the rows alone's).
+peak_rss_kb() {
+    /usr/bin/python3 -c '
+import resource, subprocess, sys
+rc = subprocess.call(sys.argv[2:], stdout=subprocess.DEVNULL, stderr=open(sys.argv[1], "w"))
+print(resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss if rc == 0 else "exit %d" % rc)
+' "$@"
+}
+{ echo "$header"; cat "$tmp/rows_a.csv"; head -c 134217728 /dev/zero | tr '\0' '\n'; cat "$tmp/rows_b.csv"; } > "$tmp/runs.csv"
+same blank_run_plain_no_cache "$tmp/runs.csv" --no-cache --threads 2
+base_kb=$(peak_rss_kb "$tmp/rss_base.err" "$bin" fit --quiet --no-cache --threads 2 "${model[@]}" "$tmp/base.csv")
+runs_kb=$(peak_rss_kb "$tmp/rss_runs.err" "$bin" fit --quiet --no-cache --threads 2 "${model[@]}" "$tmp/runs.csv")
+if [ -n "${base_kb##*exit*}" ] && [ -n "${runs_kb##*exit*}" ] && [ "$runs_kb" -lt $((base_kb + 48000)) ]; then
+    ok "blank_run_plain_memory ($runs_kb kB, rows alone $base_kb kB)"
+else
+    fail blank_run_plain_memory "$runs_kb kB, rows alone $base_kb kB"
+fi
+rm -f "$tmp/runs.csv"
+
 # The line numbers after a run are true: a bad cell on the first row after it.
 { z "$header"$'\n'; zstd -q -c "$tmp/rows_a.csv"; cat "$tmp/gib.zst"; z $'1,a,oops,1.5\n'; } > "$tmp/bad.csv.zst"
 "$bin" fit --quiet "${model[@]}" "$tmp/bad.csv.zst" > /dev/null 2> "$tmp/bad.err"
