@@ -208,8 +208,8 @@ MR_API void mr_fitter_set_progress(mr_fitter *f, mr_progress_fn fn, void *user);
  * (input that is not a regular file - standard input, a pipe such as
  * /dev/fd/N, a FIFO, a device - is copied during the first pass to an
  * unlinked temporary file in $TMPDIR, and later passes read the copy); a file
- * that changes between reads (its size, time, header or rows not as first
- * read) ends the fit with MR_ERR_IO.  On MR_OK, *out receives a new fit that the caller frees with mr_fit_free;
+ * that changes between reads (its size, time, header, rows or bytes not as
+ * first read: later passes compare checksums) ends the fit with MR_ERR_IO.  On MR_OK, *out receives a new fit that the caller frees with mr_fit_free;
  * a fit that stopped at the pass limit is still returned with MR_OK and
  * flagged (mr_fit_status() gives MR_ERR_NOT_CONVERGED).  On any other
  * status *out is NULL and mr_fitter_errmsg says why.  The fitter may be run

@@ -22,7 +22,8 @@ enum { ROWS = 40000 }; /* three blocks of rows (src/input/chunk.h) */
 
 typedef struct {
     char path[64];
-    long join_at;       /* >= 0: the byte that becomes ',' once pass 1 ends */
+    long join_at;       /* >= 0: the byte that becomes `put` once pass 1 ends */
+    char put;           /* ',' (joins two rows) unless a test says otherwise */
     long cut_to;        /* >= 0: the length the file is cut to then */
     int collapse;       /* 1: let the rows collapse (a fit that reads the file once) */
     int done;
@@ -30,13 +31,17 @@ typedef struct {
 
 /* Counts per row vary with the row number only, so any row order would do;
  * what matters is that the file has ROWS rows of fixed width. */
-static void write_rows(const char *path)
+static void write_rows(const char *path, long blank_lines)
 {
     FILE *f = fopen(path, "w");
     long i;
     ck_assert_ptr_nonnull(f);
     fputs("count,group,years\n", f);
-    for (i = 0; i < ROWS; i++) fprintf(f, "%ld,%c,%ld.5\n", i % 7, "abc"[i % 3], 1 + i % 4);
+    for (i = 0; i < ROWS; i++) {
+        if (i == 100)
+            while (blank_lines-- > 0) fputc('\n', f);
+        fprintf(f, "%ld,%c,%ld.5\n", i % 7, "abc"[i % 3], 1 + i % 4);
+    }
     ck_assert_int_eq(fclose(f), 0);
 }
 
@@ -50,7 +55,7 @@ static void on_progress(const mr_progress *p, void *user)
     t->done = 1;
     fd = open(t->path, O_WRONLY);
     if (fd < 0 || fstat(fd, &st) != 0) return;
-    if (t->join_at >= 0) (void)!pwrite(fd, ",", 1, t->join_at);
+    if (t->join_at >= 0) (void)!pwrite(fd, &t->put, 1, t->join_at);
     if (t->cut_to >= 0) (void)!ftruncate(fd, t->cut_to);
     if (t->join_at >= 0) {
         struct timespec times[2] = {st.st_atim, st.st_mtim};
@@ -80,13 +85,31 @@ static mr_status fit_tampered(tamper *t, int threads, char *msg, size_t cap)
     return st;
 }
 
-static void make_file(tamper *t)
+static void make_file_blank(tamper *t, long blank_lines)
 {
     strcpy(t->path, "/tmp/millrace-reread-XXXXXX");
     ck_assert_int_ge(mkstemp(t->path), 0);
-    write_rows(t->path);
+    write_rows(t->path, blank_lines);
+    t->put = ',';
     t->join_at = t->cut_to = -1;
     t->done = t->collapse = 0;
+}
+
+static void make_file(tamper *t) { make_file_blank(t, 0); }
+
+/* Where line `line` (1 = the header) of the file starts. */
+static long line_start(const char *path, long line)
+{
+    FILE *f = fopen(path, "r");
+    long at = 0, n = 1;
+    int c;
+    ck_assert_ptr_nonnull(f);
+    while (n < line && (c = fgetc(f)) != EOF) {
+        at++;
+        if (c == '\n') n++;
+    }
+    fclose(f);
+    return at;
 }
 
 START_TEST(test_unchanged_file_fits)
@@ -199,6 +222,44 @@ START_TEST(test_source_ends_early)
 }
 END_TEST
 
+/* A count in the second block goes up by one between passes: the rows
+ * cut as before (same size, same time, same line ends), only a number
+ * differs.  The later passes' checksums must see it: by the block map
+ * (each block's rows against the first pass's), and streamed (the whole
+ * file's, as when a block is mostly blank lines). */
+static void check_digit_changed(long blank_lines, int threads)
+{
+    tamper t;
+    char msg[512];
+    FILE *f;
+    make_file_blank(&t, blank_lines);
+    t.join_at = line_start(t.path, 1 + blank_lines + 20000 + 1);
+    f = fopen(t.path, "r");
+    ck_assert_ptr_nonnull(f);
+    ck_assert_int_eq(fseek(f, t.join_at, SEEK_SET), 0);
+    t.put = (char)(fgetc(f) + 1); /* counts are 0..6 */
+    fclose(f);
+    ck_assert_int_eq(fit_tampered(&t, threads, msg, sizeof msg), MR_ERR_IO);
+    ck_assert_msg(strstr(msg, "changed") != NULL, "%s", msg);
+    unlink(t.path);
+}
+
+START_TEST(test_digit_changed_by_map) { check_digit_changed(0, 1 + _i); }
+END_TEST
+
+START_TEST(test_digit_changed_streamed) { check_digit_changed(3 << 20, 1 + _i); }
+END_TEST
+
+START_TEST(test_blank_run_unchanged_streamed)
+{
+    tamper t;
+    char msg[512];
+    make_file_blank(&t, 3 << 20);
+    ck_assert_int_eq(fit_tampered(&t, 1 + _i, msg, sizeof msg), MR_OK);
+    unlink(t.path);
+}
+END_TEST
+
 static Suite *reread_suite(void)
 {
     Suite *s = suite_create("reread");
@@ -209,6 +270,9 @@ static Suite *reread_suite(void)
     tcase_add_loop_test(tc, test_one_read_fit_cut_short, 0, 2);
     tcase_add_loop_test(tc, test_one_read_fit_unchanged, 0, 2);
     tcase_add_test(tc, test_source_ends_early);
+    tcase_add_loop_test(tc, test_digit_changed_by_map, 0, 2);
+    tcase_add_loop_test(tc, test_digit_changed_streamed, 0, 2);
+    tcase_add_loop_test(tc, test_blank_run_unchanged_streamed, 0, 2);
     tcase_set_timeout(tc, 120);
     suite_add_tcase(s, tc);
     return s;

@@ -25,6 +25,7 @@ typedef struct slot {
     mr__scan_sums scan;
     mr__block_sums sums;
     uint64_t raw_bytes;      /* input consumed when the chunk was complete */
+    uint64_t rows_hash;      /* first pass over plain text: for the block map */
     char *packed;            /* the block in its packed form (file store, sample) */
     size_t packed_len;       /* 0: nothing packed */
     const char *kept;        /* a kept block to unpack (in packed or in the store) */
@@ -184,6 +185,10 @@ static void read_mapped_block(const engine *e, slot *s)
     if (s->st == MR_OK)
         s->st = mr__splitter_recut(c, len, e->cfg->display, s->index * (uint64_t)MR__BLOCK_ROWS, b->first_line,
                                    b->nrows, s->index + 1 == m->n, &s->err);
+    if (s->st == MR_OK && mr__chunk_rows_hash(c) != b->rows_hash)
+        s->st = mr__fail(&s->err, MR_ERR_IO,
+                         "%s: the file changed during the fit (the rows from line %llu on are not those first read)",
+                         e->cfg->display, (unsigned long long)b->first_line);
 }
 
 static void fetch_block(const engine *e, slot *s)
@@ -240,6 +245,8 @@ static void compute(worker *w, slot *s)
         s->use = &s->block;
         s->kept = NULL;
     } else if (s->use == NULL) {
+        /* only plain text is ever reread by the map */
+        if (cfg->kind == MR__PASS_SCAN && !mr__source_is_zstd(w->e->src)) s->rows_hash = mr__chunk_rows_hash(s->chunk);
         s->st = mr__decode_chunk(&w->dec, s->chunk, &s->block, &s->err);
         s->use = &s->block;
         if (s->st != MR_OK || s->block.failed) return;
@@ -552,9 +559,6 @@ static mr_status begin_stream(engine *e, mr__error *err)
     const mr__pass_cfg *cfg = e->cfg;
     slot *first;
     MR__TRY(mr__source_open(&e->src, cfg->path, cfg->display, cfg->read_size, cfg->tee_fd, err));
-    /* the first pass's checksum is the one reported; later reads of the
-     * file are checked against its size and time */
-    if (cfg->kind != MR__PASS_SCAN) mr__source_skip_checksum(e->src);
     e->buf_cap = cfg->read_size < 16 ? 16 : cfg->read_size < HEADER_READ ? cfg->read_size : HEADER_READ;
     e->buf = mr__malloc(e->buf_cap);
     if (e->buf == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
@@ -676,7 +680,7 @@ static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *
     }
     if (cfg->kind == MR__PASS_SCAN) {
         const mr__chunk *c = s->chunk;
-        MR__TRY(mr__block_map_add(&res->map, c->offset, c->end, c->first_line, c->nrows, c->len, err));
+        MR__TRY(mr__block_map_add(&res->map, c, s->rows_hash, err));
         mr__scan_add(&res->scan, &s->scan, cfg->dcfg->bind->ncol, cfg->dcfg->bind->nnum);
         if (res->collapsed) merge_patterns(cfg, res, &s->block);
         if (cfg->store) MR__TRY(keep_scanned(cfg, res, s, err));

@@ -119,12 +119,15 @@ static mr_status note_pass(mr__run *r, const mr__pass_result *res, mr__error *er
     return MR_OK;
 }
 
-/* Later passes must see the very file the first pass saw. */
+/* Later passes must see the very file the first pass saw: its size and
+ * time, and its checksum (an edit in place may keep both). */
 static mr_status check_same_input(mr__run *r, const mr__pass_result *res, mr__error *err)
 {
+    int streamed_same;
     if (res->raw_bytes == 0 && r->use_store) return MR_OK;
-    /* a pass by the map checked each block's bytes and rows itself */
-    if (res->size != r->size || res->mtime_ns != r->mtime_ns || (!res->by_map && res->raw_bytes != r->raw_bytes))
+    /* a pass by the map checked each block's rows and their checksum itself */
+    streamed_same = res->by_map || (res->raw_bytes == r->raw_bytes && res->checksum == r->first.checksum);
+    if (res->size != r->size || res->mtime_ns != r->mtime_ns || !streamed_same)
         return mr__fail(err, MR_ERR_IO, "%s: the file changed during the fit", r->display);
     return MR_OK;
 }

@@ -32,9 +32,6 @@ int mr__source_is_zstd(const mr__source *s);
 /* FNV-1a 64 of the raw bytes read so far, taken as little-endian 64-bit
  * words (the last partial word zero-padded). */
 uint64_t mr__source_checksum(const mr__source *s);
-/* From now on bytes are only counted, not checksummed: a pass that reads
- * the file again needs its size, not a second checksum (0 from then on). */
-void mr__source_skip_checksum(mr__source *s);
 /* Whether the input is a regular file (so mr__source_pread can read it). */
 int mr__source_is_file(const mr__source *s);
 /* n bytes from `offset` of the file as they are (never decompressed; not
