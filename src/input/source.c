@@ -11,7 +11,6 @@
 #include "common/fileio.h"
 #include "input/source.h"
 
-
 struct mr__source {
     int fd, owns_fd, tee_fd;
     const char *display;

@@ -22,15 +22,6 @@ awk 'BEGIN { print "claims,region,age,years";
 zstd -q -f "$tmp/data.csv" -o "$tmp/data.csv.zst"
 model=(--outcome claims --family poisson --factor region --numeric age --exposure years)
 
-values() {
-    /usr/bin/python3 -c '
-import json, sys
-js = json.load(open(sys.argv[1]), parse_float=str, parse_int=str)
-for c in js["coefficients"]:
-    print("estimate[%s] %s std_error %s" % (c["name"], c["estimate"], c["std_error"]))
-print("deviance %s pearson %s rows %s" % (js["fit"]["deviance"], js["fit"]["pearson_chi2"], js["rows"]["read"]))
-' "$1"
-}
 
 # fit NAME [options...] DATA: exit code in $rc, report in $tmp/NAME.out
 fit() {
@@ -46,17 +37,17 @@ fallback() {
     [ "$rc" -eq 0 ] || problems+="exit $rc: $(head -c 300 "$tmp/$name.err"); "
     [ "$(grep -c 'no cache' "$tmp/$name.out")" -eq 1 ] || problems+="no single cache warning in the report; "
     grep -q 'rereads the input' "$tmp/$name.out" || problems+="the warning does not say the input is reread; "
-    if [ "$rc" -eq 0 ] && ! values "$tmp/$name.json" | cmp -s - "$tmp/$base.values"; then
-        problems+="differs from --no-cache: $(values "$tmp/$name.json" | diff "$tmp/$base.values" - | head -n 2 | tr '\n' '|')"
+    if [ "$rc" -eq 0 ] && ! fit_values "$tmp/$name.json" | cmp -s - "$tmp/$base.values"; then
+        problems+="differs from --no-cache: $(fit_values "$tmp/$name.json" | diff "$tmp/$base.values" - | head -n 2 | tr '\n' '|')"
     fi
     [ -z "$(ls -A "$TMPDIR")" ] || problems+="left in TMPDIR: $(ls -A "$TMPDIR" | head -n 3 | tr '\n' ' ')"
     [ -z "$problems" ] && ok "$name" || fail "$name" "$problems"
 }
 
 fit base --no-cache "$tmp/data.csv"
-values "$tmp/base.json" > "$tmp/base.values"
+fit_values "$tmp/base.json" > "$tmp/base.values"
 fit base_rows --no-cache --no-collapse "$tmp/data.csv"
-values "$tmp/base_rows.json" > "$tmp/base_rows.values"
+fit_values "$tmp/base_rows.json" > "$tmp/base_rows.values"
 
 # TMPDIR a regular file: no cache file can be made there.
 touch "$tmp/notadir"
