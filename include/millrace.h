@@ -157,7 +157,8 @@ typedef enum mr_int_option {
                                 is unlinked at once, and is skipped when it
                                 could take more than half the free space.
                                 When it cannot be created or written (a
-                                full or read-only TMPDIR) the fit goes on
+                                full or read-only TMPDIR), or grows past
+                                half the free space, the fit goes on
                                 rereading the file, with the same results,
                                 and says so in a warning. */
     MR_OPT_NO_COLLAPSE = 7   /* 1: never collapse rows into covariate

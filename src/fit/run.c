@@ -283,6 +283,7 @@ static void open_cache(mr__run *r)
         go_without_cache(r, scratch.msg);
         return;
     }
+    r->store.budget = r->cache_budget;
     r->use_store = 1;
     r->cached = 1;
 }
@@ -310,6 +311,8 @@ static void choose_store(mr__run *r)
     if (r->f->no_cache) return;
     if (statvfs(dir, &fs) == 0) {
         room = (double)fs.f_bavail * (double)fs.f_frsize;
+        /* the estimate can be far off: the cache stops at half the room */
+        r->cache_budget = room / 2 >= 1 ? (uint64_t)(room / 2) : 1;
         if (need > room / 2) {
             snprintf(r->cache_note, sizeof r->cache_note,
                      "no cache: it could need %.0f MB and %s has %.0f MB free; every pass rereads the input",

@@ -49,6 +49,7 @@ typedef struct mr__run {
     mr__store patterns;
     double within_deviance;
     char cache_note[MR__MSG_CAP + 64]; /* why there is no cache (a warning) */
+    uint64_t cache_budget; /* bytes the cache file may take (0: no limit) */
     /* IRLS */
     mr__pass_result last; /* sums at the reported coefficients */
     double *beta_a, *beta_b, *beta_c, *beta_final, *beta_warm;
