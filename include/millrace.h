@@ -171,7 +171,12 @@ typedef enum mr_int_option {
                                 from a temporary cache file (default 0).
                                 The cache lives in $TMPDIR (default /tmp),
                                 is unlinked at once, and is skipped when it
-                                could take more than half the free space. */
+                                could take more than half the free space.
+                                When it cannot be created or written (a
+                                full or read-only TMPDIR), or grows past
+                                half the free space, the fit goes on
+                                rereading the file, with the same results,
+                                and says so in a warning. */
     MR_OPT_NO_COLLAPSE = 7   /* 1: never collapse rows into covariate
                                 patterns (default 0: collapse when every
                                 term is a factor or a numeric with few
@@ -227,9 +232,11 @@ MR_API void mr_fitter_set_progress_stop(mr_fitter *f, mr_progress_stop_fn fn, vo
 
 /* Fits the model to the CSV (optionally zstd-compressed) at `path`, or to
  * standard input when path is "-".  The input is only read, once or more
- * (standard input is kept in an unlinked temporary file for that); a file
- * that changes between reads (its size, time, header or rows not as first
- * read) ends the fit with MR_ERR_IO.  On MR_OK, *out receives a new fit that the caller frees with mr_fit_free;
+ * (input that is not a regular file - standard input, a pipe such as
+ * /dev/fd/N, a FIFO, a device - is copied during the first pass to an
+ * unlinked temporary file in $TMPDIR, and later passes read the copy); a file
+ * that changes between reads (its size, time, header, rows or bytes not as
+ * first read: later passes compare checksums) ends the fit with MR_ERR_IO.  On MR_OK, *out receives a new fit that the caller frees with mr_fit_free;
  * a fit that stopped at the pass limit is still returned with MR_OK and
  * flagged (mr_fit_status() gives MR_ERR_NOT_CONVERGED).  On any other
  * status *out is NULL and mr_fitter_errmsg says why.  The fitter may be run

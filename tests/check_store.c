@@ -119,12 +119,33 @@ START_TEST(test_quick_decimals_match_strtod)
 }
 END_TEST
 
+/* The cache file stops at its budget (half the free space when the fit
+ * began): a zstd input can expand far beyond the size estimate, and the
+ * cache must not fill the disk before a write fails (run.c then goes on
+ * without it).  Source of truth: store.h's contract for mr__store_append. */
+START_TEST(test_file_store_keeps_to_budget)
+{
+    char bytes[64] = {0};
+    mr__store s;
+    mr__error err;
+    mr__error_clear(&err);
+    ck_assert_int_eq(mr__store_init_file(&s, "/tmp", &err), MR_OK);
+    s.budget = 100;
+    ck_assert_int_eq(mr__store_append(&s, bytes, sizeof bytes, &err), MR_OK);
+    ck_assert_int_eq(mr__store_append(&s, bytes, sizeof bytes, &err), MR_ERR_IO);
+    ck_assert_msg(strstr(err.msg, "free space") != NULL, "%s", err.msg);
+    ck_assert_uint_eq(s.n, 1);
+    mr__store_release(&s);
+}
+END_TEST
+
 static Suite *store_suite(void)
 {
     Suite *s = suite_create("store");
     TCase *tc = tcase_create("packed");
     tcase_add_test(tc, test_packed_blocks_round_trip);
     tcase_add_test(tc, test_quick_decimals_match_strtod);
+    tcase_add_test(tc, test_file_store_keeps_to_budget);
     tcase_set_timeout(tc, 120);
     suite_add_tcase(s, tc);
     return s;

@@ -26,6 +26,7 @@ typedef struct slot {
     mr__scan_sums scan;
     mr__block_sums sums;
     uint64_t raw_bytes;      /* input consumed when the chunk was complete */
+    uint64_t rows_hash;      /* first pass over plain text: for the block map */
     char *packed;            /* the block in its packed form (file store, sample) */
     size_t packed_len;       /* 0: nothing packed */
     const char *kept;        /* a kept block to unpack (in packed or in the store) */
@@ -178,6 +179,10 @@ static void read_mapped_block(const engine *e, slot *s)
     if (s->st == MR_OK)
         s->st = mr__splitter_recut(c, len, e->cfg->display, s->index * (uint64_t)MR__BLOCK_ROWS, b->first_line,
                                    b->nrows, s->index + 1 == m->n, &s->err);
+    if (s->st == MR_OK && mr__chunk_rows_hash(c) != b->rows_hash)
+        s->st = mr__fail(&s->err, MR_ERR_IO,
+                         "%s: the file changed during the fit (the rows from line %llu on are not those first read)",
+                         e->cfg->display, (unsigned long long)b->first_line);
 }
 
 static void fetch_block(const engine *e, slot *s)
@@ -234,6 +239,8 @@ static void compute(worker *w, slot *s)
         s->use = &s->block;
         s->kept = NULL;
     } else if (s->use == NULL) {
+        /* only plain text is ever reread by the map */
+        if (cfg->kind == MR__PASS_SCAN && !mr__source_is_zstd(w->e->src)) s->rows_hash = mr__chunk_rows_hash(s->chunk);
         s->st = mr__decode_chunk(&w->dec, s->chunk, &s->block, &s->err);
         s->use = &s->block;
         if (s->st != MR_OK || s->block.failed) return;
@@ -556,9 +563,6 @@ static mr_status begin_stream(engine *e, mr__error *err)
     const mr__pass_cfg *cfg = e->cfg;
     slot *first;
     MR__TRY(mr__source_open(&e->src, cfg->path, cfg->display, cfg->read_size, cfg->tee_fd, err));
-    /* the first pass's checksum is the one reported; later reads of the
-     * file are checked against its size and time */
-    if (cfg->kind != MR__PASS_SCAN) mr__source_skip_checksum(e->src);
     e->buf_cap = cfg->read_size < 16 ? 16 : cfg->read_size < HEADER_READ ? cfg->read_size : HEADER_READ;
     e->buf = mr__malloc(e->buf_cap);
     if (e->buf == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
@@ -628,7 +632,7 @@ static void merge_patterns(const mr__pass_cfg *cfg, mr__pass_result *res, const 
 
 /* The block as the store's next one: the bytes the worker packed, or the
  * block itself (memory store, or a block packed by nobody). */
-static mr_status keep_block(const mr__pass_cfg *cfg, slot *s, mr__error *err)
+static mr_status put_block(const mr__pass_cfg *cfg, slot *s, mr__error *err)
 {
     mr__pattern_rows *patterns = s->block.patterns;
     mr_status st;
@@ -641,6 +645,22 @@ static mr_status keep_block(const mr__pass_cfg *cfg, slot *s, mr__error *err)
     return st;
 }
 
+/* The cache file only saves time: a write to it that fails (a full disk,
+ * a file size limit) gives it up for the rest of the pass, which goes on
+ * without it, and the caller learns why from store_failed.  The store is
+ * left as it is: workers still look at it while the pass runs. */
+static mr_status keep_block(const mr__pass_cfg *cfg, mr__pass_result *res, slot *s, mr__error *err)
+{
+    mr_status st;
+    if (res->store_failed) return MR_OK;
+    st = put_block(cfg, s, err);
+    if (st != MR_ERR_IO || cfg->store->fd < 0) return st;
+    res->store_failed = 1;
+    res->store_err = *err;
+    mr__error_clear(err);
+    return MR_OK;
+}
+
 /* The first pass keeps its decoded blocks for the IRLS passes unless the
  * rows may still collapse into patterns (then the patterns replace them).
  * If collapsing is given up after some blocks went unkept, the store is
@@ -651,7 +671,7 @@ static mr_status keep_scanned(const mr__pass_cfg *cfg, mr__pass_result *res, slo
         res->store_incomplete = 1;
         return MR_OK;
     }
-    return keep_block(cfg, s, err);
+    return keep_block(cfg, res, s, err);
 }
 
 static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *err)
@@ -668,14 +688,14 @@ static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *
     }
     if (cfg->kind == MR__PASS_SCAN) {
         const mr__chunk *c = s->chunk;
-        MR__TRY(mr__block_map_add(&res->map, c->offset, c->end, c->first_line, c->nrows, err));
+        MR__TRY(mr__block_map_add(&res->map, c, s->rows_hash, err));
         mr__scan_add(&res->scan, &s->scan, cfg->dcfg->bind->ncol, cfg->dcfg->bind->nnum);
         if (res->collapsed) merge_patterns(cfg, res, &s->block);
         if (cfg->store) MR__TRY(keep_scanned(cfg, res, s, err));
         return keep_sample(e, res, s, err);
     }
     mr__sums_add(&res->sums, &s->sums, cfg->point->design);
-    if (cfg->store && cfg->store_fill) st = keep_block(cfg, s, err);
+    if (cfg->store && cfg->store_fill) st = keep_block(cfg, res, s, err);
     return st;
 }
 
@@ -816,10 +836,12 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
         else e.reader_started = 1;
     }
     if (st == MR_OK) st = combine_all(&e, res, t0, err);
+    /* a pass by the map read the header only through the stream */
+    if (st == MR_OK && e.src != NULL) st = mr__source_check_unchanged(e.src, !e.by_map, err);
     stop_threads(&e);
     finish_source(&e, res);
     /* offsets in the stream are offsets in the file only when it is plain */
-    res->map.usable = st == MR_OK && cfg->kind == MR__PASS_SCAN && !res->zstd;
+    res->map.usable = st == MR_OK && cfg->kind == MR__PASS_SCAN && !res->zstd && !res->map.mostly_blank;
     if (st == MR_OK && cfg->kind == MR__PASS_SCAN) st = take_levels(&e, res, err);
     /* A worker may give up collapsing after its block was merged. */
     if (res->collapsed && atomic_load(cfg->dcfg->collapse_abandoned)) merge_patterns(cfg, res, NULL);

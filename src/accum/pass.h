@@ -99,6 +99,11 @@ typedef struct mr__pass_result {
     int collapsed;
     /* First pass with a store: 1 when some blocks were not kept. */
     int store_incomplete;
+    /* A pass filling a cache file: 1 when a write to it failed and the
+     * pass went on without it (store_err says why); the store is then
+     * incomplete and the caller gives it up. */
+    int store_failed;
+    mr__error store_err;
     /* First pass: where its blocks lay (usable when the file is plain). */
     mr__block_map map;
     /* The workers read the blocks by the map: raw_bytes counts the header

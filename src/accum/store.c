@@ -264,6 +264,9 @@ static mr_status write_all(int fd, const char *p, size_t n, uint64_t at, mr__err
 
 mr_status mr__store_append(mr__store *s, const char *packed, size_t bytes, mr__error *err)
 {
+    if (s->budget != 0 && s->bytes + bytes > s->budget)
+        return mr__fail(err, MR_ERR_IO, "the cache file grew past half the free space of its directory (%.0f MB)",
+                        (double)s->budget / 1e6);
     if (s->n == s->cap) MR__TRY(grow(s, err));
     MR__TRY(write_all(s->fd, packed, bytes, s->offset[s->n], err));
     s->offset[s->n + 1] = s->offset[s->n] + bytes;

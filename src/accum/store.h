@@ -25,6 +25,7 @@ typedef struct mr__store {
     char *pack;          /* staging buffer for one packed block */
     size_t pack_cap;
     uint64_t bytes;
+    uint64_t budget;     /* file backend: bytes it may take (0: no limit) */
     /* Blocks kept by the first pass carry their decoder's own level
      * numbers; remap[worker * nfac + f][local] is the shared number. */
     int32_t **remap;
@@ -55,7 +56,8 @@ mr_status mr__store_keep(mr__store *s, mr__block *blk, const mr__binding *b, mr_
  * most mr__store_pack_bound bytes; mr__store_pack returns its size. */
 size_t mr__store_pack_bound(const mr__binding *b);
 size_t mr__store_pack(const mr__block *blk, const mr__binding *b, char *out);
-/* Writes a packed block as the next one (file backend). */
+/* Writes a packed block as the next one (file backend).  MR_ERR_IO when
+ * the write fails or would take the file past its budget. */
 mr_status mr__store_append(mr__store *s, const char *packed, size_t bytes, mr__error *err);
 /* 1 when the store keeps blocks as packed bytes (file, packed memory). */
 int mr__store_keeps_bytes(const mr__store *s);

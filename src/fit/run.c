@@ -141,12 +141,15 @@ static mr_status note_pass(mr__run *r, const mr__pass_result *res, mr__error *er
     return MR_OK;
 }
 
-/* Later passes must see the very file the first pass saw. */
+/* Later passes must see the very file the first pass saw: its size and
+ * time, and its checksum (an edit in place may keep both). */
 static mr_status check_same_input(mr__run *r, const mr__pass_result *res, mr__error *err)
 {
+    int streamed_same;
     if (res->raw_bytes == 0 && r->use_store) return MR_OK;
-    /* a pass by the map checked each block's bytes and rows itself */
-    if (res->size != r->size || res->mtime_ns != r->mtime_ns || (!res->by_map && res->raw_bytes != r->raw_bytes))
+    /* a pass by the map checked each block's rows and their checksum itself */
+    streamed_same = res->by_map || (res->raw_bytes == r->raw_bytes && res->checksum == r->first.checksum);
+    if (res->size != r->size || res->mtime_ns != r->mtime_ns || !streamed_same)
         return mr__fail(err, MR_ERR_IO, "%s: the file changed during the fit", r->display);
     return MR_OK;
 }
@@ -158,14 +161,29 @@ static const char *temp_dir(void)
     return dir != NULL && *dir != '\0' ? dir : "/tmp";
 }
 
+/* Input that may not be there to read again - standard input, a pipe (a
+ * /dev/fd/N name, as a shell's process substitution gives), a FIFO, a
+ * character device, a socket - is copied as the first pass reads it, and
+ * later passes read the copy: reopening a FIFO would wait for ever for a
+ * writer, and a pipe read again is empty.  Only a regular file (or a
+ * directory, which the source refuses) is read where it is. */
+static int read_only_once(const char *path)
+{
+    struct stat st;
+    if (strcmp(path, "-") == 0) return 1;
+    return stat(path, &st) == 0 && !S_ISREG(st.st_mode) && !S_ISDIR(st.st_mode);
+}
+
 static mr_status open_spool(mr__run *r, mr__error *err)
 {
     const char *dir = temp_dir();
-    snprintf(r->spool, sizeof r->spool, "%s/millrace-stdin-XXXXXX", dir);
+    snprintf(r->spool, sizeof r->spool, "%s/millrace-input-XXXXXX", dir);
     r->spool_fd = mkstemp(r->spool);
     if (r->spool_fd < 0)
-        return mr__fail(err, MR_ERR_IO, "cannot create a temporary file in %s to keep standard input: %s", dir,
-                        strerror(errno));
+        return mr__fail(err, MR_ERR_IO,
+                        "%s can be read only once, and its copy for the later passes cannot be created in %s: %s "
+                        "(set TMPDIR to a writable directory with room for the whole input)",
+                        r->display, dir, strerror(errno));
     /* Unlinked at once, so that nothing is left behind however the process
      * ends; later passes reopen it through the descriptor. */
     unlink(r->spool);
@@ -177,7 +195,7 @@ static mr_status scan_pass(mr__run *r, mr__error *err)
 {
     mr__pass_cfg c = pass_config(r, MR__PASS_SCAN);
     mr_status st;
-    if (strcmp(r->path, "-") == 0) {
+    if (read_only_once(r->path)) {
         MR__TRY(open_spool(r, err));
         c.tee_fd = r->spool_fd;
     }
@@ -194,7 +212,7 @@ static mr_status scan_pass(mr__run *r, mr__error *err)
     if (r->read_path == r->spool) {
         struct stat sb;
         if (stat(r->spool, &sb) != 0)
-            return mr__fail(err, MR_ERR_IO, "cannot reread the copy of standard input: %s", strerror(errno));
+            return mr__fail(err, MR_ERR_IO, "%s: cannot reread its copy: %s", r->display, strerror(errno));
         r->size = (uint64_t)sb.st_size;
         r->mtime_ns = (int64_t)sb.st_mtim.tv_sec * 1000000000 + sb.st_mtim.tv_nsec;
     }
@@ -279,9 +297,34 @@ static mr_status settle_scan(mr__run *r, mr__error *err)
     return mr__design_build(&r->design, &r->f->spec, &r->bind, r->fac, r->mean, r->spread, err);
 }
 
+/* The cache only saves time: when it cannot be had (no file can be made in
+ * TMPDIR, or a write to it failed), every pass rereads the input, which
+ * gives the same bits, and the fit's warnings say why, once. */
+static void go_without_cache(mr__run *r, const char *why)
+{
+    mr__store_release(&r->store);
+    r->use_store = r->cached = r->store_filled = 0;
+    if (r->cache_note[0] == '\0')
+        snprintf(r->cache_note, sizeof r->cache_note, "no cache: %s; every pass rereads the input", why);
+}
+
+/* A cache file in TMPDIR, or none (and the reason noted). */
+static void open_cache(mr__run *r)
+{
+    mr__error scratch;
+    mr__error_clear(&scratch);
+    if (mr__store_init_file(&r->store, temp_dir(), &scratch) != MR_OK) {
+        go_without_cache(r, scratch.msg);
+        return;
+    }
+    r->store.budget = r->cache_budget;
+    r->use_store = 1;
+    r->cached = 1;
+}
+
 /* Where later passes get their rows: memory (asked for), a cache file
  * (default, when the disk has room), or the input again. */
-static mr_status choose_store(mr__run *r, mr__error *err)
+static void choose_store(mr__run *r)
 {
     const char *dir = temp_dir();
     struct statvfs fs;
@@ -289,27 +332,29 @@ static mr_status choose_store(mr__run *r, mr__error *err)
     double need = 0, room;
     /* Before the first pass only the input's size is known: decoded
      * columns take about 1.5 times the text, and zstd text about 4 times
-     * less than that (generous on both counts). */
+     * less than that (generous on both counts, but a zstd file of blank
+     * lines or repeated rows can expand far more: then a write fails and
+     * the cache is given up). */
     if (strcmp(r->path, "-") != 0 && stat(r->path, &in) == 0) need = 8.0 * (double)in.st_size;
     if (r->f->in_memory) {
         mr__store_init_packed(&r->store);
         r->use_store = 1;
-        return MR_OK;
+        return;
     }
     mr__store_init_memory(&r->store);
-    if (r->f->no_cache) return MR_OK;
-    if (statvfs(dir, &fs) != 0) return MR_OK;
-    room = (double)fs.f_bavail * (double)fs.f_frsize;
-    if (need > room / 2) {
-        snprintf(r->cache_note, sizeof r->cache_note,
-                 "no cache: it could need %.0f MB and %s has %.0f MB free; every pass rereads the input",
-                 need / 1e6, dir, room / 1e6);
-        return MR_OK;
+    if (r->f->no_cache) return;
+    if (statvfs(dir, &fs) == 0) {
+        room = (double)fs.f_bavail * (double)fs.f_frsize;
+        /* the estimate can be far off: the cache stops at half the room */
+        r->cache_budget = room / 2 >= 1 ? (uint64_t)(room / 2) : 1;
+        if (need > room / 2) {
+            snprintf(r->cache_note, sizeof r->cache_note,
+                     "no cache: it could need %.0f MB and %s has %.0f MB free; every pass rereads the input",
+                     need / 1e6, dir, room / 1e6);
+            return;
+        }
     }
-    MR__TRY(mr__store_init_file(&r->store, dir, err));
-    r->use_store = 1;
-    r->cached = 1;
-    return MR_OK;
+    open_cache(r);
 }
 
 /* Maps each first-pass decoder's level numbers to the shared ones. */
@@ -339,14 +384,18 @@ static mr_status settle_store(mr__run *r, mr__error *err)
 {
     int file = r->store.fd >= 0;
     if (!r->use_store) return MR_OK;
+    if (r->first.store_failed) {
+        go_without_cache(r, r->first.store_err.msg);
+        return MR_OK;
+    }
     if (r->collapsed || r->first.store_incomplete) {
         mr__store_release(&r->store);
         if (r->collapsed) {
             r->use_store = r->cached = 0;
             return MR_OK;
         }
-        if (file) return mr__store_init_file(&r->store, temp_dir(), err);
-        mr__store_init_packed(&r->store);
+        if (file) open_cache(r);
+        else mr__store_init_packed(&r->store);
         return MR_OK;
     }
     MR__TRY(build_remap(r, err));
@@ -546,7 +595,8 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
     res->sums.dev += job->deviance_shift;
     res->sums.null_dev = null_dev_known ? *null_dev_known : res->sums.null_dev + job->deviance_shift;
     if (st != MR_OK || job->replay) return st;
-    if (c.store) r->store_filled = 1;
+    if (res->store_failed) go_without_cache(r, res->store_err.msg);
+    else if (c.store) r->store_filled = 1;
     MR__TRY(check_same_input(r, res, err));
     return note_pass(r, res, err);
 }
@@ -859,8 +909,8 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
     r.dcfg.collapse = collapse_mode(&r);
     r.dcfg.collapse_abandoned = &r.collapse_abandoned;
     st = mr__spec_validate(&f->spec, err);
-    if (st == MR_OK) st = choose_store(&r, err);
     if (st == MR_OK) {
+        choose_store(&r);
         /* Our workers use every core; BLAS threads inside them would only
          * oversubscribe.  The caller's count comes back at the end, as
          * millrace.h promises. */

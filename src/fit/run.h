@@ -48,7 +48,8 @@ typedef struct mr__run {
     size_t npatterns;
     mr__store patterns;
     double within_deviance;
-    char cache_note[256];
+    char cache_note[MR__MSG_CAP + 64]; /* why there is no cache (a warning) */
+    uint64_t cache_budget; /* bytes the cache file may take (0: no limit) */
     char threads_note[256];
     /* IRLS */
     mr__pass_result last; /* sums at the reported coefficients */

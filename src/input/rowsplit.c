@@ -104,6 +104,69 @@ static int is_blank_row(const char *p, size_t n)
     return 1;
 }
 
+#if defined(__SSE2__)
+/* Bit i set where p[i] may be part of a blank line. */
+static unsigned blank_mask16(const char *p)
+{
+    const __m128i v = _mm_loadu_si128((const __m128i *)(const void *)p);
+    __m128i m = _mm_or_si128(_mm_cmpeq_epi8(v, _mm_set1_epi8('\n')), _mm_cmpeq_epi8(v, _mm_set1_epi8('\r')));
+    m = _mm_or_si128(m, _mm_or_si128(_mm_cmpeq_epi8(v, _mm_set1_epi8(' ')), _mm_cmpeq_epi8(v, _mm_set1_epi8('\t'))));
+    return (unsigned)_mm_movemask_epi8(m);
+}
+
+static unsigned newline_mask16(const char *p)
+{
+    const __m128i v = _mm_loadu_si128((const __m128i *)(const void *)p);
+    return (unsigned)_mm_movemask_epi8(_mm_cmpeq_epi8(v, _mm_set1_epi8('\n')));
+}
+#endif
+
+/* Where the run of blank bytes from p ends (at most at end), with the
+ * newlines in it counted and the last one noted (NULL: none). */
+static const char *blank_run(const char *p, const char *end, uint64_t *newlines, const char **last_newline)
+{
+    *newlines = 0;
+    *last_newline = NULL;
+#if defined(__SSE2__)
+    while (end - p >= 16) {
+        unsigned blank = blank_mask16(p), nl = newline_mask16(p);
+        unsigned run = blank == 0xffffu ? 16 : (unsigned)__builtin_ctz(~blank); /* blank bytes first */
+        nl &= run == 16 ? 0xffffu : (1u << run) - 1;
+        if (nl != 0) {
+            *newlines += (uint64_t)__builtin_popcount(nl);
+            *last_newline = p + 31 - __builtin_clz(nl);
+        }
+        if (run < 16) return p + run;
+        p += 16;
+    }
+#endif
+    for (; p < end && may_be_blank(*p); p++)
+        if (*p == '\n') {
+            ++*newlines;
+            *last_newline = p;
+        }
+    return p;
+}
+
+/* A run of blank lines at the start of a row, taken in one sweep instead
+ * of a row at a time (a zstd file of gigabytes of blank lines is a few
+ * hundred kilobytes): the lines are counted and nothing is kept, as
+ * end_row would drop each of them.  Returns where the rows go on (p when
+ * no whole blank line starts there). */
+static const char *skip_blank_lines(mr__splitter *sp, const char *p, const char *end)
+{
+    const char *last;
+    uint64_t newlines;
+    const mr__chunk *c = sp->cur;
+    int row_empty = sp->want_header ? sp->header_len == 0 : c != NULL && c->len == c->row_start[c->nrows];
+    if (!row_empty || !may_be_blank(*p)) return p;
+    (void)blank_run(p, end, &newlines, &last);
+    if (last == NULL) return p;
+    sp->line += newlines;
+    sp->row_line = sp->line;
+    return last + 1;
+}
+
 static mr_status end_row(mr__splitter *sp, mr__chunk_sink sink, void *user, mr__error *err)
 {
     mr__chunk *c = sp->cur;
@@ -223,6 +286,7 @@ mr_status mr__splitter_feed(mr__splitter *sp, const char *p, size_t n, size_t *u
             MR__TRY(feed_quoted(sp, &p, end, err));
             continue;
         }
+        if ((p = skip_blank_lines(sp, p, end)) == end) break;
         nl = memchr(p, '\n', (size_t)(end - p));
         span = nl ? (size_t)(nl - p) : (size_t)(end - p);
         q = quotes ? memchr(p, '"', span) : NULL;

@@ -7,12 +7,10 @@
 #include <zstd.h>
 
 #include "common/alloc.h"
+#include "common/checksum.h"
 #include "common/fileio.h"
 #include "common/sysio.h"
 #include "input/source.h"
-
-#define FNV_OFFSET 0xcbf29ce484222325ULL
-#define FNV_PRIME 0x100000001b3ULL
 
 struct mr__source {
     int fd, owns_fd, tee_fd;
@@ -26,8 +24,12 @@ struct mr__source {
     int64_t mtime_ns;
     char carry[8]; /* bytes of a checksum word not yet complete */
     size_t carry_len;
-    int no_checksum;
 };
+
+static int64_t mtime_of(const struct stat *st)
+{
+    return (int64_t)st->st_mtim.tv_sec * 1000000000 + st->st_mtim.tv_nsec;
+}
 
 mr_status mr__source_open(mr__source **out, const char *path, const char *display, size_t read_size,
                           int tee_fd, mr__error *err)
@@ -38,7 +40,7 @@ mr_status mr__source_open(mr__source **out, const char *path, const char *displa
     if (s == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     s->display = display;
     s->tee_fd = tee_fd;
-    s->checksum = FNV_OFFSET;
+    s->checksum = MR__FNV_OFFSET;
     s->raw_cap = read_size < 16 ? 16 : read_size;
     s->raw = mr__malloc(s->raw_cap);
     if (s->raw == NULL) {
@@ -64,7 +66,7 @@ mr_status mr__source_open(mr__source **out, const char *path, const char *displa
         if (S_ISREG(st.st_mode)) {
             s->is_file = 1;
             s->size = (uint64_t)st.st_size;
-            s->mtime_ns = (int64_t)st.st_mtim.tv_sec * 1000000000 + st.st_mtim.tv_nsec;
+            s->mtime_ns = mtime_of(&st);
         }
     }
     *out = s;
@@ -80,30 +82,20 @@ void mr__source_close(mr__source *s)
     mr__free(s);
 }
 
-/* FNV-1a over the stream taken as little-endian 64-bit words (a final
- * partial word zero-padded): eight times fewer multiplications than the
- * bytewise form, which would cost the reader thread a tenth of its time.
- * Reads may end anywhere, so a partial word is carried to the next read. */
+/* The checksum is over the stream taken as 64-bit words (common/checksum.h);
+ * reads may end anywhere, so a partial word is carried to the next read. */
 static void absorb(mr__source *s, const char *p, size_t n)
 {
-    uint64_t h = s->checksum;
-    size_t i = 0;
+    size_t i = 0, whole;
     s->raw_bytes += n;
-    if (s->no_checksum) return;
     while (s->carry_len > 0 && s->carry_len < 8 && i < n) s->carry[s->carry_len++] = p[i++];
     if (s->carry_len == 8) {
-        uint64_t w;
-        memcpy(&w, s->carry, 8);
-        h = (h ^ w) * FNV_PRIME;
+        s->checksum = mr__fnv_words(s->checksum, s->carry, 8);
         s->carry_len = 0;
     }
-    for (; i + 8 <= n; i += 8) {
-        uint64_t w;
-        memcpy(&w, p + i, 8);
-        h = (h ^ w) * FNV_PRIME;
-    }
-    while (i < n) s->carry[s->carry_len++] = p[i++];
-    s->checksum = h;
+    whole = (n - i) / 8 * 8;
+    s->checksum = mr__fnv_words(s->checksum, p + i, whole);
+    for (i += whole; i < n; i++) s->carry[s->carry_len++] = p[i];
 }
 
 static mr_status tee(mr__source *s, const char *p, size_t n, mr__error *err)
@@ -112,7 +104,10 @@ static mr_status tee(mr__source *s, const char *p, size_t n, mr__error *err)
         ssize_t w = mr__write(s->tee_fd, p, n);
         if (w < 0) {
             if (errno == EINTR) continue;
-            return mr__fail(err, MR_ERR_IO, "cannot keep a copy of standard input: %s", strerror(errno));
+            return mr__fail(err, MR_ERR_IO,
+                            "%s can be read only once, and its copy for the later passes cannot be written: %s "
+                            "(set TMPDIR to a directory with room for the whole input)",
+                            s->display, strerror(errno));
         }
         p += w;
         n -= (size_t)w;
@@ -248,19 +243,20 @@ mr_status mr__source_pread(const mr__source *s, char *buf, size_t n, uint64_t of
     return MR_OK;
 }
 
-void mr__source_skip_checksum(mr__source *s)
-{
-    s->no_checksum = 1;
-    s->checksum = 0;
-    s->carry_len = 0;
-}
+uint64_t mr__source_checksum(const mr__source *s) { return mr__fnv_words(s->checksum, s->carry, s->carry_len); }
 
-uint64_t mr__source_checksum(const mr__source *s)
+mr_status mr__source_check_unchanged(const mr__source *s, int read_to_end, mr__error *err)
 {
-    uint64_t w = 0, h = s->checksum;
-    if (s->carry_len == 0) return h;
-    memcpy(&w, s->carry, s->carry_len);
-    return (h ^ w) * FNV_PRIME;
+    struct stat st;
+    if (!s->is_file) return MR_OK;
+    if (fstat(s->fd, &st) != 0) return mr__fail(err, MR_ERR_IO, "%s: cannot stat: %s", s->display, strerror(errno));
+    if ((uint64_t)st.st_size != s->size || mtime_of(&st) != s->mtime_ns)
+        return mr__fail(err, MR_ERR_IO, "%s: the file changed during the fit (%llu bytes when opened, %llu now)",
+                        s->display, (unsigned long long)s->size, (unsigned long long)st.st_size);
+    if (read_to_end && s->raw_bytes != s->size)
+        return mr__fail(err, MR_ERR_IO, "%s: the file changed during the fit (%llu bytes when opened, it ended after %llu)",
+                        s->display, (unsigned long long)s->size, (unsigned long long)s->raw_bytes);
+    return MR_OK;
 }
 
 void mr__source_identity(const mr__source *s, uint64_t *size, int64_t *mtime_ns)

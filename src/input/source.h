@@ -32,15 +32,18 @@ int mr__source_is_zstd(const mr__source *s);
 /* FNV-1a 64 of the raw bytes read so far, taken as little-endian 64-bit
  * words (the last partial word zero-padded). */
 uint64_t mr__source_checksum(const mr__source *s);
-/* From now on bytes are only counted, not checksummed: a pass that reads
- * the file again needs its size, not a second checksum (0 from then on). */
-void mr__source_skip_checksum(mr__source *s);
 /* Whether the input is a regular file (so mr__source_pread can read it). */
 int mr__source_is_file(const mr__source *s);
 /* n bytes from `offset` of the file as they are (never decompressed; not
  * counted nor checksummed).  Any thread may call it at any time.  The file
  * ending before offset + n is MR_ERR_IO: it changed since it was mapped. */
 mr_status mr__source_pread(const mr__source *s, char *buf, size_t n, uint64_t offset, mr__error *err);
+/* For a regular file: MR_ERR_IO unless its size and time are still those
+ * it had at open and (read_to_end: the source was read to its end) the
+ * bytes read are its size at open.  A file cut, grown or written while a
+ * pass reads it would otherwise be fitted on whatever rows it happened to
+ * have, the file read once by a collapsed fit included. */
+mr_status mr__source_check_unchanged(const mr__source *s, int read_to_end, mr__error *err);
 /* Identity of the opened file (size and modification time) so a later
  * pass can tell that the file changed under the fit. */
 void mr__source_identity(const mr__source *s, uint64_t *size, int64_t *mtime_ns);

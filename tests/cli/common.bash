@@ -14,6 +14,32 @@ ok() { echo "ok $1"; passed=$((passed + 1)); }
 fail() { echo "FAIL $1: $2"; failed=$((failed + 1)); }
 finish() { echo "$passed passed, $failed failed"; [ "$failed" -eq 0 ]; }
 
+# fit_values JSON: the raw text of a fit's numbers, one line each, for
+# comparing two fits bit for bit (coefficients, standard errors, deviance,
+# Pearson statistic, rows read).
+fit_values() {
+    /usr/bin/python3 -c '
+import json, sys
+js = json.load(open(sys.argv[1]), parse_float=str, parse_int=str)
+for c in js["coefficients"]:
+    print("estimate[%s] %s std_error %s" % (c["name"], c["estimate"], c["std_error"]))
+print("deviance %s pearson %s rows %s" % (js["fit"]["deviance"], js["fit"]["pearson_chi2"], js["rows"]["read"]))
+' "$1"
+}
+
+# same_as_base NAME EXIT_CODE: the fit that wrote $tmp/NAME.json (stderr in
+# $tmp/NAME.err) exited 0 with the numbers of $tmp/base.values.
+same_as_base() {
+    local name=$1 rc=$2
+    if [ "$rc" -ne 0 ]; then
+        fail "$name" "exit $rc: $(head -c 300 "$tmp/$name.err")"
+    elif fit_values "$tmp/$name.json" | cmp -s - "$tmp/base.values"; then
+        ok "$name"
+    else
+        fail "$name" "differs: $(fit_values "$tmp/$name.json" | diff "$tmp/base.values" - | head -n 4 | tr '\n' '|')"
+    fi
+}
+
 if [ ! -x "$bin" ]; then
     fail setup "$bin not found (run make first)"
     finish
