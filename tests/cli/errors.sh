@@ -23,8 +23,15 @@ poisson_model=(--outcome y --family poisson --factor g --numeric x)
 # expect NAME CODE DATA 'fixed strings to find in stderr' -- fit options...
 # Runs one failing fit and checks everything a failure must guarantee.
 expect() {
-    local name=$1 code=$2 data=$3
-    shift 3
+    expect_within 600 "$@"
+}
+
+# expect_within SECONDS NAME CODE DATA ...: the same, the fit given at most
+# SECONDS (a limit far above the time it needs: it catches a quadratic
+# cost, not a slow machine).
+expect_within() {
+    local limit=$1 name=$2 code=$3 data=$4
+    shift 4
     local needles=()
     while [ $# -gt 0 ] && [ "$1" != "--" ]; do needles+=("$1"); shift; done
     shift
@@ -32,7 +39,7 @@ expect() {
     mkdir -p "$outdir"
     local json="$outdir/fit.json" err="$tmp/$name.err" before="" after=""
     [ -f "$data" ] && before=$(sha256sum < "$data")
-    "$bin" fit --quiet --json "$json" "$@" "$data" > "$tmp/$name.out" 2> "$err"
+    timeout "$limit" "$bin" fit --quiet --json "$json" "$@" "$data" > "$tmp/$name.out" 2> "$err"
     local rc=$?
     [ -f "$data" ] && after=$(sha256sum < "$data")
     local problems=""
@@ -72,6 +79,26 @@ expect missing_input 3 "$tmp/does-not-exist.csv" "$tmp/does-not-exist.csv" -- "$
 f="$tmp/duplicate_header.csv"
 { echo 'y,g,x,g'; echo '1,A,2,B'; echo '2,B,3,A'; } > "$f"
 expect duplicate_column 4 "$f" "$f:1:4:" "'g'" -- "${poisson_model[@]}"
+
+# 200,000 columns, the first name again at the end: found at once (the
+# duplicate check is n log n, not a comparison of every pair)
+f="$tmp/wide_duplicate.csv"
+/usr/bin/python3 -c '
+import sys
+names = ["y"] + ["c%d" % i for i in range(2, 200001)] + ["y"]
+sys.stdout.write(",".join(names) + "\n" + ",".join(["1"] * len(names)) + "\n")' > "$f"
+expect_within 30 wide_duplicate_column 4 "$f" "$f:1:200001:" "'y' (also column 1)" -- --outcome y
+f="$tmp/wide.csv"
+/usr/bin/python3 -c '
+import sys
+names = ["y", "x"] + ["c%d" % i for i in range(3, 200001)]
+rows = [[str(i % 3), str(i)] + ["0"] * (len(names) - 2) for i in range(6)]
+sys.stdout.write("\n".join(",".join(r) for r in [names] + rows) + "\n")' > "$f"
+if timeout 30 "$bin" fit --quiet --outcome y --numeric x "$f" > "$tmp/wide.out" 2> "$tmp/wide.err"; then
+    ok wide_header_fits
+else
+    fail wide_header_fits "exit $? (124: timed out); $(head -c 300 "$tmp/wide.err")"
+fi
 
 f="$tmp/field_count.csv"
 { echo "$header"; good_rows | head -n 2; echo '3,A,1.5'; good_rows | tail -n 5; } > "$f"
