@@ -42,7 +42,7 @@ static int insert_hashed(mr__levelset *s, uint64_t h, uint64_t head, const char 
         *out = e->id;
         return 0;
     }
-    if (s->n >= MR__MAX_LEVELS) return -2;
+    if (s->n >= (s->limit ? s->limit : MR__MAX_LEVELS)) return -2;
     e->str = mr__strndup(p, len);
     if (e->str == NULL) return -1;
     e->hash = h;

@@ -160,6 +160,31 @@ f="$tmp/negative_weight.csv"
 { echo "$header"; good_rows | head -n 2; echo '1,A,1.5,1,2,1.5,-2,1.5'; good_rows | tail -n 3; } > "$f"
 expect negative_weight 5 "$f" "$f:4:7:" "'-2'" -- "${poisson_model[@]}" --weight w
 
+# A factor with more levels than the limit (100,000): the file's first
+# level beyond it is named, whatever the threads, read size or bad-row
+# mode (each worker numbers the levels it meets; the count is the file's).
+f="$tmp/many_levels.csv"
+/usr/bin/python3 - "$f" > "$tmp/many_levels.expect" <<'EOF2'
+import sys
+seen, first_beyond = set(), None
+with open(sys.argv[1], "w") as out:
+    out.write("y,h,g\n")
+    for i in range(300000):
+        level = "L%d" % ((i * 2654435761) % 180000)
+        if level not in seen and len(seen) == 100000 and first_beyond is None:
+            first_beyond = (i + 2, level)  # line 1 is the header
+        seen.add(level)
+        out.write("%d,%s,%s\n" % (i % 3, "AB"[i % 2], level))
+print("%s:%d:3: column 'g': more than 100000 distinct levels" % (sys.argv[1], first_beyond[0]))
+print("(value '%s')" % first_beyond[1])
+EOF2
+mapfile -t want < "$tmp/many_levels.expect"
+for run in "1 1048576 fail" "2 4096 fail" "3 65536 skip" "4 100000 fail"; do
+    set -- $run
+    expect "many_levels_threads_$1_$3" 5 "$f" "${want[0]}" "${want[1]}" -- --outcome y --family poisson --factor h \
+        --factor g --threads "$1" --buffer-size "$2" --on-bad-row "$3"
+done
+
 # ---- an existing JSON at the --json path survives a failed run
 f="$tmp/field_count.csv"
 json="$tmp/existing.json"
