@@ -74,6 +74,10 @@ expect bad_option_value 2 "$f" "--threads" -- "${poisson_model[@]}" --threads ma
 
 # ---- I/O (exit 3)
 expect missing_input 3 "$tmp/does-not-exist.csv" "$tmp/does-not-exist.csv" -- "${poisson_model[@]}"
+f="$tmp/good.csv"
+expect missing_model_file 3 "$f" "$tmp/no-such.model" "cannot open model file" -- -m "$tmp/no-such.model"
+mkdir -p "$tmp/a-directory.model"
+expect model_file_is_a_directory 3 "$f" "$tmp/a-directory.model" "cannot read model file" -- -m "$tmp/a-directory.model"
 
 # ---- malformed input (exit 4)
 f="$tmp/duplicate_header.csv"
