@@ -57,6 +57,13 @@ static mr_status unknown_column(const char *name, char **h, size_t n, const char
     return MR_ERR_USAGE;
 }
 
+static const char *role_name(mr__use use)
+{
+    static const char *const name[] = {"the outcome", "the trials", "the weight", "the offset",
+                                       "the exposure", "a numeric covariate", "a factor"};
+    return name[use];
+}
+
 static mr_status add_column(mr__binding *b, const char *name, mr__use use, int var, const char *display,
                             mr__error *err)
 {
@@ -65,8 +72,8 @@ static mr_status add_column(mr__binding *b, const char *name, mr__use use, int v
         if (strcmp(b->header[f], name) == 0) break;
     if (f == b->nfields) return unknown_column(name, b->header, b->nfields, display, err);
     if (b->col_of_field[f] >= 0)
-        return mr__fail(err, MR_ERR_USAGE, "model: column '%s' is used twice (as %s and again)", name,
-                        b->col[b->col_of_field[f]].name);
+        return mr__fail(err, MR_ERR_USAGE, "model: column '%s' is used twice, as %s and as %s", name,
+                        role_name(b->col[b->col_of_field[f]].use), role_name(use));
     b->col[b->ncol].name = name;
     b->col[b->ncol].field = f;
     b->col[b->ncol].use = use;

@@ -71,6 +71,10 @@ expect unseen_reference_level 2 "$f" "ZZZ" -- --outcome y --family poisson --fac
 expect unknown_family 2 "$f" "frobnicate" -- --outcome y --family frobnicate --numeric x
 expect link_not_allowed 2 "$f" "logit" -- --outcome y --family poisson --link logit --numeric x
 expect bad_option_value 2 "$f" "--threads" -- "${poisson_model[@]}" --threads many
+expect column_with_two_roles 2 "$f" "column 'y' is used twice, as the outcome and as a factor" -- \
+    --outcome y --family poisson --factor y
+expect weight_also_exposure 2 "$f" "column 'e' is used twice, as the weight and as the exposure" -- \
+    "${poisson_model[@]}" --weight e --exposure e
 
 # ---- I/O (exit 3)
 expect missing_input 3 "$tmp/does-not-exist.csv" "$tmp/does-not-exist.csv" -- "${poisson_model[@]}"
