@@ -104,11 +104,24 @@ static int is_blank_row(const char *p, size_t n)
     return 1;
 }
 
+/* A UTF-8 byte-order mark before the header is not part of it
+ * (mr__parse_header drops it): a line holding only one is blank. */
+static int header_is_blank(const mr__splitter *sp)
+{
+    const char *h = sp->header;
+    size_t n = sp->header_len;
+    if (n >= 3 && memcmp(h, "\xEF\xBB\xBF", 3) == 0) {
+        h += 3;
+        n -= 3;
+    }
+    return is_blank_row(h, n);
+}
+
 static mr_status end_row(mr__splitter *sp, mr__chunk_sink sink, void *user, mr__error *err)
 {
     mr__chunk *c = sp->cur;
     if (sp->want_header) {
-        if (is_blank_row(sp->header, sp->header_len)) {
+        if (header_is_blank(sp)) {
             sp->header_len = 0;
         } else {
             sp->want_header = 0;
@@ -261,7 +274,7 @@ mr_status mr__splitter_finish(mr__splitter *sp, mr__chunk_sink sink, void *user,
         return mr__fail(err, MR_ERR_FORMAT, "%s:%llu: unterminated quote (the file ends inside a quoted field)",
                         sp->display, (unsigned long long)sp->quote_line);
     if (sp->want_header) {
-        if (sp->header_len > 0 && !is_blank_row(sp->header, sp->header_len)) sp->want_header = 0;
+        if (sp->header_len > 0 && !header_is_blank(sp)) sp->want_header = 0;
         return MR_OK;
     }
     if (c != NULL && c->len > c->row_start[c->nrows]) MR__TRY(end_row(sp, sink, user, err));

@@ -139,6 +139,13 @@ f="$tmp/empty.csv"
 : > "$f"
 expect empty_file 6 "$f" "$f" -- "${poisson_model[@]}"
 
+f="$tmp/bom_only.csv"
+printf '\xef\xbb\xbf' > "$f"
+expect bom_only 6 "$f" "$f" -- "${poisson_model[@]}"
+f="$tmp/bom_and_blank_line.csv"
+printf '\xef\xbb\xbf\r\n' > "$f"
+expect bom_and_blank_line 6 "$f" "$f" -- "${poisson_model[@]}"
+
 f="$tmp/header_only.csv"
 echo "$header" > "$f"
 expect header_only 6 "$f" "$f" -- "${poisson_model[@]}"
