@@ -53,6 +53,31 @@ static char *room_after(char **buf, size_t *cap, size_t len, size_t n, mr__error
     return *buf + len;
 }
 
+/* Outside quotes, carriage returns followed by something other than a
+ * line feed: the lines end in a CR alone (classic Mac OS text), and the
+ * whole file would be read as one header row. */
+static int has_lone_cr(const char *p, size_t n)
+{
+    size_t i, j;
+    int quoted = 0;
+    for (i = 0; i < n; i++) {
+        if (p[i] == '"') quoted = !quoted;
+        if (quoted || p[i] != '\r') continue;
+        for (j = i; j < n && p[j] == '\r'; j++) continue;
+        if (j < n && p[j] != '\n') return 1;
+        i = j - 1;
+    }
+    return 0;
+}
+
+static mr_status refuse_cr_only(const mr__splitter *sp, mr__error *err)
+{
+    return mr__fail(err, MR_ERR_FORMAT,
+                    "%s:%llu: the line ends are carriage returns alone (classic Mac OS text); convert them to line "
+                    "feeds (LF or CRLF)",
+                    sp->display, (unsigned long long)sp->row_line);
+}
+
 /* The row being built lives at the end of the chunk (or in the header
  * buffer before the header is complete). */
 static mr_status append(mr__splitter *sp, const char *p, size_t n, mr__error *err)
@@ -70,6 +95,8 @@ static mr_status append(mr__splitter *sp, const char *p, size_t n, mr__error *er
         cap = &sp->cur->cap;
         start = sp->cur->row_start[sp->cur->nrows];
     }
+    if (*len - start + n > MR__MAX_ROW_BYTES && sp->want_header && has_lone_cr(*buf, *len))
+        return refuse_cr_only(sp, err);
     if (*len - start + n > MR__MAX_ROW_BYTES)
         return mr__fail(err, MR_ERR_FORMAT, "%s:%llu: row longer than %u MiB (is this a text file?)",
                         sp->display, (unsigned long long)sp->row_line, MR__MAX_ROW_BYTES >> 20);
@@ -124,6 +151,7 @@ static mr_status end_row(mr__splitter *sp, mr__chunk_sink sink, void *user, mr__
         if (header_is_blank(sp)) {
             sp->header_len = 0;
         } else {
+            if (has_lone_cr(sp->header, sp->header_len)) return refuse_cr_only(sp, err);
             sp->want_header = 0;
         }
         sp->row_line = sp->line;
@@ -274,7 +302,9 @@ mr_status mr__splitter_finish(mr__splitter *sp, mr__chunk_sink sink, void *user,
         return mr__fail(err, MR_ERR_FORMAT, "%s:%llu: unterminated quote (the file ends inside a quoted field)",
                         sp->display, (unsigned long long)sp->quote_line);
     if (sp->want_header) {
-        if (sp->header_len > 0 && !header_is_blank(sp)) sp->want_header = 0;
+        if (sp->header_len == 0 || header_is_blank(sp)) return MR_OK;
+        if (has_lone_cr(sp->header, sp->header_len)) return refuse_cr_only(sp, err);
+        sp->want_header = 0;
         return MR_OK;
     }
     if (c != NULL && c->len > c->row_start[c->nrows]) MR__TRY(end_row(sp, sink, user, err));

@@ -108,6 +108,10 @@ else
     fail wide_header_fits "exit $? (124: timed out); $(head -c 300 "$tmp/wide.err")"
 fi
 
+f="$tmp/cr_only.csv"
+{ echo "$header"; good_rows; } | tr '\n' '\r' > "$f"
+expect cr_only_line_ends 4 "$f" "$f:1: the line ends are carriage returns alone" -- "${poisson_model[@]}"
+
 f="$tmp/field_count.csv"
 { echo "$header"; good_rows | head -n 2; echo '3,A,1.5'; good_rows | tail -n 5; } > "$f"
 expect wrong_field_count 4 "$f" "$f:4:" -- "${poisson_model[@]}"
