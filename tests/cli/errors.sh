@@ -83,6 +83,15 @@ expect missing_model_file 3 "$f" "$tmp/no-such.model" "cannot open model file" -
 mkdir -p "$tmp/a-directory.model"
 expect model_file_is_a_directory 3 "$f" "$tmp/a-directory.model" "cannot read model file" -- -m "$tmp/a-directory.model"
 
+# standard input closed (not merely empty): said so, not "the file is empty"
+"$bin" fit --quiet "${poisson_model[@]}" - <&- > /dev/null 2> "$tmp/closed_stdin.err"
+rc=$?
+if [ "$rc" -eq 3 ] && grep -q '^millrace: <stdin>: standard input is closed' "$tmp/closed_stdin.err"; then
+    ok closed_stdin
+else
+    fail closed_stdin "exit $rc, expected 3; stderr: $(head -c 300 "$tmp/closed_stdin.err")"
+fi
+
 # ---- malformed input (exit 4)
 f="$tmp/duplicate_header.csv"
 { echo 'y,g,x,g'; echo '1,A,2,B'; echo '2,B,3,A'; } > "$f"
