@@ -162,7 +162,7 @@ static mr_status end_row(mr__splitter *sp, mr__chunk_sink sink, void *user, mr__
         sp->row_line = sp->line;
         return MR_OK;
     }
-    c->row_line[c->nrows] = (uint32_t)(sp->row_line - c->first_line);
+    c->row_line[c->nrows] = sp->row_line - c->first_line;
     c->nrows++;
     c->row_start[c->nrows] = c->len;
     sp->rows++;
@@ -232,7 +232,7 @@ static const char *take_rows_in_place(mr__splitter *sp, const char *p, const cha
     while (c->nrows + 1 < MR__BLOCK_ROWS) {
         const char *nl = find_newline(p, end), *row = c->data + c->row_start[c->nrows];
         if (nl == NULL || may_be_blank(*row) || (size_t)(nl + 1 - row) > MR__MAX_ROW_BYTES) break;
-        c->row_line[c->nrows] = (uint32_t)(sp->row_line - c->first_line);
+        c->row_line[c->nrows] = sp->row_line - c->first_line;
         c->nrows++;
         c->len = (size_t)(nl + 1 - c->data);
         c->row_start[c->nrows] = c->len;
