@@ -207,7 +207,11 @@ static void on_field(void *user, size_t k, const char *p, size_t len)
         decode_level(d, col, p, len);
         return;
     }
-    if (!mr__parse_double(d->np, p, len, &d->val[col])) row_problem(d, (size_t)col, MR_ERR_FORMAT, "not a number", p, len);
+    if (!mr__parse_double(d->np, p, len, &d->val[col]))
+        row_problem(d, (size_t)col, MR_ERR_FORMAT,
+                    mr__is_number_syntax(p, len) ? "a number out of the range of a double (beyond 1.8e308 in size)"
+                                                 : "not a number",
+                    p, len);
 }
 
 static void domain_problem(mr__decoder *d, mr__use use, const char *what)

@@ -129,6 +129,10 @@ f="$tmp/bad_number.csv"
 { echo "$header"; good_rows | head -n 1; echo '2,B,12x,1,2,1.5,1.5,1.5'; good_rows | tail -n 5; } > "$f"
 expect unparsable_number 4 "$f" "$f:3:3:" "'12x'" -- "${poisson_model[@]}"
 
+f="$tmp/number_too_large.csv"
+{ echo "$header"; good_rows | head -n 3; echo '2,B,-1e400,1,2,1.5,1.5,1.5'; good_rows | tail -n 5; } > "$f"
+expect number_out_of_range 4 "$f" "$f:5:3:" "out of the range of a double" "'-1e400'" -- "${poisson_model[@]}"
+
 f="$tmp/unterminated_quote.csv"
 { echo "$header"; good_rows | head -n 3; echo '1,"A,2.5,1,2,1.5,1.5,1.5'; echo '2,B,1.5,1,2,1.5,1.5,1.5'; } > "$f"
 expect unterminated_quote 4 "$f" "$f:5" -- "${poisson_model[@]}"
