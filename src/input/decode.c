@@ -167,6 +167,11 @@ static void first_pass_level(mr__decoder *d, int col, const char *p, size_t len)
     mr__block *blk = d->blk;
     int rc;
     if (mr__levelset_lookup(set, p, len, &d->lev[col])) return;
+    /* names are C strings: "A\0B" and "A\0C" would both print as "A" */
+    if (memchr(p, '\0', len) != NULL) {
+        row_problem(d, (size_t)col, MR_ERR_FORMAT, "a NUL byte in a level (is this a text file?)", p, len);
+        return;
+    }
     rc = mr__levelset_insert(set, p, len, &d->lev[col]);
     if (rc == -2) row_problem(d, (size_t)col, MR_ERR_DOMAIN, MR__TOO_MANY_LEVELS, p, len);
     if (rc == 0 && mr__reserve((void **)&blk->new_levels, &blk->new_levels_cap, blk->nnew_levels + 1,

@@ -133,6 +133,10 @@ f="$tmp/number_too_large.csv"
 { echo "$header"; good_rows | head -n 3; echo '2,B,-1e400,1,2,1.5,1.5,1.5'; good_rows | tail -n 5; } > "$f"
 expect number_out_of_range 4 "$f" "$f:5:3:" "out of the range of a double" "'-1e400'" -- "${poisson_model[@]}"
 
+f="$tmp/nul_in_level.csv"
+{ echo "$header"; good_rows | head -n 2; printf '2,A\0B,1.5,1,2,1.5,1.5,1.5\n2,A\0C,1.5,1,2,1.5,1.5,1.5\n'; good_rows; } > "$f"
+expect nul_in_level 4 "$f" "$f:4:2: column 'g': a NUL byte in a level" -- "${poisson_model[@]}"
+
 f="$tmp/unterminated_quote.csv"
 { echo "$header"; good_rows | head -n 3; echo '1,"A,2.5,1,2,1.5,1.5,1.5'; echo '2,B,1.5,1,2,1.5,1.5,1.5'; } > "$f"
 expect unterminated_quote 4 "$f" "$f:5" -- "${poisson_model[@]}"
