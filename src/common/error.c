@@ -4,13 +4,39 @@
 
 #include "error.h"
 
+size_t mr__escape_text(char *out, size_t cap, const char *s, size_t len)
+{
+    static const char hex[] = "0123456789abcdef";
+    size_t i, o = 0;
+    if (cap == 0) return 0;
+    for (i = 0; i < len; i++) {
+        unsigned char c = (unsigned char)s[i];
+        int control = c < 0x20 || c == 0x7f;
+        if (o + (control ? 4 : 1) >= cap) break;
+        if (!control) {
+            out[o++] = (char)c;
+            continue;
+        }
+        out[o++] = '\\';
+        out[o++] = 'x';
+        out[o++] = hex[c >> 4];
+        out[o++] = hex[c & 15];
+    }
+    out[o] = '\0';
+    return i;
+}
+
+/* Messages quote header names, cells, model words: any control byte in
+ * them is escaped here, once for all, so none reaches a terminal raw. */
 mr_status mr__fail(mr__error *err, mr_status status, const char *fmt, ...)
 {
     if (err != NULL) {
+        char raw[MR__MSG_CAP];
         va_list ap;
         va_start(ap, fmt);
-        vsnprintf(err->msg, sizeof err->msg, fmt, ap);
+        vsnprintf(raw, sizeof raw, fmt, ap);
         va_end(ap);
+        mr__escape_text(err->msg, sizeof err->msg, raw, strlen(raw));
         err->status = status;
     }
     return status;
@@ -24,17 +50,15 @@ void mr__error_clear(mr__error *err)
 
 void mr__quote_value(char *out, size_t cap, const char *s, size_t len)
 {
-    size_t i, o = 0;
-    if (cap == 0) return;
-    for (i = 0; i < len && o + 4 < cap; i++) {
-        unsigned char c = (unsigned char)s[i];
-        out[o++] = (c < 0x20 || c == 0x7f) ? '?' : (char)c;
+    size_t o;
+    if (cap < 4) {
+        mr__escape_text(out, cap, s, len);
+        return;
     }
-    if (i < len && o + 4 <= cap) {
-        memcpy(out + o, "...", 3);
-        o += 3;
-    }
-    out[o] = '\0';
+    /* room kept for "..." */
+    if (mr__escape_text(out, cap - 3, s, len) == len) return;
+    o = strlen(out);
+    memcpy(out + o, "...", 4);
 }
 
 const char *mr_strerror(mr_status status)

@@ -1,8 +1,10 @@
 #include <math.h>
 #include <stdarg.h>
 #include <stdio.h>
+#include <string.h>
 
 #include "common/alloc.h"
+#include "common/error.h"
 #include "common/strbuf.h"
 #include "fit/fit.h"
 
@@ -50,11 +52,14 @@ void mr_fit_free(mr_fit *fit)
 
 void mr__fit_warn(mr_fit *fit, const char *fmt, ...)
 {
-    char buf[1024], *copy, **grown;
+    char raw[1024], buf[1024], *copy, **grown;
     va_list ap;
     va_start(ap, fmt);
-    vsnprintf(buf, sizeof buf, fmt, ap);
+    vsnprintf(raw, sizeof raw, fmt, ap);
     va_end(ap);
+    /* warnings quote level and column names from the file, escaped as
+     * every message is (mr__escape_text) */
+    mr__escape_text(buf, sizeof buf, raw, strlen(raw));
     grown = mr__realloc(fit->warning, (fit->nwarnings + 1) * sizeof *grown);
     if (grown == NULL) return;
     fit->warning = grown;

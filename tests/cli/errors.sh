@@ -76,6 +76,28 @@ expect column_with_two_roles 2 "$f" "column 'y' is used twice, as the outcome an
 expect weight_also_exposure 2 "$f" "column 'e' is used twice, as the weight and as the exposure" -- \
     "${poisson_model[@]}" --weight e --exposure e
 
+# Text from the file reaches stderr with its control bytes escaped: no
+# escape sequence from a header or a cell gets to the terminal.
+no_raw_controls() {
+    if LC_ALL=C grep -q '[[:cntrl:]]' <(tr -d '\n' < "$tmp/$1.err"); then
+        fail "$1_escaped" "raw control bytes in stderr: $(od -c "$tmp/$1.err" | head -n 3 | tr '\n' '|')"
+    else
+        ok "$1_escaped"
+    fi
+}
+f="$tmp/escape_in_header.csv"
+{ printf 'y,\033[31mred,\033]0;title\007\n'; echo '1,2,3'; } > "$f"
+expect escape_in_header_name 2 "$f" 'columns: y, \x1b[31mred, \x1b]0;title\x07)' -- --outcome y --numeric x
+no_raw_controls escape_in_header_name
+f="$tmp/escape_in_duplicate.csv"
+{ printf 'y,\033[2J,\033[2J\n'; echo '1,2,3'; } > "$f"
+expect escape_in_duplicate_name 4 "$f" "duplicate column name '\x1b[2J' (also column 2)" -- --outcome y
+no_raw_controls escape_in_duplicate_name
+f="$tmp/escape_in_cell.csv"
+{ echo "$header"; printf '1,A,\0332,1,2,1.5,1.5,1.5\n'; good_rows; } > "$f"
+expect escape_in_cell 4 "$f" "$f:2:3:" "(value '\x1b2')" -- "${poisson_model[@]}"
+no_raw_controls escape_in_cell
+
 # ---- I/O (exit 3)
 expect missing_input 3 "$tmp/does-not-exist.csv" "$tmp/does-not-exist.csv" -- "${poisson_model[@]}"
 f="$tmp/good.csv"
@@ -135,7 +157,7 @@ expect number_out_of_range 4 "$f" "$f:5:3:" "out of the range of a double" "'-1e
 
 f="$tmp/nul_in_level.csv"
 { echo "$header"; good_rows | head -n 2; printf '2,A\0B,1.5,1,2,1.5,1.5,1.5\n2,A\0C,1.5,1,2,1.5,1.5,1.5\n'; good_rows; } > "$f"
-expect nul_in_level 4 "$f" "$f:4:2: column 'g': a NUL byte in a level" -- "${poisson_model[@]}"
+expect nul_in_level 4 "$f" "$f:4:2: column 'g': a NUL byte in a level" "(value 'A\x00B')" -- "${poisson_model[@]}"
 
 f="$tmp/unterminated_quote.csv"
 { echo "$header"; good_rows | head -n 3; echo '1,"A,2.5,1,2,1.5,1.5,1.5'; echo '2,B,1.5,1,2,1.5,1.5,1.5'; } > "$f"
