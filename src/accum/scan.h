@@ -12,6 +12,7 @@
 
 typedef struct mr__scan_sums {
     uint64_t nread, nused, incomplete, nbad, npos;
+    uint64_t nfraction; /* rows used whose outcome lies strictly between 0 and 1 */
     uint64_t *missing; /* per bound column */
     double *sx, *sxx;  /* per numeric */
     double sw, swy, swe, swoff, llc;
@@ -27,6 +28,14 @@ void mr__scan_reset(mr__scan_sums *s, size_t ncol, size_t nnum);
 void mr__scan_block(const mr__block *blk, size_t ncol, size_t nnum, mr__scan_sums *s);
 /* into += from, in the caller's (block) order. */
 void mr__scan_add(mr__scan_sums *into, const mr__scan_sums *from, size_t ncol, size_t nnum);
+
+/* What the first pass can tell about the outcome that makes a fit that
+ * runs misleading all the same: at most MR__SCAN_OUTCOME_WARNINGS static
+ * messages in out; returns how many.  `proportions_weighted`: the model
+ * has a weight or trials column. */
+#define MR__SCAN_OUTCOME_WARNINGS 2
+size_t mr__scan_outcome_warnings(const mr__scan_sums *s, int family, int proportions_weighted,
+                                 const char *out[MR__SCAN_OUTCOME_WARNINGS]);
 
 /* One row's data-only log-likelihood term: outcome y (a proportion for
  * binomial), weight w and trials t as read. */

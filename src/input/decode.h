@@ -57,6 +57,7 @@ typedef struct mr__block {
      * offset is deferred, see mr__decoder). */
     double sw, swy, llc, swe, swoff;
     uint64_t npos;
+    uint64_t nfraction; /* rows whose outcome lies strictly between 0 and 1 */
     /* Collapsed patterns only: per-pattern Pearson correction (see
      * accum/patterns.h); NULL otherwise. */
     double *extra;
