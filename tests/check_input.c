@@ -581,6 +581,34 @@ START_TEST(test_split_line_numbers_after_embedded_newlines)
 }
 END_TEST
 
+START_TEST(test_split_line_numbers_past_2_to_the_32)
+{
+    /* Source of truth: arithmetic.  Row 1 is on line 1; then 2^32 blank
+     * lines (skipped but counted: the splitter's line count is moved on
+     * by them here, as feeding them one by one would); row 2 follows on
+     * line 2 + 2^32, in the same chunk, and must not be read modulo 2^32. */
+    static const char row1[] = "1,2\n", row2[] = "3,4\n";
+    const uint64_t blank = (uint64_t)1 << 32;
+    mr__splitter sp;
+    mr__error err;
+    mr__chunk *c = new_chunk();
+    size_t used;
+    mr__error_clear(&err);
+    mr__splitter_init(&sp, "t.csv", 0);
+    mr__splitter_start_chunk(&sp, c);
+    ck_assert_int_eq(mr__splitter_feed(&sp, row1, sizeof row1 - 1, &used, keep_last, NULL, &err), MR_OK);
+    sp.line += blank;
+    sp.row_line = sp.line;
+    ck_assert_int_eq(mr__splitter_feed(&sp, row2, sizeof row2 - 1, &used, keep_last, NULL, &err), MR_OK);
+    ck_assert_int_eq(mr__splitter_finish(&sp, keep_last, NULL, &err), MR_OK);
+    ck_assert_uint_eq(c->nrows, 2);
+    expect_row(c, 0, "1,2\n", 1);
+    expect_row(c, 1, "3,4\n", 2 + blank);
+    mr__splitter_release(&sp);
+    free_chunk(c);
+}
+END_TEST
+
 START_TEST(test_split_blank_lines_before_header)
 {
     /* Source of truth: rowsplit.h (blank lines are skipped but counted). */
@@ -1239,6 +1267,7 @@ static Suite *input_suite(void)
     tcase_add_loop_test(split, test_split_many_chunks_recut, 0, 2);
     tcase_add_test(split, test_recut_notices_changed_bytes);
     tcase_add_test(split, test_split_line_numbers_after_embedded_newlines);
+    tcase_add_test(split, test_split_line_numbers_past_2_to_the_32);
     tcase_add_test(split, test_split_blank_lines_before_header);
     tcase_add_test(split, test_split_unterminated_quote);
     tcase_set_timeout(split, 120); /* sanitizer builds are slow */

@@ -33,6 +33,7 @@ void mr__block_release(mr__block *b)
     mr__free(b->num);
     mr__free(b->lev);
     mr__free(b->missing);
+    mr__free(b->new_levels);
     mr__free(b->extra);
     if (b->patterns) mr__pattern_rows_release(b->patterns);
     mr__free(b->patterns);
@@ -96,7 +97,13 @@ mr_status mr__decoder_init(mr__decoder *d, const mr__decode_cfg *cfg, mr__error 
         mr__decoder_release(d);
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }
-    for (f = 0; d->local && f < b->nfac; f++) mr__levelset_init(&d->local[f]);
+    /* One level beyond the limit is taken, so that the calling thread, which
+     * counts every worker's levels in block order, sees the file's first
+     * level beyond it before any worker's set is full (accum/census.h). */
+    for (f = 0; d->local && f < b->nfac; f++) {
+        mr__levelset_init(&d->local[f]);
+        d->local[f].limit = MR__MAX_LEVELS + 1;
+    }
     for (f = 0; d->numvals && f < b->nnum; f++) mr__levelset_init(&d->numvals[f]);
     for (f = 0; d->keysets && f < b->nfac + b->nnum; f++)
         d->keysets[f] = f < b->nfac ? &d->local[f] : &d->numvals[f - b->nfac];
@@ -135,28 +142,55 @@ static int is_missing(const mr__decoder *d, const char *p, size_t len)
     return 0;
 }
 
+void mr__cell_message(char *out, size_t cap, const mr__column *c, const char *what, const char *p, size_t len)
+{
+    char v[64];
+    mr__quote_value(v, sizeof v, p, len);
+    mr__utf8_mend_cut(out, cap, snprintf(out, cap, "%zu: column '%s': %s (value '%s')", c->field + 1, c->name, what, v));
+}
+
 /* Only the first problem of a row is kept: it is the one to fix first. */
 static void row_problem(mr__decoder *d, size_t col, mr_status kind, const char *what, const char *p, size_t len)
 {
-    char v[64];
     const mr__column *c = &d->cfg->bind->col[col];
     if (d->row_bad) return;
     d->row_bad = 1;
     d->row_status = kind;
     d->bad_field = c->field;
-    mr__quote_value(v, sizeof v, p, len);
-    mr__utf8_mend_cut(d->row_msg, sizeof d->row_msg,
-                      snprintf(d->row_msg, sizeof d->row_msg, "%zu: column '%s': %s (value '%s')", c->field + 1,
-                               c->name, what, v));
+    mr__cell_message(d->row_msg, sizeof d->row_msg, c, what, p, len);
+}
+
+/* First pass: the level is new to this worker; the block lists it. */
+static void first_pass_level(mr__decoder *d, int col, const char *p, size_t len)
+{
+    const mr__column *c = &d->cfg->bind->col[col];
+    mr__levelset *set = &d->local[c->var];
+    mr__block *blk = d->blk;
+    mr_status rc;
+    if (mr__levelset_lookup(set, p, len, &d->lev[col])) return;
+    /* names are C strings: "A\0B" and "A\0C" would both print as "A" */
+    if (memchr(p, '\0', len) != NULL) {
+        row_problem(d, (size_t)col, MR_ERR_FORMAT, "a NUL byte in a level (is this a text file?)", p, len);
+        return;
+    }
+    rc = mr__levelset_insert(set, p, len, &d->lev[col]);
+    if (rc == MR_ERR_DOMAIN) row_problem(d, (size_t)col, MR_ERR_DOMAIN, MR__TOO_MANY_LEVELS, p, len);
+    if (rc == MR_OK)
+        rc = mr__reserve((void **)&blk->new_levels, &blk->new_levels_cap, blk->nnew_levels + 1,
+                         sizeof *blk->new_levels);
+    if (rc == MR_ERR_NO_MEMORY) d->stop = 1;
+    if (rc != MR_OK) return;
+    blk->new_levels[blk->nnew_levels].str = set->name[d->lev[col]].str;
+    blk->new_levels[blk->nnew_levels].len = set->name[d->lev[col]].len;
+    blk->new_levels[blk->nnew_levels].row = d->row;
+    blk->new_levels[blk->nnew_levels++].var = (size_t)c->var;
 }
 
 static void decode_level(mr__decoder *d, int col, const char *p, size_t len)
 {
     const mr__column *c = &d->cfg->bind->col[col];
     if (d->cfg->levels == NULL) {
-        mr_status rc = mr__levelset_add(&d->local[c->var], p, len, &d->lev[col]);
-        if (rc == MR_ERR_DOMAIN) row_problem(d, (size_t)col, MR_ERR_DOMAIN, "more distinct levels than a factor may have (is it an identifier?)", p, len);
-        else if (rc != MR_OK) d->stop = 1;
+        first_pass_level(d, col, p, len);
         return;
     }
     d->lev[col] = mr__levelset_find(&d->cfg->levels[c->var], p, len);
@@ -179,7 +213,11 @@ static void on_field(void *user, size_t k, const char *p, size_t len)
         decode_level(d, col, p, len);
         return;
     }
-    if (!mr__parse_double(d->np, p, len, &d->val[col])) row_problem(d, (size_t)col, MR_ERR_FORMAT, "not a number", p, len);
+    if (!mr__parse_double(d->np, p, len, &d->val[col]))
+        row_problem(d, (size_t)col, MR_ERR_FORMAT,
+                    mr__is_number_syntax(p, len) ? "a number out of the range of a double (beyond 1.8e308 in size)"
+                                                 : "not a number",
+                    p, len);
 }
 
 static void domain_problem(mr__decoder *d, mr__use use, const char *what)
@@ -268,6 +306,7 @@ static void store_row(mr__decoder *d, double y, double prior, double off)
         blk->swy += prior * y;
         blk->llc += d->row_llc;
         blk->npos += prior > 0;
+        blk->nfraction += y > 0 && y < 1;
         if (b->has_exposure || b->has_offset) {
             /* a deferred offset is only ever wanted with a log link, which
              * starts from swe alone */
@@ -344,6 +383,7 @@ static void on_row_end(void *user, uint32_t r, size_t nfields)
     d->row_bad = 0;
     if (d->row_missing) memset(d->miss, 0, b->ncol);
     d->row_missing = 0;
+    d->row = r + 1;
 }
 
 /* The plain splitter's quick path for numeric cells: parsed as they are
@@ -380,14 +420,16 @@ mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, m
     blk->worker = d->worker;
     blk->nread = blk->n = blk->incomplete = blk->nbad = blk->nbad_shown = 0;
     blk->sw = blk->swy = blk->llc = blk->swe = blk->swoff = 0;
-    blk->npos = 0;
+    blk->npos = blk->nfraction = 0;
     blk->off_is_exposure = d->defer_offset;
     blk->failed = 0;
+    blk->nnew_levels = 0;
     mr__error_clear(&blk->err);
     for (k = 0; k < d->cfg->bind->ncol; k++) blk->missing[k] = 0;
     if (blk->patterns) mr__pattern_rows_begin(blk->patterns, d->keysets);
     d->blk = blk;
     d->chunk = c;
+    d->row = 0;
     d->stop = 0;
     d->row_bad = 0;
     d->row_missing = 0;

@@ -21,6 +21,14 @@
 
 #define MR__BAD_SHOWN 5
 
+/* First pass: a factor level a worker met for the first time, at chunk
+ * row `row`; `str` is the worker's own copy, valid for the whole pass. */
+typedef struct mr__new_level {
+    const char *str;
+    uint32_t len, row;
+    size_t var;          /* the factor */
+} mr__new_level;
+
 typedef struct mr__bad_row {
     uint64_t line;
     char msg[320];
@@ -50,11 +58,17 @@ typedef struct mr__block {
      * offset is deferred, see mr__decoder). */
     double sw, swy, llc, swe, swoff;
     uint64_t npos;
+    uint64_t nfraction; /* rows whose outcome lies strictly between 0 and 1 */
     /* Collapsed patterns only: per-pattern Pearson correction (see
      * accum/patterns.h); NULL otherwise. */
     double *extra;
     /* First pass with collapsing: this block's rows as pattern keys. */
     mr__pattern_rows *patterns;
+    /* First pass: the levels new to this block's worker, in the order met
+     * (rows, then fields); the calling thread counts them in block order
+     * (accum/census.h). */
+    mr__new_level *new_levels;
+    size_t nnew_levels, new_levels_cap;
     uint64_t *missing; /* per bound column: rows left out for a missing cell */
     uint32_t incomplete;
     uint32_t nbad, nbad_shown;
@@ -122,9 +136,19 @@ typedef struct mr__decoder {
     const mr__levelset **keysets;
     mr__block *blk;
     const mr__chunk *chunk;
+    uint32_t row;        /* the chunk row being decoded */
     int stop;
     mr__error *err;      /* out of memory inside a callback */
 } mr__decoder;
+
+#define MR__STRINGIFY(x) #x
+#define MR__STRING_OF(x) MR__STRINGIFY(x)
+#define MR__TOO_MANY_LEVELS \
+    "more than " MR__STRING_OF(MR__MAX_LEVELS) " distinct levels, the most a factor may have (is it an identifier?)"
+
+/* "FIELD: column 'NAME': WHAT (value 'V')", the part of a cell's message
+ * after file and line. */
+void mr__cell_message(char *out, size_t cap, const mr__column *c, const char *what, const char *p, size_t len);
 
 mr_status mr__decoder_init(mr__decoder *d, const mr__decode_cfg *cfg, mr__error *err);
 void mr__decoder_release(mr__decoder *d);

@@ -12,6 +12,7 @@
 #include "accum/pass.h"
 #include "common/alloc.h"
 #include "common/clock.h"
+#include "accum/census.h"
 #include "input/rowsplit.h"
 #include "input/source.h"
 
@@ -71,6 +72,7 @@ typedef struct engine {
     int reader_started;
     char *buf;
     size_t buf_cap, pending_off, pending_len;
+    mr__level_census census; /* first pass: every factor's levels, in block order */
 } engine;
 
 /* ---- the reader ------------------------------------------------------ */
@@ -682,6 +684,7 @@ static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *
         *err = s->err;
         return s->st;
     }
+    if (cfg->kind == MR__PASS_SCAN) MR__TRY(mr__census_add(&e->census, &s->block, s->chunk, cfg->dcfg, err));
     if (s->use == &s->block && s->block.failed) {
         *err = s->block.err;
         return s->block.err.status;
@@ -784,6 +787,7 @@ static void release_engine(engine *e)
     }
     mr__free(e->workers);
     release_slots(e);
+    mr__census_release(&e->census);
     mr__splitter_release(&e->sp);
     mr__source_close(e->src);
     mr__free(e->buf);
@@ -820,6 +824,7 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     if (st == MR_OK) st = replaying(cfg) ? init_slots(&e, err) : begin_stream(&e, err);
     if (st == MR_OK && cfg->kind == MR__PASS_SCAN)
         st = mr__scan_init(&res->scan, cfg->dcfg->bind->ncol, cfg->dcfg->bind->nnum, err);
+    if (st == MR_OK && cfg->kind == MR__PASS_SCAN) st = mr__census_init(&e.census, cfg->dcfg->bind->nfac, err);
     /* the columns are bound now that the header is read */
     if (st == MR_OK && res->collapsed &&
         mr__pattern_merge_init(&res->patterns, cfg->dcfg->bind->nfac + cfg->dcfg->bind->nnum, e.nworkers) != 0)

@@ -109,6 +109,7 @@ void mr__scan_block(const mr__block *blk, size_t ncol, size_t nnum, mr__scan_sum
     s->swy = blk->swy;
     s->llc = blk->llc;
     s->npos = blk->npos;
+    s->nfraction = blk->nfraction;
     s->swe = blk->swe;
     s->swoff = blk->swoff;
 }
@@ -126,6 +127,7 @@ void mr__scan_add(mr__scan_sums *into, const mr__scan_sums *from, size_t ncol, s
     into->incomplete += from->incomplete;
     into->nbad += from->nbad;
     into->npos += from->npos;
+    into->nfraction += from->nfraction;
     for (k = 0; k < ncol; k++) into->missing[k] += from->missing[k];
     into->sw += from->sw;
     into->swy += from->swy;
@@ -134,4 +136,17 @@ void mr__scan_add(mr__scan_sums *into, const mr__scan_sums *from, size_t ncol, s
     into->llc += from->llc;
     for (i = 0; i < from->nbad_shown && into->nbad_shown < MR__BAD_SHOWN; i++)
         into->bad[into->nbad_shown++] = from->bad[i];
+}
+
+size_t mr__scan_outcome_warnings(const mr__scan_sums *s, int family, int proportions_weighted,
+                                 const char *out[MR__SCAN_OUTCOME_WARNINGS])
+{
+    size_t n = 0;
+    if (family == MR_BINOMIAL && !proportions_weighted && s->nfraction > 0)
+        out[n++] = "outcome values between 0 and 1 with no weight or trials column: treated as proportions of one "
+                   "trial";
+    /* every weighted outcome 0: the maximum is at minus infinity */
+    if (family == MR_POISSON && s->sw > 0 && s->swy == 0)
+        out[n++] = "every outcome is 0: estimates are at the boundary and their standard errors meaningless";
+    return n;
 }

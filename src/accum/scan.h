@@ -13,6 +13,7 @@
 
 typedef struct mr__scan_sums {
     uint64_t nread, nused, incomplete, nbad, npos;
+    uint64_t nfraction; /* rows used whose outcome lies strictly between 0 and 1 */
     uint64_t *missing; /* per bound column */
     /* Per numeric: the sum, and the sum of squared deviations from the
      * mean as dev_scale^2 * dev_ssq (scaled, so that a cell of 1e200
@@ -38,5 +39,13 @@ void mr__scan_add(mr__scan_sums *into, const mr__scan_sums *from, size_t ncol, s
 /* Numeric k's standard deviation over the rows used (divisor n): 0 for a
  * constant column. */
 double mr__scan_spread(const mr__scan_sums *s, size_t k);
+
+/* What the first pass can tell about the outcome that makes a fit that
+ * runs misleading all the same: at most MR__SCAN_OUTCOME_WARNINGS static
+ * messages in out; returns how many.  `proportions_weighted`: the model
+ * has a weight or trials column. */
+#define MR__SCAN_OUTCOME_WARNINGS 2
+size_t mr__scan_outcome_warnings(const mr__scan_sums *s, int family, int proportions_weighted,
+                                 const char *out[MR__SCAN_OUTCOME_WARNINGS]);
 
 #endif

@@ -254,8 +254,10 @@ static void show_progress(const mr_progress *p, void *user)
 static int apply_model(cli *c)
 {
     size_t i;
-    if (c->model_file && mr_fitter_model_file(c->fitter, c->model_file) != MR_OK)
-        return usage_error(mr_fitter_errmsg(c->fitter));
+    mr_status st = c->model_file ? mr_fitter_model_file(c->fitter, c->model_file) : MR_OK;
+    /* a model file that cannot be read is an I/O error (3), not a usage one */
+    if (st == MR_ERR_USAGE) return usage_error(mr_fitter_errmsg(c->fitter));
+    if (st != MR_OK) return fail(st, mr_fitter_errmsg(c->fitter));
     for (i = 0; i < c->nlines; i++) {
         char origin[64];
         snprintf(origin, sizeof origin, "--%s", c->model_origin[i]);

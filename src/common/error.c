@@ -5,15 +5,46 @@
 #include "error.h"
 #include "utf8.h"
 
+size_t mr__escape_text(char *out, size_t cap, const char *s, size_t len)
+{
+    static const char hex[] = "0123456789abcdef";
+    size_t i, o = 0;
+    if (cap == 0) return 0;
+    for (i = 0; i < len; i++) {
+        unsigned char c = (unsigned char)s[i];
+        int control = c < 0x20 || c == 0x7f;
+        if (o + (control ? 4 : 1) >= cap) break;
+        if (!control) {
+            out[o++] = (char)c;
+            continue;
+        }
+        out[o++] = '\\';
+        out[o++] = 'x';
+        out[o++] = hex[c >> 4];
+        out[o++] = hex[c & 15];
+    }
+    if (i < len) {
+        /* cut between characters: the bytes of a character begun are
+         * never control bytes, one byte out for each */
+        size_t whole = mr__utf8_cut(s, i);
+        o -= i - whole;
+        i = whole;
+    }
+    out[o] = '\0';
+    return i;
+}
+
+/* Messages quote header names, cells, model words: any control byte in
+ * them is escaped here, once for all, so none reaches a terminal raw. */
 mr_status mr__fail(mr__error *err, mr_status status, const char *fmt, ...)
 {
     if (err != NULL) {
+        char raw[MR__MSG_CAP];
         va_list ap;
-        int written;
         va_start(ap, fmt);
-        written = vsnprintf(err->msg, sizeof err->msg, fmt, ap);
+        mr__utf8_mend_cut(raw, sizeof raw, vsnprintf(raw, sizeof raw, fmt, ap));
         va_end(ap);
-        mr__utf8_mend_cut(err->msg, sizeof err->msg, written);
+        mr__escape_text(err->msg, sizeof err->msg, raw, strlen(raw));
         err->status = status;
     }
     return status;
@@ -32,20 +63,15 @@ void mr__error_export(const mr__error *err, char *msg, size_t cap)
 
 void mr__quote_value(char *out, size_t cap, const char *s, size_t len)
 {
-    size_t i, o = 0, keep = len;
-    if (cap == 0) return;
-    /* a cell cut short is cut between characters, never inside one */
-    if (cap < 5) keep = 0;
-    else if (len > cap - 4) keep = mr__utf8_cut(s, cap - 4);
-    for (i = 0; i < keep; i++) {
-        unsigned char c = (unsigned char)s[i];
-        out[o++] = (c < 0x20 || c == 0x7f) ? '?' : (char)c;
+    size_t o;
+    if (cap < 4) {
+        mr__escape_text(out, cap, s, len);
+        return;
     }
-    if (keep < len && o + 4 <= cap) {
-        memcpy(out + o, "...", 3);
-        o += 3;
-    }
-    out[o] = '\0';
+    /* room kept for "..." */
+    if (mr__escape_text(out, cap - 3, s, len) == len) return;
+    o = strlen(out);
+    memcpy(out + o, "...", 4);
 }
 
 const char *mr_strerror(mr_status status)

@@ -27,8 +27,15 @@ void mr__error_clear(mr__error *err);
  * calls that take msg, msgcap); cap may be 0. */
 void mr__error_export(const mr__error *err, char *msg, size_t cap);
 
-/* Copies at most `cap` bytes of a cell into `out` for quoting it in a
- * message, replacing control characters; always NUL terminates. */
+/* The one escaping of input text in messages: copies s[0, len) into out
+ * (cap bytes with the NUL), each control byte (below 0x20, and 0x7f)
+ * written as \xNN, so that no escape sequence from a file reaches a
+ * terminal.  Stops where the room ends; returns the bytes of s taken.
+ * mr__fail applies it to every message. */
+size_t mr__escape_text(char *out, size_t cap, const char *s, size_t len);
+
+/* A cell quoted in a message: escaped as above, cut with "..." to fit
+ * `cap` bytes; always NUL terminates. */
 void mr__quote_value(char *out, size_t cap, const char *s, size_t len);
 
 #define MR__TRY(expr)                          \

@@ -42,7 +42,7 @@ static mr_status insert_hashed(mr__levelset *s, uint64_t h, uint64_t head, const
         *out = e->id;
         return MR_OK;
     }
-    if (s->n >= MR__MAX_LEVELS) return MR_ERR_DOMAIN;
+    if (s->n >= (s->limit ? s->limit : MR__MAX_LEVELS)) return MR_ERR_DOMAIN;
     e->str = mr__strndup(p, len);
     if (e->str == NULL) return MR_ERR_NO_MEMORY;
     e->hash = h;

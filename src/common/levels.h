@@ -33,6 +33,8 @@ typedef struct mr__levelset {
     /* Sets filled by mr__levelset_add: each id's string, in id order. */
     mr__level_name *name;
     size_t name_cap;
+    /* Most levels the set takes; 0 = MR__MAX_LEVELS. */
+    size_t limit;
 } mr__levelset;
 
 /* ---- the look-up, inline: it runs for every factor cell ---------- */
@@ -109,7 +111,7 @@ mr_status mr__levelset_insert(mr__levelset *s, const char *p, size_t len, int32_
 
 /* Adds the string if new (id = order of arrival) and stores its id in
  * *id.  Returns MR_OK, or MR_ERR_NO_MEMORY, or MR_ERR_DOMAIN when the set
- * already holds MR__MAX_LEVELS.  Inline: nearly every cell is met before. */
+ * already holds its limit.  Inline: nearly every cell is met before. */
 static inline mr_status mr__levelset_add(mr__levelset *s, const char *p, size_t len, int32_t *id)
 {
     return mr__levelset_lookup(s, p, len, id) ? MR_OK : mr__levelset_insert(s, p, len, id);

@@ -4,6 +4,7 @@
 #include <string.h>
 
 #include "common/alloc.h"
+#include "common/error.h"
 #include "common/strbuf.h"
 #include "common/utf8.h"
 #include "fit/fit.h"
@@ -86,11 +87,14 @@ long mr__fit_find_factor(const mr_fit *fit, const char *name)
 
 void mr__fit_warn(mr_fit *fit, const char *fmt, ...)
 {
-    char buf[1024], *copy, **grown;
+    char raw[1024], buf[1024], *copy, **grown;
     va_list ap;
     va_start(ap, fmt);
-    mr__utf8_mend_cut(buf, sizeof buf, vsnprintf(buf, sizeof buf, fmt, ap));
+    mr__utf8_mend_cut(raw, sizeof raw, vsnprintf(raw, sizeof raw, fmt, ap));
     va_end(ap);
+    /* warnings quote level and column names from the file, escaped as
+     * every message is (mr__escape_text) */
+    mr__escape_text(buf, sizeof buf, raw, strlen(raw));
     grown = mr__realloc(fit->warning, (fit->nwarnings + 1) * sizeof *grown);
     if (grown == NULL) return;
     fit->warning = grown;

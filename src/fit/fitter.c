@@ -1,4 +1,7 @@
+#define _POSIX_C_SOURCE 200809L
+#include <fcntl.h>
 #include <string.h>
+#include <unistd.h>
 
 #include "common/alloc.h"
 #include "fit/fitter.h"
@@ -135,6 +138,10 @@ mr_status mr_fitter_run(mr_fitter *f, const char *path, mr_fit **out)
 {
     *out = NULL;
     mr__error_clear(&f->err);
+    /* Closed, descriptor 0 would go to the next file opened (the copy of
+     * standard input kept for later passes), and be read as empty input. */
+    if (strcmp(path, "-") == 0 && fcntl(STDIN_FILENO, F_GETFD) < 0)
+        return mr__fail(&f->err, MR_ERR_IO, "<stdin>: standard input is closed, so there is nothing to read");
     return mr__fit_file(f, path, out);
 }
 

@@ -396,6 +396,10 @@ static void collect_warnings(mr_fit *fit, const mr__run *r)
 {
     size_t j, n = 0;
     mr__strbuf sb;
+    const char *outcome[MR__SCAN_OUTCOME_WARNINGS];
+    size_t noutcome = mr__scan_outcome_warnings(&r->first.scan, fit->family, r->bind.has_weight || r->bind.has_trials,
+                                                outcome);
+    for (j = 0; j < noutcome; j++) mr__fit_warn(fit, "%s", outcome[j]);
     if (!fit->converged)
         mr__fit_warn(fit, "NOT CONVERGED after %d IRLS passes (relative deviance change %.3g, tolerance %.3g): "
                           "the estimates are not a maximum-likelihood fit",

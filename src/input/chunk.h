@@ -22,7 +22,9 @@ typedef struct mr__chunk {
     char *data;
     size_t len, cap;
     size_t row_start[MR__BLOCK_ROWS + 1]; /* row r is data[row_start[r] .. row_start[r+1]) */
-    uint32_t row_line[MR__BLOCK_ROWS];    /* line of row r minus first_line */
+    /* line of row r minus first_line: 64 bits, as a chunk may span more
+     * than 2^32 lines (blank ones) */
+    uint64_t row_line[MR__BLOCK_ROWS];
 } mr__chunk;
 
 #endif

@@ -1189,6 +1189,12 @@ static MR__NOINLINE int parse_general(const mr__numparser *np, const decimal *d,
     return 1;
 }
 
+int mr__is_number_syntax(const char *s, size_t len)
+{
+    decimal d;
+    return len > 0 && scan_field(s, len, &d);
+}
+
 int mr__parse_double(mr__numparser *np, const char *s, size_t len, double *out)
 {
     decimal d;

@@ -31,6 +31,11 @@ void mr__numparser_free(mr__numparser *np);
  * number); underflow to subnormal/zero is accepted as strtod rounds it. */
 int mr__parse_double(mr__numparser *np, const char *s, size_t len, double *out);
 
+/* 1 when [s, s+len) has the form mr__parse_double accepts, whatever its
+ * magnitude: a field it refused though it has that form overflows a
+ * double (1e400).  For messages only. */
+int mr__is_number_syntax(const char *s, size_t len);
+
 /* The commonest case of mr__parse_double, inline for the decoder's loop:
  * from p, an optional '-' and at most 15 digits with at most one '.', up to
  * `stop` or e.  The digits then make an integer m < 2^53 and the value is

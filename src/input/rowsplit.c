@@ -53,6 +53,31 @@ static char *room_after(char **buf, size_t *cap, size_t len, size_t n, mr__error
     return *buf + len;
 }
 
+/* Outside quotes, carriage returns followed by something other than a
+ * line feed: the lines end in a CR alone (classic Mac OS text), and the
+ * whole file would be read as one header row. */
+static int has_lone_cr(const char *p, size_t n)
+{
+    size_t i, j;
+    int quoted = 0;
+    for (i = 0; i < n; i++) {
+        if (p[i] == '"') quoted = !quoted;
+        if (quoted || p[i] != '\r') continue;
+        for (j = i; j < n && p[j] == '\r'; j++) continue;
+        if (j < n && p[j] != '\n') return 1;
+        i = j - 1;
+    }
+    return 0;
+}
+
+static mr_status refuse_cr_only(const mr__splitter *sp, mr__error *err)
+{
+    return mr__fail(err, MR_ERR_FORMAT,
+                    "%s:%llu: the line ends are carriage returns alone (classic Mac OS text); convert them to line "
+                    "feeds (LF or CRLF)",
+                    sp->display, (unsigned long long)sp->row_line);
+}
+
 /* The row being built lives at the end of the chunk (or in the header
  * buffer before the header is complete). */
 static mr_status append(mr__splitter *sp, const char *p, size_t n, mr__error *err)
@@ -70,6 +95,8 @@ static mr_status append(mr__splitter *sp, const char *p, size_t n, mr__error *er
         cap = &sp->cur->cap;
         start = sp->cur->row_start[sp->cur->nrows];
     }
+    if (*len - start + n > MR__MAX_ROW_BYTES && sp->want_header && has_lone_cr(*buf, *len))
+        return refuse_cr_only(sp, err);
     if (*len - start + n > MR__MAX_ROW_BYTES)
         return mr__fail(err, MR_ERR_FORMAT, "%s:%llu: row longer than %u MiB (is this a text file?)",
                         sp->display, (unsigned long long)sp->row_line, MR__MAX_ROW_BYTES >> 20);
@@ -167,13 +194,27 @@ static const char *skip_blank_lines(mr__splitter *sp, const char *p, const char 
     return last + 1;
 }
 
+/* A UTF-8 byte-order mark before the header is not part of it
+ * (mr__parse_header drops it): a line holding only one is blank. */
+static int header_is_blank(const mr__splitter *sp)
+{
+    const char *h = sp->header;
+    size_t n = sp->header_len;
+    if (n >= 3 && memcmp(h, "\xEF\xBB\xBF", 3) == 0) {
+        h += 3;
+        n -= 3;
+    }
+    return is_blank_row(h, n);
+}
+
 static mr_status end_row(mr__splitter *sp, mr__chunk_sink sink, void *user, mr__error *err)
 {
     mr__chunk *c = sp->cur;
     if (sp->want_header) {
-        if (is_blank_row(sp->header, sp->header_len)) {
+        if (header_is_blank(sp)) {
             sp->header_len = 0;
         } else {
+            if (has_lone_cr(sp->header, sp->header_len)) return refuse_cr_only(sp, err);
             sp->want_header = 0;
         }
         sp->row_line = sp->line;
@@ -184,7 +225,7 @@ static mr_status end_row(mr__splitter *sp, mr__chunk_sink sink, void *user, mr__
         sp->row_line = sp->line;
         return MR_OK;
     }
-    c->row_line[c->nrows] = (uint32_t)(sp->row_line - c->first_line);
+    c->row_line[c->nrows] = sp->row_line - c->first_line;
     c->nrows++;
     c->row_start[c->nrows] = c->len;
     sp->rows++;
@@ -248,11 +289,13 @@ static const char *find_newline(const char *p, const char *end)
 static const char *take_rows_in_place(mr__splitter *sp, const char *p, const char *end)
 {
     mr__chunk *c = sp->cur;
-    if (sp->want_header || sp->in_quote || c == NULL || p != c->data + c->len) return p;
+    /* a chunk with no buffer yet holds nothing read in place (and NULL + 0
+     * is undefined) */
+    if (sp->want_header || sp->in_quote || c == NULL || c->data == NULL || p != c->data + c->len) return p;
     while (c->nrows + 1 < MR__BLOCK_ROWS) {
         const char *nl = find_newline(p, end), *row = c->data + c->row_start[c->nrows];
         if (nl == NULL || may_be_blank(*row) || (size_t)(nl + 1 - row) > MR__MAX_ROW_BYTES) break;
-        c->row_line[c->nrows] = (uint32_t)(sp->row_line - c->first_line);
+        c->row_line[c->nrows] = sp->row_line - c->first_line;
         c->nrows++;
         c->len = (size_t)(nl + 1 - c->data);
         c->row_start[c->nrows] = c->len;
@@ -323,7 +366,9 @@ mr_status mr__splitter_finish(mr__splitter *sp, mr__chunk_sink sink, void *user,
         return mr__fail(err, MR_ERR_FORMAT, "%s:%llu: unterminated quote (the file ends inside a quoted field)",
                         sp->display, (unsigned long long)sp->quote_line);
     if (sp->want_header) {
-        if (sp->header_len > 0 && !is_blank_row(sp->header, sp->header_len)) sp->want_header = 0;
+        if (sp->header_len == 0 || header_is_blank(sp)) return MR_OK;
+        if (has_lone_cr(sp->header, sp->header_len)) return refuse_cr_only(sp, err);
+        sp->want_header = 0;
         return MR_OK;
     }
     if (c != NULL && c->len > c->row_start[c->nrows]) MR__TRY(end_row(sp, sink, user, err));

@@ -284,7 +284,7 @@ mr_status mr__spec_file(mr__spec *s, const char *path, mr__error *err)
         }
         st = mr__spec_line(s, line, origin, err);
     }
-    if (st == MR_OK && ferror(fp)) st = mr__fail(err, MR_ERR_IO, "%s: read error", path);
+    if (st == MR_OK && ferror(fp)) st = mr__fail(err, MR_ERR_IO, "%s: cannot read model file: %s", path, strerror(errno));
     fclose(fp);
     return st;
 }

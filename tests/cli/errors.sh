@@ -23,8 +23,15 @@ poisson_model=(--outcome y --family poisson --factor g --numeric x)
 # expect NAME CODE DATA 'fixed strings to find in stderr' -- fit options...
 # Runs one failing fit and checks everything a failure must guarantee.
 expect() {
-    local name=$1 code=$2 data=$3
-    shift 3
+    expect_within 600 "$@"
+}
+
+# expect_within SECONDS NAME CODE DATA ...: the same, the fit given at most
+# SECONDS (a limit far above the time it needs: it catches a quadratic
+# cost, not a slow machine).
+expect_within() {
+    local limit=$1 name=$2 code=$3 data=$4
+    shift 4
     local needles=()
     while [ $# -gt 0 ] && [ "$1" != "--" ]; do needles+=("$1"); shift; done
     shift
@@ -32,7 +39,7 @@ expect() {
     mkdir -p "$outdir"
     local json="$outdir/fit.json" err="$tmp/$name.err" before="" after=""
     [ -f "$data" ] && before=$(sha256sum < "$data")
-    "$bin" fit --quiet --json "$json" "$@" "$data" > "$tmp/$name.out" 2> "$err"
+    timeout "$limit" "$bin" fit --quiet --json "$json" "$@" "$data" > "$tmp/$name.out" 2> "$err"
     local rc=$?
     [ -f "$data" ] && after=$(sha256sum < "$data")
     local problems=""
@@ -64,14 +71,77 @@ expect unseen_reference_level 2 "$f" "ZZZ" -- --outcome y --family poisson --fac
 expect unknown_family 2 "$f" "frobnicate" -- --outcome y --family frobnicate --numeric x
 expect link_not_allowed 2 "$f" "logit" -- --outcome y --family poisson --link logit --numeric x
 expect bad_option_value 2 "$f" "--threads" -- "${poisson_model[@]}" --threads many
+expect column_with_two_roles 2 "$f" "column 'y' is used twice, as the outcome and as a factor" -- \
+    --outcome y --family poisson --factor y
+expect weight_also_exposure 2 "$f" "column 'e' is used twice, as the weight and as the exposure" -- \
+    "${poisson_model[@]}" --weight e --exposure e
+
+# Text from the file reaches stderr with its control bytes escaped: no
+# escape sequence from a header or a cell gets to the terminal.
+no_raw_controls() {
+    if LC_ALL=C grep -q '[[:cntrl:]]' <(tr -d '\n' < "$tmp/$1.err"); then
+        fail "$1_escaped" "raw control bytes in stderr: $(od -c "$tmp/$1.err" | head -n 3 | tr '\n' '|')"
+    else
+        ok "$1_escaped"
+    fi
+}
+f="$tmp/escape_in_header.csv"
+{ printf 'y,\033[31mred,\033]0;title\007\n'; echo '1,2,3'; } > "$f"
+expect escape_in_header_name 2 "$f" 'columns: y, \x1b[31mred, \x1b]0;title\x07)' -- --outcome y --numeric x
+no_raw_controls escape_in_header_name
+f="$tmp/escape_in_duplicate.csv"
+{ printf 'y,\033[2J,\033[2J\n'; echo '1,2,3'; } > "$f"
+expect escape_in_duplicate_name 4 "$f" "duplicate column name '\x1b[2J' (also column 2)" -- --outcome y
+no_raw_controls escape_in_duplicate_name
+f="$tmp/escape_in_cell.csv"
+{ echo "$header"; printf '1,A,\0332,1,2,1.5,1.5,1.5\n'; good_rows; } > "$f"
+expect escape_in_cell 4 "$f" "$f:2:3:" "(value '\x1b2')" -- "${poisson_model[@]}"
+no_raw_controls escape_in_cell
 
 # ---- I/O (exit 3)
 expect missing_input 3 "$tmp/does-not-exist.csv" "$tmp/does-not-exist.csv" -- "${poisson_model[@]}"
+f="$tmp/good.csv"
+expect missing_model_file 3 "$f" "$tmp/no-such.model" "cannot open model file" -- -m "$tmp/no-such.model"
+mkdir -p "$tmp/a-directory.model"
+expect model_file_is_a_directory 3 "$f" "$tmp/a-directory.model" "cannot read model file" -- -m "$tmp/a-directory.model"
+
+# standard input closed (not merely empty): said so, not "the file is empty"
+"$bin" fit --quiet "${poisson_model[@]}" - <&- > /dev/null 2> "$tmp/closed_stdin.err"
+rc=$?
+if [ "$rc" -eq 3 ] && grep -q '^millrace: <stdin>: standard input is closed' "$tmp/closed_stdin.err"; then
+    ok closed_stdin
+else
+    fail closed_stdin "exit $rc, expected 3; stderr: $(head -c 300 "$tmp/closed_stdin.err")"
+fi
 
 # ---- malformed input (exit 4)
 f="$tmp/duplicate_header.csv"
 { echo 'y,g,x,g'; echo '1,A,2,B'; echo '2,B,3,A'; } > "$f"
 expect duplicate_column 4 "$f" "$f:1:4:" "'g'" -- "${poisson_model[@]}"
+
+# 200,000 columns, the first name again at the end: found at once (the
+# duplicate check is n log n, not a comparison of every pair)
+f="$tmp/wide_duplicate.csv"
+/usr/bin/python3 -c '
+import sys
+names = ["y"] + ["c%d" % i for i in range(2, 200001)] + ["y"]
+sys.stdout.write(",".join(names) + "\n" + ",".join(["1"] * len(names)) + "\n")' > "$f"
+expect_within 30 wide_duplicate_column 4 "$f" "$f:1:200001:" "'y' (also column 1)" -- --outcome y
+f="$tmp/wide.csv"
+/usr/bin/python3 -c '
+import sys
+names = ["y", "x"] + ["c%d" % i for i in range(3, 200001)]
+rows = [[str(i % 3), str(i)] + ["0"] * (len(names) - 2) for i in range(6)]
+sys.stdout.write("\n".join(",".join(r) for r in [names] + rows) + "\n")' > "$f"
+if timeout 30 "$bin" fit --quiet --outcome y --numeric x "$f" > "$tmp/wide.out" 2> "$tmp/wide.err"; then
+    ok wide_header_fits
+else
+    fail wide_header_fits "exit $? (124: timed out); $(head -c 300 "$tmp/wide.err")"
+fi
+
+f="$tmp/cr_only.csv"
+{ echo "$header"; good_rows; } | tr '\n' '\r' > "$f"
+expect cr_only_line_ends 4 "$f" "$f:1: the line ends are carriage returns alone" -- "${poisson_model[@]}"
 
 f="$tmp/field_count.csv"
 { echo "$header"; good_rows | head -n 2; echo '3,A,1.5'; good_rows | tail -n 5; } > "$f"
@@ -80,6 +150,14 @@ expect wrong_field_count 4 "$f" "$f:4:" -- "${poisson_model[@]}"
 f="$tmp/bad_number.csv"
 { echo "$header"; good_rows | head -n 1; echo '2,B,12x,1,2,1.5,1.5,1.5'; good_rows | tail -n 5; } > "$f"
 expect unparsable_number 4 "$f" "$f:3:3:" "'12x'" -- "${poisson_model[@]}"
+
+f="$tmp/number_too_large.csv"
+{ echo "$header"; good_rows | head -n 3; echo '2,B,-1e400,1,2,1.5,1.5,1.5'; good_rows | tail -n 5; } > "$f"
+expect number_out_of_range 4 "$f" "$f:5:3:" "out of the range of a double" "'-1e400'" -- "${poisson_model[@]}"
+
+f="$tmp/nul_in_level.csv"
+{ echo "$header"; good_rows | head -n 2; printf '2,A\0B,1.5,1,2,1.5,1.5,1.5\n2,A\0C,1.5,1,2,1.5,1.5,1.5\n'; good_rows; } > "$f"
+expect nul_in_level 4 "$f" "$f:4:2: column 'g': a NUL byte in a level" "(value 'A\x00B')" -- "${poisson_model[@]}"
 
 f="$tmp/unterminated_quote.csv"
 { echo "$header"; good_rows | head -n 3; echo '1,"A,2.5,1,2,1.5,1.5,1.5'; echo '2,B,1.5,1,2,1.5,1.5,1.5'; } > "$f"
@@ -103,6 +181,13 @@ expect corrupt_zstd 4 "$f" "$f" -- "${poisson_model[@]}"
 f="$tmp/empty.csv"
 : > "$f"
 expect empty_file 6 "$f" "$f" -- "${poisson_model[@]}"
+
+f="$tmp/bom_only.csv"
+printf '\xef\xbb\xbf' > "$f"
+expect bom_only 6 "$f" "$f" -- "${poisson_model[@]}"
+f="$tmp/bom_and_blank_line.csv"
+printf '\xef\xbb\xbf\r\n' > "$f"
+expect bom_and_blank_line 6 "$f" "$f" -- "${poisson_model[@]}"
 
 f="$tmp/header_only.csv"
 echo "$header" > "$f"
@@ -140,6 +225,31 @@ expect nonpositive_exposure 5 "$f" "$f:6:6:" "'0'" -- "${poisson_model[@]}" --ex
 f="$tmp/negative_weight.csv"
 { echo "$header"; good_rows | head -n 2; echo '1,A,1.5,1,2,1.5,-2,1.5'; good_rows | tail -n 3; } > "$f"
 expect negative_weight 5 "$f" "$f:4:7:" "'-2'" -- "${poisson_model[@]}" --weight w
+
+# A factor with more levels than the limit (100,000): the file's first
+# level beyond it is named, whatever the threads, read size or bad-row
+# mode (each worker numbers the levels it meets; the count is the file's).
+f="$tmp/many_levels.csv"
+/usr/bin/python3 - "$f" > "$tmp/many_levels.expect" <<'EOF2'
+import sys
+seen, first_beyond = set(), None
+with open(sys.argv[1], "w") as out:
+    out.write("y,h,g\n")
+    for i in range(300000):
+        level = "L%d" % ((i * 2654435761) % 180000)
+        if level not in seen and len(seen) == 100000 and first_beyond is None:
+            first_beyond = (i + 2, level)  # line 1 is the header
+        seen.add(level)
+        out.write("%d,%s,%s\n" % (i % 3, "AB"[i % 2], level))
+print("%s:%d:3: column 'g': more than 100000 distinct levels" % (sys.argv[1], first_beyond[0]))
+print("(value '%s')" % first_beyond[1])
+EOF2
+mapfile -t want < "$tmp/many_levels.expect"
+for run in "1 1048576 fail" "2 4096 fail" "3 65536 skip" "4 100000 fail"; do
+    set -- $run
+    expect "many_levels_threads_$1_$3" 5 "$f" "${want[0]}" "${want[1]}" -- --outcome y --family poisson --factor h \
+        --factor g --threads "$1" --buffer-size "$2" --on-bad-row "$3"
+done
 
 # ---- an existing JSON at the --json path survives a failed run
 f="$tmp/field_count.csv"
