@@ -1,6 +1,5 @@
 /* binomial.c - proportions: V(mu) = mu (1 - mu), 0 <= y <= 1 (or successes
  * of a trials column), dispersion fixed at 1. */
-#include <float.h>
 #include <math.h>
 
 #include "common/probability.h"
@@ -51,21 +50,12 @@ static double loglik_row(const mr__family *f, double y, double w, double t, int 
                 mr__xlogy(m - k, 1 - y));
 }
 
-static double loglik(const mr__family *f, double dev, double llc, double n, double sw)
-{
-    (void)f;
-    (void)n;
-    (void)sw;
-    return llc - dev / 2;
-}
-
 static size_t count_boundary(const mr__family *f, const double *mu, size_t n)
 {
-    const double edge = 10 * DBL_EPSILON; /* common practice: where fitted values stop being informative */
     size_t bad = 0;
     (void)f;
     for (size_t i = 0; i < n; i++)
-        bad += mu[i] <= edge || mu[i] >= 1 - edge;
+        bad += mu[i] <= MR__BOUNDARY_EDGE || mu[i] >= 1 - MR__BOUNDARY_EDGE;
     return bad;
 }
 
@@ -82,7 +72,7 @@ const mr__family_ops mr__binomial_family = {
     .variance_n = binomial_variance_n,
     .unit_deviance_n = binomial_unit_deviance_n,
     .loglik_row = loglik_row,
-    .loglik = loglik,
+    .loglik = mr__loglik_fixed_dispersion,
     .saturated_term = saturated_term,
     .count_boundary = count_boundary,
     .boundary_what = "fitted probabilities are numerically 0 or 1",

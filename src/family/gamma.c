@@ -24,13 +24,6 @@ static double saturated_term(const mr__family *f, double y)
     return -1 - log(y);
 }
 
-static double loglik_row(const mr__family *f, double y, double w, double t, int has_trials)
-{
-    (void)f;
-    (void)has_trials;
-    return w * t * log(y);
-}
-
 /* The shape a = 1 / dispersion taken as sw / deviance. */
 static double loglik(const mr__family *f, double dev, double llc, double n, double sw)
 {
@@ -51,7 +44,7 @@ const mr__family_ops mr__gamma_family = {
     .mustart_n = mr__mustart_y,
     .variance_n = gamma_variance_n,
     .unit_deviance_n = gamma_unit_deviance_n,
-    .loglik_row = loglik_row,
+    .loglik_row = mr__loglik_row_log_y,
     .loglik = loglik,
     .dispersion_estimated = 1,
     .dispersion_counts = 1,

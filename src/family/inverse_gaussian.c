@@ -21,13 +21,6 @@ static double saturated_term(const mr__family *f, double y)
     return 0.5 / y;
 }
 
-static double loglik_row(const mr__family *f, double y, double w, double t, int has_trials)
-{
-    (void)f;
-    (void)has_trials;
-    return w * t * log(y);
-}
-
 static double loglik(const mr__family *f, double dev, double llc, double n, double sw)
 {
     (void)f;
@@ -47,7 +40,7 @@ const mr__family_ops mr__inverse_gaussian_family = {
     .mustart_n = mr__mustart_y,
     .variance_n = inverse_gaussian_variance_n,
     .unit_deviance_n = inverse_gaussian_unit_deviance_n,
-    .loglik_row = loglik_row,
+    .loglik_row = mr__loglik_row_log_y,
     .loglik = loglik,
     .dispersion_estimated = 1,
     .dispersion_counts = 1,

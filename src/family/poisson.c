@@ -1,5 +1,4 @@
 /* poisson.c - counts: V(mu) = mu, y >= 0, dispersion fixed at 1. */
-#include <float.h>
 #include <math.h>
 
 #include "common/probability.h"
@@ -34,21 +33,12 @@ static double loglik_row(const mr__family *f, double y, double w, double t, int 
     return prior * (mr__xlogy(y, y) - y - mr__log_gamma(y + 1));
 }
 
-static double loglik(const mr__family *f, double dev, double llc, double n, double sw)
-{
-    (void)f;
-    (void)n;
-    (void)sw;
-    return llc - dev / 2;
-}
-
 static size_t count_boundary(const mr__family *f, const double *mu, size_t n)
 {
-    const double edge = 10 * DBL_EPSILON; /* common practice: where fitted values stop being informative */
     size_t bad = 0;
     (void)f;
     for (size_t i = 0; i < n; i++)
-        bad += mu[i] <= edge;
+        bad += mu[i] <= MR__BOUNDARY_EDGE;
     return bad;
 }
 
@@ -64,7 +54,7 @@ const mr__family_ops mr__poisson_family = {
     .variance_n = poisson_variance_n,
     .unit_deviance_n = poisson_unit_deviance_n,
     .loglik_row = loglik_row,
-    .loglik = loglik,
+    .loglik = mr__loglik_fixed_dispersion,
     .saturated_term = saturated_term,
     .log_offset_patterns = 1,
     .log_offset_null_exact = 1,

@@ -7,6 +7,7 @@
 #ifndef MR_FAMILY_UNIT_H
 #define MR_FAMILY_UNIT_H
 
+#include <float.h>
 #include <math.h>
 
 #include "common/mathx.h"
@@ -31,6 +32,28 @@ static inline double mr__half_poisson(double y, double mu)
     if (fabs(d) <= 0.25 * y)
         return -y * mr__log1pmx_small(d / y);
     return y * log(y / mu) + d;
+}
+
+/* Where a fitted mean counts as on the edge of its range: common practice,
+ * where fitted values stop being informative. */
+#define MR__BOUNDARY_EDGE (10 * DBL_EPSILON)
+
+/* Families with the dispersion fixed at 1: the data-only constant less
+ * half the deviance. */
+static inline double mr__loglik_fixed_dispersion(const mr__family *f, double dev, double llc, double n, double sw)
+{
+    (void)f;
+    (void)n;
+    (void)sw;
+    return llc - dev / 2;
+}
+
+/* Gamma and inverse-gaussian: each row's prior weight times log y. */
+static inline double mr__loglik_row_log_y(const mr__family *f, double y, double w, double t, int has_trials)
+{
+    (void)f;
+    (void)has_trials;
+    return w * t * log(y);
 }
 
 /* The null start's mean for families whose means are > 0. */
