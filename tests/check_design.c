@@ -418,6 +418,10 @@ START_TEST(test_spec_lines_parsed)
     ck_assert_str_eq(s.inter[0].name[0], "g");
     ck_assert_str_eq(s.inter[0].name[1], "x");
     ck_assert_int_eq(s.intercept, 1);
+    /* no family line: gaussian, as fitted with no parameter */
+    mr__family fam = mr__spec_family(&s);
+    ck_assert_ptr_eq(fam.ops, mr__family_ops_of(MR_GAUSSIAN));
+    ck_assert(isnan(fam.param));
     mr__spec_release(&s);
 }
 END_TEST
@@ -453,6 +457,12 @@ START_TEST(test_spec_line_errors)
     expect_usage_error("intercept maybe", "falls.model:9", "maybe");
     expect_usage_error("outcome \"y", "falls.model:10", NULL);
     expect_usage_error("colour g", NULL, "colour");
+    /* The family line: none of the families has a parameter, so words
+     * after the name are refused as they always were. */
+    expect_usage_error("family poisson theta=2", "falls.model:11", "'family' takes 1 value, got 2");
+    expect_usage_error("family nosuch extra", "falls.model:12", "'family' takes 1 value, got 2");
+    expect_usage_error("family nosuch", "falls.model:13", "unknown family 'nosuch'");
+    expect_usage_error("family", "falls.model:14", "'family' takes 1 value, got 0");
 }
 END_TEST
 

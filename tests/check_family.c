@@ -9,11 +9,13 @@
 #include <check.h>
 #include <float.h>
 #include <math.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
 #include "family/family.h"
 #include "check_common.h"
+#include "family_reference.h"
 
 #define N_OF(a) (sizeof(a) / sizeof((a)[0]))
 
@@ -23,6 +25,59 @@ static const mr_family FAMILIES[] = {MR_GAUSSIAN, MR_BINOMIAL, MR_POISSON, MR_GA
                                      MR_INVERSE_GAUSSIAN};
 static const mr_link LINKS[] = {MR_IDENTITY, MR_LOGIT,   MR_PROBIT, MR_CLOGLOG,
                                 MR_LOG,      MR_INVERSE, MR_SQRT,   MR_INVERSE_SQUARED};
+
+static const mr__family_ops *fam(mr_family f) { return mr__family_ops_of(f); }
+static const mr__link_ops *lnk(mr_link l) { return mr__link_ops_of(l); }
+
+/* One value through the array kernels. */
+static double link_inv(mr_link l, double eta)
+{
+    double d;
+    return mr__link_inv1(lnk(l), eta, &d);
+}
+
+static double link_mu_eta(mr_link l, double eta)
+{
+    double d;
+    mr__link_inv1(lnk(l), eta, &d);
+    return d;
+}
+
+static double link_fun(mr_link l, double mu) { return mr__link_fun1(lnk(l), mu); }
+
+static void fam_variance_n(mr_family f, const double *mu, size_t n, double *var)
+{
+    mr__family x = mr__family_plain(f);
+    x.ops->variance_n(&x, mu, n, var);
+}
+
+static void fam_deviance_n(mr_family f, const double *y, const double *mu, size_t n, double *dev)
+{
+    mr__family x = mr__family_plain(f);
+    x.ops->unit_deviance_n(&x, y, mu, n, dev);
+}
+
+static double fam_variance(mr_family f, double mu)
+{
+    double v;
+    fam_variance_n(f, &mu, 1, &v);
+    return v;
+}
+
+static double fam_deviance(mr_family f, double y, double mu)
+{
+    double d;
+    fam_deviance_n(f, &y, &mu, 1, &d);
+    return d;
+}
+
+static double fam_mustart(mr_family f, double y, double w)
+{
+    mr__family x = mr__family_plain(f);
+    double mu;
+    x.ops->mustart_n(&x, &y, &w, 1, &mu);
+    return mu;
+}
 
 /* The pairs listed in include/millrace.h, canonical link first. */
 typedef struct pair_spec {
@@ -101,8 +156,9 @@ START_TEST(test_count_invalid_matches_scalar_checks)
         for (l = MR_IDENTITY; l <= MR_INVERSE_SQUARED; l++) {
             size_t want = 0, i;
             for (i = 0; i < K * K; i++)
-                want += !(mr__link_eta_valid((mr_link)l, eta[i]) && mr__family_mu_valid((mr_family)f, mu[i]));
-            ck_assert_uint_eq(mr__count_invalid_n((mr_family)f, (mr_link)l, eta, mu, K * K), want);
+                want += !(mr__link_eta_valid(lnk((mr_link)l), eta[i]) &&
+                          mr__family_mu_valid(fam((mr_family)f), mu[i]));
+            ck_assert_uint_eq(mr__count_invalid_n(fam((mr_family)f), lnk((mr_link)l), eta, mu, K * K), want);
         }
 }
 END_TEST
@@ -117,7 +173,7 @@ START_TEST(link_round_trip)
                 double mu = MU_GRID[i];
                 if (!usable_mu(f, l, mu))
                     continue;
-                double back = mr__link_inv(l, mr__link_fun(l, mu));
+                double back = link_inv(l, link_fun(l, mu));
                 /* Analytic identity: g^-1 is the inverse of g. */
                 ck_assert_msg(fabs(back - mu) <= 1e-12 * fabs(mu), "%s/%s: g^-1(g(%.17g)) = %.17g",
                               mr__family_name(f), mr__link_name(l), mu, back);
@@ -152,11 +208,11 @@ START_TEST(mu_eta_matches_finite_difference)
             double mu0 = MU_GRID[i];
             if (!in_link_domain(l, mu0))
                 continue;
-            double eta = mr__link_fun(l, mu0);
+            double eta = link_fun(l, mu0);
             double h = fd_step(l, eta);
-            double up = mr__link_inv(l, eta + h), down = mr__link_inv(l, eta - h);
+            double up = link_inv(l, eta + h), down = link_inv(l, eta - h);
             double fd = (up - down) / (2.0 * h);
-            double analytic = mr__link_mu_eta(l, eta);
+            double analytic = link_mu_eta(l, eta);
             /* 1e-8 relative for truncation (the h^2 term is below 1e-9),
              * plus the rounding of the two means (a few ulp) over the step. */
             double tol = 1e-8 * fabs(analytic) + 8.0 * DBL_EPSILON * fmax(fabs(up), fabs(down)) / h;
@@ -175,23 +231,23 @@ START_TEST(extreme_eta_stays_finite)
     static const double etas[] = {-1e308, -1000.0, -40.0, 40.0, 1000.0, 1e308};
     for (size_t j = 0; j < N_OF(prob_links); j++)
         for (size_t i = 0; i < N_OF(etas); i++) {
-            double mu = mr__link_inv(prob_links[j], etas[i]);
-            double d = mr__link_mu_eta(prob_links[j], etas[i]);
+            double mu = link_inv(prob_links[j], etas[i]);
+            double d = link_mu_eta(prob_links[j], etas[i]);
             ck_assert_msg(mu >= DBL_EPSILON && mu <= 1.0 - DBL_EPSILON, "%s mu(%g) = %g",
                           mr__link_name(prob_links[j]), etas[i], mu);
             ck_assert_msg(d >= DBL_EPSILON && isfinite(d), "%s mu_eta(%g) = %g",
                           mr__link_name(prob_links[j]), etas[i], d);
         }
-    ck_assert(mr__link_inv(MR_LOG, -1000.0) == DBL_EPSILON);
-    ck_assert(mr__link_mu_eta(MR_LOG, -1000.0) == DBL_EPSILON);
+    ck_assert(link_inv(MR_LOG, -1000.0) == DBL_EPSILON);
+    ck_assert(link_mu_eta(MR_LOG, -1000.0) == DBL_EPSILON);
     /* logistic(0) = 1/2 and its slope 1/4; Phi(0) = 1/2, phi(0) = 1/sqrt(2 pi);
      * cloglog: 1 - exp(-1) at eta = 0 with slope exp(-1). */
-    ck_assert(mr__link_inv(MR_LOGIT, 0.0) == 0.5);
-    ck_assert(mr__link_mu_eta(MR_LOGIT, 0.0) == 0.25);
-    ck_assert(mr__link_inv(MR_PROBIT, 0.0) == 0.5);
-    ck_assert(fabs(mr__link_mu_eta(MR_PROBIT, 0.0) - 1.0 / sqrt(2.0 * PI)) < 1e-16);
-    ck_assert(fabs(mr__link_inv(MR_CLOGLOG, 0.0) - (1.0 - exp(-1.0))) < 1e-16);
-    ck_assert(fabs(mr__link_mu_eta(MR_CLOGLOG, 0.0) - exp(-1.0)) < 1e-16);
+    ck_assert(link_inv(MR_LOGIT, 0.0) == 0.5);
+    ck_assert(link_mu_eta(MR_LOGIT, 0.0) == 0.25);
+    ck_assert(link_inv(MR_PROBIT, 0.0) == 0.5);
+    ck_assert(fabs(link_mu_eta(MR_PROBIT, 0.0) - 1.0 / sqrt(2.0 * PI)) < 1e-16);
+    ck_assert(fabs(link_inv(MR_CLOGLOG, 0.0) - (1.0 - exp(-1.0))) < 1e-16);
+    ck_assert(fabs(link_mu_eta(MR_CLOGLOG, 0.0) - exp(-1.0)) < 1e-16);
 }
 END_TEST
 
@@ -201,13 +257,13 @@ END_TEST
 START_TEST(variance_known_points)
 {
     /* V(mu) = 1, mu(1-mu), mu, mu^2, mu^3 by definition of the families. */
-    ck_assert(mr__family_variance(MR_GAUSSIAN, 7.5) == 1.0);
-    ck_assert(mr__family_variance(MR_BINOMIAL, 0.25) == 0.1875);
-    ck_assert(mr__family_variance(MR_BINOMIAL, 0.5) == 0.25);
-    ck_assert(mr__family_variance(MR_POISSON, 3.0) == 3.0);
-    ck_assert(mr__family_variance(MR_GAMMA, 3.0) == 9.0);
-    ck_assert(mr__family_variance(MR_INVERSE_GAUSSIAN, 3.0) == 27.0);
-    ck_assert(mr__family_variance(MR_INVERSE_GAUSSIAN, 0.5) == 0.125);
+    ck_assert(fam_variance(MR_GAUSSIAN, 7.5) == 1.0);
+    ck_assert(fam_variance(MR_BINOMIAL, 0.25) == 0.1875);
+    ck_assert(fam_variance(MR_BINOMIAL, 0.5) == 0.25);
+    ck_assert(fam_variance(MR_POISSON, 3.0) == 3.0);
+    ck_assert(fam_variance(MR_GAMMA, 3.0) == 9.0);
+    ck_assert(fam_variance(MR_INVERSE_GAUSSIAN, 3.0) == 27.0);
+    ck_assert(fam_variance(MR_INVERSE_GAUSSIAN, 0.5) == 0.125);
 }
 END_TEST
 
@@ -269,7 +325,7 @@ START_TEST(deviance_is_twice_loglik_difference)
                     continue;
                 double lyy = log_density(f, y, y), lym = log_density(f, y, mu);
                 double want = 2.0 * (lyy - lym);
-                double got = mr__family_unit_deviance(f, y, mu);
+                double got = fam_deviance(f, y, mu);
                 /* The reference subtracts two log densities: allow their
                  * rounding (a few ulp of each) besides 1e-12 relative. */
                 double tol = 1e-12 * fabs(want) + 16.0 * DBL_EPSILON * (fabs(lyy) + fabs(lym));
@@ -288,7 +344,7 @@ START_TEST(deviance_zero_at_y_and_nonnegative)
             double y = Y_GRID[i];
             /* d(y, y) = 0 (saturated model); the mean y must be valid too. */
             if (y_in_support(f, y) && in_family_range(f, y))
-                ck_assert_msg(mr__family_unit_deviance(f, y, y) == 0.0, "%s d(%g,%g)",
+                ck_assert_msg(fam_deviance(f, y, y) == 0.0, "%s d(%g,%g)",
                               mr__family_name(f), y, y);
         }
         /* d >= 0 (the saturated likelihood is the maximum), on a dense grid
@@ -297,11 +353,11 @@ START_TEST(deviance_zero_at_y_and_nonnegative)
             for (double mu = 1.0 / 128; mu < 1.0; mu += 1.0 / 97) {
                 if (!y_in_support(f, y))
                     continue;
-                double d = mr__family_unit_deviance(f, y, mu);
+                double d = fam_deviance(f, y, mu);
                 ck_assert_msg(d >= 0.0, "%s d(%g, %g) = %g", mr__family_name(f), y, mu, d);
                 double near = y == 0.0 ? 1e-12 : y * (1.0 - 1e-9);
                 if (in_family_range(f, near))
-                    ck_assert_msg(mr__family_unit_deviance(f, y, near) >= 0.0, "%s near y=%g",
+                    ck_assert_msg(fam_deviance(f, y, near) >= 0.0, "%s near y=%g",
                                   mr__family_name(f), y);
             }
     }
@@ -321,9 +377,9 @@ START_TEST(deviance_near_mean_is_quadratic)
             if (!in_family_range(f, mu))
                 continue;
             double y = mu * (1.0 + 1e-7);
-            double v = mr__family_variance(f, mu);
+            double v = fam_variance(f, mu);
             double quad = (y - mu) * (y - mu) / v;
-            double d = mr__family_unit_deviance(f, y, mu);
+            double d = fam_deviance(f, y, mu);
             ck_assert_msg(fabs(d - quad) <= 1e-6 * quad, "%s at mu=%g: d=%.17g quad=%.17g",
                           mr__family_name(f), mu, d, quad);
         }
@@ -343,7 +399,7 @@ START_TEST(deviance_residual_squares_back)
                 double y = Y_GRID[i], mu = DEV_MU_GRID[j];
                 if (!y_in_support(f, y) || !in_family_range(f, mu))
                     continue;
-                double d = mr__family_unit_deviance(f, y, mu);
+                double d = fam_deviance(f, y, mu);
                 double r = copysign(sqrt(d), y - mu);
                 /* sqrt is correctly rounded, so r^2 is within 2 ulp of d. */
                 ck_assert_msg(fabs(r * r - d) <= 2.0 * DBL_EPSILON * d, "%s r^2 != d",
@@ -412,23 +468,23 @@ START_TEST(arrays_equal_scalars_bitwise)
     eta[N - 1] = 800.0;
     for (size_t j = 0; j < N_OF(LINKS); j++) {
         mr_link l = LINKS[j];
-        mr__link_inv_n(l, eta, N, mu, dmu);
+        lnk(l)->inv_n(eta, N, mu, dmu);
         for (int i = 0; i < N; i++) {
-            ck_assert_msg(same_bits(mu[i], mr__link_inv(l, eta[i])), "%s mu[%d]",
+            ck_assert_msg(same_bits(mu[i], link_inv(l, eta[i])), "%s mu[%d]",
                           mr__link_name(l), i);
-            ck_assert_msg(same_bits(dmu[i], mr__link_mu_eta(l, eta[i])), "%s mu_eta[%d]",
+            ck_assert_msg(same_bits(dmu[i], link_mu_eta(l, eta[i])), "%s mu_eta[%d]",
                           mr__link_name(l), i);
         }
     }
     for (size_t k = 0; k < N_OF(FAMILIES); k++) {
         mr_family f = FAMILIES[k];
-        mr__link_inv_n(MR_LOGIT, eta, N, mu, dmu); /* means in (0, 1) */
-        mr__family_variance_n(f, mu, N, out);
+        lnk(MR_LOGIT)->inv_n(eta, N, mu, dmu); /* means in (0, 1) */
+        fam_variance_n(f, mu, N, out);
         for (int i = 0; i < N; i++)
-            ck_assert(same_bits(out[i], mr__family_variance(f, mu[i])));
-        mr__family_unit_deviance_n(f, y, mu, N, out);
+            ck_assert(same_bits(out[i], fam_variance(f, mu[i])));
+        fam_deviance_n(f, y, mu, N, out);
         for (int i = 0; i < N; i++)
-            ck_assert_msg(same_bits(out[i], mr__family_unit_deviance(f, y[i], mu[i])), "%s dev[%d]",
+            ck_assert_msg(same_bits(out[i], fam_deviance(f, y[i], mu[i])), "%s dev[%d]",
                           mr__family_name(f), i);
     }
 }
@@ -444,63 +500,253 @@ START_TEST(outcome_range_is_the_domain)
 {
     static const double ys[] = {-1.0, -1e-300, 0.0, 1e-300, 0.5, 1.0, 1.0000001, 7.0};
     for (int f = MR_GAUSSIAN; f <= MR_INVERSE_GAUSSIAN; f++) {
-        mr__outcome_range r = mr__family_outcome_range((mr_family)f);
+        mr__outcome_range r = fam((mr_family)f)->outcome;
         for (size_t i = 0; i < sizeof ys / sizeof ys[0]; i++)
-            ck_assert_msg((mr__outcome_problem(&r, ys[i]) == NULL) == mr__family_y_valid((mr_family)f, ys[i]),
+            ck_assert_msg((mr__outcome_problem(&r, ys[i]) == NULL) == mr__family_y_valid(fam((mr_family)f), ys[i]),
                           "%s at %g", mr__family_name((mr_family)f), ys[i]);
     }
-    mr__outcome_range pois = mr__family_outcome_range(MR_POISSON), gam = mr__family_outcome_range(MR_GAMMA);
+    mr__outcome_range pois = fam(MR_POISSON)->outcome, gam = fam(MR_GAMMA)->outcome;
     ck_assert_str_eq(mr__outcome_problem(&pois, -1.0), "a count cannot be negative");
     ck_assert_ptr_null(mr__outcome_problem(&pois, 0.0));
     ck_assert_str_eq(mr__outcome_problem(&gam, 0.0), "the gamma family needs an outcome > 0");
-    mr__outcome_range gauss = mr__family_outcome_range(MR_GAUSSIAN);
+    mr__outcome_range gauss = fam(MR_GAUSSIAN)->outcome;
     ck_assert_ptr_null(mr__outcome_problem(&gauss, -INFINITY));
 }
 END_TEST
 
 START_TEST(domains)
 {
-    ck_assert(mr__family_y_valid(MR_GAUSSIAN, -3.0));
-    ck_assert(!mr__family_y_valid(MR_GAUSSIAN, NAN));
-    ck_assert(mr__family_y_valid(MR_BINOMIAL, 0.0) && mr__family_y_valid(MR_BINOMIAL, 1.0));
-    ck_assert(!mr__family_y_valid(MR_BINOMIAL, 1.0000001));
-    ck_assert(mr__family_y_valid(MR_POISSON, 0.0) && !mr__family_y_valid(MR_POISSON, -1e-300));
-    ck_assert(!mr__family_y_valid(MR_GAMMA, 0.0) && mr__family_y_valid(MR_GAMMA, 1e-300));
-    ck_assert(!mr__family_y_valid(MR_INVERSE_GAUSSIAN, 0.0));
-    ck_assert(!mr__family_y_valid(MR_POISSON, INFINITY));
+    ck_assert(mr__family_y_valid(fam(MR_GAUSSIAN), -3.0));
+    ck_assert(!mr__family_y_valid(fam(MR_GAUSSIAN), NAN));
+    ck_assert(mr__family_y_valid(fam(MR_BINOMIAL), 0.0) && mr__family_y_valid(fam(MR_BINOMIAL), 1.0));
+    ck_assert(!mr__family_y_valid(fam(MR_BINOMIAL), 1.0000001));
+    ck_assert(mr__family_y_valid(fam(MR_POISSON), 0.0) && !mr__family_y_valid(fam(MR_POISSON), -1e-300));
+    ck_assert(!mr__family_y_valid(fam(MR_GAMMA), 0.0) && mr__family_y_valid(fam(MR_GAMMA), 1e-300));
+    ck_assert(!mr__family_y_valid(fam(MR_INVERSE_GAUSSIAN), 0.0));
+    ck_assert(!mr__family_y_valid(fam(MR_POISSON), INFINITY));
 
-    ck_assert(!mr__family_mu_valid(MR_BINOMIAL, 0.0) && !mr__family_mu_valid(MR_BINOMIAL, 1.0));
-    ck_assert(mr__family_mu_valid(MR_BINOMIAL, 0.5));
-    ck_assert(!mr__family_mu_valid(MR_POISSON, 0.0) && mr__family_mu_valid(MR_POISSON, 2.0));
-    ck_assert(!mr__family_mu_valid(MR_GAMMA, -1.0));
-    ck_assert(mr__family_mu_valid(MR_GAUSSIAN, -1.0));
+    ck_assert(!mr__family_mu_valid(fam(MR_BINOMIAL), 0.0) && !mr__family_mu_valid(fam(MR_BINOMIAL), 1.0));
+    ck_assert(mr__family_mu_valid(fam(MR_BINOMIAL), 0.5));
+    ck_assert(!mr__family_mu_valid(fam(MR_POISSON), 0.0) && mr__family_mu_valid(fam(MR_POISSON), 2.0));
+    ck_assert(!mr__family_mu_valid(fam(MR_GAMMA), -1.0));
+    ck_assert(mr__family_mu_valid(fam(MR_GAUSSIAN), -1.0));
 
-    ck_assert(mr__link_eta_valid(MR_LOGIT, -700.0) && !mr__link_eta_valid(MR_LOGIT, INFINITY));
-    ck_assert(!mr__link_eta_valid(MR_INVERSE, 0.0) && mr__link_eta_valid(MR_INVERSE, -2.0));
-    ck_assert(!mr__link_eta_valid(MR_INVERSE_SQUARED, -1.0));
-    ck_assert(!mr__link_eta_valid(MR_INVERSE_SQUARED, 0.0));
-    ck_assert(!mr__link_eta_valid(MR_SQRT, 0.0) && mr__link_eta_valid(MR_SQRT, 0.1));
-    ck_assert(!mr__link_eta_valid(MR_IDENTITY, NAN));
+    ck_assert(mr__link_eta_valid(lnk(MR_LOGIT), -700.0) && !mr__link_eta_valid(lnk(MR_LOGIT), INFINITY));
+    ck_assert(!mr__link_eta_valid(lnk(MR_INVERSE), 0.0) && mr__link_eta_valid(lnk(MR_INVERSE), -2.0));
+    ck_assert(!mr__link_eta_valid(lnk(MR_INVERSE_SQUARED), -1.0));
+    ck_assert(!mr__link_eta_valid(lnk(MR_INVERSE_SQUARED), 0.0));
+    ck_assert(!mr__link_eta_valid(lnk(MR_SQRT), 0.0) && mr__link_eta_valid(lnk(MR_SQRT), 0.1));
+    ck_assert(!mr__link_eta_valid(lnk(MR_IDENTITY), NAN));
 }
 END_TEST
 
 START_TEST(starting_values)
 {
     /* The customary starts: y; (w y + 1/2) / (w + 1); y + 0.1; y; y. */
-    ck_assert(mr__family_mustart(MR_GAUSSIAN, -2.5, 1.0) == -2.5);
-    ck_assert(mr__family_mustart(MR_BINOMIAL, 0.0, 1.0) == 0.25);
-    ck_assert(mr__family_mustart(MR_BINOMIAL, 1.0, 3.0) == 0.875);
-    ck_assert(mr__family_mustart(MR_POISSON, 0.0, 1.0) == 0.1);
-    ck_assert(mr__family_mustart(MR_GAMMA, 4.0, 2.0) == 4.0);
-    ck_assert(mr__family_mustart(MR_INVERSE_GAUSSIAN, 0.3, 2.0) == 0.3);
+    ck_assert(fam_mustart(MR_GAUSSIAN, -2.5, 1.0) == -2.5);
+    ck_assert(fam_mustart(MR_BINOMIAL, 0.0, 1.0) == 0.25);
+    ck_assert(fam_mustart(MR_BINOMIAL, 1.0, 3.0) == 0.875);
+    ck_assert(fam_mustart(MR_POISSON, 0.0, 1.0) == 0.1);
+    ck_assert(fam_mustart(MR_GAMMA, 4.0, 2.0) == 4.0);
+    ck_assert(fam_mustart(MR_INVERSE_GAUSSIAN, 0.3, 2.0) == 0.3);
     /* Every start is a valid mean whose canonical eta is valid. */
     for (size_t k = 0; k < N_OF(FAMILIES); k++) {
         mr_family f = FAMILIES[k];
         double y = f == MR_BINOMIAL ? 1.0 : (f == MR_POISSON ? 0.0 : 2.0);
-        double m = mr__family_mustart(f, y, 5.0);
+        double m = fam_mustart(f, y, 5.0);
         ck_assert(in_family_range(f, m));
         mr_link l = mr__canonical_link(f);
-        ck_assert(mr__link_eta_valid(l, mr__link_fun(l, m)));
+        ck_assert(mr__link_eta_valid(lnk(l), link_fun(l, m)));
+    }
+}
+END_TEST
+
+/* ------------------------------------------------------------------ */
+/* The tables against the code they replaced (tests/family_reference.h) */
+
+/* A grid over every family's range and past its edges. */
+static const double WIDE_Y[] = {-2.0,  -1e-300, 0.0,          1e-300, 1e-12, 1e-6, 0.01, 0.3,  0.5,
+                                0.77,  0.99,    1.0 - 1e-10,  1.0,    1.5,   2.0,  7.25, 40.0, 1e6};
+static const double W_GRID[] = {0.0, 0.5, 1.0, 3.0, 12.0, 1e3};
+
+static int same_text(const char *a, const char *b) { return a == b || (a && b && strcmp(a, b) == 0); }
+
+START_TEST(descriptors_are_complete)
+{
+    for (int f = 0; f < REF_N_FAMILIES; f++) {
+        const mr__family_ops *o = mr__family_ops_of((mr_family)f);
+        ck_assert_ptr_nonnull(o);
+        ck_assert_msg(o->name && o->clamp_mean && o->mustart_n && o->variance_n && o->unit_deviance_n &&
+                          o->loglik_row && o->loglik,
+                      "family %d lacks a hook", f);
+        ck_assert_str_eq(o->name, ref_family_name((mr_family)f));
+        ck_assert((o->count_boundary != NULL) == (o->boundary_what != NULL));
+        ck_assert((o->boundary_what != NULL) == (o->boundary_why != NULL));
+        ck_assert(o->links >> o->canonical_link & 1u);
+        ck_assert(o->links < 1u << REF_N_LINKS);
+        ck_assert(o->mu_lo < o->mu_hi);
+        /* collapsing with an offset needs the sums of the form without */
+        ck_assert(!o->log_offset_patterns || o->saturated_term != NULL);
+        ck_assert_ptr_null(o->parse_param); /* none of these takes a parameter */
+        mr__family plain = mr__family_plain((mr_family)f);
+        ck_assert(plain.ops == o && isnan(plain.param));
+    }
+    ck_assert_ptr_null(mr__family_ops_of((mr_family)REF_N_FAMILIES));
+    ck_assert_ptr_null(mr__family_ops_of((mr_family)-1));
+    for (int l = 0; l < REF_N_LINKS; l++) {
+        const mr__link_ops *o = mr__link_ops_of((mr_link)l);
+        ck_assert_ptr_nonnull(o);
+        ck_assert(o->name && o->fun_n && o->inv_n);
+        ck_assert_str_eq(o->name, ref_link_name((mr_link)l));
+    }
+    ck_assert_ptr_null(mr__link_ops_of((mr_link)REF_N_LINKS));
+    ck_assert_ptr_null(mr__link_ops_of((mr_link)-1));
+}
+END_TEST
+
+START_TEST(tables_match_before)
+{
+    for (int f = -1; f <= REF_N_FAMILIES; f++) {
+        ck_assert_int_eq(mr__canonical_link((mr_family)f), ref_canonical_link((mr_family)f));
+        ck_assert_str_eq(mr__family_name((mr_family)f), ref_family_name((mr_family)f));
+        for (int l = -1; l <= REF_N_LINKS; l++)
+            ck_assert_int_eq(mr__link_allowed((mr_family)f, (mr_link)l), ref_link_allowed((mr_family)f, (mr_link)l));
+    }
+    for (int f = 0; f < REF_N_FAMILIES; f++) {
+        const mr__family_ops *o = fam((mr_family)f);
+        ck_assert_int_eq(o->dispersion_estimated, ref_dispersion_estimated((mr_family)f));
+        ck_assert_int_eq(o->dispersion_counts, ref_dispersion_counts((mr_family)f));
+        ck_assert_int_eq(o->takes_trials, ref_takes_trials((mr_family)f));
+        ck_assert_int_eq(o->log_offset_patterns, ref_log_offset_patterns((mr_family)f));
+        ck_assert_int_eq(o->log_offset_null_exact, ref_log_offset_patterns((mr_family)f));
+        ck_assert(same_text(o->ratio_logit, ref_ratio_label((mr_family)f, MR_LOGIT)));
+        ck_assert(same_text(o->ratio_log, ref_ratio_label((mr_family)f, MR_LOG)));
+        if (o->boundary_what) {
+            char msg[400];
+            snprintf(msg, sizeof msg, "%s for %llu rows: %s", o->boundary_what, 7ULL, o->boundary_why);
+            ck_assert_str_eq(msg, ref_boundary_warning((mr_family)f));
+        } else {
+            ck_assert_ptr_null(ref_boundary_warning((mr_family)f));
+        }
+    }
+}
+END_TEST
+
+/* The decoder's check of each outcome: the same values refused, with the
+ * same message; and the same valid means. */
+START_TEST(outcome_checks_match_before)
+{
+    static const double extra[] = {-INFINITY, INFINITY, NAN, 1.0 + DBL_EPSILON, -0.0};
+    double ys[N_OF(WIDE_Y) + N_OF(extra)];
+    memcpy(ys, WIDE_Y, sizeof WIDE_Y);
+    memcpy(ys + N_OF(WIDE_Y), extra, sizeof extra);
+    for (int f = 0; f < REF_N_FAMILIES; f++) {
+        mr__outcome_range old = ref_family_outcome_range((mr_family)f);
+        for (size_t i = 0; i < N_OF(ys); i++) {
+            ck_assert_msg(same_text(mr__outcome_problem(&fam((mr_family)f)->outcome, ys[i]),
+                                    ref_outcome_problem(&old, ys[i])),
+                          "%s at %g", ref_family_name((mr_family)f), ys[i]);
+            ck_assert_int_eq(mr__family_y_valid(fam((mr_family)f), ys[i]), ref_family_y_valid((mr_family)f, ys[i]));
+            ck_assert_int_eq(mr__family_mu_valid(fam((mr_family)f), ys[i]), ref_family_mu_valid((mr_family)f, ys[i]));
+        }
+    }
+    for (int l = 0; l < REF_N_LINKS; l++)
+        for (size_t i = 0; i < N_OF(ys); i++)
+            ck_assert_int_eq(mr__link_eta_valid(lnk((mr_link)l), ys[i]), ref_link_eta_valid((mr_link)l, ys[i]));
+}
+END_TEST
+
+/* Every kernel over the whole grid at once against the old scalar
+ * function at each point: the same bits. */
+START_TEST(family_kernels_match_before)
+{
+    enum { NY = N_OF(WIDE_Y), NM = N_OF(MU_GRID), NW = N_OF(W_GRID) };
+    double y[NY * NM], mu[NY * NM], out[NY * NM], yw[NY * NW], w[NY * NW];
+    for (size_t a = 0; a < NY; a++) {
+        for (size_t b = 0; b < NM; b++) {
+            y[a * NM + b] = WIDE_Y[a];
+            mu[a * NM + b] = MU_GRID[b];
+        }
+        for (size_t b = 0; b < NW; b++) {
+            yw[a * NW + b] = WIDE_Y[a];
+            w[a * NW + b] = W_GRID[b];
+        }
+    }
+    for (int f = 0; f < REF_N_FAMILIES; f++) {
+        const mr_family ff = (mr_family)f;
+        mr__family x = mr__family_plain(ff);
+        const char *name = ref_family_name(ff);
+        x.ops->variance_n(&x, mu, NY * NM, out);
+        for (size_t i = 0; i < NY * NM; i++)
+            ck_assert_msg(same_bits(out[i], ref_family_variance(ff, mu[i])), "%s V(%g)", name, mu[i]);
+        x.ops->unit_deviance_n(&x, y, mu, NY * NM, out);
+        for (size_t i = 0; i < NY * NM; i++)
+            ck_assert_msg(same_bits(out[i], ref_family_unit_deviance(ff, y[i], mu[i])), "%s d(%g, %g)", name, y[i],
+                          mu[i]);
+        x.ops->mustart_n(&x, yw, w, NY * NW, out);
+        for (size_t i = 0; i < NY * NW; i++)
+            ck_assert_msg(same_bits(out[i], ref_family_mustart(ff, yw[i], w[i])), "%s start(%g, %g)", name, yw[i],
+                          w[i]);
+        x.ops->mustart_n(&x, yw, NULL, NY * NW, out); /* no weights: 1 each */
+        for (size_t i = 0; i < NY * NW; i++) ck_assert(same_bits(out[i], ref_family_mustart(ff, yw[i], 1.0)));
+        for (size_t i = 0; i < NY; i++) {
+            ck_assert_msg(same_bits(x.ops->saturated_term(&x, WIDE_Y[i]), ref_family_saturated_term(ff, WIDE_Y[i])),
+                          "%s h(%g)", name, WIDE_Y[i]);
+            ck_assert(same_bits(x.ops->clamp_mean(WIDE_Y[i]), ref_clamp_mean(ff, WIDE_Y[i])));
+        }
+        ck_assert(same_bits(x.ops->clamp_mean(NAN), ref_clamp_mean(ff, NAN)));
+        for (size_t i = 0; i < NY * NW; i++)
+            for (size_t k = 0; k < NW; k++)
+                for (int trials = 0; trials < 2; trials++)
+                    ck_assert_msg(same_bits(x.ops->loglik_row(&x, yw[i], w[i], W_GRID[k], trials),
+                                            ref_loglik_constant(ff, yw[i], w[i], W_GRID[k], trials)),
+                                  "%s llc(%g, %g, %g, %d)", name, yw[i], w[i], W_GRID[k], trials);
+    }
+}
+END_TEST
+
+START_TEST(likelihood_and_boundary_match_before)
+{
+    static const double devs[] = {1e-3, 0.5, 10.0, 1234.5}, llcs[] = {-3.0, 0.0, 17.25};
+    static const double ns[] = {5.0, 1000.0}, sws[] = {2.5, 1000.0, 1e6};
+    static const double edge_mu[] = {-1.0, 0.0, 1e-16, 10 * DBL_EPSILON, 2.3e-15, 0.5, 1 - 10 * DBL_EPSILON,
+                                     1 - 1e-16, 1.0, 2.0, NAN};
+    for (int f = 0; f < REF_N_FAMILIES; f++) {
+        mr__family x = mr__family_plain((mr_family)f);
+        size_t want = 0;
+        for (size_t a = 0; a < N_OF(devs); a++)
+            for (size_t b = 0; b < N_OF(llcs); b++)
+                for (size_t c = 0; c < N_OF(ns); c++)
+                    for (size_t d = 0; d < N_OF(sws); d++)
+                        ck_assert(same_bits(x.ops->loglik(&x, devs[a], llcs[b], ns[c], sws[d]),
+                                            ref_log_likelihood((mr_family)f, devs[a], ns[c], llcs[b], sws[d])));
+        for (size_t i = 0; i < N_OF(edge_mu); i++) want += ref_at_boundary(f, edge_mu[i]);
+        ck_assert_uint_eq(x.ops->count_boundary ? x.ops->count_boundary(&x, edge_mu, N_OF(edge_mu)) : 0, want);
+    }
+}
+END_TEST
+
+START_TEST(link_kernels_match_before)
+{
+    enum { NE = 64 };
+    double eta[NE], mu[NE], dmu[NE], g[N_OF(MU_GRID)];
+    for (int i = 0; i < NE; i++) eta[i] = -40.0 + 80.0 * i / (NE - 1) + 1e-3 * sin(i);
+    eta[0] = -800.0;
+    eta[1] = 0.0;
+    eta[NE - 1] = 800.0;
+    for (int l = 0; l < REF_N_LINKS; l++) {
+        const mr__link_ops *o = lnk((mr_link)l);
+        o->inv_n(eta, NE, mu, dmu);
+        for (int i = 0; i < NE; i++) {
+            ck_assert_msg(same_bits(mu[i], ref_link_inv((mr_link)l, eta[i])), "%s mu(%g)", o->name, eta[i]);
+            ck_assert_msg(same_bits(dmu[i], ref_link_mu_eta((mr_link)l, eta[i])), "%s dmu(%g)", o->name, eta[i]);
+        }
+        o->fun_n(MU_GRID, N_OF(MU_GRID), g);
+        for (size_t i = 0; i < N_OF(MU_GRID); i++)
+            ck_assert_msg(same_bits(g[i], ref_link_fun((mr_link)l, MU_GRID[i])), "%s g(%g)", o->name, MU_GRID[i]);
+        for (int f = 0; f < REF_N_FAMILIES; f++)
+            ck_assert_uint_eq(mr__count_invalid_n(fam((mr_family)f), o, eta, mu, NE),
+                              ref_count_invalid_n((mr_family)f, (mr_link)l, eta, mu, NE));
     }
 }
 END_TEST
@@ -529,6 +775,14 @@ static Suite *family_suite(void)
     tcase_add_test(tables, outcome_range_is_the_domain);
     tcase_add_test(tables, starting_values);
     suite_add_tcase(s, tables);
+    TCase *before = tcase_create("as before");
+    tcase_add_test(before, descriptors_are_complete);
+    tcase_add_test(before, tables_match_before);
+    tcase_add_test(before, outcome_checks_match_before);
+    tcase_add_test(before, family_kernels_match_before);
+    tcase_add_test(before, likelihood_and_boundary_match_before);
+    tcase_add_test(before, link_kernels_match_before);
+    suite_add_tcase(s, before);
     return s;
 }
 

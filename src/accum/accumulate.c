@@ -1,4 +1,3 @@
-#include <float.h>
 #include <math.h>
 #include <string.h>
 
@@ -134,14 +133,6 @@ void mr__sums_add(mr__block_sums *into, const mr__block_sums *from, const mr__de
     into->boundary += from->boundary;
 }
 
-static int at_boundary(int family, double mu)
-{
-    const double edge = 10 * DBL_EPSILON; /* common practice: where fitted values stop being informative */
-    if (family == MR_BINOMIAL) return mu <= edge || mu >= 1 - edge;
-    if (family == MR_POISSON) return mu <= edge;
-    return 0;
-}
-
 /* eta, mu, dmu/deta for each row: from the coefficients, or on the first
  * pass from the family's starting means. */
 static void linear_predictor(const mr__irls_point *pt, const mr__block *blk, mr__workspace *ws, size_t n)
@@ -149,12 +140,12 @@ static void linear_predictor(const mr__irls_point *pt, const mr__block *blk, mr_
     const mr__design *d = pt->design;
     size_t i, j, s;
     if (pt->beta == NULL) {
-        for (i = 0; i < n; i++) {
-            double w = blk->prior ? blk->prior[i] : 1.0;
-            ws->mu[i] = mr__family_mustart(pt->family, blk->y[i], w);
-            ws->eta[i] = mr__link_fun(pt->link, ws->mu[i]);
-            ws->mu_eta[i] = mr__link_mu_eta(pt->link, ws->eta[i]);
-        }
+        /* mu stays the starting mean itself (g^-1(g(mu)) need not give
+         * its bits back): the inverse's means go to var, which the
+         * variances overwrite next */
+        pt->family->ops->mustart_n(pt->family, blk->y, blk->prior, n, ws->mu);
+        pt->link->fun_n(ws->mu, n, ws->eta);
+        pt->link->inv_n(ws->eta, n, ws->var, ws->mu_eta);
         return;
     }
     for (i = 0; i < n; i++) ws->eta[i] = blk->off ? blk->off[i] : 0.0;
@@ -171,21 +162,24 @@ static void linear_predictor(const mr__irls_point *pt, const mr__block *blk, mr_
         double *eta = ws->eta;
         for (i = 0; i < n; i++) eta[i] += val[i] * bs[col[i]];
     }
-    mr__link_inv_n(pt->link, ws->eta, n, ws->mu, ws->mu_eta);
+    pt->link->inv_n(ws->eta, n, ws->mu, ws->mu_eta);
 }
 
 /* Without an offset the null model's eta is one number: its mean, weight
  * and variance are worked out once (the same expressions, so the same
  * bits as row by row). */
-static void null_model_constant(const mr__irls_point *pt, const mr__block *blk, mr__block_sums *out)
+static void null_model_constant(const mr__irls_point *pt, const mr__block *blk, mr__workspace *ws,
+                                mr__block_sums *out)
 {
-    double eta = pt->null_intercept ? pt->null_b0 : 0.0;
-    double mu = mr__link_inv(pt->link, eta), me = mr__link_mu_eta(pt->link, eta);
-    double var = mr__family_variance(pt->family, mu);
+    double eta = pt->null_intercept ? pt->null_b0 : 0.0, me, var;
+    double mu = mr__link_inv1(pt->link, eta, &me);
     uint32_t i;
+    pt->family->ops->variance_n(pt->family, &mu, 1, &var);
+    for (i = 0; i < blk->n; i++) ws->mu[i] = mu;
+    pt->family->ops->unit_deviance_n(pt->family, blk->y, ws->mu, blk->n, ws->dev);
     for (i = 0; i < blk->n; i++) {
         double prior = blk->prior ? blk->prior[i] : 1.0, w = prior * me * me / var;
-        out->null_dev += prior * mr__family_unit_deviance(pt->family, blk->y[i], mu);
+        out->null_dev += prior * ws->dev[i];
         out->null_sw += w;
         out->null_swz += w * (eta + (blk->y[i] - mu) / me);
     }
@@ -200,13 +194,13 @@ static void null_model_rows(const mr__irls_point *pt, const mr__block *blk, mr__
     const double b0 = pt->null_intercept ? pt->null_b0 : 0.0;
     size_t i;
     if (blk->off == NULL) {
-        null_model_constant(pt, blk, out);
+        null_model_constant(pt, blk, ws, out);
         return;
     }
     for (i = 0; i < n; i++) ws->eta[i] = b0 + blk->off[i];
-    mr__link_inv_n(pt->link, ws->eta, n, ws->mu, ws->mu_eta);
-    mr__family_variance_n(pt->family, ws->mu, n, ws->var);
-    mr__family_unit_deviance_n(pt->family, blk->y, ws->mu, n, ws->dev);
+    pt->link->inv_n(ws->eta, n, ws->mu, ws->mu_eta);
+    pt->family->ops->variance_n(pt->family, ws->mu, n, ws->var);
+    pt->family->ops->unit_deviance_n(pt->family, blk->y, ws->mu, n, ws->dev);
     for (i = 0; i < n; i++) {
         double prior = blk->prior ? blk->prior[i] : 1.0, me = ws->mu_eta[i];
         double w = prior * me * me / ws->var[i];
@@ -296,6 +290,7 @@ void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__wo
                           mr__block_sums *out)
 {
     const mr__design *d = pt->design;
+    const mr__family_ops *fam = pt->family->ops;
     const size_t n = blk->n;
     size_t i, j;
     double dev = 0, pearson = 0, *z;
@@ -303,11 +298,10 @@ void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__wo
     if (n == 0) return;
     mr__design_fill_split(d, blk->num, blk->lev, MR__BLOCK_ROWS, n, ws->D, ws->scol, ws->sval);
     linear_predictor(pt, blk, ws, n);
-    mr__family_variance_n(pt->family, ws->mu, n, ws->var);
-    mr__family_unit_deviance_n(pt->family, blk->y, ws->mu, n, ws->dev);
-    out->invalid = mr__count_invalid_n(pt->family, pt->link, ws->eta, ws->mu, n);
-    if (pt->family == MR_BINOMIAL || pt->family == MR_POISSON)
-        for (i = 0; i < n; i++) out->boundary += at_boundary(pt->family, ws->mu[i]);
+    fam->variance_n(pt->family, ws->mu, n, ws->var);
+    fam->unit_deviance_n(pt->family, blk->y, ws->mu, n, ws->dev);
+    out->invalid = mr__count_invalid_n(fam, pt->link, ws->eta, ws->mu, n);
+    if (fam->count_boundary) out->boundary = fam->count_boundary(pt->family, ws->mu, n);
     /* w holds sqrt(w) and z, the column after the dense ones, sqrt(w) z:
      * the rows of the weighted least-squares problem. */
     z = ws->D + d->ndense * n;

@@ -12,7 +12,8 @@
 
 typedef struct mr__irls_point {
     const mr__design *design;
-    int family, link;
+    const mr__family *family;
+    const mr__link_ops *link;
     const double *beta; /* internal-scale coefficients; NULL = start from mustart */
     int null_intercept; /* the null model has an intercept */
     int null_skip;      /* its sums are known already: leave them out */

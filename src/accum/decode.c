@@ -90,7 +90,7 @@ mr_status mr__decoder_init(mr__decoder *d, const mr__decode_cfg *cfg, mr__error 
         if (cfg->missing_len[f] == 0) d->missing_empty = 1;
         else d->missing_first[(unsigned char)cfg->missing[f][0]] = 1;
     }
-    d->outcome = mr__family_outcome_range(cfg->family);
+    d->outcome = cfg->family->ops->outcome;
     d->defer_offset = cfg->levels == NULL && cfg->collapse == 2 && b->has_exposure && !b->has_offset;
     if (!d->np || !d->val || !d->lev || !d->miss || !d->wanted || (cfg->levels == NULL && !d->local) ||
         (cfg->levels == NULL && cfg->collapse && (!d->numvals || !d->keysets))) {
@@ -261,7 +261,7 @@ static void finish_row_values(mr__decoder *d, double *y, double *prior, double *
     /* first pass: the null start's and the patterns' e^offset, which for
      * an exposure alone is e itself (no exp(log(e)) per row) */
     d->row_eoff = b->has_offset ? exp(*off) : e;
-    d->row_llc = mr__loglik_constant(d->cfg->family, *y, w, t, b->has_trials);
+    d->row_llc = d->cfg->family->ops->loglik_row(d->cfg->family, *y, w, t, b->has_trials);
 }
 
 static void record_bad(mr__decoder *d, uint32_t r, const char *msg)
@@ -346,7 +346,7 @@ static void add_pattern(mr__decoder *d, double y, double prior, double off)
         sum[MR__PATTERN_A] = prior;
         sum[MR__PATTERN_B] = prior * y;
         sum[MR__PATTERN_C] = prior * y * y;
-        sum[MR__PATTERN_D] = prior * mr__family_saturated_term(d->cfg->family, y);
+        sum[MR__PATTERN_D] = prior * d->cfg->family->ops->saturated_term(d->cfg->family, y);
     } else {
         double e = d->row_eoff;
         /* a deferred offset matters only where y > 0 (y * off is +0) */

@@ -84,7 +84,7 @@ void mr__block_settle_offsets(mr__block *b);
 
 typedef struct mr__decode_cfg {
     const mr__binding *bind;
-    int family;
+    const mr__family *family;
     int skip_bad;
     char delim;
     const char *display;

@@ -15,10 +15,12 @@
  * numbers and every sum are the same bits for any thread count.
  *
  * Two forms, chosen before the read:
- *  - no offset, any family: a pattern is one row with prior weight
- *    W = sum w and outcome ybar = sum w y / W;
+ *  - no offset, any family with a saturated term: a pattern is one row
+ *    with prior weight W = sum w and outcome ybar = sum w y / W;
  *  - poisson, log link, offset or exposure: one row with outcome
  *    Y = sum w y, exposure E = sum w exp(offset), prior weight 1.
+ * Which form a family allows is in its table (family.h: saturated_term,
+ * log_offset_patterns); fit/run.c chooses.
  * Either way the deviance of the rows differs from that of the patterns by
  * a constant (the deviance within patterns), and the Pearson statistic by
  * a term per pattern divided by V(mu); both are kept (see MR__PATTERN_*). */

@@ -4,7 +4,7 @@
  * the part of the log-likelihood that depends on the data alone (so that
  * the log-likelihood of any fit is that constant minus deviance / 2, with
  * no per-row special functions in later passes; each row's term is the
- * family's, mr__loglik_constant). */
+ * family's loglik_row, family/family.h). */
 #ifndef MR_SCAN_H
 #define MR_SCAN_H
 

@@ -7,6 +7,7 @@
 #include "common/error.h"
 #include "common/strbuf.h"
 #include "common/utf8.h"
+#include "family/family.h"
 #include "fit/fit.h"
 
 static void free_strings(char **s, size_t n)
@@ -105,11 +106,10 @@ void mr__fit_warn(mr_fit *fit, const char *fmt, ...)
 
 const char *mr__fit_ratio_label(const mr_fit *fit)
 {
-    if (fit->link == MR_LOGIT) return fit->family == MR_BINOMIAL ? "odds ratio" : NULL;
-    if (fit->link != MR_LOG) return NULL;
-    if (fit->family == MR_POISSON) return "rate ratio";
-    if (fit->family == MR_BINOMIAL) return "risk ratio";
-    return "mean ratio";
+    const mr__family_ops *ops = mr__family_ops_of((mr_family)fit->family);
+    if (ops == NULL) return NULL;
+    if (fit->link == MR_LOGIT) return ops->ratio_logit;
+    return fit->link == MR_LOG ? ops->ratio_log : NULL;
 }
 
 const char *mr__fit_statistic_name(const mr_fit *fit) { return fit->dispersion_estimated ? "t" : "z"; }

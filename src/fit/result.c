@@ -130,21 +130,6 @@ static mr_status map_to_raw(const mr__design *d, const double *beta_s, const dou
  * first pass (see accum/scan.h); for gaussian, gamma and inverse-gaussian
  * the dispersion in the density is the deviance-based estimate, as is
  * usual for these summaries. */
-static double log_likelihood(const mr_fit *fit, double llc, double sw)
-{
-    double dev = fit->deviance, n = (double)fit->n, a;
-    switch (fit->family) {
-    case MR_POISSON:
-    case MR_BINOMIAL: return llc - dev / 2;
-    case MR_GAUSSIAN: return -0.5 * (n * (log(2 * M_PI * dev / n) + 1) - llc);
-    case MR_GAMMA:
-        a = sw / dev;
-        return -sw * mr__log_gamma(a) + a * sw * log(a) - a * dev / 2 - a * sw - llc;
-    case MR_INVERSE_GAUSSIAN: return -0.5 * (sw * (1 + log(2 * M_PI * dev / sw)) + 3 * llc);
-    }
-    return NAN;
-}
-
 static void set_fit_statistics(mr_fit *fit, const mr__run *r)
 {
     const mr__scan_sums *s = &r->first.scan;
@@ -157,8 +142,8 @@ static void set_fit_statistics(mr_fit *fit, const mr__run *r)
     fit->df_residual = (double)fit->n - (double)fit->rank;
     fit->df_null = (double)fit->n - (r->f->spec.intercept ? 1 : 0);
     fit->dispersion = fit->dispersion_estimated ? (fit->df_residual > 0 ? fit->pearson / fit->df_residual : NAN) : 1.0;
-    fit->loglik = log_likelihood(fit, s->llc, s->sw);
-    k = (double)fit->rank + (fit->family == MR_GAUSSIAN || fit->family == MR_GAMMA || fit->family == MR_INVERSE_GAUSSIAN);
+    fit->loglik = r->family.ops->loglik(&r->family, fit->deviance, s->llc, (double)fit->n, s->sw);
+    k = (double)fit->rank + r->family.ops->dispersion_counts;
     fit->aic = -2 * fit->loglik + 2 * k;
     fit->bic = -2 * fit->loglik + log((double)fit->n) * k;
 }
@@ -411,14 +396,9 @@ static void collect_warnings(mr_fit *fit, const mr__run *r)
         mr__fit_warn(fit, "%zu coefficient%s aliased (a linear combination of earlier columns, not estimated): %s", n,
                      n == 1 ? "" : "s", sb.data ? sb.data : "");
     mr__strbuf_release(&sb);
-    if (r->last.sums.boundary && fit->family == MR_BINOMIAL)
-        mr__fit_warn(fit, "fitted probabilities are numerically 0 or 1 for %llu rows: possible separation; the "
-                          "estimates and standard errors of the terms involved are unreliable",
-                     (unsigned long long)r->last.sums.boundary);
-    if (r->last.sums.boundary && fit->family == MR_POISSON)
-        mr__fit_warn(fit, "fitted rates are numerically 0 for %llu rows: a level or cell with no events drives a "
-                          "coefficient towards minus infinity",
-                     (unsigned long long)r->last.sums.boundary);
+    if (r->last.sums.boundary && r->family.ops->boundary_what)
+        mr__fit_warn(fit, "%s for %llu rows: %s", r->family.ops->boundary_what,
+                     (unsigned long long)r->last.sums.boundary, r->family.ops->boundary_why);
     if (r->cache_note[0]) mr__fit_warn(fit, "%s", r->cache_note);
     if (r->threads_note[0]) mr__fit_warn(fit, "%s", r->threads_note);
     if (fit->rows_bad)

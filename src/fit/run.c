@@ -79,7 +79,7 @@ static mr_status bind_header(mr__run *r, const char *line, size_t len, mr__error
     r->bound = 1; /* the binding owns the names now, even when it failed */
     if (st != MR_OK) return st;
     r->dcfg.bind = &r->bind;
-    r->dcfg.family = r->f->spec.family;
+    r->dcfg.family = &r->family;
     r->dcfg.skip_bad = r->f->skip_bad;
     r->dcfg.delim = r->delim;
     r->dcfg.display = r->display;
@@ -410,8 +410,8 @@ static int collapse_mode(const mr__run *r)
 {
     const mr__spec *s = &r->f->spec;
     if (r->f->no_collapse) return 0;
-    if (s->offset == NULL && s->exposure == NULL) return 1;
-    return s->family == MR_POISSON && mr__spec_link(s) == MR_LOG ? 2 : 0;
+    if (s->offset == NULL && s->exposure == NULL) return r->family.ops->saturated_term != NULL;
+    return r->family.ops->log_offset_patterns && mr__spec_link(s) == MR_LOG ? 2 : 0;
 }
 
 static mr_status new_pattern_block(mr__run *r, mr__block *blk, mr__error *err)
@@ -480,7 +480,7 @@ static void pattern_row(mr__run *r, const double *pt, mr__block *blk, uint32_t i
         blk->y[i] = ybar;
         blk->prior[i] = a;
         blk->extra[i] = c - b * ybar;
-        r->within_deviance += 2 * (d - a * mr__family_saturated_term(r->f->spec.family, ybar));
+        r->within_deviance += 2 * (d - a * r->family.ops->saturated_term(&r->family, ybar));
     } else {
         blk->y[i] = b;
         blk->prior[i] = 1.0;
@@ -532,7 +532,7 @@ static mr_status build_patterns(mr__run *r, mr__error *err)
 static int null_start_exact(const mr__run *r)
 {
     if (!r->dcfg.bind->has_offset && !r->dcfg.bind->has_exposure) return 1;
-    return r->f->spec.family == MR_POISSON && mr__spec_link(&r->f->spec) == MR_LOG && r->first.scan.swy > 0 &&
+    return r->family.ops->log_offset_null_exact && mr__spec_link(&r->f->spec) == MR_LOG && r->first.scan.swy > 0 &&
            isfinite(log(r->first.scan.swy / r->first.scan.swe));
 }
 
@@ -540,13 +540,12 @@ static int null_start_exact(const mr__run *r)
 static double null_start(const mr__run *r)
 {
     const mr__scan_sums *s = &r->first.scan;
-    int link = mr__spec_link(&r->f->spec), fam = r->f->spec.family;
-    double ybar = s->swy / s->sw;
-    if (fam == MR_BINOMIAL && !(ybar > 0 && ybar < 1)) ybar = ybar <= 0 ? 1e-8 : 1 - 1e-8;
-    if ((fam == MR_POISSON || fam == MR_GAMMA || fam == MR_INVERSE_GAUSSIAN) && !(ybar > 0)) ybar = 1e-8;
-    if (!r->dcfg.bind->has_offset && !r->dcfg.bind->has_exposure) return mr__link_fun(link, ybar);
+    int link = mr__spec_link(&r->f->spec);
+    const mr__link_ops *g = mr__link_ops_of((mr_link)link);
+    double ybar = r->family.ops->clamp_mean(s->swy / s->sw);
+    if (!r->dcfg.bind->has_offset && !r->dcfg.bind->has_exposure) return mr__link_fun1(g, ybar);
     if (link == MR_LOG) return log(s->swy / s->swe);
-    return mr__link_fun(link, ybar) - s->swoff / s->sw;
+    return mr__link_fun1(g, ybar) - s->swoff / s->sw;
 }
 
 static double relative_change(double now, double before) { return fabs(now - before) / (fabs(now) + 0.1); }
@@ -575,8 +574,8 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
     mr__pass_cfg c;
     mr_status st;
     pt.design = &r->design;
-    pt.family = r->f->spec.family;
-    pt.link = mr__spec_link(&r->f->spec);
+    pt.family = &r->family;
+    pt.link = mr__link_ops_of((mr_link)mr__spec_link(&r->f->spec));
     pt.beta = beta;
     pt.null_intercept = r->f->spec.intercept;
     pt.null_b0 = null_b0;
@@ -906,6 +905,7 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
     mr__utf8_mend_cut(r.display, sizeof r.display,
                       snprintf(r.display, sizeof r.display, "%s", strcmp(path, "-") == 0 ? "<stdin>" : path));
     choose_threads(&r);
+    r.family = mr__spec_family(&f->spec);
     r.dcfg.collapse = collapse_mode(&r);
     r.dcfg.collapse_abandoned = &r.collapse_abandoned;
     st = mr__spec_validate(&f->spec, err);

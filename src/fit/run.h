@@ -22,6 +22,7 @@ typedef struct mr__run {
     /* columns */
     mr__binding bind;
     int bound;
+    mr__family family; /* the spec's, as fitted */
     mr__decode_cfg dcfg;
     size_t missing_len[MR__MAX_MISSING_TOKENS];
     char delim;

@@ -3,6 +3,7 @@
  * the line is a comment. */
 #include <ctype.h>
 #include <errno.h>
+#include <math.h>
 #include <stdio.h>
 #include <string.h>
 
@@ -24,6 +25,7 @@ void mr__spec_init(mr__spec *s)
 {
     memset(s, 0, sizeof *s);
     s->family = MR_GAUSSIAN;
+    s->family_param = NAN;
     s->link = -1;
     s->intercept = 1;
     s->dispersion = -1;
@@ -157,6 +159,24 @@ static mr_status expect_args(const words *ws, int n, const char *origin, mr__err
     return MR_OK;
 }
 
+/* "family NAME [PARAM=VALUE ...]": words after the name go to the family's
+ * own parser; a family without one takes the name alone. */
+static mr_status parse_family(mr__spec *s, const words *ws, const char *origin, mr__error *err)
+{
+    int v = ws->n >= 2 ? mr__family_from_name(ws->w[1]) : -1, i;
+    const mr__family_ops *ops = v >= 0 ? mr__family_ops_of((mr_family)v) : NULL;
+    double param = NAN;
+    if (ops == NULL || ops->parse_param == NULL) MR__TRY(expect_args(ws, 1, origin, err));
+    if (ops == NULL)
+        return mr__fail(err, MR_ERR_USAGE,
+                        "%s: unknown family '%s' (gaussian, binomial, poisson, gamma, inverse-gaussian)", origin,
+                        ws->w[1]);
+    for (i = 2; i < ws->n; i++) MR__TRY(ops->parse_param(&param, ws->w[i], origin, err));
+    s->family = v;
+    s->family_param = param;
+    return MR_OK;
+}
+
 static mr_status parse_factor(mr__spec *s, const words *ws, const char *origin, mr__error *err)
 {
     const char *ref = NULL;
@@ -204,16 +224,7 @@ static mr_status apply_words(mr__spec *s, const words *ws, const char *origin, m
             return set_string((char **)((char *)s + columns[i].off), ws->w[1], err);
         }
     }
-    if (strcmp(d, "family") == 0) {
-        MR__TRY(expect_args(ws, 1, origin, err));
-        v = mr__family_from_name(ws->w[1]);
-        if (v < 0)
-            return mr__fail(err, MR_ERR_USAGE,
-                            "%s: unknown family '%s' (gaussian, binomial, poisson, gamma, inverse-gaussian)",
-                            origin, ws->w[1]);
-        s->family = v;
-        return MR_OK;
-    }
+    if (strcmp(d, "family") == 0) return parse_family(s, ws, origin, err);
     if (strcmp(d, "link") == 0) {
         MR__TRY(expect_args(ws, 1, origin, err));
         v = mr__link_from_name(ws->w[1]);
@@ -297,7 +308,13 @@ int mr__spec_link(const mr__spec *s)
 int mr__spec_dispersion_estimated(const mr__spec *s)
 {
     if (s->dispersion >= 0) return s->dispersion;
-    return !(s->family == MR_BINOMIAL || s->family == MR_POISSON);
+    return mr__family_ops_of((mr_family)s->family)->dispersion_estimated;
+}
+
+mr__family mr__spec_family(const mr__spec *s)
+{
+    mr__family fam = {mr__family_ops_of((mr_family)s->family), s->family_param};
+    return fam;
 }
 
 static mr_status validate_interactions(const mr__spec *s, mr__error *err)
@@ -320,7 +337,7 @@ mr_status mr__spec_validate(const mr__spec *s, mr__error *err)
     if (!mr__link_allowed((mr_family)s->family, (mr_link)link))
         return mr__fail(err, MR_ERR_USAGE, "model: the %s family does not take the %s link",
                         mr__family_name((mr_family)s->family), mr__link_name((mr_link)link));
-    if (s->trials != NULL && s->family != MR_BINOMIAL)
+    if (s->trials != NULL && !mr__family_ops_of((mr_family)s->family)->takes_trials)
         return mr__fail(err, MR_ERR_USAGE, "model: trials is for the binomial family only");
     if (s->offset != NULL && s->exposure != NULL && strcmp(s->offset, s->exposure) == 0)
         return mr__fail(err, MR_ERR_USAGE, "model: '%s' is both offset and exposure", s->offset);

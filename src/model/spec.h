@@ -6,6 +6,7 @@
 
 #include <stddef.h>
 #include "common/error.h"
+#include "family/family.h"
 
 #define MR__MAX_INTERACT 3
 
@@ -25,6 +26,7 @@ typedef struct mr__interaction {
 typedef struct mr__spec {
     char *outcome, *trials, *offset, *exposure, *weight;
     int family;     /* mr_family */
+    double family_param; /* the family's own parameter (NAN: none given) */
     int link;       /* mr_link, or -1 for the family's canonical link */
     int intercept;  /* 1 unless "intercept no" */
     int dispersion; /* -1 = family default, 0 = fixed at 1, 1 = estimate */
@@ -55,6 +57,8 @@ mr_status mr__spec_validate(const mr__spec *s, mr__error *err);
 int mr__spec_link(const mr__spec *s);
 /* 1 if the dispersion is estimated (Pearson), 0 if fixed at 1. */
 int mr__spec_dispersion_estimated(const mr__spec *s);
+/* The family as fitted: its operations and parameter. */
+mr__family mr__spec_family(const mr__spec *s);
 
 const mr__covariate *mr__spec_find(const mr__spec *s, const char *name);
 
