@@ -80,9 +80,13 @@ typedef enum mr_status {
     MR_ERR_INTERNAL = 9,     /* a bug: please report it                     */
     MR_ERR_NUMERIC = 10,     /* the fit broke down (no finite deviance even
                                 after step halving)                         */
-    MR_ERR_STOPPED = 11      /* the progress callback set with
+    MR_ERR_STOPPED = 11,     /* the progress callback set with
                                 mr_fitter_set_progress_stop asked the run
                                 to stop (never returned by the command)     */
+    MR_DRIFT_FLAGGED = 12    /* not an error: a comparison of two fits
+                                (mr_drift_compare) flagged a change; the
+                                command's drift exits with it so that a
+                                scheduler can alert                          */
 } mr_status;
 
 /* A static, human-readable name for a status ("bad input format", ...). */
@@ -216,6 +220,12 @@ MR_API void mr_fitter_set_progress(mr_fitter *f, mr_progress_fn fn, void *user);
  * and mr_fitter_set_progress each replace the other's (NULL: none). */
 typedef int (*mr_progress_stop_fn)(const mr_progress *p, void *user);
 MR_API void mr_fitter_set_progress_stop(mr_fitter *f, mr_progress_stop_fn fn, void *user);
+
+/* The command line that asked for the run, for the fit's audit trail
+ * (the library cannot see argv): the `argc` words are copied, and every
+ * later fit of this fitter records them ("run" in the JSON, README).
+ * argc 0 forgets them.  MR_OK or MR_ERR_NO_MEMORY. */
+MR_API mr_status mr_fitter_set_command_line(mr_fitter *f, size_t argc, const char *const *argv);
 
 /* Fits the model to the CSV (optionally zstd-compressed) at `path`, or to
  * standard input when path is "-".  The input is only read, once or more
@@ -367,6 +377,36 @@ MR_API mr_status mr_output_check(const char *path, const char *const *inputs, si
  * with MR_ERR_IO at its rename, leaving no output).  Touches nothing
  * else. */
 MR_API void mr_output_unlink_temps(void);
+
+/* ------------------------------------------------------------------ */
+/* The run log: one line per run appended to a file, for the operators
+ * of a scheduler that reruns fits.  The one output that is not replaced
+ * atomically: the line is appended with a single write() on a file
+ * opened with O_APPEND (created with mode 0666 less the umask when
+ * absent) and synced, so the lines of runs appending at once do not
+ * interleave.  The target is checked as every output's (above): links
+ * followed, anything but a regular file refused with MR_ERR_IO, one of
+ * `inputs` (`ninputs` of them) refused with MR_ERR_USAGE.
+ *
+ * The line is a JSON object (README, "Run log"): the time of writing (UTC,
+ * ISO 8601), the host, the exit code, the input, the error (null when
+ * none), the command line, and from the fit when there is one (null
+ * otherwise): rows read and used, passes, seconds, and flags (words such
+ * as "not_converged", "warnings", "rows_left_out", "bad_rows_skipped"). */
+typedef struct mr_run_record {
+    const char *input;       /* the data file as given, "-" standard input */
+    int exit_code;           /* what the run ends with                     */
+    const char *error;       /* its one-line message, or NULL              */
+    const mr_fit *fit;       /* the fit, or NULL when there is none        */
+    size_t argc;             /* the command line (argv may be NULL if 0)   */
+    const char *const *argv;
+} mr_run_record;
+
+/* MR_OK, or MR_ERR_USAGE / MR_ERR_IO / MR_ERR_NO_MEMORY with a message in
+ * `msg` (capacity `msgcap`, may be 0).  A short write (a full disk) is
+ * MR_ERR_IO and may leave part of the line at the end of the file. */
+MR_API mr_status mr_run_log_append(const char *path, const mr_run_record *rec, const char *const *inputs,
+                                   size_t ninputs, char *msg, size_t msgcap);
 
 /* Number of warnings and the i-th one (owned by the fit): possible
  * separation, aliased columns, non-convergence, ... */

@@ -17,7 +17,7 @@ enum {
     OPT_OUTCOME = 256, OPT_TRIALS, OPT_FAMILY, OPT_LINK, OPT_NUMERIC, OPT_FACTOR, OPT_INTERACT, OPT_OFFSET,
     OPT_EXPOSURE, OPT_WEIGHT, OPT_NO_INTERCEPT, OPT_DISPERSION, OPT_THREADS, OPT_BUFFER, OPT_TOLERANCE,
     OPT_MAX_PASSES, OPT_LEVEL, OPT_DELIMITER, OPT_MISSING, OPT_IN_MEMORY, OPT_ON_BAD_ROW, OPT_JSON, OPT_QUIET,
-    OPT_DIGITS, OPT_NO_CACHE, OPT_NO_COLLAPSE, OPT_HELP
+    OPT_DIGITS, OPT_NO_CACHE, OPT_NO_COLLAPSE, OPT_HELP, OPT_RUN_LOG, OPT_THRESHOLD, OPT_CSV
 };
 
 static const struct option long_options[] = {
@@ -46,6 +46,7 @@ static const struct option long_options[] = {
     {"no-collapse", no_argument, NULL, OPT_NO_COLLAPSE},
     {"on-bad-row", required_argument, NULL, OPT_ON_BAD_ROW},
     {"json", required_argument, NULL, OPT_JSON},
+    {"run-log", required_argument, NULL, OPT_RUN_LOG},
     {"quiet", no_argument, NULL, OPT_QUIET},
     {"digits", required_argument, NULL, OPT_DIGITS},
     {"help", no_argument, NULL, OPT_HELP},
@@ -67,28 +68,38 @@ static const char usage_text[] =
     "  --delimiter ,|tab|;  --missing TOKEN (repeatable)  --in-memory  --no-cache  --no-collapse\n"
     "  --on-bad-row fail|skip\n"
     "output:\n"
-    "  --json PATH  --quiet  --digits N\n"
+    "  --json PATH  --run-log FILE (a line appended per run)  --quiet  --digits N\n"
     "exit codes: 0 ok, 2 usage, 3 I/O, 4 malformed input, 5 value outside the model, 6 no data,\n"
     "            7 not converged, 8 out of memory, 9 internal error, 10 numerical breakdown\n";
 
 typedef struct cli {
     mr_fitter *fitter;
-    const char *json_path;
+    const char *json_path, *run_log;
     int quiet, digits, missing_given, progress_shown;
+    const char *data;     /* set once the arguments are read: the run gets logged */
+    int argc;             /* the whole command line, for the fit's audit trail */
+    char **argv;
+    int run_log_refused;  /* its target failed the output checks */
+    mr_fit *fit;
     char **model_lines; /* options as model lines, applied after the model file */
     const char **model_origin;
     size_t nlines;
     const char *model_file;
 } cli;
 
+/* The last error said, for the run log. */
+static char last_error[1024];
+
 static int fail(mr_status st, const char *msg)
 {
+    snprintf(last_error, sizeof last_error, "%s", msg);
     fprintf(stderr, "millrace: %s\n", msg);
     return (int)st;
 }
 
 static int usage_error(const char *msg)
 {
+    snprintf(last_error, sizeof last_error, "%s", msg);
     fprintf(stderr, "millrace: %s (see 'millrace help')\n", msg);
     return (int)MR_ERR_USAGE;
 }
@@ -222,6 +233,7 @@ static int handle_option(cli *c, int opt, const char *arg)
     case OPT_NO_COLLAPSE: mr_fitter_set_int(c->fitter, MR_OPT_NO_COLLAPSE, 1); return -1;
     case OPT_ON_BAD_ROW: return handled(set_bad_rows(c, arg));
     case OPT_JSON: c->json_path = arg; return -1;
+    case OPT_RUN_LOG: c->run_log = arg; return -1;
     case OPT_QUIET: c->quiet = 1; return -1;
     case OPT_DIGITS: {
         long long v;
@@ -297,14 +309,37 @@ static int publish(cli *c, mr_fit *fit)
 
 /* Refuses, before the fit, a JSON path that is the data or the model
  * file or cannot take an output (the library checks again as it writes). */
-static int check_outputs(const cli *c, const char *data)
+static int check_outputs(cli *c, const char *data)
 {
     const char *inputs[2] = {data, c->model_file};
     char msg[1024];
     mr_status st;
+    if (c->run_log && (st = mr_output_check(c->run_log, inputs, c->model_file ? 2 : 1, msg, sizeof msg)) != MR_OK) {
+        c->run_log_refused = 1;
+        return fail(st, msg);
+    }
     if (c->json_path == NULL) return 0;
     st = mr_output_check(c->json_path, inputs, c->model_file ? 2 : 1, msg, sizeof msg);
     return st == MR_OK ? 0 : fail(st, msg);
+}
+
+/* The run's line in the run log; the run's exit code, or the log's own
+ * failure when the line could not be written. */
+static int log_run(const cli *c, int rc)
+{
+    const char *inputs[2] = {c->data, c->model_file};
+    mr_run_record rec;
+    char msg[1024];
+    mr_status st;
+    if (c->run_log == NULL || c->data == NULL || c->run_log_refused) return rc;
+    rec.input = c->data;
+    rec.exit_code = rc;
+    rec.error = rc != 0 && last_error[0] ? last_error : NULL;
+    rec.fit = c->fit;
+    rec.argc = (size_t)c->argc;
+    rec.argv = (const char *const *)c->argv;
+    st = mr_run_log_append(c->run_log, &rec, inputs, c->model_file ? 2 : 1, msg, sizeof msg);
+    return st == MR_OK ? rc : fail(st, msg);
 }
 
 /* An interrupted run leaves no temporary output behind; the signal then
@@ -344,15 +379,18 @@ static int run_fit(cli *c, int argc, char **argv)
         if ((rc = handle_option(c, opt, optarg)) >= 0) return rc;
     }
     if (optind != argc - 1) return usage_error("fit takes exactly one data file (or - for standard input)");
+    c->data = argv[optind];
     if ((rc = apply_model(c)) != 0) return rc;
     if ((rc = check_outputs(c, argv[optind])) != 0) return rc;
+    if (mr_fitter_set_command_line(c->fitter, (size_t)c->argc, (const char *const *)c->argv) != MR_OK)
+        return fail(MR_ERR_NO_MEMORY, "out of memory");
     if (!c->quiet && isatty(STDERR_FILENO)) mr_fitter_set_progress(c->fitter, show_progress, c);
     st = mr_fitter_run(c->fitter, argv[optind], &fit);
     if (c->progress_shown) fputs("\r\033[K", stderr);
     if (st != MR_OK) return fail(st, mr_fitter_errmsg(c->fitter));
+    c->fit = fit;
     rc = publish(c, fit);
     if (rc == MR_ERR_NOT_CONVERGED) fprintf(stderr, "millrace: the fit did not converge (see the report)\n");
-    mr_fit_free(fit);
     return rc;
 }
 
@@ -404,7 +442,10 @@ static int dispatch(int argc, char **argv)
     memset(&c, 0, sizeof c);
     c.fitter = mr_fitter_new();
     if (c.fitter == NULL) return fail(MR_ERR_NO_MEMORY, "out of memory");
-    rc = run_fit(&c, argc - 1, argv + 1);
+    c.argc = argc;
+    c.argv = argv;
+    rc = log_run(&c, run_fit(&c, argc - 1, argv + 1));
+    mr_fit_free(c.fit);
     for (i = 0; i < c.nlines; i++) free(c.model_lines[i]);
     free(c.model_lines);
     free(c.model_origin);
