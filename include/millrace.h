@@ -330,7 +330,9 @@ MR_API mr_status mr_fit_write_json(const mr_fit *fit, const char *path, char *ms
 MR_API mr_status mr_fit_read_json(const char *path, mr_fit **out, char *msg, size_t msgcap);
 
 /* ------------------------------------------------------------------ */
-/* Output files.  Every file the library writes (mr_fit_write_json) obeys:
+/* Output files.  Every file the library writes (mr_fit_write_json,
+ * mr_drift_write_json, mr_drift_write_csv; mr_run_log_append appends
+ * instead, see there) obeys:
  *
  *  - A symbolic link at `path` is followed (to the end of a chain); its
  *    target is what gets written, and the link is kept.
@@ -407,6 +409,61 @@ typedef struct mr_run_record {
  * MR_ERR_IO and may leave part of the line at the end of the file. */
 MR_API mr_status mr_run_log_append(const char *path, const mr_run_record *rec, const char *const *inputs,
                                    size_t ninputs, char *msg, size_t msgcap);
+
+/* ------------------------------------------------------------------ */
+/* Drift: what changed between two fits of the same model, e.g. the same
+ * model refitted to a refreshed extract.  A comparison borrows both fits:
+ * they must outlive it.  Free it with mr_drift_free (NULL is fine).
+ *
+ * Coefficients are matched by name.  One in both fits and not aliased in
+ * either has its change (new - old) measured in standard errors: z =
+ * change / max(se_old, se_new), the larger of the two fits' own SEs
+ * (README, "Comparing two fits", says why not the independent-samples
+ * sqrt(se_old^2 + se_new^2), which is reported beside it).  It is flagged
+ * when |z| >= threshold.  Also flagged: a coefficient in one fit only
+ * (a new or vanished level or term column), one aliased in one fit only,
+ * and each factor level in one fit only.  The comparison also holds the
+ * rows read, used and left out (per column for missing values), the
+ * deviance per row used, the dispersion and whether the input changed
+ * (checksum and sizes; the file's size and modification time where both
+ * fits record them): the text, JSON and CSV below give them.
+ *
+ * MR_OK (flagged or not: mr_drift_nflagged says), MR_ERR_USAGE when the
+ * fits are of different models (outcome, trials, family, link, offset,
+ * exposure, weight, intercept, dispersion, terms or a factor's reference
+ * differ; the message names the first difference) or the threshold is not
+ * a positive number, MR_ERR_NO_MEMORY; with a message in `msg` (capacity
+ * `msgcap`, may be 0).  The command's drift exits with MR_DRIFT_FLAGGED
+ * when anything is flagged. */
+typedef struct mr_drift mr_drift;
+MR_API mr_status mr_drift_compare(const mr_fit *old_fit, const mr_fit *new_fit, double threshold, mr_drift **out,
+                                  char *msg, size_t msgcap);
+MR_API void mr_drift_free(mr_drift *d);
+
+/* Flagged coefficients plus factor levels found in one fit only. */
+MR_API size_t mr_drift_nflagged(const mr_drift *d);
+/* The coefficients compared: the old fit's in order, then those only the
+ * new fit has.  Name owned by a fit; change and z NaN when the coefficient
+ * is in one fit only or aliased; out-of-range i gives NULL, NaN, 0. */
+MR_API size_t mr_drift_ncoef(const mr_drift *d);
+MR_API const char *mr_drift_coef_name(const mr_drift *d, size_t i);
+MR_API double mr_drift_coef_change(const mr_drift *d, size_t i);
+MR_API double mr_drift_coef_z(const mr_drift *d, size_t i);
+MR_API int mr_drift_coef_flagged(const mr_drift *d, size_t i);
+
+/* The comparison as text for people; numbers with `digits` significant
+ * digits (0: 6).  Free with mr_free; NULL when out of memory. */
+MR_API char *mr_drift_report(const mr_drift *d, int digits);
+
+/* The comparison as JSON (format "millrace-drift", README) or as CSV (one
+ * row per coefficient, RFC 4180, a header row), written to `path` by the
+ * rules of "Output files" above; `inputs` (`ninputs`) are the files the
+ * fits were read from, which the output must not replace.  MR_OK, or
+ * MR_ERR_USAGE / MR_ERR_IO / MR_ERR_NO_MEMORY with a message in `msg`. */
+MR_API mr_status mr_drift_write_json(const mr_drift *d, const char *path, const char *const *inputs, size_t ninputs,
+                                     char *msg, size_t msgcap);
+MR_API mr_status mr_drift_write_csv(const mr_drift *d, const char *path, const char *const *inputs, size_t ninputs,
+                                    char *msg, size_t msgcap);
 
 /* Number of warnings and the i-th one (owned by the fit): possible
  * separation, aliased columns, non-convergence, ... */

@@ -53,9 +53,21 @@ static const struct option long_options[] = {
     {NULL, 0, NULL, 0},
 };
 
+/* The drift command's own options (--json and --digits mean what they
+ * mean for fit). */
+static const struct option drift_long_options[] = {
+    {"threshold", required_argument, NULL, OPT_THRESHOLD},
+    {"json", required_argument, NULL, OPT_JSON},
+    {"csv", required_argument, NULL, OPT_CSV},
+    {"digits", required_argument, NULL, OPT_DIGITS},
+    {NULL, 0, NULL, 0},
+};
+
 static const char usage_text[] =
     "usage: millrace fit [options] DATA     fit a GLM to DATA (CSV, TSV, zstd-compressed, or - for stdin)\n"
     "       millrace show [--digits N] FIT.json   the report of a fit saved with --json\n"
+    "       millrace drift [--threshold SE] [--json PATH] [--csv PATH] [--digits N] OLD.json NEW.json\n"
+    "                               what changed between two saved fits of one model (default 3 SE)\n"
     "       millrace version | help\n"
     "\n"
     "model (each option takes the words of the model-file line of the same name):\n"
@@ -70,7 +82,8 @@ static const char usage_text[] =
     "output:\n"
     "  --json PATH  --run-log FILE (a line appended per run)  --quiet  --digits N\n"
     "exit codes: 0 ok, 2 usage, 3 I/O, 4 malformed input, 5 value outside the model, 6 no data,\n"
-    "            7 not converged, 8 out of memory, 9 internal error, 10 numerical breakdown\n";
+    "            7 not converged, 8 out of memory, 9 internal error, 10 numerical breakdown,\n"
+    "            12 drift flagged a change\n";
 
 typedef struct cli {
     mr_fitter *fitter;
@@ -284,10 +297,10 @@ static int stdout_failed(const char *what)
     return fail(MR_ERR_IO, msg);
 }
 
-/* The report on standard output; 0 or the exit code of the failure. */
-static int print_report(const mr_fit *fit, int digits)
+/* A report on standard output (freed here); 0 or the exit code of the
+ * failure. */
+static int print_text(char *report)
 {
-    char *report = mr_fit_report(fit, digits);
     int written;
     if (report == NULL) return fail(MR_ERR_NO_MEMORY, "out of memory writing the report");
     /* A failed write past the stdio buffer is not remembered by fflush:
@@ -296,6 +309,8 @@ static int print_report(const mr_fit *fit, int digits)
     mr_free(report);
     return written ? 0 : stdout_failed("the report ");
 }
+
+static int print_report(const mr_fit *fit, int digits) { return print_text(mr_fit_report(fit, digits)); }
 
 static int publish(cli *c, mr_fit *fit)
 {
@@ -414,13 +429,94 @@ static int show_fit(int argc, char **argv)
     return rc;
 }
 
+typedef struct drift_cli {
+    double threshold;
+    const char *json_path, *csv_path;
+    int digits;
+} drift_cli;
+
+/* Returns -1 when the option was handled, else an exit code. */
+static int drift_option(drift_cli *dc, int opt, const char *arg)
+{
+    long long v;
+    switch (opt) {
+    case OPT_THRESHOLD:
+        if (parse_real(arg, &dc->threshold) != 0 || !(dc->threshold > 0) || dc->threshold > 1e300)
+            return usage_error("--threshold takes a positive number of standard errors");
+        return -1;
+    case OPT_JSON: dc->json_path = arg; return -1;
+    case OPT_CSV: dc->csv_path = arg; return -1;
+    case OPT_DIGITS:
+        if (parse_count(arg, &v) != 0 || v < 1 || v > 17) return usage_error("--digits takes 1 to 17");
+        dc->digits = (int)v;
+        return -1;
+    default: return usage_error("bad option (drift takes --threshold, --json, --csv, --digits)");
+    }
+}
+
+/* The JSON and CSV, checked before the fits are read (as fit does), then
+ * written; 0 or the exit code of the failure. */
+static int drift_outputs(const drift_cli *dc, const mr_drift *d, const char *const *inputs)
+{
+    char msg[1024];
+    mr_status st = MR_OK;
+    if (d == NULL) {
+        if (dc->json_path) st = mr_output_check(dc->json_path, inputs, 2, msg, sizeof msg);
+        if (st == MR_OK && dc->csv_path) st = mr_output_check(dc->csv_path, inputs, 2, msg, sizeof msg);
+    } else {
+        if (dc->json_path) st = mr_drift_write_json(d, dc->json_path, inputs, 2, msg, sizeof msg);
+        if (st == MR_OK && dc->csv_path) st = mr_drift_write_csv(d, dc->csv_path, inputs, 2, msg, sizeof msg);
+    }
+    return st == MR_OK ? 0 : fail(st, msg);
+}
+
+static int compare_fits(const drift_cli *dc, const char *const *paths, mr_fit *const *fits)
+{
+    char msg[1024], said[2200];
+    mr_drift *d = NULL;
+    mr_status st = mr_drift_compare(fits[0], fits[1], dc->threshold, &d, msg, sizeof msg);
+    int rc;
+    if (st != MR_OK) {
+        snprintf(said, sizeof said, "%s, %s: %s", paths[0], paths[1], msg);
+        return fail(st, said);
+    }
+    rc = print_text(mr_drift_report(d, dc->digits));
+    if (rc == 0) rc = drift_outputs(dc, d, paths);
+    if (rc == 0 && mr_drift_nflagged(d) > 0) rc = MR_DRIFT_FLAGGED;
+    mr_drift_free(d);
+    return rc;
+}
+
+/* What changed between two saved fits; MR_DRIFT_FLAGGED when anything
+ * is flagged, so that a scheduler can alert. */
+static int run_drift(int argc, char **argv)
+{
+    drift_cli dc = {3.0, NULL, NULL, 0};
+    mr_fit *fits[2] = {NULL, NULL};
+    char msg[1024];
+    int opt, rc, i;
+    optind = 1;
+    while ((opt = getopt_long(argc, argv, "", drift_long_options, NULL)) != -1)
+        if ((rc = drift_option(&dc, opt == '?' ? 0 : opt, optarg)) >= 0) return rc;
+    if (optind != argc - 2) return usage_error("drift takes two fits saved with --json: the old and the new");
+    if ((rc = drift_outputs(&dc, NULL, (const char *const *)argv + optind)) != 0) return rc;
+    for (i = 0; i < 2 && rc == 0; i++) {
+        mr_status st = mr_fit_read_json(argv[optind + i], &fits[i], msg, sizeof msg);
+        if (st != MR_OK) rc = fail(st, msg);
+    }
+    if (rc == 0) rc = compare_fits(&dc, (const char *const *)argv + optind, fits);
+    mr_fit_free(fits[0]);
+    mr_fit_free(fits[1]);
+    return rc;
+}
+
 /* What went to standard output counts only once it is out: a write that
  * failed earlier or the last flush failing turns success into MR_ERR_IO. */
 static int close_stdout(int rc)
 {
     int bad = ferror(stdout);
     if (fclose(stdout) != 0) bad = 1;
-    if (bad && (rc == 0 || rc == MR_ERR_NOT_CONVERGED)) return stdout_failed("");
+    if (bad && (rc == 0 || rc == MR_ERR_NOT_CONVERGED || rc == MR_DRIFT_FLAGGED)) return stdout_failed("");
     return rc;
 }
 
@@ -438,6 +534,7 @@ static int dispatch(int argc, char **argv)
         return 0;
     }
     if (strcmp(argv[1], "show") == 0) return show_fit(argc - 1, argv + 1);
+    if (strcmp(argv[1], "drift") == 0) return run_drift(argc - 1, argv + 1);
     if (strcmp(argv[1], "fit") != 0) return usage_error("unknown command (try 'millrace fit')");
     memset(&c, 0, sizeof c);
     c.fitter = mr_fitter_new();
