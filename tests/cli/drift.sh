@@ -10,6 +10,7 @@
 # (z = change / max(se_old, se_new), the rule README states); Python's json
 # and csv modules for the outputs.
 source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
+bin=${MILLRACE:-$bin} # make asan-check runs it on the ASan build
 py=/usr/bin/python3
 cd "$tmp" || exit 1
 
