@@ -158,9 +158,9 @@ static mr_status record_run(const mr_fitter *f, mr_fit *fit, int64_t started_ns,
     fit->ended = mr__strdup(ended);
     fit->host = mr__strdup(host);
     fit->command_line = mr__strings_copy((const char *const *)f->command_line, f->ncommand_line);
+    if (fit->command_line != NULL) fit->ncommand_line = f->ncommand_line; /* so that mr_fit_free frees them */
     if (fit->started == NULL || fit->ended == NULL || fit->host == NULL || fit->command_line == NULL)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    fit->ncommand_line = f->ncommand_line;
     fit->run_known = 1;
     return MR_OK;
 }
