@@ -83,9 +83,13 @@ typedef enum mr_status {
     MR_ERR_INTERNAL = 9,     /* a bug: please report it                     */
     MR_ERR_NUMERIC = 10,     /* the fit broke down (no finite deviance even
                                 after step halving)                         */
-    MR_ERR_STOPPED = 11      /* the progress callback set with
+    MR_ERR_STOPPED = 11,     /* the progress callback set with
                                 mr_fitter_set_progress_stop asked the run
                                 to stop (never returned by the command)     */
+    MR_DRIFT_FLAGGED = 12    /* not an error: a comparison of two fits
+                                (mr_drift_compare) flagged a change; the
+                                command's drift exits with it so that a
+                                scheduler can alert                          */
 } mr_status;
 
 /* A static, human-readable name for a status ("bad input format", ...). */
@@ -230,6 +234,12 @@ MR_API void mr_fitter_set_progress(mr_fitter *f, mr_progress_fn fn, void *user);
 typedef int (*mr_progress_stop_fn)(const mr_progress *p, void *user);
 MR_API void mr_fitter_set_progress_stop(mr_fitter *f, mr_progress_stop_fn fn, void *user);
 
+/* The command line that asked for the run, for the fit's audit trail
+ * (the library cannot see argv): the `argc` words are copied, and every
+ * later fit of this fitter records them ("run" in the JSON, README).
+ * argc 0 forgets them.  MR_OK or MR_ERR_NO_MEMORY. */
+MR_API mr_status mr_fitter_set_command_line(mr_fitter *f, size_t argc, const char *const *argv);
+
 /* Fits the model to the CSV (optionally zstd-compressed) at `path`, or to
  * standard input when path is "-".  The input is only read, once or more
  * (input that is not a regular file - standard input, a pipe such as
@@ -335,7 +345,9 @@ MR_API mr_status mr_fit_write_json(const mr_fit *fit, const char *path, char *ms
 MR_API mr_status mr_fit_read_json(const char *path, mr_fit **out, char *msg, size_t msgcap);
 
 /* ------------------------------------------------------------------ */
-/* Output files.  Every file the library writes (mr_fit_write_json) obeys:
+/* Output files.  Every file the library writes (mr_fit_write_json,
+ * mr_drift_write_json, mr_drift_write_csv; mr_run_log_append appends
+ * instead, see there) obeys:
  *
  *  - A symbolic link at `path` is followed (to the end of a chain); its
  *    target is what gets written, and the link is kept.
@@ -382,6 +394,91 @@ MR_API mr_status mr_output_check(const char *path, const char *const *inputs, si
  * with MR_ERR_IO at its rename, leaving no output).  Touches nothing
  * else. */
 MR_API void mr_output_unlink_temps(void);
+
+/* ------------------------------------------------------------------ */
+/* The run log: one line per run appended to a file, for the operators
+ * of a scheduler that reruns fits.  The one output that is not replaced
+ * atomically: the line is appended with a single write() on a file
+ * opened with O_APPEND (created with mode 0666 less the umask when
+ * absent) and synced, so the lines of runs appending at once do not
+ * interleave.  The target is checked as every output's (above): links
+ * followed, anything but a regular file refused with MR_ERR_IO, one of
+ * `inputs` (`ninputs` of them) refused with MR_ERR_USAGE.
+ *
+ * The line is a JSON object (README, "Run log"): the time of writing (UTC,
+ * ISO 8601), the host, the exit code, the input, the error (null when
+ * none), the command line, and from the fit when there is one (null
+ * otherwise): rows read and used, passes, seconds, and flags (words such
+ * as "not_converged", "warnings", "rows_left_out", "bad_rows_skipped"). */
+typedef struct mr_run_record {
+    const char *input;       /* the data file as given, "-" standard input */
+    int exit_code;           /* what the run ends with                     */
+    const char *error;       /* its one-line message, or NULL              */
+    const mr_fit *fit;       /* the fit, or NULL when there is none        */
+    size_t argc;             /* the command line (argv may be NULL if 0)   */
+    const char *const *argv;
+} mr_run_record;
+
+/* MR_OK, or MR_ERR_USAGE / MR_ERR_IO / MR_ERR_NO_MEMORY with a message in
+ * `msg` (capacity `msgcap`, may be 0).  A short write (a full disk) is
+ * MR_ERR_IO and may leave part of the line at the end of the file. */
+MR_API mr_status mr_run_log_append(const char *path, const mr_run_record *rec, const char *const *inputs,
+                                   size_t ninputs, char *msg, size_t msgcap);
+
+/* ------------------------------------------------------------------ */
+/* Drift: what changed between two fits of the same model, e.g. the same
+ * model refitted to a refreshed extract.  A comparison borrows both fits:
+ * they must outlive it.  Free it with mr_drift_free (NULL is fine).
+ *
+ * Coefficients are matched by name.  One in both fits and not aliased in
+ * either has its change (new - old) measured in standard errors: z =
+ * change / max(se_old, se_new), the larger of the two fits' own SEs
+ * (README, "Comparing two fits", says why not the independent-samples
+ * sqrt(se_old^2 + se_new^2), which is reported beside it).  It is flagged
+ * when |z| >= threshold.  Also flagged: a coefficient in one fit only
+ * (a new or vanished level or term column), one aliased in one fit only,
+ * and each factor level in one fit only.  The comparison also holds the
+ * rows read, used and left out (per column for missing values), the
+ * deviance per row used, the dispersion and whether the input changed
+ * (checksum and sizes; the file's size and modification time where both
+ * fits record them): the text, JSON and CSV below give them.
+ *
+ * MR_OK (flagged or not: mr_drift_nflagged says), MR_ERR_USAGE when the
+ * fits are of different models (outcome, trials, family, link, offset,
+ * exposure, weight, intercept, dispersion, terms or a factor's reference
+ * differ; the message names the first difference) or the threshold is not
+ * a positive number, MR_ERR_NO_MEMORY; with a message in `msg` (capacity
+ * `msgcap`, may be 0).  The command's drift exits with MR_DRIFT_FLAGGED
+ * when anything is flagged. */
+typedef struct mr_drift mr_drift;
+MR_API mr_status mr_drift_compare(const mr_fit *old_fit, const mr_fit *new_fit, double threshold, mr_drift **out,
+                                  char *msg, size_t msgcap);
+MR_API void mr_drift_free(mr_drift *d);
+
+/* Flagged coefficients plus factor levels found in one fit only. */
+MR_API size_t mr_drift_nflagged(const mr_drift *d);
+/* The coefficients compared: the old fit's in order, then those only the
+ * new fit has.  Name owned by a fit; change and z NaN when the coefficient
+ * is in one fit only or aliased; out-of-range i gives NULL, NaN, 0. */
+MR_API size_t mr_drift_ncoef(const mr_drift *d);
+MR_API const char *mr_drift_coef_name(const mr_drift *d, size_t i);
+MR_API double mr_drift_coef_change(const mr_drift *d, size_t i);
+MR_API double mr_drift_coef_z(const mr_drift *d, size_t i);
+MR_API int mr_drift_coef_flagged(const mr_drift *d, size_t i);
+
+/* The comparison as text for people; numbers with `digits` significant
+ * digits (0: 6).  Free with mr_free; NULL when out of memory. */
+MR_API char *mr_drift_report(const mr_drift *d, int digits);
+
+/* The comparison as JSON (format "millrace-drift", README) or as CSV (one
+ * row per coefficient, RFC 4180, a header row), written to `path` by the
+ * rules of "Output files" above; `inputs` (`ninputs`) are the files the
+ * fits were read from, which the output must not replace.  MR_OK, or
+ * MR_ERR_USAGE / MR_ERR_IO / MR_ERR_NO_MEMORY with a message in `msg`. */
+MR_API mr_status mr_drift_write_json(const mr_drift *d, const char *path, const char *const *inputs, size_t ninputs,
+                                     char *msg, size_t msgcap);
+MR_API mr_status mr_drift_write_csv(const mr_drift *d, const char *path, const char *const *inputs, size_t ninputs,
+                                    char *msg, size_t msgcap);
 
 /* Number of warnings and the i-th one (owned by the fit): possible
  * separation, aliased columns, non-convergence, ... */

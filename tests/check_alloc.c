@@ -46,6 +46,15 @@ static int fit_failing_at(long n, const char *path, const char *const *model, in
         }
     }
     mr_fitter_set_int(f, MR_OPT_THREADS, 2);
+    {
+        static const char *const argv[] = {"millrace", "fit", "data.csv"};
+        st = mr_fitter_set_command_line(f, 3, argv); /* the audit trail's copy */
+        if (st != MR_OK) {
+            mr_fitter_free(f);
+            ck_assert_int_eq(st, MR_ERR_NO_MEMORY);
+            return 0;
+        }
+    }
     if (extra == 1) mr_fitter_set_int(f, MR_OPT_NO_COLLAPSE, 1);
     if (extra == 2) mr_fitter_set_int(f, MR_OPT_IN_MEMORY, 1);
     st = mr_fitter_run(f, path, &fit);
@@ -119,6 +128,65 @@ START_TEST(test_json_write_and_read)
 }
 END_TEST
 
+/* A drift of two fits (its comparison, text, JSON and CSV) and a run-log
+ * line with the n-th allocation failing: MR_ERR_NO_MEMORY (NULL text) or
+ * success.  Returns 1 once everything got through. */
+static int drift_failing_at(long n, const mr_fit *fit, const char *dir)
+{
+    char msg[256], path[96];
+    const char *argv[] = {"millrace", "fit"};
+    mr_run_record rec = {"data.csv", 0, NULL, fit, 2, argv};
+    mr_drift *d = NULL;
+    char *text;
+    mr_status st;
+    int done = 1;
+    mr__alloc_fail_after(n);
+    st = mr_drift_compare(fit, fit, 3.0, &d, msg, sizeof msg);
+    ck_assert_msg(st == MR_OK || st == MR_ERR_NO_MEMORY, "allocation %ld: compare %d (%s)", n, (int)st, msg);
+    if (st != MR_OK) {
+        ck_assert_ptr_null(d);
+        return 0;
+    }
+    text = mr_drift_report(d, 0);
+    done &= text != NULL;
+    mr_free(text);
+    snprintf(path, sizeof path, "%s/d.json", dir);
+    st = mr_drift_write_json(d, path, NULL, 0, msg, sizeof msg);
+    ck_assert_msg(st == MR_OK || st == MR_ERR_NO_MEMORY, "allocation %ld: drift JSON %d (%s)", n, (int)st, msg);
+    done &= st == MR_OK;
+    snprintf(path, sizeof path, "%s/d.csv", dir);
+    st = mr_drift_write_csv(d, path, NULL, 0, msg, sizeof msg);
+    ck_assert_msg(st == MR_OK || st == MR_ERR_NO_MEMORY, "allocation %ld: drift CSV %d (%s)", n, (int)st, msg);
+    done &= st == MR_OK;
+    mr_drift_free(d);
+    snprintf(path, sizeof path, "%s/runs.log", dir);
+    st = mr_run_log_append(path, &rec, NULL, 0, msg, sizeof msg);
+    ck_assert_msg(st == MR_OK || st == MR_ERR_NO_MEMORY, "allocation %ld: run log %d (%s)", n, (int)st, msg);
+    done &= st == MR_OK;
+    return done && mr__alloc_failures_left() >= 0;
+}
+
+START_TEST(test_drift_and_run_log)
+{
+    char dir[] = "/tmp/check_alloc-XXXXXX", cmd[96];
+    mr_fitter *f = mr_fitter_new();
+    mr_fit *fit = NULL;
+    long n;
+    int i;
+    ck_assert_ptr_nonnull(mkdtemp(dir));
+    for (i = 0; falls_model[i]; i++) ck_assert_int_eq(mr_fitter_model_line(f, falls_model[i], "test"), MR_OK);
+    ck_assert_int_eq(mr_fitter_run(f, "samples/falls.csv.zst", &fit), MR_OK);
+    mr_fitter_free(f);
+    for (n = 0; n < 200000; n++)
+        if (drift_failing_at(n, fit, dir)) break;
+    mr__alloc_fail_after(-1);
+    ck_assert_msg(n < 200000, "drift never finished");
+    mr_fit_free(fit);
+    snprintf(cmd, sizeof cmd, "rm -rf '%s'", dir);
+    ck_assert_int_eq(system(cmd), 0);
+}
+END_TEST
+
 START_TEST(test_falls_collapsed) { every_allocation("samples/falls.csv.zst", falls_model, 0); }
 END_TEST
 START_TEST(test_falls_rows_cached) { every_allocation("samples/falls.csv", falls_model, 1); }
@@ -140,6 +208,7 @@ int main(void)
     tcase_add_test(tc, test_falls_rows_cached);
     tcase_add_test(tc, test_screening_in_memory);
     tcase_add_test(tc, test_json_write_and_read);
+    tcase_add_test(tc, test_drift_and_run_log);
     suite_add_tcase(s, tc);
     rc = mr_check_run(s, 1); /* no fork: the leak checker sees the whole run */
     unlink(json_path);

@@ -179,6 +179,60 @@ END_TEST
 START_TEST(test_standard_input) { every_call(&standard_input); }
 END_TEST
 
+/* A drift's CSV and a run-log line with the n-th I/O call failing (or
+ * short): MR_ERR_IO with a message, or success, and no temporary file
+ * left (millrace.h: "Output files", mr_run_log_append: a short append is
+ * MR_ERR_IO). */
+static int drift_outputs_failing_at(const mr_fit *fit, long n, int mode)
+{
+    char msg[512] = "", csv[160], log[160];
+    const char *argv[] = {"millrace"};
+    mr_run_record rec = {"falls.csv", 0, NULL, fit, 1, argv};
+    mr_drift *d = NULL;
+    mr_status a, b;
+    int happened;
+    snprintf(csv, sizeof csv, "%s/drift.csv", dir);
+    snprintf(log, sizeof log, "%s/runs.log", dir);
+    unlink(log);
+    ck_assert_int_eq(mr_drift_compare(fit, fit, 3, &d, msg, sizeof msg), MR_OK);
+    mr__io_fail_after(n, mode);
+    a = mr_drift_write_csv(d, csv, NULL, 0, msg, sizeof msg);
+    ck_assert_msg(a == MR_OK || (a == MR_ERR_IO && msg[0]), "call %ld: CSV status %d (%s)", n, (int)a, msg);
+    b = mr_run_log_append(log, &rec, NULL, 0, msg, sizeof msg);
+    ck_assert_msg(b == MR_OK || (b == MR_ERR_IO && msg[0]), "call %ld: run log status %d (%s)", n, (int)b, msg);
+    happened = mr__io_failures_left() < 0;
+    mr__io_fail_after(-1, MR__IO_FAIL);
+    mr_drift_free(d);
+    assert_no_temporary(n);
+    if (!happened) ck_assert(a == MR_OK && b == MR_OK);
+    return !happened;
+}
+
+START_TEST(test_drift_and_run_log)
+{
+    mr_fitter *f = mr_fitter_new();
+    mr_fit *fit = NULL;
+    long n;
+    int mode, i;
+    for (i = 0; falls_model[i]; i++) ck_assert_int_eq(mr_fitter_model_line(f, falls_model[i], "test"), MR_OK);
+    ck_assert_int_eq(mr_fitter_run(f, "samples/falls.csv", &fit), MR_OK);
+    mr_fitter_free(f);
+    for (mode = MR__IO_FAIL; mode <= MR__IO_SHORT; mode++) {
+        for (n = 0; n < 1000; n++)
+            if (drift_outputs_failing_at(fit, n, mode)) break;
+        ck_assert_msg(n > 0 && n < 1000, "drift outputs: %ld calls", n);
+    }
+    mr_fit_free(fit);
+    {
+        char p[160];
+        snprintf(p, sizeof p, "%s/drift.csv", dir);
+        unlink(p);
+        snprintf(p, sizeof p, "%s/runs.log", dir);
+        unlink(p);
+    }
+}
+END_TEST
+
 int main(void)
 {
     Suite *s = suite_create("io");
@@ -191,6 +245,7 @@ int main(void)
     tcase_add_test(tc, test_rereads);
     tcase_add_test(tc, test_compressed_patterns);
     tcase_add_test(tc, test_standard_input);
+    tcase_add_test(tc, test_drift_and_run_log);
     suite_add_tcase(s, tc);
     {
         int rc = mr_check_run(s, 1); /* no fork: the leak checker sees the whole run */

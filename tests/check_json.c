@@ -349,6 +349,40 @@ START_TEST(damaged_files)
 }
 END_TEST
 
+/* The audit trail ("run": command line, start, end, host) written and read
+ * back; a fit written before it existed (no "run") still reads, and
+ * writes the same bytes again (include/millrace.h, mr_fit_read_json). */
+START_TEST(audit_trail)
+{
+    static const char *const argv[] = {"millrace", "fit", "--json", "r\xe9sultat.json", "falls.csv"};
+    char msg[512], *text, *start, *end, *again;
+    mr_fitter *f = mr_fitter_new();
+    mr_fit *fit = NULL, *back = NULL;
+    ck_assert_int_eq(mr_fitter_model_file(f, "samples/falls.model"), MR_OK);
+    ck_assert_int_eq(mr_fitter_set_command_line(f, 5, argv), MR_OK);
+    ck_assert_msg(mr_fitter_run(f, "samples/falls.csv", &fit) == MR_OK, "%s", mr_fitter_errmsg(f));
+    mr_fitter_free(f);
+    ck_assert_int_eq(mr_fit_write_json(fit, in_dir("run.json"), msg, sizeof msg), MR_OK);
+    text = slurp(in_dir("run.json"));
+    ck_assert_msg(strstr(text, "\"command_line\": [\n   \"millrace\",\n   \"fit\"") != NULL, "%.400s", text);
+    ck_assert_msg(strstr(text, "\"r\\\\xE9sultat.json\"") != NULL, "%.600s", text); /* escaped as all text */
+    ck_assert_msg(strstr(text, "\"started\": \"20") != NULL && strstr(text, "\"host\": \"") != NULL, "%.600s", text);
+    round_trip(fit, "audit trail");
+    /* the same file as an older writer left it: no "run" */
+    start = strstr(text, " \"run\": {");
+    end = strstr(start, "\n },\n") + strlen("\n },\n");
+    memmove(start, end, strlen(end) + 1);
+    spit(in_dir("old.json"), text, strlen(text));
+    ck_assert_msg(mr_fit_read_json(in_dir("old.json"), &back, msg, sizeof msg) == MR_OK, "%s", msg);
+    ck_assert_int_eq(mr_fit_write_json(back, in_dir("old2.json"), msg, sizeof msg), MR_OK);
+    again = slurp(in_dir("old2.json"));
+    ck_assert_str_eq(text, again);
+    free(text);
+    free(again);
+    mr_fit_free(back);
+}
+END_TEST
+
 static Suite *json_suite(void)
 {
     Suite *s = suite_create("json");
@@ -366,6 +400,7 @@ static Suite *json_suite(void)
     tcase_add_test(t, round_trip_screening);
     tcase_add_test(t, round_trip_awkward);
     tcase_add_test(t, damaged_files);
+    tcase_add_test(t, audit_trail);
     suite_add_tcase(s, t);
     return s;
 }

@@ -17,7 +17,7 @@ enum {
     OPT_OUTCOME = 256, OPT_TRIALS, OPT_FAMILY, OPT_LINK, OPT_NUMERIC, OPT_FACTOR, OPT_INTERACT, OPT_OFFSET,
     OPT_EXPOSURE, OPT_WEIGHT, OPT_NO_INTERCEPT, OPT_DISPERSION, OPT_THREADS, OPT_BUFFER, OPT_TOLERANCE,
     OPT_MAX_PASSES, OPT_LEVEL, OPT_DELIMITER, OPT_MISSING, OPT_IN_MEMORY, OPT_ON_BAD_ROW, OPT_JSON, OPT_QUIET,
-    OPT_DIGITS, OPT_NO_CACHE, OPT_NO_COLLAPSE, OPT_HELP
+    OPT_DIGITS, OPT_NO_CACHE, OPT_NO_COLLAPSE, OPT_HELP, OPT_RUN_LOG, OPT_THRESHOLD, OPT_CSV
 };
 
 static const struct option long_options[] = {
@@ -46,15 +46,28 @@ static const struct option long_options[] = {
     {"no-collapse", no_argument, NULL, OPT_NO_COLLAPSE},
     {"on-bad-row", required_argument, NULL, OPT_ON_BAD_ROW},
     {"json", required_argument, NULL, OPT_JSON},
+    {"run-log", required_argument, NULL, OPT_RUN_LOG},
     {"quiet", no_argument, NULL, OPT_QUIET},
     {"digits", required_argument, NULL, OPT_DIGITS},
     {"help", no_argument, NULL, OPT_HELP},
     {NULL, 0, NULL, 0},
 };
 
+/* The drift command's own options (--json and --digits mean what they
+ * mean for fit). */
+static const struct option drift_long_options[] = {
+    {"threshold", required_argument, NULL, OPT_THRESHOLD},
+    {"json", required_argument, NULL, OPT_JSON},
+    {"csv", required_argument, NULL, OPT_CSV},
+    {"digits", required_argument, NULL, OPT_DIGITS},
+    {NULL, 0, NULL, 0},
+};
+
 static const char usage_text[] =
     "usage: millrace fit [options] DATA     fit a GLM to DATA (CSV, TSV, zstd-compressed, or - for stdin)\n"
     "       millrace show [--digits N] FIT.json   the report of a fit saved with --json\n"
+    "       millrace drift [--threshold SE] [--json PATH] [--csv PATH] [--digits N] OLD.json NEW.json\n"
+    "                               what changed between two saved fits of one model (default 3 SE)\n"
     "       millrace version | help\n"
     "\n"
     "model (each option takes the words of the model-file line of the same name):\n"
@@ -67,28 +80,39 @@ static const char usage_text[] =
     "  --delimiter ,|tab|;  --missing TOKEN (repeatable)  --in-memory  --no-cache  --no-collapse\n"
     "  --on-bad-row fail|skip\n"
     "output:\n"
-    "  --json PATH  --quiet  --digits N\n"
+    "  --json PATH  --run-log FILE (a line appended per run)  --quiet  --digits N\n"
     "exit codes: 0 ok, 2 usage, 3 I/O, 4 malformed input, 5 value outside the model, 6 no data,\n"
-    "            7 not converged, 8 out of memory, 9 internal error, 10 numerical breakdown\n";
+    "            7 not converged, 8 out of memory, 9 internal error, 10 numerical breakdown,\n"
+    "            12 drift flagged a change\n";
 
 typedef struct cli {
     mr_fitter *fitter;
-    const char *json_path;
+    const char *json_path, *run_log;
     int quiet, digits, missing_given, progress_shown;
+    const char *data;     /* set once the arguments are read: the run gets logged */
+    int argc;             /* the whole command line, for the fit's audit trail */
+    char **argv;
+    int run_log_refused;  /* its target failed the output checks */
+    mr_fit *fit;
     char **model_lines; /* options as model lines, applied after the model file */
     const char **model_origin;
     size_t nlines;
     const char *model_file;
 } cli;
 
+/* The last error said, for the run log. */
+static char last_error[1024];
+
 static int fail(mr_status st, const char *msg)
 {
+    snprintf(last_error, sizeof last_error, "%s", msg);
     fprintf(stderr, "millrace: %s\n", msg);
     return (int)st;
 }
 
 static int usage_error(const char *msg)
 {
+    snprintf(last_error, sizeof last_error, "%s", msg);
     fprintf(stderr, "millrace: %s (see 'millrace help')\n", msg);
     return (int)MR_ERR_USAGE;
 }
@@ -222,6 +246,7 @@ static int handle_option(cli *c, int opt, const char *arg)
     case OPT_NO_COLLAPSE: mr_fitter_set_int(c->fitter, MR_OPT_NO_COLLAPSE, 1); return -1;
     case OPT_ON_BAD_ROW: return handled(set_bad_rows(c, arg));
     case OPT_JSON: c->json_path = arg; return -1;
+    case OPT_RUN_LOG: c->run_log = arg; return -1;
     case OPT_QUIET: c->quiet = 1; return -1;
     case OPT_DIGITS: {
         long long v;
@@ -274,10 +299,10 @@ static int stdout_failed(const char *what)
     return fail(MR_ERR_IO, msg);
 }
 
-/* The report on standard output; 0 or the exit code of the failure. */
-static int print_report(const mr_fit *fit, int digits)
+/* A report on standard output (freed here); 0 or the exit code of the
+ * failure. */
+static int print_text(char *report)
 {
-    char *report = mr_fit_report(fit, digits);
     int written;
     if (report == NULL) return fail(MR_ERR_NO_MEMORY, "out of memory writing the report");
     /* A failed write past the stdio buffer is not remembered by fflush:
@@ -286,6 +311,8 @@ static int print_report(const mr_fit *fit, int digits)
     mr_free(report);
     return written ? 0 : stdout_failed("the report ");
 }
+
+static int print_report(const mr_fit *fit, int digits) { return print_text(mr_fit_report(fit, digits)); }
 
 static int publish(cli *c, mr_fit *fit)
 {
@@ -299,14 +326,37 @@ static int publish(cli *c, mr_fit *fit)
 
 /* Refuses, before the fit, a JSON path that is the data or the model
  * file or cannot take an output (the library checks again as it writes). */
-static int check_outputs(const cli *c, const char *data)
+static int check_outputs(cli *c, const char *data)
 {
     const char *inputs[2] = {data, c->model_file};
     char msg[1024];
     mr_status st;
+    if (c->run_log && (st = mr_output_check(c->run_log, inputs, c->model_file ? 2 : 1, msg, sizeof msg)) != MR_OK) {
+        c->run_log_refused = 1;
+        return fail(st, msg);
+    }
     if (c->json_path == NULL) return 0;
     st = mr_output_check(c->json_path, inputs, c->model_file ? 2 : 1, msg, sizeof msg);
     return st == MR_OK ? 0 : fail(st, msg);
+}
+
+/* The run's line in the run log; the run's exit code, or the log's own
+ * failure when the line could not be written. */
+static int log_run(const cli *c, int rc)
+{
+    const char *inputs[2] = {c->data, c->model_file};
+    mr_run_record rec;
+    char msg[1024];
+    mr_status st;
+    if (c->run_log == NULL || c->data == NULL || c->run_log_refused) return rc;
+    rec.input = c->data;
+    rec.exit_code = rc;
+    rec.error = rc != 0 && last_error[0] ? last_error : NULL;
+    rec.fit = c->fit;
+    rec.argc = (size_t)c->argc;
+    rec.argv = (const char *const *)c->argv;
+    st = mr_run_log_append(c->run_log, &rec, inputs, c->model_file ? 2 : 1, msg, sizeof msg);
+    return st == MR_OK ? rc : fail(st, msg);
 }
 
 /* An interrupted run leaves no temporary output behind; the signal then
@@ -346,15 +396,18 @@ static int run_fit(cli *c, int argc, char **argv)
         if ((rc = handle_option(c, opt, optarg)) >= 0) return rc;
     }
     if (optind != argc - 1) return usage_error("fit takes exactly one data file (or - for standard input)");
+    c->data = argv[optind];
     if ((rc = apply_model(c)) != 0) return rc;
     if ((rc = check_outputs(c, argv[optind])) != 0) return rc;
+    if (mr_fitter_set_command_line(c->fitter, (size_t)c->argc, (const char *const *)c->argv) != MR_OK)
+        return fail(MR_ERR_NO_MEMORY, "out of memory");
     if (!c->quiet && isatty(STDERR_FILENO)) mr_fitter_set_progress(c->fitter, show_progress, c);
     st = mr_fitter_run(c->fitter, argv[optind], &fit);
     if (c->progress_shown) fputs("\r\033[K", stderr);
     if (st != MR_OK) return fail(st, mr_fitter_errmsg(c->fitter));
+    c->fit = fit;
     rc = publish(c, fit);
     if (rc == MR_ERR_NOT_CONVERGED) fprintf(stderr, "millrace: the fit did not converge (see the report)\n");
-    mr_fit_free(fit);
     return rc;
 }
 
@@ -378,13 +431,94 @@ static int show_fit(int argc, char **argv)
     return rc;
 }
 
+typedef struct drift_cli {
+    double threshold;
+    const char *json_path, *csv_path;
+    int digits;
+} drift_cli;
+
+/* Returns -1 when the option was handled, else an exit code. */
+static int drift_option(drift_cli *dc, int opt, const char *arg)
+{
+    long long v;
+    switch (opt) {
+    case OPT_THRESHOLD:
+        if (parse_real(arg, &dc->threshold) != 0 || !(dc->threshold > 0) || dc->threshold > 1e300)
+            return usage_error("--threshold takes a positive number of standard errors");
+        return -1;
+    case OPT_JSON: dc->json_path = arg; return -1;
+    case OPT_CSV: dc->csv_path = arg; return -1;
+    case OPT_DIGITS:
+        if (parse_count(arg, &v) != 0 || v < 1 || v > 17) return usage_error("--digits takes 1 to 17");
+        dc->digits = (int)v;
+        return -1;
+    default: return usage_error("bad option (drift takes --threshold, --json, --csv, --digits)");
+    }
+}
+
+/* The JSON and CSV, checked before the fits are read (as fit does), then
+ * written; 0 or the exit code of the failure. */
+static int drift_outputs(const drift_cli *dc, const mr_drift *d, const char *const *inputs)
+{
+    char msg[1024];
+    mr_status st = MR_OK;
+    if (d == NULL) {
+        if (dc->json_path) st = mr_output_check(dc->json_path, inputs, 2, msg, sizeof msg);
+        if (st == MR_OK && dc->csv_path) st = mr_output_check(dc->csv_path, inputs, 2, msg, sizeof msg);
+    } else {
+        if (dc->json_path) st = mr_drift_write_json(d, dc->json_path, inputs, 2, msg, sizeof msg);
+        if (st == MR_OK && dc->csv_path) st = mr_drift_write_csv(d, dc->csv_path, inputs, 2, msg, sizeof msg);
+    }
+    return st == MR_OK ? 0 : fail(st, msg);
+}
+
+static int compare_fits(const drift_cli *dc, const char *const *paths, mr_fit *const *fits)
+{
+    char msg[1024], said[2200];
+    mr_drift *d = NULL;
+    mr_status st = mr_drift_compare(fits[0], fits[1], dc->threshold, &d, msg, sizeof msg);
+    int rc;
+    if (st != MR_OK) {
+        snprintf(said, sizeof said, "%s, %s: %s", paths[0], paths[1], msg);
+        return fail(st, said);
+    }
+    rc = print_text(mr_drift_report(d, dc->digits));
+    if (rc == 0) rc = drift_outputs(dc, d, paths);
+    if (rc == 0 && mr_drift_nflagged(d) > 0) rc = MR_DRIFT_FLAGGED;
+    mr_drift_free(d);
+    return rc;
+}
+
+/* What changed between two saved fits; MR_DRIFT_FLAGGED when anything
+ * is flagged, so that a scheduler can alert. */
+static int run_drift(int argc, char **argv)
+{
+    drift_cli dc = {3.0, NULL, NULL, 0};
+    mr_fit *fits[2] = {NULL, NULL};
+    char msg[1024];
+    int opt, rc, i;
+    optind = 1;
+    while ((opt = getopt_long(argc, argv, "", drift_long_options, NULL)) != -1)
+        if ((rc = drift_option(&dc, opt == '?' ? 0 : opt, optarg)) >= 0) return rc;
+    if (optind != argc - 2) return usage_error("drift takes two fits saved with --json: the old and the new");
+    if ((rc = drift_outputs(&dc, NULL, (const char *const *)argv + optind)) != 0) return rc;
+    for (i = 0; i < 2 && rc == 0; i++) {
+        mr_status st = mr_fit_read_json(argv[optind + i], &fits[i], msg, sizeof msg);
+        if (st != MR_OK) rc = fail(st, msg);
+    }
+    if (rc == 0) rc = compare_fits(&dc, (const char *const *)argv + optind, fits);
+    mr_fit_free(fits[0]);
+    mr_fit_free(fits[1]);
+    return rc;
+}
+
 /* What went to standard output counts only once it is out: a write that
  * failed earlier or the last flush failing turns success into MR_ERR_IO. */
 static int close_stdout(int rc)
 {
     int bad = ferror(stdout);
     if (fclose(stdout) != 0) bad = 1;
-    if (bad && (rc == 0 || rc == MR_ERR_NOT_CONVERGED)) return stdout_failed("");
+    if (bad && (rc == 0 || rc == MR_ERR_NOT_CONVERGED || rc == MR_DRIFT_FLAGGED)) return stdout_failed("");
     return rc;
 }
 
@@ -402,11 +536,15 @@ static int dispatch(int argc, char **argv)
         return 0;
     }
     if (strcmp(argv[1], "show") == 0) return show_fit(argc - 1, argv + 1);
+    if (strcmp(argv[1], "drift") == 0) return run_drift(argc - 1, argv + 1);
     if (strcmp(argv[1], "fit") != 0) return usage_error("unknown command (try 'millrace fit')");
     memset(&c, 0, sizeof c);
     c.fitter = mr_fitter_new();
     if (c.fitter == NULL) return fail(MR_ERR_NO_MEMORY, "out of memory");
-    rc = run_fit(&c, argc - 1, argv + 1);
+    c.argc = argc;
+    c.argv = argv;
+    rc = log_run(&c, run_fit(&c, argc - 1, argv + 1));
+    mr_fit_free(c.fit);
     for (i = 0; i < c.nlines; i++) free(c.model_lines[i]);
     free(c.model_lines);
     free(c.model_origin);

@@ -81,4 +81,24 @@ char *mr__strndup(const char *s, size_t n)
 
 char *mr__strdup(const char *s) { return mr__strndup(s, strlen(s)); }
 
+void mr__strings_free(char **s, size_t n)
+{
+    size_t i;
+    if (s == NULL) return;
+    for (i = 0; i < n; i++) mr__free(s[i]);
+    mr__free(s);
+}
+
+char **mr__strings_copy(const char *const *s, size_t n)
+{
+    char **copy = mr__calloc(n + 1, sizeof *copy);
+    size_t i;
+    for (i = 0; copy != NULL && i < n; i++)
+        if ((copy[i] = mr__strdup(s[i])) == NULL) {
+            mr__strings_free(copy, i);
+            return NULL;
+        }
+    return copy;
+}
+
 void mr_free(void *p) { mr__free(p); }

@@ -27,6 +27,11 @@ char *mr__strndup(const char *s, size_t n);
  * `need` elements, doubling; returns MR_OK, or MR_ERR_NO_MEMORY (the
  * array is then unchanged). */
 mr_status mr__reserve(void **p, size_t *cap, size_t need, size_t unit);
+/* A copy of n strings (each copied), or NULL when out of memory (nothing
+ * then left allocated); n 0 gives an empty array.  Freed with
+ * mr__strings_free (NULL is fine). */
+char **mr__strings_copy(const char *const *s, size_t n);
+void mr__strings_free(char **s, size_t n);
 /* Overflow-checked count * size for array allocations; NULL on overflow. */
 void *mr__malloc_array(size_t count, size_t size);
 

@@ -10,13 +10,7 @@
 #include "family/family.h"
 #include "fit/fit.h"
 
-static void free_strings(char **s, size_t n)
-{
-    size_t i;
-    if (s == NULL) return;
-    for (i = 0; i < n; i++) mr__free(s[i]);
-    mr__free(s);
-}
+static void free_strings(char **s, size_t n) { mr__strings_free(s, n); }
 
 void mr_fit_free(mr_fit *fit)
 {
@@ -57,6 +51,10 @@ void mr_fit_free(mr_fit *fit)
     mr__free(fit->path);
     mr__free(fit->version);
     free_strings(fit->warning, fit->nwarnings);
+    free_strings(fit->command_line, fit->ncommand_line);
+    mr__free(fit->started);
+    mr__free(fit->ended);
+    mr__free(fit->host);
     mr__free(fit);
 }
 

@@ -74,6 +74,12 @@ struct mr_fit {
     double tolerance, level;
     char **warning;
     size_t nwarnings;
+    /* the run's audit trail (fitter.c): 0 in run_known for a fit read back
+     * from a JSON written before there was one */
+    int run_known;
+    char **command_line; /* the words given to mr_fitter_set_command_line */
+    size_t ncommand_line;
+    char *started, *ended, *host; /* ISO 8601 UTC; the machine's name */
 };
 
 /* The per-coefficient arrays for p coefficients, zeroed (the fit's p set). */

@@ -4,6 +4,8 @@
 #include <unistd.h>
 
 #include "common/alloc.h"
+#include "common/clock.h"
+#include "fit/fit.h"
 #include "fit/fitter.h"
 
 #define DEFAULT_MAX_PASSES 50
@@ -33,6 +35,7 @@ void mr_fitter_free(mr_fitter *f)
     if (f == NULL) return;
     mr__spec_release(&f->spec);
     mr_fitter_clear_missing(f);
+    mr__strings_free(f->command_line, f->ncommand_line);
     mr__free(f);
 }
 
@@ -134,15 +137,53 @@ void mr_fitter_set_progress(mr_fitter *f, mr_progress_fn fn, void *user)
     f->progress_user = user;
 }
 
+mr_status mr_fitter_set_command_line(mr_fitter *f, size_t argc, const char *const *argv)
+{
+    char **copy = NULL;
+    mr__error_clear(&f->err);
+    if (argc > 0 && (copy = mr__strings_copy(argv, argc)) == NULL)
+        return mr__fail(&f->err, MR_ERR_NO_MEMORY, "out of memory");
+    mr__strings_free(f->command_line, f->ncommand_line);
+    f->command_line = copy;
+    f->ncommand_line = argc;
+    return MR_OK;
+}
+
+/* The audit trail: who asked (the command line), on which machine, from
+ * when to when (wall clock, UTC). */
+static mr_status record_run(const mr_fitter *f, mr_fit *fit, int64_t started_ns, mr__error *err)
+{
+    char started[MR__UTC_TEXT_CAP], ended[MR__UTC_TEXT_CAP], host[256];
+    mr__utc_text(started_ns, started, sizeof started);
+    mr__utc_text(mr__wall_ns_now(), ended, sizeof ended);
+    mr__host_name(host, sizeof host);
+    fit->started = mr__strdup(started);
+    fit->ended = mr__strdup(ended);
+    fit->host = mr__strdup(host);
+    fit->command_line = mr__strings_copy((const char *const *)f->command_line, f->ncommand_line);
+    if (fit->command_line != NULL) fit->ncommand_line = f->ncommand_line; /* so that mr_fit_free frees them */
+    if (fit->started == NULL || fit->ended == NULL || fit->host == NULL || fit->command_line == NULL)
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    fit->run_known = 1;
+    return MR_OK;
+}
+
 mr_status mr_fitter_run(mr_fitter *f, const char *path, mr_fit **out)
 {
+    int64_t started = mr__wall_ns_now();
+    mr_status st;
     *out = NULL;
     mr__error_clear(&f->err);
     /* Closed, descriptor 0 would go to the next file opened (the copy of
      * standard input kept for later passes), and be read as empty input. */
     if (strcmp(path, "-") == 0 && fcntl(STDIN_FILENO, F_GETFD) < 0)
         return mr__fail(&f->err, MR_ERR_IO, "<stdin>: standard input is closed, so there is nothing to read");
-    return mr__fit_file(f, path, out);
+    st = mr__fit_file(f, path, out);
+    if (st == MR_OK && (st = record_run(f, *out, started, &f->err)) != MR_OK) {
+        mr_fit_free(*out);
+        *out = NULL;
+    }
+    return st;
 }
 
 void mr_fitter_set_progress_stop(mr_fitter *f, mr_progress_stop_fn fn, void *user)

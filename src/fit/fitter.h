@@ -16,6 +16,8 @@ struct mr_fitter {
     mr_progress_fn progress;
     mr_progress_stop_fn progress_stop; /* at most one of the two is set */
     void *progress_user;
+    char **command_line; /* mr_fitter_set_command_line's copy */
+    size_t ncommand_line;
 };
 
 /* The fit itself (run.c). */

@@ -11,43 +11,24 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <time.h>
 
 #include "common/alloc.h"
+#include "common/clock.h"
 #include "common/error.h"
-#include "common/outfile.h"
 #include "family/family.h"
 #include "fit/fit.h"
 #include "output/json_schema.h"
 #include "output/json_text.h"
+#include "output/json_util.h"
 
 /* The walk over json_schema.c's tables.  jansson's constructors return
  * NULL only when out of memory (text never reaches them other than as
  * well-formed UTF-8, numbers only finite): a NULL anywhere comes up to
  * the root, and means exactly that. */
 
-static json_t *append(json_t *a, json_t *v)
-{
-    if (a != NULL && json_array_append_new(a, v) == 0) return a;
-    if (a == NULL) json_decref(v);
-    json_decref(a);
-    return NULL;
-}
-
-/* Sets o[key] = v (stolen); the key is text, escaped as every text is. */
-static json_t *put(json_t *o, const char *key, json_t *v)
-{
-    char *k = o != NULL && v != NULL ? mr__json_escape(key) : NULL;
-    int ok = k != NULL && json_object_set_new(o, k, v) == 0;
-    if (k == NULL) json_decref(v);
-    mr__free(k);
-    if (ok) return o;
-    json_decref(o);
-    return NULL;
-}
-
-/* NaN and infinities have no JSON spelling: they become null. */
-static json_t *num(double x) { return isfinite(x) ? json_real(x) : json_null(); }
+static json_t *append(json_t *a, json_t *v) { return mr__json_append(a, v); }
+static json_t *put(json_t *o, const char *key, json_t *v) { return mr__json_put(o, key, v); }
+static json_t *num(double x) { return mr__json_num(x); }
 
 static json_t *text_array(char *const *s, size_t n)
 {
@@ -60,16 +41,8 @@ static json_t *text_array(char *const *s, size_t n)
 /* "2026-12-04T21:46:04.000000000Z" */
 static json_t *utc_time(int64_t ns)
 {
-    char buf[64];
-    int64_t sec = ns / 1000000000, frac = ns % 1000000000;
-    time_t t;
-    struct tm tm;
-    if (frac < 0) sec--, frac += 1000000000;
-    t = (time_t)sec;
-    if (gmtime_r(&t, &tm) == NULL || strftime(buf, sizeof buf - 12, "%Y-%m-%dT%H:%M:%S", &tm) == 0)
-        return json_null();
-    snprintf(buf + strlen(buf), 12, ".%09dZ", (int)frac);
-    return json_string(buf);
+    char buf[MR__UTC_TEXT_CAP];
+    return mr__utc_text(ns, buf, sizeof buf) == 0 ? json_string(buf) : json_null();
 }
 
 static const char *term_kind(const mr_fit *f, const mr__fit_term *t)
@@ -207,6 +180,9 @@ static json_t *value(const mr_fit *f, const mr__jfield *fl, const void *base, si
     case MR__J_SPECIAL: return special(f, fl->which, base);
     case MR__J_OBJECT: return object(f, fl->sub, base, index);
     case MR__J_OBJECT_OR_NULL: return *(const int *)(b + fl->count) ? object(f, fl->sub, base, index) : json_null();
+    case MR__J_OBJECT_OPTIONAL:
+        *skip = !*(const int *)(b + fl->count);
+        return *skip ? NULL : object(f, fl->sub, base, index);
     case MR__J_TEXTS: return text_array(*(char *const *const *)(b + fl->at), *(const size_t *)(b + fl->count));
     case MR__J_REALS:
     case MR__J_RECORDS:
@@ -232,40 +208,14 @@ static json_t *object(const mr_fit *f, const mr__jfield *fields, const void *bas
     return o;
 }
 
-typedef struct json_sink {
-    mr__outfile *out;
-    mr__error *err;
-} json_sink;
-
-static int to_outfile(const char *buf, size_t size, void *data)
-{
-    json_sink *s = data;
-    return mr__outfile_write(s->out, buf, size, s->err) == MR_OK ? 0 : -1;
-}
-
-static mr_status write_json(json_t *root, const char *path, const char *input, mr__error *err)
-{
-    const size_t flags = JSON_INDENT(1) | JSON_REAL_PRECISION(17) | JSON_PRESERVE_ORDER;
-    json_sink sink = {NULL, err};
-    MR__TRY(mr__outfile_open(&sink.out, path, &input, 1, err));
-    if (json_dump_callback(root, to_outfile, &sink, flags) != 0 || to_outfile("\n", 1, &sink) != 0) {
-        /* jansson fails on its own only for want of memory */
-        if (err->status == MR_OK) mr__fail(err, MR_ERR_NO_MEMORY, "%s: out of memory writing the JSON", path);
-        mr__outfile_abort(sink.out);
-        return err->status;
-    }
-    return mr__outfile_commit(sink.out, err);
-}
-
 mr_status mr_fit_write_json(const mr_fit *fit, const char *path, char *msg, size_t msgcap)
 {
     json_t *root = object(fit, mr__json_fit_fields, fit, 0);
+    const char *input = strcmp(fit->path, "<stdin>") == 0 ? "-" : fit->path;
     mr__error err;
     mr__error_clear(&err);
-    if (root == NULL)
-        mr__fail(&err, MR_ERR_NO_MEMORY, "%s: out of memory building the JSON", path);
-    else
-        write_json(root, path, strcmp(fit->path, "<stdin>") == 0 ? "-" : fit->path, &err);
+    if (root == NULL) mr__fail(&err, MR_ERR_NO_MEMORY, "%s: out of memory building the JSON", path);
+    else mr__json_write_file(root, path, &input, 1, &err);
     json_decref(root);
     mr__error_export(&err, msg, msgcap);
     return err.status;

@@ -1,5 +1,5 @@
 /* json_read.c - a fit read back from the JSON json.c writes, by the same
- * tables (json_schema.c): every field that is not derived is required and
+ * tables (json_schema.c): every field that is not derived or optional is required and
  * checked for its type, so a damaged or foreign file is one clear error
  * naming the file and the field (or jansson's line and column when the
  * text is not JSON at all), never a half-filled fit. */
@@ -340,6 +340,9 @@ static mr_status read_value(reader *r, const mr__jfield *fl, json_t *v, void *ba
         if (fl->which == MR__JS_MISSING) return read_missing(r, v, f);
         if (fl->which == MR__JS_COVARIANCE) return read_covariance(r, v, f);
         return read_term_columns(r, v, f, base);
+    case MR__J_OBJECT_OPTIONAL:
+        *(int *)((char *)base + fl->count) = 1;
+        return read_object(r, v, fl->sub, base, index);
     case MR__J_OBJECT_OR_NULL:
         *(int *)((char *)base + fl->count) = !json_is_null(v);
         if (json_is_null(v)) return MR_OK;
@@ -361,7 +364,7 @@ static mr_status read_object(reader *r, json_t *o, const mr__jfield *fields, voi
     for (fl = fields; fl->key != NULL; fl++) {
         size_t back;
         json_t *v = json_object_get(o, fl->key);
-        if (fl->kind == MR__J_DERIVED) continue;
+        if (fl->kind == MR__J_DERIVED || (fl->kind == MR__J_OBJECT_OPTIONAL && v == NULL)) continue;
         back = enter(r, fl->key);
         if (v == NULL) return bad(r, "is missing");
         MR__TRY(read_value(r, fl, v, base, index));

@@ -145,10 +145,22 @@ static const mr__jfield statistics_fields[] = {
     END,
 };
 
+/* The run's audit trail.  Added within format_version 2, so optional:
+ * a fit written before it reads back without it and writes the same
+ * bytes again. */
+static const mr__jfield run_fields[] = {
+    LIST("command_line", MR__J_TEXTS, command_line, ncommand_line),
+    F("started", MR__J_TEXT, started),
+    F("ended", MR__J_TEXT, ended),
+    F("host", MR__J_TEXT, host),
+    END,
+};
+
 const mr__jfield mr__json_fit_fields[] = {
     DERIVED("format", MR__JD_FORMAT),
     DERIVED("format_version", MR__JD_FORMAT_VERSION),
     F("millrace_version", MR__J_TEXT, version),
+    {"run", MR__J_OBJECT_OPTIONAL, 0, AT(run_known), 0, 0, 0, 0, NULL, NULL, run_fields},
     OBJECT("input", input_fields),
     OBJECT("rows", rows_fields),
     OBJECT("model", model_fields),

@@ -36,6 +36,8 @@ expect "unparsable number is a format error" 4 $MILLRACE fit --outcome y --numer
 [ -s "$tmp/f.json" ] && grep -q '"format": "millrace-fit"' "$tmp/f.json" && { pass=$((pass + 1)); echo "ok json written"; } ||
     { fail=$((fail + 1)); echo "FAIL json written"; }
 expect "the saved fit read back" 0 $MILLRACE show "$tmp/f.json"
+expect "run log appended" 0 $MILLRACE fit -m samples/falls.model --quiet --run-log "$tmp/runs.log" --json "$tmp/g.json" samples/falls.csv
+expect "drift of two fits, written as JSON and CSV" 0 $MILLRACE drift --json "$tmp/d.json" --csv "$tmp/d.csv" "$tmp/f.json" "$tmp/g.json"
 # The checksum, recomputed from its documented definition (README, JSON
 # output) by an independent implementation.
 want=$(/usr/bin/python3 -c '
