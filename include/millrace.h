@@ -292,7 +292,7 @@ MR_API size_t mr_fit_term_coefs(const mr_fit *fit, size_t t, size_t *first);
  * of all its level effects being 0, not of their differences.
  * Returns 1 when the term has a test.  Returns 0, with *stat and *p NaN,
  * when it has none: t out of range (*df 0), every coefficient of the term
- * aliased (*df 0), or V numerically singular (*df > 0; a coefficient's
+ * aliased or no coefficient at all (a factor with one level; *df 0), or V numerically singular (*df > 0; a coefficient's
  * variance not positive, or one coefficient nearly a linear combination
  * of the others', as when the dispersion could not be estimated).  Any
  * output pointer may be NULL. */

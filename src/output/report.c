@@ -157,7 +157,8 @@ static void section_term_tests(mr__strbuf *b, const mr_fit *f, int digits)
         const mr__fit_term *t = &f->term[i];
         mr__strbuf_printf(b, "  %-*s %5zu", w, t->label, t->test_df);
         if (t->test_df == 0) {
-            mr__strbuf_printf(b, "   no test: every coefficient of the term is aliased\n");
+            mr__strbuf_printf(b, "   no test: %s\n", t->ncoef ? "every coefficient of the term is aliased"
+                                                           : "the term has no coefficient");
             continue;
         }
         put_number(b, t->test_stat, digits, nw);
