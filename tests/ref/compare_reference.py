@@ -875,6 +875,26 @@ def published_doll_hill(tmp):
 
 # ---------------------------------------------------------------- main
 
+def run_checks(checks):
+    """Runs (name, fn) checks, fn returning a list of problems; prints a line
+    each and the closing count; 0 when all passed, else 1."""
+    passed = failed = 0
+    for name, fn in checks:
+        try:
+            problems = fn()
+        except Exception as exc:  # one broken case must not hide the others
+            problems = ["%s: %s" % (type(exc).__name__, exc)]
+        if problems:
+            failed += 1
+            print("FAIL %s: %s" % (name, "; ".join(problems)))
+        else:
+            passed += 1
+            print("ok %s" % name)
+        sys.stdout.flush()
+    print("%d passed, %d failed" % (passed, failed))
+    return 1 if failed else 0
+
+
 def main():
     if not os.access(MILLRACE, os.X_OK):
         print("FAIL setup: %s not found (run make first)" % MILLRACE)
@@ -882,7 +902,6 @@ def main():
         return 1
     rng = np.random.default_rng(20240517)
     tmp = tempfile.mkdtemp(prefix="millrace-ref-")
-    passed = failed = 0
     try:
         checks = [(c.name, (lambda c=c: check_case(c, tmp))) for c in build_cases(rng)]
         checks += [
@@ -891,22 +910,9 @@ def main():
             ("identity_least_squares", lambda: identity_least_squares(rng, tmp)),
             ("published_doll_hill", lambda: published_doll_hill(tmp)),
         ]
-        for name, fn in checks:
-            try:
-                problems = fn()
-            except Exception as exc:  # one broken case must not hide the others
-                problems = ["%s: %s" % (type(exc).__name__, exc)]
-            if problems:
-                failed += 1
-                print("FAIL %s: %s" % (name, "; ".join(problems)))
-            else:
-                passed += 1
-                print("ok %s" % name)
-            sys.stdout.flush()
+        return run_checks(checks)
     finally:
         shutil.rmtree(tmp, ignore_errors=True)
-    print("%d passed, %d failed" % (passed, failed))
-    return 1 if failed else 0
 
 
 if __name__ == "__main__":

@@ -223,28 +223,13 @@ def main():
         return 1
     rng = np.random.default_rng(20261204)
     tmp = tempfile.mkdtemp(prefix="millrace-terms-")
-    passed = failed = 0
-    checks = [("term_tests_falls", lambda: falls(tmp)),
-              ("term_tests_screening", lambda: screening(tmp)),
-              ("term_tests_gamma_estimated", lambda: gamma_estimated(rng, tmp)),
-              ("term_tests_identity_two_levels", lambda: identity_two_levels(rng, tmp))]
     try:
-        for name, fn in checks:
-            try:
-                problems = fn()
-            except Exception as exc:  # one broken case must not hide the others
-                problems = ["%s: %s" % (type(exc).__name__, exc)]
-            if problems:
-                failed += 1
-                print("FAIL %s: %s" % (name, "; ".join(problems)))
-            else:
-                passed += 1
-                print("ok %s" % name)
-            sys.stdout.flush()
+        return cr.run_checks([("term_tests_falls", lambda: falls(tmp)),
+                              ("term_tests_screening", lambda: screening(tmp)),
+                              ("term_tests_gamma_estimated", lambda: gamma_estimated(rng, tmp)),
+                              ("term_tests_identity_two_levels", lambda: identity_two_levels(rng, tmp))])
     finally:
         shutil.rmtree(tmp, ignore_errors=True)
-    print("%d passed, %d failed" % (passed, failed))
-    return 1 if failed else 0
 
 
 if __name__ == "__main__":
