@@ -291,11 +291,11 @@ MR_API size_t mr_fit_term_coefs(const mr_fit *fit, size_t t, size_t *first);
  * intercept, the first factor has a column per level) a factor's test is
  * of all its level effects being 0, not of their differences.
  * Returns 1 when the term has a test.  Returns 0, with *stat and *p NaN,
- * when it has none: t out of range (*df 0), every coefficient of the term
- * aliased or no coefficient at all (a factor with one level; *df 0), or V numerically singular (*df > 0; a coefficient's
- * variance not positive, or one coefficient nearly a linear combination
- * of the others', as when the dispersion could not be estimated).  Any
- * output pointer may be NULL. */
+ * when it has none: t out of range (*df 0); every coefficient of the term
+ * aliased, or no coefficient at all (a factor with one level; *df 0); or
+ * V not usable (*df > 0): numerically singular (one coefficient nearly a
+ * linear combination of the others), or not finite (the dispersion could
+ * not be estimated: no residual df).  Any output pointer may be NULL. */
 MR_API int mr_fit_term_test(const mr_fit *fit, size_t t, double *stat, double *df, double *p, int *is_f);
 
 typedef enum mr_stat {

@@ -163,7 +163,9 @@ static void section_term_tests(mr__strbuf *b, const mr_fit *f, int digits)
         }
         put_number(b, t->test_stat, digits, nw);
         put_pvalue(b, t->test_p, 9);
-        if (isnan(t->test_stat)) mr__strbuf_printf(b, "   no test: its covariance block is numerically singular");
+        if (isnan(t->test_stat))
+            mr__strbuf_printf(b, "   no test: %s", isnan(f->dispersion) ? "the dispersion could not be estimated"
+                                                                         : "its covariance block is numerically singular");
         else if (t->test_df < t->ncoef)
             mr__strbuf_printf(b, "   %zu aliased coefficient%s left out", t->ncoef - t->test_df,
                               t->ncoef - t->test_df == 1 ? "" : "s");

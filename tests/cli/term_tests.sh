@@ -60,4 +60,18 @@ t = j["model"]["terms"][0]["test"]
 assert t["distribution"] == "F" and t["df_denominator"] == j["fit"]["df_residual"], t
 assert abs(t["statistic"] * t["df"] - t["chi2"]) <= 1e-15 * t["chi2"], t
 ' "$tmp/f.json"
+
+# no residual df: the dispersion cannot be estimated, so there is no test
+printf 'y,g\n1,a\n3,b\n' > "$tmp/df0.csv"
+$bin fit --outcome y --family gamma --factor g --quiet --json "$tmp/df0.json" "$tmp/df0.csv" > "$tmp/df0.out"
+if grep -qE '^  g +1 +- +-   no test: the dispersion could not be estimated$' "$tmp/df0.out" &&
+    /usr/bin/python3 -c '
+import json, sys
+t = json.load(open(sys.argv[1]))["model"]["terms"][0]["test"]
+assert t["df"] == 1 and t["statistic"] is None and t["chi2"] is None and t["p_value"] is None, t
+' "$tmp/df0.json"; then
+    ok no_residual_df
+else
+    fail no_residual_df "$(grep -A3 '^terms' "$tmp/df0.out")"
+fi
 finish
