@@ -288,6 +288,41 @@ MR_API double mr_fit_p_value(const mr_fit *fit, size_t j);
 MR_API double mr_fit_conf_low(const mr_fit *fit, size_t j);
 MR_API double mr_fit_conf_high(const mr_fit *fit, size_t j);
 
+/* Terms: the covariates and interactions of the model, in the order
+ * declared (covariates, then interactions); the intercept is not a term.
+ * mr_fit_term_name gives "age_band" or "age_band & sex" (owned by the fit;
+ * NULL when t >= mr_fit_nterms).  mr_fit_term_coefs gives the number of
+ * the term's coefficient columns and, in *first (may be NULL), the index
+ * of the first: they are first .. first + count - 1, aliased ones
+ * included (0 and 0 when t is out of range). */
+MR_API size_t mr_fit_nterms(const mr_fit *fit);
+MR_API const char *mr_fit_term_name(const mr_fit *fit, size_t t);
+MR_API size_t mr_fit_term_coefs(const mr_fit *fit, size_t t, size_t *first);
+
+/* The joint Wald test of term t: are all its estimated coefficients 0?
+ * With b the term's non-aliased coefficients and V their block of the
+ * covariance (mr_fit_covariance, dispersion included), chi2 = b' V^-1 b,
+ * computed by a Cholesky factorisation of V on the correlation scale
+ * (the same bits on any machine and for a fit read back from its JSON).
+ *   *df    the number of the term's non-aliased coefficients (aliased ones
+ *          are left out: they are not estimated);
+ *   *stat  chi2 when the dispersion is fixed; F = chi2 / df when it is
+ *          estimated (*is_f = 1), to be read against F(df,
+ *          MR_STAT_DF_RESIDUAL);
+ *   *p     the upper tail of that chi-square or F distribution.
+ * Every term has the test, one-coefficient terms too: their statistic is
+ * the square of the coefficient's z or t, and their p-value is the
+ * coefficient's (mr_fit_p_value) up to rounding.  Under full coding (no
+ * intercept, the first factor has a column per level) a factor's test is
+ * of all its level effects being 0, not of their differences.
+ * Returns 1 when the term has a test.  Returns 0, with *stat and *p NaN,
+ * when it has none: t out of range (*df 0); every coefficient of the term
+ * aliased, or no coefficient at all (a factor with one level; *df 0); or
+ * V not usable (*df > 0): numerically singular (one coefficient nearly a
+ * linear combination of the others), or not finite (the dispersion could
+ * not be estimated: no residual df).  Any output pointer may be NULL. */
+MR_API int mr_fit_term_test(const mr_fit *fit, size_t t, double *stat, double *df, double *p, int *is_f);
+
 typedef enum mr_stat {
     MR_STAT_DEVIANCE = 0,
     MR_STAT_NULL_DEVIANCE = 1,

@@ -6,7 +6,9 @@
  * quantiles 1.959963984540054 (0.975) and 1.6448536269514722 (0.95) from
  * scipy.stats.norm.ppf (Debian python3-scipy); the maximum-likelihood
  * intercept of a poisson model with nothing else, log(mean y); and the
- * API contract in millrace.h for the rest. */
+ * API contract in millrace.h for the rest; for the term tests, z^2 and
+ * the coefficient's own p-value, the closed-form inverse of a 2 x 2
+ * covariance and the chi-square(2) tail exp(-w / 2). */
 #define _POSIX_C_SOURCE 200809L
 #include <math.h>
 #include <stdio.h>
@@ -31,7 +33,7 @@ enum { ROWS = 3000 };
 static char data_path[64];
 
 /* y: counts that vary with the row number; g: two groups; x and x2 = 2 x,
- * so that x2 is aliased. */
+ * so that x2 is aliased; h: three groups. */
 static void write_data(void)
 {
     FILE *f;
@@ -39,10 +41,10 @@ static void write_data(void)
     snprintf(data_path, sizeof data_path, "/tmp/check_api_%ld.csv", (long)getpid());
     f = fopen(data_path, "w");
     ck_assert_ptr_nonnull(f);
-    fputs("y,g,x,x2\n", f);
+    fputs("y,g,x,x2,h\n", f);
     for (i = 0; i < ROWS; i++) {
         double x = (double)(i % 10) / 10;
-        fprintf(f, "%ld,%c,%g,%g\n", (i * 7) % 5 + (i % 2), "ab"[i % 2], x, 2 * x);
+        fprintf(f, "%ld,%c,%g,%g,%c\n", (i * 7) % 5 + (i % 2), "ab"[i % 2], x, 2 * x, "uvw"[i * i % 7 % 3]);
     }
     ck_assert_int_eq(fclose(f), 0);
 }
@@ -118,6 +120,73 @@ START_TEST(intercept_alone_is_log_mean)
      * step behind the estimate (as in R's glm): about 1e-7 here */
     ck_assert_msg(close_rel(mr_fit_std_error(fit, 0), 1 / sqrt(sum), 1e-6), "se %.17g, want %.17g", mr_fit_std_error(fit, 0), 1 / sqrt(sum));
     check_wald(fit, 1.959963984540054);
+    mr_fit_free(fit);
+    mr_fitter_free(f);
+}
+END_TEST
+
+/* One term's test through the API against the contract in millrace.h. */
+static void expect_term(const mr_fit *fit, size_t t, const char *name, size_t ncoef, double want_stat,
+                        double want_df, double want_p)
+{
+    double stat = 0, df = -1, p = 0;
+    int is_f = -1, has = mr_fit_term_test(fit, t, &stat, &df, &p, &is_f);
+    size_t first = 99;
+    ck_assert_str_eq(mr_fit_term_name(fit, t), name);
+    ck_assert_uint_eq(mr_fit_term_coefs(fit, t, &first), ncoef);
+    ck_assert_int_eq(is_f, mr_fit_stat(fit, MR_STAT_DISPERSION) != 1.0);
+    ck_assert_msg(df == want_df, "%s: df %g", name, df);
+    ck_assert_int_eq(has, !isnan(want_stat));
+    if (isnan(want_stat)) {
+        ck_assert(isnan(stat) && isnan(p));
+        return;
+    }
+    ck_assert_msg(close_rel(stat, want_stat, 1e-13), "%s: statistic %.17g, want %.17g", name, stat, want_stat);
+    ck_assert_msg(close_rel(p, want_p, 1e-12), "%s: p %.17g, want %.17g", name, p, want_p);
+}
+
+/* Sources of truth: a one-coefficient term's statistic is its z^2 (t^2)
+ * and its p-value the coefficient's; for two coefficients b' V^-1 b with
+ * the closed-form inverse of a 2 x 2 V, and P(chi2_2 > w) = exp(-w / 2);
+ * an aliased term has df 0 and no test (millrace.h). */
+static void check_term_tests(const mr_fit *fit)
+{
+    size_t first = 0, j;
+    double z, b0, b1, v00, v01, v11, w;
+    ck_assert_uint_eq(mr_fit_nterms(fit), 4);
+    ck_assert_uint_eq(mr_fit_term_coefs(fit, 0, &first), 1);
+    z = mr_fit_coef(fit, first) / mr_fit_std_error(fit, first);
+    expect_term(fit, 0, "g", 1, z * z, 1, mr_fit_p_value(fit, first));
+    ck_assert_str_eq(mr_fit_coef_name(fit, first), "g=b");
+    mr_fit_term_coefs(fit, 2, &first);
+    ck_assert(mr_fit_coef_aliased(fit, first));
+    expect_term(fit, 2, "x2", 1, NAN, 0, NAN);
+    mr_fit_term_coefs(fit, 3, &j);
+    ck_assert_str_eq(mr_fit_coef_name(fit, j), "h=v");
+    b0 = mr_fit_coef(fit, j), b1 = mr_fit_coef(fit, j + 1);
+    v00 = mr_fit_covariance(fit, j, j), v01 = mr_fit_covariance(fit, j, j + 1), v11 = mr_fit_covariance(fit, j + 1, j + 1);
+    w = (b0 * b0 * v11 - 2 * b0 * b1 * v01 + b1 * b1 * v00) / (v00 * v11 - v01 * v01);
+    if (mr_fit_stat(fit, MR_STAT_DISPERSION) == 1.0) expect_term(fit, 3, "h", 2, w, 2, exp(-w / 2));
+    else ck_assert(mr_fit_term_test(fit, 3, &z, NULL, NULL, NULL) && close_rel(z, w / 2, 1e-13));
+    /* out of range */
+    ck_assert_ptr_null(mr_fit_term_name(fit, 4));
+    ck_assert_uint_eq(mr_fit_term_coefs(fit, 4, &first), 0);
+    ck_assert_uint_eq(first, 0);
+    ck_assert_int_eq(mr_fit_term_test(fit, 4, &z, &w, NULL, NULL), 0);
+    ck_assert(isnan(z) && w == 0);
+}
+
+START_TEST(term_tests)
+{
+    static const char *const terms[] = {"factor g", "numeric x", "numeric x2", "factor h", NULL};
+    mr_fitter *f = poisson_fitter(terms);
+    mr_fit *fit = NULL;
+    ck_assert_int_eq(mr_fitter_run(f, data_path, &fit), MR_OK);
+    check_term_tests(fit);
+    mr_fit_free(fit);
+    ck_assert_int_eq(mr_fitter_model_line(f, "dispersion estimate", "test"), MR_OK);
+    ck_assert_int_eq(mr_fitter_run(f, data_path, &fit), MR_OK);
+    check_term_tests(fit);
     mr_fit_free(fit);
     mr_fitter_free(f);
 }
@@ -205,6 +274,7 @@ static Suite *api_suite(void)
     tcase_add_unchecked_fixture(t, write_data, remove_data);
     tcase_add_test(t, p_values_and_intervals);
     tcase_add_test(t, intercept_alone_is_log_mean);
+    tcase_add_test(t, term_tests);
     tcase_add_test(t, progress_callback_stops_the_run);
     tcase_add_test(t, blas_threads_set_back);
     suite_add_tcase(s, t);

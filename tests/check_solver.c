@@ -1,4 +1,5 @@
-/* check_solver.c - tests of src/solve/normal_eq.c (mr__solve_normal).
+/* check_solver.c - tests of src/solve/normal_eq.c (mr__solve_normal,
+ * mr__inverse_quadratic_form).
  *
  * Sources of truth, named beside each check:
  *   - a direct solution computed here, independently of the library and of
@@ -459,6 +460,74 @@ START_TEST(test_all_aliased)
 }
 END_TEST
 
+/* ------------------------------------------------------------------ */
+/* x' S^-1 x (mr__inverse_quadratic_form)                               */
+
+/* Source of truth: x' (S^-1 x) with S^-1 x by gauss_solve in long double. */
+static double direct_quadratic_form(const double *S, const double *x, size_t k)
+{
+    long double *y = xcalloc(k, sizeof *y), q = 0;
+    size_t i;
+    gauss_solve(k, S, x, y);
+    for (i = 0; i < k; i++) q += (long double)x[i] * y[i];
+    free(y);
+    return (double)q;
+}
+
+START_TEST(test_quadratic_form_matches_direct)
+{
+    /* Columns of very different scales (a raw calendar year beside a 0/1
+     * level): S = D G D with D spanning 1e-4 .. 1e4, which the
+     * correlation scaling must absorb. */
+    static const size_t sizes[] = {1, 2, 3, 7, 20};
+    rng r = {77};
+    size_t t, i, j;
+    for (t = 0; t < sizeof sizes / sizeof *sizes; t++) {
+        system_ s;
+        double *S, q = 0, want, scale[20];
+        size_t k = sizes[t];
+        system_alloc(&s, k);
+        random_spd(&r, &s);
+        S = xcalloc(k * k, sizeof *S);
+        for (i = 0; i < k; i++) scale[i] = pow(10.0, -4.0 + 8.0 * (double)i / (double)(k > 1 ? k - 1 : 1));
+        for (j = 0; j < k; j++)
+            for (i = 0; i < k; i++) S[j * k + i] = s.G[j * k + i] * scale[i] * scale[j];
+        for (i = 0; i < k; i++) s.v[i] *= scale[i];
+        ck_assert_int_eq(mr__inverse_quadratic_form(S, s.v, k, &q, NULL), MR_OK);
+        want = direct_quadratic_form(S, s.v, k);
+        ck_assert_msg(fabs(q - want) <= 1e-13 * want, "k=%zu: %.17g vs %.17g", k, q, want);
+        free(S);
+        system_free(&s);
+    }
+}
+END_TEST
+
+START_TEST(test_quadratic_form_one_by_one)
+{
+    /* Source of truth: x^2 / s for a 1 x 1 block (the square of a z). */
+    double S = 0.0625, x = -3, q = 0;
+    ck_assert_int_eq(mr__inverse_quadratic_form(&S, &x, 1, &q, NULL), MR_OK);
+    ck_assert(q == 144.0);
+}
+END_TEST
+
+START_TEST(test_quadratic_form_singular)
+{
+    /* Contract (normal_eq.h): a block that is not positive definite, or a
+     * variance not positive or not finite, gives NaN and MR_ERR_NUMERIC. */
+    double dup[4] = {2, 2, 2, 2}, zero_var[4] = {1, 0, 0, 0}, nan_var[4] = {NAN, 0, 0, 1}, x[2] = {1, 1}, q = 0;
+    mr__error err;
+    err.status = MR_OK;
+    ck_assert_int_eq(mr__inverse_quadratic_form(dup, x, 2, &q, &err), MR_ERR_NUMERIC);
+    ck_assert(isnan(q));
+    ck_assert_int_eq(err.status, MR_ERR_NUMERIC);
+    ck_assert_int_eq(mr__inverse_quadratic_form(zero_var, x, 2, &q, NULL), MR_ERR_NUMERIC);
+    ck_assert(isnan(q));
+    ck_assert_int_eq(mr__inverse_quadratic_form(nan_var, x, 2, &q, NULL), MR_ERR_NUMERIC);
+    ck_assert(isnan(q));
+}
+END_TEST
+
 static Suite *solver_suite(void)
 {
     Suite *s = suite_create("solver");
@@ -474,6 +543,11 @@ static Suite *solver_suite(void)
     tcase_add_test(alias, test_tiny_residual_aliased);
     tcase_add_test(alias, test_all_aliased);
     suite_add_tcase(s, alias);
+    TCase *quad = tcase_create("quadratic form");
+    tcase_add_test(quad, test_quadratic_form_matches_direct);
+    tcase_add_test(quad, test_quadratic_form_one_by_one);
+    tcase_add_test(quad, test_quadratic_form_singular);
+    suite_add_tcase(s, quad);
     return s;
 }
 

@@ -1,6 +1,7 @@
 /* probability.h - the few distribution functions a coefficient table needs:
  * normal and Student t tail areas and quantiles (Wald tests and intervals),
- * and the chi-square upper tail (deviance goodness of fit). */
+ * and the chi-square and F upper tails (deviance goodness of fit, joint
+ * Wald tests). */
 #ifndef MR_PROBABILITY_H
 #define MR_PROBABILITY_H
 
@@ -10,6 +11,9 @@ double mr__normal_quantile(double p);       /* inverse cdf, 0<p<1; NaN outside *
 double mr__t_sf(double t, double df);       /* P(T > t), df > 0 (may be non-integer) */
 double mr__t_quantile(double p, double df); /* inverse cdf of T, 0<p<1 */
 double mr__chisq_sf(double x, double df);   /* P(X > x) */
+/* P(F > f) for Snedecor's F with df1 and df2 degrees of freedom (joint Wald
+ * tests with an estimated dispersion); df1 = 1 gives 2 P(T > sqrt f). */
+double mr__f_sf(double f, double df1, double df2);
 
 /* log |Gamma(x)|, thread safe: the one log-gamma of the library (each
  * family's data-only log-likelihood, the gamma fit's, the t and beta

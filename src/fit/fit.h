@@ -25,6 +25,14 @@ typedef struct mr__fit_term {
     size_t nparts;
     int full;
     size_t first, ncoef;
+    /* The joint Wald test of the term's estimated coefficients
+     * (term_test.c): never read from the JSON but recomputed, so always
+     * that of the coefficients and covariance at hand.  test_df is the
+     * number of them (0: none, no test); chi2 = b' V^-1 b; stat is chi2,
+     * or chi2 / test_df (F) when the dispersion is estimated; chi2, stat
+     * and p are NaN without a test or when V is numerically singular. */
+    size_t test_df;
+    double test_chi2, test_stat, test_p;
 } mr__fit_term;
 
 struct mr_fit {
@@ -89,6 +97,10 @@ long mr__fit_find_factor(const mr_fit *fit, const char *name);
 
 /* Adds a warning (copied); silently drops it when out of memory. */
 void mr__fit_warn(mr_fit *fit, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
+
+/* Each term's joint Wald test from the fit's coefficients, covariance and
+ * residual df (term_test.c).  MR_OK or MR_ERR_NO_MEMORY. */
+mr_status mr__fit_term_tests(mr_fit *fit);
 
 /* "rate ratio", "odds ratio", ... for links where exp(estimate) is a
  * ratio; NULL otherwise. */

@@ -51,6 +51,22 @@ static const char *term_kind(const mr_fit *f, const mr__fit_term *t)
     return mr__fit_find_factor(f, t->part[0]) >= 0 ? "factor" : "numeric";
 }
 
+/* The term's joint Wald test; null when it has no estimated coefficient.
+ * The keys are the same for chi-square and F tests, so that a reader needs
+ * no case of its own: df_denominator is null for chi-square. */
+static json_t *term_test(const mr_fit *f, const mr__fit_term *t)
+{
+    json_t *o;
+    if (t->test_df == 0) return json_null();
+    o = json_object();
+    o = put(o, "distribution", json_string(f->dispersion_estimated ? "F" : "chi-square"));
+    o = put(o, "df", json_integer((json_int_t)t->test_df));
+    o = put(o, "df_denominator", f->dispersion_estimated ? num(f->df_residual) : json_null());
+    o = put(o, "statistic", num(t->test_stat));
+    o = put(o, "chi2", num(t->test_chi2));
+    return put(o, "p_value", num(t->test_p));
+}
+
 /* A derived field, or NULL with *skip set when it is not written. */
 static json_t *derived(const mr_fit *f, int which, const void *base, size_t j, int *skip)
 {
@@ -64,6 +80,7 @@ static json_t *derived(const mr_fit *f, int which, const void *base, size_t j, i
     case MR__JD_RATIO_LABEL: return ratio ? json_string(ratio) : json_null();
     case MR__JD_MODIFIED: return utc_time(f->file_mtime_ns);
     case MR__JD_TERM_KIND: return json_string(term_kind(f, base));
+    case MR__JD_TERM_TEST: return term_test(f, base);
     }
     *skip = ratio == NULL;
     if (*skip) return NULL;

@@ -434,6 +434,8 @@ mr_status mr_fit_read_json(const char *path, mr_fit **out, char *msg, size_t msg
     else st = check_format(&r, root);
     if (st == MR_OK) st = read_object(&r, root, mr__json_fit_fields, r.fit, 0);
     if (st == MR_OK) st = check_consistent(&r);
+    /* the term tests are written, never read: the same code gives the same bits from the same numbers */
+    if (st == MR_OK && mr__fit_term_tests(r.fit) != MR_OK) st = no_memory(&r);
     json_decref(root);
     if (st != MR_OK) {
         mr_fit_free(r.fit);

@@ -59,6 +59,7 @@ static const mr__jfield term_fields[] = {
     {"first_coefficient", MR__J_SIZE, offsetof(mr__fit_term, first), 0, 0, 0, 0, 0, NULL, NULL, NULL},
     {"coefficients", MR__J_SIZE, offsetof(mr__fit_term, ncoef), 0, 0, 0, 0, 0, NULL, NULL, NULL},
     SPECIAL("columns", MR__JS_TERM_COLUMNS),
+    DERIVED("test", MR__JD_TERM_TEST),
     END,
 };
 

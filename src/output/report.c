@@ -134,6 +134,45 @@ static void section_coefficients(mr__strbuf *b, const mr_fit *f, int digits)
     }
 }
 
+static size_t term_width(const mr_fit *f)
+{
+    size_t i, w = 4;
+    for (i = 0; i < f->nterms; i++)
+        if (strlen(f->term[i].label) > w) w = strlen(f->term[i].label);
+    return w > 48 ? 48 : w;
+}
+
+/* One line per term: does the term matter as a whole? */
+static void section_term_tests(mr__strbuf *b, const mr_fit *f, int digits)
+{
+    int w = (int)term_width(f), nw = digits + 7;
+    size_t i;
+    if (f->nterms == 0) return;
+    if (f->dispersion_estimated)
+        mr__strbuf_printf(b, "\nterms: joint Wald F = chi-square / df, against F(df, %.0f)\n", f->df_residual);
+    else
+        mr__strbuf_printf(b, "\nterms: joint Wald chi-square, against chi-square(df)\n");
+    mr__strbuf_printf(b, "  %-*s %5s %*s %9s\n", w, "term", "df", nw, f->dispersion_estimated ? "F" : "chi-square", "p");
+    for (i = 0; i < f->nterms; i++) {
+        const mr__fit_term *t = &f->term[i];
+        mr__strbuf_printf(b, "  %-*s %5zu", w, t->label, t->test_df);
+        if (t->test_df == 0) {
+            mr__strbuf_printf(b, "   no test: %s\n", t->ncoef ? "every coefficient of the term is aliased"
+                                                           : "the term has no coefficient");
+            continue;
+        }
+        put_number(b, t->test_stat, digits, nw);
+        put_pvalue(b, t->test_p, 9);
+        if (isnan(t->test_stat))
+            mr__strbuf_printf(b, "   no test: %s", isnan(f->dispersion) ? "the dispersion could not be estimated"
+                                                                         : "its covariance block is numerically singular");
+        else if (t->test_df < t->ncoef)
+            mr__strbuf_printf(b, "   %zu aliased coefficient%s left out", t->ncoef - t->test_df,
+                              t->ncoef - t->test_df == 1 ? "" : "s");
+        mr__strbuf_printf(b, "\n");
+    }
+}
+
 static void section_statistics(mr__strbuf *b, const mr_fit *f, int digits)
 {
     mr__strbuf_printf(b, "\nstatistics\n");
@@ -159,6 +198,7 @@ char *mr_fit_report(const mr_fit *f, int digits)
     section_model(&b, f);
     section_convergence(&b, f);
     section_coefficients(&b, f, digits);
+    section_term_tests(&b, f, digits);
     section_statistics(&b, f, digits);
     if (f->nwarnings) mr__strbuf_printf(&b, "\nwarnings\n");
     for (i = 0; i < f->nwarnings; i++) mr__strbuf_printf(&b, "  ! %s\n", f->warning[i]);

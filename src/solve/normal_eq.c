@@ -152,3 +152,45 @@ done:
     mr__free(keep);
     return st;
 }
+
+/* On the correlation scale the block's entries are all of one size
+ * whatever the columns' units (a raw calendar year beside a 0/1 level),
+ * so the factorisation loses no digits to scale; x' S^-1 x is unchanged by
+ * it.  The Cholesky is find_aliased's, plain C in a fixed order: the same
+ * bits on any machine, from any thread, with any BLAS (a fit read back
+ * from its JSON recomputes this and must write the same bytes). */
+mr_status mr__inverse_quadratic_form(const double *S, const double *x, size_t k, double *out, mr__error *err)
+{
+    double *R = mr__malloc_array(k * k + 1, sizeof *R), *L = mr__malloc_array(k * k + 1, sizeof *L);
+    double *z = mr__malloc_array(k + 1, sizeof *z), sum = 0;
+    int *singular = mr__malloc_array(k + 1, sizeof *singular);
+    size_t i, j;
+    mr_status st = MR_OK;
+    *out = NAN;
+    if (!R || !L || !z || !singular) {
+        st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        goto done;
+    }
+    for (i = 0; i < k; i++) {
+        double d = sqrt(S[i * k + i]);
+        z[i] = x[i] / d;
+        for (j = 0; j < k; j++) R[j * k + i] = S[j * k + i] / (d * sqrt(S[j * k + j]));
+        if (!(d > 0) || !isfinite(z[i])) st = MR_ERR_NUMERIC;
+    }
+    if (st != MR_OK || find_aliased(R, k, singular, L) < k) {
+        st = mr__fail(err, MR_ERR_NUMERIC, "the covariance block is not positive definite");
+        goto done;
+    }
+    /* L y = z by rows of L; then the quadratic form is |y|^2 */
+    for (i = 0; i < k; i++) {
+        z[i] = minus_dot(z[i], L + i * k, z, i) / L[i * k + i];
+        sum += z[i] * z[i];
+    }
+    *out = sum;
+done:
+    mr__free(R);
+    mr__free(L);
+    mr__free(z);
+    mr__free(singular);
+    return st;
+}

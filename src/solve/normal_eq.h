@@ -29,4 +29,12 @@
 mr_status mr__solve_normal(const double *G, const double *v, size_t p, double *beta, int *aliased, size_t *rank,
                            double *inv, mr__error *err);
 
+/* x' S^-1 x for a k x k covariance S (full, column-major) and x (k): the
+ * joint Wald statistic of the coefficients x.  Computed on the correlation
+ * scale with the Cholesky above; *out is NaN and the status MR_ERR_NUMERIC
+ * when S is not positive definite at MR__ALIAS_TOLERANCE (a non-positive variance,
+ * or a coefficient explained by the others to that tolerance), or an
+ * entry is not finite.  MR_ERR_NO_MEMORY when out of memory. */
+mr_status mr__inverse_quadratic_form(const double *S, const double *x, size_t k, double *out, mr__error *err);
+
 #endif

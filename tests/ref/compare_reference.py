@@ -876,8 +876,8 @@ def published_doll_hill(tmp):
 # ---------------------------------------------------------------- main
 
 def run_checks(checks):
-    """Runs (name, function returning a list of problems) pairs, printing
-    ok/FAIL lines; returns (passed, failed)."""
+    """Runs (name, fn) checks, fn returning a list of problems; prints a line
+    each and the closing count; 0 when all passed, else 1."""
     passed = failed = 0
     for name, fn in checks:
         try:
@@ -891,7 +891,8 @@ def run_checks(checks):
             passed += 1
             print("ok %s" % name)
         sys.stdout.flush()
-    return passed, failed
+    print("%d passed, %d failed" % (passed, failed))
+    return 1 if failed else 0
 
 
 def main():
@@ -901,7 +902,6 @@ def main():
         return 1
     rng = np.random.default_rng(20240517)
     tmp = tempfile.mkdtemp(prefix="millrace-ref-")
-    passed = failed = 0
     try:
         checks = [(c.name, (lambda c=c: check_case(c, tmp))) for c in build_cases(rng)]
         checks += [
@@ -910,11 +910,9 @@ def main():
             ("identity_least_squares", lambda: identity_least_squares(rng, tmp)),
             ("published_doll_hill", lambda: published_doll_hill(tmp)),
         ]
-        passed, failed = run_checks(checks)
+        return run_checks(checks)
     finally:
         shutil.rmtree(tmp, ignore_errors=True)
-    print("%d passed, %d failed" % (passed, failed))
-    return 1 if failed else 0
 
 
 if __name__ == "__main__":
