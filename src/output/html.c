@@ -31,7 +31,8 @@ static const char style[] =
     "svg text{font-size:12px;fill:#111}svg text.heading{font-weight:bold}svg text.axis{font-size:13px}\n"
     "figcaption{font-size:.9rem;max-width:48rem}.legend{font-size:.9rem}.key{font-size:1.1rem}\n"
     ".k0,.k2{color:#0072B2}.k1{color:#D55E00}.k3{color:#000}nav ul{columns:2}\n"
-    "@media print{body{max-width:none;font-size:11pt}h2{break-before:page}h2:first-of-type{break-before:auto}"
+    ".caution h2{margin-top:.5rem}\n"
+    "@media print{body{max-width:none;font-size:10pt}section[id^=fit-],#comparison{break-before:page}"
     "nav{display:none}}\n";
 
 /* ---- settings --------------------------------------------------------- */
