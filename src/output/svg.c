@@ -233,7 +233,9 @@ static void put_legend(mr__strbuf *b, const mr__svg_chart *c)
     static const char *const symbol[] = {"&#9679;", "&#9632;", "&#9675;", "&#9671;", "", ""};
     int k, any = 0;
     for (k = 0; k < MR__MARK_HEADING; k++) {
-        if (c->legend[k] == NULL) continue;
+        size_t i;
+        for (i = 0; i < c->nrows && (int)c->row[i].mark != k; i++) continue;
+        if (c->legend[k] == NULL || i == c->nrows) continue; /* only the marks drawn */
         mr__strbuf_printf(b, "%s<span class=\"key k%d\">%s</span> ", any ? "; " : "<p class=\"legend\">", k, symbol[k]);
         mr__html_text(b, c->legend[k]);
         any = 1;

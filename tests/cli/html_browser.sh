@@ -56,8 +56,12 @@ check "every plot of the page is in the browser's DOM ($plots)" test "$plots" -g
 run_browser pdf --print-to-pdf="$tmp/page.pdf" --no-pdf-header-footer
 check "printed to PDF" test "$(head -c 5 "$tmp/page.pdf" 2>/dev/null)" = "%PDF-" -a "$(stat -c %s "$tmp/page.pdf" 2>/dev/null || echo 0)" -gt 20000
 
+# Console lines of the page itself (Chromium's own chrome:// pages, such as the
+# print preview, log messages of their own), and anything refused or failed
+# that names the page.
 cat "$tmp"/shot.err "$tmp"/dom.err "$tmp"/pdf.err >"$tmp/console"
-if grep -E 'CONSOLE|Uncaught|Refused to|net::ERR' "$tmp/console" >"$tmp/console.bad"; then
+if { grep 'CONSOLE' "$tmp/console" | grep -v 'source: chrome://'; grep -E 'Uncaught|Refused to|net::ERR' "$tmp/console" |
+    grep -F "$tmp/page.html"; } >"$tmp/console.bad"; then
     fail "console" "$(head -3 "$tmp/console.bad")"
 else
     ok "no console errors, nothing refused, no network request failed"
