@@ -33,6 +33,7 @@ static const char style[] =
     ".k0,.k2{color:#0072B2}.k1{color:#D55E00}.k3{color:#000}nav ul{columns:2}\n"
     ".caution h2{margin-top:.5rem}\n"
     "@media print{body{max-width:none;font-size:10pt}section[id^=fit-],#comparison{break-before:page}"
+    "h3{break-after:avoid}"
     "nav{display:none}}\n";
 
 /* ---- settings --------------------------------------------------------- */
