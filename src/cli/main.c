@@ -429,7 +429,9 @@ static int report_page(int argc, char **argv)
     while (rc == 0 && (opt = getopt_long(argc, argv, "", report_options, NULL)) != -1) {
         if (opt == OPT_HTML) html = optarg;
         else if (opt == OPT_AT || opt == OPT_REPORT_DIGITS)
-            rc = add_setting(&settings, &n, opt == OPT_AT ? "at " : "digits ", optarg) ? fail(MR_ERR_NO_MEMORY, "out of memory") : 0;
+            rc = add_setting(&settings, &n, opt == OPT_AT ? "at " : "digits ", optarg) == 0
+                     ? 0
+                     : fail(MR_ERR_NO_MEMORY, "out of memory");
         else rc = usage_error("bad option");
     }
     if (rc == 0 && html == NULL) rc = usage_error("report needs --html PATH");

@@ -24,7 +24,8 @@ static const char style[] =
     "h3{font-size:1.1rem;margin-top:1.8rem}\n"
     "table{border-collapse:collapse;margin:.5rem 0;font-size:.9rem}"
     "th,td{padding:.15rem .5rem;border-bottom:1px solid #ccc;text-align:left;vertical-align:top}\n"
-    "table.num td{text-align:right;font-variant-numeric:tabular-nums;white-space:nowrap}table.num td:first-child{text-align:left}\n"
+    "table.num td{text-align:right;font-variant-numeric:tabular-nums;white-space:nowrap}"
+    "table.num td:first-child{text-align:left}\n"
     "th.group{background:#eee}pre{background:#f4f4f4;padding:.5rem;overflow-x:auto;white-space:pre-wrap}\n"
     ".caution{border:2px solid #111;padding:.2rem 1rem;margin:1rem 0}.note{color:#444;font-style:italic}\n"
     ".warn{font-weight:bold}figure{margin:1.2rem 0;break-inside:avoid}svg{max-width:100%;height:auto}\n"
@@ -75,7 +76,8 @@ static mr_status read_settings(mr__html_page *pg, const char *const *settings, s
         char *end;
         if (strncmp(s, "digits ", 7) == 0) {
             long d = strtol(s + 7, &end, 10);
-            if (*end != '\0' || d < 1 || d > 17) return mr__fail(err, MR_ERR_USAGE, "digits takes 1 to 17, got '%s'", s + 7);
+            if (*end != '\0' || d < 1 || d > 17)
+                return mr__fail(err, MR_ERR_USAGE, "digits takes 1 to 17, got '%s'", s + 7);
             pg->digits = (int)d;
         } else if (strncmp(s, "at ", 3) == 0) {
             MR__TRY(add_at(pg, s + 3, err));
@@ -192,7 +194,8 @@ static void summary_convergence(mr__strbuf *b, const mr_fit *f)
                          "%.3g (tolerance %.3g).</p>\n",
                       f->converged ? "" : " class=\"warn\"", f->converged ? "Converged" : "NOT CONVERGED: do not use",
                       f->iterations, f->passes, f->passes == 1 ? "" : "es",
-                      f->by_decrement ? "relative deviance change the last step predicts" : "last relative deviance change",
+                      f->by_decrement ? "relative deviance change the last step predicts"
+                                      : "last relative deviance change",
                       f->rel_change, f->tolerance);
     for (i = 0; i < f->nwarnings; i++) {
         put(b, i ? "\n<li>" : "<p class=\"warn\">Warnings:</p>\n<ul><li>");

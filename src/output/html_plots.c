@@ -25,6 +25,14 @@ static mr__svg_row *new_rows(mr__strbuf *b, size_t n)
     return r;
 }
 
+/* A row on the ratio scale: exp() of the estimate and its bounds. */
+static void to_ratio(mr__svg_row *r)
+{
+    r->est = exp(r->est);
+    r->lo = exp(r->lo);
+    r->hi = exp(r->hi);
+}
+
 static void set_row(mr__svg_row *r, const char *label, double est, double lo, double hi, mr__svg_mark mark)
 {
     r->label = label;
@@ -79,7 +87,8 @@ static size_t forest_rows(const mr_fit *f, mr__svg_row *row, const char *ratio)
             j++, n++;
         }
         for (; fi < 0 && j < term->first + term->ncoef; j++, n++)
-            set_row(&row[n], f->name[j], f->beta[j], f->lo[j], f->hi[j], f->aliased[j] ? MR__MARK_NONE : MR__MARK_ESTIMATE);
+            set_row(&row[n], f->name[j], f->beta[j], f->lo[j], f->hi[j],
+                    f->aliased[j] ? MR__MARK_NONE : MR__MARK_ESTIMATE);
     }
     return n;
 }
@@ -99,7 +108,7 @@ void mr__html_forest(mr__strbuf *b, const mr__html_page *pg, size_t k)
     c.row = row;
     c.nrows = forest_rows(f, row, ratio);
     for (i = 0; ratio && i < c.nrows; i++)
-        if (row[i].mark == MR__MARK_ESTIMATE) row[i].est = exp(row[i].est), row[i].lo = exp(row[i].lo), row[i].hi = exp(row[i].hi);
+        if (row[i].mark == MR__MARK_ESTIMATE) to_ratio(&row[i]);
     texts_init(&title, &desc, &axis);
     mr__strbuf_printf(&title, "Forest plot: %s by term", ratio ? ratio : "coefficient");
     mr__strbuf_printf(&desc, "Each %s with its %g%% Wald interval, grouped by term; a factor's reference level is "
@@ -343,7 +352,8 @@ static size_t change_rows(const mr_fit *first, const mr_fit *later, int ratio, m
     for (j = later->intercept ? 1 : 0; j < later->p; j++) {
         long i = coef_index(first, later->name[j]);
         double d, se;
-        if (t < later->nterms && later->term[t].first == j) set_row(&row[n++], later->term[t++].label, NAN, NAN, NAN, MR__MARK_HEADING);
+        if (t < later->nterms && later->term[t].first == j)
+            set_row(&row[n++], later->term[t++].label, NAN, NAN, NAN, MR__MARK_HEADING);
         if (i < 0) {
             ++*unmatched;
             continue;
@@ -356,7 +366,7 @@ static size_t change_rows(const mr_fit *first, const mr_fit *later, int ratio, m
         se = sqrt(first->se[i] * first->se[i] + later->se[j] * later->se[j]);
         set_row(&row[n], later->name[j], d, d - q * se, d + q * se,
                 d - q * se > 0 || d + q * se < 0 ? MR__MARK_FLAGGED : MR__MARK_PLAIN);
-        if (ratio) row[n].est = exp(row[n].est), row[n].lo = exp(row[n].lo), row[n].hi = exp(row[n].hi);
+        if (ratio) to_ratio(&row[n]);
         n++;
     }
     return n;
@@ -378,7 +388,8 @@ static void change_plot(mr__strbuf *b, const mr__html_page *pg, size_t k, mr__sv
     mr__strbuf_printf(&desc, "Each coefficient of fit %zu %s fit 1's, with a %g%% interval that treats the two fits "
                              "as independent samples (standard error sqrt(se1^2 + se2^2)). Fits of overlapping data "
                              "are not independent and the interval is then too wide: a flagged change is a signal, "
-                             "an unflagged one no proof of stability. The intercept is left out: its change depends on where the numeric covariates are 0.",
+                             "an unflagged one no proof of stability. The intercept is left out: its change depends on "
+                             "where the numeric covariates are 0.",
                       k + 1, ratio ? "as a ratio to" : "minus", 100 * later->level);
     if (unmatched) mr__strbuf_printf(&desc, " %zu coefficients of fit %zu are not in fit 1.", unmatched, k + 1);
     mr__strbuf_printf(&axis, ratio ? "ratio of exp(coefficient), fit %zu / fit 1" : "coefficient, fit %zu minus fit 1",

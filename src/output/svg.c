@@ -191,15 +191,21 @@ static void put_rows(mr__strbuf *b, const mr__svg_chart *c, const axis *a)
     }
 }
 
+static void put_line(mr__strbuf *b, double x1, double y1, double x2, double y2, const char *colour)
+{
+    mr__strbuf_printf(b, "<line x1=\"%.1f\" y1=\"%.1f\" x2=\"%.1f\" y2=\"%.1f\" stroke=\"%s\"/>\n", x1, y1, x2, y2,
+                      colour);
+}
+
 static void put_axis(mr__strbuf *b, const mr__svg_chart *c, const axis *a, double y)
 {
     double t[16];
     size_t i, n = ticks(a, t);
-    mr__strbuf_printf(b, "<line x1=\"%.1f\" y1=\"%.1f\" x2=\"%.1f\" y2=\"%.1f\" stroke=\"#000\"/>\n", a->x0, y, a->x1, y);
+    put_line(b, a->x0, y, a->x1, y, "#000");
     for (i = 0; i < n; i++) {
         double x = x_of(a, t[i]);
-        mr__strbuf_printf(b, "<line x1=\"%.1f\" y1=\"%.1f\" x2=\"%.1f\" y2=\"%.1f\" stroke=\"#ccc\"/>\n", x, TOP, x, y);
-        mr__strbuf_printf(b, "<line x1=\"%.1f\" y1=\"%.1f\" x2=\"%.1f\" y2=\"%.1f\" stroke=\"#000\"/>\n", x, y, x, y + 4);
+        put_line(b, x, TOP, x, y, "#ccc");
+        put_line(b, x, y, x, y + 4, "#000");
         mr__strbuf_printf(b, "<text x=\"%.1f\" y=\"%.1f\" text-anchor=\"middle\">", x, y + 16);
         mr__html_number(b, t[i], 3);
         mr__strbuf_printf(b, "</text>\n");
