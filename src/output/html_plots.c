@@ -67,6 +67,12 @@ static void texts_init(mr__strbuf *t, mr__strbuf *d, mr__strbuf *a)
 
 /* ---- forest plot ---------------------------------------------------- */
 
+/* Coefficient j with its interval, on the coefficient's scale. */
+static void coef_row(mr__svg_row *r, const char *label, const mr_fit *f, size_t j)
+{
+    set_row(r, label, f->beta[j], f->lo[j], f->hi[j], f->aliased[j] ? MR__MARK_NONE : MR__MARK_ESTIMATE);
+}
+
 static size_t forest_rows(const mr_fit *f, mr__svg_row *row, const char *ratio)
 {
     size_t t, n = 0;
@@ -83,12 +89,9 @@ static size_t forest_rows(const mr_fit *f, mr__svg_row *row, const char *ratio)
                 continue;
             }
             if (j >= term->first + term->ncoef) break;
-            set_row(&row[n], level, f->beta[j], f->lo[j], f->hi[j], f->aliased[j] ? MR__MARK_NONE : MR__MARK_ESTIMATE);
-            j++, n++;
+            coef_row(&row[n++], level, f, j++);
         }
-        for (; fi < 0 && j < term->first + term->ncoef; j++, n++)
-            set_row(&row[n], f->name[j], f->beta[j], f->lo[j], f->hi[j],
-                    f->aliased[j] ? MR__MARK_NONE : MR__MARK_ESTIMATE);
+        for (; fi < 0 && j < term->first + term->ncoef; j++) coef_row(&row[n++], f->name[j], f, j);
     }
     return n;
 }
@@ -115,7 +118,8 @@ void mr__html_forest(mr__strbuf *b, const mr__html_page *pg, size_t k)
                              "marked at %s. Numeric covariates: per unit increase. The intercept is in the table, "
                              "not here.",
                       ratio ? ratio : "coefficient", 100 * f->level, ratio ? "ratio 1" : "0");
-    mr__strbuf_printf(&axis, "%s = %s", ratio ? ratio : "coefficient", ratio ? "exp(coefficient)" : "link scale");
+    if (ratio) mr__strbuf_printf(&axis, "%s = exp(coefficient)", ratio);
+    else mr__strbuf_printf(&axis, "coefficient (link scale)");
     snprintf(id, sizeof id, "forest-%zu", k + 1);
     c.id = id;
     c.log_axis = ratio != NULL;
