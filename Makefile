@@ -52,9 +52,10 @@ DEBIAN_PACKAGES := build-essential pkg-config libzstd-dev libopenblas-dev libope
                    libjansson-dev
 # What only the tests add (make test-deps, make check): oracles, checkers,
 # tools; groff-base renders the man page, gfortran gives the -lgfortran that
-# openblas.pc names for a static link (tests/cli/install.sh).
+# openblas.pc names for a static link (tests/cli/install.sh), chromium shows
+# the HTML page in a browser (tests/cli/html_browser.sh).
 TEST_PACKAGES := zstd check libsubunit-dev python3 python3-numpy python3-scipy \
-                 python3-statsmodels r-base-core valgrind time groff-base gfortran
+                 python3-statsmodels r-base-core valgrind time groff-base gfortran chromium
 
 ifeq ($(V),1)
 Q :=

@@ -379,10 +379,45 @@ MR_API mr_status mr_fit_write_json(const mr_fit *fit, const char *path, char *ms
  * 'model.terms[2].label'); MR_ERR_NO_MEMORY. */
 MR_API mr_status mr_fit_read_json(const char *path, mr_fit **out, char *msg, size_t msgcap);
 
+/* Writes one or more fits as one HTML page to `path`, by the rules of
+ * "Output files" below: a page that stands alone (styles inline, plots as
+ * inline SVG, no script, no reference to any other file or address),
+ * readable on a screen and printable.  For each fit: the data read (rows
+ * read, used, left out and why), the model's lines, convergence and
+ * warnings, the coefficient table (with rate or odds ratios under a log or
+ * logit link), the fit statistics, a forest plot of the ratios (or
+ * coefficients) by term with reference levels marked, and an effect plot
+ * for each factor (at most 100 levels): the fitted rate, probability or
+ * mean at each level, the other factors at their reference levels and
+ * numeric covariates at 0 or at the value a setting gives, with intervals
+ * from the covariance (delta method on the link scale, then transformed).
+ * With two fits or more: a table of deviance, df, AIC and BIC, and each
+ * later fit's coefficients against the first's.  The page also says what
+ * to check before using the results.  The same fits and settings give the
+ * same bytes.
+ *
+ * `fits`: nfits >= 1 fits (not taken over).  `sources`: NULL, or for each
+ * fit the file it was read from (or NULL): it names the fit on the page,
+ * and the page never replaces it; the data files the fits were made from
+ * are not replaced either.  `settings`: nsettings lines (may be NULL when
+ * 0), each one of
+ *   "digits N"          significant digits of the numbers, 1..17 (default 4)
+ *   "at COLUMN=VALUE"   the value of a numeric covariate in the effect
+ *                       plots (default 0: a saved fit does not record
+ *                       the values it centred its covariates on)
+ * Text from the data is HTML-escaped; bytes that are not well-formed UTF-8
+ * and control characters show as \xHH, a backslash as two (the JSON's
+ * escape, made visible).  Returns MR_OK, or MR_ERR_USAGE (no fit, a bad
+ * setting, `path` one of the inputs), MR_ERR_IO or MR_ERR_NO_MEMORY with a
+ * message in `msg` (capacity `msgcap`, may be 0). */
+MR_API mr_status mr_fits_write_html(const mr_fit *const *fits, const char *const *sources, size_t nfits,
+                                    const char *const *settings, size_t nsettings, const char *path, char *msg,
+                                    size_t msgcap);
+
 /* ------------------------------------------------------------------ */
 /* Output files.  Every file the library writes (mr_fit_write_json,
- * mr_drift_write_json, mr_drift_write_csv; mr_run_log_append appends
- * instead, see there) obeys:
+ * mr_drift_write_json, mr_drift_write_csv, mr_fits_write_html;
+ * mr_run_log_append appends instead, see there) obeys:
  *
  *  - A symbolic link at `path` is followed (to the end of a chain); its
  *    target is what gets written, and the link is kept.

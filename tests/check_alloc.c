@@ -5,7 +5,7 @@
  * exits).  For n = 0, 1, 2, ... the n-th allocation of a whole fit fails;
  * the fit must then return MR_ERR_NO_MEMORY (or succeed, where the failed
  * allocation only cost an optional speed-up such as the warm start), never
- * crash, never leak.  Source of truth: the API contract in millrace.h. */
+ * crash, never leak.  The same for the JSON and the HTML page of a fit.  Source of truth: the API contract in millrace.h. */
 #define _POSIX_C_SOURCE 200809L
 #include <check.h>
 #include <stdio.h>
@@ -105,19 +105,27 @@ static int json_failing_at(long n, const mr_fit *fit, const char *a, const char 
     return mr__alloc_failures_left() >= 0;
 }
 
-START_TEST(test_json_write_and_read)
+/* The falls sample's fit, with every allocation allowed. */
+static mr_fit *falls_fit(void)
 {
-    char dir[] = "/tmp/check_alloc-XXXXXX", a[64], b[64], msg[256];
     mr_fitter *f = mr_fitter_new();
     mr_fit *fit = NULL;
-    long n;
     int i;
-    ck_assert_ptr_nonnull(mkdtemp(dir));
-    snprintf(a, sizeof a, "%s/a.json", dir);
-    snprintf(b, sizeof b, "%s/b.json", dir);
     for (i = 0; falls_model[i]; i++) ck_assert_int_eq(mr_fitter_model_line(f, falls_model[i], "test"), MR_OK);
     ck_assert_int_eq(mr_fitter_run(f, "samples/falls.csv.zst", &fit), MR_OK);
     mr_fitter_free(f);
+    return fit;
+}
+
+START_TEST(test_json_write_and_read)
+{
+    char dir[] = "/tmp/check_alloc-XXXXXX", a[64], b[64], msg[256];
+    mr_fit *fit;
+    long n;
+    ck_assert_ptr_nonnull(mkdtemp(dir));
+    snprintf(a, sizeof a, "%s/a.json", dir);
+    snprintf(b, sizeof b, "%s/b.json", dir);
+    fit = falls_fit();
     ck_assert_int_eq(mr_fit_write_json(fit, b, msg, sizeof msg), MR_OK);
     for (n = 0; n < 200000; n++)
         if (json_failing_at(n, fit, a, b)) break;
@@ -187,6 +195,40 @@ START_TEST(test_drift_and_run_log)
 }
 END_TEST
 
+/* The HTML page of two fits (the comparison too) with the n-th allocation
+ * failing: MR_ERR_NO_MEMORY and no page, or the page.  Returns 1 once
+ * it got through. */
+static int html_failing_at(long n, const mr_fit *fit, const char *page)
+{
+    const mr_fit *fits[2] = {fit, fit};
+    const char *settings[] = {"at year=2020", "digits 5"};
+    char msg[256];
+    mr_status st;
+    unlink(page); /* an attempt that failed leaves none */
+    mr__alloc_fail_after(n);
+    st = mr_fits_write_html(fits, NULL, 2, settings, 2, page, msg, sizeof msg);
+    ck_assert_msg(st == MR_OK || st == MR_ERR_NO_MEMORY, "allocation %ld: page status %d (%s)", n, (int)st, msg);
+    if (st != MR_OK) ck_assert_int_ne(access(page, F_OK), 0);
+    return st == MR_OK && mr__alloc_failures_left() >= 0;
+}
+
+START_TEST(test_html_page)
+{
+    char dir[] = "/tmp/check_alloc-XXXXXX", page[64];
+    mr_fit *fit;
+    long n;
+    ck_assert_ptr_nonnull(mkdtemp(dir));
+    snprintf(page, sizeof page, "%s/page.html", dir);
+    fit = falls_fit();
+    for (n = 0; n < 200000; n++)
+        if (html_failing_at(n, fit, page)) break;
+    mr__alloc_fail_after(-1);
+    ck_assert_msg(n < 200000, "the page was never written");
+    mr_fit_free(fit);
+    ck_assert_int_eq(unlink(page) | rmdir(dir), 0);
+}
+END_TEST
+
 START_TEST(test_falls_collapsed) { every_allocation("samples/falls.csv.zst", falls_model, 0); }
 END_TEST
 START_TEST(test_falls_rows_cached) { every_allocation("samples/falls.csv", falls_model, 1); }
@@ -209,6 +251,7 @@ int main(void)
     tcase_add_test(tc, test_screening_in_memory);
     tcase_add_test(tc, test_json_write_and_read);
     tcase_add_test(tc, test_drift_and_run_log);
+    tcase_add_test(tc, test_html_page);
     suite_add_tcase(s, tc);
     rc = mr_check_run(s, 1); /* no fork: the leak checker sees the whole run */
     unlink(json_path);

@@ -10,8 +10,8 @@
  * time: a failing call on its file may instead give the fit without it,
  * flagged by the "no cache" warning, and then the same bits.  Then the n-th read or write comes up short instead,
  * as the kernel may do: the results must be the same bits as a run without
- * any.  Source of truth: the API contract in millrace.h ("Output files",
- * mr_fitter_run). */
+ * any.  The same for the HTML page of a fit.  Source of truth: the API
+ * contract in millrace.h ("Output files", mr_fitter_run). */
 #define _POSIX_C_SOURCE 200809L
 #include <check.h>
 #include <dirent.h>
@@ -170,6 +170,84 @@ static const scenario uncached = {"samples/falls.csv", 1, 1};
 static const scenario compressed = {"samples/falls.csv.zst", 0, 0};
 static const scenario standard_input = {"-", 0, 1};
 
+/* ---- the HTML page: the same rules for another output ---- */
+
+static char page_path[128];
+
+static char *file_bytes(const char *path, long *len)
+{
+    FILE *fp = fopen(path, "rb");
+    char *buf;
+    ck_assert_ptr_nonnull(fp);
+    ck_assert_int_eq(fseek(fp, 0, SEEK_END), 0);
+    *len = ftell(fp);
+    rewind(fp);
+    buf = malloc((size_t)*len + 1);
+    ck_assert_ptr_nonnull(buf);
+    ck_assert_int_eq((long)fread(buf, 1, (size_t)*len, fp), *len);
+    fclose(fp);
+    buf[*len] = '\0';
+    return buf;
+}
+
+/* The page of `fit` over an old file, with the plan (n, mode) armed;
+ * returns 1 once n is past the last I/O call. */
+static int page_failing_at(const mr_fit *fit, long n, int mode, const char *want, long want_len)
+{
+    const char *settings[] = {"at year=2020"};
+    char msg[1024] = "", *got;
+    long len;
+    int happened;
+    mr_status st;
+    FILE *fp = fopen(page_path, "w");
+    ck_assert_ptr_nonnull(fp);
+    fputs("old\n", fp);
+    ck_assert_int_eq(fclose(fp), 0);
+    mr__io_fail_after(n, mode);
+    st = mr_fits_write_html(&fit, NULL, 1, settings, 1, page_path, msg, sizeof msg);
+    happened = mr__io_failures_left() < 0;
+    mr__io_fail_after(-1, MR__IO_FAIL);
+    assert_no_temporary(n);
+    got = file_bytes(page_path, &len);
+    ck_assert_msg(strcmp(got, "old\n") == 0 || (len == want_len && memcmp(got, want, (size_t)len) == 0),
+                  "page, call %ld: neither the old file nor the whole page", n);
+    free(got);
+    if (mode == MR__IO_FAIL && happened) {
+        ck_assert_msg(st == MR_ERR_IO && msg[0] != '\0', "page, call %ld failing: status %d (%s)", n, (int)st, msg);
+        return 0;
+    }
+    ck_assert_msg(st == MR_OK && len == want_len, "page, call %ld %s: status %d (%s)", n,
+                  happened ? "short" : "untouched", (int)st, msg);
+    return !happened;
+}
+
+START_TEST(test_html_page)
+{
+    const char *settings[] = {"at year=2020"};
+    mr_fitter *f = mr_fitter_new();
+    mr_fit *fit = NULL;
+    char msg[1024], *want;
+    long n, want_len;
+    int mode;
+    size_t i;
+    for (i = 0; falls_model[i]; i++) ck_assert_int_eq(mr_fitter_model_line(f, falls_model[i], "test"), MR_OK);
+    ck_assert_int_eq(mr_fitter_run(f, "samples/falls.csv.zst", &fit), MR_OK);
+    mr_fitter_free(f);
+    ck_assert_int_eq(mr_fits_write_html((const mr_fit *const *)&fit, NULL, 1, settings, 1, page_path, msg, sizeof msg),
+                     MR_OK);
+    want = file_bytes(page_path, &want_len);
+    for (mode = MR__IO_FAIL; mode <= MR__IO_SHORT; mode++) {
+        for (n = 0; n < 100000; n++)
+            if (page_failing_at(fit, n, mode, want, want_len)) break;
+        ck_assert_msg(n > 0 && n < 100000, "page: %ld calls", n);
+        printf("the HTML page: %ld calls %s in turn\n", n, mode == MR__IO_FAIL ? "failed" : "made short");
+    }
+    free(want);
+    mr_fit_free(fit);
+    unlink(page_path);
+}
+END_TEST
+
 START_TEST(test_cached_rows) { every_call(&cached); }
 END_TEST
 START_TEST(test_rereads) { every_call(&uncached); }
@@ -240,12 +318,14 @@ int main(void)
     snprintf(dir, sizeof dir, "/tmp/millrace-io-XXXXXX");
     if (mkdtemp(dir) == NULL) return EXIT_FAILURE;
     snprintf(json_path, sizeof json_path, "%s/fit.json", dir);
+    snprintf(page_path, sizeof page_path, "%s/page.html", dir);
     tcase_set_timeout(tc, 600);
     tcase_add_test(tc, test_cached_rows);
     tcase_add_test(tc, test_rereads);
     tcase_add_test(tc, test_compressed_patterns);
     tcase_add_test(tc, test_standard_input);
     tcase_add_test(tc, test_drift_and_run_log);
+    tcase_add_test(tc, test_html_page);
     suite_add_tcase(s, tc);
     {
         int rc = mr_check_run(s, 1); /* no fork: the leak checker sees the whole run */

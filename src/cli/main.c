@@ -63,11 +63,22 @@ static const struct option drift_long_options[] = {
     {NULL, 0, NULL, 0},
 };
 
+/* Options of `millrace report`. */
+enum { OPT_HTML = 512, OPT_AT, OPT_REPORT_DIGITS };
+static const struct option report_options[] = {
+    {"html", required_argument, NULL, OPT_HTML},
+    {"at", required_argument, NULL, OPT_AT},
+    {"digits", required_argument, NULL, OPT_REPORT_DIGITS},
+    {NULL, 0, NULL, 0},
+};
+
 static const char usage_text[] =
     "usage: millrace fit [options] DATA     fit a GLM to DATA (CSV, TSV, zstd-compressed, or - for stdin)\n"
     "       millrace show [--digits N] FIT.json   the report of a fit saved with --json\n"
     "       millrace drift [--threshold SE] [--json PATH] [--csv PATH] [--digits N] OLD.json NEW.json\n"
     "                               what changed between two saved fits of one model (default 3 SE)\n"
+    "       millrace report --html PATH [--at COL=VALUE]... [--digits N] FIT.json...\n"
+    "                                  saved fits as one HTML page (plots, comparison of the fits)\n"
     "       millrace version | help\n"
     "\n"
     "model (each option takes the words of the model-file line of the same name):\n"
@@ -512,6 +523,61 @@ static int run_drift(int argc, char **argv)
     return rc;
 }
 
+static int add_setting(char ***settings, size_t *n, const char *prefix, const char *value)
+{
+    size_t len = strlen(prefix) + strlen(value) + 1;
+    char **grown = realloc(*settings, (*n + 1) * sizeof **settings), *s = malloc(len);
+    if (grown) *settings = grown;
+    if (grown == NULL || s == NULL) {
+        free(s);
+        return -1;
+    }
+    snprintf(s, len, "%s%s", prefix, value);
+    (*settings)[(*n)++] = s;
+    return 0;
+}
+
+/* Reads every fit, then writes the page (the library checks the path). */
+static int write_page(const char *html, char **paths, size_t nfits, char **settings, size_t nsettings)
+{
+    mr_fit **fits = calloc(nfits, sizeof *fits);
+    char msg[1024];
+    mr_status st = fits ? MR_OK : MR_ERR_NO_MEMORY;
+    size_t k;
+    snprintf(msg, sizeof msg, "out of memory");
+    for (k = 0; st == MR_OK && k < nfits; k++) st = mr_fit_read_json(paths[k], &fits[k], msg, sizeof msg);
+    if (st == MR_OK)
+        st = mr_fits_write_html((const mr_fit *const *)fits, (const char *const *)paths, nfits,
+                                (const char *const *)settings, nsettings, html, msg, sizeof msg);
+    for (k = 0; fits && k < nfits; k++) mr_fit_free(fits[k]);
+    free(fits);
+    return st == MR_OK ? 0 : fail(st, msg);
+}
+
+/* millrace report --html PATH [--at COL=VALUE]... [--digits N] FIT.json... */
+static int report_page(int argc, char **argv)
+{
+    char **settings = NULL;
+    const char *html = NULL;
+    size_t n = 0, i;
+    int opt, rc = 0;
+    optind = 1;
+    while (rc == 0 && (opt = getopt_long(argc, argv, "", report_options, NULL)) != -1) {
+        if (opt == OPT_HTML) html = optarg;
+        else if (opt == OPT_AT || opt == OPT_REPORT_DIGITS)
+            rc = add_setting(&settings, &n, opt == OPT_AT ? "at " : "digits ", optarg) == 0
+                     ? 0
+                     : fail(MR_ERR_NO_MEMORY, "out of memory");
+        else rc = usage_error("bad option");
+    }
+    if (rc == 0 && html == NULL) rc = usage_error("report needs --html PATH");
+    if (rc == 0 && optind >= argc) rc = usage_error("report takes one or more fits saved with --json");
+    if (rc == 0) rc = write_page(html, argv + optind, (size_t)(argc - optind), settings, n);
+    for (i = 0; i < n; i++) free(settings[i]);
+    free(settings);
+    return rc;
+}
+
 /* What went to standard output counts only once it is out: a write that
  * failed earlier or the last flush failing turns success into MR_ERR_IO. */
 static int close_stdout(int rc)
@@ -537,6 +603,7 @@ static int dispatch(int argc, char **argv)
     }
     if (strcmp(argv[1], "show") == 0) return show_fit(argc - 1, argv + 1);
     if (strcmp(argv[1], "drift") == 0) return run_drift(argc - 1, argv + 1);
+    if (strcmp(argv[1], "report") == 0) return report_page(argc - 1, argv + 1);
     if (strcmp(argv[1], "fit") != 0) return usage_error("unknown command (try 'millrace fit')");
     memset(&c, 0, sizeof c);
     c.fitter = mr_fitter_new();

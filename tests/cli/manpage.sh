@@ -17,10 +17,10 @@ completion=doc/millrace.bash-completion
 section() { awk -v s="$1" '/^\.SH/ { on = ($0 ~ "^\\.SH \"?" s "\"?$"); next } on' "$man" | sed 's/\\-/-/g'; }
 options_in() { grep -oE '(^|[^a-zA-Z0-9])--?[a-z][a-z-]*' | sed -E 's/^[^-]*//' | sort -u; }
 
-# What the command accepts: the long options of getopt_long's table and the
-# letters of its short-option string.
+# What the command accepts: the long options of getopt_long's tables (fit's,
+# report's) and the letters of the short-option strings.
 {
-    sed -n '/long_options\[\] = {/,/^};/p' src/cli/main.c | grep -oE '\{"[a-z-]+"' | sed 's/{"/--/; s/"//'
+    sed -n '/_options\[\] = {/,/^};/p' src/cli/main.c | grep -oE '\{"[a-z-]+"' | sed 's/{"/--/; s/"//'
     grep -oE 'getopt_long\([^"]*"[^"]*"' src/cli/main.c | sed -E 's/.*"(.*)"/\1/' | tr -d ':' | grep -o . | sed 's/^/-/'
 } | sort -u >"$tmp/accepted"
 check "option table read ($(wc -l <"$tmp/accepted") options)" test "$(wc -l <"$tmp/accepted")" -gt 20
@@ -91,6 +91,7 @@ expect_completion() { # expect_completion WANT WORD...
     check "completion of '$*': '$want'" test "$got" = "$want"
 }
 expect_completion "fit" millrace f
+expect_completion "report" millrace rep
 expect_completion "--family" millrace fit --fam
 expect_completion "--no-intercept --no-cache --no-collapse" millrace fit -m falls.model --no-
 expect_completion "poisson" millrace fit --family po

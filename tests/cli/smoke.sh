@@ -4,7 +4,8 @@
 # that every main path of the library runs at least once with a checker
 # watching: zstd and plain input, standard input, threads, in-memory mode,
 # rereads of a plain file by the block map,
-# both sample models, JSON output and reading it back, and an error path.
+# both sample models, JSON output and reading it back, the HTML page, and
+# an error path.
 set -u
 root=$(cd "$(dirname "$0")/../.." && pwd)
 MILLRACE=${MILLRACE:-$root/build/millrace}
@@ -38,6 +39,7 @@ expect "unparsable number is a format error" 4 $MILLRACE fit --outcome y --numer
 expect "the saved fit read back" 0 $MILLRACE show "$tmp/f.json"
 expect "run log appended" 0 $MILLRACE fit -m samples/falls.model --quiet --run-log "$tmp/runs.log" --json "$tmp/g.json" samples/falls.csv
 expect "drift of two fits, written as JSON and CSV" 0 $MILLRACE drift --json "$tmp/d.json" --csv "$tmp/d.csv" "$tmp/f.json" "$tmp/g.json"
+expect "saved fits as an HTML page, with their comparison" 0 $MILLRACE report --html "$tmp/f.html" --at year=2020 "$tmp/f.json" "$tmp/f.json"
 # The checksum, recomputed from its documented definition (README, JSON
 # output) by an independent implementation.
 want=$(/usr/bin/python3 -c '

@@ -1,0 +1,93 @@
+#!/usr/bin/env bash
+# millrace report --html: the page of saved fits.  Sources of truth: HTML's
+# and XML's well-formedness (python3's html.parser and xml.etree, in
+# tests/cli/html/check_page.py), the page's own promises (no reference to
+# anything outside it, every plot with marks and text alternatives, the
+# same bytes for the same fits), and the README's escape of text.
+# tests/cli/html_browser.sh shows the page in a real browser.
+source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
+checker="$here/html/check_page.py"
+
+fit() { # fit NAME ARGS...: a fit saved as $tmp/NAME.json
+    local name=$1
+    shift
+    "$bin" fit --quiet --json "$tmp/$name.json" "$@" >/dev/null 2>"$tmp/$name.err" || fail "fit $name" "$(head -c 300 "$tmp/$name.err")"
+}
+page_ok() { # page_ok NAME SECTION...: $tmp/NAME.html passes the checker
+    local name=$1
+    shift
+    check "$name: well-formed, self-contained, plots drawn, sections" /usr/bin/python3 "$checker" "$tmp/$name.html" "$@"
+}
+
+fit falls -m "$root/samples/falls.model" "$root/samples/falls.csv.zst"
+fit screening -m "$root/samples/screening.model" "$root/samples/screening.csv"
+head -n 2001 "$root/samples/falls.csv" >"$tmp/falls-part.csv"
+fit rerun -m "$root/samples/falls.model" "$tmp/falls-part.csv"
+
+check "falls page" "$bin" report --html "$tmp/falls.html" --at year=2020 "$tmp/falls.json"
+page_ok falls cautions fit-1 forest-1 effect-1-1 effect-1-2 effect-1-3 not-shown
+for want in '<h3>Coefficients</h3>' '<h3>Convergence</h3>' 'factor    age_band  ref=40-44' 'rows left out' \
+    'year at 2020' 'rate ratio' 'admissions per 1,000 person_years' 'delta method' 'Validate before use' \
+    'Calibration plots' 'reference' '<h3>Term tests</h3>' '<td>age_band &amp; sex</td><td>chi-square</td>'; do
+    grep -qF "$want" "$tmp/falls.html" || fail "falls page says '$want'" "not found"
+done
+
+check "screening page" "$bin" report --html "$tmp/screening.html" --digits 3 "$tmp/screening.json"
+page_ok screening cautions fit-1 forest-1 effect-1-1 effect-1-2 not-shown
+for want in 'odds ratio' 'fitted probability of attended (%)' 'does not record' 'missing bmi'; do
+    grep -qF "$want" "$tmp/screening.html" || fail "screening page says '$want'" "not found"
+done
+
+check "two fits" "$bin" report --html "$tmp/two.html" --at year=2020 "$tmp/falls.json" "$tmp/rerun.json"
+page_ok two fit-1 fit-2 comparison change-2 not-shown
+check "two fits: read different data, so AIC is not compared" grep -q 'not comparable' "$tmp/two.html"
+check "three fits: each against the first" "$bin" report --html "$tmp/three.html" "$tmp/falls.json" \
+    "$tmp/rerun.json" "$tmp/falls.json"
+page_ok three comparison change-2 change-3
+
+# The same fits give the same bytes.
+"$bin" report --html "$tmp/two-again.html" --at year=2020 "$tmp/falls.json" "$tmp/rerun.json"
+check "deterministic: the same fits, the same bytes" cmp "$tmp/two.html" "$tmp/two-again.html"
+
+# Text from the data: markup, quotes and a byte that is not UTF-8 (Latin-1
+# e-acute), in a level and a column name.
+{
+    printf 'y,n,"gr<u>"\n'
+    for i in 1 2 3 4 5 6; do
+        printf '%d,10,"a<script>alert(1)</script>"\n' "$i"
+        printf '%d,12,"b&""x\047"\n' "$((i + 2))"
+        printf '%d,11,R\xe9gion\n' "$((i + 1))"
+    done
+} >"$tmp/hostile.csv"
+fit hostile --outcome y --family poisson --exposure n --factor 'gr<u>' "$tmp/hostile.csv"
+check "hostile page" "$bin" report --html "$tmp/hostile.html" "$tmp/hostile.json"
+page_ok hostile fit-1 forest-1 effect-1-1
+check "no markup from the data" test "$(grep -c '<script\|<u>' "$tmp/hostile.html")" = 0
+check "level escaped" grep -qF 'a&lt;script&gt;alert(1)&lt;/script&gt;' "$tmp/hostile.html"
+check "quotes escaped" grep -qF 'b&amp;&quot;x&#39;' "$tmp/hostile.html"
+check "column name escaped" grep -qF 'gr&lt;u&gt;' "$tmp/hostile.html"
+check "a byte that is not UTF-8 shows as \\xE9" grep -qF 'R\xE9gion' "$tmp/hostile.html"
+
+# Errors: exit codes of the README.
+expect_exit() { # expect_exit NAME CODE ARGS...
+    local name=$1 want=$2
+    shift 2
+    "$bin" "$@" >/dev/null 2>"$tmp/err"
+    local rc=$?
+    if [ "$rc" = "$want" ] && [ -s "$tmp/err" ]; then ok "$name (exit $want)"; else fail "$name" "exit $rc, want $want: $(cat "$tmp/err")"; fi
+}
+cp "$tmp/falls.json" "$tmp/keep.json"
+expect_exit "no --html" 2 report "$tmp/falls.json"
+expect_exit "no fit" 2 report --html "$tmp/x.html"
+expect_exit "the page would replace a fit" 2 report --html "$tmp/falls.json" "$tmp/falls.json"
+check "the fit is intact" cmp "$tmp/falls.json" "$tmp/keep.json"
+expect_exit "--at of a column no fit has" 2 report --html "$tmp/x.html" --at age=3 "$tmp/falls.json"
+expect_exit "--at without a number" 2 report --html "$tmp/x.html" --at year=soon "$tmp/falls.json"
+expect_exit "--digits 0" 2 report --html "$tmp/x.html" --digits 0 "$tmp/falls.json"
+expect_exit "a fit that is not there" 3 report --html "$tmp/x.html" "$tmp/absent.json"
+expect_exit "a fit that is not JSON" 4 report --html "$tmp/x.html" "$tmp/hostile.csv"
+expect_exit "the page onto a directory" 3 report --html "$tmp" "$tmp/falls.json"
+check "no page after the errors" test ! -e "$tmp/x.html"
+check "no temporary file left" test -z "$(find "$tmp" -name '*.tmp-*')"
+
+finish

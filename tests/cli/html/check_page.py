@@ -1,0 +1,93 @@
+"""Checks a page written by `millrace report --html`, with the standard
+library only: well-formed (every element closed in order, HTML's void
+elements aside), each SVG plot well-formed XML with a title, a desc, an
+aria-label and drawn marks, no reference to anything outside the file, and
+the sections asked for.  Usage: check_page.py PAGE SECTION-ID...
+Prints one line per problem; exit status 1 if any."""
+import re
+import sys
+import xml.etree.ElementTree as ET
+from html.parser import HTMLParser
+
+VOID = {"meta", "br", "hr", "img", "input", "link", "col", "wbr", "source", "area", "base", "embed", "param", "track"}
+SVG_EMPTY = {"line", "rect", "circle", "path"}
+
+
+class Nesting(HTMLParser):
+    def __init__(self):
+        super().__init__(convert_charrefs=True)
+        self.stack, self.problems, self.ids = [], [], set()
+
+    def handle_starttag(self, tag, attrs):
+        for k, v in attrs:
+            if k == "id":
+                self.ids.add(v)
+            if k in ("src", "href") and v and not v.startswith("#"):
+                self.problems.append(f"reference outside the page: {k}={v!r}")
+        if tag in ("script", "link", "img", "iframe", "object", "embed"):
+            self.problems.append(f"<{tag}> in the page")
+        if tag not in VOID:
+            self.stack.append((tag, self.getpos()))
+
+    def handle_startendtag(self, tag, attrs):
+        self.handle_starttag(tag, attrs)
+        if tag not in VOID:
+            self.stack.pop()
+
+    def handle_endtag(self, tag):
+        if not self.stack or self.stack[-1][0] != tag:
+            self.problems.append(f"</{tag}> at {self.getpos()} closes {self.stack[-1] if self.stack else 'nothing'}")
+            return
+        self.stack.pop()
+
+
+def main():
+    path, sections = sys.argv[1], sys.argv[2:]
+    raw = open(path, "rb").read()
+    problems = []
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as e:
+        print(f"not UTF-8: {e}")
+        return 1
+    if re.search(r"https?://", text, re.I):
+        problems.append("an http:// or https:// reference")
+    if re.search(r"url\(|@import|@font-face", text):
+        problems.append("a style that loads something")
+    if re.search(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]", text):
+        problems.append("a control character in the text")
+    p = Nesting()
+    p.feed(text)
+    p.close()
+    problems += p.problems
+    if p.stack:
+        problems.append(f"unclosed: {p.stack[-3:]}")
+    figures = re.findall(r'<figure id="([^"]+)">(.*?)</figure>', text, re.S)
+    if not figures:
+        problems.append("no plot")
+    for fid, body in figures:
+        m = re.search(r"<svg .*?</svg>", body, re.S)
+        if not m:
+            problems.append(f"{fid}: no svg")
+            continue
+        try:
+            svg = ET.fromstring(m.group(0))
+        except ET.ParseError as e:
+            problems.append(f"{fid}: SVG not well-formed XML: {e}")
+            continue
+        if svg.find("title") is None or svg.find("desc") is None or not svg.get("aria-label"):
+            problems.append(f"{fid}: no title, desc or aria-label")
+        marks = [e for e in svg.iter() if "mark" in (e.get("class") or "").split()]
+        if not marks:
+            problems.append(f"{fid}: no marks drawn")
+        if "<details>" not in body or "<table" not in body:
+            problems.append(f"{fid}: no data table")
+    for s in sections:
+        if s not in p.ids:
+            problems.append(f"section {s} missing")
+    for line in problems:
+        print(line)
+    return 1 if problems else 0
+
+
+sys.exit(main())
