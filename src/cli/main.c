@@ -53,7 +53,7 @@ static const struct option long_options[] = {
 };
 
 static const char usage_text[] =
-    "usage: millrace fit [options] DATA     fit a GLM to DATA (CSV, TSV, zstd-compressed, or - for stdin)\n"
+    "usage: millrace fit [options] DATA     fit a GLM to DATA (CSV, TSV, zstd or gzip, or - for stdin)\n"
     "       millrace show [--digits N] FIT.json   the report of a fit saved with --json\n"
     "       millrace version | help\n"
     "\n"

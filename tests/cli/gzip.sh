@@ -58,17 +58,7 @@ fifo() {
 # input_is NAME COMPRESSION BYTES TEXT_BYTES CHECKSUM_OF: the JSON's input section.
 input_is() {
     local name=$1 want
-    want=$(/usr/bin/python3 - "$2" "$3" "$4" "$5" <<'EOF'
-import struct, sys
-data = open(sys.argv[4], "rb").read()
-h, prime, cut = 0xcbf29ce484222325, 0x100000001b3, len(data) // 8 * 8
-for i in range(0, cut, 8):
-    h = ((h ^ struct.unpack("<Q", data[i:i + 8])[0]) * prime) % 2**64
-if cut < len(data):
-    h = ((h ^ int.from_bytes(data[cut:].ljust(8, bytes(1)), "little")) * prime) % 2**64
-print(sys.argv[1], sys.argv[2], sys.argv[3], "fnv1a64w:%016x" % h)
-EOF
-)
+    want="$2 $3 $4 $(/usr/bin/python3 "$here/checksum.py" "$5")"
     local got
     got=$(/usr/bin/python3 -c '
 import json, sys

@@ -38,16 +38,7 @@ expect "unparsable number is a format error" 4 $MILLRACE fit --outcome y --numer
 expect "the saved fit read back" 0 $MILLRACE show "$tmp/f.json"
 # The checksum, recomputed from its documented definition (README, JSON
 # output) by an independent implementation.
-want=$(/usr/bin/python3 -c '
-import struct, sys
-data = open(sys.argv[1], "rb").read()
-h, prime, cut = 0xcbf29ce484222325, 0x100000001b3, len(data) // 8 * 8
-for i in range(0, cut, 8):
-    h = ((h ^ struct.unpack("<Q", data[i:i + 8])[0]) * prime) % 2**64
-if cut < len(data):
-    h = ((h ^ int.from_bytes(data[cut:].ljust(8, bytes(1)), "little")) * prime) % 2**64
-print("fnv1a64w:%016x" % h)
-' samples/falls.csv.zst)
+want=$(/usr/bin/python3 tests/cli/checksum.py samples/falls.csv.zst)
 grep -q "\"$want\"" "$tmp/f.json" && { pass=$((pass + 1)); echo "ok checksum $want"; } ||
     { fail=$((fail + 1)); echo "FAIL checksum: wanted $want"; }
 echo "$pass passed, $fail failed"
