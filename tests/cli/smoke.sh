@@ -2,7 +2,7 @@
 # A short tour of the command on the bundled samples, run under whatever
 # $MILLRACE says (the ASan build, or the normal build under valgrind), so
 # that every main path of the library runs at least once with a checker
-# watching: zstd and plain input, standard input, threads, in-memory mode,
+# watching: zstd, gzip and plain input, standard input, threads, in-memory mode,
 # rereads of a plain file by the block map,
 # both sample models, JSON output and reading it back, and an error path.
 set -u
@@ -29,6 +29,7 @@ expect "poisson zstd sample" 0 $MILLRACE fit -m samples/falls.model --quiet --js
 expect "logistic sample, 1 thread, in memory" 0 $MILLRACE fit -m samples/screening.model --threads 1 --in-memory --quiet samples/screening.csv
 expect "plain file reread by the block map" 0 $MILLRACE fit -m samples/screening.model --threads 2 --no-cache --no-collapse --quiet samples/screening.csv
 expect "standard input, tiny reads" 0 sh -c "cat samples/falls.csv | $MILLRACE fit -m samples/falls.model --buffer-size 4096 --quiet -"
+expect "gzip members on standard input, rereads" 0 sh -c "{ head -n 1000 samples/falls.csv | gzip; tail -n +1001 samples/falls.csv | gzip; } | $MILLRACE fit -m samples/falls.model --no-collapse --no-cache --buffer-size 4096 --quiet -"
 expect "options override the model file" 0 $MILLRACE fit -m samples/falls.model --family poisson --link log --dispersion estimate --quiet samples/falls.csv
 expect "unknown column is a usage error" 2 $MILLRACE fit --outcome nosuch --family poisson --quiet samples/falls.csv
 printf 'y,x\n1,2\n3,zz\n' >"$tmp/bad.csv"
