@@ -5,8 +5,8 @@
  * member, so the decoder checks that the next bytes begin another member
  * and resets zlib for it.  Anything else after a member is an error, not
  * silently dropped: a file with a damaged or foreign tail is not the file
- * the analyst meant to fit.  (libdeflate decodes faster but only a whole
- * buffer at a time; the input is streamed, so zlib.) */
+ * the analyst meant to fit.  (libdeflate can decode faster, but only a
+ * whole buffer at a time, and the input is streamed: so zlib.) */
 #define ZLIB_CONST
 #include <limits.h>
 #include <string.h>
