@@ -96,6 +96,14 @@ input_is falls_zstd zstd "$(stat -c %s "$root/samples/falls.csv.zst")" "$(stat -
     grep -q "falls.csv.gz (gzip, $(stat -c %s "$tmp/falls.csv.gz") bytes read" "$tmp/show.out" &&
     ok "report names gzip" || fail "report names gzip" "$(head -c 300 "$tmp/show.out")"
 
+# A saved fit names its compression; a name this library does not know is
+# refused naming the field (README, "Reading a fit back").
+sed 's/"compression": "gzip"/"compression": "lz4"/' "$tmp/falls_gzip_t1.json" > "$tmp/lz4.json"
+"$bin" show "$tmp/lz4.json" > /dev/null 2> "$tmp/lz4.err"
+rc=$?
+[ "$rc" = 4 ] && grep -q "'input.compression'" "$tmp/lz4.err" && ok "unknown compression in a saved fit: exit 4" ||
+    fail "unknown compression in a saved fit" "exit $rc: $(head -c 300 "$tmp/lz4.err")"
+
 # The sample's default fit (covariate patterns, one read) too.
 model=(--model "$root/samples/falls.model")
 run base --threads 1 "$tmp/falls.csv"
