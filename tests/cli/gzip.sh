@@ -14,8 +14,8 @@ export TMPDIR=$tmp
 synth=$root/build/synth
 [ -x "$synth" ] || { fail setup "$synth not found (run make first)"; finish; exit 1; }
 
-# gzip_copies NAME: NAME.gz (one member), NAME.3.gz (three members, cut
-# mid-row) and NAME.fifo.gz's source, from the plain NAME.
+# gzip_copies FILE: FILE.gz (one member) and FILE.3.gz (three members,
+# cut mid-row, at three compression levels) of the plain FILE.
 gzip_copies() {
     local plain=$1 size third
     gzip -n -c < "$plain" > "$plain.gz"
