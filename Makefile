@@ -19,7 +19,7 @@ OPT      ?= -O3 -g
 MATH     := -fno-math-errno
 WARN     := -Wall -Wextra -Werror
 STD      := -std=c11
-PKGS     := openblas lapacke jansson libzstd
+PKGS     := openblas lapacke jansson libzstd zlib
 PKG_CFLAGS := $(shell pkg-config --cflags $(PKGS) 2>/dev/null)
 PKG_LIBS   := $(shell pkg-config --libs $(PKGS) 2>/dev/null)
 CHECK_CFLAGS := $(shell pkg-config --cflags check 2>/dev/null)
@@ -48,13 +48,13 @@ LIBS     := -lcsv $(PKG_LIBS) -pthread -lm
 SAN      := -fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize-recover=all
 
 # Debian packages building and running need (make deps, make demo).
-DEBIAN_PACKAGES := build-essential pkg-config libzstd-dev libopenblas-dev libopenblas0-serial liblapacke-dev libcsv-dev \
+DEBIAN_PACKAGES := build-essential pkg-config libzstd-dev zlib1g-dev libopenblas-dev libopenblas0-serial liblapacke-dev libcsv-dev \
                    libjansson-dev
 # What only the tests add (make test-deps, make check): oracles, checkers,
 # tools; groff-base renders the man page, gfortran gives the -lgfortran that
 # openblas.pc names for a static link (tests/cli/install.sh), chromium shows
 # the HTML page in a browser (tests/cli/html_browser.sh).
-TEST_PACKAGES := zstd check libsubunit-dev python3 python3-numpy python3-scipy \
+TEST_PACKAGES := zstd gzip check libsubunit-dev python3 python3-numpy python3-scipy \
                  python3-statsmodels r-base-core valgrind time groff-base gfortran chromium
 
 ifeq ($(V),1)

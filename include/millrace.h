@@ -70,7 +70,8 @@ typedef enum mr_status {
     MR_OK = 0,
     MR_ERR_USAGE = 2,        /* bad option, model line or model file       */
     MR_ERR_IO = 3,           /* a file could not be opened, read or written */
-    MR_ERR_FORMAT = 4,       /* malformed input: CSV, number, zstd stream   */
+    MR_ERR_FORMAT = 4,       /* malformed input: CSV, number, zstd or gzip
+                                stream (truncated, corrupt, trailing bytes) */
     MR_ERR_DOMAIN = 5,       /* a value the model cannot take (y < 0 for
                                 poisson, exposure <= 0, weight < 0, ...)    */
     MR_ERR_NO_DATA = 6,      /* empty file, header only, no usable rows
@@ -240,7 +241,8 @@ MR_API void mr_fitter_set_progress_stop(mr_fitter *f, mr_progress_stop_fn fn, vo
  * argc 0 forgets them.  MR_OK or MR_ERR_NO_MEMORY. */
 MR_API mr_status mr_fitter_set_command_line(mr_fitter *f, size_t argc, const char *const *argv);
 
-/* Fits the model to the CSV (optionally zstd-compressed) at `path`, or to
+/* Fits the model to the CSV (optionally zstd- or gzip-compressed, known by
+ * its magic bytes; concatenated frames or members read as one) at `path`, or to
  * standard input when path is "-".  The input is only read, once or more
  * (input that is not a regular file - standard input, a pipe such as
  * /dev/fd/N, a FIFO, a device - is copied during the first pass to an

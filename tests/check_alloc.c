@@ -10,9 +10,11 @@
 #include <check.h>
 #include <stdio.h>
 #include <stdlib.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include "common/alloc.h"
+#include "input/source.h"
 #include "millrace.h"
 #include "check_common.h"
 
@@ -229,6 +231,45 @@ START_TEST(test_html_page)
 }
 END_TEST
 
+/* gzip input read through the source with the n-th allocation failing
+ * (the source's, the decoder's, and zlib's, which are ours too): all of
+ * the text or MR_ERR_NO_MEMORY.  Returns 1 once n is past the last. */
+static int gzip_read_failing_at(long n, const char *path, size_t text_bytes)
+{
+    mr__source *s = NULL;
+    mr__error err;
+    char buf[4096];
+    size_t got = 0, total = 0;
+    mr_status st;
+    mr__error_clear(&err);
+    mr__alloc_fail_after(n);
+    st = mr__source_open(&s, path, path, 1024, -1, &err);
+    while (st == MR_OK && (st = mr__source_read(s, buf, sizeof buf, &got, &err)) == MR_OK && got > 0) total += got;
+    mr__source_close(s);
+    ck_assert_msg(st == MR_OK || st == MR_ERR_NO_MEMORY, "allocation %ld: status %d (%s)", n, (int)st, err.msg);
+    if (st != MR_OK) return 0;
+    ck_assert_uint_eq(total, text_bytes);
+    return mr__alloc_failures_left() >= 0;
+}
+
+START_TEST(test_gzip_source)
+{
+    char dir[] = "/tmp/check_alloc-XXXXXX", gz[96], cmd[256];
+    struct stat st;
+    long n;
+    ck_assert_ptr_nonnull(mkdtemp(dir));
+    snprintf(gz, sizeof gz, "%s/falls.csv.gz", dir);
+    snprintf(cmd, sizeof cmd, "gzip -n -c < samples/falls.csv > '%s'", gz);
+    ck_assert_int_eq(system(cmd), 0);
+    ck_assert_int_eq(stat("samples/falls.csv", &st), 0);
+    for (n = 0; n < 1000; n++)
+        if (gzip_read_failing_at(n, gz, (size_t)st.st_size)) break;
+    mr__alloc_fail_after(-1);
+    ck_assert_msg(n > 2 && n < 1000, "%ld allocations", n);
+    ck_assert_int_eq(unlink(gz) | rmdir(dir), 0);
+}
+END_TEST
+
 START_TEST(test_falls_collapsed) { every_allocation("samples/falls.csv.zst", falls_model, 0); }
 END_TEST
 START_TEST(test_falls_rows_cached) { every_allocation("samples/falls.csv", falls_model, 1); }
@@ -252,6 +293,7 @@ int main(void)
     tcase_add_test(tc, test_json_write_and_read);
     tcase_add_test(tc, test_drift_and_run_log);
     tcase_add_test(tc, test_html_page);
+    tcase_add_test(tc, test_gzip_source);
     suite_add_tcase(s, tc);
     rc = mr_check_run(s, 1); /* no fork: the leak checker sees the whole run */
     unlink(json_path);

@@ -13,6 +13,10 @@
  *     fields, the delimiter rule, BOM handling, error kinds).
  *   - the zstd command-line tool (`zstd -q`), an independent compressor,
  *     and the zstd frame format (RFC 8878) for skippable frames.
+ *   - the gzip command-line tool (`gzip -n`), an independent compressor,
+ *     and the gzip format (RFC 1952: members one after another, a 10-byte
+ *     header, the CRC-32 and length of the text in an 8-byte trailer) and
+ *     the deflate format (RFC 1951: block type 11 is reserved, an error).
  * Random inputs come from a fixed-seed splitmix64 so a failure reproduces;
  * MR_TEST_QUICK=1 shortens the random parts for sanitizer runs.
  */
@@ -27,6 +31,7 @@
 
 #include "common/alloc.h"
 #include "input/chunk.h"
+#include "input/codec.h"
 #include "input/fields.h"
 #include "input/rowsplit.h"
 #include "input/source.h"
@@ -1013,10 +1018,10 @@ START_TEST(test_parse_header)
 END_TEST
 
 /* ------------------------------------------------------------------ */
-/* Source: plain and zstd input                                         */
+/* Source: plain, zstd and gzip input                                   */
 
 /* Reads the whole input through the source; returns the read status. */
-static mr_status read_source(const char *path, size_t read_size, size_t cap, bytes *out, int *is_zstd,
+static mr_status read_source(const char *path, size_t read_size, size_t cap, bytes *out, int *compression,
                              uint64_t *raw_bytes, mr__error *err)
 {
     mr__source *s;
@@ -1034,7 +1039,8 @@ static mr_status read_source(const char *path, size_t read_size, size_t cap, byt
         if (got > cap) ck_abort_msg("read %zu bytes into a buffer of %zu", got, cap);
         bytes_add(out, buf, got);
     }
-    *is_zstd = mr__source_is_zstd(s);
+    *compression = mr__source_compression(s);
+    ck_assert_int_eq(mr__source_is_zstd(s), *compression); /* the older name, read as "compressed" */
     *raw_bytes = mr__source_raw_bytes(s);
     if (st == MR_OK) ck_assert_uint_eq(mr__source_out_bytes(s), out->n);
     mr__source_close(s);
@@ -1045,8 +1051,9 @@ static mr_status read_source(const char *path, size_t read_size, size_t cap, byt
 static const size_t READ_SIZES[] = {16, 17, 1000, 65536, 1u << 20};
 static const size_t CAPS[] = {1, 7, 4096, 131072, 1u << 21};
 
-/* Source of truth: the plain text written; the zstd tool compressed it. */
-static void expect_same_text(const char *path, const bytes *plain, int want_zstd)
+/* Source of truth: the plain text written; the zstd or gzip tool
+ * compressed it. */
+static void expect_same_text(const char *path, const bytes *plain, int want_compression)
 {
     struct stat stt;
     size_t i, j;
@@ -1062,7 +1069,7 @@ static void expect_same_text(const char *path, const bytes *plain, int want_zstd
             if (CAPS[j] == 1 && (READ_SIZES[i] > 17 || plain->n > 100000)) continue;
             mr_status st = read_source(path, READ_SIZES[i], CAPS[j], &got, &z, &raw, &err);
             ck_assert_msg(st == MR_OK, "read %zu cap %zu: %s", READ_SIZES[i], CAPS[j], err.msg);
-            ck_assert_int_eq(z, want_zstd);
+            ck_assert_int_eq(z, want_compression);
             ck_assert_uint_eq(raw, (uint64_t)stt.st_size);
             ck_assert_msg(got.n == plain->n && memcmp(got.p, plain->p, got.n) == 0,
                           "read %zu cap %zu: %zu bytes out, %zu expected", READ_SIZES[i], CAPS[j], got.n, plain->n);
@@ -1083,9 +1090,9 @@ START_TEST(test_source_zstd_roundtrip)
     tmp_path(&t, "a.csv.zst", zpath);
     write_file(plain_path, cp.text.p, cp.text.n);
     run("zstd -q -f -o '%s' '%s'", zpath, plain_path);
-    expect_same_text(zpath, &cp.text, 1);
+    expect_same_text(zpath, &cp.text, MR__COMPRESSION_ZSTD);
     /* source.h: plain input is recognised as plain. */
-    expect_same_text(plain_path, &cp.text, 0);
+    expect_same_text(plain_path, &cp.text, MR__COMPRESSION_NONE);
     tmp_close(&t);
     free_corpus(&cp);
 }
@@ -1105,7 +1112,7 @@ START_TEST(test_source_zstd_without_checksum)
     tmp_path(&t, "n.csv.zst", zpath);
     write_file(plain_path, cp.text.p, cp.text.n);
     run("zstd -q -f --no-check -o '%s' '%s'", zpath, plain_path);
-    expect_same_text(zpath, &cp.text, 1);
+    expect_same_text(zpath, &cp.text, MR__COMPRESSION_ZSTD);
     tmp_close(&t);
     free_corpus(&cp);
 }
@@ -1130,7 +1137,7 @@ START_TEST(test_source_concatenated_frames)
     ck_assert_int_eq(system(cmd), 0);
     bytes_str(&both, a);
     bytes_str(&both, b);
-    expect_same_text(pc, &both, 1);
+    expect_same_text(pc, &both, MR__COMPRESSION_ZSTD);
     bytes_free(&both);
     tmp_close(&t);
 }
@@ -1160,7 +1167,7 @@ START_TEST(test_source_skippable_frame_first)
     ck_assert_uint_eq(fwrite(z.p, 1, z.n, f), z.n);
     ck_assert_int_eq(fclose(f), 0);
     bytes_str(&plain, text);
-    expect_same_text(q, &plain, 1);
+    expect_same_text(q, &plain, MR__COMPRESSION_ZSTD);
     bytes_free(&z);
     bytes_free(&plain);
     tmp_close(&t);
@@ -1224,8 +1231,9 @@ END_TEST
 START_TEST(test_source_tiny_plain_files)
 {
     /* Source of truth: source.h (fewer than 4 bytes cannot hold the zstd
-     * magic, so such input is plain; an empty file reads as empty). */
-    static const char *const texts[] = {"", "a", "ab\n", "(\xB5/"};
+     * magic, nor 1 byte the gzip magic, so such input is plain; an empty
+     * file reads as empty). */
+    static const char *const texts[] = {"", "a", "ab\n", "(\xB5/", "\x1f"};
     tmpdir t;
     char path[PATH_CAP];
     size_t i;
@@ -1235,10 +1243,215 @@ START_TEST(test_source_tiny_plain_files)
         bytes plain = {0};
         bytes_str(&plain, texts[i]);
         write_file(path, plain.p, plain.n);
-        expect_same_text(path, &plain, 0);
+        expect_same_text(path, &plain, MR__COMPRESSION_NONE);
         bytes_free(&plain);
     }
     tmp_close(&t);
+}
+END_TEST
+
+/* The corpus text gzipped by the gzip tool, as one member or as members of
+ * pieces cut at random places (rows cut in two included), with an empty
+ * member among them: the text a multi-member file holds is its members'
+ * texts one after another (RFC 1952 2.2). */
+static void write_gzip_members(const tmpdir *t, const bytes *text, size_t nparts, uint64_t seed, const char *out)
+{
+    rng r = {seed};
+    char piece[PATH_CAP], gz[PATH_CAP], cmd[1024];
+    size_t k, from = 0;
+    tmp_path(t, "piece", piece);
+    tmp_path(t, "piece.gz", gz);
+    snprintf(cmd, sizeof cmd, ": > '%s'", out);
+    ck_assert_int_eq(system(cmd), 0);
+    for (k = 0; k < nparts; k++) {
+        size_t to = k + 1 == nparts ? text->n : from + rng_below(&r, text->n - from + 1);
+        write_file(piece, text->p + from, to - from);
+        run("gzip -n -c < '%s' > '%s'", piece, gz);
+        snprintf(cmd, sizeof cmd, "cat '%s' >> '%s'", gz, out);
+        ck_assert_int_eq(system(cmd), 0);
+        if (k == 0) { /* an empty member (gzip of nothing) after the first */
+            write_file(piece, "", 0);
+            run("gzip -n -c < '%s' > '%s'", piece, gz);
+            snprintf(cmd, sizeof cmd, "cat '%s' >> '%s'", gz, out);
+            ck_assert_int_eq(system(cmd), 0);
+        }
+        from = to;
+    }
+}
+
+START_TEST(test_source_gzip_roundtrip)
+{
+    /* Source of truth: the gzip command-line tool (an independent
+     * compressor), the bytes it was given, RFC 1952 (members). */
+    corpus cp;
+    tmpdir t;
+    char plain_path[PATH_CAP], gpath[PATH_CAP];
+    make_corpus(&cp, quick() ? 3000 : 12000, 6, 1);
+    tmp_open(&t);
+    tmp_path(&t, "a.csv", plain_path);
+    tmp_path(&t, "a.csv.gz", gpath);
+    write_file(plain_path, cp.text.p, cp.text.n);
+    run("gzip -q -c '%s' > '%s'", plain_path, gpath); /* a header with the file name */
+    expect_same_text(gpath, &cp.text, MR__COMPRESSION_GZIP);
+    write_gzip_members(&t, &cp.text, 3, 41, gpath);
+    expect_same_text(gpath, &cp.text, MR__COMPRESSION_GZIP);
+    tmp_close(&t);
+    free_corpus(&cp);
+}
+END_TEST
+
+/* A stream decoded straight from memory by codec c, as a fuzz target
+ * would: the input handed over in slices of random sizes (each in a
+ * buffer of its own, so that a read past a slice is caught under ASan),
+ * the output taken in pieces of random sizes. */
+static void decode_in_slices(const mr__codec *c, const bytes *in, bytes *out, uint64_t seed)
+{
+    static const unsigned char none[1] = {0};
+    rng r = {seed};
+    char piece[4096];
+    unsigned char *slice = NULL;
+    mr__codec_io io = {none, 0, 0, 0, piece, 0, 0};
+    uint64_t fed = 0;
+    mr__error err;
+    void *dec;
+    memset(out, 0, sizeof *out);
+    bytes_str(out, "");
+    ck_assert_int_eq(c->open(&dec, "memory", &err), MR_OK);
+    for (;;) {
+        if (io.in_pos == io.in_len && fed < in->n) {
+            size_t k = rng_below(&r, 3) == 0 ? 1 + rng_below(&r, 9) : 1 + rng_below(&r, 40000);
+            if (k > in->n - fed) k = (size_t)(in->n - fed);
+            free(slice);
+            slice = malloc(k);
+            ck_assert_ptr_nonnull(slice);
+            memcpy(slice, in->p + fed, k);
+            io.in = slice;
+            io.in_len = k;
+            io.in_pos = 0;
+            io.in_offset = fed;
+            fed += k;
+        }
+        io.out_pos = 0;
+        io.out_cap = rng_below(&r, 8) == 0 ? 1 + rng_below(&r, 3) : 1 + rng_below(&r, sizeof piece);
+        ck_assert_msg(c->step(dec, &io, &err) == MR_OK, "%s", err.msg);
+        bytes_add(out, piece, io.out_pos);
+        if (fed == in->n && io.in_pos == io.in_len && io.out_pos == 0) break;
+    }
+    ck_assert_msg(c->end(dec, fed, &err) == MR_OK, "%s", err.msg);
+    c->close(dec);
+    free(slice);
+}
+
+START_TEST(test_codec_random_slices)
+{
+    /* Source of truth: the gzip and zstd tools (independent compressors)
+     * and the bytes they were given; codec.h (a decoder driven from memory
+     * gives the text whatever the slices). */
+    static const char *const tools[] = {"gzip -n -c < '%s' > '%s'", "zstd -q -c < '%s' > '%s'"};
+    corpus cp;
+    tmpdir t;
+    char plain_path[PATH_CAP], cpath[PATH_CAP];
+    size_t k, round;
+    make_corpus(&cp, quick() ? 2000 : 6000, 8, 1);
+    tmp_open(&t);
+    tmp_path(&t, "s.csv", plain_path);
+    tmp_path(&t, "s.csv.c", cpath);
+    write_file(plain_path, cp.text.p, cp.text.n);
+    for (k = 0; k < 3; k++) {
+        bytes packed;
+        const mr__codec *c;
+        if (k < 2) run(tools[k], plain_path, cpath);
+        else write_gzip_members(&t, &cp.text, 4, 77, cpath);
+        read_file(cpath, &packed);
+        c = mr__codec_find((const unsigned char *)packed.p, packed.n);
+        ck_assert_ptr_eq(c, k == 1 ? &mr__codec_zstd : &mr__codec_gzip);
+        for (round = 0; round < (quick() ? 3u : 12u); round++) {
+            bytes got;
+            decode_in_slices(c, &packed, &got, 1000 * k + round);
+            ck_assert_msg(got.n == cp.text.n && memcmp(got.p, cp.text.p, got.n) == 0,
+                          "codec %s round %zu: %zu bytes out, %zu expected", c->name, round, got.n, cp.text.n);
+            bytes_free(&got);
+        }
+        bytes_free(&packed);
+    }
+    tmp_close(&t);
+    free_corpus(&cp);
+}
+END_TEST
+
+START_TEST(test_source_gzip_errors)
+{
+    /* Source of truth: RFC 1952 (a member ends with the CRC-32 and the
+     * length of its text; a file is members and nothing else), RFC 1951
+     * (block type 11 is an error; byte 10 of a header without a name
+     * starts the first block, its bits 1-2 the type), and source.h (each
+     * is MR_ERR_FORMAT).  gzip -n writes a 10-byte header. */
+    corpus cp;
+    tmpdir t;
+    char plain_path[PATH_CAP], gpath[PATH_CAP], bad[PATH_CAP];
+    bytes g, b;
+    make_corpus(&cp, 3000, 19, 1);
+    tmp_open(&t);
+    tmp_path(&t, "e.csv", plain_path);
+    tmp_path(&t, "e.csv.gz", gpath);
+    tmp_path(&t, "bad.gz", bad);
+    write_file(plain_path, cp.text.p, cp.text.n);
+    run("gzip -n -c < '%s' > '%s'", plain_path, gpath);
+    read_file(gpath, &g);
+    ck_assert_uint_gt(g.n, 100);
+
+    write_file(bad, g.p, 5); /* inside the header */
+    expect_format_error(bad, "the gzip stream ends inside a member (member 1, from offset 0");
+    write_file(bad, g.p, g.n / 2); /* inside the data */
+    expect_format_error(bad, "the gzip stream ends inside a member (member 1");
+    write_file(bad, g.p, g.n - 3); /* inside the trailer */
+    expect_format_error(bad, "the gzip stream ends inside a member");
+
+    read_file(gpath, &b);
+    b.p[b.n - 8] = (char)(b.p[b.n - 8] ^ 0x01); /* the CRC-32 */
+    write_file(bad, b.p, b.n);
+    expect_format_error(bad, "corrupt gzip stream (member 1, found at offset");
+    expect_format_error(bad, "the CRC-32 in its trailer does not match its data");
+
+    bytes_free(&b);
+    read_file(gpath, &b);
+    b.p[10] = 0x07; /* last block, type 11 */
+    write_file(bad, b.p, b.n);
+    expect_format_error(bad, "corrupt gzip stream (member 1, found at offset");
+
+    /* A second member whose trailer is damaged: the message counts it. */
+    bytes_free(&b);
+    read_file(gpath, &b);
+    bytes_add(&b, g.p, g.n);
+    b.p[b.n - 1] = (char)(b.p[b.n - 1] ^ 0x01); /* the length */
+    write_file(bad, b.p, b.n);
+    expect_format_error(bad, "member 2");
+    expect_format_error(bad, "the length in its trailer does not match its data");
+
+    b.n = g.n;
+    bytes_str(&b, "x,y\n1,2\n"); /* a plain tail */
+    write_file(bad, b.p, b.n);
+    {
+        char want[128];
+        snprintf(want, sizeof want, "trailing garbage: the bytes from offset %zu on, after gzip member 1", g.n);
+        expect_format_error(bad, want);
+    }
+    b.n = g.n;
+    bytes_add(&b, "\x1f", 1); /* the first byte of a member, no more */
+    write_file(bad, b.p, b.n);
+    expect_format_error(bad, "the gzip stream ends inside a member (member 2");
+    b.n = g.n;
+    bytes_add(&b, "\x1f\x8c", 2); /* not quite the magic */
+    write_file(bad, b.p, b.n);
+    expect_format_error(bad, "trailing garbage");
+
+    write_file(bad, "\x1f\x8b", 2); /* the magic alone */
+    expect_format_error(bad, "the gzip stream ends inside a member");
+
+    bytes_free(&b);
+    bytes_free(&g);
+    tmp_close(&t);
+    free_corpus(&cp);
 }
 END_TEST
 
@@ -1291,6 +1504,9 @@ static Suite *input_suite(void)
     tcase_add_test(source, test_source_skippable_frame_first);
     tcase_add_test(source, test_source_truncated_and_corrupt);
     tcase_add_test(source, test_source_tiny_plain_files);
+    tcase_add_test(source, test_source_gzip_roundtrip);
+    tcase_add_test(source, test_codec_random_slices);
+    tcase_add_test(source, test_source_gzip_errors);
     tcase_add_test(source, test_source_missing_file);
     tcase_set_timeout(source, 120);
     suite_add_tcase(s, source);

@@ -169,6 +169,10 @@ static const scenario cached = {"samples/falls.csv", 0, 1};
 static const scenario uncached = {"samples/falls.csv", 1, 1};
 static const scenario compressed = {"samples/falls.csv.zst", 0, 0};
 static const scenario standard_input = {"-", 0, 1};
+/* samples/falls.csv through the gzip tool (made in main), every pass
+ * decompressing it again */
+static char gzip_path[128];
+static const scenario gzipped_rereads = {gzip_path, 1, 1};
 
 /* ---- the HTML page: the same rules for another output ---- */
 
@@ -256,6 +260,8 @@ START_TEST(test_compressed_patterns) { every_call(&compressed); }
 END_TEST
 START_TEST(test_standard_input) { every_call(&standard_input); }
 END_TEST
+START_TEST(test_gzip_rereads) { every_call(&gzipped_rereads); }
+END_TEST
 
 /* A drift's CSV and a run-log line with the n-th I/O call failing (or
  * short): MR_ERR_IO with a message, or success, and no temporary file
@@ -319,6 +325,12 @@ int main(void)
     if (mkdtemp(dir) == NULL) return EXIT_FAILURE;
     snprintf(json_path, sizeof json_path, "%s/fit.json", dir);
     snprintf(page_path, sizeof page_path, "%s/page.html", dir);
+    snprintf(gzip_path, sizeof gzip_path, "%s/falls.csv.gz", dir);
+    {
+        char cmd[256];
+        snprintf(cmd, sizeof cmd, "gzip -n -c < samples/falls.csv > '%s'", gzip_path);
+        if (system(cmd) != 0) return EXIT_FAILURE;
+    }
     tcase_set_timeout(tc, 600);
     tcase_add_test(tc, test_cached_rows);
     tcase_add_test(tc, test_rereads);
@@ -326,10 +338,12 @@ int main(void)
     tcase_add_test(tc, test_standard_input);
     tcase_add_test(tc, test_drift_and_run_log);
     tcase_add_test(tc, test_html_page);
+    tcase_add_test(tc, test_gzip_rereads);
     suite_add_tcase(s, tc);
     {
         int rc = mr_check_run(s, 1); /* no fork: the leak checker sees the whole run */
         unlink(json_path);
+        unlink(gzip_path);
         rmdir(dir);
         return rc;
     }

@@ -73,7 +73,7 @@ static const struct option report_options[] = {
 };
 
 static const char usage_text[] =
-    "usage: millrace fit [options] DATA     fit a GLM to DATA (CSV, TSV, zstd-compressed, or - for stdin)\n"
+    "usage: millrace fit [options] DATA     fit a GLM to DATA (CSV, TSV, zstd or gzip, or - for stdin)\n"
     "       millrace show [--digits N] FIT.json   the report of a fit saved with --json\n"
     "       millrace drift [--threshold SE] [--json PATH] [--csv PATH] [--digits N] OLD.json NEW.json\n"
     "                               what changed between two saved fits of one model (default 3 SE)\n"

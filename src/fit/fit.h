@@ -74,7 +74,7 @@ struct mr_fit {
     uint64_t file_size;    /* the file's identity when the first pass read it */
     int64_t file_mtime_ns; /* since the epoch */
     uint64_t bytes, decompressed_bytes, checksum;
-    int zstd;
+    int compression; /* an mr__compression (input/codec.h) */
     char delimiter;
     int delimiter_detected;
     int threads, max_passes, in_memory, skip_bad, cached;

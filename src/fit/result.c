@@ -363,7 +363,7 @@ static mr_status copy_run_info(mr_fit *fit, const mr__run *r, mr__error *err)
     fit->bytes = r->first.raw_bytes;
     fit->decompressed_bytes = r->first.out_bytes;
     fit->checksum = r->first.checksum;
-    fit->zstd = r->first.zstd;
+    fit->compression = r->first.zstd; /* the pass's field holds the mr__compression */
     fit->delimiter = r->delim;
     fit->delimiter_detected = r->delim_detected;
     fit->threads = r->nthreads;

@@ -4,12 +4,12 @@
 #include <string.h>
 #include <sys/stat.h>
 #include <unistd.h>
-#include <zstd.h>
 
 #include "common/alloc.h"
 #include "common/checksum.h"
 #include "common/fileio.h"
 #include "common/sysio.h"
+#include "input/codec.h"
 #include "input/source.h"
 
 struct mr__source {
@@ -17,9 +17,9 @@ struct mr__source {
     const char *display;
     char *raw;            /* raw read buffer */
     size_t raw_cap, raw_len, raw_pos;
-    int eof, zstd, sniffed, is_file;
-    size_t frame_left;    /* ZSTD_decompressStream's last hint: 0 = frame ended */
-    ZSTD_DStream *ds;
+    int eof, sniffed, is_file;
+    const mr__codec *codec; /* NULL: plain text */
+    void *dec;              /* the codec's decoder */
     uint64_t raw_bytes, out_bytes, size, checksum;
     int64_t mtime_ns;
     char carry[8]; /* bytes of a checksum word not yet complete */
@@ -77,7 +77,7 @@ void mr__source_close(mr__source *s)
 {
     if (s == NULL) return;
     if (s->owns_fd) close(s->fd);
-    ZSTD_freeDStream(s->ds);
+    if (s->codec != NULL) s->codec->close(s->dec);
     mr__free(s->raw);
     mr__free(s);
 }
@@ -143,17 +143,17 @@ static mr_status fill_raw(mr__source *s, mr__error *err)
     return read_into(s, s->raw, s->raw_cap, &s->raw_len, err);
 }
 
-/* A zstd frame or a skippable frame starts the stream: the input is
- * compressed.  Needs the first 4 bytes, which may take several reads, of
- * at most SNIFF_READ bytes: plain text is then read straight into the
- * caller's buffers, and what the first read took is copied there again. */
+/* A codec's magic starts the stream (input/codec.h): the input is
+ * compressed.  Needs the first MR__CODEC_MAGIC_MAX bytes, which may take
+ * several reads, of at most SNIFF_READ bytes: plain text is then read
+ * straight into the caller's buffers, and what the first read took is
+ * copied there again. */
 enum { SNIFF_READ = 64u << 10 };
 
 static mr_status sniff(mr__source *s, mr__error *err)
 {
-    unsigned char m[4];
-    uint32_t magic;
-    while (s->raw_len - s->raw_pos < 4 && !s->eof) {
+    const mr__codec *codec;
+    while (s->raw_len - s->raw_pos < MR__CODEC_MAGIC_MAX && !s->eof) {
         /* Keep what we have and append: the first reads may be tiny. */
         size_t have = s->raw_len - s->raw_pos, room = s->raw_cap - have, got;
         memmove(s->raw, s->raw + s->raw_pos, have);
@@ -163,15 +163,10 @@ static mr_status sniff(mr__source *s, mr__error *err)
         s->raw_len += got;
     }
     s->sniffed = 1;
-    if (s->raw_len - s->raw_pos < 4) return MR_OK;
-    memcpy(m, s->raw + s->raw_pos, 4);
-    magic = (uint32_t)m[0] | (uint32_t)m[1] << 8 | (uint32_t)m[2] << 16 | (uint32_t)m[3] << 24;
-    if (magic == ZSTD_MAGICNUMBER || (magic & ZSTD_MAGIC_SKIPPABLE_MASK) == ZSTD_MAGIC_SKIPPABLE_START) {
-        s->zstd = 1;
-        s->ds = ZSTD_createDStream();
-        if (s->ds == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-        ZSTD_initDStream(s->ds);
-    }
+    codec = mr__codec_find((const unsigned char *)s->raw + s->raw_pos, s->raw_len - s->raw_pos);
+    if (codec == NULL) return MR_OK;
+    MR__TRY(codec->open(&s->dec, s->display, err));
+    s->codec = codec;
     return MR_OK;
 }
 
@@ -190,31 +185,28 @@ static mr_status read_plain(mr__source *s, char *buf, size_t cap, size_t *got, m
     return MR_OK;
 }
 
-static mr_status read_zstd(mr__source *s, char *buf, size_t cap, size_t *got, mr__error *err)
+/* Raw bytes through the codec until some text comes out or the input
+ * ends (where the codec says whether it ended in the middle of a frame). */
+static mr_status read_compressed(mr__source *s, char *buf, size_t cap, size_t *got, mr__error *err)
 {
-    ZSTD_outBuffer ob = {buf, cap, 0};
-    while (ob.pos == 0) {
-        ZSTD_inBuffer ib;
-        size_t r;
+    mr__codec_io io = {NULL, 0, 0, 0, buf, cap, 0};
+    while (io.out_pos == 0) {
         MR__TRY(fill_raw(s, err));
         if (s->raw_pos == s->raw_len && s->eof) {
-            if (s->frame_left != 0)
-                return mr__fail(err, MR_ERR_FORMAT,
-                                "%s: truncated zstd stream (ends inside a frame after %llu bytes)", s->display,
-                                (unsigned long long)s->raw_bytes);
+            MR__TRY(s->codec->end(s->dec, s->raw_bytes, err));
             break;
         }
-        ib.src = s->raw;
-        ib.size = s->raw_len;
-        ib.pos = s->raw_pos;
-        r = ZSTD_decompressStream(s->ds, &ob, &ib);
-        if (ZSTD_isError(r))
-            return mr__fail(err, MR_ERR_FORMAT, "%s: corrupt zstd stream (within the first %llu bytes): %s",
-                            s->display, (unsigned long long)s->raw_bytes, ZSTD_getErrorName(r));
-        s->raw_pos = ib.pos;
-        s->frame_left = r;
+        io.in = (const unsigned char *)s->raw;
+        io.in_len = s->raw_len;
+        io.in_pos = s->raw_pos;
+        io.in_offset = s->raw_bytes - s->raw_len; /* raw[raw_len - 1] is the last byte read */
+        MR__TRY(s->codec->step(s->dec, &io, err));
+        if (io.in_pos == s->raw_pos && io.out_pos == 0)
+            return mr__fail(err, MR_ERR_INTERNAL, "%s: the %s decoder made no progress at offset %llu", s->display,
+                            s->codec->name, (unsigned long long)(io.in_offset + io.in_pos));
+        s->raw_pos = io.in_pos;
     }
-    *got = ob.pos;
+    *got = io.out_pos;
     return MR_OK;
 }
 
@@ -222,7 +214,7 @@ mr_status mr__source_read(mr__source *s, char *buf, size_t cap, size_t *got, mr_
 {
     *got = 0;
     if (!s->sniffed) MR__TRY(sniff(s, err));
-    MR__TRY(s->zstd ? read_zstd(s, buf, cap, got, err) : read_plain(s, buf, cap, got, err));
+    MR__TRY(s->codec ? read_compressed(s, buf, cap, got, err) : read_plain(s, buf, cap, got, err));
     s->out_bytes += *got;
     return MR_OK;
 }
@@ -230,7 +222,8 @@ mr_status mr__source_read(mr__source *s, char *buf, size_t cap, size_t *got, mr_
 uint64_t mr__source_raw_bytes(const mr__source *s) { return s->raw_bytes; }
 uint64_t mr__source_size(const mr__source *s) { return s->size; }
 uint64_t mr__source_out_bytes(const mr__source *s) { return s->out_bytes; }
-int mr__source_is_zstd(const mr__source *s) { return s->zstd; }
+int mr__source_compression(const mr__source *s) { return s->codec ? (int)s->codec->id : MR__COMPRESSION_NONE; }
+int mr__source_is_zstd(const mr__source *s) { return mr__source_compression(s); }
 int mr__source_is_file(const mr__source *s) { return s->is_file; }
 
 mr_status mr__source_pread(const mr__source *s, char *buf, size_t n, uint64_t offset, mr__error *err)

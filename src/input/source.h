@@ -1,9 +1,11 @@
-/* source.h - bytes in: a file or standard input, plain or zstd-compressed.
+/* source.h - bytes in: a file or standard input, plain or compressed
+ * (zstd or gzip: the codecs of input/codec.h).
  *
- * Compression is recognised by the zstd frame magic (or a skippable frame),
- * never by the file name, and a stream of several concatenated frames reads
- * as one.  The source also counts and checksums the raw bytes so a report
- * can say exactly which input it describes. */
+ * Compression is recognised by a codec's magic bytes at the start of the
+ * stream, never by the file name, and a stream of several concatenated
+ * zstd frames or gzip members reads as one.  The source also counts and
+ * checksums the raw bytes (as read, compressed or not) so a report can say
+ * exactly which file it describes. */
 #ifndef MR_SOURCE_H
 #define MR_SOURCE_H
 
@@ -21,13 +23,20 @@ mr_status mr__source_open(mr__source **out, const char *path, const char *displa
                           int tee_fd, mr__error *err);
 void mr__source_close(mr__source *s);
 
-/* Fills buf with up to cap decompressed bytes; *got = 0 only at the end of
- * the input.  Truncated or corrupt zstd input is MR_ERR_FORMAT. */
+/* Fills buf with up to cap (> 0) decompressed bytes; *got = 0 only at the
+ * end of the input.  Truncated or corrupt compressed input, and bytes after
+ * the last gzip member that begin no other, are MR_ERR_FORMAT. */
 mr_status mr__source_read(mr__source *s, char *buf, size_t cap, size_t *got, mr__error *err);
 
 uint64_t mr__source_raw_bytes(const mr__source *s);  /* raw bytes consumed */
 uint64_t mr__source_size(const mr__source *s);       /* file size, 0 if unknown */
 uint64_t mr__source_out_bytes(const mr__source *s);  /* decompressed bytes */
+/* The input's mr__compression (input/codec.h): MR__COMPRESSION_NONE for
+ * plain text, whose bytes are the text itself. */
+int mr__source_compression(const mr__source *s);
+/* The same value, under its name from before gzip input: nonzero for any
+ * compressed input, which callers read as "the raw bytes are not the text"
+ * (no block map, no rereads by offset). */
 int mr__source_is_zstd(const mr__source *s);
 /* FNV-1a 64 of the raw bytes read so far, taken as little-endian 64-bit
  * words (the last partial word zero-padded). */

@@ -12,6 +12,7 @@
 #include "common/error.h"
 #include "common/outfile.h"
 #include "family/family.h"
+#include "input/codec.h"
 #include "output/html.h"
 #include "output/html_text.h"
 
@@ -138,8 +139,10 @@ static void summary_data(mr__strbuf *b, const mr_fit *f)
     size_t i;
     put(b, "<h3>Data read</h3>\n<table>\n<tr><th>file</th>");
     cell(b, "td", f->path);
-    mr__strbuf_printf(b, "</tr>\n<tr><th>read</th><td>%llu bytes%s, checksum fnv1a64w:%016llx</td></tr>\n",
-                      (unsigned long long)f->bytes, f->zstd ? " (zstd)" : "", (unsigned long long)f->checksum);
+    mr__strbuf_printf(b, "</tr>\n<tr><th>read</th><td>%llu bytes%s%s%s, checksum fnv1a64w:%016llx</td></tr>\n",
+                      (unsigned long long)f->bytes, f->compression ? " (" : "",
+                      f->compression ? mr__compression_name(f->compression) : "", f->compression ? ")" : "",
+                      (unsigned long long)f->checksum);
     row_count(b, "rows read", f->rows_read);
     row_count(b, "rows used", f->rows_used);
     row_count(b, "rows left out", f->rows_read - f->rows_used);

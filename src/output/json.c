@@ -17,6 +17,7 @@
 #include "common/error.h"
 #include "family/family.h"
 #include "fit/fit.h"
+#include "input/codec.h"
 #include "output/json_schema.h"
 #include "output/json_text.h"
 #include "output/json_util.h"
@@ -161,6 +162,7 @@ static json_t *scalar(const mr__jfield *fl, const void *v)
     case MR__J_CHOICE: return json_string(*(const int *)v ? fl->yes : fl->no);
     case MR__J_FAMILY: return json_string(mr__family_name((mr_family) * (const int *)v));
     case MR__J_LINK: return json_string(mr__link_name((mr_link) * (const int *)v));
+    case MR__J_COMPRESSION: return json_string(mr__compression_name(*(const int *)v));
     case MR__J_CHECKSUM:
         snprintf(buf, sizeof buf, "fnv1a64w:%016llx", (unsigned long long)*(const uint64_t *)v);
         return json_string(buf);

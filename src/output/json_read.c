@@ -15,6 +15,7 @@
 #include "common/utf8.h"
 #include "family/family.h"
 #include "fit/fit.h"
+#include "input/codec.h"
 #include "output/json_schema.h"
 #include "output/json_text.h"
 
@@ -112,6 +113,10 @@ static mr_status read_named(reader *r, const mr__jfield *fl, json_t *v, int *out
         *out = strcmp(w, fl->yes) == 0;
         return MR_OK;
     case MR__J_FAMILY: k = mr__family_from_name(w); break;
+    case MR__J_COMPRESSION:
+        k = mr__compression_from_name(w);
+        if (k < 0) return bad(r, "names no compression this library knows");
+        break;
     default: k = mr__link_from_name(w); break;
     }
     if (k < 0) return bad(r, "names no family or link this library knows");

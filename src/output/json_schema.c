@@ -25,7 +25,7 @@ static const mr__jfield input_fields[] = {
     F("path", MR__J_TEXT, path),
     F("bytes", MR__J_U64, bytes),
     F("decompressed_bytes", MR__J_U64, decompressed_bytes),
-    CHOICE("compression", zstd, "zstd", "none"),
+    F("compression", MR__J_COMPRESSION, compression),
     F("checksum", MR__J_CHECKSUM, checksum),
     F("delimiter", MR__J_CHAR, delimiter),
     CHOICE("delimiter_source", delimiter_detected, "detected", "option"),

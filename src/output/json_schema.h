@@ -25,6 +25,7 @@ typedef enum mr__jkind {
     MR__J_CHOICE,        /* int: 1 is the word `yes`, 0 the word `no` */
     MR__J_FAMILY,        /* int, an mr_family by name */
     MR__J_LINK,          /* int, an mr_link by name */
+    MR__J_COMPRESSION,   /* int, an mr__compression by name */
     MR__J_CHECKSUM,      /* uint64_t as "fnv1a64w:" and 16 hex digits */
     MR__J_CHAR,          /* char as a string of one byte */
     MR__J_COUNT_OR_NULL, /* size_t; 0 is null */

@@ -8,6 +8,7 @@
 #include "common/strbuf.h"
 #include "family/family.h"
 #include "fit/fit.h"
+#include "input/codec.h"
 #include "input/chunk.h"
 
 #define DEFAULT_DIGITS 6
@@ -37,9 +38,9 @@ static void put_pvalue(mr__strbuf *b, double p, int width)
 static void section_data(mr__strbuf *b, const mr_fit *f)
 {
     size_t i;
-    mr__strbuf_printf(b, "data       %s (%s, %llu bytes read", f->path, f->zstd ? "zstd" : "plain text",
-                      (unsigned long long)f->bytes);
-    if (f->zstd) mr__strbuf_printf(b, ", %llu bytes of text", (unsigned long long)f->decompressed_bytes);
+    mr__strbuf_printf(b, "data       %s (%s, %llu bytes read", f->path,
+                      f->compression ? mr__compression_name(f->compression) : "plain text", (unsigned long long)f->bytes);
+    if (f->compression) mr__strbuf_printf(b, ", %llu bytes of text", (unsigned long long)f->decompressed_bytes);
     mr__strbuf_printf(b, ")\n           checksum fnv1a64w:%016llx, delimiter %s (%s)\n", (unsigned long long)f->checksum,
                       delimiter_name(f->delimiter), f->delimiter_detected ? "detected from the header" : "as given");
     mr__strbuf_printf(b, "rows       %llu read, %llu used, %llu left out\n", (unsigned long long)f->rows_read,

@@ -1,7 +1,7 @@
 #!/usr/bin/env bash
 # The same fit must give bit-identical estimates, standard errors and deviance
-# whatever the thread count, read size, in-memory mode, compression, line
-# endings or whether the data come from a file or standard input.  The raw
+# whatever the thread count, read size, in-memory mode, compression (zstd,
+# gzip), line endings or whether the data come from a file or standard input.  The raw
 # JSON text of the numbers is compared, so even a last-bit difference fails.
 source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
 
@@ -23,6 +23,7 @@ with open(sys.argv[1], "w") as fh:
     fh.writelines("%d,%s,%s,%r,%r\n" % row for row in zip(y, region, sex, age, years))
 EOF
 zstd -q -f "$tmp/data.csv" -o "$tmp/data.csv.zst"
+gzip -n -c < "$tmp/data.csv" > "$tmp/data.csv.gz"
 sed 's/$/\r/' "$tmp/data.csv" > "$tmp/data_crlf.csv"
 
 model=(--outcome claims --family poisson --factor "region ref=north" --factor sex
@@ -89,5 +90,7 @@ check stdin_buffer_16 --threads 1 --buffer-size 16 - < <(cat "$tmp/data.csv")
 check stdin_in_memory --in-memory - < <(cat "$tmp/data.csv")
 check stdin_no_cache --threads 2 --no-cache --buffer-size 16 - < <(cat "$tmp/data.csv")
 check stdin_zstd --threads 2 - < <(cat "$tmp/data.csv.zst")
+check gzip_buffer_16 --threads 4 --buffer-size 16 "$tmp/data.csv.gz"
+check stdin_gzip_no_cache --threads 2 --no-cache - < <(cat "$tmp/data.csv.gz")
 
 finish

@@ -177,6 +177,32 @@ printf '\xde\xad\xbe\xef\x00\xff\x13\x37\xde\xad\xbe\xef\x00\xff\x13\x37' |
     dd of="$f" bs=1 seek=$((size / 2)) conv=notrunc status=none
 expect corrupt_zstd 4 "$f" "$f" -- "${poisson_model[@]}"
 
+# gzip (RFC 1952): gzip -n writes a 10-byte header, so byte 10 begins the
+# first deflate block (RFC 1951: bits 1-2 its type, 11 reserved); the
+# member ends with the text's CRC-32 and length, 8 bytes.
+gzip -n -c < "$big" > "$tmp/big.csv.gz"
+size=$(stat -c %s "$tmp/big.csv.gz")
+f="$tmp/truncated.csv.gz"
+head -c $((size / 2)) "$tmp/big.csv.gz" > "$f"
+expect truncated_gzip 4 "$f" "$f: the gzip stream ends inside a member (member 1, from offset 0" -- "${poisson_model[@]}"
+f="$tmp/corrupt_crc.csv.gz"
+cp "$tmp/big.csv.gz" "$f"
+printf '\x5a' | dd of="$f" bs=1 seek=$((size - 8)) conv=notrunc status=none
+expect corrupt_crc_gzip 4 "$f" "$f: corrupt gzip stream (member 1, found at offset $((size - 4))):" \
+    "the CRC-32 in its trailer does not match its data" -- "${poisson_model[@]}"
+f="$tmp/corrupt_data.csv.gz"
+cp "$tmp/big.csv.gz" "$f"
+printf '\x07' | dd of="$f" bs=1 seek=10 conv=notrunc status=none
+expect corrupt_data_gzip 4 "$f" "$f: corrupt gzip stream (member 1, found at offset 11): invalid block type" -- \
+    "${poisson_model[@]}"
+f="$tmp/garbage_tail.csv.gz"
+{ cat "$tmp/big.csv.gz"; tail -n +2 "$big" | gzip -n -c; } > "$f"
+size=$(stat -c %s "$f")
+printf 'y,g\n' >> "$f"
+expect garbage_tail_gzip 4 "$f" \
+    "$f: trailing garbage: the bytes from offset $size on, after gzip member 2, are not a gzip member" -- \
+    "${poisson_model[@]}"
+
 # ---- no data (exit 6)
 f="$tmp/empty.csv"
 : > "$f"

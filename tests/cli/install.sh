@@ -66,7 +66,7 @@ pc_has() { # pc_has LINE...: each line is in the installed millrace.pc
 check "millrace.pc: prefix, version, directories" pc_has "prefix=/usr/local" "Version: $version" \
     'libdir=${prefix}/lib' 'includedir=${prefix}/include'
 check "millrace.pc: private dependencies for a static link" pc_has \
-    "Requires.private: openblas lapacke jansson libzstd" "Libs.private: -lcsv -pthread -lm"
+    "Requires.private: openblas lapacke jansson libzstd zlib" "Libs.private: -lcsv -pthread -lm"
 
 check "make uninstall DESTDIR" make -s uninstall DESTDIR="$stage" PREFIX=/usr/local
 printf '%s\n' usr/local/lib/libother.so.1 usr/local/share/man/man1/other.1 >"$tmp/want"

@@ -2,7 +2,7 @@
 # A short tour of the command on the bundled samples, run under whatever
 # $MILLRACE says (the ASan build, or the normal build under valgrind), so
 # that every main path of the library runs at least once with a checker
-# watching: zstd and plain input, standard input, threads, in-memory mode,
+# watching: zstd, gzip and plain input, standard input, threads, in-memory mode,
 # rereads of a plain file by the block map,
 # both sample models, JSON output and reading it back, the HTML page, and
 # an error path.
@@ -30,6 +30,7 @@ expect "poisson zstd sample" 0 $MILLRACE fit -m samples/falls.model --quiet --js
 expect "logistic sample, 1 thread, in memory" 0 $MILLRACE fit -m samples/screening.model --threads 1 --in-memory --quiet samples/screening.csv
 expect "plain file reread by the block map" 0 $MILLRACE fit -m samples/screening.model --threads 2 --no-cache --no-collapse --quiet samples/screening.csv
 expect "standard input, tiny reads" 0 sh -c "cat samples/falls.csv | $MILLRACE fit -m samples/falls.model --buffer-size 4096 --quiet -"
+expect "gzip members on standard input, rereads" 0 sh -c "{ head -n 1000 samples/falls.csv | gzip; tail -n +1001 samples/falls.csv | gzip; } | $MILLRACE fit -m samples/falls.model --no-collapse --no-cache --buffer-size 4096 --quiet -"
 expect "options override the model file" 0 $MILLRACE fit -m samples/falls.model --family poisson --link log --dispersion estimate --quiet samples/falls.csv
 expect "unknown column is a usage error" 2 $MILLRACE fit --outcome nosuch --family poisson --quiet samples/falls.csv
 printf 'y,x\n1,2\n3,zz\n' >"$tmp/bad.csv"
@@ -42,16 +43,7 @@ expect "drift of two fits, written as JSON and CSV" 0 $MILLRACE drift --json "$t
 expect "saved fits as an HTML page, with their comparison" 0 $MILLRACE report --html "$tmp/f.html" --at year=2020 "$tmp/f.json" "$tmp/f.json"
 # The checksum, recomputed from its documented definition (README, JSON
 # output) by an independent implementation.
-want=$(/usr/bin/python3 -c '
-import struct, sys
-data = open(sys.argv[1], "rb").read()
-h, prime, cut = 0xcbf29ce484222325, 0x100000001b3, len(data) // 8 * 8
-for i in range(0, cut, 8):
-    h = ((h ^ struct.unpack("<Q", data[i:i + 8])[0]) * prime) % 2**64
-if cut < len(data):
-    h = ((h ^ int.from_bytes(data[cut:].ljust(8, bytes(1)), "little")) * prime) % 2**64
-print("fnv1a64w:%016x" % h)
-' samples/falls.csv.zst)
+want=$(/usr/bin/python3 tests/cli/checksum.py samples/falls.csv.zst)
 grep -q "\"$want\"" "$tmp/f.json" && { pass=$((pass + 1)); echo "ok checksum $want"; } ||
     { fail=$((fail + 1)); echo "FAIL checksum: wanted $want"; }
 echo "$pass passed, $fail failed"
