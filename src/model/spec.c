@@ -211,14 +211,14 @@ static mr_status check_increasing(const double *v, size_t n, const char *what, c
     return MR_OK;
 }
 
-static mr_status check_inside(const mr__spline_spec *sp, const char *origin, mr__error *err)
+static mr_status check_inside(const mr__spline_spec *sp, const double *knots, const char *origin, mr__error *err)
 {
     size_t i;
     if (!sp->has_boundary) return MR_OK;
     for (i = 0; i < sp->nknots; i++)
-        if (!(sp->knots[i] > sp->boundary[0] && sp->knots[i] < sp->boundary[1]))
+        if (!(knots[i] > sp->boundary[0] && knots[i] < sp->boundary[1]))
             return mr__fail(err, MR_ERR_USAGE, "%s: spline knot %.17g is not inside the boundary knots %.17g,%.17g",
-                            origin, sp->knots[i], sp->boundary[0], sp->boundary[1]);
+                            origin, knots[i], sp->boundary[0], sp->boundary[1]);
     return MR_OK;
 }
 
@@ -263,7 +263,7 @@ static mr_status parse_spline(mr__spec *s, const words *ws, const char *origin, 
     if ((sp.df > 0) == (sp.nknots > 0))
         return mr__fail(err, MR_ERR_USAGE, "%s: spline takes either df=N or knots=K1,K2,..., not %s", origin,
                         sp.df > 0 ? "both" : "neither");
-    MR__TRY(check_inside(&sp, origin, err));
+    MR__TRY(check_inside(&sp, knots, origin, err));
     MR__TRY(declare_covariate(s, ws->w[1], MR__ROLE_SPLINE, NULL, err));
     c = (mr__covariate *)mr__spec_find(s, ws->w[1]);
     if (sp.nknots > 0) {

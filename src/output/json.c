@@ -75,6 +75,7 @@ static json_t *utc_time(int64_t ns)
 static const char *term_kind(const mr_fit *f, const mr__fit_term *t)
 {
     if (t->nparts > 1) return "interaction";
+    if (t->spline) return "spline";
     return mr__fit_find_factor(f, t->part[0]) >= 0 ? "factor" : "numeric";
 }
 
@@ -119,7 +120,7 @@ static json_t *term_columns(const mr_fit *f, const mr__fit_term *t)
         long fi = mr__fit_find_factor(f, t->part[k]);
         json_t *c = json_object();
         c = put(c, "name", mr__json_text(t->part[k]));
-        c = put(c, "type", json_string(fi >= 0 ? "factor" : "numeric"));
+        c = put(c, "type", json_string(mr__fit_part_type(f, t, k)));
         if (fi >= 0) {
             c = put(c, "reference", mr__json_text(f->factor[fi].reference));
             c = put(c, "levels", levels_used(&f->factor[fi], t));
@@ -207,6 +208,9 @@ static json_t *value(const mr_fit *f, const mr__jfield *fl, const void *base, si
     case MR__J_SPECIAL: return special(f, fl->which, base);
     case MR__J_OBJECT: return object(f, fl->sub, base, index);
     case MR__J_OBJECT_OR_NULL: return *(const int *)(b + fl->count) ? object(f, fl->sub, base, index) : json_null();
+    case MR__J_OBJECT_IF:
+        *skip = !*(const int *)(b + fl->count);
+        return *skip ? NULL : object(f, fl->sub, base, index);
     case MR__J_TEXTS: return text_array(*(char *const *const *)(b + fl->at), *(const size_t *)(b + fl->count));
     case MR__J_REALS:
     case MR__J_RECORDS:

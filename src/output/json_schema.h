@@ -36,7 +36,9 @@ typedef enum mr__jkind {
     MR__J_STRUCTS,       /* an array of `count` structs of `size` bytes at `at`, each the fields `sub` */
     MR__J_KEYED,         /* as STRUCTS, as an object keyed by each struct's text at `key_at` */
     MR__J_DERIVED,       /* written from other fields (`which`), never read */
-    MR__J_SPECIAL        /* a layout of its own (`which`) */
+    MR__J_SPECIAL,       /* a layout of its own (`which`) */
+    MR__J_OBJECT_IF      /* as OBJECT when the int at `count` is 1; else not written, and
+                            absent on reading sets it to 0 (a field only some terms have) */
 } mr__jkind;
 
 /* What derived and special fields are. */
