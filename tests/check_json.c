@@ -285,6 +285,17 @@ START_TEST(round_trip_awkward)
 }
 END_TEST
 
+/* Splines: quantile knots of the calendar year times a factor, and given
+ * knots with boundary knots inside the data (straight-line ends). */
+START_TEST(round_trip_spline)
+{
+    static const char *const by_df[] = {"spline year df=3", "interact year sex"};
+    static const char *const by_knots[] = {"spline year knots=2017.5,2019 boundary=2016,2021"};
+    round_trip(fit_with("samples/falls.model", by_df, 2, "samples/falls.csv.zst", 0), "spline df");
+    round_trip(fit_with("samples/falls.model", by_knots, 1, "samples/falls.csv.zst", 0), "spline knots");
+}
+END_TEST
+
 static mr_fit *saved_falls(void)
 {
     char msg[512];
@@ -365,6 +376,7 @@ static Suite *json_suite(void)
     tcase_add_test(t, round_trip_falls);
     tcase_add_test(t, round_trip_screening);
     tcase_add_test(t, round_trip_awkward);
+    tcase_add_test(t, round_trip_spline);
     tcase_add_test(t, damaged_files);
     suite_add_tcase(s, t);
     return s;
