@@ -187,7 +187,7 @@ mr_status mr__spline_make(mr__spline *sp, const double *knots, size_t nknots, co
     }
     sp->nknots = nknots;
     sp->ncols = nknots + 1;
-    memcpy(sp->knots, knots, nknots * sizeof *knots);
+    if (nknots > 0) memcpy(sp->knots, knots, nknots * sizeof *knots);
     sp->boundary[0] = boundary[0];
     sp->boundary[1] = boundary[1];
     for (i = 0; i < 4; i++) sp->t[sp->nt++] = boundary[0];
