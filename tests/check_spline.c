@@ -127,6 +127,7 @@ START_TEST(quantiles_match_r_type_7)
     mr__counts_init(&all);
     mr__counts_merge(&all, &a);
     mr__counts_merge(&all, &b);
+    mr__counts_finish(&all);
     ck_assert_uint_eq(all.total, N_OF(DIGITS));
     ck_assert(all.min == 1 && all.max == 9);
     for (k = 1; k <= 4; k++) ck_assert(same_bits(mr__counts_quantile(&all, -INFINITY, INFINITY, k * (1.0 / 5)), want[k - 1]));
@@ -139,7 +140,7 @@ START_TEST(quantiles_match_r_type_7)
 END_TEST
 
 /* The merged table depends on the values alone, not on how blocks split
- * them or the order they come in. */
+ * them or the order they come in; -0 counts as +0. */
 START_TEST(merge_is_order_free)
 {
     mr__value_counts parts[4], one, two;
@@ -149,6 +150,8 @@ START_TEST(merge_is_order_free)
     mr__counts_init(&two);
     for (i = 0; i < 4; i++) mr__counts_merge(&one, &parts[i]);
     for (i = 4; i-- > 0;) mr__counts_merge(&two, &parts[i]);
+    mr__counts_finish(&one);
+    mr__counts_finish(&two);
     ck_assert_uint_eq(one.n, two.n);
     ck_assert_uint_eq(one.n, 9);
     ck_assert(memcmp(one.value, two.value, one.n * sizeof *one.value) == 0);
@@ -156,6 +159,39 @@ START_TEST(merge_is_order_free)
     for (i = 0; i < 4; i++) mr__counts_release(&parts[i]);
     mr__counts_release(&one);
     mr__counts_release(&two);
+}
+END_TEST
+
+/* Many blocks, many values (the hash table grows several times): the
+ * finished total is the count of one sort of all of them. */
+START_TEST(total_equals_one_sort)
+{
+    enum { BLOCKS = 12, ROWS = 16384 };
+    double *all = malloc(BLOCKS * ROWS * sizeof *all);
+    mr__value_counts block, total, direct;
+    uint64_t state = 42;
+    size_t b, i;
+    ck_assert_ptr_nonnull(all);
+    for (i = 0; i < BLOCKS * ROWS; i++) all[i] = (double)(next_random(&state) % 90000) / 4 - 1000;
+    all[7] = -0.0;
+    all[8] = 0.0;
+    mr__counts_init(&total);
+    for (b = 0; b < BLOCKS; b++) {
+        counts_of(&block, all + b * ROWS, ROWS);
+        mr__counts_merge(&total, &block);
+        mr__counts_release(&block);
+    }
+    mr__counts_finish(&total);
+    counts_of(&direct, all, BLOCKS * ROWS);
+    ck_assert(!total.over && !total.failed);
+    ck_assert_uint_eq(total.n, direct.n);
+    ck_assert(memcmp(total.value, direct.value, total.n * sizeof *total.value) == 0);
+    ck_assert(memcmp(total.count, direct.count, total.n * sizeof *total.count) == 0);
+    ck_assert(same_bits(mr__counts_quantile(&total, -INFINITY, INFINITY, 0.3),
+                        mr__counts_quantile(&direct, -INFINITY, INFINITY, 0.3)));
+    mr__counts_release(&total);
+    mr__counts_release(&direct);
+    free(all);
 }
 END_TEST
 
@@ -174,6 +210,7 @@ START_TEST(too_many_distinct_values_drop_the_table)
     }
     ck_assert(all.over);
     ck_assert_ptr_null(all.value);
+    ck_assert_ptr_null(all.slot);
     ck_assert(all.min == 0 && all.max == (double)(b * 16384 - 1));
     mr__counts_release(&all);
     free(x);
@@ -351,6 +388,7 @@ static Suite *spline_suite(void)
     TCase *counts = tcase_create("quantiles");
     tcase_add_test(counts, quantiles_match_r_type_7);
     tcase_add_test(counts, merge_is_order_free);
+    tcase_add_test(counts, total_equals_one_sort);
     tcase_add_test(counts, too_many_distinct_values_drop_the_table);
     suite_add_tcase(s, counts);
     TCase *model = tcase_create("model");

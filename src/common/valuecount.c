@@ -15,6 +15,7 @@ void mr__counts_release(mr__value_counts *c)
 {
     mr__free(c->value);
     mr__free(c->count);
+    mr__free(c->slot);
     mr__counts_init(c);
 }
 
@@ -55,41 +56,10 @@ mr_status mr__counts_of(mr__value_counts *c, const double *x, size_t n, double *
             c->count[c->n - 1]++;
             continue;
         }
-        c->value[c->n] = scratch[i];
+        c->value[c->n] = scratch[i] == 0 ? 0.0 : scratch[i]; /* -0 as +0: one key */
         c->count[c->n++] = 1;
     }
     note_range(c, c->value[0], c->value[c->n - 1]);
-    return MR_OK;
-}
-
-/* The union of two sorted tables, into fresh arrays. */
-static mr_status merge_tables(mr__value_counts *into, const mr__value_counts *from)
-{
-    size_t i = 0, j = 0, k = 0, need = into->n + from->n;
-    double *v = mr__malloc_array(need ? need : 1, sizeof *v);
-    uint64_t *n = mr__malloc_array(need ? need : 1, sizeof *n);
-    if (v == NULL || n == NULL) {
-        mr__free(v);
-        mr__free(n);
-        return MR_ERR_NO_MEMORY;
-    }
-    while (i < into->n || j < from->n) {
-        if (j == from->n || (i < into->n && into->value[i] < from->value[j])) {
-            v[k] = into->value[i];
-            n[k++] = into->count[i++];
-        } else if (i == into->n || from->value[j] < into->value[i]) {
-            v[k] = from->value[j];
-            n[k++] = from->count[j++];
-        } else {
-            v[k] = into->value[i];
-            n[k++] = into->count[i++] + from->count[j++];
-        }
-    }
-    mr__free(into->value);
-    mr__free(into->count);
-    into->value = v;
-    into->count = n;
-    into->n = into->cap = k;
     return MR_OK;
 }
 
@@ -97,29 +67,99 @@ static void drop_table(mr__value_counts *c)
 {
     mr__free(c->value);
     mr__free(c->count);
+    mr__free(c->slot);
     c->value = NULL;
     c->count = NULL;
-    c->n = c->cap = 0;
+    c->slot = NULL;
+    c->n = c->cap = c->nslots = 0;
+}
+
+static size_t slot_of(double v, size_t nslots)
+{
+    uint64_t z;
+    memcpy(&z, &v, sizeof z);
+    z = (z ^ (z >> 30)) * UINT64_C(0xBF58476D1CE4E5B9); /* splitmix64's finaliser */
+    z = (z ^ (z >> 27)) * UINT64_C(0x94D049BB133111EB);
+    return (size_t)(z ^ (z >> 31)) & (nslots - 1);
+}
+
+static void insert(mr__count_slot *slot, size_t nslots, double v, uint64_t count, size_t *n)
+{
+    size_t i = slot_of(v, nslots);
+    while (slot[i].count != 0 && slot[i].value != v) i = (i + 1) & (nslots - 1);
+    if (slot[i].count == 0) {
+        slot[i].value = v;
+        (*n)++;
+    }
+    slot[i].count += count;
+}
+
+/* Room for `need` values at most half full. */
+static mr_status grow(mr__value_counts *c, size_t need)
+{
+    size_t nslots = c->nslots ? c->nslots : 1024, i, n = 0;
+    mr__count_slot *fresh;
+    while (nslots < 2 * need) nslots *= 2;
+    if (nslots == c->nslots) return MR_OK;
+    if ((fresh = mr__calloc(nslots, sizeof *fresh)) == NULL) return MR_ERR_NO_MEMORY;
+    for (i = 0; i < c->nslots; i++)
+        if (c->slot[i].count != 0) insert(fresh, nslots, c->slot[i].value, c->slot[i].count, &n);
+    mr__free(c->slot);
+    c->slot = fresh;
+    c->nslots = nslots;
+    return MR_OK;
 }
 
 void mr__counts_merge(mr__value_counts *into, const mr__value_counts *from)
 {
+    size_t i;
     if (from->total == 0) return;
     into->total += from->total;
     note_range(into, from->min, from->max);
     into->over |= from->over;
     into->failed |= from->failed;
+    if (!into->over && !into->failed && grow(into, into->n + from->n) != MR_OK) into->failed = 1;
     if (into->over || into->failed) {
         drop_table(into);
         return;
     }
-    if (merge_tables(into, from) != MR_OK) {
-        into->failed = 1;
-        drop_table(into);
-    } else if (into->n > MR__COUNT_MAX_DISTINCT) {
+    for (i = 0; i < from->n; i++) insert(into->slot, into->nslots, from->value[i], from->count[i], &into->n);
+    if (into->n > MR__COUNT_MAX_DISTINCT) {
         into->over = 1;
         drop_table(into);
     }
+}
+
+static int by_slot_value(const void *a, const void *b)
+{
+    double x = ((const mr__count_slot *)a)->value, y = ((const mr__count_slot *)b)->value;
+    return (x > y) - (x < y);
+}
+
+void mr__counts_finish(mr__value_counts *c)
+{
+    size_t i, k = 0;
+    if (c->slot == NULL || c->over || c->failed) return;
+    for (i = 0; i < c->nslots; i++)
+        if (c->slot[i].count != 0) c->slot[k++] = c->slot[i];
+    qsort(c->slot, k, sizeof *c->slot, by_slot_value);
+    mr__free(c->value);
+    mr__free(c->count);
+    c->value = mr__malloc_array(k ? k : 1, sizeof *c->value);
+    c->count = mr__malloc_array(k ? k : 1, sizeof *c->count);
+    if (c->value == NULL || c->count == NULL) {
+        c->failed = 1;
+        drop_table(c);
+        return;
+    }
+    for (i = 0; i < k; i++) {
+        c->value[i] = c->slot[i].value;
+        c->count[i] = c->slot[i].count;
+    }
+    c->n = c->cap = k;
+    mr__free(c->slot);
+    c->slot = NULL;
+    c->nslots = 0;
 }
 
 double mr__counts_order_stat(const mr__value_counts *c, uint64_t r)

@@ -2,11 +2,14 @@
  * bounded memory: what exact quantiles need (a spline's knots at df=).
  *
  * A block's values are sorted and counted on the worker that decoded it;
- * the calling thread merges blocks into the total.  The merged table is a
- * function of the multiset of values alone (two sorted lists merge to the
- * same list in any order), so knots are the same bits for any thread
- * count.  Past MR__COUNT_MAX_DISTINCT distinct values the table is dropped
- * and only the count of values, the minimum and the maximum are kept. */
+ * the calling thread adds each block's table into a hash table of the
+ * total, and mr__counts_finish sorts the total once at the end.  The
+ * total is a function of the multiset of values alone (counts are whole
+ * numbers), so knots are the same bits for any thread count, and merging
+ * costs the block's distinct values, not the total's.  Past
+ * MR__COUNT_MAX_DISTINCT distinct values the table is dropped and only
+ * the count of values, the minimum and the maximum are kept.  Zeros are
+ * counted as +0. */
 #ifndef MR_VALUECOUNT_H
 #define MR_VALUECOUNT_H
 
@@ -14,13 +17,23 @@
 #include <stdint.h>
 #include "millrace.h"
 
-/* 2^18 distinct values: 4 MiB of table per column at most. */
+/* 2^18 distinct values: a hash table of 8 MiB per column at most. */
 #define MR__COUNT_MAX_DISTINCT 262144
 
+typedef struct mr__count_slot {
+    double value;
+    uint64_t count; /* 0: an empty slot */
+} mr__count_slot;
+
 typedef struct mr__value_counts {
-    double *value;   /* ascending, distinct (compared as doubles) */
+    /* Sorted: a block's table, and the total once finished. */
+    double *value;   /* ascending, distinct */
     uint64_t *count; /* rows holding each value */
     size_t n, cap;
+    /* The total while blocks are added: open addressing, nslots a power
+     * of two, at most half full; n counts its values. */
+    mr__count_slot *slot;
+    size_t nslots;
     uint64_t total;  /* values counted, also past the limit */
     double min, max; /* of every value counted (NaN when total is 0) */
     int over;        /* more than MR__COUNT_MAX_DISTINCT distinct values: table dropped */
@@ -32,10 +45,14 @@ void mr__counts_release(mr__value_counts *c);
 /* c becomes the counts of x[0..n) (scratch: n doubles).  MR_ERR_NO_MEMORY
  * when out of memory. */
 mr_status mr__counts_of(mr__value_counts *c, const double *x, size_t n, double *scratch);
-/* into += from; on failure into->failed is set (the caller reports it). */
+/* into += from (a block's sorted table) into the hash table; on failure
+ * into->failed is set (the caller reports it). */
 void mr__counts_merge(mr__value_counts *into, const mr__value_counts *from);
-/* The value of rank r (0-based, r < total) among the values counted;
- * only with the table (over and failed 0). */
+/* The total's table sorted, for the queries below (after the last merge;
+ * again is harmless).  On failure c->failed is set. */
+void mr__counts_finish(mr__value_counts *c);
+/* The queries take a sorted table (a block's, or a finished total) with
+ * over and failed 0.  The value of rank r (0-based, r < total). */
 double mr__counts_order_stat(const mr__value_counts *c, uint64_t r);
 /* How many values counted lie in [lo, hi]; only with the table. */
 uint64_t mr__counts_within(const mr__value_counts *c, double lo, double hi);

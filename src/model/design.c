@@ -112,8 +112,8 @@ static mr_status collect_terms(mr__design *d, const mr__spec *s, const mr__bindi
 }
 
 /* Each spline column's basis, its knots from the first pass's counts. */
-static mr_status settle_splines(mr__design *d, const mr__spec *s, const mr__binding *b,
-                                const mr__value_counts *counts, mr__error *err)
+static mr_status settle_splines(mr__design *d, const mr__spec *s, const mr__binding *b, mr__value_counts *counts,
+                                mr__error *err)
 {
     size_t i;
     int isf, v;
@@ -420,7 +420,7 @@ static mr_status build_skeleton(mr__design *d, mr__error *err)
 }
 
 mr_status mr__design_build(mr__design *d, const mr__spec *s, const mr__binding *b, const mr__factor *fac,
-                           const double *mean, const double *spread, const mr__value_counts *counts,
+                           const double *mean, const double *spread, mr__value_counts *counts,
                            mr__error *err)
 {
     memset(d, 0, sizeof *d);

@@ -99,11 +99,12 @@ static inline size_t mr__design_packed_index(const mr__design *d, size_t a, size
 /* Builds the design.  `mean` and `spread` (nnum each) come from the first
  * pass; a zero or non-finite spread leaves that numeric raw.  `counts`
  * (nnum tables, NULL when the first pass counted none or ran out of
- * memory) gives the splines their knots.  A spline covariate or an
+ * memory) gives the splines their knots (a spline's table is finished
+ * here: common/valuecount.h).  A spline covariate or an
  * interaction with one is as many terms as the spline has columns, one
  * after the other (the basis column slowest), all of the same group. */
 mr_status mr__design_build(mr__design *d, const mr__spec *s, const mr__binding *b, const mr__factor *fac,
-                           const double *mean, const double *spread, const mr__value_counts *counts,
+                           const double *mean, const double *spread, mr__value_counts *counts,
                            mr__error *err);
 void mr__design_release(mr__design *d);
 

@@ -221,11 +221,12 @@ static mr_status quantile_knots(const char *column, const mr__spline_spec *spec,
 }
 
 mr_status mr__spline_settle(mr__spline *sp, const char *column, const mr__spline_spec *spec,
-                            const mr__value_counts *counts, mr__error *err)
+                            mr__value_counts *counts, mr__error *err)
 {
     double boundary[2], knots[MR__SPLINE_MAX_KNOTS];
     if (spec->df == 0 && spec->has_boundary)
         return mr__spline_make(sp, spec->knots, spec->nknots, spec->boundary, column, err);
+    if (counts != NULL) mr__counts_finish(counts);
     if (counts == NULL || counts->failed) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     boundary[0] = spec->has_boundary ? spec->boundary[0] : counts->min;
     boundary[1] = spec->has_boundary ? spec->boundary[1] : counts->max;

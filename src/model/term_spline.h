@@ -47,11 +47,12 @@ mr_status mr__spline_make(mr__spline *sp, const double *knots, size_t nknots, co
                           const char *column, mr__error *err);
 
 /* The knots of column `column` as the model line asks, from the first
- * pass's count of its values: with df, df - 1 interior knots at the
- * quantiles k / df (R's type 7) of the values between the boundary knots,
- * which are given or the column's minimum and maximum. */
+ * pass's count of its values (finished here: mr__counts_finish): with df,
+ * df - 1 interior knots at the quantiles k / df (R's type 7) of the values
+ * between the boundary knots, which are given or the column's minimum and
+ * maximum. */
 mr_status mr__spline_settle(mr__spline *sp, const char *column, const mr__spline_spec *spec,
-                            const mr__value_counts *counts, mr__error *err);
+                            mr__value_counts *counts, mr__error *err);
 
 /* Basis column `col` at x. */
 double mr__spline_value(const mr__spline *sp, size_t col, double x);
