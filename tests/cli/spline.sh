@@ -4,6 +4,7 @@
 # and the fit are the same bits for any thread count, read size and
 # cache mode, collapsed or not where the documented bound allows.
 source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
+bin=${MILLRACE:-$bin} # a sanitizer build may be given
 
 data="$tmp/ages.csv"
 /usr/bin/python3 - "$data" <<'PY'
@@ -74,5 +75,8 @@ for x, y in zip(a["coefficients"], b["coefficients"]):  # DEVELOPERS.md: the col
     assert abs(x["std_error"] - y["std_error"]) <= 1e-6 * y["std_error"], x["name"]
 PY
 then ok collapsed-agrees; else fail collapsed-agrees "collapsed fit outside the documented bound"; fi
+
+"$bin" fit "${model[@]}" --spline "age knots=50 boundary=20,90" "$data" 2>&1 | grep -q "spline age: 2 columns, knots 50, boundary 20 and 90" &&
+    ok report-knots || fail report-knots "the report does not show the knots"
 
 finish
