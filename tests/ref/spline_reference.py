@@ -146,6 +146,30 @@ def fit_case(name, data, spline, ns_args, with_sex, collapsed):
     report("fit " + name, problems)
 
 
+def centred_case(name, data):
+    """A spline times a numeric, gaussian: the numeric is centred and scaled
+    inside and mapped back (design.h); R fits the raw columns."""
+    with tempfile.TemporaryDirectory() as tmp:
+        out = os.path.join(tmp, "fit.json")
+        subprocess.run([MILLRACE, "fit", "--quiet", "--outcome", "deaths", "--spline", "age knots=40,60 boundary=25,80",
+                        "--numeric", "py", "--interact", "age py", "--json", out, data],
+                       check=True, stdout=subprocess.DEVNULL)
+        with open(out) as f:
+            fit = json.load(f)
+    code = ("d <- read.csv('%s'); m <- glm(deaths ~ splines::ns(age, knots=c(40,60), Boundary.knots=c(25,80)) * py, "
+            "data=d); cat(sprintf('%%.17g %%.17g', coef(m), sqrt(diag(vcov(m)))), sep='\\n')" % data)
+    want = [tuple(float(v) for v in l.split()) for l in r_eval(code).splitlines()]
+    problems = []
+    for c, w in zip(fit["coefficients"], want):
+        if abs(c["estimate"] - w[0]) > REL_TOL * abs(w[0]) + 1e-12:
+            problems.append("%s: estimate %r, R %r" % (c["name"], c["estimate"], w[0]))
+        if abs(c["std_error"] - w[1]) > REL_TOL * abs(w[1]):
+            problems.append("%s: std error %r, R %r" % (c["name"], c["std_error"], w[1]))
+    if len(want) != len(fit["coefficients"]):
+        problems.append("%d coefficients, R %d" % (len(fit["coefficients"]), len(want)))
+    report("fit " + name, problems)
+
+
 def main():
     if not os.path.exists(RSCRIPT):
         print("skipped: %s not installed (Debian r-base-core)" % RSCRIPT)
@@ -166,6 +190,7 @@ def main():
                  "age knots=35,55,70 boundary=30,80",
                  "knots=c(35,55,70), Boundary.knots=c(30,80)", True, False)
         fit_case("df=4, collapsed patterns", data, "age df=4", "df=4", False, True)
+        centred_case("gaussian, spline times a centred numeric", data)
     print("%d passed, %d failed" % (results["pass"], results["fail"]))
     return 1 if results["fail"] else 0
 
