@@ -4,8 +4,8 @@
 #include <ctype.h>
 #include <errno.h>
 #include <math.h>
-#include <stdlib.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
 #include "common/alloc.h"
