@@ -208,7 +208,7 @@ static json_t *value(const mr_fit *f, const mr__jfield *fl, const void *base, si
     case MR__J_SPECIAL: return special(f, fl->which, base);
     case MR__J_OBJECT: return object(f, fl->sub, base, index);
     case MR__J_OBJECT_OR_NULL: return *(const int *)(b + fl->count) ? object(f, fl->sub, base, index) : json_null();
-    case MR__J_OBJECT_IF:
+    case MR__J_OBJECT_OPTIONAL:
         *skip = !*(const int *)(b + fl->count);
         return *skip ? NULL : object(f, fl->sub, base, index);
     case MR__J_TEXTS: return text_array(*(char *const *const *)(b + fl->at), *(const size_t *)(b + fl->count));

@@ -340,12 +340,12 @@ static mr_status read_value(reader *r, const mr__jfield *fl, json_t *v, void *ba
         if (fl->which == MR__JS_MISSING) return read_missing(r, v, f);
         if (fl->which == MR__JS_COVARIANCE) return read_covariance(r, v, f);
         return read_term_columns(r, v, f, base);
+    case MR__J_OBJECT_OPTIONAL:
+        *(int *)((char *)base + fl->count) = 1;
+        return read_object(r, v, fl->sub, base, index);
     case MR__J_OBJECT_OR_NULL:
         *(int *)((char *)base + fl->count) = !json_is_null(v);
         if (json_is_null(v)) return MR_OK;
-        /* fall through */
-    case MR__J_OBJECT_IF:
-        *(int *)((char *)base + fl->count) = 1;
         /* fall through */
     case MR__J_OBJECT: return read_object(r, v, fl->sub, base, index);
     case MR__J_TEXTS:
@@ -364,8 +364,7 @@ static mr_status read_object(reader *r, json_t *o, const mr__jfield *fields, voi
     for (fl = fields; fl->key != NULL; fl++) {
         size_t back;
         json_t *v = json_object_get(o, fl->key);
-        if (fl->kind == MR__J_DERIVED) continue;
-        if (v == NULL && fl->kind == MR__J_OBJECT_IF) continue; /* its flag stays 0 */
+        if (fl->kind == MR__J_DERIVED || (fl->kind == MR__J_OBJECT_OPTIONAL && v == NULL)) continue;
         back = enter(r, fl->key);
         if (v == NULL) return bad(r, "is missing");
         MR__TRY(read_value(r, fl, v, base, index));

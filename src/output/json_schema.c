@@ -68,7 +68,7 @@ static const mr__jfield term_fields[] = {
     {"first_coefficient", MR__J_SIZE, offsetof(mr__fit_term, first), 0, 0, 0, 0, 0, NULL, NULL, NULL},
     {"coefficients", MR__J_SIZE, offsetof(mr__fit_term, ncoef), 0, 0, 0, 0, 0, NULL, NULL, NULL},
     /* before the columns, whose types the reader checks against it */
-    {"spline", MR__J_OBJECT_IF, 0, offsetof(mr__fit_term, spline), 0, 0, 0, 0, NULL, NULL, spline_fields},
+    {"spline", MR__J_OBJECT_OPTIONAL, 0, offsetof(mr__fit_term, spline), 0, 0, 0, 0, NULL, NULL, spline_fields},
     SPECIAL("columns", MR__JS_TERM_COLUMNS),
     END,
 };

@@ -32,13 +32,13 @@ typedef enum mr__jkind {
     MR__J_REALS,         /* double * of `count` numbers */
     MR__J_OBJECT,        /* the fields `sub`, on the same base */
     MR__J_OBJECT_OR_NULL,/* as OBJECT, or null when the int at `count` is 0 */
+    MR__J_OBJECT_OPTIONAL,/* as OBJECT, left out when the int at `count` is 0;
+                            a file without it reads with that int 0 */
     MR__J_RECORDS,       /* an array of `count` objects of the indexed fields `sub` */
     MR__J_STRUCTS,       /* an array of `count` structs of `size` bytes at `at`, each the fields `sub` */
     MR__J_KEYED,         /* as STRUCTS, as an object keyed by each struct's text at `key_at` */
     MR__J_DERIVED,       /* written from other fields (`which`), never read */
-    MR__J_SPECIAL,       /* a layout of its own (`which`) */
-    MR__J_OBJECT_IF      /* as OBJECT when the int at `count` is 1; else not written, and
-                            absent on reading sets it to 0 (a field only some terms have) */
+    MR__J_SPECIAL        /* a layout of its own (`which`) */
 } mr__jkind;
 
 /* What derived and special fields are. */
