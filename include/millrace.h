@@ -323,8 +323,8 @@ MR_API mr_status mr_fit_write_json(const mr_fit *fit, const char *path, char *ms
 /* Reads back a fit that mr_fit_write_json wrote (format "millrace-fit",
  * format_version 2): the same coefficients, covariance, statistics,
  * warnings and report, and what rebuilding the model needs (the model's
- * lines as given, its terms, factor levels and references, and the input's
- * path, size, modification time and checksum).  Writing the fit read gives
+ * lines as given, its terms, factor levels and references, spline knots,
+ * and the input's path, size, modification time and checksum).  Writing the fit read gives
  * the same bytes as the file read, and NaN and infinities, written as null,
  * read back as NaN.  On MR_OK, *out receives a new fit the caller frees
  * with mr_fit_free; it is read-only like any other, and mr_fit_status
