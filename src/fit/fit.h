@@ -24,7 +24,6 @@ typedef struct mr__fit_term {
     char *part[MR__MAX_INTERACT];
     size_t nparts;
     int full;
-    size_t first, ncoef;
     /* A term with a spline part (at most one): that column, its interior
      * knots and its two boundary knots, all a scorer needs to rebuild the
      * basis (model/term_spline.h).  Its coefficients run over the basis
@@ -33,6 +32,7 @@ typedef struct mr__fit_term {
     char *spline_column;
     double *knots, *boundary;
     size_t nknots, nboundary;
+    size_t first, ncoef;
 } mr__fit_term;
 
 struct mr_fit {

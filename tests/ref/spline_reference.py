@@ -20,6 +20,9 @@ import subprocess
 import sys
 import tempfile
 
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from compare_reference import run_checks  # noqa: E402  (the ok/FAIL lines and the count)
+
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 MILLRACE = os.path.join(ROOT, "build", "millrace")
 BASIS = os.path.join(ROOT, "build", "tests", "check_spline")
@@ -30,17 +33,6 @@ REL_TOL = 1e-8      # coefficients and standard errors, relative
 # Collapsed covariate patterns regroup the sums (DEVELOPERS.md, speed
 # paths): standard errors agree with the row-by-row fit to about 1e-6.
 COLLAPSED_TOL = 1e-6
-
-results = {"pass": 0, "fail": 0}
-
-
-def report(name, problems):
-    if problems:
-        results["fail"] += 1
-        print("FAIL %s: %s" % (name, "; ".join(problems[:5])))
-    else:
-        results["pass"] += 1
-        print("ok %s" % name)
 
 
 def r_eval(code):
@@ -54,7 +46,7 @@ def r_vector(values):
     return "c(%s)" % ",".join(repr(float(v)) for v in values)
 
 
-def basis_case(name, knots, boundary, xs):
+def basis_case(knots, boundary, xs):
     mine = subprocess.run([BASIS, "--print-basis", ",".join(repr(k) for k in knots),
                            ",".join(repr(b) for b in boundary)],
                           input="\n".join(repr(x) for x in xs), capture_output=True, text=True, check=True)
@@ -71,7 +63,7 @@ def basis_case(name, knots, boundary, xs):
             for c, (u, v) in enumerate(zip(a, b)):
                 if abs(u - v) > BASIS_TOL:
                     problems.append("x=%r column %d: %r, R %r" % (x, c + 1, u, v))
-    report("basis " + name, problems)
+    return problems[:5]
 
 
 def write_data(path, rows):
@@ -121,7 +113,7 @@ def r_fit(data, ns_args, with_sex):
     return coefs, knots
 
 
-def fit_case(name, data, spline, ns_args, with_sex, collapsed):
+def fit_case(data, spline, ns_args, with_sex, collapsed):
     with tempfile.TemporaryDirectory() as tmp:
         extra = ["--factor", "sex"] + (["--interact", "age sex"] if with_sex else [])
         if not collapsed:
@@ -143,10 +135,10 @@ def fit_case(name, data, spline, ns_args, with_sex, collapsed):
             problems.append("%s: estimate %r, R %r" % (c["name"], g[0], w[0]))
         if abs(g[1] - w[1]) > se_tol * abs(w[1]):
             problems.append("%s: std error %r, R %r" % (c["name"], g[1], w[1]))
-    report("fit " + name, problems)
+    return problems[:5]
 
 
-def centred_case(name, data):
+def centred_case(data):
     """A spline times a numeric, gaussian: the numeric is centred and scaled
     inside and mapped back (design.h); R fits the raw columns."""
     with tempfile.TemporaryDirectory() as tmp:
@@ -167,7 +159,7 @@ def centred_case(name, data):
             problems.append("%s: std error %r, R %r" % (c["name"], c["std_error"], w[1]))
     if len(want) != len(fit["coefficients"]):
         problems.append("%d coefficients, R %d" % (len(fit["coefficients"]), len(want)))
-    report("fit " + name, problems)
+    return problems[:5]
 
 
 def main():
@@ -175,24 +167,29 @@ def main():
         print("skipped: %s not installed (Debian r-base-core)" % RSCRIPT)
         print("0 passed, 0 failed")
         return 0
-    basis_case("three knots", [30.0, 45.0, 60.0], [15.0, 85.0],
-               [-5, 0, 15, 15.5, 22.25, 30, 37.7, 45, 52.1, 60, 71, 84.999, 85, 99, 1e3])
-    basis_case("no interior knot", [], [1.0, 3.0], [0, 1, 1.5, 2.5, 3, 4])
-    basis_case("uneven knots", [1990.25, 1991.0, 2003.5, 2019.0], [1985.0, 2024.0],
-               [1970 + 0.37 * i for i in range(160)])
-    basis_case("one knot, narrow", [1e-3], [-2e-3, 1e-2], [-3e-3 + 1e-4 * i for i in range(150)])
     with tempfile.TemporaryDirectory() as tmp:
         data = os.path.join(tmp, "ages.csv")
         write_data(data, simulate(4000, 11))
-        fit_case("df=4", data, "age df=4", "df=4", False, False)
-        fit_case("df=6 times sex", data, "age df=6", "df=6", True, False)
-        fit_case("knots, boundary inside the data (straight ends), times sex", data,
-                 "age knots=35,55,70 boundary=30,80",
-                 "knots=c(35,55,70), Boundary.knots=c(30,80)", True, False)
-        fit_case("df=4, collapsed patterns", data, "age df=4", "df=4", False, True)
-        centred_case("gaussian, spline times a centred numeric", data)
-    print("%d passed, %d failed" % (results["pass"], results["fail"]))
-    return 1 if results["fail"] else 0
+        checks = [
+            ("basis three knots", lambda: basis_case(
+                [30.0, 45.0, 60.0], [15.0, 85.0], [-5, 0, 15, 15.5, 22.25, 30, 37.7, 45, 52.1, 60, 71, 84.999, 85, 99, 1e3])),
+            ("basis no interior knot", lambda: basis_case([], [1.0, 3.0], [0, 1, 1.5, 2.5, 3, 4])),
+            ("basis uneven knots", lambda: basis_case(
+                [1990.25, 1991.0, 2003.5, 2019.0], [1985.0, 2024.0], [1970 + 0.37 * i for i in range(160)])),
+            ("basis one knot, narrow", lambda: basis_case(
+                [1e-3], [-2e-3, 1e-2], [-3e-3 + 1e-4 * i for i in range(150)])),
+            ("fit df=4", lambda: fit_case(data, "age df=4", "df=4", False, False)),
+            ("fit df=6 times sex", lambda: fit_case(data, "age df=6", "df=6", True, False)),
+            ("fit knots, boundary inside the data (straight ends), times sex", lambda: fit_case(
+                data, "age knots=35,55,70 boundary=30,80", "knots=c(35,55,70), Boundary.knots=c(30,80)", True, False)),
+            ("fit df=4, collapsed patterns", lambda: fit_case(data, "age df=4", "df=4", False, True)),
+            ("fit gaussian, spline times a centred numeric", lambda: centred_case(data)),
+        ]
+        rc = run_checks(checks)
+    if isinstance(rc, tuple):  # (passed, failed): the count is the caller's to print
+        print("%d passed, %d failed" % rc)
+        rc = 1 if rc[1] else 0
+    return rc
 
 
 if __name__ == "__main__":
