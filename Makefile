@@ -197,7 +197,7 @@ valgrind-check: all
 cli-check: all
 	@for t in tests/cli/*.sh; do echo "== $$t"; bash $$t || exit 1; done
 
-ref-check: all
+ref-check: all $(B)/tests/check_spline
 	@for t in tests/ref/*.py; do echo "== $$t"; /usr/bin/python3 $$t || exit 1; done
 
 # The library must never print or exit: only the command talks to the terminal.

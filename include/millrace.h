@@ -142,6 +142,7 @@ MR_API const char *mr_fitter_errmsg(const mr_fitter *f);
 /* Adds one line of the model language (see README, "The model file"):
  *   outcome COL | trials COL | family NAME | link NAME |
  *   numeric COL | factor COL [ref=LEVEL] | interact A B [C] |
+ *   spline COL df=N|knots=K1,K2,... [boundary=LO,HI] |
  *   offset COL | exposure COL | weight COL | intercept yes|no |
  *   dispersion estimate|fixed
  * '#' starts a comment; blank lines are ignored.  A later line overrides an
@@ -265,7 +266,8 @@ MR_API void mr_fit_free(mr_fit *fit);
 MR_API mr_status mr_fit_status(const mr_fit *fit);
 
 MR_API size_t mr_fit_ncoef(const mr_fit *fit);
-/* Coefficient names: "(intercept)", "year", "sex=M", "age_band=45-49 & sex=M".
+/* Coefficient names: "(intercept)", "year", "sex=M", "age_band=45-49 & sex=M",
+ * "age[spline 2/4]" (basis column 2 of a 4-column spline of age).
  * Owned by the fit. */
 MR_API const char *mr_fit_coef_name(const mr_fit *fit, size_t j);
 /* 1 when the column is a linear combination of earlier ones: its estimate
@@ -368,8 +370,8 @@ MR_API mr_status mr_fit_write_json(const mr_fit *fit, const char *path, char *ms
 /* Reads back a fit that mr_fit_write_json wrote (format "millrace-fit",
  * format_version 2): the same coefficients, covariance, statistics,
  * warnings and report, and what rebuilding the model needs (the model's
- * lines as given, its terms, factor levels and references, and the input's
- * path, size, modification time and checksum).  Writing the fit read gives
+ * lines as given, its terms, factor levels and references, spline knots,
+ * and the input's path, size, modification time and checksum).  Writing the fit read gives
  * the same bytes as the file read, and NaN and infinities, written as null,
  * read back as NaN.  On MR_OK, *out receives a new fit the caller frees
  * with mr_fit_free; it is read-only like any other, and mr_fit_status

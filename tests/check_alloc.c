@@ -23,6 +23,8 @@ long mr__alloc_failures_left(void);
 static const char *const falls_model[] = {"outcome admissions", "family poisson", "exposure person_years",
                                           "factor age_band ref=40-44", "factor sex", "numeric year",
                                           "interact age_band sex", NULL};
+static const char *const spline_model[] = {"outcome admissions", "family poisson", "exposure person_years",
+                                           "factor sex", "spline year df=3", "interact year sex", NULL};
 static char json_path[64];
 
 static const char *const screening_model[] = {"outcome attended", "family binomial", "numeric age", "factor sex",
@@ -276,6 +278,9 @@ START_TEST(test_falls_rows_cached) { every_allocation("samples/falls.csv", falls
 END_TEST
 START_TEST(test_screening_in_memory) { every_allocation("samples/screening.csv", screening_model, 2); }
 END_TEST
+/* a spline's counted values (per block and merged) and its basis */
+START_TEST(test_spline_rows_cached) { every_allocation("samples/falls.csv", spline_model, 1); }
+END_TEST
 
 int main(void)
 {
@@ -290,6 +295,7 @@ int main(void)
     tcase_add_test(tc, test_falls_collapsed);
     tcase_add_test(tc, test_falls_rows_cached);
     tcase_add_test(tc, test_screening_in_memory);
+    tcase_add_test(tc, test_spline_rows_cached);
     tcase_add_test(tc, test_json_write_and_read);
     tcase_add_test(tc, test_drift_and_run_log);
     tcase_add_test(tc, test_html_page);

@@ -121,7 +121,7 @@ static void build(mr__design *d, mr__spec *s, mr__binding *b, const char *const 
     spec_lines(s, lines, nlines);
     bind_header(b, s, header, nheader);
     clear(&err);
-    ck_assert_msg(mr__design_build(d, s, b, fac, mean, spread, &err) == MR_OK, "%s", err.msg);
+    ck_assert_msg(mr__design_build(d, s, b, fac, mean, spread, NULL, &err) == MR_OK, "%s", err.msg);
 }
 
 static void release(mr__design *d, mr__spec *s, mr__binding *b)

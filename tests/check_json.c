@@ -285,6 +285,17 @@ START_TEST(round_trip_awkward)
 }
 END_TEST
 
+/* Splines: quantile knots of the calendar year times a factor, and given
+ * knots with boundary knots inside the data (straight-line ends). */
+START_TEST(round_trip_spline)
+{
+    static const char *const by_df[] = {"spline year df=3", "interact year sex"};
+    static const char *const by_knots[] = {"spline year knots=2017.5,2019 boundary=2016,2021"};
+    round_trip(fit_with("samples/falls.model", by_df, 2, "samples/falls.csv.zst", 0), "spline df");
+    round_trip(fit_with("samples/falls.model", by_knots, 1, "samples/falls.csv.zst", 0), "spline knots");
+}
+END_TEST
+
 static mr_fit *saved_falls(void)
 {
     char msg[512];
@@ -319,6 +330,20 @@ static void damaged(const char *old, const char *new, size_t cut, mr_status want
     ck_assert_ptr_null(fit);
     ck_assert_msg(strstr(msg, says) != NULL, "message '%s' lacks '%s'", msg, says);
 }
+
+/* A spline's knots read back as mr__spline_make takes them, or refused. */
+START_TEST(damaged_spline)
+{
+    static const char *const by_knots[] = {"spline year knots=2017.5,2019 boundary=2016,2021"};
+    char msg[256];
+    mr_fit *fit = fit_with("samples/falls.model", by_knots, 1, "samples/falls.csv.zst", 0);
+    ck_assert_msg(mr_fit_write_json(fit, in_dir("good.json"), msg, sizeof msg) == MR_OK, "%s", msg);
+    mr_fit_free(fit);
+    damaged("2017.5", "2019.5", 0, MR_ERR_FORMAT, "'model.terms[3].spline' needs two boundary knots and increasing");
+    damaged("2016.0", "2026.0", 0, MR_ERR_FORMAT, "'model.terms[3].spline' needs two boundary knots");
+    damaged("2016.0,", "", 0, MR_ERR_FORMAT, "'model.terms[3].spline' needs two boundary knots");
+}
+END_TEST
 
 START_TEST(damaged_files)
 {
@@ -399,8 +424,10 @@ static Suite *json_suite(void)
     tcase_add_test(t, round_trip_falls);
     tcase_add_test(t, round_trip_screening);
     tcase_add_test(t, round_trip_awkward);
+    tcase_add_test(t, round_trip_spline);
     tcase_add_test(t, damaged_files);
     tcase_add_test(t, audit_trail);
+    tcase_add_test(t, damaged_spline);
     suite_add_tcase(s, t);
     return s;
 }

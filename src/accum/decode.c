@@ -25,6 +25,14 @@ mr_status mr__block_init(mr__block *b, const mr__binding *bind, mr__error *err)
     return MR_OK;
 }
 
+static void release_counts(mr__block *b)
+{
+    size_t k;
+    for (k = 0; b->counts && k < b->ncounts; k++) mr__counts_release(&b->counts[k]);
+    mr__free(b->counts);
+    mr__free(b->count_scratch);
+}
+
 void mr__block_release(mr__block *b)
 {
     mr__free(b->y);
@@ -33,6 +41,7 @@ void mr__block_release(mr__block *b)
     mr__free(b->num);
     mr__free(b->lev);
     mr__free(b->missing);
+    release_counts(b);
     mr__free(b->new_levels);
     mr__free(b->extra);
     if (b->patterns) mr__pattern_rows_release(b->patterns);
@@ -405,6 +414,24 @@ static void check_collapsible(mr__decoder *d, const mr__block *blk)
             abandon_collapse(d->cfg);
 }
 
+/* First pass: the distinct values of the numerics the binding counts. */
+static mr_status count_values(const mr__binding *b, mr__block *blk, mr__error *err)
+{
+    size_t k;
+    if (blk->counts == NULL) {
+        blk->counts = mr__calloc(b->nnum, sizeof *blk->counts);
+        blk->count_scratch = mr__malloc_array(MR__BLOCK_ROWS, sizeof *blk->count_scratch);
+        if (blk->counts == NULL || blk->count_scratch == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        blk->ncounts = b->nnum;
+        for (k = 0; k < b->nnum; k++) mr__counts_init(&blk->counts[k]);
+    }
+    for (k = 0; k < b->nnum; k++)
+        if (b->counted[k] &&
+            mr__counts_of(&blk->counts[k], blk->num + k * MR__BLOCK_ROWS, blk->n, blk->count_scratch) != MR_OK)
+            return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    return MR_OK;
+}
+
 static mr__field_sink decoder_sink(mr__decoder *d)
 {
     mr__field_sink sink = {d, on_field, on_row_end, d->wanted, d->cfg->bind->nfields, quick_number};
@@ -447,6 +474,7 @@ mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, m
         st = MR_OK;
     }
     if (st == MR_OK && d->stop && !blk->failed) st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    if (st == MR_OK && d->cfg->levels == NULL && d->cfg->bind->ncounted > 0) st = count_values(d->cfg->bind, blk, err);
     if (st == MR_OK && blk->patterns && !atomic_load_explicit(d->cfg->collapse_abandoned, memory_order_relaxed)) {
         check_collapsible(d, blk);
         if (mr__pattern_rows_end(blk->patterns, d->keysets) != 0) abandon_collapse(d->cfg);

@@ -15,6 +15,7 @@
 #include "input/numparse.h"
 #include "model/columns.h"
 #include "common/levels.h"
+#include "common/valuecount.h"
 #include "family/family.h"
 #include "accum/patterns.h"
 #include <stdatomic.h>
@@ -69,6 +70,12 @@ typedef struct mr__block {
      * (accum/census.h). */
     mr__new_level *new_levels;
     size_t nnew_levels, new_levels_cap;
+    /* First pass, when the binding counts some numeric's values: per
+     * numeric, this block's distinct values and their counts (a zero
+     * table for the others), and the sort's scratch (MR__BLOCK_ROWS). */
+    mr__value_counts *counts;
+    size_t ncounts;
+    double *count_scratch;
     uint64_t *missing; /* per bound column: rows left out for a missing cell */
     uint32_t incomplete;
     uint32_t nbad, nbad_shown;

@@ -18,8 +18,17 @@ mr_status mr__scan_init(mr__scan_sums *s, size_t ncol, size_t nnum, mr__error *e
     return MR_OK;
 }
 
+static void release_counts(mr__scan_sums *s, size_t nnum)
+{
+    size_t k;
+    for (k = 0; s->counts && k < nnum; k++) mr__counts_release(&s->counts[k]);
+    mr__free(s->counts);
+    s->counts = NULL;
+}
+
 void mr__scan_release(mr__scan_sums *s)
 {
+    release_counts(s, s->ncounts);
     mr__free(s->missing);
     mr__free(s->sx);
     mr__free(s->dev_scale);
@@ -31,6 +40,7 @@ void mr__scan_reset(mr__scan_sums *s, size_t ncol, size_t nnum)
 {
     uint64_t *m = s->missing;
     double *sx = s->sx, *dev_scale = s->dev_scale, *dev_ssq = s->dev_ssq;
+    release_counts(s, s->ncounts);
     memset(s, 0, sizeof *s);
     s->missing = m;
     s->sx = sx;
@@ -112,12 +122,30 @@ void mr__scan_block(const mr__block *blk, size_t ncol, size_t nnum, mr__scan_sum
     s->nfraction = blk->nfraction;
     s->swe = blk->swe;
     s->swoff = blk->swoff;
+    s->block_counts = blk->counts;
+}
+
+static void merge_counts(mr__scan_sums *into, const mr__scan_sums *from, size_t nnum)
+{
+    size_t k;
+    if (from->block_counts == NULL || into->counts_failed) return;
+    if (into->counts == NULL) {
+        into->counts = mr__calloc(nnum ? nnum : 1, sizeof *into->counts);
+        if (into->counts == NULL) {
+            into->counts_failed = 1;
+            return;
+        }
+        into->ncounts = nnum;
+        for (k = 0; k < nnum; k++) mr__counts_init(&into->counts[k]);
+    }
+    for (k = 0; k < nnum; k++) mr__counts_merge(&into->counts[k], &from->block_counts[k]);
 }
 
 void mr__scan_add(mr__scan_sums *into, const mr__scan_sums *from, size_t ncol, size_t nnum)
 {
     size_t k;
     uint32_t i;
+    merge_counts(into, from, nnum);
     for (k = 0; k < nnum; k++) { /* before the counts and sums change */
         merge_spread(into, from, k);
         into->sx[k] += from->sx[k];

@@ -24,6 +24,14 @@ typedef struct mr__scan_sums {
      * thread count. */
     double *sx, *dev_scale, *dev_ssq;
     double sw, swy, swe, swoff, llc;
+    /* The values of the numerics the binding counts (common/valuecount.h):
+     * a block's are its own (borrowed from the block, valid until it is
+     * added), the total's are merged in block order (nnum tables, NULL
+     * until a block brings some; counts_failed: out of memory then). */
+    const mr__value_counts *block_counts;
+    mr__value_counts *counts;
+    size_t ncounts;
+    int counts_failed;
     uint32_t nbad_shown;
     mr__bad_row bad[MR__BAD_SHOWN];
 } mr__scan_sums;

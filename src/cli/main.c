@@ -14,7 +14,7 @@
 #include "millrace.h"
 
 enum {
-    OPT_OUTCOME = 256, OPT_TRIALS, OPT_FAMILY, OPT_LINK, OPT_NUMERIC, OPT_FACTOR, OPT_INTERACT, OPT_OFFSET,
+    OPT_OUTCOME = 256, OPT_TRIALS, OPT_FAMILY, OPT_LINK, OPT_NUMERIC, OPT_FACTOR, OPT_INTERACT, OPT_SPLINE, OPT_OFFSET,
     OPT_EXPOSURE, OPT_WEIGHT, OPT_NO_INTERCEPT, OPT_DISPERSION, OPT_THREADS, OPT_BUFFER, OPT_TOLERANCE,
     OPT_MAX_PASSES, OPT_LEVEL, OPT_DELIMITER, OPT_MISSING, OPT_IN_MEMORY, OPT_ON_BAD_ROW, OPT_JSON, OPT_QUIET,
     OPT_DIGITS, OPT_NO_CACHE, OPT_NO_COLLAPSE, OPT_HELP, OPT_RUN_LOG, OPT_THRESHOLD, OPT_CSV
@@ -29,6 +29,7 @@ static const struct option long_options[] = {
     {"numeric", required_argument, NULL, OPT_NUMERIC},
     {"factor", required_argument, NULL, OPT_FACTOR},
     {"interact", required_argument, NULL, OPT_INTERACT},
+    {"spline", required_argument, NULL, OPT_SPLINE},
     {"offset", required_argument, NULL, OPT_OFFSET},
     {"exposure", required_argument, NULL, OPT_EXPOSURE},
     {"weight", required_argument, NULL, OPT_WEIGHT},
@@ -85,6 +86,7 @@ static const char usage_text[] =
     "  -m, --model FILE        model file\n"
     "  --outcome COL  --trials COL  --family NAME  --link NAME\n"
     "  --numeric COL  --factor 'COL [ref=LEVEL]'  --interact 'A B [C]'\n"
+    "  --spline 'COL df=N|knots=K1,K2,... [boundary=LO,HI]'\n"
     "  --offset COL  --exposure COL  --weight COL  --no-intercept  --dispersion estimate|fixed\n"
     "run:\n"
     "  --threads N  --buffer-size BYTES  --tolerance X  --max-passes N  --level P\n"
@@ -227,6 +229,7 @@ static const char *directive_of(int opt)
     case OPT_NUMERIC: return "numeric";
     case OPT_FACTOR: return "factor";
     case OPT_INTERACT: return "interact";
+    case OPT_SPLINE: return "spline";
     case OPT_OFFSET: return "offset";
     case OPT_EXPOSURE: return "exposure";
     case OPT_WEIGHT: return "weight";

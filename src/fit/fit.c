@@ -34,6 +34,9 @@ void mr_fit_free(mr_fit *fit)
         size_t k;
         mr__free(fit->term[i].label);
         for (k = 0; k < MR__MAX_INTERACT; k++) mr__free(fit->term[i].part[k]);
+        mr__free(fit->term[i].spline_column);
+        mr__free(fit->term[i].knots);
+        mr__free(fit->term[i].boundary);
     }
     mr__free(fit->term);
     free_strings(fit->model_line, fit->nmodel_lines);
@@ -74,6 +77,13 @@ mr_status mr__fit_alloc_coefficients(mr_fit *fit, size_t p)
         !fit->hi)
         return MR_ERR_NO_MEMORY;
     return MR_OK;
+}
+
+const char *mr__fit_part_type(const mr_fit *fit, const mr__fit_term *t, size_t k)
+{
+    if (mr__fit_find_factor(fit, t->part[k]) >= 0) return "factor";
+    if (t->spline && strcmp(t->part[k], t->spline_column) == 0) return "spline";
+    return "numeric";
 }
 
 long mr__fit_find_factor(const mr_fit *fit, const char *name)

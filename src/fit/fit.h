@@ -24,6 +24,14 @@ typedef struct mr__fit_term {
     char *part[MR__MAX_INTERACT];
     size_t nparts;
     int full;
+    /* A term with a spline part (at most one): that column, its interior
+     * knots and its two boundary knots, all a scorer needs to rebuild the
+     * basis (model/term_spline.h).  Its coefficients run over the basis
+     * columns, slowest, then over the factors' levels. */
+    int spline;
+    char *spline_column;
+    double *knots, *boundary;
+    size_t nknots, nboundary;
     size_t first, ncoef;
     /* The joint Wald test of the term's estimated coefficients
      * (term_test.c): never read from the JSON but recomputed, so always
@@ -94,6 +102,9 @@ struct mr_fit {
 mr_status mr__fit_alloc_coefficients(mr_fit *fit, size_t p);
 /* The index of the factor named `name`, or -1. */
 long mr__fit_find_factor(const mr_fit *fit, const char *name);
+/* Part k of term t: "factor", "spline" (the term's spline column) or
+ * "numeric". */
+const char *mr__fit_part_type(const mr_fit *fit, const mr__fit_term *t, size_t k);
 
 /* Adds a warning (copied); silently drops it when out of memory. */
 void mr__fit_warn(mr_fit *fit, const char *fmt, ...) __attribute__((format(printf, 2, 3)));

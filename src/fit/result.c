@@ -231,26 +231,54 @@ static char *term_label(const mr__spec *s, size_t i)
     return mr__strbuf_take(&sb);
 }
 
-/* Each term's label, parts, coding and coefficients, from the design
- * (whose terms are the spec's covariates, then its interactions). */
+/* The spline of a group's first design term, copied into t. */
+static mr_status copy_spline(mr__fit_term *t, const mr__term *dt, const mr__spec *s, size_t g)
+{
+    int k, ni = 0, n = g < s->ncov ? 1 : s->inter[g - s->ncov].n;
+    const mr__spline *sp = NULL;
+    const char *column = NULL;
+    for (k = 0; k < n; k++) {
+        const char *name = g < s->ncov ? s->cov[g].name : s->inter[g - s->ncov].name[k];
+        const mr__covariate *c = mr__spec_find(s, name);
+        if (c->role == MR__ROLE_FACTOR) continue;
+        if (dt->spline[ni] != NULL) sp = dt->spline[ni], column = name;
+        ni++;
+    }
+    if (sp == NULL) return MR_OK;
+    t->spline = 1;
+    t->spline_column = mr__strdup(column);
+    t->knots = mr__malloc_array(sp->nknots + 1, sizeof *t->knots);
+    t->boundary = mr__malloc_array(2, sizeof *t->boundary);
+    if (t->spline_column == NULL || t->knots == NULL || t->boundary == NULL) return MR_ERR_NO_MEMORY;
+    memcpy(t->knots, sp->knots, sp->nknots * sizeof *t->knots);
+    t->nknots = sp->nknots;
+    memcpy(t->boundary, sp->boundary, 2 * sizeof *t->boundary);
+    t->nboundary = 2;
+    return MR_OK;
+}
+
+/* Each term's label, parts, coding and coefficients, from the design,
+ * whose terms are the spec's covariates, then its interactions, each a
+ * group of one term or of one per spline column. */
 static mr_status copy_terms(mr_fit *fit, const mr__run *r)
 {
     const mr__spec *s = &r->f->spec;
-    size_t i;
+    size_t i, d = 0;
     int k;
     fit->term = mr__calloc(fit->nterms + 1, sizeof *fit->term);
     if (fit->term == NULL) return MR_ERR_NO_MEMORY;
     for (i = 0; i < fit->nterms; i++) {
         mr__fit_term *t = &fit->term[i];
-        const mr__term *dt = &r->design.term[i];
+        const mr__term *dt = &r->design.term[d];
         int nparts = i < s->ncov ? 1 : s->inter[i - s->ncov].n;
         t->full = dt->full;
         t->first = dt->col0;
-        t->ncoef = dt->ncols;
+        for (; d < r->design.nterms && r->design.term[d].group == i; d++) t->ncoef += r->design.term[d].ncols;
         if ((t->label = term_label(s, i)) == NULL) return MR_ERR_NO_MEMORY;
         for (k = 0; k < nparts; k++, t->nparts++)
             if ((t->part[k] = mr__strdup(i < s->ncov ? s->cov[i].name : s->inter[i - s->ncov].name[k])) == NULL)
                 return MR_ERR_NO_MEMORY;
+        MR__TRY(copy_spline(t, dt, s, i));
     }
     return MR_OK;
 }

@@ -294,7 +294,8 @@ static mr_status settle_scan(mr__run *r, mr__error *err)
         r->spread[k] = mr__scan_spread(s, k);
     }
     r->dcfg.levels = r->levels;
-    return mr__design_build(&r->design, &r->f->spec, &r->bind, r->fac, r->mean, r->spread, err);
+    return mr__design_build(&r->design, &r->f->spec, &r->bind, r->fac, r->mean, r->spread,
+                            s->counts_failed ? NULL : s->counts, err);
 }
 
 /* The cache only saves time: when it cannot be had (no file can be made in

@@ -94,8 +94,10 @@ static mr_status bind_roles(mr__binding *b, const mr__spec *s, const char *displ
     if (s->exposure) MR__TRY(add_column(b, s->exposure, MR__USE_EXPOSURE, -1, display, err));
     for (i = 0; i < s->ncov; i++) {
         const mr__covariate *c = &s->cov[i];
-        if (c->role == MR__ROLE_NUMERIC) {
+        if (c->role == MR__ROLE_NUMERIC || c->role == MR__ROLE_SPLINE) {
             b->num_col[b->nnum] = b->ncol;
+            b->counted[b->nnum] = c->role == MR__ROLE_SPLINE;
+            b->ncounted += c->role == MR__ROLE_SPLINE;
             MR__TRY(add_column(b, c->name, MR__USE_NUMERIC, (int)b->nnum, display, err));
             b->nnum++;
         } else {
@@ -119,7 +121,8 @@ mr_status mr__bind(mr__binding *b, const mr__spec *s, char **header, size_t nfie
     b->col_of_field = mr__malloc_array(nfields, sizeof *b->col_of_field);
     b->num_col = mr__calloc(s->ncov + 1, sizeof *b->num_col);
     b->fac_col = mr__calloc(s->ncov + 1, sizeof *b->fac_col);
-    if (!b->col || !b->col_of_field || !b->num_col || !b->fac_col)
+    b->counted = mr__calloc(s->ncov + 1, sizeof *b->counted);
+    if (!b->col || !b->col_of_field || !b->num_col || !b->fac_col || !b->counted)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     for (i = 0; i < nfields; i++) b->col_of_field[i] = -1;
     for (i = 0; i <= MR__USE_EXPOSURE; i++) b->role_col[i] = -1;
@@ -139,5 +142,6 @@ void mr__binding_release(mr__binding *b)
     mr__free(b->col_of_field);
     mr__free(b->num_col);
     mr__free(b->fac_col);
+    mr__free(b->counted);
     memset(b, 0, sizeof *b);
 }

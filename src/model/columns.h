@@ -34,6 +34,10 @@ typedef struct mr__binding {
     size_t nnum, nfac;
     /* Column index of each numeric / factor variable, in declaration order. */
     size_t *num_col, *fac_col;
+    /* Per numeric: 1 when the first pass counts its distinct values (a
+     * spline's column: its knots come from them); ncounted of them. */
+    unsigned char *counted;
+    size_t ncounted;
     int has_trials, has_weight, has_offset, has_exposure;
     /* Bound column of each role (mr__use up to MR__USE_EXPOSURE), -1 if absent. */
     int role_col[MR__USE_EXPOSURE + 1];

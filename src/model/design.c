@@ -43,23 +43,62 @@ static void add_part(mr__term *t, int var, int is_factor)
     else t->num[t->nnum++] = var;
 }
 
+/* The spline part of a group's parts, or -1 (at most one: spec.c). */
+static int spline_part(const mr__design *d, const int *var, const int *isf, int nparts)
+{
+    int k;
+    for (k = 0; k < nparts; k++)
+        if (!isf[k] && var[k] >= 0 && d->spline[var[k]] != NULL) return k;
+    return -1;
+}
+
+static size_t group_terms(const mr__design *d, const int *var, const int *isf, int nparts)
+{
+    int k = spline_part(d, var, isf, nparts);
+    return k < 0 ? 1 : d->spline[var[k]]->ncols;
+}
+
+/* A group's terms: one, or one per column of its spline. */
+static void add_group(mr__design *d, const int *var, const int *isf, int nparts, size_t group)
+{
+    int sk = spline_part(d, var, isf, nparts), k;
+    size_t j, n = group_terms(d, var, isf, nparts);
+    for (j = 0; j < n; j++) {
+        mr__term *t = &d->term[d->nterms++];
+        t->group = group;
+        for (k = 0; k < nparts; k++) {
+            if (k == sk) {
+                t->spline[t->nnum] = d->spline[var[k]];
+                t->spline_col[t->nnum] = j;
+            }
+            add_part(t, var[k], isf[k]);
+        }
+    }
+}
+
+/* The parts of group g: covariate g, or interaction g - ncov. */
+static int group_parts(const mr__spec *s, const mr__binding *b, size_t g, int *var, int *isf)
+{
+    int k, n = g < s->ncov ? 1 : s->inter[g - s->ncov].n;
+    for (k = 0; k < n; k++)
+        var[k] = covariate_var(b, g < s->ncov ? s->cov[g].name : s->inter[g - s->ncov].name[k], &isf[k]);
+    return n;
+}
+
 /* Terms in column order: each covariate, then each interaction. */
 static mr_status collect_terms(mr__design *d, const mr__spec *s, const mr__binding *b, mr__error *err)
 {
-    size_t i;
-    int k, isf = 0, v;
-    d->term = mr__calloc(s->ncov + s->ninter + 1, sizeof *d->term);
-    if (d->term == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    for (i = 0; i < s->ncov; i++) {
-        v = covariate_var(b, s->cov[i].name, &isf);
-        add_part(&d->term[d->nterms++], v, isf);
+    size_t g, i, total = 0, ngroups = s->ncov + s->ninter;
+    int var[MR__MAX_INTERACT], isf[MR__MAX_INTERACT] = {0}, n;
+    for (g = 0; g < ngroups; g++) {
+        n = group_parts(s, b, g, var, isf);
+        total += group_terms(d, var, isf, n);
     }
-    for (i = 0; i < s->ninter; i++) {
-        mr__term *t = &d->term[d->nterms++];
-        for (k = 0; k < s->inter[i].n; k++) {
-            v = covariate_var(b, s->inter[i].name[k], &isf);
-            add_part(t, v, isf);
-        }
+    d->term = mr__calloc(total + 1, sizeof *d->term);
+    if (d->term == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (g = 0; g < ngroups; g++) {
+        n = group_parts(s, b, g, var, isf);
+        add_group(d, var, isf, n, g);
     }
     /* Without an intercept the first factor takes every level, so the
      * model can still express a level-specific baseline. */
@@ -69,6 +108,24 @@ static mr_status collect_terms(mr__design *d, const mr__spec *s, const mr__bindi
                 d->term[i].full = 1;
                 break;
             }
+    return MR_OK;
+}
+
+/* Each spline column's basis, its knots from the first pass's counts. */
+static mr_status settle_splines(mr__design *d, const mr__spec *s, const mr__binding *b, mr__value_counts *counts,
+                                mr__error *err)
+{
+    size_t i;
+    int isf, v;
+    d->spline = mr__calloc(b->nnum + 1, sizeof *d->spline);
+    if (d->spline == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (i = 0; i < s->ncov; i++) {
+        if (s->cov[i].role != MR__ROLE_SPLINE) continue;
+        v = covariate_var(b, s->cov[i].name, &isf);
+        if ((d->spline[v] = mr__malloc(sizeof *d->spline[v])) == NULL)
+            return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        MR__TRY(mr__spline_settle(d->spline[v], s->cov[i].name, &s->cov[i].spline, counts ? &counts[v] : NULL, err));
+    }
     return MR_OK;
 }
 
@@ -114,21 +171,28 @@ static void append_level_name(mr__strbuf *sb, const mr__design *d, const mr__ter
     mr__strbuf_printf(sb, "%s=%s", f->name, f->level[lev]);
 }
 
+static void append_numeric_name(mr__strbuf *sb, const mr__term *t, int k, const char *name)
+{
+    if (t->spline[k] == NULL) mr__strbuf_printf(sb, "%s", name);
+    else mr__strbuf_printf(sb, "%s[spline %zu/%zu]", name, t->spline_col[k] + 1, t->spline[k]->ncols);
+}
+
 /* Parts are named in the order the analyst wrote them. */
 static char *column_name(const mr__design *d, const mr__spec *s, size_t ti, size_t j, const char *const *num_name)
 {
     const mr__term *t = &d->term[ti];
+    const size_t g = t->group;
     mr__strbuf sb;
     int32_t code[MR__MAX_INTERACT];
     int k, fi = 0, ni = 0, nparts = t->nfac + t->nnum;
     mr__strbuf_init(&sb);
     column_levels(d, t, j, code);
     for (k = 0; k < nparts; k++) {
-        const char *part = ti < s->ncov ? s->cov[ti].name : s->inter[ti - s->ncov].name[k];
+        const char *part = g < s->ncov ? s->cov[g].name : s->inter[g - s->ncov].name[k];
         int is_fac = fi < t->nfac && strcmp(d->fac[t->fac[fi]].name, part) == 0;
         if (k) mr__strbuf_append(&sb, " & ", 3);
         if (is_fac) append_level_name(&sb, d, t, fi, code[fi]), fi++;
-        else mr__strbuf_printf(&sb, "%s", num_name[t->num[ni++]]);
+        else append_numeric_name(&sb, t, ni, num_name[t->num[ni]]), ni++;
     }
     return mr__strbuf_take(&sb);
 }
@@ -167,7 +231,7 @@ static const mr__term *find_subterm(const mr__design *d, size_t ti, unsigned mas
         }
         for (k = 0; ok && k < t->nnum; k++) {
             int in = 0;
-            for (m = 0; m < c->nnum; m++) in |= c->num[m] == t->num[k];
+            for (m = 0; m < c->nnum; m++) in |= c->num[m] == t->num[k] && c->spline_col[m] == t->spline_col[k];
             if ((mask >> k & 1u) != (unsigned)in) ok = 0;
             nn += in;
         }
@@ -213,7 +277,7 @@ static void choose_centring(mr__design *d, size_t ti, const double *mean, const 
     int k, ok = 1;
     for (k = 0; k < t->nnum; k++) {
         double m = mean[t->num[k]], s = spread[t->num[k]];
-        int usable = isfinite(s) && s > 0 && isfinite(m);
+        int usable = isfinite(s) && s > 0 && isfinite(m) && t->spline[k] == NULL;
         t->scale[k] = usable ? s : 1.0;
         t->centre[k] = usable ? m : 0.0;
     }
@@ -356,13 +420,15 @@ static mr_status build_skeleton(mr__design *d, mr__error *err)
 }
 
 mr_status mr__design_build(mr__design *d, const mr__spec *s, const mr__binding *b, const mr__factor *fac,
-                           const double *mean, const double *spread, mr__error *err)
+                           const double *mean, const double *spread, mr__value_counts *counts,
+                           mr__error *err)
 {
     memset(d, 0, sizeof *d);
     d->intercept = s->intercept;
     d->fac = fac;
     d->nfac = b->nfac;
     d->nnum = b->nnum;
+    MR__TRY(settle_splines(d, s, b, counts, err));
     MR__TRY(collect_terms(d, s, b, err));
     MR__TRY(lay_out_columns(d, err));
     MR__TRY(name_columns(d, s, b, err));
@@ -377,6 +443,8 @@ void mr__design_release(mr__design *d)
     for (j = 0; d->name && j < d->p; j++) mr__free(d->name[j]);
     mr__free(d->name);
     for (j = 0; d->term && j < d->nterms; j++) mr__free(d->term[j].colmap);
+    for (j = 0; d->spline && j < d->nnum; j++) mr__free(d->spline[j]);
+    mr__free(d->spline);
     mr__free(d->term);
     mr__free(d->A);
     mr__free(d->dense_col);
@@ -387,6 +455,13 @@ void mr__design_release(mr__design *d)
     mr__free(d->run_len);
     mr__free(d->run_off);
     memset(d, 0, sizeof *d);
+}
+
+/* Numeric part k of a term at x. */
+static double part_value(const mr__term *t, int k, double x)
+{
+    if (t->spline[k] != NULL) return mr__spline_value(t->spline[k], t->spline_col[k], x);
+    return (x - t->centre[k]) * t->inv_scale[k];
 }
 
 /* Row i's column in term t (-1 if none) and, through *v, its value. */
@@ -401,7 +476,7 @@ static int32_t term_entry(const mr__term *t, const mr__factor *fac, const double
         if (c < 0) return -1;
         col += (size_t)c * t->stride[k];
     }
-    for (k = 0; k < t->nnum; k++) x *= (num[(size_t)t->num[k] * stride_rows + i] - t->centre[k]) * t->inv_scale[k];
+    for (k = 0; k < t->nnum; k++) x *= part_value(t, k, num[(size_t)t->num[k] * stride_rows + i]);
     *v = x;
     return (int32_t)col;
 }
@@ -436,13 +511,18 @@ static void numeric_part(const mr__term *t, const double *num, size_t stride_row
         for (i = 0; i < n; i++) v[i] = 1.0;
         return;
     }
-    {
+    if (t->spline[0] != NULL) {
+        mr__spline_column(t->spline[0], t->spline_col[0], num + (size_t)t->num[0] * stride_rows, n, v);
+    } else {
         const double *x = num + (size_t)t->num[0] * stride_rows, c = t->centre[0], s = t->inv_scale[0];
         for (i = 0; i < n; i++) v[i] = (x[i] - c) * s;
     }
     for (k = 1; k < t->nnum; k++) {
         const double *x = num + (size_t)t->num[k] * stride_rows, c = t->centre[k], s = t->inv_scale[k];
-        for (i = 0; i < n; i++) v[i] *= (x[i] - c) * s;
+        if (t->spline[k] != NULL)
+            for (i = 0; i < n; i++) v[i] *= part_value(t, k, x[i]);
+        else
+            for (i = 0; i < n; i++) v[i] *= (x[i] - c) * s;
     }
 }
 

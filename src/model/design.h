@@ -21,6 +21,7 @@
 #include "common/error.h"
 #include "model/columns.h"
 #include "model/spec.h"
+#include "model/term_spline.h"
 
 #define MR__MAX_COLUMNS 4000
 /* Dense columns: the intercept, terms without a factor and, while there
@@ -38,6 +39,12 @@ typedef struct mr__term {
     int nfac, nnum;
     int fac[MR__MAX_INTERACT]; /* factor variable indices, in the term's order */
     int num[MR__MAX_INTERACT]; /* numeric variable indices */
+    /* A numeric part that is a spline's column (model/term_spline.h)
+     * enters as that basis column, neither centred nor scaled; NULL: as
+     * itself. */
+    const mr__spline *spline[MR__MAX_INTERACT];
+    size_t spline_col[MR__MAX_INTERACT];
+    size_t group; /* the model term it is part of: covariate i, or interaction ncov + i */
     int full;                  /* every level gets a column (no intercept) */
     size_t col0, ncols;
     size_t stride[MR__MAX_INTERACT];
@@ -55,6 +62,7 @@ typedef struct mr__design {
     size_t nterms;
     const mr__factor *fac;
     size_t nfac, nnum;
+    mr__spline **spline; /* nnum entries: a spline column's basis, NULL for a plain numeric */
     double *A; /* p x p, column-major: raw column k's share of internal column j */
     /* The accumulation layout.  Terms without a factor are dense (every row
      * has a value in their column); a term with a factor puts at most one
@@ -89,9 +97,15 @@ static inline size_t mr__design_packed_index(const mr__design *d, size_t a, size
 }
 
 /* Builds the design.  `mean` and `spread` (nnum each) come from the first
- * pass; a zero or non-finite spread leaves that numeric raw. */
+ * pass; a zero or non-finite spread leaves that numeric raw.  `counts`
+ * (nnum tables, NULL when the first pass counted none or ran out of
+ * memory) gives the splines their knots (a spline's table is finished
+ * here: common/valuecount.h).  A spline covariate or an
+ * interaction with one is as many terms as the spline has columns, one
+ * after the other (the basis column slowest), all of the same group. */
 mr_status mr__design_build(mr__design *d, const mr__spec *s, const mr__binding *b, const mr__factor *fac,
-                           const double *mean, const double *spread, mr__error *err);
+                           const double *mean, const double *spread, mr__value_counts *counts,
+                           mr__error *err);
 void mr__design_release(mr__design *d);
 
 /* Fills the n x p internal design block Z (column-major, leading

@@ -5,6 +5,7 @@
 #include <errno.h>
 #include <math.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
 #include "common/alloc.h"
@@ -35,6 +36,7 @@ static void release_covariate(mr__covariate *c)
 {
     mr__free(c->name);
     mr__free(c->ref);
+    mr__free(c->spline.knots);
 }
 
 void mr__spec_release(mr__spec *s)
@@ -121,6 +123,8 @@ static mr_status declare_covariate(mr__spec *s, const char *name, mr__role role,
     c->role = role;
     mr__free(c->ref);
     c->ref = NULL;
+    mr__free(c->spline.knots);
+    memset(&c->spline, 0, sizeof c->spline);
     if (ref != NULL) MR__TRY(set_string(&c->ref, ref, err));
     return MR_OK;
 }
@@ -194,6 +198,102 @@ static mr_status parse_factor(mr__spec *s, const words *ws, const char *origin, 
     return declare_covariate(s, ws->w[1], MR__ROLE_FACTOR, ref, err);
 }
 
+/* "a,b,c": at most `max` finite numbers, in *n. */
+static mr_status parse_numbers(const char *text, double *out, size_t max, size_t *n, const char *origin,
+                               const char *key, mr__error *err)
+{
+    const char *p = text;
+    *n = 0;
+    for (;;) {
+        char *end;
+        double v;
+        errno = 0;
+        v = strtod(p, &end);
+        if (end == p || (*end != ',' && *end != '\0') || !isfinite(v) || isspace((unsigned char)*p))
+            return mr__fail(err, MR_ERR_USAGE, "%s: spline %s= takes numbers separated by commas, got '%s'", origin,
+                            key, text);
+        if (*n == max)
+            return mr__fail(err, MR_ERR_USAGE, "%s: spline %s= takes at most %zu numbers", origin, key, max);
+        out[(*n)++] = v;
+        if (*end == '\0') return MR_OK;
+        p = end + 1;
+    }
+}
+
+static mr_status check_increasing(const double *v, size_t n, const char *what, const char *origin, mr__error *err)
+{
+    size_t i;
+    for (i = 1; i < n; i++)
+        if (!(v[i] > v[i - 1]))
+            return mr__fail(err, MR_ERR_USAGE, "%s: spline %s must be strictly increasing (%.17g then %.17g)", origin,
+                            what, v[i - 1], v[i]);
+    return MR_OK;
+}
+
+static mr_status check_inside(const mr__spline_spec *sp, const double *knots, const char *origin, mr__error *err)
+{
+    size_t i;
+    if (!sp->has_boundary) return MR_OK;
+    for (i = 0; i < sp->nknots; i++)
+        if (!(knots[i] > sp->boundary[0] && knots[i] < sp->boundary[1]))
+            return mr__fail(err, MR_ERR_USAGE, "%s: spline knot %.17g is not inside the boundary knots %.17g,%.17g",
+                            origin, knots[i], sp->boundary[0], sp->boundary[1]);
+    return MR_OK;
+}
+
+/* One option of a spline line into sp; knots[] has MR__SPLINE_MAX_KNOTS room. */
+static mr_status spline_option(mr__spline_spec *sp, const char *w, double *knots, const char *origin, mr__error *err)
+{
+    size_t n;
+    if (strncmp(w, "df=", 3) == 0) {
+        char *end;
+        long df = strtol(w + 3, &end, 10);
+        if (end == w + 3 || *end != '\0' || df < 1 || df > MR__SPLINE_MAX_KNOTS + 1)
+            return mr__fail(err, MR_ERR_USAGE, "%s: spline df= takes a whole number from 1 to %d, got '%s'", origin,
+                            MR__SPLINE_MAX_KNOTS + 1, w + 3);
+        sp->df = (int)df;
+        return MR_OK;
+    }
+    if (strncmp(w, "knots=", 6) == 0) {
+        MR__TRY(parse_numbers(w + 6, knots, MR__SPLINE_MAX_KNOTS, &sp->nknots, origin, "knots", err));
+        return check_increasing(knots, sp->nknots, "knots", origin, err);
+    }
+    if (strncmp(w, "boundary=", 9) == 0) {
+        MR__TRY(parse_numbers(w + 9, sp->boundary, 2, &n, origin, "boundary", err));
+        if (n != 2) return mr__fail(err, MR_ERR_USAGE, "%s: spline boundary= takes two numbers, LO,HI", origin);
+        sp->has_boundary = 1;
+        return check_increasing(sp->boundary, 2, "boundary knots", origin, err);
+    }
+    return mr__fail(err, MR_ERR_USAGE, "%s: spline takes df=N or knots=K1,K2,..., and optionally boundary=LO,HI; got '%s'",
+                    origin, w);
+}
+
+static mr_status parse_spline(mr__spec *s, const words *ws, const char *origin, mr__error *err)
+{
+    double knots[MR__SPLINE_MAX_KNOTS];
+    mr__spline_spec sp;
+    mr__covariate *c;
+    int k;
+    memset(&sp, 0, sizeof sp);
+    if (ws->n < 3 || ws->n > 4)
+        return mr__fail(err, MR_ERR_USAGE, "%s: spline takes a column name, then df=N or knots=K1,K2,..., and "
+                        "optionally boundary=LO,HI", origin);
+    for (k = 2; k < ws->n; k++) MR__TRY(spline_option(&sp, ws->w[k], knots, origin, err));
+    if ((sp.df > 0) == (sp.nknots > 0))
+        return mr__fail(err, MR_ERR_USAGE, "%s: spline takes either df=N or knots=K1,K2,..., not %s", origin,
+                        sp.df > 0 ? "both" : "neither");
+    MR__TRY(check_inside(&sp, knots, origin, err));
+    MR__TRY(declare_covariate(s, ws->w[1], MR__ROLE_SPLINE, NULL, err));
+    c = (mr__covariate *)mr__spec_find(s, ws->w[1]);
+    if (sp.nknots > 0) {
+        if ((sp.knots = mr__malloc_array(sp.nknots, sizeof *sp.knots)) == NULL)
+            return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        memcpy(sp.knots, knots, sp.nknots * sizeof *knots);
+    }
+    c->spline = sp;
+    return MR_OK;
+}
+
 static mr_status parse_choice(const words *ws, const char *a, const char *b, int *out, const char *origin,
                               mr__error *err)
 {
@@ -241,6 +341,7 @@ static mr_status apply_words(mr__spec *s, const words *ws, const char *origin, m
         return declare_covariate(s, ws->w[1], MR__ROLE_NUMERIC, NULL, err);
     }
     if (strcmp(d, "factor") == 0) return parse_factor(s, ws, origin, err);
+    if (strcmp(d, "spline") == 0) return parse_spline(s, ws, origin, err);
     if (strcmp(d, "interact") == 0) return add_interaction(s, ws, origin, err);
     if (strcmp(d, "intercept") == 0) return parse_choice(ws, "yes", "no", &s->intercept, origin, err);
     if (strcmp(d, "dispersion") == 0) return parse_choice(ws, "estimate", "fixed", &s->dispersion, origin, err);
@@ -321,12 +422,19 @@ static mr_status validate_interactions(const mr__spec *s, mr__error *err)
 {
     size_t i;
     int k;
-    for (i = 0; i < s->ninter; i++)
-        for (k = 0; k < s->inter[i].n; k++)
-            if (mr__spec_find(s, s->inter[i].name[k]) == NULL)
+    for (i = 0; i < s->ninter; i++) {
+        int splines = 0;
+        for (k = 0; k < s->inter[i].n; k++) {
+            const mr__covariate *c = mr__spec_find(s, s->inter[i].name[k]);
+            if (c == NULL)
                 return mr__fail(err, MR_ERR_USAGE,
-                                "model: interact names '%s', which is not declared with numeric or factor",
+                                "model: interact names '%s', which is not declared with numeric, factor or spline",
                                 s->inter[i].name[k]);
+            if (c->role == MR__ROLE_SPLINE && ++splines > 1)
+                return mr__fail(err, MR_ERR_USAGE, "model: interact names two splines ('%s' is the second); an "
+                                "interaction takes at most one", s->inter[i].name[k]);
+        }
+    }
     return MR_OK;
 }
 

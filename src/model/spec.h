@@ -9,13 +9,29 @@
 #include "family/family.h"
 
 #define MR__MAX_INTERACT 3
+/* Interior knots of one spline at most (df= up to this plus one). */
+#define MR__SPLINE_MAX_KNOTS 40
 
-typedef enum mr__role { MR__ROLE_NUMERIC = 1, MR__ROLE_FACTOR = 2 } mr__role;
+/* A spline is a numeric column entered through a natural cubic spline
+ * basis (model/term_spline.h). */
+typedef enum mr__role { MR__ROLE_NUMERIC = 1, MR__ROLE_FACTOR = 2, MR__ROLE_SPLINE = 3 } mr__role;
+
+/* `spline COL df=N [boundary=LO,HI]` or `spline COL knots=K1,K2,...
+ * [boundary=LO,HI]`: df 0 when the knots are given.  Without boundary=
+ * the boundary knots are the column's minimum and maximum. */
+typedef struct mr__spline_spec {
+    int df;
+    double *knots;
+    size_t nknots;
+    int has_boundary;
+    double boundary[2];
+} mr__spline_spec;
 
 typedef struct mr__covariate {
     char *name;
     mr__role role;
     char *ref; /* reference level of a factor, NULL = first in sorted order */
+    mr__spline_spec spline; /* MR__ROLE_SPLINE only */
 } mr__covariate;
 
 typedef struct mr__interaction {

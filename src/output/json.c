@@ -49,6 +49,7 @@ static json_t *utc_time(int64_t ns)
 static const char *term_kind(const mr_fit *f, const mr__fit_term *t)
 {
     if (t->nparts > 1) return "interaction";
+    if (t->spline) return "spline";
     return mr__fit_find_factor(f, t->part[0]) >= 0 ? "factor" : "numeric";
 }
 
@@ -110,7 +111,7 @@ static json_t *term_columns(const mr_fit *f, const mr__fit_term *t)
         long fi = mr__fit_find_factor(f, t->part[k]);
         json_t *c = json_object();
         c = put(c, "name", mr__json_text(t->part[k]));
-        c = put(c, "type", json_string(fi >= 0 ? "factor" : "numeric"));
+        c = put(c, "type", json_string(mr__fit_part_type(f, t, k)));
         if (fi >= 0) {
             c = put(c, "reference", mr__json_text(f->factor[fi].reference));
             c = put(c, "levels", levels_used(&f->factor[fi], t));

@@ -329,8 +329,8 @@ static mr_status read_term_columns(reader *r, json_t *v, mr_fit *f, mr__fit_term
         leave(r, inner);
         inner = enter(r, "type");
         MR__TRY(read_word(r, json_object_get(c, "type"), &type));
-        if (strcmp(type, mr__fit_find_factor(f, t->part[k]) >= 0 ? "factor" : "numeric") != 0)
-            return bad(r, "does not agree with model.factors");
+        if (strcmp(type, mr__fit_part_type(f, t, k)) != 0)
+            return bad(r, "does not agree with model.factors and the term's spline");
         leave(r, inner);
         leave(r, back);
     }
@@ -390,7 +390,21 @@ static mr_status check_format(reader *r, json_t *root)
     return MR_OK;
 }
 
-/* What the types alone do not say: terms within the coefficients. */
+/* A spline's knots as mr__spline_make takes them (a scorer rebuilds the
+ * basis from them). */
+static int spline_knots_ok(const mr__fit_term *t)
+{
+    size_t k;
+    if (t->nboundary != 2 || !(t->boundary[0] < t->boundary[1])) return 0;
+    for (k = 0; k < t->nknots; k++)
+        if (!(t->knots[k] > t->boundary[0] && t->knots[k] < t->boundary[1]) ||
+            (k > 0 && !(t->knots[k] > t->knots[k - 1])))
+            return 0;
+    return 1;
+}
+
+/* What the types alone do not say: terms within the coefficients, spline
+ * knots in order. */
 static mr_status check_consistent(reader *r)
 {
     const mr_fit *f = r->fit;
@@ -399,12 +413,20 @@ static mr_status check_consistent(reader *r)
         enter(r, "fit.rank");
         return bad(r, "exceeds the number of coefficients");
     }
-    for (i = 0; i < f->nterms; i++)
-        if (f->term[i].first > f->p || f->term[i].ncoef > f->p - f->term[i].first) {
+    for (i = 0; i < f->nterms; i++) {
+        const mr__fit_term *t = &f->term[i];
+        if (t->first > f->p || t->ncoef > f->p - t->first) {
             enter(r, "model.terms");
             enter_item(r, i);
             return bad(r, "names coefficients the fit does not have");
         }
+        if (t->spline && !spline_knots_ok(t)) {
+            enter(r, "model.terms");
+            enter_item(r, i);
+            enter(r, "spline");
+            return bad(r, "needs two boundary knots and increasing knots between them");
+        }
+    }
     return MR_OK;
 }
 

@@ -52,12 +52,23 @@ static const mr__jfield factor_fields[] = {
     END,
 };
 
+static const mr__jfield spline_fields[] = {
+    {"column", MR__J_TEXT, offsetof(mr__fit_term, spline_column), 0, 0, 0, 0, 0, NULL, NULL, NULL},
+    {"knots", MR__J_REALS, offsetof(mr__fit_term, knots), offsetof(mr__fit_term, nknots), 0, 0, 0, 0, NULL, NULL,
+     NULL},
+    {"boundary_knots", MR__J_REALS, offsetof(mr__fit_term, boundary), offsetof(mr__fit_term, nboundary), 0, 0, 0, 0,
+     NULL, NULL, NULL},
+    END,
+};
+
 static const mr__jfield term_fields[] = {
     {"label", MR__J_TEXT, offsetof(mr__fit_term, label), 0, 0, 0, 0, 0, NULL, NULL, NULL},
     DERIVED("kind", MR__JD_TERM_KIND),
     {"coding", MR__J_CHOICE, offsetof(mr__fit_term, full), 0, 0, 0, 0, 0, "full", "treatment", NULL},
     {"first_coefficient", MR__J_SIZE, offsetof(mr__fit_term, first), 0, 0, 0, 0, 0, NULL, NULL, NULL},
     {"coefficients", MR__J_SIZE, offsetof(mr__fit_term, ncoef), 0, 0, 0, 0, 0, NULL, NULL, NULL},
+    /* before the columns, whose types the reader checks against it */
+    {"spline", MR__J_OBJECT_OPTIONAL, 0, offsetof(mr__fit_term, spline), 0, 0, 0, 0, NULL, NULL, spline_fields},
     SPECIAL("columns", MR__JS_TERM_COLUMNS),
     DERIVED("test", MR__JD_TERM_TEST),
     END,

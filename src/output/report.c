@@ -53,6 +53,16 @@ static void section_data(mr__strbuf *b, const mr_fit *f)
     if (f->zero_weight) mr__strbuf_printf(b, "           %llu used rows have weight 0\n", (unsigned long long)f->zero_weight);
 }
 
+/* A spline's knots, as the JSON has them to full precision. */
+static void section_spline(mr__strbuf *b, const mr__fit_term *t)
+{
+    size_t k;
+    mr__strbuf_printf(b, "           spline %s: %zu column%s, ", t->spline_column, t->ncoef, t->ncoef == 1 ? "" : "s");
+    mr__strbuf_printf(b, t->nknots ? "knots" : "no interior knot");
+    for (k = 0; k < t->nknots; k++) mr__strbuf_printf(b, "%s %.10g", k ? "," : "", t->knots[k]);
+    mr__strbuf_printf(b, ", boundary %.10g and %.10g\n", t->boundary[0], t->boundary[1]);
+}
+
 static void section_model(mr__strbuf *b, const mr_fit *f)
 {
     size_t i;
@@ -71,6 +81,8 @@ static void section_model(mr__strbuf *b, const mr_fit *f)
     for (i = 0; i < f->nfactors; i++)
         mr__strbuf_printf(b, "           factor %s: %zu levels, reference %s\n", f->factor[i].name,
                           f->factor[i].nlevels, f->factor[i].reference);
+    for (i = 0; i < f->nterms; i++)
+        if (f->term[i].spline && f->term[i].nparts == 1) section_spline(b, &f->term[i]);
 }
 
 static void section_convergence(mr__strbuf *b, const mr_fit *f)

@@ -28,6 +28,8 @@ expect() { # expect NAME CODE command...
 cd "$root"
 expect "poisson zstd sample" 0 $MILLRACE fit -m samples/falls.model --quiet --json "$tmp/f.json" samples/falls.csv.zst
 expect "logistic sample, 1 thread, in memory" 0 $MILLRACE fit -m samples/screening.model --threads 1 --in-memory --quiet samples/screening.csv
+expect "spline terms, quantile knots times a factor" 0 $MILLRACE fit -m samples/falls.model --spline "year df=3" --interact "year sex" --threads 2 --no-collapse --quiet --json "$tmp/spline.json" samples/falls.csv
+expect "spline terms with given knots, in memory" 0 $MILLRACE fit -m samples/screening.model --spline "age knots=40,55 boundary=30,70" --in-memory --quiet samples/screening.csv
 expect "plain file reread by the block map" 0 $MILLRACE fit -m samples/screening.model --threads 2 --no-cache --no-collapse --quiet samples/screening.csv
 expect "standard input, tiny reads" 0 sh -c "cat samples/falls.csv | $MILLRACE fit -m samples/falls.model --buffer-size 4096 --quiet -"
 expect "gzip members on standard input, rereads" 0 sh -c "{ head -n 1000 samples/falls.csv | gzip; tail -n +1001 samples/falls.csv | gzip; } | $MILLRACE fit -m samples/falls.model --no-collapse --no-cache --buffer-size 4096 --quiet -"
