@@ -13,6 +13,7 @@
 #include "common/alloc.h"
 #include "common/clock.h"
 #include "accum/census.h"
+#include "accum/partial.h"
 #include "input/rowsplit.h"
 #include "input/source.h"
 
@@ -73,6 +74,8 @@ typedef struct engine {
     char *buf;
     size_t buf_cap, pending_off, pending_len;
     mr__level_census census; /* first pass: every factor's levels, in block order */
+    mr__block_sums group;    /* IRLS: the open group's total (accum/partial.h) */
+    int group_open;
 } engine;
 
 /* ---- the reader ------------------------------------------------------ */
@@ -676,6 +679,15 @@ static mr_status keep_scanned(const mr__pass_cfg *cfg, mr__pass_result *res, slo
     return keep_block(cfg, res, s, err);
 }
 
+/* The group's total into the pass's, in group order (accum/partial.h). */
+static void close_group(engine *e, mr__pass_result *res)
+{
+    size_t p = e->cfg->point->design->p;
+    mr__sums_add_totals(&res->sums, &e->group, p);
+    mr__sums_zero_totals(&e->group, p);
+    e->group_open = 0;
+}
+
 static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *err)
 {
     const mr__pass_cfg *cfg = e->cfg;
@@ -697,7 +709,9 @@ static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *
         if (cfg->store) MR__TRY(keep_scanned(cfg, res, s, err));
         return keep_sample(e, res, s, err);
     }
-    mr__sums_add(&res->sums, &s->sums, cfg->point->design);
+    mr__sums_add(&e->group, &s->sums, cfg->point->design);
+    e->group_open = 1;
+    if (mr__group_closes(s->index, 0)) close_group(e, res);
     if (cfg->store && cfg->store_fill) st = keep_block(cfg, res, s, err);
     return st;
 }
@@ -737,6 +751,7 @@ static mr_status combine_all(engine *e, mr__pass_result *res, double t0, mr__err
         *err = e->reader_err;
         return e->reader_st;
     }
+    if (e->group_open) close_group(e, res);
     return report_progress(e, NULL, t0, &last, 1, err);
 }
 
@@ -788,6 +803,7 @@ static void release_engine(engine *e)
     mr__free(e->workers);
     release_slots(e);
     mr__census_release(&e->census);
+    mr__sums_release(&e->group);
     mr__splitter_release(&e->sp);
     mr__source_close(e->src);
     mr__free(e->buf);
@@ -825,6 +841,7 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     if (st == MR_OK && cfg->kind == MR__PASS_SCAN)
         st = mr__scan_init(&res->scan, cfg->dcfg->bind->ncol, cfg->dcfg->bind->nnum, err);
     if (st == MR_OK && cfg->kind == MR__PASS_SCAN) st = mr__census_init(&e.census, cfg->dcfg->bind->nfac, err);
+    if (st == MR_OK && cfg->kind == MR__PASS_IRLS) st = mr__sums_init(&e.group, cfg->point->design->p, err);
     /* the columns are bound now that the header is read */
     if (st == MR_OK && res->collapsed &&
         mr__pattern_merge_init(&res->patterns, cfg->dcfg->bind->nfac + cfg->dcfg->bind->nnum, e.nworkers) != 0)
