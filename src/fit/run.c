@@ -32,14 +32,12 @@ int openblas_get_num_threads(void);
 #include "family/family.h"
 #include "fit/fit.h"
 #include "fit/fitter.h"
+#include "fit/irls.h"
 #include "fit/run.h"
 #include "input/fields.h"
 #include "model/design.h"
 #include "common/probability.h"
 #include "solve/normal_eq.h"
-
-#define MAX_HALVINGS 30
-#define DECREMENT_SHARE 1e-2
 
 /* Each worker costs about 6 MB (its two ring slots of 2 MiB, its
  * decoder and scratch), and past the cores more workers only queue: the
@@ -549,8 +547,6 @@ static double null_start(const mr__run *r)
     return mr__link_fun(link, ybar) - s->swoff / s->sw;
 }
 
-static double relative_change(double now, double before) { return fabs(now - before) / (fabs(now) + 0.1); }
-
 /* One IRLS run: on the data, or on the kept sample for a warm start. */
 typedef struct irls_job {
     mr__store *replay;   /* NULL: the data (stream or cache); else these blocks */
@@ -601,155 +597,38 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
     return note_pass(r, res, err);
 }
 
-typedef struct irls_state {
-    double *beta, *prev, *next;
-    double decrement, null_dev;
-    int have_beta, have_prev, have_dev, cold_restart, null_known;
-    double dev_prev, null_b0, null_dev_prev;
-    int null_done;
-} irls_state;
-
-static int bad_point(const mr__pass_result *res, const irls_state *s)
-{
-    if (res->sums.invalid > 0 || !isfinite(res->sums.dev)) return 1;
-    /* A rise beyond rounding noise means the Newton step overshot. */
-    return s->have_prev && res->sums.dev > s->dev_prev + 1e-9 * (fabs(s->dev_prev) + 0.1);
-}
-
-static void halve_step(irls_state *s, size_t p)
-{
-    size_t j;
-    for (j = 0; j < p; j++) s->beta[j] = 0.5 * (s->beta[j] + s->prev[j]);
-}
-
-/* (v - G b)' (b_next - b): the Newton decrement, which is the deviance
- * the step from b to b_next is expected to remove (dispersion units). */
-static double newton_decrement(const mr__block_sums *sums, size_t p, const double *b, const double *b_next)
-{
-    size_t i, j;
-    double total = 0;
-    for (i = 0; i < p; i++) {
-        double u = sums->xtwz[i];
-        for (j = 0; j < p; j++) u -= sums->xtwx[i <= j ? j * p + i : i * p + j] * b[j];
-        total += u * (b_next[i] - b[i]);
-    }
-    return total;
-}
-
-static mr_status next_point(mr__run *r, irls_state *s, const mr__pass_result *res, double tol, mr__error *err)
-{
-    size_t p = r->design.p, rank;
-    double *t;
-    MR__TRY(mr__solve_normal(res->sums.xtwx, res->sums.xtwz, p, s->next, r->aliased, &rank, NULL, err));
-    s->decrement = s->have_beta ? newton_decrement(&res->sums, p, s->beta, s->next) : INFINITY;
-    t = s->prev;
-    s->prev = s->beta;
-    s->beta = s->next;
-    s->next = t;
-    s->have_prev = s->have_beta;
-    s->have_beta = 1;
-    s->have_dev = 1;
-    s->dev_prev = res->sums.dev;
-    if (r->f->spec.intercept && res->sums.null_sw > 0) {
-        double b0 = res->sums.null_swz / res->sums.null_sw;
-        /* One parameter converges fast, and its deviance repeats only to
-         * rounding (~1e-13 with an offset): a tighter test might never pass. */
-        s->null_done = s->null_done || relative_change(res->sums.null_dev, s->null_dev_prev) < fmax(tol, 1e-12);
-        s->null_dev_prev = res->sums.null_dev;
-        if (!s->null_done) s->null_b0 = b0;
-    }
-    return MR_OK;
-}
-
-static void start_state(mr__run *r, const irls_job *job, irls_state *s)
-{
-    memset(s, 0, sizeof *s);
-    s->beta = r->beta_a;
-    s->prev = r->beta_b;
-    s->next = r->beta_c;
-    s->null_b0 = null_start(r);
-    s->null_dev_prev = INFINITY;
-    s->null_done = !r->f->spec.intercept || null_start_exact(r);
-    if (job->start) {
-        memcpy(s->beta, job->start, r->design.p * sizeof *s->beta);
-        s->have_beta = 1;
-    }
-}
-
-/* Returns 1 to go on with the pass just made, 0 to redo the pass at a
- * halved step (or, from a warm start outside the range, from scratch). */
-static mr_status accept_point(mr__run *r, irls_job *job, irls_state *s, const mr__pass_result *res, int *halvings,
-                              int *accepted, mr__error *err)
-{
-    *accepted = 0;
-    if (s->have_beta && bad_point(res, s)) {
-        if (!s->have_prev && job->start && !s->cold_restart) {
-            s->have_beta = 0;
-            s->cold_restart = 1;
-            job->restarted = 1;
-            return MR_OK;
-        }
-        if (!s->have_prev || ++*halvings > MAX_HALVINGS)
-            return mr__fail(err, MR_ERR_NUMERIC,
-                            "%s: IRLS found no valid coefficients (fitted means outside the %s family's range even "
-                            "after step halving); check the link and the data",
-                            r->display, mr__family_name((mr_family)r->f->spec.family));
-        halve_step(s, r->design.p);
-        job->halvings++;
-        return MR_OK;
-    }
-    if (!s->have_beta && res->sums.invalid > 0)
-        return mr__fail(err, MR_ERR_NUMERIC, "%s: the starting values are outside the model's range", r->display);
-    *accepted = 1;
-    return MR_OK;
-}
-
+/* The passes the state machine asks for, until it is done. */
 static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__error *err)
 {
-    irls_state s;
-    int halvings = 0, accepted;
-    start_state(r, job, &s);
-    for (;;) {
-        MR__TRY(irls_pass(r, job, s.have_beta ? s.beta : NULL, s.null_b0, s.null_known ? &s.null_dev : NULL, res,
-                          err));
-        MR__TRY(accept_point(r, job, &s, res, &halvings, &accepted, err));
-        if (!accepted) continue;
-        halvings = 0;
-        job->iterations++;
-        if (s.have_dev) {
-            job->rel_change = relative_change(res->sums.dev, s.dev_prev);
-            if (job->rel_change < job->tolerance && s.null_done) {
-                job->converged = 1;
-                break;
-            }
-        }
-        if (job->iterations >= job->max_iterations && !job->step_at_end) break;
-        MR__TRY(next_point(r, &s, res, job->tolerance, err));
-        if (s.null_done && !s.null_known) {
-            /* This pass evaluated the null model at its final b0: later
-             * passes leave its per-row work out. */
-            s.null_dev = res->sums.null_dev;
-            s.null_known = 1;
-        }
-        if (job->iterations >= job->max_iterations) break;
-        /* When the step just solved would remove a hundredth of the
-         * tolerance or less, this pass was the last one needed: the step is
-         * taken without a pass to check it (as the usual IRLS codes do,
-         * whose coefficients are one step ahead of their weights).  The
-         * statistics are those of this pass; at that distance from the
-         * maximum they differ from those at the new point by about the
-         * square root of the gap, 1e-6 relative at the default tolerance. */
-        if (s.null_done && fabs(s.decrement) / (fabs(res->sums.dev) + 0.1) < DECREMENT_SHARE * job->tolerance) {
-            job->rel_change = fabs(s.decrement) / (fabs(res->sums.dev) + 0.1);
-            job->converged = 1;
-            job->by_decrement = 1;
-            break;
-        }
-    }
-    if (s.have_beta) memcpy(job->beta_out, s.beta, r->design.p * sizeof *job->beta_out);
-    else memset(job->beta_out, 0, r->design.p * sizeof *job->beta_out);
+    mr__irls s;
+    mr__irls_cfg c;
+    mr_status st;
+    int done = 0;
+    memset(&c, 0, sizeof c);
+    c.p = r->design.p;
+    c.tolerance = job->tolerance;
+    c.max_iterations = job->max_iterations;
+    c.step_at_end = job->step_at_end;
+    c.start = job->start;
+    c.null_intercept = r->f->spec.intercept;
+    c.null_b0 = null_start(r);
+    c.null_exact = null_start_exact(r);
+    c.family = r->f->spec.family;
+    MR__TRY(mr__irls_init(&s, &c, err));
+    do {
+        st = irls_pass(r, job, mr__irls_beta(&s), s.null_b0, mr__irls_null_deviance(&s), res, err);
+        if (st == MR_OK) st = mr__irls_step(&s, &res->sums, r->display, &done, err);
+    } while (st == MR_OK && !done);
+    job->iterations = s.iterations;
+    job->halvings = s.halvings;
+    job->converged = s.converged;
+    job->by_decrement = s.by_decrement;
+    job->restarted = s.restarted;
+    job->rel_change = s.rel_change;
     job->null_b0 = s.null_b0;
-    return MR_OK;
+    if (st == MR_OK) mr__irls_coefficients(&s, job->beta_out);
+    mr__irls_release(&s);
+    return st;
 }
 
 /* ---- the warm start ---------------------------------------------------- */
@@ -859,10 +738,6 @@ static void release_run(mr__run *r)
     mr__free(r->spread);
     mr__free(r->header);
     mr__free(r->pass_seconds);
-    mr__free(r->aliased);
-    mr__free(r->beta_a);
-    mr__free(r->beta_b);
-    mr__free(r->beta_c);
     mr__free(r->beta_final);
     mr__free(r->beta_warm);
     mr__store_release(&r->store);
@@ -877,13 +752,9 @@ static void release_run(mr__run *r)
 static mr_status allocate_coefficients(mr__run *r, mr__error *err)
 {
     size_t p = r->design.p + 1;
-    r->aliased = mr__calloc(p, sizeof *r->aliased);
-    r->beta_a = mr__calloc(p, sizeof(double));
-    r->beta_b = mr__calloc(p, sizeof(double));
-    r->beta_c = mr__calloc(p, sizeof(double));
     r->beta_final = mr__calloc(p, sizeof(double));
     r->beta_warm = mr__calloc(p, sizeof(double));
-    if (!r->aliased || !r->beta_a || !r->beta_b || !r->beta_c || !r->beta_final || !r->beta_warm)
+    if (!r->beta_final || !r->beta_warm)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     return MR_OK;
 }

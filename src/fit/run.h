@@ -53,10 +53,9 @@ typedef struct mr__run {
     char threads_note[256];
     /* IRLS */
     mr__pass_result last; /* sums at the reported coefficients */
-    double *beta_a, *beta_b, *beta_c, *beta_final, *beta_warm;
+    double *beta_final, *beta_warm;
     int warm, warm_iterations;
     int warm_blocks, warm_polish_blocks; /* sample blocks of the two stages (0: none) */
-    int *aliased;
     double null_b0, rel_change;
     int iterations, halvings, converged, by_decrement;
     double *pass_seconds;
