@@ -22,7 +22,6 @@ int openblas_get_num_threads(void);
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
-#include <sys/statvfs.h>
 #include <unistd.h>
 
 #include "accum/pass.h"
@@ -34,7 +33,6 @@ int openblas_get_num_threads(void);
 #include "fit/fitter.h"
 #include "fit/irls.h"
 #include "fit/run.h"
-#include "input/fields.h"
 #include "model/design.h"
 #include "common/probability.h"
 #include "solve/normal_eq.h"
@@ -63,45 +61,6 @@ static void choose_threads(mr__run *r)
     r->nthreads = cap;
 }
 
-/* ---- header and columns ------------------------------------------------ */
-
-static mr_status bind_header(mr__run *r, const char *line, size_t len, mr__error *err)
-{
-    char **names = NULL;
-    size_t n = 0, i;
-    mr_status st;
-    r->delim = r->f->delimiter ? (char)r->f->delimiter : mr__detect_delimiter(line, len);
-    r->delim_detected = r->f->delimiter == 0;
-    MR__TRY(mr__parse_header(line, len, r->delim, &names, &n, r->display, err));
-    st = mr__bind(&r->bind, &r->f->spec, names, n, r->display, err);
-    r->bound = 1; /* the binding owns the names now, even when it failed */
-    if (st != MR_OK) return st;
-    r->dcfg.bind = &r->bind;
-    r->dcfg.family = r->f->spec.family;
-    r->dcfg.skip_bad = r->f->skip_bad;
-    r->dcfg.delim = r->delim;
-    r->dcfg.display = r->display;
-    r->dcfg.missing = r->f->missing;
-    r->dcfg.nmissing = r->f->nmissing;
-    r->dcfg.missing_len = r->missing_len;
-    if (r->f->nmissing > MR__MAX_MISSING_TOKENS)
-        return mr__fail(err, MR_ERR_USAGE, "more than %d missing-value tokens", MR__MAX_MISSING_TOKENS);
-    for (i = 0; i < r->f->nmissing; i++) r->missing_len[i] = strlen(r->f->missing[i]);
-    r->dcfg.levels = NULL;
-    r->header = mr__strndup(line, len);
-    r->header_len = len;
-    return r->header ? MR_OK : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-}
-
-static mr_status on_header(void *user, const char *line, size_t len, mr__error *err)
-{
-    mr__run *r = user;
-    if (!r->bound) return bind_header(r, line, len, err);
-    if (len != r->header_len || memcmp(line, r->header, len) != 0)
-        return mr__fail(err, MR_ERR_IO, "%s: the header changed during the fit", r->display);
-    return MR_OK;
-}
-
 /* ---- passes ------------------------------------------------------------ */
 
 static mr__pass_cfg pass_config(mr__run *r, mr__pass_kind kind)
@@ -114,7 +73,7 @@ static mr__pass_cfg pass_config(mr__run *r, mr__pass_kind kind)
     c.read_size = r->f->buffer_size;
     c.tee_fd = -1;
     c.nthreads = r->nthreads;
-    c.on_header = on_header;
+    c.on_header = mr__run_on_header;
     c.header_user = r;
     c.dcfg = &r->dcfg;
     c.pass_number = r->npasses + 1;
@@ -152,49 +111,12 @@ static mr_status check_same_input(mr__run *r, const mr__pass_result *res, mr__er
     return MR_OK;
 }
 
-/* Where temporary files go: $TMPDIR, else /tmp. */
-static const char *temp_dir(void)
-{
-    const char *dir = getenv("TMPDIR");
-    return dir != NULL && *dir != '\0' ? dir : "/tmp";
-}
-
-/* Input that may not be there to read again - standard input, a pipe (a
- * /dev/fd/N name, as a shell's process substitution gives), a FIFO, a
- * character device, a socket - is copied as the first pass reads it, and
- * later passes read the copy: reopening a FIFO would wait for ever for a
- * writer, and a pipe read again is empty.  Only a regular file (or a
- * directory, which the source refuses) is read where it is. */
-static int read_only_once(const char *path)
-{
-    struct stat st;
-    if (strcmp(path, "-") == 0) return 1;
-    return stat(path, &st) == 0 && !S_ISREG(st.st_mode) && !S_ISDIR(st.st_mode);
-}
-
-static mr_status open_spool(mr__run *r, mr__error *err)
-{
-    const char *dir = temp_dir();
-    snprintf(r->spool, sizeof r->spool, "%s/millrace-input-XXXXXX", dir);
-    r->spool_fd = mkstemp(r->spool);
-    if (r->spool_fd < 0)
-        return mr__fail(err, MR_ERR_IO,
-                        "%s can be read only once, and its copy for the later passes cannot be created in %s: %s "
-                        "(set TMPDIR to a writable directory with room for the whole input)",
-                        r->display, dir, strerror(errno));
-    /* Unlinked at once, so that nothing is left behind however the process
-     * ends; later passes reopen it through the descriptor. */
-    unlink(r->spool);
-    snprintf(r->spool, sizeof r->spool, "/proc/self/fd/%d", r->spool_fd);
-    return MR_OK;
-}
-
 static mr_status scan_pass(mr__run *r, mr__error *err)
 {
     mr__pass_cfg c = pass_config(r, MR__PASS_SCAN);
     mr_status st;
-    if (read_only_once(r->path)) {
-        MR__TRY(open_spool(r, err));
+    if (mr__read_only_once(r->path)) {
+        MR__TRY(mr__open_spool(r, err));
         c.tee_fd = r->spool_fd;
     }
     if (r->use_store) {
@@ -215,310 +137,6 @@ static mr_status scan_pass(mr__run *r, mr__error *err)
         r->mtime_ns = (int64_t)sb.st_mtim.tv_sec * 1000000000 + sb.st_mtim.tv_nsec;
     }
     return note_pass(r, &r->first, err);
-}
-
-/* ---- what the first pass learned --------------------------------------- */
-
-static mr_status no_usable_rows(mr__run *r, mr__error *err)
-{
-    const mr__scan_sums *s = &r->first.scan;
-    char detail[600] = "";
-    size_t c, o = 0;
-    for (c = 0; c < r->bind.ncol && o < sizeof detail - 80; c++)
-        if (s->missing[c])
-            o += (size_t)snprintf(detail + o, sizeof detail - o, "%s'%s' missing in %llu", o ? ", " : "",
-                                  r->bind.col[c].name, (unsigned long long)s->missing[c]);
-    if (s->nbad) snprintf(detail + o, sizeof detail - o, "%s%llu bad rows", o ? ", " : "", (unsigned long long)s->nbad);
-    return mr__fail(err, MR_ERR_NO_DATA, "%s: no usable rows: all %llu data rows were left out (%s)", r->display,
-                    (unsigned long long)s->nread, detail);
-}
-
-/* Rows of prior weight 0 are read and checked but carry nothing: with no
- * other row there is no fit (rank 0, a null deviance on -1 df). */
-static mr_status no_weighted_rows(mr__run *r, mr__error *err)
-{
-    const mr__spec *s = &r->f->spec;
-    char what[300];
-    if (s->weight && s->trials) snprintf(what, sizeof what, "weight '%s' times trials '%s'", s->weight, s->trials);
-    else snprintf(what, sizeof what, "%s '%s'", s->weight ? "weight" : "trials", s->weight ? s->weight : s->trials);
-    return mr__fail(err, MR_ERR_NO_DATA, "%s: no usable rows: the prior weight (%s) is 0 in all %llu complete rows",
-                    r->display, what, (unsigned long long)r->first.scan.nused);
-}
-
-static mr_status settle_factor(mr__run *r, size_t f, mr__error *err)
-{
-    const mr__levelset **sets = mr__calloc(r->first.nworkers ? r->first.nworkers : 1, sizeof *sets);
-    const mr__covariate *cov;
-    mr__factor *fac = &r->fac[f];
-    size_t w, i;
-    int rc;
-    if (sets == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    for (w = 0; w < r->first.nworkers; w++) sets[w] = &r->first.worker_levels[w][f];
-    rc = mr__levelset_merge_sorted(sets, r->first.nworkers, &r->levels[f], &r->level_names[f]);
-    mr__free(sets);
-    if (rc != 0) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    fac->name = r->bind.col[r->bind.fac_col[f]].name;
-    fac->level = r->level_names[f];
-    fac->nlevels = r->levels[f].n;
-    fac->ref = 0;
-    cov = mr__spec_find(&r->f->spec, fac->name);
-    if (cov == NULL || cov->ref == NULL) return MR_OK;
-    for (i = 0; i < fac->nlevels; i++)
-        if (strcmp(fac->level[i], cov->ref) == 0) {
-            fac->ref = (int32_t)i;
-            return MR_OK;
-        }
-    return mr__fail(err, MR_ERR_USAGE, "model: reference level '%s' of factor '%s' does not occur in the data%s",
-                    cov->ref, fac->name, fac->nlevels ? "" : " (the factor has no levels)");
-}
-
-static mr_status settle_scan(mr__run *r, mr__error *err)
-{
-    const mr__scan_sums *s = &r->first.scan;
-    size_t f, k, nfac = r->bind.nfac, nnum = r->bind.nnum;
-    if (s->nread == 0) return mr__fail(err, MR_ERR_NO_DATA, "%s: the file has a header but no data rows", r->display);
-    if (s->nused == 0) return no_usable_rows(r, err);
-    if (s->npos == 0) return no_weighted_rows(r, err);
-    r->levels = mr__calloc(nfac + 1, sizeof *r->levels);
-    r->level_names = mr__calloc(nfac + 1, sizeof *r->level_names);
-    r->fac = mr__calloc(nfac + 1, sizeof *r->fac);
-    r->mean = mr__calloc(nnum + 1, sizeof *r->mean);
-    r->spread = mr__calloc(nnum + 1, sizeof *r->spread);
-    if (!r->levels || !r->level_names || !r->fac || !r->mean || !r->spread)
-        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    for (f = 0; f < nfac; f++) MR__TRY(settle_factor(r, f, err));
-    for (k = 0; k < nnum; k++) {
-        r->mean[k] = s->sx[k] / (double)s->nused;
-        r->spread[k] = mr__scan_spread(s, k);
-    }
-    r->dcfg.levels = r->levels;
-    return mr__design_build(&r->design, &r->f->spec, &r->bind, r->fac, r->mean, r->spread, err);
-}
-
-/* The cache only saves time: when it cannot be had (no file can be made in
- * TMPDIR, or a write to it failed), every pass rereads the input, which
- * gives the same bits, and the fit's warnings say why, once. */
-static void go_without_cache(mr__run *r, const char *why)
-{
-    mr__store_release(&r->store);
-    r->use_store = r->cached = r->store_filled = 0;
-    if (r->cache_note[0] == '\0')
-        snprintf(r->cache_note, sizeof r->cache_note, "no cache: %s; every pass rereads the input", why);
-}
-
-/* A cache file in TMPDIR, or none (and the reason noted). */
-static void open_cache(mr__run *r)
-{
-    mr__error scratch;
-    mr__error_clear(&scratch);
-    if (mr__store_init_file(&r->store, temp_dir(), &scratch) != MR_OK) {
-        go_without_cache(r, scratch.msg);
-        return;
-    }
-    r->store.budget = r->cache_budget;
-    r->use_store = 1;
-    r->cached = 1;
-}
-
-/* Where later passes get their rows: memory (asked for), a cache file
- * (default, when the disk has room), or the input again. */
-static void choose_store(mr__run *r)
-{
-    const char *dir = temp_dir();
-    struct statvfs fs;
-    struct stat in;
-    double need = 0, room;
-    /* Before the first pass only the input's size is known: decoded
-     * columns take about 1.5 times the text, and zstd text about 4 times
-     * less than that (generous on both counts, but a zstd file of blank
-     * lines or repeated rows can expand far more: then a write fails and
-     * the cache is given up). */
-    if (strcmp(r->path, "-") != 0 && stat(r->path, &in) == 0) need = 8.0 * (double)in.st_size;
-    if (r->f->in_memory) {
-        mr__store_init_packed(&r->store);
-        r->use_store = 1;
-        return;
-    }
-    mr__store_init_memory(&r->store);
-    if (r->f->no_cache) return;
-    if (statvfs(dir, &fs) == 0) {
-        room = (double)fs.f_bavail * (double)fs.f_frsize;
-        /* the estimate can be far off: the cache stops at half the room */
-        r->cache_budget = room / 2 >= 1 ? (uint64_t)(room / 2) : 1;
-        if (need > room / 2) {
-            snprintf(r->cache_note, sizeof r->cache_note,
-                     "no cache: it could need %.0f MB and %s has %.0f MB free; every pass rereads the input",
-                     need / 1e6, dir, room / 1e6);
-            return;
-        }
-    }
-    open_cache(r);
-}
-
-/* Maps each first-pass decoder's level numbers to the shared ones. */
-static mr_status build_remap(mr__run *r, mr__error *err)
-{
-    size_t w, f, j, nfac = r->bind.nfac, nw = r->first.nworkers;
-    r->remap = mr__calloc(nw * nfac + 1, sizeof *r->remap);
-    if (r->remap == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    r->nremap = nw * nfac;
-    for (w = 0; w < nw; w++)
-        for (f = 0; f < nfac; f++) {
-            const mr__levelset *local = &r->first.worker_levels[w][f];
-            int32_t *map = mr__calloc(local->n + 1, sizeof *map);
-            if (map == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-            r->remap[w * nfac + f] = map;
-            for (j = 0; j < local->cap; j++)
-                if (local->slot[j].str != NULL)
-                    map[local->slot[j].id] = mr__levelset_find(&r->levels[f], local->slot[j].str, local->slot[j].len);
-        }
-    return MR_OK;
-}
-
-/* After the first pass: the kept blocks are used as they are, or (when
- * the rows collapsed, or some blocks went unkept) the store starts afresh
- * and is filled by the first IRLS pass. */
-static mr_status settle_store(mr__run *r, mr__error *err)
-{
-    int file = r->store.fd >= 0;
-    if (!r->use_store) return MR_OK;
-    if (r->first.store_failed) {
-        go_without_cache(r, r->first.store_err.msg);
-        return MR_OK;
-    }
-    if (r->collapsed || r->first.store_incomplete) {
-        mr__store_release(&r->store);
-        if (r->collapsed) {
-            r->use_store = r->cached = 0;
-            return MR_OK;
-        }
-        if (file) open_cache(r);
-        else mr__store_init_packed(&r->store);
-        return MR_OK;
-    }
-    MR__TRY(build_remap(r, err));
-    mr__store_remap(&r->store, r->remap, r->bind.nfac);
-    r->store_filled = 1;
-    return MR_OK;
-}
-
-/* ---- collapsed covariate patterns ---------------------------------------- */
-
-static int collapse_mode(const mr__run *r)
-{
-    const mr__spec *s = &r->f->spec;
-    if (r->f->no_collapse) return 0;
-    if (s->offset == NULL && s->exposure == NULL) return 1;
-    return s->family == MR_POISSON && mr__spec_link(s) == MR_LOG ? 2 : 0;
-}
-
-static mr_status new_pattern_block(mr__run *r, mr__block *blk, mr__error *err)
-{
-    MR__TRY(mr__block_init(blk, &r->bind, err));
-    if (blk->prior == NULL) blk->prior = mr__malloc_array(MR__BLOCK_ROWS, sizeof *blk->prior);
-    blk->extra = mr__malloc_array(MR__BLOCK_ROWS, sizeof *blk->extra);
-    if (blk->prior == NULL || blk->extra == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    return MR_OK;
-}
-
-/* For each key column, global value number -> what a row holds: the
- * shared sorted level number of a factor, the value of a numeric. */
-typedef struct pattern_values {
-    int32_t **level;
-    double **value;
-} pattern_values;
-
-static void release_pattern_values(pattern_values *v, size_t nfac, size_t nnum)
-{
-    size_t k;
-    for (k = 0; v->level && k < nfac; k++) mr__free(v->level[k]);
-    for (k = 0; v->value && k < nnum; k++) mr__free(v->value[k]);
-    mr__free(v->level);
-    mr__free(v->value);
-}
-
-static mr_status resolve_pattern_values(const mr__run *r, pattern_values *v, mr__error *err)
-{
-    const mr__levelset *set = r->first.patterns.values;
-    size_t k, j, nfac = r->bind.nfac, nnum = r->bind.nnum;
-    v->level = mr__calloc(nfac + 1, sizeof *v->level);
-    v->value = mr__calloc(nnum + 1, sizeof *v->value);
-    if (v->level == NULL || v->value == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    for (k = 0; k < nfac; k++) {
-        v->level[k] = mr__malloc_array(set[k].n + 1, sizeof **v->level);
-        if (v->level[k] == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-        for (j = 0; j < set[k].n; j++) {
-            v->level[k][j] = mr__levelset_find(&r->levels[k], set[k].name[j].str, set[k].name[j].len);
-            if (v->level[k][j] < 0) return mr__fail(err, MR_ERR_INTERNAL, "a pattern names an unknown level");
-        }
-    }
-    for (k = 0; k < nnum; k++) { /* a numeric's values are kept as their 8 bytes */
-        const mr__levelset *nv = &set[nfac + k];
-        v->value[k] = mr__malloc_array(nv->n + 1, sizeof **v->value);
-        if (v->value[k] == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-        for (j = 0; j < nv->n; j++) memcpy(&v->value[k][j], nv->name[j].str, sizeof(double));
-    }
-    return MR_OK;
-}
-
-static void pattern_covariates(const mr__run *r, const pattern_values *v, size_t e, mr__block *blk, uint32_t i)
-{
-    const mr__pattern_table *t = &r->first.patterns.table;
-    size_t k, nfac = r->bind.nfac;
-    for (k = 0; k < nfac; k++) blk->lev[k * MR__BLOCK_ROWS + i] = v->level[k][mr__pattern_id(t, e, k)];
-    for (k = 0; k < r->bind.nnum; k++) blk->num[k * MR__BLOCK_ROWS + i] = v->value[k][mr__pattern_id(t, e, nfac + k)];
-}
-
-/* One pattern as one row, and what the rows add beyond it. */
-static void pattern_row(mr__run *r, const double *pt, mr__block *blk, uint32_t i)
-{
-    double a = pt[MR__PATTERN_A], b = pt[MR__PATTERN_B], c = pt[MR__PATTERN_C], d = pt[MR__PATTERN_D];
-    if (r->dcfg.collapse == 1) {
-        double ybar = b / a;
-        blk->y[i] = ybar;
-        blk->prior[i] = a;
-        blk->extra[i] = c - b * ybar;
-        r->within_deviance += 2 * (d - a * mr__family_saturated_term(r->f->spec.family, ybar));
-    } else {
-        blk->y[i] = b;
-        blk->prior[i] = 1.0;
-        blk->off[i] = log(a);
-        blk->extra[i] = c * a - b * b;
-        r->within_deviance += 2 * (d - (b > 0 ? b * log(b / a) : 0.0));
-    }
-}
-
-static mr_status build_patterns(mr__run *r, mr__error *err)
-{
-    const mr__pattern_table *t = &r->first.patterns.table;
-    pattern_values v;
-    mr__block blk;
-    size_t e;
-    mr_status st;
-    memset(&blk, 0, sizeof blk);
-    memset(&v, 0, sizeof v);
-    mr__store_init_memory(&r->patterns);
-    st = resolve_pattern_values(r, &v, err);
-    for (e = 0; e < t->n && st == MR_OK; e++) {
-        double pt[MR__PATTERN_SUMS];
-        mr__pattern_sums(t, e, pt);
-        if (!(pt[MR__PATTERN_A] > 0)) continue; /* only rows of weight 0 */
-        if (blk.y == NULL) st = new_pattern_block(r, &blk, err);
-        if (st != MR_OK) break;
-        pattern_covariates(r, &v, e, &blk, blk.n);
-        pattern_row(r, pt, &blk, blk.n);
-        blk.index = r->patterns.n;
-        if (++blk.n == MR__BLOCK_ROWS) st = mr__store_keep(&r->patterns, &blk, &r->bind, err);
-        if (st == MR_OK && blk.n == 0) {
-            mr__block_release(&blk);
-        }
-    }
-    if (st == MR_OK && blk.y != NULL && blk.n > 0) st = mr__store_keep(&r->patterns, &blk, &r->bind, err);
-    mr__block_release(&blk);
-    release_pattern_values(&v, r->bind.nfac, r->bind.nnum);
-    r->npatterns = t->n;
-    r->collapsed = st == MR_OK;
-    return st;
 }
 
 /* ---- IRLS -------------------------------------------------------------- */
@@ -591,7 +209,7 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
     res->sums.dev += job->deviance_shift;
     res->sums.null_dev = null_dev_known ? *null_dev_known : res->sums.null_dev + job->deviance_shift;
     if (st != MR_OK || job->replay) return st;
-    if (res->store_failed) go_without_cache(r, res->store_err.msg);
+    if (res->store_failed) mr__go_without_cache(r, res->store_err.msg);
     else if (c.store) r->store_filled = 1;
     MR__TRY(check_same_input(r, res, err));
     return note_pass(r, res, err);
@@ -688,7 +306,7 @@ static void warm_start(mr__run *r)
     mr__error scratch;
     /* the sample holds first-pass level numbers, as the cache does; with
      * no cache, or a cache started afresh, the maps are not made yet */
-    if (!r->collapsed && stride >= 2 && (r->remap != NULL || build_remap(r, &scratch) == MR_OK)) {
+    if (!r->collapsed && stride >= 2 && (r->remap != NULL || mr__build_remap(r, &scratch) == MR_OK)) {
         mr__store_remap(sample, r->remap, r->bind.nfac);
         r->warm = sample_fit(r, stride, NULL, 25, r->beta_warm, &r->warm_iterations);
         r->warm_blocks = (int)((sample->n + stride - 1) / stride);
@@ -777,11 +395,11 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
     mr__utf8_mend_cut(r.display, sizeof r.display,
                       snprintf(r.display, sizeof r.display, "%s", strcmp(path, "-") == 0 ? "<stdin>" : path));
     choose_threads(&r);
-    r.dcfg.collapse = collapse_mode(&r);
+    r.dcfg.collapse = mr__collapse_mode(&r);
     r.dcfg.collapse_abandoned = &r.collapse_abandoned;
     st = mr__spec_validate(&f->spec, err);
     if (st == MR_OK) {
-        choose_store(&r);
+        mr__choose_store(&r);
         /* Our workers use every core; BLAS threads inside them would only
          * oversubscribe.  The caller's count comes back at the end, as
          * millrace.h promises. */
@@ -789,10 +407,10 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
         openblas_set_num_threads(1);
         st = scan_pass(&r, err);
     }
-    if (st == MR_OK) st = settle_scan(&r, err);
+    if (st == MR_OK) st = mr__settle_scan(&r, err);
     if (st == MR_OK) st = allocate_coefficients(&r, err);
-    if (st == MR_OK && r.first.collapsed) st = build_patterns(&r, err);
-    if (st == MR_OK) st = settle_store(&r, err);
+    if (st == MR_OK && r.first.collapsed) st = mr__build_patterns(&r, err);
+    if (st == MR_OK) st = mr__settle_store(&r, err);
     if (st == MR_OK) warm_start(&r);
     if (st == MR_OK) st = fit_data(&r, err);
     if (st == MR_OK) st = mr__build_fit(&r, out, err);
