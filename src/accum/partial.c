@@ -3,31 +3,6 @@
 #include "accum/partial.h"
 #include "common/bytes.h"
 
-void mr__sums_add_totals(mr__block_sums *into, const mr__block_sums *from, size_t p)
-{
-    size_t i, j;
-    for (j = 0; j < p; j++)
-        for (i = 0; i <= j; i++) into->xtwx[j * p + i] += from->xtwx[j * p + i];
-    for (j = 0; j < p; j++) into->xtwz[j] += from->xtwz[j];
-    into->dev += from->dev;
-    into->pearson += from->pearson;
-    into->null_dev += from->null_dev;
-    into->null_sw += from->null_sw;
-    into->null_swz += from->null_swz;
-    into->invalid += from->invalid;
-    into->boundary += from->boundary;
-}
-
-void mr__sums_zero_totals(mr__block_sums *s, size_t p)
-{
-    double *a = s->xtwx, *b = s->xtwz;
-    memset(s, 0, sizeof *s);
-    s->xtwx = a;
-    s->xtwz = b;
-    memset(a, 0, p * p * sizeof *a);
-    memset(b, 0, p * sizeof *b);
-}
-
 enum { HEAD = 4 + 4 + 8 + 8 + 8, NSCALAR = 5, NCOUNT = 2 };
 
 size_t mr__partial_size(size_t p) { return HEAD + 8 * (p * (p + 1) / 2 + p + NSCALAR + NCOUNT); }

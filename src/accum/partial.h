@@ -27,11 +27,8 @@ static inline int mr__group_closes(uint64_t index, int last)
     return last || (index + 1) % MR__GROUP_BLOCKS == 0;
 }
 
-/* into += from, both p x p totals (upper triangle, column-major): the
- * order a group total is added into the pass total. */
-void mr__sums_add_totals(mr__block_sums *into, const mr__block_sums *from, size_t p);
-/* Totals back to zero (p x p). */
-void mr__sums_zero_totals(mr__block_sums *s, size_t p);
+/* A group's total goes into the pass's by mr__sums_add_totals
+ * (accum/accumulate.h). */
 
 /* THE ENCODING (version 1), all integers little-endian whatever the host:
  *   bytes 0-3    "MRPS"
