@@ -683,9 +683,11 @@ static void release_engine(engine *e)
     }
     mr__free(e->workers);
     mr__free(e->worker_view);
-    if (e->job) release_slots(e);
-    else mr__free(e->slots);
-    if (e->job) e->ops->close(e->job);
+    /* slots are made only once the job is open */
+    if (e->job) {
+        release_slots(e);
+        e->ops->close(e->job);
+    }
     mr__splitter_release(&e->sp);
     mr__source_close(e->src);
     mr__free(e->buf);
@@ -729,7 +731,6 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
      * slot's 2 MiB are pages the first pass faults in: with 4 instead of
      * 8, that pass over 2e6 plain rows took 0.19 s instead of 0.23 s (1
      * worker: 0.21 s, 0.26 s), and fits at 10^7 rows were no slower. */
-    e.W = 2 * e.nworkers + 4;
     e.W = 2 * e.nworkers + 4;
     pthread_mutex_init(&e.mu, NULL);
     pthread_cond_init(&e.slot_free, NULL);
