@@ -10,8 +10,11 @@
  * time: a failing call on its file may instead give the fit without it,
  * flagged by the "no cache" warning, and then the same bits.  Then the n-th read or write comes up short instead,
  * as the kernel may do: the results must be the same bits as a run without
- * any.  The same for the HTML page of a fit.  Source of truth: the API
- * contract in millrace.h ("Output files", mr_fitter_run). */
+ * any.  The same for the HTML page of a fit.  A failed write to the cache
+ * file is the one failure a fit goes on from: it gives the cache up, says
+ * so in a warning, and must give the same bits.  Source of truth: the API
+ * contract in millrace.h ("Output files", mr_fitter_run) and README (the
+ * cache falls back to rereading). */
 #define _POSIX_C_SOURCE 200809L
 #include <check.h>
 #include <dirent.h>

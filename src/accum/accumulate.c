@@ -105,25 +105,25 @@ void mr__sums_release(mr__block_sums *s)
     memset(s, 0, sizeof *s);
 }
 
-void mr__sums_zero(mr__block_sums *s, const mr__design *d)
+static void zero_sums(mr__block_sums *s, size_t entries, size_t p)
 {
     double *a = s->xtwx, *b = s->xtwz;
     memset(s, 0, sizeof *s);
     s->xtwx = a;
     s->xtwz = b;
-    memset(a, 0, d->nnz * sizeof *a);
-    memset(b, 0, d->p * sizeof *b);
+    memset(a, 0, entries * sizeof *a);
+    memset(b, 0, p * sizeof *b);
 }
 
-void mr__sums_add(mr__block_sums *into, const mr__block_sums *from, const mr__design *d)
+void mr__sums_zero(mr__block_sums *s, const mr__design *d) { zero_sums(s, d->nnz, d->p); }
+
+void mr__sums_zero_totals(mr__block_sums *s, size_t p) { zero_sums(s, p * p, p); }
+
+/* X'Wz and the scalars: the same additions for a block and for a group. */
+static void add_vector_and_scalars(mr__block_sums *into, const mr__block_sums *from, size_t p)
 {
-    size_t r, k, j;
-    for (r = 0; r < d->nruns; r++) {
-        double *to = into->xtwx + d->run_at[r];
-        const double *add = from->xtwx + d->run_off[r];
-        for (k = 0; k < d->run_len[r]; k++) to[k] += add[k];
-    }
-    for (j = 0; j < d->p; j++) into->xtwz[j] += from->xtwz[j];
+    size_t j;
+    for (j = 0; j < p; j++) into->xtwz[j] += from->xtwz[j];
     into->dev += from->dev;
     into->pearson += from->pearson;
     into->null_dev += from->null_dev;
@@ -131,6 +131,25 @@ void mr__sums_add(mr__block_sums *into, const mr__block_sums *from, const mr__de
     into->null_swz += from->null_swz;
     into->invalid += from->invalid;
     into->boundary += from->boundary;
+}
+
+void mr__sums_add(mr__block_sums *into, const mr__block_sums *from, const mr__design *d)
+{
+    size_t r, k;
+    for (r = 0; r < d->nruns; r++) {
+        double *to = into->xtwx + d->run_at[r];
+        const double *add = from->xtwx + d->run_off[r];
+        for (k = 0; k < d->run_len[r]; k++) to[k] += add[k];
+    }
+    add_vector_and_scalars(into, from, d->p);
+}
+
+void mr__sums_add_totals(mr__block_sums *into, const mr__block_sums *from, size_t p)
+{
+    size_t i, j;
+    for (j = 0; j < p; j++)
+        for (i = 0; i <= j; i++) into->xtwx[j * p + i] += from->xtwx[j * p + i];
+    add_vector_and_scalars(into, from, p);
 }
 
 /* eta, mu, dmu/deta for each row: from the coefficients, or on the first

@@ -54,6 +54,11 @@ void mr__sums_release(mr__block_sums *s);
 void mr__sums_zero(mr__block_sums *s, const mr__design *d);
 /* Totals += a block's sums, in place in the p x p upper triangle. */
 void mr__sums_add(mr__block_sums *into, const mr__block_sums *from, const mr__design *d);
+/* Totals += totals (p x p, upper triangle): a group's total into a pass's
+ * (accum/partial.h). */
+void mr__sums_add_totals(mr__block_sums *into, const mr__block_sums *from, size_t p);
+/* Totals (p x p) back to zero. */
+void mr__sums_zero_totals(mr__block_sums *s, size_t p);
 
 /* Computes the block's sums into out (overwritten). */
 void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__workspace *ws,

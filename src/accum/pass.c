@@ -1,3 +1,7 @@
+/* pass.c - the pass engine: threads, the ring of slots, reading (the
+ * stream, a plain file by the first pass's map, kept blocks), block order,
+ * progress and stop, buffers handed from pass to pass.  What a pass
+ * computes is its job's (pass_job.h: job_scan.c, job_irls.c). */
 #define _DEFAULT_SOURCE /* syscall(SYS_gettid): Linux keeps a nice value per thread */
 #include <errno.h>
 #include <pthread.h>
@@ -12,40 +16,25 @@
 #include "accum/pass.h"
 #include "common/alloc.h"
 #include "common/clock.h"
-#include "accum/census.h"
 #include "input/rowsplit.h"
 #include "input/source.h"
 
 enum { SLOT_FREE, SLOT_FILLING, SLOT_FILLED, SLOT_BUSY, SLOT_DONE };
 
-typedef struct slot {
-    int state;
-    uint64_t index;
-    mr__chunk *chunk;
-    mr__block block;         /* decoded here when streaming */
-    const mr__block *use;    /* the block the sums come from */
-    mr__scan_sums scan;
-    mr__block_sums sums;
-    uint64_t raw_bytes;      /* input consumed when the chunk was complete */
-    uint64_t rows_hash;      /* first pass over plain text: for the block map */
-    char *packed;            /* the block in its packed form (file store, sample) */
-    size_t packed_len;       /* 0: nothing packed */
-    const char *kept;        /* a kept block to unpack (in packed or in the store) */
-    size_t kept_index;       /* its number in the store */
-    mr_status st;
-    mr__error err;
-} slot;
+typedef mr__pass_slot slot;
 
 typedef struct worker {
     _Alignas(64) struct engine *e; /* a worker's state starts a cache line */
     pthread_t thread;
     int started;
-    mr__decoder dec;
-    mr__workspace ws;
+    mr__pass_worker w;
 } worker;
 
 typedef struct engine {
     const mr__pass_cfg *cfg;
+    const mr__pass_job_ops *ops;
+    void *job;
+    mr__pass_env env;
     pthread_mutex_t mu;
     /* One condition per kind of waiter, each signalled only when that
      * waiter can go on: a wake-up costs more than the work of many rows on
@@ -59,7 +48,6 @@ typedef struct engine {
     uint64_t next_combine;  /* next block to add */
     uint64_t emitted;       /* blocks handed over by the reader */
     uint64_t rows_done;     /* rows in the blocks added so far */
-    atomic_uint_fast64_t sample_stride; /* first pass: blocks it divides are packed for the sample */
     int reader_done, abort;
     int by_map;             /* workers read the file's blocks by the first pass's map */
     mr_status reader_st;
@@ -67,12 +55,12 @@ typedef struct engine {
     mr__source *src;
     mr__splitter sp;
     worker *workers;
+    mr__pass_worker **worker_view;
     size_t nworkers;
     pthread_t reader;
     int reader_started;
     char *buf;
     size_t buf_cap, pending_off, pending_len;
-    mr__level_census census; /* first pass: every factor's levels, in block order */
 } engine;
 
 /* ---- the reader ------------------------------------------------------ */
@@ -213,51 +201,45 @@ static void *reader_main(void *arg)
 
 /* ---- the workers ----------------------------------------------------- */
 
-/* Whether a worker should pack its decoded block for the store: the
- * first pass keeps blocks only while the rows cannot collapse (the
- * combiner packs the odd block itself when collapsing is given up). */
-static int worth_packing(const mr__pass_cfg *cfg)
+int mr__pass_store_packs(const mr__pass_cfg *cfg)
 {
-    if (cfg->store == NULL || !mr__store_keeps_bytes(cfg->store) || !cfg->store_fill) return 0;
-    return cfg->kind == MR__PASS_IRLS || !cfg->dcfg->collapse || atomic_load(cfg->dcfg->collapse_abandoned);
+    return cfg->store != NULL && mr__store_keeps_bytes(cfg->store) && cfg->store_fill;
 }
 
-/* Whether the first pass's block may go into the sample.  The stride only
- * doubles, so a block the calling thread will want was packed. */
-static int sample_candidate(engine *e, const slot *s)
+/* The block packed into the slot's buffer, for the job to keep. */
+static void pack_block(const mr__binding *b, slot *s)
 {
-    return e->cfg->kind == MR__PASS_SCAN && s->index % atomic_load(&e->sample_stride) == 0;
+    /* the sample took the last buffer, and had none to give back */
+    if (s->packed == NULL && (s->packed = mr__malloc(mr__store_pack_bound(b))) == NULL) {
+        s->st = mr__fail(&s->err, MR_ERR_NO_MEMORY, "out of memory");
+        return;
+    }
+    mr__block_settle_offsets(&s->block);
+    s->packed_len = mr__store_pack(&s->block, b, s->packed);
 }
 
 static void compute(worker *w, slot *s)
 {
-    const mr__pass_cfg *cfg = w->e->cfg;
+    engine *e = w->e;
+    const mr__pass_cfg *cfg = e->cfg;
     const mr__binding *b = cfg->dcfg->bind;
     s->st = MR_OK;
     s->packed_len = 0;
+    s->decoded = 0;
     mr__error_clear(&s->err);
     if (s->kept) {
         mr__store_unpack(cfg->store, s->kept, s->kept_index, b, &s->block);
         s->use = &s->block;
         s->kept = NULL;
     } else if (s->use == NULL) {
-        /* only plain text is ever reread by the map */
-        if (cfg->kind == MR__PASS_SCAN && !mr__source_is_zstd(w->e->src)) s->rows_hash = mr__chunk_rows_hash(s->chunk);
-        s->st = mr__decode_chunk(&w->dec, s->chunk, &s->block, &s->err);
+        s->st = mr__decode_chunk(&w->w.dec, s->chunk, &s->block, &s->err);
         s->use = &s->block;
+        s->decoded = 1;
         if (s->st != MR_OK || s->block.failed) return;
-        if (worth_packing(cfg) || sample_candidate(w->e, s)) {
-            /* the sample took the last buffer, and had none to give back */
-            if (s->packed == NULL && (s->packed = mr__malloc(mr__store_pack_bound(b))) == NULL) {
-                s->st = mr__fail(&s->err, MR_ERR_NO_MEMORY, "out of memory");
-                return;
-            }
-            mr__block_settle_offsets(&s->block);
-            s->packed_len = mr__store_pack(&s->block, b, s->packed);
-        }
+        if (e->ops->wants_packed(e->job, s)) pack_block(b, s);
+        if (s->st != MR_OK) return;
     }
-    if (cfg->kind == MR__PASS_SCAN) mr__scan_block(s->use, b->ncol, b->nnum, &s->scan);
-    else mr__accumulate_block(cfg->point, s->use, &w->ws, &s->sums);
+    e->ops->compute(e->job, &w->w, s);
 }
 
 /* The next block for this worker to fetch: its slot, claimed, or NULL
@@ -379,7 +361,7 @@ static int pool_slot(mr__pass_pool *pool, const mr__binding *b, size_t W, size_t
     return 1;
 }
 
-static int take_pooled_workspace(mr__pass_pool *pool, const mr__design *d, size_t i, mr__workspace *ws)
+int mr__pass_pool_take_workspace(mr__pass_pool *pool, const mr__design *d, size_t i, mr__workspace *ws)
 {
     if (pool == NULL || pool->design != d || i >= pool->nws || pool->ws[i].D == NULL) return 0;
     *ws = pool->ws[i];
@@ -387,7 +369,8 @@ static int take_pooled_workspace(mr__pass_pool *pool, const mr__design *d, size_
     return 1;
 }
 
-static void pool_workspace(mr__pass_pool *pool, const mr__design *d, size_t nworkers, size_t i, mr__workspace *ws)
+void mr__pass_pool_keep_workspace(mr__pass_pool *pool, const mr__design *d, size_t nworkers, size_t i,
+                                  mr__workspace *ws)
 {
     if (pool == NULL || ws->D == NULL || (pool->design != NULL && pool->design != d)) return;
     if (pool->ws == NULL) {
@@ -430,16 +413,10 @@ static mr_status init_slots(engine *e, mr__error *err)
             if (s->chunk == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
             MR__TRY(mr__block_init(&s->block, b, err));
         }
-        if (((cfg->store && mr__store_keeps_bytes(cfg->store)) || cfg->kind == MR__PASS_SCAN) && s->packed == NULL &&
+        if (((cfg->store && mr__store_keeps_bytes(cfg->store)) || e->ops->packs) && s->packed == NULL &&
             (s->packed = mr__malloc(mr__store_pack_bound(b))) == NULL)
             return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-        if (cfg->kind == MR__PASS_SCAN && cfg->dcfg->collapse) {
-            s->block.patterns = mr__calloc(1, sizeof *s->block.patterns);
-            if (s->block.patterns == NULL || mr__pattern_rows_init(s->block.patterns, b->nfac + b->nnum) != 0)
-                return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-        }
-        if (cfg->kind == MR__PASS_SCAN) MR__TRY(mr__scan_init(&s->scan, b->ncol, b->nnum, err));
-        else MR__TRY(mr__sums_init_block(&s->sums, cfg->point->design, err));
+        MR__TRY(e->ops->slot_init(e->job, s, err));
     }
     return MR_OK;
 }
@@ -449,18 +426,12 @@ static void release_slots(engine *e)
     size_t i;
     for (i = 0; e->slots && i < e->W; i++) {
         slot *s = &e->slots[i];
-        if (s->block.patterns) {
-            mr__pattern_rows_release(s->block.patterns);
-            mr__free(s->block.patterns);
-            s->block.patterns = NULL;
-        }
+        e->ops->slot_release(e->job, s);
         (void)pool_slot(e->cfg->pool, e->cfg->dcfg->bind, e->W, i, s);
         if (s->chunk) mr__free(s->chunk->data);
         mr__free(s->chunk);
         mr__free(s->packed);
         mr__block_release(&s->block);
-        mr__scan_release(&s->scan);
-        mr__sums_release(&s->sums);
     }
     mr__free(e->slots);
     e->slots = NULL;
@@ -481,15 +452,17 @@ static mr_status start_workers(engine *e, mr__error *err)
     size_t i;
     /* each worker's decoder state is written for every row */
     e->workers = mr__calloc_lines(e->nworkers, sizeof *e->workers);
-    if (e->workers == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    e->worker_view = mr__calloc(e->nworkers, sizeof *e->worker_view);
+    if (e->workers == NULL || e->worker_view == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    e->env.worker = e->worker_view;
     for (i = 0; i < e->nworkers; i++) {
         worker *w = &e->workers[i];
         w->e = e;
-        MR__TRY(mr__decoder_init(&w->dec, e->cfg->dcfg, err));
-        /* Decoders of the first pass number levels their own way. */
-        w->dec.worker = e->cfg->kind == MR__PASS_SCAN ? (int32_t)i : -1;
-        if (e->cfg->kind == MR__PASS_IRLS && !take_pooled_workspace(e->cfg->pool, e->cfg->point->design, i, &w->ws))
-            MR__TRY(mr__workspace_init(&w->ws, e->cfg->point->design, err));
+        w->w.number = i;
+        e->worker_view[i] = &w->w;
+        MR__TRY(mr__decoder_init(&w->w.dec, e->cfg->dcfg, err));
+        w->w.dec.worker = -1;
+        MR__TRY(e->ops->worker_init(e->job, &w->w, err));
     }
     for (i = 0; i < e->nworkers; i++) {
         int rc = pthread_create(&e->workers[i].thread, NULL, worker_main, &e->workers[i]);
@@ -545,13 +518,13 @@ static mr_status read_header(engine *e, mr__error *err)
     return cfg->on_header(cfg->header_user, e->sp.header, e->sp.header_len, err);
 }
 
-/* A later pass over a plain file whose header ends where the map's first
- * block starts goes by the map; anything else is streamed (which checks
+/* A later pass (given the first pass's map) over a plain file whose header
+ * ends where the map's first block starts goes by the map; anything else is streamed (which checks
  * the file its own way). */
 static int reads_by_map(const engine *e)
 {
     const mr__block_map *m = e->cfg->map;
-    return e->cfg->kind == MR__PASS_IRLS && m != NULL && m->usable && mr__source_is_file(e->src) &&
+    return m != NULL && m->usable && mr__source_is_file(e->src) &&
            !mr__source_is_zstd(e->src) && (m->n == 0 || m->span[0].offset == e->sp.pos);
 }
 
@@ -603,35 +576,6 @@ static mr_status report_progress(engine *e, const slot *s, double t0, double *la
     return MR_OK;
 }
 
-/* Keeps every stride-th block; when the sample is full, every other kept
- * block goes and the stride doubles.  Only block numbers decide, so the
- * sample is the same whatever the threads or read size. */
-static mr_status keep_sample(engine *e, mr__pass_result *res, slot *s, mr__error *err)
-{
-    if (s->index % res->sample_stride != 0) return MR_OK;
-    if (res->sample.n == MR__SAMPLE_BLOCKS) {
-        mr__store_drop_odd(&res->sample);
-        res->sample_stride *= 2;
-        atomic_store(&e->sample_stride, res->sample_stride);
-        if (s->index % res->sample_stride != 0) return MR_OK;
-    }
-    if (s->packed_len == 0) return mr__fail(err, MR_ERR_INTERNAL, "a sample block was not packed");
-    return mr__store_adopt_packed(&res->sample, &s->packed, s->packed_len, err);
-}
-
-/* Too many patterns, or no memory for them: fall back to passes over the
- * rows (the fit is the same, only slower). */
-static void merge_patterns(const mr__pass_cfg *cfg, mr__pass_result *res, const mr__block *blk)
-{
-    if (blk != NULL && !atomic_load(cfg->dcfg->collapse_abandoned) &&
-        mr__pattern_merge_add(&res->patterns, blk->worker, blk->patterns) == 0 &&
-        res->patterns.table.n <= MR__MAX_PATTERNS)
-        return;
-    atomic_store(cfg->dcfg->collapse_abandoned, 1);
-    res->collapsed = 0;
-    mr__pattern_merge_release(&res->patterns);
-}
-
 /* The block as the store's next one: the bytes the worker packed, or the
  * block itself (memory store, or a block packed by nobody). */
 static mr_status put_block(const mr__pass_cfg *cfg, slot *s, mr__error *err)
@@ -651,7 +595,7 @@ static mr_status put_block(const mr__pass_cfg *cfg, slot *s, mr__error *err)
  * a file size limit) gives it up for the rest of the pass, which goes on
  * without it, and the caller learns why from store_failed.  The store is
  * left as it is: workers still look at it while the pass runs. */
-static mr_status keep_block(const mr__pass_cfg *cfg, mr__pass_result *res, slot *s, mr__error *err)
+mr_status mr__pass_keep_block(const mr__pass_cfg *cfg, mr__pass_result *res, slot *s, mr__error *err)
 {
     mr_status st;
     if (res->store_failed) return MR_OK;
@@ -663,46 +607,25 @@ static mr_status keep_block(const mr__pass_cfg *cfg, mr__pass_result *res, slot 
     return MR_OK;
 }
 
-/* The first pass keeps its decoded blocks for the IRLS passes unless the
- * rows may still collapse into patterns (then the patterns replace them).
- * If collapsing is given up after some blocks went unkept, the store is
- * incomplete and the first IRLS pass decodes the file again. */
-static mr_status keep_scanned(const mr__pass_cfg *cfg, mr__pass_result *res, slot *s, mr__error *err)
+mr_status mr__pass_block_status(const slot *s, mr__error *err)
 {
-    if (res->collapsed || res->store_incomplete) {
-        res->store_incomplete = 1;
-        return MR_OK;
-    }
-    return keep_block(cfg, res, s, err);
-}
-
-static mr_status add_block(engine *e, slot *s, mr__pass_result *res, mr__error *err)
-{
-    const mr__pass_cfg *cfg = e->cfg;
-    mr_status st = MR_OK;
-    if (s->st != MR_OK) {
-        *err = s->err;
-        return s->st;
-    }
-    if (cfg->kind == MR__PASS_SCAN) MR__TRY(mr__census_add(&e->census, &s->block, s->chunk, cfg->dcfg, err));
     if (s->use == &s->block && s->block.failed) {
         *err = s->block.err;
         return s->block.err.status;
     }
-    if (cfg->kind == MR__PASS_SCAN) {
-        const mr__chunk *c = s->chunk;
-        MR__TRY(mr__block_map_add(&res->map, c, s->rows_hash, err));
-        mr__scan_add(&res->scan, &s->scan, cfg->dcfg->bind->ncol, cfg->dcfg->bind->nnum);
-        if (res->collapsed) merge_patterns(cfg, res, &s->block);
-        if (cfg->store) MR__TRY(keep_scanned(cfg, res, s, err));
-        return keep_sample(e, res, s, err);
-    }
-    mr__sums_add(&res->sums, &s->sums, cfg->point->design);
-    if (cfg->store && cfg->store_fill) st = keep_block(cfg, res, s, err);
-    return st;
+    return MR_OK;
 }
 
-static mr_status combine_all(engine *e, mr__pass_result *res, double t0, mr__error *err)
+static mr_status add_block(engine *e, slot *s, mr__error *err)
+{
+    if (s->st != MR_OK) {
+        *err = s->err;
+        return s->st;
+    }
+    return e->ops->add(e->job, s, err);
+}
+
+static mr_status combine_all(engine *e, double t0, mr__error *err)
 {
     double last = t0;
     for (;;) {
@@ -721,7 +644,7 @@ static mr_status combine_all(engine *e, mr__pass_result *res, double t0, mr__err
         }
         pthread_mutex_unlock(&e->mu);
         if (s->use != NULL) e->rows_done += s->use->nread;
-        st = add_block(e, s, res, err);
+        st = add_block(e, s, err);
         if (st != MR_OK) return st;
         pthread_mutex_lock(&e->mu);
         s->state = SLOT_FREE;
@@ -740,31 +663,6 @@ static mr_status combine_all(engine *e, mr__pass_result *res, double t0, mr__err
     return report_progress(e, NULL, t0, &last, 1, err);
 }
 
-static mr_status init_result(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error *err)
-{
-    memset(res, 0, sizeof *res);
-    res->sample_stride = 1;
-    mr__store_init_packed(&res->sample);
-    if (cfg->kind == MR__PASS_SCAN) {
-        res->collapsed = cfg->dcfg->collapse != 0;
-        return MR_OK;
-    }
-    return mr__sums_init(&res->sums, cfg->point->design->p, err);
-}
-
-static mr_status take_levels(engine *e, mr__pass_result *res, mr__error *err)
-{
-    size_t i;
-    res->worker_levels = mr__calloc(e->nworkers, sizeof *res->worker_levels);
-    if (res->worker_levels == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    res->nworkers = e->nworkers;
-    for (i = 0; i < e->nworkers; i++) {
-        res->worker_levels[i] = e->workers[i].dec.local;
-        e->workers[i].dec.local = NULL;
-    }
-    return MR_OK;
-}
-
 static void finish_source(engine *e, mr__pass_result *res)
 {
     if (e->src == NULL) return;
@@ -780,14 +678,16 @@ static void release_engine(engine *e)
 {
     size_t i;
     for (i = 0; e->workers && i < e->nworkers; i++) {
-        mr__decoder_release(&e->workers[i].dec);
-        if (e->cfg->kind == MR__PASS_IRLS)
-            pool_workspace(e->cfg->pool, e->cfg->point->design, e->nworkers, i, &e->workers[i].ws);
-        mr__workspace_release(&e->workers[i].ws);
+        if (e->job) e->ops->worker_release(e->job, &e->workers[i].w);
+        mr__decoder_release(&e->workers[i].w.dec);
     }
     mr__free(e->workers);
-    release_slots(e);
-    mr__census_release(&e->census);
+    mr__free(e->worker_view);
+    /* slots are made only once the job is open */
+    if (e->job) {
+        release_slots(e);
+        e->ops->close(e->job);
+    }
     mr__splitter_release(&e->sp);
     mr__source_close(e->src);
     mr__free(e->buf);
@@ -797,13 +697,29 @@ static void release_engine(engine *e)
     pthread_cond_destroy(&e->slot_done);
 }
 
+static mr_status run_threads(engine *e, double t0, mr__error *err)
+{
+    mr_status st = start_workers(e, err);
+    if (st == MR_OK && !workers_fetch(e)) {
+        int rc = pthread_create(&e->reader, NULL, reader_main, e);
+        if (rc != 0) st = thread_failure(rc, "the reader thread", err);
+        else e->reader_started = 1;
+    }
+    if (st == MR_OK) st = combine_all(e, t0, err);
+    /* a pass by the map read the header only through the stream */
+    if (st == MR_OK && e->src != NULL) st = mr__source_check_unchanged(e->src, !e->by_map, err);
+    return st;
+}
+
 mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error *err)
 {
     engine e;
     mr_status st;
     double t0 = mr__seconds_now();
     memset(&e, 0, sizeof e);
+    memset(res, 0, sizeof *res);
     e.cfg = cfg;
+    e.ops = cfg->kind == MR__PASS_SCAN ? &mr__job_scan : &mr__job_irls;
     e.nworkers = cfg->nthreads > 0 ? (size_t)cfg->nthreads : 1;
     /* Two blocks per worker (one being computed, one waiting), one being
      * read, one being added, and slack for blocks that finish out of
@@ -820,36 +736,22 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     pthread_cond_init(&e.slot_free, NULL);
     pthread_cond_init(&e.slot_filled, NULL);
     pthread_cond_init(&e.slot_done, NULL);
-    st = init_result(cfg, res, err);
+    e.env.cfg = cfg;
+    e.env.res = res;
+    e.env.nworkers = e.nworkers;
+    st = e.ops->open(&e.env, &e.job, err);
     if (st == MR_OK) st = replaying(cfg) ? init_slots(&e, err) : begin_stream(&e, err);
-    if (st == MR_OK && cfg->kind == MR__PASS_SCAN)
-        st = mr__scan_init(&res->scan, cfg->dcfg->bind->ncol, cfg->dcfg->bind->nnum, err);
-    if (st == MR_OK && cfg->kind == MR__PASS_SCAN) st = mr__census_init(&e.census, cfg->dcfg->bind->nfac, err);
+    e.env.plain = e.src != NULL && !mr__source_is_zstd(e.src);
     /* the columns are bound now that the header is read */
-    if (st == MR_OK && res->collapsed &&
-        mr__pattern_merge_init(&res->patterns, cfg->dcfg->bind->nfac + cfg->dcfg->bind->nnum, e.nworkers) != 0)
-        st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    atomic_init(&e.sample_stride, 1);
+    if (st == MR_OK) st = e.ops->start(e.job, err);
     if (st == MR_OK && replaying(cfg)) {
         e.emitted = (cfg->store->n + replay_stride(cfg) - 1) / replay_stride(cfg);
         e.reader_done = 1;
     }
-    if (st == MR_OK) st = start_workers(&e, err);
-    if (st == MR_OK && !workers_fetch(&e)) {
-        int rc = pthread_create(&e.reader, NULL, reader_main, &e);
-        if (rc != 0) st = thread_failure(rc, "the reader thread", err);
-        else e.reader_started = 1;
-    }
-    if (st == MR_OK) st = combine_all(&e, res, t0, err);
-    /* a pass by the map read the header only through the stream */
-    if (st == MR_OK && e.src != NULL) st = mr__source_check_unchanged(e.src, !e.by_map, err);
+    if (st == MR_OK) st = run_threads(&e, t0, err);
     stop_threads(&e);
     finish_source(&e, res);
-    /* offsets in the stream are offsets in the file only when it is plain */
-    res->map.usable = st == MR_OK && cfg->kind == MR__PASS_SCAN && !res->zstd && !res->map.mostly_blank;
-    if (st == MR_OK && cfg->kind == MR__PASS_SCAN) st = take_levels(&e, res, err);
-    /* A worker may give up collapsing after its block was merged. */
-    if (res->collapsed && atomic_load(cfg->dcfg->collapse_abandoned)) merge_patterns(cfg, res, NULL);
+    if (e.job) st = e.ops->finish(e.job, st, err);
     release_engine(&e);
     res->seconds = mr__seconds_now() - t0;
     return st;

@@ -2,7 +2,10 @@
  *
  * DESIGN.  A reader thread decompresses and cuts the stream into chunks of
  * MR__BLOCK_ROWS rows; N workers decode chunks and compute each block's
- * partial sums; the calling thread adds the partial sums in block order.
+ * partial result; the calling thread adds the partial results in block
+ * order.  What the partial result is, and what adding it does, is the
+ * pass's job (pass_job.h: the first pass is job_scan.c, an IRLS pass
+ * job_irls.c); this engine only runs the ordered reduction.
  * Block i lives in slot i % W of a ring of W slots, and the reader may
  * start block i only once block i - W has been added, so memory is bounded
  * by W blocks whatever the file size, and the order of additions (hence
@@ -28,7 +31,9 @@
 #include "input/blockmap.h"
 #include "accum/decode.h"
 #include "millrace.h"
+#include "accum/pass_job.h"
 
+/* Which job the pass runs: mr__job_scan or mr__job_irls. */
 typedef enum mr__pass_kind { MR__PASS_SCAN, MR__PASS_IRLS } mr__pass_kind;
 
 /* Memory one pass leaves to the next pass of the same fit: its slots'

@@ -22,7 +22,6 @@ int openblas_get_num_threads(void);
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
-#include <sys/statvfs.h>
 #include <unistd.h>
 
 #include "accum/pass.h"
@@ -32,14 +31,11 @@ int openblas_get_num_threads(void);
 #include "family/family.h"
 #include "fit/fit.h"
 #include "fit/fitter.h"
+#include "fit/irls.h"
 #include "fit/run.h"
-#include "input/fields.h"
 #include "model/design.h"
 #include "common/probability.h"
 #include "solve/normal_eq.h"
-
-#define MAX_HALVINGS 30
-#define DECREMENT_SHARE 1e-2
 
 /* Each worker costs about 6 MB (its two ring slots of 2 MiB, its
  * decoder and scratch), and past the cores more workers only queue: the
@@ -65,45 +61,6 @@ static void choose_threads(mr__run *r)
     r->nthreads = cap;
 }
 
-/* ---- header and columns ------------------------------------------------ */
-
-static mr_status bind_header(mr__run *r, const char *line, size_t len, mr__error *err)
-{
-    char **names = NULL;
-    size_t n = 0, i;
-    mr_status st;
-    r->delim = r->f->delimiter ? (char)r->f->delimiter : mr__detect_delimiter(line, len);
-    r->delim_detected = r->f->delimiter == 0;
-    MR__TRY(mr__parse_header(line, len, r->delim, &names, &n, r->display, err));
-    st = mr__bind(&r->bind, &r->f->spec, names, n, r->display, err);
-    r->bound = 1; /* the binding owns the names now, even when it failed */
-    if (st != MR_OK) return st;
-    r->dcfg.bind = &r->bind;
-    r->dcfg.family = &r->family;
-    r->dcfg.skip_bad = r->f->skip_bad;
-    r->dcfg.delim = r->delim;
-    r->dcfg.display = r->display;
-    r->dcfg.missing = r->f->missing;
-    r->dcfg.nmissing = r->f->nmissing;
-    r->dcfg.missing_len = r->missing_len;
-    if (r->f->nmissing > MR__MAX_MISSING_TOKENS)
-        return mr__fail(err, MR_ERR_USAGE, "more than %d missing-value tokens", MR__MAX_MISSING_TOKENS);
-    for (i = 0; i < r->f->nmissing; i++) r->missing_len[i] = strlen(r->f->missing[i]);
-    r->dcfg.levels = NULL;
-    r->header = mr__strndup(line, len);
-    r->header_len = len;
-    return r->header ? MR_OK : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-}
-
-static mr_status on_header(void *user, const char *line, size_t len, mr__error *err)
-{
-    mr__run *r = user;
-    if (!r->bound) return bind_header(r, line, len, err);
-    if (len != r->header_len || memcmp(line, r->header, len) != 0)
-        return mr__fail(err, MR_ERR_IO, "%s: the header changed during the fit", r->display);
-    return MR_OK;
-}
-
 /* ---- passes ------------------------------------------------------------ */
 
 static mr__pass_cfg pass_config(mr__run *r, mr__pass_kind kind)
@@ -116,7 +73,7 @@ static mr__pass_cfg pass_config(mr__run *r, mr__pass_kind kind)
     c.read_size = r->f->buffer_size;
     c.tee_fd = -1;
     c.nthreads = r->nthreads;
-    c.on_header = on_header;
+    c.on_header = mr__run_on_header;
     c.header_user = r;
     c.dcfg = &r->dcfg;
     c.pass_number = r->npasses + 1;
@@ -154,49 +111,12 @@ static mr_status check_same_input(mr__run *r, const mr__pass_result *res, mr__er
     return MR_OK;
 }
 
-/* Where temporary files go: $TMPDIR, else /tmp. */
-static const char *temp_dir(void)
-{
-    const char *dir = getenv("TMPDIR");
-    return dir != NULL && *dir != '\0' ? dir : "/tmp";
-}
-
-/* Input that may not be there to read again - standard input, a pipe (a
- * /dev/fd/N name, as a shell's process substitution gives), a FIFO, a
- * character device, a socket - is copied as the first pass reads it, and
- * later passes read the copy: reopening a FIFO would wait for ever for a
- * writer, and a pipe read again is empty.  Only a regular file (or a
- * directory, which the source refuses) is read where it is. */
-static int read_only_once(const char *path)
-{
-    struct stat st;
-    if (strcmp(path, "-") == 0) return 1;
-    return stat(path, &st) == 0 && !S_ISREG(st.st_mode) && !S_ISDIR(st.st_mode);
-}
-
-static mr_status open_spool(mr__run *r, mr__error *err)
-{
-    const char *dir = temp_dir();
-    snprintf(r->spool, sizeof r->spool, "%s/millrace-input-XXXXXX", dir);
-    r->spool_fd = mkstemp(r->spool);
-    if (r->spool_fd < 0)
-        return mr__fail(err, MR_ERR_IO,
-                        "%s can be read only once, and its copy for the later passes cannot be created in %s: %s "
-                        "(set TMPDIR to a writable directory with room for the whole input)",
-                        r->display, dir, strerror(errno));
-    /* Unlinked at once, so that nothing is left behind however the process
-     * ends; later passes reopen it through the descriptor. */
-    unlink(r->spool);
-    snprintf(r->spool, sizeof r->spool, "/proc/self/fd/%d", r->spool_fd);
-    return MR_OK;
-}
-
 static mr_status scan_pass(mr__run *r, mr__error *err)
 {
     mr__pass_cfg c = pass_config(r, MR__PASS_SCAN);
     mr_status st;
-    if (read_only_once(r->path)) {
-        MR__TRY(open_spool(r, err));
+    if (mr__read_only_once(r->path)) {
+        MR__TRY(mr__open_spool(r, err));
         c.tee_fd = r->spool_fd;
     }
     if (r->use_store) {
@@ -217,311 +137,6 @@ static mr_status scan_pass(mr__run *r, mr__error *err)
         r->mtime_ns = (int64_t)sb.st_mtim.tv_sec * 1000000000 + sb.st_mtim.tv_nsec;
     }
     return note_pass(r, &r->first, err);
-}
-
-/* ---- what the first pass learned --------------------------------------- */
-
-static mr_status no_usable_rows(mr__run *r, mr__error *err)
-{
-    const mr__scan_sums *s = &r->first.scan;
-    char detail[600] = "";
-    size_t c, o = 0;
-    for (c = 0; c < r->bind.ncol && o < sizeof detail - 80; c++)
-        if (s->missing[c])
-            o += (size_t)snprintf(detail + o, sizeof detail - o, "%s'%s' missing in %llu", o ? ", " : "",
-                                  r->bind.col[c].name, (unsigned long long)s->missing[c]);
-    if (s->nbad) snprintf(detail + o, sizeof detail - o, "%s%llu bad rows", o ? ", " : "", (unsigned long long)s->nbad);
-    return mr__fail(err, MR_ERR_NO_DATA, "%s: no usable rows: all %llu data rows were left out (%s)", r->display,
-                    (unsigned long long)s->nread, detail);
-}
-
-/* Rows of prior weight 0 are read and checked but carry nothing: with no
- * other row there is no fit (rank 0, a null deviance on -1 df). */
-static mr_status no_weighted_rows(mr__run *r, mr__error *err)
-{
-    const mr__spec *s = &r->f->spec;
-    char what[300];
-    if (s->weight && s->trials) snprintf(what, sizeof what, "weight '%s' times trials '%s'", s->weight, s->trials);
-    else snprintf(what, sizeof what, "%s '%s'", s->weight ? "weight" : "trials", s->weight ? s->weight : s->trials);
-    return mr__fail(err, MR_ERR_NO_DATA, "%s: no usable rows: the prior weight (%s) is 0 in all %llu complete rows",
-                    r->display, what, (unsigned long long)r->first.scan.nused);
-}
-
-static mr_status settle_factor(mr__run *r, size_t f, mr__error *err)
-{
-    const mr__levelset **sets = mr__calloc(r->first.nworkers ? r->first.nworkers : 1, sizeof *sets);
-    const mr__covariate *cov;
-    mr__factor *fac = &r->fac[f];
-    size_t w, i;
-    int rc;
-    if (sets == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    for (w = 0; w < r->first.nworkers; w++) sets[w] = &r->first.worker_levels[w][f];
-    rc = mr__levelset_merge_sorted(sets, r->first.nworkers, &r->levels[f], &r->level_names[f]);
-    mr__free(sets);
-    if (rc != 0) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    fac->name = r->bind.col[r->bind.fac_col[f]].name;
-    fac->level = r->level_names[f];
-    fac->nlevels = r->levels[f].n;
-    fac->ref = 0;
-    cov = mr__spec_find(&r->f->spec, fac->name);
-    if (cov == NULL || cov->ref == NULL) return MR_OK;
-    for (i = 0; i < fac->nlevels; i++)
-        if (strcmp(fac->level[i], cov->ref) == 0) {
-            fac->ref = (int32_t)i;
-            return MR_OK;
-        }
-    return mr__fail(err, MR_ERR_USAGE, "model: reference level '%s' of factor '%s' does not occur in the data%s",
-                    cov->ref, fac->name, fac->nlevels ? "" : " (the factor has no levels)");
-}
-
-static mr_status settle_scan(mr__run *r, mr__error *err)
-{
-    const mr__scan_sums *s = &r->first.scan;
-    size_t f, k, nfac = r->bind.nfac, nnum = r->bind.nnum;
-    if (s->nread == 0) return mr__fail(err, MR_ERR_NO_DATA, "%s: the file has a header but no data rows", r->display);
-    if (s->nused == 0) return no_usable_rows(r, err);
-    if (s->npos == 0) return no_weighted_rows(r, err);
-    r->levels = mr__calloc(nfac + 1, sizeof *r->levels);
-    r->level_names = mr__calloc(nfac + 1, sizeof *r->level_names);
-    r->fac = mr__calloc(nfac + 1, sizeof *r->fac);
-    r->mean = mr__calloc(nnum + 1, sizeof *r->mean);
-    r->spread = mr__calloc(nnum + 1, sizeof *r->spread);
-    if (!r->levels || !r->level_names || !r->fac || !r->mean || !r->spread)
-        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    for (f = 0; f < nfac; f++) MR__TRY(settle_factor(r, f, err));
-    for (k = 0; k < nnum; k++) {
-        r->mean[k] = s->sx[k] / (double)s->nused;
-        r->spread[k] = mr__scan_spread(s, k);
-    }
-    r->dcfg.levels = r->levels;
-    return mr__design_build(&r->design, &r->f->spec, &r->bind, r->fac, r->mean, r->spread,
-                            s->counts_failed ? NULL : s->counts, err);
-}
-
-/* The cache only saves time: when it cannot be had (no file can be made in
- * TMPDIR, or a write to it failed), every pass rereads the input, which
- * gives the same bits, and the fit's warnings say why, once. */
-static void go_without_cache(mr__run *r, const char *why)
-{
-    mr__store_release(&r->store);
-    r->use_store = r->cached = r->store_filled = 0;
-    if (r->cache_note[0] == '\0')
-        snprintf(r->cache_note, sizeof r->cache_note, "no cache: %s; every pass rereads the input", why);
-}
-
-/* A cache file in TMPDIR, or none (and the reason noted). */
-static void open_cache(mr__run *r)
-{
-    mr__error scratch;
-    mr__error_clear(&scratch);
-    if (mr__store_init_file(&r->store, temp_dir(), &scratch) != MR_OK) {
-        go_without_cache(r, scratch.msg);
-        return;
-    }
-    r->store.budget = r->cache_budget;
-    r->use_store = 1;
-    r->cached = 1;
-}
-
-/* Where later passes get their rows: memory (asked for), a cache file
- * (default, when the disk has room), or the input again. */
-static void choose_store(mr__run *r)
-{
-    const char *dir = temp_dir();
-    struct statvfs fs;
-    struct stat in;
-    double need = 0, room;
-    /* Before the first pass only the input's size is known: decoded
-     * columns take about 1.5 times the text, and zstd text about 4 times
-     * less than that (generous on both counts, but a zstd file of blank
-     * lines or repeated rows can expand far more: then a write fails and
-     * the cache is given up). */
-    if (strcmp(r->path, "-") != 0 && stat(r->path, &in) == 0) need = 8.0 * (double)in.st_size;
-    if (r->f->in_memory) {
-        mr__store_init_packed(&r->store);
-        r->use_store = 1;
-        return;
-    }
-    mr__store_init_memory(&r->store);
-    if (r->f->no_cache) return;
-    if (statvfs(dir, &fs) == 0) {
-        room = (double)fs.f_bavail * (double)fs.f_frsize;
-        /* the estimate can be far off: the cache stops at half the room */
-        r->cache_budget = room / 2 >= 1 ? (uint64_t)(room / 2) : 1;
-        if (need > room / 2) {
-            snprintf(r->cache_note, sizeof r->cache_note,
-                     "no cache: it could need %.0f MB and %s has %.0f MB free; every pass rereads the input",
-                     need / 1e6, dir, room / 1e6);
-            return;
-        }
-    }
-    open_cache(r);
-}
-
-/* Maps each first-pass decoder's level numbers to the shared ones. */
-static mr_status build_remap(mr__run *r, mr__error *err)
-{
-    size_t w, f, j, nfac = r->bind.nfac, nw = r->first.nworkers;
-    r->remap = mr__calloc(nw * nfac + 1, sizeof *r->remap);
-    if (r->remap == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    r->nremap = nw * nfac;
-    for (w = 0; w < nw; w++)
-        for (f = 0; f < nfac; f++) {
-            const mr__levelset *local = &r->first.worker_levels[w][f];
-            int32_t *map = mr__calloc(local->n + 1, sizeof *map);
-            if (map == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-            r->remap[w * nfac + f] = map;
-            for (j = 0; j < local->cap; j++)
-                if (local->slot[j].str != NULL)
-                    map[local->slot[j].id] = mr__levelset_find(&r->levels[f], local->slot[j].str, local->slot[j].len);
-        }
-    return MR_OK;
-}
-
-/* After the first pass: the kept blocks are used as they are, or (when
- * the rows collapsed, or some blocks went unkept) the store starts afresh
- * and is filled by the first IRLS pass. */
-static mr_status settle_store(mr__run *r, mr__error *err)
-{
-    int file = r->store.fd >= 0;
-    if (!r->use_store) return MR_OK;
-    if (r->first.store_failed) {
-        go_without_cache(r, r->first.store_err.msg);
-        return MR_OK;
-    }
-    if (r->collapsed || r->first.store_incomplete) {
-        mr__store_release(&r->store);
-        if (r->collapsed) {
-            r->use_store = r->cached = 0;
-            return MR_OK;
-        }
-        if (file) open_cache(r);
-        else mr__store_init_packed(&r->store);
-        return MR_OK;
-    }
-    MR__TRY(build_remap(r, err));
-    mr__store_remap(&r->store, r->remap, r->bind.nfac);
-    r->store_filled = 1;
-    return MR_OK;
-}
-
-/* ---- collapsed covariate patterns ---------------------------------------- */
-
-static int collapse_mode(const mr__run *r)
-{
-    const mr__spec *s = &r->f->spec;
-    if (r->f->no_collapse) return 0;
-    if (s->offset == NULL && s->exposure == NULL) return r->family.ops->saturated_term != NULL;
-    return r->family.ops->log_offset_patterns && mr__spec_link(s) == MR_LOG ? 2 : 0;
-}
-
-static mr_status new_pattern_block(mr__run *r, mr__block *blk, mr__error *err)
-{
-    MR__TRY(mr__block_init(blk, &r->bind, err));
-    if (blk->prior == NULL) blk->prior = mr__malloc_array(MR__BLOCK_ROWS, sizeof *blk->prior);
-    blk->extra = mr__malloc_array(MR__BLOCK_ROWS, sizeof *blk->extra);
-    if (blk->prior == NULL || blk->extra == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    return MR_OK;
-}
-
-/* For each key column, global value number -> what a row holds: the
- * shared sorted level number of a factor, the value of a numeric. */
-typedef struct pattern_values {
-    int32_t **level;
-    double **value;
-} pattern_values;
-
-static void release_pattern_values(pattern_values *v, size_t nfac, size_t nnum)
-{
-    size_t k;
-    for (k = 0; v->level && k < nfac; k++) mr__free(v->level[k]);
-    for (k = 0; v->value && k < nnum; k++) mr__free(v->value[k]);
-    mr__free(v->level);
-    mr__free(v->value);
-}
-
-static mr_status resolve_pattern_values(const mr__run *r, pattern_values *v, mr__error *err)
-{
-    const mr__levelset *set = r->first.patterns.values;
-    size_t k, j, nfac = r->bind.nfac, nnum = r->bind.nnum;
-    v->level = mr__calloc(nfac + 1, sizeof *v->level);
-    v->value = mr__calloc(nnum + 1, sizeof *v->value);
-    if (v->level == NULL || v->value == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    for (k = 0; k < nfac; k++) {
-        v->level[k] = mr__malloc_array(set[k].n + 1, sizeof **v->level);
-        if (v->level[k] == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-        for (j = 0; j < set[k].n; j++) {
-            v->level[k][j] = mr__levelset_find(&r->levels[k], set[k].name[j].str, set[k].name[j].len);
-            if (v->level[k][j] < 0) return mr__fail(err, MR_ERR_INTERNAL, "a pattern names an unknown level");
-        }
-    }
-    for (k = 0; k < nnum; k++) { /* a numeric's values are kept as their 8 bytes */
-        const mr__levelset *nv = &set[nfac + k];
-        v->value[k] = mr__malloc_array(nv->n + 1, sizeof **v->value);
-        if (v->value[k] == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-        for (j = 0; j < nv->n; j++) memcpy(&v->value[k][j], nv->name[j].str, sizeof(double));
-    }
-    return MR_OK;
-}
-
-static void pattern_covariates(const mr__run *r, const pattern_values *v, size_t e, mr__block *blk, uint32_t i)
-{
-    const mr__pattern_table *t = &r->first.patterns.table;
-    size_t k, nfac = r->bind.nfac;
-    for (k = 0; k < nfac; k++) blk->lev[k * MR__BLOCK_ROWS + i] = v->level[k][mr__pattern_id(t, e, k)];
-    for (k = 0; k < r->bind.nnum; k++) blk->num[k * MR__BLOCK_ROWS + i] = v->value[k][mr__pattern_id(t, e, nfac + k)];
-}
-
-/* One pattern as one row, and what the rows add beyond it. */
-static void pattern_row(mr__run *r, const double *pt, mr__block *blk, uint32_t i)
-{
-    double a = pt[MR__PATTERN_A], b = pt[MR__PATTERN_B], c = pt[MR__PATTERN_C], d = pt[MR__PATTERN_D];
-    if (r->dcfg.collapse == 1) {
-        double ybar = b / a;
-        blk->y[i] = ybar;
-        blk->prior[i] = a;
-        blk->extra[i] = c - b * ybar;
-        r->within_deviance += 2 * (d - a * r->family.ops->saturated_term(&r->family, ybar));
-    } else {
-        blk->y[i] = b;
-        blk->prior[i] = 1.0;
-        blk->off[i] = log(a);
-        blk->extra[i] = c * a - b * b;
-        r->within_deviance += 2 * (d - (b > 0 ? b * log(b / a) : 0.0));
-    }
-}
-
-static mr_status build_patterns(mr__run *r, mr__error *err)
-{
-    const mr__pattern_table *t = &r->first.patterns.table;
-    pattern_values v;
-    mr__block blk;
-    size_t e;
-    mr_status st;
-    memset(&blk, 0, sizeof blk);
-    memset(&v, 0, sizeof v);
-    mr__store_init_memory(&r->patterns);
-    st = resolve_pattern_values(r, &v, err);
-    for (e = 0; e < t->n && st == MR_OK; e++) {
-        double pt[MR__PATTERN_SUMS];
-        mr__pattern_sums(t, e, pt);
-        if (!(pt[MR__PATTERN_A] > 0)) continue; /* only rows of weight 0 */
-        if (blk.y == NULL) st = new_pattern_block(r, &blk, err);
-        if (st != MR_OK) break;
-        pattern_covariates(r, &v, e, &blk, blk.n);
-        pattern_row(r, pt, &blk, blk.n);
-        blk.index = r->patterns.n;
-        if (++blk.n == MR__BLOCK_ROWS) st = mr__store_keep(&r->patterns, &blk, &r->bind, err);
-        if (st == MR_OK && blk.n == 0) {
-            mr__block_release(&blk);
-        }
-    }
-    if (st == MR_OK && blk.y != NULL && blk.n > 0) st = mr__store_keep(&r->patterns, &blk, &r->bind, err);
-    mr__block_release(&blk);
-    release_pattern_values(&v, r->bind.nfac, r->bind.nnum);
-    r->npatterns = t->n;
-    r->collapsed = st == MR_OK;
-    return st;
 }
 
 /* ---- IRLS -------------------------------------------------------------- */
@@ -548,8 +163,6 @@ static double null_start(const mr__run *r)
     if (link == MR_LOG) return log(s->swy / s->swe);
     return mr__link_fun1(g, ybar) - s->swoff / s->sw;
 }
-
-static double relative_change(double now, double before) { return fabs(now - before) / (fabs(now) + 0.1); }
 
 /* One IRLS run: on the data, or on the kept sample for a warm start. */
 typedef struct irls_job {
@@ -595,161 +208,44 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
     res->sums.dev += job->deviance_shift;
     res->sums.null_dev = null_dev_known ? *null_dev_known : res->sums.null_dev + job->deviance_shift;
     if (st != MR_OK || job->replay) return st;
-    if (res->store_failed) go_without_cache(r, res->store_err.msg);
+    if (res->store_failed) mr__go_without_cache(r, res->store_err.msg);
     else if (c.store) r->store_filled = 1;
     MR__TRY(check_same_input(r, res, err));
     return note_pass(r, res, err);
 }
 
-typedef struct irls_state {
-    double *beta, *prev, *next;
-    double decrement, null_dev;
-    int have_beta, have_prev, have_dev, cold_restart, null_known;
-    double dev_prev, null_b0, null_dev_prev;
-    int null_done;
-} irls_state;
-
-static int bad_point(const mr__pass_result *res, const irls_state *s)
-{
-    if (res->sums.invalid > 0 || !isfinite(res->sums.dev)) return 1;
-    /* A rise beyond rounding noise means the Newton step overshot. */
-    return s->have_prev && res->sums.dev > s->dev_prev + 1e-9 * (fabs(s->dev_prev) + 0.1);
-}
-
-static void halve_step(irls_state *s, size_t p)
-{
-    size_t j;
-    for (j = 0; j < p; j++) s->beta[j] = 0.5 * (s->beta[j] + s->prev[j]);
-}
-
-/* (v - G b)' (b_next - b): the Newton decrement, which is the deviance
- * the step from b to b_next is expected to remove (dispersion units). */
-static double newton_decrement(const mr__block_sums *sums, size_t p, const double *b, const double *b_next)
-{
-    size_t i, j;
-    double total = 0;
-    for (i = 0; i < p; i++) {
-        double u = sums->xtwz[i];
-        for (j = 0; j < p; j++) u -= sums->xtwx[i <= j ? j * p + i : i * p + j] * b[j];
-        total += u * (b_next[i] - b[i]);
-    }
-    return total;
-}
-
-static mr_status next_point(mr__run *r, irls_state *s, const mr__pass_result *res, double tol, mr__error *err)
-{
-    size_t p = r->design.p, rank;
-    double *t;
-    MR__TRY(mr__solve_normal(res->sums.xtwx, res->sums.xtwz, p, s->next, r->aliased, &rank, NULL, err));
-    s->decrement = s->have_beta ? newton_decrement(&res->sums, p, s->beta, s->next) : INFINITY;
-    t = s->prev;
-    s->prev = s->beta;
-    s->beta = s->next;
-    s->next = t;
-    s->have_prev = s->have_beta;
-    s->have_beta = 1;
-    s->have_dev = 1;
-    s->dev_prev = res->sums.dev;
-    if (r->f->spec.intercept && res->sums.null_sw > 0) {
-        double b0 = res->sums.null_swz / res->sums.null_sw;
-        /* One parameter converges fast, and its deviance repeats only to
-         * rounding (~1e-13 with an offset): a tighter test might never pass. */
-        s->null_done = s->null_done || relative_change(res->sums.null_dev, s->null_dev_prev) < fmax(tol, 1e-12);
-        s->null_dev_prev = res->sums.null_dev;
-        if (!s->null_done) s->null_b0 = b0;
-    }
-    return MR_OK;
-}
-
-static void start_state(mr__run *r, const irls_job *job, irls_state *s)
-{
-    memset(s, 0, sizeof *s);
-    s->beta = r->beta_a;
-    s->prev = r->beta_b;
-    s->next = r->beta_c;
-    s->null_b0 = null_start(r);
-    s->null_dev_prev = INFINITY;
-    s->null_done = !r->f->spec.intercept || null_start_exact(r);
-    if (job->start) {
-        memcpy(s->beta, job->start, r->design.p * sizeof *s->beta);
-        s->have_beta = 1;
-    }
-}
-
-/* Returns 1 to go on with the pass just made, 0 to redo the pass at a
- * halved step (or, from a warm start outside the range, from scratch). */
-static mr_status accept_point(mr__run *r, irls_job *job, irls_state *s, const mr__pass_result *res, int *halvings,
-                              int *accepted, mr__error *err)
-{
-    *accepted = 0;
-    if (s->have_beta && bad_point(res, s)) {
-        if (!s->have_prev && job->start && !s->cold_restart) {
-            s->have_beta = 0;
-            s->cold_restart = 1;
-            job->restarted = 1;
-            return MR_OK;
-        }
-        if (!s->have_prev || ++*halvings > MAX_HALVINGS)
-            return mr__fail(err, MR_ERR_NUMERIC,
-                            "%s: IRLS found no valid coefficients (fitted means outside the %s family's range even "
-                            "after step halving); check the link and the data",
-                            r->display, mr__family_name((mr_family)r->f->spec.family));
-        halve_step(s, r->design.p);
-        job->halvings++;
-        return MR_OK;
-    }
-    if (!s->have_beta && res->sums.invalid > 0)
-        return mr__fail(err, MR_ERR_NUMERIC, "%s: the starting values are outside the model's range", r->display);
-    *accepted = 1;
-    return MR_OK;
-}
-
+/* The passes the state machine asks for, until it is done. */
 static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__error *err)
 {
-    irls_state s;
-    int halvings = 0, accepted;
-    start_state(r, job, &s);
-    for (;;) {
-        MR__TRY(irls_pass(r, job, s.have_beta ? s.beta : NULL, s.null_b0, s.null_known ? &s.null_dev : NULL, res,
-                          err));
-        MR__TRY(accept_point(r, job, &s, res, &halvings, &accepted, err));
-        if (!accepted) continue;
-        halvings = 0;
-        job->iterations++;
-        if (s.have_dev) {
-            job->rel_change = relative_change(res->sums.dev, s.dev_prev);
-            if (job->rel_change < job->tolerance && s.null_done) {
-                job->converged = 1;
-                break;
-            }
-        }
-        if (job->iterations >= job->max_iterations && !job->step_at_end) break;
-        MR__TRY(next_point(r, &s, res, job->tolerance, err));
-        if (s.null_done && !s.null_known) {
-            /* This pass evaluated the null model at its final b0: later
-             * passes leave its per-row work out. */
-            s.null_dev = res->sums.null_dev;
-            s.null_known = 1;
-        }
-        if (job->iterations >= job->max_iterations) break;
-        /* When the step just solved would remove a hundredth of the
-         * tolerance or less, this pass was the last one needed: the step is
-         * taken without a pass to check it (as the usual IRLS codes do,
-         * whose coefficients are one step ahead of their weights).  The
-         * statistics are those of this pass; at that distance from the
-         * maximum they differ from those at the new point by about the
-         * square root of the gap, 1e-6 relative at the default tolerance. */
-        if (s.null_done && fabs(s.decrement) / (fabs(res->sums.dev) + 0.1) < DECREMENT_SHARE * job->tolerance) {
-            job->rel_change = fabs(s.decrement) / (fabs(res->sums.dev) + 0.1);
-            job->converged = 1;
-            job->by_decrement = 1;
-            break;
-        }
-    }
-    if (s.have_beta) memcpy(job->beta_out, s.beta, r->design.p * sizeof *job->beta_out);
-    else memset(job->beta_out, 0, r->design.p * sizeof *job->beta_out);
+    mr__irls s;
+    mr__irls_cfg c;
+    mr_status st;
+    int done = 0;
+    memset(&c, 0, sizeof c);
+    c.p = r->design.p;
+    c.tolerance = job->tolerance;
+    c.max_iterations = job->max_iterations;
+    c.step_at_end = job->step_at_end;
+    c.start = job->start;
+    c.null_intercept = r->f->spec.intercept;
+    c.null_b0 = null_start(r);
+    c.null_exact = null_start_exact(r);
+    c.family = r->f->spec.family;
+    MR__TRY(mr__irls_init(&s, &c, err));
+    do {
+        st = irls_pass(r, job, mr__irls_beta(&s), s.null_b0, mr__irls_null_deviance(&s), res, err);
+        if (st == MR_OK) st = mr__irls_step(&s, &res->sums, r->display, &done, err);
+    } while (st == MR_OK && !done);
+    job->iterations = s.iterations;
+    job->halvings = s.halvings;
+    job->converged = s.converged;
+    job->by_decrement = s.by_decrement;
+    job->restarted = s.restarted;
+    job->rel_change = s.rel_change;
     job->null_b0 = s.null_b0;
-    return MR_OK;
+    if (st == MR_OK) mr__irls_coefficients(&s, job->beta_out);
+    mr__irls_release(&s);
+    return st;
 }
 
 /* ---- the warm start ---------------------------------------------------- */
@@ -809,7 +305,7 @@ static void warm_start(mr__run *r)
     mr__error scratch;
     /* the sample holds first-pass level numbers, as the cache does; with
      * no cache, or a cache started afresh, the maps are not made yet */
-    if (!r->collapsed && stride >= 2 && (r->remap != NULL || build_remap(r, &scratch) == MR_OK)) {
+    if (!r->collapsed && stride >= 2 && (r->remap != NULL || mr__build_remap(r, &scratch) == MR_OK)) {
         mr__store_remap(sample, r->remap, r->bind.nfac);
         r->warm = sample_fit(r, stride, NULL, 25, r->beta_warm, &r->warm_iterations);
         r->warm_blocks = (int)((sample->n + stride - 1) / stride);
@@ -859,10 +355,6 @@ static void release_run(mr__run *r)
     mr__free(r->spread);
     mr__free(r->header);
     mr__free(r->pass_seconds);
-    mr__free(r->aliased);
-    mr__free(r->beta_a);
-    mr__free(r->beta_b);
-    mr__free(r->beta_c);
     mr__free(r->beta_final);
     mr__free(r->beta_warm);
     mr__store_release(&r->store);
@@ -877,13 +369,9 @@ static void release_run(mr__run *r)
 static mr_status allocate_coefficients(mr__run *r, mr__error *err)
 {
     size_t p = r->design.p + 1;
-    r->aliased = mr__calloc(p, sizeof *r->aliased);
-    r->beta_a = mr__calloc(p, sizeof(double));
-    r->beta_b = mr__calloc(p, sizeof(double));
-    r->beta_c = mr__calloc(p, sizeof(double));
     r->beta_final = mr__calloc(p, sizeof(double));
     r->beta_warm = mr__calloc(p, sizeof(double));
-    if (!r->aliased || !r->beta_a || !r->beta_b || !r->beta_c || !r->beta_final || !r->beta_warm)
+    if (!r->beta_final || !r->beta_warm)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     return MR_OK;
 }
@@ -907,11 +395,11 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
                       snprintf(r.display, sizeof r.display, "%s", strcmp(path, "-") == 0 ? "<stdin>" : path));
     choose_threads(&r);
     r.family = mr__spec_family(&f->spec);
-    r.dcfg.collapse = collapse_mode(&r);
+    r.dcfg.collapse = mr__collapse_mode(&r);
     r.dcfg.collapse_abandoned = &r.collapse_abandoned;
     st = mr__spec_validate(&f->spec, err);
     if (st == MR_OK) {
-        choose_store(&r);
+        mr__choose_store(&r);
         /* Our workers use every core; BLAS threads inside them would only
          * oversubscribe.  The caller's count comes back at the end, as
          * millrace.h promises. */
@@ -919,10 +407,10 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
         openblas_set_num_threads(1);
         st = scan_pass(&r, err);
     }
-    if (st == MR_OK) st = settle_scan(&r, err);
+    if (st == MR_OK) st = mr__settle_scan(&r, err);
     if (st == MR_OK) st = allocate_coefficients(&r, err);
-    if (st == MR_OK && r.first.collapsed) st = build_patterns(&r, err);
-    if (st == MR_OK) st = settle_store(&r, err);
+    if (st == MR_OK && r.first.collapsed) st = mr__build_patterns(&r, err);
+    if (st == MR_OK) st = mr__settle_store(&r, err);
     if (st == MR_OK) warm_start(&r);
     if (st == MR_OK) st = fit_data(&r, err);
     if (st == MR_OK) st = mr__build_fit(&r, out, err);

@@ -54,10 +54,9 @@ typedef struct mr__run {
     char threads_note[256];
     /* IRLS */
     mr__pass_result last; /* sums at the reported coefficients */
-    double *beta_a, *beta_b, *beta_c, *beta_final, *beta_warm;
+    double *beta_final, *beta_warm;
     int warm, warm_iterations;
     int warm_blocks, warm_polish_blocks; /* sample blocks of the two stages (0: none) */
-    int *aliased;
     double null_b0, rel_change;
     int iterations, halvings, converged, by_decrement;
     double *pass_seconds;
@@ -65,5 +64,30 @@ typedef struct mr__run {
 } mr__run;
 
 mr_status mr__build_fit(mr__run *r, mr_fit **out, mr__error *err);
+
+/* header.c: binds the columns on the first pass, checks the row after. */
+mr_status mr__run_on_header(void *user, const char *line, size_t len, mr__error *err);
+
+/* spool.c: $TMPDIR or /tmp; whether the input must be copied to be read
+ * again; the copy (unlinked at once, reopened through its descriptor). */
+const char *mr__temp_dir(void);
+int mr__read_only_once(const char *path);
+mr_status mr__open_spool(mr__run *r, mr__error *err);
+
+/* settle.c: factors, centring and design from the first pass's sums. */
+mr_status mr__settle_scan(mr__run *r, mr__error *err);
+
+/* cache.c: the store chosen before the first pass, settled after it
+ * (kept blocks used, or started afresh); giving the cache up; the first
+ * pass's level numbers mapped to the shared ones. */
+void mr__choose_store(mr__run *r);
+mr_status mr__settle_store(mr__run *r, mr__error *err);
+void mr__go_without_cache(mr__run *r, const char *why);
+mr_status mr__build_remap(mr__run *r, mr__error *err);
+
+/* collapse.c: 0 no collapsing, 1 rows by their covariates, 2 poisson
+ * log-link rows with an exposure; the patterns as blocks to replay. */
+int mr__collapse_mode(const mr__run *r);
+mr_status mr__build_patterns(mr__run *r, mr__error *err);
 
 #endif

@@ -1,0 +1,119 @@
+/* cache.c - where later passes get their rows: memory, a cache file in
+ * TMPDIR, or the input again (the cache only saves time: same bits). */
+#define _POSIX_C_SOURCE 200809L
+#include <errno.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <sys/statvfs.h>
+
+#include "common/alloc.h"
+#include "fit/run.h"
+/* The cache only saves time: when it cannot be had (no file can be made in
+ * TMPDIR, or a write to it failed), every pass rereads the input, which
+ * gives the same bits, and the fit's warnings say why, once. */
+void mr__go_without_cache(mr__run *r, const char *why)
+{
+    mr__store_release(&r->store);
+    r->use_store = r->cached = r->store_filled = 0;
+    if (r->cache_note[0] == '\0')
+        snprintf(r->cache_note, sizeof r->cache_note, "no cache: %s; every pass rereads the input", why);
+}
+
+/* A cache file in TMPDIR, or none (and the reason noted). */
+static void open_cache(mr__run *r)
+{
+    mr__error scratch;
+    mr__error_clear(&scratch);
+    if (mr__store_init_file(&r->store, mr__temp_dir(), &scratch) != MR_OK) {
+        mr__go_without_cache(r, scratch.msg);
+        return;
+    }
+    r->store.budget = r->cache_budget;
+    r->use_store = 1;
+    r->cached = 1;
+}
+
+/* Where later passes get their rows: memory (asked for), a cache file
+ * (default, when the disk has room), or the input again. */
+void mr__choose_store(mr__run *r)
+{
+    const char *dir = mr__temp_dir();
+    struct statvfs fs;
+    struct stat in;
+    double need = 0, room;
+    /* Before the first pass only the input's size is known: decoded
+     * columns take about 1.5 times the text, and zstd text about 4 times
+     * less than that (generous on both counts, but a zstd file of blank
+     * lines or repeated rows can expand far more: then a write fails and
+     * the cache is given up). */
+    if (strcmp(r->path, "-") != 0 && stat(r->path, &in) == 0) need = 8.0 * (double)in.st_size;
+    if (r->f->in_memory) {
+        mr__store_init_packed(&r->store);
+        r->use_store = 1;
+        return;
+    }
+    mr__store_init_memory(&r->store);
+    if (r->f->no_cache) return;
+    if (statvfs(dir, &fs) == 0) {
+        room = (double)fs.f_bavail * (double)fs.f_frsize;
+        /* the estimate can be far off: the cache stops at half the room */
+        r->cache_budget = room / 2 >= 1 ? (uint64_t)(room / 2) : 1;
+        if (need > room / 2) {
+            snprintf(r->cache_note, sizeof r->cache_note,
+                     "no cache: it could need %.0f MB and %s has %.0f MB free; every pass rereads the input",
+                     need / 1e6, dir, room / 1e6);
+            return;
+        }
+    }
+    open_cache(r);
+}
+
+/* Maps each first-pass decoder's level numbers to the shared ones. */
+mr_status mr__build_remap(mr__run *r, mr__error *err)
+{
+    size_t w, f, j, nfac = r->bind.nfac, nw = r->first.nworkers;
+    r->remap = mr__calloc(nw * nfac + 1, sizeof *r->remap);
+    if (r->remap == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    r->nremap = nw * nfac;
+    for (w = 0; w < nw; w++)
+        for (f = 0; f < nfac; f++) {
+            const mr__levelset *local = &r->first.worker_levels[w][f];
+            int32_t *map = mr__calloc(local->n + 1, sizeof *map);
+            if (map == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+            r->remap[w * nfac + f] = map;
+            for (j = 0; j < local->cap; j++)
+                if (local->slot[j].str != NULL)
+                    map[local->slot[j].id] = mr__levelset_find(&r->levels[f], local->slot[j].str, local->slot[j].len);
+        }
+    return MR_OK;
+}
+
+/* After the first pass: the kept blocks are used as they are, or (when
+ * the rows collapsed, or some blocks went unkept) the store starts afresh
+ * and is filled by the first IRLS pass. */
+mr_status mr__settle_store(mr__run *r, mr__error *err)
+{
+    int file = r->store.fd >= 0;
+    if (!r->use_store) return MR_OK;
+    if (r->first.store_failed) {
+        mr__go_without_cache(r, r->first.store_err.msg);
+        return MR_OK;
+    }
+    if (r->collapsed || r->first.store_incomplete) {
+        mr__store_release(&r->store);
+        if (r->collapsed) {
+            r->use_store = r->cached = 0;
+            return MR_OK;
+        }
+        if (file) open_cache(r);
+        else mr__store_init_packed(&r->store);
+        return MR_OK;
+    }
+    MR__TRY(mr__build_remap(r, err));
+    mr__store_remap(&r->store, r->remap, r->bind.nfac);
+    r->store_filled = 1;
+    return MR_OK;
+}

@@ -1,0 +1,48 @@
+/* header.c - the header row: the model's columns bound on the first pass, the
+ * same row checked on every later one. */
+#define _POSIX_C_SOURCE 200809L
+#include <errno.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "common/alloc.h"
+#include "fit/run.h"
+#include "input/fields.h"
+static mr_status bind_header(mr__run *r, const char *line, size_t len, mr__error *err)
+{
+    char **names = NULL;
+    size_t n = 0, i;
+    mr_status st;
+    r->delim = r->f->delimiter ? (char)r->f->delimiter : mr__detect_delimiter(line, len);
+    r->delim_detected = r->f->delimiter == 0;
+    MR__TRY(mr__parse_header(line, len, r->delim, &names, &n, r->display, err));
+    st = mr__bind(&r->bind, &r->f->spec, names, n, r->display, err);
+    r->bound = 1; /* the binding owns the names now, even when it failed */
+    if (st != MR_OK) return st;
+    r->dcfg.bind = &r->bind;
+    r->dcfg.family = &r->family;
+    r->dcfg.skip_bad = r->f->skip_bad;
+    r->dcfg.delim = r->delim;
+    r->dcfg.display = r->display;
+    r->dcfg.missing = r->f->missing;
+    r->dcfg.nmissing = r->f->nmissing;
+    r->dcfg.missing_len = r->missing_len;
+    if (r->f->nmissing > MR__MAX_MISSING_TOKENS)
+        return mr__fail(err, MR_ERR_USAGE, "more than %d missing-value tokens", MR__MAX_MISSING_TOKENS);
+    for (i = 0; i < r->f->nmissing; i++) r->missing_len[i] = strlen(r->f->missing[i]);
+    r->dcfg.levels = NULL;
+    r->header = mr__strndup(line, len);
+    r->header_len = len;
+    return r->header ? MR_OK : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+}
+
+mr_status mr__run_on_header(void *user, const char *line, size_t len, mr__error *err)
+{
+    mr__run *r = user;
+    if (!r->bound) return bind_header(r, line, len, err);
+    if (len != r->header_len || memcmp(line, r->header, len) != 0)
+        return mr__fail(err, MR_ERR_IO, "%s: the header changed during the fit", r->display);
+    return MR_OK;
+}

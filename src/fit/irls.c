@@ -1,0 +1,281 @@
+/* irls.c - the IRLS state machine (irls.h): what a pass's sums mean for
+ * the next point, step halving, the null model alongside, when to stop. */
+#include <math.h>
+#include <string.h>
+
+#include "common/alloc.h"
+#include "common/bytes.h"
+#include "family/family.h"
+#include "fit/irls.h"
+#include "solve/normal_eq.h"
+
+static double relative_change(double now, double before) { return fabs(now - before) / (fabs(now) + 0.1); }
+
+static mr_status allocate(mr__irls *s, size_t p, mr__error *err)
+{
+    s->beta = mr__calloc(p + 1, sizeof *s->beta);
+    s->prev = mr__calloc(p + 1, sizeof *s->prev);
+    s->next = mr__calloc(p + 1, sizeof *s->next);
+    s->aliased = mr__calloc(p + 1, sizeof *s->aliased);
+    if (s->beta && s->prev && s->next && s->aliased) return MR_OK;
+    mr__irls_release(s);
+    return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+}
+
+mr_status mr__irls_init(mr__irls *s, const mr__irls_cfg *cfg, mr__error *err)
+{
+    memset(s, 0, sizeof *s);
+    MR__TRY(allocate(s, cfg->p, err));
+    s->p = cfg->p;
+    s->tolerance = cfg->tolerance;
+    s->max_iterations = cfg->max_iterations;
+    s->step_at_end = cfg->step_at_end;
+    s->null_intercept = cfg->null_intercept;
+    s->family = cfg->family;
+    s->from_start = cfg->start != NULL;
+    s->null_b0 = cfg->null_b0;
+    s->null_dev_prev = INFINITY;
+    s->null_done = !cfg->null_intercept || cfg->null_exact;
+    if (cfg->start) {
+        memcpy(s->beta, cfg->start, cfg->p * sizeof *s->beta);
+        s->have_beta = 1;
+    }
+    return MR_OK;
+}
+
+void mr__irls_release(mr__irls *s)
+{
+    mr__free(s->beta);
+    mr__free(s->prev);
+    mr__free(s->next);
+    mr__free(s->aliased);
+    mr__free(s->history);
+    memset(s, 0, sizeof *s);
+}
+
+const double *mr__irls_beta(const mr__irls *s) { return s->have_beta ? s->beta : NULL; }
+
+/* Once the null model has converged its deviance no longer changes, and
+ * a pass leaves its per-row work (a mean, a variance and a log each) out. */
+const double *mr__irls_null_deviance(const mr__irls *s) { return s->null_known ? &s->null_dev : NULL; }
+
+void mr__irls_coefficients(const mr__irls *s, double *out)
+{
+    if (s->have_beta) memcpy(out, s->beta, s->p * sizeof *out);
+    else memset(out, 0, s->p * sizeof *out);
+}
+
+static int bad_point(const mr__block_sums *sums, const mr__irls *s)
+{
+    if (sums->invalid > 0 || !isfinite(sums->dev)) return 1;
+    /* A rise beyond rounding noise means the Newton step overshot. */
+    return s->have_prev && sums->dev > s->dev_prev + 1e-9 * (fabs(s->dev_prev) + 0.1);
+}
+
+static void halve_step(mr__irls *s)
+{
+    size_t j;
+    for (j = 0; j < s->p; j++) s->beta[j] = 0.5 * (s->beta[j] + s->prev[j]);
+}
+
+/* (v - G b)' (b_next - b): the Newton decrement, which is the deviance
+ * the step from b to b_next is expected to remove (dispersion units). */
+static double newton_decrement(const mr__block_sums *sums, size_t p, const double *b, const double *b_next)
+{
+    size_t i, j;
+    double total = 0;
+    for (i = 0; i < p; i++) {
+        double u = sums->xtwz[i];
+        for (j = 0; j < p; j++) u -= sums->xtwx[i <= j ? j * p + i : i * p + j] * b[j];
+        total += u * (b_next[i] - b[i]);
+    }
+    return total;
+}
+
+static mr_status next_point(mr__irls *s, const mr__block_sums *sums, mr__error *err)
+{
+    size_t p = s->p, rank;
+    double *t;
+    MR__TRY(mr__solve_normal(sums->xtwx, sums->xtwz, p, s->next, s->aliased, &rank, NULL, err));
+    s->decrement = s->have_beta ? newton_decrement(sums, p, s->beta, s->next) : INFINITY;
+    t = s->prev;
+    s->prev = s->beta;
+    s->beta = s->next;
+    s->next = t;
+    s->have_prev = s->have_beta;
+    s->have_beta = 1;
+    s->have_dev = 1;
+    s->dev_prev = sums->dev;
+    if (s->null_intercept && sums->null_sw > 0) {
+        double b0 = sums->null_swz / sums->null_sw;
+        /* One parameter converges fast, and its deviance repeats only to
+         * rounding (~1e-13 with an offset): a tighter test might never pass. */
+        s->null_done = s->null_done || relative_change(sums->null_dev, s->null_dev_prev) < fmax(s->tolerance, 1e-12);
+        s->null_dev_prev = sums->null_dev;
+        if (!s->null_done) s->null_b0 = b0;
+    }
+    return MR_OK;
+}
+
+/* Whether to go on from the pass just made; if not, the pass is redone at
+ * a halved step (or, from a given start outside the range, from the
+ * family's starting means). */
+static mr_status accept_point(mr__irls *s, const mr__block_sums *sums, const char *display, int *accepted,
+                              mr__error *err)
+{
+    *accepted = 0;
+    if (s->have_beta && bad_point(sums, s)) {
+        if (!s->have_prev && s->from_start && !s->cold_restart) {
+            s->have_beta = 0;
+            s->cold_restart = 1;
+            s->restarted = 1;
+            return MR_OK;
+        }
+        if (!s->have_prev || ++s->halving_run > MR__IRLS_MAX_HALVINGS)
+            return mr__fail(err, MR_ERR_NUMERIC,
+                            "%s: IRLS found no valid coefficients (fitted means outside the %s family's range even "
+                            "after step halving); check the link and the data",
+                            display, mr__family_name((mr_family)s->family));
+        halve_step(s);
+        s->halvings++;
+        return MR_OK;
+    }
+    if (!s->have_beta && sums->invalid > 0)
+        return mr__fail(err, MR_ERR_NUMERIC, "%s: the starting values are outside the model's range", display);
+    *accepted = 1;
+    return MR_OK;
+}
+
+static mr_status note_deviance(mr__irls *s, double dev, mr__error *err)
+{
+    void *grown = s->history;
+    if (mr__reserve(&grown, &s->history_cap, s->nhistory + 1, sizeof *s->history) != MR_OK)
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    s->history = grown;
+    s->history[s->nhistory++] = dev;
+    return MR_OK;
+}
+
+static int converged_by_deviance(mr__irls *s, const mr__block_sums *sums)
+{
+    if (!s->have_dev) return 0;
+    s->rel_change = relative_change(sums->dev, s->dev_prev);
+    return s->rel_change < s->tolerance && s->null_done;
+}
+
+/* When the step just solved would remove a hundredth of the tolerance or
+ * less, the pass just made was the last one needed: the step is taken
+ * without a pass to check it (as the usual IRLS codes do, whose
+ * coefficients are one step ahead of their weights).  The statistics are
+ * those of that pass; at that distance from the maximum they differ from
+ * those at the new point by about the square root of the gap, 1e-6
+ * relative at the default tolerance. */
+static int converged_by_decrement(mr__irls *s, const mr__block_sums *sums)
+{
+    double share = fabs(s->decrement) / (fabs(sums->dev) + 0.1);
+    if (!s->null_done || !(share < MR__IRLS_DECREMENT_SHARE * s->tolerance)) return 0;
+    s->rel_change = share;
+    s->by_decrement = 1;
+    return 1;
+}
+
+mr_status mr__irls_step(mr__irls *s, const mr__block_sums *sums, const char *display, int *done, mr__error *err)
+{
+    int accepted;
+    *done = 0;
+    s->passes++;
+    MR__TRY(accept_point(s, sums, display, &accepted, err));
+    if (!accepted) return MR_OK;
+    s->halving_run = 0;
+    s->iterations++;
+    MR__TRY(note_deviance(s, sums->dev, err));
+    if (converged_by_deviance(s, sums)) {
+        s->converged = *done = 1;
+        return MR_OK;
+    }
+    if (s->iterations >= s->max_iterations && !s->step_at_end) {
+        *done = 1;
+        return MR_OK;
+    }
+    MR__TRY(next_point(s, sums, err));
+    if (s->null_done && !s->null_known) {
+        /* This pass evaluated the null model at its final b0: later
+         * passes leave its per-row work out. */
+        s->null_dev = sums->null_dev;
+        s->null_known = 1;
+    }
+    if (s->iterations >= s->max_iterations) *done = 1;
+    else if (converged_by_decrement(s, sums)) s->converged = *done = 1;
+    return MR_OK;
+}
+
+/* ---- the encoding ------------------------------------------------------ */
+
+#define IRLS_INTS(X)                                                                                              \
+    X(max_iterations) X(step_at_end) X(null_intercept) X(family) X(from_start) X(have_beta) X(have_prev)        \
+    X(have_dev) X(cold_restart) X(null_done) X(null_known) X(halving_run) X(iterations) X(halvings) X(passes) \
+    X(converged) X(by_decrement) X(restarted)
+#define IRLS_DOUBLES(X) X(tolerance) X(dev_prev) X(decrement) X(rel_change) X(null_b0) X(null_dev) X(null_dev_prev)
+#define COUNT(f) +1
+enum { NINTS = 0 IRLS_INTS(COUNT), NDOUBLES = 0 IRLS_DOUBLES(COUNT), HEAD = 8 + 8 + 8 };
+
+size_t mr__irls_encoded_size(const mr__irls *s)
+{
+    return HEAD + 8 * (NINTS + NDOUBLES + 2 * s->p + s->nhistory);
+}
+
+void mr__irls_encode(const mr__irls *s, unsigned char *out)
+{
+    unsigned char *at = mr__put_head(out, "MRIS", MR__IRLS_VERSION);
+    size_t j;
+    at = mr__put_u64(at, s->p);
+    at = mr__put_u64(at, s->nhistory);
+#define PUT_INT(f) at = mr__put_u64(at, (uint64_t)(int64_t)s->f);
+#define PUT_DOUBLE(f) at = mr__put_f64(at, s->f);
+    IRLS_INTS(PUT_INT)
+    IRLS_DOUBLES(PUT_DOUBLE)
+    for (j = 0; j < s->p; j++) at = mr__put_f64(at, s->beta[j]);
+    for (j = 0; j < s->p; j++) at = mr__put_f64(at, s->prev[j]);
+    for (j = 0; j < s->nhistory; j++) at = mr__put_f64(at, s->history[j]);
+}
+
+static mr_status decode_head(const unsigned char *in, size_t len, uint64_t *p, uint64_t *nhistory, mr__error *err)
+{
+    uint32_t version;
+    if (len < HEAD || !mr__get_head(in, "MRIS", &version))
+        return mr__fail(err, MR_ERR_IO, "IRLS state: not an encoded state");
+    if (version != MR__IRLS_VERSION)
+        return mr__fail(err, MR_ERR_IO, "IRLS state: version %u, not %u", (unsigned)version, MR__IRLS_VERSION);
+    (void)mr__get_u64(mr__get_u64(in + 8, p), nhistory);
+    /* each counted value takes 8 bytes: counts past the length are refused
+     * before any size is computed from them */
+    if (*p > len / 16 || *nhistory > len / 8 || len != HEAD + 8 * (NINTS + NDOUBLES + 2 * *p + *nhistory))
+        return mr__fail(err, MR_ERR_IO, "IRLS state: %zu bytes do not hold the state they describe", len);
+    return MR_OK;
+}
+
+mr_status mr__irls_decode(const unsigned char *in, size_t len, mr__irls *s, mr__error *err)
+{
+    const unsigned char *at = in + HEAD;
+    uint64_t p = 0, nhistory = 0, v;
+    void *history = NULL;
+    size_t j;
+    memset(s, 0, sizeof *s);
+    MR__TRY(decode_head(in, len, &p, &nhistory, err));
+    MR__TRY(allocate(s, (size_t)p, err));
+    if (nhistory > 0 && mr__reserve(&history, &s->history_cap, (size_t)nhistory, sizeof *s->history) != MR_OK) {
+        mr__irls_release(s);
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    }
+    s->history = history;
+    s->p = p;
+    s->nhistory = (size_t)nhistory;
+#define GET_INT(f) at = mr__get_u64(at, &v), s->f = (int32_t)(int64_t)v;
+#define GET_DOUBLE(f) at = mr__get_f64(at, &s->f);
+    IRLS_INTS(GET_INT)
+    IRLS_DOUBLES(GET_DOUBLE)
+    for (j = 0; j < s->p; j++) at = mr__get_f64(at, &s->beta[j]);
+    for (j = 0; j < s->p; j++) at = mr__get_f64(at, &s->prev[j]);
+    for (j = 0; j < s->nhistory; j++) at = mr__get_f64(at, &s->history[j]);
+    return MR_OK;
+}

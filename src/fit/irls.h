@@ -1,0 +1,87 @@
+/* irls.h - IRLS as a state machine: one struct holds everything the
+ * iterations carry from pass to pass (the coefficients and the previous
+ * point, the deviances, step halvings, the null model's intercept and
+ * whether its deviance is known, convergence, counts), and one step takes
+ * the sums of a pass made at mr__irls_beta and says where the next pass
+ * goes, or that the fit is done.  Who makes the passes (threads, files,
+ * other processes) is the caller's business: the state alone decides.
+ *
+ * The state serialises to a flat little-endian encoding and back, bit for
+ * bit (a checkpoint; a root process driving others' passes). */
+#ifndef MR_IRLS_H
+#define MR_IRLS_H
+
+#include <stddef.h>
+#include <stdint.h>
+#include "accum/accumulate.h"
+#include "common/error.h"
+
+/* Halvings of one step before the fit gives up. */
+#define MR__IRLS_MAX_HALVINGS 30
+/* A step expected to remove at most this share of the tolerance ends the
+ * fit without a pass to check it (see mr__irls_step). */
+#define MR__IRLS_DECREMENT_SHARE 1e-2
+
+typedef struct mr__irls_cfg {
+    size_t p;
+    double tolerance;
+    int max_iterations;
+    int step_at_end;       /* after the last pass allowed, still take its step */
+    const double *start;   /* NULL: from the family's starting means; else p values */
+    int null_intercept;    /* the null model has an intercept to fit */
+    double null_b0;        /* its starting value */
+    int null_exact;        /* that value is its maximum already */
+    int family;            /* for messages */
+} mr__irls_cfg;
+
+typedef struct mr__irls {
+    /* what the fit was asked for */
+    uint64_t p;
+    double tolerance;
+    int32_t max_iterations, step_at_end, null_intercept, family, from_start;
+    /* the point: beta is where the next pass goes, prev the last accepted
+     * one, next scratch for the solver (not part of the encoding) */
+    double *beta, *prev, *next;
+    int *aliased;          /* the solver's scratch, likewise */
+    int32_t have_beta, have_prev, have_dev, cold_restart;
+    double dev_prev, decrement, rel_change;
+    /* the null model (intercept and offset only), fitted alongside */
+    double null_b0, null_dev, null_dev_prev;
+    int32_t null_done, null_known;
+    /* counts and flags */
+    int32_t halving_run;   /* halvings since the last accepted point */
+    int32_t iterations, halvings, passes, converged, by_decrement, restarted;
+    /* the deviance of every accepted point, in order */
+    double *history;
+    size_t nhistory, history_cap;
+} mr__irls;
+
+mr_status mr__irls_init(mr__irls *s, const mr__irls_cfg *cfg, mr__error *err);
+void mr__irls_release(mr__irls *s);
+
+/* Where the next pass evaluates the model: NULL for the family's starting
+ * means; and the null deviance once known (NULL: the pass computes it). */
+const double *mr__irls_beta(const mr__irls *s);
+const double *mr__irls_null_deviance(const mr__irls *s);
+
+/* Takes the sums of a pass made at mr__irls_beta (the null deviance
+ * already replaced by mr__irls_null_deviance when known) and moves on:
+ * *done = 1 when the fit is over (converged, or out of passes).  Fails
+ * with MR_ERR_NUMERIC when no valid point can be found (`display` names
+ * the input in the message) or when the solver does. */
+mr_status mr__irls_step(mr__irls *s, const mr__block_sums *sums, const char *display, int *done, mr__error *err);
+
+/* The coefficients reached (zeros when no point was ever accepted). */
+void mr__irls_coefficients(const mr__irls *s, double *out);
+
+/* THE ENCODING (version 1), little-endian: "MRIS", u32 version, then every
+ * field above but the scratch in declaration order (integers as u64,
+ * doubles as their bits), then beta and prev (p each) and the history. */
+#define MR__IRLS_VERSION 1u
+size_t mr__irls_encoded_size(const mr__irls *s);
+void mr__irls_encode(const mr__irls *s, unsigned char *out);
+/* A fresh state from the bytes (released with mr__irls_release): MR_ERR_IO
+ * on bytes that are not a version-1 state, MR_ERR_NO_MEMORY. */
+mr_status mr__irls_decode(const unsigned char *in, size_t len, mr__irls *s, mr__error *err);
+
+#endif

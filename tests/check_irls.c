@@ -1,0 +1,178 @@
+/* check_irls.c - tests of src/fit/irls.c, the IRLS state machine.
+ *
+ * Sources of truth: an analytic identity (a poisson log-link fit of one
+ * two-level factor gives each level's coefficient as the log of its mean
+ * outcome, so beta = (log 3, log 7/3) for the rows below); bitwise identity
+ * of a state encoded and decoded with the original, field by field and
+ * under further steps; the encoding's contract in irls.h. */
+#include <check.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "fit/irls.h"
+#include "check_common.h"
+#include "millrace.h"
+
+enum { P = 2, NROWS = 6 };
+static const double Y[NROWS] = {2, 3, 4, 5, 7, 9};
+static const double X1[NROWS] = {0, 0, 0, 1, 1, 1};
+
+static double poisson_dev(double y, double mu) { return 2 * ((y > 0 ? y * log(y / mu) : 0) - (y - mu)); }
+
+/* The sums a pass makes at beta (NULL: means y + 0.1) for a poisson log
+ * link, with the null model at b0 alongside. */
+static void pass_sums(const double *beta, double b0, mr__block_sums *s)
+{
+    size_t i;
+    memset(s->xtwx, 0, P * P * sizeof *s->xtwx);
+    memset(s->xtwz, 0, P * sizeof *s->xtwz);
+    s->dev = s->pearson = s->null_dev = s->null_sw = s->null_swz = 0;
+    s->invalid = s->boundary = 0;
+    for (i = 0; i < NROWS; i++) {
+        double x[P] = {1, X1[i]};
+        double mu = beta ? exp(beta[0] + beta[1] * x[1]) : Y[i] + 0.1, eta = log(mu);
+        double z = eta + (Y[i] - mu) / mu, m0 = exp(b0), z0 = b0 + (Y[i] - m0) / m0;
+        size_t a, b;
+        for (b = 0; b < P; b++) {
+            for (a = 0; a <= b; a++) s->xtwx[b * P + a] += mu * x[a] * x[b];
+            s->xtwz[b] += mu * x[b] * z;
+        }
+        s->dev += poisson_dev(Y[i], mu);
+        s->pearson += (Y[i] - mu) * (Y[i] - mu) / mu;
+        s->null_dev += poisson_dev(Y[i], m0);
+        s->null_sw += m0;
+        s->null_swz += m0 * z0;
+    }
+}
+
+static void start(mr__irls *s)
+{
+    mr__irls_cfg c;
+    memset(&c, 0, sizeof c);
+    c.p = P;
+    c.tolerance = 1e-12;
+    c.max_iterations = 50;
+    c.null_intercept = 1;
+    c.null_b0 = 0.5;
+    c.family = MR_POISSON;
+    ck_assert_int_eq(mr__irls_init(s, &c, NULL), MR_OK);
+}
+
+/* One pass and one step; returns done. */
+static int advance(mr__irls *s, mr__block_sums *sums)
+{
+    int done = 0;
+    pass_sums(mr__irls_beta(s), s->null_b0, sums);
+    if (mr__irls_null_deviance(s)) sums->null_dev = *mr__irls_null_deviance(s);
+    ck_assert_int_eq(mr__irls_step(s, sums, "test", &done, NULL), MR_OK);
+    return done;
+}
+
+static unsigned char *encode(const mr__irls *s, size_t *len)
+{
+    unsigned char *buf;
+    *len = mr__irls_encoded_size(s);
+    buf = malloc(*len);
+    ck_assert_ptr_nonnull(buf);
+    mr__irls_encode(s, buf);
+    return buf;
+}
+
+/* Same bytes: every encoded field, the doubles bit for bit. */
+static void assert_same_state(const mr__irls *a, const mr__irls *b)
+{
+    size_t la, lb;
+    unsigned char *ea = encode(a, &la), *eb = encode(b, &lb);
+    ck_assert_uint_eq(la, lb);
+    ck_assert(memcmp(ea, eb, la) == 0);
+    free(ea);
+    free(eb);
+}
+
+START_TEST(converges_to_the_group_means)
+{
+    mr__irls s;
+    mr__block_sums sums;
+    double beta[P];
+    int passes = 0;
+    ck_assert_int_eq(mr__sums_init(&sums, P, NULL), MR_OK);
+    start(&s);
+    while (!advance(&s, &sums)) ck_assert_int_lt(++passes, 50);
+    ck_assert(s.converged);
+    mr__irls_coefficients(&s, beta);
+    ck_assert_double_eq_tol(beta[0], log(3.0), 1e-9);
+    ck_assert_double_eq_tol(beta[1], log(7.0 / 3.0), 1e-9);
+    ck_assert_uint_eq(s.nhistory, (size_t)s.iterations);
+    mr__irls_release(&s);
+    mr__sums_release(&sums);
+}
+END_TEST
+
+/* A state taken to bytes after each step and read back is the same state,
+ * and goes on to the same bits as the one that never left memory. */
+START_TEST(state_round_trips_bit_for_bit)
+{
+    mr__irls s, copy;
+    mr__block_sums sums;
+    int done = 0;
+    ck_assert_int_eq(mr__sums_init(&sums, P, NULL), MR_OK);
+    start(&s);
+    while (!done) {
+        size_t len;
+        unsigned char *buf = encode(&s, &len);
+        int copy_done;
+        ck_assert_int_eq(mr__irls_decode(buf, len, &copy, NULL), MR_OK);
+        free(buf);
+        assert_same_state(&s, &copy);
+        ck_assert(same_bits(copy.null_dev_prev, s.null_dev_prev)); /* infinity at the start */
+        done = advance(&s, &sums);
+        copy_done = advance(&copy, &sums);
+        ck_assert_int_eq(done, copy_done);
+        assert_same_state(&s, &copy);
+        mr__irls_release(&copy);
+    }
+    mr__irls_release(&s);
+    mr__sums_release(&sums);
+}
+END_TEST
+
+START_TEST(wrong_bytes_are_refused)
+{
+    mr__irls s, copy;
+    mr__block_sums sums;
+    mr__error err;
+    size_t len;
+    unsigned char *buf;
+    ck_assert_int_eq(mr__sums_init(&sums, P, NULL), MR_OK);
+    start(&s);
+    (void)advance(&s, &sums);
+    buf = encode(&s, &len);
+    ck_assert_int_eq(mr__irls_decode(buf, len - 8, &copy, &err), MR_ERR_IO);
+    ck_assert_int_eq(mr__irls_decode(buf, 7, &copy, &err), MR_ERR_IO);
+    buf[8] = 0xFF; /* p far beyond what the bytes hold */
+    buf[15] = 0x7F;
+    ck_assert_int_eq(mr__irls_decode(buf, len, &copy, &err), MR_ERR_IO);
+    buf[8] = P;
+    buf[15] = 0;
+    buf[4] = 9; /* an unknown version */
+    ck_assert_int_eq(mr__irls_decode(buf, len, &copy, &err), MR_ERR_IO);
+    buf[4] = 1;
+    ck_assert_int_eq(mr__irls_decode(buf, len, &copy, &err), MR_OK);
+    mr__irls_release(&copy);
+    free(buf);
+    mr__irls_release(&s);
+    mr__sums_release(&sums);
+}
+END_TEST
+
+int main(void)
+{
+    Suite *s = suite_create("irls");
+    TCase *tc = tcase_create("irls");
+    tcase_add_test(tc, converges_to_the_group_means);
+    tcase_add_test(tc, state_round_trips_bit_for_bit);
+    tcase_add_test(tc, wrong_bytes_are_refused);
+    suite_add_tcase(s, tc);
+    return mr_check_run(s, 0);
+}
