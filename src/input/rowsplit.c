@@ -185,7 +185,9 @@ static const char *find_newline(const char *p, const char *end)
 static const char *take_rows_in_place(mr__splitter *sp, const char *p, const char *end)
 {
     mr__chunk *c = sp->cur;
-    if (sp->want_header || sp->in_quote || c == NULL || p != c->data + c->len) return p;
+    /* a chunk with no buffer yet holds nothing read in place (and NULL + 0
+     * is undefined) */
+    if (sp->want_header || sp->in_quote || c == NULL || c->data == NULL || p != c->data + c->len) return p;
     while (c->nrows + 1 < MR__BLOCK_ROWS) {
         const char *nl = find_newline(p, end), *row = c->data + c->row_start[c->nrows];
         if (nl == NULL || may_be_blank(*row) || (size_t)(nl + 1 - row) > MR__MAX_ROW_BYTES) break;
