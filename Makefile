@@ -49,7 +49,7 @@ SAN      := -fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize-r
 # Debian packages the build and the tests need.
 DEBIAN_PACKAGES := build-essential pkg-config libzstd-dev zstd libopenblas-dev libopenblas0-serial liblapacke-dev libcsv-dev \
                    libjansson-dev check libsubunit-dev python3 python3-numpy python3-scipy \
-                   python3-statsmodels r-base-core valgrind time
+                   python3-statsmodels r-base-core valgrind time clang libclang-rt-dev
 
 ifeq ($(V),1)
 Q :=
@@ -188,9 +188,10 @@ lint:
 	  echo "lint: BLAS or LAPACK called outside src/solve and src/fit (see above)"; exit 1; fi
 	@echo "lint: BLAS and LAPACK only in src/solve and src/fit"
 
-check: lint unit cli-check ref-check asan-check tsan-check alloc-check valgrind-check
-	@echo "test groups: lint, unit, cli, reference, asan+ubsan, tsan, allocation failures, valgrind"
-	@echo "check: 8 passed, 0 failed"
+check: lint unit cli-check ref-check asan-check tsan-check alloc-check valgrind-check fuzz-check
+	@echo "test groups: lint, unit, cli, reference, asan+ubsan, tsan, allocation failures, valgrind, fuzz"
+	@if [ -f $(B)/fuzz/skipped ]; then echo "check: 8 passed, 1 skipped (fuzz: no clang), 0 failed"; \
+	else echo "check: 9 passed, 0 failed"; fi
 
 # ---- benchmarks (never a test) ------------------------------------------------
 bench: all
@@ -198,5 +199,7 @@ bench: all
 
 clean:
 	rm -rf $(B)
+
+include mk/fuzz.mk
 
 -include $(LIB_OBJ:.o=.d) $(ASAN_OBJ:.o=.d) $(TSAN_OBJ:.o=.d) $(ALLOC_OBJ:.o=.d) $(B)/src/cli/main.d

@@ -1,0 +1,152 @@
+/* fuzz_zstd.c - libFuzzer target: the source reader (src/input/source.h) on
+ * arbitrary bytes, plain or (possibly broken) zstd.
+ *
+ * Input: two bytes of sizes, then the stream, which the source reads from an
+ * in-memory file (memfd) by its path.
+ *   byte 0: the raw read size, 16 + 7 * b (the source's least is 16);
+ *   byte 1: the room offered to each mr__source_read, 1 + 13 * b.
+ *
+ * Oracles:
+ *   - source.h: the stream is zstd exactly when it starts with a zstd or a
+ *     skippable frame's magic (RFC 8878 3.1.1, 3.1.2); plain input comes
+ *     out byte for byte; a read ends with MR_OK or MR_ERR_FORMAT, never
+ *     anything else, and the message names the input;
+ *   - zstd's one-shot ZSTD_decompress of the whole stream (frames one after
+ *     another, skippable ones ignored): where it succeeds the source gives
+ *     the same bytes, and where it fails the source fails.  The one
+ *     exception is a frame whose window the streaming decoder refuses to
+ *     allocate (more than 128 MiB), which the one-shot call needs no room for;
+ *   - on success every raw byte was counted, and the checksum is FNV-1a 64 over
+ *     the bytes as little-endian 64-bit words, the last one zero-padded.
+ * Output is bounded (OUT_CAP): a few bytes of zstd can stand for gigabytes,
+ * which the source would stream, but a fuzzer run cannot wait for.
+ */
+#define _GNU_SOURCE /* memfd_create */
+#include <stdint.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/mman.h>
+#include <unistd.h>
+#include <zstd.h>
+#include <zstd_errors.h>
+
+#include "common/error.h"
+#include "input/source.h"
+
+#define OUT_CAP (8u << 20)
+
+static void fail(const char *what, const char *msg)
+{
+    fprintf(stderr, "fuzz_zstd: %s (message: \"%.300s\")\n", what, msg);
+    abort();
+}
+
+static uint64_t fnv_words(const uint8_t *p, size_t n)
+{
+    uint64_t h = 0xcbf29ce484222325ULL, w;
+    size_t i;
+    for (i = 0; i + 8 <= n; i += 8) {
+        w = 0;
+        for (size_t k = 0; k < 8; k++) w |= (uint64_t)p[i + k] << (8 * k);
+        h = (h ^ w) * 0x100000001b3ULL;
+    }
+    if (i < n) {
+        w = 0;
+        for (size_t k = 0; i + k < n; k++) w |= (uint64_t)p[i + k] << (8 * k);
+        h = (h ^ w) * 0x100000001b3ULL;
+    }
+    return h;
+}
+
+static int starts_as_zstd(const uint8_t *p, size_t n)
+{
+    uint32_t magic;
+    if (n < 4) return 0;
+    magic = (uint32_t)p[0] | (uint32_t)p[1] << 8 | (uint32_t)p[2] << 16 | (uint32_t)p[3] << 24;
+    return magic == ZSTD_MAGICNUMBER || (magic & ZSTD_MAGIC_SKIPPABLE_MASK) == ZSTD_MAGIC_SKIPPABLE_START;
+}
+
+/* The stream as the file the source opens. */
+static void put_file(int fd, const uint8_t *p, size_t n)
+{
+    if (ftruncate(fd, 0) != 0 || (n > 0 && pwrite(fd, p, n, 0) != (ssize_t)n)) abort();
+}
+
+/* Everything the source gives, up to OUT_CAP bytes (*capped then). */
+static mr_status read_all(mr__source *s, char *out, size_t room, size_t *n, int *capped, mr__error *err)
+{
+    mr_status st;
+    *n = 0;
+    *capped = 0;
+    for (;;) {
+        size_t got, ask = room < OUT_CAP - *n ? room : OUT_CAP - *n;
+        if (ask == 0) {
+            *capped = 1;
+            return MR_OK;
+        }
+        st = mr__source_read(s, out + *n, ask, &got, err);
+        if (st != MR_OK) return st;
+        if (got > ask) fail("the source wrote more than it was offered", "");
+        if (got == 0) return MR_OK;
+        *n += got;
+    }
+}
+
+static void compare_with_zstd(const uint8_t *in, size_t n, const char *out, size_t nout, mr_status st,
+                              const mr__error *err, char *want)
+{
+    size_t r = ZSTD_decompress(want, OUT_CAP, in, n);
+    if (ZSTD_isError(r)) {
+        if (ZSTD_getErrorCode(r) == ZSTD_error_dstSize_tooSmall) return; /* beyond what we read */
+        if (st == MR_OK) fail("the source read a stream zstd rejects", ZSTD_getErrorName(r));
+        return;
+    }
+    if (st != MR_OK) {
+        if (strstr(err->msg, "too much memory") != NULL) return; /* the window: see above */
+        fail("the source failed on a stream zstd reads", err->msg);
+    }
+    if (r != nout || memcmp(want, out, nout) != 0) fail("the source's bytes differ from zstd's", "");
+}
+
+int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size);
+
+int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
+{
+    static int fd = -1;
+    static char path[64], *out, *want;
+    const uint8_t *in = data + 2;
+    size_t n, nout, room;
+    int capped, zstd;
+    mr__source *s;
+    mr__error err;
+    mr_status st;
+    if (size < 2) return 0;
+    if (fd < 0) {
+        fd = memfd_create("millrace-fuzz-zstd", 0);
+        out = malloc(OUT_CAP);
+        want = malloc(OUT_CAP);
+        if (fd < 0 || out == NULL || want == NULL) abort();
+        snprintf(path, sizeof path, "/proc/self/fd/%d", fd);
+    }
+    n = size - 2;
+    room = 1 + 13 * (size_t)data[1];
+    put_file(fd, in, n);
+    mr__error_clear(&err);
+    if (mr__source_open(&s, path, "in.zst", 16 + 7 * (size_t)data[0], -1, &err) != MR_OK) fail("cannot open", err.msg);
+    st = read_all(s, out, room, &nout, &capped, &err);
+    zstd = mr__source_is_zstd(s);
+    if (st != MR_OK && st != MR_ERR_FORMAT) fail("a read gave a status other than OK or malformed input", err.msg);
+    if (st != MR_OK && (err.status != st || strstr(err.msg, "in.zst") == NULL)) fail("the message does not name the input", err.msg);
+    if (zstd != starts_as_zstd(in, n)) fail("zstd recognised by other than its magic", "");
+    if (!capped && st == MR_OK) {
+        if (mr__source_raw_bytes(s) != n) fail("raw bytes miscounted", "");
+        if (mr__source_out_bytes(s) != nout) fail("output bytes miscounted", "");
+        if (mr__source_checksum(s) != fnv_words(in, n)) fail("checksum differs from FNV-1a over the words", "");
+    }
+    if (!zstd && (st != MR_OK || nout != n || memcmp(out, in, n) != 0))
+        fail("plain input did not come out as it went in", err.msg);
+    if (zstd && !capped) compare_with_zstd(in, n, out, nout, st, &err, want);
+    mr__source_close(s);
+    return 0;
+}
