@@ -26,9 +26,9 @@ FUZZ_CFLAGS  := $(STD) -O2 -g $(MATH) $(WARN) -ffp-contract=off -pthread -MMD -M
 FUZZ_OBJ     := $(LIB_SRC:%.c=$(FB)/%.o)
 FUZZ_BIN     := $(FUZZ_TARGETS:%=$(FB)/fuzz_%)
 # Recursive, so the probe runs only in the recipes that ask.
-FUZZ_OK = $(shell printf 'int LLVMFuzzerTestOneInput(const char *d, unsigned long n) { (void)d; (void)n; return 0; }\n' | \
-            $(FUZZ_CC) -fsanitize=fuzzer -x c - -o /dev/null 2>/dev/null && echo yes)
-FUZZ_MISSING := no clang with libFuzzer (Debian packages clang and libclang-rt-dev; `make deps` installs them)
+FUZZ_OK = $(shell mkdir -p $(FB) && printf 'int LLVMFuzzerTestOneInput(const char *d, unsigned long n) { (void)d; (void)n; return 0; }\n' | \
+            $(FUZZ_CC) -fsanitize=fuzzer -x c - -o $(FB)/probe 2>/dev/null && echo yes; rm -f $(FB)/probe)
+FUZZ_MISSING := no clang with libFuzzer (Debian packages clang and libclang-rt-dev, which make deps installs)
 
 .PHONY: fuzz fuzz-build fuzz-check
 
