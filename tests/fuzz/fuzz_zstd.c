@@ -127,8 +127,10 @@ static void compare_with_whole(const uint8_t *in, size_t n, const char *out, siz
     whole = decode_whole(ds, in, n, want, &nwant);
     if (whole == WHOLE_CAPPED) return;
     if (whole != WHOLE_OK) {
+        /* Which failure is not compared: zstd's decoder of its legacy
+         * frames (magic 0xFD2FB527, accepted after a first frame) can call
+         * the same bytes corrupt or unfinished depending on how they are fed. */
         if (st == MR_OK) fail(whole == WHOLE_ERROR ? "the source read a stream zstd rejects" : "the source read a truncated stream", "");
-        if (whole == WHOLE_TRUNCATED && strstr(err->msg, "truncated") == NULL) fail("a truncated stream not called truncated", err->msg);
         return;
     }
     if (st != MR_OK) fail("the source failed on a stream zstd reads", err->msg);
