@@ -53,9 +53,11 @@ DEBIAN_PACKAGES := build-essential pkg-config libzstd-dev zlib1g-dev libopenblas
 # What only the tests add (make test-deps, make check): oracles, checkers,
 # tools; groff-base renders the man page, gfortran gives the -lgfortran that
 # openblas.pc names for a static link (tests/cli/install.sh), chromium shows
-# the HTML page in a browser (tests/cli/html_browser.sh).
+# the HTML page in a browser (tests/cli/html_browser.sh), clang and its
+# runtime build the libFuzzer targets (make fuzz-check).
 TEST_PACKAGES := zstd gzip check libsubunit-dev python3 python3-numpy python3-scipy \
-                 python3-statsmodels r-base-core valgrind time groff-base gfortran chromium
+                 python3-statsmodels r-base-core valgrind time groff-base gfortran chromium \
+                 clang libclang-rt-dev
 
 ifeq ($(V),1)
 Q :=
@@ -217,9 +219,10 @@ lint:
 check: test-deps
 	@$(MAKE) --no-print-directory check-groups
 
-check-groups: lint unit cli-check ref-check asan-check tsan-check alloc-check io-fault-check valgrind-check
-	@echo "test groups: lint, unit, cli, reference, asan+ubsan, tsan, allocation failures, I/O failures, valgrind"
-	@echo "check: 9 passed, 0 failed"
+check-groups: lint unit cli-check ref-check asan-check tsan-check alloc-check io-fault-check valgrind-check fuzz-check
+	@echo "test groups: lint, unit, cli, reference, asan+ubsan, tsan, allocation failures, I/O failures, valgrind, fuzz"
+	@if [ -f $(B)/fuzz/skipped ]; then echo "fuzz skipped: no clang"; echo "check: 9 passed, 0 failed, 1 skipped"; \
+	else echo "check: 10 passed, 0 failed"; fi
 
 # ---- benchmarks (never a test) ------------------------------------------------
 bench: all
@@ -229,5 +232,6 @@ clean:
 	rm -rf $(B)
 
 include mk/install.mk
+include mk/fuzz.mk
 
 -include $(LIB_OBJ:.o=.d) $(ASAN_OBJ:.o=.d) $(TSAN_OBJ:.o=.d) $(ALLOC_OBJ:.o=.d) $(IOFAIL_OBJ:.o=.d) $(B)/src/cli/main.d

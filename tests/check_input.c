@@ -782,21 +782,31 @@ END_TEST
 START_TEST(test_fields_trimming_and_cr)
 {
     /* Source of truth: fields.h (unquoted fields lose leading and trailing
-     * blanks in both tokenizers; a quoted field keeps them) and RFC 4180
-     * 2.1 (CRLF ends the record, so no field ends in CR). */
+     * blanks in both tokenizers, a carriage return being one; a quoted
+     * field keeps them) and RFC 4180 2.1 (CRLF ends the record, so no field
+     * ends in CR).  A lone CR beside a cell was once a record end to libcsv
+     * only (fuzz_rowsplit found it): the same row then gave other fields in
+     * a chunk with a quote somewhere. */
     static const csv_case comma[] = {
         {"  a  , b ,c\t\n", "a" US "b" US "c" RS},
         {"a b , c d\r\n", "a b" US "c d" RS},
         {" , \n", "" US "" RS},
         {"x,y\r", "x" US "y" RS},
+        {"1\r,2\n", "1" US "2" RS},
+        {"a\r\r\n", "a" RS},
+        {"\r x \r,\ry\r\n3,4\n", "x" US "y" RS "3" US "4" RS},
+        {"a\rb,c\n", "a\rb" US "c" RS},
     };
     static const csv_case quoted[] = {
         {"\" a \",b \n", " a " US "b" RS},
         {"  \"q\",  r  \r\n", "q" US "r" RS},
+        {"\"q\"\r,r\r\r\n", "q" US "r" RS},
+        {"\"a\rb\",c\r\n", "a\rb" US "c" RS},
     };
-    /* With a tab delimiter only spaces are blanks. */
+    /* With a tab delimiter only spaces (and CRs) are blanks. */
     static const csv_case tab[] = {
         {"  a \t b  \t\n", "a" US "b" US "" RS},
+        {"a\r\tb\r\r\n", "a" US "b" RS},
     };
     expect_fields(comma, sizeof comma / sizeof comma[0], ',');
     expect_fields(quoted, sizeof quoted / sizeof quoted[0], ',');

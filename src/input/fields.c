@@ -3,15 +3,20 @@
 #include "common/alloc.h"
 #include "input/fields.h"
 
-static int is_space_only(unsigned char c) { return c == ' '; }
+/* fields.h's blanks: trimmed from unquoted fields (a tab only when it is
+ * not the delimiter), and a carriage return is one of them, not a record
+ * end, as for the plain splitter. */
+static int is_blank_or_tab(unsigned char c) { return c == ' ' || c == '\r' || c == '\t'; }
+static int is_blank_not_tab(unsigned char c) { return c == ' ' || c == '\r'; }
+static int is_line_feed(unsigned char c) { return c == '\n'; }
 
 mr_status mr__tokenizer_init(mr__tokenizer *t, char delim, mr__error *err)
 {
     if (csv_init(&t->csv, CSV_STRICT | CSV_STRICT_FINI) != 0)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     csv_set_delim(&t->csv, (unsigned char)delim);
-    /* A tab delimiter cannot also be a blank to trim. */
-    if (delim == '\t') csv_set_space_func(&t->csv, is_space_only);
+    csv_set_space_func(&t->csv, delim == '\t' ? is_blank_not_tab : is_blank_or_tab);
+    csv_set_term_func(&t->csv, is_line_feed);
     t->delim = delim;
     t->ready = 1;
     return MR_OK;

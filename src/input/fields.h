@@ -3,7 +3,10 @@
  * Two tokenizers give the same fields: a plain splitter for chunks with no
  * quote character (the common case, and much faster), and libcsv for
  * everything else (RFC 4180 quoting, embedded delimiters and newlines).
- * Unquoted fields lose leading and trailing blanks in both. */
+ * Unquoted fields lose leading and trailing blanks in both.  Only a line
+ * feed ends a row (as it does for the row splitter); a carriage return
+ * elsewhere is a blank, so "1\r,2" is the fields 1 and 2 whichever
+ * tokenizer its chunk gets. */
 #ifndef MR_FIELDS_H
 #define MR_FIELDS_H
 
@@ -47,12 +50,14 @@ void mr__tokenizer_release(mr__tokenizer *t);
  * Inline so that a caller passing its own callbacks gets them inlined
  * (decode.c does, for the hot path).  Cells are short, so a byte loop
  * beats memchr's call; cells nobody wants are only counted. */
-static inline int mr__is_blank(char c, char delim) { return c == ' ' || (c == '\t' && delim != '\t'); }
+static inline int mr__is_blank(char c, char delim) { return c == ' ' || c == '\r' || (c == '\t' && delim != '\t'); }
 
 static inline void mr__plain_row(const char *s, const char *e, char delim, const mr__field_sink *sink, uint32_t r)
 {
     size_t k = 0;
     if (e > s && e[-1] == '\n') e--;
+    /* a blank, but cut here the last cell of a CRLF row can be offered to
+     * the quick path, which takes no blanks */
     if (e > s && e[-1] == '\r') e--;
     for (;;) {
         const char *d, *fs = s, *fe;
