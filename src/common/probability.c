@@ -229,6 +229,26 @@ static double integrand_scale(double slope, double curvature)
     return 1.0 / (fabs(slope) + sqrt(fabs(curvature)));
 }
 
+/* One step of the modified Lentz method for a continued fraction
+ * b0 + a1/(b1 + a2/(b2 + ...)): the term a/b folded into c and d, the
+ * value f multiplied by the step's factor.  Returns 1 once that factor is
+ * 1 to the last bit (the fraction has converged). */
+static int lentz_step(double a, double b, double *c, double *d, double *f)
+{
+    const double tiny = 1e-300;
+    double delta;
+    *d = b + a * *d;
+    *c = b + a / *c;
+    if (fabs(*d) < tiny)
+        *d = tiny;
+    if (fabs(*c) < tiny)
+        *c = tiny;
+    *d = 1.0 / *d;
+    delta = *c * *d;
+    *f *= delta;
+    return fabs(delta - 1.0) <= DBL_EPSILON;
+}
+
 /* ------------------------------------------------------------------ */
 /* Regularized incomplete beta                                          */
 
@@ -238,7 +258,6 @@ static double integrand_scale(double slope, double curvature)
  * Converges fast for x < (a+1)/(a+b+2). */
 static double beta_cf(double a, double b, double x)
 {
-    const double tiny = 1e-300;
     double f = 1.0, c = 1.0, d = 0.0;
     for (long j = 1; j <= MAX_TERMS; j++) {
         double m = (double)(j / 2), coef;
@@ -246,16 +265,7 @@ static double beta_cf(double a, double b, double x)
             coef = -(a + m) * (a + b + m) * x / ((a + 2 * m) * (a + 2 * m + 1));
         else
             coef = m * (b - m) * x / ((a + 2 * m - 1) * (a + 2 * m));
-        d = 1.0 + coef * d;
-        c = 1.0 + coef / c;
-        if (fabs(d) < tiny)
-            d = tiny;
-        if (fabs(c) < tiny)
-            c = tiny;
-        d = 1.0 / d;
-        double delta = c * d;
-        f *= delta;
-        if (fabs(delta - 1.0) <= DBL_EPSILON)
+        if (lentz_step(coef, 1.0, &c, &d, &f))
             break;
     }
     return f;
@@ -519,18 +529,8 @@ static double gamma_q_cf(double a, double x)
     double b = x + 1.0 - a;
     double c = 1.0 / tiny, d = 1.0 / b, f = d;
     for (long n = 1; n <= MAX_TERMS; n++) {
-        double an = -n * (n - a);
         b += 2.0;
-        d = an * d + b;
-        c = b + an / c;
-        if (fabs(d) < tiny)
-            d = tiny;
-        if (fabs(c) < tiny)
-            c = tiny;
-        d = 1.0 / d;
-        double delta = c * d;
-        f *= delta;
-        if (fabs(delta - 1.0) <= DBL_EPSILON)
+        if (lentz_step(-n * (n - a), b, &c, &d, &f))
             break;
     }
     return exp(log_gamma_front(a, x)) * f;
