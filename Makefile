@@ -55,7 +55,7 @@ DEBIAN_PACKAGES := build-essential pkg-config libzstd-dev zlib1g-dev libopenblas
 # openblas.pc names for a static link (tests/cli/install.sh), chromium shows
 # the HTML page in a browser (tests/cli/html_browser.sh).
 TEST_PACKAGES := zstd gzip check libsubunit-dev python3 python3-numpy python3-scipy \
-                 python3-statsmodels r-base-core valgrind time groff-base gfortran chromium
+                 python3-statsmodels r-base-core r-cran-mass valgrind time groff-base gfortran chromium
 
 ifeq ($(V),1)
 Q :=

@@ -56,9 +56,11 @@ static void section_data(mr__strbuf *b, const mr_fit *f)
 static void section_model(mr__strbuf *b, const mr_fit *f)
 {
     size_t i;
-    mr__strbuf_printf(b, "model      %s family, %s link, %zu coefficients (rank %zu)%s\n",
-                      mr__family_name((mr_family)f->family), mr__link_name((mr_link)f->link), f->p, f->rank,
-                      f->intercept ? "" : ", no intercept");
+    const char *param = mr__fit_family_param_name(f);
+    mr__strbuf_printf(b, "model      %s family", mr__family_name((mr_family)f->family));
+    if (param != NULL) mr__strbuf_printf(b, " (%s %.15g, fixed)", param, f->family_param);
+    mr__strbuf_printf(b, ", %s link, %zu coefficients (rank %zu)%s\n", mr__link_name((mr_link)f->link), f->p,
+                      f->rank, f->intercept ? "" : ", no intercept");
     mr__strbuf_printf(b, "           outcome %s", f->outcome);
     if (f->trials) mr__strbuf_printf(b, " out of %s trials", f->trials);
     if (f->exposure) mr__strbuf_printf(b, ", exposure log(%s)", f->exposure);
