@@ -107,6 +107,10 @@ MR_API const char *mr_strerror(mr_status status);
  *   negative-binomial log, identity, sqrt (a fixed theta: the family's
  *                     line reads "family negative-binomial theta=2";
  *                     V(mu) = mu + mu^2/theta, dispersion fixed at 1)
+ *   tweedie           log (a fixed power 1 < p < 2: "family tweedie
+ *                     power=1.5"; V(mu) = mu^p, outcome >= 0, dispersion
+ *                     estimated; no log-likelihood: MR_STAT_LOG_LIKELIHOOD,
+ *                     MR_STAT_AIC and MR_STAT_BIC are NaN)
  * A family with a parameter of its own needs it on its line
  * (mr_fitter_model_line: MR_ERR_USAGE without it or out of range);
  * mr_fit_stat(fit, MR_STAT_FAMILY_PARAMETER) gives it back.           */
@@ -117,7 +121,8 @@ typedef enum mr_family {
     MR_POISSON = 2,
     MR_GAMMA = 3,
     MR_INVERSE_GAUSSIAN = 4,
-    MR_NEGATIVE_BINOMIAL = 5
+    MR_NEGATIVE_BINOMIAL = 5,
+    MR_TWEEDIE = 6
 } mr_family;
 
 typedef enum mr_link {
@@ -351,8 +356,8 @@ typedef enum mr_stat {
     MR_STAT_RANK = 15,
     MR_STAT_LEVEL = 16,      /* confidence level of the intervals            */
     MR_STAT_FAMILY_PARAMETER = 17 /* the family's own parameter: a negative
-                                binomial's theta; NaN for a family without
-                                one                                         */
+                                binomial's theta, a Tweedie power; NaN for a
+                                family without one                          */
 } mr_stat;
 /* A fit statistic; NaN for an unknown `which`. */
 MR_API double mr_fit_stat(const mr_fit *fit, mr_stat which);

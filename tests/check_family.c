@@ -28,7 +28,7 @@ static const mr_link LINKS[] = {MR_IDENTITY, MR_LOGIT,   MR_PROBIT, MR_CLOGLOG,
 
 /* Every family the registry holds: those frozen in family_reference.h,
  * then those with a parameter of their own. */
-enum { N_REGISTERED = MR_NEGATIVE_BINOMIAL + 1 };
+enum { N_REGISTERED = MR_TWEEDIE + 1 };
 
 static const mr__family_ops *fam(mr_family f) { return mr__family_ops_of(f); }
 static const mr__link_ops *lnk(mr_link l) { return mr__link_ops_of(l); }
@@ -97,6 +97,7 @@ static const pair_spec PAIRS[] = {
     {MR_GAMMA, {MR_INVERSE, MR_IDENTITY, MR_LOG}, 3},
     {MR_INVERSE_GAUSSIAN, {MR_INVERSE_SQUARED, MR_INVERSE, MR_IDENTITY, MR_LOG}, 4},
     {MR_NEGATIVE_BINOMIAL, {MR_LOG, MR_IDENTITY, MR_SQRT}, 3},
+    {MR_TWEEDIE, {MR_LOG}, 1},
 };
 
 /* Means spread over the whole range, including 1e-12 and 1 - 1e-10 for the
@@ -129,6 +130,7 @@ static int in_family_range(mr_family f, double mu)
     case MR_BINOMIAL: return mu > 0.0 && mu < 1.0;
     case MR_POISSON:
     case MR_NEGATIVE_BINOMIAL:
+    case MR_TWEEDIE:
     case MR_GAMMA:
     case MR_INVERSE_GAUSSIAN: return mu > 0.0;
     }
@@ -315,7 +317,8 @@ static int y_in_support(mr_family f, double y)
     case MR_GAUSSIAN: return 1;
     case MR_BINOMIAL: return y >= 0.0 && y <= 1.0;
     case MR_POISSON:
-    case MR_NEGATIVE_BINOMIAL: return y >= 0.0;
+    case MR_NEGATIVE_BINOMIAL:
+    case MR_TWEEDIE: return y >= 0.0;
     case MR_GAMMA:
     case MR_INVERSE_GAUSSIAN: return y > 0.0;
     }
@@ -823,24 +826,62 @@ END_TEST
  * outcome plus twice sum w h(y) - a h(ybar), whatever the mean; the
  * log-likelihood's data-only terms are summed row by row in the first
  * pass, so they need no such identity. */
-START_TEST(negative_binomial_patterns_exact)
+static void pattern_identity(const mr__family *x)
 {
-    static const double y[] = {0, 0, 1, 3, 4, 9, 17}, w[] = {1, 2.5, 1, 1, 0.5, 1, 3};
+    static const double y[] = {0, 0, 1, 3, 4.25, 9, 17}, w[] = {1, 2.5, 1, 1, 0.5, 1, 3};
+    double a = 0, b = 0, hsum = 0;
+    for (size_t i = 0; i < N_OF(y); i++) {
+        a += w[i];
+        b += w[i] * y[i];
+        hsum += w[i] * x->ops->saturated_term(x, y[i]);
+    }
+    for (size_t j = 0; j < N_OF(NB_MU); j++) {
+        double mu = NB_MU[j], rows = 0, var, pattern;
+        for (size_t i = 0; i < N_OF(y); i++) rows += w[i] * kernel1(x, y[i], mu, &var);
+        pattern = a * kernel1(x, b / a, mu, &var) + 2 * (hsum - a * x->ops->saturated_term(x, b / a));
+        ck_assert_msg(fabs(rows - pattern) <= 1e-11 * rows, "%s %g mu %g: %.17g vs %.17g", x->ops->name, x->param,
+                      mu, rows, pattern);
+    }
+}
+
+START_TEST(patterns_exact)
+{
+    static const double powers[] = {1.01, 1.3, 1.5, 1.99};
     for (size_t t = 0; t < N_OF(NB_THETA); t++) {
         mr__family x = with_param(MR_NEGATIVE_BINOMIAL, NB_THETA[t]);
-        double a = 0, b = 0, hsum = 0;
-        for (size_t i = 0; i < N_OF(y); i++) {
-            a += w[i];
-            b += w[i] * y[i];
-            hsum += w[i] * x.ops->saturated_term(&x, y[i]);
+        pattern_identity(&x);
+    }
+    for (size_t t = 0; t < N_OF(powers); t++) {
+        mr__family x = with_param(MR_TWEEDIE, powers[t]);
+        pattern_identity(&x);
+    }
+}
+END_TEST
+
+/* The unit deviance's definition, 2 int_mu^y (y - t)/V(t) dt: 0 at
+ * mu = y, and d/dmu d(y, mu) = -2 (y - mu)/V(mu) (a central difference);
+ * at y = 0 the integral is 2 mu^(2-p)/(2-p). */
+START_TEST(tweedie_deviance_definition)
+{
+    static const double powers[] = {1.01, 1.3, 1.5, 1.99}, ys[] = {0.0, 0.3, 1.0, 2.5, 40.0};
+    for (size_t t = 0; t < N_OF(powers); t++) {
+        double p = powers[t];
+        mr__family x = with_param(MR_TWEEDIE, p);
+        for (size_t i = 0; i < N_OF(ys); i++) {
+            double y = ys[i], var;
+            ck_assert(y == 0 || kernel1(&x, y, y, &var) <= 1e-13 * y);
+            for (size_t j = 0; j < N_OF(NB_MU); j++) {
+                double mu = NB_MU[j], h = 1e-5 * mu, v2;
+                double slope = (kernel1(&x, y, mu + h, &var) - kernel1(&x, y, mu - h, &var)) / (2 * h);
+                double d = kernel1(&x, y, mu, &v2);
+                ck_assert_double_eq_tol(v2, pow(mu, p), 1e-15 * v2);
+                ck_assert_msg(fabs(slope + 2 * (y - mu) / v2) <= 1e-6 * fmax(1, fabs(slope)), "p %g d'(%g, %g) %g", p,
+                              y, mu, slope);
+                if (y == 0) ck_assert_double_eq_tol(d, 2 * pow(mu, 2 - p) / (2 - p), 1e-14 * d);
+            }
         }
-        for (size_t j = 0; j < N_OF(NB_MU); j++) {
-            double mu = NB_MU[j], rows = 0, var, pattern;
-            for (size_t i = 0; i < N_OF(y); i++) rows += w[i] * kernel1(&x, y[i], mu, &var);
-            pattern = a * kernel1(&x, b / a, mu, &var) + 2 * (hsum - a * x.ops->saturated_term(&x, b / a));
-            ck_assert_msg(fabs(rows - pattern) <= 1e-11 * rows, "theta %g mu %g: %.17g vs %.17g", NB_THETA[t], mu,
-                          rows, pattern);
-        }
+        /* no closed-form density: the log-likelihood is NaN, not a number that is not one */
+        ck_assert(isnan(x.ops->loglik(&x, 10.0, x.ops->loglik_row(&x, 1.0, 1.0, 1.0, 0), 5, 5)));
     }
 }
 END_TEST
@@ -854,6 +895,33 @@ static mr_status parse_word(mr_family f, const char *word, double *v, char *msg,
     mr__error_export(&err, msg, cap);
     return st;
 }
+
+START_TEST(tweedie_parameter)
+{
+    static const struct {
+        const char *word, *says;
+    } bad[] = {{"power=1", "strictly between 1 and 2, got '1'"}, {"power=2", "strictly between 1 and 2"},
+               {"power=0.5", "strictly between 1 and 2"},        {"power=3", "strictly between 1 and 2"},
+               {"power=x", "power takes a number"},              {"theta=1.5", "takes power=VALUE"}};
+    const mr__family_ops *o = mr__family_ops_of(MR_TWEEDIE);
+    char msg[256];
+    double v = 0;
+    ck_assert_str_eq(o->name, "tweedie");
+    ck_assert_str_eq(o->param_name, "power");
+    ck_assert_int_eq(mr__family_from_name("tweedie"), MR_TWEEDIE);
+    ck_assert_int_eq(o->dispersion_estimated, 1);
+    ck_assert_int_eq(o->log_offset_patterns, 0);
+    ck_assert_int_eq(mr__canonical_link(MR_TWEEDIE), MR_LOG);
+    ck_assert_ptr_null(mr__outcome_problem(&o->outcome, 0.0));
+    ck_assert_ptr_nonnull(mr__outcome_problem(&o->outcome, -0.5));
+    ck_assert_int_eq(parse_word(MR_TWEEDIE, "power=1.5", &v, msg, sizeof msg), MR_OK);
+    ck_assert(v == 1.5);
+    for (size_t i = 0; i < N_OF(bad); i++) {
+        ck_assert_int_eq(parse_word(MR_TWEEDIE, bad[i].word, &v, msg, sizeof msg), MR_ERR_USAGE);
+        ck_assert_msg(strstr(msg, bad[i].says) != NULL, "%s: '%s'", bad[i].word, msg);
+    }
+}
+END_TEST
 
 START_TEST(negative_binomial_parameter)
 {
@@ -921,7 +989,9 @@ static Suite *family_suite(void)
     suite_add_tcase(s, before);
     TCase *param = tcase_create("with a parameter");
     tcase_add_test(param, negative_binomial_against_density);
-    tcase_add_test(param, negative_binomial_patterns_exact);
+    tcase_add_test(param, patterns_exact);
+    tcase_add_test(param, tweedie_deviance_definition);
+    tcase_add_test(param, tweedie_parameter);
     tcase_add_test(param, negative_binomial_parameter);
     suite_add_tcase(s, param);
     return s;

@@ -292,6 +292,7 @@ START_TEST(round_trip_family_parameter)
     static const char *const lines[] = {"outcome y", "family negative-binomial theta=2.5", "factor g", "numeric x"};
     const char *data = in_dir("nb.csv");
     const char *csv = "y,g,x\n0,a,1\n3,b,2\n1,a,3\n7,b,1\n2,c,2\n0,c,5\n4,a,4\n9,b,3\n1,c,1\n";
+    const char *lines2[] = {"outcome y", NULL, "factor g", "numeric x"};
     char msg[512], *text;
     mr_fit *fit;
     spit(data, csv, strlen(csv));
@@ -303,6 +304,10 @@ START_TEST(round_trip_family_parameter)
     ck_assert_ptr_nonnull(strstr(text, "\"name\": \"theta\",\n   \"value\": 2.5\n"));
     free(text);
     round_trip(fit, "negative binomial");
+    lines2[1] = "family tweedie power=1.25"; /* no log-likelihood: null, read back as NaN */
+    fit = fit_with(NULL, lines2, sizeof lines2 / sizeof lines2[0], in_dir("nb.csv"), 0);
+    ck_assert(isnan(mr_fit_stat(fit, MR_STAT_LOG_LIKELIHOOD)) && mr_fit_stat(fit, MR_STAT_FAMILY_PARAMETER) == 1.25);
+    round_trip(fit, "tweedie");
 }
 END_TEST
 

@@ -15,7 +15,8 @@
     X(MR_POISSON, mr__poisson_family)                                                               \
     X(MR_GAMMA, mr__gamma_family)                                                                   \
     X(MR_INVERSE_GAUSSIAN, mr__inverse_gaussian_family)                                             \
-    X(MR_NEGATIVE_BINOMIAL, mr__negative_binomial_family)
+    X(MR_NEGATIVE_BINOMIAL, mr__negative_binomial_family)                                           \
+    X(MR_TWEEDIE, mr__tweedie_family)
 
 #define DECLARE(value, ops) extern const mr__family_ops ops;
 FAMILY_LIST(DECLARE)

@@ -79,6 +79,8 @@ struct mr__family_ops {
      * where it enters is the deviance-based estimate, as is usual. */
     double (*loglik_row)(const mr__family *f, double y, double w, double t, int has_trials);
     double (*loglik)(const mr__family *f, double dev, double llc, double n, double sw);
+    int no_loglik;            /* no closed-form density: loglik gives NaN,
+                                 and the report says why */
     int dispersion_estimated; /* default: 1 estimated, 0 fixed at 1 */
     int dispersion_counts;    /* the dispersion is a parameter of AIC and BIC */
 

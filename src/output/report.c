@@ -184,6 +184,12 @@ static void section_statistics(mr__strbuf *b, const mr_fit *f, int digits)
     mr__strbuf_printf(b, "  pearson chi-square  %.*g\n", digits + 2, f->pearson);
     mr__strbuf_printf(b, "  dispersion          %.*g (%s)\n", digits + 2, f->dispersion,
                       f->dispersion_estimated ? "estimated: pearson chi-square / residual df" : "fixed");
+    if (mr__family_ops_of((mr_family)f->family)->no_loglik) {
+        mr__strbuf_printf(b, "  log-likelihood      not computed: the %s density has no closed form\n",
+                          mr__family_name((mr_family)f->family));
+        mr__strbuf_printf(b, "  AIC, BIC            not computed\n");
+        return;
+    }
     mr__strbuf_printf(b, "  log-likelihood      %.*g\n", digits + 2, f->loglik);
     mr__strbuf_printf(b, "  AIC                 %.*g\n", digits + 2, f->aic);
     mr__strbuf_printf(b, "  BIC                 %.*g\n", digits + 2, f->bic);

@@ -6,7 +6,8 @@
 # covariate patterns gives the fit of the rows one by one (the negative
 # binomial's deviance is of the exponential-family form the pattern sums
 # need, and its log-likelihood's data-only terms are summed row by row in
-# the first pass) to within the convergence tolerance.
+# the first pass; the Tweedie's deviance likewise, and it has no
+# log-likelihood) to within the convergence tolerance.
 source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
 
 data="$tmp/counts.csv"
@@ -42,6 +43,13 @@ refused nb_theta_text "theta takes a number, got 'two'" -- "${base[@]}" --family
 refused nb_other_word "the negative-binomial family takes theta=VALUE, got 'power=2'" -- \
     "${base[@]}" --family "negative-binomial power=2"
 refused poisson_with_theta "'family' takes 1 value, got 2" -- "${base[@]}" --family "poisson theta=2"
+refused tweedie_no_power "the tweedie family needs its power (family tweedie power=VALUE)" -- \
+    "${base[@]}" --family tweedie
+refused tweedie_power_2 "--family: power must lie strictly between 1 and 2, got '2'" -- \
+    "${base[@]}" --family "tweedie power=2"
+refused tweedie_power_1 "power must lie strictly between 1 and 2, got '1.0'" -- "${base[@]}" --family "tweedie power=1.0"
+refused tweedie_identity "the tweedie family does not take the identity link" -- \
+    "${base[@]}" --family "tweedie power=1.5" --link identity
 printf 'outcome y\nfactor g\nfamily negative-binomial theta=0.0\n' >"$tmp/bad.model"
 refused nb_model_file "bad.model:3: theta must be > 0" -- --model "$tmp/bad.model"
 
@@ -60,14 +68,24 @@ else
     fail report_names_theta "$(grep '^model' <<<"$report")"
 fi
 
+report=$("$bin" fit "${base[@]}" --family "tweedie power=1.5" "$data" 2>&1)
+if grep -qF "model      tweedie family (power 1.5, fixed), log link" <<<"$report" &&
+    grep -qF "log-likelihood      not computed: the tweedie density has no closed form" <<<"$report"; then
+    ok report_tweedie
+else
+    fail report_tweedie "$(grep -E '^model|log-lik' <<<"$report")"
+fi
+
 # collapsed patterns (factors only) against the rows one by one
-for link in log sqrt identity; do
-    opts=(--outcome y --factor g --factor h --family "negative-binomial theta=1.5" --link "$link" --tolerance 1e-13)
+for fl in "negative-binomial theta=1.5:log" "negative-binomial theta=1.5:sqrt" "negative-binomial theta=1.5:identity" \
+    "tweedie power=1.4:log"; do
+    family=${fl%:*} link=${fl#*:}
+    opts=(--outcome y --factor g --factor h --family "$family" --link "$link" --tolerance 1e-13)
     "$bin" fit --quiet "${opts[@]}" --json "$tmp/c.json" "$data" >/dev/null 2>"$tmp/c.err" &&
         "$bin" fit --quiet "${opts[@]}" --no-collapse --json "$tmp/n.json" "$data" >/dev/null 2>>"$tmp/c.err"
     rc=$?
     if [ "$rc" -ne 0 ]; then
-        fail "collapse_$link" "exit $rc: $(head -c 300 "$tmp/c.err")"
+        fail "collapse_${family%% *}_$link" "exit $rc: $(head -c 300 "$tmp/c.err")"
         continue
     fi
     why=$(/usr/bin/python3 - "$tmp/c.json" "$tmp/n.json" <<'EOF'
@@ -82,9 +100,11 @@ if c["convergence"]["collapsed_patterns"] != 8 or n["convergence"]["collapsed_pa
 # estimates by about 1e-9 standard errors and the Pearson statistic by
 # about 1e-8: allowed 1e-7.
 for key, tol in (("deviance", 1e-10), ("null_deviance", 1e-10), ("log_likelihood", 1e-10), ("aic", 1e-10),
-                 ("pearson_chi2", 1e-7)):
+                 ("pearson_chi2", 1e-7), ("dispersion", 1e-7)):
     a, b = c["fit"][key], n["fit"][key]
-    if abs(a - b) > tol * abs(b):
+    if a is None and b is None:  # tweedie: no log-likelihood
+        continue
+    if a is None or b is None or abs(a - b) > tol * abs(b):
         problems.append("%s %r vs %r" % (key, a, b))
 for x, y in zip(c["coefficients"], n["coefficients"]):
     if abs(x["estimate"] - y["estimate"]) > 1e-7 * y["std_error"] or \
@@ -93,7 +113,7 @@ for x, y in zip(c["coefficients"], n["coefficients"]):
 print("; ".join(problems))
 EOF
     )
-    if [ -z "$why" ]; then ok "collapse_$link"; else fail "collapse_$link" "$why"; fi
+    if [ -z "$why" ]; then ok "collapse_${family%% *}_$link"; else fail "collapse_${family%% *}_$link" "$why"; fi
 done
 
 finish

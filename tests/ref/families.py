@@ -11,6 +11,13 @@ Coefficients, standard errors, deviance, null deviance, Pearson chi-square,
 log-likelihood, AIC and BIC to 1e-8 relative (the AIC counts the
 coefficients only: theta is fixed, not estimated, as in MASS's family).
 
+tweedie, power p fixed, 1 < p < 2, log link:
+  reference: statsmodels GLM, sm.families.Tweedie(var_power=p, link=log)
+Coefficients, standard errors (Pearson dispersion, statsmodels' default
+for this family), deviance, null deviance, Pearson chi-square and
+dispersion to 1e-8; the log-likelihood, AIC and BIC are null (no closed
+form).
+
 The harness (case layout, design columns, polishing, comparison) is
 compare_reference.py's.  Prints "ok <case>" / "FAIL <case>: ..." and the
 closing count; exits 1 if anything failed.
@@ -173,6 +180,73 @@ def nb_cases(rng):
     return cases
 
 
+def tweedie_statsmodels(p_power, X, y, w, off):
+    """reference: statsmodels GLM Tweedie(var_power=p, link=log), Pearson scale."""
+    family = sm.families.Tweedie(var_power=p_power, link=cr.SM_LINK["log"]())
+    kw = dict(family=family, offset=off, var_weights=w)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = cr.polished_sm_fit(sm.GLM(y, X, **kw), "X2")
+        null_dev = cr.polished_sm_fit(sm.GLM(y, np.ones((len(y), 1)), **kw), "X2").deviance
+    n, p = X.shape
+    return {"coef": np.asarray(res.params), "se": np.asarray(res.bse), "deviance": res.deviance,
+            "null_deviance": null_dev, "pearson_chi2": res.pearson_chi2, "dispersion": res.scale,
+            "df_residual": n - p, "rank": p, "n": n}
+
+
+def check_tweedie(case, p_power, tmp, collapsed):
+    js = cr.millrace_for_case(case, tmp)
+    names = [c["name"] for c in js["coefficients"]]
+    problems = []
+    if not js["convergence"]["converged"]:
+        problems.append("not converged")
+    if js["model"].get("family_parameter") != {"name": "power", "value": p_power}:
+        problems.append("family_parameter %r" % js["model"].get("family_parameter"))
+    if (js["convergence"]["collapsed_patterns"] is not None) != collapsed:
+        problems.append("collapsed_patterns %r" % js["convergence"]["collapsed_patterns"])
+    for key in ("log_likelihood", "aic", "bic"):
+        if js["fit"][key] is not None:
+            problems.append("%s %r, expected null" % (key, js["fit"][key]))
+    if js.get("statistic") != "t":
+        problems.append("statistic %r" % js.get("statistic"))
+    _, X, y, w, off, _ = cr.reference_inputs(case, names)
+    got = cr.millrace_values(js, names)
+    ref = tweedie_statsmodels(p_power, X, y, w, off)
+    problems += cr.compare("vs statsmodels:", got, ref, names, cr.REL_TOL, cr.SE_ALLOW_NONCANONICAL)
+    return problems
+
+
+def tweedie_draw(rng, mu, p, phi):
+    """Compound Poisson-gamma with mean mu, variance phi mu^p."""
+    lam = mu ** (2 - p) / (phi * (2 - p))
+    shape = (2 - p) / (p - 1)
+    scale = phi * (p - 1) * mu ** (p - 1)
+    count = rng.poisson(lam)
+    y = np.where(count > 0, rng.gamma(np.maximum(count, 1) * shape, scale), 0.0)
+    return np.round(y, 6)
+
+
+def tweedie_cases(rng):
+    ind = cr.ind
+    cases = []
+    n = 1500
+    d = cr.sim_common(rng, n, year=False)
+    d["py"] = np.round(rng.uniform(0.5, 2.0, n), 3)
+    mu = d["py"] * np.exp(1.0 + 0.4 * ind(d["sex"], "M") - 0.3 * ind(d["region"], "R03") + 0.2 * d["x1"])
+    d["y"] = tweedie_draw(rng, mu, 1.5, 2.0)
+    cases.append((cr.Case("tweedie_log_exposure", "tweedie power=1.5", "log", d, "y",
+                          factors=[("sex", None), ("region", None)], numerics=["x1"], exposure="py"),
+                  1.5, False))
+    n = 1500
+    d = cr.sim_common(rng, n, year=False)
+    mu = np.exp(0.5 + 0.6 * ind(d["age_band"], "45-49") + 0.2 * ind(d["sex"], "F"))
+    d["y"] = tweedie_draw(rng, mu, 1.3, 1.0)
+    d["w"] = rng.choice([1.0, 2.0, 0.5], n)
+    cases.append((cr.Case("tweedie_patterns_weighted", "tweedie power=1.3", "log", d, "y",
+                          factors=[("age_band", None), ("sex", None)], weight="w"), 1.3, True))
+    return cases
+
+
 def main():
     if not os.access(cr.MILLRACE, os.X_OK):
         print("FAIL setup: %s not found (run make first)" % cr.MILLRACE)
@@ -186,6 +260,8 @@ def main():
     try:
         checks = [(c.name, (lambda c=c, t=t, col=col: check_nb(c, t, tmp, with_r, col)))
                   for c, t, col in nb_cases(rng)]
+        checks += [(c.name, (lambda c=c, t=t, col=col: check_tweedie(c, t, tmp, col)))
+                   for c, t, col in tweedie_cases(rng)]
         return cr.run_checks(checks)
     finally:
         shutil.rmtree(tmp, ignore_errors=True)
