@@ -886,26 +886,35 @@ START_TEST(tweedie_deviance_definition)
 }
 END_TEST
 
-static mr_status parse_word(mr_family f, const char *word, double *v, char *msg, size_t cap)
+typedef struct word_case {
+    const char *word, *says;
+} word_case;
+
+/* `good` reads as `want`; each of bad[] is MR_ERR_USAGE with its message,
+ * which begins with the line's origin. */
+static void check_parameter_words(mr_family f, const char *good, double want, const word_case *bad, size_t nbad)
 {
+    char msg[256];
+    double v = 0;
     mr__error err;
-    mr_status st;
     mr__error_clear(&err);
-    st = mr__family_ops_of(f)->parse_param(v, word, "m:1", &err);
-    mr__error_export(&err, msg, cap);
-    return st;
+    ck_assert_int_eq(mr__family_ops_of(f)->parse_param(&v, good, "m:1", &err), MR_OK);
+    ck_assert(v == want);
+    for (size_t i = 0; i < nbad; i++) {
+        mr__error_clear(&err);
+        ck_assert_int_eq(mr__family_ops_of(f)->parse_param(&v, bad[i].word, "m:1", &err), MR_ERR_USAGE);
+        mr__error_export(&err, msg, sizeof msg);
+        ck_assert_msg(strstr(msg, bad[i].says) != NULL && strncmp(msg, "m:1: ", 5) == 0, "%s: '%s'", bad[i].word,
+                      msg);
+    }
 }
 
 START_TEST(tweedie_parameter)
 {
-    static const struct {
-        const char *word, *says;
-    } bad[] = {{"power=1", "strictly between 1 and 2, got '1'"}, {"power=2", "strictly between 1 and 2"},
+    static const word_case bad[] = {{"power=1", "strictly between 1 and 2, got '1'"}, {"power=2", "strictly between 1 and 2"},
                {"power=0.5", "strictly between 1 and 2"},        {"power=3", "strictly between 1 and 2"},
                {"power=x", "power takes a number"},              {"theta=1.5", "takes power=VALUE"}};
     const mr__family_ops *o = mr__family_ops_of(MR_TWEEDIE);
-    char msg[256];
-    double v = 0;
     ck_assert_str_eq(o->name, "tweedie");
     ck_assert_str_eq(o->param_name, "power");
     ck_assert_int_eq(mr__family_from_name("tweedie"), MR_TWEEDIE);
@@ -914,26 +923,17 @@ START_TEST(tweedie_parameter)
     ck_assert_int_eq(mr__canonical_link(MR_TWEEDIE), MR_LOG);
     ck_assert_ptr_null(mr__outcome_problem(&o->outcome, 0.0));
     ck_assert_ptr_nonnull(mr__outcome_problem(&o->outcome, -0.5));
-    ck_assert_int_eq(parse_word(MR_TWEEDIE, "power=1.5", &v, msg, sizeof msg), MR_OK);
-    ck_assert(v == 1.5);
-    for (size_t i = 0; i < N_OF(bad); i++) {
-        ck_assert_int_eq(parse_word(MR_TWEEDIE, bad[i].word, &v, msg, sizeof msg), MR_ERR_USAGE);
-        ck_assert_msg(strstr(msg, bad[i].says) != NULL, "%s: '%s'", bad[i].word, msg);
-    }
+    check_parameter_words(MR_TWEEDIE, "power=1.5", 1.5, bad, N_OF(bad));
 }
 END_TEST
 
 START_TEST(negative_binomial_parameter)
 {
-    static const struct {
-        const char *word, *says;
-    } bad[] = {{"theta=0", "theta must be > 0"},     {"theta=-2", "theta must be > 0"},
+    static const word_case bad[] = {{"theta=0", "theta must be > 0"},     {"theta=-2", "theta must be > 0"},
                {"theta=", "theta takes a number"},    {"theta=2x", "theta takes a number"},
                {"theta=nan", "theta takes a number"}, {"power=2", "takes theta=VALUE"},
                {"theta", "takes theta=VALUE"}};
     const mr__family_ops *o = mr__family_ops_of(MR_NEGATIVE_BINOMIAL);
-    char msg[256];
-    double v = 0;
     ck_assert_str_eq(o->name, "negative-binomial");
     ck_assert_str_eq(o->param_name, "theta");
     ck_assert_int_eq(mr__family_from_name("negative-binomial"), MR_NEGATIVE_BINOMIAL);
@@ -943,15 +943,8 @@ START_TEST(negative_binomial_parameter)
     ck_assert_int_eq(mr__canonical_link(MR_NEGATIVE_BINOMIAL), MR_LOG);
     ck_assert(mr__link_allowed(MR_NEGATIVE_BINOMIAL, MR_IDENTITY) && mr__link_allowed(MR_NEGATIVE_BINOMIAL, MR_SQRT));
     ck_assert(!mr__link_allowed(MR_NEGATIVE_BINOMIAL, MR_LOGIT));
-    ck_assert_int_eq(parse_word(MR_NEGATIVE_BINOMIAL, "theta=2.5", &v, msg, sizeof msg), MR_OK);
-    ck_assert(v == 2.5);
-    ck_assert_int_eq(parse_word(MR_NEGATIVE_BINOMIAL, "theta=1e-3", &v, msg, sizeof msg), MR_OK);
-    ck_assert(v == 1e-3);
-    for (size_t i = 0; i < N_OF(bad); i++) {
-        ck_assert_int_eq(parse_word(MR_NEGATIVE_BINOMIAL, bad[i].word, &v, msg, sizeof msg), MR_ERR_USAGE);
-        ck_assert_msg(strstr(msg, bad[i].says) != NULL && strncmp(msg, "m:1: ", 5) == 0, "%s: '%s'", bad[i].word,
-                      msg);
-    }
+    check_parameter_words(MR_NEGATIVE_BINOMIAL, "theta=2.5", 2.5, bad, N_OF(bad));
+    check_parameter_words(MR_NEGATIVE_BINOMIAL, "theta=1e-3", 1e-3, bad, 0);
 }
 END_TEST
 

@@ -68,6 +68,17 @@ else
     fail report_names_theta "$(grep '^model' <<<"$report")"
 fi
 
+# fits of different theta are fits of different models
+"$bin" fit --quiet "${base[@]}" --family "negative-binomial theta=2" --json "$tmp/t2.json" "$data" >/dev/null &&
+    "$bin" fit --quiet "${base[@]}" --family "negative-binomial theta=3" --json "$tmp/t3.json" "$data" >/dev/null
+"$bin" drift "$tmp/t2.json" "$tmp/t3.json" >/dev/null 2>"$tmp/drift.err"
+rc=$?
+if [ "$rc" -eq 2 ] && grep -qF "different models: theta '2' in the old, '3' in the new" "$tmp/drift.err"; then
+    ok drift_refuses_other_theta
+else
+    fail drift_refuses_other_theta "exit $rc: $(head -c 300 "$tmp/drift.err")"
+fi
+
 report=$("$bin" fit "${base[@]}" --family "tweedie power=1.5" "$data" 2>&1)
 if grep -qF "model      tweedie family (power 1.5, fixed), log link" <<<"$report" &&
     grep -qF "log-likelihood      not computed: the tweedie density has no closed form" <<<"$report"; then

@@ -105,20 +105,7 @@ def nb_r(theta, link, X, y, w, off, tmp):
     prog = os.path.join(tmp, "nb_reference.R")
     with open(prog, "w") as fh:
         fh.write(NB_R_PROGRAM)
-    proc = subprocess.run([cr.RSCRIPT, "--vanilla", prog, rdir, str(n), str(p), repr(theta), link],
-                          capture_output=True, text=True, timeout=120)
-    if proc.returncode != 0:
-        raise RuntimeError("Rscript failed: " + proc.stderr.strip()[-500:])
-    coef, se, out = [], [], {}
-    for line in open(os.path.join(rdir, "r_out.txt")):
-        parts = line.split()
-        if parts[0] == "coef":
-            coef.append(float(parts[1]))
-            se.append(float(parts[2]))
-        else:
-            out[parts[0]] = float(parts[1])
-    out["coef"], out["se"] = np.asarray(coef), np.asarray(se)
-    return out
+    return cr.run_r([cr.RSCRIPT, "--vanilla", prog, rdir, str(n), str(p), repr(theta), link], rdir)
 
 
 def check_nb(case, theta, tmp, with_r, collapsed):
