@@ -87,6 +87,16 @@ else
     fail report_tweedie "$(grep -E '^model|log-lik' <<<"$report")"
 fi
 
+"$bin" fit --quiet "${base[@]}" --family "tweedie power=1.5" --json "$tmp/tw.json" "$data" >/dev/null &&
+    "$bin" report --html "$tmp/tw.html" "$tmp/tw.json" "$tmp/t2.json" 2>"$tmp/html.err"
+rc=$?
+if [ "$rc" -eq 0 ] && grep -qF "tweedie family (power 1.5, fixed)" "$tmp/tw.html" &&
+    grep -qF "<td>AIC</td><td>not computed</td>" "$tmp/tw.html" && ! grep -qi ">nan<" "$tmp/tw.html"; then
+    ok html_tweedie
+else
+    fail html_tweedie "exit $rc: $(head -c 300 "$tmp/html.err")"
+fi
+
 # collapsed patterns (factors only) against the rows one by one
 for fl in "negative-binomial theta=1.5:log" "negative-binomial theta=1.5:sqrt" "negative-binomial theta=1.5:identity" \
     "tweedie power=1.4:log"; do
