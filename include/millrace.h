@@ -531,7 +531,8 @@ MR_API mr_status mr_run_log_append(const char *path, const mr_run_record *rec, c
  * fits record them): the text, JSON and CSV below give them.
  *
  * MR_OK (flagged or not: mr_drift_nflagged says), MR_ERR_USAGE when the
- * fits are of different models (outcome, trials, family, link, offset,
+ * fits are of different models (outcome, trials, family and its
+ * parameter, link, offset,
  * exposure, weight, intercept, dispersion, terms or a factor's reference
  * differ; the message names the first difference) or the threshold is not
  * a positive number, MR_ERR_NO_MEMORY; with a message in `msg` (capacity

@@ -171,8 +171,7 @@ static mr_status parse_family(mr__spec *s, const words *ws, const char *origin, 
         return mr__fail(err, MR_ERR_USAGE,
                         "%s: unknown family '%s' (gaussian, binomial, poisson, gamma, inverse-gaussian, "
                         "negative-binomial, tweedie)",
-                        origin,
-                        ws->w[1]);
+                        origin, ws->w[1]);
     for (i = 2; i < ws->n; i++) MR__TRY(ops->parse_param(&param, ws->w[i], origin, err));
     s->family = v;
     s->family_param = param;
