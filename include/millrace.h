@@ -103,14 +103,26 @@ MR_API const char *mr_strerror(mr_status status);
  *   binomial          logit, probit, cloglog, log
  *   poisson           log, identity, sqrt
  *   gamma             inverse, identity, log
- *   inverse-gaussian  inverse-squared, inverse, identity, log          */
+ *   inverse-gaussian  inverse-squared, inverse, identity, log
+ *   negative-binomial log, identity, sqrt (a fixed theta: the family's
+ *                     line reads "family negative-binomial theta=2";
+ *                     V(mu) = mu + mu^2/theta, dispersion fixed at 1)
+ *   tweedie           log (a fixed power 1 < p < 2: "family tweedie
+ *                     power=1.5"; V(mu) = mu^p, outcome >= 0, dispersion
+ *                     estimated; no log-likelihood: MR_STAT_LOG_LIKELIHOOD,
+ *                     MR_STAT_AIC and MR_STAT_BIC are NaN)
+ * A family with a parameter of its own needs it on its line
+ * (mr_fitter_model_line: MR_ERR_USAGE without it or out of range);
+ * mr_fit_stat(fit, MR_STAT_FAMILY_PARAMETER) gives it back.           */
 
 typedef enum mr_family {
     MR_GAUSSIAN = 0,
     MR_BINOMIAL = 1,
     MR_POISSON = 2,
     MR_GAMMA = 3,
-    MR_INVERSE_GAUSSIAN = 4
+    MR_INVERSE_GAUSSIAN = 4,
+    MR_NEGATIVE_BINOMIAL = 5,
+    MR_TWEEDIE = 6
 } mr_family;
 
 typedef enum mr_link {
@@ -140,7 +152,7 @@ MR_API void mr_fitter_free(mr_fitter *f);
 MR_API const char *mr_fitter_errmsg(const mr_fitter *f);
 
 /* Adds one line of the model language (see README, "The model file"):
- *   outcome COL | trials COL | family NAME | link NAME |
+ *   outcome COL | trials COL | family NAME [PARAM=VALUE] | link NAME |
  *   numeric COL | factor COL [ref=LEVEL] | interact A B [C] |
  *   spline COL df=N|knots=K1,K2,... [boundary=LO,HI] |
  *   offset COL | exposure COL | weight COL | intercept yes|no |
@@ -344,7 +356,10 @@ typedef enum mr_stat {
     MR_STAT_RELATIVE_CHANGE = 13,
     MR_STAT_SECONDS = 14,
     MR_STAT_RANK = 15,
-    MR_STAT_LEVEL = 16       /* confidence level of the intervals            */
+    MR_STAT_LEVEL = 16,      /* confidence level of the intervals            */
+    MR_STAT_FAMILY_PARAMETER = 17 /* the family's own parameter: a negative
+                                binomial's theta, a Tweedie power; NaN for a
+                                family without one                          */
 } mr_stat;
 /* A fit statistic; NaN for an unknown `which`. */
 MR_API double mr_fit_stat(const mr_fit *fit, mr_stat which);
@@ -518,7 +533,8 @@ MR_API mr_status mr_run_log_append(const char *path, const mr_run_record *rec, c
  * fits record them): the text, JSON and CSV below give them.
  *
  * MR_OK (flagged or not: mr_drift_nflagged says), MR_ERR_USAGE when the
- * fits are of different models (outcome, trials, family, link, offset,
+ * fits are of different models (outcome, trials, family and its
+ * parameter, link, offset,
  * exposure, weight, intercept, dispersion, terms or a factor's reference
  * differ; the message names the first difference) or the threshold is not
  * a positive number, MR_ERR_NO_MEMORY; with a message in `msg` (capacity

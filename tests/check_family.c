@@ -26,6 +26,10 @@ static const mr_family FAMILIES[] = {MR_GAUSSIAN, MR_BINOMIAL, MR_POISSON, MR_GA
 static const mr_link LINKS[] = {MR_IDENTITY, MR_LOGIT,   MR_PROBIT, MR_CLOGLOG,
                                 MR_LOG,      MR_INVERSE, MR_SQRT,   MR_INVERSE_SQUARED};
 
+/* Every family the registry holds: those frozen in family_reference.h,
+ * then those with a parameter of their own. */
+enum { N_REGISTERED = MR_TWEEDIE + 1 };
+
 static const mr__family_ops *fam(mr_family f) { return mr__family_ops_of(f); }
 static const mr__link_ops *lnk(mr_link l) { return mr__link_ops_of(l); }
 
@@ -92,6 +96,8 @@ static const pair_spec PAIRS[] = {
     {MR_POISSON, {MR_LOG, MR_IDENTITY, MR_SQRT}, 3},
     {MR_GAMMA, {MR_INVERSE, MR_IDENTITY, MR_LOG}, 3},
     {MR_INVERSE_GAUSSIAN, {MR_INVERSE_SQUARED, MR_INVERSE, MR_IDENTITY, MR_LOG}, 4},
+    {MR_NEGATIVE_BINOMIAL, {MR_LOG, MR_IDENTITY, MR_SQRT}, 3},
+    {MR_TWEEDIE, {MR_LOG}, 1},
 };
 
 /* Means spread over the whole range, including 1e-12 and 1 - 1e-10 for the
@@ -123,6 +129,8 @@ static int in_family_range(mr_family f, double mu)
     case MR_GAUSSIAN: return 1;
     case MR_BINOMIAL: return mu > 0.0 && mu < 1.0;
     case MR_POISSON:
+    case MR_NEGATIVE_BINOMIAL:
+    case MR_TWEEDIE:
     case MR_GAMMA:
     case MR_INVERSE_GAUSSIAN: return mu > 0.0;
     }
@@ -295,6 +303,7 @@ static double log_density(mr_family f, double y, double mu)
     case MR_GAMMA: return -log(mu) - y / mu;
     case MR_INVERSE_GAUSSIAN:
         return -0.5 * log(2.0 * PI * y * y * y) - (y - mu) * (y - mu) / (2.0 * mu * mu * y);
+    default: break; /* a family with a parameter: its own test */
     }
     return NAN;
 }
@@ -307,7 +316,9 @@ static int y_in_support(mr_family f, double y)
     switch (f) {
     case MR_GAUSSIAN: return 1;
     case MR_BINOMIAL: return y >= 0.0 && y <= 1.0;
-    case MR_POISSON: return y >= 0.0;
+    case MR_POISSON:
+    case MR_NEGATIVE_BINOMIAL:
+    case MR_TWEEDIE: return y >= 0.0;
     case MR_GAMMA:
     case MR_INVERSE_GAUSSIAN: return y > 0.0;
     }
@@ -415,18 +426,17 @@ END_TEST
 
 START_TEST(allowed_pairs_match_table)
 {
-    for (size_t k = 0; k < N_OF(FAMILIES); k++)
+    ck_assert_uint_eq(N_OF(PAIRS), N_REGISTERED);
+    for (size_t k = 0; k < N_OF(PAIRS); k++)
         for (size_t j = 0; j < N_OF(LINKS); j++) {
             int listed = 0;
-            for (size_t p = 0; p < N_OF(PAIRS); p++)
-                for (int m = 0; m < PAIRS[p].nlinks; m++)
-                    listed |= PAIRS[p].family == FAMILIES[k] && PAIRS[p].links[m] == LINKS[j];
-            ck_assert_msg(mr__link_allowed(FAMILIES[k], LINKS[j]) == listed, "%s/%s",
-                          mr__family_name(FAMILIES[k]), mr__link_name(LINKS[j]));
+            for (int m = 0; m < PAIRS[k].nlinks; m++) listed |= PAIRS[k].links[m] == LINKS[j];
+            ck_assert_msg(mr__link_allowed(PAIRS[k].family, LINKS[j]) == listed, "%s/%s",
+                          mr__family_name(PAIRS[k].family), mr__link_name(LINKS[j]));
         }
     for (size_t p = 0; p < N_OF(PAIRS); p++)
         ck_assert(mr__canonical_link(PAIRS[p].family) == PAIRS[p].links[0]);
-    ck_assert(!mr__link_allowed((mr_family)5, MR_LOG));
+    ck_assert(!mr__link_allowed((mr_family)N_REGISTERED, MR_LOG));
     ck_assert(!mr__link_allowed(MR_GAUSSIAN, (mr_link)8));
     ck_assert(!mr__link_allowed((mr_family)-1, MR_LOG));
 }
@@ -591,7 +601,7 @@ START_TEST(descriptors_are_complete)
         mr__family plain = mr__family_plain((mr_family)f);
         ck_assert(plain.ops == o && isnan(plain.param));
     }
-    ck_assert_ptr_null(mr__family_ops_of((mr_family)REF_N_FAMILIES));
+    ck_assert_ptr_null(mr__family_ops_of((mr_family)N_REGISTERED));
     ck_assert_ptr_null(mr__family_ops_of((mr_family)-1));
     for (int l = 0; l < REF_N_LINKS; l++) {
         const mr__link_ops *o = mr__link_ops_of((mr_link)l);
@@ -606,7 +616,9 @@ END_TEST
 
 START_TEST(tables_match_before)
 {
+    /* families added since have tests of their own (below) */
     for (int f = -1; f <= REF_N_FAMILIES; f++) {
+        if (f == REF_N_FAMILIES) f = N_REGISTERED;
         ck_assert_int_eq(mr__canonical_link((mr_family)f), ref_canonical_link((mr_family)f));
         ck_assert_str_eq(mr__family_name((mr_family)f), ref_family_name((mr_family)f));
         for (int l = -1; l <= REF_N_LINKS; l++)
@@ -751,6 +763,191 @@ START_TEST(link_kernels_match_before)
 }
 END_TEST
 
+
+/* ------------------------------------------------------------------ */
+/* Families with a parameter of their own                              */
+
+static mr__family with_param(mr_family f, double param)
+{
+    mr__family x = {mr__family_ops_of(f), param};
+    return x;
+}
+
+static double kernel1(const mr__family *x, double y, double mu, double *var)
+{
+    double d;
+    x->ops->variance_n(x, &mu, 1, var);
+    x->ops->unit_deviance_n(x, &y, &mu, 1, &d);
+    return d;
+}
+
+/* The negative binomial log density written out with libm's lgamma:
+ * log Gamma(y+k) - log Gamma(k) - log y! + k log(k/(k+mu)) + y log(mu/(k+mu)). */
+static double nb_log_density(double y, double mu, double k)
+{
+    double ylog = y > 0 ? y * log(mu / (k + mu)) : 0.0;
+    return lgamma(y + k) - lgamma(k) - lgamma(y + 1) + k * log(k / (k + mu)) + ylog;
+}
+
+static const double NB_THETA[] = {0.05, 0.7, 2.0, 31.0, 1e4};
+static const double NB_Y[] = {0.0, 1.0, 2.0, 3.0, 7.0, 40.0, 0.5};
+static const double NB_MU[] = {0.01, 0.4, 1.0, 2.5, 9.0, 60.0};
+
+/* V(mu) = mu + mu^2/theta; the deviance is twice the log density at
+ * mu = y less that at mu; the log-likelihood is the rows' data-only terms
+ * less half the deviance (what the fit computes) and equals the density
+ * written out. */
+START_TEST(negative_binomial_against_density)
+{
+    for (size_t t = 0; t < N_OF(NB_THETA); t++) {
+        double k = NB_THETA[t];
+        mr__family x = with_param(MR_NEGATIVE_BINOMIAL, k);
+        for (size_t i = 0; i < N_OF(NB_Y); i++)
+            for (size_t j = 0; j < N_OF(NB_MU); j++) {
+                double y = NB_Y[i], mu = NB_MU[j], var, dev = kernel1(&x, y, mu, &var);
+                double want = 2 * (nb_log_density(y, y, k) - nb_log_density(y, mu, k));
+                double ll = x.ops->loglik(&x, dev, x.ops->loglik_row(&x, y, 1.0, 1.0, 0), 1, 1);
+                ck_assert_double_eq_tol(var, mu + mu * mu / k, 1e-15 * var);
+                ck_assert_msg(fabs(dev - want) <= 1e-10 * fmax(fabs(want), 1e-3), "theta %g d(%g, %g) %.17g vs %.17g",
+                              k, y, mu, dev, want);
+                ck_assert_msg(dev >= 0, "d(%g, %g) < 0", y, mu);
+                ck_assert_msg(fabs(ll - nb_log_density(y, mu, k)) <= 1e-10 * fmax(1, fabs(ll)),
+                              "theta %g ll(%g, %g) %.17g vs %.17g", k, y, mu, ll, nb_log_density(y, mu, k));
+                /* a prior weight multiplies the row's data-only term */
+                ck_assert_double_eq_tol(x.ops->loglik_row(&x, y, 3.0, 1.0, 0),
+                                        3 * x.ops->loglik_row(&x, y, 1.0, 1.0, 0), 1e-12 * fmax(1, fabs(ll)));
+            }
+    }
+}
+END_TEST
+
+/* Rows collapse into a pattern exactly (family.h, saturated_term): the
+ * rows' summed deviance at a common mean is the pattern's at the mean
+ * outcome plus twice sum w h(y) - a h(ybar), whatever the mean; the
+ * log-likelihood's data-only terms are summed row by row in the first
+ * pass, so they need no such identity. */
+static void pattern_identity(const mr__family *x)
+{
+    static const double y[] = {0, 0, 1, 3, 4.25, 9, 17}, w[] = {1, 2.5, 1, 1, 0.5, 1, 3};
+    double a = 0, b = 0, hsum = 0;
+    for (size_t i = 0; i < N_OF(y); i++) {
+        a += w[i];
+        b += w[i] * y[i];
+        hsum += w[i] * x->ops->saturated_term(x, y[i]);
+    }
+    for (size_t j = 0; j < N_OF(NB_MU); j++) {
+        double mu = NB_MU[j], rows = 0, var, pattern;
+        for (size_t i = 0; i < N_OF(y); i++) rows += w[i] * kernel1(x, y[i], mu, &var);
+        pattern = a * kernel1(x, b / a, mu, &var) + 2 * (hsum - a * x->ops->saturated_term(x, b / a));
+        ck_assert_msg(fabs(rows - pattern) <= 1e-11 * rows, "%s %g mu %g: %.17g vs %.17g", x->ops->name, x->param,
+                      mu, rows, pattern);
+    }
+}
+
+START_TEST(patterns_exact)
+{
+    static const double powers[] = {1.01, 1.3, 1.5, 1.99};
+    for (size_t t = 0; t < N_OF(NB_THETA); t++) {
+        mr__family x = with_param(MR_NEGATIVE_BINOMIAL, NB_THETA[t]);
+        pattern_identity(&x);
+    }
+    for (size_t t = 0; t < N_OF(powers); t++) {
+        mr__family x = with_param(MR_TWEEDIE, powers[t]);
+        pattern_identity(&x);
+    }
+}
+END_TEST
+
+/* The unit deviance's definition, 2 int_mu^y (y - t)/V(t) dt: 0 at
+ * mu = y, and d/dmu d(y, mu) = -2 (y - mu)/V(mu) (a central difference);
+ * at y = 0 the integral is 2 mu^(2-p)/(2-p). */
+START_TEST(tweedie_deviance_definition)
+{
+    static const double powers[] = {1.01, 1.3, 1.5, 1.99}, ys[] = {0.0, 0.3, 1.0, 2.5, 40.0};
+    for (size_t t = 0; t < N_OF(powers); t++) {
+        double p = powers[t];
+        mr__family x = with_param(MR_TWEEDIE, p);
+        for (size_t i = 0; i < N_OF(ys); i++) {
+            double y = ys[i], var;
+            ck_assert(y == 0 || kernel1(&x, y, y, &var) <= 1e-13 * y);
+            for (size_t j = 0; j < N_OF(NB_MU); j++) {
+                double mu = NB_MU[j], h = 1e-5 * mu, v2;
+                double slope = (kernel1(&x, y, mu + h, &var) - kernel1(&x, y, mu - h, &var)) / (2 * h);
+                double d = kernel1(&x, y, mu, &v2);
+                ck_assert_double_eq_tol(v2, pow(mu, p), 1e-15 * v2);
+                ck_assert_msg(fabs(slope + 2 * (y - mu) / v2) <= 1e-6 * fmax(1, fabs(slope)), "p %g d'(%g, %g) %g", p,
+                              y, mu, slope);
+                if (y == 0) ck_assert_double_eq_tol(d, 2 * pow(mu, 2 - p) / (2 - p), 1e-14 * d);
+            }
+        }
+        /* no closed-form density: the log-likelihood is NaN, not a number that is not one */
+        ck_assert(isnan(x.ops->loglik(&x, 10.0, x.ops->loglik_row(&x, 1.0, 1.0, 1.0, 0), 5, 5)));
+    }
+}
+END_TEST
+
+typedef struct word_case {
+    const char *word, *says;
+} word_case;
+
+/* `good` reads as `want`; each of bad[] is MR_ERR_USAGE with its message,
+ * which begins with the line's origin. */
+static void check_parameter_words(mr_family f, const char *good, double want, const word_case *bad, size_t nbad)
+{
+    char msg[256];
+    double v = 0;
+    mr__error err;
+    mr__error_clear(&err);
+    ck_assert_int_eq(mr__family_ops_of(f)->parse_param(&v, good, "m:1", &err), MR_OK);
+    ck_assert(v == want);
+    for (size_t i = 0; i < nbad; i++) {
+        mr__error_clear(&err);
+        ck_assert_int_eq(mr__family_ops_of(f)->parse_param(&v, bad[i].word, "m:1", &err), MR_ERR_USAGE);
+        mr__error_export(&err, msg, sizeof msg);
+        ck_assert_msg(strstr(msg, bad[i].says) != NULL && strncmp(msg, "m:1: ", 5) == 0, "%s: '%s'", bad[i].word,
+                      msg);
+    }
+}
+
+START_TEST(tweedie_parameter)
+{
+    static const word_case bad[] = {{"power=1", "strictly between 1 and 2, got '1'"}, {"power=2", "strictly between 1 and 2"},
+               {"power=0.5", "strictly between 1 and 2"},        {"power=3", "strictly between 1 and 2"},
+               {"power=x", "power takes a number"},              {"theta=1.5", "takes power=VALUE"}};
+    const mr__family_ops *o = mr__family_ops_of(MR_TWEEDIE);
+    ck_assert_str_eq(o->name, "tweedie");
+    ck_assert_str_eq(o->param_name, "power");
+    ck_assert_int_eq(mr__family_from_name("tweedie"), MR_TWEEDIE);
+    ck_assert_int_eq(o->dispersion_estimated, 1);
+    ck_assert_int_eq(o->log_offset_patterns, 0);
+    ck_assert_int_eq(mr__canonical_link(MR_TWEEDIE), MR_LOG);
+    ck_assert_ptr_null(mr__outcome_problem(&o->outcome, 0.0));
+    ck_assert_ptr_nonnull(mr__outcome_problem(&o->outcome, -0.5));
+    check_parameter_words(MR_TWEEDIE, "power=1.5", 1.5, bad, N_OF(bad));
+}
+END_TEST
+
+START_TEST(negative_binomial_parameter)
+{
+    static const word_case bad[] = {{"theta=0", "theta must be > 0"},     {"theta=-2", "theta must be > 0"},
+               {"theta=", "theta takes a number"},    {"theta=2x", "theta takes a number"},
+               {"theta=nan", "theta takes a number"}, {"power=2", "takes theta=VALUE"},
+               {"theta", "takes theta=VALUE"}};
+    const mr__family_ops *o = mr__family_ops_of(MR_NEGATIVE_BINOMIAL);
+    ck_assert_str_eq(o->name, "negative-binomial");
+    ck_assert_str_eq(o->param_name, "theta");
+    ck_assert_int_eq(mr__family_from_name("negative-binomial"), MR_NEGATIVE_BINOMIAL);
+    ck_assert_int_eq(o->dispersion_estimated, 0);
+    ck_assert_int_eq(o->dispersion_counts, 0); /* theta is fixed: not a parameter of the AIC */
+    ck_assert_int_eq(o->log_offset_patterns, 0); /* the score is not poisson's */
+    ck_assert_int_eq(mr__canonical_link(MR_NEGATIVE_BINOMIAL), MR_LOG);
+    ck_assert(mr__link_allowed(MR_NEGATIVE_BINOMIAL, MR_IDENTITY) && mr__link_allowed(MR_NEGATIVE_BINOMIAL, MR_SQRT));
+    ck_assert(!mr__link_allowed(MR_NEGATIVE_BINOMIAL, MR_LOGIT));
+    check_parameter_words(MR_NEGATIVE_BINOMIAL, "theta=2.5", 2.5, bad, N_OF(bad));
+    check_parameter_words(MR_NEGATIVE_BINOMIAL, "theta=1e-3", 1e-3, bad, 0);
+}
+END_TEST
+
 static Suite *family_suite(void)
 {
     Suite *s = suite_create("family");
@@ -783,6 +980,13 @@ static Suite *family_suite(void)
     tcase_add_test(before, likelihood_and_boundary_match_before);
     tcase_add_test(before, link_kernels_match_before);
     suite_add_tcase(s, before);
+    TCase *param = tcase_create("with a parameter");
+    tcase_add_test(param, negative_binomial_against_density);
+    tcase_add_test(param, patterns_exact);
+    tcase_add_test(param, tweedie_deviance_definition);
+    tcase_add_test(param, tweedie_parameter);
+    tcase_add_test(param, negative_binomial_parameter);
+    suite_add_tcase(s, param);
     return s;
 }
 

@@ -224,7 +224,7 @@ static void same_fit(const mr_fit *a, const mr_fit *b)
             ck_assert(same_bits(x, y) || (isnan(x) && isnan(y)));
         }
     }
-    for (i = 0; i <= MR_STAT_RANK; i++) {
+    for (i = 0; i <= MR_STAT_FAMILY_PARAMETER; i++) {
         double x = mr_fit_stat(a, (mr_stat)i), y = mr_fit_stat(b, (mr_stat)i);
         ck_assert(same_bits(x, y) || (isnan(x) && isnan(y)));
     }
@@ -296,6 +296,32 @@ START_TEST(round_trip_spline)
 }
 END_TEST
 
+/* A family with a parameter of its own: the parameter is written, read
+ * back and written again. */
+START_TEST(round_trip_family_parameter)
+{
+    static const char *const lines[] = {"outcome y", "family negative-binomial theta=2.5", "factor g", "numeric x"};
+    const char *data = in_dir("nb.csv");
+    const char *csv = "y,g,x\n0,a,1\n3,b,2\n1,a,3\n7,b,1\n2,c,2\n0,c,5\n4,a,4\n9,b,3\n1,c,1\n";
+    const char *lines2[] = {"outcome y", NULL, "factor g", "numeric x"};
+    char msg[512], *text;
+    mr_fit *fit;
+    spit(data, csv, strlen(csv));
+    fit = fit_with(NULL, lines, sizeof lines / sizeof lines[0], data, 0);
+    ck_assert(mr_fit_stat(fit, MR_STAT_FAMILY_PARAMETER) == 2.5);
+    ck_assert_msg(mr_fit_write_json(fit, in_dir("good.json"), msg, sizeof msg) == MR_OK, "%s", msg);
+    text = slurp(in_dir("good.json"));
+    ck_assert_ptr_nonnull(strstr(text, "\"family_parameter\": {"));
+    ck_assert_ptr_nonnull(strstr(text, "\"name\": \"theta\",\n   \"value\": 2.5\n"));
+    free(text);
+    round_trip(fit, "negative binomial");
+    lines2[1] = "family tweedie power=1.25"; /* no log-likelihood: null, read back as NaN */
+    fit = fit_with(NULL, lines2, sizeof lines2 / sizeof lines2[0], in_dir("nb.csv"), 0);
+    ck_assert(isnan(mr_fit_stat(fit, MR_STAT_LOG_LIKELIHOOD)) && mr_fit_stat(fit, MR_STAT_FAMILY_PARAMETER) == 1.25);
+    round_trip(fit, "tweedie");
+}
+END_TEST
+
 static mr_fit *saved_falls(void)
 {
     char msg[512];
@@ -361,6 +387,10 @@ START_TEST(damaged_files)
     damaged("\"name\": \"(intercept)\"", "\"name\": 1", 0, MR_ERR_FORMAT, "'coefficients[0].name' should be a string");
     damaged("\"name\": \"(intercept)\"", "\"name\": \"a\\\\q\"", 0, MR_ERR_FORMAT, "'coefficients[0].name' holds");
     damaged("\"family\": \"poisson\"", "\"family\": \"lognormal\"", 0, MR_ERR_FORMAT, "'model.family'");
+    damaged("\"link\": ", "\"family_parameter\": {\"name\": \"theta\", \"value\": 2}, \"link\": ", 0, MR_ERR_FORMAT,
+            "'model.family_parameter' is given for a family without one");
+    damaged("\"family\": \"poisson\"", "\"family\": \"negative-binomial\"", 0, MR_ERR_FORMAT,
+            "'model.family_parameter' is missing");
     damaged("\"covariance\": [", "\"covariance\": [[1],", 0, MR_ERR_FORMAT, "'covariance'");
     damaged("\"first_coefficient\": 1,", "\"first_coefficient\": 1000,", 0, MR_ERR_FORMAT, "model.terms[0]");
     damaged("\"type\": \"factor\"", "\"type\": \"numeric\"", 0, MR_ERR_FORMAT, "model.terms[0].columns[0].type");
@@ -425,6 +455,7 @@ static Suite *json_suite(void)
     tcase_add_test(t, round_trip_screening);
     tcase_add_test(t, round_trip_awkward);
     tcase_add_test(t, round_trip_spline);
+    tcase_add_test(t, round_trip_family_parameter);
     tcase_add_test(t, damaged_files);
     tcase_add_test(t, audit_trail);
     tcase_add_test(t, damaged_spline);

@@ -5,6 +5,8 @@
 #include <math.h>
 #include <string.h>
 
+#include "input/numparse.h"
+
 /* The registry: one line per family, its mr_family value and the
  * mr__family_ops its file defines. */
 #define FAMILY_LIST(X)                                                                              \
@@ -12,7 +14,9 @@
     X(MR_BINOMIAL, mr__binomial_family)                                                             \
     X(MR_POISSON, mr__poisson_family)                                                               \
     X(MR_GAMMA, mr__gamma_family)                                                                   \
-    X(MR_INVERSE_GAUSSIAN, mr__inverse_gaussian_family)
+    X(MR_INVERSE_GAUSSIAN, mr__inverse_gaussian_family)                                             \
+    X(MR_NEGATIVE_BINOMIAL, mr__negative_binomial_family)                                           \
+    X(MR_TWEEDIE, mr__tweedie_family)
 
 #define DECLARE(value, ops) extern const mr__family_ops ops;
 FAMILY_LIST(DECLARE)
@@ -111,4 +115,20 @@ size_t mr__count_invalid_n(const mr__family_ops *f, const mr__link_ops *l, const
         bad += !ok;
     }
     return bad;
+}
+
+/* The number is read as the data's are (exact, whatever the locale). */
+mr_status mr__family_param_value(const char *family, const char *name, const char *word, double *value,
+                                 const char *origin, mr__error *err)
+{
+    size_t n = strlen(name);
+    mr__numparser *np;
+    int ok;
+    if (strncmp(word, name, n) != 0 || word[n] != '=')
+        return mr__fail(err, MR_ERR_USAGE, "%s: the %s family takes %s=VALUE, got '%s'", origin, family, name, word);
+    if ((np = mr__numparser_new()) == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    ok = mr__parse_double(np, word + n + 1, strlen(word + n + 1), value);
+    mr__numparser_free(np);
+    if (!ok) return mr__fail(err, MR_ERR_USAGE, "%s: %s takes a number, got '%s'", origin, name, word + n + 1);
+    return MR_OK;
 }

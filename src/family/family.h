@@ -79,6 +79,8 @@ struct mr__family_ops {
      * where it enters is the deviance-based estimate, as is usual. */
     double (*loglik_row)(const mr__family *f, double y, double w, double t, int has_trials);
     double (*loglik)(const mr__family *f, double dev, double llc, double n, double sw);
+    int no_loglik;            /* no closed-form density: loglik gives NaN,
+                                 and the report says why */
     int dispersion_estimated; /* default: 1 estimated, 0 fixed at 1 */
     int dispersion_counts;    /* the dispersion is a parameter of AIC and BIC */
 
@@ -104,9 +106,17 @@ struct mr__family_ops {
 
     /* The family's own parameter from a word "NAME=VALUE" of its model
      * line into *param; NULL: the family takes none (and its line takes one
-     * word). */
+     * word).  param_name is NAME ("theta"): a family that has one needs it
+     * on its line (mr__spec_validate), and reports and the JSON name it. */
     mr_status (*parse_param)(double *param, const char *word, const char *origin, mr__error *err);
+    const char *param_name;
 };
+
+/* The value of a word "NAME=VALUE" of a family's line into *value: a
+ * finite number, or MR_ERR_USAGE naming the line, the family and the word
+ * (a family's parse_param then checks the range). */
+mr_status mr__family_param_value(const char *family, const char *name, const char *word, double *value,
+                                 const char *origin, mr__error *err);
 
 /* A link: eta = g(mu) and its inverse with dmu/deta, as array kernels,
  * and which eta the link can take (finite, and > 0 or != 0 where g's
@@ -126,7 +136,7 @@ const mr__link_ops *mr__link_ops_of(mr_link l);
 mr__family mr__family_plain(mr_family f);
 
 /* Names as written in model files: "gaussian", "binomial", "poisson",
- * "gamma", "inverse-gaussian"; links "identity", "log", "inverse", "logit",
+ * "gamma", "inverse-gaussian", "negative-binomial", "tweedie"; links "identity", "log", "inverse", "logit",
  * "probit", "cloglog", "sqrt", "inverse-squared".  Return -1 if unknown. */
 int mr__family_from_name(const char *name);
 int mr__link_from_name(const char *name);

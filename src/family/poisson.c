@@ -10,15 +10,6 @@ static inline double poisson_deviance(double y, double mu) { return 2.0 * mr__ha
 
 MR__FAMILY_KERNELS(poisson)
 
-/* y + 0.1: a finite log at y = 0. */
-static void mustart_n(const mr__family *f, const double *y, const double *prior, size_t n, double *mu)
-{
-    (void)f;
-    (void)prior;
-    for (size_t i = 0; i < n; i++)
-        mu[i] = y[i] + 0.1;
-}
-
 static double saturated_term(const mr__family *f, double y)
 {
     (void)f;
@@ -33,15 +24,6 @@ static double loglik_row(const mr__family *f, double y, double w, double t, int 
     return prior * (mr__xlogy(y, y) - y - mr__log_gamma(y + 1));
 }
 
-static size_t count_boundary(const mr__family *f, const double *mu, size_t n)
-{
-    size_t bad = 0;
-    (void)f;
-    for (size_t i = 0; i < n; i++)
-        bad += mu[i] <= MR__BOUNDARY_EDGE;
-    return bad;
-}
-
 const mr__family_ops mr__poisson_family = {
     .name = "poisson",
     .canonical_link = MR_LOG,
@@ -50,7 +32,7 @@ const mr__family_ops mr__poisson_family = {
     .mu_lo = 0.0,
     .mu_hi = INFINITY,
     .clamp_mean = mr__clamp_positive_mean,
-    .mustart_n = mustart_n,
+    .mustart_n = mr__mustart_count,
     .variance_n = poisson_variance_n,
     .unit_deviance_n = poisson_unit_deviance_n,
     .loglik_row = loglik_row,
@@ -58,7 +40,7 @@ const mr__family_ops mr__poisson_family = {
     .saturated_term = saturated_term,
     .log_offset_patterns = 1,
     .log_offset_null_exact = 1,
-    .count_boundary = count_boundary,
+    .count_boundary = mr__count_zero_means,
     .boundary_what = "fitted rates are numerically 0",
     .boundary_why = "a level or cell with no events drives a coefficient towards minus infinity",
     .ratio_log = "rate ratio",

@@ -76,6 +76,43 @@ static inline double mr__clamp_positive_mean(double mu) { return !(mu > 0) ? 1e-
             dev[i] = prefix##_deviance(y[i], mu[i]);                                                       \
     }
 
+/* The kernels of a family with a parameter, from its inline
+ * PREFIX_variance(param, mu) and PREFIX_deviance(param, y, mu). */
+#define MR__FAMILY_PARAM_KERNELS(prefix)                                                                   \
+    static void prefix##_variance_n(const mr__family *f, const double *mu, size_t n, double *var)          \
+    {                                                                                                      \
+        const double param = f->param;                                                                     \
+        for (size_t i = 0; i < n; i++)                                                                     \
+            var[i] = prefix##_variance(param, mu[i]);                                                      \
+    }                                                                                                      \
+    static void prefix##_unit_deviance_n(const mr__family *f, const double *y, const double *mu, size_t n, \
+                                         double *dev)                                                      \
+    {                                                                                                      \
+        const double param = f->param;                                                                     \
+        for (size_t i = 0; i < n; i++)                                                                     \
+            dev[i] = prefix##_deviance(param, y[i], mu[i]);                                                \
+    }
+
+/* Counts (outcomes >= 0 whose mean may be 0): y + 0.1, a finite log at
+ * y = 0. */
+static inline void mr__mustart_count(const mr__family *f, const double *y, const double *prior, size_t n, double *mu)
+{
+    (void)f;
+    (void)prior;
+    for (size_t i = 0; i < n; i++)
+        mu[i] = y[i] + 0.1;
+}
+
+/* Means that count as 0: on the lower edge of a count family's range. */
+static inline size_t mr__count_zero_means(const mr__family *f, const double *mu, size_t n)
+{
+    size_t bad = 0;
+    (void)f;
+    for (size_t i = 0; i < n; i++)
+        bad += mu[i] <= MR__BOUNDARY_EDGE;
+    return bad;
+}
+
 /* Families whose starting mean is y itself. */
 static inline void mr__mustart_y(const mr__family *f, const double *y, const double *prior, size_t n, double *mu)
 {

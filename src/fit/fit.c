@@ -120,6 +120,12 @@ const char *mr__fit_ratio_label(const mr_fit *fit)
     return fit->link == MR_LOG ? ops->ratio_log : NULL;
 }
 
+const char *mr__fit_family_param_name(const mr_fit *fit)
+{
+    const mr__family_ops *ops = mr__family_ops_of((mr_family)fit->family);
+    return ops != NULL && fit->family_param_given ? ops->param_name : NULL;
+}
+
 const char *mr__fit_statistic_name(const mr_fit *fit) { return fit->dispersion_estimated ? "t" : "z"; }
 
 mr_status mr_fit_status(const mr_fit *fit) { return fit->status; }
@@ -159,6 +165,7 @@ double mr_fit_stat(const mr_fit *fit, mr_stat which)
     case MR_STAT_SECONDS: return fit->seconds;
     case MR_STAT_RANK: return (double)fit->rank;
     case MR_STAT_LEVEL: return fit->level;
+    case MR_STAT_FAMILY_PARAMETER: return fit->family_param_given ? fit->family_param : NAN;
     }
     return NAN;
 }

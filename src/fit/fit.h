@@ -52,6 +52,10 @@ struct mr_fit {
     double *beta, *se, *cov, *stat, *pval, *lo, *hi;
     /* model */
     int family, link, intercept, dispersion_estimated;
+    /* the family's own parameter (theta, a power) where it has one
+     * (family_param_given 1), else NaN */
+    double family_param;
+    int family_param_given;
     char *outcome, *trials, *offset, *exposure, *weight;
     mr__fit_term *term;
     size_t nterms;
@@ -116,6 +120,9 @@ mr_status mr__fit_term_tests(mr_fit *fit);
 /* "rate ratio", "odds ratio", ... for links where exp(estimate) is a
  * ratio; NULL otherwise. */
 const char *mr__fit_ratio_label(const mr_fit *fit);
+/* The name of the family's own parameter ("theta"), NULL where it has
+ * none. */
+const char *mr__fit_family_param_name(const mr_fit *fit);
 /* "z" when the dispersion is fixed, "t" when it is estimated. */
 const char *mr__fit_statistic_name(const mr_fit *fit);
 

@@ -305,6 +305,8 @@ static mr_status copy_model(mr_fit *fit, const mr__run *r, mr__error *err)
     const mr__spec *s = &r->f->spec;
     size_t i, l;
     fit->family = s->family;
+    fit->family_param = s->family_param;
+    fit->family_param_given = !isnan(s->family_param);
     fit->link = mr__spec_link(s);
     fit->intercept = s->intercept;
     fit->dispersion_estimated = mr__spec_dispersion_estimated(s);

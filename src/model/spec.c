@@ -173,8 +173,9 @@ static mr_status parse_family(mr__spec *s, const words *ws, const char *origin, 
     if (ops == NULL || ops->parse_param == NULL) MR__TRY(expect_args(ws, 1, origin, err));
     if (ops == NULL)
         return mr__fail(err, MR_ERR_USAGE,
-                        "%s: unknown family '%s' (gaussian, binomial, poisson, gamma, inverse-gaussian)", origin,
-                        ws->w[1]);
+                        "%s: unknown family '%s' (gaussian, binomial, poisson, gamma, inverse-gaussian, "
+                        "negative-binomial, tweedie)",
+                        origin, ws->w[1]);
     for (i = 2; i < ws->n; i++) MR__TRY(ops->parse_param(&param, ws->w[i], origin, err));
     s->family = v;
     s->family_param = param;
@@ -441,11 +442,15 @@ static mr_status validate_interactions(const mr__spec *s, mr__error *err)
 mr_status mr__spec_validate(const mr__spec *s, mr__error *err)
 {
     int link = mr__spec_link(s);
+    const mr__family_ops *ops = mr__family_ops_of((mr_family)s->family);
     if (s->outcome == NULL) return mr__fail(err, MR_ERR_USAGE, "model: no outcome column (outcome COL)");
     if (!mr__link_allowed((mr_family)s->family, (mr_link)link))
         return mr__fail(err, MR_ERR_USAGE, "model: the %s family does not take the %s link",
                         mr__family_name((mr_family)s->family), mr__link_name((mr_link)link));
-    if (s->trials != NULL && !mr__family_ops_of((mr_family)s->family)->takes_trials)
+    if (ops->param_name != NULL && isnan(s->family_param))
+        return mr__fail(err, MR_ERR_USAGE, "model: the %s family needs its %s (family %s %s=VALUE)", ops->name,
+                        ops->param_name, ops->name, ops->param_name);
+    if (s->trials != NULL && !ops->takes_trials)
         return mr__fail(err, MR_ERR_USAGE, "model: trials is for the binomial family only");
     if (s->offset != NULL && s->exposure != NULL && strcmp(s->offset, s->exposure) == 0)
         return mr__fail(err, MR_ERR_USAGE, "model: '%s' is both offset and exposure", s->offset);

@@ -57,6 +57,12 @@ static mr_status same_model(const mr_fit *a, const mr_fit *b, mr__error *err)
     if (!same_text(a->trials, b->trials)) return differ(err, "trials", a->trials, b->trials);
     if (a->family != b->family)
         return differ(err, "family", mr__family_name((mr_family)a->family), mr__family_name((mr_family)b->family));
+    if (a->family_param_given && a->family_param != b->family_param) {
+        char va[32], vb[32];
+        snprintf(va, sizeof va, "%.17g", a->family_param);
+        snprintf(vb, sizeof vb, "%.17g", b->family_param);
+        return differ(err, mr__fit_family_param_name(a), va, vb);
+    }
     if (a->link != b->link) return differ(err, "link", mr__link_name((mr_link)a->link), mr__link_name((mr_link)b->link));
     if (!same_text(a->offset, b->offset)) return differ(err, "offset", a->offset, b->offset);
     if (!same_text(a->exposure, b->exposure)) return differ(err, "exposure", a->exposure, b->exposure);

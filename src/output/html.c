@@ -166,9 +166,11 @@ static void summary_data(mr__strbuf *b, const mr_fit *f)
 static void summary_model(mr__strbuf *b, const mr_fit *f)
 {
     size_t i;
-    mr__strbuf_printf(b, "<h3>Model</h3>\n<p>%s family, %s link, %zu coefficients (rank %zu), dispersion %s; "
-                         "outcome ",
-                      mr__family_name((mr_family)f->family), mr__link_name((mr_link)f->link), f->p, f->rank,
+    const char *param = mr__fit_family_param_name(f);
+    mr__strbuf_printf(b, "<h3>Model</h3>\n<p>%s family", mr__family_name((mr_family)f->family));
+    if (param != NULL) mr__strbuf_printf(b, " (%s %.15g, fixed)", param, f->family_param);
+    mr__strbuf_printf(b, ", %s link, %zu coefficients (rank %zu), dispersion %s; outcome ",
+                      mr__link_name((mr_link)f->link), f->p, f->rank,
                       f->dispersion_estimated ? "estimated" : "fixed at 1");
     mr__html_text(b, f->outcome);
     if (f->exposure) put(b, ", exposure log("), mr__html_text(b, f->exposure), put(b, ")");
@@ -266,14 +268,24 @@ static void term_tests(mr__strbuf *b, const mr__html_page *pg, const mr_fit *f)
     }
 }
 
+/* An AIC or BIC as %.8g, or what a family without a log-likelihood
+ * (tweedie) has instead. */
+static const char *criterion(char buf[32], double v)
+{
+    if (isnan(v)) return "not computed";
+    snprintf(buf, 32, "%.8g", v);
+    return buf;
+}
+
 static void statistics(mr__strbuf *b, const mr_fit *f)
 {
+    char aic[32], bic[32];
     mr__strbuf_printf(b, "<h3>Fit statistics</h3>\n<table class=\"num\">\n<tr><td>deviance</td><td>%.8g on %.0f df</td>"
                          "</tr>\n<tr><td>null deviance</td><td>%.8g on %.0f df</td></tr>\n<tr><td>Pearson chi-square"
                          "</td><td>%.8g</td></tr>\n<tr><td>dispersion</td><td>%.8g (%s)</td></tr>\n<tr><td>AIC</td>"
-                         "<td>%.8g</td></tr>\n<tr><td>BIC</td><td>%.8g</td></tr>\n</table>\n",
+                         "<td>%s</td></tr>\n<tr><td>BIC</td><td>%s</td></tr>\n</table>\n",
                       f->deviance, f->df_residual, f->null_deviance, f->df_null, f->pearson, f->dispersion,
-                      f->dispersion_estimated ? "estimated" : "fixed", f->aic, f->bic);
+                      f->dispersion_estimated ? "estimated" : "fixed", criterion(aic, f->aic), criterion(bic, f->bic));
     if (!f->dispersion_estimated && f->df_residual > 0 && f->pearson / f->df_residual > 1.5)
         mr__strbuf_printf(b, "<p class=\"warn\">Pearson chi-square / residual df = %.3g, well above 1: the data vary "
                              "more than the model allows and the intervals are too narrow. Consider dispersion "
@@ -323,8 +335,9 @@ static void comparison(mr__strbuf *b, const mr__html_page *pg)
         fit_name(b, pg, k);
         mr__strbuf_printf(b, "</td><td>%s, %s</td><td>%llu</td><td>%zu</td>", mr__family_name((mr_family)f->family),
                           mr__link_name((mr_link)f->link), (unsigned long long)f->n, f->rank);
-        mr__strbuf_printf(b, "<td>%.8g</td><td>%.0f</td><td>%.8g</td><td>%.8g</td><td>%s</td></tr>\n", f->deviance,
-                          f->df_residual, f->aic, f->bic, f->converged ? "yes" : "NO");
+        char aic[32], bic[32];
+        mr__strbuf_printf(b, "<td>%.8g</td><td>%.0f</td><td>%s</td><td>%s</td><td>%s</td></tr>\n", f->deviance,
+                          f->df_residual, criterion(aic, f->aic), criterion(bic, f->bic), f->converged ? "yes" : "NO");
     }
     put(b, "</tbody></table>\n");
     put(b, same_data(pg) ? "<p>The fits read the same data (same checksum, rows and outcome): lower AIC or BIC "

@@ -83,6 +83,7 @@ static json_t *derived(const mr_fit *f, int which, const void *base, size_t j, i
     case MR__JD_MODIFIED: return utc_time(f->file_mtime_ns);
     case MR__JD_TERM_KIND: return json_string(term_kind(f, base));
     case MR__JD_TERM_TEST: return term_test(f, base);
+    case MR__JD_FAMILY_PARAM_NAME: return mr__fit_family_param_name(f) ? json_string(mr__fit_family_param_name(f)) : json_null();
     }
     *skip = ratio == NULL;
     if (*skip) return NULL;

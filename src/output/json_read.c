@@ -404,11 +404,18 @@ static int spline_knots_ok(const mr__fit_term *t)
 }
 
 /* What the types alone do not say: terms within the coefficients, spline
- * knots in order. */
+ * knots in order, a family's parameter where it has one and only there. */
 static mr_status check_consistent(reader *r)
 {
-    const mr_fit *f = r->fit;
+    mr_fit *f = r->fit;
     size_t i;
+    int takes_param = mr__family_ops_of((mr_family)f->family)->param_name != NULL;
+    if (takes_param != f->family_param_given || (takes_param && isnan(f->family_param))) {
+        enter(r, "model.family_parameter");
+        return bad(r, takes_param ? "is missing or null: the family needs its parameter"
+                                  : "is given for a family without one");
+    }
+    if (!takes_param) f->family_param = NAN;
     if (f->rank > f->p) {
         enter(r, "fit.rank");
         return bad(r, "exceeds the number of coefficients");

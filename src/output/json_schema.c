@@ -80,10 +80,20 @@ static const mr__jfield line_fields[] = {
     END,
 };
 
+/* Written for a family with a parameter of its own (a negative binomial's
+ * theta) and only then, so that a fit of another family keeps its bytes. */
+static const mr__jfield family_param_fields[] = {
+    DERIVED("name", MR__JD_FAMILY_PARAM_NAME),
+    F("value", MR__J_REAL, family_param),
+    END,
+};
+
 static const mr__jfield model_fields[] = {
     F("outcome", MR__J_TEXT, outcome),
     F("trials", MR__J_TEXT_OR_NULL, trials),
     F("family", MR__J_FAMILY, family),
+    {"family_parameter", MR__J_OBJECT_OPTIONAL, 0, AT(family_param_given), 0, 0, 0, 0, NULL, NULL,
+     family_param_fields},
     F("link", MR__J_LINK, link),
     F("offset", MR__J_TEXT_OR_NULL, offset),
     F("exposure", MR__J_TEXT_OR_NULL, exposure),

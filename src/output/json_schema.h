@@ -47,7 +47,8 @@ enum {
     MR__JD_FORMAT, MR__JD_FORMAT_VERSION, MR__JD_LEFT_OUT, MR__JD_STATISTIC, MR__JD_RATIO_LABEL, MR__JD_RATIO,
     MR__JD_RATIO_LOW, MR__JD_RATIO_HIGH, MR__JD_MODIFIED, MR__JD_TERM_KIND,
     MR__JS_MISSING, MR__JS_COVARIANCE, MR__JS_TERM_COLUMNS,
-    MR__JD_TERM_TEST /* a term's joint Wald test (fit/term_test.c), null without one */
+    MR__JD_TERM_TEST, /* a term's joint Wald test (fit/term_test.c), null without one */
+    MR__JD_FAMILY_PARAM_NAME /* the name of the family's own parameter */
 };
 
 typedef struct mr__jfield {

@@ -641,6 +641,12 @@ def fit_r(case, X, y, w, off, trials, tmp):
     args = [RSCRIPT, "--vanilla", prog, rdir, str(n), str(p), case.family,
             R_LINK.get(case.link, case.link), "1" if trials is not None else "0",
             "1" if case.intercept else "0", "1" if case.dispersion == "estimate" else "0"]
+    return run_r(args, rdir)
+
+
+def run_r(args, rdir):
+    """Runs an R reference program that writes rdir/r_out.txt: "coef EST SE"
+    lines, then "NAME VALUE" lines; returns them in the comparison layout."""
     proc = subprocess.run(args, capture_output=True, text=True, timeout=120)
     if proc.returncode != 0:
         raise RuntimeError("Rscript failed: " + proc.stderr.strip()[-500:])

@@ -1,0 +1,70 @@
+/* negative_binomial.c - overdispersed counts with a known theta (the
+ * family's parameter): V(mu) = mu + mu^2 / theta, y >= 0, dispersion fixed
+ * at 1.  With theta fixed this is an exponential family in
+ * t(mu) = log(mu / (mu + theta)), b = theta log((mu + theta) / theta), so its
+ * deviance has the form rows collapse by (family.h, saturated_term) and
+ * its log-likelihood is a data-only sum less half the deviance. */
+#include <math.h>
+
+#include "common/probability.h"
+#include "family/unit.h"
+
+static inline double nb_variance(double theta, double mu) { return mu + mu * mu / theta; }
+
+/* 2 [y log(y/mu) - (y + theta) log((y + theta)/(mu + theta))]: the linear
+ * terms mr__half_poisson adds to each half are both y - mu and cancel. */
+static inline double nb_deviance(double theta, double y, double mu)
+{
+    return 2.0 * (mr__half_poisson(y, mu) - mr__half_poisson(y + theta, mu + theta));
+}
+
+MR__FAMILY_PARAM_KERNELS(nb)
+
+/* h(y) = y t(y) - b(t(y)) = y log(y/(y + theta)) - theta log(1 + y/theta):
+ * of the size of y, where the three logs of the plain form are each of
+ * the size of theta log theta. */
+static double saturated_term(const mr__family *f, double y)
+{
+    double theta = f->param;
+    return mr__xlogy(y, y / (y + theta)) - theta * log1p(y / theta);
+}
+
+/* log Gamma(y + theta) - log Gamma(theta) - log y! plus h(y): the density's
+ * data-only part, so that the log-likelihood is its sum less half the
+ * deviance. */
+static double loglik_row(const mr__family *f, double y, double w, double t, int has_trials)
+{
+    double theta = f->param, prior = w * t;
+    (void)has_trials;
+    return prior * (mr__log_gamma(y + theta) - mr__log_gamma(theta) - mr__log_gamma(y + 1) + saturated_term(f, y));
+}
+
+static mr_status parse_param(double *param, const char *word, const char *origin, mr__error *err)
+{
+    MR__TRY(mr__family_param_value("negative-binomial", "theta", word, param, origin, err));
+    if (!(*param > 0))
+        return mr__fail(err, MR_ERR_USAGE, "%s: theta must be > 0, got '%s'", origin, word + 6);
+    return MR_OK;
+}
+
+const mr__family_ops mr__negative_binomial_family = {
+    .name = "negative-binomial",
+    .canonical_link = MR_LOG, /* the default link: the canonical one depends on theta */
+    .links = MR__LINK_BIT(MR_IDENTITY) | MR__LINK_BIT(MR_LOG) | MR__LINK_BIT(MR_SQRT),
+    .outcome = {0.0, INFINITY, 0, "a count cannot be negative"},
+    .mu_lo = 0.0,
+    .mu_hi = INFINITY,
+    .clamp_mean = mr__clamp_positive_mean,
+    .mustart_n = mr__mustart_count,
+    .variance_n = nb_variance_n,
+    .unit_deviance_n = nb_unit_deviance_n,
+    .loglik_row = loglik_row,
+    .loglik = mr__loglik_fixed_dispersion,
+    .saturated_term = saturated_term,
+    .count_boundary = mr__count_zero_means,
+    .boundary_what = "fitted rates are numerically 0",
+    .boundary_why = "a level or cell with no events drives a coefficient towards minus infinity",
+    .ratio_log = "rate ratio",
+    .parse_param = parse_param,
+    .param_name = "theta",
+};
