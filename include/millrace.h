@@ -383,6 +383,72 @@ MR_API mr_status mr_output_check(const char *path, const char *const *inputs, si
  * else. */
 MR_API void mr_output_unlink_temps(void);
 
+/* ------------------------------------------------------------------ */
+/* Scoring: a fit applied to the rows of a file (README, "Scoring").
+ *
+ *   mr_scorer   borrows a fit (from mr_fitter_run or mr_fit_read_json),
+ *               which must outlive it; holds the options of a run and the
+ *               counts of the last one.  Created by mr_scorer_new (NULL
+ *               only when out of memory), freed by mr_scorer_free (NULL is
+ *               fine).  One thread at a time; any number of scorers may
+ *               share one fit.
+ *
+ * mr_scorer_run reads DATA (CSV or TSV, plain or zstd as a fit reads
+ * it, or standard input as "-") once, in flat memory, on worker
+ * threads, and writes one CSV line (RFC 4180) per data row, in input
+ * order, to `out` by the rules of "Output files" above (DATA counts as
+ * the input): zstd-compressed when `out` ends in ".zst".  Columns: those
+ * kept with mr_scorer_keep, as named, then
+ *   eta        the linear predictor x'b, plus the row's offset and
+ *              log(exposure) when the model has them
+ *   se_eta     sqrt(x' V x), V the fit's covariance (aliased coefficients
+ *              count as 0)
+ *   mean       the inverse link of eta (binomial: the probability)
+ *   mean_low, mean_high   the inverse link of eta -+ z se_eta, z the
+ *              normal quantile of the level (mr_scorer_set_level)
+ * and, when the file has the outcome (and the trials and weight the model
+ * names), resid_response (y - mean), resid_pearson
+ * ((y - mean) sqrt(w / V(mean))) and resid_deviance (sign(y - mean)
+ * sqrt(w d(y, mean))), empty on a row whose outcome is missing.  Numbers
+ * have 17 significant digits (strtod gives the same double back); an
+ * empty field stands for none.  The bytes do not depend on the threads.
+ *
+ * A row the fit cannot score - a factor level the fit never saw, or a
+ * missing cell (empty or NA) in a covariate, offset or exposure - follows
+ * the policy: MR_UNSEEN_FAIL (default) fails the run with MR_ERR_DOMAIN
+ * naming file, line, column and value; MR_UNSEEN_BLANK writes the row with
+ * its kept columns and empty predictions, and counts it.  A cell that is
+ * not a number, or a row with another number of fields than the header,
+ * always fails with MR_ERR_FORMAT; an exposure <= 0 with MR_ERR_DOMAIN.
+ * A column the fit needs (or --keep names) missing from the header:
+ * MR_ERR_USAGE.  On any failure no output is left and an earlier file at
+ * `out` is as it was; mr_scorer_errmsg says why. */
+typedef struct mr_scorer mr_scorer;
+typedef enum mr_unseen { MR_UNSEEN_FAIL = 0, MR_UNSEEN_BLANK = 1 } mr_unseen;
+typedef enum mr_score_count {
+    MR_SCORE_ROWS = 0,    /* data rows written */
+    MR_SCORE_SCORED = 1,  /* rows with predictions */
+    MR_SCORE_UNSEEN = 2,  /* left empty: a level the fit never saw */
+    MR_SCORE_MISSING = 3  /* left empty: a missing covariate, offset or exposure */
+} mr_score_count;
+
+MR_API mr_scorer *mr_scorer_new(const mr_fit *fit);
+MR_API void mr_scorer_free(mr_scorer *s);
+/* The message of the last failed call, or "".  Owned by the scorer. */
+MR_API const char *mr_scorer_errmsg(const mr_scorer *s);
+/* Passes a column of the data through, before the computed ones (copied;
+ * repeatable, in order). */
+MR_API mr_status mr_scorer_keep(mr_scorer *s, const char *column);
+/* Level of the mean's interval, strictly between 0 and 1 (default 0.95). */
+MR_API mr_status mr_scorer_set_level(mr_scorer *s, double level);
+MR_API mr_status mr_scorer_set_unseen(mr_scorer *s, mr_unseen policy);
+/* Worker threads as MR_OPT_THREADS (0 = online CPUs, the default). */
+MR_API mr_status mr_scorer_set_threads(mr_scorer *s, int threads);
+MR_API mr_status mr_scorer_run(mr_scorer *s, const char *data, const char *out);
+/* A count of the last run (also after a failed one: what was written
+ * before it). */
+MR_API uint64_t mr_scorer_count(const mr_scorer *s, mr_score_count which);
+
 /* Number of warnings and the i-th one (owned by the fit): possible
  * separation, aliased columns, non-convergence, ... */
 MR_API size_t mr_fit_nwarnings(const mr_fit *fit);

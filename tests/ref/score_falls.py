@@ -1,0 +1,126 @@
+#!/usr/bin/python3
+"""`millrace score` on the falls sample against statsmodels and an identity.
+
+Oracles:
+  - statsmodels GLM (Debian python3-statsmodels): a GLMResults made from the
+    saved fit's own coefficients and covariance, on a design built with
+    numpy from the fit's coefficient names; get_prediction gives the mean,
+    its interval and (linear=True) eta and its standard error, and
+    resid_response / resid_pearson / resid_deviance the residuals.  Same
+    coefficients on both sides, so they must agree to 1e-10 relative.
+  - analytic identity: for a poisson log-link model with an intercept the
+    score equation of the intercept is sum(y - mu) = 0 at the maximum, so
+    the sum of the fitted means over the fitting data equals the sum of the
+    outcomes (to 1e-9 relative: the fit's convergence tolerance is far
+    tighter in deviance than this).
+  - determinism: 1 and 3 threads, plain and zstd input, give the same bytes;
+    a .zst output decompresses (zstd -dc) to the plain output's bytes.
+
+Prints "ok <case>" / "FAIL <case>: ..." and exits 1 on any failure.
+"""
+import csv
+import json
+import os
+import shutil
+import subprocess
+import sys
+import tempfile
+
+import numpy as np
+import statsmodels.api as sm
+from statsmodels.genmod.generalized_linear_model import GLMResults
+
+ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
+BIN = os.path.join(ROOT, "build", "millrace")
+failures = 0
+
+
+def check(name, ok, detail=""):
+    global failures
+    print(("ok " if ok else "FAIL ") + name + ("" if ok else ": " + detail))
+    failures += 0 if ok else 1
+
+
+def run(*args):
+    subprocess.run([BIN, *args], check=True, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+
+
+def design(names, rows):
+    """The design matrix from coefficient names: '(intercept)', 'col',
+    'col=level', parts joined by ' & '."""
+    X = np.ones((len(rows), len(names)))
+    for j, name in enumerate(names):
+        if name == "(intercept)":
+            continue
+        for part in name.split(" & "):
+            if "=" in part:
+                col, level = part.split("=", 1)
+                X[:, j] *= np.array([r[col] == level for r in rows], dtype=float)
+            else:
+                X[:, j] *= np.array([float(r[part]) for r in rows])
+    return X
+
+
+def rel_close(a, b, tol, floor):
+    """Relative to |b|, or to `floor` where |b| is smaller: a residual near 0
+    is a difference of near-equal numbers, good only to eps times their size."""
+    a, b = np.asarray(a, float), np.asarray(b, float)
+    err = np.abs(a - b) / np.maximum(np.abs(b), floor)
+    return bool(np.all(err <= tol)), float(np.max(err))
+
+
+def main():
+    tmp = tempfile.mkdtemp(prefix="millrace-score-")
+    fit = os.path.join(tmp, "falls.json")
+    plain = os.path.join(tmp, "falls.csv")
+    run("fit", "-m", os.path.join(ROOT, "samples/falls.model"), "--quiet", "--tolerance", "1e-13",
+        "--json", fit, os.path.join(ROOT, "samples/falls.csv.zst"))
+    subprocess.run(["zstd", "-q", "-d", "-f", "-o", plain, os.path.join(ROOT, "samples/falls.csv.zst")], check=True)
+    outs = {}
+    for label, data, threads, out in [("zst-1", "samples/falls.csv.zst", "1", "a.csv"),
+                                      ("zst-3", "samples/falls.csv.zst", "3", "b.csv"),
+                                      ("plain-3", plain, "3", "c.csv"),
+                                      ("zst-out", "samples/falls.csv.zst", "2", "d.csv.zst")]:
+        path = os.path.join(tmp, out)
+        run("score", "--fit", fit, "--out", path, "--threads", threads, "--quiet",
+            os.path.join(ROOT, data) if not os.path.isabs(data) else data)
+        outs[label] = open(path, "rb").read() if not path.endswith(".zst") else subprocess.run(
+            ["zstd", "-dc", path], check=True, stdout=subprocess.PIPE).stdout
+    check("1 and 3 threads give the same bytes", outs["zst-1"] == outs["zst-3"])
+    check("plain and zstd input give the same bytes", outs["zst-1"] == outs["plain-3"])
+    check(".zst output decompresses to the plain output", outs["zst-1"] == outs["zst-out"])
+
+    f = json.load(open(fit))
+    names = [c["name"] for c in f["coefficients"]]
+    beta = np.array([c["estimate"] for c in f["coefficients"]])
+    cov = np.array(f["covariance"]["matrix"] if isinstance(f["covariance"], dict) else f["covariance"], float)
+    rows = list(csv.DictReader(open(plain)))
+    X = design(names, rows)
+    y = np.array([float(r["admissions"]) for r in rows])
+    py = np.array([float(r["person_years"]) for r in rows])
+    model = sm.GLM(y, X, family=sm.families.Poisson(), exposure=py)
+    res = GLMResults(model, beta, cov, 1.0)
+    mean = res.get_prediction(X, exposure=py)
+    lin = mean.linpred  # the linear predictor's prediction (statsmodels 0.13)
+    ci = mean.conf_int(alpha=0.05)
+    got = list(csv.DictReader(outs["zst-1"].decode().splitlines()))
+    col = lambda k: np.array([float(r[k]) for r in got])
+    mu = mean.predicted_mean
+    # residuals: relative to their size, or to that of the mean (response)
+    # or of sqrt(mean) (pearson, deviance) where they are smaller
+    for key, ref, floor in [("eta", lin.predicted_mean, 1e-300), ("se_eta", lin.se_mean, 1e-300),
+                            ("mean", mu, 1e-300), ("mean_low", ci[:, 0], 1e-300), ("mean_high", ci[:, 1], 1e-300),
+                            ("resid_response", res.resid_response, mu),
+                            ("resid_pearson", res.resid_pearson, np.sqrt(mu)),
+                            ("resid_deviance", res.resid_deviance, np.sqrt(mu))]:
+        ok, worst = rel_close(col(key), ref, 1e-10, floor)
+        check(f"{key} against statsmodels to 1e-10 relative", ok, f"worst {worst:.3g}")
+    s_mu, s_y = col("mean").sum(), y.sum()
+    check("sum of fitted means = sum of outcomes (poisson log link, intercept)",
+          abs(s_mu - s_y) <= 1e-9 * s_y, f"{s_mu!r} vs {s_y!r}")
+    shutil.rmtree(tmp)
+    sys.exit(1 if failures else 0)
+
+
+if __name__ == "__main__":
+    main()
