@@ -36,6 +36,11 @@ expect "unparsable number is a format error" 4 $MILLRACE fit --outcome y --numer
 [ -s "$tmp/f.json" ] && grep -q '"format": "millrace-fit"' "$tmp/f.json" && { pass=$((pass + 1)); echo "ok json written"; } ||
     { fail=$((fail + 1)); echo "FAIL json written"; }
 expect "the saved fit read back" 0 $MILLRACE show "$tmp/f.json"
+expect "score, 3 threads, kept column, zstd output" 0 $MILLRACE score --fit "$tmp/f.json" --out "$tmp/s.csv.zst" --keep region --threads 3 --quiet samples/falls.csv.zst
+expect "score from standard input" 0 sh -c "cat samples/falls.csv | $MILLRACE score --fit $tmp/f.json --out $tmp/s.csv --threads 2 --quiet -"
+printf 'age_band,sex,region,year,person_years\n00-04,F,Westvale,2015,10\n00-04,F,,2015,10\n' >"$tmp/new.csv"
+expect "score: unseen level, blank" 0 $MILLRACE score --fit "$tmp/f.json" --out "$tmp/n.csv" --unseen blank "$tmp/new.csv"
+expect "score: unseen level fails" 5 $MILLRACE score --fit "$tmp/f.json" --out "$tmp/n.csv" "$tmp/new.csv"
 # The checksum, recomputed from its documented definition (README, JSON
 # output) by an independent implementation.
 want=$(/usr/bin/python3 -c '
