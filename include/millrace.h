@@ -449,6 +449,36 @@ MR_API mr_status mr_scorer_run(mr_scorer *s, const char *data, const char *out);
  * before it). */
 MR_API uint64_t mr_scorer_count(const mr_scorer *s, mr_score_count which);
 
+/* Observed and expected by group.  mr_scorer_group_by names a grouping
+ * column (copied; repeatable: the groups are the combinations of their
+ * cells met in the data).  A run then also adds up, per group, over the
+ * rows it scored that have the outcome: rows, exposure (the exposure
+ * column's sum; null without one), observed O = sum of w y and expected
+ * E = sum of w mean (w: the trials for binomial, times the weight; 1
+ * otherwise), O/E, and O/E's exact Poisson interval at the scorer's level
+ * (Garwood: lower chi2_{a/2}(2 O) / 2 / E, upper chi2_{1-a/2}(2 (O + 1))
+ * / 2 / E, a = 1 - level; when O = 0 the lower bound is 0 and the upper
+ * the one-sided chi2_{1-a}(2) / 2 / E).  Groups are held in memory, at
+ * most 1,000,000 of them (more: MR_ERR_USAGE); a group column the header
+ * lacks, or a file without the outcome, is MR_ERR_USAGE.  Groups come in
+ * order of first appearance in the data. */
+MR_API mr_status mr_scorer_group_by(mr_scorer *s, const char *column);
+
+typedef enum mr_groups_format {
+    MR_GROUPS_TEXT = 0, /* an aligned table */
+    MR_GROUPS_CSV = 1,  /* RFC 4180, numbers with 17 significant digits */
+    MR_GROUPS_JSON = 2  /* {"level", "by": [..], "groups": [{"key": {col: cell}, ...}]} */
+} mr_groups_format;
+
+/* The last successful run's group table as text in `format` (the caller
+ * frees it with mr_free), or NULL when out of memory or when the run had
+ * no mr_scorer_group_by. */
+MR_API char *mr_scorer_groups_report(const mr_scorer *s, mr_groups_format format);
+/* The same table written to `path` by the rules of "Output files" (the
+ * run's input counts as one).  MR_OK, MR_ERR_USAGE, MR_ERR_IO or
+ * MR_ERR_NO_MEMORY with mr_scorer_errmsg. */
+MR_API mr_status mr_scorer_write_groups(mr_scorer *s, const char *path, mr_groups_format format);
+
 /* Number of warnings and the i-th one (owned by the fit): possible
  * separation, aliased columns, non-convergence, ... */
 MR_API size_t mr_fit_nwarnings(const mr_fit *fit);

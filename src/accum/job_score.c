@@ -14,9 +14,20 @@
 #include "common/strbuf.h"
 #include "family/family.h"
 
+/* A scored row with its outcome, for the groups: its key's bytes in
+ * keys from key_at, and its observed and expected counts and exposure. */
+typedef struct group_row {
+    size_t key_at, key_len;
+    double obs, exp, expo;
+} group_row;
+
 typedef struct score_slot {
     mr__strbuf out;
     uint64_t rows, scored, unseen, missing;
+    mr__strbuf keys;
+    group_row *grow;
+    size_t ngrow, grow_cap;
+    int nomem;
 } score_slot;
 
 typedef struct score_worker {
@@ -35,10 +46,11 @@ typedef struct score_worker {
     double *xval;
     mr__pass_slot *s;
     const mr__chunk *chunk;
+    double expo; /* the row's exposure */
 } score_worker;
 
 typedef struct score_row {
-    double off, y, prior;
+    double off, y, prior, expo;
     int has_y;
 } score_row;
 
@@ -132,6 +144,7 @@ static mr_status score_worker_init(void *job, mr__pass_worker *w, mr__error *err
     if (!sw->lev || !sw->num || !sw->np || !sw->wanted || !sw->at || !sw->len || !sw->seen || !sw->xcol || !sw->xval)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     for (i = 0; i < c->nkeep; i++) sw->wanted[c->keep_field[i]] = MR__FIELD_WANTED;
+    for (i = 0; i < c->nby; i++) sw->wanted[c->by_field[i]] = MR__FIELD_WANTED;
     for (i = 0; i < c->nfac; i++) sw->wanted[c->fac[i].field] = MR__FIELD_WANTED;
     for (i = 0; i < c->nnum; i++) sw->wanted[c->num[i].field] = MR__FIELD_WANTED;
     for (i = 0; i < MR__SCORE_ROLES; i++)
@@ -233,6 +246,7 @@ static int row_offset(score_worker *sw, uint32_t r, double *off)
             return ROW_FAILED;
         }
         *off += log(v);
+        sw->expo = v;
     }
     return ROW_OK;
 }
@@ -334,7 +348,8 @@ static int row_outcome(score_worker *sw, uint32_t r, score_row *row)
     return ROW_OK;
 }
 
-static void put_predictions(const score_worker *sw, mr__strbuf *o, size_t m, const score_row *row)
+/* Writes the row's predictions; returns its mean. */
+static double put_predictions(const score_worker *sw, mr__strbuf *o, size_t m, const score_row *row)
 {
     const mr__score_cfg *c = sw->c;
     mr_link link = (mr_link)c->link;
@@ -348,21 +363,53 @@ static void put_predictions(const score_worker *sw, mr__strbuf *o, size_t m, con
     put_number(o, mu, 1);
     put_number(o, lo < hi ? lo : hi, 1);
     put_number(o, lo < hi ? hi : lo, 1);
-    if (c->role_field[MR__SCORE_OUTCOME] < 0) return;
+    if (c->role_field[MR__SCORE_OUTCOME] < 0) return mu;
     if (!row->has_y) {
         mr__strbuf_append(o, ",,,", 3);
-        return;
+        return mu;
     }
     d = row->prior * mr__family_unit_deviance((mr_family)c->family, row->y, mu);
     put_number(o, row->y - mu, 1);
     put_number(o, (row->y - mu) * sqrt(row->prior / mr__family_variance((mr_family)c->family, mu)), 1);
     put_number(o, (row->y > mu ? 1 : row->y < mu ? -1 : 0) * sqrt(d > 0 ? d : 0), 1);
+    return mu;
+}
+
+/* The row's group key (each cell as its length and bytes) and counts. */
+static void note_group_row(score_worker *sw, score_slot *out, const score_row *row, double mu)
+{
+    const mr__score_cfg *c = sw->c;
+    group_row *g;
+    size_t i, n;
+    if (out->ngrow == out->grow_cap) {
+        size_t cap = out->grow_cap ? 2 * out->grow_cap : 1024;
+        group_row *more = mr__realloc(out->grow, cap * sizeof *more);
+        if (more == NULL) {
+            out->nomem = 1;
+            return;
+        }
+        out->grow = more;
+        out->grow_cap = cap;
+    }
+    g = &out->grow[out->ngrow++];
+    g->key_at = out->keys.len;
+    for (i = 0; i < c->nby; i++) {
+        const char *p = cell(sw, c->by_field[i], &n);
+        unsigned char len[4] = {(unsigned char)n, (unsigned char)(n >> 8), (unsigned char)(n >> 16),
+                                (unsigned char)(n >> 24)};
+        mr__strbuf_append(&out->keys, (const char *)len, 4);
+        mr__strbuf_append(&out->keys, p, n);
+    }
+    g->key_len = out->keys.len - g->key_at;
+    g->obs = row->prior * row->y;
+    g->exp = row->prior * mu;
+    g->expo = c->role_field[MR__SCORE_EXPOSURE] >= 0 ? sw->expo : NAN;
 }
 
 static void score_one(score_worker *sw, uint32_t r, score_slot *out)
 {
     const mr__score_cfg *c = sw->c;
-    score_row row = {0, 0, 1, 0};
+    score_row row = {.off = 0, .y = 0, .prior = 1, .expo = 0, .has_y = 0};
     size_t i, n, ncols = c->role_field[MR__SCORE_OUTCOME] >= 0 ? 8 : 5;
     int why = row_offset(sw, r, &row.off);
     if (why == ROW_OK) why = row_values(sw, r, sw->lev, sw->num);
@@ -375,8 +422,9 @@ static void score_one(score_worker *sw, uint32_t r, score_slot *out)
     }
     out->rows++;
     if (why == ROW_OK) {
-        put_predictions(sw, &out->out, design_row(sw, sw->lev, sw->num), &row);
+        double mu = put_predictions(sw, &out->out, design_row(sw, sw->lev, sw->num), &row);
         out->scored++;
+        if (c->nby && row.has_y) note_group_row(sw, out, &row, mu);
     } else {
         for (i = c->nkeep > 0 ? 0 : 1; i < ncols; i++) mr__strbuf_append(&out->out, ",", 1);
         if (why == ROW_UNSEEN) out->unseen++;
@@ -406,8 +454,9 @@ static void score_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
     score_slot *out = s->part;
     mr__field_sink sink = {.user = sw, .field = on_field, .row_end = on_row_end, .wanted = sw->wanted,
                            .nwanted = c->nfields, .quick = NULL};
-    out->out.len = 0;
+    out->out.len = out->keys.len = 0;
     out->rows = out->scored = out->unseen = out->missing = 0;
+    out->ngrow = 0;
     sw->s = s;
     sw->chunk = s->chunk;
     sw->used = 0;
@@ -415,10 +464,55 @@ static void score_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
     if (st != MR_OK && s->st == MR_OK) s->st = st;
 }
 
+static mr_status grow_groups(mr__score_cfg *c, mr__error *err)
+{
+    size_t cap = c->g_cap ? 2 * c->g_cap : 256;
+    double *o = mr__realloc(c->g_obs, cap * sizeof *o);
+    if (o) c->g_obs = o;
+    double *e = mr__realloc(c->g_exp, cap * sizeof *e);
+    if (e) c->g_exp = e;
+    double *x = mr__realloc(c->g_expo, cap * sizeof *x);
+    if (x) c->g_expo = x;
+    uint64_t *r = mr__realloc(c->g_rows, cap * sizeof *r);
+    if (r) c->g_rows = r;
+    if (!o || !e || !x || !r) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    c->g_cap = cap;
+    return MR_OK;
+}
+
+/* The block's group rows into the totals, in input order. */
+static mr_status add_groups(mr__score_cfg *c, const score_slot *out, mr__error *err)
+{
+    size_t i;
+    int32_t id;
+    mr_status st;
+    if (out->nomem || out->keys.failed) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (i = 0; i < out->ngrow; i++) {
+        const group_row *g = &out->grow[i];
+        size_t before = c->groups.n;
+        st = mr__levelset_add(&c->groups, out->keys.data + g->key_at, g->key_len, &id);
+        if (st == MR_ERR_DOMAIN)
+            return mr__fail(err, MR_ERR_USAGE, "%s: more than %zu groups, the most held in memory", c->display,
+                            c->groups.limit);
+        if (st != MR_OK) return mr__fail(err, st, "out of memory");
+        if (c->groups.n > before) { /* a new group: ids come in order */
+            if ((size_t)id == c->g_cap) MR__TRY(grow_groups(c, err));
+            c->g_obs[id] = c->g_exp[id] = c->g_expo[id] = 0;
+            c->g_rows[id] = 0;
+        }
+        c->g_obs[id] += g->obs;
+        c->g_exp[id] += g->exp;
+        c->g_expo[id] += g->expo;
+        c->g_rows[id]++;
+    }
+    return MR_OK;
+}
+
 static mr_status score_add(void *job, mr__pass_slot *s, mr__error *err)
 {
     mr__score_cfg *c = job;
     score_slot *out = s->part;
+    if (c->nby) MR__TRY(add_groups(c, out, err));
     c->rows += out->rows;
     c->scored += out->scored;
     c->unseen += out->unseen;
@@ -459,6 +553,8 @@ static void score_slot_release(void *job, mr__pass_slot *s)
     (void)job;
     if (out == NULL) return;
     mr__strbuf_release(&out->out);
+    mr__strbuf_release(&out->keys);
+    mr__free(out->grow);
     mr__free(out);
     s->part = NULL;
 }

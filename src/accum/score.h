@@ -68,6 +68,16 @@ typedef struct mr__score_cfg {
     int blank_unscorable; /* 1: an unseen level or missing value writes empty predictions */
     mr__score_write_fn write;
     void *write_user;
+    /* Observed and expected by group (nby > 0): the groups met, in order
+     * of first appearance, their key cells as one string each (each cell
+     * as its 4-byte little-endian length and bytes), and their totals,
+     * added on the calling thread in input order. */
+    size_t nby;
+    size_t *by_field;
+    mr__levelset groups; /* its limit: the most groups held */
+    double *g_obs, *g_exp, *g_expo;
+    uint64_t *g_rows;
+    size_t g_cap;
     /* counts, by the job's add */
     uint64_t rows, scored, unseen, missing;
 } mr__score_cfg;

@@ -17,7 +17,8 @@ enum {
     OPT_OUTCOME = 256, OPT_TRIALS, OPT_FAMILY, OPT_LINK, OPT_NUMERIC, OPT_FACTOR, OPT_INTERACT, OPT_OFFSET,
     OPT_EXPOSURE, OPT_WEIGHT, OPT_NO_INTERCEPT, OPT_DISPERSION, OPT_THREADS, OPT_BUFFER, OPT_TOLERANCE,
     OPT_MAX_PASSES, OPT_LEVEL, OPT_DELIMITER, OPT_MISSING, OPT_IN_MEMORY, OPT_ON_BAD_ROW, OPT_JSON, OPT_QUIET,
-    OPT_DIGITS, OPT_NO_CACHE, OPT_NO_COLLAPSE, OPT_HELP, OPT_FIT, OPT_OUT, OPT_KEEP, OPT_UNSEEN
+    OPT_DIGITS, OPT_NO_CACHE, OPT_NO_COLLAPSE, OPT_HELP, OPT_FIT, OPT_OUT, OPT_KEEP, OPT_UNSEEN, OPT_BY,
+    OPT_BY_OUT
 };
 
 static const struct option long_options[] = {
@@ -53,6 +54,8 @@ static const struct option long_options[] = {
     {"out", required_argument, NULL, OPT_OUT},
     {"keep", required_argument, NULL, OPT_KEEP},
     {"unseen", required_argument, NULL, OPT_UNSEEN},
+    {"by", required_argument, NULL, OPT_BY},
+    {"by-out", required_argument, NULL, OPT_BY_OUT},
     {NULL, 0, NULL, 0},
 };
 
@@ -60,7 +63,8 @@ static const char usage_text[] =
     "usage: millrace fit [options] DATA     fit a GLM to DATA (CSV, TSV, zstd-compressed, or - for stdin)\n"
     "       millrace show [--digits N] FIT.json   the report of a fit saved with --json\n"
     "       millrace score --fit FIT.json --out FILE[.zst] [--keep COL]... [--level P]\n"
-    "                      [--unseen fail|blank] [--threads N] DATA   predictions and residuals per row\n"
+    "                      [--unseen fail|blank] [--threads N] [--by COL]... [--by-out PATH] DATA\n"
+    "                      predictions and residuals per row; observed/expected by group\n"
     "       millrace version | help\n"
     "\n"
     "model (each option takes the words of the model-file line of the same name):\n"
@@ -395,8 +399,8 @@ static int close_stdout(int rc)
 }
 
 typedef struct score_cli {
-    const char *fit_path, *out_path;
-    int quiet;
+    const char *fit_path, *out_path, *by_out;
+    int quiet, by;
 } score_cli;
 
 static int score_option(mr_scorer *s, score_cli *o, int opt, const char *arg)
@@ -408,6 +412,8 @@ static int score_option(mr_scorer *s, score_cli *o, int opt, const char *arg)
     case OPT_OUT: o->out_path = arg; return 0;
     case OPT_QUIET: o->quiet = 1; return 0;
     case OPT_KEEP: return mr_scorer_keep(s, arg) == MR_OK ? 0 : fail(MR_ERR_NO_MEMORY, "out of memory");
+    case OPT_BY: o->by = 1; return mr_scorer_group_by(s, arg) == MR_OK ? 0 : fail(MR_ERR_NO_MEMORY, "out of memory");
+    case OPT_BY_OUT: o->by_out = arg; return 0;
     case OPT_UNSEEN:
         if (strcmp(arg, "fail") != 0 && strcmp(arg, "blank") != 0) return usage_error("--unseen takes fail or blank");
         return mr_scorer_set_unseen(s, strcmp(arg, "blank") == 0 ? MR_UNSEEN_BLANK : MR_UNSEEN_FAIL);
@@ -418,7 +424,7 @@ static int score_option(mr_scorer *s, score_cli *o, int opt, const char *arg)
         if (parse_count(arg, &n) != 0 || n > 256 || mr_scorer_set_threads(s, (int)n) != MR_OK)
             return usage_error("--threads takes 0 to 256");
         return 0;
-    default: return usage_error("score takes --fit, --out, --keep, --level, --unseen, --threads, --quiet");
+    default: return usage_error("score takes --fit, --out, --keep, --level, --unseen, --threads, --by, --by-out, --quiet");
     }
 }
 
@@ -430,6 +436,31 @@ static void score_summary(const mr_scorer *s, const char *out)
             (unsigned long long)(mr_scorer_count(s, MR_SCORE_UNSEEN) + mr_scorer_count(s, MR_SCORE_MISSING)),
             (unsigned long long)mr_scorer_count(s, MR_SCORE_UNSEEN),
             (unsigned long long)mr_scorer_count(s, MR_SCORE_MISSING));
+}
+
+static int ends_with(const char *s, const char *tail)
+{
+    size_t n = strlen(s), t = strlen(tail);
+    return n >= t && strcmp(s + n - t, tail) == 0;
+}
+
+/* The observed/expected table: to --by-out (its format from its name), or
+ * as text on standard output. */
+static int write_groups(mr_scorer *s, const score_cli *o)
+{
+    mr_groups_format f = MR_GROUPS_TEXT;
+    char *text;
+    mr_status st;
+    if (o->by_out) {
+        if (ends_with(o->by_out, ".json")) f = MR_GROUPS_JSON;
+        else if (ends_with(o->by_out, ".csv")) f = MR_GROUPS_CSV;
+        st = mr_scorer_write_groups(s, o->by_out, f);
+        return st == MR_OK ? 0 : fail(st, mr_scorer_errmsg(s));
+    }
+    if ((text = mr_scorer_groups_report(s, MR_GROUPS_TEXT)) == NULL) return fail(MR_ERR_NO_MEMORY, "out of memory");
+    fputs(text, stdout);
+    mr_free(text);
+    return 0;
 }
 
 /* Each row of DATA scored with a saved fit (README, "Scoring"). */
@@ -446,12 +477,14 @@ static int run_score(mr_scorer *s, score_cli *o, int argc, char **argv)
     }
     if (optind != argc - 1) return usage_error("score takes exactly one data file (or - for standard input)");
     if (o->fit_path == NULL || o->out_path == NULL) return usage_error("score needs --fit and --out");
+    if (o->by_out && !o->by) return usage_error("--by-out needs --by");
     inputs[0] = argv[optind];
     inputs[1] = o->fit_path;
     if ((st = mr_output_check(o->out_path, inputs, 2, msg, sizeof msg)) != MR_OK) return fail(st, msg);
+    if (o->by_out && (st = mr_output_check(o->by_out, inputs, 2, msg, sizeof msg)) != MR_OK) return fail(st, msg);
     if ((st = mr_scorer_run(s, argv[optind], o->out_path)) != MR_OK) return fail(st, mr_scorer_errmsg(s));
     if (!o->quiet) score_summary(s, o->out_path);
-    return 0;
+    return o->by ? write_groups(s, o) : 0;
 }
 
 static int score(int argc, char **argv)

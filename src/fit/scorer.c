@@ -15,18 +15,9 @@
 #include "common/probability.h"
 #include "common/utf8.h"
 #include "fit/fit.h"
+#include "fit/scorer.h"
 
 #define SCORER_MAX_THREADS 64
-
-struct mr_scorer {
-    const mr_fit *fit;
-    mr__error err;
-    char **keep;
-    size_t nkeep;
-    double level;
-    int blank, threads;
-    uint64_t count[4];
-};
 
 mr_scorer *mr_scorer_new(const mr_fit *fit)
 {
@@ -37,27 +28,52 @@ mr_scorer *mr_scorer_new(const mr_fit *fit)
     return s;
 }
 
+void mr__score_groups_release(mr__score_groups *g)
+{
+    mr__levelset_release(&g->groups);
+    mr__free(g->obs);
+    mr__free(g->exp);
+    mr__free(g->expo);
+    mr__free(g->rows);
+    memset(g, 0, sizeof *g);
+}
+
 void mr_scorer_free(mr_scorer *s)
 {
     size_t i;
     if (s == NULL) return;
     for (i = 0; i < s->nkeep; i++) mr__free(s->keep[i]);
+    for (i = 0; i < s->nby; i++) mr__free(s->by[i]);
     mr__free(s->keep);
+    mr__free(s->by);
+    mr__free(s->data);
+    mr__score_groups_release(&s->g);
     mr__free(s);
+}
+
+static char *copy_text(const char *t)
+{
+    size_t n = strlen(t) + 1;
+    char *c = mr__malloc(n);
+    if (c) memcpy(c, t, n);
+    return c;
 }
 
 const char *mr_scorer_errmsg(const mr_scorer *s) { return s->err.msg; }
 
-mr_status mr_scorer_keep(mr_scorer *s, const char *column)
+static mr_status add_name(mr_scorer *s, char ***list, size_t *n, const char *column)
 {
-    size_t n = strlen(column);
-    char **k = mr__realloc(s->keep, (s->nkeep + 1) * sizeof *k);
+    char **k = mr__realloc(*list, (*n + 1) * sizeof *k);
     if (k == NULL) return mr__fail(&s->err, MR_ERR_NO_MEMORY, "out of memory");
-    s->keep = k;
-    if ((k[s->nkeep] = mr__malloc(n + 1)) == NULL) return mr__fail(&s->err, MR_ERR_NO_MEMORY, "out of memory");
-    memcpy(k[s->nkeep++], column, n + 1);
+    *list = k;
+    if ((k[*n] = copy_text(column)) == NULL) return mr__fail(&s->err, MR_ERR_NO_MEMORY, "out of memory");
+    ++*n;
     return MR_OK;
 }
+
+mr_status mr_scorer_keep(mr_scorer *s, const char *column) { return add_name(s, &s->keep, &s->nkeep, column); }
+
+mr_status mr_scorer_group_by(mr_scorer *s, const char *column) { return add_name(s, &s->by, &s->nby, column); }
 
 mr_status mr_scorer_set_level(mr_scorer *s, double level)
 {
@@ -254,8 +270,16 @@ static mr_status on_header(void *user, const char *line, size_t len, mr__error *
     if (g->c.keep_field == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     for (i = 0; i < g->s->nkeep; i++) MR__TRY(need_field(g, g->s->keep[i], "--keep", &g->c.keep_field[i], err));
     g->c.nkeep = g->s->nkeep;
+    g->c.by_field = mr__calloc(g->s->nby + 1, sizeof *g->c.by_field);
+    if (g->c.by_field == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (i = 0; i < g->s->nby; i++) MR__TRY(need_field(g, g->s->by[i], "--by", &g->c.by_field[i], err));
+    g->c.nby = g->s->nby;
     g->c.keep_name = (const char *const *)g->s->keep;
-    return bind_roles(g, err);
+    MR__TRY(bind_roles(g, err));
+    if (g->c.nby && g->c.role_field[MR__SCORE_OUTCOME] < 0)
+        return mr__fail(err, MR_ERR_USAGE, "%s: --by needs the outcome '%s' (and the trials and weight the fit names)",
+                        g->display, g->c.role_name[MR__SCORE_OUTCOME]);
+    return MR_OK;
 }
 
 /* ---- the output ---------------------------------------------------------- */
@@ -313,6 +337,12 @@ static void release_scoring(scoring *g)
     mr__free((void *)g->c.beta);
     mr__free((void *)g->c.cov);
     mr__free(g->c.keep_field);
+    mr__free(g->c.by_field);
+    mr__levelset_release(&g->c.groups);
+    mr__free(g->c.g_obs);
+    mr__free(g->c.g_exp);
+    mr__free(g->c.g_expo);
+    mr__free(g->c.g_rows);
     if (g->header) mr__free_names(g->header, g->nheader);
     mr__outfile_abort(g->out);
     ZSTD_freeCCtx(g->z);
@@ -360,6 +390,20 @@ static mr_status run_pass(scoring *g, const char *data, mr__error *err)
     return st;
 }
 
+/* The run's group totals become the scorer's. */
+static void keep_groups(mr_scorer *s, scoring *g)
+{
+    s->g.groups = g->c.groups;
+    s->g.obs = g->c.g_obs;
+    s->g.exp = g->c.g_exp;
+    s->g.expo = g->c.g_expo;
+    s->g.rows = g->c.g_rows;
+    s->g.n = g->c.groups.n;
+    memset(&g->c.groups, 0, sizeof g->c.groups);
+    g->c.g_obs = g->c.g_exp = g->c.g_expo = NULL;
+    g->c.g_rows = NULL;
+}
+
 mr_status mr_scorer_run(mr_scorer *s, const char *data, const char *out)
 {
     scoring g;
@@ -367,7 +411,12 @@ mr_status mr_scorer_run(mr_scorer *s, const char *data, const char *out)
     memset(&g, 0, sizeof g);
     memset(s->count, 0, sizeof s->count);
     mr__error_clear(&s->err);
+    mr__score_groups_release(&s->g);
+    mr__free(s->data);
+    if ((s->data = copy_text(data)) == NULL) return mr__fail(&s->err, MR_ERR_NO_MEMORY, "out of memory");
     g.s = s;
+    mr__levelset_init(&g.c.groups);
+    g.c.groups.limit = MR__SCORE_MAX_GROUPS;
     mr__utf8_mend_cut(g.display, sizeof g.display,
                       snprintf(g.display, sizeof g.display, "%s", strcmp(data, "-") == 0 ? "<stdin>" : data));
     st = make_model(&g, &s->err);
@@ -382,6 +431,7 @@ mr_status mr_scorer_run(mr_scorer *s, const char *data, const char *out)
     s->count[MR_SCORE_SCORED] = g.c.scored;
     s->count[MR_SCORE_UNSEEN] = g.c.unseen;
     s->count[MR_SCORE_MISSING] = g.c.missing;
+    if (st == MR_OK) keep_groups(s, &g);
     release_scoring(&g);
     return st;
 }

@@ -53,4 +53,18 @@ check "output over the fit refused: exit 2" test $? -eq 2
 check "--keep naming no column: exit 2" test $? -eq 2
 "$bin" score --fit "$tmp/f.json" --out "$tmp/x.csv" --unseen maybe "$tmp/new.csv" 2>/dev/null
 check "--unseen takes fail or blank: exit 2" test $? -eq 2
+"$bin" score --fit "$tmp/f.json" --out "$tmp/g1.csv" --by region --by sex --by-out "$tmp/g1.json" --threads 1 --quiet samples/falls.csv.zst &&
+    "$bin" score --fit "$tmp/f.json" --out "$tmp/g3.csv" --by region --by sex --by-out "$tmp/g3.json" --threads 3 --quiet samples/falls.csv.zst
+check "groups: the same bytes with 1 and 3 threads" cmp -s "$tmp/g1.json" "$tmp/g3.json"
+check "groups: 16 region x sex groups" test "$(grep -c '"key"' "$tmp/g1.json")" -eq 16
+printf 'age_band,sex,region,year,person_years\n00-04,F,Eastmoor,2015,100\n' >"$tmp/no_outcome.csv"
+"$bin" score --fit "$tmp/f.json" --out "$tmp/x.csv" --quiet "$tmp/no_outcome.csv"
+check "a file without the outcome scores (no residual columns)" test "$(head -1 "$tmp/x.csv")" = "eta,se_eta,mean,mean_low,mean_high"
+"$bin" score --fit "$tmp/f.json" --out "$tmp/x.csv" --by region "$tmp/no_outcome.csv" 2>"$tmp/err"
+check "--by on a file without the outcome: exit 2" test $? -eq 2
+check "and says so" grep -q "needs the outcome 'admissions'" "$tmp/err"
+"$bin" score --fit "$tmp/f.json" --out "$tmp/x.csv" --by region --by-out "$tmp/keep.csv" "$tmp/keep.csv" 2>/dev/null
+check "--by-out over the input refused: exit 2" test $? -eq 2
+"$bin" score --fit "$tmp/f.json" --out "$tmp/x.csv" --by-out "$tmp/g.txt" "$tmp/new.csv" 2>/dev/null
+check "--by-out without --by: exit 2" test $? -eq 2
 finish

@@ -13,6 +13,12 @@ Oracles:
     the sum of the fitted means over the fitting data equals the sum of the
     outcomes (to 1e-9 relative: the fit's convergence tolerance is far
     tighter in deviance than this).
+  - observed/expected by group (--by): for each level of a factor of such
+    a model, the score equation of its indicator gives sum(y - mu) = 0 over
+    the level's rows, so O = E per region (1e-9 relative); the Garwood
+    interval against scipy.stats.chi2.ppf (1e-9 relative), with the
+    one-sided upper bound where O = 0; rows and exposure against sums taken
+    here.
   - determinism: 1 and 3 threads, plain and zstd input, give the same bytes;
     a .zst output decompresses (zstd -dc) to the plain output's bytes.
 
@@ -28,6 +34,7 @@ import tempfile
 
 import numpy as np
 import statsmodels.api as sm
+from scipy.stats import chi2
 from statsmodels.genmod.generalized_linear_model import GLMResults
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
@@ -67,6 +74,47 @@ def rel_close(a, b, tol, floor):
     a, b = np.asarray(a, float), np.asarray(b, float)
     err = np.abs(a - b) / np.maximum(np.abs(b), floor)
     return bool(np.all(err <= tol)), float(np.max(err))
+
+
+def garwood(o, e, level):
+    a = 1 - level
+    low = chi2.ppf(a / 2, 2 * o) / 2 / e if o > 0 else 0.0
+    high = (chi2.ppf(1 - a / 2, 2 * (o + 1)) if o > 0 else chi2.ppf(1 - a, 2)) / 2 / e
+    return low, high
+
+
+def check_groups(fit, plain, rows, tmp):
+    table = os.path.join(tmp, "groups.json")
+    run("score", "--fit", fit, "--out", os.path.join(tmp, "g.csv"), "--by", "region", "--by-out", table,
+        "--quiet", plain)
+    groups = json.load(open(table))["groups"]
+    want_rows = {}
+    for r in rows:
+        g = want_rows.setdefault(r["region"], [0, 0.0])
+        g[0] += 1
+        g[1] += float(r["person_years"])
+    ok = all(g["rows"] == want_rows[g["key"]["region"]][0] and
+             abs(g["exposure"] - want_rows[g["key"]["region"]][1]) <= 1e-12 * g["exposure"] for g in groups)
+    check("groups: rows and exposure", ok and len(groups) == len(want_rows))
+    worst = max(abs(g["observed"] - g["expected"]) / g["observed"] for g in groups)
+    check("groups by a factor of the model: O = E (score equations)", worst <= 1e-9, f"worst {worst:.3g}")
+    worst = 0.0
+    for g in groups:
+        low, high = garwood(g["observed"], g["expected"], 0.95)
+        worst = max(worst, abs(g["o_e_low"] - low) / low, abs(g["o_e_high"] - high) / high)
+    check("groups: Garwood interval against scipy chi2.ppf", worst <= 1e-9, f"worst {worst:.3g}")
+    # O = 0 and small O: rows of one region with the outcome set to 0 or 1.
+    small = os.path.join(tmp, "small.csv")
+    with open(small, "w") as f:
+        f.write("age_band,sex,region,year,person_years,admissions\n")
+        f.write("00-04,F,Eastmoor,2015,1000,0\n00-04,F,Highcairn,2015,1000,1\n00-04,M,Highcairn,2016,900,2\n")
+    run("score", "--fit", fit, "--out", os.path.join(tmp, "s.csv"), "--by", "region", "--level", "0.9",
+        "--by-out", table, "--quiet", small)
+    worst = 0.0
+    for g in json.load(open(table))["groups"]:
+        low, high = garwood(g["observed"], g["expected"], 0.9)
+        worst = max(worst, abs(g["o_e_low"] - low) / max(low, 1e-300), abs(g["o_e_high"] - high) / high)
+    check("groups: O = 0 (one-sided upper bound) and O = 1, 2 at level 0.9", worst <= 1e-9, f"worst {worst:.3g}")
 
 
 def main():
@@ -118,6 +166,7 @@ def main():
     s_mu, s_y = col("mean").sum(), y.sum()
     check("sum of fitted means = sum of outcomes (poisson log link, intercept)",
           abs(s_mu - s_y) <= 1e-9 * s_y, f"{s_mu!r} vs {s_y!r}")
+    check_groups(fit, plain, rows, tmp)
     shutil.rmtree(tmp)
     sys.exit(1 if failures else 0)
 
