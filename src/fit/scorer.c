@@ -229,11 +229,17 @@ static long field_of(const scoring *g, const char *name)
     return -1;
 }
 
+/* A column the run reads: there, and there once (which would it be?). */
 static mr_status need_field(const scoring *g, const char *name, const char *what, size_t *field, mr__error *err)
 {
     long f = field_of(g, name);
+    size_t i;
     if (f < 0) return mr__fail(err, MR_ERR_USAGE, "%s: the %s names column '%s', which the header does not have",
                                g->display, what, name);
+    for (i = (size_t)f + 1; i < g->nheader; i++)
+        if (strcmp(g->header[i], name) == 0)
+            return mr__fail(err, MR_ERR_FORMAT, "%s:1:%zu: duplicate column name '%s' (also column %ld)", g->display,
+                            i + 1, name, f + 1);
     *field = (size_t)f;
     return MR_OK;
 }

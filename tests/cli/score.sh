@@ -3,7 +3,7 @@
 # score, both ways; outputs refused over an input; a .zst output is the
 # plain output compressed; no temporary file left after a failure.
 # The numbers themselves are checked against statsmodels in
-# tests/ref/score_falls.py.
+# tests/ref/score_samples.py.
 # shellcheck source=tests/cli/common.bash
 source "$(dirname "$0")/common.bash"
 cd "$root" || exit 1
@@ -67,4 +67,8 @@ check "and says so" grep -q "needs the outcome 'admissions'" "$tmp/err"
 check "--by-out over the input refused: exit 2" test $? -eq 2
 "$bin" score --fit "$tmp/f.json" --out "$tmp/x.csv" --by-out "$tmp/g.txt" "$tmp/new.csv" 2>/dev/null
 check "--by-out without --by: exit 2" test $? -eq 2
+printf 'age_band,sex,region,year,person_years,region\n00-04,F,Eastmoor,2015,100,Eastmoor\n' >"$tmp/dup.csv"
+"$bin" score --fit "$tmp/f.json" --out "$tmp/x.csv" "$tmp/dup.csv" 2>"$tmp/err"
+check "a column the fit needs twice in the header: exit 4" test $? -eq 4
+check "and names both" grep -qF "dup.csv:1:6: duplicate column name 'region' (also column 3)" "$tmp/err"
 finish

@@ -1,13 +1,16 @@
 #!/usr/bin/python3
-"""`millrace score` on the falls sample against statsmodels and an identity.
+"""`millrace score` on the samples against statsmodels and identities.
 
 Oracles:
   - statsmodels GLM (Debian python3-statsmodels): a GLMResults made from the
     saved fit's own coefficients and covariance, on a design built with
     numpy from the fit's coefficient names; get_prediction gives the mean,
-    its interval and (linear=True) eta and its standard error, and
+    its interval and (its linpred) eta and its standard error, and
     resid_response / resid_pearson / resid_deviance the residuals.  Same
-    coefficients on both sides, so they must agree to 1e-10 relative.
+    coefficients on both sides, so they must agree to 1e-10 relative
+    (residuals near 0 relative to the size of what they difference).
+    The falls sample (poisson log link, exposure, interaction) and the
+    screening sample (binomial logit, numerics, missing cells left empty).
   - analytic identity: for a poisson log-link model with an intercept the
     score equation of the intercept is sum(y - mu) = 0 at the maximum, so
     the sum of the fitted means over the fitting data equals the sum of the
@@ -117,6 +120,38 @@ def check_groups(fit, plain, rows, tmp):
     check("groups: O = 0 (one-sided upper bound) and O = 1, 2 at level 0.9", worst <= 1e-9, f"worst {worst:.3g}")
 
 
+def check_screening(tmp):
+    """The logistic sample: a binomial logit fit with numerics and factors,
+    scored with --unseen blank (rows with a missing bmi are left empty),
+    against statsmodels on the rows with predictions."""
+    fit = os.path.join(tmp, "screening.json")
+    data = os.path.join(ROOT, "samples/screening.csv")
+    out = os.path.join(tmp, "screening-scored.csv")
+    run("fit", "-m", os.path.join(ROOT, "samples/screening.model"), "--quiet", "--json", fit, data)
+    run("score", "--fit", fit, "--out", out, "--unseen", "blank", "--keep", "id", "--quiet", data)
+    f = json.load(open(fit))
+    names = [c["name"] for c in f["coefficients"]]
+    beta = np.array([c["estimate"] for c in f["coefficients"]])
+    cov = np.array(f["covariance"], float)
+    rows = [r for r in csv.DictReader(open(data)) if r["bmi"] not in ("", "NA")]
+    got = [r for r in csv.DictReader(open(out)) if r["eta"] != ""]
+    check("screening: the rows with predictions are the complete rows",
+          [r["id"] for r in got] == [r["id"] for r in rows])
+    X = design(names, rows)
+    y = np.array([float(r["attended"]) for r in rows])
+    res = GLMResults(sm.GLM(y, X, family=sm.families.Binomial()), beta, cov, 1.0)
+    pred = res.get_prediction(X)
+    mu, ci = pred.predicted_mean, pred.conf_int(alpha=0.05)
+    col = lambda k: np.array([float(r[k]) for r in got])
+    worst = 0.0
+    for key, ref, floor in [("eta", pred.linpred.predicted_mean, 1e-300), ("se_eta", pred.linpred.se_mean, 1e-300),
+                            ("mean", mu, 1e-300), ("mean_low", ci[:, 0], 1e-300), ("mean_high", ci[:, 1], 1e-300),
+                            ("resid_response", res.resid_response, 1.0), ("resid_pearson", res.resid_pearson, 1.0),
+                            ("resid_deviance", res.resid_deviance, 1.0)]:
+        worst = max(worst, rel_close(col(key), ref, 1e-10, floor)[1])
+    check("screening (binomial logit): every column against statsmodels to 1e-10", worst <= 1e-10, f"worst {worst:.3g}")
+
+
 def main():
     tmp = tempfile.mkdtemp(prefix="millrace-score-")
     fit = os.path.join(tmp, "falls.json")
@@ -167,6 +202,7 @@ def main():
     check("sum of fitted means = sum of outcomes (poisson log link, intercept)",
           abs(s_mu - s_y) <= 1e-9 * s_y, f"{s_mu!r} vs {s_y!r}")
     check_groups(fit, plain, rows, tmp)
+    check_screening(tmp)
     shutil.rmtree(tmp)
     sys.exit(1 if failures else 0)
 
