@@ -400,7 +400,7 @@ static int close_stdout(int rc)
 
 typedef struct score_cli {
     const char *fit_path, *out_path, *by_out;
-    int quiet, by;
+    int quiet, by, help;
 } score_cli;
 
 static int score_option(mr_scorer *s, score_cli *o, int opt, const char *arg)
@@ -414,6 +414,7 @@ static int score_option(mr_scorer *s, score_cli *o, int opt, const char *arg)
     case OPT_KEEP: return mr_scorer_keep(s, arg) == MR_OK ? 0 : fail(MR_ERR_NO_MEMORY, "out of memory");
     case OPT_BY: o->by = 1; return mr_scorer_group_by(s, arg) == MR_OK ? 0 : fail(MR_ERR_NO_MEMORY, "out of memory");
     case OPT_BY_OUT: o->by_out = arg; return 0;
+    case OPT_HELP: o->help = 1; return 0;
     case OPT_UNSEEN:
         if (strcmp(arg, "fail") != 0 && strcmp(arg, "blank") != 0) return usage_error("--unseen takes fail or blank");
         return mr_scorer_set_unseen(s, strcmp(arg, "blank") == 0 ? MR_UNSEEN_BLANK : MR_UNSEEN_FAIL);
@@ -475,6 +476,10 @@ static int run_score(mr_scorer *s, score_cli *o, int argc, char **argv)
         if (opt == '?') return usage_error("bad option");
         if ((rc = score_option(s, o, opt, optarg)) != 0) return rc;
     }
+    if (o->help) {
+        fputs(usage_text, stdout);
+        return 0;
+    }
     if (optind != argc - 1) return usage_error("score takes exactly one data file (or - for standard input)");
     if (o->fit_path == NULL || o->out_path == NULL) return usage_error("score needs --fit and --out");
     if (o->by_out && !o->by) return usage_error("--by-out needs --by");
@@ -500,6 +505,7 @@ static int score(int argc, char **argv)
     for (i = 1; i < argc && strcmp(argv[i], "--") != 0; i++) {
         if (strcmp(argv[i], "--fit") == 0 && i + 1 < argc) o.fit_path = argv[++i];
         else if (strncmp(argv[i], "--fit=", 6) == 0) o.fit_path = argv[i] + 6;
+        else if (strcmp(argv[i], "--help") == 0) return fputs(usage_text, stdout), 0;
     }
     if (o.fit_path == NULL) return usage_error("score needs --fit FIT.json");
     if ((st = mr_fit_read_json(o.fit_path, &fit, msg, sizeof msg)) != MR_OK) return fail(st, msg);
