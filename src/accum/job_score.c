@@ -36,7 +36,6 @@ typedef struct score_worker {
     mr__numparser *np;
     unsigned char *wanted; /* per header field */
     size_t *at, *len;      /* per field: its bytes in buf */
-    unsigned char *seen;
     char *buf;
     size_t used, cap;
     int nomem;
@@ -136,12 +135,11 @@ static mr_status score_worker_init(void *job, mr__pass_worker *w, mr__error *err
     sw->wanted = mr__calloc(nf, 1);
     sw->at = mr__calloc(nf, sizeof *sw->at);
     sw->len = mr__calloc(nf, sizeof *sw->len);
-    sw->seen = mr__calloc(nf, 1);
     sw->xcol = mr__calloc(nx, sizeof *sw->xcol);
     sw->xval = mr__calloc(nx, sizeof *sw->xval);
     sw->lev = mr__calloc(c->nfac + 1, sizeof *sw->lev);
     sw->num = mr__calloc(c->nnum + 1, sizeof *sw->num);
-    if (!sw->lev || !sw->num || !sw->np || !sw->wanted || !sw->at || !sw->len || !sw->seen || !sw->xcol || !sw->xval)
+    if (!sw->lev || !sw->num || !sw->np || !sw->wanted || !sw->at || !sw->len || !sw->xcol || !sw->xval)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     for (i = 0; i < c->nkeep; i++) sw->wanted[c->keep_field[i]] = MR__FIELD_WANTED;
     for (i = 0; i < c->nby; i++) sw->wanted[c->by_field[i]] = MR__FIELD_WANTED;
@@ -176,7 +174,6 @@ static void on_field(void *user, size_t k, const char *p, size_t len)
     memcpy(sw->buf + sw->used, p, len);
     sw->at[k] = sw->used;
     sw->len[k] = len;
-    sw->seen[k] = 1;
     sw->used += len;
 }
 
@@ -537,7 +534,6 @@ static void score_worker_release(void *job, mr__pass_worker *w)
     mr__free(sw->wanted);
     mr__free(sw->at);
     mr__free(sw->len);
-    mr__free(sw->seen);
     mr__free(sw->buf);
     mr__free(sw->lev);
     mr__free(sw->num);
