@@ -570,6 +570,101 @@ MR_API mr_status mr_drift_write_json(const mr_drift *d, const char *path, const 
 MR_API mr_status mr_drift_write_csv(const mr_drift *d, const char *path, const char *const *inputs, size_t ninputs,
                                     char *msg, size_t msgcap);
 
+/* Scoring: a fit applied to the rows of a file (README, "Scoring").
+ *
+ *   mr_scorer   borrows a fit (from mr_fitter_run or mr_fit_read_json),
+ *               which must outlive it; holds the options of a run and the
+ *               counts of the last one.  Created by mr_scorer_new (NULL
+ *               only when out of memory), freed by mr_scorer_free (NULL is
+ *               fine).  One thread at a time; any number of scorers may
+ *               share one fit.
+ *
+ * mr_scorer_run reads DATA (CSV or TSV, plain, zstd or gzip as a fit reads
+ * it, or standard input as "-") once, in flat memory, on worker
+ * threads, and writes one CSV line (RFC 4180) per data row, in input
+ * order, to `out` by the rules of "Output files" above (DATA counts as
+ * the input): zstd-compressed when `out` ends in ".zst".  Columns: those
+ * kept with mr_scorer_keep, as named, then
+ *   eta        the linear predictor x'b, plus the row's offset and
+ *              log(exposure) when the model has them
+ *   se_eta     sqrt(x' V x), V the fit's covariance (aliased coefficients
+ *              count as 0)
+ *   mean       the inverse link of eta (binomial: the probability)
+ *   mean_low, mean_high   the inverse link of eta -+ z se_eta, z the
+ *              normal quantile of the level (mr_scorer_set_level)
+ * and, when the file has the outcome (and the trials and weight the model
+ * names), resid_response (y - mean), resid_pearson
+ * ((y - mean) sqrt(w / V(mean))) and resid_deviance (sign(y - mean)
+ * sqrt(w d(y, mean))), empty on a row whose outcome is missing.  Numbers
+ * have 17 significant digits (strtod gives the same double back); an
+ * empty field stands for none.  The bytes do not depend on the threads.
+ *
+ * A row the fit cannot score - a factor level the fit never saw, or a
+ * missing cell (empty or NA) in a covariate, offset or exposure - follows
+ * the policy: MR_UNSEEN_FAIL (default) fails the run with MR_ERR_DOMAIN
+ * naming file, line, column and value; MR_UNSEEN_BLANK writes the row with
+ * its kept columns and empty predictions, and counts it.  A cell that is
+ * not a number, or a row with another number of fields than the header,
+ * always fails with MR_ERR_FORMAT; an exposure <= 0 with MR_ERR_DOMAIN.
+ * A column the fit needs (or --keep names) missing from the header:
+ * MR_ERR_USAGE.  On any failure no output is left and an earlier file at
+ * `out` is as it was; mr_scorer_errmsg says why. */
+typedef struct mr_scorer mr_scorer;
+typedef enum mr_unseen { MR_UNSEEN_FAIL = 0, MR_UNSEEN_BLANK = 1 } mr_unseen;
+typedef enum mr_score_count {
+    MR_SCORE_ROWS = 0,    /* data rows written */
+    MR_SCORE_SCORED = 1,  /* rows with predictions */
+    MR_SCORE_UNSEEN = 2,  /* left empty: a level the fit never saw */
+    MR_SCORE_MISSING = 3  /* left empty: a missing covariate, offset or exposure */
+} mr_score_count;
+
+MR_API mr_scorer *mr_scorer_new(const mr_fit *fit);
+MR_API void mr_scorer_free(mr_scorer *s);
+/* The message of the last failed call, or "".  Owned by the scorer. */
+MR_API const char *mr_scorer_errmsg(const mr_scorer *s);
+/* Passes a column of the data through, before the computed ones (copied;
+ * repeatable, in order). */
+MR_API mr_status mr_scorer_keep(mr_scorer *s, const char *column);
+/* Level of the mean's interval, strictly between 0 and 1 (default 0.95). */
+MR_API mr_status mr_scorer_set_level(mr_scorer *s, double level);
+MR_API mr_status mr_scorer_set_unseen(mr_scorer *s, mr_unseen policy);
+/* Worker threads as MR_OPT_THREADS (0 = online CPUs, the default). */
+MR_API mr_status mr_scorer_set_threads(mr_scorer *s, int threads);
+MR_API mr_status mr_scorer_run(mr_scorer *s, const char *data, const char *out);
+/* A count of the last run (also after a failed one: what was written
+ * before it). */
+MR_API uint64_t mr_scorer_count(const mr_scorer *s, mr_score_count which);
+
+/* Observed and expected by group.  mr_scorer_group_by names a grouping
+ * column (copied; repeatable: the groups are the combinations of their
+ * cells met in the data).  A run then also adds up, per group, over the
+ * rows it scored that have the outcome: rows, exposure (the exposure
+ * column's sum; null without one), observed O = sum of w y and expected
+ * E = sum of w mean (w: the trials for binomial, times the weight; 1
+ * otherwise), O/E, and O/E's exact Poisson interval at the scorer's level
+ * (Garwood: lower chi2_{a/2}(2 O) / 2 / E, upper chi2_{1-a/2}(2 (O + 1))
+ * / 2 / E, a = 1 - level; when O = 0 the lower bound is 0 and the upper
+ * the one-sided chi2_{1-a}(2) / 2 / E).  Groups are held in memory, at
+ * most 1,000,000 of them (more: MR_ERR_USAGE); a group column the header
+ * lacks, or a file without the outcome, is MR_ERR_USAGE.  Groups come in
+ * order of first appearance in the data. */
+MR_API mr_status mr_scorer_group_by(mr_scorer *s, const char *column);
+
+typedef enum mr_groups_format {
+    MR_GROUPS_TEXT = 0, /* an aligned table */
+    MR_GROUPS_CSV = 1,  /* RFC 4180, numbers with 17 significant digits */
+    MR_GROUPS_JSON = 2  /* {"level", "by": [..], "groups": [{"key": {col: cell}, ...}]} */
+} mr_groups_format;
+
+/* The last successful run's group table as text in `format` (the caller
+ * frees it with mr_free), or NULL when out of memory or when the run had
+ * no mr_scorer_group_by. */
+MR_API char *mr_scorer_groups_report(const mr_scorer *s, mr_groups_format format);
+/* The same table written to `path` by the rules of "Output files" (the
+ * run's input counts as one).  MR_OK, MR_ERR_USAGE, MR_ERR_IO or
+ * MR_ERR_NO_MEMORY with mr_scorer_errmsg. */
+MR_API mr_status mr_scorer_write_groups(mr_scorer *s, const char *path, mr_groups_format format);
+
 /* Number of warnings and the i-th one (owned by the fit): possible
  * separation, aliased columns, non-convergence, ... */
 MR_API size_t mr_fit_nwarnings(const mr_fit *fit);

@@ -231,7 +231,7 @@ static void compute(worker *w, slot *s)
         mr__store_unpack(cfg->store, s->kept, s->kept_index, b, &s->block);
         s->use = &s->block;
         s->kept = NULL;
-    } else if (s->use == NULL) {
+    } else if (s->use == NULL && !e->ops->raw_rows) {
         s->st = mr__decode_chunk(&w->w.dec, s->chunk, &s->block, &s->err);
         s->use = &s->block;
         s->decoded = 1;
@@ -719,7 +719,7 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     memset(&e, 0, sizeof e);
     memset(res, 0, sizeof *res);
     e.cfg = cfg;
-    e.ops = cfg->kind == MR__PASS_SCAN ? &mr__job_scan : &mr__job_irls;
+    e.ops = cfg->kind == MR__PASS_SCAN ? &mr__job_scan : cfg->kind == MR__PASS_SCORE ? &mr__job_score : &mr__job_irls;
     e.nworkers = cfg->nthreads > 0 ? (size_t)cfg->nthreads : 1;
     /* Two blocks per worker (one being computed, one waiting), one being
      * read, one being added, and slack for blocks that finish out of

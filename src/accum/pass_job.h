@@ -76,6 +76,8 @@ typedef struct mr__pass_env {
 typedef struct mr__pass_job_ops {
     const char *name;
     int packs;                /* its slots need a packing buffer */
+    int raw_rows;             /* compute reads slot->chunk's rows itself:
+                                 the engine decodes nothing */
     mr_status (*open)(const mr__pass_env *env, void **job, mr__error *err);
     mr_status (*slot_init)(void *job, mr__pass_slot *s, mr__error *err);
     mr_status (*start)(void *job, mr__error *err);
@@ -91,6 +93,7 @@ typedef struct mr__pass_job_ops {
 
 extern const mr__pass_job_ops mr__job_scan; /* job_scan.c: the first pass */
 extern const mr__pass_job_ops mr__job_irls; /* job_irls.c: an IRLS pass */
+extern const mr__pass_job_ops mr__job_score; /* job_score.c: a fit applied to rows */
 
 /* Services of the engine for jobs. */
 /* The block's own row error, if it failed (fail mode). */

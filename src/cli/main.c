@@ -17,7 +17,8 @@ enum {
     OPT_OUTCOME = 256, OPT_TRIALS, OPT_FAMILY, OPT_LINK, OPT_NUMERIC, OPT_FACTOR, OPT_INTERACT, OPT_SPLINE, OPT_OFFSET,
     OPT_EXPOSURE, OPT_WEIGHT, OPT_NO_INTERCEPT, OPT_DISPERSION, OPT_THREADS, OPT_BUFFER, OPT_TOLERANCE,
     OPT_MAX_PASSES, OPT_LEVEL, OPT_DELIMITER, OPT_MISSING, OPT_IN_MEMORY, OPT_ON_BAD_ROW, OPT_JSON, OPT_QUIET,
-    OPT_DIGITS, OPT_NO_CACHE, OPT_NO_COLLAPSE, OPT_HELP, OPT_RUN_LOG, OPT_THRESHOLD, OPT_CSV
+    OPT_DIGITS, OPT_NO_CACHE, OPT_NO_COLLAPSE, OPT_HELP, OPT_RUN_LOG, OPT_THRESHOLD, OPT_CSV, OPT_FIT, OPT_OUT,
+    OPT_KEEP, OPT_UNSEEN, OPT_BY, OPT_BY_OUT
 };
 
 static const struct option long_options[] = {
@@ -51,6 +52,12 @@ static const struct option long_options[] = {
     {"quiet", no_argument, NULL, OPT_QUIET},
     {"digits", required_argument, NULL, OPT_DIGITS},
     {"help", no_argument, NULL, OPT_HELP},
+    {"fit", required_argument, NULL, OPT_FIT},
+    {"out", required_argument, NULL, OPT_OUT},
+    {"keep", required_argument, NULL, OPT_KEEP},
+    {"unseen", required_argument, NULL, OPT_UNSEEN},
+    {"by", required_argument, NULL, OPT_BY},
+    {"by-out", required_argument, NULL, OPT_BY_OUT},
     {NULL, 0, NULL, 0},
 };
 
@@ -80,6 +87,9 @@ static const char usage_text[] =
     "                               what changed between two saved fits of one model (default 3 SE)\n"
     "       millrace report --html PATH [--at COL=VALUE]... [--digits N] FIT.json...\n"
     "                                  saved fits as one HTML page (plots, comparison of the fits)\n"
+    "       millrace score --fit FIT.json --out FILE[.zst] [--keep COL]... [--level P]\n"
+    "                      [--unseen fail|blank] [--threads N] [--by COL]... [--by-out PATH] DATA\n"
+    "                      predictions and residuals per row; observed/expected by group\n"
     "       millrace version | help\n"
     "\n"
     "model (each option takes the words of the model-file line of the same name):\n"
@@ -591,6 +601,124 @@ static int close_stdout(int rc)
     return rc;
 }
 
+typedef struct score_cli {
+    const char *fit_path, *out_path, *by_out;
+    int quiet, by, help;
+} score_cli;
+
+static int score_option(mr_scorer *s, score_cli *o, int opt, const char *arg)
+{
+    long long n;
+    double v;
+    switch (opt) {
+    case OPT_FIT: o->fit_path = arg; return 0;
+    case OPT_OUT: o->out_path = arg; return 0;
+    case OPT_QUIET: o->quiet = 1; return 0;
+    case OPT_KEEP: return mr_scorer_keep(s, arg) == MR_OK ? 0 : fail(MR_ERR_NO_MEMORY, "out of memory");
+    case OPT_BY: o->by = 1; return mr_scorer_group_by(s, arg) == MR_OK ? 0 : fail(MR_ERR_NO_MEMORY, "out of memory");
+    case OPT_BY_OUT: o->by_out = arg; return 0;
+    case OPT_HELP: o->help = 1; return 0;
+    case OPT_UNSEEN:
+        if (strcmp(arg, "fail") != 0 && strcmp(arg, "blank") != 0) return usage_error("--unseen takes fail or blank");
+        return mr_scorer_set_unseen(s, strcmp(arg, "blank") == 0 ? MR_UNSEEN_BLANK : MR_UNSEEN_FAIL);
+    case OPT_LEVEL:
+        if (parse_real(arg, &v) != 0 || mr_scorer_set_level(s, v) != MR_OK) return usage_error("--level takes a number in (0, 1)");
+        return 0;
+    case OPT_THREADS:
+        if (parse_count(arg, &n) != 0 || n > 256 || mr_scorer_set_threads(s, (int)n) != MR_OK)
+            return usage_error("--threads takes 0 to 256");
+        return 0;
+    default: return usage_error("score takes --fit, --out, --keep, --level, --unseen, --threads, --by, --by-out, --quiet");
+    }
+}
+
+static void score_summary(const mr_scorer *s, const char *out)
+{
+    fprintf(stderr, "millrace: %llu rows to %s: %llu scored, %llu left empty (%llu unseen level, %llu missing value)\n",
+            (unsigned long long)mr_scorer_count(s, MR_SCORE_ROWS), out,
+            (unsigned long long)mr_scorer_count(s, MR_SCORE_SCORED),
+            (unsigned long long)(mr_scorer_count(s, MR_SCORE_UNSEEN) + mr_scorer_count(s, MR_SCORE_MISSING)),
+            (unsigned long long)mr_scorer_count(s, MR_SCORE_UNSEEN),
+            (unsigned long long)mr_scorer_count(s, MR_SCORE_MISSING));
+}
+
+static int ends_with(const char *s, const char *tail)
+{
+    size_t n = strlen(s), t = strlen(tail);
+    return n >= t && strcmp(s + n - t, tail) == 0;
+}
+
+/* The observed/expected table: to --by-out (its format from its name), or
+ * as text on standard output. */
+static int write_groups(mr_scorer *s, const score_cli *o)
+{
+    mr_groups_format f = MR_GROUPS_TEXT;
+    char *text;
+    mr_status st;
+    if (o->by_out) {
+        if (ends_with(o->by_out, ".json")) f = MR_GROUPS_JSON;
+        else if (ends_with(o->by_out, ".csv")) f = MR_GROUPS_CSV;
+        st = mr_scorer_write_groups(s, o->by_out, f);
+        return st == MR_OK ? 0 : fail(st, mr_scorer_errmsg(s));
+    }
+    if ((text = mr_scorer_groups_report(s, MR_GROUPS_TEXT)) == NULL) return fail(MR_ERR_NO_MEMORY, "out of memory");
+    fputs(text, stdout);
+    mr_free(text);
+    return 0;
+}
+
+/* Each row of DATA scored with a saved fit (README, "Scoring"). */
+static int run_score(mr_scorer *s, score_cli *o, int argc, char **argv)
+{
+    const char *inputs[2];
+    char msg[1024];
+    int opt, rc;
+    mr_status st;
+    optind = 1;
+    while ((opt = getopt_long(argc, argv, "", long_options, NULL)) != -1) {
+        if (opt == '?') return usage_error("bad option");
+        if ((rc = score_option(s, o, opt, optarg)) != 0) return rc;
+    }
+    if (o->help) {
+        fputs(usage_text, stdout);
+        return 0;
+    }
+    if (optind != argc - 1) return usage_error("score takes exactly one data file (or - for standard input)");
+    if (o->fit_path == NULL || o->out_path == NULL) return usage_error("score needs --fit and --out");
+    if (o->by_out && !o->by) return usage_error("--by-out needs --by");
+    inputs[0] = argv[optind];
+    inputs[1] = o->fit_path;
+    if ((st = mr_output_check(o->out_path, inputs, 2, msg, sizeof msg)) != MR_OK) return fail(st, msg);
+    if (o->by_out && (st = mr_output_check(o->by_out, inputs, 2, msg, sizeof msg)) != MR_OK) return fail(st, msg);
+    if ((st = mr_scorer_run(s, argv[optind], o->out_path)) != MR_OK) return fail(st, mr_scorer_errmsg(s));
+    if (!o->quiet) score_summary(s, o->out_path);
+    return o->by ? write_groups(s, o) : 0;
+}
+
+static int score(int argc, char **argv)
+{
+    char msg[1024];
+    score_cli o;
+    mr_fit *fit = NULL;
+    mr_scorer *s;
+    mr_status st;
+    int rc, i;
+    memset(&o, 0, sizeof o);
+    /* the fit first: options are checked on the scorer it makes */
+    for (i = 1; i < argc && strcmp(argv[i], "--") != 0; i++) {
+        if (strcmp(argv[i], "--fit") == 0 && i + 1 < argc) o.fit_path = argv[++i];
+        else if (strncmp(argv[i], "--fit=", 6) == 0) o.fit_path = argv[i] + 6;
+        else if (strcmp(argv[i], "--help") == 0) return fputs(usage_text, stdout), 0;
+    }
+    if (o.fit_path == NULL) return usage_error("score needs --fit FIT.json");
+    if ((st = mr_fit_read_json(o.fit_path, &fit, msg, sizeof msg)) != MR_OK) return fail(st, msg);
+    if ((s = mr_scorer_new(fit)) == NULL) rc = fail(MR_ERR_NO_MEMORY, "out of memory");
+    else rc = run_score(s, &o, argc, argv);
+    mr_scorer_free(s);
+    mr_fit_free(fit);
+    return rc;
+}
+
 static int dispatch(int argc, char **argv)
 {
     cli c;
@@ -607,6 +735,7 @@ static int dispatch(int argc, char **argv)
     if (strcmp(argv[1], "show") == 0) return show_fit(argc - 1, argv + 1);
     if (strcmp(argv[1], "drift") == 0) return run_drift(argc - 1, argv + 1);
     if (strcmp(argv[1], "report") == 0) return report_page(argc - 1, argv + 1);
+    if (strcmp(argv[1], "score") == 0) return score(argc - 1, argv + 1);
     if (strcmp(argv[1], "fit") != 0) return usage_error("unknown command (try 'millrace fit')");
     memset(&c, 0, sizeof c);
     c.fitter = mr_fitter_new();

@@ -77,6 +77,36 @@ if [ -n "$small" ] && [ -n "$large" ]; then
     fi
 fi
 
+# Scoring streams too (README, "Scoring"): the same files scored with the
+# 400k-row fit, zstd output (so the 2M rows' lines do not fill the disk),
+# within the same 1.5x.
+score_rss_kb() { # score_rss_kb NAME DATA: the peak resident set in kB
+    local cmd=("$bin" score --quiet --threads 2 --fit "$tmp/small.json" --out "$tmp/$1.scored.csv.zst" "$2")
+    if [ -x /usr/bin/time ]; then
+        /usr/bin/time -v -o "$tmp/$1.time" "${cmd[@]}" > /dev/null 2> "$tmp/$1.err" || return 1
+        awk -F': *' '/Maximum resident set size/ { print $2 }' "$tmp/$1.time"
+    else
+        /usr/bin/python3 -c '
+import resource, subprocess, sys
+rc = subprocess.call(sys.argv[1:], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+print(resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss)
+sys.exit(rc)' "${cmd[@]}" || return 1
+    fi
+}
+score_small=$(score_rss_kb score_small "$tmp/small.csv.zst") || score_small=""
+score_large=$(score_rss_kb score_large "$tmp/large.csv.zst") || score_large=""
+if [ -n "$score_small" ] && [ -n "$score_large" ] &&
+    [ "$(zstd -dc "$tmp/score_large.scored.csv.zst" | wc -l)" = 2000001 ]; then
+    if [ $((score_large * 2)) -le $((score_small * 3)) ]; then
+        ok "score: peak RSS 2M rows <= 1.5 x 400k rows ($score_large kB vs $score_small kB)"
+    else
+        fail score_rss_ratio "2M rows used $score_large kB, 400k rows $score_small kB (limit 1.5x)"
+    fi
+else
+    fail score_rss "scoring failed or wrote the wrong number of lines: $(head -c 300 "$tmp/score_large.err" 2>/dev/null)"
+fi
+rm -f "$tmp"/*.scored.csv.zst
+
 # Each worker thread costs about 6 MB, so the count is capped at 4 per
 # online CPU and 64 in all (src/fit/run.c), with a warning: 256 asked for
 # was 1.6 GB.  The bound allows 8 MB a thread beyond the 2-thread fit.

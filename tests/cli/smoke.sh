@@ -43,6 +43,13 @@ expect "the saved fit read back" 0 $MILLRACE show "$tmp/f.json"
 expect "run log appended" 0 $MILLRACE fit -m samples/falls.model --quiet --run-log "$tmp/runs.log" --json "$tmp/g.json" samples/falls.csv
 expect "drift of two fits, written as JSON and CSV" 0 $MILLRACE drift --json "$tmp/d.json" --csv "$tmp/d.csv" "$tmp/f.json" "$tmp/g.json"
 expect "saved fits as an HTML page, with their comparison" 0 $MILLRACE report --html "$tmp/f.html" --at year=2020 "$tmp/f.json" "$tmp/f.json"
+expect "score, 3 threads, kept column, zstd output" 0 $MILLRACE score --fit "$tmp/f.json" --out "$tmp/s.csv.zst" --keep region --threads 3 --quiet samples/falls.csv.zst
+expect "score from standard input" 0 sh -c "cat samples/falls.csv | $MILLRACE score --fit $tmp/f.json --out $tmp/s.csv --threads 2 --quiet -"
+printf 'age_band,sex,region,year,person_years\n00-04,F,Westvale,2015,10\n00-04,F,,2015,10\n' >"$tmp/new.csv"
+expect "score: unseen level, blank" 0 $MILLRACE score --fit "$tmp/f.json" --out "$tmp/n.csv" --unseen blank "$tmp/new.csv"
+expect "score: groups to JSON" 0 $MILLRACE score --fit "$tmp/f.json" --out "$tmp/s2.csv" --by region --by sex --by-out "$tmp/g.json" --threads 2 --quiet samples/falls.csv
+expect "score: groups as text" 0 $MILLRACE score --fit "$tmp/f.json" --out "$tmp/s2.csv" --by region --quiet samples/falls.csv.zst
+expect "score: unseen level fails" 5 $MILLRACE score --fit "$tmp/f.json" --out "$tmp/n.csv" "$tmp/new.csv"
 # The checksum, recomputed from its documented definition (README, JSON
 # output) by an independent implementation.
 want=$(/usr/bin/python3 tests/cli/checksum.py samples/falls.csv.zst)

@@ -55,4 +55,13 @@ for input in "$tmp/tiny.csv" "$tmp/tiny.csv.zst"; do
     done
 done
 cat "$tmp/d.csv.zst" | $bin fit --quiet -m "$tmp/b.model" --threads 3 - > /dev/null && ok stdin || fail stdin "fit from standard input failed"
+# scoring: the job's lines and groups from 3 workers, the same bytes as 1
+if $bin fit --quiet -m "$root/samples/falls.model" --json "$tmp/falls.json" "$root/samples/falls.csv.zst" > /dev/null &&
+    $bin score --quiet --fit "$tmp/falls.json" --out "$tmp/s1.csv" --by region --by-out "$tmp/g1.csv" --threads 1 "$root/samples/falls.csv.zst" &&
+    $bin score --quiet --fit "$tmp/falls.json" --out "$tmp/s3.csv" --by region --by-out "$tmp/g3.csv" --threads 3 "$root/samples/falls.csv.zst" &&
+    cmp -s "$tmp/s1.csv" "$tmp/s3.csv" && cmp -s "$tmp/g1.csv" "$tmp/g3.csv"; then
+    ok "score: 1 and 3 threads"
+else
+    fail "score: 1 and 3 threads" "failed or differ"
+fi
 finish

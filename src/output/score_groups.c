@@ -1,0 +1,175 @@
+/* score_groups.c - a scoring run's observed/expected table by group (the
+ * totals the scoring job added, fit/scorer.h) as text, CSV or JSON, with
+ * O/E's exact Poisson (Garwood) interval. */
+#include <jansson.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "common/alloc.h"
+#include "common/outfile.h"
+#include "common/probability.h"
+#include "common/strbuf.h"
+#include "fit/scorer.h"
+#include "output/json_text.h"
+
+/* The chi-square quantile: P(X <= x) = p, by bisection on the survival
+ * function until the bracket stops shrinking (monotone, so exact to the
+ * last bits the survival function gives). */
+static double chisq_quantile(double p, double df)
+{
+    double lo = 0, hi = df + 10, q = 1 - p;
+    int i;
+    while (mr__chisq_sf(hi, df) > q && hi < 1e300) hi *= 2;
+    for (i = 0; i < 2000; i++) {
+        double mid = lo + (hi - lo) / 2;
+        if (mid <= lo || mid >= hi) break;
+        if (mr__chisq_sf(mid, df) > q) lo = mid;
+        else hi = mid;
+    }
+    return lo + (hi - lo) / 2;
+}
+
+typedef struct oe_row {
+    double ratio, low, high;
+} oe_row;
+
+static oe_row observed_expected(double o, double e, double level)
+{
+    double a = 1 - level;
+    oe_row r;
+    r.ratio = o / e;
+    r.low = o > 0 ? chisq_quantile(a / 2, 2 * o) / 2 / e : 0;
+    r.high = (o > 0 ? chisq_quantile(1 - a / 2, 2 * (o + 1)) : chisq_quantile(1 - a, 2)) / 2 / e;
+    return r;
+}
+
+/* Cell k of a key (each cell as its 4-byte length and bytes). */
+static const char *key_cell(const mr__level_name *key, size_t k, size_t *n)
+{
+    const unsigned char *p = (const unsigned char *)key->str;
+    size_t i;
+    for (i = 0;; i++) {
+        size_t len = (size_t)p[0] | (size_t)p[1] << 8 | (size_t)p[2] << 16 | (size_t)p[3] << 24;
+        if (i == k) {
+            *n = len;
+            return (const char *)p + 4;
+        }
+        p += 4 + len;
+    }
+}
+
+static const char *const number_names[] = {"rows", "exposure", "observed", "expected", "o_e", "o_e_low", "o_e_high"};
+
+static void group_numbers(const mr_scorer *s, size_t i, double *v)
+{
+    oe_row r = observed_expected(s->g.obs[i], s->g.exp[i], s->level);
+    v[0] = (double)s->g.rows[i];
+    v[1] = s->g.expo[i];
+    v[2] = s->g.obs[i];
+    v[3] = s->g.exp[i];
+    v[4] = r.ratio;
+    v[5] = r.low;
+    v[6] = r.high;
+}
+
+static void csv_cell(mr__strbuf *b, const char *p, size_t n)
+{
+    size_t i;
+    if (!memchr(p, ',', n) && !memchr(p, '"', n) && !memchr(p, '\n', n) && !memchr(p, '\r', n)) {
+        mr__strbuf_append(b, p, n);
+        return;
+    }
+    mr__strbuf_append(b, "\"", 1);
+    for (i = 0; i < n; i++) mr__strbuf_append(b, p[i] == '"' ? "\"\"" : p + i, p[i] == '"' ? 2 : 1);
+    mr__strbuf_append(b, "\"", 1);
+}
+
+/* CSV (17 digits) or text (aligned, 6 digits): the same rows. */
+static char *table(const mr_scorer *s, int csv)
+{
+    mr__strbuf b;
+    size_t i, k, n;
+    double v[7];
+    mr__strbuf_init(&b);
+    if (!csv) mr__strbuf_printf(&b, "observed/expected by group, exact Poisson %g%% intervals\n", 100 * s->level);
+    for (k = 0; k < s->nby; k++) mr__strbuf_printf(&b, csv ? "%s," : "%-16s ", s->by[k]);
+    for (k = 0; k < 7; k++) mr__strbuf_printf(&b, csv ? "%s%s" : "%s%14s", k && csv ? "," : "", number_names[k]);
+    mr__strbuf_append(&b, "\n", 1);
+    for (i = 0; i < s->g.n; i++) {
+        group_numbers(s, i, v);
+        for (k = 0; k < s->nby; k++) {
+            const char *p = key_cell(&s->g.groups.name[i], k, &n);
+            if (csv) csv_cell(&b, p, n), mr__strbuf_append(&b, ",", 1);
+            else mr__strbuf_printf(&b, "%-16.*s ", (int)n, p);
+        }
+        for (k = 0; k < 7; k++) {
+            if (csv) mr__strbuf_printf(&b, isfinite(v[k]) ? "%s%.17g" : "%s", k ? "," : "", v[k]);
+            else if (isfinite(v[k])) mr__strbuf_printf(&b, "%14.6g", v[k]);
+            else mr__strbuf_printf(&b, "%14s", "-");
+        }
+        mr__strbuf_append(&b, "\n", 1);
+    }
+    return mr__strbuf_take(&b);
+}
+
+static json_t *group_json(const mr_scorer *s, size_t i)
+{
+    json_t *o = json_object(), *key = json_object();
+    double v[7];
+    size_t k, n;
+    group_numbers(s, i, v);
+    for (k = 0; k < s->nby; k++) {
+        const char *p = key_cell(&s->g.groups.name[i], k, &n);
+        char *cell = mr__malloc(n + 1);
+        if (cell) memcpy(cell, p, n), cell[n] = 0;
+        json_object_set_new(key, s->by[k], cell ? mr__json_text(cell) : NULL);
+        mr__free(cell);
+    }
+    json_object_set_new(o, "key", key);
+    json_object_set_new(o, "rows", json_integer((json_int_t)s->g.rows[i]));
+    for (k = 1; k < 7; k++) json_object_set_new(o, number_names[k], isfinite(v[k]) ? json_real(v[k]) : json_null());
+    return o;
+}
+
+static char *json_table(const mr_scorer *s)
+{
+    json_t *root = json_object(), *by = json_array(), *groups = json_array();
+    char *text, *out = NULL;
+    size_t i;
+    json_object_set_new(root, "level", json_real(s->level));
+    for (i = 0; i < s->nby; i++) json_array_append_new(by, mr__json_text(s->by[i]));
+    json_object_set_new(root, "by", by);
+    for (i = 0; i < s->g.n; i++) json_array_append_new(groups, group_json(s, i));
+    json_object_set_new(root, "groups", groups);
+    text = json_dumps(root, JSON_INDENT(1) | JSON_REAL_PRECISION(17) | JSON_PRESERVE_ORDER);
+    json_decref(root);
+    if (text) {
+        size_t n = strlen(text);
+        if ((out = mr__malloc(n + 2)) != NULL) memcpy(out, text, n), memcpy(out + n, "\n", 2);
+        free(text);
+    }
+    return out;
+}
+
+char *mr_scorer_groups_report(const mr_scorer *s, mr_groups_format format)
+{
+    if (s->nby == 0) return NULL;
+    if (format == MR_GROUPS_JSON) return json_table(s);
+    return table(s, format == MR_GROUPS_CSV);
+}
+
+mr_status mr_scorer_write_groups(mr_scorer *s, const char *path, mr_groups_format format)
+{
+    const char *inputs[1] = {s->data ? s->data : "-"};
+    char *text = mr_scorer_groups_report(s, format);
+    mr__outfile *out = NULL;
+    mr_status st;
+    if (text == NULL) return mr__fail(&s->err, s->nby ? MR_ERR_NO_MEMORY : MR_ERR_USAGE, "no groups to write");
+    st = mr__outfile_open(&out, path, inputs, 1, &s->err);
+    if (st == MR_OK && (st = mr__outfile_write(out, text, strlen(text), &s->err)) != MR_OK) mr__outfile_abort(out);
+    else if (st == MR_OK) st = mr__outfile_commit(out, &s->err);
+    mr__free(text);
+    return st;
+}
