@@ -230,6 +230,33 @@ MR_API void mr_fitter_set_progress(mr_fitter *f, mr_progress_fn fn, void *user);
 typedef int (*mr_progress_stop_fn)(const mr_progress *p, void *user);
 MR_API void mr_fitter_set_progress_stop(mr_fitter *f, mr_progress_stop_fn fn, void *user);
 
+/* Starts the next runs' IRLS from a previous fit's coefficients (one
+ * mr_fit_read_json read back, say) instead of the family's starting
+ * means and the warm start: a fit of a refreshed extract then takes fewer
+ * passes to the same maximum.  The fitter keeps a copy of what it needs;
+ * `previous` may be freed at once.  `label` (copied; NULL: "a previous
+ * fit") names it in the report, the JSON ("convergence.start") and
+ * messages.  NULL `previous` removes the start.
+ *
+ * Coefficients are matched by name (term and level): a level the previous
+ * fit lacked starts at 0, one this data lacks is dropped, an aliased one
+ * starts at 0.  When a factor's reference level changed, its main effect
+ * is carried over reparametrised (each level's coefficient less the new
+ * reference's old one, which the intercept gains); the terms of
+ * interactions with that factor, and its main effect in a model without an
+ * intercept, start at 0.  Numeric columns are carried on their raw scale
+ * and mapped to the fit's internal centring exactly.  mr_fit_stat(fit,
+ * MR_STAT_START_CARRIED) counts the coefficients carried over.
+ *
+ * mr_fitter_run refuses, before reading any data, a previous fit of
+ * another model - a different outcome or trials column, family, link,
+ * intercept, or terms (their columns in order, each a factor or numeric
+ * as before) - with MR_ERR_USAGE.  Offset, exposure, weights and options
+ * may differ.  A start changes the way to the maximum, not the maximum:
+ * from a start outside the family's range the run starts afresh.
+ * Returns MR_OK or MR_ERR_NO_MEMORY. */
+MR_API mr_status mr_fitter_set_start(mr_fitter *f, const mr_fit *previous, const char *label);
+
 /* Fits the model to the CSV (optionally zstd-compressed) at `path`, or to
  * standard input when path is "-".  The input is only read, once or more
  * (input that is not a regular file - standard input, a pipe such as
@@ -295,7 +322,9 @@ typedef enum mr_stat {
     MR_STAT_RELATIVE_CHANGE = 13,
     MR_STAT_SECONDS = 14,
     MR_STAT_RANK = 15,
-    MR_STAT_LEVEL = 16       /* confidence level of the intervals            */
+    MR_STAT_LEVEL = 16,      /* confidence level of the intervals            */
+    MR_STAT_START_CARRIED = 17 /* coefficients taken from the previous fit
+                                  (mr_fitter_set_start); NaN without one     */
 } mr_stat;
 /* A fit statistic; NaN for an unknown `which`. */
 MR_API double mr_fit_stat(const mr_fit *fit, mr_stat which);

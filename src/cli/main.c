@@ -17,7 +17,7 @@ enum {
     OPT_OUTCOME = 256, OPT_TRIALS, OPT_FAMILY, OPT_LINK, OPT_NUMERIC, OPT_FACTOR, OPT_INTERACT, OPT_OFFSET,
     OPT_EXPOSURE, OPT_WEIGHT, OPT_NO_INTERCEPT, OPT_DISPERSION, OPT_THREADS, OPT_BUFFER, OPT_TOLERANCE,
     OPT_MAX_PASSES, OPT_LEVEL, OPT_DELIMITER, OPT_MISSING, OPT_IN_MEMORY, OPT_ON_BAD_ROW, OPT_JSON, OPT_QUIET,
-    OPT_DIGITS, OPT_NO_CACHE, OPT_NO_COLLAPSE, OPT_HELP
+    OPT_DIGITS, OPT_NO_CACHE, OPT_NO_COLLAPSE, OPT_START_FROM, OPT_HELP
 };
 
 static const struct option long_options[] = {
@@ -45,6 +45,7 @@ static const struct option long_options[] = {
     {"no-cache", no_argument, NULL, OPT_NO_CACHE},
     {"no-collapse", no_argument, NULL, OPT_NO_COLLAPSE},
     {"on-bad-row", required_argument, NULL, OPT_ON_BAD_ROW},
+    {"start-from", required_argument, NULL, OPT_START_FROM},
     {"json", required_argument, NULL, OPT_JSON},
     {"quiet", no_argument, NULL, OPT_QUIET},
     {"digits", required_argument, NULL, OPT_DIGITS},
@@ -65,7 +66,7 @@ static const char usage_text[] =
     "run:\n"
     "  --threads N  --buffer-size BYTES  --tolerance X  --max-passes N  --level P\n"
     "  --delimiter ,|tab|;  --missing TOKEN (repeatable)  --in-memory  --no-cache  --no-collapse\n"
-    "  --on-bad-row fail|skip\n"
+    "  --on-bad-row fail|skip  --start-from FIT.json (start from a previous fit of the same model)\n"
     "output:\n"
     "  --json PATH  --quiet  --digits N\n"
     "exit codes: 0 ok, 2 usage, 3 I/O, 4 malformed input, 5 value outside the model, 6 no data,\n"
@@ -182,6 +183,19 @@ static int set_bad_rows(cli *c, const char *arg)
     return 0;
 }
 
+/* The previous fit is read now: a file that is not one fails before any
+ * data is read; whether it is a fit of this model is the run's check. */
+static int set_start(cli *c, const char *path)
+{
+    char msg[1024];
+    mr_fit *previous = NULL;
+    mr_status st = mr_fit_read_json(path, &previous, msg, sizeof msg);
+    if (st != MR_OK) return fail(st, msg);
+    st = mr_fitter_set_start(c->fitter, previous, path);
+    mr_fit_free(previous);
+    return st == MR_OK ? 0 : fail(st, mr_fitter_errmsg(c->fitter));
+}
+
 static const char *directive_of(int opt)
 {
     switch (opt) {
@@ -221,6 +235,7 @@ static int handle_option(cli *c, int opt, const char *arg)
     case OPT_NO_CACHE: mr_fitter_set_int(c->fitter, MR_OPT_NO_CACHE, 1); return -1;
     case OPT_NO_COLLAPSE: mr_fitter_set_int(c->fitter, MR_OPT_NO_COLLAPSE, 1); return -1;
     case OPT_ON_BAD_ROW: return handled(set_bad_rows(c, arg));
+    case OPT_START_FROM: return handled(set_start(c, arg));
     case OPT_JSON: c->json_path = arg; return -1;
     case OPT_QUIET: c->quiet = 1; return -1;
     case OPT_DIGITS: {

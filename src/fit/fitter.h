@@ -5,6 +5,8 @@
 #include "common/error.h"
 #include "model/spec.h"
 
+struct mr__start;
+
 struct mr_fitter {
     mr__spec spec;
     mr__error err;
@@ -16,6 +18,7 @@ struct mr_fitter {
     mr_progress_fn progress;
     mr_progress_stop_fn progress_stop; /* at most one of the two is set */
     void *progress_user;
+    struct mr__start *start; /* mr_fitter_set_start; NULL: none (start.h) */
 };
 
 /* The fit itself (run.c). */

@@ -340,6 +340,7 @@ static mr_status read_value(reader *r, const mr__jfield *fl, json_t *v, void *ba
         if (fl->which == MR__JS_MISSING) return read_missing(r, v, f);
         if (fl->which == MR__JS_COVARIANCE) return read_covariance(r, v, f);
         return read_term_columns(r, v, f, base);
+    case MR__J_OBJECT_ADDED:
     case MR__J_OBJECT_OR_NULL:
         *(int *)((char *)base + fl->count) = !json_is_null(v);
         if (json_is_null(v)) return MR_OK;
@@ -363,6 +364,7 @@ static mr_status read_object(reader *r, json_t *o, const mr__jfield *fields, voi
         json_t *v = json_object_get(o, fl->key);
         if (fl->kind == MR__J_DERIVED) continue;
         back = enter(r, fl->key);
+        if (v == NULL && fl->kind == MR__J_OBJECT_ADDED) v = json_null();
         if (v == NULL) return bad(r, "is missing");
         MR__TRY(read_value(r, fl, v, base, index));
         leave(r, back);
