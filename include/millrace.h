@@ -85,7 +85,10 @@ typedef enum mr_status {
                                 after step halving)                         */
     MR_ERR_STOPPED = 11      /* the progress callback set with
                                 mr_fitter_set_progress_stop asked the run
-                                to stop (never returned by the command)     */
+                                to stop (never returned by the command,
+                                which stops a fit this way on SIGINT,
+                                SIGTERM, SIGHUP and exits 128 + the
+                                signal's number)                            */
 } mr_status;
 
 /* A static, human-readable name for a status ("bad input format", ...). */
@@ -225,7 +228,11 @@ MR_API void mr_fitter_set_progress(mr_fitter *f, mr_progress_fn fn, void *user);
  * and end, every temporary file is removed, mr_fitter_run returns
  * MR_ERR_STOPPED with *out NULL, and the fitter may be run again.  The
  * last call of a pass comes after its rows are all read: a stop there
- * still stops the run.  A fitter has one progress callback: this setter
+ * still stops the run.  To stop on a signal, let the handler set a
+ * volatile sig_atomic_t that the callback returns (async-signal-safe; the
+ * run then ends within about a quarter of a second, the calls' cadence),
+ * and check the flag after mr_fitter_run too: a signal after the last
+ * call leaves a finished fit that the caller should then discard.  A fitter has one progress callback: this setter
  * and mr_fitter_set_progress each replace the other's (NULL: none). */
 typedef int (*mr_progress_stop_fn)(const mr_progress *p, void *user);
 MR_API void mr_fitter_set_progress_stop(mr_fitter *f, mr_progress_stop_fn fn, void *user);

@@ -70,12 +70,13 @@ static const char usage_text[] =
     "output:\n"
     "  --json PATH  --quiet  --digits N\n"
     "exit codes: 0 ok, 2 usage, 3 I/O, 4 malformed input, 5 value outside the model, 6 no data,\n"
-    "            7 not converged, 8 out of memory, 9 internal error, 10 numerical breakdown\n";
+    "            7 not converged, 8 out of memory, 9 internal error, 10 numerical breakdown,\n"
+    "            128+N stopped by signal N (130 SIGINT, 143 SIGTERM, 129 SIGHUP; nothing written)\n";
 
 typedef struct cli {
     mr_fitter *fitter;
     const char *json_path;
-    int quiet, digits, missing_given, progress_shown;
+    int quiet, digits, missing_given, progress_shown, show_progress;
     char **model_lines; /* options as model lines, applied after the model file */
     const char **model_origin;
     size_t nlines;
@@ -249,9 +250,8 @@ static int handle_option(cli *c, int opt, const char *arg)
     }
 }
 
-static void show_progress(const mr_progress *p, void *user)
+static void show_progress(const mr_progress *p, cli *c)
 {
-    cli *c = user;
     double rate = p->seconds > 0 ? p->rows_done / p->seconds : 0;
     if (p->bytes_total > 0) {
         double frac = (double)p->bytes_done / (double)p->bytes_total;
@@ -324,10 +324,21 @@ static int check_outputs(const cli *c, const char *data)
     return st == MR_OK ? 0 : fail(st, msg);
 }
 
-/* An interrupted run leaves no temporary output behind; the signal then
- * ends the process as it would have. */
-static void on_fatal_signal(int sig)
+/* SIGINT, SIGTERM, SIGHUP.  While the fit runs, the first one only sets
+ * stop_signal (async-signal-safe); the progress callback reads it at the
+ * next block and the library ends the run, its temporary files removed,
+ * and the command exits 128 + the signal's number without any output.
+ * A second signal, or one while the JSON is written (a rename must not be
+ * half done by a handler that returns), ends the process at once: the
+ * temporary output is unlinked and the signal raised again. */
+static volatile sig_atomic_t stop_signal, stop_at_block;
+
+static void on_signal(int sig)
 {
+    if (stop_at_block && !stop_signal) {
+        stop_signal = sig;
+        return;
+    }
     mr_output_unlink_temps();
     signal(sig, SIG_DFL);
     raise(sig);
@@ -339,7 +350,7 @@ static void clean_up_on_signals(void)
     struct sigaction sa;
     size_t i;
     memset(&sa, 0, sizeof sa);
-    sa.sa_handler = on_fatal_signal;
+    sa.sa_handler = on_signal;
     sigemptyset(&sa.sa_mask);
     for (i = 0; i < sizeof sigs / sizeof sigs[0]; i++) sigaddset(&sa.sa_mask, sigs[i]);
     for (i = 0; i < sizeof sigs / sizeof sigs[0]; i++) {
@@ -348,6 +359,24 @@ static void clean_up_on_signals(void)
         if (sigaction(sigs[i], NULL, &old) == 0 && old.sa_handler == SIG_IGN) continue;
         sigaction(sigs[i], &sa, NULL);
     }
+}
+
+/* Called by the library a few times a second: the progress line, and
+ * whether a signal asked the fit to stop. */
+static int progress_or_stop(const mr_progress *p, void *user)
+{
+    cli *c = user;
+    if (c->show_progress) show_progress(p, c);
+    return stop_signal != 0;
+}
+
+static int stopped(void)
+{
+    char msg[128];
+    snprintf(msg, sizeof msg, "stopped by signal %d (%s); nothing written", (int)stop_signal,
+             stop_signal == SIGINT ? "SIGINT" : stop_signal == SIGTERM ? "SIGTERM" : "SIGHUP");
+    fail(MR_ERR_STOPPED, msg);
+    return 128 + (int)stop_signal;
 }
 
 static int run_fit(cli *c, int argc, char **argv)
@@ -363,9 +392,16 @@ static int run_fit(cli *c, int argc, char **argv)
     if (optind != argc - 1) return usage_error("fit takes exactly one data file (or - for standard input)");
     if ((rc = apply_model(c)) != 0) return rc;
     if ((rc = check_outputs(c, argv[optind])) != 0) return rc;
-    if (!c->quiet && isatty(STDERR_FILENO)) mr_fitter_set_progress(c->fitter, show_progress, c);
+    c->show_progress = !c->quiet && isatty(STDERR_FILENO);
+    mr_fitter_set_progress_stop(c->fitter, progress_or_stop, c);
+    stop_at_block = 1;
     st = mr_fitter_run(c->fitter, argv[optind], &fit);
+    stop_at_block = 0;
     if (c->progress_shown) fputs("\r\033[K", stderr);
+    if (stop_signal) {
+        mr_fit_free(fit);
+        return stopped();
+    }
     if (st != MR_OK) return fail(st, mr_fitter_errmsg(c->fitter));
     rc = publish(c, fit);
     if (rc == MR_ERR_NOT_CONVERGED) fprintf(stderr, "millrace: the fit did not converge (see the report)\n");
