@@ -419,6 +419,28 @@ MR_API mr_status mr_output_check(const char *path, const char *const *inputs, si
  * else. */
 MR_API void mr_output_unlink_temps(void);
 
+/* One writer per output.  mr_output_lock_take locks the side file
+ * TARGET.lock (TARGET: `path` with its links followed, as above), created
+ * when absent, for as long as the lock is held; it writes there the
+ * holder's pid, host name and start time.  A second taker of the same
+ * TARGET - another process, on this or (through a file system with
+ * working fcntl locks, such as NFS with its lock service) another
+ * machine, or another thread of this one - gets MR_ERR_IO at once, with a
+ * message naming the holder from that file; it never waits.  The kernel
+ * drops the lock when its holder ends in any way (a crash, kill -9, a
+ * reboot), so a lock is never stale, and TARGET.lock is never removed -
+ * not by the library: unlinking it while another run has it open could
+ * give two runs a lock each; delete it by hand only when no run can be
+ * writing TARGET.  The lock is advisory: mr_fit_write_json does not need
+ * it, and does not check it.  Errors: MR_ERR_IO (held, or the lock file
+ * cannot be opened, is not a regular file, cannot be locked),
+ * MR_ERR_NO_MEMORY, with a message in `msg` (capacity `msgcap`, may be
+ * 0).  On MR_OK *out is released with mr_output_lock_release (NULL is
+ * fine), which drops the lock and leaves the file. */
+typedef struct mr_output_lock mr_output_lock;
+MR_API mr_status mr_output_lock_take(const char *path, mr_output_lock **out, char *msg, size_t msgcap);
+MR_API void mr_output_lock_release(mr_output_lock *lock);
+
 /* Number of warnings and the i-th one (owned by the fit): possible
  * separation, aliased columns, non-convergence, ... */
 MR_API size_t mr_fit_nwarnings(const mr_fit *fit);

@@ -81,6 +81,7 @@ typedef struct cli {
     const char **model_origin;
     size_t nlines;
     const char *model_file;
+    mr_output_lock *lock; /* on the JSON, for the run */
 } cli;
 
 static int fail(mr_status st, const char *msg)
@@ -324,6 +325,17 @@ static int check_outputs(const cli *c, const char *data)
     return st == MR_OK ? 0 : fail(st, msg);
 }
 
+/* Two runs writing one JSON at once: the second is refused at its start,
+ * naming the first, and the lock is held until the JSON is in place. */
+static int lock_output(cli *c)
+{
+    char msg[1024];
+    mr_status st;
+    if (c->json_path == NULL) return 0;
+    st = mr_output_lock_take(c->json_path, &c->lock, msg, sizeof msg);
+    return st == MR_OK ? 0 : fail(st, msg);
+}
+
 /* SIGINT, SIGTERM, SIGHUP.  While the fit runs, the first one only sets
  * stop_signal (async-signal-safe); the progress callback reads it at the
  * next block and the library ends the run, its temporary files removed,
@@ -392,6 +404,7 @@ static int run_fit(cli *c, int argc, char **argv)
     if (optind != argc - 1) return usage_error("fit takes exactly one data file (or - for standard input)");
     if ((rc = apply_model(c)) != 0) return rc;
     if ((rc = check_outputs(c, argv[optind])) != 0) return rc;
+    if ((rc = lock_output(c)) != 0) return rc;
     c->show_progress = !c->quiet && isatty(STDERR_FILENO);
     mr_fitter_set_progress_stop(c->fitter, progress_or_stop, c);
     stop_at_block = 1;
@@ -462,6 +475,7 @@ static int dispatch(int argc, char **argv)
     free(c.model_lines);
     free(c.model_origin);
     mr_fitter_free(c.fitter);
+    mr_output_lock_release(c.lock);
     return rc;
 }
 
