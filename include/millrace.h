@@ -428,15 +428,17 @@ MR_API void mr_output_unlink_temps(void);
  * machine, or another thread of this one - gets MR_ERR_IO at once, with a
  * message naming the holder from that file; it never waits.  The kernel
  * drops the lock when its holder ends in any way (a crash, kill -9, a
- * reboot), so a lock is never stale, and TARGET.lock is never removed -
- * not by the library: unlinking it while another run has it open could
- * give two runs a lock each; delete it by hand only when no run can be
- * writing TARGET.  The lock is advisory: mr_fit_write_json does not need
- * it, and does not check it.  Errors: MR_ERR_IO (held, or the lock file
- * cannot be opened, is not a regular file, cannot be locked),
- * MR_ERR_NO_MEMORY, with a message in `msg` (capacity `msgcap`, may be
- * 0).  On MR_OK *out is released with mr_output_lock_release (NULL is
- * fine), which drops the lock and leaves the file. */
+ * reboot), so a lock is never stale.  Only the holder removes
+ * TARGET.lock: mr_output_lock_release unlinks it while the lock is still
+ * held, then lets go; a taker that locked the file just as it was
+ * unlinked sees that the name no longer leads to it and starts over, so
+ * two takers never both hold it.  A killed holder leaves the file,
+ * unlocked; the next taker takes it.  Never delete it by hand while a run
+ * may hold it.  The lock is advisory: mr_fit_write_json neither needs nor
+ * checks it.  Errors: MR_ERR_IO (held, or the lock file cannot be opened,
+ * is not a regular file, cannot be locked), MR_ERR_NO_MEMORY, with a
+ * message in `msg` (capacity `msgcap`, may be 0).  On MR_OK *out is
+ * released with mr_output_lock_release (NULL is fine). */
 typedef struct mr_output_lock mr_output_lock;
 MR_API mr_status mr_output_lock_take(const char *path, mr_output_lock **out, char *msg, size_t msgcap);
 MR_API void mr_output_lock_release(mr_output_lock *lock);

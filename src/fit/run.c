@@ -307,7 +307,7 @@ static void warm_start(mr__run *r)
     mr__error scratch;
     /* the sample holds first-pass level numbers, as the cache does; with
      * no cache, or a cache started afresh, the maps are not made yet */
-    if (!r->collapsed && stride >= 2 && (r->remap != NULL || mr__build_remap(r, &scratch) == MR_OK)) {
+    if (!r->started && !r->collapsed && stride >= 2 && (r->remap != NULL || mr__build_remap(r, &scratch) == MR_OK)) {
         mr__store_remap(sample, r->remap, r->bind.nfac);
         r->warm = sample_fit(r, stride, NULL, 25, r->beta_warm, &r->warm_iterations);
         r->warm_blocks = (int)((sample->n + stride - 1) / stride);
@@ -415,8 +415,9 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
     if (st == MR_OK) st = mr__settle_store(&r, err);
     if (st == MR_OK && f->start) st = mr__start_map(f->start, &r.design, r.beta_warm, &r.start_carried, err);
     r.started = st == MR_OK && f->start != NULL;
-    /* a previous fit's point is nearer the maximum than a sample's */
-    if (st == MR_OK && !r.started) warm_start(&r);
+    /* a previous fit's point is nearer the maximum than a sample's: the
+     * warm start then only gives its sample back */
+    if (st == MR_OK) warm_start(&r);
     if (st == MR_OK) st = fit_data(&r, err);
     if (st == MR_OK) st = mr__build_fit(&r, out, err);
     release_run(&r);

@@ -2,8 +2,9 @@
 # One writer per JSON: a run holds PATH.lock (an fcntl lock) from its start
 # until the JSON is in place; a second run writing PATH (under any name:
 # a symbolic link too) is refused at once with exit 3, naming the holder's
-# pid and host; another PATH is free; the lock dies with its holder, even
-# under kill -9, and PATH.lock is never removed.
+# pid and host; another PATH is free; the holder removes PATH.lock as it
+# lets go; the lock dies with its holder even under kill -9, and the file
+# that holder left is taken (and removed) by the next run.
 # shellcheck source=tests/cli/common.bash
 source "$(dirname "$0")/common.bash"
 model=(--quiet --outcome events --family poisson --exposure followup --factor sex --factor region --numeric year)
@@ -36,18 +37,21 @@ tail -c +3000001 "$tmp/data.csv" >&3
 exec 3>&-
 wait "$holder"
 check "the holder finishes and writes its JSON" test $? = 0 -a -s "$tmp/fit.json"
-check "the lock file stays" test -f "$tmp/fit.json.lock"
+check "the holder removed its lock file" test ! -e "$tmp/fit.json.lock"
 "$bin" fit "${model[@]}" --json "$tmp/fit.json" "$tmp/data.csv" >/dev/null 2>"$tmp/after.err"
 check "after it, the next run writes PATH" test $? = 0
 
 # a holder killed outright leaves no lock behind
 cp "$tmp/fit.json" "$tmp/before.json"
 start_holder
-kill -9 "$holder"
-wait "$holder" 2>/dev/null
+{ kill -9 "$holder" && wait "$holder"; } 2>/dev/null
 exec 3>&-
 "$bin" fit "${model[@]}" --json "$tmp/fit.json" "$tmp/data.csv" >/dev/null 2>"$tmp/killed.err"
 check "a holder killed by SIGKILL holds nothing (next run exit 0)" test $? = 0
+check "and the file it left is gone with the next run" test ! -e "$tmp/fit.json.lock"
+# a failed run leaves no lock file either
+"$bin" fit "${model[@]}" --outcome nosuchcolumn --json "$tmp/failed.json" "$tmp/data.csv" >/dev/null 2>&1
+check "a failed run leaves no lock file" test ! -e "$tmp/failed.json.lock" -a ! -e "$tmp/failed.json"
 # a lock file that is not a regular file is refused, never replaced
 rm -f "$tmp/x.json.lock"
 mkdir "$tmp/x.json.lock"
