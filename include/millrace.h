@@ -442,6 +442,12 @@ MR_API void mr_output_unlink_temps(void);
 typedef struct mr_output_lock mr_output_lock;
 MR_API mr_status mr_output_lock_take(const char *path, mr_output_lock **out, char *msg, size_t msgcap);
 MR_API void mr_output_lock_release(mr_output_lock *lock);
+/* The lock file's path (owned by the lock, valid until it is released),
+ * for a signal handler that ends the process at once: unlinking it
+ * there, while the lock is still held, is the holder's part of the
+ * scheme above.  Stop using the copy before releasing the lock: after
+ * that, the name may be another run's lock. */
+MR_API const char *mr_output_lock_file(const mr_output_lock *lock);
 
 /* Number of warnings and the i-th one (owned by the fit): possible
  * separation, aliased columns, non-convergence, ... */

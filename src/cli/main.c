@@ -325,6 +325,10 @@ static int check_outputs(const cli *c, const char *data)
     return st == MR_OK ? 0 : fail(st, msg);
 }
 
+/* the JSON's lock file while this process holds it (lock_output) */
+static char held_lock[4096];
+static volatile sig_atomic_t lock_held;
+
 /* Two runs writing one JSON at once: the second is refused at its start,
  * naming the first, and the lock is held until the JSON is in place. */
 static int lock_output(cli *c)
@@ -333,7 +337,12 @@ static int lock_output(cli *c)
     mr_status st;
     if (c->json_path == NULL) return 0;
     st = mr_output_lock_take(c->json_path, &c->lock, msg, sizeof msg);
-    return st == MR_OK ? 0 : fail(st, msg);
+    if (st != MR_OK) return fail(st, msg);
+    if (strlen(mr_output_lock_file(c->lock)) < sizeof held_lock) {
+        strcpy(held_lock, mr_output_lock_file(c->lock));
+        lock_held = 1;
+    }
+    return 0;
 }
 
 /* SIGINT, SIGTERM, SIGHUP.  While the fit runs, the first one only sets
@@ -352,6 +361,7 @@ static void on_signal(int sig)
         return;
     }
     mr_output_unlink_temps();
+    if (lock_held) unlink(held_lock); /* ours while held: the lock's own scheme */
     signal(sig, SIG_DFL);
     raise(sig);
 }
@@ -475,6 +485,7 @@ static int dispatch(int argc, char **argv)
     free(c.model_lines);
     free(c.model_origin);
     mr_fitter_free(c.fitter);
+    lock_held = 0; /* before the release: then the name may be another's */
     mr_output_lock_release(c.lock);
     return rc;
 }

@@ -150,6 +150,8 @@ mr_status mr_output_lock_take(const char *path, mr_output_lock **out, char *msg,
     return st;
 }
 
+const char *mr_output_lock_file(const mr_output_lock *lock) { return lock->path; }
+
 void mr_output_lock_release(mr_output_lock *lock)
 {
     if (lock == NULL) return;

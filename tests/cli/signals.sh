@@ -2,7 +2,8 @@
 # SIGTERM, SIGINT, SIGHUP during a fit of 10^6 rows (build/synth): the fit
 # ends at a block boundary with exit 128 + the signal's number, no
 # temporary file in $TMPDIR or beside the JSON, and an earlier JSON
-# untouched; a second signal ends the process at once (killed by it).
+# untouched; a second signal ends the process at once (killed by it),
+# still removing its temporary files and the JSON's lock file.
 # Python drives the signals: a background job of a script ignores SIGINT.
 # shellcheck source=tests/cli/common.bash
 source "$(dirname "$0")/common.bash"
