@@ -86,7 +86,10 @@ typedef enum mr_status {
                                 after step halving)                         */
     MR_ERR_STOPPED = 11,     /* the progress callback set with
                                 mr_fitter_set_progress_stop asked the run
-                                to stop (never returned by the command)     */
+                                to stop (never returned by the command,
+                                which stops a fit this way on SIGINT,
+                                SIGTERM, SIGHUP and exits 128 + the
+                                signal's number)                            */
     MR_DRIFT_FLAGGED = 12    /* not an error: a comparison of two fits
                                 (mr_drift_compare) flagged a change; the
                                 command's drift exits with it so that a
@@ -243,7 +246,11 @@ MR_API void mr_fitter_set_progress(mr_fitter *f, mr_progress_fn fn, void *user);
  * and end, every temporary file is removed, mr_fitter_run returns
  * MR_ERR_STOPPED with *out NULL, and the fitter may be run again.  The
  * last call of a pass comes after its rows are all read: a stop there
- * still stops the run.  A fitter has one progress callback: this setter
+ * still stops the run.  To stop on a signal, let the handler set a
+ * volatile sig_atomic_t that the callback returns (async-signal-safe; the
+ * run then ends within about a quarter of a second, the calls' cadence),
+ * and check the flag after mr_fitter_run too: a signal after the last
+ * call leaves a finished fit that the caller should then discard.  A fitter has one progress callback: this setter
  * and mr_fitter_set_progress each replace the other's (NULL: none). */
 typedef int (*mr_progress_stop_fn)(const mr_progress *p, void *user);
 MR_API void mr_fitter_set_progress_stop(mr_fitter *f, mr_progress_stop_fn fn, void *user);
@@ -253,6 +260,33 @@ MR_API void mr_fitter_set_progress_stop(mr_fitter *f, mr_progress_stop_fn fn, vo
  * later fit of this fitter records them ("run" in the JSON, README).
  * argc 0 forgets them.  MR_OK or MR_ERR_NO_MEMORY. */
 MR_API mr_status mr_fitter_set_command_line(mr_fitter *f, size_t argc, const char *const *argv);
+
+/* Starts the next runs' IRLS from a previous fit's coefficients (one
+ * mr_fit_read_json read back, say) instead of the family's starting
+ * means and the warm start: a fit of a refreshed extract then takes fewer
+ * passes to the same maximum.  The fitter keeps a copy of what it needs;
+ * `previous` may be freed at once.  `label` (copied; NULL: "a previous
+ * fit") names it in the report, the JSON ("convergence.start") and
+ * messages.  NULL `previous` removes the start.
+ *
+ * Coefficients are matched by name (term and level): a level the previous
+ * fit lacked starts at 0, one this data lacks is dropped, an aliased one
+ * starts at 0.  When a factor's reference level changed, its main effect
+ * is carried over reparametrised (each level's coefficient less the new
+ * reference's old one, which the intercept gains); the terms of
+ * interactions with that factor, and its main effect in a model without an
+ * intercept, start at 0.  Numeric columns are carried on their raw scale
+ * and mapped to the fit's internal centring exactly.  mr_fit_stat(fit,
+ * MR_STAT_START_CARRIED) counts the coefficients carried over.
+ *
+ * mr_fitter_run refuses, before reading any data, a previous fit of
+ * another model - a different outcome or trials column, family, link,
+ * intercept, or terms (their columns in order, each a factor or numeric
+ * as before) - with MR_ERR_USAGE.  Offset, exposure, weights and options
+ * may differ.  A start changes the way to the maximum, not the maximum:
+ * from a start outside the family's range the run starts afresh.
+ * Returns MR_OK or MR_ERR_NO_MEMORY. */
+MR_API mr_status mr_fitter_set_start(mr_fitter *f, const mr_fit *previous, const char *label);
 
 /* Fits the model to the CSV (optionally zstd- or gzip-compressed, known by
  * its magic bytes; concatenated frames or members read as one) at `path`, or to
@@ -357,9 +391,11 @@ typedef enum mr_stat {
     MR_STAT_SECONDS = 14,
     MR_STAT_RANK = 15,
     MR_STAT_LEVEL = 16,      /* confidence level of the intervals            */
-    MR_STAT_FAMILY_PARAMETER = 17 /* the family's own parameter: a negative
+    MR_STAT_FAMILY_PARAMETER = 17, /* the family's own parameter: a negative
                                 binomial's theta, a Tweedie power; NaN for a
                                 family without one                          */
+    MR_STAT_START_CARRIED = 18 /* coefficients taken from the previous fit
+                                  (mr_fitter_set_start); NaN without one     */
 } mr_stat;
 /* A fit statistic; NaN for an unknown `which`. */
 MR_API double mr_fit_stat(const mr_fit *fit, mr_stat which);
@@ -664,6 +700,36 @@ MR_API char *mr_scorer_groups_report(const mr_scorer *s, mr_groups_format format
  * run's input counts as one).  MR_OK, MR_ERR_USAGE, MR_ERR_IO or
  * MR_ERR_NO_MEMORY with mr_scorer_errmsg. */
 MR_API mr_status mr_scorer_write_groups(mr_scorer *s, const char *path, mr_groups_format format);
+
+/* One writer per output.  mr_output_lock_take locks the side file
+ * TARGET.lock (TARGET: `path` with its links followed, as above), created
+ * when absent, for as long as the lock is held; it writes there the
+ * holder's pid, host name and start time.  A second taker of the same
+ * TARGET - another process, on this or (through a file system with
+ * working fcntl locks, such as NFS with its lock service) another
+ * machine, or another thread of this one - gets MR_ERR_IO at once, with a
+ * message naming the holder from that file; it never waits.  The kernel
+ * drops the lock when its holder ends in any way (a crash, kill -9, a
+ * reboot), so a lock is never stale.  Only the holder removes
+ * TARGET.lock: mr_output_lock_release unlinks it while the lock is still
+ * held, then lets go; a taker that locked the file just as it was
+ * unlinked sees that the name no longer leads to it and starts over, so
+ * two takers never both hold it.  A killed holder leaves the file,
+ * unlocked; the next taker takes it.  Never delete it by hand while a run
+ * may hold it.  The lock is advisory: mr_fit_write_json neither needs nor
+ * checks it.  Errors: MR_ERR_IO (held, or the lock file cannot be opened,
+ * is not a regular file, cannot be locked), MR_ERR_NO_MEMORY, with a
+ * message in `msg` (capacity `msgcap`, may be 0).  On MR_OK *out is
+ * released with mr_output_lock_release (NULL is fine). */
+typedef struct mr_output_lock mr_output_lock;
+MR_API mr_status mr_output_lock_take(const char *path, mr_output_lock **out, char *msg, size_t msgcap);
+MR_API void mr_output_lock_release(mr_output_lock *lock);
+/* The lock file's path (owned by the lock, valid until it is released),
+ * for a signal handler that ends the process at once: unlinking it
+ * there, while the lock is still held, is the holder's part of the
+ * scheme above.  Stop using the copy before releasing the lock: after
+ * that, the name may be another run's lock. */
+MR_API const char *mr_output_lock_file(const mr_output_lock *lock);
 
 /* Number of warnings and the i-th one (owned by the fit): possible
  * separation, aliased columns, non-convergence, ... */

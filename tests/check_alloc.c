@@ -26,6 +26,9 @@ static const char *const falls_model[] = {"outcome admissions", "family poisson"
 static const char *const spline_model[] = {"outcome admissions", "family poisson", "exposure person_years",
                                            "factor sex", "spline year df=3", "interact year sex", NULL};
 static char json_path[64];
+/* a start (mr_fitter_set_start) with another reference for age_band:
+ * its main effect moved, its interaction with sex at 0 */
+static mr_fit *previous_fit;
 
 static const char *const screening_model[] = {"outcome attended", "family binomial", "numeric age", "factor sex",
                                               "numeric bmi", NULL};
@@ -61,6 +64,11 @@ static int fit_failing_at(long n, const char *path, const char *const *model, in
     }
     if (extra == 1) mr_fitter_set_int(f, MR_OPT_NO_COLLAPSE, 1);
     if (extra == 2) mr_fitter_set_int(f, MR_OPT_IN_MEMORY, 1);
+    if (extra == 3 && (st = mr_fitter_set_start(f, previous_fit, "previous.json")) != MR_OK) {
+        mr_fitter_free(f);
+        ck_assert_int_eq(st, MR_ERR_NO_MEMORY);
+        return 0;
+    }
     st = mr_fitter_run(f, path, &fit);
     ck_assert_msg(st == MR_OK || st == MR_ERR_NO_MEMORY, "allocation %ld: status %d (%s)", n, (int)st,
                   mr_fitter_errmsg(f));
@@ -276,6 +284,18 @@ START_TEST(test_falls_collapsed) { every_allocation("samples/falls.csv.zst", fal
 END_TEST
 START_TEST(test_falls_rows_cached) { every_allocation("samples/falls.csv", falls_model, 1); }
 END_TEST
+START_TEST(test_falls_from_a_previous_fit)
+{
+    mr_fitter *f = mr_fitter_new();
+    int i;
+    for (i = 0; falls_model[i]; i++) ck_assert_int_eq(mr_fitter_model_line(f, falls_model[i], "test"), MR_OK);
+    ck_assert_int_eq(mr_fitter_model_line(f, "factor age_band", "test"), MR_OK);
+    ck_assert_int_eq(mr_fitter_run(f, "samples/falls.csv", &previous_fit), MR_OK);
+    mr_fitter_free(f);
+    every_allocation("samples/falls.csv", falls_model, 3);
+    mr_fit_free(previous_fit);
+}
+END_TEST
 START_TEST(test_screening_in_memory) { every_allocation("samples/screening.csv", screening_model, 2); }
 END_TEST
 /* a spline's counted values (per block and merged) and its basis */
@@ -296,6 +316,7 @@ int main(void)
     tcase_add_test(tc, test_falls_rows_cached);
     tcase_add_test(tc, test_screening_in_memory);
     tcase_add_test(tc, test_spline_rows_cached);
+    tcase_add_test(tc, test_falls_from_a_previous_fit);
     tcase_add_test(tc, test_json_write_and_read);
     tcase_add_test(tc, test_drift_and_run_log);
     tcase_add_test(tc, test_html_page);

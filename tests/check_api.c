@@ -106,6 +106,42 @@ START_TEST(p_values_and_intervals)
 }
 END_TEST
 
+/* A start from the fit of the same data: the same maximum (IRLS reaches it
+ * from anywhere; the analytic fact the test leans on), every coefficient
+ * but the aliased one carried, and no more passes than the cold start.
+ * A fit of other terms is refused before the data is read. */
+START_TEST(start_from_a_previous_fit)
+{
+    static const char *const terms[] = {"factor g", "numeric x", "numeric x2", NULL};
+    static const char *const fewer[] = {"factor g", "numeric x", NULL};
+    mr_fitter *f = poisson_fitter(terms), *other = poisson_fitter(fewer);
+    mr_fit *cold = NULL, *warm = NULL;
+    size_t j;
+    ck_assert_int_eq(mr_fitter_run(f, data_path, &cold), MR_OK);
+    ck_assert(isnan(mr_fit_stat(cold, MR_STAT_START_CARRIED)));
+    ck_assert_int_eq(mr_fitter_set_start(f, cold, "cold.json"), MR_OK);
+    ck_assert_int_eq(mr_fitter_run(f, data_path, &warm), MR_OK);
+    ck_assert(mr_fit_stat(warm, MR_STAT_START_CARRIED) == (double)mr_fit_ncoef(cold) - 1);
+    ck_assert(mr_fit_stat(warm, MR_STAT_PASSES) <= mr_fit_stat(cold, MR_STAT_PASSES));
+    for (j = 0; j < mr_fit_ncoef(cold); j++)
+        if (!mr_fit_coef_aliased(cold, j))
+            ck_assert_msg(fabs(mr_fit_coef(warm, j) - mr_fit_coef(cold, j)) <= 1e-10 * mr_fit_std_error(cold, j),
+                          "%s", mr_fit_coef_name(cold, j));
+    mr_fit_free(warm);
+    ck_assert_int_eq(mr_fitter_set_start(other, cold, "cold.json"), MR_OK);
+    ck_assert_int_eq(mr_fitter_run(other, data_path, &warm), MR_ERR_USAGE);
+    ck_assert_ptr_null(warm);
+    ck_assert_ptr_nonnull(strstr(mr_fitter_errmsg(other), "cold.json is a fit of another model"));
+    ck_assert_int_eq(mr_fitter_set_start(f, NULL, NULL), MR_OK);
+    ck_assert_int_eq(mr_fitter_run(f, data_path, &warm), MR_OK);
+    ck_assert(isnan(mr_fit_stat(warm, MR_STAT_START_CARRIED)));
+    mr_fit_free(warm);
+    mr_fit_free(cold);
+    mr_fitter_free(f);
+    mr_fitter_free(other);
+}
+END_TEST
+
 START_TEST(intercept_alone_is_log_mean)
 {
     mr_fitter *f = poisson_fitter(NULL);
@@ -275,6 +311,7 @@ static Suite *api_suite(void)
     tcase_add_test(t, p_values_and_intervals);
     tcase_add_test(t, intercept_alone_is_log_mean);
     tcase_add_test(t, term_tests);
+    tcase_add_test(t, start_from_a_previous_fit);
     tcase_add_test(t, progress_callback_stops_the_run);
     tcase_add_test(t, blas_threads_set_back);
     suite_add_tcase(s, t);

@@ -17,8 +17,8 @@ enum {
     OPT_OUTCOME = 256, OPT_TRIALS, OPT_FAMILY, OPT_LINK, OPT_NUMERIC, OPT_FACTOR, OPT_INTERACT, OPT_SPLINE, OPT_OFFSET,
     OPT_EXPOSURE, OPT_WEIGHT, OPT_NO_INTERCEPT, OPT_DISPERSION, OPT_THREADS, OPT_BUFFER, OPT_TOLERANCE,
     OPT_MAX_PASSES, OPT_LEVEL, OPT_DELIMITER, OPT_MISSING, OPT_IN_MEMORY, OPT_ON_BAD_ROW, OPT_JSON, OPT_QUIET,
-    OPT_DIGITS, OPT_NO_CACHE, OPT_NO_COLLAPSE, OPT_HELP, OPT_RUN_LOG, OPT_THRESHOLD, OPT_CSV, OPT_FIT, OPT_OUT,
-    OPT_KEEP, OPT_UNSEEN, OPT_BY, OPT_BY_OUT
+    OPT_DIGITS, OPT_NO_CACHE, OPT_NO_COLLAPSE, OPT_START_FROM, OPT_HELP, OPT_RUN_LOG, OPT_THRESHOLD, OPT_CSV,
+    OPT_FIT, OPT_OUT, OPT_KEEP, OPT_UNSEEN, OPT_BY, OPT_BY_OUT
 };
 
 static const struct option long_options[] = {
@@ -47,6 +47,7 @@ static const struct option long_options[] = {
     {"no-cache", no_argument, NULL, OPT_NO_CACHE},
     {"no-collapse", no_argument, NULL, OPT_NO_COLLAPSE},
     {"on-bad-row", required_argument, NULL, OPT_ON_BAD_ROW},
+    {"start-from", required_argument, NULL, OPT_START_FROM},
     {"json", required_argument, NULL, OPT_JSON},
     {"run-log", required_argument, NULL, OPT_RUN_LOG},
     {"quiet", no_argument, NULL, OPT_QUIET},
@@ -101,17 +102,18 @@ static const char usage_text[] =
     "run:\n"
     "  --threads N  --buffer-size BYTES  --tolerance X  --max-passes N  --level P\n"
     "  --delimiter ,|tab|;  --missing TOKEN (repeatable)  --in-memory  --no-cache  --no-collapse\n"
-    "  --on-bad-row fail|skip\n"
+    "  --on-bad-row fail|skip  --start-from FIT.json (start from a previous fit of the same model)\n"
     "output:\n"
     "  --json PATH  --run-log FILE (a line appended per run)  --quiet  --digits N\n"
     "exit codes: 0 ok, 2 usage, 3 I/O, 4 malformed input, 5 value outside the model, 6 no data,\n"
     "            7 not converged, 8 out of memory, 9 internal error, 10 numerical breakdown,\n"
-    "            12 drift flagged a change\n";
+    "            12 drift flagged a change\n"
+    "            128+N stopped by signal N (130 SIGINT, 143 SIGTERM, 129 SIGHUP; nothing written)\n";
 
 typedef struct cli {
     mr_fitter *fitter;
     const char *json_path, *run_log;
-    int quiet, digits, missing_given, progress_shown;
+    int quiet, digits, missing_given, progress_shown, show_progress;
     const char *data;     /* set once the arguments are read: the run gets logged */
     int argc;             /* the whole command line, for the fit's audit trail */
     char **argv;
@@ -121,6 +123,7 @@ typedef struct cli {
     const char **model_origin;
     size_t nlines;
     const char *model_file;
+    mr_output_lock *lock; /* on the JSON, for the run */
 } cli;
 
 /* The last error said, for the run log. */
@@ -229,6 +232,19 @@ static int set_bad_rows(cli *c, const char *arg)
     return 0;
 }
 
+/* The previous fit is read now: a file that is not one fails before any
+ * data is read; whether it is a fit of this model is the run's check. */
+static int set_start(cli *c, const char *path)
+{
+    char msg[1024];
+    mr_fit *previous = NULL;
+    mr_status st = mr_fit_read_json(path, &previous, msg, sizeof msg);
+    if (st != MR_OK) return fail(st, msg);
+    st = mr_fitter_set_start(c->fitter, previous, path);
+    mr_fit_free(previous);
+    return st == MR_OK ? 0 : fail(st, mr_fitter_errmsg(c->fitter));
+}
+
 static const char *directive_of(int opt)
 {
     switch (opt) {
@@ -269,6 +285,7 @@ static int handle_option(cli *c, int opt, const char *arg)
     case OPT_NO_CACHE: mr_fitter_set_int(c->fitter, MR_OPT_NO_CACHE, 1); return -1;
     case OPT_NO_COLLAPSE: mr_fitter_set_int(c->fitter, MR_OPT_NO_COLLAPSE, 1); return -1;
     case OPT_ON_BAD_ROW: return handled(set_bad_rows(c, arg));
+    case OPT_START_FROM: return handled(set_start(c, arg));
     case OPT_JSON: c->json_path = arg; return -1;
     case OPT_RUN_LOG: c->run_log = arg; return -1;
     case OPT_QUIET: c->quiet = 1; return -1;
@@ -283,9 +300,8 @@ static int handle_option(cli *c, int opt, const char *arg)
     }
 }
 
-static void show_progress(const mr_progress *p, void *user)
+static void show_progress(const mr_progress *p, cli *c)
 {
-    cli *c = user;
     double rate = p->seconds > 0 ? p->rows_done / p->seconds : 0;
     if (p->bytes_total > 0) {
         double frac = (double)p->bytes_done / (double)p->bytes_total;
@@ -383,11 +399,43 @@ static int log_run(const cli *c, int rc)
     return st == MR_OK ? rc : fail(st, msg);
 }
 
-/* An interrupted run leaves no temporary output behind; the signal then
- * ends the process as it would have. */
-static void on_fatal_signal(int sig)
+/* the JSON's lock file while this process holds it (lock_output) */
+static char held_lock[4096];
+static volatile sig_atomic_t lock_held;
+
+/* Two runs writing one JSON at once: the second is refused at its start,
+ * naming the first, and the lock is held until the JSON is in place. */
+static int lock_output(cli *c)
 {
+    char msg[1024];
+    mr_status st;
+    if (c->json_path == NULL) return 0;
+    st = mr_output_lock_take(c->json_path, &c->lock, msg, sizeof msg);
+    if (st != MR_OK) return fail(st, msg);
+    if (strlen(mr_output_lock_file(c->lock)) < sizeof held_lock) {
+        strcpy(held_lock, mr_output_lock_file(c->lock));
+        lock_held = 1;
+    }
+    return 0;
+}
+
+/* SIGINT, SIGTERM, SIGHUP.  While the fit runs, the first one only sets
+ * stop_signal (async-signal-safe); the progress callback reads it at the
+ * next block and the library ends the run, its temporary files removed,
+ * and the command exits 128 + the signal's number without any output.
+ * A second signal, or one while the JSON is written (a rename must not be
+ * half done by a handler that returns), ends the process at once: the
+ * temporary output is unlinked and the signal raised again. */
+static volatile sig_atomic_t stop_signal, stop_at_block;
+
+static void on_signal(int sig)
+{
+    if (stop_at_block && !stop_signal) {
+        stop_signal = sig;
+        return;
+    }
     mr_output_unlink_temps();
+    if (lock_held) unlink(held_lock); /* ours while held: the lock's own scheme */
     signal(sig, SIG_DFL);
     raise(sig);
 }
@@ -398,7 +446,7 @@ static void clean_up_on_signals(void)
     struct sigaction sa;
     size_t i;
     memset(&sa, 0, sizeof sa);
-    sa.sa_handler = on_fatal_signal;
+    sa.sa_handler = on_signal;
     sigemptyset(&sa.sa_mask);
     for (i = 0; i < sizeof sigs / sizeof sigs[0]; i++) sigaddset(&sa.sa_mask, sigs[i]);
     for (i = 0; i < sizeof sigs / sizeof sigs[0]; i++) {
@@ -407,6 +455,24 @@ static void clean_up_on_signals(void)
         if (sigaction(sigs[i], NULL, &old) == 0 && old.sa_handler == SIG_IGN) continue;
         sigaction(sigs[i], &sa, NULL);
     }
+}
+
+/* Called by the library a few times a second: the progress line, and
+ * whether a signal asked the fit to stop. */
+static int progress_or_stop(const mr_progress *p, void *user)
+{
+    cli *c = user;
+    if (c->show_progress) show_progress(p, c);
+    return stop_signal != 0;
+}
+
+static int stopped(void)
+{
+    char msg[128];
+    snprintf(msg, sizeof msg, "stopped by signal %d (%s); nothing written", (int)stop_signal,
+             stop_signal == SIGINT ? "SIGINT" : stop_signal == SIGTERM ? "SIGTERM" : "SIGHUP");
+    fail(MR_ERR_STOPPED, msg);
+    return 128 + (int)stop_signal;
 }
 
 static int run_fit(cli *c, int argc, char **argv)
@@ -425,9 +491,17 @@ static int run_fit(cli *c, int argc, char **argv)
     if ((rc = check_outputs(c, argv[optind])) != 0) return rc;
     if (mr_fitter_set_command_line(c->fitter, (size_t)c->argc, (const char *const *)c->argv) != MR_OK)
         return fail(MR_ERR_NO_MEMORY, "out of memory");
-    if (!c->quiet && isatty(STDERR_FILENO)) mr_fitter_set_progress(c->fitter, show_progress, c);
+    if ((rc = lock_output(c)) != 0) return rc;
+    c->show_progress = !c->quiet && isatty(STDERR_FILENO);
+    mr_fitter_set_progress_stop(c->fitter, progress_or_stop, c);
+    stop_at_block = 1;
     st = mr_fitter_run(c->fitter, argv[optind], &fit);
+    stop_at_block = 0;
     if (c->progress_shown) fputs("\r\033[K", stderr);
+    if (stop_signal) {
+        mr_fit_free(fit);
+        return stopped();
+    }
     if (st != MR_OK) return fail(st, mr_fitter_errmsg(c->fitter));
     c->fit = fit;
     rc = publish(c, fit);
@@ -748,6 +822,8 @@ static int dispatch(int argc, char **argv)
     free(c.model_lines);
     free(c.model_origin);
     mr_fitter_free(c.fitter);
+    lock_held = 0; /* before the release: then the name may be another's */
+    mr_output_lock_release(c.lock);
     return rc;
 }
 

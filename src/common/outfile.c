@@ -151,6 +151,13 @@ static mr_status resolve_target(const char *path, char **target, struct stat *st
     return MR_OK;
 }
 
+mr_status mr__outfile_target(const char *path, char **target, mr__error *err)
+{
+    struct stat st;
+    int exists;
+    return resolve_target(path, target, &st, &exists, err);
+}
+
 static const char *kind_of(mode_t m)
 {
     if (S_ISDIR(m)) return "a directory";

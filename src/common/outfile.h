@@ -34,6 +34,10 @@ typedef struct mr__outfile mr__outfile;
  * cannot take a new file, or it cannot be examined).  Creates nothing. */
 mr_status mr__outfile_check(const char *path, const char *const *inputs, size_t ninputs, mr__error *err);
 
+/* The file `path` writes: its last component's links followed (*target
+ * freed by the caller). */
+mr_status mr__outfile_target(const char *path, char **target, mr__error *err);
+
 /* Checks as mr__outfile_check, sweeps stale temporary files and creates
  * this one.  On MR_OK *out is to be ended by commit or abort. */
 mr_status mr__outfile_open(mr__outfile **out, const char *path, const char *const *inputs, size_t ninputs,

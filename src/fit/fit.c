@@ -52,6 +52,7 @@ void mr_fit_free(mr_fit *fit)
     free_strings(fit->bad_example, fit->nbad_examples);
     mr__free(fit->pass_seconds);
     mr__free(fit->path);
+    mr__free(fit->start_from);
     mr__free(fit->version);
     free_strings(fit->warning, fit->nwarnings);
     free_strings(fit->command_line, fit->ncommand_line);
@@ -166,6 +167,7 @@ double mr_fit_stat(const mr_fit *fit, mr_stat which)
     case MR_STAT_RANK: return (double)fit->rank;
     case MR_STAT_LEVEL: return fit->level;
     case MR_STAT_FAMILY_PARAMETER: return fit->family_param_given ? fit->family_param : NAN;
+    case MR_STAT_START_CARRIED: return fit->start_given ? (double)fit->start_carried : NAN;
     }
     return NAN;
 }

@@ -75,6 +75,9 @@ struct mr_fit {
     /* convergence */
     int iterations, passes, halvings, converged, warm_start, warm_iterations, by_decrement;
     int warm_blocks, warm_polish_blocks; /* sample blocks the warm start used (0: none) */
+    int start_given;       /* started from a previous fit (mr_fitter_set_start) */
+    char *start_from;      /* its label; NULL when none */
+    size_t start_carried, start_previous; /* coefficients taken from it; it had */
     size_t patterns; /* covariate patterns the rows collapsed into; 0 = not collapsed */
     double rel_change, seconds, rows_per_second;
     double *pass_seconds;

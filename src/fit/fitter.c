@@ -7,6 +7,7 @@
 #include "common/clock.h"
 #include "fit/fit.h"
 #include "fit/fitter.h"
+#include "fit/start.h"
 
 #define DEFAULT_MAX_PASSES 50
 #define DEFAULT_BUFFER (1u << 20)
@@ -36,6 +37,7 @@ void mr_fitter_free(mr_fitter *f)
     mr__spec_release(&f->spec);
     mr_fitter_clear_missing(f);
     mr__strings_free(f->command_line, f->ncommand_line);
+    mr__start_free(f->start);
     mr__free(f);
 }
 
@@ -191,4 +193,15 @@ void mr_fitter_set_progress_stop(mr_fitter *f, mr_progress_stop_fn fn, void *use
     f->progress = NULL;
     f->progress_stop = fn;
     f->progress_user = user;
+}
+
+mr_status mr_fitter_set_start(mr_fitter *f, const mr_fit *previous, const char *label)
+{
+    mr__start *s = NULL;
+    mr__error_clear(&f->err);
+    if (previous != NULL && (s = mr__start_copy(previous, label)) == NULL)
+        return mr__fail(&f->err, MR_ERR_NO_MEMORY, "out of memory");
+    mr__start_free(f->start);
+    f->start = s;
+    return MR_OK;
 }

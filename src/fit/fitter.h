@@ -5,6 +5,8 @@
 #include "common/error.h"
 #include "model/spec.h"
 
+struct mr__start;
+
 struct mr_fitter {
     mr__spec spec;
     mr__error err;
@@ -18,6 +20,7 @@ struct mr_fitter {
     void *progress_user;
     char **command_line; /* mr_fitter_set_command_line's copy */
     size_t ncommand_line;
+    struct mr__start *start; /* mr_fitter_set_start; NULL: none (start.h) */
 };
 
 /* The fit itself (run.c). */

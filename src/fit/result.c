@@ -13,6 +13,7 @@
 #include "family/family.h"
 #include "fit/fit.h"
 #include "fit/run.h"
+#include "fit/start.h"
 #include "common/probability.h"
 #include "solve/normal_eq.h"
 
@@ -375,6 +376,12 @@ static mr_status copy_run_info(mr_fit *fit, const mr__run *r, mr__error *err)
     fit->warm_iterations = r->warm_iterations;
     fit->warm_blocks = r->warm ? r->warm_blocks : 0;
     fit->warm_polish_blocks = r->warm ? r->warm_polish_blocks : 0;
+    if ((fit->start_given = r->started) != 0) {
+        fit->start_carried = r->start_carried;
+        fit->start_previous = f->start->p;
+        if ((fit->start_from = mr__strdup(f->start->label)) == NULL)
+            return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    }
     fit->converged = r->converged;
     fit->status = r->converged ? MR_OK : MR_ERR_NOT_CONVERGED;
     fit->rel_change = r->rel_change;

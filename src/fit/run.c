@@ -33,6 +33,7 @@ int openblas_get_num_threads(void);
 #include "fit/fitter.h"
 #include "fit/irls.h"
 #include "fit/run.h"
+#include "fit/start.h"
 #include "model/design.h"
 #include "common/probability.h"
 #include "solve/normal_eq.h"
@@ -305,7 +306,7 @@ static void warm_start(mr__run *r)
     mr__error scratch;
     /* the sample holds first-pass level numbers, as the cache does; with
      * no cache, or a cache started afresh, the maps are not made yet */
-    if (!r->collapsed && stride >= 2 && (r->remap != NULL || mr__build_remap(r, &scratch) == MR_OK)) {
+    if (!r->started && !r->collapsed && stride >= 2 && (r->remap != NULL || mr__build_remap(r, &scratch) == MR_OK)) {
         mr__store_remap(sample, r->remap, r->bind.nfac);
         r->warm = sample_fit(r, stride, NULL, 25, r->beta_warm, &r->warm_iterations);
         r->warm_blocks = (int)((sample->n + stride - 1) / stride);
@@ -324,7 +325,7 @@ static mr_status fit_data(mr__run *r, mr__error *err)
         job.replay = &r->patterns;
         job.deviance_shift = r->within_deviance;
     }
-    job.start = r->warm ? r->beta_warm : NULL;
+    job.start = r->warm || r->started ? r->beta_warm : NULL;
     job.tolerance = r->f->tolerance;
     job.max_iterations = r->f->max_passes;
     job.beta_out = r->beta_final;
@@ -398,6 +399,7 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
     r.dcfg.collapse = mr__collapse_mode(&r);
     r.dcfg.collapse_abandoned = &r.collapse_abandoned;
     st = mr__spec_validate(&f->spec, err);
+    if (st == MR_OK && f->start) st = mr__start_check(f->start, &f->spec, err);
     if (st == MR_OK) {
         mr__choose_store(&r);
         /* Our workers use every core; BLAS threads inside them would only
@@ -411,6 +413,10 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
     if (st == MR_OK) st = allocate_coefficients(&r, err);
     if (st == MR_OK && r.first.collapsed) st = mr__build_patterns(&r, err);
     if (st == MR_OK) st = mr__settle_store(&r, err);
+    if (st == MR_OK && f->start) st = mr__start_map(f->start, &r.design, r.beta_warm, &r.start_carried, err);
+    r.started = st == MR_OK && f->start != NULL;
+    /* a previous fit's point is nearer the maximum than a sample's: the
+     * warm start then only gives its sample back */
     if (st == MR_OK) warm_start(&r);
     if (st == MR_OK) st = fit_data(&r, err);
     if (st == MR_OK) st = mr__build_fit(&r, out, err);

@@ -56,6 +56,8 @@ typedef struct mr__run {
     mr__pass_result last; /* sums at the reported coefficients */
     double *beta_final, *beta_warm;
     int warm, warm_iterations;
+    int started;           /* beta_warm holds a previous fit's coefficients */
+    size_t start_carried;  /* how many of them came from it */
     int warm_blocks, warm_polish_blocks; /* sample blocks of the two stages (0: none) */
     double null_b0, rel_change;
     int iterations, halvings, converged, by_decrement;

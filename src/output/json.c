@@ -200,6 +200,7 @@ static json_t *value(const mr_fit *f, const mr__jfield *fl, const void *base, si
     case MR__J_DERIVED: return derived(f, fl->which, base, index, skip);
     case MR__J_SPECIAL: return special(f, fl->which, base);
     case MR__J_OBJECT: return object(f, fl->sub, base, index);
+    case MR__J_OBJECT_ADDED:
     case MR__J_OBJECT_OR_NULL: return *(const int *)(b + fl->count) ? object(f, fl->sub, base, index) : json_null();
     case MR__J_OBJECT_OPTIONAL:
         *skip = !*(const int *)(b + fl->count);

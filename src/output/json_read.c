@@ -348,6 +348,7 @@ static mr_status read_value(reader *r, const mr__jfield *fl, json_t *v, void *ba
     case MR__J_OBJECT_OPTIONAL:
         *(int *)((char *)base + fl->count) = 1;
         return read_object(r, v, fl->sub, base, index);
+    case MR__J_OBJECT_ADDED:
     case MR__J_OBJECT_OR_NULL:
         *(int *)((char *)base + fl->count) = !json_is_null(v);
         if (json_is_null(v)) return MR_OK;
@@ -371,6 +372,7 @@ static mr_status read_object(reader *r, json_t *o, const mr__jfield *fields, voi
         json_t *v = json_object_get(o, fl->key);
         if (fl->kind == MR__J_DERIVED || (fl->kind == MR__J_OBJECT_OPTIONAL && v == NULL)) continue;
         back = enter(r, fl->key);
+        if (v == NULL && fl->kind == MR__J_OBJECT_ADDED) v = json_null();
         if (v == NULL) return bad(r, "is missing");
         MR__TRY(read_value(r, fl, v, base, index));
         leave(r, back);

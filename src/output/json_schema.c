@@ -119,6 +119,13 @@ static const mr__jfield options_fields[] = {
     END,
 };
 
+static const mr__jfield start_fields[] = {
+    F("from", MR__J_TEXT, start_from),
+    F("coefficients_carried", MR__J_SIZE, start_carried),
+    F("previous_coefficients", MR__J_SIZE, start_previous),
+    END,
+};
+
 static const mr__jfield convergence_fields[] = {
     F("converged", MR__J_BOOL, converged),
     CHOICE("criterion", by_decrement, "newton decrement", "deviance change"),
@@ -131,6 +138,7 @@ static const mr__jfield convergence_fields[] = {
     F("warm_start_blocks", MR__J_INT, warm_blocks),
     F("warm_start_polish_blocks", MR__J_INT, warm_polish_blocks),
     F("collapsed_patterns", MR__J_COUNT_OR_NULL, patterns),
+    {"start", MR__J_OBJECT_ADDED, 0, AT(start_given), 0, 0, 0, 0, NULL, NULL, start_fields},
     F("seconds", MR__J_REAL, seconds),
     LIST("pass_seconds", MR__J_REALS, pass_seconds, npass_seconds),
     F("rows_per_second", MR__J_REAL, rows_per_second),

@@ -35,6 +35,8 @@ typedef enum mr__jkind {
     MR__J_OBJECT_OR_NULL,/* as OBJECT, or null when the int at `count` is 0 */
     MR__J_OBJECT_OPTIONAL,/* as OBJECT, left out when the int at `count` is 0;
                             a file without it reads with that int 0 */
+    MR__J_OBJECT_ADDED,  /* as OBJECT_OR_NULL, added within a format_version:
+                            absent in older files, and read as null there */
     MR__J_RECORDS,       /* an array of `count` objects of the indexed fields `sub` */
     MR__J_STRUCTS,       /* an array of `count` structs of `size` bytes at `at`, each the fields `sub` */
     MR__J_KEYED,         /* as STRUCTS, as an object keyed by each struct's text at `key_at` */
