@@ -104,7 +104,7 @@ START_TEST(normal_quantile_scipy)
     for (size_t i = 0; i < N_OF(NORM_PPF); i++) {
         double p = NORM_PPF[i][0], want = NORM_PPF[i][1];
         double got = mr__normal_quantile(p);
-        /* The brief for this routine is ~1e-15 relative; scipy's ndtri
+        /* The accuracy aimed at for this routine is ~1e-15 relative; scipy's ndtri
          * agreed with mpmath to 2.2e-16 at these points. */
         ck_assert_msg(close_rel(got, want, 4e-15), "normal_quantile(%.17g) = %.17g, scipy %.17g",
                       p, got, want);
