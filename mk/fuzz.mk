@@ -1,4 +1,4 @@
-# mk/fuzz.mk - libFuzzer targets for the input stack (included by the Makefile).
+# mk/fuzz.mk - libFuzzer targets for the input stack and the fit reader (included by the Makefile).
 #
 #   make fuzz FUZZ_SECONDS=N   each target for N seconds (default 300), one at a
 #                              time; what each finds grows build/fuzz/corpus/NAME
@@ -9,15 +9,14 @@
 # A target NAME is tests/fuzz/fuzz_NAME.c (LLVMFuzzerTestOneInput against the
 # library built with ASan+UBSan and coverage), its seeds tests/fuzz/corpus/NAME/,
 # and the inputs that once failed it tests/fuzz/regressions/NAME/.  Adding one
-# is adding its name to FUZZ_TARGETS.  Still to come beside these: a saved fit
-# read back (fitfile) and gzip input (gzip), with their readers.
+# is adding its name to FUZZ_TARGETS.
 #
 # The compiler is Debian's clang with its libFuzzer runtime (packages clang and
 # libclang-rt-dev, in DEBIAN_PACKAGES).  Without them fuzz-check says so and
 # skips; it never passes in silence.
 
 FUZZ_CC      ?= clang
-FUZZ_TARGETS := rowsplit numparse model zstd
+FUZZ_TARGETS := rowsplit numparse model zstd fitjson gzip
 FUZZ_SECONDS ?= 300
 FUZZ_CHECK_SECONDS ?= 30
 FB           := $(B)/fuzz

@@ -5,7 +5,8 @@ The seeds are the malformed (and a few well-formed) inputs of the unit and
 command-line tests - tests/check_input.c, tests/check_numparse.c,
 tests/cli/errors.sh - and the bundled samples, each with the control bytes
 its target reads first (see the comment at the top of each fuzz_*.c).
-Needs the zstd command.  Run from the top of the tree; rewrites the seeds.
+Needs the zstd and gzip commands, and build/millrace (`make`) for the fits
+of the samples.  Run from the top of the tree; rewrites the seeds.
 """
 import os
 import shutil
@@ -173,10 +174,79 @@ def zstd():
         shutil.rmtree(tmp)
 
 
+def run_tool(args):
+    subprocess.run(args, check=True, stdout=subprocess.DEVNULL)
+
+
+def fitjson():
+    """Fits of the samples as build/millrace writes them, and damaged copies.
+    The falls fit is of a smaller model than samples/falls.model (no age band,
+    no interaction), so that it stays under run.sh's -max_len."""
+    tmp = tempfile.mkdtemp()
+    try:
+        small = os.path.join(tmp, "falls_small.model")
+        with open(small, "w") as f:
+            f.write("outcome admissions\nfamily poisson\nexposure person_years\n"
+                    "factor sex\nfactor region\nnumeric year\n")
+        fits = {}
+        for name, model, data in (("falls", small, "samples/falls.csv.zst"),
+                                  ("screening", "samples/screening.model", "samples/screening.csv")):
+            out = os.path.join(tmp, name + ".json")
+            run_tool(["build/millrace", "fit", "--quiet", "--model", model, "--json", out, data])
+            with open(out, "rb") as f:
+                fits[name] = f.read()
+        s = fits["screening"]
+        seeds = dict(fits)
+        seeds["truncated"] = s[:len(s) // 2]
+        seeds["wrong_version"] = s.replace(b'"format_version": 2', b'"format_version": 3', 1)
+        seeds["wrong_format"] = s.replace(b'"millrace-fit"', b'"millrace-drift"', 1)
+        seeds["wrong_type"] = s.replace(b'"family": "binomial"', b'"family": 7', 1)
+        seeds["not_json"] = b"outcome y\nfamily poisson\n"
+        seeds["empty_object"] = b"{}"
+        for name, data in seeds.items():
+            write("fitjson", name, data)
+    finally:
+        shutil.rmtree(tmp)
+
+
+def gzip():
+    tmp = tempfile.mkdtemp()
+    try:
+        def compress(data, *opts):
+            p = os.path.join(tmp, "in")
+            with open(p, "wb") as f:
+                f.write(data)
+            run_tool(["gzip", "-n", "-f", *opts, p])
+            with open(p + ".gz", "rb") as f:
+                return f.read()
+        with open(os.path.join(HERE, "..", "..", "samples", "screening.csv"), "rb") as f:
+            lines = b"".join(f.readlines()[:12])
+        a, b = b"h,x\n1,2\n3,4\n", b'5,6\n7,"8\n9"\n'
+        z = compress(lines)
+        seeds = {
+            "sample_lines": z,
+            "two_members": compress(a) + compress(b),
+            "truncated": z[:len(z) - 7],
+            "trailing_garbage": compress(a) + b"garbage",
+            "corrupt_crc": z[:-8] + bytes(c ^ 0xFF for c in z[-8:-4]) + z[-4:],
+            "level1_good": compress(CSV["good"].encode(), "-1"),
+            "empty_member": compress(b""),
+            "magic_only": b"\x1f\x8b",
+            "plain_csv": a,
+            "tiny_empty": b"",
+        }
+        for k, (name, data) in enumerate(sorted(seeds.items())):
+            write("gzip", name, bytes([k * 37 % 256, k * 53 % 256]) + data)
+    finally:
+        shutil.rmtree(tmp)
+
+
 if __name__ == "__main__":
-    for t in ("rowsplit", "numparse", "model", "zstd"):
+    for t in ("rowsplit", "numparse", "model", "zstd", "fitjson", "gzip"):
         shutil.rmtree(os.path.join(HERE, "corpus", t), ignore_errors=True)
     rowsplit()
     numparse()
     model()
     zstd()
+    fitjson()
+    gzip()
