@@ -44,22 +44,25 @@ int openblas_get_num_threads(void);
 #define THREADS_PER_CPU 4
 #define MAX_THREADS 64
 
-static int online_cpus(void)
+int mr__worker_threads(int asked, int *cpus)
 {
     long n = sysconf(_SC_NPROCESSORS_ONLN);
-    return n > 0 ? (int)(n > MAX_THREADS ? MAX_THREADS : n) : 1;
+    int cap;
+    *cpus = n > 0 ? (int)(n > MAX_THREADS ? MAX_THREADS : n) : 1;
+    cap = *cpus * THREADS_PER_CPU > MAX_THREADS ? MAX_THREADS : *cpus * THREADS_PER_CPU;
+    if (asked <= 0) return *cpus;
+    return asked > cap ? cap : asked;
 }
 
 static void choose_threads(mr__run *r)
 {
-    int cpus = online_cpus(), cap = cpus * THREADS_PER_CPU > MAX_THREADS ? MAX_THREADS : cpus * THREADS_PER_CPU;
-    r->nthreads = r->f->threads > 0 ? r->f->threads : cpus;
-    if (r->nthreads <= cap) return;
+    int cpus;
+    r->nthreads = mr__worker_threads(r->f->threads, &cpus);
+    if (r->f->threads <= r->nthreads) return;
     snprintf(r->threads_note, sizeof r->threads_note,
              "%d worker threads asked for, %d used: at most %d per online CPU (%d here) and %d in all, as each costs "
              "about 6 MB and more than the cores only wait; results do not depend on the count",
-             r->nthreads, cap, THREADS_PER_CPU, cpus, MAX_THREADS);
-    r->nthreads = cap;
+             r->f->threads, r->nthreads, THREADS_PER_CPU, cpus, MAX_THREADS);
 }
 
 /* ---- passes ------------------------------------------------------------ */

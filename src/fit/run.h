@@ -92,4 +92,10 @@ mr_status mr__build_remap(mr__run *r, mr__error *err);
 int mr__collapse_mode(const mr__run *r);
 mr_status mr__build_patterns(mr__run *r, mr__error *err);
 
+/* Worker threads for `asked` (0: one per online CPU): at most 4 per
+ * online CPU and 64 in all, as each costs about 6 MB and more than the
+ * cores only wait.  *cpus: the online CPUs counted.  Fits and scoring
+ * alike. */
+int mr__worker_threads(int asked, int *cpus);
+
 #endif

@@ -15,9 +15,9 @@
 #include "common/probability.h"
 #include "common/utf8.h"
 #include "fit/fit.h"
+#include "fit/run.h"
 #include "fit/scorer.h"
 
-#define SCORER_MAX_THREADS 64
 
 mr_scorer *mr_scorer_new(const mr_fit *fit)
 {
@@ -358,14 +358,6 @@ static void release_scoring(scoring *g)
 
 /* ---- the run -------------------------------------------------------------- */
 
-static int scoring_threads(int asked)
-{
-    long n = sysconf(_SC_NPROCESSORS_ONLN);
-    int cpus = n > 0 ? (int)(n > SCORER_MAX_THREADS ? SCORER_MAX_THREADS : n) : 1;
-    if (asked <= 0) return cpus;
-    return asked > 4 * cpus ? 4 * cpus : asked > SCORER_MAX_THREADS ? SCORER_MAX_THREADS : asked;
-}
-
 static mr_status run_pass(scoring *g, const char *data, mr__error *err)
 {
     mr__binding none;
@@ -373,6 +365,7 @@ static mr_status run_pass(scoring *g, const char *data, mr__error *err)
     mr__pass_cfg cfg;
     mr__pass_result res;
     mr_status st;
+    int cpus;
     memset(&none, 0, sizeof none);
     memset(&dcfg, 0, sizeof dcfg);
     memset(&cfg, 0, sizeof cfg);
@@ -384,7 +377,7 @@ static mr_status run_pass(scoring *g, const char *data, mr__error *err)
     cfg.display = g->display;
     cfg.read_size = 1 << 20;
     cfg.tee_fd = -1;
-    cfg.nthreads = scoring_threads(g->s->threads);
+    cfg.nthreads = mr__worker_threads(g->s->threads, &cpus);
     cfg.on_header = on_header;
     cfg.header_user = g;
     cfg.dcfg = &dcfg;
