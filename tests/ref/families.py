@@ -90,7 +90,7 @@ def nb_statsmodels(theta, link, X, y, w, off):
     n, p = X.shape
     out = {"coef": np.asarray(res.params), "se": np.asarray(res.bse), "deviance": res.deviance,
            "null_deviance": null_dev, "pearson_chi2": res.pearson_chi2, "dispersion": res.scale,
-           "df_residual": n - p, "rank": p, "n": n}
+           "residual_df": n - p, "rank": p, "n": n}
     if np.all(w == 1):  # statsmodels' density takes no prior weights
         out.update(cr.stats_from_ll(res.llf, p, n))
     return out
@@ -178,7 +178,7 @@ def tweedie_statsmodels(p_power, X, y, w, off):
     n, p = X.shape
     return {"coef": np.asarray(res.params), "se": np.asarray(res.bse), "deviance": res.deviance,
             "null_deviance": null_dev, "pearson_chi2": res.pearson_chi2, "dispersion": res.scale,
-            "df_residual": n - p, "rank": p, "n": n}
+            "residual_df": n - p, "rank": p, "n": n}
 
 
 def check_tweedie(case, p_power, tmp, collapsed):
