@@ -215,7 +215,7 @@ static void coefficient_table(mr__strbuf *b, const mr__html_page *pg, const mr_f
     const char *ratio = mr__fit_ratio_label(f);
     size_t j;
     mr__strbuf_printf(b, "<h3>Coefficients</h3>\n<p>Wald %s tests and %g%% intervals%s%s%s.</p>\n"
-                         "<table class=\"num\"><thead><tr><th>coefficient</th><th>estimate</th><th>std. error</th>"
+                         "<table class=\"num\"><thead><tr><th>coefficient</th><th>estimate</th><th>SE</th>"
                          "<th>%s</th><th>p</th><th>low</th><th>high</th>",
                       mr__fit_statistic_name(f), 100 * f->level, ratio ? "; " : "", ratio ? ratio : "",
                       ratio ? " = exp(estimate)" : "", mr__fit_statistic_name(f));
