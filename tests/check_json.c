@@ -474,6 +474,19 @@ START_TEST(format_2_read)
     free(text);
     mr_fit_free(old);
     mr_fit_free(now);
+    /* a column called intercept beside "(intercept)": refused, not two coefficients of one name */
+    text = slurp("tests/cli/fit_format2.json");
+    {
+        char *at = strstr(strstr(text, "\"coefficients\": ["), "\"name\": \"year\"");
+        char *edited = malloc(strlen(text) + 16);
+        ck_assert_ptr_nonnull(at);
+        sprintf(edited, "%.*s\"name\": \"intercept\"%s", (int)(at - text), text, at + strlen("\"name\": \"year\""));
+        spit(in_dir("clash.json"), edited, strlen(edited));
+        free(edited);
+    }
+    free(text);
+    ck_assert_int_eq(mr_fit_read_json(in_dir("clash.json"), &old, msg, sizeof msg), MR_ERR_FORMAT);
+    ck_assert_msg(strstr(msg, "both '(intercept)' and a coefficient named 'intercept'") != NULL, "%s", msg);
 }
 END_TEST
 

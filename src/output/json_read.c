@@ -391,7 +391,13 @@ static mr_status check_format(reader *r, json_t *root)
         json_integer_value(version) > MR__JSON_FORMAT_VERSION)
         return say(r, MR_ERR_FORMAT, "%s: format_version is not %d to %d, the ones this library reads", r->path,
                    MR__JSON_FORMAT_VERSION_OLDEST, MR__JSON_FORMAT_VERSION);
-    if (json_integer_value(version) < MR__JSON_FORMAT_VERSION && mr__json_upgrade(root) != 0) return no_memory(r);
+    if (json_integer_value(version) < MR__JSON_FORMAT_VERSION) {
+        int up = mr__json_upgrade(root);
+        if (up > 0)
+            return say(r, MR_ERR_FORMAT, "%s: a format_version 2 fit with both '(intercept)' and a coefficient named "
+                                         "'intercept': refit it with that column renamed", r->path);
+        if (up < 0) return no_memory(r);
+    }
     return MR_OK;
 }
 

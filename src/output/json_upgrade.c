@@ -27,11 +27,31 @@ static int upgrade_coefficient(json_t *c)
     return 0;
 }
 
+static int named(json_t *c, const char *name)
+{
+    json_t *v = json_object_get(c, "name");
+    return json_is_string(v) && strcmp(json_string_value(v), name) == 0;
+}
+
+/* Version 2 let a column called intercept sit beside "(intercept)". */
+static int names_clash(json_t *coefs)
+{
+    json_t *c;
+    size_t i;
+    int old = 0, new = 0;
+    json_array_foreach(coefs, i, c) {
+        old |= named(c, OLD_INTERCEPT);
+        new |= named(c, MR__INTERCEPT_NAME);
+    }
+    return old && new;
+}
+
 int mr__json_upgrade(json_t *root)
 {
     json_t *coefs = json_object_get(root, "coefficients"), *c;
     json_t *fit = json_object_get(root, "fit");
     size_t i;
+    if (names_clash(coefs)) return 1;
     json_array_foreach(coefs, i, c)
         if (json_is_object(c) && upgrade_coefficient(c) != 0) return -1;
     if (rename_key(fit, "df_residual", "residual_df") != 0 || rename_key(fit, "df_null", "null_df") != 0) return -1;

@@ -10,7 +10,8 @@
  * fit's `df_residual` and `df_null` become `residual_df` and `null_df`,
  * the coefficient (and covariance) name "(intercept)" becomes "intercept".
  * Keys that are missing or of the wrong type are left for the reader to
- * name.  0, or -1 when out of memory. */
+ * name.  0; 1 when the file also has a coefficient named "intercept" (a
+ * column of that name, which version 3 refuses); -1 when out of memory. */
 int mr__json_upgrade(json_t *root);
 
 #endif
