@@ -8,7 +8,7 @@
 
 /* Version 2 to 3: coefficients' `std_error` becomes `standard_error`,
  * fit's `df_residual` and `df_null` become `residual_df` and `null_df`,
- * the coefficient (and covariance) name "(intercept)" becomes "intercept".
+ * the coefficient name "(intercept)" becomes "intercept".
  * Keys that are missing or of the wrong type are left for the reader to
  * name.  0; 1 when the file also has a coefficient named "intercept" (a
  * column of that name, which version 3 refuses); -1 when out of memory. */

@@ -67,7 +67,7 @@ out <- file.path(d, "r_out.txt")
 cat(sprintf("coef %.17g %.17g\n", fit$coefficients, sqrt(diag(cov))), sep = "", file = out)
 vals <- c(deviance = fit$deviance, null_deviance = nulldev, pearson_chi2 = pearson, dispersion = 1,
           log_likelihood = ll, aic = fit$aic, bic = -2 * ll + log(nobs) * fit$rank,
-          df_residual = fit$df.residual, rank = fit$rank, n = nobs)
+          residual_df = fit$df.residual, rank = fit$rank, n = nobs)
 cat(sprintf("%s %.17g\n", names(vals), vals), sep = "", file = out, append = TRUE)
 """
 
