@@ -203,7 +203,9 @@ def fitjson():
         s = fits["screening"]
         seeds = dict(fits)
         seeds["truncated"] = s[:len(s) // 2]
-        seeds["wrong_version"] = s.replace(b'"format_version": 2', b'"format_version": 3', 1)
+        seeds["wrong_version"] = s.replace(b'"format_version": 3', b'"format_version": 99', 1)
+        with open(os.path.join(HERE, "..", "cli", "fit_format2.json"), "rb") as f:
+            seeds["falls_format2"] = f.read()  # an older format the reader still takes
         seeds["wrong_format"] = s.replace(b'"millrace-fit"', b'"millrace-drift"', 1)
         seeds["wrong_type"] = s.replace(b'"family": "binomial"', b'"family": 7', 1)
         seeds["not_json"] = b"outcome y\nfamily poisson\n"
