@@ -757,9 +757,14 @@ MR_API const char *mr_fit_warning(const mr_fit *fit, size_t i);
  * its own fitter's options: its own rows (complete cases of its own
  * columns), design, IRLS and convergence, so each model's fit has the
  * same coefficients, standard errors and deviance, bit for bit, as that
- * model fitted alone.  The data file is read once per model and pass for
- * now (standard input is refused with MR_ERR_USAGE: it cannot be read
- * again); sharing the reads between the models changes no result.
+ * model fitted alone.  The first pass is shared: the file (or standard
+ * input, "-") is read, decompressed and cut into rows once, and every
+ * model decodes each block with its own columns.  Later passes are each
+ * model's own, as alone: over its kept columns or covariate patterns
+ * (no reading), or, without a cache, over the file again (input read
+ * only once is copied once, for all the models).  The fitters' progress
+ * callbacks: the first fitter's during the shared pass, each fitter's own
+ * after it.
  *
  * Tests.  A model A is nested in B when both have the same outcome,
  * trials, family (and parameter), link, offset, exposure, weight,
@@ -781,7 +786,8 @@ MR_API const char *mr_fit_warning(const mr_fit *fit, size_t i);
  * of its terms in turn, each reduced model tested against model i as a
  * nested pair above.  A term that is part of a larger term (a covariate
  * of an interaction, an interaction inside a larger one) is kept, as
- * marginality asks; the reduced models are fitted in the same run.
+ * marginality asks; the reduced models are fitted in the same shared
+ * first pass as the models.
  *
  * These are tests of models chosen by the analyst; p-values are not
  * adjusted for the number of tests or for choosing among models. */
@@ -799,9 +805,10 @@ MR_API mr_status mr_comparison_add(mr_comparison *c, mr_fitter *fitter, const ch
 MR_API mr_status mr_comparison_drop_one(mr_comparison *c, size_t model);
 /* Fits every model (and the reduced models of drop-one tests) to `path`
  * and computes the tests.  MR_OK, or the status of the first model that
- * failed, with a message naming that model ("model LABEL: ...") - a
- * column of its model missing from the file, say; MR_ERR_USAGE for no
- * model or "-" as the path.  A model that stopped at the pass limit is
+ * failed, with a message naming that model ("model LABEL: ...", or
+ * "model LABEL without TERM: ..." for a reduced one) - a column of its
+ * model missing from the file, say; MR_ERR_USAGE for no model.  A reduced
+ * model that is no model (nothing left to fit) is a test with a note.  A model that stopped at the pass limit is
  * kept and flagged (mr_fit_status), as with mr_fitter_run. */
 MR_API mr_status mr_comparison_run(mr_comparison *c, const char *path);
 MR_API size_t mr_comparison_nmodels(const mr_comparison *c);

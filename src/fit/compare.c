@@ -9,6 +9,7 @@
 #include "common/alloc.h"
 #include "fit/compare.h"
 #include "fit/fitter.h"
+#include "fit/multi.h"
 
 mr_comparison *mr_comparison_new(void) { return mr__calloc(1, sizeof(mr_comparison)); }
 
@@ -80,70 +81,115 @@ static mr__cmp_test *new_test(mr_comparison *c, mr_test_kind kind, size_t smalle
     return t;
 }
 
-/* The fitter's own run; a failure names the model. */
-static mr_status fit_model(mr_comparison *c, mr__cmp_model *m, const char *path)
+/* A model refitted without a term: a fitter of its own that shares the
+ * model's options (read only during the run) and holds the model less the
+ * term; a start from a previous fit would not fit it and is left out. */
+typedef struct reduced {
+    size_t model, test;
+    mr_fitter *fitter; /* a shallow copy: only its spec is its own */
+} reduced;
+
+/* The terms of a spec as the design numbers them (covariates, then
+ * interactions): their columns. */
+static size_t term_parts(const mr__spec *s, size_t t, const char **part)
 {
-    mr_status st = mr_fitter_run(m->fitter, path, &m->fit);
-    if (st != MR_OK) return mr__fail(&c->err, st, "model %s: %s", m->label, mr_fitter_errmsg(m->fitter));
+    int k;
+    if (t < s->ncov) {
+        part[0] = s->cov[t].name;
+        return 1;
+    }
+    for (k = 0; k < s->inter[t - s->ncov].n; k++) part[k] = s->inter[t - s->ncov].name[k];
+    return (size_t)s->inter[t - s->ncov].n;
+}
+
+/* Kept when inside a larger term (marginality, as R's drop.scope). */
+static int droppable(const mr__spec *s, size_t t)
+{
+    const char *a[MR__MAX_INTERACT] = {NULL}, *b[MR__MAX_INTERACT] = {NULL};
+    size_t na = term_parts(s, t, a), u, i, k;
+    for (u = 0; u < s->ncov + s->ninter; u++) {
+        size_t nb = term_parts(s, u, b), found = 0;
+        if (u == t || nb <= na) continue;
+        for (i = 0; i < na; i++)
+            for (k = 0; k < nb; k++) found += strcmp(a[i], b[k]) == 0;
+        if (found == na) return 0;
+    }
+    return 1;
+}
+
+static char *term_label(const mr__spec *s, size_t t)
+{
+    const char *part[MR__MAX_INTERACT] = {NULL};
+    size_t n = term_parts(s, t, part), i, len = 1;
+    char *label;
+    for (i = 0; i < n; i++) len += strlen(part[i]) + 3;
+    if ((label = mr__malloc(len)) == NULL) return NULL;
+    label[0] = '\0';
+    for (i = 0; i < n; i++) {
+        if (i > 0) strcat(label, " & ");
+        strcat(label, part[i]);
+    }
+    return label;
+}
+
+static void free_reduced(reduced *rd, size_t n)
+{
+    size_t i;
+    for (i = 0; rd && i < n; i++) {
+        if (rd[i].fitter == NULL) continue;
+        mr__spec_release(&rd[i].fitter->spec);
+        mr__free(rd[i].fitter);
+    }
+    mr__free(rd);
+}
+
+/* Model m without term t as a test to come; *out NULL when the reduced
+ * model is no model (nothing left to fit): the test then says so. */
+static mr_status reduce(mr_comparison *c, size_t m, size_t t, reduced *out)
+{
+    mr_fitter *f = c->model[m].fitter, *g;
+    mr__cmp_test *test = new_test(c, MR_TEST_DROP_ONE, (size_t)-1, m);
+    out->fitter = NULL;
+    if (test == NULL || (test->term = term_label(&f->spec, t)) == NULL)
+        return mr__fail(&c->err, MR_ERR_NO_MEMORY, "out of memory");
+    test->pub.term = test->term;
+    out->model = m;
+    out->test = c->ntests - 1;
+    if ((g = mr__malloc(sizeof *g)) == NULL) return mr__fail(&c->err, MR_ERR_NO_MEMORY, "out of memory");
+    *g = *f;
+    g->start = NULL;
+    mr__error_clear(&g->err);
+    if (mr__spec_copy(&g->spec, &f->spec, &c->err) != MR_OK) {
+        mr__free(g);
+        return c->err.status;
+    }
+    out->fitter = g;
+    (void)mr__spec_drop_term(&g->spec, t);
+    if (mr__spec_validate(&g->spec, &g->err) != MR_OK) {
+        char note[256];
+        snprintf(note, sizeof note, "not fitted: %.200s", g->err.msg);
+        mr__cmp_test_blank(test, note);
+        mr__spec_release(&g->spec);
+        mr__free(g);
+        out->fitter = NULL;
+    }
     return MR_OK;
 }
 
-/* Model m without term t: the fitter's model swapped for the reduced one
- * for one run (its options stay; a start from a previous fit would not
- * fit the reduced model and is left out), then put back. */
-static mr_status fit_reduced(mr__cmp_model *m, size_t t, const char *path, mr_fit **out)
+/* Every reduced model the drop-one tests need, in the order of the tests. */
+static mr_status reductions(mr_comparison *c, reduced **out, size_t *n)
 {
-    mr_fitter *f = m->fitter;
-    mr__spec reduced, kept;
-    struct mr__start *start = f->start;
-    mr_status st = mr__spec_copy(&reduced, &f->spec, &f->err);
+    size_t m, t, cap = 0;
     *out = NULL;
-    if (st != MR_OK) return st;
-    (void)mr__spec_drop_term(&reduced, t);
-    kept = f->spec;
-    f->spec = reduced;
-    f->start = NULL;
-    st = mr_fitter_run(f, path, out);
-    f->start = start;
-    reduced = f->spec;
-    f->spec = kept;
-    mr__spec_release(&reduced);
-    return st;
-}
-
-/* A reduced model that cannot be fitted (no terms and no intercept left,
- * no data once the column is gone) is a test with a note, not a failed
- * run; running out of memory or being stopped is. */
-static mr_status drop_one(mr_comparison *c, size_t i, const char *path)
-{
-    mr__cmp_model *m = &c->model[i];
-    size_t t;
-    for (t = 0; t < m->fit->nterms; t++) {
-        mr_fit *reduced = NULL;
-        mr__cmp_test *test;
-        mr_status st;
-        if (!mr__cmp_droppable(m->fit, t)) continue;
-        st = fit_reduced(m, t, path, &reduced);
-        if (st == MR_ERR_NO_MEMORY || st == MR_ERR_STOPPED || st == MR_ERR_IO)
-            return mr__fail(&c->err, st, "model %s without %s: %s", m->label, m->fit->term[t].label,
-                            mr_fitter_errmsg(m->fitter));
-        test = new_test(c, MR_TEST_DROP_ONE, (size_t)-1, i);
-        if (test == NULL || (test->term = mr__strdup(m->fit->term[t].label)) == NULL) {
-            mr_fit_free(reduced);
-            return mr__fail(&c->err, MR_ERR_NO_MEMORY, "out of memory");
+    *n = 0;
+    for (m = 0; m < c->nmodels; m++) {
+        const mr__spec *s = &c->model[m].fitter->spec;
+        for (t = 0; c->model[m].drop_one && t < s->ncov + s->ninter; t++) {
+            if (!droppable(s, t)) continue;
+            if (mr__reserve((void **)out, &cap, *n + 1, sizeof **out) != 0)
+                return mr__fail(&c->err, MR_ERR_NO_MEMORY, "out of memory");
+            MR__TRY(reduce(c, m, t, &(*out)[(*n)++]));
         }
-        test->pub.term = test->term;
-        if (st != MR_OK) {
-            char note[256];
-            snprintf(note, sizeof note, "not fitted: %s", mr_fitter_errmsg(m->fitter));
-            mr__cmp_test_blank(test, note);
-        } else {
-            mr__cmp_pair_test(reduced, m->fit, test);
-            test->pub.reduced_deviance = reduced->deviance;
-            test->pub.reduced_residual_df = reduced->df_residual;
-            test->pub.reduced_aic = reduced->aic;
-        }
-        mr_fit_free(reduced);
     }
     return MR_OK;
 }
@@ -162,22 +208,73 @@ static mr_status nested_tests(mr_comparison *c)
     return MR_OK;
 }
 
-/* Every model is fitted before any test, so a model that fails (a column
- * missing from the file) fails the run before any refit is paid for. */
+static void drop_one_test(mr__cmp_test *test, const mr_fit *reduced_fit, const mr_fit *full)
+{
+    char *term = test->term;
+    mr_model_test keep = test->pub;
+    mr__cmp_pair_test(reduced_fit, full, test);
+    test->term = term;
+    test->pub.kind = keep.kind;
+    test->pub.smaller = keep.smaller;
+    test->pub.larger = keep.larger;
+    test->pub.term = term;
+    test->pub.reduced_deviance = reduced_fit->deviance;
+    test->pub.reduced_residual_df = reduced_fit->df_residual;
+    test->pub.reduced_aic = reduced_fit->aic;
+}
+
+/* The message of the run at fault, naming its model. */
+static mr_status failure(mr_comparison *c, mr_status st, mr_fitter *const *all, const reduced *rd,
+                         const size_t *of_rd, size_t failed, size_t nall)
+{
+    const char *msg = all[failed < nall ? failed : 0]->err.msg;
+    if (failed >= nall) return mr__fail(&c->err, st, "%s", msg);
+    if (failed < c->nmodels) return mr__fail(&c->err, st, "model %s: %s", c->model[failed].label, msg);
+    failed = of_rd[failed - c->nmodels];
+    return mr__fail(&c->err, st, "model %s without %s: %s", c->model[rd[failed].model].label,
+                    c->test[rd[failed].test].term, msg);
+}
+
+/* The models and the reduced models, all in one shared first pass. */
+static mr_status fit_everything(mr_comparison *c, const char *path, reduced *rd, size_t nrd)
+{
+    size_t n = c->nmodels, i, failed;
+    mr_fitter **all = mr__calloc(n + nrd + 1, sizeof *all);
+    mr_fit **fits = mr__calloc(n + nrd + 1, sizeof *fits);
+    size_t *of_rd = mr__calloc(nrd + 1, sizeof *of_rd);
+    mr_status st = MR_OK;
+    if (all == NULL || fits == NULL || of_rd == NULL) st = mr__fail(&c->err, MR_ERR_NO_MEMORY, "out of memory");
+    for (i = 0; st == MR_OK && i < c->nmodels; i++) all[i] = c->model[i].fitter;
+    for (i = 0; st == MR_OK && i < nrd; i++)
+        if (rd[i].fitter != NULL) of_rd[n - c->nmodels] = i, all[n++] = rd[i].fitter;
+    if (st == MR_OK && (st = mr__fit_shared(all, n, path, fits, &failed)) != MR_OK)
+        st = failure(c, st, all, rd, of_rd, failed, n);
+    for (i = 0; st == MR_OK && i < c->nmodels; i++) c->model[i].fit = fits[i];
+    for (i = c->nmodels; st == MR_OK && i < n; i++) {
+        const reduced *r = &rd[of_rd[i - c->nmodels]];
+        drop_one_test(&c->test[r->test], fits[i], c->model[r->model].fit);
+        mr_fit_free(fits[i]);
+    }
+    mr__free(all);
+    mr__free(fits);
+    mr__free(of_rd);
+    return st;
+}
+
+/* Every model is fitted in the one shared first pass; a model that fails
+ * there (a column missing from the file) fails the run, naming it. */
 mr_status mr_comparison_run(mr_comparison *c, const char *path)
 {
-    size_t i;
-    mr_status st = MR_OK;
+    reduced *rd = NULL;
+    size_t nrd = 0;
+    mr_status st;
     mr__error_clear(&c->err);
     clear_run(c);
     if (c->nmodels == 0) return mr__fail(&c->err, MR_ERR_USAGE, "no model to compare");
-    if (strcmp(path, "-") == 0)
-        return mr__fail(&c->err, MR_ERR_USAGE, "models are compared on a file, not standard input (it is read once "
-                                               "per model)");
-    for (i = 0; st == MR_OK && i < c->nmodels; i++) st = fit_model(c, &c->model[i], path);
+    st = reductions(c, &rd, &nrd);
+    if (st == MR_OK) st = fit_everything(c, path, rd, nrd);
+    free_reduced(rd, nrd);
     if (st == MR_OK) st = nested_tests(c);
-    for (i = 0; st == MR_OK && i < c->nmodels; i++)
-        if (c->model[i].drop_one) st = drop_one(c, i, path);
     if (st == MR_OK && (c->path = mr__strdup(path)) == NULL) st = mr__fail(&c->err, MR_ERR_NO_MEMORY, "out of memory");
     if (st != MR_OK) {
         mr__error keep = c->err;

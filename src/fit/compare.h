@@ -35,8 +35,6 @@ struct mr_comparison {
 /* compare_tests.c */
 /* 1 when a is nested in b (millrace.h, "Several models compared"). */
 int mr__cmp_nested(const mr_fit *a, const mr_fit *b);
-/* 1 when term t of fit is inside no other term of it (may be left out). */
-int mr__cmp_droppable(const mr_fit *fit, size_t t);
 /* The statistics of smaller against larger into t (kind and indices are
  * the caller's). */
 void mr__cmp_pair_test(const mr_fit *smaller, const mr_fit *larger, mr__cmp_test *t);

@@ -60,27 +60,6 @@ int mr__cmp_nested(const mr_fit *a, const mr_fit *b)
     return 1;
 }
 
-static int has_part(const mr__fit_term *t, const char *name)
-{
-    size_t k;
-    for (k = 0; k < t->nparts; k++)
-        if (strcmp(t->part[k], name) == 0) return 1;
-    return 0;
-}
-
-int mr__cmp_droppable(const mr_fit *fit, size_t t)
-{
-    const mr__fit_term *a = &fit->term[t];
-    size_t u, k;
-    for (u = 0; u < fit->nterms; u++) {
-        const mr__fit_term *b = &fit->term[u];
-        int inside = u != t && b->nparts > a->nparts;
-        for (k = 0; inside && k < a->nparts; k++) inside = has_part(b, a->part[k]);
-        if (inside) return 0;
-    }
-    return 1;
-}
-
 void mr__cmp_test_blank(mr__cmp_test *t, const char *note)
 {
     mr_model_test *p = &t->pub;

@@ -115,10 +115,10 @@ static mr_status check_same_input(mr__run *r, const mr__pass_result *res, mr__er
     return MR_OK;
 }
 
-mr_status mr__run_scan_cfg(mr__run *r, mr__pass_cfg *c, mr__error *err)
+mr_status mr__run_scan_cfg(mr__run *r, mr__pass_cfg *c, int spool, mr__error *err)
 {
     *c = pass_config(r, MR__PASS_SCAN);
-    if (mr__read_only_once(r->path)) {
+    if (spool && mr__read_only_once(r->path)) {
         MR__TRY(mr__open_spool(r, err));
         c->tee_fd = r->spool_fd;
     }
@@ -149,7 +149,7 @@ mr_status mr__run_scan_done(mr__run *r, mr_status st, mr__error *err)
 static mr_status scan_pass(mr__run *r, mr__error *err)
 {
     mr__pass_cfg c;
-    MR__TRY(mr__run_scan_cfg(r, &c, err));
+    MR__TRY(mr__run_scan_cfg(r, &c, 1, err));
     return mr__run_scan_done(r, mr__pass_run(&c, &r->first, err), err);
 }
 

@@ -5,10 +5,11 @@
 # times, host) and the timings are taken out, with 1 and 2 threads, for
 # models with different complete cases (screening's bmi has missing cells),
 # a collapsed one-read fit (falls, poisson with an exposure) beside one
-# with --no-collapse, and drop-one refits.  Oracle: `millrace fit` of each
+# with --no-collapse, with the cache, without (each later pass rereads the
+# file) and in memory, and drop-one refits (fitted in the same first pass).  Oracle: `millrace fit` of each
 # model alone, and Python's json module.  Also: a model whose column is not
-# in the file fails naming the model and the column; standard input and a
-# bad --drop-one name are refused; the JSON's shape.
+# in the file fails naming the model and the column; standard input gives
+# the same numbers; a bad --drop-one name is refused; the JSON's shape.
 source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
 bin=${MILLRACE:-$bin}
 py=/usr/bin/python3
@@ -38,9 +39,9 @@ for threads in 1 2; do
         else models="falls falls_main"; data=falls.csv; extra=; fi
         args=()
         for m in $models; do args+=(-m "$m.model"); done
-        for collapse in "" --no-collapse; do
-            [ $set = screen ] && [ -n "$collapse" ] && continue
-            tag=$set-t$threads${collapse:+-nc}
+        for collapse in "" --no-collapse --no-cache --in-memory; do
+            [ $set = screen ] && [ "$collapse" = --no-collapse ] && continue
+            tag=$set-t$threads${collapse#--}
             if ! "$bin" compare --quiet --threads $threads $collapse $extra "${args[@]}" --drop-one "${models%% *}" \
                 --fit-json "$tag-" --json "$tag.json" $data >"$tag.out" 2>"$tag.err"; then
                 fail "compare $tag" "$(head -c 300 "$tag.err")"
@@ -89,8 +90,16 @@ if [ $rc -ne 0 ] && grep -q "model needs_income" missing.err && grep -q "income"
 else
     fail "missing column" "exit $rc: $(cat missing.err)"
 fi
-"$bin" compare -m screening.model - <screening.csv >/dev/null 2>stdin.err
-check "standard input refused" grep -q "not standard input" stdin.err
+# Standard input: read once, copied once for the models' later passes.
+"$bin" compare --quiet -m screening.model -m screen_nobmi.model --no-cache --fit-json stdin- - <screening.csv \
+    >stdin.out 2>stdin.err
+for m in screening screen_nobmi; do
+    if [ -s "stdin-$m.json" ] && fit_values "stdin-$m.json" | cmp -s - <(fit_values "alone-screen-t1-$m.json"); then
+        ok "standard input, no cache: $m's numbers are its fit alone"
+    else
+        fail "standard input: $m" "$(head -c 300 stdin.err)"
+    fi
+done
 "$bin" compare -m screening.model --drop-one nosuch screening.csv >/dev/null 2>drop.err
 rc=$?
 check "an unknown --drop-one name is a usage error" test $rc -eq 2
