@@ -170,6 +170,7 @@ static mr_status fanout_finish(void *job, mr_status st, mr__error *err)
         res->by_map = src->by_map;
         res->size = src->size;
         res->mtime_ns = src->mtime_ns;
+        if (j->sub_job == NULL || j->sub_job[m] == NULL) continue; /* its open failed: the pass did */
         sub = j->fc->ops->finish(j->sub_job[m], st, err);
         if (st == MR_OK && sub != MR_OK) j->fc->failed = m;
         st = sub;
