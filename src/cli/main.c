@@ -924,11 +924,27 @@ static int compare_outputs(const compare_cli *o, const mr_comparison *cmp)
     return rc;
 }
 
+/* Each model's fit JSON, checked before the run as the comparison's is. */
+static int check_fit_json(const compare_cli *o)
+{
+    char msg[1024], *path;
+    size_t i;
+    mr_status st = MR_OK;
+    for (i = 0; o->fit_json && st == MR_OK && i < o->n; i++) {
+        size_t len = strlen(o->fit_json) + strlen(o->label[i]) + 6;
+        if ((path = malloc(len)) == NULL) return fail(MR_ERR_NO_MEMORY, "out of memory");
+        snprintf(path, len, "%s%s.json", o->fit_json, o->label[i]);
+        st = mr_output_check(path, o->inputs, o->n + 1, msg, sizeof msg);
+        free(path);
+    }
+    return st == MR_OK ? 0 : fail(st, msg);
+}
+
 static int compare_run(compare_cli *o, mr_comparison *cmp)
 {
     char msg[1024];
     size_t i, j;
-    int rc = 0;
+    int rc = 0, unconverged = 0;
     mr_status st;
     o->fitter = calloc(o->n, sizeof *o->fitter);
     o->label = calloc(o->n, sizeof *o->label);
@@ -945,12 +961,16 @@ static int compare_run(compare_cli *o, mr_comparison *cmp)
     o->inputs[0] = o->data;
     for (i = 0; i < o->n; i++) o->inputs[i + 1] = o->model[i];
     if (o->json && (st = mr_output_check(o->json, o->inputs, o->n + 1, msg, sizeof msg)) != MR_OK) return fail(st, msg);
+    if ((rc = check_fit_json(o)) != 0) return rc;
     if ((st = mr_comparison_run(cmp, o->data)) != MR_OK) return fail(st, mr_comparison_errmsg(cmp));
     rc = compare_outputs(o, cmp);
-    for (i = 0; rc == 0 && !o->quiet && i < o->n; i++)
-        if (mr_fit_status(mr_comparison_fit(cmp, i)) != MR_OK)
-            fprintf(stderr, "millrace: model %s did not converge (see its fit)\n", o->label[i]);
-    return rc;
+    /* as fit: everything written, and 7 when a model did not converge */
+    for (i = 0; rc == 0 && i < o->n; i++)
+        if (mr_fit_status(mr_comparison_fit(cmp, i)) != MR_OK) {
+            fprintf(stderr, "millrace: model %s did not converge (see the table)\n", o->label[i]);
+            unconverged = 1;
+        }
+    return rc == 0 && unconverged ? (int)MR_ERR_NOT_CONVERGED : rc;
 }
 
 /* Several models fitted to one file and compared (README, "Comparing
