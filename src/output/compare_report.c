@@ -30,7 +30,8 @@ static int label_width(const mr_comparison *c)
 static void section_models(mr__strbuf *b, const mr_comparison *c, int digits, int w)
 {
     size_t i;
-    mr__strbuf_printf(b, "data       %s\n", c->path);
+    mr__strbuf_printf(b, "data       %s (its first pass read once for all the models)\n",
+                      strcmp(c->path, "-") == 0 ? "<stdin>" : c->path);
     mr__strbuf_printf(b, "\nmodels (each fitted to the rows complete in its own columns)\n");
     mr__strbuf_printf(b, "  %-*s %12s %6s %14s %12s %14s %14s\n", w, "", "rows used", "terms", "deviance",
                       "residual df", "AIC", "BIC");
