@@ -4,14 +4,16 @@
  * Source of truth: the algebraic identity that block elimination is exact.
  * The same weighted least-squares system is built densely (intercept,
  * treatment-coded levels, the other columns: p = L + p_r) and solved by
- * mr__solve_normal, itself checked against long-double Gaussian
+ * mr__solve_normal; eliminated, the levels other than the reference go to
+ * the Schur complement and the intercept stays with the rest.  The dense
+ * solve is itself checked against long-double Gaussian
  * elimination and Gram-Schmidt QR in tests/check_solver.c; the
- * eliminated solution mapped to that parametrisation must agree to 1e-10
+ * eliminated solution must agree to 1e-10
  * relative (to the larger of the value and its kind's size: 1 for the
  * coefficients, which are of order one here, 0.01 for the variances, of
  * order 1 / d): coefficients, their variances, the covariance of the
- * intercept and the other columns, and which columns are aliased.
- * Random data from the fixed-seed splitmix64 of check_common.h. */
+ * intercept and the other columns, which columns are aliased, and the
+ * Newton decrement.  Random data from the fixed-seed splitmix64 of check_common.h. */
 #include <check.h>
 #include <math.h>
 #include <stdlib.h>
@@ -67,22 +69,52 @@ static void free_problem(problem *pb)
     free(pb->z);
 }
 
-static void absorb_sums(const problem *pb, mr__absorb_sums *s)
+/* The eliminated system: the levels other than the reference (level
+ * index l - 1 for l > ref = 0), the rest = the intercept, then R. */
+typedef struct esys {
+    size_t nlev, pr;
+    double *lev, *A, *bR;
+    mr__absorb_sums s;
+} esys;
+
+static void absorb_sums(const problem *pb, esys *e)
 {
-    size_t i, j, k, pr = pb->pr;
-    ck_assert_int_eq(mr__absorb_sums_init(s, pb->L, pr, NULL), MR_OK);
+    size_t i, j, k, pr = pb->pr + 1, width = MR__ABSORB_WIDTH(pr);
+    double *x = malloc(pr * sizeof *x);
+    e->nlev = pb->L - 1;
+    e->pr = pr;
+    e->lev = calloc(e->nlev * width + 1, sizeof *e->lev);
+    e->A = calloc(pr * pr, sizeof *e->A);
+    e->bR = calloc(pr, sizeof *e->bR);
     for (i = 0; i < pb->n; i++) {
-        const double *r = pb->R + i * pr;
         double w = pb->w[i];
         int l = pb->lev[i];
-        s->d[l] += w;
-        s->bD[l] += w * pb->z[i];
+        x[0] = 1;
+        for (j = 1; j < pr; j++) x[j] = pb->R[i * pb->pr + j - 1];
+        if ((size_t)l != pb->ref) {
+            double *row = e->lev + (size_t)(l - 1) * width;
+            row[0] += w;
+            row[1] += w * pb->z[i];
+            for (j = 0; j < pr; j++) row[2 + j] += w * x[j];
+        }
         for (j = 0; j < pr; j++) {
-            s->C[l * pr + j] += w * r[j];
-            s->bR[j] += w * r[j] * pb->z[i];
-            for (k = 0; k <= j; k++) s->A[j * pr + k] += w * r[k] * r[j];
+            e->bR[j] += w * x[j] * pb->z[i];
+            for (k = 0; k <= j; k++) e->A[j * pr + k] += w * x[k] * x[j];
         }
     }
+    e->s.nlev = e->nlev;
+    e->s.pr = pr;
+    e->s.lev = e->lev;
+    e->s.A = e->A;
+    e->s.bR = e->bR;
+    free(x);
+}
+
+static void free_esys(esys *e)
+{
+    free(e->lev);
+    free(e->A);
+    free(e->bR);
 }
 
 /* Dense row: intercept, levels other than ref, the rest. */
@@ -119,49 +151,47 @@ static void close_to(double got, double want, double scale, const char *what, si
     ck_assert_msg(fabs(got - want) <= tol, "%s %zu: %.17g against dense %.17g", what, k, got, want);
 }
 
+/* Dense column of eliminated coefficient k (rest first, then levels). */
+static size_t dense_index(const problem *pb, size_t k)
+{
+    size_t pr = pb->pr + 1;
+    if (k == 0) return 0;
+    if (k < pr) return pb->L + k - 1;
+    return k - pr + 1;
+}
+
 static void compare(int kind, size_t n, size_t L, size_t pr, uint64_t seed)
 {
     problem pb;
-    mr__absorb_sums s;
+    esys e;
     mr__absorb_solution sol;
     size_t p = L + pr, l, j, k, q = pr + 1;
-    double *beta = malloc(p * sizeof *beta), *inv = malloc(p * p * sizeof *inv), *coef = malloc(L * sizeof *coef);
-    double *var = malloc(L * sizeof *var), *head = malloc(q * q * sizeof *head), *scr = malloc(pr * sizeof *scr);
-    double icpt, icpt_var;
+    double *beta = malloc(p * sizeof *beta), *inv = malloc(p * p * sizeof *inv);
     int *aliased = malloc(p * sizeof *aliased);
     make_problem(&pb, n, L, pr, kind, seed);
-    absorb_sums(&pb, &s);
+    absorb_sums(&pb, &e);
     dense_solve(&pb, beta, aliased, inv);
-    ck_assert_int_eq(mr__absorb_solve(&s, 1, &sol, NULL), MR_OK);
-    mr__absorb_contrasts(&s, &sol, pb.ref, &icpt, &icpt_var, coef, var, scr);
-    mr__absorb_head_cov(&s, &sol, pb.ref, head, scr);
-    close_to(icpt, beta[0], 1, "intercept", 0);
-    close_to(icpt_var, inv[0], 1e-2, "intercept variance", 0);
-    for (l = 1; l < L; l++) {
-        ck_assert_int_eq(sol.empty[l], aliased[l]);
-        close_to(coef[l], beta[l], 1, "level", l);
-        if (!aliased[l]) close_to(var[l], inv[l * p + l], 1e-2, "level variance", l);
+    ck_assert_int_eq(mr__absorb_solve(&e.s, 1, &sol, NULL), MR_OK);
+    for (l = 0; l + 1 < L; l++) {
+        size_t c = l + 1;
+        ck_assert_int_eq(sol.empty[l], aliased[c]);
+        close_to(sol.beta_lev[l], beta[c], 1, "level", l);
+        if (!aliased[c]) close_to(sol.var_lev[l], inv[c * p + c], 1e-2, "level variance", l);
     }
-    for (j = 0; j < pr; j++) {
-        ck_assert_int_eq(sol.aliased[j], aliased[L + j]);
-        close_to(sol.beta_rest[j], beta[L + j], 1, "rest", j);
+    for (j = 0; j < q; j++) {
+        size_t dj = dense_index(&pb, j);
+        ck_assert_int_eq(sol.aliased[j], aliased[dj]);
+        close_to(sol.beta_rest[j], beta[dj], 1, "rest", j);
+        for (k = 0; k < q; k++)
+            close_to(sol.cov_rest[k * q + j], inv[dense_index(&pb, k) * p + dj], 1e-2, "rest covariance", k * q + j);
     }
-    for (j = 0; j < q; j++)
-        for (k = 0; k < q; k++) {
-            size_t dj = j ? L + j - 1 : 0, dk = k ? L + k - 1 : 0;
-            close_to(head[k * q + j], inv[dk * p + dj], 1e-2, "head covariance", k * q + j);
-        }
     ck_assert_uint_eq(sol.nempty, kind == 1 ? 1 : 0);
-    ck_assert_uint_eq(sol.rank, kind == 1 ? pr - 2 : pr);
+    ck_assert_uint_eq(sol.rank, kind == 1 ? q - 2 : q);
     mr__absorb_solution_release(&sol);
-    mr__absorb_sums_release(&s);
+    free_esys(&e);
     free_problem(&pb);
     free(beta);
     free(inv);
-    free(coef);
-    free(var);
-    free(head);
-    free(scr);
     free(aliased);
 }
 
@@ -189,20 +219,68 @@ END_TEST
 START_TEST(test_same_bits_twice)
 {
     problem pb;
-    mr__absorb_sums s;
+    esys e;
     mr__absorb_solution a, b;
     size_t l;
     make_problem(&pb, 3000, 120, 4, 0, 5);
-    absorb_sums(&pb, &s);
-    ck_assert_int_eq(mr__absorb_solve(&s, 1, &a, NULL), MR_OK);
-    ck_assert_int_eq(mr__absorb_solve(&s, 1, &b, NULL), MR_OK);
-    for (l = 0; l < pb.L; l++) {
+    absorb_sums(&pb, &e);
+    ck_assert_int_eq(mr__absorb_solve(&e.s, 1, &a, NULL), MR_OK);
+    ck_assert_int_eq(mr__absorb_solve(&e.s, 1, &b, NULL), MR_OK);
+    for (l = 0; l < e.nlev; l++) {
         ck_assert(same_bits(a.beta_lev[l], b.beta_lev[l]));
         ck_assert(same_bits(a.var_lev[l], b.var_lev[l]));
     }
     mr__absorb_solution_release(&a);
     mr__absorb_solution_release(&b);
-    mr__absorb_sums_release(&s);
+    free_esys(&e);
+    free_problem(&pb);
+}
+END_TEST
+
+/* The Newton decrement (v - G b)'(b1 - b) by blocks against the same
+ * product over the dense G (identity: the same quadratic form). */
+START_TEST(test_decrement_as_dense)
+{
+    problem pb;
+    esys e;
+    size_t p, q, k, a, c, i;
+    double *b, *b1, *x, *G, *v, want = 0, got;
+    uint64_t st = 11;
+    make_problem(&pb, 2000, 60, 3, 0, 21);
+    absorb_sums(&pb, &e);
+    p = pb.L + pb.pr;
+    q = pb.pr + 1;
+    b = malloc(p * sizeof *b);
+    b1 = malloc(p * sizeof *b1);
+    x = malloc(p * sizeof *x);
+    G = calloc(p * p, sizeof *G);
+    v = calloc(p, sizeof *v);
+    for (k = 0; k < p; k++) {
+        b[k] = unit(&st) - 0.5;
+        b1[k] = unit(&st) - 0.5;
+    }
+    for (i = 0; i < pb.n; i++) {
+        dense_row(&pb, i, x);
+        for (c = 0; c < p; c++) {
+            v[c] += pb.w[i] * x[c] * pb.z[i];
+            for (a = 0; a < p; a++) G[c * p + a] += pb.w[i] * x[a] * x[c];
+        }
+    }
+    for (a = 0; a < p; a++) {
+        size_t da = dense_index(&pb, a);
+        double u = v[da];
+        for (c = 0; c < p; c++) u -= G[dense_index(&pb, c) * p + da] * b[c];
+        want += u * (b1[a] - b[a]);
+    }
+    got = mr__absorb_decrement(&e.s, b, b1);
+    ck_assert_msg(fabs(got - want) <= 1e-10 * fmax(1, fabs(want)), "%.17g against %.17g", got, want);
+    (void)q;
+    free(b);
+    free(b1);
+    free(x);
+    free(G);
+    free(v);
+    free_esys(&e);
     free_problem(&pb);
 }
 END_TEST
@@ -211,19 +289,14 @@ END_TEST
  * and its variance 1 / d (closed form). */
 START_TEST(test_no_rest_is_level_means)
 {
-    mr__absorb_sums s;
+    double lev[] = {2, 3, 4, -2, 0, 0};
+    mr__absorb_sums s = {3, 0, lev, NULL, NULL};
     mr__absorb_solution sol;
-    ck_assert_int_eq(mr__absorb_sums_init(&s, 3, 0, NULL), MR_OK);
-    s.d[0] = 2;
-    s.bD[0] = 3;
-    s.d[1] = 4;
-    s.bD[1] = -2;
     ck_assert_int_eq(mr__absorb_solve(&s, 1, &sol, NULL), MR_OK);
     ck_assert(sol.beta_lev[0] == 1.5 && sol.var_lev[0] == 0.5);
     ck_assert(sol.beta_lev[1] == -0.5 && sol.var_lev[1] == 0.25);
     ck_assert(sol.empty[2] && sol.beta_lev[2] == 0 && isnan(sol.var_lev[2]));
     mr__absorb_solution_release(&sol);
-    mr__absorb_sums_release(&s);
 }
 END_TEST
 
@@ -236,6 +309,7 @@ static Suite *absorb_suite(void)
     tcase_add_test(tc, test_matches_dense_small);
     tcase_add_test(tc, test_aliasing_and_empty_level_as_dense);
     tcase_add_test(tc, test_same_bits_twice);
+    tcase_add_test(tc, test_decrement_as_dense);
     tcase_add_test(tc, test_no_rest_is_level_means);
     suite_add_tcase(s, tc);
     return s;

@@ -5,33 +5,6 @@
 #include "solve/absorb.h"
 #include "solve/normal_eq.h"
 
-mr_status mr__absorb_sums_init(mr__absorb_sums *s, size_t nlev, size_t pr, mr__error *err)
-{
-    memset(s, 0, sizeof *s);
-    s->nlev = nlev;
-    s->pr = pr;
-    s->d = mr__calloc(nlev + 1, sizeof *s->d);
-    s->bD = mr__calloc(nlev + 1, sizeof *s->bD);
-    s->C = mr__calloc(nlev * pr + 1, sizeof *s->C);
-    s->A = mr__calloc(pr * pr + 1, sizeof *s->A);
-    s->bR = mr__calloc(pr + 1, sizeof *s->bR);
-    if (!s->d || !s->bD || !s->C || !s->A || !s->bR) {
-        mr__absorb_sums_release(s);
-        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    }
-    return MR_OK;
-}
-
-void mr__absorb_sums_release(mr__absorb_sums *s)
-{
-    mr__free(s->d);
-    mr__free(s->bD);
-    mr__free(s->C);
-    mr__free(s->A);
-    mr__free(s->bR);
-    memset(s, 0, sizeof *s);
-}
-
 void mr__absorb_solution_release(mr__absorb_solution *sol)
 {
     mr__free(sol->beta_lev);
@@ -43,7 +16,9 @@ void mr__absorb_solution_release(mr__absorb_solution *sol)
     memset(sol, 0, sizeof *sol);
 }
 
-static int level_empty(const mr__absorb_sums *s, size_t l) { return !(s->d[l] > 0) || !isfinite(s->d[l]); }
+static const double *row_of(const mr__absorb_sums *s, size_t l) { return s->lev + l * MR__ABSORB_WIDTH(s->pr); }
+
+static int level_empty(const double *row) { return !(row[0] > 0) || !isfinite(row[0]); }
 
 /* S = A - sum_l c_l c_l' / d_l and its right-hand side, levels added in
  * order (the same bits whatever produced the sums); g holds pr doubles. */
@@ -53,27 +28,26 @@ static void schur(const mr__absorb_sums *s, double *S, double *rhs, double *g)
     memcpy(S, s->A, pr * pr * sizeof *S);
     memcpy(rhs, s->bR, pr * sizeof *rhs);
     for (l = 0; l < s->nlev; l++) {
-        const double *c = s->C + l * pr;
-        if (level_empty(s, l)) continue;
-        for (i = 0; i < pr; i++) g[i] = c[i] / s->d[l];
+        const double *row = row_of(s, l), *c = row + 2;
+        if (level_empty(row)) continue;
+        for (i = 0; i < pr; i++) g[i] = c[i] / row[0];
         for (j = 0; j < pr; j++) {
             double *col = S + j * pr;
             for (i = 0; i <= j; i++) col[i] -= g[i] * c[j];
-            rhs[j] -= g[j] * s->bD[l];
+            rhs[j] -= g[j] * row[1];
         }
     }
 }
 
-/* g_l' M h for M pr x pr full (zero where aliased) and g_l = c_l / d_l. */
-static double form(const mr__absorb_sums *s, const double *M, size_t l, const double *h)
+/* g' M g for M pr x pr full (zero where aliased). */
+static double form(const double *M, size_t pr, const double *g)
 {
-    size_t pr = s->pr, i, j;
-    const double *c = s->C + l * pr;
+    size_t i, j;
     double sum = 0;
     for (j = 0; j < pr; j++) {
-        double mh = 0;
-        for (i = 0; i < pr; i++) mh += M[i * pr + j] * h[i];
-        sum += c[j] / s->d[l] * mh;
+        double mg = 0;
+        for (i = 0; i < pr; i++) mg += M[j * pr + i] * g[i];
+        sum += g[j] * mg;
     }
     return sum;
 }
@@ -82,22 +56,22 @@ static void levels_from_rest(const mr__absorb_sums *s, mr__absorb_solution *sol,
 {
     size_t pr = s->pr, l, j;
     for (l = 0; l < s->nlev; l++) {
-        const double *c = s->C + l * pr;
+        const double *row = row_of(s, l), *c = row + 2;
         double b;
-        sol->empty[l] = level_empty(s, l);
+        sol->empty[l] = level_empty(row);
         if (sol->empty[l]) {
             sol->nempty++;
             sol->beta_lev[l] = 0;
             if (want_cov) sol->var_lev[l] = NAN;
             continue;
         }
-        b = s->bD[l] / s->d[l];
+        b = row[1] / row[0];
         for (j = 0; j < pr; j++) {
-            g[j] = c[j] / s->d[l];
+            g[j] = c[j] / row[0];
             b -= g[j] * sol->beta_rest[j];
         }
         sol->beta_lev[l] = b;
-        if (want_cov) sol->var_lev[l] = 1.0 / s->d[l] + form(s, sol->cov_rest, l, g);
+        if (want_cov) sol->var_lev[l] = 1.0 / row[0] + form(sol->cov_rest, pr, g);
     }
 }
 
@@ -147,51 +121,23 @@ done:
     return st;
 }
 
-double mr__absorb_level_cov(const mr__absorb_sums *s, const mr__absorb_solution *sol, size_t l, size_t m,
-                            double *scratch)
+/* u = v - G b by blocks: u_R = b_R - A b_R' - sum_l c_l b_l, u_l = b_D,l
+ * - d_l b_l - c_l' b_R; the decrement is u'(b_next - b). */
+double mr__absorb_decrement(const mr__absorb_sums *s, const double *b, const double *b_next)
 {
-    size_t j;
-    if (sol->empty[l] || sol->empty[m]) return NAN;
-    if (l == m) return sol->var_lev[l];
-    for (j = 0; j < s->pr; j++) scratch[j] = s->C[m * s->pr + j] / s->d[m];
-    return form(s, sol->cov_rest, l, scratch);
-}
-
-void mr__absorb_contrasts(const mr__absorb_sums *s, const mr__absorb_solution *sol, size_t ref, double *intercept,
-                          double *intercept_var, double *coef, double *var, double *scratch)
-{
-    size_t l;
-    *intercept = sol->beta_lev[ref];
-    *intercept_var = sol->var_lev[ref];
+    size_t pr = s->pr, l, i, j;
+    double total = 0;
+    for (i = 0; i < pr; i++) {
+        double u = s->bR[i];
+        for (j = 0; j < pr; j++) u -= s->A[i <= j ? j * pr + i : i * pr + j] * b[j];
+        for (l = 0; l < s->nlev; l++) u -= row_of(s, l)[2 + i] * b[pr + l];
+        total += u * (b_next[i] - b[i]);
+    }
     for (l = 0; l < s->nlev; l++) {
-        if (l == ref) {
-            coef[l] = 0;
-            var[l] = 0;
-        } else if (sol->empty[l]) {
-            coef[l] = 0;
-            var[l] = NAN;
-        } else {
-            coef[l] = sol->beta_lev[l] - sol->beta_lev[ref];
-            var[l] = sol->var_lev[l] + sol->var_lev[ref] - 2 * mr__absorb_level_cov(s, sol, l, ref, scratch);
-        }
+        const double *row = row_of(s, l);
+        double u = row[1] - row[0] * b[pr + l];
+        for (j = 0; j < pr; j++) u -= row[2 + j] * b[j];
+        total += u * (b_next[pr + l] - b[pr + l]);
     }
-}
-
-void mr__absorb_head_cov(const mr__absorb_sums *s, const mr__absorb_solution *sol, size_t ref, double *out,
-                         double *scratch)
-{
-    size_t pr = s->pr, q = pr + 1, i, j;
-    const double *V = sol->cov_rest;
-    /* cov(beta_R, beta_D,ref) = -S^-1 g_ref */
-    for (i = 0; i < pr; i++) {
-        double v = 0;
-        for (j = 0; j < pr; j++) v += V[j * pr + i] * (s->C[ref * pr + j] / s->d[ref]);
-        scratch[i] = -v;
-    }
-    out[0] = sol->var_lev[ref];
-    for (i = 0; i < pr; i++) {
-        out[i + 1] = scratch[i];
-        out[(i + 1) * q] = scratch[i];
-        for (j = 0; j < pr; j++) out[(j + 1) * q + i + 1] = V[j * pr + i];
-    }
+    return total;
 }

@@ -1,9 +1,8 @@
 /* absorb.h - the normal equations with one factor of very many levels
  * eliminated exactly (a Schur complement on the small dense rest).
  *
- * With X = [D | R], D the indicator columns of every level of the factor
- * (all L of them: the factor absorbs the intercept) and R the p_r other
- * columns (no intercept column among them),
+ * With X = [D | R], D indicator columns no two of which are 1 in one row
+ * (a factor's levels) and R the p_r other columns,
  *
  *     X'WX = [ diag(d)  C' ]      X'Wz = [ b_D ]
  *            [ C        A  ]             [ b_R ]
@@ -32,23 +31,24 @@
  * weight (d_l not > 0) is empty: no coefficient (0), variance NaN, and it
  * takes no part in S.
  *
- * The usual parametrisation (intercept + treatment coding with reference
- * level `ref`) is a linear map of this one: intercept = beta_D,ref, level
- * l's coefficient = beta_D,l - beta_D,ref; mr__absorb_contrasts gives
- * those with their variances, and mr__absorb_head_cov the covariance of
- * (intercept, rest), so a fit reported either way agrees with the dense
- * fit of the same model. */
+ * Any set of mutually exclusive indicator columns will do: the fit takes
+ * the factor's levels other than its reference, and keeps the intercept
+ * among the other columns, so the coefficients are those of the usual
+ * treatment coding and agree with the dense fit of the same model. */
 #ifndef MR_ABSORB_H
 #define MR_ABSORB_H
 
 #include <stddef.h>
 #include "common/error.h"
 
-/* A pass's totals for the elimination.  C is level-major: C[l * pr + j]. */
+/* A pass's totals for the elimination: level l's row lev[l * (pr + 2) ..]
+ * holds d_l, b_D,l, then c_l (MR__ABSORB_WIDTH(pr) doubles a level). */
+#define MR__ABSORB_WIDTH(pr) ((pr) + 2)
 typedef struct mr__absorb_sums {
     size_t nlev, pr;
-    double *d, *bD, *C; /* nlev, nlev, nlev * pr */
-    double *A, *bR;     /* pr x pr (upper triangle read, column-major), pr */
+    const double *lev; /* nlev rows */
+    const double *A;   /* pr x pr, upper triangle read, column-major */
+    const double *bR;  /* pr */
 } mr__absorb_sums;
 
 typedef struct mr__absorb_solution {
@@ -61,33 +61,14 @@ typedef struct mr__absorb_solution {
     double *cov_rest;           /* pr x pr: S^-1 on the kept columns, zero rows/columns where aliased */
 } mr__absorb_solution;
 
-/* Zeroed totals of nlev levels and pr other columns; release frees them
- * (a zeroed struct is fine to release). */
-mr_status mr__absorb_sums_init(mr__absorb_sums *s, size_t nlev, size_t pr, mr__error *err);
-void mr__absorb_sums_release(mr__absorb_sums *s);
-
 /* Solves the system; `sol` is allocated here (release it with
  * mr__absorb_solution_release, also after a failure).  The variances and
  * the covariance only when `want_cov`.  Sums are read only. */
 mr_status mr__absorb_solve(const mr__absorb_sums *s, int want_cov, mr__absorb_solution *sol, mr__error *err);
 void mr__absorb_solution_release(mr__absorb_solution *sol);
 
-/* cov(beta_D,l, beta_D,m) from a solution with its covariance (NaN when
- * either level is empty); `scratch` holds pr doubles. */
-double mr__absorb_level_cov(const mr__absorb_sums *s, const mr__absorb_solution *sol, size_t l, size_t m,
-                            double *scratch);
-
-/* The treatment-coded parametrisation with reference level `ref` (which
- * must not be empty): *intercept and its variance; coef[l], var[l] the
- * level's difference from the reference (0 and 0 for the reference, NaN
- * variance and 0 coefficient for an empty level, as an aliased column).
- * `scratch` holds pr doubles. */
-void mr__absorb_contrasts(const mr__absorb_sums *s, const mr__absorb_solution *sol, size_t ref, double *intercept,
-                          double *intercept_var, double *coef, double *var, double *scratch);
-
-/* The (1 + pr) x (1 + pr) covariance (column-major) of (intercept, rest)
- * in that parametrisation.  `scratch` holds pr doubles. */
-void mr__absorb_head_cov(const mr__absorb_sums *s, const mr__absorb_solution *sol, size_t ref, double *out,
-                         double *scratch);
+/* The Newton decrement (v - G b)' (b_next - b) of the whole system, each
+ * coefficient vector laid out as the rest's pr, then the levels' nlev. */
+double mr__absorb_decrement(const mr__absorb_sums *s, const double *b, const double *b_next);
 
 #endif
