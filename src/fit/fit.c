@@ -59,6 +59,7 @@ void mr_fit_free(mr_fit *fit)
     mr__free(fit->started);
     mr__free(fit->ended);
     mr__free(fit->host);
+    mr__fit_free_many(fit);
     mr__free(fit);
 }
 

@@ -103,7 +103,23 @@ struct mr_fit {
     char **command_line; /* the words given to mr_fitter_set_command_line */
     size_t ncommand_line;
     char *started, *ended, *host; /* ISO 8601 UTC; the machine's name */
+    /* The factor declared `many` (model/design.h), NULL when none: its
+     * levels other than the reference (nmany, in level order) are not in
+     * the coefficients above, whose covariance leaves them out; each has
+     * its estimate (the difference from the reference level, on the link
+     * scale), standard error (NaN: no information) and information (the
+     * sum of the IRLS weights of its rows, the last pass's). */
+    char *many_factor, *many_reference;
+    size_t nmany;
+    char *many_names;  /* the level names, each ending in a NUL */
+    char **many_level; /* nmany pointers into many_names */
+    double *many_beta, *many_se, *many_info;
 };
+
+/* The `many` factor's arrays for n levels, names `bytes` long in all
+ * (many.c); MR_OK or MR_ERR_NO_MEMORY. */
+mr_status mr__fit_alloc_many(mr_fit *fit, size_t n, size_t bytes);
+void mr__fit_free_many(mr_fit *fit);
 
 /* The per-coefficient arrays for p coefficients, zeroed (the fit's p set). */
 mr_status mr__fit_alloc_coefficients(mr_fit *fit, size_t p);

@@ -7,6 +7,7 @@
 #include "common/bytes.h"
 #include "family/family.h"
 #include "fit/irls.h"
+#include "solve/absorb.h"
 #include "solve/normal_eq.h"
 
 static double relative_change(double now, double before) { return fabs(now - before) / (fabs(now) + 0.1); }
@@ -92,12 +93,24 @@ static double newton_decrement(const mr__block_sums *sums, size_t p, const doubl
     return total;
 }
 
-static mr_status next_point(mr__irls *s, const mr__block_sums *sums, mr__error *err)
+/* The step, and the decrement it expects; with an eliminated factor the
+ * coefficients are the columns', then its levels' (solve/absorb.h). */
+static mr_status solve_step(mr__irls *s, const mr__block_sums *sums, mr__error *err)
 {
     size_t p = s->p, rank;
-    double *t;
+    if (sums->lev != NULL) {
+        mr__absorb_sums a = {sums->nlev, p - sums->nlev, sums->lev, sums->xtwx, sums->xtwz};
+        return mr__absorb_step(&a, s->have_beta ? s->beta : NULL, s->next, &s->decrement, err);
+    }
     MR__TRY(mr__solve_normal(sums->xtwx, sums->xtwz, p, s->next, s->aliased, &rank, NULL, err));
     s->decrement = s->have_beta ? newton_decrement(sums, p, s->beta, s->next) : INFINITY;
+    return MR_OK;
+}
+
+static mr_status next_point(mr__irls *s, const mr__block_sums *sums, mr__error *err)
+{
+    double *t;
+    MR__TRY(solve_step(s, sums, err));
     t = s->prev;
     s->prev = s->beta;
     s->beta = s->next;

@@ -12,6 +12,7 @@
 #include "common/strbuf.h"
 #include "family/family.h"
 #include "fit/fit.h"
+#include "fit/many.h"
 #include "fit/run.h"
 #include "fit/start.h"
 #include "common/probability.h"
@@ -205,7 +206,8 @@ static mr_status set_coefficients(mr_fit *fit, mr__run *r, mr__error *err)
         mr__free(cov_s);
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }
-    st = mr__solve_normal(r->last.sums.xtwx, r->last.sums.xtwz, p, scratch, fit->aliased, &fit->rank, cov_s, err);
+    if (d->nabsorb > 0) st = mr__many_solve(fit, r, cov_s, err);
+    else st = mr__solve_normal(r->last.sums.xtwx, r->last.sums.xtwz, p, scratch, fit->aliased, &fit->rank, cov_s, err);
     if (st == MR_OK) st = map_to_raw(d, r->beta_final, cov_s, fit->beta, fit->cov, fit->se, err);
     mr__free(scratch);
     mr__free(cov_s);
@@ -215,6 +217,7 @@ static mr_status set_coefficients(mr_fit *fit, mr__run *r, mr__error *err)
     check_alias_folding(fit, d, r->beta_final);
     set_fit_statistics(fit, r);
     for (j = 0; j < p * p; j++) fit->cov[j] *= fit->dispersion;
+    mr__many_scale(fit);
     set_inference(fit);
     return MR_OK;
 }

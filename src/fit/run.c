@@ -236,7 +236,7 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
     mr_status st;
     int done = 0;
     memset(&c, 0, sizeof c);
-    c.p = r->design.p;
+    c.p = mr__design_ncoef(&r->design);
     c.tolerance = job->tolerance;
     c.max_iterations = job->max_iterations;
     c.step_at_end = job->step_at_end;
@@ -290,7 +290,7 @@ static int sample_fit(mr__run *r, size_t stride, const double *start, int max_it
     job.step_at_end = start != NULL;
     job.beta_out = out;
     ok = iterate(r, &job, &res, &scratch) == MR_OK && !job.restarted && (job.converged || job.step_at_end);
-    for (j = 0; ok && j < r->design.p; j++) ok = isfinite(out[j]);
+    for (j = 0; ok && j < mr__design_ncoef(&r->design); j++) ok = isfinite(out[j]);
     *iterations = job.iterations;
     mr__pass_result_release(&res, 0);
     return ok;
@@ -299,10 +299,10 @@ static int sample_fit(mr__run *r, size_t stride, const double *start, int max_it
 /* One step on the whole sample from the quarter's fit. */
 static void polish_start(mr__run *r, const mr__store *sample)
 {
-    double *polished = mr__malloc_array(r->design.p, sizeof *polished);
+    double *polished = mr__malloc_array(mr__design_ncoef(&r->design), sizeof *polished);
     int steps;
     if (polished != NULL && sample_fit(r, 1, r->beta_warm, 1, polished, &steps)) {
-        memcpy(r->beta_warm, polished, r->design.p * sizeof *polished);
+        memcpy(r->beta_warm, polished, mr__design_ncoef(&r->design) * sizeof *polished);
         r->warm_polish_blocks = (int)sample->n;
     }
     mr__free(polished);
@@ -382,7 +382,7 @@ void mr__run_release(mr__run *r)
 
 static mr_status allocate_coefficients(mr__run *r, mr__error *err)
 {
-    size_t p = r->design.p + 1;
+    size_t p = mr__design_ncoef(&r->design) + 1;
     r->beta_final = mr__calloc(p, sizeof(double));
     r->beta_warm = mr__calloc(p, sizeof(double));
     if (!r->beta_final || !r->beta_warm)

@@ -141,3 +141,17 @@ double mr__absorb_decrement(const mr__absorb_sums *s, const double *b, const dou
     }
     return total;
 }
+
+mr_status mr__absorb_step(const mr__absorb_sums *s, const double *b, double *next, double *decrement,
+                          mr__error *err)
+{
+    mr__absorb_solution sol;
+    mr_status st = mr__absorb_solve(s, 0, &sol, err);
+    if (st == MR_OK) {
+        memcpy(next, sol.beta_rest, s->pr * sizeof *next);
+        memcpy(next + s->pr, sol.beta_lev, s->nlev * sizeof *next);
+        *decrement = b ? mr__absorb_decrement(s, b, next) : INFINITY;
+    }
+    mr__absorb_solution_release(&sol);
+    return st;
+}

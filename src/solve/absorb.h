@@ -67,6 +67,12 @@ typedef struct mr__absorb_solution {
 mr_status mr__absorb_solve(const mr__absorb_sums *s, int want_cov, mr__absorb_solution *sol, mr__error *err);
 void mr__absorb_solution_release(mr__absorb_solution *sol);
 
+/* One IRLS step: the solution as one vector `next` (the rest's pr, then
+ * the levels'), and *decrement, the Newton decrement from b (INFINITY
+ * when b is NULL). */
+mr_status mr__absorb_step(const mr__absorb_sums *s, const double *b, double *next, double *decrement,
+                          mr__error *err);
+
 /* The Newton decrement (v - G b)' (b_next - b) of the whole system, each
  * coefficient vector laid out as the rest's pr, then the levels' nlev. */
 double mr__absorb_decrement(const mr__absorb_sums *s, const double *b, const double *b_next);
