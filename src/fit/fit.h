@@ -109,16 +109,16 @@ struct mr_fit {
      * its estimate (the difference from the reference level, on the link
      * scale), standard error (NaN: no information) and information (the
      * sum of the IRLS weights of its rows, the last pass's). */
+    int many_given; /* 1 when there is one (the JSON's "many_factor") */
     char *many_factor, *many_reference;
     size_t nmany;
-    char *many_names;  /* the level names, each ending in a NUL */
-    char **many_level; /* nmany pointers into many_names */
+    char **many_level;
     double *many_beta, *many_se, *many_info;
 };
 
-/* The `many` factor's arrays for n levels, names `bytes` long in all
- * (many.c); MR_OK or MR_ERR_NO_MEMORY. */
-mr_status mr__fit_alloc_many(mr_fit *fit, size_t n, size_t bytes);
+/* The `many` factor's arrays for n levels, names NULL (many.c); MR_OK or
+ * MR_ERR_NO_MEMORY. */
+mr_status mr__fit_alloc_many(mr_fit *fit, size_t n);
 void mr__fit_free_many(mr_fit *fit);
 
 /* The per-coefficient arrays for p coefficients, zeroed (the fit's p set). */

@@ -5,15 +5,15 @@
 #include "fit/many.h"
 #include "solve/absorb.h"
 
-mr_status mr__fit_alloc_many(mr_fit *fit, size_t n, size_t bytes)
+mr_status mr__fit_alloc_many(mr_fit *fit, size_t n)
 {
+    fit->many_given = 1;
     fit->nmany = n;
-    fit->many_names = mr__malloc(bytes + 1);
-    fit->many_level = mr__malloc_array(n + 1, sizeof *fit->many_level);
+    fit->many_level = mr__calloc(n + 1, sizeof *fit->many_level);
     fit->many_beta = mr__malloc_array(n + 1, sizeof *fit->many_beta);
     fit->many_se = mr__malloc_array(n + 1, sizeof *fit->many_se);
     fit->many_info = mr__malloc_array(n + 1, sizeof *fit->many_info);
-    if (!fit->many_names || !fit->many_level || !fit->many_beta || !fit->many_se || !fit->many_info)
+    if (!fit->many_level || !fit->many_beta || !fit->many_se || !fit->many_info)
         return MR_ERR_NO_MEMORY;
     return MR_OK;
 }
@@ -22,15 +22,15 @@ void mr__fit_free_many(mr_fit *fit)
 {
     mr__free(fit->many_factor);
     mr__free(fit->many_reference);
-    mr__free(fit->many_names);
-    mr__free(fit->many_level);
+    mr__strings_free(fit->many_level, fit->nmany);
     mr__free(fit->many_beta);
     mr__free(fit->many_se);
     mr__free(fit->many_info);
-    fit->many_factor = fit->many_reference = fit->many_names = NULL;
+    fit->many_factor = fit->many_reference = NULL;
     fit->many_level = NULL;
     fit->many_beta = fit->many_se = fit->many_info = NULL;
     fit->nmany = 0;
+    fit->many_given = 0;
 }
 
 /* The factor's name, reference and level names (the levels other than
@@ -38,20 +38,15 @@ void mr__fit_free_many(mr_fit *fit)
 static mr_status copy_levels(mr_fit *fit, const mr__design *d, mr__error *err)
 {
     const mr__factor *f = &d->fac[d->absorb_var];
-    size_t l, k = 0, bytes = 0;
-    char *at;
-    for (l = 0; l < f->nlevels; l++) bytes += strlen(f->level[l]) + 1;
+    size_t l, k = 0;
     fit->many_factor = mr__strdup(f->name);
     fit->many_reference = mr__strdup(f->level[f->ref]);
-    if (!fit->many_factor || !fit->many_reference || mr__fit_alloc_many(fit, d->nabsorb, bytes) != MR_OK)
+    if (!fit->many_factor || !fit->many_reference || mr__fit_alloc_many(fit, d->nabsorb) != MR_OK)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    at = fit->many_names;
     for (l = 0; l < f->nlevels; l++) {
-        size_t len = strlen(f->level[l]) + 1;
         if ((int32_t)l == f->ref) continue;
-        memcpy(at, f->level[l], len);
-        fit->many_level[k++] = at;
-        at += len;
+        if ((fit->many_level[k++] = mr__strdup(f->level[l])) == NULL)
+            return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }
     return MR_OK;
 }

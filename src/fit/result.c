@@ -274,16 +274,17 @@ static mr_status copy_terms(mr_fit *fit, const mr__run *r)
     if (fit->term == NULL) return MR_ERR_NO_MEMORY;
     for (i = 0; i < fit->nterms; i++) {
         mr__fit_term *t = &fit->term[i];
-        const mr__term *dt = &r->design.term[d];
+        /* the `many` factor has no design term: no coefficient here */
+        const mr__term *dt = (long)i == r->design.absorb_group ? NULL : &r->design.term[d];
         int nparts = i < s->ncov ? 1 : s->inter[i - s->ncov].n;
-        t->full = dt->full;
-        t->first = dt->col0;
-        for (; d < r->design.nterms && r->design.term[d].group == i; d++) t->ncoef += r->design.term[d].ncols;
+        t->full = dt ? dt->full : 0;
+        t->first = dt ? dt->col0 : 0;
+        for (; dt && d < r->design.nterms && r->design.term[d].group == i; d++) t->ncoef += r->design.term[d].ncols;
         if ((t->label = term_label(s, i)) == NULL) return MR_ERR_NO_MEMORY;
         for (k = 0; k < nparts; k++, t->nparts++)
             if ((t->part[k] = mr__strdup(i < s->ncov ? s->cov[i].name : s->inter[i - s->ncov].name[k])) == NULL)
                 return MR_ERR_NO_MEMORY;
-        MR__TRY(copy_spline(t, dt, s, i));
+        if (dt) MR__TRY(copy_spline(t, dt, s, i));
     }
     return MR_OK;
 }

@@ -428,7 +428,7 @@ static mr_status check_consistent(reader *r)
     }
     if (!takes_param) f->family_param = NAN;
     if (mr__fit_quasi(f)) f->loglik = f->aic = f->bic = NAN; /* numbers a version 2 file may hold */
-    if (f->rank > f->p) {
+    if (f->rank > f->p + f->nmany) {
         enter(r, "fit.rank");
         return bad(r, "exceeds the number of coefficients");
     }

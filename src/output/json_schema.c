@@ -186,6 +186,24 @@ static const mr__jfield run_fields[] = {
     END,
 };
 
+/* The factor declared `many`: its levels other than the reference, which
+ * are not among the coefficients and not in the covariance.  Written only
+ * for such a fit, so that others keep their bytes. */
+static const mr__jfield many_level_fields[] = {
+    EACH("level", MR__J_TEXT, many_level),
+    EACH("estimate", MR__J_REAL, many_beta),
+    EACH("standard_error", MR__J_REAL, many_se),
+    EACH("information", MR__J_REAL, many_info),
+    END,
+};
+
+static const mr__jfield many_fields[] = {
+    F("factor", MR__J_TEXT, many_factor),
+    F("reference", MR__J_TEXT, many_reference),
+    {"levels", MR__J_RECORDS, 0, AT(nmany), 0, 0, 0, 0, NULL, NULL, many_level_fields},
+    END,
+};
+
 const mr__jfield mr__json_fit_fields[] = {
     DERIVED("format", MR__JD_FORMAT),
     DERIVED("format_version", MR__JD_FORMAT_VERSION),
@@ -201,6 +219,7 @@ const mr__jfield mr__json_fit_fields[] = {
     {"coefficients", MR__J_RECORDS, 0, AT(p), 0, 0, 0, 0, NULL, NULL, coefficient_fields},
     OBJECT("fit", statistics_fields),
     SPECIAL("covariance", MR__JS_COVARIANCE),
+    {"many_factor", MR__J_OBJECT_OPTIONAL, 0, AT(many_given), 0, 0, 0, 0, NULL, NULL, many_fields},
     LIST("warnings", MR__J_TEXTS, warning, nwarnings),
     END,
 };
