@@ -56,7 +56,7 @@ static void make_problem(problem *pb, size_t n, size_t L, size_t pr, int kind, u
             pb->R[i * pr + 2] = levx[l];
             pb->R[i * pr + 3] = pb->R[i * pr + 0] + 2 * pb->R[i * pr + 1];
         }
-        pb->z[i] = 0.5 * levx[l] + pb->R[i * pr] - 0.7 * pb->R[i * pr + 1] + unit(&st);
+        pb->z[i] = 0.5 * levx[l] + pb->R[i * pr] - 0.7 * pb->R[i * pr + pr - 1] + unit(&st);
     }
     free(levx);
 }

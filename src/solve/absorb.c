@@ -25,6 +25,7 @@ static int level_empty(const double *row) { return !(row[0] > 0) || !isfinite(ro
 static void schur(const mr__absorb_sums *s, double *S, double *rhs, double *g)
 {
     size_t pr = s->pr, l, i, j;
+    if (pr == 0) return; /* the levels alone: A and b_R may be NULL */
     memcpy(S, s->A, pr * pr * sizeof *S);
     memcpy(rhs, s->bR, pr * sizeof *rhs);
     for (l = 0; l < s->nlev; l++) {
