@@ -82,3 +82,16 @@ void mr__many_scale(mr_fit *fit)
     size_t k;
     for (k = 0; k < fit->nmany; k++) fit->many_se[k] = sqrt(fit->many_se[k] * fit->dispersion);
 }
+
+const char *mr_fit_many_factor(const mr_fit *fit) { return fit->many_given ? fit->many_factor : NULL; }
+
+size_t mr_fit_many_nlevels(const mr_fit *fit) { return fit->nmany; }
+
+const char *mr_fit_many_level(const mr_fit *fit, size_t k, double *estimate, double *std_error, double *information)
+{
+    if (k >= fit->nmany) return NULL;
+    if (estimate) *estimate = fit->many_beta[k];
+    if (std_error) *std_error = fit->many_se[k];
+    if (information) *information = fit->many_info[k];
+    return fit->many_level[k];
+}
