@@ -5,6 +5,7 @@
 
 #include <stddef.h>
 
+#include "common/error.h"
 #include "common/strbuf.h"
 #include "fit/fit.h"
 
@@ -16,6 +17,8 @@ typedef struct mr__html_page {
     double *at_value;
     size_t nat;
     int digits;
+    const char *groups_path;   /* a scoring run's group table (JSON), or NULL */
+    mr__strbuf funnel;         /* its section, built before the page */
 } mr__html_page;
 
 /* The plots of fit k: ratios (or coefficients) by term; fitted values
@@ -24,6 +27,30 @@ void mr__html_forest(mr__strbuf *b, const mr__html_page *pg, size_t k);
 void mr__html_effects(mr__strbuf *b, const mr__html_page *pg, size_t k);
 /* Each later fit's coefficients against the first fit's. */
 void mr__html_changes(mr__strbuf *b, const mr__html_page *pg);
+
+/* A fit's calibration groups as plain arrays of n each (value holds
+ * them all): the rows, the total weight, the range of the fitted mean,
+ * the observed and expected totals of each group. */
+typedef struct mr__html_calibration_data {
+    char *basis; /* how the groups were formed, in words */
+    size_t n;
+    double *rows, *weight, *mean_low, *mean_high, *observed, *expected;
+    double *value;
+} mr__html_calibration_data;
+
+/* The calibration plot of fit k from c (html_calibration.c). */
+void mr__html_calibration_plot(mr__strbuf *b, const mr__html_page *pg, size_t k, const mr__html_calibration_data *c);
+/* The calibration section of fit k when its data are at hand: 1, else 0
+ * (nothing written). */
+int mr__html_calibration(mr__strbuf *b, const mr__html_page *pg, size_t k);
+void mr__html_calibration_release(mr__html_calibration_data *c);
+
+/* The section of a scoring run's group table at `path`: a funnel plot
+ * of O/E against the expected count (html_funnel.c).  MR_ERR_IO or
+ * MR_ERR_FORMAT when the file cannot be read as one. */
+mr_status mr__html_funnel(mr__strbuf *b, const char *path, int digits, mr__error *err);
+/* min{k : P(X <= k) >= p} for X ~ Poisson(e), e > 0 (0 otherwise). */
+double mr__poisson_quantile(double p, double e);
 
 /* The two-sided quantile of the fit's intervals: Student's t on the
  * residual df when the dispersion is estimated, else the normal. */
