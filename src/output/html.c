@@ -310,6 +310,8 @@ static void one_fit(mr__strbuf *b, const mr__html_page *pg, size_t k)
     mr__html_forest(b, pg, k);
     put(b, "<h3>Effect plots</h3>\n");
     mr__html_effects(b, pg, k);
+    put(b, "<h3>Effect curves</h3>\n");
+    mr__html_curves(b, pg, k);
     mr__html_calibration(b, pg, k);
     put(b, "</section>\n");
 }

@@ -52,6 +52,38 @@ mr_status mr__html_funnel(mr__strbuf *b, const char *path, int digits, mr__error
 /* min{k : P(X <= k) >= p} for X ~ Poisson(e), e > 0 (0 otherwise). */
 double mr__poisson_quantile(double p, double e);
 
+/* Shared by the plots (html_plots.c): a numeric covariate's value (--at,
+ * else its mean when the fit records it, else 0); eta = x'beta and its
+ * standard error (NaN when x uses an aliased column); the inverse link;
+ * the scale and axis label of fitted values (a rate per a power of ten
+ * of the exposure, a probability in %, a mean) for a typical value m0;
+ * the held covariates in words (all but factor fi and numeric skip). */
+double mr__html_numeric_value(const mr__html_page *pg, const mr_fit *f, const char *name);
+void mr__html_linear_predictor(const mr_fit *f, const double *x, double *eta, double *se);
+double mr__html_inverse_link(const mr_fit *f, double eta);
+double mr__html_effect_scale(const mr_fit *f, double m0, mr__strbuf *axis);
+void mr__html_held_at(const mr__html_page *pg, const mr_fit *f, long fi, const char *skip, mr__strbuf *d);
+/* A profile: factor `factor` (-1: none) at level `level`, the other
+ * factors at their references; numeric `var` (NULL: none) at `value`, the
+ * others held (mr__html_numeric_value); spline bases by term. */
+struct mr__spline;
+typedef struct mr__html_profile {
+    const mr__html_page *pg;
+    const mr_fit *fit;
+    long factor;
+    size_t level;
+    const char *var;
+    double value;
+    const struct mr__spline *spline;
+} mr__html_profile;
+/* Its design row x (p entries; scratch: p more). */
+void mr__html_design_row(const mr__html_profile *p, double *x, double *scratch);
+/* The basis of each spline term, indexed by term (free with mr__free);
+ * NULL when out of memory or knots that make none. */
+struct mr__spline *mr__html_splines(const mr_fit *f);
+/* Fitted values along each numeric and spline column (html_curves.c). */
+void mr__html_curves(mr__strbuf *b, const mr__html_page *pg, size_t k);
+
 /* The two-sided quantile of the fit's intervals: Student's t on the
  * residual df when the dispersion is estimated, else the normal. */
 double mr__html_quantile(const mr_fit *f);
