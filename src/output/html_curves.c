@@ -177,6 +177,19 @@ static void texts(const mr__html_profile *p, const char *name, double a, double 
                       100 * f->level, mr__link_name((mr_link)f->link));
 }
 
+/* Whether every coefficient of the terms with column `name` is aliased
+ * (the column adds nothing the others do not: no curve). */
+static int all_aliased(const mr_fit *f, const char *name)
+{
+    size_t t, k, j, any = 0;
+    for (t = 0; t < f->nterms; t++)
+        for (k = 0; k < f->term[t].nparts; k++)
+            if (strcmp(f->term[t].part[k], name) == 0)
+                for (j = f->term[t].first; j < f->term[t].first + f->term[t].ncoef; j++)
+                    if (!f->aliased[j]) any = 1;
+    return !any;
+}
+
 static void one_curve(mr__strbuf *b, mr__html_profile *p, size_t k, size_t n, const char *name, int spline,
                       double *row, double *scratch)
 {
@@ -187,10 +200,16 @@ static void one_curve(mr__strbuf *b, mr__html_profile *p, size_t k, size_t n, co
     mr__svg_line line;
     mr__svg_xy xy;
     char id[48];
-    if (c == NULL || !range_of(f, name, &a, &z)) {
-        if (c == NULL) b->failed = 1;
-        else mr__strbuf_printf(b, "<p class=\"note\">No effect curve for %s: this fit does not record its range "
-                                  "(saved by an older version).</p>\n", name);
+    if (c == NULL || !range_of(f, name, &a, &z) || all_aliased(f, name)) {
+        if (c == NULL) {
+            b->failed = 1;
+            return;
+        }
+        mr__strbuf_printf(b, "<p class=\"note\">No effect curve for ");
+        mr__html_text(b, name);
+        mr__strbuf_printf(b, all_aliased(f, name) ? ": its coefficients are aliased.</p>\n"
+                                                   : ": this fit does not record its range (saved by an older "
+                                                     "version).</p>\n");
         mr__free(c);
         return;
     }

@@ -96,11 +96,31 @@ static size_t forest_rows(const mr_fit *f, mr__svg_row *row, const char *ratio)
     return n;
 }
 
+#define FOREST_MAX 60 /* coefficients; beyond, the largest |statistic| */
+#define FOREST_TOP 40
+
+/* The FOREST_TOP estimated coefficients of largest |statistic| (ties by
+ * position), in their order in the fit. */
+static size_t top_rows(const mr_fit *f, mr__svg_row *row)
+{
+    size_t j, i, n = 0, first = f->nterms ? f->term[0].first : 0;
+    for (j = first; j < f->p; j++) {
+        size_t above = 0;
+        if (f->aliased[j] || !isfinite(f->stat[j])) continue;
+        for (i = first; i < f->p && above < FOREST_TOP; i++)
+            above += !f->aliased[i] && isfinite(f->stat[i]) &&
+                     (fabs(f->stat[i]) > fabs(f->stat[j]) || (fabs(f->stat[i]) == fabs(f->stat[j]) && i < j));
+        if (above < FOREST_TOP) coef_row(&row[n++], f->name[j], f, j);
+    }
+    return n;
+}
+
 void mr__html_forest(mr__strbuf *b, const mr__html_page *pg, size_t k)
 {
     const mr_fit *f = pg->fit[k];
     const char *ratio = mr__fit_ratio_label(f);
     size_t i, n = f->p + f->nterms, levels = 0;
+    int top = f->p > FOREST_MAX;
     mr__svg_chart c;
     mr__svg_row *row;
     mr__strbuf title, desc, axis;
@@ -109,7 +129,7 @@ void mr__html_forest(mr__strbuf *b, const mr__html_page *pg, size_t k)
     if (f->nterms == 0 || (row = new_rows(b, n + levels)) == NULL) return;
     memset(&c, 0, sizeof c);
     c.row = row;
-    c.nrows = forest_rows(f, row, ratio);
+    c.nrows = top ? top_rows(f, row) : forest_rows(f, row, ratio);
     for (i = 0; ratio && i < c.nrows; i++)
         if (row[i].mark == MR__MARK_ESTIMATE) to_ratio(&row[i]);
     texts_init(&title, &desc, &axis);
@@ -118,6 +138,11 @@ void mr__html_forest(mr__strbuf *b, const mr__html_page *pg, size_t k)
                              "marked at %s. Numeric covariates: per unit increase. The intercept is in the table, "
                              "not here.",
                       ratio ? ratio : "coefficient", 100 * f->level, ratio ? "ratio 1" : "0");
+    if (top)
+        mr__strbuf_printf(&desc, " The fit has %zu coefficients: shown are the %zu of largest |%s| (in the fit's "
+                                 "order, not grouped), the rest are in the table. Picked by size, they overstate "
+                                 "their effects: read them as a screen, not as estimates.",
+                          f->p, c.nrows, mr__fit_statistic_name(f));
     if (ratio) mr__strbuf_printf(&axis, "%s = exp(coefficient)", ratio);
     else mr__strbuf_printf(&axis, "coefficient (link scale)");
     snprintf(id, sizeof id, "forest-%zu", k + 1);
@@ -127,7 +152,8 @@ void mr__html_forest(mr__strbuf *b, const mr__html_page *pg, size_t k)
     c.digits = pg->digits;
     c.legend[MR__MARK_ESTIMATE] = "estimate, line: its interval";
     c.legend[MR__MARK_REFERENCE] = "reference level";
-    draw(b, &c, &title, &desc, &axis);
+    if (c.nrows) draw(b, &c, &title, &desc, &axis);
+    else mr__strbuf_release(&title), mr__strbuf_release(&desc), mr__strbuf_release(&axis);
     mr__free(row);
 }
 
@@ -168,21 +194,18 @@ static void profile_row(const mr__html_page *pg, const mr_fit *f, const struct m
     mr__html_design_row(&p, x, x + f->p);
 }
 
-/* eta = x'beta and its standard error sqrt(x'Vx); NaN when x uses an
- * aliased column. */
+/* eta = x'beta and its standard error sqrt(x'Vx).  An aliased column
+ * counts as 0, as in the fit, which dropped it: the fitted values are
+ * those of the columns estimated. */
 void mr__html_linear_predictor(const mr_fit *f, const double *x, double *eta, double *se)
 {
     size_t i, j;
     double e = 0, v = 0;
     for (i = 0; i < f->p; i++) {
-        if (x[i] == 0) continue;
-        if (f->aliased[i]) {
-            *eta = *se = NAN;
-            return;
-        }
+        if (x[i] == 0 || f->aliased[i]) continue;
         e += x[i] * f->beta[i];
         for (j = 0; j < f->p; j++)
-            if (x[j] != 0) v += x[i] * x[j] * f->cov[i * f->p + j];
+            if (x[j] != 0 && !f->aliased[j]) v += x[i] * x[j] * f->cov[i * f->p + j];
     }
     *eta = e;
     *se = sqrt(v);
