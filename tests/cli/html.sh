@@ -57,6 +57,15 @@ check "calibration: ten groups in its table" test "$(sed -n '/<figure id="calibr
 check "calibration: the groups' basis said" grep -qF 'tenths of the fitted mean (invented' "$tmp/calib.html"
 check "no calibration plot without the groups" test "$(grep -c 'id="calibration-' "$tmp/falls.html")" = 0
 
+# A fit saved before fits recorded their numeric columns: numerics at 0,
+# said; no curve for a plain numeric, a spline's over its boundary knots.
+/usr/bin/python3 -c 'import json, sys; f = json.load(open(sys.argv[1])); del f["model"]["numeric_summary"]
+json.dump(f, open(sys.argv[2], "w"), indent=1)' "$tmp/screening.json" "$tmp/older.json"
+check "older fit page" "$bin" report --html "$tmp/older.html" "$tmp/older.json"
+page_ok older fit-1 forest-1 effect-1-1
+check "older fit: numerics at 0, said" grep -qF 'does not record the values of its numeric columns' "$tmp/older.html"
+check "older fit: no curve, said" grep -qF 'No effect curve for age: this fit does not record its range' "$tmp/older.html"
+
 # A funnel plot of a scoring run's groups (--groups).
 "$bin" score --quiet --fit "$tmp/falls.json" --out "$tmp/scored.csv" --by region --by age_band --by-out "$tmp/groups.json" \
     "$root/samples/falls.csv.zst" || fail "score --by-out" "exit $?"
