@@ -219,23 +219,11 @@ void mr__svg_dot_chart(mr__strbuf *b, const mr__svg_chart *c)
     a.x0 = label_width(c);
     a.x1 = WIDTH - VALUE_W;
     set_range(&a, c);
-    mr__strbuf_printf(b, "<figure id=\"%s\">\n<svg viewBox=\"0 0 %.0f %.0f\" "
-                         "width=\"%.0f\" height=\"%.0f\" role=\"img\" aria-label=\"",
-                      c->id, WIDTH, height, WIDTH, height);
-    mr__html_text(b, c->title);
-    mr__strbuf_printf(b, "\" aria-describedby=\"%s-desc\">\n<title>", c->id);
-    mr__html_text(b, c->title);
-    mr__strbuf_printf(b, "</title>\n<desc id=\"%s-desc\">", c->id);
-    mr__html_text(b, c->desc);
-    mr__strbuf_printf(b, "</desc>\n");
+    mr__svg_figure_open(b, c->id, WIDTH, height, c->title, c->desc);
     put_bands(b, c);
     put_axis(b, c, &a, bottom);
     put_rows(b, c, &a);
-    mr__strbuf_printf(b, "</svg>\n<figcaption><strong>");
-    mr__html_text(b, c->title);
-    mr__strbuf_printf(b, ".</strong> ");
-    mr__html_text(b, c->desc);
-    mr__strbuf_printf(b, "</figcaption>\n");
+    mr__svg_figure_caption(b, c->title, c->desc);
     put_legend(b, c);
     put_table(b, c);
     mr__strbuf_printf(b, "</figure>\n");

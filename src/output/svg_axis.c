@@ -1,6 +1,7 @@
 /* svg_axis.c - see svg_axis.h. */
 #include <math.h>
 
+#include "output/html_text.h"
 #include "output/svg_axis.h"
 
 static double scaled(const mr__svg_axis *a, double v) { return a->log ? log10(v) : v; }
@@ -71,4 +72,27 @@ size_t mr__svg_ticks(const mr__svg_axis *a, double *t)
     for (v = ceil(a->lo / ceil(span / 8)) * ceil(span / 8); v <= a->hi && n < MR__SVG_MAX_TICKS; v += ceil(span / 8))
         t[n++] = pow(10, v);
     return n;
+}
+
+void mr__svg_figure_open(mr__strbuf *b, const char *id, double width, double height, const char *title,
+                         const char *desc)
+{
+    mr__strbuf_printf(b, "<figure id=\"%s\">\n<svg viewBox=\"0 0 %.0f %.0f\" "
+                         "width=\"%.0f\" height=\"%.0f\" role=\"img\" aria-label=\"",
+                      id, width, height, width, height);
+    mr__html_text(b, title);
+    mr__strbuf_printf(b, "\" aria-describedby=\"%s-desc\">\n<title>", id);
+    mr__html_text(b, title);
+    mr__strbuf_printf(b, "</title>\n<desc id=\"%s-desc\">", id);
+    mr__html_text(b, desc);
+    mr__strbuf_printf(b, "</desc>\n");
+}
+
+void mr__svg_figure_caption(mr__strbuf *b, const char *title, const char *desc)
+{
+    mr__strbuf_printf(b, "</svg>\n<figcaption><strong>");
+    mr__html_text(b, title);
+    mr__strbuf_printf(b, ".</strong> ");
+    mr__html_text(b, desc);
+    mr__strbuf_printf(b, "</figcaption>\n");
 }

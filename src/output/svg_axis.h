@@ -1,10 +1,14 @@
-/* svg_axis.h - an axis of the page's plots (svg.c's dot chart, svg_xy.c's
- * x-y chart): a value range mapped onto a run of pixels, linear or log,
- * and its tick values (1, 2 or 5 times a power of ten). */
+/* svg_axis.h - what the page's charts (svg.c's dot chart, svg_xy.c's x-y
+ * chart) share: an axis, a value range mapped onto a run of pixels,
+ * linear or log, with its tick values (1, 2 or 5 times a power of ten);
+ * the figure's opening (<svg> with its title, desc and aria-label) and
+ * its caption. */
 #ifndef MR_SVG_AXIS_H
 #define MR_SVG_AXIS_H
 
 #include <stddef.h>
+
+#include "common/strbuf.h"
 
 typedef struct mr__svg_axis {
     int log;
@@ -25,5 +29,12 @@ void mr__svg_widen(const mr__svg_axis *a, double v, double *lo, double *hi);
 void mr__svg_set_range(mr__svg_axis *a, double lo, double hi);
 /* The tick values (at most MR__SVG_MAX_TICKS), on the value scale. */
 size_t mr__svg_ticks(const mr__svg_axis *a, double *t);
+
+/* <figure id> and <svg> with its text alternatives (title, desc: plain
+ * text, escaped here). */
+void mr__svg_figure_open(mr__strbuf *b, const char *id, double width, double height, const char *title,
+                         const char *desc);
+/* </svg> and the <figcaption>: the title in bold, then desc. */
+void mr__svg_figure_caption(mr__strbuf *b, const char *title, const char *desc);
 
 #endif

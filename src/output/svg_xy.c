@@ -148,14 +148,7 @@ void mr__svg_xy_chart(mr__strbuf *b, const mr__svg_xy *c)
     ay.x0 = HEIGHT - BOTTOM; /* the bottom pixel is the low end */
     ay.x1 = TOP;
     set_ranges(c, &ax, &ay);
-    mr__strbuf_printf(b, "<figure id=\"%s\">\n<svg viewBox=\"0 0 %.0f %.0f\" width=\"%.0f\" height=\"%.0f\" "
-                         "role=\"img\" aria-label=\"", c->id, WIDTH, HEIGHT, WIDTH, HEIGHT);
-    mr__html_text(b, c->title);
-    mr__strbuf_printf(b, "\" aria-describedby=\"%s-desc\">\n<title>", c->id);
-    mr__html_text(b, c->title);
-    mr__strbuf_printf(b, "</title>\n<desc id=\"%s-desc\">", c->id);
-    mr__html_text(b, c->desc);
-    mr__strbuf_printf(b, "</desc>\n");
+    mr__svg_figure_open(b, c->id, WIDTH, HEIGHT, c->title, c->desc);
     put_axes(b, c, &ax, &ay);
     put_band(b, c, &ax, &ay);
     if (mr__svg_drawable(&ay, c->yref))
@@ -164,11 +157,7 @@ void mr__svg_xy_chart(mr__strbuf *b, const mr__svg_xy *c)
                           mr__svg_at(&ay, c->yref));
     for (i = 0; i < c->nlines; i++) put_line(b, &c->line[i], &ax, &ay);
     put_points(b, c, &ax, &ay);
-    mr__strbuf_printf(b, "</svg>\n<figcaption><strong>");
-    mr__html_text(b, c->title);
-    mr__strbuf_printf(b, ".</strong> ");
-    mr__html_text(b, c->desc);
-    mr__strbuf_printf(b, "</figcaption>\n");
+    mr__svg_figure_caption(b, c->title, c->desc);
     if (c->legend) {
         mr__strbuf_printf(b, "<p class=\"legend\">");
         mr__html_text(b, c->legend);
