@@ -140,7 +140,7 @@ static void put_axis(mr__strbuf *b, const mr__svg_chart *c, const axis *a, doubl
         put_line(b, x, TOP, x, y, "#ccc");
         put_line(b, x, y, x, y + 4, "#000");
         mr__strbuf_printf(b, "<text x=\"%.1f\" y=\"%.1f\" text-anchor=\"middle\">", x, y + 16);
-        mr__html_number(b, t[i], 3);
+        mr__svg_tick_label(b, t[i]);
         mr__strbuf_printf(b, "</text>\n");
     }
     if (mr__svg_drawable(a, c->reference)) {

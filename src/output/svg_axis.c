@@ -96,3 +96,9 @@ void mr__svg_figure_caption(mr__strbuf *b, const char *title, const char *desc)
     mr__html_text(b, desc);
     mr__strbuf_printf(b, "</figcaption>\n");
 }
+
+void mr__svg_tick_label(mr__strbuf *b, double v)
+{
+    if (fabs(v) >= 1e3 && fabs(v) < 1e9 && v == floor(v)) mr__strbuf_printf(b, "%.0f", v); /* not 1e+03 */
+    else mr__html_number(b, v, 3);
+}

@@ -30,6 +30,8 @@ void mr__svg_set_range(mr__svg_axis *a, double lo, double hi);
 /* The tick values (at most MR__SVG_MAX_TICKS), on the value scale. */
 size_t mr__svg_ticks(const mr__svg_axis *a, double *t);
 
+/* A tick's value: 3 significant digits, whole numbers up to 1e9 in full. */
+void mr__svg_tick_label(mr__strbuf *b, double v);
 /* <figure id> and <svg> with its text alternatives (title, desc: plain
  * text, escaped here). */
 void mr__svg_figure_open(mr__strbuf *b, const char *id, double width, double height, const char *title,

@@ -56,7 +56,7 @@ static void put_axes(mr__strbuf *b, const mr__svg_xy *c, const mr__svg_axis *ax,
         mr__strbuf_printf(b, "<line x1=\"%.1f\" y1=\"%.1f\" x2=\"%.1f\" y2=\"%.1f\" stroke=\"#ddd\"/>\n", x, ay->x1, x,
                           ay->x0 + 4);
         mr__strbuf_printf(b, "<text x=\"%.1f\" y=\"%.1f\" text-anchor=\"middle\">", x, ay->x0 + 18);
-        mr__html_number(b, t[i], 3);
+        mr__svg_tick_label(b, t[i]);
         mr__strbuf_printf(b, "</text>\n");
     }
     n = mr__svg_ticks(ay, t);
@@ -65,7 +65,7 @@ static void put_axes(mr__strbuf *b, const mr__svg_xy *c, const mr__svg_axis *ax,
         mr__strbuf_printf(b, "<line x1=\"%.1f\" y1=\"%.1f\" x2=\"%.1f\" y2=\"%.1f\" stroke=\"#ddd\"/>\n", ax->x0 - 4, y,
                           ax->x1, y);
         mr__strbuf_printf(b, "<text x=\"%.1f\" y=\"%.1f\" text-anchor=\"end\">", ax->x0 - 7, y + 4);
-        mr__html_number(b, t[i], 3);
+        mr__svg_tick_label(b, t[i]);
         mr__strbuf_printf(b, "</text>\n");
     }
     mr__strbuf_printf(b, "<path d=\"M%.1f %.1fV%.1fH%.1f\" fill=\"none\" stroke=\"#000\"/>\n", ax->x0, ay->x1, ay->x0,
