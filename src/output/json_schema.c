@@ -97,7 +97,7 @@ static const mr__jfield numeric_fields[] = {
 };
 
 /* The numeric columns over the rows used, by name.  Added within
- * format_version 2, so optional: a fit written before reads back without
+ * format_version 3, so optional: a fit written before reads back without
  * it and writes the same bytes again. */
 static const mr__jfield numeric_summary_fields[] = {
     {"columns", MR__J_KEYED, AT(numeric), AT(nnumerics), sizeof(mr__fit_numeric), offsetof(mr__fit_numeric, name), 0,
