@@ -30,6 +30,9 @@ double mr__poisson_quantile(double p, double e)
 {
     double k;
     if (!(e > 0)) return 0;
+    /* beyond 2^50 a count's steps are below the doubles' resolution of
+     * the quantile's neighbourhood: the normal quantile, rounded */
+    if (!(e < 0x1p50)) return floor(e + mr__normal_quantile(p) * sqrt(e));
     k = floor(e + mr__normal_quantile(p) * sqrt(e)) - 2;
     if (k < 0) k = 0;
     while (k > 0 && mr__gamma_q(k + 1, e) >= p) k--; /* Q(k + 1, e) = P(X <= k) */

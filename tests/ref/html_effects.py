@@ -171,7 +171,21 @@ def curves(page):
     return out
 
 
+NS_CACHE = {}
+
+
 def ns_basis(x, spline):
+    """R's splines::ns at x, the fit's knots and boundary knots (one
+    Rscript run for the points not asked before)."""
+    key = (tuple(spline["knots"]), tuple(spline["boundary_knots"]))
+    todo = sorted({v for v in x if (key, v) not in NS_CACHE})
+    if todo:
+        for v, row in zip(todo, ns_basis_r(todo, spline)):
+            NS_CACHE[(key, v)] = row
+    return np.array([NS_CACHE[(key, v)] for v in x])
+
+
+def ns_basis_r(x, spline):
     """R's splines::ns at x, the fit's knots and boundary knots."""
     knots = ",".join(repr(k) for k in spline["knots"])
     bound = ",".join(repr(k) for k in spline["boundary_knots"])
@@ -218,6 +232,9 @@ def check(name, fit_path, page, data_rows):
             report(f"{name}: curve of {col}", False, "not on the page")
             continue
         have = got[col]
+        for t in fit["model"]["terms"]:
+            if t["kind"] == "spline":
+                ns_basis(list(have[:, 0]) + [at[t["spline"]["column"]]], t["spline"])
         X = np.array([design_row(fit, col, x, at) for x in have[:, 0]])
         eta = X @ beta
         se = np.sqrt(np.einsum("ij,jk,ik->i", X, cov, X))
