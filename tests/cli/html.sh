@@ -123,6 +123,13 @@ check "level escaped" grep -qF 'a&lt;script&gt;alert(1)&lt;/script&gt;' "$tmp/ho
 check "quotes escaped" grep -qF 'b&amp;&quot;x&#39;' "$tmp/hostile.html"
 check "column name escaped" grep -qF 'gr&lt;u&gt;' "$tmp/hostile.html"
 check "a byte that is not UTF-8 shows as \\xE9" grep -qF 'R\xE9gion' "$tmp/hostile.html"
+"$bin" score --quiet --fit "$tmp/hostile.json" --out "$tmp/hostile-scored.csv" --by 'gr<u>' \
+    --by-out "$tmp/hostile-groups.json" "$tmp/hostile.csv" || fail "score hostile --by-out" "exit $?"
+check "hostile funnel page" "$bin" report --html "$tmp/hostile-funnel.html" --groups "$tmp/hostile-groups.json" \
+    "$tmp/hostile.json"
+page_ok hostile-funnel groups funnel
+check "funnel: no markup from the data" test "$(grep -c '<script\|<u>' "$tmp/hostile-funnel.html")" = 0
+check "funnel: group key escaped" grep -qF 'gr&lt;u&gt;=a&lt;script&gt;' "$tmp/hostile-funnel.html"
 
 # Errors: exit codes of the README.
 expect_exit() { # expect_exit NAME CODE ARGS...
