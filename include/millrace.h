@@ -306,9 +306,10 @@ MR_API mr_status mr_fitter_set_start(mr_fitter *f, const mr_fit *previous, const
  * dispersion cancels.  Scaled as R's sandwich package scales them:
  *   MR_ROBUST_HC0                  1             (vcovHC type "HC0")
  *   MR_ROBUST_HC1                  n / (n - k)   (vcovHC type "HC1")
- *   a cluster column, HC0          G / (G - 1)   (vcovCL type "HC0")
+ *   a cluster column, HC0          G / (G - 1)   (vcovCL type "HC0", its
+ *                                  default for a glm, cadjust = TRUE)
  *   a cluster column, HC1          G / (G - 1) x (n - 1) / (n - k)
- *                                  (vcovCL's default for a glm)
+ *                                  (vcovCL type "HC1")
  * n the rows with a positive weight, k the number of estimated
  * coefficients, G the clusters.  When asked, the robust standard errors
  * drive the fit's Wald statistics, p-values, intervals and term tests
@@ -325,7 +326,7 @@ MR_API mr_status mr_fitter_set_robust(mr_fitter *f, mr_robust type);
 /* Cluster-robust standard errors by the cells of `column` (copied; NULL:
  * none, the default): two rows are in one cluster when the cells' text is
  * the same (told apart by a 128-bit hash of it).  Without a type set, the
- * type is MR_ROBUST_HC1.  A row with the cell missing is left out of the
+ * type is MR_ROBUST_HC0, as in vcovCL for a glm.  A row with the cell missing is left out of the
  * fit like any incomplete row.  The column may be one the model uses.
  *
  * A file grouped by the column (each cluster's rows together, in any

@@ -27,7 +27,7 @@ struct mr_fitter {
 };
 
 /* The robust standard errors a run makes (an mr_robust): the one set, or
- * HC1 when only a cluster column is (robust.c). */
+ * HC0 when only a cluster column is (robust.c). */
 int mr__robust_type(const mr_fitter *f);
 
 /* The fit itself (run.c). */

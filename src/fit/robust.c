@@ -8,8 +8,8 @@
  * any family's estimate of it.  Scaled as R's sandwich package does:
  *   HC0                   1
  *   HC1                   n / (n - k)
- *   clusters, HC0         G / (G - 1)
- *   clusters, HC1         G / (G - 1) x (n - 1) / (n - k)   (vcovCL's default)
+ *   clusters, HC0         G / (G - 1)   (vcovCL's default for a glm)
+ *   clusters, HC1         G / (G - 1) x (n - 1) / (n - k)
  * n the rows with a positive weight, k the rank, G the clusters.  V is
  * formed on the internal (centred) scale and mapped to the raw columns as
  * the model's covariance is. */
@@ -48,7 +48,8 @@ mr_status mr_fitter_set_cluster(mr_fitter *f, const char *column, size_t memory_
 int mr__robust_type(const mr_fitter *f)
 {
     if (f->robust != MR_ROBUST_NONE) return f->robust;
-    return f->cluster != NULL ? MR_ROBUST_HC1 : MR_ROBUST_NONE;
+    /* sandwich::vcovCL's default for a glm (HC1 is its default for lm alone) */
+    return f->cluster != NULL ? MR_ROBUST_HC0 : MR_ROBUST_NONE;
 }
 
 /* The small-sample factor of the table above. */
