@@ -4,6 +4,8 @@
  * Rows (no cluster column): the sum over rows of u^2 x x', where u x is
  * the row's score (accumulate.h), formed per block by the kernels of
  * X'WX and added by the group order of partial.h, as an IRLS pass adds.
+ * Either way the pass also adds up X'WX at the same point (the bread,
+ * res->bread), so that bread and meat are of one point, the final one.
  *
  * Clusters: the sum over clusters of s s', s the sum of the cluster's
  * scores.  A worker cuts its block into runs of rows of one cluster.
@@ -28,6 +30,7 @@
 #include "common/alloc.h"
 
 typedef struct meat_part {
+    mr__block_sums bread; /* this block's X'WX */
     mr__block_sums rows; /* rows: this block's sums */
     size_t nruns;
     uint64_t *key;       /* 2 words a run */
@@ -49,6 +52,7 @@ typedef struct meat_job {
     const mr__design *design;
     size_t p;
     mr__block_sums group; /* rows: the open group's total */
+    mr__block_sums bread_group; /* the open group's X'WX */
     int group_open;
     mr__clusters cl;      /* clusters: their bookkeeping (clusters.h) */
 } meat_job;
@@ -65,6 +69,8 @@ static mr_status meat_open(const mr__pass_env *env, void **out, mr__error *err)
     j->design = env->cfg->point->design;
     j->p = j->design->p;
     MR__TRY(mr__sums_init(&env->res->sums, j->p, err));
+    MR__TRY(mr__sums_init(&env->res->bread, j->p, err));
+    MR__TRY(mr__sums_init(&j->bread_group, j->p, err));
     if (j->mc->clusters) return mr__clusters_init(&j->cl, j->p, j->mc->table, j->mc->limit, env->res->sums.xtwx,
                                                      j->mc->display, err);
     return mr__sums_init(&j->group, j->p, err);
@@ -76,6 +82,7 @@ static mr_status meat_slot_init(void *job, mr__pass_slot *s, mr__error *err)
     meat_part *m = mr__calloc(1, sizeof *m);
     s->part = m;
     if (m == NULL) return no_memory(err);
+    MR__TRY(mr__sums_init_block(&m->bread, j->design, err));
     if (!j->mc->clusters) return mr__sums_init_block(&m->rows, j->design, err);
     m->key = mr__malloc_array(2 * MR__BLOCK_ROWS, sizeof *m->key);
     if (m->key == NULL) return no_memory(err);
@@ -182,6 +189,8 @@ static void meat_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
     meat_job *j = job;
     meat_scratch *sc = w->part;
     meat_part *m = s->part;
+    /* the bread at the same point as the meat: X'WX where the scores are */
+    mr__accumulate_block(j->env->cfg->point, s->use, &sc->ws, &m->bread);
     mr__block_scores(j->env->cfg->point, s->use, &sc->ws);
     if (j->mc->clusters) compute_clusters(j, sc, s);
     else mr__accumulate_scores(j->design, s->use, &sc->ws, &m->rows);
@@ -191,18 +200,23 @@ static void meat_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
 
 static void close_group(meat_job *j)
 {
-    mr__sums_add_totals(&j->env->res->sums, &j->group, j->p);
-    mr__sums_zero_totals(&j->group, j->p);
+    if (!j->mc->clusters) {
+        mr__sums_add_totals(&j->env->res->sums, &j->group, j->p);
+        mr__sums_zero_totals(&j->group, j->p);
+    }
+    mr__sums_add_totals(&j->env->res->bread, &j->bread_group, j->p);
+    mr__sums_zero_totals(&j->bread_group, j->p);
     j->group_open = 0;
 }
 
-static mr_status add_rows(meat_job *j, mr__pass_slot *s)
+/* Rows' sums and the bread by the group order of partial.h. */
+static void add_groups(meat_job *j, mr__pass_slot *s)
 {
     meat_part *m = s->part;
-    mr__sums_add(&j->group, &m->rows, j->design);
+    if (!j->mc->clusters) mr__sums_add(&j->group, &m->rows, j->design);
+    mr__sums_add(&j->bread_group, &m->bread, j->design);
     j->group_open = 1;
     if (mr__group_closes(s->index, 0)) close_group(j);
-    return MR_OK;
 }
 
 static mr_status meat_add(void *job, mr__pass_slot *s, mr__error *err)
@@ -210,7 +224,8 @@ static mr_status meat_add(void *job, mr__pass_slot *s, mr__error *err)
     meat_job *j = job;
     meat_part *m = s->part;
     MR__TRY(mr__pass_block_status(s, err));
-    if (!j->mc->clusters) return add_rows(j, s);
+    add_groups(j, s);
+    if (!j->mc->clusters) return MR_OK;
     if (j->mc->table) return mr__clusters_add_table(&j->cl, m->nruns, m->key, m->vec, err);
     return mr__clusters_add_streamed(&j->cl, m->nruns, m->key, m->vec, m->inner, &j->env->res->clusters_not_grouped,
                                      err);
@@ -220,10 +235,8 @@ static mr_status meat_finish(void *job, mr_status st, mr__error *err)
 {
     meat_job *j = job;
     if (st != MR_OK) return st;
-    if (!j->mc->clusters) {
-        if (j->group_open) close_group(j);
-        return st;
-    }
+    if (j->group_open) close_group(j);
+    if (!j->mc->clusters) return st;
     st = mr__clusters_finish(&j->cl, err);
     j->env->res->clusters = j->cl.n;
     return st;
@@ -250,6 +263,7 @@ static void meat_slot_release(void *job, mr__pass_slot *s)
     meat_part *m = s->part;
     (void)job;
     if (m == NULL) return;
+    mr__sums_release(&m->bread);
     mr__sums_release(&m->rows);
     mr__free(m->key);
     mr__free(m->vec);
@@ -262,6 +276,7 @@ static void meat_close(void *job)
 {
     meat_job *j = job;
     mr__sums_release(&j->group);
+    mr__sums_release(&j->bread_group);
     mr__clusters_release(&j->cl);
     mr__free(j);
 }

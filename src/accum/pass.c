@@ -774,5 +774,6 @@ void mr__pass_result_release(mr__pass_result *res, size_t nfac)
     mr__block_map_release(&res->map);
     mr__scan_release(&res->scan);
     mr__sums_release(&res->sums);
+    mr__sums_release(&res->bread);
     memset(res, 0, sizeof *res);
 }

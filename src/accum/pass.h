@@ -120,6 +120,8 @@ typedef struct mr__pass_result {
      * came back after others (the pass stopped: the file is not grouped). */
     uint64_t clusters;
     int clusters_not_grouped;
+    /* MR__PASS_MEAT: X'WX at its point (the sandwich's bread, p x p upper) */
+    mr__block_sums bread;
 } mr__pass_result;
 
 #define MR__SAMPLE_BLOCKS 32

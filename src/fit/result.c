@@ -211,7 +211,7 @@ static mr_status set_coefficients(mr_fit *fit, mr__run *r, mr__error *err)
     }
     st = mr__solve_normal(r->last.sums.xtwx, r->last.sums.xtwz, p, scratch, fit->aliased, &fit->rank, cov_s, err);
     if (st == MR_OK) st = mr__map_to_raw(d, r->beta_final, cov_s, fit->beta, fit->cov, fit->se, err);
-    if (st == MR_OK) st = mr__robust_result(fit, r, cov_s, err);
+    if (st == MR_OK) st = mr__robust_result(fit, r, err);
     mr__free(scratch);
     mr__free(cov_s);
     if (st != MR_OK) return st;

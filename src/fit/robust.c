@@ -1,8 +1,9 @@
 /* robust.c - robust (sandwich) standard errors: the options, the
  * covariance from the meat pass (accum/job_meat.c) and the accessors.
  *
- * V = B M B, with B = (X'WX)^-1 the model's covariance before the
- * dispersion (the bread, from the last IRLS pass) and M the meat: the sum
+ * V = B M B, with B = (X'WX)^-1 (the bread) and M the meat, both added up
+ * by the meat pass at the final coefficients (the last IRLS pass may be a
+ * Newton step behind them), M the sum
  * over rows of u^2 x x', or over clusters of s s' (u x a row's score, s a
  * cluster's sum of them).  The dispersion cancels, so V is the same for
  * any family's estimate of it.  Scaled as R's sandwich package does:
@@ -20,6 +21,7 @@
 #include "fit/fit.h"
 #include "fit/fitter.h"
 #include "fit/run.h"
+#include "solve/normal_eq.h"
 
 #define DEFAULT_CLUSTER_MEMORY ((size_t)1 << 30)
 
@@ -95,11 +97,20 @@ static mr_status robust_labels(mr_fit *fit, const mr__run *r, int type)
     return MR_OK;
 }
 
-mr_status mr__robust_result(mr_fit *fit, const mr__run *r, const double *bread, mr__error *err)
+/* B: the inverse of the meat pass's X'WX, the aliased columns as the fit's
+ * (a column aliased at one point is at the other: the design is the same). */
+static mr_status invert_bread(const mr__run *r, double *beta, int *aliased, double *B, mr__error *err)
+{
+    size_t rank;
+    const mr__block_sums *s = &r->meat.bread;
+    return mr__solve_normal(s->xtwx, s->xtwz, r->design.p, beta, aliased, &rank, B, err);
+}
+
+mr_status mr__robust_result(mr_fit *fit, const mr__run *r, mr__error *err)
 {
     size_t p = r->design.p, j;
-    int type = mr__robust_type(r->f);
-    double n = (double)r->first.scan.npos, a, *T, *V, *beta;
+    int type = mr__robust_type(r->f), *aliased;
+    double n = (double)r->first.scan.npos, a, *T, *V, *beta, *B;
     mr_status st;
     if (type == MR_ROBUST_NONE) return MR_OK;
     fit->robust = 1;
@@ -109,11 +120,14 @@ mr_status mr__robust_result(mr_fit *fit, const mr__run *r, const double *bread, 
     T = mr__malloc_array(p * p + 1, sizeof *T);
     V = mr__malloc_array(p * p + 1, sizeof *V);
     beta = mr__malloc_array(p + 1, sizeof *beta);
-    st = T && V && beta && robust_alloc(fit, p) == MR_OK && robust_labels(fit, r, type) == MR_OK
+    B = mr__malloc_array(p * p + 1, sizeof *B);
+    aliased = mr__calloc(p + 1, sizeof *aliased);
+    st = T && V && beta && B && aliased && robust_alloc(fit, p) == MR_OK && robust_labels(fit, r, type) == MR_OK
              ? MR_OK
              : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    if (st == MR_OK) st = invert_bread(r, beta, aliased, B, err);
     if (st == MR_OK) {
-        sandwich(bread, r->meat.sums.xtwx, p, T, V);
+        sandwich(B, r->meat.sums.xtwx, p, T, V);
         st = mr__map_to_raw(&r->design, r->beta_final, V, beta, fit->robust_cov, fit->robust_se, err);
     }
     for (j = 0; st == MR_OK && j < p * p; j++) fit->robust_cov[j] *= a;
@@ -123,6 +137,8 @@ mr_status mr__robust_result(mr_fit *fit, const mr__run *r, const double *bread, 
     mr__free(T);
     mr__free(V);
     mr__free(beta);
+    mr__free(B);
+    mr__free(aliased);
     return st;
 }
 

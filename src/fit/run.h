@@ -75,8 +75,8 @@ typedef struct mr__run {
 mr_status mr__map_to_raw(const mr__design *d, const double *beta_s, const double *cov_s, double *beta, double *cov,
                          double *se_small, mr__error *err);
 /* robust.c: the robust covariance and standard errors into fit, from the
- * bread (the inverse of the last pass's X'WX, full p x p) and r->meat. */
-mr_status mr__robust_result(mr_fit *fit, const mr__run *r, const double *bread, mr__error *err);
+ * meat pass's result r->meat (its bread and meat); after the fit's rank. */
+mr_status mr__robust_result(mr_fit *fit, const mr__run *r, mr__error *err);
 
 mr_status mr__build_fit(mr__run *r, mr_fit **out, mr__error *err);
 
