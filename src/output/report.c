@@ -124,7 +124,7 @@ static size_t name_width(const mr_fit *f)
 static void robust_line(mr__strbuf *b, const mr_fit *f)
 {
     if (!f->robust) return;
-    mr__strbuf_printf(b, "standard errors: robust (sandwich %s, factor %.6g)", f->robust_type, f->robust_adjustment);
+    mr__strbuf_printf(b, "standard errors: robust (sandwich %s, factor %.9g)", f->robust_type, f->robust_adjustment);
     if (f->cluster)
         mr__strbuf_printf(b, " by cluster column '%s', %llu clusters%s", f->cluster, (unsigned long long)f->nclusters,
                           f->nclusters < 50 ? " (few clusters: they may be too small)" : "");

@@ -8,6 +8,7 @@
 # the limit stops with exit 13 and says to group the file; a missing
 # cluster cell leaves its row out; bad options and columns are exit 2.
 source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
+bin=${MILLRACE:-$bin} # make asan-check runs it on the ASan build
 
 # 200000 rows in 100001 clusters of 1 to 3 rows, grouped; the same
 # rows shuffled (a fixed permutation: 7919 is prime to the row count).
