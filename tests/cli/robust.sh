@@ -73,6 +73,11 @@ else
     fail "report" "$(grep -m1 '^standard errors' "$tmp/show.txt")"
 fi
 
+"$bin" report --html "$tmp/page.html" "$tmp/show.json" 2> "$tmp/page.err"
+check "the HTML page says which standard errors it shows" grep -q \
+    "Standard errors: robust (sandwich HC0, factor [0-9.]*) by cluster column <code>g</code>, 100001 clusters;" \
+    "$tmp/page.html"
+
 # 100001 clusters: grouped, a set of 262144 words (2 MiB) fits in 3 MiB;
 # shuffled, their sums (16 + 8 x 4 bytes each: 4.8 MB) do not
 fit_robust grouped2 --cluster g --cluster-memory 3 "$tmp/grouped.csv"
