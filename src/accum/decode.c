@@ -17,9 +17,9 @@ mr_status mr__block_init(mr__block *b, const mr__binding *bind, mr__error *err)
     b->num = mr__malloc_array(R * (bind->nnum ? bind->nnum : 1), sizeof *b->num);
     b->lev = mr__malloc_array(R * (bind->nfac ? bind->nfac : 1), sizeof *b->lev);
     b->missing = mr__calloc(bind->ncol, sizeof *b->missing);
-    if (bind->has_cluster && (b->cluster = mr__malloc_array(2 * R, sizeof *b->cluster)) == NULL) b->y = NULL;
+    if (bind->has_cluster) b->cluster = mr__malloc_array(2 * R, sizeof *b->cluster);
     if (!b->y || !b->num || !b->lev || !b->missing || ((bind->has_weight || bind->has_trials) && !b->prior) ||
-        ((bind->has_offset || bind->has_exposure) && !b->off)) {
+        ((bind->has_offset || bind->has_exposure) && !b->off) || (bind->has_cluster && !b->cluster)) {
         mr__block_release(b);
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }

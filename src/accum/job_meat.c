@@ -148,7 +148,8 @@ static double *run_target(const meat_job *j, meat_part *m, meat_scratch *sc, siz
     return sc->v;
 }
 
-/* The block's runs: their keys, then each run's s where run_target says. */
+/* The block's runs of rows of one cluster: their keys and first rows
+ * (start[nruns] = n). */
 static size_t cut_runs(const mr__block *blk, uint64_t *key, uint32_t *start)
 {
     size_t nruns = 0;
@@ -170,6 +171,10 @@ static void compute_clusters(meat_job *j, meat_scratch *sc, mr__pass_slot *s)
     size_t r;
     m->nruns = 0;
     if (blk->n == 0) return;
+    if (blk->cluster == NULL) { /* only blocks decoded on this pass carry the column */
+        s->st = mr__fail(&s->err, MR_ERR_INTERNAL, "a block without its cluster column");
+        return;
+    }
     m->nruns = cut_runs(blk, m->key, sc->at);
     if (j->mc->table && mr__reserve((void **)&m->vec, &m->vec_cap, m->nruns, j->p * sizeof *m->vec) != MR_OK) {
         m->nruns = 0;
