@@ -67,7 +67,7 @@ done
 fit_robust show --cluster g "$tmp/grouped.csv"
 "$bin" show "$tmp/show.json" > "$tmp/show.txt"
 if grep -q "^standard errors: robust (sandwich HC0, factor [0-9.]*) by cluster column 'g', 100001 clusters;" \
-    "$tmp/show.txt" && grep -q "robust.se" "$tmp/show.txt" && cmp -s "$tmp/show.txt" "$tmp/show.out"; then
+    "$tmp/show.txt" && grep -q "robust SE" "$tmp/show.txt" && cmp -s "$tmp/show.txt" "$tmp/show.out"; then
     ok "the report says which standard errors it shows, the same when read back"
 else
     fail "report" "$(grep -m1 '^standard errors' "$tmp/show.txt")"
