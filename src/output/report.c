@@ -97,8 +97,8 @@ static void section_convergence(mr__strbuf *b, const mr_fit *f)
                       f->rel_change, f->tolerance);
     if (f->halvings) mr__strbuf_printf(b, ", %d step halvings", f->halvings);
     if (f->patterns)
-        mr__strbuf_printf(b, "\n           rows collapsed into %zu covariate patterns: one read of the file, IRLS in memory",
-                          f->patterns);
+        mr__strbuf_printf(b, "\n           rows collapsed into %zu covariate patterns: one read of the file, IRLS in memory%s",
+                          f->patterns, f->robust ? "; one more read for the robust standard errors" : "");
     if (f->warm_start)
         mr__strbuf_printf(b, "\n           started from a fit to a sample of the file (%d IRLS steps on %d blocks of %d rows spread over it",
                           f->warm_iterations, f->warm_blocks, MR__BLOCK_ROWS);
