@@ -116,6 +116,12 @@ mr_status mr__robust_result(mr_fit *fit, const mr__run *r, mr__error *err)
     fit->robust = 1;
     fit->nclusters = r->meat.clusters;
     a = adjustment(type, n, (double)fit->rank, r->f->cluster != NULL, (double)fit->nclusters);
+    if (!(a > 0) || !isfinite(a)) {
+        /* one cluster, or no residual df: nothing to estimate the spread from */
+        a = NAN;
+        mr__fit_warn(fit, "robust standard errors cannot be estimated with %s: they are NaN",
+                     r->f->cluster && fit->nclusters < 2 ? "a single cluster" : "no residual degrees of freedom");
+    }
     fit->robust_adjustment = a;
     T = mr__malloc_array(p * p + 1, sizeof *T);
     V = mr__malloc_array(p * p + 1, sizeof *V);
