@@ -157,7 +157,7 @@ START_TEST(wrong_bytes_are_refused)
     buf[15] = 0;
     buf[4] = 9; /* an unknown version */
     ck_assert_int_eq(mr__irls_decode(buf, len, &copy, &err), MR_ERR_IO);
-    buf[4] = 1;
+    buf[4] = MR__IRLS_VERSION;
     ck_assert_int_eq(mr__irls_decode(buf, len, &copy, &err), MR_OK);
     mr__irls_release(&copy);
     free(buf);

@@ -190,6 +190,7 @@ static mr_status read_scalar(reader *r, const mr__jfield *fl, json_t *v, void *s
         *(double *)slot = json_is_null(v) ? NAN : json_number_value(v);
         return MR_OK;
     case MR__J_BOOL:
+    case MR__J_BOOL_ADDED:
         if (!json_is_boolean(v)) return bad(r, "should be true or false");
         *(int *)slot = json_is_true(v);
         return MR_OK;
@@ -373,6 +374,7 @@ static mr_status read_object(reader *r, json_t *o, const mr__jfield *fields, voi
         if (fl->kind == MR__J_DERIVED || (fl->kind == MR__J_OBJECT_OPTIONAL && v == NULL)) continue;
         back = enter(r, fl->key);
         if (v == NULL && fl->kind == MR__J_OBJECT_ADDED) v = json_null();
+        if (v == NULL && fl->kind == MR__J_BOOL_ADDED) v = json_false();
         if (v == NULL) return bad(r, "is missing");
         MR__TRY(read_value(r, fl, v, base, index));
         leave(r, back);
