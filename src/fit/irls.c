@@ -19,7 +19,8 @@ static mr_status allocate(mr__irls *s, size_t p, mr__error *err)
     s->aliased = mr__calloc(p + 1, sizeof *s->aliased);
     s->se_prev = mr__calloc(p + 1, sizeof *s->se_prev);
     s->growing = mr__calloc(p + 1, sizeof *s->growing);
-    if (s->beta && s->prev && s->next && s->aliased && s->se_prev && s->growing) return MR_OK;
+    s->se_min = mr__calloc(p + 1, sizeof *s->se_min);
+    if (s->beta && s->prev && s->next && s->aliased && s->se_prev && s->growing && s->se_min) return MR_OK;
     mr__irls_release(s);
     return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
 }
@@ -57,6 +58,7 @@ void mr__irls_release(mr__irls *s)
     mr__free(s->aliased);
     mr__free(s->se_prev);
     mr__free(s->growing);
+    mr__free(s->se_min);
     mr__free(s->inverse);
     mr__free(s->history);
     memset(s, 0, sizeof *s);
@@ -123,6 +125,7 @@ static void note_growth(mr__irls *s)
         if (se > 1.1 * s->se_prev[j] && s->se_prev[j] > 0) s->growing[j]++;
         else s->growing[j] = 0;
         s->se_prev[j] = se;
+        if (se > 0 && (s->se_min[j] == 0 || se < s->se_min[j])) s->se_min[j] = se;
     }
 }
 
@@ -245,6 +248,16 @@ static int converged_by_step(mr__irls *s)
     return s->null_done && (s->step <= s->tolerance || newton || floor);
 }
 
+/* A coefficient ran off to infinity: its standard error grew at each of
+ * the last MR__IRLS_GROWTH_PASSES passes, or to MR__IRLS_GROWTH_FACTOR
+ * times its smallest over the fit (separation drives every fitted weight
+ * to 0; a sound fit's standard errors move by a few times at most). */
+int mr__irls_ran_off(const mr__irls *s, size_t j)
+{
+    return s->growing[j] >= MR__IRLS_GROWTH_PASSES ||
+           (s->se_min[j] > 0 && s->se_prev[j] > MR__IRLS_GROWTH_FACTOR * s->se_min[j]);
+}
+
 mr_status mr__irls_step(mr__irls *s, const mr__block_sums *sums, const char *display, int *done, mr__error *err)
 {
     int accepted;
@@ -288,7 +301,7 @@ enum { NINTS = 0 IRLS_INTS(COUNT), NDOUBLES = 0 IRLS_DOUBLES(COUNT), HEAD = 8 + 
 
 size_t mr__irls_encoded_size(const mr__irls *s)
 {
-    return HEAD + 8 * (NINTS + NDOUBLES + 4 * s->p + s->nhistory);
+    return HEAD + 8 * (NINTS + NDOUBLES + 5 * s->p + s->nhistory);
 }
 
 void mr__irls_encode(const mr__irls *s, unsigned char *out)
@@ -304,6 +317,7 @@ void mr__irls_encode(const mr__irls *s, unsigned char *out)
     for (j = 0; j < s->p; j++) at = mr__put_f64(at, s->beta[j]);
     for (j = 0; j < s->p; j++) at = mr__put_f64(at, s->prev[j]);
     for (j = 0; j < s->p; j++) at = mr__put_f64(at, s->se_prev[j]);
+    for (j = 0; j < s->p; j++) at = mr__put_f64(at, s->se_min[j]);
     for (j = 0; j < s->p; j++) at = mr__put_u64(at, (uint64_t)(int64_t)s->growing[j]);
     for (j = 0; j < s->nhistory; j++) at = mr__put_f64(at, s->history[j]);
 }
@@ -318,7 +332,7 @@ static mr_status decode_head(const unsigned char *in, size_t len, uint64_t *p, u
     (void)mr__get_u64(mr__get_u64(in + 8, p), nhistory);
     /* each counted value takes 8 bytes: counts past the length are refused
      * before any size is computed from them */
-    if (*p > len / 32 || *nhistory > len / 8 || len != HEAD + 8 * (NINTS + NDOUBLES + 4 * *p + *nhistory))
+    if (*p > len / 40 || *nhistory > len / 8 || len != HEAD + 8 * (NINTS + NDOUBLES + 5 * *p + *nhistory))
         return mr__fail(err, MR_ERR_IO, "IRLS state: %zu bytes do not hold the state they describe", len);
     return MR_OK;
 }
@@ -346,6 +360,7 @@ mr_status mr__irls_decode(const unsigned char *in, size_t len, mr__irls *s, mr__
     for (j = 0; j < s->p; j++) at = mr__get_f64(at, &s->beta[j]);
     for (j = 0; j < s->p; j++) at = mr__get_f64(at, &s->prev[j]);
     for (j = 0; j < s->p; j++) at = mr__get_f64(at, &s->se_prev[j]);
+    for (j = 0; j < s->p; j++) at = mr__get_f64(at, &s->se_min[j]);
     for (j = 0; j < s->p; j++) at = mr__get_u64(at, &v), s->growing[j] = (int32_t)(int64_t)v;
     for (j = 0; j < s->nhistory; j++) at = mr__get_f64(at, &s->history[j]);
     return MR_OK;

@@ -32,6 +32,8 @@
 /* Passes in a row a standard error must grow for its coefficient to be
  * taken as running off to infinity. */
 #define MR__IRLS_GROWTH_PASSES 3
+/* Or the growth over the fit that marks it (see mr__irls_ran_off). */
+#define MR__IRLS_GROWTH_FACTOR 100.0
 
 typedef struct mr__irls_cfg {
     size_t p;
@@ -60,7 +62,7 @@ typedef struct mr__irls {
     double *inverse;       /* (X'WX)^-1, scratch */
     /* per coefficient: the last standard error (unit dispersion) and the
      * passes in a row it grew by more than a tenth */
-    double *se_prev;
+    double *se_prev, *se_min; /* and the smallest so far */
     int32_t *growing;
     int32_t have_beta, have_prev, have_dev, cold_restart;
     double dev_prev, rel_change;
@@ -91,12 +93,15 @@ const double *mr__irls_null_deviance(const mr__irls *s);
  * the input in the message) or when the solver does. */
 mr_status mr__irls_step(mr__irls *s, const mr__block_sums *sums, const char *display, int *done, mr__error *err);
 
+/* Whether coefficient j ran off to infinity, by its standard errors. */
+int mr__irls_ran_off(const mr__irls *s, size_t j);
+
 /* The coefficients reached (zeros when no point was ever accepted). */
 void mr__irls_coefficients(const mr__irls *s, double *out);
 
 /* THE ENCODING (version 2; 1 stopped on the deviance), little-endian: "MRIS", u32 version, then every
  * field above but the scratch in declaration order (integers as u64,
- * doubles as their bits), then beta, prev, se_prev and growing (p each, growing as u64) and the history. */
+ * doubles as their bits), then beta, prev, se_prev, se_min and growing (p each, growing as u64) and the history. */
 #define MR__IRLS_VERSION 2u
 size_t mr__irls_encoded_size(const mr__irls *s);
 void mr__irls_encode(const mr__irls *s, unsigned char *out);

@@ -262,7 +262,7 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
     job->null_b0 = s.null_b0;
     if (st == MR_OK) mr__irls_coefficients(&s, job->beta_out);
     for (j = 0; st == MR_OK && job->growing_out && j < c.p; j++)
-        job->growing_out[j] = s.growing[j] >= MR__IRLS_GROWTH_PASSES;
+        job->growing_out[j] = mr__irls_ran_off(&s, j);
     mr__irls_release(&s);
     return st;
 }

@@ -210,10 +210,11 @@ static void flag_growing(mr_fit *fit, const mr__run *r)
     }
     if (n)
         mr__fit_warn(fit,
-                     "the standard error of %zu coefficient%s grew at each of the last %d passes: %s%s; %s running off to infinity (separation, or quasi-separation by a "
+                     "the standard error of %zu coefficient%s grew pass after pass (at each of the last %d, or %g-fold): "
+                     "%s%s; %s running off to infinity (separation, or quasi-separation by a "
                      "covariate) and marked not estimable. Regroup or drop the covariate or level that separates the "
                      "outcomes, or fit the rows where it does not",
-                     n, n == 1 ? "" : "s", MR__IRLS_GROWTH_PASSES, sb.data ? sb.data : "", n > 8 ? " and others" : "",
+                     n, n == 1 ? "" : "s", MR__IRLS_GROWTH_PASSES, MR__IRLS_GROWTH_FACTOR, sb.data ? sb.data : "", n > 8 ? " and others" : "",
                      n == 1 ? "it is" : "they are");
     mr__strbuf_release(&sb);
 }
