@@ -113,9 +113,9 @@ int mr__cell_table_slot(const mr__cell_table *t, size_t i, uint32_t *a, uint32_t
     return 1;
 }
 
-const mr__outcome_counts *mr__level_outcomes_cell(const mr__level_outcomes *lo, size_t k, uint32_t a, uint32_t b)
+const mr__outcome_counts *mr__cell_table_find(const mr__cell_table *t, uint32_t a, uint32_t b)
 {
-    return cell_entry(&lo->cells[k], cell_key(a, b), 0);
+    return cell_entry((mr__cell_table *)t, cell_key(a, b), 0);
 }
 
 void mr__level_outcomes_block(mr__level_outcomes *lo, const mr__block *blk, const mr__decode_cfg *cfg)

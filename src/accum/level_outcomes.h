@@ -45,7 +45,7 @@ void mr__level_outcomes_block(mr__level_outcomes *lo, const mr__block *blk, cons
 int mr__cell_table_add(mr__cell_table *t, uint32_t a, uint32_t b, const mr__outcome_counts *c);
 /* Slot i's cell (i < t->cap): 0 for an empty slot, else 1 with a and b. */
 int mr__cell_table_slot(const mr__cell_table *t, size_t i, uint32_t *a, uint32_t *b);
-/* The cell (a, b) of pair k, or NULL. */
-const mr__outcome_counts *mr__level_outcomes_cell(const mr__level_outcomes *lo, size_t k, uint32_t a, uint32_t b);
+/* Cell (a, b) of t, or NULL. */
+const mr__outcome_counts *mr__cell_table_find(const mr__cell_table *t, uint32_t a, uint32_t b);
 
 #endif

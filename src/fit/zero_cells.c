@@ -162,24 +162,26 @@ static void flag_cell(mr_fit *fit, const mr__factor *A, uint32_t a, const mr__fa
     if (ra && rb) flag_name(fit, "intercept");
 }
 
+/* Cells in level order (the first factor's slowest), so the warning reads
+ * the same whatever order the workers' tables were added in. */
 static void check_pair(zero_report *z, const mr__run *r, size_t k, int *const *bad_level)
 {
-    size_t fa = (size_t)r->pairs[k][0], fb = (size_t)r->pairs[k][1], i;
+    size_t fa = (size_t)r->pairs[k][0], fb = (size_t)r->pairs[k][1];
     const mr__factor *A = &r->fac[fa], *B = &r->fac[fb];
     mr__cell_table t = {NULL, 0, 0};
     char what[512];
-    if (cell_totals(r, k, &t) == 0)
-        for (i = 0; i < t.cap; i++) {
-            uint32_t a, b;
-            int kind;
-            if (!mr__cell_table_slot(&t, i, &a, &b)) continue;
-            kind = kind_of(&t.slot[i].c, z->binomial);
-            /* a level empty on its own was named already */
-            if (kind == FINE || bad_level[fa][a] || bad_level[fb][b]) continue;
-            snprintf(what, sizeof what, "%s=%s & %s=%s", A->name, A->level[a], B->name, B->level[b]);
-            note(z, kind, what, t.slot[i].c.rows);
-            flag_cell(z->fit, A, a, B, b);
-        }
+    uint32_t a, b;
+    if (cell_totals(r, k, &t) == 0 && t.n > 0)
+        for (a = 0; a < A->nlevels; a++)
+            for (b = 0; b < B->nlevels; b++) {
+                const mr__outcome_counts *c = mr__cell_table_find(&t, a, b);
+                int kind = c ? kind_of(c, z->binomial) : FINE;
+                /* a level empty on its own was named already */
+                if (kind == FINE || bad_level[fa][a] || bad_level[fb][b]) continue;
+                snprintf(what, sizeof what, "%s=%s & %s=%s", A->name, A->level[a], B->name, B->level[b]);
+                note(z, kind, what, c->rows);
+                flag_cell(z->fit, A, a, B, b);
+            }
     mr__free(t.slot);
 }
 
