@@ -52,7 +52,6 @@ static void flag_factor(mr_fit *fit, const char *factor)
         if (!fit->aliased[j] && strncmp(fit->name[j], factor, n) == 0 && fit->name[j][n] == '=' &&
             strstr(fit->name[j], " & ") == NULL)
             fit->inestimable[j] = 1;
-    flag_name(fit, "(intercept)");
     flag_name(fit, "intercept");
 }
 
@@ -157,9 +156,8 @@ static void flag_cell(mr_fit *fit, const mr__factor *A, uint32_t a, const mr__fa
     if (!ra && !rb) snprintf(name, sizeof name, "%s=%s & %s=%s", A->name, A->level[a], B->name, B->level[b]);
     else if (ra && !rb) snprintf(name, sizeof name, "%s=%s", B->name, B->level[b]);
     else if (!ra) snprintf(name, sizeof name, "%s=%s", A->name, A->level[a]);
-    else snprintf(name, sizeof name, "(intercept)");
+    else snprintf(name, sizeof name, "intercept");
     flag_name(fit, name);
-    if (ra && rb) flag_name(fit, "intercept");
 }
 
 /* Cells in level order (the first factor's slowest), so the warning reads

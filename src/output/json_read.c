@@ -18,6 +18,7 @@
 #include "input/codec.h"
 #include "output/json_schema.h"
 #include "output/json_text.h"
+#include "output/json_upgrade.h"
 
 typedef struct reader {
     const char *path;
@@ -95,6 +96,18 @@ static mr_status read_integer(reader *r, json_t *v, json_int_t lo, json_int_t hi
     return MR_OK;
 }
 
+/* The convergence criterion's words before the step in standard errors:
+ * the Newton decrement's fits took their last step without a pass, as
+ * the step rule's do; the deviance change's stopped at their last pass,
+ * as a fit stopped at the boundary does. */
+static int earlier_criterion(const char *w, int *out)
+{
+    if (strcmp(w, "newton decrement") == 0) *out = 1;
+    else if (strcmp(w, "deviance change") == 0) *out = 0;
+    else return 0;
+    return 1;
+}
+
 static mr_status read_word(reader *r, json_t *v, const char **out)
 {
     if (!json_is_string(v)) return bad(r, "should be a string");
@@ -109,6 +122,7 @@ static mr_status read_named(reader *r, const mr__jfield *fl, json_t *v, int *out
     MR__TRY(read_word(r, v, &w));
     switch (fl->kind) {
     case MR__J_CHOICE:
+        if (strcmp(fl->key, "criterion") == 0 && earlier_criterion(w, out)) return MR_OK;
         if (strcmp(w, fl->yes) != 0 && strcmp(w, fl->no) != 0) return bad(r, "is not one of its two words");
         *out = strcmp(w, fl->yes) == 0;
         return MR_OK;
@@ -388,9 +402,17 @@ static mr_status check_format(reader *r, json_t *root)
     if (!json_is_object(root) || !json_is_string(format) || strcmp(json_string_value(format), MR__JSON_FORMAT) != 0)
         return say(r, MR_ERR_FORMAT, "%s: not a fit written by millrace (no \"format\": \"%s\")", r->path,
                    MR__JSON_FORMAT);
-    if (!json_is_integer(version) || json_integer_value(version) != MR__JSON_FORMAT_VERSION)
-        return say(r, MR_ERR_FORMAT, "%s: format_version is not %d, the one this library reads", r->path,
-                   MR__JSON_FORMAT_VERSION);
+    if (!json_is_integer(version) || json_integer_value(version) < MR__JSON_FORMAT_VERSION_OLDEST ||
+        json_integer_value(version) > MR__JSON_FORMAT_VERSION)
+        return say(r, MR_ERR_FORMAT, "%s: format_version is not %d to %d, the ones this library reads", r->path,
+                   MR__JSON_FORMAT_VERSION_OLDEST, MR__JSON_FORMAT_VERSION);
+    if (json_integer_value(version) < MR__JSON_FORMAT_VERSION) {
+        int up = mr__json_upgrade(root);
+        if (up > 0)
+            return say(r, MR_ERR_FORMAT, "%s: a format_version 2 fit with both '(intercept)' and a coefficient named "
+                                         "'intercept': refit it with that column renamed", r->path);
+        if (up < 0) return no_memory(r);
+    }
     return MR_OK;
 }
 
@@ -420,6 +442,7 @@ static mr_status check_consistent(reader *r)
                                   : "is given for a family without one");
     }
     if (!takes_param) f->family_param = NAN;
+    if (mr__fit_quasi(f)) f->loglik = f->aic = f->bic = NAN; /* numbers a version 2 file may hold */
     if (f->rank > f->p) {
         enter(r, "fit.rank");
         return bad(r, "exceeds the number of coefficients");

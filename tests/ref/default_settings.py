@@ -111,11 +111,6 @@ def millrace_default(case, tmp):
         return json.load(fh)
 
 
-def se_key(coef):
-    """The standard error's key (renamed in a later format)."""
-    return "standard_error" if "standard_error" in coef else "std_error"
-
-
 WORST = {"estimate": (0.0, ""), "se": (0.0, "")}
 
 
@@ -127,7 +122,7 @@ def check(case, tmp):
     ref = fit_r(case, X, y, w, off, trials, tmp)
     problems = [] if js["convergence"]["converged"] else ["not converged"]
     for j, nm in enumerate(names):
-        est, se = coefs[nm]["estimate"], coefs[nm][se_key(coefs[nm])]
+        est, se = coefs[nm]["estimate"], coefs[nm]["standard_error"]
         if est is None:
             continue
         d_est = abs(est - ref["coef"][j]) / ref["se"][j]
