@@ -357,7 +357,8 @@ static mr_status copy_data_summary(mr_fit *fit, const mr__run *r, mr__error *err
     for (i = 0; i < s->nbad_shown; i++) {
         mr__strbuf sb;
         mr__strbuf_init(&sb);
-        mr__strbuf_printf(&sb, "%s:%llu:%s", r->display, (unsigned long long)s->bad[i].line, s->bad[i].msg);
+        mr__strbuf_printf(&sb, "%s:%llu:%s", s->bad[i].file ? s->bad[i].file : r->display,
+                          (unsigned long long)s->bad[i].line, s->bad[i].msg);
         if ((fit->bad_example[i] = mr__strbuf_take(&sb)) == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
         fit->nbad_examples++;
     }
