@@ -302,6 +302,31 @@ MR_API mr_status mr_fitter_set_start(mr_fitter *f, const mr_fit *previous, const
  * again, on the same or another file. */
 MR_API mr_status mr_fitter_run(mr_fitter *f, const char *path, mr_fit **out);
 
+/* Fits the model to several files read as one data set: `paths[0 ..
+ * npaths)` in the order given, where a directory stands for every regular
+ * file in it (symbolic links to regular files included; subdirectories
+ * and names starting with '.' passed over) in byte order of the names.
+ * mr_fitter_run with a directory is the same as a set of that directory.
+ * Every file has a header row naming the same columns as the first file's
+ * (else MR_ERR_FORMAT: "FILE:1:COLUMN: the header differs from FIRST's"),
+ * each may be plain, zstd or gzip on its own, and the rows are those of
+ * the files one after the other: the fit is bit for bit the fit of their
+ * concatenation without the later header rows, provided each file's last
+ * row ends with a line end (a file's last row ends with its file here,
+ * where a plain concatenation would join it to the next file's header).
+ * A quoted field cannot run from one file into the next.  Messages name
+ * the file and its own line.  The files must be regular files (each is
+ * read once per pass, or the cache is), so "-" is MR_ERR_USAGE here; an
+ * empty directory MR_ERR_NO_DATA.  The fit's JSON records, under
+ * input.set.files, each file's path, size, modification time, bytes,
+ * compression and checksum; input.path is then the paths given, joined by
+ * spaces; input.checksum the set's: FNV-1a 64 over the files' checksums,
+ * each as 8 little-endian bytes, in order (a set's checksum is therefore
+ * not the checksum of a file holding the same rows); input.file.size the
+ * sizes summed and input.file.mtime_ns the newest file's time.  npaths ==
+ * 1 is mr_fitter_run.  Statuses and ownership as for mr_fitter_run. */
+MR_API mr_status mr_fitter_run_set(mr_fitter *f, const char *const *paths, size_t npaths, mr_fit **out);
+
 /* ------------------------------------------------------------------ */
 /* The fit.  All accessors take a non-NULL fit; indices are 0-based and
  * must be below mr_fit_ncoef().                                        */

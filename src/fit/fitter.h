@@ -25,5 +25,7 @@ struct mr_fitter {
 
 /* The fit itself (run.c). */
 mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out);
+/* Several files (or directories) read as one (input/inputset.h). */
+mr_status mr__fit_files(mr_fitter *f, const char *const *paths, size_t n, mr_fit **out);
 
 #endif

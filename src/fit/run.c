@@ -73,6 +73,7 @@ static mr__pass_cfg pass_config(mr__run *r, mr__pass_kind kind)
     memset(&c, 0, sizeof c);
     c.kind = kind;
     c.path = r->read_path;
+    c.set = r->set.n > 0 ? &r->set : NULL;
     c.display = r->display;
     c.read_size = r->f->buffer_size;
     c.tee_fd = -1;
@@ -119,7 +120,7 @@ static mr_status scan_pass(mr__run *r, mr__error *err)
 {
     mr__pass_cfg c = pass_config(r, MR__PASS_SCAN);
     mr_status st;
-    if (mr__read_only_once(r->path)) {
+    if (r->set.n == 0 && mr__read_only_once(r->path)) {
         MR__TRY(mr__open_spool(r, err));
         c.tee_fd = r->spool_fd;
     }
@@ -367,6 +368,7 @@ static void release_run(mr__run *r)
     for (f = 0; r->remap && f < r->nremap; f++) mr__free(r->remap[f]);
     mr__free(r->remap);
     if (r->bound) mr__binding_release(&r->bind);
+    mr__inputset_release(&r->set);
     if (r->spool_fd >= 0) close(r->spool_fd);
 }
 
@@ -380,23 +382,58 @@ static mr_status allocate_coefficients(mr__run *r, mr__error *err)
     return MR_OK;
 }
 
+/* The name of a set in messages: a directory's path, or the files' paths
+ * one after the other (cut, if long, at a whole character). */
+static void name_set(mr__run *r, const char *const *paths, size_t n)
+{
+    size_t i, at = 0;
+    r->display[0] = '\0';
+    for (i = 0; i < n && at < sizeof r->display; i++)
+        at += (size_t)snprintf(r->display + at, sizeof r->display - at, "%s%s", i ? " " : "", paths[i]);
+    mr__utf8_mend_cut(r->display, sizeof r->display, (int)at);
+}
+
+static mr_status fit_run(mr__run *r, mr_fit **out);
+
 mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
 {
     mr__run r;
+    memset(&r, 0, sizeof r);
+    r.f = f;
+    r.path = path;
+    mr__utf8_mend_cut(r.display, sizeof r.display,
+                      snprintf(r.display, sizeof r.display, "%s", strcmp(path, "-") == 0 ? "<stdin>" : path));
+    return fit_run(&r, out);
+}
+
+mr_status mr__fit_files(mr_fitter *f, const char *const *paths, size_t n, mr_fit **out)
+{
+    mr__run r;
+    mr_status st;
+    memset(&r, 0, sizeof r);
+    r.f = f;
+    st = mr__inputset_build(&r.set, paths, n, &f->err);
+    if (st != MR_OK) return st;
+    r.path = r.set.path[0];
+    name_set(&r, paths, n);
+    return fit_run(&r, out);
+}
+
+static mr_status fit_run(mr__run *given, mr_fit **out)
+{
+    mr__run r;
+    mr_fitter *f = given->f;
+    const char *path = given->path;
     mr__error *err = &f->err;
     mr_status st;
     int blas_threads = 0; /* the count to set back; 0: never changed */
-    memset(&r, 0, sizeof r);
+    memcpy(&r, given, sizeof r);
     mr__store_init_memory(&r.store);
     mr__store_init_memory(&r.patterns);
     atomic_init(&r.collapse_abandoned, 0);
-    r.f = f;
-    r.path = path;
     r.read_path = path;
     r.spool_fd = -1;
     r.t0 = mr__seconds_now();
-    mr__utf8_mend_cut(r.display, sizeof r.display,
-                      snprintf(r.display, sizeof r.display, "%s", strcmp(path, "-") == 0 ? "<stdin>" : path));
     choose_threads(&r);
     r.family = mr__spec_family(&f->spec);
     r.dcfg.collapse = mr__collapse_mode(&r);
