@@ -692,6 +692,12 @@ MR_API mr_status mr_scorer_set_unseen(mr_scorer *s, mr_unseen policy);
 /* Worker threads as MR_OPT_THREADS (0 = online CPUs, the default). */
 MR_API mr_status mr_scorer_set_threads(mr_scorer *s, int threads);
 MR_API mr_status mr_scorer_run(mr_scorer *s, const char *data, const char *out);
+/* The same over several files read as one data set, by the rules of
+ * mr_fitter_run_set (a directory's regular files, the same header in
+ * each, messages naming each file and its own line): one output row per
+ * row of the files, in order.  mr_scorer_run with a directory is a set of
+ * it; npaths == 1 is mr_scorer_run. */
+MR_API mr_status mr_scorer_run_set(mr_scorer *s, const char *const *paths, size_t npaths, const char *out);
 /* A count of the last run (also after a failed one: what was written
  * before it). */
 MR_API uint64_t mr_scorer_count(const mr_scorer *s, mr_score_count which);

@@ -759,14 +759,15 @@ static int run_score(mr_scorer *s, score_cli *o, int argc, char **argv)
         fputs(usage_text, stdout);
         return 0;
     }
-    if (optind != argc - 1) return usage_error("score takes exactly one data file (or - for standard input)");
+    if (optind >= argc) return usage_error("score takes one or more data files or directories (or - for standard input)");
     if (o->fit_path == NULL || o->out_path == NULL) return usage_error("score needs --fit and --out");
     if (o->by_out && !o->by) return usage_error("--by-out needs --by");
     inputs[0] = argv[optind];
     inputs[1] = o->fit_path;
     if ((st = mr_output_check(o->out_path, inputs, 2, msg, sizeof msg)) != MR_OK) return fail(st, msg);
     if (o->by_out && (st = mr_output_check(o->by_out, inputs, 2, msg, sizeof msg)) != MR_OK) return fail(st, msg);
-    if ((st = mr_scorer_run(s, argv[optind], o->out_path)) != MR_OK) return fail(st, mr_scorer_errmsg(s));
+    st = mr_scorer_run_set(s, (const char *const *)argv + optind, (size_t)(argc - optind), o->out_path);
+    if (st != MR_OK) return fail(st, mr_scorer_errmsg(s));
     if (!o->quiet) score_summary(s, o->out_path);
     return o->by ? write_groups(s, o) : 0;
 }
