@@ -20,6 +20,8 @@
 # threads.  Source of truth throughout: the fit of the plain concatenation;
 # the zstd, pzstd and gzip tools are the independent compressors.
 source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
+# asan-check and tsan-check run it with their builds as $MILLRACE
+bin=${MILLRACE:-$bin}
 export TMPDIR=$tmp
 cd "$tmp" || exit 1
 
