@@ -637,7 +637,8 @@ static mr_status begin_stream(engine *e, mr__error *err)
     return MR_OK;
 }
 
-static mr_status report_progress(engine *e, const slot *s, double t0, double *last, int final, mr__error *err)
+/* done: the raw bytes up to the block just added, NULL at the end. */
+static mr_status report_progress(engine *e, const uint64_t *done, double t0, double *last, int final, mr__error *err)
 {
     const mr__pass_cfg *cfg = e->cfg;
     mr_progress pr;
@@ -645,7 +646,7 @@ static mr_status report_progress(engine *e, const slot *s, double t0, double *la
     if ((cfg->progress == NULL && cfg->progress_stop == NULL) || (!final && t - *last < 0.25)) return MR_OK;
     *last = t;
     pr.pass = cfg->pass_number;
-    pr.bytes_done = s ? s->raw_bytes : (e->src ? e->raw_before + mr__source_raw_bytes(e->src) : 0);
+    pr.bytes_done = done ? *done : (e->src ? e->raw_before + mr__source_raw_bytes(e->src) : 0);
     pr.bytes_total = e->bytes_total;
     pr.rows_done = e->rows_done;
     pr.seconds = t - t0;
@@ -710,6 +711,7 @@ static mr_status combine_all(engine *e, double t0, mr__error *err)
     double last = t0;
     for (;;) {
         slot *s;
+        uint64_t done;
         mr_status st;
         pthread_mutex_lock(&e->mu);
         for (;;) {
@@ -726,6 +728,7 @@ static mr_status combine_all(engine *e, double t0, mr__error *err)
         if (s->use != NULL) e->rows_done += s->use->nread;
         st = add_block(e, s, err);
         if (st != MR_OK) return st;
+        done = s->raw_bytes; /* the slot is the reader's again once freed */
         pthread_mutex_lock(&e->mu);
         s->state = SLOT_FREE;
         s->use = NULL;
@@ -733,7 +736,7 @@ static mr_status combine_all(engine *e, double t0, mr__error *err)
         if (workers_fetch(e)) pthread_cond_broadcast(&e->slot_free);
         else pthread_cond_signal(&e->slot_free);
         pthread_mutex_unlock(&e->mu);
-        st = report_progress(e, s, t0, &last, 0, err);
+        st = report_progress(e, &done, t0, &last, 0, err);
         if (st != MR_OK) return st;
     }
     if (e->reader_st != MR_OK) {
