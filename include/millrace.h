@@ -299,7 +299,11 @@ MR_API mr_status mr_fitter_set_start(mr_fitter *f, const mr_fit *previous, const
  * a fit that stopped at the pass limit is still returned with MR_OK and
  * flagged (mr_fit_status() gives MR_ERR_NOT_CONVERGED).  On any other
  * status *out is NULL and mr_fitter_errmsg says why.  The fitter may be run
- * again, on the same or another file. */
+ * again, on the same or another file.  A zstd file of several frames (as
+ * pzstd writes) is decompressed by up to min(threads, 4) threads besides
+ * the workers, frame by frame, with a bounded number of frames in memory:
+ * the same bits for any count.  A directory is read as a set of files
+ * (mr_fitter_run_set). */
 MR_API mr_status mr_fitter_run(mr_fitter *f, const char *path, mr_fit **out);
 
 /* Fits the model to several files read as one data set: `paths[0 ..

@@ -241,7 +241,10 @@ mr_status mr__source_read(mr__source *s, char *buf, size_t cap, size_t *got, mr_
     return MR_OK;
 }
 
-void mr__source_set_threads(mr__source *s, int threads) { s->threads = threads; }
+void mr__source_set_threads(mr__source *s, int threads)
+{
+    s->threads = threads > MR__ZFRAME_THREADS_MAX ? MR__ZFRAME_THREADS_MAX : threads;
+}
 
 uint64_t mr__source_parallel_frames(const mr__source *s) { return s->zf ? mr__zframes_parallel_frames(s->zf) : 0; }
 

@@ -23,7 +23,8 @@ mr_status mr__source_open(mr__source **out, const char *path, const char *displa
                           int tee_fd, mr__error *err);
 void mr__source_close(mr__source *s);
 /* Before the first read: a zstd input is decompressed by `threads`
- * threads, frame by frame (input/zstd_frames.h), when it is more than 1:
+ * threads (at most MR__ZFRAME_THREADS_MAX), frame by frame
+ * (input/zstd_frames.h), when it is more than 1:
  * the same bytes, in the same order, as the one-thread decoder's. */
 void mr__source_set_threads(mr__source *s, int threads);
 /* Frames the threads decompressed so far (0 with one thread). */

@@ -42,6 +42,11 @@ struct mr__zframes {
     size_t raw_len, raw_cap, raw_pos;
     uint64_t raw_off;
     int raw_eof, to_tail, tail_mode;
+    /* A failure met while queueing (a damaged frame header, the file cut
+     * short, a read error) waits until the frames queued before it are
+     * handed out: the rows before it reach the caller, as with one thread. */
+    mr_status queue_st;
+    mr__error queue_err;
     void *stream; /* mr__codec_zstd's decoder: the tail, or an oversize frame */
     uint64_t parallel;
 };
@@ -164,6 +169,14 @@ static mr_status pull_more(mr__zframes *z, mr__error *err)
     return MR_OK;
 }
 
+/* A frame whose header gives more text than a slot takes: no use holding
+ * its compressed bytes (a file compressed by zstd from a file is one). */
+static int too_large(const unsigned char *p, size_t have)
+{
+    unsigned long long n = ZSTD_getFrameContentSize(p, have);
+    return n != ZSTD_CONTENTSIZE_UNKNOWN && n != ZSTD_CONTENTSIZE_ERROR && n > MR__ZFRAME_OUT_MAX;
+}
+
 /* The next frame whole at raw[raw_pos, +*n); 0 at the end of the input,
  * or (to_tail set) when it is too large to hold. */
 static mr_status next_frame(mr__zframes *z, size_t *n, mr__error *err)
@@ -175,6 +188,10 @@ static mr_status next_frame(mr__zframes *z, size_t *n, mr__error *err)
             size_t r = ZSTD_findFrameCompressedSize(z->raw + z->raw_pos, have);
             if (!ZSTD_isError(r)) {
                 *n = r;
+                return MR_OK;
+            }
+            if (too_large(z->raw + z->raw_pos, have)) {
+                z->to_tail = 1;
                 return MR_OK;
             }
             if (ZSTD_getErrorCode(r) != ZSTD_error_srcSize_wrong)
@@ -223,7 +240,7 @@ static mr_status queue_frame(mr__zframes *z, size_t n, mr__error *err)
 /* Frames into every free slot (the reading thread's part). */
 static mr_status queue_frames(mr__zframes *z, mr__error *err)
 {
-    while (z->tail - z->head < z->W && !z->to_tail) {
+    while (z->tail - z->head < z->W && !z->to_tail && z->queue_st == MR_OK) {
         size_t n;
         MR__TRY(next_frame(z, &n, err));
         if (n == 0) break;
@@ -302,8 +319,12 @@ mr_status mr__zframes_read(mr__zframes *z, char *buf, size_t cap, size_t *got, m
     for (;;) {
         zslot *s;
         int finished;
-        MR__TRY(queue_frames(z, err));
+        if (z->queue_st == MR_OK) z->queue_st = queue_frames(z, &z->queue_err);
         if (z->head == z->tail) {
+            if (z->queue_st != MR_OK) {
+                *err = z->queue_err;
+                return z->queue_st;
+            }
             if (!z->to_tail) return MR_OK; /* the end */
             z->tail_mode = 1;
             return tail_read(z, buf, cap, got, err);

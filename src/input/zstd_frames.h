@@ -14,9 +14,12 @@
  * Memory stays flat: at most the ring's frames are held, each at most
  * MR__ZFRAME_IN_MAX compressed and MR__ZFRAME_OUT_MAX decompressed.  A
  * frame whose text would exceed that is decoded by the reading thread
- * from its slot, streamed; a frame larger than MR__ZFRAME_IN_MAX compressed
- * (a file written as one frame) sends the rest of the file through the
- * one-thread stream decoder: the same bytes, only not in parallel. */
+ * from its slot, streamed; a frame larger than MR__ZFRAME_IN_MAX compressed,
+ * or whose header gives a size over MR__ZFRAME_OUT_MAX (a file written as
+ * one frame), sends the rest of the file through the one-thread stream
+ * decoder: the same bytes, only not in parallel.  The limits are no
+ * larger because a single-frame file of unknown size is held up to them
+ * before it is known to be one. */
 #ifndef MR_ZSTD_FRAMES_H
 #define MR_ZSTD_FRAMES_H
 
@@ -24,8 +27,13 @@
 #include <stdint.h>
 #include "common/error.h"
 
-#define MR__ZFRAME_IN_MAX (32u << 20)
-#define MR__ZFRAME_OUT_MAX (64u << 20)
+#define MR__ZFRAME_IN_MAX (8u << 20)
+#define MR__ZFRAME_OUT_MAX (16u << 20)
+/* At most this many threads (source.c caps the count it is given): zstd
+ * decompresses text at roughly a gigabyte a second per thread (common
+ * knowledge, not measured here), far more than the row parsers take, and
+ * each thread adds two frames in flight to the memory held. */
+#define MR__ZFRAME_THREADS_MAX 4
 
 typedef struct mr__zframes mr__zframes;
 
