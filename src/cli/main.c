@@ -18,7 +18,8 @@ enum {
     OPT_EXPOSURE, OPT_WEIGHT, OPT_NO_INTERCEPT, OPT_DISPERSION, OPT_THREADS, OPT_BUFFER, OPT_TOLERANCE,
     OPT_MAX_PASSES, OPT_LEVEL, OPT_DELIMITER, OPT_MISSING, OPT_IN_MEMORY, OPT_ON_BAD_ROW, OPT_JSON, OPT_QUIET,
     OPT_DIGITS, OPT_NO_CACHE, OPT_NO_COLLAPSE, OPT_START_FROM, OPT_HELP, OPT_RUN_LOG, OPT_THRESHOLD, OPT_CSV,
-    OPT_FIT, OPT_OUT, OPT_KEEP, OPT_UNSEEN, OPT_BY, OPT_BY_OUT, OPT_DROP_ONE, OPT_FIT_JSON
+    OPT_FIT, OPT_OUT, OPT_KEEP, OPT_UNSEEN, OPT_BY, OPT_BY_OUT, OPT_DROP_ONE, OPT_FIT_JSON, OPT_ROBUST, OPT_CLUSTER,
+    OPT_CLUSTER_MEMORY
 };
 
 static const struct option long_options[] = {
@@ -48,6 +49,9 @@ static const struct option long_options[] = {
     {"no-collapse", no_argument, NULL, OPT_NO_COLLAPSE},
     {"on-bad-row", required_argument, NULL, OPT_ON_BAD_ROW},
     {"start-from", required_argument, NULL, OPT_START_FROM},
+    {"robust", required_argument, NULL, OPT_ROBUST},
+    {"cluster", required_argument, NULL, OPT_CLUSTER},
+    {"cluster-memory", required_argument, NULL, OPT_CLUSTER_MEMORY},
     {"json", required_argument, NULL, OPT_JSON},
     {"run-log", required_argument, NULL, OPT_RUN_LOG},
     {"quiet", no_argument, NULL, OPT_QUIET},
@@ -97,21 +101,24 @@ static const struct option compare_options[] = {
 };
 
 /* Options of `millrace report`. */
-enum { OPT_HTML = 512, OPT_AT, OPT_REPORT_DIGITS };
+enum { OPT_HTML = 512, OPT_AT, OPT_REPORT_DIGITS, OPT_GROUPS };
 static const struct option report_options[] = {
     {"html", required_argument, NULL, OPT_HTML},
     {"at", required_argument, NULL, OPT_AT},
     {"digits", required_argument, NULL, OPT_REPORT_DIGITS},
+    {"groups", required_argument, NULL, OPT_GROUPS},
     {NULL, 0, NULL, 0},
 };
 
 static const char usage_text[] =
-    "usage: millrace fit [options] DATA     fit a GLM to DATA (CSV, TSV, zstd or gzip, or - for stdin)\n"
+    "usage: millrace fit [options] DATA...  fit a GLM to DATA (CSV, TSV, zstd or gzip, or - for stdin);\n"
+    "                               several files or a directory are read as one data set\n"
     "       millrace show [--digits N] FIT.json   the report of a fit saved with --json\n"
     "       millrace drift [--threshold SE] [--json PATH] [--csv PATH] [--digits N] OLD.json NEW.json\n"
     "                               what changed between two saved fits of one model (default 3 SE)\n"
-    "       millrace report --html PATH [--at COL=VALUE]... [--digits N] FIT.json...\n"
-    "                                  saved fits as one HTML page (plots, comparison of the fits)\n"
+    "       millrace report --html PATH [--at COL=VALUE]... [--digits N] [--groups GROUPS.json] FIT.json...\n"
+    "                                  saved fits as one HTML page (plots, comparison of the fits;\n"
+    "                                  a funnel plot of score's --by-out JSON)\n"
     "       millrace score --fit FIT.json --out FILE[.zst] [--keep COL]... [--level P]\n"
     "                      [--unseen fail|blank] [--threads N] [--by COL]... [--by-out PATH] DATA\n"
     "                      predictions and residuals per row; observed/expected by group\n"
@@ -131,11 +138,12 @@ static const char usage_text[] =
     "  --threads N  --buffer-size BYTES  --tolerance X  --max-passes N  --level P\n"
     "  --delimiter ,|tab|;  --missing TOKEN (repeatable)  --in-memory  --no-cache  --no-collapse\n"
     "  --on-bad-row fail|skip  --start-from FIT.json (start from a previous fit of the same model)\n"
+    "  --robust hc0|hc1  --cluster COL  --cluster-memory MB (robust standard errors, by rows or clusters)\n"
     "output:\n"
     "  --json PATH  --run-log FILE (a line appended per run)  --quiet  --digits N\n"
     "exit codes: 0 ok, 2 usage, 3 I/O, 4 malformed input, 5 value outside the model, 6 no data,\n"
     "            7 not converged, 8 out of memory, 9 internal error, 10 numerical breakdown,\n"
-    "            12 drift flagged a change\n"
+    "            12 drift flagged a change, 13 clusters need more memory than allowed\n"
     "            128+N stopped by signal N (130 SIGINT, 143 SIGTERM, 129 SIGHUP; nothing written)\n";
 
 typedef struct cli {
@@ -152,6 +160,8 @@ typedef struct cli {
     size_t nlines;
     const char *model_file;
     mr_output_lock *lock; /* on the JSON, for the run */
+    const char *cluster;  /* --cluster, --cluster-memory (MiB; 0 the default) */
+    long long cluster_mib;
 } cli;
 
 /* The last error said, for the run log. */
@@ -294,6 +304,22 @@ static const char *directive_of(int opt)
 
 static int handled(int rc) { return rc ? rc : -1; }
 
+static int set_robust(cli *c, int opt, const char *arg)
+{
+    mr_status st;
+    if (opt == OPT_ROBUST) {
+        if (strcmp(arg, "hc0") != 0 && strcmp(arg, "hc1") != 0) return usage_error("--robust takes hc0 or hc1");
+        st = mr_fitter_set_robust(c->fitter, strcmp(arg, "hc0") == 0 ? MR_ROBUST_HC0 : MR_ROBUST_HC1);
+        return st == MR_OK ? 0 : fail(st, mr_fitter_errmsg(c->fitter));
+    }
+    if (opt == OPT_CLUSTER) c->cluster = arg;
+    else if (parse_count(arg, &c->cluster_mib) != 0 || c->cluster_mib < 1 || c->cluster_mib > (1LL << 30))
+        return usage_error("--cluster-memory takes a number of MiB (1 or more)");
+    if (c->cluster == NULL) return 0;
+    st = mr_fitter_set_cluster(c->fitter, c->cluster, (size_t)c->cluster_mib << 20);
+    return st == MR_OK ? 0 : fail(st, mr_fitter_errmsg(c->fitter));
+}
+
 /* Returns -1 when the option was handled, else an exit code. */
 static int handle_option(cli *c, int opt, const char *arg)
 {
@@ -314,6 +340,9 @@ static int handle_option(cli *c, int opt, const char *arg)
     case OPT_NO_COLLAPSE: mr_fitter_set_int(c->fitter, MR_OPT_NO_COLLAPSE, 1); return -1;
     case OPT_ON_BAD_ROW: return handled(set_bad_rows(c, arg));
     case OPT_START_FROM: return handled(set_start(c, arg));
+    case OPT_ROBUST:
+    case OPT_CLUSTER:
+    case OPT_CLUSTER_MEMORY: return handled(set_robust(c, opt, arg));
     case OPT_JSON: c->json_path = arg; return -1;
     case OPT_RUN_LOG: c->run_log = arg; return -1;
     case OPT_QUIET: c->quiet = 1; return -1;
@@ -394,17 +423,18 @@ static int publish(cli *c, mr_fit *fit)
 
 /* Refuses, before the fit, a JSON path that is the data or the model
  * file or cannot take an output (the library checks again as it writes). */
-static int check_outputs(cli *c, const char *data)
+static int check_outputs(cli *c, char **data, size_t ndata)
 {
-    const char *inputs[2] = {data, c->model_file};
+    const char **inputs = calloc(ndata + 1, sizeof *inputs);
+    size_t n = ndata;
     char msg[1024];
-    mr_status st;
-    if (c->run_log && (st = mr_output_check(c->run_log, inputs, c->model_file ? 2 : 1, msg, sizeof msg)) != MR_OK) {
-        c->run_log_refused = 1;
-        return fail(st, msg);
-    }
-    if (c->json_path == NULL) return 0;
-    st = mr_output_check(c->json_path, inputs, c->model_file ? 2 : 1, msg, sizeof msg);
+    mr_status st = MR_OK;
+    if (inputs == NULL) return fail(MR_ERR_NO_MEMORY, "out of memory");
+    memcpy(inputs, data, ndata * sizeof *inputs);
+    if (c->model_file) inputs[n++] = c->model_file;
+    if (c->run_log && (st = mr_output_check(c->run_log, inputs, n, msg, sizeof msg)) != MR_OK) c->run_log_refused = 1;
+    if (st == MR_OK && c->json_path) st = mr_output_check(c->json_path, inputs, n, msg, sizeof msg);
+    free(inputs);
     return st == MR_OK ? 0 : fail(st, msg);
 }
 
@@ -513,17 +543,17 @@ static int run_fit(cli *c, int argc, char **argv)
         if (opt == '?') return usage_error("bad option");
         if ((rc = handle_option(c, opt, optarg)) >= 0) return rc;
     }
-    if (optind != argc - 1) return usage_error("fit takes exactly one data file (or - for standard input)");
+    if (optind >= argc) return usage_error("fit takes one or more data files or directories (or - for standard input)");
     c->data = argv[optind];
     if ((rc = apply_model(c)) != 0) return rc;
-    if ((rc = check_outputs(c, argv[optind])) != 0) return rc;
+    if ((rc = check_outputs(c, argv + optind, (size_t)(argc - optind))) != 0) return rc;
     if (mr_fitter_set_command_line(c->fitter, (size_t)c->argc, (const char *const *)c->argv) != MR_OK)
         return fail(MR_ERR_NO_MEMORY, "out of memory");
     if ((rc = lock_output(c)) != 0) return rc;
     c->show_progress = !c->quiet && isatty(STDERR_FILENO);
     mr_fitter_set_progress_stop(c->fitter, progress_or_stop, c);
     stop_at_block = 1;
-    st = mr_fitter_run(c->fitter, argv[optind], &fit);
+    st = mr_fitter_run_set(c->fitter, (const char *const *)argv + optind, (size_t)(argc - optind), &fit);
     stop_at_block = 0;
     if (c->progress_shown) fputs("\r\033[K", stderr);
     if (stop_signal) {
@@ -669,7 +699,7 @@ static int write_page(const char *html, char **paths, size_t nfits, char **setti
     return st == MR_OK ? 0 : fail(st, msg);
 }
 
-/* millrace report --html PATH [--at COL=VALUE]... [--digits N] FIT.json... */
+/* millrace report --html PATH [--at COL=VALUE]... [--digits N] [--groups FILE] FIT.json... */
 static int report_page(int argc, char **argv)
 {
     char **settings = NULL;
@@ -679,8 +709,8 @@ static int report_page(int argc, char **argv)
     optind = 1;
     while (rc == 0 && (opt = getopt_long(argc, argv, "", report_options, NULL)) != -1) {
         if (opt == OPT_HTML) html = optarg;
-        else if (opt == OPT_AT || opt == OPT_REPORT_DIGITS)
-            rc = add_setting(&settings, &n, opt == OPT_AT ? "at " : "digits ", optarg) == 0
+        else if (opt == OPT_AT || opt == OPT_REPORT_DIGITS || opt == OPT_GROUPS)
+            rc = add_setting(&settings, &n, opt == OPT_AT ? "at " : opt == OPT_GROUPS ? "groups " : "digits ", optarg) == 0
                      ? 0
                      : fail(MR_ERR_NO_MEMORY, "out of memory");
         else rc = usage_error("bad option");
@@ -785,14 +815,15 @@ static int run_score(mr_scorer *s, score_cli *o, int argc, char **argv)
         fputs(usage_text, stdout);
         return 0;
     }
-    if (optind != argc - 1) return usage_error("score takes exactly one data file (or - for standard input)");
+    if (optind >= argc) return usage_error("score takes one or more data files or directories (or - for standard input)");
     if (o->fit_path == NULL || o->out_path == NULL) return usage_error("score needs --fit and --out");
     if (o->by_out && !o->by) return usage_error("--by-out needs --by");
     inputs[0] = argv[optind];
     inputs[1] = o->fit_path;
     if ((st = mr_output_check(o->out_path, inputs, 2, msg, sizeof msg)) != MR_OK) return fail(st, msg);
     if (o->by_out && (st = mr_output_check(o->by_out, inputs, 2, msg, sizeof msg)) != MR_OK) return fail(st, msg);
-    if ((st = mr_scorer_run(s, argv[optind], o->out_path)) != MR_OK) return fail(st, mr_scorer_errmsg(s));
+    st = mr_scorer_run_set(s, (const char *const *)argv + optind, (size_t)(argc - optind), o->out_path);
+    if (st != MR_OK) return fail(st, mr_scorer_errmsg(s));
     if (!o->quiet) score_summary(s, o->out_path);
     return o->by ? write_groups(s, o) : 0;
 }

@@ -43,12 +43,21 @@ typedef struct mr__fit_term {
     double test_chi2, test_stat, test_p;
 } mr__fit_term;
 
+/* A numeric column over the rows used (the first pass's sums): its mean
+ * and standard deviation (divisor n), least and greatest value. */
+typedef struct mr__fit_numeric {
+    char *name;
+    double mean, sd, min, max;
+} mr__fit_numeric;
+
 struct mr_fit {
     mr_status status;
     /* coefficients, on the scale of the raw columns */
     size_t p, rank;
     char **name;
     int *aliased;
+    int *inestimable; /* not estimable in practice: a zero cell, or its SE grew
+                         at every pass (result.c, zero_cells.c) */
     double *beta, *se, *cov, *stat, *pval, *lo, *hi;
     /* model */
     int family, link, intercept, dispersion_estimated;
@@ -73,7 +82,7 @@ struct mr_fit {
     char **bad_example;
     size_t nbad_examples;
     /* convergence */
-    int iterations, passes, halvings, converged, warm_start, warm_iterations, by_decrement;
+    int iterations, passes, halvings, converged, warm_start, warm_iterations, by_step;
     int warm_blocks, warm_polish_blocks; /* sample blocks the warm start used (0: none) */
     int start_given;       /* started from a previous fit (mr_fitter_set_start) */
     char *start_from;      /* its label; NULL when none */
@@ -90,6 +99,11 @@ struct mr_fit {
     int64_t file_mtime_ns; /* since the epoch */
     uint64_t bytes, decompressed_bytes, checksum;
     int compression; /* an mr__compression (input/codec.h) */
+    /* a set of files (input/inputset.h): each one's identity; set_known 0
+     * for a single input (then no "set" in the JSON) */
+    int set_known;
+    struct mr__fit_input_file *set_file;
+    size_t nset_files;
     char delimiter;
     int delimiter_detected;
     int threads, max_passes, in_memory, skip_bad, cached;
@@ -114,12 +128,40 @@ struct mr_fit {
     size_t nmany;
     char **many_level;
     double *many_beta, *many_se, *many_info;
+    /* the numeric columns (numerics_known 0 for a fit read back from a
+     * JSON written before they were saved) */
+    int numerics_known;
+    mr__fit_numeric *numeric;
+    size_t nnumerics;
+    /* robust standard errors (robust.c), when asked (robust 1): the type
+     * ("HC0", "HC1"), the cluster column (NULL: by rows) and its clusters,
+     * the small-sample factor applied, the standard errors (nrobust_se =
+     * p) and the covariance (p x p), raw scale; they then drive stat,
+     * pval, lo, hi and the term tests, while se and cov stay model-based. */
+    int robust;
+    char *robust_type, *cluster;
+    uint64_t nclusters;
+    double robust_adjustment;
+    double *robust_se, *robust_cov;
+    size_t nrobust_se;
 };
 
 /* The `many` factor's arrays for n levels, names NULL (many.c); MR_OK or
  * MR_ERR_NO_MEMORY. */
 mr_status mr__fit_alloc_many(mr_fit *fit, size_t n);
 void mr__fit_free_many(mr_fit *fit);
+
+/* One file of a set as the first pass read it. */
+typedef struct mr__fit_input_file {
+    char *path;
+    uint64_t size;
+    int64_t mtime_ns;
+    uint64_t bytes, decompressed_bytes, checksum;
+    int compression;
+} mr__fit_input_file;
+
+/* Numeric column `name`, or NULL (unknown or not a numeric). */
+const mr__fit_numeric *mr__fit_find_numeric(const mr_fit *fit, const char *name);
 
 /* The per-coefficient arrays for p coefficients, zeroed (the fit's p set). */
 mr_status mr__fit_alloc_coefficients(mr_fit *fit, size_t p);

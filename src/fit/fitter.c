@@ -8,10 +8,11 @@
 #include "fit/fit.h"
 #include "fit/fitter.h"
 #include "fit/start.h"
+#include "input/inputset.h"
 
 #define DEFAULT_MAX_PASSES 50
 #define DEFAULT_BUFFER (1u << 20)
-#define DEFAULT_TOLERANCE 1e-10
+#define DEFAULT_TOLERANCE 1e-9
 
 const char *mr_version(void) { return MR_VERSION_STRING; }
 
@@ -38,6 +39,7 @@ void mr_fitter_free(mr_fitter *f)
     mr_fitter_clear_missing(f);
     mr__strings_free(f->command_line, f->ncommand_line);
     mr__start_free(f->start);
+    mr__free(f->cluster);
     mr__free(f);
 }
 
@@ -170,6 +172,15 @@ mr_status mr__fitter_record_run(const mr_fitter *f, mr_fit *fit, int64_t started
     return MR_OK;
 }
 
+static mr_status finish_run(mr_fitter *f, mr_status st, int64_t started, mr_fit **out)
+{
+    if (st == MR_OK && (st = mr__fitter_record_run(f, *out, started, &f->err)) != MR_OK) {
+        mr_fit_free(*out);
+        *out = NULL;
+    }
+    return st;
+}
+
 mr_status mr_fitter_run(mr_fitter *f, const char *path, mr_fit **out)
 {
     int64_t started = mr__wall_ns_now();
@@ -180,12 +191,20 @@ mr_status mr_fitter_run(mr_fitter *f, const char *path, mr_fit **out)
      * standard input kept for later passes), and be read as empty input. */
     if (strcmp(path, "-") == 0 && fcntl(STDIN_FILENO, F_GETFD) < 0)
         return mr__fail(&f->err, MR_ERR_IO, "<stdin>: standard input is closed, so there is nothing to read");
-    st = mr__fit_file(f, path, out);
-    if (st == MR_OK && (st = mr__fitter_record_run(f, *out, started, &f->err)) != MR_OK) {
-        mr_fit_free(*out);
-        *out = NULL;
-    }
-    return st;
+    st = mr__path_is_directory(path) ? mr__fit_files(f, &path, 1, out) : mr__fit_file(f, path, out);
+    return finish_run(f, st, started, out);
+}
+
+mr_status mr_fitter_run_set(mr_fitter *f, const char *const *paths, size_t npaths, mr_fit **out)
+{
+    int64_t started = mr__wall_ns_now();
+    mr_status st;
+    *out = NULL;
+    mr__error_clear(&f->err);
+    if (npaths == 0 || paths == NULL) return mr__fail(&f->err, MR_ERR_USAGE, "no input given");
+    if (npaths == 1) return mr_fitter_run(f, paths[0], out);
+    st = mr__fit_files(f, paths, npaths, out);
+    return finish_run(f, st, started, out);
 }
 
 void mr_fitter_set_progress_stop(mr_fitter *f, mr_progress_stop_fn fn, void *user)

@@ -5,10 +5,9 @@
  * every row.  Then IRLS: each pass evaluates the model at the current
  * coefficients, accumulating X'WX, X'Wz, the deviance and the Pearson
  * statistic, and the small p x p system gives the next coefficients.  The
- * loop stops when the relative change in deviance is below the tolerance;
- * the reported statistics are those of the last pass (and so are the
- * coefficients, unless the last Newton step was taken without a pass to
- * check it; see iterate()).  The null model (intercept and offset only) is fitted
+ * loop stops when the step a pass gives is at most the tolerance in
+ * standard errors (irls.c); that step is taken without another pass, and
+ * the reported statistics are those of the last pass.  The null model (intercept and offset only) is fitted
  * alongside in the same passes. */
 #define _POSIX_C_SOURCE 200809L
 #include <cblas.h>
@@ -24,6 +23,7 @@ int openblas_get_num_threads(void);
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "accum/meat.h"
 #include "accum/pass.h"
 #include "common/alloc.h"
 #include "common/clock.h"
@@ -73,6 +73,7 @@ static mr__pass_cfg pass_config(mr__run *r, mr__pass_kind kind)
     memset(&c, 0, sizeof c);
     c.kind = kind;
     c.path = r->read_path;
+    c.set = r->set.n > 0 ? &r->set : NULL;
     c.display = r->display;
     c.read_size = r->f->buffer_size;
     c.tee_fd = -1;
@@ -118,7 +119,7 @@ static mr_status check_same_input(mr__run *r, const mr__pass_result *res, mr__er
 mr_status mr__run_scan_cfg(mr__run *r, mr__pass_cfg *c, int spool, mr__error *err)
 {
     *c = pass_config(r, MR__PASS_SCAN);
-    if (spool && mr__read_only_once(r->path)) {
+    if (spool && r->set.n == 0 && mr__read_only_once(r->path)) {
         MR__TRY(mr__open_spool(r, err));
         c->tee_fd = r->spool_fd;
     }
@@ -186,10 +187,12 @@ typedef struct irls_job {
     int restarted;       /* the start was given up for the family's own */
     const double *start; /* NULL: from the family's starting means */
     double tolerance;
+    double dispersion_rows; /* see mr__irls_cfg; 0 on the sample (phi taken as 1) */
     int max_iterations;
     double *beta_out;    /* the coefficients reached */
+    int *growing_out;    /* NULL, or per coefficient: its SE grew pass after pass */
     double deviance_shift; /* collapsed patterns: the deviance within patterns */
-    int iterations, halvings, converged, by_decrement;
+    int iterations, halvings, converged, by_step;
     double rel_change, null_b0;
 } irls_job;
 
@@ -228,6 +231,15 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
     return note_pass(r, res, err);
 }
 
+/* IRLS is Newton's method under a family's canonical link; the negative
+ * binomial's and the Tweedie's defaults (log) are not theirs. */
+static int newton_link(const mr__run *r)
+{
+    int family = r->f->spec.family;
+    return family != MR_NEGATIVE_BINOMIAL && family != MR_TWEEDIE &&
+           mr__spec_link(&r->f->spec) == (int)mr__canonical_link((mr_family)family);
+}
+
 /* The passes the state machine asks for, until it is done. */
 static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__error *err)
 {
@@ -235,9 +247,12 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
     mr__irls_cfg c;
     mr_status st;
     int done = 0;
+    size_t j;
     memset(&c, 0, sizeof c);
     c.p = mr__design_ncoef(&r->design);
     c.tolerance = job->tolerance;
+    c.dispersion_rows = job->dispersion_rows;
+    c.newton = newton_link(r);
     c.max_iterations = job->max_iterations;
     c.step_at_end = job->step_at_end;
     c.start = job->start;
@@ -253,11 +268,13 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
     job->iterations = s.iterations;
     job->halvings = s.halvings;
     job->converged = s.converged;
-    job->by_decrement = s.by_decrement;
+    job->by_step = s.by_step;
     job->restarted = s.restarted;
     job->rel_change = s.rel_change;
     job->null_b0 = s.null_b0;
     if (st == MR_OK) mr__irls_coefficients(&s, job->beta_out);
+    for (j = 0; st == MR_OK && job->growing_out && j < c.p; j++)
+        job->growing_out[j] = mr__irls_ran_off(&s, j);
     mr__irls_release(&s);
     return st;
 }
@@ -285,7 +302,10 @@ static int sample_fit(mr__run *r, size_t stride, const double *start, int max_it
     job.replay = &r->first.sample;
     job.replay_stride = stride;
     job.start = start;
-    job.tolerance = 1e-8;
+    /* the sample's maximum is within its own sampling error of the
+     * file's, so a step of a thousandth of its standard errors is near
+     * enough */
+    job.tolerance = 1e-3;
     job.max_iterations = max_iterations;
     job.step_at_end = start != NULL;
     job.beta_out = out;
@@ -340,16 +360,68 @@ static mr_status fit_data(mr__run *r, mr__error *err)
     }
     job.start = r->warm || r->started ? r->beta_warm : NULL;
     job.tolerance = r->f->tolerance;
+    job.dispersion_rows = mr__spec_dispersion_estimated(&r->f->spec) ? (double)r->first.scan.npos : 0;
     job.max_iterations = r->f->max_passes;
     job.beta_out = r->beta_final;
+    job.growing_out = r->growing;
     MR__TRY(iterate(r, &job, &r->last, err));
     r->iterations = job.iterations;
     r->halvings = job.halvings;
     r->converged = job.converged;
-    r->by_decrement = job.by_decrement;
+    r->by_step = job.by_step;
     r->rel_change = job.rel_change;
     r->null_b0 = job.null_b0;
     return MR_OK;
+}
+
+/* ---- robust standard errors -------------------------------------------- */
+
+/* One pass at the final coefficients for the sandwich's meat (accum/meat.h):
+ * by rows from the kept blocks when there are any, else from the input
+ * (collapsed patterns cannot give it: within a pattern the rows' residuals
+ * differ); by clusters always from the input, whose blocks carry the
+ * cluster column. */
+static mr_status meat_pass(mr__run *r, int table, mr__error *err)
+{
+    mr__irls_point pt;
+    mr__meat_cfg mc;
+    mr__pass_cfg c = pass_config(r, MR__PASS_MEAT);
+    mr_status st;
+    memset(&pt, 0, sizeof pt);
+    pt.design = &r->design;
+    pt.family = &r->family;
+    pt.link = mr__link_ops_of((mr_link)mr__spec_link(&r->f->spec));
+    pt.beta = r->beta_final;
+    pt.null_skip = 1;
+    memset(&mc, 0, sizeof mc);
+    mc.clusters = r->f->cluster != NULL;
+    mc.table = table;
+    mc.limit = r->f->cluster_memory;
+    mc.display = r->display;
+    c.point = &pt;
+    c.job_arg = &mc;
+    c.map = &r->first.map;
+    if (!mc.clusters && r->use_store && r->store_filled) {
+        c.store = &r->store;
+        c.store_fill = 0;
+    }
+    mr__pass_result_release(&r->meat, 0);
+    st = mr__pass_run(&c, &r->meat, err);
+    if (st != MR_OK) return st;
+    if (c.store == NULL) MR__TRY(check_same_input(r, &r->meat, err));
+    return note_pass(r, &r->meat, err);
+}
+
+/* Streamed first: a file grouped by the cluster column needs one set of
+ * the clusters seen; when a cluster comes back, the pass runs again with
+ * every cluster's sums in a table. */
+static mr_status robust_pass(mr__run *r, mr__error *err)
+{
+    mr_status st = meat_pass(r, 0, err);
+    if (st == MR_OK || !r->meat.clusters_not_grouped) return st;
+    mr__error_clear(err);
+    r->clusters_table = 1;
+    return meat_pass(r, 1, err);
 }
 
 /* ---- the run ------------------------------------------------------------ */
@@ -359,6 +431,7 @@ void mr__run_release(mr__run *r)
     size_t f;
     mr__pass_result_release(&r->first, r->bind.nfac);
     mr__pass_result_release(&r->last, 0);
+    mr__pass_result_release(&r->meat, 0);
     mr__design_release(&r->design);
     for (f = 0; r->levels && f < r->bind.nfac; f++) mr__levelset_release(&r->levels[f]);
     for (f = 0; r->level_names && f < r->bind.nfac; f++) mr__free(r->level_names[f]);
@@ -371,12 +444,14 @@ void mr__run_release(mr__run *r)
     mr__free(r->pass_seconds);
     mr__free(r->beta_final);
     mr__free(r->beta_warm);
+    mr__free(r->growing);
     mr__store_release(&r->store);
     mr__store_release(&r->patterns);
     mr__pass_pool_release(&r->pool);
     for (f = 0; r->remap && f < r->nremap; f++) mr__free(r->remap[f]);
     mr__free(r->remap);
     if (r->bound) mr__binding_release(&r->bind);
+    mr__inputset_release(&r->set);
     if (r->spool_fd >= 0) close(r->spool_fd);
 }
 
@@ -385,12 +460,27 @@ static mr_status allocate_coefficients(mr__run *r, mr__error *err)
     size_t p = mr__design_ncoef(&r->design) + 1;
     r->beta_final = mr__calloc(p, sizeof(double));
     r->beta_warm = mr__calloc(p, sizeof(double));
-    if (!r->beta_final || !r->beta_warm)
+    r->growing = mr__calloc(p, sizeof *r->growing);
+    if (!r->beta_final || !r->beta_warm || !r->growing)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     return MR_OK;
 }
 
-mr_status mr__run_begin(mr__run *r, mr_fitter *f, const char *path)
+/* The name of a set in messages: the paths given, one after the other
+ * (cut, if long, at a whole character). */
+static void name_set(mr__run *r, const char *const *paths, size_t n)
+{
+    size_t i, at = 0;
+    r->display[0] = '\0';
+    for (i = 0; i < n && at < sizeof r->display; i++)
+        at += (size_t)snprintf(r->display + at, sizeof r->display - at, "%s%s", i ? " " : "", paths[i]);
+    mr__utf8_mend_cut(r->display, sizeof r->display, (int)at);
+}
+
+/* set: NULL, or several files read as one (the run takes it over), made
+ * of the npaths paths given. */
+static mr_status run_begin(mr__run *r, mr_fitter *f, const char *path, mr__inputset *set, const char *const *paths,
+                           size_t npaths)
 {
     mr_status st;
     memset(r, 0, sizeof *r);
@@ -398,21 +488,34 @@ mr_status mr__run_begin(mr__run *r, mr_fitter *f, const char *path)
     mr__store_init_memory(&r->patterns);
     atomic_init(&r->collapse_abandoned, 0);
     r->f = f;
+    if (set != NULL) {
+        r->set = *set;
+        path = set->path[0];
+        name_set(r, paths, npaths);
+    } else {
+        mr__utf8_mend_cut(r->display, sizeof r->display,
+                          snprintf(r->display, sizeof r->display, "%s", strcmp(path, "-") == 0 ? "<stdin>" : path));
+    }
     r->path = path;
     r->read_path = path;
     r->spool_fd = -1;
     r->t0 = mr__seconds_now();
-    mr__utf8_mend_cut(r->display, sizeof r->display,
-                      snprintf(r->display, sizeof r->display, "%s", strcmp(path, "-") == 0 ? "<stdin>" : path));
     choose_threads(r);
     r->family = mr__spec_family(&f->spec);
     r->dcfg.collapse = mr__collapse_mode(r);
     r->dcfg.collapse_abandoned = &r->collapse_abandoned;
     st = mr__spec_validate(&f->spec, &f->err);
+    /* the meat pass builds each row's full design row, which would hold
+     * every level of the eliminated factor: not supported */
+    if (st == MR_OK && mr__spec_many(&f->spec) >= 0 && mr__robust_type(f) != MR_ROBUST_NONE)
+        st = mr__fail(&f->err, MR_ERR_USAGE,
+                      "robust standard errors (--robust, --cluster) are not supported with a 'many' factor");
     if (st == MR_OK && f->start) st = mr__start_check(f->start, &f->spec, &f->err);
     if (st == MR_OK) mr__choose_store(r);
     return st;
 }
+
+mr_status mr__run_begin(mr__run *r, mr_fitter *f, const char *path) { return run_begin(r, f, path, NULL, NULL, 0); }
 
 mr_status mr__run_rest(mr__run *r, mr_fit **out)
 {
@@ -428,26 +531,41 @@ mr_status mr__run_rest(mr__run *r, mr_fit **out)
      * warm start then only gives its sample back */
     if (st == MR_OK) warm_start(r);
     if (st == MR_OK) st = fit_data(r, err);
+    if (st == MR_OK && mr__robust_type(f) != MR_ROBUST_NONE) st = robust_pass(r, err);
     if (st == MR_OK) st = mr__build_fit(r, out, err);
     return st;
 }
 
-mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
+/* The run begun (st: how its beginning went): the passes, the fit, the
+ * end. */
+static mr_status run_all(mr__run *r, mr_status st, mr_fit **out)
 {
-    mr__run r;
-    mr_status st;
     int blas_threads = 0; /* the count to set back; 0: never changed */
-    st = mr__run_begin(&r, f, path);
     if (st == MR_OK) {
         /* Our workers use every core; BLAS threads inside them would only
          * oversubscribe.  The caller's count comes back at the end, as
          * millrace.h promises. */
         blas_threads = openblas_get_num_threads();
         openblas_set_num_threads(1);
-        st = scan_pass(&r, &f->err);
+        st = scan_pass(r, &r->f->err);
     }
-    if (st == MR_OK) st = mr__run_rest(&r, out);
-    mr__run_release(&r);
+    if (st == MR_OK) st = mr__run_rest(r, out);
+    mr__run_release(r);
     if (blas_threads > 0) openblas_set_num_threads(blas_threads);
     return st;
+}
+
+mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
+{
+    mr__run r;
+    return run_all(&r, mr__run_begin(&r, f, path), out);
+}
+
+mr_status mr__fit_files(mr_fitter *f, const char *const *paths, size_t n, mr_fit **out)
+{
+    mr__run r;
+    mr__inputset set;
+    mr_status st = mr__inputset_build(&set, paths, n, &f->err);
+    if (st != MR_OK) return st;
+    return run_all(&r, run_begin(&r, f, NULL, &set, paths, n), out);
 }

@@ -21,6 +21,27 @@ static const mr__jfield file_fields[] = {
     END,
 };
 
+#define FILE_AT(m) offsetof(mr__fit_input_file, m)
+#define FILE_F(key, kind, m) {key, kind, FILE_AT(m), 0, 0, 0, 0, 0, NULL, NULL, NULL}
+
+static const mr__jfield set_file_fields[] = {
+    FILE_F("path", MR__J_TEXT, path),
+    FILE_F("size", MR__J_U64, size),
+    FILE_F("mtime_ns", MR__J_I64, mtime_ns),
+    FILE_F("bytes", MR__J_U64, bytes),
+    FILE_F("decompressed_bytes", MR__J_U64, decompressed_bytes),
+    FILE_F("compression", MR__J_COMPRESSION, compression),
+    FILE_F("checksum", MR__J_CHECKSUM, checksum),
+    END,
+};
+
+/* Several files read as one (input/inputset.h): left out for a single
+ * input, so its JSON is what it was. */
+static const mr__jfield set_fields[] = {
+    {"files", MR__J_STRUCTS, AT(set_file), AT(nset_files), sizeof(mr__fit_input_file), 0, 0, 0, NULL, NULL, set_file_fields},
+    END,
+};
+
 static const mr__jfield input_fields[] = {
     F("path", MR__J_TEXT, path),
     F("bytes", MR__J_U64, bytes),
@@ -30,6 +51,7 @@ static const mr__jfield input_fields[] = {
     F("delimiter", MR__J_CHAR, delimiter),
     CHOICE("delimiter_source", delimiter_detected, "detected", "option"),
     {"file", MR__J_OBJECT_OR_NULL, 0, AT(file_known), 0, 0, 0, 0, NULL, NULL, file_fields},
+    {"set", MR__J_OBJECT_OPTIONAL, 0, AT(set_known), 0, 0, 0, 0, NULL, NULL, set_fields},
     END,
 };
 
@@ -88,6 +110,23 @@ static const mr__jfield family_param_fields[] = {
     END,
 };
 
+static const mr__jfield numeric_fields[] = {
+    {"mean", MR__J_REAL, offsetof(mr__fit_numeric, mean), 0, 0, 0, 0, 0, NULL, NULL, NULL},
+    {"sd", MR__J_REAL, offsetof(mr__fit_numeric, sd), 0, 0, 0, 0, 0, NULL, NULL, NULL},
+    {"min", MR__J_REAL, offsetof(mr__fit_numeric, min), 0, 0, 0, 0, 0, NULL, NULL, NULL},
+    {"max", MR__J_REAL, offsetof(mr__fit_numeric, max), 0, 0, 0, 0, 0, NULL, NULL, NULL},
+    END,
+};
+
+/* The numeric columns over the rows used, by name.  Added within
+ * format_version 3, so optional: a fit written before reads back without
+ * it and writes the same bytes again. */
+static const mr__jfield numeric_summary_fields[] = {
+    {"columns", MR__J_KEYED, AT(numeric), AT(nnumerics), sizeof(mr__fit_numeric), offsetof(mr__fit_numeric, name), 0,
+     0, NULL, NULL, numeric_fields},
+    END,
+};
+
 static const mr__jfield model_fields[] = {
     F("outcome", MR__J_TEXT, outcome),
     F("trials", MR__J_TEXT_OR_NULL, trials),
@@ -104,6 +143,8 @@ static const mr__jfield model_fields[] = {
      NULL, NULL, factor_fields},
     {"terms", MR__J_STRUCTS, AT(term), AT(nterms), sizeof(mr__fit_term), 0, 0, 0, NULL, NULL, term_fields},
     {"lines", MR__J_RECORDS, 0, AT(nmodel_lines), 0, 0, 0, 0, NULL, NULL, line_fields},
+    {"numeric_summary", MR__J_OBJECT_OPTIONAL, 0, AT(numerics_known), 0, 0, 0, 0, NULL, NULL,
+     numeric_summary_fields},
     END,
 };
 
@@ -128,7 +169,7 @@ static const mr__jfield start_fields[] = {
 
 static const mr__jfield convergence_fields[] = {
     F("converged", MR__J_BOOL, converged),
-    CHOICE("criterion", by_decrement, "newton decrement", "deviance change"),
+    CHOICE("criterion", by_step, "step in standard errors", "deviance change at the boundary"),
     F("iterations", MR__J_INT, iterations),
     F("passes", MR__J_INT, passes),
     F("relative_change", MR__J_REAL, rel_change),
@@ -148,6 +189,8 @@ static const mr__jfield convergence_fields[] = {
 static const mr__jfield coefficient_fields[] = {
     EACH("name", MR__J_TEXT, name),
     EACH("aliased", MR__J_BOOL, aliased),
+    /* a zero cell or a growing standard error: at infinity in practice */
+    EACH("not_estimable", MR__J_BOOL_ADDED, inestimable),
     EACH("estimate", MR__J_REAL, beta),
     EACH("standard_error", MR__J_REAL, se),
     EACH("statistic", MR__J_REAL, stat),
@@ -204,6 +247,19 @@ static const mr__jfield many_fields[] = {
     END,
 };
 
+/* Robust standard errors, written only when the fit made them (so a fit
+ * without them keeps its bytes): the coefficients' statistics, p-values
+ * and intervals are then theirs. */
+static const mr__jfield robust_fields[] = {
+    F("type", MR__J_TEXT, robust_type),
+    F("cluster", MR__J_TEXT_OR_NULL, cluster),
+    F("clusters", MR__J_U64, nclusters),
+    F("adjustment", MR__J_REAL, robust_adjustment),
+    LIST("standard_errors", MR__J_REALS, robust_se, nrobust_se),
+    SPECIAL("covariance", MR__JS_ROBUST_COVARIANCE),
+    END,
+};
+
 const mr__jfield mr__json_fit_fields[] = {
     DERIVED("format", MR__JD_FORMAT),
     DERIVED("format_version", MR__JD_FORMAT_VERSION),
@@ -220,6 +276,7 @@ const mr__jfield mr__json_fit_fields[] = {
     OBJECT("fit", statistics_fields),
     SPECIAL("covariance", MR__JS_COVARIANCE),
     {"many_factor", MR__J_OBJECT_OPTIONAL, 0, AT(many_given), 0, 0, 0, 0, NULL, NULL, many_fields},
+    {"robust", MR__J_OBJECT_OPTIONAL, 0, AT(robust), 0, 0, 0, 0, NULL, NULL, robust_fields},
     LIST("warnings", MR__J_TEXTS, warning, nwarnings),
     END,
 };

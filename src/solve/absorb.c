@@ -122,36 +122,44 @@ done:
     return st;
 }
 
-/* u = v - G b by blocks: u_R = b_R - A b_R' - sum_l c_l b_l, u_l = b_D,l
- * - d_l b_l - c_l' b_R; the decrement is u'(b_next - b). */
-double mr__absorb_decrement(const mr__absorb_sums *s, const double *b, const double *b_next)
+/* d'Hd by blocks, d laid out as the rest's pr, then the levels':
+ * sum_l d_l delta_l^2 + 2 delta_R' (sum_l c_l delta_l) + delta_R' A delta_R,
+ * O(L p_r + p_r^2) with no L x L matrix. */
+double mr__absorb_quadratic(const mr__absorb_sums *s, const double *d)
 {
     size_t pr = s->pr, l, i, j;
-    double total = 0;
-    for (i = 0; i < pr; i++) {
-        double u = s->bR[i];
-        for (j = 0; j < pr; j++) u -= s->A[i <= j ? j * pr + i : i * pr + j] * b[j];
-        for (l = 0; l < s->nlev; l++) u -= row_of(s, l)[2 + i] * b[pr + l];
-        total += u * (b_next[i] - b[i]);
-    }
+    double total = 0, cross = 0;
     for (l = 0; l < s->nlev; l++) {
         const double *row = row_of(s, l);
-        double u = row[1] - row[0] * b[pr + l];
-        for (j = 0; j < pr; j++) u -= row[2 + j] * b[j];
-        total += u * (b_next[pr + l] - b[pr + l]);
+        double dl = d[pr + l], u = 0;
+        if (dl == 0) continue;
+        for (j = 0; j < pr; j++) u += row[2 + j] * d[j];
+        total += row[0] * dl * dl;
+        cross += u * dl;
     }
-    return total;
+    for (i = 0; i < pr; i++) {
+        double u = 0;
+        if (d[i] == 0) continue;
+        for (j = 0; j < pr; j++) u += s->A[i <= j ? j * pr + i : i * pr + j] * d[j];
+        total += d[i] * u;
+    }
+    return total + 2 * cross;
 }
 
-mr_status mr__absorb_step(const mr__absorb_sums *s, const double *b, double *next, double *decrement,
+mr_status mr__absorb_step(const mr__absorb_sums *s, double *next, int *aliased, double *var, size_t *rank,
                           mr__error *err)
 {
     mr__absorb_solution sol;
-    mr_status st = mr__absorb_solve(s, 0, &sol, err);
+    size_t pr = s->pr, j, l;
+    mr_status st = mr__absorb_solve(s, var != NULL, &sol, err);
     if (st == MR_OK) {
-        memcpy(next, sol.beta_rest, s->pr * sizeof *next);
-        memcpy(next + s->pr, sol.beta_lev, s->nlev * sizeof *next);
-        *decrement = b ? mr__absorb_decrement(s, b, next) : INFINITY;
+        memcpy(next, sol.beta_rest, pr * sizeof *next);
+        memcpy(next + pr, sol.beta_lev, s->nlev * sizeof *next);
+        for (j = 0; j < pr; j++) aliased[j] = sol.aliased[j];
+        for (l = 0; l < s->nlev; l++) aliased[pr + l] = sol.empty[l];
+        *rank = sol.rank + (s->nlev - sol.nempty);
+        for (j = 0; var != NULL && j < pr; j++) var[j] = sol.cov_rest[j * pr + j];
+        for (l = 0; var != NULL && l < s->nlev; l++) var[pr + l] = sol.empty[l] ? 0 : sol.var_lev[l];
     }
     mr__absorb_solution_release(&sol);
     return st;

@@ -68,13 +68,15 @@ mr_status mr__absorb_solve(const mr__absorb_sums *s, int want_cov, mr__absorb_so
 void mr__absorb_solution_release(mr__absorb_solution *sol);
 
 /* One IRLS step: the solution as one vector `next` (the rest's pr, then
- * the levels'), and *decrement, the Newton decrement from b (INFINITY
- * when b is NULL). */
-mr_status mr__absorb_step(const mr__absorb_sums *s, const double *b, double *next, double *decrement,
+ * the levels'), aliased[] likewise (a level: empty), the rank of the
+ * whole system and, when `var` is not NULL, each coefficient's variance
+ * at unit dispersion (the diagonal of the inverse: S^-1's, then each
+ * level's; 0 where aliased or empty), at O(L p_r^2) like the elimination. */
+mr_status mr__absorb_step(const mr__absorb_sums *s, double *next, int *aliased, double *var, size_t *rank,
                           mr__error *err);
 
-/* The Newton decrement (v - G b)' (b_next - b) of the whole system, each
- * coefficient vector laid out as the rest's pr, then the levels' nlev. */
-double mr__absorb_decrement(const mr__absorb_sums *s, const double *b, const double *b_next);
+/* d' X'WX d for the whole system, d laid out as the rest's pr, then the
+ * levels' nlev (the step's size in the fit's stopping rule). */
+double mr__absorb_quadratic(const mr__absorb_sums *s, const double *d);
 
 #endif

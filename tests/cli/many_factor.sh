@@ -68,6 +68,13 @@ refused "many without intercept" 'intercept no\n' "needs the intercept"
 printf 'outcome y\nfactor area many sideways\n' > "$tmp/w.model"
 $bin fit --quiet -m "$tmp/w.model" "$tmp/d.csv" > /dev/null 2>&1
 [ $? -eq 2 ] && ok "unknown word on a factor line" || fail "unknown word on a factor line" "not exit 2"
+for opt in "--robust hc1" "--cluster area"; do
+    printf 'outcome y\nfamily poisson\nexposure py\nnumeric age\nfactor area many\nfactor sex\n' > "$tmp/r.model"
+    $bin fit --quiet $opt -m "$tmp/r.model" --json "$tmp/rob.json" "$tmp/d.csv" > /dev/null 2> "$tmp/r.err"
+    rc=$?
+    [ "$rc" -eq 2 ] && [ ! -e "$tmp/rob.json" ] && grep -q "not supported with a 'many' factor" "$tmp/r.err" &&
+        ok "robust refused: $opt" || fail "robust refused: $opt" "exit $rc: $(cat "$tmp/r.err")"
+done
 $bin score --fit "$tmp/base.json" --out "$tmp/s.csv" "$tmp/d.csv" > /dev/null 2> "$tmp/s.err"
 rc=$?
 [ "$rc" -eq 2 ] && [ ! -e "$tmp/s.csv" ] && ok "scoring refused" || fail "scoring refused" "exit $rc"
