@@ -736,6 +736,40 @@ MR_API const char *mr_output_lock_file(const mr_output_lock *lock);
 MR_API size_t mr_fit_nwarnings(const mr_fit *fit);
 MR_API const char *mr_fit_warning(const mr_fit *fit, size_t i);
 
+/* Calibration: observed against expected by tenths of the fitted mean.
+ * The last pass sums, for every row of positive prior weight w, its w,
+ * w y (observed) and w mu (expected) into bins of the fitted mean mu on a
+ * fixed grid (relative width 2^-4 on a log scale of |mu|; for means in
+ * (0, 1), of min(mu, 1 - mu) mirrored at 1/2), added in block order, so
+ * the same bits for any thread count or buffer size.  Whole bins are then
+ * cut into at most ten groups where the rows reach each tenth: a group's
+ * share of the rows is a tenth only to within a bin (fewer groups when
+ * the means are few), while its sums are exact.  The means are those at
+ * the coefficients reported, except for a fit of uncollapsed rows ended
+ * by the Newton decrement, where they are the last pass's, one step before
+ * (mr_fit_calibration_basis says which; the step lowers the deviance by
+ * less than a hundredth of the tolerance, relative).  With an intercept
+ * and a canonical link the expected total equals the observed total at
+ * the maximum (the score equation); a group's O/E far from 1 is a hint of
+ * a misfit along the mean, not a test.
+ *
+ * mr_fit_calibration_groups: the number of groups, or -1 for a fit read
+ * from a JSON written without them.  mr_fit_calibration_basis: what the
+ * numbers are, one line of text owned by the fit (NULL when -1 above).
+ * mr_fit_calibration_group: group i (0 = smallest means) into *out;
+ * MR_ERR_USAGE when i is out of range or there are none. */
+typedef struct mr_calibration_group {
+    uint64_t rows;       /* rows of positive weight (a pattern counts its rows) */
+    double weight;       /* sum of prior weights (weight x trials) */
+    double mean_low;     /* the least fitted mean in the group */
+    double mean_high;    /* the greatest */
+    double observed;     /* sum of w y (events, for binomial and poisson) */
+    double expected;     /* sum of w mu */
+} mr_calibration_group;
+MR_API int mr_fit_calibration_groups(const mr_fit *fit);
+MR_API const char *mr_fit_calibration_basis(const mr_fit *fit);
+MR_API mr_status mr_fit_calibration_group(const mr_fit *fit, size_t i, mr_calibration_group *out);
+
 /* Frees memory the library returned (mr_fit_report). NULL is fine. */
 MR_API void mr_free(void *p);
 

@@ -61,11 +61,15 @@ typedef struct mr__run {
     int warm_blocks, warm_polish_blocks; /* sample blocks of the two stages (0: none) */
     double null_b0, rel_change;
     int iterations, halvings, converged, by_decrement;
+    int calib_at_reported; /* the last bins are at the coefficients reported */
+    double decrement;      /* the last step's Newton decrement */
     double *pass_seconds;
     int npasses;
 } mr__run;
 
 mr_status mr__build_fit(mr__run *r, mr_fit **out, mr__error *err);
+/* The fit's calibration table from the last pass's bins (calibrate.c). */
+mr_status mr__fit_calibration(mr_fit *fit, const mr__run *r, mr__error *err);
 
 /* header.c: binds the columns on the first pass, checks the row after. */
 mr_status mr__run_on_header(void *user, const char *line, size_t len, mr__error *err);
