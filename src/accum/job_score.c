@@ -18,7 +18,7 @@
  * keys from key_at, and its observed and expected counts and exposure. */
 typedef struct group_row {
     size_t key_at, key_len;
-    double obs, exp, expo;
+    double obs, exp, expo, prior;
 } group_row;
 
 typedef struct score_slot {
@@ -408,6 +408,7 @@ static void note_group_row(score_worker *sw, score_slot *out, const score_row *r
     g->obs = row->prior * row->y;
     g->exp = row->prior * mu;
     g->expo = c->role_field[MR__SCORE_EXPOSURE] >= 0 ? sw->expo : NAN;
+    g->prior = row->prior;
 }
 
 static void score_one(score_worker *sw, uint32_t r, score_slot *out)
@@ -477,9 +478,11 @@ static mr_status grow_groups(mr__score_cfg *c, mr__error *err)
     if (e) c->g_exp = e;
     double *x = mr__realloc(c->g_expo, cap * sizeof *x);
     if (x) c->g_expo = x;
+    double *w = mr__realloc(c->g_prior, cap * sizeof *w);
+    if (w) c->g_prior = w;
     uint64_t *r = mr__realloc(c->g_rows, cap * sizeof *r);
     if (r) c->g_rows = r;
-    if (!o || !e || !x || !r) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    if (!o || !e || !x || !w || !r) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     c->g_cap = cap;
     return MR_OK;
 }
@@ -501,12 +504,13 @@ static mr_status add_groups(mr__score_cfg *c, const score_slot *out, mr__error *
         if (st != MR_OK) return mr__fail(err, st, "out of memory");
         if (c->groups.n > before) { /* a new group: ids come in order */
             if ((size_t)id == c->g_cap) MR__TRY(grow_groups(c, err));
-            c->g_obs[id] = c->g_exp[id] = c->g_expo[id] = 0;
+            c->g_obs[id] = c->g_exp[id] = c->g_expo[id] = c->g_prior[id] = 0;
             c->g_rows[id] = 0;
         }
         c->g_obs[id] += g->obs;
         c->g_exp[id] += g->exp;
         c->g_expo[id] += g->expo;
+        c->g_prior[id] += g->prior;
         c->g_rows[id]++;
     }
     return MR_OK;
