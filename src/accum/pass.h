@@ -34,7 +34,7 @@
 #include "accum/pass_job.h"
 
 /* Which job the pass runs: mr__job_scan or mr__job_irls. */
-typedef enum mr__pass_kind { MR__PASS_SCAN, MR__PASS_IRLS, MR__PASS_SCORE } mr__pass_kind;
+typedef enum mr__pass_kind { MR__PASS_SCAN, MR__PASS_IRLS, MR__PASS_SCORE, MR__PASS_SURVEY } mr__pass_kind;
 
 /* Memory one pass leaves to the next pass of the same fit: its slots'
  * buffers (a chunk, a decoded block, a packed block: about 3 MiB each) and
@@ -76,7 +76,8 @@ typedef struct mr__pass_cfg {
     size_t replay_stride; /* with a store to replay: every stride-th block (0, 1: all) */
     const mr__block_map *map; /* MR__PASS_IRLS reading the file: the first pass's map */
     mr__pass_pool *pool;  /* NULL, or memory to take from and leave to the next pass */
-    const void *job_arg;  /* MR__PASS_SCORE: its mr__score_cfg (accum/score.h) */
+    const void *job_arg;  /* MR__PASS_SCORE: its mr__score_cfg (accum/score.h);
+                             MR__PASS_SURVEY: its mr__survey_cfg (accum/survey.h) */
     int pass_number;
     mr_progress_fn progress;
     mr_progress_stop_fn progress_stop; /* nonzero: the pass fails with MR_ERR_STOPPED */
