@@ -88,7 +88,11 @@ static mr_status sums_alloc(mr__block_sums *s, size_t entries, size_t p, mr__err
     }
     memset(s->xtwx, 0, entries * sizeof *s->xtwx);
     memset(s->xtwz, 0, p * sizeof *s->xtwz);
-    return mr__calib_init(&s->calib, err);
+    if (mr__calib_init(&s->calib, err) != MR_OK) {
+        mr__sums_release(s);
+        return MR_ERR_NO_MEMORY;
+    }
+    return MR_OK;
 }
 
 mr_status mr__sums_init(mr__block_sums *s, size_t p, mr__error *err) { return sums_alloc(s, p * p, p, err); }
