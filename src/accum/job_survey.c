@@ -22,10 +22,7 @@ typedef struct survey_worker {
     const mr__survey_cfg *c;
     mr__tokenizer tok;
     mr__numparser *np;
-    size_t *at, *len;
-    char *buf;
-    size_t used, cap;
-    int nomem;
+    mr__row_cells cells;
     mr__pass_slot *s;
 } survey_worker;
 
@@ -115,9 +112,7 @@ static mr_status survey_worker_init(void *job, mr__pass_worker *w, mr__error *er
     w->part = sw;
     sw->c = c;
     sw->np = mr__numparser_new();
-    sw->at = mr__calloc(c->nfields + 1, sizeof *sw->at);
-    sw->len = mr__calloc(c->nfields + 1, sizeof *sw->len);
-    if (sw->np == NULL || sw->at == NULL || sw->len == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    if (sw->np == NULL || mr__row_cells_init(&sw->cells, c->nfields) != MR_OK) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     return mr__tokenizer_init(&sw->tok, c->delim, err);
 }
 
@@ -131,21 +126,7 @@ static int wants_nothing_packed(void *job, const mr__pass_slot *s)
 static void on_field(void *user, size_t k, const char *p, size_t len)
 {
     survey_worker *sw = user;
-    if (k >= sw->c->nfields) return;
-    if (sw->used + len > sw->cap) {
-        size_t cap = 2 * (sw->used + len) + 256;
-        char *b = mr__realloc(sw->buf, cap);
-        if (b == NULL) {
-            sw->nomem = 1;
-            return;
-        }
-        sw->buf = b;
-        sw->cap = cap;
-    }
-    memcpy(sw->buf + sw->used, p, len);
-    sw->at[k] = sw->used;
-    sw->len[k] = len;
-    sw->used += len;
+    mr__row_cells_put(&sw->cells, k, p, len);
 }
 
 static int is_missing(const mr__survey_cfg *c, const char *p, size_t n)
@@ -199,9 +180,10 @@ static void on_row_end(void *user, uint32_t r, size_t nfields)
             out->first_malformed_fields = nfields;
         }
     } else {
-        for (k = 0; k < nfields; k++) survey_cell(sw, &out->col[k], k, sw->buf + sw->at[k], sw->len[k], out);
+        for (k = 0; k < nfields; k++)
+            survey_cell(sw, &out->col[k], k, sw->cells.buf + sw->cells.at[k], sw->cells.len[k], out);
     }
-    sw->used = 0;
+    sw->cells.used = 0;
 }
 
 static void reset_slot(const mr__survey_cfg *c, survey_slot *out)
@@ -229,10 +211,10 @@ static void survey_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
     }
     reset_slot(c, out);
     sw->s = s;
-    sw->used = 0;
+    sw->cells.used = 0;
     st = mr__tokenize_chunk(&sw->tok, s->chunk, &sink, c->display, &s->err);
     if (st != MR_OK && s->st == MR_OK) s->st = st;
-    if (s->st == MR_OK && (sw->nomem || out->nomem)) s->st = mr__fail(&s->err, MR_ERR_NO_MEMORY, "out of memory");
+    if (s->st == MR_OK && (sw->cells.nomem || out->nomem)) s->st = mr__fail(&s->err, MR_ERR_NO_MEMORY, "out of memory");
 }
 
 /* A block's table into the column's, values in their order of first
@@ -306,9 +288,7 @@ static void survey_worker_release(void *job, mr__pass_worker *w)
     if (sw == NULL) return;
     mr__tokenizer_release(&sw->tok);
     mr__numparser_free(sw->np);
-    mr__free(sw->at);
-    mr__free(sw->len);
-    mr__free(sw->buf);
+    mr__row_cells_release(&sw->cells);
     mr__free(sw);
     w->part = NULL;
 }
