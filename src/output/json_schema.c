@@ -149,7 +149,7 @@ static const mr__jfield coefficient_fields[] = {
     EACH("name", MR__J_TEXT, name),
     EACH("aliased", MR__J_BOOL, aliased),
     EACH("estimate", MR__J_REAL, beta),
-    EACH("std_error", MR__J_REAL, se),
+    EACH("standard_error", MR__J_REAL, se),
     EACH("statistic", MR__J_REAL, stat),
     EACH("p_value", MR__J_REAL, pval),
     EACH("ci_low", MR__J_REAL, lo),
@@ -162,9 +162,9 @@ static const mr__jfield coefficient_fields[] = {
 
 static const mr__jfield statistics_fields[] = {
     F("deviance", MR__J_REAL, deviance),
-    F("df_residual", MR__J_REAL, df_residual),
+    F("residual_df", MR__J_REAL, df_residual),
     F("null_deviance", MR__J_REAL, null_deviance),
-    F("df_null", MR__J_REAL, df_null),
+    F("null_df", MR__J_REAL, df_null),
     F("pearson_chi2", MR__J_REAL, pearson),
     F("dispersion", MR__J_REAL, dispersion),
     F("log_likelihood", MR__J_REAL, loglik),
@@ -198,7 +198,8 @@ static const mr__jfield calibration_group_fields[] = {
 };
 
 /* Observed and expected by tenths of the fitted mean.  Added within
- * format_version 2, so optional, like "run". */
+ * format_version 3, so optional: a fit written without it (version 2 or
+ * an earlier 3) reads back without it. */
 static const mr__jfield calibration_fields[] = {
     F("basis", MR__J_TEXT, calib_basis),
     {"groups", MR__J_STRUCTS, AT(calib), AT(ncalib), sizeof(mr__calib_group), 0, 0, 0, NULL, NULL,
