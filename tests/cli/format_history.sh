@@ -16,8 +16,9 @@ data="$root/samples/falls.csv"
 "$bin" fit --quiet --model "$tmp/small.model" --json "$tmp/now.json" "$data" > "$tmp/now.txt" 2> "$tmp/err"
 "$bin" show "$old" > "$tmp/old.txt" 2>> "$tmp/err"
 if grep -q '^  intercept  ' "$tmp/old.txt" && grep -q '^  coefficient  .* SE  ' "$tmp/old.txt" &&
-    diff <(sed -n '/^coefficients/,$p' "$tmp/now.txt") <(sed -n '/^coefficients/,$p' "$tmp/old.txt") > /dev/null; then
-    ok "show of a format 2 fit: today's names, today's table"
+    diff -B <(sed -n '/^coefficients/,$p' "$tmp/now.txt" | sed '/^calibration: /,/^  groups are whole bins/d') \
+        <(sed -n '/^coefficients/,$p' "$tmp/old.txt") > /dev/null; then
+    ok "show of a format 2 fit: today's names, today's table (it has no calibration)"
 else
     fail "show of a format 2 fit" "$(head -c 300 "$tmp/err")"
 fi
