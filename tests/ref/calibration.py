@@ -40,6 +40,8 @@ import tempfile
 import numpy as np
 import statsmodels.api as sm
 
+from score_samples import design  # the design matrix from the fit's coefficient names
+
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 BIN = os.path.join(ROOT, "build", "millrace")
 SAMPLES = os.path.join(ROOT, "samples")
@@ -58,22 +60,6 @@ def fit(tmp, name, *args, data=None):
                     *args, data or os.path.join(SAMPLES, name.split("_")[0] + ".csv")],
                    check=True, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
     return json.load(open(out))
-
-
-def design(names, rows):
-    """The design matrix from coefficient names: the intercept, 'col',
-    'col=level', parts joined by ' & '."""
-    X = np.ones((len(rows), len(names)))
-    for j, name in enumerate(names):
-        if name in ("(intercept)", "intercept"):
-            continue
-        for part in name.split(" & "):
-            if "=" in part:
-                col, level = part.split("=", 1)
-                X[:, j] *= np.array([r[col] == level for r in rows], dtype=float)
-            else:
-                X[:, j] *= np.array([float(r[part]) for r in rows])
-    return X
 
 
 def regroup(groups, mu, y, w):
