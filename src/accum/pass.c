@@ -723,6 +723,7 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
             : cfg->kind == MR__PASS_SCORE   ? &mr__job_score
             : cfg->kind == MR__PASS_SURVEY  ? &mr__job_survey
                                             : &mr__job_irls;
+    if (cfg->ops != NULL) e.ops = cfg->ops;
     e.nworkers = cfg->nthreads > 0 ? (size_t)cfg->nthreads : 1;
     /* Two blocks per worker (one being computed, one waiting), one being
      * read, one being added, and slack for blocks that finish out of
