@@ -57,7 +57,7 @@ DEBIAN_PACKAGES := build-essential pkg-config libzstd-dev zlib1g-dev libopenblas
 # runtime build the libFuzzer targets (make fuzz-check).
 TEST_PACKAGES := zstd gzip check libsubunit-dev python3 python3-numpy python3-scipy \
                  python3-statsmodels r-base-core r-cran-mass valgrind time groff-base gfortran chromium \
-                 clang libclang-rt-dev
+                 clang libclang-rt-dev python3-html5lib
 
 ifeq ($(V),1)
 Q :=
