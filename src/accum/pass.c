@@ -721,6 +721,7 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     e.cfg = cfg;
     e.ops = cfg->kind == MR__PASS_SCAN      ? &mr__job_scan
             : cfg->kind == MR__PASS_SCORE   ? &mr__job_score
+            : cfg->kind == MR__PASS_MEAT    ? &mr__job_meat
             : cfg->kind == MR__PASS_SURVEY  ? &mr__job_survey
                                             : &mr__job_irls;
     if (cfg->ops != NULL) e.ops = cfg->ops;
@@ -776,5 +777,6 @@ void mr__pass_result_release(mr__pass_result *res, size_t nfac)
     mr__block_map_release(&res->map);
     mr__scan_release(&res->scan);
     mr__sums_release(&res->sums);
+    mr__sums_release(&res->bread);
     memset(res, 0, sizeof *res);
 }
