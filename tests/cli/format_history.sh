@@ -40,8 +40,9 @@ sys.exit(0 if ok else 1)
 END
 }
 if grep -q '^  intercept  ' "$tmp/old.txt" && grep -q '^  coefficient  .* SE  ' "$tmp/old.txt" &&
-    same_table "$tmp/now.txt" "$tmp/old.txt"; then
-    ok "show of a format 2 fit: today's names, today's table"
+    sed '/^calibration: /,/^  groups are whole bins/d' "$tmp/now.txt" > "$tmp/now-table.txt" &&
+    same_table "$tmp/now-table.txt" "$tmp/old.txt"; then
+    ok "show of a format 2 fit: today's names, today's table (it has no calibration)"
 else
     fail "show of a format 2 fit" "$(head -c 300 "$tmp/err")"
 fi
