@@ -23,7 +23,7 @@ data="$root/samples/falls.csv"
 same_table() {
     /usr/bin/python3 - "$1" "$2" <<'END'
 import sys
-a, b = (open(p).read().split("\ncoefficients", 1)[1].split("\n") for p in sys.argv[1:])
+a, b = ([ln for ln in open(p).read().split("\ncoefficients", 1)[1].split("\n") if ln.strip()] for p in sys.argv[1:])
 def num(w):
     try:
         return float(w)
