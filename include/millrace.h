@@ -879,9 +879,9 @@ MR_API const char *mr_fit_warning(const mr_fit *fit, size_t i);
  * share of the rows is a tenth only to within a bin (fewer groups when
  * the means are few), while its sums are exact.  The means are those at
  * the coefficients reported, except for a fit of uncollapsed rows ended
- * by the Newton decrement, where they are the last pass's, one step before
- * (mr_fit_calibration_basis says which; the step lowers the deviance by
- * less than a hundredth of the tolerance, relative).  With an intercept
+ * by the size of its step, where they are the last pass's, one step before
+ * (mr_fit_calibration_basis says which, and how large that step was in
+ * standard errors: at most the tolerance).  With an intercept
  * and a canonical link the expected total equals the observed total at
  * the maximum (the score equation); a group's O/E far from 1 is a hint of
  * a misfit along the mean, not a test.
