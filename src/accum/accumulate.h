@@ -7,6 +7,7 @@
 #define MR_ACCUMULATE_H
 
 #include <stdint.h>
+#include "accum/calibration.h"
 #include "accum/decode.h"
 #include "model/design.h"
 
@@ -20,6 +21,8 @@ typedef struct mr__irls_point {
     int null_intercept; /* the null model has an intercept */
     int null_skip;      /* its sums are known already: leave them out */
     double null_b0;     /* its current value */
+    int calibrate;      /* bin the fitted means (accum/calibration.h) */
+    int calib_unit;     /* the means lie in (0, 1) */
 } mr__irls_point;
 
 typedef struct mr__block_sums {
@@ -36,6 +39,7 @@ typedef struct mr__block_sums {
      * solve/absorb.h, accum/levelsums.h); NULL otherwise.  Owned. */
     double *lev;
     size_t nlev;
+    mr__calib calib;   /* observed and expected by fitted mean (not encoded) */
 } mr__block_sums;
 
 /* Scratch space a worker owns: one block of the design and per-row

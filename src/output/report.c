@@ -11,6 +11,7 @@
 #include "input/codec.h"
 #include "input/chunk.h"
 #include "output/report_many.h"
+#include "output/report_calib.h"
 
 #define DEFAULT_DIGITS 6
 
@@ -256,6 +257,7 @@ char *mr_fit_report(const mr_fit *f, int digits)
     mr__report_many(&b, f, digits);
     section_term_tests(&b, f, digits);
     section_statistics(&b, f, digits);
+    mr__report_calibration(&b, f, digits);
     if (f->nwarnings) mr__strbuf_printf(&b, "\nwarnings\n");
     for (i = 0; i < f->nwarnings; i++) mr__strbuf_printf(&b, "  ! %s\n", f->warning[i]);
     return mr__strbuf_take(&b);
