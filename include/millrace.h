@@ -394,8 +394,14 @@ typedef enum mr_stat {
     MR_STAT_FAMILY_PARAMETER = 17, /* the family's own parameter: a negative
                                 binomial's theta, a Tweedie power; NaN for a
                                 family without one                          */
-    MR_STAT_START_CARRIED = 18 /* coefficients taken from the previous fit
+    MR_STAT_START_CARRIED = 18, /* coefficients taken from the previous fit
                                   (mr_fitter_set_start); NaN without one     */
+    MR_STAT_FAMILY_PARAMETER_SE = 19 /* the standard error of an estimated
+                                family parameter (a negative binomial's theta
+                                by maximum likelihood): 1/sqrt of its observed
+                                information at the final means, the
+                                coefficients held; NaN when the parameter was
+                                given or the family has none                 */
 } mr_stat;
 /* A fit statistic; NaN for an unknown `which`. */
 MR_API double mr_fit_stat(const mr_fit *fit, mr_stat which);

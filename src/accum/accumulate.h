@@ -8,6 +8,7 @@
 
 #include <stdint.h>
 #include "accum/decode.h"
+#include "family/family.h"
 #include "model/design.h"
 
 typedef struct mr__irls_point {
@@ -29,6 +30,9 @@ typedef struct mr__block_sums {
     double dev, pearson, null_dev, null_sw, null_swz;
     uint64_t invalid;  /* rows whose eta or mu left the family's domain */
     uint64_t boundary; /* rows fitted at the edge of the domain */
+    /* the family's own sums (family.h, MR__PS_*): zero for a family that
+     * has none to add at this point */
+    double fam[MR__PARAM_SUMS];
 } mr__block_sums;
 
 /* Scratch space a worker owns: one block of the design and per-row

@@ -168,6 +168,7 @@ double mr_fit_stat(const mr_fit *fit, mr_stat which)
     case MR_STAT_LEVEL: return fit->level;
     case MR_STAT_FAMILY_PARAMETER: return fit->family_param_given ? fit->family_param : NAN;
     case MR_STAT_START_CARRIED: return fit->start_given ? (double)fit->start_carried : NAN;
+    case MR_STAT_FAMILY_PARAMETER_SE: return fit->family_param_estimated ? fit->family_param_se : NAN;
     }
     return NAN;
 }

@@ -56,6 +56,10 @@ struct mr_fit {
      * (family_param_given 1), else NaN */
     double family_param;
     int family_param_given;
+    /* it was estimated (maximum likelihood), with this standard error
+     * (from its observed information at the final means), else NaN */
+    int family_param_estimated;
+    double family_param_se;
     char *outcome, *trials, *offset, *exposure, *weight;
     mr__fit_term *term;
     size_t nterms;

@@ -36,6 +36,10 @@ mr_status mr__irls_init(mr__irls *s, const mr__irls_cfg *cfg, mr__error *err)
     s->null_b0 = cfg->null_b0;
     s->null_dev_prev = INFINITY;
     s->null_done = !cfg->null_intercept || cfg->null_exact;
+    s->param_estimate = cfg->param_estimate;
+    s->param = s->param_prev = cfg->param_estimate ? cfg->param_start : NAN;
+    s->param_phase = cfg->param_known;
+    s->param_step = INFINITY;
     if (cfg->start) {
         memcpy(s->beta, cfg->start, cfg->p * sizeof *s->beta);
         s->have_beta = 1;
@@ -55,6 +59,49 @@ void mr__irls_release(mr__irls *s)
 
 const double *mr__irls_beta(const mr__irls *s) { return s->have_beta ? s->beta : NULL; }
 
+double mr__irls_param(const mr__irls *s) { return s->param_estimate ? s->param : NAN; }
+
+/* What step halving and convergence judge: the deviance, or with the
+ * family's parameter estimated -2 log-likelihood (the deviance is
+ * measured from a saturated model that moves with the parameter). */
+static double objective(const mr__irls *s, const mr__block_sums *sums)
+{
+    return s->param_estimate ? -2.0 * sums->fam[MR__PS_LOGLIK] : sums->dev;
+}
+
+/* The parameter's Newton step at this pass, relative to it, is below
+ * 1e-3 sqrt(tolerance): Newton's quadratic convergence leaves the value
+ * then within the square of that of its maximum given the means. */
+static int param_settled(const mr__irls *s, const mr__block_sums *sums)
+{
+    double info = sums->fam[MR__PS_INFO];
+    if (!s->param_estimate) return 1;
+    return s->param_phase == 1 && info > 0 &&
+           fabs(sums->fam[MR__PS_SCORE] / info) < 1e-3 * sqrt(s->tolerance) * s->param;
+}
+
+/* The next value of the parameter from the pass's sums: the first time
+ * at the data's own means the moment estimate sum w / sum w (y/mu - 1)^2
+ * (a start far off would cost Newton steps), then a Newton step, kept
+ * within a factor of 10 of the value and positive. */
+static void next_param(mr__irls *s, const mr__block_sums *sums)
+{
+    double th = s->param, score = sums->fam[MR__PS_SCORE], info = sums->fam[MR__PS_INFO], next;
+    const double *f = sums->fam;
+    s->param_prev = th;
+    if (s->param_phase == 0) {
+        next = f[MR__PS_MOMENT] > 0 ? f[MR__PS_WEIGHT] / f[MR__PS_MOMENT] : th;
+        s->param_phase = 1;
+        s->param_jump = 1;
+    } else {
+        next = info > 0 ? th + score / info : (score > 0 ? 2 * th : 0.5 * th);
+        next = fmin(fmax(next, 0.1 * th), 10 * th);
+    }
+    if (!(isfinite(next) && next > 0)) next = th;
+    s->param_step = fabs(next - th) / th;
+    s->param = next;
+}
+
 /* Once the null model has converged its deviance no longer changes, and
  * a pass leaves its per-row work (a mean, a variance and a log each) out. */
 const double *mr__irls_null_deviance(const mr__irls *s) { return s->null_known ? &s->null_dev : NULL; }
@@ -67,15 +114,18 @@ void mr__irls_coefficients(const mr__irls *s, double *out)
 
 static int bad_point(const mr__block_sums *sums, const mr__irls *s)
 {
-    if (sums->invalid > 0 || !isfinite(sums->dev)) return 1;
-    /* A rise beyond rounding noise means the Newton step overshot. */
-    return s->have_prev && sums->dev > s->dev_prev + 1e-9 * (fabs(s->dev_prev) + 0.1);
+    double obj = objective(s, sums);
+    if (sums->invalid > 0 || !isfinite(sums->dev) || !isfinite(obj)) return 1;
+    /* A rise beyond rounding noise means the Newton step overshot (a
+     * parameter's jump to its moment estimate may raise it rightly). */
+    return s->have_prev && !s->param_jump && obj > s->dev_prev + 1e-9 * (fabs(s->dev_prev) + 0.1);
 }
 
 static void halve_step(mr__irls *s)
 {
     size_t j;
     for (j = 0; j < s->p; j++) s->beta[j] = 0.5 * (s->beta[j] + s->prev[j]);
+    if (s->param_estimate) s->param = 0.5 * (s->param + s->param_prev);
 }
 
 /* (v - G b)' (b_next - b): the Newton decrement, which is the deviance
@@ -105,14 +155,16 @@ static mr_status next_point(mr__irls *s, const mr__block_sums *sums, mr__error *
     s->have_prev = s->have_beta;
     s->have_beta = 1;
     s->have_dev = 1;
-    s->dev_prev = sums->dev;
+    s->dev_prev = objective(s, sums);
+    if (s->param_estimate && s->have_prev) next_param(s, sums);
     if (s->null_intercept && sums->null_sw > 0) {
         double b0 = sums->null_swz / sums->null_sw;
         /* One parameter converges fast, and its deviance repeats only to
          * rounding (~1e-13 with an offset): a tighter test might never pass. */
         s->null_done = s->null_done || relative_change(sums->null_dev, s->null_dev_prev) < fmax(s->tolerance, 1e-12);
         s->null_dev_prev = sums->null_dev;
-        if (!s->null_done) s->null_b0 = b0;
+        /* with the parameter moving, the null model's maximum moves too */
+        if (!s->null_done || s->param_estimate) s->null_b0 = b0;
     }
     return MR_OK;
 }
@@ -159,8 +211,8 @@ static mr_status note_deviance(mr__irls *s, double dev, mr__error *err)
 static int converged_by_deviance(mr__irls *s, const mr__block_sums *sums)
 {
     if (!s->have_dev) return 0;
-    s->rel_change = relative_change(sums->dev, s->dev_prev);
-    return s->rel_change < s->tolerance && s->null_done;
+    s->rel_change = relative_change(objective(s, sums), s->dev_prev);
+    return s->rel_change < s->tolerance && s->null_done && param_settled(s, sums);
 }
 
 /* When the step just solved would remove a hundredth of the tolerance or
@@ -173,7 +225,7 @@ static int converged_by_deviance(mr__irls *s, const mr__block_sums *sums)
 static int converged_by_decrement(mr__irls *s, const mr__block_sums *sums)
 {
     double share = fabs(s->decrement) / (fabs(sums->dev) + 0.1);
-    if (!s->null_done || !(share < MR__IRLS_DECREMENT_SHARE * s->tolerance)) return 0;
+    if (!s->null_done || !(share < MR__IRLS_DECREMENT_SHARE * s->tolerance) || !param_settled(s, sums)) return 0;
     s->rel_change = share;
     s->by_decrement = 1;
     return 1;
@@ -187,6 +239,7 @@ mr_status mr__irls_step(mr__irls *s, const mr__block_sums *sums, const char *dis
     MR__TRY(accept_point(s, sums, display, &accepted, err));
     if (!accepted) return MR_OK;
     s->halving_run = 0;
+    s->param_jump = 0;
     s->iterations++;
     MR__TRY(note_deviance(s, sums->dev, err));
     if (converged_by_deviance(s, sums)) {
@@ -198,7 +251,7 @@ mr_status mr__irls_step(mr__irls *s, const mr__block_sums *sums, const char *dis
         return MR_OK;
     }
     MR__TRY(next_point(s, sums, err));
-    if (s->null_done && !s->null_known) {
+    if (s->null_done && !s->null_known && !s->param_estimate) {
         /* This pass evaluated the null model at its final b0: later
          * passes leave its per-row work out. */
         s->null_dev = sums->null_dev;
@@ -214,8 +267,10 @@ mr_status mr__irls_step(mr__irls *s, const mr__block_sums *sums, const char *dis
 #define IRLS_INTS(X)                                                                                              \
     X(max_iterations) X(step_at_end) X(null_intercept) X(family) X(from_start) X(have_beta) X(have_prev)        \
     X(have_dev) X(cold_restart) X(null_done) X(null_known) X(halving_run) X(iterations) X(halvings) X(passes) \
-    X(converged) X(by_decrement) X(restarted)
-#define IRLS_DOUBLES(X) X(tolerance) X(dev_prev) X(decrement) X(rel_change) X(null_b0) X(null_dev) X(null_dev_prev)
+    X(converged) X(by_decrement) X(restarted) X(param_estimate) X(param_phase) X(param_jump)
+#define IRLS_DOUBLES(X)                                                                                          \
+    X(tolerance) X(dev_prev) X(decrement) X(rel_change) X(null_b0) X(null_dev) X(null_dev_prev) X(param)        \
+    X(param_prev) X(param_step)
 #define COUNT(f) +1
 enum { NINTS = 0 IRLS_INTS(COUNT), NDOUBLES = 0 IRLS_DOUBLES(COUNT), HEAD = 8 + 8 + 8 };
 

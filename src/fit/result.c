@@ -131,11 +131,39 @@ static mr_status map_to_raw(const mr__design *d, const double *beta_s, const dou
  * first pass (see accum/scan.h); for gaussian, gamma and inverse-gaussian
  * the dispersion in the density is the deviance-based estimate, as is
  * usual for these summaries. */
+/* A series density's log-likelihood (family.h, loglik_by_rows): the last
+ * pass summed it at the dispersion of the point before, with its first two
+ * derivatives in log(dispersion); a second-order Taylor step carries it to
+ * the deviance-based dispersion of the last pass itself (their logs differ
+ * by about the relative change of the deviance, so the step's error is
+ * of the order of its cube).  NaN when the last pass summed none (a fit
+ * stopped before its steps were small). */
+static double series_loglik(const mr__run *r, double deviance)
+{
+    const double *fam = r->last.sums.fam;
+    double sw = r->first.scan.sw, used = r->loglik_dispersion, step;
+    if (isnan(used) || !(sw > 0) || !(deviance > 0)) return NAN;
+    step = log(deviance / sw / used);
+    return fam[MR__PS_LOGLIK] + step * (fam[MR__PS_SCORE] + 0.5 * step * fam[MR__PS_INFO]);
+}
+
+/* The log-likelihood: with the family's parameter estimated, the last
+ * pass's own sum; for a series density, series_loglik; else from the
+ * deviance.  An estimated parameter counts in AIC and BIC. */
+static double fit_loglik(const mr_fit *fit, const mr__run *r, double *extra)
+{
+    const mr__scan_sums *s = &r->first.scan;
+    *extra = r->family.estimate ? 1 : 0;
+    if (r->family.estimate) return r->last.sums.fam[MR__PS_LOGLIK];
+    if (r->family.ops->loglik_by_rows) return series_loglik(r, fit->deviance);
+    return r->family.ops->loglik(&r->family, fit->deviance, s->llc, (double)fit->n, s->sw);
+}
+
 static void set_fit_statistics(mr_fit *fit, const mr__run *r)
 {
     const mr__scan_sums *s = &r->first.scan;
     const mr__block_sums *last = &r->last.sums;
-    double k;
+    double k, extra;
     fit->deviance = last->dev;
     fit->pearson = last->pearson;
     fit->null_deviance = last->null_dev;
@@ -143,8 +171,8 @@ static void set_fit_statistics(mr_fit *fit, const mr__run *r)
     fit->df_residual = (double)fit->n - (double)fit->rank;
     fit->df_null = (double)fit->n - (r->f->spec.intercept ? 1 : 0);
     fit->dispersion = fit->dispersion_estimated ? (fit->df_residual > 0 ? fit->pearson / fit->df_residual : NAN) : 1.0;
-    fit->loglik = r->family.ops->loglik(&r->family, fit->deviance, s->llc, (double)fit->n, s->sw);
-    k = (double)fit->rank + r->family.ops->dispersion_counts;
+    fit->loglik = fit_loglik(fit, r, &extra);
+    k = (double)fit->rank + r->family.ops->dispersion_counts + extra;
     fit->aic = -2 * fit->loglik + 2 * k;
     fit->bic = -2 * fit->loglik + log((double)fit->n) * k;
 }
@@ -306,8 +334,12 @@ static mr_status copy_model(mr_fit *fit, const mr__run *r, mr__error *err)
     const mr__spec *s = &r->f->spec;
     size_t i, l;
     fit->family = s->family;
-    fit->family_param = s->family_param;
-    fit->family_param_given = !isnan(s->family_param);
+    fit->family_param = r->family.estimate ? r->family.param : s->family_param;
+    fit->family_param_given = !isnan(fit->family_param);
+    fit->family_param_estimated = r->family.estimate;
+    fit->family_param_se = NAN;
+    if (r->family.estimate && r->last.sums.fam[MR__PS_INFO] > 0)
+        fit->family_param_se = 1 / sqrt(r->last.sums.fam[MR__PS_INFO]);
     fit->link = mr__spec_link(s);
     fit->intercept = s->intercept;
     fit->dispersion_estimated = mr__spec_dispersion_estimated(s);

@@ -179,6 +179,8 @@ static mr_status parse_family(mr__spec *s, const words *ws, const char *origin, 
     for (i = 2; i < ws->n; i++) MR__TRY(ops->parse_param(&param, ws->w[i], origin, err));
     s->family = v;
     s->family_param = param;
+    /* no value, or NAME=estimate (NaN from parse_param): estimated */
+    s->family_estimate = ops->param_estimable && isnan(param);
     return MR_OK;
 }
 
@@ -415,7 +417,7 @@ int mr__spec_dispersion_estimated(const mr__spec *s)
 
 mr__family mr__spec_family(const mr__spec *s)
 {
-    mr__family fam = {mr__family_ops_of((mr_family)s->family), s->family_param};
+    mr__family fam = {mr__family_ops_of((mr_family)s->family), s->family_param, s->family_estimate, NAN};
     return fam;
 }
 
@@ -447,7 +449,7 @@ mr_status mr__spec_validate(const mr__spec *s, mr__error *err)
     if (!mr__link_allowed((mr_family)s->family, (mr_link)link))
         return mr__fail(err, MR_ERR_USAGE, "model: the %s family does not take the %s link",
                         mr__family_name((mr_family)s->family), mr__link_name((mr_link)link));
-    if (ops->param_name != NULL && isnan(s->family_param))
+    if (ops->param_name != NULL && isnan(s->family_param) && !s->family_estimate)
         return mr__fail(err, MR_ERR_USAGE, "model: the %s family needs its %s (family %s %s=VALUE)", ops->name,
                         ops->param_name, ops->name, ops->param_name);
     if (s->trials != NULL && !ops->takes_trials)

@@ -68,7 +68,11 @@ static void section_model(mr__strbuf *b, const mr_fit *f)
     size_t i;
     const char *param = mr__fit_family_param_name(f);
     mr__strbuf_printf(b, "model      %s family", mr__family_name((mr_family)f->family));
-    if (param != NULL) mr__strbuf_printf(b, " (%s %.15g, fixed)", param, f->family_param);
+    if (param != NULL && f->family_param_estimated)
+        mr__strbuf_printf(b, " (%s %.10g, standard error %.4g, maximum likelihood)", param, f->family_param,
+                          f->family_param_se);
+    else if (param != NULL)
+        mr__strbuf_printf(b, " (%s %.15g, fixed)", param, f->family_param);
     mr__strbuf_printf(b, ", %s link, %zu coefficients (rank %zu)%s\n", mr__link_name((mr_link)f->link), f->p,
                       f->rank, f->intercept ? "" : ", no intercept");
     mr__strbuf_printf(b, "           outcome %s", f->outcome);
@@ -199,6 +203,13 @@ static void section_statistics(mr__strbuf *b, const mr_fit *f, int digits)
     mr__strbuf_printf(b, "  pearson chi-square  %.*g\n", digits + 2, f->pearson);
     mr__strbuf_printf(b, "  dispersion          %.*g (%s)\n", digits + 2, f->dispersion,
                       f->dispersion_estimated ? "estimated: pearson chi-square / residual df" : "fixed");
+    if (mr__family_ops_of((mr_family)f->family)->loglik_by_rows && isnan(f->loglik)) {
+        mr__strbuf_printf(b, "  log-likelihood      not computed: the fit stopped before its steps were small "
+                             "enough to sum the %s density\n",
+                          mr__family_name((mr_family)f->family));
+        mr__strbuf_printf(b, "  AIC, BIC            not computed\n");
+        return;
+    }
     if (mr__family_ops_of((mr_family)f->family)->no_loglik) {
         mr__strbuf_printf(b, "  log-likelihood      not computed: the %s density has no closed form\n",
                           mr__family_name((mr_family)f->family));
