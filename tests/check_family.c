@@ -769,7 +769,7 @@ END_TEST
 
 static mr__family with_param(mr_family f, double param)
 {
-    mr__family x = {mr__family_ops_of(f), param};
+    mr__family x = {mr__family_ops_of(f), param, 0, NAN};
     return x;
 }
 

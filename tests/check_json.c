@@ -315,10 +315,19 @@ START_TEST(round_trip_family_parameter)
     ck_assert_ptr_nonnull(strstr(text, "\"name\": \"theta\",\n   \"value\": 2.5\n"));
     free(text);
     round_trip(fit, "negative binomial");
-    lines2[1] = "family tweedie power=1.25"; /* no log-likelihood: null, read back as NaN */
+    lines2[1] = "family tweedie power=1.25"; /* its log-likelihood by the series */
     fit = fit_with(NULL, lines2, sizeof lines2 / sizeof lines2[0], in_dir("nb.csv"), 0);
-    ck_assert(isnan(mr_fit_stat(fit, MR_STAT_LOG_LIKELIHOOD)) && mr_fit_stat(fit, MR_STAT_FAMILY_PARAMETER) == 1.25);
+    ck_assert(isfinite(mr_fit_stat(fit, MR_STAT_LOG_LIKELIHOOD)) && mr_fit_stat(fit, MR_STAT_FAMILY_PARAMETER) == 1.25);
+    ck_assert(isnan(mr_fit_stat(fit, MR_STAT_FAMILY_PARAMETER_SE)));
     round_trip(fit, "tweedie");
+    lines2[1] = "family negative-binomial"; /* theta estimated, with its standard error */
+    fit = fit_with(NULL, lines2, sizeof lines2 / sizeof lines2[0], in_dir("nb.csv"), 0);
+    ck_assert(mr_fit_stat(fit, MR_STAT_FAMILY_PARAMETER) > 0 && mr_fit_stat(fit, MR_STAT_FAMILY_PARAMETER_SE) > 0);
+    ck_assert_msg(mr_fit_write_json(fit, in_dir("good.json"), msg, sizeof msg) == MR_OK, "%s", msg);
+    text = slurp(in_dir("good.json"));
+    ck_assert_ptr_nonnull(strstr(text, "\"estimated\": {\n    \"standard_error\": "));
+    free(text);
+    round_trip(fit, "negative binomial, theta estimated");
 }
 END_TEST
 

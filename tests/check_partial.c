@@ -98,7 +98,7 @@ START_TEST(layout_is_little_endian)
     ck_assert_uint_le(mr__partial_size(1), sizeof buf);
     ck_assert_uint_eq(mr__partial_size(1), 32 + 8 * 14);
     mr__partial_encode(&a, 1, r, buf);
-    ck_assert(memcmp(buf, "MRPS\1\0\0\0\1\0\0\0\0\0\0\0\2\1\0\0\0\0\0\0\3\0\0\0\0\0\0\0", 32) == 0);
+    ck_assert(memcmp(buf, "MRPS\2\0\0\0\1\0\0\0\0\0\0\0\2\1\0\0\0\0\0\0\3\0\0\0\0\0\0\0", 32) == 0);
     ck_assert(memcmp(buf + 32, "\0\0\0\0\0\0\xF0\x3F", 8) == 0);
     mr__sums_release(&a);
 }

@@ -61,7 +61,8 @@ typedef struct mr__family {
 /* What a family's param_sums_n adds up over rows, in this order.  A
  * negative binomial with theta estimated: the log-likelihood, theta's
  * score and observed information (with the means fixed), and the sums of
- * w (y/mu - 1)^2 and w, whose ratio n / sum gives a first theta.  A family
+ * w ((y - mu)^2 - y) and w mu^2, whose ratio estimates 1/theta by moments
+ * (E (y - mu)^2 - y = mu^2 / theta).  A family
  * whose log-likelihood is a series (tweedie): the log-likelihood at
  * f->dispersion and its first and second derivatives in log(dispersion),
  * which carry it to the dispersion the pass itself gives. */

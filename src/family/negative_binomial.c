@@ -55,13 +55,13 @@ static void nb_row_sums(double theta, double y, double mu, double w, double *s)
 {
     double tm = theta + mu, lt = log(theta / tm);
     double ll = mr__log_gamma(y + theta) - mr__log_gamma(theta) - mr__log_gamma(y + 1) + theta * lt;
-    double r = y / mu - 1;
+    double r = y - mu;
     if (y > 0) ll += y * log(mu / tm);
     s[MR__PS_LOGLIK] += w * ll;
     s[MR__PS_SCORE] += w * (mr__digamma(y + theta) - mr__digamma(theta) + lt + 1 - (y + theta) / tm);
     s[MR__PS_INFO] += w * (mr__trigamma(theta) - mr__trigamma(y + theta) - 1 / theta + 2 / tm - (y + theta) / (tm * tm));
-    s[MR__PS_MOMENT] += w * r * r;
-    s[MR__PS_WEIGHT] += w;
+    s[MR__PS_MOMENT] += w * (r * r - y);
+    s[MR__PS_WEIGHT] += w * mu * mu;
 }
 
 static void param_sums_n(const mr__family *f, const double *y, const double *mu, const double *prior, size_t n,

@@ -418,6 +418,11 @@ static mr_status check_consistent(reader *r)
                                   : "is given for a family without one");
     }
     if (!takes_param) f->family_param = NAN;
+    if (f->family_param_estimated && !mr__family_ops_of((mr_family)f->family)->param_estimable) {
+        enter(r, "model.family_parameter.estimated");
+        return bad(r, "is given for a parameter the family does not estimate");
+    }
+    if (!f->family_param_estimated) f->family_param_se = NAN;
     if (f->rank > f->p) {
         enter(r, "fit.rank");
         return bad(r, "exceeds the number of coefficients");
