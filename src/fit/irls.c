@@ -179,8 +179,14 @@ static mr_status next_point(mr__irls *s, const mr__block_sums *sums, mr__error *
     if (s->null_intercept && sums->null_sw > 0) {
         double b0 = sums->null_swz / sums->null_sw;
         /* One parameter converges fast, and its deviance repeats only to
-         * rounding (~1e-13 with an offset): a tighter test might never pass. */
-        s->null_done = s->null_done || relative_change(sums->null_dev, s->null_dev_prev) < fmax(s->tolerance, 1e-12);
+         * rounding (~1e-13 with an offset): a tighter test might never pass.
+         * With the family's parameter estimated the null deviance moves
+         * with that parameter, which is settled to sqrt(tolerance) of its
+         * standard error: the same share serves here.  Its intercept goes
+         * on moving with the parameter whatever this says, and the last
+         * pass evaluates it at the parameter reported. */
+        double tol = s->param_estimate ? sqrt(s->tolerance) : s->tolerance;
+        s->null_done = s->null_done || relative_change(sums->null_dev, s->null_dev_prev) < fmax(tol, 1e-12);
         s->null_dev_prev = sums->null_dev;
         /* with the parameter moving, the null model's maximum moves too */
         if (!s->null_done || s->param_estimate) s->null_b0 = b0;
