@@ -78,12 +78,14 @@ static int param_settled(const mr__irls *s, const mr__block_sums *sums)
 {
     double info = sums->fam[MR__PS_INFO];
     if (!s->param_estimate) return 1;
+    if (s->param_phase == 1 && s->param >= MR__IRLS_PARAM_MAX && !(sums->fam[MR__PS_SCORE] < 0)) return 1;
     return s->param_phase == 1 && info > 0 && fabs(sums->fam[MR__PS_SCORE]) < sqrt(s->tolerance * info);
 }
 
 /* The first value at the data's own means: the moment estimate
  * sum w mu^2 / sum w ((y - mu)^2 - y), or 1000 (nearly poisson) when the
- * counts show no overdispersion there. */
+ * counts show no overdispersion there.  A parameter at
+ * MR__IRLS_PARAM_MAX whose score still rises is settled there. */
 static double moment_param(const mr__block_sums *sums, double th)
 {
     const double *f = sums->fam;
@@ -99,11 +101,15 @@ static double moment_param(const mr__block_sums *sums, double th)
  * log(theta) reached 34).  With S and I theta's score and information,
  * dl/da = -theta^2 S and -d2l/da2 = theta^4 I - 2 theta^3 S; where that is
  * not positive (far from the maximum) theta^4 I stands for it, and the
- * step is kept within a factor of 10. */
+ * step is kept within a factor of 10.  The step holds the means fixed,
+ * as the coefficient step beside it holds theta: on many rows the two
+ * barely interact (the expected cross information is zero), but on few
+ * rows the observed information couples them and theta swings about its
+ * maximum, each swing 0.55 to 0.8 of the last (12 rows: 29 passes; 10^5
+ * rows: 11, the errors falling 0.05 a pass without a swing). */
 static void next_param(mr__irls *s, const mr__block_sums *sums)
 {
-    double th = s->param, score = sums->fam[MR__PS_SCORE], info = sums->fam[MR__PS_INFO], next, g, h, a;
-    s->param_prev = th;
+    double th = s->param, score = sums->fam[MR__PS_SCORE], info = sums->fam[MR__PS_INFO], next, g, h, d, a;
     if (s->param_phase == 0) {
         next = moment_param(sums, th);
         s->param_phase = 1;
@@ -112,11 +118,13 @@ static void next_param(mr__irls *s, const mr__block_sums *sums)
         g = -th * th * score;
         h = th * th * th * (th * info - 2 * score);
         if (!(h > 0)) h = th * th * th * th * info;
-        a = h > 0 ? 1 / th + g / h : 1 / th;
-        a = fmin(fmax(a, 0.1 / th), 10 / th);
+        d = h > 0 ? g / h : 0.0;
+        a = fmin(fmax(1 / th + d, 0.1 / th), 10 / th);
         next = 1 / a;
     }
+    s->param_prev = th;
     if (!(isfinite(next) && next > 0)) next = th;
+    next = fmin(next, MR__IRLS_PARAM_MAX);
     s->param_step = fabs(next - th) / th;
     s->param = next;
 }

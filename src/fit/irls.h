@@ -16,6 +16,11 @@
 #include "accum/accumulate.h"
 #include "common/error.h"
 
+/* An estimated parameter's largest value: a negative binomial's theta
+ * goes there when the counts show no overdispersion (its maximum is at
+ * infinity, the poisson fit), and is held there (irls.c, next_param). */
+#define MR__IRLS_PARAM_MAX 1e8
+
 /* Halvings of one step before the fit gives up. */
 #define MR__IRLS_MAX_HALVINGS 30
 /* A step expected to remove at most this share of the tolerance ends the

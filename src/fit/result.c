@@ -12,6 +12,7 @@
 #include "common/strbuf.h"
 #include "family/family.h"
 #include "fit/fit.h"
+#include "fit/irls.h"
 #include "fit/run.h"
 #include "fit/start.h"
 #include "common/probability.h"
@@ -446,6 +447,23 @@ static mr_status copy_run_info(mr_fit *fit, const mr__run *r, mr__error *err)
     return MR_OK;
 }
 
+/* An estimated parameter: the counts it is a likelihood of, and a theta
+ * at its bound (fit/irls.h, MR__IRLS_PARAM_MAX). */
+static void param_warnings(mr_fit *fit, const mr__run *r)
+{
+    if (!r->family.estimate) return;
+    if (r->first.scan.nnonint > 0)
+        mr__fit_warn(fit, "%llu outcome values are not whole numbers: the negative binomial is a distribution of "
+                          "counts; theta and the log-likelihood use its gamma-function form, which such values "
+                          "fit but which is not their distribution",
+                     (unsigned long long)r->first.scan.nnonint);
+    if (r->family.param >= MR__IRLS_PARAM_MAX)
+        mr__fit_warn(fit, "theta reached %g, its largest value: the counts show no overdispersion beyond poisson's "
+                          "(theta's maximum is at infinity), so this is the poisson fit, and theta's standard error "
+                          "means nothing",
+                     MR__IRLS_PARAM_MAX);
+}
+
 static void collect_warnings(mr_fit *fit, const mr__run *r)
 {
     size_t j, n = 0;
@@ -454,6 +472,7 @@ static void collect_warnings(mr_fit *fit, const mr__run *r)
     size_t noutcome = mr__scan_outcome_warnings(&r->first.scan, fit->family, r->bind.has_weight || r->bind.has_trials,
                                                 outcome);
     for (j = 0; j < noutcome; j++) mr__fit_warn(fit, "%s", outcome[j]);
+    param_warnings(fit, r);
     if (!fit->converged)
         mr__fit_warn(fit, "NOT CONVERGED after %d IRLS passes (relative deviance change %.3g, tolerance %.3g): "
                           "the estimates are not a maximum-likelihood fit",
