@@ -109,14 +109,22 @@ MR_API const char *mr_strerror(mr_status status);
  *   inverse-gaussian  inverse-squared, inverse, identity, log
  *   negative-binomial log, identity, sqrt (a fixed theta: the family's
  *                     line reads "family negative-binomial theta=2";
- *                     V(mu) = mu + mu^2/theta, dispersion fixed at 1)
+ *                     V(mu) = mu + mu^2/theta, dispersion fixed at 1;
+ *                     "family negative-binomial" or "... theta=estimate"
+ *                     estimates theta by maximum likelihood in the same
+ *                     passes: MR_STAT_FAMILY_PARAMETER_SE gives its
+ *                     standard error, the AIC and BIC count it, and rows
+ *                     never collapse into covariate patterns)
  *   tweedie           log (a fixed power 1 < p < 2: "family tweedie
  *                     power=1.5"; V(mu) = mu^p, outcome >= 0, dispersion
- *                     estimated; no log-likelihood: MR_STAT_LOG_LIKELIHOOD,
- *                     MR_STAT_AIC and MR_STAT_BIC are NaN)
- * A family with a parameter of its own needs it on its line
- * (mr_fitter_model_line: MR_ERR_USAGE without it or out of range);
- * mr_fit_stat(fit, MR_STAT_FAMILY_PARAMETER) gives it back.           */
+ *                     estimated; the log-likelihood by Dunn and Smyth's
+ *                     series at the dispersion deviance / sum of weights,
+ *                     which AIC and BIC count; NaN when the fit stopped
+ *                     before its steps were small; rows never collapse)
+ * A tweedie needs its power on its line (mr_fitter_model_line:
+ * MR_ERR_USAGE without it or out of range, as for a theta <= 0);
+ * mr_fit_stat(fit, MR_STAT_FAMILY_PARAMETER) gives the parameter back
+ * (the estimate, where estimated).                                    */
 
 typedef enum mr_family {
     MR_GAUSSIAN = 0,
