@@ -98,22 +98,22 @@ printf 'y,g\n2,a\n0,b\n-1,a\n4,b\n' >"$tmp/negative.csv"
 refused negative_count 5 "negative.csv:4:1: column 'y': a count cannot be negative (value '-1')" -- \
     --outcome y --factor g --family negative-binomial "$tmp/negative.csv"
 
+# warned NAME 'needle' ROWS: a fit of y,g rows (printf format) whose report warns with needle
+warned() {
+    local name=$1 needle=$2
+    printf "y,g\n$3" >"$tmp/$name.csv"
+    "$bin" fit --outcome y --factor g --family negative-binomial "$tmp/$name.csv" >"$tmp/$name.out" 2>&1
+    if grep -qF -- "$needle" "$tmp/$name.out"; then
+        ok "$name"
+    else
+        fail "$name" "$(grep -E '!|model' "$tmp/$name.out" | head -c 300)"
+    fi
+}
 # outcomes that are not whole numbers: fitted, with a warning
-printf 'y,g\n2.5,a\n0,b\n7,a\n4.25,b\n0,a\n11,b\n1,a\n0,b\n9,a\n3,b\n' >"$tmp/fractional.csv"
-"$bin" fit --outcome y --factor g --family negative-binomial "$tmp/fractional.csv" >"$tmp/fr.out" 2>&1
-if grep -qF "2 outcome values are not whole numbers: the negative binomial is a distribution of counts" "$tmp/fr.out"; then
-    ok fractional_counts_warned
-else
-    fail fractional_counts_warned "$(grep -E '!|model' "$tmp/fr.out" | head -c 300)"
-fi
-
+warned fractional_counts_warned "2 outcome values are not whole numbers: the negative binomial is a distribution of counts" \
+    '2.5,a\n0,b\n7,a\n4.25,b\n0,a\n11,b\n1,a\n0,b\n9,a\n3,b\n'
 # counts with no overdispersion: theta at its bound, said so
-printf 'y,g\n1,a\n1,b\n1,a\n1,b\n1,a\n1,b\n' >"$tmp/flat.csv"
-"$bin" fit --outcome y --factor g --family negative-binomial "$tmp/flat.csv" >"$tmp/flat.out" 2>&1
-if grep -qF "theta reached 1e+08, its largest value: the counts show no overdispersion" "$tmp/flat.out"; then
-    ok theta_at_bound_warned
-else
-    fail theta_at_bound_warned "$(grep -E '!|model' "$tmp/flat.out" | head -c 300)"
-fi
+warned theta_at_bound_warned "theta reached 1e+08, its largest value: the counts show no overdispersion" \
+    '1,a\n1,b\n1,a\n1,b\n1,a\n1,b\n'
 
 finish

@@ -59,6 +59,7 @@ from scipy import special, stats
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 import compare_reference as cr  # noqa: E402
+from families import nb_draw, tweedie_draw  # noqa: E402  (the same simulations)
 
 NB_TOL = 1e-7
 SE_THETA_TOL = 1e-5
@@ -87,10 +88,6 @@ vals <- c(theta = fit$theta, theta_se = fit$SE.theta, theta_se_final = 1 / sqrt(
           twologlik = fit$twologlik, aic = fit$aic, deviance = fit$deviance, null_deviance = null_dev)
 cat(sprintf("%s %.17g\n", names(vals), vals), sep = "", file = out, append = TRUE)
 """
-
-
-def nb_draw(rng, mu, theta):
-    return rng.negative_binomial(theta, theta / (theta + mu)).astype(float)
 
 
 def nb_cases(rng):
@@ -171,16 +168,6 @@ def check_nb(case, tmp):
     if one["coefficients"] != two["coefficients"] or one["model"] != two["model"] or one["fit"] != two["fit"]:
         problems.append("1 and 2 threads differ")
     return problems
-
-
-def tweedie_draw(rng, mu, p, phi):
-    """Compound Poisson-gamma with mean mu, variance phi mu^p."""
-    lam = mu ** (2 - p) / (phi * (2 - p))
-    shape = (2 - p) / (p - 1)
-    scale = phi * (p - 1) * mu ** (p - 1)
-    count = rng.poisson(lam)
-    y = np.where(count > 0, rng.gamma(np.maximum(count, 1) * shape, scale), 0.0)
-    return np.round(y, 6)
 
 
 def compound_log_density(y, mu, phi, p):
