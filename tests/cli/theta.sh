@@ -5,7 +5,7 @@
 # rows never collapse into patterns (the likelihood in theta needs each y);
 # the same bits on 1, 2 and 3 worker threads, cached or not, over more rows
 # than one group of blocks (accum/partial.h) so that the group order is
-# exercised; bad input: theta <= 0, a negative count (exit 5, the file, line,
+# exercised; bad input: theta <= 0, theta estimated in a quasi family, a negative count (exit 5, the file, line,
 # column and value named), outcomes that are not whole numbers (a warning),
 # counts with no overdispersion (theta held at its bound, a warning).  The
 # numbers themselves are checked against R's MASS::glm.nb in
@@ -94,6 +94,8 @@ refused() {
 }
 refused theta_zero 2 "--family: theta must be > 0, got '0'" -- --outcome y --family "negative-binomial theta=0" "$data"
 refused theta_word 2 "theta takes a number, got 'estimated'" -- --outcome y --family "negative-binomial theta=estimated" "$data"
+refused theta_quasi 2 "theta is estimated by its likelihood, which 'dispersion estimate' (a quasi family) does not have" \
+    -- --outcome y --family negative-binomial --dispersion estimate "$data"
 printf 'y,g\n2,a\n0,b\n-1,a\n4,b\n' >"$tmp/negative.csv"
 refused negative_count 5 "negative.csv:4:1: column 'y': a count cannot be negative (value '-1')" -- \
     --outcome y --factor g --family negative-binomial "$tmp/negative.csv"
