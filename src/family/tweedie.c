@@ -70,12 +70,15 @@ static double series_term(const series *s, double j) { return j * s->c - mr__log
 
 /* Adds the terms from j on, stepping by `step` (+1 or -1), while they are
  * above 1e-16 (e^-37) of the largest, as exp(log W_j - top): sums of 1, j
- * and j^2 for log W and its derivatives in log(phi). */
+ * and j^2 for log W and its derivatives in log(phi).  log W_j is concave
+ * in j, so the terms only fall from there; at most 10^7 of them (the
+ * terms that matter span a few times sqrt(j) about the largest). */
 static void series_run(const series *s, double j, double step, double top, double acc[3])
 {
-    for (; j >= 1 && j < 1e7; j += step) {
+    double end = j + 1e7 * step;
+    for (; j >= 1 && j != end; j += step) {
         double e = series_term(s, j) - top;
-        if (e < -37) break;
+        if (!(e >= -37)) break; /* NaN too */
         e = exp(e);
         acc[0] += e;
         acc[1] += j * e;
