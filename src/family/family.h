@@ -138,6 +138,10 @@ struct mr__family_ops {
      * Such rows never collapse into covariate patterns, whose sums lose
      * each row's y; nor do a family's whose parameter is estimated. */
     int loglik_by_rows;
+    /* The parameter may be chosen by profile likelihood over this grid of
+     * values, one fit after another (NAME=profile on the line; NULL: not). */
+    const double *profile_grid;
+    int profile_n;
 };
 
 /* The value of a word "NAME=VALUE" of a family's line into *value: a

@@ -125,6 +125,9 @@ static void param_sums_n(const mr__family *f, const double *y, const double *mu,
     }
 }
 
+/* power=profile: the powers fitted one after another (fit/profile.c). */
+static const double profile_grid[] = {1.1, 1.2, 1.3, 1.4, 1.5, 1.6, 1.7, 1.8, 1.9};
+
 static mr_status parse_param(double *param, const char *word, const char *origin, mr__error *err)
 {
     MR__TRY(mr__family_param_value("tweedie", "power", word, param, origin, err));
@@ -157,4 +160,6 @@ const mr__family_ops mr__tweedie_family = {
     .param_name = "power",
     .param_sums_n = param_sums_n,
     .loglik_by_rows = 1,
+    .profile_grid = profile_grid,
+    .profile_n = (int)(sizeof profile_grid / sizeof profile_grid[0]),
 };

@@ -51,6 +51,7 @@ void mr_fit_free(mr_fit *fit)
     mr__free(fit->missing_count);
     free_strings(fit->bad_example, fit->nbad_examples);
     mr__free(fit->pass_seconds);
+    mr__free(fit->profile);
     mr__free(fit->path);
     mr__free(fit->start_from);
     mr__free(fit->version);

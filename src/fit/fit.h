@@ -43,6 +43,10 @@ typedef struct mr__fit_term {
     double test_chi2, test_stat, test_p;
 } mr__fit_term;
 
+typedef struct mr__fit_profile_point {
+    double value, loglik;
+} mr__fit_profile_point;
+
 struct mr_fit {
     mr_status status;
     /* coefficients, on the scale of the raw columns */
@@ -60,6 +64,11 @@ struct mr_fit {
      * (from its observed information at the final means), else NaN */
     int family_param_estimated;
     double family_param_se;
+    /* it was chosen by profile likelihood (fit/profile.c): each value of
+     * the grid and the log-likelihood of its fit */
+    int family_param_profiled;
+    mr__fit_profile_point *profile;
+    size_t nprofile;
     char *outcome, *trials, *offset, *exposure, *weight;
     mr__fit_term *term;
     size_t nterms;

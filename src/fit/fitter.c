@@ -180,7 +180,7 @@ mr_status mr_fitter_run(mr_fitter *f, const char *path, mr_fit **out)
      * standard input kept for later passes), and be read as empty input. */
     if (strcmp(path, "-") == 0 && fcntl(STDIN_FILENO, F_GETFD) < 0)
         return mr__fail(&f->err, MR_ERR_IO, "<stdin>: standard input is closed, so there is nothing to read");
-    st = mr__fit_file(f, path, out);
+    st = f->spec.family_profile ? mr__fit_profile(f, path, out) : mr__fit_file(f, path, out);
     if (st == MR_OK && (st = record_run(f, *out, started, &f->err)) != MR_OK) {
         mr_fit_free(*out);
         *out = NULL;

@@ -25,5 +25,8 @@ struct mr_fitter {
 
 /* The fit itself (run.c). */
 mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out);
+/* The family's parameter chosen by profile likelihood over its grid: one
+ * mr__fit_file after another (fit/profile.c). */
+mr_status mr__fit_profile(mr_fitter *f, const char *path, mr_fit **out);
 
 #endif

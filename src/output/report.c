@@ -68,7 +68,10 @@ static void section_model(mr__strbuf *b, const mr_fit *f)
     size_t i;
     const char *param = mr__fit_family_param_name(f);
     mr__strbuf_printf(b, "model      %s family", mr__family_name((mr_family)f->family));
-    if (param != NULL && f->family_param_estimated)
+    if (param != NULL && f->family_param_profiled && f->nprofile > 0)
+        mr__strbuf_printf(b, " (%s %.15g, chosen by profile likelihood over %.15g to %.15g)", param, f->family_param,
+                          f->profile[0].value, f->profile[f->nprofile - 1].value);
+    else if (param != NULL && f->family_param_estimated)
         mr__strbuf_printf(b, " (%s %.10g, standard error %.4g, maximum likelihood)", param, f->family_param,
                           f->family_param_se);
     else if (param != NULL)
@@ -195,6 +198,17 @@ static void section_term_tests(mr__strbuf *b, const mr_fit *f, int digits)
     }
 }
 
+/* A parameter chosen by profile likelihood: each value's log-likelihood. */
+static void section_profile(mr__strbuf *b, const mr_fit *f, int digits)
+{
+    size_t i;
+    if (!f->family_param_profiled) return;
+    mr__strbuf_printf(b, "  profile of %s (a fit each; the AIC and BIC count it):\n", mr__fit_family_param_name(f));
+    for (i = 0; i < f->nprofile; i++)
+        mr__strbuf_printf(b, "    %-8.15g log-likelihood %.*g%s\n", f->profile[i].value, digits + 2, f->profile[i].loglik,
+                          f->profile[i].value == f->family_param ? "  (chosen)" : "");
+}
+
 static void section_statistics(mr__strbuf *b, const mr_fit *f, int digits)
 {
     mr__strbuf_printf(b, "\nstatistics\n");
@@ -227,6 +241,7 @@ static void section_statistics(mr__strbuf *b, const mr_fit *f, int digits)
     mr__strbuf_printf(b, "  log-likelihood      %.*g\n", digits + 2, f->loglik);
     mr__strbuf_printf(b, "  AIC                 %.*g\n", digits + 2, f->aic);
     mr__strbuf_printf(b, "  BIC                 %.*g\n", digits + 2, f->bic);
+    section_profile(b, f, digits);
 }
 
 char *mr_fit_report(const mr_fit *f, int digits)
