@@ -134,6 +134,20 @@ const char *mr__fit_family_param_name(const mr_fit *fit)
     return ops != NULL && fit->family_param_given ? ops->param_name : NULL;
 }
 
+void mr__fit_family_param_text(const mr_fit *f, mr__strbuf *b)
+{
+    const char *param = mr__fit_family_param_name(f);
+    if (param == NULL) return;
+    if (f->family_param_profiled && f->nprofile > 0)
+        mr__strbuf_printf(b, " (%s %.15g, chosen by profile likelihood over %.15g to %.15g)", param, f->family_param,
+                          f->profile[0].value, f->profile[f->nprofile - 1].value);
+    else if (f->family_param_estimated)
+        mr__strbuf_printf(b, " (%s %.10g, standard error %.4g, maximum likelihood)", param, f->family_param,
+                          f->family_param_se);
+    else
+        mr__strbuf_printf(b, " (%s %.15g, fixed)", param, f->family_param);
+}
+
 const char *mr__fit_statistic_name(const mr_fit *fit) { return fit->dispersion_estimated ? "t" : "z"; }
 
 mr_status mr_fit_status(const mr_fit *fit) { return fit->status; }

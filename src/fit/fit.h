@@ -145,6 +145,12 @@ const char *mr__fit_ratio_label(const mr_fit *fit);
 /* The name of the family's own parameter ("theta"), NULL where it has
  * none. */
 const char *mr__fit_family_param_name(const mr_fit *fit);
+/* " (NAME VALUE, how it was had)" for a family with a parameter of its
+ * own: fixed, maximum likelihood with its standard error, or chosen by
+ * profile likelihood over its grid; nothing for another family (the
+ * report and the HTML page). */
+struct mr__strbuf;
+void mr__fit_family_param_text(const mr_fit *fit, struct mr__strbuf *b);
 /* "z" when the dispersion is fixed, "t" when it is estimated. */
 const char *mr__fit_statistic_name(const mr_fit *fit);
 

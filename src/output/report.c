@@ -66,16 +66,8 @@ static void section_spline(mr__strbuf *b, const mr__fit_term *t)
 static void section_model(mr__strbuf *b, const mr_fit *f)
 {
     size_t i;
-    const char *param = mr__fit_family_param_name(f);
     mr__strbuf_printf(b, "model      %s family", mr__family_name((mr_family)f->family));
-    if (param != NULL && f->family_param_profiled && f->nprofile > 0)
-        mr__strbuf_printf(b, " (%s %.15g, chosen by profile likelihood over %.15g to %.15g)", param, f->family_param,
-                          f->profile[0].value, f->profile[f->nprofile - 1].value);
-    else if (param != NULL && f->family_param_estimated)
-        mr__strbuf_printf(b, " (%s %.10g, standard error %.4g, maximum likelihood)", param, f->family_param,
-                          f->family_param_se);
-    else if (param != NULL)
-        mr__strbuf_printf(b, " (%s %.15g, fixed)", param, f->family_param);
+    mr__fit_family_param_text(f, b);
     mr__strbuf_printf(b, ", %s link, %zu coefficients (rank %zu)%s\n", mr__link_name((mr_link)f->link), f->p,
                       f->rank, f->intercept ? "" : ", no intercept");
     mr__strbuf_printf(b, "           outcome %s", f->outcome);
