@@ -4,7 +4,8 @@
 # fits at each power of the grid 1.1, 1.2, ..., 1.9, made one after another
 # (the same bits as the fit at that power given: checked against nine
 # separate fits), its AIC and BIC count the power, the report and the JSON
-# list the profile; standard input is refused (each power reads the data).
+# list the profile; standard input is refused (each power reads the data), and
+# so is a profile among models fitted together (millrace compare).
 source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
 
 data="$tmp/claims.csv"
@@ -70,6 +71,16 @@ if [ "$rc" -eq 2 ] && grep -qF "<stdin>: power=profile fits the data once for ea
     ok profile_refuses_stdin
 else
     fail profile_refuses_stdin "exit $rc: $(head -c 300 "$tmp/stdin.err")"
+fi
+
+printf 'outcome y\nfactor g\nfamily tweedie power=profile\n' >"$tmp/profile.model"
+printf 'outcome y\nfactor g\nfamily tweedie power=1.5\n' >"$tmp/fixed.model"
+"$bin" compare --quiet -m "$tmp/fixed.model" -m "$tmp/profile.model" "$data" >/dev/null 2>"$tmp/compare.err"
+rc=$?
+if [ "$rc" -eq 2 ] && grep -qF "power=profile is for a fit alone" "$tmp/compare.err"; then
+    ok profile_refused_in_compare
+else
+    fail profile_refused_in_compare "exit $rc: $(head -c 300 "$tmp/compare.err")"
 fi
 
 finish
