@@ -469,8 +469,12 @@ MR_API mr_status mr_fit_read_json(const char *path, mr_fit **out, char *msg, siz
  * coefficients) by term with reference levels marked, and an effect plot
  * for each factor (at most 100 levels): the fitted rate, probability or
  * mean at each level, the other factors at their reference levels and
- * numeric covariates at 0 or at the value a setting gives, with intervals
- * from the covariance (delta method on the link scale, then transformed).
+ * numeric covariates at their means (0 for a fit saved without them) or
+ * at the value a setting gives, with intervals from the covariance (delta
+ * method on the link scale, then transformed); an effect curve along each
+ * numeric and spline column's range with its interval band; a fit of more
+ * than 60 coefficients gets a forest plot of the 40 of largest |z|; a
+ * calibration plot when the fit's file holds calibration groups.
  * With two fits or more: a table of deviance, df, AIC and BIC, and each
  * later fit's coefficients against the first's.  The page also says what
  * to check before using the results.  The same fits and settings give the
@@ -483,12 +487,18 @@ MR_API mr_status mr_fit_read_json(const char *path, mr_fit **out, char *msg, siz
  * 0), each one of
  *   "digits N"          significant digits of the numbers, 1..17 (default 4)
  *   "at COLUMN=VALUE"   the value of a numeric covariate in the effect
- *                       plots (default 0: a saved fit does not record
- *                       the values it centred its covariates on)
+ *                       plots and curves (default its mean, which the fit
+ *                       records; 0 for a fit saved before it did)
+ *   "groups FILE"       a scoring run's group table (the JSON of
+ *                       mr_scorer_write_groups): a funnel plot of O/E
+ *                       against the expected count, exact Poisson control
+ *                       limits at 95% and 99.8%, the groups outside listed;
+ *                       the page never replaces FILE
  * Text from the data is HTML-escaped; bytes that are not well-formed UTF-8
  * and control characters show as \xHH, a backslash as two (the JSON's
  * escape, made visible).  Returns MR_OK, or MR_ERR_USAGE (no fit, a bad
- * setting, `path` one of the inputs), MR_ERR_IO or MR_ERR_NO_MEMORY with a
+ * setting, `path` one of the inputs), MR_ERR_IO (FILE cannot be read),
+ * MR_ERR_FORMAT (FILE is not a group table) or MR_ERR_NO_MEMORY with a
  * message in `msg` (capacity `msgcap`, may be 0). */
 MR_API mr_status mr_fits_write_html(const mr_fit *const *fits, const char *const *sources, size_t nfits,
                                     const char *const *settings, size_t nsettings, const char *path, char *msg,

@@ -97,11 +97,12 @@ static const struct option compare_options[] = {
 };
 
 /* Options of `millrace report`. */
-enum { OPT_HTML = 512, OPT_AT, OPT_REPORT_DIGITS };
+enum { OPT_HTML = 512, OPT_AT, OPT_REPORT_DIGITS, OPT_GROUPS };
 static const struct option report_options[] = {
     {"html", required_argument, NULL, OPT_HTML},
     {"at", required_argument, NULL, OPT_AT},
     {"digits", required_argument, NULL, OPT_REPORT_DIGITS},
+    {"groups", required_argument, NULL, OPT_GROUPS},
     {NULL, 0, NULL, 0},
 };
 
@@ -110,8 +111,9 @@ static const char usage_text[] =
     "       millrace show [--digits N] FIT.json   the report of a fit saved with --json\n"
     "       millrace drift [--threshold SE] [--json PATH] [--csv PATH] [--digits N] OLD.json NEW.json\n"
     "                               what changed between two saved fits of one model (default 3 SE)\n"
-    "       millrace report --html PATH [--at COL=VALUE]... [--digits N] FIT.json...\n"
-    "                                  saved fits as one HTML page (plots, comparison of the fits)\n"
+    "       millrace report --html PATH [--at COL=VALUE]... [--digits N] [--groups GROUPS.json] FIT.json...\n"
+    "                                  saved fits as one HTML page (plots, comparison of the fits;\n"
+    "                                  a funnel plot of score's --by-out JSON)\n"
     "       millrace score --fit FIT.json --out FILE[.zst] [--keep COL]... [--level P]\n"
     "                      [--unseen fail|blank] [--threads N] [--by COL]... [--by-out PATH] DATA\n"
     "                      predictions and residuals per row; observed/expected by group\n"
@@ -669,7 +671,7 @@ static int write_page(const char *html, char **paths, size_t nfits, char **setti
     return st == MR_OK ? 0 : fail(st, msg);
 }
 
-/* millrace report --html PATH [--at COL=VALUE]... [--digits N] FIT.json... */
+/* millrace report --html PATH [--at COL=VALUE]... [--digits N] [--groups FILE] FIT.json... */
 static int report_page(int argc, char **argv)
 {
     char **settings = NULL;
@@ -679,8 +681,8 @@ static int report_page(int argc, char **argv)
     optind = 1;
     while (rc == 0 && (opt = getopt_long(argc, argv, "", report_options, NULL)) != -1) {
         if (opt == OPT_HTML) html = optarg;
-        else if (opt == OPT_AT || opt == OPT_REPORT_DIGITS)
-            rc = add_setting(&settings, &n, opt == OPT_AT ? "at " : "digits ", optarg) == 0
+        else if (opt == OPT_AT || opt == OPT_REPORT_DIGITS || opt == OPT_GROUPS)
+            rc = add_setting(&settings, &n, opt == OPT_AT ? "at " : opt == OPT_GROUPS ? "groups " : "digits ", optarg) == 0
                      ? 0
                      : fail(MR_ERR_NO_MEMORY, "out of memory");
         else rc = usage_error("bad option");

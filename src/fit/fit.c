@@ -59,6 +59,8 @@ void mr_fit_free(mr_fit *fit)
     free_strings(fit->command_line, fit->ncommand_line);
     mr__free(fit->started);
     mr__free(fit->ended);
+    for (i = 0; fit->numeric && i < fit->nnumerics; i++) mr__free(fit->numeric[i].name);
+    mr__free(fit->numeric);
     mr__free(fit->host);
     mr__free(fit);
 }
@@ -196,3 +198,11 @@ double mr_fit_stat(const mr_fit *fit, mr_stat which)
 
 size_t mr_fit_nwarnings(const mr_fit *fit) { return fit->nwarnings; }
 const char *mr_fit_warning(const mr_fit *fit, size_t i) { return i < fit->nwarnings ? fit->warning[i] : NULL; }
+
+const mr__fit_numeric *mr__fit_find_numeric(const mr_fit *fit, const char *name)
+{
+    size_t i;
+    for (i = 0; fit->numeric && i < fit->nnumerics; i++)
+        if (strcmp(fit->numeric[i].name, name) == 0) return &fit->numeric[i];
+    return NULL;
+}

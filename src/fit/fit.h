@@ -47,6 +47,13 @@ typedef struct mr__fit_profile_point {
     double value, loglik;
 } mr__fit_profile_point;
 
+/* A numeric column over the rows used (the first pass's sums): its mean
+ * and standard deviation (divisor n), least and greatest value. */
+typedef struct mr__fit_numeric {
+    char *name;
+    double mean, sd, min, max;
+} mr__fit_numeric;
+
 struct mr_fit {
     mr_status status;
     /* coefficients, on the scale of the raw columns */
@@ -116,7 +123,15 @@ struct mr_fit {
     char **command_line; /* the words given to mr_fitter_set_command_line */
     size_t ncommand_line;
     char *started, *ended, *host; /* ISO 8601 UTC; the machine's name */
+    /* the numeric columns (numerics_known 0 for a fit read back from a
+     * JSON written before they were saved) */
+    int numerics_known;
+    mr__fit_numeric *numeric;
+    size_t nnumerics;
 };
+
+/* Numeric column `name`, or NULL (unknown or not a numeric). */
+const mr__fit_numeric *mr__fit_find_numeric(const mr_fit *fit, const char *name);
 
 /* The per-coefficient arrays for p coefficients, zeroed (the fit's p set). */
 mr_status mr__fit_alloc_coefficients(mr_fit *fit, size_t p);

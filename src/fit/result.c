@@ -368,6 +368,26 @@ static mr_status copy_model(mr_fit *fit, const mr__run *r, mr__error *err)
     return MR_OK;
 }
 
+/* The numeric columns' spread and range, as the first pass found them. */
+static mr_status copy_numerics(mr_fit *fit, const mr__run *r, mr__error *err)
+{
+    const mr__scan_sums *s = &r->first.scan;
+    size_t k, n = r->bind.nnum;
+    fit->numerics_known = 1;
+    if ((fit->numeric = mr__calloc(n + 1, sizeof *fit->numeric)) == NULL)
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (k = 0; k < n; k++, fit->nnumerics++) {
+        mr__fit_numeric *o = &fit->numeric[k];
+        if ((o->name = mr__strdup(r->bind.col[r->bind.num_col[k]].name)) == NULL)
+            return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        o->mean = r->mean[k];
+        o->sd = r->spread[k];
+        o->min = s->xmin[k];
+        o->max = s->xmax[k];
+    }
+    return MR_OK;
+}
+
 static mr_status copy_data_summary(mr_fit *fit, const mr__run *r, mr__error *err)
 {
     const mr__scan_sums *s = &r->first.scan;
@@ -510,6 +530,7 @@ mr_status mr__build_fit(mr__run *r, mr_fit **out, mr__error *err)
     st = copy_model(fit, r, err);
     if (st == MR_OK) st = copy_run_info(fit, r, err);
     if (st == MR_OK) st = copy_data_summary(fit, r, err);
+    if (st == MR_OK) st = copy_numerics(fit, r, err);
     if (st == MR_OK && mr__fit_alloc_coefficients(fit, r->design.p) != MR_OK)
         st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     if (st == MR_OK) st = set_coefficients(fit, r, err);

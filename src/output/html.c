@@ -87,8 +87,10 @@ static mr_status read_settings(mr__html_page *pg, const char *const *settings, s
             if (k == pg->nfits)
                 return mr__fail(err, MR_ERR_USAGE, "at '%s': no fit has a numeric covariate '%s'", s + 3,
                                 pg->at_name[pg->nat - 1]);
+        } else if (strncmp(s, "groups ", 7) == 0 && s[7] != '\0') {
+            pg->groups_path = s + 7;
         } else {
-            return mr__fail(err, MR_ERR_USAGE, "unknown setting '%s' (digits N, at COLUMN=VALUE)", s);
+            return mr__fail(err, MR_ERR_USAGE, "unknown setting '%s' (digits N, at COLUMN=VALUE, groups FILE)", s);
         }
     }
     return MR_OK;
@@ -312,6 +314,9 @@ static void one_fit(mr__strbuf *b, const mr__html_page *pg, size_t k)
     mr__html_forest(b, pg, k);
     put(b, "<h3>Effect plots</h3>\n");
     mr__html_effects(b, pg, k);
+    put(b, "<h3>Effect curves</h3>\n");
+    mr__html_curves(b, pg, k);
+    mr__html_calibration(b, pg, k);
     put(b, "</section>\n");
 }
 
@@ -370,10 +375,10 @@ static const char cautions[] =
     "</ul>\n</section>\n";
 
 static const char not_shown[] =
-    "<section id=\"not-shown\">\n<h2>Not shown</h2>\n<p>Calibration plots (observed against fitted by group) and "
-    "funnel plots (units against their precision) need scored rows or grouped totals, which a saved fit does not "
-    "carry yet; they will appear here when it does. Nothing on this page is drawn from data the fit does not "
-    "hold.</p>\n</section>\n";
+    "<section id=\"not-shown\">\n<h2>Not shown</h2>\n<p>A calibration plot (observed against fitted by tenth of "
+    "the fitted mean) appears under a fit whose saved file holds its calibration groups; a funnel plot (groups' "
+    "observed/expected against the expected count) when a scoring run's group table is given (--groups). Nothing "
+    "on this page is drawn from data the fits and that table do not hold.</p>\n</section>\n";
 
 static void contents(mr__strbuf *b, const mr__html_page *pg)
 {
@@ -385,6 +390,7 @@ static void contents(mr__strbuf *b, const mr__html_page *pg)
         put(b, "</a></li>\n");
     }
     if (pg->nfits > 1) put(b, "<li><a href=\"#comparison\">Comparison of the fits</a></li>\n");
+    if (pg->groups_path) put(b, "<li><a href=\"#groups\">Groups: observed against expected</a></li>\n");
     put(b, "<li><a href=\"#not-shown\">Not shown</a></li>\n</ul></nav>\n");
 }
 
@@ -406,6 +412,7 @@ static void page(mr__strbuf *b, const mr__html_page *pg)
     put(b, cautions);
     for (k = 0; k < pg->nfits; k++) one_fit(b, pg, k);
     if (pg->nfits > 1) comparison(b, pg);
+    if (pg->groups_path) mr__strbuf_append(b, pg->funnel.data, pg->funnel.len);
     put(b, not_shown);
     put(b, "</body>\n</html>\n");
 }
@@ -414,9 +421,10 @@ static void page(mr__strbuf *b, const mr__html_page *pg)
  * they were fitted to. */
 static const char **inputs_of(const mr__html_page *pg, size_t *n)
 {
-    const char **in = mr__calloc(2 * pg->nfits + 1, sizeof *in);
+    const char **in = mr__calloc(2 * pg->nfits + 2, sizeof *in);
     size_t k;
     *n = 0;
+    if (in && pg->groups_path) in[(*n)++] = pg->groups_path;
     for (k = 0; in && k < pg->nfits; k++) {
         if (pg->source && pg->source[k]) in[(*n)++] = pg->source[k];
         if (strcmp(pg->fit[k]->path, "<stdin>") != 0) in[(*n)++] = pg->fit[k]->path;
@@ -451,6 +459,16 @@ static mr_status write_page(const mr__html_page *pg, const char *path, mr__error
     return mr__outfile_commit(out, err);
 }
 
+/* The group table's section, before the page is opened: a table that
+ * cannot be read leaves no page. */
+static mr_status funnel(mr__html_page *pg, mr__error *err)
+{
+    mr__strbuf_init(&pg->funnel);
+    if (pg->groups_path == NULL) return MR_OK;
+    MR__TRY(mr__html_funnel(&pg->funnel, pg->groups_path, pg->digits, err));
+    return pg->funnel.failed ? mr__fail(err, MR_ERR_NO_MEMORY, "%s: out of memory", pg->groups_path) : MR_OK;
+}
+
 mr_status mr_fits_write_html(const mr_fit *const *fits, const char *const *sources, size_t nfits,
                              const char *const *settings, size_t nsettings, const char *path, char *msg, size_t msgcap)
 {
@@ -463,8 +481,10 @@ mr_status mr_fits_write_html(const mr_fit *const *fits, const char *const *sourc
     pg.nfits = nfits;
     pg.digits = DEFAULT_DIGITS;
     if (nfits == 0) mr__fail(&err, MR_ERR_USAGE, "%s: a page needs at least one fit", path);
-    else if (read_settings(&pg, settings, nsettings, &err) == MR_OK) write_page(&pg, path, &err);
+    else if (read_settings(&pg, settings, nsettings, &err) == MR_OK && funnel(&pg, &err) == MR_OK)
+        write_page(&pg, path, &err);
     free_settings(&pg);
+    mr__strbuf_release(&pg.funnel);
     mr__error_export(&err, msg, msgcap);
     return err.status;
 }

@@ -111,6 +111,23 @@ static const mr__jfield family_param_fields[] = {
     END,
 };
 
+static const mr__jfield numeric_fields[] = {
+    {"mean", MR__J_REAL, offsetof(mr__fit_numeric, mean), 0, 0, 0, 0, 0, NULL, NULL, NULL},
+    {"sd", MR__J_REAL, offsetof(mr__fit_numeric, sd), 0, 0, 0, 0, 0, NULL, NULL, NULL},
+    {"min", MR__J_REAL, offsetof(mr__fit_numeric, min), 0, 0, 0, 0, 0, NULL, NULL, NULL},
+    {"max", MR__J_REAL, offsetof(mr__fit_numeric, max), 0, 0, 0, 0, 0, NULL, NULL, NULL},
+    END,
+};
+
+/* The numeric columns over the rows used, by name.  Added within
+ * format_version 3, so optional: a fit written before reads back without
+ * it and writes the same bytes again. */
+static const mr__jfield numeric_summary_fields[] = {
+    {"columns", MR__J_KEYED, AT(numeric), AT(nnumerics), sizeof(mr__fit_numeric), offsetof(mr__fit_numeric, name), 0,
+     0, NULL, NULL, numeric_fields},
+    END,
+};
+
 static const mr__jfield model_fields[] = {
     F("outcome", MR__J_TEXT, outcome),
     F("trials", MR__J_TEXT_OR_NULL, trials),
@@ -127,6 +144,8 @@ static const mr__jfield model_fields[] = {
      NULL, NULL, factor_fields},
     {"terms", MR__J_STRUCTS, AT(term), AT(nterms), sizeof(mr__fit_term), 0, 0, 0, NULL, NULL, term_fields},
     {"lines", MR__J_RECORDS, 0, AT(nmodel_lines), 0, 0, 0, 0, NULL, NULL, line_fields},
+    {"numeric_summary", MR__J_OBJECT_OPTIONAL, 0, AT(numerics_known), 0, 0, 0, 0, NULL, NULL,
+     numeric_summary_fields},
     END,
 };
 
