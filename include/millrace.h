@@ -90,10 +90,16 @@ typedef enum mr_status {
                                 which stops a fit this way on SIGINT,
                                 SIGTERM, SIGHUP and exits 128 + the
                                 signal's number)                            */
-    MR_DRIFT_FLAGGED = 12    /* not an error: a comparison of two fits
+    MR_DRIFT_FLAGGED = 12,   /* not an error: a comparison of two fits
                                 (mr_drift_compare) flagged a change; the
                                 command's drift exits with it so that a
                                 scheduler can alert                          */
+    MR_ERR_CLUSTERS = 13     /* cluster-robust standard errors need more
+                                memory than allowed (mr_fitter_set_cluster):
+                                the file is not grouped by the cluster
+                                column and its clusters' sums do not fit,
+                                or too many clusters to check; the message
+                                says how to go on                            */
 } mr_status;
 
 /* A static, human-readable name for a status ("bad input format", ...). */
@@ -304,6 +310,50 @@ MR_API mr_status mr_fitter_set_command_line(mr_fitter *f, size_t argc, const cha
  * Returns MR_OK or MR_ERR_NO_MEMORY. */
 MR_API mr_status mr_fitter_set_start(mr_fitter *f, const mr_fit *previous, const char *label);
 
+/* Robust (sandwich) standard errors.  The model-based standard errors
+ * assume the family's variance is right and the rows independent; robust
+ * ones stay valid when the variance is not (overdispersed counts) and,
+ * with a cluster column, when rows of one cluster (one person's repeated
+ * records, one practice's patients) are correlated.  They need one more
+ * pass over the data at the final coefficients.  The covariance is
+ * V = B M B: B the inverse of the final X'WX, M the sum over rows of the
+ * outer products of the rows' scores u x (u = weight (y - mu) mu' / V(mu)),
+ * or by clusters of the outer products of the clusters' score sums; the
+ * dispersion cancels.  Scaled as R's sandwich package scales them:
+ *   MR_ROBUST_HC0                  1             (vcovHC type "HC0")
+ *   MR_ROBUST_HC1                  n / (n - k)   (vcovHC type "HC1")
+ *   a cluster column, HC0          G / (G - 1)   (vcovCL type "HC0", its
+ *                                  default for a glm, cadjust = TRUE)
+ *   a cluster column, HC1          G / (G - 1) x (n - 1) / (n - k)
+ *                                  (vcovCL type "HC1")
+ * n the rows with a positive weight, k the number of estimated
+ * coefficients, G the clusters.  When asked, the robust standard errors
+ * drive the fit's Wald statistics, p-values, intervals and term tests
+ * (always against the normal and chi-square: they are asymptotic), while
+ * mr_fit_std_error and mr_fit_covariance stay model-based.  Few clusters
+ * (under about 40 or 50, common practice) make cluster-robust standard
+ * errors too small.
+ *
+ * mr_fitter_set_robust: the type, or MR_ROBUST_NONE (the default) for
+ * none.  MR_OK or MR_ERR_USAGE for an unknown type. */
+typedef enum mr_robust { MR_ROBUST_NONE = 0, MR_ROBUST_HC0 = 1, MR_ROBUST_HC1 = 2 } mr_robust;
+MR_API mr_status mr_fitter_set_robust(mr_fitter *f, mr_robust type);
+
+/* Cluster-robust standard errors by the cells of `column` (copied; NULL:
+ * none, the default): two rows are in one cluster when the cells' text is
+ * the same (told apart by a 128-bit hash of it).  Without a type set, the
+ * type is MR_ROBUST_HC0, as in vcovCL for a glm.  A row with the cell missing is left out of the
+ * fit like any incomplete row.  The column may be one the model uses.
+ *
+ * A file grouped by the column (each cluster's rows together, in any
+ * order of clusters) is streamed: memory holds one 8-byte word per
+ * cluster, so 10^7 clusters take about 130 MiB.  Otherwise every
+ * cluster's score sums are held, 16 + 8 k bytes each; `memory_limit`
+ * bytes (0: 1 GiB) bound either, and beyond it the run fails with
+ * MR_ERR_CLUSTERS and a message saying to group (sort) the file by the
+ * column.  MR_OK, MR_ERR_USAGE (an empty name) or MR_ERR_NO_MEMORY. */
+MR_API mr_status mr_fitter_set_cluster(mr_fitter *f, const char *column, size_t memory_limit);
+
 /* Fits the model to the CSV (optionally zstd- or gzip-compressed, known by
  * its magic bytes; concatenated frames or members read as one) at `path`, or to
  * standard input when path is "-".  The input is only read, once or more
@@ -353,6 +403,21 @@ MR_API double mr_fit_p_value(const mr_fit *fit, size_t j);
  * log or logit link).  NaN when aliased (or j out of range). */
 MR_API double mr_fit_conf_low(const mr_fit *fit, size_t j);
 MR_API double mr_fit_conf_high(const mr_fit *fit, size_t j);
+
+/* Robust standard errors (mr_fitter_set_robust, mr_fitter_set_cluster):
+ * the type made (MR_ROBUST_NONE when none was asked); the cluster column
+ * (owned by the fit; NULL when by rows or none) and the number of its
+ * clusters (0 when none); the small-sample factor applied (NaN when
+ * none); coefficient j's robust standard error and entry (i, j) of the
+ * robust covariance (NaN when none, when aliased or out of range).  When
+ * made, they are what mr_fit_p_value, mr_fit_conf_low/high and
+ * mr_fit_term_test use. */
+MR_API mr_robust mr_fit_robust(const mr_fit *fit);
+MR_API const char *mr_fit_cluster(const mr_fit *fit);
+MR_API uint64_t mr_fit_clusters(const mr_fit *fit);
+MR_API double mr_fit_robust_adjustment(const mr_fit *fit);
+MR_API double mr_fit_robust_std_error(const mr_fit *fit, size_t j);
+MR_API double mr_fit_robust_covariance(const mr_fit *fit, size_t i, size_t j);
 
 /* Terms: the covariates and interactions of the model, in the order
  * declared (covariates, then interactions); the intercept is not a term.

@@ -297,6 +297,44 @@ START_TEST(round_trip_spline)
 }
 END_TEST
 
+/* Robust standard errors by cluster (the robust object): written, read
+ * back with the same bits (type, cluster, clusters, factor, standard
+ * errors, covariance) and written again; a fit without them has none. */
+START_TEST(round_trip_robust)
+{
+    mr_fitter *f = mr_fitter_new();
+    mr_fit *fit = NULL, *back = NULL;
+    char msg[512];
+    const char *a = in_dir("robust.json");
+    size_t i, j, p;
+    ck_assert_int_eq(mr_fitter_model_file(f, "samples/falls.model"), MR_OK);
+    ck_assert_int_eq(mr_fitter_set_cluster(f, "region", 0), MR_OK);
+    ck_assert_int_eq(mr_fitter_set_robust(f, MR_ROBUST_HC1), MR_OK);
+    ck_assert_msg(mr_fitter_run(f, "samples/falls.csv", &fit) == MR_OK, "%s", mr_fitter_errmsg(f));
+    mr_fitter_free(f);
+    ck_assert_int_eq(mr_fit_write_json(fit, a, msg, sizeof msg), MR_OK);
+    ck_assert_msg(mr_fit_read_json(a, &back, msg, sizeof msg) == MR_OK, "%s", msg);
+    ck_assert_int_eq(mr_fit_robust(back), MR_ROBUST_HC1);
+    ck_assert_str_eq(mr_fit_cluster(back), "region");
+    ck_assert_uint_eq(mr_fit_clusters(back), 8);
+    ck_assert(same_bits(mr_fit_robust_adjustment(fit), mr_fit_robust_adjustment(back)));
+    p = mr_fit_ncoef(fit);
+    for (i = 0; i < p; i++) {
+        ck_assert(same_bits(mr_fit_robust_std_error(fit, i), mr_fit_robust_std_error(back, i)));
+        for (j = 0; j < p; j++)
+            ck_assert(same_bits(mr_fit_robust_covariance(fit, i, j), mr_fit_robust_covariance(back, i, j)));
+    }
+    ck_assert(isnan(mr_fit_robust_std_error(fit, p)));
+    mr_fit_free(back);
+    round_trip(fit, "robust");
+    fit = fit_with("samples/falls.model", NULL, 0, "samples/falls.csv.zst", 0);
+    ck_assert_int_eq(mr_fit_robust(fit), MR_ROBUST_NONE);
+    ck_assert_ptr_null(mr_fit_cluster(fit));
+    ck_assert(isnan(mr_fit_robust_std_error(fit, 0)));
+    mr_fit_free(fit);
+}
+END_TEST
+
 /* A family with a parameter of its own: the parameter is written, read
  * back and written again. */
 START_TEST(round_trip_family_parameter)
@@ -528,6 +566,7 @@ static Suite *json_suite(void)
     tcase_add_test(t, round_trip_awkward);
     tcase_add_test(t, round_trip_spline);
     tcase_add_test(t, round_trip_family_parameter);
+    tcase_add_test(t, round_trip_robust);
     tcase_add_test(t, damaged_files);
     tcase_add_test(t, audit_trail);
     tcase_add_test(t, damaged_spline);

@@ -719,7 +719,9 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     memset(&e, 0, sizeof e);
     memset(res, 0, sizeof *res);
     e.cfg = cfg;
-    e.ops = cfg->kind == MR__PASS_SCAN ? &mr__job_scan : cfg->kind == MR__PASS_SCORE ? &mr__job_score : &mr__job_irls;
+    e.ops = cfg->kind == MR__PASS_SCAN ? &mr__job_scan : cfg->kind == MR__PASS_SCORE ? &mr__job_score
+             : cfg->kind == MR__PASS_MEAT  ? &mr__job_meat
+                                           : &mr__job_irls;
     if (cfg->ops != NULL) e.ops = cfg->ops;
     e.nworkers = cfg->nthreads > 0 ? (size_t)cfg->nthreads : 1;
     /* Two blocks per worker (one being computed, one waiting), one being
@@ -773,5 +775,6 @@ void mr__pass_result_release(mr__pass_result *res, size_t nfac)
     mr__block_map_release(&res->map);
     mr__scan_release(&res->scan);
     mr__sums_release(&res->sums);
+    mr__sums_release(&res->bread);
     memset(res, 0, sizeof *res);
 }

@@ -21,6 +21,10 @@ void mr_fit_free(mr_fit *fit)
     mr__free(fit->beta);
     mr__free(fit->se);
     mr__free(fit->cov);
+    mr__free(fit->robust_type);
+    mr__free(fit->cluster);
+    mr__free(fit->robust_se);
+    mr__free(fit->robust_cov);
     mr__free(fit->stat);
     mr__free(fit->pval);
     mr__free(fit->lo);
@@ -150,7 +154,8 @@ void mr__fit_family_param_text(const mr_fit *f, mr__strbuf *b)
         mr__strbuf_printf(b, " (%s %.15g, fixed)", param, f->family_param);
 }
 
-const char *mr__fit_statistic_name(const mr_fit *fit) { return fit->dispersion_estimated ? "t" : "z"; }
+/* robust standard errors are asymptotic: read against the normal */
+const char *mr__fit_statistic_name(const mr_fit *fit) { return fit->dispersion_estimated && !fit->robust ? "t" : "z"; }
 
 mr_status mr_fit_status(const mr_fit *fit) { return fit->status; }
 size_t mr_fit_ncoef(const mr_fit *fit) { return fit->p; }

@@ -128,6 +128,17 @@ struct mr_fit {
     int numerics_known;
     mr__fit_numeric *numeric;
     size_t nnumerics;
+    /* robust standard errors (robust.c), when asked (robust 1): the type
+     * ("HC0", "HC1"), the cluster column (NULL: by rows) and its clusters,
+     * the small-sample factor applied, the standard errors (nrobust_se =
+     * p) and the covariance (p x p), raw scale; they then drive stat,
+     * pval, lo, hi and the term tests, while se and cov stay model-based. */
+    int robust;
+    char *robust_type, *cluster;
+    uint64_t nclusters;
+    double robust_adjustment;
+    double *robust_se, *robust_cov;
+    size_t nrobust_se;
 };
 
 /* Numeric column `name`, or NULL (unknown or not a numeric). */

@@ -38,6 +38,7 @@ void mr_fitter_free(mr_fitter *f)
     mr_fitter_clear_missing(f);
     mr__strings_free(f->command_line, f->ncommand_line);
     mr__start_free(f->start);
+    mr__free(f->cluster);
     mr__free(f);
 }
 

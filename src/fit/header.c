@@ -20,6 +20,7 @@ static mr_status bind_header(mr__run *r, const char *line, size_t len, mr__error
     MR__TRY(mr__parse_header(line, len, r->delim, &names, &n, r->display, err));
     st = mr__bind(&r->bind, &r->f->spec, names, n, r->display, err);
     r->bound = 1; /* the binding owns the names now, even when it failed */
+    if (st == MR_OK && r->f->cluster != NULL) st = mr__bind_cluster(&r->bind, r->f->cluster, r->display, err);
     if (st != MR_OK) return st;
     r->dcfg.bind = &r->bind;
     r->dcfg.family = &r->family;

@@ -103,7 +103,7 @@ static void small_variances(const sparse_columns *a, const double *cov_s, const 
  * increasing k.  Own loops rather than BLAS: OpenBLAS's dgemv and dgemm
  * take a 128 MiB buffer from an allocator that spins for ever when an
  * address-space limit refuses it. */
-static mr_status map_to_raw(const mr__design *d, const double *beta_s, const double *cov_s, double *beta, double *cov,
+mr_status mr__map_to_raw(const mr__design *d, const double *beta_s, const double *cov_s, double *beta, double *cov,
                             double *se_small, mr__error *err)
 {
     size_t p = d->p, i, j, k, e;
@@ -183,11 +183,12 @@ static void set_inference(mr_fit *fit)
 {
     size_t j, p = fit->p;
     double tail = (1 - fit->level) / 2, q;
-    int use_t = fit->dispersion_estimated;
+    int use_t = fit->dispersion_estimated && !fit->robust; /* robust: asymptotic, normal */
     q = use_t ? -mr__t_quantile(tail, fit->df_residual) : -mr__normal_quantile(tail);
     for (j = 0; j < p; j++) {
         double se, z;
         if (fit->aliased[j]) {
+            if (fit->robust) fit->robust_se[j] = NAN;
             fit->beta[j] = fit->se[j] = fit->stat[j] = fit->pval[j] = fit->lo[j] = fit->hi[j] = NAN;
             continue;
         }
@@ -195,13 +196,17 @@ static void set_inference(mr_fit *fit)
         se = fit->se[j] > 0 ? fit->se[j] * sqrt(fit->dispersion) : sqrt(fit->cov[j * p + j]);
         z = fit->beta[j] / se;
         fit->se[j] = se;
+        if (fit->robust) z = fit->beta[j] / (se = fit->robust_se[j]); /* they drive the tests when asked */
         fit->stat[j] = z;
         fit->pval[j] = use_t ? 2 * mr__t_sf(fabs(z), fit->df_residual) : 2 * mr__normal_sf(fabs(z));
         fit->lo[j] = fit->beta[j] - q * se;
         fit->hi[j] = fit->beta[j] + q * se;
     }
     for (j = 0; j < p * p; j++)
-        if (fit->aliased[j % p] || fit->aliased[j / p]) fit->cov[j] = NAN;
+        if (fit->aliased[j % p] || fit->aliased[j / p]) {
+            fit->cov[j] = NAN;
+            if (fit->robust) fit->robust_cov[j] = NAN;
+        }
 }
 
 /* Centring folds lower-order columns into higher ones; if a column that
@@ -235,7 +240,8 @@ static mr_status set_coefficients(mr_fit *fit, mr__run *r, mr__error *err)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }
     st = mr__solve_normal(r->last.sums.xtwx, r->last.sums.xtwz, p, scratch, fit->aliased, &fit->rank, cov_s, err);
-    if (st == MR_OK) st = map_to_raw(d, r->beta_final, cov_s, fit->beta, fit->cov, fit->se, err);
+    if (st == MR_OK) st = mr__map_to_raw(d, r->beta_final, cov_s, fit->beta, fit->cov, fit->se, err);
+    if (st == MR_OK) st = mr__robust_result(fit, r, err);
     mr__free(scratch);
     mr__free(cov_s);
     if (st != MR_OK) return st;

@@ -24,6 +24,7 @@ int openblas_get_num_threads(void);
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "accum/meat.h"
 #include "accum/pass.h"
 #include "common/alloc.h"
 #include "common/clock.h"
@@ -387,6 +388,61 @@ static mr_status fit_data(mr__run *r, mr__error *err)
     return MR_OK;
 }
 
+/* ---- robust standard errors -------------------------------------------- */
+
+/* One pass at the final coefficients for the sandwich's meat (accum/meat.h):
+ * by rows from the kept blocks when there are any, else from the input
+ * (collapsed patterns cannot give it: within a pattern the rows' residuals
+ * differ); by clusters always from the input, whose blocks carry the
+ * cluster column. */
+static mr_status meat_pass(mr__run *r, int table, mr__error *err)
+{
+    mr__irls_point pt;
+    mr__meat_cfg mc;
+    mr__pass_cfg c = pass_config(r, MR__PASS_MEAT);
+    mr__family fam = r->family;
+    mr_status st;
+    /* the family at its final parameter, without the sums of its own
+     * (theta's score, a series density) that this pass has no use for */
+    fam.estimate = 0;
+    fam.dispersion = NAN;
+    memset(&pt, 0, sizeof pt);
+    pt.design = &r->design;
+    pt.family = &fam;
+    pt.link = mr__link_ops_of((mr_link)mr__spec_link(&r->f->spec));
+    pt.beta = r->beta_final;
+    pt.null_skip = 1;
+    memset(&mc, 0, sizeof mc);
+    mc.clusters = r->f->cluster != NULL;
+    mc.table = table;
+    mc.limit = r->f->cluster_memory;
+    mc.display = r->display;
+    c.point = &pt;
+    c.job_arg = &mc;
+    c.map = &r->first.map;
+    if (!mc.clusters && r->use_store && r->store_filled) {
+        c.store = &r->store;
+        c.store_fill = 0;
+    }
+    mr__pass_result_release(&r->meat, 0);
+    st = mr__pass_run(&c, &r->meat, err);
+    if (st != MR_OK) return st;
+    if (c.store == NULL) MR__TRY(check_same_input(r, &r->meat, err));
+    return note_pass(r, &r->meat, err);
+}
+
+/* Streamed first: a file grouped by the cluster column needs one set of
+ * the clusters seen; when a cluster comes back, the pass runs again with
+ * every cluster's sums in a table. */
+static mr_status robust_pass(mr__run *r, mr__error *err)
+{
+    mr_status st = meat_pass(r, 0, err);
+    if (st == MR_OK || !r->meat.clusters_not_grouped) return st;
+    mr__error_clear(err);
+    r->clusters_table = 1;
+    return meat_pass(r, 1, err);
+}
+
 /* ---- the run ------------------------------------------------------------ */
 
 void mr__run_release(mr__run *r)
@@ -394,6 +450,7 @@ void mr__run_release(mr__run *r)
     size_t f;
     mr__pass_result_release(&r->first, r->bind.nfac);
     mr__pass_result_release(&r->last, 0);
+    mr__pass_result_release(&r->meat, 0);
     mr__design_release(&r->design);
     for (f = 0; r->levels && f < r->bind.nfac; f++) mr__levelset_release(&r->levels[f]);
     for (f = 0; r->level_names && f < r->bind.nfac; f++) mr__free(r->level_names[f]);
@@ -472,6 +529,7 @@ mr_status mr__run_rest(mr__run *r, mr_fit **out)
      * warm start then only gives its sample back */
     if (st == MR_OK) warm_start(r);
     if (st == MR_OK) st = fit_data(r, err);
+    if (st == MR_OK && mr__robust_type(f) != MR_ROBUST_NONE) st = robust_pass(r, err);
     if (st == MR_OK) st = mr__build_fit(r, out, err);
     return st;
 }

@@ -68,7 +68,20 @@ typedef struct mr__run {
     int iterations, halvings, converged, by_decrement;
     double *pass_seconds;
     int npasses;
+    /* robust standard errors: the meat pass's result (accum/meat.h) and
+     * whether the clusters had to be held in a table */
+    mr__pass_result meat;
+    int clusters_table;
 } mr__run;
+
+/* result.c: cov_raw = A cov_internal A' and beta_raw = A beta_internal;
+ * se_small[j] (zeroed by the caller) gets the standard error of a variance
+ * below the range of a double, computed apart. */
+mr_status mr__map_to_raw(const mr__design *d, const double *beta_s, const double *cov_s, double *beta, double *cov,
+                         double *se_small, mr__error *err);
+/* robust.c: the robust covariance and standard errors into fit, from the
+ * meat pass's result r->meat (its bread and meat); after the fit's rank. */
+mr_status mr__robust_result(mr_fit *fit, const mr__run *r, mr__error *err);
 
 mr_status mr__build_fit(mr__run *r, mr_fit **out, mr__error *err);
 

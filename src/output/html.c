@@ -211,15 +211,34 @@ static void summary_convergence(mr__strbuf *b, const mr_fit *f)
     }
 }
 
+/* Which standard errors the table shows: robust ones drive its tests. */
+static void robust_note(mr__strbuf *b, const mr_fit *f)
+{
+    if (!f->robust) return;
+    mr__strbuf_printf(b, "<p>Standard errors: robust (sandwich %s, factor %.9g) ", f->robust_type,
+                      f->robust_adjustment);
+    if (f->cluster) {
+        put(b, "by cluster column ");
+        cell(b, "code", f->cluster);
+        mr__strbuf_printf(b, ", %llu clusters%s", (unsigned long long)f->nclusters,
+                          f->nclusters < 50 ? " (few clusters: they may be too small)" : "");
+    } else {
+        put(b, "by rows");
+    }
+    put(b, "; the model-based ones are in the JSON.</p>\n");
+}
+
 static void coefficient_table(mr__strbuf *b, const mr__html_page *pg, const mr_fit *f)
 {
     const char *ratio = mr__fit_ratio_label(f);
     size_t j;
-    mr__strbuf_printf(b, "<h3>Coefficients</h3>\n<p>Wald %s tests and %g%% intervals%s%s%s.</p>\n"
-                         "<table class=\"num\"><thead><tr><th>coefficient</th><th>estimate</th><th>SE</th>"
-                         "<th>%s</th><th>p</th><th>low</th><th>high</th>",
+    mr__strbuf_printf(b, "<h3>Coefficients</h3>\n<p>Wald %s tests and %g%% intervals%s%s%s.</p>\n",
                       mr__fit_statistic_name(f), 100 * f->level, ratio ? "; " : "", ratio ? ratio : "",
-                      ratio ? " = exp(estimate)" : "", mr__fit_statistic_name(f));
+                      ratio ? " = exp(estimate)" : "");
+    robust_note(b, f);
+    mr__strbuf_printf(b, "<table class=\"num\"><thead><tr><th>coefficient</th><th>estimate</th><th>%s</th>"
+                         "<th>%s</th><th>p</th><th>low</th><th>high</th>",
+                      f->robust ? "robust SE" : "SE", mr__fit_statistic_name(f));
     if (ratio) mr__strbuf_printf(b, "<th>%s</th><th>low</th><th>high</th>", ratio);
     put(b, "</tr></thead><tbody>\n");
     for (j = 0; j < f->p; j++) {
@@ -230,7 +249,7 @@ static void coefficient_table(mr__strbuf *b, const mr__html_page *pg, const mr_f
             continue;
         }
         num_cell(b, f->beta[j], pg->digits);
-        num_cell(b, f->se[j], pg->digits);
+        num_cell(b, f->robust ? f->robust_se[j] : f->se[j], pg->digits);
         num_cell(b, f->stat[j], pg->digits);
         put(b, "<td>");
         mr__html_p_value(b, f->pval[j]);

@@ -122,13 +122,13 @@ static json_t *term_columns(const mr_fit *f, const mr__fit_term *t)
     return a;
 }
 
-static json_t *covariance(const mr_fit *f)
+static json_t *covariance(const mr_fit *f, const double *m)
 {
     json_t *cov = json_array();
     size_t i, j;
     for (i = 0; cov != NULL && i < f->p; i++) {
         json_t *row = json_array();
-        for (j = 0; row != NULL && j < f->p; j++) row = append(row, num(f->cov[j * f->p + i]));
+        for (j = 0; row != NULL && j < f->p; j++) row = append(row, num(m[j * f->p + i]));
         cov = append(cov, row);
     }
     return cov;
@@ -138,7 +138,8 @@ static json_t *special(const mr_fit *f, int which, const void *base)
 {
     json_t *o;
     size_t i;
-    if (which == MR__JS_COVARIANCE) return covariance(f);
+    if (which == MR__JS_COVARIANCE) return covariance(f, f->cov);
+    if (which == MR__JS_ROBUST_COVARIANCE) return covariance(f, f->robust_cov);
     if (which == MR__JS_TERM_COLUMNS) return term_columns(f, base);
     o = json_object();
     for (i = 0; o != NULL && i < f->nmissing; i++)

@@ -293,11 +293,12 @@ static mr_status read_missing(reader *r, json_t *v, mr_fit *f)
     return MR_OK;
 }
 
-static mr_status read_covariance(reader *r, json_t *v, mr_fit *f)
+static mr_status read_covariance(reader *r, json_t *v, mr_fit *f, double **out)
 {
     size_t i, j, p = f->p;
+    double *cov;
     if (!json_is_array(v) || json_array_size(v) != p) return bad(r, "should be one row per coefficient");
-    if ((f->cov = mr__malloc_array(p * p + 1, sizeof *f->cov)) == NULL) return no_memory(r);
+    if ((cov = *out = mr__malloc_array(p * p + 1, sizeof *cov)) == NULL) return no_memory(r);
     for (i = 0; i < p; i++) {
         json_t *row = json_array_get(v, i);
         size_t back = enter_item(r, i);
@@ -305,7 +306,7 @@ static mr_status read_covariance(reader *r, json_t *v, mr_fit *f)
         for (j = 0; j < p; j++) {
             json_t *x = json_array_get(row, j);
             if (!json_is_null(x) && !json_is_number(x)) return bad(r, "should hold numbers or null");
-            f->cov[j * p + i] = json_is_null(x) ? NAN : json_number_value(x);
+            cov[j * p + i] = json_is_null(x) ? NAN : json_number_value(x);
         }
         leave(r, back);
     }
@@ -344,7 +345,8 @@ static mr_status read_value(reader *r, const mr__jfield *fl, json_t *v, void *ba
     switch (fl->kind) {
     case MR__J_SPECIAL:
         if (fl->which == MR__JS_MISSING) return read_missing(r, v, f);
-        if (fl->which == MR__JS_COVARIANCE) return read_covariance(r, v, f);
+        if (fl->which == MR__JS_COVARIANCE) return read_covariance(r, v, f, &f->cov);
+        if (fl->which == MR__JS_ROBUST_COVARIANCE) return read_covariance(r, v, f, &f->robust_cov);
         return read_term_columns(r, v, f, base);
     case MR__J_OBJECT_OPTIONAL:
         *(int *)((char *)base + fl->count) = 1;
@@ -440,6 +442,11 @@ static mr_status check_consistent(reader *r)
     if (f->rank > f->p) {
         enter(r, "fit.rank");
         return bad(r, "exceeds the number of coefficients");
+    }
+    if (f->robust && (f->nrobust_se != f->p || f->robust_cov == NULL ||
+                      (strcmp(f->robust_type, "HC0") != 0 && strcmp(f->robust_type, "HC1") != 0))) {
+        enter(r, "robust");
+        return bad(r, "should be of type HC0 or HC1 with one standard error per coefficient and a covariance");
     }
     for (i = 0; i < f->nterms; i++) {
         const mr__fit_term *t = &f->term[i];

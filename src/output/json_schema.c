@@ -228,6 +228,19 @@ static const mr__jfield run_fields[] = {
     END,
 };
 
+/* Robust standard errors, written only when the fit made them (so a fit
+ * without them keeps its bytes): the coefficients' statistics, p-values
+ * and intervals are then theirs. */
+static const mr__jfield robust_fields[] = {
+    F("type", MR__J_TEXT, robust_type),
+    F("cluster", MR__J_TEXT_OR_NULL, cluster),
+    F("clusters", MR__J_U64, nclusters),
+    F("adjustment", MR__J_REAL, robust_adjustment),
+    LIST("standard_errors", MR__J_REALS, robust_se, nrobust_se),
+    SPECIAL("covariance", MR__JS_ROBUST_COVARIANCE),
+    END,
+};
+
 const mr__jfield mr__json_fit_fields[] = {
     DERIVED("format", MR__JD_FORMAT),
     DERIVED("format_version", MR__JD_FORMAT_VERSION),
@@ -243,6 +256,7 @@ const mr__jfield mr__json_fit_fields[] = {
     {"coefficients", MR__J_RECORDS, 0, AT(p), 0, 0, 0, 0, NULL, NULL, coefficient_fields},
     OBJECT("fit", statistics_fields),
     SPECIAL("covariance", MR__JS_COVARIANCE),
+    {"robust", MR__J_OBJECT_OPTIONAL, 0, AT(robust), 0, 0, 0, 0, NULL, NULL, robust_fields},
     LIST("warnings", MR__J_TEXTS, warning, nwarnings),
     END,
 };

@@ -50,7 +50,8 @@ enum {
     MR__JD_RATIO_LOW, MR__JD_RATIO_HIGH, MR__JD_MODIFIED, MR__JD_TERM_KIND,
     MR__JS_MISSING, MR__JS_COVARIANCE, MR__JS_TERM_COLUMNS,
     MR__JD_TERM_TEST, /* a term's joint Wald test (fit/term_test.c), null without one */
-    MR__JD_FAMILY_PARAM_NAME /* the name of the family's own parameter */
+    MR__JD_FAMILY_PARAM_NAME, /* the name of the family's own parameter */
+    MR__JS_ROBUST_COVARIANCE  /* the robust covariance, laid out as the covariance */
 };
 
 typedef struct mr__jfield {
