@@ -230,10 +230,15 @@ typedef enum mr_int_option {
 
 /* Real-valued options. */
 typedef enum mr_real_option {
-    MR_OPT_TOLERANCE = 0,    /* converged when |D_k - D_k-1| / (|D_k| + 0.1)
-                                is below this, or when the next Newton step
-                                is predicted to change the deviance by less
-                                than a hundredth of it (default 1e-10)     */
+    MR_OPT_TOLERANCE = 0,    /* converged when the IRLS step d of a pass is
+                                this small in standard errors: sqrt(d' X'WX
+                                d / phi) <= it, or under a canonical link
+                                10 q^2 <= it (q: that step over the one
+                                before, itself <= 1), or once steps stop
+                                shrinking (rounding) <= 1000 times it;
+                                the step is taken
+                                without another pass (default 1e-9;
+                                README, "Stopping rule")                    */
     MR_OPT_LEVEL = 1         /* confidence level of intervals (default 0.95) */
 } mr_real_option;
 
@@ -468,7 +473,10 @@ typedef enum mr_stat {
     MR_STAT_ROWS_USED = 10,
     MR_STAT_ITERATIONS = 11,
     MR_STAT_PASSES = 12,
-    MR_STAT_RELATIVE_CHANGE = 13,
+    MR_STAT_RELATIVE_CHANGE = 13, /* the last step in standard errors (README,
+                                     "Stopping rule"); after a coefficient ran
+                                     off to infinity, the relative deviance
+                                     change */
     MR_STAT_SECONDS = 14,
     MR_STAT_RANK = 15,
     MR_STAT_LEVEL = 16,      /* confidence level of the intervals            */
@@ -947,6 +955,15 @@ MR_API mr_status mr_comparison_write_json(const mr_comparison *c, const char *pa
 
 /* Frees memory the library returned (mr_fit_report). NULL is fine. */
 MR_API void mr_free(void *p);
+
+/* 1 when coefficient j is not estimable in practice: the outcomes of a
+ * factor level or of a cell of two interacting factors are all 0 (or, for
+ * the binomial, all at the maximum), found from the first pass's counts,
+ * or its standard error grew at each of the last passes (separation by a
+ * covariate); its estimate and standard error are where IRLS stopped on
+ * the way to infinity, and a warning names it and says what to do.
+ * 0 for j out of range. */
+MR_API int mr_fit_coef_not_estimable(const mr_fit *fit, size_t j);
 
 #ifdef __cplusplus
 }

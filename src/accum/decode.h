@@ -110,6 +110,10 @@ typedef struct mr__decode_cfg {
      * building patterns once *collapse_abandoned is set. */
     int collapse;
     atomic_int *collapse_abandoned;
+    /* First pass: the pairs of factors (binding numbers) that interact,
+     * whose cells accum/level_outcomes.h counts. */
+    const int32_t (*pairs)[2];
+    size_t npairs;
 } mr__decode_cfg;
 
 typedef struct mr__decoder {

@@ -768,6 +768,8 @@ void mr__pass_result_release(mr__pass_result *res, size_t nfac)
         for (f = 0; f < nfac; f++) mr__levelset_release(&res->worker_levels[i][f]);
         mr__free(res->worker_levels[i]);
     }
+    for (i = 0; res->worker_outcomes && i < res->nworkers; i++) mr__level_outcomes_free(res->worker_outcomes[i]);
+    mr__free(res->worker_outcomes);
     mr__free(res->worker_levels);
     /* a result zeroed and never run has no sample (and fd 0 is not ours) */
     if (res->sample.packed) mr__store_release(&res->sample);

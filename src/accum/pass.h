@@ -30,6 +30,7 @@
 #include "accum/store.h"
 #include "input/blockmap.h"
 #include "accum/decode.h"
+#include "accum/level_outcomes.h"
 #include "millrace.h"
 #include "accum/pass_job.h"
 
@@ -95,6 +96,9 @@ typedef struct mr__pass_result {
     /* First pass: each worker's factor levels (nthreads decoders' sets),
      * valid until mr__pass_result_release. */
     mr__levelset **worker_levels;
+    /* First pass: each worker's outcome counts by its own level numbers
+     * (level_outcomes.h), likewise. */
+    mr__level_outcomes **worker_outcomes;
     size_t nworkers;
     double seconds;
     /* First pass: an evenly spread sample of the blocks (every

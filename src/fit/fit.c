@@ -18,6 +18,7 @@ void mr_fit_free(mr_fit *fit)
     if (fit == NULL) return;
     free_strings(fit->name, fit->p);
     mr__free(fit->aliased);
+    mr__free(fit->inestimable);
     mr__free(fit->beta);
     mr__free(fit->se);
     mr__free(fit->cov);
@@ -74,6 +75,7 @@ mr_status mr__fit_alloc_coefficients(mr_fit *fit, size_t p)
     fit->p = p;
     fit->name = mr__calloc(p + 1, sizeof *fit->name);
     fit->aliased = mr__calloc(p + 1, sizeof *fit->aliased);
+    fit->inestimable = mr__calloc(p + 1, sizeof *fit->inestimable);
     fit->beta = mr__calloc(p + 1, sizeof(double));
     fit->se = mr__calloc(p + 1, sizeof(double));
     fit->cov = mr__calloc(p * p + 1, sizeof(double));
@@ -81,7 +83,7 @@ mr_status mr__fit_alloc_coefficients(mr_fit *fit, size_t p)
     fit->pval = mr__calloc(p + 1, sizeof(double));
     fit->lo = mr__calloc(p + 1, sizeof(double));
     fit->hi = mr__calloc(p + 1, sizeof(double));
-    if (!fit->name || !fit->aliased || !fit->beta || !fit->se || !fit->cov || !fit->stat || !fit->pval || !fit->lo ||
+    if (!fit->name || !fit->aliased || !fit->inestimable || !fit->beta || !fit->se || !fit->cov || !fit->stat || !fit->pval || !fit->lo ||
         !fit->hi)
         return MR_ERR_NO_MEMORY;
     return MR_OK;
@@ -161,6 +163,7 @@ mr_status mr_fit_status(const mr_fit *fit) { return fit->status; }
 size_t mr_fit_ncoef(const mr_fit *fit) { return fit->p; }
 const char *mr_fit_coef_name(const mr_fit *fit, size_t j) { return j < fit->p ? fit->name[j] : NULL; }
 int mr_fit_coef_aliased(const mr_fit *fit, size_t j) { return j < fit->p ? fit->aliased[j] : 0; }
+int mr_fit_coef_not_estimable(const mr_fit *fit, size_t j) { return j < fit->p ? fit->inestimable[j] : 0; }
 double mr_fit_coef(const mr_fit *fit, size_t j) { return j < fit->p ? fit->beta[j] : NAN; }
 double mr_fit_std_error(const mr_fit *fit, size_t j) { return j < fit->p ? fit->se[j] : NAN; }
 

@@ -60,6 +60,8 @@ struct mr_fit {
     size_t p, rank;
     char **name;
     int *aliased;
+    int *inestimable; /* not estimable in practice: a zero cell, or its SE grew
+                         at every pass (result.c, zero_cells.c) */
     double *beta, *se, *cov, *stat, *pval, *lo, *hi;
     /* model */
     int family, link, intercept, dispersion_estimated;
@@ -93,7 +95,7 @@ struct mr_fit {
     char **bad_example;
     size_t nbad_examples;
     /* convergence */
-    int iterations, passes, halvings, converged, warm_start, warm_iterations, by_decrement;
+    int iterations, passes, halvings, converged, warm_start, warm_iterations, by_step;
     int warm_blocks, warm_polish_blocks; /* sample blocks the warm start used (0: none) */
     int start_given;       /* started from a previous fit (mr_fitter_set_start) */
     char *start_from;      /* its label; NULL when none */

@@ -11,7 +11,7 @@
 
 #define DEFAULT_MAX_PASSES 50
 #define DEFAULT_BUFFER (1u << 20)
-#define DEFAULT_TOLERANCE 1e-10
+#define DEFAULT_TOLERANCE 1e-9
 
 const char *mr_version(void) { return MR_VERSION_STRING; }
 

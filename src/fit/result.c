@@ -431,7 +431,7 @@ static mr_status copy_run_info(mr_fit *fit, const mr__run *r, mr__error *err)
     fit->passes = r->npasses;
     fit->halvings = r->halvings;
     fit->warm_start = r->warm;
-    fit->by_decrement = r->by_decrement;
+    fit->by_step = r->by_step;
     fit->patterns = r->collapsed ? r->npatterns : 0;
     fit->warm_iterations = r->warm_iterations;
     fit->warm_blocks = r->warm ? r->warm_blocks : 0;
@@ -501,7 +501,7 @@ static void collect_warnings(mr_fit *fit, const mr__run *r)
     for (j = 0; j < noutcome; j++) mr__fit_warn(fit, "%s", outcome[j]);
     param_warnings(fit, r);
     if (!fit->converged)
-        mr__fit_warn(fit, "NOT CONVERGED after %d IRLS passes (relative deviance change %.3g, tolerance %.3g): "
+        mr__fit_warn(fit, "NOT CONVERGED after %d IRLS passes (last step %.3g standard errors, tolerance %.3g): "
                           "the estimates are not a maximum-likelihood fit",
                      fit->iterations, fit->rel_change, fit->tolerance);
     mr__strbuf_init(&sb);
@@ -546,6 +546,7 @@ mr_status mr__build_fit(mr__run *r, mr_fit **out, mr__error *err)
         return st;
     }
     collect_warnings(fit, r);
+    mr__flag_zero_cells(fit, r);
     *out = fit;
     return MR_OK;
 }

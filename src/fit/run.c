@@ -5,10 +5,9 @@
  * every row.  Then IRLS: each pass evaluates the model at the current
  * coefficients, accumulating X'WX, X'Wz, the deviance and the Pearson
  * statistic, and the small p x p system gives the next coefficients.  The
- * loop stops when the relative change in deviance is below the tolerance;
- * the reported statistics are those of the last pass (and so are the
- * coefficients, unless the last Newton step was taken without a pass to
- * check it; see iterate()).  The null model (intercept and offset only) is fitted
+ * loop stops when the step a pass gives is at most the tolerance in
+ * standard errors (irls.c); that step is taken without another pass, and
+ * the reported statistics are those of the last pass.  The null model (intercept and offset only) is fitted
  * alongside in the same passes. */
 #define _POSIX_C_SOURCE 200809L
 #include <cblas.h>
@@ -187,10 +186,12 @@ typedef struct irls_job {
     int restarted;       /* the start was given up for the family's own */
     const double *start; /* NULL: from the family's starting means */
     double tolerance;
+    double dispersion_rows; /* see mr__irls_cfg; 0 on the sample (phi taken as 1) */
     int max_iterations;
     double *beta_out;    /* the coefficients reached */
+    int *growing_out;    /* NULL, or per coefficient: its SE grew pass after pass */
     double deviance_shift; /* collapsed patterns: the deviance within patterns */
-    int iterations, halvings, converged, by_decrement;
+    int iterations, halvings, converged, by_step;
     double rel_change, null_b0;
 } irls_job;
 
@@ -229,17 +230,26 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
     return note_pass(r, res, err);
 }
 
+/* IRLS is Newton's method under a family's canonical link; the negative
+ * binomial's and the Tweedie's defaults (log) are not theirs. */
+static int newton_link(const mr__run *r)
+{
+    int family = r->f->spec.family;
+    return family != MR_NEGATIVE_BINOMIAL && family != MR_TWEEDIE &&
+           mr__spec_link(&r->f->spec) == (int)mr__canonical_link((mr_family)family);
+}
+
 /* Where the family sums a series density (tweedie), the dispersion to
  * sum it at in the next pass: the deviance-based estimate of the last
- * accepted point, once the last step was small (its Newton decrement
- * below 1e-4 of the deviance), so that only the passes near the end pay
- * for the series; the result carries the sum to the final pass's own
- * dispersion (fit/result.c).  NaN: not this pass. */
+ * accepted point, once the last step was within a standard error of the
+ * maximum, so that only the passes near the end pay for the series; the
+ * result carries the sum to the final pass's own dispersion
+ * (fit/result.c).  NaN: not this pass. */
 static double series_dispersion(const mr__run *r, const mr__irls *s)
 {
     double sw = r->first.scan.sw;
     if (!r->family.ops->loglik_by_rows || !s->have_dev || !s->have_prev || !(sw > 0)) return NAN;
-    if (!(fabs(s->decrement) < 1e-4 * (fabs(s->dev_prev) + 0.1))) return NAN;
+    if (!(s->step <= 1)) return NAN;
     return s->dev_prev / sw;
 }
 
@@ -251,9 +261,12 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
     mr__irls_cfg c;
     mr_status st;
     int done = 0;
+    size_t j;
     memset(&c, 0, sizeof c);
     c.p = r->design.p;
     c.tolerance = job->tolerance;
+    c.dispersion_rows = job->dispersion_rows;
+    c.newton = newton_link(r);
     c.max_iterations = job->max_iterations;
     c.step_at_end = job->step_at_end;
     c.start = job->start;
@@ -274,13 +287,15 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
     job->iterations = s.iterations;
     job->halvings = s.halvings;
     job->converged = s.converged;
-    job->by_decrement = s.by_decrement;
+    job->by_step = s.by_step;
     job->restarted = s.restarted;
     job->rel_change = s.rel_change;
     job->null_b0 = s.null_b0;
     if (r->family.estimate) r->family.param = mr__irls_param(&s);
     r->loglik_dispersion = r->family.dispersion;
     if (st == MR_OK) mr__irls_coefficients(&s, job->beta_out);
+    for (j = 0; st == MR_OK && job->growing_out && j < c.p; j++)
+        job->growing_out[j] = mr__irls_ran_off(&s, j);
     mr__irls_release(&s);
     return st;
 }
@@ -308,7 +323,10 @@ static int sample_fit(mr__run *r, size_t stride, const double *start, int max_it
     job.replay = &r->first.sample;
     job.replay_stride = stride;
     job.start = start;
-    job.tolerance = 1e-8;
+    /* the sample's maximum is within its own sampling error of the
+     * file's, so a step of a thousandth of its standard errors is near
+     * enough */
+    job.tolerance = 1e-3;
     job.max_iterations = max_iterations;
     job.step_at_end = start != NULL;
     job.beta_out = out;
@@ -376,13 +394,15 @@ static mr_status fit_data(mr__run *r, mr__error *err)
     }
     job.start = r->warm || r->started ? r->beta_warm : NULL;
     job.tolerance = r->f->tolerance;
+    job.dispersion_rows = mr__spec_dispersion_estimated(&r->f->spec) ? (double)r->first.scan.npos : 0;
     job.max_iterations = r->f->max_passes;
     job.beta_out = r->beta_final;
+    job.growing_out = r->growing;
     MR__TRY(iterate(r, &job, &r->last, err));
     r->iterations = job.iterations;
     r->halvings = job.halvings;
     r->converged = job.converged;
-    r->by_decrement = job.by_decrement;
+    r->by_step = job.by_step;
     r->rel_change = job.rel_change;
     r->null_b0 = job.null_b0;
     return MR_OK;
@@ -463,6 +483,7 @@ void mr__run_release(mr__run *r)
     mr__free(r->pass_seconds);
     mr__free(r->beta_final);
     mr__free(r->beta_warm);
+    mr__free(r->growing);
     mr__store_release(&r->store);
     mr__store_release(&r->patterns);
     mr__pass_pool_release(&r->pool);
@@ -477,7 +498,8 @@ static mr_status allocate_coefficients(mr__run *r, mr__error *err)
     size_t p = r->design.p + 1;
     r->beta_final = mr__calloc(p, sizeof(double));
     r->beta_warm = mr__calloc(p, sizeof(double));
-    if (!r->beta_final || !r->beta_warm)
+    r->growing = mr__calloc(p, sizeof *r->growing);
+    if (!r->beta_final || !r->beta_warm || !r->growing)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     return MR_OK;
 }

@@ -197,13 +197,10 @@ static void summary_model(mr__strbuf *b, const mr_fit *f)
 static void summary_convergence(mr__strbuf *b, const mr_fit *f)
 {
     size_t i;
-    mr__strbuf_printf(b, "<h3>Convergence</h3>\n<p%s>%s after %d IRLS iterations (%d pass%s over the data); %s "
-                         "%.3g (tolerance %.3g).</p>\n",
+    mr__strbuf_printf(b, "<h3>Convergence</h3>\n<p%s>%s after %d IRLS iterations (%d pass%s over the data); last step "
+                         "%.3g standard errors (tolerance %.3g).</p>\n",
                       f->converged ? "" : " class=\"warn\"", f->converged ? "Converged" : "NOT CONVERGED: do not use",
-                      f->iterations, f->passes, f->passes == 1 ? "" : "es",
-                      f->by_decrement ? "relative deviance change the last step predicts"
-                                      : "last relative deviance change",
-                      f->rel_change, f->tolerance);
+                      f->iterations, f->passes, f->passes == 1 ? "" : "es", f->rel_change, f->tolerance);
     for (i = 0; i < f->nwarnings; i++) {
         put(b, i ? "\n<li>" : "<p class=\"warn\">Warnings:</p>\n<ul><li>");
         mr__html_text(b, f->warning[i]);
@@ -242,8 +239,16 @@ static void coefficient_table(mr__strbuf *b, const mr__html_page *pg, const mr_f
     if (ratio) mr__strbuf_printf(b, "<th>%s</th><th>low</th><th>high</th>", ratio);
     put(b, "</tr></thead><tbody>\n");
     for (j = 0; j < f->p; j++) {
-        put(b, "<tr>");
-        cell(b, "td", f->name[j]);
+        put(b, f->inestimable && f->inestimable[j] ? "<tr class=\"warn\">" : "<tr>");
+        if (f->inestimable && f->inestimable[j]) {
+            mr__strbuf label;
+            mr__strbuf_init(&label);
+            mr__strbuf_printf(&label, "%s (not estimable)", f->name[j]);
+            cell(b, "td", label.data ? label.data : f->name[j]);
+            mr__strbuf_release(&label);
+        } else {
+            cell(b, "td", f->name[j]);
+        }
         if (f->aliased[j]) {
             mr__strbuf_printf(b, "<td colspan=\"%d\">aliased (no estimate)</td></tr>\n", ratio ? 9 : 6);
             continue;

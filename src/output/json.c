@@ -159,7 +159,8 @@ static json_t *scalar(const mr__jfield *fl, const void *v)
     case MR__J_U64: return json_integer((json_int_t) * (const uint64_t *)v);
     case MR__J_I64: return json_integer((json_int_t) * (const int64_t *)v);
     case MR__J_REAL: return num(*(const double *)v);
-    case MR__J_BOOL: return json_boolean(*(const int *)v);
+    case MR__J_BOOL:
+    case MR__J_BOOL_ADDED: return json_boolean(*(const int *)v);
     case MR__J_TEXT:
     case MR__J_TEXT_OR_NULL: return mr__json_text(*(char *const *)v);
     case MR__J_CHOICE: return json_string(*(const int *)v ? fl->yes : fl->no);

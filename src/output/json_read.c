@@ -96,6 +96,18 @@ static mr_status read_integer(reader *r, json_t *v, json_int_t lo, json_int_t hi
     return MR_OK;
 }
 
+/* The convergence criterion's words before the step in standard errors:
+ * the Newton decrement's fits took their last step without a pass, as
+ * the step rule's do; the deviance change's stopped at their last pass,
+ * as a fit stopped at the boundary does. */
+static int earlier_criterion(const char *w, int *out)
+{
+    if (strcmp(w, "newton decrement") == 0) *out = 1;
+    else if (strcmp(w, "deviance change") == 0) *out = 0;
+    else return 0;
+    return 1;
+}
+
 static mr_status read_word(reader *r, json_t *v, const char **out)
 {
     if (!json_is_string(v)) return bad(r, "should be a string");
@@ -110,6 +122,7 @@ static mr_status read_named(reader *r, const mr__jfield *fl, json_t *v, int *out
     MR__TRY(read_word(r, v, &w));
     switch (fl->kind) {
     case MR__J_CHOICE:
+        if (strcmp(fl->key, "criterion") == 0 && earlier_criterion(w, out)) return MR_OK;
         if (strcmp(w, fl->yes) != 0 && strcmp(w, fl->no) != 0) return bad(r, "is not one of its two words");
         *out = strcmp(w, fl->yes) == 0;
         return MR_OK;
@@ -191,6 +204,7 @@ static mr_status read_scalar(reader *r, const mr__jfield *fl, json_t *v, void *s
         *(double *)slot = json_is_null(v) ? NAN : json_number_value(v);
         return MR_OK;
     case MR__J_BOOL:
+    case MR__J_BOOL_ADDED:
         if (!json_is_boolean(v)) return bad(r, "should be true or false");
         *(int *)slot = json_is_true(v);
         return MR_OK;
@@ -376,6 +390,7 @@ static mr_status read_object(reader *r, json_t *o, const mr__jfield *fields, voi
         if (fl->kind == MR__J_DERIVED || (fl->kind == MR__J_OBJECT_OPTIONAL && v == NULL)) continue;
         back = enter(r, fl->key);
         if (v == NULL && fl->kind == MR__J_OBJECT_ADDED) v = json_null();
+        if (v == NULL && fl->kind == MR__J_BOOL_ADDED) v = json_false();
         if (v == NULL) return bad(r, "is missing");
         MR__TRY(read_value(r, fl, v, base, index));
         leave(r, back);

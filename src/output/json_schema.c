@@ -170,7 +170,7 @@ static const mr__jfield start_fields[] = {
 
 static const mr__jfield convergence_fields[] = {
     F("converged", MR__J_BOOL, converged),
-    CHOICE("criterion", by_decrement, "newton decrement", "deviance change"),
+    CHOICE("criterion", by_step, "step in standard errors", "deviance change at the boundary"),
     F("iterations", MR__J_INT, iterations),
     F("passes", MR__J_INT, passes),
     F("relative_change", MR__J_REAL, rel_change),
@@ -190,6 +190,8 @@ static const mr__jfield convergence_fields[] = {
 static const mr__jfield coefficient_fields[] = {
     EACH("name", MR__J_TEXT, name),
     EACH("aliased", MR__J_BOOL, aliased),
+    /* a zero cell or a growing standard error: at infinity in practice */
+    EACH("not_estimable", MR__J_BOOL_ADDED, inestimable),
     EACH("estimate", MR__J_REAL, beta),
     EACH("standard_error", MR__J_REAL, se),
     EACH("statistic", MR__J_REAL, stat),

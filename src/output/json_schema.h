@@ -41,7 +41,9 @@ typedef enum mr__jkind {
     MR__J_STRUCTS,       /* an array of `count` structs of `size` bytes at `at`, each the fields `sub` */
     MR__J_KEYED,         /* as STRUCTS, as an object keyed by each struct's text at `key_at` */
     MR__J_DERIVED,       /* written from other fields (`which`), never read */
-    MR__J_SPECIAL        /* a layout of its own (`which`) */
+    MR__J_SPECIAL,       /* a layout of its own (`which`) */
+    MR__J_BOOL_ADDED     /* as BOOL, added within a format_version: absent
+                            in older files, and read as false there */
 } mr__jkind;
 
 /* What derived and special fields are. */

@@ -91,9 +91,12 @@ static void section_convergence(mr__strbuf *b, const mr_fit *f)
     mr__strbuf_printf(b, "fit        %s after %d IRLS iterations (%d pass%s over the data%s)\n",
                       f->converged ? "converged" : "NOT CONVERGED", f->iterations, f->passes, f->passes == 1 ? "" : "es",
                       f->in_memory ? ", later passes from memory" : f->cached ? ", later passes from the cache" : "");
-    mr__strbuf_printf(b, "           %s %.3g (tolerance %.3g)",
-                      f->by_decrement ? "relative deviance change the last step predicts" : "last relative deviance change",
-                      f->rel_change, f->tolerance);
+    if (f->by_step)
+        mr__strbuf_printf(b, "           last step %.3g standard errors (tolerance %.3g; taken, without a pass after it)",
+                          f->rel_change, f->tolerance);
+    else
+        mr__strbuf_printf(b, "           a coefficient running off to infinity: stopped on a relative deviance change of %.3g",
+                          f->rel_change);
     if (f->halvings) mr__strbuf_printf(b, ", %d step halvings", f->halvings);
     if (f->patterns)
         mr__strbuf_printf(b, "\n           rows collapsed into %zu covariate patterns: one read of the file, IRLS in memory%s",
@@ -162,7 +165,8 @@ static void section_coefficients(mr__strbuf *b, const mr_fit *f, int digits)
             put_number(b, exp(f->lo[j]), digits, nw);
             put_number(b, exp(f->hi[j]), digits, nw);
         }
-        mr__strbuf_printf(b, "\n");
+        /* at infinity in practice (a zero cell, a growing SE): warnings say why */
+        mr__strbuf_printf(b, "%s\n", f->inestimable && f->inestimable[j] ? "  ! not estimable" : "");
     }
 }
 
