@@ -178,7 +178,7 @@ MR_API const char *mr_fitter_errmsg(const mr_fitter *f);
 
 /* Adds one line of the model language (see README, "The model file"):
  *   outcome COL | trials COL | family NAME [PARAM=VALUE] | link NAME |
- *   numeric COL | factor COL [ref=LEVEL] | interact A B [C] |
+ *   numeric COL | factor COL [ref=LEVEL] [many] | interact A B [C] |
  *   spline COL df=N|knots=K1,K2,... [boundary=LO,HI] |
  *   offset COL | exposure COL | weight COL | intercept yes|no |
  *   dispersion estimate|fixed
@@ -887,6 +887,22 @@ MR_API const char *mr_output_lock_file(const mr_output_lock *lock);
  * separation, aliased columns, non-convergence, ... */
 MR_API size_t mr_fit_nwarnings(const mr_fit *fit);
 MR_API const char *mr_fit_warning(const mr_fit *fit, size_t i);
+
+/* A factor declared `many` (`factor COL [ref=LEVEL] many`: its levels
+ * eliminated exactly instead of being columns).  Its levels other than
+ * the reference are not coefficients: mr_fit_ncoef does not count them and
+ * the covariance leaves them out.  The factor's name (owned by the fit),
+ * or NULL when the fit has none; the number of those levels (0 without). */
+MR_API const char *mr_fit_many_factor(const mr_fit *fit);
+MR_API size_t mr_fit_many_nlevels(const mr_fit *fit);
+/* Level k of them (0 .. mr_fit_many_nlevels - 1, in byte-wise order): its
+ * name (owned by the fit), and through each pointer that is not NULL its
+ * estimate (the difference from the reference level, link scale; NaN for a
+ * level with no information), standard error (dispersion included; NaN:
+ * no information) and information (the sum of the IRLS weights of its
+ * rows).  NULL when k is out of range. */
+MR_API const char *mr_fit_many_level(const mr_fit *fit, size_t k, double *estimate, double *std_error,
+                                     double *information);
 
 /* Calibration: observed against expected by tenths of the fitted mean.
  * The last pass sums, for every row of positive prior weight w, its w,

@@ -49,6 +49,14 @@ mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *
     ws->var = aligned_doubles(R);
     ws->dev = aligned_doubles(R);
     ws->w = aligned_doubles(R);
+    if (d->nabsorb > 0) {
+        size_t l;
+        if ((ws->lev_slot = mr__malloc_array(d->nabsorb, sizeof *ws->lev_slot)) == NULL) {
+            mr__workspace_release(ws);
+            return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        }
+        for (l = 0; l < d->nabsorb; l++) ws->lev_slot[l] = -1;
+    }
     if (!ws->sd || !ws->tile || !ws->D || !ws->lanes || !ws->sval || !ws->scol || !ws->dd || !ws->bd || !ws->bs || !ws->eta ||
         !ws->mu || !ws->mu_eta || !ws->var || !ws->dev || !ws->w) {
         mr__workspace_release(ws);
@@ -74,6 +82,7 @@ void mr__workspace_release(mr__workspace *ws)
     mr__free(ws->var);
     mr__free(ws->dev);
     mr__free(ws->w);
+    mr__free(ws->lev_slot);
     memset(ws, 0, sizeof *ws);
 }
 
@@ -106,21 +115,26 @@ void mr__sums_release(mr__block_sums *s)
 {
     mr__free(s->xtwx);
     mr__free(s->xtwz);
+    mr__free(s->lev);
     mr__calib_release(&s->calib);
     memset(s, 0, sizeof *s);
 }
 
 static void zero_sums(mr__block_sums *s, size_t entries, size_t p)
 {
-    double *a = s->xtwx, *b = s->xtwz;
+    double *a = s->xtwx, *b = s->xtwz, *lev = s->lev;
+    size_t nlev = s->nlev;
     mr__calib c = s->calib;
     mr__calib_zero(&c);
     memset(s, 0, sizeof *s);
     s->xtwx = a;
     s->xtwz = b;
+    s->lev = lev;
+    s->nlev = nlev;
     s->calib = c;
     memset(a, 0, entries * sizeof *a);
     memset(b, 0, p * sizeof *b);
+    if (lev != NULL) memset(lev, 0, nlev * (p + 2) * sizeof *lev);
 }
 
 void mr__sums_zero(mr__block_sums *s, const mr__design *d) { zero_sums(s, d->nnz, d->p); }
@@ -190,6 +204,13 @@ static void linear_predictor(const mr__irls_point *pt, const mr__block *blk, mr_
         const double *val = ws->sval + s * n, *bs = ws->bs + 1;
         double *eta = ws->eta;
         for (i = 0; i < n; i++) eta[i] += val[i] * bs[col[i]];
+    }
+    if (d->nabsorb > 0) {
+        const double *bl = pt->beta + d->p;
+        for (i = 0; i < n; i++) {
+            int32_t k = mr__design_absorb_row(d, blk->lev, MR__BLOCK_ROWS, i);
+            if (k >= 0) ws->eta[i] += bl[k];
+        }
     }
     pt->link->inv_n(ws->eta, n, ws->mu, ws->mu_eta);
 }

@@ -16,7 +16,9 @@ typedef struct mr__irls_point {
     const mr__design *design;
     const mr__family *family;
     const mr__link_ops *link;
-    const double *beta; /* internal-scale coefficients; NULL = start from mustart */
+    /* internal-scale coefficients, then the eliminated factor's levels'
+     * (design.h); NULL = start from mustart */
+    const double *beta;
     int null_intercept; /* the null model has an intercept */
     int null_skip;      /* its sums are known already: leave them out */
     double null_b0;     /* its current value */
@@ -33,6 +35,11 @@ typedef struct mr__block_sums {
     double dev, pearson, null_dev, null_sw, null_swz;
     uint64_t invalid;  /* rows whose eta or mu left the family's domain */
     uint64_t boundary; /* rows fitted at the edge of the domain */
+    /* A pass's totals with a design's eliminated factor (design.h): its
+     * nlev levels' rows of MR__ABSORB_WIDTH(p) doubles (d, b_D, c: see
+     * solve/absorb.h, accum/levelsums.h); NULL otherwise.  Owned. */
+    double *lev;
+    size_t nlev;
     mr__calib calib;   /* observed and expected by fitted mean (not encoded) */
     /* the family's own sums (family.h, MR__PS_*): zero for a family that
      * has none to add at this point */
@@ -49,6 +56,7 @@ typedef struct mr__workspace {
     double *bs;    /* 0, then the coefficients (linear_predictor) */
     int32_t *scol;
     double *eta, *mu, *mu_eta, *var, *dev, *w;
+    int32_t *lev_slot; /* the eliminated factor's levels: a block's row of each, -1 (levelsums.h) */
 } mr__workspace;
 
 mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *err);

@@ -1,10 +1,12 @@
 /* job_irls.c - an IRLS pass as a job of the pass engine (pass_job.h):
  * each block's X'WX, X'Wz, deviance and the other totals at the current
- * coefficients (accumulate.c), added by the group order of partial.h; on
+ * coefficients (accumulate.c), added by the group order of partial.h,
+ * with an eliminated factor's per-level sums likewise (levelsums.h); on
  * the first such pass after a first pass that kept no blocks, the blocks
  * are kept for the passes after it. */
 #include <string.h>
 
+#include "accum/levelsums.h"
 #include "accum/partial.h"
 #include "accum/pass.h"
 #include "common/alloc.h"
@@ -13,8 +15,28 @@ typedef struct irls_job {
     const mr__pass_env *env;
     const mr__design *design;
     mr__block_sums group; /* the open group's total */
+    mr__level_group lgroup; /* its eliminated factor's levels (design->nabsorb > 0) */
     int group_open;
 } irls_job;
+
+/* A block's partial result: its sums, and its levels' rows. */
+typedef struct irls_part {
+    mr__block_sums sums;
+    mr__level_part lev;
+} irls_part;
+
+static size_t level_width(const mr__design *d) { return d->p + 2; }
+
+static mr_status open_levels(irls_job *j, mr__error *err)
+{
+    mr__block_sums *total = &j->env->res->sums;
+    const mr__design *d = j->design;
+    if (d->nabsorb == 0) return MR_OK;
+    total->lev = mr__calloc(d->nabsorb * level_width(d), sizeof *total->lev);
+    if (total->lev == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    total->nlev = d->nabsorb;
+    return mr__level_group_init(&j->lgroup, d->nabsorb, level_width(d), err);
+}
 
 static mr_status irls_open(const mr__pass_env *env, void **out, mr__error *err)
 {
@@ -24,15 +46,21 @@ static mr_status irls_open(const mr__pass_env *env, void **out, mr__error *err)
     j->env = env;
     j->design = env->cfg->point->design;
     MR__TRY(mr__sums_init(&env->res->sums, j->design->p, err));
-    return mr__sums_init(&j->group, j->design->p, err);
+    MR__TRY(mr__sums_init(&j->group, j->design->p, err));
+    return open_levels(j, err);
 }
 
 static mr_status irls_slot_init(void *job, mr__pass_slot *s, mr__error *err)
 {
     irls_job *j = job;
-    s->part = mr__calloc(1, sizeof(mr__block_sums));
-    if (s->part == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    return mr__sums_init_block(s->part, j->design, err);
+    irls_part *part = mr__calloc(1, sizeof *part);
+    size_t nabsorb = j->design->nabsorb;
+    if (part == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    s->part = part;
+    MR__TRY(mr__sums_init_block(&part->sums, j->design, err));
+    if (nabsorb == 0) return MR_OK;
+    return mr__level_part_init(&part->lev, level_width(j->design), nabsorb < MR__BLOCK_ROWS ? nabsorb : MR__BLOCK_ROWS,
+                               err);
 }
 
 static mr_status irls_start(void *job, mr__error *err)
@@ -62,7 +90,12 @@ static int irls_wants_packed(void *job, const mr__pass_slot *s)
 static void irls_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
 {
     irls_job *j = job;
-    mr__accumulate_block(j->env->cfg->point, s->use, w->part, s->part);
+    irls_part *part = s->part;
+    mr__accumulate_block(j->env->cfg->point, s->use, w->part, &part->sums);
+    part->lev.n = 0;
+    /* rows out of the domain: the step is halved and the sums unused */
+    if (j->design->nabsorb > 0 && s->use->n > 0 && part->sums.invalid == 0)
+        mr__level_part_block(j->env->cfg->point, s->use, w->part, &part->lev);
 }
 
 /* The group's total into the pass's, in group order (accum/partial.h). */
@@ -70,6 +103,7 @@ static void close_group(irls_job *j)
 {
     mr__sums_add_totals(&j->env->res->sums, &j->group, j->design->p);
     mr__sums_zero_totals(&j->group, j->design->p);
+    if (j->design->nabsorb > 0) mr__level_group_close(&j->lgroup, j->env->res->sums.lev);
     j->group_open = 0;
 }
 
@@ -77,8 +111,10 @@ static mr_status irls_add(void *job, mr__pass_slot *s, mr__error *err)
 {
     irls_job *j = job;
     const mr__pass_cfg *cfg = j->env->cfg;
+    irls_part *part = s->part;
     MR__TRY(mr__pass_block_status(s, err));
-    mr__sums_add(&j->group, s->part, j->design);
+    mr__sums_add(&j->group, &part->sums, j->design);
+    if (j->design->nabsorb > 0) MR__TRY(mr__level_group_add(&j->lgroup, &part->lev, err));
     j->group_open = 1;
     if (mr__group_closes(s->index, 0)) close_group(j);
     if (cfg->store && cfg->store_fill) return mr__pass_keep_block(cfg, j->env->res, s, err);
@@ -106,10 +142,12 @@ static void irls_worker_release(void *job, mr__pass_worker *w)
 
 static void irls_slot_release(void *job, mr__pass_slot *s)
 {
+    irls_part *part = s->part;
     (void)job;
-    if (s->part == NULL) return;
-    mr__sums_release(s->part);
-    mr__free(s->part);
+    if (part == NULL) return;
+    mr__sums_release(&part->sums);
+    mr__level_part_release(&part->lev);
+    mr__free(part);
     s->part = NULL;
 }
 
@@ -117,6 +155,7 @@ static void irls_close(void *job)
 {
     irls_job *j = job;
     mr__sums_release(&j->group);
+    mr__level_group_release(&j->lgroup);
     mr__free(j);
 }
 

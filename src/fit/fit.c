@@ -71,6 +71,7 @@ void mr_fit_free(mr_fit *fit)
     for (i = 0; fit->numeric && i < fit->nnumerics; i++) mr__free(fit->numeric[i].name);
     mr__free(fit->numeric);
     mr__free(fit->host);
+    mr__fit_free_many(fit);
     mr__free(fit);
 }
 

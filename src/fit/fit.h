@@ -131,6 +131,17 @@ struct mr_fit {
     char **command_line; /* the words given to mr_fitter_set_command_line */
     size_t ncommand_line;
     char *started, *ended, *host; /* ISO 8601 UTC; the machine's name */
+    /* The factor declared `many` (model/design.h), NULL when none: its
+     * levels other than the reference (nmany, in level order) are not in
+     * the coefficients above, whose covariance leaves them out; each has
+     * its estimate (the difference from the reference level, on the link
+     * scale), standard error (NaN: no information) and information (the
+     * sum of the IRLS weights of its rows, the last pass's). */
+    int many_given; /* 1 when there is one (the JSON's "many_factor") */
+    char *many_factor, *many_reference;
+    size_t nmany;
+    char **many_level;
+    double *many_beta, *many_se, *many_info;
     /* observed and expected by tenths of the fitted mean (calibrate.c);
      * 0 in calib_known for a fit read back from a JSON without them */
     int calib_known;
@@ -154,6 +165,11 @@ struct mr_fit {
     double *robust_se, *robust_cov;
     size_t nrobust_se;
 };
+
+/* The `many` factor's arrays for n levels, names NULL (many.c); MR_OK or
+ * MR_ERR_NO_MEMORY. */
+mr_status mr__fit_alloc_many(mr_fit *fit, size_t n);
+void mr__fit_free_many(mr_fit *fit);
 
 /* One file of a set as the first pass read it. */
 typedef struct mr__fit_input_file {

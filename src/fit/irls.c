@@ -7,6 +7,7 @@
 #include "common/bytes.h"
 #include "family/family.h"
 #include "fit/irls.h"
+#include "solve/absorb.h"
 #include "solve/normal_eq.h"
 
 static double relative_change(double now, double before) { return fabs(now - before) / (fabs(now) + 0.1); }
@@ -166,6 +167,20 @@ static void halve_step(mr__irls *s)
     if (s->param_estimate) s->param = 0.5 * (s->param + s->param_prev);
 }
 
+/* d' X'WX d, d = b_next - b, on the dense system. */
+static double dense_quadratic(const mr__irls *s, const mr__block_sums *sums)
+{
+    size_t p = s->p, i, j;
+    double q = 0;
+    for (j = 0; j < p; j++) {
+        double dj = s->next[j] - s->beta[j], u = 0;
+        if (dj == 0) continue;
+        for (i = 0; i < p; i++) u += sums->xtwx[i <= j ? j * p + i : i * p + j] * (s->next[i] - s->beta[i]);
+        q += dj * u;
+    }
+    return q;
+}
+
 /* The step from b to b_next in standard errors: sqrt(d' G d / phi), d =
  * b_next - b, G = X'WX, phi the dispersion (Pearson chi-square over the
  * residual degrees of freedom when estimated, else 1).  It is the largest
@@ -174,16 +189,9 @@ static void halve_step(mr__irls *s)
  * (the raw columns' as well as the centred ones the fit works in), and it
  * does not grow or shrink with the rows.  Computed from d itself, not as
  * (v - G b)'d, which cancels to noise near the maximum. */
-static double step_in_se(const mr__irls *s, const mr__block_sums *sums, size_t rank)
+static double step_in_se(const mr__irls *s, const mr__block_sums *sums, double q, size_t rank)
 {
-    size_t p = s->p, i, j;
-    double q = 0, phi = 1;
-    for (j = 0; j < p; j++) {
-        double dj = s->next[j] - s->beta[j], u = 0;
-        if (dj == 0) continue;
-        for (i = 0; i < p; i++) u += sums->xtwx[i <= j ? j * p + i : i * p + j] * (s->next[i] - s->beta[i]);
-        q += dj * u;
-    }
+    double phi = 1;
     if (s->dispersion_rows > (double)rank && sums->pearson > 0)
         phi = sums->pearson / (s->dispersion_rows - (double)rank);
     return sqrt(fmax(q, 0) / phi);
@@ -194,11 +202,11 @@ static double step_in_se(const mr__irls *s, const mr__block_sums *sums, size_t r
  * at every pass: growing[j] counts the passes in a row where coefficient
  * j's grew by more than a tenth (the diagonal of (X'WX)^-1, whose inverse
  * costs about twice the solve; the dispersion only scales it). */
-static void note_growth(mr__irls *s)
+static void note_growth(mr__irls *s, const double *var, size_t stride)
 {
     size_t j, p = s->p;
     for (j = 0; j < p; j++) {
-        double se = !s->aliased[j] ? sqrt(fmax(s->inverse[j * p + j], 0)) : 0;
+        double se = !s->aliased[j] ? sqrt(fmax(var[j * stride], 0)) : 0;
         if (se > 1.1 * s->se_prev[j] && s->se_prev[j] > 0) s->growing[j]++;
         else s->growing[j] = 0;
         s->se_prev[j] = se;
@@ -206,16 +214,54 @@ static void note_growth(mr__irls *s)
     }
 }
 
-static mr_status next_point(mr__irls *s, const mr__block_sums *sums, mr__error *err)
+/* Scratch of n doubles in s->inverse (the mode, dense or eliminated,
+ * stays for the whole fit, so the size does too). */
+static mr_status scratch(mr__irls *s, size_t n, mr__error *err)
+{
+    if (s->inverse == NULL && (s->inverse = mr__malloc_array(n + 1, sizeof *s->inverse)) == NULL)
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    return MR_OK;
+}
+
+/* With an eliminated factor the coefficients are the columns', then its
+ * levels' (solve/absorb.h): the variances are the inverse's diagonal over
+ * all of them, levels included (no L x L matrix), and d'Hd is taken by
+ * blocks, so the step is measured in the whole system's standard errors. */
+static mr_status absorb_step(mr__irls *s, const mr__block_sums *sums, mr__error *err)
+{
+    size_t p = s->p, j, rank;
+    double *var, *d;
+    mr__absorb_sums a = {sums->nlev, p - sums->nlev, sums->lev, sums->xtwx, sums->xtwz};
+    MR__TRY(scratch(s, 2 * p, err));
+    var = s->inverse;
+    d = s->inverse + p;
+    MR__TRY(mr__absorb_step(&a, s->next, s->aliased, var, &rank, err));
+    note_growth(s, var, 1);
+    s->step_before = s->step;
+    if (!s->have_beta) s->step = INFINITY;
+    else {
+        for (j = 0; j < p; j++) d[j] = s->next[j] - s->beta[j];
+        s->step = step_in_se(s, sums, mr__absorb_quadratic(&a, d), rank);
+    }
+    return MR_OK;
+}
+
+static mr_status solve_step(mr__irls *s, const mr__block_sums *sums, mr__error *err)
 {
     size_t p = s->p, rank;
-    double *t;
-    if (s->inverse == NULL && (s->inverse = mr__malloc_array(p * p + 1, sizeof *s->inverse)) == NULL)
-        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    if (sums->lev != NULL) return absorb_step(s, sums, err);
+    MR__TRY(scratch(s, p * p, err));
     MR__TRY(mr__solve_normal(sums->xtwx, sums->xtwz, p, s->next, s->aliased, &rank, s->inverse, err));
-    note_growth(s);
+    note_growth(s, s->inverse, p + 1);
     s->step_before = s->step;
-    s->step = s->have_beta ? step_in_se(s, sums, rank) : INFINITY;
+    s->step = s->have_beta ? step_in_se(s, sums, dense_quadratic(s, sums), rank) : INFINITY;
+    return MR_OK;
+}
+
+static mr_status next_point(mr__irls *s, const mr__block_sums *sums, mr__error *err)
+{
+    double *t;
+    MR__TRY(solve_step(s, sums, err));
     t = s->prev;
     s->prev = s->beta;
     s->beta = s->next;

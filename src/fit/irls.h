@@ -69,7 +69,8 @@ typedef struct mr__irls {
      * one, next scratch for the solver (not part of the encoding) */
     double *beta, *prev, *next;
     int *aliased;          /* the solver's scratch, likewise */
-    double *inverse;       /* (X'WX)^-1, scratch */
+    double *inverse;       /* (X'WX)^-1, scratch; with an eliminated factor its
+                            * diagonal (p), then the step (p) */
     /* per coefficient: the last standard error (unit dispersion) and the
      * passes in a row it grew by more than a tenth */
     double *se_prev, *se_min; /* and the smallest so far */

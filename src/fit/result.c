@@ -13,6 +13,7 @@
 #include "family/family.h"
 #include "fit/fit.h"
 #include "fit/irls.h"
+#include "fit/many.h"
 #include "fit/run.h"
 #include "fit/start.h"
 #include "common/probability.h"
@@ -239,7 +240,8 @@ static mr_status set_coefficients(mr_fit *fit, mr__run *r, mr__error *err)
         mr__free(cov_s);
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }
-    st = mr__solve_normal(r->last.sums.xtwx, r->last.sums.xtwz, p, scratch, fit->aliased, &fit->rank, cov_s, err);
+    if (d->nabsorb > 0) st = mr__many_solve(fit, r, cov_s, err);
+    else st = mr__solve_normal(r->last.sums.xtwx, r->last.sums.xtwz, p, scratch, fit->aliased, &fit->rank, cov_s, err);
     if (st == MR_OK) st = mr__map_to_raw(d, r->beta_final, cov_s, fit->beta, fit->cov, fit->se, err);
     if (st == MR_OK) st = mr__robust_result(fit, r, err);
     mr__free(scratch);
@@ -250,6 +252,7 @@ static mr_status set_coefficients(mr_fit *fit, mr__run *r, mr__error *err)
     check_alias_folding(fit, d, r->beta_final);
     set_fit_statistics(fit, r);
     for (j = 0; j < p * p; j++) fit->cov[j] *= fit->dispersion;
+    mr__many_scale(fit);
     set_inference(fit);
     return MR_OK;
 }
@@ -306,16 +309,17 @@ static mr_status copy_terms(mr_fit *fit, const mr__run *r)
     if (fit->term == NULL) return MR_ERR_NO_MEMORY;
     for (i = 0; i < fit->nterms; i++) {
         mr__fit_term *t = &fit->term[i];
-        const mr__term *dt = &r->design.term[d];
+        /* the `many` factor has no design term: no coefficient here */
+        const mr__term *dt = (long)i == r->design.absorb_group ? NULL : &r->design.term[d];
         int nparts = i < s->ncov ? 1 : s->inter[i - s->ncov].n;
-        t->full = dt->full;
-        t->first = dt->col0;
-        for (; d < r->design.nterms && r->design.term[d].group == i; d++) t->ncoef += r->design.term[d].ncols;
+        t->full = dt ? dt->full : 0;
+        t->first = dt ? dt->col0 : 0;
+        for (; dt && d < r->design.nterms && r->design.term[d].group == i; d++) t->ncoef += r->design.term[d].ncols;
         if ((t->label = term_label(s, i)) == NULL) return MR_ERR_NO_MEMORY;
         for (k = 0; k < nparts; k++, t->nparts++)
             if ((t->part[k] = mr__strdup(i < s->ncov ? s->cov[i].name : s->inter[i - s->ncov].name[k])) == NULL)
                 return MR_ERR_NO_MEMORY;
-        MR__TRY(copy_spline(t, dt, s, i));
+        if (dt) MR__TRY(copy_spline(t, dt, s, i));
     }
     return MR_OK;
 }

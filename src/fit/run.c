@@ -267,7 +267,7 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
     int done = 0;
     size_t j;
     memset(&c, 0, sizeof c);
-    c.p = r->design.p;
+    c.p = mr__design_ncoef(&r->design);
     c.tolerance = job->tolerance;
     c.dispersion_rows = job->dispersion_rows;
     c.newton = newton_link(r);
@@ -336,7 +336,7 @@ static int sample_fit(mr__run *r, size_t stride, const double *start, int max_it
     job.step_at_end = start != NULL;
     job.beta_out = out;
     ok = iterate(r, &job, &res, &scratch) == MR_OK && !job.restarted && (job.converged || job.step_at_end);
-    for (j = 0; ok && j < r->design.p; j++) ok = isfinite(out[j]);
+    for (j = 0; ok && j < mr__design_ncoef(&r->design); j++) ok = isfinite(out[j]);
     *iterations = job.iterations;
     mr__pass_result_release(&res, 0);
     return ok;
@@ -345,10 +345,10 @@ static int sample_fit(mr__run *r, size_t stride, const double *start, int max_it
 /* One step on the whole sample from the quarter's fit. */
 static void polish_start(mr__run *r, const mr__store *sample)
 {
-    double *polished = mr__malloc_array(r->design.p, sizeof *polished), param = r->family.param;
+    double *polished = mr__malloc_array(mr__design_ncoef(&r->design), sizeof *polished), param = r->family.param;
     int steps;
     if (polished != NULL && sample_fit(r, 1, r->beta_warm, 1, polished, &steps)) {
-        memcpy(r->beta_warm, polished, r->design.p * sizeof *polished);
+        memcpy(r->beta_warm, polished, mr__design_ncoef(&r->design) * sizeof *polished);
         r->warm_polish_blocks = (int)sample->n;
     } else {
         r->family.param = param;
@@ -527,7 +527,7 @@ void mr__run_release(mr__run *r)
 
 static mr_status allocate_coefficients(mr__run *r, mr__error *err)
 {
-    size_t p = r->design.p + 1;
+    size_t p = mr__design_ncoef(&r->design) + 1;
     r->beta_final = mr__calloc(p, sizeof(double));
     r->beta_warm = mr__calloc(p, sizeof(double));
     r->growing = mr__calloc(p, sizeof *r->growing);
@@ -578,6 +578,11 @@ static mr_status run_begin(mr__run *r, mr_fitter *f, const char *path, mr__input
     r->dcfg.collapse = mr__collapse_mode(r);
     r->dcfg.collapse_abandoned = &r->collapse_abandoned;
     st = mr__spec_validate(&f->spec, &f->err);
+    /* the meat pass builds each row's full design row, which would hold
+     * every level of the eliminated factor: not supported */
+    if (st == MR_OK && mr__spec_many(&f->spec) >= 0 && mr__robust_type(f) != MR_ROBUST_NONE)
+        st = mr__fail(&f->err, MR_ERR_USAGE,
+                      "robust standard errors (--robust, --cluster) are not supported with a 'many' factor");
     /* a parameter by profile likelihood is fitted once per value
      * (fit/profile.c), never by one run */
     if (st == MR_OK && f->spec.family_profile)

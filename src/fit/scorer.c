@@ -199,6 +199,10 @@ static mr_status make_model(scoring *g, mr__error *err)
 {
     const mr_fit *fit = g->s->fit;
     size_t i, parts = 0;
+    /* its levels' estimates are not among the coefficients a scorer reads */
+    if (fit->many_given)
+        return mr__fail(err, MR_ERR_USAGE, "fit: scoring a fit with a 'many' factor ('%s') is not supported",
+                        fit->many_factor);
     for (i = 0; i < fit->nterms; i++) parts += fit->term[i].nparts;
     g->c.term = mr__calloc(fit->nterms + 1, sizeof *g->c.term);
     g->c.num = mr__calloc(parts + 1, sizeof *g->c.num);

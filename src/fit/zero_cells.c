@@ -8,6 +8,7 @@
  * above 0 and below the maximum (accum/level_outcomes.h), in each worker's
  * own level numbers: here they are mapped to the shared numbers and added
  * (integers: the same totals for any thread count). */
+#include <math.h>
 #include <string.h>
 
 #include "common/alloc.h"
@@ -207,6 +208,13 @@ static void flag_growing(mr_fit *fit, const mr__run *r)
         if (!r->growing[j] || fit->aliased[j]) continue;
         fit->inestimable[j] = 1;
         if (n++ < 8) mr__strbuf_printf(&sb, "%s'%s'", n > 1 ? ", " : "", fit->name[j]);
+    }
+    /* the eliminated factor's levels follow the coefficients in the
+     * IRLS numbering; they are named here (they have no mark) */
+    for (j = 0; j < fit->nmany; j++) {
+        if (!r->growing[fit->p + j] || isnan(fit->many_se[j])) continue;
+        if (n++ < 8)
+            mr__strbuf_printf(&sb, "%s'%s=%s'", n > 1 ? ", " : "", fit->many_factor, fit->many_level[j]);
     }
     if (n)
         mr__fit_warn(fit,

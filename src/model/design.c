@@ -92,12 +92,14 @@ static mr_status collect_terms(mr__design *d, const mr__spec *s, const mr__bindi
     size_t g, i, total = 0, ngroups = s->ncov + s->ninter;
     int var[MR__MAX_INTERACT], isf[MR__MAX_INTERACT] = {0}, n;
     for (g = 0; g < ngroups; g++) {
+        if ((long)g == d->absorb_group) continue;
         n = group_parts(s, b, g, var, isf);
         total += group_terms(d, var, isf, n);
     }
     d->term = mr__calloc(total + 1, sizeof *d->term);
     if (d->term == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     for (g = 0; g < ngroups; g++) {
+        if ((long)g == d->absorb_group) continue;
         n = group_parts(s, b, g, var, isf);
         add_group(d, var, isf, n, g);
     }
@@ -467,6 +469,25 @@ static mr_status build_skeleton(mr__design *d, mr__error *err)
     return MR_OK;
 }
 
+/* The `many` factor's levels other than the reference, numbered in level
+ * order. */
+static mr_status settle_absorbed(mr__design *d, const mr__spec *s, const mr__binding *b, mr__error *err)
+{
+    const mr__factor *f;
+    int32_t l, k = 0;
+    int isf = 0;
+    d->absorb_var = -1;
+    d->absorb_group = mr__spec_many(s);
+    if (d->absorb_group < 0) return MR_OK;
+    d->absorb_var = covariate_var(b, s->cov[d->absorb_group].name, &isf);
+    f = &d->fac[d->absorb_var];
+    d->absorb_index = mr__malloc_array(f->nlevels + 1, sizeof *d->absorb_index);
+    if (d->absorb_index == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (l = 0; l < (int32_t)f->nlevels; l++) d->absorb_index[l] = l == f->ref ? -1 : k++;
+    d->nabsorb = (size_t)k;
+    return MR_OK;
+}
+
 mr_status mr__design_build(mr__design *d, const mr__spec *s, const mr__binding *b, const mr__factor *fac,
                            const double *mean, const double *spread, mr__value_counts *counts,
                            mr__error *err)
@@ -476,6 +497,7 @@ mr_status mr__design_build(mr__design *d, const mr__spec *s, const mr__binding *
     d->fac = fac;
     d->nfac = b->nfac;
     d->nnum = b->nnum;
+    MR__TRY(settle_absorbed(d, s, b, err));
     MR__TRY(settle_splines(d, s, b, counts, err));
     MR__TRY(collect_terms(d, s, b, err));
     MR__TRY(lay_out_columns(d, err));
@@ -502,7 +524,10 @@ void mr__design_release(mr__design *d)
     mr__free(d->run_at);
     mr__free(d->run_len);
     mr__free(d->run_off);
+    mr__free(d->absorb_index);
     memset(d, 0, sizeof *d);
+    d->absorb_var = -1;
+    d->absorb_group = -1;
 }
 
 /* Numeric part k of a term at x. */

@@ -91,7 +91,29 @@ typedef struct mr__design {
     size_t *col_base, *col_lo;
     size_t *run_at, *run_len, *run_off;
     size_t nruns, nnz;
+    /* The factor declared `many` (spec.h), which has no columns here: its
+     * levels other than the reference are eliminated by their Schur
+     * complement (solve/absorb.h) and numbered 0 .. nabsorb - 1 in level
+     * order, absorb_index[level] (-1 for the reference).  absorb_var is
+     * its factor variable, absorb_group its covariate in the spec; -1 and
+     * 0 levels when the model has none.  Coefficient vectors of such a
+     * model hold the p columns' coefficients, then the nabsorb levels'. */
+    int absorb_var;
+    long absorb_group;
+    size_t nabsorb;
+    int32_t *absorb_index;
 } mr__design;
+
+/* Coefficients a fit of the design carries: the columns', then the
+ * eliminated factor's levels'. */
+static inline size_t mr__design_ncoef(const mr__design *d) { return d->p + d->nabsorb; }
+
+/* The level of row i's eliminated factor in the absorbed numbering (-1:
+ * the reference level), from a block's variable-major levels. */
+static inline int32_t mr__design_absorb_row(const mr__design *d, const int32_t *lev, size_t stride_rows, size_t i)
+{
+    return d->absorb_index[lev[(size_t)d->absorb_var * stride_rows + i]];
+}
 
 /* Where entry (a, b) of the upper triangle, a <= b, non-zero in some row,
  * sits in a block's packed sums. */

@@ -124,6 +124,7 @@ static mr_status declare_covariate(mr__spec *s, const char *name, mr__role role,
         s->ncov++;
     }
     c->role = role;
+    c->many = 0;
     mr__free(c->ref);
     c->ref = NULL;
     mr__free(c->spline.knots);
@@ -198,21 +199,30 @@ static mr_status parse_family(mr__spec *s, const words *ws, const char *origin, 
     return MR_OK;
 }
 
+/* "factor COL [ref=LEVEL] [many]", the two words in either order. */
 static mr_status parse_factor(mr__spec *s, const words *ws, const char *origin, mr__error *err)
 {
     const char *ref = NULL;
-    if (ws->n != 2 && ws->n != 3)
-        return mr__fail(err, MR_ERR_USAGE, "%s: factor takes a column name and optionally ref=LEVEL", origin);
-    if (ws->n == 3) {
-        if (strncmp(ws->w[2], "ref=", 4) != 0)
-            return mr__fail(err, MR_ERR_USAGE, "%s: expected ref=LEVEL after the factor name, got '%s'",
-                            origin, ws->w[2]);
-        ref = ws->w[2] + 4;
+    int many = 0, k;
+    if (ws->n < 2 || ws->n > 4)
+        return mr__fail(err, MR_ERR_USAGE, "%s: factor takes a column name and optionally ref=LEVEL and many",
+                        origin);
+    for (k = 2; k < ws->n; k++) {
+        if (strcmp(ws->w[k], "many") == 0 && !many) {
+            many = 1;
+            continue;
+        }
+        if (strncmp(ws->w[k], "ref=", 4) != 0 || ref != NULL)
+            return mr__fail(err, MR_ERR_USAGE, "%s: expected ref=LEVEL or many after the factor name, got '%s'",
+                            origin, ws->w[k]);
+        ref = ws->w[k] + 4;
         if (*ref == '\0')
             return mr__fail(err, MR_ERR_USAGE, "%s: ref= needs a level name (quote one with blanks: ref=\"a b\")",
                             origin);
     }
-    return declare_covariate(s, ws->w[1], MR__ROLE_FACTOR, ref, origin, err);
+    MR__TRY(declare_covariate(s, ws->w[1], MR__ROLE_FACTOR, ref, origin, err));
+    ((mr__covariate *)mr__spec_find(s, ws->w[1]))->many = many;
+    return MR_OK;
 }
 
 /* "a,b,c": at most `max` finite numbers, in *n. */
@@ -482,6 +492,7 @@ mr_status mr__spec_validate(const mr__spec *s, mr__error *err)
                         s->exposure);
     if (!s->intercept && s->ncov == 0)
         return mr__fail(err, MR_ERR_USAGE, "model: no intercept and no covariates: nothing to fit");
+    MR__TRY(mr__spec_validate_many(s, err));
     return validate_interactions(s, err);
 }
 

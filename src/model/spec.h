@@ -31,6 +31,10 @@ typedef struct mr__covariate {
     char *name;
     mr__role role;
     char *ref; /* reference level of a factor, NULL = first in sorted order */
+    /* `factor COL many`: the factor's levels are eliminated from the
+     * design's columns and solved for by their Schur complement
+     * (solve/absorb.h); at most one factor, a main effect only. */
+    int many;
     mr__spline_spec spline; /* MR__ROLE_SPLINE only */
     char *origin; /* the line that last declared it ("falls.model:3"), for messages */
 } mr__covariate;
@@ -81,6 +85,12 @@ int mr__spec_dispersion_estimated(const mr__spec *s);
 mr__family mr__spec_family(const mr__spec *s);
 
 const mr__covariate *mr__spec_find(const mr__spec *s, const char *name);
+
+/* The covariate declared `factor COL many`, or -1 (spec_many.c). */
+long mr__spec_many(const mr__spec *s);
+/* At most one, beside the intercept, in no interaction (mr__spec_validate
+ * calls it). */
+mr_status mr__spec_validate_many(const mr__spec *s, mr__error *err);
 
 /* A copy of src made by replaying its lines (dst initialised here; on
  * failure released).  MR_OK, MR_ERR_USAGE, MR_ERR_NO_MEMORY. */

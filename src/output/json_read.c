@@ -454,7 +454,7 @@ static mr_status check_consistent(reader *r)
         return bad(r, "is given for a parameter the family does not profile, or holds no point");
     }
     if (mr__fit_quasi(f)) f->loglik = f->aic = f->bic = NAN; /* numbers a version 2 file may hold */
-    if (f->rank > f->p) {
+    if (f->rank > f->p + f->nmany) {
         enter(r, "fit.rank");
         return bad(r, "exceeds the number of coefficients");
     }

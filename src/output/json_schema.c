@@ -252,6 +252,24 @@ static const mr__jfield run_fields[] = {
     END,
 };
 
+/* The factor declared `many`: its levels other than the reference, which
+ * are not among the coefficients and not in the covariance.  Written only
+ * for such a fit, so that others keep their bytes. */
+static const mr__jfield many_level_fields[] = {
+    EACH("level", MR__J_TEXT, many_level),
+    EACH("estimate", MR__J_REAL, many_beta),
+    EACH("standard_error", MR__J_REAL, many_se),
+    EACH("information", MR__J_REAL, many_info),
+    END,
+};
+
+static const mr__jfield many_fields[] = {
+    F("factor", MR__J_TEXT, many_factor),
+    F("reference", MR__J_TEXT, many_reference),
+    {"levels", MR__J_RECORDS, 0, AT(nmany), 0, 0, 0, 0, NULL, NULL, many_level_fields},
+    END,
+};
+
 #define GROUP(key, kind, m) {key, kind, offsetof(mr__calib_group, m), 0, 0, 0, 0, 0, NULL, NULL, NULL}
 static const mr__jfield calibration_group_fields[] = {
     GROUP("rows", MR__J_U64, rows),
@@ -302,6 +320,7 @@ const mr__jfield mr__json_fit_fields[] = {
     OBJECT("fit", statistics_fields),
     {"calibration", MR__J_OBJECT_OPTIONAL, 0, AT(calib_known), 0, 0, 0, 0, NULL, NULL, calibration_fields},
     SPECIAL("covariance", MR__JS_COVARIANCE),
+    {"many_factor", MR__J_OBJECT_OPTIONAL, 0, AT(many_given), 0, 0, 0, 0, NULL, NULL, many_fields},
     {"robust", MR__J_OBJECT_OPTIONAL, 0, AT(robust), 0, 0, 0, 0, NULL, NULL, robust_fields},
     LIST("warnings", MR__J_TEXTS, warning, nwarnings),
     END,

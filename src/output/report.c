@@ -10,6 +10,7 @@
 #include "fit/fit.h"
 #include "input/codec.h"
 #include "input/chunk.h"
+#include "output/report_many.h"
 #include "output/report_calib.h"
 
 #define DEFAULT_DIGITS 6
@@ -69,8 +70,9 @@ static void section_model(mr__strbuf *b, const mr_fit *f)
     size_t i;
     mr__strbuf_printf(b, "model      %s family", mr__family_name((mr_family)f->family));
     mr__fit_family_param_text(f, b);
-    mr__strbuf_printf(b, ", %s link, %zu coefficients (rank %zu)%s\n", mr__link_name((mr_link)f->link), f->p,
-                      f->rank, f->intercept ? "" : ", no intercept");
+    mr__strbuf_printf(b, ", %s link, %zu coefficients", mr__link_name((mr_link)f->link), f->p);
+    if (f->many_given) mr__strbuf_printf(b, " and %zu levels of %s", f->nmany, f->many_factor);
+    mr__strbuf_printf(b, " (rank %zu)%s\n", f->rank, f->intercept ? "" : ", no intercept");
     mr__strbuf_printf(b, "           outcome %s", f->outcome);
     if (f->trials) mr__strbuf_printf(b, " out of %s trials", f->trials);
     if (f->exposure) mr__strbuf_printf(b, ", exposure log(%s)", f->exposure);
@@ -195,7 +197,9 @@ static void section_term_tests(mr__strbuf *b, const mr_fit *f, int digits)
         mr__strbuf_printf(b, "  %-*s %5zu", w, t->label, t->test_df);
         if (t->test_df == 0) {
             mr__strbuf_printf(b, "   no test: %s\n", t->ncoef ? "every coefficient of the term is aliased"
-                                                           : "the term has no coefficient");
+                                                 : f->many_given && strcmp(t->label, f->many_factor) == 0
+                                                     ? "its levels are not in the covariance"
+                                                     : "the term has no coefficient");
             continue;
         }
         put_number(b, t->test_stat, digits, nw);
@@ -268,6 +272,7 @@ char *mr_fit_report(const mr_fit *f, int digits)
     section_model(&b, f);
     section_convergence(&b, f);
     section_coefficients(&b, f, digits);
+    mr__report_many(&b, f, digits);
     section_term_tests(&b, f, digits);
     section_statistics(&b, f, digits);
     mr__report_calibration(&b, f, digits);

@@ -24,14 +24,15 @@ static double minus_dot(double s, const double *li, const double *lj, size_t r)
  * contiguous memory with no test per term: held by columns, each step was
  * a cache miss once p passed a few hundred.  Four rows share each pass
  * over row j: four independent sums, each in column order as before. */
-static size_t find_aliased(const double *G, size_t p, int *aliased, double *L)
+static size_t find_aliased(const double *G, size_t p, const double *ref, int *aliased, double *L)
 {
     size_t i, j, r = 0;
     memset(L, 0, p * p * sizeof *L);
     for (j = 0; j < p; j++) {
         const double *lj = L + j * p;
         double gjj = upper(G, p, j, j), d = minus_dot(gjj, lj, lj, r), pivot;
-        aliased[j] = !(gjj > 0) || !(d > MR__ALIAS_TOLERANCE * gjj);
+        double size = ref ? ref[j] : gjj;
+        aliased[j] = !(gjj > 0) || !(size > 0) || !(d > MR__ALIAS_TOLERANCE * size);
         if (aliased[j]) continue;
         pivot = sqrt(d);
         L[j * p + r] = pivot;
@@ -111,11 +112,17 @@ static void invert_factored(const double *K, size_t r, double *M, double *inv, s
 mr_status mr__solve_normal(const double *G, const double *v, size_t p, double *beta, int *aliased, size_t *rank,
                            double *inv, mr__error *err)
 {
+    return mr__solve_normal_ref(G, v, p, NULL, beta, aliased, rank, inv, err);
+}
+
+mr_status mr__solve_normal_ref(const double *G, const double *v, size_t p, const double *ref, double *beta,
+                               int *aliased, size_t *rank, double *inv, mr__error *err)
+{
     double *L = mr__malloc_array(p * p, sizeof *L), *K = NULL, *b = NULL, *res = NULL;
     size_t *keep = NULL, r, a, c;
     mr_status st = MR_OK;
     if (L == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    r = find_aliased(G, p, aliased, L);
+    r = find_aliased(G, p, ref, aliased, L);
     *rank = r;
     K = mr__malloc_array(r * r + 1, sizeof *K);
     b = mr__malloc_array(r + 1, sizeof *b);
@@ -177,7 +184,7 @@ mr_status mr__inverse_quadratic_form(const double *S, const double *x, size_t k,
         for (j = 0; j < k; j++) R[j * k + i] = S[j * k + i] / (d * sqrt(S[j * k + j]));
         if (!(d > 0) || !isfinite(z[i])) st = MR_ERR_NUMERIC;
     }
-    if (st != MR_OK || find_aliased(R, k, singular, L) < k) {
+    if (st != MR_OK || find_aliased(R, k, NULL, singular, L) < k) {
         st = mr__fail(err, MR_ERR_NUMERIC, "the covariance block is not positive definite");
         goto done;
     }

@@ -29,6 +29,15 @@
 mr_status mr__solve_normal(const double *G, const double *v, size_t p, double *beta, int *aliased, size_t *rank,
                            double *inv, mr__error *err);
 
+/* The same, with each column's aliasing tolerance taken relative to
+ * ref[j] instead of G's own diagonal (ref NULL: G's).  For G a Schur
+ * complement (solve/absorb.h), whose diagonal is what is left of a column
+ * once other columns are projected out, the test must stay relative to
+ * the column's full size, as in the system before elimination: relative
+ * to what is left, rounding noise would pass for information. */
+mr_status mr__solve_normal_ref(const double *G, const double *v, size_t p, const double *ref, double *beta,
+                               int *aliased, size_t *rank, double *inv, mr__error *err);
+
 /* x' S^-1 x for a k x k covariance S (full, column-major) and x (k): the
  * joint Wald statistic of the coefficients x.  Computed on the correlation
  * scale with the Cholesky above; *out is NaN and the status MR_ERR_NUMERIC

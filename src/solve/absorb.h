@@ -1,0 +1,82 @@
+/* absorb.h - the normal equations with one factor of very many levels
+ * eliminated exactly (a Schur complement on the small dense rest).
+ *
+ * With X = [D | R], D indicator columns no two of which are 1 in one row
+ * (a factor's levels) and R the p_r other columns,
+ *
+ *     X'WX = [ diag(d)  C' ]      X'Wz = [ b_D ]
+ *            [ C        A  ]             [ b_R ]
+ *
+ * d_l = sum of w over level l's rows, C's column l (held here as level l's
+ * row c_l of p_r values) = sum of w r over them, A = R'WR.  With
+ * g_l = c_l / d_l:
+ *
+ *     S      = A - sum_l d_l g_l g_l'          (p_r x p_r)
+ *     S beta_R = b_R - sum_l g_l b_D,l
+ *     beta_D,l = b_D,l / d_l - g_l' beta_R
+ *
+ * and the inverse of X'WX is, exactly,
+ *
+ *     cov(beta_R)           = S^-1
+ *     cov(beta_R, beta_D,l) = -S^-1 g_l
+ *     cov(beta_D,l, beta_D,m) = [l == m] / d_l + g_l' S^-1 g_m
+ *
+ * so a level's variance costs O(p_r^2) and memory stays linear in L.
+ *
+ * Aliasing.  The factor's columns count as coming first: a column of R in
+ * the span of the levels (a covariate constant within each level) or of
+ * the levels and earlier R columns is aliased, tested relative to A's
+ * diagonal (the column's size before elimination), exactly the test of
+ * mr__solve_normal on the full system with D first.  A level with no
+ * weight (d_l not > 0) is empty: no coefficient (0), variance NaN, and it
+ * takes no part in S.
+ *
+ * Any set of mutually exclusive indicator columns will do: the fit takes
+ * the factor's levels other than its reference, and keeps the intercept
+ * among the other columns, so the coefficients are those of the usual
+ * treatment coding and agree with the dense fit of the same model. */
+#ifndef MR_ABSORB_H
+#define MR_ABSORB_H
+
+#include <stddef.h>
+#include "common/error.h"
+
+/* A pass's totals for the elimination: level l's row lev[l * (pr + 2) ..]
+ * holds d_l, b_D,l, then c_l (MR__ABSORB_WIDTH(pr) doubles a level). */
+#define MR__ABSORB_WIDTH(pr) ((pr) + 2)
+typedef struct mr__absorb_sums {
+    size_t nlev, pr;
+    const double *lev; /* nlev rows */
+    const double *A;   /* pr x pr, upper triangle read, column-major */
+    const double *bR;  /* pr */
+} mr__absorb_sums;
+
+typedef struct mr__absorb_solution {
+    size_t nlev, pr, rank; /* rank of the rest after the levels */
+    size_t nempty;
+    double *beta_lev, *var_lev; /* nlev */
+    int *empty;                 /* nlev */
+    double *beta_rest;          /* pr, 0 where aliased */
+    int *aliased;               /* pr */
+    double *cov_rest;           /* pr x pr: S^-1 on the kept columns, zero rows/columns where aliased */
+} mr__absorb_solution;
+
+/* Solves the system; `sol` is allocated here (release it with
+ * mr__absorb_solution_release, also after a failure).  The variances and
+ * the covariance only when `want_cov`.  Sums are read only. */
+mr_status mr__absorb_solve(const mr__absorb_sums *s, int want_cov, mr__absorb_solution *sol, mr__error *err);
+void mr__absorb_solution_release(mr__absorb_solution *sol);
+
+/* One IRLS step: the solution as one vector `next` (the rest's pr, then
+ * the levels'), aliased[] likewise (a level: empty), the rank of the
+ * whole system and, when `var` is not NULL, each coefficient's variance
+ * at unit dispersion (the diagonal of the inverse: S^-1's, then each
+ * level's; 0 where aliased or empty), at O(L p_r^2) like the elimination. */
+mr_status mr__absorb_step(const mr__absorb_sums *s, double *next, int *aliased, double *var, size_t *rank,
+                          mr__error *err);
+
+/* d' X'WX d for the whole system, d laid out as the rest's pr, then the
+ * levels' nlev (the step's size in the fit's stopping rule). */
+double mr__absorb_quadratic(const mr__absorb_sums *s, const double *d);
+
+#endif

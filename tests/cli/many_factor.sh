@@ -1,0 +1,81 @@
+#!/usr/bin/env bash
+# A factor declared `many` (its levels eliminated, not columns): the same
+# bits with 1 and 2 threads, streamed, cached, in memory and with small
+# buffers, its levels included; the report's summary; the model lines it
+# refuses (exit 2) and scoring refused.  Its numbers are checked against
+# R glm and the ordinary fit in tests/ref/many_factor.py.
+source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
+bin=${MILLRACE:-$bin}
+/usr/bin/python3 - "$tmp/d.csv" <<'P'
+import random, math, sys
+random.seed(3)
+L = 3000
+eff = [random.gauss(0, 0.5) for _ in range(L)]
+with open(sys.argv[1], "w") as f:
+    f.write("y,area,age,sex,py\n")
+    for i in range(150000):
+        a = i if i < L else random.randrange(L)
+        age = random.uniform(20, 80); sex = random.choice("MF"); py = random.uniform(100, 1000)
+        mu = py * math.exp(-6 + eff[a] + 0.02 * (age - 50) + (0.3 if sex == "M" else 0))
+        k, p = 0, math.exp(-mu); s, u = p, random.random()
+        while u > s:
+            k += 1; p *= mu / k; s += p
+        f.write("%d,A%05d,%.3f,%s,%.2f\n" % (k, a, age, sex, py))
+P
+printf 'outcome y\nfamily poisson\nexposure py\nnumeric age\nfactor area many\nfactor sex\n' > "$tmp/m.model"
+
+values() {
+    /usr/bin/python3 -c '
+import json, sys
+js = json.load(open(sys.argv[1]), parse_float=str, parse_int=str)
+for c in js["coefficients"]: print(c["name"], c["estimate"], c["standard_error"])
+for l in js["many_factor"]["levels"]: print(l["level"], l["estimate"], l["standard_error"], l["information"])
+print(js["covariance"], js["fit"]["deviance"], js["fit"]["rank"])
+' "$1"
+}
+
+if $bin fit --quiet -m "$tmp/m.model" --threads 1 --json "$tmp/base.json" "$tmp/d.csv" > "$tmp/report.txt"; then
+    values "$tmp/base.json" > "$tmp/base.values"
+    ok "fit"
+else
+    fail "fit" "exit $?"
+fi
+for opts in "--threads 2" "--threads 2 --no-cache --buffer-size 65536" "--threads 2 --in-memory" \
+            "--threads 2 --no-collapse" "--threads 1 --no-cache"; do
+    # shellcheck disable=SC2086
+    if $bin fit --quiet -m "$tmp/m.model" $opts --json "$tmp/o.json" "$tmp/d.csv" > /dev/null &&
+       values "$tmp/o.json" | cmp -s - "$tmp/base.values"; then
+        ok "same bits: $opts"
+    else
+        fail "same bits: $opts" "differs from one thread"
+    fi
+done
+grep -q "factor area (many): 2999 levels besides the reference A00000" "$tmp/report.txt" &&
+    grep -q "tiny information" "$tmp/report.txt" && ok "report summary" || fail "report summary" "missing"
+$bin show "$tmp/base.json" > "$tmp/show.txt" && grep -q "factor area (many)" "$tmp/show.txt" &&
+    ok "show reads it back" || fail "show reads it back" "no summary"
+
+refused() { # NAME EXTRA-LINES: the model refused with exit 2
+    local name=$1
+    printf 'outcome y\nfamily poisson\nexposure py\nnumeric age\nfactor area many\nfactor sex\n%b' "$2" > "$tmp/r.model"
+    $bin fit --quiet -m "$tmp/r.model" "$tmp/d.csv" > /dev/null 2> "$tmp/r.err"
+    local rc=$?
+    [ "$rc" -eq 2 ] && grep -q "$3" "$tmp/r.err" && ok "$name" || fail "$name" "exit $rc: $(cat "$tmp/r.err")"
+}
+refused "two many factors" 'factor sex many\n' "only one factor"
+refused "many in an interaction" 'interact area age\n' "cannot be in an interaction"
+refused "many without intercept" 'intercept no\n' "needs the intercept"
+printf 'outcome y\nfactor area many sideways\n' > "$tmp/w.model"
+$bin fit --quiet -m "$tmp/w.model" "$tmp/d.csv" > /dev/null 2>&1
+[ $? -eq 2 ] && ok "unknown word on a factor line" || fail "unknown word on a factor line" "not exit 2"
+for opt in "--robust hc1" "--cluster area"; do
+    printf 'outcome y\nfamily poisson\nexposure py\nnumeric age\nfactor area many\nfactor sex\n' > "$tmp/r.model"
+    $bin fit --quiet $opt -m "$tmp/r.model" --json "$tmp/rob.json" "$tmp/d.csv" > /dev/null 2> "$tmp/r.err"
+    rc=$?
+    [ "$rc" -eq 2 ] && [ ! -e "$tmp/rob.json" ] && grep -q "not supported with a 'many' factor" "$tmp/r.err" &&
+        ok "robust refused: $opt" || fail "robust refused: $opt" "exit $rc: $(cat "$tmp/r.err")"
+done
+$bin score --fit "$tmp/base.json" --out "$tmp/s.csv" "$tmp/d.csv" > /dev/null 2> "$tmp/s.err"
+rc=$?
+[ "$rc" -eq 2 ] && [ ! -e "$tmp/s.csv" ] && ok "scoring refused" || fail "scoring refused" "exit $rc"
+finish

@@ -1,0 +1,237 @@
+#!/usr/bin/python3
+"""Checks a factor declared `many` (its levels eliminated by their Schur
+complement instead of being columns of the design):
+  reference: base R (Debian r-base-core, /usr/bin/Rscript) glm with the
+             factor as an ordinary treatment-coded factor, a poisson rate
+             model (offset log(exposure)) with 500 levels, each with at
+             least one event (R's dense glm grows as the cube of the
+             levels: 500 keeps it to seconds; tests/cli/many_factor.sh
+             fits 3,000 levels for determinism): the other
+             coefficients and their standard errors, every level's
+             estimate and standard error, the deviance, to 1e-8 relative
+             (R at epsilon 1e-14, then refitted from its own estimates so
+             that its standard errors come from the converged point's
+             weights; millrace at --tolerance 1e-14);
+  identity:  block elimination is exact algebra, so the same model fitted
+             by millrace with the factor as ordinary columns (200 levels,
+             small enough for the dense design) gives the same estimates,
+             standard errors, covariance of the other coefficients,
+             deviance and rank to 1e-10 relative: a poisson rate model and
+             a gaussian model with a second factor and a covariate constant
+             within the levels (aliased either way).
+Data simulated here with a fixed seed.  Prints "ok <case>" or "FAIL <case>:
+<details>" and "N passed, M failed"; exits 1 if anything failed.  The R case
+is skipped, saying so, without Rscript.
+"""
+import json
+import os
+import shutil
+import subprocess
+import sys
+import tempfile
+
+import numpy as np
+
+ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
+MILLRACE = os.path.join(ROOT, "build", "millrace")
+RSCRIPT = "/usr/bin/Rscript"
+
+R_PROGRAM = r"""
+args <- commandArgs(TRUE)
+d <- read.csv(args[1], stringsAsFactors = FALSE, colClasses = c(area = "character", sex = "character"))
+d$area <- factor(d$area, levels = sort(unique(d$area), method = "radix"))
+d$sex <- factor(d$sex)
+m <- glm(y ~ age + area + sex, family = poisson(), data = d, offset = log(py),
+         control = glm.control(epsilon = 1e-14, maxit = 100))
+# glm stops on the deviance, whose change a sparse level's last steps barely
+# touch, and takes its standard errors from the weights before the last
+# step: once more from its own estimates puts them at the converged point
+m <- glm(y ~ age + area + sex, family = poisson(), data = d, offset = log(py), start = coef(m),
+         control = glm.control(epsilon = 1e-14, maxit = 100))
+s <- summary(m)$coefficients
+out <- file(args[2], "w")
+writeLines(sprintf("deviance %.17g", deviance(m)), out)
+for (k in seq_len(nrow(s))) writeLines(sprintf("%s %.17g %.17g", rownames(s)[k], s[k, 1], s[k, 2]), out)
+close(out)
+"""
+
+failures = []
+passed = 0
+
+
+def report(case, problems):
+    global passed
+    if problems:
+        failures.append(case)
+        print("FAIL %s: %s" % (case, "; ".join(problems[:5])))
+    else:
+        passed += 1
+        print("ok %s" % case)
+
+
+def rel(a, b):
+    return abs(a - b) / max(abs(b), 1e-300)
+
+
+def fit(tmp, name, lines, data, extra=()):
+    model = os.path.join(tmp, name + ".model")
+    out = os.path.join(tmp, name + ".json")
+    with open(model, "w") as f:
+        f.write("\n".join(lines) + "\n")
+    subprocess.run([MILLRACE, "fit", "-m", model, "--json", out, "--quiet", "--tolerance", "1e-14",
+                    "--max-passes", "100"] + list(extra) + [data], check=True, stdout=subprocess.DEVNULL)
+    with open(out) as f:
+        return json.load(f)
+
+
+def poisson_data(path, nlev, rows, seed):
+    rng = np.random.default_rng(seed)
+    eff = rng.normal(0, 0.4, nlev)
+    # every level has rows: each level once, then the rest at random
+    area = np.concatenate([np.arange(nlev), rng.integers(0, nlev, rows - nlev)])
+    age = rng.uniform(20, 80, rows)
+    sex = rng.choice(["F", "M"], rows)
+    py = rng.uniform(500, 2000, rows)
+    mu = py * np.exp(-5.5 + eff[area] + 0.02 * (age - 50) + 0.3 * (sex == "M"))
+    y = rng.poisson(mu)
+    # a level without events has no finite estimate (the fits only drift
+    # towards -infinity, slowly): give each level at least one
+    for lev in np.flatnonzero(np.bincount(area, weights=y, minlength=nlev) == 0):
+        y[lev] = 1
+    with open(path, "w") as f:
+        f.write("y,area,age,sex,py\n")
+        for i in range(rows):
+            f.write("%d,L%05d,%.3f,%s,%.2f\n" % (y[i], area[i], age[i], sex[i], py[i]))
+
+
+def by_name(fit_json):
+    return {c["name"]: c for c in fit_json["coefficients"]}
+
+
+def compare_dense(case, many, dense, tol):
+    problems = []
+    dc = by_name(dense)
+    factor = many["many_factor"]["factor"]
+    for c in many["coefficients"]:
+        k = dc[c["name"]]
+        if c["aliased"] != k["aliased"]:
+            problems.append("%s aliased %s, dense %s" % (c["name"], c["aliased"], k["aliased"]))
+            continue
+        if c["aliased"]:
+            continue
+        for key in ("estimate", "standard_error"):
+            if rel(c[key], k[key]) > tol:
+                problems.append("%s %s %.17g, dense %.17g" % (c["name"], key, c[key], k[key]))
+    for lev in many["many_factor"]["levels"]:
+        k = dc["%s=%s" % (factor, lev["level"])]
+        for key in ("estimate", "standard_error"):
+            if rel(lev[key], k[key]) > tol:
+                problems.append("level %s %s %.17g, dense %.17g" % (lev["level"], key, lev[key], k[key]))
+    names = [c["name"] for c in many["coefficients"]]
+    dnames = [c["name"] for c in dense["coefficients"]]
+    for i, a in enumerate(names):
+        for j, b in enumerate(names):
+            x, y = many["covariance"][i][j], dense["covariance"][dnames.index(a)][dnames.index(b)]
+            if x is None or y is None:
+                if (x is None) != (y is None):
+                    problems.append("covariance %s,%s null on one side" % (a, b))
+                continue
+            scale = (dense["covariance"][dnames.index(a)][dnames.index(a)] *
+                     dense["covariance"][dnames.index(b)][dnames.index(b)]) ** 0.5
+            if abs(x - y) > tol * scale:
+                problems.append("covariance %s,%s %.17g, dense %.17g" % (a, b, x, y))
+    for key in ("deviance", "rank", "residual_df"):
+        if rel(many["fit"][key], dense["fit"][key]) > tol:
+            problems.append("%s %r, dense %r" % (key, many["fit"][key], dense["fit"][key]))
+    report(case, problems)
+
+
+def case_dense_poisson(tmp):
+    data = os.path.join(tmp, "p200.csv")
+    poisson_data(data, 200, 6000, 3)
+    base = ["outcome y", "family poisson", "exposure py", "numeric age"]
+    many = fit(tmp, "p_many", base + ["factor area many", "factor sex"], data)
+    dense = fit(tmp, "p_dense", base + ["factor area", "factor sex"], data)
+    compare_dense("poisson rate model, 200 levels eliminated = as columns", many, dense, 1e-10)
+
+
+def case_dense_gaussian(tmp):
+    rng = np.random.default_rng(5)
+    nlev, rows = 200, 5000
+    area = np.concatenate([np.arange(nlev), rng.integers(0, nlev, rows - nlev)])
+    size = rng.uniform(1, 9, nlev)  # constant within a level: aliased after the levels
+    x = rng.normal(0, 1, rows)
+    grp = rng.choice(["a", "b", "c"], rows)
+    y = 2 + rng.normal(0, 1, nlev)[area] + 0.5 * x + (grp == "b") - 0.3 * (grp == "c") + rng.normal(0, 1, rows)
+    data = os.path.join(tmp, "g200.csv")
+    with open(data, "w") as f:
+        f.write("y,area,size,x,grp\n")
+        for i in range(rows):
+            f.write("%.6f,r%03d,%.4f,%.5f,%s\n" % (y[i], area[i], size[area[i]], x[i], grp[i]))
+    base = ["outcome y", "family gaussian"]
+    many = fit(tmp, "g_many", base + ["factor area many", "numeric x", "factor grp", "numeric size"], data)
+    dense = fit(tmp, "g_dense", base + ["factor area", "numeric x", "factor grp", "numeric size"], data)
+    problems = [] if by_name(many)["size"]["aliased"] else ["size (constant within levels) not aliased"]
+    if problems:
+        report("gaussian, a second factor and an aliased covariate", problems)
+    else:
+        compare_dense("gaussian, a second factor and an aliased covariate, eliminated = as columns", many, dense,
+                      1e-10)
+
+
+def case_r(tmp):
+    if not os.access(RSCRIPT, os.X_OK):
+        print("skip R glm reference: no %s" % RSCRIPT)
+        return
+    data = os.path.join(tmp, "p500.csv")
+    poisson_data(data, 500, 2500, 7)
+    many = fit(tmp, "r_many", ["outcome y", "family poisson", "exposure py", "numeric age", "factor area many",
+                               "factor sex"], data)
+    prog = os.path.join(tmp, "glm.R")
+    out = os.path.join(tmp, "glm.txt")
+    with open(prog, "w") as f:
+        f.write(R_PROGRAM)
+    subprocess.run([RSCRIPT, "--vanilla", prog, data, out], check=True, stdout=subprocess.DEVNULL)
+    ref = {}
+    with open(out) as f:
+        for line in f:
+            w = line.split()
+            ref[w[0]] = [float(v) for v in w[1:]]
+    problems = []
+    names = {"intercept": "(Intercept)", "age": "age", "sex=M": "sexM"}
+    for c in many["coefficients"]:
+        est, se = ref[names[c["name"]]]
+        if rel(c["estimate"], est) > 1e-8 or rel(c["standard_error"], se) > 1e-8:
+            problems.append("%s %.17g (%.17g), R %.17g (%.17g)" % (c["name"], c["estimate"],
+                                                                  c["standard_error"], est, se))
+    levels = many["many_factor"]["levels"]
+    if len(levels) != 499:
+        problems.append("%d levels, not 499" % len(levels))
+    for lev in levels:
+        est, se = ref["area" + lev["level"]]
+        # an estimate near 0 is compared on the scale of its standard error
+        if abs(lev["estimate"] - est) > 1e-8 * max(abs(est), se) or rel(lev["standard_error"], se) > 1e-8:
+            problems.append("level %s %.17g (%.17g), R %.17g (%.17g)" % (lev["level"], lev["estimate"],
+                                                                        lev["standard_error"], est, se))
+    if rel(many["fit"]["deviance"], ref["deviance"][0]) > 1e-8:
+        problems.append("deviance %.17g, R %.17g" % (many["fit"]["deviance"], ref["deviance"][0]))
+    report("poisson rate model, 500 levels, against R glm", problems)
+
+
+def main():
+    if not os.access(MILLRACE, os.X_OK):
+        print("build/millrace missing: run make first")
+        return 1
+    tmp = tempfile.mkdtemp(prefix="mr-many-")
+    try:
+        case_dense_poisson(tmp)
+        case_dense_gaussian(tmp)
+        case_r(tmp)
+    finally:
+        shutil.rmtree(tmp)
+    print("%d passed, %d failed" % (passed, len(failures)))
+    return 1 if failures else 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
