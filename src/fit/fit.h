@@ -103,6 +103,8 @@ struct mr_fit {
     char **command_line; /* the words given to mr_fitter_set_command_line */
     size_t ncommand_line;
     char *started, *ended, *host; /* ISO 8601 UTC; the machine's name */
+    /* taken up from a checkpoint after pass resumed_from_pass (resumed 1) */
+    int resumed, resumed_from_pass;
 };
 
 /* The per-coefficient arrays for p coefficients, zeroed (the fit's p set). */

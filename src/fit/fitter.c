@@ -38,6 +38,7 @@ void mr_fitter_free(mr_fitter *f)
     mr_fitter_clear_missing(f);
     mr__strings_free(f->command_line, f->ncommand_line);
     mr__start_free(f->start);
+    mr__free(f->checkpoint);
     mr__free(f);
 }
 
@@ -150,6 +151,18 @@ mr_status mr_fitter_set_command_line(mr_fitter *f, size_t argc, const char *cons
     f->ncommand_line = argc;
     return MR_OK;
 }
+
+mr_status mr_fitter_set_checkpoint(mr_fitter *f, const char *path)
+{
+    char *copy = NULL;
+    mr__error_clear(&f->err);
+    if (path != NULL && (copy = mr__strdup(path)) == NULL) return mr__fail(&f->err, MR_ERR_NO_MEMORY, "out of memory");
+    mr__free(f->checkpoint);
+    f->checkpoint = copy;
+    return MR_OK;
+}
+
+const char *mr_fitter_checkpoint_note(const mr_fitter *f) { return f->checkpoint_note; }
 
 /* The audit trail: who asked (the command line), on which machine, from
  * when to when (wall clock, UTC). */

@@ -21,6 +21,8 @@ struct mr_fitter {
     char **command_line; /* mr_fitter_set_command_line's copy */
     size_t ncommand_line;
     struct mr__start *start; /* mr_fitter_set_start; NULL: none (start.h) */
+    char *checkpoint;        /* mr_fitter_set_checkpoint's copy; NULL: none */
+    char checkpoint_note[MR__MSG_CAP + 256]; /* what the last run did with it */
 };
 
 /* The fit itself (run.c). */

@@ -29,6 +29,7 @@ int openblas_get_num_threads(void);
 #include "common/clock.h"
 #include "common/utf8.h"
 #include "family/family.h"
+#include "fit/checkpoint.h"
 #include "fit/fit.h"
 #include "fit/fitter.h"
 #include "fit/irls.h"
@@ -179,6 +180,8 @@ typedef struct irls_job {
     int max_iterations;
     double *beta_out;    /* the coefficients reached */
     double deviance_shift; /* collapsed patterns: the deviance within patterns */
+    mr__irls *resume;    /* NULL, or the state a checkpoint left (taken over) */
+    int checkpoints;     /* the fit of the data: a checkpoint after each pass */
     int iterations, halvings, converged, by_decrement;
     double rel_change, null_b0;
 } irls_job;
@@ -218,13 +221,15 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
     return note_pass(r, res, err);
 }
 
-/* The passes the state machine asks for, until it is done. */
-static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__error *err)
+static mr_status init_state(mr__run *r, irls_job *job, mr__irls *s, mr__error *err)
 {
-    mr__irls s;
     mr__irls_cfg c;
-    mr_status st;
-    int done = 0;
+    if (job->resume) {
+        *s = *job->resume;
+        memset(job->resume, 0, sizeof *job->resume);
+        if (s->p != r->design.p) return mr__fail(err, MR_ERR_INTERNAL, "the checkpoint's state does not fit the design");
+        return MR_OK;
+    }
     memset(&c, 0, sizeof c);
     c.p = r->design.p;
     c.tolerance = job->tolerance;
@@ -235,11 +240,26 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
     c.null_b0 = null_start(r);
     c.null_exact = null_start_exact(r);
     c.family = r->f->spec.family;
-    MR__TRY(mr__irls_init(&s, &c, err));
-    do {
+    MR__TRY(mr__irls_init(s, &c, err));
+    /* the first pass (and the warm start) done: the first checkpoint */
+    return job->checkpoints ? mr__checkpoint_write(r, s, err) : MR_OK;
+}
+
+/* The passes the state machine asks for, until it is done.  A pass over
+ * collapsed patterns runs in memory: only reads of the data are worth a
+ * checkpoint. */
+static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__error *err)
+{
+    mr__irls s;
+    mr_status st;
+    int done = 0;
+    memset(&s, 0, sizeof s);
+    st = init_state(r, job, &s, err);
+    while (st == MR_OK && !done) {
         st = irls_pass(r, job, mr__irls_beta(&s), s.null_b0, mr__irls_null_deviance(&s), res, err);
         if (st == MR_OK) st = mr__irls_step(&s, &res->sums, r->display, &done, err);
-    } while (st == MR_OK && !done);
+        if (st == MR_OK && !done && job->checkpoints && !job->replay) st = mr__checkpoint_write(r, &s, err);
+    }
     job->iterations = s.iterations;
     job->halvings = s.halvings;
     job->converged = s.converged;
@@ -320,10 +340,12 @@ static void warm_start(mr__run *r)
     mr__store_init_packed(sample);
 }
 
-static mr_status fit_data(mr__run *r, mr__error *err)
+static mr_status fit_data(mr__run *r, mr__irls *resume, mr__error *err)
 {
     irls_job job;
     memset(&job, 0, sizeof job);
+    job.resume = resume;
+    job.checkpoints = 1;
     if (r->collapsed) {
         job.replay = &r->patterns;
         job.deviance_shift = r->within_deviance;
@@ -380,13 +402,26 @@ static mr_status allocate_coefficients(mr__run *r, mr__error *err)
     return MR_OK;
 }
 
+/* A checkpoint's first-pass result in place of the pass: later passes
+ * compare the input with it, and keep blocks afresh (none were kept). */
+static void restore_first(mr__run *r)
+{
+    r->size = r->first.size;
+    r->mtime_ns = r->first.mtime_ns;
+    r->raw_bytes = r->first.raw_bytes;
+    r->first.store_incomplete = 1;
+}
+
 mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
 {
     mr__run r;
+    mr__irls resume;
+    int have_resume = 0;
     mr__error *err = &f->err;
     mr_status st;
     int blas_threads = 0; /* the count to set back; 0: never changed */
     memset(&r, 0, sizeof r);
+    memset(&resume, 0, sizeof resume);
     mr__store_init_memory(&r.store);
     mr__store_init_memory(&r.patterns);
     atomic_init(&r.collapse_abandoned, 0);
@@ -403,6 +438,7 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
     r.dcfg.collapse_abandoned = &r.collapse_abandoned;
     st = mr__spec_validate(&f->spec, err);
     if (st == MR_OK && f->start) st = mr__start_check(f->start, &f->spec, err);
+    if (st == MR_OK) st = mr__checkpoint_begin(&r, &resume, &have_resume, err);
     if (st == MR_OK) {
         mr__choose_store(&r);
         /* Our workers use every core; BLAS threads inside them would only
@@ -410,7 +446,8 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
          * millrace.h promises. */
         blas_threads = openblas_get_num_threads();
         openblas_set_num_threads(1);
-        st = scan_pass(&r, err);
+        if (have_resume) restore_first(&r);
+        else st = scan_pass(&r, err);
     }
     if (st == MR_OK) st = mr__settle_scan(&r, err);
     if (st == MR_OK) st = allocate_coefficients(&r, err);
@@ -420,9 +457,11 @@ mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
     r.started = st == MR_OK && f->start != NULL;
     /* a previous fit's point is nearer the maximum than a sample's: the
      * warm start then only gives its sample back */
-    if (st == MR_OK) warm_start(&r);
-    if (st == MR_OK) st = fit_data(&r, err);
+    if (st == MR_OK && !have_resume) warm_start(&r);
+    if (st == MR_OK) st = fit_data(&r, have_resume ? &resume : NULL, err);
     if (st == MR_OK) st = mr__build_fit(&r, out, err);
+    mr__irls_release(&resume);
+    mr__checkpoint_end(&r, st == MR_OK);
     release_run(&r);
     if (blas_threads > 0) openblas_set_num_threads(blas_threads);
     return st;

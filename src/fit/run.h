@@ -63,6 +63,10 @@ typedef struct mr__run {
     int iterations, halvings, converged, by_decrement;
     double *pass_seconds;
     int npasses;
+    /* the checkpoint (checkpoint.c): its lock, the pass it was taken up
+     * after (0: none), checkpoints written */
+    struct mr_output_lock *checkpoint_lock;
+    int resumed_from, checkpoint_writes;
 } mr__run;
 
 mr_status mr__build_fit(mr__run *r, mr_fit **out, mr__error *err);
