@@ -1,8 +1,31 @@
-/* checkpoint.c - the run's state after each finished pass, written so that
- * a killed fit goes on where it was (checkpoint.h has the file's layout).
- * Nothing read from the file is trusted before its length and checksum
- * are right, and nothing is used unless the input, model and options are
- * the ones it was made for: else the fit starts afresh, saying why. */
+/* checkpoint.c - a fit that goes on after its process was killed
+ * (mr_fitter_set_checkpoint in millrace.h).  Nothing read from the file is
+ * trusted before its length and checksum are right, and nothing is used
+ * unless the input, model and options are the ones it was made for: else
+ * the fit starts afresh, saying why.
+ *
+ * After every finished pass that reads the data (the first, once the warm
+ * start is taken; then each IRLS pass) the run writes, atomically through
+ * common/outfile.c and under the one-writer lock on the path, what it needs
+ * to go on: the first pass's result (accum/first_bytes.h), the IRLS state
+ * (fit/irls.h) and the run's counts.  A run given the same path reads it
+ * first: when it is whole and was made for this input, model and options,
+ * the run takes up after its last pass, to the same bits.
+ *
+ * THE FILE (version 1), little-endian (common/bytes.h, common/bytebuf.h):
+ *   "MRCK", u32 version, u64 the file's length
+ *   the input: its name as given (text), size, mtime (ns)
+ *   the model and the options that change results (text: the model
+ *     lines, tolerance, pass limit, level, bad rows, delimiter, missing
+ *     tokens, collapsing, the start's name)
+ *   the header row (text), passes done, each pass's seconds (f64), the
+ *     warm start's flag, iterations, blocks, polish blocks
+ *   the first pass's result (text framing its bytes)
+ *   the IRLS state (text framing its bytes)
+ *   u64 FNV-1a over every byte before (common/checksum.h)
+ * A file whose length, tag, version or checksum is wrong is damaged and
+ * never read further; one of another input, model or options is stale.
+ * Either is said in the run's note and the fit starts afresh. */
 #define _POSIX_C_SOURCE 200809L
 #include <errno.h>
 #include <fcntl.h>
@@ -20,8 +43,11 @@
 #include "common/outfile.h"
 #include "common/strbuf.h"
 #include "common/sysio.h"
-#include "fit/checkpoint.h"
+#include "fit/irls.h"
+#include "fit/run.h"
 #include "fit/start.h"
+
+#define MR__CHECKPOINT_VERSION 1u
 
 /* Longest checkpoint read: patterns and the block map of any file fit well
  * within it; a longer file is not one of ours. */

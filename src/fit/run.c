@@ -29,7 +29,6 @@ int openblas_get_num_threads(void);
 #include "common/clock.h"
 #include "common/utf8.h"
 #include "family/family.h"
-#include "fit/checkpoint.h"
 #include "fit/fit.h"
 #include "fit/fitter.h"
 #include "fit/irls.h"
