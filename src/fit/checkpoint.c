@@ -342,7 +342,7 @@ mr_status mr__checkpoint_begin(mr__run *r, mr__irls *resume, int *have_resume, m
 void mr__checkpoint_end(mr__run *r, int succeeded)
 {
     if (r->checkpoint_lock == NULL) return;
-    if (succeeded) unlink(r->f->checkpoint);
+    if (succeeded && !r->f->checkpoint_keep) unlink(r->f->checkpoint);
     mr_output_lock_release(r->checkpoint_lock);
     r->checkpoint_lock = NULL;
 }

@@ -23,6 +23,7 @@ struct mr_fitter {
     struct mr__start *start; /* mr_fitter_set_start; NULL: none (start.h) */
     char *checkpoint;        /* mr_fitter_set_checkpoint's copy; NULL: none */
     char checkpoint_note[MR__MSG_CAP + 256]; /* what the last run did with it */
+    int checkpoint_keep;     /* tests only: the checkpoint outlives a fit that succeeded */
 };
 
 /* The fit itself (run.c). */
