@@ -517,7 +517,7 @@ static int run_fit(cli *c, int argc, char **argv)
     read_test_kill();
     st = mr_fitter_run(c->fitter, argv[optind], &fit);
     stop_at_block = 0;
-    if (mr_fitter_checkpoint_note(c->fitter)[0] && !c->quiet)
+    if (mr_fitter_checkpoint_note(c->fitter)[0])
         fprintf(stderr, "millrace: %s\n", mr_fitter_checkpoint_note(c->fitter));
     if (c->progress_shown) fputs("\r\033[K", stderr);
     if (stop_signal) {

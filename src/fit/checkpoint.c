@@ -214,7 +214,7 @@ static const char *stale(mr__run *r, mr__byteread *rd, const char *key)
     if (n != strlen(r->path) || memcmp(name, r->path, n) != 0) return "made for another input file";
     if (stat(r->path, &sb) != 0 || (uint64_t)sb.st_size != size ||
         mtime != (uint64_t)((int64_t)sb.st_mtim.tv_sec * 1000000000 + sb.st_mtim.tv_nsec))
-        return "the input changed since it was made (size or time)";
+        return "the input's size or time changed since it was made";
     if (k != strlen(key) || memcmp(text, key, k) != 0) return "made for another model or other options";
     return NULL;
 }
