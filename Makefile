@@ -185,6 +185,7 @@ asan-check: asan $(B)/synth
 	MILLRACE=$(B)/asan/millrace bash tests/cli/threads.sh
 	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/outputs.sh
 	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/drift.sh
+	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/checkpoint.sh
 
 # The threaded paths under ThreadSanitizer (OpenBLAS is not instrumented:
 # its internal races are not ours and are suppressed).

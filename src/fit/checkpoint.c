@@ -328,7 +328,6 @@ mr_status mr__checkpoint_begin(mr__run *r, mr__irls *resume, int *have_resume, m
     char msg[MR__MSG_CAP];
     mr_status st;
     *have_resume = 0;
-    r->f->checkpoint_note[0] = '\0';
     if (r->f->checkpoint == NULL) return MR_OK;
     if (mr__read_only_once(r->path))
         return mr__fail(err, MR_ERR_USAGE, "checkpoint: %s is read only once (standard input or a pipe), so a "

@@ -189,6 +189,7 @@ mr_status mr_fitter_run(mr_fitter *f, const char *path, mr_fit **out)
     mr_status st;
     *out = NULL;
     mr__error_clear(&f->err);
+    f->checkpoint_note[0] = '\0';
     /* Closed, descriptor 0 would go to the next file opened (the copy of
      * standard input kept for later passes), and be read as empty input. */
     if (strcmp(path, "-") == 0 && fcntl(STDIN_FILENO, F_GETFD) < 0)
