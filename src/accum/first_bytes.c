@@ -239,6 +239,17 @@ static mr_status get_map(mr__byteread *r, mr__block_map *m)
     return MR_OK;
 }
 
+/* Every pattern's key numbers a value its column has: the patterns are
+ * made into rows by those numbers (fit/collapse.c). */
+static int keys_in_range(const mr__pattern_merge *m)
+{
+    size_t i, k;
+    for (i = 0; i < m->table.n; i++)
+        for (k = 0; k < m->nkey; k++)
+            if (mr__pattern_id(&m->table, i, k) >= m->values[k].n) return 0;
+    return 1;
+}
+
 static mr_status get_patterns(mr__byteread *r, mr__pattern_merge *m, size_t nkey_bound)
 {
     uint64_t i, k, n, kwords, nkey = mr__byteread_count(r, MAX_COLUMNS, 8), *key;
@@ -262,6 +273,7 @@ static mr_status get_patterns(mr__byteread *r, mr__pattern_merge *m, size_t nkey
         if (!r->bad) st = mr__pattern_table_put(&m->table, key, sums);
     }
     mr__free(key);
+    if (st == MR_OK && !r->bad && !keys_in_range(m)) r->bad = 1;
     return st;
 }
 

@@ -273,7 +273,8 @@ static const char *take_parts(mr__run *r, mr__byteread *rd, mr__irls *resume, mr
     part = mr__byteread_text(rd, &n);
     if (part == NULL) return "damaged";
     mr__byteread_init(&sub, part, (size_t)n);
-    if (mr__first_decode(&sub, &first, &ncol, &nnum, &nfac, err) != MR_OK) return "its first-pass result is damaged";
+    if (mr__first_decode(&sub, &first, &ncol, &nnum, &nfac, err) != MR_OK)
+        return err->status == MR_ERR_NO_MEMORY ? "no memory to read it" : "its first-pass result is damaged";
     if (sub.at != sub.end || (part = mr__byteread_text(rd, &n)) == NULL || rd->end - rd->at != 8 ||
         mr__irls_decode(part, (size_t)n, resume, err) != MR_OK) {
         mr__pass_result_release(&first, nfac);
