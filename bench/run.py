@@ -95,7 +95,7 @@ def coef_diff(a, b):
     for x, y in zip(a["coefficients"], b["coefficients"]):
         if x["estimate"] is None or y["estimate"] is None:
             continue
-        scale = max(abs(y["estimate"]), y["std_error"] or 0.0, 1e-300)
+        scale = max(abs(y["estimate"]), y["standard_error"] or 0.0, 1e-300)
         m = max(m, abs(x["estimate"] - y["estimate"]) / scale)
     return m
 
@@ -105,7 +105,7 @@ args <- commandArgs(trailingOnly = TRUE)
 d <- read.csv(args[1], colClasses = "character")
 names_ <- readLines(args[2]); fam <- args[3]
 col <- function(nm) {
-  if (nm == "(intercept)") return(rep(1, nrow(d)))
+  if (nm == "intercept") return(rep(1, nrow(d)))
   v <- rep(1, nrow(d))
   for (p in strsplit(nm, " & ", fixed = TRUE)[[1]]) {
     kv <- strsplit(p, "=", fixed = TRUE)[[1]]
@@ -169,7 +169,7 @@ def run_case(name, rows):
         names = [c["name"] for c in j["coefficients"]]
         try:
             rw, rr, rc = r_reference(name, data, names)
-            diff = max(abs(a["estimate"] - b) / max(abs(b), a["std_error"]) for a, b in zip(j["coefficients"], rc))
+            diff = max(abs(a["estimate"] - b) / max(abs(b), a["standard_error"]) for a, b in zip(j["coefficients"], rc))
             res.update({"r_seconds": rw, "r_peak_rss_kb": rr, "r_max_coef_diff": diff})
         except Exception as e:  # the benchmark reports, it does not fail
             res["r_error"] = str(e)[-300:]

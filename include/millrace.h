@@ -114,6 +114,9 @@ MR_API const char *mr_strerror(mr_status status);
  *                     power=1.5"; V(mu) = mu^p, outcome >= 0, dispersion
  *                     estimated; no log-likelihood: MR_STAT_LOG_LIKELIHOOD,
  *                     MR_STAT_AIC and MR_STAT_BIC are NaN)
+ * Binomial, poisson and negative binomial with "dispersion estimate" are
+ * quasi families, without a likelihood: MR_STAT_LOG_LIKELIHOOD,
+ * MR_STAT_AIC and MR_STAT_BIC are NaN for them too.
  * A family with a parameter of its own needs it on its line
  * (mr_fitter_model_line: MR_ERR_USAGE without it or out of range);
  * mr_fit_stat(fit, MR_STAT_FAMILY_PARAMETER) gives it back.           */
@@ -342,7 +345,7 @@ MR_API void mr_fit_free(mr_fit *fit);
 MR_API mr_status mr_fit_status(const mr_fit *fit);
 
 MR_API size_t mr_fit_ncoef(const mr_fit *fit);
-/* Coefficient names: "(intercept)", "year", "sex=M", "age_band=45-49 & sex=M",
+/* Coefficient names: "intercept", "year", "sex=M", "age_band=45-49 & sex=M",
  * "age[spline 2/4]" (basis column 2 of a 4-column spline of age).
  * Owned by the fit. */
 MR_API const char *mr_fit_coef_name(const mr_fit *fit, size_t j);
@@ -449,11 +452,14 @@ MR_API char *mr_fit_report(const mr_fit *fit, int digits);
 MR_API mr_status mr_fit_write_json(const mr_fit *fit, const char *path, char *msg, size_t msgcap);
 
 /* Reads back a fit that mr_fit_write_json wrote (format "millrace-fit",
- * format_version 2): the same coefficients, covariance, statistics,
+ * format_version 3, or 2 from an older library: its names std_error,
+ * df_residual, df_null and "(intercept)" are read as standard_error,
+ * residual_df, null_df and "intercept", and a quasi family's
+ * log-likelihood, AIC and BIC as NaN): the same coefficients, covariance, statistics,
  * warnings and report, and what rebuilding the model needs (the model's
  * lines as given, its terms, factor levels and references, spline knots,
  * and the input's path, size, modification time and checksum).  Writing the fit read gives
- * the same bytes as the file read, and NaN and infinities, written as null,
+ * the same bytes as the file read (a version 3 file), and NaN and infinities, written as null,
  * read back as NaN.  On MR_OK, *out receives a new fit the caller frees
  * with mr_fit_free; it is read-only like any other, and mr_fit_status
  * gives what it gave when written.  Otherwise *out is NULL and `msg`

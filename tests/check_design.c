@@ -137,7 +137,7 @@ START_TEST(test_factor_numeric_interaction)
     static const char *const header[] = {"y", "g", "x"};
     /* Source of truth: treatment coding (reference b has no column) and the
      * names documented in millrace.h. */
-    static const char *const names[] = {"(intercept)", "g=a", "g=c", "x", "g=a & x", "g=c & x"};
+    static const char *const names[] = {"intercept", "g=a", "g=c", "x", "g=a & x", "g=c & x"};
     const mr__factor fac = {"g", (const char **)LEVELS_ABC, 3, 1};
     const double mean[] = {2.5}, spread[] = {1.7};
     double num[STRIDE], X[NROWS * 6];
@@ -180,7 +180,7 @@ START_TEST(test_split_layout_is_the_same_matrix)
     mr__design d;
     size_t i, j, t;
     build(&d, &s, &b, lines, N_OF(lines), header, N_OF(header), fac, mean, spread);
-    ck_assert_uint_eq(d.p, 6); /* (intercept), g=a, g=c, h=m, x, h=m & x */
+    ck_assert_uint_eq(d.p, 6); /* intercept, g=a, g=c, h=m, x, h=m & x */
     ck_assert_uint_eq(d.nsparse, 1);
     ck_assert_uint_eq(d.ndense, 4);
     rows_g_x(num, lev);
@@ -222,7 +222,7 @@ START_TEST(test_runs_cover_every_non_zero_cross_product)
     mr__design d;
     size_t i, a, c, r, k;
     build(&d, &s, &b, lines, N_OF(lines), header, N_OF(header), fac, mean, spread);
-    /* (intercept), g=a, g=c, k=b, k=c, x, g=a & x, g=c & x */
+    /* intercept, g=a, g=c, k=b, k=c, x, g=a & x, g=c & x */
     ck_assert_uint_eq(d.p, 8);
     ck_assert_uint_eq(d.nsparse, 3);
     rows_g_x(num, lev);
@@ -327,7 +327,7 @@ START_TEST(test_numeric_products_and_three_way)
     static const char *const lines[] = {"outcome y", "factor g",     "numeric x",      "numeric w",
                                         "interact x w", "interact g x", "interact g x w"};
     static const char *const header[] = {"w", "x", "y", "g"};
-    static const char *const names[] = {"(intercept)", "g=b",     "g=c",         "x",          "w",
+    static const char *const names[] = {"intercept", "g=b",     "g=c",         "x",          "w",
                                         "x & w",       "g=b & x", "g=c & x", "g=b & x & w", "g=c & x & w"};
     static const double W_OF_ROW[] = {0.5, 2.0, -3.0, 4.0, 1.5, 0.0, -7.0};
     const mr__factor fac = {"g", (const char **)LEVELS_ABC, 3, 0};

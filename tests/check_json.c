@@ -379,13 +379,14 @@ START_TEST(damaged_files)
     damaged(NULL, NULL, 2000, MR_ERR_FORMAT, "bad.json:");      /* truncated: jansson's line and column */
     damaged(NULL, NULL, 0, MR_ERR_FORMAT, "bad.json:");
     damaged("\"millrace-fit\"", "\"other-fit\"", 0, MR_ERR_FORMAT, "not a fit written by millrace");
-    damaged("\"format_version\": 2", "\"format_version\": 3", 0, MR_ERR_FORMAT, "format_version");
-    damaged("\"format_version\": 2", "\"format_version\": \"2\"", 0, MR_ERR_FORMAT, "format_version");
+    damaged("\"format_version\": 3", "\"format_version\": 4", 0, MR_ERR_FORMAT, "format_version");
+    damaged("\"format_version\": 3", "\"format_version\": 1", 0, MR_ERR_FORMAT, "format_version is not 2 to 3");
+    damaged("\"format_version\": 3", "\"format_version\": \"3\"", 0, MR_ERR_FORMAT, "format_version");
     damaged("\"outcome\": \"admissions\",", "", 0, MR_ERR_FORMAT, "'model.outcome' is missing");
     damaged("\"iterations\": ", "\"iterations\": \"x\", \"was\": ", 0, MR_ERR_FORMAT,
             "'convergence.iterations' should be a whole number");
-    damaged("\"name\": \"(intercept)\"", "\"name\": 1", 0, MR_ERR_FORMAT, "'coefficients[0].name' should be a string");
-    damaged("\"name\": \"(intercept)\"", "\"name\": \"a\\\\q\"", 0, MR_ERR_FORMAT, "'coefficients[0].name' holds");
+    damaged("\"name\": \"intercept\"", "\"name\": 1", 0, MR_ERR_FORMAT, "'coefficients[0].name' should be a string");
+    damaged("\"name\": \"intercept\"", "\"name\": \"a\\\\q\"", 0, MR_ERR_FORMAT, "'coefficients[0].name' holds");
     damaged("\"family\": \"poisson\"", "\"family\": \"lognormal\"", 0, MR_ERR_FORMAT, "'model.family'");
     damaged("\"link\": ", "\"family_parameter\": {\"name\": \"theta\", \"value\": 2}, \"link\": ", 0, MR_ERR_FORMAT,
             "'model.family_parameter' is given for a family without one");
@@ -438,6 +439,57 @@ START_TEST(audit_trail)
 }
 END_TEST
 
+/* A fit the format 2 writer saved (tests/cli/fit_format2.json, kept as it
+ * was written: std_error, df_residual, df_null, "(intercept)") reads as the
+ * fit a run of its model gives now, bit for bit, under the new names, and
+ * is written back as format 3. */
+START_TEST(format_2_read)
+{
+    static const char *const lines[] = {"outcome admissions", "family poisson", "exposure person_years",
+                                        "factor sex", "factor region", "numeric year"};
+    char msg[512], *text;
+    size_t i, j;
+    mr_fit *now = fit_with(NULL, lines, 6, "samples/falls.csv", 0), *old = NULL;
+    text = slurp("tests/cli/fit_format2.json");
+    ck_assert(strstr(text, "\"format_version\": 2") && strstr(text, "\"(intercept)\"") && strstr(text, "\"std_error\""));
+    free(text);
+    ck_assert_msg(mr_fit_read_json("tests/cli/fit_format2.json", &old, msg, sizeof msg) == MR_OK, "%s", msg);
+    ck_assert_uint_eq(mr_fit_ncoef(old), mr_fit_ncoef(now));
+    ck_assert_str_eq(mr_fit_coef_name(old, 0), "intercept");
+    for (j = 0; j < mr_fit_ncoef(now); j++) {
+        ck_assert_str_eq(mr_fit_coef_name(old, j), mr_fit_coef_name(now, j));
+        ck_assert(same_bits(mr_fit_coef(old, j), mr_fit_coef(now, j)));
+        ck_assert(same_bits(mr_fit_std_error(old, j), mr_fit_std_error(now, j)));
+    }
+    for (i = 0; i <= MR_STAT_FAMILY_PARAMETER; i++) {
+        double x = mr_fit_stat(old, (mr_stat)i), y = mr_fit_stat(now, (mr_stat)i);
+        if (i == MR_STAT_SECONDS) continue;
+        ck_assert_msg(same_bits(x, y) || (isnan(x) && isnan(y)), "statistic %zu: %.17g, %.17g", i, x, y);
+    }
+    ck_assert_int_eq(mr_fit_write_json(old, in_dir("upgraded.json"), msg, sizeof msg), MR_OK);
+    text = slurp(in_dir("upgraded.json"));
+    ck_assert(strstr(text, "\"format_version\": 3") && strstr(text, "\"name\": \"intercept\""));
+    ck_assert(strstr(text, "\"standard_error\": ") && strstr(text, "\"residual_df\": ") && strstr(text, "\"null_df\": "));
+    ck_assert(!strstr(text, "std_error") && !strstr(text, "df_residual") && !strstr(text, "(intercept)"));
+    free(text);
+    mr_fit_free(old);
+    mr_fit_free(now);
+    /* a column called intercept beside "(intercept)": refused, not two coefficients of one name */
+    text = slurp("tests/cli/fit_format2.json");
+    {
+        char *at = strstr(strstr(text, "\"coefficients\": ["), "\"name\": \"year\"");
+        char *edited = malloc(strlen(text) + 16);
+        ck_assert_ptr_nonnull(at);
+        sprintf(edited, "%.*s\"name\": \"intercept\"%s", (int)(at - text), text, at + strlen("\"name\": \"year\""));
+        spit(in_dir("clash.json"), edited, strlen(edited));
+        free(edited);
+    }
+    free(text);
+    ck_assert_int_eq(mr_fit_read_json(in_dir("clash.json"), &old, msg, sizeof msg), MR_ERR_FORMAT);
+    ck_assert_msg(strstr(msg, "both '(intercept)' and a coefficient named 'intercept'") != NULL, "%s", msg);
+}
+END_TEST
+
 static Suite *json_suite(void)
 {
     Suite *s = suite_create("json");
@@ -459,6 +511,7 @@ static Suite *json_suite(void)
     tcase_add_test(t, damaged_files);
     tcase_add_test(t, audit_trail);
     tcase_add_test(t, damaged_spline);
+    tcase_add_test(t, format_2_read);
     suite_add_tcase(s, t);
     return s;
 }

@@ -298,7 +298,7 @@ START_TEST(spline_in_the_design)
                                         "interact age sex"};
     static const char *const header[] = {"y", "age", "sex"};
     static const char *const levels[] = {"F", "M"};
-    static const char *const want[] = {"(intercept)", "age[spline 1/2]", "age[spline 2/2]", "sex=M",
+    static const char *const want[] = {"intercept", "age[spline 1/2]", "age[spline 2/2]", "sex=M",
                                        "age[spline 1/2] & sex=M", "age[spline 2/2] & sex=M"};
     const mr__factor fac = {"sex", (const char **)levels, 2, 0};
     const double mean[] = {50}, spread[] = {10}, age[] = {25, 60, 90};

@@ -9,9 +9,9 @@
 # falls.csv - admissions ~ Poisson(person_years * exp(eta)), log link;
 #   reference levels age_band=40-44, sex=F, region=Brindlemarch (the first
 #   region in sorted order and in the file); year numeric, NOT centred, so
-#   (intercept) = -5.99 - 2020 * 0.012 (the log rate for F 40-44
+#   intercept = -5.99 - 2020 * 0.012 (the log rate for F 40-44
 #   Brindlemarch in 2020 is -5.99).
-#   (intercept)              -30.23
+#   intercept              -30.23
 #   age_band=00-04   0.30    age_band=00-04 & sex=M   0.25
 #   age_band=05-09   0.10    age_band=05-09 & sex=M   0.35
 #   age_band=10-14   0.20    age_band=10-14 & sex=M   0.45
@@ -40,7 +40,7 @@
 #   reference levels sex=F, smoker=never; age, deprivation, bmi numeric and
 #   not centred.  bmi was blanked (empty or "NA") at random after the outcome
 #   was drawn from the true bmi, so a complete-case fit recovers these.
-#   (intercept)     0.20
+#   intercept     0.20
 #   age             0.03
 #   sex=M          -0.25
 #   deprivation    -0.22
@@ -111,7 +111,7 @@ SCR_BMI_NA_SHARE = 0.010
 
 
 def falls_truth():
-    coef = {"(intercept)": FALLS_LOG_RATE_2020 - YEAR_CENTRE * FALLS_YEAR}
+    coef = {"intercept": FALLS_LOG_RATE_2020 - YEAR_CENTRE * FALLS_YEAR}
     for band in AGE_BANDS:
         if band != "40-44":
             coef["age_band=" + band] = FALLS_BAND[band]
@@ -126,7 +126,7 @@ def falls_truth():
 
 
 def screening_truth():
-    return {"(intercept)": SCR_INTERCEPT, "age": SCR_AGE, "sex=M": SCR_SEX_M,
+    return {"intercept": SCR_INTERCEPT, "age": SCR_AGE, "sex=M": SCR_SEX_M,
             "deprivation": SCR_DEPRIVATION,
             "smoker=current": SCR_SMOKER["current"],
             "smoker=former": SCR_SMOKER["former"], "bmi": SCR_BMI}

@@ -636,13 +636,13 @@ static void truth_events(FILE *fp)
           "    \"parametrisation\": \"treatment contrasts; reference levels age_band=00-04, "
           "sex=F, region=R01 (the first level of each, in both sorted and natural order); "
           "deprivation is numeric 1..5 and not centred; year is numeric and NOT centred in "
-          "these coefficients, so (intercept) is the log rate at year 0 and equals "
+          "these coefficients, so intercept is the log rate at year 0 and equals "
           "intercept_year_centred_2017 - 2017 * year; log(followup) is an offset with "
           "coefficient 1\",\n"
           "    \"intercept_year_centred_2017\": ", fp);
     json_number(fp, EV_INTERCEPT);
     fputs(",\n    \"coefficients\": {", fp);
-    json_coef(fp, "(intercept)", EV_INTERCEPT - YEAR_CENTRE * EV_YEAR, &first);
+    json_coef(fp, "intercept", EV_INTERCEPT - YEAR_CENTRE * EV_YEAR, &first);
     for (int b = 1; b < N_BANDS; b++) {
         band_label(label, b);
         snprintf(name, sizeof name, "age_band=%s", label);
@@ -676,7 +676,7 @@ static void truth_flag(FILE *fp, const tables *t)
     fputs(",\n    \"bmi_mean_used_when_missing\": ", fp);
     json_number(fp, t->bmi_mean);
     fputs(",\n    \"coefficients\": {", fp);
-    json_coef(fp, "(intercept)", FL_INTERCEPT, &first);
+    json_coef(fp, "intercept", FL_INTERCEPT, &first);
     json_coef(fp, "age", FL_AGE, &first);
     json_coef(fp, "sex=M", FL_SEX_M, &first);
     json_coef(fp, "deprivation", FL_DEPRIVATION, &first);

@@ -121,6 +121,12 @@ const char *mr__fit_ratio_label(const mr_fit *fit)
     return fit->link == MR_LOG ? ops->ratio_log : NULL;
 }
 
+int mr__fit_quasi(const mr_fit *fit)
+{
+    const mr__family_ops *ops = mr__family_ops_of((mr_family)fit->family);
+    return ops != NULL && fit->dispersion_estimated && !ops->dispersion_estimated;
+}
+
 const char *mr__fit_family_param_name(const mr_fit *fit)
 {
     const mr__family_ops *ops = mr__family_ops_of((mr_family)fit->family);

@@ -122,6 +122,12 @@ void mr__fit_warn(mr_fit *fit, const char *fmt, ...) __attribute__((format(print
  * residual df (term_test.c).  MR_OK or MR_ERR_NO_MEMORY. */
 mr_status mr__fit_term_tests(mr_fit *fit);
 
+/* 1 when the fit estimates a dispersion its family fixes at 1 (poisson,
+ * binomial, negative binomial with `dispersion estimate`): a quasi family,
+ * fitted by its mean and variance alone, with no likelihood, so no
+ * log-likelihood, AIC or BIC (they are NaN). */
+int mr__fit_quasi(const mr_fit *fit);
+
 /* "rate ratio", "odds ratio", ... for links where exp(estimate) is a
  * ratio; NULL otherwise. */
 const char *mr__fit_ratio_label(const mr_fit *fit);

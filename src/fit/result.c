@@ -147,6 +147,7 @@ static void set_fit_statistics(mr_fit *fit, const mr__run *r)
     k = (double)fit->rank + r->family.ops->dispersion_counts;
     fit->aic = -2 * fit->loglik + 2 * k;
     fit->bic = -2 * fit->loglik + log((double)fit->n) * k;
+    if (mr__fit_quasi(fit)) fit->loglik = fit->aic = fit->bic = NAN;
 }
 
 static void set_inference(mr_fit *fit)

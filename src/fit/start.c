@@ -1,6 +1,6 @@
 /* start.c - a previous fit as the start of a new one (start.h).
  *
- * Coefficients are matched by name ("(intercept)", "year", "sex=M",
+ * Coefficients are matched by name ("intercept", "year", "sex=M",
  * "band=45-49 & sex=M"): a level the previous fit did not have starts at
  * 0, one it had and this data lacks is dropped.  When a factor's
  * reference level changed (the data's first level is another, or the

@@ -1,6 +1,6 @@
 /* design.h - from model terms to the columns of the design matrix.
  *
- * Columns: "(intercept)", then each declared covariate in order (a numeric
+ * Columns: "intercept" (MR__INTERCEPT_NAME), then each declared covariate in order (a numeric
  * is one column, a factor one column per non-reference level: treatment
  * coding), then each interaction (the product of its parts' columns).
  *
@@ -22,6 +22,10 @@
 #include "model/columns.h"
 #include "model/spec.h"
 #include "model/term_spline.h"
+
+/* The intercept's coefficient name (format version 2 of the JSON wrote
+ * "(intercept)"; its reader maps that to this). */
+#define MR__INTERCEPT_NAME "intercept"
 
 #define MR__MAX_COLUMNS 4000
 /* Dense columns: the intercept, terms without a factor and, while there

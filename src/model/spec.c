@@ -37,6 +37,7 @@ static void release_covariate(mr__covariate *c)
     mr__free(c->name);
     mr__free(c->ref);
     mr__free(c->spline.knots);
+    mr__free(c->origin);
 }
 
 void mr__spec_release(mr__spec *s)
@@ -50,8 +51,10 @@ void mr__spec_release(mr__spec *s)
     mr__free(s->weight);
     for (i = 0; i < s->ncov; i++) release_covariate(&s->cov[i]);
     mr__free(s->cov);
-    for (i = 0; i < s->ninter; i++)
+    for (i = 0; i < s->ninter; i++) {
         for (k = 0; k < s->inter[i].n; k++) mr__free(s->inter[i].name[k]);
+        mr__free(s->inter[i].origin);
+    }
     mr__free(s->inter);
     for (i = 0; i < s->nlines; i++) {
         mr__free(s->line[i]);
@@ -109,7 +112,7 @@ const mr__covariate *mr__spec_find(const mr__spec *s, const char *name)
 /* A later declaration of the same column replaces its role and reference
  * but keeps its place in the term order. */
 static mr_status declare_covariate(mr__spec *s, const char *name, mr__role role, const char *ref,
-                                   mr__error *err)
+                                   const char *origin, mr__error *err)
 {
     mr__covariate *c = (mr__covariate *)mr__spec_find(s, name);
     if (c == NULL) {
@@ -126,7 +129,7 @@ static mr_status declare_covariate(mr__spec *s, const char *name, mr__role role,
     mr__free(c->spline.knots);
     memset(&c->spline, 0, sizeof c->spline);
     if (ref != NULL) MR__TRY(set_string(&c->ref, ref, err));
-    return MR_OK;
+    return origin != NULL ? set_string(&c->origin, origin, err) : MR_OK;
 }
 
 static mr_status add_interaction(mr__spec *s, const words *ws, const char *origin, mr__error *err)
@@ -152,7 +155,7 @@ static mr_status add_interaction(mr__spec *s, const words *ws, const char *origi
     }
     it->n = ws->n - 1;
     s->ninter++;
-    return MR_OK;
+    return origin != NULL ? set_string(&it->origin, origin, err) : MR_OK;
 }
 
 static mr_status expect_args(const words *ws, int n, const char *origin, mr__error *err)
@@ -196,7 +199,7 @@ static mr_status parse_factor(mr__spec *s, const words *ws, const char *origin, 
             return mr__fail(err, MR_ERR_USAGE, "%s: ref= needs a level name (quote one with blanks: ref=\"a b\")",
                             origin);
     }
-    return declare_covariate(s, ws->w[1], MR__ROLE_FACTOR, ref, err);
+    return declare_covariate(s, ws->w[1], MR__ROLE_FACTOR, ref, origin, err);
 }
 
 /* "a,b,c": at most `max` finite numbers, in *n. */
@@ -284,7 +287,7 @@ static mr_status parse_spline(mr__spec *s, const words *ws, const char *origin, 
         return mr__fail(err, MR_ERR_USAGE, "%s: spline takes either df=N or knots=K1,K2,..., not %s", origin,
                         sp.df > 0 ? "both" : "neither");
     MR__TRY(check_inside(&sp, knots, origin, err));
-    MR__TRY(declare_covariate(s, ws->w[1], MR__ROLE_SPLINE, NULL, err));
+    MR__TRY(declare_covariate(s, ws->w[1], MR__ROLE_SPLINE, NULL, origin, err));
     c = (mr__covariate *)mr__spec_find(s, ws->w[1]);
     if (sp.nknots > 0) {
         if ((sp.knots = mr__malloc_array(sp.nknots, sizeof *sp.knots)) == NULL)
@@ -339,7 +342,7 @@ static mr_status apply_words(mr__spec *s, const words *ws, const char *origin, m
     }
     if (strcmp(d, "numeric") == 0) {
         MR__TRY(expect_args(ws, 1, origin, err));
-        return declare_covariate(s, ws->w[1], MR__ROLE_NUMERIC, NULL, err);
+        return declare_covariate(s, ws->w[1], MR__ROLE_NUMERIC, NULL, origin, err);
     }
     if (strcmp(d, "factor") == 0) return parse_factor(s, ws, origin, err);
     if (strcmp(d, "spline") == 0) return parse_spline(s, ws, origin, err);

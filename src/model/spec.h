@@ -32,11 +32,13 @@ typedef struct mr__covariate {
     mr__role role;
     char *ref; /* reference level of a factor, NULL = first in sorted order */
     mr__spline_spec spline; /* MR__ROLE_SPLINE only */
+    char *origin; /* the line that last declared it ("falls.model:3"), for messages */
 } mr__covariate;
 
 typedef struct mr__interaction {
     int n;
     char *name[MR__MAX_INTERACT];
+    char *origin; /* the line that asked for it, for messages */
 } mr__interaction;
 
 typedef struct mr__spec {

@@ -13,7 +13,7 @@
 #include "output/json_util.h"
 
 #define DRIFT_FORMAT "millrace-drift"
-#define DRIFT_FORMAT_VERSION 1
+#define DRIFT_FORMAT_VERSION 2 /* 2: standard_error for std_error in key and column names */
 
 static const char *status_word(mr__drift_kind k)
 {
@@ -79,9 +79,9 @@ static json_t *coefficient(const mr__drift_coef *c)
     o = mr__json_put(o, "old_estimate", mr__json_num(c->old_est));
     o = mr__json_put(o, "new_estimate", mr__json_num(c->new_est));
     o = mr__json_put(o, "change", mr__json_num(c->change));
-    o = mr__json_put(o, "old_std_error", mr__json_num(c->old_se));
-    o = mr__json_put(o, "new_std_error", mr__json_num(c->new_se));
-    o = mr__json_put(o, "std_error_used", mr__json_num(c->se));
+    o = mr__json_put(o, "old_standard_error", mr__json_num(c->old_se));
+    o = mr__json_put(o, "new_standard_error", mr__json_num(c->new_se));
+    o = mr__json_put(o, "standard_error_used", mr__json_num(c->se));
     o = mr__json_put(o, "z", mr__json_num(c->z));
     o = mr__json_put(o, "z_independent", mr__json_num(c->z_indep));
     return mr__json_put(o, "flagged", json_boolean(c->flagged));
@@ -116,7 +116,7 @@ static json_t *drift_json(const mr_drift *d)
     root = mr__json_put(root, "format_version", json_integer(DRIFT_FORMAT_VERSION));
     root = mr__json_put(root, "millrace_version", json_string(MR_VERSION_STRING));
     root = mr__json_put(root, "threshold", mr__json_num(d->threshold));
-    root = mr__json_put(root, "std_error_rule", json_string(MR__DRIFT_SE_RULE));
+    root = mr__json_put(root, "standard_error_rule", json_string(MR__DRIFT_SE_RULE));
     root = mr__json_put(root, "flagged", json_integer((json_int_t)mr_drift_nflagged(d)));
     root = mr__json_put(root, "old", input(o));
     root = mr__json_put(root, "new", input(n));
@@ -171,7 +171,7 @@ static char *drift_csv(const mr_drift *d)
     mr__strbuf b;
     size_t i;
     mr__strbuf_init(&b);
-    mr__strbuf_printf(&b, "name,status,old_estimate,new_estimate,change,old_std_error,new_std_error,std_error_used,"
+    mr__strbuf_printf(&b, "name,status,old_estimate,new_estimate,change,old_standard_error,new_standard_error,standard_error_used,"
                           "z,z_independent,flagged\r\n");
     for (i = 0; i < d->ncoef; i++) {
         const mr__drift_coef *c = &d->coef[i];

@@ -215,7 +215,7 @@ static void coefficient_table(mr__strbuf *b, const mr__html_page *pg, const mr_f
     const char *ratio = mr__fit_ratio_label(f);
     size_t j;
     mr__strbuf_printf(b, "<h3>Coefficients</h3>\n<p>Wald %s tests and %g%% intervals%s%s%s.</p>\n"
-                         "<table class=\"num\"><thead><tr><th>coefficient</th><th>estimate</th><th>std. error</th>"
+                         "<table class=\"num\"><thead><tr><th>coefficient</th><th>estimate</th><th>SE</th>"
                          "<th>%s</th><th>p</th><th>low</th><th>high</th>",
                       mr__fit_statistic_name(f), 100 * f->level, ratio ? "; " : "", ratio ? ratio : "",
                       ratio ? " = exp(estimate)" : "", mr__fit_statistic_name(f));
@@ -268,10 +268,11 @@ static void term_tests(mr__strbuf *b, const mr__html_page *pg, const mr_fit *f)
     }
 }
 
-/* An AIC or BIC as %.8g, or what a family without a log-likelihood
- * (tweedie) has instead. */
-static const char *criterion(char buf[32], double v)
+/* An AIC or BIC as %.8g, or what a fit without a log-likelihood (tweedie,
+ * a quasi family) has instead. */
+static const char *criterion(char buf[32], const mr_fit *f, double v)
 {
+    if (mr__fit_quasi(f)) return "none (quasi family)";
     if (isnan(v)) return "not computed";
     snprintf(buf, 32, "%.8g", v);
     return buf;
@@ -280,12 +281,16 @@ static const char *criterion(char buf[32], double v)
 static void statistics(mr__strbuf *b, const mr_fit *f)
 {
     char aic[32], bic[32];
-    mr__strbuf_printf(b, "<h3>Fit statistics</h3>\n<table class=\"num\">\n<tr><td>deviance</td><td>%.8g on %.0f df</td>"
-                         "</tr>\n<tr><td>null deviance</td><td>%.8g on %.0f df</td></tr>\n<tr><td>Pearson chi-square"
+    mr__strbuf_printf(b, "<h3>Fit statistics</h3>\n<table class=\"num\">\n<tr><td>deviance</td><td>%.8g (degrees of freedom "
+                         "%.0f)</td></tr>\n<tr><td>null deviance</td><td>%.8g (degrees of freedom %.0f)</td></tr>\n<tr><td>Pearson chi-square"
                          "</td><td>%.8g</td></tr>\n<tr><td>dispersion</td><td>%.8g (%s)</td></tr>\n<tr><td>AIC</td>"
                          "<td>%s</td></tr>\n<tr><td>BIC</td><td>%s</td></tr>\n</table>\n",
                       f->deviance, f->df_residual, f->null_deviance, f->df_null, f->pearson, f->dispersion,
-                      f->dispersion_estimated ? "estimated" : "fixed", criterion(aic, f->aic), criterion(bic, f->bic));
+                      f->dispersion_estimated ? "estimated" : "fixed", criterion(aic, f, f->aic), criterion(bic, f, f->bic));
+    if (mr__fit_quasi(f))
+        mr__strbuf_printf(b, "<p>No log-likelihood, AIC or BIC: %s with the dispersion estimated is a quasi family, "
+                             "fitted by its mean and variance alone, without a likelihood.</p>\n",
+                          mr__family_name((mr_family)f->family));
     if (!f->dispersion_estimated && f->df_residual > 0 && f->pearson / f->df_residual > 1.5)
         mr__strbuf_printf(b, "<p class=\"warn\">Pearson chi-square / residual df = %.3g, well above 1: the data vary "
                              "more than the model allows and the intervals are too narrow. Consider dispersion "
@@ -337,7 +342,7 @@ static void comparison(mr__strbuf *b, const mr__html_page *pg)
                           mr__link_name((mr_link)f->link), (unsigned long long)f->n, f->rank);
         char aic[32], bic[32];
         mr__strbuf_printf(b, "<td>%.8g</td><td>%.0f</td><td>%s</td><td>%s</td><td>%s</td></tr>\n", f->deviance,
-                          f->df_residual, criterion(aic, f->aic), criterion(bic, f->bic), f->converged ? "yes" : "NO");
+                          f->df_residual, criterion(aic, f, f->aic), criterion(bic, f, f->bic), f->converged ? "yes" : "NO");
     }
     put(b, "</tbody></table>\n");
     put(b, same_data(pg) ? "<p>The fits read the same data (same checksum, rows and outcome): lower AIC or BIC "

@@ -55,7 +55,7 @@ static const char *term_kind(const mr_fit *f, const mr__fit_term *t)
 
 /* The term's joint Wald test; null when it has no estimated coefficient.
  * The keys are the same for chi-square and F tests, so that a reader needs
- * no case of its own: df_denominator is null for chi-square. */
+ * no case of its own: denominator_df is null for chi-square. */
 static json_t *term_test(const mr_fit *f, const mr__fit_term *t)
 {
     json_t *o;
@@ -63,7 +63,7 @@ static json_t *term_test(const mr_fit *f, const mr__fit_term *t)
     o = json_object();
     o = put(o, "distribution", json_string(f->dispersion_estimated ? "F" : "chi-square"));
     o = put(o, "df", json_integer((json_int_t)t->test_df));
-    o = put(o, "df_denominator", f->dispersion_estimated ? num(f->df_residual) : json_null());
+    o = put(o, "denominator_df", f->dispersion_estimated ? num(f->df_residual) : json_null());
     o = put(o, "statistic", num(t->test_stat));
     o = put(o, "chi2", num(t->test_chi2));
     return put(o, "p_value", num(t->test_p));

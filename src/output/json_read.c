@@ -18,6 +18,7 @@
 #include "input/codec.h"
 #include "output/json_schema.h"
 #include "output/json_text.h"
+#include "output/json_upgrade.h"
 
 typedef struct reader {
     const char *path;
@@ -386,9 +387,17 @@ static mr_status check_format(reader *r, json_t *root)
     if (!json_is_object(root) || !json_is_string(format) || strcmp(json_string_value(format), MR__JSON_FORMAT) != 0)
         return say(r, MR_ERR_FORMAT, "%s: not a fit written by millrace (no \"format\": \"%s\")", r->path,
                    MR__JSON_FORMAT);
-    if (!json_is_integer(version) || json_integer_value(version) != MR__JSON_FORMAT_VERSION)
-        return say(r, MR_ERR_FORMAT, "%s: format_version is not %d, the one this library reads", r->path,
-                   MR__JSON_FORMAT_VERSION);
+    if (!json_is_integer(version) || json_integer_value(version) < MR__JSON_FORMAT_VERSION_OLDEST ||
+        json_integer_value(version) > MR__JSON_FORMAT_VERSION)
+        return say(r, MR_ERR_FORMAT, "%s: format_version is not %d to %d, the ones this library reads", r->path,
+                   MR__JSON_FORMAT_VERSION_OLDEST, MR__JSON_FORMAT_VERSION);
+    if (json_integer_value(version) < MR__JSON_FORMAT_VERSION) {
+        int up = mr__json_upgrade(root);
+        if (up > 0)
+            return say(r, MR_ERR_FORMAT, "%s: a format_version 2 fit with both '(intercept)' and a coefficient named "
+                                         "'intercept': refit it with that column renamed", r->path);
+        if (up < 0) return no_memory(r);
+    }
     return MR_OK;
 }
 
@@ -418,6 +427,7 @@ static mr_status check_consistent(reader *r)
                                   : "is given for a family without one");
     }
     if (!takes_param) f->family_param = NAN;
+    if (mr__fit_quasi(f)) f->loglik = f->aic = f->bic = NAN; /* numbers a version 2 file may hold */
     if (f->rank > f->p) {
         enter(r, "fit.rank");
         return bad(r, "exceeds the number of coefficients");

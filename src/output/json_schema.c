@@ -149,7 +149,7 @@ static const mr__jfield coefficient_fields[] = {
     EACH("name", MR__J_TEXT, name),
     EACH("aliased", MR__J_BOOL, aliased),
     EACH("estimate", MR__J_REAL, beta),
-    EACH("std_error", MR__J_REAL, se),
+    EACH("standard_error", MR__J_REAL, se),
     EACH("statistic", MR__J_REAL, stat),
     EACH("p_value", MR__J_REAL, pval),
     EACH("ci_low", MR__J_REAL, lo),
@@ -162,9 +162,9 @@ static const mr__jfield coefficient_fields[] = {
 
 static const mr__jfield statistics_fields[] = {
     F("deviance", MR__J_REAL, deviance),
-    F("df_residual", MR__J_REAL, df_residual),
+    F("residual_df", MR__J_REAL, df_residual),
     F("null_deviance", MR__J_REAL, null_deviance),
-    F("df_null", MR__J_REAL, df_null),
+    F("null_df", MR__J_REAL, df_null),
     F("pearson_chi2", MR__J_REAL, pearson),
     F("dispersion", MR__J_REAL, dispersion),
     F("log_likelihood", MR__J_REAL, loglik),

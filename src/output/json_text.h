@@ -20,7 +20,9 @@
 #include "millrace.h"
 
 #define MR__JSON_FORMAT "millrace-fit"
-#define MR__JSON_FORMAT_VERSION 2
+#define MR__JSON_FORMAT_VERSION 3
+/* The oldest version the reader takes (json_upgrade.c brings it up). */
+#define MR__JSON_FORMAT_VERSION_OLDEST 2
 
 /* s escaped as above, NUL-terminated (free with mr__free); NULL when out
  * of memory. */

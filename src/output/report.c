@@ -130,7 +130,7 @@ static void section_coefficients(mr__strbuf *b, const mr_fit *f, int digits)
     size_t j;
     mr__strbuf_printf(b, "\ncoefficients: Wald %s tests and %g%% intervals%s%s%s\n", stat, 100 * f->level,
                       ratio ? "; " : "", ratio ? ratio : "", ratio ? " = exp(estimate)" : "");
-    mr__strbuf_printf(b, "  %-*s %*s %*s %8s %9s %*s %*s", w, "coefficient", nw, "estimate", nw, "std.error", stat,
+    mr__strbuf_printf(b, "  %-*s %*s %*s %8s %9s %*s %*s", w, "coefficient", nw, "estimate", nw, "SE", stat,
                       "p", nw, "low", nw, "high");
     if (ratio) mr__strbuf_printf(b, " %*s %*s %*s", nw, "ratio", nw, "low", nw, "high");
     mr__strbuf_printf(b, "\n");
@@ -197,8 +197,10 @@ static void section_term_tests(mr__strbuf *b, const mr_fit *f, int digits)
 static void section_statistics(mr__strbuf *b, const mr_fit *f, int digits)
 {
     mr__strbuf_printf(b, "\nstatistics\n");
-    mr__strbuf_printf(b, "  deviance            %.*g on %.0f df\n", digits + 2, f->deviance, f->df_residual);
-    mr__strbuf_printf(b, "  null deviance       %.*g on %.0f df\n", digits + 2, f->null_deviance, f->df_null);
+    mr__strbuf_printf(b, "  deviance            %-*.*g  degrees of freedom %.0f\n", digits + 4, digits + 2, f->deviance,
+                      f->df_residual);
+    mr__strbuf_printf(b, "  null deviance       %-*.*g  degrees of freedom %.0f\n", digits + 4, digits + 2,
+                      f->null_deviance, f->df_null);
     mr__strbuf_printf(b, "  pearson chi-square  %.*g\n", digits + 2, f->pearson);
     mr__strbuf_printf(b, "  dispersion          %.*g (%s)\n", digits + 2, f->dispersion,
                       f->dispersion_estimated ? "estimated: pearson chi-square / residual df" : "fixed");
@@ -206,6 +208,12 @@ static void section_statistics(mr__strbuf *b, const mr_fit *f, int digits)
         mr__strbuf_printf(b, "  log-likelihood      not computed: the %s density has no closed form\n",
                           mr__family_name((mr_family)f->family));
         mr__strbuf_printf(b, "  AIC, BIC            not computed\n");
+        return;
+    }
+    if (mr__fit_quasi(f)) {
+        mr__strbuf_printf(b, "  log-likelihood      none: %s with the dispersion estimated is a quasi family, "
+                             "without a likelihood\n", mr__family_name((mr_family)f->family));
+        mr__strbuf_printf(b, "  AIC, BIC            none\n");
         return;
     }
     mr__strbuf_printf(b, "  log-likelihood      %.*g\n", digits + 2, f->loglik);

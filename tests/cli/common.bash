@@ -22,7 +22,7 @@ fit_values() {
 import json, sys
 js = json.load(open(sys.argv[1]), parse_float=str, parse_int=str)
 for c in js["coefficients"]:
-    print("estimate[%s] %s std_error %s" % (c["name"], c["estimate"], c["std_error"]))
+    print("estimate[%s] %s std_error %s" % (c["name"], c["estimate"], c["standard_error"]))
 print("deviance %s pearson %s rows %s" % (js["fit"]["deviance"], js["fit"]["pearson_chi2"], js["rows"]["read"]))
 ' "$1"
 }

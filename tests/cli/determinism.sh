@@ -43,7 +43,7 @@ import json, sys
 js = json.load(open(sys.argv[1]), parse_float=str, parse_int=str)
 for c in js["coefficients"]:
     print("estimate[%s] %s" % (c["name"], c["estimate"]))
-    print("std_error[%s] %s" % (c["name"], c["std_error"]))
+    print("standard_error[%s] %s" % (c["name"], c["standard_error"]))
 print("deviance %s" % js["fit"]["deviance"])
 ' "$1"
 }

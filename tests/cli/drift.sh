@@ -77,9 +77,9 @@ c = {x["name"]: x for x in d["coefficients"]}
 assert c["region=B"]["flagged"] and c["region=B"]["status"] == "both", c["region=B"]
 # the generator's shift is +0.25; the estimate of it lies within 4 of its SEs
 b = c["region=B"]
-assert abs(b["change"] - 0.25) < 4 * b["std_error_used"], b
+assert abs(b["change"] - 0.25) < 4 * b["standard_error_used"], b
 assert c["region=D"]["status"] == "new" and c["region=D"]["flagged"], c["region=D"]
-for name in ("(intercept)", "region=C", "x"):
+for name in ("intercept", "region=C", "x"):
     assert not c[name]["flagged"], c[name]
 assert d["levels"] == [{"factor": "region", "level": "D", "status": "new"}], d["levels"]
 assert d["flagged"] == 3, d["flagged"]  # region=B, region=D, level D
@@ -91,8 +91,8 @@ new = {x["name"]: x for x in v2["coefficients"]}
 for name in old:
     o, n = old[name], new[name]
     change = n["estimate"] - o["estimate"]
-    se = max(o["std_error"], n["std_error"])
-    z, zi = change / se, change / math.hypot(o["std_error"], n["std_error"])
+    se = max(o["standard_error"], n["standard_error"])
+    z, zi = change / se, change / math.hypot(o["standard_error"], n["standard_error"])
     assert abs(c[name]["z"] - z) <= 1e-12 * abs(z), (name, c[name]["z"], z)
     assert abs(c[name]["z_independent"] - zi) <= 1e-12 * abs(zi), (name, c[name]["z_independent"], zi)
     assert c[name]["flagged"] == (abs(z) >= 3), name

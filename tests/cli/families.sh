@@ -128,8 +128,8 @@ for key, tol in (("deviance", 1e-10), ("null_deviance", 1e-10), ("log_likelihood
     if a is None or b is None or abs(a - b) > tol * abs(b):
         problems.append("%s %r vs %r" % (key, a, b))
 for x, y in zip(c["coefficients"], n["coefficients"]):
-    if abs(x["estimate"] - y["estimate"]) > 1e-7 * y["std_error"] or \
-       abs(x["std_error"] - y["std_error"]) > 1e-7 * y["std_error"]:
+    if abs(x["estimate"] - y["estimate"]) > 1e-7 * y["standard_error"] or \
+       abs(x["standard_error"] - y["standard_error"]) > 1e-7 * y["standard_error"]:
         problems.append("%s %r vs %r" % (x["name"], x["estimate"], y["estimate"]))
 print("; ".join(problems))
 EOF

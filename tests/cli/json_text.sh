@@ -31,7 +31,7 @@ def raw(s):
 
 j = json.load(open(sys.argv[1], encoding="utf-8"))
 names = [raw(c["name"]) for c in j["coefficients"]]
-want = [b"(intercept)", b"r\xe9gion=Sud", b"r\xe9gion=\xc9st", b"x"]
+want = [b"intercept", b"r\xe9gion=Sud", b"r\xe9gion=\xc9st", b"x"]
 p = len(j["coefficients"])
 problems = []
 if names != want: problems.append("coefficients %r" % names)

@@ -19,7 +19,7 @@ import json, sys
 a, b = (json.load(open(p)) for p in sys.argv[1:3])
 ca, cb = a["coefficients"], b["coefficients"]
 assert [c["name"] for c in ca] == [c["name"] for c in cb], "names differ"
-worst = max(abs(x["estimate"] - y["estimate"]) / x["std_error"] for x, y in zip(ca, cb))
+worst = max(abs(x["estimate"] - y["estimate"]) / x["standard_error"] for x, y in zip(ca, cb))
 assert worst <= 1e-10, "differ by %g SE" % worst
 PY
 }

@@ -197,7 +197,7 @@ def names(js):
 def exact(ref, other):
     diffs, count = [], 0
     for a, b in zip(other["coefficients"], ref["coefficients"]):
-        for key in ("estimate", "std_error"):
+        for key in ("estimate", "standard_error"):
             count += 1
             if not same(a[key], b[key]):
                 diffs.append("%s[%s] %r vs ref %r" % (key, b["name"], a[key], b[key]))
@@ -229,8 +229,8 @@ def close(ref, other, tol):
     worst = []  # (relative difference / its limit, label, other value, ref value, difference, limit)
     se_tol = max(tol, 10 * max(statistics_lag(ref), statistics_lag(other)))
     for a, b in zip(other["coefficients"], ref["coefficients"]):
-        se = b["std_error"] if isinstance(b["std_error"], float) else 0.0
-        for key, limit in (("estimate", tol), ("std_error", se_tol)):
+        se = b["standard_error"] if isinstance(b["standard_error"], float) else 0.0
+        for key, limit in (("estimate", tol), ("standard_error", se_tol)):
             scale = max(abs(b[key]), se) if isinstance(b[key], float) else 0.0
             d = relative(a[key], b[key], scale)
             worst.append((d / limit, "%s[%s]" % (key, b["name"]), a[key], b[key], d, limit))

@@ -72,7 +72,7 @@ a, b = (json.load(open(p)) for p in sys.argv[1:])
 assert a["convergence"]["collapsed_patterns"], "did not collapse"
 for x, y in zip(a["coefficients"], b["coefficients"]):  # DEVELOPERS.md: the collapsed bound
     assert abs(x["estimate"] - y["estimate"]) <= 1e-7 * abs(y["estimate"]) + 1e-10, x["name"]
-    assert abs(x["std_error"] - y["std_error"]) <= 1e-6 * y["std_error"], x["name"]
+    assert abs(x["standard_error"] - y["standard_error"]) <= 1e-6 * y["standard_error"], x["name"]
 PY
 then ok collapsed-agrees; else fail collapsed-agrees "collapsed fit outside the documented bound"; fi
 

@@ -36,7 +36,7 @@ import json, sys
 t = {x["label"]: x["test"] for x in json.load(open(sys.argv[1]))["model"]["terms"]}
 assert t["c"] is None and t["k"] is None, t
 assert t["g & s"]["df"] == 1 and t["g"]["df"] == 2 and t["s"]["df"] == 1, t
-assert t["g"]["distribution"] == "chi-square" and t["g"]["df_denominator"] is None, t
+assert t["g"]["distribution"] == "chi-square" and t["g"]["denominator_df"] is None, t
 assert t["g"]["statistic"] == t["g"]["chi2"] and 0 < t["g"]["p_value"] < 1, t
 ' "$tmp/t.json"
 
@@ -57,7 +57,7 @@ check json_f_test /usr/bin/python3 -c '
 import json, sys
 j = json.load(open(sys.argv[1]))
 t = j["model"]["terms"][0]["test"]
-assert t["distribution"] == "F" and t["df_denominator"] == j["fit"]["df_residual"], t
+assert t["distribution"] == "F" and t["denominator_df"] == j["fit"]["residual_df"], t
 assert abs(t["statistic"] * t["df"] - t["chi2"]) <= 1e-15 * t["chi2"], t
 ' "$tmp/f.json"
 

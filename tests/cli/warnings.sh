@@ -31,7 +31,7 @@ j = json.load(open(sys.argv[1]))
 b = {c["name"]: c for c in j["coefficients"]}
 # Least squares on the five points by hand: slope 9/10, intercept 3 - 2.7 = 0.3.
 assert b["b"]["estimate"] is None and j["fit"]["rank"] == 2
-assert abs(b["a"]["estimate"] - 0.9) < 1e-12 and abs(b["(intercept)"]["estimate"] - 0.3) < 1e-12, b
+assert abs(b["a"]["estimate"] - 0.9) < 1e-12 and abs(b["intercept"]["estimate"] - 0.3) < 1e-12, b
 ' "$tmp/al.json"; then
     ok aliased_reported
 else

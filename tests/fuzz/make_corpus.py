@@ -89,6 +89,11 @@ def rowsplit():
             write("rowsplit", "%s-%d" % (name, j), bytes([flags, sizes] + reads) + body)
     # several chunks: short rows repeated (flag bit 6)
     write("rowsplit", "many_chunks", bytes([0x41, 0xc5, 40, 255]) + b"y,x\n1,2\n\n3,\"4\"\n5,6\r\n")
+    # the header rules of rowsplit.c: a byte-order mark and blanks make a
+    # blank line; lone carriage returns in the header are refused
+    write("rowsplit", "bom_blank_line", bytes([0, 0, 0]) + b"\xef\xbb\xbf\n  \na,b\n1,2\n")
+    write("rowsplit", "cr_only_lines", bytes([0, 0, 0]) + b"a,b\r1,2\r")
+    write("rowsplit", "bom_crlf_then_cr", bytes([0, 0, 0]) + b"\xef\xbb\xbf\r\na\rb\n1\n")
 
 
 NUMBERS = [
@@ -198,7 +203,9 @@ def fitjson():
         s = fits["screening"]
         seeds = dict(fits)
         seeds["truncated"] = s[:len(s) // 2]
-        seeds["wrong_version"] = s.replace(b'"format_version": 2', b'"format_version": 3', 1)
+        seeds["wrong_version"] = s.replace(b'"format_version": 3', b'"format_version": 99', 1)
+        with open(os.path.join(HERE, "..", "cli", "fit_format2.json"), "rb") as f:
+            seeds["falls_format2"] = f.read()  # an older format the reader still takes
         seeds["wrong_format"] = s.replace(b'"millrace-fit"', b'"millrace-drift"', 1)
         seeds["wrong_type"] = s.replace(b'"family": "binomial"', b'"family": 7', 1)
         seeds["not_json"] = b"outcome y\nfamily poisson\n"

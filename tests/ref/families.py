@@ -67,7 +67,7 @@ out <- file.path(d, "r_out.txt")
 cat(sprintf("coef %.17g %.17g\n", fit$coefficients, sqrt(diag(cov))), sep = "", file = out)
 vals <- c(deviance = fit$deviance, null_deviance = nulldev, pearson_chi2 = pearson, dispersion = 1,
           log_likelihood = ll, aic = fit$aic, bic = -2 * ll + log(nobs) * fit$rank,
-          df_residual = fit$df.residual, rank = fit$rank, n = nobs)
+          residual_df = fit$df.residual, rank = fit$rank, n = nobs)
 cat(sprintf("%s %.17g\n", names(vals), vals), sep = "", file = out, append = TRUE)
 """
 
@@ -90,7 +90,7 @@ def nb_statsmodels(theta, link, X, y, w, off):
     n, p = X.shape
     out = {"coef": np.asarray(res.params), "se": np.asarray(res.bse), "deviance": res.deviance,
            "null_deviance": null_dev, "pearson_chi2": res.pearson_chi2, "dispersion": res.scale,
-           "df_residual": n - p, "rank": p, "n": n}
+           "residual_df": n - p, "rank": p, "n": n}
     if np.all(w == 1):  # statsmodels' density takes no prior weights
         out.update(cr.stats_from_ll(res.llf, p, n))
     return out
@@ -178,7 +178,7 @@ def tweedie_statsmodels(p_power, X, y, w, off):
     n, p = X.shape
     return {"coef": np.asarray(res.params), "se": np.asarray(res.bse), "deviance": res.deviance,
             "null_deviance": null_dev, "pearson_chi2": res.pearson_chi2, "dispersion": res.scale,
-            "df_residual": n - p, "rank": p, "n": n}
+            "residual_df": n - p, "rank": p, "n": n}
 
 
 def check_tweedie(case, p_power, tmp, collapsed):

@@ -81,16 +81,16 @@ def compare(js, beta, se, se_skip=()):
             continue
         if rel(c["estimate"], beta[j]) > REL_TOL:
             problems.append("%s estimate %.17g, statsmodels %.17g" % (c["name"], c["estimate"], beta[j]))
-        if j not in se_skip and rel(c["std_error"], se[j]) > REL_TOL:
-            problems.append("%s std error %.17g, statsmodels %.17g" % (c["name"], c["std_error"], se[j]))
+        if j not in se_skip and rel(c["standard_error"], se[j]) > REL_TOL:
+            problems.append("%s std error %.17g, statsmodels %.17g" % (c["name"], c["standard_error"], se[j]))
     return problems
 
 
 def same_bits(path, family, js):
     """1 thread and 3 threads with 100-byte reads: the same coefficients."""
     other = millrace(path, family, "--threads", "3", "--buffer-size", "100", "--no-cache")
-    a = [(c["estimate"], c["std_error"]) for c in js["coefficients"]]
-    b = [(c["estimate"], c["std_error"]) for c in other["coefficients"]]
+    a = [(c["estimate"], c["standard_error"]) for c in js["coefficients"]]
+    b = [(c["estimate"], c["standard_error"]) for c in other["coefficients"]]
     return [] if a == b else ["3 threads, 100-byte reads differ from 1 thread: %r vs %r" % (b, a)]
 
 

@@ -56,11 +56,11 @@ def run(*args):
 
 
 def design(names, rows):
-    """The design matrix from coefficient names: '(intercept)', 'col',
+    """The design matrix from coefficient names: 'intercept', 'col',
     'col=level', parts joined by ' & '."""
     X = np.ones((len(rows), len(names)))
     for j, name in enumerate(names):
-        if name == "(intercept)":
+        if name == "intercept":
             continue
         for part in name.split(" & "):
             if "=" in part:

@@ -126,7 +126,7 @@ def fit_case(data, spline, ns_args, with_sex, collapsed):
         problems.append("term kind %r" % term["kind"])
     if term["spline"]["knots"] != r_knots:
         problems.append("knots %r, R %r" % (term["spline"]["knots"], r_knots))
-    got = [(c["estimate"], c["std_error"]) for c in fit["coefficients"]]
+    got = [(c["estimate"], c["standard_error"]) for c in fit["coefficients"]]
     if len(got) != len(want):
         problems.append("%d coefficients, R %d" % (len(got), len(want)))
     se_tol = COLLAPSED_TOL if collapsed else REL_TOL
@@ -155,8 +155,8 @@ def centred_case(data):
     for c, w in zip(fit["coefficients"], want):
         if abs(c["estimate"] - w[0]) > REL_TOL * abs(w[0]) + 1e-12:
             problems.append("%s: estimate %r, R %r" % (c["name"], c["estimate"], w[0]))
-        if abs(c["std_error"] - w[1]) > REL_TOL * abs(w[1]):
-            problems.append("%s: std error %r, R %r" % (c["name"], c["std_error"], w[1]))
+        if abs(c["standard_error"] - w[1]) > REL_TOL * abs(w[1]):
+            problems.append("%s: std error %r, R %r" % (c["name"], c["standard_error"], w[1]))
     if len(want) != len(fit["coefficients"]):
         problems.append("%d coefficients, R %d" % (len(fit["coefficients"]), len(want)))
     return problems[:5]

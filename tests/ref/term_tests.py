@@ -81,7 +81,7 @@ def check_terms(js, res, kept, use_f):
     coefs = js["coefficients"]
     p = len(coefs)
     cov = np.asarray([[np.nan if v is None else v for v in row] for row in js["covariance"]])
-    df_resid = js["fit"]["df_residual"]
+    df_resid = js["fit"]["residual_df"]
     if (js["model"]["dispersion"] == "estimate") != use_f:
         problems.append("dispersion %r but use_f %r" % (js["model"]["dispersion"], use_f))
     for term in js["model"]["terms"]:
@@ -97,8 +97,8 @@ def check_terms(js, res, kept, use_f):
             continue
         # the contract: distribution label and denominator df
         dist = "F" if use_f else "chi-square"
-        if test["distribution"] != dist or test["df_denominator"] != (df_resid if use_f else None):
-            problems.append("%s: %r %r" % (label, test["distribution"], test["df_denominator"]))
+        if test["distribution"] != dist or test["denominator_df"] != (df_resid if use_f else None):
+            problems.append("%s: %r %r" % (label, test["distribution"], test["denominator_df"]))
         # numpy on millrace's own published estimates and covariance
         b = np.asarray([coefs[j]["estimate"] for j in cols])
         own = quad(b, cov[np.ix_(cols, cols)])
@@ -208,7 +208,7 @@ def identity_two_levels(rng, tmp):
         js = cr.millrace_for_case(case, tmp)
         c = [c for c in js["coefficients"] if c["name"] == "g=B"][0]
         t = js["model"]["terms"][0]["test"]
-        z = c["estimate"] / c["std_error"]
+        z = c["estimate"] / c["standard_error"]
         if rel(t["statistic"], z * z) > 1e-13 or rel(t["chi2"], z * z) > 1e-13:
             problems.append("%s: statistic %r, chi2 %r vs z^2 %r" % (disp, t["statistic"], t["chi2"], z * z))
         if rel(t["p_value"], c["p_value"]) > 1e-12:
