@@ -777,6 +777,115 @@ MR_API const char *mr_fit_warning(const mr_fit *fit, size_t i);
  * JSON), or 0 when it ran from the start. */
 MR_API int mr_fit_resumed_after_pass(const mr_fit *fit);
 
+/* ------------------------------------------------------------------ */
+/* Several models compared on one file (README, "Comparing models").
+ *
+ *   mr_comparison  k models, each given as a configured mr_fitter that the
+ *                  comparison borrows (it must outlive the comparison and
+ *                  not run elsewhere meanwhile), fitted to one file by
+ *                  mr_comparison_run; it owns the fits it makes and the
+ *                  tests between them.  Created by mr_comparison_new (NULL
+ *                  only when out of memory), freed by mr_comparison_free
+ *                  (NULL is fine).  One thread at a time.
+ *
+ * Each model is fitted exactly as mr_fitter_run would fit it alone, with
+ * its own fitter's options: its own rows (complete cases of its own
+ * columns), design, IRLS and convergence, so each model's fit has the
+ * same coefficients, standard errors and deviance, bit for bit, as that
+ * model fitted alone.  The first pass is shared: the file (or standard
+ * input, "-") is read, decompressed and cut into rows once, and every
+ * model decodes each block with its own columns.  Later passes are each
+ * model's own, as alone: over its kept columns or covariate patterns
+ * (no reading), or, without a cache, over the file again (input read
+ * only once is copied once, for all the models).  The fitters' progress
+ * callbacks: the first fitter's during the shared pass, each fitter's own
+ * after it.
+ *
+ * Tests.  A model A is nested in B when both have the same outcome,
+ * trials, family (and parameter), link, offset, exposure, weight,
+ * intercept and dispersion rule, and every term of A is a term of B with
+ * the same coefficient columns (so a column entered as a factor in one
+ * and numeric in the other is not the same term), B having more.  For
+ * each such pair, with D = deviance(A) - deviance(B) and df =
+ * residual_df(A) - residual_df(B):
+ *   fixed dispersion      chi2 = D, p = P(chi2_df > D)
+ *   estimated dispersion  chi2 = D / phi_B, p from chi2_df as above, and
+ *                         F = D / (df phi_B), p = P(F(df, residual_df(B)) > F),
+ *                         phi_B being B's Pearson dispersion
+ * (what R's anova.glm gives for the two models with test "Chisq" and
+ * "F").  A pair whose models used different rows (a column of B has
+ * missing values that A's columns do not) is listed with no statistics
+ * and a note: the test needs both fitted to the same rows.
+ *
+ * Drop-one tests (mr_comparison_drop_one): model i refitted without each
+ * of its terms in turn, each reduced model tested against model i as a
+ * nested pair above.  A term that is part of a larger term (a covariate
+ * of an interaction, an interaction inside a larger one) is kept, as
+ * marginality asks; the reduced models are fitted in the same shared
+ * first pass as the models.
+ *
+ * These are tests of models chosen by the analyst; p-values are not
+ * adjusted for the number of tests or for choosing among models. */
+typedef struct mr_comparison mr_comparison;
+MR_API mr_comparison *mr_comparison_new(void);
+MR_API void mr_comparison_free(mr_comparison *c);
+/* The message of the last failed call, or "" (owned by the comparison). */
+MR_API const char *mr_comparison_errmsg(const mr_comparison *c);
+/* Adds a model: `fitter` borrowed, `label` copied (names the model in
+ * messages, the report and the JSON; labels must differ and be non-empty).
+ * MR_OK, MR_ERR_USAGE (a label empty or already taken), MR_ERR_NO_MEMORY. */
+MR_API mr_status mr_comparison_add(mr_comparison *c, mr_fitter *fitter, const char *label);
+/* Asks for the drop-one tests of model `model` (0-based, in the order
+ * added) at the next run.  MR_OK or MR_ERR_USAGE (no such model). */
+MR_API mr_status mr_comparison_drop_one(mr_comparison *c, size_t model);
+/* Fits every model (and the reduced models of drop-one tests) to `path`
+ * and computes the tests.  MR_OK, or the status of the first model that
+ * failed, with a message naming that model ("model LABEL: ...", or
+ * "model LABEL without TERM: ..." for a reduced one) - a column of its
+ * model missing from the file, say; MR_ERR_USAGE for no model.  A reduced
+ * model that is no model (nothing left to fit) is a test with a note.  A model that stopped at the pass limit is
+ * kept and flagged (mr_fit_status), as with mr_fitter_run. */
+MR_API mr_status mr_comparison_run(mr_comparison *c, const char *path);
+MR_API size_t mr_comparison_nmodels(const mr_comparison *c);
+/* Label of model i (owned by the comparison; NULL when out of range). */
+MR_API const char *mr_comparison_label(const mr_comparison *c, size_t i);
+/* The fit of model i after a successful run, owned by the comparison
+ * (valid until the next run or mr_comparison_free); NULL otherwise. */
+MR_API const mr_fit *mr_comparison_fit(const mr_comparison *c, size_t i);
+
+typedef enum mr_test_kind { MR_TEST_NESTED = 0, MR_TEST_DROP_ONE = 1 } mr_test_kind;
+/* One test.  NESTED: models `smaller` and `larger` (indices of the
+ * models).  DROP_ONE: `larger` is the model, `term` the name of the term
+ * left out (owned by the comparison), and the reduced model's deviance,
+ * residual df and AIC are given (`smaller` is (size_t)-1).  Statistics are
+ * NaN where they do not apply (F under a fixed dispersion) or when the
+ * test could not be made; `note` (owned; "" when none) says why. */
+typedef struct mr_model_test {
+    mr_test_kind kind;
+    size_t smaller, larger;
+    const char *term;
+    double reduced_deviance, reduced_residual_df, reduced_aic;
+    double df, deviance_change;
+    double chi2, chi2_p;
+    double f, f_p, f_residual_df;
+    const char *note;
+} mr_model_test;
+MR_API size_t mr_comparison_ntests(const mr_comparison *c);
+/* Test k into *out; 0 when k is out of range. */
+MR_API int mr_comparison_test(const mr_comparison *c, size_t k, mr_model_test *out);
+/* The comparison as text for people: each model's rows, deviance,
+ * residual df, AIC and BIC, then the tests; numbers with `digits`
+ * significant digits (0: 6).  Free with mr_free; NULL when out of memory
+ * or before a successful run. */
+MR_API char *mr_comparison_report(const mr_comparison *c, int digits);
+/* The comparison as JSON (format "millrace-comparison", README) to
+ * `path` by the rules of "Output files"; `inputs` (`ninputs`) are files
+ * it must not replace (the data file, the model files).  MR_OK, or
+ * MR_ERR_USAGE / MR_ERR_IO / MR_ERR_NO_MEMORY with a message in `msg`
+ * (capacity `msgcap`, may be 0). */
+MR_API mr_status mr_comparison_write_json(const mr_comparison *c, const char *path, const char *const *inputs,
+                                          size_t ninputs, char *msg, size_t msgcap);
+
 /* Frees memory the library returned (mr_fit_report). NULL is fine. */
 MR_API void mr_free(void *p);
 

@@ -5,7 +5,8 @@
  * exits).  For n = 0, 1, 2, ... the n-th allocation of a whole fit fails;
  * the fit must then return MR_ERR_NO_MEMORY (or succeed, where the failed
  * allocation only cost an optional speed-up such as the warm start), never
- * crash, never leak.  The same for the JSON and the HTML page of a fit.  Source of truth: the API contract in millrace.h. */
+ * crash, never leak.  The same for the JSON and the HTML page of a fit,
+ * and for several models compared in one shared first pass.  Source of truth: the API contract in millrace.h. */
 #define _POSIX_C_SOURCE 200809L
 #include <check.h>
 #include <stdio.h>
@@ -339,6 +340,56 @@ END_TEST
 START_TEST(test_spline_rows_cached) { every_allocation("samples/falls.csv", spline_model, 1); }
 END_TEST
 
+/* Several models in one shared first pass (a fan-out of first-pass jobs),
+ * a drop-one refit among them, their comparison as text and JSON, with the
+ * n-th allocation failing: MR_ERR_NO_MEMORY or success, no leak.  Returns
+ * 1 once everything got through. */
+static int comparison_failing_at(long n)
+{
+    static const char *const small[] = {"outcome attended", "family binomial", "numeric age", NULL};
+    mr_fitter *f[2] = {NULL, NULL};
+    mr_comparison *c;
+    char msg[256], *text;
+    mr_status st = MR_OK;
+    int i, k, done = 0;
+    mr__alloc_fail_after(n);
+    c = mr_comparison_new();
+    for (k = 0; k < 2 && c != NULL && st == MR_OK; k++) {
+        const char *const *model = k == 0 ? screening_model : small;
+        if ((f[k] = mr_fitter_new()) == NULL) break;
+        mr_fitter_set_int(f[k], MR_OPT_THREADS, 2);
+        for (i = 0; model[i] && st == MR_OK; i++) st = mr_fitter_model_line(f[k], model[i], "test");
+        if (st == MR_OK) st = mr_comparison_add(c, f[k], k == 0 ? "full" : "small");
+    }
+    if (c != NULL && k == 2 && st == MR_OK) {
+        mr_comparison_drop_one(c, 0);
+        st = mr_comparison_run(c, "samples/screening.csv");
+        ck_assert_msg(st == MR_OK || st == MR_ERR_NO_MEMORY, "allocation %ld: status %d (%s)", n, (int)st,
+                      mr_comparison_errmsg(c));
+        if (st == MR_OK) {
+            text = mr_comparison_report(c, 0);
+            st = mr_comparison_write_json(c, json_path, NULL, 0, msg, sizeof msg);
+            ck_assert_msg(st == MR_OK || st == MR_ERR_NO_MEMORY, "allocation %ld: JSON %d (%s)", n, (int)st, msg);
+            done = text != NULL && st == MR_OK;
+            mr_free(text);
+        }
+    }
+    mr_comparison_free(c);
+    mr_fitter_free(f[0]);
+    mr_fitter_free(f[1]);
+    return done && mr__alloc_failures_left() >= 0;
+}
+
+START_TEST(test_comparison)
+{
+    long n;
+    for (n = 0; n < 400000; n++)
+        if (comparison_failing_at(n)) break;
+    mr__alloc_fail_after(-1);
+    ck_assert_msg(n < 400000, "the comparison never finished");
+}
+END_TEST
+
 int main(void)
 {
     Suite *s = suite_create("alloc");
@@ -361,6 +412,10 @@ int main(void)
     tcase_add_test(tc, test_html_page);
     tcase_add_test(tc, test_gzip_source);
     tcase_add_test(tc, test_checkpoints);
+    suite_add_tcase(s, tc);
+    tc = tcase_create("comparison");
+    tcase_set_timeout(tc, 600);
+    tcase_add_test(tc, test_comparison);
     suite_add_tcase(s, tc);
     rc = mr_check_run(s, 1); /* no fork: the leak checker sees the whole run */
     unlink(json_path);

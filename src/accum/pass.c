@@ -720,6 +720,7 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     memset(res, 0, sizeof *res);
     e.cfg = cfg;
     e.ops = cfg->kind == MR__PASS_SCAN ? &mr__job_scan : cfg->kind == MR__PASS_SCORE ? &mr__job_score : &mr__job_irls;
+    if (cfg->ops != NULL) e.ops = cfg->ops;
     e.nworkers = cfg->nthreads > 0 ? (size_t)cfg->nthreads : 1;
     /* Two blocks per worker (one being computed, one waiting), one being
      * read, one being added, and slack for blocks that finish out of

@@ -77,6 +77,8 @@ typedef struct mr__pass_cfg {
     const mr__block_map *map; /* MR__PASS_IRLS reading the file: the first pass's map */
     mr__pass_pool *pool;  /* NULL, or memory to take from and leave to the next pass */
     const void *job_arg;  /* MR__PASS_SCORE: its mr__score_cfg (accum/score.h) */
+    const mr__pass_job_ops *ops; /* NULL: the job of `kind`; else this one
+                                    (job_fanout.c: several runs' jobs) */
     int pass_number;
     mr_progress_fn progress;
     mr_progress_stop_fn progress_stop; /* nonzero: the pass fails with MR_ERR_STOPPED */

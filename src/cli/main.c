@@ -18,7 +18,7 @@ enum {
     OPT_EXPOSURE, OPT_WEIGHT, OPT_NO_INTERCEPT, OPT_DISPERSION, OPT_THREADS, OPT_BUFFER, OPT_TOLERANCE,
     OPT_MAX_PASSES, OPT_LEVEL, OPT_DELIMITER, OPT_MISSING, OPT_IN_MEMORY, OPT_ON_BAD_ROW, OPT_JSON, OPT_QUIET,
     OPT_DIGITS, OPT_NO_CACHE, OPT_NO_COLLAPSE, OPT_START_FROM, OPT_HELP, OPT_RUN_LOG, OPT_THRESHOLD, OPT_CSV,
-    OPT_FIT, OPT_OUT, OPT_KEEP, OPT_UNSEEN, OPT_BY, OPT_BY_OUT, OPT_CHECKPOINT
+    OPT_FIT, OPT_OUT, OPT_KEEP, OPT_UNSEEN, OPT_BY, OPT_BY_OUT, OPT_DROP_ONE, OPT_FIT_JSON, OPT_CHECKPOINT
 };
 
 static const struct option long_options[] = {
@@ -73,6 +73,30 @@ static const struct option drift_long_options[] = {
     {NULL, 0, NULL, 0},
 };
 
+/* Options of `millrace compare`: the models, the run's options (each
+ * model's fitter gets them), and the comparison's outputs. */
+static const struct option compare_options[] = {
+    {"model", required_argument, NULL, 'm'},
+    {"drop-one", required_argument, NULL, OPT_DROP_ONE},
+    {"json", required_argument, NULL, OPT_JSON},
+    {"fit-json", required_argument, NULL, OPT_FIT_JSON},
+    {"digits", required_argument, NULL, OPT_DIGITS},
+    {"quiet", no_argument, NULL, OPT_QUIET},
+    {"threads", required_argument, NULL, OPT_THREADS},
+    {"buffer-size", required_argument, NULL, OPT_BUFFER},
+    {"tolerance", required_argument, NULL, OPT_TOLERANCE},
+    {"max-passes", required_argument, NULL, OPT_MAX_PASSES},
+    {"level", required_argument, NULL, OPT_LEVEL},
+    {"delimiter", required_argument, NULL, OPT_DELIMITER},
+    {"missing", required_argument, NULL, OPT_MISSING},
+    {"in-memory", no_argument, NULL, OPT_IN_MEMORY},
+    {"no-cache", no_argument, NULL, OPT_NO_CACHE},
+    {"no-collapse", no_argument, NULL, OPT_NO_COLLAPSE},
+    {"on-bad-row", required_argument, NULL, OPT_ON_BAD_ROW},
+    {"help", no_argument, NULL, OPT_HELP},
+    {NULL, 0, NULL, 0},
+};
+
 /* Options of `millrace report`. */
 enum { OPT_HTML = 512, OPT_AT, OPT_REPORT_DIGITS };
 static const struct option report_options[] = {
@@ -92,6 +116,10 @@ static const char usage_text[] =
     "       millrace score --fit FIT.json --out FILE[.zst] [--keep COL]... [--level P]\n"
     "                      [--unseen fail|blank] [--threads N] [--by COL]... [--by-out PATH] DATA\n"
     "                      predictions and residuals per row; observed/expected by group\n"
+    "       millrace compare -m MODEL -m MODEL... [--drop-one NAME]... [--json PATH] [--fit-json PREFIX]\n"
+    "                        [--digits N] [--quiet] [run options] DATA\n"
+    "                        several models fitted to DATA: deviance, AIC, BIC, tests of nested models\n"
+    "                        (a model is named by its file's name less .model)\n"
     "       millrace version | help\n"
     "\n"
     "model (each option takes the words of the model-file line of the same name):\n"
@@ -815,6 +843,193 @@ static int score(int argc, char **argv)
     return rc;
 }
 
+/* ---- millrace compare -------------------------------------------------- */
+
+typedef struct compare_cli {
+    const char **model;     /* the model files, in order */
+    char **label;           /* each one's name: its file's base name less .model */
+    mr_fitter **fitter;
+    size_t n;
+    const char **drop;      /* names given to --drop-one */
+    size_t ndrop;
+    int *opt;               /* the run's options, replayed on every fitter */
+    const char **arg;
+    size_t nopt;
+    const char *json, *fit_json, *data;
+    const char **inputs;    /* the data file, then the model files: never an output */
+    int digits, quiet;
+    int argc;               /* the whole command line, for each fit's audit trail */
+    char **argv;
+} compare_cli;
+
+static int grow(void *array, size_t n, size_t unit)
+{
+    void *p = realloc(*(void **)array, (n + 1) * unit);
+    if (p == NULL) return -1;
+    *(void **)array = p;
+    return 0;
+}
+
+static char *model_label(const char *path)
+{
+    const char *base = strrchr(path, '/') ? strrchr(path, '/') + 1 : path;
+    size_t n = strlen(base);
+    char *label;
+    if (n > 6 && strcmp(base + n - 6, ".model") == 0) n -= 6;
+    if ((label = malloc(n + 1)) != NULL) memcpy(label, base, n), label[n] = '\0';
+    return label;
+}
+
+static int compare_option(compare_cli *o, int opt, const char *arg)
+{
+    long long v;
+    switch (opt) {
+    case 'm':
+        if (grow(&o->model, o->n, sizeof *o->model) != 0) return fail(MR_ERR_NO_MEMORY, "out of memory");
+        o->model[o->n++] = arg;
+        return 0;
+    case OPT_DROP_ONE:
+        if (grow(&o->drop, o->ndrop, sizeof *o->drop) != 0) return fail(MR_ERR_NO_MEMORY, "out of memory");
+        o->drop[o->ndrop++] = arg;
+        return 0;
+    case OPT_JSON: o->json = arg; return 0;
+    case OPT_FIT_JSON: o->fit_json = arg; return 0;
+    case OPT_QUIET: o->quiet = 1; return 0;
+    case OPT_DIGITS:
+        if (parse_count(arg, &v) != 0 || v < 1 || v > 17) return usage_error("--digits takes 1 to 17");
+        o->digits = (int)v;
+        return 0;
+    case OPT_HELP: fputs(usage_text, stdout); return -2;
+    default:
+        if (grow(&o->opt, o->nopt, sizeof *o->opt) != 0 || grow(&o->arg, o->nopt, sizeof *o->arg) != 0)
+            return fail(MR_ERR_NO_MEMORY, "out of memory");
+        o->opt[o->nopt] = opt;
+        o->arg[o->nopt++] = arg;
+        return 0;
+    }
+}
+
+/* Model i's fitter: its file, then the run's options. */
+static int compare_fitter(compare_cli *o, size_t i, mr_comparison *cmp)
+{
+    cli c;
+    size_t k;
+    int rc = 0;
+    memset(&c, 0, sizeof c);
+    if ((o->fitter[i] = c.fitter = mr_fitter_new()) == NULL || (o->label[i] = model_label(o->model[i])) == NULL)
+        return fail(MR_ERR_NO_MEMORY, "out of memory");
+    c.model_file = o->model[i];
+    if ((rc = apply_model(&c)) != 0) return rc;
+    for (k = 0; k < o->nopt && rc == 0; k++) rc = handle_option(&c, o->opt[k], o->arg[k]) == -1 ? 0 : MR_ERR_USAGE;
+    if (rc == 0 && mr_fitter_set_command_line(c.fitter, (size_t)o->argc, (const char *const *)o->argv) != MR_OK)
+        rc = fail(MR_ERR_NO_MEMORY, "out of memory");
+    if (rc == 0 && mr_comparison_add(cmp, c.fitter, o->label[i]) != MR_OK)
+        rc = usage_error(mr_comparison_errmsg(cmp));
+    return rc;
+}
+
+static int compare_outputs(const compare_cli *o, const mr_comparison *cmp)
+{
+    char msg[1024], *path;
+    size_t i;
+    mr_status st;
+    int rc = print_text(mr_comparison_report(cmp, o->digits));
+    if (rc == 0 && o->json && (st = mr_comparison_write_json(cmp, o->json, o->inputs, o->n + 1, msg, sizeof msg)) != MR_OK)
+        rc = fail(st, msg);
+    for (i = 0; rc == 0 && o->fit_json && i < o->n; i++) {
+        size_t len = strlen(o->fit_json) + strlen(o->label[i]) + 6;
+        if ((path = malloc(len)) == NULL) return fail(MR_ERR_NO_MEMORY, "out of memory");
+        snprintf(path, len, "%s%s.json", o->fit_json, o->label[i]);
+        if ((st = mr_fit_write_json(mr_comparison_fit(cmp, i), path, msg, sizeof msg)) != MR_OK) rc = fail(st, msg);
+        free(path);
+    }
+    return rc;
+}
+
+/* Each model's fit JSON, checked before the run as the comparison's is. */
+static int check_fit_json(const compare_cli *o)
+{
+    char msg[1024], *path;
+    size_t i;
+    mr_status st = MR_OK;
+    for (i = 0; o->fit_json && st == MR_OK && i < o->n; i++) {
+        size_t len = strlen(o->fit_json) + strlen(o->label[i]) + 6;
+        if ((path = malloc(len)) == NULL) return fail(MR_ERR_NO_MEMORY, "out of memory");
+        snprintf(path, len, "%s%s.json", o->fit_json, o->label[i]);
+        st = mr_output_check(path, o->inputs, o->n + 1, msg, sizeof msg);
+        free(path);
+    }
+    return st == MR_OK ? 0 : fail(st, msg);
+}
+
+static int compare_run(compare_cli *o, mr_comparison *cmp)
+{
+    char msg[1024];
+    size_t i, j;
+    int rc = 0, unconverged = 0;
+    mr_status st;
+    o->fitter = calloc(o->n, sizeof *o->fitter);
+    o->label = calloc(o->n, sizeof *o->label);
+    if (o->fitter == NULL || o->label == NULL) return fail(MR_ERR_NO_MEMORY, "out of memory");
+    for (i = 0; i < o->n && rc == 0; i++) rc = compare_fitter(o, i, cmp);
+    for (j = 0; j < o->ndrop && rc == 0; j++) {
+        for (i = 0; i < o->n && strcmp(o->label[i], o->drop[j]) != 0; i++) continue;
+        if (i == o->n) return usage_error("--drop-one names no model given with -m (a model is named by its file's "
+                                          "name less .model)");
+        mr_comparison_drop_one(cmp, i);
+    }
+    if (rc != 0) return rc;
+    if ((o->inputs = calloc(o->n + 1, sizeof *o->inputs)) == NULL) return fail(MR_ERR_NO_MEMORY, "out of memory");
+    o->inputs[0] = o->data;
+    for (i = 0; i < o->n; i++) o->inputs[i + 1] = o->model[i];
+    if (o->json && (st = mr_output_check(o->json, o->inputs, o->n + 1, msg, sizeof msg)) != MR_OK) return fail(st, msg);
+    if ((rc = check_fit_json(o)) != 0) return rc;
+    if ((st = mr_comparison_run(cmp, o->data)) != MR_OK) return fail(st, mr_comparison_errmsg(cmp));
+    rc = compare_outputs(o, cmp);
+    /* as fit: everything written, and 7 when a model did not converge */
+    for (i = 0; rc == 0 && i < o->n; i++)
+        if (mr_fit_status(mr_comparison_fit(cmp, i)) != MR_OK) {
+            fprintf(stderr, "millrace: model %s did not converge (see the table)\n", o->label[i]);
+            unconverged = 1;
+        }
+    return rc == 0 && unconverged ? (int)MR_ERR_NOT_CONVERGED : rc;
+}
+
+/* Several models fitted to one file and compared (README, "Comparing
+ * models"). */
+static int compare(int argc, char **argv)
+{
+    compare_cli o;
+    mr_comparison *cmp = NULL;
+    int opt, rc = 0;
+    size_t i;
+    memset(&o, 0, sizeof o);
+    o.argc = argc + 1;
+    o.argv = argv - 1;
+    optind = 1;
+    while (rc == 0 && (opt = getopt_long(argc, argv, "m:", compare_options, NULL)) != -1)
+        rc = opt == '?' ? usage_error("bad option (see 'millrace help' for compare's)") : compare_option(&o, opt, optarg);
+    if (rc == -2) rc = 0;
+    else if (rc == 0 && optind != argc - 1) rc = usage_error("compare takes exactly one data file");
+    else if (rc == 0 && o.n < 1) rc = usage_error("compare needs a model file (-m MODEL) for each model");
+    else if (rc == 0 && (cmp = mr_comparison_new()) == NULL) rc = fail(MR_ERR_NO_MEMORY, "out of memory");
+    else if (rc == 0) {
+        o.data = argv[optind];
+        rc = compare_run(&o, cmp);
+    }
+    mr_comparison_free(cmp);
+    for (i = 0; o.fitter && i < o.n; i++) mr_fitter_free(o.fitter[i]);
+    for (i = 0; o.label && i < o.n; i++) free(o.label[i]);
+    free(o.fitter);
+    free(o.label);
+    free(o.model);
+    free(o.drop);
+    free(o.opt);
+    free(o.arg);
+    free(o.inputs);
+    return rc;
+}
+
 static int dispatch(int argc, char **argv)
 {
     cli c;
@@ -832,6 +1047,7 @@ static int dispatch(int argc, char **argv)
     if (strcmp(argv[1], "drift") == 0) return run_drift(argc - 1, argv + 1);
     if (strcmp(argv[1], "report") == 0) return report_page(argc - 1, argv + 1);
     if (strcmp(argv[1], "score") == 0) return score(argc - 1, argv + 1);
+    if (strcmp(argv[1], "compare") == 0) return compare(argc - 1, argv + 1);
     if (strcmp(argv[1], "fit") != 0) return usage_error("unknown command (try 'millrace fit')");
     memset(&c, 0, sizeof c);
     c.fitter = mr_fitter_new();

@@ -141,7 +141,8 @@ mr_status mr__checkpoint_write(mr__run *r, const mr__irls *s, mr__error *err)
     mr__bytebuf b;
     char *key;
     mr_status st;
-    if (r->f->checkpoint == NULL) return MR_OK;
+    /* only a run that took the lock writes (mr__fit_file; not a comparison's models) */
+    if (r->f->checkpoint == NULL || r->checkpoint_lock == NULL) return MR_OK;
     memset(&b, 0, sizeof b);
     if ((key = model_key(r)) == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     st = encode(r, s, key, &b, err);

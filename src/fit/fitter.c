@@ -166,7 +166,7 @@ const char *mr_fitter_checkpoint_note(const mr_fitter *f) { return f->checkpoint
 
 /* The audit trail: who asked (the command line), on which machine, from
  * when to when (wall clock, UTC). */
-static mr_status record_run(const mr_fitter *f, mr_fit *fit, int64_t started_ns, mr__error *err)
+mr_status mr__fitter_record_run(const mr_fitter *f, mr_fit *fit, int64_t started_ns, mr__error *err)
 {
     char started[MR__UTC_TEXT_CAP], ended[MR__UTC_TEXT_CAP], host[256];
     mr__utc_text(started_ns, started, sizeof started);
@@ -195,7 +195,7 @@ mr_status mr_fitter_run(mr_fitter *f, const char *path, mr_fit **out)
     if (strcmp(path, "-") == 0 && fcntl(STDIN_FILENO, F_GETFD) < 0)
         return mr__fail(&f->err, MR_ERR_IO, "<stdin>: standard input is closed, so there is nothing to read");
     st = mr__fit_file(f, path, out);
-    if (st == MR_OK && (st = record_run(f, *out, started, &f->err)) != MR_OK) {
+    if (st == MR_OK && (st = mr__fitter_record_run(f, *out, started, &f->err)) != MR_OK) {
         mr_fit_free(*out);
         *out = NULL;
     }

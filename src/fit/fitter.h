@@ -26,6 +26,10 @@ struct mr_fitter {
     int checkpoint_keep;     /* tests only: the checkpoint outlives a fit that succeeded */
 };
 
+/* The fit's audit trail (fitter.c): the command line, the host, the run's
+ * start (started_ns, wall clock) and end.  MR_OK or MR_ERR_NO_MEMORY. */
+mr_status mr__fitter_record_run(const mr_fitter *f, mr_fit *fit, int64_t started_ns, mr__error *err);
+
 /* The fit itself (run.c). */
 mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out);
 

@@ -115,19 +115,22 @@ static mr_status check_same_input(mr__run *r, const mr__pass_result *res, mr__er
     return MR_OK;
 }
 
-static mr_status scan_pass(mr__run *r, mr__error *err)
+mr_status mr__run_scan_cfg(mr__run *r, mr__pass_cfg *c, int spool, mr__error *err)
 {
-    mr__pass_cfg c = pass_config(r, MR__PASS_SCAN);
-    mr_status st;
-    if (mr__read_only_once(r->path)) {
+    *c = pass_config(r, MR__PASS_SCAN);
+    if (spool && mr__read_only_once(r->path)) {
         MR__TRY(mr__open_spool(r, err));
-        c.tee_fd = r->spool_fd;
+        c->tee_fd = r->spool_fd;
     }
     if (r->use_store) {
-        c.store = &r->store;
-        c.store_fill = 1;
+        c->store = &r->store;
+        c->store_fill = 1;
     }
-    st = mr__pass_run(&c, &r->first, err);
+    return MR_OK;
+}
+
+mr_status mr__run_scan_done(mr__run *r, mr_status st, mr__error *err)
+{
     if (r->spool_fd >= 0) r->read_path = r->spool;
     if (st != MR_OK) return st;
     r->size = r->first.size;
@@ -141,6 +144,13 @@ static mr_status scan_pass(mr__run *r, mr__error *err)
         r->mtime_ns = (int64_t)sb.st_mtim.tv_sec * 1000000000 + sb.st_mtim.tv_nsec;
     }
     return note_pass(r, &r->first, err);
+}
+
+static mr_status scan_pass(mr__run *r, mr__error *err)
+{
+    mr__pass_cfg c;
+    MR__TRY(mr__run_scan_cfg(r, &c, 1, err));
+    return mr__run_scan_done(r, mr__pass_run(&c, &r->first, err), err);
 }
 
 /* ---- IRLS -------------------------------------------------------------- */
@@ -365,9 +375,10 @@ static mr_status fit_data(mr__run *r, mr__irls *resume, mr__error *err)
 
 /* ---- the run ------------------------------------------------------------ */
 
-static void release_run(mr__run *r)
+void mr__run_release(mr__run *r)
 {
     size_t f;
+    mr__irls_release(&r->resume);
     mr__pass_result_release(&r->first, r->bind.nfac);
     mr__pass_result_release(&r->last, 0);
     mr__design_release(&r->design);
@@ -411,57 +422,67 @@ static void restore_first(mr__run *r)
     r->first.store_incomplete = 1;
 }
 
+mr_status mr__run_begin(mr__run *r, mr_fitter *f, const char *path)
+{
+    mr_status st;
+    memset(r, 0, sizeof *r);
+    mr__store_init_memory(&r->store);
+    mr__store_init_memory(&r->patterns);
+    atomic_init(&r->collapse_abandoned, 0);
+    r->f = f;
+    r->path = path;
+    r->read_path = path;
+    r->spool_fd = -1;
+    r->t0 = mr__seconds_now();
+    mr__utf8_mend_cut(r->display, sizeof r->display,
+                      snprintf(r->display, sizeof r->display, "%s", strcmp(path, "-") == 0 ? "<stdin>" : path));
+    choose_threads(r);
+    r->family = mr__spec_family(&f->spec);
+    r->dcfg.collapse = mr__collapse_mode(r);
+    r->dcfg.collapse_abandoned = &r->collapse_abandoned;
+    st = mr__spec_validate(&f->spec, &f->err);
+    if (st == MR_OK && f->start) st = mr__start_check(f->start, &f->spec, &f->err);
+    if (st == MR_OK) mr__choose_store(r);
+    return st;
+}
+
+mr_status mr__run_rest(mr__run *r, mr_fit **out)
+{
+    mr_fitter *f = r->f;
+    mr__error *err = &f->err;
+    mr_status st = mr__settle_scan(r, err);
+    if (st == MR_OK) st = allocate_coefficients(r, err);
+    if (st == MR_OK && r->first.collapsed) st = mr__build_patterns(r, err);
+    if (st == MR_OK) st = mr__settle_store(r, err);
+    if (st == MR_OK && f->start) st = mr__start_map(f->start, &r->design, r->beta_warm, &r->start_carried, err);
+    r->started = st == MR_OK && f->start != NULL;
+    /* a previous fit's point is nearer the maximum than a sample's: the
+     * warm start then only gives its sample back */
+    if (st == MR_OK && !r->have_resume) warm_start(r);
+    if (st == MR_OK) st = fit_data(r, r->have_resume ? &r->resume : NULL, err);
+    if (st == MR_OK) st = mr__build_fit(r, out, err);
+    return st;
+}
+
 mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
 {
     mr__run r;
-    mr__irls resume;
-    int have_resume = 0;
-    mr__error *err = &f->err;
     mr_status st;
     int blas_threads = 0; /* the count to set back; 0: never changed */
-    memset(&r, 0, sizeof r);
-    memset(&resume, 0, sizeof resume);
-    mr__store_init_memory(&r.store);
-    mr__store_init_memory(&r.patterns);
-    atomic_init(&r.collapse_abandoned, 0);
-    r.f = f;
-    r.path = path;
-    r.read_path = path;
-    r.spool_fd = -1;
-    r.t0 = mr__seconds_now();
-    mr__utf8_mend_cut(r.display, sizeof r.display,
-                      snprintf(r.display, sizeof r.display, "%s", strcmp(path, "-") == 0 ? "<stdin>" : path));
-    choose_threads(&r);
-    r.family = mr__spec_family(&f->spec);
-    r.dcfg.collapse = mr__collapse_mode(&r);
-    r.dcfg.collapse_abandoned = &r.collapse_abandoned;
-    st = mr__spec_validate(&f->spec, err);
-    if (st == MR_OK && f->start) st = mr__start_check(f->start, &f->spec, err);
-    if (st == MR_OK) st = mr__checkpoint_begin(&r, &resume, &have_resume, err);
+    st = mr__run_begin(&r, f, path);
+    if (st == MR_OK) st = mr__checkpoint_begin(&r, &r.resume, &r.have_resume, &f->err);
     if (st == MR_OK) {
-        mr__choose_store(&r);
         /* Our workers use every core; BLAS threads inside them would only
          * oversubscribe.  The caller's count comes back at the end, as
          * millrace.h promises. */
         blas_threads = openblas_get_num_threads();
         openblas_set_num_threads(1);
-        if (have_resume) restore_first(&r);
-        else st = scan_pass(&r, err);
+        if (r.have_resume) restore_first(&r);
+        else st = scan_pass(&r, &f->err);
     }
-    if (st == MR_OK) st = mr__settle_scan(&r, err);
-    if (st == MR_OK) st = allocate_coefficients(&r, err);
-    if (st == MR_OK && r.first.collapsed) st = mr__build_patterns(&r, err);
-    if (st == MR_OK) st = mr__settle_store(&r, err);
-    if (st == MR_OK && f->start) st = mr__start_map(f->start, &r.design, r.beta_warm, &r.start_carried, err);
-    r.started = st == MR_OK && f->start != NULL;
-    /* a previous fit's point is nearer the maximum than a sample's: the
-     * warm start then only gives its sample back */
-    if (st == MR_OK && !have_resume) warm_start(&r);
-    if (st == MR_OK) st = fit_data(&r, have_resume ? &resume : NULL, err);
-    if (st == MR_OK) st = mr__build_fit(&r, out, err);
-    mr__irls_release(&resume);
+    if (st == MR_OK) st = mr__run_rest(&r, out);
     mr__checkpoint_end(&r, st == MR_OK);
-    release_run(&r);
+    mr__run_release(&r);
     if (blas_threads > 0) openblas_set_num_threads(blas_threads);
     return st;
 }

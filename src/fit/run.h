@@ -68,9 +68,24 @@ typedef struct mr__run {
      * after (0: none), checkpoints written */
     struct mr_output_lock *checkpoint_lock;
     int resumed_from, checkpoint_writes;
+    mr__irls resume; /* with have_resume: the state the checkpoint left */
+    int have_resume;
 } mr__run;
 
 mr_status mr__build_fit(mr__run *r, mr_fit **out, mr__error *err);
+
+/* A fit in steps (run.c), for runs that share their first pass
+ * (multi.c): begin (the run set up, its model checked; r->f->err says
+ * why not), the first pass's configuration and what follows that pass,
+ * the rest (IRLS to the published fit), release (always, after begin). */
+mr_status mr__run_begin(mr__run *r, mr_fitter *f, const char *path);
+/* spool 0: input read only once is not copied for this run (another run
+ * of the same pass copies it, and this run's read_path is set to the copy
+ * before mr__run_scan_done). */
+mr_status mr__run_scan_cfg(mr__run *r, mr__pass_cfg *c, int spool, mr__error *err);
+mr_status mr__run_scan_done(mr__run *r, mr_status st, mr__error *err);
+mr_status mr__run_rest(mr__run *r, mr_fit **out);
+void mr__run_release(mr__run *r);
 
 /* header.c: binds the columns on the first pass, checks the row after. */
 mr_status mr__run_on_header(void *user, const char *line, size_t len, mr__error *err);

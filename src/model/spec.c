@@ -466,3 +466,40 @@ mr_status mr__spec_validate(const mr__spec *s, mr__error *err)
         return mr__fail(err, MR_ERR_USAGE, "model: no intercept and no covariates: nothing to fit");
     return validate_interactions(s, err);
 }
+
+/* A copy made by replaying the lines: the same directives, in the same
+ * order, so the copy is the model as given (lines included). */
+mr_status mr__spec_copy(mr__spec *dst, const mr__spec *src, mr__error *err)
+{
+    size_t i;
+    mr__spec_init(dst);
+    for (i = 0; i < src->nlines; i++) {
+        mr_status st = mr__spec_line(dst, src->line[i], src->line_origin[i], err);
+        if (st != MR_OK) {
+            mr__spec_release(dst);
+            return st;
+        }
+    }
+    return MR_OK;
+}
+
+/* Term t as the design numbers them: covariates in order, then
+ * interactions.  The lines stay as given: the copy no longer rebuilds
+ * from them, which is why only a comparison's own fits use this. */
+int mr__spec_drop_term(mr__spec *s, size_t t)
+{
+    int k;
+    if (t < s->ncov) {
+        release_covariate(&s->cov[t]);
+        memmove(&s->cov[t], &s->cov[t + 1], (s->ncov - t - 1) * sizeof *s->cov);
+        s->ncov--;
+        return 1;
+    }
+    t -= s->ncov;
+    if (t >= s->ninter) return 0;
+    for (k = 0; k < s->inter[t].n; k++) mr__free(s->inter[t].name[k]);
+    mr__free(s->inter[t].origin);
+    memmove(&s->inter[t], &s->inter[t + 1], (s->ninter - t - 1) * sizeof *s->inter);
+    s->ninter--;
+    return 1;
+}

@@ -80,4 +80,12 @@ mr__family mr__spec_family(const mr__spec *s);
 
 const mr__covariate *mr__spec_find(const mr__spec *s, const char *name);
 
+/* A copy of src made by replaying its lines (dst initialised here; on
+ * failure released).  MR_OK, MR_ERR_USAGE, MR_ERR_NO_MEMORY. */
+mr_status mr__spec_copy(mr__spec *dst, const mr__spec *src, mr__error *err);
+/* Removes term t (covariates in order, then interactions; the order of
+ * the design's terms); 0 when there is no term t.  The model's lines are
+ * left as they were given. */
+int mr__spec_drop_term(mr__spec *s, size_t t);
+
 #endif
