@@ -56,8 +56,8 @@ DEBIAN_PACKAGES := build-essential pkg-config libzstd-dev zlib1g-dev libopenblas
 # the HTML page in a browser (tests/cli/html_browser.sh), clang and its
 # runtime build the libFuzzer targets (make fuzz-check).
 TEST_PACKAGES := zstd gzip check libsubunit-dev python3 python3-numpy python3-scipy \
-                 python3-statsmodels r-base-core r-cran-mass valgrind time groff-base gfortran chromium \
-                 clang libclang-rt-dev
+                 python3-statsmodels r-base-core r-cran-mass r-cran-sandwich r-cran-statmod valgrind time groff-base \
+                 gfortran chromium clang libclang-rt-dev python3-html5lib
 
 ifeq ($(V),1)
 Q :=
@@ -186,6 +186,7 @@ asan-check: asan $(B)/synth
 	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/outputs.sh
 	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/drift.sh
 	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/checkpoint.sh
+	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/robust.sh
 
 # The threaded paths under ThreadSanitizer (OpenBLAS is not instrumented:
 # its internal races are not ours and are suppressed).

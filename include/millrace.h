@@ -90,10 +90,16 @@ typedef enum mr_status {
                                 which stops a fit this way on SIGINT,
                                 SIGTERM, SIGHUP and exits 128 + the
                                 signal's number)                            */
-    MR_DRIFT_FLAGGED = 12    /* not an error: a comparison of two fits
+    MR_DRIFT_FLAGGED = 12,   /* not an error: a comparison of two fits
                                 (mr_drift_compare) flagged a change; the
                                 command's drift exits with it so that a
                                 scheduler can alert                          */
+    MR_ERR_CLUSTERS = 13     /* cluster-robust standard errors need more
+                                memory than allowed (mr_fitter_set_cluster):
+                                the file is not grouped by the cluster
+                                column and its clusters' sums do not fit,
+                                or too many clusters to check; the message
+                                says how to go on                            */
 } mr_status;
 
 /* A static, human-readable name for a status ("bad input format", ...). */
@@ -211,10 +217,15 @@ typedef enum mr_int_option {
 
 /* Real-valued options. */
 typedef enum mr_real_option {
-    MR_OPT_TOLERANCE = 0,    /* converged when |D_k - D_k-1| / (|D_k| + 0.1)
-                                is below this, or when the next Newton step
-                                is predicted to change the deviance by less
-                                than a hundredth of it (default 1e-10)     */
+    MR_OPT_TOLERANCE = 0,    /* converged when the IRLS step d of a pass is
+                                this small in standard errors: sqrt(d' X'WX
+                                d / phi) <= it, or under a canonical link
+                                10 q^2 <= it (q: that step over the one
+                                before, itself <= 1), or once steps stop
+                                shrinking (rounding) <= 1000 times it;
+                                the step is taken
+                                without another pass (default 1e-9;
+                                README, "Stopping rule")                    */
     MR_OPT_LEVEL = 1         /* confidence level of intervals (default 0.95) */
 } mr_real_option;
 
@@ -291,6 +302,50 @@ MR_API mr_status mr_fitter_set_command_line(mr_fitter *f, size_t argc, const cha
  * Returns MR_OK or MR_ERR_NO_MEMORY. */
 MR_API mr_status mr_fitter_set_start(mr_fitter *f, const mr_fit *previous, const char *label);
 
+/* Robust (sandwich) standard errors.  The model-based standard errors
+ * assume the family's variance is right and the rows independent; robust
+ * ones stay valid when the variance is not (overdispersed counts) and,
+ * with a cluster column, when rows of one cluster (one person's repeated
+ * records, one practice's patients) are correlated.  They need one more
+ * pass over the data at the final coefficients.  The covariance is
+ * V = B M B: B the inverse of the final X'WX, M the sum over rows of the
+ * outer products of the rows' scores u x (u = weight (y - mu) mu' / V(mu)),
+ * or by clusters of the outer products of the clusters' score sums; the
+ * dispersion cancels.  Scaled as R's sandwich package scales them:
+ *   MR_ROBUST_HC0                  1             (vcovHC type "HC0")
+ *   MR_ROBUST_HC1                  n / (n - k)   (vcovHC type "HC1")
+ *   a cluster column, HC0          G / (G - 1)   (vcovCL type "HC0", its
+ *                                  default for a glm, cadjust = TRUE)
+ *   a cluster column, HC1          G / (G - 1) x (n - 1) / (n - k)
+ *                                  (vcovCL type "HC1")
+ * n the rows with a positive weight, k the number of estimated
+ * coefficients, G the clusters.  When asked, the robust standard errors
+ * drive the fit's Wald statistics, p-values, intervals and term tests
+ * (always against the normal and chi-square: they are asymptotic), while
+ * mr_fit_std_error and mr_fit_covariance stay model-based.  Few clusters
+ * (under about 40 or 50, common practice) make cluster-robust standard
+ * errors too small.
+ *
+ * mr_fitter_set_robust: the type, or MR_ROBUST_NONE (the default) for
+ * none.  MR_OK or MR_ERR_USAGE for an unknown type. */
+typedef enum mr_robust { MR_ROBUST_NONE = 0, MR_ROBUST_HC0 = 1, MR_ROBUST_HC1 = 2 } mr_robust;
+MR_API mr_status mr_fitter_set_robust(mr_fitter *f, mr_robust type);
+
+/* Cluster-robust standard errors by the cells of `column` (copied; NULL:
+ * none, the default): two rows are in one cluster when the cells' text is
+ * the same (told apart by a 128-bit hash of it).  Without a type set, the
+ * type is MR_ROBUST_HC0, as in vcovCL for a glm.  A row with the cell missing is left out of the
+ * fit like any incomplete row.  The column may be one the model uses.
+ *
+ * A file grouped by the column (each cluster's rows together, in any
+ * order of clusters) is streamed: memory holds one 8-byte word per
+ * cluster, so 10^7 clusters take about 130 MiB.  Otherwise every
+ * cluster's score sums are held, 16 + 8 k bytes each; `memory_limit`
+ * bytes (0: 1 GiB) bound either, and beyond it the run fails with
+ * MR_ERR_CLUSTERS and a message saying to group (sort) the file by the
+ * column.  MR_OK, MR_ERR_USAGE (an empty name) or MR_ERR_NO_MEMORY. */
+MR_API mr_status mr_fitter_set_cluster(mr_fitter *f, const char *column, size_t memory_limit);
+
 /* Checkpoints (`path` copied; NULL: none, the default).  After each pass
  * over the data - the first, once its warm start is taken, then each IRLS
  * pass - the run writes to `path`, atomically (as mr_fit_write_json writes)
@@ -298,10 +353,11 @@ MR_API mr_status mr_fitter_set_start(mr_fitter *f, const mr_fit *previous, const
  * needs to go on: the first pass's result, the IRLS state, the pass count,
  * the input's name, size and time, the model lines and the options that
  * change results (tolerance, pass limit, level, bad-row rule, delimiter,
- * missing tokens, collapsing, the start's label), under a checksum.  A
- * run given a path where such a file lies takes it up when it is whole
- * and made for this input, model and options, and goes on after its last
- * pass: a fit killed (kill -9, a crash, a reboot) and run again gives the
+ * missing tokens, collapsing, the start's label, the robust type and the
+ * cluster column; not the clusters' memory limit, which changes no number),
+ * under a checksum.  A run given a path where such a file lies takes it
+ * up when it is whole and made for this input, model and options, and
+ * goes on after its last pass: a fit killed (kill -9, a crash, a reboot) and run again gives the
  * fit an uninterrupted run gives, to the bit (timings, threads and the
  * audit trail aside).  Else - cut short, damaged, of another input,
  * model or options - it is not used and the fit starts afresh;
@@ -371,6 +427,21 @@ MR_API double mr_fit_p_value(const mr_fit *fit, size_t j);
 MR_API double mr_fit_conf_low(const mr_fit *fit, size_t j);
 MR_API double mr_fit_conf_high(const mr_fit *fit, size_t j);
 
+/* Robust standard errors (mr_fitter_set_robust, mr_fitter_set_cluster):
+ * the type made (MR_ROBUST_NONE when none was asked); the cluster column
+ * (owned by the fit; NULL when by rows or none) and the number of its
+ * clusters (0 when none); the small-sample factor applied (NaN when
+ * none); coefficient j's robust standard error and entry (i, j) of the
+ * robust covariance (NaN when none, when aliased or out of range).  When
+ * made, they are what mr_fit_p_value, mr_fit_conf_low/high and
+ * mr_fit_term_test use. */
+MR_API mr_robust mr_fit_robust(const mr_fit *fit);
+MR_API const char *mr_fit_cluster(const mr_fit *fit);
+MR_API uint64_t mr_fit_clusters(const mr_fit *fit);
+MR_API double mr_fit_robust_adjustment(const mr_fit *fit);
+MR_API double mr_fit_robust_std_error(const mr_fit *fit, size_t j);
+MR_API double mr_fit_robust_covariance(const mr_fit *fit, size_t i, size_t j);
+
 /* Terms: the covariates and interactions of the model, in the order
  * declared (covariates, then interactions); the intercept is not a term.
  * mr_fit_term_name gives "age_band" or "age_band & sex" (owned by the fit;
@@ -420,7 +491,10 @@ typedef enum mr_stat {
     MR_STAT_ROWS_USED = 10,
     MR_STAT_ITERATIONS = 11,
     MR_STAT_PASSES = 12,
-    MR_STAT_RELATIVE_CHANGE = 13,
+    MR_STAT_RELATIVE_CHANGE = 13, /* the last step in standard errors (README,
+                                     "Stopping rule"); after a coefficient ran
+                                     off to infinity, the relative deviance
+                                     change */
     MR_STAT_SECONDS = 14,
     MR_STAT_RANK = 15,
     MR_STAT_LEVEL = 16,      /* confidence level of the intervals            */
@@ -480,8 +554,12 @@ MR_API mr_status mr_fit_read_json(const char *path, mr_fit **out, char *msg, siz
  * coefficients) by term with reference levels marked, and an effect plot
  * for each factor (at most 100 levels): the fitted rate, probability or
  * mean at each level, the other factors at their reference levels and
- * numeric covariates at 0 or at the value a setting gives, with intervals
- * from the covariance (delta method on the link scale, then transformed).
+ * numeric covariates at their means (0 for a fit saved without them) or
+ * at the value a setting gives, with intervals from the covariance (delta
+ * method on the link scale, then transformed); an effect curve along each
+ * numeric and spline column's range with its interval band; a fit of more
+ * than 60 coefficients gets a forest plot of the 40 of largest |z|; a
+ * calibration plot when the fit's file holds calibration groups.
  * With two fits or more: a table of deviance, df, AIC and BIC, and each
  * later fit's coefficients against the first's.  The page also says what
  * to check before using the results.  The same fits and settings give the
@@ -494,12 +572,18 @@ MR_API mr_status mr_fit_read_json(const char *path, mr_fit **out, char *msg, siz
  * 0), each one of
  *   "digits N"          significant digits of the numbers, 1..17 (default 4)
  *   "at COLUMN=VALUE"   the value of a numeric covariate in the effect
- *                       plots (default 0: a saved fit does not record
- *                       the values it centred its covariates on)
+ *                       plots and curves (default its mean, which the fit
+ *                       records; 0 for a fit saved before it did)
+ *   "groups FILE"       a scoring run's group table (the JSON of
+ *                       mr_scorer_write_groups): a funnel plot of O/E
+ *                       against the expected count, exact Poisson control
+ *                       limits at 95% and 99.8%, the groups outside listed;
+ *                       the page never replaces FILE
  * Text from the data is HTML-escaped; bytes that are not well-formed UTF-8
  * and control characters show as \xHH, a backslash as two (the JSON's
  * escape, made visible).  Returns MR_OK, or MR_ERR_USAGE (no fit, a bad
- * setting, `path` one of the inputs), MR_ERR_IO or MR_ERR_NO_MEMORY with a
+ * setting, `path` one of the inputs), MR_ERR_IO (FILE cannot be read),
+ * MR_ERR_FORMAT (FILE is not a group table) or MR_ERR_NO_MEMORY with a
  * message in `msg` (capacity `msgcap`, may be 0). */
 MR_API mr_status mr_fits_write_html(const mr_fit *const *fits, const char *const *sources, size_t nfits,
                                     const char *const *settings, size_t nsettings, const char *path, char *msg,
@@ -888,6 +972,15 @@ MR_API mr_status mr_comparison_write_json(const mr_comparison *c, const char *pa
 
 /* Frees memory the library returned (mr_fit_report). NULL is fine. */
 MR_API void mr_free(void *p);
+
+/* 1 when coefficient j is not estimable in practice: the outcomes of a
+ * factor level or of a cell of two interacting factors are all 0 (or, for
+ * the binomial, all at the maximum), found from the first pass's counts,
+ * or its standard error grew at each of the last passes (separation by a
+ * covariate); its estimate and standard error are where IRLS stopped on
+ * the way to infinity, and a warning names it and says what to do.
+ * 0 for j out of range. */
+MR_API int mr_fit_coef_not_estimable(const mr_fit *fit, size_t j);
 
 #ifdef __cplusplus
 }

@@ -15,6 +15,7 @@
 #include "millrace.h"
 #include "accum/first_bytes.h"
 #include "common/bytebuf.h"
+#include "fit/fit.h"
 #include "fit/fitter.h"
 #include "check_common.h"
 
@@ -24,7 +25,7 @@ static char data_path[64], ckpt_path[64];
 
 /* Counts that depend on a factor, two more factors and a continuous
  * numeric, over exposure: a poisson fit of several passes. */
-static void write_rows(void)
+static void write_rows_zero(int zero_zone)
 {
     uint64_t rng = 7;
     FILE *f;
@@ -36,15 +37,20 @@ static void write_rows(void)
     fputs("count,group,zone,dose,years\n", f);
     for (i = 0; i < ROWS; i++) {
         double u = (double)(next_random(&rng) >> 11) / 9007199254740992.0;
-        fprintf(f, "%d,%c,z%ld,%.4f,%.2f\n", (int)(u * 6) % 5, "abcde"[i % 5], i % 11, u * 3 + (double)(i % 7),
+        int count = zero_zone && i % 11 == 10 ? 0 : (int)(u * 6) % 5;
+        fprintf(f, "%d,%c,z%ld,%.4f,%.2f\n", count, "abcde"[i % 5], i % 11, u * 3 + (double)(i % 7),
                 1 + (double)(i % 9) / 4);
     }
     ck_assert_int_eq(fclose(f), 0);
 }
 
+static void write_rows(void) { write_rows_zero(0); }
+
 typedef struct run_opts {
     int threads, collapse, stop_at_pass, keep;
     double tolerance;
+    mr_robust robust;
+    const char *cluster;
 } run_opts;
 
 static int stop_at(const mr_progress *p, void *user)
@@ -65,6 +71,8 @@ static mr_fitter *new_fitter(const run_opts *o, const char *checkpoint)
     mr_fitter_set_int(f, MR_OPT_NO_COLLAPSE, !o->collapse);
     if (o->tolerance > 0) mr_fitter_set_real(f, MR_OPT_TOLERANCE, o->tolerance);
     if (checkpoint) ck_assert_int_eq(mr_fitter_set_checkpoint(f, checkpoint), MR_OK);
+    ck_assert_int_eq(mr_fitter_set_robust(f, o->robust), MR_OK);
+    if (o->cluster) ck_assert_int_eq(mr_fitter_set_cluster(f, o->cluster, 0), MR_OK);
     mr_fitter_set_progress_stop(f, stop_at, (void *)o);
     f->checkpoint_keep = o->keep;
     return f;
@@ -162,7 +170,8 @@ static void assert_round_trip(const unsigned char *part, uint64_t n, mr__pass_re
  * the checkpoint's first-pass result reads back to the same bytes. */
 START_TEST(stopped_fit_goes_on_to_the_same_bits)
 {
-    run_opts plain = {2, 0, 0, 0, 0}, stopping = {2, 0, 4, 0, 0}, again = {1, 0, 0, 0, 0};
+    run_opts plain = {2, 0, 0, 0, 0, MR_ROBUST_NONE, NULL}, stopping = {2, 0, 4, 0, 0, MR_ROBUST_NONE, NULL},
+             again = {1, 0, 0, 0, 0, MR_ROBUST_NONE, NULL};
     mr_fit *ref = NULL, *got = NULL;
     mr__pass_result res;
     unsigned char *ck;
@@ -198,6 +207,52 @@ START_TEST(stopped_fit_goes_on_to_the_same_bits)
 }
 END_TEST
 
+/* A zone without events (its coefficient runs off: a warning and the
+ * coefficient marked) and cluster-robust standard errors by zone: stopped
+ * at pass 4 and run again on one thread, the fit has the bits of one that
+ * ran through, its warnings, marks, robust standard errors and numeric
+ * summaries included (the first pass's outcome counts per level and the
+ * numerics' least and greatest values come from the checkpoint). */
+START_TEST(zero_level_and_robust_go_on_to_the_same_bits)
+{
+    run_opts plain = {2, 0, 0, 0, 0, MR_ROBUST_HC1, "zone"}, stopping = plain, again = plain;
+    mr_fit *ref = NULL, *got = NULL;
+    size_t j, zero_warnings = 0;
+    char note[2048];
+    stopping.stop_at_pass = 4;
+    again.threads = 1;
+    write_rows_zero(1);
+    unlink(ckpt_path);
+    ck_assert_int_eq(fit(&plain, NULL, &ref, NULL, 0), MR_OK);
+    ck_assert_int_ge((int)mr_fit_stat(ref, MR_STAT_PASSES), 6);
+    ck_assert_int_eq(fit(&stopping, ckpt_path, &got, NULL, 0), MR_ERR_STOPPED);
+    ck_assert_int_eq(fit(&again, ckpt_path, &got, note, sizeof note), MR_OK);
+    ck_assert_int_eq(mr_fit_resumed_after_pass(got), 3);
+    assert_same_fit(ref, got);
+    ck_assert_int_eq(mr_fit_robust(got), MR_ROBUST_HC1);
+    ck_assert_uint_eq(mr_fit_clusters(got), 11);
+    for (j = 0; j < mr_fit_ncoef(ref); j++) {
+        ck_assert(same_bits(mr_fit_robust_std_error(ref, j), mr_fit_robust_std_error(got, j)));
+        ck_assert_int_eq(mr_fit_coef_not_estimable(ref, j), mr_fit_coef_not_estimable(got, j));
+    }
+    ck_assert_uint_eq(mr_fit_nwarnings(ref), mr_fit_nwarnings(got));
+    for (j = 0; j < mr_fit_nwarnings(ref); j++) {
+        ck_assert_str_eq(mr_fit_warning(ref, j), mr_fit_warning(got, j));
+        zero_warnings += strstr(mr_fit_warning(ref, j), "zone=z10") != NULL;
+    }
+    ck_assert_uint_ge(zero_warnings, 1); /* the zone without events is named */
+    ck_assert_uint_eq(ref->nnumerics, 1);
+    ck_assert_uint_eq(got->nnumerics, 1);
+    ck_assert(same_bits(ref->numeric[0].min, got->numeric[0].min));
+    ck_assert(same_bits(ref->numeric[0].max, got->numeric[0].max));
+    ck_assert(same_bits(ref->numeric[0].mean, got->numeric[0].mean));
+    ck_assert(ref->numeric[0].min < ref->numeric[0].max);
+    mr_fit_free(ref);
+    mr_fit_free(got);
+    unlink(data_path);
+}
+END_TEST
+
 /* A checkpoint changed in any way is not used: the fit starts afresh and
  * still gives the bits of a fit that ran through. */
 static void assert_refused(const unsigned char *p, size_t n, const run_opts *o, const mr_fit *ref, const char *why)
@@ -215,7 +270,8 @@ static void assert_refused(const unsigned char *p, size_t n, const run_opts *o, 
 
 START_TEST(changed_checkpoints_are_not_used)
 {
-    run_opts plain = {2, 0, 0, 0, 0}, stopping = {2, 0, 3, 0, 0}, other = {2, 0, 0, 0, 1e-12};
+    run_opts plain = {2, 0, 0, 0, 0, MR_ROBUST_NONE, NULL}, stopping = {2, 0, 3, 0, 0, MR_ROBUST_NONE, NULL},
+             other = {2, 0, 0, 0, 1e-12, MR_ROBUST_NONE, NULL};
     mr_fit *ref = NULL, *ref_other = NULL, *got = NULL;
     unsigned char *ck;
     size_t len;
@@ -295,7 +351,7 @@ END_TEST
  * asan-check). */
 START_TEST(damaged_first_pass_bytes)
 {
-    run_opts stopping = {2, 0, 3, 0, 0};
+    run_opts stopping = {2, 0, 3, 0, 0, MR_ROBUST_NONE, NULL};
     mr_fit *got = NULL;
     unsigned char *ck, *copy;
     const unsigned char *part;
@@ -336,7 +392,7 @@ END_TEST
 /* Standard input cannot be read again: a checkpoint with it is refused. */
 START_TEST(standard_input_is_refused)
 {
-    run_opts plain = {1, 0, 0, 0, 0};
+    run_opts plain = {1, 0, 0, 0, 0, MR_ROBUST_NONE, NULL};
     mr_fitter *f = new_fitter(&plain, "/tmp/mr_ckpt_stdin.state");
     mr_fit *out = NULL;
     ck_assert_int_eq(mr_fitter_run(f, "-", &out), MR_ERR_USAGE);
@@ -351,6 +407,7 @@ int main(void)
     TCase *tc = tcase_create("checkpoint");
     tcase_set_timeout(tc, 300);
     tcase_add_test(tc, stopped_fit_goes_on_to_the_same_bits);
+    tcase_add_test(tc, zero_level_and_robust_go_on_to_the_same_bits);
     tcase_add_test(tc, changed_checkpoints_are_not_used);
     tcase_add_test(tc, collapsed_patterns_round_trip);
     tcase_add_test(tc, damaged_first_pass_bytes);

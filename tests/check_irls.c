@@ -109,6 +109,43 @@ START_TEST(converges_to_the_group_means)
 }
 END_TEST
 
+/* The default rule: each coefficient within 1e-8 of its standard error of
+ * the maximum, the step that ended the fit at most the tolerance in
+ * standard errors (or, under the Newton rule, its predicted remainder).
+ * Source of truth: the analytic identity above, and the information of a
+ * two-group poisson fit: var(log mean) = 1 / (sum of the group's counts),
+ * so SE(b0) = 1/3 and SE(b1) = sqrt(1/9 + 1/21). */
+static void check_step_rule(int newton)
+{
+    mr__irls s;
+    mr__irls_cfg c;
+    mr__block_sums sums;
+    double beta[P], se0 = 1.0 / 3, se1 = sqrt(1.0 / 9 + 1.0 / 21);
+    int passes = 0;
+    ck_assert_int_eq(mr__sums_init(&sums, P, NULL), MR_OK);
+    memset(&c, 0, sizeof c);
+    c.p = P;
+    c.tolerance = 1e-9;
+    c.newton = newton;
+    c.max_iterations = 50;
+    c.family = MR_POISSON;
+    ck_assert_int_eq(mr__irls_init(&s, &c, NULL), MR_OK);
+    while (!advance(&s, &sums)) ck_assert_int_lt(++passes, 50);
+    ck_assert(s.converged && s.by_step);
+    if (!newton) ck_assert(s.rel_change <= 1e-9);
+    mr__irls_coefficients(&s, beta);
+    ck_assert(fabs(beta[0] - log(3.0)) <= 1e-8 * se0);
+    ck_assert(fabs(beta[1] - log(7.0 / 3.0)) <= 1e-8 * se1);
+    mr__irls_release(&s);
+    mr__sums_release(&sums);
+}
+
+START_TEST(stops_on_the_step_in_standard_errors) { check_step_rule(0); }
+END_TEST
+
+START_TEST(stops_on_the_newton_remainder) { check_step_rule(1); }
+END_TEST
+
 /* A state taken to bytes after each step and read back is the same state,
  * and goes on to the same bits as the one that never left memory. */
 START_TEST(state_round_trips_bit_for_bit)
@@ -157,7 +194,7 @@ START_TEST(wrong_bytes_are_refused)
     buf[15] = 0;
     buf[4] = 9; /* an unknown version */
     ck_assert_int_eq(mr__irls_decode(buf, len, &copy, &err), MR_ERR_IO);
-    buf[4] = 1;
+    buf[4] = MR__IRLS_VERSION;
     ck_assert_int_eq(mr__irls_decode(buf, len, &copy, &err), MR_OK);
     mr__irls_release(&copy);
     free(buf);
@@ -171,6 +208,8 @@ int main(void)
     Suite *s = suite_create("irls");
     TCase *tc = tcase_create("irls");
     tcase_add_test(tc, converges_to_the_group_means);
+    tcase_add_test(tc, stops_on_the_step_in_standard_errors);
+    tcase_add_test(tc, stops_on_the_newton_remainder);
     tcase_add_test(tc, state_round_trips_bit_for_bit);
     tcase_add_test(tc, wrong_bytes_are_refused);
     suite_add_tcase(s, tc);

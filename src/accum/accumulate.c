@@ -344,3 +344,39 @@ void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__wo
     sparse_cross_products(d, ws, n, out);
     if (!pt->null_skip) null_model_rows(pt, blk, ws, out);
 }
+
+/* Robust standard errors: each row's score is u x, with
+ * u = prior (y - mu) (dmu/deta) / V(mu) (the working residual times the
+ * working weight; the dispersion cancels in the sandwich). */
+void mr__block_scores(const mr__irls_point *pt, const mr__block *blk, mr__workspace *ws)
+{
+    const size_t n = blk->n;
+    size_t i;
+    if (n == 0) return;
+    mr__design_fill_split(pt->design, blk->num, blk->lev, MR__BLOCK_ROWS, n, ws->D, ws->scol, ws->sval);
+    linear_predictor(pt, blk, ws, n);
+    pt->family->ops->variance_n(pt->family, ws->mu, n, ws->var);
+    for (i = 0; i < n; i++) {
+        double prior = blk->prior ? blk->prior[i] : 1.0;
+        ws->w[i] = prior * (blk->y[i] - ws->mu[i]) * ws->mu_eta[i] / ws->var[i];
+    }
+}
+
+/* The same sweep as X'WX with u in place of sqrt(w) and 1 in place of z:
+ * sum u^2 x x' (the meat's rows) and sum u x (the score), by the same
+ * kernels, so in the same fixed order. */
+void mr__accumulate_scores(const mr__design *d, const mr__block *blk, mr__workspace *ws, mr__block_sums *out)
+{
+    const size_t n = blk->n;
+    size_t i, j;
+    double *one = ws->D + d->ndense * n;
+    mr__sums_zero(out, d);
+    if (n == 0) return;
+    for (i = 0; i < n; i++) one[i] = 1.0;
+    for (j = 0; j < d->ndense; j++) {
+        double *col = ws->D + j * n;
+        for (i = 0; i < n; i++) col[i] *= ws->w[i];
+    }
+    dense_cross_products(d, ws, n, out);
+    sparse_cross_products(d, ws, n, out);
+}

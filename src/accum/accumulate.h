@@ -64,4 +64,14 @@ void mr__sums_zero_totals(mr__block_sums *s, size_t p);
 void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__workspace *ws,
                           mr__block_sums *out);
 
+/* Robust standard errors.  mr__block_scores fills the workspace for the
+ * block at pt's coefficients: the design's values (ws->D, scol, sval, the
+ * dense columns unscaled) and each row's score factor
+ * u = prior (y - mu) mu_eta / V(mu) in ws->w, so that the row's score is
+ * u x.  mr__accumulate_scores then forms, in out (overwritten), the
+ * block's sum of u^2 x x' (xtwx, packed) and of u x (xtwz); it scales
+ * ws->D's dense columns by u. */
+void mr__block_scores(const mr__irls_point *pt, const mr__block *blk, mr__workspace *ws);
+void mr__accumulate_scores(const mr__design *d, const mr__block *blk, mr__workspace *ws, mr__block_sums *out);
+
 #endif

@@ -17,8 +17,9 @@ mr_status mr__block_init(mr__block *b, const mr__binding *bind, mr__error *err)
     b->num = mr__malloc_array(R * (bind->nnum ? bind->nnum : 1), sizeof *b->num);
     b->lev = mr__malloc_array(R * (bind->nfac ? bind->nfac : 1), sizeof *b->lev);
     b->missing = mr__calloc(bind->ncol, sizeof *b->missing);
+    if (bind->has_cluster) b->cluster = mr__malloc_array(2 * R, sizeof *b->cluster);
     if (!b->y || !b->num || !b->lev || !b->missing || ((bind->has_weight || bind->has_trials) && !b->prior) ||
-        ((bind->has_offset || bind->has_exposure) && !b->off)) {
+        ((bind->has_offset || bind->has_exposure) && !b->off) || (bind->has_cluster && !b->cluster)) {
         mr__block_release(b);
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }
@@ -40,6 +41,7 @@ void mr__block_release(mr__block *b)
     mr__free(b->off);
     mr__free(b->num);
     mr__free(b->lev);
+    mr__free(b->cluster);
     mr__free(b->missing);
     release_counts(b);
     mr__free(b->new_levels);
@@ -91,8 +93,9 @@ mr_status mr__decoder_init(mr__decoder *d, const mr__decode_cfg *cfg, mr__error 
     quick = !numeric_missing_token(cfg);
     for (f = 0; d->wanted && f < b->nfields; f++) {
         int col = b->col_of_field[f];
+        /* the cluster's cell is hashed by on_field, which a quick cell skips */
         d->wanted[f] = col < 0 ? MR__FIELD_SKIP
-                       : quick && b->col[col].use != MR__USE_FACTOR ? MR__FIELD_QUICK
+                       : quick && b->col[col].use != MR__USE_FACTOR && !(b->has_cluster && col == b->cluster_col) ? MR__FIELD_QUICK
                                                                     : MR__FIELD_WANTED;
     }
     for (f = 0; f < cfg->nmissing; f++) {
@@ -206,6 +209,32 @@ static void decode_level(mr__decoder *d, int col, const char *p, size_t len)
     if (d->lev[col] < 0) row_problem(d, (size_t)col, MR_ERR_FORMAT, "level not seen in the first pass: the input changed during the fit", p, len);
 }
 
+static uint64_t mix64(uint64_t x)
+{
+    x ^= x >> 30;
+    x *= 0xbf58476d1ce4e5b9ULL;
+    x ^= x >> 27;
+    x *= 0x94d049bb133111ebULL;
+    return x ^ (x >> 31);
+}
+
+/* A cluster is its cell's text; two words of hash stand for it, so that
+ * rows compare in constant time and 10^7 clusters need no copy of their
+ * names (two distinct texts share both words with odds of about 2^-128). */
+static void cluster_hash(const char *p, size_t len, uint64_t out[2])
+{
+    uint64_t a = 0x9e3779b97f4a7c15ULL ^ len, b = 0xd6e8feb86659fd93ULL + len;
+    size_t i;
+    for (i = 0; i < len; i += 8) {
+        uint64_t w = 0;
+        memcpy(&w, p + i, len - i < 8 ? len - i : 8);
+        a = mix64(a ^ w) + 0x632be59bd9b4e019ULL;
+        b = mix64((b + w) * 0xff51afd7ed558ccdULL) ^ (b >> 29);
+    }
+    out[0] = mix64(a);
+    out[1] = mix64(b ^ a);
+}
+
 static void on_field(void *user, size_t k, const char *p, size_t len)
 {
     mr__decoder *d = user;
@@ -217,6 +246,10 @@ static void on_field(void *user, size_t k, const char *p, size_t len)
         d->miss[col] = 1;
         d->row_missing = 1;
         return;
+    }
+    if (d->cfg->bind->has_cluster && col == d->cfg->bind->cluster_col) {
+        cluster_hash(p, len, d->cluster_key);
+        if (d->cfg->bind->col[col].use == MR__USE_CLUSTER) return;
     }
     if (d->cfg->bind->col[col].use == MR__USE_FACTOR) {
         decode_level(d, col, p, len);
@@ -325,6 +358,10 @@ static void store_row(mr__decoder *d, double y, double prior, double off)
     }
     if (blk->prior) blk->prior[i] = prior;
     if (blk->off) blk->off[i] = off;
+    if (blk->cluster) {
+        blk->cluster[2 * i] = d->cluster_key[0];
+        blk->cluster[2 * i + 1] = d->cluster_key[1];
+    }
     for (k = 0; k < b->nnum; k++) blk->num[k * MR__BLOCK_ROWS + i] = d->val[b->num_col[k]];
     for (k = 0; k < b->nfac; k++) blk->lev[k * MR__BLOCK_ROWS + i] = d->lev[b->fac_col[k]];
 }

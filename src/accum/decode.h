@@ -52,6 +52,9 @@ typedef struct mr__block {
     int off_is_exposure;
     double *num;
     int32_t *lev;
+    /* With a cluster column: each row's cluster as a 128-bit hash of its
+     * cell's text (two words a row); NULL otherwise. */
+    uint64_t *cluster;
     /* First pass only, summed row by row as rows are kept: the prior
      * weights, w y, the rows with w > 0, the log-likelihood terms that
      * depend on the data alone (see accum/scan.c), and w e^offset and
@@ -106,6 +109,10 @@ typedef struct mr__decode_cfg {
      * building patterns once *collapse_abandoned is set. */
     int collapse;
     atomic_int *collapse_abandoned;
+    /* First pass: the pairs of factors (binding numbers) that interact,
+     * whose cells accum/level_outcomes.h counts. */
+    const int32_t (*pairs)[2];
+    size_t npairs;
 } mr__decode_cfg;
 
 typedef struct mr__decoder {
@@ -142,6 +149,7 @@ typedef struct mr__decoder {
     mr__levelset *numvals;
     const mr__levelset **keysets;
     mr__block *blk;
+    uint64_t cluster_key[2]; /* the current row's cluster (its hash) */
     const mr__chunk *chunk;
     uint32_t row;        /* the chunk row being decoded */
     int stop;

@@ -38,6 +38,8 @@ static void put_scan(mr__bytebuf *b, mr__scan_sums *s, size_t ncol, size_t nnum)
         mr__bytebuf_f64(b, s->sx[i]);
         mr__bytebuf_f64(b, s->dev_scale[i]);
         mr__bytebuf_f64(b, s->dev_ssq[i]);
+        mr__bytebuf_f64(b, s->xmin[i]);
+        mr__bytebuf_f64(b, s->xmax[i]);
     }
     for (i = 0; i < 5; i++) mr__bytebuf_f64(b, tail[i]);
     mr__bytebuf_u64(b, s->nbad_shown);
@@ -68,6 +70,39 @@ static void put_levelset(mr__bytebuf *b, const mr__levelset *set)
         else mr__bytebuf_text(b, by_id[j]->str, by_id[j]->len);
     }
     mr__free(by_id);
+}
+
+static void put_outcome(mr__bytebuf *b, const mr__outcome_counts *c)
+{
+    mr__bytebuf_u64(b, c->rows);
+    mr__bytebuf_u64(b, c->above_zero);
+    mr__bytebuf_u64(b, c->below_max);
+}
+
+/* A worker's outcome counts: per factor the levels it numbered (its array
+ * may run longer, zeroed), per pair of factors its cells in slot order. */
+static void put_outcomes(mr__bytebuf *b, const mr__level_outcomes *lo, const mr__levelset *levels)
+{
+    size_t f, k, i;
+    mr__bytebuf_u64(b, lo != NULL && !lo->failed);
+    if (lo == NULL || lo->failed) return;
+    mr__bytebuf_u64(b, lo->npairs);
+    for (f = 0; f < lo->nfac; f++) {
+        size_t n = lo->nlevel[f] < levels[f].n ? lo->nlevel[f] : levels[f].n;
+        mr__bytebuf_u64(b, n);
+        for (i = 0; i < n; i++) put_outcome(b, &lo->level[f][i]);
+    }
+    for (k = 0; k < lo->npairs; k++) {
+        const mr__cell_table *t = &lo->cells[k];
+        mr__bytebuf_u64(b, t->n);
+        for (i = 0; i < t->cap; i++) {
+            uint32_t a, c;
+            if (!mr__cell_table_slot(t, i, &a, &c)) continue;
+            mr__bytebuf_u64(b, a);
+            mr__bytebuf_u64(b, c);
+            put_outcome(b, &t->slot[i].c);
+        }
+    }
 }
 
 static void put_map(mr__bytebuf *b, const mr__block_map *m)
@@ -114,6 +149,9 @@ void mr__first_encode(mr__pass_result *res, size_t ncol, size_t nnum, size_t nfa
     mr__bytebuf_u64(b, res->nworkers);
     for (i = 0; i < res->nworkers; i++)
         for (f = 0; f < nfac; f++) put_levelset(b, &res->worker_levels[i][f]);
+    mr__bytebuf_u64(b, res->worker_outcomes != NULL);
+    for (i = 0; res->worker_outcomes && i < res->nworkers; i++)
+        put_outcomes(b, res->worker_outcomes[i], res->worker_levels[i]);
     put_map(b, &res->map);
     mr__bytebuf_u64(b, (uint64_t)res->collapsed);
     mr__bytebuf_u64(b, (uint64_t)res->store_incomplete);
@@ -171,6 +209,8 @@ static mr_status get_scan(mr__byteread *r, mr__scan_sums *s, size_t ncol, size_t
         s->sx[i] = mr__byteread_f64(r);
         s->dev_scale[i] = mr__byteread_f64(r);
         s->dev_ssq[i] = mr__byteread_f64(r);
+        s->xmin[i] = mr__byteread_f64(r);
+        s->xmax[i] = mr__byteread_f64(r);
     }
     for (i = 0; i < 5; i++) *tail[i] = mr__byteread_f64(r);
     s->nbad_shown = (uint32_t)mr__byteread_count(r, MR__BAD_SHOWN, 16);
@@ -216,6 +256,59 @@ static mr_status get_worker_levels(mr__byteread *r, mr__pass_result *res, size_t
         if (res->worker_levels[i] == NULL) return MR_ERR_NO_MEMORY;
         for (f = 0; f < nfac; f++) MR__TRY(get_levelset(r, &res->worker_levels[i][f]));
     }
+    return MR_OK;
+}
+
+static void get_outcome(mr__byteread *r, mr__outcome_counts *c)
+{
+    c->rows = mr__byteread_u64(r);
+    c->above_zero = mr__byteread_u64(r);
+    c->below_max = mr__byteread_u64(r);
+}
+
+static mr_status get_cells(mr__byteread *r, mr__cell_table *t)
+{
+    uint64_t i, n = mr__byteread_count(r, UINT32_MAX, 40);
+    for (i = 0; i < n && !r->bad; i++) {
+        /* below 2^32 - 1: the table's key of that cell would read as an empty slot */
+        uint64_t a = mr__byteread_count(r, UINT32_MAX - 1, 0), b = mr__byteread_count(r, UINT32_MAX - 1, 0);
+        mr__outcome_counts c;
+        get_outcome(r, &c);
+        if (r->bad) break;
+        if (mr__cell_table_find(t, (uint32_t)a, (uint32_t)b) != NULL) r->bad = 1; /* a cell twice */
+        else if (mr__cell_table_add(t, (uint32_t)a, (uint32_t)b, &c) != 0) return MR_ERR_NO_MEMORY;
+    }
+    return MR_OK;
+}
+
+/* One worker's counts (NULL when it had none whole: the zero-cell check is
+ * then left out, as it was). */
+static mr_status get_outcomes(mr__byteread *r, mr__level_outcomes **out, size_t nfac)
+{
+    mr__level_outcomes *lo;
+    size_t f, k, i, npairs;
+    if (mr__byteread_count(r, 1, 0) == 0) return MR_OK;
+    npairs = (size_t)mr__byteread_count(r, 1024, 0);
+    if (r->bad || (lo = *out = mr__level_outcomes_new(nfac, npairs)) == NULL) return r->bad ? MR_OK : MR_ERR_NO_MEMORY;
+    for (f = 0; f < nfac && !r->bad; f++) {
+        size_t n = (size_t)mr__byteread_count(r, UINT32_MAX, 24);
+        if (r->bad) break;
+        lo->level[f] = mr__calloc(n + 1, sizeof *lo->level[f]);
+        if (lo->level[f] == NULL) return MR_ERR_NO_MEMORY;
+        lo->nlevel[f] = n;
+        for (i = 0; i < n; i++) get_outcome(r, &lo->level[f][i]);
+    }
+    for (k = 0; k < npairs && !r->bad; k++) MR__TRY(get_cells(r, &lo->cells[k]));
+    return MR_OK;
+}
+
+static mr_status get_worker_outcomes(mr__byteread *r, mr__pass_result *res, size_t nfac)
+{
+    size_t i;
+    if (mr__byteread_count(r, 1, 0) == 0 || r->bad) return MR_OK;
+    res->worker_outcomes = mr__calloc(res->nworkers + 1, sizeof *res->worker_outcomes);
+    if (res->worker_outcomes == NULL) return MR_ERR_NO_MEMORY;
+    for (i = 0; i < res->nworkers && !r->bad; i++) MR__TRY(get_outcomes(r, &res->worker_outcomes[i], nfac));
     return MR_OK;
 }
 
@@ -281,7 +374,8 @@ static mr_status get_body(mr__byteread *r, mr__pass_result *res, size_t ncol, si
                           mr__error *err)
 {
     MR__TRY(get_scan(r, &res->scan, ncol, nnum, err));
-    if (get_worker_levels(r, res, nfac) != MR_OK || get_map(r, &res->map) != MR_OK)
+    if (get_worker_levels(r, res, nfac) != MR_OK || get_worker_outcomes(r, res, nfac) != MR_OK ||
+        get_map(r, &res->map) != MR_OK)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     res->collapsed = mr__byteread_count(r, 1, 0) != 0;
     res->store_incomplete = mr__byteread_count(r, 1, 0) != 0;

@@ -9,12 +9,17 @@
  *     compression
  *   the shape: bound columns, numerics, factors
  *   the scan sums (accum/scan.h): counts of rows, missing per column,
- *     per numeric sum / deviation scale / scaled squares, sw, swy, swe,
+ *     per numeric sum / deviation scale / scaled squares / least / greatest
+ *     value, sw, swy, swe,
  *     swoff, the log-likelihood constant, the bad rows shown (line,
  *     message); the value counts (a flag, counts_failed, then per numeric
  *     its sorted distinct values and counts, total, min, max, over, failed)
  *   each worker's factor levels: workers, then per worker and factor the
  *     levels by their numbers (text each)
+ *   each worker's outcome counts (accum/level_outcomes.h): a flag, then
+ *     per worker whether they are whole; if so the pairs of factors, per
+ *     factor its levels' counts (rows, above 0, below the maximum) by the
+ *     worker's level numbers, per pair its cells (both numbers, counts)
  *   the block map: blocks, usable, mostly blank, then per block offset,
  *     end, first line, rows' checksum, rows
  *   collapsed, store incomplete; with collapsed: the merge's key columns,

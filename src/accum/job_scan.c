@@ -8,6 +8,7 @@
 #include <string.h>
 
 #include "accum/census.h"
+#include "accum/level_outcomes.h"
 #include "accum/pass.h"
 #include "common/alloc.h"
 
@@ -65,13 +66,15 @@ static mr_status scan_start(void *job, mr__error *err)
     return MR_OK;
 }
 
-/* Decoders of the first pass number levels their own way. */
+/* Decoders of the first pass number levels their own way; each worker
+ * counts outcomes by level in those numbers (level_outcomes.h). */
 static mr_status scan_worker_init(void *job, mr__pass_worker *w, mr__error *err)
 {
-    (void)job;
-    (void)err;
+    scan_job *j = job;
+    const mr__decode_cfg *dcfg = j->env->cfg->dcfg;
     w->dec.worker = (int32_t)w->number;
-    return MR_OK;
+    w->part = mr__level_outcomes_new(dcfg->bind->nfac, dcfg->npairs);
+    return w->part ? MR_OK : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
 }
 
 /* Blocks are packed for the store only while the rows cannot collapse
@@ -91,10 +94,12 @@ static void scan_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
     scan_job *j = job;
     scan_part *part = s->part;
     const mr__binding *b = j->env->cfg->dcfg->bind;
-    (void)w;
     /* only plain text is ever reread by the map */
     if (s->decoded && j->env->plain) part->rows_hash = mr__chunk_rows_hash(s->chunk);
     mr__scan_block(s->use, b->ncol, b->nnum, &part->scan);
+    /* a block is counted by the decoder that numbered its levels */
+    if (s->use->worker == (int32_t)w->number) mr__level_outcomes_block(w->part, s->use, j->env->cfg->dcfg);
+    else ((mr__level_outcomes *)w->part)->failed = 1;
 }
 
 /* Keeps every stride-th block; when the sample is full, every other kept
@@ -163,9 +168,13 @@ static mr_status take_levels(scan_job *j, mr__error *err)
     res->worker_levels = mr__calloc(n, sizeof *res->worker_levels);
     if (res->worker_levels == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     res->nworkers = n;
+    res->worker_outcomes = mr__calloc(n, sizeof *res->worker_outcomes);
+    if (res->worker_outcomes == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     for (i = 0; i < n; i++) {
         res->worker_levels[i] = j->env->worker[i]->dec.local;
         j->env->worker[i]->dec.local = NULL;
+        res->worker_outcomes[i] = j->env->worker[i]->part;
+        j->env->worker[i]->part = NULL;
     }
     return MR_OK;
 }
@@ -186,7 +195,8 @@ static mr_status scan_finish(void *job, mr_status st, mr__error *err)
 static void scan_worker_release(void *job, mr__pass_worker *w)
 {
     (void)job;
-    (void)w;
+    mr__level_outcomes_free(w->part);
+    w->part = NULL;
 }
 
 static void scan_slot_release(void *job, mr__pass_slot *s)

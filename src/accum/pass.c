@@ -719,7 +719,9 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     memset(&e, 0, sizeof e);
     memset(res, 0, sizeof *res);
     e.cfg = cfg;
-    e.ops = cfg->kind == MR__PASS_SCAN ? &mr__job_scan : cfg->kind == MR__PASS_SCORE ? &mr__job_score : &mr__job_irls;
+    e.ops = cfg->kind == MR__PASS_SCAN ? &mr__job_scan : cfg->kind == MR__PASS_SCORE ? &mr__job_score
+             : cfg->kind == MR__PASS_MEAT  ? &mr__job_meat
+                                           : &mr__job_irls;
     if (cfg->ops != NULL) e.ops = cfg->ops;
     e.nworkers = cfg->nthreads > 0 ? (size_t)cfg->nthreads : 1;
     /* Two blocks per worker (one being computed, one waiting), one being
@@ -766,6 +768,8 @@ void mr__pass_result_release(mr__pass_result *res, size_t nfac)
         for (f = 0; f < nfac; f++) mr__levelset_release(&res->worker_levels[i][f]);
         mr__free(res->worker_levels[i]);
     }
+    for (i = 0; res->worker_outcomes && i < res->nworkers; i++) mr__level_outcomes_free(res->worker_outcomes[i]);
+    mr__free(res->worker_outcomes);
     mr__free(res->worker_levels);
     /* a result zeroed and never run has no sample (and fd 0 is not ours) */
     if (res->sample.packed) mr__store_release(&res->sample);
@@ -773,5 +777,6 @@ void mr__pass_result_release(mr__pass_result *res, size_t nfac)
     mr__block_map_release(&res->map);
     mr__scan_release(&res->scan);
     mr__sums_release(&res->sums);
+    mr__sums_release(&res->bread);
     memset(res, 0, sizeof *res);
 }

@@ -30,11 +30,12 @@
 #include "accum/store.h"
 #include "input/blockmap.h"
 #include "accum/decode.h"
+#include "accum/level_outcomes.h"
 #include "millrace.h"
 #include "accum/pass_job.h"
 
 /* Which job the pass runs: mr__job_scan or mr__job_irls. */
-typedef enum mr__pass_kind { MR__PASS_SCAN, MR__PASS_IRLS, MR__PASS_SCORE } mr__pass_kind;
+typedef enum mr__pass_kind { MR__PASS_SCAN, MR__PASS_IRLS, MR__PASS_SCORE, MR__PASS_MEAT } mr__pass_kind;
 
 /* Memory one pass leaves to the next pass of the same fit: its slots'
  * buffers (a chunk, a decoded block, a packed block: about 3 MiB each) and
@@ -76,7 +77,8 @@ typedef struct mr__pass_cfg {
     size_t replay_stride; /* with a store to replay: every stride-th block (0, 1: all) */
     const mr__block_map *map; /* MR__PASS_IRLS reading the file: the first pass's map */
     mr__pass_pool *pool;  /* NULL, or memory to take from and leave to the next pass */
-    const void *job_arg;  /* MR__PASS_SCORE: its mr__score_cfg (accum/score.h) */
+    const void *job_arg;  /* MR__PASS_SCORE: its mr__score_cfg (accum/score.h);
+                             MR__PASS_MEAT: its mr__meat_cfg (accum/meat.h) */
     const mr__pass_job_ops *ops; /* NULL: the job of `kind`; else this one
                                     (job_fanout.c: several runs' jobs) */
     int pass_number;
@@ -94,6 +96,9 @@ typedef struct mr__pass_result {
     /* First pass: each worker's factor levels (nthreads decoders' sets),
      * valid until mr__pass_result_release. */
     mr__levelset **worker_levels;
+    /* First pass: each worker's outcome counts by its own level numbers
+     * (level_outcomes.h), likewise. */
+    mr__level_outcomes **worker_outcomes;
     size_t nworkers;
     double seconds;
     /* First pass: an evenly spread sample of the blocks (every
@@ -117,6 +122,12 @@ typedef struct mr__pass_result {
     /* The workers read the blocks by the map: raw_bytes counts the header
      * only, and the blocks were checked one by one instead. */
     int by_map;
+    /* MR__PASS_MEAT by clusters: how many; and, streamed, 1 when a cluster
+     * came back after others (the pass stopped: the file is not grouped). */
+    uint64_t clusters;
+    int clusters_not_grouped;
+    /* MR__PASS_MEAT: X'WX at its point (the sandwich's bread, p x p upper) */
+    mr__block_sums bread;
 } mr__pass_result;
 
 #define MR__SAMPLE_BLOCKS 32

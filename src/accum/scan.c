@@ -11,7 +11,9 @@ mr_status mr__scan_init(mr__scan_sums *s, size_t ncol, size_t nnum, mr__error *e
     s->sx = mr__calloc(nnum ? nnum : 1, sizeof *s->sx);
     s->dev_scale = mr__calloc(nnum ? nnum : 1, sizeof *s->dev_scale);
     s->dev_ssq = mr__calloc(nnum ? nnum : 1, sizeof *s->dev_ssq);
-    if (!s->missing || !s->sx || !s->dev_scale || !s->dev_ssq) {
+    s->xmin = mr__calloc(nnum ? nnum : 1, sizeof *s->xmin);
+    s->xmax = mr__calloc(nnum ? nnum : 1, sizeof *s->xmax);
+    if (!s->missing || !s->sx || !s->dev_scale || !s->dev_ssq || !s->xmin || !s->xmax) {
         mr__scan_release(s);
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }
@@ -33,15 +35,21 @@ void mr__scan_release(mr__scan_sums *s)
     mr__free(s->sx);
     mr__free(s->dev_scale);
     mr__free(s->dev_ssq);
+    mr__free(s->xmin);
+    mr__free(s->xmax);
     memset(s, 0, sizeof *s);
 }
 
 void mr__scan_reset(mr__scan_sums *s, size_t ncol, size_t nnum)
 {
     uint64_t *m = s->missing;
-    double *sx = s->sx, *dev_scale = s->dev_scale, *dev_ssq = s->dev_ssq;
+    double *sx = s->sx, *dev_scale = s->dev_scale, *dev_ssq = s->dev_ssq, *xmin = s->xmin, *xmax = s->xmax;
     release_counts(s, s->ncounts);
     memset(s, 0, sizeof *s);
+    s->xmin = xmin;
+    s->xmax = xmax;
+    memset(xmin, 0, nnum * sizeof *xmin);
+    memset(xmax, 0, nnum * sizeof *xmax);
     s->missing = m;
     s->sx = sx;
     s->dev_scale = dev_scale;
@@ -56,9 +64,12 @@ void mr__scan_reset(mr__scan_sums *s, size_t ncol, size_t nnum)
  * largest of them (two more reads of 128 KiB already in cache). */
 static void block_spread(const double *x, uint32_t n, mr__scan_sums *s, size_t k)
 {
-    double sum = 0, mean, scale = 0, ssq = 0;
+    double sum = 0, mean, scale = 0, ssq = 0, lo = n ? x[0] : 0, hi = lo;
     uint32_t i;
     for (i = 0; i < n; i++) sum += x[i];
+    for (i = 0; i < n; i++) lo = fmin(lo, x[i]), hi = fmax(hi, x[i]);
+    s->xmin[k] = lo;
+    s->xmax[k] = hi;
     mean = n ? sum / n : 0.0;
     for (i = 0; i < n; i++) scale = fmax(scale, fabs(x[i] - mean));
     if (scale > 0 && isfinite(scale))
@@ -78,6 +89,8 @@ static void merge_spread(mr__scan_sums *into, const mr__scan_sums *from, size_t 
 {
     double na = (double)into->nused, nb = (double)from->nused, scale, cross, ra, rb, rc;
     if (from->nused == 0) return;
+    into->xmin[k] = into->nused ? fmin(into->xmin[k], from->xmin[k]) : from->xmin[k];
+    into->xmax[k] = into->nused ? fmax(into->xmax[k], from->xmax[k]) : from->xmax[k];
     if (into->nused == 0) {
         into->dev_scale[k] = from->dev_scale[k];
         into->dev_ssq[k] = from->dev_ssq[k];

@@ -23,6 +23,10 @@ typedef struct mr__scan_sums {
      * order with Chan's update, so the spread is the same bits for any
      * thread count. */
     double *sx, *dev_scale, *dev_ssq;
+    /* Per numeric: the least and greatest value of the rows used (the
+     * page's effect curves run between them); order-free, so the same
+     * for any thread count. */
+    double *xmin, *xmax;
     double sw, swy, swe, swoff, llc;
     /* The values of the numerics the binding counts (common/valuecount.h):
      * a block's are its own (borrowed from the block, valid until it is

@@ -18,7 +18,8 @@ enum {
     OPT_EXPOSURE, OPT_WEIGHT, OPT_NO_INTERCEPT, OPT_DISPERSION, OPT_THREADS, OPT_BUFFER, OPT_TOLERANCE,
     OPT_MAX_PASSES, OPT_LEVEL, OPT_DELIMITER, OPT_MISSING, OPT_IN_MEMORY, OPT_ON_BAD_ROW, OPT_JSON, OPT_QUIET,
     OPT_DIGITS, OPT_NO_CACHE, OPT_NO_COLLAPSE, OPT_START_FROM, OPT_HELP, OPT_RUN_LOG, OPT_THRESHOLD, OPT_CSV,
-    OPT_FIT, OPT_OUT, OPT_KEEP, OPT_UNSEEN, OPT_BY, OPT_BY_OUT, OPT_DROP_ONE, OPT_FIT_JSON, OPT_CHECKPOINT
+    OPT_FIT, OPT_OUT, OPT_KEEP, OPT_UNSEEN, OPT_BY, OPT_BY_OUT, OPT_DROP_ONE, OPT_FIT_JSON, OPT_ROBUST, OPT_CLUSTER,
+    OPT_CLUSTER_MEMORY, OPT_CHECKPOINT
 };
 
 static const struct option long_options[] = {
@@ -48,6 +49,9 @@ static const struct option long_options[] = {
     {"no-collapse", no_argument, NULL, OPT_NO_COLLAPSE},
     {"on-bad-row", required_argument, NULL, OPT_ON_BAD_ROW},
     {"start-from", required_argument, NULL, OPT_START_FROM},
+    {"robust", required_argument, NULL, OPT_ROBUST},
+    {"cluster", required_argument, NULL, OPT_CLUSTER},
+    {"cluster-memory", required_argument, NULL, OPT_CLUSTER_MEMORY},
     {"json", required_argument, NULL, OPT_JSON},
     {"run-log", required_argument, NULL, OPT_RUN_LOG},
     {"quiet", no_argument, NULL, OPT_QUIET},
@@ -98,11 +102,12 @@ static const struct option compare_options[] = {
 };
 
 /* Options of `millrace report`. */
-enum { OPT_HTML = 512, OPT_AT, OPT_REPORT_DIGITS };
+enum { OPT_HTML = 512, OPT_AT, OPT_REPORT_DIGITS, OPT_GROUPS };
 static const struct option report_options[] = {
     {"html", required_argument, NULL, OPT_HTML},
     {"at", required_argument, NULL, OPT_AT},
     {"digits", required_argument, NULL, OPT_REPORT_DIGITS},
+    {"groups", required_argument, NULL, OPT_GROUPS},
     {NULL, 0, NULL, 0},
 };
 
@@ -111,8 +116,9 @@ static const char usage_text[] =
     "       millrace show [--digits N] FIT.json   the report of a fit saved with --json\n"
     "       millrace drift [--threshold SE] [--json PATH] [--csv PATH] [--digits N] OLD.json NEW.json\n"
     "                               what changed between two saved fits of one model (default 3 SE)\n"
-    "       millrace report --html PATH [--at COL=VALUE]... [--digits N] FIT.json...\n"
-    "                                  saved fits as one HTML page (plots, comparison of the fits)\n"
+    "       millrace report --html PATH [--at COL=VALUE]... [--digits N] [--groups GROUPS.json] FIT.json...\n"
+    "                                  saved fits as one HTML page (plots, comparison of the fits;\n"
+    "                                  a funnel plot of score's --by-out JSON)\n"
     "       millrace score --fit FIT.json --out FILE[.zst] [--keep COL]... [--level P]\n"
     "                      [--unseen fail|blank] [--threads N] [--by COL]... [--by-out PATH] DATA\n"
     "                      predictions and residuals per row; observed/expected by group\n"
@@ -132,12 +138,13 @@ static const char usage_text[] =
     "  --threads N  --buffer-size BYTES  --tolerance X  --max-passes N  --level P\n"
     "  --delimiter ,|tab|;  --missing TOKEN (repeatable)  --in-memory  --no-cache  --no-collapse\n"
     "  --on-bad-row fail|skip  --start-from FIT.json (start from a previous fit of the same model)\n"
+    "  --robust hc0|hc1  --cluster COL  --cluster-memory MB (robust standard errors, by rows or clusters)\n"
     "  --checkpoint PATH (state after each pass; a rerun of a killed fit goes on from it)\n"
     "output:\n"
     "  --json PATH  --run-log FILE (a line appended per run)  --quiet  --digits N\n"
     "exit codes: 0 ok, 2 usage, 3 I/O, 4 malformed input, 5 value outside the model, 6 no data,\n"
     "            7 not converged, 8 out of memory, 9 internal error, 10 numerical breakdown,\n"
-    "            12 drift flagged a change\n"
+    "            12 drift flagged a change, 13 clusters need more memory than allowed\n"
     "            128+N stopped by signal N (130 SIGINT, 143 SIGTERM, 129 SIGHUP; nothing written)\n";
 
 typedef struct cli {
@@ -154,6 +161,8 @@ typedef struct cli {
     size_t nlines;
     const char *model_file;
     mr_output_lock *lock; /* on the JSON, for the run */
+    const char *cluster;  /* --cluster, --cluster-memory (MiB; 0 the default) */
+    long long cluster_mib;
 } cli;
 
 /* The last error said, for the run log. */
@@ -296,6 +305,22 @@ static const char *directive_of(int opt)
 
 static int handled(int rc) { return rc ? rc : -1; }
 
+static int set_robust(cli *c, int opt, const char *arg)
+{
+    mr_status st;
+    if (opt == OPT_ROBUST) {
+        if (strcmp(arg, "hc0") != 0 && strcmp(arg, "hc1") != 0) return usage_error("--robust takes hc0 or hc1");
+        st = mr_fitter_set_robust(c->fitter, strcmp(arg, "hc0") == 0 ? MR_ROBUST_HC0 : MR_ROBUST_HC1);
+        return st == MR_OK ? 0 : fail(st, mr_fitter_errmsg(c->fitter));
+    }
+    if (opt == OPT_CLUSTER) c->cluster = arg;
+    else if (parse_count(arg, &c->cluster_mib) != 0 || c->cluster_mib < 1 || c->cluster_mib > (1LL << 30))
+        return usage_error("--cluster-memory takes a number of MiB (1 or more)");
+    if (c->cluster == NULL) return 0;
+    st = mr_fitter_set_cluster(c->fitter, c->cluster, (size_t)c->cluster_mib << 20);
+    return st == MR_OK ? 0 : fail(st, mr_fitter_errmsg(c->fitter));
+}
+
 /* Returns -1 when the option was handled, else an exit code. */
 static int handle_option(cli *c, int opt, const char *arg)
 {
@@ -316,6 +341,9 @@ static int handle_option(cli *c, int opt, const char *arg)
     case OPT_NO_COLLAPSE: mr_fitter_set_int(c->fitter, MR_OPT_NO_COLLAPSE, 1); return -1;
     case OPT_ON_BAD_ROW: return handled(set_bad_rows(c, arg));
     case OPT_START_FROM: return handled(set_start(c, arg));
+    case OPT_ROBUST:
+    case OPT_CLUSTER:
+    case OPT_CLUSTER_MEMORY: return handled(set_robust(c, opt, arg));
     case OPT_JSON: c->json_path = arg; return -1;
     case OPT_RUN_LOG: c->run_log = arg; return -1;
     case OPT_CHECKPOINT:
@@ -691,7 +719,7 @@ static int write_page(const char *html, char **paths, size_t nfits, char **setti
     return st == MR_OK ? 0 : fail(st, msg);
 }
 
-/* millrace report --html PATH [--at COL=VALUE]... [--digits N] FIT.json... */
+/* millrace report --html PATH [--at COL=VALUE]... [--digits N] [--groups FILE] FIT.json... */
 static int report_page(int argc, char **argv)
 {
     char **settings = NULL;
@@ -701,8 +729,8 @@ static int report_page(int argc, char **argv)
     optind = 1;
     while (rc == 0 && (opt = getopt_long(argc, argv, "", report_options, NULL)) != -1) {
         if (opt == OPT_HTML) html = optarg;
-        else if (opt == OPT_AT || opt == OPT_REPORT_DIGITS)
-            rc = add_setting(&settings, &n, opt == OPT_AT ? "at " : "digits ", optarg) == 0
+        else if (opt == OPT_AT || opt == OPT_REPORT_DIGITS || opt == OPT_GROUPS)
+            rc = add_setting(&settings, &n, opt == OPT_AT ? "at " : opt == OPT_GROUPS ? "groups " : "digits ", optarg) == 0
                      ? 0
                      : fail(MR_ERR_NO_MEMORY, "out of memory");
         else rc = usage_error("bad option");

@@ -89,6 +89,7 @@ const char *mr_strerror(mr_status status)
     case MR_ERR_NUMERIC: return "numerical breakdown";
     case MR_ERR_STOPPED: return "stopped by the progress callback";
     case MR_DRIFT_FLAGGED: return "a comparison of two fits flagged a change";
+    case MR_ERR_CLUSTERS: return "clusters need more memory than allowed";
     }
     return "unknown status";
 }

@@ -17,7 +17,8 @@
  *   the input: its name as given (text), size, mtime (ns)
  *   the model and the options that change results (text: the model
  *     lines, tolerance, pass limit, level, bad rows, delimiter, missing
- *     tokens, collapsing, the start's name)
+ *     tokens, collapsing, the start's name, the robust type and cluster
+ *     column)
  *   the header row (text), passes done, each pass's seconds (f64), the
  *     warm start's flag, iterations, blocks, polish blocks
  *   the first pass's result (text framing its bytes)
@@ -65,6 +66,11 @@ static char *model_key(const mr__run *r)
                       f->tolerance, f->max_passes, f->level, f->skip_bad, f->delimiter, f->no_collapse);
     for (i = 0; i < f->nmissing; i++) mr__strbuf_printf(&sb, "missing %s\n", f->missing[i]);
     if (f->start) mr__strbuf_printf(&sb, "start-from %s\n", f->start->label);
+    /* the robust type and its cluster column (bound by the first pass, its
+     * missing cells leaving rows out); not the clusters' memory limit, which
+     * changes no number, so a fit that ran out of it goes on with more */
+    mr__strbuf_printf(&sb, "robust %d\n", mr__robust_type(f));
+    if (f->cluster) mr__strbuf_printf(&sb, "cluster %s\n", f->cluster);
     return mr__strbuf_take(&sb);
 }
 
@@ -239,13 +245,26 @@ static void get_run(mr__run *r, mr__byteread *rd, const unsigned char **header, 
     r->warm_polish_blocks = (int)mr__byteread_count(rd, INT32_MAX, 0);
 }
 
-/* The header bound as the first pass bound it; 0 when its columns are not
- * those the first pass's result was made with. */
-static int bind_again(mr__run *r, const unsigned char *header, uint64_t len, size_t ncol, size_t nnum, size_t nfac)
+/* Each worker's outcome counts hold a table per pair of interacting
+ * factors the binding found (fit/zero_cells.c reads them so). */
+static int outcomes_fit(const mr__run *r, const mr__pass_result *first)
+{
+    size_t w;
+    for (w = 0; first->worker_outcomes && w < first->nworkers; w++)
+        if (first->worker_outcomes[w] && (first->worker_outcomes[w]->npairs != r->dcfg.npairs ||
+                                          first->worker_outcomes[w]->nfac != r->bind.nfac))
+            return 0;
+    return 1;
+}
+
+/* The header bound as the first pass bound it; 0 when its columns (or
+ * pairs of factors) are not those the first pass's result was made with. */
+static int bind_again(mr__run *r, const unsigned char *header, uint64_t len, size_t ncol, size_t nnum, size_t nfac,
+                      const mr__pass_result *first)
 {
     mr__error scratch;
     if (mr__run_on_header(r, (const char *)header, (size_t)len, &scratch) == MR_OK && r->bind.ncol == ncol &&
-        r->bind.nnum == nnum && r->bind.nfac == nfac)
+        r->bind.nnum == nnum && r->bind.nfac == nfac && outcomes_fit(r, first))
         return 1;
     if (r->bound) mr__binding_release(&r->bind);
     r->bound = 0;
@@ -281,7 +300,7 @@ static const char *take_parts(mr__run *r, mr__byteread *rd, mr__irls *resume, mr
         mr__pass_result_release(&first, nfac);
         return "its IRLS state is damaged";
     }
-    if (!bind_again(r, header, header_len, ncol, nnum, nfac)) {
+    if (!bind_again(r, header, header_len, ncol, nnum, nfac, &first)) {
         mr__pass_result_release(&first, nfac);
         mr__irls_release(resume);
         return "its header row does not bind as it did";

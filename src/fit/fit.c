@@ -18,9 +18,14 @@ void mr_fit_free(mr_fit *fit)
     if (fit == NULL) return;
     free_strings(fit->name, fit->p);
     mr__free(fit->aliased);
+    mr__free(fit->inestimable);
     mr__free(fit->beta);
     mr__free(fit->se);
     mr__free(fit->cov);
+    mr__free(fit->robust_type);
+    mr__free(fit->cluster);
+    mr__free(fit->robust_se);
+    mr__free(fit->robust_cov);
     mr__free(fit->stat);
     mr__free(fit->pval);
     mr__free(fit->lo);
@@ -58,6 +63,8 @@ void mr_fit_free(mr_fit *fit)
     free_strings(fit->command_line, fit->ncommand_line);
     mr__free(fit->started);
     mr__free(fit->ended);
+    for (i = 0; fit->numeric && i < fit->nnumerics; i++) mr__free(fit->numeric[i].name);
+    mr__free(fit->numeric);
     mr__free(fit->host);
     mr__free(fit);
 }
@@ -67,6 +74,7 @@ mr_status mr__fit_alloc_coefficients(mr_fit *fit, size_t p)
     fit->p = p;
     fit->name = mr__calloc(p + 1, sizeof *fit->name);
     fit->aliased = mr__calloc(p + 1, sizeof *fit->aliased);
+    fit->inestimable = mr__calloc(p + 1, sizeof *fit->inestimable);
     fit->beta = mr__calloc(p + 1, sizeof(double));
     fit->se = mr__calloc(p + 1, sizeof(double));
     fit->cov = mr__calloc(p * p + 1, sizeof(double));
@@ -74,7 +82,7 @@ mr_status mr__fit_alloc_coefficients(mr_fit *fit, size_t p)
     fit->pval = mr__calloc(p + 1, sizeof(double));
     fit->lo = mr__calloc(p + 1, sizeof(double));
     fit->hi = mr__calloc(p + 1, sizeof(double));
-    if (!fit->name || !fit->aliased || !fit->beta || !fit->se || !fit->cov || !fit->stat || !fit->pval || !fit->lo ||
+    if (!fit->name || !fit->aliased || !fit->inestimable || !fit->beta || !fit->se || !fit->cov || !fit->stat || !fit->pval || !fit->lo ||
         !fit->hi)
         return MR_ERR_NO_MEMORY;
     return MR_OK;
@@ -133,12 +141,14 @@ const char *mr__fit_family_param_name(const mr_fit *fit)
     return ops != NULL && fit->family_param_given ? ops->param_name : NULL;
 }
 
-const char *mr__fit_statistic_name(const mr_fit *fit) { return fit->dispersion_estimated ? "t" : "z"; }
+/* robust standard errors are asymptotic: read against the normal */
+const char *mr__fit_statistic_name(const mr_fit *fit) { return fit->dispersion_estimated && !fit->robust ? "t" : "z"; }
 
 mr_status mr_fit_status(const mr_fit *fit) { return fit->status; }
 size_t mr_fit_ncoef(const mr_fit *fit) { return fit->p; }
 const char *mr_fit_coef_name(const mr_fit *fit, size_t j) { return j < fit->p ? fit->name[j] : NULL; }
 int mr_fit_coef_aliased(const mr_fit *fit, size_t j) { return j < fit->p ? fit->aliased[j] : 0; }
+int mr_fit_coef_not_estimable(const mr_fit *fit, size_t j) { return j < fit->p ? fit->inestimable[j] : 0; }
 double mr_fit_coef(const mr_fit *fit, size_t j) { return j < fit->p ? fit->beta[j] : NAN; }
 double mr_fit_std_error(const mr_fit *fit, size_t j) { return j < fit->p ? fit->se[j] : NAN; }
 
@@ -181,3 +191,11 @@ double mr_fit_stat(const mr_fit *fit, mr_stat which)
 size_t mr_fit_nwarnings(const mr_fit *fit) { return fit->nwarnings; }
 int mr_fit_resumed_after_pass(const mr_fit *fit) { return fit->resumed ? fit->resumed_from_pass : 0; }
 const char *mr_fit_warning(const mr_fit *fit, size_t i) { return i < fit->nwarnings ? fit->warning[i] : NULL; }
+
+const mr__fit_numeric *mr__fit_find_numeric(const mr_fit *fit, const char *name)
+{
+    size_t i;
+    for (i = 0; fit->numeric && i < fit->nnumerics; i++)
+        if (strcmp(fit->numeric[i].name, name) == 0) return &fit->numeric[i];
+    return NULL;
+}

@@ -43,12 +43,21 @@ typedef struct mr__fit_term {
     double test_chi2, test_stat, test_p;
 } mr__fit_term;
 
+/* A numeric column over the rows used (the first pass's sums): its mean
+ * and standard deviation (divisor n), least and greatest value. */
+typedef struct mr__fit_numeric {
+    char *name;
+    double mean, sd, min, max;
+} mr__fit_numeric;
+
 struct mr_fit {
     mr_status status;
     /* coefficients, on the scale of the raw columns */
     size_t p, rank;
     char **name;
     int *aliased;
+    int *inestimable; /* not estimable in practice: a zero cell, or its SE grew
+                         at every pass (result.c, zero_cells.c) */
     double *beta, *se, *cov, *stat, *pval, *lo, *hi;
     /* model */
     int family, link, intercept, dispersion_estimated;
@@ -73,7 +82,7 @@ struct mr_fit {
     char **bad_example;
     size_t nbad_examples;
     /* convergence */
-    int iterations, passes, halvings, converged, warm_start, warm_iterations, by_decrement;
+    int iterations, passes, halvings, converged, warm_start, warm_iterations, by_step;
     int warm_blocks, warm_polish_blocks; /* sample blocks the warm start used (0: none) */
     int start_given;       /* started from a previous fit (mr_fitter_set_start) */
     char *start_from;      /* its label; NULL when none */
@@ -103,9 +112,28 @@ struct mr_fit {
     char **command_line; /* the words given to mr_fitter_set_command_line */
     size_t ncommand_line;
     char *started, *ended, *host; /* ISO 8601 UTC; the machine's name */
+    /* the numeric columns (numerics_known 0 for a fit read back from a
+     * JSON written before they were saved) */
+    int numerics_known;
+    mr__fit_numeric *numeric;
+    size_t nnumerics;
+    /* robust standard errors (robust.c), when asked (robust 1): the type
+     * ("HC0", "HC1"), the cluster column (NULL: by rows) and its clusters,
+     * the small-sample factor applied, the standard errors (nrobust_se =
+     * p) and the covariance (p x p), raw scale; they then drive stat,
+     * pval, lo, hi and the term tests, while se and cov stay model-based. */
+    int robust;
+    char *robust_type, *cluster;
+    uint64_t nclusters;
+    double robust_adjustment;
+    double *robust_se, *robust_cov;
+    size_t nrobust_se;
     /* taken up from a checkpoint after pass resumed_from_pass (resumed 1) */
     int resumed, resumed_from_pass;
 };
+
+/* Numeric column `name`, or NULL (unknown or not a numeric). */
+const mr__fit_numeric *mr__fit_find_numeric(const mr_fit *fit, const char *name);
 
 /* The per-coefficient arrays for p coefficients, zeroed (the fit's p set). */
 mr_status mr__fit_alloc_coefficients(mr_fit *fit, size_t p);

@@ -11,7 +11,7 @@
 
 #define DEFAULT_MAX_PASSES 50
 #define DEFAULT_BUFFER (1u << 20)
-#define DEFAULT_TOLERANCE 1e-10
+#define DEFAULT_TOLERANCE 1e-9
 
 const char *mr_version(void) { return MR_VERSION_STRING; }
 
@@ -39,6 +39,7 @@ void mr_fitter_free(mr_fitter *f)
     mr__strings_free(f->command_line, f->ncommand_line);
     mr__start_free(f->start);
     mr__free(f->checkpoint);
+    mr__free(f->cluster);
     mr__free(f);
 }
 

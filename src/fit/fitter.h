@@ -21,10 +21,17 @@ struct mr_fitter {
     char **command_line; /* mr_fitter_set_command_line's copy */
     size_t ncommand_line;
     struct mr__start *start; /* mr_fitter_set_start; NULL: none (start.h) */
+    int robust;              /* an mr_robust (robust.c) */
+    char *cluster;           /* mr_fitter_set_cluster's column; NULL: none */
+    size_t cluster_memory;   /* bytes its bookkeeping may take */
     char *checkpoint;        /* mr_fitter_set_checkpoint's copy; NULL: none */
     char checkpoint_note[MR__MSG_CAP + 256]; /* what the last run did with it */
     int checkpoint_keep;     /* tests only: the checkpoint outlives a fit that succeeded */
 };
+
+/* The robust standard errors a run makes (an mr_robust): the one set, or
+ * HC0 when only a cluster column is (robust.c). */
+int mr__robust_type(const mr_fitter *f);
 
 /* The fit's audit trail (fitter.c): the command line, the host, the run's
  * start (started_ns, wall clock) and end.  MR_OK or MR_ERR_NO_MEMORY. */

@@ -10,6 +10,33 @@
 #include "common/alloc.h"
 #include "fit/run.h"
 #include "input/fields.h"
+/* The binding number of factor `name`, or -1. */
+static int32_t factor_number(const mr__binding *b, const char *name)
+{
+    size_t k;
+    for (k = 0; k < b->nfac; k++)
+        if (strcmp(b->col[b->fac_col[k]].name, name) == 0) return (int32_t)k;
+    return -1;
+}
+
+/* Interactions of two factors: the first pass counts their cells. */
+static void find_pairs(mr__run *r)
+{
+    const mr__spec *s = &r->f->spec;
+    size_t i, n = 0;
+    for (i = 0; i < s->ninter && n < MR__MAX_PAIRS; i++) {
+        int32_t a, b;
+        if (s->inter[i].n != 2) continue;
+        a = factor_number(&r->bind, s->inter[i].name[0]);
+        b = factor_number(&r->bind, s->inter[i].name[1]);
+        if (a < 0 || b < 0) continue;
+        r->pairs[n][0] = a;
+        r->pairs[n++][1] = b;
+    }
+    r->dcfg.pairs = (const int32_t(*)[2])r->pairs;
+    r->dcfg.npairs = n;
+}
+
 static mr_status bind_header(mr__run *r, const char *line, size_t len, mr__error *err)
 {
     char **names = NULL;
@@ -20,6 +47,7 @@ static mr_status bind_header(mr__run *r, const char *line, size_t len, mr__error
     MR__TRY(mr__parse_header(line, len, r->delim, &names, &n, r->display, err));
     st = mr__bind(&r->bind, &r->f->spec, names, n, r->display, err);
     r->bound = 1; /* the binding owns the names now, even when it failed */
+    if (st == MR_OK && r->f->cluster != NULL) st = mr__bind_cluster(&r->bind, r->f->cluster, r->display, err);
     if (st != MR_OK) return st;
     r->dcfg.bind = &r->bind;
     r->dcfg.family = &r->family;
@@ -33,6 +61,7 @@ static mr_status bind_header(mr__run *r, const char *line, size_t len, mr__error
         return mr__fail(err, MR_ERR_USAGE, "more than %d missing-value tokens", MR__MAX_MISSING_TOKENS);
     for (i = 0; i < r->f->nmissing; i++) r->missing_len[i] = strlen(r->f->missing[i]);
     r->dcfg.levels = NULL;
+    find_pairs(r);
     r->header = mr__strndup(line, len);
     r->header_len = len;
     return r->header ? MR_OK : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");

@@ -17,7 +17,10 @@ static mr_status allocate(mr__irls *s, size_t p, mr__error *err)
     s->prev = mr__calloc(p + 1, sizeof *s->prev);
     s->next = mr__calloc(p + 1, sizeof *s->next);
     s->aliased = mr__calloc(p + 1, sizeof *s->aliased);
-    if (s->beta && s->prev && s->next && s->aliased) return MR_OK;
+    s->se_prev = mr__calloc(p + 1, sizeof *s->se_prev);
+    s->growing = mr__calloc(p + 1, sizeof *s->growing);
+    s->se_min = mr__calloc(p + 1, sizeof *s->se_min);
+    if (s->beta && s->prev && s->next && s->aliased && s->se_prev && s->growing && s->se_min) return MR_OK;
     mr__irls_release(s);
     return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
 }
@@ -28,6 +31,10 @@ mr_status mr__irls_init(mr__irls *s, const mr__irls_cfg *cfg, mr__error *err)
     MR__TRY(allocate(s, cfg->p, err));
     s->p = cfg->p;
     s->tolerance = cfg->tolerance;
+    s->dispersion_rows = cfg->dispersion_rows;
+    s->newton = cfg->newton;
+    s->step = s->step_before = INFINITY;
+    s->by_step = 1; /* the rule in force, until the boundary's ends the fit */
     s->max_iterations = cfg->max_iterations;
     s->step_at_end = cfg->step_at_end;
     s->null_intercept = cfg->null_intercept;
@@ -49,6 +56,10 @@ void mr__irls_release(mr__irls *s)
     mr__free(s->prev);
     mr__free(s->next);
     mr__free(s->aliased);
+    mr__free(s->se_prev);
+    mr__free(s->growing);
+    mr__free(s->se_min);
+    mr__free(s->inverse);
     mr__free(s->history);
     memset(s, 0, sizeof *s);
 }
@@ -78,26 +89,56 @@ static void halve_step(mr__irls *s)
     for (j = 0; j < s->p; j++) s->beta[j] = 0.5 * (s->beta[j] + s->prev[j]);
 }
 
-/* (v - G b)' (b_next - b): the Newton decrement, which is the deviance
- * the step from b to b_next is expected to remove (dispersion units). */
-static double newton_decrement(const mr__block_sums *sums, size_t p, const double *b, const double *b_next)
+/* The step from b to b_next in standard errors: sqrt(d' G d / phi), d =
+ * b_next - b, G = X'WX, phi the dispersion (Pearson chi-square over the
+ * residual degrees of freedom when estimated, else 1).  It is the largest
+ * |c'd| / SE(c'b) over every linear combination c, so it bounds each
+ * coefficient's step in its own standard errors in any parametrisation
+ * (the raw columns' as well as the centred ones the fit works in), and it
+ * does not grow or shrink with the rows.  Computed from d itself, not as
+ * (v - G b)'d, which cancels to noise near the maximum. */
+static double step_in_se(const mr__irls *s, const mr__block_sums *sums, size_t rank)
 {
-    size_t i, j;
-    double total = 0;
-    for (i = 0; i < p; i++) {
-        double u = sums->xtwz[i];
-        for (j = 0; j < p; j++) u -= sums->xtwx[i <= j ? j * p + i : i * p + j] * b[j];
-        total += u * (b_next[i] - b[i]);
+    size_t p = s->p, i, j;
+    double q = 0, phi = 1;
+    for (j = 0; j < p; j++) {
+        double dj = s->next[j] - s->beta[j], u = 0;
+        if (dj == 0) continue;
+        for (i = 0; i < p; i++) u += sums->xtwx[i <= j ? j * p + i : i * p + j] * (s->next[i] - s->beta[i]);
+        q += dj * u;
     }
-    return total;
+    if (s->dispersion_rows > (double)rank && sums->pearson > 0)
+        phi = sums->pearson / (s->dispersion_rows - (double)rank);
+    return sqrt(fmax(q, 0) / phi);
+}
+
+/* A coefficient heading for infinity (separation, quasi-separation by a
+ * covariate, a level with no events) shows as a standard error that grows
+ * at every pass: growing[j] counts the passes in a row where coefficient
+ * j's grew by more than a tenth (the diagonal of (X'WX)^-1, whose inverse
+ * costs about twice the solve; the dispersion only scales it). */
+static void note_growth(mr__irls *s)
+{
+    size_t j, p = s->p;
+    for (j = 0; j < p; j++) {
+        double se = !s->aliased[j] ? sqrt(fmax(s->inverse[j * p + j], 0)) : 0;
+        if (se > 1.1 * s->se_prev[j] && s->se_prev[j] > 0) s->growing[j]++;
+        else s->growing[j] = 0;
+        s->se_prev[j] = se;
+        if (se > 0 && (s->se_min[j] == 0 || se < s->se_min[j])) s->se_min[j] = se;
+    }
 }
 
 static mr_status next_point(mr__irls *s, const mr__block_sums *sums, mr__error *err)
 {
     size_t p = s->p, rank;
     double *t;
-    MR__TRY(mr__solve_normal(sums->xtwx, sums->xtwz, p, s->next, s->aliased, &rank, NULL, err));
-    s->decrement = s->have_beta ? newton_decrement(sums, p, s->beta, s->next) : INFINITY;
+    if (s->inverse == NULL && (s->inverse = mr__malloc_array(p * p + 1, sizeof *s->inverse)) == NULL)
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    MR__TRY(mr__solve_normal(sums->xtwx, sums->xtwz, p, s->next, s->aliased, &rank, s->inverse, err));
+    note_growth(s);
+    s->step_before = s->step;
+    s->step = s->have_beta ? step_in_se(s, sums, rank) : INFINITY;
     t = s->prev;
     s->prev = s->beta;
     s->beta = s->next;
@@ -110,7 +151,7 @@ static mr_status next_point(mr__irls *s, const mr__block_sums *sums, mr__error *
         double b0 = sums->null_swz / sums->null_sw;
         /* One parameter converges fast, and its deviance repeats only to
          * rounding (~1e-13 with an offset): a tighter test might never pass. */
-        s->null_done = s->null_done || relative_change(sums->null_dev, s->null_dev_prev) < fmax(s->tolerance, 1e-12);
+        s->null_done = s->null_done || relative_change(sums->null_dev, s->null_dev_prev) < MR__IRLS_NULL_TOLERANCE;
         s->null_dev_prev = sums->null_dev;
         if (!s->null_done) s->null_b0 = b0;
     }
@@ -156,27 +197,65 @@ static mr_status note_deviance(mr__irls *s, double dev, mr__error *err)
     return MR_OK;
 }
 
-static int converged_by_deviance(mr__irls *s, const mr__block_sums *sums)
+/* Whether the fit is done after the pass just made: its step, s_k, is
+ * taken without a pass to check it (as the usual IRLS codes do, whose
+ * coefficients are one step ahead of their weights) and the statistics
+ * are those of that pass, made s_k standard errors from the maximum.
+ *
+ * s_k <= tolerance: the step itself is that small.  Near the maximum the
+ * distance left after it is about s_k times the rate of convergence (well
+ * below 1 with the rows this rule is for), and the standard errors, from
+ * weights s_k away, differ from those at the maximum by about s_k times
+ * the change of the information per standard error (below 1), relative.
+ *
+ * Under a canonical link IRLS is Newton's method: s_k+1 ~ C s_k^2, with C
+ * ~ s_k / s_k-1^2 from the last two steps, so with q = s_k / s_k-1 the
+ * distance left after the step is about s_k q^2 and the standard errors
+ * drift by about C s_k = q^2.  The fit then also stops when 10 q^2 (ten
+ * for a C measured on one direction) is at most the tolerance and
+ * s_k-1 <= 1 (near the maximum, where s_k-1 tells C; a first step of
+ * thousands of standard errors would make any q small): the pass that
+ * would confirm a step of a ten-thousandth of a standard error is saved. */
+/* A coefficient on its way to infinity (fitted means numerically at the
+ * edge of the range, or a standard error grown pass after pass) takes
+ * steps that shrink only slowly in standard errors: the fit then ends, at
+ * the point of this pass, when the deviance no longer changes (relative
+ * change below MR__IRLS_BOUNDARY_TOLERANCE), and the report says which
+ * coefficients ran off. */
+static int converged_at_boundary(mr__irls *s, const mr__block_sums *sums)
 {
-    if (!s->have_dev) return 0;
-    s->rel_change = relative_change(sums->dev, s->dev_prev);
-    return s->rel_change < s->tolerance && s->null_done;
+    double change;
+    size_t j;
+    int running = sums->boundary > 0;
+    for (j = 0; j < s->p && !running; j++) running = s->growing[j] >= MR__IRLS_GROWTH_PASSES;
+    if (!running || !s->have_dev || !s->null_done) return 0;
+    change = relative_change(sums->dev, s->dev_prev);
+    if (!(change < MR__IRLS_BOUNDARY_TOLERANCE)) return 0;
+    s->rel_change = change;
+    s->by_step = 0;
+    return 1;
 }
 
-/* When the step just solved would remove a hundredth of the tolerance or
- * less, the pass just made was the last one needed: the step is taken
- * without a pass to check it (as the usual IRLS codes do, whose
- * coefficients are one step ahead of their weights).  The statistics are
- * those of that pass; at that distance from the maximum they differ from
- * those at the new point by about the square root of the gap, 1e-6
- * relative at the default tolerance. */
-static int converged_by_decrement(mr__irls *s, const mr__block_sums *sums)
+static int converged_by_step(mr__irls *s)
 {
-    double share = fabs(s->decrement) / (fabs(sums->dev) + 0.1);
-    if (!s->null_done || !(share < MR__IRLS_DECREMENT_SHARE * s->tolerance)) return 0;
-    s->rel_change = share;
-    s->by_decrement = 1;
-    return 1;
+    double q = s->step / s->step_before;
+    int newton = s->newton && s->step_before <= 1 && q < 1 && 10 * q * q <= s->tolerance;
+    /* rounding in the sums sets a floor to the steps (about 1e-12 standard
+     * errors at 3e5 rows, growing with them): once a step is no smaller
+     * than the one before, one within MR__IRLS_FLOOR_SLACK times the
+     * tolerance is as small as it gets */
+    int floor = s->step >= s->step_before && s->step <= MR__IRLS_FLOOR_SLACK * s->tolerance;
+    return s->null_done && (s->step <= s->tolerance || newton || floor);
+}
+
+/* A coefficient ran off to infinity: its standard error grew at each of
+ * the last MR__IRLS_GROWTH_PASSES passes, or to MR__IRLS_GROWTH_FACTOR
+ * times its smallest over the fit (separation drives every fitted weight
+ * to 0; a sound fit's standard errors move by a few times at most). */
+int mr__irls_ran_off(const mr__irls *s, size_t j)
+{
+    return s->growing[j] >= MR__IRLS_GROWTH_PASSES ||
+           (s->se_min[j] > 0 && s->se_prev[j] > MR__IRLS_GROWTH_FACTOR * s->se_min[j]);
 }
 
 mr_status mr__irls_step(mr__irls *s, const mr__block_sums *sums, const char *display, int *done, mr__error *err)
@@ -189,7 +268,7 @@ mr_status mr__irls_step(mr__irls *s, const mr__block_sums *sums, const char *dis
     s->halving_run = 0;
     s->iterations++;
     MR__TRY(note_deviance(s, sums->dev, err));
-    if (converged_by_deviance(s, sums)) {
+    if (converged_at_boundary(s, sums)) {
         s->converged = *done = 1;
         return MR_OK;
     }
@@ -204,8 +283,9 @@ mr_status mr__irls_step(mr__irls *s, const mr__block_sums *sums, const char *dis
         s->null_dev = sums->null_dev;
         s->null_known = 1;
     }
-    if (s->iterations >= s->max_iterations) *done = 1;
-    else if (converged_by_decrement(s, sums)) s->converged = *done = 1;
+    s->rel_change = s->step;
+    if (converged_by_step(s)) s->converged = *done = 1;
+    else if (s->iterations >= s->max_iterations) *done = 1;
     return MR_OK;
 }
 
@@ -214,14 +294,14 @@ mr_status mr__irls_step(mr__irls *s, const mr__block_sums *sums, const char *dis
 #define IRLS_INTS(X)                                                                                              \
     X(max_iterations) X(step_at_end) X(null_intercept) X(family) X(from_start) X(have_beta) X(have_prev)        \
     X(have_dev) X(cold_restart) X(null_done) X(null_known) X(halving_run) X(iterations) X(halvings) X(passes) \
-    X(converged) X(by_decrement) X(restarted)
-#define IRLS_DOUBLES(X) X(tolerance) X(dev_prev) X(decrement) X(rel_change) X(null_b0) X(null_dev) X(null_dev_prev)
+    X(converged) X(by_step) X(restarted) X(newton)
+#define IRLS_DOUBLES(X) X(tolerance) X(dispersion_rows) X(dev_prev) X(rel_change) X(step) X(step_before) X(null_b0) X(null_dev) X(null_dev_prev)
 #define COUNT(f) +1
 enum { NINTS = 0 IRLS_INTS(COUNT), NDOUBLES = 0 IRLS_DOUBLES(COUNT), HEAD = 8 + 8 + 8 };
 
 size_t mr__irls_encoded_size(const mr__irls *s)
 {
-    return HEAD + 8 * (NINTS + NDOUBLES + 2 * s->p + s->nhistory);
+    return HEAD + 8 * (NINTS + NDOUBLES + 5 * s->p + s->nhistory);
 }
 
 void mr__irls_encode(const mr__irls *s, unsigned char *out)
@@ -236,6 +316,9 @@ void mr__irls_encode(const mr__irls *s, unsigned char *out)
     IRLS_DOUBLES(PUT_DOUBLE)
     for (j = 0; j < s->p; j++) at = mr__put_f64(at, s->beta[j]);
     for (j = 0; j < s->p; j++) at = mr__put_f64(at, s->prev[j]);
+    for (j = 0; j < s->p; j++) at = mr__put_f64(at, s->se_prev[j]);
+    for (j = 0; j < s->p; j++) at = mr__put_f64(at, s->se_min[j]);
+    for (j = 0; j < s->p; j++) at = mr__put_u64(at, (uint64_t)(int64_t)s->growing[j]);
     for (j = 0; j < s->nhistory; j++) at = mr__put_f64(at, s->history[j]);
 }
 
@@ -249,7 +332,7 @@ static mr_status decode_head(const unsigned char *in, size_t len, uint64_t *p, u
     (void)mr__get_u64(mr__get_u64(in + 8, p), nhistory);
     /* each counted value takes 8 bytes: counts past the length are refused
      * before any size is computed from them */
-    if (*p > len / 16 || *nhistory > len / 8 || len != HEAD + 8 * (NINTS + NDOUBLES + 2 * *p + *nhistory))
+    if (*p > len / 40 || *nhistory > len / 8 || len != HEAD + 8 * (NINTS + NDOUBLES + 5 * *p + *nhistory))
         return mr__fail(err, MR_ERR_IO, "IRLS state: %zu bytes do not hold the state they describe", len);
     return MR_OK;
 }
@@ -276,6 +359,9 @@ mr_status mr__irls_decode(const unsigned char *in, size_t len, mr__irls *s, mr__
     IRLS_DOUBLES(GET_DOUBLE)
     for (j = 0; j < s->p; j++) at = mr__get_f64(at, &s->beta[j]);
     for (j = 0; j < s->p; j++) at = mr__get_f64(at, &s->prev[j]);
+    for (j = 0; j < s->p; j++) at = mr__get_f64(at, &s->se_prev[j]);
+    for (j = 0; j < s->p; j++) at = mr__get_f64(at, &s->se_min[j]);
+    for (j = 0; j < s->p; j++) at = mr__get_u64(at, &v), s->growing[j] = (int32_t)(int64_t)v;
     for (j = 0; j < s->nhistory; j++) at = mr__get_f64(at, &s->history[j]);
     return MR_OK;
 }

@@ -18,13 +18,29 @@
 
 /* Halvings of one step before the fit gives up. */
 #define MR__IRLS_MAX_HALVINGS 30
-/* A step expected to remove at most this share of the tolerance ends the
- * fit without a pass to check it (see mr__irls_step). */
-#define MR__IRLS_DECREMENT_SHARE 1e-2
+/* The null model (one intercept) is done when its deviance changes by
+ * less than this, relative: it converges fast, and with an offset its
+ * deviance repeats only to rounding (~1e-13), so a tighter test might
+ * never pass. */
+#define MR__IRLS_NULL_TOLERANCE 1e-12
+/* With fitted means at the edge of the range, the relative deviance change
+ * that ends the fit (see mr__irls_step). */
+#define MR__IRLS_BOUNDARY_TOLERANCE 1e-10
+/* Steps that stop shrinking (rounding) end the fit within this many times
+ * the tolerance (see converged_by_step in irls.c). */
+#define MR__IRLS_FLOOR_SLACK 1000.0
+/* Passes in a row a standard error must grow for its coefficient to be
+ * taken as running off to infinity. */
+#define MR__IRLS_GROWTH_PASSES 3
+/* Or the growth over the fit that marks it (see mr__irls_ran_off). */
+#define MR__IRLS_GROWTH_FACTOR 100.0
 
 typedef struct mr__irls_cfg {
     size_t p;
-    double tolerance;
+    double tolerance;      /* the largest step, in standard errors, that ends the fit */
+    double dispersion_rows; /* rows with weight when the dispersion is estimated
+                             * (Pearson over rows - rank), else 0 (it is 1) */
+    int newton;            /* a canonical link: IRLS is Newton's method */
     int max_iterations;
     int step_at_end;       /* after the last pass allowed, still take its step */
     const double *start;   /* NULL: from the family's starting means; else p values */
@@ -37,20 +53,26 @@ typedef struct mr__irls_cfg {
 typedef struct mr__irls {
     /* what the fit was asked for */
     uint64_t p;
-    double tolerance;
+    double tolerance, dispersion_rows;
     int32_t max_iterations, step_at_end, null_intercept, family, from_start;
     /* the point: beta is where the next pass goes, prev the last accepted
      * one, next scratch for the solver (not part of the encoding) */
     double *beta, *prev, *next;
     int *aliased;          /* the solver's scratch, likewise */
+    double *inverse;       /* (X'WX)^-1, scratch */
+    /* per coefficient: the last standard error (unit dispersion) and the
+     * passes in a row it grew by more than a tenth */
+    double *se_prev, *se_min; /* and the smallest so far */
+    int32_t *growing;
     int32_t have_beta, have_prev, have_dev, cold_restart;
-    double dev_prev, decrement, rel_change;
+    double dev_prev, rel_change;
+    double step, step_before; /* the last two steps in standard errors */
     /* the null model (intercept and offset only), fitted alongside */
     double null_b0, null_dev, null_dev_prev;
     int32_t null_done, null_known;
     /* counts and flags */
     int32_t halving_run;   /* halvings since the last accepted point */
-    int32_t iterations, halvings, passes, converged, by_decrement, restarted;
+    int32_t iterations, halvings, passes, converged, by_step, restarted, newton;
     /* the deviance of every accepted point, in order */
     double *history;
     size_t nhistory, history_cap;
@@ -71,17 +93,20 @@ const double *mr__irls_null_deviance(const mr__irls *s);
  * the input in the message) or when the solver does. */
 mr_status mr__irls_step(mr__irls *s, const mr__block_sums *sums, const char *display, int *done, mr__error *err);
 
+/* Whether coefficient j ran off to infinity, by its standard errors. */
+int mr__irls_ran_off(const mr__irls *s, size_t j);
+
 /* The coefficients reached (zeros when no point was ever accepted). */
 void mr__irls_coefficients(const mr__irls *s, double *out);
 
-/* THE ENCODING (version 1), little-endian: "MRIS", u32 version, then every
+/* THE ENCODING (version 2; 1 stopped on the deviance), little-endian: "MRIS", u32 version, then every
  * field above but the scratch in declaration order (integers as u64,
- * doubles as their bits), then beta and prev (p each) and the history. */
-#define MR__IRLS_VERSION 1u
+ * doubles as their bits), then beta, prev, se_prev, se_min and growing (p each, growing as u64) and the history. */
+#define MR__IRLS_VERSION 2u
 size_t mr__irls_encoded_size(const mr__irls *s);
 void mr__irls_encode(const mr__irls *s, unsigned char *out);
 /* A fresh state from the bytes (released with mr__irls_release): MR_ERR_IO
- * on bytes that are not a version-1 state, MR_ERR_NO_MEMORY. */
+ * on bytes that are not a version-2 state, MR_ERR_NO_MEMORY. */
 mr_status mr__irls_decode(const unsigned char *in, size_t len, mr__irls *s, mr__error *err);
 
 #endif

@@ -102,7 +102,7 @@ static void small_variances(const sparse_columns *a, const double *cov_s, const 
  * increasing k.  Own loops rather than BLAS: OpenBLAS's dgemv and dgemm
  * take a 128 MiB buffer from an allocator that spins for ever when an
  * address-space limit refuses it. */
-static mr_status map_to_raw(const mr__design *d, const double *beta_s, const double *cov_s, double *beta, double *cov,
+mr_status mr__map_to_raw(const mr__design *d, const double *beta_s, const double *cov_s, double *beta, double *cov,
                             double *se_small, mr__error *err)
 {
     size_t p = d->p, i, j, k, e;
@@ -154,11 +154,12 @@ static void set_inference(mr_fit *fit)
 {
     size_t j, p = fit->p;
     double tail = (1 - fit->level) / 2, q;
-    int use_t = fit->dispersion_estimated;
+    int use_t = fit->dispersion_estimated && !fit->robust; /* robust: asymptotic, normal */
     q = use_t ? -mr__t_quantile(tail, fit->df_residual) : -mr__normal_quantile(tail);
     for (j = 0; j < p; j++) {
         double se, z;
         if (fit->aliased[j]) {
+            if (fit->robust) fit->robust_se[j] = NAN;
             fit->beta[j] = fit->se[j] = fit->stat[j] = fit->pval[j] = fit->lo[j] = fit->hi[j] = NAN;
             continue;
         }
@@ -166,13 +167,17 @@ static void set_inference(mr_fit *fit)
         se = fit->se[j] > 0 ? fit->se[j] * sqrt(fit->dispersion) : sqrt(fit->cov[j * p + j]);
         z = fit->beta[j] / se;
         fit->se[j] = se;
+        if (fit->robust) z = fit->beta[j] / (se = fit->robust_se[j]); /* they drive the tests when asked */
         fit->stat[j] = z;
         fit->pval[j] = use_t ? 2 * mr__t_sf(fabs(z), fit->df_residual) : 2 * mr__normal_sf(fabs(z));
         fit->lo[j] = fit->beta[j] - q * se;
         fit->hi[j] = fit->beta[j] + q * se;
     }
     for (j = 0; j < p * p; j++)
-        if (fit->aliased[j % p] || fit->aliased[j / p]) fit->cov[j] = NAN;
+        if (fit->aliased[j % p] || fit->aliased[j / p]) {
+            fit->cov[j] = NAN;
+            if (fit->robust) fit->robust_cov[j] = NAN;
+        }
 }
 
 /* Centring folds lower-order columns into higher ones; if a column that
@@ -206,7 +211,8 @@ static mr_status set_coefficients(mr_fit *fit, mr__run *r, mr__error *err)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }
     st = mr__solve_normal(r->last.sums.xtwx, r->last.sums.xtwz, p, scratch, fit->aliased, &fit->rank, cov_s, err);
-    if (st == MR_OK) st = map_to_raw(d, r->beta_final, cov_s, fit->beta, fit->cov, fit->se, err);
+    if (st == MR_OK) st = mr__map_to_raw(d, r->beta_final, cov_s, fit->beta, fit->cov, fit->se, err);
+    if (st == MR_OK) st = mr__robust_result(fit, r, err);
     mr__free(scratch);
     mr__free(cov_s);
     if (st != MR_OK) return st;
@@ -335,6 +341,26 @@ static mr_status copy_model(mr_fit *fit, const mr__run *r, mr__error *err)
     return MR_OK;
 }
 
+/* The numeric columns' spread and range, as the first pass found them. */
+static mr_status copy_numerics(mr_fit *fit, const mr__run *r, mr__error *err)
+{
+    const mr__scan_sums *s = &r->first.scan;
+    size_t k, n = r->bind.nnum;
+    fit->numerics_known = 1;
+    if ((fit->numeric = mr__calloc(n + 1, sizeof *fit->numeric)) == NULL)
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (k = 0; k < n; k++, fit->nnumerics++) {
+        mr__fit_numeric *o = &fit->numeric[k];
+        if ((o->name = mr__strdup(r->bind.col[r->bind.num_col[k]].name)) == NULL)
+            return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        o->mean = r->mean[k];
+        o->sd = r->spread[k];
+        o->min = s->xmin[k];
+        o->max = s->xmax[k];
+    }
+    return MR_OK;
+}
+
 static mr_status copy_data_summary(mr_fit *fit, const mr__run *r, mr__error *err)
 {
     const mr__scan_sums *s = &r->first.scan;
@@ -374,7 +400,7 @@ static mr_status copy_run_info(mr_fit *fit, const mr__run *r, mr__error *err)
     fit->resumed_from_pass = r->resumed_from;
     fit->halvings = r->halvings;
     fit->warm_start = r->warm;
-    fit->by_decrement = r->by_decrement;
+    fit->by_step = r->by_step;
     fit->patterns = r->collapsed ? r->npatterns : 0;
     fit->warm_iterations = r->warm_iterations;
     fit->warm_blocks = r->warm ? r->warm_blocks : 0;
@@ -426,7 +452,7 @@ static void collect_warnings(mr_fit *fit, const mr__run *r)
                                                 outcome);
     for (j = 0; j < noutcome; j++) mr__fit_warn(fit, "%s", outcome[j]);
     if (!fit->converged)
-        mr__fit_warn(fit, "NOT CONVERGED after %d IRLS passes (relative deviance change %.3g, tolerance %.3g): "
+        mr__fit_warn(fit, "NOT CONVERGED after %d IRLS passes (last step %.3g standard errors, tolerance %.3g): "
                           "the estimates are not a maximum-likelihood fit",
                      fit->iterations, fit->rel_change, fit->tolerance);
     mr__strbuf_init(&sb);
@@ -461,6 +487,7 @@ mr_status mr__build_fit(mr__run *r, mr_fit **out, mr__error *err)
     st = copy_model(fit, r, err);
     if (st == MR_OK) st = copy_run_info(fit, r, err);
     if (st == MR_OK) st = copy_data_summary(fit, r, err);
+    if (st == MR_OK) st = copy_numerics(fit, r, err);
     if (st == MR_OK && mr__fit_alloc_coefficients(fit, r->design.p) != MR_OK)
         st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     if (st == MR_OK) st = set_coefficients(fit, r, err);
@@ -470,6 +497,7 @@ mr_status mr__build_fit(mr__run *r, mr_fit **out, mr__error *err)
         return st;
     }
     collect_warnings(fit, r);
+    mr__flag_zero_cells(fit, r);
     *out = fit;
     return MR_OK;
 }

@@ -5,10 +5,9 @@
  * every row.  Then IRLS: each pass evaluates the model at the current
  * coefficients, accumulating X'WX, X'Wz, the deviance and the Pearson
  * statistic, and the small p x p system gives the next coefficients.  The
- * loop stops when the relative change in deviance is below the tolerance;
- * the reported statistics are those of the last pass (and so are the
- * coefficients, unless the last Newton step was taken without a pass to
- * check it; see iterate()).  The null model (intercept and offset only) is fitted
+ * loop stops when the step a pass gives is at most the tolerance in
+ * standard errors (irls.c); that step is taken without another pass, and
+ * the reported statistics are those of the last pass.  The null model (intercept and offset only) is fitted
  * alongside in the same passes. */
 #define _POSIX_C_SOURCE 200809L
 #include <cblas.h>
@@ -24,6 +23,7 @@ int openblas_get_num_threads(void);
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "accum/meat.h"
 #include "accum/pass.h"
 #include "common/alloc.h"
 #include "common/clock.h"
@@ -186,12 +186,14 @@ typedef struct irls_job {
     int restarted;       /* the start was given up for the family's own */
     const double *start; /* NULL: from the family's starting means */
     double tolerance;
+    double dispersion_rows; /* see mr__irls_cfg; 0 on the sample (phi taken as 1) */
     int max_iterations;
     double *beta_out;    /* the coefficients reached */
+    int *growing_out;    /* NULL, or per coefficient: its SE grew pass after pass */
     double deviance_shift; /* collapsed patterns: the deviance within patterns */
     mr__irls *resume;    /* NULL, or the state a checkpoint left (taken over) */
     int checkpoints;     /* the fit of the data: a checkpoint after each pass */
-    int iterations, halvings, converged, by_decrement;
+    int iterations, halvings, converged, by_step;
     double rel_change, null_b0;
 } irls_job;
 
@@ -230,6 +232,15 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
     return note_pass(r, res, err);
 }
 
+/* IRLS is Newton's method under a family's canonical link; the negative
+ * binomial's and the Tweedie's defaults (log) are not theirs. */
+static int newton_link(const mr__run *r)
+{
+    int family = r->f->spec.family;
+    return family != MR_NEGATIVE_BINOMIAL && family != MR_TWEEDIE &&
+           mr__spec_link(&r->f->spec) == (int)mr__canonical_link((mr_family)family);
+}
+
 static mr_status init_state(mr__run *r, irls_job *job, mr__irls *s, mr__error *err)
 {
     mr__irls_cfg c;
@@ -242,6 +253,8 @@ static mr_status init_state(mr__run *r, irls_job *job, mr__irls *s, mr__error *e
     memset(&c, 0, sizeof c);
     c.p = r->design.p;
     c.tolerance = job->tolerance;
+    c.dispersion_rows = job->dispersion_rows;
+    c.newton = newton_link(r);
     c.max_iterations = job->max_iterations;
     c.step_at_end = job->step_at_end;
     c.start = job->start;
@@ -262,6 +275,7 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
     mr__irls s;
     mr_status st;
     int done = 0;
+    size_t j;
     memset(&s, 0, sizeof s);
     st = init_state(r, job, &s, err);
     while (st == MR_OK && !done) {
@@ -272,11 +286,13 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
     job->iterations = s.iterations;
     job->halvings = s.halvings;
     job->converged = s.converged;
-    job->by_decrement = s.by_decrement;
+    job->by_step = s.by_step;
     job->restarted = s.restarted;
     job->rel_change = s.rel_change;
     job->null_b0 = s.null_b0;
     if (st == MR_OK) mr__irls_coefficients(&s, job->beta_out);
+    for (j = 0; st == MR_OK && job->growing_out && j < s.p; j++)
+        job->growing_out[j] = mr__irls_ran_off(&s, j);
     mr__irls_release(&s);
     return st;
 }
@@ -304,7 +320,10 @@ static int sample_fit(mr__run *r, size_t stride, const double *start, int max_it
     job.replay = &r->first.sample;
     job.replay_stride = stride;
     job.start = start;
-    job.tolerance = 1e-8;
+    /* the sample's maximum is within its own sampling error of the
+     * file's, so a step of a thousandth of its standard errors is near
+     * enough */
+    job.tolerance = 1e-3;
     job.max_iterations = max_iterations;
     job.step_at_end = start != NULL;
     job.beta_out = out;
@@ -361,16 +380,68 @@ static mr_status fit_data(mr__run *r, mr__irls *resume, mr__error *err)
     }
     job.start = r->warm || r->started ? r->beta_warm : NULL;
     job.tolerance = r->f->tolerance;
+    job.dispersion_rows = mr__spec_dispersion_estimated(&r->f->spec) ? (double)r->first.scan.npos : 0;
     job.max_iterations = r->f->max_passes;
     job.beta_out = r->beta_final;
+    job.growing_out = r->growing;
     MR__TRY(iterate(r, &job, &r->last, err));
     r->iterations = job.iterations;
     r->halvings = job.halvings;
     r->converged = job.converged;
-    r->by_decrement = job.by_decrement;
+    r->by_step = job.by_step;
     r->rel_change = job.rel_change;
     r->null_b0 = job.null_b0;
     return MR_OK;
+}
+
+/* ---- robust standard errors -------------------------------------------- */
+
+/* One pass at the final coefficients for the sandwich's meat (accum/meat.h):
+ * by rows from the kept blocks when there are any, else from the input
+ * (collapsed patterns cannot give it: within a pattern the rows' residuals
+ * differ); by clusters always from the input, whose blocks carry the
+ * cluster column. */
+static mr_status meat_pass(mr__run *r, int table, mr__error *err)
+{
+    mr__irls_point pt;
+    mr__meat_cfg mc;
+    mr__pass_cfg c = pass_config(r, MR__PASS_MEAT);
+    mr_status st;
+    memset(&pt, 0, sizeof pt);
+    pt.design = &r->design;
+    pt.family = &r->family;
+    pt.link = mr__link_ops_of((mr_link)mr__spec_link(&r->f->spec));
+    pt.beta = r->beta_final;
+    pt.null_skip = 1;
+    memset(&mc, 0, sizeof mc);
+    mc.clusters = r->f->cluster != NULL;
+    mc.table = table;
+    mc.limit = r->f->cluster_memory;
+    mc.display = r->display;
+    c.point = &pt;
+    c.job_arg = &mc;
+    c.map = &r->first.map;
+    if (!mc.clusters && r->use_store && r->store_filled) {
+        c.store = &r->store;
+        c.store_fill = 0;
+    }
+    mr__pass_result_release(&r->meat, 0);
+    st = mr__pass_run(&c, &r->meat, err);
+    if (st != MR_OK) return st;
+    if (c.store == NULL) MR__TRY(check_same_input(r, &r->meat, err));
+    return note_pass(r, &r->meat, err);
+}
+
+/* Streamed first: a file grouped by the cluster column needs one set of
+ * the clusters seen; when a cluster comes back, the pass runs again with
+ * every cluster's sums in a table. */
+static mr_status robust_pass(mr__run *r, mr__error *err)
+{
+    mr_status st = meat_pass(r, 0, err);
+    if (st == MR_OK || !r->meat.clusters_not_grouped) return st;
+    mr__error_clear(err);
+    r->clusters_table = 1;
+    return meat_pass(r, 1, err);
 }
 
 /* ---- the run ------------------------------------------------------------ */
@@ -381,6 +452,7 @@ void mr__run_release(mr__run *r)
     mr__irls_release(&r->resume);
     mr__pass_result_release(&r->first, r->bind.nfac);
     mr__pass_result_release(&r->last, 0);
+    mr__pass_result_release(&r->meat, 0);
     mr__design_release(&r->design);
     for (f = 0; r->levels && f < r->bind.nfac; f++) mr__levelset_release(&r->levels[f]);
     for (f = 0; r->level_names && f < r->bind.nfac; f++) mr__free(r->level_names[f]);
@@ -393,6 +465,7 @@ void mr__run_release(mr__run *r)
     mr__free(r->pass_seconds);
     mr__free(r->beta_final);
     mr__free(r->beta_warm);
+    mr__free(r->growing);
     mr__store_release(&r->store);
     mr__store_release(&r->patterns);
     mr__pass_pool_release(&r->pool);
@@ -407,7 +480,8 @@ static mr_status allocate_coefficients(mr__run *r, mr__error *err)
     size_t p = r->design.p + 1;
     r->beta_final = mr__calloc(p, sizeof(double));
     r->beta_warm = mr__calloc(p, sizeof(double));
-    if (!r->beta_final || !r->beta_warm)
+    r->growing = mr__calloc(p, sizeof *r->growing);
+    if (!r->beta_final || !r->beta_warm || !r->growing)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     return MR_OK;
 }
@@ -460,6 +534,7 @@ mr_status mr__run_rest(mr__run *r, mr_fit **out)
      * warm start then only gives its sample back */
     if (st == MR_OK && !r->have_resume) warm_start(r);
     if (st == MR_OK) st = fit_data(r, r->have_resume ? &r->resume : NULL, err);
+    if (st == MR_OK && mr__robust_type(f) != MR_ROBUST_NONE) st = robust_pass(r, err);
     if (st == MR_OK) st = mr__build_fit(r, out, err);
     return st;
 }

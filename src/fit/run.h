@@ -12,6 +12,9 @@
 
 #define MR__MAX_MISSING_TOKENS 64
 
+/* Pairs of interacting factors whose cells the first pass counts. */
+#define MR__MAX_PAIRS 32
+
 typedef struct mr__run {
     mr_fitter *f;
     const char *path, *read_path;
@@ -25,6 +28,7 @@ typedef struct mr__run {
     int bound;
     mr__family family; /* the spec's, as fitted */
     mr__decode_cfg dcfg;
+    int32_t pairs[MR__MAX_PAIRS][2]; /* factors (binding numbers) that interact, two by two */
     size_t missing_len[MR__MAX_MISSING_TOKENS];
     char delim;
     int delim_detected;
@@ -56,14 +60,19 @@ typedef struct mr__run {
     /* IRLS */
     mr__pass_result last; /* sums at the reported coefficients */
     double *beta_final, *beta_warm;
+    int *growing; /* per coefficient: its SE grew pass after pass at the boundary */
     int warm, warm_iterations;
     int started;           /* beta_warm holds a previous fit's coefficients */
     size_t start_carried;  /* how many of them came from it */
     int warm_blocks, warm_polish_blocks; /* sample blocks of the two stages (0: none) */
     double null_b0, rel_change;
-    int iterations, halvings, converged, by_decrement;
+    int iterations, halvings, converged, by_step;
     double *pass_seconds;
     int npasses;
+    /* robust standard errors: the meat pass's result (accum/meat.h) and
+     * whether the clusters had to be held in a table */
+    mr__pass_result meat;
+    int clusters_table;
     /* the checkpoint (checkpoint.c): its lock, the pass it was taken up
      * after (0: none), checkpoints written */
     struct mr_output_lock *checkpoint_lock;
@@ -72,7 +81,22 @@ typedef struct mr__run {
     int have_resume;
 } mr__run;
 
+/* result.c: cov_raw = A cov_internal A' and beta_raw = A beta_internal;
+ * se_small[j] (zeroed by the caller) gets the standard error of a variance
+ * below the range of a double, computed apart. */
+mr_status mr__map_to_raw(const mr__design *d, const double *beta_s, const double *cov_s, double *beta, double *cov,
+                         double *se_small, mr__error *err);
+/* robust.c: the robust covariance and standard errors into fit, from the
+ * meat pass's result r->meat (its bread and meat); after the fit's rank. */
+mr_status mr__robust_result(mr_fit *fit, const mr__run *r, mr__error *err);
+
 mr_status mr__build_fit(mr__run *r, mr_fit **out, mr__error *err);
+
+/* zero_cells.c: factor levels and cells of two interacting factors whose
+ * outcomes are all 0 (or all at the binomial's maximum), from the first
+ * pass's counts: a warning naming them, and fit->inestimable set for the
+ * coefficients they send to infinity.  Out of memory: nothing said. */
+void mr__flag_zero_cells(mr_fit *fit, const mr__run *r);
 
 /* A fit in steps (run.c), for runs that share their first pass
  * (multi.c): begin (the run set up, its model checked; r->f->err says

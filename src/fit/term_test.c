@@ -15,7 +15,7 @@
 
 static double p_value(const mr_fit *fit, double stat, size_t df)
 {
-    if (fit->dispersion_estimated) return mr__f_sf(stat, (double)df, fit->df_residual);
+    if (fit->dispersion_estimated && !fit->robust) return mr__f_sf(stat, (double)df, fit->df_residual);
     /* as the coefficient's own p-value when there is one coefficient */
     if (df == 1) return 2 * mr__normal_sf(sqrt(stat));
     return mr__chisq_sf(stat, (double)df);
@@ -24,12 +24,14 @@ static double p_value(const mr_fit *fit, double stat, size_t df)
 /* b and V of the term's estimated coefficients into x and S (k x k). */
 static size_t gather(const mr_fit *fit, const mr__fit_term *t, size_t *col, double *x, double *S)
 {
+    /* robust standard errors, when asked, drive the tests */
+    const double *cov = fit->robust ? fit->robust_cov : fit->cov;
     size_t j, a, c, k = 0;
     for (j = t->first; j < t->first + t->ncoef; j++)
         if (!fit->aliased[j]) col[k++] = j;
     for (c = 0; c < k; c++) {
         x[c] = fit->beta[col[c]];
-        for (a = 0; a < k; a++) S[c * k + a] = fit->cov[col[c] * fit->p + col[a]];
+        for (a = 0; a < k; a++) S[c * k + a] = cov[col[c] * fit->p + col[a]];
     }
     return k;
 }
@@ -49,7 +51,7 @@ static mr_status test_term(mr_fit *fit, mr__fit_term *t)
         if (st == MR_ERR_NUMERIC) st = MR_OK;
     }
     if (st == MR_OK && !isnan(t->test_chi2)) {
-        t->test_stat = fit->dispersion_estimated ? t->test_chi2 / (double)t->test_df : t->test_chi2;
+        t->test_stat = fit->dispersion_estimated && !fit->robust ? t->test_chi2 / (double)t->test_df : t->test_chi2;
         t->test_p = p_value(fit, t->test_stat, t->test_df);
     }
     mr__free(col);
@@ -80,6 +82,6 @@ int mr_fit_term_test(const mr_fit *fit, size_t t, double *stat, double *df, doub
     if (stat != NULL) *stat = term ? term->test_stat : NAN;
     if (df != NULL) *df = term ? (double)term->test_df : 0;
     if (p != NULL) *p = term ? term->test_p : NAN;
-    if (is_f != NULL) *is_f = fit->dispersion_estimated;
+    if (is_f != NULL) *is_f = fit->dispersion_estimated && !fit->robust;
     return term != NULL && !isnan(term->test_stat);
 }

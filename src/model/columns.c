@@ -60,7 +60,8 @@ static mr_status unknown_column(const char *name, char **h, size_t n, const char
 static const char *role_name(mr__use use)
 {
     static const char *const name[] = {"the outcome", "the trials", "the weight", "the offset",
-                                       "the exposure", "a numeric covariate", "a factor"};
+                                       "the exposure", "a numeric covariate", "a factor",
+                                       "the cluster column"};
     return name[use];
 }
 
@@ -112,7 +113,7 @@ static mr_status bind_roles(mr__binding *b, const mr__spec *s, const char *displ
 mr_status mr__bind(mr__binding *b, const mr__spec *s, char **header, size_t nfields, const char *display,
                    mr__error *err)
 {
-    size_t i, maxcol = 5 + s->ncov;
+    size_t i, maxcol = 6 + s->ncov; /* the roles, the covariates, a cluster column */
     mr_status st;
     memset(b, 0, sizeof *b);
     b->header = header;
@@ -133,6 +134,23 @@ mr_status mr__bind(mr__binding *b, const mr__spec *s, char **header, size_t nfie
     b->has_offset = s->offset != NULL;
     b->has_exposure = s->exposure != NULL;
     return st;
+}
+
+mr_status mr__bind_cluster(mr__binding *b, const char *name, const char *display, mr__error *err)
+{
+    size_t f;
+    for (f = 0; f < b->nfields; f++)
+        if (strcmp(b->header[f], name) == 0) break;
+    if (f == b->nfields)
+        return mr__fail(err, MR_ERR_USAGE, "%s: the cluster column '%s' is not in the header", display, name);
+    b->has_cluster = 1;
+    if (b->col_of_field[f] >= 0) {
+        b->cluster_col = b->col_of_field[f];
+        return MR_OK;
+    }
+    MR__TRY(add_column(b, name, MR__USE_CLUSTER, -1, display, err));
+    b->cluster_col = (int)b->ncol - 1;
+    return MR_OK;
 }
 
 void mr__binding_release(mr__binding *b)

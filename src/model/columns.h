@@ -15,7 +15,9 @@ typedef enum mr__use {
     MR__USE_OFFSET,
     MR__USE_EXPOSURE,
     MR__USE_NUMERIC,
-    MR__USE_FACTOR
+    MR__USE_FACTOR,
+    MR__USE_CLUSTER   /* the cluster column of robust standard errors alone:
+                         its cells are told apart, never parsed */
 } mr__use;
 
 typedef struct mr__column {
@@ -41,12 +43,20 @@ typedef struct mr__binding {
     int has_trials, has_weight, has_offset, has_exposure;
     /* Bound column of each role (mr__use up to MR__USE_EXPOSURE), -1 if absent. */
     int role_col[MR__USE_EXPOSURE + 1];
+    /* has_cluster: the bound column cluster_col's cells name each row's
+     * cluster (a column of its own, or one the model uses too); a zeroed
+     * binding has none. */
+    int has_cluster, cluster_col;
 } mr__binding;
 
 /* Takes ownership of `header` (nfields names).  Errors: a model column not
  * in the header, a duplicate header name, a column used twice. */
 mr_status mr__bind(mr__binding *b, const mr__spec *spec, char **header, size_t nfields, const char *display,
                    mr__error *err);
+/* After mr__bind: the column `name` also names each row's cluster (robust
+ * standard errors by cluster).  A column the model uses is shared; any
+ * other is bound as MR__USE_CLUSTER.  MR_ERR_USAGE when the header lacks it. */
+mr_status mr__bind_cluster(mr__binding *b, const char *name, const char *display, mr__error *err);
 void mr__binding_release(mr__binding *b);
 
 #endif

@@ -87,8 +87,10 @@ static mr_status read_settings(mr__html_page *pg, const char *const *settings, s
             if (k == pg->nfits)
                 return mr__fail(err, MR_ERR_USAGE, "at '%s': no fit has a numeric covariate '%s'", s + 3,
                                 pg->at_name[pg->nat - 1]);
+        } else if (strncmp(s, "groups ", 7) == 0 && s[7] != '\0') {
+            pg->groups_path = s + 7;
         } else {
-            return mr__fail(err, MR_ERR_USAGE, "unknown setting '%s' (digits N, at COLUMN=VALUE)", s);
+            return mr__fail(err, MR_ERR_USAGE, "unknown setting '%s' (digits N, at COLUMN=VALUE, groups FILE)", s);
         }
     }
     return MR_OK;
@@ -196,13 +198,10 @@ static void summary_model(mr__strbuf *b, const mr_fit *f)
 static void summary_convergence(mr__strbuf *b, const mr_fit *f)
 {
     size_t i;
-    mr__strbuf_printf(b, "<h3>Convergence</h3>\n<p%s>%s after %d IRLS iterations (%d pass%s over the data); %s "
-                         "%.3g (tolerance %.3g).</p>\n",
+    mr__strbuf_printf(b, "<h3>Convergence</h3>\n<p%s>%s after %d IRLS iterations (%d pass%s over the data); last step "
+                         "%.3g standard errors (tolerance %.3g).</p>\n",
                       f->converged ? "" : " class=\"warn\"", f->converged ? "Converged" : "NOT CONVERGED: do not use",
-                      f->iterations, f->passes, f->passes == 1 ? "" : "es",
-                      f->by_decrement ? "relative deviance change the last step predicts"
-                                      : "last relative deviance change",
-                      f->rel_change, f->tolerance);
+                      f->iterations, f->passes, f->passes == 1 ? "" : "es", f->rel_change, f->tolerance);
     for (i = 0; i < f->nwarnings; i++) {
         put(b, i ? "\n<li>" : "<p class=\"warn\">Warnings:</p>\n<ul><li>");
         mr__html_text(b, f->warning[i]);
@@ -210,26 +209,53 @@ static void summary_convergence(mr__strbuf *b, const mr_fit *f)
     }
 }
 
+/* Which standard errors the table shows: robust ones drive its tests. */
+static void robust_note(mr__strbuf *b, const mr_fit *f)
+{
+    if (!f->robust) return;
+    mr__strbuf_printf(b, "<p>Standard errors: robust (sandwich %s, factor %.9g) ", f->robust_type,
+                      f->robust_adjustment);
+    if (f->cluster) {
+        put(b, "by cluster column ");
+        cell(b, "code", f->cluster);
+        mr__strbuf_printf(b, ", %llu clusters%s", (unsigned long long)f->nclusters,
+                          f->nclusters < 50 ? " (few clusters: they may be too small)" : "");
+    } else {
+        put(b, "by rows");
+    }
+    put(b, "; the model-based ones are in the JSON.</p>\n");
+}
+
 static void coefficient_table(mr__strbuf *b, const mr__html_page *pg, const mr_fit *f)
 {
     const char *ratio = mr__fit_ratio_label(f);
     size_t j;
-    mr__strbuf_printf(b, "<h3>Coefficients</h3>\n<p>Wald %s tests and %g%% intervals%s%s%s.</p>\n"
-                         "<table class=\"num\"><thead><tr><th>coefficient</th><th>estimate</th><th>SE</th>"
-                         "<th>%s</th><th>p</th><th>low</th><th>high</th>",
+    mr__strbuf_printf(b, "<h3>Coefficients</h3>\n<p>Wald %s tests and %g%% intervals%s%s%s.</p>\n",
                       mr__fit_statistic_name(f), 100 * f->level, ratio ? "; " : "", ratio ? ratio : "",
-                      ratio ? " = exp(estimate)" : "", mr__fit_statistic_name(f));
+                      ratio ? " = exp(estimate)" : "");
+    robust_note(b, f);
+    mr__strbuf_printf(b, "<table class=\"num\"><thead><tr><th>coefficient</th><th>estimate</th><th>%s</th>"
+                         "<th>%s</th><th>p</th><th>low</th><th>high</th>",
+                      f->robust ? "robust SE" : "SE", mr__fit_statistic_name(f));
     if (ratio) mr__strbuf_printf(b, "<th>%s</th><th>low</th><th>high</th>", ratio);
     put(b, "</tr></thead><tbody>\n");
     for (j = 0; j < f->p; j++) {
-        put(b, "<tr>");
-        cell(b, "td", f->name[j]);
+        put(b, f->inestimable && f->inestimable[j] ? "<tr class=\"warn\">" : "<tr>");
+        if (f->inestimable && f->inestimable[j]) {
+            mr__strbuf label;
+            mr__strbuf_init(&label);
+            mr__strbuf_printf(&label, "%s (not estimable)", f->name[j]);
+            cell(b, "td", label.data ? label.data : f->name[j]);
+            mr__strbuf_release(&label);
+        } else {
+            cell(b, "td", f->name[j]);
+        }
         if (f->aliased[j]) {
             mr__strbuf_printf(b, "<td colspan=\"%d\">aliased (no estimate)</td></tr>\n", ratio ? 9 : 6);
             continue;
         }
         num_cell(b, f->beta[j], pg->digits);
-        num_cell(b, f->se[j], pg->digits);
+        num_cell(b, f->robust ? f->robust_se[j] : f->se[j], pg->digits);
         num_cell(b, f->stat[j], pg->digits);
         put(b, "<td>");
         mr__html_p_value(b, f->pval[j]);
@@ -313,6 +339,9 @@ static void one_fit(mr__strbuf *b, const mr__html_page *pg, size_t k)
     mr__html_forest(b, pg, k);
     put(b, "<h3>Effect plots</h3>\n");
     mr__html_effects(b, pg, k);
+    put(b, "<h3>Effect curves</h3>\n");
+    mr__html_curves(b, pg, k);
+    mr__html_calibration(b, pg, k);
     put(b, "</section>\n");
 }
 
@@ -371,10 +400,10 @@ static const char cautions[] =
     "</ul>\n</section>\n";
 
 static const char not_shown[] =
-    "<section id=\"not-shown\">\n<h2>Not shown</h2>\n<p>Calibration plots (observed against fitted by group) and "
-    "funnel plots (units against their precision) need scored rows or grouped totals, which a saved fit does not "
-    "carry yet; they will appear here when it does. Nothing on this page is drawn from data the fit does not "
-    "hold.</p>\n</section>\n";
+    "<section id=\"not-shown\">\n<h2>Not shown</h2>\n<p>A calibration plot (observed against fitted by tenth of "
+    "the fitted mean) appears under a fit whose saved file holds its calibration groups; a funnel plot (groups' "
+    "observed/expected against the expected count) when a scoring run's group table is given (--groups). Nothing "
+    "on this page is drawn from data the fits and that table do not hold.</p>\n</section>\n";
 
 static void contents(mr__strbuf *b, const mr__html_page *pg)
 {
@@ -386,6 +415,7 @@ static void contents(mr__strbuf *b, const mr__html_page *pg)
         put(b, "</a></li>\n");
     }
     if (pg->nfits > 1) put(b, "<li><a href=\"#comparison\">Comparison of the fits</a></li>\n");
+    if (pg->groups_path) put(b, "<li><a href=\"#groups\">Groups: observed against expected</a></li>\n");
     put(b, "<li><a href=\"#not-shown\">Not shown</a></li>\n</ul></nav>\n");
 }
 
@@ -407,6 +437,7 @@ static void page(mr__strbuf *b, const mr__html_page *pg)
     put(b, cautions);
     for (k = 0; k < pg->nfits; k++) one_fit(b, pg, k);
     if (pg->nfits > 1) comparison(b, pg);
+    if (pg->groups_path) mr__strbuf_append(b, pg->funnel.data, pg->funnel.len);
     put(b, not_shown);
     put(b, "</body>\n</html>\n");
 }
@@ -415,9 +446,10 @@ static void page(mr__strbuf *b, const mr__html_page *pg)
  * they were fitted to. */
 static const char **inputs_of(const mr__html_page *pg, size_t *n)
 {
-    const char **in = mr__calloc(2 * pg->nfits + 1, sizeof *in);
+    const char **in = mr__calloc(2 * pg->nfits + 2, sizeof *in);
     size_t k;
     *n = 0;
+    if (in && pg->groups_path) in[(*n)++] = pg->groups_path;
     for (k = 0; in && k < pg->nfits; k++) {
         if (pg->source && pg->source[k]) in[(*n)++] = pg->source[k];
         if (strcmp(pg->fit[k]->path, "<stdin>") != 0) in[(*n)++] = pg->fit[k]->path;
@@ -452,6 +484,16 @@ static mr_status write_page(const mr__html_page *pg, const char *path, mr__error
     return mr__outfile_commit(out, err);
 }
 
+/* The group table's section, before the page is opened: a table that
+ * cannot be read leaves no page. */
+static mr_status funnel(mr__html_page *pg, mr__error *err)
+{
+    mr__strbuf_init(&pg->funnel);
+    if (pg->groups_path == NULL) return MR_OK;
+    MR__TRY(mr__html_funnel(&pg->funnel, pg->groups_path, pg->digits, err));
+    return pg->funnel.failed ? mr__fail(err, MR_ERR_NO_MEMORY, "%s: out of memory", pg->groups_path) : MR_OK;
+}
+
 mr_status mr_fits_write_html(const mr_fit *const *fits, const char *const *sources, size_t nfits,
                              const char *const *settings, size_t nsettings, const char *path, char *msg, size_t msgcap)
 {
@@ -464,8 +506,10 @@ mr_status mr_fits_write_html(const mr_fit *const *fits, const char *const *sourc
     pg.nfits = nfits;
     pg.digits = DEFAULT_DIGITS;
     if (nfits == 0) mr__fail(&err, MR_ERR_USAGE, "%s: a page needs at least one fit", path);
-    else if (read_settings(&pg, settings, nsettings, &err) == MR_OK) write_page(&pg, path, &err);
+    else if (read_settings(&pg, settings, nsettings, &err) == MR_OK && funnel(&pg, &err) == MR_OK)
+        write_page(&pg, path, &err);
     free_settings(&pg);
+    mr__strbuf_release(&pg.funnel);
     mr__error_export(&err, msg, msgcap);
     return err.status;
 }

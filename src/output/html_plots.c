@@ -96,11 +96,31 @@ static size_t forest_rows(const mr_fit *f, mr__svg_row *row, const char *ratio)
     return n;
 }
 
+#define FOREST_MAX 60 /* coefficients; beyond, the largest |statistic| */
+#define FOREST_TOP 40
+
+/* The FOREST_TOP estimated coefficients of largest |statistic| (ties by
+ * position), in their order in the fit. */
+static size_t top_rows(const mr_fit *f, mr__svg_row *row)
+{
+    size_t j, i, n = 0, first = f->nterms ? f->term[0].first : 0;
+    for (j = first; j < f->p; j++) {
+        size_t above = 0;
+        if (f->aliased[j] || !isfinite(f->stat[j])) continue;
+        for (i = first; i < f->p && above < FOREST_TOP; i++)
+            above += !f->aliased[i] && isfinite(f->stat[i]) &&
+                     (fabs(f->stat[i]) > fabs(f->stat[j]) || (fabs(f->stat[i]) == fabs(f->stat[j]) && i < j));
+        if (above < FOREST_TOP) coef_row(&row[n++], f->name[j], f, j);
+    }
+    return n;
+}
+
 void mr__html_forest(mr__strbuf *b, const mr__html_page *pg, size_t k)
 {
     const mr_fit *f = pg->fit[k];
     const char *ratio = mr__fit_ratio_label(f);
     size_t i, n = f->p + f->nterms, levels = 0;
+    int top = f->p > FOREST_MAX;
     mr__svg_chart c;
     mr__svg_row *row;
     mr__strbuf title, desc, axis;
@@ -109,7 +129,7 @@ void mr__html_forest(mr__strbuf *b, const mr__html_page *pg, size_t k)
     if (f->nterms == 0 || (row = new_rows(b, n + levels)) == NULL) return;
     memset(&c, 0, sizeof c);
     c.row = row;
-    c.nrows = forest_rows(f, row, ratio);
+    c.nrows = top ? top_rows(f, row) : forest_rows(f, row, ratio);
     for (i = 0; ratio && i < c.nrows; i++)
         if (row[i].mark == MR__MARK_ESTIMATE) to_ratio(&row[i]);
     texts_init(&title, &desc, &axis);
@@ -118,6 +138,11 @@ void mr__html_forest(mr__strbuf *b, const mr__html_page *pg, size_t k)
                              "marked at %s. Numeric covariates: per unit increase. The intercept is in the table, "
                              "not here.",
                       ratio ? ratio : "coefficient", 100 * f->level, ratio ? "ratio 1" : "0");
+    if (top)
+        mr__strbuf_printf(&desc, " The fit has %zu coefficients: shown are the %zu of largest |%s| (in the fit's "
+                                 "order, not grouped), the rest are in the table. Picked by size, they overstate "
+                                 "their effects: read them as a screen, not as estimates.",
+                          f->p, c.nrows, mr__fit_statistic_name(f));
     if (ratio) mr__strbuf_printf(&axis, "%s = exp(coefficient)", ratio);
     else mr__strbuf_printf(&axis, "coefficient (link scale)");
     snprintf(id, sizeof id, "forest-%zu", k + 1);
@@ -127,7 +152,8 @@ void mr__html_forest(mr__strbuf *b, const mr__html_page *pg, size_t k)
     c.digits = pg->digits;
     c.legend[MR__MARK_ESTIMATE] = "estimate, line: its interval";
     c.legend[MR__MARK_REFERENCE] = "reference level";
-    draw(b, &c, &title, &desc, &axis);
+    if (c.nrows) draw(b, &c, &title, &desc, &axis);
+    else mr__strbuf_release(&title), mr__strbuf_release(&desc), mr__strbuf_release(&axis);
     mr__free(row);
 }
 
@@ -149,62 +175,43 @@ static long at_index(const mr__html_page *pg, const char *name)
     return -1;
 }
 
-static double numeric_value(const mr__html_page *pg, const char *name)
+/* A numeric covariate's value in the plots: given with --at, else its
+ * mean over the rows used when the fit records it, else 0. */
+double mr__html_numeric_value(const mr__html_page *pg, const mr_fit *f, const char *name)
 {
     long i = at_index(pg, name);
-    return i < 0 ? 0 : pg->at_value[i];
+    const mr__fit_numeric *num = mr__fit_find_numeric(f, name);
+    return i >= 0 ? pg->at_value[i] : num ? num->mean : 0;
 }
 
-/* The design row of a profile: factor `fi` at level `l`, every other
- * factor at its reference, numerics at their values.  A term's columns
- * run over its factors' levels (those with a column), the first slowest. */
-static void profile_row(const mr__html_page *pg, const mr_fit *f, long fi, size_t l, double *x)
+/* The design row of factor fi at level l, the rest as held. */
+static void profile_row(const mr__html_page *pg, const mr_fit *f, const struct mr__spline *sp, long fi, size_t l,
+                        double *x)
 {
-    size_t t, j;
-    for (j = 0; j < f->p; j++) x[j] = 0;
-    if (f->intercept && f->p > 0 && (f->nterms == 0 || f->term[0].first > 0)) x[0] = 1;
-    for (t = 0; t < f->nterms; t++) {
-        const mr__fit_term *term = &f->term[t];
-        size_t k, index = 0;
-        double value = 1;
-        int active = term->ncoef > 0;
-        for (k = 0; active && k < term->nparts; k++) {
-            long a = mr__fit_find_factor(f, term->part[k]);
-            const mr__fit_factor *fac = a >= 0 ? &f->factor[a] : NULL;
-            long ref = fac ? level_index(fac, fac->reference) : -1, at = a == fi ? (long)l : ref;
-            size_t width = fac ? fac->nlevels - (term->full || ref < 0 ? 0 : 1) : 1;
-            if (fac == NULL) {
-                value *= numeric_value(pg, term->part[k]);
-                continue;
-            }
-            if (!term->full && at == ref) active = 0;
-            else index = index * width + (size_t)(term->full || at < ref ? at : at - 1);
-        }
-        if (active && index < term->ncoef) x[term->first + index] = value;
-    }
+    mr__html_profile p;
+    memset(&p, 0, sizeof p);
+    p.pg = pg, p.fit = f, p.factor = fi, p.level = l, p.spline = sp;
+    mr__html_design_row(&p, x, x + f->p);
 }
 
-/* eta = x'beta and its standard error sqrt(x'Vx); NaN when x uses an
- * aliased column. */
-static void linear_predictor(const mr_fit *f, const double *x, double *eta, double *se)
+/* eta = x'beta and its standard error sqrt(x'Vx).  An aliased column
+ * counts as 0, as in the fit, which dropped it: the fitted values are
+ * those of the columns estimated. */
+void mr__html_linear_predictor(const mr_fit *f, const double *x, double *eta, double *se)
 {
     size_t i, j;
     double e = 0, v = 0;
     for (i = 0; i < f->p; i++) {
-        if (x[i] == 0) continue;
-        if (f->aliased[i]) {
-            *eta = *se = NAN;
-            return;
-        }
+        if (x[i] == 0 || f->aliased[i]) continue;
         e += x[i] * f->beta[i];
         for (j = 0; j < f->p; j++)
-            if (x[j] != 0) v += x[i] * x[j] * f->cov[i * f->p + j];
+            if (x[j] != 0 && !f->aliased[j]) v += x[i] * x[j] * f->cov[i * f->p + j];
     }
     *eta = e;
     *se = sqrt(v);
 }
 
-static double inverse_link(const mr_fit *f, double eta)
+double mr__html_inverse_link(const mr_fit *f, double eta)
 {
     double mu_eta;
     return mr__link_inv1(mr__link_ops_of((mr_link)f->link), eta, &mu_eta);
@@ -213,15 +220,15 @@ static double inverse_link(const mr_fit *f, double eta)
 static void effect_row(const mr_fit *f, const double *x, double q, double scale, mr__svg_row *r)
 {
     double eta, se, a, z;
-    linear_predictor(f, x, &eta, &se);
+    mr__html_linear_predictor(f, x, &eta, &se);
     if (isnan(eta)) {
         r->est = r->lo = r->hi = NAN;
         r->mark = MR__MARK_NONE;
         return;
     }
-    a = scale * inverse_link(f, eta - q * se);
-    z = scale * inverse_link(f, eta + q * se);
-    r->est = scale * inverse_link(f, eta);
+    a = scale * mr__html_inverse_link(f, eta - q * se);
+    z = scale * mr__html_inverse_link(f, eta + q * se);
+    r->est = scale * mr__html_inverse_link(f, eta);
     r->lo = a < z ? a : z; /* a decreasing inverse link swaps them */
     r->hi = a < z ? z : a;
     r->mark = MR__MARK_ESTIMATE;
@@ -232,7 +239,7 @@ static void effect_row(const mr_fit *f, const double *x, double q, double scale,
 /* What the effect plots show, and the power of ten a rate is given per
  * (chosen from the reference profile's value m0, so its numbers read as
  * ordinary figures). */
-static double effect_scale(const mr_fit *f, double m0, mr__strbuf *axis)
+double mr__html_effect_scale(const mr_fit *f, double m0, mr__strbuf *axis)
 {
     double scale = 1;
     int k, i;
@@ -261,8 +268,9 @@ static int named_before(const mr_fit *f, const char *name, size_t t, size_t k)
     return 0;
 }
 
-/* Where the other covariates are held, in words. */
-static void held_at(const mr__html_page *pg, const mr_fit *f, long fi, mr__strbuf *d)
+/* Where the other covariates are held, in words (all but factor fi and
+ * the numeric `skip`). */
+void mr__html_held_at(const mr__html_page *pg, const mr_fit *f, long fi, const char *skip, mr__strbuf *d)
 {
     size_t t, k, i, n = 0, zeros = 0;
     for (i = 0; i < f->nfactors; i++)
@@ -271,18 +279,23 @@ static void held_at(const mr__html_page *pg, const mr_fit *f, long fi, mr__strbu
     for (t = 0; t < f->nterms; t++)
         for (k = 0; k < f->term[t].nparts; k++) {
             const char *name = f->term[t].part[k];
-            if (mr__fit_find_factor(f, name) >= 0 || named_before(f, name, t, k)) continue;
-            mr__strbuf_printf(d, "%s%s at %g", n++ ? ", " : " Held: ", name, numeric_value(pg, name));
-            zeros += at_index(pg, name) < 0;
+            int given = at_index(pg, name) >= 0, known = mr__fit_find_numeric(f, name) != NULL;
+            if (mr__fit_find_factor(f, name) >= 0 || named_before(f, name, t, k) || (skip && !strcmp(skip, name)))
+                continue;
+            mr__strbuf_printf(d, "%s%s at %.6g%s", n++ ? ", " : " Held: ", name, mr__html_numeric_value(pg, f, name),
+                              given ? "" : known ? " (its mean)" : "");
+            zeros += !given && !known;
         }
     if (n) mr__strbuf_printf(d, ".");
     if (zeros)
-        mr__strbuf_printf(d, " A numeric covariate is at 0 unless a value is given: the fit does not record the "
-                             "values it centred them on. Where 0 lies outside the data the fitted values are "
-                             "extrapolations: read the differences between rows, not the levels.");
+        mr__strbuf_printf(d, " A numeric covariate is at 0 unless a value is given: this fit does not record the "
+                             "values of its numeric columns (saved by an older version). Where 0 lies outside the "
+                             "data the fitted values are extrapolations: read the differences between rows, not the "
+                             "levels.");
 }
 
-static void effect_plot(mr__strbuf *b, const mr__html_page *pg, size_t k, long fi, double *x, mr__svg_row *row)
+static void effect_plot(mr__strbuf *b, const mr__html_page *pg, size_t k, long fi, double *x, mr__svg_row *row,
+                        const struct mr__spline *sp)
 {
     const mr_fit *f = pg->fit[k];
     const mr__fit_factor *fac = &f->factor[fi];
@@ -291,18 +304,18 @@ static void effect_plot(mr__strbuf *b, const mr__html_page *pg, size_t k, long f
     mr__strbuf title, desc, axis;
     char id[48];
     size_t l;
-    profile_row(pg, f, fi, (size_t)(level_index(fac, fac->reference) < 0 ? 0 : level_index(fac, fac->reference)), x);
-    linear_predictor(f, x, &eta, &se);
+    profile_row(pg, f, sp, fi, (size_t)(level_index(fac, fac->reference) < 0 ? 0 : level_index(fac, fac->reference)), x);
+    mr__html_linear_predictor(f, x, &eta, &se);
     texts_init(&title, &desc, &axis);
-    scale = effect_scale(f, inverse_link(f, eta), &axis);
+    scale = mr__html_effect_scale(f, mr__html_inverse_link(f, eta), &axis);
     for (l = 0; l < fac->nlevels; l++) {
-        profile_row(pg, f, fi, l, x);
+        profile_row(pg, f, sp, fi, l, x);
         effect_row(f, x, q, scale, &row[l]);
         row[l].label = fac->level[l];
     }
     mr__strbuf_printf(&title, "Effect plot: %s by %s", axis.failed ? "" : axis.data, fac->name);
     mr__strbuf_printf(&desc, "Fitted value for each level of %s (reference %s).", fac->name, fac->reference);
-    held_at(pg, f, fi, &desc);
+    mr__html_held_at(pg, f, fi, NULL, &desc);
     mr__strbuf_printf(&desc, " Intervals: %g%% Wald intervals of the linear predictor (delta method: its standard "
                              "error from the covariance of the coefficients), transformed by the inverse %s link.",
                       100 * f->level, mr__link_name((mr_link)f->link));
@@ -324,22 +337,24 @@ void mr__html_effects(mr__strbuf *b, const mr__html_page *pg, size_t k)
     size_t i, most = 0;
     double *x;
     mr__svg_row *row;
+    struct mr__spline *sp = mr__html_splines(f);
     for (i = 0; i < f->nfactors; i++)
         if (f->factor[i].nlevels > most) most = f->factor[i].nlevels;
-    x = mr__malloc_array(f->p ? f->p : 1, sizeof *x);
+    x = mr__malloc_array(2 * f->p + 1, sizeof *x);
     row = new_rows(b, most);
-    if (x == NULL) b->failed = 1;
-    for (i = 0; x && row && i < f->nfactors; i++) {
+    if (x == NULL || sp == NULL) b->failed = 1;
+    for (i = 0; x && row && sp && i < f->nfactors; i++) {
         if (f->factor[i].nlevels > MAX_EFFECT_LEVELS) {
             mr__strbuf_printf(b, "<p class=\"note\">No effect plot for ");
             mr__html_text(b, f->factor[i].name);
             mr__strbuf_printf(b, ": %zu levels (at most %d are drawn).</p>\n", f->factor[i].nlevels, MAX_EFFECT_LEVELS);
         } else if (f->factor[i].nlevels > 1) {
-            effect_plot(b, pg, k, (long)i, x, row);
+            effect_plot(b, pg, k, (long)i, x, row, sp);
         }
     }
     mr__free(x);
     mr__free(row);
+    mr__free(sp);
 }
 
 /* ---- changes between fits -------------------------------------------- */

@@ -122,13 +122,13 @@ static json_t *term_columns(const mr_fit *f, const mr__fit_term *t)
     return a;
 }
 
-static json_t *covariance(const mr_fit *f)
+static json_t *covariance(const mr_fit *f, const double *m)
 {
     json_t *cov = json_array();
     size_t i, j;
     for (i = 0; cov != NULL && i < f->p; i++) {
         json_t *row = json_array();
-        for (j = 0; row != NULL && j < f->p; j++) row = append(row, num(f->cov[j * f->p + i]));
+        for (j = 0; row != NULL && j < f->p; j++) row = append(row, num(m[j * f->p + i]));
         cov = append(cov, row);
     }
     return cov;
@@ -138,7 +138,8 @@ static json_t *special(const mr_fit *f, int which, const void *base)
 {
     json_t *o;
     size_t i;
-    if (which == MR__JS_COVARIANCE) return covariance(f);
+    if (which == MR__JS_COVARIANCE) return covariance(f, f->cov);
+    if (which == MR__JS_ROBUST_COVARIANCE) return covariance(f, f->robust_cov);
     if (which == MR__JS_TERM_COLUMNS) return term_columns(f, base);
     o = json_object();
     for (i = 0; o != NULL && i < f->nmissing; i++)
@@ -158,7 +159,8 @@ static json_t *scalar(const mr__jfield *fl, const void *v)
     case MR__J_U64: return json_integer((json_int_t) * (const uint64_t *)v);
     case MR__J_I64: return json_integer((json_int_t) * (const int64_t *)v);
     case MR__J_REAL: return num(*(const double *)v);
-    case MR__J_BOOL: return json_boolean(*(const int *)v);
+    case MR__J_BOOL:
+    case MR__J_BOOL_ADDED: return json_boolean(*(const int *)v);
     case MR__J_TEXT:
     case MR__J_TEXT_OR_NULL: return mr__json_text(*(char *const *)v);
     case MR__J_CHOICE: return json_string(*(const int *)v ? fl->yes : fl->no);

@@ -96,6 +96,18 @@ static mr_status read_integer(reader *r, json_t *v, json_int_t lo, json_int_t hi
     return MR_OK;
 }
 
+/* The convergence criterion's words before the step in standard errors:
+ * the Newton decrement's fits took their last step without a pass, as
+ * the step rule's do; the deviance change's stopped at their last pass,
+ * as a fit stopped at the boundary does. */
+static int earlier_criterion(const char *w, int *out)
+{
+    if (strcmp(w, "newton decrement") == 0) *out = 1;
+    else if (strcmp(w, "deviance change") == 0) *out = 0;
+    else return 0;
+    return 1;
+}
+
 static mr_status read_word(reader *r, json_t *v, const char **out)
 {
     if (!json_is_string(v)) return bad(r, "should be a string");
@@ -110,6 +122,7 @@ static mr_status read_named(reader *r, const mr__jfield *fl, json_t *v, int *out
     MR__TRY(read_word(r, v, &w));
     switch (fl->kind) {
     case MR__J_CHOICE:
+        if (strcmp(fl->key, "criterion") == 0 && earlier_criterion(w, out)) return MR_OK;
         if (strcmp(w, fl->yes) != 0 && strcmp(w, fl->no) != 0) return bad(r, "is not one of its two words");
         *out = strcmp(w, fl->yes) == 0;
         return MR_OK;
@@ -191,6 +204,7 @@ static mr_status read_scalar(reader *r, const mr__jfield *fl, json_t *v, void *s
         *(double *)slot = json_is_null(v) ? NAN : json_number_value(v);
         return MR_OK;
     case MR__J_BOOL:
+    case MR__J_BOOL_ADDED:
         if (!json_is_boolean(v)) return bad(r, "should be true or false");
         *(int *)slot = json_is_true(v);
         return MR_OK;
@@ -293,11 +307,12 @@ static mr_status read_missing(reader *r, json_t *v, mr_fit *f)
     return MR_OK;
 }
 
-static mr_status read_covariance(reader *r, json_t *v, mr_fit *f)
+static mr_status read_covariance(reader *r, json_t *v, mr_fit *f, double **out)
 {
     size_t i, j, p = f->p;
+    double *cov;
     if (!json_is_array(v) || json_array_size(v) != p) return bad(r, "should be one row per coefficient");
-    if ((f->cov = mr__malloc_array(p * p + 1, sizeof *f->cov)) == NULL) return no_memory(r);
+    if ((cov = *out = mr__malloc_array(p * p + 1, sizeof *cov)) == NULL) return no_memory(r);
     for (i = 0; i < p; i++) {
         json_t *row = json_array_get(v, i);
         size_t back = enter_item(r, i);
@@ -305,7 +320,7 @@ static mr_status read_covariance(reader *r, json_t *v, mr_fit *f)
         for (j = 0; j < p; j++) {
             json_t *x = json_array_get(row, j);
             if (!json_is_null(x) && !json_is_number(x)) return bad(r, "should hold numbers or null");
-            f->cov[j * p + i] = json_is_null(x) ? NAN : json_number_value(x);
+            cov[j * p + i] = json_is_null(x) ? NAN : json_number_value(x);
         }
         leave(r, back);
     }
@@ -344,7 +359,8 @@ static mr_status read_value(reader *r, const mr__jfield *fl, json_t *v, void *ba
     switch (fl->kind) {
     case MR__J_SPECIAL:
         if (fl->which == MR__JS_MISSING) return read_missing(r, v, f);
-        if (fl->which == MR__JS_COVARIANCE) return read_covariance(r, v, f);
+        if (fl->which == MR__JS_COVARIANCE) return read_covariance(r, v, f, &f->cov);
+        if (fl->which == MR__JS_ROBUST_COVARIANCE) return read_covariance(r, v, f, &f->robust_cov);
         return read_term_columns(r, v, f, base);
     case MR__J_OBJECT_OPTIONAL:
         *(int *)((char *)base + fl->count) = 1;
@@ -374,6 +390,7 @@ static mr_status read_object(reader *r, json_t *o, const mr__jfield *fields, voi
         if (fl->kind == MR__J_DERIVED || (fl->kind == MR__J_OBJECT_OPTIONAL && v == NULL)) continue;
         back = enter(r, fl->key);
         if (v == NULL && fl->kind == MR__J_OBJECT_ADDED) v = json_null();
+        if (v == NULL && fl->kind == MR__J_BOOL_ADDED) v = json_false();
         if (v == NULL) return bad(r, "is missing");
         MR__TRY(read_value(r, fl, v, base, index));
         leave(r, back);
@@ -431,6 +448,11 @@ static mr_status check_consistent(reader *r)
     if (f->rank > f->p) {
         enter(r, "fit.rank");
         return bad(r, "exceeds the number of coefficients");
+    }
+    if (f->robust && (f->nrobust_se != f->p || f->robust_cov == NULL ||
+                      (strcmp(f->robust_type, "HC0") != 0 && strcmp(f->robust_type, "HC1") != 0))) {
+        enter(r, "robust");
+        return bad(r, "should be of type HC0 or HC1 with one standard error per coefficient and a covariance");
     }
     for (i = 0; i < f->nterms; i++) {
         const mr__fit_term *t = &f->term[i];

@@ -88,6 +88,23 @@ static const mr__jfield family_param_fields[] = {
     END,
 };
 
+static const mr__jfield numeric_fields[] = {
+    {"mean", MR__J_REAL, offsetof(mr__fit_numeric, mean), 0, 0, 0, 0, 0, NULL, NULL, NULL},
+    {"sd", MR__J_REAL, offsetof(mr__fit_numeric, sd), 0, 0, 0, 0, 0, NULL, NULL, NULL},
+    {"min", MR__J_REAL, offsetof(mr__fit_numeric, min), 0, 0, 0, 0, 0, NULL, NULL, NULL},
+    {"max", MR__J_REAL, offsetof(mr__fit_numeric, max), 0, 0, 0, 0, 0, NULL, NULL, NULL},
+    END,
+};
+
+/* The numeric columns over the rows used, by name.  Added within
+ * format_version 3, so optional: a fit written before reads back without
+ * it and writes the same bytes again. */
+static const mr__jfield numeric_summary_fields[] = {
+    {"columns", MR__J_KEYED, AT(numeric), AT(nnumerics), sizeof(mr__fit_numeric), offsetof(mr__fit_numeric, name), 0,
+     0, NULL, NULL, numeric_fields},
+    END,
+};
+
 static const mr__jfield model_fields[] = {
     F("outcome", MR__J_TEXT, outcome),
     F("trials", MR__J_TEXT_OR_NULL, trials),
@@ -104,6 +121,8 @@ static const mr__jfield model_fields[] = {
      NULL, NULL, factor_fields},
     {"terms", MR__J_STRUCTS, AT(term), AT(nterms), sizeof(mr__fit_term), 0, 0, 0, NULL, NULL, term_fields},
     {"lines", MR__J_RECORDS, 0, AT(nmodel_lines), 0, 0, 0, 0, NULL, NULL, line_fields},
+    {"numeric_summary", MR__J_OBJECT_OPTIONAL, 0, AT(numerics_known), 0, 0, 0, 0, NULL, NULL,
+     numeric_summary_fields},
     END,
 };
 
@@ -128,7 +147,7 @@ static const mr__jfield start_fields[] = {
 
 static const mr__jfield convergence_fields[] = {
     F("converged", MR__J_BOOL, converged),
-    CHOICE("criterion", by_decrement, "newton decrement", "deviance change"),
+    CHOICE("criterion", by_step, "step in standard errors", "deviance change at the boundary"),
     F("iterations", MR__J_INT, iterations),
     F("passes", MR__J_INT, passes),
     F("relative_change", MR__J_REAL, rel_change),
@@ -148,6 +167,8 @@ static const mr__jfield convergence_fields[] = {
 static const mr__jfield coefficient_fields[] = {
     EACH("name", MR__J_TEXT, name),
     EACH("aliased", MR__J_BOOL, aliased),
+    /* a zero cell or a growing standard error: at infinity in practice */
+    EACH("not_estimable", MR__J_BOOL_ADDED, inestimable),
     EACH("estimate", MR__J_REAL, beta),
     EACH("standard_error", MR__J_REAL, se),
     EACH("statistic", MR__J_REAL, stat),
@@ -194,6 +215,19 @@ static const mr__jfield run_fields[] = {
     END,
 };
 
+/* Robust standard errors, written only when the fit made them (so a fit
+ * without them keeps its bytes): the coefficients' statistics, p-values
+ * and intervals are then theirs. */
+static const mr__jfield robust_fields[] = {
+    F("type", MR__J_TEXT, robust_type),
+    F("cluster", MR__J_TEXT_OR_NULL, cluster),
+    F("clusters", MR__J_U64, nclusters),
+    F("adjustment", MR__J_REAL, robust_adjustment),
+    LIST("standard_errors", MR__J_REALS, robust_se, nrobust_se),
+    SPECIAL("covariance", MR__JS_ROBUST_COVARIANCE),
+    END,
+};
+
 const mr__jfield mr__json_fit_fields[] = {
     DERIVED("format", MR__JD_FORMAT),
     DERIVED("format_version", MR__JD_FORMAT_VERSION),
@@ -209,6 +243,7 @@ const mr__jfield mr__json_fit_fields[] = {
     {"coefficients", MR__J_RECORDS, 0, AT(p), 0, 0, 0, 0, NULL, NULL, coefficient_fields},
     OBJECT("fit", statistics_fields),
     SPECIAL("covariance", MR__JS_COVARIANCE),
+    {"robust", MR__J_OBJECT_OPTIONAL, 0, AT(robust), 0, 0, 0, 0, NULL, NULL, robust_fields},
     LIST("warnings", MR__J_TEXTS, warning, nwarnings),
     END,
 };

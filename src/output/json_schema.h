@@ -41,7 +41,9 @@ typedef enum mr__jkind {
     MR__J_STRUCTS,       /* an array of `count` structs of `size` bytes at `at`, each the fields `sub` */
     MR__J_KEYED,         /* as STRUCTS, as an object keyed by each struct's text at `key_at` */
     MR__J_DERIVED,       /* written from other fields (`which`), never read */
-    MR__J_SPECIAL        /* a layout of its own (`which`) */
+    MR__J_SPECIAL,       /* a layout of its own (`which`) */
+    MR__J_BOOL_ADDED     /* as BOOL, added within a format_version: absent
+                            in older files, and read as false there */
 } mr__jkind;
 
 /* What derived and special fields are. */
@@ -50,7 +52,8 @@ enum {
     MR__JD_RATIO_LOW, MR__JD_RATIO_HIGH, MR__JD_MODIFIED, MR__JD_TERM_KIND,
     MR__JS_MISSING, MR__JS_COVARIANCE, MR__JS_TERM_COLUMNS,
     MR__JD_TERM_TEST, /* a term's joint Wald test (fit/term_test.c), null without one */
-    MR__JD_FAMILY_PARAM_NAME /* the name of the family's own parameter */
+    MR__JD_FAMILY_PARAM_NAME, /* the name of the family's own parameter */
+    MR__JS_ROBUST_COVARIANCE  /* the robust covariance, laid out as the covariance */
 };
 
 typedef struct mr__jfield {

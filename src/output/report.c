@@ -92,13 +92,16 @@ static void section_convergence(mr__strbuf *b, const mr_fit *f)
     mr__strbuf_printf(b, "fit        %s after %d IRLS iterations (%d pass%s over the data%s)\n",
                       f->converged ? "converged" : "NOT CONVERGED", f->iterations, f->passes, f->passes == 1 ? "" : "es",
                       f->in_memory ? ", later passes from memory" : f->cached ? ", later passes from the cache" : "");
-    mr__strbuf_printf(b, "           %s %.3g (tolerance %.3g)",
-                      f->by_decrement ? "relative deviance change the last step predicts" : "last relative deviance change",
-                      f->rel_change, f->tolerance);
+    if (f->by_step)
+        mr__strbuf_printf(b, "           last step %.3g standard errors (tolerance %.3g; taken, without a pass after it)",
+                          f->rel_change, f->tolerance);
+    else
+        mr__strbuf_printf(b, "           a coefficient running off to infinity: stopped on a relative deviance change of %.3g",
+                          f->rel_change);
     if (f->halvings) mr__strbuf_printf(b, ", %d step halvings", f->halvings);
     if (f->patterns)
-        mr__strbuf_printf(b, "\n           rows collapsed into %zu covariate patterns: one read of the file, IRLS in memory",
-                          f->patterns);
+        mr__strbuf_printf(b, "\n           rows collapsed into %zu covariate patterns: one read of the file, IRLS in memory%s",
+                          f->patterns, f->robust ? "; one more read for the robust standard errors" : "");
     if (f->warm_start)
         mr__strbuf_printf(b, "\n           started from a fit to a sample of the file (%d IRLS steps on %d blocks of %d rows spread over it",
                           f->warm_iterations, f->warm_blocks, MR__BLOCK_ROWS);
@@ -123,6 +126,19 @@ static size_t name_width(const mr_fit *f)
     return w > 48 ? 48 : w;
 }
 
+/* Which standard errors the table shows: robust ones drive its tests. */
+static void robust_line(mr__strbuf *b, const mr_fit *f)
+{
+    if (!f->robust) return;
+    mr__strbuf_printf(b, "standard errors: robust (sandwich %s, factor %.9g)", f->robust_type, f->robust_adjustment);
+    if (f->cluster)
+        mr__strbuf_printf(b, " by cluster column '%s', %llu clusters%s", f->cluster, (unsigned long long)f->nclusters,
+                          f->nclusters < 50 ? " (few clusters: they may be too small)" : "");
+    else
+        mr__strbuf_printf(b, " by rows");
+    mr__strbuf_printf(b, "; the model-based ones are in the JSON\n");
+}
+
 static void section_coefficients(mr__strbuf *b, const mr_fit *f, int digits)
 {
     const char *ratio = mr__fit_ratio_label(f), *stat = mr__fit_statistic_name(f);
@@ -130,7 +146,9 @@ static void section_coefficients(mr__strbuf *b, const mr_fit *f, int digits)
     size_t j;
     mr__strbuf_printf(b, "\ncoefficients: Wald %s tests and %g%% intervals%s%s%s\n", stat, 100 * f->level,
                       ratio ? "; " : "", ratio ? ratio : "", ratio ? " = exp(estimate)" : "");
-    mr__strbuf_printf(b, "  %-*s %*s %*s %8s %9s %*s %*s", w, "coefficient", nw, "estimate", nw, "SE", stat,
+    robust_line(b, f);
+    mr__strbuf_printf(b, "  %-*s %*s %*s %8s %9s %*s %*s", w, "coefficient", nw, "estimate", nw,
+                      f->robust ? "robust SE" : "SE", stat,
                       "p", nw, "low", nw, "high");
     if (ratio) mr__strbuf_printf(b, " %*s %*s %*s", nw, "ratio", nw, "low", nw, "high");
     mr__strbuf_printf(b, "\n");
@@ -141,7 +159,7 @@ static void section_coefficients(mr__strbuf *b, const mr_fit *f, int digits)
             continue;
         }
         put_number(b, f->beta[j], digits, nw);
-        put_number(b, f->se[j], digits, nw);
+        put_number(b, f->robust ? f->robust_se[j] : f->se[j], digits, nw);
         mr__strbuf_printf(b, " %8.3f", f->stat[j]);
         put_pvalue(b, f->pval[j], 9);
         put_number(b, f->lo[j], digits, nw);
@@ -151,7 +169,8 @@ static void section_coefficients(mr__strbuf *b, const mr_fit *f, int digits)
             put_number(b, exp(f->lo[j]), digits, nw);
             put_number(b, exp(f->hi[j]), digits, nw);
         }
-        mr__strbuf_printf(b, "\n");
+        /* at infinity in practice (a zero cell, a growing SE): warnings say why */
+        mr__strbuf_printf(b, "%s\n", f->inestimable && f->inestimable[j] ? "  ! not estimable" : "");
     }
 }
 
@@ -169,11 +188,11 @@ static void section_term_tests(mr__strbuf *b, const mr_fit *f, int digits)
     int w = (int)term_width(f), nw = digits + 7;
     size_t i;
     if (f->nterms == 0) return;
-    if (f->dispersion_estimated)
+    if (f->dispersion_estimated && !f->robust)
         mr__strbuf_printf(b, "\nterms: joint Wald F = chi-square / df, against F(df, %.0f)\n", f->df_residual);
     else
         mr__strbuf_printf(b, "\nterms: joint Wald chi-square, against chi-square(df)\n");
-    mr__strbuf_printf(b, "  %-*s %5s %*s %9s\n", w, "term", "df", nw, f->dispersion_estimated ? "F" : "chi-square", "p");
+    mr__strbuf_printf(b, "  %-*s %5s %*s %9s\n", w, "term", "df", nw, f->dispersion_estimated && !f->robust ? "F" : "chi-square", "p");
     for (i = 0; i < f->nterms; i++) {
         const mr__fit_term *t = &f->term[i];
         mr__strbuf_printf(b, "  %-*s %5zu", w, t->label, t->test_df);

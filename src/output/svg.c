@@ -8,6 +8,7 @@
 #include "common/utf8.h"
 #include "output/html_text.h"
 #include "output/svg.h"
+#include "output/svg_axis.h"
 
 #define WIDTH 760.0
 #define ROW_H 20.0
@@ -17,88 +18,20 @@
 #define BLUE "#0072B2"
 #define VERMILLION "#D55E00"
 
-typedef struct axis {
-    int log;
-    double lo, hi; /* on the drawing scale (log10 for a log axis) */
-    double x0, x1;
-} axis;
-
-static double scaled(const axis *a, double v) { return a->log ? log10(v) : v; }
-
-static int drawable(const axis *a, double v) { return isfinite(v) && (!a->log || v > 0); }
-
-static double x_of(const axis *a, double v)
-{
-    double t;
-    if (!drawable(a, v)) t = v > 0 ? a->hi : a->lo; /* off the scale: at its edge */
-    else t = scaled(a, v);
-    if (t < a->lo) t = a->lo;
-    if (t > a->hi) t = a->hi;
-    return a->x0 + (t - a->lo) / (a->hi - a->lo) * (a->x1 - a->x0);
-}
-
-static void widen(const axis *a, double v, double *lo, double *hi)
-{
-    if (!drawable(a, v)) return;
-    if (scaled(a, v) < *lo) *lo = scaled(a, v);
-    if (scaled(a, v) > *hi) *hi = scaled(a, v);
-}
+typedef mr__svg_axis axis;
 
 static void set_range(axis *a, const mr__svg_chart *c)
 {
-    double lo = INFINITY, hi = -INFINITY, pad;
+    double lo = INFINITY, hi = -INFINITY;
     size_t i;
-    widen(a, c->reference, &lo, &hi);
+    mr__svg_widen(a, c->reference, &lo, &hi);
     for (i = 0; i < c->nrows; i++) {
         if (c->row[i].mark == MR__MARK_HEADING || c->row[i].mark == MR__MARK_NONE) continue;
-        widen(a, c->row[i].est, &lo, &hi);
-        widen(a, c->row[i].lo, &lo, &hi);
-        widen(a, c->row[i].hi, &lo, &hi);
+        mr__svg_widen(a, c->row[i].est, &lo, &hi);
+        mr__svg_widen(a, c->row[i].lo, &lo, &hi);
+        mr__svg_widen(a, c->row[i].hi, &lo, &hi);
     }
-    if (!(lo <= hi)) lo = hi = 0;
-    if (hi - lo < 1e-9 * (fabs(lo) + 1)) {
-        double half = a->log ? 0.15 : fabs(lo) * 0.1 + 0.5;
-        lo -= half;
-        hi += half;
-    }
-    pad = (hi - lo) * 0.04;
-    a->lo = lo - pad;
-    a->hi = hi + pad;
-}
-
-/* 1, 2 or 5 times a power of ten, at least x. */
-static double nice_step(double x)
-{
-    double p = pow(10, floor(log10(x))), m = x / p;
-    return (m <= 1 ? 1 : m <= 2 ? 2 : m <= 5 ? 5 : 10) * p;
-}
-
-/* The tick values (at most 16), on the value scale. */
-static size_t ticks(const axis *a, double *t)
-{
-    size_t n = 0;
-    double v, span = a->hi - a->lo;
-    if (!a->log || span < 0.8) {
-        double lo = a->log ? pow(10, a->lo) : a->lo, hi = a->log ? pow(10, a->hi) : a->hi;
-        double step = nice_step((hi - lo) / 6);
-        for (v = ceil(lo / step) * step; v <= hi && n < 16; v += step) t[n++] = fabs(v) < step * 1e-9 ? 0 : v;
-        return n;
-    }
-    if (span <= 3.2) {
-        static const double fine[] = {1, 1.5, 2, 3, 5, 7}, coarse[] = {1, 2, 5};
-        const double *m = span <= 1.7 ? fine : coarse;
-        size_t nm = span <= 1.7 ? 6 : 3;
-        double d;
-        for (d = floor(a->lo); d <= a->hi && n < 16; d++) {
-            size_t k;
-            for (k = 0; k < nm && n < 16; k++)
-                if ((v = log10(m[k]) + d) >= a->lo && v <= a->hi) t[n++] = pow(10, v);
-        }
-        return n;
-    }
-    for (v = ceil(a->lo / ceil(span / 8)) * ceil(span / 8); v <= a->hi && n < 16; v += ceil(span / 8))
-        t[n++] = pow(10, v);
-    return n;
+    mr__svg_set_range(a, lo, hi);
 }
 
 static void put_label(mr__strbuf *b, const char *s)
@@ -136,7 +69,7 @@ static void put_value_text(mr__strbuf *b, const mr__svg_row *r, int digits)
 /* The mark of one row at height y (its middle). */
 static void put_mark(mr__strbuf *b, const axis *a, const mr__svg_row *r, double y)
 {
-    double x = x_of(a, r->est), xl = x_of(a, r->lo), xh = x_of(a, r->hi);
+    double x = mr__svg_at(a, r->est), xl = mr__svg_at(a, r->lo), xh = mr__svg_at(a, r->hi);
     const char *colour = r->mark == MR__MARK_FLAGGED ? VERMILLION : BLUE;
     if (r->mark == MR__MARK_REFERENCE) {
         mr__strbuf_printf(b, "<path class=\"mark ref\" d=\"M%.1f %.1fl5 5l-5 5l-5 -5z\" fill=\"#fff\" stroke=\"#000\" "
@@ -199,19 +132,19 @@ static void put_line(mr__strbuf *b, double x1, double y1, double x2, double y2, 
 
 static void put_axis(mr__strbuf *b, const mr__svg_chart *c, const axis *a, double y)
 {
-    double t[16];
-    size_t i, n = ticks(a, t);
+    double t[MR__SVG_MAX_TICKS];
+    size_t i, n = mr__svg_ticks(a, t);
     put_line(b, a->x0, y, a->x1, y, "#000");
     for (i = 0; i < n; i++) {
-        double x = x_of(a, t[i]);
+        double x = mr__svg_at(a, t[i]);
         put_line(b, x, TOP, x, y, "#ccc");
         put_line(b, x, y, x, y + 4, "#000");
         mr__strbuf_printf(b, "<text x=\"%.1f\" y=\"%.1f\" text-anchor=\"middle\">", x, y + 16);
-        mr__html_number(b, t[i], 3);
+        mr__svg_tick_label(b, t[i]);
         mr__strbuf_printf(b, "</text>\n");
     }
-    if (drawable(a, c->reference)) {
-        double x = x_of(a, c->reference);
+    if (mr__svg_drawable(a, c->reference)) {
+        double x = mr__svg_at(a, c->reference);
         mr__strbuf_printf(b, "<line x1=\"%.1f\" y1=\"%.1f\" x2=\"%.1f\" y2=\"%.1f\" stroke=\"#000\" "
                              "stroke-dasharray=\"6 4\"/>\n", x, TOP, x, y);
     }
@@ -286,23 +219,11 @@ void mr__svg_dot_chart(mr__strbuf *b, const mr__svg_chart *c)
     a.x0 = label_width(c);
     a.x1 = WIDTH - VALUE_W;
     set_range(&a, c);
-    mr__strbuf_printf(b, "<figure id=\"%s\">\n<svg viewBox=\"0 0 %.0f %.0f\" "
-                         "width=\"%.0f\" height=\"%.0f\" role=\"img\" aria-label=\"",
-                      c->id, WIDTH, height, WIDTH, height);
-    mr__html_text(b, c->title);
-    mr__strbuf_printf(b, "\" aria-describedby=\"%s-desc\">\n<title>", c->id);
-    mr__html_text(b, c->title);
-    mr__strbuf_printf(b, "</title>\n<desc id=\"%s-desc\">", c->id);
-    mr__html_text(b, c->desc);
-    mr__strbuf_printf(b, "</desc>\n");
+    mr__svg_figure_open(b, c->id, WIDTH, height, c->title, c->desc);
     put_bands(b, c);
     put_axis(b, c, &a, bottom);
     put_rows(b, c, &a);
-    mr__strbuf_printf(b, "</svg>\n<figcaption><strong>");
-    mr__html_text(b, c->title);
-    mr__strbuf_printf(b, ".</strong> ");
-    mr__html_text(b, c->desc);
-    mr__strbuf_printf(b, "</figcaption>\n");
+    mr__svg_figure_caption(b, c->title, c->desc);
     put_legend(b, c);
     put_table(b, c);
     mr__strbuf_printf(b, "</figure>\n");

@@ -8,7 +8,9 @@
 # checkpoint cut short, one made for another input, one whose input was
 # touched since, and one for other options are not used: each says why in
 # one line and the fit starts afresh, to the same bytes.  Standard input is
-# refused.  The kills come from the test-only MILLRACE_TEST_KILL hook
+# refused.  With robust standard errors by clusters, a fit killed within an
+# IRLS pass or within the final pass that adds up the sandwich's meat goes
+# on to the same bytes too.  The kills come from the test-only MILLRACE_TEST_KILL hook
 # (README, "Scheduled reruns"): the process sends itself SIGKILL at a
 # chosen pass and row, or at its N-th checkpoint, as kill -9 from outside
 # would then; nothing here is timed.  MILLRACE=build/asan/millrace runs it
@@ -151,4 +153,30 @@ grep -q "another model or other options" "$tmp/options.err" && [ "$rc" -eq 0 ] &
 rc=$(head -n 1000 "$tmp/big.csv" | "$bin" fit "${model[@]}" --checkpoint "$ck" - >/dev/null 2>"$tmp/stdin.err"; echo $?)
 [ "$rc" -eq 2 ] && grep -q "read only once" "$tmp/stdin.err" && ok "standard input refused" ||
     fail "standard input" "exit $rc: $(cat "$tmp/stdin.err")"
+# robust standard errors by clusters of region (not grouped: held in a
+# table), from a final pass at the converged coefficients: killed inside an
+# IRLS pass and inside that final pass, each goes on to the reference's
+# bytes, robust object included; the robust type changed is another option
+model+=(--robust hc1 --cluster region)
+rm -f "$ck"
+"$bin" fit "${model[@]}" --json "$tmp/ref.json" "$tmp/big.csv" >/dev/null 2>"$tmp/ref.err" ||
+    fail "robust reference" "$(cat "$tmp/ref.err")"
+strip "$tmp/ref.json" >"$tmp/ref.stripped"
+grep -q '"robust"' "$tmp/ref.stripped" && ok "robust reference: a robust object" || fail "robust reference" "no robust object"
+passes=$(/usr/bin/python3 -c 'import json,sys; print(json.load(open(sys.argv[1]))["convergence"]["passes"])' "$tmp/ref.json")
+killed robust-irls.killed "$(fit robust-irls.killed MILLRACE_TEST_KILL=pass:3:400000)"
+rc=$(fit robust-irls)
+[ "$rc" -eq 0 ] || fail robust-irls "rerun exit $rc: $(head -c 300 "$tmp/robust-irls.err")"
+same robust-irls 2
+# the final pass is the last one counted; the last checkpoint came two before
+killed robust-meat.killed "$(fit robust-meat.killed MILLRACE_TEST_KILL=pass:$passes:600000)"
+rc=$(fit robust-meat)
+[ "$rc" -eq 0 ] || fail robust-meat "rerun exit $rc: $(head -c 300 "$tmp/robust-meat.err")"
+same robust-meat $((passes - 2))
+killed robust-type.killed "$(fit robust-type.killed MILLRACE_TEST_KILL=checkpoint:2:after)"
+model+=(--robust hc0)
+rc=$(fit robust-type)
+grep -q "another model or other options" "$tmp/robust-type.err" && [ "$rc" -eq 0 ] &&
+    [ "$(resumed_after "$tmp/robust-type.json")" = 0 ] && ok "robust type changed: said, started afresh" ||
+    fail "robust type changed" "exit $rc: $(cat "$tmp/robust-type.err")"
 finish

@@ -25,16 +25,18 @@ head -n 2001 "$root/samples/falls.csv" >"$tmp/falls-part.csv"
 fit rerun -m "$root/samples/falls.model" "$tmp/falls-part.csv"
 
 check "falls page" "$bin" report --html "$tmp/falls.html" --at year=2020 "$tmp/falls.json"
-page_ok falls cautions fit-1 forest-1 effect-1-1 effect-1-2 effect-1-3 not-shown
+page_ok falls cautions fit-1 forest-1 effect-1-1 effect-1-2 effect-1-3 curve-1-1 not-shown
 for want in '<h3>Coefficients</h3>' '<h3>Convergence</h3>' 'factor    age_band  ref=40-44' 'rows left out' \
     'year at 2020' 'rate ratio' 'admissions per 1,000 person_years' 'delta method' 'Validate before use' \
-    'Calibration plots' 'reference' '<h3>Term tests</h3>' '<td>age_band &amp; sex</td><td>chi-square</td>'; do
+    'calibration plot' 'reference' '<h3>Term tests</h3>' '<td>age_band &amp; sex</td><td>chi-square</td>' \
+    'Effect curve: admissions per 1,000 person_years along year'; do
     grep -qF "$want" "$tmp/falls.html" || fail "falls page says '$want'" "not found"
 done
 
 check "screening page" "$bin" report --html "$tmp/screening.html" --digits 3 "$tmp/screening.json"
-page_ok screening cautions fit-1 forest-1 effect-1-1 effect-1-2 not-shown
-for want in 'odds ratio' 'fitted probability of attended (%)' 'does not record' 'missing bmi'; do
+page_ok screening cautions fit-1 forest-1 effect-1-1 effect-1-2 curve-1-1 curve-1-2 curve-1-3 not-shown
+for want in 'odds ratio' 'fitted probability of attended (%)' 'age at 62.0885 (its mean)' 'missing bmi' \
+    'bmi runs from 16.1 to 45.8'; do
     grep -qF "$want" "$tmp/screening.html" || fail "screening page says '$want'" "not found"
 done
 
@@ -44,6 +46,60 @@ check "two fits: read different data, so AIC is not compared" grep -q 'not compa
 check "three fits: each against the first" "$bin" report --html "$tmp/three.html" "$tmp/falls.json" \
     "$tmp/rerun.json" "$tmp/falls.json"
 page_ok three comparison change-2 change-3
+
+# A calibration plot where the fit's file holds calibration groups (the
+# object of tests/cli/html/calibration.json added to a fresh fit).
+/usr/bin/python3 -c 'import json, sys; f = json.load(open(sys.argv[1])); f.update(json.load(open(sys.argv[2])))
+json.dump(f, open(sys.argv[3], "w"), indent=1)' "$tmp/falls.json" "$here/html/calibration.json" "$tmp/calib.json"
+check "calibration page" "$bin" report --html "$tmp/calib.html" --at year=2020 "$tmp/calib.json"
+page_ok calib fit-1 forest-1 calibration-1
+check "calibration: ten groups in its table" test "$(sed -n '/<figure id="calibration-1">/,/<\/figure>/p' "$tmp/calib.html" | grep -c '^<tr><td>')" = 10
+check "calibration: the groups' basis said" grep -qF 'tenths of the fitted mean (invented' "$tmp/calib.html"
+check "no calibration plot without the groups" test "$(grep -c 'id="calibration-' "$tmp/falls.html")" = 0
+
+# A fit saved before fits recorded their numeric columns: numerics at 0,
+# said; no curve for a plain numeric, a spline's over its boundary knots.
+/usr/bin/python3 -c 'import json, sys; f = json.load(open(sys.argv[1])); del f["model"]["numeric_summary"]
+json.dump(f, open(sys.argv[2], "w"), indent=1)' "$tmp/screening.json" "$tmp/older.json"
+check "older fit page" "$bin" report --html "$tmp/older.html" "$tmp/older.json"
+page_ok older fit-1 forest-1 effect-1-1
+check "older fit: numerics at 0, said" grep -qF 'does not record the values of its numeric columns' "$tmp/older.html"
+check "older fit: no curve, said" grep -qF 'No effect curve for age: this fit does not record its range' "$tmp/older.html"
+
+# A funnel plot of a scoring run's groups (--groups).
+"$bin" score --quiet --fit "$tmp/falls.json" --out "$tmp/scored.csv" --by region --by age_band --by-out "$tmp/groups.json" \
+    "$root/samples/falls.csv.zst" || fail "score --by-out" "exit $?"
+check "funnel page" "$bin" report --html "$tmp/funnel.html" --groups "$tmp/groups.json" "$tmp/falls.json"
+page_ok funnel fit-1 groups funnel
+for want in 'exact Poisson control limits' 'Groups outside the 95% limits' 'region=Brindlemarch, age_band=00-04' \
+    'expected count' 'observed / expected'; do
+    grep -qF "$want" "$tmp/funnel.html" || fail "funnel page says '$want'" "not found"
+done
+
+# The render cases: an aliased column, a quasi family, a factor of one
+# level, and 1,000 coefficients (the forest plot shows the 40 of largest
+# |z| and says so).
+{
+    echo "y,x1,x2,g,one,n"
+    for i in $(seq 1 300); do echo "$((i % 7)),$((i % 11)),$((2 * (i % 11))),g$((i % 4)),solo,$((10 + i % 5))"; done
+} >"$tmp/cases.csv"
+fit aliased --outcome y --family poisson --numeric x1 --numeric x2 --factor g "$tmp/cases.csv"
+check "aliased page" "$bin" report --html "$tmp/aliased.html" "$tmp/aliased.json"
+page_ok aliased fit-1 forest-1 effect-1-1 curve-1-1
+check "aliased: said in the table and the plots" test "$(grep -c 'aliased (no estimate)\|not estimable' "$tmp/aliased.html")" -ge 2
+fit quasi --outcome y --family poisson --dispersion estimate --exposure n --numeric x1 --factor g "$tmp/cases.csv"
+check "quasi page" "$bin" report --html "$tmp/quasi.html" "$tmp/quasi.json"
+page_ok quasi fit-1 forest-1 effect-1-1 curve-1-1
+check "quasi: t intervals, dispersion estimated" grep -qF 'dispersion estimated' "$tmp/quasi.html"
+fit onelevel --outcome y --family poisson --factor one --factor g --numeric x1 "$tmp/cases.csv"
+check "single-level factor page" "$bin" report --html "$tmp/onelevel.html" "$tmp/onelevel.json"
+page_ok onelevel fit-1 forest-1 effect-1-2 curve-1-1
+awk 'BEGIN { print "y,unit,x"; for (i = 0; i < 4000; i++) print 1 + (i * 7 + int(i / 1000)) % 5 + (i % 1000 == 3) * 20 ",u" sprintf("%04d", i % 1000) "," i % 13 }' >"$tmp/big.csv"
+fit big --outcome y --family poisson --factor unit --numeric x "$tmp/big.csv"
+check "1,000 coefficients page" "$bin" report --html "$tmp/big.html" "$tmp/big.json"
+page_ok big fit-1 forest-1 curve-1-1
+check "1,000 coefficients: the forest plot shows 40, says so" grep -qF 'shown are the 40 of largest' "$tmp/big.html"
+check "1,000 coefficients: no effect plot of 1,000 levels, says so" grep -qF 'at most 100 are drawn' "$tmp/big.html"
 
 # The same fits give the same bytes.
 "$bin" report --html "$tmp/two-again.html" --at year=2020 "$tmp/falls.json" "$tmp/rerun.json"
@@ -67,6 +123,13 @@ check "level escaped" grep -qF 'a&lt;script&gt;alert(1)&lt;/script&gt;' "$tmp/ho
 check "quotes escaped" grep -qF 'b&amp;&quot;x&#39;' "$tmp/hostile.html"
 check "column name escaped" grep -qF 'gr&lt;u&gt;' "$tmp/hostile.html"
 check "a byte that is not UTF-8 shows as \\xE9" grep -qF 'R\xE9gion' "$tmp/hostile.html"
+"$bin" score --quiet --fit "$tmp/hostile.json" --out "$tmp/hostile-scored.csv" --by 'gr<u>' \
+    --by-out "$tmp/hostile-groups.json" "$tmp/hostile.csv" || fail "score hostile --by-out" "exit $?"
+check "hostile funnel page" "$bin" report --html "$tmp/hostile-funnel.html" --groups "$tmp/hostile-groups.json" \
+    "$tmp/hostile.json"
+page_ok hostile-funnel groups funnel
+check "funnel: no markup from the data" test "$(grep -c '<script\|<u>' "$tmp/hostile-funnel.html")" = 0
+check "funnel: group key escaped" grep -qF 'gr&lt;u&gt;=a&lt;script&gt;' "$tmp/hostile-funnel.html"
 
 # Errors: exit codes of the README.
 expect_exit() { # expect_exit NAME CODE ARGS...
@@ -86,6 +149,9 @@ expect_exit "--at without a number" 2 report --html "$tmp/x.html" --at year=soon
 expect_exit "--digits 0" 2 report --html "$tmp/x.html" --digits 0 "$tmp/falls.json"
 expect_exit "a fit that is not there" 3 report --html "$tmp/x.html" "$tmp/absent.json"
 expect_exit "a fit that is not JSON" 4 report --html "$tmp/x.html" "$tmp/hostile.csv"
+expect_exit "--groups not there" 3 report --html "$tmp/x.html" --groups "$tmp/absent.json" "$tmp/falls.json"
+expect_exit "--groups not a group table" 4 report --html "$tmp/x.html" --groups "$tmp/falls.json" "$tmp/falls.json"
+expect_exit "the page would replace the group table" 2 report --html "$tmp/groups.json" --groups "$tmp/groups.json" "$tmp/falls.json"
 expect_exit "the page onto a directory" 3 report --html "$tmp" "$tmp/falls.json"
 check "no page after the errors" test ! -e "$tmp/x.html"
 check "no temporary file left" test -z "$(find "$tmp" -name '*.tmp-*')"

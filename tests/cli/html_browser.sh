@@ -28,7 +28,14 @@ if unshare -n true 2>/dev/null; then offline=(unshare -n); else echo "note: no n
 "$bin" fit --quiet --json "$tmp/screening.json" -m "$root/samples/screening.model" "$root/samples/screening.csv" >/dev/null
 head -n 2001 "$root/samples/falls.csv" >"$tmp/part.csv"
 "$bin" fit --quiet --json "$tmp/rerun.json" -m "$root/samples/falls.model" "$tmp/part.csv" >/dev/null
-"$bin" report --html "$tmp/page.html" --at year=2020 "$tmp/falls.json" "$tmp/rerun.json" "$tmp/screening.json"
+# A calibration plot (the groups of tests/cli/html/calibration.json added to
+# the fit) and a funnel plot (a scoring run's groups).
+/usr/bin/python3 -c 'import json, sys; f = json.load(open(sys.argv[1])); f.update(json.load(open(sys.argv[2])))
+json.dump(f, open(sys.argv[3], "w"), indent=1)' "$tmp/falls.json" "$here/html/calibration.json" "$tmp/calib.json"
+"$bin" score --quiet --fit "$tmp/falls.json" --out "$tmp/scored.csv" --by region --by-out "$tmp/groups.json" \
+    "$root/samples/falls.csv.zst"
+"$bin" report --html "$tmp/page.html" --at year=2020 --groups "$tmp/groups.json" "$tmp/calib.json" "$tmp/rerun.json" \
+    "$tmp/screening.json"
 check "page written" test -s "$tmp/page.html"
 
 run_browser() { # run_browser NAME FLAGS...: stdout to $tmp/NAME.out, stderr to $tmp/NAME.err
@@ -49,7 +56,8 @@ if awk -v v="$ink" 'BEGIN { exit !(v + 0 > 0.01 && v + 0 < 0.6) }'; then ok "scr
 
 run_browser dom --dump-dom
 check "DOM as the browser built it: plots with marks, well-formed" /usr/bin/python3 "$here/html/check_page.py" \
-    "$tmp/dom.out" cautions fit-1 fit-2 fit-3 forest-1 effect-1-1 comparison change-2 not-shown
+    "$tmp/dom.out" cautions fit-1 fit-2 fit-3 forest-1 effect-1-1 curve-1-1 curve-3-2 calibration-1 comparison \
+    change-2 groups funnel not-shown
 plots=$(grep -o '<figure id="[^"]*"' "$tmp/page.html" | wc -l)
 drawn=$(grep -o '<figure id="[^"]*"' "$tmp/dom.out" | wc -l)
 check "every plot of the page is in the browser's DOM ($plots)" test "$plots" -gt 5 -a "$plots" = "$drawn"

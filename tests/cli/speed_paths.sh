@@ -6,10 +6,10 @@
 # in a comment at each group as the source of truth.
 #
 #   collapsed covariate patterns vs row-level passes   within 1e-11 relative
-#     at tolerance 1e-14, 1e-7 at the default 1e-10 (each path stops at its
+#     at tolerance 1e-14, 1e-7 at the default (each path stops at its
 #     own distance from the maximum; README, "Covariate patterns")
-#     (standard errors and Pearson statistic of a fit stopped on the Newton
-#     decrement: within 10 x the square root of its predicted change)
+#     (standard errors and Pearson statistic, from the pass before the last
+#     step: within 10 x that step in standard errors)
 #   decoded-column cache vs rereading vs in memory     bit-identical
 #   rereads by the block map vs the zstd stream        bit-identical
 #   1, 2 and 3 threads                                 bit-identical
@@ -222,7 +222,7 @@ def relative(a, b, scale):
 
 def statistics_lag(js):
     c = js["convergence"]
-    return math.sqrt(c["relative_change"]) if c["criterion"] == "newton decrement" else 0.0
+    return c["relative_change"] if c["criterion"] == "step in standard errors" else 0.0
 
 
 def close(ref, other, tol):

@@ -2,7 +2,10 @@
 library only: well-formed (every element closed in order, HTML's void
 elements aside), each SVG plot well-formed XML with a title, a desc, an
 aria-label and drawn marks, no reference to anything outside the file, and
-the sections asked for.  Usage: check_page.py PAGE SECTION-ID...
+the sections asked for; and the page parses as HTML5 with html5lib in
+strict mode (Debian's python3-html5lib, a test package), which stops at the
+first parse error of the HTML5 specification's parsing algorithm.
+Usage: check_page.py PAGE SECTION-ID...
 Prints one line per problem; exit status 1 if any."""
 import re
 import sys
@@ -41,6 +44,18 @@ class Nesting(HTMLParser):
         self.stack.pop()
 
 
+def html5_errors(raw):
+    try:
+        import html5lib
+    except ImportError:
+        return ["python3-html5lib is not installed (make test-deps installs it)"]
+    try:
+        html5lib.HTMLParser(strict=True).parse(raw)
+    except html5lib.html5parser.ParseError as e:
+        return [f"not valid HTML5 (html5lib, strict): {e}"]
+    return []
+
+
 def main():
     path, sections = sys.argv[1], sys.argv[2:]
     raw = open(path, "rb").read()
@@ -56,6 +71,7 @@ def main():
         problems.append("a style that loads something")
     if re.search(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]", text):
         problems.append("a control character in the text")
+    problems += html5_errors(raw)
     p = Nesting()
     p.feed(text)
     p.close()

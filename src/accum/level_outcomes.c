@@ -1,0 +1,148 @@
+/* level_outcomes.c - see level_outcomes.h. */
+#include <string.h>
+
+#include "accum/level_outcomes.h"
+#include "common/alloc.h"
+#include "family/family.h"
+
+mr__level_outcomes *mr__level_outcomes_new(size_t nfac, size_t npairs)
+{
+    mr__level_outcomes *lo = mr__calloc(1, sizeof *lo);
+    if (lo == NULL) return NULL;
+    lo->nfac = nfac;
+    lo->npairs = npairs;
+    lo->level = mr__calloc(nfac + 1, sizeof *lo->level);
+    lo->nlevel = mr__calloc(nfac + 1, sizeof *lo->nlevel);
+    lo->cells = mr__calloc(npairs + 1, sizeof *lo->cells);
+    if (lo->level && lo->nlevel && lo->cells) return lo;
+    mr__level_outcomes_free(lo);
+    return NULL;
+}
+
+void mr__level_outcomes_free(mr__level_outcomes *lo)
+{
+    size_t i;
+    if (lo == NULL) return;
+    for (i = 0; lo->level && i < lo->nfac; i++) mr__free(lo->level[i]);
+    for (i = 0; lo->cells && i < lo->npairs; i++) mr__free(lo->cells[i].slot);
+    mr__free(lo->level);
+    mr__free(lo->nlevel);
+    mr__free(lo->cells);
+    mr__free(lo);
+}
+
+static void count(mr__outcome_counts *c, double y, int binomial)
+{
+    c->rows++;
+    c->above_zero += y > 0;
+    c->below_max += binomial ? y < 1 : 1;
+}
+
+/* Level `id` of factor f, growing the array to hold it. */
+static mr__outcome_counts *level_entry(mr__level_outcomes *lo, size_t f, uint32_t id)
+{
+    if (id >= lo->nlevel[f]) {
+        size_t n = lo->nlevel[f] ? lo->nlevel[f] : 16;
+        mr__outcome_counts *grown;
+        while (n <= id) n *= 2;
+        grown = mr__realloc(lo->level[f], n * sizeof *grown);
+        if (grown == NULL) return NULL;
+        memset(grown + lo->nlevel[f], 0, (n - lo->nlevel[f]) * sizeof *grown);
+        lo->level[f] = grown;
+        lo->nlevel[f] = n;
+    }
+    return &lo->level[f][id];
+}
+
+static size_t hash_key(uint64_t key, size_t cap)
+{
+    key ^= key >> 29;
+    key *= 0xbf58476d1ce4e5b9ull;
+    key ^= key >> 32;
+    return (size_t)key & (cap - 1);
+}
+
+static int grow_cells(mr__cell_table *t)
+{
+    size_t cap = t->cap ? 2 * t->cap : 64, i, h;
+    mr__cell_counts *slot = mr__calloc(cap, sizeof *slot);
+    if (slot == NULL) return -1;
+    for (i = 0; i < t->cap; i++) {
+        if (t->slot[i].key == 0) continue;
+        for (h = hash_key(t->slot[i].key, cap); slot[h].key != 0; h = (h + 1) & (cap - 1)) {
+        }
+        slot[h] = t->slot[i];
+    }
+    mr__free(t->slot);
+    t->slot = slot;
+    t->cap = cap;
+    return 0;
+}
+
+static mr__outcome_counts *cell_entry(mr__cell_table *t, uint64_t key, int insert)
+{
+    size_t h;
+    if (insert && 2 * (t->n + 1) > t->cap && grow_cells(t) != 0) return NULL;
+    if (t->cap == 0) return NULL;
+    for (h = hash_key(key, t->cap); t->slot[h].key != 0; h = (h + 1) & (t->cap - 1))
+        if (t->slot[h].key == key) return &t->slot[h].c;
+    if (!insert) return NULL;
+    t->slot[h].key = key;
+    t->n++;
+    return &t->slot[h].c;
+}
+
+static uint64_t cell_key(uint32_t a, uint32_t b) { return ((uint64_t)a << 32 | b) + 1; }
+
+int mr__cell_table_add(mr__cell_table *t, uint32_t a, uint32_t b, const mr__outcome_counts *c)
+{
+    mr__outcome_counts *e = cell_entry(t, cell_key(a, b), 1);
+    if (e == NULL) return -1;
+    e->rows += c->rows;
+    e->above_zero += c->above_zero;
+    e->below_max += c->below_max;
+    return 0;
+}
+
+int mr__cell_table_slot(const mr__cell_table *t, size_t i, uint32_t *a, uint32_t *b)
+{
+    uint64_t key = t->slot[i].key;
+    if (key == 0) return 0;
+    *a = (uint32_t)((key - 1) >> 32);
+    *b = (uint32_t)(key - 1);
+    return 1;
+}
+
+const mr__outcome_counts *mr__cell_table_find(const mr__cell_table *t, uint32_t a, uint32_t b)
+{
+    return cell_entry((mr__cell_table *)t, cell_key(a, b), 0);
+}
+
+void mr__level_outcomes_block(mr__level_outcomes *lo, const mr__block *blk, const mr__decode_cfg *cfg)
+{
+    int binomial = cfg->family->ops->takes_trials; /* the binomial: y a proportion */
+    size_t f, k;
+    uint32_t i;
+    for (i = 0; i < blk->n && !lo->failed; i++) {
+        double y = blk->y[i];
+        if (blk->prior && !(blk->prior[i] > 0)) continue;
+        for (f = 0; f < lo->nfac; f++) {
+            mr__outcome_counts *c = level_entry(lo, f, (uint32_t)blk->lev[f * MR__BLOCK_ROWS + i]);
+            if (c == NULL) {
+                lo->failed = 1;
+                return;
+            }
+            count(c, y, binomial);
+        }
+        for (k = 0; k < lo->npairs; k++) {
+            uint32_t a = (uint32_t)blk->lev[(size_t)cfg->pairs[k][0] * MR__BLOCK_ROWS + i];
+            uint32_t b = (uint32_t)blk->lev[(size_t)cfg->pairs[k][1] * MR__BLOCK_ROWS + i];
+            mr__outcome_counts *c = cell_entry(&lo->cells[k], cell_key(a, b), 1);
+            if (c == NULL) {
+                lo->failed = 1;
+                return;
+            }
+            count(c, y, binomial);
+        }
+    }
+}

@@ -1,0 +1,51 @@
+/* level_outcomes.h - per factor level, and per cell of two factors that
+ * interact, how many rows with weight the first pass saw, how many had an
+ * outcome above 0 and how many below its maximum (a binomial proportion
+ * below 1): a level or cell with none of either has its fitted mean at
+ * the edge of the family's range, and its coefficient runs off to
+ * infinity.  Each first-pass worker counts the blocks it decoded, by its
+ * own level numbers; the fit maps them to the shared ones and adds them
+ * up.  The counts are integers, so their totals do not depend on which
+ * worker took which block. */
+#ifndef MR_LEVEL_OUTCOMES_H
+#define MR_LEVEL_OUTCOMES_H
+
+#include <stdint.h>
+#include "accum/decode.h"
+
+typedef struct mr__outcome_counts {
+    uint64_t rows, above_zero, below_max;
+} mr__outcome_counts;
+
+/* One cell of a pair of factors: both level numbers, and its counts. */
+typedef struct mr__cell_counts {
+    uint64_t key; /* first level << 32 | second level, + 1 (0: an empty slot) */
+    mr__outcome_counts c;
+} mr__cell_counts;
+
+typedef struct mr__cell_table {
+    mr__cell_counts *slot;
+    size_t n, cap;
+} mr__cell_table;
+
+typedef struct mr__level_outcomes {
+    size_t nfac, npairs;
+    mr__outcome_counts **level; /* per factor, by level number */
+    size_t *nlevel;             /* per factor: entries in level[] */
+    mr__cell_table *cells;      /* per pair of decode_cfg.pairs */
+    int failed;                 /* out of memory: the counts are not whole */
+} mr__level_outcomes;
+
+/* NULL on no memory. */
+mr__level_outcomes *mr__level_outcomes_new(size_t nfac, size_t npairs);
+void mr__level_outcomes_free(mr__level_outcomes *lo);
+/* Counts a decoded block's rows (cfg: the pairs of factors). */
+void mr__level_outcomes_block(mr__level_outcomes *lo, const mr__block *blk, const mr__decode_cfg *cfg);
+/* Adds c into cell (a, b) of t: -1 on no memory. */
+int mr__cell_table_add(mr__cell_table *t, uint32_t a, uint32_t b, const mr__outcome_counts *c);
+/* Slot i's cell (i < t->cap): 0 for an empty slot, else 1 with a and b. */
+int mr__cell_table_slot(const mr__cell_table *t, size_t i, uint32_t *a, uint32_t *b);
+/* Cell (a, b) of t, or NULL. */
+const mr__outcome_counts *mr__cell_table_find(const mr__cell_table *t, uint32_t a, uint32_t b);
+
+#endif

@@ -1,0 +1,171 @@
+/* robust.c - robust (sandwich) standard errors: the options, the
+ * covariance from the meat pass (accum/job_meat.c) and the accessors.
+ *
+ * V = B M B, with B = (X'WX)^-1 (the bread) and M the meat, both added up
+ * by the meat pass at the final coefficients (the last IRLS pass may be a
+ * Newton step behind them), M the sum
+ * over rows of u^2 x x', or over clusters of s s' (u x a row's score, s a
+ * cluster's sum of them).  The dispersion cancels, so V is the same for
+ * any family's estimate of it.  Scaled as R's sandwich package does:
+ *   HC0                   1
+ *   HC1                   n / (n - k)
+ *   clusters, HC0         G / (G - 1)   (vcovCL's default for a glm)
+ *   clusters, HC1         G / (G - 1) x (n - 1) / (n - k)
+ * n the rows with a positive weight, k the rank, G the clusters.  V is
+ * formed on the internal (centred) scale and mapped to the raw columns as
+ * the model's covariance is. */
+#include <math.h>
+#include <string.h>
+
+#include "common/alloc.h"
+#include "fit/fit.h"
+#include "fit/fitter.h"
+#include "fit/run.h"
+#include "solve/normal_eq.h"
+
+#define DEFAULT_CLUSTER_MEMORY ((size_t)1 << 30)
+
+mr_status mr_fitter_set_robust(mr_fitter *f, mr_robust type)
+{
+    mr__error_clear(&f->err);
+    if (type != MR_ROBUST_NONE && type != MR_ROBUST_HC0 && type != MR_ROBUST_HC1)
+        return mr__fail(&f->err, MR_ERR_USAGE, "robust standard errors: unknown type %d", (int)type);
+    f->robust = (int)type;
+    return MR_OK;
+}
+
+mr_status mr_fitter_set_cluster(mr_fitter *f, const char *column, size_t memory_limit)
+{
+    char *copy = NULL;
+    mr__error_clear(&f->err);
+    if (column != NULL && column[0] == '\0') return mr__fail(&f->err, MR_ERR_USAGE, "cluster column: empty name");
+    if (column != NULL && (copy = mr__strdup(column)) == NULL)
+        return mr__fail(&f->err, MR_ERR_NO_MEMORY, "out of memory");
+    mr__free(f->cluster);
+    f->cluster = copy;
+    f->cluster_memory = memory_limit ? memory_limit : DEFAULT_CLUSTER_MEMORY;
+    return MR_OK;
+}
+
+int mr__robust_type(const mr_fitter *f)
+{
+    if (f->robust != MR_ROBUST_NONE) return f->robust;
+    /* sandwich::vcovCL's default for a glm (HC1 is its default for lm alone) */
+    return f->cluster != NULL ? MR_ROBUST_HC0 : MR_ROBUST_NONE;
+}
+
+/* The small-sample factor of the table above. */
+static double adjustment(int type, double n, double k, int clustered, double g)
+{
+    double a = clustered ? g / (g - 1) : 1.0;
+    if (type == MR_ROBUST_HC1) a *= clustered ? (n - 1) / (n - k) : n / (n - k);
+    return a;
+}
+
+/* V_s = B M B (B: p x p full, symmetric; M: upper triangle), every sum in
+ * increasing index. */
+static void sandwich(const double *B, const double *M, size_t p, double *T, double *V)
+{
+    size_t i, j, k;
+    for (j = 0; j < p; j++) /* T = B M, column j */
+        for (i = 0; i < p; i++) {
+            double s = 0;
+            for (k = 0; k < p; k++) s += B[k * p + i] * (k <= j ? M[j * p + k] : M[k * p + j]);
+            T[j * p + i] = s;
+        }
+    for (j = 0; j < p; j++)
+        for (i = 0; i < p; i++) {
+            double s = 0;
+            for (k = 0; k < p; k++) s += T[k * p + i] * B[j * p + k];
+            V[j * p + i] = s;
+        }
+}
+
+static mr_status robust_alloc(mr_fit *fit, size_t p)
+{
+    fit->robust_se = mr__calloc(p + 1, sizeof *fit->robust_se);
+    fit->robust_cov = mr__calloc(p * p + 1, sizeof *fit->robust_cov);
+    fit->nrobust_se = p;
+    return fit->robust_se && fit->robust_cov ? MR_OK : MR_ERR_NO_MEMORY;
+}
+
+static mr_status robust_labels(mr_fit *fit, const mr__run *r, int type)
+{
+    fit->robust_type = mr__strdup(type == MR_ROBUST_HC0 ? "HC0" : "HC1");
+    if (fit->robust_type == NULL) return MR_ERR_NO_MEMORY;
+    if (r->f->cluster != NULL && (fit->cluster = mr__strdup(r->f->cluster)) == NULL) return MR_ERR_NO_MEMORY;
+    return MR_OK;
+}
+
+/* B: the inverse of the meat pass's X'WX, the aliased columns as the fit's
+ * (a column aliased at one point is at the other: the design is the same). */
+static mr_status invert_bread(const mr__run *r, double *beta, int *aliased, double *B, mr__error *err)
+{
+    size_t rank;
+    const mr__block_sums *s = &r->meat.bread;
+    return mr__solve_normal(s->xtwx, s->xtwz, r->design.p, beta, aliased, &rank, B, err);
+}
+
+mr_status mr__robust_result(mr_fit *fit, const mr__run *r, mr__error *err)
+{
+    size_t p = r->design.p, j;
+    int type = mr__robust_type(r->f), *aliased;
+    double n = (double)r->first.scan.npos, a, *T, *V, *beta, *B;
+    mr_status st;
+    if (type == MR_ROBUST_NONE) return MR_OK;
+    fit->robust = 1;
+    fit->nclusters = r->meat.clusters;
+    a = adjustment(type, n, (double)fit->rank, r->f->cluster != NULL, (double)fit->nclusters);
+    if (!(a > 0) || !isfinite(a)) {
+        /* one cluster, or no residual df: nothing to estimate the spread from */
+        a = NAN;
+        mr__fit_warn(fit, "robust standard errors cannot be estimated with %s: they are NaN",
+                     r->f->cluster && fit->nclusters < 2 ? "a single cluster" : "no residual degrees of freedom");
+    }
+    fit->robust_adjustment = a;
+    T = mr__malloc_array(p * p + 1, sizeof *T);
+    V = mr__malloc_array(p * p + 1, sizeof *V);
+    beta = mr__malloc_array(p + 1, sizeof *beta);
+    B = mr__malloc_array(p * p + 1, sizeof *B);
+    aliased = mr__calloc(p + 1, sizeof *aliased);
+    st = T && V && beta && B && aliased && robust_alloc(fit, p) == MR_OK && robust_labels(fit, r, type) == MR_OK
+             ? MR_OK
+             : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    if (st == MR_OK) st = invert_bread(r, beta, aliased, B, err);
+    if (st == MR_OK) {
+        sandwich(B, r->meat.sums.xtwx, p, T, V);
+        st = mr__map_to_raw(&r->design, r->beta_final, V, beta, fit->robust_cov, fit->robust_se, err);
+    }
+    for (j = 0; st == MR_OK && j < p * p; j++) fit->robust_cov[j] *= a;
+    /* a variance below the range of a double was computed apart */
+    for (j = 0; st == MR_OK && j < p; j++)
+        fit->robust_se[j] = fit->robust_se[j] > 0 ? fit->robust_se[j] * sqrt(a) : sqrt(fit->robust_cov[j * p + j]);
+    mr__free(T);
+    mr__free(V);
+    mr__free(beta);
+    mr__free(B);
+    mr__free(aliased);
+    return st;
+}
+
+/* ---- accessors ------------------------------------------------------------ */
+
+mr_robust mr_fit_robust(const mr_fit *fit)
+{
+    if (!fit->robust || fit->robust_type == NULL) return MR_ROBUST_NONE;
+    return strcmp(fit->robust_type, "HC0") == 0 ? MR_ROBUST_HC0 : MR_ROBUST_HC1;
+}
+
+const char *mr_fit_cluster(const mr_fit *fit) { return fit->robust ? fit->cluster : NULL; }
+uint64_t mr_fit_clusters(const mr_fit *fit) { return fit->robust && fit->cluster ? fit->nclusters : 0; }
+double mr_fit_robust_adjustment(const mr_fit *fit) { return fit->robust ? fit->robust_adjustment : NAN; }
+
+double mr_fit_robust_std_error(const mr_fit *fit, size_t j)
+{
+    return fit->robust && j < fit->p && j < fit->nrobust_se ? fit->robust_se[j] : NAN;
+}
+
+double mr_fit_robust_covariance(const mr_fit *fit, size_t i, size_t j)
+{
+    return fit->robust && fit->robust_cov && i < fit->p && j < fit->p ? fit->robust_cov[j * fit->p + i] : NAN;
+}

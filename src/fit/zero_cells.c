@@ -1,0 +1,249 @@
+/* zero_cells.c - factor levels and cells of two interacting factors whose
+ * outcomes leave no room for a finite estimate: every count 0 (poisson,
+ * negative binomial, Tweedie, binomial), or every trial a success
+ * (binomial).  Their fitted mean goes to the edge of the family's range
+ * and a coefficient to infinity; IRLS stops somewhere on the way (a logit
+ * of about -24 with a standard error in the thousands), which looks like a
+ * number.  The first pass counted, per level and cell, rows, outcomes
+ * above 0 and below the maximum (accum/level_outcomes.h), in each worker's
+ * own level numbers: here they are mapped to the shared numbers and added
+ * (integers: the same totals for any thread count). */
+#include <string.h>
+
+#include "common/alloc.h"
+#include "common/strbuf.h"
+#include "family/family.h"
+#include "fit/fit.h"
+#include "fit/irls.h"
+#include "fit/run.h"
+
+/* What an outcome count says about a level or cell: 0 nothing, else the
+ * reason its coefficient runs off. */
+enum { FINE = 0, ALL_ZERO = 1, ALL_MAX = 2 };
+
+typedef struct zero_report {
+    mr_fit *fit;
+    int binomial;
+    mr__strbuf list[3]; /* by kind: the levels and cells named */
+    size_t count[3];
+} zero_report;
+
+static int kind_of(const mr__outcome_counts *c, int binomial)
+{
+    if (c->rows == 0) return FINE;
+    if (c->above_zero == 0) return ALL_ZERO;
+    if (binomial && c->below_max == 0) return ALL_MAX;
+    return FINE;
+}
+
+static void flag_name(mr_fit *fit, const char *name)
+{
+    size_t j;
+    for (j = 0; j < fit->p; j++)
+        if (!fit->aliased[j] && strcmp(fit->name[j], name) == 0) fit->inestimable[j] = 1;
+}
+
+/* Every coefficient of factor f's main effect (its reference level is the
+ * empty one: they all run off together), and the intercept. */
+static void flag_factor(mr_fit *fit, const char *factor)
+{
+    size_t j, n = strlen(factor);
+    for (j = 0; j < fit->p; j++)
+        if (!fit->aliased[j] && strncmp(fit->name[j], factor, n) == 0 && fit->name[j][n] == '=' &&
+            strstr(fit->name[j], " & ") == NULL)
+            fit->inestimable[j] = 1;
+    flag_name(fit, "intercept");
+}
+
+static void note(zero_report *z, int kind, const char *what, uint64_t rows)
+{
+    if (z->count[kind]++ < 8) mr__strbuf_printf(&z->list[kind], "%s%s (%llu rows)", z->count[kind] > 1 ? ", " : "",
+                                                 what, (unsigned long long)rows);
+}
+
+/* Worker w's level numbers of factor f mapped to the shared ones (-1:
+ * none); NULL on no memory. */
+static int32_t *local_map(const mr__run *r, size_t w, size_t f)
+{
+    const mr__levelset *local = &r->first.worker_levels[w][f];
+    int32_t *map = mr__malloc_array(local->n + 1, sizeof *map);
+    size_t j;
+    for (j = 0; map && j <= local->n; j++) map[j] = -1;
+    for (j = 0; map && j < local->cap; j++)
+        if (local->slot[j].str != NULL && (size_t)local->slot[j].id < local->n)
+            map[local->slot[j].id] = mr__levelset_find(&r->levels[f], local->slot[j].str, local->slot[j].len);
+    return map;
+}
+
+/* Factor f's totals over the workers, by shared level number. */
+static mr__outcome_counts *level_totals(const mr__run *r, size_t f)
+{
+    mr__outcome_counts *t = mr__calloc(r->levels[f].n + 1, sizeof *t);
+    size_t w, l;
+    for (w = 0; t && w < r->first.nworkers; w++) {
+        const mr__level_outcomes *lo = r->first.worker_outcomes[w];
+        int32_t *map = local_map(r, w, f);
+        size_t n = r->first.worker_levels[w][f].n;
+        if (map == NULL) {
+            mr__free(t);
+            return NULL;
+        }
+        for (l = 0; l < n && l < lo->nlevel[f]; l++) {
+            if (map[l] < 0) continue;
+            t[map[l]].rows += lo->level[f][l].rows;
+            t[map[l]].above_zero += lo->level[f][l].above_zero;
+            t[map[l]].below_max += lo->level[f][l].below_max;
+        }
+        mr__free(map);
+    }
+    return t;
+}
+
+static void check_factor(zero_report *z, const mr__run *r, size_t f, int *bad_level)
+{
+    const mr__factor *fac = &r->fac[f];
+    mr__outcome_counts *t = level_totals(r, f);
+    size_t l;
+    char what[512];
+    if (t == NULL) return;
+    for (l = 0; l < fac->nlevels; l++) {
+        int kind = kind_of(&t[l], z->binomial);
+        if (kind == FINE) continue;
+        bad_level[l] = 1;
+        snprintf(what, sizeof what, "%s=%s%s", fac->name, fac->level[l], (int32_t)l == fac->ref ? " (the reference)" : "");
+        note(z, kind, what, t[l].rows);
+        snprintf(what, sizeof what, "%s=%s", fac->name, fac->level[l]);
+        if ((int32_t)l == fac->ref) flag_factor(z->fit, fac->name);
+        else flag_name(z->fit, what);
+    }
+    mr__free(t);
+}
+
+static int add_worker_cells(const mr__run *r, size_t w, size_t k, mr__cell_table *t)
+{
+    const mr__cell_table *c = &r->first.worker_outcomes[w]->cells[k];
+    size_t i, fa = (size_t)r->pairs[k][0], fb = (size_t)r->pairs[k][1];
+    int32_t *ma = local_map(r, w, fa), *mb = local_map(r, w, fb);
+    int rc = ma && mb ? 0 : -1;
+    for (i = 0; rc == 0 && i < c->cap; i++) {
+        uint32_t a, b;
+        if (!mr__cell_table_slot(c, i, &a, &b)) continue;
+        if (a >= r->first.worker_levels[w][fa].n || b >= r->first.worker_levels[w][fb].n || ma[a] < 0 || mb[b] < 0)
+            continue;
+        rc = mr__cell_table_add(t, (uint32_t)ma[a], (uint32_t)mb[b], &c->slot[i].c);
+    }
+    mr__free(ma);
+    mr__free(mb);
+    return rc;
+}
+
+/* Pair k's cells over the workers, by shared level numbers, into t. */
+static int cell_totals(const mr__run *r, size_t k, mr__cell_table *t)
+{
+    size_t w;
+    for (w = 0; w < r->first.nworkers; w++)
+        if (add_worker_cells(r, w, k, t) != 0) return -1;
+    return 0;
+}
+
+/* The coefficient a cell's empty outcomes send off: the interaction's,
+ * or with a reference level in the cell the other factor's level's, or
+ * with both the intercept. */
+static void flag_cell(mr_fit *fit, const mr__factor *A, uint32_t a, const mr__factor *B, uint32_t b)
+{
+    char name[512];
+    int ra = (int32_t)a == A->ref, rb = (int32_t)b == B->ref;
+    if (!ra && !rb) snprintf(name, sizeof name, "%s=%s & %s=%s", A->name, A->level[a], B->name, B->level[b]);
+    else if (ra && !rb) snprintf(name, sizeof name, "%s=%s", B->name, B->level[b]);
+    else if (!ra) snprintf(name, sizeof name, "%s=%s", A->name, A->level[a]);
+    else snprintf(name, sizeof name, "intercept");
+    flag_name(fit, name);
+}
+
+/* Cells in level order (the first factor's slowest), so the warning reads
+ * the same whatever order the workers' tables were added in. */
+static void check_pair(zero_report *z, const mr__run *r, size_t k, int *const *bad_level)
+{
+    size_t fa = (size_t)r->pairs[k][0], fb = (size_t)r->pairs[k][1];
+    const mr__factor *A = &r->fac[fa], *B = &r->fac[fb];
+    mr__cell_table t = {NULL, 0, 0};
+    char what[512];
+    uint32_t a, b;
+    if (cell_totals(r, k, &t) == 0 && t.n > 0)
+        for (a = 0; a < A->nlevels; a++)
+            for (b = 0; b < B->nlevels; b++) {
+                const mr__outcome_counts *c = mr__cell_table_find(&t, a, b);
+                int kind = c ? kind_of(c, z->binomial) : FINE;
+                /* a level empty on its own was named already */
+                if (kind == FINE || bad_level[fa][a] || bad_level[fb][b]) continue;
+                snprintf(what, sizeof what, "%s=%s & %s=%s", A->name, A->level[a], B->name, B->level[b]);
+                note(z, kind, what, c->rows);
+                flag_cell(z->fit, A, a, B, b);
+            }
+    mr__free(t.slot);
+}
+
+static void warn(zero_report *z, int kind)
+{
+    size_t n = z->count[kind];
+    if (n == 0) return;
+    mr__fit_warn(z->fit,
+                 "%s in %zu factor level%s or cell%s: %s%s; there the fitted mean is at the edge of the range, the "
+                 "coefficients marked not estimable run off to infinity and their estimates and standard errors "
+                 "mean nothing. Merge such a level with a neighbouring one, or drop its rows (the stratum), and refit",
+                 kind == ALL_ZERO ? "every outcome 0" : "every trial a success (outcome at its maximum)", n,
+                 n == 1 ? "" : "s", n == 1 ? "" : "s", z->list[kind].data ? z->list[kind].data : "",
+                 n > 8 ? " and others" : "");
+}
+
+/* Coefficients whose standard error grew at each of the last passes,
+ * fitted means at the edge of the range: on their way to infinity. */
+static void flag_growing(mr_fit *fit, const mr__run *r)
+{
+    mr__strbuf sb;
+    size_t j, n = 0;
+    mr__strbuf_init(&sb);
+    for (j = 0; j < fit->p; j++) {
+        if (!r->growing[j] || fit->aliased[j]) continue;
+        fit->inestimable[j] = 1;
+        if (n++ < 8) mr__strbuf_printf(&sb, "%s'%s'", n > 1 ? ", " : "", fit->name[j]);
+    }
+    if (n)
+        mr__fit_warn(fit,
+                     "the standard error of %zu coefficient%s grew pass after pass (at each of the last %d, or %g-fold): "
+                     "%s%s; %s running off to infinity (separation, or quasi-separation by a "
+                     "covariate) and marked not estimable. Regroup or drop the covariate or level that separates the "
+                     "outcomes, or fit the rows where it does not",
+                     n, n == 1 ? "" : "s", MR__IRLS_GROWTH_PASSES, MR__IRLS_GROWTH_FACTOR, sb.data ? sb.data : "", n > 8 ? " and others" : "",
+                     n == 1 ? "it is" : "they are");
+    mr__strbuf_release(&sb);
+}
+
+void mr__flag_zero_cells(mr_fit *fit, const mr__run *r)
+{
+    zero_report z;
+    int **bad_level;
+    size_t f, k, w, nfac = r->bind.nfac;
+    int family = r->f->spec.family;
+    flag_growing(fit, r);
+    if (family != MR_BINOMIAL && family != MR_POISSON && family != MR_NEGATIVE_BINOMIAL && family != MR_TWEEDIE)
+        return;
+    if (r->first.worker_outcomes == NULL) return;
+    for (w = 0; w < r->first.nworkers; w++)
+        if (r->first.worker_outcomes[w] == NULL || r->first.worker_outcomes[w]->failed) return;
+    memset(&z, 0, sizeof z);
+    z.fit = fit;
+    z.binomial = family == MR_BINOMIAL;
+    for (k = 0; k < 3; k++) mr__strbuf_init(&z.list[k]);
+    bad_level = mr__calloc(nfac + 1, sizeof *bad_level);
+    for (f = 0; bad_level && f < nfac; f++) {
+        if ((bad_level[f] = mr__calloc(r->fac[f].nlevels + 1, sizeof **bad_level)) == NULL) break;
+        check_factor(&z, r, f, bad_level[f]);
+    }
+    for (k = 0; bad_level && f == nfac && k < r->dcfg.npairs; k++) check_pair(&z, r, k, bad_level);
+    warn(&z, ALL_ZERO);
+    warn(&z, ALL_MAX);
+    for (f = 0; bad_level && f < nfac; f++) mr__free(bad_level[f]);
+    mr__free(bad_level);
+    for (k = 0; k < 3; k++) mr__strbuf_release(&z.list[k]);
+}
