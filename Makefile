@@ -187,12 +187,15 @@ asan-check: asan $(B)/synth
 	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/drift.sh
 	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/checkpoint.sh
 	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/robust.sh
+	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/filesets.sh
 
 # The threaded paths under ThreadSanitizer (OpenBLAS is not instrumented:
 # its internal races are not ours and are suppressed).
 tsan-check: $(B)/tsan/millrace $(B)/synth
 	TSAN_OPTIONS="halt_on_error=1 suppressions=$(CURDIR)/tests/tsan.supp" MILLRACE=$(B)/tsan/millrace \
 	  bash tests/cli/threads.sh
+	TSAN_OPTIONS="halt_on_error=1 suppressions=$(CURDIR)/tests/tsan.supp" MILLRACE=$(CURDIR)/$(B)/tsan/millrace \
+	  bash tests/cli/filesets.sh
 
 valgrind-check: all
 	MILLRACE="valgrind --quiet --error-exitcode=99 --leak-check=full --errors-for-leak-kinds=definite $(B)/millrace" \

@@ -367,8 +367,10 @@ MR_API mr_status mr_fitter_set_cluster(mr_fitter *f, const char *column, size_t 
  * size and time kept is caught by the later passes' checksums (MR_ERR_IO,
  * as any change during a fit).  Standard input and pipes cannot be read
  * again after a restart: mr_fitter_run refuses a checkpoint with them
- * (MR_ERR_USAGE); the path is checked as an output (MR_ERR_USAGE when it
- * is the input, MR_ERR_IO when it cannot be written or its lock is held).
+ * (MR_ERR_USAGE), as it and mr_fitter_run_set refuse one with a set of
+ * files or a directory (the checkpoint records one file's identity); the
+ * path is checked as an output (MR_ERR_USAGE when it is the input,
+ * MR_ERR_IO when it cannot be written or its lock is held).
  * Collapsed fits (one read of the file, IRLS in memory) write it once,
  * after the read.  Returns MR_OK or MR_ERR_NO_MEMORY. */
 MR_API mr_status mr_fitter_set_checkpoint(mr_fitter *f, const char *path);
@@ -388,8 +390,37 @@ MR_API const char *mr_fitter_checkpoint_note(const mr_fitter *f);
  * a fit that stopped at the pass limit is still returned with MR_OK and
  * flagged (mr_fit_status() gives MR_ERR_NOT_CONVERGED).  On any other
  * status *out is NULL and mr_fitter_errmsg says why.  The fitter may be run
- * again, on the same or another file. */
+ * again, on the same or another file.  A zstd file of several frames (as
+ * pzstd writes) is decompressed by up to min(threads, 4) threads besides
+ * the workers, frame by frame, with a bounded number of frames in memory:
+ * the same bits for any count.  A directory is read as a set of files
+ * (mr_fitter_run_set). */
 MR_API mr_status mr_fitter_run(mr_fitter *f, const char *path, mr_fit **out);
+
+/* Fits the model to several files read as one data set: `paths[0 ..
+ * npaths)` in the order given, where a directory stands for every regular
+ * file in it (symbolic links to regular files included; subdirectories
+ * and names starting with '.' passed over) in byte order of the names.
+ * mr_fitter_run with a directory is the same as a set of that directory.
+ * Every file has a header row naming the same columns as the first file's
+ * (else MR_ERR_FORMAT: "FILE:1:COLUMN: the header differs from FIRST's"),
+ * each may be plain, zstd or gzip on its own, and the rows are those of
+ * the files one after the other: the fit is bit for bit the fit of their
+ * concatenation without the later header rows, provided each file's last
+ * row ends with a line end (a file's last row ends with its file here,
+ * where a plain concatenation would join it to the next file's header).
+ * A quoted field cannot run from one file into the next.  Messages name
+ * the file and its own line.  The files must be regular files (each is
+ * read once per pass, or the cache is), so "-" is MR_ERR_USAGE here; an
+ * empty directory MR_ERR_NO_DATA.  The fit's JSON records, under
+ * input.set.files, each file's path, size, modification time, bytes,
+ * compression and checksum; input.path is then the paths given, joined by
+ * spaces; input.checksum the set's: FNV-1a 64 over the files' checksums,
+ * each as 8 little-endian bytes, in order (a set's checksum is therefore
+ * not the checksum of a file holding the same rows); input.file.size the
+ * sizes summed and input.file.mtime_ns the newest file's time.  npaths ==
+ * 1 is mr_fitter_run.  Statuses and ownership as for mr_fitter_run. */
+MR_API mr_status mr_fitter_run_set(mr_fitter *f, const char *const *paths, size_t npaths, mr_fit **out);
 
 /* ------------------------------------------------------------------ */
 /* The fit.  All accessors take a non-NULL fit; indices are 0-based and
@@ -787,6 +818,12 @@ MR_API mr_status mr_scorer_set_unseen(mr_scorer *s, mr_unseen policy);
 /* Worker threads as MR_OPT_THREADS (0 = online CPUs, the default). */
 MR_API mr_status mr_scorer_set_threads(mr_scorer *s, int threads);
 MR_API mr_status mr_scorer_run(mr_scorer *s, const char *data, const char *out);
+/* The same over several files read as one data set, by the rules of
+ * mr_fitter_run_set (a directory's regular files, the same header in
+ * each, messages naming each file and its own line): one output row per
+ * row of the files, in order.  mr_scorer_run with a directory is a set of
+ * it; npaths == 1 is mr_scorer_run. */
+MR_API mr_status mr_scorer_run_set(mr_scorer *s, const char *const *paths, size_t npaths, const char *out);
 /* A count of the last run (also after a failed one: what was written
  * before it). */
 MR_API uint64_t mr_scorer_count(const mr_scorer *s, mr_score_count which);

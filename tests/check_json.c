@@ -285,6 +285,32 @@ START_TEST(round_trip_awkward)
 }
 END_TEST
 
+/* A set of files (mr_fitter_run_set): input.set, each file's identity,
+ * written, read back and written again; a single input writes none. */
+START_TEST(round_trip_set)
+{
+    static const char *const lines[] = {"outcome y", "family poisson", "numeric a"};
+    const char *set[2];
+    mr_fitter *f = mr_fitter_new();
+    mr_fit *fit = NULL;
+    size_t i;
+    char *text;
+    set[0] = in_dir("set1.csv");
+    set[1] = in_dir("set2.csv");
+    spit(set[0], "y,a\n1,1\n2,2\n3,3\n", 16);
+    spit(set[1], "y,a\n5,4\n4,5\n", 12);
+    ck_assert_ptr_nonnull(f);
+    for (i = 0; i < 3; i++) ck_assert_msg(mr_fitter_model_line(f, lines[i], "--test") == MR_OK, "%s", mr_fitter_errmsg(f));
+    ck_assert_msg(mr_fitter_run_set(f, set, 2, &fit) == MR_OK, "%s", mr_fitter_errmsg(f));
+    mr_fitter_free(f);
+    ck_assert_msg(mr_fit_write_json(fit, in_dir("set.json"), NULL, 0) == MR_OK, "write");
+    text = slurp(in_dir("set.json"));
+    ck_assert_msg(strstr(text, "\"set\": {") != NULL && strstr(text, "set2.csv\"") != NULL, "%s", text);
+    free(text);
+    round_trip(fit, "set");
+}
+END_TEST
+
 /* Splines: quantile knots of the calendar year times a factor, and given
  * knots with boundary knots inside the data (straight-line ends). */
 START_TEST(round_trip_spline)
@@ -553,6 +579,7 @@ static Suite *json_suite(void)
     tcase_add_test(t, round_trip_falls);
     tcase_add_test(t, round_trip_screening);
     tcase_add_test(t, round_trip_awkward);
+    tcase_add_test(t, round_trip_set);
     tcase_add_test(t, round_trip_spline);
     tcase_add_test(t, round_trip_family_parameter);
     tcase_add_test(t, round_trip_robust);

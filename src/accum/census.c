@@ -33,7 +33,7 @@ mr_status mr__census_add(mr__level_census *c, const mr__block *blk, const mr__ch
             char msg[300];
             mr__cell_message(msg, sizeof msg, &cfg->bind->col[cfg->bind->fac_col[v->var]], MR__TOO_MANY_LEVELS,
                              v->str, v->len);
-            return mr__fail(err, MR_ERR_DOMAIN, "%s:%llu:%s", cfg->display,
+            return mr__fail(err, MR_ERR_DOMAIN, "%s:%llu:%s", mr__chunk_row_display(ch, v->row, cfg->display),
                             (unsigned long long)(ch->first_line + ch->row_line[v->row]), msg);
         }
     }

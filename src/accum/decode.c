@@ -312,12 +312,14 @@ static void record_bad(mr__decoder *d, uint32_t r, const char *msg)
     uint64_t line = d->chunk->first_line + d->chunk->row_line[r];
     if (!d->cfg->skip_bad) {
         blk->failed = 1;
-        mr__fail(&blk->err, d->row_status, "%s:%llu:%s", d->cfg->display, (unsigned long long)line, msg);
+        mr__fail(&blk->err, d->row_status, "%s:%llu:%s", mr__chunk_row_display(d->chunk, r, d->cfg->display),
+                 (unsigned long long)line, msg);
         d->stop = 1;
         return;
     }
     if (blk->nbad_shown < MR__BAD_SHOWN) {
         blk->bad[blk->nbad_shown].line = line;
+        blk->bad[blk->nbad_shown].file = mr__chunk_row_display(d->chunk, r, NULL);
         snprintf(blk->bad[blk->nbad_shown].msg, sizeof blk->bad[0].msg, "%s", msg);
         blk->nbad_shown++;
     }

@@ -32,6 +32,7 @@ typedef struct mr__new_level {
 
 typedef struct mr__bad_row {
     uint64_t line;
+    const char *file; /* a set's file (the set owns the name), NULL for a single input */
     char msg[320];
 } mr__bad_row;
 

@@ -197,7 +197,8 @@ static void cell_error(score_worker *sw, uint32_t r, mr_status st, const char *n
     mr__column col = {.name = name, .field = field, .use = MR__USE_NUMERIC, .var = -1};
     if (sw->s->st != MR_OK) return;
     mr__cell_message(msg, sizeof msg, &col, what, p, n);
-    sw->s->st = mr__fail(&sw->s->err, st, "%s:%llu:%s", sw->c->display, (unsigned long long)row_line(sw, r), msg);
+    sw->s->st = mr__fail(&sw->s->err, st, "%s:%llu:%s", mr__chunk_row_display(sw->chunk, r, sw->c->display),
+                         (unsigned long long)row_line(sw, r), msg);
 }
 
 /* A numeric cell: 1 a number, 0 missing, -1 not a number (the error set). */
@@ -445,7 +446,7 @@ static void on_row_end(void *user, uint32_t r, size_t nfields)
     if (sw->s->st == MR_OK && sw->nomem) sw->s->st = mr__fail(&sw->s->err, MR_ERR_NO_MEMORY, "out of memory");
     if (sw->s->st == MR_OK && nfields != c->nfields)
         sw->s->st = mr__fail(&sw->s->err, MR_ERR_FORMAT, "%s:%llu:%zu: expected %zu fields as in the header, found %zu",
-                             c->display, (unsigned long long)row_line(sw, r),
+                             mr__chunk_row_display(sw->chunk, r, c->display), (unsigned long long)row_line(sw, r),
                              nfields < c->nfields ? nfields : c->nfields + 1, c->nfields, nfields);
     if (sw->s->st == MR_OK) score_one(sw, r, out);
     sw->used = 0;

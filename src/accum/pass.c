@@ -16,6 +16,7 @@
 #include "accum/pass.h"
 #include "common/alloc.h"
 #include "common/clock.h"
+#include "input/inputset.h"
 #include "input/rowsplit.h"
 #include "input/source.h"
 
@@ -61,6 +62,14 @@ typedef struct engine {
     int reader_started;
     char *buf;
     size_t buf_cap, pending_off, pending_len;
+    uint64_t bytes_total;   /* the input's size, or the set's */
+    /* a set of files (cfg->set): the one being read, the raw bytes of
+     * those before it, each one's identity, the first one's header */
+    size_t file;
+    uint64_t raw_before;
+    mr__file_identity *files;
+    char *first_header;
+    size_t first_header_len;
 } engine;
 
 /* ---- the reader ------------------------------------------------------ */
@@ -90,7 +99,7 @@ static mr__chunk *on_full_chunk(void *user, mr__chunk *full, mr__error *err)
 {
     engine *e = user;
     slot *s = &e->slots[full->index % e->W], *next;
-    s->raw_bytes = mr__source_raw_bytes(e->src);
+    s->raw_bytes = e->raw_before + mr__source_raw_bytes(e->src);
     publish(e, s);
     pthread_mutex_lock(&e->mu);
     next = claim_slot(e, full->index + 1);
@@ -102,12 +111,60 @@ static mr__chunk *on_full_chunk(void *user, mr__chunk *full, mr__error *err)
     return next->chunk;
 }
 
-static mr_status read_stream(engine *e, mr__error *err)
+/* The one input, or file k of a set. */
+static mr_status open_source(engine *e, size_t k, mr__error *err)
 {
-    if (e->pending_len > 0) {
-        size_t used;
-        MR__TRY(mr__splitter_feed(&e->sp, e->buf + e->pending_off, e->pending_len, &used, on_full_chunk, e, err));
+    const mr__pass_cfg *cfg = e->cfg;
+    const char *path = cfg->set ? cfg->set->path[k] : cfg->path;
+    const char *display = cfg->set ? cfg->set->display[k] : cfg->display;
+    MR__TRY(mr__source_open(&e->src, path, display, cfg->read_size, cfg->tee_fd, err));
+    mr__source_set_threads(e->src, cfg->nthreads);
+    return MR_OK;
+}
+
+static void note_file(engine *e)
+{
+    mr__file_identity *f = &e->files[e->file];
+    mr__source_identity(e->src, &f->size, &f->mtime_ns);
+    f->raw_bytes = mr__source_raw_bytes(e->src);
+    f->out_bytes = mr__source_out_bytes(e->src);
+    f->checksum = mr__source_checksum(e->src);
+    f->compression = mr__source_compression(e->src);
+}
+
+/* The next file of a set: its header read and held to the first file's,
+ * then the rows after it. */
+static mr_status next_file(engine *e, mr__error *err)
+{
+    const mr__inputset *set = e->cfg->set;
+    const char *display = set->display[e->file + 1];
+    size_t got = 0, used = 0;
+    MR__TRY(mr__source_check_unchanged(e->src, 1, err));
+    note_file(e);
+    e->raw_before += mr__source_raw_bytes(e->src);
+    mr__source_close(e->src);
+    e->src = NULL;
+    MR__TRY(mr__splitter_next_file(&e->sp, (uint32_t)++e->file, on_full_chunk, e, err));
+    MR__TRY(open_source(e, e->file, err));
+    while (e->sp.want_header) {
+        MR__TRY(mr__source_read(e->src, e->buf, e->buf_cap, &got, err));
+        if (got == 0) {
+            MR__TRY(mr__splitter_finish(&e->sp, NULL, NULL, err));
+            if (e->sp.want_header) return mr__fail(err, MR_ERR_NO_DATA, "%s: the file is empty", display);
+            used = 0;
+            break;
+        }
+        MR__TRY(mr__splitter_feed(&e->sp, e->buf, got, &used, on_full_chunk, e, err));
     }
+    MR__TRY(mr__inputset_check_header(e->first_header, e->first_header_len, set->display[0], e->sp.header,
+                                      e->sp.header_len, display, e->cfg->dcfg->delim, err));
+    if (got > used) MR__TRY(mr__splitter_feed(&e->sp, e->buf + used, got - used, &used, on_full_chunk, e, err));
+    return MR_OK;
+}
+
+/* The input's bytes, read in place into the chunks being cut. */
+static mr_status read_file_rows(engine *e, mr__error *err)
+{
     /* Decompressed bytes go straight into the chunk being cut, saving a
      * copy on the thread every other thread waits for.  A read that
      * completes the chunk leaves its rest in that chunk's buffer, to be
@@ -122,6 +179,20 @@ static mr_status read_stream(engine *e, mr__error *err)
         MR__TRY(mr__source_read(e->src, at, want, &got, err));
         if (got == 0) break;
         MR__TRY(mr__splitter_feed(&e->sp, at, got, &used, on_full_chunk, e, err));
+    }
+    return MR_OK;
+}
+
+static mr_status read_stream(engine *e, mr__error *err)
+{
+    if (e->pending_len > 0) {
+        size_t used;
+        MR__TRY(mr__splitter_feed(&e->sp, e->buf + e->pending_off, e->pending_len, &used, on_full_chunk, e, err));
+    }
+    for (;;) {
+        MR__TRY(read_file_rows(e, err));
+        if (e->cfg->set == NULL || e->file + 1 >= e->cfg->set->n) break;
+        MR__TRY(next_file(e, err));
     }
     return mr__splitter_finish(&e->sp, on_full_chunk, e, err);
 }
@@ -507,7 +578,7 @@ static mr_status read_header(engine *e, mr__error *err)
         MR__TRY(mr__source_read(e->src, e->buf, e->buf_cap, &got, err));
         if (got == 0) {
             MR__TRY(mr__splitter_finish(&e->sp, on_full_chunk, e, err));
-            if (e->sp.want_header) return mr__fail(err, MR_ERR_NO_DATA, "%s: the file is empty", cfg->display);
+            if (e->sp.want_header) return mr__fail(err, MR_ERR_NO_DATA, "%s: the file is empty", e->sp.display);
             used = 0;
             break;
         }
@@ -515,6 +586,11 @@ static mr_status read_header(engine *e, mr__error *err)
     }
     e->pending_off = used;
     e->pending_len = got - used;
+    if (cfg->set != NULL) {
+        if ((e->first_header = mr__strndup(e->sp.header, e->sp.header_len)) == NULL)
+            return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        e->first_header_len = e->sp.header_len;
+    }
     return cfg->on_header(cfg->header_user, e->sp.header, e->sp.header_len, err);
 }
 
@@ -524,7 +600,7 @@ static mr_status read_header(engine *e, mr__error *err)
 static int reads_by_map(const engine *e)
 {
     const mr__block_map *m = e->cfg->map;
-    return m != NULL && m->usable && mr__source_is_file(e->src) &&
+    return m != NULL && m->usable && e->cfg->set == NULL && mr__source_is_file(e->src) &&
            !mr__source_is_zstd(e->src) && (m->n == 0 || m->span[0].offset == e->sp.pos);
 }
 
@@ -537,11 +613,15 @@ static mr_status begin_stream(engine *e, mr__error *err)
 {
     const mr__pass_cfg *cfg = e->cfg;
     slot *first;
-    MR__TRY(mr__source_open(&e->src, cfg->path, cfg->display, cfg->read_size, cfg->tee_fd, err));
+    if (cfg->set != NULL && (e->files = mr__calloc(cfg->set->n, sizeof *e->files)) == NULL)
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    MR__TRY(open_source(e, 0, err));
+    e->bytes_total = cfg->set ? cfg->set->total_size : mr__source_size(e->src);
     e->buf_cap = cfg->read_size < 16 ? 16 : cfg->read_size < HEADER_READ ? cfg->read_size : HEADER_READ;
     e->buf = mr__malloc(e->buf_cap);
     if (e->buf == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    mr__splitter_init(&e->sp, cfg->display, 1);
+    mr__splitter_init(&e->sp, cfg->set ? cfg->set->display[0] : cfg->display, 1);
+    if (cfg->set != NULL) e->sp.names = (const char *const *)cfg->set->display;
     MR__TRY(read_header(e, err));
     MR__TRY(init_slots(e, err));
     e->by_map = reads_by_map(e);
@@ -557,7 +637,8 @@ static mr_status begin_stream(engine *e, mr__error *err)
     return MR_OK;
 }
 
-static mr_status report_progress(engine *e, const slot *s, double t0, double *last, int final, mr__error *err)
+/* done: the raw bytes up to the block just added, NULL at the end. */
+static mr_status report_progress(engine *e, const uint64_t *done, double t0, double *last, int final, mr__error *err)
 {
     const mr__pass_cfg *cfg = e->cfg;
     mr_progress pr;
@@ -565,8 +646,8 @@ static mr_status report_progress(engine *e, const slot *s, double t0, double *la
     if ((cfg->progress == NULL && cfg->progress_stop == NULL) || (!final && t - *last < 0.25)) return MR_OK;
     *last = t;
     pr.pass = cfg->pass_number;
-    pr.bytes_done = s ? s->raw_bytes : (e->src ? mr__source_raw_bytes(e->src) : 0);
-    pr.bytes_total = e->src ? mr__source_size(e->src) : 0;
+    pr.bytes_done = done ? *done : (e->src ? e->raw_before + mr__source_raw_bytes(e->src) : 0);
+    pr.bytes_total = e->bytes_total;
     pr.rows_done = e->rows_done;
     pr.seconds = t - t0;
     if (cfg->progress) cfg->progress(&pr, cfg->progress_user);
@@ -630,6 +711,7 @@ static mr_status combine_all(engine *e, double t0, mr__error *err)
     double last = t0;
     for (;;) {
         slot *s;
+        uint64_t done;
         mr_status st;
         pthread_mutex_lock(&e->mu);
         for (;;) {
@@ -646,6 +728,7 @@ static mr_status combine_all(engine *e, double t0, mr__error *err)
         if (s->use != NULL) e->rows_done += s->use->nread;
         st = add_block(e, s, err);
         if (st != MR_OK) return st;
+        done = s->raw_bytes; /* the slot is the reader's again once freed */
         pthread_mutex_lock(&e->mu);
         s->state = SLOT_FREE;
         s->use = NULL;
@@ -653,7 +736,7 @@ static mr_status combine_all(engine *e, double t0, mr__error *err)
         if (workers_fetch(e)) pthread_cond_broadcast(&e->slot_free);
         else pthread_cond_signal(&e->slot_free);
         pthread_mutex_unlock(&e->mu);
-        st = report_progress(e, s, t0, &last, 0, err);
+        st = report_progress(e, &done, t0, &last, 0, err);
         if (st != MR_OK) return st;
     }
     if (e->reader_st != MR_OK) {
@@ -663,9 +746,34 @@ static mr_status combine_all(engine *e, double t0, mr__error *err)
     return report_progress(e, NULL, t0, &last, 1, err);
 }
 
+/* A set's totals: bytes summed, the newest time, the set's checksum. */
+static void finish_set(engine *e, mr__pass_result *res)
+{
+    size_t i, n = e->file + 1;
+    note_file(e);
+    res->raw_bytes = res->out_bytes = res->size = 0;
+    res->mtime_ns = INT64_MIN;
+    for (i = 0; i < n; i++) {
+        res->raw_bytes += e->files[i].raw_bytes;
+        res->out_bytes += e->files[i].out_bytes;
+        res->size += e->files[i].size;
+        if (e->files[i].mtime_ns > res->mtime_ns) res->mtime_ns = e->files[i].mtime_ns;
+    }
+    res->checksum = mr__inputset_checksum(e->files, n);
+    res->zstd = e->files[0].compression;
+    res->by_map = 0;
+    res->files = e->files;
+    res->nfiles = n;
+    e->files = NULL;
+}
+
 static void finish_source(engine *e, mr__pass_result *res)
 {
     if (e->src == NULL) return;
+    if (e->cfg->set != NULL) {
+        finish_set(e, res);
+        return;
+    }
     res->raw_bytes = mr__source_raw_bytes(e->src);
     res->out_bytes = mr__source_out_bytes(e->src);
     res->checksum = mr__source_checksum(e->src);
@@ -691,6 +799,8 @@ static void release_engine(engine *e)
     mr__splitter_release(&e->sp);
     mr__source_close(e->src);
     mr__free(e->buf);
+    mr__free(e->files);
+    mr__free(e->first_header);
     pthread_mutex_destroy(&e->mu);
     pthread_cond_destroy(&e->slot_free);
     pthread_cond_destroy(&e->slot_filled);
@@ -744,7 +854,7 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     e.env.nworkers = e.nworkers;
     st = e.ops->open(&e.env, &e.job, err);
     if (st == MR_OK) st = replaying(cfg) ? init_slots(&e, err) : begin_stream(&e, err);
-    e.env.plain = e.src != NULL && !mr__source_is_zstd(e.src);
+    e.env.plain = e.src != NULL && !mr__source_is_zstd(e.src) && cfg->set == NULL;
     /* the columns are bound now that the header is read */
     if (st == MR_OK) st = e.ops->start(e.job, err);
     if (st == MR_OK && replaying(cfg)) {
@@ -755,6 +865,7 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     stop_threads(&e);
     finish_source(&e, res);
     if (e.job) st = e.ops->finish(e.job, st, err);
+    if (cfg->set != NULL) res->map.usable = 0; /* offsets in no one file */
     release_engine(&e);
     res->seconds = mr__seconds_now() - t0;
     return st;
@@ -775,6 +886,7 @@ void mr__pass_result_release(mr__pass_result *res, size_t nfac)
     if (res->sample.packed) mr__store_release(&res->sample);
     mr__pattern_merge_release(&res->patterns);
     mr__block_map_release(&res->map);
+    mr__free(res->files);
     mr__scan_release(&res->scan);
     mr__sums_release(&res->sums);
     mr__sums_release(&res->bread);

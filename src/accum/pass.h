@@ -29,6 +29,7 @@
 #include "accum/scan.h"
 #include "accum/store.h"
 #include "input/blockmap.h"
+#include "input/inputset.h"
 #include "accum/decode.h"
 #include "accum/level_outcomes.h"
 #include "millrace.h"
@@ -63,6 +64,7 @@ typedef mr_status (*mr__header_fn)(void *user, const char *line, size_t len, mr_
 typedef struct mr__pass_cfg {
     mr__pass_kind kind;
     const char *path;     /* what to open ("-" = standard input) */
+    const mr__inputset *set; /* NULL, or several files read as one (path unused) */
     const char *display;  /* the name in messages */
     size_t read_size;
     int tee_fd;           /* -1, or where to copy raw input (standard input) */
@@ -93,6 +95,11 @@ typedef struct mr__pass_result {
     uint64_t raw_bytes, out_bytes, size, checksum;
     int64_t mtime_ns;
     int zstd;
+    /* A set: each file's identity (nfiles of them); the totals above are
+     * then the bytes summed, the sizes summed, the newest time, the set's
+     * checksum (inputset.h) and the first file's compression. */
+    mr__file_identity *files;
+    size_t nfiles;
     /* First pass: each worker's factor levels (nthreads decoders' sets),
      * valid until mr__pass_result_release. */
     mr__levelset **worker_levels;

@@ -112,7 +112,8 @@ static const struct option report_options[] = {
 };
 
 static const char usage_text[] =
-    "usage: millrace fit [options] DATA     fit a GLM to DATA (CSV, TSV, zstd or gzip, or - for stdin)\n"
+    "usage: millrace fit [options] DATA...  fit a GLM to DATA (CSV, TSV, zstd or gzip, or - for stdin);\n"
+    "                               several files or a directory are read as one data set\n"
     "       millrace show [--digits N] FIT.json   the report of a fit saved with --json\n"
     "       millrace drift [--threshold SE] [--json PATH] [--csv PATH] [--digits N] OLD.json NEW.json\n"
     "                               what changed between two saved fits of one model (default 3 SE)\n"
@@ -427,17 +428,18 @@ static int publish(cli *c, mr_fit *fit)
 
 /* Refuses, before the fit, a JSON path that is the data or the model
  * file or cannot take an output (the library checks again as it writes). */
-static int check_outputs(cli *c, const char *data)
+static int check_outputs(cli *c, char **data, size_t ndata)
 {
-    const char *inputs[2] = {data, c->model_file};
+    const char **inputs = calloc(ndata + 1, sizeof *inputs);
+    size_t n = ndata;
     char msg[1024];
-    mr_status st;
-    if (c->run_log && (st = mr_output_check(c->run_log, inputs, c->model_file ? 2 : 1, msg, sizeof msg)) != MR_OK) {
-        c->run_log_refused = 1;
-        return fail(st, msg);
-    }
-    if (c->json_path == NULL) return 0;
-    st = mr_output_check(c->json_path, inputs, c->model_file ? 2 : 1, msg, sizeof msg);
+    mr_status st = MR_OK;
+    if (inputs == NULL) return fail(MR_ERR_NO_MEMORY, "out of memory");
+    memcpy(inputs, data, ndata * sizeof *inputs);
+    if (c->model_file) inputs[n++] = c->model_file;
+    if (c->run_log && (st = mr_output_check(c->run_log, inputs, n, msg, sizeof msg)) != MR_OK) c->run_log_refused = 1;
+    if (st == MR_OK && c->json_path) st = mr_output_check(c->json_path, inputs, n, msg, sizeof msg);
+    free(inputs);
     return st == MR_OK ? 0 : fail(st, msg);
 }
 
@@ -560,10 +562,10 @@ static int run_fit(cli *c, int argc, char **argv)
         if (opt == '?') return usage_error("bad option");
         if ((rc = handle_option(c, opt, optarg)) >= 0) return rc;
     }
-    if (optind != argc - 1) return usage_error("fit takes exactly one data file (or - for standard input)");
+    if (optind >= argc) return usage_error("fit takes one or more data files or directories (or - for standard input)");
     c->data = argv[optind];
     if ((rc = apply_model(c)) != 0) return rc;
-    if ((rc = check_outputs(c, argv[optind])) != 0) return rc;
+    if ((rc = check_outputs(c, argv + optind, (size_t)(argc - optind))) != 0) return rc;
     if (mr_fitter_set_command_line(c->fitter, (size_t)c->argc, (const char *const *)c->argv) != MR_OK)
         return fail(MR_ERR_NO_MEMORY, "out of memory");
     if ((rc = lock_output(c)) != 0) return rc;
@@ -571,7 +573,7 @@ static int run_fit(cli *c, int argc, char **argv)
     mr_fitter_set_progress_stop(c->fitter, progress_or_stop, c);
     stop_at_block = 1;
     read_test_kill();
-    st = mr_fitter_run(c->fitter, argv[optind], &fit);
+    st = mr_fitter_run_set(c->fitter, (const char *const *)argv + optind, (size_t)(argc - optind), &fit);
     stop_at_block = 0;
     if (mr_fitter_checkpoint_note(c->fitter)[0])
         fprintf(stderr, "millrace: %s\n", mr_fitter_checkpoint_note(c->fitter));
@@ -835,14 +837,15 @@ static int run_score(mr_scorer *s, score_cli *o, int argc, char **argv)
         fputs(usage_text, stdout);
         return 0;
     }
-    if (optind != argc - 1) return usage_error("score takes exactly one data file (or - for standard input)");
+    if (optind >= argc) return usage_error("score takes one or more data files or directories (or - for standard input)");
     if (o->fit_path == NULL || o->out_path == NULL) return usage_error("score needs --fit and --out");
     if (o->by_out && !o->by) return usage_error("--by-out needs --by");
     inputs[0] = argv[optind];
     inputs[1] = o->fit_path;
     if ((st = mr_output_check(o->out_path, inputs, 2, msg, sizeof msg)) != MR_OK) return fail(st, msg);
     if (o->by_out && (st = mr_output_check(o->by_out, inputs, 2, msg, sizeof msg)) != MR_OK) return fail(st, msg);
-    if ((st = mr_scorer_run(s, argv[optind], o->out_path)) != MR_OK) return fail(st, mr_scorer_errmsg(s));
+    st = mr_scorer_run_set(s, (const char *const *)argv + optind, (size_t)(argc - optind), o->out_path);
+    if (st != MR_OK) return fail(st, mr_scorer_errmsg(s));
     if (!o->quiet) score_summary(s, o->out_path);
     return o->by ? write_groups(s, o) : 0;
 }

@@ -49,7 +49,8 @@ void mr__choose_store(mr__run *r)
      * less than that (generous on both counts, but a zstd file of blank
      * lines or repeated rows can expand far more: then a write fails and
      * the cache is given up). */
-    if (strcmp(r->path, "-") != 0 && stat(r->path, &in) == 0) need = 8.0 * (double)in.st_size;
+    if (r->set.n > 0) need = 8.0 * (double)r->set.total_size;
+    else if (strcmp(r->path, "-") != 0 && stat(r->path, &in) == 0) need = 8.0 * (double)in.st_size;
     if (r->f->in_memory) {
         mr__store_init_packed(&r->store);
         r->use_store = 1;

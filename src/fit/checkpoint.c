@@ -350,6 +350,11 @@ mr_status mr__checkpoint_begin(mr__run *r, mr__irls *resume, int *have_resume, m
     mr_status st;
     *have_resume = 0;
     if (r->f->checkpoint == NULL) return MR_OK;
+    /* a set's files would each need their identity kept and checked: not
+     * yet, so refused rather than taken up wrongly */
+    if (r->set.n > 0)
+        return mr__fail(err, MR_ERR_USAGE, "checkpoint: %s: a set of %zu files; --checkpoint takes one input file "
+                                           "(fit the set without it, or join the files into one)", r->display, r->set.n);
     if (mr__read_only_once(r->path))
         return mr__fail(err, MR_ERR_USAGE, "checkpoint: %s is read only once (standard input or a pipe), so a "
                                            "killed fit could not read it again; give a file", r->display);

@@ -57,6 +57,8 @@ void mr_fit_free(mr_fit *fit)
     free_strings(fit->bad_example, fit->nbad_examples);
     mr__free(fit->pass_seconds);
     mr__free(fit->path);
+    for (i = 0; fit->set_file && i < fit->nset_files; i++) mr__free(fit->set_file[i].path);
+    mr__free(fit->set_file);
     mr__free(fit->start_from);
     mr__free(fit->version);
     free_strings(fit->warning, fit->nwarnings);

@@ -99,6 +99,11 @@ struct mr_fit {
     int64_t file_mtime_ns; /* since the epoch */
     uint64_t bytes, decompressed_bytes, checksum;
     int compression; /* an mr__compression (input/codec.h) */
+    /* a set of files (input/inputset.h): each one's identity; set_known 0
+     * for a single input (then no "set" in the JSON) */
+    int set_known;
+    struct mr__fit_input_file *set_file;
+    size_t nset_files;
     char delimiter;
     int delimiter_detected;
     int threads, max_passes, in_memory, skip_bad, cached;
@@ -131,6 +136,15 @@ struct mr_fit {
     /* taken up from a checkpoint after pass resumed_from_pass (resumed 1) */
     int resumed, resumed_from_pass;
 };
+
+/* One file of a set as the first pass read it. */
+typedef struct mr__fit_input_file {
+    char *path;
+    uint64_t size;
+    int64_t mtime_ns;
+    uint64_t bytes, decompressed_bytes, checksum;
+    int compression;
+} mr__fit_input_file;
 
 /* Numeric column `name`, or NULL (unknown or not a numeric). */
 const mr__fit_numeric *mr__fit_find_numeric(const mr_fit *fit, const char *name);

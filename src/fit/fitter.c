@@ -8,6 +8,7 @@
 #include "fit/fit.h"
 #include "fit/fitter.h"
 #include "fit/start.h"
+#include "input/inputset.h"
 
 #define DEFAULT_MAX_PASSES 50
 #define DEFAULT_BUFFER (1u << 20)
@@ -184,6 +185,15 @@ mr_status mr__fitter_record_run(const mr_fitter *f, mr_fit *fit, int64_t started
     return MR_OK;
 }
 
+static mr_status finish_run(mr_fitter *f, mr_status st, int64_t started, mr_fit **out)
+{
+    if (st == MR_OK && (st = mr__fitter_record_run(f, *out, started, &f->err)) != MR_OK) {
+        mr_fit_free(*out);
+        *out = NULL;
+    }
+    return st;
+}
+
 mr_status mr_fitter_run(mr_fitter *f, const char *path, mr_fit **out)
 {
     int64_t started = mr__wall_ns_now();
@@ -195,12 +205,21 @@ mr_status mr_fitter_run(mr_fitter *f, const char *path, mr_fit **out)
      * standard input kept for later passes), and be read as empty input. */
     if (strcmp(path, "-") == 0 && fcntl(STDIN_FILENO, F_GETFD) < 0)
         return mr__fail(&f->err, MR_ERR_IO, "<stdin>: standard input is closed, so there is nothing to read");
-    st = mr__fit_file(f, path, out);
-    if (st == MR_OK && (st = mr__fitter_record_run(f, *out, started, &f->err)) != MR_OK) {
-        mr_fit_free(*out);
-        *out = NULL;
-    }
-    return st;
+    st = mr__path_is_directory(path) ? mr__fit_files(f, &path, 1, out) : mr__fit_file(f, path, out);
+    return finish_run(f, st, started, out);
+}
+
+mr_status mr_fitter_run_set(mr_fitter *f, const char *const *paths, size_t npaths, mr_fit **out)
+{
+    int64_t started = mr__wall_ns_now();
+    mr_status st;
+    *out = NULL;
+    mr__error_clear(&f->err);
+    if (npaths == 0 || paths == NULL) return mr__fail(&f->err, MR_ERR_USAGE, "no input given");
+    f->checkpoint_note[0] = '\0';
+    if (npaths == 1) return mr_fitter_run(f, paths[0], out);
+    st = mr__fit_files(f, paths, npaths, out);
+    return finish_run(f, st, started, out);
 }
 
 void mr_fitter_set_progress_stop(mr_fitter *f, mr_progress_stop_fn fn, void *user)

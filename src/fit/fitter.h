@@ -39,5 +39,7 @@ mr_status mr__fitter_record_run(const mr_fitter *f, mr_fit *fit, int64_t started
 
 /* The fit itself (run.c). */
 mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out);
+/* Several files (or directories) read as one (input/inputset.h). */
+mr_status mr__fit_files(mr_fitter *f, const char *const *paths, size_t n, mr_fit **out);
 
 #endif

@@ -384,9 +384,33 @@ static mr_status copy_data_summary(mr_fit *fit, const mr__run *r, mr__error *err
     for (i = 0; i < s->nbad_shown; i++) {
         mr__strbuf sb;
         mr__strbuf_init(&sb);
-        mr__strbuf_printf(&sb, "%s:%llu:%s", r->display, (unsigned long long)s->bad[i].line, s->bad[i].msg);
+        mr__strbuf_printf(&sb, "%s:%llu:%s", s->bad[i].file ? s->bad[i].file : r->display,
+                          (unsigned long long)s->bad[i].line, s->bad[i].msg);
         if ((fit->bad_example[i] = mr__strbuf_take(&sb)) == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
         fit->nbad_examples++;
+    }
+    return MR_OK;
+}
+
+/* Each file of a set as the first pass read it. */
+static mr_status record_set(const mr__run *r, mr_fit *fit, mr__error *err)
+{
+    size_t i;
+    if (r->set.n == 0) return MR_OK;
+    fit->set_known = 1;
+    if ((fit->set_file = mr__calloc(r->first.nfiles + 1, sizeof *fit->set_file)) == NULL)
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (i = 0; i < r->first.nfiles; i++) {
+        const mr__file_identity *id = &r->first.files[i];
+        mr__fit_input_file *to = &fit->set_file[i];
+        if ((to->path = mr__strdup(r->set.display[i])) == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        fit->nset_files++;
+        to->size = id->size;
+        to->mtime_ns = id->mtime_ns;
+        to->bytes = id->raw_bytes;
+        to->decompressed_bytes = id->out_bytes;
+        to->checksum = id->checksum;
+        to->compression = id->compression;
     }
     return MR_OK;
 }
@@ -430,6 +454,7 @@ static mr_status copy_run_info(mr_fit *fit, const mr__run *r, mr__error *err)
     fit->decompressed_bytes = r->first.out_bytes;
     fit->checksum = r->first.checksum;
     fit->compression = r->first.zstd; /* the pass's field holds the mr__compression */
+    MR__TRY(record_set(r, fit, err));
     fit->delimiter = r->delim;
     fit->delimiter_detected = r->delim_detected;
     fit->threads = r->nthreads;

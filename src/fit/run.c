@@ -73,6 +73,7 @@ static mr__pass_cfg pass_config(mr__run *r, mr__pass_kind kind)
     memset(&c, 0, sizeof c);
     c.kind = kind;
     c.path = r->read_path;
+    c.set = r->set.n > 0 ? &r->set : NULL;
     c.display = r->display;
     c.read_size = r->f->buffer_size;
     c.tee_fd = -1;
@@ -118,7 +119,7 @@ static mr_status check_same_input(mr__run *r, const mr__pass_result *res, mr__er
 mr_status mr__run_scan_cfg(mr__run *r, mr__pass_cfg *c, int spool, mr__error *err)
 {
     *c = pass_config(r, MR__PASS_SCAN);
-    if (spool && mr__read_only_once(r->path)) {
+    if (spool && r->set.n == 0 && mr__read_only_once(r->path)) {
         MR__TRY(mr__open_spool(r, err));
         c->tee_fd = r->spool_fd;
     }
@@ -472,6 +473,7 @@ void mr__run_release(mr__run *r)
     for (f = 0; r->remap && f < r->nremap; f++) mr__free(r->remap[f]);
     mr__free(r->remap);
     if (r->bound) mr__binding_release(&r->bind);
+    mr__inputset_release(&r->set);
     if (r->spool_fd >= 0) close(r->spool_fd);
 }
 
@@ -496,7 +498,21 @@ static void restore_first(mr__run *r)
     r->first.store_incomplete = 1;
 }
 
-mr_status mr__run_begin(mr__run *r, mr_fitter *f, const char *path)
+/* The name of a set in messages: the paths given, one after the other
+ * (cut, if long, at a whole character). */
+static void name_set(mr__run *r, const char *const *paths, size_t n)
+{
+    size_t i, at = 0;
+    r->display[0] = '\0';
+    for (i = 0; i < n && at < sizeof r->display; i++)
+        at += (size_t)snprintf(r->display + at, sizeof r->display - at, "%s%s", i ? " " : "", paths[i]);
+    mr__utf8_mend_cut(r->display, sizeof r->display, (int)at);
+}
+
+/* set: NULL, or several files read as one (the run takes it over), made
+ * of the npaths paths given. */
+static mr_status run_begin(mr__run *r, mr_fitter *f, const char *path, mr__inputset *set, const char *const *paths,
+                           size_t npaths)
 {
     mr_status st;
     memset(r, 0, sizeof *r);
@@ -504,12 +520,18 @@ mr_status mr__run_begin(mr__run *r, mr_fitter *f, const char *path)
     mr__store_init_memory(&r->patterns);
     atomic_init(&r->collapse_abandoned, 0);
     r->f = f;
+    if (set != NULL) {
+        r->set = *set;
+        path = set->path[0];
+        name_set(r, paths, npaths);
+    } else {
+        mr__utf8_mend_cut(r->display, sizeof r->display,
+                          snprintf(r->display, sizeof r->display, "%s", strcmp(path, "-") == 0 ? "<stdin>" : path));
+    }
     r->path = path;
     r->read_path = path;
     r->spool_fd = -1;
     r->t0 = mr__seconds_now();
-    mr__utf8_mend_cut(r->display, sizeof r->display,
-                      snprintf(r->display, sizeof r->display, "%s", strcmp(path, "-") == 0 ? "<stdin>" : path));
     choose_threads(r);
     r->family = mr__spec_family(&f->spec);
     r->dcfg.collapse = mr__collapse_mode(r);
@@ -519,6 +541,8 @@ mr_status mr__run_begin(mr__run *r, mr_fitter *f, const char *path)
     if (st == MR_OK) mr__choose_store(r);
     return st;
 }
+
+mr_status mr__run_begin(mr__run *r, mr_fitter *f, const char *path) { return run_begin(r, f, path, NULL, NULL, 0); }
 
 mr_status mr__run_rest(mr__run *r, mr_fit **out)
 {
@@ -539,25 +563,39 @@ mr_status mr__run_rest(mr__run *r, mr_fit **out)
     return st;
 }
 
-mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
+/* The run begun (st: how its beginning went): the passes, the fit, the
+ * end. */
+static mr_status run_all(mr__run *r, mr_status st, mr_fit **out)
 {
-    mr__run r;
-    mr_status st;
     int blas_threads = 0; /* the count to set back; 0: never changed */
-    st = mr__run_begin(&r, f, path);
-    if (st == MR_OK) st = mr__checkpoint_begin(&r, &r.resume, &r.have_resume, &f->err);
+    if (st == MR_OK) st = mr__checkpoint_begin(r, &r->resume, &r->have_resume, &r->f->err);
     if (st == MR_OK) {
         /* Our workers use every core; BLAS threads inside them would only
          * oversubscribe.  The caller's count comes back at the end, as
          * millrace.h promises. */
         blas_threads = openblas_get_num_threads();
         openblas_set_num_threads(1);
-        if (r.have_resume) restore_first(&r);
-        else st = scan_pass(&r, &f->err);
+        if (r->have_resume) restore_first(r);
+        else st = scan_pass(r, &r->f->err);
     }
-    if (st == MR_OK) st = mr__run_rest(&r, out);
-    mr__checkpoint_end(&r, st == MR_OK);
-    mr__run_release(&r);
+    if (st == MR_OK) st = mr__run_rest(r, out);
+    mr__checkpoint_end(r, st == MR_OK);
+    mr__run_release(r);
     if (blas_threads > 0) openblas_set_num_threads(blas_threads);
     return st;
+}
+
+mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out)
+{
+    mr__run r;
+    return run_all(&r, mr__run_begin(&r, f, path), out);
+}
+
+mr_status mr__fit_files(mr_fitter *f, const char *const *paths, size_t n, mr_fit **out)
+{
+    mr__run r;
+    mr__inputset set;
+    mr_status st = mr__inputset_build(&set, paths, n, &f->err);
+    if (st != MR_OK) return st;
+    return run_all(&r, run_begin(&r, f, NULL, &set, paths, n), out);
 }

@@ -18,6 +18,7 @@
 typedef struct mr__run {
     mr_fitter *f;
     const char *path, *read_path;
+    mr__inputset set;    /* several files read as one (n 0: path alone) */
     char display[1024];
     char spool[4096];
     int spool_fd;

@@ -115,6 +115,7 @@ typedef struct scoring {
     char *zbuf;
     size_t zcap;
     char display[256];
+    mr__inputset set; /* several files read as one (n 0: data alone) */
 } scoring;
 
 static size_t numeric_index(scoring *g, const char *name)
@@ -319,7 +320,8 @@ static mr_status write_lines(void *user, const char *p, size_t n, mr__error *err
 
 static mr_status open_output(scoring *g, const char *out, const char *data, mr__error *err)
 {
-    const char *inputs[1] = {data};
+    const char *const one[1] = {data};
+    const char *const *inputs = g->set.n > 0 ? (const char *const *)g->set.path : one;
     if (ends_with_zst(out)) {
         g->z = ZSTD_createCCtx();
         g->zcap = ZSTD_CStreamOutSize();
@@ -330,7 +332,7 @@ static mr_status open_output(scoring *g, const char *out, const char *data, mr__
             ZSTD_isError(ZSTD_CCtx_setParameter(g->z, ZSTD_c_checksumFlag, 1)))
             return mr__fail(err, MR_ERR_INTERNAL, "zstd: cannot set the compression level");
     }
-    return mr__outfile_open(&g->out, out, inputs, 1, err);
+    return mr__outfile_open(&g->out, out, inputs, g->set.n > 0 ? g->set.n : 1, err);
 }
 
 static void release_scoring(scoring *g)
@@ -374,6 +376,7 @@ static mr_status run_pass(scoring *g, const char *data, mr__error *err)
     dcfg.display = g->display;
     cfg.kind = MR__PASS_SCORE;
     cfg.path = data;
+    cfg.set = g->set.n > 0 ? &g->set : NULL;
     cfg.display = g->display;
     cfg.read_size = 1 << 20;
     cfg.tee_fd = -1;
@@ -404,16 +407,30 @@ static void keep_groups(mr_scorer *s, scoring *g)
     g->c.g_rows = NULL;
 }
 
-mr_status mr_scorer_run(mr_scorer *s, const char *data, const char *out)
+static mr_status score_run(mr_scorer *s, const char *const *paths, size_t n, const char *out);
+
+mr_status mr_scorer_run(mr_scorer *s, const char *data, const char *out) { return score_run(s, &data, 1, out); }
+
+mr_status mr_scorer_run_set(mr_scorer *s, const char *const *paths, size_t npaths, const char *out)
+{
+    mr__error_clear(&s->err);
+    if (npaths == 0 || paths == NULL) return mr__fail(&s->err, MR_ERR_USAGE, "no input given");
+    return score_run(s, paths, npaths, out);
+}
+
+static mr_status score_run(mr_scorer *s, const char *const *paths, size_t n, const char *out)
 {
     scoring g;
     mr_status st;
+    const char *data = paths[0];
     memset(&g, 0, sizeof g);
     memset(s->count, 0, sizeof s->count);
     mr__error_clear(&s->err);
     mr__score_groups_release(&s->g);
     mr__free(s->data);
     if ((s->data = copy_text(data)) == NULL) return mr__fail(&s->err, MR_ERR_NO_MEMORY, "out of memory");
+    if ((n > 1 || mr__path_is_directory(data)) && (st = mr__inputset_build(&g.set, paths, n, &s->err)) != MR_OK)
+        return st;
     g.s = s;
     mr__levelset_init(&g.c.groups);
     g.c.groups.limit = MR__SCORE_MAX_GROUPS;
@@ -433,5 +450,6 @@ mr_status mr_scorer_run(mr_scorer *s, const char *data, const char *out)
     s->count[MR_SCORE_MISSING] = g.c.missing;
     if (st == MR_OK) keep_groups(s, &g);
     release_scoring(&g);
+    mr__inputset_release(&g.set);
     return st;
 }

@@ -25,6 +25,18 @@ typedef struct mr__chunk {
     /* line of row r minus first_line: 64 bits, as a chunk may span more
      * than 2^32 lines (blank ones) */
     uint64_t row_line[MR__BLOCK_ROWS];
+    /* A set of files (inputset.h): each row's file, as an index into
+     * names; NULL names for a single input (row_file then unused).  Line
+     * numbers are each file's own, so first_line + row_line[r] is taken
+     * modulo 2^64 across a file boundary. */
+    const char *const *names;
+    uint32_t row_file[MR__BLOCK_ROWS];
 } mr__chunk;
+
+/* The name of the file row r came from, `display` for a single input. */
+static inline const char *mr__chunk_row_display(const mr__chunk *c, uint32_t r, const char *display)
+{
+    return c->names != NULL ? c->names[c->row_file[r]] : display;
+}
 
 #endif

@@ -62,7 +62,7 @@ static mr_status csv_chunk(mr__tokenizer *t, const mr__chunk *c, const mr__field
         return mr__fail(err, MR_ERR_FORMAT,
                         "%s:%llu: malformed quoting (a quote must open and close a whole field; "
                         "a quote inside a quoted field is written twice)",
-                        display, (unsigned long long)(c->first_line + c->row_line[r]));
+                        mr__chunk_row_display(c, r, display), (unsigned long long)(c->first_line + c->row_line[r]));
     }
     return MR_OK;
 }

@@ -30,6 +30,7 @@ void mr__splitter_start_chunk(mr__splitter *sp, mr__chunk *c)
     c->len = 0;
     c->has_quote = 0;
     c->row_start[0] = 0;
+    c->names = sp->names;
     sp->cur = c;
 }
 
@@ -226,6 +227,7 @@ static mr_status end_row(mr__splitter *sp, mr__chunk_sink sink, void *user, mr__
         return MR_OK;
     }
     c->row_line[c->nrows] = sp->row_line - c->first_line;
+    if (sp->names != NULL) c->row_file[c->nrows] = sp->file;
     c->nrows++;
     c->row_start[c->nrows] = c->len;
     sp->rows++;
@@ -296,6 +298,7 @@ static const char *take_rows_in_place(mr__splitter *sp, const char *p, const cha
         const char *nl = find_newline(p, end), *row = c->data + c->row_start[c->nrows];
         if (nl == NULL || may_be_blank(*row) || (size_t)(nl + 1 - row) > MR__MAX_ROW_BYTES) break;
         c->row_line[c->nrows] = sp->row_line - c->first_line;
+        if (sp->names != NULL) c->row_file[c->nrows] = sp->file;
         c->nrows++;
         c->len = (size_t)(nl + 1 - c->data);
         c->row_start[c->nrows] = c->len;
@@ -359,12 +362,29 @@ mr_status mr__splitter_feed(mr__splitter *sp, const char *p, size_t n, size_t *u
     return MR_OK;
 }
 
+static mr_status refuse_open_quote(const mr__splitter *sp, mr__error *err)
+{
+    return mr__fail(err, MR_ERR_FORMAT, "%s:%llu: unterminated quote (the file ends inside a quoted field)",
+                    sp->display, (unsigned long long)sp->quote_line);
+}
+
+mr_status mr__splitter_next_file(mr__splitter *sp, uint32_t file, mr__chunk_sink sink, void *user, mr__error *err)
+{
+    mr__chunk *c = sp->cur;
+    if (sp->in_quote) return refuse_open_quote(sp, err);
+    if (c != NULL && c->len > c->row_start[c->nrows]) MR__TRY(end_row(sp, sink, user, err));
+    sp->file = file;
+    sp->display = sp->names[file];
+    sp->want_header = 1;
+    sp->header_len = 0;
+    sp->line = sp->row_line = 1;
+    return MR_OK;
+}
+
 mr_status mr__splitter_finish(mr__splitter *sp, mr__chunk_sink sink, void *user, mr__error *err)
 {
     mr__chunk *c = sp->cur;
-    if (sp->in_quote)
-        return mr__fail(err, MR_ERR_FORMAT, "%s:%llu: unterminated quote (the file ends inside a quoted field)",
-                        sp->display, (unsigned long long)sp->quote_line);
+    if (sp->in_quote) return refuse_open_quote(sp, err);
     if (sp->want_header) {
         if (sp->header_len == 0 || header_is_blank(sp)) return MR_OK;
         if (has_lone_cr(sp->header, sp->header_len)) return refuse_cr_only(sp, err);

@@ -24,6 +24,8 @@ typedef struct mr__splitter {
     uint64_t rows;        /* data rows completed */
     uint64_t pos;         /* stream bytes taken so far (a chunk's offset) */
     mr__chunk *cur;       /* chunk being filled (NULL before the first) */
+    const char *const *names; /* a set of files: their names (chunk.h) */
+    uint32_t file;        /* the file being read, an index into names */
     char *header;         /* the header row once complete */
     size_t header_len, header_cap;
 } mr__splitter;
@@ -53,6 +55,12 @@ char *mr__chunk_room(mr__chunk *c, size_t n, mr__error *err);
 /* End of input: completes a last row without a newline and hands the last
  * partial chunk to the sink (if it has rows).  An open quote is an error. */
 mr_status mr__splitter_finish(mr__splitter *sp, mr__chunk_sink sink, void *user, mr__error *err);
+
+/* A set of files: the end of one file, the next to follow.  Completes the
+ * file's last row (one without a line end ends with its file), refuses a
+ * quote left open, and wants the next file's header, its lines counted
+ * from 1; the current chunk goes on filling. */
+mr_status mr__splitter_next_file(mr__splitter *sp, uint32_t file, mr__chunk_sink sink, void *user, mr__error *err);
 
 /* Starts a chunk: sets its index (from the rows so far), first line and
  * offset. */

@@ -11,6 +11,7 @@
 #include "common/sysio.h"
 #include "input/codec.h"
 #include "input/source.h"
+#include "input/zstd_frames.h"
 
 struct mr__source {
     int fd, owns_fd, tee_fd;
@@ -20,6 +21,8 @@ struct mr__source {
     int eof, sniffed, is_file;
     const mr__codec *codec; /* NULL: plain text */
     void *dec;              /* the codec's decoder */
+    int threads;            /* > 1: a zstd file's frames decoded by this many threads */
+    mr__zframes *zf;        /* those threads, or NULL */
     uint64_t raw_bytes, out_bytes, size, checksum;
     int64_t mtime_ns;
     char carry[8]; /* bytes of a checksum word not yet complete */
@@ -78,6 +81,7 @@ void mr__source_close(mr__source *s)
     if (s == NULL) return;
     if (s->owns_fd) close(s->fd);
     if (s->codec != NULL) s->codec->close(s->dec);
+    mr__zframes_close(s->zf);
     mr__free(s->raw);
     mr__free(s);
 }
@@ -143,6 +147,16 @@ static mr_status fill_raw(mr__source *s, mr__error *err)
     return read_into(s, s->raw, s->raw_cap, &s->raw_len, err);
 }
 
+/* Raw bytes for the frame threads (zstd_frames.h): checksummed and teed
+ * like every other read. */
+static mr_status pull_raw(void *user, char *buf, size_t cap, size_t *got, mr__error *err)
+{
+    mr__source *s = user;
+    *got = 0;
+    if (s->eof) return MR_OK;
+    return read_into(s, buf, cap, got, err);
+}
+
 /* A codec's magic starts the stream (input/codec.h): the input is
  * compressed.  Needs the first MR__CODEC_MAGIC_MAX bytes, which may take
  * several reads, of at most SNIFF_READ bytes: plain text is then read
@@ -165,6 +179,13 @@ static mr_status sniff(mr__source *s, mr__error *err)
     s->sniffed = 1;
     codec = mr__codec_find((const unsigned char *)s->raw + s->raw_pos, s->raw_len - s->raw_pos);
     if (codec == NULL) return MR_OK;
+    if (codec->id == MR__COMPRESSION_ZSTD && s->threads > 1) {
+        MR__TRY(mr__zframes_open(&s->zf, s->threads, s->display, pull_raw, s,
+                                 (const unsigned char *)s->raw + s->raw_pos, s->raw_len - s->raw_pos, err));
+        s->raw_pos = s->raw_len;
+        s->codec = codec;
+        return MR_OK;
+    }
     MR__TRY(codec->open(&s->dec, s->display, err));
     s->codec = codec;
     return MR_OK;
@@ -214,10 +235,18 @@ mr_status mr__source_read(mr__source *s, char *buf, size_t cap, size_t *got, mr_
 {
     *got = 0;
     if (!s->sniffed) MR__TRY(sniff(s, err));
-    MR__TRY(s->codec ? read_compressed(s, buf, cap, got, err) : read_plain(s, buf, cap, got, err));
+    if (s->zf != NULL) MR__TRY(mr__zframes_read(s->zf, buf, cap, got, err));
+    else MR__TRY(s->codec ? read_compressed(s, buf, cap, got, err) : read_plain(s, buf, cap, got, err));
     s->out_bytes += *got;
     return MR_OK;
 }
+
+void mr__source_set_threads(mr__source *s, int threads)
+{
+    s->threads = threads > MR__ZFRAME_THREADS_MAX ? MR__ZFRAME_THREADS_MAX : threads;
+}
+
+uint64_t mr__source_parallel_frames(const mr__source *s) { return s->zf ? mr__zframes_parallel_frames(s->zf) : 0; }
 
 uint64_t mr__source_raw_bytes(const mr__source *s) { return s->raw_bytes; }
 uint64_t mr__source_size(const mr__source *s) { return s->size; }

@@ -22,6 +22,13 @@ typedef struct mr__source mr__source;
 mr_status mr__source_open(mr__source **out, const char *path, const char *display, size_t read_size,
                           int tee_fd, mr__error *err);
 void mr__source_close(mr__source *s);
+/* Before the first read: a zstd input is decompressed by `threads`
+ * threads (at most MR__ZFRAME_THREADS_MAX), frame by frame
+ * (input/zstd_frames.h), when it is more than 1:
+ * the same bytes, in the same order, as the one-thread decoder's. */
+void mr__source_set_threads(mr__source *s, int threads);
+/* Frames the threads decompressed so far (0 with one thread). */
+uint64_t mr__source_parallel_frames(const mr__source *s);
 
 /* Fills buf with up to cap (> 0) decompressed bytes; *got = 0 only at the
  * end of the input.  Truncated or corrupt compressed input, and bytes after

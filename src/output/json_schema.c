@@ -21,6 +21,27 @@ static const mr__jfield file_fields[] = {
     END,
 };
 
+#define FILE_AT(m) offsetof(mr__fit_input_file, m)
+#define FILE_F(key, kind, m) {key, kind, FILE_AT(m), 0, 0, 0, 0, 0, NULL, NULL, NULL}
+
+static const mr__jfield set_file_fields[] = {
+    FILE_F("path", MR__J_TEXT, path),
+    FILE_F("size", MR__J_U64, size),
+    FILE_F("mtime_ns", MR__J_I64, mtime_ns),
+    FILE_F("bytes", MR__J_U64, bytes),
+    FILE_F("decompressed_bytes", MR__J_U64, decompressed_bytes),
+    FILE_F("compression", MR__J_COMPRESSION, compression),
+    FILE_F("checksum", MR__J_CHECKSUM, checksum),
+    END,
+};
+
+/* Several files read as one (input/inputset.h): left out for a single
+ * input, so its JSON is what it was. */
+static const mr__jfield set_fields[] = {
+    {"files", MR__J_STRUCTS, AT(set_file), AT(nset_files), sizeof(mr__fit_input_file), 0, 0, 0, NULL, NULL, set_file_fields},
+    END,
+};
+
 static const mr__jfield input_fields[] = {
     F("path", MR__J_TEXT, path),
     F("bytes", MR__J_U64, bytes),
@@ -30,6 +51,7 @@ static const mr__jfield input_fields[] = {
     F("delimiter", MR__J_CHAR, delimiter),
     CHOICE("delimiter_source", delimiter_detected, "detected", "option"),
     {"file", MR__J_OBJECT_OR_NULL, 0, AT(file_known), 0, 0, 0, 0, NULL, NULL, file_fields},
+    {"set", MR__J_OBJECT_OPTIONAL, 0, AT(set_known), 0, 0, 0, 0, NULL, NULL, set_fields},
     END,
 };
 

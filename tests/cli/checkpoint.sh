@@ -8,7 +8,7 @@
 # checkpoint cut short, one made for another input, one whose input was
 # touched since, and one for other options are not used: each says why in
 # one line and the fit starts afresh, to the same bytes.  Standard input is
-# refused.  With robust standard errors by clusters, a fit killed within an
+# refused, and so is a set of files.  With robust standard errors by clusters, a fit killed within an
 # IRLS pass or within the final pass that adds up the sandwich's meat goes
 # on to the same bytes too.  The kills come from the test-only MILLRACE_TEST_KILL hook
 # (README, "Scheduled reruns"): the process sends itself SIGKILL at a
@@ -153,6 +153,13 @@ grep -q "another model or other options" "$tmp/options.err" && [ "$rc" -eq 0 ] &
 rc=$(head -n 1000 "$tmp/big.csv" | "$bin" fit "${model[@]}" --checkpoint "$ck" - >/dev/null 2>"$tmp/stdin.err"; echo $?)
 [ "$rc" -eq 2 ] && grep -q "read only once" "$tmp/stdin.err" && ok "standard input refused" ||
     fail "standard input" "exit $rc: $(cat "$tmp/stdin.err")"
+# a set of files (or a directory) is refused: a checkpoint records one file
+head -n 1000 "$tmp/big.csv" >"$tmp/a.csv"
+head -n 1 "$tmp/big.csv" >"$tmp/b.csv" && sed -n 1001,2000p "$tmp/big.csv" >>"$tmp/b.csv"
+rc=$("$bin" fit "${model[@]}" --checkpoint "$ck" "$tmp/a.csv" "$tmp/b.csv" >/dev/null 2>"$tmp/set.err"; echo $?)
+[ "$rc" -eq 2 ] && grep -q "a set of 2 files" "$tmp/set.err" && [ ! -e "$ck" ] && ok "a set of files refused" ||
+    fail "set of files" "exit $rc: $(cat "$tmp/set.err")"
+
 # robust standard errors by clusters of region (not grouped: held in a
 # table), from a final pass at the converged coefficients: killed inside an
 # IRLS pass and inside that final pass, each goes on to the reference's
