@@ -837,7 +837,15 @@ MR_API uint64_t mr_scorer_count(const mr_scorer *s, mr_score_count which);
  * otherwise), O/E, and O/E's exact Poisson interval at the scorer's level
  * (Garwood: lower chi2_{a/2}(2 O) / 2 / E, upper chi2_{1-a/2}(2 (O + 1))
  * / 2 / E, a = 1 - level; when O = 0 the lower bound is 0 and the upper
- * the one-sided chi2_{1-a}(2) / 2 / E).  Groups are held in memory, at
+ * the one-sided chi2_{1-a}(2) / 2 / E).  For a binomial fit (events out
+ * of n = sum w trials) the interval is instead Clopper-Pearson's exact
+ * binomial one for O / n, times n / E: lower Beta_{a/2}(O, n - O + 1),
+ * upper Beta_{1-a/2}(O + 1, n - O) (beta quantiles), and one-sided of level
+ * 1 - a at O = 0 (upper) or O = n (lower).  O there is a sum of events of
+ * unequal probabilities, less spread than a Poisson count (whose interval
+ * would be too wide) and at most as spread as a binomial of equal
+ * probabilities E / n (Hoeffding 1956): the interval keeps its level,
+ * conservatively.  Groups are held in memory, at
  * most 1,000,000 of them (more: MR_ERR_USAGE); a group column the header
  * lacks, or a file without the outcome, is MR_ERR_USAGE.  Groups come in
  * order of first appearance in the data. */
@@ -846,7 +854,8 @@ MR_API mr_status mr_scorer_group_by(mr_scorer *s, const char *column);
 typedef enum mr_groups_format {
     MR_GROUPS_TEXT = 0, /* an aligned table */
     MR_GROUPS_CSV = 1,  /* RFC 4180, numbers with 17 significant digits */
-    MR_GROUPS_JSON = 2  /* {"level", "by": [..], "groups": [{"key": {col: cell}, ...}]} */
+    MR_GROUPS_JSON = 2  /* {"level", "interval": "poisson-exact" | "binomial-exact", "by": [..],
+                           "groups": [{"key": {col: cell}, ...}]} */
 } mr_groups_format;
 
 /* The last successful run's group table as text in `format` (the caller
@@ -897,6 +906,82 @@ MR_API const char *mr_fit_warning(const mr_fit *fit, size_t i);
  * (mr_fitter_set_checkpoint; "run": {"resumed": {"after_pass": N}} in the
  * JSON), or 0 when it ran from the start. */
 MR_API int mr_fit_resumed_after_pass(const mr_fit *fit);
+
+/* Calibration: observed against expected by tenths of the fitted mean.
+ * The last pass sums, for every row of positive prior weight w, its w,
+ * w y (observed) and w mu (expected) into bins of the fitted mean mu on a
+ * fixed grid (relative width 2^-4 on a log scale of |mu|; for means in
+ * (0, 1), of min(mu, 1 - mu) mirrored at 1/2), added in block order, so
+ * the same bits for any thread count or buffer size.  Whole bins are then
+ * cut into at most ten groups where the rows reach each tenth: a group's
+ * share of the rows is a tenth only to within a bin (fewer groups when
+ * the means are few), while its sums are exact.  The means are those at
+ * the coefficients reported, except for a fit of uncollapsed rows ended
+ * by the size of its step, where they are the last pass's, one step before
+ * (mr_fit_calibration_basis says which, and how large that step was in
+ * standard errors: at most the tolerance).  With an intercept
+ * and a canonical link the expected total equals the observed total at
+ * the maximum (the score equation); a group's O/E far from 1 is a hint of
+ * a misfit along the mean, not a test.
+ *
+ * mr_fit_calibration_groups: the number of groups, or -1 for a fit read
+ * from a JSON written without them.  mr_fit_calibration_basis: what the
+ * numbers are, one line of text owned by the fit (NULL when -1 above).
+ * mr_fit_calibration_group: group i (0 = smallest means) into *out;
+ * MR_ERR_USAGE when i is out of range or there are none. */
+typedef struct mr_calibration_group {
+    uint64_t rows;       /* rows of positive weight (a pattern counts its rows) */
+    double weight;       /* sum of prior weights (weight x trials) */
+    double mean_low;     /* the least fitted mean in the group */
+    double mean_high;    /* the greatest */
+    double observed;     /* sum of w y (events, for binomial and poisson) */
+    double expected;     /* sum of w mu */
+} mr_calibration_group;
+MR_API int mr_fit_calibration_groups(const mr_fit *fit);
+MR_API const char *mr_fit_calibration_basis(const mr_fit *fit);
+MR_API mr_status mr_fit_calibration_group(const mr_fit *fit, size_t i, mr_calibration_group *out);
+
+/* Survey: a file described before any model is named, in one pass over
+ * it (plain, zstd, gzip or standard input "-", as a fit reads), with
+ * worker threads and memory that does not grow with the rows.  Per
+ * column of the header: its kind (integer: every non-missing cell is an
+ * optional sign and digits; decimal: every one is a number of the fit's
+ * grammar; text: some cell is not; empty: all missing), missing cells
+ * (the missing tokens: "" and "NA" unless changed), the least, greatest
+ * and mean of its numbers (sums in block order: the same bits for any
+ * thread count or buffer size), the number of distinct cells and the
+ * five most frequent with their counts (ties: first met first).  Distinct
+ * cells are counted exactly while a column has at most `cap` of them
+ * (default 1000); past that its table is dropped: the count is only
+ * "more than cap" and no frequent values are given (memory: columns x cap
+ * strings at most).  A row with another number of fields than the header
+ * is malformed: counted, its first line given, and left out of the
+ * columns.  An unterminated quote stops the run with MR_ERR_FORMAT.
+ *
+ * mr_survey_new: NULL when out of memory; free with mr_survey_free.
+ * Setters and runs give MR_OK or an mr_status with mr_survey_errmsg (owned
+ * by the handle, valid until its next call).  mr_survey_report: the last
+ * successful run as text (free with mr_free), NULL when there is none or
+ * out of memory.  mr_survey_write_json writes it to `path` by the rules of
+ * "Output files" (the input counts as one): {"format": "millrace-survey",
+ * "format_version": 1, "path", "rows": {"read", "malformed",
+ * "first_malformed_line"}, "missing_tokens", "distinct_cap", "columns":
+ * [{"name", "kind", "missing", "numbers", "min", "max", "mean" (null
+ * when no numbers or text), "distinct" (null past the cap),
+ * "distinct_more_than" (the cap, or null), "most_frequent": [{"value",
+ * "count"}]}]}. */
+typedef struct mr_survey mr_survey;
+MR_API mr_survey *mr_survey_new(void);
+MR_API void mr_survey_free(mr_survey *s);
+MR_API const char *mr_survey_errmsg(const mr_survey *s);
+MR_API mr_status mr_survey_set_threads(mr_survey *s, int threads);     /* 0: one per online CPU */
+MR_API mr_status mr_survey_set_buffer_size(mr_survey *s, size_t bytes); /* read size, >= 4096 */
+MR_API mr_status mr_survey_set_distinct_cap(mr_survey *s, size_t cap);  /* 1 .. 10,000,000 */
+MR_API void mr_survey_clear_missing(mr_survey *s);
+MR_API mr_status mr_survey_add_missing(mr_survey *s, const char *token);
+MR_API mr_status mr_survey_run(mr_survey *s, const char *path);
+MR_API char *mr_survey_report(const mr_survey *s);
+MR_API mr_status mr_survey_write_json(mr_survey *s, const char *path);
 
 /* ------------------------------------------------------------------ */
 /* Several models compared on one file (README, "Comparing models").

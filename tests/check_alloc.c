@@ -297,6 +297,39 @@ START_TEST(test_gzip_source)
 }
 END_TEST
 
+/* A survey with the n-th allocation failing: MR_ERR_NO_MEMORY or
+ * success, its report and JSON likewise; a cap of 50 makes the id
+ * column's table be dropped on the way.  Returns 1 once all got through. */
+static int survey_failing_at(long n)
+{
+    mr_survey *s;
+    mr_status st;
+    char *text;
+    mr__alloc_fail_after(n);
+    if ((s = mr_survey_new()) == NULL) return 0;
+    ck_assert_int_eq(mr_survey_set_distinct_cap(s, 50), MR_OK);
+    ck_assert_int_eq(mr_survey_set_threads(s, 1), MR_OK); /* allocations in one order */
+    st = mr_survey_run(s, "samples/screening.csv");
+    ck_assert_msg(st == MR_OK || st == MR_ERR_NO_MEMORY, "allocation %ld: status %d (%s)", n, (int)st,
+                  mr_survey_errmsg(s));
+    text = st == MR_OK ? mr_survey_report(s) : NULL;
+    if (st == MR_OK) st = mr_survey_write_json(s, json_path);
+    ck_assert_msg(st == MR_OK || st == MR_ERR_NO_MEMORY, "allocation %ld: JSON status %d", n, (int)st);
+    mr_survey_free(s);
+    mr_free(text);
+    return st == MR_OK && text != NULL && mr__alloc_failures_left() >= 0;
+}
+
+START_TEST(test_survey)
+{
+    long n;
+    for (n = 0; n < 200000; n++)
+        if (survey_failing_at(n)) break;
+    mr__alloc_fail_after(-1);
+    ck_assert_msg(n > 2 && n < 200000, "%ld allocations", n);
+}
+END_TEST
+
 START_TEST(test_falls_collapsed) { every_allocation("samples/falls.csv.zst", falls_model, 0); }
 END_TEST
 START_TEST(test_falls_rows_cached) { every_allocation("samples/falls.csv", falls_model, 1); }
@@ -422,6 +455,7 @@ int main(void)
     tcase_add_test(tc, test_gzip_source);
     tcase_add_test(tc, test_checkpoints);
     tcase_add_test(tc, test_falls_robust_clusters);
+    tcase_add_test(tc, test_survey);
     suite_add_tcase(s, tc);
     tc = tcase_create("comparison");
     tcase_set_timeout(tc, 600);

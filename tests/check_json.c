@@ -228,6 +228,18 @@ static void same_fit(const mr_fit *a, const mr_fit *b)
         double x = mr_fit_stat(a, (mr_stat)i), y = mr_fit_stat(b, (mr_stat)i);
         ck_assert(same_bits(x, y) || (isnan(x) && isnan(y)));
     }
+    ck_assert_int_eq(mr_fit_calibration_groups(a), mr_fit_calibration_groups(b));
+    ck_assert_int_gt(mr_fit_calibration_groups(a), 0);
+    ck_assert_str_eq(mr_fit_calibration_basis(a), mr_fit_calibration_basis(b));
+    for (i = 0; i < (size_t)mr_fit_calibration_groups(a); i++) {
+        mr_calibration_group ga, gb;
+        ck_assert(mr_fit_calibration_group(a, i, &ga) == MR_OK && mr_fit_calibration_group(b, i, &gb) == MR_OK);
+        ck_assert(ga.rows == gb.rows && same_bits(ga.weight, gb.weight) && same_bits(ga.observed, gb.observed) &&
+                  same_bits(ga.expected, gb.expected) && same_bits(ga.mean_low, gb.mean_low) &&
+                  same_bits(ga.mean_high, gb.mean_high));
+    }
+    ck_assert(mr_fit_calibration_group(a, (size_t)mr_fit_calibration_groups(a), &(mr_calibration_group){0}) ==
+              MR_ERR_USAGE);
     ck_assert_uint_eq(mr_fit_nwarnings(a), mr_fit_nwarnings(b));
     for (i = 0; i < mr_fit_nwarnings(a); i++) ck_assert_str_eq(mr_fit_warning(a, i), mr_fit_warning(b, i));
     mr_free(rb);

@@ -88,6 +88,10 @@ static mr_status sums_alloc(mr__block_sums *s, size_t entries, size_t p, mr__err
     }
     memset(s->xtwx, 0, entries * sizeof *s->xtwx);
     memset(s->xtwz, 0, p * sizeof *s->xtwz);
+    if (mr__calib_init(&s->calib, err) != MR_OK) {
+        mr__sums_release(s);
+        return MR_ERR_NO_MEMORY;
+    }
     return MR_OK;
 }
 
@@ -102,15 +106,19 @@ void mr__sums_release(mr__block_sums *s)
 {
     mr__free(s->xtwx);
     mr__free(s->xtwz);
+    mr__calib_release(&s->calib);
     memset(s, 0, sizeof *s);
 }
 
 static void zero_sums(mr__block_sums *s, size_t entries, size_t p)
 {
     double *a = s->xtwx, *b = s->xtwz;
+    mr__calib c = s->calib;
+    mr__calib_zero(&c);
     memset(s, 0, sizeof *s);
     s->xtwx = a;
     s->xtwz = b;
+    s->calib = c;
     memset(a, 0, entries * sizeof *a);
     memset(b, 0, p * sizeof *b);
 }
@@ -131,6 +139,7 @@ static void add_vector_and_scalars(mr__block_sums *into, const mr__block_sums *f
     into->null_swz += from->null_swz;
     into->invalid += from->invalid;
     into->boundary += from->boundary;
+    mr__calib_add(&into->calib, &from->calib);
 }
 
 void mr__sums_add(mr__block_sums *into, const mr__block_sums *from, const mr__design *d)
@@ -335,7 +344,10 @@ void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__wo
     }
     out->dev = dev;
     out->pearson = pearson;
-    if (out->invalid) return; /* the caller halves the step; sums are not used */
+    if (out->invalid) return;
+    /* before the null model's rows reuse mu */
+    if (pt->calibrate)
+        mr__calib_rows(&out->calib, blk->y, ws->mu, blk->prior, blk->cal_rows, blk->cal_weight, n, pt->calib_unit); /* the caller halves the step; sums are not used */
     for (j = 0; j < d->ndense; j++) {
         double *col = ws->D + j * n;
         for (i = 0; i < n; i++) col[i] *= ws->w[i];

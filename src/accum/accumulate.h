@@ -7,6 +7,7 @@
 #define MR_ACCUMULATE_H
 
 #include <stdint.h>
+#include "accum/calibration.h"
 #include "accum/decode.h"
 #include "model/design.h"
 
@@ -18,6 +19,8 @@ typedef struct mr__irls_point {
     int null_intercept; /* the null model has an intercept */
     int null_skip;      /* its sums are known already: leave them out */
     double null_b0;     /* its current value */
+    int calibrate;      /* bin the fitted means (accum/calibration.h) */
+    int calib_unit;     /* the means lie in (0, 1) */
 } mr__irls_point;
 
 typedef struct mr__block_sums {
@@ -29,6 +32,7 @@ typedef struct mr__block_sums {
     double dev, pearson, null_dev, null_sw, null_swz;
     uint64_t invalid;  /* rows whose eta or mu left the family's domain */
     uint64_t boundary; /* rows fitted at the edge of the domain */
+    mr__calib calib;   /* observed and expected by fitted mean (not encoded) */
 } mr__block_sums;
 
 /* Scratch space a worker owns: one block of the design and per-row

@@ -46,6 +46,8 @@ void mr__block_release(mr__block *b)
     release_counts(b);
     mr__free(b->new_levels);
     mr__free(b->extra);
+    mr__free(b->cal_rows);
+    mr__free(b->cal_weight);
     if (b->patterns) mr__pattern_rows_release(b->patterns);
     mr__free(b->patterns);
     memset(b, 0, sizeof *b);
@@ -371,7 +373,7 @@ static void store_row(mr__decoder *d, double y, double prior, double off)
 static void abandon_collapse(const mr__decode_cfg *cfg) { atomic_store(cfg->collapse_abandoned, 1); }
 
 /* The row's key (each factor's level number, then each numeric's value
- * number, both the worker's own) and its four sums. */
+ * number, both the worker's own) and its sums. */
 static void add_pattern(mr__decoder *d, double y, double prior, double off)
 {
     mr__pattern_rows *rows = d->blk->patterns;
@@ -404,6 +406,8 @@ static void add_pattern(mr__decoder *d, double y, double prior, double off)
         sum[MR__PATTERN_C] = prior * y * y / e;
         sum[MR__PATTERN_D] = prior * ((y > 0 ? y * log(y) : 0.0) - y * off);
     }
+    sum[MR__PATTERN_N] = prior > 0 ? 1.0 : 0.0;
+    sum[MR__PATTERN_W] = prior;
     rows->n++;
 }
 

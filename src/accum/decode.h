@@ -67,6 +67,9 @@ typedef struct mr__block {
     /* Collapsed patterns only: per-pattern Pearson correction (see
      * accum/patterns.h); NULL otherwise. */
     double *extra;
+    /* Collapsed patterns only: each one's rows of positive weight and
+     * their prior weight, for calibration (accum/calibration.h). */
+    double *cal_rows, *cal_weight;
     /* First pass with collapsing: this block's rows as pattern keys. */
     mr__pattern_rows *patterns;
     /* First pass: the levels new to this block's worker, in the order met

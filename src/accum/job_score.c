@@ -18,7 +18,7 @@
  * keys from key_at, and its observed and expected counts and exposure. */
 typedef struct group_row {
     size_t key_at, key_len;
-    double obs, exp, expo;
+    double obs, exp, expo, prior;
 } group_row;
 
 typedef struct score_slot {
@@ -35,10 +35,7 @@ typedef struct score_worker {
     mr__tokenizer tok;
     mr__numparser *np;
     unsigned char *wanted; /* per header field */
-    size_t *at, *len;      /* per field: its bytes in buf */
-    char *buf;
-    size_t used, cap;
-    int nomem;
+    mr__row_cells cells;   /* the row's cells */
     int32_t *lev;  /* the row's level numbers and numerics */
     double *num;
     size_t *xcol; /* the row's non-zero design entries */
@@ -133,13 +130,12 @@ static mr_status score_worker_init(void *job, mr__pass_worker *w, mr__error *err
     sw->c = c;
     sw->np = mr__numparser_new();
     sw->wanted = mr__calloc(nf, 1);
-    sw->at = mr__calloc(nf, sizeof *sw->at);
-    sw->len = mr__calloc(nf, sizeof *sw->len);
     sw->xcol = mr__calloc(nx, sizeof *sw->xcol);
     sw->xval = mr__calloc(nx, sizeof *sw->xval);
     sw->lev = mr__calloc(c->nfac + 1, sizeof *sw->lev);
     sw->num = mr__calloc(c->nnum + 1, sizeof *sw->num);
-    if (!sw->lev || !sw->num || !sw->np || !sw->wanted || !sw->at || !sw->len || !sw->xcol || !sw->xval)
+    if (!sw->lev || !sw->num || !sw->np || !sw->wanted || mr__row_cells_init(&sw->cells, c->nfields) != MR_OK ||
+        !sw->xcol || !sw->xval)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     for (i = 0; i < c->nkeep; i++) sw->wanted[c->keep_field[i]] = MR__FIELD_WANTED;
     for (i = 0; i < c->nby; i++) sw->wanted[c->by_field[i]] = MR__FIELD_WANTED;
@@ -160,21 +156,7 @@ static int wants_nothing_packed(void *job, const mr__pass_slot *s)
 static void on_field(void *user, size_t k, const char *p, size_t len)
 {
     score_worker *sw = user;
-    if (k >= sw->c->nfields) return;
-    if (sw->used + len > sw->cap) {
-        size_t cap = 2 * (sw->used + len) + 256;
-        char *b = mr__realloc(sw->buf, cap);
-        if (b == NULL) {
-            sw->nomem = 1;
-            return;
-        }
-        sw->buf = b;
-        sw->cap = cap;
-    }
-    memcpy(sw->buf + sw->used, p, len);
-    sw->at[k] = sw->used;
-    sw->len[k] = len;
-    sw->used += len;
+    mr__row_cells_put(&sw->cells, k, p, len);
 }
 
 /* The empty cell and "NA", the fit's default missing tokens. */
@@ -182,8 +164,8 @@ static int is_missing(const char *p, size_t n) { return n == 0 || (n == 2 && p[0
 
 static const char *cell(const score_worker *sw, size_t field, size_t *n)
 {
-    *n = sw->len[field];
-    return sw->buf + sw->at[field];
+    *n = sw->cells.len[field];
+    return sw->cells.buf + sw->cells.at[field];
 }
 
 static uint64_t row_line(const score_worker *sw, uint32_t r) { return sw->chunk->first_line + sw->chunk->row_line[r]; }
@@ -409,6 +391,7 @@ static void note_group_row(score_worker *sw, score_slot *out, const score_row *r
     g->obs = row->prior * row->y;
     g->exp = row->prior * mu;
     g->expo = c->role_field[MR__SCORE_EXPOSURE] >= 0 ? sw->expo : NAN;
+    g->prior = row->prior;
 }
 
 static void score_one(score_worker *sw, uint32_t r, score_slot *out)
@@ -443,13 +426,13 @@ static void on_row_end(void *user, uint32_t r, size_t nfields)
     score_worker *sw = user;
     const mr__score_cfg *c = sw->c;
     score_slot *out = sw->s->part;
-    if (sw->s->st == MR_OK && sw->nomem) sw->s->st = mr__fail(&sw->s->err, MR_ERR_NO_MEMORY, "out of memory");
+    if (sw->s->st == MR_OK && sw->cells.nomem) sw->s->st = mr__fail(&sw->s->err, MR_ERR_NO_MEMORY, "out of memory");
     if (sw->s->st == MR_OK && nfields != c->nfields)
         sw->s->st = mr__fail(&sw->s->err, MR_ERR_FORMAT, "%s:%llu:%zu: expected %zu fields as in the header, found %zu",
                              mr__chunk_row_display(sw->chunk, r, c->display), (unsigned long long)row_line(sw, r),
                              nfields < c->nfields ? nfields : c->nfields + 1, c->nfields, nfields);
     if (sw->s->st == MR_OK) score_one(sw, r, out);
-    sw->used = 0;
+    sw->cells.used = 0;
 }
 
 static void score_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
@@ -464,7 +447,7 @@ static void score_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
     out->ngrow = 0;
     sw->s = s;
     sw->chunk = s->chunk;
-    sw->used = 0;
+    sw->cells.used = 0;
     mr_status st = mr__tokenize_chunk(&sw->tok, s->chunk, &sink, c->display, &s->err);
     if (st != MR_OK && s->st == MR_OK) s->st = st;
 }
@@ -478,9 +461,11 @@ static mr_status grow_groups(mr__score_cfg *c, mr__error *err)
     if (e) c->g_exp = e;
     double *x = mr__realloc(c->g_expo, cap * sizeof *x);
     if (x) c->g_expo = x;
+    double *w = mr__realloc(c->g_prior, cap * sizeof *w);
+    if (w) c->g_prior = w;
     uint64_t *r = mr__realloc(c->g_rows, cap * sizeof *r);
     if (r) c->g_rows = r;
-    if (!o || !e || !x || !r) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    if (!o || !e || !x || !w || !r) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     c->g_cap = cap;
     return MR_OK;
 }
@@ -502,12 +487,13 @@ static mr_status add_groups(mr__score_cfg *c, const score_slot *out, mr__error *
         if (st != MR_OK) return mr__fail(err, st, "out of memory");
         if (c->groups.n > before) { /* a new group: ids come in order */
             if ((size_t)id == c->g_cap) MR__TRY(grow_groups(c, err));
-            c->g_obs[id] = c->g_exp[id] = c->g_expo[id] = 0;
+            c->g_obs[id] = c->g_exp[id] = c->g_expo[id] = c->g_prior[id] = 0;
             c->g_rows[id] = 0;
         }
         c->g_obs[id] += g->obs;
         c->g_exp[id] += g->exp;
         c->g_expo[id] += g->expo;
+        c->g_prior[id] += g->prior;
         c->g_rows[id]++;
     }
     return MR_OK;
@@ -540,9 +526,7 @@ static void score_worker_release(void *job, mr__pass_worker *w)
     mr__tokenizer_release(&sw->tok);
     mr__numparser_free(sw->np);
     mr__free(sw->wanted);
-    mr__free(sw->at);
-    mr__free(sw->len);
-    mr__free(sw->buf);
+    mr__row_cells_release(&sw->cells);
     mr__free(sw->lev);
     mr__free(sw->num);
     mr__free(sw->xcol);

@@ -829,9 +829,11 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     memset(&e, 0, sizeof e);
     memset(res, 0, sizeof *res);
     e.cfg = cfg;
-    e.ops = cfg->kind == MR__PASS_SCAN ? &mr__job_scan : cfg->kind == MR__PASS_SCORE ? &mr__job_score
-             : cfg->kind == MR__PASS_MEAT  ? &mr__job_meat
-                                           : &mr__job_irls;
+    e.ops = cfg->kind == MR__PASS_SCAN      ? &mr__job_scan
+            : cfg->kind == MR__PASS_SCORE   ? &mr__job_score
+            : cfg->kind == MR__PASS_MEAT    ? &mr__job_meat
+            : cfg->kind == MR__PASS_SURVEY  ? &mr__job_survey
+                                            : &mr__job_irls;
     if (cfg->ops != NULL) e.ops = cfg->ops;
     e.nworkers = cfg->nthreads > 0 ? (size_t)cfg->nthreads : 1;
     /* Two blocks per worker (one being computed, one waiting), one being

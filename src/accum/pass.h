@@ -36,7 +36,7 @@
 #include "accum/pass_job.h"
 
 /* Which job the pass runs: mr__job_scan or mr__job_irls. */
-typedef enum mr__pass_kind { MR__PASS_SCAN, MR__PASS_IRLS, MR__PASS_SCORE, MR__PASS_MEAT } mr__pass_kind;
+typedef enum mr__pass_kind { MR__PASS_SCAN, MR__PASS_IRLS, MR__PASS_SCORE, MR__PASS_MEAT, MR__PASS_SURVEY } mr__pass_kind;
 
 /* Memory one pass leaves to the next pass of the same fit: its slots'
  * buffers (a chunk, a decoded block, a packed block: about 3 MiB each) and
@@ -80,7 +80,8 @@ typedef struct mr__pass_cfg {
     const mr__block_map *map; /* MR__PASS_IRLS reading the file: the first pass's map */
     mr__pass_pool *pool;  /* NULL, or memory to take from and leave to the next pass */
     const void *job_arg;  /* MR__PASS_SCORE: its mr__score_cfg (accum/score.h);
-                             MR__PASS_MEAT: its mr__meat_cfg (accum/meat.h) */
+                             MR__PASS_MEAT: its mr__meat_cfg (accum/meat.h);
+                             MR__PASS_SURVEY: its mr__survey_cfg (accum/survey.h) */
     const mr__pass_job_ops *ops; /* NULL: the job of `kind`; else this one
                                     (job_fanout.c: several runs' jobs) */
     int pass_number;

@@ -95,6 +95,7 @@ extern const mr__pass_job_ops mr__job_scan; /* job_scan.c: the first pass */
 extern const mr__pass_job_ops mr__job_irls; /* job_irls.c: an IRLS pass */
 extern const mr__pass_job_ops mr__job_score; /* job_score.c: a fit applied to rows */
 extern const mr__pass_job_ops mr__job_meat; /* job_meat.c: the sandwich's meat */
+extern const mr__pass_job_ops mr__job_survey; /* job_survey.c: a file's columns described */
 
 /* Services of the engine for jobs. */
 /* The block's own row error, if it failed (fail mode). */

@@ -36,11 +36,13 @@
  * as continuous: collapsing would only make a copy of the file. */
 #define MR__COLLAPSE_MAX_DISTINCT 256
 
-/* The four sums of a pattern (or of one row):
+/* The sums of a pattern (or of one row):
  *   no offset: a = sum w, b = sum w y, c = sum w y^2, d = sum w h(y)
  *   offset:    a = sum w e^o, b = sum w y, c = sum w y^2 e^-o,
- *              d = sum w (y log y - y o) */
-enum { MR__PATTERN_A, MR__PATTERN_B, MR__PATTERN_C, MR__PATTERN_D, MR__PATTERN_SUMS };
+ *              d = sum w (y log y - y o)
+ * and for calibration (accum/calibration.h), either way: n = the rows of
+ * w > 0, and sum w. */
+enum { MR__PATTERN_A, MR__PATTERN_B, MR__PATTERN_C, MR__PATTERN_D, MR__PATTERN_N, MR__PATTERN_W, MR__PATTERN_SUMS };
 
 /* One block's rows as a worker leaves them for the merge. */
 typedef struct mr__pattern_rows {

@@ -78,6 +78,7 @@ typedef struct mr__score_cfg {
     size_t *by_field;
     mr__levelset groups; /* its limit: the most groups held */
     double *g_obs, *g_exp, *g_expo;
+    double *g_prior; /* sum of prior weights (weight x trials: a binomial's trials) */
     uint64_t *g_rows;
     size_t g_cap;
     /* counts, by the job's add */

@@ -111,6 +111,20 @@ static const struct option report_options[] = {
     {NULL, 0, NULL, 0},
 };
 
+/* Options of `millrace survey` (--json, --threads, --buffer-size,
+ * --missing, --quiet mean what they mean for fit). */
+enum { OPT_DISTINCT_CAP = 768 };
+static const struct option survey_options[] = {
+    {"json", required_argument, NULL, OPT_JSON},
+    {"threads", required_argument, NULL, OPT_THREADS},
+    {"buffer-size", required_argument, NULL, OPT_BUFFER},
+    {"missing", required_argument, NULL, OPT_MISSING},
+    {"distinct-cap", required_argument, NULL, OPT_DISTINCT_CAP},
+    {"quiet", no_argument, NULL, OPT_QUIET},
+    {"help", no_argument, NULL, OPT_HELP},
+    {NULL, 0, NULL, 0},
+};
+
 static const char usage_text[] =
     "usage: millrace fit [options] DATA...  fit a GLM to DATA (CSV, TSV, zstd or gzip, or - for stdin);\n"
     "                               several files or a directory are read as one data set\n"
@@ -123,6 +137,10 @@ static const char usage_text[] =
     "       millrace score --fit FIT.json --out FILE[.zst] [--keep COL]... [--level P]\n"
     "                      [--unseen fail|blank] [--threads N] [--by COL]... [--by-out PATH] DATA\n"
     "                      predictions and residuals per row; observed/expected by group\n"
+    "       millrace survey [--json PATH] [--distinct-cap N] [--missing TOKEN]... [--threads N]\n"
+    "                       [--buffer-size BYTES] [--quiet] DATA\n"
+    "                      each column described in one pass, before a model: kind, missing, range,\n"
+    "                      distinct values (exact up to N, default 1000), the most frequent\n"
     "       millrace compare -m MODEL -m MODEL... [--drop-one NAME]... [--json PATH] [--fit-json PREFIX]\n"
     "                        [--digits N] [--quiet] [run options] DATA\n"
     "                        several models fitted to DATA: deviance, AIC, BIC, tests of nested models\n"
@@ -874,6 +892,66 @@ static int score(int argc, char **argv)
     return rc;
 }
 
+typedef struct survey_cli {
+    const char *json;
+    int quiet, help, missing_given;
+} survey_cli;
+
+static int survey_option(mr_survey *s, survey_cli *o, int opt, const char *arg)
+{
+    long long n;
+    switch (opt) {
+    case OPT_JSON: o->json = arg; return 0;
+    case OPT_QUIET: o->quiet = 1; return 0;
+    case OPT_HELP: o->help = 1; return 0;
+    case OPT_MISSING:
+        if (!o->missing_given) mr_survey_clear_missing(s);
+        o->missing_given = 1;
+        return mr_survey_add_missing(s, arg) == MR_OK ? 0 : fail(MR_ERR_NO_MEMORY, "out of memory");
+    case OPT_THREADS:
+        if (parse_count(arg, &n) != 0 || n > 256 || mr_survey_set_threads(s, (int)n) != MR_OK)
+            return usage_error("--threads takes a count from 0 to 256");
+        return 0;
+    case OPT_BUFFER:
+        if (parse_count(arg, &n) != 0 || mr_survey_set_buffer_size(s, (size_t)n) != MR_OK)
+            return usage_error("--buffer-size takes a byte count of at least 4096");
+        return 0;
+    case OPT_DISTINCT_CAP:
+        if (parse_count(arg, &n) != 0 || mr_survey_set_distinct_cap(s, (size_t)n) != MR_OK)
+            return usage_error("--distinct-cap takes a count from 1 to 10000000");
+        return 0;
+    default: return usage_error("survey takes --json, --distinct-cap, --missing, --threads, --buffer-size, --quiet");
+    }
+}
+
+/* millrace survey [options] DATA: the columns of DATA, before a model. */
+static int survey(int argc, char **argv)
+{
+    survey_cli o;
+    mr_survey *s = mr_survey_new();
+    char msg[1024], *text;
+    int opt, rc = 0;
+    mr_status st;
+    memset(&o, 0, sizeof o);
+    if (s == NULL) return fail(MR_ERR_NO_MEMORY, "out of memory");
+    optind = 1;
+    while (rc == 0 && (opt = getopt_long(argc, argv, "", survey_options, NULL)) != -1)
+        rc = opt == '?' ? usage_error("bad option") : survey_option(s, &o, opt, optarg);
+    if (rc == 0 && o.help) fputs(usage_text, stdout);
+    else if (rc == 0 && optind != argc - 1) rc = usage_error("survey takes exactly one data file (or - for standard input)");
+    else if (rc == 0 && o.json && (st = mr_output_check(o.json, (const char *const *)&argv[optind], 1, msg, sizeof msg)) != MR_OK)
+        rc = fail(st, msg);
+    else if (rc == 0 && (st = mr_survey_run(s, argv[optind])) != MR_OK) rc = fail(st, mr_survey_errmsg(s));
+    else if (rc == 0 && o.json && (st = mr_survey_write_json(s, o.json)) != MR_OK) rc = fail(st, mr_survey_errmsg(s));
+    else if (rc == 0 && !o.quiet) {
+        if ((text = mr_survey_report(s)) == NULL) rc = fail(MR_ERR_NO_MEMORY, "out of memory");
+        else fputs(text, stdout);
+        mr_free(text);
+    }
+    mr_survey_free(s);
+    return rc;
+}
+
 /* ---- millrace compare -------------------------------------------------- */
 
 typedef struct compare_cli {
@@ -1078,6 +1156,7 @@ static int dispatch(int argc, char **argv)
     if (strcmp(argv[1], "drift") == 0) return run_drift(argc - 1, argv + 1);
     if (strcmp(argv[1], "report") == 0) return report_page(argc - 1, argv + 1);
     if (strcmp(argv[1], "score") == 0) return score(argc - 1, argv + 1);
+    if (strcmp(argv[1], "survey") == 0) return survey(argc - 1, argv + 1);
     if (strcmp(argv[1], "compare") == 0) return compare(argc - 1, argv + 1);
     if (strcmp(argv[1], "fit") != 0) return usage_error("unknown command (try 'millrace fit')");
     memset(&c, 0, sizeof c);

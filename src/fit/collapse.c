@@ -24,7 +24,9 @@ static mr_status new_pattern_block(mr__run *r, mr__block *blk, mr__error *err)
     MR__TRY(mr__block_init(blk, &r->bind, err));
     if (blk->prior == NULL) blk->prior = mr__malloc_array(MR__BLOCK_ROWS, sizeof *blk->prior);
     blk->extra = mr__malloc_array(MR__BLOCK_ROWS, sizeof *blk->extra);
-    if (blk->prior == NULL || blk->extra == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    blk->cal_rows = mr__malloc_array(MR__BLOCK_ROWS, sizeof *blk->cal_rows);
+    blk->cal_weight = mr__malloc_array(MR__BLOCK_ROWS, sizeof *blk->cal_weight);
+    if (blk->prior == NULL || blk->extra == NULL || blk->cal_rows == NULL || blk->cal_weight == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     return MR_OK;
 }
 
@@ -80,6 +82,8 @@ static void pattern_covariates(const mr__run *r, const pattern_values *v, size_t
 static void pattern_row(mr__run *r, const double *pt, mr__block *blk, uint32_t i)
 {
     double a = pt[MR__PATTERN_A], b = pt[MR__PATTERN_B], c = pt[MR__PATTERN_C], d = pt[MR__PATTERN_D];
+    blk->cal_rows[i] = pt[MR__PATTERN_N];
+    blk->cal_weight[i] = pt[MR__PATTERN_W];
     if (r->dcfg.collapse == 1) {
         double ybar = b / a;
         blk->y[i] = ybar;

@@ -56,6 +56,8 @@ void mr_fit_free(mr_fit *fit)
     mr__free(fit->missing_count);
     free_strings(fit->bad_example, fit->nbad_examples);
     mr__free(fit->pass_seconds);
+    mr__free(fit->calib_basis);
+    mr__free(fit->calib);
     mr__free(fit->path);
     for (i = 0; fit->set_file && i < fit->nset_files; i++) mr__free(fit->set_file[i].path);
     mr__free(fit->set_file);

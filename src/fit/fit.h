@@ -4,6 +4,7 @@
 
 #include <stddef.h>
 #include <stdint.h>
+#include "accum/calibration.h"
 #include "millrace.h"
 #include "model/spec.h"
 
@@ -117,6 +118,12 @@ struct mr_fit {
     char **command_line; /* the words given to mr_fitter_set_command_line */
     size_t ncommand_line;
     char *started, *ended, *host; /* ISO 8601 UTC; the machine's name */
+    /* observed and expected by tenths of the fitted mean (calibrate.c);
+     * 0 in calib_known for a fit read back from a JSON without them */
+    int calib_known;
+    char *calib_basis;
+    mr__calib_group *calib;
+    size_t ncalib;
     /* the numeric columns (numerics_known 0 for a fit read back from a
      * JSON written before they were saved) */
     int numerics_known;

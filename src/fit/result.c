@@ -516,6 +516,7 @@ mr_status mr__build_fit(mr__run *r, mr_fit **out, mr__error *err)
     if (st == MR_OK && mr__fit_alloc_coefficients(fit, r->design.p) != MR_OK)
         st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     if (st == MR_OK) st = set_coefficients(fit, r, err);
+    if (st == MR_OK) st = mr__fit_calibration(fit, r, err);
     if (st == MR_OK && mr__fit_term_tests(fit) != MR_OK) st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     if (st != MR_OK) {
         mr_fit_free(fit);

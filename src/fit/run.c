@@ -194,8 +194,9 @@ typedef struct irls_job {
     double deviance_shift; /* collapsed patterns: the deviance within patterns */
     mr__irls *resume;    /* NULL, or the state a checkpoint left (taken over) */
     int checkpoints;     /* the fit of the data: a checkpoint after each pass */
+    int calibrate;         /* bin the fitted means (accum/calibration.h) */
     int iterations, halvings, converged, by_step;
-    double rel_change, null_b0;
+    double rel_change, null_b0, step;
 } irls_job;
 
 /* Once the null model has converged its deviance no longer changes, and
@@ -213,6 +214,8 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
     pt.null_intercept = r->f->spec.intercept;
     pt.null_b0 = null_b0;
     pt.null_skip = null_dev_known != NULL;
+    pt.calibrate = job->calibrate;
+    pt.calib_unit = r->family.ops->mu_hi == 1.0;
     c = pass_config(r, MR__PASS_IRLS);
     c.point = &pt;
     if (job->replay) {
@@ -291,6 +294,7 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
     job->restarted = s.restarted;
     job->rel_change = s.rel_change;
     job->null_b0 = s.null_b0;
+    job->step = s.step;
     if (st == MR_OK) mr__irls_coefficients(&s, job->beta_out);
     for (j = 0; st == MR_OK && job->growing_out && j < s.p; j++)
         job->growing_out[j] = mr__irls_ran_off(&s, j);
@@ -369,10 +373,33 @@ static void warm_start(mr__run *r)
     mr__store_init_packed(sample);
 }
 
+/* A fit ended by the size of its step took that step without a pass:
+ * the last pass's bins hold the means one step before the coefficients
+ * reported.  Collapsed patterns are in memory, and one more pass over them
+ * at the coefficients reported costs next to nothing (and rereads no
+ * file); a pass over the rows would cost a whole read, so there the bins
+ * stay those of the last pass (the basis says so, result.c). */
+static mr_status calibration_pass(mr__run *r, irls_job *job, mr__error *err)
+{
+    mr__pass_result res;
+    mr_status st;
+    memset(&res, 0, sizeof res);
+    st = irls_pass(r, job, r->beta_final, job->null_b0, &r->last.sums.null_dev, &res, err);
+    if (st == MR_OK) {
+        mr__calib t = r->last.sums.calib;
+        r->last.sums.calib = res.sums.calib;
+        res.sums.calib = t;
+        r->calib_at_reported = 1;
+    }
+    mr__pass_result_release(&res, 0);
+    return st;
+}
+
 static mr_status fit_data(mr__run *r, mr__irls *resume, mr__error *err)
 {
     irls_job job;
     memset(&job, 0, sizeof job);
+    job.calibrate = 1;
     job.resume = resume;
     job.checkpoints = 1;
     if (r->collapsed) {
@@ -392,6 +419,9 @@ static mr_status fit_data(mr__run *r, mr__irls *resume, mr__error *err)
     r->by_step = job.by_step;
     r->rel_change = job.rel_change;
     r->null_b0 = job.null_b0;
+    r->calib_at_reported = !job.by_step;
+    r->step = job.step;
+    if (job.by_step && r->collapsed) MR__TRY(calibration_pass(r, &job, err));
     return MR_OK;
 }
 

@@ -68,6 +68,8 @@ typedef struct mr__run {
     int warm_blocks, warm_polish_blocks; /* sample blocks of the two stages (0: none) */
     double null_b0, rel_change;
     int iterations, halvings, converged, by_step;
+    int calib_at_reported; /* the last bins are at the coefficients reported */
+    double step;           /* the last step, in standard errors (irls.h) */
     double *pass_seconds;
     int npasses;
     /* robust standard errors: the meat pass's result (accum/meat.h) and
@@ -92,6 +94,8 @@ mr_status mr__map_to_raw(const mr__design *d, const double *beta_s, const double
 mr_status mr__robust_result(mr_fit *fit, const mr__run *r, mr__error *err);
 
 mr_status mr__build_fit(mr__run *r, mr_fit **out, mr__error *err);
+/* The fit's calibration table from the last pass's bins (calibrate.c). */
+mr_status mr__fit_calibration(mr_fit *fit, const mr__run *r, mr__error *err);
 
 /* zero_cells.c: factor levels and cells of two interacting factors whose
  * outcomes are all 0 (or all at the binomial's maximum), from the first

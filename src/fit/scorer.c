@@ -34,6 +34,7 @@ void mr__score_groups_release(mr__score_groups *g)
     mr__free(g->obs);
     mr__free(g->exp);
     mr__free(g->expo);
+    mr__free(g->prior);
     mr__free(g->rows);
     memset(g, 0, sizeof *g);
 }
@@ -351,6 +352,7 @@ static void release_scoring(scoring *g)
     mr__free(g->c.g_obs);
     mr__free(g->c.g_exp);
     mr__free(g->c.g_expo);
+    mr__free(g->c.g_prior);
     mr__free(g->c.g_rows);
     if (g->header) mr__free_names(g->header, g->nheader);
     mr__outfile_abort(g->out);
@@ -400,10 +402,11 @@ static void keep_groups(mr_scorer *s, scoring *g)
     s->g.obs = g->c.g_obs;
     s->g.exp = g->c.g_exp;
     s->g.expo = g->c.g_expo;
+    s->g.prior = g->c.g_prior;
     s->g.rows = g->c.g_rows;
     s->g.n = g->c.groups.n;
     memset(&g->c.groups, 0, sizeof g->c.groups);
-    g->c.g_obs = g->c.g_exp = g->c.g_expo = NULL;
+    g->c.g_obs = g->c.g_exp = g->c.g_expo = g->c.g_prior = NULL;
     g->c.g_rows = NULL;
 }
 

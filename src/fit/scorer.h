@@ -14,6 +14,7 @@
 typedef struct mr__score_groups {
     mr__levelset groups;
     double *obs, *exp, *expo; /* expo NaN without an exposure */
+    double *prior;            /* sum of prior weights (a binomial's trials) */
     uint64_t *rows;
     size_t n;
 } mr__score_groups;

@@ -168,3 +168,39 @@ void mr__free_names(char **names, size_t n)
     for (i = 0; i < n; i++) mr__free(names[i]);
     mr__free(names);
 }
+
+mr_status mr__row_cells_init(mr__row_cells *r, size_t nfields)
+{
+    memset(r, 0, sizeof *r);
+    r->nfields = nfields;
+    r->at = mr__calloc(nfields + 1, sizeof *r->at);
+    r->len = mr__calloc(nfields + 1, sizeof *r->len);
+    return r->at && r->len ? MR_OK : MR_ERR_NO_MEMORY;
+}
+
+void mr__row_cells_release(mr__row_cells *r)
+{
+    mr__free(r->at);
+    mr__free(r->len);
+    mr__free(r->buf);
+    memset(r, 0, sizeof *r);
+}
+
+void mr__row_cells_put(mr__row_cells *r, size_t k, const char *p, size_t len)
+{
+    if (k >= r->nfields) return;
+    if (r->used + len > r->cap) {
+        size_t cap = 2 * (r->used + len) + 256;
+        char *b = mr__realloc(r->buf, cap);
+        if (b == NULL) {
+            r->nomem = 1;
+            return;
+        }
+        r->buf = b;
+        r->cap = cap;
+    }
+    memcpy(r->buf + r->used, p, len);
+    r->at[k] = r->used;
+    r->len[k] = len;
+    r->used += len;
+}

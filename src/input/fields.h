@@ -83,6 +83,22 @@ static inline void mr__plain_row(const char *s, const char *e, char delim, const
 mr_status mr__tokenize_chunk(mr__tokenizer *t, const mr__chunk *c, const mr__field_sink *sink,
                              const char *display, mr__error *err);
 
+/* The cells of one row as a sink's `field` gives them, copied (a quoted
+ * cell's bytes are the parser's until the next call), for a job that
+ * reads raw rows: cell k is buf + at[k], len[k] bytes, until `used` is set
+ * back to 0 for the next row.  Cells k >= nfields are left out; nomem is
+ * set when the copy could not grow. */
+typedef struct mr__row_cells {
+    size_t *at, *len;
+    char *buf;
+    size_t used, cap, nfields;
+    int nomem;
+} mr__row_cells;
+
+mr_status mr__row_cells_init(mr__row_cells *r, size_t nfields);
+void mr__row_cells_release(mr__row_cells *r);
+void mr__row_cells_put(mr__row_cells *r, size_t k, const char *p, size_t len);
+
 /* The delimiter a header line uses: whichever of ',', '\t', ';' occurs most
  * outside quotes (',' on a tie or when none occurs). */
 char mr__detect_delimiter(const char *line, size_t len);

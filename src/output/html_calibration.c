@@ -2,8 +2,7 @@
  * by tenth of the fitted mean, from the fit's "calibration" groups.
  *
  * The plot takes plain arrays (mr__html_calibration_data, html.h); where they
- * come from is one call, calibration_of() below. */
-#include <jansson.h>
+ * come from is one call, calibration_of() below: the fit's accessors. */
 #include <math.h>
 #include <stdio.h>
 #include <string.h>
@@ -20,52 +19,32 @@ void mr__html_calibration_release(mr__html_calibration_data *c)
     memset(c, 0, sizeof *c);
 }
 
-static int number_of(json_t *o, const char *key, double *out)
+/* The fit's calibration groups (mr_fit_calibration_*): 0 and nothing kept
+ * when it has none (a fit saved before they were) or memory runs out (the
+ * page then goes without the plot). */
+static int calibration_of(const mr__html_page *pg, size_t k, mr__html_calibration_data *c)
 {
-    json_t *v = json_object_get(o, key);
-    if (!json_is_number(v)) return 0;
-    *out = json_number_value(v);
-    return isfinite(*out);
-}
-
-/* The groups of a "calibration" object; 0 (and nothing kept) when its
- * layout is not the one expected. */
-static int from_json(json_t *cal, mr__html_calibration_data *c)
-{
-    static const char *const key[] = {"rows", "weight", "mean_low", "mean_high", "observed", "expected"};
-    json_t *groups = json_object_get(cal, "groups"), *basis = json_object_get(cal, "basis");
-    size_t i, k, n = json_array_size(groups);
-    double **col[6];
+    const mr_fit *f = pg->fit[k];
+    int groups = mr_fit_calibration_groups(f);
+    size_t i, n = groups > 0 ? (size_t)groups : 0;
+    mr_calibration_group g;
     memset(c, 0, sizeof *c);
-    col[0] = &c->rows, col[1] = &c->weight, col[2] = &c->mean_low, col[3] = &c->mean_high;
-    col[4] = &c->observed, col[5] = &c->expected;
-    if (!json_is_array(groups) || n == 0 || !json_is_string(basis)) return 0;
+    if (n == 0 || mr_fit_calibration_basis(f) == NULL) return 0;
     c->value = mr__malloc_array(6 * n, sizeof *c->value);
-    c->basis = mr__strdup(json_string_value(basis));
+    c->basis = mr__strdup(mr_fit_calibration_basis(f));
     if (c->value == NULL || c->basis == NULL) goto bad;
-    for (k = 0; k < 6; k++) *col[k] = c->value + k * n;
-    for (i = 0; i < n; i++)
-        for (k = 0; k < 6; k++)
-            if (!number_of(json_array_get(groups, i), key[k], &(*col[k])[i])) goto bad;
+    c->rows = c->value, c->weight = c->value + n, c->mean_low = c->value + 2 * n;
+    c->mean_high = c->value + 3 * n, c->observed = c->value + 4 * n, c->expected = c->value + 5 * n;
+    for (i = 0; i < n; i++) {
+        if (mr_fit_calibration_group(f, i, &g) != MR_OK) goto bad;
+        c->rows[i] = (double)g.rows, c->weight[i] = g.weight, c->mean_low[i] = g.mean_low;
+        c->mean_high[i] = g.mean_high, c->observed[i] = g.observed, c->expected[i] = g.expected;
+    }
     c->n = n;
     return 1;
 bad:
     mr__html_calibration_release(c);
     return 0;
-}
-
-/* The fit's calibration groups, read here from the fit's own file until
- * the fit carries them. */
-static int calibration_of(const mr__html_page *pg, size_t k, mr__html_calibration_data *c)
-{
-    json_t *root;
-    int found;
-    memset(c, 0, sizeof *c);
-    if (pg->source == NULL || pg->source[k] == NULL) return 0;
-    if ((root = json_load_file(pg->source[k], 0, NULL)) == NULL) return 0;
-    found = from_json(json_object_get(root, "calibration"), c);
-    json_decref(root);
-    return found;
 }
 
 /* Observed and expected are the groups' weighted totals; the plot shows

@@ -237,6 +237,27 @@ static const mr__jfield run_fields[] = {
     END,
 };
 
+#define GROUP(key, kind, m) {key, kind, offsetof(mr__calib_group, m), 0, 0, 0, 0, 0, NULL, NULL, NULL}
+static const mr__jfield calibration_group_fields[] = {
+    GROUP("rows", MR__J_U64, rows),
+    GROUP("weight", MR__J_REAL, weight),
+    GROUP("mean_low", MR__J_REAL, mean_low),
+    GROUP("mean_high", MR__J_REAL, mean_high),
+    GROUP("observed", MR__J_REAL, observed),
+    GROUP("expected", MR__J_REAL, expected),
+    END,
+};
+
+/* Observed and expected by tenths of the fitted mean.  Added within
+ * format_version 3, so optional: a fit written without it (version 2 or
+ * an earlier 3) reads back without it. */
+static const mr__jfield calibration_fields[] = {
+    F("basis", MR__J_TEXT, calib_basis),
+    {"groups", MR__J_STRUCTS, AT(calib), AT(ncalib), sizeof(mr__calib_group), 0, 0, 0, NULL, NULL,
+     calibration_group_fields},
+    END,
+};
+
 /* Robust standard errors, written only when the fit made them (so a fit
  * without them keeps its bytes): the coefficients' statistics, p-values
  * and intervals are then theirs. */
@@ -264,6 +285,7 @@ const mr__jfield mr__json_fit_fields[] = {
     DERIVED("ratio_label", MR__JD_RATIO_LABEL),
     {"coefficients", MR__J_RECORDS, 0, AT(p), 0, 0, 0, 0, NULL, NULL, coefficient_fields},
     OBJECT("fit", statistics_fields),
+    {"calibration", MR__J_OBJECT_OPTIONAL, 0, AT(calib_known), 0, 0, 0, 0, NULL, NULL, calibration_fields},
     SPECIAL("covariance", MR__JS_COVARIANCE),
     {"robust", MR__J_OBJECT_OPTIONAL, 0, AT(robust), 0, 0, 0, 0, NULL, NULL, robust_fields},
     LIST("warnings", MR__J_TEXTS, warning, nwarnings),

@@ -10,6 +10,7 @@
 #include "fit/fit.h"
 #include "input/codec.h"
 #include "input/chunk.h"
+#include "output/report_calib.h"
 
 #define DEFAULT_DIGITS 6
 
@@ -254,6 +255,7 @@ char *mr_fit_report(const mr_fit *f, int digits)
     section_coefficients(&b, f, digits);
     section_term_tests(&b, f, digits);
     section_statistics(&b, f, digits);
+    mr__report_calibration(&b, f, digits);
     if (f->nwarnings) mr__strbuf_printf(&b, "\nwarnings\n");
     for (i = 0; i < f->nwarnings; i++) mr__strbuf_printf(&b, "  ! %s\n", f->warning[i]);
     return mr__strbuf_take(&b);

@@ -1,6 +1,22 @@
 /* score_groups.c - a scoring run's observed/expected table by group (the
  * totals the scoring job added, fit/scorer.h) as text, CSV or JSON, with
- * O/E's exact Poisson (Garwood) interval. */
+ * an interval for O/E: the exact Poisson (Garwood) one, or for an outcome
+ * of events out of trials (means in (0, 1): binomial) the exact binomial
+ * (Clopper-Pearson) one.
+ *
+ * Why Clopper-Pearson for events out of trials.  O is then a sum of
+ * independent events of unequal probabilities (Poisson-binomial), whose
+ * variance sum p (1 - p) is below that of a Poisson count of the same mean
+ * E, so the Poisson interval is too wide (much too wide when the means are
+ * large: O/E cannot pass n / E).  Among counts of n trials with mean E,
+ * the binomial of equal probabilities E / n is the most spread (Hoeffding,
+ * "On the distribution of the number of successes in independent trials",
+ * Ann. Math. Statist. 27 (1956) 713-721): the Clopper-Pearson interval
+ * for O / n (Clopper and Pearson, Biometrika 26 (1934) 404-413), times
+ * n / E, keeps its level for any spread of the probabilities, and is
+ * conservative in the same way the exact Poisson one is for counts.  Like
+ * the Poisson one here, at O = 0 (O = n) the bound that exists is the
+ * one-sided bound of level P. */
 #include <jansson.h>
 #include <math.h>
 #include <stdio.h>
@@ -11,6 +27,8 @@
 #include "common/outfile.h"
 #include "common/probability.h"
 #include "common/strbuf.h"
+#include "family/family.h"
+#include "fit/fit.h"
 #include "fit/scorer.h"
 #include "output/json_text.h"
 
@@ -31,6 +49,20 @@ static double chisq_quantile(double p, double df)
     return lo + (hi - lo) / 2;
 }
 
+/* The beta quantile: I_x(a, b) = p, by bisection (monotone in x). */
+static double beta_quantile(double p, double a, double b)
+{
+    double lo = 0, hi = 1;
+    int i;
+    for (i = 0; i < 2000; i++) {
+        double mid = lo + (hi - lo) / 2;
+        if (mid <= lo || mid >= hi) break;
+        if (mr__incbeta(a, b, mid) < p) lo = mid;
+        else hi = mid;
+    }
+    return lo + (hi - lo) / 2;
+}
+
 typedef struct oe_row {
     double ratio, low, high;
 } oe_row;
@@ -43,6 +75,27 @@ static oe_row observed_expected(double o, double e, double level)
     r.low = o > 0 ? chisq_quantile(a / 2, 2 * o) / 2 / e : 0;
     r.high = (o > 0 ? chisq_quantile(1 - a / 2, 2 * (o + 1)) : chisq_quantile(1 - a, 2)) / 2 / e;
     return r;
+}
+
+/* O events out of n trials with E expected: Clopper-Pearson's bounds for
+ * O / n, times n / E (see the top). */
+static oe_row observed_expected_binomial(double o, double e, double n, double level)
+{
+    double a = 1 - level;
+    oe_row r;
+    if (o > n) o = n; /* rounding of sums of w y */
+    r.ratio = o / e;
+    if (o <= 0) r.low = 0;
+    else r.low = beta_quantile(o < n ? a / 2 : a, o, n - o + 1) * n / e;
+    if (o >= n) r.high = n / e;
+    else r.high = beta_quantile(o > 0 ? 1 - a / 2 : 1 - a, o + 1, n - o) * n / e;
+    return r;
+}
+
+/* Events out of trials: the fit's means lie in (0, 1). */
+static int binomial_groups(const mr_scorer *s)
+{
+    return mr__family_ops_of((mr_family)s->fit->family)->mu_hi == 1.0;
 }
 
 /* Cell k of a key (each cell as its 4-byte length and bytes). */
@@ -64,7 +117,8 @@ static const char *const number_names[] = {"rows", "exposure", "observed", "expe
 
 static void group_numbers(const mr_scorer *s, size_t i, double *v)
 {
-    oe_row r = observed_expected(s->g.obs[i], s->g.exp[i], s->level);
+    oe_row r = binomial_groups(s) ? observed_expected_binomial(s->g.obs[i], s->g.exp[i], s->g.prior[i], s->level)
+                                  : observed_expected(s->g.obs[i], s->g.exp[i], s->level);
     v[0] = (double)s->g.rows[i];
     v[1] = s->g.expo[i];
     v[2] = s->g.obs[i];
@@ -93,7 +147,9 @@ static char *table(const mr_scorer *s, int csv)
     size_t i, k, n;
     double v[7];
     mr__strbuf_init(&b);
-    if (!csv) mr__strbuf_printf(&b, "observed/expected by group, exact Poisson %g%% intervals\n", 100 * s->level);
+    if (!csv)
+        mr__strbuf_printf(&b, "observed/expected by group, exact %s %g%% intervals\n",
+                          binomial_groups(s) ? "binomial (Clopper-Pearson)" : "Poisson", 100 * s->level);
     for (k = 0; k < s->nby; k++) mr__strbuf_printf(&b, csv ? "%s," : "%-16s ", s->by[k]);
     for (k = 0; k < 7; k++) mr__strbuf_printf(&b, csv ? "%s%s" : "%s%14s", k && csv ? "," : "", number_names[k]);
     mr__strbuf_append(&b, "\n", 1);
@@ -139,6 +195,7 @@ static char *json_table(const mr_scorer *s)
     char *text, *out = NULL;
     size_t i;
     json_object_set_new(root, "level", json_real(s->level));
+    json_object_set_new(root, "interval", json_string(binomial_groups(s) ? "binomial-exact" : "poisson-exact"));
     for (i = 0; i < s->nby; i++) json_array_append_new(by, mr__json_text(s->by[i]));
     json_object_set_new(root, "by", by);
     for (i = 0; i < s->g.n; i++) json_array_append_new(groups, group_json(s, i));

@@ -23,7 +23,7 @@ data="$root/samples/falls.csv"
 same_table() {
     /usr/bin/python3 - "$1" "$2" <<'END'
 import sys
-a, b = (open(p).read().split("\ncoefficients", 1)[1].split("\n") for p in sys.argv[1:])
+a, b = ([ln for ln in open(p).read().split("\ncoefficients", 1)[1].split("\n") if ln.strip()] for p in sys.argv[1:])
 def num(w):
     try:
         return float(w)
@@ -40,8 +40,9 @@ sys.exit(0 if ok else 1)
 END
 }
 if grep -q '^  intercept  ' "$tmp/old.txt" && grep -q '^  coefficient  .* SE  ' "$tmp/old.txt" &&
-    same_table "$tmp/now.txt" "$tmp/old.txt"; then
-    ok "show of a format 2 fit: today's names, today's table"
+    sed '/^calibration: /,/^  groups are whole bins/d' "$tmp/now.txt" > "$tmp/now-table.txt" &&
+    same_table "$tmp/now-table.txt" "$tmp/old.txt"; then
+    ok "show of a format 2 fit: today's names, today's table (it has no calibration)"
 else
     fail "show of a format 2 fit" "$(head -c 300 "$tmp/err")"
 fi

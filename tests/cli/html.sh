@@ -55,7 +55,11 @@ check "calibration page" "$bin" report --html "$tmp/calib.html" --at year=2020 "
 page_ok calib fit-1 forest-1 calibration-1
 check "calibration: ten groups in its table" test "$(sed -n '/<figure id="calibration-1">/,/<\/figure>/p' "$tmp/calib.html" | grep -c '^<tr><td>')" = 10
 check "calibration: the groups' basis said" grep -qF 'tenths of the fitted mean (invented' "$tmp/calib.html"
-check "no calibration plot without the groups" test "$(grep -c 'id="calibration-' "$tmp/falls.html")" = 0
+check "a fresh fit's own calibration groups plotted" test "$(grep -c 'id="calibration-' "$tmp/falls.html")" -gt 0
+/usr/bin/python3 -c 'import json, sys; f = json.load(open(sys.argv[1])); f.pop("calibration")
+json.dump(f, open(sys.argv[2], "w"), indent=1)' "$tmp/falls.json" "$tmp/nocal.json"
+check "page of a fit without calibration" "$bin" report --html "$tmp/nocal.html" "$tmp/nocal.json"
+check "no calibration plot without the groups" test "$(grep -c 'id="calibration-' "$tmp/nocal.html")" = 0
 
 # A fit saved before fits recorded their numeric columns: numerics at 0,
 # said; no curve for a plain numeric, a spline's over its boundary knots.
