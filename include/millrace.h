@@ -115,17 +115,30 @@ MR_API const char *mr_strerror(mr_status status);
  *   inverse-gaussian  inverse-squared, inverse, identity, log
  *   negative-binomial log, identity, sqrt (a fixed theta: the family's
  *                     line reads "family negative-binomial theta=2";
- *                     V(mu) = mu + mu^2/theta, dispersion fixed at 1)
+ *                     V(mu) = mu + mu^2/theta, dispersion fixed at 1;
+ *                     "family negative-binomial" or "... theta=estimate"
+ *                     estimates theta by maximum likelihood in the same
+ *                     passes: MR_STAT_FAMILY_PARAMETER_SE gives its
+ *                     standard error, the AIC and BIC count it, and rows
+ *                     never collapse into covariate patterns)
  *   tweedie           log (a fixed power 1 < p < 2: "family tweedie
  *                     power=1.5"; V(mu) = mu^p, outcome >= 0, dispersion
- *                     estimated; no log-likelihood: MR_STAT_LOG_LIKELIHOOD,
- *                     MR_STAT_AIC and MR_STAT_BIC are NaN)
+ *                     estimated; the log-likelihood by Dunn and Smyth's
+ *                     series at the dispersion deviance / sum of weights,
+ *                     which AIC and BIC count; NaN when the fit stopped
+ *                     before its steps were small; rows never collapse;
+ *                     "power=profile" fits each power 1.1, 1.2, ..., 1.9
+ *                     one after another and returns the fit of the
+ *                     largest log-likelihood, whose AIC and BIC count the
+ *                     power: a file, not standard input)
  * Binomial, poisson and negative binomial with "dispersion estimate" are
  * quasi families, without a likelihood: MR_STAT_LOG_LIKELIHOOD,
- * MR_STAT_AIC and MR_STAT_BIC are NaN for them too.
- * A family with a parameter of its own needs it on its line
- * (mr_fitter_model_line: MR_ERR_USAGE without it or out of range);
- * mr_fit_stat(fit, MR_STAT_FAMILY_PARAMETER) gives it back.           */
+ * MR_STAT_AIC and MR_STAT_BIC are NaN for them too (and a negative
+ * binomial's theta, estimated by its likelihood, must then be given).
+ * A tweedie needs its power on its line (mr_fitter_model_line:
+ * MR_ERR_USAGE without it or out of range, as for a theta <= 0);
+ * mr_fit_stat(fit, MR_STAT_FAMILY_PARAMETER) gives the parameter back
+ * (the estimate, where estimated).                                    */
 
 typedef enum mr_family {
     MR_GAUSSIAN = 0,
@@ -532,8 +545,14 @@ typedef enum mr_stat {
     MR_STAT_FAMILY_PARAMETER = 17, /* the family's own parameter: a negative
                                 binomial's theta, a Tweedie power; NaN for a
                                 family without one                          */
-    MR_STAT_START_CARRIED = 18 /* coefficients taken from the previous fit
+    MR_STAT_START_CARRIED = 18, /* coefficients taken from the previous fit
                                   (mr_fitter_set_start); NaN without one     */
+    MR_STAT_FAMILY_PARAMETER_SE = 19 /* the standard error of an estimated
+                                family parameter (a negative binomial's theta
+                                by maximum likelihood): 1/sqrt of its observed
+                                information at the final means, the
+                                coefficients held; NaN when the parameter was
+                                given or the family has none                 */
 } mr_stat;
 /* A fit statistic; NaN for an unknown `which`. */
 MR_API double mr_fit_stat(const mr_fit *fit, mr_stat which);

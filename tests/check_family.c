@@ -769,7 +769,7 @@ END_TEST
 
 static mr__family with_param(mr_family f, double param)
 {
-    mr__family x = {mr__family_ops_of(f), param};
+    mr__family x = {mr__family_ops_of(f), param, 0, NAN};
     return x;
 }
 
@@ -927,6 +927,52 @@ START_TEST(tweedie_parameter)
 }
 END_TEST
 
+/* One row's log density and its derivatives in log(phi) through the
+ * family's kernel (weight 1). */
+static void tweedie_row(double p, double y, double mu, double phi, double out[3])
+{
+    mr__family f = {mr__family_ops_of(MR_TWEEDIE), p, 0, phi};
+    double sums[MR__PARAM_SUMS] = {0};
+    f.ops->param_sums_n(&f, &y, &mu, NULL, 1, sums);
+    out[0] = sums[MR__PS_LOGLIK], out[1] = sums[MR__PS_SCORE], out[2] = sums[MR__PS_INFO];
+}
+
+/* The Tweedie series density, by analytic identities: the mass at 0 and
+ * the density over y > 0 make 1, and its mean is mu (Simpson's rule in
+ * t = y^(1/4), which takes out the density's y^(-a-1) at 0+, integrable
+ * but unbounded for p > 4/3; the integrand negligible past y = 60); the
+ * derivatives in log(phi) match central differences of the log density. */
+START_TEST(tweedie_series_density)
+{
+    static const double cases[][3] = {{1.2, 2.0, 1.5}, {1.5, 1.0, 2.0}, {1.8, 3.0, 0.8}, {1.5, 0.3, 0.5}};
+    for (size_t c = 0; c < N_OF(cases); c++) {
+        const int n = 40000;
+        double p = cases[c][0], mu = cases[c][1], phi = cases[c][2], d[3], lo[3], hi[3], mass, mean = 0;
+        double h = pow(60.0, 0.25) / n;
+        tweedie_row(p, 0.0, mu, phi, d);
+        mass = exp(d[0]);
+        for (int i = 1; i <= n; i++) { /* t = 0 adds a term of order h: left out */
+            double t = i * h, y = t * t * t * t, wgt = i == n ? 1 : (i % 2 ? 4 : 2), g;
+            tweedie_row(p, y, mu, phi, d);
+            g = h / 3 * wgt * exp(d[0]) * 4 * t * t * t;
+            mass += g;
+            mean += g * y;
+        }
+        ck_assert_msg(fabs(mass - 1) < 1e-6, "p %g: total mass %.10g", p, mass);
+        ck_assert_msg(fabs(mean - mu) < 1e-6 * mu, "p %g: mean %.10g, mu %g", p, mean, mu);
+        for (double y = 0; y < 5; y += 1.3) {
+            double e = 1e-4;
+            tweedie_row(p, y, mu, phi, d);
+            tweedie_row(p, y, mu, phi * exp(-e), lo);
+            tweedie_row(p, y, mu, phi * exp(e), hi);
+            ck_assert_msg(fabs((hi[0] - lo[0]) / (2 * e) - d[1]) < 1e-6 * (1 + fabs(d[1])), "p %g y %g: d1", p, y);
+            ck_assert_msg(fabs((hi[0] - 2 * d[0] + lo[0]) / (e * e) - d[2]) < 1e-3 * (1 + fabs(d[2])), "p %g y %g: d2",
+                          p, y);
+        }
+    }
+}
+END_TEST
+
 START_TEST(negative_binomial_parameter)
 {
     static const word_case bad[] = {{"theta=0", "theta must be > 0"},     {"theta=-2", "theta must be > 0"},
@@ -985,6 +1031,7 @@ static Suite *family_suite(void)
     tcase_add_test(param, patterns_exact);
     tcase_add_test(param, tweedie_deviance_definition);
     tcase_add_test(param, tweedie_parameter);
+    tcase_add_test(param, tweedie_series_density);
     tcase_add_test(param, negative_binomial_parameter);
     suite_add_tcase(s, param);
     return s;

@@ -4,12 +4,18 @@
  * two-level factor gives each level's coefficient as the log of its mean
  * outcome, so beta = (log 3, log 7/3) for the rows below); bitwise identity
  * of a state encoded and decoded with the original, field by field and
- * under further steps; the encoding's contract in irls.h. */
+ * under further steps; the encoding's contract in irls.h.  With a negative
+ * binomial's theta estimated: the same identity for the means (a factor's
+ * log-link score equations give each level its mean outcome whatever
+ * theta), and theta's score, summed here with the digamma function, zero
+ * at the end. */
 #include <check.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
+#include "common/probability.h"
+#include "family/family.h"
 #include "fit/irls.h"
 #include "check_common.h"
 #include "millrace.h"
@@ -194,10 +200,111 @@ START_TEST(wrong_bytes_are_refused)
     buf[15] = 0;
     buf[4] = 9; /* an unknown version */
     ck_assert_int_eq(mr__irls_decode(buf, len, &copy, &err), MR_ERR_IO);
+    buf[4] = 2; /* the step rule's or theta's state alone: refused, not guessed at */
+    ck_assert_int_eq(mr__irls_decode(buf, len, &copy, &err), MR_ERR_IO);
     buf[4] = MR__IRLS_VERSION;
     ck_assert_int_eq(mr__irls_decode(buf, len, &copy, &err), MR_OK);
     mr__irls_release(&copy);
     free(buf);
+    mr__irls_release(&s);
+    mr__sums_release(&sums);
+}
+END_TEST
+
+/* ---- theta estimated: a negative binomial, log link -------------------- */
+
+enum { NB_ROWS = 12 };
+static const double NB_Y[NB_ROWS] = {0, 1, 4, 2, 9, 0, 3, 12, 1, 7, 0, 15};
+static const double NB_X1[NB_ROWS] = {0, 0, 0, 0, 0, 0, 1, 1, 1, 1, 1, 1};
+
+/* The sums a pass makes at beta and theta, the family's own through its
+ * kernel (row by row, as a block of one row each would). */
+static void nb_sums(const double *beta, double theta, double b0, mr__block_sums *s)
+{
+    mr__family f = {mr__family_ops_of(MR_NEGATIVE_BINOMIAL), theta, 1, NAN};
+    size_t i;
+    memset(s->xtwx, 0, P * P * sizeof *s->xtwx);
+    memset(s->xtwz, 0, P * sizeof *s->xtwz);
+    memset(s->fam, 0, sizeof s->fam);
+    s->dev = s->pearson = s->null_dev = s->null_sw = s->null_swz = 0;
+    s->invalid = s->boundary = 0;
+    for (i = 0; i < NB_ROWS; i++) {
+        double x[P] = {1, NB_X1[i]};
+        double mu = beta ? exp(beta[0] + beta[1] * x[1]) : NB_Y[i] + 0.1, eta = log(mu);
+        double var = mu + mu * mu / theta, w = mu * mu / var, z = eta + (NB_Y[i] - mu) / mu, d, m0 = exp(b0);
+        size_t a, b;
+        for (b = 0; b < P; b++) {
+            for (a = 0; a <= b; a++) s->xtwx[b * P + a] += w * x[a] * x[b];
+            s->xtwz[b] += w * x[b] * z;
+        }
+        f.ops->unit_deviance_n(&f, &NB_Y[i], &mu, 1, &d);
+        s->dev += d;
+        f.ops->param_sums_n(&f, &NB_Y[i], &mu, NULL, 1, s->fam);
+        f.ops->unit_deviance_n(&f, &NB_Y[i], &m0, 1, &d);
+        s->null_dev += d;
+        w = m0 * m0 / (m0 + m0 * m0 / theta);
+        s->null_sw += w;
+        s->null_swz += w * (b0 + (NB_Y[i] - m0) / m0);
+    }
+}
+
+static int nb_advance(mr__irls *s, mr__block_sums *sums)
+{
+    int done = 0;
+    nb_sums(mr__irls_beta(s), mr__irls_param(s), s->null_b0, sums);
+    ck_assert_int_eq(mr__irls_step(s, sums, "test", &done, NULL), MR_OK);
+    return done;
+}
+
+START_TEST(theta_estimated_alongside)
+{
+    mr__irls s, copy;
+    mr__irls_cfg c;
+    mr__block_sums sums;
+    double beta[P], theta, score = 0, mu[2] = {16.0 / 6, 38.0 / 6};
+    int done = 0, copy_done, passes = 0;
+    size_t i, len;
+    unsigned char *buf;
+    memset(&c, 0, sizeof c);
+    c.p = P;
+    c.tolerance = 1e-12;
+    c.max_iterations = 60;
+    c.null_intercept = 1;
+    c.null_b0 = log(54.0 / 12);
+    c.null_exact = 1;
+    c.family = MR_NEGATIVE_BINOMIAL;
+    c.param_estimate = 1;
+    c.param_start = 1.0;
+    ck_assert_int_eq(mr__sums_init(&sums, P, NULL), MR_OK);
+    ck_assert_int_eq(mr__irls_init(&s, &c, NULL), MR_OK);
+    while (!done) {
+        /* the state carries theta through its bytes: the copy goes on to
+         * the same bits */
+        buf = encode(&s, &len);
+        ck_assert_int_eq(mr__irls_decode(buf, len, &copy, NULL), MR_OK);
+        free(buf);
+        ck_assert(same_bits(mr__irls_param(&copy), mr__irls_param(&s)));
+        done = nb_advance(&s, &sums);
+        copy_done = nb_advance(&copy, &sums);
+        ck_assert_int_eq(done, copy_done);
+        assert_same_state(&s, &copy);
+        mr__irls_release(&copy);
+        ck_assert_int_lt(++passes, 60);
+    }
+    /* ended by the coefficients' step rule with theta settled beside it
+     * (not at the boundary) */
+    ck_assert(s.converged && s.by_step && s.param_phase == 1);
+    mr__irls_coefficients(&s, beta);
+    ck_assert_double_eq_tol(beta[0], log(mu[0]), 1e-9);
+    ck_assert_double_eq_tol(beta[1], log(mu[1] / mu[0]), 1e-9);
+    theta = mr__irls_param(&s);
+    ck_assert(theta > 0.5 && theta < 5);
+    for (i = 0; i < NB_ROWS; i++) {
+        double m = mu[(int)NB_X1[i]];
+        score += mr__digamma(NB_Y[i] + theta) - mr__digamma(theta) + log(theta / (theta + m)) + 1 -
+                 (NB_Y[i] + theta) / (theta + m);
+    }
+    ck_assert_double_eq_tol(score, 0.0, 1e-8);
     mr__irls_release(&s);
     mr__sums_release(&sums);
 }
@@ -212,6 +319,7 @@ int main(void)
     tcase_add_test(tc, stops_on_the_newton_remainder);
     tcase_add_test(tc, state_round_trips_bit_for_bit);
     tcase_add_test(tc, wrong_bytes_are_refused);
+    tcase_add_test(tc, theta_estimated_alongside);
     suite_add_tcase(s, tc);
     return mr_check_run(s, 0);
 }

@@ -224,7 +224,8 @@ static void same_fit(const mr_fit *a, const mr_fit *b)
             ck_assert(same_bits(x, y) || (isnan(x) && isnan(y)));
         }
     }
-    for (i = 0; i <= MR_STAT_FAMILY_PARAMETER; i++) {
+    for (i = 0; i <= MR_STAT_FAMILY_PARAMETER_SE; i++) {
+        if (i == MR_STAT_START_CARRIED) continue;
         double x = mr_fit_stat(a, (mr_stat)i), y = mr_fit_stat(b, (mr_stat)i);
         ck_assert(same_bits(x, y) || (isnan(x) && isnan(y)));
     }
@@ -391,10 +392,29 @@ START_TEST(round_trip_family_parameter)
     ck_assert_ptr_nonnull(strstr(text, "\"name\": \"theta\",\n   \"value\": 2.5\n"));
     free(text);
     round_trip(fit, "negative binomial");
-    lines2[1] = "family tweedie power=1.25"; /* no log-likelihood: null, read back as NaN */
+    lines2[1] = "family tweedie power=1.25"; /* its log-likelihood by the series */
     fit = fit_with(NULL, lines2, sizeof lines2 / sizeof lines2[0], in_dir("nb.csv"), 0);
-    ck_assert(isnan(mr_fit_stat(fit, MR_STAT_LOG_LIKELIHOOD)) && mr_fit_stat(fit, MR_STAT_FAMILY_PARAMETER) == 1.25);
+    ck_assert(isfinite(mr_fit_stat(fit, MR_STAT_LOG_LIKELIHOOD)) && mr_fit_stat(fit, MR_STAT_FAMILY_PARAMETER) == 1.25);
+    ck_assert(isnan(mr_fit_stat(fit, MR_STAT_FAMILY_PARAMETER_SE)));
     round_trip(fit, "tweedie");
+    lines2[1] = "family tweedie power=profile"; /* the power by profile likelihood, the profile kept */
+    fit = fit_with(NULL, lines2, sizeof lines2 / sizeof lines2[0], in_dir("nb.csv"), 0);
+    ck_assert(mr_fit_stat(fit, MR_STAT_FAMILY_PARAMETER) > 1 && mr_fit_stat(fit, MR_STAT_FAMILY_PARAMETER) < 2);
+    ck_assert_msg(mr_fit_write_json(fit, in_dir("good.json"), msg, sizeof msg) == MR_OK, "%s", msg);
+    text = slurp(in_dir("good.json"));
+    ck_assert_ptr_nonnull(strstr(text, "\"profile\": {\n    \"points\": [\n"));
+    free(text);
+    round_trip(fit, "tweedie, power by profile likelihood");
+    lines2[1] = "family negative-binomial"; /* theta estimated, with its standard error */
+    csv = "y,g,x\n0,a,1\n13,b,2\n1,a,3\n0,b,1\n2,c,2\n0,c,5\n24,a,4\n9,b,3\n1,c,1\n0,a,2\n6,b,4\n0,c,3\n";
+    spit(in_dir("nb2.csv"), csv, strlen(csv)); /* overdispersed: theta's maximum is finite */
+    fit = fit_with(NULL, lines2, sizeof lines2 / sizeof lines2[0], in_dir("nb2.csv"), 0);
+    ck_assert(mr_fit_stat(fit, MR_STAT_FAMILY_PARAMETER) > 0 && mr_fit_stat(fit, MR_STAT_FAMILY_PARAMETER_SE) > 0);
+    ck_assert_msg(mr_fit_write_json(fit, in_dir("good.json"), msg, sizeof msg) == MR_OK, "%s", msg);
+    text = slurp(in_dir("good.json"));
+    ck_assert_ptr_nonnull(strstr(text, "\"estimated\": {\n    \"standard_error\": "));
+    free(text);
+    round_trip(fit, "negative binomial, theta estimated");
 }
 END_TEST
 

@@ -35,6 +35,7 @@ static void random_totals(mr__block_sums *s, uint64_t *state)
     s->null_swz = random_value(state);
     s->invalid = next_random(state) % 100;
     s->boundary = next_random(state);
+    for (j = 0; j < MR__PARAM_SUMS; j++) s->fam[j] = random_value(state);
 }
 
 static void fresh(mr__block_sums *s)
@@ -55,6 +56,7 @@ static void assert_same(const mr__block_sums *a, const mr__block_sums *b)
     ck_assert(same_bits(a->null_swz, b->null_swz));
     ck_assert_uint_eq(a->invalid, b->invalid);
     ck_assert_uint_eq(a->boundary, b->boundary);
+    for (j = 0; j < MR__PARAM_SUMS; j++) ck_assert(same_bits(a->fam[j], b->fam[j]));
 }
 
 START_TEST(round_trip_keeps_every_bit)
@@ -94,9 +96,9 @@ START_TEST(layout_is_little_endian)
     ck_assert_int_eq(mr__sums_init(&a, 1, NULL), MR_OK);
     a.xtwx[0] = 1.0; /* 0x3FF0000000000000 */
     ck_assert_uint_le(mr__partial_size(1), sizeof buf);
-    ck_assert_uint_eq(mr__partial_size(1), 32 + 8 * 9);
+    ck_assert_uint_eq(mr__partial_size(1), 32 + 8 * 14);
     mr__partial_encode(&a, 1, r, buf);
-    ck_assert(memcmp(buf, "MRPS\1\0\0\0\1\0\0\0\0\0\0\0\2\1\0\0\0\0\0\0\3\0\0\0\0\0\0\0", 32) == 0);
+    ck_assert(memcmp(buf, "MRPS\2\0\0\0\1\0\0\0\0\0\0\0\2\1\0\0\0\0\0\0\3\0\0\0\0\0\0\0", 32) == 0);
     ck_assert(memcmp(buf + 32, "\0\0\0\0\0\0\xF0\x3F", 8) == 0);
     mr__sums_release(&a);
 }
@@ -113,7 +115,7 @@ START_TEST(wrong_bytes_are_refused)
     mr__partial_encode(&a, P, r, buf);
     ck_assert_int_eq(mr__partial_decode(buf, n - 1, P, &a, &r, &err), MR_ERR_IO);
     ck_assert_int_eq(mr__partial_decode(buf, n, P - 1, &a, &r, &err), MR_ERR_IO);
-    buf[4] = 2; /* a version this build does not know */
+    buf[4] = 3; /* a version this build does not know */
     ck_assert_int_eq(mr__partial_decode(buf, n, P, &a, &r, &err), MR_ERR_IO);
     buf[4] = 1;
     buf[0] = 'X';

@@ -554,6 +554,40 @@ START_TEST(log_gamma_is_glibc_lgamma)
 }
 END_TEST
 
+/* digamma and trigamma: scipy.special.digamma and polygamma(1, x) (scipy
+ * 1.10.1, Debian python3-scipy, pasted with %.17g), on both sides of the
+ * recurrence's end at 10; and analytic identities: psi(1) = -Euler's
+ * constant, psi(1/2) = -gamma - 2 log 2, psi'(1) = pi^2/6, psi'(1/2) = pi^2/2,
+ * the recurrences psi(x + 1) = psi(x) + 1/x and psi'(x + 1) = psi'(x) - 1/x^2. */
+START_TEST(digamma_trigamma)
+{
+    static const double scipy[][3] = {
+        {0.001, -1000.5755719318103, 1000001.6425331959},
+        {0.37, -2.7953014108905636, 8.3604738277990975},
+        {2.5, 0.70315664064524319, 0.49035775610023491},
+        {9.99, 2.2507003728312012, 0.10527695014824176},
+        {10.0, 2.2517525890667209, 0.10516633568168576},
+        {17.25, 2.818546676986557, 0.059683781919015515},
+        {1234.5, 7.1180162318279985, 0.00081037272712696678},
+        {10000000.0, 16.11809560095832, 1.0000000500000016e-07},
+    };
+    const double euler = 0.57721566490153286, pi = 3.14159265358979324;
+    size_t i;
+    for (i = 0; i < sizeof scipy / sizeof scipy[0]; i++) {
+        double x = scipy[i][0];
+        ck_assert_msg(fabs(mr__digamma(x) - scipy[i][1]) <= 4e-15 * fmax(1, fabs(scipy[i][1])), "digamma(%g)", x);
+        ck_assert_msg(fabs(mr__trigamma(x) - scipy[i][2]) <= 4e-15 * scipy[i][2], "trigamma(%g)", x);
+        ck_assert(fabs(mr__digamma(x + 1) - mr__digamma(x) - 1 / x) <= 1e-14 * fmax(1, 1 / x));
+        ck_assert(fabs(mr__trigamma(x) - mr__trigamma(x + 1) - 1 / (x * x)) <= 1e-14 * (1 / (x * x)) + 1e-15 * mr__trigamma(x));
+    }
+    ck_assert(fabs(mr__digamma(1) + euler) < 1e-15);
+    ck_assert(fabs(mr__digamma(0.5) + euler + 2 * log(2.0)) < 1e-15);
+    ck_assert(fabs(mr__trigamma(1) - pi * pi / 6) < 1e-15);
+    ck_assert(fabs(mr__trigamma(0.5) - pi * pi / 2) < 4e-15);
+    ck_assert(isnan(mr__digamma(0)) && isnan(mr__digamma(-1)) && isnan(mr__trigamma(NAN)));
+}
+END_TEST
+
 static Suite *probability_suite(void)
 {
     Suite *s = suite_create("probability");
@@ -579,6 +613,7 @@ static Suite *probability_suite(void)
     tcase_add_test(id, gamma_q_identities);
     tcase_add_test(id, incbeta_identities);
     tcase_add_test(id, log_gamma_is_glibc_lgamma);
+    tcase_add_test(id, digamma_trigamma);
     suite_add_tcase(s, id);
     return s;
 }

@@ -140,6 +140,7 @@ static void add_vector_and_scalars(mr__block_sums *into, const mr__block_sums *f
     into->invalid += from->invalid;
     into->boundary += from->boundary;
     mr__calib_add(&into->calib, &from->calib);
+    for (j = 0; j < MR__PARAM_SUMS; j++) into->fam[j] += from->fam[j];
 }
 
 void mr__sums_add(mr__block_sums *into, const mr__block_sums *from, const mr__design *d)
@@ -344,10 +345,11 @@ void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__wo
     }
     out->dev = dev;
     out->pearson = pearson;
-    if (out->invalid) return;
+    if (out->invalid) return; /* the caller halves the step; sums are not used */
     /* before the null model's rows reuse mu */
     if (pt->calibrate)
-        mr__calib_rows(&out->calib, blk->y, ws->mu, blk->prior, blk->cal_rows, blk->cal_weight, n, pt->calib_unit); /* the caller halves the step; sums are not used */
+        mr__calib_rows(&out->calib, blk->y, ws->mu, blk->prior, blk->cal_rows, blk->cal_weight, n, pt->calib_unit);
+    if (fam->param_sums_n) fam->param_sums_n(pt->family, blk->y, ws->mu, blk->prior, n, out->fam);
     for (j = 0; j < d->ndense; j++) {
         double *col = ws->D + j * n;
         for (i = 0; i < n; i++) col[i] *= ws->w[i];

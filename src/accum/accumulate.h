@@ -9,6 +9,7 @@
 #include <stdint.h>
 #include "accum/calibration.h"
 #include "accum/decode.h"
+#include "family/family.h"
 #include "model/design.h"
 
 typedef struct mr__irls_point {
@@ -33,6 +34,9 @@ typedef struct mr__block_sums {
     uint64_t invalid;  /* rows whose eta or mu left the family's domain */
     uint64_t boundary; /* rows fitted at the edge of the domain */
     mr__calib calib;   /* observed and expected by fitted mean (not encoded) */
+    /* the family's own sums (family.h, MR__PS_*): zero for a family that
+     * has none to add at this point */
+    double fam[MR__PARAM_SUMS];
 } mr__block_sums;
 
 /* Scratch space a worker owns: one block of the design and per-row

@@ -353,6 +353,7 @@ static void store_row(mr__decoder *d, double y, double prior, double off)
         blk->llc += d->row_llc;
         blk->npos += prior > 0;
         blk->nfraction += y > 0 && y < 1;
+        blk->nnonint += y != floor(y);
         if (b->has_exposure || b->has_offset) {
             /* a deferred offset is only ever wanted with a log link, which
              * starts from swe alone */
@@ -490,7 +491,7 @@ mr_status mr__decode_chunk(mr__decoder *d, const mr__chunk *c, mr__block *blk, m
     blk->worker = d->worker;
     blk->nread = blk->n = blk->incomplete = blk->nbad = blk->nbad_shown = 0;
     blk->sw = blk->swy = blk->llc = blk->swe = blk->swoff = 0;
-    blk->npos = blk->nfraction = 0;
+    blk->npos = blk->nfraction = blk->nnonint = 0;
     blk->off_is_exposure = d->defer_offset;
     blk->failed = 0;
     blk->nnew_levels = 0;

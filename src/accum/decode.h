@@ -64,6 +64,7 @@ typedef struct mr__block {
     double sw, swy, llc, swe, swoff;
     uint64_t npos;
     uint64_t nfraction; /* rows whose outcome lies strictly between 0 and 1 */
+    uint64_t nnonint;   /* rows whose outcome is not a whole number */
     /* Collapsed patterns only: per-pattern Pearson correction (see
      * accum/patterns.h); NULL otherwise. */
     double *extra;

@@ -30,9 +30,9 @@ static void put_counts(mr__bytebuf *b, mr__value_counts *c)
 static void put_scan(mr__bytebuf *b, mr__scan_sums *s, size_t ncol, size_t nnum)
 {
     size_t i;
-    uint64_t head[6] = {s->nread, s->nused, s->incomplete, s->nbad, s->npos, s->nfraction};
+    uint64_t head[7] = {s->nread, s->nused, s->incomplete, s->nbad, s->npos, s->nfraction, s->nnonint};
     double tail[5] = {s->sw, s->swy, s->swe, s->swoff, s->llc};
-    for (i = 0; i < 6; i++) mr__bytebuf_u64(b, head[i]);
+    for (i = 0; i < 7; i++) mr__bytebuf_u64(b, head[i]);
     for (i = 0; i < ncol; i++) mr__bytebuf_u64(b, s->missing[i]);
     for (i = 0; i < nnum; i++) {
         mr__bytebuf_f64(b, s->sx[i]);
@@ -199,11 +199,11 @@ static mr_status get_value_counts(mr__byteread *r, mr__scan_sums *s, size_t nnum
 
 static mr_status get_scan(mr__byteread *r, mr__scan_sums *s, size_t ncol, size_t nnum, mr__error *err)
 {
-    uint64_t *head[6] = {&s->nread, &s->nused, &s->incomplete, &s->nbad, &s->npos, &s->nfraction};
+    uint64_t *head[7] = {&s->nread, &s->nused, &s->incomplete, &s->nbad, &s->npos, &s->nfraction, &s->nnonint};
     double *tail[5] = {&s->sw, &s->swy, &s->swe, &s->swoff, &s->llc};
     size_t i;
     MR__TRY(mr__scan_init(s, ncol, nnum, err));
-    for (i = 0; i < 6; i++) *head[i] = mr__byteread_u64(r);
+    for (i = 0; i < 7; i++) *head[i] = mr__byteread_u64(r);
     for (i = 0; i < ncol; i++) s->missing[i] = mr__byteread_u64(r);
     for (i = 0; i < nnum; i++) {
         s->sx[i] = mr__byteread_f64(r);

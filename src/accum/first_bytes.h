@@ -8,7 +8,8 @@
  *   the input: size, mtime (ns), raw bytes, decompressed bytes, checksum,
  *     compression
  *   the shape: bound columns, numerics, factors
- *   the scan sums (accum/scan.h): counts of rows, missing per column,
+ *   the scan sums (accum/scan.h): counts of rows (read, used, incomplete,
+ *     bad, positive weight, fractional, outcome not whole), missing per column,
  *     per numeric sum / deviation scale / scaled squares / least / greatest
  *     value, sw, swy, swe,
  *     swoff, the log-likelihood constant, the bad rows shown (line,

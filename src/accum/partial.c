@@ -5,7 +5,9 @@
 
 enum { HEAD = 4 + 4 + 8 + 8 + 8, NSCALAR = 5, NCOUNT = 2 };
 
-size_t mr__partial_size(size_t p) { return HEAD + 8 * (p * (p + 1) / 2 + p + NSCALAR + NCOUNT); }
+_Static_assert(MR__PARAM_SUMS == 5, "the encoding holds five family sums");
+
+size_t mr__partial_size(size_t p) { return HEAD + 8 * (p * (p + 1) / 2 + p + NSCALAR + NCOUNT + MR__PARAM_SUMS); }
 
 void mr__partial_encode(const mr__block_sums *s, size_t p, mr__partial_range range, unsigned char *out)
 {
@@ -23,7 +25,8 @@ void mr__partial_encode(const mr__block_sums *s, size_t p, mr__partial_range ran
     at = mr__put_f64(at, s->null_sw);
     at = mr__put_f64(at, s->null_swz);
     at = mr__put_u64(at, s->invalid);
-    (void)mr__put_u64(at, s->boundary);
+    at = mr__put_u64(at, s->boundary);
+    for (j = 0; j < MR__PARAM_SUMS; j++) at = mr__put_f64(at, s->fam[j]);
 }
 
 mr_status mr__partial_decode(const unsigned char *in, size_t len, size_t p, mr__block_sums *s,
@@ -50,6 +53,7 @@ mr_status mr__partial_decode(const unsigned char *in, size_t len, size_t p, mr__
     at = mr__get_f64(at, &s->null_sw);
     at = mr__get_f64(at, &s->null_swz);
     at = mr__get_u64(at, &s->invalid);
-    (void)mr__get_u64(at, &s->boundary);
+    at = mr__get_u64(at, &s->boundary);
+    for (j = 0; j < MR__PARAM_SUMS; j++) at = mr__get_f64(at, &s->fam[j]);
     return MR_OK;
 }

@@ -30,7 +30,7 @@ static inline int mr__group_closes(uint64_t index, int last)
 /* A group's total goes into the pass's by mr__sums_add_totals
  * (accum/accumulate.h). */
 
-/* THE ENCODING (version 1), all integers little-endian whatever the host:
+/* THE ENCODING (version 2), all integers little-endian whatever the host:
  *   bytes 0-3    "MRPS"
  *   u32          version (1)
  *   u64          p
@@ -39,9 +39,10 @@ static inline int mr__group_closes(uint64_t index, int last)
  *   f64 ...      X'Wz (p)
  *   f64 x 5      deviance, Pearson, null deviance, null sum of w, of w z
  *   u64 x 2      rows out of the domain, rows at its boundary
+ *   f64 x 5      the family's own sums (family.h, MR__PS_*; version 2)
  * A double goes as the u64 of its IEEE-754 bits, so every value, NaN
  * payloads and signed zeros included, comes back bit for bit. */
-#define MR__PARTIAL_VERSION 1u
+#define MR__PARTIAL_VERSION 2u
 
 typedef struct mr__partial_range {
     uint64_t first_block, nblocks;
@@ -51,7 +52,7 @@ size_t mr__partial_size(size_t p);
 /* Writes mr__partial_size(p) bytes to out. */
 void mr__partial_encode(const mr__block_sums *s, size_t p, mr__partial_range range, unsigned char *out);
 /* Reads totals of p columns into s (p x p, from mr__sums_init; the lower
- * triangle is left alone): MR_ERR_IO on bytes that are not version-1
+ * triangle is left alone): MR_ERR_IO on bytes that are not version-2
  * totals of p columns, of exactly mr__partial_size(p) bytes. */
 mr_status mr__partial_decode(const unsigned char *in, size_t len, size_t p, mr__block_sums *s,
                              mr__partial_range *range, mr__error *err);

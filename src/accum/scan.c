@@ -133,6 +133,7 @@ void mr__scan_block(const mr__block *blk, size_t ncol, size_t nnum, mr__scan_sum
     s->llc = blk->llc;
     s->npos = blk->npos;
     s->nfraction = blk->nfraction;
+    s->nnonint = blk->nnonint;
     s->swe = blk->swe;
     s->swoff = blk->swoff;
     s->block_counts = blk->counts;
@@ -169,6 +170,7 @@ void mr__scan_add(mr__scan_sums *into, const mr__scan_sums *from, size_t ncol, s
     into->nbad += from->nbad;
     into->npos += from->npos;
     into->nfraction += from->nfraction;
+    into->nnonint += from->nnonint;
     for (k = 0; k < ncol; k++) into->missing[k] += from->missing[k];
     into->sw += from->sw;
     into->swy += from->swy;

@@ -14,6 +14,7 @@
 typedef struct mr__scan_sums {
     uint64_t nread, nused, incomplete, nbad, npos;
     uint64_t nfraction; /* rows used whose outcome lies strictly between 0 and 1 */
+    uint64_t nnonint;   /* rows used whose outcome is not a whole number */
     uint64_t *missing; /* per bound column */
     /* Per numeric: the sum, and the sum of squared deviations from the
      * mean as dev_scale^2 * dev_ssq (scaled, so that a cell of 1e200

@@ -645,3 +645,28 @@ double mr__f_sf(double f, double df1, double df2)
         sum += exp(a * log_x + b * log_y - log(b) - log_beta(a, b));
     return fmin(sum, 1.0);
 }
+
+/* Below 10 the recurrences psi(x) = psi(x + 1) - 1/x and psi'(x) =
+ * psi'(x + 1) + 1/x^2 move the argument up; from 10 on the asymptotic
+ * series in the Bernoulli numbers (Abramowitz and Stegun 6.3.18 and
+ * 6.4.12) through x^-14 and x^-15, whose next terms are below 1e-17
+ * relative there. */
+double mr__digamma(double x)
+{
+    double r = 0, x2;
+    if (!(x > 0) || isinf(x)) return x == INFINITY ? INFINITY : NAN;
+    while (x < 10) r -= 1 / x, x += 1;
+    x2 = 1 / (x * x);
+    return r + log(x) - 0.5 / x -
+           x2 * (1.0 / 12 - x2 * (1.0 / 120 - x2 * (1.0 / 252 - x2 * (1.0 / 240 - x2 * (1.0 / 132 - x2 * (691.0 / 32760 - x2 / 12))))));
+}
+
+double mr__trigamma(double x)
+{
+    double r = 0, x2;
+    if (!(x > 0) || isinf(x)) return x == INFINITY ? 0.0 : NAN;
+    while (x < 10) r += 1 / (x * x), x += 1;
+    x2 = 1 / (x * x);
+    return r + 1 / x + 0.5 * x2 +
+           x2 / x * (1.0 / 6 - x2 * (1.0 / 30 - x2 * (1.0 / 42 - x2 * (1.0 / 30 - x2 * (5.0 / 66 - x2 * (691.0 / 2730 - x2 * 7.0 / 6))))));
+}

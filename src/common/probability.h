@@ -29,6 +29,12 @@ static inline double mr__log_gamma(double x)
     return mr__log_gamma_libm(x);
 }
 
+/* The digamma and trigamma functions, d/dx and d2/dx2 of log Gamma(x),
+ * for x > 0 (NaN otherwise): a negative binomial's theta is estimated by
+ * its score and information, which are sums of their values. */
+double mr__digamma(double x);
+double mr__trigamma(double x);
+
 /* Regularized incomplete beta I_x(a, b) and regularized upper incomplete
  * gamma Q(a, x), exposed for tests. */
 double mr__incbeta(double a, double b, double x);

@@ -35,7 +35,7 @@ const mr__family_ops *mr__family_ops_of(mr_family f)
 
 mr__family mr__family_plain(mr_family f)
 {
-    mr__family fam = {mr__family_ops_of(f), NAN};
+    mr__family fam = {mr__family_ops_of(f), NAN, 0, NAN};
     return fam;
 }
 

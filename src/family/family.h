@@ -47,11 +47,26 @@ static inline const char *mr__outcome_problem(const mr__outcome_range *r, double
 typedef struct mr__family_ops mr__family_ops;
 
 /* A family as fitted: its operations and its parameter (NAN where the
- * family has none). */
+ * family has none).  `estimate`: the parameter is estimated by maximum
+ * likelihood, and param holds its current value, which the fit moves from
+ * pass to pass.  `dispersion`: where a family sums its density over the
+ * rows (param_sums_n), the dispersion to sum it at (NaN: not this pass). */
 typedef struct mr__family {
     const mr__family_ops *ops;
     double param;
+    int estimate;
+    double dispersion;
 } mr__family;
+
+/* What a family's param_sums_n adds up over rows, in this order.  A
+ * negative binomial with theta estimated: the log-likelihood, theta's
+ * score and observed information (with the means fixed), and the sums of
+ * w ((y - mu)^2 - y) and w mu^2, whose ratio estimates 1/theta by moments
+ * (E (y - mu)^2 - y = mu^2 / theta).  A family
+ * whose log-likelihood is a series (tweedie): the log-likelihood at
+ * f->dispersion and its first and second derivatives in log(dispersion),
+ * which carry it to the dispersion the pass itself gives. */
+enum { MR__PS_LOGLIK, MR__PS_SCORE, MR__PS_INFO, MR__PS_MOMENT, MR__PS_WEIGHT, MR__PARAM_SUMS };
 
 struct mr__family_ops {
     const char *name;        /* as in model files */
@@ -110,6 +125,23 @@ struct mr__family_ops {
      * on its line (mr__spec_validate), and reports and the JSON name it. */
     mr_status (*parse_param)(double *param, const char *word, const char *origin, mr__error *err);
     const char *param_name;
+    /* The parameter may be estimated: a line without it, or with
+     * NAME=estimate, asks for that (parse_param gives NaN for the word). */
+    int param_estimable;
+    /* Sums over rows the fit needs beyond the IRLS sums (MR__PS_*), added
+     * to sums[] (NULL: none).  A kernel that has nothing to add for f (a
+     * fixed parameter, no dispersion yet) returns at once. */
+    void (*param_sums_n)(const mr__family *f, const double *y, const double *mu, const double *prior, size_t n,
+                         double sums[MR__PARAM_SUMS]);
+    /* The log-likelihood has no closed form in the deviance: it is
+     * param_sums_n's series, summed over rows at a dispersion (tweedie).
+     * Such rows never collapse into covariate patterns, whose sums lose
+     * each row's y; nor do a family's whose parameter is estimated. */
+    int loglik_by_rows;
+    /* The parameter may be chosen by profile likelihood over this grid of
+     * values, one fit after another (NAME=profile on the line; NULL: not). */
+    const double *profile_grid;
+    int profile_n;
 };
 
 /* The value of a word "NAME=VALUE" of a family's line into *value: a

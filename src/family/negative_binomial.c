@@ -1,10 +1,16 @@
-/* negative_binomial.c - overdispersed counts with a known theta (the
- * family's parameter): V(mu) = mu + mu^2 / theta, y >= 0, dispersion fixed
- * at 1.  With theta fixed this is an exponential family in
+/* negative_binomial.c - overdispersed counts, theta the family's
+ * parameter: V(mu) = mu + mu^2 / theta, y >= 0, dispersion fixed at 1.
+ * With theta fixed this is an exponential family in
  * t(mu) = log(mu / (mu + theta)), b = theta log((mu + theta) / theta), so its
  * deviance has the form rows collapse by (family.h, saturated_term) and
- * its log-likelihood is a data-only sum less half the deviance. */
+ * its log-likelihood is a data-only sum less half the deviance.
+ *
+ * With theta estimated (no theta on the line, or theta=estimate) each
+ * pass also sums theta's score and observed information at the pass's
+ * means and the log-likelihood itself (param_sums_n); the fit takes a
+ * Newton step in theta beside each coefficient step (fit/irls.c). */
 #include <math.h>
+#include <string.h>
 
 #include "common/probability.h"
 #include "family/unit.h"
@@ -39,8 +45,44 @@ static double loglik_row(const mr__family *f, double y, double w, double t, int 
     return prior * (mr__log_gamma(y + theta) - mr__log_gamma(theta) - mr__log_gamma(y + 1) + saturated_term(f, y));
 }
 
+/* One row's log density, theta's score and information with mu fixed:
+ * log Gamma(y + theta) - log Gamma(theta) - log y! + theta log(theta/(theta + mu))
+ *   + y log(mu/(theta + mu)), its derivative in theta
+ * psi(y + theta) - psi(theta) + log(theta/(theta + mu)) + 1 - (y + theta)/(theta + mu),
+ * and minus its second derivative
+ * psi'(theta) - psi'(y + theta) - 1/theta + 2/(theta + mu) - (y + theta)/(theta + mu)^2. */
+static void nb_row_sums(double theta, double y, double mu, double w, double *s)
+{
+    double tm = theta + mu, lt = log(theta / tm);
+    double ll = mr__log_gamma(y + theta) - mr__log_gamma(theta) - mr__log_gamma(y + 1) + theta * lt;
+    double r = y - mu;
+    if (y > 0) ll += y * log(mu / tm);
+    s[MR__PS_LOGLIK] += w * ll;
+    s[MR__PS_SCORE] += w * (mr__digamma(y + theta) - mr__digamma(theta) + lt + 1 - (y + theta) / tm);
+    s[MR__PS_INFO] += w * (mr__trigamma(theta) - mr__trigamma(y + theta) - 1 / theta + 2 / tm - (y + theta) / (tm * tm));
+    s[MR__PS_MOMENT] += w * (r * r - y);
+    s[MR__PS_WEIGHT] += w * mu * mu;
+}
+
+static void param_sums_n(const mr__family *f, const double *y, const double *mu, const double *prior, size_t n,
+                         double sums[MR__PARAM_SUMS])
+{
+    size_t i;
+    if (!f->estimate) return;
+    for (i = 0; i < n; i++) {
+        double w = prior ? prior[i] : 1.0;
+        if (w > 0) nb_row_sums(f->param, y[i], mu[i], w, sums);
+    }
+}
+
+/* "theta=estimate" leaves NaN: the fit estimates it (as a line without
+ * theta does). */
 static mr_status parse_param(double *param, const char *word, const char *origin, mr__error *err)
 {
+    if (strcmp(word, "theta=estimate") == 0) {
+        *param = NAN;
+        return MR_OK;
+    }
     MR__TRY(mr__family_param_value("negative-binomial", "theta", word, param, origin, err));
     if (!(*param > 0))
         return mr__fail(err, MR_ERR_USAGE, "%s: theta must be > 0, got '%s'", origin, word + 6);
@@ -67,4 +109,6 @@ const mr__family_ops mr__negative_binomial_family = {
     .ratio_log = "rate ratio",
     .parse_param = parse_param,
     .param_name = "theta",
+    .param_estimable = 1,
+    .param_sums_n = param_sums_n,
 };

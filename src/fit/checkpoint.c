@@ -70,6 +70,8 @@ static char *model_key(const mr__run *r)
      * missing cells leaving rows out); not the clusters' memory limit, which
      * changes no number, so a fit that ran out of it goes on with more */
     mr__strbuf_printf(&sb, "robust %d\n", mr__robust_type(f));
+    /* a profile's fits share the model lines but not the parameter */
+    mr__strbuf_printf(&sb, "family-parameter %a profile %d\n", f->spec.family_param, f->spec.family_profile);
     if (f->cluster) mr__strbuf_printf(&sb, "cluster %s\n", f->cluster);
     return mr__strbuf_take(&sb);
 }

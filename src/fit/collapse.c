@@ -14,7 +14,8 @@
 int mr__collapse_mode(const mr__run *r)
 {
     const mr__spec *s = &r->f->spec;
-    if (r->f->no_collapse) return 0;
+    /* a likelihood summed row by row needs each row's y (family.h) */
+    if (r->f->no_collapse || r->family.estimate || r->family.ops->loglik_by_rows) return 0;
     if (s->offset == NULL && s->exposure == NULL) return r->family.ops->saturated_term != NULL;
     return r->family.ops->log_offset_patterns && mr__spec_link(s) == MR_LOG ? 2 : 0;
 }

@@ -58,6 +58,7 @@ void mr_fit_free(mr_fit *fit)
     mr__free(fit->pass_seconds);
     mr__free(fit->calib_basis);
     mr__free(fit->calib);
+    mr__free(fit->profile);
     mr__free(fit->path);
     for (i = 0; fit->set_file && i < fit->nset_files; i++) mr__free(fit->set_file[i].path);
     mr__free(fit->set_file);
@@ -145,6 +146,20 @@ const char *mr__fit_family_param_name(const mr_fit *fit)
     return ops != NULL && fit->family_param_given ? ops->param_name : NULL;
 }
 
+void mr__fit_family_param_text(const mr_fit *f, mr__strbuf *b)
+{
+    const char *param = mr__fit_family_param_name(f);
+    if (param == NULL) return;
+    if (f->family_param_profiled && f->nprofile > 0)
+        mr__strbuf_printf(b, " (%s %.15g, chosen by profile likelihood over %.15g to %.15g)", param, f->family_param,
+                          f->profile[0].value, f->profile[f->nprofile - 1].value);
+    else if (f->family_param_estimated)
+        mr__strbuf_printf(b, " (%s %.10g, standard error %.4g, maximum likelihood)", param, f->family_param,
+                          f->family_param_se);
+    else
+        mr__strbuf_printf(b, " (%s %.15g, fixed)", param, f->family_param);
+}
+
 /* robust standard errors are asymptotic: read against the normal */
 const char *mr__fit_statistic_name(const mr_fit *fit) { return fit->dispersion_estimated && !fit->robust ? "t" : "z"; }
 
@@ -188,6 +203,7 @@ double mr_fit_stat(const mr_fit *fit, mr_stat which)
     case MR_STAT_LEVEL: return fit->level;
     case MR_STAT_FAMILY_PARAMETER: return fit->family_param_given ? fit->family_param : NAN;
     case MR_STAT_START_CARRIED: return fit->start_given ? (double)fit->start_carried : NAN;
+    case MR_STAT_FAMILY_PARAMETER_SE: return fit->family_param_estimated ? fit->family_param_se : NAN;
     }
     return NAN;
 }

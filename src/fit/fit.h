@@ -44,6 +44,10 @@ typedef struct mr__fit_term {
     double test_chi2, test_stat, test_p;
 } mr__fit_term;
 
+typedef struct mr__fit_profile_point {
+    double value, loglik;
+} mr__fit_profile_point;
+
 /* A numeric column over the rows used (the first pass's sums): its mean
  * and standard deviation (divisor n), least and greatest value. */
 typedef struct mr__fit_numeric {
@@ -66,6 +70,15 @@ struct mr_fit {
      * (family_param_given 1), else NaN */
     double family_param;
     int family_param_given;
+    /* it was estimated (maximum likelihood), with this standard error
+     * (from its observed information at the final means), else NaN */
+    int family_param_estimated;
+    double family_param_se;
+    /* it was chosen by profile likelihood (fit/profile.c): each value of
+     * the grid and the log-likelihood of its fit */
+    int family_param_profiled;
+    mr__fit_profile_point *profile;
+    size_t nprofile;
     char *outcome, *trials, *offset, *exposure, *weight;
     mr__fit_term *term;
     size_t nterms;
@@ -183,6 +196,12 @@ const char *mr__fit_ratio_label(const mr_fit *fit);
 /* The name of the family's own parameter ("theta"), NULL where it has
  * none. */
 const char *mr__fit_family_param_name(const mr_fit *fit);
+/* " (NAME VALUE, how it was had)" for a family with a parameter of its
+ * own: fixed, maximum likelihood with its standard error, or chosen by
+ * profile likelihood over its grid; nothing for another family (the
+ * report and the HTML page). */
+struct mr__strbuf;
+void mr__fit_family_param_text(const mr_fit *fit, struct mr__strbuf *b);
 /* "z" when the dispersion is fixed, "t" when it is estimated. */
 const char *mr__fit_statistic_name(const mr_fit *fit);
 

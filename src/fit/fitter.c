@@ -185,6 +185,15 @@ mr_status mr__fitter_record_run(const mr_fitter *f, mr_fit *fit, int64_t started
     return MR_OK;
 }
 
+/* A profile over the family parameter's grid refits one file; a set is
+ * not taken there yet. */
+static mr_status profile_of_set(mr_fitter *f)
+{
+    return mr__fail(&f->err, MR_ERR_USAGE,
+                    "a family parameter chosen by profile likelihood is fitted to one file; give one file, not a set "
+                    "or a directory");
+}
+
 static mr_status finish_run(mr_fitter *f, mr_status st, int64_t started, mr_fit **out)
 {
     if (st == MR_OK && (st = mr__fitter_record_run(f, *out, started, &f->err)) != MR_OK) {
@@ -205,7 +214,10 @@ mr_status mr_fitter_run(mr_fitter *f, const char *path, mr_fit **out)
      * standard input kept for later passes), and be read as empty input. */
     if (strcmp(path, "-") == 0 && fcntl(STDIN_FILENO, F_GETFD) < 0)
         return mr__fail(&f->err, MR_ERR_IO, "<stdin>: standard input is closed, so there is nothing to read");
-    st = mr__path_is_directory(path) ? mr__fit_files(f, &path, 1, out) : mr__fit_file(f, path, out);
+    if (f->spec.family_profile)
+        st = mr__path_is_directory(path) ? profile_of_set(f) : mr__fit_profile(f, path, out);
+    else
+        st = mr__path_is_directory(path) ? mr__fit_files(f, &path, 1, out) : mr__fit_file(f, path, out);
     return finish_run(f, st, started, out);
 }
 
@@ -218,6 +230,7 @@ mr_status mr_fitter_run_set(mr_fitter *f, const char *const *paths, size_t npath
     if (npaths == 0 || paths == NULL) return mr__fail(&f->err, MR_ERR_USAGE, "no input given");
     f->checkpoint_note[0] = '\0';
     if (npaths == 1) return mr_fitter_run(f, paths[0], out);
+    if (f->spec.family_profile) return profile_of_set(f);
     st = mr__fit_files(f, paths, npaths, out);
     return finish_run(f, st, started, out);
 }

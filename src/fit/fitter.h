@@ -41,5 +41,8 @@ mr_status mr__fitter_record_run(const mr_fitter *f, mr_fit *fit, int64_t started
 mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out);
 /* Several files (or directories) read as one (input/inputset.h). */
 mr_status mr__fit_files(mr_fitter *f, const char *const *paths, size_t n, mr_fit **out);
+/* The family's parameter chosen by profile likelihood over its grid: one
+ * mr__fit_file after another (fit/profile.c). */
+mr_status mr__fit_profile(mr_fitter *f, const char *path, mr_fit **out);
 
 #endif

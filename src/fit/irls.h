@@ -16,6 +16,11 @@
 #include "accum/accumulate.h"
 #include "common/error.h"
 
+/* An estimated parameter's largest value: a negative binomial's theta
+ * goes there when the counts show no overdispersion (its maximum is at
+ * infinity, the poisson fit), and is held there (irls.c, next_param). */
+#define MR__IRLS_PARAM_MAX 1e8
+
 /* Halvings of one step before the fit gives up. */
 #define MR__IRLS_MAX_HALVINGS 30
 /* The null model (one intercept) is done when its deviance changes by
@@ -48,6 +53,11 @@ typedef struct mr__irls_cfg {
     double null_b0;        /* its starting value */
     int null_exact;        /* that value is its maximum already */
     int family;            /* for messages */
+    /* The family's parameter estimated alongside (a negative binomial's
+     * theta): its start, and whether that start is a fit's already (else
+     * the first pass at coefficients replaces it by a moment estimate). */
+    int param_estimate, param_known;
+    double param_start;
 } mr__irls_cfg;
 
 typedef struct mr__irls {
@@ -73,6 +83,12 @@ typedef struct mr__irls {
     /* counts and flags */
     int32_t halving_run;   /* halvings since the last accepted point */
     int32_t iterations, halvings, passes, converged, by_step, restarted, newton;
+    /* the family's parameter, where estimated: the value the next pass
+     * uses and the last accepted one; 0 until a moment estimate replaced
+     * the start, then 1; a jump (the moment estimate) not to be judged by
+     * the objective's rise; its last Newton step relative to it */
+    int32_t param_estimate, param_phase, param_jump;
+    double param, param_prev, param_step;
     /* the deviance of every accepted point, in order */
     double *history;
     size_t nhistory, history_cap;
@@ -87,11 +103,24 @@ const double *mr__irls_beta(const mr__irls *s);
 const double *mr__irls_null_deviance(const mr__irls *s);
 
 /* Takes the sums of a pass made at mr__irls_beta (the null deviance
- * already replaced by mr__irls_null_deviance when known) and moves on:
+ * already replaced by mr__irls_null_deviance when known) and moves on.
+ * With the family's parameter estimated, the pass was made at
+ * mr__irls_param too, and the step is a coefficient step at that value
+ * beside a Newton step in the parameter at the pass's means (for a
+ * negative binomial the two are orthogonal: the expected cross
+ * information is zero); the quantity judged for step halving and
+ * the boundary rule is then -2 log-likelihood, not the deviance (which
+ * moves with the parameter), and the fit is done only once the
+ * parameter's Newton step is below sqrt(tolerance) of its standard error
+ * as well as the coefficients' step meeting their rule (irls.c).
  * *done = 1 when the fit is over (converged, or out of passes).  Fails
  * with MR_ERR_NUMERIC when no valid point can be found (`display` names
  * the input in the message) or when the solver does. */
 mr_status mr__irls_step(mr__irls *s, const mr__block_sums *sums, const char *display, int *done, mr__error *err);
+
+/* The family's parameter where the next pass evaluates the model (the
+ * value reached once done); NaN when it is not estimated. */
+double mr__irls_param(const mr__irls *s);
 
 /* Whether coefficient j ran off to infinity, by its standard errors. */
 int mr__irls_ran_off(const mr__irls *s, size_t j);
@@ -99,14 +128,17 @@ int mr__irls_ran_off(const mr__irls *s, size_t j);
 /* The coefficients reached (zeros when no point was ever accepted). */
 void mr__irls_coefficients(const mr__irls *s, double *out);
 
-/* THE ENCODING (version 2; 1 stopped on the deviance), little-endian: "MRIS", u32 version, then every
- * field above but the scratch in declaration order (integers as u64,
- * doubles as their bits), then beta, prev, se_prev, se_min and growing (p each, growing as u64) and the history. */
-#define MR__IRLS_VERSION 2u
+/* THE ENCODING (version 3; 1 stopped on the deviance, 2 had either the
+ * step rule or the family's parameter, not both), little-endian: "MRIS",
+ * u32 version, then every field above but the scratch in declaration
+ * order (integers as u64, doubles as their bits), then beta, prev,
+ * se_prev, se_min and growing (p each, growing as u64) and the history.
+ * Older versions are refused. */
+#define MR__IRLS_VERSION 3u
 size_t mr__irls_encoded_size(const mr__irls *s);
 void mr__irls_encode(const mr__irls *s, unsigned char *out);
 /* A fresh state from the bytes (released with mr__irls_release): MR_ERR_IO
- * on bytes that are not a version-2 state, MR_ERR_NO_MEMORY. */
+ * on bytes that are not a version-3 state, MR_ERR_NO_MEMORY. */
 mr_status mr__irls_decode(const unsigned char *in, size_t len, mr__irls *s, mr__error *err);
 
 #endif

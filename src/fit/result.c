@@ -12,6 +12,7 @@
 #include "common/strbuf.h"
 #include "family/family.h"
 #include "fit/fit.h"
+#include "fit/irls.h"
 #include "fit/run.h"
 #include "fit/start.h"
 #include "common/probability.h"
@@ -131,11 +132,39 @@ mr_status mr__map_to_raw(const mr__design *d, const double *beta_s, const double
  * first pass (see accum/scan.h); for gaussian, gamma and inverse-gaussian
  * the dispersion in the density is the deviance-based estimate, as is
  * usual for these summaries. */
+/* A series density's log-likelihood (family.h, loglik_by_rows): the last
+ * pass summed it at the dispersion of the point before, with its first two
+ * derivatives in log(dispersion); a second-order Taylor step carries it to
+ * the deviance-based dispersion of the last pass itself (their logs differ
+ * by about the relative change of the deviance, so the step's error is
+ * of the order of its cube).  NaN when the last pass summed none (a fit
+ * stopped before its steps were small). */
+static double series_loglik(const mr__run *r, double deviance)
+{
+    const double *fam = r->last.sums.fam;
+    double sw = r->first.scan.sw, used = r->loglik_dispersion, step;
+    if (isnan(used) || !(sw > 0) || !(deviance > 0)) return NAN;
+    step = log(deviance / sw / used);
+    return fam[MR__PS_LOGLIK] + step * (fam[MR__PS_SCORE] + 0.5 * step * fam[MR__PS_INFO]);
+}
+
+/* The log-likelihood: with the family's parameter estimated, the last
+ * pass's own sum; for a series density, series_loglik; else from the
+ * deviance.  An estimated parameter counts in AIC and BIC. */
+static double fit_loglik(const mr_fit *fit, const mr__run *r, double *extra)
+{
+    const mr__scan_sums *s = &r->first.scan;
+    *extra = r->family.estimate ? 1 : 0;
+    if (r->family.estimate) return r->last.sums.fam[MR__PS_LOGLIK];
+    if (r->family.ops->loglik_by_rows) return series_loglik(r, fit->deviance);
+    return r->family.ops->loglik(&r->family, fit->deviance, s->llc, (double)fit->n, s->sw);
+}
+
 static void set_fit_statistics(mr_fit *fit, const mr__run *r)
 {
     const mr__scan_sums *s = &r->first.scan;
     const mr__block_sums *last = &r->last.sums;
-    double k;
+    double k, extra;
     fit->deviance = last->dev;
     fit->pearson = last->pearson;
     fit->null_deviance = last->null_dev;
@@ -143,8 +172,8 @@ static void set_fit_statistics(mr_fit *fit, const mr__run *r)
     fit->df_residual = (double)fit->n - (double)fit->rank;
     fit->df_null = (double)fit->n - (r->f->spec.intercept ? 1 : 0);
     fit->dispersion = fit->dispersion_estimated ? (fit->df_residual > 0 ? fit->pearson / fit->df_residual : NAN) : 1.0;
-    fit->loglik = r->family.ops->loglik(&r->family, fit->deviance, s->llc, (double)fit->n, s->sw);
-    k = (double)fit->rank + r->family.ops->dispersion_counts;
+    fit->loglik = fit_loglik(fit, r, &extra);
+    k = (double)fit->rank + r->family.ops->dispersion_counts + extra;
     fit->aic = -2 * fit->loglik + 2 * k;
     fit->bic = -2 * fit->loglik + log((double)fit->n) * k;
     if (mr__fit_quasi(fit)) fit->loglik = fit->aic = fit->bic = NAN;
@@ -313,8 +342,12 @@ static mr_status copy_model(mr_fit *fit, const mr__run *r, mr__error *err)
     const mr__spec *s = &r->f->spec;
     size_t i, l;
     fit->family = s->family;
-    fit->family_param = s->family_param;
-    fit->family_param_given = !isnan(s->family_param);
+    fit->family_param = r->family.estimate ? r->family.param : s->family_param;
+    fit->family_param_given = !isnan(fit->family_param);
+    fit->family_param_estimated = r->family.estimate;
+    fit->family_param_se = NAN;
+    if (r->family.estimate && r->last.sums.fam[MR__PS_INFO] > 0)
+        fit->family_param_se = 1 / sqrt(r->last.sums.fam[MR__PS_INFO]);
     fit->link = mr__spec_link(s);
     fit->intercept = s->intercept;
     fit->dispersion_estimated = mr__spec_dispersion_estimated(s);
@@ -468,6 +501,23 @@ static mr_status copy_run_info(mr_fit *fit, const mr__run *r, mr__error *err)
     return MR_OK;
 }
 
+/* An estimated parameter: the counts it is a likelihood of, and a theta
+ * at its bound (fit/irls.h, MR__IRLS_PARAM_MAX). */
+static void param_warnings(mr_fit *fit, const mr__run *r)
+{
+    if (!r->family.estimate) return;
+    if (r->first.scan.nnonint > 0)
+        mr__fit_warn(fit, "%llu outcome values are not whole numbers: the negative binomial is a distribution of "
+                          "counts; theta and the log-likelihood use its gamma-function form, which such values "
+                          "fit but which is not their distribution",
+                     (unsigned long long)r->first.scan.nnonint);
+    if (r->family.param >= MR__IRLS_PARAM_MAX)
+        mr__fit_warn(fit, "theta reached %g, its largest value: the counts show no overdispersion beyond poisson's "
+                          "(theta's maximum is at infinity), so this is the poisson fit, and theta's standard error "
+                          "means nothing",
+                     MR__IRLS_PARAM_MAX);
+}
+
 static void collect_warnings(mr_fit *fit, const mr__run *r)
 {
     size_t j, n = 0;
@@ -476,6 +526,7 @@ static void collect_warnings(mr_fit *fit, const mr__run *r)
     size_t noutcome = mr__scan_outcome_warnings(&r->first.scan, fit->family, r->bind.has_weight || r->bind.has_trials,
                                                 outcome);
     for (j = 0; j < noutcome; j++) mr__fit_warn(fit, "%s", outcome[j]);
+    param_warnings(fit, r);
     if (!fit->converged)
         mr__fit_warn(fit, "NOT CONVERGED after %d IRLS passes (last step %.3g standard errors, tolerance %.3g): "
                           "the estimates are not a maximum-likelihood fit",

@@ -245,6 +245,20 @@ static int newton_link(const mr__run *r)
            mr__spec_link(&r->f->spec) == (int)mr__canonical_link((mr_family)family);
 }
 
+/* Where the family sums a series density (tweedie), the dispersion to
+ * sum it at in the next pass: the deviance-based estimate of the last
+ * accepted point, once the last step was within a standard error of the
+ * maximum, so that only the passes near the end pay for the series; the
+ * result carries the sum to the final pass's own dispersion
+ * (fit/result.c).  NaN: not this pass. */
+static double series_dispersion(const mr__run *r, const mr__irls *s)
+{
+    double sw = r->first.scan.sw;
+    if (!r->family.ops->loglik_by_rows || !s->have_dev || !s->have_prev || !(sw > 0)) return NAN;
+    if (!(s->step <= 1)) return NAN;
+    return s->dev_prev / sw;
+}
+
 static mr_status init_state(mr__run *r, irls_job *job, mr__irls *s, mr__error *err)
 {
     mr__irls_cfg c;
@@ -266,14 +280,18 @@ static mr_status init_state(mr__run *r, irls_job *job, mr__irls *s, mr__error *e
     c.null_b0 = null_start(r);
     c.null_exact = null_start_exact(r);
     c.family = r->f->spec.family;
+    c.param_estimate = r->family.estimate;
+    c.param_known = r->param_known;
+    c.param_start = r->family.param;
     MR__TRY(mr__irls_init(s, &c, err));
     /* the first pass (and the warm start) done: the first checkpoint */
     return job->checkpoints ? mr__checkpoint_write(r, s, err) : MR_OK;
 }
 
-/* The passes the state machine asks for, until it is done.  A pass over
- * collapsed patterns runs in memory: only reads of the data are worth a
- * checkpoint. */
+/* The passes the state machine asks for, until it is done; the family's
+ * parameter, where estimated, moves with them (r->family.param).  A pass
+ * over collapsed patterns runs in memory: only reads of the data are worth
+ * a checkpoint. */
 static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__error *err)
 {
     mr__irls s;
@@ -283,6 +301,8 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
     memset(&s, 0, sizeof s);
     st = init_state(r, job, &s, err);
     while (st == MR_OK && !done) {
+        if (r->family.estimate) r->family.param = mr__irls_param(&s);
+        r->family.dispersion = series_dispersion(r, &s);
         st = irls_pass(r, job, mr__irls_beta(&s), s.null_b0, mr__irls_null_deviance(&s), res, err);
         if (st == MR_OK) st = mr__irls_step(&s, &res->sums, r->display, &done, err);
         if (st == MR_OK && !done && job->checkpoints && !job->replay) st = mr__checkpoint_write(r, &s, err);
@@ -295,6 +315,8 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
     job->rel_change = s.rel_change;
     job->null_b0 = s.null_b0;
     job->step = s.step;
+    if (r->family.estimate) r->family.param = mr__irls_param(&s);
+    r->loglik_dispersion = r->family.dispersion;
     if (st == MR_OK) mr__irls_coefficients(&s, job->beta_out);
     for (j = 0; st == MR_OK && job->growing_out && j < s.p; j++)
         job->growing_out[j] = mr__irls_ran_off(&s, j);
@@ -342,18 +364,30 @@ static int sample_fit(mr__run *r, size_t stride, const double *start, int max_it
 /* One step on the whole sample from the quarter's fit. */
 static void polish_start(mr__run *r, const mr__store *sample)
 {
-    double *polished = mr__malloc_array(r->design.p, sizeof *polished);
+    double *polished = mr__malloc_array(r->design.p, sizeof *polished), param = r->family.param;
     int steps;
     if (polished != NULL && sample_fit(r, 1, r->beta_warm, 1, polished, &steps)) {
         memcpy(r->beta_warm, polished, r->design.p * sizeof *polished);
         r->warm_polish_blocks = (int)sample->n;
+    } else {
+        r->family.param = param;
     }
     mr__free(polished);
+}
+
+/* A parameter estimated on the sample is the full fit's start; after a
+ * failed warm start, the plain start again. */
+static void warm_param(mr__run *r, double plain)
+{
+    if (!r->family.estimate) return;
+    r->param_known = r->warm && isfinite(r->family.param) && r->family.param > 0;
+    if (!r->param_known) r->family.param = plain;
 }
 
 static void warm_start(mr__run *r)
 {
     mr__store *sample = &r->first.sample;
+    double plain = r->family.param;
     /* the first stage takes a quarter to a half of the sample's blocks; a
      * file of fewer than MR__SAMPLE_BLOCKS / 2 blocks gains little from
      * any of this */
@@ -367,6 +401,7 @@ static void warm_start(mr__run *r)
         r->warm = sample_fit(r, stride, NULL, 25, r->beta_warm, &r->warm_iterations);
         r->warm_blocks = (int)((sample->n + stride - 1) / stride);
         /* on a whole small file, a step on all of it is a full pass */
+        warm_param(r, plain);
         if (r->warm && !whole_file) polish_start(r, sample);
     }
     mr__store_release(sample);
@@ -437,10 +472,15 @@ static mr_status meat_pass(mr__run *r, int table, mr__error *err)
     mr__irls_point pt;
     mr__meat_cfg mc;
     mr__pass_cfg c = pass_config(r, MR__PASS_MEAT);
+    mr__family fam = r->family;
     mr_status st;
+    /* the family at its final parameter, without the sums of its own
+     * (theta's score, a series density) that this pass has no use for */
+    fam.estimate = 0;
+    fam.dispersion = NAN;
     memset(&pt, 0, sizeof pt);
     pt.design = &r->design;
-    pt.family = &r->family;
+    pt.family = &fam;
     pt.link = mr__link_ops_of((mr_link)mr__spec_link(&r->f->spec));
     pt.beta = r->beta_final;
     pt.null_skip = 1;
@@ -564,9 +604,18 @@ static mr_status run_begin(mr__run *r, mr_fitter *f, const char *path, mr__input
     r->t0 = mr__seconds_now();
     choose_threads(r);
     r->family = mr__spec_family(&f->spec);
+    /* an estimated parameter's start: the first pass at coefficients
+     * replaces it by a moment estimate (fit/irls.c) */
+    if (r->family.estimate) r->family.param = 1.0;
     r->dcfg.collapse = mr__collapse_mode(r);
     r->dcfg.collapse_abandoned = &r->collapse_abandoned;
     st = mr__spec_validate(&f->spec, &f->err);
+    /* a parameter by profile likelihood is fitted once per value
+     * (fit/profile.c), never by one run */
+    if (st == MR_OK && f->spec.family_profile)
+        st = mr__fail(&f->err, MR_ERR_USAGE, "model: %s=profile is for a fit alone (its values are fitted one after "
+                                             "another), not for models fitted together",
+                      r->family.ops->param_name);
     if (st == MR_OK && f->start) st = mr__start_check(f->start, &f->spec, &f->err);
     if (st == MR_OK) mr__choose_store(r);
     return st;

@@ -64,6 +64,11 @@ typedef struct mr__run {
     int *growing; /* per coefficient: its SE grew pass after pass at the boundary */
     int warm, warm_iterations;
     int started;           /* beta_warm holds a previous fit's coefficients */
+    /* the family's parameter where estimated (family.param holds it):
+     * the warm start's value is a fit's already; the dispersion the last
+     * pass summed a series density at (NaN: none) */
+    int param_known;
+    double loglik_dispersion;
     size_t start_carried;  /* how many of them came from it */
     int warm_blocks, warm_polish_blocks; /* sample blocks of the two stages (0: none) */
     double null_b0, rel_change;

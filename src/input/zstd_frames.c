@@ -80,6 +80,18 @@ static size_t first_guess(const zslot *s)
     return 4 * s->in_len + (64u << 10);
 }
 
+/* A frame holds the content size its header gives (RFC 8878 3.1.1.1.4),
+ * which libzstd checks only when its output room is large (codec_zstd.c). */
+static void held_as_declared(const char *display, zslot *s)
+{
+    unsigned long long n = ZSTD_getFrameContentSize(s->in, s->in_len);
+    if (n == ZSTD_CONTENTSIZE_UNKNOWN || n == ZSTD_CONTENTSIZE_ERROR || n == s->out_len) return;
+    s->st = mr__fail(&s->err, MR_ERR_FORMAT,
+                     "%s: corrupt zstd stream (the frame at byte %llu): its header gives %llu bytes of content, its "
+                     "blocks %llu",
+                     display, (unsigned long long)s->offset, n, (unsigned long long)s->out_len);
+}
+
 static void decode_frame(const char *display, ZSTD_DCtx *dc, zslot *s)
 {
     ZSTD_inBuffer ib = {s->in, s->in_len, 0};
@@ -99,7 +111,10 @@ static void decode_frame(const char *display, ZSTD_DCtx *dc, zslot *s)
             s->st = frame_failure(&s->err, display, s->offset, r);
             return;
         }
-        if (r == 0) return; /* the frame is whole: its end was found before it was queued */
+        if (r == 0) { /* the frame is whole: its end was found before it was queued */
+            held_as_declared(display, s);
+            return;
+        }
         if (ob.pos < ob.size && ib.pos == ib.size) {
             s->st = mr__fail(&s->err, MR_ERR_FORMAT, "%s: truncated zstd frame at byte %llu", display,
                              (unsigned long long)s->offset);

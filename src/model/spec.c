@@ -179,9 +179,22 @@ static mr_status parse_family(mr__spec *s, const words *ws, const char *origin, 
                         "%s: unknown family '%s' (gaussian, binomial, poisson, gamma, inverse-gaussian, "
                         "negative-binomial, tweedie)",
                         origin, ws->w[1]);
-    for (i = 2; i < ws->n; i++) MR__TRY(ops->parse_param(&param, ws->w[i], origin, err));
+    s->family_profile = 0;
+    for (i = 2; i < ws->n; i++) {
+        size_t k = ops->param_name ? strlen(ops->param_name) : 0;
+        if (ops->profile_grid != NULL && strncmp(ws->w[i], ops->param_name, k) == 0 &&
+            strcmp(ws->w[i] + k, "=profile") == 0) {
+            s->family_profile = 1;
+            param = NAN;
+            continue;
+        }
+        MR__TRY(ops->parse_param(&param, ws->w[i], origin, err));
+        s->family_profile = 0;
+    }
     s->family = v;
     s->family_param = param;
+    /* no value, or NAME=estimate (NaN from parse_param): estimated */
+    s->family_estimate = ops->param_estimable && isnan(param) && !s->family_profile;
     return MR_OK;
 }
 
@@ -418,7 +431,7 @@ int mr__spec_dispersion_estimated(const mr__spec *s)
 
 mr__family mr__spec_family(const mr__spec *s)
 {
-    mr__family fam = {mr__family_ops_of((mr_family)s->family), s->family_param};
+    mr__family fam = {mr__family_ops_of((mr_family)s->family), s->family_param, s->family_estimate, NAN};
     return fam;
 }
 
@@ -450,7 +463,12 @@ mr_status mr__spec_validate(const mr__spec *s, mr__error *err)
     if (!mr__link_allowed((mr_family)s->family, (mr_link)link))
         return mr__fail(err, MR_ERR_USAGE, "model: the %s family does not take the %s link",
                         mr__family_name((mr_family)s->family), mr__link_name((mr_link)link));
-    if (ops->param_name != NULL && isnan(s->family_param))
+    if (s->family_estimate && s->dispersion == 1)
+        return mr__fail(err, MR_ERR_USAGE,
+                        "model: the %s family's %s is estimated by its likelihood, which 'dispersion estimate' (a "
+                        "quasi family) does not have: give %s=VALUE",
+                        ops->name, ops->param_name, ops->param_name);
+    if (ops->param_name != NULL && isnan(s->family_param) && !s->family_estimate && !s->family_profile)
         return mr__fail(err, MR_ERR_USAGE, "model: the %s family needs its %s (family %s %s=VALUE)", ops->name,
                         ops->param_name, ops->name, ops->param_name);
     if (s->trials != NULL && !ops->takes_trials)

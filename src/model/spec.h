@@ -45,6 +45,8 @@ typedef struct mr__spec {
     char *outcome, *trials, *offset, *exposure, *weight;
     int family;     /* mr_family */
     double family_param; /* the family's own parameter (NAN: none given) */
+    int family_estimate; /* it is estimated (family_param NAN) */
+    int family_profile;  /* it is chosen by profile likelihood (family_param NAN) */
     int link;       /* mr_link, or -1 for the family's canonical link */
     int intercept;  /* 1 unless "intercept no" */
     int dispersion; /* -1 = family default, 0 = fixed at 1, 1 = estimate */

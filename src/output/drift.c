@@ -57,7 +57,16 @@ static mr_status same_model(const mr_fit *a, const mr_fit *b, mr__error *err)
     if (!same_text(a->trials, b->trials)) return differ(err, "trials", a->trials, b->trials);
     if (a->family != b->family)
         return differ(err, "family", mr__family_name((mr_family)a->family), mr__family_name((mr_family)b->family));
-    if (a->family_param_given && a->family_param != b->family_param) {
+    if (a->family_param_estimated != b->family_param_estimated)
+        return differ(err, mr__fit_family_param_name(a) ? mr__fit_family_param_name(a) : "family parameter",
+                      a->family_param_estimated ? "estimated" : "fixed", b->family_param_estimated ? "estimated" : "fixed");
+    /* an estimated or profiled parameter is a result, compared as the
+     * coefficients are */
+    if (a->family_param_profiled != b->family_param_profiled)
+        return differ(err, mr__fit_family_param_name(a) ? mr__fit_family_param_name(a) : "family parameter",
+                      a->family_param_profiled ? "profiled" : "fixed", b->family_param_profiled ? "profiled" : "fixed");
+    if (a->family_param_given && !a->family_param_estimated && !a->family_param_profiled &&
+        a->family_param != b->family_param) {
         char va[32], vb[32];
         snprintf(va, sizeof va, "%.17g", a->family_param);
         snprintf(vb, sizeof vb, "%.17g", b->family_param);

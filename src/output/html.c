@@ -168,9 +168,8 @@ static void summary_data(mr__strbuf *b, const mr_fit *f)
 static void summary_model(mr__strbuf *b, const mr_fit *f)
 {
     size_t i;
-    const char *param = mr__fit_family_param_name(f);
     mr__strbuf_printf(b, "<h3>Model</h3>\n<p>%s family", mr__family_name((mr_family)f->family));
-    if (param != NULL) mr__strbuf_printf(b, " (%s %.15g, fixed)", param, f->family_param);
+    mr__fit_family_param_text(f, b);
     mr__strbuf_printf(b, ", %s link, %zu coefficients (rank %zu), dispersion %s; outcome ",
                       mr__link_name((mr_link)f->link), f->p, f->rank,
                       f->dispersion_estimated ? "estimated" : "fixed at 1");

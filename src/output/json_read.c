@@ -444,6 +444,15 @@ static mr_status check_consistent(reader *r)
                                   : "is given for a family without one");
     }
     if (!takes_param) f->family_param = NAN;
+    if (f->family_param_estimated && !mr__family_ops_of((mr_family)f->family)->param_estimable) {
+        enter(r, "model.family_parameter.estimated");
+        return bad(r, "is given for a parameter the family does not estimate");
+    }
+    if (!f->family_param_estimated) f->family_param_se = NAN;
+    if (f->family_param_profiled && (mr__family_ops_of((mr_family)f->family)->profile_grid == NULL || f->nprofile == 0)) {
+        enter(r, "model.family_parameter.profile");
+        return bad(r, "is given for a parameter the family does not profile, or holds no point");
+    }
     if (mr__fit_quasi(f)) f->loglik = f->aic = f->bic = NAN; /* numbers a version 2 file may hold */
     if (f->rank > f->p) {
         enter(r, "fit.rank");

@@ -102,11 +102,34 @@ static const mr__jfield line_fields[] = {
     END,
 };
 
+/* Written for a parameter estimated by maximum likelihood and only then,
+ * so that a fit with the parameter given keeps its bytes. */
+static const mr__jfield family_param_estimate_fields[] = {
+    F("standard_error", MR__J_REAL, family_param_se),
+    END,
+};
+
+/* Written for a parameter chosen by profile likelihood and only then. */
+static const mr__jfield profile_point_fields[] = {
+    {"value", MR__J_REAL, offsetof(mr__fit_profile_point, value), 0, 0, 0, 0, 0, NULL, NULL, NULL},
+    {"log_likelihood", MR__J_REAL, offsetof(mr__fit_profile_point, loglik), 0, 0, 0, 0, 0, NULL, NULL, NULL},
+    END,
+};
+
+static const mr__jfield profile_fields[] = {
+    {"points", MR__J_STRUCTS, AT(profile), AT(nprofile), sizeof(mr__fit_profile_point), 0, 0, 0, NULL, NULL,
+     profile_point_fields},
+    END,
+};
+
 /* Written for a family with a parameter of its own (a negative binomial's
  * theta) and only then, so that a fit of another family keeps its bytes. */
 static const mr__jfield family_param_fields[] = {
     DERIVED("name", MR__JD_FAMILY_PARAM_NAME),
     F("value", MR__J_REAL, family_param),
+    {"estimated", MR__J_OBJECT_OPTIONAL, 0, AT(family_param_estimated), 0, 0, 0, 0, NULL, NULL,
+     family_param_estimate_fields},
+    {"profile", MR__J_OBJECT_OPTIONAL, 0, AT(family_param_profiled), 0, 0, 0, 0, NULL, NULL, profile_fields},
     END,
 };
 

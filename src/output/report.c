@@ -67,9 +67,8 @@ static void section_spline(mr__strbuf *b, const mr__fit_term *t)
 static void section_model(mr__strbuf *b, const mr_fit *f)
 {
     size_t i;
-    const char *param = mr__fit_family_param_name(f);
     mr__strbuf_printf(b, "model      %s family", mr__family_name((mr_family)f->family));
-    if (param != NULL) mr__strbuf_printf(b, " (%s %.15g, fixed)", param, f->family_param);
+    mr__fit_family_param_text(f, b);
     mr__strbuf_printf(b, ", %s link, %zu coefficients (rank %zu)%s\n", mr__link_name((mr_link)f->link), f->p,
                       f->rank, f->intercept ? "" : ", no intercept");
     mr__strbuf_printf(b, "           outcome %s", f->outcome);
@@ -214,6 +213,17 @@ static void section_term_tests(mr__strbuf *b, const mr_fit *f, int digits)
     }
 }
 
+/* A parameter chosen by profile likelihood: each value's log-likelihood. */
+static void section_profile(mr__strbuf *b, const mr_fit *f, int digits)
+{
+    size_t i;
+    if (!f->family_param_profiled) return;
+    mr__strbuf_printf(b, "  profile of %s (a fit each; the AIC and BIC count it):\n", mr__fit_family_param_name(f));
+    for (i = 0; i < f->nprofile; i++)
+        mr__strbuf_printf(b, "    %-8.15g log-likelihood %.*g%s\n", f->profile[i].value, digits + 2, f->profile[i].loglik,
+                          f->profile[i].value == f->family_param ? "  (chosen)" : "");
+}
+
 static void section_statistics(mr__strbuf *b, const mr_fit *f, int digits)
 {
     mr__strbuf_printf(b, "\nstatistics\n");
@@ -224,6 +234,13 @@ static void section_statistics(mr__strbuf *b, const mr_fit *f, int digits)
     mr__strbuf_printf(b, "  pearson chi-square  %.*g\n", digits + 2, f->pearson);
     mr__strbuf_printf(b, "  dispersion          %.*g (%s)\n", digits + 2, f->dispersion,
                       f->dispersion_estimated ? "estimated: pearson chi-square / residual df" : "fixed");
+    if (mr__family_ops_of((mr_family)f->family)->loglik_by_rows && isnan(f->loglik)) {
+        mr__strbuf_printf(b, "  log-likelihood      not computed: the fit stopped before its steps were small "
+                             "enough to sum the %s density\n",
+                          mr__family_name((mr_family)f->family));
+        mr__strbuf_printf(b, "  AIC, BIC            not computed\n");
+        return;
+    }
     if (mr__family_ops_of((mr_family)f->family)->no_loglik) {
         mr__strbuf_printf(b, "  log-likelihood      not computed: the %s density has no closed form\n",
                           mr__family_name((mr_family)f->family));
@@ -239,6 +256,7 @@ static void section_statistics(mr__strbuf *b, const mr_fit *f, int digits)
     mr__strbuf_printf(b, "  log-likelihood      %.*g\n", digits + 2, f->loglik);
     mr__strbuf_printf(b, "  AIC                 %.*g\n", digits + 2, f->aic);
     mr__strbuf_printf(b, "  BIC                 %.*g\n", digits + 2, f->bic);
+    section_profile(b, f, digits);
 }
 
 char *mr_fit_report(const mr_fit *f, int digits)

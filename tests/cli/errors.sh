@@ -177,6 +177,14 @@ printf '\xde\xad\xbe\xef\x00\xff\x13\x37\xde\xad\xbe\xef\x00\xff\x13\x37' |
     dd of="$f" bs=1 seek=$((size / 2)) conv=notrunc status=none
 expect corrupt_zstd 4 "$f" "$f" -- "${poisson_model[@]}"
 
+# A frame whose header gives 6,477 bytes of content (RFC 8878 3.1.1.1.4: a
+# 2-byte Frame_Content_Size holds the size less 256) and whose one block is
+# an empty last block: libzstd's stream decoder, fed a little at a time,
+# took it as a whole empty frame (a fuzzing find).
+f="$tmp/frame_short_of_its_size.csv.zst"
+printf '\x28\xb5\x2f\xfd\x50\x2a\x4d\x18\x05\x00\x00' > "$f"
+expect zstd_frame_short_of_its_size 4 "$f" "$f" "corrupt zstd stream" -- "${poisson_model[@]}"
+
 # gzip (RFC 1952): gzip -n writes a 10-byte header, so byte 10 begins the
 # first deflate block (RFC 1951: bits 1-2 its type, 11 reserved); the
 # member ends with the text's CRC-32 and length, 8 bytes.

@@ -15,8 +15,8 @@ tweedie, power p fixed, 1 < p < 2, log link:
   reference: statsmodels GLM, sm.families.Tweedie(var_power=p, link=log)
 Coefficients, standard errors (Pearson dispersion, statsmodels' default
 for this family), deviance, null deviance, Pearson chi-square and
-dispersion to 1e-8; the log-likelihood, AIC and BIC are null (no closed
-form).
+dispersion to 1e-8 (its log-likelihood, a series, is checked in
+estimated_parameters.py; rows never collapse).
 
 The harness (case layout, design columns, polishing, comparison) is
 compare_reference.py's.  Prints "ok <case>" / "FAIL <case>: ..." and the
@@ -191,9 +191,6 @@ def check_tweedie(case, p_power, tmp, collapsed):
         problems.append("family_parameter %r" % js["model"].get("family_parameter"))
     if (js["convergence"]["collapsed_patterns"] is not None) != collapsed:
         problems.append("collapsed_patterns %r" % js["convergence"]["collapsed_patterns"])
-    for key in ("log_likelihood", "aic", "bic"):
-        if js["fit"][key] is not None:
-            problems.append("%s %r, expected null" % (key, js["fit"][key]))
     if js.get("statistic") != "t":
         problems.append("statistic %r" % js.get("statistic"))
     _, X, y, w, off, _ = cr.reference_inputs(case, names)
@@ -229,8 +226,8 @@ def tweedie_cases(rng):
     mu = np.exp(0.5 + 0.6 * ind(d["age_band"], "45-49") + 0.2 * ind(d["sex"], "F"))
     d["y"] = tweedie_draw(rng, mu, 1.3, 1.0)
     d["w"] = rng.choice([1.0, 2.0, 0.5], n)
-    cases.append((cr.Case("tweedie_patterns_weighted", "tweedie power=1.3", "log", d, "y",
-                          factors=[("age_band", None), ("sex", None)], weight="w"), 1.3, True))
+    cases.append((cr.Case("tweedie_factors_weighted", "tweedie power=1.3", "log", d, "y",
+                          factors=[("age_band", None), ("sex", None)], weight="w"), 1.3, False))
     return cases
 
 
