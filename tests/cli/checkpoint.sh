@@ -186,4 +186,20 @@ rc=$(fit robust-type)
 grep -q "another model or other options" "$tmp/robust-type.err" && [ "$rc" -eq 0 ] &&
     [ "$(resumed_after "$tmp/robust-type.json")" = 0 ] && ok "robust type changed: said, started afresh" ||
     fail "robust type changed" "exit $rc: $(cat "$tmp/robust-type.err")"
+# a family parameter estimated alongside (negative binomial theta) and a
+# series log-likelihood (Tweedie): killed within pass 3, the rerun gives the
+# reference's bytes (the parameter travels in the IRLS state)
+for fam in "negative-binomial theta=estimate" "tweedie power=1.5"; do
+    name=${fam%% *}
+    model=(--outcome events --family "$fam" --exposure followup --factor age_band --factor sex --factor region
+           --numeric deprivation --numeric age --no-collapse --threads 2)
+    rm -f "$ck"
+    "$bin" fit "${model[@]}" --json "$tmp/ref.json" "$tmp/big.csv" >/dev/null 2>"$tmp/ref.err" ||
+        fail "$name reference" "$(cat "$tmp/ref.err")"
+    strip "$tmp/ref.json" >"$tmp/ref.stripped"
+    killed "$name.killed" "$(fit "$name.killed" MILLRACE_TEST_KILL=pass:3:400000)"
+    rc=$(fit "$name")
+    [ "$rc" -eq 0 ] || fail "$name" "rerun exit $rc: $(head -c 300 "$tmp/$name.err")"
+    same "$name" 2
+done
 finish
