@@ -185,6 +185,7 @@ asan-check: asan $(B)/synth
 	MILLRACE=$(B)/asan/millrace bash tests/cli/threads.sh
 	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/outputs.sh
 	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/drift.sh
+	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/checkpoint.sh
 	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/robust.sh
 	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/filesets.sh
 

@@ -359,6 +359,41 @@ MR_API mr_status mr_fitter_set_robust(mr_fitter *f, mr_robust type);
  * column.  MR_OK, MR_ERR_USAGE (an empty name) or MR_ERR_NO_MEMORY. */
 MR_API mr_status mr_fitter_set_cluster(mr_fitter *f, const char *column, size_t memory_limit);
 
+/* Checkpoints (`path` copied; NULL: none, the default).  After each pass
+ * over the data - the first, once its warm start is taken, then each IRLS
+ * pass - the run writes to `path`, atomically (as mr_fit_write_json writes)
+ * and holding mr_output_lock_take's lock on it for the whole run, what it
+ * needs to go on: the first pass's result, the IRLS state, the pass count,
+ * the input's name, size and time, the model lines and the options that
+ * change results (tolerance, pass limit, level, bad-row rule, delimiter,
+ * missing tokens, collapsing, the start's label, the robust type and the
+ * cluster column; not the clusters' memory limit, which changes no number),
+ * under a checksum.  A run given a path where such a file lies takes it
+ * up when it is whole and made for this input, model and options, and
+ * goes on after its last pass: a fit killed (kill -9, a crash, a reboot) and run again gives the
+ * fit an uninterrupted run gives, to the bit (timings, threads and the
+ * audit trail aside).  Else - cut short, damaged, of another input,
+ * model or options - it is not used and the fit starts afresh;
+ * mr_fitter_checkpoint_note says why.  Threads, buffer size and caching
+ * may differ between the runs.  A fit that succeeds removes the file; one
+ * that fails or is stopped leaves it.  A file changed in place with its
+ * size and time kept is caught by the later passes' checksums (MR_ERR_IO,
+ * as any change during a fit).  Standard input and pipes cannot be read
+ * again after a restart: mr_fitter_run refuses a checkpoint with them
+ * (MR_ERR_USAGE), as it and mr_fitter_run_set refuse one with a set of
+ * files or a directory (the checkpoint records one file's identity) or a
+ * model with a factor declared `many` (its levels' state is not carried
+ * yet); the
+ * path is checked as an output (MR_ERR_USAGE when it is the input,
+ * MR_ERR_IO when it cannot be written or its lock is held).
+ * Collapsed fits (one read of the file, IRLS in memory) write it once,
+ * after the read.  Returns MR_OK or MR_ERR_NO_MEMORY. */
+MR_API mr_status mr_fitter_set_checkpoint(mr_fitter *f, const char *path);
+/* What the last run did with its checkpoint, one line: "" when it had none
+ * or none lay at the path, else that it was taken up after pass N, or why it
+ * was not used.  Owned by the fitter, valid until its next run. */
+MR_API const char *mr_fitter_checkpoint_note(const mr_fitter *f);
+
 /* Fits the model to the CSV (optionally zstd- or gzip-compressed, known by
  * its magic bytes; concatenated frames or members read as one) at `path`, or to
  * standard input when path is "-".  The input is only read, once or more
@@ -903,6 +938,10 @@ MR_API size_t mr_fit_many_nlevels(const mr_fit *fit);
  * rows).  NULL when k is out of range. */
 MR_API const char *mr_fit_many_level(const mr_fit *fit, size_t k, double *estimate, double *std_error,
                                      double *information);
+/* The pass after which the run that made `fit` went on from a checkpoint
+ * (mr_fitter_set_checkpoint; "run": {"resumed": {"after_pass": N}} in the
+ * JSON), or 0 when it ran from the start. */
+MR_API int mr_fit_resumed_after_pass(const mr_fit *fit);
 
 /* Calibration: observed against expected by tenths of the fitted mean.
  * The last pass sums, for every row of positive prior weight w, its w,

@@ -26,7 +26,7 @@ static const char *const falls_model[] = {"outcome admissions", "family poisson"
                                           "interact age_band sex", NULL};
 static const char *const spline_model[] = {"outcome admissions", "family poisson", "exposure person_years",
                                            "factor sex", "spline year df=3", "interact year sex", NULL};
-static char json_path[64];
+static char json_path[64], checkpoint_path[80], checkpoint_saved[80];
 /* a start (mr_fitter_set_start) with another reference for age_band:
  * its main effect moved, its interaction with sex at 0 */
 static mr_fit *previous_fit;
@@ -63,7 +63,16 @@ static int fit_failing_at(long n, const char *path, const char *const *model, in
             return 0;
         }
     }
-    if (extra == 1) mr_fitter_set_int(f, MR_OPT_NO_COLLAPSE, 1);
+    if (extra == 1 || extra == 4 || extra == 5) mr_fitter_set_int(f, MR_OPT_NO_COLLAPSE, 1);
+    if (extra == 4 || extra == 5) { /* 4: checkpoints written from the start; 5: one taken up */
+        unlink(checkpoint_path);
+        if (extra == 5) ck_assert_int_eq(link(checkpoint_saved, checkpoint_path), 0);
+        if ((st = mr_fitter_set_checkpoint(f, checkpoint_path)) != MR_OK) {
+            mr_fitter_free(f);
+            ck_assert_int_eq(st, MR_ERR_NO_MEMORY);
+            return 0;
+        }
+    }
     if (extra == 2) mr_fitter_set_int(f, MR_OPT_IN_MEMORY, 1);
     if (extra == 3 && (st = mr_fitter_set_start(f, previous_fit, "previous.json")) != MR_OK) {
         mr_fitter_free(f);
@@ -72,7 +81,7 @@ static int fit_failing_at(long n, const char *path, const char *const *model, in
     }
     /* cluster-robust standard errors: falls is not grouped by region, so
      * the streamed meat pass gives way to the table's */
-    if (extra == 4 && (st = mr_fitter_set_cluster(f, "region", 0)) != MR_OK) {
+    if (extra == 6 && (st = mr_fitter_set_cluster(f, "region", 0)) != MR_OK) {
         mr_fitter_free(f);
         ck_assert_int_eq(st, MR_ERR_NO_MEMORY);
         return 0;
@@ -339,7 +348,35 @@ START_TEST(test_falls_from_a_previous_fit)
 END_TEST
 START_TEST(test_screening_in_memory) { every_allocation("samples/screening.csv", screening_model, 2); }
 END_TEST
-START_TEST(test_falls_robust_clusters) { every_allocation("samples/falls.csv", falls_model, 4); }
+/* Checkpoints (mr_fitter_set_checkpoint): written after every pass, and
+ * one left by a fit stopped at its third pass taken up. */
+static int stop_at_third(const mr_progress *p, void *user)
+{
+    (void)user;
+    return p->pass == 3;
+}
+
+START_TEST(test_checkpoints)
+{
+    mr_fitter *f = mr_fitter_new();
+    mr_fit *fit = NULL;
+    int i;
+    every_allocation("samples/falls.csv", falls_model, 4);
+    for (i = 0; falls_model[i]; i++) ck_assert_int_eq(mr_fitter_model_line(f, falls_model[i], "test"), MR_OK);
+    mr_fitter_set_int(f, MR_OPT_THREADS, 2);
+    mr_fitter_set_int(f, MR_OPT_NO_COLLAPSE, 1);
+    ck_assert_int_eq(mr_fitter_set_checkpoint(f, checkpoint_saved), MR_OK);
+    mr_fitter_set_progress_stop(f, stop_at_third, NULL);
+    unlink(checkpoint_saved);
+    ck_assert_int_eq(mr_fitter_run(f, "samples/falls.csv", &fit), MR_ERR_STOPPED);
+    mr_fitter_free(f);
+    every_allocation("samples/falls.csv", falls_model, 5);
+    unlink(checkpoint_path);
+    unlink(checkpoint_saved);
+}
+END_TEST
+
+START_TEST(test_falls_robust_clusters) { every_allocation("samples/falls.csv", falls_model, 6); }
 END_TEST
 /* a spline's counted values (per block and merged) and its basis */
 START_TEST(test_spline_rows_cached) { every_allocation("samples/falls.csv", spline_model, 1); }
@@ -404,6 +441,8 @@ int main(void)
     fd = mkstemp(json_path); /* written over by each fit that succeeds */
     if (fd < 0) return EXIT_FAILURE;
     close(fd);
+    snprintf(checkpoint_path, sizeof checkpoint_path, "%s.ckpt", json_path);
+    snprintf(checkpoint_saved, sizeof checkpoint_saved, "%s.saved", json_path);
     tcase_set_timeout(tc, 600);
     tcase_add_test(tc, test_falls_collapsed);
     tcase_add_test(tc, test_falls_rows_cached);
@@ -414,6 +453,7 @@ int main(void)
     tcase_add_test(tc, test_drift_and_run_log);
     tcase_add_test(tc, test_html_page);
     tcase_add_test(tc, test_gzip_source);
+    tcase_add_test(tc, test_checkpoints);
     tcase_add_test(tc, test_falls_robust_clusters);
     tcase_add_test(tc, test_survey);
     suite_add_tcase(s, tc);

@@ -196,6 +196,16 @@ static mr_status table_add(mr__pattern_table *t, const uint64_t *key, uint64_t h
     return MR_OK;
 }
 
+/* A pattern read back (accum/first_bytes.c): appended as it comes, with no
+ * hash slot (a table read back is only read, never merged into). */
+mr_status mr__pattern_table_put(mr__pattern_table *t, const uint64_t *key, const double sums[MR__PATTERN_SUMS])
+{
+    int64_t i = new_record(t, key);
+    if (i < 0) return MR_ERR_NO_MEMORY;
+    memcpy(sums_of(t, (size_t)i), sums, MR__PATTERN_SUMS * sizeof *sums);
+    return MR_OK;
+}
+
 /* ---- the merge (calling thread) ---------------------------------------- */
 
 mr_status mr__pattern_merge_init(mr__pattern_merge *m, size_t nkey, size_t nworkers)

@@ -83,6 +83,10 @@ typedef struct mr__pattern_table {
 void mr__pattern_sums(const mr__pattern_table *t, size_t i, double out[MR__PATTERN_SUMS]);
 uint32_t mr__pattern_id(const mr__pattern_table *t, size_t i, size_t k);
 
+/* Appends a pattern (kwords key words, its sums) to a table read back
+ * (accum/first_bytes.c), found by number only.  MR_ERR_NO_MEMORY. */
+mr_status mr__pattern_table_put(mr__pattern_table *t, const uint64_t *key, const double sums[MR__PATTERN_SUMS]);
+
 /* A direct index of up to 2^21 cells (8 MiB) replaces the hash table
  * while the key columns' value counts, each rounded up to a power of two,
  * multiply to no more than that. */

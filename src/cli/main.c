@@ -19,7 +19,7 @@ enum {
     OPT_MAX_PASSES, OPT_LEVEL, OPT_DELIMITER, OPT_MISSING, OPT_IN_MEMORY, OPT_ON_BAD_ROW, OPT_JSON, OPT_QUIET,
     OPT_DIGITS, OPT_NO_CACHE, OPT_NO_COLLAPSE, OPT_START_FROM, OPT_HELP, OPT_RUN_LOG, OPT_THRESHOLD, OPT_CSV,
     OPT_FIT, OPT_OUT, OPT_KEEP, OPT_UNSEEN, OPT_BY, OPT_BY_OUT, OPT_DROP_ONE, OPT_FIT_JSON, OPT_ROBUST, OPT_CLUSTER,
-    OPT_CLUSTER_MEMORY
+    OPT_CLUSTER_MEMORY, OPT_CHECKPOINT
 };
 
 static const struct option long_options[] = {
@@ -63,6 +63,7 @@ static const struct option long_options[] = {
     {"unseen", required_argument, NULL, OPT_UNSEEN},
     {"by", required_argument, NULL, OPT_BY},
     {"by-out", required_argument, NULL, OPT_BY_OUT},
+    {"checkpoint", required_argument, NULL, OPT_CHECKPOINT},
     {NULL, 0, NULL, 0},
 };
 
@@ -157,6 +158,7 @@ static const char usage_text[] =
     "  --delimiter ,|tab|;  --missing TOKEN (repeatable)  --in-memory  --no-cache  --no-collapse\n"
     "  --on-bad-row fail|skip  --start-from FIT.json (start from a previous fit of the same model)\n"
     "  --robust hc0|hc1  --cluster COL  --cluster-memory MB (robust standard errors, by rows or clusters)\n"
+    "  --checkpoint PATH (state after each pass; a rerun of a killed fit goes on from it)\n"
     "output:\n"
     "  --json PATH  --run-log FILE (a line appended per run)  --quiet  --digits N\n"
     "exit codes: 0 ok, 2 usage, 3 I/O, 4 malformed input, 5 value outside the model, 6 no data,\n"
@@ -363,6 +365,9 @@ static int handle_option(cli *c, int opt, const char *arg)
     case OPT_CLUSTER_MEMORY: return handled(set_robust(c, opt, arg));
     case OPT_JSON: c->json_path = arg; return -1;
     case OPT_RUN_LOG: c->run_log = arg; return -1;
+    case OPT_CHECKPOINT:
+        if (mr_fitter_set_checkpoint(c->fitter, arg) != MR_OK) return fail(MR_ERR_NO_MEMORY, "out of memory");
+        return -1;
     case OPT_QUIET: c->quiet = 1; return -1;
     case OPT_DIGITS: {
         long long v;
@@ -535,9 +540,23 @@ static void clean_up_on_signals(void)
 
 /* Called by the library a few times a second: the progress line, and
  * whether a signal asked the fit to stop. */
+/* MILLRACE_TEST_KILL=pass:K:ROWS (tests only, tests/cli/checkpoint.sh):
+ * the process kills itself with SIGKILL, as kill -9 would, at the first
+ * progress call of pass K with at least ROWS rows added (the last call of a
+ * pass comes after all its rows: at the latest, then). */
+static int kill_pass, kill_rows_set;
+static unsigned long long kill_rows;
+
+static void read_test_kill(void)
+{
+    const char *v = getenv("MILLRACE_TEST_KILL");
+    kill_rows_set = v != NULL && sscanf(v, "pass:%d:%llu", &kill_pass, &kill_rows) == 2;
+}
+
 static int progress_or_stop(const mr_progress *p, void *user)
 {
     cli *c = user;
+    if (kill_rows_set && p->pass == kill_pass && p->rows_done >= kill_rows) raise(SIGKILL);
     if (c->show_progress) show_progress(p, c);
     return stop_signal != 0;
 }
@@ -571,8 +590,11 @@ static int run_fit(cli *c, int argc, char **argv)
     c->show_progress = !c->quiet && isatty(STDERR_FILENO);
     mr_fitter_set_progress_stop(c->fitter, progress_or_stop, c);
     stop_at_block = 1;
+    read_test_kill();
     st = mr_fitter_run_set(c->fitter, (const char *const *)argv + optind, (size_t)(argc - optind), &fit);
     stop_at_block = 0;
+    if (mr_fitter_checkpoint_note(c->fitter)[0])
+        fprintf(stderr, "millrace: %s\n", mr_fitter_checkpoint_note(c->fitter));
     if (c->progress_shown) fputs("\r\033[K", stderr);
     if (stop_signal) {
         mr_fit_free(fit);

@@ -210,6 +210,7 @@ double mr_fit_stat(const mr_fit *fit, mr_stat which)
 }
 
 size_t mr_fit_nwarnings(const mr_fit *fit) { return fit->nwarnings; }
+int mr_fit_resumed_after_pass(const mr_fit *fit) { return fit->resumed ? fit->resumed_from_pass : 0; }
 const char *mr_fit_warning(const mr_fit *fit, size_t i) { return i < fit->nwarnings ? fit->warning[i] : NULL; }
 
 const mr__fit_numeric *mr__fit_find_numeric(const mr_fit *fit, const char *name)

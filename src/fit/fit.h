@@ -164,6 +164,8 @@ struct mr_fit {
     double robust_adjustment;
     double *robust_se, *robust_cov;
     size_t nrobust_se;
+    /* taken up from a checkpoint after pass resumed_from_pass (resumed 1) */
+    int resumed, resumed_from_pass;
 };
 
 /* The `many` factor's arrays for n levels, names NULL (many.c); MR_OK or

@@ -39,6 +39,7 @@ void mr_fitter_free(mr_fitter *f)
     mr_fitter_clear_missing(f);
     mr__strings_free(f->command_line, f->ncommand_line);
     mr__start_free(f->start);
+    mr__free(f->checkpoint);
     mr__free(f->cluster);
     mr__free(f);
 }
@@ -153,6 +154,18 @@ mr_status mr_fitter_set_command_line(mr_fitter *f, size_t argc, const char *cons
     return MR_OK;
 }
 
+mr_status mr_fitter_set_checkpoint(mr_fitter *f, const char *path)
+{
+    char *copy = NULL;
+    mr__error_clear(&f->err);
+    if (path != NULL && (copy = mr__strdup(path)) == NULL) return mr__fail(&f->err, MR_ERR_NO_MEMORY, "out of memory");
+    mr__free(f->checkpoint);
+    f->checkpoint = copy;
+    return MR_OK;
+}
+
+const char *mr_fitter_checkpoint_note(const mr_fitter *f) { return f->checkpoint_note; }
+
 /* The audit trail: who asked (the command line), on which machine, from
  * when to when (wall clock, UTC). */
 mr_status mr__fitter_record_run(const mr_fitter *f, mr_fit *fit, int64_t started_ns, mr__error *err)
@@ -196,6 +209,7 @@ mr_status mr_fitter_run(mr_fitter *f, const char *path, mr_fit **out)
     mr_status st;
     *out = NULL;
     mr__error_clear(&f->err);
+    f->checkpoint_note[0] = '\0';
     /* Closed, descriptor 0 would go to the next file opened (the copy of
      * standard input kept for later passes), and be read as empty input. */
     if (strcmp(path, "-") == 0 && fcntl(STDIN_FILENO, F_GETFD) < 0)
@@ -214,6 +228,7 @@ mr_status mr_fitter_run_set(mr_fitter *f, const char *const *paths, size_t npath
     *out = NULL;
     mr__error_clear(&f->err);
     if (npaths == 0 || paths == NULL) return mr__fail(&f->err, MR_ERR_USAGE, "no input given");
+    f->checkpoint_note[0] = '\0';
     if (npaths == 1) return mr_fitter_run(f, paths[0], out);
     if (f->spec.family_profile) return profile_of_set(f);
     st = mr__fit_files(f, paths, npaths, out);

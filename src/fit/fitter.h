@@ -24,6 +24,9 @@ struct mr_fitter {
     int robust;              /* an mr_robust (robust.c) */
     char *cluster;           /* mr_fitter_set_cluster's column; NULL: none */
     size_t cluster_memory;   /* bytes its bookkeeping may take */
+    char *checkpoint;        /* mr_fitter_set_checkpoint's copy; NULL: none */
+    char checkpoint_note[MR__MSG_CAP + 256]; /* what the last run did with it */
+    int checkpoint_keep;     /* tests only: the checkpoint outlives a fit that succeeded */
 };
 
 /* The robust standard errors a run makes (an mr_robust): the one set, or

@@ -457,6 +457,8 @@ static mr_status copy_run_info(mr_fit *fit, const mr__run *r, mr__error *err)
     const mr_fitter *f = r->f;
     fit->iterations = r->iterations;
     fit->passes = r->npasses;
+    fit->resumed = r->resumed_from > 0;
+    fit->resumed_from_pass = r->resumed_from;
     fit->halvings = r->halvings;
     fit->warm_start = r->warm;
     fit->by_step = r->by_step;

@@ -192,6 +192,8 @@ typedef struct irls_job {
     double *beta_out;    /* the coefficients reached */
     int *growing_out;    /* NULL, or per coefficient: its SE grew pass after pass */
     double deviance_shift; /* collapsed patterns: the deviance within patterns */
+    mr__irls *resume;    /* NULL, or the state a checkpoint left (taken over) */
+    int checkpoints;     /* the fit of the data: a checkpoint after each pass */
     int calibrate;         /* bin the fitted means (accum/calibration.h) */
     int iterations, halvings, converged, by_step;
     double rel_change, null_b0, step;
@@ -257,15 +259,15 @@ static double series_dispersion(const mr__run *r, const mr__irls *s)
     return s->dev_prev / sw;
 }
 
-/* The passes the state machine asks for, until it is done; the family's
- * parameter, where estimated, moves with them (r->family.param). */
-static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__error *err)
+static mr_status init_state(mr__run *r, irls_job *job, mr__irls *s, mr__error *err)
 {
-    mr__irls s;
     mr__irls_cfg c;
-    mr_status st;
-    int done = 0;
-    size_t j;
+    if (job->resume) {
+        *s = *job->resume;
+        memset(job->resume, 0, sizeof *job->resume);
+        if (s->p != r->design.p) return mr__fail(err, MR_ERR_INTERNAL, "the checkpoint's state does not fit the design");
+        return MR_OK;
+    }
     memset(&c, 0, sizeof c);
     c.p = mr__design_ncoef(&r->design);
     c.tolerance = job->tolerance;
@@ -281,13 +283,30 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
     c.param_estimate = r->family.estimate;
     c.param_known = r->param_known;
     c.param_start = r->family.param;
-    MR__TRY(mr__irls_init(&s, &c, err));
-    do {
+    MR__TRY(mr__irls_init(s, &c, err));
+    /* the first pass (and the warm start) done: the first checkpoint */
+    return job->checkpoints ? mr__checkpoint_write(r, s, err) : MR_OK;
+}
+
+/* The passes the state machine asks for, until it is done; the family's
+ * parameter, where estimated, moves with them (r->family.param).  A pass
+ * over collapsed patterns runs in memory: only reads of the data are worth
+ * a checkpoint. */
+static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__error *err)
+{
+    mr__irls s;
+    mr_status st;
+    int done = 0;
+    size_t j;
+    memset(&s, 0, sizeof s);
+    st = init_state(r, job, &s, err);
+    while (st == MR_OK && !done) {
         if (r->family.estimate) r->family.param = mr__irls_param(&s);
         r->family.dispersion = series_dispersion(r, &s);
         st = irls_pass(r, job, mr__irls_beta(&s), s.null_b0, mr__irls_null_deviance(&s), res, err);
         if (st == MR_OK) st = mr__irls_step(&s, &res->sums, r->display, &done, err);
-    } while (st == MR_OK && !done);
+        if (st == MR_OK && !done && job->checkpoints && !job->replay) st = mr__checkpoint_write(r, &s, err);
+    }
     job->iterations = s.iterations;
     job->halvings = s.halvings;
     job->converged = s.converged;
@@ -299,7 +318,7 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
     if (r->family.estimate) r->family.param = mr__irls_param(&s);
     r->loglik_dispersion = r->family.dispersion;
     if (st == MR_OK) mr__irls_coefficients(&s, job->beta_out);
-    for (j = 0; st == MR_OK && job->growing_out && j < c.p; j++)
+    for (j = 0; st == MR_OK && job->growing_out && j < s.p; j++)
         job->growing_out[j] = mr__irls_ran_off(&s, j);
     mr__irls_release(&s);
     return st;
@@ -411,11 +430,13 @@ static mr_status calibration_pass(mr__run *r, irls_job *job, mr__error *err)
     return st;
 }
 
-static mr_status fit_data(mr__run *r, mr__error *err)
+static mr_status fit_data(mr__run *r, mr__irls *resume, mr__error *err)
 {
     irls_job job;
     memset(&job, 0, sizeof job);
     job.calibrate = 1;
+    job.resume = resume;
+    job.checkpoints = 1;
     if (r->collapsed) {
         job.replay = &r->patterns;
         job.deviance_shift = r->within_deviance;
@@ -499,6 +520,7 @@ static mr_status robust_pass(mr__run *r, mr__error *err)
 void mr__run_release(mr__run *r)
 {
     size_t f;
+    mr__irls_release(&r->resume);
     mr__pass_result_release(&r->first, r->bind.nfac);
     mr__pass_result_release(&r->last, 0);
     mr__pass_result_release(&r->meat, 0);
@@ -534,6 +556,16 @@ static mr_status allocate_coefficients(mr__run *r, mr__error *err)
     if (!r->beta_final || !r->beta_warm || !r->growing)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     return MR_OK;
+}
+
+/* A checkpoint's first-pass result in place of the pass: later passes
+ * compare the input with it, and keep blocks afresh (none were kept). */
+static void restore_first(mr__run *r)
+{
+    r->size = r->first.size;
+    r->mtime_ns = r->first.mtime_ns;
+    r->raw_bytes = r->first.raw_bytes;
+    r->first.store_incomplete = 1;
 }
 
 /* The name of a set in messages: the paths given, one after the other
@@ -608,8 +640,8 @@ mr_status mr__run_rest(mr__run *r, mr_fit **out)
     r->started = st == MR_OK && f->start != NULL;
     /* a previous fit's point is nearer the maximum than a sample's: the
      * warm start then only gives its sample back */
-    if (st == MR_OK) warm_start(r);
-    if (st == MR_OK) st = fit_data(r, err);
+    if (st == MR_OK && !r->have_resume) warm_start(r);
+    if (st == MR_OK) st = fit_data(r, r->have_resume ? &r->resume : NULL, err);
     if (st == MR_OK && mr__robust_type(f) != MR_ROBUST_NONE) st = robust_pass(r, err);
     if (st == MR_OK) st = mr__build_fit(r, out, err);
     return st;
@@ -620,15 +652,18 @@ mr_status mr__run_rest(mr__run *r, mr_fit **out)
 static mr_status run_all(mr__run *r, mr_status st, mr_fit **out)
 {
     int blas_threads = 0; /* the count to set back; 0: never changed */
+    if (st == MR_OK) st = mr__checkpoint_begin(r, &r->resume, &r->have_resume, &r->f->err);
     if (st == MR_OK) {
         /* Our workers use every core; BLAS threads inside them would only
          * oversubscribe.  The caller's count comes back at the end, as
          * millrace.h promises. */
         blas_threads = openblas_get_num_threads();
         openblas_set_num_threads(1);
-        st = scan_pass(r, &r->f->err);
+        if (r->have_resume) restore_first(r);
+        else st = scan_pass(r, &r->f->err);
     }
     if (st == MR_OK) st = mr__run_rest(r, out);
+    mr__checkpoint_end(r, st == MR_OK);
     mr__run_release(r);
     if (blas_threads > 0) openblas_set_num_threads(blas_threads);
     return st;

@@ -7,6 +7,7 @@
 #include <stdatomic.h>
 #include "accum/pass.h"
 #include "fit/fitter.h"
+#include "fit/irls.h"
 #include "model/design.h"
 
 #define MR__MAX_MISSING_TOKENS 64
@@ -80,6 +81,12 @@ typedef struct mr__run {
      * whether the clusters had to be held in a table */
     mr__pass_result meat;
     int clusters_table;
+    /* the checkpoint (checkpoint.c): its lock, the pass it was taken up
+     * after (0: none), checkpoints written */
+    struct mr_output_lock *checkpoint_lock;
+    int resumed_from, checkpoint_writes;
+    mr__irls resume; /* with have_resume: the state the checkpoint left */
+    int have_resume;
 } mr__run;
 
 /* result.c: cov_raw = A cov_internal A' and beta_raw = A beta_internal;
@@ -138,6 +145,21 @@ mr_status mr__build_remap(mr__run *r, mr__error *err);
  * log-link rows with an exposure; the patterns as blocks to replay. */
 int mr__collapse_mode(const mr__run *r);
 mr_status mr__build_patterns(mr__run *r, mr__error *err);
+
+/* checkpoint.c: a killed fit taken up again (mr_fitter_set_checkpoint). */
+/* Before the first pass: refuses standard input and pipes (MR_ERR_USAGE),
+ * takes the lock and checks the path as an output (MR_ERR_IO), and reads
+ * a checkpoint there.  When one can be resumed, r->first, the binding, the
+ * run's counts and *resume (a decoded IRLS state) are set and
+ * r->resumed_from is its pass; otherwise r->checkpoint_note may say why
+ * it was not used.  A run without a checkpoint path: MR_OK, nothing done. */
+mr_status mr__checkpoint_begin(mr__run *r, mr__irls *resume, int *have_resume, mr__error *err);
+
+/* After a finished pass: the state `s` written (MR_ERR_IO, MR_ERR_NO_MEMORY). */
+mr_status mr__checkpoint_write(mr__run *r, const mr__irls *s, mr__error *err);
+
+/* The run's end: the checkpoint removed when the fit succeeded, the lock let go. */
+void mr__checkpoint_end(mr__run *r, int succeeded);
 
 /* Worker threads for `asked` (0: one per online CPU): at most 4 per
  * online CPU and 64 in all, as each costs about 6 MB and more than the

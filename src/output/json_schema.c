@@ -244,11 +244,19 @@ static const mr__jfield statistics_fields[] = {
 /* The run's audit trail.  Added within format_version 2, so optional:
  * a fit written before it reads back without it and writes the same
  * bytes again. */
+/* A run taken up from a checkpoint: the pass it went on after (left out
+ * of a run that was not). */
+static const mr__jfield resume_fields[] = {
+    F("after_pass", MR__J_INT, resumed_from_pass),
+    END,
+};
+
 static const mr__jfield run_fields[] = {
     LIST("command_line", MR__J_TEXTS, command_line, ncommand_line),
     F("started", MR__J_TEXT, started),
     F("ended", MR__J_TEXT, ended),
     F("host", MR__J_TEXT, host),
+    {"resumed", MR__J_OBJECT_OPTIONAL, 0, AT(resumed), 0, 0, 0, 0, NULL, NULL, resume_fields},
     END,
 };
 

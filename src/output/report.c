@@ -110,6 +110,9 @@ static void section_convergence(mr__strbuf *b, const mr_fit *f)
     if (f->warm_start && f->warm_polish_blocks)
         mr__strbuf_printf(b, ", then one on %d blocks", f->warm_polish_blocks);
     if (f->warm_start) mr__strbuf_printf(b, ")");
+    if (f->resumed)
+        mr__strbuf_printf(b, "\n           went on from a checkpoint after pass %d (to the results of a run never stopped; the time is this run's)",
+                          f->resumed_from_pass);
     if (f->start_given)
         mr__strbuf_printf(b, "\n           started from the previous fit %s: %zu of this fit's %zu coefficients carried over (it had %zu)",
                           f->start_from, f->start_carried, f->p, f->start_previous);

@@ -1,0 +1,211 @@
+#!/usr/bin/env bash
+# fit --checkpoint: a fit of 10^6 rows (build/synth) killed with SIGKILL at
+# points a seeded random generator picks - inside the first pass, inside a
+# later pass, between two passes, in the middle of writing a checkpoint,
+# and twice in a row - then run again with the same command, goes on from
+# its last finished pass and writes the JSON of a fit that ran through,
+# byte for byte (the run's audit trail and the timings aside).  A
+# checkpoint cut short, one made for another input, one whose input was
+# touched since, and one for other options are not used: each says why in
+# one line and the fit starts afresh, to the same bytes.  Standard input is
+# refused, and so is a set of files.  With robust standard errors by clusters, a fit killed within an
+# IRLS pass or within the final pass that adds up the sandwich's meat goes
+# on to the same bytes too.  The kills come from the test-only MILLRACE_TEST_KILL hook
+# (README, "Scheduled reruns"): the process sends itself SIGKILL at a
+# chosen pass and row, or at its N-th checkpoint, as kill -9 from outside
+# would then; nothing here is timed.  MILLRACE=build/asan/millrace runs it
+# under ASan+UBSan.
+# shellcheck source=tests/cli/common.bash
+source "$(dirname "$0")/common.bash"
+bin=${MILLRACE:-$bin}
+synth="$root/build/synth"
+seed=${CHECKPOINT_SEED:-20261205}
+"$synth" --rows 1000000 --seed 11 --out "$tmp/big.csv" || fail synth "exit $?"
+"$synth" --rows 100000 --seed 12 --out "$tmp/other.csv" || fail synth "exit $?"
+ck="$tmp/fit.ckpt"
+# case B of bench/run.py, never collapsed, to a tight tolerance: several
+# passes over the file
+model=(--outcome events --family poisson --exposure followup --factor age_band --factor sex --factor region
+       --numeric deprivation --numeric year --numeric age --numeric bmi --interact "age sex" --no-collapse
+       --tolerance 1e-13 --threads 2)
+
+# fit NAME [env...]: the command, its JSON $tmp/NAME.json, stderr $tmp/NAME.err; prints the exit code
+fit() {
+    local name=$1 rc
+    shift
+    env "$@" "$bin" fit "${model[@]}" --checkpoint "$ck" --json "$tmp/$name.json" "$tmp/big.csv" \
+        >/dev/null 2>"$tmp/$name.err"
+    rc=$?
+    echo "$rc"
+}
+
+# The JSON without the run's audit trail (it says when, and whether it was
+# resumed) and the timings: the rest must be the same bytes.
+strip() {
+    /usr/bin/python3 - "$1" <<'PY'
+import re, sys
+out, skip = [], None
+for line in open(sys.argv[1]):
+    if skip is not None:
+        if re.match(skip, line):
+            skip = None
+        continue
+    m = re.match(r'(\s*)"(run|pass_seconds)": [\[{]\s*$', line)
+    if m:
+        skip = m.group(1) + r'[\]}],?\s*$'
+        continue
+    if re.match(r'\s*"(seconds|rows_per_second)":', line):
+        continue
+    out.append(line)
+sys.stdout.write("".join(out))
+PY
+}
+
+resumed_after() { # the JSON's run.resumed.after_pass, or 0
+    /usr/bin/python3 -c 'import json,sys; print(json.load(open(sys.argv[1]))["run"].get("resumed", {}).get("after_pass", 0))' "$1"
+}
+
+# same NAME WANT-RESUMED: NAME.json is the reference's bytes, resumed as said
+same() {
+    local name=$1 want=$2 got
+    got=$(resumed_after "$tmp/$name.json" 2>/dev/null)
+    if ! strip "$tmp/$name.json" | cmp -s - "$tmp/ref.stripped"; then
+        fail "$name" "JSON differs: $(strip "$tmp/$name.json" | diff "$tmp/ref.stripped" - | head -n 4 | tr '\n' '|')"
+    elif [ "$got" != "$want" ]; then
+        fail "$name" "resumed after pass $got, not $want; $(head -c 300 "$tmp/$name.err")"
+    elif [ -e "$ck" ] || ls "$tmp" | grep -q 'ckpt\.\(tmp\|lock\)'; then
+        fail "$name" "left behind: $(ls "$tmp" | grep ckpt | tr '\n' ' ')"
+    else
+        ok "$name: the reference's bytes, resumed after pass $want"
+    fi
+}
+
+killed() { # killed NAME RC: the run was killed by SIGKILL
+    if [ "$2" -eq 137 ]; then ok "$1: killed"; else fail "$1" "exit $2, not killed: $(head -c 300 "$tmp/$1.err")"; fi
+}
+
+rm -f "$ck"
+rc=$("$bin" fit "${model[@]}" --json "$tmp/ref.json" "$tmp/big.csv" 2>"$tmp/ref.err" >/dev/null; echo $?)
+[ "$rc" -eq 0 ] || fail reference "exit $rc: $(cat "$tmp/ref.err")"
+strip "$tmp/ref.json" >"$tmp/ref.stripped"
+passes=$(/usr/bin/python3 -c 'import json,sys; print(json.load(open(sys.argv[1]))["convergence"]["passes"])' "$tmp/ref.json")
+[ "$passes" -ge 5 ] && ok "reference: $passes passes" || fail reference "only $passes passes"
+
+# the kill points, drawn from the seed: [name, MILLRACE_TEST_KILL, pass resumed after]
+points=$(/usr/bin/python3 - "$seed" "$passes" <<'PY'
+import random, sys
+r = random.Random(int(sys.argv[1])); n = int(sys.argv[2])
+k = r.randint(2, n - 1); c = r.randint(1, n - 2); d = r.randint(2, n - 1)
+print("first-pass pass:1:%d 0" % r.randint(1, 999999))
+print("pass-%d pass:%d:%d %d" % (k, k, r.randint(1, 999999), k - 1))
+print("after-checkpoint-%d checkpoint:%d:after %d" % (c, c, c))
+print("writing-checkpoint-%d checkpoint:%d:during %d" % (d, d, d - 1))
+PY
+)
+while read -r name hook want; do
+    rm -f "$ck"
+    killed "$name" "$(fit "$name.killed" MILLRACE_TEST_KILL="$hook")"
+    rc=$(fit "$name")
+    [ "$rc" -eq 0 ] || fail "$name" "rerun exit $rc: $(head -c 300 "$tmp/$name.err")"
+    same "$name" "$want"
+done <<<"$points"
+
+# killed twice: after the first checkpoint, then within the third pass
+rm -f "$ck"
+killed twice.1 "$(fit twice.1 MILLRACE_TEST_KILL=checkpoint:1:after)"
+killed twice.2 "$(fit twice.2 MILLRACE_TEST_KILL=pass:3:500000)"
+size=$(stat -c %s "$ck")
+rc=$(fit twice)
+same twice 2
+ncoef=$(/usr/bin/python3 -c 'import json,sys; print(len(json.load(open(sys.argv[1]))["coefficients"]))' "$tmp/ref.json")
+echo "# the checkpoint of this fit (10^6 rows in 62 blocks, $ncoef coefficients) takes $size bytes"
+
+# refused checkpoints: each says why and the fit starts afresh, to the same bytes
+refused() { # refused NAME WHY
+    local rc
+    rc=$(fit "$1")
+    if [ "$rc" -ne 0 ]; then fail "$1" "exit $rc: $(head -c 300 "$tmp/$1.err")"; return; fi
+    if grep -q "checkpoint .*$2.*starts afresh" "$tmp/$1.err" && [ "$(grep -c . "$tmp/$1.err")" -eq 1 ]; then
+        ok "$1: said in one line: $(cat "$tmp/$1.err")"
+    else fail "$1" "stderr: $(cat "$tmp/$1.err")"; fi
+    same "$1" 0
+}
+rm -f "$ck"
+killed cut.killed "$(fit cut.killed MILLRACE_TEST_KILL=checkpoint:2:after)"
+head -c $(($(stat -c %s "$ck") - 100)) "$ck" >"$tmp/cut" && mv "$tmp/cut" "$ck"
+refused truncated "cut short"
+# (a whole fit of the other file removes its checkpoint: killed after its first)
+killed other.killed "$(env MILLRACE_TEST_KILL=checkpoint:1:after "$bin" fit "${model[@]}" --checkpoint "$ck" \
+    "$tmp/other.csv" >/dev/null 2>"$tmp/other.killed.err"; echo $?)"
+refused other-input "made for another input file"
+killed touched.killed "$(fit touched.killed MILLRACE_TEST_KILL=checkpoint:1:after)"
+touch -d '2020-01-01' "$tmp/big.csv" # the JSON says the input's time: a new reference
+"$bin" fit "${model[@]}" --json "$tmp/ref.json" "$tmp/big.csv" >/dev/null 2>&1 || fail reference "again"
+strip "$tmp/ref.json" >"$tmp/ref.stripped"
+refused touched-input "size or time changed"
+killed options.killed "$(fit options.killed MILLRACE_TEST_KILL=checkpoint:1:after)"
+model+=(--level 0.9)
+rc=$(fit options)
+grep -q "another model or other options" "$tmp/options.err" && [ "$rc" -eq 0 ] && ok "other options: said" ||
+    fail "other options" "exit $rc: $(cat "$tmp/options.err")"
+
+# standard input cannot be read again after a kill: refused
+rc=$(head -n 1000 "$tmp/big.csv" | "$bin" fit "${model[@]}" --checkpoint "$ck" - >/dev/null 2>"$tmp/stdin.err"; echo $?)
+[ "$rc" -eq 2 ] && grep -q "read only once" "$tmp/stdin.err" && ok "standard input refused" ||
+    fail "standard input" "exit $rc: $(cat "$tmp/stdin.err")"
+# a set of files (or a directory) is refused: a checkpoint records one file
+head -n 1000 "$tmp/big.csv" >"$tmp/a.csv"
+head -n 1 "$tmp/big.csv" >"$tmp/b.csv" && sed -n 1001,2000p "$tmp/big.csv" >>"$tmp/b.csv"
+rc=$("$bin" fit "${model[@]}" --checkpoint "$ck" "$tmp/a.csv" "$tmp/b.csv" >/dev/null 2>"$tmp/set.err"; echo $?)
+[ "$rc" -eq 2 ] && grep -q "a set of 2 files" "$tmp/set.err" && [ ! -e "$ck" ] && ok "a set of files refused" ||
+    fail "set of files" "exit $rc: $(cat "$tmp/set.err")"
+# a factor declared many keeps its levels' state outside the IRLS state a
+# checkpoint carries: refused until it is carried
+printf 'outcome admissions\nfamily poisson\nexposure person_years\nfactor region many\nnumeric year\n' >"$tmp/many.model"
+rc=$("$bin" fit --quiet -m "$tmp/many.model" --checkpoint "$ck" "$root/samples/falls.csv" >/dev/null 2>"$tmp/many.err"; echo $?)
+[ "$rc" -eq 2 ] && grep -q "factor declared many" "$tmp/many.err" && [ ! -e "$ck" ] && ok "a factor declared many refused" ||
+    fail "factor declared many" "exit $rc: $(cat "$tmp/many.err")"
+
+# robust standard errors by clusters of region (not grouped: held in a
+# table), from a final pass at the converged coefficients: killed inside an
+# IRLS pass and inside that final pass, each goes on to the reference's
+# bytes, robust object included; the robust type changed is another option
+model+=(--robust hc1 --cluster region)
+rm -f "$ck"
+"$bin" fit "${model[@]}" --json "$tmp/ref.json" "$tmp/big.csv" >/dev/null 2>"$tmp/ref.err" ||
+    fail "robust reference" "$(cat "$tmp/ref.err")"
+strip "$tmp/ref.json" >"$tmp/ref.stripped"
+grep -q '"robust"' "$tmp/ref.stripped" && ok "robust reference: a robust object" || fail "robust reference" "no robust object"
+passes=$(/usr/bin/python3 -c 'import json,sys; print(json.load(open(sys.argv[1]))["convergence"]["passes"])' "$tmp/ref.json")
+killed robust-irls.killed "$(fit robust-irls.killed MILLRACE_TEST_KILL=pass:3:400000)"
+rc=$(fit robust-irls)
+[ "$rc" -eq 0 ] || fail robust-irls "rerun exit $rc: $(head -c 300 "$tmp/robust-irls.err")"
+same robust-irls 2
+# the final pass is the last one counted; the last checkpoint came two before
+killed robust-meat.killed "$(fit robust-meat.killed MILLRACE_TEST_KILL=pass:$passes:600000)"
+rc=$(fit robust-meat)
+[ "$rc" -eq 0 ] || fail robust-meat "rerun exit $rc: $(head -c 300 "$tmp/robust-meat.err")"
+same robust-meat $((passes - 2))
+killed robust-type.killed "$(fit robust-type.killed MILLRACE_TEST_KILL=checkpoint:2:after)"
+model+=(--robust hc0)
+rc=$(fit robust-type)
+grep -q "another model or other options" "$tmp/robust-type.err" && [ "$rc" -eq 0 ] &&
+    [ "$(resumed_after "$tmp/robust-type.json")" = 0 ] && ok "robust type changed: said, started afresh" ||
+    fail "robust type changed" "exit $rc: $(cat "$tmp/robust-type.err")"
+# a family parameter estimated alongside (negative binomial theta) and a
+# series log-likelihood (Tweedie): killed within pass 3, the rerun gives the
+# reference's bytes (the parameter travels in the IRLS state)
+for fam in "negative-binomial theta=estimate" "tweedie power=1.5"; do
+    name=${fam%% *}
+    model=(--outcome events --family "$fam" --exposure followup --factor age_band --factor sex --factor region
+           --numeric deprivation --numeric age --no-collapse --threads 2)
+    rm -f "$ck"
+    "$bin" fit "${model[@]}" --json "$tmp/ref.json" "$tmp/big.csv" >/dev/null 2>"$tmp/ref.err" ||
+        fail "$name reference" "$(cat "$tmp/ref.err")"
+    strip "$tmp/ref.json" >"$tmp/ref.stripped"
+    killed "$name.killed" "$(fit "$name.killed" MILLRACE_TEST_KILL=pass:3:400000)"
+    rc=$(fit "$name")
+    [ "$rc" -eq 0 ] || fail "$name" "rerun exit $rc: $(head -c 300 "$tmp/$name.err")"
+    same "$name" 2
+done
+finish
