@@ -1,5 +1,5 @@
-/* html.h - what the page's files share (html.c writes the page and its
- * tables, html_plots.c the rows of its plots, svg.c draws them). */
+/* html.h - what the page's files share (html.c writes the page,
+ * html_fit.c each fit's tables, html_plots.c the rows of its plots, svg.c draws them). */
 #ifndef MR_HTML_H
 #define MR_HTML_H
 
@@ -20,6 +20,13 @@ typedef struct mr__html_page {
     const char *groups_path;   /* a scoring run's group table (JSON), or NULL */
     mr__strbuf funnel;         /* its section, built before the page */
 } mr__html_page;
+
+/* Fit k's section: its tables, then its plots (html_fit.c); "Fit K:
+ * FILE", the name the page gives fit k; an AIC or BIC as the page writes
+ * it (buf: 32 bytes), or what a fit without one has instead. */
+void mr__html_fit_section(mr__strbuf *b, const mr__html_page *pg, size_t k);
+void mr__html_fit_name(mr__strbuf *b, const mr__html_page *pg, size_t k);
+const char *mr__html_criterion(char buf[32], const mr_fit *f, double v);
 
 /* The plots of fit k: ratios (or coefficients) by term; fitted values
  * across the levels of each factor. */

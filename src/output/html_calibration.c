@@ -1,5 +1,7 @@
 /* html_calibration.c - the calibration plot: observed against expected
- * by tenth of the fitted mean, from the fit's "calibration" groups.
+ * by tenth of the fitted mean, from the fit's "calibration" groups, with
+ * the exact interval of each group's observed mean for a Poisson or
+ * binomial outcome (exact_interval.h).
  *
  * The plot takes plain arrays (mr__html_calibration_data, html.h); where they
  * come from is one call, calibration_of() below: the fit's accessors. */
@@ -8,6 +10,7 @@
 #include <string.h>
 
 #include "common/alloc.h"
+#include "output/exact_interval.h"
 #include "output/html.h"
 #include "output/html_text.h"
 #include "output/svg_xy.h"
@@ -47,30 +50,46 @@ bad:
     return 0;
 }
 
-/* Observed and expected are the groups' weighted totals; the plot shows
- * them per unit of weight (means), unless they already lie within the
- * group's range of fitted means (means as given). */
-static int given_as_means(const mr__html_calibration_data *c)
+/* The exact interval of each group's observed mean, where the totals are
+ * counts: a Poisson outcome's sum of y, Garwood's interval divided by the
+ * weight (the group's rows); a binomial outcome's events out of its
+ * trials, Clopper-Pearson's.  A prior weight makes the totals weighted
+ * sums, and other families' outcomes are no counts: NULL then, with the
+ * reason in words in `why`. */
+static const char *interval_kind(const mr_fit *f, const char **why)
 {
-    size_t i;
-    for (i = 0; i < c->n; i++) {
-        double e = c->expected[i], tol = 1e-9 * (fabs(c->mean_low[i]) + fabs(c->mean_high[i]));
-        if (e < c->mean_low[i] - tol || e > c->mean_high[i] + tol) return 0;
-    }
-    return 1;
+    *why = NULL;
+    if (f->weight) *why = "a prior weight makes each group's observed total a weighted sum, not a count";
+    else if (f->family == MR_POISSON) return "Garwood's exact Poisson interval of the observed count (chi-square "
+                                             "quantiles), divided by the group's weight";
+    else if (f->family == MR_BINOMIAL) return "the Clopper-Pearson exact binomial interval of the events observed "
+                                              "out of the group's trials (beta quantiles)";
+    else *why = "exact intervals are drawn for a Poisson or binomial outcome only";
+    return NULL;
 }
 
-static void table(mr__strbuf *t, const mr__html_calibration_data *c, const double *ex, const double *ob, int digits)
+static void observed_interval(const mr_fit *f, double count, double weight, double *lo, double *hi)
 {
-    size_t i;
+    if (f->family == MR_BINOMIAL) {
+        mr__clopper_pearson_interval(count, weight, f->level, lo, hi);
+        return;
+    }
+    mr__garwood_interval(count, f->level, lo, hi);
+    *lo /= weight;
+    *hi /= weight;
+}
+
+static void table(mr__strbuf *t, const mr__html_calibration_data *c, const mr__svg_point *pt, int digits)
+{
+    size_t i, k, nv = isnan(pt[0].lo) ? 7 : 9;
     mr__strbuf_printf(t, "<table class=\"num\"><thead><tr><th>group</th><th>rows</th><th>weight</th>"
-                         "<th>fitted mean from</th><th>to</th><th>observed</th><th>expected</th><th>O/E</th>"
-                         "</tr></thead><tbody>\n");
+                         "<th>fitted mean from</th><th>to</th><th>observed</th><th>expected</th><th>O/E</th>%s"
+                         "</tr></thead><tbody>\n", nv == 9 ? "<th>observed low</th><th>observed high</th>" : "");
     for (i = 0; i < c->n; i++) {
-        const double v[] = {c->rows[i], c->weight[i], c->mean_low[i], c->mean_high[i], ob[i], ex[i], ob[i] / ex[i]};
-        size_t k;
+        const double v[] = {c->rows[i], c->weight[i], c->mean_low[i], c->mean_high[i], pt[i].y, pt[i].x,
+                            pt[i].y / pt[i].x, pt[i].lo, pt[i].hi};
         mr__strbuf_printf(t, "<tr><td>%zu</td>", i + 1);
-        for (k = 0; k < 7; k++) {
+        for (k = 0; k < nv; k++) {
             mr__strbuf_printf(t, "<td>");
             mr__html_number(t, v[k], k == 0 ? 17 : digits);
             mr__strbuf_printf(t, "</td>");
@@ -80,53 +99,82 @@ static void table(mr__strbuf *t, const mr__html_calibration_data *c, const doubl
     mr__strbuf_printf(t, "</tbody></table>\n");
 }
 
+/* What the plot shows, for its <desc> and caption. */
+static void describe(mr__strbuf *d, const mr_fit *f, const mr__html_calibration_data *c)
+{
+    const char *why, *kind = interval_kind(f, &why);
+    mr__strbuf_printf(d, "Each point is a group of rows (%s), %zu groups: the mean fitted by the model (x) and "
+                         "the mean observed (y), both per unit of weight. Points on the grey line y = x are "
+                         "calibrated; above it the model under-predicts, below it over-predicts. ", c->basis, c->n);
+    if (kind) mr__strbuf_printf(d, "Vertical lines: the %g%% interval of each observed mean, %s; it allows for "
+                                   "chance alone, given the group's rows. ", 100 * f->level, kind);
+    else mr__strbuf_printf(d, "No interval is drawn: %s. ", why);
+    if (kind && f->dispersion_estimated)
+        mr__strbuf_printf(d, "The dispersion is estimated at %.3g: the data vary more than the interval assumes, "
+                             "which is then too narrow by about a factor sqrt(%.3g). ", f->dispersion, f->dispersion);
+    mr__strbuf_printf(d, "A good calibration within the data used for the fit is expected and no proof that the "
+                         "model holds for other data.");
+}
+
+/* The unit of the means: per row, per trial, per unit of prior weight. */
+static void axis_label(mr__strbuf *a, const mr_fit *f, const char *what)
+{
+    mr__strbuf_printf(a, "%s mean of %s", what, f->outcome);
+    if (f->family == MR_BINOMIAL) mr__strbuf_printf(a, " (a proportion: events per %s)", f->weight ? "unit of weight" : "trial");
+    else mr__strbuf_printf(a, " per %s", f->weight ? "unit of prior weight" : "row");
+}
+
+/* The groups' points: means per unit of weight, each with the interval
+ * of its observed mean where there is one; diag: the range of both. */
+static void points(const mr_fit *f, const mr__html_calibration_data *c, mr__svg_point *pt, double diag[2])
+{
+    const char *why, *kind = interval_kind(f, &why);
+    size_t i;
+    diag[0] = INFINITY, diag[1] = -INFINITY;
+    for (i = 0; i < c->n; i++) {
+        pt[i].x = c->expected[i] / c->weight[i], pt[i].y = c->observed[i] / c->weight[i];
+        pt[i].lo = pt[i].hi = NAN, pt[i].flagged = 0;
+        if (kind && c->weight[i] > 0) observed_interval(f, c->observed[i], c->weight[i], &pt[i].lo, &pt[i].hi);
+        diag[0] = fmin(diag[0], fmin(pt[i].x, pt[i].y));
+        diag[1] = fmax(diag[1], fmax(pt[i].x, pt[i].y));
+    }
+}
+
 void mr__html_calibration_plot(mr__strbuf *b, const mr__html_page *pg, size_t k, const mr__html_calibration_data *c)
 {
     const mr_fit *f = pg->fit[k];
-    int means = given_as_means(c);
-    double *v = mr__malloc_array(2 * c->n + 2, sizeof *v), *ex = v, *ob = v ? v + c->n : NULL, diag[2];
-    mr__svg_point *pt = mr__malloc_array(c->n, sizeof *pt);
+    mr__svg_point *pt = mr__malloc_array(c->n + 1, sizeof *pt);
+    double diag[2];
     mr__strbuf title, desc, axis_x, axis_y, t;
     mr__svg_line line;
     mr__svg_xy xy;
-    size_t i;
     char id[32];
-    if (v == NULL || pt == NULL) {
-        b->failed = 1;
-        goto done;
+    if (pt == NULL || c->n == 0) {
+        b->failed = pt == NULL;
+        mr__free(pt);
+        return;
     }
-    diag[0] = INFINITY, diag[1] = -INFINITY;
-    for (i = 0; i < c->n; i++) {
-        ex[i] = means ? c->expected[i] : c->expected[i] / c->weight[i];
-        ob[i] = means ? c->observed[i] : c->observed[i] / c->weight[i];
-        pt[i].x = ex[i], pt[i].y = ob[i], pt[i].lo = pt[i].hi = NAN, pt[i].flagged = 0;
-        diag[0] = fmin(diag[0], fmin(ex[i], ob[i]));
-        diag[1] = fmax(diag[1], fmax(ex[i], ob[i]));
-    }
+    points(f, c, pt, diag);
     mr__strbuf_init(&title), mr__strbuf_init(&desc), mr__strbuf_init(&axis_x), mr__strbuf_init(&axis_y);
     mr__strbuf_init(&t);
     mr__strbuf_printf(&title, "Calibration: observed against fitted mean of %s, by group", f->outcome);
-    mr__strbuf_printf(&desc, "Each point is a group of rows (%s), %zu groups: the mean fitted by the model (x) and "
-                             "the mean observed (y), both per unit of weight. Points on the grey line y = x are "
-                             "calibrated; above it the model under-predicts, below it over-predicts. A good "
-                             "calibration within the data used for the fit is expected and no proof that the model "
-                             "holds for other data.", c->basis, c->n);
-    mr__strbuf_printf(&axis_x, "fitted mean of %s", f->outcome);
-    mr__strbuf_printf(&axis_y, "observed mean of %s", f->outcome);
-    table(&t, c, ex, ob, pg->digits);
+    describe(&desc, f, c);
+    axis_label(&axis_x, f, "fitted");
+    axis_label(&axis_y, f, "observed");
+    table(&t, c, pt, pg->digits);
     memset(&xy, 0, sizeof xy);
     snprintf(id, sizeof id, "calibration-%zu", k + 1);
     line.x = diag, line.y = diag, line.n = 2, line.style = MR__LINE_THIN;
     xy.id = id, xy.title = title.data, xy.desc = desc.data, xy.xaxis = axis_x.data, xy.yaxis = axis_y.data;
     xy.xlog = xy.ylog = diag[0] > 0 && diag[1] > 20 * diag[0];
     xy.point = pt, xy.npoints = c->n, xy.line = &line, xy.nlines = 1, xy.yref = NAN, xy.table = t.data;
-    xy.legend = "Blue circles: groups; grey line: observed = fitted.";
+    xy.legend = isnan(pt[0].lo) ? "Blue circles: groups; grey line: observed = fitted."
+                                : "Blue circles: groups, vertical line: the interval of the observed mean; grey "
+                                  "line: observed = fitted.";
     if (title.failed || desc.failed || axis_x.failed || axis_y.failed || t.failed) b->failed = 1;
     else mr__svg_xy_chart(b, &xy);
     mr__strbuf_release(&title), mr__strbuf_release(&desc), mr__strbuf_release(&axis_x);
     mr__strbuf_release(&axis_y), mr__strbuf_release(&t);
-done:
-    mr__free(v);
     mr__free(pt);
 }
 

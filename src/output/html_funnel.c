@@ -19,6 +19,7 @@
 #include "common/probability.h"
 #include "output/html.h"
 #include "output/html_text.h"
+#include "output/json_text.h"
 #include "output/svg_xy.h"
 
 #define CURVE_POINTS 160
@@ -72,6 +73,18 @@ static double real_of(json_t *o, const char *key)
     return json_is_number(v) ? json_number_value(v) : NAN;
 }
 
+/* The bytes a key's text stands for (json_text.h's escape undone, so
+ * that mr__html_text shows them as the fit's own tables do); the text as
+ * it is when it is no such escape. */
+static void put_unescaped(mr__strbuf *s, const char *text)
+{
+    char *raw = NULL;
+    mr_status st = mr__json_unescape(text, strlen(text), &raw);
+    if (st == MR_ERR_NO_MEMORY) s->failed = 1;
+    mr__strbuf_printf(s, "%s", st == MR_OK ? raw : text);
+    mr__free(raw);
+}
+
 /* "COL=VALUE, COL=VALUE" of a group's key. */
 static char *label_of(json_t *key)
 {
@@ -80,9 +93,13 @@ static char *label_of(json_t *key)
     json_t *v;
     mr__strbuf_init(&s);
     mr__strbuf_append(&s, "", 0);
-    json_object_foreach(key, col, v) mr__strbuf_printf(&s, "%s%s=%s", s.len ? ", " : "", col,
-                                                       json_is_string(v) ? json_string_value(v) : "(blank)");
-    return mr__strbuf_take(&s);
+    json_object_foreach(key, col, v) {
+        mr__strbuf_printf(&s, "%s", s.len ? ", " : "");
+        put_unescaped(&s, col);
+        mr__strbuf_printf(&s, "=");
+        put_unescaped(&s, json_is_string(v) ? json_string_value(v) : "(blank)");
+    }
+    return mr__strbuf_take(&s); /* NULL when out of memory */
 }
 
 static mr_status load(const char *path, groups *gs, mr__error *err)

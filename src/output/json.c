@@ -59,11 +59,13 @@ static const char *term_kind(const mr_fit *f, const mr__fit_term *t)
 static json_t *term_test(const mr_fit *f, const mr__fit_term *t)
 {
     json_t *o;
+    /* robust standard errors: asymptotic, chi-square (term_test.c) */
+    int is_f = f->dispersion_estimated && !f->robust;
     if (t->test_df == 0) return json_null();
     o = json_object();
-    o = put(o, "distribution", json_string(f->dispersion_estimated ? "F" : "chi-square"));
+    o = put(o, "distribution", json_string(is_f ? "F" : "chi-square"));
     o = put(o, "df", json_integer((json_int_t)t->test_df));
-    o = put(o, "denominator_df", f->dispersion_estimated ? num(f->df_residual) : json_null());
+    o = put(o, "denominator_df", is_f ? num(f->df_residual) : json_null());
     o = put(o, "statistic", num(t->test_stat));
     o = put(o, "chi2", num(t->test_chi2));
     return put(o, "p_value", num(t->test_p));

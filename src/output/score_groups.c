@@ -25,43 +25,12 @@
 
 #include "common/alloc.h"
 #include "common/outfile.h"
-#include "common/probability.h"
 #include "common/strbuf.h"
 #include "family/family.h"
 #include "fit/fit.h"
 #include "fit/scorer.h"
+#include "output/exact_interval.h"
 #include "output/json_text.h"
-
-/* The chi-square quantile: P(X <= x) = p, by bisection on the survival
- * function until the bracket stops shrinking (monotone, so exact to the
- * last bits the survival function gives). */
-static double chisq_quantile(double p, double df)
-{
-    double lo = 0, hi = df + 10, q = 1 - p;
-    int i;
-    while (mr__chisq_sf(hi, df) > q && hi < 1e300) hi *= 2;
-    for (i = 0; i < 2000; i++) {
-        double mid = lo + (hi - lo) / 2;
-        if (mid <= lo || mid >= hi) break;
-        if (mr__chisq_sf(mid, df) > q) lo = mid;
-        else hi = mid;
-    }
-    return lo + (hi - lo) / 2;
-}
-
-/* The beta quantile: I_x(a, b) = p, by bisection (monotone in x). */
-static double beta_quantile(double p, double a, double b)
-{
-    double lo = 0, hi = 1;
-    int i;
-    for (i = 0; i < 2000; i++) {
-        double mid = lo + (hi - lo) / 2;
-        if (mid <= lo || mid >= hi) break;
-        if (mr__incbeta(a, b, mid) < p) lo = mid;
-        else hi = mid;
-    }
-    return lo + (hi - lo) / 2;
-}
 
 typedef struct oe_row {
     double ratio, low, high;
@@ -69,11 +38,11 @@ typedef struct oe_row {
 
 static oe_row observed_expected(double o, double e, double level)
 {
-    double a = 1 - level;
     oe_row r;
     r.ratio = o / e;
-    r.low = o > 0 ? chisq_quantile(a / 2, 2 * o) / 2 / e : 0;
-    r.high = (o > 0 ? chisq_quantile(1 - a / 2, 2 * (o + 1)) : chisq_quantile(1 - a, 2)) / 2 / e;
+    mr__garwood_interval(o, level, &r.low, &r.high);
+    r.low /= e;
+    r.high /= e;
     return r;
 }
 
@@ -81,14 +50,12 @@ static oe_row observed_expected(double o, double e, double level)
  * O / n, times n / E (see the top). */
 static oe_row observed_expected_binomial(double o, double e, double n, double level)
 {
-    double a = 1 - level;
     oe_row r;
     if (o > n) o = n; /* rounding of sums of w y */
     r.ratio = o / e;
-    if (o <= 0) r.low = 0;
-    else r.low = beta_quantile(o < n ? a / 2 : a, o, n - o + 1) * n / e;
-    if (o >= n) r.high = n / e;
-    else r.high = beta_quantile(o > 0 ? 1 - a / 2 : 1 - a, o + 1, n - o) * n / e;
+    mr__clopper_pearson_interval(o, n, level, &r.low, &r.high);
+    r.low = r.low * n / e; /* as (bound n) / E, bit for bit */
+    r.high = r.high * n / e;
     return r;
 }
 

@@ -3,10 +3,13 @@
 # and XML's well-formedness (python3's html.parser and xml.etree, in
 # tests/cli/html/check_page.py), the page's own promises (no reference to
 # anything outside it, every plot with marks and text alternatives, the
-# same bytes for the same fits), and the README's escape of text.
+# same bytes for the same fits), and the README's escape of text; the
+# numbers of the page's tables against the fits' JSON, rounded as the page
+# rounds them (tests/cli/html/check_numbers.py, which says which digits).
 # tests/cli/html_browser.sh shows the page in a real browser.
 source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
 checker="$here/html/check_page.py"
+numbers="$here/html/check_numbers.py"
 
 fit() { # fit NAME ARGS...: a fit saved as $tmp/NAME.json
     local name=$1
@@ -18,6 +21,17 @@ page_ok() { # page_ok NAME SECTION...: $tmp/NAME.html passes the checker
     shift
     check "$name: well-formed, self-contained, plots drawn, sections" /usr/bin/python3 "$checker" "$tmp/$name.html" "$@"
 }
+numbers_ok() { # numbers_ok NAME [--digits N] [--groups FILE] FIT.json...: the tables' numbers are the fits'
+    local name=$1
+    shift
+    local opts=()
+    while [ "${1:0:2}" = "--" ]; do opts+=("$1" "$2"); shift 2; done
+    if /usr/bin/python3 "$numbers" "${opts[@]}" "$tmp/$name.html" "$@" >"$tmp/numbers.out" 2>&1; then
+        ok "$name: the tables' numbers are the JSON's ($(tail -1 "$tmp/numbers.out"))"
+    else
+        fail "$name: the tables' numbers are the JSON's" "$(head -5 "$tmp/numbers.out")"
+    fi
+}
 
 fit falls -m "$root/samples/falls.model" "$root/samples/falls.csv.zst"
 fit screening -m "$root/samples/screening.model" "$root/samples/screening.csv"
@@ -26,6 +40,7 @@ fit rerun -m "$root/samples/falls.model" "$tmp/falls-part.csv"
 
 check "falls page" "$bin" report --html "$tmp/falls.html" --at year=2020 "$tmp/falls.json"
 page_ok falls cautions fit-1 forest-1 effect-1-1 effect-1-2 effect-1-3 curve-1-1 not-shown
+numbers_ok falls "$tmp/falls.json"
 for want in '<h3>Coefficients</h3>' '<h3>Convergence</h3>' 'factor    age_band  ref=40-44' 'rows left out' \
     'year at 2020' 'rate ratio' 'admissions per 1,000 person_years' 'delta method' 'Validate before use' \
     'calibration plot' 'reference' '<h3>Term tests</h3>' '<td>age_band &amp; sex</td><td>chi-square</td>' \
@@ -35,6 +50,7 @@ done
 
 check "screening page" "$bin" report --html "$tmp/screening.html" --digits 3 "$tmp/screening.json"
 page_ok screening cautions fit-1 forest-1 effect-1-1 effect-1-2 curve-1-1 curve-1-2 curve-1-3 not-shown
+numbers_ok screening --digits 3 "$tmp/screening.json"
 for want in 'odds ratio' 'fitted probability of attended (%)' 'age at 62.0885 (its mean)' 'missing bmi' \
     'bmi runs from 16.1 to 45.8'; do
     grep -qF "$want" "$tmp/screening.html" || fail "screening page says '$want'" "not found"
@@ -42,10 +58,12 @@ done
 
 check "two fits" "$bin" report --html "$tmp/two.html" --at year=2020 "$tmp/falls.json" "$tmp/rerun.json"
 page_ok two fit-1 fit-2 comparison change-2 not-shown
+numbers_ok two "$tmp/falls.json" "$tmp/rerun.json"
 check "two fits: read different data, so AIC is not compared" grep -q 'not comparable' "$tmp/two.html"
 check "three fits: each against the first" "$bin" report --html "$tmp/three.html" "$tmp/falls.json" \
     "$tmp/rerun.json" "$tmp/falls.json"
 page_ok three comparison change-2 change-3
+numbers_ok three "$tmp/falls.json" "$tmp/rerun.json" "$tmp/falls.json"
 
 # A calibration plot where the fit's file holds calibration groups (the
 # object of tests/cli/html/calibration.json added to a fresh fit).
@@ -53,6 +71,7 @@ page_ok three comparison change-2 change-3
 json.dump(f, open(sys.argv[3], "w"), indent=1)' "$tmp/falls.json" "$here/html/calibration.json" "$tmp/calib.json"
 check "calibration page" "$bin" report --html "$tmp/calib.html" --at year=2020 "$tmp/calib.json"
 page_ok calib fit-1 forest-1 calibration-1
+numbers_ok calib "$tmp/calib.json"
 check "calibration: ten groups in its table" test "$(sed -n '/<figure id="calibration-1">/,/<\/figure>/p' "$tmp/calib.html" | grep -c '^<tr><td>')" = 10
 check "calibration: the groups' basis said" grep -qF 'tenths of the fitted mean (invented' "$tmp/calib.html"
 check "a fresh fit's own calibration groups plotted" test "$(grep -c 'id="calibration-' "$tmp/falls.html")" -gt 0
@@ -67,6 +86,7 @@ check "no calibration plot without the groups" test "$(grep -c 'id="calibration-
 json.dump(f, open(sys.argv[2], "w"), indent=1)' "$tmp/screening.json" "$tmp/older.json"
 check "older fit page" "$bin" report --html "$tmp/older.html" "$tmp/older.json"
 page_ok older fit-1 forest-1 effect-1-1
+numbers_ok older "$tmp/older.json"
 check "older fit: numerics at 0, said" grep -qF 'does not record the values of its numeric columns' "$tmp/older.html"
 check "older fit: no curve, said" grep -qF 'No effect curve for age: this fit does not record its range' "$tmp/older.html"
 
@@ -75,6 +95,7 @@ check "older fit: no curve, said" grep -qF 'No effect curve for age: this fit do
     "$root/samples/falls.csv.zst" || fail "score --by-out" "exit $?"
 check "funnel page" "$bin" report --html "$tmp/funnel.html" --groups "$tmp/groups.json" "$tmp/falls.json"
 page_ok funnel fit-1 groups funnel
+numbers_ok funnel --groups "$tmp/groups.json" "$tmp/falls.json"
 for want in 'exact Poisson control limits' 'Groups outside the 95% limits' 'region=Brindlemarch, age_band=00-04' \
     'expected count' 'observed / expected'; do
     grep -qF "$want" "$tmp/funnel.html" || fail "funnel page says '$want'" "not found"
@@ -90,18 +111,22 @@ done
 fit aliased --outcome y --family poisson --numeric x1 --numeric x2 --factor g "$tmp/cases.csv"
 check "aliased page" "$bin" report --html "$tmp/aliased.html" "$tmp/aliased.json"
 page_ok aliased fit-1 forest-1 effect-1-1 curve-1-1
+numbers_ok aliased "$tmp/aliased.json"
 check "aliased: said in the table and the plots" test "$(grep -c 'aliased (no estimate)\|not estimable' "$tmp/aliased.html")" -ge 2
 fit quasi --outcome y --family poisson --dispersion estimate --exposure n --numeric x1 --factor g "$tmp/cases.csv"
 check "quasi page" "$bin" report --html "$tmp/quasi.html" "$tmp/quasi.json"
 page_ok quasi fit-1 forest-1 effect-1-1 curve-1-1
+numbers_ok quasi "$tmp/quasi.json"
 check "quasi: t intervals, dispersion estimated" grep -qF 'dispersion estimated' "$tmp/quasi.html"
 fit onelevel --outcome y --family poisson --factor one --factor g --numeric x1 "$tmp/cases.csv"
 check "single-level factor page" "$bin" report --html "$tmp/onelevel.html" "$tmp/onelevel.json"
 page_ok onelevel fit-1 forest-1 effect-1-2 curve-1-1
+numbers_ok onelevel "$tmp/onelevel.json"
 awk 'BEGIN { print "y,unit,x"; for (i = 0; i < 4000; i++) print 1 + (i * 7 + int(i / 1000)) % 5 + (i % 1000 == 3) * 20 ",u" sprintf("%04d", i % 1000) "," i % 13 }' >"$tmp/big.csv"
 fit big --outcome y --family poisson --factor unit --numeric x "$tmp/big.csv"
 check "1,000 coefficients page" "$bin" report --html "$tmp/big.html" "$tmp/big.json"
 page_ok big fit-1 forest-1 curve-1-1
+numbers_ok big "$tmp/big.json"
 check "1,000 coefficients: the forest plot shows 40, says so" grep -qF 'shown are the 40 of largest' "$tmp/big.html"
 check "1,000 coefficients: no effect plot of 1,000 levels, says so" grep -qF 'at most 100 are drawn' "$tmp/big.html"
 
@@ -122,6 +147,7 @@ check "deterministic: the same fits, the same bytes" cmp "$tmp/two.html" "$tmp/t
 fit hostile --outcome y --family poisson --exposure n --factor 'gr<u>' "$tmp/hostile.csv"
 check "hostile page" "$bin" report --html "$tmp/hostile.html" "$tmp/hostile.json"
 page_ok hostile fit-1 forest-1 effect-1-1
+numbers_ok hostile "$tmp/hostile.json"
 check "no markup from the data" test "$(grep -c '<script\|<u>' "$tmp/hostile.html")" = 0
 check "level escaped" grep -qF 'a&lt;script&gt;alert(1)&lt;/script&gt;' "$tmp/hostile.html"
 check "quotes escaped" grep -qF 'b&amp;&quot;x&#39;' "$tmp/hostile.html"
@@ -132,6 +158,7 @@ check "a byte that is not UTF-8 shows as \\xE9" grep -qF 'R\xE9gion' "$tmp/hosti
 check "hostile funnel page" "$bin" report --html "$tmp/hostile-funnel.html" --groups "$tmp/hostile-groups.json" \
     "$tmp/hostile.json"
 page_ok hostile-funnel groups funnel
+numbers_ok hostile-funnel --groups "$tmp/hostile-groups.json" "$tmp/hostile.json"
 check "funnel: no markup from the data" test "$(grep -c '<script\|<u>' "$tmp/hostile-funnel.html")" = 0
 check "funnel: group key escaped" grep -qF 'gr&lt;u&gt;=a&lt;script&gt;' "$tmp/hostile-funnel.html"
 
