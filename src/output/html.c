@@ -147,16 +147,25 @@ static void comparison(mr__strbuf *b, const mr__html_page *pg)
 
 /* ---- the page ------------------------------------------------------------ */
 
+/* The README's "Statistical cautions", shortened: one item for each of
+ * its items, under the same words (tests/cli/html.sh checks they match). */
 static const char cautions[] =
     "<section id=\"cautions\" class=\"caution\">\n<h2>Before using these results</h2>\n<ul>\n"
-    "<li><strong>Assumptions.</strong> A GLM assumes independent observations, the chosen variance function and a "
-    "linear predictor correct on the link scale. With many rows every p-value is tiny, a wrong model's too.</li>\n"
+    "<li><strong>Model assumptions.</strong> A GLM assumes independent observations, the chosen variance function "
+    "and a linear predictor correct on the link scale. With many rows every p-value is tiny, a wrong model's "
+    "too.</li>\n"
     "<li><strong>Overdispersion.</strong> Counts often vary more than Poisson allows: compare the Pearson "
-    "chi-square with its residual df; well above 1 means the intervals are too narrow.</li>\n"
+    "chi-square with its residual df; well above 1 means the intervals are too narrow (refit with the dispersion "
+    "estimated). Robust standard errors with few clusters are too small.</li>\n"
     "<li><strong>Confounding.</strong> Ratios are adjusted only for the terms in the model; associations are not "
-    "causal effects.</li>\n"
-    "<li><strong>Data.</strong> Rows with a missing value were left out: see the counts. Coding changes between "
-    "data refreshes look like trends.</li>\n"
+    "causal effects, and aggregated data add biases of their own.</li>\n"
+    "<li><strong>Data quality.</strong> Rows with a missing value were left out (see the counts): unbiased only "
+    "when what is missing depends on the model's covariates alone. Coding changes between data refreshes look "
+    "like trends.</li>\n"
+    "<li><strong>Pooled files.</strong> Several files are fitted as one data set with one set of coefficients: "
+    "check them one by one first.</li>\n"
+    "<li><strong>Separation and sparse cells.</strong> Heed the warnings: a coefficient of a term with zero events "
+    "or perfect prediction (not estimable) is no estimate.</li>\n"
     "<li><strong>Validate before use.</strong> These results may inform health decisions: check the model against "
     "an independent tool and review it in full. Estimates are evidence for decisions, not decisions.</li>\n"
     "</ul>\n</section>\n";

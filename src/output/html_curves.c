@@ -196,7 +196,7 @@ static void one_curve(mr__strbuf *b, mr__html_profile *p, size_t k, size_t n, co
     const mr_fit *f = p->fit;
     double a, z, eta, se, scale;
     curve *c = mr__malloc(sizeof *c);
-    mr__strbuf title, desc, axis, t;
+    mr__strbuf title, desc, axis, t, xname;
     mr__svg_line line;
     mr__svg_xy xy;
     char id[48];
@@ -218,6 +218,8 @@ static void one_curve(mr__strbuf *b, mr__html_profile *p, size_t k, size_t n, co
     mr__html_design_row(p, row, scratch);
     mr__html_linear_predictor(f, row, &eta, &se);
     mr__strbuf_init(&title), mr__strbuf_init(&desc), mr__strbuf_init(&axis), mr__strbuf_init(&t);
+    mr__strbuf_init(&xname);
+    mr__strbuf_printf(&xname, "%s (in the units of the data)", name); /* the fit knows no units */
     scale = mr__html_effect_scale(f, mr__html_inverse_link(f, eta), &axis);
     compute(p, a, z, scale, row, scratch, c);
     texts(p, name, a, z, spline, &title, &desc, &axis);
@@ -225,13 +227,14 @@ static void one_curve(mr__strbuf *b, mr__html_profile *p, size_t k, size_t n, co
     memset(&xy, 0, sizeof xy);
     snprintf(id, sizeof id, "curve-%zu-%zu", k + 1, n);
     line.x = c->x, line.y = c->est, line.n = CURVE_POINTS, line.style = MR__LINE_CURVE;
-    xy.id = id, xy.title = title.data, xy.desc = desc.data, xy.xaxis = name, xy.yaxis = axis.data;
+    xy.id = id, xy.title = title.data, xy.desc = desc.data, xy.xaxis = xname.data, xy.yaxis = axis.data;
     xy.ylog = f->link == MR_LOG, xy.line = &line, xy.nlines = 1, xy.yref = NAN, xy.table = t.data;
     xy.band_x = c->x, xy.band_lo = c->lo, xy.band_hi = c->hi, xy.nband = CURVE_POINTS;
     xy.legend = "Blue line: fitted value; shaded band: its interval.";
-    if (title.failed || desc.failed || axis.failed || t.failed) b->failed = 1;
+    if (title.failed || desc.failed || axis.failed || t.failed || xname.failed) b->failed = 1;
     else mr__svg_xy_chart(b, &xy);
     mr__strbuf_release(&title), mr__strbuf_release(&desc), mr__strbuf_release(&axis), mr__strbuf_release(&t);
+    mr__strbuf_release(&xname);
     mr__free(c);
 }
 

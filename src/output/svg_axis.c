@@ -1,5 +1,7 @@
 /* svg_axis.c - see svg_axis.h. */
 #include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
 
 #include "output/html_text.h"
 #include "output/svg_axis.h"
@@ -97,8 +99,21 @@ void mr__svg_figure_caption(mr__strbuf *b, const char *title, const char *desc)
     mr__strbuf_printf(b, "</figcaption>\n");
 }
 
+/* A tick's value as read: 3 significant digits, and from 1,000 to below
+ * 10^9 a whole number with thousands separators (not 3e+03: a tick at
+ * 3 10^3 computed by pow is rarely a whole number, so round first). */
 void mr__svg_tick_label(mr__strbuf *b, double v)
 {
-    if (fabs(v) >= 1e3 && fabs(v) < 1e9 && v == floor(v)) mr__strbuf_printf(b, "%.0f", v); /* not 1e+03 */
-    else mr__html_number(b, v, 3);
+    char buf[32], digits[32];
+    double r;
+    size_t i, n;
+    snprintf(buf, sizeof buf, "%.3g", v);
+    r = strtod(buf, NULL);
+    if (!(fabs(r) >= 1e3 && fabs(r) < 1e9)) {
+        mr__html_number(b, v, 3);
+        return;
+    }
+    n = (size_t)snprintf(digits, sizeof digits, "%.0f", fabs(r));
+    if (r < 0) mr__strbuf_printf(b, "&#8722;");
+    for (i = 0; i < n; i++) mr__strbuf_printf(b, "%s%c", i && (n - i) % 3 == 0 ? "," : "", digits[i]);
 }

@@ -48,6 +48,13 @@ for want in '<h3>Coefficients</h3>' '<h3>Convergence</h3>' 'factor    age_band  
     grep -qF "$want" "$tmp/falls.html" || fail "falls page says '$want'" "not found"
 done
 
+# Each of the README's statistical cautions, under its own words, on the page.
+sed -n '/^## Statistical cautions/,/^## /p' "$root/README.md" | grep -o '^- \*\*[^*]*\*\*' | sed 's/^- \*\*//; s/\*\*$//' >"$tmp/cautions"
+check "the README's cautions found" test "$(wc -l <"$tmp/cautions")" -ge 5
+while read -r caution; do
+    grep -qF "<strong>$caution</strong>" "$tmp/falls.html" || fail "the page's cautions have '$caution'" "not found"
+done <"$tmp/cautions"
+
 check "screening page" "$bin" report --html "$tmp/screening.html" --digits 3 "$tmp/screening.json"
 page_ok screening cautions fit-1 forest-1 effect-1-1 effect-1-2 curve-1-1 curve-1-2 curve-1-3 not-shown
 numbers_ok screening --digits 3 "$tmp/screening.json"

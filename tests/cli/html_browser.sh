@@ -6,7 +6,8 @@
 # - its screenshot is not blank (tests/cli/html/png_ink.py decodes the PNG
 #   with zlib and counts the pixels that are not white);
 # - the DOM the browser built holds every plot with drawn marks, well-formed
-#   (tests/cli/html/check_page.py on --dump-dom);
+#   (tests/cli/html/check_page.py on --dump-dom), and its tables the fits'
+#   numbers (tests/cli/html/check_numbers.py);
 # - the console shows no error;
 # - the page prints to a non-empty PDF.
 # Without Chromium (make test-deps installs the `chromium` package) the test
@@ -58,6 +59,9 @@ run_browser dom --dump-dom
 check "DOM as the browser built it: plots with marks, well-formed" /usr/bin/python3 "$here/html/check_page.py" \
     "$tmp/dom.out" cautions fit-1 fit-2 fit-3 forest-1 effect-1-1 curve-1-1 curve-3-2 calibration-1 comparison \
     change-2 groups funnel not-shown
+check "DOM as the browser built it: the tables' numbers are the fits' JSON's" /usr/bin/python3 \
+    "$here/html/check_numbers.py" --groups "$tmp/groups.json" "$tmp/dom.out" "$tmp/calib.json" "$tmp/rerun.json" \
+    "$tmp/screening.json"
 plots=$(grep -o '<figure id="[^"]*"' "$tmp/page.html" | wc -l)
 drawn=$(grep -o '<figure id="[^"]*"' "$tmp/dom.out" | wc -l)
 check "every plot of the page is in the browser's DOM ($plots)" test "$plots" -gt 5 -a "$plots" = "$drawn"
