@@ -57,8 +57,11 @@ static void summary_data(mr__strbuf *b, const mr_fit *f)
     row_count(b, "rows read", f->rows_read);
     row_count(b, "rows used", f->rows_used);
     row_count(b, "rows left out", f->rows_read - f->rows_used);
+    if (f->rows_incomplete)
+        mr__strbuf_printf(b, "<tr><td>&#8195;a model column missing</td><td>%llu</td></tr>\n",
+                          (unsigned long long)f->rows_incomplete);
     for (i = 0; i < f->nmissing; i++) {
-        put(b, "<tr><td>&#8195;missing ");
+        put(b, "<tr><td>&#8195;&#8195;missing ");
         mr__html_text(b, f->missing_name[i]);
         mr__strbuf_printf(b, "</td><td>%llu</td></tr>\n", (unsigned long long)f->missing_count[i]);
     }

@@ -44,7 +44,7 @@ numbers_ok falls "$tmp/falls.json"
 for want in '<h3>Coefficients</h3>' '<h3>Convergence</h3>' 'factor    age_band  ref=40-44' 'rows left out' \
     'year at 2020' 'rate ratio' 'admissions per 1,000 person_years' 'delta method' 'Validate before use' \
     'calibration plot' 'reference' '<h3>Term tests</h3>' '<td>age_band &amp; sex</td><td>chi-square</td>' \
-    'Effect curve: admissions per 1,000 person_years along year'; do
+    'Effect curve: admissions per 1,000 person_years along year' "Garwood&#39;s exact Poisson interval of the observed count"; do
     grep -qF "$want" "$tmp/falls.html" || fail "falls page says '$want'" "not found"
 done
 
@@ -59,7 +59,7 @@ check "screening page" "$bin" report --html "$tmp/screening.html" --digits 3 "$t
 page_ok screening cautions fit-1 forest-1 effect-1-1 effect-1-2 curve-1-1 curve-1-2 curve-1-3 not-shown
 numbers_ok screening --digits 3 "$tmp/screening.json"
 for want in 'odds ratio' 'fitted probability of attended (%)' 'age at 62.0885 (its mean)' 'missing bmi' \
-    'bmi runs from 16.1 to 45.8'; do
+    'bmi runs from 16.1 to 45.8' 'Clopper-Pearson exact binomial interval of the events observed'; do
     grep -qF "$want" "$tmp/screening.html" || fail "screening page says '$want'" "not found"
 done
 
@@ -120,11 +120,23 @@ check "aliased page" "$bin" report --html "$tmp/aliased.html" "$tmp/aliased.json
 page_ok aliased fit-1 forest-1 effect-1-1 curve-1-1
 numbers_ok aliased "$tmp/aliased.json"
 check "aliased: said in the table and the plots" test "$(grep -c 'aliased (no estimate)\|not estimable' "$tmp/aliased.html")" -ge 2
+# Rows left out by each reason, and a prior weight (no interval in the
+# calibration plot, said).
+{ cat "$tmp/cases.csv" | sed '1s/$/,w/; 2,$s/$/,1/'; echo "3,,1,g1,solo,10,1"; echo "2,4,8"; echo "1,2,4,g2,solo,10,0"; } >"$tmp/left.csv"
+fit left --outcome y --family poisson --numeric x1 --factor g --weight w --on-bad-row skip "$tmp/left.csv"
+check "rows left out page" "$bin" report --html "$tmp/left.html" "$tmp/left.json"
+page_ok left fit-1 forest-1 calibration-1
+numbers_ok left "$tmp/left.json"
+for want in 'a model column missing' 'missing x1' 'malformed, skipped' 'used, weight 0' \
+    'No interval is drawn: a prior weight'; do
+    grep -qF "$want" "$tmp/left.html" || fail "rows left out page says '$want'" "not found"
+done
 fit quasi --outcome y --family poisson --dispersion estimate --exposure n --numeric x1 --factor g "$tmp/cases.csv"
 check "quasi page" "$bin" report --html "$tmp/quasi.html" "$tmp/quasi.json"
 page_ok quasi fit-1 forest-1 effect-1-1 curve-1-1
 numbers_ok quasi "$tmp/quasi.json"
 check "quasi: t intervals, dispersion estimated" grep -qF 'dispersion estimated' "$tmp/quasi.html"
+check "quasi: the calibration intervals too narrow, said" grep -qF 'too narrow by about a factor sqrt(' "$tmp/quasi.html"
 fit onelevel --outcome y --family poisson --factor one --factor g --numeric x1 "$tmp/cases.csv"
 check "single-level factor page" "$bin" report --html "$tmp/onelevel.html" "$tmp/onelevel.json"
 page_ok onelevel fit-1 forest-1 effect-1-2 curve-1-1

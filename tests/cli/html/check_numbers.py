@@ -151,6 +151,9 @@ def check_data_read(ck, t, fit, where):
     ck.same(f"{where} rows left out", rows.get("rows left out"), str(n["read"] - n["used"]))
     for col, count in n.get("missing_by_column", {}).items():
         ck.same(f"{where} missing {col}", rows.get("missing " + col), str(count))
+    for label, key in (("a model column missing", "incomplete"), ("malformed, skipped", "bad"),
+                       ("used, weight 0", "zero_weight")):
+        ck.same(f"{where} {label}", rows.get(label), str(n[key]) if n.get(key) else None)
 
 
 def check_coefficients(ck, t, fit, where):
