@@ -1,7 +1,9 @@
 """Checks a page written by `millrace report --html`, with the standard
 library only: well-formed (every element closed in order, HTML's void
 elements aside), each SVG plot well-formed XML with a title, a desc, an
-aria-label and drawn marks, no reference to anything outside the file, and
+aria-label, drawn marks and its axes labelled, no two kinds of mark
+told apart by colour alone (grey print), every colour of the page from
+the Okabe-Ito palette or a grey, no reference to anything outside the file, and
 the sections asked for; and the page parses as HTML5 with html5lib in
 strict mode (Debian's python3-html5lib, a test package), which stops at the
 first parse error of the HTML5 specification's parsing algorithm.
@@ -56,6 +58,51 @@ def html5_errors(raw):
     return []
 
 
+# The colours the page may use: the Okabe-Ito blue and vermillion (Okabe
+# and Ito, "Color Universal Design", 2008), a light tint of the blue for
+# bands, and greys (equal red, green and blue) for everything else.
+PALETTE = {"0072b2", "d55e00", "cfe3f1"}
+SVG = "{http://www.w3.org/2000/svg}"
+
+
+def colour_problems(text):
+    bad = set()
+    for c in re.findall(r"#([0-9a-fA-F]{6}|[0-9a-fA-F]{3})\b(?![0-9a-fA-F;])", text):
+        c = c.lower()
+        full = "".join(ch * 2 for ch in c) if len(c) == 3 else c
+        if full not in PALETTE and not (full[0:2] == full[2:4] == full[4:6]):
+            bad.add("#" + c)
+    return [f"a colour outside the Okabe-Ito palette and greys: {c}" for c in sorted(bad)]
+
+
+def axis_problems(fid, svg):
+    """Every plot's value axis labelled (an x-y chart: both axes), in
+    words, not empty."""
+    labels = [("".join(e.itertext())).strip() for e in svg.iter()
+              if e.tag in ("text", SVG + "text") and "axis" in (e.get("class") or "").split()]
+    want = 1 if fid.split("-")[0] in ("forest", "effect", "change") else 2
+    if len([a for a in labels if a]) < want:
+        return [f"{fid}: {len(labels)} axis labels, want {want}"]
+    return []
+
+
+def grey_print_problems(fid, svg):
+    """No two marks that differ in colour alone: in grey print the blue and
+    the vermillion are about the same grey, so shape (element), filling
+    or dashes must tell them apart too."""
+    seen = {}
+    for e in svg.iter():
+        if "mark" not in (e.get("class") or "").split():
+            continue
+        tag, fill = e.tag.replace(SVG, ""), (e.get("fill") or "none").lower()
+        filled = fill not in ("none", "#fff")
+        colour = fill if filled else (e.get("stroke") or "")
+        key = (tag, e.get("class"), filled, fill == "#fff", e.get("stroke-dasharray"))
+        seen.setdefault(key, set()).add(colour.lower())
+    mixed = [k for k, c in seen.items() if len(c - {"#fff", "#000"}) > 1]
+    return [f"{fid}: marks {k[0]} told apart by colour alone" for k in mixed]
+
+
 def main():
     path, sections = sys.argv[1], sys.argv[2:]
     raw = open(path, "rb").read()
@@ -69,6 +116,7 @@ def main():
         problems.append("an http:// or https:// reference")
     if re.search(r"url\(|@import|@font-face", text):
         problems.append("a style that loads something")
+    problems += colour_problems(re.sub(r"&#[0-9]+;", "", text))
     if re.search(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]", text):
         problems.append("a control character in the text")
     problems += html5_errors(raw)
@@ -98,6 +146,8 @@ def main():
             problems.append(f"{fid}: no marks drawn")
         if "<details>" not in body or "<table" not in body:
             problems.append(f"{fid}: no data table")
+        problems += axis_problems(fid, svg)
+        problems += grey_print_problems(fid, svg)
     for s in sections:
         if s not in p.ids:
             problems.append(f"section {s} missing")
