@@ -99,21 +99,23 @@ void mr__svg_figure_caption(mr__strbuf *b, const char *title, const char *desc)
     mr__strbuf_printf(b, "</figcaption>\n");
 }
 
-/* A tick's value as read: 3 significant digits, and from 1,000 to below
- * 10^9 a whole number with thousands separators (not 3e+03: a tick at
- * 3 10^3 computed by pow is rarely a whole number, so round first). */
+/* A tick's value as read: 3 significant digits, but a whole number from
+ * 1000 to below 10^9 in full (not 3e+03; a tick at 3 10^3 computed by
+ * pow is rarely exactly whole, so 9 digits first), with thousands
+ * separators from 10,000 on. */
 void mr__svg_tick_label(mr__strbuf *b, double v)
 {
     char buf[32], digits[32];
     double r;
     size_t i, n;
-    snprintf(buf, sizeof buf, "%.3g", v);
+    snprintf(buf, sizeof buf, "%.9g", v);
     r = strtod(buf, NULL);
-    if (!(fabs(r) >= 1e3 && fabs(r) < 1e9)) {
+    if (!(fabs(r) >= 1e3 && fabs(r) < 1e9 && r == floor(r))) {
         mr__html_number(b, v, 3);
         return;
     }
     n = (size_t)snprintf(digits, sizeof digits, "%.0f", fabs(r));
     if (r < 0) mr__strbuf_printf(b, "&#8722;");
-    for (i = 0; i < n; i++) mr__strbuf_printf(b, "%s%c", i && (n - i) % 3 == 0 ? "," : "", digits[i]);
+    for (i = 0; i < n; i++) /* 2020 stays a year: separators from 10,000 */
+        mr__strbuf_printf(b, "%s%c", n > 4 && i && (n - i) % 3 == 0 ? "," : "", digits[i]);
 }

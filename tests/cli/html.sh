@@ -48,6 +48,9 @@ for want in '<h3>Coefficients</h3>' '<h3>Convergence</h3>' 'factor    age_band  
     grep -qF "$want" "$tmp/falls.html" || fail "falls page says '$want'" "not found"
 done
 
+check "tick labels: a year as a year, no exponent" test "$(grep -c 'middle">2016<' "$tmp/falls.html")" -gt 0 -a \
+    "$(grep -c 'middle">[^<]*e+0' "$tmp/falls.html")" = 0
+
 # Each of the README's statistical cautions, under its own words, on the page.
 sed -n '/^## Statistical cautions/,/^## /p' "$root/README.md" | grep -o '^- \*\*[^*]*\*\*' | sed 's/^- \*\*//; s/\*\*$//' >"$tmp/cautions"
 check "the README's cautions found" test "$(wc -l <"$tmp/cautions")" -ge 5
@@ -107,6 +110,8 @@ for want in 'exact Poisson control limits' 'Groups outside the 95% limits' 'regi
     'expected count' 'observed / expected'; do
     grep -qF "$want" "$tmp/funnel.html" || fail "funnel page says '$want'" "not found"
 done
+check "funnel: tick labels 5000 and 10,000, no exponent" test "$(grep -c 'middle">10,000<\|middle">5000<' "$tmp/funnel.html")" -gt 0 -a \
+    "$(grep -c 'middle">[^<]*e+0' "$tmp/funnel.html")" = 0
 
 # The render cases: an aliased column, a quasi family, a factor of one
 # level, and 1,000 coefficients (the forest plot shows the 40 of largest
