@@ -188,6 +188,7 @@ asan-check: asan $(B)/synth
 	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/checkpoint.sh
 	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/robust.sh
 	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/filesets.sh
+	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/html.sh
 
 # The threaded paths under ThreadSanitizer (OpenBLAS is not instrumented:
 # its internal races are not ours and are suppressed).

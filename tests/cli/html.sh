@@ -8,6 +8,7 @@
 # rounds them (tests/cli/html/check_numbers.py, which says which digits).
 # tests/cli/html_browser.sh shows the page in a real browser.
 source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
+bin=${MILLRACE:-$bin} # make asan-check runs it on the ASan build
 checker="$here/html/check_page.py"
 numbers="$here/html/check_numbers.py"
 
