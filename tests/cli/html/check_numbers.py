@@ -55,6 +55,7 @@ class Tables(HTMLParser):
         super().__init__(convert_charrefs=True)
         self.tables, self.where = [], []
         self.h3, self.text, self.table, self.row, self.in_head, self.cell = "", None, None, None, False, None
+        self.values, self.value = {}, None  # figure id: the numbers written beside a dot chart's rows
 
     def handle_starttag(self, tag, attrs):
         a = dict(attrs)
@@ -62,6 +63,10 @@ class Tables(HTMLParser):
             self.where.append((tag, a.get("id", "")))
         elif tag in ("h3", "caption"):
             self.text = []
+        elif tag == "text" and a.get("class") == "value":
+            fig = next((i for t, i in reversed(self.where) if t == "figure"), "")
+            self.value = self.values.setdefault(fig, [])
+            self.value.append("")
         elif tag == "table":
             sec = next((i for t, i in reversed(self.where) if t == "section"), "")
             fig = next((i for t, i in reversed(self.where) if t == "figure"), "")
@@ -75,7 +80,9 @@ class Tables(HTMLParser):
             self.cell = [tag, [], int(a.get("colspan", "1"))]
 
     def handle_endtag(self, tag):
-        if tag in ("section", "figure") and self.where:
+        if tag == "text":
+            self.value = None
+        elif tag in ("section", "figure") and self.where:
             self.where.pop()
         elif tag == "h3" and self.text is not None:
             self.h3, self.text = "".join(self.text).strip(), None
@@ -93,7 +100,9 @@ class Tables(HTMLParser):
             self.row = None
 
     def handle_data(self, data):
-        if self.cell is not None:
+        if self.value is not None:
+            self.value[-1] += data
+        elif self.cell is not None:
             self.cell[1].append(data)
         elif self.text is not None:
             self.text.append(data)
@@ -420,6 +429,21 @@ def check_fit(ck, tables, k, fit):
         check_calibration(ck, t, fit, f"{where} calibration:")
 
 
+def check_beside_rows(ck, p):
+    """A dot chart writes each row's numbers beside it: the same as its
+    table's, as "estimate (low, high)", "reference" or "not estimable"."""
+    for t in p.tables:
+        if t.figure not in p.values:
+            continue
+        want = []
+        for row in t.rows:
+            cells = text(row)
+            if row[0][0] == "th":
+                continue
+            want.append(cells[1] if len(cells) == 2 else f"{cells[1]} ({cells[2]}, {cells[3]})")
+        ck.same(f"{t.figure}: the numbers beside the rows", p.values[t.figure], want)
+
+
 def main(argv):
     digits, groups = 4, None
     while argv and argv[0].startswith("--"):
@@ -452,6 +476,7 @@ def main(argv):
                 check_changes(ck, t, fits[0], fits[k], f"changes 1 to {k + 1}:")
     if groups:
         check_funnel(ck, p.tables, groups)
+    check_beside_rows(ck, p)
     for line in ck.problems[:40]:
         print(line)
     if len(ck.problems) > 40:
