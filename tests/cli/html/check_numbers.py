@@ -26,7 +26,8 @@ value rounded as the page rounds it:
   quantiles; Clopper-Pearson for a binomial outcome, beta quantiles
   (scipy.stats.chi2 and beta, Debian's python3-scipy);
 - the funnel section: each group's observed, expected and O/E, and the
-  Garwood interval of the groups outside the limits, from the table.
+  Garwood interval of the groups outside the limits, from the table;
+- the numbers a dot chart writes beside its rows: its table's.
 The effect plots' and curves' numbers, and the funnel's control limits,
 are checked against statsmodels, R and scipy in tests/ref/html_effects.py.
 Usage: check_numbers.py [--digits D] [--groups GROUPS.json] PAGE FIT.json...
