@@ -204,6 +204,9 @@ static void page(mr__strbuf *b, const mr__html_page *pg)
         mr__html_text(b, pg->fit[k]->version);
         put(b, k + 1 < pg->nfits ? ", " : ").</p>\n");
     }
+    mr__strbuf_printf(b, "<p>Numbers are rounded to %d significant digits (p-values to 3; deviance, Pearson "
+                         "chi-square, dispersion, AIC and BIC to 8); the fits' JSON files hold them in full.</p>\n",
+                      pg->digits);
     contents(b, pg);
     put(b, cautions);
     for (k = 0; k < pg->nfits; k++) mr__html_fit_section(b, pg, k);

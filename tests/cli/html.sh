@@ -63,7 +63,7 @@ check "screening page" "$bin" report --html "$tmp/screening.html" --digits 3 "$t
 page_ok screening cautions fit-1 forest-1 effect-1-1 effect-1-2 curve-1-1 curve-1-2 curve-1-3 not-shown
 numbers_ok screening --digits 3 "$tmp/screening.json"
 for want in 'odds ratio' 'fitted probability of attended (%)' 'age at 62.0885 (its mean)' 'missing bmi' \
-    'bmi runs from 16.1 to 45.8' 'Clopper-Pearson exact binomial interval of the events observed'; do
+    'bmi runs from 16.1 to 45.8' 'rounded to 3 significant digits' 'Clopper-Pearson exact binomial interval of the events observed'; do
     grep -qF "$want" "$tmp/screening.html" || fail "screening page says '$want'" "not found"
 done
 
