@@ -137,6 +137,13 @@ for want in 'a model column missing' 'missing x1' 'malformed, skipped' 'used, we
     'No interval is drawn: a prior weight'; do
     grep -qF "$want" "$tmp/left.html" || fail "rows left out page says '$want'" "not found"
 done
+# Events out of trials: the calibration intervals are Clopper-Pearson's
+# for each group's events out of its trials (its weight).
+awk 'BEGIN { print "k,n,x,g"; for (i = 0; i < 500; i++) { n = 5 + i % 7; print int(n * (0.2 + 0.05 * (i % 9))) "," n "," i % 9 ",g" i % 3 } }' >"$tmp/trials.csv"
+fit trials --outcome k --trials n --family binomial --numeric x --factor g "$tmp/trials.csv"
+check "events out of trials page" "$bin" report --html "$tmp/trials.html" "$tmp/trials.json"
+page_ok trials fit-1 forest-1 calibration-1
+numbers_ok trials "$tmp/trials.json"
 fit quasi --outcome y --family poisson --dispersion estimate --exposure n --numeric x1 --factor g "$tmp/cases.csv"
 check "quasi page" "$bin" report --html "$tmp/quasi.html" "$tmp/quasi.json"
 page_ok quasi fit-1 forest-1 effect-1-1 curve-1-1
