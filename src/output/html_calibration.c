@@ -110,8 +110,9 @@ static void describe(mr__strbuf *d, const mr_fit *f, const mr__html_calibration_
                                    "chance alone, given the group's rows. ", 100 * f->level, kind);
     else mr__strbuf_printf(d, "No interval is drawn: %s. ", why);
     if (kind && f->dispersion_estimated)
-        mr__strbuf_printf(d, "The dispersion is estimated at %.3g: the data vary more than the interval assumes, "
-                             "which is then too narrow by about a factor sqrt(%.3g). ", f->dispersion, f->dispersion);
+        mr__strbuf_printf(d, "The dispersion is estimated at %.3g: the data vary %s than the interval assumes; one "
+                             "that allowed for it would be about sqrt(%.3g) = %.3g times as wide. ",
+                          f->dispersion, f->dispersion > 1 ? "more" : "less", f->dispersion, sqrt(f->dispersion));
     mr__strbuf_printf(d, "A good calibration within the data used for the fit is expected and no proof that the "
                          "model holds for other data.");
 }

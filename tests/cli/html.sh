@@ -149,7 +149,7 @@ check "quasi page" "$bin" report --html "$tmp/quasi.html" "$tmp/quasi.json"
 page_ok quasi fit-1 forest-1 effect-1-1 curve-1-1
 numbers_ok quasi "$tmp/quasi.json"
 check "quasi: t intervals, dispersion estimated" grep -qF 'dispersion estimated' "$tmp/quasi.html"
-check "quasi: the calibration intervals too narrow, said" grep -qF 'too narrow by about a factor sqrt(' "$tmp/quasi.html"
+check "quasi: the calibration intervals too narrow, said" grep -qF 'the data vary more than the interval assumes' "$tmp/quasi.html"
 fit onelevel --outcome y --family poisson --factor one --factor g --numeric x1 "$tmp/cases.csv"
 check "single-level factor page" "$bin" report --html "$tmp/onelevel.html" "$tmp/onelevel.json"
 page_ok onelevel fit-1 forest-1 effect-1-2 curve-1-1
