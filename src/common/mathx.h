@@ -20,4 +20,21 @@ static inline double mr__log1pmx_small(double u)
     return s * (2.0 * w * poly - u);
 }
 
+/* lgamma(x) - [(x - 1/2) log x - x + log sqrt(2 pi)] for x >= 10: the
+ * Stirling series B_2k / (2k (2k-1) x^(2k-1)) through k = 7, whose next
+ * term is below 4e-17 at x = 10.  Keeps large-argument differences of
+ * lgamma free of cancellation. */
+static inline double mr__stirling_corr(double x)
+{
+    double w = 1.0 / (x * x);
+    double s = 1.0 / 156.0;
+    s = s * w - 691.0 / 360360.0;
+    s = s * w + 1.0 / 1188.0;
+    s = s * w - 1.0 / 1680.0;
+    s = s * w + 1.0 / 1260.0;
+    s = s * w - 1.0 / 360.0;
+    s = s * w + 1.0 / 12.0;
+    return s / x;
+}
+
 #endif

@@ -136,34 +136,17 @@ double mr__log_gamma_libm(double x)
     return lgamma_r(x, &sign);
 }
 
-/* lgamma(x) - [(x - 1/2) log x - x + log sqrt(2 pi)] for x >= 10: the
- * Stirling series B_2k / (2k (2k-1) x^(2k-1)) through k = 7, whose next
- * term is below 4e-17 at x = 10.  Keeps large-argument differences of
- * lgamma free of cancellation. */
-static double stirling_corr(double x)
-{
-    double w = 1.0 / (x * x);
-    double s = 1.0 / 156.0;
-    s = s * w - 691.0 / 360360.0;
-    s = s * w + 1.0 / 1188.0;
-    s = s * w - 1.0 / 1680.0;
-    s = s * w + 1.0 / 1260.0;
-    s = s * w - 1.0 / 360.0;
-    s = s * w + 1.0 / 12.0;
-    return s / x;
-}
-
 static double log_beta(double a, double b)
 {
     double p = fmin(a, b), q = fmax(a, b), pq = p + q;
     if (p >= 10.0) {
-        double corr = stirling_corr(p) + stirling_corr(q) - stirling_corr(pq);
+        double corr = mr__stirling_corr(p) + mr__stirling_corr(q) - mr__stirling_corr(pq);
         return LN_SQRT_2PI - 0.5 * log(pq) + (p - 0.5) * log(p / pq) +
                (q - 0.5) * log1p(-p / pq) + corr;
     }
     if (q >= 10.0) {
         /* lgamma(q) - lgamma(p + q) expanded so that no large terms cancel. */
-        double corr = stirling_corr(q) - stirling_corr(pq);
+        double corr = mr__stirling_corr(q) - mr__stirling_corr(pq);
         return mr__log_gamma(p) + (q - 0.5) * log1p(-p / pq) - p * log(pq) + p + corr;
     }
     return mr__log_gamma(p) + mr__log_gamma(q) - mr__log_gamma(pq);
@@ -325,7 +308,7 @@ static double t_log_norm(double df)
     double a = 0.5 * df;
     if (a < 10.0)
         return 0.5 * log(df) + log_beta(a, 0.5);
-    double corr = stirling_corr(a) - stirling_corr(a + 0.5);
+    double corr = mr__stirling_corr(a) - mr__stirling_corr(a + 0.5);
     return mr__log_gamma(0.5) + (a - 0.5) * log1p(-0.5 / (a + 0.5)) - 0.5 * log1p(0.5 / a) +
            0.5 + 0.5 * log(2.0) + corr;
 }
@@ -504,7 +487,7 @@ double mr__t_quantile(double p, double df)
 static double log_gamma_front(double a, double x)
 {
     if (a >= 10.0)
-        return a_log_ratio_minus(a, x) + 0.5 * log(a) - LN_SQRT_2PI - stirling_corr(a);
+        return a_log_ratio_minus(a, x) + 0.5 * log(a) - LN_SQRT_2PI - mr__stirling_corr(a);
     return a * log(x) - x - mr__log_gamma(a);
 }
 
@@ -644,29 +627,4 @@ double mr__f_sf(double f, double df1, double df2)
     for (double b = odd ? 0.5 : 1.0; b < 0.5 * df1; b += 1.0)
         sum += exp(a * log_x + b * log_y - log(b) - log_beta(a, b));
     return fmin(sum, 1.0);
-}
-
-/* Below 10 the recurrences psi(x) = psi(x + 1) - 1/x and psi'(x) =
- * psi'(x + 1) + 1/x^2 move the argument up; from 10 on the asymptotic
- * series in the Bernoulli numbers (Abramowitz and Stegun 6.3.18 and
- * 6.4.12) through x^-14 and x^-15, whose next terms are below 1e-17
- * relative there. */
-double mr__digamma(double x)
-{
-    double r = 0, x2;
-    if (!(x > 0) || isinf(x)) return x == INFINITY ? INFINITY : NAN;
-    while (x < 10) r -= 1 / x, x += 1;
-    x2 = 1 / (x * x);
-    return r + log(x) - 0.5 / x -
-           x2 * (1.0 / 12 - x2 * (1.0 / 120 - x2 * (1.0 / 252 - x2 * (1.0 / 240 - x2 * (1.0 / 132 - x2 * (691.0 / 32760 - x2 / 12))))));
-}
-
-double mr__trigamma(double x)
-{
-    double r = 0, x2;
-    if (!(x > 0) || isinf(x)) return x == INFINITY ? 0.0 : NAN;
-    while (x < 10) r += 1 / (x * x), x += 1;
-    x2 = 1 / (x * x);
-    return r + 1 / x + 0.5 * x2 +
-           x2 / x * (1.0 / 6 - x2 * (1.0 / 30 - x2 * (1.0 / 42 - x2 * (1.0 / 30 - x2 * (5.0 / 66 - x2 * (691.0 / 2730 - x2 * 7.0 / 6))))));
 }

@@ -34,6 +34,13 @@ static inline double mr__log_gamma(double x)
  * its score and information, which are sums of their values. */
 double mr__digamma(double x);
 double mr__trigamma(double x);
+/* For x > 0 and a >= 0: log Gamma(x + a) - log Gamma(x), psi(x + a) -
+ * psi(x) and psi'(x) - psi'(x + a), each to about its own relative
+ * precision however large x is against a (src/common/polygamma.c); 0 for
+ * a = 0, and below x = 10 the plain differences, bit for bit. */
+double mr__log_gamma_ratio(double x, double a);
+double mr__digamma_diff(double x, double a);
+double mr__trigamma_diff(double x, double a);
 
 /* Regularized incomplete beta I_x(a, b) and regularized upper incomplete
  * gamma Q(a, x), exposed for tests. */
