@@ -2,18 +2,19 @@
 # millrace-mpi (make mpi): a fit shared by 1, 2 and 3 processes under
 # Debian's OpenMPI (mpirun --oversubscribe on this machine) writes the JSON
 # of the single-process `millrace fit`, byte for byte but for the run's
-# audit trail and the timings: a plain CSV (cached, and read by the block
-# map with --no-cache), a zstd file of many frames, a set of three files,
-# each with a model that makes several IRLS passes (a continuous covariate
-# of many values, --no-collapse), and a model whose rows collapse into
-# patterns.  600,000 rows: three groups of 16 blocks, so that with 3 ranks
-# each rank owns one.  An error met by rank 1 in its share of pass 2 (the
-# test-only MILLRACE_TEST_SHARE_ERROR hook: the first pass, by rank 0,
-# catches every malformed row, so a real one cannot reach pass 2) ends
-# every rank with that one message, printed once, and the same exit code;
-# standard input and --checkpoint are refused (exit 2).  Without mpicc and
-# mpirun the test says SKIPPED and passes.  Source of truth: the
-# single-process fit of the same data.
+# audit trail and the timings, and rank 0 prints its report: a plain CSV
+# (cached, and read by the block map with --no-cache), a zstd file of many
+# frames, a set of three files, each with a model that makes several IRLS
+# passes (continuous covariates of many values, --no-collapse), a model
+# whose rows collapse into patterns, and a fit started from a previous one.
+# 600,000 rows: three groups of 16 blocks, so that with 3 ranks each rank
+# owns one.  One writer: one run log line, one JSON.  An error met by rank
+# 1 in its share of pass 2 (the test-only MILLRACE_TEST_SHARE_ERROR hook:
+# the first pass, by rank 0, catches every malformed row, so a real one
+# cannot reach pass 2) ends every rank with that one message, printed once,
+# and the same exit code; standard input, --checkpoint and --robust are
+# refused (exit 2).  Without mpicc and mpirun the test says SKIPPED and
+# passes.  Source of truth: the single-process fit of the same data.
 source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
 mpibin=${MILLRACE_MPI:-$root/build/millrace-mpi}
 if ! command -v mpicc > /dev/null || ! command -v mpirun > /dev/null; then
@@ -82,6 +83,9 @@ case_ plain_nocache many --no-cache all.csv
 case_ frames many frames.zst
 case_ fileset many set/a.csv set/b.csv.zst set/c.csv.gz
 case_ collapsed few all.csv
+# a previous fit as the start: every rank reads it (rank 0 alone skips the warm start)
+"$bin" fit --quiet --threads 1 --json prev.json "${many[@]}" set/a.csv > /dev/null 2>&1 || fail prev "exit $?"
+case_ started many --start-from prev.json all.csv
 # one writer: the run log gets one line, the JSON one file and no lock left
 timeout 600 mpirun --oversubscribe -np 3 "$mpibin" fit --quiet --threads 1 --json one.json --run-log runs.log \
     "${few[@]}" all.csv > one.out 2> one.err
