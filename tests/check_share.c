@@ -152,20 +152,6 @@ static void run_ranks(int n, int collapse, int checkpoint, const char *path, ran
     pthread_cond_destroy(&h.cv);
 }
 
-static void assert_same_fit(const mr_fit *a, const mr_fit *b)
-{
-    size_t j;
-    ck_assert_uint_eq(mr_fit_ncoef(a), mr_fit_ncoef(b));
-    for (j = 0; j < mr_fit_ncoef(a); j++) {
-        ck_assert(same_bits(mr_fit_coef(a, j), mr_fit_coef(b, j)));
-        ck_assert(same_bits(mr_fit_covariance(a, j, j), mr_fit_covariance(b, j, j)));
-    }
-    ck_assert(same_bits(mr_fit_stat(a, MR_STAT_DEVIANCE), mr_fit_stat(b, MR_STAT_DEVIANCE)));
-    ck_assert(same_bits(mr_fit_stat(a, MR_STAT_NULL_DEVIANCE), mr_fit_stat(b, MR_STAT_NULL_DEVIANCE)));
-    ck_assert(same_bits(mr_fit_stat(a, MR_STAT_PEARSON_CHI2), mr_fit_stat(b, MR_STAT_PEARSON_CHI2)));
-    ck_assert(same_bits(mr_fit_stat(a, MR_STAT_PASSES), mr_fit_stat(b, MR_STAT_PASSES)));
-}
-
 static mr_fit *plain_fit(int collapse)
 {
     mr_fitter *f = new_fitter(collapse);
@@ -191,7 +177,7 @@ static void check_shared(int collapse)
         for (k = 0; k < counts[c]; k++) {
             ck_assert_msg(runs[k].st == MR_OK, "rank %d of %d: %s", k, counts[c], runs[k].msg);
             ck_assert(runs[k].ended_alike);
-            assert_same_fit(ref, runs[k].fit);
+            mr_check_same_fit(ref, runs[k].fit);
             mr_fit_free(runs[k].fit);
         }
     }
