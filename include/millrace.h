@@ -1158,9 +1158,12 @@ MR_API int mr_fit_coef_not_estimable(const mr_fit *fit, size_t j);
  * or a set streamed, the other ranks' blocks passed over undecoded), all
  * group totals go to every rank, and every rank adds them in group order,
  * the order one process keeps; every rank then takes the same IRLS step.
- * Per pass a rank sends one message: per group of its range, the totals
- * (p(p+1)/2 + p + 12 doubles and two counts for p coefficients, the
- * calibration bins the group's means met).  The first pass is not split;
+ * Per pass one exchange: each rank sends, per group of its range, the
+ * group's totals (p(p+1)/2 + p + 10 doubles and two counts for p
+ * coefficients, and the calibration bins its means met), and receives
+ * every group's; they cannot be summed further by a rank without changing
+ * the last bits.  Every rank then takes the same step (no coefficients are
+ * broadcast).  The first pass is not split;
  * a fit whose rows collapse into covariate patterns (one read, IRLS in
  * memory) runs its passes on every rank alone, with no messages.
  *
@@ -1195,7 +1198,8 @@ MR_API mr_status mr_share_new(int rank, int nranks, mr_share_gather_fn gather, v
 MR_API void mr_share_free(mr_share *s);
 MR_API int mr_share_rank(const mr_share *s);
 MR_API int mr_share_nranks(const mr_share *s);
-/* 1 once an exchange carried an error (or failed): every rank knows it. */
+/* 1 once an exchange carried an error (or failed), which every rank then
+ * knows, or once the share was closed (mr_share_close). */
 MR_API int mr_share_ended(const mr_share *s);
 
 /* The last exchange of a program's shared work, once its own part is done
