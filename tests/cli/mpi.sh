@@ -6,7 +6,8 @@
 # (cached, and read by the block map with --no-cache), a zstd file of many
 # frames, a set of three files, each with a model that makes several IRLS
 # passes (continuous covariates of many values, --no-collapse), a model
-# whose rows collapse into patterns, and a fit started from a previous one.
+# whose rows collapse into patterns, a fit started from a previous one, and
+# a negative binomial whose theta is estimated.
 # 600,000 rows: three groups of 16 blocks, so that with 3 ranks each rank
 # owns one.  One writer: one run log line, one JSON.  An error met by rank
 # 1 in its share of pass 2 (the test-only MILLRACE_TEST_SHARE_ERROR hook:
@@ -42,6 +43,8 @@ split -b 3000000 --filter='zstd -q -1 -c' all.csv > frames.zst
 many=(--outcome events --family poisson --exposure followup --factor age_band --factor sex --numeric bmi
       --numeric age --no-collapse --tolerance 1e-12)
 few=(--outcome events --family poisson --exposure followup --factor age_band --factor sex)
+# theta estimated: its score and information travel with each group's totals
+nb=(--outcome events --family negative-binomial --exposure followup --factor sex --numeric age --no-collapse)
 
 # strip JSON: the fit without its run's audit trail and timings
 strip() {
@@ -83,6 +86,7 @@ case_ plain_nocache many --no-cache all.csv
 case_ frames many frames.zst
 case_ fileset many set/a.csv set/b.csv.zst set/c.csv.gz
 case_ collapsed few all.csv
+case_ negbin nb frames.zst
 # a previous fit as the start: every rank reads it (rank 0 alone skips the warm start)
 "$bin" fit --quiet --threads 1 --json prev.json "${many[@]}" set/a.csv > /dev/null 2>&1 || fail prev "exit $?"
 case_ started many --start-from prev.json all.csv
