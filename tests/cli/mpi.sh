@@ -14,7 +14,8 @@
 # the first pass, by rank 0, catches every malformed row, so a real one
 # cannot reach pass 2) ends every rank with that one message, printed once,
 # and the same exit code; standard input, --checkpoint and --robust are
-# refused (exit 2).  Without mpicc and mpirun the test says SKIPPED and
+# refused (exit 2), and so is a JSON path that is the input (rank 0 alone
+# checks it; the others end with its message's exit code).  Without mpicc and mpirun the test says SKIPPED and
 # passes.  Source of truth: the single-process fit of the same data.
 source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
 mpibin=${MILLRACE_MPI:-$root/build/millrace-mpi}
@@ -87,7 +88,7 @@ case_ frames many frames.zst
 case_ fileset many set/a.csv set/b.csv.zst set/c.csv.gz
 case_ collapsed few all.csv
 case_ negbin nb frames.zst
-# a previous fit as the start: every rank reads it (rank 0 alone skips the warm start)
+# a previous fit as the start: every rank reads it
 "$bin" fit --quiet --threads 1 --json prev.json "${many[@]}" set/a.csv > /dev/null 2>&1 || fail prev "exit $?"
 case_ started many --start-from prev.json all.csv
 # one writer: the run log gets one line, the JSON one file and no lock left
@@ -127,5 +128,8 @@ expect rank2_error 3 4 "rank 2 met a malformed row in pass 3" MILLRACE_TEST_SHAR
 expect stdin_refused 2 2 "does not take standard input" -- "${many[@]}" -
 expect checkpoint_refused 2 2 "does not take a checkpoint" -- "${many[@]}" --checkpoint ck.state all.csv
 expect robust_refused 2 2 "does not take robust" -- "${many[@]}" --robust hc0 all.csv
+# rank 0 alone checks its outputs, before the fit: the others, waiting for
+# its first pass, end with its refusal
+expect output_is_input 3 2 "refusing to overwrite it" -- "${many[@]}" --json all.csv all.csv
 [ ! -e ck.state ] && ok "no checkpoint written" || fail checkpoint_refused "ck.state written"
 finish
