@@ -54,10 +54,11 @@ DEBIAN_PACKAGES := build-essential pkg-config libzstd-dev zlib1g-dev libopenblas
 # tools; groff-base renders the man page, gfortran gives the -lgfortran that
 # openblas.pc names for a static link (tests/cli/install.sh), chromium shows
 # the HTML page in a browser (tests/cli/html_browser.sh), clang and its
-# runtime build the libFuzzer targets (make fuzz-check).
+# runtime build the libFuzzer targets (make fuzz-check), OpenMPI builds and
+# runs millrace-mpi (make mpi-check).
 TEST_PACKAGES := zstd gzip check libsubunit-dev python3 python3-numpy python3-scipy \
                  python3-statsmodels r-base-core r-cran-mass r-cran-sandwich r-cran-statmod valgrind time groff-base \
-                 gfortran chromium clang libclang-rt-dev python3-html5lib
+                 gfortran chromium clang libclang-rt-dev python3-html5lib openmpi-bin libopenmpi-dev
 
 ifeq ($(V),1)
 Q :=
@@ -76,7 +77,7 @@ IOFAIL_OBJ := $(LIB_SRC:%.c=$(B)/iofail/%.o)
 UNIT_SRC := $(filter-out tests/check_alloc.c tests/check_io.c,$(wildcard tests/check_*.c))
 UNIT_BIN := $(UNIT_SRC:tests/%.c=$(B)/tests/%)
 ASAN_UNIT_BIN := $(UNIT_SRC:tests/%.c=$(B)/asan/tests/%)
-CLI_SRC  := $(wildcard src/cli/*.c)
+CLI_SRC  := $(filter-out src/cli/mpi_%.c,$(wildcard src/cli/*.c))
 
 .PHONY: all deps test-deps demo check check-groups unit asan asan-check tsan-check alloc-check io-fault-check valgrind-check cli-check ref-check lint bench clean
 
@@ -204,7 +205,7 @@ valgrind-check: all
 	  bash tests/cli/smoke.sh
 
 cli-check: all
-	@for t in tests/cli/*.sh; do echo "== $$t"; bash $$t || exit 1; done
+	@for t in $(filter-out tests/cli/mpi.sh,$(wildcard tests/cli/*.sh)); do echo "== $$t"; bash $$t || exit 1; done
 
 ref-check: all $(B)/tests/check_spline
 	@for t in tests/ref/*.py; do echo "== $$t"; /usr/bin/python3 $$t || exit 1; done
@@ -226,10 +227,14 @@ lint:
 check: test-deps
 	@$(MAKE) --no-print-directory check-groups
 
-check-groups: lint unit cli-check ref-check asan-check tsan-check alloc-check io-fault-check valgrind-check fuzz-check
-	@echo "test groups: lint, unit, cli, reference, asan+ubsan, tsan, allocation failures, I/O failures, valgrind, fuzz"
-	@if [ -f $(B)/fuzz/skipped ]; then echo "fuzz skipped: no clang"; echo "check: 9 passed, 0 failed, 1 skipped"; \
-	else echo "check: 10 passed, 0 failed"; fi
+check-groups: lint unit cli-check ref-check asan-check tsan-check alloc-check io-fault-check valgrind-check fuzz-check \
+              mpi-check
+	@echo "test groups: lint, unit, cli, reference, asan+ubsan, tsan, allocation failures, I/O failures, valgrind, fuzz, mpi"
+	@skipped=0; \
+	if [ -f $(B)/fuzz/skipped ]; then echo "fuzz skipped: no clang"; skipped=$$((skipped + 1)); fi; \
+	if [ -f $(B)/mpi-skipped ]; then echo "mpi skipped: no mpicc or mpirun"; skipped=$$((skipped + 1)); fi; \
+	if [ $$skipped -gt 0 ]; then echo "check: $$((11 - skipped)) passed, 0 failed, $$skipped skipped"; \
+	else echo "check: 11 passed, 0 failed"; fi
 
 # ---- benchmarks (never a test) ------------------------------------------------
 bench: all
@@ -242,3 +247,27 @@ include mk/install.mk
 include mk/fuzz.mk
 
 -include $(LIB_OBJ:.o=.d) $(ASAN_OBJ:.o=.d) $(TSAN_OBJ:.o=.d) $(ALLOC_OBJ:.o=.d) $(IOFAIL_OBJ:.o=.d) $(CLI_SRC:%.c=$(B)/%.d)
+
+# ---- millrace-mpi: the fit command across processes (optional) -------------
+# Compiled by mpicc from the command's files and mpi_main.c (in place of
+# main.c); the plain build never needs MPI (src/cli/mpi_*.c stay out of it).
+MPICC ?= mpicc
+MPI_CLI_OBJ := $(patsubst %.c,$(B)/%.o,$(filter-out src/cli/main.c,$(CLI_SRC)))
+
+$(B)/mpi/src/cli/mpi_main.o: src/cli/mpi_main.c
+	@mkdir -p $(dir $@)
+	@$(if $(Q),echo "  MPICC   $<")
+	$(Q)$(MPICC) $(CPPFLAGS) -Isrc/cli $(CFLAGS) -c $< -o $@
+
+$(B)/millrace-mpi: $(B)/mpi/src/cli/mpi_main.o $(MPI_CLI_OBJ) $(B)/libmillrace.a
+	$(Q)$(MPICC) $(CFLAGS) -o $@ $^ $(LIBS)
+
+.PHONY: mpi mpi-check
+mpi: $(B)/millrace-mpi
+
+# Without mpicc and mpirun the test says SKIPPED (and check-groups counts it).
+mpi-check: all
+	@rm -f $(B)/mpi-skipped
+	@if command -v $(MPICC) > /dev/null && command -v mpirun > /dev/null; then \
+	  $(MAKE) --no-print-directory mpi && bash tests/cli/mpi.sh; \
+	else bash tests/cli/mpi.sh && touch $(B)/mpi-skipped; fi

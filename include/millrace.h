@@ -1143,6 +1143,81 @@ MR_API void mr_free(void *p);
  * 0 for j out of range. */
 MR_API int mr_fit_coef_not_estimable(const mr_fit *fit, size_t j);
 
+/* ------------------------------------------------------------------ */
+/* A fit shared by several processes (the command's MPI build: README,
+ * "Fitting across processes").  The library knows nothing of MPI: the
+ * caller gives it a way to gather bytes from every process to every
+ * process, and the library keeps the order of additions that makes the
+ * fit the same, to the bit, as one process's (timings aside).
+ *
+ * How a shared fit runs: rank 0 reads the data once (the first pass) and
+ * takes the warm start, as one process does, then sends the first pass's
+ * result and the IRLS state to the others, which take them up as a fit
+ * resumed after its first pass does (mr_fitter_set_checkpoint).  Each IRLS
+ * pass over the data then splits the blocks' groups (16 blocks of 16384
+ * rows each, counted from the first data row) into contiguous ranges, one
+ * per rank: each rank computes only its groups' totals (a plain file read
+ * by the first pass's block map, its own bytes alone; a compressed file
+ * or a set streamed, the other ranks' blocks passed over undecoded), all
+ * group totals go to every rank, and every rank adds them in group order,
+ * the order one process keeps; every rank then takes the same IRLS step.
+ * Per pass one exchange: each rank sends, per group of its range, the
+ * group's totals (p(p+1)/2 + p + 10 doubles and two counts for p
+ * coefficients, and the calibration bins its means met), and receives
+ * every group's; they cannot be summed further by a rank without changing
+ * the last bits.  Every rank then takes the same step (no coefficients are
+ * broadcast).  The first pass is not split;
+ * a fit whose rows collapse into covariate patterns (one read, IRLS in
+ * memory) runs its passes on every rank alone, with no messages.
+ *
+ * Refused under a share of more than one rank (MR_ERR_USAGE): standard
+ * input or a pipe (each rank must read the file itself), a checkpoint,
+ * robust or cluster standard errors, a factor declared `many`, a family
+ * parameter by profile likelihood.  mr_fitter_run and mr_fitter_run_set
+ * take the share; other runs (comparisons, scoring) ignore it.
+ *
+ * Errors: every exchange carries each rank's status and message.  A rank
+ * that fails (its own error or one it met in its blocks) makes one last
+ * exchange with its error instead of its next one; every rank then ends
+ * its run with the error of the lowest rank that failed (the first in the
+ * file's order of rows, as one process would have reported), and the
+ * share has ended: no further exchange takes place (mr_share_ended). */
+typedef struct mr_share mr_share;
+
+/* Gathers every rank's bytes to every rank, in rank order (an allgather of
+ * bytes of any length): `mine` (len bytes) is this rank's; on return
+ * *all holds the ranks' bytes one after another, from malloc (the library
+ * frees it with free), and lens[k] (lens: nranks entries, the library's)
+ * rank k's length.  Every rank calls it the same number of times.
+ * Returns 0, or nonzero when the exchange failed (the run then fails with
+ * MR_ERR_IO). */
+typedef int (*mr_share_gather_fn)(void *user, const void *mine, size_t len, void **all, size_t *lens);
+
+/* A new share: this process is `rank` of `nranks` (0 <= rank < nranks),
+ * exchanging through `gather` with `user`.  *out owned by the caller
+ * (mr_share_free), borrowed by every fitter given it.  MR_ERR_USAGE on
+ * bad arguments, MR_ERR_NO_MEMORY. */
+MR_API mr_status mr_share_new(int rank, int nranks, mr_share_gather_fn gather, void *user, mr_share **out);
+MR_API void mr_share_free(mr_share *s);
+MR_API int mr_share_rank(const mr_share *s);
+MR_API int mr_share_nranks(const mr_share *s);
+/* 1 once an exchange carried an error (or failed), which every rank then
+ * knows, or once the share was closed (mr_share_close). */
+MR_API int mr_share_ended(const mr_share *s);
+
+/* The last exchange of a program's shared work, once its own part is done
+ * (rank 0 wrote the outputs, say): each rank gives its status and message
+ * (NULL: none); returns the lowest failing rank's status, its message in
+ * msg (capacity msgcap, may be 0; "" when none failed), and ends the
+ * share.  On a share that has ended already, no exchange: the status it
+ * ended with. */
+MR_API mr_status mr_share_close(mr_share *s, mr_status status, const char *message, char *msg, size_t msgcap);
+
+/* Fits of f are shared (share borrowed, NULL: a fit of its own, the
+ * default).  The fitter's options and model must be the same on every
+ * rank, and every rank must run it on the same inputs. */
+MR_API void mr_fitter_set_share(mr_fitter *f, mr_share *share);
+
 #ifdef __cplusplus
 }
 #endif

@@ -88,20 +88,6 @@ static mr_status fit(const run_opts *o, const char *checkpoint, mr_fit **out, ch
     return st;
 }
 
-static void assert_same_fit(const mr_fit *a, const mr_fit *b)
-{
-    size_t j;
-    ck_assert_uint_eq(mr_fit_ncoef(a), mr_fit_ncoef(b));
-    for (j = 0; j < mr_fit_ncoef(a); j++) {
-        ck_assert(same_bits(mr_fit_coef(a, j), mr_fit_coef(b, j)));
-        ck_assert(same_bits(mr_fit_covariance(a, j, j), mr_fit_covariance(b, j, j)));
-    }
-    ck_assert(same_bits(mr_fit_stat(a, MR_STAT_DEVIANCE), mr_fit_stat(b, MR_STAT_DEVIANCE)));
-    ck_assert(same_bits(mr_fit_stat(a, MR_STAT_NULL_DEVIANCE), mr_fit_stat(b, MR_STAT_NULL_DEVIANCE)));
-    ck_assert(same_bits(mr_fit_stat(a, MR_STAT_PEARSON_CHI2), mr_fit_stat(b, MR_STAT_PEARSON_CHI2)));
-    ck_assert(same_bits(mr_fit_stat(a, MR_STAT_PASSES), mr_fit_stat(b, MR_STAT_PASSES)));
-}
-
 static unsigned char *read_file(const char *path, size_t *len)
 {
     FILE *f = fopen(path, "rb");
@@ -199,7 +185,7 @@ START_TEST(stopped_fit_goes_on_to_the_same_bits)
     ck_assert_int_eq(fit(&again, ckpt_path, &got, note, sizeof note), MR_OK);
     ck_assert_int_eq(mr_fit_resumed_after_pass(got), 3);
     ck_assert_ptr_nonnull(strstr(note, "resumed after pass 3"));
-    assert_same_fit(ref, got);
+    mr_check_same_fit(ref, got);
     ck_assert_int_ne(access(ckpt_path, F_OK), 0); /* removed once the fit succeeded */
     mr_fit_free(ref);
     mr_fit_free(got);
@@ -228,7 +214,7 @@ START_TEST(zero_level_and_robust_go_on_to_the_same_bits)
     ck_assert_int_eq(fit(&stopping, ckpt_path, &got, NULL, 0), MR_ERR_STOPPED);
     ck_assert_int_eq(fit(&again, ckpt_path, &got, note, sizeof note), MR_OK);
     ck_assert_int_eq(mr_fit_resumed_after_pass(got), 3);
-    assert_same_fit(ref, got);
+    mr_check_same_fit(ref, got);
     ck_assert_int_eq(mr_fit_robust(got), MR_ROBUST_HC1);
     ck_assert_uint_eq(mr_fit_clusters(got), 11);
     for (j = 0; j < mr_fit_ncoef(ref); j++) {
@@ -264,7 +250,7 @@ static void assert_refused(const unsigned char *p, size_t n, const run_opts *o, 
     ck_assert_int_eq(mr_fit_resumed_after_pass(got), 0);
     ck_assert_msg(strstr(note, why) != NULL, "note '%s' lacks '%s'", note, why);
     ck_assert_ptr_nonnull(strstr(note, "starts afresh"));
-    assert_same_fit(ref, got);
+    mr_check_same_fit(ref, got);
     mr_fit_free(got);
 }
 
@@ -338,7 +324,7 @@ START_TEST(collapsed_patterns_round_trip)
         free(ck);
     }
     ck_assert_int_eq(mr_fit_resumed_after_pass(got), 1);
-    assert_same_fit(ref, got);
+    mr_check_same_fit(ref, got);
     mr_fit_free(ref);
     mr_fit_free(got);
     unlink(data_path);

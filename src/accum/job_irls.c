@@ -6,6 +6,7 @@
  * are kept for the passes after it. */
 #include <string.h>
 
+#include "accum/group_bytes.h"
 #include "accum/levelsums.h"
 #include "accum/partial.h"
 #include "accum/pass.h"
@@ -17,6 +18,7 @@ typedef struct irls_job {
     mr__block_sums group; /* the open group's total */
     mr__level_group lgroup; /* its eliminated factor's levels (design->nabsorb > 0) */
     int group_open;
+    mr__partial_range group_blocks; /* the open group's blocks */
 } irls_job;
 
 /* A block's partial result: its sums, and its levels' rows. */
@@ -101,6 +103,8 @@ static void irls_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
 /* The group's total into the pass's, in group order (accum/partial.h). */
 static void close_group(irls_job *j)
 {
+    /* another process adds it in its place too (fit/share.c) */
+    if (j->env->cfg->groups_out) mr__group_encode(&j->group, j->design->p, j->group_blocks, j->env->cfg->groups_out);
     mr__sums_add_totals(&j->env->res->sums, &j->group, j->design->p);
     mr__sums_zero_totals(&j->group, j->design->p);
     if (j->design->nabsorb > 0) mr__level_group_close(&j->lgroup, j->env->res->sums.lev);
@@ -113,6 +117,11 @@ static mr_status irls_add(void *job, mr__pass_slot *s, mr__error *err)
     const mr__pass_cfg *cfg = j->env->cfg;
     irls_part *part = s->part;
     MR__TRY(mr__pass_block_status(s, err));
+    if (!j->group_open) {
+        j->group_blocks.first_block = s->index;
+        j->group_blocks.nblocks = 0;
+    }
+    j->group_blocks.nblocks++;
     mr__sums_add(&j->group, &part->sums, j->design);
     if (j->design->nabsorb > 0) MR__TRY(mr__level_group_add(&j->lgroup, &part->lev, err));
     j->group_open = 1;

@@ -207,11 +207,37 @@ static int workers_fetch(const engine *e) { return replaying(e->cfg) || e->by_ma
 
 static size_t replay_stride(const mr__pass_cfg *cfg) { return cfg->replay_stride > 1 ? cfg->replay_stride : 1; }
 
+/* Whether block i is this pass's to compute and add (mr__pass_cfg.range). */
+static int in_range(const mr__pass_cfg *cfg, uint64_t i)
+{
+    return cfg->range == NULL || (i >= cfg->range->first_block && i - cfg->range->first_block < cfg->range->nblocks);
+}
+
+static int store_holds_range(const mr__pass_cfg *cfg)
+{
+    const mr__partial_range *r = cfg->range;
+    return r == NULL || r->nblocks == 0 ||
+           (r->first_block >= cfg->store->first_block &&
+            r->first_block + r->nblocks <= cfg->store->first_block + cfg->store->n);
+}
+
+/* Workers fetch blocks [lo, n), or the range's within them. */
+static void fetch_between(engine *e, uint64_t lo, uint64_t n)
+{
+    const mr__partial_range *r = e->cfg->range;
+    uint64_t from = r ? r->first_block : lo, to = r ? r->first_block + r->nblocks : n;
+    if (to > n) to = n;
+    if (from > to || from < lo) from = to; /* the store does not hold them: none (the caller checks) */
+    e->next_take = e->next_combine = from;
+    e->emitted = to;
+    e->reader_done = 1;
+}
+
 static void load_kept_block(const mr__pass_cfg *cfg, slot *s)
 {
     const mr__store *store = cfg->store;
     s->raw_bytes = 0;
-    s->kept_index = (size_t)s->index * replay_stride(cfg);
+    s->kept_index = (size_t)(s->index - store->first_block) * replay_stride(cfg);
     if (store->packed) {
         s->kept = mr__store_packed(store, s->kept_index); /* compute() unpacks it */
     } else if (store->fd < 0) {
@@ -298,6 +324,7 @@ static void compute(worker *w, slot *s)
     s->packed_len = 0;
     s->decoded = 0;
     mr__error_clear(&s->err);
+    if (!in_range(cfg, s->index)) return; /* another process's block: read past, never decoded */
     if (s->kept) {
         mr__store_unpack(cfg->store, s->kept, s->kept_index, b, &s->block);
         s->use = &s->block;
@@ -626,8 +653,7 @@ static mr_status begin_stream(engine *e, mr__error *err)
     MR__TRY(init_slots(e, err));
     e->by_map = reads_by_map(e);
     if (e->by_map) {
-        e->emitted = cfg->map->n;
-        e->reader_done = 1;
+        fetch_between(e, 0, cfg->map->n);
         return MR_OK;
     }
     first = &e->slots[0];
@@ -703,6 +729,7 @@ static mr_status add_block(engine *e, slot *s, mr__error *err)
         *err = s->err;
         return s->st;
     }
+    if (!in_range(e->cfg, s->index)) return MR_OK;
     return e->ops->add(e->job, s, err);
 }
 
@@ -859,10 +886,13 @@ mr_status mr__pass_run(const mr__pass_cfg *cfg, mr__pass_result *res, mr__error 
     e.env.plain = e.src != NULL && !mr__source_is_zstd(e.src) && cfg->set == NULL;
     /* the columns are bound now that the header is read */
     if (st == MR_OK) st = e.ops->start(e.job, err);
-    if (st == MR_OK && replaying(cfg)) {
-        e.emitted = (cfg->store->n + replay_stride(cfg) - 1) / replay_stride(cfg);
-        e.reader_done = 1;
-    }
+    if (st == MR_OK && replaying(cfg) && !store_holds_range(cfg))
+        st = mr__fail(err, MR_ERR_INTERNAL, "the kept blocks are not those of this process's range");
+    if (st == MR_OK && replaying(cfg))
+        fetch_between(&e, cfg->store->first_block,
+                      cfg->store->first_block + (cfg->store->n + replay_stride(cfg) - 1) / replay_stride(cfg));
+    /* a store filled by a pass over a range keeps that range's blocks */
+    if (cfg->range && cfg->store && cfg->store_fill && cfg->store->n == 0) cfg->store->first_block = cfg->range->first_block;
     if (st == MR_OK) st = run_threads(&e, t0, err);
     stop_threads(&e);
     finish_source(&e, res);

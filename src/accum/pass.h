@@ -34,6 +34,8 @@
 #include "accum/level_outcomes.h"
 #include "millrace.h"
 #include "accum/pass_job.h"
+#include "accum/partial.h"
+#include "common/bytebuf.h"
 
 /* Which job the pass runs: mr__job_scan or mr__job_irls. */
 typedef enum mr__pass_kind { MR__PASS_SCAN, MR__PASS_IRLS, MR__PASS_SCORE, MR__PASS_MEAT, MR__PASS_SURVEY } mr__pass_kind;
@@ -84,6 +86,12 @@ typedef struct mr__pass_cfg {
                              MR__PASS_SURVEY: its mr__survey_cfg (accum/survey.h) */
     const mr__pass_job_ops *ops; /* NULL: the job of `kind`; else this one
                                     (job_fanout.c: several runs' jobs) */
+    /* MR__PASS_IRLS on one of several processes (fit/share.h): NULL, or
+     * the only blocks computed and added (whole groups); the others are
+     * read from a stream and passed over, never decoded.  A store being
+     * filled keeps these alone (mr__store.first_block). */
+    const mr__partial_range *range;
+    mr__bytebuf *groups_out; /* NULL, or each group total appended (accum/group_bytes.h) */
     int pass_number;
     mr_progress_fn progress;
     mr_progress_stop_fn progress_stop; /* nonzero: the pass fails with MR_ERR_STOPPED */

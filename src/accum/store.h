@@ -30,6 +30,9 @@ typedef struct mr__store {
      * numbers; remap[worker * nfac + f][local] is the shared number. */
     int32_t **remap;
     size_t nfac;
+    /* The block its entry 0 holds: 0, or where a pass over a range of
+     * blocks began keeping them (mr__pass_cfg.range). */
+    uint64_t first_block;
 } mr__store;
 
 void mr__store_init_memory(mr__store *s);

@@ -65,10 +65,14 @@ typedef struct cli {
 } cli;
 
 /* Optional replacements for parts of the fit command (NULL: the
- * library's own).  run fits the data in place of mr_fitter_run_set. */
+ * library's own).  run fits the data in place of mr_fitter_run_set.
+ * no_outputs: another process writes the outputs (millrace-mpi's ranks
+ * but 0, mpi_main.c): no output checks, JSON, lock or run log here, and
+ * the fit's status is the exit code. */
 typedef struct cli_fit_hooks {
     mr_status (*run)(mr_fitter *fitter, const char *const *data, size_t ndata, mr_fit **out, void *user);
     void *user;
+    int no_outputs;
 } cli_fit_hooks;
 
 /* cli.c */

@@ -95,19 +95,23 @@ static int progress_or_stop(const mr_progress *p, void *user)
     return cli_stop_signal() != 0;
 }
 
+/* Whether this process writes the command's files (JSON, its lock, the
+ * run log): not one of millrace-mpi's ranks but 0 (cli_fit_hooks). */
+static int writes_outputs(const cli_fit_hooks *hooks) { return hooks == NULL || !hooks->no_outputs; }
+
 static int run_fit(cli *c, int argc, char **argv, const cli_fit_hooks *hooks)
 {
-    int rc;
+    int rc, writes = writes_outputs(hooks);
     mr_fit *fit = NULL;
     mr_status st;
     if ((rc = cli_options(argc, argv, "m:", cli_fit_options, "bad option", cli_fit_option, c)) != CLI_NEXT) return rc;
     if (optind >= argc) return cli_usage_error("fit takes one or more data files or directories (or - for standard input)");
     c->data = argv[optind];
     if ((rc = cli_apply_model(c)) != 0) return rc;
-    if ((rc = check_outputs(c, argv + optind, (size_t)(argc - optind))) != 0) return rc;
+    if (writes && (rc = check_outputs(c, argv + optind, (size_t)(argc - optind))) != 0) return rc;
     if (mr_fitter_set_command_line(c->fitter, (size_t)c->argc, (const char *const *)c->argv) != MR_OK)
         return cli_fail(MR_ERR_NO_MEMORY, "out of memory");
-    if ((rc = cli_lock_output(c->json_path, &c->lock)) != 0) return rc;
+    if (writes && (rc = cli_lock_output(c->json_path, &c->lock)) != 0) return rc;
     c->show_progress = !c->quiet && isatty(STDERR_FILENO);
     mr_fitter_set_progress_stop(c->fitter, progress_or_stop, c);
     cli_stop_at_block(1);
@@ -125,7 +129,7 @@ static int run_fit(cli *c, int argc, char **argv, const cli_fit_hooks *hooks)
     }
     if (st != MR_OK) return cli_fail(st, mr_fitter_errmsg(c->fitter));
     c->fit = fit;
-    rc = publish(c, fit);
+    rc = writes ? publish(c, fit) : (int)mr_fit_status(fit);
     if (rc == MR_ERR_NOT_CONVERGED) fprintf(stderr, "millrace: the fit did not converge (see the report)\n");
     return rc;
 }
@@ -143,7 +147,8 @@ int cmd_fit(int argc, char **argv, const cli_fit_hooks *hooks)
     if (c.fitter == NULL) return cli_fail(MR_ERR_NO_MEMORY, "out of memory");
     c.argc = argc + 1;
     c.argv = argv - 1;
-    rc = log_run(&c, run_fit(&c, argc, argv, hooks));
+    rc = run_fit(&c, argc, argv, hooks);
+    if (writes_outputs(hooks)) rc = log_run(&c, rc);
     mr_fit_free(c.fit);
     for (i = 0; i < c.nlines; i++) free(c.model_lines[i]);
     free(c.model_lines);

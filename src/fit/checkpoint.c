@@ -90,16 +90,10 @@ static void put_run(mr__bytebuf *b, const mr__run *r)
     mr__bytebuf_u64(b, (uint64_t)r->warm_polish_blocks);
 }
 
-static mr_status encode(mr__run *r, const mr__irls *s, const char *key, mr__bytebuf *b, mr__error *err)
+void mr__checkpoint_put_state(mr__run *r, const mr__irls *s, mr__bytebuf *b)
 {
     size_t start, n = mr__irls_encoded_size(s);
     unsigned char *at;
-    mr__bytebuf_head(b, "MRCK", MR__CHECKPOINT_VERSION);
-    mr__bytebuf_u64(b, 0); /* the length, once known */
-    mr__bytebuf_text(b, r->path, strlen(r->path));
-    mr__bytebuf_u64(b, r->size);
-    mr__bytebuf_u64(b, (uint64_t)r->mtime_ns);
-    mr__bytebuf_text(b, key, strlen(key));
     put_run(b, r);
     mr__bytebuf_u64(b, 0);
     start = b->len;
@@ -107,6 +101,17 @@ static mr_status encode(mr__run *r, const mr__irls *s, const char *key, mr__byte
     if (!b->failed) mr__put_u64(b->data + start - 8, b->len - start);
     mr__bytebuf_u64(b, n);
     if ((at = mr__bytebuf_room(b, n)) != NULL) mr__irls_encode(s, at);
+}
+
+static mr_status encode(mr__run *r, const mr__irls *s, const char *key, mr__bytebuf *b, mr__error *err)
+{
+    mr__bytebuf_head(b, "MRCK", MR__CHECKPOINT_VERSION);
+    mr__bytebuf_u64(b, 0); /* the length, once known */
+    mr__bytebuf_text(b, r->path, strlen(r->path));
+    mr__bytebuf_u64(b, r->size);
+    mr__bytebuf_u64(b, (uint64_t)r->mtime_ns);
+    mr__bytebuf_text(b, key, strlen(key));
+    mr__checkpoint_put_state(r, s, b);
     if (b->failed) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     mr__put_u64(b->data + 8, b->len + 8);
     mr__bytebuf_u64(b, mr__fnv_words(MR__FNV_OFFSET, (const char *)b->data, b->len));
@@ -283,8 +288,9 @@ static void forget_run(mr__run *r)
     r->npasses = r->warm = r->warm_iterations = r->warm_blocks = r->warm_polish_blocks = 0;
 }
 
-/* The parts after the identity: 0 and the state taken, or why not. */
-static const char *take_parts(mr__run *r, mr__byteread *rd, mr__irls *resume, mr__error *err)
+/* The parts after the identity, `trailing` bytes left after them: 0 and
+ * the state taken, or why not. */
+static const char *take_parts(mr__run *r, mr__byteread *rd, size_t trailing, mr__irls *resume, mr__error *err)
 {
     const unsigned char *header, *part;
     uint64_t header_len, n;
@@ -297,7 +303,7 @@ static const char *take_parts(mr__run *r, mr__byteread *rd, mr__irls *resume, mr
     mr__byteread_init(&sub, part, (size_t)n);
     if (mr__first_decode(&sub, &first, &ncol, &nnum, &nfac, err) != MR_OK)
         return err->status == MR_ERR_NO_MEMORY ? "no memory to read it" : "its first-pass result is damaged";
-    if (sub.at != sub.end || (part = mr__byteread_text(rd, &n)) == NULL || rd->end - rd->at != 8 ||
+    if (sub.at != sub.end || (part = mr__byteread_text(rd, &n)) == NULL || (size_t)(rd->end - rd->at) != trailing ||
         mr__irls_decode(part, (size_t)n, resume, err) != MR_OK) {
         mr__pass_result_release(&first, nfac);
         return "its IRLS state is damaged";
@@ -329,7 +335,7 @@ static mr_status try_resume(mr__run *r, mr__irls *resume, int *have, mr__error *
     why = damage(data, len);
     mr__byteread_init(&rd, data + 16, why ? 0 : len - 16);
     if (why == NULL) why = stale(r, &rd, key);
-    if (why == NULL) why = take_parts(r, &rd, resume, &scratch);
+    if (why == NULL) why = take_parts(r, &rd, 8, resume, &scratch);
     if (why != NULL) forget_run(r);
     *have = why == NULL;
     if (why == NULL) {
@@ -343,6 +349,21 @@ static mr_status try_resume(mr__run *r, mr__irls *resume, int *have, mr__error *
     mr__free(key);
     mr__free(data);
     return MR_OK;
+}
+
+mr_status mr__checkpoint_take_state(mr__run *r, const unsigned char *data, size_t len, mr__irls *resume,
+                                    mr__error *err)
+{
+    mr__byteread rd;
+    mr__error scratch;
+    const char *why;
+    mr__error_clear(&scratch);
+    mr__byteread_init(&rd, data, len);
+    why = take_parts(r, &rd, 0, resume, &scratch);
+    if (why == NULL) return MR_OK;
+    forget_run(r);
+    if (scratch.status == MR_ERR_NO_MEMORY) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    return mr__fail(err, MR_ERR_INTERNAL, "%s: the first pass's result from rank 0: %s", r->display, why);
 }
 
 mr_status mr__checkpoint_begin(mr__run *r, mr__irls *resume, int *have_resume, mr__error *err)

@@ -27,6 +27,7 @@ struct mr_fitter {
     char *checkpoint;        /* mr_fitter_set_checkpoint's copy; NULL: none */
     char checkpoint_note[MR__MSG_CAP + 256]; /* what the last run did with it */
     int checkpoint_keep;     /* tests only: the checkpoint outlives a fit that succeeded */
+    struct mr_share *share;  /* mr_fitter_set_share's, borrowed; NULL: none (fit/share.h) */
 };
 
 /* The robust standard errors a run makes (an mr_robust): the one set, or

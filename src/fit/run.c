@@ -207,6 +207,9 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
     mr__irls_point pt;
     mr__pass_cfg c;
     mr_status st;
+    int shared = mr__shared(r);
+    mr__partial_range range;
+    mr__bytebuf groups;
     pt.design = &r->design;
     pt.family = &r->family;
     pt.link = mr__link_ops_of((mr_link)mr__spec_link(&r->f->spec));
@@ -218,6 +221,11 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
     pt.calib_unit = r->family.ops->mu_hi == 1.0;
     c = pass_config(r, MR__PASS_IRLS);
     c.point = &pt;
+    if (shared && !job->replay) {
+        range = mr__share_range(r);
+        c.range = &range;
+        c.groups_out = &groups;
+    }
     if (job->replay) {
         c.store = job->replay;
         c.store_fill = 0;
@@ -226,7 +234,14 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
         c.progress_stop = NULL;
     }
     mr__pass_result_release(res, 0);
+    memset(&groups, 0, sizeof groups);
     st = mr__pass_run(&c, res, err);
+    if (c.range != NULL) {
+        /* this rank's own check first: every rank then learns how it went */
+        if (st == MR_OK) st = check_same_input(r, res, err);
+        st = mr__share_reduce(r, st, &groups, res, err);
+        mr__bytebuf_release(&groups);
+    }
     res->sums.dev += job->deviance_shift;
     res->sums.null_dev = null_dev_known ? *null_dev_known : res->sums.null_dev + job->deviance_shift;
     if (st != MR_OK || job->replay) return st;
@@ -284,8 +299,11 @@ static mr_status init_state(mr__run *r, irls_job *job, mr__irls *s, mr__error *e
     c.param_known = r->param_known;
     c.param_start = r->family.param;
     MR__TRY(mr__irls_init(s, &c, err));
-    /* the first pass (and the warm start) done: the first checkpoint */
-    return job->checkpoints ? mr__checkpoint_write(r, s, err) : MR_OK;
+    /* the first pass (and the warm start) done: the first checkpoint, and
+     * the other processes' start */
+    if (!job->checkpoints) return MR_OK;
+    MR__TRY(mr__checkpoint_write(r, s, err));
+    return mr__share_send_start(r, s, err);
 }
 
 /* The passes the state machine asks for, until it is done; the family's
@@ -652,7 +670,10 @@ mr_status mr__run_rest(mr__run *r, mr_fit **out)
 static mr_status run_all(mr__run *r, mr_status st, mr_fit **out)
 {
     int blas_threads = 0; /* the count to set back; 0: never changed */
+    /* a share refuses a checkpoint before any rank takes its lock */
+    if (st == MR_OK) st = mr__share_begin(r, &r->f->err);
     if (st == MR_OK) st = mr__checkpoint_begin(r, &r->resume, &r->have_resume, &r->f->err);
+    if (st == MR_OK) st = mr__share_join(r, &r->f->err);
     if (st == MR_OK) {
         /* Our workers use every core; BLAS threads inside them would only
          * oversubscribe.  The caller's count comes back at the end, as
@@ -663,6 +684,7 @@ static mr_status run_all(mr__run *r, mr_status st, mr_fit **out)
         else st = scan_pass(r, &r->f->err);
     }
     if (st == MR_OK) st = mr__run_rest(r, out);
+    st = mr__share_end(r, st, &r->f->err);
     mr__checkpoint_end(r, st == MR_OK);
     mr__run_release(r);
     if (blas_threads > 0) openblas_set_num_threads(blas_threads);

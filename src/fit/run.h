@@ -158,6 +158,15 @@ mr_status mr__checkpoint_begin(mr__run *r, mr__irls *resume, int *have_resume, m
 /* After a finished pass: the state `s` written (MR_ERR_IO, MR_ERR_NO_MEMORY). */
 mr_status mr__checkpoint_write(mr__run *r, const mr__irls *s, mr__error *err);
 
+/* The run's state after its first pass (the counts, the first pass's
+ * result, the IRLS state s) appended to b, as a checkpoint holds it
+ * (b->failed on out of memory); and taken up from such bytes as a resumed
+ * run takes a checkpoint (the header bound again): MR_ERR_INTERNAL on
+ * bytes that do not take, MR_ERR_NO_MEMORY.  Another process's start
+ * (fit/share.c). */
+void mr__checkpoint_put_state(mr__run *r, const mr__irls *s, mr__bytebuf *b);
+mr_status mr__checkpoint_take_state(mr__run *r, const unsigned char *data, size_t len, mr__irls *resume,
+                                    mr__error *err);
 /* The run's end: the checkpoint removed when the fit succeeded, the lock let go. */
 void mr__checkpoint_end(mr__run *r, int succeeded);
 
@@ -166,5 +175,39 @@ void mr__checkpoint_end(mr__run *r, int succeeded);
  * cores only wait.  *cpus: the online CPUs counted.  Fits and scoring
  * alike. */
 int mr__worker_threads(int asked, int *cpus);
+
+/* share.c: a fit shared by several processes (mr_share in millrace.h):
+ * rank 0's first pass handed to the others, each IRLS pass's groups split
+ * between the ranks and their totals added in group order by every rank,
+ * and the errors that end every rank alike.  What one exchange carries,
+ * little-endian (common/bytebuf.h): u64 status, text message, then the
+ * payload (rank 0's start: the run's state as a checkpoint holds it; a
+ * pass: the rank's group totals, accum/group_bytes.h; else nothing). */
+/* Whether the run is shared (its fitter has a share). */
+int mr__shared(const mr__run *r);
+
+/* Before anything else: the options a share cannot take refused
+ * (MR_ERR_USAGE), alike on every rank. */
+mr_status mr__share_begin(mr__run *r, mr__error *err);
+
+/* Before the first pass, on a rank other than 0: the first exchange, rank
+ * 0's state taken up (r->resume, r->have_resume) as a checkpoint's is. */
+mr_status mr__share_join(mr__run *r, mr__error *err);
+
+/* Rank 0, the IRLS state s made: the first exchange, s and the first
+ * pass's result sent to every rank. */
+mr_status mr__share_send_start(mr__run *r, const mr__irls *s, mr__error *err);
+
+/* The blocks of this rank's IRLS passes over the data: whole groups. */
+mr__partial_range mr__share_range(const mr__run *r);
+
+/* After this rank's IRLS pass (st: how it went; groups: its group totals):
+ * every rank's totals added in group order into res->sums, or the lowest
+ * failing rank's error. */
+mr_status mr__share_reduce(mr__run *r, mr_status st, const mr__bytebuf *groups, mr__pass_result *res, mr__error *err);
+
+/* The run's end (st: how it went): a failure not yet exchanged is, and
+ * err then holds the error every rank ends with. */
+mr_status mr__share_end(mr__run *r, mr_status st, mr__error *err);
 
 #endif
