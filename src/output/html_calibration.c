@@ -49,10 +49,12 @@ bad:
 
 /* Observed and expected are the groups' weighted totals; the plot shows
  * them per unit of weight (means), unless they already lie within the
- * group's range of fitted means (means as given). */
+ * group's range of fitted means (means as given).  Ranges of rates say
+ * nothing of that: totals per row then. */
 static int given_as_means(const mr__html_calibration_data *c)
 {
     size_t i;
+    if (strstr(c->basis, MR__CALIB_RATE_WORDS)) return 0;
     for (i = 0; i < c->n; i++) {
         double e = c->expected[i], tol = 1e-9 * (fabs(c->mean_low[i]) + fabs(c->mean_high[i]));
         if (e < c->mean_low[i] - tol || e > c->mean_high[i] + tol) return 0;
@@ -60,12 +62,15 @@ static int given_as_means(const mr__html_calibration_data *c)
     return 1;
 }
 
+/* The groups' ranges are of rates when the basis says so (fit/calibrate.c);
+ * expected and observed, hence the plot's axes, stay means per row. */
 static void table(mr__strbuf *t, const mr__html_calibration_data *c, const double *ex, const double *ob, int digits)
 {
     size_t i;
     mr__strbuf_printf(t, "<table class=\"num\"><thead><tr><th>group</th><th>rows</th><th>weight</th>"
-                         "<th>fitted mean from</th><th>to</th><th>observed</th><th>expected</th><th>O/E</th>"
-                         "</tr></thead><tbody>\n");
+                         "<th>%s from</th><th>to</th><th>observed</th><th>expected</th><th>O/E</th>"
+                         "</tr></thead><tbody>\n",
+                      strstr(c->basis, MR__CALIB_RATE_WORDS) ? MR__CALIB_RATE_WORDS : "fitted mean");
     for (i = 0; i < c->n; i++) {
         const double v[] = {c->rows[i], c->weight[i], c->mean_low[i], c->mean_high[i], ob[i], ex[i], ob[i] / ex[i]};
         size_t k;
