@@ -963,6 +963,15 @@ MR_API int mr_fit_resumed_after_pass(const mr_fit *fit);
  * the maximum (the score equation); a group's O/E far from 1 is a hint of
  * a misfit along the mean, not a test.
  *
+ * A model with an offset or an exposure bins its rows by the fitted rate
+ * per unit of exposure instead, g^-1(eta - offset) (mu / exposure with a
+ * log link), the same for a row and for the covariate pattern it
+ * collapses into (whose mean is its rows' total): collapsed or not, the
+ * same groups.  mean_low and mean_high then hold rates, and the basis
+ * says "fitted rate per unit of exposure"; observed and expected stay
+ * sums of w y and w mu.  A fit saved before this change binned such
+ * models by the mean.
+ *
  * mr_fit_calibration_groups: the number of groups, or -1 for a fit read
  * from a JSON written without them.  mr_fit_calibration_basis: what the
  * numbers are, one line of text owned by the fit (NULL when -1 above).
@@ -971,7 +980,7 @@ MR_API int mr_fit_resumed_after_pass(const mr_fit *fit);
 typedef struct mr_calibration_group {
     uint64_t rows;       /* rows of positive weight (a pattern counts its rows) */
     double weight;       /* sum of prior weights (weight x trials) */
-    double mean_low;     /* the least fitted mean in the group */
+    double mean_low;     /* the least fitted mean in the group (rate: above) */
     double mean_high;    /* the greatest */
     double observed;     /* sum of w y (events, for binomial and poisson) */
     double expected;     /* sum of w mu */

@@ -70,10 +70,10 @@ START_TEST(groups_cut_at_the_tenths)
         prior[i] = (double)(next_random(&state) % 3); /* a third of weight 0: left out */
         if (prior[i] > 0) rows++, obs += prior[i] * y[i], expd += prior[i] * mu[i];
     }
-    mr__calib_rows(&whole, y, mu, prior, NULL, NULL, N, 0);
+    mr__calib_rows(&whole, y, mu, NULL, prior, NULL, NULL, N, 0);
     for (i = 0; i < N; i += 1000) {
         mr__calib_zero(&block);
-        mr__calib_rows(&block, y + i, mu + i, prior + i, NULL, NULL, 1000, 0);
+        mr__calib_rows(&block, y + i, mu + i, NULL, prior + i, NULL, NULL, 1000, 0);
         mr__calib_add(&sum, &block);
     }
     n = mr__calib_groups(&whole, g);
@@ -111,7 +111,7 @@ START_TEST(few_means_give_few_groups)
     mr__error err;
     ck_assert(mr__calib_init(&c, &err) == MR_OK);
     ck_assert_uint_eq(mr__calib_groups(&c, g), 0);
-    mr__calib_rows(&c, y, mu, NULL, NULL, NULL, 6, 0);
+    mr__calib_rows(&c, y, mu, NULL, NULL, NULL, NULL, 6, 0);
     ck_assert_uint_eq(mr__calib_groups(&c, g), 2);
     ck_assert_uint_eq(g[0].rows, 3);
     ck_assert(g[0].observed == 2 && g[0].expected == 1.5 && g[0].mean_low == 0.5 && g[0].mean_high == 0.5);

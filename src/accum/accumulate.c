@@ -260,6 +260,23 @@ static void null_model_rows(const mr__irls_point *pt, const mr__block *blk, mr__
     }
 }
 
+/* The rows' bins.  With an offset, by the mean per unit of exposure,
+ * g^-1(eta - offset): a collapsed pattern's offset is the log of its
+ * rows' total exposure, so its mean is their total and its rate theirs.
+ * var, dev and eta are free by now (the null model's rows refill them). */
+static void calibration_rows(const mr__irls_point *pt, const mr__block *blk, mr__workspace *ws, size_t n,
+                             mr__block_sums *out)
+{
+    const double *rate = NULL;
+    size_t i;
+    if (pt->calib_rate && blk->off != NULL) {
+        for (i = 0; i < n; i++) ws->var[i] = ws->eta[i] - blk->off[i];
+        pt->link->inv_n(ws->var, n, ws->dev, ws->eta);
+        rate = ws->dev;
+    }
+    mr__calib_rows(&out->calib, blk->y, ws->mu, rate, blk->prior, blk->cal_rows, blk->cal_weight, n, pt->calib_unit);
+}
+
 /* Entry (a, b) or (b, a) of the block's packed X'WX. */
 static size_t packed_index(const mr__design *d, size_t a, size_t b)
 {
@@ -368,8 +385,7 @@ void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__wo
     out->pearson = pearson;
     if (out->invalid) return; /* the caller halves the step; sums are not used */
     /* before the null model's rows reuse mu */
-    if (pt->calibrate)
-        mr__calib_rows(&out->calib, blk->y, ws->mu, blk->prior, blk->cal_rows, blk->cal_weight, n, pt->calib_unit);
+    if (pt->calibrate) calibration_rows(pt, blk, ws, n, out);
     if (fam->param_sums_n) fam->param_sums_n(pt->family, blk->y, ws->mu, blk->prior, n, out->fam);
     for (j = 0; j < d->ndense; j++) {
         double *col = ws->D + j * n;

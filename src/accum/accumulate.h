@@ -24,6 +24,7 @@ typedef struct mr__irls_point {
     double null_b0;     /* its current value */
     int calibrate;      /* bin the fitted means (accum/calibration.h) */
     int calib_unit;     /* the means lie in (0, 1) */
+    int calib_rate;     /* bin by g^-1(eta - offset) (calibration.h) */
 } mr__irls_point;
 
 typedef struct mr__block_sums {

@@ -80,15 +80,15 @@ uint32_t mr__calib_bin(double mu, int unit)
     return MR__CALIB_HALF;
 }
 
-void mr__calib_rows(mr__calib *c, const double *y, const double *mu, const double *prior, const double *rows,
-                    const double *weight, size_t n, int unit)
+void mr__calib_rows(mr__calib *c, const double *y, const double *mu, const double *rate, const double *prior,
+                    const double *rows, const double *weight, size_t n, int unit)
 {
     size_t i;
     if (c->bin == NULL) return;
     for (i = 0; i < n; i++) {
-        double w = prior ? prior[i] : 1.0, m = mu[i], *b;
+        double w = prior ? prior[i] : 1.0, m = rate ? rate[i] : mu[i], *b;
         uint32_t k;
-        if (!(w > 0) || !isfinite(m)) continue;
+        if (!(w > 0) || !isfinite(m) || !isfinite(mu[i])) continue;
         k = mr__calib_bin(m, unit);
         b = c->bin + (size_t)k * MR__CB_N;
         if (b[MR__CB_ROWS] == 0 || m < b[MR__CB_LOW]) b[MR__CB_LOW] = m;
@@ -96,7 +96,7 @@ void mr__calib_rows(mr__calib *c, const double *y, const double *mu, const doubl
         b[MR__CB_ROWS] += rows ? rows[i] : 1.0;
         b[MR__CB_WEIGHT] += weight ? weight[i] : w;
         b[MR__CB_OBSERVED] += w * y[i];
-        b[MR__CB_EXPECTED] += w * m;
+        b[MR__CB_EXPECTED] += w * mu[i];
         if (k < c->lo) c->lo = k;
         if (k + 1 > c->hi) c->hi = k + 1;
     }

@@ -26,6 +26,8 @@
 #define MR__CALIB_HALF (MR__CALIB_EXPONENTS << MR__CALIB_FRACTION_BITS)
 #define MR__CALIB_BINS (2 * MR__CALIB_HALF + 1)
 #define MR__CALIB_GROUPS 10
+/* In a fit's calibration basis when the bins are of rates, not means. */
+#define MR__CALIB_RATE_WORDS "fitted rate per unit of exposure"
 
 /* The values a bin holds, in this order. */
 enum { MR__CB_ROWS, MR__CB_WEIGHT, MR__CB_OBSERVED, MR__CB_EXPECTED, MR__CB_LOW, MR__CB_HIGH, MR__CB_N };
@@ -51,10 +53,14 @@ uint32_t mr__calib_bin(double mu, int unit);
 
 /* Rows 0..n-1: outcome y, mean mu, prior weight (NULL: 1).  `rows` and
  * `weight` (NULL: one row each, of weight prior) are a collapsed
- * pattern's row count and prior weight.  Rows of weight 0 and rows whose
- * mean is not finite are left out. */
-void mr__calib_rows(mr__calib *c, const double *y, const double *mu, const double *prior, const double *rows,
-                    const double *weight, size_t n, int unit);
+ * pattern's row count and prior weight.  `rate` (NULL: mu) is what a row
+ * is binned by, and what the least and greatest keep: a model with an
+ * offset bins by the mean per unit of exposure, g^-1(eta - offset), which
+ * a collapsed pattern shares with each of its rows (its mu is their
+ * total), while observed and expected stay sums of w y and w mu.  Rows of
+ * weight 0 and rows whose mean or rate is not finite are left out. */
+void mr__calib_rows(mr__calib *c, const double *y, const double *mu, const double *rate, const double *prior,
+                    const double *rows, const double *weight, size_t n, int unit);
 
 /* The bins in order of mean, cut into at most MR__CALIB_GROUPS groups: a
  * group ends at the first bin where the rows so far reach the next tenth

@@ -26,19 +26,40 @@ static void where(mr__strbuf *sb, const mr__run *r)
                       r->step);
 }
 
+int mr__calib_by_rate(const mr__run *r) { return r->f->spec.offset != NULL || r->f->spec.exposure != NULL; }
+
+/* With an offset the rows are binned by their rate (accum/accumulate.c):
+ * the text says so in the words output/ looks for (MR__CALIB_RATE_WORDS). */
+static void grouping(mr__strbuf *sb, const mr__run *r, int rate)
+{
+    const char *scale = r->family.ops->mu_hi == 1.0 ? "min(mu, 1 - mu), mirrored at 1/2" : "|mu|, by sign";
+    if (!rate) {
+        mr__strbuf_printf(sb, "groups are whole bins of the mean on a fixed grid (width 2^-4 relative, on %s)", scale);
+        return;
+    }
+    mr__strbuf_printf(sb,
+                      "groups are whole bins of the %s, the inverse link of the linear predictor without the "
+                      "offset (mu / exp(offset) with a log link; a collapsed pattern's rate is its rows' rate, "
+                      "its mean their total), on a fixed grid (width 2^-4 relative, on %s with mu the rate)",
+                      MR__CALIB_RATE_WORDS, scale);
+}
+
 static char *basis_text(const mr__run *r)
 {
+    int rate = mr__calib_by_rate(r);
     mr__strbuf sb;
     mr__strbuf_init(&sb);
     where(&sb, r);
     mr__strbuf_printf(&sb,
                       "; rows of positive weight; observed = sum of w y, expected = sum of w mu, weight = sum of w "
-                      "(w: prior weight%s); groups are whole bins of the mean on a fixed grid (width 2^-4 relative, "
-                      "on %s), cut where the rows reach each tenth, so a group holds a tenth of the rows only to "
-                      "within a bin; mean_low and mean_high are the least and greatest fitted mean in the group; "
-                      "the sums are exact, added in block order",
-                      r->family.ops->takes_trials ? " times trials" : "",
-                      r->family.ops->mu_hi == 1.0 ? "min(mu, 1 - mu), mirrored at 1/2" : "|mu|, by sign");
+                      "(w: prior weight%s); ",
+                      r->family.ops->takes_trials ? " times trials" : "");
+    grouping(&sb, r, rate);
+    mr__strbuf_printf(&sb,
+                      ", cut where the rows reach each tenth, so a group holds a tenth of the rows only to within a "
+                      "bin; mean_low and mean_high are the least and greatest fitted %s in the group; the sums are "
+                      "exact, added in block order",
+                      rate ? "rate" : "mean");
     return mr__strbuf_take(&sb);
 }
 

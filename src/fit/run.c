@@ -219,6 +219,7 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
     pt.null_skip = null_dev_known != NULL;
     pt.calibrate = job->calibrate;
     pt.calib_unit = r->family.ops->mu_hi == 1.0;
+    pt.calib_rate = mr__calib_by_rate(r);
     c = pass_config(r, MR__PASS_IRLS);
     c.point = &pt;
     if (shared && !job->replay) {

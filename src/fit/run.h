@@ -101,6 +101,9 @@ mr_status mr__robust_result(mr_fit *fit, const mr__run *r, mr__error *err);
 mr_status mr__build_fit(mr__run *r, mr_fit **out, mr__error *err);
 /* The fit's calibration table from the last pass's bins (calibrate.c). */
 mr_status mr__fit_calibration(mr_fit *fit, const mr__run *r, mr__error *err);
+/* 1: the calibration bins rows by their rate, the model having an offset
+ * or an exposure (calibrate.c). */
+int mr__calib_by_rate(const mr__run *r);
 
 /* zero_cells.c: factor levels and cells of two interacting factors whose
  * outcomes are all 0 (or all at the binomial's maximum), from the first

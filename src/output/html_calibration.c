@@ -83,8 +83,10 @@ static void table(mr__strbuf *t, const mr__html_calibration_data *c, const mr__s
 {
     size_t i, k, nv = isnan(pt[0].lo) ? 7 : 9;
     mr__strbuf_printf(t, "<table class=\"num\"><thead><tr><th>group</th><th>rows</th><th>weight</th>"
-                         "<th>fitted mean from</th><th>to</th><th>observed</th><th>expected</th><th>O/E</th>%s"
-                         "</tr></thead><tbody>\n", nv == 9 ? "<th>observed low</th><th>observed high</th>" : "");
+                         "<th>%s from</th><th>to</th><th>observed</th><th>expected</th><th>O/E</th>%s"
+                         "</tr></thead><tbody>\n",
+                      strstr(c->basis, MR__CALIB_RATE_WORDS) ? MR__CALIB_RATE_WORDS : "fitted mean",
+                      nv == 9 ? "<th>observed low</th><th>observed high</th>" : "");
     for (i = 0; i < c->n; i++) {
         const double v[] = {c->rows[i], c->weight[i], c->mean_low[i], c->mean_high[i], pt[i].y, pt[i].x,
                             pt[i].y / pt[i].x, pt[i].lo, pt[i].hi};

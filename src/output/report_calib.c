@@ -7,14 +7,16 @@
 
 void mr__report_calibration(mr__strbuf *b, const mr_fit *f, int digits)
 {
-    int w = digits + 6;
+    int w = digits + 6, rate;
     size_t i;
     if (!f->calib_known || f->ncalib == 0) return;
-    mr__strbuf_printf(b, "\ncalibration: observed and expected by tenths of the fitted mean (%s)\n",
+    rate = strstr(f->calib_basis, MR__CALIB_RATE_WORDS) != NULL; /* bins of rates: fit/calibrate.c */
+    mr__strbuf_printf(b, "\ncalibration: observed and expected by tenths of the %s (%s)\n",
+                      rate ? MR__CALIB_RATE_WORDS : "fitted mean",
                       strncmp(f->calib_basis, "fitted means at the coefficients reported", 41) == 0
                           ? "at the coefficients reported"
                           : "at the last pass's coefficients, one step before those reported");
-    mr__strbuf_printf(b, "  %5s %10s %*s %*s %*s %*s %8s\n", "group", "rows", w, "mean from", w, "to", w, "observed",
+    mr__strbuf_printf(b, "  %5s %10s %*s %*s %*s %*s %8s\n", "group", "rows", w, rate ? "rate from" : "mean from", w, "to", w, "observed",
                       w, "expected", "O/E");
     for (i = 0; i < f->ncalib; i++) {
         const mr__calib_group *g = &f->calib[i];
@@ -23,6 +25,8 @@ void mr__report_calibration(mr__strbuf *b, const mr_fit *f, int digits)
         if (g->expected > 0) mr__strbuf_printf(b, " %8.4f\n", g->observed / g->expected);
         else mr__strbuf_printf(b, " %8s\n", "-");
     }
-    mr__strbuf_printf(b, "  groups are whole bins of the fitted mean (about 6%% wide), so each holds about a tenth of "
-                         "the rows; sums are exact. A hint of misfit along the mean, not a test.\n");
+    mr__strbuf_printf(b,
+                      "  groups are whole bins of the fitted %s (about 6%% wide), so each holds about a tenth of "
+                      "the rows; sums are exact. A hint of misfit along the %s, not a test.\n",
+                      rate ? "rate" : "mean", rate ? "rate" : "mean");
 }
