@@ -316,7 +316,10 @@ static void name_triples(zero_report *z, const mr__run *r, size_t k, const mr__c
         const mr__outcome_counts *c = mr__cell_table_find_key(t, key[i]);
         uint32_t lev[3];
         mr__cell_key3_levels(key[i], lev);
-        if (named_before(z, r, k, lev, margin, bad_level)) continue;
+        /* the shared numbers are the settled factors' (as check_pair's loops) */
+        if (lev[0] >= F[0]->nlevels || lev[1] >= F[1]->nlevels || lev[2] >= F[2]->nlevels ||
+            named_before(z, r, k, lev, margin, bad_level))
+            continue;
         snprintf(what, sizeof what, "%s=%s & %s=%s & %s=%s", F[0]->name, F[0]->level[lev[0]], F[1]->name,
                  F[1]->level[lev[1]], F[2]->name, F[2]->level[lev[2]]);
         note(z, kind_of(c, z->binomial), what, c->rows);
