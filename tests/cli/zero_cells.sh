@@ -9,15 +9,17 @@
 source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
 py=/usr/bin/python3
 
-# make NAME KIND: writes $tmp/NAME.csv (fixed seed)
+# make NAME KIND: writes $tmp/NAME.csv (fixed seed); kinds triple*: a
+# third factor, sex, and 100 rows to each cell of site x grp x sex
 make() {
     "$py" - "$tmp/$1.csv" "$2" <<'EOF'
 import random, sys
 path, kind = sys.argv[1], sys.argv[2]
-rnd = random.Random(7)
-rows = ["y,n,site,grp,x"]
-for i in range(1200):
-    site, grp, x = "S%d" % (i % 4), "G%d" % (i % 3), round(rnd.random(), 3)
+three = kind.startswith("triple")
+rnd = random.Random(11 if three else 7)
+rows = ["y,n,site,grp,sex,x" if three else "y,n,site,grp,x"]
+for i in range(2400 if three else 1200):
+    site, grp, sex, x = "S%d" % (i % 4), "G%d" % (i % 3), "FM"[(i // 12) % 2], round(rnd.random(), 3)
     n = 1 + i % 5
     if kind == "counts":          # site S3: no events at all
         y = 0 if site == "S3" else rnd.randint(0, 4)
@@ -33,35 +35,21 @@ for i in range(1200):
         y = n if site == "S3" else rnd.randint(0, n)
     elif kind == "clean":
         y = rnd.randint(1, 4) if site == "S3" else rnd.randint(0, 4)
-    rows.append("%d,%d,%s,%s,%s" % (y, n, site, grp, x))
-open(path, "w").write("\n".join(rows) + "\n")
-EOF
-}
-for k in counts reference cell cell_ref binary trials clean; do make "$k" "$k"; done
-
-# make3 NAME KIND: cells of three factors (site x grp x sex, 100 rows each)
-make3() {
-    "$py" - "$tmp/$1.csv" "$2" <<'EOF'
-import random, sys
-path, kind = sys.argv[1], sys.argv[2]
-rnd = random.Random(11)
-rows = ["y,n,site,grp,sex,x"]
-for i in range(2400):
-    site, grp, sex, x = "S%d" % (i % 4), "G%d" % (i % 3), "FM"[(i // 12) % 2], round(rnd.random(), 3)
-    n = 1 + i % 5
-    if kind == "triple":            # only the cell S1 & G2 & M without events
+    elif kind == "triple":        # only the cell S1 & G2 & M without events
         y = 0 if (site, grp, sex) == ("S1", "G2", "M") else rnd.randint(1, 4)
-    elif kind == "triple_ref":      # S0 (the reference site) & G2 & M without events
+    elif kind == "triple_ref":    # S0 (the reference site) & G2 & M without events
         y = 0 if (site, grp, sex) == ("S0", "G2", "M") else rnd.randint(1, 4)
-    elif kind == "triple_max":      # S2 & G1 & F: every trial a success
+    elif kind == "triple_max":    # S2 & G1 & F: every trial a success
         y = n if (site, grp, sex) == ("S2", "G1", "F") else rnd.randint(0, n)
     elif kind == "triple_clean":
         y = rnd.randint(0, 4)
-    rows.append("%d,%d,%s,%s,%s,%s" % (y, n, site, grp, sex, x))
+    rows.append(",".join(["%d,%d,%s,%s" % (y, n, site, grp)] + [sex] * three + [str(x)]))
 open(path, "w").write("\n".join(rows) + "\n")
 EOF
 }
-for k in triple triple_ref triple_max triple_clean; do make3 "$k" "$k"; done
+for k in counts reference cell cell_ref binary trials clean triple triple_ref triple_max triple_clean; do
+    make "$k" "$k"
+done
 { echo "y,x"; for i in $(seq 1 100); do echo "$((i > 50)),$i"; done; } > "$tmp/sep.csv"
 
 # flagged NAME EXPECTED-COEFFICIENTS WARNING-TEXT... -- fit options and file:
