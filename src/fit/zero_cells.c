@@ -150,7 +150,7 @@ static int cell_totals(const mr__run *r, size_t k, mr__cell_table *t)
 
 /* Whether one part of a coefficient's name ("F=level") is factor F[q] at
  * a level it may have: the cell's own where the cell's level is not the
- * reference (in[q]), any where it is. */
+ * reference, any where it is; seen notes which factor it was. */
 static int part_fits(const char *part, size_t len, const mr__factor *const *F, const uint32_t *lev, size_t n,
                      unsigned *seen)
 {
