@@ -1144,7 +1144,7 @@ MR_API mr_status mr_comparison_write_json(const mr_comparison *c, const char *pa
 MR_API void mr_free(void *p);
 
 /* 1 when coefficient j is not estimable in practice: the outcomes of a
- * factor level or of a cell of two interacting factors are all 0 (or, for
+ * factor level or of a cell of two or three interacting factors are all 0 (or, for
  * the binomial, all at the maximum), found from the first pass's counts,
  * or its standard error grew at each of the last passes (separation by a
  * covariate); its estimate and standard error are where IRLS stopped on

@@ -34,12 +34,14 @@ static void write_rows_zero(int zero_zone)
     snprintf(ckpt_path, sizeof ckpt_path, "/tmp/mr_ckpt_%d.state", (int)getpid());
     f = fopen(data_path, "w");
     ck_assert_ptr_nonnull(f);
-    fputs("count,group,zone,dose,years\n", f);
+    fputs("count,group,zone,dose,years,band\n", f);
     for (i = 0; i < ROWS; i++) {
         double u = (double)(next_random(&rng) >> 11) / 9007199254740992.0;
-        int count = zero_zone && i % 11 == 10 ? 0 : (int)(u * 6) % 5;
-        fprintf(f, "%d,%c,z%ld,%.4f,%.2f\n", count, "abcde"[i % 5], i % 11, u * 3 + (double)(i % 7),
-                1 + (double)(i % 9) / 4);
+        int count = zero_zone == 1 && i % 11 == 10 ? 0 : (int)(u * 6) % 5;
+        /* zero_zone 2: the cell group b, zone z3, band 1 of three factors */
+        if (zero_zone == 2 && i % 165 == 91) count = 0;
+        fprintf(f, "%d,%c,z%ld,%.4f,%.2f,%ld\n", count, "abcde"[i % 5], i % 11, u * 3 + (double)(i % 7),
+                1 + (double)(i % 9) / 4, i % 3);
     }
     ck_assert_int_eq(fclose(f), 0);
 }
@@ -51,6 +53,7 @@ typedef struct run_opts {
     double tolerance;
     mr_robust robust;
     const char *cluster;
+    int triple; /* band a factor, group x zone x band with its lower terms */
 } run_opts;
 
 static int stop_at(const mr_progress *p, void *user)
@@ -66,7 +69,10 @@ static mr_fitter *new_fitter(const run_opts *o, const char *checkpoint)
     mr_fitter *f = mr_fitter_new();
     int i;
     ck_assert_ptr_nonnull(f);
+    static const char *const triple[] = {"factor band", "interact group zone", "interact group band",
+                                         "interact zone band", "interact group zone band", NULL};
     for (i = 0; model[i]; i++) ck_assert_int_eq(mr_fitter_model_line(f, model[i], "test"), MR_OK);
+    for (i = 0; o->triple && triple[i]; i++) ck_assert_int_eq(mr_fitter_model_line(f, triple[i], "test"), MR_OK);
     mr_fitter_set_int(f, MR_OPT_THREADS, o->threads);
     mr_fitter_set_int(f, MR_OPT_NO_COLLAPSE, !o->collapse);
     if (o->tolerance > 0) mr_fitter_set_real(f, MR_OPT_TOLERANCE, o->tolerance);
@@ -156,8 +162,8 @@ static void assert_round_trip(const unsigned char *part, uint64_t n, mr__pass_re
  * the checkpoint's first-pass result reads back to the same bytes. */
 START_TEST(stopped_fit_goes_on_to_the_same_bits)
 {
-    run_opts plain = {2, 0, 0, 0, 0, MR_ROBUST_NONE, NULL}, stopping = {2, 0, 4, 0, 0, MR_ROBUST_NONE, NULL},
-             again = {1, 0, 0, 0, 0, MR_ROBUST_NONE, NULL};
+    run_opts plain = {2, 0, 0, 0, 0, MR_ROBUST_NONE, NULL, 0}, stopping = {2, 0, 4, 0, 0, MR_ROBUST_NONE, NULL, 0},
+             again = {1, 0, 0, 0, 0, MR_ROBUST_NONE, NULL, 0};
     mr_fit *ref = NULL, *got = NULL;
     mr__pass_result res;
     unsigned char *ck;
@@ -201,7 +207,7 @@ END_TEST
  * numerics' least and greatest values come from the checkpoint). */
 START_TEST(zero_level_and_robust_go_on_to_the_same_bits)
 {
-    run_opts plain = {2, 0, 0, 0, 0, MR_ROBUST_HC1, "zone"}, stopping = plain, again = plain;
+    run_opts plain = {2, 0, 0, 0, 0, MR_ROBUST_HC1, "zone", 0}, stopping = plain, again = plain;
     mr_fit *ref = NULL, *got = NULL;
     size_t j, zero_warnings = 0;
     char note[2048];
@@ -239,6 +245,36 @@ START_TEST(zero_level_and_robust_go_on_to_the_same_bits)
 }
 END_TEST
 
+/* An empty cell of three factors: its counts by cell come from the
+ * checkpoint, so a resumed fit names it and marks the same coefficients. */
+START_TEST(zero_triple_cell_goes_on_to_the_same_flags)
+{
+    run_opts plain = {2, 0, 0, 0, 0, MR_ROBUST_NONE, NULL, 1}, stopping = plain, again = plain;
+    mr_fit *ref = NULL, *got = NULL;
+    size_t j, named = 0;
+    stopping.stop_at_pass = 3;
+    again.threads = 1;
+    write_rows_zero(2);
+    unlink(ckpt_path);
+    ck_assert_int_eq(fit(&plain, NULL, &ref, NULL, 0), MR_OK);
+    ck_assert_int_eq(fit(&stopping, ckpt_path, &got, NULL, 0), MR_ERR_STOPPED);
+    ck_assert_int_eq(fit(&again, ckpt_path, &got, NULL, 0), MR_OK);
+    ck_assert_int_eq(mr_fit_resumed_after_pass(got), 2);
+    assert_same_fit(ref, got);
+    for (j = 0; j < mr_fit_ncoef(ref); j++)
+        ck_assert_int_eq(mr_fit_coef_not_estimable(ref, j), mr_fit_coef_not_estimable(got, j));
+    ck_assert_uint_eq(mr_fit_nwarnings(ref), mr_fit_nwarnings(got));
+    for (j = 0; j < mr_fit_nwarnings(ref); j++) {
+        ck_assert_str_eq(mr_fit_warning(ref, j), mr_fit_warning(got, j));
+        named += strstr(mr_fit_warning(ref, j), "group=b & zone=z3 & band=1 (") != NULL;
+    }
+    ck_assert_uint_eq(named, 1);
+    mr_fit_free(ref);
+    mr_fit_free(got);
+    unlink(data_path);
+}
+END_TEST
+
 /* A checkpoint changed in any way is not used: the fit starts afresh and
  * still gives the bits of a fit that ran through. */
 static void assert_refused(const unsigned char *p, size_t n, const run_opts *o, const mr_fit *ref, const char *why)
@@ -256,8 +292,8 @@ static void assert_refused(const unsigned char *p, size_t n, const run_opts *o, 
 
 START_TEST(changed_checkpoints_are_not_used)
 {
-    run_opts plain = {2, 0, 0, 0, 0, MR_ROBUST_NONE, NULL}, stopping = {2, 0, 3, 0, 0, MR_ROBUST_NONE, NULL},
-             other = {2, 0, 0, 0, 1e-12, MR_ROBUST_NONE, NULL};
+    run_opts plain = {2, 0, 0, 0, 0, MR_ROBUST_NONE, NULL, 0}, stopping = {2, 0, 3, 0, 0, MR_ROBUST_NONE, NULL, 0},
+             other = {2, 0, 0, 0, 1e-12, MR_ROBUST_NONE, NULL, 0};
     mr_fit *ref = NULL, *ref_other = NULL, *got = NULL;
     unsigned char *ck;
     size_t len;
@@ -337,7 +373,7 @@ END_TEST
  * asan-check). */
 START_TEST(damaged_first_pass_bytes)
 {
-    run_opts stopping = {2, 0, 3, 0, 0, MR_ROBUST_NONE, NULL};
+    run_opts stopping = {2, 0, 3, 0, 0, MR_ROBUST_NONE, NULL, 0};
     mr_fit *got = NULL;
     unsigned char *ck, *copy;
     const unsigned char *part;
@@ -378,7 +414,7 @@ END_TEST
 /* Standard input cannot be read again: a checkpoint with it is refused. */
 START_TEST(standard_input_is_refused)
 {
-    run_opts plain = {1, 0, 0, 0, 0, MR_ROBUST_NONE, NULL};
+    run_opts plain = {1, 0, 0, 0, 0, MR_ROBUST_NONE, NULL, 0};
     mr_fitter *f = new_fitter(&plain, "/tmp/mr_ckpt_stdin.state");
     mr_fit *out = NULL;
     ck_assert_int_eq(mr_fitter_run(f, "-", &out), MR_ERR_USAGE);
@@ -394,6 +430,7 @@ int main(void)
     tcase_set_timeout(tc, 300);
     tcase_add_test(tc, stopped_fit_goes_on_to_the_same_bits);
     tcase_add_test(tc, zero_level_and_robust_go_on_to_the_same_bits);
+    tcase_add_test(tc, zero_triple_cell_goes_on_to_the_same_flags);
     tcase_add_test(tc, changed_checkpoints_are_not_used);
     tcase_add_test(tc, collapsed_patterns_round_trip);
     tcase_add_test(tc, damaged_first_pass_bytes);

@@ -118,6 +118,9 @@ typedef struct mr__decode_cfg {
      * whose cells accum/level_outcomes.h counts. */
     const int32_t (*pairs)[2];
     size_t npairs;
+    /* ... and the triples of factors that interact (after the pairs' tables) */
+    const int32_t (*triples)[3];
+    size_t ntriples;
 } mr__decode_cfg;
 
 typedef struct mr__decoder {

@@ -80,19 +80,20 @@ static void put_outcome(mr__bytebuf *b, const mr__outcome_counts *c)
 }
 
 /* A worker's outcome counts: per factor the levels it numbered (its array
- * may run longer, zeroed), per pair of factors its cells in slot order. */
+ * may run longer, zeroed), per pair or triple of factors its cells in slot
+ * order (a key's halves: level_outcomes.h). */
 static void put_outcomes(mr__bytebuf *b, const mr__level_outcomes *lo, const mr__levelset *levels)
 {
     size_t f, k, i;
     mr__bytebuf_u64(b, lo != NULL && !lo->failed);
     if (lo == NULL || lo->failed) return;
-    mr__bytebuf_u64(b, lo->npairs);
+    mr__bytebuf_u64(b, lo->ntables);
     for (f = 0; f < lo->nfac; f++) {
         size_t n = lo->nlevel[f] < levels[f].n ? lo->nlevel[f] : levels[f].n;
         mr__bytebuf_u64(b, n);
         for (i = 0; i < n; i++) put_outcome(b, &lo->level[f][i]);
     }
-    for (k = 0; k < lo->npairs; k++) {
+    for (k = 0; k < lo->ntables; k++) {
         const mr__cell_table *t = &lo->cells[k];
         mr__bytebuf_u64(b, t->n);
         for (i = 0; i < t->cap; i++) {
@@ -286,10 +287,10 @@ static mr_status get_cells(mr__byteread *r, mr__cell_table *t)
 static mr_status get_outcomes(mr__byteread *r, mr__level_outcomes **out, size_t nfac)
 {
     mr__level_outcomes *lo;
-    size_t f, k, i, npairs;
+    size_t f, k, i, ntables;
     if (mr__byteread_count(r, 1, 0) == 0) return MR_OK;
-    npairs = (size_t)mr__byteread_count(r, 1024, 0);
-    if (r->bad || (lo = *out = mr__level_outcomes_new(nfac, npairs)) == NULL) return r->bad ? MR_OK : MR_ERR_NO_MEMORY;
+    ntables = (size_t)mr__byteread_count(r, 1024, 0);
+    if (r->bad || (lo = *out = mr__level_outcomes_new(nfac, ntables)) == NULL) return r->bad ? MR_OK : MR_ERR_NO_MEMORY;
     for (f = 0; f < nfac && !r->bad; f++) {
         size_t n = (size_t)mr__byteread_count(r, UINT32_MAX, 24);
         if (r->bad) break;
@@ -298,7 +299,7 @@ static mr_status get_outcomes(mr__byteread *r, mr__level_outcomes **out, size_t 
         lo->nlevel[f] = n;
         for (i = 0; i < n; i++) get_outcome(r, &lo->level[f][i]);
     }
-    for (k = 0; k < npairs && !r->bad; k++) MR__TRY(get_cells(r, &lo->cells[k]));
+    for (k = 0; k < ntables && !r->bad; k++) MR__TRY(get_cells(r, &lo->cells[k]));
     return MR_OK;
 }
 

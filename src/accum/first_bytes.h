@@ -18,9 +18,10 @@
  *   each worker's factor levels: workers, then per worker and factor the
  *     levels by their numbers (text each)
  *   each worker's outcome counts (accum/level_outcomes.h): a flag, then
- *     per worker whether they are whole; if so the pairs of factors, per
- *     factor its levels' counts (rows, above 0, below the maximum) by the
- *     worker's level numbers, per pair its cells (both numbers, counts)
+ *     per worker whether they are whole; if so the tables of cells (pairs
+ *     of factors, then triples), per factor its levels' counts (rows,
+ *     above 0, below the maximum) by the worker's level numbers, per table
+ *     its cells (the key's two 32-bit halves: a pair's two numbers; counts)
  *   the block map: blocks, usable, mostly blank, then per block offset,
  *     end, first line, rows' checksum, rows
  *   collapsed, store incomplete; with collapsed: the merge's key columns,

@@ -73,7 +73,7 @@ static mr_status scan_worker_init(void *job, mr__pass_worker *w, mr__error *err)
     scan_job *j = job;
     const mr__decode_cfg *dcfg = j->env->cfg->dcfg;
     w->dec.worker = (int32_t)w->number;
-    w->part = mr__level_outcomes_new(dcfg->bind->nfac, dcfg->npairs);
+    w->part = mr__level_outcomes_new(dcfg->bind->nfac, dcfg->npairs + dcfg->ntriples);
     return w->part ? MR_OK : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
 }
 

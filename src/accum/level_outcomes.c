@@ -5,15 +5,15 @@
 #include "common/alloc.h"
 #include "family/family.h"
 
-mr__level_outcomes *mr__level_outcomes_new(size_t nfac, size_t npairs)
+mr__level_outcomes *mr__level_outcomes_new(size_t nfac, size_t ntables)
 {
     mr__level_outcomes *lo = mr__calloc(1, sizeof *lo);
     if (lo == NULL) return NULL;
     lo->nfac = nfac;
-    lo->npairs = npairs;
+    lo->ntables = ntables;
     lo->level = mr__calloc(nfac + 1, sizeof *lo->level);
     lo->nlevel = mr__calloc(nfac + 1, sizeof *lo->nlevel);
-    lo->cells = mr__calloc(npairs + 1, sizeof *lo->cells);
+    lo->cells = mr__calloc(ntables + 1, sizeof *lo->cells);
     if (lo->level && lo->nlevel && lo->cells) return lo;
     mr__level_outcomes_free(lo);
     return NULL;
@@ -24,7 +24,7 @@ void mr__level_outcomes_free(mr__level_outcomes *lo)
     size_t i;
     if (lo == NULL) return;
     for (i = 0; lo->level && i < lo->nfac; i++) mr__free(lo->level[i]);
-    for (i = 0; lo->cells && i < lo->npairs; i++) mr__free(lo->cells[i].slot);
+    for (i = 0; lo->cells && i < lo->ntables; i++) mr__free(lo->cells[i].slot);
     mr__free(lo->level);
     mr__free(lo->nlevel);
     mr__free(lo->cells);
@@ -96,7 +96,12 @@ static uint64_t cell_key(uint32_t a, uint32_t b) { return ((uint64_t)a << 32 | b
 
 int mr__cell_table_add(mr__cell_table *t, uint32_t a, uint32_t b, const mr__outcome_counts *c)
 {
-    mr__outcome_counts *e = cell_entry(t, cell_key(a, b), 1);
+    return mr__cell_table_add_key(t, cell_key(a, b), c);
+}
+
+int mr__cell_table_add_key(mr__cell_table *t, uint64_t key, const mr__outcome_counts *c)
+{
+    mr__outcome_counts *e = cell_entry(t, key, 1);
     if (e == NULL) return -1;
     e->rows += c->rows;
     e->above_zero += c->above_zero;
@@ -118,6 +123,59 @@ const mr__outcome_counts *mr__cell_table_find(const mr__cell_table *t, uint32_t 
     return cell_entry((mr__cell_table *)t, cell_key(a, b), 0);
 }
 
+const mr__outcome_counts *mr__cell_table_find_key(const mr__cell_table *t, uint64_t key)
+{
+    return cell_entry((mr__cell_table *)t, key, 0);
+}
+
+#define LEVEL_MASK ((1u << MR__CELL_LEVEL_BITS) - 1)
+
+uint64_t mr__cell_key3(uint32_t a, uint32_t b, uint32_t c)
+{
+    return ((uint64_t)a << (2 * MR__CELL_LEVEL_BITS) | (uint64_t)b << MR__CELL_LEVEL_BITS | c) + 1;
+}
+
+void mr__cell_key3_levels(uint64_t key, uint32_t lev[3])
+{
+    key--;
+    lev[0] = (uint32_t)(key >> (2 * MR__CELL_LEVEL_BITS));
+    lev[1] = (uint32_t)(key >> MR__CELL_LEVEL_BITS) & LEVEL_MASK;
+    lev[2] = (uint32_t)key & LEVEL_MASK;
+}
+
+int mr__cell_table_slot3(const mr__cell_table *t, size_t i, uint32_t lev[3])
+{
+    if (t->slot[i].key == 0) return 0;
+    mr__cell_key3_levels(t->slot[i].key, lev);
+    return 1;
+}
+
+/* Row i's cell of triple k: every level below 2^MR__CELL_LEVEL_BITS (a
+ * worker numbers at most the levels it met, fewer than MR__MAX_LEVELS, but
+ * a key must never alias another), else 0. */
+static uint64_t triple_key(const mr__block *blk, const int32_t *f, uint32_t i)
+{
+    uint32_t lev[3];
+    int k;
+    for (k = 0; k < 3; k++) {
+        lev[k] = (uint32_t)blk->lev[(size_t)f[k] * MR__BLOCK_ROWS + i];
+        if (lev[k] > LEVEL_MASK) return 0;
+    }
+    return mr__cell_key3(lev[0], lev[1], lev[2]);
+}
+
+static void count_triples(mr__level_outcomes *lo, const mr__block *blk, const mr__decode_cfg *cfg, uint32_t i, double y,
+                          int binomial)
+{
+    size_t k;
+    for (k = 0; k < cfg->ntriples && !lo->failed; k++) {
+        uint64_t key = triple_key(blk, cfg->triples[k], i);
+        mr__outcome_counts *c = key ? cell_entry(&lo->cells[cfg->npairs + k], key, 1) : NULL;
+        if (c == NULL) lo->failed = 1;
+        else count(c, y, binomial);
+    }
+}
+
 void mr__level_outcomes_block(mr__level_outcomes *lo, const mr__block *blk, const mr__decode_cfg *cfg)
 {
     int binomial = cfg->family->ops->takes_trials; /* the binomial: y a proportion */
@@ -134,7 +192,7 @@ void mr__level_outcomes_block(mr__level_outcomes *lo, const mr__block *blk, cons
             }
             count(c, y, binomial);
         }
-        for (k = 0; k < lo->npairs; k++) {
+        for (k = 0; k < cfg->npairs; k++) {
             uint32_t a = (uint32_t)blk->lev[(size_t)cfg->pairs[k][0] * MR__BLOCK_ROWS + i];
             uint32_t b = (uint32_t)blk->lev[(size_t)cfg->pairs[k][1] * MR__BLOCK_ROWS + i];
             mr__outcome_counts *c = cell_entry(&lo->cells[k], cell_key(a, b), 1);
@@ -144,5 +202,6 @@ void mr__level_outcomes_block(mr__level_outcomes *lo, const mr__block *blk, cons
             }
             count(c, y, binomial);
         }
+        count_triples(lo, blk, cfg, i, y, binomial);
     }
 }

@@ -1,5 +1,5 @@
-/* level_outcomes.h - per factor level, and per cell of two factors that
- * interact, how many rows with weight the first pass saw, how many had an
+/* level_outcomes.h - per factor level, and per cell of two or three
+ * factors that interact, how many rows with weight the first pass saw, how many had an
  * outcome above 0 and how many below its maximum (a binomial proportion
  * below 1): a level or cell with none of either has its fitted mean at
  * the edge of the family's range, and its coefficient runs off to
@@ -17,9 +17,13 @@ typedef struct mr__outcome_counts {
     uint64_t rows, above_zero, below_max;
 } mr__outcome_counts;
 
-/* One cell of a pair of factors: both level numbers, and its counts. */
+/* One cell of a pair of factors (first level << 32 | second level, + 1)
+ * or of three (first << 42 | second << 21 | third, + 1: levels below
+ * MR__MAX_LEVELS < 2^21 fit), and its counts.  Either key is written as
+ * its two 32-bit halves (accum/first_bytes.c). */
+#define MR__CELL_LEVEL_BITS 21
 typedef struct mr__cell_counts {
-    uint64_t key; /* first level << 32 | second level, + 1 (0: an empty slot) */
+    uint64_t key; /* as above; 0: an empty slot */
     mr__outcome_counts c;
 } mr__cell_counts;
 
@@ -29,17 +33,17 @@ typedef struct mr__cell_table {
 } mr__cell_table;
 
 typedef struct mr__level_outcomes {
-    size_t nfac, npairs;
+    size_t nfac, ntables;
     mr__outcome_counts **level; /* per factor, by level number */
     size_t *nlevel;             /* per factor: entries in level[] */
-    mr__cell_table *cells;      /* per pair of decode_cfg.pairs */
+    mr__cell_table *cells;      /* per pair of decode_cfg.pairs, then per triple of its triples */
     int failed;                 /* out of memory: the counts are not whole */
 } mr__level_outcomes;
 
-/* NULL on no memory. */
-mr__level_outcomes *mr__level_outcomes_new(size_t nfac, size_t npairs);
+/* ntables: the pairs and the triples; NULL on no memory. */
+mr__level_outcomes *mr__level_outcomes_new(size_t nfac, size_t ntables);
 void mr__level_outcomes_free(mr__level_outcomes *lo);
-/* Counts a decoded block's rows (cfg: the pairs of factors). */
+/* Counts a decoded block's rows (cfg: the pairs and triples of factors). */
 void mr__level_outcomes_block(mr__level_outcomes *lo, const mr__block *blk, const mr__decode_cfg *cfg);
 /* Adds c into cell (a, b) of t: -1 on no memory. */
 int mr__cell_table_add(mr__cell_table *t, uint32_t a, uint32_t b, const mr__outcome_counts *c);
@@ -47,5 +51,13 @@ int mr__cell_table_add(mr__cell_table *t, uint32_t a, uint32_t b, const mr__outc
 int mr__cell_table_slot(const mr__cell_table *t, size_t i, uint32_t *a, uint32_t *b);
 /* Cell (a, b) of t, or NULL. */
 const mr__outcome_counts *mr__cell_table_find(const mr__cell_table *t, uint32_t a, uint32_t b);
+/* A triple's cells: the key of levels (a, b, c), each below
+ * 2^MR__CELL_LEVEL_BITS; a slot's key back to its levels (0 for an empty
+ * slot); c added into the cell of key (-1 on no memory); the cell, or NULL. */
+uint64_t mr__cell_key3(uint32_t a, uint32_t b, uint32_t c);
+void mr__cell_key3_levels(uint64_t key, uint32_t lev[3]);
+int mr__cell_table_slot3(const mr__cell_table *t, size_t i, uint32_t lev[3]);
+int mr__cell_table_add_key(mr__cell_table *t, uint64_t key, const mr__outcome_counts *c);
+const mr__outcome_counts *mr__cell_table_find_key(const mr__cell_table *t, uint64_t key);
 
 #endif

@@ -252,13 +252,13 @@ static void get_run(mr__run *r, mr__byteread *rd, const unsigned char **header, 
     r->warm_polish_blocks = (int)mr__byteread_count(rd, INT32_MAX, 0);
 }
 
-/* Each worker's outcome counts hold a table per pair of interacting
- * factors the binding found (fit/zero_cells.c reads them so). */
+/* Each worker's outcome counts hold a table per pair and per triple of
+ * interacting factors the binding found (fit/zero_cells.c reads them so). */
 static int outcomes_fit(const mr__run *r, const mr__pass_result *first)
 {
     size_t w;
     for (w = 0; first->worker_outcomes && w < first->nworkers; w++)
-        if (first->worker_outcomes[w] && (first->worker_outcomes[w]->npairs != r->dcfg.npairs ||
+        if (first->worker_outcomes[w] && (first->worker_outcomes[w]->ntables != r->dcfg.npairs + r->dcfg.ntriples ||
                                           first->worker_outcomes[w]->nfac != r->bind.nfac))
             return 0;
     return 1;

@@ -19,22 +19,31 @@ static int32_t factor_number(const mr__binding *b, const char *name)
     return -1;
 }
 
-/* Interactions of two factors: the first pass counts their cells. */
+/* Interaction i's factors' binding numbers into f, if all its parts are
+ * factors and it has `parts` of them. */
+static int all_factors(const mr__run *r, size_t i, size_t parts, int32_t *f)
+{
+    const mr__spec *s = &r->f->spec;
+    size_t k;
+    if ((size_t)s->inter[i].n != parts) return 0;
+    for (k = 0; k < parts; k++)
+        if ((f[k] = factor_number(&r->bind, s->inter[i].name[k])) < 0) return 0;
+    return 1;
+}
+
+/* Interactions of two or three factors: the first pass counts their cells. */
 static void find_pairs(mr__run *r)
 {
     const mr__spec *s = &r->f->spec;
-    size_t i, n = 0;
-    for (i = 0; i < s->ninter && n < MR__MAX_PAIRS; i++) {
-        int32_t a, b;
-        if (s->inter[i].n != 2) continue;
-        a = factor_number(&r->bind, s->inter[i].name[0]);
-        b = factor_number(&r->bind, s->inter[i].name[1]);
-        if (a < 0 || b < 0) continue;
-        r->pairs[n][0] = a;
-        r->pairs[n++][1] = b;
+    size_t i, n = 0, n3 = 0;
+    for (i = 0; i < s->ninter; i++) {
+        if (n < MR__MAX_PAIRS && all_factors(r, i, 2, r->pairs[n])) n++;
+        else if (n3 < MR__MAX_TRIPLES && all_factors(r, i, 3, r->triples[n3])) n3++;
     }
     r->dcfg.pairs = (const int32_t(*)[2])r->pairs;
     r->dcfg.npairs = n;
+    r->dcfg.triples = (const int32_t(*)[3])r->triples;
+    r->dcfg.ntriples = n3;
 }
 
 static mr_status bind_header(mr__run *r, const char *line, size_t len, mr__error *err)

@@ -12,8 +12,10 @@
 
 #define MR__MAX_MISSING_TOKENS 64
 
-/* Pairs of interacting factors whose cells the first pass counts. */
+/* Pairs and triples of interacting factors whose cells the first pass
+ * counts. */
 #define MR__MAX_PAIRS 32
+#define MR__MAX_TRIPLES 16
 
 typedef struct mr__run {
     mr_fitter *f;
@@ -30,6 +32,7 @@ typedef struct mr__run {
     mr__family family; /* the spec's, as fitted */
     mr__decode_cfg dcfg;
     int32_t pairs[MR__MAX_PAIRS][2]; /* factors (binding numbers) that interact, two by two */
+    int32_t triples[MR__MAX_TRIPLES][3]; /* ... and three by three */
     size_t missing_len[MR__MAX_MISSING_TOKENS];
     char delim;
     int delim_detected;

@@ -9,15 +9,17 @@
 source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
 py=/usr/bin/python3
 
-# make NAME KIND: writes $tmp/NAME.csv (fixed seed)
+# make NAME KIND: writes $tmp/NAME.csv (fixed seed); kinds triple*: a
+# third factor, sex, and 100 rows to each cell of site x grp x sex
 make() {
     "$py" - "$tmp/$1.csv" "$2" <<'EOF'
 import random, sys
 path, kind = sys.argv[1], sys.argv[2]
-rnd = random.Random(7)
-rows = ["y,n,site,grp,x"]
-for i in range(1200):
-    site, grp, x = "S%d" % (i % 4), "G%d" % (i % 3), round(rnd.random(), 3)
+three = kind.startswith("triple")
+rnd = random.Random(11 if three else 7)
+rows = ["y,n,site,grp,sex,x" if three else "y,n,site,grp,x"]
+for i in range(2400 if three else 1200):
+    site, grp, sex, x = "S%d" % (i % 4), "G%d" % (i % 3), "FM"[(i // 12) % 2], round(rnd.random(), 3)
     n = 1 + i % 5
     if kind == "counts":          # site S3: no events at all
         y = 0 if site == "S3" else rnd.randint(0, 4)
@@ -25,17 +27,29 @@ for i in range(1200):
         y = 0 if site == "S0" else rnd.randint(0, 4)
     elif kind == "cell":          # only the cell S1 & G2 without events
         y = 0 if (site, grp) == ("S1", "G2") else rnd.randint(1, 4)
+    elif kind == "cell_ref":      # the cell of the reference site S0 & G2 without events
+        y = 0 if (site, grp) == ("S0", "G2") else rnd.randint(1, 4)
     elif kind == "binary":        # S2 all 0, S3 all 1
         y = 0 if site == "S2" else 1 if site == "S3" else int(rnd.random() < 0.4)
     elif kind == "trials":        # S3: every trial a success
         y = n if site == "S3" else rnd.randint(0, n)
     elif kind == "clean":
         y = rnd.randint(1, 4) if site == "S3" else rnd.randint(0, 4)
-    rows.append("%d,%d,%s,%s,%s" % (y, n, site, grp, x))
+    elif kind == "triple":        # only the cell S1 & G2 & M without events
+        y = 0 if (site, grp, sex) == ("S1", "G2", "M") else rnd.randint(1, 4)
+    elif kind == "triple_ref":    # S0 (the reference site) & G2 & M without events
+        y = 0 if (site, grp, sex) == ("S0", "G2", "M") else rnd.randint(1, 4)
+    elif kind == "triple_max":    # S2 & G1 & F: every trial a success
+        y = n if (site, grp, sex) == ("S2", "G1", "F") else rnd.randint(0, n)
+    elif kind == "triple_clean":
+        y = rnd.randint(0, 4)
+    rows.append(",".join(["%d,%d,%s,%s" % (y, n, site, grp)] + [sex] * three + [str(x)]))
 open(path, "w").write("\n".join(rows) + "\n")
 EOF
 }
-for k in counts reference cell binary trials clean; do make "$k" "$k"; done
+for k in counts reference cell cell_ref binary trials clean triple triple_ref triple_max triple_clean; do
+    make "$k" "$k"
+done
 { echo "y,x"; for i in $(seq 1 100); do echo "$((i > 50)),$i"; done; } > "$tmp/sep.csv"
 
 # flagged NAME EXPECTED-COEFFICIENTS WARNING-TEXT... -- fit options and file:
@@ -84,6 +98,10 @@ flagged poisson_zero_reference "#0|site=S1|site=S2|site=S3" "site=S0 (the refere
     --outcome y --family poisson "${common[@]}" "$tmp/reference.csv"
 flagged poisson_zero_cell "site=S1 & grp=G2" "every outcome 0" "site=S1 & grp=G2 (100 rows)" -- \
     --outcome y --family poisson "${common[@]}" --interact "site grp" "$tmp/cell.csv"
+# the reference site's cell: grp=G2 runs off, and the other sites' cells of
+# G2 make up for it by their own interaction coefficients
+flagged poisson_zero_cell_reference "grp=G2|site=S1 & grp=G2|site=S2 & grp=G2|site=S3 & grp=G2" \
+    "site=S0 & grp=G2 (100 rows)" -- --outcome y --family poisson "${common[@]}" --interact "site grp" "$tmp/cell_ref.csv"
 flagged negative_binomial_zero_level "site=S3" "site=S3" -- \
     --outcome y --family "negative-binomial theta=2" "${common[@]}" "$tmp/counts.csv"
 flagged tweedie_zero_level "site=S3" "site=S3" -- \
@@ -101,6 +119,20 @@ flagged gaussian_zero_level_is_fine "" -- --outcome y --family gaussian "${commo
 flagged numeric_separation "#0|x" "grew pass after pass" "possible separation" -- \
     --outcome y --family binomial --numeric x "$tmp/sep.csv"
 
+# cells of three factors, the model holding every lower-order term
+three=(--factor site --factor grp --factor sex --numeric x --interact "site grp" --interact "site sex"
+       --interact "grp sex" --interact "site grp sex")
+flagged poisson_zero_triple "site=S1 & grp=G2 & sex=M" "every outcome 0 in 1 factor level or cell" \
+    "site=S1 & grp=G2 & sex=M (100 rows)" -- --outcome y --family poisson "${three[@]}" "$tmp/triple.csv"
+# with the reference site in the cell, the pair's coefficient runs off, and
+# the other sites' cells of G2 & M make up for it by their own
+flagged poisson_zero_triple_reference \
+    "grp=G2 & sex=M|site=S1 & grp=G2 & sex=M|site=S2 & grp=G2 & sex=M|site=S3 & grp=G2 & sex=M" "site=S0 & grp=G2 & sex=M (100 rows)" -- \
+    --outcome y --family poisson "${three[@]}" "$tmp/triple_ref.csv"
+flagged binomial_triple_all_successes "site=S2 & grp=G1|site=S2 & grp=G1 & sex=M" "every trial a success" "site=S2 & grp=G1 & sex=F (100 rows)" -- \
+    --outcome y --trials n --family binomial "${three[@]}" "$tmp/triple_max.csv"
+flagged poisson_triple_clean "" -- --outcome y --family poisson "${three[@]}" "$tmp/triple_clean.csv"
+
 # The counts add up to the same totals whatever the threads and reads.
 for t in 1 3; do
     $bin fit --quiet --json "$tmp/t$t.json" --threads "$t" --buffer-size 4096 --outcome y --family poisson \
@@ -112,4 +144,12 @@ a, b = (json.load(open(p)) for p in sys.argv[1:])
 assert [c["not_estimable"] for c in a["coefficients"]] == [c["not_estimable"] for c in b["coefficients"]]
 assert a["warnings"] == b["warnings"] and a["coefficients"] == b["coefficients"]
 ' "$tmp/t1.json" "$tmp/t3.json"; then ok threads_same_flags; else fail threads_same_flags "differ"; fi
+for t in 1 3; do
+    $bin fit --quiet --json "$tmp/u$t.json" --threads "$t" --buffer-size 4096 --outcome y --family poisson \
+        "${three[@]}" "$tmp/triple.csv" > /dev/null 2>&1
+done
+if cmp -s <("$py" -c 'import json,sys; j=json.load(open(sys.argv[1])); print(j["warnings"], j["coefficients"])' "$tmp/u1.json") \
+          <("$py" -c 'import json,sys; j=json.load(open(sys.argv[1])); print(j["warnings"], j["coefficients"])' "$tmp/u3.json") &&
+   grep -q "site=S1 & grp=G2 & sex=M (100 rows)" "$tmp/u1.json"; then ok threads_same_triple_flags
+else fail threads_same_triple_flags "differ"; fi
 finish
