@@ -47,7 +47,8 @@ typedef enum mr__pass_kind { MR__PASS_SCAN, MR__PASS_IRLS, MR__PASS_SCORE, MR__P
  * pass over 2e6 rows a third of its time in page faults and in the
  * interrupts that unmapping sends to every core.  A zeroed pool is empty;
  * whoever runs the passes owns it and empties it with
- * mr__pass_pool_release once the last pass is over.  Private to pass.c. */
+ * mr__pass_pool_release once the last pass is over.  Private to
+ * pass_pool.c. */
 typedef struct mr__pass_pool {
     const mr__binding *bind;    /* what the kept blocks were made for */
     struct mr__pool_slot *slot; /* nslot of them */
