@@ -1,5 +1,6 @@
-/* robust.c - robust (sandwich) standard errors: the options, the
- * covariance from the meat pass (accum/job_meat.c) and the accessors.
+/* robust.c - robust (sandwich) standard errors: the options, the meat
+ * pass's set-up (its job: accum/job_meat.c), the covariance from it and
+ * the accessors.
  *
  * V = B M B, with B = (X'WX)^-1 (the bread) and M the meat, both added up
  * by the meat pass at the final coefficients (the last IRLS pass may be a
@@ -17,6 +18,8 @@
 #include <math.h>
 #include <string.h>
 
+#include "accum/meat.h"
+#include "accum/pass.h"
 #include "common/alloc.h"
 #include "fit/fit.h"
 #include "fit/fitter.h"
@@ -168,4 +171,59 @@ double mr_fit_robust_std_error(const mr_fit *fit, size_t j)
 double mr_fit_robust_covariance(const mr_fit *fit, size_t i, size_t j)
 {
     return fit->robust && fit->robust_cov && i < fit->p && j < fit->p ? fit->robust_cov[j * fit->p + i] : NAN;
+}
+
+/* ---- the meat pass ------------------------------------------------------ */
+
+/* One pass at the final coefficients for the sandwich's meat (accum/meat.h):
+ * by rows from the kept blocks when there are any, else from the input
+ * (collapsed patterns cannot give it: within a pattern the rows' residuals
+ * differ); by clusters always from the input, whose blocks carry the
+ * cluster column. */
+static mr_status meat_pass(mr__run *r, int table, mr__error *err)
+{
+    mr__irls_point pt;
+    mr__meat_cfg mc;
+    mr__pass_cfg c = mr__run_pass_config(r, MR__PASS_MEAT);
+    mr__family fam = r->family;
+    mr_status st;
+    /* the family at its final parameter, without the sums of its own
+     * (theta's score, a series density) that this pass has no use for */
+    fam.estimate = 0;
+    fam.dispersion = NAN;
+    memset(&pt, 0, sizeof pt);
+    pt.design = &r->design;
+    pt.family = &fam;
+    pt.link = mr__link_ops_of((mr_link)mr__spec_link(&r->f->spec));
+    pt.beta = r->beta_final;
+    pt.null_skip = 1;
+    memset(&mc, 0, sizeof mc);
+    mc.clusters = r->f->cluster != NULL;
+    mc.table = table;
+    mc.limit = r->f->cluster_memory;
+    mc.display = r->display;
+    c.point = &pt;
+    c.job_arg = &mc;
+    c.map = &r->first.map;
+    if (!mc.clusters && r->use_store && r->store_filled) {
+        c.store = &r->store;
+        c.store_fill = 0;
+    }
+    mr__pass_result_release(&r->meat, 0);
+    st = mr__pass_run(&c, &r->meat, err);
+    if (st != MR_OK) return st;
+    if (c.store == NULL) MR__TRY(mr__run_check_same_input(r, &r->meat, err));
+    return mr__run_note_pass(r, &r->meat, err);
+}
+
+/* Streamed first: a file grouped by the cluster column needs one set of
+ * the clusters seen; when a cluster comes back, the pass runs again with
+ * every cluster's sums in a table. */
+mr_status mr__robust_pass(mr__run *r, mr__error *err)
+{
+    mr_status st = meat_pass(r, 0, err);
+    if (st == MR_OK || !r->meat.clusters_not_grouped) return st;
+    mr__error_clear(err);
+    r->clusters_table = 1;
+    return meat_pass(r, 1, err);
 }

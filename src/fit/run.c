@@ -8,7 +8,11 @@
  * loop stops when the step a pass gives is at most the tolerance in
  * standard errors (irls.c); that step is taken without another pass, and
  * the reported statistics are those of the last pass.  The null model (intercept and offset only) is fitted
- * alongside in the same passes. */
+ * alongside in the same passes.
+ *
+ * This file only sequences: the threads, the passes' configuration, the
+ * first pass, then the IRLS passes and the warm start (run_irls.c), the
+ * meat pass (robust.c) and the published fit (result.c). */
 #define _POSIX_C_SOURCE 200809L
 #include <cblas.h>
 
@@ -16,14 +20,12 @@
 void openblas_set_num_threads(int num_threads);
 int openblas_get_num_threads(void);
 #include <errno.h>
-#include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
 #include <unistd.h>
 
-#include "accum/meat.h"
 #include "accum/pass.h"
 #include "common/alloc.h"
 #include "common/clock.h"
@@ -35,8 +37,6 @@ int openblas_get_num_threads(void);
 #include "fit/run.h"
 #include "fit/start.h"
 #include "model/design.h"
-#include "common/probability.h"
-#include "solve/normal_eq.h"
 
 /* Each worker costs about 6 MB (its two ring slots of 2 MiB, its
  * decoder and scratch), and past the cores more workers only queue: the
@@ -67,7 +67,7 @@ static void choose_threads(mr__run *r)
 
 /* ---- passes ------------------------------------------------------------ */
 
-static mr__pass_cfg pass_config(mr__run *r, mr__pass_kind kind)
+mr__pass_cfg mr__run_pass_config(mr__run *r, mr__pass_kind kind)
 {
     mr__pass_cfg c;
     memset(&c, 0, sizeof c);
@@ -94,7 +94,7 @@ static mr__pass_cfg pass_config(mr__run *r, mr__pass_kind kind)
     return c;
 }
 
-static mr_status note_pass(mr__run *r, const mr__pass_result *res, mr__error *err)
+mr_status mr__run_note_pass(mr__run *r, const mr__pass_result *res, mr__error *err)
 {
     double *grown = mr__realloc(r->pass_seconds, (size_t)(r->npasses + 1) * sizeof *grown);
     if (grown == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
@@ -105,7 +105,7 @@ static mr_status note_pass(mr__run *r, const mr__pass_result *res, mr__error *er
 
 /* Later passes must see the very file the first pass saw: its size and
  * time, and its checksum (an edit in place may keep both). */
-static mr_status check_same_input(mr__run *r, const mr__pass_result *res, mr__error *err)
+mr_status mr__run_check_same_input(mr__run *r, const mr__pass_result *res, mr__error *err)
 {
     int streamed_same;
     if (res->raw_bytes == 0 && r->use_store) return MR_OK;
@@ -118,7 +118,7 @@ static mr_status check_same_input(mr__run *r, const mr__pass_result *res, mr__er
 
 mr_status mr__run_scan_cfg(mr__run *r, mr__pass_cfg *c, int spool, mr__error *err)
 {
-    *c = pass_config(r, MR__PASS_SCAN);
+    *c = mr__run_pass_config(r, MR__PASS_SCAN);
     if (spool && r->set.n == 0 && mr__read_only_once(r->path)) {
         MR__TRY(mr__open_spool(r, err));
         c->tee_fd = r->spool_fd;
@@ -144,7 +144,7 @@ mr_status mr__run_scan_done(mr__run *r, mr_status st, mr__error *err)
         r->size = (uint64_t)sb.st_size;
         r->mtime_ns = (int64_t)sb.st_mtim.tv_sec * 1000000000 + sb.st_mtim.tv_nsec;
     }
-    return note_pass(r, &r->first, err);
+    return mr__run_note_pass(r, &r->first, err);
 }
 
 static mr_status scan_pass(mr__run *r, mr__error *err)
@@ -152,386 +152,6 @@ static mr_status scan_pass(mr__run *r, mr__error *err)
     mr__pass_cfg c;
     MR__TRY(mr__run_scan_cfg(r, &c, 1, err));
     return mr__run_scan_done(r, mr__pass_run(&c, &r->first, err), err);
-}
-
-/* ---- IRLS -------------------------------------------------------------- */
-
-/* Whether null_start is the null model's maximum-likelihood intercept:
- * with no offset the fitted mean is the weighted mean of y under every
- * family and link; with an offset, poisson's log-link score equation
- * sum w (y - exp(b0 + offset)) = 0 solves in closed form. */
-static int null_start_exact(const mr__run *r)
-{
-    if (!r->dcfg.bind->has_offset && !r->dcfg.bind->has_exposure) return 1;
-    return r->family.ops->log_offset_null_exact && mr__spec_link(&r->f->spec) == MR_LOG && r->first.scan.swy > 0 &&
-           isfinite(log(r->first.scan.swy / r->first.scan.swe));
-}
-
-/* The null model's starting intercept; exact where null_start_exact says. */
-static double null_start(const mr__run *r)
-{
-    const mr__scan_sums *s = &r->first.scan;
-    int link = mr__spec_link(&r->f->spec);
-    const mr__link_ops *g = mr__link_ops_of((mr_link)link);
-    double ybar = r->family.ops->clamp_mean(s->swy / s->sw);
-    if (!r->dcfg.bind->has_offset && !r->dcfg.bind->has_exposure) return mr__link_fun1(g, ybar);
-    if (link == MR_LOG) return log(s->swy / s->swe);
-    return mr__link_fun1(g, ybar) - s->swoff / s->sw;
-}
-
-/* One IRLS run: on the data, or on the kept sample for a warm start. */
-typedef struct irls_job {
-    mr__store *replay;   /* NULL: the data (stream or cache); else these blocks */
-    size_t replay_stride; /* of those, every stride-th (0, 1: all) */
-    int step_at_end;     /* after the last pass allowed, still take its step */
-    int restarted;       /* the start was given up for the family's own */
-    const double *start; /* NULL: from the family's starting means */
-    double tolerance;
-    double dispersion_rows; /* see mr__irls_cfg; 0 on the sample (phi taken as 1) */
-    int max_iterations;
-    double *beta_out;    /* the coefficients reached */
-    int *growing_out;    /* NULL, or per coefficient: its SE grew pass after pass */
-    double deviance_shift; /* collapsed patterns: the deviance within patterns */
-    mr__irls *resume;    /* NULL, or the state a checkpoint left (taken over) */
-    int checkpoints;     /* the fit of the data: a checkpoint after each pass */
-    int calibrate;         /* bin the fitted means (accum/calibration.h) */
-    int iterations, halvings, converged, by_step;
-    double rel_change, null_b0, step;
-} irls_job;
-
-/* Once the null model has converged its deviance no longer changes, and
- * its per-row work (a mean, a variance and a log each) is left out. */
-static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, double null_b0,
-                           const double *null_dev_known, mr__pass_result *res, mr__error *err)
-{
-    mr__irls_point pt;
-    mr__pass_cfg c;
-    mr_status st;
-    int shared = mr__shared(r);
-    mr__partial_range range;
-    mr__bytebuf groups;
-    pt.design = &r->design;
-    pt.family = &r->family;
-    pt.link = mr__link_ops_of((mr_link)mr__spec_link(&r->f->spec));
-    pt.beta = beta;
-    pt.null_intercept = r->f->spec.intercept;
-    pt.null_b0 = null_b0;
-    pt.null_skip = null_dev_known != NULL;
-    pt.calibrate = job->calibrate;
-    pt.calib_unit = r->family.ops->mu_hi == 1.0;
-    pt.calib_rate = mr__calib_by_rate(r);
-    c = pass_config(r, MR__PASS_IRLS);
-    c.point = &pt;
-    if (shared && !job->replay) {
-        range = mr__share_range(r);
-        c.range = &range;
-        c.groups_out = &groups;
-    }
-    if (job->replay) {
-        c.store = job->replay;
-        c.store_fill = 0;
-        c.replay_stride = job->replay_stride;
-        c.progress = NULL;
-        c.progress_stop = NULL;
-    }
-    mr__pass_result_release(res, 0);
-    memset(&groups, 0, sizeof groups);
-    st = mr__pass_run(&c, res, err);
-    if (c.range != NULL) {
-        /* this rank's own check first: every rank then learns how it went */
-        if (st == MR_OK) st = check_same_input(r, res, err);
-        st = mr__share_reduce(r, st, &groups, res, err);
-        mr__bytebuf_release(&groups);
-    }
-    res->sums.dev += job->deviance_shift;
-    res->sums.null_dev = null_dev_known ? *null_dev_known : res->sums.null_dev + job->deviance_shift;
-    if (st != MR_OK || job->replay) return st;
-    if (res->store_failed) mr__go_without_cache(r, res->store_err.msg);
-    else if (c.store) r->store_filled = 1;
-    MR__TRY(check_same_input(r, res, err));
-    return note_pass(r, res, err);
-}
-
-/* IRLS is Newton's method under a family's canonical link; the negative
- * binomial's and the Tweedie's defaults (log) are not theirs. */
-static int newton_link(const mr__run *r)
-{
-    int family = r->f->spec.family;
-    return family != MR_NEGATIVE_BINOMIAL && family != MR_TWEEDIE &&
-           mr__spec_link(&r->f->spec) == (int)mr__canonical_link((mr_family)family);
-}
-
-/* Where the family sums a series density (tweedie), the dispersion to
- * sum it at in the next pass: the deviance-based estimate of the last
- * accepted point, once the last step was within a standard error of the
- * maximum, so that only the passes near the end pay for the series; the
- * result carries the sum to the final pass's own dispersion
- * (fit/result.c).  NaN: not this pass. */
-static double series_dispersion(const mr__run *r, const mr__irls *s)
-{
-    double sw = r->first.scan.sw;
-    if (!r->family.ops->loglik_by_rows || !s->have_dev || !s->have_prev || !(sw > 0)) return NAN;
-    if (!(s->step <= 1)) return NAN;
-    return s->dev_prev / sw;
-}
-
-static mr_status init_state(mr__run *r, irls_job *job, mr__irls *s, mr__error *err)
-{
-    mr__irls_cfg c;
-    if (job->resume) {
-        *s = *job->resume;
-        memset(job->resume, 0, sizeof *job->resume);
-        if (s->p != r->design.p) return mr__fail(err, MR_ERR_INTERNAL, "the checkpoint's state does not fit the design");
-        return MR_OK;
-    }
-    memset(&c, 0, sizeof c);
-    c.p = mr__design_ncoef(&r->design);
-    c.tolerance = job->tolerance;
-    c.dispersion_rows = job->dispersion_rows;
-    c.newton = newton_link(r);
-    c.max_iterations = job->max_iterations;
-    c.step_at_end = job->step_at_end;
-    c.start = job->start;
-    c.null_intercept = r->f->spec.intercept;
-    c.null_b0 = null_start(r);
-    c.null_exact = null_start_exact(r);
-    c.family = r->f->spec.family;
-    c.param_estimate = r->family.estimate;
-    c.param_known = r->param_known;
-    c.param_start = r->family.param;
-    MR__TRY(mr__irls_init(s, &c, err));
-    /* the first pass (and the warm start) done: the first checkpoint, and
-     * the other processes' start */
-    if (!job->checkpoints) return MR_OK;
-    MR__TRY(mr__checkpoint_write(r, s, err));
-    return mr__share_send_start(r, s, err);
-}
-
-/* The passes the state machine asks for, until it is done; the family's
- * parameter, where estimated, moves with them (r->family.param).  A pass
- * over collapsed patterns runs in memory: only reads of the data are worth
- * a checkpoint. */
-static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__error *err)
-{
-    mr__irls s;
-    mr_status st;
-    int done = 0;
-    size_t j;
-    memset(&s, 0, sizeof s);
-    st = init_state(r, job, &s, err);
-    while (st == MR_OK && !done) {
-        if (r->family.estimate) r->family.param = mr__irls_param(&s);
-        r->family.dispersion = series_dispersion(r, &s);
-        st = irls_pass(r, job, mr__irls_beta(&s), s.null_b0, mr__irls_null_deviance(&s), res, err);
-        if (st == MR_OK) st = mr__irls_step(&s, &res->sums, r->display, &done, err);
-        if (st == MR_OK && !done && job->checkpoints && !job->replay) st = mr__checkpoint_write(r, &s, err);
-    }
-    job->iterations = s.iterations;
-    job->halvings = s.halvings;
-    job->converged = s.converged;
-    job->by_step = s.by_step;
-    job->restarted = s.restarted;
-    job->rel_change = s.rel_change;
-    job->null_b0 = s.null_b0;
-    job->step = s.step;
-    if (r->family.estimate) r->family.param = mr__irls_param(&s);
-    r->loglik_dispersion = r->family.dispersion;
-    if (st == MR_OK) mr__irls_coefficients(&s, job->beta_out);
-    for (j = 0; st == MR_OK && job->growing_out && j < s.p; j++)
-        job->growing_out[j] = mr__irls_ran_off(&s, j);
-    mr__irls_release(&s);
-    return st;
-}
-
-/* ---- the warm start ---------------------------------------------------- */
-
-/* Most IRLS passes only walk towards the answer; taking those steps on a
- * sample spread over the whole file costs next to nothing, and the full
- * passes then only polish.  The steps are taken on about a quarter of the
- * sample's blocks, and one more on all of them: from a start that close,
- * one Newton step lands about where the whole sample's fit would, for a
- * fraction of the cost, and the better start saves full passes.  Any
- * trouble on the sample just means a cold start, or the first stage's
- * point. */
-static int sample_fit(mr__run *r, size_t stride, const double *start, int max_iterations, double *out,
-                      int *iterations)
-{
-    mr__pass_result res;
-    mr__error scratch;
-    irls_job job;
-    int ok;
-    size_t j;
-    memset(&res, 0, sizeof res);
-    memset(&job, 0, sizeof job);
-    job.replay = &r->first.sample;
-    job.replay_stride = stride;
-    job.start = start;
-    /* the sample's maximum is within its own sampling error of the
-     * file's, so a step of a thousandth of its standard errors is near
-     * enough */
-    job.tolerance = 1e-3;
-    job.max_iterations = max_iterations;
-    job.step_at_end = start != NULL;
-    job.beta_out = out;
-    ok = iterate(r, &job, &res, &scratch) == MR_OK && !job.restarted && (job.converged || job.step_at_end);
-    for (j = 0; ok && j < mr__design_ncoef(&r->design); j++) ok = isfinite(out[j]);
-    *iterations = job.iterations;
-    mr__pass_result_release(&res, 0);
-    return ok;
-}
-
-/* One step on the whole sample from the quarter's fit. */
-static void polish_start(mr__run *r, const mr__store *sample)
-{
-    double *polished = mr__malloc_array(mr__design_ncoef(&r->design), sizeof *polished), param = r->family.param;
-    int steps;
-    if (polished != NULL && sample_fit(r, 1, r->beta_warm, 1, polished, &steps)) {
-        memcpy(r->beta_warm, polished, mr__design_ncoef(&r->design) * sizeof *polished);
-        r->warm_polish_blocks = (int)sample->n;
-    } else {
-        r->family.param = param;
-    }
-    mr__free(polished);
-}
-
-/* A parameter estimated on the sample is the full fit's start; after a
- * failed warm start, the plain start again. */
-static void warm_param(mr__run *r, double plain)
-{
-    if (!r->family.estimate) return;
-    r->param_known = r->warm && isfinite(r->family.param) && r->family.param > 0;
-    if (!r->param_known) r->family.param = plain;
-}
-
-static void warm_start(mr__run *r)
-{
-    mr__store *sample = &r->first.sample;
-    double plain = r->family.param;
-    /* the first stage takes a quarter to a half of the sample's blocks; a
-     * file of fewer than MR__SAMPLE_BLOCKS / 2 blocks gains little from
-     * any of this */
-    size_t stride = sample->n / (MR__SAMPLE_BLOCKS / 4);
-    int whole_file = r->first.sample_stride == 1;
-    mr__error scratch;
-    /* the sample holds first-pass level numbers, as the cache does; with
-     * no cache, or a cache started afresh, the maps are not made yet */
-    if (!r->started && !r->collapsed && stride >= 2 && (r->remap != NULL || mr__build_remap(r, &scratch) == MR_OK)) {
-        mr__store_remap(sample, r->remap, r->bind.nfac);
-        r->warm = sample_fit(r, stride, NULL, 25, r->beta_warm, &r->warm_iterations);
-        r->warm_blocks = (int)((sample->n + stride - 1) / stride);
-        /* on a whole small file, a step on all of it is a full pass */
-        warm_param(r, plain);
-        if (r->warm && !whole_file) polish_start(r, sample);
-    }
-    mr__store_release(sample);
-    mr__store_init_packed(sample);
-}
-
-/* A fit ended by the size of its step took that step without a pass:
- * the last pass's bins hold the means one step before the coefficients
- * reported.  Collapsed patterns are in memory, and one more pass over them
- * at the coefficients reported costs next to nothing (and rereads no
- * file); a pass over the rows would cost a whole read, so there the bins
- * stay those of the last pass (the basis says so, result.c). */
-static mr_status calibration_pass(mr__run *r, irls_job *job, mr__error *err)
-{
-    mr__pass_result res;
-    mr_status st;
-    memset(&res, 0, sizeof res);
-    st = irls_pass(r, job, r->beta_final, job->null_b0, &r->last.sums.null_dev, &res, err);
-    if (st == MR_OK) {
-        mr__calib t = r->last.sums.calib;
-        r->last.sums.calib = res.sums.calib;
-        res.sums.calib = t;
-        r->calib_at_reported = 1;
-    }
-    mr__pass_result_release(&res, 0);
-    return st;
-}
-
-static mr_status fit_data(mr__run *r, mr__irls *resume, mr__error *err)
-{
-    irls_job job;
-    memset(&job, 0, sizeof job);
-    job.calibrate = 1;
-    job.resume = resume;
-    job.checkpoints = 1;
-    if (r->collapsed) {
-        job.replay = &r->patterns;
-        job.deviance_shift = r->within_deviance;
-    }
-    job.start = r->warm || r->started ? r->beta_warm : NULL;
-    job.tolerance = r->f->tolerance;
-    job.dispersion_rows = mr__spec_dispersion_estimated(&r->f->spec) ? (double)r->first.scan.npos : 0;
-    job.max_iterations = r->f->max_passes;
-    job.beta_out = r->beta_final;
-    job.growing_out = r->growing;
-    MR__TRY(iterate(r, &job, &r->last, err));
-    r->iterations = job.iterations;
-    r->halvings = job.halvings;
-    r->converged = job.converged;
-    r->by_step = job.by_step;
-    r->rel_change = job.rel_change;
-    r->null_b0 = job.null_b0;
-    r->calib_at_reported = !job.by_step;
-    r->step = job.step;
-    if (job.by_step && r->collapsed) MR__TRY(calibration_pass(r, &job, err));
-    return MR_OK;
-}
-
-/* ---- robust standard errors -------------------------------------------- */
-
-/* One pass at the final coefficients for the sandwich's meat (accum/meat.h):
- * by rows from the kept blocks when there are any, else from the input
- * (collapsed patterns cannot give it: within a pattern the rows' residuals
- * differ); by clusters always from the input, whose blocks carry the
- * cluster column. */
-static mr_status meat_pass(mr__run *r, int table, mr__error *err)
-{
-    mr__irls_point pt;
-    mr__meat_cfg mc;
-    mr__pass_cfg c = pass_config(r, MR__PASS_MEAT);
-    mr__family fam = r->family;
-    mr_status st;
-    /* the family at its final parameter, without the sums of its own
-     * (theta's score, a series density) that this pass has no use for */
-    fam.estimate = 0;
-    fam.dispersion = NAN;
-    memset(&pt, 0, sizeof pt);
-    pt.design = &r->design;
-    pt.family = &fam;
-    pt.link = mr__link_ops_of((mr_link)mr__spec_link(&r->f->spec));
-    pt.beta = r->beta_final;
-    pt.null_skip = 1;
-    memset(&mc, 0, sizeof mc);
-    mc.clusters = r->f->cluster != NULL;
-    mc.table = table;
-    mc.limit = r->f->cluster_memory;
-    mc.display = r->display;
-    c.point = &pt;
-    c.job_arg = &mc;
-    c.map = &r->first.map;
-    if (!mc.clusters && r->use_store && r->store_filled) {
-        c.store = &r->store;
-        c.store_fill = 0;
-    }
-    mr__pass_result_release(&r->meat, 0);
-    st = mr__pass_run(&c, &r->meat, err);
-    if (st != MR_OK) return st;
-    if (c.store == NULL) MR__TRY(check_same_input(r, &r->meat, err));
-    return note_pass(r, &r->meat, err);
-}
-
-/* Streamed first: a file grouped by the cluster column needs one set of
- * the clusters seen; when a cluster comes back, the pass runs again with
- * every cluster's sums in a table. */
-static mr_status robust_pass(mr__run *r, mr__error *err)
-{
-    mr_status st = meat_pass(r, 0, err);
-    if (st == MR_OK || !r->meat.clusters_not_grouped) return st;
-    mr__error_clear(err);
-    r->clusters_table = 1;
-    return meat_pass(r, 1, err);
 }
 
 /* ---- the run ------------------------------------------------------------ */
@@ -659,9 +279,9 @@ mr_status mr__run_rest(mr__run *r, mr_fit **out)
     r->started = st == MR_OK && f->start != NULL;
     /* a previous fit's point is nearer the maximum than a sample's: the
      * warm start then only gives its sample back */
-    if (st == MR_OK && !r->have_resume) warm_start(r);
-    if (st == MR_OK) st = fit_data(r, r->have_resume ? &r->resume : NULL, err);
-    if (st == MR_OK && mr__robust_type(f) != MR_ROBUST_NONE) st = robust_pass(r, err);
+    if (st == MR_OK && !r->have_resume) mr__run_warm_start(r);
+    if (st == MR_OK) st = mr__run_fit_data(r, r->have_resume ? &r->resume : NULL, err);
+    if (st == MR_OK && mr__robust_type(f) != MR_ROBUST_NONE) st = mr__robust_pass(r, err);
     if (st == MR_OK) st = mr__build_fit(r, out, err);
     return st;
 }

@@ -126,6 +126,19 @@ mr_status mr__run_scan_cfg(mr__run *r, mr__pass_cfg *c, int spool, mr__error *er
 mr_status mr__run_scan_done(mr__run *r, mr_status st, mr__error *err);
 mr_status mr__run_rest(mr__run *r, mr_fit **out);
 void mr__run_release(mr__run *r);
+/* run.c, for the run's passes: a pass's configuration for this run; a
+ * pass's time noted; a later pass's input checked to be the first's. */
+mr__pass_cfg mr__run_pass_config(mr__run *r, mr__pass_kind kind);
+mr_status mr__run_note_pass(mr__run *r, const mr__pass_result *res, mr__error *err);
+mr_status mr__run_check_same_input(mr__run *r, const mr__pass_result *res, mr__error *err);
+/* run_irls.c: the warm start on the first pass's sample (any trouble: a
+ * cold start); the IRLS fit of the data (resume: NULL, or a checkpoint's
+ * state, taken over). */
+void mr__run_warm_start(mr__run *r);
+mr_status mr__run_fit_data(mr__run *r, mr__irls *resume, mr__error *err);
+/* robust.c: the meat pass at the final coefficients (by clusters: again
+ * with a table when the file is not grouped), into r->meat. */
+mr_status mr__robust_pass(mr__run *r, mr__error *err);
 
 /* header.c: binds the columns on the first pass, checks the row after. */
 mr_status mr__run_on_header(void *user, const char *line, size_t len, mr__error *err);
