@@ -102,6 +102,14 @@ mr_status mr__map_to_raw(const mr__design *d, const double *beta_s, const double
 mr_status mr__robust_result(mr_fit *fit, const mr__run *r, mr__error *err);
 
 mr_status mr__build_fit(mr__run *r, mr_fit **out, mr__error *err);
+/* result_record.c: what the fit records beside its estimates: the model,
+ * the run and its options, the data's summary, the numeric columns. */
+mr_status mr__result_copy_model(mr_fit *fit, const mr__run *r, mr__error *err);
+mr_status mr__result_copy_run_info(mr_fit *fit, const mr__run *r, mr__error *err);
+mr_status mr__result_copy_data_summary(mr_fit *fit, const mr__run *r, mr__error *err);
+mr_status mr__result_copy_numerics(mr_fit *fit, const mr__run *r, mr__error *err);
+/* result_warnings.c: the fit's warnings, once its estimates are in. */
+void mr__result_warnings(mr_fit *fit, const mr__run *r);
 /* The fit's calibration table from the last pass's bins (calibrate.c). */
 mr_status mr__fit_calibration(mr_fit *fit, const mr__run *r, mr__error *err);
 /* 1: the calibration bins rows by their rate, the model having an offset
