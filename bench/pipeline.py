@@ -11,6 +11,7 @@ fails on a cost, and CI never runs it.
                                      callgrind at 10^5 rows: the same on a busy
                                      machine; bench/results/pipeline-instructions.{json,md}
   BENCH_ROWS=N                       another row count for either mode
+  MILLRACE=PATH                      the binary measured (default build/millrace)
 
 The cost of "one pass" is the difference between a fit allowed three IRLS
 passes and one allowed two (--max-passes; both stop unconverged), with the
@@ -31,6 +32,8 @@ sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 import run as bench  # noqa: E402  (the cases, the synth data, the timer)
 
 INSTRUCTIONS = "--instructions" in sys.argv[1:]
+# MILLRACE=PATH: another binary (a copy, so that a rebuild cannot change it mid-run)
+bench.MILLRACE = os.environ.get("MILLRACE", bench.MILLRACE)
 DATA = os.path.join(bench.DATA, "pipeline")
 ROWS = int(float(os.environ.get("BENCH_ROWS", "1e5" if INSTRUCTIONS else "1e7")))
 REPEATS = 1 if INSTRUCTIONS else 3
