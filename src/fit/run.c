@@ -193,6 +193,7 @@ typedef struct irls_job {
     int *growing_out;    /* NULL, or per coefficient: its SE grew pass after pass */
     double deviance_shift; /* collapsed patterns: the deviance within patterns */
     mr__irls *resume;    /* NULL, or the state a checkpoint left (taken over) */
+    int finished;        /* that state is after the last step: no pass left */
     int checkpoints;     /* the fit of the data: a checkpoint after each pass */
     int calibrate;         /* bin the fitted means (accum/calibration.h) */
     int iterations, halvings, converged, by_step;
@@ -296,7 +297,7 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
 {
     mr__irls s;
     mr_status st;
-    int done = 0;
+    int done = job->finished;
     size_t j;
     memset(&s, 0, sizeof s);
     st = init_state(r, job, &s, err);
@@ -306,6 +307,9 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
         st = irls_pass(r, job, mr__irls_beta(&s), s.null_b0, mr__irls_null_deviance(&s), res, err);
         if (st == MR_OK) st = mr__irls_step(&s, &res->sums, r->display, &done, err);
         if (st == MR_OK && !done && job->checkpoints && !job->replay) st = mr__checkpoint_write(r, &s, err);
+        /* the passes over: what the fit takes from the last, so that a
+         * rerun killed before its outputs reads no data for it */
+        if (st == MR_OK && done && job->checkpoints) st = mr__checkpoint_write_done(r, &s, err);
     }
     job->iterations = s.iterations;
     job->halvings = s.halvings;
@@ -437,6 +441,11 @@ static mr_status fit_data(mr__run *r, mr__irls *resume, mr__error *err)
     job.calibrate = 1;
     job.resume = resume;
     job.checkpoints = 1;
+    /* a checkpoint made after the last pass: its totals, no pass */
+    if (resume && r->resume_stage >= 1) {
+        MR__TRY(mr__checkpoint_done_take(r, 1, err));
+        job.finished = 1;
+    }
     if (r->collapsed) {
         job.replay = &r->patterns;
         job.deviance_shift = r->within_deviance;
@@ -508,11 +517,15 @@ static mr_status meat_pass(mr__run *r, int table, mr__error *err)
  * every cluster's sums in a table. */
 static mr_status robust_pass(mr__run *r, mr__error *err)
 {
-    mr_status st = meat_pass(r, 0, err);
-    if (st == MR_OK || !r->meat.clusters_not_grouped) return st;
-    mr__error_clear(err);
-    r->clusters_table = 1;
-    return meat_pass(r, 1, err);
+    mr_status st;
+    if (r->have_resume && r->resume_stage >= 2) return mr__checkpoint_done_take(r, 2, err);
+    st = meat_pass(r, 0, err);
+    if (st != MR_OK && r->meat.clusters_not_grouped) {
+        mr__error_clear(err);
+        r->clusters_table = 1;
+        st = meat_pass(r, 1, err);
+    }
+    return st == MR_OK ? mr__checkpoint_write_robust(r, err) : st;
 }
 
 /* ---- the run ------------------------------------------------------------ */
@@ -521,6 +534,8 @@ void mr__run_release(mr__run *r)
 {
     size_t f;
     mr__irls_release(&r->resume);
+    mr__free(r->resume_done);
+    mr__free(r->done_state);
     mr__pass_result_release(&r->first, r->bind.nfac);
     mr__pass_result_release(&r->last, 0);
     mr__pass_result_release(&r->meat, 0);
