@@ -827,7 +827,10 @@ MR_API mr_status mr_drift_write_csv(const mr_drift *d, const char *path, const c
  * empty field stands for none.  The bytes do not depend on the threads.
  *
  * A row the fit cannot score - a factor level the fit never saw, or a
- * missing cell (empty or NA) in a covariate, offset or exposure - follows
+ * missing cell (one of the fit's missing-value tokens, those of
+ * mr_fitter_add_missing, kept in its JSON; the empty cell and NA for a fit
+ * read from a JSON saved before they were kept) in a covariate, offset or
+ * exposure - follows
  * the policy: MR_UNSEEN_FAIL (default) fails the run with MR_ERR_DOMAIN
  * naming file, line, column and value; MR_UNSEEN_BLANK writes the row with
  * its kept columns and empty predictions, and counts it.  A cell that is

@@ -161,6 +161,22 @@ START_TEST(intercept_alone_is_log_mean)
 }
 END_TEST
 
+/* A refused line changes nothing (millrace.h, mr_fitter_model_line): a
+ * family line whose last word is bad, after a word that asked for a
+ * profile, must not leave the profile asked for the family before it
+ * (found by the model fuzz target: the run failed inside on no grid). */
+START_TEST(refused_family_line_changes_nothing)
+{
+    mr_fitter *f = poisson_fitter(NULL);
+    mr_fit *fit = NULL;
+    ck_assert_int_eq(mr_fitter_model_line(f, "family tweedie power=profile power=nine", "test"), MR_ERR_USAGE);
+    ck_assert_int_eq(mr_fitter_run(f, data_path, &fit), MR_OK);
+    ck_assert(close_rel(mr_fit_stat(fit, MR_STAT_DISPERSION), 1.0, 0));
+    mr_fit_free(fit);
+    mr_fitter_free(f);
+}
+END_TEST
+
 /* One term's test through the API against the contract in millrace.h. */
 static void expect_term(const mr_fit *fit, size_t t, const char *name, size_t ncoef, double want_stat,
                         double want_df, double want_p)
@@ -310,6 +326,7 @@ static Suite *api_suite(void)
     tcase_add_unchecked_fixture(t, write_data, remove_data);
     tcase_add_test(t, p_values_and_intervals);
     tcase_add_test(t, intercept_alone_is_log_mean);
+    tcase_add_test(t, refused_family_line_changes_nothing);
     tcase_add_test(t, term_tests);
     tcase_add_test(t, start_from_a_previous_fit);
     tcase_add_test(t, progress_callback_stops_the_run);

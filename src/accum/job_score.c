@@ -159,8 +159,14 @@ static void on_field(void *user, size_t k, const char *p, size_t len)
     mr__row_cells_put(&sw->cells, k, p, len);
 }
 
-/* The empty cell and "NA", the fit's default missing tokens. */
-static int is_missing(const char *p, size_t n) { return n == 0 || (n == 2 && p[0] == 'N' && p[1] == 'A'); }
+/* A cell the fit would have read as missing: its tokens, compared whole. */
+static int is_missing(const mr__score_cfg *c, const char *p, size_t n)
+{
+    size_t i;
+    for (i = 0; i < c->nmissing_tokens; i++)
+        if (strlen(c->missing_token[i]) == n && memcmp(c->missing_token[i], p, n) == 0) return 1;
+    return 0;
+}
 
 static const char *cell(const score_worker *sw, size_t field, size_t *n)
 {
@@ -188,7 +194,7 @@ static int number_at(score_worker *sw, uint32_t r, const char *name, size_t fiel
 {
     size_t n;
     const char *p = cell(sw, field, &n);
-    if (is_missing(p, n)) return 0;
+    if (is_missing(sw->c, p, n)) return 0;
     if (mr__parse_double(sw->np, p, n, v) && isfinite(*v)) return 1;
     cell_error(sw, r, MR_ERR_FORMAT, name, field, "not a number");
     return -1;
@@ -239,7 +245,7 @@ static int row_values(score_worker *sw, uint32_t r, int32_t *lev, double *num)
     int k;
     for (i = 0; i < c->nfac; i++) {
         const char *p = cell(sw, c->fac[i].field, &n);
-        if (is_missing(p, n)) return unscorable(sw, r, ROW_MISSING, c->fac[i].name, c->fac[i].field);
+        if (is_missing(c, p, n)) return unscorable(sw, r, ROW_MISSING, c->fac[i].name, c->fac[i].field);
         lev[i] = mr__levelset_find(&c->fac[i].levels, p, n);
         if (lev[i] < 0) return unscorable(sw, r, ROW_UNSEEN, c->fac[i].name, c->fac[i].field);
     }

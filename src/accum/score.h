@@ -65,6 +65,9 @@ typedef struct mr__score_cfg {
     const char *const *keep_name; /* columns passed through, as named */
     size_t nfields;  /* of the header */
     char delim;
+    /* the tokens that mean a missing cell, the fit's ("" the empty cell) */
+    const char *const *missing_token;
+    size_t nmissing_tokens;
     const char *display;
     double z;        /* normal quantile of the interval */
     int blank_unscorable; /* 1: an unseen level or missing value writes empty predictions */

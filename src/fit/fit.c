@@ -55,6 +55,7 @@ void mr_fit_free(mr_fit *fit)
     free_strings(fit->missing_name, fit->nmissing);
     mr__free(fit->missing_count);
     free_strings(fit->bad_example, fit->nbad_examples);
+    free_strings(fit->missing_token, fit->nmissing_tokens);
     mr__free(fit->pass_seconds);
     mr__free(fit->calib_basis);
     mr__free(fit->calib);

@@ -123,6 +123,13 @@ struct mr_fit {
     int threads, max_passes, in_memory, skip_bad, cached;
     size_t buffer_size;
     double tolerance, level;
+    /* the missing-value tokens the rows were read with ("" the empty
+     * cell), so that scoring reads new rows as the fit read its own;
+     * missing_known 0 for a fit read back from a JSON written before they
+     * were kept (then the defaults, "" and "NA") */
+    int missing_known;
+    char **missing_token;
+    size_t nmissing_tokens;
     char **warning;
     size_t nwarnings;
     /* the run's audit trail (fitter.c): 0 in run_known for a fit read back

@@ -452,6 +452,21 @@ static mr_status record_set(const mr__run *r, mr_fit *fit, mr__error *err)
     return MR_OK;
 }
 
+static mr_status record_missing_tokens(const mr_fitter *f, mr_fit *fit, mr__error *err)
+{
+    size_t i;
+    fit->missing_known = 1;
+    if (f->nmissing == 0) return MR_OK;
+    fit->missing_token = mr__calloc(f->nmissing, sizeof *fit->missing_token);
+    if (fit->missing_token == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (i = 0; i < f->nmissing; i++) {
+        if ((fit->missing_token[i] = mr__strdup(f->missing[i])) == NULL)
+            return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        fit->nmissing_tokens++;
+    }
+    return MR_OK;
+}
+
 static mr_status copy_run_info(mr_fit *fit, const mr__run *r, mr__error *err)
 {
     const mr_fitter *f = r->f;
@@ -502,7 +517,7 @@ static mr_status copy_run_info(mr_fit *fit, const mr__run *r, mr__error *err)
     fit->buffer_size = f->buffer_size;
     fit->tolerance = f->tolerance;
     fit->level = f->level;
-    return MR_OK;
+    return record_missing_tokens(f, fit, err);
 }
 
 /* An estimated parameter: the counts it is a likelihood of, and a theta

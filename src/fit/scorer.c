@@ -195,6 +195,8 @@ static mr_status make_coefficients(scoring *g, mr__error *err)
     return MR_OK;
 }
 
+static const char *const default_missing[] = {"", "NA"};
+
 static mr_status make_model(scoring *g, mr__error *err)
 {
     const mr_fit *fit = g->s->fit;
@@ -223,6 +225,9 @@ static mr_status make_model(scoring *g, mr__error *err)
     g->c.z = mr__normal_quantile(0.5 + g->s->level / 2);
     g->c.blank_unscorable = g->s->blank;
     g->c.display = g->display;
+    /* a fit read from a JSON older than its tokens: the defaults it had */
+    g->c.missing_token = fit->missing_known ? (const char *const *)fit->missing_token : default_missing;
+    g->c.nmissing_tokens = fit->missing_known ? fit->nmissing_tokens : 2;
     return MR_OK;
 }
 

@@ -174,28 +174,31 @@ static mr_status parse_family(mr__spec *s, const words *ws, const char *origin, 
     int v = ws->n >= 2 ? mr__family_from_name(ws->w[1]) : -1, i;
     const mr__family_ops *ops = v >= 0 ? mr__family_ops_of((mr_family)v) : NULL;
     double param = NAN;
+    int profile = 0;
     if (ops == NULL || ops->parse_param == NULL) MR__TRY(expect_args(ws, 1, origin, err));
     if (ops == NULL)
         return mr__fail(err, MR_ERR_USAGE,
                         "%s: unknown family '%s' (gaussian, binomial, poisson, gamma, inverse-gaussian, "
                         "negative-binomial, tweedie)",
                         origin, ws->w[1]);
-    s->family_profile = 0;
+    /* a refused line leaves the spec as it was: nothing is stored before
+     * every word is read */
     for (i = 2; i < ws->n; i++) {
         size_t k = ops->param_name ? strlen(ops->param_name) : 0;
         if (ops->profile_grid != NULL && strncmp(ws->w[i], ops->param_name, k) == 0 &&
             strcmp(ws->w[i] + k, "=profile") == 0) {
-            s->family_profile = 1;
+            profile = 1;
             param = NAN;
             continue;
         }
         MR__TRY(ops->parse_param(&param, ws->w[i], origin, err));
-        s->family_profile = 0;
+        profile = 0;
     }
     s->family = v;
     s->family_param = param;
+    s->family_profile = profile;
     /* no value, or NAME=estimate (NaN from parse_param): estimated */
-    s->family_estimate = ops->param_estimable && isnan(param) && !s->family_profile;
+    s->family_estimate = ops->param_estimable && isnan(param) && !profile;
     return MR_OK;
 }
 

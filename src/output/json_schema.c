@@ -171,6 +171,11 @@ static const mr__jfield model_fields[] = {
     END,
 };
 
+static const mr__jfield missing_value_fields[] = {
+    LIST("tokens", MR__J_TEXTS, missing_token, nmissing_tokens),
+    END,
+};
+
 static const mr__jfield options_fields[] = {
     F("threads", MR__J_INT, threads),
     F("buffer_size", MR__J_SIZE, buffer_size),
@@ -180,6 +185,7 @@ static const mr__jfield options_fields[] = {
     F("in_memory", MR__J_BOOL, in_memory),
     F("cache", MR__J_BOOL, cached),
     CHOICE("on_bad_row", skip_bad, "skip", "fail"),
+    {"missing_values", MR__J_OBJECT_ADDED, 0, AT(missing_known), 0, 0, 0, 0, NULL, NULL, missing_value_fields},
     END,
 };
 

@@ -71,4 +71,19 @@ printf 'age_band,sex,region,year,person_years,region\n00-04,F,Eastmoor,2015,100,
 "$bin" score --fit "$tmp/f.json" --out "$tmp/x.csv" "$tmp/dup.csv" 2>"$tmp/err"
 check "a column the fit needs twice in the header: exit 4" test $? -eq 4
 check "and names both" grep -qF "dup.csv:1:6: duplicate column name 'region' (also column 3)" "$tmp/err"
+# The fit's missing-value tokens go with it (README, fit JSON `options.missing_values`):
+# cells the fit read as missing are missing when its rows are scored, not "not a number".
+printf 'y,x,g\n1,0.5,a\n2,.,b\n0,0.25,.\n3,1.5,b\n1,0.75,a\n2,1.25,b\n' >"$tmp/dots.csv"
+"$bin" fit --missing . --outcome y --family poisson --numeric x --factor g --json "$tmp/dots.json" "$tmp/dots.csv" >/dev/null
+check "the fit records its missing tokens" /usr/bin/python3 -c "import json,sys; sys.exit(json.load(open('$tmp/dots.json'))['options']['missing_values'] != {'tokens': ['.']})"
+"$bin" score --fit "$tmp/dots.json" --out "$tmp/dots-out.csv" --unseen blank "$tmp/dots.csv" 2>"$tmp/err"
+check "a '.' cell of that fit's file is missing when scored (exit 0)" test $? -eq 0
+check "and counted as missing, 2 rows" grep -q "4 scored, 2 left empty (0 unseen level, 2 missing value)" "$tmp/err"
+"$bin" score --fit "$tmp/dots.json" --out "$tmp/dots-out.csv" "$tmp/dots.csv" 2>"$tmp/err"
+check "by default a missing cell fails the run: exit 5 (README: the unseen-level policy)" test $? -eq 5
+check "and names the row and column" grep -qF "dots.csv:3:2: column 'x'" "$tmp/err"
+printf 'y,x,g\n1,NA,a\n' >"$tmp/na.csv"
+"$bin" score --fit "$tmp/dots.json" --out "$tmp/na-out.csv" "$tmp/na.csv" 2>"$tmp/err"
+check "NA is not missing for a fit that did not take it: exit 4, not a number" sh -c "grep -q 'not a number' '$tmp/err'"
+
 finish
