@@ -235,7 +235,7 @@ bench: all
 	/usr/bin/python3 bench/run.py
 	/usr/bin/python3 bench/pipeline.py
 
-# instruction counts (callgrind, 10^5 rows): ratios that a busy machine does not change
+# instruction counts (callgrind, 3 x 10^5 rows): ratios that a busy machine does not change
 bench-instructions: all
 	nice -n 10 /usr/bin/python3 bench/pipeline.py --instructions
 
