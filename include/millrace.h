@@ -231,7 +231,8 @@ typedef enum mr_int_option {
                                 the caller to remove with
                                 mr_fitter_checkpoint_remove once its
                                 outputs are in place (default 0: the run
-                                removes it) */
+                                removes it; a profile's fits, one per
+                                value, remove theirs either way) */
 } mr_int_option;
 
 /* Real-valued options. */
