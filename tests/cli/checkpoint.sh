@@ -124,6 +124,7 @@ for hook in "checkpoint:$passes:after" publish; do
     rm -f "$ck"
     killed "$name" "$(fit "$name.killed" MILLRACE_TEST_KILL="$hook")"
     [ -e "$ck" ] && ok "$name: the checkpoint outlives the fit" || fail "$name" "no checkpoint after the kill"
+    [ "$name" = done-checkpoint ] && echo "# with the last pass's totals it takes $(stat -c %s "$ck") bytes"
     [ ! -e "$tmp/$name.json" ] || fail "$name" "a JSON was written before the kill"
     rc=$(fit "$name" MILLRACE_TEST_KILL=pass:$((passes + 1)):0)
     [ "$rc" -eq 0 ] || fail "$name" "rerun exit $rc (137: it read the data again): $(head -c 300 "$tmp/$name.err")"
