@@ -76,6 +76,7 @@ IOFAIL_OBJ := $(LIB_SRC:%.c=$(B)/iofail/%.o)
 UNIT_SRC := $(filter-out tests/check_alloc.c tests/check_io.c,$(wildcard tests/check_*.c))
 UNIT_BIN := $(UNIT_SRC:tests/%.c=$(B)/tests/%)
 ASAN_UNIT_BIN := $(UNIT_SRC:tests/%.c=$(B)/asan/tests/%)
+CLI_SRC  := $(wildcard src/cli/*.c)
 
 .PHONY: all deps test-deps demo check check-groups unit asan asan-check tsan-check alloc-check io-fault-check valgrind-check cli-check ref-check lint bench clean
 .PHONY: bench-instructions
@@ -101,7 +102,7 @@ $(B)/tsan/%.o: %.c
 $(B)/tsan/libmillrace.a: $(TSAN_OBJ)
 	$(Q)rm -f $@ && ar rcs $@ $^
 
-$(B)/tsan/millrace: $(B)/tsan/src/cli/main.o $(B)/tsan/libmillrace.a
+$(B)/tsan/millrace: $(CLI_SRC:%.c=$(B)/tsan/%.o) $(B)/tsan/libmillrace.a
 	$(Q)$(CC) $(CFLAGS) -fsanitize=thread -o $@ $^ $(LIBS)
 
 # A library built with one failure-test flag, under ASan, and the Check
@@ -137,10 +138,10 @@ $(B)/libmillrace.a: $(LIB_OBJ)
 $(B)/asan/libmillrace.a: $(ASAN_OBJ)
 	$(Q)rm -f $@ && ar rcs $@ $^
 
-$(B)/millrace: $(B)/src/cli/main.o $(B)/libmillrace.a
+$(B)/millrace: $(CLI_SRC:%.c=$(B)/%.o) $(B)/libmillrace.a
 	$(Q)$(CC) $(CFLAGS) -o $@ $^ $(LIBS)
 
-$(B)/asan/millrace: $(B)/asan/src/cli/main.o $(B)/asan/libmillrace.a
+$(B)/asan/millrace: $(CLI_SRC:%.c=$(B)/asan/%.o) $(B)/asan/libmillrace.a
 	$(Q)$(CC) $(CFLAGS) $(SAN) -o $@ $^ $(LIBS)
 
 $(B)/synth: tools/synth.c
@@ -245,4 +246,4 @@ clean:
 include mk/install.mk
 include mk/fuzz.mk
 
--include $(LIB_OBJ:.o=.d) $(ASAN_OBJ:.o=.d) $(TSAN_OBJ:.o=.d) $(ALLOC_OBJ:.o=.d) $(IOFAIL_OBJ:.o=.d) $(B)/src/cli/main.d
+-include $(LIB_OBJ:.o=.d) $(ASAN_OBJ:.o=.d) $(TSAN_OBJ:.o=.d) $(ALLOC_OBJ:.o=.d) $(IOFAIL_OBJ:.o=.d) $(CLI_SRC:%.c=$(B)/%.d)

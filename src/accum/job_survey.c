@@ -131,10 +131,7 @@ static void on_field(void *user, size_t k, const char *p, size_t len)
 
 static int is_missing(const mr__survey_cfg *c, const char *p, size_t n)
 {
-    size_t i;
-    for (i = 0; i < c->nmissing; i++)
-        if (strlen(c->missing[i]) == n && memcmp(c->missing[i], p, n) == 0) return 1;
-    return 0;
+    return mr__cell_is_token((const char *const *)c->missing, c->nmissing, p, n);
 }
 
 /* Digits with an optional sign, and blanks around as numparse.h allows. */

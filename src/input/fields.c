@@ -186,6 +186,14 @@ void mr__row_cells_release(mr__row_cells *r)
     memset(r, 0, sizeof *r);
 }
 
+int mr__cell_is_token(const char *const *tokens, size_t ntokens, const char *p, size_t len)
+{
+    size_t i;
+    for (i = 0; i < ntokens; i++)
+        if (strlen(tokens[i]) == len && memcmp(tokens[i], p, len) == 0) return 1;
+    return 0;
+}
+
 void mr__row_cells_put(mr__row_cells *r, size_t k, const char *p, size_t len)
 {
     if (k >= r->nfields) return;

@@ -99,6 +99,12 @@ mr_status mr__row_cells_init(mr__row_cells *r, size_t nfields);
 void mr__row_cells_release(mr__row_cells *r);
 void mr__row_cells_put(mr__row_cells *r, size_t k, const char *p, size_t len);
 
+/* Whether a cell is one of the missing-value tokens, compared whole (""
+ * the empty cell).  The fit's decoder has its own quicker test for its
+ * hot loop (accum/decode.c); scoring and surveys, which meet each cell
+ * once, use this. */
+int mr__cell_is_token(const char *const *tokens, size_t ntokens, const char *p, size_t len);
+
 /* The delimiter a header line uses: whichever of ',', '\t', ';' occurs most
  * outside quotes (',' on a tie or when none occurs). */
 char mr__detect_delimiter(const char *line, size_t len);

@@ -1,20 +1,8 @@
 #include <math.h>
-#include <stdio.h>
-#include <stdlib.h>
 #include <string.h>
 
 #include "common/alloc.h"
-#include "common/strbuf.h"
 #include "model/design.h"
-
-/* Code of a level within a term: its column offset, or -1 for the
- * reference level (which has no column). */
-static int32_t level_code(const mr__term *t, const mr__factor *f, int32_t lev)
-{
-    if (t->full) return lev;
-    if (lev == f->ref) return -1;
-    return lev < f->ref ? lev : lev - 1;
-}
 
 static size_t factor_columns(const mr__term *t, const mr__factor *f)
 {
@@ -155,115 +143,6 @@ static mr_status lay_out_columns(mr__design *d, mr__error *err)
     return MR_OK;
 }
 
-/* The factor level of each factor in column j of term t. */
-static void column_levels(const mr__design *d, const mr__term *t, size_t j, int32_t *code)
-{
-    int k;
-    size_t r = j - t->col0;
-    (void)d;
-    for (k = 0; k < t->nfac; k++) {
-        code[k] = (int32_t)(r / t->stride[k]);
-        r %= t->stride[k];
-    }
-}
-
-static void append_level_name(mr__strbuf *sb, const mr__design *d, const mr__term *t, int k, int32_t code)
-{
-    const mr__factor *f = &d->fac[t->fac[k]];
-    int32_t lev = t->full ? code : (code < f->ref ? code : code + 1);
-    mr__strbuf_printf(sb, "%s=%s", f->name, f->level[lev]);
-}
-
-static void append_numeric_name(mr__strbuf *sb, const mr__term *t, int k, const char *name)
-{
-    if (t->spline[k] == NULL) mr__strbuf_printf(sb, "%s", name);
-    else mr__strbuf_printf(sb, "%s[spline %zu/%zu]", name, t->spline_col[k] + 1, t->spline[k]->ncols);
-}
-
-/* Parts are named in the order the analyst wrote them. */
-static char *column_name(const mr__design *d, const mr__spec *s, size_t ti, size_t j, const char *const *num_name)
-{
-    const mr__term *t = &d->term[ti];
-    const size_t g = t->group;
-    mr__strbuf sb;
-    int32_t code[MR__MAX_INTERACT];
-    int k, fi = 0, ni = 0, nparts = t->nfac + t->nnum;
-    mr__strbuf_init(&sb);
-    column_levels(d, t, j, code);
-    for (k = 0; k < nparts; k++) {
-        const char *part = g < s->ncov ? s->cov[g].name : s->inter[g - s->ncov].name[k];
-        int is_fac = fi < t->nfac && strcmp(d->fac[t->fac[fi]].name, part) == 0;
-        if (k) mr__strbuf_append(&sb, " & ", 3);
-        if (is_fac) append_level_name(&sb, d, t, fi, code[fi]), fi++;
-        else append_numeric_name(&sb, t, ni, num_name[t->num[ni]]), ni++;
-    }
-    return mr__strbuf_take(&sb);
-}
-
-/* Pointers to the names, by name, then by place (the later column last). */
-static int by_name(const void *a, const void *b)
-{
-    char *const *x = *(char *const *const *)a, *const *y = *(char *const *const *)b;
-    int c = strcmp(*x, *y);
-    return c != 0 ? c : (x > y) - (x < y);
-}
-
-/* The line that asked for term t (NULL when none is known). */
-static const char *term_origin(const mr__spec *s, const mr__term *t)
-{
-    return t->group < s->ncov ? s->cov[t->group].origin : s->inter[t->group - s->ncov].origin;
-}
-
-static size_t term_of_column(const mr__design *d, size_t j)
-{
-    size_t i;
-    for (i = 0; i + 1 < d->nterms && j >= d->term[i + 1].col0; i++) continue;
-    return i;
-}
-
-/* Coefficients are found by name (a start, drift, scoring), so two columns
- * must never share one: a numeric column called "intercept", or one called
- * "sex=M" beside the factor sex, is refused on the line that declared the
- * later of the two. */
-static mr_status check_names_unique(const mr__design *d, const mr__spec *s, mr__error *err)
-{
-    char ***sorted;
-    size_t j, dup = d->p;
-    if (d->p < 2) return MR_OK;
-    if ((sorted = mr__malloc_array(d->p, sizeof *sorted)) == NULL)
-        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    for (j = 0; j < d->p; j++) sorted[j] = &d->name[j];
-    qsort(sorted, d->p, sizeof *sorted, by_name);
-    for (j = 1; j < d->p && dup == d->p; j++)
-        if (strcmp(*sorted[j], *sorted[j - 1]) == 0) dup = (size_t)(sorted[j] - d->name);
-    mr__free(sorted);
-    if (dup == d->p) return MR_OK;
-    {
-        const char *origin = term_origin(s, &d->term[term_of_column(d, dup)]);
-        return mr__fail(err, MR_ERR_USAGE, "%s: the coefficient name '%s' is taken twice%s; rename the column",
-                        origin ? origin : "model", d->name[dup],
-                        d->intercept && strcmp(d->name[dup], MR__INTERCEPT_NAME) == 0 ? " (it is the intercept's name)"
-                                                                                      : "");
-    }
-}
-
-static mr_status name_columns(mr__design *d, const mr__spec *s, const mr__binding *b, mr__error *err)
-{
-    const char *num_name[64];
-    size_t i, j, k;
-    for (k = 0; k < b->nnum && k < 64; k++) num_name[k] = b->col[b->num_col[k]].name;
-    if (b->nnum > 64) return mr__fail(err, MR_ERR_USAGE, "model: more than 64 numeric covariates");
-    d->name = mr__calloc(d->p, sizeof *d->name);
-    if (d->name == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    if (d->intercept && (d->name[0] = mr__strdup(MR__INTERCEPT_NAME)) == NULL)
-        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    for (i = 0; i < d->nterms; i++)
-        for (j = d->term[i].col0; j < d->term[i].col0 + d->term[i].ncols; j++)
-            if ((d->name[j] = column_name(d, s, i, j, num_name)) == NULL)
-                return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    return check_names_unique(d, s, err);
-}
-
 /* Is there an earlier term with the same factors (same coding) and
  * exactly the numerics in `mask` (bits over t's numerics)? */
 static const mr__term *find_subterm(const mr__design *d, size_t ti, unsigned mask)
@@ -296,7 +175,7 @@ static size_t matching_column(const mr__design *d, const mr__term *t, size_t j, 
     int32_t code[MR__MAX_INTERACT];
     size_t col = c->col0;
     int k, m;
-    column_levels(d, t, j, code);
+    mr__design_column_levels(d, t, j, code);
     for (m = 0; m < c->nfac; m++)
         for (k = 0; k < t->nfac; k++)
             if (c->fac[m] == t->fac[k]) col += (size_t)code[k] * c->stride[m];
@@ -396,7 +275,7 @@ static mr_status build_colmaps(mr__design *d, mr__error *err)
         t->colmap = mr__malloc_array(f->nlevels + 1, sizeof *t->colmap);
         if (t->colmap == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
         for (l = 0; l < (int32_t)f->nlevels; l++) {
-            int32_t code = level_code(t, f, l);
+            int32_t code = mr__design_level_code(t, f, l);
             t->colmap[l] = code < 0 ? -1 : (int32_t)t->col0 + code;
         }
     }
@@ -501,7 +380,7 @@ mr_status mr__design_build(mr__design *d, const mr__spec *s, const mr__binding *
     MR__TRY(settle_splines(d, s, b, counts, err));
     MR__TRY(collect_terms(d, s, b, err));
     MR__TRY(lay_out_columns(d, err));
-    MR__TRY(name_columns(d, s, b, err));
+    MR__TRY(mr__design_name_columns(d, s, b, err));
     MR__TRY(split_layout(d, err));
     MR__TRY(build_skeleton(d, err));
     return build_transform(d, mean, spread, err);
@@ -528,128 +407,4 @@ void mr__design_release(mr__design *d)
     memset(d, 0, sizeof *d);
     d->absorb_var = -1;
     d->absorb_group = -1;
-}
-
-/* Numeric part k of a term at x. */
-static double part_value(const mr__term *t, int k, double x)
-{
-    if (t->spline[k] != NULL) return mr__spline_value(t->spline[k], t->spline_col[k], x);
-    return (x - t->centre[k]) * t->inv_scale[k];
-}
-
-/* Row i's column in term t (-1 if none) and, through *v, its value. */
-static int32_t term_entry(const mr__term *t, const mr__factor *fac, const double *num, const int32_t *lev,
-                          size_t stride_rows, size_t i, double *v)
-{
-    size_t col = t->col0;
-    double x = 1.0;
-    int k;
-    for (k = 0; k < t->nfac; k++) {
-        int32_t c = level_code(t, &fac[t->fac[k]], lev[(size_t)t->fac[k] * stride_rows + i]);
-        if (c < 0) return -1;
-        col += (size_t)c * t->stride[k];
-    }
-    for (k = 0; k < t->nnum; k++) x *= part_value(t, k, num[(size_t)t->num[k] * stride_rows + i]);
-    *v = x;
-    return (int32_t)col;
-}
-
-static void fill_term(const mr__term *t, const mr__factor *fac, const double *num, const int32_t *lev,
-                      size_t stride_rows, size_t n, double *Z, size_t ldz)
-{
-    size_t i;
-    for (i = 0; i < n; i++) {
-        double v;
-        int32_t col = term_entry(t, fac, num, lev, stride_rows, i, &v);
-        if (col >= 0) Z[(size_t)col * ldz + i] = v;
-    }
-}
-
-void mr__design_fill(const mr__design *d, const double *num, const int32_t *lev, size_t stride_rows, size_t n,
-                     double *Z, size_t ldz)
-{
-    size_t i, j;
-    for (j = 0; j < d->p; j++) memset(Z + j * ldz, 0, n * sizeof *Z);
-    if (d->intercept)
-        for (i = 0; i < n; i++) Z[i] = 1.0;
-    for (j = 0; j < d->nterms; j++) fill_term(&d->term[j], d->fac, num, lev, stride_rows, n, Z, ldz);
-}
-
-/* The numeric part of a term for rows [0, n): v[i] = prod (x - c) / s. */
-static void numeric_part(const mr__term *t, const double *num, size_t stride_rows, size_t n, double *v)
-{
-    size_t i;
-    int k;
-    if (t->nnum == 0) {
-        for (i = 0; i < n; i++) v[i] = 1.0;
-        return;
-    }
-    if (t->spline[0] != NULL) {
-        mr__spline_column(t->spline[0], t->spline_col[0], num + (size_t)t->num[0] * stride_rows, n, v);
-    } else {
-        const double *x = num + (size_t)t->num[0] * stride_rows, c = t->centre[0], s = t->inv_scale[0];
-        for (i = 0; i < n; i++) v[i] = (x[i] - c) * s;
-    }
-    for (k = 1; k < t->nnum; k++) {
-        const double *x = num + (size_t)t->num[k] * stride_rows, c = t->centre[k], s = t->inv_scale[k];
-        if (t->spline[k] != NULL)
-            for (i = 0; i < n; i++) v[i] *= part_value(t, k, x[i]);
-        else
-            for (i = 0; i < n; i++) v[i] *= (x[i] - c) * s;
-    }
-}
-
-/* x if keep, else +0.0, by a mask: the compiler would branch, and for a
- * two-level factor that branch is a coin toss every row. */
-static double zero_unless(double x, int keep)
-{
-    uint64_t bits;
-    memcpy(&bits, &x, sizeof bits);
-    bits &= (uint64_t)0 - (uint64_t)(keep != 0);
-    memcpy(&x, &bits, sizeof x);
-    return x;
-}
-
-/* A one-factor term's value in each row, 0 where the row has no column
- * (its reference level); col, if not NULL, gets that column or -1. */
-static void one_factor_part(const mr__term *t, const double *num, const int32_t *lev, size_t stride_rows, size_t n,
-                            double *v, int32_t *col)
-{
-    const int32_t *l = lev + (size_t)t->fac[0] * stride_rows;
-    size_t i;
-    numeric_part(t, num, stride_rows, n, v);
-    for (i = 0; i < n; i++) {
-        int32_t c = t->colmap[l[i]];
-        if (col) col[i] = c;
-        v[i] = zero_unless(v[i], c >= 0);
-    }
-}
-
-void mr__design_fill_split(const mr__design *d, const double *num, const int32_t *lev, size_t stride_rows,
-                           size_t n, double *D, int32_t *col, double *val)
-{
-    size_t i, j = 0, s;
-    if (d->intercept) {
-        for (i = 0; i < n; i++) D[i] = 1.0;
-        j = 1;
-    }
-    for (s = 0; s < d->nterms; s++) {
-        const mr__term *t = &d->term[s];
-        if (!t->dense) continue;
-        if (t->nfac == 0) numeric_part(t, num, stride_rows, n, D + j * n);
-        else one_factor_part(t, num, lev, stride_rows, n, D + j * n, NULL);
-        j++;
-    }
-    for (s = 0; s < d->nsparse; s++) {
-        const mr__term *t = &d->term[d->sparse_term[s]];
-        int32_t *c = col + s * n;
-        if (t->colmap == NULL) {
-            for (i = 0; i < n; i++) {
-                c[i] = term_entry(t, d->fac, num, lev, stride_rows, i, &val[s * n + i]);
-                if (c[i] < 0) val[s * n + i] = 0.0;
-            }
-            continue;
-        }
-        one_factor_part(t, num, lev, stride_rows, n, val + s * n, c);
-    }
 }

@@ -122,6 +122,27 @@ static inline size_t mr__design_packed_index(const mr__design *d, size_t a, size
     return d->col_base[b] + (a < d->col_lo[b] ? a : d->col_lo[b]);
 }
 
+/* Code of a level within a term: its column offset, or -1 for the
+ * reference level (which has no column). */
+static inline int32_t mr__design_level_code(const mr__term *t, const mr__factor *f, int32_t lev)
+{
+    if (t->full) return lev;
+    if (lev == f->ref) return -1;
+    return lev < f->ref ? lev : lev - 1;
+}
+
+/* The factor level of each factor in column j of term t. */
+static inline void mr__design_column_levels(const mr__design *d, const mr__term *t, size_t j, int32_t *code)
+{
+    int k;
+    size_t r = j - t->col0;
+    (void)d;
+    for (k = 0; k < t->nfac; k++) {
+        code[k] = (int32_t)(r / t->stride[k]);
+        r %= t->stride[k];
+    }
+}
+
 /* Builds the design.  `mean` and `spread` (nnum each) come from the first
  * pass; a zero or non-finite spread leaves that numeric raw.  `counts`
  * (nnum tables, NULL when the first pass counted none or ran out of
@@ -133,6 +154,10 @@ mr_status mr__design_build(mr__design *d, const mr__spec *s, const mr__binding *
                            const double *mean, const double *spread, mr__value_counts *counts,
                            mr__error *err);
 void mr__design_release(mr__design *d);
+
+/* Part of the build (design_names.c): every column's name in d->name,
+ * refused when two columns would share one. */
+mr_status mr__design_name_columns(mr__design *d, const mr__spec *s, const mr__binding *b, mr__error *err);
 
 /* Fills the n x p internal design block Z (column-major, leading
  * dimension ldz >= n) from a block's variable-major values. */

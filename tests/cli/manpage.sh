@@ -1,7 +1,7 @@
 #!/usr/bin/env bash
 # The man page (doc/millrace.1) and the bash completion
 # (doc/millrace.bash-completion) against the command itself:
-# - the man page's OPTIONS describe every option src/cli/main.c accepts
+# - the man page's OPTIONS describe every option src/cli/*.c accept
 #   and no other; so does the completion; --help and the README name each;
 # - its EXIT STATUS lists exactly the status values of millrace.h;
 # - its version is the library's, groff renders it without a warning;
@@ -18,10 +18,11 @@ section() { awk -v s="$1" '/^\.SH/ { on = ($0 ~ "^\\.SH \"?" s "\"?$"); next } o
 options_in() { grep -oE '(^|[^a-zA-Z0-9])--?[a-z][a-z-]*' | sed -E 's/^[^-]*//' | sort -u; }
 
 # What the command accepts: the long options of getopt_long's tables (fit's,
-# report's) and the letters of the short-option strings.
+# report's, the run's shared by fit and compare) and the letters of the
+# short-option strings given to the option loop.
 {
-    sed -n '/_options\[\] = {/,/^};/p' src/cli/main.c | grep -oE '\{"[a-z-]+"' | sed 's/{"/--/; s/"//'
-    grep -oE 'getopt_long\([^"]*"[^"]*"' src/cli/main.c | sed -E 's/.*"(.*)"/\1/' | tr -d ':' | grep -o . | sed 's/^/-/'
+    cat src/cli/*.[ch] | grep -oE '\{"[a-z-]+", *(no|required|optional)_argument' | grep -oE '"[a-z-]+"' | sed 's/^"/--/; s/"//'
+    cat src/cli/*.c | grep -oE '(getopt_long|cli_options)\([^"]*"[^"]*"' | sed -E 's/.*"(.*)"/\1/' | tr -d ':' | grep -o . | sed 's/^/-/'
 } | sort -u >"$tmp/accepted"
 check "option table read ($(wc -l <"$tmp/accepted") options)" test "$(wc -l <"$tmp/accepted")" -gt 20
 

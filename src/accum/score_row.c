@@ -1,0 +1,320 @@
+/* score_row.c - one row of a scored file: its cells read (a missing or
+ * unseen one leaves the row empty, a malformed one fails the pass), its
+ * design row, linear predictor and interval, the CSV line, and the row's
+ * outcome for the groups' observed and expected. */
+#include <math.h>
+#include <stdio.h>
+#include <string.h>
+
+#include "accum/score_row.h"
+#include "common/alloc.h"
+#include "family/family.h"
+#include "input/fields.h"
+
+typedef struct score_row {
+    double off, y, prior, expo;
+    int has_y;
+} score_row;
+
+/* RFC 4180: a field with a comma, quote or line end goes in quotes, its
+ * quotes doubled. */
+void mr__score_put_text(mr__strbuf *o, const char *p, size_t n)
+{
+    size_t i;
+    if (memchr(p, ',', n) == NULL && memchr(p, '"', n) == NULL && memchr(p, '\n', n) == NULL &&
+        memchr(p, '\r', n) == NULL) {
+        mr__strbuf_append(o, p, n);
+        return;
+    }
+    mr__strbuf_append(o, "\"", 1);
+    for (i = 0; i < n; i++) {
+        if (p[i] == '"') mr__strbuf_append(o, "\"", 1);
+        mr__strbuf_append(o, p + i, 1);
+    }
+    mr__strbuf_append(o, "\"", 1);
+}
+
+void mr__score_on_field(void *user, size_t k, const char *p, size_t len)
+{
+    score_worker *sw = user;
+    mr__row_cells_put(&sw->cells, k, p, len);
+}
+
+/* A cell the fit would have read as missing: one of its tokens. */
+static int is_missing(const mr__score_cfg *c, const char *p, size_t n)
+{
+    return mr__cell_is_token(c->missing_token, c->nmissing_tokens, p, n);
+}
+
+static const char *cell(const score_worker *sw, size_t field, size_t *n)
+{
+    *n = sw->cells.len[field];
+    return sw->cells.buf + sw->cells.at[field];
+}
+
+static uint64_t row_line(const score_worker *sw, uint32_t r) { return sw->chunk->first_line + sw->chunk->row_line[r]; }
+
+/* The row's first problem, as the fit names a cell's: file:line:field. */
+static void cell_error(score_worker *sw, uint32_t r, mr_status st, const char *name, size_t field, const char *what)
+{
+    char msg[300];
+    size_t n;
+    const char *p = cell(sw, field, &n);
+    mr__column col = {.name = name, .field = field, .use = MR__USE_NUMERIC, .var = -1};
+    if (sw->s->st != MR_OK) return;
+    mr__cell_message(msg, sizeof msg, &col, what, p, n);
+    sw->s->st = mr__fail(&sw->s->err, st, "%s:%llu:%s", mr__chunk_row_display(sw->chunk, r, sw->c->display),
+                         (unsigned long long)row_line(sw, r), msg);
+}
+
+/* A numeric cell: 1 a number, 0 missing, -1 not a number (the error set). */
+static int number_at(score_worker *sw, uint32_t r, const char *name, size_t field, double *v)
+{
+    size_t n;
+    const char *p = cell(sw, field, &n);
+    if (is_missing(sw->c, p, n)) return 0;
+    if (mr__parse_double(sw->np, p, n, v) && isfinite(*v)) return 1;
+    cell_error(sw, r, MR_ERR_FORMAT, name, field, "not a number");
+    return -1;
+}
+
+enum { ROW_OK, ROW_MISSING, ROW_UNSEEN, ROW_FAILED };
+
+static int unscorable(score_worker *sw, uint32_t r, int why, const char *name, size_t field)
+{
+    if (why == ROW_FAILED || sw->c->blank_unscorable) return why;
+    cell_error(sw, r, MR_ERR_DOMAIN, name, field,
+               why == ROW_UNSEEN ? "a level the fit never saw" : "a missing value, which cannot be scored");
+    return ROW_FAILED;
+}
+
+/* The offset, from the offset and exposure columns. */
+static int row_offset(score_worker *sw, uint32_t r, double *off)
+{
+    const mr__score_cfg *c = sw->c;
+    double v;
+    int k;
+    *off = 0;
+    if (c->role_field[MR__SCORE_OFFSET] >= 0) {
+        size_t f = (size_t)c->role_field[MR__SCORE_OFFSET];
+        if ((k = number_at(sw, r, c->role_name[MR__SCORE_OFFSET], f, &v)) <= 0)
+            return unscorable(sw, r, k ? ROW_FAILED : ROW_MISSING, c->role_name[MR__SCORE_OFFSET], f);
+        *off += v;
+    }
+    if (c->role_field[MR__SCORE_EXPOSURE] >= 0) {
+        size_t f = (size_t)c->role_field[MR__SCORE_EXPOSURE];
+        if ((k = number_at(sw, r, c->role_name[MR__SCORE_EXPOSURE], f, &v)) <= 0)
+            return unscorable(sw, r, k ? ROW_FAILED : ROW_MISSING, c->role_name[MR__SCORE_EXPOSURE], f);
+        if (!(v > 0)) {
+            cell_error(sw, r, MR_ERR_DOMAIN, c->role_name[MR__SCORE_EXPOSURE], f, "an exposure must be > 0");
+            return ROW_FAILED;
+        }
+        *off += log(v);
+        sw->expo = v;
+    }
+    return ROW_OK;
+}
+
+/* Each factor's level number and each numeric's value. */
+static int row_values(score_worker *sw, uint32_t r, int32_t *lev, double *num)
+{
+    const mr__score_cfg *c = sw->c;
+    size_t i, n;
+    int k;
+    for (i = 0; i < c->nfac; i++) {
+        const char *p = cell(sw, c->fac[i].field, &n);
+        if (is_missing(c, p, n)) return unscorable(sw, r, ROW_MISSING, c->fac[i].name, c->fac[i].field);
+        lev[i] = mr__levelset_find(&c->fac[i].levels, p, n);
+        if (lev[i] < 0) return unscorable(sw, r, ROW_UNSEEN, c->fac[i].name, c->fac[i].field);
+    }
+    for (i = 0; i < c->nnum; i++)
+        if ((k = number_at(sw, r, c->num[i].name, c->num[i].field, &num[i])) <= 0)
+            return unscorable(sw, r, k ? ROW_FAILED : ROW_MISSING, c->num[i].name, c->num[i].field);
+    return ROW_OK;
+}
+
+/* The row's non-zero design entries, in column order within each term. */
+static size_t design_row(score_worker *sw, const int32_t *lev, const double *num)
+{
+    const mr__score_cfg *c = sw->c;
+    size_t m = 0, t;
+    int k;
+    if (c->intercept) {
+        sw->xcol[m] = 0;
+        sw->xval[m++] = 1.0;
+    }
+    for (t = 0; t < c->nterms; t++) {
+        const mr__score_term *tm = &c->term[t];
+        size_t col = tm->first;
+        double v = 1.0;
+        for (k = 0; k < tm->nparts; k++) {
+            if (tm->is_factor[k]) {
+                int32_t l = lev[tm->var[k]], ref = c->fac[tm->var[k]].ref;
+                if (!tm->full && l == ref) break;
+                col += (size_t)(tm->full || l < ref ? l : l - 1) * tm->stride[k];
+            } else {
+                v *= num[tm->var[k]];
+            }
+        }
+        if (k < tm->nparts) continue;
+        sw->xcol[m] = col;
+        sw->xval[m++] = v;
+    }
+    return m;
+}
+
+/* eta = x'beta + offset and its variance x'Vx, over the row's entries in
+ * a fixed order (the same bits whatever the thread). */
+static void linear_predictor(const score_worker *sw, size_t m, double off, double *eta, double *se)
+{
+    const mr__score_cfg *c = sw->c;
+    double e = 0, v = 0;
+    size_t a, b;
+    for (a = 0; a < m; a++) {
+        double row = 0;
+        e += c->beta[sw->xcol[a]] * sw->xval[a];
+        for (b = 0; b < m; b++) row += c->cov[sw->xcol[a] * c->p + sw->xcol[b]] * sw->xval[b];
+        v += sw->xval[a] * row;
+    }
+    *eta = e + off;
+    *se = sqrt(v > 0 ? v : 0);
+}
+
+/* A number after a comma (none before a line's first field); an empty
+ * field for none. */
+static void put_number(mr__strbuf *o, double v, int comma)
+{
+    if (comma) mr__strbuf_append(o, ",", 1);
+    if (isfinite(v)) mr__strbuf_printf(o, "%.17g", v);
+}
+
+/* The outcome as the fit took it: a proportion of the trials for
+ * binomial, with the trials and the weight as the prior weight.
+ * Residuals are left empty when the outcome is missing. */
+static int row_outcome(score_worker *sw, uint32_t r, score_row *row)
+{
+    const mr__score_cfg *c = sw->c;
+    double v;
+    int i, k;
+    row->has_y = 0;
+    row->prior = 1;
+    if (c->role_field[MR__SCORE_OUTCOME] < 0) return ROW_OK;
+    for (i = MR__SCORE_OUTCOME; i <= MR__SCORE_WEIGHT; i++) {
+        if (c->role_field[i] < 0) continue;
+        k = number_at(sw, r, c->role_name[i], (size_t)c->role_field[i], &v);
+        if (k < 0) return ROW_FAILED;
+        if (k == 0) return ROW_OK;
+        if (i == MR__SCORE_OUTCOME) row->y = v;
+        else row->prior *= v;
+        if (i == MR__SCORE_TRIALS) row->y = v > 0 ? row->y / v : NAN;
+    }
+    row->has_y = mr__family_y_valid(c->family.ops, row->y) && row->prior >= 0;
+    return ROW_OK;
+}
+
+static double inverse_link(const mr__score_cfg *c, double eta)
+{
+    double mu_eta;
+    return mr__link_inv1(c->link, eta, &mu_eta);
+}
+
+/* Writes the row's predictions; returns its mean. */
+static double put_predictions(const score_worker *sw, mr__strbuf *o, size_t m, const score_row *row)
+{
+    const mr__score_cfg *c = sw->c;
+    double eta, se, mu, lo, hi, d, var;
+    linear_predictor(sw, m, row->off, &eta, &se);
+    mu = inverse_link(c, eta);
+    lo = inverse_link(c, eta - c->z * se);
+    hi = inverse_link(c, eta + c->z * se);
+    put_number(o, eta, c->nkeep > 0);
+    put_number(o, se, 1);
+    put_number(o, mu, 1);
+    put_number(o, lo < hi ? lo : hi, 1);
+    put_number(o, lo < hi ? hi : lo, 1);
+    if (c->role_field[MR__SCORE_OUTCOME] < 0) return mu;
+    if (!row->has_y) {
+        mr__strbuf_append(o, ",,,", 3);
+        return mu;
+    }
+    c->family.ops->unit_deviance_n(&c->family, &row->y, &mu, 1, &d);
+    c->family.ops->variance_n(&c->family, &mu, 1, &var);
+    d *= row->prior;
+    put_number(o, row->y - mu, 1);
+    put_number(o, (row->y - mu) * sqrt(row->prior / var), 1);
+    put_number(o, (row->y > mu ? 1 : row->y < mu ? -1 : 0) * sqrt(d > 0 ? d : 0), 1);
+    return mu;
+}
+
+/* The row's group key (each cell as its length and bytes) and counts. */
+static void note_group_row(score_worker *sw, score_slot *out, const score_row *row, double mu)
+{
+    const mr__score_cfg *c = sw->c;
+    group_row *g;
+    size_t i, n;
+    if (out->ngrow == out->grow_cap) {
+        size_t cap = out->grow_cap ? 2 * out->grow_cap : 1024;
+        group_row *more = mr__realloc(out->grow, cap * sizeof *more);
+        if (more == NULL) {
+            out->nomem = 1;
+            return;
+        }
+        out->grow = more;
+        out->grow_cap = cap;
+    }
+    g = &out->grow[out->ngrow++];
+    g->key_at = out->keys.len;
+    for (i = 0; i < c->nby; i++) {
+        const char *p = cell(sw, c->by_field[i], &n);
+        unsigned char len[4] = {(unsigned char)n, (unsigned char)(n >> 8), (unsigned char)(n >> 16),
+                                (unsigned char)(n >> 24)};
+        mr__strbuf_append(&out->keys, (const char *)len, 4);
+        mr__strbuf_append(&out->keys, p, n);
+    }
+    g->key_len = out->keys.len - g->key_at;
+    g->obs = row->prior * row->y;
+    g->exp = row->prior * mu;
+    g->expo = c->role_field[MR__SCORE_EXPOSURE] >= 0 ? sw->expo : NAN;
+    g->prior = row->prior;
+}
+
+static void score_one(score_worker *sw, uint32_t r, score_slot *out)
+{
+    const mr__score_cfg *c = sw->c;
+    score_row row = {.off = 0, .y = 0, .prior = 1, .expo = 0, .has_y = 0};
+    size_t i, n, ncols = c->role_field[MR__SCORE_OUTCOME] >= 0 ? 8 : 5;
+    int why = row_offset(sw, r, &row.off);
+    if (why == ROW_OK) why = row_values(sw, r, sw->lev, sw->num);
+    if (why == ROW_OK) why = row_outcome(sw, r, &row);
+    if (why == ROW_FAILED) return;
+    for (i = 0; i < c->nkeep; i++) {
+        const char *p = cell(sw, c->keep_field[i], &n);
+        if (i) mr__strbuf_append(&out->out, ",", 1);
+        mr__score_put_text(&out->out, p, n);
+    }
+    out->rows++;
+    if (why == ROW_OK) {
+        double mu = put_predictions(sw, &out->out, design_row(sw, sw->lev, sw->num), &row);
+        out->scored++;
+        if (c->nby && row.has_y) note_group_row(sw, out, &row, mu);
+    } else {
+        for (i = c->nkeep > 0 ? 0 : 1; i < ncols; i++) mr__strbuf_append(&out->out, ",", 1);
+        if (why == ROW_UNSEEN) out->unseen++;
+        else out->missing++;
+    }
+    mr__strbuf_append(&out->out, "\n", 1);
+}
+
+void mr__score_row_end(void *user, uint32_t r, size_t nfields)
+{
+    score_worker *sw = user;
+    const mr__score_cfg *c = sw->c;
+    score_slot *out = sw->s->part;
+    if (sw->s->st == MR_OK && sw->cells.nomem) sw->s->st = mr__fail(&sw->s->err, MR_ERR_NO_MEMORY, "out of memory");
+    if (sw->s->st == MR_OK && nfields != c->nfields)
+        sw->s->st = mr__fail(&sw->s->err, MR_ERR_FORMAT, "%s:%llu:%zu: expected %zu fields as in the header, found %zu",
+                             mr__chunk_row_display(sw->chunk, r, c->display), (unsigned long long)row_line(sw, r),
+                             nfields < c->nfields ? nfields : c->nfields + 1, c->nfields, nfields);
+    if (sw->s->st == MR_OK) score_one(sw, r, out);
+    sw->cells.used = 0;
+}
