@@ -80,6 +80,7 @@ ASAN_UNIT_BIN := $(UNIT_SRC:tests/%.c=$(B)/asan/tests/%)
 CLI_SRC  := $(filter-out src/cli/mpi_%.c,$(wildcard src/cli/*.c))
 
 .PHONY: all deps test-deps demo check check-groups unit asan asan-check tsan-check alloc-check io-fault-check valgrind-check cli-check ref-check lint bench clean
+.PHONY: bench-instructions
 
 all: $(B)/millrace $(B)/synth
 
@@ -239,6 +240,11 @@ check-groups: lint unit cli-check ref-check asan-check tsan-check alloc-check io
 # ---- benchmarks (never a test) ------------------------------------------------
 bench: all
 	/usr/bin/python3 bench/run.py
+	/usr/bin/python3 bench/pipeline.py
+
+# instruction counts (callgrind, 3 x 10^5 rows): ratios that a busy machine does not change
+bench-instructions: all
+	nice -n 10 /usr/bin/python3 bench/pipeline.py --instructions
 
 clean:
 	rm -rf $(B)

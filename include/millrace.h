@@ -220,12 +220,19 @@ typedef enum mr_int_option {
                                 half the free space, the fit goes on
                                 rereading the file, with the same results,
                                 and says so in a warning. */
-    MR_OPT_NO_COLLAPSE = 7   /* 1: never collapse rows into covariate
+    MR_OPT_NO_COLLAPSE = 7,  /* 1: never collapse rows into covariate
                                 patterns (default 0: collapse when every
                                 term is a factor or a numeric with few
                                 values and there is no offset, or poisson
                                 with a log link; the fit then reads the
                                 file once) */
+    MR_OPT_KEEP_CHECKPOINT = 8 /* 1: a run that succeeds leaves its
+                                checkpoint (mr_fitter_set_checkpoint) for
+                                the caller to remove with
+                                mr_fitter_checkpoint_remove once its
+                                outputs are in place (default 0: the run
+                                removes it; a profile's fits, one per
+                                value, remove theirs either way) */
 } mr_int_option;
 
 /* Real-valued options. */
@@ -375,8 +382,9 @@ MR_API mr_status mr_fitter_set_cluster(mr_fitter *f, const char *column, size_t 
  * audit trail aside).  Else - cut short, damaged, of another input,
  * model or options - it is not used and the fit starts afresh;
  * mr_fitter_checkpoint_note says why.  Threads, buffer size and caching
- * may differ between the runs.  A fit that succeeds removes the file; one
- * that fails or is stopped leaves it.  A file changed in place with its
+ * may differ between the runs.  A fit that succeeds removes the file
+ * (unless MR_OPT_KEEP_CHECKPOINT is set); one that fails or is stopped
+ * leaves it.  A file changed in place with its
  * size and time kept is caught by the later passes' checksums (MR_ERR_IO,
  * as any change during a fit).  Standard input and pipes cannot be read
  * again after a restart: mr_fitter_run refuses a checkpoint with them
@@ -389,6 +397,18 @@ MR_API mr_status mr_fitter_set_cluster(mr_fitter *f, const char *column, size_t 
  * Collapsed fits (one read of the file, IRLS in memory) write it once,
  * after the read.  Returns MR_OK or MR_ERR_NO_MEMORY. */
 MR_API mr_status mr_fitter_set_checkpoint(mr_fitter *f, const char *path);
+/* Removes the checkpoint file at the fitter's path under its lock: for a
+ * caller that set MR_OPT_KEEP_CHECKPOINT, once the fit's outputs (its
+ * JSON, a run log's line) are in place.  Until then the file holds the
+ * finished state - after the last IRLS pass, the totals the fit is made
+ * from, and after the robust pass its sums too - so that a process killed
+ * between the run's end and its outputs, run again with the same
+ * command, makes the same fit without reading the data again ("run":
+ * {"resumed": {"after_pass": N}} with N all of its passes).  MR_OK (also
+ * when there is no path or no file), or MR_ERR_IO when another run holds
+ * the lock (the file is then left to it) or it cannot be removed, with
+ * mr_fitter_errmsg. */
+MR_API mr_status mr_fitter_checkpoint_remove(mr_fitter *f);
 /* What the last run did with its checkpoint, one line: "" when it had none
  * or none lay at the path, else that it was taken up after pass N, or why it
  * was not used.  Owned by the fitter, valid until its next run. */

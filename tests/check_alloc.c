@@ -371,6 +371,18 @@ START_TEST(test_checkpoints)
     ck_assert_int_eq(mr_fitter_run(f, "samples/falls.csv", &fit), MR_ERR_STOPPED);
     mr_fitter_free(f);
     every_allocation("samples/falls.csv", falls_model, 5);
+    /* a checkpoint left after the last pass (MR_OPT_KEEP_CHECKPOINT): taken
+     * up, its finished parts read, no pass made */
+    f = mr_fitter_new();
+    for (i = 0; falls_model[i]; i++) ck_assert_int_eq(mr_fitter_model_line(f, falls_model[i], "test"), MR_OK);
+    mr_fitter_set_int(f, MR_OPT_NO_COLLAPSE, 1);
+    mr_fitter_set_int(f, MR_OPT_KEEP_CHECKPOINT, 1);
+    ck_assert_int_eq(mr_fitter_set_checkpoint(f, checkpoint_saved), MR_OK);
+    unlink(checkpoint_saved);
+    ck_assert_int_eq(mr_fitter_run(f, "samples/falls.csv", &fit), MR_OK);
+    mr_fit_free(fit);
+    mr_fitter_free(f);
+    every_allocation("samples/falls.csv", falls_model, 5);
     unlink(checkpoint_path);
     unlink(checkpoint_saved);
 }

@@ -54,11 +54,13 @@ typedef struct run_opts {
     mr_robust robust;
     const char *cluster;
     int triple; /* band a factor, group x zone x band with its lower terms */
+    int *progress_calls; /* NULL, or counts the progress calls of passes */
 } run_opts;
 
 static int stop_at(const mr_progress *p, void *user)
 {
     const run_opts *o = user;
+    if (o->progress_calls) ++*o->progress_calls;
     return o->stop_at_pass > 0 && p->pass == o->stop_at_pass;
 }
 
@@ -80,7 +82,7 @@ static mr_fitter *new_fitter(const run_opts *o, const char *checkpoint)
     ck_assert_int_eq(mr_fitter_set_robust(f, o->robust), MR_OK);
     if (o->cluster) ck_assert_int_eq(mr_fitter_set_cluster(f, o->cluster, 0), MR_OK);
     mr_fitter_set_progress_stop(f, stop_at, (void *)o);
-    f->checkpoint_keep = o->keep;
+    ck_assert_int_eq(mr_fitter_set_int(f, MR_OPT_KEEP_CHECKPOINT, o->keep), MR_OK);
     return f;
 }
 
@@ -162,8 +164,8 @@ static void assert_round_trip(const unsigned char *part, uint64_t n, mr__pass_re
  * the checkpoint's first-pass result reads back to the same bytes. */
 START_TEST(stopped_fit_goes_on_to_the_same_bits)
 {
-    run_opts plain = {2, 0, 0, 0, 0, MR_ROBUST_NONE, NULL, 0}, stopping = {2, 0, 4, 0, 0, MR_ROBUST_NONE, NULL, 0},
-             again = {1, 0, 0, 0, 0, MR_ROBUST_NONE, NULL, 0};
+    run_opts plain = {2, 0, 0, 0, 0, MR_ROBUST_NONE, NULL, 0, NULL}, stopping = {2, 0, 4, 0, 0, MR_ROBUST_NONE, NULL, 0, NULL},
+             again = {1, 0, 0, 0, 0, MR_ROBUST_NONE, NULL, 0, NULL};
     mr_fit *ref = NULL, *got = NULL;
     mr__pass_result res;
     unsigned char *ck;
@@ -207,7 +209,7 @@ END_TEST
  * numerics' least and greatest values come from the checkpoint). */
 START_TEST(zero_level_and_robust_go_on_to_the_same_bits)
 {
-    run_opts plain = {2, 0, 0, 0, 0, MR_ROBUST_HC1, "zone", 0}, stopping = plain, again = plain;
+    run_opts plain = {2, 0, 0, 0, 0, MR_ROBUST_HC1, "zone", 0, NULL}, stopping = plain, again = plain;
     mr_fit *ref = NULL, *got = NULL;
     size_t j, zero_warnings = 0;
     char note[2048];
@@ -249,7 +251,7 @@ END_TEST
  * checkpoint, so a resumed fit names it and marks the same coefficients. */
 START_TEST(zero_triple_cell_goes_on_to_the_same_flags)
 {
-    run_opts plain = {2, 0, 0, 0, 0, MR_ROBUST_NONE, NULL, 1}, stopping = plain, again = plain;
+    run_opts plain = {2, 0, 0, 0, 0, MR_ROBUST_NONE, NULL, 1, NULL}, stopping = plain, again = plain;
     mr_fit *ref = NULL, *got = NULL;
     size_t j, named = 0;
     stopping.stop_at_pass = 3;
@@ -292,8 +294,8 @@ static void assert_refused(const unsigned char *p, size_t n, const run_opts *o, 
 
 START_TEST(changed_checkpoints_are_not_used)
 {
-    run_opts plain = {2, 0, 0, 0, 0, MR_ROBUST_NONE, NULL, 0}, stopping = {2, 0, 3, 0, 0, MR_ROBUST_NONE, NULL, 0},
-             other = {2, 0, 0, 0, 1e-12, MR_ROBUST_NONE, NULL, 0};
+    run_opts plain = {2, 0, 0, 0, 0, MR_ROBUST_NONE, NULL, 0, NULL}, stopping = {2, 0, 3, 0, 0, MR_ROBUST_NONE, NULL, 0, NULL},
+             other = {2, 0, 0, 0, 1e-12, MR_ROBUST_NONE, NULL, 0, NULL};
     mr_fit *ref = NULL, *ref_other = NULL, *got = NULL;
     unsigned char *ck;
     size_t len;
@@ -373,7 +375,7 @@ END_TEST
  * asan-check). */
 START_TEST(damaged_first_pass_bytes)
 {
-    run_opts stopping = {2, 0, 3, 0, 0, MR_ROBUST_NONE, NULL, 0};
+    run_opts stopping = {2, 0, 3, 0, 0, MR_ROBUST_NONE, NULL, 0, NULL};
     mr_fit *got = NULL;
     unsigned char *ck, *copy;
     const unsigned char *part;
@@ -411,10 +413,57 @@ START_TEST(damaged_first_pass_bytes)
 }
 END_TEST
 
+/* A run that keeps its checkpoint (MR_OPT_KEEP_CHECKPOINT) leaves the
+ * finished state: run again, as a process killed before writing its
+ * outputs would be, it reads no data (no pass reports progress) and makes
+ * the fit that ran through, to the bit, robust standard errors by clusters
+ * included (stage 2); mr_fitter_checkpoint_remove then removes the file,
+ * and again when there is none. */
+START_TEST(finished_checkpoint_reads_no_data)
+{
+    run_opts keep = {2, 0, 0, 1, 0, MR_ROBUST_NONE, NULL, 0, NULL}, again;
+    mr_fit *ref = NULL, *got = NULL;
+    mr_fitter *f;
+    int robust, calls, first_calls;
+    size_t j;
+    char note[2048];
+    write_rows();
+    for (robust = 0; robust < 2; robust++) {
+        keep.robust = robust ? MR_ROBUST_HC1 : MR_ROBUST_NONE;
+        keep.cluster = robust ? "zone" : NULL;
+        again = keep;
+        again.threads = 1;
+        again.progress_calls = &calls;
+        calls = first_calls = 0;
+        keep.progress_calls = &first_calls;
+        unlink(ckpt_path);
+        ck_assert_int_eq(fit(&keep, ckpt_path, &ref, NULL, 0), MR_OK);
+        ck_assert_int_gt(first_calls, 0); /* passes report progress */
+        ck_assert_int_eq(access(ckpt_path, F_OK), 0);
+        ck_assert_int_eq(fit(&again, ckpt_path, &got, note, sizeof note), MR_OK);
+        ck_assert_int_eq(calls, 0);
+        ck_assert_int_eq(mr_fit_resumed_after_pass(got), (int)mr_fit_stat(ref, MR_STAT_PASSES));
+        ck_assert_ptr_nonnull(strstr(note, "resumed after pass"));
+        mr_check_same_fit(ref, got);
+        for (j = 0; robust && j < mr_fit_ncoef(ref); j++)
+            ck_assert(same_bits(mr_fit_robust_std_error(ref, j), mr_fit_robust_std_error(got, j)));
+        ck_assert_uint_eq(mr_fit_clusters(ref), mr_fit_clusters(got));
+        mr_fit_free(ref);
+        mr_fit_free(got);
+        f = new_fitter(&keep, ckpt_path);
+        ck_assert_int_eq(mr_fitter_checkpoint_remove(f), MR_OK);
+        ck_assert_int_ne(access(ckpt_path, F_OK), 0);
+        ck_assert_int_eq(mr_fitter_checkpoint_remove(f), MR_OK);
+        mr_fitter_free(f);
+    }
+    unlink(data_path);
+}
+END_TEST
+
 /* Standard input cannot be read again: a checkpoint with it is refused. */
 START_TEST(standard_input_is_refused)
 {
-    run_opts plain = {1, 0, 0, 0, 0, MR_ROBUST_NONE, NULL, 0};
+    run_opts plain = {1, 0, 0, 0, 0, MR_ROBUST_NONE, NULL, 0, NULL};
     mr_fitter *f = new_fitter(&plain, "/tmp/mr_ckpt_stdin.state");
     mr_fit *out = NULL;
     ck_assert_int_eq(mr_fitter_run(f, "-", &out), MR_ERR_USAGE);
@@ -435,6 +484,7 @@ int main(void)
     tcase_add_test(tc, collapsed_patterns_round_trip);
     tcase_add_test(tc, damaged_first_pass_bytes);
     tcase_add_test(tc, standard_input_is_refused);
+    tcase_add_test(tc, finished_checkpoint_reads_no_data);
     suite_add_tcase(s, tc);
     return mr_check_run(s, 0);
 }

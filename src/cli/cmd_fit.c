@@ -77,14 +77,17 @@ static int log_run(const cli *c, int rc)
 /* MILLRACE_TEST_KILL=pass:K:ROWS (tests only, tests/cli/checkpoint.sh):
  * the process kills itself with SIGKILL, as kill -9 would, at the first
  * progress call of pass K with at least ROWS rows added (the last call of a
- * pass comes after all its rows: at the latest, then). */
-static int kill_pass, kill_rows_set;
+ * pass comes after all its rows: at the latest, then).
+ * MILLRACE_TEST_KILL=publish: once the fit is made, just before its
+ * outputs are written (its checkpoint outlives it until they are). */
+static int kill_pass, kill_rows_set, kill_publish;
 static unsigned long long kill_rows;
 
 static void read_test_kill(void)
 {
     const char *v = getenv("MILLRACE_TEST_KILL");
     kill_rows_set = v != NULL && sscanf(v, "pass:%d:%llu", &kill_pass, &kill_rows) == 2;
+    kill_publish = v != NULL && strcmp(v, "publish") == 0;
 }
 
 static int progress_or_stop(const mr_progress *p, void *user)
@@ -116,6 +119,8 @@ static int run_fit(cli *c, int argc, char **argv, const cli_fit_hooks *hooks)
     mr_fitter_set_progress_stop(c->fitter, progress_or_stop, c);
     cli_stop_at_block(1);
     read_test_kill();
+    /* the checkpoint goes only once the outputs are in place (drop_checkpoint) */
+    mr_fitter_set_int(c->fitter, MR_OPT_KEEP_CHECKPOINT, 1);
     if (hooks != NULL && hooks->run != NULL)
         st = hooks->run(c->fitter, (const char *const *)argv + optind, (size_t)(argc - optind), &fit, hooks->user);
     else st = mr_fitter_run_set(c->fitter, (const char *const *)argv + optind, (size_t)(argc - optind), &fit);
@@ -128,9 +133,21 @@ static int run_fit(cli *c, int argc, char **argv, const cli_fit_hooks *hooks)
         return cli_stopped();
     }
     if (st != MR_OK) return cli_fail(st, mr_fitter_errmsg(c->fitter));
+    if (kill_publish) raise(SIGKILL);
     c->fit = fit;
     rc = writes ? publish(c, fit) : (int)mr_fit_status(fit);
     if (rc == MR_ERR_NOT_CONVERGED) fprintf(stderr, "millrace: the fit did not converge (see the report)\n");
+    return rc;
+}
+
+/* The checkpoint the fit left (MR_OPT_KEEP_CHECKPOINT) goes once its
+ * report, JSON and run log's line are in place: a kill before that, run
+ * again, makes the fit from it without reading the data.  A fit that did
+ * not converge is a result (exit 7); a failed output keeps it. */
+static int drop_checkpoint(cli *c, int rc)
+{
+    if (c->fit == NULL || (rc != 0 && rc != (int)MR_ERR_NOT_CONVERGED)) return rc;
+    if (mr_fitter_checkpoint_remove(c->fitter) != MR_OK) fprintf(stderr, "millrace: %s\n", mr_fitter_errmsg(c->fitter));
     return rc;
 }
 
@@ -148,7 +165,7 @@ int cmd_fit(int argc, char **argv, const cli_fit_hooks *hooks)
     c.argc = argc + 1;
     c.argv = argv - 1;
     rc = run_fit(&c, argc, argv, hooks);
-    if (writes_outputs(hooks)) rc = log_run(&c, rc);
+    if (writes_outputs(hooks)) rc = drop_checkpoint(&c, log_run(&c, rc));
     mr_fit_free(c.fit);
     for (i = 0; i < c.nlines; i++) free(c.model_lines[i]);
     free(c.model_lines);

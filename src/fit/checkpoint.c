@@ -8,11 +8,14 @@
  * start is taken; then each IRLS pass) the run writes, atomically through
  * common/outfile.c and under the one-writer lock on the path, what it needs
  * to go on: the first pass's result (accum/first_bytes.h), the IRLS state
- * (fit/irls.h) and the run's counts.  A run given the same path reads it
+ * (fit/irls.h) and the run's counts.  After the last IRLS pass, and after
+ * the robust pass, it writes what the published fit takes from them
+ * (checkpoint_done.c): a run killed once its passes are over, before its
+ * outputs are in place, finishes without reading the data again.  A run given the same path reads it
  * first: when it is whole and was made for this input, model and options,
  * the run takes up after its last pass, to the same bits.
  *
- * THE FILE (version 1), little-endian (common/bytes.h, common/bytebuf.h):
+ * THE FILE (version 2), little-endian (common/bytes.h, common/bytebuf.h):
  *   "MRCK", u32 version, u64 the file's length
  *   the input: its name as given (text), size, mtime (ns)
  *   the model and the options that change results (text: the model
@@ -23,6 +26,8 @@
  *     warm start's flag, iterations, blocks, polish blocks
  *   the first pass's result (text framing its bytes)
  *   the IRLS state (text framing its bytes)
+ *   u64 the stage: 0 IRLS passes go on, 1 they are over, 2 the robust
+ *     pass too; at stage 1 and 2 the finished parts (checkpoint_done.c)
  *   u64 FNV-1a over every byte before (common/checksum.h)
  * A file whose length, tag, version or checksum is wrong is damaged and
  * never read further; one of another input, model or options is stale.
@@ -48,7 +53,7 @@
 #include "fit/run.h"
 #include "fit/start.h"
 
-#define MR__CHECKPOINT_VERSION 1u
+#define MR__CHECKPOINT_VERSION 2u
 
 /* Longest checkpoint read: patterns and the block map of any file fit well
  * within it; a longer file is not one of ours. */
@@ -90,9 +95,11 @@ static void put_run(mr__bytebuf *b, const mr__run *r)
     mr__bytebuf_u64(b, (uint64_t)r->warm_polish_blocks);
 }
 
-void mr__checkpoint_put_state(mr__run *r, const mr__irls *s, mr__bytebuf *b)
+/* The run's counts, the first pass's result and the IRLS state's n bytes:
+ * `state` as given, or s encoded when state is NULL. */
+static void put_state(mr__run *r, const mr__irls *s, const unsigned char *state, size_t n, mr__bytebuf *b)
 {
-    size_t start, n = mr__irls_encoded_size(s);
+    size_t start;
     unsigned char *at;
     put_run(b, r);
     mr__bytebuf_u64(b, 0);
@@ -100,10 +107,19 @@ void mr__checkpoint_put_state(mr__run *r, const mr__irls *s, mr__bytebuf *b)
     mr__first_encode(&r->first, r->bind.ncol, r->bind.nnum, r->bind.nfac, b);
     if (!b->failed) mr__put_u64(b->data + start - 8, b->len - start);
     mr__bytebuf_u64(b, n);
-    if ((at = mr__bytebuf_room(b, n)) != NULL) mr__irls_encode(s, at);
+    if ((at = mr__bytebuf_room(b, n)) == NULL) return;
+    if (state != NULL) memcpy(at, state, n);
+    else mr__irls_encode(s, at);
 }
 
-static mr_status encode(mr__run *r, const mr__irls *s, const char *key, mr__bytebuf *b, mr__error *err)
+void mr__checkpoint_put_state(mr__run *r, const mr__irls *s, mr__bytebuf *b)
+{
+    put_state(r, s, NULL, mr__irls_encoded_size(s), b);
+}
+
+/* state: the IRLS state's n bytes; stage 1 and 2 add their parts. */
+static mr_status encode(mr__run *r, const unsigned char *state, size_t n, int stage, const char *key, mr__bytebuf *b,
+                        mr__error *err)
 {
     mr__bytebuf_head(b, "MRCK", MR__CHECKPOINT_VERSION);
     mr__bytebuf_u64(b, 0); /* the length, once known */
@@ -111,7 +127,9 @@ static mr_status encode(mr__run *r, const mr__irls *s, const char *key, mr__byte
     mr__bytebuf_u64(b, r->size);
     mr__bytebuf_u64(b, (uint64_t)r->mtime_ns);
     mr__bytebuf_text(b, key, strlen(key));
-    mr__checkpoint_put_state(r, s, b);
+    put_state(r, NULL, state, n, b);
+    mr__bytebuf_u64(b, (uint64_t)stage);
+    if (stage > 0) mr__checkpoint_done_put(b, r, stage);
     if (b->failed) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     mr__put_u64(b->data + 8, b->len + 8);
     mr__bytebuf_u64(b, mr__fnv_words(MR__FNV_OFFSET, (const char *)b->data, b->len));
@@ -149,16 +167,14 @@ static mr_status write_bytes(mr__run *r, const mr__bytebuf *b, mr__error *err)
     return mr__outfile_commit(o, err);
 }
 
-mr_status mr__checkpoint_write(mr__run *r, const mr__irls *s, mr__error *err)
+static mr_status write_stage(mr__run *r, const unsigned char *state, size_t n, int stage, mr__error *err)
 {
     mr__bytebuf b;
     char *key;
     mr_status st;
-    /* only a run that took the lock writes (mr__fit_file; not a comparison's models) */
-    if (r->f->checkpoint == NULL || r->checkpoint_lock == NULL) return MR_OK;
     memset(&b, 0, sizeof b);
     if ((key = model_key(r)) == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    st = encode(r, s, key, &b, err);
+    st = encode(r, state, n, stage, key, &b, err);
     mr__free(key);
     if (st == MR_OK) st = write_bytes(r, &b, err);
     mr__bytebuf_release(&b);
@@ -166,6 +182,46 @@ mr_status mr__checkpoint_write(mr__run *r, const mr__irls *s, mr__error *err)
     r->checkpoint_writes++;
     test_kill(r->checkpoint_writes, 1);
     return MR_OK;
+}
+
+/* Only a run that took the lock writes (mr__fit_file; not a comparison's
+ * models). */
+static int writes(const mr__run *r) { return r->f->checkpoint != NULL && r->checkpoint_lock != NULL; }
+
+/* The state as bytes in *out (the caller frees it). */
+static mr_status state_bytes(const mr__irls *s, unsigned char **out, size_t *n, mr__error *err)
+{
+    *n = mr__irls_encoded_size(s);
+    if ((*out = mr__malloc(*n)) == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    mr__irls_encode(s, *out);
+    return MR_OK;
+}
+
+mr_status mr__checkpoint_write(mr__run *r, const mr__irls *s, mr__error *err)
+{
+    unsigned char *state;
+    size_t n;
+    mr_status st;
+    if (!writes(r)) return MR_OK;
+    MR__TRY(state_bytes(s, &state, &n, err));
+    st = write_stage(r, state, n, 0, err);
+    mr__free(state);
+    return st;
+}
+
+mr_status mr__checkpoint_write_done(mr__run *r, const mr__irls *s, mr__error *err)
+{
+    if (!writes(r)) return MR_OK;
+    mr__free(r->done_state);
+    r->done_state = NULL;
+    MR__TRY(state_bytes(s, &r->done_state, &r->done_state_len, err));
+    return write_stage(r, r->done_state, r->done_state_len, 1, err);
+}
+
+mr_status mr__checkpoint_write_robust(mr__run *r, mr__error *err)
+{
+    if (!writes(r) || r->done_state == NULL) return MR_OK;
+    return write_stage(r, r->done_state, r->done_state_len, 2, err);
 }
 
 /* ---- reading ------------------------------------------------------------- */
@@ -284,13 +340,40 @@ static int bind_again(mr__run *r, const unsigned char *header, uint64_t len, siz
 static void forget_run(mr__run *r)
 {
     mr__free(r->pass_seconds);
+    mr__free(r->resume_done);
+    mr__free(r->done_state);
+    r->resume_done = r->done_state = NULL;
+    r->resume_done_len = r->done_state_len = 0;
+    r->resume_stage = 0;
     r->pass_seconds = NULL;
     r->npasses = r->warm = r->warm_iterations = r->warm_blocks = r->warm_polish_blocks = 0;
 }
 
-/* The parts after the identity, `trailing` bytes left after them: 0 and
- * the state taken, or why not. */
-static const char *take_parts(mr__run *r, mr__byteread *rd, size_t trailing, mr__irls *resume, mr__error *err)
+/* The stage and its finished parts (kept as bytes until the design is
+ * built), and after stage 1 the state's bytes for a stage-2 checkpoint:
+ * 0, or -1 with r->resume_stage -1 when damaged. */
+static int take_done(mr__run *r, mr__byteread *rd, const unsigned char *state, size_t n)
+{
+    uint64_t stage = mr__byteread_count(rd, 2, 0);
+    size_t left = (size_t)(rd->end - rd->at);
+    r->resume_stage = -1;
+    if (rd->bad || left < 8 || (stage == 0 && left != 8)) return -1;
+    r->resume_stage = (int)stage;
+    if (stage == 0) return 0;
+    r->resume_done_len = left - 8;
+    r->done_state_len = n;
+    r->resume_done = mr__malloc(r->resume_done_len + 1);
+    r->done_state = mr__malloc(n + 1);
+    if (r->resume_done == NULL || r->done_state == NULL) return -1;
+    memcpy(r->resume_done, rd->at, r->resume_done_len);
+    memcpy(r->done_state, state, n);
+    return 0;
+}
+
+/* The parts after the identity: 0 and the state taken, or why not.  A
+ * checkpoint's stage and finished parts follow (take_done); another
+ * process's start (mr__checkpoint_take_state) ends with the state. */
+static const char *take_parts(mr__run *r, mr__byteread *rd, int checkpoint, mr__irls *resume, mr__error *err)
 {
     const unsigned char *header, *part;
     uint64_t header_len, n;
@@ -303,10 +386,15 @@ static const char *take_parts(mr__run *r, mr__byteread *rd, size_t trailing, mr_
     mr__byteread_init(&sub, part, (size_t)n);
     if (mr__first_decode(&sub, &first, &ncol, &nnum, &nfac, err) != MR_OK)
         return err->status == MR_ERR_NO_MEMORY ? "no memory to read it" : "its first-pass result is damaged";
-    if (sub.at != sub.end || (part = mr__byteread_text(rd, &n)) == NULL || (size_t)(rd->end - rd->at) != trailing ||
+    if (sub.at != sub.end || (part = mr__byteread_text(rd, &n)) == NULL || (!checkpoint && rd->at != rd->end) ||
         mr__irls_decode(part, (size_t)n, resume, err) != MR_OK) {
         mr__pass_result_release(&first, nfac);
         return "its IRLS state is damaged";
+    }
+    if (checkpoint && take_done(r, rd, part, (size_t)n) != 0) {
+        mr__pass_result_release(&first, nfac);
+        mr__irls_release(resume);
+        return r->resume_stage < 0 ? "its stage is damaged" : "no memory to read it";
     }
     if (!bind_again(r, header, header_len, ncol, nnum, nfac, &first)) {
         mr__pass_result_release(&first, nfac);
@@ -335,7 +423,7 @@ static mr_status try_resume(mr__run *r, mr__irls *resume, int *have, mr__error *
     why = damage(data, len);
     mr__byteread_init(&rd, data + 16, why ? 0 : len - 16);
     if (why == NULL) why = stale(r, &rd, key);
-    if (why == NULL) why = take_parts(r, &rd, 8, resume, &scratch);
+    if (why == NULL) why = take_parts(r, &rd, 1, resume, &scratch);
     if (why != NULL) forget_run(r);
     *have = why == NULL;
     if (why == NULL) {
@@ -398,4 +486,19 @@ void mr__checkpoint_end(mr__run *r, int succeeded)
     if (succeeded && !r->f->checkpoint_keep) unlink(r->f->checkpoint);
     mr_output_lock_release(r->checkpoint_lock);
     r->checkpoint_lock = NULL;
+}
+
+mr_status mr_fitter_checkpoint_remove(mr_fitter *f)
+{
+    mr_output_lock *lock = NULL;
+    char msg[MR__MSG_CAP];
+    mr_status st;
+    mr__error_clear(&f->err);
+    if (f->checkpoint == NULL) return MR_OK;
+    st = mr_output_lock_take(f->checkpoint, &lock, msg, sizeof msg);
+    if (st != MR_OK) return mr__fail(&f->err, st, "checkpoint %s: not removed: %s", f->checkpoint, msg);
+    if (unlink(f->checkpoint) != 0 && errno != ENOENT)
+        st = mr__fail(&f->err, MR_ERR_IO, "checkpoint %s: cannot remove it: %s", f->checkpoint, strerror(errno));
+    mr_output_lock_release(lock);
+    return st;
 }

@@ -56,6 +56,7 @@ mr_status mr__fit_profile(mr_fitter *f, const char *path, mr_fit **out)
     double loglik[64];
     mr_fit *best = NULL;
     mr_status st;
+    int keep;
     if (ops == NULL || ops->profile_grid == NULL || ops->profile_n > 64)
         return mr__fail(&f->err, MR_ERR_INTERNAL, "no grid to profile the family's parameter over");
     if (strcmp(path, "-") == 0)
@@ -64,7 +65,12 @@ mr_status mr__fit_profile(mr_fitter *f, const char *path, mr_fit **out)
                         "standard input",
                         ops->param_name, ops->param_name);
     f->spec.family_profile = 0;
+    /* each value's fit has a checkpoint of its own, which the next value's
+     * could not take up: it goes as that fit ends, kept or not */
+    keep = f->checkpoint_keep;
+    f->checkpoint_keep = 0;
     st = fit_grid(f, path, ops, loglik, &best);
+    f->checkpoint_keep = keep;
     f->spec.family_profile = 1;
     f->spec.family_param = NAN;
     if (st == MR_OK) st = record_profile(best, ops, loglik, &f->err);

@@ -221,9 +221,13 @@ static mr_status meat_pass(mr__run *r, int table, mr__error *err)
  * every cluster's sums in a table. */
 mr_status mr__robust_pass(mr__run *r, mr__error *err)
 {
-    mr_status st = meat_pass(r, 0, err);
-    if (st == MR_OK || !r->meat.clusters_not_grouped) return st;
-    mr__error_clear(err);
-    r->clusters_table = 1;
-    return meat_pass(r, 1, err);
+    mr_status st;
+    if (r->have_resume && r->resume_stage >= 2) return mr__checkpoint_done_take(r, 2, err);
+    st = meat_pass(r, 0, err);
+    if (st != MR_OK && r->meat.clusters_not_grouped) {
+        mr__error_clear(err);
+        r->clusters_table = 1;
+        st = meat_pass(r, 1, err);
+    }
+    return st == MR_OK ? mr__checkpoint_write_robust(r, err) : st;
 }

@@ -160,6 +160,8 @@ void mr__run_release(mr__run *r)
 {
     size_t f;
     mr__irls_release(&r->resume);
+    mr__free(r->resume_done);
+    mr__free(r->done_state);
     mr__pass_result_release(&r->first, r->bind.nfac);
     mr__pass_result_release(&r->last, 0);
     mr__pass_result_release(&r->meat, 0);

@@ -90,6 +90,13 @@ typedef struct mr__run {
     int resumed_from, checkpoint_writes;
     mr__irls resume; /* with have_resume: the state the checkpoint left */
     int have_resume;
+    /* the stage the checkpoint taken up had reached (checkpoint_done.c:
+     * 0 in the IRLS passes, 1 past the last, 2 past the robust pass) and
+     * its finished parts' bytes, read once the design is built; the IRLS
+     * state after the last step as bytes, for the stage-2 checkpoint */
+    int resume_stage;
+    unsigned char *resume_done, *done_state;
+    size_t resume_done_len, done_state_len;
 } mr__run;
 
 /* result.c: cov_raw = A cov_internal A' and beta_raw = A beta_internal;
@@ -194,8 +201,24 @@ mr_status mr__checkpoint_write(mr__run *r, const mr__irls *s, mr__error *err);
 void mr__checkpoint_put_state(mr__run *r, const mr__irls *s, mr__bytebuf *b);
 mr_status mr__checkpoint_take_state(mr__run *r, const unsigned char *data, size_t len, mr__irls *resume,
                                     mr__error *err);
-/* The run's end: the checkpoint removed when the fit succeeded, the lock let go. */
+
+/* After the last IRLS pass (its totals in r->last, the state `s` after
+ * its last step): stage 1.  After the robust pass (r->meat): stage 2.
+ * Either rewrites the checkpoint so that a rerun reads no data for what
+ * is done (MR_ERR_IO, MR_ERR_NO_MEMORY). */
+mr_status mr__checkpoint_write_done(mr__run *r, const mr__irls *s, mr__error *err);
+mr_status mr__checkpoint_write_robust(mr__run *r, mr__error *err);
+
+/* The run's end: the checkpoint removed when the fit succeeded (unless
+ * kept for the caller: MR_OPT_KEEP_CHECKPOINT), the lock let go. */
 void mr__checkpoint_end(mr__run *r, int succeeded);
+
+/* checkpoint_done.c: the finished stages' parts.  _put appends those of
+ * `stage` (1, 2) from r; _take reads r->resume_done into r->last and the
+ * dispersion (stage 1) or r->meat (stage 2, stage 1's parts skipped). */
+struct mr__bytebuf;
+void mr__checkpoint_done_put(struct mr__bytebuf *b, const mr__run *r, int stage);
+mr_status mr__checkpoint_done_take(mr__run *r, int stage, mr__error *err);
 
 /* Worker threads for `asked` (0: one per online CPU): at most 4 per
  * online CPU and 64 in all, as each costs about 6 MB and more than the

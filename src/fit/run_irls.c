@@ -54,6 +54,7 @@ typedef struct irls_job {
     int *growing_out;    /* NULL, or per coefficient: its SE grew pass after pass */
     double deviance_shift; /* collapsed patterns: the deviance within patterns */
     mr__irls *resume;    /* NULL, or the state a checkpoint left (taken over) */
+    int finished;        /* that state is after the last step: no pass left */
     int checkpoints;     /* the fit of the data: a checkpoint after each pass */
     int calibrate;         /* bin the fitted means (accum/calibration.h) */
     int iterations, halvings, converged, by_step;
@@ -176,7 +177,7 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
 {
     mr__irls s;
     mr_status st;
-    int done = 0;
+    int done = job->finished;
     size_t j;
     memset(&s, 0, sizeof s);
     st = init_state(r, job, &s, err);
@@ -186,6 +187,9 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
         st = irls_pass(r, job, mr__irls_beta(&s), s.null_b0, mr__irls_null_deviance(&s), res, err);
         if (st == MR_OK) st = mr__irls_step(&s, &res->sums, r->display, &done, err);
         if (st == MR_OK && !done && job->checkpoints && !job->replay) st = mr__checkpoint_write(r, &s, err);
+        /* the passes over: what the fit takes from the last, so that a
+         * rerun killed before its outputs reads no data for it */
+        if (st == MR_OK && done && job->checkpoints) st = mr__checkpoint_write_done(r, &s, err);
     }
     job->iterations = s.iterations;
     job->halvings = s.halvings;
@@ -317,6 +321,11 @@ mr_status mr__run_fit_data(mr__run *r, mr__irls *resume, mr__error *err)
     job.calibrate = 1;
     job.resume = resume;
     job.checkpoints = 1;
+    /* a checkpoint made after the last pass: its totals, no pass */
+    if (resume && r->resume_stage >= 1) {
+        MR__TRY(mr__checkpoint_done_take(r, 1, err));
+        job.finished = 1;
+    }
     if (r->collapsed) {
         job.replay = &r->patterns;
         job.deviance_shift = r->within_deviance;

@@ -10,9 +10,12 @@
 # one line and the fit starts afresh, to the same bytes.  Standard input is
 # refused, and so is a set of files.  With robust standard errors by clusters, a fit killed within an
 # IRLS pass or within the final pass that adds up the sandwich's meat goes
-# on to the same bytes too.  The kills come from the test-only MILLRACE_TEST_KILL hook
+# on to the same bytes too.  A fit killed once its passes are over, before
+# its JSON is written, goes on without reading the data again.  The kills
+# come from the test-only MILLRACE_TEST_KILL hook
 # (README, "Scheduled reruns"): the process sends itself SIGKILL at a
-# chosen pass and row, or at its N-th checkpoint, as kill -9 from outside
+# chosen pass and row, at its N-th checkpoint, or with the fit made just
+# before its outputs are written (publish), as kill -9 from outside
 # would then; nothing here is timed.  MILLRACE=build/asan/millrace runs it
 # under ASan+UBSan.
 # shellcheck source=tests/cli/common.bash
@@ -110,6 +113,32 @@ while read -r name hook want; do
     same "$name" "$want"
 done <<<"$points"
 
+# killed once its passes are over, before its outputs were in place: just
+# after the checkpoint that follows the last IRLS pass (the passes-th), and
+# with the fit made, just before the JSON is written (publish).  The
+# checkpoint outlives the fit until the JSON and the run log are in place,
+# so the rerun goes on after its last pass and reads no data: it is armed
+# to kill itself at its next pass (pass passes + 1) and still finishes.
+for hook in "checkpoint:$passes:after" publish; do
+    name=done-${hook%%:*}
+    rm -f "$ck"
+    killed "$name" "$(fit "$name.killed" MILLRACE_TEST_KILL="$hook")"
+    [ -e "$ck" ] && ok "$name: the checkpoint outlives the fit" || fail "$name" "no checkpoint after the kill"
+    [ "$name" = done-checkpoint ] && echo "# with the last pass's totals it takes $(stat -c %s "$ck") bytes"
+    [ ! -e "$tmp/$name.json" ] || fail "$name" "a JSON was written before the kill"
+    rc=$(fit "$name" MILLRACE_TEST_KILL=pass:$((passes + 1)):0)
+    [ "$rc" -eq 0 ] || fail "$name" "rerun exit $rc (137: it read the data again): $(head -c 300 "$tmp/$name.err")"
+    same "$name" "$passes"
+done
+# with a run log: the checkpoint goes once the log's line is written too
+rm -f "$ck"
+model+=(--run-log "$tmp/runs.log")
+killed logged.killed "$(fit logged.killed MILLRACE_TEST_KILL=publish)"
+rc=$(fit logged MILLRACE_TEST_KILL=pass:$((passes + 1)):0)
+[ "$rc" -eq 0 ] && [ "$(grep -c . "$tmp/runs.log" 2>/dev/null)" = 1 ] || fail logged "exit $rc, log: $(cat "$tmp/runs.log")"
+same logged "$passes"
+unset 'model[-1]' 'model[-1]'
+
 # killed twice: after the first checkpoint, then within the third pass
 rm -f "$ck"
 killed twice.1 "$(fit twice.1 MILLRACE_TEST_KILL=checkpoint:1:after)"
@@ -181,17 +210,33 @@ killed robust-irls.killed "$(fit robust-irls.killed MILLRACE_TEST_KILL=pass:3:40
 rc=$(fit robust-irls)
 [ "$rc" -eq 0 ] || fail robust-irls "rerun exit $rc: $(head -c 300 "$tmp/robust-irls.err")"
 same robust-irls 2
-# the final pass is the last one counted; the last checkpoint came two before
+# the final pass is the last one counted; the last checkpoint came after
+# the last IRLS pass, the one before: the rerun reads the file once (it
+# would die at a second pass)
 killed robust-meat.killed "$(fit robust-meat.killed MILLRACE_TEST_KILL=pass:$passes:600000)"
-rc=$(fit robust-meat)
+rc=$(fit robust-meat MILLRACE_TEST_KILL=pass:$((passes + 1)):0)
 [ "$rc" -eq 0 ] || fail robust-meat "rerun exit $rc: $(head -c 300 "$tmp/robust-meat.err")"
-same robust-meat $((passes - 2))
+same robust-meat $((passes - 1))
+# killed after the checkpoint that follows the final pass (the sandwich's
+# sums in it): the rerun reads no data
+killed robust-done.killed "$(fit robust-done.killed MILLRACE_TEST_KILL=checkpoint:$passes:after)"
+rc=$(fit robust-done MILLRACE_TEST_KILL=pass:$((passes + 1)):0)
+[ "$rc" -eq 0 ] || fail robust-done "rerun exit $rc: $(head -c 300 "$tmp/robust-done.err")"
+same robust-done "$passes"
 killed robust-type.killed "$(fit robust-type.killed MILLRACE_TEST_KILL=checkpoint:2:after)"
 model+=(--robust hc0)
 rc=$(fit robust-type)
 grep -q "another model or other options" "$tmp/robust-type.err" && [ "$rc" -eq 0 ] &&
     [ "$(resumed_after "$tmp/robust-type.json")" = 0 ] && ok "robust type changed: said, started afresh" ||
     fail "robust type changed" "exit $rc: $(cat "$tmp/robust-type.err")"
+# a Tweedie power by profile likelihood: one fit per power, each removing
+# its own checkpoint as it ends (the next power's fit could not take it
+# up): no note, and no checkpoint once the outputs are in place
+rm -f "$ck"
+rc=$("$bin" fit --quiet --outcome events --family "tweedie power=profile" --exposure followup --factor sex \
+    --numeric age --checkpoint "$ck" --json "$tmp/profile.json" "$tmp/other.csv" 2>"$tmp/profile.err" >/dev/null; echo $?)
+[ "$rc" -eq 0 ] && [ ! -s "$tmp/profile.err" ] && [ ! -e "$ck" ] && ok "a profile's fits leave no checkpoint and no note" ||
+    fail profile "exit $rc, checkpoint $( [ -e "$ck" ] && echo left || echo gone): $(cat "$tmp/profile.err")"
 # a family parameter estimated alongside (negative binomial theta) and a
 # series log-likelihood (Tweedie): killed within pass 3, the rerun gives the
 # reference's bytes (the parameter travels in the IRLS state)
