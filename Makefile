@@ -241,6 +241,8 @@ check-groups: lint unit cli-check ref-check asan-check tsan-check alloc-check io
 bench: all
 	/usr/bin/python3 bench/run.py
 	/usr/bin/python3 bench/pipeline.py
+	-$(MAKE) --no-print-directory mpi
+	/usr/bin/python3 bench/scale.py
 
 # instruction counts (callgrind, 3 x 10^5 rows): ratios that a busy machine does not change
 bench-instructions: all
