@@ -8,6 +8,7 @@
 #include "fit/fit.h"
 #include "fit/fitter.h"
 #include "fit/start.h"
+#include "input/fields.h"
 #include "input/inputset.h"
 
 #define DEFAULT_MAX_PASSES 50
@@ -19,16 +20,18 @@ const char *mr_version(void) { return MR_VERSION_STRING; }
 mr_fitter *mr_fitter_new(void)
 {
     mr_fitter *f = mr__calloc(1, sizeof *f);
+    size_t i;
     if (f == NULL) return NULL;
     mr__spec_init(&f->spec);
     f->max_passes = DEFAULT_MAX_PASSES;
     f->buffer_size = DEFAULT_BUFFER;
     f->tolerance = DEFAULT_TOLERANCE;
     f->level = 0.95;
-    if (mr_fitter_add_missing(f, "") != MR_OK || mr_fitter_add_missing(f, "NA") != MR_OK) {
-        mr_fitter_free(f);
-        return NULL;
-    }
+    for (i = 0; i < MR__DEFAULT_MISSING_N; i++)
+        if (mr_fitter_add_missing(f, mr__default_missing[i]) != MR_OK) {
+            mr_fitter_free(f);
+            return NULL;
+        }
     return f;
 }
 

@@ -214,16 +214,10 @@ static mr_status record_set(const mr__run *r, mr_fit *fit, mr__error *err)
 
 static mr_status record_missing_tokens(const mr_fitter *f, mr_fit *fit, mr__error *err)
 {
-    size_t i;
-    fit->missing_known = 1;
-    if (f->nmissing == 0) return MR_OK;
-    fit->missing_token = mr__calloc(f->nmissing, sizeof *fit->missing_token);
+    fit->missing_token = mr__strings_copy((const char *const *)f->missing, f->nmissing);
     if (fit->missing_token == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    for (i = 0; i < f->nmissing; i++) {
-        if ((fit->missing_token[i] = mr__strdup(f->missing[i])) == NULL)
-            return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-        fit->nmissing_tokens++;
-    }
+    fit->nmissing_tokens = f->nmissing;
+    fit->missing_known = 1;
     return MR_OK;
 }
 

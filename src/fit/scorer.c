@@ -17,6 +17,7 @@
 #include "fit/fit.h"
 #include "fit/run.h"
 #include "fit/scorer.h"
+#include "input/fields.h"
 
 
 mr_scorer *mr_scorer_new(const mr_fit *fit)
@@ -195,8 +196,6 @@ static mr_status make_coefficients(scoring *g, mr__error *err)
     return MR_OK;
 }
 
-static const char *const default_missing[] = {"", "NA"};
-
 static mr_status make_model(scoring *g, mr__error *err)
 {
     const mr_fit *fit = g->s->fit;
@@ -226,8 +225,8 @@ static mr_status make_model(scoring *g, mr__error *err)
     g->c.blank_unscorable = g->s->blank;
     g->c.display = g->display;
     /* a fit read from a JSON older than its tokens: the defaults it had */
-    g->c.missing_token = fit->missing_known ? (const char *const *)fit->missing_token : default_missing;
-    g->c.nmissing_tokens = fit->missing_known ? fit->nmissing_tokens : 2;
+    g->c.missing_token = fit->missing_known ? (const char *const *)fit->missing_token : mr__default_missing;
+    g->c.nmissing_tokens = fit->missing_known ? fit->nmissing_tokens : MR__DEFAULT_MISSING_N;
     return MR_OK;
 }
 

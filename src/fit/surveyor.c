@@ -48,13 +48,15 @@ static mr_status add_token(mr_survey *s, const char *token)
 mr_survey *mr_survey_new(void)
 {
     mr_survey *s = mr__calloc(1, sizeof *s);
+    size_t i;
     if (s == NULL) return NULL;
     s->cap = DEFAULT_CAP;
     s->buffer_size = 1 << 20;
-    if (add_token(s, "") != MR_OK || add_token(s, "NA") != MR_OK) {
-        mr_survey_free(s);
-        return NULL;
-    }
+    for (i = 0; i < MR__DEFAULT_MISSING_N; i++)
+        if (add_token(s, mr__default_missing[i]) != MR_OK) {
+            mr_survey_free(s);
+            return NULL;
+        }
     return s;
 }
 

@@ -186,6 +186,8 @@ void mr__row_cells_release(mr__row_cells *r)
     memset(r, 0, sizeof *r);
 }
 
+const char *const mr__default_missing[MR__DEFAULT_MISSING_N] = {"", "NA"};
+
 int mr__cell_is_token(const char *const *tokens, size_t ntokens, const char *p, size_t len)
 {
     size_t i;

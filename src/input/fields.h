@@ -105,6 +105,11 @@ void mr__row_cells_put(mr__row_cells *r, size_t k, const char *p, size_t len);
  * once, use this. */
 int mr__cell_is_token(const char *const *tokens, size_t ntokens, const char *p, size_t len);
 
+/* The missing-value tokens a fitter or survey starts with, and those of a
+ * fit saved before its own were kept: the empty cell and "NA". */
+#define MR__DEFAULT_MISSING_N 2
+extern const char *const mr__default_missing[MR__DEFAULT_MISSING_N];
+
 /* The delimiter a header line uses: whichever of ',', '\t', ';' occurs most
  * outside quotes (',' on a tie or when none occurs). */
 char mr__detect_delimiter(const char *line, size_t len);
