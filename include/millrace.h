@@ -1199,9 +1199,13 @@ MR_API int mr_fit_coef_not_estimable(const mr_fit *fit, size_t j);
  * a fit whose rows collapse into covariate patterns (one read, IRLS in
  * memory) runs its passes on every rank alone, with no messages.
  *
+ * Robust standard errors by rows (mr_fitter_set_robust) split their final
+ * pass the same way, each group sending its score sums and X'WX.
+ *
  * Refused under a share of more than one rank (MR_ERR_USAGE): standard
  * input or a pipe (each rank must read the file itself), a checkpoint,
- * robust or cluster standard errors, a factor declared `many`, a family
+ * cluster-robust standard errors (mr_fitter_set_cluster: a cluster's rows
+ * may lie in several ranks' blocks), a factor declared `many`, a family
  * parameter by profile likelihood.  mr_fitter_run and mr_fitter_run_set
  * take the share; other runs (comparisons, scoring) ignore it.
  *
