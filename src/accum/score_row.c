@@ -8,6 +8,7 @@
 
 #include "accum/score_row.h"
 #include "common/alloc.h"
+#include "common/dtoa.h"
 #include "family/family.h"
 #include "input/fields.h"
 
@@ -180,12 +181,15 @@ static void linear_predictor(const score_worker *sw, size_t m, double off, doubl
     *se = sqrt(v > 0 ? v : 0);
 }
 
-/* A number after a comma (none before a line's first field); an empty
- * field for none. */
+/* A number after a comma (none before a line's first field), as the
+ * shortest text that reads back to it; an empty field for none. */
 static void put_number(mr__strbuf *o, double v, int comma)
 {
-    if (comma) mr__strbuf_append(o, ",", 1);
-    if (isfinite(v)) mr__strbuf_printf(o, "%.17g", v);
+    char t[MR__DTOA_SIZE + 1];
+    size_t n = 0;
+    if (comma) t[n++] = ',';
+    if (isfinite(v)) n += mr__dtoa(v, t + n);
+    mr__strbuf_append(o, t, n);
 }
 
 /* The outcome as the fit took it: a proportion of the trials for
