@@ -73,6 +73,7 @@ typedef struct mr__run {
     int param_known;
     double loglik_dispersion;
     size_t start_carried;  /* how many of them came from it */
+    size_t start_guessed;  /* values it could not give (start.h) */
     int warm_blocks, warm_polish_blocks; /* sample blocks of the two stages (0: none) */
     double null_b0, rel_change;
     int iterations, halvings, converged, by_step;
