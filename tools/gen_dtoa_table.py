@@ -10,7 +10,8 @@ into its high 63 bits and its low 63 bits.  Exact integer arithmetic only
 dtoa.c uses them for, the multiply-and-shift forms of floor(q log10 2),
 floor(log10(3/4 2^q)) and floor(e log2 10) against exact values.
 
-Usage: tools/gen_dtoa_table.py > src/common/dtoa_table.h
+Usage: tools/gen_dtoa_table.py > src/common/dtoa_table.h   (`make lint` checks the
+committed file against it)
 """
 from fractions import Fraction
 
