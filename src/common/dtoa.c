@@ -59,7 +59,9 @@ static uint64_t round_to_odd(uint64_t g1, uint64_t g0, uint64_t cp)
     return vbp | (((z & MASK63) + MASK63) >> 63);
 }
 
-/* c 2^q (c > 0) as f 10^e with f the fewest digits. */
+/* c 2^q (c > 0) as f 10^e with f the fewest digits.  The multiple of ten
+ * is tried whatever s (one digit is a valid answer: 5e-324, 1e+23); a
+ * renderer that wants at least two digits would skip it for s < 100. */
 static void shortest(int q, uint64_t c, uint64_t *f, int *e)
 {
     int out = (int)(c & 1); /* an odd c's interval leaves out its ends */
