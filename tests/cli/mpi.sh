@@ -101,6 +101,15 @@ else
 fi
 [ "$(/usr/bin/python3 -c 'import json,sys; print(json.load(open(sys.argv[1]))["convergence"]["passes"])' plain.json)" -ge 3 ] &&
     ok "plain: several IRLS passes" || fail plain "fewer than 3 passes"
+# --progress under mpirun: rank 0's lines alone (one a pass), the IRLS
+# passes' rows said to be its share
+timeout 600 mpirun --oversubscribe -np 2 "$mpibin" fit --progress --threads 1 "${many[@]}" all.csv > /dev/null 2> progress.err
+if [ "$(grep -c '^pass 1 done: [0-9]* rows in' progress.err)" = 1 ] &&
+    [ "$(grep -c '^pass 2 done: [0-9]* rows (this process.s share) in' progress.err)" = 1 ]; then
+    ok "np 2 --progress: a line a pass, from rank 0"
+else
+    fail progress "$(head -c 300 progress.err)"
+fi
 
 # expect NAME NP CODE PATTERN [env...] -- [fit arguments...]
 expect() {
