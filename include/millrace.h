@@ -824,7 +824,7 @@ MR_API mr_status mr_drift_write_csv(const mr_drift *d, const char *path, const c
  * names), resid_response (y - mean), resid_pearson
  * ((y - mean) sqrt(w / V(mean))) and resid_deviance (sign(y - mean)
  * sqrt(w d(y, mean))), empty on a row whose outcome is missing.  Numbers
- * have 17 significant digits (strtod gives the same double back); an
+ * are the shortest text that strtod reads back to the same double; an
  * empty field stands for none.  The bytes do not depend on the threads.
  *
  * A row the fit cannot score - a factor level the fit never saw, or a
@@ -897,7 +897,7 @@ MR_API mr_status mr_scorer_group_by(mr_scorer *s, const char *column);
 
 typedef enum mr_groups_format {
     MR_GROUPS_TEXT = 0, /* an aligned table */
-    MR_GROUPS_CSV = 1,  /* RFC 4180, numbers with 17 significant digits */
+    MR_GROUPS_CSV = 1,  /* RFC 4180, numbers as the shortest text giving the double back */
     MR_GROUPS_JSON = 2  /* {"level", "interval": "poisson-exact" | "binomial-exact", "by": [..],
                            "groups": [{"key": {col: cell}, ...}]} */
 } mr_groups_format;

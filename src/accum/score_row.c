@@ -8,6 +8,7 @@
 
 #include "accum/score_row.h"
 #include "common/alloc.h"
+#include "common/dtoa.h"
 #include "family/family.h"
 #include "input/fields.h"
 
@@ -180,12 +181,19 @@ static void linear_predictor(const score_worker *sw, size_t m, double off, doubl
     *se = sqrt(v > 0 ? v : 0);
 }
 
-/* A number after a comma (none before a line's first field); an empty
- * field for none. */
-static void put_number(mr__strbuf *o, double v, int comma)
+/* A row's predictions as text, built on the stack and added to the
+ * output in one append: its up to 8 numbers, each after a comma. */
+typedef struct row_text {
+    char t[8 * (MR__DTOA_SIZE + 1)];
+    size_t n;
+} row_text;
+
+/* A number after a comma (none before a line's first field), as the
+ * shortest text that reads back to it; an empty field for none. */
+static void put_number(row_text *o, double v, int comma)
 {
-    if (comma) mr__strbuf_append(o, ",", 1);
-    if (isfinite(v)) mr__strbuf_printf(o, "%.17g", v);
+    if (comma) o->t[o->n++] = ',';
+    if (isfinite(v)) o->n += mr__dtoa(v, o->t + o->n);
 }
 
 /* The outcome as the fit took it: a proportion of the trials for
@@ -218,31 +226,43 @@ static double inverse_link(const mr__score_cfg *c, double eta)
     return mr__link_inv1(c->link, eta, &mu_eta);
 }
 
-/* Writes the row's predictions; returns its mean. */
-static double put_predictions(const score_worker *sw, mr__strbuf *o, size_t m, const score_row *row)
+/* The residuals of a row with its outcome. */
+static void put_residuals(const score_worker *sw, row_text *o, const score_row *row, double mu)
 {
     const mr__score_cfg *c = sw->c;
-    double eta, se, mu, lo, hi, d, var;
-    linear_predictor(sw, m, row->off, &eta, &se);
-    mu = inverse_link(c, eta);
-    lo = inverse_link(c, eta - c->z * se);
-    hi = inverse_link(c, eta + c->z * se);
-    put_number(o, eta, c->nkeep > 0);
-    put_number(o, se, 1);
-    put_number(o, mu, 1);
-    put_number(o, lo < hi ? lo : hi, 1);
-    put_number(o, lo < hi ? hi : lo, 1);
-    if (c->role_field[MR__SCORE_OUTCOME] < 0) return mu;
-    if (!row->has_y) {
-        mr__strbuf_append(o, ",,,", 3);
-        return mu;
-    }
+    double d, var;
     c->family.ops->unit_deviance_n(&c->family, &row->y, &mu, 1, &d);
     c->family.ops->variance_n(&c->family, &mu, 1, &var);
     d *= row->prior;
     put_number(o, row->y - mu, 1);
     put_number(o, (row->y - mu) * sqrt(row->prior / var), 1);
     put_number(o, (row->y > mu ? 1 : row->y < mu ? -1 : 0) * sqrt(d > 0 ? d : 0), 1);
+}
+
+/* Writes the row's predictions (and residuals, empty where the outcome
+ * is missing); returns its mean. */
+static double put_predictions(const score_worker *sw, mr__strbuf *out, size_t m, const score_row *row)
+{
+    const mr__score_cfg *c = sw->c;
+    row_text o;
+    double eta, se, mu, lo, hi;
+    o.n = 0;
+    linear_predictor(sw, m, row->off, &eta, &se);
+    mu = inverse_link(c, eta);
+    lo = inverse_link(c, eta - c->z * se);
+    hi = inverse_link(c, eta + c->z * se);
+    put_number(&o, eta, c->nkeep > 0);
+    put_number(&o, se, 1);
+    put_number(&o, mu, 1);
+    put_number(&o, lo < hi ? lo : hi, 1);
+    put_number(&o, lo < hi ? hi : lo, 1);
+    if (c->role_field[MR__SCORE_OUTCOME] >= 0 && !row->has_y) {
+        memcpy(o.t + o.n, ",,,", 3);
+        o.n += 3;
+    } else if (c->role_field[MR__SCORE_OUTCOME] >= 0) {
+        put_residuals(sw, &o, row, mu);
+    }
+    mr__strbuf_append(out, o.t, o.n);
     return mu;
 }
 
