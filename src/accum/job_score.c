@@ -61,6 +61,30 @@ static mr_status score_start(void *job, mr__error *err)
     return st;
 }
 
+/* Which by columns are model factors (score_row.h: their level numbers
+ * key the block's groups). */
+static mr_status by_factors(const mr__score_cfg *c, score_worker *sw, mr__error *err)
+{
+    size_t i, j;
+    mr__levelset_init(&sw->local);
+    mr__strbuf_init(&sw->lkey);
+    sw->by_fac = mr__calloc(c->nby + 1, sizeof *sw->by_fac);
+    if (sw->by_fac == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    sw->all_fac = 1;
+    for (i = 0; i < c->nby; i++) {
+        sw->by_fac[i] = -1;
+        for (j = 0; j < c->nfac; j++)
+            if (c->fac[j].field == c->by_field[i]) sw->by_fac[i] = (int32_t)j;
+        if (sw->by_fac[i] < 0) sw->all_fac = 0;
+    }
+    if (sw->all_fac) { /* room for the key, once */
+        char zero[4] = {0};
+        for (i = 0; i < c->nby; i++) mr__strbuf_append(&sw->lkey, zero, 4);
+        if (sw->lkey.failed) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    }
+    return MR_OK;
+}
+
 static mr_status score_worker_init(void *job, mr__pass_worker *w, mr__error *err)
 {
     const mr__score_cfg *c = job;
@@ -80,6 +104,7 @@ static mr_status score_worker_init(void *job, mr__pass_worker *w, mr__error *err
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     for (i = 0; i < c->nkeep; i++) sw->wanted[c->keep_field[i]] = MR__FIELD_WANTED;
     for (i = 0; i < c->nby; i++) sw->wanted[c->by_field[i]] = MR__FIELD_WANTED;
+    MR__TRY(by_factors(c, sw, err));
     for (i = 0; i < c->nfac; i++) sw->wanted[c->fac[i].field] = MR__FIELD_WANTED;
     for (i = 0; i < c->nnum; i++) sw->wanted[c->num[i].field] = MR__FIELD_WANTED;
     for (i = 0; i < MR__SCORE_ROLES; i++)
@@ -103,7 +128,13 @@ static void score_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
                            .nwanted = c->nfields, .quick = NULL};
     out->out.len = out->keys.len = 0;
     out->rows = out->scored = out->unseen = out->missing = 0;
-    out->ngrow = 0;
+    out->ngrow = out->nkey = 0;
+    out->toomany = 0;
+    if (c->nby) { /* each block numbers its groups afresh */
+        mr__levelset_release(&sw->local);
+        mr__levelset_init(&sw->local);
+        sw->local.limit = c->groups.limit;
+    }
     sw->s = s;
     sw->chunk = s->chunk;
     sw->cells.used = 0;
@@ -129,26 +160,40 @@ static mr_status grow_groups(mr__score_cfg *c, mr__error *err)
     return MR_OK;
 }
 
-/* The block's group rows into the totals, in input order. */
-static mr_status add_groups(mr__score_cfg *c, const score_slot *out, mr__error *err)
+static mr_status too_many_groups(const mr__score_cfg *c, mr__error *err)
+{
+    return mr__fail(err, MR_ERR_USAGE, "%s: more than %zu groups, the most held in memory", c->display,
+                    c->groups.limit);
+}
+
+/* A group's number in the totals, a new one's totals zero. */
+static mr_status group_id(mr__score_cfg *c, const char *key, size_t len, int32_t *id, mr__error *err)
+{
+    size_t before = c->groups.n;
+    mr_status st = mr__levelset_add(&c->groups, key, len, id);
+    if (st == MR_ERR_DOMAIN) return too_many_groups(c, err);
+    if (st != MR_OK) return mr__fail(err, st, "out of memory");
+    if (c->groups.n > before) { /* a new group: ids come in order */
+        if ((size_t)*id == c->g_cap) MR__TRY(grow_groups(c, err));
+        c->g_obs[*id] = c->g_exp[*id] = c->g_expo[*id] = c->g_prior[*id] = 0;
+        c->g_rows[*id] = 0;
+    }
+    return MR_OK;
+}
+
+/* The block's group rows into the totals, in input order: its groups
+ * first, in the order of their first row (so that new ones are numbered
+ * in order of first appearance), then each row's counts. */
+static mr_status add_groups(mr__score_cfg *c, score_slot *out, mr__error *err)
 {
     size_t i;
-    int32_t id;
-    mr_status st;
     if (out->nomem || out->keys.failed) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    if (out->toomany) return too_many_groups(c, err);
+    for (i = 0; i < out->nkey; i++)
+        MR__TRY(group_id(c, out->keys.data + out->gkey[i].at, out->gkey[i].len, &out->gkey[i].id, err));
     for (i = 0; i < out->ngrow; i++) {
         const group_row *g = &out->grow[i];
-        size_t before = c->groups.n;
-        st = mr__levelset_add(&c->groups, out->keys.data + g->key_at, g->key_len, &id);
-        if (st == MR_ERR_DOMAIN)
-            return mr__fail(err, MR_ERR_USAGE, "%s: more than %zu groups, the most held in memory", c->display,
-                            c->groups.limit);
-        if (st != MR_OK) return mr__fail(err, st, "out of memory");
-        if (c->groups.n > before) { /* a new group: ids come in order */
-            if ((size_t)id == c->g_cap) MR__TRY(grow_groups(c, err));
-            c->g_obs[id] = c->g_exp[id] = c->g_expo[id] = c->g_prior[id] = 0;
-            c->g_rows[id] = 0;
-        }
+        int32_t id = out->gkey[g->local].id;
         c->g_obs[id] += g->obs;
         c->g_exp[id] += g->exp;
         c->g_expo[id] += g->expo;
@@ -190,6 +235,9 @@ static void score_worker_release(void *job, mr__pass_worker *w)
     mr__free(sw->num);
     mr__free(sw->xcol);
     mr__free(sw->xval);
+    mr__free(sw->by_fac);
+    mr__levelset_release(&sw->local);
+    mr__strbuf_release(&sw->lkey);
     mr__free(sw);
     w->part = NULL;
 }
@@ -202,6 +250,7 @@ static void score_slot_release(void *job, mr__pass_slot *s)
     mr__strbuf_release(&out->out);
     mr__strbuf_release(&out->keys);
     mr__free(out->grow);
+    mr__free(out->gkey);
     mr__free(out);
     s->part = NULL;
 }

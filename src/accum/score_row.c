@@ -266,32 +266,93 @@ static double put_predictions(const score_worker *sw, mr__strbuf *out, size_t m,
     return mu;
 }
 
-/* The row's group key (each cell as its length and bytes) and counts. */
+static void put_key_len(mr__strbuf *b, size_t n)
+{
+    unsigned char len[4] = {(unsigned char)n, (unsigned char)(n >> 8), (unsigned char)(n >> 16),
+                            (unsigned char)(n >> 24)};
+    mr__strbuf_append(b, (const char *)len, 4);
+}
+
+/* The row's key in its block's table (score_row.h): a factor's level
+ * number stands for its cell's bytes, one to one. */
+static void local_key(score_worker *sw)
+{
+    const mr__score_cfg *c = sw->c;
+    size_t i, n;
+    sw->lkey.len = 0;
+    if (sw->all_fac) { /* the common case: no call, no copy of a cell */
+        for (i = 0; i < c->nby; i++) memcpy(sw->lkey.data + 4 * i, &sw->lev[sw->by_fac[i]], 4);
+        sw->lkey.len = 4 * c->nby;
+        return;
+    }
+    for (i = 0; i < c->nby; i++) {
+        if (sw->by_fac[i] >= 0) {
+            mr__strbuf_append(&sw->lkey, (const char *)&sw->lev[sw->by_fac[i]], 4);
+            continue;
+        }
+        const char *p = cell(sw, c->by_field[i], &n);
+        put_key_len(&sw->lkey, n);
+        mr__strbuf_append(&sw->lkey, p, n);
+    }
+}
+
+/* A group new to the block: its key as the groups' table keeps it (each
+ * cell as its length and bytes), from the row's cells. */
+static int new_group_key(score_worker *sw, score_slot *out)
+{
+    const mr__score_cfg *c = sw->c;
+    size_t i, n;
+    if (out->nkey == out->gkey_cap) {
+        size_t cap = out->gkey_cap ? 2 * out->gkey_cap : 64;
+        group_key *more = mr__realloc(out->gkey, cap * sizeof *more);
+        if (more == NULL) return -1;
+        out->gkey = more;
+        out->gkey_cap = cap;
+    }
+    out->gkey[out->nkey].at = out->keys.len;
+    for (i = 0; i < c->nby; i++) {
+        const char *p = cell(sw, c->by_field[i], &n);
+        put_key_len(&out->keys, n);
+        mr__strbuf_append(&out->keys, p, n);
+    }
+    out->gkey[out->nkey].len = out->keys.len - out->gkey[out->nkey].at;
+    out->nkey++;
+    return 0;
+}
+
+static int more_group_rows(score_slot *out)
+{
+    size_t cap = out->grow_cap ? 2 * out->grow_cap : 1024;
+    group_row *more = mr__realloc(out->grow, cap * sizeof *more);
+    if (more == NULL) return -1;
+    out->grow = more;
+    out->grow_cap = cap;
+    return 0;
+}
+
+/* The row's group (numbered in its block) and counts; the block's table
+ * is merged into the totals in block order (job_score.c). */
 static void note_group_row(score_worker *sw, score_slot *out, const score_row *row, double mu)
 {
     const mr__score_cfg *c = sw->c;
+    size_t before = sw->local.n;
     group_row *g;
-    size_t i, n;
-    if (out->ngrow == out->grow_cap) {
-        size_t cap = out->grow_cap ? 2 * out->grow_cap : 1024;
-        group_row *more = mr__realloc(out->grow, cap * sizeof *more);
-        if (more == NULL) {
-            out->nomem = 1;
-            return;
-        }
-        out->grow = more;
-        out->grow_cap = cap;
+    int32_t id;
+    mr_status st;
+    if (out->ngrow == out->grow_cap && more_group_rows(out) != 0) {
+        out->nomem = 1;
+        return;
+    }
+    local_key(sw);
+    st = sw->lkey.failed ? MR_ERR_NO_MEMORY : mr__levelset_add(&sw->local, sw->lkey.data, sw->lkey.len, &id);
+    if (st == MR_OK && sw->local.n > before && new_group_key(sw, out) != 0) st = MR_ERR_NO_MEMORY;
+    if (st != MR_OK) {
+        if (st == MR_ERR_DOMAIN) out->toomany = 1;
+        else out->nomem = 1;
+        return;
     }
     g = &out->grow[out->ngrow++];
-    g->key_at = out->keys.len;
-    for (i = 0; i < c->nby; i++) {
-        const char *p = cell(sw, c->by_field[i], &n);
-        unsigned char len[4] = {(unsigned char)n, (unsigned char)(n >> 8), (unsigned char)(n >> 16),
-                                (unsigned char)(n >> 24)};
-        mr__strbuf_append(&out->keys, (const char *)len, 4);
-        mr__strbuf_append(&out->keys, p, n);
-    }
-    g->key_len = out->keys.len - g->key_at;
+    g->local = id;
     g->obs = row->prior * row->y;
     g->exp = row->prior * mu;
     g->expo = c->role_field[MR__SCORE_EXPOSURE] >= 0 ? sw->expo : NAN;

@@ -7,20 +7,30 @@
 #include "accum/score.h"
 #include "common/strbuf.h"
 
-/* A scored row with its outcome, for the groups: its key's bytes in
- * keys from key_at, and its observed and expected counts and exposure. */
+/* A scored row with its outcome, for the groups: its group as numbered
+ * in its block (in order of first appearance there) and its observed and
+ * expected counts and exposure. */
 typedef struct group_row {
-    size_t key_at, key_len;
+    int32_t local;
     double obs, exp, expo, prior;
 } group_row;
+
+/* A block's groups, in the order of their first row in it: each key
+ * (each cell as its 4-byte little-endian length and bytes) in keys. */
+typedef struct group_key {
+    size_t at, len;
+    int32_t id; /* in the totals: set by the job's add */
+} group_key;
 
 typedef struct score_slot {
     mr__strbuf out;
     uint64_t rows, scored, unseen, missing;
     mr__strbuf keys;
+    group_key *gkey;
+    size_t nkey, gkey_cap;
     group_row *grow;
     size_t ngrow, grow_cap;
-    int nomem;
+    int nomem, toomany;
 } score_slot;
 
 typedef struct score_worker {
@@ -36,6 +46,13 @@ typedef struct score_worker {
     mr__pass_slot *s;
     const mr__chunk *chunk;
     double expo; /* the row's exposure */
+    /* The groups of the block at hand, by a key that is cheap to build:
+     * a by column that is a model factor as its level number (the row's
+     * cell is that level's bytes), another as its length and bytes. */
+    int32_t *by_fac; /* per by column: its index in fac, or -1 */
+    int all_fac;     /* every by column a factor: lkey holds 4 nby bytes */
+    mr__levelset local;
+    mr__strbuf lkey;
 } score_worker;
 
 /* RFC 4180 text of n bytes at p onto o. */

@@ -9,6 +9,7 @@
 #define _DEFAULT_SOURCE /* lgamma_r: plain lgamma writes the global signgam */
 #endif
 
+#include "common/exp_sinh.h"
 #include "common/mathx.h"
 #include "common/probability.h"
 
@@ -164,47 +165,7 @@ static double a_log_ratio_minus(double a, double x)
 }
 
 /* ------------------------------------------------------------------ */
-/* Quadrature for large shapes                                          */
-
-typedef double (*exponent_fn)(double h, const void *ctx);
-
-/* Integrand of the exp-sinh rule at node tau: h = scale e^(pi/2 sinh tau)
- * maps the real line onto (0, inf) with doubly exponential decay at both
- * ends, so the trapezoid rule converges about as fast as the step shrinks. */
-static double exp_sinh_node(exponent_fn phi, const void *ctx, double scale, double tau)
-{
-    double h = scale * exp(0.5 * PI * sinh(tau));
-    if (!(h < INFINITY))
-        return 0.0;
-    return h * 0.5 * PI * cosh(tau) * exp(-phi(h, ctx));
-}
-
-/* Integral over (0, inf) of exp(-phi(h)) for increasing phi with
- * phi(0) = 0 and exp(-phi) decaying at least like a high power of h (as in
- * both uses, shapes > LARGE_SHAPE); `scale` is the width of the integrand
- * near h = 0.
- * Steps are halved until two estimates agree to 1e-10, after which the next
- * one is accurate to rounding (the error squares with each halving). */
-static double exp_sinh_integral(exponent_fn phi, const void *ctx, double scale)
-{
-    const double tau_max = 5.0; /* nodes beyond carry < 1e-40 of the mass */
-    double step = 0.5;
-    double sum = 0.0;
-    for (double tau = -tau_max; tau <= tau_max; tau += step)
-        sum += exp_sinh_node(phi, ctx, scale, tau);
-    double estimate = sum * step;
-    for (int level = 0; level < 10; level++) {
-        step *= 0.5;
-        for (double tau = -tau_max + step; tau < tau_max; tau += 2.0 * step)
-            sum += exp_sinh_node(phi, ctx, scale, tau);
-        double refined = sum * step;
-        int agreed = fabs(refined - estimate) <= 1e-10 * refined;
-        estimate = refined;
-        if (agreed && level > 0)
-            break;
-    }
-    return estimate;
-}
+/* Quadrature for large shapes (the rule: exp_sinh.c)                  */
 
 /* Width of exp(-phi) at 0 from phi'(0) and phi''(0). */
 static double integrand_scale(double slope, double curvature)
@@ -370,7 +331,7 @@ static double t_tail_quadrature(double s, double df)
     t_tail_ctx c = {0.5 * (df + 1.0), s, df + s * s};
     double slope = (df + 1.0) * s / c.denom;
     double curvature = (df + 1.0) * (df - s * s) / (c.denom * c.denom);
-    double integral = exp_sinh_integral(t_tail_exponent, &c, integrand_scale(slope, curvature));
+    double integral = mr__exp_sinh_integral(t_tail_exponent, &c, integrand_scale(slope, curvature));
     return exp(t_log_density(s, df)) * integral;
 }
 
@@ -548,11 +509,11 @@ static double gamma_q_quadrature(double a, double x)
     double curvature = c.a1 / (x * x);
     if (x >= c.a1) {
         double slope = 1.0 - c.a1 / x;
-        return density * exp_sinh_integral(gamma_upper_exponent, &c,
+        return density * mr__exp_sinh_integral(gamma_upper_exponent, &c,
                                            integrand_scale(slope, curvature));
     }
     double slope = c.a1 / x - 1.0;
-    return 1.0 - density * exp_sinh_integral(gamma_lower_exponent, &c,
+    return 1.0 - density * mr__exp_sinh_integral(gamma_lower_exponent, &c,
                                              integrand_scale(slope, curvature));
 }
 

@@ -19,6 +19,7 @@
  * one-sided bound of level P. */
 #include <jansson.h>
 #include <math.h>
+#include <stdint.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -37,26 +38,25 @@ typedef struct oe_row {
     double ratio, low, high;
 } oe_row;
 
-static oe_row observed_expected(double o, double e, double level)
+/* O / E and its interval from the exact bounds for O (lo, hi). */
+static oe_row observed_expected(double o, double e, const double *lohi)
 {
     oe_row r;
     r.ratio = o / e;
-    mr__garwood_interval(o, level, &r.low, &r.high);
-    r.low /= e;
-    r.high /= e;
+    r.low = lohi[0] / e;
+    r.high = lohi[1] / e;
     return r;
 }
 
 /* O events out of n trials with E expected: Clopper-Pearson's bounds for
- * O / n, times n / E (see the top). */
-static oe_row observed_expected_binomial(double o, double e, double n, double level)
+ * O / n (lo, hi), times n / E (see the top). */
+static oe_row observed_expected_binomial(double o, double e, double n, const double *lohi)
 {
     oe_row r;
     if (o > n) o = n; /* rounding of sums of w y */
     r.ratio = o / e;
-    mr__clopper_pearson_interval(o, n, level, &r.low, &r.high);
-    r.low = r.low * n / e; /* as (bound n) / E, bit for bit */
-    r.high = r.high * n / e;
+    r.low = lohi[0] * n / e; /* as (bound n) / E, bit for bit */
+    r.high = lohi[1] * n / e;
     return r;
 }
 
@@ -64,6 +64,62 @@ static oe_row observed_expected_binomial(double o, double e, double n, double le
 static int binomial_groups(const mr_scorer *s)
 {
     return mr__family_ops_of((mr_family)s->fit->family)->mu_hi == 1.0;
+}
+
+/* Groups of the same counts (O, and n for events out of trials) share
+ * their exact bounds, each a bisection of dozens of incomplete gamma or
+ * beta evaluations: the bounds are found once per distinct counts. */
+typedef struct counts_key {
+    uint64_t o, n; /* the doubles' bits: equal bits, equal bounds */
+    size_t i;
+} counts_key;
+
+static int by_counts(const void *pa, const void *pb)
+{
+    const counts_key *a = pa, *b = pb;
+    if (a->o != b->o) return a->o < b->o ? -1 : 1;
+    if (a->n != b->n) return a->n < b->n ? -1 : 1;
+    return (a->i > b->i) - (a->i < b->i);
+}
+
+static void exact_bounds(const mr_scorer *s, int binomial, size_t i, double *lohi)
+{
+    double o = s->g.obs[i], n = s->g.prior[i];
+    if (!binomial) {
+        mr__garwood_interval(o, s->level, &lohi[0], &lohi[1]);
+        return;
+    }
+    if (o > n) o = n;
+    mr__clopper_pearson_interval(o, n, s->level, &lohi[0], &lohi[1]);
+}
+
+/* Each group's bounds for O (2 per group), or NULL when out of memory. */
+static double *group_bounds(const mr_scorer *s)
+{
+    size_t n = s->g.n, i, j;
+    int binomial = binomial_groups(s);
+    double *b = mr__malloc_array(2 * (n ? n : 1), sizeof *b);
+    counts_key *k = mr__malloc_array(n ? n : 1, sizeof *k);
+    if (b == NULL || k == NULL) {
+        mr__free(b);
+        mr__free(k);
+        return NULL;
+    }
+    for (i = 0; i < n; i++) {
+        memcpy(&k[i].o, &s->g.obs[i], sizeof k[i].o);
+        k[i].n = 0;
+        if (binomial) memcpy(&k[i].n, &s->g.prior[i], sizeof k[i].n);
+        k[i].i = i;
+    }
+    qsort(k, n, sizeof *k, by_counts);
+    for (i = 0; i < n; i = j) {
+        const double *lohi = b + 2 * k[i].i;
+        exact_bounds(s, binomial, k[i].i, b + 2 * k[i].i);
+        for (j = i + 1; j < n && k[j].o == k[i].o && k[j].n == k[i].n; j++)
+            memcpy(b + 2 * k[j].i, lohi, 2 * sizeof *b);
+    }
+    mr__free(k);
+    return b;
 }
 
 /* Cell k of a key (each cell as its 4-byte length and bytes). */
@@ -83,10 +139,11 @@ static const char *key_cell(const mr__level_name *key, size_t k, size_t *n)
 
 static const char *const number_names[] = {"rows", "exposure", "observed", "expected", "o_e", "o_e_low", "o_e_high"};
 
-static void group_numbers(const mr_scorer *s, size_t i, double *v)
+static void group_numbers(const mr_scorer *s, size_t i, const double *bounds, double *v)
 {
-    oe_row r = binomial_groups(s) ? observed_expected_binomial(s->g.obs[i], s->g.exp[i], s->g.prior[i], s->level)
-                                  : observed_expected(s->g.obs[i], s->g.exp[i], s->level);
+    const double *lohi = bounds + 2 * i;
+    oe_row r = binomial_groups(s) ? observed_expected_binomial(s->g.obs[i], s->g.exp[i], s->g.prior[i], lohi)
+                                  : observed_expected(s->g.obs[i], s->g.exp[i], lohi);
     v[0] = (double)s->g.rows[i];
     v[1] = s->g.expo[i];
     v[2] = s->g.obs[i];
@@ -121,7 +178,8 @@ static char *table(const mr_scorer *s, int csv)
 {
     mr__strbuf b;
     size_t i, k, n;
-    double v[7];
+    double v[7], *bounds = group_bounds(s);
+    if (bounds == NULL) return NULL;
     mr__strbuf_init(&b);
     if (!csv)
         mr__strbuf_printf(&b, "observed/expected by group, exact %s %g%% intervals\n",
@@ -130,7 +188,7 @@ static char *table(const mr_scorer *s, int csv)
     for (k = 0; k < 7; k++) mr__strbuf_printf(&b, csv ? "%s%s" : "%s%14s", k && csv ? "," : "", number_names[k]);
     mr__strbuf_append(&b, "\n", 1);
     for (i = 0; i < s->g.n; i++) {
-        group_numbers(s, i, v);
+        group_numbers(s, i, bounds, v);
         for (k = 0; k < s->nby; k++) {
             const char *p = key_cell(&s->g.groups.name[i], k, &n);
             if (csv) csv_cell(&b, p, n), mr__strbuf_append(&b, ",", 1);
@@ -145,15 +203,16 @@ static char *table(const mr_scorer *s, int csv)
         }
         mr__strbuf_append(&b, "\n", 1);
     }
+    mr__free(bounds);
     return mr__strbuf_take(&b);
 }
 
-static json_t *group_json(const mr_scorer *s, size_t i)
+static json_t *group_json(const mr_scorer *s, size_t i, const double *bounds)
 {
     json_t *o = json_object(), *key = json_object();
     double v[7];
     size_t k, n;
-    group_numbers(s, i, v);
+    group_numbers(s, i, bounds, v);
     for (k = 0; k < s->nby; k++) {
         const char *p = key_cell(&s->g.groups.name[i], k, &n);
         char *cell = mr__malloc(n + 1);
@@ -171,12 +230,18 @@ static char *json_table(const mr_scorer *s)
 {
     json_t *root = json_object(), *by = json_array(), *groups = json_array();
     char *text, *out = NULL;
+    double *bounds = group_bounds(s);
     size_t i;
+    if (bounds == NULL) {
+        json_decref(root), json_decref(by), json_decref(groups);
+        return NULL;
+    }
     json_object_set_new(root, "level", json_real(s->level));
     json_object_set_new(root, "interval", json_string(binomial_groups(s) ? "binomial-exact" : "poisson-exact"));
     for (i = 0; i < s->nby; i++) json_array_append_new(by, mr__json_text(s->by[i]));
     json_object_set_new(root, "by", by);
-    for (i = 0; i < s->g.n; i++) json_array_append_new(groups, group_json(s, i));
+    for (i = 0; i < s->g.n; i++) json_array_append_new(groups, group_json(s, i, bounds));
+    mr__free(bounds);
     json_object_set_new(root, "groups", groups);
     text = json_dumps(root, JSON_INDENT(1) | JSON_REAL_PRECISION(17) | JSON_PRESERVE_ORDER);
     json_decref(root);
