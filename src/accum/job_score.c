@@ -62,26 +62,30 @@ static mr_status score_start(void *job, mr__error *err)
 }
 
 /* Which by columns are model factors (score_row.h: their level numbers
- * key the block's groups). */
+ * key the block's groups), and when all are and their cells few, the
+ * table from a cell to its group. */
 static mr_status by_factors(const mr__score_cfg *c, score_worker *sw, mr__error *err)
 {
-    size_t i, j;
+    size_t i, j, ncell = 1;
     mr__levelset_init(&sw->local);
     mr__strbuf_init(&sw->lkey);
+    sw->local.limit = c->groups.limit;
     sw->by_fac = mr__calloc(c->nby + 1, sizeof *sw->by_fac);
-    if (sw->by_fac == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    sw->all_fac = 1;
+    sw->by_stride = mr__calloc(c->nby + 1, sizeof *sw->by_stride);
+    if (sw->by_fac == NULL || sw->by_stride == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     for (i = 0; i < c->nby; i++) {
         sw->by_fac[i] = -1;
         for (j = 0; j < c->nfac; j++)
             if (c->fac[j].field == c->by_field[i]) sw->by_fac[i] = (int32_t)j;
-        if (sw->by_fac[i] < 0) sw->all_fac = 0;
+        sw->by_stride[i] = ncell;
+        if (sw->by_fac[i] < 0 || ncell > MR__SCORE_DENSE_GROUPS) ncell = MR__SCORE_DENSE_GROUPS + 1;
+        else ncell *= c->fac[sw->by_fac[i]].levels.n ? c->fac[sw->by_fac[i]].levels.n : 1;
     }
-    if (sw->all_fac) { /* room for the key, once */
-        char zero[4] = {0};
-        for (i = 0; i < c->nby; i++) mr__strbuf_append(&sw->lkey, zero, 4);
-        if (sw->lkey.failed) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    }
+    if (c->nby == 0 || ncell > MR__SCORE_DENSE_GROUPS) return MR_OK;
+    sw->dense = mr__malloc_array(ncell, sizeof *sw->dense);
+    sw->dense_cell = mr__malloc_array(ncell, sizeof *sw->dense_cell);
+    if (sw->dense == NULL || sw->dense_cell == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (i = 0; i < ncell; i++) sw->dense[i] = -1;
     return MR_OK;
 }
 
@@ -130,11 +134,7 @@ static void score_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
     out->rows = out->scored = out->unseen = out->missing = 0;
     out->ngrow = out->nkey = 0;
     out->toomany = 0;
-    if (c->nby) { /* each block numbers its groups afresh */
-        mr__levelset_release(&sw->local);
-        mr__levelset_init(&sw->local);
-        sw->local.limit = c->groups.limit;
-    }
+    if (c->nby) mr__score_groups_reset(sw);
     sw->s = s;
     sw->chunk = s->chunk;
     sw->cells.used = 0;
@@ -236,6 +236,9 @@ static void score_worker_release(void *job, mr__pass_worker *w)
     mr__free(sw->xcol);
     mr__free(sw->xval);
     mr__free(sw->by_fac);
+    mr__free(sw->by_stride);
+    mr__free(sw->dense);
+    mr__free(sw->dense_cell);
     mr__levelset_release(&sw->local);
     mr__strbuf_release(&sw->lkey);
     mr__free(sw);

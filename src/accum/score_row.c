@@ -280,11 +280,6 @@ static void local_key(score_worker *sw)
     const mr__score_cfg *c = sw->c;
     size_t i, n;
     sw->lkey.len = 0;
-    if (sw->all_fac) { /* the common case: no call, no copy of a cell */
-        for (i = 0; i < c->nby; i++) memcpy(sw->lkey.data + 4 * i, &sw->lev[sw->by_fac[i]], 4);
-        sw->lkey.len = 4 * c->nby;
-        return;
-    }
     for (i = 0; i < c->nby; i++) {
         if (sw->by_fac[i] >= 0) {
             mr__strbuf_append(&sw->lkey, (const char *)&sw->lev[sw->by_fac[i]], 4);
@@ -330,12 +325,45 @@ static int more_group_rows(score_slot *out)
     return 0;
 }
 
+void mr__score_groups_reset(score_worker *sw)
+{
+    size_t k;
+    if (sw->dense) {
+        for (k = 0; k < sw->nlocal; k++) sw->dense[sw->dense_cell[k]] = -1;
+        sw->nlocal = 0;
+        return;
+    }
+    mr__levelset_release(&sw->local);
+    mr__levelset_init(&sw->local);
+    sw->local.limit = sw->c->groups.limit;
+}
+
+/* The row's group as numbered in its block: MR_OK, or MR_ERR_NO_MEMORY,
+ * or MR_ERR_DOMAIN (more groups than the totals take). */
+static mr_status local_group(score_worker *sw, score_slot *out, int32_t *id)
+{
+    const mr__score_cfg *c = sw->c;
+    size_t before = sw->local.n, i, at = 0;
+    mr_status st;
+    if (sw->dense) { /* the common case: no key, no hash */
+        for (i = 0; i < c->nby; i++) at += (size_t)sw->lev[sw->by_fac[i]] * sw->by_stride[i];
+        if ((*id = sw->dense[at]) >= 0) return MR_OK;
+        if (new_group_key(sw, out) != 0) return MR_ERR_NO_MEMORY;
+        sw->dense_cell[sw->nlocal] = (int32_t)at;
+        *id = sw->dense[at] = (int32_t)sw->nlocal++;
+        return MR_OK;
+    }
+    local_key(sw);
+    st = sw->lkey.failed ? MR_ERR_NO_MEMORY : mr__levelset_add(&sw->local, sw->lkey.data, sw->lkey.len, id);
+    if (st == MR_OK && sw->local.n > before && new_group_key(sw, out) != 0) st = MR_ERR_NO_MEMORY;
+    return st;
+}
+
 /* The row's group (numbered in its block) and counts; the block's table
  * is merged into the totals in block order (job_score.c). */
 static void note_group_row(score_worker *sw, score_slot *out, const score_row *row, double mu)
 {
     const mr__score_cfg *c = sw->c;
-    size_t before = sw->local.n;
     group_row *g;
     int32_t id;
     mr_status st;
@@ -343,10 +371,7 @@ static void note_group_row(score_worker *sw, score_slot *out, const score_row *r
         out->nomem = 1;
         return;
     }
-    local_key(sw);
-    st = sw->lkey.failed ? MR_ERR_NO_MEMORY : mr__levelset_add(&sw->local, sw->lkey.data, sw->lkey.len, &id);
-    if (st == MR_OK && sw->local.n > before && new_group_key(sw, out) != 0) st = MR_ERR_NO_MEMORY;
-    if (st != MR_OK) {
+    if ((st = local_group(sw, out, &id)) != MR_OK) {
         if (st == MR_ERR_DOMAIN) out->toomany = 1;
         else out->nomem = 1;
         return;

@@ -50,10 +50,20 @@ typedef struct score_worker {
      * a by column that is a model factor as its level number (the row's
      * cell is that level's bytes), another as its length and bytes. */
     int32_t *by_fac; /* per by column: its index in fac, or -1 */
-    int all_fac;     /* every by column a factor: lkey holds 4 nby bytes */
     mr__levelset local;
     mr__strbuf lkey;
+    /* Every by column a factor, and their cells few (MR__SCORE_DENSE_GROUPS
+     * at most): the group's number in the block straight from its cell's
+     * number (sum of level number times stride), -1 before its first row. */
+    int32_t *dense, *dense_cell; /* by cell; each block group's cell */
+    size_t *by_stride;
+    size_t nlocal;
 } score_worker;
+
+#define MR__SCORE_DENSE_GROUPS 65536
+
+/* Each block's groups numbered afresh (the job's compute). */
+void mr__score_groups_reset(score_worker *sw);
 
 /* RFC 4180 text of n bytes at p onto o. */
 void mr__score_put_text(mr__strbuf *o, const char *p, size_t n);
