@@ -79,13 +79,16 @@ static int number_at(score_worker *sw, uint32_t r, const char *name, size_t fiel
     return -1;
 }
 
-enum { ROW_OK, ROW_MISSING, ROW_UNSEEN, ROW_FAILED };
+/* ROW_NO_ESTIMATE: a `many` factor's level the fit saw but has no
+ * estimate for (none finite): counted with the unseen levels. */
+enum { ROW_OK, ROW_MISSING, ROW_UNSEEN, ROW_NO_ESTIMATE, ROW_FAILED };
 
 static int unscorable(score_worker *sw, uint32_t r, int why, const char *name, size_t field)
 {
+    static const char *const what[] = {"", "a missing value, which cannot be scored", "a level the fit never saw",
+                                       "a level the fit has no estimate for"};
     if (why == ROW_FAILED || sw->c->blank_unscorable) return why;
-    cell_error(sw, r, MR_ERR_DOMAIN, name, field,
-               why == ROW_UNSEEN ? "a level the fit never saw" : "a missing value, which cannot be scored");
+    cell_error(sw, r, MR_ERR_DOMAIN, name, field, what[why]);
     return ROW_FAILED;
 }
 
@@ -127,6 +130,8 @@ static int row_values(score_worker *sw, uint32_t r, int32_t *lev, double *num)
         if (is_missing(c, p, n)) return unscorable(sw, r, ROW_MISSING, c->fac[i].name, c->fac[i].field);
         lev[i] = mr__levelset_find(&c->fac[i].levels, p, n);
         if (lev[i] < 0) return unscorable(sw, r, ROW_UNSEEN, c->fac[i].name, c->fac[i].field);
+        if ((long)i == c->many_var && !isfinite(c->many_beta[lev[i]]))
+            return unscorable(sw, r, ROW_NO_ESTIMATE, c->fac[i].name, c->fac[i].field);
     }
     for (i = 0; i < c->nnum; i++)
         if ((k = number_at(sw, r, c->num[i].name, c->num[i].field, &num[i])) <= 0)
@@ -148,6 +153,7 @@ static size_t design_row(score_worker *sw, const int32_t *lev, const double *num
         const mr__score_term *tm = &c->term[t];
         size_t col = tm->first;
         double v = 1.0;
+        if (tm->many) continue; /* linear_predictor adds it */
         for (k = 0; k < tm->nparts; k++) {
             if (tm->is_factor[k]) {
                 int32_t l = lev[tm->var[k]], ref = c->fac[tm->var[k]].ref;
@@ -176,6 +182,11 @@ static void linear_predictor(const score_worker *sw, size_t m, double off, doubl
         e += c->beta[sw->xcol[a]] * sw->xval[a];
         for (b = 0; b < m; b++) row += c->cov[sw->xcol[a] * c->p + sw->xcol[b]] * sw->xval[b];
         v += sw->xval[a] * row;
+    }
+    if (c->many_var >= 0) {
+        *eta = e + c->many_beta[sw->lev[c->many_var]] + off;
+        *se = NAN; /* score.h: no covariance of a level's estimate with the rest */
+        return;
     }
     *eta = e + off;
     *se = sqrt(v > 0 ? v : 0);
@@ -405,7 +416,7 @@ static void score_one(score_worker *sw, uint32_t r, score_slot *out)
         if (c->nby && row.has_y) note_group_row(sw, out, &row, mu);
     } else {
         for (i = c->nkeep > 0 ? 0 : 1; i < ncols; i++) mr__strbuf_append(&out->out, ",", 1);
-        if (why == ROW_UNSEEN) out->unseen++;
+        if (why == ROW_UNSEEN || why == ROW_NO_ESTIMATE) out->unseen++;
         else out->missing++;
     }
     mr__strbuf_append(&out->out, "\n", 1);
