@@ -33,18 +33,25 @@ static double quantile_every_midpoint(double p, double df)
 }
 
 
-START_TEST(chisq_quantile_same_bits)
+static void same_bits_at(double df)
 {
     static const double ps[] = {0.025, 0.975, 0.05, 0.95, 0.005, 0.995, 0.5, 1e-6, 1 - 1e-6};
+    size_t k;
+    for (k = 0; k < sizeof ps / sizeof ps[0]; k++) {
+        double got = mr__chisq_quantile(ps[k], df), want = quantile_every_midpoint(ps[k], df);
+        ck_assert_msg(same_bits(got, want), "p %g df %.17g: %.17g, reading every midpoint %.17g", ps[k], df, got,
+                      want);
+    }
+}
+
+START_TEST(chisq_quantile_same_bits)
+{
+    static const double small[] = {0.013, 0.1, 0.37, 0.77};
     double o;
     size_t k;
-    /* whole counts (2 o and 2 o + 2 df), then weighted totals */
-    for (o = 0.5; o < 2600; o = o < 120 ? o + 0.5 : o * 1.09 + 0.37)
-        for (k = 0; k < sizeof ps / sizeof ps[0]; k++) {
-            double got = mr__chisq_quantile(ps[k], 2 * o), want = quantile_every_midpoint(ps[k], 2 * o);
-            ck_assert_msg(same_bits(got, want), "p %g df %.17g: %.17g, reading every midpoint %.17g", ps[k], 2 * o,
-                          got, want);
-        }
+    for (k = 0; k < sizeof small / sizeof small[0]; k++) same_bits_at(2 * small[k]); /* weighted totals */
+    /* whole counts (2 o and 2 o + 2 df) and halves, then larger totals */
+    for (o = 0.5; o < 2600; o = o < 120 ? o + 0.5 : o * 1.09 + 0.37) same_bits_at(2 * o);
 }
 END_TEST
 
