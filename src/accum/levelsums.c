@@ -43,9 +43,11 @@ void mr__level_group_release(mr__level_group *g)
     memset(g, 0, sizeof *g);
 }
 
-static mr_status grow(mr__level_part *p, mr__error *err)
+/* A group's part never holds more than its nlev levels: no room past them. */
+static mr_status grow(mr__level_part *p, size_t most, mr__error *err)
 {
     size_t cap = p->cap ? 2 * p->cap : 64;
+    if (cap > most) cap = most;
     int32_t *level = mr__realloc(p->level, (cap + 1) * sizeof *level);
     double *val;
     if (level == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
@@ -66,7 +68,7 @@ mr_status mr__level_group_add(mr__level_group *g, const mr__level_part *block, m
         const double *from = block->val + e * w;
         double *to;
         if (at < 0) {
-            if (p->n == p->cap) MR__TRY(grow(p, err));
+            if (p->n == p->cap) MR__TRY(grow(p, g->nlev, err));
             at = g->slot[lev] = (int32_t)p->n++;
             p->level[at] = lev;
             memset(p->val + (size_t)at * w, 0, w * sizeof *p->val);
