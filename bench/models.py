@@ -56,19 +56,13 @@ INSTRUCTIONS = "--instructions" in sys.argv[1:]
 bench.MILLRACE = os.environ.get("MILLRACE", bench.MILLRACE)
 DATA = os.path.join(bench.DATA, "models")
 pipeline.DATA = DATA
+goal, model = pipeline.goal, pipeline.model  # the same table rows and model files
 ROWS = int(float(os.environ.get("BENCH_ROWS", "1e6")))
 IROWS = int(float(os.environ.get("BENCH_INSTRUCTION_ROWS", "3e5")))
 LEVELS = int(float(os.environ.get("BENCH_LEVELS", "1e5")))
 REPEATS = 1 if INSTRUCTIONS else 3
 MIB = 1024 * 1024
 SEED = 17
-
-
-def model(name, lines):
-    path = os.path.join(DATA, name + ".model")
-    with open(path, "w") as f:
-        f.write("\n".join(lines) + "\n")
-    return path
 
 
 def plain_file(rows):
@@ -161,10 +155,6 @@ def fmt(x):
     return "-" if x is None else "{:,}".format(x) if isinstance(x, int) else "%.3f s" % x
 
 
-def goal(what, value, ok):
-    return "| %s | %.3f | %s |" % (what, value, "met" if ok else "NOT met")
-
-
 def negbin_rows(cases):
     out = ["| case | rows | fit | passes | cost | peak RSS MiB |", "|---|---|---|---|---|---|"]
     for r in cases:
@@ -218,6 +208,11 @@ def markdown(rep):
     lines += ["", "## Negative binomial, theta estimated", ""] + negbin_rows(nb.values())
     if INSTRUCTIONS:
         lines += ["", "Instructions:", ""] + negbin_rows(r["instructions"] for r in nb.values())
+        lines += ["", "Negative binomial / poisson --no-collapse, instructions: " +
+                  ", ".join("case %s %.3f" % (name, r["cost_over_no_collapse"]) for name, r in nb.items()) + "."]
+    elif nb and list(nb.values())[0]["cost_over_no_collapse"] is not None:
+        lines += ["", "Negative binomial / poisson --no-collapse, wall time: " +
+                  ", ".join("case %s %.3f" % (name, r["cost_over_no_collapse"]) for name, r in nb.items()) + "."]
     lines += ["", "## A factor of %s levels declared `many`" % "{:,}".format(mem["levels"]), ""] + many_rows(mem)
     lines += ["", "Not a test: nothing fails on these figures. Passes count reads of the data (the first "
               "included); peak RSS is GNU time's maximum resident set of a plain run."]
@@ -225,11 +220,7 @@ def markdown(rep):
 
 
 def main():
-    tools = [bench.MILLRACE, bench.SYNTH, "/usr/bin/time"] + (["/usr/bin/valgrind"] if INSTRUCTIONS else [])
-    for tool in tools:
-        if not os.path.exists(tool):
-            sys.exit("bench: %s is missing (run make; apt-get install time valgrind)" % tool)
-    os.makedirs(DATA, exist_ok=True)
+    pipeline.require_tools()
     rep = {"date": time.strftime("%Y-%m-%d"), "machine": bench.machine(), "commit": pipeline.commit(),
            "rows": ROWS, "mode": "instructions" if INSTRUCTIONS else "wall seconds"}
     print("negative binomial...", flush=True)

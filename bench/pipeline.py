@@ -319,12 +319,17 @@ def markdown(rep):
     return "\n".join(lines) + "\n"
 
 
-def main():
+def require_tools():
+    """The binaries measured and measuring, and DATA made."""
     tools = [bench.MILLRACE, bench.SYNTH, "/usr/bin/time"] + (["/usr/bin/valgrind"] if INSTRUCTIONS else [])
     for tool in tools:
         if not os.path.exists(tool):
             sys.exit("bench: %s is missing (run make; apt-get install time valgrind)" % tool)
     os.makedirs(DATA, exist_ok=True)
+
+
+def main():
+    require_tools()
     rep = {"date": time.strftime("%Y-%m-%d"), "machine": bench.machine(), "commit": commit(), "rows": ROWS,
            "mode": "instructions" if INSTRUCTIONS else "wall seconds"}
     print("refresh case...", flush=True)
