@@ -236,13 +236,7 @@ def main():
     count = None if os.environ.get("BENCH_MANY_COUNT") == "0" else "instructions"
     rep["many"] = many_case(ROWS, LEVELS, count if INSTRUCTIONS else "wall")
     tag = "models-instructions" if INSTRUCTIONS else "models"
-    os.makedirs(bench.RESULTS, exist_ok=True)
-    with open(os.path.join(bench.RESULTS, tag + ".json"), "w") as f:
-        json.dump(rep, f, indent=1)
-    md = markdown(rep)
-    with open(os.path.join(bench.RESULTS, tag + ".md"), "w") as f:
-        f.write(md)
-    print(md)
+    pipeline.write_results(tag, rep, markdown(rep))
 
 
 if __name__ == "__main__":
