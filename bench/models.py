@@ -14,8 +14,7 @@ nothing here fails on a cost, and CI never runs it.
                                    (default 10^6)
   BENCH_INSTRUCTION_ROWS=N         rows of the negative binomial's callgrind
                                    counts (default 3 x 10^5; the `many` factor's
-                                   are at BENCH_ROWS: smaller files of as many
-                                   rows a level do not converge yet)
+                                   are at BENCH_ROWS)
   BENCH_LEVELS=N                   levels of the `many` factor (default 10^5)
   BENCH_MANY_COUNT=0               --instructions without counting the `many`
                                    factor's fits (callgrind takes about an hour
