@@ -248,10 +248,13 @@ bench: all
 	/usr/bin/python3 bench/pipeline.py
 	-$(MAKE) --no-print-directory mpi
 	/usr/bin/python3 bench/scale.py
+	/usr/bin/python3 bench/models.py
 
-# instruction counts (callgrind, 3 x 10^5 rows): ratios that a busy machine does not change
+# instruction counts (callgrind, 3 x 10^5 rows; bench/models.py's `many` factor at 10^6)
+# and peak RSS: figures that a busy machine does not change
 bench-instructions: all
 	nice -n 10 /usr/bin/python3 bench/pipeline.py --instructions
+	nice -n 10 /usr/bin/python3 bench/models.py --instructions
 
 clean:
 	rm -rf $(B)

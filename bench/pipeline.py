@@ -319,12 +319,27 @@ def markdown(rep):
     return "\n".join(lines) + "\n"
 
 
-def main():
+def write_results(tag, rep, md):
+    """bench/results/TAG.json and TAG.md; the markdown printed."""
+    os.makedirs(bench.RESULTS, exist_ok=True)
+    with open(os.path.join(bench.RESULTS, tag + ".json"), "w") as f:
+        json.dump(rep, f, indent=1)
+    with open(os.path.join(bench.RESULTS, tag + ".md"), "w") as f:
+        f.write(md)
+    print(md)
+
+
+def require_tools():
+    """The binaries measured and measuring, and DATA made."""
     tools = [bench.MILLRACE, bench.SYNTH, "/usr/bin/time"] + (["/usr/bin/valgrind"] if INSTRUCTIONS else [])
     for tool in tools:
         if not os.path.exists(tool):
             sys.exit("bench: %s is missing (run make; apt-get install time valgrind)" % tool)
     os.makedirs(DATA, exist_ok=True)
+
+
+def main():
+    require_tools()
     rep = {"date": time.strftime("%Y-%m-%d"), "machine": bench.machine(), "commit": commit(), "rows": ROWS,
            "mode": "instructions" if INSTRUCTIONS else "wall seconds"}
     print("refresh case...", flush=True)
@@ -350,13 +365,7 @@ def main():
     print("robust...", flush=True)
     rep["robust"] = robust_case(m, data, fb, pc)
     tag = os.environ.get("BENCH_TAG", "pipeline-instructions" if INSTRUCTIONS else "pipeline")
-    os.makedirs(bench.RESULTS, exist_ok=True)
-    with open(os.path.join(bench.RESULTS, tag + ".json"), "w") as f:
-        json.dump(rep, f, indent=1)
-    md = markdown(rep)
-    with open(os.path.join(bench.RESULTS, tag + ".md"), "w") as f:
-        f.write(md)
-    print(md)
+    write_results(tag, rep, markdown(rep))
 
 
 if __name__ == "__main__":

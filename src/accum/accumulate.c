@@ -49,14 +49,6 @@ mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *
     ws->var = aligned_doubles(R);
     ws->dev = aligned_doubles(R);
     ws->w = aligned_doubles(R);
-    if (d->nabsorb > 0) {
-        size_t l;
-        if ((ws->lev_slot = mr__malloc_array(d->nabsorb, sizeof *ws->lev_slot)) == NULL) {
-            mr__workspace_release(ws);
-            return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-        }
-        for (l = 0; l < d->nabsorb; l++) ws->lev_slot[l] = -1;
-    }
     if (!ws->sd || !ws->tile || !ws->D || !ws->lanes || !ws->sval || !ws->scol || !ws->dd || !ws->bd || !ws->bs || !ws->eta ||
         !ws->mu || !ws->mu_eta || !ws->var || !ws->dev || !ws->w) {
         mr__workspace_release(ws);
@@ -82,7 +74,6 @@ void mr__workspace_release(mr__workspace *ws)
     mr__free(ws->var);
     mr__free(ws->dev);
     mr__free(ws->w);
-    mr__free(ws->lev_slot);
     memset(ws, 0, sizeof *ws);
 }
 

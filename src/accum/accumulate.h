@@ -57,7 +57,6 @@ typedef struct mr__workspace {
     double *bs;    /* 0, then the coefficients (linear_predictor) */
     int32_t *scol;
     double *eta, *mu, *mu_eta, *var, *dev, *w;
-    int32_t *lev_slot; /* the eliminated factor's levels: a block's row of each, -1 (levelsums.h) */
 } mr__workspace;
 
 mr_status mr__workspace_init(mr__workspace *ws, const mr__design *d, mr__error *err);

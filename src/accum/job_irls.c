@@ -17,14 +17,17 @@ typedef struct irls_job {
     const mr__design *design;
     mr__block_sums group; /* the open group's total */
     mr__level_group lgroup; /* its eliminated factor's levels (design->nabsorb > 0) */
+    mr__level_part block_levels; /* the block being added: its levels' rows */
+    int32_t *level_slot;         /* their slot map (nabsorb, all -1 between blocks) */
     int group_open;
     mr__partial_range group_blocks; /* the open group's blocks */
 } irls_job;
 
-/* A block's partial result: its sums, and its levels' rows. */
+/* A block's partial result: its sums, and what its levels' rows are made
+ * from when it is added (levelsums.h). */
 typedef struct irls_part {
     mr__block_sums sums;
-    mr__level_part lev;
+    mr__level_input lev;
 } irls_part;
 
 static size_t level_width(const mr__design *d) { return d->p + 2; }
@@ -37,6 +40,11 @@ static mr_status open_levels(irls_job *j, mr__error *err)
     total->lev = mr__calloc(d->nabsorb * level_width(d), sizeof *total->lev);
     if (total->lev == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     total->nlev = d->nabsorb;
+    j->level_slot = mr__malloc_array(d->nabsorb, sizeof *j->level_slot);
+    if (j->level_slot == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (size_t l = 0; l < d->nabsorb; l++) j->level_slot[l] = -1;
+    MR__TRY(mr__level_part_init(&j->block_levels, level_width(d),
+                                d->nabsorb < MR__BLOCK_ROWS ? d->nabsorb : MR__BLOCK_ROWS, err));
     return mr__level_group_init(&j->lgroup, d->nabsorb, level_width(d), err);
 }
 
@@ -56,13 +64,11 @@ static mr_status irls_slot_init(void *job, mr__pass_slot *s, mr__error *err)
 {
     irls_job *j = job;
     irls_part *part = mr__calloc(1, sizeof *part);
-    size_t nabsorb = j->design->nabsorb;
     if (part == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     s->part = part;
     MR__TRY(mr__sums_init_block(&part->sums, j->design, err));
-    if (nabsorb == 0) return MR_OK;
-    return mr__level_part_init(&part->lev, level_width(j->design), nabsorb < MR__BLOCK_ROWS ? nabsorb : MR__BLOCK_ROWS,
-                               err);
+    if (j->design->nabsorb == 0) return MR_OK;
+    return mr__level_input_init(&part->lev, j->design, err);
 }
 
 static mr_status irls_start(void *job, mr__error *err)
@@ -97,7 +103,7 @@ static void irls_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
     part->lev.n = 0;
     /* rows out of the domain: the step is halved and the sums unused */
     if (j->design->nabsorb > 0 && s->use->n > 0 && part->sums.invalid == 0)
-        mr__level_part_block(j->env->cfg->point, s->use, w->part, &part->lev);
+        mr__level_input_keep(&part->lev, j->design, w->part, s->use->n);
 }
 
 /* The group's total into the pass's, in group order (accum/partial.h). */
@@ -123,7 +129,10 @@ static mr_status irls_add(void *job, mr__pass_slot *s, mr__error *err)
     }
     j->group_blocks.nblocks++;
     mr__sums_add(&j->group, &part->sums, j->design);
-    if (j->design->nabsorb > 0) MR__TRY(mr__level_group_add(&j->lgroup, &part->lev, err));
+    if (j->design->nabsorb > 0) {
+        mr__level_part_block(cfg->point, s->use, &part->lev, j->level_slot, &j->block_levels);
+        MR__TRY(mr__level_group_add(&j->lgroup, &j->block_levels, err));
+    }
     j->group_open = 1;
     if (mr__group_closes(s->index, 0)) close_group(j);
     if (cfg->store && cfg->store_fill) return mr__pass_keep_block(cfg, j->env->res, s, err);
@@ -155,7 +164,7 @@ static void irls_slot_release(void *job, mr__pass_slot *s)
     (void)job;
     if (part == NULL) return;
     mr__sums_release(&part->sums);
-    mr__level_part_release(&part->lev);
+    mr__level_input_release(&part->lev);
     mr__free(part);
     s->part = NULL;
 }
@@ -165,6 +174,8 @@ static void irls_close(void *job)
     irls_job *j = job;
     mr__sums_release(&j->group);
     mr__level_group_release(&j->lgroup);
+    mr__level_part_release(&j->block_levels);
+    mr__free(j->level_slot);
     mr__free(j);
 }
 

@@ -43,9 +43,11 @@ void mr__level_group_release(mr__level_group *g)
     memset(g, 0, sizeof *g);
 }
 
-static mr_status grow(mr__level_part *p, mr__error *err)
+/* A group's part never holds more than its nlev levels: no room past them. */
+static mr_status grow(mr__level_part *p, size_t most, mr__error *err)
 {
     size_t cap = p->cap ? 2 * p->cap : 64;
+    if (cap > most) cap = most;
     int32_t *level = mr__realloc(p->level, (cap + 1) * sizeof *level);
     double *val;
     if (level == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
@@ -66,7 +68,7 @@ mr_status mr__level_group_add(mr__level_group *g, const mr__level_part *block, m
         const double *from = block->val + e * w;
         double *to;
         if (at < 0) {
-            if (p->n == p->cap) MR__TRY(grow(p, err));
+            if (p->n == p->cap) MR__TRY(grow(p, g->nlev, err));
             at = g->slot[lev] = (int32_t)p->n++;
             p->level[at] = lev;
             memset(p->val + (size_t)at * w, 0, w * sizeof *p->val);
@@ -90,6 +92,39 @@ void mr__level_group_close(mr__level_group *g, double *total)
     p->n = 0;
 }
 
+mr_status mr__level_input_init(mr__level_input *in, const mr__design *d, mr__error *err)
+{
+    const size_t R = MR__BLOCK_ROWS;
+    memset(in, 0, sizeof *in);
+    in->w = mr__malloc_array(R, sizeof *in->w);
+    in->D = mr__malloc_array(R * (d->ndense + 1), sizeof *in->D);
+    in->sval = mr__malloc_array(R * d->nsparse + 1, sizeof *in->sval);
+    in->scol = mr__malloc_array(R * d->nsparse + 1, sizeof *in->scol);
+    if (in->w == NULL || in->D == NULL || in->sval == NULL || in->scol == NULL) {
+        mr__level_input_release(in);
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    }
+    return MR_OK;
+}
+
+void mr__level_input_release(mr__level_input *in)
+{
+    mr__free(in->w);
+    mr__free(in->D);
+    mr__free(in->sval);
+    mr__free(in->scol);
+    memset(in, 0, sizeof *in);
+}
+
+void mr__level_input_keep(mr__level_input *in, const mr__design *d, const mr__workspace *ws, size_t n)
+{
+    in->n = n;
+    memcpy(in->w, ws->w, n * sizeof *in->w);
+    memcpy(in->D, ws->D, (d->ndense + 1) * n * sizeof *in->D);
+    memcpy(in->sval, ws->sval, d->nsparse * n * sizeof *in->sval);
+    memcpy(in->scol, ws->scol, d->nsparse * n * sizeof *in->scol);
+}
+
 /* Level k's row in the block, made (zeroed) the first time a row meets it. */
 static double *row_for(mr__level_part *out, int32_t *slot, int32_t k)
 {
@@ -102,26 +137,27 @@ static double *row_for(mr__level_part *out, int32_t *slot, int32_t k)
     return out->val + (size_t)at * out->width;
 }
 
-void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, mr__workspace *ws, mr__level_part *out)
+void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, const mr__level_input *in, int32_t *slot,
+                          mr__level_part *out)
 {
     const mr__design *d = pt->design;
-    const size_t n = blk->n, m = d->ndense, ns = d->nsparse;
-    const double *z = ws->D + m * n;
+    const size_t n = in->n, m = d->ndense, ns = d->nsparse;
+    const double *z = in->D + m * n;
     size_t i, j, e;
     out->n = 0;
     for (i = 0; i < n; i++) {
         int32_t k = mr__design_absorb_row(d, blk->lev, MR__BLOCK_ROWS, i);
-        double s = ws->w[i], *row, *c;
+        double s = in->w[i], *row, *c;
         if (k < 0) continue;
-        row = row_for(out, ws->lev_slot, k);
+        row = row_for(out, slot, k);
         c = row + 2;
         row[0] += s * s;
         row[1] += s * z[i];
-        for (j = 0; j < m; j++) c[d->dense_col[j]] += s * ws->D[j * n + i];
+        for (j = 0; j < m; j++) c[d->dense_col[j]] += s * in->D[j * n + i];
         for (j = 0; j < ns; j++) {
-            int32_t col = ws->scol[j * n + i];
-            if (col >= 0) c[col] += s * (s * ws->sval[j * n + i]);
+            int32_t col = in->scol[j * n + i];
+            if (col >= 0) c[col] += s * (s * in->sval[j * n + i]);
         }
     }
-    for (e = 0; e < out->n; e++) ws->lev_slot[out->level[e]] = -1;
+    for (e = 0; e < out->n; e++) slot[out->level[e]] = -1;
 }

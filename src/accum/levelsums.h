@@ -41,11 +41,31 @@ mr_status mr__level_group_add(mr__level_group *g, const mr__level_part *block, m
  * group emptied. */
 void mr__level_group_close(mr__level_group *g, double *total);
 
-/* The block's rows from the workspace mr__accumulate_block has just
- * filled at pt (sqrt(w), sqrt(w) z, the dense columns times sqrt(w), the
- * sparse entries): d += w, b_D += w z, c += w x for each row at a level
- * other than the reference.  ws->lev_slot is the worker's slot map (all
- * -1, and left so).  The part must have room for min(nabsorb, rows). */
-void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, mr__workspace *ws, mr__level_part *out);
+/* What a block's rows are made from, copied from its worker's workspace
+ * when the block is computed and made into rows only when it is added:
+ * (ndense + 2) doubles and nsparse (double, column) pairs a row, against
+ * (p + 2) doubles a level met for the rows themselves, so that the ring's
+ * blocks waiting to be added do not each hold a block's worth of level
+ * rows (the same arithmetic in the same order: the same bits). */
+typedef struct mr__level_input {
+    size_t n;        /* rows kept (0: none) */
+    double *w, *D;   /* sqrt(w); the dense columns times sqrt(w), then sqrt(w) z (n apart) */
+    double *sval;    /* the sparse entries (n apart) */
+    int32_t *scol;
+} mr__level_input;
+
+/* Room for a block's inputs under design d. */
+mr_status mr__level_input_init(mr__level_input *in, const mr__design *d, mr__error *err);
+void mr__level_input_release(mr__level_input *in);
+/* Keeps the inputs mr__accumulate_block has just left in ws for a block of
+ * n rows. */
+void mr__level_input_keep(mr__level_input *in, const mr__design *d, const mr__workspace *ws, size_t n);
+
+/* The block's rows from its kept inputs: d += w, b_D += w z, c += w x for
+ * each row at a level other than the reference.  slot is a slot map of
+ * nabsorb entries (all -1, and left so).  The part must have room for
+ * min(nabsorb, rows). */
+void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, const mr__level_input *in, int32_t *slot,
+                          mr__level_part *out);
 
 #endif

@@ -15,6 +15,8 @@ void mr__levelset_release(mr__levelset *s)
     mr__levelset_init(s);
 }
 
+static uint64_t entry_hash(const mr__level_entry *e) { return mr__level_hash(e->head, e->str, e->len); }
+
 static mr_status grow(mr__levelset *s)
 {
     size_t cap = s->cap ? 2 * s->cap : 64, i;
@@ -24,7 +26,7 @@ static mr_status grow(mr__levelset *s)
     bigger.cap = cap;
     bigger.n = s->n;
     for (i = 0; i < s->cap; i++)
-        if (s->slot[i].str != NULL) *mr__level_probe(&bigger, s->slot[i].hash, s->slot[i].head, s->slot[i].str, s->slot[i].len) = s->slot[i];
+        if (s->slot[i].str != NULL) *mr__level_probe(&bigger, entry_hash(&s->slot[i]), s->slot[i].head, s->slot[i].str, s->slot[i].len) = s->slot[i];
     mr__free(s->slot);
     s->slot = bigger.slot;
     s->cap = cap;
@@ -45,7 +47,6 @@ static mr_status insert_hashed(mr__levelset *s, uint64_t h, uint64_t head, const
     if (s->n >= (s->limit ? s->limit : MR__MAX_LEVELS)) return MR_ERR_DOMAIN;
     e->str = mr__strndup(p, len);
     if (e->str == NULL) return MR_ERR_NO_MEMORY;
-    e->hash = h;
     e->head = head;
     e->len = (uint32_t)len;
     e->id = id;
@@ -92,7 +93,7 @@ mr_status mr__levelset_merge_sorted(const mr__levelset *const *sets, size_t n, m
     for (i = 0; i < n; i++)
         for (j = 0; j < sets[i]->cap; j++)
             if (sets[i]->slot[j].str != NULL &&
-                (rc = insert_hashed(out, sets[i]->slot[j].hash, sets[i]->slot[j].head, sets[i]->slot[j].str,
+                (rc = insert_hashed(out, entry_hash(&sets[i]->slot[j]), sets[i]->slot[j].head, sets[i]->slot[j].str,
                                     sets[i]->slot[j].len, 0, &id, &made)) != 0)
                 return rc;
     all = mr__malloc_array(out->n ? out->n : 1, sizeof *all);

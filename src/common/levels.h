@@ -14,8 +14,9 @@
 
 #define MR__MAX_LEVELS 100000
 
+/* 24 bytes: the hash is not kept (growing and merging make it again from
+ * head and str), since a set of 10^5 levels holds 2^18 entries. */
 typedef struct mr__level_entry {
-    uint64_t hash;
     uint64_t head; /* the first 8 bytes, zero-padded: most levels are that short */
     char *str;
     uint32_t len;

@@ -92,6 +92,22 @@ mr_status mr__build_remap(mr__run *r, mr__error *err)
     return MR_OK;
 }
 
+mr_status mr__drop_worker_levels(mr__run *r, mr__error *err)
+{
+    size_t w, f, n;
+    if (r->design.nabsorb == 0 || r->design.absorb_var < 0 || r->collapsed || r->first.worker_levels == NULL)
+        return MR_OK;
+    if (r->remap == NULL) MR__TRY(mr__build_remap(r, err));
+    f = (size_t)r->design.absorb_var;
+    for (w = 0; w < r->first.nworkers; w++) {
+        mr__levelset *s = &r->first.worker_levels[w][f];
+        n = s->n;
+        mr__levelset_release(s);
+        s->n = n;
+    }
+    return MR_OK;
+}
+
 /* After the first pass: the kept blocks are used as they are, or (when
  * the rows collapsed, or some blocks went unkept) the store starts afresh
  * and is filled by the first IRLS pass. */

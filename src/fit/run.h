@@ -175,6 +175,13 @@ void mr__choose_store(mr__run *r);
 mr_status mr__settle_store(mr__run *r, mr__error *err);
 void mr__go_without_cache(mr__run *r, const char *why);
 mr_status mr__build_remap(mr__run *r, mr__error *err);
+/* With a factor declared many and rows not collapsed: the remap made, and
+ * the workers' sets of that factor's levels (the largest sets of the run:
+ * a hash table and a copy of every string each) freed but for their
+ * counts.  Nothing reads them after: zero_cells.c counts through the
+ * remap, and a checkpoint or a share, which would encode them, is refused
+ * with such a factor. */
+mr_status mr__drop_worker_levels(mr__run *r, mr__error *err);
 
 /* collapse.c: 0 no collapsing, 1 rows by their covariates, 2 poisson
  * log-link rows with an exposure; the patterns as blocks to replay. */
