@@ -38,6 +38,9 @@ typedef struct mr__level_outcomes {
     size_t *nlevel;             /* per factor: entries in level[] */
     mr__cell_table *cells;      /* per pair of decode_cfg.pairs, then per triple of its triples */
     int failed;                 /* out of memory: the counts are not whole */
+    uint8_t *kind;              /* scratch: a block's rows' outcome kinds (level_outcomes.c) */
+    uint32_t *tally;            /* scratch: a block's counts by level and kind */
+    size_t ntally;
 } mr__level_outcomes;
 
 /* ntables: the pairs and the triples; NULL on no memory. */
