@@ -234,11 +234,14 @@ static int tally_rows(mr__level_outcomes *lo, mr__outcome_counts *c, const int32
 /* Factor f's counts: its array grown once to the block's greatest level,
  * then the rows tallied where the levels are fewer than the rows and
  * every row counts (no weight column), else counted one by one. */
-static int count_factor(mr__level_outcomes *lo, size_t f, const mr__block *blk, int binomial, int kinds)
+static int count_factor(mr__level_outcomes *lo, size_t f, const mr__block *blk, int binomial, int kinds,
+                        const mr__levelset *local)
 {
     const int32_t *lev = blk->lev + f * MR__BLOCK_ROWS;
     uint32_t i, top = 0;
-    for (i = 0; i < blk->n; i++) top = (uint32_t)lev[i] > top ? (uint32_t)lev[i] : top;
+    if (local != NULL && local[f].n > 0) top = (uint32_t)local[f].n - 1;
+    else
+        for (i = 0; i < blk->n; i++) top = (uint32_t)lev[i] > top ? (uint32_t)lev[i] : top;
     if (level_entry(lo, f, top) == NULL) return -1;
     if (kinds && top < blk->n) return tally_rows(lo, lo->level[f], lev, blk->n, top);
     count_rows(lo->level[f], lev, blk, binomial);
@@ -267,7 +270,8 @@ static void count_cells(mr__level_outcomes *lo, const mr__block *blk, const mr__
     }
 }
 
-void mr__level_outcomes_block(mr__level_outcomes *lo, const mr__block *blk, const mr__decode_cfg *cfg)
+void mr__level_outcomes_block(mr__level_outcomes *lo, const mr__block *blk, const mr__decode_cfg *cfg,
+                              const mr__levelset *local)
 {
     int binomial = cfg->family->ops->takes_trials; /* the binomial: y a proportion */
     size_t f;
@@ -275,7 +279,7 @@ void mr__level_outcomes_block(mr__level_outcomes *lo, const mr__block *blk, cons
     if (lo->failed || blk->n == 0) return;
     kinds = lo->nfac > 0 && blk->prior == NULL && row_kinds(lo, blk, binomial) == 0;
     for (f = 0; f < lo->nfac; f++)
-        if (count_factor(lo, f, blk, binomial, kinds) != 0) {
+        if (count_factor(lo, f, blk, binomial, kinds, local) != 0) {
             lo->failed = 1;
             return;
         }
