@@ -223,6 +223,11 @@ lint:
 	  echo "lint: BLAS or LAPACK called outside src/solve and src/fit (see above)"; exit 1; fi
 	@echo "lint: BLAS and LAPACK only in src/solve and src/fit"
 	@sh tools/check-layers.sh src
+	@/usr/bin/python3 tools/gen_numparse_table.py | cmp -s - src/input/numparse_table.h || \
+	  { echo "lint: src/input/numparse_table.h differs from what tools/gen_numparse_table.py writes"; exit 1; }
+	@/usr/bin/python3 tools/gen_dtoa_table.py | cmp -s - src/common/dtoa_table.h || \
+	  { echo "lint: src/common/dtoa_table.h differs from what tools/gen_dtoa_table.py writes"; exit 1; }
+	@echo "lint: generated tables are current"
 
 # The test packages first, then every group in a make that sees them.
 check: test-deps

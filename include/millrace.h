@@ -816,7 +816,10 @@ MR_API mr_status mr_drift_write_csv(const mr_drift *d, const char *path, const c
  *   eta        the linear predictor x'b, plus the row's offset and
  *              log(exposure) when the model has them
  *   se_eta     sqrt(x' V x), V the fit's covariance (aliased coefficients
- *              count as 0)
+ *              count as 0); empty for a fit with a `many` factor, which
+ *              keeps no covariance of a level's estimate with the rest
+ *              (eta adds the row's level estimate; a level with none
+ *              counts as unseen), and so are mean_low and mean_high
  *   mean       the inverse link of eta (binomial: the probability)
  *   mean_low, mean_high   the inverse link of eta -+ z se_eta, z the
  *              normal quantile of the level (mr_scorer_set_level)
@@ -824,7 +827,7 @@ MR_API mr_status mr_drift_write_csv(const mr_drift *d, const char *path, const c
  * names), resid_response (y - mean), resid_pearson
  * ((y - mean) sqrt(w / V(mean))) and resid_deviance (sign(y - mean)
  * sqrt(w d(y, mean))), empty on a row whose outcome is missing.  Numbers
- * have 17 significant digits (strtod gives the same double back); an
+ * are the shortest text that strtod reads back to the same double; an
  * empty field stands for none.  The bytes do not depend on the threads.
  *
  * A row the fit cannot score - a factor level the fit never saw, or a
@@ -897,7 +900,7 @@ MR_API mr_status mr_scorer_group_by(mr_scorer *s, const char *column);
 
 typedef enum mr_groups_format {
     MR_GROUPS_TEXT = 0, /* an aligned table */
-    MR_GROUPS_CSV = 1,  /* RFC 4180, numbers with 17 significant digits */
+    MR_GROUPS_CSV = 1,  /* RFC 4180, numbers as the shortest text giving the double back */
     MR_GROUPS_JSON = 2  /* {"level", "interval": "poisson-exact" | "binomial-exact", "by": [..],
                            "groups": [{"key": {col: cell}, ...}]} */
 } mr_groups_format;
@@ -1199,9 +1202,13 @@ MR_API int mr_fit_coef_not_estimable(const mr_fit *fit, size_t j);
  * a fit whose rows collapse into covariate patterns (one read, IRLS in
  * memory) runs its passes on every rank alone, with no messages.
  *
+ * Robust standard errors by rows (mr_fitter_set_robust) split their final
+ * pass the same way, each group sending its score sums and X'WX.
+ *
  * Refused under a share of more than one rank (MR_ERR_USAGE): standard
  * input or a pipe (each rank must read the file itself), a checkpoint,
- * robust or cluster standard errors, a factor declared `many`, a family
+ * cluster-robust standard errors (mr_fitter_set_cluster: a cluster's rows
+ * may lie in several ranks' blocks), a factor declared `many`, a family
  * parameter by profile likelihood.  mr_fitter_run and mr_fitter_run_set
  * take the share; other runs (comparisons, scoring) ignore it.
  *

@@ -51,7 +51,7 @@ typedef struct hub {
 
 typedef struct rank_run {
     hub *h;
-    int rank, collapse, checkpoint;
+    int rank, kind, checkpoint;
     const char *path;
     mr_status st;
     char msg[1024];
@@ -96,9 +96,13 @@ static int gather(void *user, const void *mine, size_t len, void **all, size_t *
     return 0;
 }
 
-/* collapse: a model whose rows collapse into patterns (no dose) */
-static mr_fitter *new_fitter(int collapse)
+/* kind: PLAIN (IRLS passes over the file), COLLAPSED (a model whose rows
+ * collapse into patterns: no dose), ROBUST (PLAIN with HC1 standard errors) */
+enum { PLAIN, COLLAPSED, ROBUST }; /* a fit's kind */
+
+static mr_fitter *new_fitter(int kind)
 {
+    int collapse = kind == COLLAPSED;
     static const char *const model[] = {"outcome count", "family poisson", "factor group", "exposure years",
                                         "numeric dose", NULL};
     mr_fitter *f = mr_fitter_new();
@@ -107,6 +111,7 @@ static mr_fitter *new_fitter(int collapse)
     for (i = 0; model[i] && (!collapse || i < 4); i++) ck_assert_int_eq(mr_fitter_model_line(f, model[i], "test"), MR_OK);
     mr_fitter_set_int(f, MR_OPT_THREADS, 2);
     mr_fitter_set_int(f, MR_OPT_NO_COLLAPSE, !collapse);
+    if (kind == ROBUST) ck_assert_int_eq(mr_fitter_set_robust(f, MR_ROBUST_HC1), MR_OK);
     return f;
 }
 
@@ -114,7 +119,7 @@ static void *rank_main(void *arg)
 {
     rank_run *r = arg;
     mr_share *share = NULL;
-    mr_fitter *f = new_fitter(r->collapse);
+    mr_fitter *f = new_fitter(r->kind);
     if (mr_share_new(r->rank, r->h->n, gather, r, &share) != MR_OK) return NULL;
     mr_fitter_set_share(f, share);
     if (r->checkpoint) mr_fitter_set_checkpoint(f, "/tmp/mr_share_never.state");
@@ -129,7 +134,7 @@ static void *rank_main(void *arg)
     return NULL;
 }
 
-static void run_ranks(int n, int collapse, int checkpoint, const char *path, rank_run *runs)
+static void run_ranks(int n, int kind, int checkpoint, const char *path, rank_run *runs)
 {
     pthread_t t[MAX_RANKS];
     hub h;
@@ -142,7 +147,7 @@ static void run_ranks(int n, int collapse, int checkpoint, const char *path, ran
         memset(&runs[k], 0, sizeof runs[k]);
         runs[k].h = &h;
         runs[k].rank = k;
-        runs[k].collapse = collapse;
+        runs[k].kind = kind;
         runs[k].checkpoint = checkpoint;
         runs[k].path = path;
         ck_assert_int_eq(pthread_create(&t[k], NULL, rank_main, &runs[k]), 0);
@@ -152,16 +157,29 @@ static void run_ranks(int n, int collapse, int checkpoint, const char *path, ran
     pthread_cond_destroy(&h.cv);
 }
 
-static mr_fit *plain_fit(int collapse)
+static mr_fit *plain_fit(int kind)
 {
-    mr_fitter *f = new_fitter(collapse);
+    mr_fitter *f = new_fitter(kind);
     mr_fit *fit = NULL;
     ck_assert_int_eq(mr_fitter_run(f, data_path, &fit), MR_OK);
     mr_fitter_free(f);
     return fit;
 }
 
-static void check_shared(int collapse)
+static void same_robust(const mr_fit *a, const mr_fit *b)
+{
+    size_t i, j, p = mr_fit_ncoef(a);
+    ck_assert_int_eq(mr_fit_robust(a), mr_fit_robust(b));
+    for (i = 0; i < p; i++) {
+        ck_assert(memcmp(&(double){mr_fit_robust_std_error(a, i)}, &(double){mr_fit_robust_std_error(b, i)},
+                         sizeof(double)) == 0);
+        for (j = 0; j < p; j++)
+            ck_assert(memcmp(&(double){mr_fit_robust_covariance(a, i, j)},
+                             &(double){mr_fit_robust_covariance(b, i, j)}, sizeof(double)) == 0);
+    }
+}
+
+static void check_shared(int kind)
 {
     static const int counts[] = {1, 2, 3, 4};
     rank_run runs[MAX_RANKS];
@@ -169,15 +187,16 @@ static void check_shared(int collapse)
     size_t c;
     int k;
     write_rows();
-    ref = plain_fit(collapse);
+    ref = plain_fit(kind);
     /* IRLS passes over the file, or one read */
-    ck_assert(collapse ? mr_fit_stat(ref, MR_STAT_PASSES) == 1 : mr_fit_stat(ref, MR_STAT_PASSES) >= 3);
+    ck_assert(kind == COLLAPSED ? mr_fit_stat(ref, MR_STAT_PASSES) == 1 : mr_fit_stat(ref, MR_STAT_PASSES) >= 3);
     for (c = 0; c < sizeof counts / sizeof *counts; c++) {
-        run_ranks(counts[c], collapse, 0, data_path, runs);
+        run_ranks(counts[c], kind, 0, data_path, runs);
         for (k = 0; k < counts[c]; k++) {
             ck_assert_msg(runs[k].st == MR_OK, "rank %d of %d: %s", k, counts[c], runs[k].msg);
             ck_assert(runs[k].ended_alike);
             mr_check_same_fit(ref, runs[k].fit);
+            same_robust(ref, runs[k].fit);
             mr_fit_free(runs[k].fit);
         }
     }
@@ -187,13 +206,19 @@ static void check_shared(int collapse)
 
 START_TEST(shared_fit_is_the_same_bits)
 {
-    check_shared(0); /* IRLS passes over the file, split by groups */
+    check_shared(PLAIN); /* IRLS passes over the file, split by groups */
 }
 END_TEST
 
 START_TEST(collapsed_shared_fit_is_the_same_bits)
 {
-    check_shared(1); /* one read; IRLS on the patterns on every rank */
+    check_shared(COLLAPSED); /* one read; IRLS on the patterns on every rank */
+}
+END_TEST
+
+START_TEST(robust_shared_fit_is_the_same_bits)
+{
+    check_shared(ROBUST); /* the meat pass split as the IRLS passes are */
 }
 END_TEST
 
@@ -204,7 +229,7 @@ START_TEST(an_error_on_one_rank_ends_every_rank)
     int k;
     write_rows();
     setenv("MILLRACE_TEST_SHARE_ERROR", "1:2", 1);
-    run_ranks(3, 0, 0, data_path, runs);
+    run_ranks(3, PLAIN, 0, data_path, runs);
     unsetenv("MILLRACE_TEST_SHARE_ERROR");
     for (k = 0; k < 3; k++) {
         ck_assert_int_eq(runs[k].st, MR_ERR_FORMAT);
@@ -222,12 +247,12 @@ START_TEST(what_a_share_cannot_take_is_refused_everywhere)
     rank_run runs[MAX_RANKS];
     int k;
     write_rows();
-    run_ranks(2, 0, 1, data_path, runs);
+    run_ranks(2, PLAIN, 1, data_path, runs);
     for (k = 0; k < 2; k++) {
         ck_assert_int_eq(runs[k].st, MR_ERR_USAGE);
         ck_assert_ptr_nonnull(strstr(runs[k].msg, "does not take a checkpoint"));
     }
-    run_ranks(3, 0, 0, "-", runs);
+    run_ranks(3, PLAIN, 0, "-", runs);
     for (k = 0; k < 3; k++) ck_assert_int_eq(runs[k].st, MR_ERR_USAGE);
     unlink(data_path);
 }
@@ -256,6 +281,7 @@ int main(void)
     tcase_add_test(tc, share_arguments);
     tcase_add_test(tc, shared_fit_is_the_same_bits);
     tcase_add_test(tc, collapsed_shared_fit_is_the_same_bits);
+    tcase_add_test(tc, robust_shared_fit_is_the_same_bits);
     tcase_add_test(tc, an_error_on_one_rank_ends_every_rank);
     tcase_add_test(tc, what_a_share_cannot_take_is_refused_everywhere);
     suite_add_tcase(s, tc);

@@ -49,13 +49,23 @@ static mr_status add_one(mr__byteread *r, size_t p, mr__block_sums *g, mr__block
     return MR_OK;
 }
 
-mr_status mr__group_add_all(mr__byteread *r, size_t p, mr__block_sums *total, uint64_t *next_block, mr__error *err)
+mr_status mr__group_add_each(mr__byteread *r, size_t p, mr__block_sums *const *totals, size_t k,
+                             uint64_t *next_block, mr__error *err)
 {
     mr__block_sums g;
     mr_status st = MR_OK;
+    size_t i = 0;
     MR__TRY(mr__sums_init(&g, p, err));
-    if (total->calib.bin == NULL) mr__calib_release(&g.calib);
-    while (st == MR_OK && r->at < r->end) st = add_one(r, p, &g, total, next_block, err);
+    if (totals[0]->calib.bin == NULL) mr__calib_release(&g.calib);
+    while (st == MR_OK && r->at < r->end) {
+        st = add_one(r, p, &g, totals[i], &next_block[i], err);
+        i = (i + 1) % k;
+    }
     mr__sums_release(&g);
-    return st;
+    return st == MR_OK && i != 0 ? mr__fail(err, MR_ERR_IO, "group totals: a group's entries cut short") : st;
+}
+
+mr_status mr__group_add_all(mr__byteread *r, size_t p, mr__block_sums *total, uint64_t *next_block, mr__error *err)
+{
+    return mr__group_add_each(r, p, &total, 1, next_block, err);
 }

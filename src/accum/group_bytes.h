@@ -23,4 +23,10 @@ void mr__group_encode(const mr__block_sums *s, size_t p, mr__partial_range range
  * MR_ERR_IO on bytes that are not such groups, MR_ERR_NO_MEMORY. */
 mr_status mr__group_add_all(mr__byteread *r, size_t p, mr__block_sums *total, uint64_t *next_block, mr__error *err);
 
+/* The same for a pass with k totals per group (the meat pass's rows and
+ * bread): each group's k entries follow one another, entry i added into
+ * totals[i], each total's groups contiguous from next_block[i]. */
+mr_status mr__group_add_each(mr__byteread *r, size_t p, mr__block_sums *const *totals, size_t k,
+                             uint64_t *next_block, mr__error *err);
+
 #endif

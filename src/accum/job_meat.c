@@ -24,6 +24,7 @@
 #include <string.h>
 
 #include "accum/clusters.h"
+#include "accum/group_bytes.h"
 #include "accum/meat.h"
 #include "accum/partial.h"
 #include "accum/pass.h"
@@ -53,6 +54,7 @@ typedef struct meat_job {
     size_t p;
     mr__block_sums group; /* rows: the open group's total */
     mr__block_sums bread_group; /* the open group's X'WX */
+    mr__partial_range group_blocks; /* the open group's blocks */
     int group_open;
     mr__clusters cl;      /* clusters: their bookkeeping (clusters.h) */
 } meat_job;
@@ -205,6 +207,12 @@ static void meat_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
 
 static void close_group(meat_job *j)
 {
+    mr__bytebuf *out = j->env->cfg->groups_out;
+    /* another process adds them in their place too (fit/share.c): rows, then bread */
+    if (out != NULL && !j->mc->clusters) {
+        mr__group_encode(&j->group, j->p, j->group_blocks, out);
+        mr__group_encode(&j->bread_group, j->p, j->group_blocks, out);
+    }
     if (!j->mc->clusters) {
         mr__sums_add_totals(&j->env->res->sums, &j->group, j->p);
         mr__sums_zero_totals(&j->group, j->p);
@@ -218,6 +226,11 @@ static void close_group(meat_job *j)
 static void add_groups(meat_job *j, mr__pass_slot *s)
 {
     meat_part *m = s->part;
+    if (!j->group_open) {
+        j->group_blocks.first_block = s->index;
+        j->group_blocks.nblocks = 0;
+    }
+    j->group_blocks.nblocks++;
     if (!j->mc->clusters) mr__sums_add(&j->group, &m->rows, j->design);
     mr__sums_add(&j->bread_group, &m->bread, j->design);
     j->group_open = 1;

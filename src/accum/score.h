@@ -26,6 +26,7 @@ typedef struct mr__score_term {
     size_t stride[MR__MAX_INTERACT]; /* factor parts: columns per level code */
     int full;                        /* every level has a column */
     size_t first;                    /* its first coefficient */
+    int many;                        /* the `many` factor's: no columns (many_beta) */
 } mr__score_term;
 
 typedef struct mr__score_factor {
@@ -49,6 +50,13 @@ typedef mr_status (*mr__score_write_fn)(void *user, const char *p, size_t n, mr_
 typedef struct mr__score_cfg {
     size_t p;
     const double *beta, *cov; /* p and p x p; aliased entries 0 */
+    /* A factor declared `many`: fac[many_var] (-1: none), each of its
+     * levels' estimate (the reference's 0; NaN: none in the fit).  The fit
+     * keeps no covariance between a level's estimate and the other
+     * coefficients, so such a fit's rows get no standard error or
+     * interval. */
+    long many_var;
+    double *many_beta;
     int intercept;
     mr__family family;         /* as fitted, with its parameter */
     const mr__link_ops *link;

@@ -8,6 +8,7 @@
 
 #include "accum/score_row.h"
 #include "common/alloc.h"
+#include "common/dtoa.h"
 #include "family/family.h"
 #include "input/fields.h"
 
@@ -78,13 +79,16 @@ static int number_at(score_worker *sw, uint32_t r, const char *name, size_t fiel
     return -1;
 }
 
-enum { ROW_OK, ROW_MISSING, ROW_UNSEEN, ROW_FAILED };
+/* ROW_NO_ESTIMATE: a `many` factor's level the fit saw but has no
+ * estimate for (none finite): counted with the unseen levels. */
+enum { ROW_OK, ROW_MISSING, ROW_UNSEEN, ROW_NO_ESTIMATE, ROW_FAILED };
 
 static int unscorable(score_worker *sw, uint32_t r, int why, const char *name, size_t field)
 {
+    static const char *const what[] = {"", "a missing value, which cannot be scored", "a level the fit never saw",
+                                       "a level the fit has no estimate for"};
     if (why == ROW_FAILED || sw->c->blank_unscorable) return why;
-    cell_error(sw, r, MR_ERR_DOMAIN, name, field,
-               why == ROW_UNSEEN ? "a level the fit never saw" : "a missing value, which cannot be scored");
+    cell_error(sw, r, MR_ERR_DOMAIN, name, field, what[why]);
     return ROW_FAILED;
 }
 
@@ -126,6 +130,8 @@ static int row_values(score_worker *sw, uint32_t r, int32_t *lev, double *num)
         if (is_missing(c, p, n)) return unscorable(sw, r, ROW_MISSING, c->fac[i].name, c->fac[i].field);
         lev[i] = mr__levelset_find(&c->fac[i].levels, p, n);
         if (lev[i] < 0) return unscorable(sw, r, ROW_UNSEEN, c->fac[i].name, c->fac[i].field);
+        if ((long)i == c->many_var && !isfinite(c->many_beta[lev[i]]))
+            return unscorable(sw, r, ROW_NO_ESTIMATE, c->fac[i].name, c->fac[i].field);
     }
     for (i = 0; i < c->nnum; i++)
         if ((k = number_at(sw, r, c->num[i].name, c->num[i].field, &num[i])) <= 0)
@@ -147,6 +153,7 @@ static size_t design_row(score_worker *sw, const int32_t *lev, const double *num
         const mr__score_term *tm = &c->term[t];
         size_t col = tm->first;
         double v = 1.0;
+        if (tm->many) continue; /* linear_predictor adds it */
         for (k = 0; k < tm->nparts; k++) {
             if (tm->is_factor[k]) {
                 int32_t l = lev[tm->var[k]], ref = c->fac[tm->var[k]].ref;
@@ -176,16 +183,28 @@ static void linear_predictor(const score_worker *sw, size_t m, double off, doubl
         for (b = 0; b < m; b++) row += c->cov[sw->xcol[a] * c->p + sw->xcol[b]] * sw->xval[b];
         v += sw->xval[a] * row;
     }
+    if (c->many_var >= 0) {
+        *eta = e + c->many_beta[sw->lev[c->many_var]] + off;
+        *se = NAN; /* score.h: no covariance of a level's estimate with the rest */
+        return;
+    }
     *eta = e + off;
     *se = sqrt(v > 0 ? v : 0);
 }
 
-/* A number after a comma (none before a line's first field); an empty
- * field for none. */
-static void put_number(mr__strbuf *o, double v, int comma)
+/* A row's predictions as text, built on the stack and added to the
+ * output in one append: its up to 8 numbers, each after a comma. */
+typedef struct row_text {
+    char t[8 * (MR__DTOA_SIZE + 1)];
+    size_t n;
+} row_text;
+
+/* A number after a comma (none before a line's first field), as the
+ * shortest text that reads back to it; an empty field for none. */
+static void put_number(row_text *o, double v, int comma)
 {
-    if (comma) mr__strbuf_append(o, ",", 1);
-    if (isfinite(v)) mr__strbuf_printf(o, "%.17g", v);
+    if (comma) o->t[o->n++] = ',';
+    if (isfinite(v)) o->n += mr__dtoa(v, o->t + o->n);
 }
 
 /* The outcome as the fit took it: a proportion of the trials for
@@ -218,31 +237,43 @@ static double inverse_link(const mr__score_cfg *c, double eta)
     return mr__link_inv1(c->link, eta, &mu_eta);
 }
 
-/* Writes the row's predictions; returns its mean. */
-static double put_predictions(const score_worker *sw, mr__strbuf *o, size_t m, const score_row *row)
+/* The residuals of a row with its outcome. */
+static void put_residuals(const score_worker *sw, row_text *o, const score_row *row, double mu)
 {
     const mr__score_cfg *c = sw->c;
-    double eta, se, mu, lo, hi, d, var;
-    linear_predictor(sw, m, row->off, &eta, &se);
-    mu = inverse_link(c, eta);
-    lo = inverse_link(c, eta - c->z * se);
-    hi = inverse_link(c, eta + c->z * se);
-    put_number(o, eta, c->nkeep > 0);
-    put_number(o, se, 1);
-    put_number(o, mu, 1);
-    put_number(o, lo < hi ? lo : hi, 1);
-    put_number(o, lo < hi ? hi : lo, 1);
-    if (c->role_field[MR__SCORE_OUTCOME] < 0) return mu;
-    if (!row->has_y) {
-        mr__strbuf_append(o, ",,,", 3);
-        return mu;
-    }
+    double d, var;
     c->family.ops->unit_deviance_n(&c->family, &row->y, &mu, 1, &d);
     c->family.ops->variance_n(&c->family, &mu, 1, &var);
     d *= row->prior;
     put_number(o, row->y - mu, 1);
     put_number(o, (row->y - mu) * sqrt(row->prior / var), 1);
     put_number(o, (row->y > mu ? 1 : row->y < mu ? -1 : 0) * sqrt(d > 0 ? d : 0), 1);
+}
+
+/* Writes the row's predictions (and residuals, empty where the outcome
+ * is missing); returns its mean. */
+static double put_predictions(const score_worker *sw, mr__strbuf *out, size_t m, const score_row *row)
+{
+    const mr__score_cfg *c = sw->c;
+    row_text o;
+    double eta, se, mu, lo, hi;
+    o.n = 0;
+    linear_predictor(sw, m, row->off, &eta, &se);
+    mu = inverse_link(c, eta);
+    lo = inverse_link(c, eta - c->z * se);
+    hi = inverse_link(c, eta + c->z * se);
+    put_number(&o, eta, c->nkeep > 0);
+    put_number(&o, se, 1);
+    put_number(&o, mu, 1);
+    put_number(&o, lo < hi ? lo : hi, 1);
+    put_number(&o, lo < hi ? hi : lo, 1);
+    if (c->role_field[MR__SCORE_OUTCOME] >= 0 && !row->has_y) {
+        memcpy(o.t + o.n, ",,,", 3);
+        o.n += 3;
+    } else if (c->role_field[MR__SCORE_OUTCOME] >= 0) {
+        put_residuals(sw, &o, row, mu);
+    }
+    mr__strbuf_append(out, o.t, o.n);
     return mu;
 }
 
@@ -299,7 +330,7 @@ static void score_one(score_worker *sw, uint32_t r, score_slot *out)
         if (c->nby && row.has_y) note_group_row(sw, out, &row, mu);
     } else {
         for (i = c->nkeep > 0 ? 0 : 1; i < ncols; i++) mr__strbuf_append(&out->out, ",", 1);
-        if (why == ROW_UNSEEN) out->unseen++;
+        if (why == ROW_UNSEEN || why == ROW_NO_ESTIMATE) out->unseen++;
         else out->missing++;
     }
     mr__strbuf_append(&out->out, "\n", 1);

@@ -17,7 +17,7 @@ enum {
     OPT_MAX_PASSES, OPT_LEVEL, OPT_DELIMITER, OPT_MISSING, OPT_IN_MEMORY, OPT_ON_BAD_ROW, OPT_JSON, OPT_QUIET,
     OPT_DIGITS, OPT_NO_CACHE, OPT_NO_COLLAPSE, OPT_START_FROM, OPT_HELP, OPT_RUN_LOG, OPT_THRESHOLD, OPT_CSV,
     OPT_FIT, OPT_OUT, OPT_KEEP, OPT_UNSEEN, OPT_BY, OPT_BY_OUT, OPT_DROP_ONE, OPT_FIT_JSON, OPT_ROBUST, OPT_CLUSTER,
-    OPT_CLUSTER_MEMORY, OPT_CHECKPOINT
+    OPT_CLUSTER_MEMORY, OPT_CHECKPOINT, OPT_PROGRESS
 };
 
 /* The run's options, in fit's table and compare's (each model's fitter
@@ -50,6 +50,10 @@ typedef struct cli {
     mr_fitter *fitter;
     const char *json_path, *run_log;
     int quiet, digits, missing_given, progress_shown, show_progress;
+    int progress_lines;   /* --progress: a line a pass (and every 10 s) when stderr is no terminal */
+    mr_progress last;     /* the last progress seen in line mode */
+    double line_due;      /* when in the pass the next line is due */
+    const char *share_note; /* cli_fit_hooks */
     const char *data;     /* set once the arguments are read: the run gets logged */
     int argc;             /* the whole command line, for the fit's audit trail */
     char **argv;
@@ -68,11 +72,13 @@ typedef struct cli {
  * library's own).  run fits the data in place of mr_fitter_run_set.
  * no_outputs: another process writes the outputs (millrace-mpi's ranks
  * but 0, mpi_main.c): no output checks, JSON, lock or run log here, and
- * the fit's status is the exit code. */
+ * the fit's status is the exit code.  share_note: what a progress line's
+ * counts cover when they are one process's share of a pass (NULL: all). */
 typedef struct cli_fit_hooks {
     mr_status (*run)(mr_fitter *fitter, const char *const *data, size_t ndata, mr_fit **out, void *user);
     void *user;
     int no_outputs;
+    const char *share_note;
 } cli_fit_hooks;
 
 /* cli.c */

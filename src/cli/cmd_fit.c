@@ -10,6 +10,36 @@
 
 #include "cli.h"
 
+/* --progress where stderr is no terminal (a log file, mpirun's pipe): a
+ * line every 10 seconds of a pass and one when it ends, read by people
+ * who look later. */
+enum { LINE_EVERY_SECONDS = 10 };
+
+static void pass_done_line(const cli *c)
+{
+    const mr_progress *p = &c->last;
+    /* the first pass is never split between processes */
+    const char *note = p->pass > 1 && c->share_note ? c->share_note : "";
+    fprintf(stderr, "pass %d done: %llu rows%s in %.1f s\n", p->pass, (unsigned long long)p->rows_done, note,
+            p->seconds);
+}
+
+static void line_progress(const mr_progress *p, cli *c)
+{
+    if (c->last.pass != 0 && p->pass != c->last.pass) pass_done_line(c);
+    if (p->pass != c->last.pass) c->line_due = LINE_EVERY_SECONDS;
+    if (p->seconds >= c->line_due) {
+        const char *note = p->pass > 1 && c->share_note ? c->share_note : "";
+        if (p->bytes_total > 0 && !note[0])
+            fprintf(stderr, "pass %d: %.1f%% of the input, %llu rows, %.0f s\n", p->pass,
+                    100.0 * (double)p->bytes_done / (double)p->bytes_total, (unsigned long long)p->rows_done, p->seconds);
+        else fprintf(stderr, "pass %d: %llu rows%s, %.0f s\n", p->pass, (unsigned long long)p->rows_done, note,
+                     p->seconds);
+        c->line_due = p->seconds + LINE_EVERY_SECONDS;
+    }
+    c->last = *p;
+}
+
 static void show_progress(const mr_progress *p, cli *c)
 {
     double rate = p->seconds > 0 ? p->rows_done / p->seconds : 0;
@@ -95,6 +125,7 @@ static int progress_or_stop(const mr_progress *p, void *user)
     cli *c = user;
     if (kill_rows_set && p->pass == kill_pass && p->rows_done >= kill_rows) raise(SIGKILL);
     if (c->show_progress) show_progress(p, c);
+    else if (c->progress_lines && !c->quiet) line_progress(p, c);
     return cli_stop_signal() != 0;
 }
 
@@ -116,6 +147,7 @@ static int run_fit(cli *c, int argc, char **argv, const cli_fit_hooks *hooks)
         return cli_fail(MR_ERR_NO_MEMORY, "out of memory");
     if (writes && (rc = cli_lock_output(c->json_path, &c->lock)) != 0) return rc;
     c->show_progress = !c->quiet && isatty(STDERR_FILENO);
+    c->share_note = hooks != NULL ? hooks->share_note : NULL;
     mr_fitter_set_progress_stop(c->fitter, progress_or_stop, c);
     cli_stop_at_block(1);
     read_test_kill();
@@ -128,6 +160,7 @@ static int run_fit(cli *c, int argc, char **argv, const cli_fit_hooks *hooks)
     if (mr_fitter_checkpoint_note(c->fitter)[0])
         fprintf(stderr, "millrace: %s\n", mr_fitter_checkpoint_note(c->fitter));
     if (c->progress_shown) fputs("\r\033[K", stderr);
+    if (c->last.pass != 0) pass_done_line(c);
     if (cli_stop_signal()) {
         mr_fit_free(fit);
         return cli_stopped();

@@ -30,6 +30,7 @@ const struct option cli_fit_options[] = {
     {"json", required_argument, NULL, OPT_JSON},
     {"run-log", required_argument, NULL, OPT_RUN_LOG},
     {"quiet", no_argument, NULL, OPT_QUIET},
+    {"progress", no_argument, NULL, OPT_PROGRESS},
     {"digits", required_argument, NULL, OPT_DIGITS},
     {"help", no_argument, NULL, OPT_HELP},
     {"fit", required_argument, NULL, OPT_FIT},
@@ -191,6 +192,7 @@ int cli_fit_option(void *ctx, int opt, const char *arg)
         if (mr_fitter_set_checkpoint(c->fitter, arg) != MR_OK) return cli_fail(MR_ERR_NO_MEMORY, "out of memory");
         return CLI_NEXT;
     case OPT_QUIET: c->quiet = 1; return CLI_NEXT;
+    case OPT_PROGRESS: c->progress_lines = 1; return CLI_NEXT;
     case OPT_DIGITS: return cli_next(cli_digits(arg, &c->digits));
     case OPT_HELP: fputs(cli_usage_text, stdout); return 0;
     default: return cli_usage_error("unknown option");

@@ -89,6 +89,7 @@ static int run(int argc, char **argv, mr_share *share)
     hooks.run = shared_run;
     hooks.user = share;
     hooks.no_outputs = mr_share_rank(share) != 0;
+    hooks.share_note = " (this process's share)";
     if (argc < 2 || strcmp(argv[1], "fit") != 0)
         rc = cli_usage_error("millrace-mpi runs one command: mpirun -np N millrace-mpi fit [options] DATA...");
     else rc = cmd_fit(argc - 1, argv + 1, &hooks);

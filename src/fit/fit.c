@@ -12,9 +12,53 @@
 
 static void free_strings(char **s, size_t n) { mr__strings_free(s, n); }
 
-void mr_fit_free(mr_fit *fit)
+/* The model's description: terms, model lines, factors. */
+static void free_model_parts(mr_fit *fit)
+{
+    size_t i, k;
+    for (i = 0; fit->term && i < fit->nterms; i++) {
+        mr__free(fit->term[i].label);
+        for (k = 0; k < MR__MAX_INTERACT; k++) mr__free(fit->term[i].part[k]);
+        mr__free(fit->term[i].spline_column);
+        mr__free(fit->term[i].knots);
+        mr__free(fit->term[i].boundary);
+    }
+    mr__free(fit->term);
+    free_strings(fit->model_line, fit->nmodel_lines);
+    free_strings(fit->model_origin, fit->nmodel_lines);
+    for (i = 0; fit->factor && i < fit->nfactors; i++) {
+        mr__free(fit->factor[i].name);
+        mr__free(fit->factor[i].reference);
+        free_strings(fit->factor[i].level, fit->factor[i].nlevels);
+    }
+    mr__free(fit->factor);
+    for (i = 0; fit->numeric && i < fit->nnumerics; i++) mr__free(fit->numeric[i].name);
+    mr__free(fit->numeric);
+}
+
+/* Where the fit came from: its input, run and command. */
+static void free_run_parts(mr_fit *fit)
 {
     size_t i;
+    free_strings(fit->missing_name, fit->nmissing);
+    mr__free(fit->missing_count);
+    free_strings(fit->bad_example, fit->nbad_examples);
+    free_strings(fit->missing_token, fit->nmissing_tokens);
+    mr__free(fit->pass_seconds);
+    mr__free(fit->path);
+    for (i = 0; fit->set_file && i < fit->nset_files; i++) mr__free(fit->set_file[i].path);
+    mr__free(fit->set_file);
+    mr__free(fit->start_from);
+    mr__free(fit->version);
+    free_strings(fit->warning, fit->nwarnings);
+    free_strings(fit->command_line, fit->ncommand_line);
+    mr__free(fit->started);
+    mr__free(fit->ended);
+    mr__free(fit->host);
+}
+
+void mr_fit_free(mr_fit *fit)
+{
     if (fit == NULL) return;
     free_strings(fit->name, fit->p);
     mr__free(fit->aliased);
@@ -35,43 +79,11 @@ void mr_fit_free(mr_fit *fit)
     mr__free(fit->offset);
     mr__free(fit->exposure);
     mr__free(fit->weight);
-    for (i = 0; fit->term && i < fit->nterms; i++) {
-        size_t k;
-        mr__free(fit->term[i].label);
-        for (k = 0; k < MR__MAX_INTERACT; k++) mr__free(fit->term[i].part[k]);
-        mr__free(fit->term[i].spline_column);
-        mr__free(fit->term[i].knots);
-        mr__free(fit->term[i].boundary);
-    }
-    mr__free(fit->term);
-    free_strings(fit->model_line, fit->nmodel_lines);
-    free_strings(fit->model_origin, fit->nmodel_lines);
-    for (i = 0; fit->factor && i < fit->nfactors; i++) {
-        mr__free(fit->factor[i].name);
-        mr__free(fit->factor[i].reference);
-        free_strings(fit->factor[i].level, fit->factor[i].nlevels);
-    }
-    mr__free(fit->factor);
-    free_strings(fit->missing_name, fit->nmissing);
-    mr__free(fit->missing_count);
-    free_strings(fit->bad_example, fit->nbad_examples);
-    free_strings(fit->missing_token, fit->nmissing_tokens);
-    mr__free(fit->pass_seconds);
     mr__free(fit->calib_basis);
     mr__free(fit->calib);
     mr__free(fit->profile);
-    mr__free(fit->path);
-    for (i = 0; fit->set_file && i < fit->nset_files; i++) mr__free(fit->set_file[i].path);
-    mr__free(fit->set_file);
-    mr__free(fit->start_from);
-    mr__free(fit->version);
-    free_strings(fit->warning, fit->nwarnings);
-    free_strings(fit->command_line, fit->ncommand_line);
-    mr__free(fit->started);
-    mr__free(fit->ended);
-    for (i = 0; fit->numeric && i < fit->nnumerics; i++) mr__free(fit->numeric[i].name);
-    mr__free(fit->numeric);
-    mr__free(fit->host);
+    free_model_parts(fit);
+    free_run_parts(fit);
     mr__fit_free_many(fit);
     mr__free(fit);
 }

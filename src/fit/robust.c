@@ -175,6 +175,25 @@ double mr_fit_robust_covariance(const mr_fit *fit, size_t i, size_t j)
 
 /* ---- the meat pass ------------------------------------------------------ */
 
+/* Over this rank's blocks (by rows only: fit/share.c refuses clusters),
+ * then every rank's groups added in order, as one process would. */
+static mr_status shared_meat_pass(mr__run *r, mr__pass_cfg *c, mr__error *err)
+{
+    mr__partial_range range = mr__share_range(r);
+    mr__bytebuf groups;
+    mr_status st;
+    memset(&groups, 0, sizeof groups);
+    c->range = &range;
+    c->groups_out = &groups;
+    mr__pass_result_release(&r->meat, 0);
+    st = mr__pass_run(c, &r->meat, err);
+    /* this rank's own check first: every rank then learns how it went */
+    if (st == MR_OK && c->store == NULL) st = mr__run_check_same_input(r, &r->meat, err);
+    st = mr__share_reduce_meat(r, st, &groups, &r->meat, err);
+    mr__bytebuf_release(&groups);
+    return st == MR_OK ? mr__run_note_pass(r, &r->meat, err) : st;
+}
+
 /* One pass at the final coefficients for the sandwich's meat (accum/meat.h):
  * by rows from the kept blocks when there are any, else from the input
  * (collapsed patterns cannot give it: within a pattern the rows' residuals
@@ -209,6 +228,7 @@ static mr_status meat_pass(mr__run *r, int table, mr__error *err)
         c.store = &r->store;
         c.store_fill = 0;
     }
+    if (mr__shared(r)) return shared_meat_pass(r, &c, err);
     mr__pass_result_release(&r->meat, 0);
     st = mr__pass_run(&c, &r->meat, err);
     if (st != MR_OK) return st;

@@ -277,7 +277,8 @@ mr_status mr__run_rest(mr__run *r, mr_fit **out)
     if (st == MR_OK) st = allocate_coefficients(r, err);
     if (st == MR_OK && r->first.collapsed) st = mr__build_patterns(r, err);
     if (st == MR_OK) st = mr__settle_store(r, err);
-    if (st == MR_OK && f->start) st = mr__start_map(f->start, &r->design, r->beta_warm, &r->start_carried, err);
+    if (st == MR_OK && f->start)
+        st = mr__start_map(f->start, &r->design, NULL, r->beta_warm, &r->start_carried, &r->start_guessed, err);
     r->started = st == MR_OK && f->start != NULL;
     /* a previous fit's point is nearer the maximum than a sample's: the
      * warm start then only gives its sample back */

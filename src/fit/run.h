@@ -73,6 +73,7 @@ typedef struct mr__run {
     int param_known;
     double loglik_dispersion;
     size_t start_carried;  /* how many of them came from it */
+    size_t start_guessed;  /* values it could not give (start.h) */
     int warm_blocks, warm_polish_blocks; /* sample blocks of the two stages (0: none) */
     double null_b0, rel_change;
     int iterations, halvings, converged, by_step;
@@ -248,13 +249,19 @@ mr_status mr__share_join(mr__run *r, mr__error *err);
  * pass's result sent to every rank. */
 mr_status mr__share_send_start(mr__run *r, const mr__irls *s, mr__error *err);
 
-/* The blocks of this rank's IRLS passes over the data: whole groups. */
+/* The blocks of this rank's IRLS and meat passes over the data: whole
+ * groups. */
 mr__partial_range mr__share_range(const mr__run *r);
 
 /* After this rank's IRLS pass (st: how it went; groups: its group totals):
  * every rank's totals added in group order into res->sums, or the lowest
  * failing rank's error. */
 mr_status mr__share_reduce(mr__run *r, mr_status st, const mr__bytebuf *groups, mr__pass_result *res, mr__error *err);
+
+/* The same after the meat pass by rows (robust.c): its rows' totals into
+ * res->sums, its bread into res->bread. */
+mr_status mr__share_reduce_meat(mr__run *r, mr_status st, const mr__bytebuf *groups, mr__pass_result *res,
+                                mr__error *err);
 
 /* The run's end (st: how it went): a failure not yet exchanged is, and
  * err then holds the error every rank ends with. */

@@ -13,6 +13,7 @@
 #include "fit/fitter.h"
 #include "fit/irls.h"
 #include "fit/run.h"
+#include "fit/start.h"
 #include "model/design.h"
 
 /* ---- IRLS -------------------------------------------------------------- */
@@ -302,13 +303,13 @@ static int sample_fit(mr__run *r, size_t stride, const double *start, int max_it
     return ok;
 }
 
-/* One step on the whole sample from the quarter's fit. */
-static void polish_start(mr__run *r, const mr__store *sample)
+/* One step on the whole sample from the quarter's fit (in `beta`). */
+static void polish_start(mr__run *r, const mr__store *sample, double *beta)
 {
     double *polished = mr__malloc_array(mr__design_ncoef(&r->design), sizeof *polished), param = r->family.param;
     int steps;
-    if (polished != NULL && sample_fit(r, 1, r->beta_warm, 1, polished, &steps)) {
-        memcpy(r->beta_warm, polished, mr__design_ncoef(&r->design) * sizeof *polished);
+    if (polished != NULL && sample_fit(r, 1, beta, 1, polished, &steps)) {
+        memcpy(beta, polished, mr__design_ncoef(&r->design) * sizeof *polished);
         r->warm_polish_blocks = (int)sample->n;
     } else {
         r->family.param = param;
@@ -325,25 +326,53 @@ static void warm_param(mr__run *r, double plain)
     if (!r->param_known) r->family.param = plain;
 }
 
+/* The sample's fit into `beta` (r->warm says whether it worked). */
+static void sample_start(mr__run *r, mr__store *sample, size_t stride, double *beta)
+{
+    double plain = r->family.param;
+    r->warm = sample_fit(r, stride, NULL, 25, beta, &r->warm_iterations);
+    r->warm_blocks = (int)((sample->n + stride - 1) / stride);
+    warm_param(r, plain);
+    /* on a whole small file, a step on all of it is a full pass */
+    if (r->warm && r->first.sample_stride != 1) polish_start(r, sample, beta);
+}
+
+/* A previous fit's point is nearer the maximum than a sample's, except
+ * in what it lacks: a new level starting at 0 can sit many standard
+ * errors from its estimate, and costs full passes to walk in.  Those
+ * coefficients take the sample's values; the rest stay the previous
+ * fit's. */
+static void fill_new_coefficients(mr__run *r, mr__store *sample, size_t stride)
+{
+    double *beta = mr__malloc_array(mr__design_ncoef(&r->design), sizeof *beta), *prev = NULL;
+    size_t carried, guessed;
+    mr__error scratch;
+    if (beta != NULL) sample_start(r, sample, stride, beta);
+    if (r->warm && (prev = mr__malloc_array(r->design.p, sizeof *prev)) != NULL) {
+        memcpy(prev, r->beta_warm, r->design.p * sizeof *prev);
+        if (mr__start_map(r->f->start, &r->design, beta, r->beta_warm, &carried, &guessed, &scratch) != MR_OK)
+            memcpy(r->beta_warm, prev, r->design.p * sizeof *prev);
+    }
+    mr__free(prev);
+    mr__free(beta);
+}
+
 void mr__run_warm_start(mr__run *r)
 {
     mr__store *sample = &r->first.sample;
-    double plain = r->family.param;
     /* the first stage takes a quarter to a half of the sample's blocks; a
      * file of fewer than MR__SAMPLE_BLOCKS / 2 blocks gains little from
      * any of this */
     size_t stride = sample->n / (MR__SAMPLE_BLOCKS / 4);
-    int whole_file = r->first.sample_stride == 1;
+    int fill = r->started && r->start_guessed > 0 && r->design.nabsorb == 0;
     mr__error scratch;
     /* the sample holds first-pass level numbers, as the cache does; with
      * no cache, or a cache started afresh, the maps are not made yet */
-    if (!r->started && !r->collapsed && stride >= 2 && (r->remap != NULL || mr__build_remap(r, &scratch) == MR_OK)) {
+    if ((!r->started || fill) && !r->collapsed && stride >= 2 &&
+        (r->remap != NULL || mr__build_remap(r, &scratch) == MR_OK)) {
         mr__store_remap(sample, r->remap, r->bind.nfac);
-        r->warm = sample_fit(r, stride, NULL, 25, r->beta_warm, &r->warm_iterations);
-        r->warm_blocks = (int)((sample->n + stride - 1) / stride);
-        /* on a whole small file, a step on all of it is a full pass */
-        warm_param(r, plain);
-        if (r->warm && !whole_file) polish_start(r, sample);
+        if (fill) fill_new_coefficients(r, sample, stride);
+        else sample_start(r, sample, stride, r->beta_warm);
     }
     mr__store_release(sample);
     mr__store_init_packed(sample);

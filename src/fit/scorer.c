@@ -161,6 +161,13 @@ static mr_status make_term(scoring *g, const mr__fit_term *ft, mr__score_term *t
     t->nparts = (int)ft->nparts;
     t->full = ft->full;
     t->first = ft->first;
+    /* a main effect alone (spec.c): its levels are many_beta's */
+    t->many = g->c.many_var >= 0 && ft->nparts == 1 && strcmp(ft->part[0], g->s->fit->many_factor) == 0;
+    if (t->many) {
+        t->is_factor[0] = 1;
+        t->var[0] = (size_t)g->c.many_var;
+        return MR_OK;
+    }
     for (k = 0; k < t->nparts; k++) {
         long f = mr__fit_find_factor(g->s->fit, ft->part[k]);
         t->is_factor[k] = f >= 0;
@@ -196,14 +203,35 @@ static mr_status make_coefficients(scoring *g, mr__error *err)
     return MR_OK;
 }
 
+/* The `many` factor's estimates by its level numbers here. */
+static mr_status make_many(scoring *g, mr__error *err)
+{
+    const mr_fit *fit = g->s->fit;
+    const mr__score_factor *f;
+    size_t k, n;
+    long v = fit->many_given ? mr__fit_find_factor(fit, fit->many_factor) : -1;
+    g->c.many_var = v;
+    if (v < 0) return fit->many_given ? mr__fail(err, MR_ERR_FORMAT, "fit: its many factor is not among its factors") : MR_OK;
+    f = &g->c.fac[v];
+    n = f->levels.n;
+    if ((g->c.many_beta = mr__malloc_array(n + 1, sizeof *g->c.many_beta)) == NULL)
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (k = 0; k < n; k++) g->c.many_beta[k] = NAN;
+    if (f->ref >= 0) g->c.many_beta[f->ref] = 0;
+    for (k = 0; k < fit->nmany; k++) {
+        int32_t id = mr__levelset_find(&f->levels, fit->many_level[k], strlen(fit->many_level[k]));
+        if (id < 0) return mr__fail(err, MR_ERR_FORMAT, "fit: many level '%s' is not a level of '%s'",
+                                    fit->many_level[k], fit->many_factor);
+        g->c.many_beta[id] = fit->many_beta[k];
+    }
+    return MR_OK;
+}
+
 static mr_status make_model(scoring *g, mr__error *err)
 {
     const mr_fit *fit = g->s->fit;
     size_t i, parts = 0;
-    /* its levels' estimates are not among the coefficients a scorer reads */
-    if (fit->many_given)
-        return mr__fail(err, MR_ERR_USAGE, "fit: scoring a fit with a 'many' factor ('%s') is not supported",
-                        fit->many_factor);
+    g->c.many_var = -1;
     for (i = 0; i < fit->nterms; i++) parts += fit->term[i].nparts;
     g->c.term = mr__calloc(fit->nterms + 1, sizeof *g->c.term);
     g->c.num = mr__calloc(parts + 1, sizeof *g->c.num);
@@ -211,6 +239,7 @@ static mr_status make_model(scoring *g, mr__error *err)
     if (!g->c.term || !g->c.num || !g->num_name) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     MR__TRY(make_coefficients(g, err));
     MR__TRY(make_factors(g, err));
+    MR__TRY(make_many(g, err));
     for (i = 0; i < fit->nterms; i++) MR__TRY(make_term(g, &fit->term[i], &g->c.term[g->c.nterms++], err));
     g->c.intercept = fit->intercept;
     g->c.family = mr__family_plain((mr_family)fit->family);
@@ -354,6 +383,7 @@ static void release_scoring(scoring *g)
     mr__free(g->num_name);
     mr__free((void *)g->c.beta);
     mr__free((void *)g->c.cov);
+    mr__free(g->c.many_beta);
     mr__free(g->c.keep_field);
     mr__free(g->c.by_field);
     mr__levelset_release(&g->c.groups);

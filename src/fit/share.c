@@ -164,8 +164,8 @@ static mr_status refuse(const mr__run *r, mr__error *err)
         why = "standard input or a pipe (each process reads the input itself: give a file)";
     else if (f->checkpoint != NULL)
         why = "a checkpoint";
-    else if (mr__robust_type(f) != MR_ROBUST_NONE)
-        why = "robust or cluster standard errors (their pass is not split yet)";
+    else if (f->cluster != NULL)
+        why = "cluster-robust standard errors (a cluster's rows may span processes)";
     else if (mr__spec_many(&f->spec) >= 0)
         why = "a factor declared many (its levels' sums are not exchanged yet)";
     if (why == NULL) return MR_OK;
@@ -227,26 +227,45 @@ static mr_status test_error(const mr__run *r, mr__error *err)
                     r->display, rank, pass);
 }
 
-mr_status mr__share_reduce(mr__run *r, mr_status st, const mr__bytebuf *groups, mr__pass_result *res, mr__error *err)
+/* Every rank's groups, in rank order (the group order), into the k
+ * zeroed totals. */
+static mr_status reduce_groups(mr__run *r, mr_status st, const mr__bytebuf *groups, mr__block_sums *const *totals,
+                               size_t k, mr__error *err)
 {
     mr_share *s = r->f->share;
-    size_t p = r->design.p;
-    uint64_t next = 0;
-    int k;
+    size_t p = r->design.p, i;
+    uint64_t next[2] = {0, 0};
+    int rank;
     if (st == MR_OK) st = test_error(r, err);
     if (st == MR_OK && groups->failed) st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     MR__TRY(exchange(s, st, err->msg, groups, err));
-    /* every rank's groups, in rank order: the group order */
-    mr__sums_zero_totals(&res->sums, p);
-    for (k = 0; k < s->nranks; k++) {
+    for (i = 0; i < k; i++) mr__sums_zero_totals(totals[i], p);
+    for (rank = 0; rank < s->nranks; rank++) {
         mr__byteread rd;
-        mr__byteread_init(&rd, s->got[k], s->got_len[k]);
-        MR__TRY(mr__group_add_all(&rd, p, &res->sums, &next, err));
+        mr__byteread_init(&rd, s->got[rank], s->got_len[rank]);
+        MR__TRY(mr__group_add_each(&rd, p, totals, k, next, err));
     }
-    if (next != r->first.map.n)
-        return mr__fail(err, MR_ERR_INTERNAL, "the processes' group totals cover %llu blocks of %llu",
-                        (unsigned long long)next, (unsigned long long)r->first.map.n);
+    for (i = 0; i < k; i++)
+        if (next[i] != r->first.map.n)
+            return mr__fail(err, MR_ERR_INTERNAL, "the processes' group totals cover %llu blocks of %llu",
+                            (unsigned long long)next[i], (unsigned long long)r->first.map.n);
     return MR_OK;
+}
+
+mr_status mr__share_reduce(mr__run *r, mr_status st, const mr__bytebuf *groups, mr__pass_result *res, mr__error *err)
+{
+    mr__block_sums *totals[1];
+    totals[0] = &res->sums;
+    return reduce_groups(r, st, groups, totals, 1, err);
+}
+
+mr_status mr__share_reduce_meat(mr__run *r, mr_status st, const mr__bytebuf *groups, mr__pass_result *res,
+                                mr__error *err)
+{
+    mr__block_sums *totals[2];
+    totals[0] = &res->sums;
+    totals[1] = &res->bread;
+    return reduce_groups(r, st, groups, totals, 2, err);
 }
 
 mr_status mr__share_end(mr__run *r, mr_status st, mr__error *err)

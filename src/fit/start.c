@@ -173,10 +173,21 @@ static const char *changed_reference(const mr__start *s, const mr__factor *fac)
     return NULL;
 }
 
+/* b_old(new reference) for a reference the previous fit never saw: the
+ * sample's estimate of the old reference under the new one, negated, or
+ * 0 (as the old reference) without a sample. */
+static double new_reference_shift(const mr__factor *fac, const mr__term *t, const char *old_ref, const double *fill)
+{
+    size_t l;
+    for (l = 0; fill != NULL && l < fac->nlevels; l++)
+        if (strcmp(fac->level[l], old_ref) == 0 && t->colmap[l] >= 0) return -fill[t->colmap[l]];
+    return 0;
+}
+
 /* A factor's main effect under a new reference: level L's coefficient
  * becomes b_old(L) - b_old(new reference), the intercept gains the latter. */
 static mr_status move_reference(const mr__start *s, const mr__design *d, const mr__term *t, const char *old_ref,
-                                double *raw, int *known)
+                                const double *fill, double *raw, int *known, size_t *guessed)
 {
     const mr__factor *fac = &d->fac[t->fac[0]];
     mr__strbuf sb;
@@ -186,13 +197,14 @@ static mr_status move_reference(const mr__start *s, const mr__design *d, const m
     mr__strbuf_init(&sb);
     mr__strbuf_printf(&sb, "%s=%s", fac->name, fac->level[fac->ref]); /* as design.c names a column */
     if ((name = mr__strbuf_take(&sb)) == NULL) return MR_ERR_NO_MEMORY;
-    if (!previous(s, name, &shift)) shift = 0; /* a new level: as the old reference */
+    if (!previous(s, name, &shift)) shift = new_reference_shift(fac, t, old_ref, fill), (*guessed)++;
     mr__free(name);
     for (l = 0; l < fac->nlevels; l++) {
         int32_t j = t->colmap[l];
         if (j < 0) continue;
         if (strcmp(fac->level[l], old_ref) == 0) raw[j] = 0, known[j] = 1;
-        raw[j] -= shift;
+        /* a filled value is already under the new reference */
+        if (known[j] || fill == NULL) raw[j] -= shift;
     }
     raw[0] += shift;
     return MR_OK;
@@ -207,21 +219,23 @@ static int term_has_changed_factor(const mr__start *s, const mr__design *d, cons
     return 0;
 }
 
-static mr_status raw_start(const mr__start *s, const mr__design *d, double *raw, int *known)
+/* `fill`: raw values for the coefficients the previous fit lacks (NULL: 0). */
+static mr_status raw_start(const mr__start *s, const mr__design *d, const double *fill, double *raw, int *known,
+                           size_t *guessed)
 {
     size_t j, ti;
     for (j = 0; j < d->p; j++) known[j] = previous(s, d->name[j], &raw[j]);
     for (j = 0; j < d->p; j++)
-        if (!known[j]) raw[j] = 0;
+        if (!known[j]) raw[j] = fill ? fill[j] : 0, (*guessed)++;
     for (ti = 0; ti < d->nterms; ti++) {
         const mr__term *t = &d->term[ti];
         const char *old_ref;
         if (!term_has_changed_factor(s, d, t, &old_ref)) continue;
         if (t->nfac == 1 && t->nnum == 0 && d->intercept) {
-            MR__TRY(move_reference(s, d, t, old_ref, raw, known));
+            MR__TRY(move_reference(s, d, t, old_ref, fill, raw, known, guessed));
             continue;
         }
-        for (j = t->col0; j < t->col0 + t->ncols; j++) raw[j] = 0, known[j] = 0;
+        for (j = t->col0; j < t->col0 + t->ncols; j++) raw[j] = fill ? fill[j] : 0, known[j] = 0, (*guessed)++;
     }
     return MR_OK;
 }
@@ -239,18 +253,33 @@ static void raw_to_internal(const mr__design *d, const double *raw, double *inte
     }
 }
 
-mr_status mr__start_map(const mr__start *s, const mr__design *d, double *internal, size_t *carried, mr__error *err)
+static void internal_to_raw(const mr__design *d, const double *internal, double *raw)
+{
+    size_t p = d->p, j, k;
+    for (j = 0; j < p; j++) {
+        double v = 0;
+        for (k = j; k < p; k++) v += d->A[k * p + j] * internal[k];
+        raw[j] = v;
+    }
+}
+
+mr_status mr__start_map(const mr__start *s, const mr__design *d, const double *fill, double *internal,
+                        size_t *carried, size_t *guessed, mr__error *err)
 {
     double *raw = mr__calloc(d->p + 1, sizeof *raw);
+    double *raw_fill = fill ? mr__calloc(d->p + 1, sizeof *raw_fill) : NULL;
     int *known = mr__calloc(d->p + 1, sizeof *known);
-    mr_status st = raw && known ? raw_start(s, d, raw, known) : MR_ERR_NO_MEMORY;
+    mr_status st = raw && known && (raw_fill || !fill) ? MR_OK : MR_ERR_NO_MEMORY;
     size_t j;
-    *carried = 0;
+    *carried = *guessed = 0;
+    if (st == MR_OK && fill) internal_to_raw(d, fill, raw_fill);
+    if (st == MR_OK) st = raw_start(s, d, raw_fill, raw, known, guessed);
     if (st == MR_OK) {
         raw_to_internal(d, raw, internal);
         for (j = 0; j < d->p; j++) *carried += known[j] != 0;
     }
     mr__free(raw);
+    mr__free(raw_fill);
     mr__free(known);
     return st == MR_OK ? MR_OK : mr__fail(err, st, "out of memory");
 }

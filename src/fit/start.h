@@ -39,8 +39,12 @@ void mr__start_free(mr__start *s);
 mr_status mr__start_check(const mr__start *s, const mr__spec *spec, mr__error *err);
 
 /* The start on the design's internal scale (p values in `internal`), and
- * how many of the design's coefficients came from `s` (*carried). */
-mr_status mr__start_map(const mr__start *s, const mr__design *d, double *internal, size_t *carried,
-                        mr__error *err);
+ * how many of the design's coefficients came from `s` (*carried).  What
+ * `s` cannot give (*guessed values: a new level's coefficient, an
+ * interaction of a factor whose reference moved, the old coefficient of a
+ * new reference level) comes from `fill`, internal coefficients of the
+ * same design (a sample's fit), or is 0 when it is NULL. */
+mr_status mr__start_map(const mr__start *s, const mr__design *d, const double *fill, double *internal,
+                        size_t *carried, size_t *guessed, mr__error *err);
 
 #endif

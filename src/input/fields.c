@@ -191,8 +191,11 @@ const char *const mr__default_missing[MR__DEFAULT_MISSING_N] = {"", "NA"};
 int mr__cell_is_token(const char *const *tokens, size_t ntokens, const char *p, size_t len)
 {
     size_t i;
+    /* the first byte first: most cells are numbers, no token's start */
     for (i = 0; i < ntokens; i++)
-        if (strlen(tokens[i]) == len && memcmp(tokens[i], p, len) == 0) return 1;
+        if (len == 0 ? tokens[i][0] == '\0'
+                     : tokens[i][0] == p[0] && strlen(tokens[i]) == len && memcmp(tokens[i], p, len) == 0)
+            return 1;
     return 0;
 }
 

@@ -6,6 +6,7 @@
 #include <string.h>
 
 #include "common/alloc.h"
+#include "common/dtoa.h"
 #include "common/outfile.h"
 #include "common/strbuf.h"
 #include "output/drift.h"
@@ -159,11 +160,11 @@ static void csv_text(mr__strbuf *b, const char *s)
     mr__strbuf_append(b, "\"", 1);
 }
 
-/* 17 significant digits give the double back; NaN is the empty cell. */
+/* The shortest text that gives the double back; NaN is the empty cell. */
 static void csv_number(mr__strbuf *b, double x)
 {
-    if (isnan(x)) mr__strbuf_printf(b, ",");
-    else mr__strbuf_printf(b, ",%.17g", x);
+    char t[MR__DTOA_SIZE + 1] = ",";
+    mr__strbuf_append(b, t, isnan(x) ? 1 : 1 + mr__dtoa(x, t + 1));
 }
 
 static char *drift_csv(const mr_drift *d)

@@ -31,14 +31,27 @@ static json_t *flags(const mr_fit *fit)
     return a;
 }
 
+/* A set's files as the fit read them (a directory's, in their order);
+ * null for one file. */
+static json_t *set_files(const mr_fit *fit)
+{
+    json_t *a;
+    size_t i;
+    if (fit->nset_files == 0) return json_null();
+    a = json_array();
+    for (i = 0; a != NULL && i < fit->nset_files; i++) a = mr__json_append(a, mr__json_text(fit->set_file[i].path));
+    return a;
+}
+
 static json_t *from_fit(json_t *o, const mr_fit *fit)
 {
     if (fit == NULL) {
-        const char *keys[] = {"rows_read", "rows_used", "passes", "seconds", "flags"};
+        const char *keys[] = {"files", "rows_read", "rows_used", "passes", "seconds", "flags"};
         size_t i;
         for (i = 0; i < sizeof keys / sizeof keys[0]; i++) o = mr__json_put(o, keys[i], json_null());
         return o;
     }
+    o = mr__json_put(o, "files", set_files(fit));
     o = mr__json_put(o, "rows_read", json_integer((json_int_t)fit->rows_read));
     o = mr__json_put(o, "rows_used", json_integer((json_int_t)fit->rows_used));
     o = mr__json_put(o, "passes", json_integer(fit->passes));

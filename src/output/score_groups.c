@@ -24,6 +24,7 @@
 #include <string.h>
 
 #include "common/alloc.h"
+#include "common/dtoa.h"
 #include "common/outfile.h"
 #include "common/strbuf.h"
 #include "family/family.h"
@@ -107,7 +108,15 @@ static void csv_cell(mr__strbuf *b, const char *p, size_t n)
     mr__strbuf_append(b, "\"", 1);
 }
 
-/* CSV (17 digits) or text (aligned, 6 digits): the same rows. */
+/* A CSV cell: the shortest text that reads back to v; empty if v is
+ * not finite. */
+static void csv_number(mr__strbuf *b, double v)
+{
+    char t[MR__DTOA_SIZE];
+    if (isfinite(v)) mr__strbuf_append(b, t, mr__dtoa(v, t));
+}
+
+/* CSV (every digit needed) or text (aligned, 6 digits): the same rows. */
 static char *table(const mr_scorer *s, int csv)
 {
     mr__strbuf b;
@@ -128,8 +137,10 @@ static char *table(const mr_scorer *s, int csv)
             else mr__strbuf_printf(&b, "%-16.*s ", (int)n, p);
         }
         for (k = 0; k < 7; k++) {
-            if (csv) mr__strbuf_printf(&b, isfinite(v[k]) ? "%s%.17g" : "%s", k ? "," : "", v[k]);
-            else if (isfinite(v[k])) mr__strbuf_printf(&b, "%14.6g", v[k]);
+            if (csv) {
+                if (k) mr__strbuf_append(&b, ",", 1);
+                csv_number(&b, v[k]);
+            } else if (isfinite(v[k])) mr__strbuf_printf(&b, "%14.6g", v[k]);
             else mr__strbuf_printf(&b, "%14s", "-");
         }
         mr__strbuf_append(&b, "\n", 1);

@@ -96,6 +96,10 @@ mkdir dir/old
 cp set/a.csv dir/old/
 fit set_dir --threads 2 dir
 same set_dir options
+# the run log names every file of the set, in the order read
+"$bin" fit --quiet "${model[@]}" --run-log runs.log dir > /dev/null 2>&1
+if /usr/bin/python3 -c 'import json,sys; r=json.loads(open("runs.log").readline()); sys.exit(r["input"] != "dir" or [f.split("/")[-1] for f in r["files"]] != ["a.csv", "b.csv.zst", "c.csv.gz"])'
+then ok run_log_set_files; else fail run_log_set_files "$(head -c 400 runs.log)"; fi
 
 # the JSON names each file; the checksums by their documented definitions
 /usr/bin/python3 - "$here/checksum.py" <<'EOF' > identity.out 2>&1 && ok set_identity || fail set_identity "$(cat identity.out)"

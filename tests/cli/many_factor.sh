@@ -2,8 +2,8 @@
 # A factor declared `many` (its levels eliminated, not columns): the same
 # bits with 1 and 2 threads, streamed, cached, in memory and with small
 # buffers, its levels included; the report's summary; the model lines it
-# refuses (exit 2) and scoring refused.  Its numbers are checked against
-# R glm and the ordinary fit in tests/ref/many_factor.py.
+# refuses (exit 2); scoring (threads, an unseen level).  Its numbers are
+# checked against R glm and the ordinary fit in tests/ref/many_factor.py.
 source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
 bin=${MILLRACE:-$bin}
 /usr/bin/python3 - "$tmp/d.csv" <<'P'
@@ -75,7 +75,15 @@ for opt in "--robust hc1" "--cluster area"; do
     [ "$rc" -eq 2 ] && [ ! -e "$tmp/rob.json" ] && grep -q "not supported with a 'many' factor" "$tmp/r.err" &&
         ok "robust refused: $opt" || fail "robust refused: $opt" "exit $rc: $(cat "$tmp/r.err")"
 done
-$bin score --fit "$tmp/base.json" --out "$tmp/s.csv" "$tmp/d.csv" > /dev/null 2> "$tmp/s.err"
+# scoring: its numbers are checked in tests/ref/many_factor.py; here the
+# same bytes for 1 and 3 threads, and a level the fit never saw
+$bin score --quiet --threads 1 --fit "$tmp/base.json" --out "$tmp/s1.csv" "$tmp/d.csv" 2> "$tmp/s.err" &&
+    $bin score --quiet --threads 3 --fit "$tmp/base.json" --out "$tmp/s3.csv" "$tmp/d.csv" 2>> "$tmp/s.err" &&
+    cmp -s "$tmp/s1.csv" "$tmp/s3.csv" && [ "$(wc -l < "$tmp/s1.csv")" -eq 150001 ] &&
+    ok "scored, the same bytes for 1 and 3 threads" || fail "scored" "$(cat "$tmp/s.err")"
+{ head -n 1 "$tmp/d.csv"; echo "3,B00001,50,M,500"; } > "$tmp/new.csv"
+$bin score --quiet --fit "$tmp/base.json" --out "$tmp/new.out" "$tmp/new.csv" > /dev/null 2> "$tmp/new.err"
 rc=$?
-[ "$rc" -eq 2 ] && [ ! -e "$tmp/s.csv" ] && ok "scoring refused" || fail "scoring refused" "exit $rc"
+[ "$rc" -eq 5 ] && grep -q "new.csv:2:.*a level the fit never saw" "$tmp/new.err" && [ ! -e "$tmp/new.out" ] &&
+    ok "a level the fit never saw: exit 5, its line" || fail "unseen level" "exit $rc: $(cat "$tmp/new.err")"
 finish

@@ -7,13 +7,14 @@
 # frames, a set of three files, each with a model that makes several IRLS
 # passes (continuous covariates of many values, --no-collapse), a model
 # whose rows collapse into patterns, a fit started from a previous one, and
-# a negative binomial whose theta is estimated.
+# a negative binomial whose theta is estimated; robust standard errors by
+# rows (HC1 from the cache, HC0 rereading a many-frame file).
 # 600,000 rows: three groups of 16 blocks, so that with 3 ranks each rank
 # owns one.  One writer: one run log line, one JSON.  An error met by rank
 # 1 in its share of pass 2 (the test-only MILLRACE_TEST_SHARE_ERROR hook:
 # the first pass, by rank 0, catches every malformed row, so a real one
 # cannot reach pass 2) ends every rank with that one message, printed once,
-# and the same exit code; standard input, --checkpoint and --robust are
+# and the same exit code; standard input, --checkpoint and --cluster are
 # refused (exit 2), and so is a JSON path that is the input (rank 0 alone
 # checks it; the others end with its message's exit code).  Without mpicc and mpirun the test says SKIPPED and
 # passes.  Source of truth: the single-process fit of the same data.
@@ -88,6 +89,9 @@ case_ frames many frames.zst
 case_ fileset many set/a.csv set/b.csv.zst set/c.csv.gz
 case_ collapsed few all.csv
 case_ negbin nb frames.zst
+# robust standard errors by rows: the meat pass split as the IRLS passes are
+case_ robust many --robust hc1 all.csv
+case_ robust_nocache many --robust hc0 --no-cache frames.zst
 # a previous fit as the start: every rank reads it
 "$bin" fit --quiet --threads 1 --json prev.json "${many[@]}" set/a.csv > /dev/null 2>&1 || fail prev "exit $?"
 case_ started many --start-from prev.json all.csv
@@ -101,6 +105,15 @@ else
 fi
 [ "$(/usr/bin/python3 -c 'import json,sys; print(json.load(open(sys.argv[1]))["convergence"]["passes"])' plain.json)" -ge 3 ] &&
     ok "plain: several IRLS passes" || fail plain "fewer than 3 passes"
+# --progress under mpirun: rank 0's lines alone (one a pass), the IRLS
+# passes' rows said to be its share
+timeout 600 mpirun --oversubscribe -np 2 "$mpibin" fit --progress --threads 1 "${many[@]}" all.csv > /dev/null 2> progress.err
+if [ "$(grep -c '^pass 1 done: [0-9]* rows in' progress.err)" = 1 ] &&
+    [ "$(grep -c '^pass 2 done: [0-9]* rows (this process.s share) in' progress.err)" = 1 ]; then
+    ok "np 2 --progress: a line a pass, from rank 0"
+else
+    fail progress "$(head -c 300 progress.err)"
+fi
 
 # expect NAME NP CODE PATTERN [env...] -- [fit arguments...]
 expect() {
@@ -127,7 +140,7 @@ expect rank1_error 3 4 "rank 1 met a malformed row in pass 2" MILLRACE_TEST_SHAR
 expect rank2_error 3 4 "rank 2 met a malformed row in pass 3" MILLRACE_TEST_SHARE_ERROR=2:3 -- "${many[@]}" all.csv
 expect stdin_refused 2 2 "does not take standard input" -- "${many[@]}" -
 expect checkpoint_refused 2 2 "does not take a checkpoint" -- "${many[@]}" --checkpoint ck.state all.csv
-expect robust_refused 2 2 "does not take robust" -- "${many[@]}" --robust hc0 all.csv
+expect cluster_refused 2 2 "does not take cluster-robust" -- "${many[@]}" --cluster age_band all.csv
 # rank 0 alone checks its outputs, before the fit: the others, waiting for
 # its first pass, end with its refusal
 expect output_is_input 3 2 "refusing to overwrite it" -- "${many[@]}" --json all.csv all.csv
