@@ -296,8 +296,15 @@ static int sample_fit(mr__run *r, size_t stride, const double *start, int max_it
     job.max_iterations = max_iterations;
     job.step_at_end = start != NULL;
     job.beta_out = out;
-    ok = iterate(r, &job, &res, &scratch) == MR_OK && !job.restarted && (job.converged || job.step_at_end);
-    for (j = 0; ok && j < mr__design_ncoef(&r->design); j++) ok = isfinite(out[j]);
+    job.growing_out = mr__calloc(mr__design_ncoef(&r->design) + 1, sizeof *job.growing_out);
+    ok = job.growing_out != NULL && iterate(r, &job, &res, &scratch) == MR_OK && !job.restarted &&
+         (job.converged || job.step_at_end);
+    /* a coefficient running off on the sample (a level whose rows there
+     * are all zeros: many of a `many` factor's levels) has no value to
+     * start from, and from its ever smaller weight the first full step
+     * would leap out of range */
+    for (j = 0; ok && j < mr__design_ncoef(&r->design); j++) ok = isfinite(out[j]) && !job.growing_out[j];
+    mr__free(job.growing_out);
     *iterations = job.iterations;
     mr__pass_result_release(&res, 0);
     return ok;
