@@ -77,7 +77,7 @@ void mr__workspace_release(mr__workspace *ws)
     memset(ws, 0, sizeof *ws);
 }
 
-static mr_status sums_alloc(mr__block_sums *s, size_t entries, size_t p, mr__error *err)
+static mr_status sums_alloc(mr__block_sums *s, size_t entries, size_t p, int bins, mr__error *err)
 {
     memset(s, 0, sizeof *s);
     s->xtwx = aligned_doubles(entries);
@@ -88,6 +88,10 @@ static mr_status sums_alloc(mr__block_sums *s, size_t entries, size_t p, mr__err
     }
     memset(s->xtwx, 0, entries * sizeof *s->xtwx);
     memset(s->xtwz, 0, p * sizeof *s->xtwz);
+    if (!bins) {
+        mr__calib_release(&s->calib); /* none kept */
+        return MR_OK;
+    }
     if (mr__calib_init(&s->calib, err) != MR_OK) {
         mr__sums_release(s);
         return MR_ERR_NO_MEMORY;
@@ -95,11 +99,21 @@ static mr_status sums_alloc(mr__block_sums *s, size_t entries, size_t p, mr__err
     return MR_OK;
 }
 
-mr_status mr__sums_init(mr__block_sums *s, size_t p, mr__error *err) { return sums_alloc(s, p * p, p, err); }
+mr_status mr__sums_init(mr__block_sums *s, size_t p, mr__error *err) { return sums_alloc(s, p * p, p, 1, err); }
 
 mr_status mr__sums_init_block(mr__block_sums *s, const mr__design *d, mr__error *err)
 {
-    return sums_alloc(s, d->nnz, d->p, err);
+    return sums_alloc(s, d->nnz, d->p, 1, err);
+}
+
+mr_status mr__sums_init_pass(mr__block_sums *s, size_t p, int bins, mr__error *err)
+{
+    return sums_alloc(s, p * p, p, bins, err);
+}
+
+mr_status mr__sums_init_block_pass(mr__block_sums *s, const mr__design *d, int bins, mr__error *err)
+{
+    return sums_alloc(s, d->nnz, d->p, bins, err);
 }
 
 void mr__sums_release(mr__block_sums *s)
@@ -344,6 +358,17 @@ static void sparse_cross_products(const mr__design *d, mr__workspace *ws, size_t
     }
 }
 
+/* The bins of a pass at pt alone (mr__irls_point.calib_only): the same
+ * means as mr__accumulate_block's, the same rows and blocks left out. */
+static void calibration_only(const mr__irls_point *pt, const mr__block *blk, mr__workspace *ws, mr__block_sums *out)
+{
+    const size_t n = blk->n;
+    mr__design_fill_split(pt->design, blk->num, blk->lev, MR__BLOCK_ROWS, n, ws->D, ws->scol, ws->sval);
+    linear_predictor(pt, blk, ws, n);
+    out->invalid = mr__count_invalid_n(pt->family->ops, pt->link, ws->eta, ws->mu, n);
+    if (out->invalid == 0) calibration_rows(pt, blk, ws, n, out);
+}
+
 void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__workspace *ws,
                           mr__block_sums *out)
 {
@@ -354,6 +379,10 @@ void mr__accumulate_block(const mr__irls_point *pt, const mr__block *blk, mr__wo
     double dev = 0, pearson = 0, *z;
     mr__sums_zero(out, d);
     if (n == 0) return;
+    if (pt->calib_only) {
+        calibration_only(pt, blk, ws, out);
+        return;
+    }
     mr__design_fill_split(d, blk->num, blk->lev, MR__BLOCK_ROWS, n, ws->D, ws->scol, ws->sval);
     linear_predictor(pt, blk, ws, n);
     fam->variance_n(pt->family, ws->mu, n, ws->var);

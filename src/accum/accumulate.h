@@ -25,6 +25,10 @@ typedef struct mr__irls_point {
     int calibrate;      /* bin the fitted means (accum/calibration.h) */
     int calib_unit;     /* the means lie in (0, 1) */
     int calib_rate;     /* bin by g^-1(eta - offset) (calibration.h) */
+    /* The bins alone, as a pass that calibrates puts them (a block with
+     * rows outside the family's domain adds none), and no other sum:
+     * passes in memory bin only once their last point is known. */
+    int calib_only;
 } mr__irls_point;
 
 typedef struct mr__block_sums {
@@ -65,6 +69,10 @@ void mr__workspace_release(mr__workspace *ws);
 /* Totals (p x p) and a block's packed sums, zeroed. */
 mr_status mr__sums_init(mr__block_sums *s, size_t p, mr__error *err);
 mr_status mr__sums_init_block(mr__block_sums *s, const mr__design *d, mr__error *err);
+/* The same with calibration bins only where `bins` (a pass that does not
+ * calibrate has no use for their 192 KiB each, zeroed per slot and pass). */
+mr_status mr__sums_init_pass(mr__block_sums *s, size_t p, int bins, mr__error *err);
+mr_status mr__sums_init_block_pass(mr__block_sums *s, const mr__design *d, int bins, mr__error *err);
 void mr__sums_release(mr__block_sums *s);
 /* A block's sums back to zero. */
 void mr__sums_zero(mr__block_sums *s, const mr__design *d);

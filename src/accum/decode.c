@@ -104,6 +104,7 @@ mr_status mr__decoder_init(mr__decoder *d, const mr__decode_cfg *cfg, mr__error 
         if (cfg->missing_len[f] == 0) d->missing_empty = 1;
         else d->missing_first[(unsigned char)cfg->missing[f][0]] = 1;
     }
+    d->cluster_col = b->has_cluster ? b->cluster_col : -1;
     d->outcome = cfg->family->ops->outcome;
     d->defer_offset = cfg->levels == NULL && cfg->collapse == 2 && b->has_exposure && !b->has_offset;
     if (!d->np || !d->val || !d->lev || !d->miss || !d->wanted || (cfg->levels == NULL && !d->local) ||
@@ -249,10 +250,6 @@ static void on_field(void *user, size_t k, const char *p, size_t len)
         d->row_missing = 1;
         return;
     }
-    if (d->cfg->bind->has_cluster && col == d->cfg->bind->cluster_col) {
-        cluster_hash(p, len, d->cluster_key);
-        if (d->cfg->bind->col[col].use == MR__USE_CLUSTER) return;
-    }
     if (d->cfg->bind->col[col].use == MR__USE_FACTOR) {
         decode_level(d, col, p, len);
         return;
@@ -262,6 +259,21 @@ static void on_field(void *user, size_t k, const char *p, size_t len)
                     mr__is_number_syntax(p, len) ? "a number out of the range of a double (beyond 1.8e308 in size)"
                                                  : "not a number",
                     p, len);
+}
+
+/* The sink's field callback with a cluster column (only then, so that a
+ * fit without one pays nothing for it per cell): the cluster's cell, not
+ * missing, is hashed, and decoded as well where the column has another
+ * use; every other cell goes to on_field. */
+static void on_field_cluster(void *user, size_t k, const char *p, size_t len)
+{
+    mr__decoder *d = user;
+    int col = k < d->cfg->bind->nfields && !d->stop ? d->cfg->bind->col_of_field[k] : -1;
+    if (col >= 0 && col == d->cluster_col && !is_missing(d, p, len)) {
+        cluster_hash(p, len, d->cluster_key);
+        if (d->cfg->bind->col[col].use == MR__USE_CLUSTER) return;
+    }
+    on_field(user, k, p, len);
 }
 
 static void domain_problem(mr__decoder *d, mr__use use, const char *what)
@@ -340,6 +352,12 @@ static int any_missing(mr__decoder *d)
     return any;
 }
 
+/* y != floor(y), without the call: below 2^52 in magnitude a double is
+ * whole exactly when its truncation to an integer gives it back; at or
+ * above, every double is whole (and an infinity is its own floor, a NaN
+ * never). */
+static int not_whole(double y) { return fabs(y) < 0x1p52 ? (double)(int64_t)y != y : y != y; }
+
 static void store_row(mr__decoder *d, double y, double prior, double off)
 {
     mr__block *blk = d->blk;
@@ -353,7 +371,8 @@ static void store_row(mr__decoder *d, double y, double prior, double off)
         blk->llc += d->row_llc;
         blk->npos += prior > 0;
         blk->nfraction += y > 0 && y < 1;
-        blk->nnonint += y != floor(y);
+        /* read only where the family's parameter is estimated (fit/result_warnings.c) */
+        if (d->cfg->family->estimate) blk->nnonint += not_whole(y);
         if (b->has_exposure || b->has_offset) {
             /* a deferred offset is only ever wanted with a log link, which
              * starts from swe alone */
@@ -478,7 +497,8 @@ static mr_status count_values(const mr__binding *b, mr__block *blk, mr__error *e
 
 static mr__field_sink decoder_sink(mr__decoder *d)
 {
-    mr__field_sink sink = {d, on_field, on_row_end, d->wanted, d->cfg->bind->nfields, quick_number};
+    mr__field_sink sink = {d, d->cluster_col >= 0 ? on_field_cluster : on_field, on_row_end, d->wanted,
+                           d->cfg->bind->nfields, quick_number};
     return sink;
 }
 

@@ -158,6 +158,7 @@ typedef struct mr__decoder {
     const mr__levelset **keysets;
     mr__block *blk;
     uint64_t cluster_key[2]; /* the current row's cluster (its hash) */
+    int cluster_col;         /* the binding's cluster column, -1 without one */
     const mr__chunk *chunk;
     uint32_t row;        /* the chunk row being decoded */
     int stop;

@@ -55,8 +55,8 @@ static mr_status irls_open(const mr__pass_env *env, void **out, mr__error *err)
     *out = j;
     j->env = env;
     j->design = env->cfg->point->design;
-    MR__TRY(mr__sums_init(&env->res->sums, j->design->p, err));
-    MR__TRY(mr__sums_init(&j->group, j->design->p, err));
+    MR__TRY(mr__sums_init_pass(&env->res->sums, j->design->p, env->cfg->point->calibrate, err));
+    MR__TRY(mr__sums_init_pass(&j->group, j->design->p, env->cfg->point->calibrate, err));
     return open_levels(j, err);
 }
 
@@ -66,7 +66,7 @@ static mr_status irls_slot_init(void *job, mr__pass_slot *s, mr__error *err)
     irls_part *part = mr__calloc(1, sizeof *part);
     if (part == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     s->part = part;
-    MR__TRY(mr__sums_init_block(&part->sums, j->design, err));
+    MR__TRY(mr__sums_init_block_pass(&part->sums, j->design, j->env->cfg->point->calibrate, err));
     if (j->design->nabsorb == 0) return MR_OK;
     return mr__level_input_init(&part->lev, j->design, err);
 }
@@ -102,7 +102,7 @@ static void irls_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
     mr__accumulate_block(j->env->cfg->point, s->use, w->part, &part->sums);
     part->lev.n = 0;
     /* rows out of the domain: the step is halved and the sums unused */
-    if (j->design->nabsorb > 0 && s->use->n > 0 && part->sums.invalid == 0)
+    if (j->design->nabsorb > 0 && s->use->n > 0 && part->sums.invalid == 0 && !j->env->cfg->point->calib_only)
         mr__level_input_keep(&part->lev, j->design, w->part, s->use->n);
 }
 

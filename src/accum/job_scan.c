@@ -98,7 +98,7 @@ static void scan_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
     if (s->decoded && j->env->plain) part->rows_hash = mr__chunk_rows_hash(s->chunk);
     mr__scan_block(s->use, b->ncol, b->nnum, &part->scan);
     /* a block is counted by the decoder that numbered its levels */
-    if (s->use->worker == (int32_t)w->number) mr__level_outcomes_block(w->part, s->use, j->env->cfg->dcfg);
+    if (s->use->worker == (int32_t)w->number) mr__level_outcomes_block(w->part, s->use, j->env->cfg->dcfg, w->dec.local);
     else ((mr__level_outcomes *)w->part)->failed = 1;
 }
 

@@ -25,6 +25,8 @@ void mr__level_outcomes_free(mr__level_outcomes *lo)
     if (lo == NULL) return;
     for (i = 0; lo->level && i < lo->nfac; i++) mr__free(lo->level[i]);
     for (i = 0; lo->cells && i < lo->ntables; i++) mr__free(lo->cells[i].slot);
+    mr__free(lo->kind);
+    mr__free(lo->tally);
     mr__free(lo->level);
     mr__free(lo->nlevel);
     mr__free(lo->cells);
@@ -176,22 +178,84 @@ static void count_triples(mr__level_outcomes *lo, const mr__block *blk, const mr
     }
 }
 
-void mr__level_outcomes_block(mr__level_outcomes *lo, const mr__block *blk, const mr__decode_cfg *cfg)
+/* Factor f's counts, row by row (rows of weight 0 left out). */
+static void count_rows(mr__outcome_counts *c, const int32_t *lev, const mr__block *blk, int binomial)
 {
-    int binomial = cfg->family->ops->takes_trials; /* the binomial: y a proportion */
-    size_t f, k;
+    const double *y = blk->y, *prior = blk->prior;
+    uint32_t i;
+    for (i = 0; i < blk->n; i++) {
+        mr__outcome_counts *e = &c[(uint32_t)lev[i]];
+        if (prior && !(prior[i] > 0)) continue;
+        e->rows++;
+        e->above_zero += y[i] > 0;
+        e->below_max += binomial ? y[i] < 1 : 1;
+    }
+}
+
+/* A row's kind: bit 1 its outcome above 0, bit 0 below the maximum (for
+ * other families than the binomial, always). */
+enum { KINDS = 4 };
+
+/* The block's rows' kinds into lo->kind, the same for every factor. */
+static int row_kinds(mr__level_outcomes *lo, const mr__block *blk, int binomial)
+{
+    uint32_t i;
+    if (lo->kind == NULL && (lo->kind = mr__malloc_array(MR__BLOCK_ROWS, sizeof *lo->kind)) == NULL) return -1;
+    for (i = 0; i < blk->n; i++)
+        lo->kind[i] = (uint8_t)((blk->y[i] > 0) << 1 | (binomial ? blk->y[i] < 1 : 1));
+    return 0;
+}
+
+/* Factor f's counts by a tally of (level, kind) pairs, one increment a
+ * row, added into the counts per level afterwards: integers, the same
+ * totals as row by row. */
+static int tally_rows(mr__level_outcomes *lo, mr__outcome_counts *c, const int32_t *lev, uint32_t n, uint32_t top)
+{
+    size_t need = ((size_t)top + 1) * KINDS, l;
+    uint32_t *t, i;
+    if (need > lo->ntally) {
+        uint32_t *grown = mr__realloc(lo->tally, need * sizeof *grown);
+        if (grown == NULL) return -1;
+        lo->tally = grown;
+        lo->ntally = need;
+    }
+    t = lo->tally;
+    memset(t, 0, need * sizeof *t);
+    for (i = 0; i < n; i++) t[(size_t)(uint32_t)lev[i] * KINDS + lo->kind[i]]++;
+    for (l = 0; l <= top; l++, t += KINDS) {
+        uint32_t rows = t[0] + t[1] + t[2] + t[3];
+        c[l].rows += rows;
+        c[l].above_zero += t[2] + t[3];
+        c[l].below_max += t[1] + t[3];
+    }
+    return 0;
+}
+
+/* Factor f's counts: its array grown once to the block's greatest level,
+ * then the rows tallied where the levels are fewer than the rows and
+ * every row counts (no weight column), else counted one by one. */
+static int count_factor(mr__level_outcomes *lo, size_t f, const mr__block *blk, int binomial, int kinds,
+                        const mr__levelset *local)
+{
+    const int32_t *lev = blk->lev + f * MR__BLOCK_ROWS;
+    uint32_t i, top = 0;
+    if (local != NULL && local[f].n > 0) top = (uint32_t)local[f].n - 1;
+    else
+        for (i = 0; i < blk->n; i++) top = (uint32_t)lev[i] > top ? (uint32_t)lev[i] : top;
+    if (level_entry(lo, f, top) == NULL) return -1;
+    if (kinds && top < blk->n) return tally_rows(lo, lo->level[f], lev, blk->n, top);
+    count_rows(lo->level[f], lev, blk, binomial);
+    return 0;
+}
+
+/* The cells of the pairs and triples of factors, row by row. */
+static void count_cells(mr__level_outcomes *lo, const mr__block *blk, const mr__decode_cfg *cfg, int binomial)
+{
+    size_t k;
     uint32_t i;
     for (i = 0; i < blk->n && !lo->failed; i++) {
         double y = blk->y[i];
         if (blk->prior && !(blk->prior[i] > 0)) continue;
-        for (f = 0; f < lo->nfac; f++) {
-            mr__outcome_counts *c = level_entry(lo, f, (uint32_t)blk->lev[f * MR__BLOCK_ROWS + i]);
-            if (c == NULL) {
-                lo->failed = 1;
-                return;
-            }
-            count(c, y, binomial);
-        }
         for (k = 0; k < cfg->npairs; k++) {
             uint32_t a = (uint32_t)blk->lev[(size_t)cfg->pairs[k][0] * MR__BLOCK_ROWS + i];
             uint32_t b = (uint32_t)blk->lev[(size_t)cfg->pairs[k][1] * MR__BLOCK_ROWS + i];
@@ -204,4 +268,20 @@ void mr__level_outcomes_block(mr__level_outcomes *lo, const mr__block *blk, cons
         }
         count_triples(lo, blk, cfg, i, y, binomial);
     }
+}
+
+void mr__level_outcomes_block(mr__level_outcomes *lo, const mr__block *blk, const mr__decode_cfg *cfg,
+                              const mr__levelset *local)
+{
+    int binomial = cfg->family->ops->takes_trials; /* the binomial: y a proportion */
+    size_t f;
+    int kinds;
+    if (lo->failed || blk->n == 0) return;
+    kinds = lo->nfac > 0 && blk->prior == NULL && row_kinds(lo, blk, binomial) == 0;
+    for (f = 0; f < lo->nfac; f++)
+        if (count_factor(lo, f, blk, binomial, kinds, local) != 0) {
+            lo->failed = 1;
+            return;
+        }
+    if (cfg->npairs + cfg->ntriples > 0) count_cells(lo, blk, cfg, binomial);
 }

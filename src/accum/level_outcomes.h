@@ -38,13 +38,20 @@ typedef struct mr__level_outcomes {
     size_t *nlevel;             /* per factor: entries in level[] */
     mr__cell_table *cells;      /* per pair of decode_cfg.pairs, then per triple of its triples */
     int failed;                 /* out of memory: the counts are not whole */
+    uint8_t *kind;              /* scratch: a block's rows' outcome kinds (level_outcomes.c) */
+    uint32_t *tally;            /* scratch: a block's counts by level and kind */
+    size_t ntally;
 } mr__level_outcomes;
 
 /* ntables: the pairs and the triples; NULL on no memory. */
 mr__level_outcomes *mr__level_outcomes_new(size_t nfac, size_t ntables);
 void mr__level_outcomes_free(mr__level_outcomes *lo);
-/* Counts a decoded block's rows (cfg: the pairs and triples of factors). */
-void mr__level_outcomes_block(mr__level_outcomes *lo, const mr__block *blk, const mr__decode_cfg *cfg);
+/* Counts a decoded block's rows (cfg: the pairs and triples of factors).
+ * `local`: NULL, or the levels of the decoder that numbered the block's
+ * (per factor; their number bounds its level numbers, which saves a walk
+ * down each column for the greatest). */
+void mr__level_outcomes_block(mr__level_outcomes *lo, const mr__block *blk, const mr__decode_cfg *cfg,
+                              const mr__levelset *local);
 /* Adds c into cell (a, b) of t: -1 on no memory. */
 int mr__cell_table_add(mr__cell_table *t, uint32_t a, uint32_t b, const mr__outcome_counts *c);
 /* Slot i's cell (i < t->cap): 0 for an empty slot, else 1 with a and b. */

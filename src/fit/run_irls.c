@@ -58,6 +58,16 @@ typedef struct irls_job {
     int finished;        /* that state is after the last step: no pass left */
     int checkpoints;     /* the fit of the data: a checkpoint after each pass */
     int calibrate;         /* bin the fitted means (accum/calibration.h) */
+    /* Passes in memory (collapsed patterns): no pass bins; once the last
+     * is known, one pass of bins alone at its point, or at the
+     * coefficients reported where the fit ended by its step (the bins a
+     * fit reports, for a fraction of the work of binning every pass). */
+    int defer_calib;
+    int calib_only;        /* this pass: the bins alone (mr__irls_point) */
+    int calibrated;        /* the deferred bins are made */
+    int calib_at_reported; /* ... at the coefficients reported */
+    double *last_beta;     /* the last pass's point (defer_calib) */
+    int last_beta_null;    /* ... the family's starting means */
     int iterations, halvings, converged, by_step;
     double rel_change, null_b0, step;
 } irls_job;
@@ -80,7 +90,8 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
     pt.null_intercept = r->f->spec.intercept;
     pt.null_b0 = null_b0;
     pt.null_skip = null_dev_known != NULL;
-    pt.calibrate = job->calibrate;
+    pt.calibrate = job->calibrate && (!job->defer_calib || job->calib_only);
+    pt.calib_only = job->calib_only;
     pt.calib_unit = r->family.ops->mu_hi == 1.0;
     pt.calib_rate = mr__calib_by_rate(r);
     c = mr__run_pass_config(r, MR__PASS_IRLS);
@@ -170,6 +181,50 @@ static mr_status init_state(mr__run *r, irls_job *job, mr__irls *s, mr__error *e
     return mr__share_send_start(r, s, err);
 }
 
+/* The deferred bins (irls_job.defer_calib) into res: a pass of bins alone
+ * at `beta`, its bins swapped in for the pass's empty ones. */
+static mr_status bins_at(mr__run *r, const irls_job *job, const double *beta, mr__pass_result *res, mr__error *err)
+{
+    mr__pass_result only;
+    irls_job j = *job;
+    mr_status st;
+    mr__calib t;
+    memset(&only, 0, sizeof only);
+    j.calib_only = 1;
+    /* the null model's sums are known: the pass leaves them out */
+    st = irls_pass(r, &j, beta, 0.0, &res->sums.null_dev, &only, err);
+    if (st == MR_OK) {
+        t = res->sums.calib;
+        res->sums.calib = only.sums.calib;
+        only.sums.calib = t;
+    }
+    mr__pass_result_release(&only, 0);
+    return st;
+}
+
+/* The last pass's point, kept for its bins. */
+static void keep_point(irls_job *job, const double *beta, size_t p)
+{
+    job->last_beta_null = beta == NULL;
+    if (beta != NULL) memcpy(job->last_beta, beta, p * sizeof *beta);
+}
+
+/* After the last step: the bins at the coefficients reported where the
+ * fit ended by its step, else at the last pass's point, as a pass that
+ * binned would have left them. */
+static mr_status deferred_bins(mr__run *r, irls_job *job, const mr__irls *s, mr__pass_result *res, mr__error *err)
+{
+    double *beta = mr__malloc_array(s->p + 1, sizeof *beta);
+    mr_status st;
+    if (beta == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    if (s->by_step) mr__irls_coefficients(s, beta);
+    st = bins_at(r, job, s->by_step ? beta : job->last_beta_null ? NULL : job->last_beta, res, err);
+    mr__free(beta);
+    job->calibrated = st == MR_OK;
+    job->calib_at_reported = s->by_step;
+    return st;
+}
+
 /* The passes the state machine asks for, until it is done; the family's
  * parameter, where estimated, moves with them (r->family.param).  A pass
  * over collapsed patterns runs in memory: only reads of the data are worth
@@ -186,7 +241,9 @@ static mr_status iterate(mr__run *r, irls_job *job, mr__pass_result *res, mr__er
         if (r->family.estimate) r->family.param = mr__irls_param(&s);
         r->family.dispersion = series_dispersion(r, &s);
         st = irls_pass(r, job, mr__irls_beta(&s), s.null_b0, mr__irls_null_deviance(&s), res, err);
+        if (st == MR_OK && job->defer_calib) keep_point(job, mr__irls_beta(&s), s.p);
         if (st == MR_OK) st = mr__irls_step(&s, &res->sums, r->display, &done, err);
+        if (st == MR_OK && done && job->defer_calib) st = deferred_bins(r, job, &s, res, err);
         if (st == MR_OK && !done && job->checkpoints && !job->replay) st = mr__checkpoint_write(r, &s, err);
         /* the passes over: what the fit takes from the last, so that a
          * rerun killed before its outputs reads no data for it */
@@ -330,29 +387,23 @@ void mr__run_warm_start(mr__run *r)
 
 /* A fit ended by the size of its step took that step without a pass:
  * the last pass's bins hold the means one step before the coefficients
- * reported.  Collapsed patterns are in memory, and one more pass over them
- * at the coefficients reported costs next to nothing (and rereads no
- * file); a pass over the rows would cost a whole read, so there the bins
- * stay those of the last pass (the basis says so, result.c). */
+ * reported.  Collapsed patterns are in memory, and a pass of bins over
+ * them at the coefficients reported costs next to nothing (and rereads no
+ * file); iterate makes it (defer_calib), and here it is made only for a
+ * run resumed after its passes; a pass over the rows would cost a whole
+ * read, so there the bins stay those of the last pass (the basis says so,
+ * result.c). */
 static mr_status calibration_pass(mr__run *r, irls_job *job, mr__error *err)
 {
-    mr__pass_result res;
-    mr_status st;
-    memset(&res, 0, sizeof res);
-    st = irls_pass(r, job, r->beta_final, job->null_b0, &r->last.sums.null_dev, &res, err);
-    if (st == MR_OK) {
-        mr__calib t = r->last.sums.calib;
-        r->last.sums.calib = res.sums.calib;
-        res.sums.calib = t;
-        r->calib_at_reported = 1;
-    }
-    mr__pass_result_release(&res, 0);
-    return st;
+    MR__TRY(bins_at(r, job, r->beta_final, &r->last, err));
+    r->calib_at_reported = 1;
+    return MR_OK;
 }
 
 mr_status mr__run_fit_data(mr__run *r, mr__irls *resume, mr__error *err)
 {
     irls_job job;
+    mr_status st;
     memset(&job, 0, sizeof job);
     job.calibrate = 1;
     job.resume = resume;
@@ -365,6 +416,9 @@ mr_status mr__run_fit_data(mr__run *r, mr__irls *resume, mr__error *err)
     if (r->collapsed) {
         job.replay = &r->patterns;
         job.deviance_shift = r->within_deviance;
+        job.defer_calib = 1;
+        job.last_beta = mr__malloc_array(mr__design_ncoef(&r->design) + 1, sizeof *job.last_beta);
+        if (job.last_beta == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }
     job.start = r->warm || r->started ? r->beta_warm : NULL;
     job.tolerance = r->f->tolerance;
@@ -372,15 +426,18 @@ mr_status mr__run_fit_data(mr__run *r, mr__irls *resume, mr__error *err)
     job.max_iterations = r->f->max_passes;
     job.beta_out = r->beta_final;
     job.growing_out = r->growing;
-    MR__TRY(iterate(r, &job, &r->last, err));
+    st = iterate(r, &job, &r->last, err);
+    mr__free(job.last_beta);
+    job.last_beta = NULL;
+    if (st != MR_OK) return st;
     r->iterations = job.iterations;
     r->halvings = job.halvings;
     r->converged = job.converged;
     r->by_step = job.by_step;
     r->rel_change = job.rel_change;
     r->null_b0 = job.null_b0;
-    r->calib_at_reported = !job.by_step;
+    r->calib_at_reported = !job.by_step || job.calib_at_reported;
     r->step = job.step;
-    if (job.by_step && r->collapsed) MR__TRY(calibration_pass(r, &job, err));
+    if (job.by_step && r->collapsed && !job.calibrated) MR__TRY(calibration_pass(r, &job, err));
     return MR_OK;
 }
