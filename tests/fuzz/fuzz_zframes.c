@@ -40,10 +40,8 @@ static uint64_t count_frames(const uint8_t *p, size_t n)
     uint64_t frames = 0;
     while (n > 0) {
         size_t k = ZSTD_findFrameCompressedSize(p, n);
-        uint32_t magic;
-        if (ZSTD_isError(k) || k == 0 || k > n || n < 4) return UINT64_MAX;
-        magic = (uint32_t)p[0] | (uint32_t)p[1] << 8 | (uint32_t)p[2] << 16 | (uint32_t)p[3] << 24;
-        frames += (magic & ZSTD_MAGIC_SKIPPABLE_MASK) != ZSTD_MAGIC_SKIPPABLE_START;
+        if (ZSTD_isError(k) || k == 0 || k > n) return UINT64_MAX;
+        frames += !starts_as_skippable(p, k);
         p += k;
         n -= k;
     }

@@ -19,6 +19,11 @@
  *     the whole output, and lets through streams the stream decoder and
  *     the zstd tool refuse (a block larger than its frame's window, which
  *     RFC 8878 3.1.1.2.4 forbids, and others reported as corrupt);
+ *   - and a frame whose header gives its content size must make that many
+ *     bytes (RFC 8878 3.1.1.1.4): the stream decoder checks that only with
+ *     room for the whole frame, so each frame of a stream it reads is also
+ *     decoded alone and held to its header; the source must refuse one
+ *     that differs;
  *   - on success every raw byte was counted, and the checksum is FNV-1a 64 over
  *     the bytes as little-endian 64-bit words, the last one zero-padded.
  * Output is bounded (OUT_CAP): a few bytes of zstd can stand for gigabytes,

@@ -40,12 +40,16 @@ static uint64_t fnv_words(const uint8_t *p, size_t n)
     return h;
 }
 
+static uint32_t magic_of(const uint8_t *p) { return (uint32_t)p[0] | (uint32_t)p[1] << 8 | (uint32_t)p[2] << 16 | (uint32_t)p[3] << 24; }
+
+static int starts_as_skippable(const uint8_t *p, size_t n)
+{
+    return n >= 4 && (magic_of(p) & ZSTD_MAGIC_SKIPPABLE_MASK) == ZSTD_MAGIC_SKIPPABLE_START;
+}
+
 static int starts_as_zstd(const uint8_t *p, size_t n)
 {
-    uint32_t magic;
-    if (n < 4) return 0;
-    magic = (uint32_t)p[0] | (uint32_t)p[1] << 8 | (uint32_t)p[2] << 16 | (uint32_t)p[3] << 24;
-    return magic == ZSTD_MAGICNUMBER || (magic & ZSTD_MAGIC_SKIPPABLE_MASK) == ZSTD_MAGIC_SKIPPABLE_START;
+    return (n >= 4 && magic_of(p) == ZSTD_MAGICNUMBER) || starts_as_skippable(p, n);
 }
 
 /* Everything the source gives, up to OUT_CAP bytes (*capped then). */
@@ -90,6 +94,33 @@ static int decode_whole(ZSTD_DStream *ds, const uint8_t *in, size_t n, char *out
     return r == 0 ? WHOLE_OK : WHOLE_TRUNCATED;
 }
 
+/* RFC 8878 3.1.1.1.4: a frame's header may give the size of its content,
+ * which its blocks must then make (the zstd tool refuses a frame whose
+ * blocks make another size).  zstd's stream decoder checks that only when
+ * it has room for the whole frame at once, so for a stream it read whole
+ * this decodes each frame alone and holds it to its header.  1 when some
+ * frame's blocks make another size than its header gives; 0 when none
+ * does, or when zstd cannot walk the stream frame by frame (its legacy
+ * frames). */
+static int content_size_differs(ZSTD_DStream *ds, const uint8_t *p, size_t n)
+{
+    static char *scratch;
+    size_t got;
+    if (scratch == NULL && (scratch = malloc(OUT_CAP)) == NULL) abort();
+    while (n > 0) {
+        size_t k = ZSTD_findFrameCompressedSize(p, n);
+        unsigned long long size;
+        if (ZSTD_isError(k) || k == 0 || k > n) return 0;
+        size = ZSTD_getFrameContentSize(p, k);
+        if (!starts_as_skippable(p, k) && size != ZSTD_CONTENTSIZE_UNKNOWN && size != ZSTD_CONTENTSIZE_ERROR &&
+            (decode_whole(ds, p, k, scratch, &got) != WHOLE_OK || got != size))
+            return 1;
+        p += k;
+        n -= k;
+    }
+    return 0;
+}
+
 static void compare_with_whole(const uint8_t *in, size_t n, const char *out, size_t nout, mr_status st,
                                const mr__error *err, char *want)
 {
@@ -99,6 +130,10 @@ static void compare_with_whole(const uint8_t *in, size_t n, const char *out, siz
     if (ds == NULL && (ds = ZSTD_createDStream()) == NULL) abort();
     whole = decode_whole(ds, in, n, want, &nwant);
     if (whole == WHOLE_CAPPED) return;
+    if (whole == WHOLE_OK && content_size_differs(ds, in, n)) {
+        if (st == MR_OK) fail("the source read a frame whose blocks make another size than its header gives", "");
+        return;
+    }
     if (whole != WHOLE_OK) {
         /* Which failure is not compared: zstd's decoder of its legacy
          * frames (magic 0xFD2FB527, accepted after a first frame) can call
