@@ -16,7 +16,7 @@
 # skips; it never passes in silence.
 
 FUZZ_CC      ?= clang
-FUZZ_TARGETS := rowsplit numparse model zstd fitjson gzip
+FUZZ_TARGETS := rowsplit numparse model zstd fitjson gzip zframes
 FUZZ_SECONDS ?= 300
 FUZZ_CHECK_SECONDS ?= 30
 FB           := $(B)/fuzz

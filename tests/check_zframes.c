@@ -236,6 +236,41 @@ START_TEST(test_damaged_frames)
 }
 END_TEST
 
+/* A frame whose header gives more content than its blocks make (RFC 8878
+ * 3.1.1.1.4: Frame_Content_Size is the size of the content), more than
+ * any room a reader offers, after a good frame: refused by one thread and
+ * by several, naming the sizes.  The frame is 28 b5 2f fd, descriptor 80
+ * (a 4-byte size, no single segment), window 1c, size 0x3cb8b80f, an RLE
+ * block of 1024 zero bytes (02 20 00, 00) and an empty last raw block
+ * (01 00 00): found by the zframes fuzz target, whose oracle, zstd's
+ * stream decoder, checks that size only with room for the whole frame. */
+START_TEST(test_frame_short_of_its_header)
+{
+    static const unsigned char bad[] = {0x28, 0xb5, 0x2f, 0xfd, 0x80, 0x1c, 0x0f, 0xb8, 0xb8, 0x3c,
+                                        0x02, 0x20, 0x00, 0x00, 0x01, 0x00, 0x00};
+    static const int threads[] = {1, 3};
+    char path[] = "/tmp/mr-zframes-XXXXXX";
+    buf z = {0}, got;
+    size_t k;
+    int fd = mkstemp(path);
+    uint64_t parallel;
+    mr__error err;
+    ck_assert_int_ge(fd, 0);
+    close(fd);
+    put_frame(&z, (const unsigned char *)"y,x\n1,2\n", 8, 1);
+    put(&z, bad, sizeof bad);
+    write_file(path, &z);
+    for (k = 0; k < 2; k++) {
+        ck_assert_int_eq(read_all(path, threads[k], 65536, &got, &parallel, &err), MR_ERR_FORMAT);
+        ck_assert_msg(strstr(err.msg, path) != NULL && strstr(err.msg, "gives 1018738703 bytes of content") != NULL,
+                      "%d threads: %s", threads[k], err.msg);
+        free(got.p);
+    }
+    unlink(path);
+    free(z.p);
+}
+END_TEST
+
 /* ---- sets -------------------------------------------------------------- */
 
 static void touch(const char *dir, const char *name, const char *text)
@@ -323,6 +358,7 @@ static Suite *zframes_suite(void)
     tcase_add_test(tc, test_many_frames_same_text);
     tcase_add_test(tc, test_oversize_frame_streamed);
     tcase_add_test(tc, test_damaged_frames);
+    tcase_add_test(tc, test_frame_short_of_its_header);
     tcase_add_test(tc, test_directory_in_byte_order);
     tcase_add_test(tc, test_headers_held_to_the_first);
     tcase_add_test(tc, test_set_checksum);

@@ -6,11 +6,13 @@ command-line tests - tests/check_input.c, tests/check_numparse.c,
 tests/cli/errors.sh - and the bundled samples, each with the control bytes
 its target reads first (see the comment at the top of each fuzz_*.c).
 Needs the zstd and gzip commands, and build/millrace (`make`) for the fits
-of the samples.  Run from the top of the tree; rewrites the seeds.
+of the samples.  Run from the top of the tree; rewrites the seeds of the
+targets named (`tests/fuzz/make_corpus.py zframes`), or of all of them.
 """
 import os
 import shutil
 import subprocess
+import sys
 import tempfile
 
 HERE = os.path.dirname(os.path.abspath(__file__))
@@ -179,6 +181,54 @@ def zstd():
         shutil.rmtree(tmp)
 
 
+def zframes():
+    """Streams of several frames for the frame threads: with and without
+    their sizes, pzstd's layout (a skippable frame before each), more
+    frames than the ring of threads + 2 slots, and damaged ones."""
+    tmp = tempfile.mkdtemp()
+    try:
+        def compress(data, *opts, stdin=False):
+            p = os.path.join(tmp, "in")
+            with open(p, "wb") as f:
+                f.write(data)
+            if stdin:  # a pipe into zstd: no content size in the header
+                with open(p, "rb") as f:
+                    return subprocess.run(["zstd", "-q", "-c", *opts], stdin=f, check=True,
+                                          stdout=subprocess.PIPE).stdout
+            subprocess.run(["zstd", "-q", "-f", *opts, "-o", p + ".zst", p], check=True)
+            with open(p + ".zst", "rb") as f:
+                return f.read()
+
+        def skippable(payload):
+            return bytes([0x50, 0x2A, 0x4D, 0x18]) + len(payload).to_bytes(4, "little") + payload
+
+        lines = CSV["good"].encode().splitlines(keepends=True)
+        pieces = [b"".join(lines[i:i + 5]) for i in range(0, len(lines), 5)]
+        sized = [compress(p) for p in pieces]
+        unsized = [compress(p, stdin=True) for p in pieces]
+        many = b"".join(compress(b"y,x\n" if i == 0 else b"%d,%d\n" % (i, i * 7)) for i in range(14))
+        mid = len(sized[0]) + len(sized[1]) // 2
+        seeds = {
+            "frames_sized": b"".join(sized),
+            "frames_unsized": b"".join(unsized),
+            "frames_mixed": b"".join(s if k % 2 else u for k, (s, u) in enumerate(zip(sized, unsized))),
+            "frames_pzstd_layout": b"".join(skippable(len(f).to_bytes(4, "little")) + f for f in sized),
+            "frames_many_small": many,
+            "frames_no_checksum": b"".join(compress(p, "--no-check") for p in pieces),
+            "frames_empty_between": sized[0] + compress(b"") + sized[1],
+            "frames_truncated": b"".join(sized)[:mid],
+            "frames_corrupt_second": sized[0] + bytes(c ^ 0x5A for c in sized[1][:24]) + sized[1][24:],
+            "frames_trailing_garbage": b"".join(sized) + b"garbage",
+            "frames_level19": compress(CSV["good"].encode() * 4, "-19") + sized[0],
+            "one_frame": compress(CSV["good"].encode()),
+            "skippable_only": skippable(b"junk!"),
+        }
+        for k, (name, data) in enumerate(sorted(seeds.items())):
+            write("zframes", name, bytes([k, k * 37 % 256, k * 53 % 256]) + data)
+    finally:
+        shutil.rmtree(tmp)
+
+
 def run_tool(args):
     subprocess.run(args, check=True, stdout=subprocess.DEVNULL)
 
@@ -249,11 +299,9 @@ def gzip():
 
 
 if __name__ == "__main__":
-    for t in ("rowsplit", "numparse", "model", "zstd", "fitjson", "gzip"):
+    # the targets named (all by default): each one's seeds rewritten
+    makers = {"rowsplit": rowsplit, "numparse": numparse, "model": model, "zstd": zstd,
+              "fitjson": fitjson, "gzip": gzip, "zframes": zframes}
+    for t in sys.argv[1:] or list(makers):
         shutil.rmtree(os.path.join(HERE, "corpus", t), ignore_errors=True)
-    rowsplit()
-    numparse()
-    model()
-    zstd()
-    fitjson()
-    gzip()
+        makers[t]()
