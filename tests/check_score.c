@@ -115,6 +115,9 @@ START_TEST(options_checked)
     ck_assert_int_eq(mr_scorer_set_level(s, 0.0), MR_ERR_USAGE);
     ck_assert_int_eq(mr_scorer_set_unseen(s, (mr_unseen)7), MR_ERR_USAGE);
     ck_assert_int_eq(mr_scorer_set_threads(s, -1), MR_ERR_USAGE);
+    ck_assert_int_eq(mr_scorer_column(s, "mean"), MR_OK);
+    ck_assert_int_eq(mr_scorer_column(s, "Mean"), MR_ERR_USAGE);
+    ck_assert_ptr_nonnull(strstr(mr_scorer_errmsg(s), "no column 'Mean'"));
     ck_assert_ptr_null(mr_scorer_groups_report(s, MR_GROUPS_CSV)); /* no groups asked for */
     ck_assert_int_eq(mr_scorer_run(s, "samples/falls.csv", "samples/falls.csv"), MR_ERR_USAGE);
     mr_scorer_free(s);

@@ -12,10 +12,20 @@
 static const char *const column_names[] = {"eta",           "se_eta",         "mean",          "mean_low",
                                            "mean_high",     "resid_response", "resid_pearson", "resid_deviance"};
 
-size_t mr__score_columns(const mr__score_cfg *c, const char *const **names)
+const char *mr__score_column_name(int k) { return column_names[k]; }
+
+int mr__score_column_index(const char *name)
 {
-    *names = column_names;
-    return c->role_field[MR__SCORE_OUTCOME] >= 0 ? 8 : 5;
+    int k;
+    for (k = 0; k < MR__SCORE_NCOLUMNS; k++)
+        if (strcmp(column_names[k], name) == 0) return k;
+    return -1;
+}
+
+int mr__score_column_written(const mr__score_cfg *c, int k)
+{
+    if (k >= MR__SCORE_FIRST_RESIDUAL && c->role_field[MR__SCORE_OUTCOME] < 0) return 0;
+    return c->columns == 0 || (c->columns >> k & 1u);
 }
 
 static mr_status score_open(const mr__pass_env *env, void **out, mr__error *err)
@@ -45,8 +55,8 @@ static mr_status write_text(mr__score_cfg *c, mr__strbuf *o, mr__error *err)
 static mr_status score_start(void *job, mr__error *err)
 {
     mr__score_cfg *c = job;
-    const char *const *names;
-    size_t i, n = mr__score_columns(c, &names);
+    size_t i, n = 0;
+    int k;
     mr__strbuf o;
     mr_status st;
     mr__strbuf_init(&o);
@@ -54,7 +64,8 @@ static mr_status score_start(void *job, mr__error *err)
         mr__score_put_text(&o, c->keep_name[i], strlen(c->keep_name[i]));
         mr__strbuf_append(&o, ",", 1);
     }
-    for (i = 0; i < n; i++) mr__strbuf_printf(&o, "%s%s", i ? "," : "", names[i]);
+    for (k = 0; k < MR__SCORE_NCOLUMNS; k++)
+        if (mr__score_column_written(c, k)) mr__strbuf_printf(&o, "%s%s", n++ ? "," : "", column_names[k]);
     mr__strbuf_append(&o, "\n", 1);
     st = write_text(c, &o, err);
     mr__strbuf_release(&o);

@@ -78,6 +78,7 @@ typedef struct mr__score_cfg {
     size_t nmissing_tokens;
     const char *display;
     double z;        /* normal quantile of the interval */
+    unsigned columns; /* bit k: computed column k asked for; 0: every one */
     int blank_unscorable; /* 1: an unseen level or missing value writes empty predictions */
     mr__score_write_fn write;
     void *write_user;
@@ -96,8 +97,15 @@ typedef struct mr__score_cfg {
     uint64_t rows, scored, unseen, missing;
 } mr__score_cfg;
 
-/* The names of the computed columns, in output order; the residuals only
- * when the outcome is bound. */
-size_t mr__score_columns(const mr__score_cfg *c, const char *const **names);
+/* The computed columns, in output order: eta, se_eta, mean, mean_low,
+ * mean_high, then the residuals (resid_response, resid_pearson,
+ * resid_deviance) when the outcome is bound. */
+enum { MR__SCORE_NCOLUMNS = 8, MR__SCORE_FIRST_RESIDUAL = 5 };
+const char *mr__score_column_name(int k);
+/* Column k's number by its name, or -1. */
+int mr__score_column_index(const char *name);
+/* Whether column k is written (the outcome bound for a residual, and
+ * among those asked for when any were). */
+int mr__score_column_written(const mr__score_cfg *c, int k);
 
 #endif

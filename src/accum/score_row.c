@@ -195,7 +195,7 @@ static void linear_predictor(const score_worker *sw, size_t m, double off, doubl
 /* A row's predictions as text, built on the stack and added to the
  * output in one append: its up to 8 numbers, each after a comma. */
 typedef struct row_text {
-    char t[8 * (MR__DTOA_SIZE + 1)];
+    char t[MR__SCORE_NCOLUMNS * (MR__DTOA_SIZE + 1)];
     size_t n;
 } row_text;
 
@@ -237,42 +237,43 @@ static double inverse_link(const mr__score_cfg *c, double eta)
     return mr__link_inv1(c->link, eta, &mu_eta);
 }
 
-/* The residuals of a row with its outcome. */
-static void put_residuals(const score_worker *sw, row_text *o, const score_row *row, double mu)
+/* The residuals of a row with its outcome (v[5..7]; NaN, an empty
+ * field, where the outcome is missing). */
+static void residuals(const score_worker *sw, const score_row *row, double mu, double *v)
 {
     const mr__score_cfg *c = sw->c;
     double d, var;
+    v[0] = v[1] = v[2] = NAN;
+    if (!row->has_y) return;
     c->family.ops->unit_deviance_n(&c->family, &row->y, &mu, 1, &d);
     c->family.ops->variance_n(&c->family, &mu, 1, &var);
     d *= row->prior;
-    put_number(o, row->y - mu, 1);
-    put_number(o, (row->y - mu) * sqrt(row->prior / var), 1);
-    put_number(o, (row->y > mu ? 1 : row->y < mu ? -1 : 0) * sqrt(d > 0 ? d : 0), 1);
+    v[0] = row->y - mu;
+    v[1] = (row->y - mu) * sqrt(row->prior / var);
+    v[2] = (row->y > mu ? 1 : row->y < mu ? -1 : 0) * sqrt(d > 0 ? d : 0);
 }
 
-/* Writes the row's predictions (and residuals, empty where the outcome
- * is missing); returns its mean. */
+/* Writes the row's predictions (and residuals) that are asked for;
+ * returns its mean. */
 static double put_predictions(const score_worker *sw, mr__strbuf *out, size_t m, const score_row *row)
 {
     const mr__score_cfg *c = sw->c;
     row_text o;
-    double eta, se, mu, lo, hi;
+    double eta, se, mu, lo, hi, v[MR__SCORE_NCOLUMNS];
+    int k, n = 0;
     o.n = 0;
     linear_predictor(sw, m, row->off, &eta, &se);
     mu = inverse_link(c, eta);
     lo = inverse_link(c, eta - c->z * se);
     hi = inverse_link(c, eta + c->z * se);
-    put_number(&o, eta, c->nkeep > 0);
-    put_number(&o, se, 1);
-    put_number(&o, mu, 1);
-    put_number(&o, lo < hi ? lo : hi, 1);
-    put_number(&o, lo < hi ? hi : lo, 1);
-    if (c->role_field[MR__SCORE_OUTCOME] >= 0 && !row->has_y) {
-        memcpy(o.t + o.n, ",,,", 3);
-        o.n += 3;
-    } else if (c->role_field[MR__SCORE_OUTCOME] >= 0) {
-        put_residuals(sw, &o, row, mu);
-    }
+    v[0] = eta;
+    v[1] = se;
+    v[2] = mu;
+    v[3] = lo < hi ? lo : hi;
+    v[4] = lo < hi ? hi : lo;
+    if (c->role_field[MR__SCORE_OUTCOME] >= 0) residuals(sw, row, mu, v + MR__SCORE_FIRST_RESIDUAL);
+    for (k = 0; k < MR__SCORE_NCOLUMNS; k++)
+        if (mr__score_column_written(c, k)) put_number(&o, v[k], c->nkeep > 0 || n++ > 0);
     mr__strbuf_append(out, o.t, o.n);
     return mu;
 }
@@ -399,8 +400,8 @@ static void score_one(score_worker *sw, uint32_t r, score_slot *out)
 {
     const mr__score_cfg *c = sw->c;
     score_row row = {.off = 0, .y = 0, .prior = 1, .expo = 0, .has_y = 0};
-    size_t i, n, ncols = c->role_field[MR__SCORE_OUTCOME] >= 0 ? 8 : 5;
-    int why = row_offset(sw, r, &row.off);
+    size_t i, n, ncols = 0;
+    int k, why = row_offset(sw, r, &row.off);
     if (why == ROW_OK) why = row_values(sw, r, sw->lev, sw->num);
     if (why == ROW_OK) why = row_outcome(sw, r, &row);
     if (why == ROW_FAILED) return;
@@ -415,6 +416,7 @@ static void score_one(score_worker *sw, uint32_t r, score_slot *out)
         out->scored++;
         if (c->nby && row.has_y) note_group_row(sw, out, &row, mu);
     } else {
+        for (k = 0; k < MR__SCORE_NCOLUMNS; k++) ncols += (size_t)mr__score_column_written(c, k);
         for (i = c->nkeep > 0 ? 0 : 1; i < ncols; i++) mr__strbuf_append(&out->out, ",", 1);
         if (why == ROW_UNSEEN || why == ROW_NO_ESTIMATE) out->unseen++;
         else out->missing++;

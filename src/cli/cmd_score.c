@@ -13,6 +13,18 @@ typedef struct score_cli {
     mr_scorer *scorer;
 } score_cli;
 
+/* --columns NAME,NAME...: each one asked of the scorer. */
+static int score_columns(mr_scorer *s, const char *list)
+{
+    char *copy = strdup(list), *name, *save = NULL;
+    mr_status st = copy ? MR_OK : MR_ERR_NO_MEMORY;
+    for (name = copy ? strtok_r(copy, ",", &save) : NULL; st == MR_OK && name; name = strtok_r(NULL, ",", &save))
+        st = mr_scorer_column(s, name);
+    free(copy);
+    if (st == MR_ERR_NO_MEMORY) return cli_fail(st, "out of memory");
+    return st == MR_OK ? 0 : cli_fail(st, mr_scorer_errmsg(s));
+}
+
 /* 0 when the option was taken, else an exit code. */
 static int score_option(mr_scorer *s, score_cli *o, int opt, const char *arg)
 {
@@ -25,6 +37,7 @@ static int score_option(mr_scorer *s, score_cli *o, int opt, const char *arg)
     case OPT_KEEP: return mr_scorer_keep(s, arg) == MR_OK ? 0 : cli_fail(MR_ERR_NO_MEMORY, "out of memory");
     case OPT_BY: o->by = 1; return mr_scorer_group_by(s, arg) == MR_OK ? 0 : cli_fail(MR_ERR_NO_MEMORY, "out of memory");
     case OPT_BY_OUT: o->by_out = arg; return 0;
+    case OPT_COLUMNS: return score_columns(s, arg);
     case OPT_HELP: o->help = 1; return 0;
     case OPT_UNSEEN:
         if (strcmp(arg, "fail") != 0 && strcmp(arg, "blank") != 0) return cli_usage_error("--unseen takes fail or blank");
@@ -36,7 +49,8 @@ static int score_option(mr_scorer *s, score_cli *o, int opt, const char *arg)
         if (cli_parse_count(arg, &n) != 0 || n > 256 || mr_scorer_set_threads(s, (int)n) != MR_OK)
             return cli_usage_error("--threads takes 0 to 256");
         return 0;
-    default: return cli_usage_error("score takes --fit, --out, --keep, --level, --unseen, --threads, --by, --by-out, --quiet");
+    default: return cli_usage_error("score takes --fit, --out, --keep, --columns, --level, --unseen, --threads, --by, --by-out, "
+                                           "--quiet");
     }
 }
 

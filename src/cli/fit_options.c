@@ -39,6 +39,7 @@ const struct option cli_fit_options[] = {
     {"unseen", required_argument, NULL, OPT_UNSEEN},
     {"by", required_argument, NULL, OPT_BY},
     {"by-out", required_argument, NULL, OPT_BY_OUT},
+    {"columns", required_argument, NULL, OPT_COLUMNS},
     {"checkpoint", required_argument, NULL, OPT_CHECKPOINT},
     {NULL, 0, NULL, 0},
 };

@@ -10,7 +10,7 @@ const char cli_usage_text[] =
     "       millrace report --html PATH [--at COL=VALUE]... [--digits N] [--groups GROUPS.json] FIT.json...\n"
     "                                  saved fits as one HTML page (plots, comparison of the fits;\n"
     "                                  a funnel plot of score's --by-out JSON)\n"
-    "       millrace score --fit FIT.json --out FILE[.zst] [--keep COL]... [--level P]\n"
+    "       millrace score --fit FIT.json --out FILE[.zst] [--keep COL]... [--columns A,B,...] [--level P]\n"
     "                      [--unseen fail|blank] [--threads N] [--by COL]... [--by-out PATH] DATA\n"
     "                      predictions and residuals per row; observed/expected by group\n"
     "       millrace survey [--json PATH] [--distinct-cap N] [--missing TOKEN]... [--threads N]\n"

@@ -77,6 +77,18 @@ mr_status mr_scorer_keep(mr_scorer *s, const char *column) { return add_name(s, 
 
 mr_status mr_scorer_group_by(mr_scorer *s, const char *column) { return add_name(s, &s->by, &s->nby, column); }
 
+mr_status mr_scorer_column(mr_scorer *s, const char *name)
+{
+    int k = mr__score_column_index(name);
+    if (k < 0)
+        return mr__fail(&s->err, MR_ERR_USAGE,
+                        "--columns: no column '%s' (eta, se_eta, mean, mean_low, mean_high, resid_response, "
+                        "resid_pearson, resid_deviance)",
+                        name);
+    s->columns |= 1u << k;
+    return MR_OK;
+}
+
 mr_status mr_scorer_set_level(mr_scorer *s, double level)
 {
     if (!(level > 0 && level < 1)) return mr__fail(&s->err, MR_ERR_USAGE, "--level: must lie strictly between 0 and 1");
@@ -252,6 +264,7 @@ static mr_status make_model(scoring *g, mr__error *err)
     g->c.role_name[MR__SCORE_EXPOSURE] = fit->exposure;
     g->c.z = mr__normal_quantile(0.5 + g->s->level / 2);
     g->c.blank_unscorable = g->s->blank;
+    g->c.columns = g->s->columns;
     g->c.display = g->display;
     /* a fit read from a JSON older than its tokens: the defaults it had */
     g->c.missing_token = fit->missing_known ? (const char *const *)fit->missing_token : mr__default_missing;
@@ -322,6 +335,10 @@ static mr_status on_header(void *user, const char *line, size_t len, mr__error *
     g->c.nby = g->s->nby;
     g->c.keep_name = (const char *const *)g->s->keep;
     MR__TRY(bind_roles(g, err));
+    if (g->c.role_field[MR__SCORE_OUTCOME] < 0 && (g->c.columns >> MR__SCORE_FIRST_RESIDUAL) != 0)
+        return mr__fail(err, MR_ERR_USAGE, "%s: --columns asks for residuals, which need the outcome '%s' (and the "
+                                           "trials and weight the fit names)",
+                        g->display, g->c.role_name[MR__SCORE_OUTCOME]);
     if (g->c.nby && g->c.role_field[MR__SCORE_OUTCOME] < 0)
         return mr__fail(err, MR_ERR_USAGE, "%s: --by needs the outcome '%s' (and the trials and weight the fit names)",
                         g->display, g->c.role_name[MR__SCORE_OUTCOME]);

@@ -26,6 +26,7 @@ struct mr_scorer {
     size_t nkeep, nby;
     double level;
     int blank, threads;
+    unsigned columns; /* mr__score_cfg.columns */
     uint64_t count[4];
     char *data; /* the last run's input, for the groups' output checks */
     mr__score_groups g;

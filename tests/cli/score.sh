@@ -86,4 +86,25 @@ printf 'y,x,g\n1,NA,a\n' >"$tmp/na.csv"
 "$bin" score --fit "$tmp/dots.json" --out "$tmp/na-out.csv" "$tmp/na.csv" 2>"$tmp/err"
 check "NA is not missing for a fit that did not take it: exit 4, not a number" sh -c "grep -q 'not a number' '$tmp/err'"
 
+
+# --columns: the columns asked for, in the standard order whatever the
+# order given, each field byte for byte the full output's (the oracle: the
+# same run without --columns), blank rows included; an unknown name and a
+# residual without the outcome are usage errors (exit 2), nothing written.
+"$bin" score --fit "$tmp/dots.json" --unseen blank --keep g --out "$tmp/all.csv" "$tmp/dots.csv" 2>/dev/null
+"$bin" score --fit "$tmp/dots.json" --unseen blank --keep g --columns resid_pearson,mean,eta --out "$tmp/some.csv" \
+    "$tmp/dots.csv" 2>/dev/null
+check "--columns: the fields of the full output, in its order" /usr/bin/python3 -c '
+import csv, sys
+full = list(csv.reader(open(sys.argv[1]))); some = list(csv.reader(open(sys.argv[2])))
+want = [full[0].index(c) for c in ("g", "eta", "mean", "resid_pearson")]
+sys.exit(some != [[row[i] for i in want] for row in full] or len(some) != 7)' "$tmp/all.csv" "$tmp/some.csv"
+"$bin" score --fit "$tmp/dots.json" --columns mean,sideways --out "$tmp/sideways.csv" "$tmp/dots.csv" 2>"$tmp/err"
+check "--columns with an unknown name: exit 2, naming it" sh -c "[ $? -eq 2 ] && grep -q \"no column 'sideways'\" '$tmp/err' && [ ! -e '$tmp/sideways.csv' ]"
+printf 'x,g\n0.5,a\n' >"$tmp/noy.csv"
+"$bin" score --fit "$tmp/dots.json" --columns mean,resid_deviance --out "$tmp/noy-out.csv" "$tmp/noy.csv" 2>"$tmp/err"
+check "--columns: a residual without the outcome: exit 2, nothing written" sh -c "[ $? -eq 2 ] && grep -q 'need the outcome' '$tmp/err' && [ ! -e '$tmp/noy-out.csv' ]"
+"$bin" score --fit "$tmp/dots.json" --columns mean --out "$tmp/noy-out.csv" "$tmp/noy.csv" 2>/dev/null
+check "--columns mean without the outcome: the mean alone" sh -c "head -n 1 '$tmp/noy-out.csv' | grep -qx mean"
+
 finish
