@@ -15,11 +15,17 @@
  * who look later. */
 enum { LINE_EVERY_SECONDS = 10 };
 
+/* What a pass's counts cover: "" (all), or the process's share; the first
+ * pass is never split between processes. */
+static const char *share_of(const cli *c, const mr_progress *p)
+{
+    return p->pass > 1 && c->share_note ? c->share_note : "";
+}
+
 static void pass_done_line(const cli *c)
 {
     const mr_progress *p = &c->last;
-    /* the first pass is never split between processes */
-    const char *note = p->pass > 1 && c->share_note ? c->share_note : "";
+    const char *note = share_of(c, p);
     fprintf(stderr, "pass %d done: %llu rows%s in %.1f s\n", p->pass, (unsigned long long)p->rows_done, note,
             p->seconds);
 }
@@ -29,7 +35,7 @@ static void line_progress(const mr_progress *p, cli *c)
     if (c->last.pass != 0 && p->pass != c->last.pass) pass_done_line(c);
     if (p->pass != c->last.pass) c->line_due = LINE_EVERY_SECONDS;
     if (p->seconds >= c->line_due) {
-        const char *note = p->pass > 1 && c->share_note ? c->share_note : "";
+        const char *note = share_of(c, p);
         if (p->bytes_total > 0 && !note[0])
             fprintf(stderr, "pass %d: %.1f%% of the input, %llu rows, %.0f s\n", p->pass,
                     100.0 * (double)p->bytes_done / (double)p->bytes_total, (unsigned long long)p->rows_done, p->seconds);

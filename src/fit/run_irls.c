@@ -351,16 +351,12 @@ static void sample_start(mr__run *r, mr__store *sample, size_t stride, double *b
  * fit's. */
 static void fill_new_coefficients(mr__run *r, mr__store *sample, size_t stride)
 {
-    double *beta = mr__malloc_array(mr__design_ncoef(&r->design), sizeof *beta), *prev = NULL;
+    double *beta = mr__malloc_array(mr__design_ncoef(&r->design), sizeof *beta);
     size_t carried, guessed;
     mr__error scratch;
     if (beta != NULL) sample_start(r, sample, stride, beta);
-    if (r->warm && (prev = mr__malloc_array(r->design.p, sizeof *prev)) != NULL) {
-        memcpy(prev, r->beta_warm, r->design.p * sizeof *prev);
-        if (mr__start_map(r->f->start, &r->design, beta, r->beta_warm, &carried, &guessed, &scratch) != MR_OK)
-            memcpy(r->beta_warm, prev, r->design.p * sizeof *prev);
-    }
-    mr__free(prev);
+    /* on failure (no memory) beta_warm is left as it was: the old fit's */
+    if (r->warm) (void)mr__start_map(r->f->start, &r->design, beta, r->beta_warm, &carried, &guessed, &scratch);
     mr__free(beta);
 }
 
