@@ -34,6 +34,7 @@ mr_status mr__irls_init(mr__irls *s, const mr__irls_cfg *cfg, mr__error *err)
     s->tolerance = cfg->tolerance;
     s->dispersion_rows = cfg->dispersion_rows;
     s->newton = cfg->newton;
+    s->rest_only = cfg->rest_only;
     s->step = s->step_before = INFINITY;
     s->by_step = 1; /* the rule in force, until the boundary's ends the fit */
     s->max_iterations = cfg->max_iterations;
@@ -227,11 +228,42 @@ static mr_status scratch(mr__irls *s, size_t n, mr__error *err)
  * levels' (solve/absorb.h): the variances are the inverse's diagonal over
  * all of them, levels included (no L x L matrix), and d'Hd is taken by
  * blocks, so the step is measured in the whole system's standard errors. */
+/* A level's Newton step in a poisson log-link model moves its mean by
+ * the factor 1 + t, t = sum (y - mu) / sum mu over its rows when the
+ * other coefficients stay: taking log(1 + t) instead of t lands on that
+ * mean, the level's own maximum, where t overshoots or falls short by
+ * much (a level of a few events started a standard error or two away:
+ * from t = e^2 - 1, Newton walks down about a unit a pass).  The fixed
+ * point is the same (t = 0), and near it log(1 + t) - t is of the order
+ * of t^2, so convergence stays quadratic; a step that would take the
+ * mean to zero or below stays Newton's (a level with no events, on its
+ * way to infinity). */
+static void level_steps_by_mean(mr__irls *s, size_t first_level)
+{
+    size_t j;
+    for (j = first_level; j < s->p; j++) {
+        double t = s->next[j] - s->beta[j];
+        if (!s->aliased[j] && t > MR__IRLS_LEVEL_MEAN_FLOOR - 1) s->next[j] = s->beta[j] + log1p(t);
+    }
+}
+
+/* The largest step of a column other than the levels', in its own
+ * standard errors, squared (the step's size where the levels are not
+ * judged: see mr__irls_cfg's rest_only). */
+static double rest_quadratic(const mr__irls *s, const double *d, const double *var, size_t pr)
+{
+    double most = 0;
+    size_t j;
+    for (j = 0; j < pr; j++)
+        if (!s->aliased[j] && var[j] > 0) most = fmax(most, d[j] * d[j] / var[j]);
+    return most;
+}
+
 static mr_status absorb_step(mr__irls *s, const mr__block_sums *sums, mr__error *err)
 {
-    size_t p = s->p, j, rank;
+    size_t p = s->p, j, rank, pr = p - sums->nlev;
     double *var, *d;
-    mr__absorb_sums a = {sums->nlev, p - sums->nlev, sums->lev, sums->xtwx, sums->xtwz};
+    mr__absorb_sums a = {sums->nlev, pr, sums->lev, sums->xtwx, sums->xtwz};
     MR__TRY(scratch(s, 2 * p, err));
     var = s->inverse;
     d = s->inverse + p;
@@ -240,8 +272,9 @@ static mr_status absorb_step(mr__irls *s, const mr__block_sums *sums, mr__error 
     s->step_before = s->step;
     if (!s->have_beta) s->step = INFINITY;
     else {
+        if (s->newton && s->family == MR_POISSON) level_steps_by_mean(s, pr);
         for (j = 0; j < p; j++) d[j] = s->next[j] - s->beta[j];
-        s->step = step_in_se(s, sums, mr__absorb_quadratic(&a, d), rank);
+        s->step = step_in_se(s, sums, s->rest_only ? rest_quadratic(s, d, var, pr) : mr__absorb_quadratic(&a, d), rank);
     }
     return MR_OK;
 }

@@ -39,6 +39,9 @@
 #define MR__IRLS_GROWTH_PASSES 3
 /* Or the growth over the fit that marks it (see mr__irls_ran_off). */
 #define MR__IRLS_GROWTH_FACTOR 100.0
+/* A level's step by its mean (irls.c, level_steps_by_mean) only where
+ * it keeps at least this share of the level's mean. */
+#define MR__IRLS_LEVEL_MEAN_FLOOR 1e-3
 
 typedef struct mr__irls_cfg {
     size_t p;
@@ -46,6 +49,13 @@ typedef struct mr__irls_cfg {
     double dispersion_rows; /* rows with weight when the dispersion is estimated
                              * (Pearson over rows - rank), else 0 (it is 1) */
     int newton;            /* a canonical link: IRLS is Newton's method */
+    /* With an eliminated factor, the step judged by the other columns
+     * alone, each in its own standard errors: a warm start's fit on a
+     * sample, where levels with no events there run off, and a level's
+     * value is of little use to the full passes (irls.c,
+     * level_steps_by_mean).  Not kept in a checkpoint (a sample's fit
+     * makes none). */
+    int rest_only;
     int max_iterations;
     int step_at_end;       /* after the last pass allowed, still take its step */
     const double *start;   /* NULL: from the family's starting means; else p values */
@@ -65,6 +75,7 @@ typedef struct mr__irls {
     uint64_t p;
     double tolerance, dispersion_rows;
     int32_t max_iterations, step_at_end, null_intercept, family, from_start;
+    int32_t rest_only; /* mr__irls_cfg's; not in the encoding */
     /* the point: beta is where the next pass goes, prev the last accepted
      * one, next scratch for the solver (not part of the encoding) */
     double *beta, *prev, *next;

@@ -51,6 +51,7 @@ typedef struct irls_job {
     double tolerance;
     double dispersion_rows; /* see mr__irls_cfg; 0 on the sample (phi taken as 1) */
     int max_iterations;
+    int rest_only;       /* see mr__irls_cfg */
     double *beta_out;    /* the coefficients reached */
     int *growing_out;    /* NULL, or per coefficient: its SE grew pass after pass */
     double deviance_shift; /* collapsed patterns: the deviance within patterns */
@@ -163,6 +164,7 @@ static mr_status init_state(mr__run *r, irls_job *job, mr__irls *s, mr__error *e
     c.tolerance = job->tolerance;
     c.dispersion_rows = job->dispersion_rows;
     c.newton = newton_link(r);
+    c.rest_only = job->rest_only;
     c.max_iterations = job->max_iterations;
     c.step_at_end = job->step_at_end;
     c.start = job->start;
@@ -293,17 +295,23 @@ static int sample_fit(mr__run *r, size_t stride, const double *start, int max_it
      * file's, so a step of a thousandth of its standard errors is near
      * enough */
     job.tolerance = 1e-3;
+    job.rest_only = r->design.nabsorb > 0;
     job.max_iterations = max_iterations;
     job.step_at_end = start != NULL;
     job.beta_out = out;
     job.growing_out = mr__calloc(mr__design_ncoef(&r->design) + 1, sizeof *job.growing_out);
     ok = job.growing_out != NULL && iterate(r, &job, &res, &scratch) == MR_OK && !job.restarted &&
          (job.converged || job.step_at_end);
-    /* a coefficient running off on the sample (a level whose rows there
-     * are all zeros: many of a `many` factor's levels) has no value to
-     * start from, and from its ever smaller weight the first full step
-     * would leap out of range */
-    for (j = 0; ok && j < mr__design_ncoef(&r->design); j++) ok = isfinite(out[j]) && !job.growing_out[j];
+    /* a coefficient running off on the sample has no value to start
+     * from, and from its ever smaller weight the first full step would
+     * leap out of range; a `many` factor's level doing so (its rows there
+     * all zeros: many levels' are) starts at 0, as a level the sample
+     * did not meet does */
+    for (j = 0; ok && j < mr__design_ncoef(&r->design); j++) {
+        int level = j >= r->design.p;
+        if (level && (job.growing_out[j] || !isfinite(out[j]))) out[j] = 0;
+        else ok = isfinite(out[j]) && !job.growing_out[j];
+    }
     mr__free(job.growing_out);
     *iterations = job.iterations;
     mr__pass_result_release(&res, 0);
