@@ -20,42 +20,63 @@ static const double *row_of(const mr__absorb_sums *s, size_t l) { return s->lev 
 
 static int level_empty(const double *row) { return !(row[0] > 0) || !isfinite(row[0]); }
 
-/* S = A - sum_l c_l c_l' / d_l and its right-hand side, levels added in
- * order (the same bits whatever produced the sums); g holds pr doubles. */
-static void schur(const mr__absorb_sums *s, double *S, double *rhs, double *g)
+/* A level's row meets few of the other columns (its own rows' factor
+ * levels and numerics): its nonzero columns, in order, into nz.  Terms
+ * with a zero factor add or subtract a zero, which leaves every sum as it
+ * was (no sum here is -0: each starts at +0 or at a sum of products made
+ * from +0, and -0 comes only from -0 + -0 or -0 - +0), so the loops below
+ * go over nz alone and give the bits of the loops over all pr. */
+static size_t nonzero_columns(const double *c, size_t pr, size_t *nz)
 {
-    size_t pr = s->pr, l, i, j;
+    size_t i, n = 0;
+    for (i = 0; i < pr; i++)
+        if (c[i] != 0) nz[n++] = i;
+    return n;
+}
+
+/* S = A - sum_l c_l c_l' / d_l and its right-hand side, levels added in
+ * order (the same bits whatever produced the sums); g holds pr doubles,
+ * nz pr indices. */
+static void schur(const mr__absorb_sums *s, double *S, double *rhs, double *g, size_t *nz)
+{
+    size_t pr = s->pr, l, a, b;
     if (pr == 0) return; /* the levels alone: A and b_R may be NULL */
     memcpy(S, s->A, pr * pr * sizeof *S);
     memcpy(rhs, s->bR, pr * sizeof *rhs);
     for (l = 0; l < s->nlev; l++) {
         const double *row = row_of(s, l), *c = row + 2;
+        size_t n;
         if (level_empty(row)) continue;
-        for (i = 0; i < pr; i++) g[i] = c[i] / row[0];
-        for (j = 0; j < pr; j++) {
+        n = nonzero_columns(c, pr, nz);
+        for (a = 0; a < n; a++) g[nz[a]] = c[nz[a]] / row[0];
+        for (b = 0; b < n; b++) {
+            size_t j = nz[b];
             double *col = S + j * pr;
-            for (i = 0; i <= j; i++) col[i] -= g[i] * c[j];
+            for (a = 0; a <= b; a++) col[nz[a]] -= g[nz[a]] * c[j];
             rhs[j] -= g[j] * row[1];
         }
     }
 }
 
-/* g' M g for M pr x pr full (zero where aliased). */
-static double form(const double *M, size_t pr, const double *g)
+/* g' M g for M pr x pr full (zero where aliased), g nonzero at nz[0..n)
+ * only. */
+static double form(const double *M, size_t pr, const double *g, const size_t *nz, size_t n)
 {
-    size_t i, j;
+    size_t a, b;
     double sum = 0;
-    for (j = 0; j < pr; j++) {
+    for (b = 0; b < n; b++) {
+        const double *col = M + nz[b] * pr;
         double mg = 0;
-        for (i = 0; i < pr; i++) mg += M[j * pr + i] * g[i];
-        sum += g[j] * mg;
+        for (a = 0; a < n; a++) mg += col[nz[a]] * g[nz[a]];
+        sum += g[nz[b]] * mg;
     }
     return sum;
 }
 
-static void levels_from_rest(const mr__absorb_sums *s, mr__absorb_solution *sol, double *g, int want_cov)
+static void levels_from_rest(const mr__absorb_sums *s, mr__absorb_solution *sol, double *g, size_t *nz,
+                             int want_cov)
 {
-    size_t pr = s->pr, l, j;
+    size_t pr = s->pr, l, a, n;
     for (l = 0; l < s->nlev; l++) {
         const double *row = row_of(s, l), *c = row + 2;
         double b;
@@ -67,12 +88,13 @@ static void levels_from_rest(const mr__absorb_sums *s, mr__absorb_solution *sol,
             continue;
         }
         b = row[1] / row[0];
-        for (j = 0; j < pr; j++) {
-            g[j] = c[j] / row[0];
-            b -= g[j] * sol->beta_rest[j];
+        n = nonzero_columns(c, pr, nz);
+        for (a = 0; a < n; a++) {
+            g[nz[a]] = c[nz[a]] / row[0];
+            b -= g[nz[a]] * sol->beta_rest[nz[a]];
         }
         sol->beta_lev[l] = b;
-        if (want_cov) sol->var_lev[l] = 1.0 / row[0] + form(sol->cov_rest, pr, g);
+        if (want_cov) sol->var_lev[l] = 1.0 / row[0] + form(sol->cov_rest, pr, g, nz, n);
     }
 }
 
@@ -99,26 +121,29 @@ mr_status mr__absorb_solve(const mr__absorb_sums *s, int want_cov, mr__absorb_so
 {
     size_t pr = s->pr, j;
     double *S = NULL, *rhs = NULL, *g = NULL, *ref = NULL;
+    size_t *nz = NULL;
     mr_status st = solution_alloc(sol, s->nlev, pr, want_cov, err);
     if (st != MR_OK) return st;
     S = mr__malloc_array(pr * pr + 1, sizeof *S);
     rhs = mr__malloc_array(pr + 1, sizeof *rhs);
     g = mr__malloc_array(pr + 1, sizeof *g);
     ref = mr__malloc_array(pr + 1, sizeof *ref);
-    if (!S || !rhs || !g || !ref) {
+    nz = mr__malloc_array(pr + 1, sizeof *nz);
+    if (!S || !rhs || !g || !ref || !nz) {
         st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
         goto done;
     }
-    schur(s, S, rhs, g);
+    schur(s, S, rhs, g, nz);
     for (j = 0; j < pr; j++) ref[j] = s->A[j * pr + j];
     st = mr__solve_normal_ref(S, rhs, pr, ref, sol->beta_rest, sol->aliased, &sol->rank,
                               want_cov ? sol->cov_rest : NULL, err);
-    if (st == MR_OK) levels_from_rest(s, sol, g, want_cov);
+    if (st == MR_OK) levels_from_rest(s, sol, g, nz, want_cov);
 done:
     mr__free(S);
     mr__free(rhs);
     mr__free(g);
     mr__free(ref);
+    mr__free(nz);
     return st;
 }
 
