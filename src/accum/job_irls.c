@@ -1,7 +1,7 @@
 /* job_irls.c - an IRLS pass as a job of the pass engine (pass_job.h):
  * each block's X'WX, X'Wz, deviance and the other totals at the current
  * coefficients (accumulate.c), added by the group order of partial.h,
- * with an eliminated factor's per-level sums likewise (levelsums.h); on
+ * and an eliminated factor's per-level sums by blocks (levelsums.h); on
  * the first such pass after a first pass that kept no blocks, the blocks
  * are kept for the passes after it. */
 #include <string.h>
@@ -16,8 +16,8 @@ typedef struct irls_job {
     const mr__pass_env *env;
     const mr__design *design;
     mr__block_sums group; /* the open group's total */
-    mr__level_group lgroup; /* its eliminated factor's levels (design->nabsorb > 0) */
-    mr__level_part block_levels; /* the block being added: its levels' rows */
+    mr__level_part block_levels; /* the block being added: its eliminated factor's
+                                  * levels' rows (design->nabsorb > 0) */
     int32_t *level_slot;         /* their slot map (nabsorb, all -1 between blocks) */
     int group_open;
     mr__partial_range group_blocks; /* the open group's blocks */
@@ -43,9 +43,9 @@ static mr_status open_levels(irls_job *j, mr__error *err)
     j->level_slot = mr__malloc_array(d->nabsorb, sizeof *j->level_slot);
     if (j->level_slot == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     for (size_t l = 0; l < d->nabsorb; l++) j->level_slot[l] = -1;
-    MR__TRY(mr__level_part_init(&j->block_levels, level_width(d),
-                                d->nabsorb < MR__BLOCK_ROWS ? d->nabsorb : MR__BLOCK_ROWS, err));
-    return mr__level_group_init(&j->lgroup, d->nabsorb, level_width(d), err);
+    return mr__level_part_init(&j->block_levels, level_width(d),
+                               d->nabsorb < MR__BLOCK_ROWS ? d->nabsorb : MR__BLOCK_ROWS,
+                               MR__BLOCK_ROWS * (d->ndense + d->nsparse), err);
 }
 
 static mr_status irls_open(const mr__pass_env *env, void **out, mr__error *err)
@@ -113,7 +113,6 @@ static void close_group(irls_job *j)
     if (j->env->cfg->groups_out) mr__group_encode(&j->group, j->design->p, j->group_blocks, j->env->cfg->groups_out);
     mr__sums_add_totals(&j->env->res->sums, &j->group, j->design->p);
     mr__sums_zero_totals(&j->group, j->design->p);
-    if (j->design->nabsorb > 0) mr__level_group_close(&j->lgroup, j->env->res->sums.lev);
     j->group_open = 0;
 }
 
@@ -131,7 +130,7 @@ static mr_status irls_add(void *job, mr__pass_slot *s, mr__error *err)
     mr__sums_add(&j->group, &part->sums, j->design);
     if (j->design->nabsorb > 0) {
         mr__level_part_block(cfg->point, s->use, &part->lev, j->level_slot, &j->block_levels);
-        MR__TRY(mr__level_group_add(&j->lgroup, &j->block_levels, err));
+        mr__level_part_add_to(&j->block_levels, j->env->res->sums.lev);
     }
     j->group_open = 1;
     if (mr__group_closes(s->index, 0)) close_group(j);
@@ -173,7 +172,6 @@ static void irls_close(void *job)
 {
     irls_job *j = job;
     mr__sums_release(&j->group);
-    mr__level_group_release(&j->lgroup);
     mr__level_part_release(&j->block_levels);
     mr__free(j->level_slot);
     mr__free(j);

@@ -3,14 +3,21 @@
 #include "accum/levelsums.h"
 #include "common/alloc.h"
 
-mr_status mr__level_part_init(mr__level_part *p, size_t width, size_t cap, mr__error *err)
+mr_status mr__level_part_init(mr__level_part *p, size_t width, size_t cap, size_t cells, mr__error *err)
 {
     memset(p, 0, sizeof *p);
     p->width = width;
     p->cap = cap;
+    p->cell_cap = cells;
     p->level = mr__malloc_array(cap + 1, sizeof *p->level);
-    p->val = mr__malloc_array((cap + 1) * width, sizeof *p->val);
-    if (p->level == NULL || p->val == NULL) {
+    p->head = mr__malloc_array(cap + 1, sizeof *p->head);
+    p->db = mr__malloc_array(2 * cap + 1, sizeof *p->db);
+    p->val = mr__malloc_array(cells + 1, sizeof *p->val);
+    p->col = mr__malloc_array(cells + 1, sizeof *p->col);
+    p->next = mr__malloc_array(cells + 1, sizeof *p->next);
+    p->scratch_col = mr__malloc_array(width + 1, sizeof *p->scratch_col);
+    p->scratch_val = mr__malloc_array(width + 1, sizeof *p->scratch_val);
+    if (!p->level || !p->head || !p->db || !p->val || !p->col || !p->next || !p->scratch_col || !p->scratch_val) {
         mr__level_part_release(p);
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }
@@ -20,76 +27,61 @@ mr_status mr__level_part_init(mr__level_part *p, size_t width, size_t cap, mr__e
 void mr__level_part_release(mr__level_part *p)
 {
     mr__free(p->level);
+    mr__free(p->head);
+    mr__free(p->db);
     mr__free(p->val);
+    mr__free(p->col);
+    mr__free(p->next);
+    mr__free(p->scratch_col);
+    mr__free(p->scratch_val);
     memset(p, 0, sizeof *p);
 }
 
-mr_status mr__level_group_init(mr__level_group *g, size_t nlev, size_t width, mr__error *err)
+/* A new row for `level`: d = b_D = +0, no entries. */
+static int32_t new_row(mr__level_part *p, int32_t level)
 {
-    size_t l;
-    memset(g, 0, sizeof *g);
-    g->nlev = nlev;
-    g->slot = mr__malloc_array(nlev + 1, sizeof *g->slot);
-    if (g->slot == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    for (l = 0; l < nlev; l++) g->slot[l] = -1;
-    /* grows as groups meet more levels */
-    return mr__level_part_init(&g->part, width, nlev < 1024 ? nlev : 1024, err);
+    int32_t at = (int32_t)p->n++;
+    p->level[at] = level;
+    p->head[at] = -1;
+    p->db[2 * at] = 0;
+    p->db[2 * at + 1] = 0;
+    return at;
 }
 
-void mr__level_group_release(mr__level_group *g)
+/* Row e's entries += k values at increasing columns (a column may repeat:
+ * its values add in the order given), each new entry +0 first, as a dense
+ * row's would be; the part has room for them. */
+static void add_entries(mr__level_part *p, int32_t e, const int32_t *cols, const double *vals, size_t k)
 {
-    mr__level_part_release(&g->part);
-    mr__free(g->slot);
-    memset(g, 0, sizeof *g);
-}
-
-/* A group's part never holds more than its nlev levels: no room past them. */
-static mr_status grow(mr__level_part *p, size_t most, mr__error *err)
-{
-    size_t cap = p->cap ? 2 * p->cap : 64;
-    if (cap > most) cap = most;
-    int32_t *level = mr__realloc(p->level, (cap + 1) * sizeof *level);
-    double *val;
-    if (level == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    p->level = level;
-    val = mr__realloc(p->val, (cap + 1) * p->width * sizeof *val);
-    if (val == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    p->val = val;
-    p->cap = cap;
-    return MR_OK;
-}
-
-mr_status mr__level_group_add(mr__level_group *g, const mr__level_part *block, mr__error *err)
-{
-    mr__level_part *p = &g->part;
-    size_t e, j, w = p->width;
-    for (e = 0; e < block->n; e++) {
-        int32_t lev = block->level[e], at = g->slot[lev];
-        const double *from = block->val + e * w;
-        double *to;
-        if (at < 0) {
-            if (p->n == p->cap) MR__TRY(grow(p, g->nlev, err));
-            at = g->slot[lev] = (int32_t)p->n++;
-            p->level[at] = lev;
-            memset(p->val + (size_t)at * w, 0, w * sizeof *p->val);
+    int32_t *link = &p->head[e];
+    size_t a = 0;
+    while (a < k) {
+        int32_t c = *link, made;
+        if (c >= 0 && p->col[c] < cols[a]) {
+            link = &p->next[c];
+            continue;
         }
-        to = p->val + (size_t)at * w;
-        for (j = 0; j < w; j++) to[j] += from[j];
+        if (c < 0 || p->col[c] > cols[a]) {
+            made = (int32_t)p->ncell++;
+            p->col[made] = cols[a];
+            p->val[made] = 0;
+            p->next[made] = c;
+            *link = c = made;
+        }
+        p->val[c] += vals[a++];
     }
-    return MR_OK;
 }
 
-void mr__level_group_close(mr__level_group *g, double *total)
+void mr__level_part_add_to(const mr__level_part *p, double *total)
 {
-    mr__level_part *p = &g->part;
-    size_t e, j, w = p->width;
+    size_t e;
     for (e = 0; e < p->n; e++) {
-        double *to = total + (size_t)p->level[e] * w;
-        const double *from = p->val + e * w;
-        for (j = 0; j < w; j++) to[j] += from[j];
-        g->slot[p->level[e]] = -1;
+        double *to = total + (size_t)p->level[e] * p->width;
+        int32_t c;
+        to[0] += p->db[2 * e];
+        to[1] += p->db[2 * e + 1];
+        for (c = p->head[e]; c >= 0; c = p->next[c]) to[2 + p->col[c]] += p->val[c];
     }
-    p->n = 0;
 }
 
 mr_status mr__level_input_init(mr__level_input *in, const mr__design *d, mr__error *err)
@@ -125,16 +117,28 @@ void mr__level_input_keep(mr__level_input *in, const mr__design *d, const mr__wo
     memcpy(in->scol, ws->scol, d->nsparse * n * sizeof *in->scol);
 }
 
-/* Level k's row in the block, made (zeroed) the first time a row meets it. */
-static double *row_for(mr__level_part *out, int32_t *slot, int32_t k)
+/* Level k's row in the block, made the first time a row meets it. */
+static int32_t row_for(mr__level_part *out, int32_t *slot, int32_t k)
 {
-    int32_t at = slot[k];
-    if (at < 0) {
-        at = slot[k] = (int32_t)out->n++;
-        out->level[at] = k;
-        memset(out->val + (size_t)at * out->width, 0, out->width * sizeof *out->val);
+    if (slot[k] < 0) slot[k] = new_row(out, k);
+    return slot[k];
+}
+
+/* A row's few entries in increasing column order (insertion sort, stable:
+ * a design's columns are distinct, but the order must not matter). */
+static void sort_entries(int32_t *cols, double *vals, size_t k)
+{
+    size_t a, b;
+    for (a = 1; a < k; a++) {
+        int32_t c = cols[a];
+        double v = vals[a];
+        for (b = a; b > 0 && cols[b - 1] > c; b--) {
+            cols[b] = cols[b - 1];
+            vals[b] = vals[b - 1];
+        }
+        cols[b] = c;
+        vals[b] = v;
     }
-    return out->val + (size_t)at * out->width;
 }
 
 void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, const mr__level_input *in, int32_t *slot,
@@ -143,21 +147,30 @@ void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, const 
     const mr__design *d = pt->design;
     const size_t n = in->n, m = d->ndense, ns = d->nsparse;
     const double *z = in->D + m * n;
-    size_t i, j, e;
+    int32_t *cols = out->scratch_col;
+    double *vals = out->scratch_val;
+    size_t i, j, e, k;
     out->n = 0;
+    out->ncell = 0;
     for (i = 0; i < n; i++) {
-        int32_t k = mr__design_absorb_row(d, blk->lev, MR__BLOCK_ROWS, i);
-        double s = in->w[i], *row, *c;
-        if (k < 0) continue;
-        row = row_for(out, slot, k);
-        c = row + 2;
-        row[0] += s * s;
-        row[1] += s * z[i];
-        for (j = 0; j < m; j++) c[d->dense_col[j]] += s * in->D[j * n + i];
+        int32_t lev = mr__design_absorb_row(d, blk->lev, MR__BLOCK_ROWS, i), at;
+        double s = in->w[i];
+        if (lev < 0) continue;
+        at = row_for(out, slot, lev);
+        out->db[2 * at] += s * s;
+        out->db[2 * at + 1] += s * z[i];
+        for (j = 0, k = 0; j < m; j++, k++) {
+            cols[k] = (int32_t)d->dense_col[j];
+            vals[k] = s * in->D[j * n + i];
+        }
         for (j = 0; j < ns; j++) {
             int32_t col = in->scol[j * n + i];
-            if (col >= 0) c[col] += s * (s * in->sval[j * n + i]);
+            if (col < 0) continue;
+            cols[k] = col;
+            vals[k++] = s * (s * in->sval[j * n + i]);
         }
+        sort_entries(cols, vals, k);
+        add_entries(out, at, cols, vals, k);
     }
     for (e = 0; e < out->n; e++) slot[out->level[e]] = -1;
 }

@@ -1,10 +1,12 @@
 /* levelsums.h - the eliminated factor's per-level sums of a pass (the d,
- * b_D and c rows of solve/absorb.h), in the order of additions of
- * accum/partial.h: a block's rows add into its levels' rows in row order;
- * blocks add into a group's rows in block order; groups add into the
- * pass's rows in group order.  A block or a group holds only the levels it
- * met (at most a block's or a group's rows, whatever the number of
- * levels), in the order it met them; only the pass holds every level. */
+ * b_D and c rows of solve/absorb.h): a block's rows add into its levels'
+ * rows in row order, and blocks add into the pass's rows in block order
+ * (one job adds them, whatever the threads: the same bits for any count,
+ * streamed, cached or in memory).  Unlike the other sums (accum/partial.h)
+ * they skip the group: a group of 16 blocks meets nearly every level of
+ * a factor of 10^5 (about 10 rows a level), so its rows would cost as much
+ * memory as the pass's and save nothing, while a share of the file (MPI)
+ * could pass on its blocks' rows as well as its groups'. */
 #ifndef MR_LEVELSUMS_H
 #define MR_LEVELSUMS_H
 
@@ -12,34 +14,33 @@
 #include <stdint.h>
 #include "accum/accumulate.h"
 
-/* Rows of `width` doubles for the levels met, level[e]'s at val + e *
- * width. */
+/* The levels met by a block.  A level's row is d, b_D and its c entries,
+ * of which it holds only those some row of it touched: a level's few rows
+ * meet few of the other columns (about 6 a row of case A's 60), and the
+ * untouched entries are +0 in the dense row, whose additions change
+ * nothing (no entry is ever -0: each starts at +0, and -0 comes only from
+ * -0 + -0), so the touched entries alone give the dense row's bits at a
+ * fraction of its memory and work.  Row e's entries form a chain in
+ * increasing column order from head[e] through next[]. */
 typedef struct mr__level_part {
-    size_t width, n, cap;
-    int32_t *level;
-    double *val;
+    size_t width;            /* of a row in the pass's totals: p + 2 */
+    size_t n, cap;           /* levels met, room for */
+    int32_t *level, *head;   /* per level met */
+    double *db;              /* d and b_D, 2 per level met */
+    size_t ncell, cell_cap;  /* c entries held, room for */
+    double *val;             /* per entry */
+    int32_t *col, *next;     /* per entry: its column, the next entry (-1: none) */
+    int32_t *scratch_col;    /* a row's entries on their way in (width) */
+    double *scratch_val;
 } mr__level_part;
 
-/* An empty part whose rows are `width` doubles, room for `cap` levels
- * (it grows when adding into it needs more). */
-mr_status mr__level_part_init(mr__level_part *p, size_t width, size_t cap, mr__error *err);
+/* An empty part for rows of `width` doubles in the totals, with room for
+ * `cap` levels and `cells` c entries. */
+mr_status mr__level_part_init(mr__level_part *p, size_t width, size_t cap, size_t cells, mr__error *err);
 void mr__level_part_release(mr__level_part *p);
 
-/* A group's rows: a part and where each level's row is (slot[level], -1
- * for none; nlev entries, all -1 between groups). */
-typedef struct mr__level_group {
-    mr__level_part part;
-    int32_t *slot;
-    size_t nlev;
-} mr__level_group;
-
-mr_status mr__level_group_init(mr__level_group *g, size_t nlev, size_t width, mr__error *err);
-void mr__level_group_release(mr__level_group *g);
-/* The group's rows += the block's, in the block's order of levels. */
-mr_status mr__level_group_add(mr__level_group *g, const mr__level_part *block, mr__error *err);
-/* total[level * width ..] += the group's rows, in the group's order; the
- * group emptied. */
-void mr__level_group_close(mr__level_group *g, double *total);
+/* total[level * width ..] += the part's rows, in the part's order. */
+void mr__level_part_add_to(const mr__level_part *p, double *total);
 
 /* What a block's rows are made from, copied from its worker's workspace
  * when the block is computed and made into rows only when it is added:
@@ -64,7 +65,7 @@ void mr__level_input_keep(mr__level_input *in, const mr__design *d, const mr__wo
 /* The block's rows from its kept inputs: d += w, b_D += w z, c += w x for
  * each row at a level other than the reference.  slot is a slot map of
  * nabsorb entries (all -1, and left so).  The part must have room for
- * min(nabsorb, rows). */
+ * min(nabsorb, rows) levels and rows x (ndense + nsparse) cells. */
 void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, const mr__level_input *in, int32_t *slot,
                           mr__level_part *out);
 
