@@ -95,6 +95,7 @@ int cli_print_text(char *report);
 int cli_print_report(const mr_fit *fit, int digits);
 int cli_close_stdout(int rc);
 void cli_clean_up_on_signals(void);
+void cli_keep_memory_flat(void);
 int cli_lock_output(const char *json_path, mr_output_lock **lock);
 void cli_unlock_output(mr_output_lock *lock);
 void cli_stop_at_block(int on);

@@ -29,6 +29,7 @@ static int dispatch(int argc, char **argv)
 
 int main(int argc, char **argv)
 {
+    cli_keep_memory_flat();
     cli_clean_up_on_signals();
     return cli_close_stdout(dispatch(argc, argv));
 }

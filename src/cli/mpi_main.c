@@ -112,6 +112,7 @@ int main(int argc, char **argv)
     MPI_Comm_rank(comm, &rank);
     MPI_Comm_size(comm, &nranks);
     if (rank != 0) silence();
+    cli_keep_memory_flat();
     cli_clean_up_on_signals();
     if (mr_share_new(rank, nranks, gather, &comm, &share) != MR_OK) abort_all(comm);
     rc = run(argc, argv, share);
