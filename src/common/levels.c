@@ -71,6 +71,9 @@ mr_status mr__levelset_insert(mr__levelset *s, const char *p, size_t len, int32_
 }
 
 
+/* odd: j * SLOT_STRIDE mod a power of two visits every slot once */
+#define SLOT_STRIDE ((size_t)2654435761u)
+
 static int cmp_entry(const void *a, const void *b)
 {
     const mr__level_entry *x = *(const mr__level_entry *const *)a, *y = *(const mr__level_entry *const *)b;
@@ -90,12 +93,17 @@ mr_status mr__levelset_merge_sorted(const mr__levelset *const *sets, size_t n, m
     int32_t id;
     mr__level_entry *made;
     mr__levelset_init(out);
+    /* A set's slots run in the order of their hashes' top bits, the bits
+     * that place them in `out` too: taken in that order, while `out` is
+     * smaller, they pile up into one ever longer run of probes (10^5
+     * levels from two workers: 2.5 x 10^9 instructions).  An odd stride
+     * visits every slot in an order unrelated to the hashes. */
     for (i = 0; i < n; i++)
-        for (j = 0; j < sets[i]->cap; j++)
-            if (sets[i]->slot[j].str != NULL &&
-                (rc = insert_hashed(out, entry_hash(&sets[i]->slot[j]), sets[i]->slot[j].head, sets[i]->slot[j].str,
-                                    sets[i]->slot[j].len, 0, &id, &made)) != 0)
+        for (j = 0; j < sets[i]->cap; j++) {
+            const mr__level_entry *e = &sets[i]->slot[(j * SLOT_STRIDE) & (sets[i]->cap - 1)];
+            if (e->str != NULL && (rc = insert_hashed(out, entry_hash(e), e->head, e->str, e->len, 0, &id, &made)) != 0)
                 return rc;
+        }
     all = mr__malloc_array(out->n ? out->n : 1, sizeof *all);
     names = mr__malloc_array(out->n ? out->n : 1, sizeof *names);
     if (all == NULL || names == NULL) {
