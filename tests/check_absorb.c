@@ -171,7 +171,7 @@ static void compare(int kind, size_t n, size_t L, size_t pr, uint64_t seed)
     make_problem(&pb, n, L, pr, kind, seed);
     absorb_sums(&pb, &e);
     dense_solve(&pb, beta, aliased, inv);
-    ck_assert_int_eq(mr__absorb_solve(&e.s, 1, &sol, NULL), MR_OK);
+    ck_assert_int_eq(mr__absorb_solve(&e.s, MR__ABSORB_COV, &sol, NULL), MR_OK);
     for (l = 0; l + 1 < L; l++) {
         size_t c = l + 1;
         ck_assert_int_eq(sol.empty[l], aliased[c]);
@@ -224,8 +224,8 @@ START_TEST(test_same_bits_twice)
     size_t l;
     make_problem(&pb, 3000, 120, 4, 0, 5);
     absorb_sums(&pb, &e);
-    ck_assert_int_eq(mr__absorb_solve(&e.s, 1, &a, NULL), MR_OK);
-    ck_assert_int_eq(mr__absorb_solve(&e.s, 1, &b, NULL), MR_OK);
+    ck_assert_int_eq(mr__absorb_solve(&e.s, MR__ABSORB_COV, &a, NULL), MR_OK);
+    ck_assert_int_eq(mr__absorb_solve(&e.s, MR__ABSORB_COV, &b, NULL), MR_OK);
     for (l = 0; l < e.nlev; l++) {
         ck_assert(same_bits(a.beta_lev[l], b.beta_lev[l]));
         ck_assert(same_bits(a.var_lev[l], b.var_lev[l]));
@@ -278,7 +278,7 @@ START_TEST(test_no_rest_is_level_means)
     double lev[] = {2, 3, 4, -2, 0, 0};
     mr__absorb_sums s = {3, 0, lev, NULL, NULL};
     mr__absorb_solution sol;
-    ck_assert_int_eq(mr__absorb_solve(&s, 1, &sol, NULL), MR_OK);
+    ck_assert_int_eq(mr__absorb_solve(&s, MR__ABSORB_COV, &sol, NULL), MR_OK);
     ck_assert(sol.beta_lev[0] == 1.5 && sol.var_lev[0] == 0.5);
     ck_assert(sol.beta_lev[1] == -0.5 && sol.var_lev[1] == 0.25);
     ck_assert(sol.empty[2] && sol.beta_lev[2] == 0 && isnan(sol.var_lev[2]));

@@ -224,10 +224,6 @@ static mr_status scratch(mr__irls *s, size_t n, mr__error *err)
     return MR_OK;
 }
 
-/* With an eliminated factor the coefficients are the columns', then its
- * levels' (solve/absorb.h): the variances are the inverse's diagonal over
- * all of them, levels included (no L x L matrix), and d'Hd is taken by
- * blocks, so the step is measured in the whole system's standard errors. */
 /* A level's Newton step in a poisson log-link model moves its mean by
  * the factor 1 + t, t = sum (y - mu) / sum mu over its rows when the
  * other coefficients stay: taking log(1 + t) instead of t lands on that
@@ -259,6 +255,12 @@ static double rest_quadratic(const mr__irls *s, const double *d, const double *v
     return most;
 }
 
+/* With an eliminated factor the coefficients are the columns', then its
+ * levels' (solve/absorb.h): the variances the runaway check follows are
+ * the inverse's diagonal for the columns and each level's own, 1/d_l (a
+ * level running off loses its weight: d_l falls as fast as the whole
+ * variance rises), at O(L) a pass; d'Hd is taken by blocks, so the step
+ * is measured in the whole system's standard errors. */
 static mr_status absorb_step(mr__irls *s, const mr__block_sums *sums, mr__error *err)
 {
     size_t p = s->p, j, rank, pr = p - sums->nlev;

@@ -62,7 +62,7 @@ mr_status mr__many_solve(mr_fit *fit, const mr__run *r, double *cov_s, mr__error
     if (st != MR_OK) return st;
     if (t->lev == NULL || t->nlev != d->nabsorb)
         return mr__fail(err, MR_ERR_NUMERIC, "the last pass has no sums for the factor '%s'", fit->many_factor);
-    st = mr__absorb_solve(&a, 1, &sol, err);
+    st = mr__absorb_solve(&a, MR__ABSORB_COV, &sol, err);
     if (st == MR_OK) {
         memcpy(cov_s, sol.cov_rest, d->p * d->p * sizeof *cov_s);
         memcpy(fit->aliased, sol.aliased, d->p * sizeof *fit->aliased);

@@ -94,7 +94,8 @@ static void levels_from_rest(const mr__absorb_sums *s, mr__absorb_solution *sol,
             b -= g[nz[a]] * sol->beta_rest[nz[a]];
         }
         sol->beta_lev[l] = b;
-        if (want_cov) sol->var_lev[l] = 1.0 / row[0] + form(sol->cov_rest, pr, g, nz, n);
+        if (want_cov == MR__ABSORB_COV) sol->var_lev[l] = 1.0 / row[0] + form(sol->cov_rest, pr, g, nz, n);
+        else if (want_cov == MR__ABSORB_COV_OWN) sol->var_lev[l] = 1.0 / row[0];
     }
 }
 
@@ -176,7 +177,7 @@ mr_status mr__absorb_step(const mr__absorb_sums *s, double *next, int *aliased, 
 {
     mr__absorb_solution sol;
     size_t pr = s->pr, j, l;
-    mr_status st = mr__absorb_solve(s, var != NULL, &sol, err);
+    mr_status st = mr__absorb_solve(s, var != NULL ? MR__ABSORB_COV_OWN : MR__ABSORB_NO_COV, &sol, err);
     if (st == MR_OK) {
         memcpy(next, sol.beta_rest, pr * sizeof *next);
         memcpy(next + pr, sol.beta_lev, s->nlev * sizeof *next);

@@ -61,17 +61,25 @@ typedef struct mr__absorb_solution {
     double *cov_rest;           /* pr x pr: S^-1 on the kept columns, zero rows/columns where aliased */
 } mr__absorb_solution;
 
+/* What mr__absorb_solve computes beside the estimates: nothing; S^-1 and
+ * each level's variance (O(L nnz^2), nnz a level's nonzero entries of
+ * c); or S^-1 and, for a level, 1/d_l, its variance with the other
+ * coefficients held (below the whole one by g_l' S^-1 g_l, which for a
+ * level of a few rows among many is a small part of it), at O(L). */
+enum { MR__ABSORB_NO_COV = 0, MR__ABSORB_COV = 1, MR__ABSORB_COV_OWN = 2 };
+
 /* Solves the system; `sol` is allocated here (release it with
  * mr__absorb_solution_release, also after a failure).  The variances and
- * the covariance only when `want_cov`.  Sums are read only. */
+ * the covariance as `want_cov` says.  Sums are read only. */
 mr_status mr__absorb_solve(const mr__absorb_sums *s, int want_cov, mr__absorb_solution *sol, mr__error *err);
 void mr__absorb_solution_release(mr__absorb_solution *sol);
 
 /* One IRLS step: the solution as one vector `next` (the rest's pr, then
  * the levels'), aliased[] likewise (a level: empty), the rank of the
  * whole system and, when `var` is not NULL, each coefficient's variance
- * at unit dispersion (the diagonal of the inverse: S^-1's, then each
- * level's; 0 where aliased or empty), at O(L p_r^2) like the elimination. */
+ * at unit dispersion (S^-1's diagonal, then each level's own, 1/d_l: what
+ * the fit's check for coefficients running off needs, MR__ABSORB_COV_OWN;
+ * 0 where aliased or empty). */
 mr_status mr__absorb_step(const mr__absorb_sums *s, double *next, int *aliased, double *var, size_t *rank,
                           mr__error *err);
 
