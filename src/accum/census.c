@@ -1,13 +1,16 @@
 #include "common/alloc.h"
 #include "accum/census.h"
 
-mr_status mr__census_init(mr__level_census *c, size_t nfac, mr__error *err)
+mr_status mr__census_init(mr__level_census *c, const mr__binding *b, mr__error *err)
 {
     size_t f;
-    c->nfac = nfac;
-    c->seen = mr__calloc(nfac + 1, sizeof *c->seen);
+    c->nfac = b->nfac;
+    c->seen = mr__calloc(b->nfac + 1, sizeof *c->seen);
     if (c->seen == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    for (f = 0; f < nfac; f++) mr__levelset_init(&c->seen[f]);
+    for (f = 0; f < b->nfac; f++) {
+        mr__levelset_init(&c->seen[f]);
+        c->seen[f].limit = mr__factor_level_limit(b, f);
+    }
     return MR_OK;
 }
 
@@ -31,8 +34,8 @@ mr_status mr__census_add(mr__level_census *c, const mr__block *blk, const mr__ch
         if (rc == MR_ERR_NO_MEMORY) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
         if (rc == MR_ERR_DOMAIN) {
             char msg[300];
-            mr__cell_message(msg, sizeof msg, &cfg->bind->col[cfg->bind->fac_col[v->var]], MR__TOO_MANY_LEVELS,
-                             v->str, v->len);
+            mr__cell_message(msg, sizeof msg, &cfg->bind->col[cfg->bind->fac_col[v->var]],
+                             mr__too_many_levels(cfg->bind, v->var), v->str, v->len);
             return mr__fail(err, MR_ERR_DOMAIN, "%s:%llu:%s", mr__chunk_row_display(ch, v->row, cfg->display),
                             (unsigned long long)(ch->first_line + ch->row_line[v->row]), msg);
         }

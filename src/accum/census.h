@@ -20,12 +20,14 @@ typedef struct mr__level_census {
     size_t nfac;
 } mr__level_census;
 
-mr_status mr__census_init(mr__level_census *c, size_t nfac, mr__error *err);
+/* A census of binding b's factors, each held to its limit
+ * (mr__factor_level_limit). */
+mr_status mr__census_init(mr__level_census *c, const mr__binding *b, mr__error *err);
 void mr__census_release(mr__level_census *c);
 
 /* Counts the levels new in this block (decoded from chunk `ch`, the next in
  * file order).  MR_ERR_DOMAIN naming file, line, column and value when a
- * factor would go beyond MR__MAX_LEVELS; MR_ERR_NO_MEMORY. */
+ * factor would go beyond its limit; MR_ERR_NO_MEMORY. */
 mr_status mr__census_add(mr__level_census *c, const mr__block *blk, const mr__chunk *ch, const mr__decode_cfg *cfg,
                          mr__error *err);
 

@@ -117,7 +117,7 @@ mr_status mr__decoder_init(mr__decoder *d, const mr__decode_cfg *cfg, mr__error 
      * level beyond it before any worker's set is full (accum/census.h). */
     for (f = 0; d->local && f < b->nfac; f++) {
         mr__levelset_init(&d->local[f]);
-        d->local[f].limit = MR__MAX_LEVELS + 1;
+        d->local[f].limit = mr__factor_level_limit(b, f) + 1;
     }
     for (f = 0; d->numvals && f < b->nnum; f++) mr__levelset_init(&d->numvals[f]);
     for (f = 0; d->keysets && f < b->nfac + b->nnum; f++)
@@ -189,7 +189,8 @@ static void first_pass_level(mr__decoder *d, int col, const char *p, size_t len)
         return;
     }
     rc = mr__levelset_insert(set, p, len, &d->lev[col]);
-    if (rc == MR_ERR_DOMAIN) row_problem(d, (size_t)col, MR_ERR_DOMAIN, MR__TOO_MANY_LEVELS, p, len);
+    if (rc == MR_ERR_DOMAIN)
+        row_problem(d, (size_t)col, MR_ERR_DOMAIN, mr__too_many_levels(d->cfg->bind, (size_t)c->var), p, len);
     if (rc == MR_OK)
         rc = mr__reserve((void **)&blk->new_levels, &blk->new_levels_cap, blk->nnew_levels + 1,
                          sizeof *blk->new_levels);

@@ -168,7 +168,16 @@ typedef struct mr__decoder {
 #define MR__STRINGIFY(x) #x
 #define MR__STRING_OF(x) MR__STRINGIFY(x)
 #define MR__TOO_MANY_LEVELS \
-    "more than " MR__STRING_OF(MR__MAX_LEVELS) " distinct levels, the most a factor may have (is it an identifier?)"
+    "more than " MR__STRING_OF(MR__MAX_LEVELS) " distinct levels, the most a factor may have (is it an identifier? " \
+    "a factor of up to " MR__STRING_OF(MR__MAX_MANY_LEVELS) " levels can be declared 'many')"
+#define MR__TOO_MANY_MANY_LEVELS \
+    "more than " MR__STRING_OF(MR__MAX_MANY_LEVELS) " distinct levels, the most a 'many' factor may have"
+
+/* What to say when factor variable f goes beyond its limit. */
+static inline const char *mr__too_many_levels(const mr__binding *b, size_t f)
+{
+    return mr__factor_level_limit(b, f) == MR__MAX_MANY_LEVELS ? MR__TOO_MANY_MANY_LEVELS : MR__TOO_MANY_LEVELS;
+}
 
 /* "FIELD: column 'NAME': WHAT (value 'V')", the part of a cell's message
  * after file and line. */

@@ -60,7 +60,7 @@ static mr_status scan_start(void *job, mr__error *err)
     mr__pass_result *res = j->env->res;
     const mr__binding *b = j->env->cfg->dcfg->bind;
     MR__TRY(mr__scan_init(&res->scan, b->ncol, b->nnum, err));
-    MR__TRY(mr__census_init(&j->census, b->nfac, err));
+    MR__TRY(mr__census_init(&j->census, b, err));
     if (res->collapsed && mr__pattern_merge_init(&res->patterns, b->nfac + b->nnum, j->env->nworkers) != 0)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     return MR_OK;

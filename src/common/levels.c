@@ -93,6 +93,7 @@ mr_status mr__levelset_merge_sorted(const mr__levelset *const *sets, size_t n, m
     int32_t id;
     mr__level_entry *made;
     mr__levelset_init(out);
+    out->limit = (size_t)-1; /* each set was held to its factor's limit */
     /* A set's slots run in the order of their hashes' top bits, the bits
      * that place them in `out` too: taken in that order, while `out` is
      * smaller, they pile up into one ever longer run of probes (10^5

@@ -13,6 +13,11 @@
 #include "millrace.h"
 
 #define MR__MAX_LEVELS 100000
+/* A factor declared `many` (its levels eliminated, solve/absorb.h: memory
+ * linear in them, no column each) may have more.  Below 2^21, the level
+ * numbers accum/level_outcomes.h packs (a `many` factor is in no
+ * interaction, but a key must never alias another). */
+#define MR__MAX_MANY_LEVELS 1000000
 
 /* 24 bytes: the hash is not kept (growing and merging make it again from
  * head and str), since a set of 10^5 levels holds 2^18 entries. */

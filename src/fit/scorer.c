@@ -153,6 +153,7 @@ static mr_status make_factors(scoring *g, mr__error *err)
         mr__score_factor *f = &g->c.fac[g->c.nfac++];
         const mr__fit_factor *ff = &fit->factor[i];
         mr__levelset_init(&f->levels);
+        f->levels.limit = (size_t)-1; /* a fit's levels were held to their limit when it was made */
         f->name = ff->name;
         f->ref = -1;
         for (l = 0; l < ff->nlevels; l++) {

@@ -102,6 +102,10 @@ static mr_status bind_roles(mr__binding *b, const mr__spec *s, const char *displ
             MR__TRY(add_column(b, c->name, MR__USE_NUMERIC, (int)b->nnum, display, err));
             b->nnum++;
         } else {
+            if ((long)i == mr__spec_many(s)) {
+                b->has_many = 1;
+                b->many_fac = (int)b->nfac;
+            }
             b->fac_col[b->nfac] = b->ncol;
             MR__TRY(add_column(b, c->name, MR__USE_FACTOR, (int)b->nfac, display, err));
             b->nfac++;

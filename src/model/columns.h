@@ -6,6 +6,7 @@
 #define MR_COLUMNS_H
 
 #include <stddef.h>
+#include "common/levels.h"
 #include "model/spec.h"
 
 typedef enum mr__use {
@@ -47,7 +48,16 @@ typedef struct mr__binding {
      * cluster (a column of its own, or one the model uses too); a zeroed
      * binding has none. */
     int has_cluster, cluster_col;
+    /* has_many: factor variable many_fac is declared `many` (a zeroed
+     * binding has none). */
+    int has_many, many_fac;
 } mr__binding;
+
+/* The most levels factor variable f may have. */
+static inline size_t mr__factor_level_limit(const mr__binding *b, size_t f)
+{
+    return b->has_many && (size_t)b->many_fac == f ? MR__MAX_MANY_LEVELS : MR__MAX_LEVELS;
+}
 
 /* Takes ownership of `header` (nfields names).  Errors: a model column not
  * in the header, a duplicate header name, a column used twice. */

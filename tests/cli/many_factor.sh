@@ -151,4 +151,40 @@ g = json.load(open(sys.argv[1]))["groups"]
 worst = max(abs(x["observed"] / x["expected"] - 1) for x in g)
 sys.exit(not (len(g) == 30000 and worst < 1e-9))' "$tmp/sparse.by.json" &&
     ok "sparse levels: observed = expected for each of 30,000 levels" || fail "sparse levels: O/E" "$(cat "$tmp/sparse.err")"
+
+# More levels than an ordinary factor may have (100,000): 150,000 units of
+# two rows each, every one with events.  Declared `many` the factor may
+# have up to 1,000,000 levels (common/levels.h); as an ordinary factor the
+# file's first level beyond 100,000 is refused (exit 5), and the message
+# says a factor can be declared `many`.  Oracle: a poisson log-link fit's
+# score equation for each level, observed = expected by unit (analytic
+# identity), through score --by: 1e-9 for every unit but the reference.
+# The reference unit's rate is the intercept, whose row of the Schur
+# complement is the whole weight less every other level's: its two rows'
+# weight left after 150,000 subtractions, good to about 1e-7 here (solve/
+# absorb.h; the same before this stop's changes), so it is held to 1e-6.
+/usr/bin/python3 -c '
+import sys
+out = sys.stdout
+out.write("y,x,unit\n")
+for i in range(300000):
+    out.write("%d,%.1f,U%06d\n" % (1 + i % 4, (i % 7) / 10, i % 150000))' > "$tmp/units.csv"
+printf 'outcome y\nfamily poisson\nnumeric x\nfactor unit many\n' > "$tmp/units.model"
+$bin fit --quiet -m "$tmp/units.model" --json "$tmp/units.json" "$tmp/units.csv" > /dev/null 2> "$tmp/units.err"
+rc=$?
+$bin score --quiet --fit "$tmp/units.json" --out "$tmp/units.scored" --by unit --by-out "$tmp/units.by.json" \
+    "$tmp/units.csv" 2>> "$tmp/units.err"
+[ "$rc" -eq 0 ] && /usr/bin/python3 -c '
+import json, sys
+g = json.load(open(sys.argv[1]))["groups"]
+dev = {x["key"]["unit"]: abs(x["observed"] / x["expected"] - 1) for x in g}
+ref = dev.pop("U000000")
+sys.exit(not (len(g) == 150000 and max(dev.values()) < 1e-9 and ref < 1e-6))' "$tmp/units.by.json" &&
+    ok "150,000 levels declared many: fitted, observed = expected for each" || fail "150,000 levels" "exit $rc: $(cat "$tmp/units.err")"
+printf 'outcome y\nfamily poisson\nnumeric x\nfactor unit\n' > "$tmp/units_plain.model"
+$bin fit --quiet -m "$tmp/units_plain.model" "$tmp/units.csv" > /dev/null 2> "$tmp/units_plain.err"
+rc=$?
+[ "$rc" -eq 5 ] && grep -q "units.csv:100002:3: column 'unit': more than 100000 distinct levels.*can be declared 'many'" \
+    "$tmp/units_plain.err" && ok "150,000 levels as an ordinary factor: exit 5, the first beyond named, many suggested" ||
+    fail "150,000 ordinary levels" "exit $rc: $(cat "$tmp/units_plain.err")"
 finish
