@@ -43,9 +43,10 @@ static mr_status open_levels(irls_job *j, mr__error *err)
     j->level_slot = mr__malloc_array(d->nabsorb, sizeof *j->level_slot);
     if (j->level_slot == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     for (size_t l = 0; l < d->nabsorb; l++) j->level_slot[l] = -1;
-    return mr__level_part_init(&j->block_levels, level_width(d),
-                               d->nabsorb < MR__BLOCK_ROWS ? d->nabsorb : MR__BLOCK_ROWS,
-                               MR__BLOCK_ROWS * (d->ndense + d->nsparse), err);
+    MR__TRY(mr__level_part_init(&j->block_levels, level_width(d),
+                                d->nabsorb < MR__BLOCK_ROWS ? d->nabsorb : MR__BLOCK_ROWS,
+                                MR__BLOCK_ROWS * (d->ndense + d->nsparse), err));
+    return mr__level_part_order(&j->block_levels, d, err);
 }
 
 static mr_status irls_open(const mr__pass_env *env, void **out, mr__error *err)

@@ -34,6 +34,7 @@ void mr__level_part_release(mr__level_part *p)
     mr__free(p->next);
     mr__free(p->scratch_col);
     mr__free(p->scratch_val);
+    mr__free(p->source);
     memset(p, 0, sizeof *p);
 }
 
@@ -124,21 +125,25 @@ static int32_t row_for(mr__level_part *out, int32_t *slot, int32_t k)
     return slot[k];
 }
 
-/* A row's few entries in increasing column order (insertion sort, stable:
- * a design's columns are distinct, but the order must not matter). */
-static void sort_entries(int32_t *cols, double *vals, size_t k)
+/* Source k of a row's entries: dense column j as j, sparse slot j as
+ * ndense + j; where its columns start. */
+static size_t source_start(const mr__design *d, int32_t k)
 {
-    size_t a, b;
-    for (a = 1; a < k; a++) {
-        int32_t c = cols[a];
-        double v = vals[a];
-        for (b = a; b > 0 && cols[b - 1] > c; b--) {
-            cols[b] = cols[b - 1];
-            vals[b] = vals[b - 1];
-        }
-        cols[b] = c;
-        vals[b] = v;
+    return (size_t)k < d->ndense ? d->dense_col[k] : d->term[d->sparse_term[(size_t)k - d->ndense]].col0;
+}
+
+mr_status mr__level_part_order(mr__level_part *p, const mr__design *d, mr__error *err)
+{
+    size_t n = d->ndense + d->nsparse, a, b;
+    p->source = mr__malloc_array(n + 1, sizeof *p->source);
+    if (p->source == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    p->nsource = n;
+    for (a = 0; a < n; a++) {
+        int32_t k = (int32_t)a;
+        for (b = a; b > 0 && source_start(d, p->source[b - 1]) > source_start(d, k); b--) p->source[b] = p->source[b - 1];
+        p->source[b] = k;
     }
+    return MR_OK;
 }
 
 void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, const mr__level_input *in, int32_t *slot,
@@ -159,17 +164,18 @@ void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, const 
         at = row_for(out, slot, lev);
         out->db[2 * at] += s * s;
         out->db[2 * at + 1] += s * z[i];
-        for (j = 0, k = 0; j < m; j++, k++) {
-            cols[k] = (int32_t)d->dense_col[j];
-            vals[k] = s * in->D[j * n + i];
+        for (j = 0, k = 0; j < m + ns; j++) {
+            size_t src = (size_t)out->source[j];
+            if (src < m) {
+                cols[k] = (int32_t)d->dense_col[src];
+                vals[k++] = s * in->D[src * n + i];
+            } else {
+                int32_t col = in->scol[(src - m) * n + i];
+                if (col < 0) continue;
+                cols[k] = col;
+                vals[k++] = s * (s * in->sval[(src - m) * n + i]);
+            }
         }
-        for (j = 0; j < ns; j++) {
-            int32_t col = in->scol[j * n + i];
-            if (col < 0) continue;
-            cols[k] = col;
-            vals[k++] = s * (s * in->sval[j * n + i]);
-        }
-        sort_entries(cols, vals, k);
         add_entries(out, at, cols, vals, k);
     }
     for (e = 0; e < out->n; e++) slot[out->level[e]] = -1;

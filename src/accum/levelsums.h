@@ -32,12 +32,21 @@ typedef struct mr__level_part {
     int32_t *col, *next;     /* per entry: its column, the next entry (-1: none) */
     int32_t *scratch_col;    /* a row's entries on their way in (width) */
     double *scratch_val;
+    int32_t *source;         /* the order a row's entries are taken in (mr__level_part_order) */
+    size_t nsource;
 } mr__level_part;
 
 /* An empty part for rows of `width` doubles in the totals, with room for
  * `cap` levels and `cells` c entries. */
 mr_status mr__level_part_init(mr__level_part *p, size_t width, size_t cap, size_t cells, mr__error *err);
 void mr__level_part_release(mr__level_part *p);
+
+/* The order in which mr__level_part_block takes a row's entries under
+ * design d: its dense columns and sparse slots by where their terms'
+ * columns start.  A term's columns are a run of their own, so a row's
+ * entries come in increasing column order, as the rows' chains keep
+ * them, with no sorting a row. */
+mr_status mr__level_part_order(mr__level_part *p, const mr__design *d, mr__error *err);
 
 /* total[level * width ..] += the part's rows, in the part's order. */
 void mr__level_part_add_to(const mr__level_part *p, double *total);
@@ -65,7 +74,8 @@ void mr__level_input_keep(mr__level_input *in, const mr__design *d, const mr__wo
 /* The block's rows from its kept inputs: d += w, b_D += w z, c += w x for
  * each row at a level other than the reference.  slot is a slot map of
  * nabsorb entries (all -1, and left so).  The part must have room for
- * min(nabsorb, rows) levels and rows x (ndense + nsparse) cells. */
+ * min(nabsorb, rows) levels and rows x (ndense + nsparse) cells, and its
+ * order (mr__level_part_order). */
 void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, const mr__level_input *in, int32_t *slot,
                           mr__level_part *out);
 
