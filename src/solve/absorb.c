@@ -48,12 +48,13 @@ static void schur(const mr__absorb_sums *s, double *S, double *rhs, double *g, s
         size_t n;
         if (level_empty(row)) continue;
         n = nonzero_columns(c, pr, nz);
-        for (a = 0; a < n; a++) g[nz[a]] = c[nz[a]] / row[0];
+        /* g here holds the nonzero entries of c / d in nz's order */
+        for (a = 0; a < n; a++) g[a] = c[nz[a]] / row[0];
         for (b = 0; b < n; b++) {
             size_t j = nz[b];
-            double *col = S + j * pr;
-            for (a = 0; a <= b; a++) col[nz[a]] -= g[nz[a]] * c[j];
-            rhs[j] -= g[j] * row[1];
+            double *col = S + j * pr, cj = c[j];
+            for (a = 0; a <= b; a++) col[nz[a]] -= g[a] * cj;
+            rhs[j] -= g[b] * row[1];
         }
     }
 }
