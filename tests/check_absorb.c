@@ -73,7 +73,7 @@ static void free_problem(problem *pb)
  * index l - 1 for l > ref = 0), the rest = the intercept, then R. */
 typedef struct esys {
     size_t nlev, pr;
-    double *lev, *A, *bR;
+    double *lev, *A, *bR, *ref;
     mr__absorb_sums s;
 } esys;
 
@@ -86,17 +86,16 @@ static void absorb_sums(const problem *pb, esys *e)
     e->lev = calloc(e->nlev * width + 1, sizeof *e->lev);
     e->A = calloc(pr * pr, sizeof *e->A);
     e->bR = calloc(pr, sizeof *e->bR);
+    e->ref = calloc(width, sizeof *e->ref);
     for (i = 0; i < pb->n; i++) {
         double w = pb->w[i];
         int l = pb->lev[i];
+        double *row = (size_t)l != pb->ref ? e->lev + (size_t)(l - 1) * width : e->ref;
         x[0] = 1;
         for (j = 1; j < pr; j++) x[j] = pb->R[i * pb->pr + j - 1];
-        if ((size_t)l != pb->ref) {
-            double *row = e->lev + (size_t)(l - 1) * width;
-            row[0] += w;
-            row[1] += w * pb->z[i];
-            for (j = 0; j < pr; j++) row[2 + j] += w * x[j];
-        }
+        row[0] += w;
+        row[1] += w * pb->z[i];
+        for (j = 0; j < pr; j++) row[2 + j] += w * x[j];
         for (j = 0; j < pr; j++) {
             e->bR[j] += w * x[j] * pb->z[i];
             for (k = 0; k <= j; k++) e->A[j * pr + k] += w * x[k] * x[j];
@@ -107,6 +106,7 @@ static void absorb_sums(const problem *pb, esys *e)
     e->s.lev = e->lev;
     e->s.A = e->A;
     e->s.bR = e->bR;
+    e->s.ref = e->ref;
     free(x);
 }
 
@@ -115,6 +115,7 @@ static void free_esys(esys *e)
     free(e->lev);
     free(e->A);
     free(e->bR);
+    free(e->ref);
 }
 
 /* Dense row: intercept, levels other than ref, the rest. */
@@ -276,13 +277,46 @@ END_TEST
 START_TEST(test_no_rest_is_level_means)
 {
     double lev[] = {2, 3, 4, -2, 0, 0};
-    mr__absorb_sums s = {3, 0, lev, NULL, NULL};
+    mr__absorb_sums s = {3, 0, lev, NULL, NULL, NULL};
     mr__absorb_solution sol;
     ck_assert_int_eq(mr__absorb_solve(&s, MR__ABSORB_COV, &sol, NULL), MR_OK);
     ck_assert(sol.beta_lev[0] == 1.5 && sol.var_lev[0] == 0.5);
     ck_assert(sol.beta_lev[1] == -0.5 && sol.var_lev[1] == 0.25);
     ck_assert(sol.empty[2] && sol.beta_lev[2] == 0 && isnan(sol.var_lev[2]));
     mr__absorb_solution_release(&sol);
+}
+END_TEST
+
+/* The intercept alone beside 20,000 levels of three rows, and a
+ * reference level of two: S is the reference's weight and the intercept
+ * its weighted mean of z, b_ref / d_ref (analytic identity, absorb.h
+ * "Precision").  Taken as the whole weight less 20,000 levels' it would
+ * carry their rounding (2.3e-10 relative here, measured); from the reference's
+ * own row it is the quotient itself. */
+START_TEST(test_intercept_from_reference_row)
+{
+    const size_t L = 20000, width = MR__ABSORB_WIDTH(1);
+    double *lev = calloc(L * width, sizeof *lev), ref[3] = {0, 0, 0}, A = 0, bR = 0;
+    uint64_t state = 99;
+    size_t l, r;
+    mr__absorb_sums s = {L, 1, lev, &A, &bR, ref};
+    mr__absorb_solution sol;
+    for (l = 0; l <= L; l++)
+        for (r = 0; r < (l < L ? 3u : 2u); r++) {
+            double w = 0.5 + 1.5 * unit(&state), z = 4 * unit(&state) - 2;
+            double *row = l < L ? lev + l * width : ref;
+            row[0] += w;
+            row[1] += w * z;
+            row[2] += w;
+            A += w;
+            bR += w * z;
+        }
+    ck_assert_int_eq(mr__absorb_solve(&s, MR__ABSORB_COV, &sol, NULL), MR_OK);
+    ck_assert_msg(fabs(sol.beta_rest[0] - ref[1] / ref[0]) <= 2e-16 * fabs(ref[1] / ref[0]),
+                  "intercept %.17g, reference mean %.17g", sol.beta_rest[0], ref[1] / ref[0]);
+    ck_assert(fabs(sol.cov_rest[0] - 1 / ref[0]) <= 2e-16 / ref[0]);
+    mr__absorb_solution_release(&sol);
+    free(lev);
 }
 END_TEST
 
@@ -297,6 +331,7 @@ static Suite *absorb_suite(void)
     tcase_add_test(tc, test_same_bits_twice);
     tcase_add_test(tc, test_quadratic_as_dense);
     tcase_add_test(tc, test_no_rest_is_level_means);
+    tcase_add_test(tc, test_intercept_from_reference_row);
     suite_add_tcase(s, tc);
     return s;
 }

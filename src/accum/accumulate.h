@@ -41,8 +41,9 @@ typedef struct mr__block_sums {
     uint64_t invalid;  /* rows whose eta or mu left the family's domain */
     uint64_t boundary; /* rows fitted at the edge of the domain */
     /* A pass's totals with a design's eliminated factor (design.h): its
-     * nlev levels' rows of MR__ABSORB_WIDTH(p) doubles (d, b_D, c: see
-     * solve/absorb.h, accum/levelsums.h); NULL otherwise.  Owned. */
+     * nlev levels' rows of p + 2 doubles (d, b_D, c: see solve/absorb.h,
+     * accum/levelsums.h), then the reference level's own row
+     * (mr__sums_reference_row); NULL otherwise.  Owned. */
     double *lev;
     size_t nlev;
     mr__calib calib;   /* observed and expected by fitted mean (not encoded) */
@@ -50,6 +51,13 @@ typedef struct mr__block_sums {
      * has none to add at this point */
     double fam[MR__PARAM_SUMS];
 } mr__block_sums;
+
+/* The reference level's own row, after the levels' (solve/absorb.h,
+ * "Precision"), or NULL without an eliminated factor. */
+static inline const double *mr__sums_reference_row(const mr__block_sums *s, size_t p)
+{
+    return s->lev != NULL ? s->lev + s->nlev * (p + 2) : NULL;
+}
 
 /* Scratch space a worker owns: one block of the design and per-row
  * vectors. */

@@ -37,14 +37,15 @@ static mr_status open_levels(irls_job *j, mr__error *err)
     mr__block_sums *total = &j->env->res->sums;
     const mr__design *d = j->design;
     if (d->nabsorb == 0) return MR_OK;
-    total->lev = mr__calloc(d->nabsorb * level_width(d), sizeof *total->lev);
+    /* the levels' rows, then the reference's (accumulate.h) */
+    total->lev = mr__calloc((d->nabsorb + 1) * level_width(d), sizeof *total->lev);
     if (total->lev == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     total->nlev = d->nabsorb;
-    j->level_slot = mr__malloc_array(d->nabsorb, sizeof *j->level_slot);
+    j->level_slot = mr__malloc_array(d->nabsorb + 1, sizeof *j->level_slot);
     if (j->level_slot == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    for (size_t l = 0; l < d->nabsorb; l++) j->level_slot[l] = -1;
+    for (size_t l = 0; l <= d->nabsorb; l++) j->level_slot[l] = -1;
     MR__TRY(mr__level_part_init(&j->block_levels, level_width(d),
-                                d->nabsorb < MR__BLOCK_ROWS ? d->nabsorb : MR__BLOCK_ROWS,
+                                d->nabsorb + 1 < MR__BLOCK_ROWS ? d->nabsorb + 1 : MR__BLOCK_ROWS,
                                 MR__BLOCK_ROWS * (d->ndense + d->nsparse), err));
     return mr__level_part_order(&j->block_levels, d, err);
 }

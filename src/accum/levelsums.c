@@ -160,7 +160,7 @@ void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, const 
     for (i = 0; i < n; i++) {
         int32_t lev = mr__design_absorb_row(d, blk->lev, MR__BLOCK_ROWS, i), at;
         double s = in->w[i];
-        if (lev < 0) continue;
+        if (lev < 0) lev = (int32_t)d->nabsorb; /* the reference's own row */
         at = row_for(out, slot, lev);
         out->db[2 * at] += s * s;
         out->db[2 * at + 1] += s * z[i];

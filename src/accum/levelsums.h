@@ -72,10 +72,11 @@ void mr__level_input_release(mr__level_input *in);
 void mr__level_input_keep(mr__level_input *in, const mr__design *d, const mr__workspace *ws, size_t n);
 
 /* The block's rows from its kept inputs: d += w, b_D += w z, c += w x for
- * each row at a level other than the reference.  slot is a slot map of
- * nabsorb entries (all -1, and left so).  The part must have room for
- * min(nabsorb, rows) levels and rows x (ndense + nsparse) cells, and its
- * order (mr__level_part_order). */
+ * each row at its level, the reference's row numbered nabsorb (the pass's
+ * rows hold it after the others': solve/absorb.h, "Precision").  slot is
+ * a slot map of nabsorb + 1 entries (all -1, and left so).  The part must
+ * have room for min(nabsorb + 1, rows) levels and rows x (ndense +
+ * nsparse) cells, and its order (mr__level_part_order). */
 void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, const mr__level_input *in, int32_t *slot,
                           mr__level_part *out);
 

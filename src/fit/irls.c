@@ -265,7 +265,7 @@ static mr_status absorb_step(mr__irls *s, const mr__block_sums *sums, mr__error 
 {
     size_t p = s->p, j, rank, pr = p - sums->nlev;
     double *var, *d;
-    mr__absorb_sums a = {sums->nlev, pr, sums->lev, sums->xtwx, sums->xtwz};
+    mr__absorb_sums a = {sums->nlev, pr, sums->lev, sums->xtwx, sums->xtwz, mr__sums_reference_row(sums, pr)};
     MR__TRY(scratch(s, 2 * p, err));
     var = s->inverse;
     d = s->inverse + p;

@@ -34,6 +34,16 @@ static size_t nonzero_columns(const double *c, size_t pr, size_t *nz)
     return n;
 }
 
+/* S's row 0 and the right-hand side's entry 0 from the reference level's
+ * own sums (absorb.h, "Precision"); S's upper triangle is read, so row 0
+ * is entry 0 of each column. */
+static void reference_row(const mr__absorb_sums *s, double *S, double *rhs)
+{
+    size_t j;
+    for (j = 0; j < s->pr; j++) S[j * s->pr] = s->ref[2 + j];
+    rhs[0] = s->ref[1];
+}
+
 /* S = A - sum_l c_l c_l' / d_l and its right-hand side, levels added in
  * order (the same bits whatever produced the sums); g holds pr doubles,
  * nz pr indices. */
@@ -57,6 +67,7 @@ static void schur(const mr__absorb_sums *s, double *S, double *rhs, double *g, s
             rhs[j] -= g[b] * row[1];
         }
     }
+    if (s->ref != NULL) reference_row(s, S, rhs);
 }
 
 /* g' M g for M pr x pr full (zero where aliased), g nonzero at nz[0..n)

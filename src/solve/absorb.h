@@ -31,13 +31,14 @@
  * weight (d_l not > 0) is empty: no coefficient (0), variance NaN, and it
  * takes no part in S.
  *
- * Precision.  The intercept's row of S is the whole weight less every
- * level's, which leaves the reference level's own: after L subtractions
- * it carries about L eps times the whole weight, relative to the
- * reference's, and so do the intercept (the reference level's rate) and
- * its standard error (150,000 levels of two rows: about 1e-7 relative;
- * the other levels' rates, intercept plus level, are not touched).  A
- * reference level with many rows (`ref=`) keeps it small.
+ * Precision.  With the intercept as column 0 of R, c_l's entry 0 is d_l,
+ * so S's row 0 is A's less every level's c_l: exactly the reference
+ * level's own sums (its weight, and its w x_j), and the right-hand side's
+ * entry 0 is its sum of w z.  Computed by the subtractions, it would be
+ * the reference's weight left after L of them, carrying about L eps times
+ * the whole weight: for 150,000 levels of two rows, the intercept (the
+ * reference level's rate) off by about 1e-7 relative.  Given the
+ * reference's row (`ref`), S's row 0 and that entry are taken from it. 
  *
  * Any set of mutually exclusive indicator columns will do: the fit takes
  * the factor's levels other than its reference, and keeps the intercept
@@ -57,6 +58,9 @@ typedef struct mr__absorb_sums {
     const double *lev; /* nlev rows */
     const double *A;   /* pr x pr, upper triangle read, column-major */
     const double *bR;  /* pr */
+    /* NULL, or the reference level's own row, laid out as a level's, when
+     * column 0 of R is the intercept (1 on every row): see "Precision". */
+    const double *ref;
 } mr__absorb_sums;
 
 typedef struct mr__absorb_solution {
