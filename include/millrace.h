@@ -971,6 +971,17 @@ MR_API size_t mr_fit_many_nlevels(const mr_fit *fit);
  * rows).  NULL when k is out of range. */
 MR_API const char *mr_fit_many_level(const mr_fit *fit, size_t k, double *estimate, double *std_error,
                                      double *information);
+/* Those levels as CSV (RFC 4180, lines ended by CRLF): a header row
+ * `level,estimate,standard_error,information`, then a row a level in the
+ * order above, numbers as the shortest text that gives the double back,
+ * an empty cell for NaN; the reference level, whose estimate is 0 by
+ * definition, has no row.  Written to `path` by the rules of "Output
+ * files" above; `inputs` (`ninputs`) are files the output must not
+ * replace (the fit's JSON it was read from).  MR_OK, or MR_ERR_USAGE (no
+ * factor declared `many`, or a path refused) / MR_ERR_IO /
+ * MR_ERR_NO_MEMORY with a message in `msg`. */
+MR_API mr_status mr_fit_write_many_csv(const mr_fit *fit, const char *path, const char *const *inputs, size_t ninputs,
+                                       char *msg, size_t msgcap);
 /* The pass after which the run that made `fit` went on from a checkpoint
  * (mr_fitter_set_checkpoint; "run": {"resumed": {"after_pass": N}} in the
  * JSON), or 0 when it ran from the start. */

@@ -5,6 +5,7 @@ const char cli_usage_text[] =
     "usage: millrace fit [options] DATA...  fit a GLM to DATA (CSV, TSV, zstd or gzip, or - for stdin);\n"
     "                               several files or a directory are read as one data set\n"
     "       millrace show [--digits N] FIT.json   the report of a fit saved with --json\n"
+    "       millrace show --many-csv PATH FIT.json   its `many` factor's levels as CSV\n"
     "       millrace drift [--threshold SE] [--json PATH] [--csv PATH] [--digits N] OLD.json NEW.json\n"
     "                               what changed between two saved fits of one model (default 3 SE)\n"
     "       millrace report --html PATH [--at COL=VALUE]... [--digits N] [--groups GROUPS.json] FIT.json...\n"

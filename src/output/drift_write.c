@@ -6,9 +6,8 @@
 #include <string.h>
 
 #include "common/alloc.h"
-#include "common/dtoa.h"
-#include "common/outfile.h"
 #include "common/strbuf.h"
+#include "output/csv_cells.h"
 #include "output/drift.h"
 #include "output/json_text.h"
 #include "output/json_util.h"
@@ -144,29 +143,6 @@ mr_status mr_drift_write_json(const mr_drift *d, const char *path, const char *c
     return err.status;
 }
 
-/* RFC 4180: a field holding a comma, a quote or a line break is quoted,
- * its quotes doubled. */
-static void csv_text(mr__strbuf *b, const char *s)
-{
-    if (strpbrk(s, ",\"\r\n") == NULL) {
-        mr__strbuf_append(b, s, strlen(s));
-        return;
-    }
-    mr__strbuf_append(b, "\"", 1);
-    for (; *s; s++) {
-        mr__strbuf_append(b, s, 1);
-        if (*s == '"') mr__strbuf_append(b, "\"", 1);
-    }
-    mr__strbuf_append(b, "\"", 1);
-}
-
-/* The shortest text that gives the double back; NaN is the empty cell. */
-static void csv_number(mr__strbuf *b, double x)
-{
-    char t[MR__DTOA_SIZE + 1] = ",";
-    mr__strbuf_append(b, t, isnan(x) ? 1 : 1 + mr__dtoa(x, t + 1));
-}
-
 static char *drift_csv(const mr_drift *d)
 {
     mr__strbuf b;
@@ -176,16 +152,16 @@ static char *drift_csv(const mr_drift *d)
                           "z,z_independent,flagged\r\n");
     for (i = 0; i < d->ncoef; i++) {
         const mr__drift_coef *c = &d->coef[i];
-        csv_text(&b, c->name);
+        mr__csv_text(&b, c->name);
         mr__strbuf_printf(&b, ",%s", status_word(c->kind));
-        csv_number(&b, c->old_est);
-        csv_number(&b, c->new_est);
-        csv_number(&b, c->change);
-        csv_number(&b, c->old_se);
-        csv_number(&b, c->new_se);
-        csv_number(&b, c->se);
-        csv_number(&b, c->z);
-        csv_number(&b, c->z_indep);
+        mr__csv_number(&b, c->old_est);
+        mr__csv_number(&b, c->new_est);
+        mr__csv_number(&b, c->change);
+        mr__csv_number(&b, c->old_se);
+        mr__csv_number(&b, c->new_se);
+        mr__csv_number(&b, c->se);
+        mr__csv_number(&b, c->z);
+        mr__csv_number(&b, c->z_indep);
         mr__strbuf_printf(&b, ",%d\r\n", c->flagged);
     }
     return mr__strbuf_take(&b);
@@ -194,16 +170,5 @@ static char *drift_csv(const mr_drift *d)
 mr_status mr_drift_write_csv(const mr_drift *d, const char *path, const char *const *inputs, size_t ninputs,
                              char *msg, size_t msgcap)
 {
-    char *text = drift_csv(d);
-    mr__outfile *out = NULL;
-    mr__error err;
-    mr__error_clear(&err);
-    if (text == NULL) mr__fail(&err, MR_ERR_NO_MEMORY, "%s: out of memory building the CSV", path);
-    else if (mr__outfile_open(&out, path, inputs, ninputs, &err) == MR_OK) {
-        if (mr__outfile_write(out, text, strlen(text), &err) == MR_OK) mr__outfile_commit(out, &err);
-        else mr__outfile_abort(out);
-    }
-    mr__free(text);
-    mr__error_export(&err, msg, msgcap);
-    return err.status;
+    return mr__csv_write(drift_csv(d), path, inputs, ninputs, msg, msgcap);
 }

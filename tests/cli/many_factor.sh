@@ -87,6 +87,34 @@ rc=$?
 [ "$rc" -eq 5 ] && grep -q "new.csv:2:.*a level the fit never saw" "$tmp/new.err" && [ ! -e "$tmp/new.out" ] &&
     ok "a level the fit never saw: exit 5, its line" || fail "unseen level" "exit $rc: $(cat "$tmp/new.err")"
 
+# The levels as CSV (show --many-csv): a row a level, in the JSON's order,
+# every number the JSON's double (shortest round trip both); onto the fit
+# it reads: refused (exit 2), the fit intact; a fit without the factor:
+# exit 2, nothing written.
+cp "$tmp/base.json" "$tmp/base.keep"
+$bin show --many-csv "$tmp/levels.csv" "$tmp/base.json" > "$tmp/show.out" 2>&1 &&
+    /usr/bin/python3 -c '
+import csv, json, sys
+js = json.load(open(sys.argv[1]))["many_factor"]["levels"]
+rows = list(csv.reader(open(sys.argv[2], newline="")))
+num = lambda t: float(t) if t else None
+same = rows[0] == ["level", "estimate", "standard_error", "information"] and len(rows) == len(js) + 1 and all(
+    r[0] == l["level"] and num(r[1]) == l["estimate"] and num(r[2]) == l["standard_error"] and
+    num(r[3]) == l["information"] for r, l in zip(rows[1:], js))
+sys.exit(not same)' "$tmp/base.json" "$tmp/levels.csv" && [ ! -s "$tmp/show.out" ] &&
+    ok "show --many-csv: the JSON's levels, number for number" || fail "show --many-csv" "$(cat "$tmp/show.out")"
+$bin show --many-csv "$tmp/base.json" "$tmp/base.json" > /dev/null 2> "$tmp/show.err"
+rc=$?
+[ "$rc" -eq 2 ] && cmp -s "$tmp/base.json" "$tmp/base.keep" && ok "show --many-csv onto the fit it reads: exit 2, fit intact" ||
+    fail "show --many-csv onto its input" "exit $rc: $(cat "$tmp/show.err")"
+printf 'y,sex,py\n1,M,10\n0,F,12\n2,M,9\n1,F,11\n' > "$tmp/nomany.csv"
+printf 'outcome y\nfamily poisson\nexposure py\nfactor sex\n' > "$tmp/nomany.model"
+$bin fit --quiet -m "$tmp/nomany.model" --json "$tmp/nomany.json" "$tmp/nomany.csv" > /dev/null
+$bin show --many-csv "$tmp/nomany.levels.csv" "$tmp/nomany.json" > /dev/null 2> "$tmp/show.err"
+rc=$?
+[ "$rc" -eq 2 ] && [ ! -e "$tmp/nomany.levels.csv" ] && grep -q "no factor declared 'many'" "$tmp/show.err" &&
+    ok "show --many-csv without such a factor: exit 2, nothing written" || fail "show --many-csv, no factor" "exit $rc: $(cat "$tmp/show.err")"
+
 # 30,000 levels of about 10 rows each on 300,000 rows of the synthetic
 # registry (tools/synth.c; past 16 blocks, so the warm start fits a sample
 # of them), each level given one row with an event, the others at random:
