@@ -61,7 +61,7 @@ static mr_status score_start(void *job, mr__error *err)
     mr_status st;
     mr__strbuf_init(&o);
     for (i = 0; i < c->nkeep; i++) {
-        mr__score_put_text(&o, c->keep_name[i], strlen(c->keep_name[i]));
+        mr__strbuf_append_csv(&o, c->keep_name[i], strlen(c->keep_name[i]));
         mr__strbuf_append(&o, ",", 1);
     }
     for (k = 0; k < MR__SCORE_NCOLUMNS; k++)

@@ -17,24 +17,6 @@ typedef struct score_row {
     int has_y;
 } score_row;
 
-/* RFC 4180: a field with a comma, quote or line end goes in quotes, its
- * quotes doubled. */
-void mr__score_put_text(mr__strbuf *o, const char *p, size_t n)
-{
-    size_t i;
-    if (memchr(p, ',', n) == NULL && memchr(p, '"', n) == NULL && memchr(p, '\n', n) == NULL &&
-        memchr(p, '\r', n) == NULL) {
-        mr__strbuf_append(o, p, n);
-        return;
-    }
-    mr__strbuf_append(o, "\"", 1);
-    for (i = 0; i < n; i++) {
-        if (p[i] == '"') mr__strbuf_append(o, "\"", 1);
-        mr__strbuf_append(o, p + i, 1);
-    }
-    mr__strbuf_append(o, "\"", 1);
-}
-
 void mr__score_on_field(void *user, size_t k, const char *p, size_t len)
 {
     score_worker *sw = user;
@@ -408,7 +390,7 @@ static void score_one(score_worker *sw, uint32_t r, score_slot *out)
     for (i = 0; i < c->nkeep; i++) {
         const char *p = cell(sw, c->keep_field[i], &n);
         if (i) mr__strbuf_append(&out->out, ",", 1);
-        mr__score_put_text(&out->out, p, n);
+        mr__strbuf_append_csv(&out->out, p, n);
     }
     out->rows++;
     if (why == ROW_OK) {

@@ -65,8 +65,6 @@ typedef struct score_worker {
 /* Each block's groups numbered afresh (the job's compute). */
 void mr__score_groups_reset(score_worker *sw);
 
-/* RFC 4180 text of n bytes at p onto o. */
-void mr__score_put_text(mr__strbuf *o, const char *p, size_t n);
 
 /* The field sink's calls (the worker is user): a row's cells, then at its
  * end its CSV line (and group row) into the worker's slot. */

@@ -69,3 +69,19 @@ void mr__strbuf_release(mr__strbuf *b)
     mr__free(b->data);
     mr__strbuf_init(b);
 }
+
+void mr__strbuf_append_csv(mr__strbuf *b, const char *s, size_t n)
+{
+    size_t i;
+    if (memchr(s, ',', n) == NULL && memchr(s, '"', n) == NULL && memchr(s, '\n', n) == NULL &&
+        memchr(s, '\r', n) == NULL) {
+        mr__strbuf_append(b, s, n);
+        return;
+    }
+    mr__strbuf_append(b, "\"", 1);
+    for (i = 0; i < n; i++) {
+        if (s[i] == '"') mr__strbuf_append(b, "\"", 1);
+        mr__strbuf_append(b, s + i, 1);
+    }
+    mr__strbuf_append(b, "\"", 1);
+}

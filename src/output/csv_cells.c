@@ -6,20 +6,6 @@
 #include "common/outfile.h"
 #include "output/csv_cells.h"
 
-void mr__csv_text(mr__strbuf *b, const char *s)
-{
-    if (strpbrk(s, ",\"\r\n") == NULL) {
-        mr__strbuf_append(b, s, strlen(s));
-        return;
-    }
-    mr__strbuf_append(b, "\"", 1);
-    for (; *s; s++) {
-        mr__strbuf_append(b, s, 1);
-        if (*s == '"') mr__strbuf_append(b, "\"", 1);
-    }
-    mr__strbuf_append(b, "\"", 1);
-}
-
 void mr__csv_number(mr__strbuf *b, double x)
 {
     char t[MR__DTOA_SIZE + 1] = ",";

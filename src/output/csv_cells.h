@@ -1,13 +1,11 @@
-/* csv_cells.h - cells of the CSV files the library writes (RFC 4180). */
+/* csv_cells.h - cells of the CSV files the library writes (RFC 4180; a
+ * text cell: mr__strbuf_append_csv). */
 #ifndef MR_CSV_CELLS_H
 #define MR_CSV_CELLS_H
 
 #include "common/error.h"
 #include "common/strbuf.h"
 
-/* A text cell: quoted when it holds a comma, a quote or a line break, its
- * quotes doubled. */
-void mr__csv_text(mr__strbuf *b, const char *s);
 /* A comma, then a number as the shortest text that gives the double back
  * (common/dtoa.h); NaN is the empty cell. */
 void mr__csv_number(mr__strbuf *b, double x);

@@ -152,7 +152,7 @@ static char *drift_csv(const mr_drift *d)
                           "z,z_independent,flagged\r\n");
     for (i = 0; i < d->ncoef; i++) {
         const mr__drift_coef *c = &d->coef[i];
-        mr__csv_text(&b, c->name);
+        mr__strbuf_append_csv(&b, c->name, strlen(c->name));
         mr__strbuf_printf(&b, ",%s", status_word(c->kind));
         mr__csv_number(&b, c->old_est);
         mr__csv_number(&b, c->new_est);

@@ -1,5 +1,7 @@
 /* many_csv.c - a `many` factor's levels as CSV (mr_fit_write_many_csv),
  * written atomically through common/outfile.c. */
+#include <string.h>
+
 #include "common/strbuf.h"
 #include "output/csv_cells.h"
 #include "output/report_many.h"
@@ -12,7 +14,8 @@ static char *many_csv(const mr_fit *fit)
     mr__strbuf_printf(&b, "level,estimate,standard_error,information\r\n");
     for (k = 0; k < n; k++) {
         double est, se, info;
-        mr__csv_text(&b, mr_fit_many_level(fit, k, &est, &se, &info));
+        const char *level = mr_fit_many_level(fit, k, &est, &se, &info);
+        mr__strbuf_append_csv(&b, level, strlen(level));
         mr__csv_number(&b, est);
         mr__csv_number(&b, se);
         mr__csv_number(&b, info);

@@ -153,18 +153,6 @@ static void group_numbers(const mr_scorer *s, size_t i, const double *bounds, do
     v[6] = r.high;
 }
 
-static void csv_cell(mr__strbuf *b, const char *p, size_t n)
-{
-    size_t i;
-    if (!memchr(p, ',', n) && !memchr(p, '"', n) && !memchr(p, '\n', n) && !memchr(p, '\r', n)) {
-        mr__strbuf_append(b, p, n);
-        return;
-    }
-    mr__strbuf_append(b, "\"", 1);
-    for (i = 0; i < n; i++) mr__strbuf_append(b, p[i] == '"' ? "\"\"" : p + i, p[i] == '"' ? 2 : 1);
-    mr__strbuf_append(b, "\"", 1);
-}
-
 /* A CSV cell: the shortest text that reads back to v; empty if v is
  * not finite. */
 static void csv_number(mr__strbuf *b, double v)
@@ -191,7 +179,7 @@ static char *table(const mr_scorer *s, int csv)
         group_numbers(s, i, bounds, v);
         for (k = 0; k < s->nby; k++) {
             const char *p = key_cell(&s->g.groups.name[i], k, &n);
-            if (csv) csv_cell(&b, p, n), mr__strbuf_append(&b, ",", 1);
+            if (csv) mr__strbuf_append_csv(&b, p, n), mr__strbuf_append(&b, ",", 1);
             else mr__strbuf_printf(&b, "%-16.*s ", (int)n, p);
         }
         for (k = 0; k < 7; k++) {
