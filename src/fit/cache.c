@@ -72,23 +72,29 @@ void mr__choose_store(mr__run *r)
     open_cache(r);
 }
 
+int32_t *mr__level_map(const mr__run *r, size_t w, size_t f)
+{
+    const mr__levelset *local = &r->first.worker_levels[w][f];
+    int32_t *map = mr__malloc_array(local->n + 1, sizeof *map);
+    size_t j;
+    for (j = 0; map && j <= local->n; j++) map[j] = -1;
+    for (j = 0; map && j < local->cap; j++)
+        if (local->slot[j].str != NULL && (size_t)local->slot[j].id < local->n)
+            map[local->slot[j].id] = mr__levelset_find(&r->levels[f], local->slot[j].str, local->slot[j].len);
+    return map;
+}
+
 /* Maps each first-pass decoder's level numbers to the shared ones. */
 mr_status mr__build_remap(mr__run *r, mr__error *err)
 {
-    size_t w, f, j, nfac = r->bind.nfac, nw = r->first.nworkers;
+    size_t w, f, nfac = r->bind.nfac, nw = r->first.nworkers;
     r->remap = mr__calloc(nw * nfac + 1, sizeof *r->remap);
     if (r->remap == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     r->nremap = nw * nfac;
     for (w = 0; w < nw; w++)
-        for (f = 0; f < nfac; f++) {
-            const mr__levelset *local = &r->first.worker_levels[w][f];
-            int32_t *map = mr__calloc(local->n + 1, sizeof *map);
-            if (map == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-            r->remap[w * nfac + f] = map;
-            for (j = 0; j < local->cap; j++)
-                if (local->slot[j].str != NULL)
-                    map[local->slot[j].id] = mr__levelset_find(&r->levels[f], local->slot[j].str, local->slot[j].len);
-        }
+        for (f = 0; f < nfac; f++)
+            if ((r->remap[w * nfac + f] = mr__level_map(r, w, f)) == NULL)
+                return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     return MR_OK;
 }
 

@@ -175,6 +175,9 @@ void mr__choose_store(mr__run *r);
 mr_status mr__settle_store(mr__run *r, mr__error *err);
 void mr__go_without_cache(mr__run *r, const char *why);
 mr_status mr__build_remap(mr__run *r, mr__error *err);
+/* First-pass worker w's level numbers of factor f mapped to the shared
+ * ones (-1: none; local n + 1 entries, caller frees); NULL on no memory. */
+int32_t *mr__level_map(const mr__run *r, size_t w, size_t f);
 /* With a factor declared many and rows not collapsed: the remap made, and
  * the workers' sets of that factor's levels (the largest sets of the run:
  * a hash table and a copy of every string each) freed but for their

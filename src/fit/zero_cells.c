@@ -64,21 +64,15 @@ static void note(zero_report *z, int kind, const char *what, uint64_t rows)
 }
 
 /* Worker w's level numbers of factor f mapped to the shared ones (-1:
- * none); NULL on no memory.  The run's remap when made (the same numbers:
- * a many factor's workers' sets are gone by then, cache.c). */
+ * none); NULL on no memory.  The run's remap when made (a many factor's
+ * workers' sets are gone by then, cache.c). */
 static int32_t *local_map(const mr__run *r, size_t w, size_t f)
 {
-    const mr__levelset *local = &r->first.worker_levels[w][f];
-    int32_t *map = mr__malloc_array(local->n + 1, sizeof *map);
-    size_t j;
-    for (j = 0; map && j <= local->n; j++) map[j] = -1;
-    if (map && r->remap != NULL && r->remap[w * r->bind.nfac + f] != NULL) {
-        memcpy(map, r->remap[w * r->bind.nfac + f], local->n * sizeof *map);
-        return map;
-    }
-    for (j = 0; map && j < local->cap; j++)
-        if (local->slot[j].str != NULL && (size_t)local->slot[j].id < local->n)
-            map[local->slot[j].id] = mr__levelset_find(&r->levels[f], local->slot[j].str, local->slot[j].len);
+    const int32_t *made = r->remap != NULL ? r->remap[w * r->bind.nfac + f] : NULL;
+    size_t n = r->first.worker_levels[w][f].n;
+    int32_t *map;
+    if (made == NULL) return mr__level_map(r, w, f);
+    if ((map = mr__malloc_array(n + 1, sizeof *map)) != NULL) memcpy(map, made, (n + 1) * sizeof *map);
     return map;
 }
 
