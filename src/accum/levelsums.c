@@ -7,8 +7,6 @@ mr_status mr__level_part_init(mr__level_part *p, size_t width, size_t cap, size_
 {
     memset(p, 0, sizeof *p);
     p->width = width;
-    p->cap = cap;
-    p->cell_cap = cells;
     p->level = mr__malloc_array(cap + 1, sizeof *p->level);
     p->head = mr__malloc_array(cap + 1, sizeof *p->head);
     p->db = mr__malloc_array(2 * cap + 1, sizeof *p->db);
@@ -137,7 +135,6 @@ mr_status mr__level_part_order(mr__level_part *p, const mr__design *d, mr__error
     size_t n = d->ndense + d->nsparse, a, b;
     p->source = mr__malloc_array(n + 1, sizeof *p->source);
     if (p->source == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    p->nsource = n;
     for (a = 0; a < n; a++) {
         int32_t k = (int32_t)a;
         for (b = a; b > 0 && source_start(d, p->source[b - 1]) > source_start(d, k); b--) p->source[b] = p->source[b - 1];

@@ -24,16 +24,15 @@
  * increasing column order from head[e] through next[]. */
 typedef struct mr__level_part {
     size_t width;            /* of a row in the pass's totals: p + 2 */
-    size_t n, cap;           /* levels met, room for */
+    size_t n;                /* levels met */
     int32_t *level, *head;   /* per level met */
     double *db;              /* d and b_D, 2 per level met */
-    size_t ncell, cell_cap;  /* c entries held, room for */
+    size_t ncell;            /* c entries held */
     double *val;             /* per entry */
     int32_t *col, *next;     /* per entry: its column, the next entry (-1: none) */
     int32_t *scratch_col;    /* a row's entries on their way in (width) */
     double *scratch_val;
     int32_t *source;         /* the order a row's entries are taken in (mr__level_part_order) */
-    size_t nsource;
 } mr__level_part;
 
 /* An empty part for rows of `width` doubles in the totals, with room for
