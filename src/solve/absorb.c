@@ -45,8 +45,9 @@ static void reference_row(const mr__absorb_sums *s, double *S, double *rhs)
 }
 
 /* S = A - sum_l c_l c_l' / d_l and its right-hand side, levels added in
- * order (the same bits whatever produced the sums); g holds pr doubles,
- * nz pr indices. */
+ * order (the same bits whatever produced the sums); g and nz, room for
+ * pr each, take a level's c / d at its nonzero columns, g compact (g[a]
+ * is column nz[a]'s), as form and levels_from_rest take them too. */
 static void schur(const mr__absorb_sums *s, double *S, double *rhs, double *g, size_t *nz)
 {
     size_t pr = s->pr, l, a, b;
@@ -58,7 +59,6 @@ static void schur(const mr__absorb_sums *s, double *S, double *rhs, double *g, s
         size_t n;
         if (level_empty(row)) continue;
         n = nonzero_columns(c, pr, nz);
-        /* g here holds the nonzero entries of c / d in nz's order */
         for (a = 0; a < n; a++) g[a] = c[nz[a]] / row[0];
         for (b = 0; b < n; b++) {
             size_t j = nz[b];
@@ -71,7 +71,7 @@ static void schur(const mr__absorb_sums *s, double *S, double *rhs, double *g, s
 }
 
 /* g' M g for M pr x pr full (zero where aliased), g nonzero at nz[0..n)
- * only. */
+ * only and held compact: g[a] is its entry nz[a]. */
 static double form(const double *M, size_t pr, const double *g, const size_t *nz, size_t n)
 {
     size_t a, b;
@@ -79,8 +79,8 @@ static double form(const double *M, size_t pr, const double *g, const size_t *nz
     for (b = 0; b < n; b++) {
         const double *col = M + nz[b] * pr;
         double mg = 0;
-        for (a = 0; a < n; a++) mg += col[nz[a]] * g[nz[a]];
-        sum += g[nz[b]] * mg;
+        for (a = 0; a < n; a++) mg += col[nz[a]] * g[a];
+        sum += g[b] * mg;
     }
     return sum;
 }
@@ -102,8 +102,8 @@ static void levels_from_rest(const mr__absorb_sums *s, mr__absorb_solution *sol,
         b = row[1] / row[0];
         n = nonzero_columns(c, pr, nz);
         for (a = 0; a < n; a++) {
-            g[nz[a]] = c[nz[a]] / row[0];
-            b -= g[nz[a]] * sol->beta_rest[nz[a]];
+            g[a] = c[nz[a]] / row[0];
+            b -= g[a] * sol->beta_rest[nz[a]];
         }
         sol->beta_lev[l] = b;
         if (want_cov == MR__ABSORB_COV) sol->var_lev[l] = 1.0 / row[0] + form(sol->cov_rest, pr, g, nz, n);
