@@ -71,6 +71,9 @@ enum { MR__PS_LOGLIK, MR__PS_SCORE, MR__PS_INFO, MR__PS_MOMENT, MR__PS_WEIGHT, M
 struct mr__family_ops {
     const char *name;        /* as in model files */
     mr_link canonical_link;
+    /* canonical_link is only the default link: the canonical one depends
+     * on the family's parameter, so IRLS on it is not Newton's method */
+    int link_default_only;
     unsigned links;          /* bit l set: the family takes link l */
     int takes_trials;        /* outcome may be successes of a trials column */
 
@@ -110,6 +113,11 @@ struct mr__family_ops {
      * null model's intercept is log of their ratio. */
     int log_offset_patterns;
     int log_offset_null_exact;
+    /* With an eliminated factor on the canonical link, a level's Newton
+     * step t is taken as log(1 + t): a level's step moves its mean by
+     * 1 + t where the mean is the whole story of its score (fit/irls.c,
+     * level_steps_by_mean). */
+    int level_step_by_mean;
 
     /* Fitted means at the edge of the range: how many in mu[0..n) (NULL:
      * none can be), and the warning "WHAT for N rows: WHY". */

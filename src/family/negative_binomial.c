@@ -100,6 +100,7 @@ static mr_status parse_param(double *param, const char *word, const char *origin
 const mr__family_ops mr__negative_binomial_family = {
     .name = "negative-binomial",
     .canonical_link = MR_LOG, /* the default link: the canonical one depends on theta */
+    .link_default_only = 1,
     .links = MR__LINK_BIT(MR_IDENTITY) | MR__LINK_BIT(MR_LOG) | MR__LINK_BIT(MR_SQRT),
     .outcome = {0.0, INFINITY, 0, "a count cannot be negative"},
     .mu_lo = 0.0,

@@ -40,6 +40,7 @@ const mr__family_ops mr__poisson_family = {
     .saturated_term = saturated_term,
     .log_offset_patterns = 1,
     .log_offset_null_exact = 1,
+    .level_step_by_mean = 1,
     .count_boundary = mr__count_zero_means,
     .boundary_what = "fitted rates are numerically 0",
     .boundary_why = "a level or cell with no events drives a coefficient towards minus infinity",

@@ -139,6 +139,7 @@ static mr_status parse_param(double *param, const char *word, const char *origin
 const mr__family_ops mr__tweedie_family = {
     .name = "tweedie",
     .canonical_link = MR_LOG, /* the default link: the canonical one is a power of mu */
+    .link_default_only = 1,
     .links = MR__LINK_BIT(MR_LOG),
     .outcome = {0.0, INFINITY, 0, "a tweedie outcome cannot be negative"},
     .mu_lo = 0.0,

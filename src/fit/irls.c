@@ -224,7 +224,8 @@ static mr_status scratch(mr__irls *s, size_t n, mr__error *err)
     return MR_OK;
 }
 
-/* A level's Newton step in a poisson log-link model moves its mean by
+/* A level's Newton step in a poisson log-link model (the family's
+ * level_step_by_mean) moves its mean by
  * the factor 1 + t, t = sum (y - mu) / sum mu over its rows when the
  * other coefficients stay: taking log(1 + t) instead of t lands on that
  * mean, the level's own maximum, where t overshoots or falls short by
@@ -274,7 +275,8 @@ static mr_status absorb_step(mr__irls *s, const mr__block_sums *sums, mr__error 
     s->step_before = s->step;
     if (!s->have_beta) s->step = INFINITY;
     else {
-        if (s->newton && s->family == MR_POISSON) level_steps_by_mean(s, pr);
+        const mr__family_ops *ops = mr__family_ops_of((mr_family)s->family);
+        if (s->newton && ops != NULL && ops->level_step_by_mean) level_steps_by_mean(s, pr);
         for (j = 0; j < p; j++) d[j] = s->next[j] - s->beta[j];
         s->step = step_in_se(s, sums, s->rest_only ? rest_quadratic(s, d, var, pr) : mr__absorb_quadratic(&a, d), rank);
     }

@@ -127,13 +127,12 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
     return mr__run_note_pass(r, res, err);
 }
 
-/* IRLS is Newton's method under a family's canonical link; the negative
- * binomial's and the Tweedie's defaults (log) are not theirs. */
+/* IRLS is Newton's method under a family's canonical link, not where
+ * that names only its default (a negative binomial's, a Tweedie's log). */
 static int newton_link(const mr__run *r)
 {
-    int family = r->f->spec.family;
-    return family != MR_NEGATIVE_BINOMIAL && family != MR_TWEEDIE &&
-           mr__spec_link(&r->f->spec) == (int)mr__canonical_link((mr_family)family);
+    const mr__family_ops *ops = mr__family_ops_of((mr_family)r->f->spec.family);
+    return ops != NULL && !ops->link_default_only && mr__spec_link(&r->f->spec) == (int)ops->canonical_link;
 }
 
 /* Where the family sums a series density (tweedie), the dispersion to
