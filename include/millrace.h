@@ -816,10 +816,14 @@ MR_API mr_status mr_drift_write_csv(const mr_drift *d, const char *path, const c
  *   eta        the linear predictor x'b, plus the row's offset and
  *              log(exposure) when the model has them
  *   se_eta     sqrt(x' V x), V the fit's covariance (aliased coefficients
- *              count as 0); empty for a fit with a `many` factor, which
- *              keeps no covariance of a level's estimate with the rest
- *              (eta adds the row's level estimate; a level with none
- *              counts as unseen), and so are mean_low and mean_high
+ *              count as 0); with a `many` factor (eta adds the row's
+ *              level estimate; a level with none counts as unseen), in a
+ *              level l other than the reference
+ *              sqrt((x - m_l)' V (x - m_l) + dispersion / information_l),
+ *              m_l the level's IRLS-weighted means of the columns that the
+ *              fit keeps (its JSON's weighted_means); empty, as are
+ *              mean_low and mean_high, for a fit read from a JSON written
+ *              before it kept them
  *   mean       the inverse link of eta (binomial: the probability)
  *   mean_low, mean_high   the inverse link of eta -+ z se_eta, z the
  *              normal quantile of the level (mr_scorer_set_level)

@@ -114,6 +114,12 @@ static mr_status score_worker_init(void *job, mr__pass_worker *w, mr__error *err
     sw->xval = mr__calloc(nx, sizeof *sw->xval);
     sw->lev = mr__calloc(c->nfac + 1, sizeof *sw->lev);
     sw->num = mr__calloc(c->nnum + 1, sizeof *sw->num);
+    if (c->many_mean_span != NULL) {
+        sw->dx = mr__calloc(c->p + 1, sizeof *sw->dx);
+        sw->dcol = mr__calloc(c->p + 1, sizeof *sw->dcol);
+        sw->dpos = mr__calloc(c->p + 1, sizeof *sw->dpos);
+        if (!sw->dx || !sw->dcol || !sw->dpos) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    }
     if (!sw->lev || !sw->num || !sw->np || !sw->wanted || mr__row_cells_init(&sw->cells, c->nfields) != MR_OK ||
         !sw->xcol || !sw->xval)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
@@ -246,6 +252,9 @@ static void score_worker_release(void *job, mr__pass_worker *w)
     mr__free(sw->num);
     mr__free(sw->xcol);
     mr__free(sw->xval);
+    mr__free(sw->dx);
+    mr__free(sw->dcol);
+    mr__free(sw->dpos);
     mr__free(sw->by_fac);
     mr__free(sw->by_stride);
     mr__free(sw->dense);

@@ -51,12 +51,19 @@ typedef struct mr__score_cfg {
     size_t p;
     const double *beta, *cov; /* p and p x p; aliased entries 0 */
     /* A factor declared `many`: fac[many_var] (-1: none), each of its
-     * levels' estimate (the reference's 0; NaN: none in the fit).  The fit
-     * keeps no covariance between a level's estimate and the other
-     * coefficients, so such a fit's rows get no standard error or
-     * interval. */
+     * levels' estimate (the reference's 0; NaN: none in the fit).  A row
+     * of level l other than the reference has the variance
+     * (x - m_l)' V (x - m_l) + many_own_var[l]: m_l the level's weighted
+     * means of the columns, its entries many_mean_col / many_mean_val
+     * [many_mean_span[2 l] .. many_mean_span[2 l + 1]), and the own
+     * variance dispersion / information (fit.h, many_mean_*).  NaN there:
+     * no standard error (a fit written before it kept the means). */
     long many_var;
-    double *many_beta;
+    int32_t many_ref;
+    double *many_beta, *many_own_var;
+    const size_t *many_mean_col;
+    const double *many_mean_val;
+    size_t *many_mean_span;
     int intercept;
     mr__family family;         /* as fitted, with its parameter */
     const mr__link_ops *link;

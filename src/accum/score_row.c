@@ -152,23 +152,70 @@ static size_t design_row(score_worker *sw, const int32_t *lev, const double *num
     return m;
 }
 
+/* x at the columns it touches, minus m_l (score.h) there. */
+static size_t level_difference(score_worker *sw, size_t m, int32_t l)
+{
+    const mr__score_cfg *c = sw->c;
+    size_t a, e, n = 0;
+    for (a = 0; a < m; a++) {
+        size_t j = sw->xcol[a];
+        if (sw->dpos[j] == 0) {
+            sw->dcol[n] = j;
+            sw->dx[j] = 0;
+            sw->dpos[j] = ++n;
+        }
+        sw->dx[j] += sw->xval[a];
+    }
+    for (e = c->many_mean_span[2 * l]; e < c->many_mean_span[2 * l + 1]; e++) {
+        size_t j = c->many_mean_col[e];
+        if (sw->dpos[j] == 0) {
+            sw->dcol[n] = j;
+            sw->dx[j] = 0;
+            sw->dpos[j] = ++n;
+        }
+        sw->dx[j] -= c->many_mean_val[e];
+    }
+    return n;
+}
+
+/* A `many` level's row: the variance of x'beta + beta_l (score.h). */
+static double level_variance(score_worker *sw, size_t m, int32_t l)
+{
+    const mr__score_cfg *c = sw->c;
+    size_t a, b, n;
+    double v = 0;
+    if (c->many_mean_span == NULL || !isfinite(c->many_own_var[l])) return NAN;
+    n = level_difference(sw, m, l);
+    for (a = 0; a < n; a++) {
+        double row = 0;
+        for (b = 0; b < n; b++) row += c->cov[sw->dcol[a] * c->p + sw->dcol[b]] * sw->dx[sw->dcol[b]];
+        v += sw->dx[sw->dcol[a]] * row;
+    }
+    for (a = 0; a < n; a++) sw->dpos[sw->dcol[a]] = 0;
+    return (v > 0 ? v : 0) + c->many_own_var[l];
+}
+
 /* eta = x'beta + offset and its variance x'Vx, over the row's entries in
  * a fixed order (the same bits whatever the thread). */
-static void linear_predictor(const score_worker *sw, size_t m, double off, double *eta, double *se)
+static void linear_predictor(score_worker *sw, size_t m, double off, double *eta, double *se)
 {
     const mr__score_cfg *c = sw->c;
     double e = 0, v = 0;
     size_t a, b;
+    for (a = 0; a < m; a++) e += c->beta[sw->xcol[a]] * sw->xval[a];
+    if (c->many_var >= 0) {
+        int32_t l = sw->lev[c->many_var];
+        e += c->many_beta[l];
+        if (l != c->many_ref) {
+            *eta = e + off;
+            *se = sqrt(level_variance(sw, m, l));
+            return;
+        }
+    }
     for (a = 0; a < m; a++) {
         double row = 0;
-        e += c->beta[sw->xcol[a]] * sw->xval[a];
         for (b = 0; b < m; b++) row += c->cov[sw->xcol[a] * c->p + sw->xcol[b]] * sw->xval[b];
         v += sw->xval[a] * row;
-    }
-    if (c->many_var >= 0) {
-        *eta = e + c->many_beta[sw->lev[c->many_var]] + off;
-        *se = NAN; /* score.h: no covariance of a level's estimate with the rest */
-        return;
     }
     *eta = e + off;
     *se = sqrt(v > 0 ? v : 0);
@@ -237,7 +284,7 @@ static void residuals(const score_worker *sw, const score_row *row, double mu, d
 
 /* Writes the row's predictions (and residuals) that are asked for;
  * returns its mean. */
-static double put_predictions(const score_worker *sw, mr__strbuf *out, size_t m, const score_row *row)
+static double put_predictions(score_worker *sw, mr__strbuf *out, size_t m, const score_row *row)
 {
     const mr__score_cfg *c = sw->c;
     row_text o;

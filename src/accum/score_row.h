@@ -43,6 +43,10 @@ typedef struct score_worker {
     double *num;
     size_t *xcol; /* the row's non-zero design entries */
     double *xval;
+    /* A `many` level's row: x - m_l at the columns either touches (dcol,
+     * n of them), dpos[j] 1 + j's place there, 0 elsewhere */
+    double *dx;
+    size_t *dcol, *dpos;
     mr__pass_slot *s;
     const mr__chunk *chunk;
     double expo; /* the row's exposure */

@@ -149,6 +149,15 @@ struct mr_fit {
     size_t nmany;
     char **many_level;
     double *many_beta, *many_se, *many_info;
+    /* Each level's rows' weighted means of the coefficients' columns (the
+     * last pass's IRLS weights, raw scale), nonzero ones only: level k's
+     * are many_mean_col / many_mean_val [many_mean_start[k] ..
+     * many_mean_start[k + 1]), in column order.  A prediction's variance
+     * in level k is then (x - m_k)' cov (x - m_k) + dispersion /
+     * information_k (solve/absorb.h, cov(beta_R, beta_D,l)).  NULL for a
+     * fit read from a JSON written before they were kept. */
+    size_t *many_mean_start, *many_mean_col;
+    double *many_mean_val;
     /* observed and expected by tenths of the fitted mean (calibrate.c);
      * 0 in calib_known for a fit read back from a JSON without them */
     int calib_known;
@@ -179,6 +188,9 @@ struct mr_fit {
  * MR_ERR_NO_MEMORY. */
 mr_status mr__fit_alloc_many(mr_fit *fit, size_t n);
 void mr__fit_free_many(mr_fit *fit);
+/* Room for more of its levels' means (many_mean_col and _val, *room
+ * entries, grown to a larger *room); MR_OK or MR_ERR_NO_MEMORY. */
+mr_status mr__fit_grow_many_means(mr_fit *fit, size_t *room);
 
 /* One file of a set as the first pass read it. */
 typedef struct mr__fit_input_file {

@@ -26,6 +26,11 @@ void mr__fit_free_many(mr_fit *fit)
     mr__free(fit->many_beta);
     mr__free(fit->many_se);
     mr__free(fit->many_info);
+    mr__free(fit->many_mean_start);
+    mr__free(fit->many_mean_col);
+    mr__free(fit->many_mean_val);
+    fit->many_mean_start = fit->many_mean_col = NULL;
+    fit->many_mean_val = NULL;
     fit->many_factor = fit->many_reference = NULL;
     fit->many_level = NULL;
     fit->many_beta = fit->many_se = fit->many_info = NULL;
@@ -51,6 +56,96 @@ static mr_status copy_levels(mr_fit *fit, const mr__design *d, mr__error *err)
     return MR_OK;
 }
 
+mr_status mr__fit_grow_many_means(mr_fit *fit, size_t *room)
+{
+    size_t more = *room < 64 ? 64 : 2 * *room;
+    size_t *col = mr__realloc(fit->many_mean_col, more * sizeof *col);
+    double *val;
+    if (col == NULL) return MR_ERR_NO_MEMORY;
+    fit->many_mean_col = col;
+    if ((val = mr__realloc(fit->many_mean_val, more * sizeof *val)) == NULL) return MR_ERR_NO_MEMORY;
+    fit->many_mean_val = val;
+    *room = more;
+    return MR_OK;
+}
+
+/* A's entries above its diagonal, column by column: internal column k is
+ * A(k, k) times raw column k plus A(i, k) times earlier raw columns i (a
+ * centred column's intercept share, an interaction's lower-order parts:
+ * model/design.h), so A is upper triangular and raw means come from
+ * internal ones by one forward substitution. */
+typedef struct upper_entries {
+    size_t *start, *row;
+    double *value;
+} upper_entries;
+
+static mr_status upper_from(const double *A, size_t p, upper_entries *u, mr__error *err)
+{
+    size_t i, k, n = 0;
+    u->start = mr__malloc_array(p + 1, sizeof *u->start);
+    u->row = mr__malloc_array(p * (p + 1) / 2 + 1, sizeof *u->row);
+    u->value = mr__malloc_array(p * (p + 1) / 2 + 1, sizeof *u->value);
+    if (!u->start || !u->row || !u->value) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (k = 0; k < p; k++) {
+        u->start[k] = n;
+        for (i = 0; i < p; i++) {
+            double a = A[k * p + i];
+            if (i > k ? a != 0 : i == k && !(a != 0))
+                return mr__fail(err, MR_ERR_INTERNAL, "the map to raw columns is not upper triangular");
+            if (i < k && a != 0) {
+                u->row[n] = i;
+                u->value[n++] = a;
+            }
+        }
+    }
+    u->start[p] = n;
+    return MR_OK;
+}
+
+/* One level's weighted means of the raw columns into m[0..p) from its
+ * internal sums c (p) and weight w: A' m = c / w. */
+static void raw_means(const double *A, const upper_entries *u, size_t p, const double *c, double w, double *m)
+{
+    size_t k, e;
+    for (k = 0; k < p; k++) {
+        double v = c[k] / w;
+        for (e = u->start[k]; e < u->start[k + 1]; e++) v -= u->value[e] * m[u->row[e]];
+        m[k] = v / A[k * p + k];
+    }
+}
+
+/* Every level's nonzero means in column order (fit.h, many_mean_*). */
+static mr_status level_means(mr_fit *fit, const mr__design *d, const mr__block_sums *t, mr__error *err)
+{
+    size_t p = d->p, k, j, n = 0, room = 0;
+    upper_entries u = {NULL, NULL, NULL};
+    double *m = mr__malloc_array(p + 1, sizeof *m);
+    mr_status st = m ? upper_from(d->A, p, &u, err) : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    if (st == MR_OK && (fit->many_mean_start = mr__malloc_array(d->nabsorb + 1, sizeof(size_t))) == NULL)
+        st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (k = 0; st == MR_OK && k < d->nabsorb; k++) {
+        const double *row = t->lev + k * MR__ABSORB_WIDTH(p);
+        fit->many_mean_start[k] = n;
+        if (!(row[0] > 0) || !isfinite(row[0])) continue; /* an empty level: no rows, no means */
+        raw_means(d->A, &u, p, row + 2, row[0], m);
+        for (j = 0; st == MR_OK && j < p; j++) {
+            if (m[j] == 0) continue;
+            if (n == room && mr__fit_grow_many_means(fit, &room) != MR_OK) {
+                st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+                break;
+            }
+            fit->many_mean_col[n] = j;
+            fit->many_mean_val[n++] = m[j];
+        }
+    }
+    if (st == MR_OK) fit->many_mean_start[d->nabsorb] = n;
+    mr__free(u.start);
+    mr__free(u.row);
+    mr__free(u.value);
+    mr__free(m);
+    return st;
+}
+
 mr_status mr__many_solve(mr_fit *fit, const mr__run *r, double *cov_s, mr__error *err)
 {
     const mr__design *d = &r->design;
@@ -74,7 +169,7 @@ mr_status mr__many_solve(mr_fit *fit, const mr__run *r, double *cov_s, mr__error
         }
     }
     mr__absorb_solution_release(&sol);
-    return st;
+    return st == MR_OK ? level_means(fit, d, t, err) : st;
 }
 
 void mr__many_scale(mr_fit *fit)

@@ -227,15 +227,25 @@ static mr_status make_many(scoring *g, mr__error *err)
     if (v < 0) return fit->many_given ? mr__fail(err, MR_ERR_FORMAT, "fit: its many factor is not among its factors") : MR_OK;
     f = &g->c.fac[v];
     n = f->levels.n;
-    if ((g->c.many_beta = mr__malloc_array(n + 1, sizeof *g->c.many_beta)) == NULL)
+    g->c.many_ref = f->ref;
+    g->c.many_beta = mr__malloc_array(n + 1, sizeof *g->c.many_beta);
+    g->c.many_own_var = mr__malloc_array(n + 1, sizeof *g->c.many_own_var);
+    if (fit->many_mean_start != NULL) g->c.many_mean_span = mr__calloc(2 * n + 1, sizeof *g->c.many_mean_span);
+    if (!g->c.many_beta || !g->c.many_own_var || (fit->many_mean_start != NULL && !g->c.many_mean_span))
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    for (k = 0; k < n; k++) g->c.many_beta[k] = NAN;
+    g->c.many_mean_col = fit->many_mean_col;
+    g->c.many_mean_val = fit->many_mean_val;
+    for (k = 0; k < n; k++) g->c.many_beta[k] = g->c.many_own_var[k] = NAN;
     if (f->ref >= 0) g->c.many_beta[f->ref] = 0;
     for (k = 0; k < fit->nmany; k++) {
         int32_t id = mr__levelset_find(&f->levels, fit->many_level[k], strlen(fit->many_level[k]));
         if (id < 0) return mr__fail(err, MR_ERR_FORMAT, "fit: many level '%s' is not a level of '%s'",
                                     fit->many_level[k], fit->many_factor);
         g->c.many_beta[id] = fit->many_beta[k];
+        if (g->c.many_mean_span == NULL) continue;
+        g->c.many_own_var[id] = fit->dispersion / fit->many_info[k];
+        g->c.many_mean_span[2 * id] = fit->many_mean_start[k];
+        g->c.many_mean_span[2 * id + 1] = fit->many_mean_start[k + 1];
     }
     return MR_OK;
 }
@@ -402,6 +412,8 @@ static void release_scoring(scoring *g)
     mr__free((void *)g->c.beta);
     mr__free((void *)g->c.cov);
     mr__free(g->c.many_beta);
+    mr__free(g->c.many_own_var);
+    mr__free(g->c.many_mean_span);
     mr__free(g->c.keep_field);
     mr__free(g->c.by_field);
     mr__levelset_release(&g->c.groups);

@@ -136,10 +136,24 @@ static json_t *covariance(const mr_fit *f, const double *m)
     return cov;
 }
 
-static json_t *special(const mr_fit *f, int which, const void *base)
+/* Level k's nonzero means, keyed by their coefficients' names. */
+static json_t *level_means(const mr_fit *f, size_t k)
+{
+    json_t *o = json_object();
+    size_t e;
+    for (e = f->many_mean_start[k]; o != NULL && e < f->many_mean_start[k + 1]; e++)
+        o = put(o, f->name[f->many_mean_col[e]], num(f->many_mean_val[e]));
+    return o;
+}
+
+static json_t *special(const mr_fit *f, int which, const void *base, size_t index, int *skip)
 {
     json_t *o;
     size_t i;
+    if (which == MR__JS_LEVEL_MEANS) {
+        *skip = f->many_mean_start == NULL;
+        return *skip ? NULL : level_means(f, index);
+    }
     if (which == MR__JS_COVARIANCE) return covariance(f, f->cov);
     if (which == MR__JS_ROBUST_COVARIANCE) return covariance(f, f->robust_cov);
     if (which == MR__JS_TERM_COLUMNS) return term_columns(f, base);
@@ -202,7 +216,7 @@ static json_t *value(const mr_fit *f, const mr__jfield *fl, const void *base, si
     *skip = 0;
     switch (fl->kind) {
     case MR__J_DERIVED: return derived(f, fl->which, base, index, skip);
-    case MR__J_SPECIAL: return special(f, fl->which, base);
+    case MR__J_SPECIAL: return special(f, fl->which, base, index, skip);
     case MR__J_OBJECT: return object(f, fl->sub, base, index);
     case MR__J_OBJECT_ADDED:
     case MR__J_OBJECT_OR_NULL: return *(const int *)(b + fl->count) ? object(f, fl->sub, base, index) : json_null();

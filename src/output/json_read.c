@@ -27,6 +27,7 @@ typedef struct reader {
     size_t cap;
     char where[512]; /* the field being read, e.g. model.terms[2].label */
     size_t len;
+    size_t mean_room; /* entries of fit->many_mean_col and _val */
 } reader;
 
 static mr_status say(reader *r, mr_status st, const char *fmt, ...) __attribute__((format(printf, 3, 4)));
@@ -353,6 +354,46 @@ static mr_status read_term_columns(reader *r, json_t *v, mr_fit *f, mr__fit_term
     return MR_OK;
 }
 
+/* The coefficient named by the JSON key `key` (escaped, json_text.h), at
+ * *col or after it; f->p when none is. */
+static mr_status find_coefficient(reader *r, const mr_fit *f, const char *key, size_t *col)
+{
+    char *name = NULL;
+    MR__TRY(unescape(r, key, strlen(key), &name));
+    while (*col < f->p && strcmp(f->name[*col], name) != 0) ++*col;
+    mr__free(name);
+    return MR_OK;
+}
+
+/* Level `index`'s weighted means (json.c, level_means): on every level or
+ * on none, a fit written before they were kept. */
+static mr_status read_level_means(reader *r, json_t *v, mr_fit *f, size_t index)
+{
+    const char *key;
+    json_t *value;
+    size_t col = 0, n;
+    if (index == 0 && v != NULL &&
+        (f->many_mean_start = mr__calloc(f->nmany + 1, sizeof *f->many_mean_start)) == NULL)
+        return no_memory(r);
+    if ((v != NULL) != (f->many_mean_start != NULL))
+        return bad(r, v != NULL ? "is given here but not on the first level" : "is missing (the first level has it)");
+    if (v == NULL) return MR_OK;
+    if (!json_is_object(v)) return bad(r, "should be an object");
+    n = f->many_mean_start[index];
+    json_object_foreach(v, key, value) {
+        size_t back = enter(r, key);
+        MR__TRY(find_coefficient(r, f, key, &col));
+        if (col == f->p) return bad(r, "should name a coefficient, in the coefficients' order");
+        if (!json_is_number(value)) return bad(r, "should be a number");
+        if (n == r->mean_room && mr__fit_grow_many_means(f, &r->mean_room) != MR_OK) return no_memory(r);
+        f->many_mean_col[n] = col++;
+        f->many_mean_val[n++] = json_number_value(value);
+        leave(r, back);
+    }
+    f->many_mean_start[index + 1] = n;
+    return MR_OK;
+}
+
 static mr_status read_value(reader *r, const mr__jfield *fl, json_t *v, void *base, size_t index)
 {
     mr_fit *f = r->fit;
@@ -361,6 +402,7 @@ static mr_status read_value(reader *r, const mr__jfield *fl, json_t *v, void *ba
         if (fl->which == MR__JS_MISSING) return read_missing(r, v, f);
         if (fl->which == MR__JS_COVARIANCE) return read_covariance(r, v, f, &f->cov);
         if (fl->which == MR__JS_ROBUST_COVARIANCE) return read_covariance(r, v, f, &f->robust_cov);
+        if (fl->which == MR__JS_LEVEL_MEANS) return read_level_means(r, v, f, index);
         return read_term_columns(r, v, f, base);
     case MR__J_OBJECT_OPTIONAL:
         *(int *)((char *)base + fl->count) = 1;
@@ -391,6 +433,11 @@ static mr_status read_object(reader *r, json_t *o, const mr__jfield *fields, voi
         back = enter(r, fl->key);
         if (v == NULL && fl->kind == MR__J_OBJECT_ADDED) v = json_null();
         if (v == NULL && fl->kind == MR__J_BOOL_ADDED) v = json_false();
+        if (v == NULL && fl->kind == MR__J_SPECIAL && fl->which == MR__JS_LEVEL_MEANS) {
+            MR__TRY(read_level_means(r, NULL, r->fit, index));
+            leave(r, back);
+            continue;
+        }
         if (v == NULL) return bad(r, "is missing");
         MR__TRY(read_value(r, fl, v, base, index));
         leave(r, back);
@@ -500,7 +547,7 @@ static mr_status readable(reader *r)
 mr_status mr_fit_read_json(const char *path, mr_fit **out, char *msg, size_t msgcap)
 {
     json_error_t e;
-    reader r = {path, NULL, msg, msgcap, "", 0};
+    reader r = {path, NULL, msg, msgcap, "", 0, 0};
     json_t *root;
     mr_status st;
     *out = NULL;

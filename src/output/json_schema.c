@@ -274,6 +274,7 @@ static const mr__jfield many_level_fields[] = {
     EACH("estimate", MR__J_REAL, many_beta),
     EACH("standard_error", MR__J_REAL, many_se),
     EACH("information", MR__J_REAL, many_info),
+    SPECIAL("weighted_means", MR__JS_LEVEL_MEANS),
     END,
 };
 

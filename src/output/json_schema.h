@@ -53,7 +53,10 @@ enum {
     MR__JS_MISSING, MR__JS_COVARIANCE, MR__JS_TERM_COLUMNS,
     MR__JD_TERM_TEST, /* a term's joint Wald test (fit/term_test.c), null without one */
     MR__JD_FAMILY_PARAM_NAME, /* the name of the family's own parameter */
-    MR__JS_ROBUST_COVARIANCE  /* the robust covariance, laid out as the covariance */
+    MR__JS_ROBUST_COVARIANCE, /* the robust covariance, laid out as the covariance */
+    MR__JS_LEVEL_MEANS        /* a `many` level's weighted means of the columns, by
+                                 coefficient name; added within format_version 3:
+                                 a level without them reads as a fit without any */
 };
 
 typedef struct mr__jfield {

@@ -29,7 +29,8 @@ values() {
 import json, sys
 js = json.load(open(sys.argv[1]), parse_float=str, parse_int=str)
 for c in js["coefficients"]: print(c["name"], c["estimate"], c["standard_error"])
-for l in js["many_factor"]["levels"]: print(l["level"], l["estimate"], l["standard_error"], l["information"])
+for l in js["many_factor"]["levels"]:
+    print(l["level"], l["estimate"], l["standard_error"], l["information"], l.get("weighted_means"))
 print(js["covariance"], js["fit"]["deviance"], js["fit"]["rank"])
 ' "$1"
 }
@@ -81,6 +82,45 @@ $bin score --quiet --threads 1 --fit "$tmp/base.json" --out "$tmp/s1.csv" "$tmp/
     $bin score --quiet --threads 3 --fit "$tmp/base.json" --out "$tmp/s3.csv" "$tmp/d.csv" 2>> "$tmp/s.err" &&
     cmp -s "$tmp/s1.csv" "$tmp/s3.csv" && [ "$(wc -l < "$tmp/s1.csv")" -eq 150001 ] &&
     ok "scored, the same bytes for 1 and 3 threads" || fail "scored" "$(cat "$tmp/s.err")"
+# a fit written before the levels kept their weighted column means (the
+# key left out of every level) still reads and scores: the same
+# predictions, its standard errors and intervals empty (but the reference
+# level's); the key on a later
+# level but not the first, or naming no coefficient: exit 4, the field named
+/usr/bin/python3 - "$tmp/base.json" "$tmp" <<'P'
+import json, sys
+js = json.load(open(sys.argv[1]))
+levels = js["many_factor"]["levels"]
+for l in levels: del l["weighted_means"]
+json.dump(js, open(sys.argv[2] + "/old.json", "w"), indent=2)
+levels[1]["weighted_means"] = {"intercept": 1}
+json.dump(js, open(sys.argv[2] + "/later.json", "w"), indent=2)
+del levels[1]["weighted_means"]
+for l in levels: l["weighted_means"] = {"intercept": 1}
+levels[2]["weighted_means"] = {"age": 50.0, "intercept": 1}
+json.dump(js, open(sys.argv[2] + "/order.json", "w"), indent=2)
+P
+$bin score --quiet --fit "$tmp/old.json" --out "$tmp/old.csv" "$tmp/d.csv" 2> "$tmp/old.err" &&
+    /usr/bin/python3 -c '
+import csv, sys
+a, b = list(csv.DictReader(open(sys.argv[1]))), list(csv.DictReader(open(sys.argv[2])))
+area = [r["area"] for r in csv.DictReader(open(sys.argv[3]))]
+wide = lambda r: (r["se_eta"], r["mean_low"], r["mean_high"])
+# the reference level: its rows never needed the means
+same = len(a) == len(b) == 150000 and all(
+    r["eta"] == s["eta"] and r["mean"] == s["mean"] and r["resid_deviance"] == s["resid_deviance"] and
+    (wide(r) == wide(s) if g == "A00000" else wide(r) == ("", "", "") != wide(s)) for r, s, g in zip(a, b, area))
+sys.exit(not same)' "$tmp/old.csv" "$tmp/s1.csv" "$tmp/d.csv" &&
+    ok "a fit without the levels' means: same predictions, standard errors empty" ||
+    fail "a fit without the levels' means" "$(cat "$tmp/old.err")"
+for bad in "later:many_factor.levels\\[1\\].weighted_means' is given here but not on the first level" \
+           "order:many_factor.levels\\[2\\].weighted_means.intercept' should name a coefficient, in the coefficients' order"; do
+    $bin score --quiet --fit "$tmp/${bad%%:*}.json" --out "$tmp/bad.csv" "$tmp/d.csv" > /dev/null 2> "$tmp/bad.err"
+    rc=$?
+    [ "$rc" -eq 4 ] && [ ! -e "$tmp/bad.csv" ] && grep -q "${bad#*:}" "$tmp/bad.err" &&
+        ok "levels' means damaged (${bad%%:*}): exit 4, the field named" ||
+        fail "levels' means damaged (${bad%%:*})" "exit $rc: $(cat "$tmp/bad.err")"
+done
 { head -n 1 "$tmp/d.csv"; echo "3,B00001,50,M,500"; } > "$tmp/new.csv"
 $bin score --quiet --fit "$tmp/base.json" --out "$tmp/new.out" "$tmp/new.csv" > /dev/null 2> "$tmp/new.err"
 rc=$?

@@ -18,7 +18,11 @@ complement instead of being columns of the design):
              standard errors, covariance of the other coefficients,
              deviance and rank to 1e-10 relative: a poisson rate model and
              a gaussian model with a second factor and a covariate constant
-             within the levels (aliased either way).
+             within the levels (aliased either way); and both fits score
+             their rows alike (predictions, standard errors, intervals,
+             residuals) to 1e-9;
+  reference: R's predict.glm(se.fit = TRUE) for the 500-level fit: every
+             row's linear predictor and its standard error, to 1e-8.
 Data simulated here with a fixed seed.  Prints "ok <case>" or "FAIL <case>:
 <details>" and "N passed, M failed"; exits 1 if anything failed.  The R case
 is skipped, saying so, without Rscript.
@@ -54,6 +58,9 @@ out <- file(args[2], "w")
 writeLines(sprintf("deviance %.17g", deviance(m)), out)
 for (k in seq_len(nrow(s))) writeLines(sprintf("%s %.17g %.17g", rownames(s)[k], s[k, 1], s[k, 2]), out)
 close(out)
+p <- predict(m, newdata = d, se.fit = TRUE)
+write.table(data.frame(eta = sprintf("%.17g", p$fit), se = sprintf("%.17g", p$se.fit)), args[3],
+            sep = ",", quote = FALSE, row.names = FALSE)
 """
 
 failures = []
@@ -154,7 +161,9 @@ def case_dense_poisson(tmp):
     many = fit(tmp, "p_many", base + ["factor area many", "factor sex"], data)
     dense = fit(tmp, "p_dense", base + ["factor area", "factor sex"], data)
     compare_dense("poisson rate model, 200 levels eliminated = as columns", many, dense, 1e-10)
-    compare_scores(tmp, data)
+    compare_scores(tmp, data, "p_many", "p_dense", "area",
+                   "poisson: scoring with 200 levels eliminated = with them as columns, standard errors and "
+                   "intervals too; O/E 1 by level")
 
 
 def score(tmp, name, extra=()):
@@ -166,36 +175,38 @@ def score(tmp, name, extra=()):
         return list(csv.DictReader(f))
 
 
-def compare_scores(tmp, data):
+def compare_scores(tmp, data, many_name, dense_name, by=None, case="scoring"):
     """A fit with the factor declared many scores as the dense fit does:
-    the linear predictor, mean and residuals to 1e-9 relative (oracle: the
-    dense fit's own scoring, whose prediction and residual formulas
-    tests/ref/score_samples.py checks against R's predict.glm and
-    residuals.glm); its standard errors and intervals are empty (the fit
-    keeps no covariance of a level with the rest).  Observed/expected by
-    the factor is 1 for every level to 1e-12: a Poisson log-link fit's score
-    equation for a level's indicator makes its observed and expected totals
-    equal (an analytic identity)."""
+    the linear predictor, its standard error, the mean and its interval and
+    the residuals, to 1e-9 relative (oracle: the dense fit's own scoring,
+    whose prediction and residual formulas tests/ref/score_samples.py
+    checks against R's predict.glm and residuals.glm).  The standard error
+    of a row in level l is sqrt((x - m_l)' V (x - m_l) + dispersion / d_l),
+    m_l the level's weighted column means (the block inverse in
+    solve/absorb.h), so this checks those means and that formula.  With
+    `by`, observed/expected by it is 1 for every level to 1e-12: a Poisson
+    log-link fit's score equation for a level's indicator makes its
+    observed and expected totals equal (an analytic identity)."""
     problems = []
-    by_out = os.path.join(tmp, "p_many.by.json")
-    many = score(tmp, "p_many", ["--by", "area", "--by-out", by_out, data])
-    dense = score(tmp, "p_dense", [data])
+    by_out = os.path.join(tmp, many_name + ".by.json")
+    many = score(tmp, many_name, (["--by", by, "--by-out", by_out] if by else []) + [data])
+    dense = score(tmp, dense_name, [data])
     for r, (a, b) in enumerate(zip(many, dense)):
-        for key in ("eta", "mean", "resid_response", "resid_pearson", "resid_deviance"):
-            if rel(float(a[key]), float(b[key])) > 1e-9:
+        for key in ("eta", "se_eta", "mean", "mean_low", "mean_high", "resid_response", "resid_pearson",
+                    "resid_deviance"):
+            if not a[key] or rel(float(a[key]), float(b[key])) > 1e-9:
                 problems.append("row %d %s %s, dense %s" % (r + 1, key, a[key], b[key]))
-        if a["se_eta"] or a["mean_low"] or a["mean_high"]:
-            problems.append("row %d: a standard error or interval written" % (r + 1))
     if len(many) != len(dense):
         problems.append("%d rows scored, dense %d" % (len(many), len(dense)))
-    with open(by_out) as f:
-        groups = json.load(f)["groups"]
-    for g in groups:
-        if abs(g["observed"] / g["expected"] - 1) > 1e-12:
-            problems.append("area %s O/E %.17g" % (g["key"]["area"], g["observed"] / g["expected"]))
-    if len(groups) != 200:
-        problems.append("%d groups, not 200" % len(groups))
-    report("scoring with 200 levels eliminated = with them as columns; O/E 1 by level", problems[:10])
+    if by:
+        with open(by_out) as f:
+            groups = json.load(f)["groups"]
+        for g in groups:
+            if abs(g["observed"] / g["expected"] - 1) > 1e-12:
+                problems.append("area %s O/E %.17g" % (g["key"]["area"], g["observed"] / g["expected"]))
+        if len(groups) != 200:
+            problems.append("%d groups, not 200" % len(groups))
+    report(case, problems[:10])
 
 
 def case_dense_gaussian(tmp):
@@ -220,6 +231,8 @@ def case_dense_gaussian(tmp):
     else:
         compare_dense("gaussian, a second factor and an aliased covariate, eliminated = as columns", many, dense,
                       1e-10)
+        compare_scores(tmp, data, "g_many", "g_dense", None,
+                       "gaussian (dispersion estimated, a column aliased): scoring eliminated = as columns")
 
 
 def case_r(tmp):
@@ -234,7 +247,8 @@ def case_r(tmp):
     out = os.path.join(tmp, "glm.txt")
     with open(prog, "w") as f:
         f.write(R_PROGRAM)
-    subprocess.run([RSCRIPT, "--vanilla", prog, data, out], check=True, stdout=subprocess.DEVNULL)
+    pred = os.path.join(tmp, "glm_pred.csv")
+    subprocess.run([RSCRIPT, "--vanilla", prog, data, out, pred], check=True, stdout=subprocess.DEVNULL)
     ref = {}
     with open(out) as f:
         for line in f:
@@ -259,6 +273,19 @@ def case_r(tmp):
     if rel(many["fit"]["deviance"], ref["deviance"][0]) > 1e-8:
         problems.append("deviance %.17g, R %.17g" % (many["fit"]["deviance"], ref["deviance"][0]))
     report("poisson rate model, 500 levels, against R glm", problems)
+    # predict.glm(se.fit = TRUE) on the fit's own rows: the linear predictor
+    # (offset included) and its standard error, every row
+    problems = []
+    with open(pred) as f:
+        r_rows = list(csv.DictReader(f))
+    rows = score(tmp, "r_many", [data])
+    for i, (a, b) in enumerate(zip(rows, r_rows)):
+        if rel(float(a["eta"]), float(b["eta"])) > 1e-8 or rel(float(a["se_eta"]), float(b["se"])) > 1e-8:
+            problems.append("row %d eta %s (%s), R %s (%s)" % (i + 1, a["eta"], a["se_eta"], b["eta"], b["se"]))
+    if len(rows) != len(r_rows):
+        problems.append("%d rows, R %d" % (len(rows), len(r_rows)))
+    report("poisson rate model, 500 levels: predictions and standard errors against R predict.glm(se.fit = TRUE)",
+           problems[:10])
 
 
 def main():
