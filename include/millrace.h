@@ -232,7 +232,17 @@ typedef enum mr_int_option {
                                 mr_fitter_checkpoint_remove once its
                                 outputs are in place (default 0: the run
                                 removes it; a profile's fits, one per
-                                value, remove theirs either way) */
+                                value, remove theirs either way) */,
+    MR_OPT_MANY_MEANS = 9     /* 1: a fit with a factor declared `many`
+                                keeps each level's IRLS-weighted means of
+                                the other columns (the JSON's
+                                weighted_means), which scoring needs for
+                                the standard errors and intervals of that
+                                level's rows; they cost a number per level
+                                and column its rows meet (10^5 levels
+                                meeting 29 columns each: about 80 MB more
+                                JSON, and the memory to write and read it).
+                                Default 0: such rows score without them */
 } mr_int_option;
 
 /* Real-valued options. */
@@ -821,9 +831,9 @@ MR_API mr_status mr_drift_write_csv(const mr_drift *d, const char *path, const c
  *              level l other than the reference
  *              sqrt((x - m_l)' V (x - m_l) + dispersion / information_l),
  *              m_l the level's IRLS-weighted means of the columns that the
- *              fit keeps (its JSON's weighted_means); empty, as are
- *              mean_low and mean_high, for a fit read from a JSON written
- *              before it kept them
+ *              fit keeps when asked (MR_OPT_MANY_MEANS: its JSON's
+ *              weighted_means); without them empty, as are mean_low and
+ *              mean_high, outside the reference level
  *   mean       the inverse link of eta (binomial: the probability)
  *   mean_low, mean_high   the inverse link of eta -+ z se_eta, z the
  *              normal quantile of the level (mr_scorer_set_level)

@@ -25,6 +25,7 @@ const struct option cli_fit_options[] = {
     CLI_RUN_OPTIONS
     {"start-from", required_argument, NULL, OPT_START_FROM},
     {"robust", required_argument, NULL, OPT_ROBUST},
+    {"many-means", no_argument, NULL, OPT_MANY_MEANS},
     {"cluster", required_argument, NULL, OPT_CLUSTER},
     {"cluster-memory", required_argument, NULL, OPT_CLUSTER_MEMORY},
     {"json", required_argument, NULL, OPT_JSON},
@@ -187,6 +188,7 @@ int cli_fit_option(void *ctx, int opt, const char *arg)
     case OPT_ROBUST:
     case OPT_CLUSTER:
     case OPT_CLUSTER_MEMORY: return cli_next(set_robust(c, opt, arg));
+    case OPT_MANY_MEANS: mr_fitter_set_int(c->fitter, MR_OPT_MANY_MEANS, 1); return CLI_NEXT;
     case OPT_JSON: c->json_path = arg; return CLI_NEXT;
     case OPT_RUN_LOG: c->run_log = arg; return CLI_NEXT;
     case OPT_CHECKPOINT:

@@ -36,6 +36,7 @@ const char cli_usage_text[] =
     "  --on-bad-row fail|skip  --start-from FIT.json (start from a previous fit of the same model)\n"
     "  --robust hc0|hc1  --cluster COL  --cluster-memory MB (robust standard errors, by rows or clusters)\n"
     "  --checkpoint PATH (state after each pass; a rerun of a killed fit goes on from it)\n"
+    "  --many-means (keep a `many` factor's level means: its rows' standard errors when scored)\n"
     "output:\n"
     "  --json PATH  --run-log FILE (a line appended per run)  --quiet  --progress (lines, for logs)\n"
     "  --digits N\n"

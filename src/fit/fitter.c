@@ -97,6 +97,9 @@ mr_status mr_fitter_set_int(mr_fitter *f, mr_int_option opt, long long v)
     case MR_OPT_KEEP_CHECKPOINT:
         f->checkpoint_keep = v != 0;
         return MR_OK;
+    case MR_OPT_MANY_MEANS:
+        f->many_means = v != 0;
+        return MR_OK;
     case MR_OPT_DELIMITER:
         if (v != 0 && v != ',' && v != '\t' && v != ';') return out_of_range(f, "delimiter (comma, tab or semicolon)");
         f->delimiter = (int)v;

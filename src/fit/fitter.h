@@ -26,6 +26,7 @@ struct mr_fitter {
     size_t cluster_memory;   /* bytes its bookkeeping may take */
     char *checkpoint;        /* mr_fitter_set_checkpoint's copy; NULL: none */
     char checkpoint_note[MR__MSG_CAP + 256]; /* what the last run did with it */
+    int many_means;          /* MR_OPT_MANY_MEANS */
     int checkpoint_keep;     /* MR_OPT_KEEP_CHECKPOINT: the checkpoint outlives a fit that succeeded */
     struct mr_share *share;  /* mr_fitter_set_share's, borrowed; NULL: none (fit/share.h) */
 };

@@ -169,7 +169,7 @@ mr_status mr__many_solve(mr_fit *fit, const mr__run *r, double *cov_s, mr__error
         }
     }
     mr__absorb_solution_release(&sol);
-    return st == MR_OK ? level_means(fit, d, t, err) : st;
+    return st == MR_OK && r->f->many_means ? level_means(fit, d, t, err) : st;
 }
 
 void mr__many_scale(mr_fit *fit)

@@ -35,7 +35,9 @@ print(js["covariance"], js["fit"]["deviance"], js["fit"]["rank"])
 ' "$1"
 }
 
-if $bin fit --quiet -m "$tmp/m.model" --threads 1 --json "$tmp/base.json" "$tmp/d.csv" > "$tmp/report.txt"; then
+# --many-means: each level's weighted column means kept, and compared
+# with the rest (tests/ref/many_factor.py checks what scoring makes of them)
+if $bin fit --quiet -m "$tmp/m.model" --threads 1 --many-means --json "$tmp/base.json" "$tmp/d.csv" > "$tmp/report.txt"; then
     values "$tmp/base.json" > "$tmp/base.values"
     ok "fit"
 else
@@ -44,7 +46,7 @@ fi
 for opts in "--threads 2" "--threads 2 --no-cache --buffer-size 65536" "--threads 2 --in-memory" \
             "--threads 2 --no-collapse" "--threads 1 --no-cache"; do
     # shellcheck disable=SC2086
-    if $bin fit --quiet -m "$tmp/m.model" $opts --json "$tmp/o.json" "$tmp/d.csv" > /dev/null &&
+    if $bin fit --quiet -m "$tmp/m.model" $opts --many-means --json "$tmp/o.json" "$tmp/d.csv" > /dev/null &&
        values "$tmp/o.json" | cmp -s - "$tmp/base.values"; then
         ok "same bits: $opts"
     else
@@ -82,8 +84,9 @@ $bin score --quiet --threads 1 --fit "$tmp/base.json" --out "$tmp/s1.csv" "$tmp/
     $bin score --quiet --threads 3 --fit "$tmp/base.json" --out "$tmp/s3.csv" "$tmp/d.csv" 2>> "$tmp/s.err" &&
     cmp -s "$tmp/s1.csv" "$tmp/s3.csv" && [ "$(wc -l < "$tmp/s1.csv")" -eq 150001 ] &&
     ok "scored, the same bytes for 1 and 3 threads" || fail "scored" "$(cat "$tmp/s.err")"
-# a fit written before the levels kept their weighted column means (the
-# key left out of every level) still reads and scores: the same
+# without --many-means the levels keep no means (the JSON has no
+# weighted_means); such a fit, or one written before they could be kept,
+# still reads and scores: the same
 # predictions, its standard errors and intervals empty (but the reference
 # level's); the key on a later
 # level but not the first, or naming no coefficient: exit 4, the field named
@@ -100,6 +103,9 @@ for l in levels: l["weighted_means"] = {"intercept": 1}
 levels[2]["weighted_means"] = {"age": 50.0, "intercept": 1}
 json.dump(js, open(sys.argv[2] + "/order.json", "w"), indent=2)
 P
+$bin fit --quiet -m "$tmp/m.model" --json "$tmp/plain.json" "$tmp/d.csv" > /dev/null &&
+    ! grep -q weighted_means "$tmp/plain.json" && ok "without --many-means: no level means" ||
+    fail "without --many-means" "weighted_means written"
 $bin score --quiet --fit "$tmp/old.json" --out "$tmp/old.csv" "$tmp/d.csv" 2> "$tmp/old.err" &&
     /usr/bin/python3 -c '
 import csv, sys

@@ -158,7 +158,7 @@ def case_dense_poisson(tmp):
     data = os.path.join(tmp, "p200.csv")
     poisson_data(data, 200, 6000, 3)
     base = ["outcome y", "family poisson", "exposure py", "numeric age"]
-    many = fit(tmp, "p_many", base + ["factor area many", "factor sex"], data)
+    many = fit(tmp, "p_many", base + ["factor area many", "factor sex"], data, ["--many-means"])
     dense = fit(tmp, "p_dense", base + ["factor area", "factor sex"], data)
     compare_dense("poisson rate model, 200 levels eliminated = as columns", many, dense, 1e-10)
     compare_scores(tmp, data, "p_many", "p_dense", "area",
@@ -223,7 +223,8 @@ def case_dense_gaussian(tmp):
         for i in range(rows):
             f.write("%.6f,r%03d,%.4f,%.5f,%s\n" % (y[i], area[i], size[area[i]], x[i], grp[i]))
     base = ["outcome y", "family gaussian"]
-    many = fit(tmp, "g_many", base + ["factor area many", "numeric x", "factor grp", "numeric size"], data)
+    many = fit(tmp, "g_many", base + ["factor area many", "numeric x", "factor grp", "numeric size"], data,
+               ["--many-means"])
     dense = fit(tmp, "g_dense", base + ["factor area", "numeric x", "factor grp", "numeric size"], data)
     problems = [] if by_name(many)["size"]["aliased"] else ["size (constant within levels) not aliased"]
     if problems:
@@ -242,7 +243,7 @@ def case_r(tmp):
     data = os.path.join(tmp, "p500.csv")
     poisson_data(data, 500, 2500, 7)
     many = fit(tmp, "r_many", ["outcome y", "family poisson", "exposure py", "numeric age", "factor area many",
-                               "factor sex"], data)
+                               "factor sex"], data, ["--many-means"])
     prog = os.path.join(tmp, "glm.R")
     out = os.path.join(tmp, "glm.txt")
     with open(prog, "w") as f:
