@@ -14,6 +14,8 @@
 
 #include "common/alloc.h"
 #include "common/clock.h"
+#include "common/outfile.h"
+#include "common/strbuf.h"
 #include "common/error.h"
 #include "family/family.h"
 #include "fit/fit.h"
@@ -228,6 +230,7 @@ static json_t *value(const mr_fit *f, const mr__jfield *fl, const void *base, si
     case MR__J_RECORDS:
     case MR__J_STRUCTS:
     case MR__J_KEYED: return array_of(f, fl, base);
+    case MR__J_RECORDS_APART: return json_array(); /* its records come apart: mr_fit_write_json */
     default: return scalar(fl, mr__jfield_slot(fl, base, index));
     }
 }
@@ -248,14 +251,95 @@ static json_t *object(const mr_fit *f, const mr__jfield *fields, const void *bas
     return o;
 }
 
+/* The `many` levels, up to 10^6 of them, are written one at a time into
+ * the rest of the document, which is dumped with their array empty: a
+ * jansson tree of them all took 630 MB at 10^6 levels (the fit itself 380).
+ * The rest's dump is cut where that array stands, the depth-2 key
+ * `levels` of `many_factor` (the only one: json_schema.h); each level is
+ * dumped alone and indented as the whole tree's dump indents it, so the
+ * bytes are the tree's. */
+static const char apart_after[] = "\n \"many_factor\": {", apart_at[] = "\n  \"levels\": [";
+#define APART_DEPTH 2
+
+static mr_status put_text(mr__outfile *out, const char *p, size_t n, mr__error *err)
+{
+    return mr__outfile_write(out, p, n, err);
+}
+
+/* A level alone, its lines indented for its place in the array. */
+static mr_status put_level(const mr_fit *f, size_t k, mr__outfile *out, mr__strbuf *b, mr__error *err)
+{
+    json_t *o = object(f, mr__json_many_level_fields, f, k);
+    char *text = o != NULL ? json_dumps(o, MR__JSON_FILE_FLAGS) : NULL;
+    const char *p;
+    json_decref(o);
+    if (text == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory writing the JSON");
+    b->len = 0;
+    mr__strbuf_append(b, k > 0 ? ",\n" : "\n", k > 0 ? 2 : 1);
+    mr__strbuf_append(b, "    ", APART_DEPTH + 1);
+    for (p = text; *p != '\0'; p++) {
+        mr__strbuf_append(b, p, 1);
+        if (*p == '\n') mr__strbuf_append(b, "    ", APART_DEPTH + 1);
+    }
+    free(text);
+    if (b->failed) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory writing the JSON");
+    return put_text(out, b->data, b->len, err);
+}
+
+static mr_status put_levels(const mr_fit *f, mr__outfile *out, mr__error *err)
+{
+    mr__strbuf b;
+    size_t k;
+    mr_status st = MR_OK;
+    mr__strbuf_init(&b);
+    for (k = 0; st == MR_OK && k < f->nmany; k++) st = put_level(f, k, out, &b, err);
+    mr__strbuf_release(&b);
+    /* the array's close on a line of its own at its depth (none when empty: "[]") */
+    if (st == MR_OK && f->nmany > 0) st = put_text(out, "\n    ", 1 + APART_DEPTH, err);
+    return st;
+}
+
+/* Where the rest's text is cut: just after the empty array's '[' (NULL
+ * for a fit without the factor). */
+static mr_status split_rest(const mr_fit *f, const char *text, const char **cut, mr__error *err)
+{
+    const char *after = f->many_given ? strstr(text, apart_after) : NULL;
+    *cut = after != NULL ? strstr(after, apart_at) : NULL;
+    if (f->many_given && (*cut == NULL || (*cut)[sizeof apart_at - 1] != ']'))
+        return mr__fail(err, MR_ERR_INTERNAL, "the JSON's many_factor levels were not where expected");
+    if (*cut != NULL) *cut += sizeof apart_at - 1;
+    return MR_OK;
+}
+
+static mr_status write_document(const mr_fit *fit, json_t *root, mr__outfile *out, mr__error *err)
+{
+    char *text = json_dumps(root, MR__JSON_FILE_FLAGS);
+    const char *cut = NULL;
+    mr_status st = text != NULL ? split_rest(fit, text, &cut, err)
+                                : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory writing the JSON");
+    if (st == MR_OK && cut == NULL) st = put_text(out, text, strlen(text), err);
+    if (st == MR_OK && cut != NULL) {
+        st = put_text(out, text, (size_t)(cut - text), err);
+        if (st == MR_OK) st = put_levels(fit, out, err);
+        if (st == MR_OK) st = put_text(out, cut, strlen(cut), err);
+    }
+    if (st == MR_OK) st = put_text(out, "\n", 1, err);
+    free(text);
+    return st;
+}
+
 mr_status mr_fit_write_json(const mr_fit *fit, const char *path, char *msg, size_t msgcap)
 {
     json_t *root = object(fit, mr__json_fit_fields, fit, 0);
     const char *input = strcmp(fit->path, "<stdin>") == 0 ? "-" : fit->path;
+    mr__outfile *out = NULL;
     mr__error err;
     mr__error_clear(&err);
     if (root == NULL) mr__fail(&err, MR_ERR_NO_MEMORY, "%s: out of memory building the JSON", path);
-    else mr__json_write_file(root, path, &input, 1, &err);
+    else if (mr__outfile_open(&out, path, &input, 1, &err) == MR_OK) {
+        if (write_document(fit, root, out, &err) == MR_OK) mr__outfile_commit(out, &err);
+        else mr__outfile_abort(out);
+    }
     json_decref(root);
     mr__error_export(&err, msg, msgcap);
     return err.status;

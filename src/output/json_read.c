@@ -417,7 +417,8 @@ static mr_status read_value(reader *r, const mr__jfield *fl, json_t *v, void *ba
     case MR__J_REALS:
     case MR__J_STRUCTS: return read_list(r, fl, v, base);
     case MR__J_KEYED: return read_keyed(r, fl, v, base);
-    case MR__J_RECORDS: return read_records(r, fl, v, base);
+    case MR__J_RECORDS:
+    case MR__J_RECORDS_APART: return read_records(r, fl, v, base);
     default: return read_scalar(r, fl, v, mr__jfield_slot(fl, base, index));
     }
 }

@@ -269,7 +269,7 @@ static const mr__jfield run_fields[] = {
 /* The factor declared `many`: its levels other than the reference, which
  * are not among the coefficients and not in the covariance.  Written only
  * for such a fit, so that others keep their bytes. */
-static const mr__jfield many_level_fields[] = {
+const mr__jfield mr__json_many_level_fields[] = {
     EACH("level", MR__J_TEXT, many_level),
     EACH("estimate", MR__J_REAL, many_beta),
     EACH("standard_error", MR__J_REAL, many_se),
@@ -281,7 +281,7 @@ static const mr__jfield many_level_fields[] = {
 static const mr__jfield many_fields[] = {
     F("factor", MR__J_TEXT, many_factor),
     F("reference", MR__J_TEXT, many_reference),
-    {"levels", MR__J_RECORDS, 0, AT(nmany), 0, 0, 0, 0, NULL, NULL, many_level_fields},
+    {"levels", MR__J_RECORDS_APART, 0, AT(nmany), 0, 0, 0, 0, NULL, NULL, mr__json_many_level_fields},
     END,
 };
 

@@ -38,6 +38,9 @@ typedef enum mr__jkind {
     MR__J_OBJECT_ADDED,  /* as OBJECT_OR_NULL, added within a format_version:
                             absent in older files, and read as null there */
     MR__J_RECORDS,       /* an array of `count` objects of the indexed fields `sub` */
+    MR__J_RECORDS_APART, /* as RECORDS, written one record at a time into the
+                            rest of the document (json.c: a `many` factor's
+                            up to 10^6 levels); at most one, at depth 2 */
     MR__J_STRUCTS,       /* an array of `count` structs of `size` bytes at `at`, each the fields `sub` */
     MR__J_KEYED,         /* as STRUCTS, as an object keyed by each struct's text at `key_at` */
     MR__J_DERIVED,       /* written from other fields (`which`), never read */
@@ -70,6 +73,8 @@ typedef struct mr__jfield {
 
 /* The whole fit, from "format" to "warnings". */
 extern const mr__jfield mr__json_fit_fields[];
+/* A `many` level's fields (the records of the one MR__J_RECORDS_APART). */
+extern const mr__jfield mr__json_many_level_fields[];
 
 /* Bytes of one element of an indexed field of this kind. */
 size_t mr__jfield_unit(mr__jkind kind);

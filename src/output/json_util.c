@@ -41,7 +41,7 @@ static int to_outfile(const char *buf, size_t size, void *data)
 mr_status mr__json_write_file(json_t *root, const char *path, const char *const *inputs, size_t ninputs,
                               mr__error *err)
 {
-    const size_t flags = JSON_INDENT(1) | JSON_REAL_PRECISION(17) | JSON_PRESERVE_ORDER;
+    const size_t flags = MR__JSON_FILE_FLAGS;
     json_sink sink = {NULL, err};
     MR__TRY(mr__outfile_open(&sink.out, path, inputs, ninputs, err));
     if (json_dump_callback(root, to_outfile, &sink, flags) != 0 || to_outfile("\n", 1, &sink) != 0) {

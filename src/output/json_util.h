@@ -18,6 +18,10 @@ json_t *mr__json_put(json_t *o, const char *key, json_t *v);
 /* A number; NaN and infinities have no JSON spelling and become null. */
 json_t *mr__json_num(double x);
 
+/* How the fit's JSON is laid out: one space a level, 17 significant
+ * digits, keys in their order. */
+#define MR__JSON_FILE_FLAGS (JSON_INDENT(1) | JSON_REAL_PRECISION(17) | JSON_PRESERVE_ORDER)
+
 /* Writes root, indented, with 17 significant digits, to `path` through
  * common/outfile.c (atomically, checked against `inputs`). */
 mr_status mr__json_write_file(json_t *root, const char *path, const char *const *inputs, size_t ninputs,

@@ -55,6 +55,18 @@ for opts in "--threads 2" "--threads 2 --no-cache --buffer-size 65536" "--thread
 done
 grep -q "factor area (many): 2999 levels besides the reference A00000" "$tmp/report.txt" &&
     grep -q "tiny information" "$tmp/report.txt" && ok "report summary" || fail "report summary" "missing"
+# The levels are written one at a time into the rest of the document
+# (output/json.c); the file must be laid out as one whole dump: the same
+# text as Python's json.dumps(indent=1) of what it parses to, numbers
+# compared as doubles (oracle: Python's json module)
+/usr/bin/python3 - "$tmp/base.json" <<'P' && ok "the levels written apart: laid out as one document" ||
+import json, re, sys
+num = re.compile(r'-?\d+(\.\d+)?([eE][-+]?\d+)?')
+norm = lambda t: num.sub(lambda m: repr(float(m.group())), t)
+text = open(sys.argv[1]).read()
+sys.exit(norm(text) != norm(json.dumps(json.loads(text), indent=1, ensure_ascii=False) + "\n"))
+P
+    fail "the levels written apart" "laid out otherwise than one document"
 $bin show "$tmp/base.json" > "$tmp/show.txt" && grep -q "factor area (many)" "$tmp/show.txt" &&
     ok "show reads it back" || fail "show reads it back" "no summary"
 
