@@ -127,10 +127,11 @@ MR_API const char *mr_strerror(mr_status status);
  *                     series at the dispersion deviance / sum of weights,
  *                     which AIC and BIC count; NaN when the fit stopped
  *                     before its steps were small; rows never collapse;
- *                     "power=profile" fits each power 1.1, 1.2, ..., 1.9
- *                     one after another and returns the fit of the
+ *                     "power=profile" fits each power 1.1, 1.2, ..., 1.9,
+ *                     all from one read of the input (their first pass
+ *                     shared; no checkpoint), and returns the fit of the
  *                     largest log-likelihood, whose AIC and BIC count the
- *                     power: a file, not standard input)
+ *                     power)
  * Binomial, poisson and negative binomial with "dispersion estimate" are
  * quasi families, without a likelihood: MR_STAT_LOG_LIKELIHOOD,
  * MR_STAT_AIC and MR_STAT_BIC are NaN for them too (and a negative

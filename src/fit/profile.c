@@ -1,17 +1,21 @@
 /* profile.c - a family's parameter chosen by profile likelihood (a Tweedie
- * power=profile): one whole fit for each value of the family's grid, one
- * after another, each reading the data as any fit does; the fit of the
- * largest log-likelihood is the answer, carrying the grid's values and
- * their log-likelihoods, and its AIC and BIC count the parameter.  Fitting
- * every value in one read is other work; this costs the grid's size in
- * fits. */
+ * power=profile): a fit for each value of the family's grid, all of them
+ * from one read of the data (their first pass shared, fit/multi.h; each
+ * then goes on over its own cache), the fit of the largest
+ * log-likelihood the answer, carrying the grid's values and their
+ * log-likelihoods; its AIC and BIC count the parameter. */
 #include <math.h>
+#include <stdio.h>
 #include <string.h>
 
 #include "common/alloc.h"
 #include "family/family.h"
 #include "fit/fit.h"
 #include "fit/fitter.h"
+#include "fit/multi.h"
+
+/* Values a grid may have. */
+#define MR__PROFILE_MAX 64
 
 /* The chosen fit takes the profile; the parameter counts in AIC and BIC. */
 static mr_status record_profile(mr_fit *best, const mr__family_ops *ops, const double *loglik, mr__error *err)
@@ -30,15 +34,45 @@ static mr_status record_profile(mr_fit *best, const mr__family_ops *ops, const d
     return MR_OK;
 }
 
-/* Fits at each value; *best the one of the largest log-likelihood (a fit
- * without one, NaN, is never chosen), the others freed. */
-static mr_status fit_grid(mr_fitter *f, const char *path, const mr__family_ops *ops, double *loglik, mr_fit **best)
+/* The grid's fitters: f's settings, each with its own copy of the model
+ * at its value (as compare's drop-one models are made), none checkpointed:
+ * the runs go side by side, and one path cannot hold their states. */
+static mr_status grid_fitters(mr_fitter *f, const mr__family_ops *ops, mr_fitter **g)
 {
     int i;
     for (i = 0; i < ops->profile_n; i++) {
-        mr_fit *fit = NULL;
-        f->spec.family_param = ops->profile_grid[i];
-        MR__TRY(mr__fit_file(f, path, &fit));
+        if ((g[i] = mr__malloc(sizeof *g[i])) == NULL) return mr__fail(&f->err, MR_ERR_NO_MEMORY, "out of memory");
+        *g[i] = *f;
+        g[i]->checkpoint = NULL;
+        mr__error_clear(&g[i]->err);
+        if (mr__spec_copy(&g[i]->spec, &f->spec, &f->err) != MR_OK) {
+            mr__free(g[i]);
+            g[i] = NULL;
+            return f->err.status;
+        }
+        g[i]->spec.family_profile = 0;
+        g[i]->spec.family_param = ops->profile_grid[i];
+    }
+    return MR_OK;
+}
+
+static void release_fitters(mr_fitter **g, int n)
+{
+    int i;
+    for (i = 0; i < n; i++) {
+        if (g[i] == NULL) continue;
+        mr__spec_release(&g[i]->spec);
+        mr__free(g[i]);
+    }
+}
+
+/* *best the fit of the largest log-likelihood (a fit without one, NaN, is
+ * never chosen), the others freed. */
+static void choose(mr_fit **fits, int n, double *loglik, mr_fit **best)
+{
+    int i;
+    for (i = 0; i < n; i++) {
+        mr_fit *fit = fits[i];
         loglik[i] = fit->loglik;
         if (*best == NULL || (isnan((*best)->loglik) && !isnan(fit->loglik)) || fit->loglik > (*best)->loglik) {
             mr_fit_free(*best);
@@ -46,33 +80,40 @@ static mr_status fit_grid(mr_fitter *f, const char *path, const mr__family_ops *
         } else {
             mr_fit_free(fit);
         }
+        fits[i] = NULL;
     }
-    return MR_OK;
+}
+
+/* Every value fitted from one read of the data (fit/multi.h): each run's
+ * own passes after it, the same bits as that value's fit alone. */
+static mr_status fit_grid(mr_fitter *f, const char *path, const mr__family_ops *ops, double *loglik, mr_fit **best)
+{
+    mr_fitter *g[MR__PROFILE_MAX] = {NULL};
+    mr_fit *fits[MR__PROFILE_MAX] = {NULL};
+    size_t failed;
+    mr_status st = grid_fitters(f, ops, g);
+    if (st == MR_OK) {
+        st = mr__fit_shared(g, (size_t)ops->profile_n, path, fits, &failed);
+        if (st != MR_OK) f->err = g[failed < (size_t)ops->profile_n ? failed : 0]->err;
+    }
+    if (st == MR_OK) choose(fits, ops->profile_n, loglik, best);
+    release_fitters(g, ops->profile_n);
+    return st;
 }
 
 mr_status mr__fit_profile(mr_fitter *f, const char *path, mr_fit **out)
 {
     const mr__family_ops *ops = mr__family_ops_of((mr_family)f->spec.family);
-    double loglik[64];
+    double loglik[MR__PROFILE_MAX];
     mr_fit *best = NULL;
     mr_status st;
-    int keep;
-    if (ops == NULL || ops->profile_grid == NULL || ops->profile_n > 64)
+    if (ops == NULL || ops->profile_grid == NULL || ops->profile_n > MR__PROFILE_MAX)
         return mr__fail(&f->err, MR_ERR_INTERNAL, "no grid to profile the family's parameter over");
-    if (strcmp(path, "-") == 0)
-        return mr__fail(&f->err, MR_ERR_USAGE,
-                        "<stdin>: %s=profile fits the data once for each %s, so it needs a file to read again, not "
-                        "standard input",
-                        ops->param_name, ops->param_name);
-    f->spec.family_profile = 0;
-    /* each value's fit has a checkpoint of its own, which the next value's
-     * could not take up: it goes as that fit ends, kept or not */
-    keep = f->checkpoint_keep;
-    f->checkpoint_keep = 0;
+    if (f->checkpoint != NULL)
+        snprintf(f->checkpoint_note, sizeof f->checkpoint_note,
+                 "checkpoint %s: not written: the %s profile's fits run side by side from one read", f->checkpoint,
+                 ops->param_name);
     st = fit_grid(f, path, ops, loglik, &best);
-    f->checkpoint_keep = keep;
-    f->spec.family_profile = 1;
-    f->spec.family_param = NAN;
     if (st == MR_OK) st = record_profile(best, ops, loglik, &f->err);
     if (st != MR_OK) {
         mr_fit_free(best);
