@@ -135,11 +135,7 @@ static char *term_label(const mr__spec *s, size_t t)
 static void free_reduced(reduced *rd, size_t n)
 {
     size_t i;
-    for (i = 0; rd && i < n; i++) {
-        if (rd[i].fitter == NULL) continue;
-        mr__spec_release(&rd[i].fitter->spec);
-        mr__free(rd[i].fitter);
-    }
+    for (i = 0; rd && i < n; i++) mr__fitter_twin_free(rd[i].fitter);
     mr__free(rd);
 }
 
@@ -155,22 +151,15 @@ static mr_status reduce(mr_comparison *c, size_t m, size_t t, reduced *out)
     test->pub.term = test->term;
     out->model = m;
     out->test = c->ntests - 1;
-    if ((g = mr__malloc(sizeof *g)) == NULL) return mr__fail(&c->err, MR_ERR_NO_MEMORY, "out of memory");
-    *g = *f;
+    if ((g = mr__fitter_twin(f, &c->err)) == NULL) return c->err.status;
     g->start = NULL;
-    mr__error_clear(&g->err);
-    if (mr__spec_copy(&g->spec, &f->spec, &c->err) != MR_OK) {
-        mr__free(g);
-        return c->err.status;
-    }
     out->fitter = g;
     (void)mr__spec_drop_term(&g->spec, t);
     if (mr__spec_validate(&g->spec, &g->err) != MR_OK) {
         char note[256];
         snprintf(note, sizeof note, "not fitted: %.200s", g->err.msg);
         mr__cmp_test_blank(test, note);
-        mr__spec_release(&g->spec);
-        mr__free(g);
+        mr__fitter_twin_free(g);
         out->fitter = NULL;
     }
     return MR_OK;

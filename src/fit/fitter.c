@@ -173,6 +173,29 @@ mr_status mr_fitter_set_checkpoint(mr_fitter *f, const char *path)
     return MR_OK;
 }
 
+mr_fitter *mr__fitter_twin(const mr_fitter *f, mr__error *err)
+{
+    mr_fitter *g = mr__malloc(sizeof *g);
+    if (g == NULL) {
+        mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        return NULL;
+    }
+    *g = *f;
+    mr__error_clear(&g->err);
+    if (mr__spec_copy(&g->spec, &f->spec, err) != MR_OK) {
+        mr__free(g);
+        return NULL;
+    }
+    return g;
+}
+
+void mr__fitter_twin_free(mr_fitter *g)
+{
+    if (g == NULL) return;
+    mr__spec_release(&g->spec);
+    mr__free(g);
+}
+
 const char *mr_fitter_checkpoint_note(const mr_fitter *f) { return f->checkpoint_note; }
 
 /* The audit trail: who asked (the command line), on which machine, from

@@ -39,6 +39,14 @@ int mr__robust_type(const mr_fitter *f);
  * start (started_ns, wall clock) and end.  MR_OK or MR_ERR_NO_MEMORY. */
 mr_status mr__fitter_record_run(const mr_fitter *f, mr_fit *fit, int64_t started_ns, mr__error *err);
 
+/* A fitter of f's settings with a copy of its model of its own, for a
+ * model fitted beside f's (compare's drop-one models, a profile's
+ * values): f's other pointers are borrowed, so it goes with
+ * mr__fitter_twin_free, never mr_fitter_free.  NULL when out of memory
+ * (err says so). */
+mr_fitter *mr__fitter_twin(const mr_fitter *f, mr__error *err);
+void mr__fitter_twin_free(mr_fitter *g);
+
 /* The fit itself (run.c). */
 mr_status mr__fit_file(mr_fitter *f, const char *path, mr_fit **out);
 /* Several files (or directories) read as one (input/inputset.h). */

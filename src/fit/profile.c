@@ -35,21 +35,14 @@ static mr_status record_profile(mr_fit *best, const mr__family_ops *ops, const d
 }
 
 /* The grid's fitters: f's settings, each with its own copy of the model
- * at its value (as compare's drop-one models are made), none checkpointed:
- * the runs go side by side, and one path cannot hold their states. */
+ * at its value, none checkpointed: the runs go side by side, and one path
+ * cannot hold their states. */
 static mr_status grid_fitters(mr_fitter *f, const mr__family_ops *ops, mr_fitter **g)
 {
     int i;
     for (i = 0; i < ops->profile_n; i++) {
-        if ((g[i] = mr__malloc(sizeof *g[i])) == NULL) return mr__fail(&f->err, MR_ERR_NO_MEMORY, "out of memory");
-        *g[i] = *f;
+        if ((g[i] = mr__fitter_twin(f, &f->err)) == NULL) return f->err.status;
         g[i]->checkpoint = NULL;
-        mr__error_clear(&g[i]->err);
-        if (mr__spec_copy(&g[i]->spec, &f->spec, &f->err) != MR_OK) {
-            mr__free(g[i]);
-            g[i] = NULL;
-            return f->err.status;
-        }
         g[i]->spec.family_profile = 0;
         g[i]->spec.family_param = ops->profile_grid[i];
     }
@@ -59,11 +52,7 @@ static mr_status grid_fitters(mr_fitter *f, const mr__family_ops *ops, mr_fitter
 static void release_fitters(mr_fitter **g, int n)
 {
     int i;
-    for (i = 0; i < n; i++) {
-        if (g[i] == NULL) continue;
-        mr__spec_release(&g[i]->spec);
-        mr__free(g[i]);
-    }
+    for (i = 0; i < n; i++) mr__fitter_twin_free(g[i]);
 }
 
 /* *best the fit of the largest log-likelihood (a fit without one, NaN, is
