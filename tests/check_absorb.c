@@ -107,6 +107,7 @@ static void absorb_sums(const problem *pb, esys *e)
     e->s.A = e->A;
     e->s.bR = e->bR;
     e->s.ref = e->ref;
+    e->s.threads = 1;
     free(x);
 }
 
@@ -215,24 +216,80 @@ START_TEST(test_aliasing_and_empty_level_as_dense)
 }
 END_TEST
 
-/* The elimination reads its sums in a fixed order: solving twice gives
- * the same bits (no state, no order from timing). */
-START_TEST(test_same_bits_twice)
+static void same_solution(const mr__absorb_solution *a, const mr__absorb_solution *b, size_t pr)
 {
+    size_t l, j;
+    for (l = 0; l < a->nlev; l++) {
+        ck_assert(same_bits(a->beta_lev[l], b->beta_lev[l]));
+        ck_assert(same_bits(a->var_lev[l], b->var_lev[l]));
+    }
+    for (j = 0; j < pr; j++) ck_assert(same_bits(a->beta_rest[j], b->beta_rest[j]));
+    for (j = 0; j < pr * pr; j++) ck_assert(same_bits(a->cov_rest[j], b->cov_rest[j]));
+}
+
+/* The elimination reads its sums in a fixed order, its parts fixed by
+ * the levels and columns alone: solving twice, and on 1, 2, 3 or 7
+ * threads, gives the same bits (no state, no order from timing).  With
+ * 9,000 levels the level terms are summed in 3 parts (absorb.h). */
+START_TEST(test_same_bits_any_threads)
+{
+    static const int threads[] = {1, 1, 2, 3, 7};
     problem pb;
     esys e;
     mr__absorb_solution a, b;
-    size_t l;
-    make_problem(&pb, 3000, 120, 4, 0, 5);
+    size_t t;
+    make_problem(&pb, 30000, 9000, 4, 0, 5);
     absorb_sums(&pb, &e);
+    ck_assert_uint_eq(mr__absorb_parts(e.nlev, e.pr), 3);
+    e.s.threads = 1;
     ck_assert_int_eq(mr__absorb_solve(&e.s, MR__ABSORB_COV, &a, NULL), MR_OK);
-    ck_assert_int_eq(mr__absorb_solve(&e.s, MR__ABSORB_COV, &b, NULL), MR_OK);
-    for (l = 0; l < e.nlev; l++) {
-        ck_assert(same_bits(a.beta_lev[l], b.beta_lev[l]));
-        ck_assert(same_bits(a.var_lev[l], b.var_lev[l]));
+    for (t = 0; t < sizeof threads / sizeof threads[0]; t++) {
+        e.s.threads = threads[t];
+        ck_assert_int_eq(mr__absorb_solve(&e.s, MR__ABSORB_COV, &b, NULL), MR_OK);
+        same_solution(&a, &b, e.pr);
+        mr__absorb_solution_release(&b);
     }
     mr__absorb_solution_release(&a);
-    mr__absorb_solution_release(&b);
+    free_esys(&e);
+    free_problem(&pb);
+}
+END_TEST
+
+/* Summed in parts, the solution still solves the normal equations
+ * (identity: X'W(z - X beta) = 0): each level's b_D - d beta_l - c'beta_R
+ * and the rest's b_R - sum_l c_l beta_l - A beta_R vanish, relative to
+ * the sums' size, to 1e-10. */
+START_TEST(test_parts_solve_normal_equations)
+{
+    problem pb;
+    esys e;
+    mr__absorb_solution a;
+    size_t l, j, k, pr, width;
+    double *res, scale = 0;
+    make_problem(&pb, 30000, 9000, 4, 0, 8);
+    absorb_sums(&pb, &e);
+    pr = e.pr;
+    width = MR__ABSORB_WIDTH(pr);
+    e.s.threads = 2;
+    ck_assert_int_eq(mr__absorb_solve(&e.s, MR__ABSORB_NO_COV, &a, NULL), MR_OK);
+    res = calloc(pr, sizeof *res);
+    for (j = 0; j < pr; j++) res[j] = e.bR[j];
+    for (l = 0; l < e.nlev; l++) {
+        const double *row = e.lev + l * width;
+        double r = row[1] - row[0] * a.beta_lev[l];
+        for (j = 0; j < pr; j++) {
+            r -= row[2 + j] * a.beta_rest[j];
+            res[j] -= row[2 + j] * a.beta_lev[l];
+        }
+        ck_assert_double_le(fabs(r), 1e-10 * (fabs(row[1]) + 1));
+    }
+    for (j = 0; j < pr; j++) {
+        for (k = 0; k < pr; k++) res[j] -= e.A[j <= k ? k * pr + j : j * pr + k] * a.beta_rest[k];
+        scale = fmax(scale, fabs(e.bR[j]));
+    }
+    for (j = 0; j < pr; j++) ck_assert_double_le(fabs(res[j]), 1e-10 * scale);
+    free(res);
+    mr__absorb_solution_release(&a);
     free_esys(&e);
     free_problem(&pb);
 }
@@ -277,7 +334,7 @@ END_TEST
 START_TEST(test_no_rest_is_level_means)
 {
     double lev[] = {2, 3, 4, -2, 0, 0};
-    mr__absorb_sums s = {3, 0, lev, NULL, NULL, NULL};
+    mr__absorb_sums s = {3, 0, lev, NULL, NULL, NULL, 1};
     mr__absorb_solution sol;
     ck_assert_int_eq(mr__absorb_solve(&s, MR__ABSORB_COV, &sol, NULL), MR_OK);
     ck_assert(sol.beta_lev[0] == 1.5 && sol.var_lev[0] == 0.5);
@@ -299,7 +356,7 @@ START_TEST(test_intercept_from_reference_row)
     double *lev = calloc(L * width, sizeof *lev), ref[3] = {0, 0, 0}, A = 0, bR = 0;
     uint64_t state = 99;
     size_t l, r;
-    mr__absorb_sums s = {L, 1, lev, &A, &bR, ref};
+    mr__absorb_sums s = {L, 1, lev, &A, &bR, ref, 1};
     mr__absorb_solution sol;
     for (l = 0; l <= L; l++)
         for (r = 0; r < (l < L ? 3u : 2u); r++) {
@@ -328,7 +385,8 @@ static Suite *absorb_suite(void)
     tcase_add_test(tc, test_matches_dense_200_levels);
     tcase_add_test(tc, test_matches_dense_small);
     tcase_add_test(tc, test_aliasing_and_empty_level_as_dense);
-    tcase_add_test(tc, test_same_bits_twice);
+    tcase_add_test(tc, test_same_bits_any_threads);
+    tcase_add_test(tc, test_parts_solve_normal_equations);
     tcase_add_test(tc, test_quadratic_as_dense);
     tcase_add_test(tc, test_no_rest_is_level_means);
     tcase_add_test(tc, test_intercept_from_reference_row);

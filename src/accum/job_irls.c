@@ -16,38 +16,36 @@ typedef struct irls_job {
     const mr__pass_env *env;
     const mr__design *design;
     mr__block_sums group; /* the open group's total */
-    mr__level_part block_levels; /* the block being added: its eliminated factor's
-                                  * levels' rows (design->nabsorb > 0) */
-    int32_t *level_slot;         /* their slot map (nabsorb, all -1 between blocks) */
     int group_open;
     mr__partial_range group_blocks; /* the open group's blocks */
 } irls_job;
 
-/* A block's partial result: its sums, and what its levels' rows are made
- * from when it is added (levelsums.h). */
+/* A block's partial result: its sums, and its eliminated factor's levels'
+ * rows (design->nabsorb > 0), made by the worker that computed it. */
 typedef struct irls_part {
     mr__block_sums sums;
-    mr__level_input lev;
+    mr__level_part levels;
 } irls_part;
+
+/* A worker's scratch: the block's design and, with an eliminated factor,
+ * the slot map its levels' rows are made with (all -1 between blocks). */
+typedef struct irls_worker {
+    mr__workspace ws;
+    int32_t *level_slot;
+} irls_worker;
 
 static size_t level_width(const mr__design *d) { return d->p + 2; }
 
+/* The pass's levels' rows, then the reference's (accumulate.h). */
 static mr_status open_levels(irls_job *j, mr__error *err)
 {
     mr__block_sums *total = &j->env->res->sums;
     const mr__design *d = j->design;
     if (d->nabsorb == 0) return MR_OK;
-    /* the levels' rows, then the reference's (accumulate.h) */
-    total->lev = mr__calloc((d->nabsorb + 1) * level_width(d), sizeof *total->lev);
+    total->lev = mr__pass_pool_take_levels(j->env->cfg->pool, (d->nabsorb + 1) * level_width(d));
     if (total->lev == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     total->nlev = d->nabsorb;
-    j->level_slot = mr__malloc_array(d->nabsorb + 1, sizeof *j->level_slot);
-    if (j->level_slot == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    for (size_t l = 0; l <= d->nabsorb; l++) j->level_slot[l] = -1;
-    MR__TRY(mr__level_part_init(&j->block_levels, level_width(d),
-                                d->nabsorb + 1 < MR__BLOCK_ROWS ? d->nabsorb + 1 : MR__BLOCK_ROWS,
-                                MR__BLOCK_ROWS * (d->ndense + d->nsparse), err));
-    return mr__level_part_order(&j->block_levels, d, err);
+    return MR_OK;
 }
 
 static mr_status irls_open(const mr__pass_env *env, void **out, mr__error *err)
@@ -65,12 +63,15 @@ static mr_status irls_open(const mr__pass_env *env, void **out, mr__error *err)
 static mr_status irls_slot_init(void *job, mr__pass_slot *s, mr__error *err)
 {
     irls_job *j = job;
+    const mr__design *d = j->design;
     irls_part *part = mr__calloc(1, sizeof *part);
     if (part == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     s->part = part;
     MR__TRY(mr__sums_init_block_pass(&part->sums, j->design, j->env->cfg->point->calibrate, err));
-    if (j->design->nabsorb == 0) return MR_OK;
-    return mr__level_input_init(&part->lev, j->design, err);
+    if (d->nabsorb == 0) return MR_OK;
+    MR__TRY(mr__level_part_init(&part->levels, level_width(d), d->nabsorb + 1 < MR__BLOCK_ROWS ? d->nabsorb + 1 : MR__BLOCK_ROWS,
+                                MR__BLOCK_ROWS * (d->ndense + d->nsparse), err));
+    return mr__level_part_order(&part->levels, d, err);
 }
 
 static mr_status irls_start(void *job, mr__error *err)
@@ -83,11 +84,17 @@ static mr_status irls_start(void *job, mr__error *err)
 static mr_status irls_worker_init(void *job, mr__pass_worker *w, mr__error *err)
 {
     irls_job *j = job;
-    mr__workspace *ws = mr__calloc(1, sizeof *ws);
-    if (ws == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    w->part = ws;
-    if (mr__pass_pool_take_workspace(j->env->cfg->pool, j->design, w->number, ws)) return MR_OK;
-    return mr__workspace_init(ws, j->design, err);
+    size_t l, nabsorb = j->design->nabsorb;
+    irls_worker *iw = mr__calloc(1, sizeof *iw);
+    if (iw == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    w->part = iw;
+    if (nabsorb > 0) {
+        if ((iw->level_slot = mr__malloc_array(nabsorb + 1, sizeof *iw->level_slot)) == NULL)
+            return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+        for (l = 0; l <= nabsorb; l++) iw->level_slot[l] = -1;
+    }
+    if (mr__pass_pool_take_workspace(j->env->cfg->pool, j->design, w->number, &iw->ws)) return MR_OK;
+    return mr__workspace_init(&iw->ws, j->design, err);
 }
 
 static int irls_wants_packed(void *job, const mr__pass_slot *s)
@@ -101,11 +108,16 @@ static void irls_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
 {
     irls_job *j = job;
     irls_part *part = s->part;
-    mr__accumulate_block(j->env->cfg->point, s->use, w->part, &part->sums);
-    part->lev.n = 0;
+    irls_worker *iw = w->part;
+    const mr__irls_point *pt = j->env->cfg->point;
+    mr__accumulate_block(pt, s->use, &iw->ws, &part->sums);
+    if (j->design->nabsorb == 0) return;
+    part->levels.n = 0;
     /* rows out of the domain: the step is halved and the sums unused */
-    if (j->design->nabsorb > 0 && s->use->n > 0 && part->sums.invalid == 0 && !j->env->cfg->point->calib_only)
-        mr__level_input_keep(&part->lev, j->design, w->part, s->use->n);
+    if (s->use->n > 0 && part->sums.invalid == 0 && !pt->calib_only) {
+        mr__level_input in = {s->use->n, iw->ws.w, iw->ws.D, iw->ws.sval, iw->ws.scol};
+        mr__level_part_block(pt, s->use, &in, iw->level_slot, &part->levels);
+    }
 }
 
 /* The group's total into the pass's, in group order (accum/partial.h). */
@@ -130,10 +142,7 @@ static mr_status irls_add(void *job, mr__pass_slot *s, mr__error *err)
     }
     j->group_blocks.nblocks++;
     mr__sums_add(&j->group, &part->sums, j->design);
-    if (j->design->nabsorb > 0) {
-        mr__level_part_block(cfg->point, s->use, &part->lev, j->level_slot, &j->block_levels);
-        mr__level_part_add_to(&j->block_levels, j->env->res->sums.lev);
-    }
+    if (j->design->nabsorb > 0) mr__level_part_add_to(&part->levels, j->env->res->sums.lev);
     j->group_open = 1;
     if (mr__group_closes(s->index, 0)) close_group(j);
     if (cfg->store && cfg->store_fill) return mr__pass_keep_block(cfg, j->env->res, s, err);
@@ -151,11 +160,12 @@ static mr_status irls_finish(void *job, mr_status st, mr__error *err)
 static void irls_worker_release(void *job, mr__pass_worker *w)
 {
     irls_job *j = job;
-    mr__workspace *ws = w->part;
-    if (ws == NULL) return;
-    mr__pass_pool_keep_workspace(j->env->cfg->pool, j->design, j->env->nworkers, w->number, ws);
-    mr__workspace_release(ws);
-    mr__free(ws);
+    irls_worker *iw = w->part;
+    if (iw == NULL) return;
+    mr__pass_pool_keep_workspace(j->env->cfg->pool, j->design, j->env->nworkers, w->number, &iw->ws);
+    mr__workspace_release(&iw->ws);
+    mr__free(iw->level_slot);
+    mr__free(iw);
     w->part = NULL;
 }
 
@@ -165,7 +175,7 @@ static void irls_slot_release(void *job, mr__pass_slot *s)
     (void)job;
     if (part == NULL) return;
     mr__sums_release(&part->sums);
-    mr__level_input_release(&part->lev);
+    mr__level_part_release(&part->levels);
     mr__free(part);
     s->part = NULL;
 }
@@ -174,8 +184,6 @@ static void irls_close(void *job)
 {
     irls_job *j = job;
     mr__sums_release(&j->group);
-    mr__level_part_release(&j->block_levels);
-    mr__free(j->level_slot);
     mr__free(j);
 }
 

@@ -83,39 +83,6 @@ void mr__level_part_add_to(const mr__level_part *p, double *total)
     }
 }
 
-mr_status mr__level_input_init(mr__level_input *in, const mr__design *d, mr__error *err)
-{
-    const size_t R = MR__BLOCK_ROWS;
-    memset(in, 0, sizeof *in);
-    in->w = mr__malloc_array(R, sizeof *in->w);
-    in->D = mr__malloc_array(R * (d->ndense + 1), sizeof *in->D);
-    in->sval = mr__malloc_array(R * d->nsparse + 1, sizeof *in->sval);
-    in->scol = mr__malloc_array(R * d->nsparse + 1, sizeof *in->scol);
-    if (in->w == NULL || in->D == NULL || in->sval == NULL || in->scol == NULL) {
-        mr__level_input_release(in);
-        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    }
-    return MR_OK;
-}
-
-void mr__level_input_release(mr__level_input *in)
-{
-    mr__free(in->w);
-    mr__free(in->D);
-    mr__free(in->sval);
-    mr__free(in->scol);
-    memset(in, 0, sizeof *in);
-}
-
-void mr__level_input_keep(mr__level_input *in, const mr__design *d, const mr__workspace *ws, size_t n)
-{
-    in->n = n;
-    memcpy(in->w, ws->w, n * sizeof *in->w);
-    memcpy(in->D, ws->D, (d->ndense + 1) * n * sizeof *in->D);
-    memcpy(in->sval, ws->sval, d->nsparse * n * sizeof *in->sval);
-    memcpy(in->scol, ws->scol, d->nsparse * n * sizeof *in->scol);
-}
-
 /* Level k's row in the block, made the first time a row meets it. */
 static int32_t row_for(mr__level_part *out, int32_t *slot, int32_t k)
 {

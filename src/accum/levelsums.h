@@ -50,12 +50,12 @@ mr_status mr__level_part_order(mr__level_part *p, const mr__design *d, mr__error
 /* total[level * width ..] += the part's rows, in the part's order. */
 void mr__level_part_add_to(const mr__level_part *p, double *total);
 
-/* What a block's rows are made from, copied from its worker's workspace
- * when the block is computed and made into rows only when it is added:
- * (ndense + 2) doubles and nsparse (double, column) pairs a row, against
- * (p + 2) doubles a level met for the rows themselves, so that the ring's
- * blocks waiting to be added do not each hold a block's worth of level
- * rows (the same arithmetic in the same order: the same bits). */
+/* What a block's rows are made from: its worker's workspace as
+ * mr__accumulate_block left it (sqrt(w), the design's columns), viewed
+ * in place.  The worker makes the block's rows (mr__level_part_block)
+ * right after its sums, and the calling thread only adds them in block
+ * order (mr__level_part_add_to): the same arithmetic in the same order
+ * whichever thread makes them, so the same bits. */
 typedef struct mr__level_input {
     size_t n;        /* rows kept (0: none) */
     double *w, *D;   /* sqrt(w); the dense columns times sqrt(w), then sqrt(w) z (n apart) */
@@ -63,12 +63,6 @@ typedef struct mr__level_input {
     int32_t *scol;
 } mr__level_input;
 
-/* Room for a block's inputs under design d. */
-mr_status mr__level_input_init(mr__level_input *in, const mr__design *d, mr__error *err);
-void mr__level_input_release(mr__level_input *in);
-/* Keeps the inputs mr__accumulate_block has just left in ws for a block of
- * n rows. */
-void mr__level_input_keep(mr__level_input *in, const mr__design *d, const mr__workspace *ws, size_t n);
 
 /* The block's rows from its kept inputs: d += w, b_D += w z, c += w x for
  * each row at its level, the reference's row numbered nabsorb (the pass's

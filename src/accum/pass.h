@@ -56,7 +56,18 @@ typedef struct mr__pass_pool {
     const mr__design *design;   /* what the kept workspaces were made for */
     mr__workspace *ws;          /* nws of them, a zeroed one empty */
     size_t nws;
+    /* An eliminated factor's pass totals (accum/levelsums.h), nlev_doubles
+     * of them, NULL: none kept.  A factor of 10^5 levels and 60 columns
+     * takes 51 MB a pass: fresh from the kernel, its first writes cost each
+     * pass a page fault per 4 KiB, each a copy-on-write with a TLB
+     * shootdown to the other cores (a sixth of a 2-worker fit's time). */
+    double *lev;
+    size_t nlev_doubles;
 } mr__pass_pool;
+
+/* Keeps *lev, n doubles, for the next pass's totals (*lev NULL then),
+ * when the pool holds none; else leaves it. */
+void mr__pass_pool_keep_levels(mr__pass_pool *pool, double **lev, size_t n);
 
 void mr__pass_pool_release(mr__pass_pool *pool);
 

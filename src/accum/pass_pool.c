@@ -70,6 +70,24 @@ void mr__pass_pool_keep_workspace(mr__pass_pool *pool, const mr__design *d, size
     memset(ws, 0, sizeof *ws);
 }
 
+void mr__pass_pool_keep_levels(mr__pass_pool *pool, double **lev, size_t n)
+{
+    if (pool == NULL || pool->lev != NULL || *lev == NULL) return;
+    pool->lev = *lev;
+    pool->nlev_doubles = n;
+    *lev = NULL;
+}
+
+double *mr__pass_pool_take_levels(mr__pass_pool *pool, size_t n)
+{
+    double *lev;
+    if (pool == NULL || pool->lev == NULL || pool->nlev_doubles != n) return mr__zalloc(n, sizeof(double));
+    lev = pool->lev;
+    pool->lev = NULL;
+    memset(lev, 0, n * sizeof *lev);
+    return lev;
+}
+
 void mr__pass_pool_release(mr__pass_pool *pool)
 {
     size_t i;
@@ -83,5 +101,6 @@ void mr__pass_pool_release(mr__pass_pool *pool)
     for (i = 0; i < pool->nws; i++) mr__workspace_release(&pool->ws[i]);
     mr__free(pool->slot);
     mr__free(pool->ws);
+    mr__free(pool->lev);
     memset(pool, 0, sizeof *pool);
 }

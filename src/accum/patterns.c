@@ -120,7 +120,7 @@ static uint64_t *find_slot(const mr__pattern_table *t, uint64_t hash, const uint
 /* Slots are rebuilt from the records, whose order alone matters. */
 static mr_status rebuild_slots(mr__pattern_table *t, size_t cap)
 {
-    uint64_t *slot = mr__calloc(cap, sizeof *slot);
+    uint64_t *slot = mr__zalloc(cap, sizeof *slot);
     size_t i;
     if (slot == NULL) return MR_ERR_NO_MEMORY;
     mr__free(t->slot);

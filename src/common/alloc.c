@@ -47,6 +47,13 @@ void *mr__calloc_lines(size_t count, size_t size)
     return p;
 }
 
+void *mr__zalloc(size_t count, size_t size)
+{
+    void *p = mr__malloc_array(count ? count : 1, size ? size : 1);
+    if (p != NULL) memset(p, 0, (count ? count : 1) * (size ? size : 1));
+    return p;
+}
+
 void *mr__malloc_array(size_t count, size_t size)
 {
     if (size != 0 && count > SIZE_MAX / size) return NULL;

@@ -32,6 +32,13 @@ mr_status mr__reserve(void **p, size_t *cap, size_t need, size_t unit);
  * mr__strings_free (NULL is fine). */
 char **mr__strings_copy(const char *const *s, size_t n);
 void mr__strings_free(char **s, size_t n);
+/* Zeroed by writing (malloc, then memset), for tables read before they
+ * are written (hash tables probed, totals added into): calloc's fresh
+ * pages are the shared zero page until written, so a read then a write
+ * costs each page a copy-on-write fault, which with threads running
+ * flushes every core's TLB; a write first maps the page once.  NULL on
+ * overflow or when out of memory. */
+void *mr__zalloc(size_t count, size_t size);
 /* Overflow-checked count * size for array allocations; NULL on overflow. */
 void *mr__malloc_array(size_t count, size_t size);
 

@@ -21,7 +21,7 @@ static mr_status grow(mr__levelset *s)
 {
     size_t cap = s->cap ? 2 * s->cap : 64, i;
     mr__levelset bigger;
-    bigger.slot = mr__calloc(cap, sizeof *bigger.slot);
+    bigger.slot = mr__zalloc(cap, sizeof *bigger.slot);
     if (bigger.slot == NULL) return MR_ERR_NO_MEMORY;
     bigger.cap = cap;
     bigger.n = s->n;

@@ -35,6 +35,7 @@ mr_status mr__irls_init(mr__irls *s, const mr__irls_cfg *cfg, mr__error *err)
     s->dispersion_rows = cfg->dispersion_rows;
     s->newton = cfg->newton;
     s->rest_only = cfg->rest_only;
+    s->threads = cfg->threads;
     s->step = s->step_before = INFINITY;
     s->by_step = 1; /* the rule in force, until the boundary's ends the fit */
     s->max_iterations = cfg->max_iterations;
@@ -266,7 +267,8 @@ static mr_status absorb_step(mr__irls *s, const mr__block_sums *sums, mr__error 
 {
     size_t p = s->p, j, rank, pr = p - sums->nlev;
     double *var, *d;
-    mr__absorb_sums a = {sums->nlev, pr, sums->lev, sums->xtwx, sums->xtwz, mr__sums_reference_row(sums, pr)};
+    mr__absorb_sums a = {sums->nlev, pr, sums->lev, sums->xtwx, sums->xtwz, mr__sums_reference_row(sums, pr),
+                         s->threads};
     MR__TRY(scratch(s, 2 * p, err));
     var = s->inverse;
     d = s->inverse + p;

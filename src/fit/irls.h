@@ -56,6 +56,7 @@ typedef struct mr__irls_cfg {
      * level_steps_by_mean).  Not kept in a checkpoint (a sample's fit
      * makes none). */
     int rest_only;
+    int threads;           /* an eliminated factor's solve may use (solve/absorb.h) */
     int max_iterations;
     int step_at_end;       /* after the last pass allowed, still take its step */
     const double *start;   /* NULL: from the family's starting means; else p values */
@@ -76,6 +77,8 @@ typedef struct mr__irls {
     double tolerance, dispersion_rows;
     int32_t max_iterations, step_at_end, null_intercept, family, from_start;
     int32_t rest_only; /* mr__irls_cfg's; not in the encoding */
+    int32_t threads;   /* mr__irls_cfg's; not in the encoding (a resumed fit's
+                        * solve takes the calling thread alone: the same bits) */
     /* the point: beta is where the next pass goes, prev the last accepted
      * one, next scratch for the solver (not part of the encoding) */
     double *beta, *prev, *next;

@@ -150,7 +150,7 @@ mr_status mr__many_solve(mr_fit *fit, const mr__run *r, double *cov_s, mr__error
 {
     const mr__design *d = &r->design;
     const mr__block_sums *t = &r->last.sums;
-    mr__absorb_sums a = {t->nlev, d->p, t->lev, t->xtwx, t->xtwz, mr__sums_reference_row(t, d->p)};
+    mr__absorb_sums a = {t->nlev, d->p, t->lev, t->xtwx, t->xtwz, mr__sums_reference_row(t, d->p), r->nthreads};
     mr__absorb_solution sol;
     size_t k;
     mr_status st = copy_levels(fit, d, err);

@@ -73,6 +73,12 @@ typedef struct irls_job {
     double rel_change, null_b0, step;
 } irls_job;
 
+/* A pass's level totals, done with, serve the next pass's (accum/pass.h). */
+static void keep_levels(mr__run *r, mr__pass_result *res)
+{
+    mr__pass_pool_keep_levels(&r->pool, &res->sums.lev, (r->design.nabsorb + 1) * (r->design.p + 2));
+}
+
 /* Once the null model has converged its deviance no longer changes, and
  * its per-row work (a mean, a variance and a log each) is left out. */
 static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, double null_b0,
@@ -109,6 +115,7 @@ static mr_status irls_pass(mr__run *r, const irls_job *job, const double *beta, 
         c.progress = NULL;
         c.progress_stop = NULL;
     }
+    keep_levels(r, res);
     mr__pass_result_release(res, 0);
     memset(&groups, 0, sizeof groups);
     st = mr__pass_run(&c, res, err);
@@ -154,6 +161,7 @@ static mr_status init_state(mr__run *r, irls_job *job, mr__irls *s, mr__error *e
     mr__irls_cfg c;
     if (job->resume) {
         *s = *job->resume;
+        s->threads = r->nthreads; /* not in the encoding */
         memset(job->resume, 0, sizeof *job->resume);
         if (s->p != r->design.p) return mr__fail(err, MR_ERR_INTERNAL, "the checkpoint's state does not fit the design");
         return MR_OK;
@@ -164,6 +172,7 @@ static mr_status init_state(mr__run *r, irls_job *job, mr__irls *s, mr__error *e
     c.dispersion_rows = job->dispersion_rows;
     c.newton = newton_link(r);
     c.rest_only = job->rest_only;
+    c.threads = r->nthreads;
     c.max_iterations = job->max_iterations;
     c.step_at_end = job->step_at_end;
     c.start = job->start;
@@ -313,6 +322,7 @@ static int sample_fit(mr__run *r, size_t stride, const double *start, int max_it
     }
     mr__free(job.growing_out);
     *iterations = job.iterations;
+    keep_levels(r, &res);
     mr__pass_result_release(&res, 0);
     return ok;
 }

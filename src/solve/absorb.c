@@ -1,4 +1,5 @@
 #include <math.h>
+#include <pthread.h>
 #include <string.h>
 
 #include "common/alloc.h"
@@ -44,17 +45,25 @@ static void reference_row(const mr__absorb_sums *s, double *S, double *rhs)
     rhs[0] = s->ref[1];
 }
 
-/* S = A - sum_l c_l c_l' / d_l and its right-hand side, levels added in
- * order (the same bits whatever produced the sums); g and nz, room for
- * pr each, take a level's c / d at its nonzero columns, g compact (g[a]
- * is column nz[a]'s), as form and levels_from_rest take them too. */
-static void schur(const mr__absorb_sums *s, double *S, double *rhs, double *g, size_t *nz)
+size_t mr__absorb_parts(size_t nlev, size_t pr)
+{
+    size_t by_levels = (nlev + MR__ABSORB_PART_LEVELS - 1) / MR__ABSORB_PART_LEVELS;
+    size_t by_memory = MR__ABSORB_PART_BYTES / (pr * pr * sizeof(double) + 1);
+    size_t n = by_levels < by_memory ? by_levels : by_memory;
+    return n > 0 ? n : 1;
+}
+
+/* Levels [l0, l1)'s terms of S, summed in order into P (pr x pr, upper)
+ * and rhs, which start at +0: S -= c c' / d over a level's nonzero
+ * columns as g = c / d held compact (g[a] is column nz[a]'s); g and nz
+ * are scratch of pr. */
+static void level_terms(const mr__absorb_sums *s, size_t l0, size_t l1, double *P, double *rhs, double *g,
+                        size_t *nz)
 {
     size_t pr = s->pr, l, a, b;
-    if (pr == 0) return; /* the levels alone: A and b_R may be NULL */
-    memcpy(S, s->A, pr * pr * sizeof *S);
-    memcpy(rhs, s->bR, pr * sizeof *rhs);
-    for (l = 0; l < s->nlev; l++) {
+    memset(P, 0, pr * pr * sizeof *P);
+    memset(rhs, 0, pr * sizeof *rhs);
+    for (l = l0; l < l1; l++) {
         const double *row = row_of(s, l), *c = row + 2;
         size_t n;
         if (level_empty(row)) continue;
@@ -62,12 +71,86 @@ static void schur(const mr__absorb_sums *s, double *S, double *rhs, double *g, s
         for (a = 0; a < n; a++) g[a] = c[nz[a]] / row[0];
         for (b = 0; b < n; b++) {
             size_t j = nz[b];
-            double *col = S + j * pr, cj = c[j];
-            for (a = 0; a <= b; a++) col[nz[a]] -= g[a] * cj;
-            rhs[j] -= g[b] * row[1];
+            double *col = P + j * pr, cj = c[j];
+            for (a = 0; a <= b; a++) col[nz[a]] += g[a] * cj;
+            rhs[j] += g[b] * row[1];
         }
     }
+}
+
+/* The parts of S's level terms, shared out among threads: part k is
+ * thread k mod T's. */
+typedef struct schur_work {
+    const mr__absorb_sums *s;
+    size_t nparts, nthreads, first; /* this thread's first part */
+    double *P, *rhs;                /* nparts of pr x pr, and of pr */
+    double *g;                      /* scratch: pr */
+    size_t *nz;                     /* scratch: pr */
+} schur_work;
+
+static void *schur_parts(void *arg)
+{
+    schur_work *w = arg;
+    const mr__absorb_sums *s = w->s;
+    size_t k, pr = s->pr;
+    for (k = w->first; k < w->nparts; k += w->nthreads) {
+        size_t l0 = s->nlev * k / w->nparts, l1 = s->nlev * (k + 1) / w->nparts;
+        level_terms(s, l0, l1, w->P + k * pr * pr, w->rhs + k * pr, w->g, w->nz);
+    }
+    return NULL;
+}
+
+/* fn(work[t]) on T threads, the calling thread's last; a thread that
+ * cannot be made leaves its share to the calling thread (the same bits). */
+static void run_threads(void *(*fn)(void *), void *work, size_t size, size_t T)
+{
+    pthread_t th[MR__ABSORB_MAX_THREADS];
+    int made[MR__ABSORB_MAX_THREADS] = {0};
+    size_t t;
+    for (t = 0; t + 1 < T; t++) made[t] = pthread_create(&th[t], NULL, fn, (char *)work + t * size) == 0;
+    for (t = 0; t + 1 < T; t++)
+        if (!made[t]) fn((char *)work + t * size);
+    fn((char *)work + (T - 1) * size);
+    for (t = 0; t + 1 < T; t++)
+        if (made[t]) pthread_join(th[t], NULL);
+}
+
+static size_t solve_threads(const mr__absorb_sums *s, size_t most)
+{
+    size_t T = s->threads > 1 ? (size_t)s->threads : 1;
+    if (T > MR__ABSORB_MAX_THREADS) T = MR__ABSORB_MAX_THREADS;
+    return T < most ? T : most > 0 ? most : 1;
+}
+
+/* S = A - the levels' terms, and its right-hand side, the parts added in
+ * order (absorb.h, `threads`). */
+static mr_status schur(const mr__absorb_sums *s, double *S, double *rhs, mr__error *err)
+{
+    size_t pr = s->pr, nparts = mr__absorb_parts(s->nlev, pr), T = solve_threads(s, nparts), k, t, i;
+    schur_work work[MR__ABSORB_MAX_THREADS];
+    double *P, *prhs, *scratch;
+    size_t *nz;
+    if (pr == 0) return MR_OK; /* the levels alone: A and b_R may be NULL */
+    P = mr__malloc_array(nparts * pr * pr + 1, sizeof *P);
+    prhs = mr__malloc_array(nparts * pr + 1, sizeof *prhs);
+    scratch = mr__malloc_array(T * pr + 1, sizeof *scratch);
+    nz = mr__malloc_array(T * pr + 1, sizeof *nz);
+    if (!P || !prhs || !scratch || !nz) {
+        mr__free(P), mr__free(prhs), mr__free(scratch), mr__free(nz);
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    }
+    for (t = 0; t < T; t++) work[t] = (schur_work){s, nparts, T, t, P, prhs, scratch + t * pr, nz + t * pr};
+    run_threads(schur_parts, work, sizeof work[0], T);
+    memcpy(S, s->A, pr * pr * sizeof *S);
+    memcpy(rhs, s->bR, pr * sizeof *rhs);
+    for (k = 0; k < nparts; k++) {
+        const double *Pk = P + k * pr * pr;
+        for (i = 0; i < pr * pr; i++) S[i] -= Pk[i];
+        for (i = 0; i < pr; i++) rhs[i] -= prhs[k * pr + i];
+    }
     if (s->ref != NULL) reference_row(s, S, rhs);
+    mr__free(P), mr__free(prhs), mr__free(scratch), mr__free(nz);
+    return MR_OK;
 }
 
 /* g' M g for M pr x pr full (zero where aliased), g nonzero at nz[0..n)
@@ -85,30 +168,65 @@ static double form(const double *M, size_t pr, const double *g, const size_t *nz
     return sum;
 }
 
-static void levels_from_rest(const mr__absorb_sums *s, mr__absorb_solution *sol, double *g, size_t *nz,
-                             int want_cov)
+/* Levels [l0, l1) from the rest's solution: each level's estimate and
+ * variance stand alone, so any share of them among threads gives the same
+ * bits.  g and nz: scratch of pr. */
+typedef struct level_work {
+    const mr__absorb_sums *s;
+    mr__absorb_solution *sol;
+    size_t l0, l1, nempty;
+    int want_cov;
+    double *g;
+    size_t *nz;
+} level_work;
+
+static void *levels_from_rest(void *arg)
 {
+    level_work *w = arg;
+    const mr__absorb_sums *s = w->s;
+    mr__absorb_solution *sol = w->sol;
     size_t pr = s->pr, l, a, n;
-    for (l = 0; l < s->nlev; l++) {
+    double *g = w->g;
+    for (l = w->l0; l < w->l1; l++) {
         const double *row = row_of(s, l), *c = row + 2;
         double b;
         sol->empty[l] = level_empty(row);
         if (sol->empty[l]) {
-            sol->nempty++;
+            w->nempty++;
             sol->beta_lev[l] = 0;
-            if (want_cov) sol->var_lev[l] = NAN;
+            if (w->want_cov) sol->var_lev[l] = NAN;
             continue;
         }
         b = row[1] / row[0];
-        n = nonzero_columns(c, pr, nz);
+        n = nonzero_columns(c, pr, w->nz);
         for (a = 0; a < n; a++) {
-            g[a] = c[nz[a]] / row[0];
-            b -= g[a] * sol->beta_rest[nz[a]];
+            g[a] = c[w->nz[a]] / row[0];
+            b -= g[a] * sol->beta_rest[w->nz[a]];
         }
         sol->beta_lev[l] = b;
-        if (want_cov == MR__ABSORB_COV) sol->var_lev[l] = 1.0 / row[0] + form(sol->cov_rest, pr, g, nz, n);
-        else if (want_cov == MR__ABSORB_COV_OWN) sol->var_lev[l] = 1.0 / row[0];
+        if (w->want_cov == MR__ABSORB_COV) sol->var_lev[l] = 1.0 / row[0] + form(sol->cov_rest, pr, g, w->nz, n);
+        else if (w->want_cov == MR__ABSORB_COV_OWN) sol->var_lev[l] = 1.0 / row[0];
     }
+    return NULL;
+}
+
+static mr_status levels_all(const mr__absorb_sums *s, mr__absorb_solution *sol, int want_cov, mr__error *err)
+{
+    size_t T = solve_threads(s, s->nlev), t;
+    level_work work[MR__ABSORB_MAX_THREADS];
+    double *g = mr__malloc_array(T * (s->pr + 1), sizeof *g);
+    size_t *nz = mr__malloc_array(T * (s->pr + 1), sizeof *nz);
+    if (g == NULL || nz == NULL) {
+        mr__free(g), mr__free(nz);
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    }
+    for (t = 0; t < T; t++)
+        work[t] = (level_work){s, sol, s->nlev * t / T, s->nlev * (t + 1) / T, 0, want_cov, g + t * (s->pr + 1),
+                               nz + t * (s->pr + 1)};
+    run_threads(levels_from_rest, work, sizeof work[0], T);
+    for (t = 0; t < T; t++) sol->nempty += work[t].nempty;
+    mr__free(g), mr__free(nz);
+    return MR_OK;
 }
 
 static mr_status solution_alloc(mr__absorb_solution *sol, size_t nlev, size_t pr, int want_cov, mr__error *err)
@@ -133,30 +251,22 @@ static mr_status solution_alloc(mr__absorb_solution *sol, size_t nlev, size_t pr
 mr_status mr__absorb_solve(const mr__absorb_sums *s, int want_cov, mr__absorb_solution *sol, mr__error *err)
 {
     size_t pr = s->pr, j;
-    double *S = NULL, *rhs = NULL, *g = NULL, *ref = NULL;
-    size_t *nz = NULL;
+    double *S = NULL, *rhs = NULL, *ref = NULL;
     mr_status st = solution_alloc(sol, s->nlev, pr, want_cov, err);
     if (st != MR_OK) return st;
     S = mr__malloc_array(pr * pr + 1, sizeof *S);
     rhs = mr__malloc_array(pr + 1, sizeof *rhs);
-    g = mr__malloc_array(pr + 1, sizeof *g);
     ref = mr__malloc_array(pr + 1, sizeof *ref);
-    nz = mr__malloc_array(pr + 1, sizeof *nz);
-    if (!S || !rhs || !g || !ref || !nz) {
-        st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-        goto done;
-    }
-    schur(s, S, rhs, g, nz);
-    for (j = 0; j < pr; j++) ref[j] = s->A[j * pr + j];
-    st = mr__solve_normal_ref(S, rhs, pr, ref, sol->beta_rest, sol->aliased, &sol->rank,
-                              want_cov ? sol->cov_rest : NULL, err);
-    if (st == MR_OK) levels_from_rest(s, sol, g, nz, want_cov);
-done:
+    if (!S || !rhs || !ref) st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    if (st == MR_OK) st = schur(s, S, rhs, err);
+    for (j = 0; st == MR_OK && j < pr; j++) ref[j] = s->A[j * pr + j];
+    if (st == MR_OK)
+        st = mr__solve_normal_ref(S, rhs, pr, ref, sol->beta_rest, sol->aliased, &sol->rank,
+                                  want_cov ? sol->cov_rest : NULL, err);
+    if (st == MR_OK) st = levels_all(s, sol, want_cov, err);
     mr__free(S);
     mr__free(rhs);
-    mr__free(g);
     mr__free(ref);
-    mr__free(nz);
     return st;
 }
 

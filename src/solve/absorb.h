@@ -61,7 +61,21 @@ typedef struct mr__absorb_sums {
     /* NULL, or the reference level's own row, laid out as a level's, when
      * column 0 of R is the intercept (1 on every row): see "Precision". */
     const double *ref;
+    /* Threads the solve may use (0 or 1: the calling thread alone).  The
+     * levels' terms of S are summed in parts of consecutive levels, each
+     * part from +0, and the parts added to A in order: how many parts
+     * depends on L and p_r alone (mr__absorb_parts), so the bits do not
+     * depend on the threads. */
+    int threads;
 } mr__absorb_sums;
+
+/* The parts S's level terms are summed in (see `threads` above): one per
+ * MR__ABSORB_PART_LEVELS levels, as many as fit MR__ABSORB_PART_BYTES of
+ * p_r x p_r partial sums, at least one. */
+#define MR__ABSORB_PART_LEVELS 4096
+#define MR__ABSORB_MAX_THREADS 64
+#define MR__ABSORB_PART_BYTES ((size_t)16 << 20)
+size_t mr__absorb_parts(size_t nlev, size_t pr);
 
 typedef struct mr__absorb_solution {
     size_t nlev, pr, rank; /* rank of the rest after the levels */
