@@ -199,10 +199,17 @@ void mr__fitter_twin_free(mr_fitter *g)
 const char *mr_fitter_checkpoint_note(const mr_fitter *f) { return f->checkpoint_note; }
 
 /* The audit trail: who asked (the command line), on which machine, from
- * when to when (wall clock, UTC). */
+ * when to when (wall clock, UTC); one recorded before (a profile's fit,
+ * recorded by the shared run, then as the whole run's) is replaced. */
 mr_status mr__fitter_record_run(const mr_fitter *f, mr_fit *fit, int64_t started_ns, mr__error *err)
 {
     char started[MR__UTC_TEXT_CAP], ended[MR__UTC_TEXT_CAP], host[256];
+    mr__free(fit->started);
+    mr__free(fit->ended);
+    mr__free(fit->host);
+    mr__strings_free(fit->command_line, fit->ncommand_line);
+    fit->command_line = NULL;
+    fit->ncommand_line = 0;
     mr__utc_text(started_ns, started, sizeof started);
     mr__utc_text(mr__wall_ns_now(), ended, sizeof ended);
     mr__host_name(host, sizeof host);

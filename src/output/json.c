@@ -254,12 +254,12 @@ static json_t *object(const mr_fit *f, const mr__jfield *fields, const void *bas
 /* The `many` levels, up to 10^6 of them, are written one at a time into
  * the rest of the document, which is dumped with their array empty: a
  * jansson tree of them all took 630 MB at 10^6 levels (the fit itself 380).
- * The rest's dump is cut where that array stands, the depth-2 key
- * `levels` of `many_factor` (the only one: json_schema.h); each level is
+ * The rest's dump is cut where that array stands (json_schema.h,
+ * MR__JSON_APART_AT); each level is
  * dumped alone and indented as the whole tree's dump indents it, so the
  * bytes are the tree's. */
-static const char apart_after[] = "\n \"many_factor\": {", apart_at[] = "\n  \"levels\": [";
-#define APART_DEPTH 2
+static const char apart_after[] = MR__JSON_APART_AFTER, apart_at[] = MR__JSON_APART_AT;
+#define APART_DEPTH MR__JSON_APART_DEPTH
 
 static mr_status put_text(mr__outfile *out, const char *p, size_t n, mr__error *err)
 {

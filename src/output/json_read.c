@@ -3,15 +3,19 @@
  * checked for its type, so a damaged or foreign file is one clear error
  * naming the file and the field (or jansson's line and column when the
  * text is not JSON at all), never a half-filled fit. */
+#define _POSIX_C_SOURCE 200809L /* O_CLOEXEC */
 #include <jansson.h>
 #include <limits.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdarg.h>
 #include <string.h>
+#include <fcntl.h>
 #include <sys/stat.h>
+#include <unistd.h>
 
 #include "common/alloc.h"
+#include "common/fileio.h"
 #include "common/utf8.h"
 #include "family/family.h"
 #include "fit/fit.h"
@@ -28,6 +32,12 @@ typedef struct reader {
     char where[512]; /* the field being read, e.g. model.terms[2].label */
     size_t len;
     size_t mean_room; /* entries of fit->many_mean_col and _val */
+    /* The `many` levels' records read apart (mr_fit_read_json): their
+     * text [apart_lo, apart_hi) in the file, NULL when read in the tree;
+     * apart_broken: that text is not as json.c lays it out (read the
+     * whole tree instead) */
+    const char *apart_lo, *apart_hi;
+    int apart_broken;
 } reader;
 
 static mr_status say(reader *r, mr_status st, const char *fmt, ...) __attribute__((format(printf, 3, 4)));
@@ -288,6 +298,60 @@ static mr_status read_records(reader *r, const mr__jfield *fl, json_t *v, void *
     return MR_OK;
 }
 
+/* The records of the array read apart, in the layout json.c writes:
+ * ",\n   {...\n   }" a record (no comma before the first), then "\n  ".
+ * Each is parsed alone; text laid out otherwise, or not JSON, marks the
+ * reading broken (the caller then reads the whole tree). */
+static const char rec_open[] = "\n   {", rec_close[] = "\n   }";
+
+static size_t count_apart(const reader *r)
+{
+    const char *p = r->apart_lo;
+    size_t n = 0, len = sizeof rec_open - 1;
+    /* the text is NUL-ended and JSON holds no NUL: a NUL inside ends the
+     * count early, and the reading finds the text broken */
+    while ((p = strstr(p, rec_open)) != NULL && p < r->apart_hi) n++, p += len;
+    return n;
+}
+
+static mr_status broken(reader *r)
+{
+    r->apart_broken = 1;
+    return MR_ERR_FORMAT;
+}
+
+static mr_status read_records_apart(reader *r, const mr__jfield *fl, void *base)
+{
+    const mr__jfield *s;
+    const char *p = r->apart_lo;
+    size_t i, n = count_apart(r);
+    *(size_t *)((char *)base + fl->count) = n;
+    for (s = fl->sub; s->key != NULL; s++)
+        if (s->indexed && (*(void **)((char *)base + s->at) = mr__calloc(n + 1, mr__jfield_unit(s->kind))) == NULL)
+            return no_memory(r);
+    for (i = 0; i < n; i++) {
+        const char *end;
+        json_t *rec;
+        size_t back;
+        mr_status st;
+        if (i > 0 && *p++ != ',') return broken(r);
+        if ((size_t)(r->apart_hi - p) < sizeof rec_open || memcmp(p, rec_open, sizeof rec_open - 1) != 0) return broken(r);
+        p += sizeof rec_open - 2; /* at the '{' */
+        end = strstr(p, rec_close);
+        if (end == NULL || end >= r->apart_hi) return broken(r);
+        end += sizeof rec_close - 1; /* after the '}' */
+        if ((rec = json_loadb(p, (size_t)(end - p), JSON_REJECT_DUPLICATES, NULL)) == NULL) return broken(r);
+        back = enter_item(r, i);
+        st = read_object(r, rec, fl->sub, base, i);
+        json_decref(rec);
+        if (st != MR_OK) return st;
+        leave(r, back);
+        p = end;
+    }
+    if ((size_t)(r->apart_hi - p) != (n > 0 ? 1 + MR__JSON_APART_DEPTH : 0) || (n > 0 && *p != '\n')) return broken(r);
+    return MR_OK;
+}
+
 static mr_status read_missing(reader *r, json_t *v, mr_fit *f)
 {
     const char *key;
@@ -417,8 +481,10 @@ static mr_status read_value(reader *r, const mr__jfield *fl, json_t *v, void *ba
     case MR__J_REALS:
     case MR__J_STRUCTS: return read_list(r, fl, v, base);
     case MR__J_KEYED: return read_keyed(r, fl, v, base);
-    case MR__J_RECORDS:
-    case MR__J_RECORDS_APART: return read_records(r, fl, v, base);
+    case MR__J_RECORDS_APART:
+        if (r->apart_lo != NULL) return read_records_apart(r, fl, base);
+        /* fall through */
+    case MR__J_RECORDS: return read_records(r, fl, v, base);
     default: return read_scalar(r, fl, v, mr__jfield_slot(fl, base, index));
     }
 }
@@ -545,27 +611,107 @@ static mr_status readable(reader *r)
     return MR_OK;
 }
 
-mr_status mr_fit_read_json(const char *path, mr_fit **out, char *msg, size_t msgcap)
+/* The file's text, NUL-ended; NULL when it cannot be read whole (the tree
+ * reader then says why). */
+static char *file_text(const char *path, size_t *n)
+{
+    struct stat sb;
+    char *text = NULL;
+    int fd = open(path, O_RDONLY | O_CLOEXEC);
+    if (fd < 0) return NULL;
+    if (fstat(fd, &sb) == 0 && S_ISREG(sb.st_mode) && (text = mr__malloc((size_t)sb.st_size + 1)) != NULL &&
+        mr__pread_full(fd, text, (size_t)sb.st_size, 0) != MR_OK) {
+        mr__free(text);
+        text = NULL;
+    }
+    close(fd);
+    if (text != NULL) text[*n = (size_t)sb.st_size] = '\0';
+    return text;
+}
+
+/* The `many` levels' array in text laid out as json.c writes it: the
+ * rest of the document, its content left out, into *rest (NULL: no such
+ * array), its content [*lo, *hi) in text. */
+static mr_status cut_apart(const char *text, size_t n, char **rest, const char **lo, const char **hi)
+{
+    const char *after = strstr(text, MR__JSON_APART_AFTER), *at = after ? strstr(after, MR__JSON_APART_AT) : NULL;
+    const char *close;
+    size_t head, tail;
+    *rest = NULL;
+    if (at == NULL) return MR_OK;
+    *lo = at + sizeof MR__JSON_APART_AT - 1;
+    close = **lo == ']' ? *lo : strstr(*lo, "\n  ]");
+    if (close == NULL) return MR_OK;
+    *hi = **lo == ']' ? *lo : close + 1 + MR__JSON_APART_DEPTH;
+    head = (size_t)(*lo - text);
+    tail = n - (size_t)(*hi - text);
+    if ((*rest = mr__malloc(head + tail + 1)) == NULL) return MR_ERR_NO_MEMORY;
+    memcpy(*rest, text, head);
+    memcpy(*rest + head, *hi, tail);
+    (*rest)[head + tail] = '\0';
+    return MR_OK;
+}
+
+/* The document's tree: with a `many` factor of 10^6 levels (186 MB of
+ * JSON) a tree of it all took 1 GB, so the levels' records are left out
+ * of it, to be read one at a time (read_records_apart), when the file is
+ * laid out as json.c writes it. */
+static json_t *load_tree(reader *r, char *text, size_t n, json_error_t *e)
+{
+    char *rest = NULL;
+    json_t *root;
+    if (text == NULL || cut_apart(text, n, &rest, &r->apart_lo, &r->apart_hi) != MR_OK || rest == NULL) {
+        r->apart_lo = r->apart_hi = NULL;
+        return json_load_file(r->path, JSON_REJECT_DUPLICATES, e);
+    }
+    root = json_loads(rest, JSON_REJECT_DUPLICATES, e);
+    mr__free(rest);
+    if (root != NULL) return root;
+    r->apart_lo = r->apart_hi = NULL;
+    return json_load_file(r->path, JSON_REJECT_DUPLICATES, e);
+}
+
+static mr_status read_fit(reader *r, char *text, size_t n)
 {
     json_error_t e;
-    reader r = {path, NULL, msg, msgcap, "", 0, 0};
-    json_t *root;
+    json_t *root = load_tree(r, text, n, &e);
+    mr_status st;
+    if (root == NULL) return load_failed(r, &e);
+    if ((r->fit = mr__calloc(1, sizeof *r->fit)) == NULL) st = no_memory(r);
+    else st = check_format(r, root);
+    if (st == MR_OK) st = read_object(r, root, mr__json_fit_fields, r->fit, 0);
+    if (st == MR_OK) st = check_consistent(r);
+    /* the term tests are written, never read: the same code gives the same bits from the same numbers */
+    if (st == MR_OK && mr__fit_term_tests(r->fit) != MR_OK) st = no_memory(r);
+    json_decref(root);
+    if (st != MR_OK) {
+        mr_fit_free(r->fit);
+        r->fit = NULL;
+    }
+    return st;
+}
+
+mr_status mr_fit_read_json(const char *path, mr_fit **out, char *msg, size_t msgcap)
+{
+    reader r = {path, NULL, msg, msgcap, "", 0, 0, NULL, NULL, 0};
+    size_t n = 0;
+    char *text;
     mr_status st;
     *out = NULL;
     if (msgcap > 0) msg[0] = '\0';
     MR__TRY(readable(&r));
-    if ((root = json_load_file(path, JSON_REJECT_DUPLICATES, &e)) == NULL) return load_failed(&r, &e);
-    if ((r.fit = mr__calloc(1, sizeof *r.fit)) == NULL) st = no_memory(&r);
-    else st = check_format(&r, root);
-    if (st == MR_OK) st = read_object(&r, root, mr__json_fit_fields, r.fit, 0);
-    if (st == MR_OK) st = check_consistent(&r);
-    /* the term tests are written, never read: the same code gives the same bits from the same numbers */
-    if (st == MR_OK && mr__fit_term_tests(r.fit) != MR_OK) st = no_memory(&r);
-    json_decref(root);
-    if (st != MR_OK) {
-        mr_fit_free(r.fit);
-        return st;
+    text = file_text(path, &n);
+    st = read_fit(&r, text, n);
+    if (st != MR_OK && r.apart_broken) {
+        /* not laid out as written here: the whole tree, as any JSON */
+        reader again = {path, NULL, msg, msgcap, "", 0, 0, NULL, NULL, 0};
+        mr__free(text);
+        text = NULL;
+        r = again;
+        st = read_fit(&r, NULL, 0);
     }
+    mr__free(text);
+    if (st != MR_OK) return st;
     r.fit->status = r.fit->converged ? MR_OK : MR_ERR_NOT_CONVERGED;
     *out = r.fit;
     return MR_OK;

@@ -73,6 +73,13 @@ typedef struct mr__jfield {
 
 /* The whole fit, from "format" to "warnings". */
 extern const mr__jfield mr__json_fit_fields[];
+/* Where the MR__J_RECORDS_APART array stands in the file as json.c lays
+ * it out (one space a level): the `levels` key, at depth 2, of the first
+ * `many_factor` after the text MR__JSON_APART_AFTER; each record's
+ * lines then open and close at depth 3. */
+#define MR__JSON_APART_AFTER "\n \"many_factor\": {"
+#define MR__JSON_APART_AT "\n  \"levels\": ["
+#define MR__JSON_APART_DEPTH 2
 /* A `many` level's fields (the records of the one MR__J_RECORDS_APART). */
 extern const mr__jfield mr__json_many_level_fields[];
 

@@ -67,6 +67,27 @@ text = open(sys.argv[1]).read()
 sys.exit(norm(text) != norm(json.dumps(json.loads(text), indent=1, ensure_ascii=False) + "\n"))
 P
     fail "the levels written apart" "laid out otherwise than one document"
+# and read back one level at a time (json_read.c) when so laid out; the
+# same fit laid out otherwise (Python's indent=2) reads as one tree, to the
+# same report; a level's record broken as JSON is reported at its line in
+# the file (exit 4)
+/usr/bin/python3 - "$tmp/base.json" "$tmp" <<'P'
+import json, sys
+text = open(sys.argv[1]).read()
+json.dump(json.loads(text), open(sys.argv[2] + "/indent2.json", "w"), indent=2)
+lines = text.split("\n")
+k = [i for i, l in enumerate(lines) if l.startswith('    "estimate": ')][2]
+lines[k] = lines[k].replace('"estimate": ', '"estimate" ', 1)
+open(sys.argv[2] + "/broken.json", "w").write("\n".join(lines))
+open(sys.argv[2] + "/broken.line", "w").write(str(k + 1))
+P
+$bin show "$tmp/base.json" > "$tmp/show.a" 2>&1 && $bin show "$tmp/indent2.json" > "$tmp/show.b" 2>&1 &&
+    cmp -s "$tmp/show.a" "$tmp/show.b" && ok "a fit laid out otherwise reads to the same report" ||
+    fail "a fit laid out otherwise" "$(diff "$tmp/show.a" "$tmp/show.b" | head -5)"
+$bin show "$tmp/broken.json" > /dev/null 2> "$tmp/broken.err"
+rc=$?
+[ "$rc" -eq 4 ] && grep -q "broken.json:$(cat "$tmp/broken.line"):[0-9]*: not a JSON fit" "$tmp/broken.err" &&
+    ok "a level's record broken: exit 4 at its line" || fail "a level's record broken" "exit $rc: $(cat "$tmp/broken.err")"
 $bin show "$tmp/base.json" > "$tmp/show.txt" && grep -q "factor area (many)" "$tmp/show.txt" &&
     ok "show reads it back" || fail "show reads it back" "no summary"
 

@@ -20,7 +20,7 @@ M
 cp "$tmp/a.model" "$tmp/b.model"
 printf 'numeric age\nnumeric bmi\n' >> "$tmp/b.model"
 
-estimates() { /usr/bin/python3 -c 'import json,sys; j=json.load(open(sys.argv[1])); print([c["estimate"] for c in j["coefficients"]], j["fit"]["deviance"])' "$1"; }
+estimates() { /usr/bin/python3 -c 'import json,sys; j=json.load(open(sys.argv[1])); print([c["estimate"] for c in j["coefficients"]], j["fit"]["deviance"], [(l["estimate"], l["standard_error"]) for l in j.get("many_factor", {}).get("levels", [])])' "$1"; }
 
 run() { # [data=FILE] run NAME MODEL OPTIONS...: fit with 1 and 3 threads, compare
     local name=$1 model=$2 in=${data:-$tmp/d.csv.zst}
@@ -41,6 +41,12 @@ run rows_no_collapse "$tmp/a.model" --no-collapse
 # Rereads of a plain file: workers read their blocks by the block map.
 zstd -q -d -c "$tmp/d.csv.zst" > "$tmp/d.csv"
 data=$tmp/d.csv run rereads_by_map "$tmp/b.model" --no-cache
+# A factor of 9,000 levels declared many: each block's level rows made by
+# its worker, the Schur complement's 3 parts and the levels' estimates on
+# the threads (solve/absorb.c)
+awk -F, 'NR == 1 { print $0 ",area"; next } { print $0 ",A" (NR * 7919) % 9000 }' "$tmp/d.csv" > "$tmp/area.csv"
+printf 'outcome bmi\nfamily gaussian\nfactor age_band\nfactor sex\nnumeric year\nfactor area many\n' > "$tmp/many.model"
+data=$tmp/area.csv run many_factor "$tmp/many.model" --many-means
 # Two-byte rows: a read into a chunk's buffer completes a chunk and runs
 # on into the next (pass.c, read_stream).  Reference: the mean of the
 # outcome, known by construction (0..9 repeated: 4.5).
