@@ -277,9 +277,12 @@ static mr_status put_level(const mr_fit *f, size_t k, mr__outfile *out, mr__strb
     b->len = 0;
     mr__strbuf_append(b, k > 0 ? ",\n" : "\n", k > 0 ? 2 : 1);
     mr__strbuf_append(b, "    ", APART_DEPTH + 1);
-    for (p = text; *p != '\0'; p++) {
-        mr__strbuf_append(b, p, 1);
-        if (*p == '\n') mr__strbuf_append(b, "    ", APART_DEPTH + 1);
+    for (p = text; *p != '\0';) {
+        const char *nl = strchr(p, '\n');
+        size_t n = nl != NULL ? (size_t)(nl - p) + 1 : strlen(p);
+        mr__strbuf_append(b, p, n);
+        if (nl != NULL) mr__strbuf_append(b, "    ", APART_DEPTH + 1);
+        p += n;
     }
     free(text);
     if (b->failed) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory writing the JSON");
