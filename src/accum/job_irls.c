@@ -69,7 +69,9 @@ static mr_status irls_slot_init(void *job, mr__pass_slot *s, mr__error *err)
     s->part = part;
     MR__TRY(mr__sums_init_block_pass(&part->sums, j->design, j->env->cfg->point->calibrate, err));
     if (d->nabsorb == 0) return MR_OK;
-    MR__TRY(mr__level_part_init(&part->levels, level_width(d), d->nabsorb + 1 < MR__BLOCK_ROWS ? d->nabsorb + 1 : MR__BLOCK_ROWS,
+    /* at most a level a row, and a row's entries each a cell */
+    MR__TRY(mr__level_part_init(&part->levels, level_width(d),
+                                d->nabsorb + 1 < MR__BLOCK_ROWS ? d->nabsorb + 1 : MR__BLOCK_ROWS,
                                 MR__BLOCK_ROWS * (d->ndense + d->nsparse), err));
     return mr__level_part_order(&part->levels, d, err);
 }

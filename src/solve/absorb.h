@@ -71,7 +71,8 @@ typedef struct mr__absorb_sums {
 
 /* The parts S's level terms are summed in (see `threads` above): one per
  * MR__ABSORB_PART_LEVELS levels, as many as fit MR__ABSORB_PART_BYTES of
- * p_r x p_r partial sums, at least one. */
+ * p_r x p_r partial sums, at least one (so past 1,448 other columns one
+ * part's p_r x p_r is held beside S). */
 #define MR__ABSORB_PART_LEVELS 4096
 #define MR__ABSORB_MAX_THREADS 64
 #define MR__ABSORB_PART_BYTES ((size_t)16 << 20)
