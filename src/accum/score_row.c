@@ -152,29 +152,25 @@ static size_t design_row(score_worker *sw, const int32_t *lev, const double *num
     return m;
 }
 
-/* x at the columns it touches, minus m_l (score.h) there. */
+/* dx[j] += v, j added to the columns touched (n of them) when new. */
+static void add_at(score_worker *sw, size_t j, double v, size_t *n)
+{
+    if (sw->dpos[j] == 0) {
+        sw->dcol[*n] = j;
+        sw->dx[j] = 0;
+        sw->dpos[j] = ++*n;
+    }
+    sw->dx[j] += v;
+}
+
+/* x at the columns it touches, minus m_l (score.h) there; how many. */
 static size_t level_difference(score_worker *sw, size_t m, int32_t l)
 {
     const mr__score_cfg *c = sw->c;
     size_t a, e, n = 0;
-    for (a = 0; a < m; a++) {
-        size_t j = sw->xcol[a];
-        if (sw->dpos[j] == 0) {
-            sw->dcol[n] = j;
-            sw->dx[j] = 0;
-            sw->dpos[j] = ++n;
-        }
-        sw->dx[j] += sw->xval[a];
-    }
-    for (e = c->many_mean_span[2 * l]; e < c->many_mean_span[2 * l + 1]; e++) {
-        size_t j = c->many_mean_col[e];
-        if (sw->dpos[j] == 0) {
-            sw->dcol[n] = j;
-            sw->dx[j] = 0;
-            sw->dpos[j] = ++n;
-        }
-        sw->dx[j] -= c->many_mean_val[e];
-    }
+    for (a = 0; a < m; a++) add_at(sw, sw->xcol[a], sw->xval[a], &n);
+    for (e = c->many_mean_span[2 * l]; e < c->many_mean_span[2 * l + 1]; e++)
+        add_at(sw, c->many_mean_col[e], -c->many_mean_val[e], &n);
     return n;
 }
 

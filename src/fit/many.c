@@ -82,11 +82,13 @@ typedef struct upper_entries {
 static mr_status upper_from(const double *A, size_t p, upper_entries *u, mr__error *err)
 {
     size_t i, k, n = 0;
+    for (k = 0; k < p; k++) /* a few a column: room for those alone */
+        for (i = 0; i < k; i++) n += A[k * p + i] != 0;
     u->start = mr__malloc_array(p + 1, sizeof *u->start);
-    u->row = mr__malloc_array(p * (p + 1) / 2 + 1, sizeof *u->row);
-    u->value = mr__malloc_array(p * (p + 1) / 2 + 1, sizeof *u->value);
+    u->row = mr__malloc_array(n + 1, sizeof *u->row);
+    u->value = mr__malloc_array(n + 1, sizeof *u->value);
     if (!u->start || !u->row || !u->value) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    for (k = 0; k < p; k++) {
+    for (k = 0, n = 0; k < p; k++) {
         u->start[k] = n;
         for (i = 0; i < p; i++) {
             double a = A[k * p + i];

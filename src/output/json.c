@@ -253,18 +253,12 @@ static json_t *object(const mr_fit *f, const mr__jfield *fields, const void *bas
 
 /* The `many` levels, up to 10^6 of them, are written one at a time into
  * the rest of the document, which is dumped with their array empty: a
- * jansson tree of them all took 630 MB at 10^6 levels (the fit itself 380).
- * The rest's dump is cut where that array stands (json_schema.h,
- * MR__JSON_APART_AT); each level is
- * dumped alone and indented as the whole tree's dump indents it, so the
- * bytes are the tree's. */
+ * jansson tree of them all took 630 MB at 10^6 levels (the fit itself
+ * 380).  The rest's dump is cut where that array stands (json_schema.h,
+ * MR__JSON_APART_AT); each level is dumped alone and indented as the
+ * whole tree's dump indents it, so the bytes are the tree's. */
 static const char apart_after[] = MR__JSON_APART_AFTER, apart_at[] = MR__JSON_APART_AT;
 #define APART_DEPTH MR__JSON_APART_DEPTH
-
-static mr_status put_text(mr__outfile *out, const char *p, size_t n, mr__error *err)
-{
-    return mr__outfile_write(out, p, n, err);
-}
 
 /* A level alone, its lines indented for its place in the array. */
 static mr_status put_level(const mr_fit *f, size_t k, mr__outfile *out, mr__strbuf *b, mr__error *err)
@@ -286,7 +280,7 @@ static mr_status put_level(const mr_fit *f, size_t k, mr__outfile *out, mr__strb
     }
     free(text);
     if (b->failed) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory writing the JSON");
-    return put_text(out, b->data, b->len, err);
+    return mr__outfile_write(out, b->data, b->len, err);
 }
 
 static mr_status put_levels(const mr_fit *f, mr__outfile *out, mr__error *err)
@@ -298,7 +292,7 @@ static mr_status put_levels(const mr_fit *f, mr__outfile *out, mr__error *err)
     for (k = 0; st == MR_OK && k < f->nmany; k++) st = put_level(f, k, out, &b, err);
     mr__strbuf_release(&b);
     /* the array's close on a line of its own at its depth (none when empty: "[]") */
-    if (st == MR_OK && f->nmany > 0) st = put_text(out, "\n    ", 1 + APART_DEPTH, err);
+    if (st == MR_OK && f->nmany > 0) st = mr__outfile_write(out, "\n    ", 1 + APART_DEPTH, err);
     return st;
 }
 
@@ -320,13 +314,13 @@ static mr_status write_document(const mr_fit *fit, json_t *root, mr__outfile *ou
     const char *cut = NULL;
     mr_status st = text != NULL ? split_rest(fit, text, &cut, err)
                                 : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory writing the JSON");
-    if (st == MR_OK && cut == NULL) st = put_text(out, text, strlen(text), err);
+    if (st == MR_OK && cut == NULL) st = mr__outfile_write(out, text, strlen(text), err);
     if (st == MR_OK && cut != NULL) {
-        st = put_text(out, text, (size_t)(cut - text), err);
+        st = mr__outfile_write(out, text, (size_t)(cut - text), err);
         if (st == MR_OK) st = put_levels(fit, out, err);
-        if (st == MR_OK) st = put_text(out, cut, strlen(cut), err);
+        if (st == MR_OK) st = mr__outfile_write(out, cut, strlen(cut), err);
     }
-    if (st == MR_OK) st = put_text(out, "\n", 1, err);
+    if (st == MR_OK) st = mr__outfile_write(out, "\n", 1, err);
     free(text);
     return st;
 }

@@ -335,7 +335,8 @@ static mr_status read_records_apart(reader *r, const mr__jfield *fl, void *base)
         size_t back;
         mr_status st;
         if (i > 0 && *p++ != ',') return broken(r);
-        if ((size_t)(r->apart_hi - p) < sizeof rec_open || memcmp(p, rec_open, sizeof rec_open - 1) != 0) return broken(r);
+        if ((size_t)(r->apart_hi - p) < sizeof rec_open || memcmp(p, rec_open, sizeof rec_open - 1) != 0)
+            return broken(r);
         p += sizeof rec_open - 2; /* at the '{' */
         end = strstr(p, rec_close);
         if (end == NULL || end >= r->apart_hi) return broken(r);
