@@ -69,50 +69,28 @@ mr_status mr__fit_grow_many_means(mr_fit *fit, size_t *room)
     return MR_OK;
 }
 
-/* A's entries above its diagonal, column by column: internal column k is
- * A(k, k) times raw column k plus A(i, k) times earlier raw columns i (a
- * centred column's intercept share, an interaction's lower-order parts:
- * model/design.h), so A is upper triangular and raw means come from
- * internal ones by one forward substitution. */
-typedef struct upper_entries {
-    size_t *start, *row;
-    double *value;
-} upper_entries;
-
-static mr_status upper_from(const double *A, size_t p, upper_entries *u, mr__error *err)
+/* Raw means come from internal ones by one forward substitution, A being
+ * upper triangular (run.h, mr__raw_map): each column's last entry is its
+ * diagonal's. */
+static mr_status check_upper(const mr__raw_map *a, size_t p, mr__error *err)
 {
-    size_t i, k, n = 0;
-    for (k = 0; k < p; k++) /* a few a column: room for those alone */
-        for (i = 0; i < k; i++) n += A[k * p + i] != 0;
-    u->start = mr__malloc_array(p + 1, sizeof *u->start);
-    u->row = mr__malloc_array(n + 1, sizeof *u->row);
-    u->value = mr__malloc_array(n + 1, sizeof *u->value);
-    if (!u->start || !u->row || !u->value) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    for (k = 0, n = 0; k < p; k++) {
-        u->start[k] = n;
-        for (i = 0; i < p; i++) {
-            double a = A[k * p + i];
-            if (i > k ? a != 0 : i == k && !(a != 0))
-                return mr__fail(err, MR_ERR_INTERNAL, "the map to raw columns is not upper triangular");
-            if (i < k && a != 0) {
-                u->row[n] = i;
-                u->value[n++] = a;
-            }
-        }
-    }
-    u->start[p] = n;
+    size_t k;
+    for (k = 0; k < p; k++)
+        if (a->start[k + 1] == a->start[k] || a->row[a->start[k + 1] - 1] != k)
+            return mr__fail(err, MR_ERR_INTERNAL, "the map to raw columns is not upper triangular");
     return MR_OK;
 }
 
 /* One level's weighted means of the raw columns into m[0..p) from its
  * internal sums c (p) and weight w: A' m = c / w. */
-static void raw_means(const double *A, const upper_entries *u, size_t p, const double *c, double w, double *m)
+static void raw_means(const mr__raw_map *a, size_t p, const double *c, double w, double *m)
 {
     size_t k, e;
     for (k = 0; k < p; k++) {
+        size_t diagonal = a->start[k + 1] - 1;
         double v = c[k] / w;
-        for (e = u->start[k]; e < u->start[k + 1]; e++) v -= u->value[e] * m[u->row[e]];
-        m[k] = v / A[k * p + k];
+        for (e = a->start[k]; e < diagonal; e++) v -= a->value[e] * m[a->row[e]];
+        m[k] = v / a->value[diagonal];
     }
 }
 
@@ -120,16 +98,17 @@ static void raw_means(const double *A, const upper_entries *u, size_t p, const d
 static mr_status level_means(mr_fit *fit, const mr__design *d, const mr__block_sums *t, mr__error *err)
 {
     size_t p = d->p, k, j, n = 0, room = 0;
-    upper_entries u = {NULL, NULL, NULL};
+    mr__raw_map a = {NULL, NULL, NULL};
     double *m = mr__malloc_array(p + 1, sizeof *m);
-    mr_status st = m ? upper_from(d->A, p, &u, err) : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    mr_status st = m ? mr__raw_map_from(d->A, p, &a, err) : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    if (st == MR_OK) st = check_upper(&a, p, err);
     if (st == MR_OK && (fit->many_mean_start = mr__malloc_array(d->nabsorb + 1, sizeof(size_t))) == NULL)
         st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     for (k = 0; st == MR_OK && k < d->nabsorb; k++) {
         const double *row = t->lev + k * MR__ABSORB_WIDTH(p);
         fit->many_mean_start[k] = n;
         if (!(row[0] > 0) || !isfinite(row[0])) continue; /* an empty level: no rows, no means */
-        raw_means(d->A, &u, p, row + 2, row[0], m);
+        raw_means(&a, p, row + 2, row[0], m);
         for (j = 0; st == MR_OK && j < p; j++) {
             if (m[j] == 0) continue;
             if (n == room && mr__fit_grow_many_means(fit, &room) != MR_OK) {
@@ -141,9 +120,7 @@ static mr_status level_means(mr_fit *fit, const mr__design *d, const mr__block_s
         }
     }
     if (st == MR_OK) fit->many_mean_start[d->nabsorb] = n;
-    mr__free(u.start);
-    mr__free(u.row);
-    mr__free(u.value);
+    mr__raw_map_release(&a);
     mr__free(m);
     return st;
 }

@@ -17,22 +17,14 @@
 #include "common/probability.h"
 #include "solve/normal_eq.h"
 
-/* A's non-zeros, column by column: column k's are row[start[k] ..
- * start[k + 1]) with their values.  Centring makes A the identity plus a
- * few entries per column, so the map back costs p times those. */
-typedef struct sparse_columns {
-    size_t *start, *row;
-    double *value;
-} sparse_columns;
-
-static void release_sparse(sparse_columns *a)
+void mr__raw_map_release(mr__raw_map *a)
 {
     mr__free(a->start);
     mr__free(a->row);
     mr__free(a->value);
 }
 
-static mr_status sparse_from(const double *A, size_t p, sparse_columns *a, mr__error *err)
+mr_status mr__raw_map_from(const double *A, size_t p, mr__raw_map *a, mr__error *err)
 {
     size_t i, k, n = 0;
     for (i = 0; i < p * p; i++) n += A[i] != 0;
@@ -57,7 +49,7 @@ static mr_status sparse_from(const double *A, size_t p, sparse_columns *a, mr__e
  * a^2 times it.  For a column that spans 1e200 a is about 1e-198 and the
  * variance is below the range of a double, though its square root is
  * not. */
-static double scaled_variance(const sparse_columns *a, const double *cov_s, size_t p, size_t j, double *u,
+static double scaled_variance(const mr__raw_map *a, const double *cov_s, size_t p, size_t j, double *u,
                               double *amax)
 {
     size_t k, l, e;
@@ -84,7 +76,7 @@ static double scaled_variance(const sparse_columns *a, const double *cov_s, size
  * error without dispersion goes to se_small[j], computed apart; elsewhere
  * se_small[j] stays 0 and the standard error is the square root of the
  * covariance, as always. */
-static void small_variances(const sparse_columns *a, const double *cov_s, const double *cov, size_t p, double *u,
+static void small_variances(const mr__raw_map *a, const double *cov_s, const double *cov, size_t p, double *u,
                             double *se_small)
 {
     size_t j;
@@ -105,8 +97,8 @@ mr_status mr__map_to_raw(const mr__design *d, const double *beta_s, const double
 {
     size_t p = d->p, i, j, k, e;
     double *T = mr__calloc(p * p + 1, sizeof *T);
-    sparse_columns a = {NULL, NULL, NULL};
-    mr_status st = T ? sparse_from(d->A, p, &a, err) : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    mr__raw_map a = {NULL, NULL, NULL};
+    mr_status st = T ? mr__raw_map_from(d->A, p, &a, err) : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     if (st == MR_OK) {
         memset(beta, 0, p * sizeof *beta);
         memset(cov, 0, p * p * sizeof *cov);
@@ -120,7 +112,7 @@ mr_status mr__map_to_raw(const mr__design *d, const double *beta_s, const double
                 for (i = 0, j = a.row[e]; i < p; i++) cov[j * p + i] += T[k * p + i] * a.value[e];
         small_variances(&a, cov_s, cov, p, T, se_small);
     }
-    release_sparse(&a);
+    mr__raw_map_release(&a);
     mr__free(T);
     return st;
 }

@@ -100,6 +100,19 @@ typedef struct mr__run {
     size_t resume_done_len, done_state_len;
 } mr__run;
 
+/* The design's map to the raw columns (model/design.h, A) by its
+ * non-zeros, column by column: column k's are row[start[k] ..
+ * start[k + 1]), rows increasing, with their values.  Centring makes A
+ * the identity plus a few entries per column, above the diagonal (a
+ * centred column's intercept share, an interaction's lower-order parts),
+ * so the map back costs p times those (result.c). */
+typedef struct mr__raw_map {
+    size_t *start, *row;
+    double *value;
+} mr__raw_map;
+mr_status mr__raw_map_from(const double *A, size_t p, mr__raw_map *a, mr__error *err);
+void mr__raw_map_release(mr__raw_map *a);
+
 /* result.c: cov_raw = A cov_internal A' and beta_raw = A beta_internal;
  * se_small[j] (zeroed by the caller) gets the standard error of a variance
  * below the range of a double, computed apart. */
