@@ -116,10 +116,8 @@ static void irls_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
     if (j->design->nabsorb == 0) return;
     part->levels.n = 0;
     /* rows out of the domain: the step is halved and the sums unused */
-    if (s->use->n > 0 && part->sums.invalid == 0 && !pt->calib_only) {
-        mr__level_input in = {s->use->n, iw->ws.w, iw->ws.D, iw->ws.sval, iw->ws.scol};
-        mr__level_part_block(pt, s->use, &in, iw->level_slot, &part->levels);
-    }
+    if (s->use->n > 0 && part->sums.invalid == 0 && !pt->calib_only)
+        mr__level_part_block(pt, s->use, &iw->ws, s->use->n, iw->level_slot, &part->levels);
 }
 
 /* The group's total into the pass's, in group order (accum/partial.h). */

@@ -110,12 +110,12 @@ mr_status mr__level_part_order(mr__level_part *p, const mr__design *d, mr__error
     return MR_OK;
 }
 
-void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, const mr__level_input *in, int32_t *slot,
-                          mr__level_part *out)
+void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, const mr__workspace *ws, size_t n,
+                          int32_t *slot, mr__level_part *out)
 {
     const mr__design *d = pt->design;
-    const size_t n = in->n, m = d->ndense, ns = d->nsparse;
-    const double *z = in->D + m * n;
+    const size_t m = d->ndense, ns = d->nsparse;
+    const double *z = ws->D + m * n;
     int32_t *cols = out->scratch_col;
     double *vals = out->scratch_val;
     size_t i, j, e, k;
@@ -123,7 +123,7 @@ void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, const 
     out->ncell = 0;
     for (i = 0; i < n; i++) {
         int32_t lev = mr__design_absorb_row(d, blk->lev, MR__BLOCK_ROWS, i), at;
-        double s = in->w[i];
+        double s = ws->w[i];
         if (lev < 0) lev = (int32_t)d->nabsorb; /* the reference's own row */
         at = row_for(out, slot, lev);
         out->db[2 * at] += s * s;
@@ -132,12 +132,12 @@ void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, const 
             size_t src = (size_t)out->source[j];
             if (src < m) {
                 cols[k] = (int32_t)d->dense_col[src];
-                vals[k++] = s * in->D[src * n + i];
+                vals[k++] = s * ws->D[src * n + i];
             } else {
-                int32_t col = in->scol[(src - m) * n + i];
+                int32_t col = ws->scol[(src - m) * n + i];
                 if (col < 0) continue;
                 cols[k] = col;
-                vals[k++] = s * (s * in->sval[(src - m) * n + i]);
+                vals[k++] = s * (s * ws->sval[(src - m) * n + i]);
             }
         }
         add_entries(out, at, cols, vals, k);

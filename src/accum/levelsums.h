@@ -50,27 +50,18 @@ mr_status mr__level_part_order(mr__level_part *p, const mr__design *d, mr__error
 /* total[level * width ..] += the part's rows, in the part's order. */
 void mr__level_part_add_to(const mr__level_part *p, double *total);
 
-/* What a block's rows are made from: its worker's workspace as
- * mr__accumulate_block left it (sqrt(w), the design's columns), viewed
- * in place.  The worker makes the block's rows (mr__level_part_block)
- * right after its sums, and the calling thread only adds them in block
- * order (mr__level_part_add_to): the same arithmetic in the same order
- * whichever thread makes them, so the same bits. */
-typedef struct mr__level_input {
-    size_t n;        /* rows kept (0: none) */
-    double *w, *D;   /* sqrt(w); the dense columns times sqrt(w), then sqrt(w) z (n apart) */
-    double *sval;    /* the sparse entries (n apart) */
-    int32_t *scol;
-} mr__level_input;
-
-
-/* The block's rows from its kept inputs: d += w, b_D += w z, c += w x for
- * each row at its level, the reference's row numbered nabsorb (the pass's
- * rows hold it after the others': solve/absorb.h, "Precision").  slot is
+/* The block's rows from ws as mr__accumulate_block has just left it for
+ * the block's n rows (sqrt(w); the dense columns times sqrt(w), then
+ * sqrt(w) z; the sparse entries; each n apart): d += w, b_D += w z,
+ * c += w x for each row at its level, the reference's row numbered
+ * nabsorb (the pass's rows hold it after the others': solve/absorb.h,
+ * "Precision").  The worker that computed the block makes them, and the
+ * calling thread adds them in block order (mr__level_part_add_to): the
+ * same arithmetic in the same order whichever thread makes them.  slot is
  * a slot map of nabsorb + 1 entries (all -1, and left so).  The part must
  * have room for min(nabsorb + 1, rows) levels and rows x (ndense +
  * nsparse) cells, and its order (mr__level_part_order). */
-void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, const mr__level_input *in, int32_t *slot,
-                          mr__level_part *out);
+void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, const mr__workspace *ws, size_t n,
+                          int32_t *slot, mr__level_part *out);
 
 #endif

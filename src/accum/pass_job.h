@@ -106,10 +106,10 @@ mr_status mr__pass_keep_block(const struct mr__pass_cfg *cfg, struct mr__pass_re
                               mr__error *err);
 /* Whether blocks of this pass are packed for the store. */
 int mr__pass_store_packs(const struct mr__pass_cfg *cfg);
-/* A workspace for worker i from the pool (1), or none kept (0); and back. */
 /* n doubles of level totals, zeroed: those the pool kept when of that
  * size (their pages already mapped), else new; NULL when out of memory. */
 double *mr__pass_pool_take_levels(struct mr__pass_pool *pool, size_t n);
+/* A workspace for worker i from the pool (1), or none kept (0); and back. */
 int mr__pass_pool_take_workspace(struct mr__pass_pool *pool, const mr__design *d, size_t i, mr__workspace *ws);
 void mr__pass_pool_keep_workspace(struct mr__pass_pool *pool, const mr__design *d, size_t nworkers, size_t i,
                                   mr__workspace *ws);
