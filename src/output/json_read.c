@@ -653,29 +653,30 @@ static mr_status cut_apart(const char *text, size_t n, char **rest, const char *
     return MR_OK;
 }
 
-/* The document's tree: with a `many` factor of 10^6 levels (186 MB of
- * JSON) a tree of it all took 1 GB, so the levels' records are left out
- * of it, to be read one at a time (read_records_apart), when the file is
- * laid out as json.c writes it. */
-static json_t *load_tree(reader *r, char *text, size_t n, json_error_t *e)
+/* The document's tree from the file's text, read once: with a `many`
+ * factor of 10^6 levels (186 MB of JSON) a tree of it all took 1 GB, so
+ * with `apart` the levels' records are left out of it, to be read one at
+ * a time (read_records_apart), when the file is laid out as json.c writes
+ * it; otherwise, or when that rest is not JSON, the whole text. */
+static json_t *load_tree(reader *r, const char *text, size_t n, int apart, json_error_t *e)
 {
     char *rest = NULL;
-    json_t *root;
-    if (text == NULL || cut_apart(text, n, &rest, &r->apart_lo, &r->apart_hi) != MR_OK || rest == NULL) {
-        r->apart_lo = r->apart_hi = NULL;
-        return json_load_file(r->path, JSON_REJECT_DUPLICATES, e);
+    json_t *root = NULL;
+    /* a file that cannot be read whole: jansson's own reading says why */
+    if (text == NULL) return json_load_file(r->path, JSON_REJECT_DUPLICATES, e);
+    if (apart && cut_apart(text, n, &rest, &r->apart_lo, &r->apart_hi) == MR_OK && rest != NULL) {
+        root = json_loads(rest, JSON_REJECT_DUPLICATES, e);
+        mr__free(rest);
     }
-    root = json_loads(rest, JSON_REJECT_DUPLICATES, e);
-    mr__free(rest);
     if (root != NULL) return root;
     r->apart_lo = r->apart_hi = NULL;
-    return json_load_file(r->path, JSON_REJECT_DUPLICATES, e);
+    return json_loadb(text, n, JSON_REJECT_DUPLICATES, e);
 }
 
-static mr_status read_fit(reader *r, char *text, size_t n)
+static mr_status read_fit(reader *r, const char *text, size_t n, int apart)
 {
     json_error_t e;
-    json_t *root = load_tree(r, text, n, &e);
+    json_t *root = load_tree(r, text, n, apart, &e);
     mr_status st;
     if (root == NULL) return load_failed(r, &e);
     if ((r->fit = mr__calloc(1, sizeof *r->fit)) == NULL) st = no_memory(r);
@@ -702,14 +703,12 @@ mr_status mr_fit_read_json(const char *path, mr_fit **out, char *msg, size_t msg
     if (msgcap > 0) msg[0] = '\0';
     MR__TRY(readable(&r));
     text = file_text(path, &n);
-    st = read_fit(&r, text, n);
+    st = read_fit(&r, text, n, 1);
     if (st != MR_OK && r.apart_broken) {
         /* not laid out as written here: the whole tree, as any JSON */
         reader again = {path, NULL, msg, msgcap, "", 0, 0, NULL, NULL, 0};
-        mr__free(text);
-        text = NULL;
         r = again;
-        st = read_fit(&r, NULL, 0);
+        st = read_fit(&r, text, n, 0);
     }
     mr__free(text);
     if (st != MR_OK) return st;
