@@ -58,14 +58,11 @@ static mr_status copy_levels(mr_fit *fit, const mr__design *d, mr__error *err)
 
 mr_status mr__fit_grow_many_means(mr_fit *fit, size_t *room)
 {
-    size_t more = *room < 64 ? 64 : 2 * *room;
-    size_t *col = mr__realloc(fit->many_mean_col, more * sizeof *col);
-    double *val;
-    if (col == NULL) return MR_ERR_NO_MEMORY;
-    fit->many_mean_col = col;
-    if ((val = mr__realloc(fit->many_mean_val, more * sizeof *val)) == NULL) return MR_ERR_NO_MEMORY;
-    fit->many_mean_val = val;
-    *room = more;
+    size_t col_cap = *room, val_cap = *room;
+    if (mr__reserve((void **)&fit->many_mean_col, &col_cap, *room + 1, sizeof *fit->many_mean_col) != MR_OK ||
+        mr__reserve((void **)&fit->many_mean_val, &val_cap, *room + 1, sizeof *fit->many_mean_val) != MR_OK)
+        return MR_ERR_NO_MEMORY;
+    *room = col_cap < val_cap ? col_cap : val_cap;
     return MR_OK;
 }
 
