@@ -1237,12 +1237,17 @@ MR_API int mr_fit_coef_not_estimable(const mr_fit *fit, size_t j);
  *
  * Robust standard errors by rows (mr_fitter_set_robust) split their final
  * pass the same way, each group sending its score sums and X'WX.
+ * Cluster-robust ones (mr_fitter_set_cluster) need the file grouped by
+ * the cluster column: each rank sends, per block of its range, its runs
+ * of one cluster (each run's first key word, the first and last runs'
+ * score sums, the sum of s s' over the runs between), and every rank adds
+ * every block's in block order as one process does (the same bits).  A
+ * file not grouped by the column is MR_ERR_CLUSTERS on every rank (one
+ * process would hold a table of every cluster instead).
  *
  * Refused under a share of more than one rank (MR_ERR_USAGE): standard
  * input or a pipe (each rank must read the file itself), a checkpoint,
- * cluster-robust standard errors (mr_fitter_set_cluster: a cluster's rows
- * may lie in several ranks' blocks), a factor declared `many`, a family
- * parameter by profile likelihood.  mr_fitter_run and mr_fitter_run_set
+ * a factor declared `many`, a family parameter by profile likelihood.  mr_fitter_run and mr_fitter_run_set
  * take the share; other runs (comparisons, scoring) ignore it.
  *
  * Errors: every exchange carries each rank's status and message.  A rank

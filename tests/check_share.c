@@ -29,11 +29,12 @@ static void write_rows(void)
     snprintf(data_path, sizeof data_path, "/tmp/mr_share_%d.csv", (int)getpid());
     f = fopen(data_path, "w");
     ck_assert_ptr_nonnull(f);
-    fputs("count,group,dose,years\n", f);
+    /* person: runs of 5 rows (grouped), across blocks, groups and ranks */
+    fputs("count,group,dose,years,person\n", f);
     for (i = 0; i < ROWS; i++) {
         double u = (double)(next_random(&rng) >> 11) / 9007199254740992.0;
-        fprintf(f, "%d,%c,%.4f,%.2f\n", (int)(u * 7) % 5, "abcd"[i % 4], u * 3 + (double)(i % 7),
-                1 + (double)(i % 9) / 4);
+        fprintf(f, "%d,%c,%.4f,%.2f,p%ld\n", (int)(u * 7) % 5, "abcd"[i % 4], u * 3 + (double)(i % 7),
+                1 + (double)(i % 9) / 4, i / 5);
     }
     ck_assert_int_eq(fclose(f), 0);
 }
@@ -97,8 +98,10 @@ static int gather(void *user, const void *mine, size_t len, void **all, size_t *
 }
 
 /* kind: PLAIN (IRLS passes over the file), COLLAPSED (a model whose rows
- * collapse into patterns: no dose), ROBUST (PLAIN with HC1 standard errors) */
-enum { PLAIN, COLLAPSED, ROBUST }; /* a fit's kind */
+ * collapse into patterns: no dose), ROBUST (PLAIN with HC1 standard
+ * errors), CLUSTERED (PLAIN with HC1 standard errors by person, the file
+ * grouped by it), UNGROUPED (by group, which comes back every 4 rows) */
+enum { PLAIN, COLLAPSED, ROBUST, CLUSTERED, UNGROUPED }; /* a fit's kind */
 
 static mr_fitter *new_fitter(int kind)
 {
@@ -111,7 +114,8 @@ static mr_fitter *new_fitter(int kind)
     for (i = 0; model[i] && (!collapse || i < 4); i++) ck_assert_int_eq(mr_fitter_model_line(f, model[i], "test"), MR_OK);
     mr_fitter_set_int(f, MR_OPT_THREADS, 2);
     mr_fitter_set_int(f, MR_OPT_NO_COLLAPSE, !collapse);
-    if (kind == ROBUST) ck_assert_int_eq(mr_fitter_set_robust(f, MR_ROBUST_HC1), MR_OK);
+    if (kind >= ROBUST) ck_assert_int_eq(mr_fitter_set_robust(f, MR_ROBUST_HC1), MR_OK);
+    if (kind >= CLUSTERED) ck_assert_int_eq(mr_fitter_set_cluster(f, kind == CLUSTERED ? "person" : "group", 0), MR_OK);
     return f;
 }
 
@@ -171,6 +175,7 @@ static void same_robust(const mr_fit *a, const mr_fit *b)
     size_t i, j, p = mr_fit_ncoef(a);
     ck_assert_int_eq(mr_fit_robust(a), mr_fit_robust(b));
     for (i = 0; i < p; i++) {
+        ck_assert_uint_eq(mr_fit_clusters(a), mr_fit_clusters(b));
         ck_assert(memcmp(&(double){mr_fit_robust_std_error(a, i)}, &(double){mr_fit_robust_std_error(b, i)},
                          sizeof(double)) == 0);
         for (j = 0; j < p; j++)
@@ -222,22 +227,51 @@ START_TEST(robust_shared_fit_is_the_same_bits)
 }
 END_TEST
 
-/* Rank 1 fails its second pass: every rank ends with its error. */
-START_TEST(an_error_on_one_rank_ends_every_rank)
+/* Every one of n ranks ended with status st and one message saying what. */
+static void every_rank_ended_with(const rank_run *runs, int n, mr_status st, const char *what)
 {
-    rank_run runs[MAX_RANKS];
     int k;
-    write_rows();
-    setenv("MILLRACE_TEST_SHARE_ERROR", "1:2", 1);
-    run_ranks(3, PLAIN, 0, data_path, runs);
-    unsetenv("MILLRACE_TEST_SHARE_ERROR");
-    for (k = 0; k < 3; k++) {
-        ck_assert_int_eq(runs[k].st, MR_ERR_FORMAT);
+    for (k = 0; k < n; k++) {
+        ck_assert_int_eq(runs[k].st, st);
         ck_assert(runs[k].ended_alike);
         ck_assert_ptr_null(runs[k].fit);
         ck_assert_str_eq(runs[k].msg, runs[0].msg);
     }
-    ck_assert_ptr_nonnull(strstr(runs[0].msg, "rank 1 met a malformed row in pass 2"));
+    ck_assert_ptr_nonnull(strstr(runs[0].msg, what));
+}
+
+START_TEST(cluster_robust_shared_fit_is_the_same_bits)
+{
+    check_shared(CLUSTERED); /* every rank's blocks of runs added in block order */
+}
+END_TEST
+
+/* A file not grouped by the cluster column: one process falls back on a
+ * table of every cluster; a share, which holds none, ends every rank
+ * with one message saying to group the file. */
+START_TEST(a_share_needs_the_file_grouped_by_cluster)
+{
+    rank_run runs[MAX_RANKS];
+    mr_fit *ref;
+    write_rows();
+    ref = plain_fit(UNGROUPED);
+    ck_assert_uint_eq(mr_fit_clusters(ref), 4);
+    mr_fit_free(ref);
+    run_ranks(3, UNGROUPED, 0, data_path, runs);
+    every_rank_ended_with(runs, 3, MR_ERR_CLUSTERS, "grouped by the cluster column");
+    unlink(data_path);
+}
+END_TEST
+
+/* Rank 1 fails its second pass: every rank ends with its error. */
+START_TEST(an_error_on_one_rank_ends_every_rank)
+{
+    rank_run runs[MAX_RANKS];
+    write_rows();
+    setenv("MILLRACE_TEST_SHARE_ERROR", "1:2", 1);
+    run_ranks(3, PLAIN, 0, data_path, runs);
+    unsetenv("MILLRACE_TEST_SHARE_ERROR");
+    every_rank_ended_with(runs, 3, MR_ERR_FORMAT, "rank 1 met a malformed row in pass 2");
     unlink(data_path);
 }
 END_TEST
@@ -282,6 +316,8 @@ int main(void)
     tcase_add_test(tc, shared_fit_is_the_same_bits);
     tcase_add_test(tc, collapsed_shared_fit_is_the_same_bits);
     tcase_add_test(tc, robust_shared_fit_is_the_same_bits);
+    tcase_add_test(tc, cluster_robust_shared_fit_is_the_same_bits);
+    tcase_add_test(tc, a_share_needs_the_file_grouped_by_cluster);
     tcase_add_test(tc, an_error_on_one_rank_ends_every_rank);
     tcase_add_test(tc, what_a_share_cannot_take_is_refused_everywhere);
     suite_add_tcase(s, tc);

@@ -2,6 +2,7 @@
 
 #include "accum/clusters.h"
 #include "common/alloc.h"
+#include "input/chunk.h"
 
 #define MIB (1024.0 * 1024.0)
 
@@ -139,6 +140,64 @@ mr_status mr__clusters_add_streamed(mr__clusters *c, size_t nruns, const uint64_
         for (b = 0; b < c->p; b++)
             for (a = 0; a <= b; a++) c->meat[b * c->p + a] += inner[b * c->p + a];
     return MR_OK;
+}
+
+/* ---- streamed, as bytes ------------------------------------------------- */
+
+void mr__clusters_put_block(uint64_t block, size_t p, size_t nruns, const uint64_t *key, const double *vec,
+                            const double *inner, mr__bytebuf *b)
+{
+    size_t i, a, nvec = nruns < 2 ? nruns : 2;
+    mr__bytebuf_u64(b, block);
+    mr__bytebuf_u64(b, nruns);
+    /* a run between the first and the last is only ever seen by its
+     * fingerprint, its first word */
+    for (i = 0; i < nruns; i++) mr__bytebuf_u64(b, key[2 * i]);
+    for (i = 0; i < nvec; i++) mr__bytebuf_u64(b, key[2 * (i == 0 ? 0 : nruns - 1) + 1]);
+    for (i = 0; i < nvec * p; i++) mr__bytebuf_f64(b, vec[i]);
+    if (nruns > 2)
+        for (i = 0; i < p; i++)
+            for (a = 0; a <= i; a++) mr__bytebuf_f64(b, inner[i * p + a]);
+}
+
+/* One block back into key, vec (2 p) and inner (p x p, upper): its runs,
+ * or (size_t)-1 when the bytes are not a block. */
+static size_t get_block(mr__byteread *r, size_t p, uint64_t *key, double *vec, double *inner)
+{
+    size_t i, a, nruns = (size_t)mr__byteread_count(r, MR__BLOCK_ROWS, 8), nvec = nruns < 2 ? nruns : 2;
+    for (i = 0; i < nruns; i++) {
+        key[2 * i] = mr__byteread_u64(r);
+        key[2 * i + 1] = 0;
+    }
+    for (i = 0; i < nvec; i++) key[2 * (i == 0 ? 0 : nruns - 1) + 1] = mr__byteread_u64(r);
+    for (i = 0; i < nvec * p; i++) vec[i] = mr__byteread_f64(r);
+    if (nruns > 2)
+        for (i = 0; i < p; i++)
+            for (a = 0; a <= i; a++) inner[i * p + a] = mr__byteread_f64(r);
+    return r->bad ? (size_t)-1 : nruns;
+}
+
+mr_status mr__clusters_add_blocks(mr__clusters *c, mr__byteread *r, uint64_t *next_block, int *not_grouped,
+                                  mr__error *err)
+{
+    uint64_t *key = mr__malloc_array(2 * MR__BLOCK_ROWS, sizeof *key);
+    double *vec = mr__malloc_array(2 * c->p + 1, sizeof *vec);
+    double *inner = mr__malloc_array(c->p * c->p + 1, sizeof *inner);
+    mr_status st = key && vec && inner ? MR_OK : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    while (st == MR_OK && r->at < r->end) {
+        uint64_t block = mr__byteread_u64(r);
+        size_t nruns = get_block(r, c->p, key, vec, inner);
+        if (nruns == (size_t)-1 || block != *next_block) {
+            st = mr__fail(err, MR_ERR_IO, "clusters' sums: bytes that are not the next block's");
+            break;
+        }
+        (*next_block)++;
+        st = mr__clusters_add_streamed(c, nruns, key, vec, inner, not_grouped, err);
+    }
+    mr__free(key);
+    mr__free(vec);
+    mr__free(inner);
+    return st;
 }
 
 /* ---- table --------------------------------------------------------------- */

@@ -15,12 +15,18 @@
  * first appear; s s' summed in that order at the end.
  *
  * The set or the table may take at most `limit` bytes: beyond it,
- * MR_ERR_CLUSTERS with a message saying how to go on. */
+ * MR_ERR_CLUSTERS with a message saying how to go on.
+ *
+ * Shared by several processes (fit/share.c), a rank does not add its
+ * blocks: it writes each as bytes (mr__clusters_put_block), and every
+ * rank adds every rank's, in block order, through the same streamed
+ * additions (mr__clusters_add_blocks): the bits of one process. */
 #ifndef MR_CLUSTERS_H
 #define MR_CLUSTERS_H
 
 #include <stddef.h>
 #include <stdint.h>
+#include "common/bytebuf.h"
 #include "common/error.h"
 
 typedef struct mr__clusters {
@@ -51,6 +57,20 @@ mr_status mr__clusters_add_streamed(mr__clusters *c, size_t nruns, const uint64_
 /* vec: every run's s, p each. */
 mr_status mr__clusters_add_table(mr__clusters *c, size_t nruns, const uint64_t *key, const double *vec,
                                  mr__error *err);
+/* Appends a block's streamed runs (block: its number; the arguments of
+ * mr__clusters_add_streamed) to b (b->failed on out of memory): u64
+ * block, u64 nruns, each run's first key word, the second words of the
+ * first and the last runs, their s (as there are runs), and when
+ * nruns > 2 the upper triangle of inner, column by column: 16 + 8 nruns
+ * + 16 (p + 1) + 4 p (p + 1) bytes at most. */
+void mr__clusters_put_block(uint64_t block, size_t p, size_t nruns, const uint64_t *key, const double *vec,
+                            const double *inner, mr__bytebuf *b);
+/* Adds the blocks at r, written by mr__clusters_put_block, as
+ * mr__clusters_add_streamed would have; *next_block is the block they must
+ * start at (advanced past them).  MR_ERR_IO on bytes that are not such
+ * blocks, else as mr__clusters_add_streamed. */
+mr_status mr__clusters_add_blocks(mr__clusters *c, mr__byteread *r, uint64_t *next_block, int *not_grouped,
+                                  mr__error *err);
 /* After the last block: the open cluster closed, or the table summed. */
 mr_status mr__clusters_finish(mr__clusters *c, mr__error *err);
 void mr__clusters_release(mr__clusters *c);

@@ -20,7 +20,9 @@
  * and sums s s' in the order clusters first appeared.  Either way every
  * addition's order follows the block numbers alone: the same bits for any
  * thread count and read size.  The bookkeeping (the set, the table) may
- * take at most cfg->limit bytes (MR_ERR_CLUSTERS beyond it). */
+ * take at most cfg->limit bytes (MR_ERR_CLUSTERS beyond it).  Shared by
+ * several processes, each block's runs go out as bytes instead
+ * (cfg->blocks_out), for fit/share.c to add every rank's in block order. */
 #include <string.h>
 
 #include "accum/clusters.h"
@@ -208,11 +210,10 @@ static void meat_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
 static void close_group(meat_job *j)
 {
     mr__bytebuf *out = j->env->cfg->groups_out;
-    /* another process adds them in their place too (fit/share.c): rows, then bread */
-    if (out != NULL && !j->mc->clusters) {
-        mr__group_encode(&j->group, j->p, j->group_blocks, out);
-        mr__group_encode(&j->bread_group, j->p, j->group_blocks, out);
-    }
+    /* another process adds them in their place too (fit/share.c): rows,
+     * then bread; with clusters the bread alone (the clusters go by block) */
+    if (out != NULL && !j->mc->clusters) mr__group_encode(&j->group, j->p, j->group_blocks, out);
+    if (out != NULL) mr__group_encode(&j->bread_group, j->p, j->group_blocks, out);
     if (!j->mc->clusters) {
         mr__sums_add_totals(&j->env->res->sums, &j->group, j->p);
         mr__sums_zero_totals(&j->group, j->p);
@@ -245,6 +246,10 @@ static mr_status meat_add(void *job, mr__pass_slot *s, mr__error *err)
     add_groups(j, s);
     if (!j->mc->clusters) return MR_OK;
     if (j->mc->table) return mr__clusters_add_table(&j->cl, m->nruns, m->key, m->vec, err);
+    if (j->mc->blocks_out != NULL) {
+        mr__clusters_put_block(s->index, j->p, m->nruns, m->key, m->vec, m->inner, j->mc->blocks_out);
+        return MR_OK;
+    }
     return mr__clusters_add_streamed(&j->cl, m->nruns, m->key, m->vec, m->inner, &j->env->res->clusters_not_grouped,
                                      err);
 }
@@ -254,7 +259,7 @@ static mr_status meat_finish(void *job, mr_status st, mr__error *err)
     meat_job *j = job;
     if (st != MR_OK) return st;
     if (j->group_open) close_group(j);
-    if (!j->mc->clusters) return st;
+    if (!j->mc->clusters || j->mc->blocks_out != NULL) return st;
     st = mr__clusters_finish(&j->cl, err);
     j->env->res->clusters = j->cl.n;
     return st;

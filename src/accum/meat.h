@@ -16,6 +16,10 @@ typedef struct mr__meat_cfg {
                        cluster comes back after others */
     size_t limit;   /* bytes the clusters' bookkeeping may take */
     const char *display; /* the input's name in messages */
+    /* shared by several processes, streamed clusters: each block's runs
+     * appended here (clusters.h's bytes) instead of added; fit/share.c
+     * adds every rank's.  NULL: added here. */
+    struct mr__bytebuf *blocks_out;
 } mr__meat_cfg;
 
 #endif

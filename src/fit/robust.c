@@ -175,22 +175,26 @@ double mr_fit_robust_covariance(const mr_fit *fit, size_t i, size_t j)
 
 /* ---- the meat pass ------------------------------------------------------ */
 
-/* Over this rank's blocks (by rows only: fit/share.c refuses clusters),
- * then every rank's groups added in order, as one process would. */
-static mr_status shared_meat_pass(mr__run *r, mr__pass_cfg *c, mr__error *err)
+/* Over this rank's blocks, then every rank's groups (and by clusters,
+ * every rank's blocks of runs) added in order, as one process would. */
+static mr_status shared_meat_pass(mr__run *r, mr__pass_cfg *c, mr__meat_cfg *mc, mr__error *err)
 {
     mr__partial_range range = mr__share_range(r);
-    mr__bytebuf groups;
+    mr__bytebuf groups, blocks;
     mr_status st;
     memset(&groups, 0, sizeof groups);
+    memset(&blocks, 0, sizeof blocks);
     c->range = &range;
     c->groups_out = &groups;
+    if (mc->clusters) mc->blocks_out = &blocks;
     mr__pass_result_release(&r->meat, 0);
     st = mr__pass_run(c, &r->meat, err);
     /* this rank's own check first: every rank then learns how it went */
     if (st == MR_OK && c->store == NULL) st = mr__run_check_same_input(r, &r->meat, err);
-    st = mr__share_reduce_meat(r, st, &groups, &r->meat, err);
+    if (mc->clusters) st = mr__share_reduce_clusters(r, st, &groups, &blocks, &r->meat, err);
+    else st = mr__share_reduce_meat(r, st, &groups, &r->meat, err);
     mr__bytebuf_release(&groups);
+    mr__bytebuf_release(&blocks);
     return st == MR_OK ? mr__run_note_pass(r, &r->meat, err) : st;
 }
 
@@ -228,7 +232,7 @@ static mr_status meat_pass(mr__run *r, int table, mr__error *err)
         c.store = &r->store;
         c.store_fill = 0;
     }
-    if (mr__shared(r)) return shared_meat_pass(r, &c, err);
+    if (mr__shared(r)) return shared_meat_pass(r, &c, &mc, err);
     mr__pass_result_release(&r->meat, 0);
     st = mr__pass_run(&c, &r->meat, err);
     if (st != MR_OK) return st;
@@ -238,7 +242,8 @@ static mr_status meat_pass(mr__run *r, int table, mr__error *err)
 
 /* Streamed first: a file grouped by the cluster column needs one set of
  * the clusters seen; when a cluster comes back, the pass runs again with
- * every cluster's sums in a table. */
+ * every cluster's sums in a table (not when shared: fit/share.c says to
+ * group the file instead). */
 mr_status mr__robust_pass(mr__run *r, mr__error *err)
 {
     mr_status st;

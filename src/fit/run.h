@@ -286,6 +286,14 @@ mr_status mr__share_reduce(mr__run *r, mr_status st, const mr__bytebuf *groups, 
 mr_status mr__share_reduce_meat(mr__run *r, mr_status st, const mr__bytebuf *groups, mr__pass_result *res,
                                 mr__error *err);
 
+/* The same after the meat pass by clusters, streamed (robust.c): its
+ * bread's groups into res->bread and its blocks of runs (accum/clusters.h)
+ * added in block order into res->sums, res->clusters their number.  A
+ * file not grouped by the cluster column is MR_ERR_CLUSTERS on every rank
+ * (a share holds no table of clusters). */
+mr_status mr__share_reduce_clusters(mr__run *r, mr_status st, const mr__bytebuf *groups, const mr__bytebuf *blocks,
+                                    mr__pass_result *res, mr__error *err);
+
 /* The run's end (st: how it went): a failure not yet exchanged is, and
  * err then holds the error every rank ends with. */
 mr_status mr__share_end(mr__run *r, mr_status st, mr__error *err);

@@ -9,6 +9,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "accum/clusters.h"
 #include "accum/group_bytes.h"
 #include "common/alloc.h"
 #include "fit/run.h"
@@ -164,8 +165,6 @@ static mr_status refuse(const mr__run *r, mr__error *err)
         why = "standard input or a pipe (each process reads the input itself: give a file)";
     else if (f->checkpoint != NULL)
         why = "a checkpoint";
-    else if (f->cluster != NULL)
-        why = "cluster-robust standard errors (a cluster's rows may span processes)";
     else if (mr__spec_many(&f->spec) >= 0)
         why = "a factor declared many (its levels' sums are not exchanged yet)";
     if (why == NULL) return MR_OK;
@@ -227,29 +226,46 @@ static mr_status test_error(const mr__run *r, mr__error *err)
                     r->display, rank, pass);
 }
 
-/* Every rank's groups, in rank order (the group order), into the k
- * zeroed totals. */
+static mr_status covered(const mr__run *r, uint64_t next, const char *what, mr__error *err)
+{
+    if (next == r->first.map.n) return MR_OK;
+    return mr__fail(err, MR_ERR_INTERNAL, "the processes' %s cover %llu blocks of %llu", what,
+                    (unsigned long long)next, (unsigned long long)r->first.map.n);
+}
+
+/* This rank's pass result (st, payload) exchanged: MR_OK when every rank's
+ * payload came. */
+static mr_status exchange_pass(mr__run *r, mr_status st, const mr__bytebuf *payload, mr__error *err)
+{
+    if (st == MR_OK) st = test_error(r, err);
+    if (st == MR_OK && payload->failed) st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    return exchange(r->f->share, st, err->msg, payload, err);
+}
+
+/* Every rank's groups (rank k's: at[k], len[k] bytes), in rank order (the
+ * group order), into the k zeroed totals. */
+static mr_status add_groups(mr__run *r, const unsigned char *const *at, const size_t *len,
+                            mr__block_sums *const *totals, size_t k, mr__error *err)
+{
+    size_t p = r->design.p, i;
+    uint64_t next[2] = {0, 0};
+    int rank;
+    for (i = 0; i < k; i++) mr__sums_zero_totals(totals[i], p);
+    for (rank = 0; rank < r->f->share->nranks; rank++) {
+        mr__byteread rd;
+        mr__byteread_init(&rd, at[rank], len[rank]);
+        MR__TRY(mr__group_add_each(&rd, p, totals, k, next, err));
+    }
+    for (i = 0; i < k; i++) MR__TRY(covered(r, next[i], "group totals", err));
+    return MR_OK;
+}
+
 static mr_status reduce_groups(mr__run *r, mr_status st, const mr__bytebuf *groups, mr__block_sums *const *totals,
                                size_t k, mr__error *err)
 {
     mr_share *s = r->f->share;
-    size_t p = r->design.p, i;
-    uint64_t next[2] = {0, 0};
-    int rank;
-    if (st == MR_OK) st = test_error(r, err);
-    if (st == MR_OK && groups->failed) st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    MR__TRY(exchange(s, st, err->msg, groups, err));
-    for (i = 0; i < k; i++) mr__sums_zero_totals(totals[i], p);
-    for (rank = 0; rank < s->nranks; rank++) {
-        mr__byteread rd;
-        mr__byteread_init(&rd, s->got[rank], s->got_len[rank]);
-        MR__TRY(mr__group_add_each(&rd, p, totals, k, next, err));
-    }
-    for (i = 0; i < k; i++)
-        if (next[i] != r->first.map.n)
-            return mr__fail(err, MR_ERR_INTERNAL, "the processes' group totals cover %llu blocks of %llu",
-                            (unsigned long long)next[i], (unsigned long long)r->first.map.n);
-    return MR_OK;
+    MR__TRY(exchange_pass(r, st, groups, err));
+    return add_groups(r, s->got, s->got_len, totals, k, err);
 }
 
 mr_status mr__share_reduce(mr__run *r, mr_status st, const mr__bytebuf *groups, mr__pass_result *res, mr__error *err)
@@ -266,6 +282,86 @@ mr_status mr__share_reduce_meat(mr__run *r, mr_status st, const mr__bytebuf *gro
     totals[0] = &res->sums;
     totals[1] = &res->bread;
     return reduce_groups(r, st, groups, totals, 2, err);
+}
+
+/* Each rank's payload (u64 length of its groups, the groups, its blocks
+ * of runs) cut in two: s->got and s->got_len then the groups, at and len
+ * the blocks. */
+static mr_status split_payloads(mr_share *s, const unsigned char **at, size_t *len, mr__error *err)
+{
+    int rank;
+    for (rank = 0; rank < s->nranks; rank++) {
+        mr__byteread rd;
+        uint64_t n;
+        mr__byteread_init(&rd, s->got[rank], s->got_len[rank]);
+        n = mr__byteread_count(&rd, UINT64_MAX, 1);
+        if (rd.bad) return end_with(s, MR_ERR_IO, GARBLED, strlen(GARBLED), err);
+        s->got[rank] = rd.at;
+        s->got_len[rank] = (size_t)n;
+        at[rank] = rd.at + n;
+        len[rank] = (size_t)(rd.end - rd.at) - (size_t)n;
+    }
+    return MR_OK;
+}
+
+/* Every rank's blocks of runs added in block order, as one process adds
+ * its own (the same set of clusters seen, the same bits). */
+static mr_status add_cluster_blocks(mr__run *r, const unsigned char *const *at, const size_t *len,
+                                    mr__pass_result *res, mr__error *err)
+{
+    size_t p = r->design.p;
+    uint64_t next = 0;
+    int rank, not_grouped = 0;
+    mr__clusters cl;
+    mr_status st;
+    mr__sums_zero_totals(&res->sums, p);
+    st = mr__clusters_init(&cl, p, 0, r->f->cluster_memory, res->sums.xtwx, r->display, err);
+    for (rank = 0; st == MR_OK && rank < r->f->share->nranks; rank++) {
+        mr__byteread rd;
+        mr__byteread_init(&rd, at[rank], len[rank]);
+        st = mr__clusters_add_blocks(&cl, &rd, &next, &not_grouped, err);
+    }
+    if (st == MR_OK) st = mr__clusters_finish(&cl, err);
+    if (st == MR_OK) st = covered(r, next, "clusters' sums", err);
+    res->clusters = cl.n;
+    mr__clusters_release(&cl);
+    if (not_grouped)
+        return mr__fail(err, MR_ERR_CLUSTERS,
+                        "%s: the rows of each cluster are not together (a cluster comes back after others): a fit "
+                        "shared by several processes takes cluster-robust standard errors only from a file grouped "
+                        "by the cluster column; sort the rows by it (the header first), or fit in one process",
+                        r->display);
+    return st;
+}
+
+static void append(mr__bytebuf *b, const mr__bytebuf *more)
+{
+    unsigned char *room = more->len > 0 ? mr__bytebuf_room(b, more->len) : NULL;
+    if (room != NULL) memcpy(room, more->data, more->len);
+    b->failed |= more->failed;
+}
+
+mr_status mr__share_reduce_clusters(mr__run *r, mr_status st, const mr__bytebuf *groups, const mr__bytebuf *blocks,
+                                    mr__pass_result *res, mr__error *err)
+{
+    mr_share *s = r->f->share;
+    const unsigned char **at = mr__calloc((size_t)s->nranks, sizeof *at);
+    size_t *len = mr__calloc((size_t)s->nranks, sizeof *len);
+    mr__bytebuf payload;
+    mr__block_sums *bread = &res->bread;
+    memset(&payload, 0, sizeof payload);
+    if (st == MR_OK && (at == NULL || len == NULL)) st = mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    mr__bytebuf_u64(&payload, groups->len);
+    append(&payload, groups);
+    append(&payload, blocks);
+    st = exchange_pass(r, st, &payload, err);
+    mr__bytebuf_release(&payload);
+    if (st == MR_OK) st = split_payloads(s, at, len, err);
+    if (st == MR_OK) st = add_groups(r, s->got, s->got_len, &bread, 1, err);
+    if (st == MR_OK) st = add_cluster_blocks(r, at, len, res, err);
+    mr__free(at);
+    mr__free(len);
+    return st;
 }
 
 mr_status mr__share_end(mr__run *r, mr_status st, mr__error *err)

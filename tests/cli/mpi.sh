@@ -8,14 +8,16 @@
 # passes (continuous covariates of many values, --no-collapse), a model
 # whose rows collapse into patterns, a fit started from a previous one, and
 # a negative binomial whose theta is estimated; robust standard errors by
-# rows (HC1 from the cache, HC0 rereading a many-frame file).
+# rows (HC1 from the cache, HC0 rereading a many-frame file) and by
+# clusters of a file grouped by the cluster column (plain and many
+# frames); a file not grouped by it ends every rank with exit 13.
 # 600,000 rows: three groups of 16 blocks, so that with 3 ranks each rank
 # owns one.  One writer: one run log line, one JSON.  An error met by rank
 # 1 in its share of pass 2 (the test-only MILLRACE_TEST_SHARE_ERROR hook:
 # the first pass, by rank 0, catches every malformed row, so a real one
 # cannot reach pass 2) ends every rank with that one message, printed once,
-# and the same exit code; standard input, --checkpoint and --cluster are
-# refused (exit 2), and so is a JSON path that is the input (rank 0 alone
+# and the same exit code; standard input and --checkpoint are refused
+# (exit 2), and so is a JSON path that is the input (rank 0 alone
 # checks it; the others end with its message's exit code).  Without mpicc and mpirun the test says SKIPPED and
 # passes.  Source of truth: the single-process fit of the same data.
 source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
@@ -42,6 +44,8 @@ mkdir set
 { cat header; sed -n '200002,450001p' all.csv; } | zstd -q -c > set/b.csv.zst
 { cat header; sed -n '450002,$p' all.csv; } | gzip -n -c > set/c.csv.gz
 split -b 3000000 --filter='zstd -q -1 -c' all.csv > frames.zst
+awk -F, 'NR == 1 { print $0 ",person"; next } { print $0 ",p" int((NR - 2) / 7) }' all.csv |
+    split -b 3000000 --filter='zstd -q -1 -c' > frames_grouped.zst
 many=(--outcome events --family poisson --exposure followup --factor age_band --factor sex --numeric bmi
       --numeric age --no-collapse --tolerance 1e-12)
 few=(--outcome events --family poisson --exposure followup --factor age_band --factor sex)
@@ -92,6 +96,15 @@ case_ negbin nb frames.zst
 # robust standard errors by rows: the meat pass split as the IRLS passes are
 case_ robust many --robust hc1 all.csv
 case_ robust_nocache many --robust hc0 --no-cache frames.zst
+# cluster-robust standard errors from a file grouped by the cluster
+# column (runs of 7 rows, across blocks, groups and ranks): every rank's
+# blocks of runs added in block order
+awk -F, 'NR == 1 { print $0 ",person"; next } { print $0 ",p" int((NR - 2) / 7) }' all.csv > grouped.csv
+case_ clustered many --cluster person grouped.csv
+# 600,000 rows in runs of 7: 85,715 clusters, each met once
+[ "$(/usr/bin/python3 -c 'import json,sys; print(json.load(open(sys.argv[1]))["robust"]["clusters"])' clustered.3.json)" = 85715 ] &&
+    ok "clustered np 3: 85715 clusters" || fail clustered "not 85715 clusters"
+case_ clustered_frames many --cluster person --robust hc1 --no-cache frames_grouped.zst
 # a previous fit as the start: every rank reads it
 "$bin" fit --quiet --threads 1 --json prev.json "${many[@]}" set/a.csv > /dev/null 2>&1 || fail prev "exit $?"
 case_ started many --start-from prev.json all.csv
@@ -140,7 +153,9 @@ expect rank1_error 3 4 "rank 1 met a malformed row in pass 2" MILLRACE_TEST_SHAR
 expect rank2_error 3 4 "rank 2 met a malformed row in pass 3" MILLRACE_TEST_SHARE_ERROR=2:3 -- "${many[@]}" all.csv
 expect stdin_refused 2 2 "does not take standard input" -- "${many[@]}" -
 expect checkpoint_refused 2 2 "does not take a checkpoint" -- "${many[@]}" --checkpoint ck.state all.csv
-expect cluster_refused 2 2 "does not take cluster-robust" -- "${many[@]}" --cluster age_band all.csv
+# a cluster column the file is not grouped by: one process holds a table
+# of the clusters, a share none
+expect cluster_ungrouped 3 13 "grouped by the cluster column" -- "${many[@]}" --cluster age_band all.csv
 # rank 0 alone checks its outputs, before the fit: the others, waiting for
 # its first pass, end with its refusal
 expect output_is_input 3 2 "refusing to overwrite it" -- "${many[@]}" --json all.csv all.csv
