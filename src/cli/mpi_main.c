@@ -7,7 +7,6 @@
  * rank agreed on.  Built only by `make mpi`, with mpicc: the plain build
  * needs no MPI. */
 #define _POSIX_C_SOURCE 200809L
-#include <limits.h>
 #include <mpi.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -23,47 +22,44 @@ static void abort_all(MPI_Comm comm)
     MPI_Abort(comm, (int)MR_ERR_NO_MEMORY);
 }
 
-/* The lengths every rank sends, and from them each one's place. */
-static int places(MPI_Comm comm, size_t len, size_t *lens, int *counts, int *displs, int n, size_t *total)
+/* The most bytes one broadcast carries: MPI counts are ints.
+ * MILLRACE_TEST_MPI_PIECE (tests/cli/mpi.sh) makes it small, so that a
+ * test's exchanges go in many pieces. */
+static int piece_bytes(void)
 {
-    unsigned long long mine = len, *all = malloc((size_t)n * sizeof *all);
-    int k, fits = 1;
-    if (all == NULL) abort_all(comm);
-    MPI_Allgather(&mine, 1, MPI_UNSIGNED_LONG_LONG, all, 1, MPI_UNSIGNED_LONG_LONG, comm);
-    *total = 0;
-    for (k = 0; k < n; k++) {
-        /* MPI counts are ints: every rank sees the same lengths, so all
-         * refuse alike */
-        if (all[k] > (unsigned long long)(INT_MAX - *total)) fits = 0;
-        lens[k] = (size_t)all[k];
-        counts[k] = fits ? (int)all[k] : 0;
-        displs[k] = fits ? (int)*total : 0;
-        if (fits) *total += (size_t)all[k];
-    }
-    free(all);
-    return fits;
+    const char *v = getenv("MILLRACE_TEST_MPI_PIECE");
+    long n = v != NULL ? strtol(v, NULL, 10) : 0;
+    return n > 0 && n < (1L << 30) ? (int)n : 1 << 30;
 }
 
-/* mr_share_gather_fn over MPI: the lengths, then the bytes (below 2 GiB
- * in all). */
+/* mr_share_gather_fn over MPI: the lengths, then each rank's bytes
+ * broadcast from it in pieces of at most piece_bytes(), straight into
+ * their place: an exchange of any size (an allgather's int counts and
+ * displacements would stop at 2 GiB in all). */
 static int gather(void *user, const void *mine, size_t len, void **all, size_t *lens)
 {
     MPI_Comm comm = *(MPI_Comm *)user;
-    int n, *counts, *displs, fits;
-    size_t total;
+    unsigned long long mine_len = len, *got;
+    size_t total = 0, at = 0, off;
+    int n, k, rank, piece = piece_bytes();
     char *buf;
     MPI_Comm_size(comm, &n);
-    counts = malloc((size_t)n * sizeof *counts);
-    displs = malloc((size_t)n * sizeof *displs);
-    if (counts == NULL || displs == NULL) abort_all(comm);
-    fits = places(comm, len, lens, counts, displs, n, &total);
-    buf = fits ? malloc(total + 1) : NULL;
-    if (fits && buf == NULL) abort_all(comm);
-    if (fits) MPI_Allgatherv(mine, (int)len, MPI_BYTE, buf, counts, displs, MPI_BYTE, comm);
-    free(counts);
-    free(displs);
+    MPI_Comm_rank(comm, &rank);
+    if ((got = malloc((size_t)n * sizeof *got)) == NULL) abort_all(comm);
+    MPI_Allgather(&mine_len, 1, MPI_UNSIGNED_LONG_LONG, got, 1, MPI_UNSIGNED_LONG_LONG, comm);
+    for (k = 0; k < n; k++) total += (size_t)(lens[k] = (size_t)got[k]);
+    free(got);
+    if ((buf = malloc(total + 1)) == NULL) abort_all(comm);
+    for (k = 0; k < n; k++) {
+        if (k == rank && len > 0) memcpy(buf + at, mine, len);
+        for (off = 0; off < lens[k]; off += (size_t)piece) {
+            size_t left = lens[k] - off;
+            MPI_Bcast(buf + at + off, left < (size_t)piece ? (int)left : piece, MPI_BYTE, k, comm);
+        }
+        at += lens[k];
+    }
     *all = buf;
-    return fits ? 0 : 1;
+    return 0;
 }
 
 static mr_status shared_run(mr_fitter *fitter, const char *const *data, size_t ndata, mr_fit **out, void *user)

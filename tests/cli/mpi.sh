@@ -105,6 +105,11 @@ case_ clustered many --cluster person grouped.csv
 [ "$(/usr/bin/python3 -c 'import json,sys; print(json.load(open(sys.argv[1]))["robust"]["clusters"])' clustered.3.json)" = 85715 ] &&
     ok "clustered np 3: 85715 clusters" || fail clustered "not 85715 clusters"
 case_ clustered_frames many --cluster person --robust hc1 --no-cache frames_grouped.zst
+# every exchange broadcast in pieces of 1,000 bytes, as one of more than
+# 1 GiB goes (MPI counts are ints)
+export MILLRACE_TEST_MPI_PIECE=1000
+case_ pieces many --cluster person grouped.csv
+unset MILLRACE_TEST_MPI_PIECE
 # a previous fit as the start: every rank reads it
 "$bin" fit --quiet --threads 1 --json prev.json "${many[@]}" set/a.csv > /dev/null 2>&1 || fail prev "exit $?"
 case_ started many --start-from prev.json all.csv
