@@ -1245,9 +1245,15 @@ MR_API int mr_fit_coef_not_estimable(const mr_fit *fit, size_t j);
  * file not grouped by the column is MR_ERR_CLUSTERS on every rank (one
  * process would hold a table of every cluster instead).
  *
+ * A checkpoint (mr_fitter_set_checkpoint) is rank 0's alone: it takes
+ * the lock, writes the file and takes it up; the other ranks ignore the
+ * path and take rank 0's state, resumed or not, in the first exchange.
+ * The ranks' states are the same bits, so a checkpoint made under any
+ * number of ranks resumes under any other, or without a share.
+ *
  * Refused under a share of more than one rank (MR_ERR_USAGE): standard
- * input or a pipe (each rank must read the file itself), a checkpoint,
- * a factor declared `many`, a family parameter by profile likelihood.  mr_fitter_run and mr_fitter_run_set
+ * input or a pipe (each rank must read the file itself), a factor
+ * declared `many`, a family parameter by profile likelihood.  mr_fitter_run and mr_fitter_run_set
  * take the share; other runs (comparisons, scoring) ignore it.
  *
  * Errors: every exchange carries each rank's status and message.  A rank

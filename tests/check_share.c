@@ -19,7 +19,7 @@
 /* 40 blocks of 16384 rows: three groups of 16 blocks, the last short. */
 enum { ROWS = 40 * 16384 - 100, MAX_RANKS = 4 };
 
-static char data_path[64];
+static char data_path[64], checkpoint_path[64];
 
 static void write_rows(void)
 {
@@ -126,7 +126,10 @@ static void *rank_main(void *arg)
     mr_fitter *f = new_fitter(r->kind);
     if (mr_share_new(r->rank, r->h->n, gather, r, &share) != MR_OK) return NULL;
     mr_fitter_set_share(f, share);
-    if (r->checkpoint) mr_fitter_set_checkpoint(f, "/tmp/mr_share_never.state");
+    if (r->checkpoint) {
+        mr_fitter_set_checkpoint(f, checkpoint_path);
+        mr_fitter_set_int(f, MR_OPT_KEEP_CHECKPOINT, 1);
+    }
     r->st = mr_fitter_run(f, r->path, &r->fit);
     snprintf(r->msg, sizeof r->msg, "%s", mr_fitter_errmsg(f));
     /* every rank ends alike: the share has ended, or closes now (no
@@ -276,16 +279,43 @@ START_TEST(an_error_on_one_rank_ends_every_rank)
 }
 END_TEST
 
+/* Rank 0 alone keeps the checkpoint (kept here once the fit is done);
+ * a run that takes it up starts every rank from it, and reads no data:
+ * the bits of one process either way. */
+START_TEST(a_shared_fit_keeps_and_resumes_a_checkpoint)
+{
+    rank_run runs[MAX_RANKS];
+    mr_fit *ref;
+    int k, round;
+    write_rows();
+    snprintf(checkpoint_path, sizeof checkpoint_path, "/tmp/mr_share_%d.state", (int)getpid());
+    unlink(checkpoint_path);
+    ref = plain_fit(ROBUST);
+    for (round = 0; round < 2; round++) {
+        run_ranks(3, ROBUST, 1, data_path, runs);
+        ck_assert(access(checkpoint_path, F_OK) == 0);
+        for (k = 0; k < 3; k++) {
+            ck_assert_msg(runs[k].st == MR_OK, "round %d rank %d: %s", round, k, runs[k].msg);
+            mr_check_same_fit(ref, runs[k].fit);
+            same_robust(ref, runs[k].fit);
+            /* the second round reads no data: all its passes are those it took up */
+            ck_assert_int_eq((int)mr_fit_stat(runs[k].fit, MR_STAT_PASSES), (int)mr_fit_stat(ref, MR_STAT_PASSES));
+            if (round == 1 && k == 0)
+                ck_assert_int_eq(mr_fit_resumed_after_pass(runs[k].fit), (int)mr_fit_stat(ref, MR_STAT_PASSES));
+            mr_fit_free(runs[k].fit);
+        }
+    }
+    mr_fit_free(ref);
+    unlink(checkpoint_path);
+    unlink(data_path);
+}
+END_TEST
+
 START_TEST(what_a_share_cannot_take_is_refused_everywhere)
 {
     rank_run runs[MAX_RANKS];
     int k;
     write_rows();
-    run_ranks(2, PLAIN, 1, data_path, runs);
-    for (k = 0; k < 2; k++) {
-        ck_assert_int_eq(runs[k].st, MR_ERR_USAGE);
-        ck_assert_ptr_nonnull(strstr(runs[k].msg, "does not take a checkpoint"));
-    }
     run_ranks(3, PLAIN, 0, "-", runs);
     for (k = 0; k < 3; k++) ck_assert_int_eq(runs[k].st, MR_ERR_USAGE);
     unlink(data_path);
@@ -319,6 +349,7 @@ int main(void)
     tcase_add_test(tc, cluster_robust_shared_fit_is_the_same_bits);
     tcase_add_test(tc, a_share_needs_the_file_grouped_by_cluster);
     tcase_add_test(tc, an_error_on_one_rank_ends_every_rank);
+    tcase_add_test(tc, a_shared_fit_keeps_and_resumes_a_checkpoint);
     tcase_add_test(tc, what_a_share_cannot_take_is_refused_everywhere);
     suite_add_tcase(s, tc);
     return mr_check_run(s, 0);

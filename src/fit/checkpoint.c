@@ -114,7 +114,15 @@ static void put_state(mr__run *r, const mr__irls *s, const unsigned char *state,
 
 void mr__checkpoint_put_state(mr__run *r, const mr__irls *s, mr__bytebuf *b)
 {
+    int stage = r->have_resume && r->resume_stage > 0 ? r->resume_stage : 0;
+    unsigned char *at;
     put_state(r, s, NULL, mr__irls_encoded_size(s), b);
+    /* as a checkpoint goes on: the stage, its finished parts as they were
+     * read, and where the checksum goes (take_done reads them alike) */
+    mr__bytebuf_u64(b, (uint64_t)stage);
+    if (stage > 0 && (at = mr__bytebuf_room(b, r->resume_done_len)) != NULL)
+        memcpy(at, r->resume_done, r->resume_done_len);
+    mr__bytebuf_u64(b, 0);
 }
 
 /* state: the IRLS state's n bytes; stage 1 and 2 add their parts. */
@@ -371,8 +379,8 @@ static int take_done(mr__run *r, mr__byteread *rd, const unsigned char *state, s
 }
 
 /* The parts after the identity: 0 and the state taken, or why not.  A
- * checkpoint's stage and finished parts follow (take_done); another
- * process's start (mr__checkpoint_take_state) ends with the state. */
+ * checkpoint's stage and finished parts follow (take_done), as they do in
+ * another process's start (mr__checkpoint_take_state). */
 static const char *take_parts(mr__run *r, mr__byteread *rd, int checkpoint, mr__irls *resume, mr__error *err)
 {
     const unsigned char *header, *part;
@@ -447,7 +455,7 @@ mr_status mr__checkpoint_take_state(mr__run *r, const unsigned char *data, size_
     const char *why;
     mr__error_clear(&scratch);
     mr__byteread_init(&rd, data, len);
-    why = take_parts(r, &rd, 0, resume, &scratch);
+    why = take_parts(r, &rd, 1, resume, &scratch);
     if (why == NULL) return MR_OK;
     forget_run(r);
     if (scratch.status == MR_ERR_NO_MEMORY) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
@@ -474,6 +482,9 @@ mr_status mr__checkpoint_begin(mr__run *r, mr__irls *resume, int *have_resume, m
     if (mr__read_only_once(r->path))
         return mr__fail(err, MR_ERR_USAGE, "checkpoint: %s is read only once (standard input or a pipe), so a "
                                            "killed fit could not read it again; give a file", r->display);
+    /* shared by several processes, rank 0 alone keeps the checkpoint:
+     * the others take up its state, resumed or not (fit/share.c) */
+    if (r->f->share != NULL && mr_share_rank(r->f->share) != 0) return MR_OK;
     MR__TRY(mr__outfile_check(r->f->checkpoint, inputs, 1, err));
     st = mr_output_lock_take(r->f->checkpoint, &r->checkpoint_lock, msg, sizeof msg);
     if (st != MR_OK) return mr__fail(err, st, "%s", msg);

@@ -217,7 +217,8 @@ mr_status mr__checkpoint_begin(mr__run *r, mr__irls *resume, int *have_resume, m
 mr_status mr__checkpoint_write(mr__run *r, const mr__irls *s, mr__error *err);
 
 /* The run's state after its first pass (the counts, the first pass's
- * result, the IRLS state s) appended to b, as a checkpoint holds it
+ * result, the IRLS state s, and for a run resumed after its passes its
+ * stage and finished parts) appended to b, as a checkpoint holds it
  * (b->failed on out of memory); and taken up from such bytes as a resumed
  * run takes a checkpoint (the header bound again): MR_ERR_INTERNAL on
  * bytes that do not take, MR_ERR_NO_MEMORY.  Another process's start

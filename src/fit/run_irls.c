@@ -164,7 +164,8 @@ static mr_status init_state(mr__run *r, irls_job *job, mr__irls *s, mr__error *e
         s->threads = r->nthreads; /* not in the encoding */
         memset(job->resume, 0, sizeof *job->resume);
         if (s->p != r->design.p) return mr__fail(err, MR_ERR_INTERNAL, "the checkpoint's state does not fit the design");
-        return MR_OK;
+        /* resumed by rank 0: the others take up the same state */
+        return job->checkpoints ? mr__share_send_start(r, s, err) : MR_OK;
     }
     memset(&c, 0, sizeof c);
     c.p = mr__design_ncoef(&r->design);

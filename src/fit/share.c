@@ -163,8 +163,6 @@ static mr_status refuse(const mr__run *r, mr__error *err)
     const char *why = NULL;
     if (r->set.n == 0 && mr__read_only_once(r->path))
         why = "standard input or a pipe (each process reads the input itself: give a file)";
-    else if (f->checkpoint != NULL)
-        why = "a checkpoint";
     else if (mr__spec_many(&f->spec) >= 0)
         why = "a factor declared many (its levels' sums are not exchanged yet)";
     if (why == NULL) return MR_OK;

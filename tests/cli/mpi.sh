@@ -10,14 +10,17 @@
 # a negative binomial whose theta is estimated; robust standard errors by
 # rows (HC1 from the cache, HC0 rereading a many-frame file) and by
 # clusters of a file grouped by the cluster column (plain and many
-# frames); a file not grouped by it ends every rank with exit 13.
+# frames); a file not grouped by it ends every rank with exit 13.  A fit
+# with --checkpoint killed after an IRLS pass, after its last pass or after
+# the robust pass goes on, under as many processes, others or one, to the
+# single process's JSON.
 # 600,000 rows: three groups of 16 blocks, so that with 3 ranks each rank
 # owns one.  One writer: one run log line, one JSON.  An error met by rank
 # 1 in its share of pass 2 (the test-only MILLRACE_TEST_SHARE_ERROR hook:
 # the first pass, by rank 0, catches every malformed row, so a real one
 # cannot reach pass 2) ends every rank with that one message, printed once,
-# and the same exit code; standard input and --checkpoint are refused
-# (exit 2), and so is a JSON path that is the input (rank 0 alone
+# and the same exit code; standard input is refused (exit 2), and so is a
+# JSON path that is the input (rank 0 alone
 # checks it; the others end with its message's exit code).  Without mpicc and mpirun the test says SKIPPED and
 # passes.  Source of truth: the single-process fit of the same data.
 source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
@@ -157,12 +160,49 @@ expect() {
 expect rank1_error 3 4 "rank 1 met a malformed row in pass 2" MILLRACE_TEST_SHARE_ERROR=1:2 -- "${many[@]}" all.csv
 expect rank2_error 3 4 "rank 2 met a malformed row in pass 3" MILLRACE_TEST_SHARE_ERROR=2:3 -- "${many[@]}" all.csv
 expect stdin_refused 2 2 "does not take standard input" -- "${many[@]}" -
-expect checkpoint_refused 2 2 "does not take a checkpoint" -- "${many[@]}" --checkpoint ck.state all.csv
 # a cluster column the file is not grouped by: one process holds a table
 # of the clusters, a share none
 expect cluster_ungrouped 3 13 "grouped by the cluster column" -- "${many[@]}" --cluster age_band all.csv
 # rank 0 alone checks its outputs, before the fit: the others, waiting for
 # its first pass, end with its refusal
 expect output_is_input 3 2 "refusing to overwrite it" -- "${many[@]}" --json all.csv all.csv
-[ ! -e ck.state ] && ok "no checkpoint written" || fail checkpoint_refused "ck.state written"
+
+# --checkpoint: rank 0 alone keeps it, and a fit it resumes starts every
+# rank from it.  Killed (rank 0's SIGKILL just after its K-th checkpoint,
+# the test-only MILLRACE_TEST_KILL hook: K = 2 after an IRLS pass, 5 after
+# the last, 6 after the robust pass) under NP processes, then run again
+# under RE processes (0: the plain command), it writes the single
+# process's JSON; the kill leaves the checkpoint, the finished run removes it.
+resume_case() {
+    local k=$1 np=$2 re=$3 name="resume_k$1_np$2_re$3" rc
+    rm -f ck.state "$name.json"
+    env MILLRACE_TEST_KILL="checkpoint:$k:after" timeout 600 mpirun --oversubscribe -np "$np" "$mpibin" fit --quiet \
+        --threads 1 --checkpoint ck.state --json "$name.json" "${many[@]}" --robust hc1 all.csv > /dev/null 2>&1
+    rc=$?
+    [ "$rc" -ne 0 ] && [ -s ck.state ] && [ ! -e "$name.json" ] ||
+        { fail "$name" "the killed run: exit $rc, $(ls ck.state "$name.json" 2>&1 | tr '\n' ' ')"; return; }
+    if [ "$re" = 0 ]; then
+        timeout 600 "$bin" fit --quiet --threads 1 --checkpoint ck.state --json "$name.json" "${many[@]}" \
+            --robust hc1 all.csv > /dev/null 2> "$name.err"
+    else
+        timeout 600 mpirun --oversubscribe -np "$re" "$mpibin" fit --quiet --threads 1 --checkpoint ck.state \
+            --json "$name.json" "${many[@]}" --robust hc1 all.csv > /dev/null 2> "$name.err"
+    fi
+    rc=$?
+    if [ "$rc" -ne 0 ]; then
+        fail "$name" "the rerun: exit $rc: $(head -c 300 "$name.err")"
+    elif ! grep -q "resumed after pass" "$name.err"; then
+        fail "$name" "not resumed: $(head -c 300 "$name.err")"
+    elif ! strip "$name.json" | cmp -s - robust.ref; then
+        fail "$name" "JSON differs: $(strip "$name.json" | diff robust.ref - | head -n 4 | tr '\n' '|')"
+    elif [ -e ck.state ]; then
+        fail "$name" "the checkpoint outlived the finished run"
+    else
+        ok "$name: killed after checkpoint $k under $np, resumed under ${re/#0/one process}: the same JSON"
+    fi
+}
+resume_case 2 2 2
+resume_case 2 3 0
+resume_case 5 2 3
+resume_case 6 3 2
 finish
