@@ -357,6 +357,13 @@ MR_API mr_status mr_fitter_set_start(mr_fitter *f, const mr_fit *previous, const
  * (under about 40 or 50, common practice) make cluster-robust standard
  * errors too small.
  *
+ * With a factor declared `many` the robust standard errors (by rows) are
+ * those of the other coefficients, k counting the levels too: each row's
+ * score has its level's IRLS-weighted means of the other columns taken
+ * out, which is what the full sandwich gives them; the levels' own
+ * standard errors stay model-based.  A cluster column is refused with such
+ * a factor (MR_ERR_USAGE).
+ *
  * mr_fitter_set_robust: the type, or MR_ROBUST_NONE (the default) for
  * none.  MR_OK or MR_ERR_USAGE for an unknown type. */
 typedef enum mr_robust { MR_ROBUST_NONE = 0, MR_ROBUST_HC0 = 1, MR_ROBUST_HC1 = 2 } mr_robust;

@@ -27,6 +27,7 @@
 
 #include "accum/clusters.h"
 #include "accum/group_bytes.h"
+#include "accum/levelsums.h"
 #include "accum/meat.h"
 #include "accum/partial.h"
 #include "accum/pass.h"
@@ -35,6 +36,9 @@
 typedef struct meat_part {
     mr__block_sums bread; /* this block's X'WX */
     mr__block_sums rows; /* rows: this block's sums */
+    /* an eliminated factor (design nabsorb > 0): the block's levels' rows
+     * at the weights w (the bread's) and at u^2 (the meat's), levelsums.h */
+    mr__level_part bread_levels, meat_levels;
     size_t nruns;
     uint64_t *key;       /* 2 words a run */
     double *vec;         /* streamed: first and last runs' s; table: every run's */
@@ -44,6 +48,7 @@ typedef struct meat_part {
 
 typedef struct meat_scratch {
     mr__workspace ws;
+    int32_t *level_slot; /* an eliminated factor's slot map (levelsums.h) */
     double *v;           /* one run's s */
     size_t *nz;          /* its non-zero entries */
     uint32_t *at;        /* where each run starts */
@@ -63,6 +68,22 @@ typedef struct meat_job {
 
 static mr_status no_memory(mr__error *err) { return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory"); }
 
+/* An eliminated factor's levels' rows (the reference's last) in the
+ * pass's bread and meat totals. */
+static mr_status open_levels(const meat_job *j, mr__error *err)
+{
+    const mr__design *d = j->design;
+    mr__pass_result *res = j->env->res;
+    size_t n = (d->nabsorb + 1) * (d->p + 2);
+    if (d->nabsorb == 0) return MR_OK;
+    /* the IRLS passes' spare totals, when the pool still holds them */
+    res->bread.lev = mr__pass_pool_take_levels(j->env->cfg->pool, n);
+    res->sums.lev = mr__zalloc(n, sizeof(double));
+    if (res->bread.lev == NULL || res->sums.lev == NULL) return no_memory(err);
+    res->bread.nlev = res->sums.nlev = d->nabsorb;
+    return MR_OK;
+}
+
 static mr_status meat_open(const mr__pass_env *env, void **out, mr__error *err)
 {
     meat_job *j = mr__calloc(1, sizeof *j);
@@ -75,9 +96,20 @@ static mr_status meat_open(const mr__pass_env *env, void **out, mr__error *err)
     MR__TRY(mr__sums_init(&env->res->sums, j->p, err));
     MR__TRY(mr__sums_init(&env->res->bread, j->p, err));
     MR__TRY(mr__sums_init(&j->bread_group, j->p, err));
+    MR__TRY(open_levels(j, err));
     if (j->mc->clusters) return mr__clusters_init(&j->cl, j->p, j->mc->table, j->mc->limit, env->res->sums.xtwx,
                                                      j->mc->display, err);
     return mr__sums_init(&j->group, j->p, err);
+}
+
+/* Room for a block's levels' rows: at most a level a row, and a row's
+ * entries each a cell (none without an eliminated factor). */
+static mr_status levels_init(const mr__design *d, mr__level_part *part, mr__error *err)
+{
+    if (d->nabsorb == 0) return MR_OK;
+    MR__TRY(mr__level_part_init(part, d->p + 2, d->nabsorb + 1 < MR__BLOCK_ROWS ? d->nabsorb + 1 : MR__BLOCK_ROWS,
+                                MR__BLOCK_ROWS * (d->ndense + d->nsparse), err));
+    return mr__level_part_order(part, d, err);
 }
 
 static mr_status meat_slot_init(void *job, mr__pass_slot *s, mr__error *err)
@@ -87,6 +119,8 @@ static mr_status meat_slot_init(void *job, mr__pass_slot *s, mr__error *err)
     s->part = m;
     if (m == NULL) return no_memory(err);
     MR__TRY(mr__sums_init_block(&m->bread, j->design, err));
+    MR__TRY(levels_init(j->design, &m->bread_levels, err));
+    MR__TRY(levels_init(j->design, &m->meat_levels, err));
     if (!j->mc->clusters) return mr__sums_init_block(&m->rows, j->design, err);
     m->key = mr__malloc_array(2 * MR__BLOCK_ROWS, sizeof *m->key);
     if (m->key == NULL) return no_memory(err);
@@ -114,6 +148,12 @@ static mr_status meat_worker_init(void *job, mr__pass_worker *w, mr__error *err)
     sc->nz = mr__malloc_array(j->p + 1, sizeof *sc->nz);
     sc->at = mr__malloc_array(MR__BLOCK_ROWS + 1, sizeof *sc->at);
     if (sc->v == NULL || sc->nz == NULL || sc->at == NULL) return no_memory(err);
+    if (j->design->nabsorb > 0) {
+        size_t l;
+        if ((sc->level_slot = mr__malloc_array(j->design->nabsorb + 1, sizeof *sc->level_slot)) == NULL)
+            return no_memory(err);
+        for (l = 0; l <= j->design->nabsorb; l++) sc->level_slot[l] = -1;
+    }
     if (mr__pass_pool_take_workspace(j->env->cfg->pool, j->design, w->number, &sc->ws)) return MR_OK;
     return mr__workspace_init(&sc->ws, j->design, err);
 }
@@ -198,11 +238,23 @@ static void meat_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
     meat_job *j = job;
     meat_scratch *sc = w->part;
     meat_part *m = s->part;
+    const mr__irls_point *pt = j->env->cfg->point;
+    size_t n = s->use->n;
+    int levels = j->design->nabsorb > 0 && n > 0;
     /* the bread at the same point as the meat: X'WX where the scores are */
-    mr__accumulate_block(j->env->cfg->point, s->use, &sc->ws, &m->bread);
-    mr__block_scores(j->env->cfg->point, s->use, &sc->ws);
-    if (j->mc->clusters) compute_clusters(j, sc, s);
-    else mr__accumulate_scores(j->design, s->use, &sc->ws, &m->rows);
+    mr__accumulate_block(pt, s->use, &sc->ws, &m->bread);
+    m->bread_levels.n = m->meat_levels.n = 0;
+    if (levels) mr__level_part_block(pt, s->use, &sc->ws, n, sc->level_slot, &m->bread_levels);
+    mr__block_scores(pt, s->use, &sc->ws);
+    if (j->mc->clusters) {
+        compute_clusters(j, sc, s);
+        return;
+    }
+    mr__accumulate_scores(j->design, s->use, &sc->ws, &m->rows);
+    /* the workspace now holds u for sqrt(w), u x for sqrt(w) x and 1 for
+     * sqrt(w) z: the same rows give each level's sum u^2, sum u and
+     * sum u^2 x (fit/robust.c) */
+    if (levels) mr__level_part_block(pt, s->use, &sc->ws, n, sc->level_slot, &m->meat_levels);
 }
 
 /* ---- the calling thread: rows ------------------------------------------ */
@@ -234,6 +286,10 @@ static void add_groups(meat_job *j, mr__pass_slot *s)
     j->group_blocks.nblocks++;
     if (!j->mc->clusters) mr__sums_add(&j->group, &m->rows, j->design);
     mr__sums_add(&j->bread_group, &m->bread, j->design);
+    if (j->design->nabsorb > 0) {
+        mr__level_part_add_to(&m->bread_levels, j->env->res->bread.lev);
+        mr__level_part_add_to(&m->meat_levels, j->env->res->sums.lev);
+    }
     j->group_open = 1;
     if (mr__group_closes(s->index, 0)) close_group(j);
 }
@@ -277,6 +333,7 @@ static void meat_worker_release(void *job, mr__pass_worker *w)
     mr__free(sc->v);
     mr__free(sc->nz);
     mr__free(sc->at);
+    mr__free(sc->level_slot);
     mr__free(sc);
     w->part = NULL;
 }
@@ -288,6 +345,8 @@ static void meat_slot_release(void *job, mr__pass_slot *s)
     if (m == NULL) return;
     mr__sums_release(&m->bread);
     mr__sums_release(&m->rows);
+    mr__level_part_release(&m->bread_levels);
+    mr__level_part_release(&m->meat_levels);
     mr__free(m->key);
     mr__free(m->vec);
     mr__free(m->inner);

@@ -24,6 +24,7 @@
 #include "fit/fit.h"
 #include "fit/fitter.h"
 #include "fit/run.h"
+#include "solve/absorb.h"
 #include "solve/normal_eq.h"
 
 #define DEFAULT_CLUSTER_MEMORY ((size_t)1 << 30)
@@ -101,19 +102,67 @@ static mr_status robust_labels(mr_fit *fit, const mr__run *r, int type)
 }
 
 /* B: the inverse of the meat pass's X'WX, the aliased columns as the fit's
- * (a column aliased at one point is at the other: the design is the same). */
+ * (a column aliased at one point is at the other: the design is the same);
+ * with an eliminated factor, the other coefficients' block of it, S^-1
+ * (solve/absorb.h). */
 static mr_status invert_bread(const mr__run *r, double *beta, int *aliased, double *B, mr__error *err)
 {
-    size_t rank;
+    size_t rank, p = r->design.p;
     const mr__block_sums *s = &r->meat.bread;
-    return mr__solve_normal(s->xtwx, s->xtwz, r->design.p, beta, aliased, &rank, B, err);
+    mr__absorb_sums a = {s->nlev, p, s->lev, s->xtwx, s->xtwz, mr__sums_reference_row(s, p), r->nthreads};
+    mr__absorb_solution sol;
+    mr_status st;
+    if (r->design.nabsorb == 0) return mr__solve_normal(s->xtwx, s->xtwz, p, beta, aliased, &rank, B, err);
+    st = mr__absorb_solve(&a, MR__ABSORB_COV_OWN, &sol, err);
+    if (st == MR_OK) {
+        memcpy(B, sol.cov_rest, p * p * sizeof *B);
+        memcpy(aliased, sol.aliased, p * sizeof *aliased);
+    }
+    mr__absorb_solution_release(&sol);
+    return st;
+}
+
+/* With an eliminated factor, the other coefficients' rows of B times a
+ * row's whole score are S^-1 (x - g_l) u, g_l = c_l / d_l its level's
+ * weighted mean of x (solve/absorb.h), so their meat is the sum over rows
+ * of u^2 (x - g_l)(x - g_l)': the pass's sum u^2 x x' less, per level,
+ * g_l b_l' + b_l g_l' - e_l g_l g_l', with b_l = sum u^2 x and e_l =
+ * sum u^2 over its rows (the meat pass's level rows, accum/job_meat.c).
+ * The reference level has no column: its rows are not centred.  *M: that
+ * meat (p x p, upper; the caller frees it), or NULL without such a
+ * factor (the pass's meat is the meat). */
+static mr_status centred_meat(const mr__run *r, double **M, mr__error *err)
+{
+    size_t p = r->design.p, w = p + 2, l, i, j;
+    const double *wrow = r->meat.bread.lev, *urow = r->meat.sums.lev;
+    double *g;
+    *M = NULL;
+    if (r->design.nabsorb == 0) return MR_OK;
+    if (wrow == NULL || urow == NULL) return mr__fail(err, MR_ERR_INTERNAL, "the meat pass has no level sums");
+    *M = mr__malloc_array(p * p + 1, sizeof **M);
+    g = mr__malloc_array(p + 1, sizeof *g);
+    if (*M == NULL || g == NULL) {
+        mr__free(g);
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    }
+    memcpy(*M, r->meat.sums.xtwx, p * p * sizeof **M);
+    for (l = 0; l < r->design.nabsorb; l++, wrow += w, urow += w) {
+        const double *b = urow + 2;
+        double e = urow[0];
+        if (!(wrow[0] > 0)) continue; /* an empty level: no rows */
+        for (i = 0; i < p; i++) g[i] = wrow[2 + i] / wrow[0];
+        for (j = 0; j < p; j++)
+            for (i = 0; i <= j; i++) (*M)[j * p + i] -= g[i] * b[j] + b[i] * g[j] - e * g[i] * g[j];
+    }
+    mr__free(g);
+    return MR_OK;
 }
 
 mr_status mr__robust_result(mr_fit *fit, const mr__run *r, mr__error *err)
 {
     size_t p = r->design.p, j;
     int type = mr__robust_type(r->f), *aliased;
-    double n = (double)r->first.scan.npos, a, *T, *V, *beta, *B;
+    double n = (double)r->first.scan.npos, a, *T, *V, *beta, *B, *M = NULL;
     mr_status st;
     if (type == MR_ROBUST_NONE) return MR_OK;
     fit->robust = 1;
@@ -135,8 +184,9 @@ mr_status mr__robust_result(mr_fit *fit, const mr__run *r, mr__error *err)
              ? MR_OK
              : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     if (st == MR_OK) st = invert_bread(r, beta, aliased, B, err);
+    if (st == MR_OK) st = centred_meat(r, &M, err);
     if (st == MR_OK) {
-        sandwich(B, r->meat.sums.xtwx, p, T, V);
+        sandwich(B, M != NULL ? M : r->meat.sums.xtwx, p, T, V);
         st = mr__map_to_raw(&r->design, r->beta_final, V, beta, fit->robust_cov, fit->robust_se, err);
     }
     for (j = 0; st == MR_OK && j < p * p; j++) fit->robust_cov[j] *= a;
@@ -147,6 +197,7 @@ mr_status mr__robust_result(mr_fit *fit, const mr__run *r, mr__error *err)
     mr__free(V);
     mr__free(beta);
     mr__free(B);
+    mr__free(M);
     mr__free(aliased);
     return st;
 }

@@ -251,11 +251,13 @@ static mr_status run_begin(mr__run *r, mr_fitter *f, const char *path, mr__input
     r->dcfg.collapse = mr__collapse_mode(r);
     r->dcfg.collapse_abandoned = &r->collapse_abandoned;
     st = mr__spec_validate(&f->spec, &f->err);
-    /* the meat pass builds each row's full design row, which would hold
-     * every level of the eliminated factor: not supported */
-    if (st == MR_OK && mr__spec_many(&f->spec) >= 0 && mr__robust_type(f) != MR_ROBUST_NONE)
+    /* by rows the eliminated levels take their means out of each row's
+     * score (robust.c); a cluster's score would need its levels' means
+     * before they are known: not supported */
+    if (st == MR_OK && mr__spec_many(&f->spec) >= 0 && f->cluster != NULL)
         st = mr__fail(&f->err, MR_ERR_USAGE,
-                      "robust standard errors (--robust, --cluster) are not supported with a 'many' factor");
+                      "cluster-robust standard errors (--cluster) are not supported with a 'many' factor "
+                      "(--robust hc0|hc1 is)");
     /* a parameter by profile likelihood is fitted once per value
      * (fit/profile.c), never by one run */
     if (st == MR_OK && f->spec.family_profile)
