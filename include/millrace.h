@@ -361,8 +361,10 @@ MR_API mr_status mr_fitter_set_start(mr_fitter *f, const mr_fit *previous, const
  * those of the other coefficients, k counting the levels too: each row's
  * score has its level's IRLS-weighted means of the other columns taken
  * out, which is what the full sandwich gives them; the levels' own
- * standard errors stay model-based.  A cluster column is refused with such
- * a factor (MR_ERR_USAGE).
+ * standard errors stay model-based.  Clustered, the clusters can be that
+ * factor's levels alone (each level's summed scores less its means times
+ * its summed u; the reference's rows one cluster more): another cluster
+ * column is refused with such a factor (MR_ERR_USAGE).
  *
  * mr_fitter_set_robust: the type, or MR_ROBUST_NONE (the default) for
  * none.  MR_OK or MR_ERR_USAGE for an unknown type. */

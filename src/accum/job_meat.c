@@ -250,6 +250,10 @@ static void meat_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
         compute_clusters(j, sc, s);
         return;
     }
+    if (j->mc->by_levels) {
+        if (levels) mr__level_part_scores(pt, s->use, &sc->ws, n, sc->level_slot, &m->meat_levels);
+        return;
+    }
     mr__accumulate_scores(j->design, s->use, &sc->ws, &m->rows);
     /* the workspace now holds u for sqrt(w), u x for sqrt(w) x and 1 for
      * sqrt(w) z: the same rows give each level's sum u^2, sum u and
@@ -310,11 +314,24 @@ static mr_status meat_add(void *job, mr__pass_slot *s, mr__error *err)
                                      err);
 }
 
+/* Clusters by the eliminated factor: its levels with rows, the
+ * reference's included. */
+static uint64_t levels_met(const meat_job *j)
+{
+    const mr__design *d = j->design;
+    const double *row = j->env->res->bread.lev;
+    uint64_t n = 0;
+    size_t l;
+    for (l = 0; row != NULL && l <= d->nabsorb; l++) n += row[l * (d->p + 2)] > 0;
+    return n;
+}
+
 static mr_status meat_finish(void *job, mr_status st, mr__error *err)
 {
     meat_job *j = job;
     if (st != MR_OK) return st;
     if (j->group_open) close_group(j);
+    if (j->mc->by_levels) j->env->res->clusters = levels_met(j);
     if (!j->mc->clusters || j->mc->blocks_out != NULL) return st;
     st = mr__clusters_finish(&j->cl, err);
     j->env->res->clusters = j->cl.n;

@@ -110,8 +110,13 @@ mr_status mr__level_part_order(mr__level_part *p, const mr__design *d, mr__error
     return MR_OK;
 }
 
-void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, const mr__workspace *ws, size_t n,
-                          int32_t *slot, mr__level_part *out)
+/* The block's rows into out.  From the IRLS workspace (scores 0): d +=
+ * s s, b_D += s z, c += s (s x) (dense columns hold s x already, sparse
+ * entries x), s = sqrt(w).  From the scores' (scores 1: mr__block_scores
+ * left x unscaled and u in place of s): d += u, b_D += u u, c += u x.  The
+ * products are written so that each mode's are those of its own loop. */
+static void level_rows(const mr__irls_point *pt, const mr__block *blk, const mr__workspace *ws, size_t n,
+                       int32_t *slot, mr__level_part *out, int scores)
 {
     const mr__design *d = pt->design;
     const size_t m = d->ndense, ns = d->nsparse;
@@ -123,11 +128,11 @@ void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, const 
     out->ncell = 0;
     for (i = 0; i < n; i++) {
         int32_t lev = mr__design_absorb_row(d, blk->lev, MR__BLOCK_ROWS, i), at;
-        double s = ws->w[i];
+        double s = ws->w[i], t = scores ? 1.0 : s;
         if (lev < 0) lev = (int32_t)d->nabsorb; /* the reference's own row */
         at = row_for(out, slot, lev);
-        out->db[2 * at] += s * s;
-        out->db[2 * at + 1] += s * z[i];
+        out->db[2 * at] += s * t;
+        out->db[2 * at + 1] += s * (scores ? s : z[i]);
         for (j = 0, k = 0; j < m + ns; j++) {
             size_t src = (size_t)out->source[j];
             if (src < m) {
@@ -137,10 +142,22 @@ void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, const 
                 int32_t col = ws->scol[(src - m) * n + i];
                 if (col < 0) continue;
                 cols[k] = col;
-                vals[k++] = s * (s * ws->sval[(src - m) * n + i]);
+                vals[k++] = t * (s * ws->sval[(src - m) * n + i]);
             }
         }
         add_entries(out, at, cols, vals, k);
     }
     for (e = 0; e < out->n; e++) slot[out->level[e]] = -1;
+}
+
+void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, const mr__workspace *ws, size_t n,
+                          int32_t *slot, mr__level_part *out)
+{
+    level_rows(pt, blk, ws, n, slot, out, 0);
+}
+
+void mr__level_part_scores(const mr__irls_point *pt, const mr__block *blk, const mr__workspace *ws, size_t n,
+                           int32_t *slot, mr__level_part *out)
+{
+    level_rows(pt, blk, ws, n, slot, out, 1);
 }

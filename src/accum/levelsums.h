@@ -64,4 +64,12 @@ void mr__level_part_add_to(const mr__level_part *p, double *total);
 void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, const mr__workspace *ws, size_t n,
                           int32_t *slot, mr__level_part *out);
 
+/* The same rows from the workspace as mr__block_scores leaves it (x
+ * unscaled, each row's score multiplier u in place of sqrt(w)): d += u,
+ * b_D += u^2, c += u x, so that a level's c is its score sum over the
+ * other columns (the meat of standard errors clustered by the eliminated
+ * factor: fit/robust.c). */
+void mr__level_part_scores(const mr__irls_point *pt, const mr__block *blk, const mr__workspace *ws, size_t n,
+                           int32_t *slot, mr__level_part *out);
+
 #endif

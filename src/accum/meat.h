@@ -10,6 +10,10 @@
 
 typedef struct mr__meat_cfg {
     int clusters;   /* 1: by the binding's cluster column; 0: by rows */
+    int by_levels;  /* clusters that are the design's eliminated factor's
+                       levels (clusters 0): each level's score sums, as
+                       rows of the result's sums.lev, and the levels with
+                       rows counted in mr__pass_result.clusters */
     int table;      /* clusters: held in a table (the file is not grouped);
                        0: streamed, which stops the pass with
                        mr__pass_result.clusters_not_grouped set when a

@@ -18,6 +18,7 @@
 #include <math.h>
 #include <string.h>
 
+#include "accum/clusters.h"
 #include "accum/meat.h"
 #include "accum/pass.h"
 #include "common/alloc.h"
@@ -122,40 +123,71 @@ static mr_status invert_bread(const mr__run *r, double *beta, int *aliased, doub
     return st;
 }
 
-/* With an eliminated factor, the other coefficients' rows of B times a
- * row's whole score are S^-1 (x - g_l) u, g_l = c_l / d_l its level's
- * weighted mean of x (solve/absorb.h), so their meat is the sum over rows
- * of u^2 (x - g_l)(x - g_l)': the pass's sum u^2 x x' less, per level,
- * g_l b_l' + b_l g_l' - e_l g_l g_l', with b_l = sum u^2 x and e_l =
- * sum u^2 over its rows (the meat pass's level rows, accum/job_meat.c).
- * The reference level has no column: its rows are not centred.  *M: that
- * meat (p x p, upper; the caller frees it), or NULL without such a
- * factor (the pass's meat is the meat). */
-static mr_status centred_meat(const mr__run *r, double **M, mr__error *err)
+/* Clustered by the eliminated factor itself: a level's summed scores of
+ * the other columns less g_l times its summed u (the sums of u x and u
+ * of its rows: the meat pass's level rows), the reference's as they are;
+ * M the sum of their outer products, the levels in order, then the
+ * reference. */
+static void level_cluster_meat(const mr__run *r, double *g, double *v, size_t *nz, double *M)
+{
+    size_t p = r->design.p, w = p + 2, l, i;
+    const double *wrow = r->meat.bread.lev, *urow = r->meat.sums.lev;
+    memset(M, 0, p * p * sizeof *M);
+    for (l = 0; l <= r->design.nabsorb; l++, wrow += w, urow += w) {
+        if (!(wrow[0] > 0)) continue; /* an empty level: no rows */
+        for (i = 0; i < p; i++) {
+            g[i] = l < r->design.nabsorb ? wrow[2 + i] / wrow[0] : 0.0;
+            v[i] = urow[2 + i] - g[i] * urow[0];
+        }
+        mr__add_outer(M, p, v, nz);
+    }
+}
+
+/* By rows: the pass's sum u^2 x x' less, per level, g_l b_l' + b_l g_l'
+ * - e_l g_l g_l' (centred_meat below). */
+static void row_meat(const mr__run *r, double *g, double *M)
 {
     size_t p = r->design.p, w = p + 2, l, i, j;
     const double *wrow = r->meat.bread.lev, *urow = r->meat.sums.lev;
-    double *g;
-    *M = NULL;
-    if (r->design.nabsorb == 0) return MR_OK;
-    if (wrow == NULL || urow == NULL) return mr__fail(err, MR_ERR_INTERNAL, "the meat pass has no level sums");
-    *M = mr__malloc_array(p * p + 1, sizeof **M);
-    g = mr__malloc_array(p + 1, sizeof *g);
-    if (*M == NULL || g == NULL) {
-        mr__free(g);
-        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-    }
-    memcpy(*M, r->meat.sums.xtwx, p * p * sizeof **M);
+    memcpy(M, r->meat.sums.xtwx, p * p * sizeof *M);
     for (l = 0; l < r->design.nabsorb; l++, wrow += w, urow += w) {
         const double *b = urow + 2;
         double e = urow[0];
         if (!(wrow[0] > 0)) continue; /* an empty level: no rows */
         for (i = 0; i < p; i++) g[i] = wrow[2 + i] / wrow[0];
         for (j = 0; j < p; j++)
-            for (i = 0; i <= j; i++) (*M)[j * p + i] -= g[i] * b[j] + b[i] * g[j] - e * g[i] * g[j];
+            for (i = 0; i <= j; i++) M[j * p + i] -= g[i] * b[j] + b[i] * g[j] - e * g[i] * g[j];
+    }
+}
+
+/* With an eliminated factor, the other coefficients' rows of B times a
+ * row's whole score are S^-1 (x - g_l) u, g_l = c_l / d_l its level's
+ * weighted mean of x (solve/absorb.h), so their meat is the sum over rows
+ * of u^2 (x - g_l)(x - g_l)': the pass's sum u^2 x x' less, per level,
+ * g_l b_l' + b_l g_l' - e_l g_l g_l', with b_l = sum u^2 x and e_l =
+ * sum u^2 over its rows (the meat pass's level rows, accum/job_meat.c).
+ * The reference level has no column: its rows are not centred.  By the
+ * factor's levels as clusters, level_cluster_meat.  *M: that meat (p x p,
+ * upper; the caller frees it), or NULL without such a factor (the pass's
+ * meat is the meat). */
+static mr_status centred_meat(const mr__run *r, double **M, mr__error *err)
+{
+    size_t p = r->design.p, *nz;
+    double *g;
+    *M = NULL;
+    if (r->design.nabsorb == 0) return MR_OK;
+    if (r->meat.bread.lev == NULL || r->meat.sums.lev == NULL)
+        return mr__fail(err, MR_ERR_INTERNAL, "the meat pass has no level sums");
+    *M = mr__malloc_array(p * p + 1, sizeof **M);
+    g = mr__malloc_array(2 * p + 1, sizeof *g);
+    nz = mr__malloc_array(p + 1, sizeof *nz);
+    if (*M != NULL && g != NULL && nz != NULL) {
+        if (r->f->cluster != NULL) level_cluster_meat(r, g, g + p, nz, *M);
+        else row_meat(r, g, *M);
     }
     mr__free(g);
-    return MR_OK;
+    mr__free(nz);
+    return *M != NULL && g != NULL && nz != NULL ? MR_OK : mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
 }
 
 mr_status mr__robust_result(mr_fit *fit, const mr__run *r, mr__error *err)
@@ -272,7 +304,9 @@ static mr_status meat_pass(mr__run *r, int table, mr__error *err)
     pt.beta = r->beta_final;
     pt.null_skip = 1;
     memset(&mc, 0, sizeof mc);
-    mc.clusters = r->f->cluster != NULL;
+    /* with an eliminated factor the clusters can only be its levels (run.c) */
+    mc.by_levels = r->f->cluster != NULL && r->design.nabsorb > 0;
+    mc.clusters = r->f->cluster != NULL && !mc.by_levels;
     mc.table = table;
     mc.limit = r->f->cluster_memory;
     mc.display = r->display;

@@ -251,13 +251,14 @@ static mr_status run_begin(mr__run *r, mr_fitter *f, const char *path, mr__input
     r->dcfg.collapse = mr__collapse_mode(r);
     r->dcfg.collapse_abandoned = &r->collapse_abandoned;
     st = mr__spec_validate(&f->spec, &f->err);
-    /* by rows the eliminated levels take their means out of each row's
-     * score (robust.c); a cluster's score would need its levels' means
-     * before they are known: not supported */
-    if (st == MR_OK && mr__spec_many(&f->spec) >= 0 && f->cluster != NULL)
+    /* by rows, or by the eliminated factor's own levels, each level takes
+     * its means out of the scores (robust.c); another column's cluster
+     * would need its levels' means before they are known: not supported */
+    if (st == MR_OK && mr__spec_many(&f->spec) >= 0 && f->cluster != NULL &&
+        strcmp(f->cluster, f->spec.cov[mr__spec_many(&f->spec)].name) != 0)
         st = mr__fail(&f->err, MR_ERR_USAGE,
-                      "cluster-robust standard errors (--cluster) are not supported with a 'many' factor "
-                      "(--robust hc0|hc1 is)");
+                      "cluster-robust standard errors with a 'many' factor are by that factor alone (--cluster %s), "
+                      "or by rows (--robust hc0|hc1)", f->spec.cov[mr__spec_many(&f->spec)].name);
     /* a parameter by profile likelihood is fitted once per value
      * (fit/profile.c), never by one run */
     if (st == MR_OK && f->spec.family_profile)

@@ -23,14 +23,15 @@ complement instead of being columns of the design):
              residuals) to 1e-9;
   reference: R's predict.glm(se.fit = TRUE) for the 500-level fit: every
              row's linear predictor and its standard error, to 1e-8;
-  reference: robust (sandwich) standard errors by rows of the other
-             coefficients (the levels' means taken out of each row's
-             score): against the `sandwich` package for R (Debian
-             r-cran-sandwich, vcovHC types HC0 and HC1) for the 500-level
-             fit, to 1e-8; and, as an identity, against millrace's robust
-             standard errors and covariance of the same model with the
-             factor as ordinary columns (200 levels; poisson, and gaussian
-             with an aliased covariate), to 1e-10.
+  reference: robust (sandwich) standard errors of the other coefficients
+             (the levels' means taken out of each score), by rows and
+             clustered by the factor itself: against the `sandwich`
+             package for R (Debian r-cran-sandwich: vcovHC types HC0 and
+             HC1, vcovCL by the factor) for the 500-level fit, to 1e-8;
+             and, as an identity, against millrace's robust standard
+             errors and covariance of the same model with the factor as
+             ordinary columns (200 levels; poisson, by rows and clustered,
+             and gaussian with an aliased covariate), to 1e-10.
 Data simulated here with a fixed seed.  Prints "ok <case>" or "FAIL <case>:
 <details>" and "N passed, M failed"; exits 1 if anything failed.  The R case
 is skipped, saying so, without Rscript.
@@ -70,7 +71,8 @@ library(sandwich)
 out <- file(args[4], "w")
 h0 <- sqrt(diag(vcovHC(m, type = "HC0")))
 h1 <- sqrt(diag(vcovHC(m, type = "HC1")))
-for (k in names(h0)) writeLines(sprintf("%s %.17g %.17g", k, h0[[k]], h1[[k]]), out)
+c0 <- sqrt(diag(vcovCL(m, cluster = ~area)))
+for (k in names(h0)) writeLines(sprintf("%s %.17g %.17g %.17g", k, h0[[k]], h1[[k]], c0[[k]]), out)
 close(out)
 p <- predict(m, newdata = d, se.fit = TRUE)
 write.table(data.frame(eta = sprintf("%.17g", p$fit), se = sprintf("%.17g", p$se.fit)), args[3],
@@ -180,7 +182,7 @@ def compare_robust(case, many, dense, tol):
     names = [c["name"] for c in many["coefficients"]]
     dnames = [c["name"] for c in dense["coefficients"]]
     rm, rd = many["robust"], dense["robust"]
-    if rm["type"] != rd["type"] or rel(rm["adjustment"], rd["adjustment"]) > 1e-15:
+    if rm["type"] != rd["type"] or rm["clusters"] != rd["clusters"] or rel(rm["adjustment"], rd["adjustment"]) > 1e-15:
         problems.append("type %s adjustment %r, dense %s %r" % (rm["type"], rm["adjustment"], rd["type"],
                                                               rd["adjustment"]))
     for i, a in enumerate(names):
@@ -201,11 +203,13 @@ def case_dense_poisson(tmp):
     compare_scores(tmp, data, "p_many", "p_dense", "area",
                    "poisson: scoring with 200 levels eliminated = with them as columns, standard errors and "
                    "intervals too; O/E 1 by level")
-    for typ in ("hc0", "hc1"):
-        many = fit(tmp, "p_many_" + typ, base + ["factor area many", "factor sex"], data, ["--robust", typ])
-        dense = fit(tmp, "p_dense_" + typ, base + ["factor area", "factor sex"], data, ["--robust", typ])
-        compare_robust("poisson, 200 levels: robust (%s) standard errors eliminated = as columns" % typ, many,
-                       dense, 1e-10)
+    for opts in (["--robust", "hc0"], ["--robust", "hc1"], ["--cluster", "area"],
+                 ["--cluster", "area", "--robust", "hc1"]):
+        tag = "_".join(o.lstrip("-") for o in opts)
+        many = fit(tmp, "p_many_" + tag, base + ["factor area many", "factor sex"], data, opts)
+        dense = fit(tmp, "p_dense_" + tag, base + ["factor area", "factor sex"], data, opts)
+        compare_robust("poisson, 200 levels: robust standard errors (%s) eliminated = as columns" % " ".join(opts),
+                       many, dense, 1e-10)
 
 
 def score(tmp, name, extra=()):
@@ -276,12 +280,14 @@ def case_dense_gaussian(tmp):
                       1e-10)
         compare_scores(tmp, data, "g_many", "g_dense", None,
                        "gaussian (dispersion estimated, a column aliased): scoring eliminated = as columns")
-        many = fit(tmp, "g_many_r", base + ["factor area many", "numeric x", "factor grp", "numeric size"], data,
-                   ["--robust", "hc1"])
-        dense = fit(tmp, "g_dense_r", base + ["factor area", "numeric x", "factor grp", "numeric size"], data,
-                    ["--robust", "hc1"])
-        compare_robust("gaussian, an aliased covariate: robust (hc1) standard errors eliminated = as columns", many,
-                       dense, 1e-10)
+        for opts in (["--robust", "hc1"], ["--cluster", "area"]):
+            tag = opts[1]
+            many = fit(tmp, "g_many_" + tag, base + ["factor area many", "numeric x", "factor grp", "numeric size"],
+                       data, opts)
+            dense = fit(tmp, "g_dense_" + tag, base + ["factor area", "numeric x", "factor grp", "numeric size"],
+                        data, opts)
+            compare_robust("gaussian, an aliased covariate: robust standard errors (%s) eliminated = as columns" %
+                           " ".join(opts), many, dense, 1e-10)
 
 
 def case_r(tmp):
@@ -341,16 +347,18 @@ def case_r(tmp):
            problems[:10])
     # robust standard errors of the other coefficients, by rows
     with open(hc) as f:
-        r_hc = {w[0]: (float(w[1]), float(w[2])) for w in (line.split() for line in f)}
+        r_hc = {w[0]: (float(w[1]), float(w[2]), float(w[3])) for w in (line.split() for line in f)}
     problems = []
-    for k, typ in enumerate(("hc0", "hc1")):
+    for k, opts in enumerate((["--robust", "hc0"], ["--robust", "hc1"], ["--cluster", "area"])):
+        typ = opts[1]
         rob = fit(tmp, "r_many_" + typ, ["outcome y", "family poisson", "exposure py", "numeric age",
-                                         "factor area many", "factor sex"], data, ["--robust", typ])
+                                         "factor area many", "factor sex"], data, opts)
         for i, c in enumerate(rob["coefficients"]):
             got, want = rob["robust"]["standard_errors"][i], r_hc[names[c["name"]]][k]
             if rel(got, want) > 1e-8:
                 problems.append("%s %s %.17g, R vcovHC %.17g" % (typ, c["name"], got, want))
-    report("poisson rate model, 500 levels: robust standard errors (HC0, HC1) against R sandwich::vcovHC", problems)
+    report("poisson rate model, 500 levels: robust standard errors (HC0, HC1, clustered by the factor) against R "
+           "sandwich::vcovHC and vcovCL", problems)
 
 
 def main():
