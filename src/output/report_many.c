@@ -65,8 +65,11 @@ void mr__report_many(mr__strbuf *b, const mr_fit *f, int digits)
     if (!f->many_given) return;
     mr__strbuf_printf(b, "\nfactor %s (many): %zu levels besides the reference %s; each level's estimate (its "
                          "difference from the reference)\n  and standard error are in the JSON (many_factor), not "
-                         "in the table or the covariance\n",
-                      f->many_factor, f->nmany, f->many_reference);
+                         "in the table or the covariance\n%s",
+                      f->many_factor, f->nmany, f->many_reference,
+                      f->robust ? "  their standard errors are model-based; the robust ones are the table's "
+                                  "coefficients' alone\n"
+                                : "");
     if ((v = mr__malloc_array(f->nmany + 1, sizeof *v)) == NULL) {
         mr__strbuf_printf(b, "  (no summary: out of memory)\n");
         return;
