@@ -170,6 +170,11 @@ $(B)/asan/tests/%: tests/%.c $(B)/asan/libmillrace.a
 	@mkdir -p $(dir $@)
 	$(Q)$(CC) $(CPPFLAGS) $(CHECK_CFLAGS) $(CFLAGS) $(SAN) -o $@ $< $(B)/asan/libmillrace.a $(CHECK_LIBS) $(LIBS)
 
+$(B)/tsan/tests/%: tests/%.c $(B)/tsan/libmillrace.a
+	@mkdir -p $(dir $@)
+	$(Q)$(CC) $(CPPFLAGS) $(CHECK_CFLAGS) $(CFLAGS) -fsanitize=thread -o $@ $< $(B)/tsan/libmillrace.a $(CHECK_LIBS) \
+	  $(LIBS)
+
 # The cross products once more on their portable path (no AVX2 clone): both
 # paths must give the same bits.
 $(B)/tests/check_crossprod_portable: tests/check_crossprod.c src/accum/crossprod.c
@@ -194,8 +199,11 @@ asan-check: asan $(B)/synth
 	MILLRACE=$(CURDIR)/$(B)/asan/millrace bash tests/cli/html.sh
 
 # The threaded paths under ThreadSanitizer (OpenBLAS is not instrumented:
-# its internal races are not ours and are suppressed).
-tsan-check: $(B)/tsan/millrace $(B)/synth
+# its internal races are not ours and are suppressed); check_share's ranks
+# are threads of one process exchanging through memory.
+tsan-check: $(B)/tsan/millrace $(B)/synth $(B)/tsan/tests/check_share
+	TSAN_OPTIONS="halt_on_error=1 suppressions=$(CURDIR)/tests/tsan.supp" MR_TEST_QUICK=1 \
+	  ./$(B)/tsan/tests/check_share
 	TSAN_OPTIONS="halt_on_error=1 suppressions=$(CURDIR)/tests/tsan.supp" MILLRACE=$(B)/tsan/millrace \
 	  bash tests/cli/threads.sh
 	TSAN_OPTIONS="halt_on_error=1 suppressions=$(CURDIR)/tests/tsan.supp" MILLRACE=$(CURDIR)/$(B)/tsan/millrace \
