@@ -34,15 +34,13 @@ typedef struct irls_worker {
     int32_t *level_slot;
 } irls_worker;
 
-static size_t level_width(const mr__design *d) { return d->p + 2; }
-
 /* The pass's levels' rows, then the reference's (accumulate.h). */
 static mr_status open_levels(irls_job *j, mr__error *err)
 {
     mr__block_sums *total = &j->env->res->sums;
     const mr__design *d = j->design;
     if (d->nabsorb == 0) return MR_OK;
-    total->lev = mr__pass_pool_take_levels(j->env->cfg->pool, (d->nabsorb + 1) * level_width(d));
+    total->lev = mr__pass_pool_take_levels(j->env->cfg->pool, mr__level_totals_size(d));
     if (total->lev == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     total->nlev = d->nabsorb;
     return MR_OK;
@@ -68,12 +66,7 @@ static mr_status irls_slot_init(void *job, mr__pass_slot *s, mr__error *err)
     if (part == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     s->part = part;
     MR__TRY(mr__sums_init_block_pass(&part->sums, j->design, j->env->cfg->point->calibrate, err));
-    if (d->nabsorb == 0) return MR_OK;
-    /* at most a level a row, and a row's entries each a cell */
-    MR__TRY(mr__level_part_init(&part->levels, level_width(d),
-                                d->nabsorb + 1 < MR__BLOCK_ROWS ? d->nabsorb + 1 : MR__BLOCK_ROWS,
-                                MR__BLOCK_ROWS * (d->ndense + d->nsparse), err));
-    return mr__level_part_order(&part->levels, d, err);
+    return d->nabsorb > 0 ? mr__level_part_init(&part->levels, d, err) : MR_OK;
 }
 
 static mr_status irls_start(void *job, mr__error *err)
@@ -86,15 +79,11 @@ static mr_status irls_start(void *job, mr__error *err)
 static mr_status irls_worker_init(void *job, mr__pass_worker *w, mr__error *err)
 {
     irls_job *j = job;
-    size_t l, nabsorb = j->design->nabsorb;
     irls_worker *iw = mr__calloc(1, sizeof *iw);
     if (iw == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     w->part = iw;
-    if (nabsorb > 0) {
-        if ((iw->level_slot = mr__malloc_array(nabsorb + 1, sizeof *iw->level_slot)) == NULL)
-            return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
-        for (l = 0; l <= nabsorb; l++) iw->level_slot[l] = -1;
-    }
+    if (j->design->nabsorb > 0 && (iw->level_slot = mr__level_slots_new(j->design)) == NULL)
+        return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     if (mr__pass_pool_take_workspace(j->env->cfg->pool, j->design, w->number, &iw->ws)) return MR_OK;
     return mr__workspace_init(&iw->ws, j->design, err);
 }

@@ -74,7 +74,7 @@ static mr_status open_levels(const meat_job *j, mr__error *err)
 {
     const mr__design *d = j->design;
     mr__pass_result *res = j->env->res;
-    size_t n = (d->nabsorb + 1) * (d->p + 2);
+    size_t n = mr__level_totals_size(d);
     if (d->nabsorb == 0) return MR_OK;
     /* the IRLS passes' spare totals, when the pool still holds them */
     res->bread.lev = mr__pass_pool_take_levels(j->env->cfg->pool, n);
@@ -102,16 +102,6 @@ static mr_status meat_open(const mr__pass_env *env, void **out, mr__error *err)
     return mr__sums_init(&j->group, j->p, err);
 }
 
-/* Room for a block's levels' rows: at most a level a row, and a row's
- * entries each a cell (none without an eliminated factor). */
-static mr_status levels_init(const mr__design *d, mr__level_part *part, mr__error *err)
-{
-    if (d->nabsorb == 0) return MR_OK;
-    MR__TRY(mr__level_part_init(part, d->p + 2, d->nabsorb + 1 < MR__BLOCK_ROWS ? d->nabsorb + 1 : MR__BLOCK_ROWS,
-                                MR__BLOCK_ROWS * (d->ndense + d->nsparse), err));
-    return mr__level_part_order(part, d, err);
-}
-
 static mr_status meat_slot_init(void *job, mr__pass_slot *s, mr__error *err)
 {
     meat_job *j = job;
@@ -119,8 +109,10 @@ static mr_status meat_slot_init(void *job, mr__pass_slot *s, mr__error *err)
     s->part = m;
     if (m == NULL) return no_memory(err);
     MR__TRY(mr__sums_init_block(&m->bread, j->design, err));
-    MR__TRY(levels_init(j->design, &m->bread_levels, err));
-    MR__TRY(levels_init(j->design, &m->meat_levels, err));
+    if (j->design->nabsorb > 0) {
+        MR__TRY(mr__level_part_init(&m->bread_levels, j->design, err));
+        MR__TRY(mr__level_part_init(&m->meat_levels, j->design, err));
+    }
     if (!j->mc->clusters) return mr__sums_init_block(&m->rows, j->design, err);
     m->key = mr__malloc_array(2 * MR__BLOCK_ROWS, sizeof *m->key);
     if (m->key == NULL) return no_memory(err);
@@ -148,12 +140,7 @@ static mr_status meat_worker_init(void *job, mr__pass_worker *w, mr__error *err)
     sc->nz = mr__malloc_array(j->p + 1, sizeof *sc->nz);
     sc->at = mr__malloc_array(MR__BLOCK_ROWS + 1, sizeof *sc->at);
     if (sc->v == NULL || sc->nz == NULL || sc->at == NULL) return no_memory(err);
-    if (j->design->nabsorb > 0) {
-        size_t l;
-        if ((sc->level_slot = mr__malloc_array(j->design->nabsorb + 1, sizeof *sc->level_slot)) == NULL)
-            return no_memory(err);
-        for (l = 0; l <= j->design->nabsorb; l++) sc->level_slot[l] = -1;
-    }
+    if (j->design->nabsorb > 0 && (sc->level_slot = mr__level_slots_new(j->design)) == NULL) return no_memory(err);
     if (mr__pass_pool_take_workspace(j->env->cfg->pool, j->design, w->number, &sc->ws)) return MR_OK;
     return mr__workspace_init(&sc->ws, j->design, err);
 }

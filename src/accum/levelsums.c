@@ -3,7 +3,9 @@
 #include "accum/levelsums.h"
 #include "common/alloc.h"
 
-mr_status mr__level_part_init(mr__level_part *p, size_t width, size_t cap, size_t cells, mr__error *err)
+/* An empty part for rows of `width` doubles in the totals, with room for
+ * `cap` levels and `cells` c entries. */
+static mr_status part_alloc(mr__level_part *p, size_t width, size_t cap, size_t cells, mr__error *err)
 {
     memset(p, 0, sizeof *p);
     p->width = width;
@@ -97,7 +99,12 @@ static size_t source_start(const mr__design *d, int32_t k)
     return (size_t)k < d->ndense ? d->dense_col[k] : d->term[d->sparse_term[(size_t)k - d->ndense]].col0;
 }
 
-mr_status mr__level_part_order(mr__level_part *p, const mr__design *d, mr__error *err)
+/* The order in which level_rows takes a row's entries under design d:
+ * its dense columns and sparse slots by where their terms' columns start.
+ * A term's columns are a run of their own, so a row's entries come in
+ * increasing column order, as the rows' chains keep them, with no
+ * sorting a row. */
+static mr_status take_order(mr__level_part *p, const mr__design *d, mr__error *err)
 {
     size_t n = d->ndense + d->nsparse, a, b;
     p->source = mr__malloc_array(n + 1, sizeof *p->source);
@@ -108,6 +115,22 @@ mr_status mr__level_part_order(mr__level_part *p, const mr__design *d, mr__error
         p->source[b] = k;
     }
     return MR_OK;
+}
+
+mr_status mr__level_part_init(mr__level_part *p, const mr__design *d, mr__error *err)
+{
+    /* at most a level a row, and a row's entries each a cell */
+    MR__TRY(part_alloc(p, d->p + 2, d->nabsorb + 1 < MR__BLOCK_ROWS ? d->nabsorb + 1 : MR__BLOCK_ROWS,
+                       MR__BLOCK_ROWS * (d->ndense + d->nsparse), err));
+    return take_order(p, d, err);
+}
+
+int32_t *mr__level_slots_new(const mr__design *d)
+{
+    int32_t *slot = mr__malloc_array(d->nabsorb + 1, sizeof *slot);
+    size_t l;
+    for (l = 0; slot != NULL && l <= d->nabsorb; l++) slot[l] = -1;
+    return slot;
 }
 
 /* The block's rows into out.  From the IRLS workspace (scores 0): d +=

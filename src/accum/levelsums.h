@@ -35,17 +35,19 @@ typedef struct mr__level_part {
     int32_t *source;         /* the order a row's entries are taken in (mr__level_part_order) */
 } mr__level_part;
 
-/* An empty part for rows of `width` doubles in the totals, with room for
- * `cap` levels and `cells` c entries. */
-mr_status mr__level_part_init(mr__level_part *p, size_t width, size_t cap, size_t cells, mr__error *err);
+/* An empty part for one block's rows under design d (d->nabsorb > 0):
+ * room for its levels and entries, and the order its rows' entries are
+ * taken in.  MR_ERR_NO_MEMORY. */
+mr_status mr__level_part_init(mr__level_part *p, const mr__design *d, mr__error *err);
 void mr__level_part_release(mr__level_part *p);
 
-/* The order in which mr__level_part_block takes a row's entries under
- * design d: its dense columns and sparse slots by where their terms'
- * columns start.  A term's columns are a run of their own, so a row's
- * entries come in increasing column order, as the rows' chains keep
- * them, with no sorting a row. */
-mr_status mr__level_part_order(mr__level_part *p, const mr__design *d, mr__error *err);
+/* The doubles of a pass's level totals under design d: each level's row
+ * of p + 2, then the reference's (accumulate.h). */
+static inline size_t mr__level_totals_size(const mr__design *d) { return (d->nabsorb + 1) * (d->p + 2); }
+
+/* A slot map for mr__level_part_block: nabsorb + 1 entries, all -1 (the
+ * caller frees it); NULL when out of memory. */
+int32_t *mr__level_slots_new(const mr__design *d);
 
 /* total[level * width ..] += the part's rows, in the part's order. */
 void mr__level_part_add_to(const mr__level_part *p, double *total);
@@ -59,8 +61,7 @@ void mr__level_part_add_to(const mr__level_part *p, double *total);
  * calling thread adds them in block order (mr__level_part_add_to): the
  * same arithmetic in the same order whichever thread makes them.  slot is
  * a slot map of nabsorb + 1 entries (all -1, and left so).  The part must
- * have room for min(nabsorb + 1, rows) levels and rows x (ndense +
- * nsparse) cells, and its order (mr__level_part_order). */
+ * come from mr__level_part_init. */
 void mr__level_part_block(const mr__irls_point *pt, const mr__block *blk, const mr__workspace *ws, size_t n,
                           int32_t *slot, mr__level_part *out);
 

@@ -6,6 +6,7 @@
 #include <math.h>
 #include <string.h>
 
+#include "accum/levelsums.h"
 #include "accum/pass.h"
 #include "common/alloc.h"
 #include "family/family.h"
@@ -76,7 +77,7 @@ typedef struct irls_job {
 /* A pass's level totals, done with, serve the next pass's (accum/pass.h). */
 static void keep_levels(mr__run *r, mr__pass_result *res)
 {
-    mr__pass_pool_keep_levels(&r->pool, &res->sums.lev, (r->design.nabsorb + 1) * (r->design.p + 2));
+    mr__pass_pool_keep_levels(&r->pool, &res->sums.lev, mr__level_totals_size(&r->design));
 }
 
 /* Once the null model has converged its deviance no longer changes, and
