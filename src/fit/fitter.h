@@ -34,6 +34,9 @@ struct mr_fitter {
 /* The robust standard errors a run makes (an mr_robust): the one set, or
  * HC0 when only a cluster column is (robust.c). */
 int mr__robust_type(const mr_fitter *f);
+/* With a factor declared `many`, its levels are the only clusters taken
+ * (robust.c): MR_ERR_USAGE for another cluster column. */
+mr_status mr__robust_check(const mr_fitter *f, mr__error *err);
 
 /* The fit's audit trail (fitter.c): the command line, the host, the run's
  * start (started_ns, wall clock) and end.  MR_OK or MR_ERR_NO_MEMORY. */

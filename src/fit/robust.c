@@ -59,6 +59,18 @@ int mr__robust_type(const mr_fitter *f)
     return f->cluster != NULL ? MR_ROBUST_HC0 : MR_ROBUST_NONE;
 }
 
+/* By rows, or by the eliminated factor's own levels, each level takes its
+ * means out of the scores (centred_meat); another column's cluster would
+ * need its levels' means before the pass that makes them ends. */
+mr_status mr__robust_check(const mr_fitter *f, mr__error *err)
+{
+    long m = mr__spec_many(&f->spec);
+    if (m < 0 || f->cluster == NULL || strcmp(f->cluster, f->spec.cov[m].name) == 0) return MR_OK;
+    return mr__fail(err, MR_ERR_USAGE,
+                    "cluster-robust standard errors with a 'many' factor are by that factor alone (--cluster %s), "
+                    "or by rows (--robust hc0|hc1)", f->spec.cov[m].name);
+}
+
 /* The small-sample factor of the table above. */
 static double adjustment(int type, double n, double k, int clustered, double g)
 {

@@ -251,14 +251,7 @@ static mr_status run_begin(mr__run *r, mr_fitter *f, const char *path, mr__input
     r->dcfg.collapse = mr__collapse_mode(r);
     r->dcfg.collapse_abandoned = &r->collapse_abandoned;
     st = mr__spec_validate(&f->spec, &f->err);
-    /* by rows, or by the eliminated factor's own levels, each level takes
-     * its means out of the scores (robust.c); another column's cluster
-     * would need its levels' means before they are known: not supported */
-    if (st == MR_OK && mr__spec_many(&f->spec) >= 0 && f->cluster != NULL &&
-        strcmp(f->cluster, f->spec.cov[mr__spec_many(&f->spec)].name) != 0)
-        st = mr__fail(&f->err, MR_ERR_USAGE,
-                      "cluster-robust standard errors with a 'many' factor are by that factor alone (--cluster %s), "
-                      "or by rows (--robust hc0|hc1)", f->spec.cov[mr__spec_many(&f->spec)].name);
+    if (st == MR_OK) st = mr__robust_check(f, &f->err);
     /* a parameter by profile likelihood is fitted once per value
      * (fit/profile.c), never by one run */
     if (st == MR_OK && f->spec.family_profile)
