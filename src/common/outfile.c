@@ -5,6 +5,9 @@
  * write that file, and the temporary file must sit in the target's own
  * directory for the rename to be atomic. */
 #define _POSIX_C_SOURCE 200809L
+#ifdef __linux__
+#define _GNU_SOURCE /* sync_file_range */
+#endif
 #include <dirent.h>
 #include <errno.h>
 #include <fcntl.h>
@@ -29,6 +32,10 @@
 /* ".tmp-" + a pid of at most 10 digits + "-" + 6 characters + NUL */
 #define TEMP_SUFFIX_CAP (sizeof TEMP_TAG + 10 + 1 + RANDOM_CHARS + 1)
 #define OUT_BUFFER (1 << 16)
+/* Every WRITEBACK_STEP bytes the kernel is asked to start writing the
+ * file out (Linux), so that the commit's fsync waits for the last few
+ * megabytes of a large output, not for all of it. */
+#define WRITEBACK_STEP ((size_t)8 << 20)
 
 struct mr__outfile {
     int fd, slot, created;
@@ -36,6 +43,7 @@ struct mr__outfile {
     char *target;  /* the file replaced: the path with its links followed */
     char *temp;
     size_t len;
+    size_t written, written_back; /* bytes written; those whose writeback was started */
     char buf[OUT_BUFFER]; /* gathers small writes (JSON comes a token at a time) */
 };
 
@@ -390,22 +398,46 @@ static mr_status io_failure(const mr__outfile *o, const char *what, int e, mr__e
     return mr__fail(err, MR_ERR_IO, "%s: %s: %s", o->display, what, strerror(e));
 }
 
-static mr_status flush_buffer(mr__outfile *o, mr__error *err)
+static void start_writeback(mr__outfile *o)
 {
-    size_t done = 0;
-    while (done < o->len) {
-        ssize_t w = mr__write(o->fd, o->buf + done, o->len - done);
+    if (o->written - o->written_back < WRITEBACK_STEP) return;
+#ifdef __linux__
+    /* a hint: a failure shows again at the fsync, which reports it */
+    (void)sync_file_range(o->fd, (off_t)o->written_back, (off_t)(o->written - o->written_back), SYNC_FILE_RANGE_WRITE);
+#endif
+    o->written_back = o->written;
+}
+
+static mr_status write_all(mr__outfile *o, const char *p, size_t n, mr__error *err)
+{
+    while (n > 0) {
+        ssize_t w = mr__write(o->fd, p, n);
         if (w < 0 && errno == EINTR) continue;
         if (w <= 0) return io_failure(o, "cannot write", w < 0 ? errno : ENOSPC, err);
-        done += (size_t)w;
+        p += w;
+        n -= (size_t)w;
+        o->written += (size_t)w;
     }
-    o->len = 0;
+    start_writeback(o);
     return MR_OK;
 }
 
+static mr_status flush_buffer(mr__outfile *o, mr__error *err)
+{
+    size_t n = o->len;
+    o->len = 0;
+    return write_all(o, o->buf, n, err);
+}
+
+/* A piece as large as the buffer goes out as it is, after what the buffer
+ * holds: a scored block's megabytes are not copied through it. */
 mr_status mr__outfile_write(mr__outfile *o, const void *data, size_t n, mr__error *err)
 {
     const char *p = data;
+    if (n >= sizeof o->buf) {
+        MR__TRY(flush_buffer(o, err));
+        return write_all(o, p, n, err);
+    }
     while (n > 0) {
         size_t take = sizeof o->buf - o->len < n ? sizeof o->buf - o->len : n;
         memcpy(o->buf + o->len, p, take);
