@@ -8,6 +8,7 @@
 
 #include "accum/score_row.h"
 #include "common/alloc.h"
+#include "input/numparse.h"
 
 static const char *const column_names[] = {"eta",           "se_eta",         "mean",          "mean_low",
                                            "mean_high",     "resid_response", "resid_pearson", "resid_deviance"};
@@ -123,6 +124,9 @@ static mr_status score_worker_init(void *job, mr__pass_worker *w, mr__error *err
     if (!sw->lev || !sw->num || !sw->np || !sw->wanted || mr__row_cells_init(&sw->cells, c->nfields) != MR_OK ||
         !sw->xcol || !sw->xval)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    sw->quick_numbers = 1;
+    for (i = 0; i < c->nmissing_tokens; i++)
+        if (mr__is_number_syntax(c->missing_token[i], strlen(c->missing_token[i]))) sw->quick_numbers = 0;
     for (i = 0; i < c->nkeep; i++) sw->wanted[c->keep_field[i]] = MR__FIELD_WANTED;
     for (i = 0; i < c->nby; i++) sw->wanted[c->by_field[i]] = MR__FIELD_WANTED;
     MR__TRY(by_factors(c, sw, err));
@@ -145,8 +149,6 @@ static void score_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
     const mr__score_cfg *c = job;
     score_worker *sw = w->part;
     score_slot *out = s->part;
-    mr__field_sink sink = {.user = sw, .field = mr__score_on_field, .row_end = mr__score_row_end, .wanted = sw->wanted,
-                           .nwanted = c->nfields, .quick = NULL};
     out->out.len = out->keys.len = 0;
     out->rows = out->scored = out->unseen = out->missing = 0;
     out->ngrow = out->nkey = 0;
@@ -154,8 +156,8 @@ static void score_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
     if (c->nby) mr__score_groups_reset(sw);
     sw->s = s;
     sw->chunk = s->chunk;
-    sw->cells.used = 0;
-    mr_status st = mr__tokenize_chunk(&sw->tok, s->chunk, &sink, c->display, &s->err);
+    mr_status st = mr__tokenize_cells(&sw->tok, s->chunk, &sw->cells, sw->wanted, c->nfields, mr__score_row_end, sw,
+                                      c->display, &s->err);
     if (st != MR_OK && s->st == MR_OK) s->st = st;
 }
 

@@ -123,12 +123,6 @@ static int wants_nothing_packed(void *job, const mr__pass_slot *s)
     return 0;
 }
 
-static void on_field(void *user, size_t k, const char *p, size_t len)
-{
-    survey_worker *sw = user;
-    mr__row_cells_put(&sw->cells, k, p, len);
-}
-
 static int is_missing(const mr__survey_cfg *c, const char *p, size_t n)
 {
     return mr__cell_is_token((const char *const *)c->missing, c->nmissing, p, n);
@@ -177,10 +171,12 @@ static void on_row_end(void *user, uint32_t r, size_t nfields)
             out->first_malformed_fields = nfields;
         }
     } else {
-        for (k = 0; k < nfields; k++)
-            survey_cell(sw, &out->col[k], k, sw->cells.buf + sw->cells.at[k], sw->cells.len[k], out);
+        for (k = 0; k < nfields; k++) {
+            size_t n;
+            const char *p = mr__row_cell(&sw->cells, k, &n);
+            survey_cell(sw, &out->col[k], k, p, n, out);
+        }
     }
-    sw->cells.used = 0;
 }
 
 static void reset_slot(const mr__survey_cfg *c, survey_slot *out)
@@ -199,8 +195,6 @@ static void survey_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
     const mr__survey_cfg *c = job;
     survey_worker *sw = w->part;
     survey_slot *out = s->part;
-    mr__field_sink sink = {.user = sw, .field = on_field, .row_end = on_row_end, .wanted = NULL, .nwanted = 0,
-                           .quick = NULL};
     mr_status st;
     if (slot_columns(c, out) != MR_OK) {
         s->st = mr__fail(&s->err, MR_ERR_NO_MEMORY, "out of memory");
@@ -208,8 +202,7 @@ static void survey_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
     }
     reset_slot(c, out);
     sw->s = s;
-    sw->cells.used = 0;
-    st = mr__tokenize_chunk(&sw->tok, s->chunk, &sink, c->display, &s->err);
+    st = mr__tokenize_cells(&sw->tok, s->chunk, &sw->cells, NULL, 0, on_row_end, sw, c->display, &s->err);
     if (st != MR_OK && s->st == MR_OK) s->st = st;
     if (s->st == MR_OK && (sw->cells.nomem || out->nomem)) s->st = mr__fail(&s->err, MR_ERR_NO_MEMORY, "out of memory");
 }

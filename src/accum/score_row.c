@@ -11,17 +11,12 @@
 #include "common/dtoa.h"
 #include "family/family.h"
 #include "input/fields.h"
+#include "input/numparse.h"
 
 typedef struct score_row {
     double off, y, prior, expo;
     int has_y;
 } score_row;
-
-void mr__score_on_field(void *user, size_t k, const char *p, size_t len)
-{
-    score_worker *sw = user;
-    mr__row_cells_put(&sw->cells, k, p, len);
-}
 
 /* A cell the fit would have read as missing: one of its tokens. */
 static int is_missing(const mr__score_cfg *c, const char *p, size_t n)
@@ -29,11 +24,7 @@ static int is_missing(const mr__score_cfg *c, const char *p, size_t n)
     return mr__cell_is_token(c->missing_token, c->nmissing_tokens, p, n);
 }
 
-static const char *cell(const score_worker *sw, size_t field, size_t *n)
-{
-    *n = sw->cells.len[field];
-    return sw->cells.buf + sw->cells.at[field];
-}
+static const char *cell(const score_worker *sw, size_t field, size_t *n) { return mr__row_cell(&sw->cells, field, n); }
 
 static uint64_t row_line(const score_worker *sw, uint32_t r) { return sw->chunk->first_line + sw->chunk->row_line[r]; }
 
@@ -55,6 +46,7 @@ static int number_at(score_worker *sw, uint32_t r, const char *name, size_t fiel
 {
     size_t n;
     const char *p = cell(sw, field, &n);
+    if (sw->quick_numbers && n > 0 && mr__parse_short_decimal(p, p + n, '\0', v) == p + n) return 1;
     if (is_missing(sw->c, p, n)) return 0;
     if (mr__parse_double(sw->np, p, n, v) && isfinite(*v)) return 1;
     cell_error(sw, r, MR_ERR_FORMAT, name, field, "not a number");
@@ -460,5 +452,4 @@ void mr__score_row_end(void *user, uint32_t r, size_t nfields)
                              mr__chunk_row_display(sw->chunk, r, c->display), (unsigned long long)row_line(sw, r),
                              nfields < c->nfields ? nfields : c->nfields + 1, c->nfields, nfields);
     if (sw->s->st == MR_OK) score_one(sw, r, out);
-    sw->cells.used = 0;
 }

@@ -37,6 +37,9 @@ typedef struct score_worker {
     const mr__score_cfg *c;
     mr__tokenizer tok;
     mr__numparser *np;
+    /* no missing-value token looks like a number: a short decimal cell is
+     * read by mr__parse_short_decimal before the tokens are compared */
+    int quick_numbers;
     unsigned char *wanted; /* per header field */
     mr__row_cells cells;   /* the row's cells */
     int32_t *lev;  /* the row's level numbers and numerics */
@@ -70,9 +73,8 @@ typedef struct score_worker {
 void mr__score_groups_reset(score_worker *sw);
 
 
-/* The field sink's calls (the worker is user): a row's cells, then at its
- * end its CSV line (and group row) into the worker's slot. */
-void mr__score_on_field(void *user, size_t k, const char *p, size_t len);
+/* A row's end (mr__tokenize_cells; the worker is user): its CSV line (and
+ * group row) into the worker's slot. */
 void mr__score_row_end(void *user, uint32_t r, size_t nfields);
 
 #endif

@@ -217,3 +217,52 @@ void mr__row_cells_put(mr__row_cells *r, size_t k, const char *p, size_t len)
     r->len[k] = len;
     r->used += len;
 }
+
+typedef struct cells_sink {
+    mr__row_cells *cells;
+    mr__row_done *row_end;
+    void *user;
+} cells_sink;
+
+static void cell_in_place(void *user, size_t k, const char *p, size_t len)
+{
+    mr__row_cells *r = ((cells_sink *)user)->cells;
+    if (k >= r->nfields) return;
+    r->at[k] = (size_t)(p - r->inplace);
+    r->len[k] = len;
+}
+
+static void cell_copied(void *user, size_t k, const char *p, size_t len)
+{
+    mr__row_cells_put(((cells_sink *)user)->cells, k, p, len);
+}
+
+static void cells_row_end(void *user, uint32_t r, size_t nfields)
+{
+    cells_sink *s = user;
+    s->row_end(s->user, r, nfields);
+    s->cells->used = 0;
+}
+
+mr_status mr__tokenize_cells(mr__tokenizer *t, const mr__chunk *c, mr__row_cells *cells, const unsigned char *wanted,
+                             size_t nwanted, mr__row_done *row_end, void *user, const char *display,
+                             mr__error *err)
+{
+    cells_sink s = {cells, row_end, user};
+    mr_status st = MR_OK;
+    uint32_t r;
+    cells->used = 0;
+    if (c->has_quote) {
+        const mr__field_sink copied = {&s, cell_copied, cells_row_end, wanted, nwanted, NULL};
+        cells->inplace = NULL;
+        st = mr__tokenize_chunk(t, c, &copied, display, err);
+    } else {
+        /* the splitter with cell_in_place inlined into it, as decode.c has it */
+        const mr__field_sink in_place = {&s, cell_in_place, cells_row_end, wanted, nwanted, NULL};
+        cells->inplace = c->data;
+        for (r = 0; r < c->nrows; r++)
+            mr__plain_row(c->data + c->row_start[r], c->data + c->row_start[r + 1], t->delim, &in_place, r);
+    }
+    cells->inplace = NULL;
+    return st;
+}

@@ -93,11 +93,30 @@ typedef struct mr__row_cells {
     char *buf;
     size_t used, cap, nfields;
     int nomem;
+    /* Non-NULL while a chunk without quotes is cut: cell k is then
+     * inplace + at[k], in the chunk itself, and nothing is copied. */
+    const char *inplace;
 } mr__row_cells;
 
 mr_status mr__row_cells_init(mr__row_cells *r, size_t nfields);
 void mr__row_cells_release(mr__row_cells *r);
 void mr__row_cells_put(mr__row_cells *r, size_t k, const char *p, size_t len);
+
+/* Cell k of the row at hand and its length. */
+static inline const char *mr__row_cell(const mr__row_cells *r, size_t k, size_t *len)
+{
+    *len = r->len[k];
+    return (r->inplace ? r->inplace : r->buf) + r->at[k];
+}
+
+/* Cuts the chunk's rows into `cells` and calls row_end(user, r, nfields)
+ * after each, in order; the cells hold until row_end returns.  A chunk
+ * without quotes is cut in place.  `wanted` as in mr__field_sink (only
+ * WANTED and SKIP). */
+typedef void mr__row_done(void *user, uint32_t r, size_t nfields);
+mr_status mr__tokenize_cells(mr__tokenizer *t, const mr__chunk *c, mr__row_cells *cells, const unsigned char *wanted,
+                             size_t nwanted, mr__row_done *row_end, void *user, const char *display,
+                             mr__error *err);
 
 /* Whether a cell is one of the missing-value tokens, compared whole (""
  * the empty cell).  The fit's decoder has its own quicker test for its
