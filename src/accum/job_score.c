@@ -105,6 +105,7 @@ static mr_status score_worker_init(void *job, mr__pass_worker *w, mr__error *err
 {
     const mr__score_cfg *c = job;
     size_t i, nf = c->nfields ? c->nfields : 1, nx = c->nterms + 1;
+    int k;
     score_worker *sw = mr__calloc(1, sizeof *sw);
     if (sw == NULL) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     w->part = sw;
@@ -124,6 +125,11 @@ static mr_status score_worker_init(void *job, mr__pass_worker *w, mr__error *err
     if (!sw->lev || !sw->num || !sw->np || !sw->wanted || mr__row_cells_init(&sw->cells, c->nfields) != MR_OK ||
         !sw->xcol || !sw->xval)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    for (k = 0; k < MR__SCORE_NCOLUMNS; k++) sw->written[k] = (unsigned char)mr__score_column_written(c, k);
+    sw->wants_interval = sw->written[3] || sw->written[4];
+    sw->wants_se = sw->written[1] || sw->wants_interval;
+    sw->wants_residuals = 0;
+    for (k = MR__SCORE_FIRST_RESIDUAL; k < MR__SCORE_NCOLUMNS; k++) sw->wants_residuals |= sw->written[k];
     sw->quick_numbers = 1;
     for (i = 0; i < c->nmissing_tokens; i++)
         if (mr__is_number_syntax(c->missing_token[i], strlen(c->missing_token[i]))) sw->quick_numbers = 0;

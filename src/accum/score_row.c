@@ -183,29 +183,43 @@ static double level_variance(score_worker *sw, size_t m, int32_t l)
     return (v > 0 ? v : 0) + c->many_own_var[l];
 }
 
-/* eta = x'beta + offset and its variance x'Vx, over the row's entries in
- * a fixed order (the same bits whatever the thread). */
+/* x'Vx over the row's entries, V symmetric: each entry's square term,
+ * then twice its products with the entries before it, in a fixed order
+ * (the same bits whatever the thread). */
+static double design_variance(const score_worker *sw, size_t m)
+{
+    const mr__score_cfg *c = sw->c;
+    double v = 0;
+    size_t a, b;
+    for (a = 0; a < m; a++) {
+        const double *row = c->cov + sw->xcol[a] * c->p;
+        double cross = 0;
+        for (b = 0; b < a; b++) cross += row[sw->xcol[b]] * sw->xval[b];
+        v += sw->xval[a] * (row[sw->xcol[a]] * sw->xval[a] + 2 * cross);
+    }
+    return v;
+}
+
+/* eta = x'beta + offset and, when se is not NULL, its standard error
+ * sqrt(x'Vx). */
 static void linear_predictor(score_worker *sw, size_t m, double off, double *eta, double *se)
 {
     const mr__score_cfg *c = sw->c;
-    double e = 0, v = 0;
-    size_t a, b;
+    double e = 0, v;
+    size_t a;
     for (a = 0; a < m; a++) e += c->beta[sw->xcol[a]] * sw->xval[a];
     if (c->many_var >= 0) {
         int32_t l = sw->lev[c->many_var];
         e += c->many_beta[l];
         if (l != c->many_ref) {
             *eta = e + off;
-            *se = sqrt(level_variance(sw, m, l));
+            if (se) *se = sqrt(level_variance(sw, m, l));
             return;
         }
     }
-    for (a = 0; a < m; a++) {
-        double row = 0;
-        for (b = 0; b < m; b++) row += c->cov[sw->xcol[a] * c->p + sw->xcol[b]] * sw->xval[b];
-        v += sw->xval[a] * row;
-    }
     *eta = e + off;
+    if (se == NULL) return;
+    v = design_variance(sw, m);
     *se = sqrt(v > 0 ? v : 0);
 }
 
@@ -276,21 +290,22 @@ static double put_predictions(score_worker *sw, mr__strbuf *out, size_t m, const
 {
     const mr__score_cfg *c = sw->c;
     row_text o;
-    double eta, se, mu, lo, hi, v[MR__SCORE_NCOLUMNS];
+    double eta, se = NAN, mu, v[MR__SCORE_NCOLUMNS] = {0};
     int k, n = 0;
     o.n = 0;
-    linear_predictor(sw, m, row->off, &eta, &se);
+    linear_predictor(sw, m, row->off, &eta, sw->wants_se ? &se : NULL);
     mu = inverse_link(c, eta);
-    lo = inverse_link(c, eta - c->z * se);
-    hi = inverse_link(c, eta + c->z * se);
     v[0] = eta;
     v[1] = se;
     v[2] = mu;
-    v[3] = lo < hi ? lo : hi;
-    v[4] = lo < hi ? hi : lo;
-    if (c->role_field[MR__SCORE_OUTCOME] >= 0) residuals(sw, row, mu, v + MR__SCORE_FIRST_RESIDUAL);
+    if (sw->wants_interval) {
+        double lo = inverse_link(c, eta - c->z * se), hi = inverse_link(c, eta + c->z * se);
+        v[3] = lo < hi ? lo : hi;
+        v[4] = lo < hi ? hi : lo;
+    }
+    if (sw->wants_residuals) residuals(sw, row, mu, v + MR__SCORE_FIRST_RESIDUAL);
     for (k = 0; k < MR__SCORE_NCOLUMNS; k++)
-        if (mr__score_column_written(c, k)) put_number(&o, v[k], c->nkeep > 0 || n++ > 0);
+        if (sw->written[k]) put_number(&o, v[k], c->nkeep > 0 || n++ > 0);
     mr__strbuf_append(out, o.t, o.n);
     return mu;
 }

@@ -40,6 +40,10 @@ typedef struct score_worker {
     /* no missing-value token looks like a number: a short decimal cell is
      * read by mr__parse_short_decimal before the tokens are compared */
     int quick_numbers;
+    /* the computed columns written (mr__score_column_written), and which
+     * of the costlier ones they need */
+    unsigned char written[MR__SCORE_NCOLUMNS];
+    int wants_se, wants_interval, wants_residuals;
     unsigned char *wanted; /* per header field */
     mr__row_cells cells;   /* the row's cells */
     int32_t *lev;  /* the row's level numbers and numerics */
