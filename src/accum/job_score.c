@@ -157,7 +157,7 @@ static void score_compute(void *job, mr__pass_worker *w, mr__pass_slot *s)
     score_slot *out = s->part;
     out->out.len = out->keys.len = 0;
     out->rows = out->scored = out->unseen = out->missing = 0;
-    out->ngrow = out->nkey = 0;
+    out->nkey = 0;
     out->toomany = 0;
     if (c->nby) mr__score_groups_reset(sw);
     sw->s = s;
@@ -206,24 +206,23 @@ static mr_status group_id(mr__score_cfg *c, const char *key, size_t len, int32_t
     return MR_OK;
 }
 
-/* The block's group rows into the totals, in input order: its groups
- * first, in the order of their first row (so that new ones are numbered
- * in order of first appearance), then each row's counts. */
+/* The block's groups into the totals, in the order of their first row in
+ * it (so that new ones are numbered in order of first appearance), each
+ * with its sums over the block. */
 static mr_status add_groups(mr__score_cfg *c, score_slot *out, mr__error *err)
 {
     size_t i;
     if (out->nomem || out->keys.failed) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     if (out->toomany) return too_many_groups(c, err);
-    for (i = 0; i < out->nkey; i++)
-        MR__TRY(group_id(c, out->keys.data + out->gkey[i].at, out->gkey[i].len, &out->gkey[i].id, err));
-    for (i = 0; i < out->ngrow; i++) {
-        const group_row *g = &out->grow[i];
-        int32_t id = out->gkey[g->local].id;
+    for (i = 0; i < out->nkey; i++) {
+        const group_key *g = &out->gkey[i];
+        int32_t id;
+        MR__TRY(group_id(c, out->keys.data + g->at, g->len, &id, err));
         c->g_obs[id] += g->obs;
         c->g_exp[id] += g->exp;
         c->g_expo[id] += g->expo;
         c->g_prior[id] += g->prior;
-        c->g_rows[id]++;
+        c->g_rows[id] += g->rows;
     }
     return MR_OK;
 }
@@ -280,7 +279,6 @@ static void score_slot_release(void *job, mr__pass_slot *s)
     if (out == NULL) return;
     mr__strbuf_release(&out->out);
     mr__strbuf_release(&out->keys);
-    mr__free(out->grow);
     mr__free(out->gkey);
     mr__free(out);
     s->part = NULL;

@@ -355,17 +355,10 @@ static int new_group_key(score_worker *sw, score_slot *out)
         mr__strbuf_append(&out->keys, p, n);
     }
     out->gkey[out->nkey].len = out->keys.len - out->gkey[out->nkey].at;
+    out->gkey[out->nkey].obs = out->gkey[out->nkey].exp = 0;
+    out->gkey[out->nkey].expo = out->gkey[out->nkey].prior = 0;
+    out->gkey[out->nkey].rows = 0;
     out->nkey++;
-    return 0;
-}
-
-static int more_group_rows(score_slot *out)
-{
-    size_t cap = out->grow_cap ? 2 * out->grow_cap : 1024;
-    group_row *more = mr__realloc(out->grow, cap * sizeof *more);
-    if (more == NULL) return -1;
-    out->grow = more;
-    out->grow_cap = cap;
     return 0;
 }
 
@@ -403,29 +396,26 @@ static mr_status local_group(score_worker *sw, score_slot *out, int32_t *id)
     return st;
 }
 
-/* The row's group (numbered in its block) and counts; the block's table
- * is merged into the totals in block order (job_score.c). */
+/* The row's counts into its group's sums in the block (numbered in the
+ * block); the block's groups go into the totals in block order
+ * (job_score.c). */
 static void note_group_row(score_worker *sw, score_slot *out, const score_row *row, double mu)
 {
     const mr__score_cfg *c = sw->c;
-    group_row *g;
+    group_key *g;
     int32_t id;
     mr_status st;
-    if (out->ngrow == out->grow_cap && more_group_rows(out) != 0) {
-        out->nomem = 1;
-        return;
-    }
     if ((st = local_group(sw, out, &id)) != MR_OK) {
         if (st == MR_ERR_DOMAIN) out->toomany = 1;
         else out->nomem = 1;
         return;
     }
-    g = &out->grow[out->ngrow++];
-    g->local = id;
-    g->obs = row->prior * row->y;
-    g->exp = row->prior * mu;
-    g->expo = c->role_field[MR__SCORE_EXPOSURE] >= 0 ? sw->expo : NAN;
-    g->prior = row->prior;
+    g = &out->gkey[id];
+    g->obs += row->prior * row->y;
+    g->exp += row->prior * mu;
+    g->expo += c->role_field[MR__SCORE_EXPOSURE] >= 0 ? sw->expo : NAN;
+    g->prior += row->prior;
+    g->rows++;
 }
 
 static void score_one(score_worker *sw, uint32_t r, score_slot *out)

@@ -7,19 +7,15 @@
 #include "accum/score.h"
 #include "common/strbuf.h"
 
-/* A scored row with its outcome, for the groups: its group as numbered
- * in its block (in order of first appearance there) and its observed and
- * expected counts and exposure. */
-typedef struct group_row {
-    int32_t local;
-    double obs, exp, expo, prior;
-} group_row;
-
 /* A block's groups, in the order of their first row in it: each key
- * (each cell as its 4-byte little-endian length and bytes) in keys. */
+ * (each cell as its 4-byte little-endian length and bytes) in keys, and
+ * the group's sums over the block's rows in it, in row order (the job's
+ * add takes them into the totals in block order: the same bits for any
+ * thread count). */
 typedef struct group_key {
     size_t at, len;
-    int32_t id; /* in the totals: set by the job's add */
+    double obs, exp, expo, prior;
+    uint64_t rows;
 } group_key;
 
 typedef struct score_slot {
@@ -28,8 +24,6 @@ typedef struct score_slot {
     mr__strbuf keys;
     group_key *gkey;
     size_t nkey, gkey_cap;
-    group_row *grow;
-    size_t ngrow, grow_cap;
     int nomem, toomany;
 } score_slot;
 
