@@ -28,8 +28,10 @@
 #include "common/dtoa.h"
 #include "common/outfile.h"
 #include "common/strbuf.h"
+#include "common/threads.h"
 #include "family/family.h"
 #include "fit/fit.h"
+#include "fit/run.h"
 #include "fit/scorer.h"
 #include "output/exact_interval.h"
 #include "output/json_text.h"
@@ -93,16 +95,53 @@ static void exact_bounds(const mr_scorer *s, int binomial, size_t i, double *loh
     mr__clopper_pearson_interval(o, n, s->level, &lohi[0], &lohi[1]);
 }
 
-/* Each group's bounds for O (2 per group), or NULL when out of memory. */
+/* The bounds of every `stride`-th distinct counts from `first`: a
+ * thread's share (distinct counts by size, so each thread meets large
+ * ones and small ones alike). */
+typedef struct bounds_work {
+    const mr_scorer *s;
+    const counts_key *key;
+    const size_t *distinct; /* where each distinct counts' run starts in key */
+    size_t ndistinct, first, stride;
+    int binomial;
+    double *b;
+} bounds_work;
+
+static void *bounds_share(void *arg)
+{
+    const bounds_work *w = arg;
+    size_t d;
+    for (d = w->first; d < w->ndistinct; d += w->stride) {
+        size_t i = w->key[w->distinct[d]].i;
+        exact_bounds(w->s, w->binomial, i, w->b + 2 * i);
+    }
+    return NULL;
+}
+
+static size_t bounds_threads(const mr_scorer *s, size_t ndistinct)
+{
+    int cpus;
+    size_t T = (size_t)mr__worker_threads(s->threads, &cpus);
+    if (T > MR__THREADS_MAX) T = MR__THREADS_MAX;
+    return T < ndistinct ? T : ndistinct > 0 ? ndistinct : 1;
+}
+
+/* Each group's bounds for O (2 per group), or NULL when out of memory:
+ * found once per distinct counts, those spread over threads (each
+ * computed alone, so the same bits for any number of them), then copied
+ * to the other groups of the same counts. */
 static double *group_bounds(const mr_scorer *s)
 {
-    size_t n = s->g.n, i, j;
+    size_t n = s->g.n, i, j, nd = 0, T, t;
     int binomial = binomial_groups(s);
     double *b = mr__malloc_array(2 * (n ? n : 1), sizeof *b);
     counts_key *k = mr__malloc_array(n ? n : 1, sizeof *k);
-    if (b == NULL || k == NULL) {
+    size_t *distinct = mr__malloc_array(n ? n : 1, sizeof *distinct);
+    bounds_work work[MR__THREADS_MAX];
+    if (b == NULL || k == NULL || distinct == NULL) {
         mr__free(b);
         mr__free(k);
+        mr__free(distinct);
         return NULL;
     }
     for (i = 0; i < n; i++) {
@@ -113,12 +152,22 @@ static double *group_bounds(const mr_scorer *s)
     }
     qsort(k, n, sizeof *k, by_counts);
     for (i = 0; i < n; i = j) {
+        distinct[nd++] = i;
+        for (j = i + 1; j < n && k[j].o == k[i].o && k[j].n == k[i].n; j++) continue;
+    }
+    T = bounds_threads(s, nd);
+    for (t = 0; t < T; t++) {
+        bounds_work w = {s, k, distinct, nd, t, T, binomial, b};
+        work[t] = w;
+    }
+    mr__run_threads(bounds_share, work, sizeof work[0], T);
+    for (i = 0; i < n; i = j) {
         const double *lohi = b + 2 * k[i].i;
-        exact_bounds(s, binomial, k[i].i, b + 2 * k[i].i);
         for (j = i + 1; j < n && k[j].o == k[i].o && k[j].n == k[i].n; j++)
             memcpy(b + 2 * k[j].i, lohi, 2 * sizeof *b);
     }
     mr__free(k);
+    mr__free(distinct);
     return b;
 }
 

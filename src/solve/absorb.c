@@ -1,8 +1,8 @@
 #include <math.h>
-#include <pthread.h>
 #include <string.h>
 
 #include "common/alloc.h"
+#include "common/threads.h"
 #include "solve/absorb.h"
 #include "solve/normal_eq.h"
 
@@ -100,21 +100,6 @@ static void *schur_parts(void *arg)
     return NULL;
 }
 
-/* fn(work[t]) on T threads, the calling thread's last; a thread that
- * cannot be made leaves its share to the calling thread (the same bits). */
-static void run_threads(void *(*fn)(void *), void *work, size_t size, size_t T)
-{
-    pthread_t th[MR__ABSORB_MAX_THREADS];
-    int made[MR__ABSORB_MAX_THREADS] = {0};
-    size_t t;
-    for (t = 0; t + 1 < T; t++) made[t] = pthread_create(&th[t], NULL, fn, (char *)work + t * size) == 0;
-    for (t = 0; t + 1 < T; t++)
-        if (!made[t]) fn((char *)work + t * size);
-    fn((char *)work + (T - 1) * size);
-    for (t = 0; t + 1 < T; t++)
-        if (made[t]) pthread_join(th[t], NULL);
-}
-
 static size_t solve_threads(const mr__absorb_sums *s, size_t most)
 {
     size_t T = s->threads > 1 ? (size_t)s->threads : 1;
@@ -140,7 +125,7 @@ static mr_status schur(const mr__absorb_sums *s, double *S, double *rhs, mr__err
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     }
     for (t = 0; t < T; t++) work[t] = (schur_work){s, nparts, T, t, P, prhs, scratch + t * pr, nz + t * pr};
-    run_threads(schur_parts, work, sizeof work[0], T);
+    mr__run_threads(schur_parts, work, sizeof work[0], T);
     memcpy(S, s->A, pr * pr * sizeof *S);
     memcpy(rhs, s->bR, pr * sizeof *rhs);
     for (k = 0; k < nparts; k++) {
@@ -223,7 +208,7 @@ static mr_status levels_all(const mr__absorb_sums *s, mr__absorb_solution *sol, 
     for (t = 0; t < T; t++)
         work[t] = (level_work){s, sol, s->nlev * t / T, s->nlev * (t + 1) / T, 0, want_cov, g + t * (s->pr + 1),
                                nz + t * (s->pr + 1)};
-    run_threads(levels_from_rest, work, sizeof work[0], T);
+    mr__run_threads(levels_from_rest, work, sizeof work[0], T);
     for (t = 0; t < T; t++) sol->nempty += work[t].nempty;
     mr__free(g), mr__free(nz);
     return MR_OK;

@@ -49,6 +49,7 @@
 
 #include <stddef.h>
 #include "common/error.h"
+#include "common/threads.h"
 
 /* A pass's totals for the elimination: level l's row lev[l * (pr + 2) ..]
  * holds d_l, b_D,l, then c_l (MR__ABSORB_WIDTH(pr) doubles a level). */
@@ -74,7 +75,7 @@ typedef struct mr__absorb_sums {
  * p_r x p_r partial sums, at least one (so past 1,448 other columns one
  * part's p_r x p_r is held beside S). */
 #define MR__ABSORB_PART_LEVELS 4096
-#define MR__ABSORB_MAX_THREADS 64
+#define MR__ABSORB_MAX_THREADS MR__THREADS_MAX
 #define MR__ABSORB_PART_BYTES ((size_t)16 << 20)
 size_t mr__absorb_parts(size_t nlev, size_t pr);
 
