@@ -269,7 +269,7 @@ def markdown(rep):
         lines += ["", "Instruction counts by `valgrind --tool=callgrind` do not depend on the machine's load, "
                   "so these ratios were taken on a shared machine. They stand in for time only roughly "
                   "(memory stalls and the threads' overlap are not counted). Wall-clock figures need a "
-                  "quiet machine (`bench/pipeline.py`, `make bench`, 10^7 rows) and are not measured yet. "
+                  "quiet machine (`bench/pipeline.py`, `make bench`, 10^7 rows) (bench/results/pipeline.md). "
                   "Peak RSS is of a plain run of each command."]
     lines += ["", "## Goals", "", "| goal | measured | |", "|---|---|---|",
               goal("issue 14: checkpoint's cost per pass, in passes (< 0.02)", rf["checkpoint_share_of_pass"],
