@@ -9,6 +9,7 @@
 #include <sys/stat.h>
 #include <sys/statvfs.h>
 
+#include "accum/first_bytes.h"
 #include "common/alloc.h"
 #include "fit/run.h"
 /* The cache only saves time: when it cannot be had (no file can be made in
@@ -104,6 +105,10 @@ mr_status mr__drop_worker_levels(mr__run *r, mr__error *err)
     if (r->design.nabsorb == 0 || r->design.absorb_var < 0 || r->collapsed || r->first.worker_levels == NULL)
         return MR_OK;
     if (r->remap == NULL) MR__TRY(mr__build_remap(r, err));
+    if (r->f->checkpoint != NULL) { /* every checkpoint holds them */
+        mr__first_encode(&r->first, r->bind.ncol, r->bind.nnum, r->bind.nfac, &r->first_bytes);
+        if (r->first_bytes.failed) return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
+    }
     f = (size_t)r->design.absorb_var;
     for (w = 0; w < r->first.nworkers; w++) {
         mr__levelset *s = &r->first.worker_levels[w][f];

@@ -104,7 +104,10 @@ static void put_state(mr__run *r, const mr__irls *s, const unsigned char *state,
     put_run(b, r);
     mr__bytebuf_u64(b, 0);
     start = b->len;
-    mr__first_encode(&r->first, r->bind.ncol, r->bind.nnum, r->bind.nfac, b);
+    if (r->first_bytes.len > 0 && (at = mr__bytebuf_room(b, r->first_bytes.len)) != NULL)
+        memcpy(at, r->first_bytes.data, r->first_bytes.len);
+    else if (r->first_bytes.len == 0)
+        mr__first_encode(&r->first, r->bind.ncol, r->bind.nnum, r->bind.nfac, b);
     if (!b->failed) mr__put_u64(b->data + start - 8, b->len - start);
     mr__bytebuf_u64(b, n);
     if ((at = mr__bytebuf_room(b, n)) == NULL) return;
@@ -474,11 +477,6 @@ mr_status mr__checkpoint_begin(mr__run *r, mr__irls *resume, int *have_resume, m
     if (r->set.n > 0)
         return mr__fail(err, MR_ERR_USAGE, "checkpoint: %s: a set of %zu files; --checkpoint takes one input file "
                                            "(fit the set without it, or join the files into one)", r->display, r->set.n);
-    /* its levels' state lives beside the IRLS state, which is all a
-     * checkpoint carries: not yet, so refused rather than resumed wrongly */
-    if (mr__spec_many(&r->f->spec) >= 0)
-        return mr__fail(err, MR_ERR_USAGE, "checkpoint: %s: the model has a factor declared many, whose levels a "
-                                           "checkpoint does not carry yet; fit it without --checkpoint", r->display);
     if (mr__read_only_once(r->path))
         return mr__fail(err, MR_ERR_USAGE, "checkpoint: %s is read only once (standard input or a pipe), so a "
                                            "killed fit could not read it again; give a file", r->display);

@@ -163,6 +163,7 @@ void mr__run_release(mr__run *r)
     mr__free(r->resume_done);
     mr__free(r->done_state);
     mr__pass_result_release(&r->first, r->bind.nfac);
+    mr__bytebuf_release(&r->first_bytes);
     mr__pass_result_release(&r->last, 0);
     mr__pass_result_release(&r->meat, 0);
     mr__design_release(&r->design);

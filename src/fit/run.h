@@ -40,6 +40,10 @@ typedef struct mr__run {
     size_t header_len;
     /* what pass 1 learned */
     mr__pass_result first;
+    /* its encoding for checkpoints (accum/first_bytes.h), made before a
+     * `many` factor's worker levels are dropped (mr__drop_worker_levels),
+     * which the encoding needs; empty otherwise */
+    mr__bytebuf first_bytes;
     uint64_t size, raw_bytes;
     int64_t mtime_ns;
     mr__levelset *levels;

@@ -162,9 +162,12 @@ static mr_status init_state(mr__run *r, irls_job *job, mr__irls *s, mr__error *e
     mr__irls_cfg c;
     if (job->resume) {
         *s = *job->resume;
-        s->threads = r->nthreads; /* not in the encoding */
+        /* not in the encoding: the run's threads, and what the design says */
+        s->threads = r->nthreads;
+        s->rest_only = job->rest_only;
         memset(job->resume, 0, sizeof *job->resume);
-        if (s->p != r->design.p) return mr__fail(err, MR_ERR_INTERNAL, "the checkpoint's state does not fit the design");
+        if (s->p != mr__design_ncoef(&r->design))
+            return mr__fail(err, MR_ERR_INTERNAL, "the checkpoint's state does not fit the design");
         /* resumed by rank 0: the others take up the same state */
         return job->checkpoints ? mr__share_send_start(r, s, err) : MR_OK;
     }
