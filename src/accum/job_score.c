@@ -126,8 +126,8 @@ static mr_status score_worker_init(void *job, mr__pass_worker *w, mr__error *err
         !sw->xcol || !sw->xval)
         return mr__fail(err, MR_ERR_NO_MEMORY, "out of memory");
     for (k = 0; k < MR__SCORE_NCOLUMNS; k++) sw->written[k] = (unsigned char)mr__score_column_written(c, k);
-    sw->wants_interval = sw->written[3] || sw->written[4];
-    sw->wants_se = sw->written[1] || sw->wants_interval;
+    sw->wants_interval = sw->written[MR__SCORE_MEAN_LOW] || sw->written[MR__SCORE_MEAN_HIGH];
+    sw->wants_se = sw->written[MR__SCORE_SE_ETA] || sw->wants_interval;
     sw->wants_residuals = 0;
     for (k = MR__SCORE_FIRST_RESIDUAL; k < MR__SCORE_NCOLUMNS; k++) sw->wants_residuals |= sw->written[k];
     sw->quick_numbers = 1;

@@ -107,7 +107,15 @@ typedef struct mr__score_cfg {
 /* The computed columns, in output order: eta, se_eta, mean, mean_low,
  * mean_high, then the residuals (resid_response, resid_pearson,
  * resid_deviance) when the outcome is bound. */
-enum { MR__SCORE_NCOLUMNS = 8, MR__SCORE_FIRST_RESIDUAL = 5 };
+enum {
+    MR__SCORE_ETA = 0,
+    MR__SCORE_SE_ETA = 1,
+    MR__SCORE_MEAN = 2,
+    MR__SCORE_MEAN_LOW = 3,
+    MR__SCORE_MEAN_HIGH = 4,
+    MR__SCORE_FIRST_RESIDUAL = 5,
+    MR__SCORE_NCOLUMNS = 8
+};
 const char *mr__score_column_name(int k);
 /* Column k's number by its name, or -1. */
 int mr__score_column_index(const char *name);

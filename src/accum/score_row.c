@@ -295,13 +295,13 @@ static double put_predictions(score_worker *sw, mr__strbuf *out, size_t m, const
     o.n = 0;
     linear_predictor(sw, m, row->off, &eta, sw->wants_se ? &se : NULL);
     mu = inverse_link(c, eta);
-    v[0] = eta;
-    v[1] = se;
-    v[2] = mu;
+    v[MR__SCORE_ETA] = eta;
+    v[MR__SCORE_SE_ETA] = se;
+    v[MR__SCORE_MEAN] = mu;
     if (sw->wants_interval) {
         double lo = inverse_link(c, eta - c->z * se), hi = inverse_link(c, eta + c->z * se);
-        v[3] = lo < hi ? lo : hi;
-        v[4] = lo < hi ? hi : lo;
+        v[MR__SCORE_MEAN_LOW] = lo < hi ? lo : hi;
+        v[MR__SCORE_MEAN_HIGH] = lo < hi ? hi : lo;
     }
     if (sw->wants_residuals) residuals(sw, row, mu, v + MR__SCORE_FIRST_RESIDUAL);
     for (k = 0; k < MR__SCORE_NCOLUMNS; k++)
