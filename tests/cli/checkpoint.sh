@@ -26,6 +26,7 @@ seed=${CHECKPOINT_SEED:-20261205}
 "$synth" --rows 1000000 --seed 11 --out "$tmp/big.csv" || fail synth "exit $?"
 "$synth" --rows 100000 --seed 12 --out "$tmp/other.csv" || fail synth "exit $?"
 ck="$tmp/fit.ckpt"
+data="$tmp/big.csv"
 # case B of bench/run.py, never collapsed, to a tight tolerance: several
 # passes over the file
 model=(--outcome events --family poisson --exposure followup --factor age_band --factor sex --factor region
@@ -36,7 +37,7 @@ model=(--outcome events --family poisson --exposure followup --factor age_band -
 fit() {
     local name=$1 rc
     shift
-    env "$@" "$bin" fit "${model[@]}" --checkpoint "$ck" --json "$tmp/$name.json" "$tmp/big.csv" \
+    env "$@" "$bin" fit "${model[@]}" --checkpoint "$ck" --json "$tmp/$name.json" "$data" \
         >/dev/null 2>"$tmp/$name.err"
     rc=$?
     echo "$rc"
@@ -194,34 +195,13 @@ rc=$("$bin" fit "${model[@]}" --checkpoint "$ck" "$tmp/a.csv" "$tmp/b.csv" >/dev
 # and the sandwich's level rows in the finished stages; killed inside an
 # IRLS pass, after the last one and after the robust pass, each rerun gives
 # the reference's bytes, the last two without reading the data again
-/usr/bin/python3 - "$tmp/areas.csv" <<'PY'
-import math, random, sys
-random.seed(5)
-L = 2000
-eff = [random.gauss(0, 0.5) for _ in range(L)]
-with open(sys.argv[1], "w") as f:
-    f.write("y,area,age,sex,py\n")
-    for i in range(60000):
-        a = i if i < L else random.randrange(L)
-        age = random.uniform(20, 80); sex = random.choice("MF"); py = random.uniform(100, 1000)
-        mu = py * math.exp(-6 + eff[a] + 0.02 * (age - 50) + (0.3 if sex == "M" else 0))
-        k, p = 0, math.exp(-mu); s, u = p, random.random()
-        while u > s:
-            k += 1; p *= mu / k; s += p
-        f.write("%d,A%05d,%.3f,%s,%.2f\n" % (k, a, age, sex, py))
-PY
-manymodel=(--outcome y --family poisson --exposure py --numeric age --factor "area many" --factor sex
-           --tolerance 1e-13 --threads 2 --robust hc1 --many-means)
-manyfit() { # manyfit NAME [env...]: as fit, on the areas
-    local name=$1 rc
-    shift
-    env "$@" "$bin" fit "${manymodel[@]}" --checkpoint "$ck" --json "$tmp/$name.json" "$tmp/areas.csv" \
-        >/dev/null 2>"$tmp/$name.err"
-    rc=$?
-    echo "$rc"
-}
+/usr/bin/python3 "$root/tests/cli/areas.py" "$tmp/areas.csv" 60000 2000 5
+saved=("${model[@]}")
+model=(--outcome y --family poisson --exposure py --numeric age --factor "area many" --factor sex --tolerance 1e-13
+       --threads 2 --robust hc1 --many-means)
+data="$tmp/areas.csv"
 rm -f "$ck"
-"$bin" fit "${manymodel[@]}" --json "$tmp/ref.json" "$tmp/areas.csv" >/dev/null 2>"$tmp/ref.err" ||
+"$bin" fit "${model[@]}" --json "$tmp/ref.json" "$data" >/dev/null 2>"$tmp/ref.err" ||
     fail "many reference" "$(cat "$tmp/ref.err")"
 strip "$tmp/ref.json" >"$tmp/ref.stripped"
 passes=$(/usr/bin/python3 -c 'import json,sys; print(json.load(open(sys.argv[1]))["convergence"]["passes"])' "$tmp/ref.json")
@@ -229,11 +209,13 @@ for point in "pass:3:20000 2" "checkpoint:$((passes - 1)):after $((passes - 1))"
     read -r hook want <<<"$point"
     name=many-${hook%%:*}-${want}
     rm -f "$ck"
-    killed "$name.killed" "$(manyfit "$name.killed" MILLRACE_TEST_KILL="$hook")"
-    rc=$(manyfit "$name" MILLRACE_TEST_KILL=pass:$((passes + 1)):0)
+    killed "$name.killed" "$(fit "$name.killed" MILLRACE_TEST_KILL="$hook")"
+    rc=$(fit "$name" MILLRACE_TEST_KILL=pass:$((passes + 1)):0)
     [ "$rc" -eq 0 ] || fail "$name" "rerun exit $rc: $(head -c 300 "$tmp/$name.err")"
     same "$name" "$want"
 done
+model=("${saved[@]}")
+data="$tmp/big.csv"
 
 # robust standard errors by clusters of region (not grouped: held in a
 # table), from a final pass at the converged coefficients: killed inside an

@@ -6,22 +6,7 @@
 # checked against R glm and the ordinary fit in tests/ref/many_factor.py.
 source "$(dirname "${BASH_SOURCE[0]}")/common.bash"
 bin=${MILLRACE:-$bin}
-/usr/bin/python3 - "$tmp/d.csv" <<'P'
-import random, math, sys
-random.seed(3)
-L = 3000
-eff = [random.gauss(0, 0.5) for _ in range(L)]
-with open(sys.argv[1], "w") as f:
-    f.write("y,area,age,sex,py\n")
-    for i in range(150000):
-        a = i if i < L else random.randrange(L)
-        age = random.uniform(20, 80); sex = random.choice("MF"); py = random.uniform(100, 1000)
-        mu = py * math.exp(-6 + eff[a] + 0.02 * (age - 50) + (0.3 if sex == "M" else 0))
-        k, p = 0, math.exp(-mu); s, u = p, random.random()
-        while u > s:
-            k += 1; p *= mu / k; s += p
-        f.write("%d,A%05d,%.3f,%s,%.2f\n" % (k, a, age, sex, py))
-P
+/usr/bin/python3 "$root/tests/cli/areas.py" "$tmp/d.csv" 150000 3000 3
 printf 'outcome y\nfamily poisson\nexposure py\nnumeric age\nfactor area many\nfactor sex\n' > "$tmp/m.model"
 
 values() {
