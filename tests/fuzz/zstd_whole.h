@@ -121,6 +121,24 @@ static int content_size_differs(ZSTD_DStream *ds, const uint8_t *p, size_t n)
     return 0;
 }
 
+/* zstd's legacy frames (formats 0.1 to 0.7, before RFC 8878; their magic
+ * numbers 0xFD2FB51E to 0xFD2FB527, recalled from zstd's zstd_legacy.h,
+ * not checked against it): 1 when a frame of the stream starts with one. */
+static int legacy_magic(uint32_t m) { return m >= 0xFD2FB51Eu && m <= 0xFD2FB527u; }
+
+static int has_legacy_frame(const uint8_t *p, size_t n)
+{
+    while (n >= 4) {
+        size_t k;
+        if (legacy_magic(magic_of(p))) return 1;
+        k = ZSTD_findFrameCompressedSize(p, n);
+        if (ZSTD_isError(k) || k == 0 || k > n) return 0;
+        p += k;
+        n -= k;
+    }
+    return 0;
+}
+
 static void compare_with_whole(const uint8_t *in, size_t n, const char *out, size_t nout, mr_status st,
                                const mr__error *err, char *want)
 {
@@ -141,7 +159,12 @@ static void compare_with_whole(const uint8_t *in, size_t n, const char *out, siz
         if (st == MR_OK) fail(whole == WHOLE_ERROR ? "the source read a stream zstd rejects" : "the source read a truncated stream", "");
         return;
     }
-    if (st != MR_OK) fail("the source failed on a stream zstd reads", err->msg);
+    /* zstd's stream decoder reads some legacy frames given whole that it
+     * calls corrupt fed a read at a time ("Unknown frame descriptor"), as
+     * the source feeds it: a refusal, with the input named, is all that
+     * is asked there. */
+    if (st != MR_OK && !has_legacy_frame(in, n)) fail("the source failed on a stream zstd reads", err->msg);
+    if (st != MR_OK) return;
     if (nwant != nout || memcmp(want, out, nout) != 0) fail("the source's bytes differ from zstd's", "");
 }
 
