@@ -32,7 +32,7 @@ typedef struct mr__level_part {
     int32_t *col, *next;     /* per entry: its column, the next entry (-1: none) */
     int32_t *scratch_col;    /* a row's entries on their way in (width) */
     double *scratch_val;
-    int32_t *source;         /* the order a row's entries are taken in (mr__level_part_order) */
+    int32_t *source;         /* the order a row's entries are taken in (mr__level_part_init) */
 } mr__level_part;
 
 /* An empty part for one block's rows under design d (d->nabsorb > 0):

@@ -104,10 +104,9 @@ static void put_state(mr__run *r, const mr__irls *s, const unsigned char *state,
     put_run(b, r);
     mr__bytebuf_u64(b, 0);
     start = b->len;
-    if (r->first_bytes.len > 0 && (at = mr__bytebuf_room(b, r->first_bytes.len)) != NULL)
+    if (r->first_bytes.len == 0) mr__first_encode(&r->first, r->bind.ncol, r->bind.nnum, r->bind.nfac, b);
+    else if ((at = mr__bytebuf_room(b, r->first_bytes.len)) != NULL)
         memcpy(at, r->first_bytes.data, r->first_bytes.len);
-    else if (r->first_bytes.len == 0)
-        mr__first_encode(&r->first, r->bind.ncol, r->bind.nnum, r->bind.nfac, b);
     if (!b->failed) mr__put_u64(b->data + start - 8, b->len - start);
     mr__bytebuf_u64(b, n);
     if ((at = mr__bytebuf_room(b, n)) == NULL) return;

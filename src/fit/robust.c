@@ -316,7 +316,8 @@ static mr_status meat_pass(mr__run *r, int table, mr__error *err)
     pt.beta = r->beta_final;
     pt.null_skip = 1;
     memset(&mc, 0, sizeof mc);
-    /* with an eliminated factor the clusters can only be its levels (run.c) */
+    /* with an eliminated factor the clusters can only be its levels
+     * (mr__robust_check) */
     mc.by_levels = r->f->cluster != NULL && r->design.nabsorb > 0;
     mc.clusters = r->f->cluster != NULL && !mc.by_levels;
     mc.table = table;

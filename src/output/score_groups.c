@@ -161,10 +161,10 @@ static double *group_bounds(const mr_scorer *s)
         work[t] = w;
     }
     mr__run_threads(bounds_share, work, sizeof work[0], T);
-    for (i = 0; i < n; i = j) {
-        const double *lohi = b + 2 * k[i].i;
-        for (j = i + 1; j < n && k[j].o == k[i].o && k[j].n == k[i].n; j++)
-            memcpy(b + 2 * k[j].i, lohi, 2 * sizeof *b);
+    for (t = 0; t < nd; t++) {
+        size_t end = t + 1 < nd ? distinct[t + 1] : n;
+        const double *lohi = b + 2 * k[distinct[t]].i;
+        for (j = distinct[t] + 1; j < end; j++) memcpy(b + 2 * k[j].i, lohi, 2 * sizeof *b);
     }
     mr__free(k);
     mr__free(distinct);
